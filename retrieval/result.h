@@ -1,0 +1,90 @@
+#pragma once
+// The analysis result: the in-memory mirror of result.json (DESIGN.md "The result contract").
+// Every analysis (retrieve, rabbitt, classify) and the synthetic truth record fill this one
+// struct; io/result_io writes it. Sections an analysis did not compute stay std::nullopt and
+// are absent from the file (never zero). Keys and units are those of the contract.
+
+#include <optional>
+#include <string>
+#include <variant>
+#include <vector>
+
+namespace sw {
+
+/// A value under a dotted key ("preprocess.background_counts") for everything beyond the
+/// typed sections: settings, provenance, preprocessing steps, generator parameters.
+/// io expands dotted keys into nested JSON objects; a vector<double> becomes an array.
+struct Param {
+  std::string key;
+  std::variant<double, long long, bool, std::string, std::vector<double>> value;
+};
+
+struct XuvSection {
+  std::optional<double> fwhm_as, fwhm_as_sigma;
+  std::optional<double> transform_limited_fwhm_as;
+  std::optional<double> rms_duration_as;
+  std::optional<double> gdd_as2, gdd_as2_sigma;
+  std::optional<double> tod_as3, tod_as3_sigma;
+  std::optional<double> center_photon_energy_eV;
+  std::optional<double> bandwidth_fwhm_eV;
+};
+
+struct IrSection {
+  std::optional<double> peak_vector_potential_au, peak_vector_potential_au_sigma;
+  std::optional<double> peak_intensity_Wcm2, peak_intensity_Wcm2_sigma;
+  std::optional<double> wavelength_nm;
+  std::optional<double> fwhm_fs;
+};
+
+/// verdict.class values of DESIGN.md.
+enum class PulseClass { kIsolated, kIsolatedWithSatellites, kTrain, kUndetermined };
+const char* to_string(PulseClass c);
+bool parse_pulse_class(const std::string& s, PulseClass* out);
+
+struct VerdictSection {
+  PulseClass pulse_class = PulseClass::kUndetermined;
+  std::optional<double> satellite_intensity_ratio, satellite_intensity_ratio_sigma;
+  std::optional<double> main_burst_energy_fraction;
+  std::string reason;                 ///< why this class (always filled)
+  std::vector<Param> evidence;        ///< each piece of evidence with its value
+};
+
+struct FitSection {
+  std::optional<double> trace_error;  ///< G of Fittinghoff et al. (JOSA B 12, 1955 (1995))
+  std::optional<long long> iterations;
+  std::optional<bool> converged;
+  std::optional<double> seconds;
+  std::string noise_model;            ///< "poisson", "gaussian", ...
+  std::string termination;            ///< human message of the termination
+};
+
+struct Sideband {
+  int order = 0;                      ///< sideband order q (even for odd-harmonic trains)
+  double energy_eV = 0;               ///< photoelectron energy of the sideband
+  double phase_rad = 0, phase_rad_sigma = 0;
+  double group_delay_as = 0, group_delay_as_sigma = 0;
+  std::optional<double> modulation_depth;
+  std::optional<double> atomic_delay_as;   ///< correction applied (as), if any
+};
+
+struct RabbittSection {
+  std::optional<double> attochirp_as_per_eV, attochirp_as_per_eV_sigma;
+  std::optional<double> train_burst_fwhm_as, train_burst_fwhm_as_sigma;
+  std::optional<double> transform_limited_burst_fwhm_as;
+  std::vector<Sideband> sidebands;
+};
+
+struct AnalysisResult {
+  std::string input;                  ///< sidecar path as given
+  std::string analysis;               ///< "retrieve", "rabbitt", "classify", "simulate"
+  std::string engine;                 ///< engine name ("" when none)
+  std::optional<XuvSection> xuv;
+  std::optional<IrSection> ir;
+  std::optional<VerdictSection> verdict;
+  std::optional<FitSection> fit;
+  std::optional<RabbittSection> rabbitt;
+  std::vector<Param> extra;           ///< further keys beside the contract's
+  std::vector<std::string> warnings;  ///< physicist-facing warnings, written as "warnings"
+};
+
+}  // namespace sw
