@@ -26,6 +26,13 @@ class DipoleModel {
     const double q = k_au * k_au + kappa2_;
     return norm_ * k_au / (q * q * q);
   }
+  /// dd/dk at k (a.u.), for adjoint gradients: 0 for kConstant, norm (q - 6 k^2) / q^4 with
+  /// q = k^2 + kappa^2 for kHydrogenic.
+  double derivative(double k_au) const {
+    if (kind_ == DipoleKind::kConstant) return 0.0;
+    const double q = k_au * k_au + kappa2_;
+    return norm_ * (q - 6.0 * k_au * k_au) / (q * q * q * q);
+  }
 
  private:
   DipoleKind kind_ = DipoleKind::kConstant;

@@ -65,9 +65,28 @@ struct EngineOptions {
   std::vector<std::pair<std::string, std::string>> extra;
 
   std::string validate() const;       ///< "" when valid; else names field, value, constraint
-  /// Value of an extra option, or fallback.
+  /// Value of an extra option, or fallback. The last entry of a repeated name wins. A value
+  /// that is not a number throws sw::Error(kUsage) naming the option.
   double extra_double(const std::string& name, double fallback) const;
   std::string extra_string(const std::string& name, const std::string& fallback) const;
+  /// Integer-valued extra (throws sw::Error(kUsage) when the value is not an integer).
+  long long extra_int(const std::string& name, long long fallback) const;
+  bool has_extra(const std::string& name) const;
+};
+
+/// Description of one engine-specific option (EngineOptions::extra), given once by the engine
+/// and used for validation, --help text and documentation.
+struct ExtraOption {
+  enum class Kind { kNumber, kInteger, kChoice };
+  std::string name;                   ///< key in EngineOptions::extra
+  Kind kind = Kind::kNumber;
+  std::string default_value;          ///< as text, e.g. "0.25"
+  std::string help;                   ///< one line; units in the text
+  double min = -1e308;                ///< inclusive bounds for kNumber / kInteger
+  double max = 1e308;
+  std::vector<std::string> choices;   ///< allowed values for kChoice
+  /// "" when `value` is acceptable; else a message naming the option, the value and the rule.
+  std::string validate(const std::string& value) const;
 };
 
 /// One iteration's record.
@@ -95,6 +114,16 @@ struct Reconstruction {
   Termination termination = Termination::kFailure;
   std::string message;                ///< human-readable termination message
   double seconds = 0.0;
+  // --- additions beside the original fields ---
+  std::string reference;              ///< paper(s) the engine implements
+  int iterations = 0;                 ///< iterations run (== history.size())
+  int best_iteration = 0;             ///< iteration whose estimate was returned (0 = initial)
+  double prepare_seconds = 0.0;       ///< timing breakdown of `seconds`
+  double iterate_seconds = 0.0;
+  double finalize_seconds = 0.0;
+  /// Settings the engine actually used (name, value), e.g. the resolved mode of "auto", step
+  /// sizes, grid sizes: the "requested vs used" record echoed into reports.
+  std::vector<std::pair<std::string, std::string>> settings;
   bool converged() const {
     return termination == Termination::kConverged || termination == Termination::kNoiseFloor;
   }
@@ -113,6 +142,11 @@ class Engine {
   virtual std::string name() const = 0;
   virtual std::string description() const = 0;
   virtual std::string reference() const = 0;
+  /// The engine-specific options it reads from EngineOptions::extra. run_engine() checks every
+  /// extra against this list before prepare(): a declared name must have a valid value; a name
+  /// no registered engine declares is a usage error (names declared only by other engines
+  /// are ignored, so one option set can drive an engine chain).
+  virtual std::vector<ExtraOption> extra_options() const { return {}; }
   /// Throws sw::Error(kUsage) for bad engine-specific extras.
   virtual void prepare(const RetrievalProblem& problem, const EngineOptions& options) = 0;
   /// One iteration; returns its record (iteration and seconds filled in by the loop).
@@ -128,6 +162,14 @@ bool register_engine(const std::string& name, EngineFactory factory);
 /// Throws sw::Error(kUsage) listing the registered names when `name` is unknown.
 std::unique_ptr<Engine> make_engine(const std::string& name);
 std::vector<std::string> engine_names();
+/// Checks options.extra against engine.extra_options() (see Engine::extra_options); throws
+/// sw::Error(kUsage) naming the option. Called by run_engine().
+void validate_extras(const Engine& engine, const EngineOptions& options);
+
+namespace detail {
+/// The built-in engines (defined in retrieval/engine_registry.cpp), registered on first use.
+std::vector<std::pair<std::string, EngineFactory>> builtin_engines();
+}  // namespace detail
 
 /// G = sqrt( sum (I_meas - mu I_model)^2 / (N max(I_meas)^2) ) with the optimal scale
 /// mu = sum I_meas I_model / sum I_model^2 (Fittinghoff et al. 1995, normalised to the
@@ -137,7 +179,16 @@ double trace_error(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& model
 double noise_floor_trace_error(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& variance);
 
 /// The shared iteration loop: prepare, iterate until a stopping rule fires, finalize.
-/// Validates options first (throws sw::Error(kUsage) naming the field).
+/// Validates options first (throws sw::Error(kUsage) naming the field), then the extras.
+/// After each iteration k (1-based) the rules are checked in this order:
+///   1. numerical failure: G not finite, or iterate() threw sw::Error(kNumeric) -> kFailure;
+///   2. callbacks, in order: kAbort -> kFailure, kStop -> kUserStopped;
+///   3. noise floor: noise_floor_factor > 0 and G_k <= noise_floor_factor * G_noise -> kNoiseFloor;
+///   4. stall: k > patience and |G_k - G_{k-patience}| / G_k < relative_tolerance -> kConverged;
+///   5. k == max_iterations -> kMaxIterations;
+///   6. wall time since the start of run_engine >= max_seconds -> kTimeLimit.
+/// Whatever the termination, finalize() supplies the best (lowest-G) estimate; the loop fills
+/// history, termination, message, timings, noise floor and iterations.
 Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
                           const EngineOptions& options,
                           const std::vector<IterationCallback>& callbacks = {});

@@ -42,16 +42,28 @@ void cma_gate(const IrField& ir, const DipoleModel& d, double p0, const double* 
 
 namespace {
 
-// Mapping of the requested energies onto FFT bins of a grid.
-struct EnergyMap {
-  double carrier_shift = 0.0;     // delta added to the XUV carrier so bins align
-  std::vector<long> bin;          // lower FFT bin index (signed) per energy
-  std::vector<double> frac;       // interpolation weight of bin+1 (0 when exact)
-};
+inline std::size_t fft_index(long b, std::size_t n) {
+  return static_cast<std::size_t>(b < 0 ? b + static_cast<long>(n) : b);
+}
 
-EnergyMap map_energies(const TimeGrid& grid, double carrier, double ip,
-                       const std::vector<double>& W) {
-  EnergyMap m;
+// Smooth spectrum value Int ds f(s) e^{i w_b s} from the raw FFT output at signed bin b.
+inline cdouble smooth_bin(const CVec& raw, long b, const TimeGrid& g) {
+  const double w = static_cast<double>(b) * g.dw();
+  return raw[fft_index(b, g.size())] * (g.dt() * std::polar(1.0, w * g.t0()));
+}
+
+inline cdouble interpolate(const CVec& raw, const EnergyBinMap& m, std::size_t j,
+                           const TimeGrid& g) {
+  const cdouble a = smooth_bin(raw, m.bin[j], g);
+  if (m.frac[j] == 0.0) return a;
+  return (1.0 - m.frac[j]) * a + m.frac[j] * smooth_bin(raw, m.bin[j] + 1, g);
+}
+
+}  // namespace
+
+EnergyBinMap map_energy_bins(const TimeGrid& grid, double carrier, double ip,
+                             const std::vector<double>& W) {
+  EnergyBinMap m;
   const double dw = grid.dw();
   const long half = static_cast<long>(grid.size() / 2);
   bool uniform = W.size() >= 2;
@@ -79,23 +91,53 @@ EnergyMap map_energies(const TimeGrid& grid, double carrier, double ip,
   return m;
 }
 
-inline std::size_t fft_index(long b, std::size_t n) {
-  return static_cast<std::size_t>(b < 0 ? b + static_cast<long>(n) : b);
+MomentumBlockPlan plan_momentum_blocks(const IrField& ir, const TimeGrid& g,
+                                       const std::vector<double>& delay,
+                                       const std::vector<double>& W,
+                                       const ForwardModelOptions& options) {
+  MomentumBlockPlan plan;
+  if (W.empty() || delay.empty()) return plan;
+  // Range of I1 over all times the XUV can sample.
+  double lo = 1e300, hi = -1e300;
+  const double tmin = g.time(0) + delay.front(), tmax = g.time(g.size() - 1) + delay.back();
+  const std::size_t probes = 4 * ir.size() + 16;
+  for (std::size_t i = 0; i <= probes; ++i) {
+    const double I1 = ir.at(tmin + (tmax - tmin) * static_cast<double>(i) / probes).I1;
+    lo = std::min(lo, I1);
+    hi = std::max(hi, I1);
+  }
+  plan.i1_lo = lo;
+  plan.i1_hi = hi;
+  plan.i1_mid = 0.5 * (lo + hi);
+  const double half_span = std::max(0.5 * (hi - lo), 1e-12);
+  const double max_dp = 2.0 * options.max_block_phase_rad / half_span;  // block width in p
+  const int M = options.chebyshev_nodes;
+  std::size_t j0 = 0;
+  while (j0 < W.size()) {
+    const double p_start = units::momentum_au(W[j0]);
+    std::size_t j1 = j0 + 1;
+    while (j1 < W.size() && units::momentum_au(W[j1]) - p_start <= max_dp) ++j1;
+    MomentumBlock b;
+    b.first = j0;
+    b.last = j1;
+    const double pa = p_start, pb = units::momentum_au(W[j1 - 1]);
+    const double mid = 0.5 * (pa + pb), hw = std::max(0.5 * (pb - pa), 1e-9);
+    for (int m = 0; m < M; ++m) b.nodes.push_back(mid + hw * std::cos(units::kPi * (m + 0.5) / M));
+    b.lagrange.resize(static_cast<Eigen::Index>(j1 - j0), M);
+    for (std::size_t j = j0; j < j1; ++j) {
+      const double p = units::momentum_au(W[j]);
+      for (int m = 0; m < M; ++m) {
+        double L = 1.0;
+        for (int q = 0; q < M; ++q)
+          if (q != m) L *= (p - b.nodes[q]) / (b.nodes[m] - b.nodes[q]);
+        b.lagrange(static_cast<Eigen::Index>(j - j0), m) = L;
+      }
+    }
+    plan.blocks.push_back(std::move(b));
+    j0 = j1;
+  }
+  return plan;
 }
-
-// Smooth spectrum value Int ds f(s) e^{i w_b s} from the raw FFT output at signed bin b.
-inline cdouble smooth_bin(const CVec& raw, long b, const TimeGrid& g) {
-  const double w = static_cast<double>(b) * g.dw();
-  return raw[fft_index(b, g.size())] * (g.dt() * std::polar(1.0, w * g.t0()));
-}
-
-inline cdouble interpolate(const CVec& raw, const EnergyMap& m, std::size_t j, const TimeGrid& g) {
-  const cdouble a = smooth_bin(raw, m.bin[j], g);
-  if (m.frac[j] == 0.0) return a;
-  return (1.0 - m.frac[j]) * a + m.frac[j] * smooth_bin(raw, m.bin[j] + 1, g);
-}
-
-}  // namespace
 
 Eigen::MatrixXcd ForwardModel::amplitude(const XuvField& xuv_in, const IrField& ir,
                                          const std::vector<double>& delay,
@@ -103,7 +145,7 @@ Eigen::MatrixXcd ForwardModel::amplitude(const XuvField& xuv_in, const IrField& 
   if (W.empty() || delay.empty()) return Eigen::MatrixXcd(delay.size(), W.size());
   const TimeGrid& g = xuv_in.grid();
   const std::size_t n = g.size();
-  const EnergyMap map = map_energies(g, xuv_in.carrier_au(), ip_, W);
+  const EnergyBinMap map = map_energy_bins(g, xuv_in.carrier_au(), ip_, W);
   const XuvField xuv = map.carrier_shift != 0.0
                            ? xuv_in.with_carrier(xuv_in.carrier_au() + map.carrier_shift)
                            : xuv_in;
@@ -113,53 +155,13 @@ Eigen::MatrixXcd ForwardModel::amplitude(const XuvField& xuv_in, const IrField& 
   const auto nd = static_cast<long>(delay.size());
   Eigen::MatrixXcd out(delay.size(), W.size());
 
-  // Momentum blocks for the full model (one block for the CMA).
-  struct Block {
-    std::size_t first, last;            // energy index range [first, last)
-    std::vector<double> nodes;          // momenta
-    Eigen::MatrixXd lagrange;           // (energies in block) x (nodes)
-  };
-  std::vector<Block> blocks;
+  // Momentum blocks for the full model (none for the CMA).
+  std::vector<MomentumBlock> blocks;
   double i1_mid = 0.0;
   if (options_.momentum == MomentumModel::kFull) {
-    // Range of I1 over all times the XUV can sample.
-    double lo = 1e300, hi = -1e300;
-    const double tmin = ts.front() + delay.front(), tmax = ts.back() + delay.back();
-    const std::size_t probes = 4 * ir.size() + 16;
-    for (std::size_t i = 0; i <= probes; ++i) {
-      const double I1 = ir.at(tmin + (tmax - tmin) * static_cast<double>(i) / probes).I1;
-      lo = std::min(lo, I1);
-      hi = std::max(hi, I1);
-    }
-    i1_mid = 0.5 * (lo + hi);
-    const double half_span = std::max(0.5 * (hi - lo), 1e-12);
-    const double max_dp = 2.0 * options_.max_block_phase_rad / half_span;  // block width in p
-    const int M = options_.chebyshev_nodes;
-    std::size_t j0 = 0;
-    while (j0 < W.size()) {
-      const double p_start = units::momentum_au(W[j0]);
-      std::size_t j1 = j0 + 1;
-      while (j1 < W.size() && units::momentum_au(W[j1]) - p_start <= max_dp) ++j1;
-      Block b;
-      b.first = j0;
-      b.last = j1;
-      const double pa = p_start, pb = units::momentum_au(W[j1 - 1]);
-      const double mid = 0.5 * (pa + pb), hw = std::max(0.5 * (pb - pa), 1e-9);
-      for (int m = 0; m < M; ++m)
-        b.nodes.push_back(mid + hw * std::cos(units::kPi * (m + 0.5) / M));
-      b.lagrange.resize(static_cast<Eigen::Index>(j1 - j0), M);
-      for (std::size_t j = j0; j < j1; ++j) {
-        const double p = units::momentum_au(W[j]);
-        for (int m = 0; m < M; ++m) {
-          double L = 1.0;
-          for (int q = 0; q < M; ++q)
-            if (q != m) L *= (p - b.nodes[q]) / (b.nodes[m] - b.nodes[q]);
-          b.lagrange(static_cast<Eigen::Index>(j - j0), m) = L;
-        }
-      }
-      blocks.push_back(std::move(b));
-      j0 = j1;
-    }
+    MomentumBlockPlan plan = plan_momentum_blocks(ir, g, delay, W, options_);
+    i1_mid = plan.i1_mid;
+    blocks = std::move(plan.blocks);
   }
 
   const int threads = options_.threads > 0 ? options_.threads : omp_get_max_threads();
@@ -184,7 +186,7 @@ Eigen::MatrixXcd ForwardModel::amplitude(const XuvField& xuv_in, const IrField& 
           out(i, static_cast<Eigen::Index>(j)) =
               cdouble(0, -1) * std::polar(1.0, (W[j] + ip_) * tau) * interpolate(raw, map, j, g);
       } else {
-        for (const Block& b : blocks) {
+        for (const MomentumBlock& b : blocks) {
           for (std::size_t m = 0; m < b.nodes.size(); ++m) {
             const double p = b.nodes[m];
             for (std::size_t s = 0; s < n; ++s)

@@ -82,6 +82,47 @@ class ForwardModel {
   ForwardModelOptions options_;
 };
 
+/// One momentum block of the full model: energies [first, last) whose amplitudes are
+/// interpolated in p from `nodes` (Chebyshev points of the block's momentum interval);
+/// lagrange(j - first, m) is the Lagrange weight of node m at energy j.
+struct MomentumBlock {
+  std::size_t first = 0, last = 0;
+  std::vector<double> nodes;
+  Eigen::MatrixXd lagrange;
+};
+
+/// The block layout kFull uses for one IR field (what ForwardModel::amplitude builds on every
+/// call), exposed so that adjoint code can reuse exactly the same nodes. Node m of a block
+/// carries the gate d(p_m + A) exp(-i p_m (I1 - i1_mid) - i I2/2); the factor
+/// exp(-i p i1_mid) is restored per energy. i1_lo/i1_hi: range of I1(t) over the times the
+/// XUV grid can sample, [t_0 + tau_first, t_last + tau_last] (the range the blocks were sized
+/// for); i1_mid = (i1_lo + i1_hi) / 2.
+struct MomentumBlockPlan {
+  double i1_mid = 0.0;
+  double i1_lo = 0.0;
+  double i1_hi = 0.0;
+  std::vector<MomentumBlock> blocks;
+};
+/// Blocks for energies energy_au (ascending), delays delay_au, the XUV grid and an IR field,
+/// sized by options.chebyshev_nodes and options.max_block_phase_rad (momentum model ignored).
+MomentumBlockPlan plan_momentum_blocks(const IrField& ir, const TimeGrid& xuv_grid,
+                                       const std::vector<double>& delay_au,
+                                       const std::vector<double>& energy_au,
+                                       const ForwardModelOptions& options);
+
+/// Where each requested energy falls on the XUV grid's FFT bins (what ForwardModel uses):
+/// the amplitude at energy j is (1 - frac[j]) x bin[j] + frac[j] x (bin[j] + 1) (signed FFT
+/// bins of the frequency w = W + Ip - carrier - carrier_shift). For a uniform axis whose step
+/// is the grid's dw, carrier_shift (< dw/2 in magnitude) moves the carrier onto the axis and
+/// every frac is 0. Throws std::invalid_argument when an energy lies outside the grid's band.
+struct EnergyBinMap {
+  double carrier_shift = 0.0;
+  std::vector<long> bin;
+  std::vector<double> frac;
+};
+EnergyBinMap map_energy_bins(const TimeGrid& grid, double carrier_au, double ionization_energy_au,
+                             const std::vector<double>& energy_au);
+
 /// The CMA phase gate G(t) = d(p0 + A) exp(-i p0 I1(t) - i I2(t)/2) at times t (a.u.).
 void cma_gate(const IrField& ir, const DipoleModel& d, double p0_au, const double* t_au,
               std::size_t n, cdouble* gate_out);

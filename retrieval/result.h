@@ -4,6 +4,7 @@
 // struct; io/result_io writes it. Sections an analysis did not compute stay std::nullopt and
 // are absent from the file (never zero). Keys and units are those of the contract.
 
+#include <map>
 #include <optional>
 #include <string>
 #include <variant>
@@ -84,6 +85,10 @@ struct AnalysisResult {
   std::optional<FitSection> fit;
   std::optional<RabbittSection> rabbitt;
   std::vector<Param> extra;           ///< further keys beside the contract's
+  /// Further values given as JSON text under a dotted key (e.g. "sidecar.operator" ->
+  /// "\"A. N. Other\""), written verbatim at that position; used to echo unknown sidecar keys
+  /// (TraceMeta::extra_json) into result.json.
+  std::map<std::string, std::string> extra_json;
   std::vector<std::string> warnings;  ///< physicist-facing warnings, written as "warnings"
 };
 

@@ -25,6 +25,10 @@ inline constexpr double kAtomicField_V_per_m = 5.14220674763e11;
 inline constexpr double kBohrRadius_m = 5.29177210903e-11;
 /// Speed of light in vacuum (exact, SI 2019) in m/s.
 inline constexpr double kSpeedOfLight_m_per_s = 299792458.0;
+/// Electron mass m_e in kg (CODATA 2018: 9.109 383 7015e-31 kg).
+inline constexpr double kElectronMass_kg = 9.1093837015e-31;
+/// Elementary charge e in C (exact, SI 2019: 1.602 176 634e-19 C).
+inline constexpr double kElementaryCharge_C = 1.602176634e-19;
 /// Inverse fine-structure constant (CODATA 2018: 137.035 999 084) = c in atomic units.
 inline constexpr double kSpeedOfLight_au = 137.035999084;
 /// Vacuum permittivity eps0 in F/m (CODATA 2018: 8.854 187 8128e-12 F/m).
@@ -69,6 +73,15 @@ constexpr double wavelength_nm_to_omega_au(double nm) { return eV_to_au(kPlanckC
 constexpr double omega_au_to_wavelength_nm(double w) { return kPlanckC_eV_nm / au_to_eV(w); }
 /// Optical period in a.u. of a field of angular frequency omega (a.u.).
 constexpr double period_au(double omega_au) { return kTwoPi / omega_au; }
+
+/// Delay (fs) produced by travel x (um) of a retro-reflecting delay stage: the path changes by
+/// 2 x, so dt = 2 x / c with c exact (SI 2019); 1 um -> 6.671 fs.
+constexpr double stage_travel_um_to_fs(double um) {
+  return 2.0 * um * 1e-6 / kSpeedOfLight_m_per_s * 1e15;
+}
+constexpr double fs_to_stage_travel_um(double fs) {
+  return fs * 1e-15 * kSpeedOfLight_m_per_s / 2.0 * 1e6;
+}
 
 // --- intensity and field ----------------------------------------------------------------
 /// Peak field (a.u.) of a linearly polarised pulse of peak cycle-averaged intensity I (W/cm^2).

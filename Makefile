@@ -1,0 +1,49 @@
+# streakwright: set-up, build, demo and tests on a fresh Debian 12 machine.
+#   make demo   install missing Debian packages, build, simulate a preset scan and retrieve it
+#   make test   install missing Debian packages, build, run the whole test suite
+#   make bench  build and run the Google Benchmark programs (figures go in docs/performance.md)
+
+BUILD   ?= build
+JOBS    ?= $(shell nproc 2>/dev/null || echo 2)
+SUDO    := $(shell [ "$$(id -u)" = 0 ] || echo sudo)
+DEMO    ?= demo-out
+PRESET  ?= neon-150as
+
+# Debian 12 package names of everything the build and the tests need.
+DEPS := cmake g++ make pkg-config libeigen3-dev libfftw3-dev libceres-dev \
+        libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev \
+        catch2 libcli11-dev nlohmann-json3-dev libhdf5-dev libbenchmark-dev
+
+.PHONY: deps configure build test demo bench clean format
+
+deps:
+	@missing=""; for p in $(DEPS); do dpkg -s $$p >/dev/null 2>&1 || missing="$$missing $$p"; done; \
+	if [ -n "$$missing" ]; then \
+	  echo "installing:$$missing"; \
+	  $(SUDO) env DEBIAN_FRONTEND=noninteractive apt-get update -qq && \
+	  $(SUDO) env DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$missing; \
+	fi
+
+configure: deps
+	cmake -S . -B $(BUILD) -DCMAKE_BUILD_TYPE=Release
+
+build: configure
+	cmake --build $(BUILD) -j$(JOBS)
+
+test: build
+	cd $(BUILD) && ctest --output-on-failure -j$(JOBS)
+
+demo: build
+	./$(BUILD)/cli/streakwright simulate --preset $(PRESET) --out $(DEMO) --seed 7
+	./$(BUILD)/cli/streakwright retrieve $(DEMO)/$(PRESET).json --out $(DEMO)/retrieval
+
+bench: deps
+	cmake -S . -B $(BUILD) -DCMAKE_BUILD_TYPE=Release -DSTREAKWRIGHT_BUILD_BENCHMARKS=ON
+	cmake --build $(BUILD) -j$(JOBS)
+	for b in $(BUILD)/tests/bench/bench_*; do [ -x $$b ] && $$b; done
+
+format:
+	clang-format -i $$(git ls-files '*.h' '*.cpp')
+
+clean:
+	rm -rf $(BUILD) $(DEMO)

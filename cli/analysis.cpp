@@ -1,0 +1,89 @@
+#include "cli/analysis.h"
+
+#include <chrono>
+#include <sstream>
+
+#include "cli/provenance.h"
+#include "io/retrieval_outputs.h"
+#include "io/trace_reader.h"
+#include "retrieval/error.h"
+
+namespace sw::cli {
+
+const char* to_string(AnalysisKind k) {
+  switch (k) {
+    case AnalysisKind::kRetrieve: return "retrieve";
+    case AnalysisKind::kRabbitt: return "rabbitt";
+    case AnalysisKind::kClassify: return "classify";
+    default: return "auto";
+  }
+}
+
+bool parse_analysis_kind(const std::string& s, AnalysisKind* out) {
+  if (s == "auto") *out = AnalysisKind::kAuto;
+  else if (s == "retrieve") *out = AnalysisKind::kRetrieve;
+  else if (s == "rabbitt") *out = AnalysisKind::kRabbitt;
+  else if (s == "classify") *out = AnalysisKind::kClassify;
+  else return false;
+  return true;
+}
+
+void apply_overrides(Trace& t, const ScanOverrides& o) {
+  if (o.gas) t.meta.gas = *o.gas;
+  if (o.ir_wavelength_nm) t.meta.ir_wavelength_nm = *o.ir_wavelength_nm;
+  if (o.kind && !parse_trace_kind(*o.kind, &t.meta.kind))
+    throw usage_error("override kind '" + *o.kind + "': expected streaking, rabbitt or xuv_only");
+}
+
+// Implemented beside their subcommands (cli/cmd_rabbitt.cpp, cli/cmd_classify.cpp).
+AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job, const std::vector<Param>& prov);
+AnalysisResult run_classify_analysis(const Trace& trace, const ScanJob& job, const std::vector<Param>& prov);
+AnalysisKind auto_analysis(const Trace& trace);
+
+ScanOutcome run_scan(const ScanJob& job) {
+  ScanOutcome o;
+  const auto t0 = std::chrono::steady_clock::now();
+  try {
+    Trace trace = read_trace(job.sidecar);
+    apply_overrides(trace, job.overrides);
+    std::vector<Param> prov = provenance(job.sidecar, trace.meta.image, "");
+    AnalysisKind kind = job.analysis == AnalysisKind::kAuto ? auto_analysis(trace) : job.analysis;
+    o.analysis_run = kind;
+    for (Param& p : prov)
+      if (p.key == "provenance.command") p.value = std::string(to_string(kind));
+    for (const Param& p : job.extra_provenance) prov.push_back(p);
+    if (kind == AnalysisKind::kRetrieve) {
+      RetrieveOptions ro = job.retrieve;
+      if (job.overrides.engine) ro.engine = *job.overrides.engine;
+      const RetrieveOutput out = retrieve(trace, ro, [&](const std::string& stage, const IterationRecord& r) {
+        if (!job.progress) return;
+        std::ostringstream m;
+        m.precision(4);
+        m << "iteration " << r.iteration << ", G = " << r.trace_error << ", " << r.seconds << " s";
+        job.progress(stage, m.str());
+      });
+      write_retrieval_outputs(trace, out, job.out_dir, prov);
+      o.result = out.result;
+      for (const Param& p : prov) o.result.extra.push_back(p);
+      o.exit_code = out.reconstruction.converged() ? 0 : 4;
+    } else if (kind == AnalysisKind::kRabbitt) {
+      o.result = run_rabbitt_analysis(trace, job, prov);
+    } else {
+      o.result = run_classify_analysis(trace, job, prov);
+    }
+    o.ok = true;
+  } catch (const Error& e) {
+    o.ok = false;
+    o.message = e.what();
+    o.exit_code = e.exit_code();
+    o.error_kind = e.kind();
+  } catch (const std::exception& e) {
+    o.ok = false;
+    o.message = std::string("internal error: ") + e.what();
+    o.exit_code = 1;
+  }
+  o.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  return o;
+}
+
+}  // namespace sw::cli

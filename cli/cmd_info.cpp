@@ -1,0 +1,110 @@
+// `streakwright info SCAN.json`: what was loaded, and what a physicist should worry about.
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <iostream>
+#include <sstream>
+
+#include "cli/commands.h"
+#include "io/trace_reader.h"
+#include "retrieval/error.h"
+#include "retrieval/gas.h"
+#include "retrieval/units.h"
+
+namespace sw::cli {
+
+namespace {
+
+struct AxisStats {
+  double first = 0, last = 0, min_step = 0, max_step = 0;
+  bool uniform = true;
+};
+
+AxisStats axis_stats(const std::vector<double>& v, double (*conv)(double)) {
+  AxisStats a;
+  a.first = conv(v.front());
+  a.last = conv(v.back());
+  a.min_step = 1e300;
+  a.max_step = 0;
+  for (std::size_t i = 1; i < v.size(); ++i) {
+    const double s = conv(v[i]) - conv(v[i - 1]);
+    a.min_step = std::min(a.min_step, s);
+    a.max_step = std::max(a.max_step, s);
+  }
+  if (v.size() < 2) a.min_step = a.max_step = 0;
+  a.uniform = a.max_step - a.min_step <= 1e-6 * std::abs(a.max_step);
+  return a;
+}
+
+int run_info(const std::string& path) {
+  std::vector<std::string> warnings;
+  const Trace t = read_trace(path, &warnings);
+  const AxisStats E = axis_stats(t.energy_au, units::au_to_eV);
+  const AxisStats D = axis_stats(t.delay_au, units::au_to_fs);
+  const double total = t.counts.sum(), peak = t.counts.maxCoeff();
+  long long at_peak = 0;
+  for (Eigen::Index i = 0; i < t.counts.size(); ++i) at_peak += t.counts.data()[i] >= peak ? 1 : 0;
+
+  std::printf("scan        %s\n", path.c_str());
+  std::printf("image       %s\n", t.meta.image.c_str());
+  std::printf("kind hint   %s\n", *to_string(t.meta.kind) ? to_string(t.meta.kind) : "(none: the analysis decides)");
+  std::printf("size        %zu delays x %zu energies\n", t.num_delays(), t.num_energies());
+  std::printf("energy      %.3f .. %.3f eV, step %s%.4f eV\n", E.first, E.last, E.uniform ? "" : "~", E.max_step);
+  if (!E.uniform) std::printf("            non-uniform: steps %.4f .. %.4f eV\n", E.min_step, E.max_step);
+  std::printf("delay       %.3f .. %.3f fs, step %s%.4f fs%s\n", D.first, D.last, D.uniform ? "" : "~",
+              D.max_step, D.uniform ? "" : " (non-uniform)");
+  if (!D.uniform) std::printf("            non-uniform: steps %.4f .. %.4f fs\n", D.min_step, D.max_step);
+  std::printf("counts      total %.6g, peak %.6g per bin, mean %.4g per bin\n", total, peak,
+              total / static_cast<double>(t.counts.size()));
+  if (!t.meta.gas.empty()) {
+    try {
+      const Gas& g = find_gas(t.meta.gas);
+      std::printf("gas         %s (%s), Ip = %.4f eV (NIST ASD)\n", g.symbol.c_str(), g.name.c_str(), g.ionization_energy_eV);
+    } catch (const Error& e) {
+      warnings.push_back(e.what());
+    }
+  } else {
+    warnings.push_back("no 'gas' in the sidecar: retrieval and RABBITT analysis need the ionization energy");
+  }
+  if (t.meta.ir_wavelength_nm > 0) {
+    const double w = units::wavelength_nm_to_omega_au(t.meta.ir_wavelength_nm);
+    const double T_fs = units::au_to_fs(units::period_au(w));
+    std::printf("IR          %.1f nm, period %.3f fs, photon %.4f eV\n", t.meta.ir_wavelength_nm, T_fs, units::au_to_eV(w));
+    // 2 omega oscillation has period T/2: Nyquist needs steps < T/4; practical sampling ~T/8.
+    if (D.max_step > T_fs / 4)
+      warnings.push_back("delay step " + std::to_string(D.max_step) + " fs exceeds T/4 = " + std::to_string(T_fs / 4) +
+                         " fs: a 2 omega (sideband) oscillation is undersampled");
+    else if (D.max_step > T_fs / 8)
+      warnings.push_back("delay step " + std::to_string(D.max_step) + " fs is coarser than T/8 = " +
+                         std::to_string(T_fs / 8) + " fs: 2 omega phases will be noisy (common practice: >= 8 steps per 2 omega period)");
+  } else {
+    warnings.push_back("no 'ir_wavelength_nm' in the sidecar");
+  }
+  if (t.meta.energy_resolution_eV) std::printf("resolution  %.3f eV (sidecar)\n", *t.meta.energy_resolution_eV);
+  if (t.meta.background) std::printf("background  %.4g counts per bin (sidecar)\n", *t.meta.background);
+  else if (t.meta.background_auto) std::printf("background  auto (estimated from signal-free bins)\n");
+  if (!t.meta.notes.empty()) std::printf("notes       %s\n", t.meta.notes.c_str());
+  for (const auto& [k, v] : t.meta.extra_json) std::printf("extra       %s = %s\n", k.c_str(), v.c_str());
+
+  if (peak < 20) warnings.push_back("peak of " + std::to_string(peak) + " counts per bin: Poisson noise will dominate (< 20 counts)");
+  if (at_peak > 3 && static_cast<double>(at_peak) > 1e-3 * static_cast<double>(t.counts.size()))
+    warnings.push_back(std::to_string(at_peak) + " bins sit exactly at the maximum value: detector saturation likely");
+  if (t.num_delays() < 2 && t.meta.kind != TraceKind::kXuvOnly) warnings.push_back("only one delay row: no streaking information");
+  for (const auto& w : warnings) std::printf("warning     %s\n", w.c_str());
+  return 0;
+}
+
+}  // namespace
+
+void add_info_command(CLI::App& app) {
+  auto* cmd = app.add_subcommand("info", "Describe a scan: sizes, axes, counts, gas, kind hint, and warnings");
+  cmd->footer(
+      "Reads SCAN.json (or .yaml) and its data image without modifying them and prints what was\n"
+      "loaded, with warnings a physicist would want (delay step versus the 2 omega period,\n"
+      "saturation, low counts, missing gas or wavelength). Exit 3 when the files are bad.");
+  auto path = std::make_shared<std::string>();
+  cmd->add_option("scan", *path, "sidecar of the scan (NAME.json or NAME.yaml)")->required();
+  cmd->callback([path] { exit_code() = guarded("info", [&] { return run_info(*path); }); });
+}
+
+}  // namespace sw::cli

@@ -1,0 +1,106 @@
+// `streakwright retrieve SCAN.json --out DIR`: reconstruct the XUV pulse and the IR field.
+#include <cstdio>
+#include <filesystem>
+#include <memory>
+#include <sstream>
+
+#include "cli/commands.h"
+#include "cli/progress.h"
+#include "cli/analysis.h"
+#include "retrieval/engine.h"
+#include "retrieval/error.h"
+#include "retrieval/retrieve.h"
+#include "retrieval/dipole.h"
+
+namespace sw::cli {
+
+namespace {
+
+struct RetrieveArgs {
+  std::string scan, out;
+  RetrieveOptions options;
+  std::string dipole = "constant";
+  bool quiet = false;
+};
+
+std::string summary_line(const AnalysisResult& r) {
+  std::ostringstream s;
+  s.precision(4);
+  const auto& x = *r.xuv;
+  s << "XUV FWHM " << *x.fwhm_as;
+  if (x.fwhm_as_sigma) s << " +- " << *x.fwhm_as_sigma;
+  s << " as (TL " << *x.transform_limited_fwhm_as << " as), GDD " << *x.gdd_as2;
+  if (x.gdd_as2_sigma) s << " +- " << *x.gdd_as2_sigma;
+  s << " as^2, centre " << *x.center_photon_energy_eV << " eV";
+  if (r.ir && r.ir->peak_vector_potential_au) {
+    s << "; IR A0 " << *r.ir->peak_vector_potential_au;
+    if (r.ir->peak_vector_potential_au_sigma) s << " +- " << *r.ir->peak_vector_potential_au_sigma;
+    s << " a.u.";
+  }
+  s << "; " << to_string(r.verdict->pulse_class) << " (satellite " << 100 * r.verdict->satellite_intensity_ratio.value_or(0)
+    << " %); G " << r.fit->trace_error.value_or(0) << (r.fit->converged.value_or(false) ? "" : " NOT CONVERGED")
+    << "; " << r.engine;
+  return s.str();
+}
+
+int run_retrieve(RetrieveArgs& a) {
+  if (!parse_dipole_kind(a.dipole, &a.options.preprocess.dipole))
+    throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
+  if (a.options.engine != "auto") (void)make_engine(a.options.engine);  // unknown names listed
+  if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
+  Progress progress(a.quiet);
+  ScanJob job;
+  job.sidecar = a.scan;
+  job.out_dir = a.out;
+  job.analysis = AnalysisKind::kRetrieve;
+  job.retrieve = a.options;
+  job.quiet = a.quiet;
+  job.progress = [&](const std::string& stage, const std::string& m) { progress.update(stage, m); };
+  const ScanOutcome o = run_scan(job);
+  progress.done();
+  if (!o.ok) throw Error(o.error_kind, o.message);
+  std::printf("%s\n", summary_line(o.result).c_str());
+  std::printf("report: %s\n", (std::filesystem::path(a.out) / "report.html").string().c_str());
+  if (o.exit_code == 4)
+    std::fprintf(stderr, "streakwright retrieve: warning: the engine did not converge; the best estimate was written with converged: false\n");
+  return o.exit_code;
+}
+
+}  // namespace
+
+void add_retrieve_command(CLI::App& app) {
+  auto a = std::make_shared<RetrieveArgs>();
+  auto* cmd = app.add_subcommand("retrieve", "Reconstruct the XUV pulse and the IR streaking field from a scan");
+  std::string engines =
+      "Engines:\n"
+      "  auto           ptychographic first; full-model refinement when the CMA's own phase error\n"
+      "                 (estimated from the retrieved field) exceeds 0.3 rad (broadband pulses)\n"
+      "  ptychographic  ePIE applied to streaking (CMA): XUV = object, phase gate = probe\n"
+      "  projections    generalized projections (CMA): PCGPA on matched grids, LSGPA otherwise\n"
+      "  full-model     least-squares fit of the full SFA model without the CMA (Ceres, L-BFGS)\n"
+      "Writes into DIR: result.json, report.html, CSVs (with units) and PNG figures.\n"
+      "Prints a one-line summary. Exit 0 ok, 2 bad usage, 3 bad input, 4 not converged\n"
+      "(best estimate written, converged: false).";
+  cmd->footer(engines);
+  cmd->add_option("scan", a->scan, "sidecar of the scan (NAME.json or NAME.yaml)")->required();
+  cmd->add_option("--out,-o", a->out, "output folder (created)")->required();
+  cmd->add_option("--engine", a->options.engine, "reconstruction engine (see below)")->capture_default_str();
+  cmd->add_option("--iterations", a->options.iterations, "iterations of the first engine; 0 = engine default (300)")
+      ->capture_default_str();
+  cmd->add_option("--bootstrap", a->options.bootstrap,
+                  "Poisson-bootstrap replicas for the uncertainties (0 = none)")->capture_default_str();
+  cmd->add_option("--seed", a->options.seed, "seed of delay order and bootstrap draws")->capture_default_str();
+  cmd->add_option("--threads", a->options.threads, "worker threads inside the engines")->capture_default_str();
+  cmd->add_option("--dipole", a->dipole, "dipole model: constant | hydrogenic")->capture_default_str();
+  cmd->add_option("--cma-phase-limit", a->options.cma_phase_error_max_rad,
+                  "auto: CMA phase error (rad) above which the full model refines")->capture_default_str();
+  cmd->add_option("--isolated-max", a->options.isolated_max_satellite_ratio,
+                  "verdict: largest satellite/main intensity for 'isolated' (common practice)")->capture_default_str();
+  cmd->add_option("--satellites-max", a->options.satellites_max_satellite_ratio,
+                  "verdict: upper limit for 'isolated_with_satellites'")->capture_default_str();
+  cmd->add_flag("--despike", a->options.preprocess.remove_hot_pixels, "replace isolated hot pixels (no smoothing)");
+  cmd->add_flag("--quiet,-q", a->quiet, "no progress on stderr");
+  cmd->callback([a] { exit_code() = guarded("retrieve", [&] { return run_retrieve(*a); }); });
+}
+
+}  // namespace sw::cli

@@ -1,0 +1,26 @@
+#pragma once
+// Subcommands of the streakwright executable. Each lives in its own cli/cmd_<name>.cpp and
+// registers itself on the CLI11 app with add_<name>_command(); main.cpp calls them in order.
+// Exit codes (documented in docs/cli.md): 0 success, 1 internal error, 2 bad usage,
+// 3 bad input data, 4 numerical failure (result still written, flagged), 5 batch with failures.
+
+#include <CLI/CLI.hpp>
+
+namespace sw::cli {
+
+void add_simulate_command(CLI::App& app);
+void add_info_command(CLI::App& app);
+void add_retrieve_command(CLI::App& app);
+void add_rabbitt_command(CLI::App& app);
+void add_classify_command(CLI::App& app);
+void add_batch_command(CLI::App& app);
+void add_summarize_command(CLI::App& app);
+
+/// Runs `body` and turns sw::Error / std::exception into a message on stderr and the exit
+/// code of the error's kind. Every subcommand's callback goes through it.
+int guarded(const char* command, const std::function<int()>& body);
+
+/// Exit code a subcommand's callback stored (CLI11 callbacks return void).
+int& exit_code();
+
+}  // namespace sw::cli

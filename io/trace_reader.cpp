@@ -1,0 +1,541 @@
+#include "io/trace_reader.h"
+
+#include <algorithm>
+#include <cctype>
+#include <cmath>
+#include <filesystem>
+#include <sstream>
+
+#include <nlohmann/json.hpp>
+#include <opencv2/core.hpp>
+#include <opencv2/imgcodecs.hpp>
+
+#include "io/atomic_file.h"
+#include "io/csv.h"
+#include "io/hdf5_reader.h"
+#include "io/tof_calibration.h"
+#include "retrieval/error.h"
+#include "retrieval/units.h"
+
+namespace sw {
+namespace {
+
+using json = nlohmann::json;
+namespace fs = std::filesystem;
+
+std::string lower(std::string s) {
+  std::transform(s.begin(), s.end(), s.begin(),
+                 [](unsigned char c) { return static_cast<char>(std::tolower(c)); });
+  return s;
+}
+
+std::string num(double v) {
+  std::ostringstream s;
+  s.precision(10);
+  s << v;
+  return s.str();
+}
+
+const char* type_name(const json& v) {
+  switch (v.type()) {
+    case json::value_t::null:
+      return "null";
+    case json::value_t::boolean:
+      return "a boolean";
+    case json::value_t::string:
+      return "a string";
+    case json::value_t::array:
+      return "an array";
+    case json::value_t::object:
+      return "an object";
+    case json::value_t::number_integer:
+    case json::value_t::number_unsigned:
+    case json::value_t::number_float:
+      return "a number";
+    default:
+      return "an unsupported value";
+  }
+}
+
+// --- sidecar parsing into one JSON tree ------------------------------------------------------
+
+json filenode_to_json(const cv::FileNode& n) {
+  if (n.isInt()) return static_cast<int>(n);
+  if (n.isReal()) return static_cast<double>(n);
+  if (n.isString()) return static_cast<std::string>(n);
+  if (n.isSeq()) {
+    json a = json::array();
+    for (auto it = n.begin(); it != n.end(); ++it) a.push_back(filenode_to_json(*it));
+    return a;
+  }
+  if (n.isMap()) {
+    json o = json::object();
+    for (auto it = n.begin(); it != n.end(); ++it) {
+      const cv::FileNode child = *it;
+      o[child.name()] = filenode_to_json(child);
+    }
+    return o;
+  }
+  return nullptr;
+}
+
+/// Parses text with cv::FileStorage (in memory); throws cv::Exception or returns false.
+bool parse_with_filestorage(const std::string& text, int format, json* out) {
+  cv::FileStorage storage(text, cv::FileStorage::READ | cv::FileStorage::MEMORY | format);
+  if (!storage.isOpened()) return false;
+  *out = filenode_to_json(storage.root());
+  return true;
+}
+
+json load_sidecar(const std::string& path) {
+  std::error_code ec;
+  if (!fs::exists(path, ec))
+    throw input_error("sidecar file '" + path +
+                      "' does not exist; expected NAME.json or NAME.yaml "
+                      "describing the scan");
+  if (fs::is_directory(path, ec))
+    throw input_error("sidecar '" + path + "' is a folder; expected a NAME.json or NAME.yaml file");
+  const std::string ext = lower(fs::path(path).extension().string());
+  const std::string text = read_file_bytes(path);
+  json root;
+  if (ext == ".json") {
+    try {
+      root = json::parse(text);
+    } catch (const json::parse_error& e) {
+      // nlohmann is strict RFC 8259; give cv::FileStorage (the contract's reader) a chance at
+      // its dialect before giving up, and report the strict parser's precise position.
+      bool ok = false;
+      try {
+        ok = parse_with_filestorage(text, cv::FileStorage::FORMAT_JSON, &root);
+      } catch (const cv::Exception&) {
+        ok = false;
+      }
+      if (!ok) {
+        std::string what = e.what();
+        if (const auto p = what.find("] "); p != std::string::npos) what = what.substr(p + 2);
+        throw input_error("sidecar '" + path + "' is not valid JSON (RFC 8259): " + what);
+      }
+    }
+  } else if (ext == ".yaml" || ext == ".yml") {
+    // OpenCV's YAML reader recognises YAML by its "%YAML" directive; hand-written sidecars
+    // usually omit it.
+    std::string yaml = text;
+    std::size_t start = 0;
+    if (yaml.size() >= 3 && yaml.compare(0, 3, "\xEF\xBB\xBF") == 0) start = 3;
+    if (yaml.compare(start, 5, "%YAML") != 0) yaml = "%YAML:1.0\n" + yaml.substr(start);
+    bool ok = false;
+    std::string reason = "the file is empty or not a mapping";
+    try {
+      ok = parse_with_filestorage(yaml, cv::FileStorage::FORMAT_YAML, &root);
+    } catch (const cv::Exception& e) {
+      ok = false;
+      reason = e.err;
+    }
+    if (!ok) throw input_error("sidecar '" + path + "' is not valid YAML: " + reason);
+  } else {
+    throw input_error("sidecar '" + path + "' has extension '" + ext +
+                      "'; expected NAME.json (JSON) or NAME.yaml / NAME.yml (YAML)");
+  }
+  if (!root.is_object())
+    throw input_error("sidecar '" + path + "': the top level is " + type_name(root) +
+                      "; expected an object of key/value pairs such as {\"streakwright\": 1, ...}");
+  return root;
+}
+
+// --- field readers ---------------------------------------------------------------------------
+
+class Sidecar {
+ public:
+  Sidecar(std::string path, json root) : path_(std::move(path)), root_(std::move(root)) {}
+  const std::string& path() const { return path_; }
+  const json& root() const { return root_; }
+  bool has(const std::string& key) const { return root_.contains(key); }
+  const json& at(const std::string& key) const { return root_.at(key); }
+
+  [[noreturn]] void fail(const std::string& field, const std::string& message) const {
+    throw input_error("sidecar '" + path_ + "', field '" + field + "': " + message);
+  }
+
+  double number(const json& v, const std::string& field) const {
+    if (!v.is_number())
+      fail(field, std::string("is ") + type_name(v) +
+                      (v.is_string() ? " '" + v.get<std::string>() + "'" : "") +
+                      "; expected a number");
+    const double d = v.get<double>();
+    if (!std::isfinite(d)) fail(field, "is not finite; expected a finite number");
+    return d;
+  }
+  std::string string(const json& v, const std::string& field) const {
+    if (!v.is_string()) fail(field, std::string("is ") + type_name(v) + "; expected a string");
+    return v.get<std::string>();
+  }
+  void require(const std::string& key, const std::string& expected) const {
+    if (!has(key))
+      throw input_error("sidecar '" + path_ + "' is missing the required key '" + key +
+                        "'; expected " + expected);
+  }
+
+  /// An axis: {first, step, count} or an explicit array. Strictly monotonic.
+  std::vector<double> axis(const std::string& key) const {
+    const json& v = at(key);
+    std::vector<double> values;
+    if (v.is_array()) {
+      if (v.empty()) fail(key, "is an empty array; expected axis values or {first, step, count}");
+      for (std::size_t i = 0; i < v.size(); ++i)
+        values.push_back(number(v[i], key + "[" + std::to_string(i) + "]"));
+    } else if (v.is_object()) {
+      for (auto it = v.begin(); it != v.end(); ++it)
+        if (it.key() != "first" && it.key() != "step" && it.key() != "count")
+          fail(key, "has the unknown key '" + it.key() + "'; expected {first, step, count}");
+      for (const char* k : {"first", "step", "count"})
+        if (!v.contains(k))
+          fail(key, std::string("is missing '") + k +
+                        "'; expected {first, step, count} or an "
+                        "array of values");
+      const double first = number(v["first"], key + ".first");
+      const double step = number(v["step"], key + ".step");
+      const double count = number(v["count"], key + ".count");
+      if (step == 0) fail(key + ".step", "is 0; expected a non-zero step");
+      if (count < 1 || count != std::floor(count) || count > 1e7)
+        fail(key + ".count", "is " + num(count) + "; expected a positive whole number");
+      values.resize(static_cast<std::size_t>(count));
+      for (std::size_t i = 0; i < values.size(); ++i)
+        values[i] = first + step * static_cast<double>(i);
+    } else {
+      fail(key, std::string("is ") + type_name(v) +
+                    "; expected {first, step, count} or an array of values");
+    }
+    if (values.size() >= 2) {
+      const bool up = values[1] > values[0];
+      for (std::size_t i = 1; i < values.size(); ++i)
+        if (!(up ? values[i] > values[i - 1] : values[i] < values[i - 1]))
+          fail(key, "is not strictly monotonic at index " + std::to_string(i) + " (" +
+                        num(values[i - 1]) + " then " + num(values[i]) +
+                        "); expected strictly increasing or strictly decreasing values");
+    }
+    return values;
+  }
+
+ private:
+  std::string path_;
+  json root_;
+};
+
+bool descending(const std::vector<double>& v) { return v.size() >= 2 && v[1] < v[0]; }
+
+// --- data file ---------------------------------------------------------------------------
+
+Eigen::MatrixXd load_image(const Sidecar& sc, const std::string& image,
+                           std::vector<std::string>* warnings, std::string* shown_name) {
+  const fs::path base = fs::path(sc.path()).parent_path();
+  auto resolve = [&](const std::string& p) {
+    const fs::path q(p);
+    return (q.is_absolute() || base.empty() ? q : base / q).string();
+  };
+  std::string h5_file, h5_dataset;
+  if (split_hdf5_reference(image, &h5_file, &h5_dataset)) {
+    *shown_name = resolve(h5_file) + ":" + h5_dataset;
+    return read_hdf5_matrix(resolve(h5_file), h5_dataset,
+                            "sidecar '" + sc.path() + "', field 'image'");
+  }
+  const std::string file = resolve(image);
+  *shown_name = file;
+  std::error_code ec;
+  if (!fs::exists(file, ec))
+    sc.fail("image", "names the data file '" + file + "', which does not exist");
+  if (fs::is_directory(file, ec)) sc.fail("image", "names '" + file + "', which is a folder");
+  const std::string ext = lower(fs::path(file).extension().string());
+  if (ext == ".csv" || ext == ".txt" || ext == ".dat" || ext == ".tsv") {
+    try {
+      return read_csv_matrix(file);
+    } catch (const Error& e) {
+      sc.fail("image", e.what());
+    }
+  }
+
+  cv::Mat img;
+  try {
+    img = cv::imread(file, cv::IMREAD_UNCHANGED);
+  } catch (const cv::Exception& e) {
+    sc.fail("image", "the data file '" + file + "' could not be decoded (" + e.err + ")");
+  }
+  if (img.empty())
+    sc.fail("image", "the data file '" + file +
+                         "' could not be decoded as an image; expected a "
+                         "16-bit PNG, a 16/32-bit TIFF, a CSV matrix or an HDF5 dataset");
+  if (img.channels() != 1)
+    sc.fail("image", "the data file '" + file + "' has " + std::to_string(img.channels()) +
+                         " channels; expected a single-channel image (grey, no colour, no alpha)");
+  switch (img.depth()) {
+    case CV_8U:
+      if (warnings)
+        warnings->push_back("image '" + file +
+                            "' has 8 bits per sample (256 levels); a 16-bit "
+                            "PNG or a TIFF keeps the dynamic range of the detector");
+      break;
+    case CV_16U:
+    case CV_16S:
+    case CV_32S:
+    case CV_32F:
+    case CV_64F:
+      break;
+    default:
+      sc.fail("image", "the data file '" + file +
+                           "' has an unsupported sample type (OpenCV depth " +
+                           std::to_string(img.depth()) +
+                           "); expected 16-bit or 32-bit integer or "
+                           "32/64-bit float samples");
+  }
+  cv::Mat d;
+  img.convertTo(d, CV_64F);
+  Eigen::MatrixXd m(d.rows, d.cols);
+  for (int i = 0; i < d.rows; ++i) {
+    const double* row = d.ptr<double>(i);
+    for (int j = 0; j < d.cols; ++j) m(i, j) = row[j];
+  }
+  return m;
+}
+
+}  // namespace
+
+const std::vector<std::string>& known_sidecar_keys() {
+  static const std::vector<std::string> keys = {"streakwright",
+                                                "image",
+                                                "layout",
+                                                "energy_eV",
+                                                "tof_ns",
+                                                "calibration",
+                                                "delay_fs",
+                                                "delay_um",
+                                                "kind",
+                                                "gas",
+                                                "ir_wavelength_nm",
+                                                "scale",
+                                                "background",
+                                                "energy_resolution_eV",
+                                                "notes"};
+  return keys;
+}
+
+Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warnings) {
+  const Sidecar sc(sidecar_path, load_sidecar(sidecar_path));
+  const std::string& where = sidecar_path;
+
+  // --- required keys -----------------------------------------------------------------------
+  sc.require("streakwright", "the format version, \"streakwright\": 1");
+  {
+    const json& v = sc.at("streakwright");
+    if (!v.is_number() || v.get<double>() != 1.0)
+      sc.fail("streakwright", (v.is_number() ? "is version " + num(v.get<double>()) +
+                                                   ", which this reader does not support"
+                                             : std::string("is ") + type_name(v)) +
+                                  "; expected 1");
+  }
+  sc.require("image", "the data file name, e.g. \"image\": \"scan.png\" (relative to the sidecar)");
+  const std::string image = sc.string(sc.at("image"), "image");
+  if (image.empty()) sc.fail("image", "is empty; expected the data file name");
+  sc.require("layout", "\"delay_rows\" or \"energy_rows\"");
+  const std::string layout = sc.string(sc.at("layout"), "layout");
+  if (layout != "delay_rows" && layout != "energy_rows")
+    sc.fail("layout", "is '" + layout + "'; expected one of: delay_rows, energy_rows");
+  const bool energy_rows = layout == "energy_rows";
+
+  const bool tof = sc.has("tof_ns");
+  if (tof && sc.has("energy_eV"))
+    sc.fail("tof_ns",
+            "is given together with energy_eV; expected one energy axis: energy_eV or "
+            "tof_ns with a calibration block");
+  if (!tof)
+    sc.require("energy_eV",
+               "the energy axis (eV) as {first, step, count} or an array (or "
+               "tof_ns with a calibration block)");
+  const bool stage = sc.has("delay_um");
+  if (stage && sc.has("delay_fs"))
+    sc.fail("delay_um", "is given together with delay_fs; expected one delay axis");
+  if (!stage)
+    sc.require("delay_fs",
+               "the delay axis (fs) as {first, step, count} or an array (or "
+               "delay_um, the stage travel in micrometres)");
+
+  // --- axes --------------------------------------------------------------------------------
+  const std::string energy_key = tof ? "tof_ns" : "energy_eV";
+  const std::string delay_key = stage ? "delay_um" : "delay_fs";
+  std::vector<double> energy_axis = sc.axis(energy_key);
+  std::vector<double> delay_axis = sc.axis(delay_key);
+  TofCalibration cal;
+  if (tof) {
+    if (!sc.has("calibration"))
+      sc.fail("tof_ns",
+              "needs a 'calibration' block {length_m, t0_ns, energy_offset_eV} to "
+              "convert flight times to energies");
+    const json& c = sc.at("calibration");
+    if (!c.is_object())
+      sc.fail("calibration",
+              std::string("is ") + type_name(c) + "; expected {length_m, t0_ns, energy_offset_eV}");
+    for (auto it = c.begin(); it != c.end(); ++it) {
+      const std::string& k = it.key();
+      const std::string f = "calibration." + k;
+      if (k == "length_m")
+        cal.length_m = sc.number(*it, f);
+      else if (k == "t0_ns")
+        cal.t0_ns = sc.number(*it, f);
+      else if (k == "energy_offset_eV")
+        cal.energy_offset_eV = sc.number(*it, f);
+      else if (k == "energy_count") {
+        const double n = sc.number(*it, f);
+        if (n < 1 || n != std::floor(n) || n > 1e7)
+          sc.fail(f, "is " + num(n) + "; expected a positive whole number of energy bins");
+        cal.energy_count = static_cast<int>(n);
+      } else if (k == "energy_min_eV")
+        cal.energy_min_eV = sc.number(*it, f);
+      else if (k == "energy_max_eV")
+        cal.energy_max_eV = sc.number(*it, f);
+      else
+        sc.fail(f,
+                "is not a calibration key; expected length_m, t0_ns, energy_offset_eV "
+                "(optional: energy_count, energy_min_eV, energy_max_eV)");
+    }
+    for (const char* k : {"length_m", "t0_ns"})
+      if (!c.contains(k))
+        sc.fail("calibration", std::string("is missing '") + k +
+                                   "'; expected {length_m, t0_ns, energy_offset_eV}");
+    if (const std::string bad = cal.validate(); !bad.empty()) {
+      const auto dot = bad.find(' ');
+      sc.fail(bad.substr(0, dot), bad.substr(dot + 1));
+    }
+  } else if (sc.has("calibration") && warnings) {
+    warnings->push_back("sidecar '" + where +
+                        "': 'calibration' is only used with a tof_ns axis; "
+                        "it is kept as an extra key and not applied");
+  }
+
+  // --- meta --------------------------------------------------------------------------------
+  Trace trace;
+  TraceMeta& meta = trace.meta;
+  meta.source = sidecar_path;
+  meta.image = image;
+  if (sc.has("kind")) {
+    const std::string k = sc.string(sc.at("kind"), "kind");
+    if (!parse_trace_kind(k, &meta.kind))
+      sc.fail("kind", "is '" + k +
+                          "'; expected one of: streaking, rabbitt, xuv_only (or leave "
+                          "it out)");
+  }
+  if (sc.has("gas")) meta.gas = sc.string(sc.at("gas"), "gas");
+  if (sc.has("ir_wavelength_nm")) {
+    meta.ir_wavelength_nm = sc.number(sc.at("ir_wavelength_nm"), "ir_wavelength_nm");
+    if (!(meta.ir_wavelength_nm > 0))
+      sc.fail("ir_wavelength_nm",
+              "is " + num(meta.ir_wavelength_nm) + "; expected a wavelength > 0 nm");
+  }
+  if (sc.has("scale")) {
+    meta.scale = sc.number(sc.at("scale"), "scale");
+    if (!(meta.scale > 0))
+      sc.fail("scale", "is " + num(meta.scale) + "; expected counts per image unit > 0");
+  }
+  if (sc.has("background")) {
+    const json& b = sc.at("background");
+    if (b.is_string()) {
+      if (b.get<std::string>() != "auto")
+        sc.fail("background", "is '" + b.get<std::string>() +
+                                  "'; expected a number of counts per bin >= 0 or \"auto\"");
+      meta.background_auto = true;
+    } else {
+      const double v = sc.number(b, "background");
+      if (v < 0)
+        sc.fail("background", "is " + num(v) + "; expected counts per bin >= 0 or \"auto\"");
+      meta.background = v;
+    }
+  }
+  if (sc.has("energy_resolution_eV")) {
+    const double v = sc.number(sc.at("energy_resolution_eV"), "energy_resolution_eV");
+    if (v < 0) sc.fail("energy_resolution_eV", "is " + num(v) + "; expected a FWHM >= 0 eV");
+    meta.energy_resolution_eV = v;
+  }
+  if (sc.has("notes")) {
+    const json& n = sc.at("notes");
+    if (n.is_array()) {
+      for (std::size_t i = 0; i < n.size(); ++i)
+        meta.notes += (i ? "\n" : "") + sc.string(n[i], "notes[" + std::to_string(i) + "]");
+    } else {
+      meta.notes = sc.string(n, "notes");
+    }
+  }
+  const auto& known = known_sidecar_keys();
+  for (auto it = sc.root().begin(); it != sc.root().end(); ++it)
+    if (std::find(known.begin(), known.end(), it.key()) == known.end() ||
+        (it.key() == "calibration" && !tof))
+      meta.extra_json[it.key()] = it.value().dump();
+
+  // --- data --------------------------------------------------------------------------------
+  std::string shown;
+  Eigen::MatrixXd m = load_image(sc, image, warnings, &shown);
+  if (m.rows() == 0 || m.cols() == 0)
+    sc.fail("image", "the data file '" + shown + "' is empty; expected a matrix of counts");
+  const Eigen::Index n_energy = energy_rows ? m.rows() : m.cols();
+  const Eigen::Index n_delay = energy_rows ? m.cols() : m.rows();
+  const std::string edim = energy_rows ? "rows" : "columns";
+  const std::string ddim = energy_rows ? "columns" : "rows";
+  auto check_count = [&](const std::string& key, std::size_t have, Eigen::Index want,
+                         const std::string& dim, const char* what) {
+    if (static_cast<Eigen::Index>(have) != want)
+      sc.fail(key, "has " + std::to_string(have) + " values but the data file '" + shown +
+                       "' has " + std::to_string(want) + " " + dim + " (layout " + layout + ": " +
+                       what + " along the " + dim + "); expected the counts to match");
+  };
+  check_count(energy_key, energy_axis.size(), n_energy, edim,
+              energy_key == "tof_ns" ? "flight times" : "energies");
+  check_count(delay_key, delay_axis.size(), n_delay, ddim, "delays");
+  for (Eigen::Index i = 0; i < m.rows(); ++i)
+    for (Eigen::Index j = 0; j < m.cols(); ++j) {
+      const double c = m(i, j);
+      if (!std::isfinite(c) || c < 0) {
+        std::ostringstream s;
+        s << "the data file '" << shown << "' has "
+          << (std::isnan(c)   ? "NaN"
+              : std::isinf(c) ? "an infinite value"
+                              : "a negative value (" + num(c) + ")")
+          << " at row " << i << ", column " << j << " (0-based); expected finite counts >= 0";
+        sc.fail("image", s.str());
+      }
+    }
+  if (m.maxCoeff() == 0)
+    sc.fail("image", "every value of the data file '" + shown +
+                         "' is zero; expected a scan "
+                         "with counts");
+  if (meta.scale != 1.0) m *= meta.scale;
+
+  // Rows = delays, columns = energies (or flight times).
+  Eigen::MatrixXd counts = energy_rows ? Eigen::MatrixXd(m.transpose()) : std::move(m);
+  if (descending(delay_axis)) {
+    std::reverse(delay_axis.begin(), delay_axis.end());
+    counts = counts.colwise().reverse().eval();
+  }
+  if (tof) {
+    TofConversion conv = tof_to_energy(counts, energy_axis, cal, "sidecar '" + where + "'");
+    if (conv.fraction_outside > 1e-9 && warnings) {
+      std::ostringstream s;
+      s.precision(3);
+      s << "sidecar '" << where << "': " << 100.0 * conv.fraction_outside
+        << " % of the counts fall outside the calibration energy window and were dropped";
+      warnings->push_back(s.str());
+    }
+    energy_axis = std::move(conv.energy_eV);
+    counts = std::move(conv.counts);
+  } else if (descending(energy_axis)) {
+    std::reverse(energy_axis.begin(), energy_axis.end());
+    counts = counts.rowwise().reverse().eval();
+  }
+  trace.energy_au.resize(energy_axis.size());
+  for (std::size_t j = 0; j < energy_axis.size(); ++j)
+    trace.energy_au[j] = units::eV_to_au(energy_axis[j]);
+  trace.delay_au.resize(delay_axis.size());
+  for (std::size_t i = 0; i < delay_axis.size(); ++i)
+    trace.delay_au[i] =
+        units::fs_to_au(stage ? units::stage_travel_um_to_fs(delay_axis[i]) : delay_axis[i]);
+  trace.counts = std::move(counts);
+  trace.validate(sidecar_path);
+  return trace;
+}
+
+}  // namespace sw

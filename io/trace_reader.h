@@ -1,0 +1,59 @@
+#pragma once
+// Reading a scan from disk: the sidecar + data image of DESIGN.md "The trace file contract".
+//
+// Sidecar: NAME.json (JSON, RFC 8259) or NAME.yaml / NAME.yml (YAML, OpenCV FileStorage
+// dialect), read with cv::FileStorage. Keys:
+//   streakwright        required, must be 1 (format version)
+//   image               required; path relative to the sidecar's folder (or absolute) of
+//                       - a PNG (ISO/IEC 15948) of 16 bits per sample, one channel;
+//                       - a TIFF (TIFF 6.0) of 16- or 32-bit integer or 32/64-bit float samples;
+//                       - an 8-bit PNG/TIFF is accepted with a warning (256 levels limit the
+//                         dynamic range; cameras in 8-bit mode exist);
+//                       - a CSV matrix of numbers (see io/csv.h);
+//                       - an HDF5 dataset "FILE.h5:/group/dataset" (2-D numeric), when the
+//                         build has HDF5 (STREAKWRIGHT_HAVE_HDF5).
+//                       Colour or grey+alpha images are an error ("expected a single-channel
+//                       image").
+//   layout              required; "delay_rows" (image row = delay) or "energy_rows"
+//                       (image row = energy); the Trace always has rows = delays.
+//   energy_eV           photoelectron kinetic energy axis (eV), or instead
+//   tof_ns + calibration  time-of-flight axis (ns) with {length_m, t0_ns, energy_offset_eV}
+//                       (optional energy_count, energy_min_eV, energy_max_eV), converted to a
+//                       uniform energy axis conserving counts (io/tof_calibration.h).
+//   delay_fs            delay axis tau = t_XUV - t_IR (fs), or instead
+//   delay_um            delay-stage (mirror) travel x in micrometres, tau = 2 x / c
+//                       (1 um = 6.671 fs; retro-reflecting stage, double pass).
+//                       An axis is {first, step, count} or an explicit array of values; it
+//                       must be strictly monotonic; a descending axis is flipped to ascending
+//                       together with the data; count must match the image.
+//   kind                optional hint: streaking | rabbitt | xuv_only
+//   gas, ir_wavelength_nm, scale (counts per image unit, > 0, applied to the counts),
+//   background (counts per bin >= 0, or "auto"), energy_resolution_eV (>= 0), notes (string)
+//   anything else       kept verbatim as JSON text in meta.extra_json (echoed into results).
+//
+// The reader converts eV/fs to atomic units via retrieval/units.h, sets meta.source to the
+// sidecar path as given and meta.image to the "image" value as written in the sidecar, and
+// ends with Trace::validate(sidecar path). No background is subtracted here.
+//
+// Every defect of the files gives sw::Error(kInput) whose message names the file, the field
+// and what was expected (missing/invalid sidecar, missing key, wrong version, missing or
+// unreadable image, depth/channels, layout, axis count mismatch with both numbers, non-
+// monotonic axis, NaN/inf/negative counts with their position, empty or all-zero image,
+// unknown kind, non-numeric CSV cell with line/column). Inputs are opened read-only.
+
+#include <string>
+#include <vector>
+
+#include "retrieval/trace.h"
+
+namespace sw {
+
+/// Reads the scan described by the sidecar at `sidecar_path` (see above). Non-fatal remarks
+/// (8-bit image, time-of-flight counts dropped outside the energy window, ...) are appended
+/// to `warnings` when it is given.
+Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warnings = nullptr);
+
+/// The sidecar keys the reader interprets itself (everything else goes to meta.extra_json).
+const std::vector<std::string>& known_sidecar_keys();
+
+}  // namespace sw

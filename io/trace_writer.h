@@ -1,0 +1,65 @@
+#pragma once
+// Writing a scan in the trace file contract (DESIGN.md), so that read_trace() reads it back:
+// a data file NAME.png / NAME.tiff / NAME.csv next to the sidecar NAME.json (or NAME.yaml /
+// NAME.yml: the sidecar's extension picks JSON or YAML), plus optionally the truth record
+// NAME.truth.json of a synthetic scan.
+//
+// Formats:
+//  - png16: 16-bit grey PNG (ISO/IEC 15948). Image value = round(counts / scale). When every
+//    count is an integer <= 65535 the scale is 1 (lossless); otherwise scale = max / 65535 so
+//    the maximum fits, and the round trip error is at most scale / 2 per bin. The scale is
+//    stored in the sidecar ("scale": counts per image unit).
+//  - tiff: 32-bit IEEE float grey TIFF (TIFF 6.0 + SampleFormat 3), scale 1; relative
+//    round-trip error <= 2^-24.
+//  - csv: comma-separated text with 17 significant digits (exact round trip), scale 1.
+// Axes are written as {first, step, count} when uniform to 1e-9 relative (of the step), else
+// as explicit arrays; energies in eV, delays in fs. Meta (gas, ir_wavelength_nm, kind,
+// background, energy_resolution_eV, notes) and meta.extra_json are echoed.
+// Every file is written atomically (io/atomic_file.h); the data file is written before the
+// sidecar, so a sidecar never names a missing image.
+
+#include <string>
+
+#include "retrieval/result.h"
+#include "retrieval/trace.h"
+
+namespace sw {
+
+enum class TraceFormat { kPng16, kTiff, kCsv };
+/// "png16", "tiff", "csv".
+const char* to_string(TraceFormat f);
+/// Parses the names above; returns false on anything else.
+bool parse_trace_format(const std::string& s, TraceFormat* out);
+
+/// Orientation of the data image in the file.
+enum class TraceLayout { kDelayRows, kEnergyRows };
+/// "delay_rows", "energy_rows".
+const char* to_string(TraceLayout l);
+bool parse_trace_layout(const std::string& s, TraceLayout* out);
+
+struct TraceWriteOptions {
+  /// Orientation of the written image (the sidecar's "layout").
+  TraceLayout layout = TraceLayout::kDelayRows;
+  /// Always write axes as explicit arrays, even when uniform.
+  bool explicit_axes = false;
+  /// When set, the truth record is written to truth_path_for(sidecar) via write_result_json.
+  const AnalysisResult* truth = nullptr;
+};
+
+/// Paths actually written.
+struct TraceFiles {
+  std::string sidecar;  ///< the sidecar path as given
+  std::string image;    ///< the data file (same folder, NAME + extension of the format)
+  std::string truth;    ///< NAME.truth.json, "" when no truth was written
+};
+
+/// The truth record path for a sidecar: "dir/NAME.json" -> "dir/NAME.truth.json".
+std::string truth_path_for(const std::string& sidecar_path);
+
+/// Writes `trace` (validated first) as described above. Throws sw::Error(kInput) when the
+/// sidecar extension is not .json/.yaml/.yml, the folder is not writable, or the trace is
+/// invalid; sw::Error(kNumeric) if a value cannot be written (non-finite).
+TraceFiles write_trace(const Trace& trace, const std::string& sidecar_path, TraceFormat fmt,
+                       const TraceWriteOptions& options = {});
+
+}  // namespace sw

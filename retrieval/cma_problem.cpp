@@ -1,0 +1,467 @@
+#include "retrieval/cma_problem.h"
+
+#include <algorithm>
+#include <cstdio>
+#include <cstdlib>
+#include <cmath>
+#include <sstream>
+#include <stdexcept>
+
+#include "retrieval/error.h"
+#include "retrieval/forward_model.h"
+#include "retrieval/units.h"
+
+namespace sw {
+
+std::vector<ExtraOption> cma_extra_options() {
+  using K = ExtraOption::Kind;
+  const CmaSettings d;
+  return {
+      {"spectrum_interval", K::kInteger, std::to_string(d.spectrum_interval),
+       "impose |E_X(W + Ip)| = sqrt(field-free spectrum) every n iterations (0 = never)", 0, 1e6,
+       {}},
+      {"gate_smoothing_interval", K::kInteger, std::to_string(d.gate_smoothing_interval),
+       "project the gate phase onto a cubic B-spline every n iterations (0 = at the end only)", 0,
+       1e6, {}},
+      {"gate_knots_per_period", K::kNumber, "32",
+       "B-spline knots per IR period of the smooth gate phase (>= 8)", 8, 1e4, {}},
+      {"unmeasured_damping", K::kNumber, "1",
+       "exit-wave spectrum factor on FFT bins outside the energy window (1 free, 0 zero)", 0, 1,
+       {}},
+      {"noise_tolerance", K::kNumber, "1",
+       "half-width of the accepted modulus band, in standard deviations of sqrt(I) (0 = exact "
+       "modulus replacement)", 0, 10, {}},
+  };
+}
+
+CmaSettings read_cma_settings(const EngineOptions& o) {
+  CmaSettings s;
+  s.spectrum_interval = static_cast<int>(o.extra_int("spectrum_interval", s.spectrum_interval));
+  s.gate_smoothing_interval =
+      static_cast<int>(o.extra_int("gate_smoothing_interval", s.gate_smoothing_interval));
+  s.gate_knots_per_period = o.extra_double("gate_knots_per_period", s.gate_knots_per_period);
+  s.unmeasured_damping = o.extra_double("unmeasured_damping", s.unmeasured_damping);
+  s.noise_tolerance = o.extra_double("noise_tolerance", s.noise_tolerance);
+  return s;
+}
+
+namespace {
+
+std::string num(double x) {
+  std::ostringstream s;
+  s << x;
+  return s.str();
+}
+
+inline std::size_t fft_index(long b, std::size_t n) {
+  return static_cast<std::size_t>(b < 0 ? b + static_cast<long>(n) : b);
+}
+
+}  // namespace
+
+CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, std::string engine)
+    : problem_(p), settings_(settings), engine_(std::move(engine)), fft_(std::max<std::size_t>(p.grid.size(), 2)) {
+  auto fail = [&](const std::string& m) {
+    throw input_error(engine_ + ": RetrievalProblem." + m);
+  };
+  n_ = p.grid.size();
+  nd_ = p.delay_au.size();
+  ne_ = p.energy_au.size();
+  if (n_ < 8) fail("grid has " + std::to_string(n_) + " points: expected at least 8");
+  if (nd_ < 3) fail("delay_au has " + std::to_string(nd_) + " delays: expected at least 3");
+  if (ne_ < 4) fail("energy_au has " + std::to_string(ne_) + " energies: expected at least 4");
+  if (p.intensity.rows() != static_cast<Eigen::Index>(nd_) ||
+      p.intensity.cols() != static_cast<Eigen::Index>(ne_))
+    fail("intensity is " + std::to_string(p.intensity.rows()) + "x" +
+         std::to_string(p.intensity.cols()) + ": expected delays x energies = " +
+         std::to_string(nd_) + "x" + std::to_string(ne_));
+  if (p.variance.size() != 0 &&
+      (p.variance.rows() != p.intensity.rows() || p.variance.cols() != p.intensity.cols()))
+    fail("variance must be empty or the size of intensity");
+  if (ne_ > n_)
+    fail("energy_au has " + std::to_string(ne_) + " bins but the XUV grid only " +
+         std::to_string(n_) + ": expected grid.size() >= number of energies");
+  for (std::size_t i = 0; i < nd_; ++i) {
+    if (!std::isfinite(p.delay_au[i])) fail("delay_au[" + std::to_string(i) + "] is not finite");
+    if (i > 0 && !(p.delay_au[i] > p.delay_au[i - 1]))
+      fail("delay_au is not strictly ascending at index " + std::to_string(i));
+  }
+  if (!(p.central_momentum_au > 0))
+    fail("central_momentum_au = " + num(p.central_momentum_au) + ": must be > 0 for the CMA");
+  if (!(p.ir_omega_au > 0))
+    fail("ir_omega_au = " + num(p.ir_omega_au) + ": must be > 0 (IR angular frequency)");
+  if (!p.intensity.allFinite()) fail("intensity has values that are not finite");
+  if (!(p.intensity.maxCoeff() > 0)) fail("intensity has no positive value");
+  const double dw = p.grid.dw();
+  for (std::size_t j = 1; j < ne_; ++j)
+    if (std::abs(p.energy_au[j] - p.energy_au[j - 1] - dw) > 1e-6 * dw)
+      fail("energy_au is not uniform with the grid's step dw = " + num(units::au_to_eV(dw)) +
+           " eV (at index " + std::to_string(j) + " the step is " +
+           num(units::au_to_eV(p.energy_au[j] - p.energy_au[j - 1])) + " eV)");
+  if (!p.field_free_spectrum.empty()) {
+    if (p.field_free_spectrum.size() != ne_)
+      fail("field_free_spectrum has " + std::to_string(p.field_free_spectrum.size()) +
+           " values: expected one per energy (" + std::to_string(ne_) + ") or none");
+    double sum = 0;
+    for (double v : p.field_free_spectrum) {
+      if (!std::isfinite(v)) fail("field_free_spectrum has values that are not finite");
+      sum += std::max(v, 0.0);
+    }
+    if (!(sum > 0)) fail("field_free_spectrum has no positive value");
+  }
+  dt_ = p.grid.dt();
+
+  // Carrier on the energy bin nearest the spectral centroid (field-free, else delay-averaged).
+  std::vector<double> spec(ne_, 0.0);
+  if (!p.field_free_spectrum.empty())
+    for (std::size_t j = 0; j < ne_; ++j) spec[j] = std::max(p.field_free_spectrum[j], 0.0);
+  else
+    for (std::size_t j = 0; j < ne_; ++j)
+      spec[j] = p.intensity.col(static_cast<Eigen::Index>(j)).cwiseMax(0.0).mean();
+  double sj = 0, s = 0;
+  for (std::size_t j = 0; j < ne_; ++j) {
+    sj += static_cast<double>(j) * spec[j];
+    s += spec[j];
+  }
+  const long half = static_cast<long>(n_ / 2);
+  long c = s > 0 ? std::lround(sj / s) : static_cast<long>(ne_ / 2);
+  c = std::clamp(c, static_cast<long>(ne_) - half, half);
+  carrier_ = p.energy_au[static_cast<std::size_t>(c)] + p.ionization_energy_au;
+  EnergyBinMap map;
+  try {
+    map = map_energy_bins(p.grid, carrier_, p.ionization_energy_au, p.energy_au);
+  } catch (const std::invalid_argument& e) {
+    fail(std::string("energy_au: ") + e.what());
+  }
+  for (std::size_t j = 0; j < ne_; ++j)
+    if (map.frac[j] != 0.0 || std::abs(map.carrier_shift) > 1e-6 * dw)
+      fail("energy_au does not fall on the FFT bins of the grid (energy " + std::to_string(j) + ")");
+  bin_ = map.bin;
+
+  // Measured and unmeasured FFT-index segments.
+  std::vector<unsigned char> measured(n_, 0);
+  for (std::size_t j = 0; j < ne_; ++j) {
+    const std::size_t k = fft_index(bin_[j], n_);
+    measured[k] = 1;
+    if (!measured_.empty() && measured_.back().k0 + measured_.back().len == k &&
+        measured_.back().j0 + measured_.back().len == j)
+      ++measured_.back().len;
+    else
+      measured_.push_back({k, j, 1});
+  }
+  for (std::size_t k = 0; k < n_; ++k) {
+    if (measured[k]) continue;
+    if (!unmeasured_.empty() && unmeasured_.back().k0 + unmeasured_.back().len == k)
+      ++unmeasured_.back().len;
+    else
+      unmeasured_.push_back({k, 0, 1});
+  }
+
+  lo_.resize(nd_ * ne_);
+  hi_.resize(nd_ * ne_);
+  meas_.resize(nd_ * ne_);
+  const bool with_noise = settings_.noise_tolerance > 0 && p.variance.size() != 0;
+  peak_ = p.intensity.maxCoeff();
+  sum_ii_ = p.intensity.squaredNorm();
+  for (std::size_t i = 0; i < nd_; ++i)
+    for (std::size_t j = 0; j < ne_; ++j) {
+      const double I = p.intensity(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
+      meas_[i * ne_ + j] = I;
+      const double a = std::sqrt(std::max(I, 0.0));
+      double sa = 0.0;
+      if (with_noise) {
+        const double sI = std::sqrt(std::max(
+            p.variance(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j)), 0.0));
+        sa = settings_.noise_tolerance * std::min(a > 0 ? sI / (2.0 * a) : sI, std::sqrt(sI));
+      }
+      lo_[i * ne_ + j] = std::max(a - sa, 0.0) / dt_;
+      hi_[i * ne_ + j] = (a + sa) / dt_;
+    }
+  if (!p.field_free_spectrum.empty()) {
+    spectrum_amp_.resize(ne_);
+    for (std::size_t j = 0; j < ne_; ++j) spectrum_amp_[j] = std::sqrt(spec[j]);
+  }
+}
+
+double CmaProblem::knot_step_au() const {
+  return units::period_au(problem_.ir_omega_au) / settings_.gate_knots_per_period;
+}
+
+void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums) const {
+  double* S = reinterpret_cast<double*>(spectrum);
+  const double* lo = lo_.data() + j * ne_;
+  const double* hi = hi_.data() + j * ne_;
+  const double* I = meas_.data() + j * ne_;
+  const double dt2 = dt_ * dt_;
+  double im = 0.0, mm = 0.0;
+  for (const Segment& seg : measured_) {
+    double* sp = S + 2 * seg.k0;
+    const double* l = lo + seg.j0;
+    const double* h = hi + seg.j0;
+    const double* ii = I + seg.j0;
+#pragma omp simd reduction(+ : im, mm)
+    for (std::size_t q = 0; q < seg.len; ++q) {
+      const double re = sp[2 * q], iv = sp[2 * q + 1];
+      const double r2 = re * re + iv * iv;
+      const double M = dt2 * r2;
+      im += ii[q] * M;
+      mm += M * M;
+      const bool ok = r2 > 1e-300;
+      const double r = std::sqrt(r2);
+      const double t = std::min(std::max(r, l[q]), h[q]);
+      const double f = ok ? t / (ok ? r : 1.0) : 0.0;
+      sp[2 * q] = ok ? re * f : 0.5 * (l[q] + h[q]);
+      sp[2 * q + 1] = iv * f;
+    }
+  }
+  const double damp = settings_.unmeasured_damping;
+  if (damp != 1.0)
+    for (const Segment& seg : unmeasured_) {
+      double* sp = S + 2 * seg.k0;
+#pragma omp simd
+      for (std::size_t q = 0; q < 2 * seg.len; ++q) sp[q] *= damp;
+    }
+  sums.im += im;
+  sums.mm += mm;
+}
+
+double CmaProblem::trace_error(const ErrorSums& s) const {
+  const double r = s.mm > 0 ? sum_ii_ - s.im * s.im / s.mm : sum_ii_;
+  return std::sqrt(std::max(r, 0.0) / (static_cast<double>(nd_ * ne_) * peak_ * peak_));
+}
+
+void CmaProblem::impose_spectrum(CVec& eps, CVec& work) const {
+  if (spectrum_amp_.empty()) return;
+  work.resize(n_);
+  fft_.time_to_freq(eps, work);
+  double have = 0.0, want = 0.0;
+  for (const Segment& seg : measured_)
+    for (std::size_t q = 0; q < seg.len; ++q) {
+      have += std::norm(work[seg.k0 + q]);
+      want += spectrum_amp_[seg.j0 + q] * spectrum_amp_[seg.j0 + q];
+    }
+  const double c = want > 0 && have > 0 ? std::sqrt(have / want) : 1.0 / dt_;
+  for (const Segment& seg : measured_)
+    for (std::size_t q = 0; q < seg.len; ++q) {
+      cdouble& w = work[seg.k0 + q];
+      const double r = std::abs(w), t = c * spectrum_amp_[seg.j0 + q];
+      w = r > 1e-300 ? w * (t / r) : cdouble(t, 0.0);
+    }
+  for (const Segment& seg : unmeasured_)
+    for (std::size_t q = 0; q < seg.len; ++q) work[seg.k0 + q] = 0.0;
+  fft_.freq_to_time(work, eps);
+  const double inv = 1.0 / static_cast<double>(n_);
+  for (auto& e : eps) e *= inv;
+}
+
+double CmaProblem::align_spectrum(CVec& eps, PhaseGate& gate, CVec& work) const {
+  if (spectrum_amp_.empty()) return 0.0;
+  work.resize(n_);
+  fft_.time_to_freq(eps, work);
+  double cw = 0, c = 0, tw = 0, t = 0;
+  for (const Segment& seg : measured_)
+    for (std::size_t q = 0; q < seg.len; ++q) {
+      const double b = static_cast<double>(bin_[seg.j0 + q]);
+      const double p = std::norm(work[seg.k0 + q]), s = spectrum_amp_[seg.j0 + q];
+      cw += b * p;
+      c += p;
+      tw += b * s * s;
+      t += s * s;
+    }
+  if (!(c > 0) || !(t > 0)) return 0.0;
+  const double dw = problem_.grid.dw();
+  const double delta = (tw / t - cw / c) * dw;
+  if (std::abs(delta) < 1e-3 * dw) return 0.0;
+  // eps(s) exp(-i delta s), G(t) exp(+i delta t), by recurrence of the unit rotations.
+  auto rotate = [](cdouble* v, std::size_t n, double t0, double step, double rate) {
+    cdouble r = std::polar(1.0, rate * t0);
+    const cdouble d = std::polar(1.0, rate * step);
+    for (std::size_t i = 0; i < n; ++i) {
+      v[i] *= r;
+      r *= d;
+      if ((i & 255) == 255) r /= std::abs(r);
+    }
+  };
+  rotate(eps.data(), n_, problem_.grid.t0(), problem_.grid.dt(), -delta);
+  rotate(gate.table().data(), gate.size(), gate.time(0), gate.dt(), delta);
+  return delta;
+}
+
+CVec CmaProblem::initial_xuv(const EngineOptions& o) const {
+  const TimeGrid& g = problem_.grid;
+  if (o.initial_xuv) {
+    const TimeGrid& h = o.initial_xuv->grid();
+    if (h.size() != n_ || std::abs(h.dt() - g.dt()) > 1e-9 * g.dt() ||
+        std::abs(h.t0() - g.t0()) > 1e-6 * g.dt())
+      throw usage_error(engine_ + ": EngineOptions.initial_xuv is on a grid of " +
+                        std::to_string(h.size()) + " points, step " + num(h.dt()) +
+                        " a.u., start " + num(h.t0()) + " a.u.: expected the problem's grid (" +
+                        std::to_string(n_) + ", " + num(g.dt()) + ", " + num(g.t0()) + ")");
+    return o.initial_xuv->with_carrier(carrier_).envelope();
+  }
+  // sqrt(spectrum) with flat phase, peak at s = 0: raw_k = |E~(w_b)| exp(-i w_b t0) / dt.
+  CVec raw(n_, cdouble(0.0, 0.0)), eps(n_);
+  for (std::size_t j = 0; j < ne_; ++j) {
+    double a;
+    if (!spectrum_amp_.empty()) {
+      a = spectrum_amp_[j];
+    } else {
+      double m = 0;
+      for (std::size_t i = 0; i < nd_; ++i) m += std::max(meas_[i * ne_ + j], 0.0);
+      a = std::sqrt(m / static_cast<double>(nd_));
+    }
+    const double w = static_cast<double>(bin_[j]) * g.dw();
+    raw[fft_index(bin_[j], n_)] = std::polar(a / dt_, -w * g.t0());
+  }
+  fft_.freq_to_time(raw, eps);
+  const double inv = 1.0 / static_cast<double>(n_);
+  for (auto& e : eps) e *= inv;
+  return eps;
+}
+
+PhaseGate CmaProblem::initial_gate(const EngineOptions& o) const {
+  PhaseGate gate(problem_.grid, problem_.delay_au, knot_step_au());
+  const double p0 = problem_.central_momentum_au;
+  if (o.initial_ir && o.initial_ir->size() >= 5) {
+    const IrField& ir = *o.initial_ir;
+    gate.set_phase([&](double t) { return cma_gate_phase(ir, p0, t); });
+    gate_guess_ = "initial_ir";
+    return gate;
+  }
+  // Streaking-centroid curve. With p0 the final-momentum centroid, the CMA gate shifts the
+  // spectrum by -d phi/dt: W_c(tau) = W0 - p0 A(tau) - A(tau)^2 / 2 (= the classical
+  // (p_i - A)^2 / 2 with p_i = p0 + A), so A = -p0 + sqrt(p0^2 - 2 (W_c - W0)).
+  const std::vector<double>& W = problem_.energy_au;
+  std::vector<double> wc(nd_, 0.0);
+  for (std::size_t i = 0; i < nd_; ++i) {
+    double num_w = 0, den = 0;
+    for (std::size_t j = 0; j < ne_; ++j) {
+      const double v = std::max(meas_[i * ne_ + j], 0.0);
+      num_w += v * W[j];
+      den += v;
+    }
+    wc[i] = den > 0 ? num_w / den : 0.0;
+  }
+  double W0 = 0.0;
+  if (!spectrum_amp_.empty()) {
+    double num_w = 0, den = 0;
+    for (std::size_t j = 0; j < ne_; ++j) {
+      const double v = spectrum_amp_[j] * spectrum_amp_[j];
+      num_w += v * W[j];
+      den += v;
+    }
+    W0 = num_w / den;
+  } else {
+    for (double x : wc) W0 += x / static_cast<double>(nd_);
+  }
+  std::vector<double> A(nd_);
+  double shift = 0.0;
+  for (std::size_t i = 0; i < nd_; ++i) {
+    A[i] = vector_potential_from_phase_rate(W0 - wc[i], p0);
+    shift = std::max(shift, std::abs(wc[i] - W0));
+  }
+  if (shift < 2.0 * problem_.grid.dw()) {
+    gate_guess_ = "flat (centroid sweep below two energy bins)";
+    return gate;
+  }
+  const std::vector<double>& tau = problem_.delay_au;
+  const double step = units::period_au(problem_.ir_omega_au) / 64.0;
+  const std::size_t m =
+      std::max<std::size_t>(5, static_cast<std::size_t>((tau.back() - tau.front()) / step) + 1);
+  const double h = (tau.back() - tau.front()) / static_cast<double>(m - 1);
+  std::vector<double> a(m);
+  std::size_t i = 0;
+  for (std::size_t q = 0; q < m; ++q) {
+    const double t = tau.front() + static_cast<double>(q) * h;
+    while (i + 2 < nd_ && tau[i + 1] < t) ++i;
+    const double f = std::clamp((t - tau[i]) / (tau[i + 1] - tau[i]), 0.0, 1.0);
+    a[q] = (1.0 - f) * A[i] + f * A[i + 1];
+  }
+  const IrField guess(tau.front(), h, std::move(a));
+  gate.set_phase([&](double t) { return cma_gate_phase(guess, p0, t); });
+  gate_guess_ = "centroid curve";
+  return gate;
+}
+
+Eigen::MatrixXd CmaProblem::model_trace(const CVec& eps, const PhaseGate& gate) const {
+  Eigen::MatrixXd M(nd_, ne_);
+  CVec g(n_), psi(n_), raw(n_);
+  const double dt2 = dt_ * dt_;
+  for (std::size_t i = 0; i < nd_; ++i) {
+    gate.sample(i, g.data());
+    for (std::size_t n = 0; n < n_; ++n) psi[n] = eps[n] * g[n];
+    fft_.time_to_freq(psi, raw);
+    for (std::size_t j = 0; j < ne_; ++j)
+      M(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j)) =
+          dt2 * std::norm(raw[fft_index(bin_[j], n_)]);
+  }
+  return M;
+}
+
+Reconstruction CmaProblem::reconstruct(CVec eps, PhaseGate gate) const {
+  std::vector<double> cover;
+  gate.coverage(eps, cover);
+  if (std::getenv("SW_DEBUG")) {
+    double mu;
+    std::fprintf(stderr, "DEBUG G before smoothing %g\n", sw::trace_error(problem_.intensity, model_trace(eps, gate), &mu));
+  }
+  SmoothPhase phase = gate.smooth(cover);
+  if (std::getenv("SW_DEBUG")) {
+    double mu;
+    std::fprintf(stderr, "DEBUG G after smoothing %g\n", sw::trace_error(problem_.intensity, model_trace(eps, gate), &mu));
+  }
+  // Global phase: arg eps = 0 at the peak of |eps|; the gate takes the opposite phase.
+  std::size_t peak = 0;
+  for (std::size_t n = 1; n < n_; ++n)
+    if (std::norm(eps[n]) > std::norm(eps[peak])) peak = n;
+  const double a = std::arg(eps[peak]);
+  const cdouble r = std::polar(1.0, -a);
+  for (auto& e : eps) e *= r;
+  gate.rotate(a);
+  for (auto& c : phase.coef) c += a;
+
+  Reconstruction rec;
+  rec.engine = engine_;
+  rec.model = "cma";
+  rec.retrieved = model_trace(eps, gate);
+  rec.trace_error = sw::trace_error(problem_.intensity, rec.retrieved, &rec.scale);
+  rec.xuv = XuvField(problem_.grid, carrier_, std::move(eps));
+  // A(t) where the data constrain the gate (coverage above 1e-3 of its maximum).
+  double cmax = 0;
+  for (double c : cover) cmax = std::max(cmax, c);
+  std::size_t lo = 0, hi = cover.size() - 1;
+  while (lo < hi && cover[lo] < 1e-3 * cmax) ++lo;
+  while (hi > lo && cover[hi] < 1e-3 * cmax) --hi;
+  const double p0 = problem_.central_momentum_au;
+  const double dt_ir =
+      std::min(0.5 * gate.knot_step(), units::period_au(problem_.ir_omega_au) / 64.0);
+  rec.ir = ir_from_gate_phase(phase, p0, gate.time(lo), gate.time(hi), dt_ir);
+  rec.settings = used_settings();
+  rec.settings.emplace_back("gate_table_nodes", std::to_string(gate.size()));
+  rec.settings.emplace_back("gate_exact_shifts", gate.exact_shifts() ? "yes" : "no");
+  return rec;
+}
+
+std::vector<std::pair<std::string, std::string>> CmaProblem::used_settings() const {
+  std::vector<std::pair<std::string, std::string>> s;
+  const TimeGrid& g = problem_.grid;
+  s.emplace_back("forward_model", "cma (unit-modulus gate, dipole taken constant)");
+  s.emplace_back("grid", std::to_string(n_) + " points x " + num(units::au_to_as(g.dt())) + " as");
+  s.emplace_back("carrier_eV", num(units::au_to_eV(carrier_)));
+  s.emplace_back("central_momentum_au", num(problem_.central_momentum_au));
+  s.emplace_back("energy_bins", std::to_string(ne_) + " (signed FFT bins " +
+                                    std::to_string(bin_.front()) + ".." +
+                                    std::to_string(bin_.back()) + ")");
+  s.emplace_back("delays", std::to_string(nd_));
+  s.emplace_back("gate_guess", gate_guess_.empty() ? "-" : gate_guess_);
+  s.emplace_back("gate_knot_step_as", num(units::au_to_as(std::max(knot_step_au(), g.dt()))));
+  s.emplace_back("spectrum_constraint",
+                 spectrum_amp_.empty() || settings_.spectrum_interval == 0
+                     ? std::string("off")
+                     : "every " + std::to_string(settings_.spectrum_interval) + " iterations");
+  s.emplace_back("gate_smoothing_interval", std::to_string(settings_.gate_smoothing_interval));
+  s.emplace_back("unmeasured_damping", num(settings_.unmeasured_damping));
+  return s;
+}
+
+}  // namespace sw

@@ -1,0 +1,850 @@
+#include "retrieval/full_model_engine.h"
+
+#include <algorithm>
+#include <cmath>
+#include <condition_variable>
+#include <exception>
+#include <mutex>
+#include <sstream>
+#include <thread>
+
+#include <ceres/ceres.h>
+
+#include "retrieval/error.h"
+#include "retrieval/units.h"
+
+namespace sw {
+
+namespace {
+
+std::string num(double x) {
+  std::ostringstream s;
+  s << x;
+  return s.str();
+}
+
+inline std::size_t fft_slot(long b, std::size_t n) {
+  return static_cast<std::size_t>(b < 0 ? b + static_cast<long>(n) : b);
+}
+
+}  // namespace
+
+// --- settings ---------------------------------------------------------------------------------
+
+std::string FullModelSettings::validate() const {
+  std::ostringstream s;
+  if (ir != "auto" && ir != "parametric" && ir != "spline")
+    s << "ir = '" << ir << "': expected auto|parametric|spline";
+  else if (lbfgs_per_iteration < 1)
+    s << "lbfgs_per_iteration = " << lbfgs_per_iteration << ": must be >= 1";
+  else if (lbfgs_memory < 1)
+    s << "lbfgs_memory = " << lbfgs_memory << ": must be >= 1";
+  else if (!(knots_per_period > 0))
+    s << "knots_per_period = " << knots_per_period << ": must be > 0";
+  else if (!(ir_samples_per_period >= 8))
+    s << "ir_samples_per_period = " << ir_samples_per_period << ": must be >= 8";
+  else if (chebyshev_nodes < 2)
+    s << "chebyshev_nodes = " << chebyshev_nodes << ": must be >= 2";
+  else if (!(block_phase_rad > 0))
+    s << "block_phase_rad = " << block_phase_rad << ": must be > 0";
+  else if (!(variance_floor >= 0 && variance_floor <= 1))
+    s << "variance_floor = " << variance_floor << ": must be in [0, 1]";
+  else if (!(support_threshold >= 0 && support_threshold < 1))
+    s << "support_threshold = " << support_threshold << ": must be in [0, 1)";
+  else if (!(support_margin_eV >= 0))
+    s << "support_margin_eV = " << support_margin_eV << ": must be >= 0";
+  else if (!(spectrum_weight >= 0) || !std::isfinite(spectrum_weight))
+    s << "spectrum_weight = " << spectrum_weight << ": must be finite and >= 0";
+  return s.str();
+}
+
+std::vector<ExtraOption> full_model_extra_options() {
+  using K = ExtraOption::Kind;
+  const FullModelSettings d;
+  return {
+      {"ir", K::kChoice, d.ir,
+       "IR form: parametric (Gaussian pulse, 6 parameters), spline (cubic B-spline), auto "
+       "(spline with a warm start, else parametric)",
+       0, 0, {"auto", "parametric", "spline"}},
+      {"lbfgs_per_iteration", K::kInteger, std::to_string(d.lbfgs_per_iteration),
+       "L-BFGS iterations per engine iteration", 1, 1e5, {}},
+      {"lbfgs_memory", K::kInteger, std::to_string(d.lbfgs_memory),
+       "L-BFGS rank (past steps kept)", 1, 1000, {}},
+      {"knots_per_period", K::kNumber, num(d.knots_per_period),
+       "spline IR: knots per IR period (knot spacing T / value)", 1e-3, 1e3, {}},
+      {"ir_samples_per_period", K::kNumber, num(d.ir_samples_per_period),
+       "samples per IR period of the fitted vector potential", 8, 1e4, {}},
+      {"chebyshev_nodes", K::kInteger, std::to_string(d.chebyshev_nodes),
+       "full model: Chebyshev nodes per momentum block", 2, 64, {}},
+      {"block_phase_rad", K::kNumber, num(d.block_phase_rad),
+       "full model: largest phase excursion (p - p_mid)(I1 - I1_mid) per block, rad", 1e-3, 50,
+       {}},
+      {"variance_floor", K::kNumber, num(d.variance_floor),
+       "least-squares weights 1/max(variance, value x largest variance)", 0, 1, {}},
+      {"support_threshold", K::kNumber, num(d.support_threshold),
+       "XUV bins free where the field-free spectrum exceeds value x its maximum (0 = all)", 0,
+       0.999999, {}},
+      {"support_margin_eV", K::kNumber, num(d.support_margin_eV),
+       "widening of the XUV spectral support on each side, eV", 0, 1e4, {}},
+      {"spectrum_weight", K::kNumber, num(d.spectrum_weight),
+       "weight of the field-free-spectrum term relative to the trace (0 = off)", 0, 1e6, {}},
+  };
+}
+
+FullModelSettings read_full_model_settings(const EngineOptions& o) {
+  for (const ExtraOption& opt : full_model_extra_options())
+    if (o.has_extra(opt.name))
+      if (const std::string e = opt.validate(o.extra_string(opt.name, "")); !e.empty())
+        throw usage_error("full-model: engine option " + e);
+  FullModelSettings s;
+  s.ir = o.extra_string("ir", s.ir);
+  s.lbfgs_per_iteration = static_cast<int>(o.extra_int("lbfgs_per_iteration", s.lbfgs_per_iteration));
+  s.lbfgs_memory = static_cast<int>(o.extra_int("lbfgs_memory", s.lbfgs_memory));
+  s.knots_per_period = o.extra_double("knots_per_period", s.knots_per_period);
+  s.ir_samples_per_period = o.extra_double("ir_samples_per_period", s.ir_samples_per_period);
+  s.chebyshev_nodes = static_cast<int>(o.extra_int("chebyshev_nodes", s.chebyshev_nodes));
+  s.block_phase_rad = o.extra_double("block_phase_rad", s.block_phase_rad);
+  s.variance_floor = o.extra_double("variance_floor", s.variance_floor);
+  s.support_threshold = o.extra_double("support_threshold", s.support_threshold);
+  s.support_margin_eV = o.extra_double("support_margin_eV", s.support_margin_eV);
+  s.spectrum_weight = o.extra_double("spectrum_weight", s.spectrum_weight);
+  if (const std::string e = s.validate(); !e.empty()) throw usage_error("full-model: " + e);
+  return s;
+}
+
+// --- objective --------------------------------------------------------------------------------
+
+namespace {
+
+// The spectrum that defines carrier and support: field-free if usable, else delay average.
+std::vector<double> reference_spectrum(const RetrievalProblem& P) {
+  const std::size_t ne = P.energy_au.size();
+  if (P.field_free_spectrum.size() == ne) {
+    double mx = 0;
+    for (double v : P.field_free_spectrum) mx = std::max(mx, v);
+    if (mx > 0) return P.field_free_spectrum;
+  }
+  std::vector<double> s(ne, 0.0);
+  for (Eigen::Index i = 0; i < P.intensity.rows(); ++i)
+    for (std::size_t j = 0; j < ne; ++j)
+      s[j] += std::max(P.intensity(i, static_cast<Eigen::Index>(j)), 0.0) /
+              static_cast<double>(P.intensity.rows());
+  return s;
+}
+
+void check_problem(const RetrievalProblem& P, const std::string& who) {
+  const auto nd = static_cast<Eigen::Index>(P.delay_au.size());
+  const auto ne = static_cast<Eigen::Index>(P.energy_au.size());
+  std::ostringstream s;
+  if (nd < 2 || ne < 8)
+    s << who << ": the problem has " << nd << " delays and " << ne
+      << " energies: need >= 2 delays and >= 8 energies";
+  else if (P.intensity.rows() != nd || P.intensity.cols() != ne)
+    s << who << ": RetrievalProblem.intensity is " << P.intensity.rows() << "x"
+      << P.intensity.cols() << ": expected delays x energies = " << nd << "x" << ne;
+  else if (P.variance.rows() != nd || P.variance.cols() != ne)
+    s << who << ": RetrievalProblem.variance is " << P.variance.rows() << "x" << P.variance.cols()
+      << ": expected " << nd << "x" << ne;
+  else if (!P.intensity.allFinite() || !P.variance.allFinite())
+    s << who << ": RetrievalProblem.intensity/variance contain non-finite values";
+  else if (!(P.variance.maxCoeff() > 0))
+    s << who << ": RetrievalProblem.variance has no positive entry";
+  else if (!(P.intensity.maxCoeff() > 0))
+    s << who << ": RetrievalProblem.intensity has no positive entry (no signal)";
+  else if (P.grid.size() < 8)
+    s << who << ": RetrievalProblem.grid has " << P.grid.size() << " points: need >= 8";
+  else if (!P.field_free_spectrum.empty() && P.field_free_spectrum.size() != P.energy_au.size())
+    s << who << ": RetrievalProblem.field_free_spectrum has " << P.field_free_spectrum.size()
+      << " values: expected one per energy (" << ne << ") or none";
+  if (!s.str().empty()) throw input_error(s.str());
+}
+
+}  // namespace
+
+double FullModelObjective::carrier_for(const RetrievalProblem& P) {
+  const std::vector<double> s = reference_spectrum(P);
+  double num_ = 0, den = 0;
+  for (std::size_t j = 0; j < s.size(); ++j) {
+    num_ += s[j] * P.energy_au[j];
+    den += s[j];
+  }
+  const double Wc = den > 0 ? num_ / den : P.energy_au[P.energy_au.size() / 2];
+  std::size_t jc = 0;
+  for (std::size_t j = 1; j < P.energy_au.size(); ++j)
+    if (std::abs(P.energy_au[j] - Wc) < std::abs(P.energy_au[jc] - Wc)) jc = j;
+  return P.energy_au[jc] + P.ionization_energy_au;
+}
+
+FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullModelSettings& s,
+                                       MomentumModel model, std::unique_ptr<IrParametrization> ir,
+                                       int threads)
+    : model_(model),
+      settings_(s),
+      carrier_((check_problem(P, "full-model"), carrier_for(P))),
+      ne_(P.energy_au.size()),
+      nd_(P.delay_au.size()),
+      n_(P.grid.size()),
+      grid_(P.grid),
+      fa_(P.ionization_energy_au, P.dipole, P.grid, carrier_, P.delay_au, P.energy_au, threads),
+      ir_(std::move(ir)) {
+  if (!ir_) throw std::invalid_argument("FullModelObjective: no IR parametrisation");
+  const EnergyBinMap& map = fa_.energy_bins();
+  fft_slot_.resize(ne_);
+  for (std::size_t j = 0; j < ne_; ++j) {
+    if (map.frac[j] != 0.0)
+      throw input_error("full-model: the energy axis does not fall on the XUV grid's bins "
+                        "(RetrievalProblem.energy_au must be uniform with step grid.dw() = " +
+                        num(units::au_to_eV(grid_.dw())) + " eV)");
+    fft_slot_[j] = fft_slot(map.bin[j], n_);
+  }
+  measured_ = P.intensity;
+  const double floor = std::max(s.variance_floor * P.variance.maxCoeff(), 1e-300);
+  weight_ = P.variance.cwiseMax(floor).cwiseInverse();
+  inv_elements_ = 1.0 / static_cast<double>(measured_.size());
+
+  // Spectral support.
+  const std::vector<double> ref = reference_spectrum(P);
+  std::vector<double> smooth(ne_, 0.0);
+  for (std::size_t j = 0; j < ne_; ++j) {
+    double acc = 0;
+    int cnt = 0;
+    for (long d = -2; d <= 2; ++d) {
+      const long k = static_cast<long>(j) + d;
+      if (k < 0 || k >= static_cast<long>(ne_)) continue;
+      acc += ref[static_cast<std::size_t>(k)];
+      ++cnt;
+    }
+    smooth[j] = acc / cnt;
+  }
+  const double mx = *std::max_element(smooth.begin(), smooth.end());
+  std::vector<char> in(ne_, s.support_threshold == 0.0 ? 1 : 0);
+  if (s.support_threshold > 0)
+    for (std::size_t j = 0; j < ne_; ++j) in[j] = smooth[j] >= s.support_threshold * mx;
+  const long margin = std::lround(s.support_margin_eV / units::au_to_eV(grid_.dw()));
+  std::vector<char> dil = in;
+  for (std::size_t j = 0; j < ne_; ++j)
+    if (in[j])
+      for (long d = -margin; d <= margin; ++d) {
+        const long k = static_cast<long>(j) + d;
+        if (k >= 0 && k < static_cast<long>(ne_)) dil[static_cast<std::size_t>(k)] = 1;
+      }
+  for (std::size_t j = 0; j < ne_; ++j)
+    if (dil[j]) support_.push_back(j);
+  if (support_.empty())
+    throw input_error("full-model: no XUV spectral support (the reference spectrum is empty)");
+  num_xuv_ = 2 * support_.size();
+
+  // Field-free-spectrum term.
+  if (P.field_free_spectrum.size() == ne_) spectrum_ = P.field_free_spectrum;
+  spectrum_weight_col_.assign(ne_, 0.0);
+  for (std::size_t j = 0; j < ne_; ++j)
+    spectrum_weight_col_[j] = weight_.col(static_cast<Eigen::Index>(j)).sum();
+  dip2_.resize(ne_);
+  for (std::size_t j = 0; j < ne_; ++j) {
+    const double d = P.dipole(units::momentum_au(P.energy_au[j]));
+    dip2_[j] = d * d;
+  }
+  if (model_ == MomentumModel::kCentral) {
+    if (!(P.central_momentum_au > 0))
+      throw input_error("full-model (CMA variant): RetrievalProblem.central_momentum_au = " +
+                        num(P.central_momentum_au) + ": must be > 0");
+    fa_.plan_central(P.central_momentum_au);
+  }
+  ir_scale_.assign(ir_->num_params(), 1.0);
+}
+
+std::vector<double> FullModelObjective::encode(const std::vector<cdouble>& spec,
+                                               const std::vector<double>& theta) {
+  if (spec.size() != ne_ || theta.size() != ir_->num_params())
+    throw std::invalid_argument("FullModelObjective::encode: wrong sizes");
+  double mx = 0;
+  for (std::size_t j : support_) mx = std::max(mx, std::abs(spec[j]));
+  xuv_scale_ = mx > 0 ? mx : 1.0;
+  ir_scale_ = ir_->scales(theta.data());
+  std::vector<double> x(static_cast<std::size_t>(num_parameters()));
+  for (std::size_t k = 0; k < support_.size(); ++k) {
+    x[2 * k] = spec[support_[k]].real() / xuv_scale_;
+    x[2 * k + 1] = spec[support_[k]].imag() / xuv_scale_;
+  }
+  for (std::size_t r = 0; r < theta.size(); ++r) x[num_xuv_ + r] = theta[r] / ir_scale_[r];
+  replan(x.data());
+  return x;
+}
+
+std::vector<cdouble> FullModelObjective::spectrum(const double* x) const {
+  std::vector<cdouble> s(ne_, 0.0);
+  for (std::size_t k = 0; k < support_.size(); ++k)
+    s[support_[k]] = cdouble(x[2 * k], x[2 * k + 1]) * xuv_scale_;
+  return s;
+}
+
+CVec FullModelObjective::envelope(const double* x) const {
+  const std::vector<cdouble> s = spectrum(x);
+  CVec S(n_, 0.0), eps(n_);
+  for (std::size_t j = 0; j < ne_; ++j) S[fft_slot_[j]] = s[j];
+  to_time(grid_, Fft(n_), S, eps);
+  return eps;
+}
+
+void FullModelObjective::xuv_adjoint(const CVec& eps_bar, std::vector<cdouble>* spec_bar) const {
+  // eps = Q S with Q_nk = (dw/2pi) exp(-i w_k t_n): S_bar = Q^H eps_bar.
+  CVec raw(n_);
+  Fft(n_).time_to_freq(eps_bar, raw);
+  const double c = grid_.dw() / units::kTwoPi;
+  spec_bar->assign(ne_, 0.0);
+  for (std::size_t j = 0; j < ne_; ++j) {
+    const std::size_t k = fft_slot_[j];
+    (*spec_bar)[j] = c * std::polar(1.0, grid_.omega_fft(k) * grid_.t0()) * raw[k];
+  }
+}
+
+std::vector<double> FullModelObjective::ir_theta(const double* x) const {
+  std::vector<double> th(ir_->num_params());
+  for (std::size_t r = 0; r < th.size(); ++r) th[r] = x[num_xuv_ + r] * ir_scale_[r];
+  return th;
+}
+
+IrField FullModelObjective::ir_field(const double* x) const {
+  const std::vector<double> th = ir_theta(x);
+  return ir_->field(th.data());
+}
+
+double FullModelObjective::evaluate(const double* x, double* grad) const {
+  ++evaluations_;
+  const std::vector<cdouble> spec = spectrum(x);
+  const CVec eps = envelope(x);
+  const std::vector<double> th = ir_theta(x);
+  const IrField irf = ir_->field(th.data());
+  ScaledCostParts P;
+  fa_.scaled_cost(eps, irf, measured_, weight_, grad != nullptr, &P);
+  // Field-free-spectrum term (quadratic in the same mu).
+  const bool use_spec = settings_.spectrum_weight > 0 && spectrum_.size() == ne_;
+  std::vector<cdouble> pb2, pb1;
+  if (use_spec) {
+    pb2.assign(ne_, 0.0);
+    pb1.assign(ne_, 0.0);
+    for (std::size_t j : support_) {
+      const double lam = settings_.spectrum_weight * spectrum_weight_col_[j];
+      const double m0 = dip2_[j] * std::norm(spec[j]);
+      P.c2 += lam * m0 * m0;
+      P.c1 += -2.0 * lam * spectrum_[j] * m0;
+      P.c0 += lam * spectrum_[j] * spectrum_[j];
+      pb2[j] = 2.0 * lam * m0 * dip2_[j] * spec[j];
+      pb1[j] = -2.0 * lam * spectrum_[j] * dip2_[j] * spec[j];
+    }
+  }
+  const double mu = P.c2 > 0 ? -P.c1 / (2.0 * P.c2) : 0.0;
+  const double C = (P.c0 + mu * (P.c1 + mu * P.c2)) * inv_elements_;
+  if (grad) {
+    CVec eb(n_);
+    for (std::size_t s = 0; s < n_; ++s) eb[s] = mu * mu * P.eps_bar2[s] + mu * P.eps_bar1[s];
+    std::vector<cdouble> sb;
+    xuv_adjoint(eb, &sb);
+    if (use_spec)
+      for (std::size_t j : support_) sb[j] += mu * mu * pb2[j] + mu * pb1[j];
+    const double gx = 2.0 * xuv_scale_ * inv_elements_;
+    for (std::size_t k = 0; k < support_.size(); ++k) {
+      grad[2 * k] = gx * sb[support_[k]].real();
+      grad[2 * k + 1] = gx * sb[support_[k]].imag();
+    }
+    std::vector<double> Ab(irf.size());
+    for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] = mu * mu * P.A_bar2[r] + mu * P.A_bar1[r];
+    std::vector<double> tb(ir_->num_params());
+    ir_->pullback(th.data(), Ab, tb.data());
+    for (std::size_t r = 0; r < tb.size(); ++r)
+      grad[num_xuv_ + r] = tb[r] * ir_scale_[r] * inv_elements_;
+  }
+  return C;
+}
+
+Eigen::MatrixXd FullModelObjective::model(const double* x, double* mu) const {
+  const std::vector<cdouble> spec = spectrum(x);
+  ScaledCostParts P;
+  Eigen::MatrixXd m;
+  fa_.scaled_cost(envelope(x), ir_field(x), measured_, weight_, false, &P, &m);
+  if (settings_.spectrum_weight > 0 && spectrum_.size() == ne_)
+    for (std::size_t j : support_) {
+      const double lam = settings_.spectrum_weight * spectrum_weight_col_[j];
+      const double m0 = dip2_[j] * std::norm(spec[j]);
+      P.c2 += lam * m0 * m0;
+      P.c1 += -2.0 * lam * spectrum_[j] * m0;
+    }
+  if (mu) *mu = P.c2 > 0 ? -P.c1 / (2.0 * P.c2) : 0.0;
+  return m;
+}
+
+void FullModelObjective::replan(const double* x) {
+  if (model_ == MomentumModel::kCentral) return;
+  ForwardModelOptions o;
+  o.momentum = MomentumModel::kFull;
+  o.chebyshev_nodes = settings_.chebyshev_nodes;
+  o.max_block_phase_rad = settings_.block_phase_rad;
+  fa_.plan_full(ir_field(x), o);
+}
+
+bool FullModelObjective::plan_covers(const double* x, double slack) const {
+  return fa_.plan_covers(ir_field(x), slack);
+}
+
+// --- a pausable L-BFGS run ----------------------------------------------------------------------
+
+namespace {
+
+// Ceres' GradientProblemSolver on a worker thread; an iteration callback pauses it after
+// every `budget` iterations until advance() grants more, so one L-BFGS run (with its curvature
+// memory) spans many engine iterations. The parameters are read only while the solver waits.
+class LbfgsRunner {
+ public:
+  LbfgsRunner(const FullModelObjective& f, const ceres::GradientProblemSolver::Options& o,
+              std::vector<double> x0)
+      : objective_(f), options_(o), x_(std::move(x0)), callback_(this) {}
+  ~LbfgsRunner() { stop(); }
+  LbfgsRunner(const LbfgsRunner&) = delete;
+  LbfgsRunner& operator=(const LbfgsRunner&) = delete;
+
+  /// Runs `n` more iterations (starting the solver on the first call); returns when it has
+  /// paused or finished.
+  void advance(int n) {
+    std::unique_lock<std::mutex> lock(mutex_);
+    budget_ = done_ + n;
+    paused_ = false;
+    if (!thread_.joinable()) {
+      thread_ = std::thread([this] { run(); });
+    } else {
+      cv_.notify_all();
+    }
+    cv_.wait(lock, [this] { return paused_ || finished_; });
+  }
+  /// Ends the run (the solver returns at its next callback) and joins the thread.
+  void stop() {
+    {
+      std::lock_guard<std::mutex> lock(mutex_);
+      stop_ = true;
+    }
+    cv_.notify_all();
+    if (thread_.joinable()) thread_.join();
+  }
+  bool finished() const {
+    std::lock_guard<std::mutex> lock(mutex_);
+    return finished_;
+  }
+  const std::vector<double>& x() const { return x_; }
+  const ceres::GradientProblemSolver::Summary& summary() const { return summary_; }
+  int iterations() const { return done_; }
+  double initial_cost() const { return initial_cost_; }
+  double cost() const { return cost_; }
+  double step_size() const { return step_; }
+  std::exception_ptr error() const { return error_; }
+
+ private:
+  class Adapter : public ceres::FirstOrderFunction {
+   public:
+    Adapter(const FullModelObjective& f, LbfgsRunner* r) : f_(f), r_(r) {}
+    bool Evaluate(const double* x, double* cost, double* grad) const override {
+      try {
+        *cost = f_.evaluate(x, grad);
+        return std::isfinite(*cost);
+      } catch (...) {
+        if (!r_->error_) r_->error_ = std::current_exception();
+        return false;
+      }
+    }
+    int NumParameters() const override { return f_.num_parameters(); }
+
+   private:
+    const FullModelObjective& f_;
+    LbfgsRunner* r_;
+  };
+  class Callback : public ceres::IterationCallback {
+   public:
+    explicit Callback(LbfgsRunner* r) : r_(r) {}
+    ceres::CallbackReturnType operator()(const ceres::IterationSummary& s) override {
+      return r_->on_iteration(s);
+    }
+
+   private:
+    LbfgsRunner* r_;
+  };
+
+  ceres::CallbackReturnType on_iteration(const ceres::IterationSummary& s) {
+    std::unique_lock<std::mutex> lock(mutex_);
+    cost_ = s.cost;
+    step_ = s.step_size;
+    if (s.iteration == 0) {
+      initial_cost_ = s.cost;
+      return stop_ ? ceres::SOLVER_TERMINATE_SUCCESSFULLY : ceres::SOLVER_CONTINUE;
+    }
+    ++done_;
+    if (done_ >= budget_ && !stop_) {
+      paused_ = true;
+      cv_.notify_all();
+      cv_.wait(lock, [this] { return done_ < budget_ || stop_; });
+    }
+    return stop_ ? ceres::SOLVER_TERMINATE_SUCCESSFULLY : ceres::SOLVER_CONTINUE;
+  }
+
+  void run() {
+    try {
+      ceres::GradientProblemSolver::Options o = options_;
+      o.callbacks.push_back(&callback_);
+      o.update_state_every_iteration = true;
+      ceres::GradientProblem problem(new Adapter(objective_, this));
+      ceres::Solve(o, problem, x_.data(), &summary_);
+    } catch (...) {
+      if (!error_) error_ = std::current_exception();
+    }
+    std::lock_guard<std::mutex> lock(mutex_);
+    finished_ = true;
+    cv_.notify_all();
+  }
+
+  const FullModelObjective& objective_;
+  ceres::GradientProblemSolver::Options options_;
+  std::vector<double> x_;
+  Callback callback_;
+  ceres::GradientProblemSolver::Summary summary_;
+  std::thread thread_;
+  mutable std::mutex mutex_;
+  std::condition_variable cv_;
+  int budget_ = 0, done_ = 0;
+  bool paused_ = false, finished_ = false, stop_ = false;
+  double initial_cost_ = 0.0, cost_ = 0.0, step_ = 0.0;
+  std::exception_ptr error_;
+};
+
+// --- initial guesses --------------------------------------------------------------------------
+
+// E~(W_j + Ip) of a field by direct summation (any grid and carrier).
+std::vector<cdouble> spectrum_at(const XuvField& x, const std::vector<double>& W, double ip) {
+  const TimeGrid& g = x.grid();
+  std::vector<cdouble> s(W.size(), 0.0);
+  const CVec& e = x.envelope();
+  for (std::size_t j = 0; j < W.size(); ++j) {
+    const double w = W[j] + ip - x.carrier_au();
+    cdouble acc = 0.0;
+    for (std::size_t n = 0; n < g.size(); ++n) acc += e[n] * std::polar(1.0, w * g.time(n));
+    s[j] = acc * g.dt();
+  }
+  return s;
+}
+
+// A(tau) = p_ref - <p>(tau) from the momentum centroids (classical streaking, p_f = p_i - A:
+// DESIGN.md; J. Itatani et al., PRL 88, 173903 (2002)).
+void centroid_curve(const RetrievalProblem& P, std::vector<double>* A) {
+  const std::size_t ne = P.energy_au.size(), nd = P.delay_au.size();
+  std::vector<double> p(ne);
+  for (std::size_t j = 0; j < ne; ++j) p[j] = units::momentum_au(P.energy_au[j]);
+  const std::vector<double> ref = reference_spectrum(P);
+  double n0 = 0, d0 = 0;
+  for (std::size_t j = 0; j < ne; ++j) {
+    n0 += std::max(ref[j], 0.0) * p[j];
+    d0 += std::max(ref[j], 0.0);
+  }
+  const double pref = d0 > 0 ? n0 / d0 : p[ne / 2];
+  A->assign(nd, 0.0);
+  for (std::size_t i = 0; i < nd; ++i) {
+    double nn = 0, dd = 0;
+    for (std::size_t j = 0; j < ne; ++j) {
+      const double m = std::max(P.intensity(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j)), 0.0);
+      nn += m * p[j];
+      dd += m;
+    }
+    (*A)[i] = dd > 0 ? pref - nn / dd : 0.0;
+  }
+}
+
+// --- the engine -------------------------------------------------------------------------------
+
+class LeastSquaresEngine : public Engine {
+ public:
+  explicit LeastSquaresEngine(MomentumModel m) : model_(m) {}
+  ~LeastSquaresEngine() override { runner_.reset(); }
+
+  std::string name() const override {
+    return model_ == MomentumModel::kFull ? "full-model" : "cma-least-squares";
+  }
+  std::string description() const override {
+    return model_ == MomentumModel::kFull
+               ? "least-squares fit of the full SFA model (no central-momentum approximation), "
+                 "L-BFGS with adjoint gradients"
+               : "least-squares fit of the SFA model in the central-momentum approximation, "
+                 "L-BFGS with adjoint gradients";
+  }
+  std::string reference() const override {
+    return "P. D. Keathley et al., New J. Phys. 18, 073009 (2016); D. C. Liu and J. Nocedal, "
+           "Math. Program. 45, 503 (1989)";
+  }
+  std::vector<ExtraOption> extra_options() const override { return full_model_extra_options(); }
+
+  void prepare(const RetrievalProblem& problem, const EngineOptions& options) override;
+  IterationRecord iterate(int k) override;
+  Reconstruction finalize() override;
+
+ private:
+  double current_G(const std::vector<double>& x) const {
+    return trace_error(problem_.intensity, objective_->model(x.data(), nullptr));
+  }
+
+  MomentumModel model_;
+  RetrievalProblem problem_;
+  EngineOptions options_;
+  FullModelSettings settings_;
+  std::unique_ptr<FullModelObjective> objective_;
+  ceres::GradientProblemSolver::Options ceres_options_;
+  std::unique_ptr<LbfgsRunner> runner_;
+  std::vector<double> x_, best_x_;
+  double best_G_ = 0.0, initial_G_ = 0.0, last_G_ = 0.0;
+  bool done_ = false;
+  long long lbfgs_iterations_ = 0;
+  int runs_ = 0, replans_ = 0;
+  std::string ir_form_, ir_guess_, last_termination_;
+};
+
+void LeastSquaresEngine::prepare(const RetrievalProblem& P, const EngineOptions& options) {
+  runner_.reset();
+  check_problem(P, name());
+  problem_ = P;
+  options_ = options;
+  settings_ = read_full_model_settings(options);
+  done_ = false;
+  lbfgs_iterations_ = 0;
+  runs_ = replans_ = 0;
+  last_termination_.clear();
+
+  const double ip = P.ionization_energy_au;
+  const double omega =
+      P.ir_omega_au > 0 ? P.ir_omega_au : units::wavelength_nm_to_omega_au(800.0);
+  const double T = units::period_au(omega);
+  const double carrier = FullModelObjective::carrier_for(P);
+  const std::size_t n = P.grid.size(), ne = P.energy_au.size();
+
+  // Initial XUV spectrum at the energy bins.
+  std::vector<cdouble> spec(ne, 0.0);
+  if (options.initial_xuv) {
+    spec = spectrum_at(*options.initial_xuv, P.energy_au, ip);
+  } else {
+    const std::vector<double> ref = reference_spectrum(P);
+    for (std::size_t j = 0; j < ne; ++j) {
+      const double d = std::abs(P.dipole(units::momentum_au(P.energy_au[j])));
+      spec[j] = d > 0 ? std::sqrt(std::max(ref[j], 0.0)) / d : 0.0;
+    }
+  }
+  // Time support of that XUV (|eps|^2 above 1e-6 of its peak), widened by T/4.
+  double s_lo = P.grid.time(0), s_hi = P.grid.time(n - 1);
+  {
+    const EnergyBinMap map = map_energy_bins(P.grid, carrier, ip, P.energy_au);
+    CVec S(n, 0.0), eps(n);
+    for (std::size_t j = 0; j < ne; ++j) S[fft_slot(map.bin[j], n)] = spec[j];
+    to_time(P.grid, Fft(n), S, eps);
+    double peak = 0;
+    for (const cdouble& e : eps) peak = std::max(peak, std::norm(e));
+    std::size_t first = n, last = 0;
+    for (std::size_t s = 0; s < n; ++s)
+      if (std::norm(eps[s]) >= 1e-6 * peak) {
+        first = std::min(first, s);
+        last = s;
+      }
+    if (first < n) {
+      s_lo = std::max(P.grid.time(0), P.grid.time(first) - T / 4);
+      s_hi = std::min(P.grid.time(n - 1), P.grid.time(last) + T / 4);
+    }
+  }
+  const IrSampling sampling = IrSampling::covering(P.delay_au.front() + s_lo,
+                                                   P.delay_au.back() + s_hi,
+                                                   T / settings_.ir_samples_per_period);
+
+  // IR form and initial parameters.
+  ir_form_ = settings_.ir == "auto" ? (options.initial_ir ? "spline" : "parametric") : settings_.ir;
+  std::vector<double> gauss;  // parametric guess when needed
+  if (!options.initial_ir) {
+    std::vector<double> A;
+    centroid_curve(P, &A);
+    double amax = 0;
+    for (double a : A) amax = std::max(amax, std::abs(a));
+    if (amax > 0) {
+      gauss = GaussianIrParametrization::fit_samples(P.delay_au, A,
+                                                     std::vector<double>(A.size(), 1.0), omega);
+      ir_guess_ = "centroid curve";
+    } else {
+      gauss = {1e-3, omega, 2 * T, 0.0, 0.0, 0.5 * (P.delay_au.front() + P.delay_au.back())};
+      ir_guess_ = "weak default (no centroid sweep)";
+    }
+  } else {
+    ir_guess_ = "initial_ir";
+  }
+  std::unique_ptr<IrParametrization> param;
+  std::vector<double> theta;
+  if (ir_form_ == "parametric") {
+    auto g = std::make_unique<GaussianIrParametrization>(sampling);
+    theta = options.initial_ir ? g->fit(*options.initial_ir) : gauss;
+    param = std::move(g);
+  } else {
+    auto sp = std::make_unique<SplineIrParametrization>(sampling, T / settings_.knots_per_period);
+    if (options.initial_ir) {
+      theta = sp->fit(*options.initial_ir);
+    } else {
+      std::vector<double> A(sampling.size);
+      for (std::size_t i = 0; i < A.size(); ++i)
+        A[i] = GaussianIrParametrization::value(gauss.data(), sampling.time(i));
+      theta = sp->fit_samples(A);
+    }
+    double amax = 0;
+    for (double c : theta) amax = std::max(amax, std::abs(c));
+    sp->set_amplitude_scale(std::max(amax, 1e-2));
+    param = std::move(sp);
+  }
+  objective_ = std::make_unique<FullModelObjective>(P, settings_, model_, std::move(param),
+                                                    options.threads);
+  x_ = objective_->encode(spec, theta);
+  best_x_ = x_;
+  initial_G_ = best_G_ = last_G_ = current_G(x_);
+
+  ceres_options_ = ceres::GradientProblemSolver::Options();
+  ceres_options_.line_search_direction_type = ceres::LBFGS;
+  ceres_options_.line_search_type = ceres::WOLFE;
+  ceres_options_.max_lbfgs_rank = settings_.lbfgs_memory;
+  ceres_options_.use_approximate_eigenvalue_bfgs_scaling = true;
+  ceres_options_.max_num_iterations = 100000000;
+  ceres_options_.max_solver_time_in_seconds = options.max_seconds;
+  ceres_options_.function_tolerance = 1e-12;
+  ceres_options_.gradient_tolerance = 1e-14;
+  ceres_options_.parameter_tolerance = 1e-12;
+  ceres_options_.logging_type = ceres::SILENT;
+}
+
+IterationRecord LeastSquaresEngine::iterate(int) {
+  IterationRecord rec;
+  if (!objective_) throw Error(ErrorKind::kInternal, name() + ": iterate() before prepare()");
+  if (done_) {
+    rec.trace_error = last_G_;
+    return rec;
+  }
+  if (!runner_) {
+    runner_ = std::make_unique<LbfgsRunner>(*objective_, ceres_options_, x_);
+    ++runs_;
+  }
+  runner_->advance(settings_.lbfgs_per_iteration);
+  if (const std::exception_ptr e = runner_->error()) {
+    runner_.reset();
+    try {
+      std::rethrow_exception(e);
+    } catch (const std::exception& ex) {
+      throw numeric_error(name() + ": model evaluation failed: " + ex.what());
+    }
+  }
+  x_ = runner_->x();
+  rec.step_size = runner_->step_size();
+  if (runner_->finished()) {
+    const ceres::GradientProblemSolver::Summary& s = runner_->summary();
+    lbfgs_iterations_ += runner_->iterations();
+    last_termination_ = s.message;
+    // A run that still made progress earns a fresh restart (new blocks, new memory).
+    const double gain = runner_->initial_cost() - s.final_cost;
+    const bool progress = gain > 1e-9 * std::abs(runner_->initial_cost());
+    runner_.reset();
+    if (progress && s.termination_type != ceres::FAILURE) {
+      objective_->replan(x_.data());
+      ++replans_;
+    } else {
+      done_ = true;
+    }
+  } else if (!objective_->plan_covers(x_.data(), 0.25)) {
+    lbfgs_iterations_ += runner_->iterations();
+    runner_.reset();
+    objective_->replan(x_.data());
+    ++replans_;
+  }
+  last_G_ = current_G(x_);
+  if (last_G_ < best_G_) {
+    best_G_ = last_G_;
+    best_x_ = x_;
+  }
+  rec.trace_error = last_G_;
+  return rec;
+}
+
+Reconstruction LeastSquaresEngine::finalize() {
+  if (!objective_) throw Error(ErrorKind::kInternal, name() + ": finalize() before prepare()");
+  if (runner_) {
+    lbfgs_iterations_ += runner_->iterations();
+    runner_.reset();
+  }
+  const FullModelObjective& f = *objective_;
+  CVec eps = f.envelope(best_x_.data());
+  // Global phase: arg eps = 0 at the intensity peak.
+  std::size_t peak = 0;
+  for (std::size_t s = 1; s < eps.size(); ++s)
+    if (std::norm(eps[s]) > std::norm(eps[peak])) peak = s;
+  const cdouble rot = std::abs(eps[peak]) > 0 ? std::conj(eps[peak]) / std::abs(eps[peak]) : 1.0;
+  for (cdouble& e : eps) e *= rot;
+
+  Reconstruction r;
+  r.engine = name();
+  r.model = model_ == MomentumModel::kFull ? "full" : "cma";
+  r.reference = reference();
+  r.xuv = XuvField(problem_.grid, f.carrier_au(), std::move(eps));
+  r.ir = f.ir_field(best_x_.data());
+  ForwardModelOptions fo;
+  fo.momentum = model_;
+  fo.central_momentum_au = problem_.central_momentum_au;
+  fo.chebyshev_nodes = settings_.chebyshev_nodes;
+  fo.max_block_phase_rad = settings_.block_phase_rad;
+  fo.energy_jacobian = false;
+  fo.threads = options_.threads;
+  r.retrieved = ForwardModel(problem_.ionization_energy_au, problem_.dipole, fo)
+                    .trace(r.xuv, r.ir, problem_.delay_au, problem_.energy_au);
+  r.trace_error = trace_error(problem_.intensity, r.retrieved, &r.scale);
+  r.termination = done_ ? Termination::kConverged : Termination::kMaxIterations;
+  r.message = last_termination_.empty() ? "L-BFGS still running" : "L-BFGS: " + last_termination_;
+
+  double wmu = 0;
+  const double wcost = f.evaluate(best_x_.data(), nullptr);
+  f.model(best_x_.data(), &wmu);
+  auto& S = r.settings;
+  S.emplace_back("forward_model", r.model);
+  S.emplace_back("ir_form", ir_form_);
+  S.emplace_back("ir_initial_guess", ir_guess_);
+  S.emplace_back("xuv_initial_guess", options_.initial_xuv ? "initial_xuv" : "sqrt(spectrum)/|d|, flat phase");
+  S.emplace_back("parameters", std::to_string(f.num_parameters()));
+  S.emplace_back("xuv_support_bins", std::to_string(f.support().size()));
+  S.emplace_back("carrier_eV", num(units::au_to_eV(f.carrier_au())));
+  const IrSampling& smp = f.ir_parametrization().sampling();
+  S.emplace_back("ir_window_fs", num(units::au_to_fs(smp.t0_au)) + " .. " +
+                                     num(units::au_to_fs(smp.last_time())));
+  S.emplace_back("ir_samples", std::to_string(smp.size));
+  if (const auto* sp = dynamic_cast<const SplineIrParametrization*>(&f.ir_parametrization()))
+    S.emplace_back("spline_knot_spacing_fs", num(units::au_to_fs(sp->knot_spacing_au())));
+  if (ir_form_ == "parametric") {
+    const std::vector<double> th = f.ir_theta(best_x_.data());
+    const GaussianIrPulse p = GaussianIrParametrization::to_pulse(th.data());
+    S.emplace_back("ir_wavelength_nm", num(p.wavelength_nm));
+    S.emplace_back("ir_fwhm_fs", num(p.fwhm_fs));
+    S.emplace_back("ir_peak_intensity_Wcm2", num(p.peak_intensity_Wcm2));
+    S.emplace_back("ir_cep_rad", num(p.cep_rad));
+    S.emplace_back("ir_chirp_rad_per_fs2", num(p.chirp_rad_per_fs2));
+    S.emplace_back("ir_center_fs", num(p.center_fs));
+  }
+  S.emplace_back("momentum_blocks", std::to_string(f.forward().plan().blocks.size()));
+  S.emplace_back("lbfgs_runs", std::to_string(runs_));
+  S.emplace_back("lbfgs_iterations", std::to_string(lbfgs_iterations_));
+  S.emplace_back("cost_evaluations", std::to_string(f.evaluations()));
+  S.emplace_back("block_replans", std::to_string(replans_));
+  S.emplace_back("weighted_cost_per_element", num(wcost));
+  S.emplace_back("weighted_scale", num(wmu));
+  S.emplace_back("initial_trace_error", num(initial_G_));
+  S.emplace_back("noise_model", "poisson (weights 1/variance)");
+  for (const auto& [k, v] : options_.extra) S.emplace_back("extra." + k, v);
+  return r;
+}
+
+}  // namespace
+
+std::unique_ptr<Engine> make_full_model_engine() {
+  return std::make_unique<LeastSquaresEngine>(MomentumModel::kFull);
+}
+
+std::unique_ptr<Engine> make_cma_least_squares_engine() {
+  return std::make_unique<LeastSquaresEngine>(MomentumModel::kCentral);
+}
+
+}  // namespace sw

@@ -1,0 +1,167 @@
+#pragma once
+// The "full-model" engine: least-squares fit of the complete SFA streaking model, without the
+// central-momentum approximation, to the measured trace (in the spirit of P. D. Keathley,
+// S. Bhardwaj, J. Moses, G. Laurent and F. X. Kaertner, New J. Phys. 18, 073009 (2016)).
+// Model: retrieval/forward_model.h, kFull (Chebyshev interpolation in p over momentum blocks),
+// evaluated with its hand-written adjoint (retrieval/forward_adjoint.h); optimiser: Ceres'
+// GradientProblemSolver (L-BFGS with a Wolfe line search; D. C. Liu and J. Nocedal, Math.
+// Program. 45, 503 (1989)). A Jacobian of ~5e4 residuals x ~1e3 parameters would not fit the
+// memory budget; the gradient alone costs about two forward evaluations.
+//
+// Parameters (all scaled to O(1) for the optimiser):
+//  * XUV: the complex spectral samples E~(Omega_j) at the photon energies Omega_j = W_j + Ip of
+//    the problem's energy bins, as real and imaginary parts (carrier Omega_c = W_c + Ip, W_c the
+//    bin nearest the field-free-spectrum centroid, so bin j is FFT bin j - c). Real/imaginary
+//    rather than amplitude/phase: the cost is then a polynomial (quartic) in the parameters,
+//    smooth everywhere, with no phase wrapping and no singular phase where the amplitude
+//    vanishes. Only bins inside the spectral support are free (field-free spectrum above
+//    support_threshold x its maximum, widened by support_margin_eV); the rest are zero, which
+//    also removes the frequency-shift ambiguity (DESIGN.md). Optionally (spectrum_weight > 0)
+//    |d(p_j) E~_j|^2 is tied to the field-free spectrum by an extra least-squares term.
+//  * IR: "parametric" (6 parameters of a Gaussian-envelope pulse, retrieval/ir_parametrization.h)
+//    or "spline" (cubic B-spline coefficients, knot spacing T/knots_per_period). ir=auto (the
+//    default) takes the spline when refining a warm start (EngineOptions::initial_ir given:
+//    the field is already close and may be non-Gaussian) and the parametric form from scratch
+//    (six parameters keep the first, far-from-solution steps well posed).
+//
+// Cost (Poisson-aware weighted least squares, model in |a|^2 units: RetrievalProblem::intensity
+// is already divided by the energy Jacobian p, so the model carries no p either):
+//   C = (1/N) [ sum_ij w_ij (mu |a_ij|^2 - M_ij)^2
+//               + spectrum_weight sum_j wc_j (mu |d(p_j) E~_j|^2 - S_j)^2 ],
+//   w_ij = 1 / max(variance_ij, variance_floor x max variance),   wc_j = sum_i w_ij,
+// N the number of trace elements, mu the optimal scale eliminated in closed form (variable
+// projection, G. H. Golub and V. Pereyra, SIAM J. Numer. Anal. 10, 413 (1973)): C is quadratic
+// in mu, mu* = -c1 / (2 c2), and since dC/dmu = 0 there the gradient of the projected cost is
+// the partial gradient at fixed mu* (retrieval/forward_adjoint.h). C ~ chi^2 per element: ~1 at
+// the Poisson noise floor.
+//
+// Iterations: each iterate() advances ONE continuing L-BFGS run by lbfgs_per_iteration
+// iterations (the solver runs on a worker thread that pauses in an iteration callback, so its
+// curvature memory survives between iterate() calls) and returns the trace error G of
+// sw::trace_error (Fittinghoff et al., JOSA B 12, 1955 (1995)) of the current estimate. The
+// momentum blocks are fixed during a run (one smooth cost); when the IR has moved so far that
+// they no longer meet their accuracy target the run is restarted with new blocks. When L-BFGS
+// itself converges, one fresh restart is tried; afterwards iterate() returns the same G and the
+// shared loop's stall rule ends the run.
+//
+// Result: the lowest-G estimate; XUV on problem.grid (global phase: arg eps = 0 at the
+// intensity peak; no time shift: the delay axis ties the XUV and IR time axes, as in the CMA
+// engines), IR on a grid covering the delays +- the XUV support, the retrieved trace from
+// sw::ForwardModel kFull itself, scale mu of sw::trace_error.
+//
+// Extra options (EngineOptions::extra; see extra_options() for defaults and limits):
+//   ir                    auto | parametric | spline
+//   lbfgs_per_iteration   L-BFGS iterations per engine iteration
+//   lbfgs_memory          L-BFGS rank (pairs of past steps kept)
+//   knots_per_period      spline knots per IR period (knot spacing T / value)
+//   ir_samples_per_period IR sample density of the fitted IrField
+//   chebyshev_nodes, block_phase_rad   full-model momentum blocks (ForwardModelOptions)
+//   variance_floor        weight floor, fraction of the largest variance
+//   support_threshold     XUV support: field-free spectrum above this fraction of its maximum
+//                         (0 = every bin of the window is free)
+//   support_margin_eV     widening of that support on both sides
+//   spectrum_weight       weight of the field-free-spectrum term (0 = off)
+
+#include <memory>
+#include <string>
+#include <vector>
+
+#include <Eigen/Core>
+
+#include "retrieval/engine.h"
+#include "retrieval/forward_adjoint.h"
+#include "retrieval/forward_model.h"
+#include "retrieval/ir_parametrization.h"
+
+namespace sw {
+
+/// The engine's settings, read from EngineOptions::extra (defaults here and in
+/// full_model_extra_options(), which must agree; tests check it).
+struct FullModelSettings {
+  std::string ir = "auto";            ///< auto | parametric | spline
+  int lbfgs_per_iteration = 10;       ///< >= 1
+  int lbfgs_memory = 20;              ///< >= 1
+  double knots_per_period = 6.0;      ///< > 0: spline knot spacing = T_IR / knots_per_period
+  double ir_samples_per_period = 64;  ///< >= 8: IR sample step <= T_IR / value
+  int chebyshev_nodes = 10;           ///< >= 2 (ForwardModelOptions::chebyshev_nodes)
+  double block_phase_rad = 2.0;       ///< > 0 (ForwardModelOptions::max_block_phase_rad)
+  double variance_floor = 1e-4;       ///< in [0, 1]: floor = value x max variance
+  double support_threshold = 1e-3;    ///< in [0, 1)
+  double support_margin_eV = 1.0;     ///< >= 0
+  double spectrum_weight = 0.0;       ///< >= 0
+
+  std::string validate() const;       ///< "" when valid; else names field, value, constraint
+};
+std::vector<ExtraOption> full_model_extra_options();
+/// Reads and validates the extras (throws sw::Error(kUsage) naming the option).
+FullModelSettings read_full_model_settings(const EngineOptions& options);
+
+/// The cost function of the engine on a flat parameter vector x (scaled XUV real/imaginary
+/// parts, then scaled IR parameters), with its adjoint gradient. Public so that tests can check
+/// the gradient against finite differences and so that other drivers can reuse it.
+class FullModelObjective {
+ public:
+  /// `ir` fixes the IR form and sampling; `model` kFull or kCentral (the CMA, at
+  /// problem.central_momentum_au: the same fit under the approximation, for comparisons).
+  FullModelObjective(const RetrievalProblem& problem, const FullModelSettings& settings,
+                     MomentumModel model, std::unique_ptr<IrParametrization> ir, int threads);
+
+  int num_parameters() const { return static_cast<int>(num_xuv_ + ir_->num_params()); }
+  std::size_t num_xuv_parameters() const { return num_xuv_; }
+  /// Cost C(x); gradient dC/dx when grad is not null.
+  double evaluate(const double* x, double* grad) const;
+
+  /// x from spectral samples at the energy bins (size num energies; only support bins used)
+  /// and physical IR parameters theta. Sets the XUV and IR parameter scales from them.
+  std::vector<double> encode(const std::vector<cdouble>& spectrum, const std::vector<double>& theta);
+  /// Spectral samples at the energy bins (0 outside the support).
+  std::vector<cdouble> spectrum(const double* x) const;
+  CVec envelope(const double* x) const;
+  std::vector<double> ir_theta(const double* x) const;
+  IrField ir_field(const double* x) const;
+  /// |a|^2 (the model, no scale) and the weighted optimal scale mu at x.
+  Eigen::MatrixXd model(const double* x, double* mu) const;
+
+  /// Momentum blocks from the IR of x (kFull); no-op for the CMA.
+  void replan(const double* x);
+  bool plan_covers(const double* x, double slack) const;
+
+  double carrier_au() const { return carrier_; }
+  const std::vector<std::size_t>& support() const { return support_; }
+  const IrParametrization& ir_parametrization() const { return *ir_; }
+  const ForwardAdjoint& forward() const { return fa_; }
+  MomentumModel momentum_model() const { return model_; }
+  long long evaluations() const { return evaluations_; }
+
+  /// Carrier (a.u.) of a problem: Ip + the energy bin nearest the centroid of the field-free
+  /// spectrum (else of the delay-averaged spectrum).
+  static double carrier_for(const RetrievalProblem& problem);
+
+ private:
+  void xuv_adjoint(const CVec& eps_bar, std::vector<cdouble>* spec_bar) const;
+
+  MomentumModel model_;
+  FullModelSettings settings_;
+  double carrier_;
+  std::size_t ne_, nd_, n_;
+  TimeGrid grid_;
+  ForwardAdjoint fa_;
+  std::unique_ptr<IrParametrization> ir_;
+  Eigen::MatrixXd measured_, weight_;
+  std::vector<double> spectrum_, spectrum_weight_col_, dip2_;  // S_j, wc_j, d(p_j)^2
+  std::vector<std::size_t> support_;                           // energy indices of free bins
+  std::vector<std::size_t> fft_slot_;                          // FFT index of each energy bin
+  std::size_t num_xuv_ = 0;
+  double xuv_scale_ = 1.0;
+  std::vector<double> ir_scale_;
+  double inv_elements_ = 1.0;
+  mutable long long evaluations_ = 0;
+};
+
+/// Factory of the registered engine "full-model" (model "full").
+std::unique_ptr<Engine> make_full_model_engine();
+/// The same least-squares engine under the CMA ("cma-least-squares", model "cma"): not
+/// registered; for comparisons of the two models on the same data.
+std::unique_ptr<Engine> make_cma_least_squares_engine();
+
+}  // namespace sw

@@ -1,0 +1,326 @@
+#include "retrieval/retrieve.h"
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <numeric>
+#include <sstream>
+
+#include "retrieval/error.h"
+#include "retrieval/pulse_metrics.h"
+#include "retrieval/units.h"
+
+namespace sw {
+
+std::string RetrieveOptions::validate() const {
+  std::ostringstream s;
+  if (engine.empty()) s << "engine is empty: expected auto or one of the registered engines";
+  else if (iterations < 0) s << "iterations = " << iterations << ": must be >= 0";
+  else if (bootstrap < 0) s << "bootstrap = " << bootstrap << ": must be >= 0";
+  else if (threads < 1) s << "threads = " << threads << ": must be >= 1";
+  else if (!(cma_phase_error_max_rad > 0)) s << "cma_phase_error_max_rad = " << cma_phase_error_max_rad << ": must be > 0";
+  else if (!(isolated_max_satellite_ratio > 0 && isolated_max_satellite_ratio < satellites_max_satellite_ratio &&
+             satellites_max_satellite_ratio <= 1))
+    s << "satellite thresholds " << isolated_max_satellite_ratio << ", " << satellites_max_satellite_ratio
+      << ": need 0 < isolated < satellites <= 1";
+  else if (!(max_seconds > 0)) s << "max_seconds = " << max_seconds << ": must be > 0";
+  else if (auto e = preprocess.validate(); !e.empty()) s << "preprocess." << e;
+  return s.str();
+}
+
+double envelope_fwhm(const std::vector<double>& x, double dt) {
+  const std::size_t n0 = x.size();
+  if (n0 < 8) return 0.0;
+  const std::size_t n = good_fft_size(2 * n0);
+  CVec a(n, 0.0), s(n);
+  for (std::size_t i = 0; i < n0; ++i) a[i] = x[i];
+  const Fft fft(n);
+  fft.freq_to_time(a, s);  // any sign: keep one half of the spectrum -> analytic signal
+  for (std::size_t k = 1; k < n; ++k) {
+    if (k < n / 2) s[k] *= 2.0;
+    else if (k > n / 2) s[k] = 0.0;
+  }
+  fft.time_to_freq(s, a);
+  std::vector<double> t(n0), env(n0);
+  for (std::size_t i = 0; i < n0; ++i) {
+    t[i] = static_cast<double>(i) * dt;
+    env[i] = std::norm(a[i]) / static_cast<double>(n) / static_cast<double>(n);
+  }
+  return fwhm(t, env);
+}
+
+PulseMetrics pulse_metrics(const Reconstruction& r, double ir_omega_au) {
+  PulseMetrics m;
+  const XuvField& x = r.xuv;
+  m.xuv.fwhm_as = units::au_to_as(intensity_fwhm(x));
+  m.xuv.transform_limited_fwhm_as = units::au_to_as(transform_limited_fwhm(x));
+  {
+    const std::vector<double> t = x.grid().times(), I = x.intensity();
+    m.xuv.rms_duration_as = units::au_to_as(rms_width(t, I));
+  }
+  const SpectralPhaseFit fit = fit_spectral_phase(x);
+  m.xuv.gdd_as2 = units::au_to_as2(fit.gdd);
+  m.xuv.tod_as3 = units::au_to_as3(fit.tod);
+  m.xuv.center_photon_energy_eV = units::au_to_eV(fit.center_photon_energy);
+  m.xuv.bandwidth_fwhm_eV = units::au_to_eV(fit.bandwidth_fwhm);
+  const BurstStructure b = burst_structure(x, units::period_au(ir_omega_au));
+  m.satellite_intensity_ratio = b.satellite_intensity_ratio;
+  m.main_burst_energy_fraction = b.main_burst_energy_fraction;
+  m.comparable_bursts = b.comparable_bursts;
+
+  const IrField& ir = r.ir;
+  if (ir.size() >= 8) {
+    m.ir.peak_vector_potential_au = ir.peak_vector_potential();
+    m.ir.peak_intensity_Wcm2 = units::peak_field_au_to_intensity(ir.peak_electric_field());
+    // Wavelength from the mean spacing of the zero crossings of A(t) within the envelope FWHM.
+    const auto& A = ir.vector_potential();
+    const double amax = ir.peak_vector_potential();
+    std::vector<double> zc;
+    for (std::size_t i = 1; i < A.size(); ++i)
+      if ((A[i - 1] < 0) != (A[i] < 0) &&
+          std::max(std::abs(A[i - 1]), std::abs(A[i])) > 0.0 * amax) {
+        const double f = A[i - 1] / (A[i - 1] - A[i]);
+        zc.push_back(ir.time(i - 1) + f * ir.dt());
+      }
+    // Keep crossings where the local amplitude is significant (within the field).
+    std::vector<double> good;
+    for (double t : zc) {
+      double loc = 0;
+      const std::size_t c = static_cast<std::size_t>(std::clamp((t - ir.t0()) / ir.dt(), 0.0, double(A.size() - 1)));
+      const std::size_t w = static_cast<std::size_t>(units::period_au(ir_omega_au) / ir.dt() / 2) + 1;
+      for (std::size_t k = c > w ? c - w : 0; k < std::min(A.size(), c + w); ++k) loc = std::max(loc, std::abs(A[k]));
+      if (loc > 0.3 * amax) good.push_back(t);
+    }
+    if (good.size() >= 3)
+      m.ir.wavelength_nm = units::omega_au_to_wavelength_nm(
+          units::kPi / ((good.back() - good.front()) / static_cast<double>(good.size() - 1)));
+    const std::vector<double> E = ir.electric_field();
+    const double f = envelope_fwhm(E, ir.dt());
+    if (f > 0) m.ir.fwhm_fs = units::au_to_fs(f);
+  }
+  return m;
+}
+
+void fix_time_origin(Reconstruction& r) {
+  const std::vector<double> t = r.xuv.grid().times(), I = r.xuv.intensity();
+  double num = 0, den = 0;
+  for (std::size_t i = 0; i < t.size(); ++i) {
+    num += t[i] * I[i];
+    den += I[i];
+  }
+  if (!(den > 0)) return;
+  const double sc = num / den;
+  if (std::abs(sc) < 1e-9) return;
+  // eps'(s) = eps(s + sc): multiply the spectrum by exp(-i w sc).
+  const TimeGrid& g = r.xuv.grid();
+  CVec spec = r.xuv.spectrum();
+  for (std::size_t j = 0; j < spec.size(); ++j) spec[j] *= std::polar(1.0, -g.omega_centered(j) * sc);
+  r.xuv = XuvField::from_spectrum(g, r.xuv.carrier_au(), spec);
+  if (r.ir.size() >= 5) r.ir = IrField(r.ir.t0() - sc, r.ir.dt(), r.ir.vector_potential());
+}
+
+double cma_phase_error(const IrField& ir, double p0, double lo, double hi, double t_first, double t_last) {
+  double mn = 1e300, mx = -1e300;
+  const int n = 2000;
+  for (int i = 0; i <= n; ++i) {
+    const double I1 = ir.at(t_first + (t_last - t_first) * i / n).I1;
+    mn = std::min(mn, I1);
+    mx = std::max(mx, I1);
+  }
+  const double dp = std::max(std::abs(units::momentum_au(hi) - p0), std::abs(p0 - units::momentum_au(lo)));
+  return dp * 0.5 * (mx - mn);
+}
+
+namespace {
+
+double stddev(const std::vector<double>& v) {
+  if (v.size() < 2) return 0.0;
+  const double m = std::accumulate(v.begin(), v.end(), 0.0) / static_cast<double>(v.size());
+  double s = 0;
+  for (double x : v) s += (x - m) * (x - m);
+  return std::sqrt(s / static_cast<double>(v.size() - 1));
+}
+
+VerdictSection verdict_from_retrieval(const PulseMetrics& m, const RetrieveOptions& o) {
+  VerdictSection v;
+  v.satellite_intensity_ratio = m.satellite_intensity_ratio;
+  v.main_burst_energy_fraction = m.main_burst_energy_fraction;
+  v.evidence.push_back({"retrieved_satellite_intensity_ratio", m.satellite_intensity_ratio});
+  v.evidence.push_back({"retrieved_main_burst_energy_fraction", m.main_burst_energy_fraction});
+  v.evidence.push_back({"retrieved_comparable_bursts", static_cast<long long>(m.comparable_bursts)});
+  std::ostringstream why;
+  if (m.comparable_bursts >= 3) {
+    v.pulse_class = PulseClass::kTrain;
+    why << m.comparable_bursts << " comparable bursts at T/2 spacing in the retrieved field";
+  } else if (m.satellite_intensity_ratio <= o.isolated_max_satellite_ratio) {
+    v.pulse_class = PulseClass::kIsolated;
+    why << "largest satellite " << 100 * m.satellite_intensity_ratio << " % <= "
+        << 100 * o.isolated_max_satellite_ratio << " % of the main burst";
+  } else if (m.satellite_intensity_ratio < o.satellites_max_satellite_ratio) {
+    v.pulse_class = PulseClass::kIsolatedWithSatellites;
+    why << "largest satellite " << 100 * m.satellite_intensity_ratio << " % of the main burst (above "
+        << 100 * o.isolated_max_satellite_ratio << " %, below " << 100 * o.satellites_max_satellite_ratio << " %)";
+  } else {
+    v.pulse_class = PulseClass::kUndetermined;
+    why << "satellite of " << 100 * m.satellite_intensity_ratio
+        << " % is comparable to the main burst but fewer than 3 comparable bursts were found";
+  }
+  v.reason = why.str();
+  return v;
+}
+
+}  // namespace
+
+RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const RetrieveProgress& progress) {
+  if (const std::string e = opt.validate(); !e.empty()) throw usage_error("retrieve: " + e);
+  const auto t_start = std::chrono::steady_clock::now();
+  RetrieveOutput out;
+  out.problem = preprocess(trace, opt.preprocess, &out.preprocess);
+  const RetrievalProblem& pr = out.problem;
+
+  auto run = [&](const std::string& name, EngineOptions eo) {
+    auto engine = make_engine(name);
+    std::vector<IterationCallback> cbs;
+    if (progress)
+      cbs.push_back([&, name](const IterationRecord& r) {
+        progress(name, r);
+        return CallbackResult::kContinue;
+      });
+    Reconstruction rec = run_engine(*engine, pr, eo, cbs);
+    fix_time_origin(rec);
+    return rec;
+  };
+  EngineOptions eo;
+  if (opt.iterations > 0) eo.max_iterations = opt.iterations;
+  eo.seed = opt.seed;
+  eo.threads = opt.threads;
+  eo.extra = opt.engine_extra;
+  eo.max_seconds = opt.max_seconds;
+
+  std::string final_engine = opt.engine;
+  if (opt.engine == "auto") {
+    out.chain.push_back(run("ptychographic", eo));
+    const Reconstruction& first = out.chain.back();
+    // Band edges: centroid +- FWHM/2 of the photoelectron spectrum.
+    const double Wc = units::eV_to_au(out.preprocess.centroid_energy_eV);
+    const double hw = 0.5 * units::eV_to_au(out.preprocess.bandwidth_fwhm_eV);
+    const double s_half = 0.5 * pr.grid.window();
+    out.cma_phase_error_rad = cma_phase_error(first.ir, pr.central_momentum_au, Wc - hw, Wc + hw,
+                                              pr.delay_au.front() - s_half, pr.delay_au.back() + s_half);
+    final_engine = "ptychographic";
+    if (out.cma_phase_error_rad > opt.cma_phase_error_max_rad) {
+      EngineOptions fo = eo;
+      fo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+      fo.initial_xuv = first.xuv;
+      fo.initial_ir = first.ir;
+      out.chain.push_back(run("full-model", fo));
+      final_engine = "full-model";
+    }
+  } else {
+    out.chain.push_back(run(opt.engine, eo));
+  }
+  out.reconstruction = out.chain.back();
+  const Reconstruction& rec = out.reconstruction;
+  const PulseMetrics m = pulse_metrics(rec, pr.ir_omega_au);
+
+  // Bootstrap.
+  std::vector<double> bf, bg, ba, bs;
+  for (int b = 0; b < opt.bootstrap; ++b) {
+    const Trace rep = poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
+    PreprocessSummary ps;
+    RetrievalProblem rp = preprocess(rep, opt.preprocess, &ps);
+    EngineOptions bo = eo;
+    bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
+    bo.max_iterations = std::max(20, (opt.iterations > 0 ? opt.iterations : eo.max_iterations) / 3);
+    bo.initial_xuv = rec.xuv;
+    bo.initial_ir = rec.ir;
+    auto engine = make_engine(final_engine);
+    std::vector<IterationCallback> cbs;
+    const std::string stage = "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
+    if (progress)
+      cbs.push_back([&](const IterationRecord& r) {
+        progress(stage, r);
+        return CallbackResult::kContinue;
+      });
+    Reconstruction br = run_engine(*engine, rp, bo, cbs);
+    fix_time_origin(br);
+    const PulseMetrics bm = pulse_metrics(br, pr.ir_omega_au);
+    bf.push_back(*bm.xuv.fwhm_as);
+    bg.push_back(*bm.xuv.gdd_as2);
+    ba.push_back(bm.ir.peak_vector_potential_au.value_or(0.0));
+    bs.push_back(bm.satellite_intensity_ratio);
+    out.bootstrap_samples.push_back({bf.back(), bg.back(), ba.back(), bs.back()});
+  }
+
+  AnalysisResult& res = out.result;
+  res.input = trace.meta.source;
+  res.analysis = "retrieve";
+  res.engine = opt.engine == "auto" ? final_engine : opt.engine;
+  res.xuv = m.xuv;
+  res.ir = m.ir;
+  res.ir->wavelength_nm = res.ir->wavelength_nm.value_or(trace.meta.ir_wavelength_nm);
+  VerdictSection v = verdict_from_retrieval(m, opt);
+  if (opt.bootstrap >= 2) {
+    res.xuv->fwhm_as_sigma = stddev(bf);
+    res.xuv->gdd_as2_sigma = stddev(bg);
+    res.ir->peak_vector_potential_au_sigma = stddev(ba);
+    v.satellite_intensity_ratio_sigma = stddev(bs);
+  } else {
+    res.warnings.push_back("no bootstrap replicas (--bootstrap < 2): no uncertainties reported");
+  }
+  res.verdict = v;
+  FitSection f;
+  f.trace_error = rec.trace_error;
+  long long its = 0;
+  double secs = 0;
+  for (const auto& c : out.chain) {
+    its += static_cast<long long>(c.history.size());
+    secs += c.seconds;
+  }
+  f.iterations = its;
+  f.converged = rec.converged();
+  f.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t_start).count();
+  f.noise_model = "poisson";
+  f.termination = std::string(to_string(rec.termination)) + ": " + rec.message;
+  res.fit = f;
+  for (const auto& w : out.preprocess.warnings) res.warnings.push_back(w);
+  if (!rec.converged()) res.warnings.push_back("the engine did not converge: " + rec.message);
+
+  auto P = [&](const std::string& k, auto v2) { res.extra.push_back({k, v2}); };
+  const PreprocessSummary& s = out.preprocess;
+  P("preprocess.background_counts", s.background_counts);
+  P("preprocess.background_source", s.background_source);
+  P("preprocess.signal_free_bins", static_cast<long long>(s.signal_free_bins));
+  P("preprocess.hot_pixels_replaced", static_cast<long long>(s.hot_pixels_replaced));
+  P("preprocess.energy_resampled", s.energy_resampled);
+  P("preprocess.energy_step_eV", s.energy_step_eV);
+  P("preprocess.energy_jacobian", std::string("counts per unit energy divided by p = sqrt(2W)"));
+  P("preprocess.centroid_energy_eV", s.centroid_energy_eV);
+  P("preprocess.central_momentum_au", s.central_momentum_au);
+  P("preprocess.bandwidth_fwhm_eV", s.bandwidth_fwhm_eV);
+  P("preprocess.bandwidth_to_energy_ratio", s.bandwidth_ratio);
+  P("preprocess.field_free_spectrum", s.field_free_source);
+  P("preprocess.grid_size", static_cast<long long>(s.grid_size));
+  P("preprocess.grid_dt_as", s.grid_dt_as);
+  P("preprocess.total_counts", s.total_counts);
+  P("preprocess.peak_counts", s.peak_counts);
+  P("fit.model", rec.model);
+  P("fit.noise_floor_trace_error", rec.noise_floor_trace_error);
+  P("fit.scale", rec.scale);
+  if (opt.engine == "auto") P("fit.cma_phase_error_rad", out.cma_phase_error_rad);
+  std::string chain;
+  for (const auto& c : out.chain) chain += (chain.empty() ? "" : " -> ") + c.engine;
+  P("fit.engine_chain", chain);
+  P("settings.engine", opt.engine);
+  P("settings.iterations", static_cast<long long>(opt.iterations));
+  P("settings.bootstrap", static_cast<long long>(opt.bootstrap));
+  P("settings.seed", static_cast<long long>(opt.seed));
+  P("settings.threads", static_cast<long long>(opt.threads));
+  P("settings.cma_phase_error_max_rad", opt.cma_phase_error_max_rad);
+  P("settings.isolated_max_satellite_ratio", opt.isolated_max_satellite_ratio);
+  P("settings.satellites_max_satellite_ratio", opt.satellites_max_satellite_ratio);
+  P("settings.dipole", std::string(to_string(opt.preprocess.dipole)));
+  return out;
+}
+
+}  // namespace sw

@@ -1,0 +1,93 @@
+#pragma once
+// The streaking-retrieval pipeline behind `streakwright retrieve` (and batch): preprocess ->
+// engine (or a chain of engines) -> time-origin fix -> pulse and field metrics -> verdict ->
+// Poisson-bootstrap uncertainties -> AnalysisResult. Library code: no files are written here.
+//
+// Engine "auto": run the fast CMA engine (ptychographic); then estimate the CMA's own error
+// from the retrieved field: the phase the CMA neglects is (p - p0) * (I1(t) - I1_mid) across
+// the photoelectron band, evaluated at the band's FWHM edges. When it exceeds
+// `cma_phase_error_max_rad` (default 0.3 rad, our choice, common-practice magnitude) the
+// full-model engine refines the CMA result (DESIGN.md: "switch to the full model when the
+// bandwidth is not small").
+//
+// Uncertainties: parametric bootstrap (Wang, Zeek, Trebino and Kvam, JOSA B 20, 2400 (2003),
+// with Poisson resampling of the counts in place of resampling data points): each replica is
+// a Poisson draw of the measured counts, preprocessed identically and re-retrieved warm-started
+// from the final reconstruction; sigma = sample standard deviation over replicas.
+
+#include <array>
+#include <functional>
+#include <string>
+#include <vector>
+
+#include "retrieval/engine.h"
+#include "retrieval/preprocess.h"
+#include "retrieval/result.h"
+#include "retrieval/trace.h"
+
+namespace sw {
+
+struct RetrieveOptions {
+  /// "auto", or a registered engine name (make_engine lists them).
+  std::string engine = "auto";
+  /// Iterations of the (first) engine; 0 = the engine's default (EngineOptions).
+  int iterations = 0;
+  /// Bootstrap replicas for the uncertainties (>= 0; 0 = no sigmas, with a warning).
+  int bootstrap = 8;
+  /// Seed of the random delay order and the bootstrap draws.
+  unsigned long long seed = 1;
+  /// Worker threads for the engines (>= 1).
+  int threads = 1;
+  /// auto: largest CMA phase error (rad) tolerated before the full model refines.
+  double cma_phase_error_max_rad = 0.3;
+  /// Verdict thresholds (DESIGN.md defaults, common practice, no published standard).
+  double isolated_max_satellite_ratio = 0.10;
+  double satellites_max_satellite_ratio = 0.70;
+  /// Wall-time budget for the whole analysis (s).
+  double max_seconds = 900.0;
+  PreprocessOptions preprocess;
+  std::vector<std::pair<std::string, std::string>> engine_extra;
+  std::string validate() const;
+};
+
+/// Progress report: stage ("ptychographic", "full-model", "bootstrap 3/8"), iteration record.
+using RetrieveProgress = std::function<void(const std::string& stage, const IterationRecord&)>;
+
+struct RetrieveOutput {
+  AnalysisResult result;
+  RetrievalProblem problem;
+  PreprocessSummary preprocess;
+  Reconstruction reconstruction;               ///< final (time origin fixed)
+  std::vector<Reconstruction> chain;           ///< every engine run, in order
+  double cma_phase_error_rad = 0.0;            ///< estimate used by auto
+  /// Bootstrap replicas' headline numbers (fwhm_as, gdd_as2, A0, satellite ratio).
+  std::vector<std::array<double, 4>> bootstrap_samples;
+};
+
+/// Runs the pipeline. Throws sw::Error for bad options (kUsage) or data (kInput); a
+/// non-converged engine still returns its best estimate with fit.converged = false.
+RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& options,
+                        const RetrieveProgress& progress = {});
+
+/// Headline metrics of a reconstruction (used by retrieve and by tests).
+struct PulseMetrics {
+  XuvSection xuv;
+  IrSection ir;
+  double satellite_intensity_ratio = 0.0;
+  double main_burst_energy_fraction = 1.0;
+  int comparable_bursts = 1;
+};
+PulseMetrics pulse_metrics(const Reconstruction& r, double ir_omega_au);
+
+/// Moves the XUV so its intensity centroid is at s = 0 and the IR with it (the common time
+/// shift ambiguity), so that tau = 0 means the XUV centroid coincides with IR time 0.
+void fix_time_origin(Reconstruction& r);
+
+/// The CMA's neglected phase (rad) for a retrieved IR field over a photoelectron band.
+double cma_phase_error(const IrField& ir, double p0_au, double band_lo_au, double band_hi_au,
+                       double t_first_au, double t_last_au);
+
+/// Envelope FWHM (a.u.) of a real field sampled uniformly (|analytic signal|^2).
+double envelope_fwhm(const std::vector<double>& samples, double dt_au);
+
+}  // namespace sw

@@ -1,0 +1,119 @@
+#include "synthetic/truth.h"
+
+#include <climits>
+#include <cmath>
+#include <sstream>
+
+#include "retrieval/units.h"
+#include "retrieval/xuv_builders.h"
+#include "synthetic/config_fields.h"
+
+namespace sw::synthetic {
+
+VerdictSection classify_bursts(const BurstStructure& b, const VerdictThresholds& t) {
+  VerdictSection v;
+  v.satellite_intensity_ratio = b.satellite_intensity_ratio;
+  v.main_burst_energy_fraction = b.main_burst_energy_fraction;
+  v.evidence.push_back({"comparable_bursts", static_cast<long long>(b.comparable_bursts)});
+  v.evidence.push_back({"satellite_intensity_ratio", b.satellite_intensity_ratio});
+  v.evidence.push_back({"main_burst_energy_fraction", b.main_burst_energy_fraction});
+  std::ostringstream r;
+  if (b.comparable_bursts >= t.train_min_bursts) {
+    v.pulse_class = PulseClass::kTrain;
+    r << b.comparable_bursts << " bursts spaced by half the driver period reach >= 50 % of the "
+      << "main burst's peak intensity (train threshold " << t.train_min_bursts << ")";
+  } else if (b.satellite_intensity_ratio <= t.isolated_max_satellite) {
+    v.pulse_class = PulseClass::kIsolated;
+    r << "largest satellite at about +-T/2 has " << 100 * b.satellite_intensity_ratio
+      << " % of the main burst's peak intensity (isolated threshold "
+      << 100 * t.isolated_max_satellite << " %)";
+  } else if (b.satellite_intensity_ratio < t.satellites_max_ratio) {
+    v.pulse_class = PulseClass::kIsolatedWithSatellites;
+    r << "largest satellite at about +-T/2 has " << 100 * b.satellite_intensity_ratio
+      << " % of the main burst's peak intensity (between " << 100 * t.isolated_max_satellite
+      << " % and " << 100 * t.satellites_max_ratio << " %)";
+  } else {
+    v.pulse_class = PulseClass::kUndetermined;
+    r << "a satellite reaches " << 100 * b.satellite_intensity_ratio
+      << " % of the main burst but fewer than " << t.train_min_bursts
+      << " bursts are comparable: neither one dominant burst nor a train";
+  }
+  v.reason = "true field of the generator: " + r.str();
+  return v;
+}
+
+double truth_driver_period_au(const ScanConfig& c) {
+  double nm = 800.0;
+  if (c.xuv.kind == XuvKind::kTrain) nm = c.xuv.train.driver_wavelength_nm;
+  else if (c.xuv.kind == XuvKind::kSatellites) nm = c.xuv.satellites.driver_wavelength_nm;
+  else if (c.ir.kind == IrKind::kGaussian) nm = c.ir.pulse.wavelength_nm;
+  return driver_period_au(nm);
+}
+
+AnalysisResult make_truth(const ScanConfig& c, const XuvField& f, const VolkovTable* ir) {
+  AnalysisResult r;
+  r.analysis = "simulate";
+  r.input = c.name;
+
+  XuvSection x;
+  x.fwhm_as = units::au_to_as(intensity_fwhm(f));
+  x.transform_limited_fwhm_as = units::au_to_as(transform_limited_fwhm(f));
+  x.rms_duration_as = units::au_to_as(rms_width(f.grid().times(), f.intensity()));
+  const SpectralPhaseFit fit = fit_spectral_phase(f, 0.05, 3);
+  x.gdd_as2 = units::au_to_as2(fit.gdd);
+  x.tod_as3 = units::au_to_as3(fit.tod);
+  x.center_photon_energy_eV = units::au_to_eV(fit.center_photon_energy);
+  x.bandwidth_fwhm_eV = units::au_to_eV(fit.bandwidth_fwhm);
+  r.xuv = x;
+
+  if (ir && c.ir.kind == IrKind::kGaussian) {
+    IrSection s;
+    s.peak_vector_potential_au = ir->peak_vector_potential();
+    s.peak_intensity_Wcm2 = c.ir.pulse.peak_intensity_Wcm2;
+    s.wavelength_nm = c.ir.pulse.wavelength_nm;
+    s.fwhm_fs = c.ir.pulse.fwhm_fs;
+    r.ir = s;
+  }
+
+  r.verdict = classify_bursts(burst_structure(f, truth_driver_period_au(c)));
+
+  if (c.xuv.kind == XuvKind::kTrain) {
+    RabbittSection rb;
+    // Attochirp = burst group-delay dispersion per photon energy: GDD / hbar, hbar in eV as
+    // (the units.h conversion; equals gdd_as2 / 658.2119569 with CODATA 2018 hbar).
+    rb.attochirp_as_per_eV = units::au_to_as_per_eV(units::as2_to_au(c.xuv.train.burst.gdd_as2));
+    const XuvField one = make_gaussian_xuv(f.grid(), c.xuv.train.burst);
+    rb.train_burst_fwhm_as = units::au_to_as(intensity_fwhm(one));
+    rb.transform_limited_burst_fwhm_as = units::au_to_as(transform_limited_fwhm(one));
+    r.rabbitt = rb;
+  }
+  return r;
+}
+
+std::vector<Param> generator_parameters(const ScanConfig& c, unsigned long long seed, double h,
+                                        std::size_t nodes, double window,
+                                        const std::vector<RowPerturbation>& rows) {
+  std::vector<Param> p = config_parameters(c, "generator.");
+  // The seed as an integer when it fits a signed 64-bit value, else as its decimal text.
+  if (seed <= static_cast<unsigned long long>(LLONG_MAX))
+    p.push_back({"generator.seed", static_cast<long long>(seed)});
+  else
+    p.push_back({"generator.seed", std::to_string(seed)});
+  p.push_back({"generator.numerics.quadrature_step_as", units::au_to_as(h)});
+  p.push_back({"generator.numerics.quadrature_nodes", static_cast<long long>(nodes)});
+  p.push_back({"generator.numerics.window_fs", units::au_to_fs(window)});
+  if (has_row_perturbations(c.noise)) {
+    std::vector<double> d, k, e;
+    for (const RowPerturbation& r : rows) {
+      d.push_back(r.delay_offset_fs);
+      k.push_back(r.intensity_factor);
+      e.push_back(r.cep_offset_rad);
+    }
+    p.push_back({"generator.realized.delay_offset_fs", d});
+    p.push_back({"generator.realized.ir_intensity_factor", k});
+    p.push_back({"generator.realized.cep_offset_rad", e});
+  }
+  return p;
+}
+
+}  // namespace sw::synthetic

@@ -1,0 +1,57 @@
+#pragma once
+// The truth record of a synthetic scan: an sw::AnalysisResult (analysis = "simulate") holding
+// what a perfect analysis of the scan should report, computed from the exact fields with the
+// pulse metrics of retrieval/pulse_metrics.h, plus every generator parameter.
+//
+//   xuv:     fwhm_as (main peak), transform_limited_fwhm_as, rms_duration_as, gdd_as2, tod_as3,
+//            center_photon_energy_eV, bandwidth_fwhm_eV (fit_spectral_phase, threshold 5 %,
+//            cubic);
+//   ir:      peak_vector_potential_au (max |A| of the nominal pulse), peak_intensity_Wcm2,
+//            wavelength_nm, fwhm_fs (absent without IR);
+//   verdict: class from burst_structure() with DESIGN.md's default thresholds (common
+//            practice): `train` for >= 3 comparable bursts (>= 50 % of the main peak), else
+//            `isolated` when the largest satellite at about +-T/2 is <= 10 % of the main
+//            burst, `isolated_with_satellites` below 70 %, `undetermined` above;
+//   rabbitt: for trains, attochirp_as_per_eV = burst GDD / hbar (hbar = 658.2119569 eV as,
+//            CODATA 2018), train_burst_fwhm_as and transform_limited_burst_fwhm_as of one burst;
+//   extra:   every ScanConfig field as "generator.<key>", "generator.seed", the quadrature
+//            grid ("generator.numerics.quadrature_step_as", ".quadrature_nodes",
+//            ".window_fs") and, when per-row effects are on, the realised per-row values
+//            ("generator.realized.delay_offset_fs", ".ir_intensity_factor", ".cep_offset_rad").
+
+#include <vector>
+
+#include "retrieval/pulse_metrics.h"
+#include "retrieval/result.h"
+#include "synthetic/fluctuations.h"
+#include "synthetic/scan_config.h"
+#include "synthetic/volkov_table.h"
+
+namespace sw::synthetic {
+
+/// Verdict thresholds (DESIGN.md defaults).
+struct VerdictThresholds {
+  double isolated_max_satellite = 0.10;   ///< isolated when the satellite ratio is <= this
+  double satellites_max_ratio = 0.70;     ///< isolated_with_satellites below this
+  int train_min_bursts = 3;               ///< train with at least this many comparable bursts
+};
+
+/// Verdict of a known burst structure.
+VerdictSection classify_bursts(const BurstStructure& b, const VerdictThresholds& t = {});
+
+/// Driver period (a.u.) used to look for satellites: the train's or satellites' driver, else
+/// the IR wavelength, else 800 nm.
+double truth_driver_period_au(const ScanConfig& config);
+
+/// Pulse sections of the truth record (xuv, ir, verdict, rabbitt) from the exact field
+/// `xuv_fine` (sampled finely enough for metrics) and the IR table (nullptr = no IR).
+AnalysisResult make_truth(const ScanConfig& config, const XuvField& xuv_fine,
+                          const VolkovTable* ir);
+
+/// The generator parameters: config fields, seed, numerics, realised per-row perturbations.
+std::vector<Param> generator_parameters(const ScanConfig& config, unsigned long long seed,
+                                        double quadrature_step_au, std::size_t quadrature_nodes,
+                                        double window_au,
+                                        const std::vector<RowPerturbation>& rows);
+
+}  // namespace sw::synthetic

@@ -1,0 +1,123 @@
+#pragma once
+// Synthetic streaking problems with known truth for the CMA engine tests: the trace is made
+// with sw::ForwardModel (kCentral, the same p0 the engines use), from a Gaussian XUV
+// (retrieval/xuv_builders.h) and a Gaussian IR (sw::make_gaussian_ir). Neon target
+// (Ip = 21.5645 eV, NIST ASD), 95 eV photons, 800 nm IR. Independent validation against the
+// direct-quadrature generator is done elsewhere (synthetic/).
+
+#include <algorithm>
+#include <cmath>
+#include <random>
+#include <vector>
+
+#include "retrieval/engine.h"
+#include "retrieval/forward_model.h"
+#include "retrieval/ir_field.h"
+#include "retrieval/pulse_metrics.h"
+#include "retrieval/units.h"
+#include "retrieval/xuv_builders.h"
+
+namespace sw::testing {
+
+struct CaseSpec {
+  double tl_fwhm_as = 150.0;
+  double gdd_as2 = 0.0;
+  double center_eV = 95.0;
+  double ir_intensity_Wcm2 = 5e12;
+  double ir_fwhm_fs = 5.0;
+  int delays = 121;
+  double delay_first_fs = -6.0;
+  double delay_last_fs = 6.0;
+  /// Uniform random offsets of +-jitter x (delay step) on each delay (0 = uniform axis).
+  double jitter = 0.0;
+  /// > 0: delay step forced to this multiple of the grid step (a matched grid for PCGPA),
+  /// centred on 0, `delays` of them.
+  int matched_ratio = 0;
+  std::size_t grid_size = 1024;
+  int energies = 400;
+  double energy_first_eV = 30.0;
+  double energy_step_eV = 0.25;
+  /// Poisson noise with this many counts at the trace's peak (0 = noise-free).
+  double peak_counts = 0.0;
+  unsigned long long seed = 7;
+};
+
+struct Case {
+  RetrievalProblem problem;
+  XuvField xuv;
+  IrField ir;
+};
+
+inline Case make_case(const CaseSpec& c) {
+  Case out;
+  RetrievalProblem& p = out.problem;
+  const double ip = units::eV_to_au(21.5645);  // Ne, NIST ASD
+  p.ionization_energy_au = ip;
+  p.grid = TimeGrid::for_energy_step(c.grid_size, units::eV_to_au(c.energy_step_eV));
+  const double dw = p.grid.dw();
+  for (int j = 0; j < c.energies; ++j)
+    p.energy_au.push_back(units::eV_to_au(c.energy_first_eV) + dw * j);
+  std::mt19937_64 rng(c.seed);
+  if (c.matched_ratio > 0) {
+    const double step = c.matched_ratio * p.grid.dt();
+    for (int i = 0; i < c.delays; ++i) p.delay_au.push_back((i - c.delays / 2) * step);
+  } else {
+    const double a = units::fs_to_au(c.delay_first_fs), b = units::fs_to_au(c.delay_last_fs);
+    const double step = (b - a) / (c.delays - 1);
+    std::uniform_real_distribution<double> u(-c.jitter, c.jitter);
+    for (int i = 0; i < c.delays; ++i) p.delay_au.push_back(a + step * i + step * u(rng));
+    std::sort(p.delay_au.begin(), p.delay_au.end());
+  }
+  GaussianXuvPulse xp;
+  xp.center_eV = c.center_eV;
+  xp.transform_limited_fwhm_as = c.tl_fwhm_as;
+  xp.gdd_as2 = c.gdd_as2;
+  out.xuv = make_gaussian_xuv(p.grid, xp);
+  GaussianIrPulse ip_pulse;
+  ip_pulse.peak_intensity_Wcm2 = c.ir_intensity_Wcm2;
+  ip_pulse.fwhm_fs = c.ir_fwhm_fs;
+  out.ir = make_gaussian_ir(ip_pulse, units::fs_to_au(-30), units::fs_to_au(30), units::as_to_au(20));
+  const double W0 = units::eV_to_au(c.center_eV) - ip;
+  p.central_momentum_au = std::sqrt(2 * W0);
+  p.ir_omega_au = units::wavelength_nm_to_omega_au(ip_pulse.wavelength_nm);
+  ForwardModelOptions fo;
+  fo.central_momentum_au = p.central_momentum_au;
+  fo.energy_jacobian = false;  // the problem holds |a|^2 (engine.h)
+  fo.threads = 1;
+  const ForwardModel fm(ip, DipoleModel(), fo);
+  Eigen::MatrixXd I = fm.trace(out.xuv, out.ir, p.delay_au, p.energy_au);
+  const IrField no_field(units::fs_to_au(-30), units::as_to_au(20),
+                         std::vector<double>(static_cast<std::size_t>(3001), 0.0));
+  Eigen::MatrixXd S = fm.trace(out.xuv, no_field, {0.0}, p.energy_au);
+  p.variance = Eigen::MatrixXd::Zero(I.rows(), I.cols());
+  if (c.peak_counts > 0) {
+    const double scale = c.peak_counts / I.maxCoeff();  // counts per |a|^2 unit
+    auto draw = [&](double mean) {
+      return static_cast<double>(std::poisson_distribution<long>(mean)(rng));
+    };
+    for (Eigen::Index i = 0; i < I.rows(); ++i)
+      for (Eigen::Index j = 0; j < I.cols(); ++j) {
+        const double n = draw(I(i, j) * scale);
+        I(i, j) = n / scale;
+        p.variance(i, j) = std::max(n, 1.0) / (scale * scale);
+      }
+    for (Eigen::Index j = 0; j < S.cols(); ++j) S(0, j) = draw(S(0, j) * scale) / scale;
+  }
+  p.intensity = I;
+  p.field_free_spectrum.assign(S.data(), S.data() + S.cols());
+  return out;
+}
+
+/// Headline numbers used by the checks.
+struct Metrics {
+  double fwhm_as = 0, gdd_as2 = 0, peak_A = 0;
+};
+inline Metrics metrics(const XuvField& x, const IrField& ir) {
+  Metrics m;
+  m.fwhm_as = units::au_to_as(intensity_fwhm(x));
+  m.gdd_as2 = units::au_to_as2(fit_spectral_phase(x).gdd);
+  m.peak_A = ir.peak_vector_potential();
+  return m;
+}
+
+}  // namespace sw::testing

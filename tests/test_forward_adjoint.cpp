@@ -1,0 +1,273 @@
+// ForwardAdjoint: forward values against sw::ForwardModel, hand-written adjoint against
+// central finite differences (the standard check of reverse-mode derivatives; e.g.
+// J. Nocedal and S. J. Wright, Numerical Optimization, 2nd ed. (2006), Sec. 8.1).
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <random>
+
+#include "retrieval/forward_adjoint.h"
+#include "retrieval/forward_model.h"
+#include "retrieval/units.h"
+
+using namespace sw;
+
+namespace {
+
+std::vector<double> axis(double first, double step, int n) {
+  std::vector<double> v(static_cast<std::size_t>(n));
+  for (int i = 0; i < n; ++i) v[static_cast<std::size_t>(i)] = first + step * i;
+  return v;
+}
+
+// A chirped ~100 as pulse at the given carrier with a small random ripple, so that no
+// symmetry hides a sign error in the adjoint.
+CVec test_envelope(const TimeGrid& g, unsigned seed) {
+  std::mt19937 rng(seed);
+  std::uniform_real_distribution<double> u(-1, 1);
+  CVec e(g.size());
+  const double tf = units::as_to_au(100);
+  for (std::size_t i = 0; i < g.size(); ++i) {
+    const double t = g.time(i) - units::as_to_au(20);
+    const double env = std::exp(-2 * std::log(2.) * t * t / (tf * tf));
+    e[i] = env * std::polar(1.0 + 0.1 * u(rng), 0.4 * t * t / (tf * tf) + 0.1 * u(rng));
+  }
+  return e;
+}
+
+struct Small {
+  double ip = units::eV_to_au(21.5645);  // neon, NIST ASD
+  TimeGrid grid = TimeGrid::for_energy_step(256, units::eV_to_au(0.5));
+  double carrier = units::eV_to_au(21.5645 + 108.0);  // on the energy axis below
+  std::vector<double> W = axis(units::eV_to_au(60.0), units::eV_to_au(0.5), 150);
+  std::vector<double> D = axis(units::fs_to_au(-2.0), units::fs_to_au(0.4), 11);
+  IrField ir;
+  Small() {
+    GaussianIrPulse P;
+    P.peak_intensity_Wcm2 = 1e13;
+    P.cep_rad = 0.3;
+    P.chirp_rad_per_fs2 = 0.02;
+    ir = make_gaussian_ir(P, units::fs_to_au(-9), units::fs_to_au(9), 4.0);
+  }
+};
+
+double max_rel_diff(const Eigen::MatrixXcd& a, const Eigen::MatrixXcd& b) {
+  return (a - b).cwiseAbs().maxCoeff() / b.cwiseAbs().maxCoeff();
+}
+
+// C(theta) of the scale-projected weighted least squares, mu eliminated.
+double projected_cost(const ScaledCostParts& p) { return p.c0 - p.c1 * p.c1 / (4 * p.c2); }
+
+}  // namespace
+
+TEST_CASE("forward values equal sw::ForwardModel (full and CMA)", "[adjoint]") {
+  // The engine must fit exactly the model the rest of the project uses (forward_model.h).
+  Small S;
+  const DipoleModel d(DipoleKind::kHydrogenic, S.ip, 2.9);  // Lewenstein et al., PRA 49, 2117 (1994)
+  const CVec eps = test_envelope(S.grid, 3);
+  ForwardModelOptions o;
+  o.momentum = MomentumModel::kFull;
+  const Eigen::MatrixXcd ref =
+      ForwardModel(S.ip, d, o).amplitude(XuvField(S.grid, S.carrier, eps), S.ir, S.D, S.W);
+  ForwardAdjoint fa(S.ip, d, S.grid, S.carrier, S.D, S.W, 2);
+  fa.plan_full(S.ir, o);
+  CHECK(fa.plan().blocks.size() >= 2);  // the broadband axis really needs several blocks
+  CHECK(max_rel_diff(fa.amplitude(eps, S.ir), ref) < 1e-10);
+
+  // A carrier off the energy bins: the carrier shift path of ForwardModel.
+  const double off = S.carrier + 0.3 * S.grid.dw();
+  const Eigen::MatrixXcd ref_off =
+      ForwardModel(S.ip, d, o).amplitude(XuvField(S.grid, off, eps), S.ir, S.D, S.W);
+  ForwardAdjoint fa_off(S.ip, d, S.grid, off, S.D, S.W, 1);
+  fa_off.plan_full(S.ir, o);
+  CHECK(max_rel_diff(fa_off.amplitude(eps, S.ir), ref_off) < 1e-10);
+
+  ForwardModelOptions c;
+  c.central_momentum_au = std::sqrt(2 * S.W[96]);
+  const Eigen::MatrixXcd ref_c =
+      ForwardModel(S.ip, d, c).amplitude(XuvField(S.grid, S.carrier, eps), S.ir, S.D, S.W);
+  fa.plan_central(c.central_momentum_au);
+  CHECK(max_rel_diff(fa.amplitude(eps, S.ir), ref_c) < 1e-10);
+}
+
+TEST_CASE("plan_covers detects an IR field the blocks were not sized for", "[adjoint]") {
+  Small S;
+  ForwardModelOptions o;
+  o.momentum = MomentumModel::kFull;
+  ForwardAdjoint fa(S.ip, DipoleModel(), S.grid, S.carrier, S.D, S.W, 1);
+  fa.plan_full(S.ir, o);
+  CHECK(fa.plan_covers(S.ir, 0.0));
+  std::vector<double> A = S.ir.vector_potential();
+  for (double& a : A) a *= 1.5;  // 50 % more streaking: I1 excursion grows by 1.5
+  CHECK_FALSE(fa.plan_covers(IrField(S.ir.t0(), S.ir.dt(), A), 0.2));
+}
+
+TEST_CASE("adjoint of IrField's sample maps matches finite differences", "[adjoint]") {
+  // The linear functional L(A) = sum_t [cA A(t) + c1 I1(t) + c2 I2(t)] over off-grid times,
+  // differentiated by ir_samples_adjoint through the Hermite weights, against central
+  // differences of IrField itself.
+  Small S;
+  std::mt19937 rng(7);
+  std::uniform_real_distribution<double> u(-1, 1);
+  std::vector<double> times;
+  for (int k = 0; k < 300; ++k) times.push_back(units::fs_to_au(10.0) * u(rng));
+  times.push_back(S.ir.t0() - 3.0);  // before the window: I1, I2 are the totals
+  const double cA = 0.7, c1 = -0.4, c2 = 1.3;
+  auto L = [&](const IrField& f) {
+    double s = 0;
+    for (double t : times) {
+      const VolkovIntegrals v = f.at(t);
+      s += cA * v.A + c1 * v.I1 + c2 * v.I2;
+    }
+    return s;
+  };
+  // Adjoint: the same Hermite bookkeeping as ForwardAdjoint, via a one-delay model is
+  // exercised below; here the stored-array adjoints are formed directly.
+  const std::size_t n = S.ir.size();
+  std::vector<double> bA(n, 0), bdA(n, 0), bI1(n, 0), bI2(n, 0);
+  const std::vector<double>& A = S.ir.vector_potential();
+  for (double t : times) {
+    const double x = (t - S.ir.t0()) / S.ir.dt();
+    if (x >= static_cast<double>(n - 1)) continue;  // after the window: all zero
+    if (x <= 0) {
+      bI1[0] += c1;
+      bI2[0] += c2;
+      continue;
+    }
+    const std::size_t i = static_cast<std::size_t>(x);
+    const double s = x - static_cast<double>(i), s2 = s * s, s3 = s2 * s, h = S.ir.dt();
+    const double h00 = 2 * s3 - 3 * s2 + 1, h10 = s3 - 2 * s2 + s, h01 = -2 * s3 + 3 * s2,
+                 h11 = s3 - s2;
+    bA[i] += h00 * cA - h10 * h * (c1 + 2 * A[i] * c2);
+    bA[i + 1] += h01 * cA - h11 * h * (c1 + 2 * A[i + 1] * c2);
+    bdA[i] += h10 * h * cA;
+    bdA[i + 1] += h11 * h * cA;
+    bI1[i] += h00 * c1;
+    bI1[i + 1] += h01 * c1;
+    bI2[i] += h00 * c2;
+    bI2[i + 1] += h01 * c2;
+  }
+  const std::vector<double> g = ir_samples_adjoint(S.ir, bA, bdA, bI1, bI2);
+  double worst = 0, gmax = 0;
+  for (std::size_t k : {std::size_t{0}, std::size_t{1}, std::size_t{2}, n / 3, n / 2, n / 2 + 1,
+                        2 * n / 3, n - 3, n - 2, n - 1}) {
+    const double h = 1e-5;
+    std::vector<double> Ap = A, Am = A;
+    Ap[k] += h;
+    Am[k] -= h;
+    const double fd =
+        (L(IrField(S.ir.t0(), S.ir.dt(), Ap)) - L(IrField(S.ir.t0(), S.ir.dt(), Am))) / (2 * h);
+    worst = std::max(worst, std::abs(fd - g[k]));
+    gmax = std::max(gmax, std::abs(fd));
+  }
+  CHECK(gmax > 0);
+  CHECK(worst / gmax < 1e-7);
+}
+
+TEST_CASE("gradient of the scale-projected cost matches central differences", "[adjoint]") {
+  // Variable projection (Golub and Pereyra, SIAM J. Numer. Anal. 10, 413 (1973)): the gradient
+  // of C(mu*(theta), theta) is mu*^2 grad c2 + mu* grad c1. Checked for XUV envelope samples
+  // (real and imaginary parts) and IR samples, full model, hydrogenic dipole.
+  Small S;
+  const DipoleModel d(DipoleKind::kHydrogenic, S.ip, 2.9);
+  const CVec eps = test_envelope(S.grid, 5);
+  ForwardModelOptions o;
+  o.momentum = MomentumModel::kFull;
+  ForwardAdjoint fa(S.ip, d, S.grid, S.carrier, S.D, S.W, 2);
+  fa.plan_full(S.ir, o);
+  // "Measured" data: the model of a different field pair, plus positive weights.
+  CVec eps2 = test_envelope(S.grid, 9);
+  std::vector<double> A2 = S.ir.vector_potential();
+  for (double& a : A2) a *= 0.9;
+  Eigen::MatrixXd M;
+  ScaledCostParts tmp;
+  const Eigen::MatrixXd w0 = Eigen::MatrixXd::Ones(static_cast<Eigen::Index>(S.D.size()),
+                                                   static_cast<Eigen::Index>(S.W.size()));
+  fa.scaled_cost(eps2, IrField(S.ir.t0(), S.ir.dt(), A2), w0, w0, false, &tmp, &M);
+  const Eigen::MatrixXd w = (M.array() + 0.05 * M.maxCoeff()).inverse().matrix();
+
+  ScaledCostParts P;
+  fa.scaled_cost(eps, S.ir, M, w, true, &P);
+  const double mu = -P.c1 / (2 * P.c2);
+  auto cost = [&](const CVec& e, const IrField& f) {
+    ScaledCostParts q;
+    fa.scaled_cost(e, f, M, w, false, &q);
+    return projected_cost(q);
+  };
+  const double C0 = projected_cost(P);
+  CHECK(C0 > 0);
+
+  // XUV samples around the pulse: dC/dRe = 2 Re eps_bar, dC/dIm = 2 Im eps_bar.
+  double worst = 0, gscale = 0;
+  const std::size_t mid = S.grid.size() / 2;
+  for (std::size_t s : {mid - 6, mid - 1, mid, mid + 2, mid + 5}) {
+    for (int part = 0; part < 2; ++part) {
+      const cdouble dir = part == 0 ? cdouble(1, 0) : cdouble(0, 1);
+      const double h = 1e-5 * std::abs(eps[mid]);
+      CVec ep = eps, em = eps;
+      ep[s] += h * dir;
+      em[s] -= h * dir;
+      const double fd = (cost(ep, S.ir) - cost(em, S.ir)) / (2 * h);
+      const cdouble eb = mu * mu * P.eps_bar2[s] + mu * P.eps_bar1[s];
+      const double an = part == 0 ? 2 * eb.real() : 2 * eb.imag();
+      worst = std::max(worst, std::abs(fd - an));
+      gscale = std::max(gscale, std::abs(fd));
+    }
+  }
+  CHECK(gscale > 0);
+  CHECK(worst / gscale < 1e-6);
+
+  // IR samples where the XUV probes the field (delays +- pulse) and near the window edges.
+  worst = 0;
+  gscale = 0;
+  const std::size_t n = S.ir.size();
+  const std::vector<double>& A = S.ir.vector_potential();
+  for (std::size_t k : {n / 2 - 40, n / 2 - 7, n / 2, n / 2 + 3, n / 2 + 33, std::size_t{3}}) {
+    const double h = 1e-6;
+    std::vector<double> Ap = A, Am = A;
+    Ap[k] += h;
+    Am[k] -= h;
+    const double fd = (cost(eps, IrField(S.ir.t0(), S.ir.dt(), Ap)) -
+                       cost(eps, IrField(S.ir.t0(), S.ir.dt(), Am))) /
+                      (2 * h);
+    const double an = mu * mu * P.A_bar2[k] + mu * P.A_bar1[k];
+    worst = std::max(worst, std::abs(fd - an));
+    gscale = std::max(gscale, std::abs(fd));
+  }
+  CHECK(gscale > 0);
+  CHECK(worst / gscale < 1e-6);
+}
+
+TEST_CASE("vjp is the transpose of the linearised model", "[adjoint]") {
+  // Dot-product test: 2 Re <a_bar, J dx> = 2 Re <eps_bar, d eps> + <A_bar, dA> with J dx from
+  // central differences of the forward model, CMA plan, constant dipole.
+  Small S;
+  const CVec eps = test_envelope(S.grid, 11);
+  ForwardAdjoint fa(S.ip, DipoleModel(), S.grid, S.carrier, S.D, S.W, 1);
+  fa.plan_central(std::sqrt(2 * S.W[96]));
+  std::mt19937 rng(1);
+  std::normal_distribution<double> nrm;
+  Eigen::MatrixXcd abar(static_cast<Eigen::Index>(S.D.size()), static_cast<Eigen::Index>(S.W.size()));
+  for (Eigen::Index i = 0; i < abar.size(); ++i) abar(i) = cdouble(nrm(rng), nrm(rng));
+  CVec eb;
+  std::vector<double> Ab;
+  fa.vjp(eps, S.ir, abar, &eb, &Ab);
+  CVec de(eps.size());
+  for (auto& x : de) x = cdouble(nrm(rng), nrm(rng)) * 1e-3;
+  std::vector<double> dA(S.ir.size());
+  for (auto& x : dA) x = 1e-3 * nrm(rng);
+  auto fwd = [&](double h) {
+    CVec e = eps;
+    for (std::size_t s = 0; s < e.size(); ++s) e[s] += h * de[s];
+    std::vector<double> A = S.ir.vector_potential();
+    for (std::size_t k = 0; k < A.size(); ++k) A[k] += h * dA[k];
+    return fa.amplitude(e, IrField(S.ir.t0(), S.ir.dt(), A));
+  };
+  const double h = 1e-3;
+  const Eigen::MatrixXcd Jdx = (fwd(h) - fwd(-h)) / (2 * h);
+  double lhs = 2 * (abar.conjugate().cwiseProduct(Jdx)).sum().real();
+  double rhs = 0;
+  for (std::size_t s = 0; s < eps.size(); ++s) rhs += 2 * (std::conj(eb[s]) * de[s]).real();
+  for (std::size_t k = 0; k < dA.size(); ++k) rhs += Ab[k] * dA[k];
+  CHECK(std::abs(lhs - rhs) / std::abs(lhs) < 1e-6);
+}

@@ -1,0 +1,241 @@
+// Pulse metrics (retrieval/pulse_metrics.h) on analytic profiles and on synthetic fields with
+// known truth.
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <string>
+#include <vector>
+
+#include "retrieval/error.h"
+#include "retrieval/pulse_metrics.h"
+#include "retrieval/units.h"
+#include "retrieval/xuv_builders.h"
+
+using namespace sw;
+
+namespace {
+
+std::vector<double> axis(double first, double step, int n) {
+  std::vector<double> x(static_cast<std::size_t>(n));
+  for (int i = 0; i < n; ++i) x[static_cast<std::size_t>(i)] = first + step * i;
+  return x;
+}
+
+template <class F>
+std::vector<double> sample(const std::vector<double>& x, F f) {
+  std::vector<double> y(x.size());
+  for (std::size_t i = 0; i < x.size(); ++i) y[i] = f(x[i]);
+  return y;
+}
+
+double gauss(double x, double mu, double sigma) {
+  return std::exp(-(x - mu) * (x - mu) / (2.0 * sigma * sigma));
+}
+
+// 1024 points with a 0.25 eV energy step: 16.5 fs window, 16 as time step.
+TimeGrid standard_grid() { return TimeGrid::for_energy_step(1024, units::eV_to_au(0.25)); }
+
+}  // namespace
+
+TEST_CASE("fwhm of analytic profiles", "[metrics]") {
+  const auto x = axis(-10.0, 0.01, 2001);
+  // Gaussian: FWHM = 2 sqrt(2 ln 2) sigma = 2.3548 sigma (standard result).
+  const double sigma = 1.3;
+  const auto g = sample(x, [&](double v) { return gauss(v, 0.4, sigma); });
+  CHECK(fwhm(x, g) == Approx(2.3548 * sigma).epsilon(1e-4));
+  CHECK(fwhm_of_main_peak(x, g) == Approx(2.3548 * sigma).epsilon(1e-4));
+  // sech^2(t/T): FWHM = 2 arccosh(sqrt 2) T = 1.7627 T (standard result, e.g. Diels and Rudolph,
+  // Ultrashort Laser Pulse Phenomena).
+  const double T = 0.7;
+  const auto s = sample(x, [&](double v) {
+    const double c = 1.0 / std::cosh((v + 1.0) / T);
+    return c * c;
+  });
+  CHECK(fwhm(x, s) == Approx(1.7627 * T).epsilon(1e-4));
+  // The width does not depend on the scale of the profile.
+  auto s3 = s;
+  for (auto& v : s3) v *= 3.7e5;
+  CHECK(fwhm(x, s3) == Approx(fwhm(x, s)).epsilon(1e-12));
+  // Coarse sampling (about 5 samples per FWHM): linear interpolation still within 2 %.
+  const auto xc = axis(-10.0, 0.6, 34);
+  const auto gc = sample(xc, [&](double v) { return gauss(v, 0.1, sigma); });
+  CHECK(fwhm(xc, gc) == Approx(2.3548 * sigma).epsilon(0.02));
+}
+
+TEST_CASE("fwhm is 0 when the half maximum is not crossed on both sides", "[metrics]") {
+  const auto x = axis(0.0, 0.01, 500);
+  // Peak at the left edge: no left crossing.
+  const auto y = sample(x, [](double v) { return gauss(v, 0.0, 1.0); });
+  CHECK(fwhm(x, y) == 0.0);
+  CHECK(fwhm_of_main_peak(x, y) == 0.0);
+  CHECK(fwhm(x, std::vector<double>(x.size(), 0.0)) == 0.0);
+  CHECK(fwhm(std::vector<double>{0.0, 1.0}, std::vector<double>{1.0, 0.0}) == 0.0);
+  CHECK_THROWS_AS(fwhm(x, std::vector<double>(3, 1.0)), Error);
+}
+
+TEST_CASE("outermost vs main-peak FWHM on a double peak", "[metrics]") {
+  // Main Gaussian peak at 0 (height 1) and a second one at 5 (height 0.7), same sigma.
+  // Outermost crossings (closed form): left of the main one at -sqrt(2 ln 2) sigma, right of the
+  // second one at 5 + sqrt(2 ln(0.7 / 0.5)) sigma.
+  const double sigma = 0.5;
+  const auto x = axis(-5.0, 0.005, 3001);
+  const auto y =
+      sample(x, [&](double v) { return gauss(v, 0.0, sigma) + 0.7 * gauss(v, 5.0, sigma); });
+  const double outer =
+      5.0 + std::sqrt(2.0 * std::log(2.0)) * sigma + std::sqrt(2.0 * std::log(0.7 / 0.5)) * sigma;
+  CHECK(fwhm(x, y) == Approx(outer).epsilon(1e-4));
+  CHECK(fwhm_of_main_peak(x, y) == Approx(2.3548 * sigma).epsilon(1e-4));
+}
+
+TEST_CASE("rms width of a Gaussian is sigma", "[metrics]") {
+  // <(x - <x>)^2> = sigma^2 for a Gaussian weight (definition).
+  const auto x = axis(-20.0, 0.01, 4001);
+  const auto y = sample(x, [](double v) { return gauss(v, 2.0, 1.7); });
+  CHECK(rms_width(x, y) == Approx(1.7).epsilon(1e-6));
+  // Two equal delta-like spikes at -+a: rms width a.
+  std::vector<double> xs{-3.0, -1.0, 0.0, 1.0, 3.0}, ys{0.0, 1.0, 0.0, 1.0, 0.0};
+  CHECK(rms_width(xs, ys) == Approx(1.0).epsilon(1e-12));
+  CHECK(rms_width(xs, std::vector<double>(5, 0.0)) == 0.0);
+}
+
+TEST_CASE("intensity FWHM of a field, also across the periodic window edge", "[metrics]") {
+  const TimeGrid grid = standard_grid();
+  GaussianXuvPulse p;
+  p.transform_limited_fwhm_as = 200.0;
+  const XuvField centred = make_gaussian_xuv(grid, p);
+  // Builder definition: intensity FWHM of the flat-phase pulse = transform_limited_fwhm_as.
+  CHECK(units::au_to_as(intensity_fwhm(centred)) == Approx(200.0).epsilon(5e-3));
+  // The same pulse 40 as before the last sample straddles the (periodic) window edge.
+  p.center_time_as = units::au_to_as(grid.time(grid.size() - 1)) - 40.0;
+  const XuvField edge = make_gaussian_xuv(grid, p);
+  CHECK(intensity_fwhm(edge) == Approx(intensity_fwhm(centred)).epsilon(5e-3));
+}
+
+TEST_CASE("transform-limited FWHM of a chirped pulse equals the flat-phase FWHM", "[metrics]") {
+  const TimeGrid grid = standard_grid();
+  GaussianXuvPulse p;
+  p.transform_limited_fwhm_as = 150.0;
+  p.gdd_as2 = 12000.0;
+  p.tod_as3 = 4.0e5;
+  p.center_time_as = 700.0;
+  const XuvField chirped = make_gaussian_xuv(grid, p);
+  GaussianXuvPulse flat;
+  flat.transform_limited_fwhm_as = 150.0;
+  const double flat_fwhm = intensity_fwhm(make_gaussian_xuv(grid, flat));
+  // Chirp lengthens the pulse (Diels and Rudolph); its transform limit is the flat-phase pulse.
+  CHECK(intensity_fwhm(chirped) > 1.5 * flat_fwhm);
+  CHECK(transform_limited_fwhm(chirped) == Approx(flat_fwhm).epsilon(1e-6));
+  CHECK(units::au_to_as(transform_limited_fwhm(chirped)) == Approx(150.0).epsilon(5e-3));
+  // transform_limited keeps |E~| and centres the pulse at t = 0.
+  const XuvField tl = transform_limited(chirped);
+  const CVec a = chirped.spectrum(), b = tl.spectrum();
+  double maxdiff = 0.0, maxamp = 0.0;
+  for (std::size_t j = 0; j < a.size(); ++j) {
+    maxdiff = std::max(maxdiff, std::abs(std::abs(a[j]) - std::abs(b[j])));
+    maxamp = std::max(maxamp, std::abs(a[j]));
+  }
+  CHECK(maxdiff < 1e-10 * maxamp);
+  CHECK(std::abs(burst_structure(tl, driver_period_au(800.0)).main_peak_time) < grid.dt() * 0.05);
+}
+
+TEST_CASE("fit_spectral_phase recovers delay, GDD and TOD", "[metrics]") {
+  const TimeGrid grid = standard_grid();
+  struct Case {
+    double gd_as, gdd_as2, tod_as3;
+  };
+  // Includes a 3 fs group delay, whose phase wraps many times across the spectrum (tests the
+  // unwrapping), and both chirp signs.
+  for (Case c : {Case{0.0, 0.0, 0.0}, Case{250.0, 8000.0, 0.0}, Case{-400.0, -6000.0, 3.0e5},
+                 Case{3000.0, 15000.0, -6.0e5}}) {
+    GaussianXuvPulse p;
+    p.center_eV = 90.0;
+    p.transform_limited_fwhm_as = 120.0;
+    p.center_time_as = c.gd_as;
+    p.gdd_as2 = c.gdd_as2;
+    p.tod_as3 = c.tod_as3;
+    const XuvField f = make_gaussian_xuv(grid, p);
+    const SpectralPhaseFit fit = fit_spectral_phase(f, 1e-3, 3);
+    INFO("gd " << c.gd_as << " as, gdd " << c.gdd_as2 << " as^2, tod " << c.tod_as3 << " as^3");
+    // Truth given to the builder (phase convention of xuv_builders.h).
+    CHECK(units::au_to_eV(fit.center_photon_energy) == Approx(90.0).margin(1e-6));
+    CHECK(units::au_to_as(fit.group_delay) == Approx(c.gd_as).margin(1e-3));
+    CHECK(units::au_to_as2(fit.gdd) == Approx(c.gdd_as2).margin(1e-2));
+    CHECK(units::au_to_as3(fit.tod) == Approx(c.tod_as3).margin(1.0));
+    CHECK(fit.rms_residual_rad < 1e-8);
+    // Spectral intensity FWHM of the Gaussian: 4 ln 2 / tau_TL (time-bandwidth product 0.441).
+    CHECK(fit.bandwidth_fwhm == Approx(4.0 * std::log(2.0) / units::as_to_au(120.0)).epsilon(2e-3));
+    CHECK(fit.bins_used > 20);
+  }
+}
+
+TEST_CASE("fit_spectral_phase argument checks", "[metrics]") {
+  const XuvField f = make_gaussian_xuv(standard_grid(), GaussianXuvPulse{});
+  CHECK_THROWS_AS(fit_spectral_phase(f, 0.0), Error);
+  CHECK_THROWS_AS(fit_spectral_phase(f, 1.0), Error);
+  CHECK_THROWS_AS(fit_spectral_phase(f, 0.05, 0), Error);
+  try {
+    fit_spectral_phase(f, 0.05, 9);
+    FAIL("order 9 accepted");
+  } catch (const Error& e) {
+    CHECK(e.kind() == ErrorKind::kUsage);
+    CHECK(std::string(e.what()).find("order = 9") != std::string::npos);
+  }
+  // Order 2 leaves tod at 0.
+  CHECK(fit_spectral_phase(f, 0.05, 2).tod == 0.0);
+}
+
+TEST_CASE("burst_structure of an isolated pulse", "[metrics]") {
+  const TimeGrid grid = standard_grid();
+  GaussianXuvPulse p;
+  p.center_time_as = -320.0;
+  const BurstStructure b = burst_structure(make_gaussian_xuv(grid, p), driver_period_au(800.0));
+  CHECK(units::au_to_as(b.main_peak_time) == Approx(-320.0).margin(0.5));
+  CHECK(b.satellite_intensity_ratio < 1e-6);
+  CHECK(b.main_burst_energy_fraction > 0.999);
+  CHECK(b.comparable_bursts == 1);
+  CHECK_THROWS_AS(burst_structure(make_gaussian_xuv(grid, p), 0.0), Error);
+}
+
+TEST_CASE("burst_structure recovers satellite ratios", "[metrics]") {
+  const TimeGrid grid = standard_grid();
+  struct Case {
+    double before, after;
+  };
+  for (Case c : {Case{0.05, 0.0}, Case{0.0, 0.12}, Case{0.02, 0.3}, Case{0.6, 0.4}}) {
+    XuvWithSatellites s;
+    s.burst.transform_limited_fwhm_as = 180.0;
+    s.burst.gdd_as2 = 3000.0;
+    s.burst.center_time_as = 150.0;
+    s.satellite_intensity_ratio_before = c.before;
+    s.satellite_intensity_ratio_after = c.after;
+    const BurstStructure b =
+        burst_structure(make_xuv_with_satellites(grid, s), driver_period_au(800.0));
+    INFO("before " << c.before << ", after " << c.after);
+    // Truth given to the builder; satellites are copies of the main burst, so the energy ratio
+    // equals the peak-intensity ratio.
+    CHECK(b.satellite_intensity_ratio == Approx(std::max(c.before, c.after)).epsilon(0.02));
+    CHECK(b.main_burst_energy_fraction == Approx(1.0 / (1.0 + c.before + c.after)).epsilon(0.01));
+    CHECK(units::au_to_as(b.main_peak_time) == Approx(150.0).margin(2.0));
+    CHECK(b.comparable_bursts == 1 + (c.before >= 0.5) + (c.after >= 0.5));
+  }
+}
+
+TEST_CASE("burst_structure of a train counts comparable bursts", "[metrics]") {
+  const TimeGrid grid = standard_grid();
+  XuvTrain t;
+  t.burst.transform_limited_fwhm_as = 200.0;
+  t.train_fwhm_fs = 5.0;
+  const double T = driver_period_au(800.0);
+  const BurstStructure b = burst_structure(make_xuv_train(grid, t), T);
+  // Gaussian train envelope exp(-4 ln 2 t^2 / F^2): bursts at k T/2 keep >= 50 % of the central
+  // intensity while |k T/2| <= F/2, i.e. |k| <= F / T (definition of the FWHM).
+  const int expected = 1 + 2 * static_cast<int>(std::floor(units::fs_to_au(5.0) / T));
+  CHECK(b.comparable_bursts == expected);
+  CHECK(b.comparable_bursts >= 3);
+  CHECK(std::abs(b.main_peak_time) < 0.5 * grid.dt());
+  // Neighbours at -+T/2 with intensity exp(-4 ln 2 (T/2)^2 / F^2) relative to the central burst.
+  const double half = 0.5 * T, F = units::fs_to_au(5.0);
+  CHECK(b.satellite_intensity_ratio ==
+        Approx(std::exp(-4.0 * std::log(2.0) * half * half / (F * F))).epsilon(0.02));
+  CHECK(b.main_burst_energy_fraction < 0.5);
+}

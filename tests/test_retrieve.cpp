@@ -1,0 +1,121 @@
+// The retrieval pipeline end to end on scans from the direct-quadrature generator (synthetic/),
+// an independent code path from the engines' FFT model (DESIGN.md "no inverse crime").
+// Tolerances are those of the streaking-retrieval issue: FWHM and A0 within 5 % at >= 100 peak
+// counts; chirp sign right for both signs; the broadband case right only through the full model.
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <cstdio>
+
+#include "retrieval/retrieve.h"
+#include "retrieval/units.h"
+#include "synthetic/generator.h"
+#include "synthetic/presets.h"
+
+using namespace sw;
+
+namespace {
+
+struct Case {
+  synthetic::SyntheticScan scan;
+  RetrieveOutput out;
+};
+
+Case run_preset(const std::string& name, const std::string& engine, unsigned long long seed = 11,
+                int bootstrap = 0) {
+  Case c;
+  const synthetic::ScanConfig cfg = synthetic::find_preset(name).config;
+  c.scan = synthetic::generate_scan(cfg, seed);
+  RetrieveOptions o;
+  o.engine = engine;
+  o.bootstrap = bootstrap;
+  o.threads = 2;
+  c.out = retrieve(c.scan.trace, o);
+  const auto& x = *c.out.result.xuv;
+  std::printf("%-18s %-14s FWHM %.1f as (truth %.1f), GDD %.0f as^2 (truth %.0f), A0 %.4f (truth %.4f), G %.4f (floor %.4f), %s\n",
+              name.c_str(), c.out.result.engine.c_str(), *x.fwhm_as, *c.scan.truth.xuv->fwhm_as, *x.gdd_as2,
+              c.scan.truth.xuv->gdd_as2.value_or(0), c.out.result.ir->peak_vector_potential_au.value_or(0),
+              *c.scan.truth.ir->peak_vector_potential_au, c.out.reconstruction.trace_error,
+              c.out.reconstruction.noise_floor_trace_error, c.out.reconstruction.message.c_str());
+  return c;
+}
+
+double rel_err(double a, double b) { return std::abs(a - b) / std::abs(b); }
+
+}  // namespace
+
+TEST_CASE("transform-limited neon pulse: FWHM and A0 within 5 %", "[retrieve]") {
+  for (const char* engine : {"ptychographic", "projections"}) {
+    const Case c = run_preset("neon-150as", engine);
+    CHECK(rel_err(*c.out.result.xuv->fwhm_as, *c.scan.truth.xuv->fwhm_as) < 0.05);
+    CHECK(rel_err(*c.out.result.ir->peak_vector_potential_au, *c.scan.truth.ir->peak_vector_potential_au) < 0.05);
+    CHECK(c.out.result.verdict->pulse_class == PulseClass::kIsolated);
+  }
+}
+
+TEST_CASE("chirp sign comes out right for both signs", "[retrieve]") {
+  // DESIGN.md pitfall "sign conventions travel together": the retrieved GDD must have the sign
+  // of the truth; duration within 5 %.
+  for (const char* name : {"neon-chirped-pos", "neon-chirped-neg"}) {
+    const Case c = run_preset(name, "ptychographic");
+    const double g = *c.out.result.xuv->gdd_as2, gt = *c.scan.truth.xuv->gdd_as2;
+    CHECK(g * gt > 0);
+    CHECK(rel_err(g, gt) < 0.15);
+    CHECK(rel_err(*c.out.result.xuv->fwhm_as, *c.scan.truth.xuv->fwhm_as) < 0.05);
+  }
+}
+
+TEST_CASE("broadband pulse: the full model is right where the CMA is not", "[retrieve][slow]") {
+  // Bandwidth/energy ~0.25: the CMA neglects (p - p0)(I1 - I1_mid), ~1 rad here.
+  const Case cma = run_preset("helium-70as", "ptychographic");
+  const Case au = run_preset("helium-70as", "auto");
+  const double truth = *au.scan.truth.xuv->fwhm_as;
+  const double e_cma = rel_err(*cma.out.result.xuv->fwhm_as, truth);
+  const double e_full = rel_err(*au.out.result.xuv->fwhm_as, truth);
+  std::printf("broadband: CMA FWHM error %.1f %%, auto (%s) %.1f %%, CMA phase error %.2f rad\n", 100 * e_cma,
+              au.out.result.engine.c_str(), 100 * e_full, au.out.cma_phase_error_rad);
+  CHECK(au.out.result.engine == "full-model");
+  CHECK(e_full < 0.05);
+  CHECK(rel_err(*au.out.result.ir->peak_vector_potential_au, *au.scan.truth.ir->peak_vector_potential_au) < 0.05);
+  CHECK(au.out.reconstruction.trace_error < cma.out.reconstruction.trace_error);
+}
+
+TEST_CASE("satellites are seen and classified", "[retrieve]") {
+  const Case c = run_preset("neon-satellites", "ptychographic");
+  const double r = *c.out.result.verdict->satellite_intensity_ratio;
+  const double rt = *c.scan.truth.verdict->satellite_intensity_ratio;
+  CHECK(std::abs(r - rt) < 0.04);
+  CHECK(c.out.result.verdict->pulse_class == PulseClass::kIsolatedWithSatellites);
+}
+
+TEST_CASE("bootstrap sigmas cover the truth", "[retrieve][slow]") {
+  // Wang, Zeek, Trebino and Kvam, JOSA B 20, 2400 (2003): bootstrap error bars; a calibrated
+  // 1-sigma interval holds the truth in ~68 % of cases, 3 sigma in ~99.7 % (normal statistics).
+  synthetic::ScanConfig cfg = synthetic::find_preset("neon-150as").config;
+  cfg.geometry.delay_fs = {-5.0, 0.2, 51};
+  cfg.geometry.energy_eV = {50.0, 0.25, 200};
+  cfg.noise.peak_counts = 100.0;
+  int in1 = 0, in3 = 0, n = 0;
+  for (unsigned long long seed = 1; seed <= 10; ++seed) {
+    const auto scan = synthetic::generate_scan(cfg, seed);
+    RetrieveOptions o;
+    o.engine = "ptychographic";
+    o.bootstrap = 8;
+    o.seed = seed;
+    o.threads = 2;
+    const RetrieveOutput out = retrieve(scan.trace, o);
+    const double f = *out.result.xuv->fwhm_as, s = *out.result.xuv->fwhm_as_sigma;
+    const double a = *out.result.ir->peak_vector_potential_au, sa = *out.result.ir->peak_vector_potential_au_sigma;
+    const double ft = *scan.truth.xuv->fwhm_as, at = *scan.truth.ir->peak_vector_potential_au;
+    std::printf("seed %llu: FWHM %.1f +- %.1f (truth %.1f), A0 %.4f +- %.4f (truth %.4f)\n", seed, f, s, ft, a, sa, at);
+    for (auto [v, sg, t] : {std::tuple{f, s, ft}, std::tuple{a, sa, at}}) {
+      ++n;
+      in1 += std::abs(v - t) <= sg;
+      in3 += std::abs(v - t) <= 3 * sg;
+    }
+  }
+  std::printf("coverage: %d/%d within 1 sigma, %d/%d within 3 sigma\n", in1, n, in3, n);
+  CHECK(in3 >= n - 1);               // "nearly every case"
+  CHECK(in1 >= n / 2 - 2);           // ~68 % expected; binomial spread over 20 cases
+  CHECK(in1 <= n - 1);               // sigmas not absurdly inflated
+}
