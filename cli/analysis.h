@@ -7,10 +7,13 @@
 #include <string>
 #include <vector>
 
+#include "retrieval/classifier.h"
 #include "retrieval/error.h"
+#include "retrieval/rabbitt.h"
 #include "retrieval/result.h"
 #include "retrieval/retrieve.h"
 #include "retrieval/trace.h"
+#include "retrieval/train_burst.h"
 
 namespace sw::cli {
 
@@ -40,6 +43,28 @@ struct ScanJob {
   /// Called with (stage, message) during long work; may be empty.
   std::function<void(const std::string&, const std::string&)> progress;
   std::vector<Param> extra_provenance; ///< e.g. batch options, appended to the result
+  // --- rabbitt and classify (cli/cmd_rabbitt.cpp, cli/cmd_classify.cpp) ---
+  /// rabbitt: sidecar of a field-free (XUV-only) scan whose spectrum gives the harmonic
+  /// amplitudes of the average burst; "" = use the delay-integrated RABBITT spectrum.
+  std::string xuv_only_sidecar;
+  /// rabbitt: analysis options; atomic.mode is set from atomic_correction above.
+  RabbittOptions rabbitt;
+  /// rabbitt: average-burst options. Default cross section: the energy-density Jacobian p
+  /// alone (sfa_dipole with a constant dipole), the same division by p as retrieve's
+  /// preprocessing.
+  TrainBurstOptions train_burst = [] {
+    TrainBurstOptions o;
+    o.cross_section = CrossSectionModel::kSfaDipole;
+    o.dipole = DipoleKind::kConstant;
+    return o;
+  }();
+  /// Verdict thresholds of classify and rabbitt. The two satellite-ratio thresholds are taken
+  /// from retrieve.isolated_max_satellite_ratio / satellites_max_satellite_ratio (one place
+  /// for every analysis and for batch); the fields of the same meaning here are ignored.
+  ClassifierOptions classifier;
+  /// classify: run the streaking retrieval first (bootstrap 0) and use its reconstruction as
+  /// evidence.
+  bool classify_retrieve = false;
 };
 
 struct ScanOutcome {

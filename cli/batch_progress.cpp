@@ -1,5 +1,8 @@
 #include "cli/batch_progress.h"
 
+#include <sys/ioctl.h>
+#include <unistd.h>
+
 #include <cstdio>
 
 #include "cli/progress.h"
@@ -31,8 +34,10 @@ BatchProgress::~BatchProgress() { done(); }
 std::string BatchProgress::bar_locked() const {
   const int width = 24;
   const int filled = total_ ? static_cast<int>(width * done_ / total_) : width;
-  std::string bar = "[" + std::string(static_cast<std::size_t>(filled), '#') +
-                    std::string(static_cast<std::size_t>(width - filled), '.') + "]";
+  std::string bar(1, '[');
+  bar.append(static_cast<std::size_t>(filled), '#');
+  bar.append(static_cast<std::size_t>(width - filled), '.');
+  bar += ']';
   const double elapsed =
       std::chrono::duration<double>(std::chrono::steady_clock::now() - start_).count();
   const double rate = elapsed > 0 ? static_cast<double>(analysed_) / elapsed : 0.0;
@@ -55,7 +60,11 @@ void BatchProgress::draw_locked(bool force) {
   const auto now = std::chrono::steady_clock::now();
   if (!force && std::chrono::duration<double>(now - last_draw_).count() < 0.25) return;
   last_draw_ = now;
-  std::fprintf(stderr, "\r\033[K%s", bar_locked().c_str());
+  std::string line = bar_locked();
+  struct winsize ws {};
+  if (ioctl(STDERR_FILENO, TIOCGWINSZ, &ws) == 0 && ws.ws_col > 10 && line.size() >= ws.ws_col)
+    line.resize(ws.ws_col - 1);  // a wrapped line could not be redrawn in place
+  std::fprintf(stderr, "\r\033[K%s", line.c_str());
   std::fflush(stderr);
   open_line_ = true;
 }

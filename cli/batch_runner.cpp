@@ -8,6 +8,7 @@
 
 #include <atomic>
 #include <cerrno>
+#include <charconv>
 #include <condition_variable>
 #include <cstring>
 #include <filesystem>
@@ -76,11 +77,11 @@ std::string hex64(std::uint64_t h) {
   return buf;
 }
 
+/// Shortest text that reads back as the same double.
 std::string num(double v) {
-  std::ostringstream s;
-  s.precision(17);
-  s << v;
-  return s.str();
+  char buf[32];
+  const auto r = std::to_chars(buf, buf + sizeof buf, v);
+  return std::string(buf, r.ptr);
 }
 
 /// A scan name as one path component: '%' and '/' escaped.

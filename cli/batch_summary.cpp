@@ -113,15 +113,23 @@ void trend_figure(const std::vector<SummaryRow>& rows, const HeadlineQuantity& q
     }
     times.push_back(*t);
   }
-  if (by_time) t_first = *std::min_element(times.begin(), times.end());
+  double unit_s = 3600.0;
+  std::string unit = "h";
+  if (by_time) {
+    t_first = *std::min_element(times.begin(), times.end());
+    if (*std::max_element(times.begin(), times.end()) - t_first > 72 * 3600.0) {
+      unit_s = 86400.0;
+      unit = "days";
+    }
+  }
   Series s;
   s.markers = true;
-  s.line = idx.size() > 1;
+  s.line = false;  // scans are separate measurements: points with error bars, no curve
   s.label = "";
   bool any_sigma = false;
   for (std::size_t k = 0; k < idx.size(); ++k) {
     const SummaryRow& r = rows[idx[k]];
-    s.x.push_back(by_time ? (times[k] - t_first) / 3600.0 : static_cast<double>(idx[k] + 1));
+    s.x.push_back(by_time ? (times[k] - t_first) / unit_s : static_cast<double>(idx[k] + 1));
     s.y.push_back(*(r.*q.value));
     const double sig = q.sigma && (r.*q.sigma) ? *(r.*q.sigma) : 0.0;
     any_sigma = any_sigma || sig > 0;
@@ -143,7 +151,7 @@ void trend_figure(const std::vector<SummaryRow>& rows, const HeadlineQuantity& q
   }
   LinePlot p;
   p.title = title + (idx.empty() ? " (no scan has this value)" : "");
-  p.x_label = by_time ? "acquisition time (h after " + utc_text(t_first) + ")"
+  p.x_label = by_time ? "acquisition time (" + unit + " after " + utc_text(t_first) + ")"
                       : "scan number (summary order)";
   p.y_label = q.label;
   p.series.push_back(s);
@@ -236,7 +244,10 @@ std::string summary_csv(const std::vector<SummaryRow>& rows) {
     cells.push_back(r.converged ? (*r.converged ? "true" : "false") : "");
     cells.push_back(r.reused ? "true" : "false");
     for (const std::string* s : {&r.acquired, &r.input, &r.input_hash, &r.report}) cells.push_back(*s);
-    for (std::size_t k = 0; k < cells.size(); ++k) out += (k ? "," : "") + csv_cell(cells[k]);
+    for (std::size_t k = 0; k < cells.size(); ++k) {
+      if (k) out += ',';
+      out += csv_cell(cells[k]);
+    }
     out += "\n";
   }
   return out;

@@ -66,6 +66,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   const RetrievalProblem& pr = out.problem;
   AnalysisResult res = out.result;
   for (const Param& p : provenance) res.extra.push_back(p);
+  for (const auto& [k, v] : trace.meta.extra_json) res.extra_json["sidecar." + k] = v;
 
   // XUV about its centre photon energy (so the temporal phase shows the chirp, not the carrier).
   const double wc = res.xuv && res.xuv->center_photon_energy_eV ? units::eV_to_au(*res.xuv->center_photon_energy_eV)

@@ -16,17 +16,14 @@ constexpr double kHalfLog2Pi = 0.91893853320467274178;  // ln(2 pi) / 2
 
 // Lanczos coefficients for g = 7, n = 9.
 constexpr double kLanczosG = 7.0;
-constexpr double kLanczos[9] = {0.99999999999980993,     676.5203681218851,
-                                -1259.1392167224028,     771.32342877765313,
-                                -176.61502916214059,     12.507343278686905,
-                                -0.13857109526572012,    9.9843695780195716e-6,
-                                1.5056327351493116e-7};
+constexpr double kLanczos[9] = {0.99999999999980993,  676.5203681218851,     -1259.1392167224028,
+                                771.32342877765313,   -176.61502916214059,   12.507343278686905,
+                                -0.13857109526572012, 9.9843695780195716e-6, 1.5056327351493116e-7};
 
 // Bernoulli numbers B_2 .. B_20.
-constexpr double kBernoulli[10] = {1.0 / 6.0,      -1.0 / 30.0,       1.0 / 42.0,
-                                   -1.0 / 30.0,    5.0 / 66.0,        -691.0 / 2730.0,
-                                   7.0 / 6.0,      -3617.0 / 510.0,   43867.0 / 798.0,
-                                   -174611.0 / 330.0};
+constexpr double kBernoulli[10] = {1.0 / 6.0,       -1.0 / 30.0,      1.0 / 42.0, -1.0 / 30.0,
+                                   5.0 / 66.0,      -691.0 / 2730.0,  7.0 / 6.0,  -3617.0 / 510.0,
+                                   43867.0 / 798.0, -174611.0 / 330.0};
 
 constexpr double kShiftTarget = 20.0;
 
@@ -103,9 +100,8 @@ double continuum_continuum_phase(double k, double kappa, double Z) {
   phase += log_gamma(cplx(2.0, eta)).imag();
   phase -= eta * std::log(std::abs(kappa - k));
   // Long-range amplitude correction (first 1/r term of the asymptotic Coulomb waves).
-  const cplx gamma_corr =
-      1.0 + cplx(0.0, 0.5 * Z) * (kappa - k) * (1.0 / (kappa * kappa) + 1.0 / (k * k)) /
-                cplx(1.0, eta);
+  const cplx gamma_corr = 1.0 + cplx(0.0, 0.5 * Z) * (kappa - k) *
+                                    (1.0 / (kappa * kappa) + 1.0 / (k * k)) / cplx(1.0, eta);
   return phase + std::arg(gamma_corr);
 }
 
@@ -130,9 +126,7 @@ double coulomb_wigner_delay_au(int l, double W, double omega, double Z) {
   return (coulomb_phase(l, kp, Z) - coulomb_phase(l, km, Z)) / (2.0 * omega);
 }
 
-const char* to_string(AtomicDelayMode m) {
-  return m == AtomicDelayMode::kAuto ? "auto" : "none";
-}
+const char* to_string(AtomicDelayMode m) { return m == AtomicDelayMode::kAuto ? "auto" : "none"; }
 
 bool parse_atomic_delay_mode(const std::string& s, AtomicDelayMode* out) {
   if (s == "auto") {

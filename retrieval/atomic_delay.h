@@ -30,13 +30,15 @@
 //   momentum k, with eta' = Z (1/kappa - 1/k),
 //     phi_cc(k, kappa) = arg{ (2 kappa)^{i Z/kappa} / (2 k)^{i Z/k}
 //                             * Gamma(2 + i eta') / |kappa - k|^{i eta'}
-//                             * [1 - (i Z/2) (kappa - k) (1/kappa^2 + 1/k^2) / (1 + i eta')] }.
+//                             * [1 + (i Z/2) (kappa - k) (1/kappa^2 + 1/k^2) / (1 + i eta')] }.
 //   The first factors are those of the asymptotic formula of Dahlstrom et al. (2012), the
 //   continuum-continuum phase of their asymptotic approximation; the bracket is the long-range
-//   amplitude correction from the first 1/r term of the asymptotic Coulomb waves. The form was
-//   re-derived here from Int_0^inf r^{s-1} e^{-p r} dr = Gamma(s) / p^s with
-//   p = -i (kappa - k) (outgoing intermediate wave, incoming-wave final state), because the
-//   paper's text could not be consulted while writing this (see tests/test_atomic_delay.cpp for
+//   amplitude correction from the first 1/r term of the asymptotic Coulomb waves, whose
+//   amplitude is (1 - Z / (2 k^2 r)) (the WKB amplitude ~ p_local^{-1/2} with
+//   p_local = sqrt(k^2 + 2Z/r)). The form was re-derived here from
+//   Int_0^inf r^{s-1} e^{-p r} dr = Gamma(s) / p^s with p = -i (kappa - k) (outgoing
+//   intermediate wave, incoming-wave final state), because the paper's text could not be
+//   consulted while writing this (see tests/test_atomic_delay.cpp for
 //   the independent checks). The sideband's delay is the emission path minus the absorption
 //   path:
 //     tau_cc(q) = [phi_cc(k_q, k_{q+1}) - phi_cc(k_q, k_{q-1})] / (2 omega).
@@ -113,11 +115,11 @@ struct AtomicDelayOptions {
 struct AtomicDelay {
   double wigner_as = 0.0;
   double continuum_continuum_as = 0.0;
-  double total_as = 0.0;          ///< wigner_as + continuum_continuum_as
-  int channel_l = 0;              ///< l used for the Wigner part
-  bool applied = false;           ///< false when mode == kNone or the sideband is too close to
-                                  ///< threshold (W <= omega)
-  std::string description;        ///< what was applied, for reports
+  double total_as = 0.0;    ///< wigner_as + continuum_continuum_as
+  int channel_l = 0;        ///< l used for the Wigner part
+  bool applied = false;     ///< false when mode == kNone or the sideband is too close to
+                            ///< threshold (W <= omega)
+  std::string description;  ///< what was applied, for reports
 };
 
 /// Atomic delay of the sideband at kinetic energy W (a.u.) for the gas and IR photon energy.

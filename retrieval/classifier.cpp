@@ -24,8 +24,7 @@ std::string num(double v, int precision = 3) {
 }
 
 std::string bad(const char* field, double value, const std::string& constraint) {
-  return std::string(field) + " = " + num(value, 6) + " is invalid: it must be " + constraint +
-         ".";
+  return std::string(field) + " = " + num(value, 6) + " is invalid: it must be " + constraint + ".";
 }
 
 double median(std::vector<double> v) {
@@ -210,8 +209,7 @@ std::string ClassifierOptions::validate() const {
     return bad("isolated_max_satellite_ratio", isolated_max_satellite_ratio,
                "in (0, satellite_max_ratio = " + num(satellite_max_ratio) + ")");
   if (!(satellite_max_ratio <= 1.0))
-    return bad("satellite_max_ratio", satellite_max_ratio,
-               "in (isolated_max_satellite_ratio, 1]");
+    return bad("satellite_max_ratio", satellite_max_ratio, "in (isolated_max_satellite_ratio, 1]");
   if (train_min_comparable_bursts < 2)
     return bad("train_min_comparable_bursts", train_min_comparable_bursts, ">= 2");
   if (!(comb_min_period_contrast > 1.0 / 3.0 && comb_min_period_contrast < 1.0))
@@ -230,7 +228,8 @@ double satellite_ratio_from_fringes(double r1, double r2) {
   if (r2 < 0.0) {
     // Lag T not resolved: symmetric model, small root of r1 = 2a / (1 + 2a^2).
     const double rr = std::min(r1, std::sqrt(0.5));
-    const double a = rr > 0 ? (1.0 - std::sqrt(std::max(1.0 - 2.0 * rr * rr, 0.0))) / (2.0 * rr) : 0.0;
+    const double a =
+        rr > 0 ? (1.0 - std::sqrt(std::max(1.0 - 2.0 * rr * rr, 0.0))) / (2.0 * rr) : 0.0;
     return a * a;
   }
   r2 = std::max(r2, 0.0);
@@ -280,10 +279,12 @@ VerdictSection classify(const Trace& trace, const ClassifierOptions& opt,
   }
   const std::string where = trace.meta.source.empty() ? "trace" : trace.meta.source;
   trace.validate(where);
-  const double lambda = opt.ir_wavelength_nm > 0 ? opt.ir_wavelength_nm : trace.meta.ir_wavelength_nm;
+  const double lambda =
+      opt.ir_wavelength_nm > 0 ? opt.ir_wavelength_nm : trace.meta.ir_wavelength_nm;
   if (!(lambda > 0.0))
-    throw input_error(where + ": field 'ir_wavelength_nm' is missing or not > 0; the "
-                              "classification needs the IR period (bursts repeat every T/2).");
+    throw input_error(where +
+                      ": field 'ir_wavelength_nm' is missing or not > 0; the "
+                      "classification needs the IR period (bursts repeat every T/2).");
   const double omega = units::wavelength_nm_to_omega_au(lambda);
   const double T = units::period_au(omega);
   const double bg = trace.meta.background.value_or(0.0);
@@ -331,7 +332,7 @@ VerdictSection classify(const Trace& trace, const ClassifierOptions& opt,
     E("delay.two_omega_share", de.share);
     E("delay.power_omega", de.p1);
     E("delay.power_two_omega", de.p2);
-    dk = de.share >= opt.delay_train_min_share      ? DelayKind::kTrainLike
+    dk = de.share >= opt.delay_train_min_share       ? DelayKind::kTrainLike
          : de.share <= opt.delay_streaking_max_share ? DelayKind::kStreakingLike
                                                      : DelayKind::kAmbiguous;
     E("delay.class", std::string(dk == DelayKind::kTrainLike       ? "train-like"

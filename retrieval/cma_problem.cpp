@@ -1,14 +1,15 @@
 #include "retrieval/cma_problem.h"
 
 #include <algorithm>
-#include <cstdio>
-#include <cstdlib>
 #include <cmath>
 #include <sstream>
 #include <stdexcept>
 
+#include <Eigen/Core>
+
 #include "retrieval/error.h"
 #include "retrieval/forward_model.h"
+#include "retrieval/hot_loop.h"
 #include "retrieval/units.h"
 
 namespace sw {
@@ -17,6 +18,9 @@ std::vector<ExtraOption> cma_extra_options() {
   using K = ExtraOption::Kind;
   const CmaSettings d;
   return {
+      {"spectrum_constraint", K::kChoice, "amplitude",
+       "use of the field-free spectrum: amplitude (impose |E_X| and align the centroid), "
+       "centroid (align only), off", 0, 0, {"amplitude", "centroid", "off"}},
       {"spectrum_interval", K::kInteger, std::to_string(d.spectrum_interval),
        "impose |E_X(W + Ip)| = sqrt(field-free spectrum) every n iterations (0 = never)", 0, 1e6,
        {}},
@@ -28,7 +32,7 @@ std::vector<ExtraOption> cma_extra_options() {
       {"unmeasured_damping", K::kNumber, "1",
        "exit-wave spectrum factor on FFT bins outside the energy window (1 free, 0 zero)", 0, 1,
        {}},
-      {"noise_tolerance", K::kNumber, "1",
+      {"noise_tolerance", K::kNumber, "0",
        "half-width of the accepted modulus band, in standard deviations of sqrt(I) (0 = exact "
        "modulus replacement)", 0, 10, {}},
   };
@@ -36,6 +40,10 @@ std::vector<ExtraOption> cma_extra_options() {
 
 CmaSettings read_cma_settings(const EngineOptions& o) {
   CmaSettings s;
+  const std::string sc = o.extra_string("spectrum_constraint", "amplitude");
+  s.spectrum = sc == "off"        ? CmaSettings::Spectrum::kOff
+               : sc == "centroid" ? CmaSettings::Spectrum::kCentroid
+                                  : CmaSettings::Spectrum::kAmplitude;
   s.spectrum_interval = static_cast<int>(o.extra_int("spectrum_interval", s.spectrum_interval));
   s.gate_smoothing_interval =
       static_cast<int>(o.extra_int("gate_smoothing_interval", s.gate_smoothing_interval));
@@ -51,6 +59,46 @@ std::string num(double x) {
   std::ostringstream s;
   s << x;
   return s.str();
+}
+
+// r2 = |S|^2 per bin and the error sums sum I M, sum M^2 with M = dt^2 r2.
+SW_HOT_LOOP void moduli_and_sums(const double* S, const double* I, double* r2, std::size_t n,
+                                 double dt2, double* im_out, double* mm_out) {
+  double im = 0.0, mm = 0.0;
+#pragma omp simd reduction(+ : im, mm)
+  for (std::size_t q = 0; q < n; ++q) {
+    r2[q] = S[2 * q] * S[2 * q] + S[2 * q + 1] * S[2 * q + 1];
+    const double M = dt2 * r2[q];
+    im += I[q] * M;
+    mm += M * M;
+  }
+  *im_out += im;
+  *mm_out += mm;
+}
+
+// The exact modulus replacement of one segment, fused with the error sums:
+// S <- a S / |S| (a = target amplitude, raw units); a zero bin stays zero.
+SW_HOT_LOOP void modulus_kernel(double* S, const double* I, const double* a, std::size_t n,
+                                double dt2, double* im_out, double* mm_out) {
+  double im = 0.0, mm = 0.0;
+#pragma omp simd reduction(+ : im, mm)
+  for (std::size_t q = 0; q < n; ++q) {
+    const double re = S[2 * q], iv = S[2 * q + 1];
+    const double r2 = re * re + iv * iv;
+    const double M = dt2 * r2;
+    im += I[q] * M;
+    mm += M * M;
+    const double f = a[q] * detail::rsqrt_newton(r2 + 1e-300);
+    S[2 * q] = re * f;
+    S[2 * q + 1] = iv * f;
+  }
+  *im_out += im;
+  *mm_out += mm;
+}
+
+SW_HOT_LOOP void scale_bins(double* S, const double* f, std::size_t n) {
+#pragma omp simd
+  for (std::size_t q = 0; q < 2 * n; ++q) S[q] *= f[q / 2];
 }
 
 inline std::size_t fft_index(long b, std::size_t n) {
@@ -161,6 +209,7 @@ CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, s
   hi_.resize(nd_ * ne_);
   meas_.resize(nd_ * ne_);
   const bool with_noise = settings_.noise_tolerance > 0 && p.variance.size() != 0;
+  band_ = with_noise;
   peak_ = p.intensity.maxCoeff();
   sum_ii_ = p.intensity.squaredNorm();
   for (std::size_t i = 0; i < nd_; ++i)
@@ -187,32 +236,36 @@ double CmaProblem::knot_step_au() const {
   return units::period_au(problem_.ir_omega_au) / settings_.gate_knots_per_period;
 }
 
-void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums) const {
+void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums,
+                         double* scratch) const {
   double* S = reinterpret_cast<double*>(spectrum);
   const double* lo = lo_.data() + j * ne_;
   const double* hi = hi_.data() + j * ne_;
   const double* I = meas_.data() + j * ne_;
   const double dt2 = dt_ * dt_;
+  const bool band = band_;
   double im = 0.0, mm = 0.0;
+  using Arr = Eigen::Map<Eigen::ArrayXd>;
+  using CArr = Eigen::Map<const Eigen::ArrayXd>;
   for (const Segment& seg : measured_) {
     double* sp = S + 2 * seg.k0;
-    const double* l = lo + seg.j0;
-    const double* h = hi + seg.j0;
+    const std::size_t len = seg.len;
     const double* ii = I + seg.j0;
-#pragma omp simd reduction(+ : im, mm)
-    for (std::size_t q = 0; q < seg.len; ++q) {
-      const double re = sp[2 * q], iv = sp[2 * q + 1];
-      const double r2 = re * re + iv * iv;
-      const double M = dt2 * r2;
-      im += ii[q] * M;
-      mm += M * M;
-      const bool ok = r2 > 1e-300;
-      const double r = std::sqrt(r2);
-      const double t = std::min(std::max(r, l[q]), h[q]);
-      const double f = ok ? t / (ok ? r : 1.0) : 0.0;
-      sp[2 * q] = ok ? re * f : 0.5 * (l[q] + h[q]);
-      sp[2 * q + 1] = iv * f;
+    double* r2 = scratch;
+    double* z = scratch + len;
+    if (!band) {
+      modulus_kernel(sp, ii, lo + seg.j0, len, dt2, &im, &mm);
+      continue;
     }
+    // Band mode: |psi~| clamped into [lo, hi] (Eigen vectorises sqrt, min and max).
+    moduli_and_sums(sp, ii, r2, len, dt2, &im, &mm);
+    Arr R(r2, static_cast<Eigen::Index>(len));
+    const CArr L(lo + seg.j0, static_cast<Eigen::Index>(len));
+    const CArr H(hi + seg.j0, static_cast<Eigen::Index>(len));
+    Arr r(z, static_cast<Eigen::Index>(len));
+    r = R.sqrt();
+    R = r.max(L).min(H) / r.max(1e-300);
+    scale_bins(sp, r2, len);
   }
   const double damp = settings_.unmeasured_damping;
   if (damp != 1.0)
@@ -285,6 +338,35 @@ double CmaProblem::align_spectrum(CVec& eps, PhaseGate& gate, CVec& work) const 
   rotate(eps.data(), n_, problem_.grid.t0(), problem_.grid.dt(), -delta);
   rotate(gate.table().data(), gate.size(), gate.time(0), gate.dt(), delta);
   return delta;
+}
+
+void CmaProblem::constrain(int k, CVec& eps, PhaseGate& gate, CVec& work,
+                           std::vector<double>& cover) const {
+  const CmaSettings& s = settings_;
+  if (s.spectrum != CmaSettings::Spectrum::kOff && s.spectrum_interval > 0 &&
+      k % s.spectrum_interval == 0) {
+    align_spectrum(eps, gate, work);
+    if (s.spectrum == CmaSettings::Spectrum::kAmplitude) impose_spectrum(eps, work);
+  }
+  if (s.gate_smoothing_interval > 0 && k % s.gate_smoothing_interval == 0) {
+    gate.coverage(eps, cover);
+    gate.smooth(cover);
+  }
+}
+
+void CmaProblem::support(const CVec& eps, std::size_t* lo, std::size_t* hi) {
+  const std::size_t n = eps.size();
+  double m = 0.0;
+  for (const cdouble& e : eps) m = std::max(m, std::norm(e));
+  std::size_t a = 0, b = n;
+  while (a < n && std::norm(eps[a]) < 1e-4 * m) ++a;
+  while (b > a && std::norm(eps[b - 1]) < 1e-4 * m) --b;
+  *lo = a >= 2 ? a - 2 : 0;
+  *hi = std::min(n, b + 2);
+  if (*lo >= *hi) {
+    *lo = 0;
+    *hi = n;
+  }
 }
 
 CVec CmaProblem::initial_xuv(const EngineOptions& o) const {
@@ -401,15 +483,7 @@ Eigen::MatrixXd CmaProblem::model_trace(const CVec& eps, const PhaseGate& gate) 
 Reconstruction CmaProblem::reconstruct(CVec eps, PhaseGate gate) const {
   std::vector<double> cover;
   gate.coverage(eps, cover);
-  if (std::getenv("SW_DEBUG")) {
-    double mu;
-    std::fprintf(stderr, "DEBUG G before smoothing %g\n", sw::trace_error(problem_.intensity, model_trace(eps, gate), &mu));
-  }
   SmoothPhase phase = gate.smooth(cover);
-  if (std::getenv("SW_DEBUG")) {
-    double mu;
-    std::fprintf(stderr, "DEBUG G after smoothing %g\n", sw::trace_error(problem_.intensity, model_trace(eps, gate), &mu));
-  }
   // Global phase: arg eps = 0 at the peak of |eps|; the gate takes the opposite phase.
   std::size_t peak = 0;
   for (std::size_t n = 1; n < n_; ++n)
@@ -426,12 +500,14 @@ Reconstruction CmaProblem::reconstruct(CVec eps, PhaseGate gate) const {
   rec.retrieved = model_trace(eps, gate);
   rec.trace_error = sw::trace_error(problem_.intensity, rec.retrieved, &rec.scale);
   rec.xuv = XuvField(problem_.grid, carrier_, std::move(eps));
-  // A(t) where the data constrain the gate (coverage above 1e-3 of its maximum).
+  // A(t) where the data constrain the gate well: from the first to the last node whose
+  // coverage reaches 30 % of its maximum (beyond the delay range only the XUV's tails probe
+  // the gate and its phase rate is noise).
   double cmax = 0;
   for (double c : cover) cmax = std::max(cmax, c);
   std::size_t lo = 0, hi = cover.size() - 1;
-  while (lo < hi && cover[lo] < 1e-3 * cmax) ++lo;
-  while (hi > lo && cover[hi] < 1e-3 * cmax) --hi;
+  while (lo < hi && cover[lo] < 0.3 * cmax) ++lo;
+  while (hi > lo && cover[hi] < 0.3 * cmax) --hi;
   const double p0 = problem_.central_momentum_au;
   const double dt_ir =
       std::min(0.5 * gate.knot_step(), units::period_au(problem_.ir_omega_au) / 64.0);
@@ -455,10 +531,14 @@ std::vector<std::pair<std::string, std::string>> CmaProblem::used_settings() con
   s.emplace_back("delays", std::to_string(nd_));
   s.emplace_back("gate_guess", gate_guess_.empty() ? "-" : gate_guess_);
   s.emplace_back("gate_knot_step_as", num(units::au_to_as(std::max(knot_step_au(), g.dt()))));
+  const char* sc[] = {"amplitude", "centroid", "off"};
   s.emplace_back("spectrum_constraint",
                  spectrum_amp_.empty() || settings_.spectrum_interval == 0
-                     ? std::string("off")
-                     : "every " + std::to_string(settings_.spectrum_interval) + " iterations");
+                     ? std::string("off (no field-free spectrum)")
+                     : std::string(sc[static_cast<int>(settings_.spectrum)]) + " every " +
+                           std::to_string(settings_.spectrum_interval) + " iterations");
+  s.emplace_back("noise_tolerance", num(settings_.noise_tolerance) +
+                                        (problem_.variance.size() ? "" : " (no variance: exact)"));
   s.emplace_back("gate_smoothing_interval", std::to_string(settings_.gate_smoothing_interval));
   s.emplace_back("unmeasured_damping", num(settings_.unmeasured_damping));
   return s;

@@ -41,11 +41,16 @@ namespace sw {
 
 /// Settings shared by the CMA engines, read from EngineOptions::extra.
 struct CmaSettings {
-  int spectrum_interval = 1;           ///< impose the field-free spectrum every n iterations (0 = never)
+  /// How the field-free spectrum is used every spectrum_interval iterations: kAmplitude
+  /// imposes |eps~| (and aligns the centroid), kCentroid only aligns the centroid (the
+  /// frequency-shift ambiguity), kOff ignores it.
+  enum class Spectrum { kAmplitude, kCentroid, kOff };
+  Spectrum spectrum = Spectrum::kAmplitude;
+  int spectrum_interval = 1;           ///< use the field-free spectrum every n iterations (0 = never)
   int gate_smoothing_interval = 4;     ///< smooth the gate phase every n iterations (0 = at the end only)
   double gate_knots_per_period = 32;   ///< B-spline knots per IR period for the smooth gate phase
   double unmeasured_damping = 1.0;     ///< exit-wave factor on unmeasured FFT bins (1 free, 0 zero)
-  double noise_tolerance = 1.0;        ///< half-width of the modulus band in standard deviations
+  double noise_tolerance = 0.0;        ///< half-width of the modulus band in standard deviations
 };
 /// Descriptions of the CMA settings (names, defaults, limits) for Engine::extra_options().
 std::vector<ExtraOption> cma_extra_options();
@@ -81,8 +86,10 @@ class CmaProblem {
   double knot_step_au() const;
 
   /// The modulus replacement of delay j on its raw exit-wave spectrum (FFT order, in place);
-  /// adds the model-vs-measured sums of the spectrum it saw to `sums`.
-  void project(std::size_t j, cdouble* spectrum, ErrorSums& sums) const;
+  /// adds the model-vs-measured sums of the spectrum it saw to `sums`. `scratch` holds
+  /// scratch_size() doubles (one buffer per thread; no allocation here).
+  void project(std::size_t j, cdouble* spectrum, ErrorSums& sums, double* scratch) const;
+  std::size_t scratch_size() const { return 3 * ne_; }
   /// Running trace error G from the sums of one full sweep over the delays.
   double trace_error(const ErrorSums& sums) const;
   /// Spectral constraint on eps (in place; `work` is resized to N once). No-op without spectrum.
@@ -92,6 +99,15 @@ class CmaProblem {
   /// leaves every |a(W, tau)| unchanged (psi_j gains only the phase exp(i delta tau_j)).
   /// Returns delta (a.u.); no-op (0) without spectrum.
   double align_spectrum(CVec& eps, PhaseGate& gate, CVec& work) const;
+
+  /// The constraints both engines apply after iteration k (1-based), at their intervals:
+  /// the field-free spectrum (align_spectrum, then impose_spectrum for kAmplitude) and the
+  /// smooth-gate projection (PhaseGate::smooth with the current coverage).
+  void constrain(int k, CVec& eps, PhaseGate& gate, CVec& work, std::vector<double>& cover) const;
+  /// Samples [lo, hi) outside which |eps|^2 < 1e-4 max |eps|^2 (plus a 2-sample margin): the
+  /// gate updates are applied there only, elsewhere they are below 1 % of their peak (and
+  /// the smooth-gate projection, weighted by the coverage, would discard them anyway).
+  static void support(const CVec& eps, std::size_t* lo, std::size_t* hi);
 
   /// Initial XUV envelope: options.initial_xuv re-expressed about the carrier, else
   /// sqrt(field-free spectrum) (else sqrt of the delay-averaged spectrum) with flat phase,
@@ -130,6 +146,7 @@ class CmaProblem {
   Fft fft_;
   std::vector<Segment> measured_, unmeasured_;
   std::vector<double> lo_, hi_;       // nd x ne, modulus band (raw units)
+  bool band_ = false;                 // lo < hi somewhere (noise_tolerance > 0 with variances)
   std::vector<double> meas_;          // nd x ne, I
   std::vector<double> spectrum_amp_;  // ne, sqrt(max(S_ff,0)) (empty: no spectrum)
   std::vector<long> bin_;             // signed FFT bin of each energy

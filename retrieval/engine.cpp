@@ -37,6 +37,9 @@ std::string EngineOptions::validate() const {
     s << "patience = " << patience << ": must be > 0";
   else if (!(noise_floor_factor >= 0) || !std::isfinite(noise_floor_factor))
     s << "noise_floor_factor = " << noise_floor_factor << ": must be finite and >= 0 (0 disables)";
+  else if (!(noise_floor_relative_tolerance >= 0) || !std::isfinite(noise_floor_relative_tolerance))
+    s << "noise_floor_relative_tolerance = " << noise_floor_relative_tolerance
+      << ": must be finite and >= 0";
   else if (threads < 1)
     s << "threads = " << threads << ": must be >= 1";
   else if (!(max_seconds > 0))
@@ -268,7 +271,7 @@ std::string fmt(double x, int prec = 3) {
 }
 
 // Stopping rules, one predicate each (the order of use is documented in engine.h).
-bool reached_noise_floor(double G, double G_noise, const EngineOptions& o) {
+bool at_noise_floor(double G, double G_noise, const EngineOptions& o) {
   return o.noise_floor_factor > 0 && G_noise > 0 && G <= o.noise_floor_factor * G_noise;
 }
 
@@ -279,6 +282,13 @@ double relative_change(const std::vector<IterationRecord>& h, const EngineOption
   const double g = h.back().trace_error, g0 = h[h.size() - 1 - p].trace_error;
   if (g == 0.0) return 0.0;
   return std::abs(g - g0) / g;
+}
+
+bool settled_at_noise_floor(const std::vector<IterationRecord>& h, double G_noise,
+                            const EngineOptions& o) {
+  if (!at_noise_floor(h.back().trace_error, G_noise, o)) return false;
+  const double r = relative_change(h, o);
+  return r >= 0 && r < o.noise_floor_relative_tolerance;
 }
 
 bool stalled(const std::vector<IterationRecord>& h, const EngineOptions& o) {
@@ -347,11 +357,12 @@ Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
       why << "stopped by a callback at iteration " << k;
       break;
     }
-    if (reached_noise_floor(G, G_noise, options)) {
+    if (settled_at_noise_floor(history, G_noise, options)) {
       term = Termination::kNoiseFloor;
-      why << "G = " << fmt(G) << " reached the noise floor (" << fmt(options.noise_floor_factor)
-          << " x G_noise = " << fmt(options.noise_floor_factor * G_noise) << ") at iteration "
-          << k;
+      why << "G = " << fmt(G) << " settled at the noise floor (" << fmt(options.noise_floor_factor)
+          << " x G_noise = " << fmt(options.noise_floor_factor * G_noise)
+          << ", relative change over the last " << options.patience << " iterations "
+          << fmt(relative_change(history, options)) << ") at iteration " << k;
       break;
     }
     if (stalled(history, options)) {
@@ -362,9 +373,16 @@ Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
       break;
     }
     if (reached_max_iterations(k, options)) {
-      term = Termination::kMaxIterations;
-      why << "reached max_iterations = " << options.max_iterations
-          << " before any convergence rule held";
+      if (at_noise_floor(G, G_noise, options)) {
+        term = Termination::kNoiseFloor;
+        why << "reached max_iterations = " << options.max_iterations << " with G = " << fmt(G)
+            << " at the noise floor (" << fmt(options.noise_floor_factor)
+            << " x G_noise = " << fmt(options.noise_floor_factor * G_noise) << ")";
+      } else {
+        term = Termination::kMaxIterations;
+        why << "reached max_iterations = " << options.max_iterations
+            << " before any convergence rule held";
+      }
       break;
     }
     if (out_of_time(rec.seconds, options)) {

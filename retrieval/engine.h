@@ -54,8 +54,12 @@ struct EngineOptions {
   /// is below this: |G_k - G_{k-patience}| / G_k < relative_tolerance.
   double relative_tolerance = 1e-4;   ///< >= 0
   int patience = 20;                  ///< > 0
-  /// Stop when G reaches the noise floor estimated from the variances (G_noise) times this.
+  /// Stop when G reaches the noise floor estimated from the variances (G_noise) times this,
+  /// G_k <= noise_floor_factor * G_noise, and has settled there: the relative change over the
+  /// last `patience` iterations is below noise_floor_relative_tolerance. (A fit reaches the
+  /// floor long before its parameters settle, so the floor alone is no stopping rule.)
   double noise_floor_factor = 1.0;    ///< >= 0 (0 disables)
+  double noise_floor_relative_tolerance = 1e-3;  ///< >= 0
   unsigned long long seed = 1;        ///< random delay order, initial guesses
   int threads = 1;                    ///< >= 1
   double max_seconds = 600.0;         ///< wall-time budget (> 0)
@@ -183,9 +187,12 @@ double noise_floor_trace_error(const Eigen::MatrixXd& measured, const Eigen::Mat
 /// After each iteration k (1-based) the rules are checked in this order:
 ///   1. numerical failure: G not finite, or iterate() threw sw::Error(kNumeric) -> kFailure;
 ///   2. callbacks, in order: kAbort -> kFailure, kStop -> kUserStopped;
-///   3. noise floor: noise_floor_factor > 0 and G_k <= noise_floor_factor * G_noise -> kNoiseFloor;
+///   3. noise floor: noise_floor_factor > 0, G_k <= noise_floor_factor * G_noise and
+///      k > patience with |G_k - G_{k-patience}| / G_k < noise_floor_relative_tolerance
+///      -> kNoiseFloor;
 ///   4. stall: k > patience and |G_k - G_{k-patience}| / G_k < relative_tolerance -> kConverged;
-///   5. k == max_iterations -> kMaxIterations;
+///   5. k == max_iterations -> kMaxIterations (kNoiseFloor when G_k is at the floor: a
+///      trace error at the noise floor is convergence, DESIGN.md);
 ///   6. wall time since the start of run_engine >= max_seconds -> kTimeLimit.
 /// Whatever the termination, finalize() supplies the best (lowest-G) estimate; the loop fills
 /// history, termination, message, timings, noise floor and iterations.

@@ -829,6 +829,7 @@ Reconstruction LeastSquaresEngine::finalize() {
   S.emplace_back("lbfgs_iterations", std::to_string(lbfgs_iterations_));
   S.emplace_back("cost_evaluations", std::to_string(f.evaluations()));
   S.emplace_back("block_replans", std::to_string(replans_));
+  S.emplace_back("lbfgs_termination", last_termination_.empty() ? "running" : last_termination_);
   S.emplace_back("weighted_cost_per_element", num(wcost));
   S.emplace_back("weighted_scale", num(wmu));
   S.emplace_back("initial_trace_error", num(initial_G_));

@@ -86,9 +86,9 @@ struct FullModelSettings {
   int chebyshev_nodes = 10;           ///< >= 2 (ForwardModelOptions::chebyshev_nodes)
   double block_phase_rad = 2.0;       ///< > 0 (ForwardModelOptions::max_block_phase_rad)
   double variance_floor = 1e-4;       ///< in [0, 1]: floor = value x max variance
-  double support_threshold = 1e-3;    ///< in [0, 1)
+  double support_threshold = 1e-5;    ///< in [0, 1)
   double support_margin_eV = 1.0;     ///< >= 0
-  double spectrum_weight = 0.0;       ///< >= 0
+  double spectrum_weight = 0.1;       ///< >= 0
 
   std::string validate() const;       ///< "" when valid; else names field, value, constraint
 };

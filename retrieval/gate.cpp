@@ -4,6 +4,8 @@
 #include <cmath>
 #include <stdexcept>
 
+#include "retrieval/hot_loop.h"
+
 namespace sw {
 
 namespace {
@@ -75,6 +77,7 @@ PhaseGate::PhaseGate(const TimeGrid& g, const std::vector<double>& delay, double
   const std::size_t nd = delay.size();
   first_.resize(nd);
   weights_.assign(4 * nd, 0.0);
+  frac_.assign(nd, 0.0);
   exact_.assign(nd, 0);
   std::size_t last_start = 0;
   for (std::size_t j = 0; j < nd; ++j) {
@@ -92,6 +95,7 @@ PhaseGate::PhaseGate(const TimeGrid& g, const std::vector<double>& delay, double
     } else {
       exact_all_ = false;
       first_[j] = i - 1;
+      frac_[j] = f;
       lagrange_weights(f, &weights_[4 * j]);
     }
     last_start = std::max(last_start, i);
@@ -114,40 +118,115 @@ void PhaseGate::sample(std::size_t j, cdouble* g) const {
     out[k] = w0 * T[k] + w1 * T[k + 2] + w2 * T[k + 4] + w3 * T[k + 6];
 }
 
-void PhaseGate::scatter(std::size_t j, const cdouble* u, cdouble* acc) const {
-  double* A = reinterpret_cast<double*>(acc + first_[j]);
-  const double* U = reinterpret_cast<const double*>(u);
-  const std::size_t m = 2 * n_;
-  if (exact_[j]) {
+namespace {
+
+// psi = eps * G with G read from the table (exact shift).
+SW_HOT_LOOP void product_kernel(const double* E, const double* G, double* P, std::size_t n) {
 #pragma omp simd
-    for (std::size_t k = 0; k < m; ++k) A[k] += U[k];
-    return;
-  }
-  for (int q = 0; q < 4; ++q) {
-    const double w = weights_[4 * j + static_cast<std::size_t>(q)];
-    double* a = A + 2 * q;
-#pragma omp simd
-    for (std::size_t k = 0; k < m; ++k) a[k] += w * U[k];
+  for (std::size_t q = 0; q < n; ++q) {
+    const double er = E[2 * q], ei = E[2 * q + 1], gr = G[2 * q], gi = G[2 * q + 1];
+    P[2 * q] = er * gr - ei * gi;
+    P[2 * q + 1] = er * gi + ei * gr;
   }
 }
 
-void PhaseGate::update(std::size_t j, const cdouble* u) {
-  scatter(j, u, table_.data());
-  const std::size_t first = first_[j];
-  normalize(first, std::min(size(), first + n_ + (exact_[j] ? 0 : 3)));
+// G = linear interpolation between table nodes T + 2 and T + 4 (per sample), psi = eps * G.
+SW_HOT_LOOP void linear_kernel(const double* T, const double* E, double* G, double* P,
+                               std::size_t a, std::size_t b, double f) {
+  const double f1 = 1.0 - f;
+#pragma omp simd
+  for (std::size_t q = a; q < b; ++q) {
+    const std::size_t k = 2 * q;
+    const double gr = f1 * T[k + 2] + f * T[k + 4], gi = f1 * T[k + 3] + f * T[k + 5];
+    G[k] = gr;
+    G[k + 1] = gi;
+    const double er = E[k], ei = E[k + 1];
+    P[k] = er * gr - ei * gi;
+    P[k + 1] = er * gi + ei * gr;
+  }
+}
+
+// G = 4-tap cubic Lagrange interpolation of the table, psi = eps * G.
+SW_HOT_LOOP void cubic_kernel(const double* T, const double* E, double* G, double* P,
+                              std::size_t a, std::size_t b, const double* w) {
+  const double w0 = w[0], w1 = w[1], w2 = w[2], w3 = w[3];
+#pragma omp simd
+  for (std::size_t q = a; q < b; ++q) {
+    const std::size_t k = 2 * q;
+    const double gr = w0 * T[k] + w1 * T[k + 2] + w2 * T[k + 4] + w3 * T[k + 6];
+    const double gi = w0 * T[k + 1] + w1 * T[k + 3] + w2 * T[k + 5] + w3 * T[k + 7];
+    G[k] = gr;
+    G[k + 1] = gi;
+    const double er = E[k], ei = E[k + 1];
+    P[k] = er * gr - ei * gi;
+    P[k + 1] = er * gi + ei * gr;
+  }
+}
+
+SW_HOT_LOOP void axpy_kernel(double* a, const double* u, std::size_t m, double w) {
+#pragma omp simd
+  for (std::size_t k = 0; k < m; ++k) a[k] += w * u[k];
+}
+
+SW_HOT_LOOP void unit_kernel(double* V, std::size_t n) {
+#pragma omp simd
+  for (std::size_t m = 0; m < n; ++m) {
+    const double re = V[2 * m], im = V[2 * m + 1];
+    const double s = detail::rsqrt_newton(re * re + im * im + 1e-300);
+    V[2 * m] = re * s;
+    V[2 * m + 1] = im * s;
+  }
+}
+
+}  // namespace
+
+const cdouble* PhaseGate::sample_product(std::size_t j, const cdouble* eps, cdouble* g,
+                                         cdouble* psi, std::size_t lo, std::size_t hi) const {
+  const double* E = reinterpret_cast<const double*>(eps);
+  double* P = reinterpret_cast<double*>(psi);
+  if (exact_[j]) {
+    const cdouble* gp = table_.data() + first_[j];
+    product_kernel(E, reinterpret_cast<const double*>(gp), P, n_);
+    return gp;
+  }
+  const double* T = reinterpret_cast<const double*>(table_.data() + first_[j]);
+  double* G = reinterpret_cast<double*>(g);
+  hi = std::min(hi, n_);
+  lo = std::min(lo, hi);
+  linear_kernel(T, E, G, P, 0, lo, frac_[j]);
+  cubic_kernel(T, E, G, P, lo, hi, &weights_[4 * j]);
+  linear_kernel(T, E, G, P, hi, n_, frac_[j]);
+  return g;
+}
+
+void PhaseGate::scatter(std::size_t j, const cdouble* u, cdouble* acc, std::size_t lo,
+                        std::size_t hi) const {
+  hi = std::min(hi, n_);
+  if (lo >= hi) return;
+  double* A = reinterpret_cast<double*>(acc + first_[j] + lo);
+  const double* U = reinterpret_cast<const double*>(u + lo);
+  const std::size_t m = 2 * (hi - lo);
+  if (exact_[j]) {
+    axpy_kernel(A, U, m, 1.0);
+    return;
+  }
+  for (std::size_t q = 0; q < 4; ++q) axpy_kernel(A + 2 * q, U, m, weights_[4 * j + q]);
+}
+
+void PhaseGate::update(std::size_t j, const cdouble* u, std::size_t lo, std::size_t hi) {
+  hi = std::min(hi, n_);
+  if (lo >= hi) return;
+  scatter(j, u, table_.data(), lo, hi);
+  const std::size_t first = first_[j] + lo;
+  normalize(first, std::min(size(), first + (hi - lo) + (exact_[j] ? 0 : 3)));
+}
+
+void normalize_to_unit(cdouble* v, std::size_t n) {
+  unit_kernel(reinterpret_cast<double*>(v), n);
 }
 
 void PhaseGate::normalize(std::size_t first, std::size_t last) {
-  double* T = reinterpret_cast<double*>(table_.data());
-#pragma omp simd
-  for (std::size_t m = first; m < last; ++m) {
-    const double re = T[2 * m], im = T[2 * m + 1];
-    const double r2 = re * re + im * im;
-    const bool ok = r2 > 1e-300;
-    const double s = ok ? 1.0 / std::sqrt(ok ? r2 : 1.0) : 0.0;
-    T[2 * m] = ok ? re * s : 1.0;
-    T[2 * m + 1] = im * s;
-  }
+  if (first < last) normalize_to_unit(table_.data() + first, last - first);
 }
 
 void PhaseGate::rotate(double a) {

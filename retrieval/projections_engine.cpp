@@ -10,6 +10,7 @@
 #include "retrieval/cma_problem.h"
 #include "retrieval/error.h"
 #include "retrieval/gate.h"
+#include "retrieval/hot_loop.h"
 
 namespace sw {
 
@@ -27,6 +28,32 @@ bool matched_grid(const std::vector<double>& tau, double dt) {
   for (std::size_t j = 1; j < tau.size(); ++j)
     if (std::abs(tau[j] - tau[j - 1] - step) > 1e-6 * dt) return false;
   return true;
+}
+
+// X <- X / N (the projected exit wave), num += conj(G) X, den += |G|^2.
+SW_HOT_LOOP void accumulate_object(const double* G, double* X, double* num, double* den,
+                                   std::size_t n, double inv_n) {
+#pragma omp simd
+  for (std::size_t q = 0; q < n; ++q) {
+    const double xr = X[2 * q] * inv_n, xi = X[2 * q + 1] * inv_n;
+    const double gr = G[2 * q], gi = G[2 * q + 1];
+    X[2 * q] = xr;
+    X[2 * q + 1] = xi;
+    num[2 * q] += gr * xr + gi * xi;
+    num[2 * q + 1] += gr * xi - gi * xr;
+    den[q] += gr * gr + gi * gi;
+  }
+}
+
+// U = conj(E) X on [lo, hi).
+SW_HOT_LOOP void conj_product(const double* E, const double* X, double* U, std::size_t lo,
+                              std::size_t hi) {
+#pragma omp simd
+  for (std::size_t q = lo; q < hi; ++q) {
+    const double er = E[2 * q], ei = E[2 * q + 1], xr = X[2 * q], xi = X[2 * q + 1];
+    U[2 * q] = er * xr + ei * xi;
+    U[2 * q + 1] = er * xi - ei * xr;
+  }
 }
 
 class ProjectionsEngine final : public Engine {
@@ -76,6 +103,7 @@ class ProjectionsEngine final : public Engine {
       t.num.assign(n, 0.0);
       t.den.assign(n, 0.0);
       t.acc.assign(M, 0.0);
+      t.scratch.assign(cma_->scratch_size(), 0.0);
     }
     work_.assign(n, 0.0);
     best_eps_ = eps_;
@@ -84,13 +112,14 @@ class ProjectionsEngine final : public Engine {
   }
 
   IterationRecord iterate(int k) override {
-    const CmaSettings& s = cma_->settings();
     const std::size_t n = cma_->samples(), nd = cma_->num_delays();
     const std::size_t M = gate_.size();
     const double inv_n = 1.0 / static_cast<double>(n);
     ErrorSums total;
+    std::size_t lo = 0, hi = n;
+    CmaProblem::support(eps_, &lo, &hi);
     // 1. Projected exit waves psi'_j and the eps numerator sum_j conj(G_j) psi'_j.
-#pragma omp parallel num_threads(threads_)
+#pragma omp parallel num_threads(threads_) if (threads_ > 1)
     {
       Work& w = per_thread_[static_cast<std::size_t>(omp_get_thread_num())];
       std::fill(w.num.begin(), w.num.end(), 0.0);
@@ -98,29 +127,14 @@ class ProjectionsEngine final : public Engine {
       ErrorSums sums;
 #pragma omp for schedule(static)
       for (std::size_t j = 0; j < nd; ++j) {
-        const cdouble* gp = gate_.exact_samples(j);
-        if (!gp) {
-          gate_.sample(j, w.g.data());
-          gp = w.g.data();
-        }
-        for (std::size_t q = 0; q < n; ++q) w.psi[q] = eps_[q] * gp[q];
+        const cdouble* gp =
+            gate_.sample_product(j, eps_.data(), w.g.data(), w.psi.data(), lo, hi);
         cma_->fft().time_to_freq(w.psi, w.spec);
-        cma_->project(j, w.spec.data(), sums);
+        cma_->project(j, w.spec.data(), sums, w.scratch.data());
         cdouble* out = exit_.data() + j * n;
         cma_->fft().freq_to_time(w.spec.data(), out);
-        const double* G = reinterpret_cast<const double*>(gp);
-        double* X = reinterpret_cast<double*>(out);
-        double* Nm = reinterpret_cast<double*>(w.num.data());
-#pragma omp simd
-        for (std::size_t q = 0; q < n; ++q) {
-          const double xr = X[2 * q] * inv_n, xi = X[2 * q + 1] * inv_n;
-          const double gr = G[2 * q], gi = G[2 * q + 1];
-          X[2 * q] = xr;
-          X[2 * q + 1] = xi;
-          Nm[2 * q] += gr * xr + gi * xi;
-          Nm[2 * q + 1] += gr * xi - gi * xr;
-          w.den[q] += gr * gr + gi * gi;
-        }
+        accumulate_object(reinterpret_cast<const double*>(gp), reinterpret_cast<double*>(out),
+                          reinterpret_cast<double*>(w.num.data()), w.den.data(), n, inv_n);
       }
 #pragma omp critical
       total.add(sums);
@@ -145,35 +159,34 @@ class ProjectionsEngine final : public Engine {
     // 3. Gate: phase of sum_j conj(eps) psi'_j scattered onto the table (transpose weights).
     //    PCGPA takes the previous eps (simultaneous power step); LSGPA the new one.
     const CVec& e = mode_ == GpMode::kLsgpa ? eps_ : eps_old_;
-#pragma omp parallel num_threads(threads_)
+    CmaProblem::support(e, &lo, &hi);
+#pragma omp parallel num_threads(threads_) if (threads_ > 1)
     {
       Work& w = per_thread_[static_cast<std::size_t>(omp_get_thread_num())];
       std::fill(w.acc.begin(), w.acc.end(), 0.0);
+      const double* Ev = reinterpret_cast<const double*>(e.data());
+      double* U = reinterpret_cast<double*>(w.u.data());
 #pragma omp for schedule(static)
       for (std::size_t j = 0; j < nd; ++j) {
-        const cdouble* x = exit_.data() + j * n;
-        for (std::size_t q = 0; q < n; ++q) w.u[q] = std::conj(e[q]) * x[q];
-        gate_.scatter(j, w.u.data(), w.acc.data());
+        const double* X = reinterpret_cast<const double*>(exit_.data() + j * n);
+        conj_product(Ev, X, U, lo, hi);
+        gate_.scatter(j, w.u.data(), w.acc.data(), lo, hi);
       }
     }
     CVec& acc = per_thread_[0].acc;
     for (std::size_t t = 1; t < per_thread_.size(); ++t)
       for (std::size_t m = 0; m < M; ++m) acc[m] += per_thread_[t].acc[m];
-    double amax = 0.0;
-    for (const cdouble& a : acc) amax = std::max(amax, std::abs(a));
+    // Unit-modulus least-squares gate per node: the phase of acc; nodes no delay constrains
+    // (acc ~ 0) keep their value through the small admixture of the old gate.
+    double amax2 = 0.0;
+    for (const cdouble& a : acc) amax2 = std::max(amax2, std::norm(a));
+    const double keep = 1e-6 * std::sqrt(amax2);
     CVec& T = gate_.table();
-    for (std::size_t m = 0; m < M; ++m) T[m] = acc[m] + (1e-6 * amax) * T[m];
+    for (std::size_t m = 0; m < M; ++m) T[m] = acc[m] + keep * T[m];
     gate_.normalize();
 
     const double G = cma_->trace_error(total);
-    if (s.spectrum_interval > 0 && k % s.spectrum_interval == 0) {
-      cma_->align_spectrum(eps_, gate_, work_);
-      cma_->impose_spectrum(eps_, work_);
-    }
-    if (s.gate_smoothing_interval > 0 && k % s.gate_smoothing_interval == 0) {
-      gate_.coverage(eps_, cover_);
-      gate_.smooth(cover_);
-    }
+    cma_->constrain(k, eps_, gate_, work_, cover_);
     if (G < best_) {
       best_ = G;
       best_eps_ = eps_;
@@ -195,7 +208,7 @@ class ProjectionsEngine final : public Engine {
  private:
   struct Work {
     CVec g, psi, spec, u, num, acc;
-    std::vector<double> den;
+    std::vector<double> den, scratch;
   };
   std::optional<CmaProblem> cma_;
   GpMode mode_ = GpMode::kLsgpa;

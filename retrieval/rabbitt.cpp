@@ -138,6 +138,8 @@ std::string RabbittOptions::validate() const {
     return bad("reweight_passes", reweight_passes, "in 0..10");
   if (calibration_sidebands < 1)
     return bad("calibration_sidebands", calibration_sidebands, "at least 1");
+  if (!(min_comb_contrast >= 0.0 && min_comb_contrast < 2.0))
+    return bad("min_comb_contrast", min_comb_contrast, "in [0, 2)");
   if (!(calibration_warn_fraction >= 0.0))
     return bad("calibration_warn_fraction", calibration_warn_fraction, ">= 0");
   const std::string a = atomic.validate();
@@ -250,13 +252,16 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   // --- target and driver -----------------------------------------------------------------
   const std::string gas_key = opt.gas.empty() ? trace.meta.gas : opt.gas;
   if (gas_key.empty())
-    throw input_error(where + ": field 'gas' is missing; the RABBITT analysis needs the target "
-                              "gas (its ionization energy places the harmonics).");
+    throw input_error(where +
+                      ": field 'gas' is missing; the RABBITT analysis needs the target "
+                      "gas (its ionization energy places the harmonics).");
   const Gas& gas = find_gas(gas_key);
-  const double lambda = opt.ir_wavelength_nm > 0 ? opt.ir_wavelength_nm : trace.meta.ir_wavelength_nm;
+  const double lambda =
+      opt.ir_wavelength_nm > 0 ? opt.ir_wavelength_nm : trace.meta.ir_wavelength_nm;
   if (!(lambda > 0.0))
-    throw input_error(where + ": field 'ir_wavelength_nm' is missing or not > 0; the RABBITT "
-                              "analysis needs the IR wavelength (it sets the 2 omega frequency).");
+    throw input_error(where +
+                      ": field 'ir_wavelength_nm' is missing or not > 0; the RABBITT "
+                      "analysis needs the IR wavelength (it sets the 2 omega frequency).");
   const double w = units::wavelength_nm_to_omega_au(lambda);
   const double ip = units::eV_to_au(gas.ionization_energy_eV);
   const double T = units::period_au(w);
@@ -291,8 +296,7 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   out.integrated_spectrum = delay_integrated_spectrum(trace);
   const std::vector<double>& s = out.integrated_spectrum;
   std::vector<double> dW(ne);
-  for (std::size_t j = 0; j < ne; ++j)
-    dW[j] = j + 1 < ne ? W[j + 1] - W[j] : W[j] - W[j - 1];
+  for (std::size_t j = 0; j < ne; ++j) dW[j] = j + 1 < ne ? W[j + 1] - W[j] : W[j] - W[j - 1];
   const double bin_eV = units::au_to_eV(median(dW));
   std::complex<double> F = 0.0;
   double total = 0.0;
@@ -303,6 +307,17 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   if (!(total > 0.0)) throw input_error(where + ": the trace holds no counts.");
   F *= std::polar(1.0, units::kPi * parity);
   const double comb_contrast = 2.0 * std::abs(F) / total;
+  if (comb_contrast < opt.min_comb_contrast) {
+    std::ostringstream os;
+    os << "the delay-integrated spectrum shows no harmonic comb at 2 hbar omega = "
+       << 2.0 * out.ir_photon_energy_eV << " eV (contrast " << comb_contrast << " < "
+       << opt.min_comb_contrast << ")";
+    if (opt.require_comb)
+      throw input_error(where + ": " + os.str() +
+                        "; this is not a RABBITT scan of a pulse train (check 'kind', the IR "
+                        "wavelength and the energy axis).");
+    out.warnings.push_back(os.str() + "; the RABBITT results are probably meaningless");
+  }
   const double coarse = comb_contrast > 0.02 ? -(w / units::kPi) * std::arg(F) : 0.0;
   out.alignment.coarse_offset_eV = units::au_to_eV(coarse);
 
@@ -374,22 +389,23 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
       al.scale_sigma = lf.slope_sigma;
       al.fitted = x.size() >= 2;
       if (!al.fitted) al.scale = 1.0;
-      const double half_span = 0.5 * (*std::max_element(x.begin(), x.end()) -
-                                      *std::min_element(x.begin(), x.end()));
+      const double half_span =
+          0.5 * (*std::max_element(x.begin(), x.end()) - *std::min_element(x.begin(), x.end()));
       al.within_resolution = std::abs(al.offset_eV) <= al.resolution_eV &&
                              std::abs(al.scale - 1.0) * half_span <= al.resolution_eV;
       if (!al.within_resolution) {
         std::ostringstream os;
-        os << "the observed harmonic/sideband peaks are offset by " << al.offset_eV
-           << " eV (scale " << al.scale << ") from q hbar omega - Ip (Ip = "
-           << gas.ionization_energy_eV << " eV, hbar omega = " << out.ir_photon_energy_eV
-           << " eV), more than the resolution " << al.resolution_eV
+        os << "the observed harmonic/sideband peaks are offset by " << al.offset_eV << " eV (scale "
+           << al.scale << ") from q hbar omega - Ip (Ip = " << gas.ionization_energy_eV
+           << " eV, hbar omega = " << out.ir_photon_energy_eV << " eV), more than the resolution "
+           << al.resolution_eV
            << " eV: check the energy calibration, the gas and the IR wavelength";
         out.warnings.push_back(os.str());
       }
     } else {
-      out.warnings.push_back("no significant harmonic peak found in the delay-integrated "
-                             "spectrum; windows are placed at q hbar omega - Ip");
+      out.warnings.push_back(
+          "no significant harmonic peak found in the delay-integrated "
+          "spectrum; windows are placed at q hbar omega - Ip");
     }
     double harm = 0, side = 0;
     int nh = 0, ns = 0;
@@ -403,9 +419,10 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
       }
     }
     if (nh > 0 && ns > 0 && side / ns > harm / nh)
-      out.warnings.push_back("the sideband peaks are on average stronger than the harmonic "
-                             "peaks: the IR is strong (multi-photon sidebands) or the harmonic "
-                             "parity is not the expected one");
+      out.warnings.push_back(
+          "the sideband peaks are on average stronger than the harmonic "
+          "peaks: the IR is strong (multi-photon sidebands) or the harmonic "
+          "parity is not the expected one");
   }
   auto aligned_au = [&](int q) {
     const double wp = units::au_to_eV(predicted(q));
@@ -491,8 +508,8 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
           best = Om;
         }
       }
-      const double Om_fit = golden_max(explained, std::max(lo, best - step),
-                                       std::min(hi, best + step), 60);
+      const double Om_fit =
+          golden_max(explained, std::max(lo, best - step), std::min(hi, best + step), 60);
       dc.performed = true;
       dc.fitted_frequency_au = Om_fit;
       dc.calibration_factor = Om_fit / Omega0;
@@ -524,8 +541,8 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
       }
     }
   } else if (opt.check_delay_axis) {
-    out.warnings.push_back("delay-axis check skipped: the scan (" +
-                           num(units::au_to_fs(span)) + " fs) is shorter than one IR period");
+    out.warnings.push_back("delay-axis check skipped: the scan (" + num(units::au_to_fs(span)) +
+                           " fs) is shorter than one IR period");
   }
 
   // --- sideband fits ----------------------------------------------------------------------
@@ -605,9 +622,9 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
     out.attochirp_intercept_as = lf.intercept;
     out.attochirp_reduced_chi2 = lf.reduced_chi2;
     if (lf.scaled)
-      out.params.push_back({"rabbitt.attochirp_sigma_note",
-                            std::string("sigma scaled by sqrt(reduced chi^2) = ") +
-                                num(std::sqrt(lf.reduced_chi2))});
+      out.params.push_back(
+          {"rabbitt.attochirp_sigma_note", std::string("sigma scaled by sqrt(reduced chi^2) = ") +
+                                               num(std::sqrt(lf.reduced_chi2))});
   } else {
     out.warnings.push_back("only one sideband could be fitted: no attochirp");
   }
@@ -634,11 +651,13 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   }
   out.sidebands = std::move(sbs);
   if (!scaled_list.empty())
-    out.warnings.push_back("sideband fits with reduced chi^2 > 2 (phase sigmas scaled by "
-                           "sqrt(chi^2_red)): SB " + scaled_list +
-                           "; the signal departs from A + B cos(2 omega tau) beyond Poisson "
-                           "noise (higher-order sidebands at strong IR, IR envelope, delay or "
-                           "intensity fluctuations)");
+    out.warnings.push_back(
+        "sideband fits with reduced chi^2 > 2 (phase sigmas scaled by "
+        "sqrt(chi^2_red)): SB " +
+        scaled_list +
+        "; the signal departs from A + B cos(2 omega tau) beyond Poisson "
+        "noise (higher-order sidebands at strong IR, IR envelope, delay or "
+        "intensity fluctuations)");
 
   auto P = [&](const std::string& k, auto v) { out.params.push_back({"rabbitt." + k, v}); };
   P("gas", out.gas);

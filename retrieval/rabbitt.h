@@ -14,24 +14,32 @@
 //     sigma = rms width / sqrt(area)) gives the energy-axis offset and scale. A warning is issued
 //     when the offset, or the scale error over the half span of the peaks, exceeds the
 //     spectrometer resolution (trace.meta.energy_resolution_eV, else the median bin width).
-//     The sideband windows are centred on the aligned positions.
+//     The sideband windows are centred on the aligned positions. The comb contrast
+//     2 |sum_j s_j e^{-i pi (W_j + Ip)/(hbar omega)}| / sum_j s_j (1 for a cosine modulation of
+//     full depth, up to 2 for narrow lines) must reach min_comb_contrast: a scan without a
+//     harmonic comb is refused (require_comb) or warned about.
 //  2. Sideband fits. Counts are summed over each sideband's window (half width
 //     window_half_width_fraction * hbar omega) and fitted over the whole delay axis (any
-//     spacing) by weighted linear least squares with the basis 1, cos(Omega tau), sin(Omega tau),
-//     Omega = 2 omega, Poisson weights 1/max(S, 1):
+//     spacing) by weighted linear least squares with the basis 1, cos(Omega tau),
+//     sin(Omega tau), Omega = 2 omega, Poisson weights 1/max(S, 1), followed by
+//     `reweight_passes` refits with the weights 1/max(model, 1) (iteratively reweighted least
+//     squares; data-based weights alone bias a deeply modulated sideband that drops to a few
+//     counts):
 //         S(tau) = A + B cos(Omega tau + phi),  c1 = B cos(phi), c2 = -B sin(phi).
 //     phi = atan2(-c2, c1); its variance is J C J^T with J = (c2, -c1)/B^2 and C the covariance
-//     (X^T W X)^-1, multiplied by the reduced chi^2 when that exceeds 1 (reported per sideband).
-//     Modulation depth B/A. The same fit per energy bin inside each window gives the phase
-//     across the sideband (rainbow RABBITT: V. Gruson et al., Science 354, 734 (2016)).
+//     (X^T W X)^-1, multiplied by the reduced chi^2 when that exceeds 1 (flagged per sideband,
+//     listed in the params and warned about above 2). Modulation depth B/A (A less the sidecar
+//     background). The same fit per energy bin inside each window gives the phase across the
+//     sideband (rainbow RABBITT: V. Gruson et al., Science 354, 734 (2016)).
 //  3. Delay-axis check. The oscillation frequency is fitted freely around 2 omega (within
 //     +-frequency_search_fraction) by maximising the summed explained weighted variance of the
-//     strongest sidebands (data-based weights; grid search, then golden-section refinement);
-//     the calibration factor
-//     kappa = Omega_fit / (2 omega) is the factor the delay axis must be multiplied by
-//     (tau_true = kappa tau_axis: an axis stretched by 3 % gives kappa = 1/1.03). Its sigma comes
-//     from the curvature of the summed chi^2 in Omega (Delta chi^2 = 1, after reduced-chi^2
-//     scaling). A warning is issued when |kappa - 1| exceeds calibration_warn_fraction.
+//     strongest sidebands (data-based weights; grid search, then golden-section refinement).
+//     The calibration factor kappa = Omega_fit / (2 omega) is the factor the delay axis must be
+//     multiplied by (tau_true = kappa tau_axis: an axis stretched by 3 % gives kappa = 1/1.03).
+//     Its sigma comes from the curvature of the summed chi^2 in Omega (Delta chi^2 = 1, after
+//     reduced-chi^2 scaling). A warning is issued when |kappa - 1| exceeds
+//     calibration_warn_fraction. A sideband amplitude that varies over the scan (IR envelope)
+//     biases kappa slightly (~0.1 % for a 30 fs IR pulse and a +-4 fs scan).
 //  4. Group delays, unwrapping and attochirp. SIGN CONVENTION. With DESIGN.md's delay
 //     tau = t_XUV - t_IR and the XUV field E(t) ~ sum_q |E_q| e^{i phi_q} e^{-i q omega t}
 //     (retrieval/grid.h), second-order perturbation theory (or the SFA of forward_model.h)
@@ -72,6 +80,11 @@ struct RabbittOptions {
   /// Half width of a sideband's (and harmonic's) integration window in units of hbar omega,
   /// in (0, 0.5]. 0.35 keeps clear of the neighbouring harmonic's wings.
   double window_half_width_fraction = 0.35;
+  /// Minimum comb contrast of the delay-integrated spectrum at period 2 hbar omega (see step 1),
+  /// in [0, 2).
+  double min_comb_contrast = 0.1;
+  /// Below that contrast: throw sw::Error (kInput) "not a RABBITT scan" (true) or only warn.
+  bool require_comb = true;
   /// A peak takes part in the energy-axis fit when its area above the local baseline exceeds
   /// this many Poisson standard deviations (> 0).
   double min_peak_significance = 5.0;
@@ -106,7 +119,7 @@ struct RabbittOptions {
 
 /// Weighted linear least-squares fit of S = A + B cos(Omega tau + phi) (see header comment).
 struct CosineFit {
-  double angular_frequency_au = 0.0;  ///< Omega used
+  double angular_frequency_au = 0.0;              ///< Omega used
   double mean = 0.0, mean_sigma = 0.0;            ///< A (counts)
   double amplitude = 0.0, amplitude_sigma = 0.0;  ///< B (counts), B >= 0
   double phase_rad = 0.0, phase_rad_sigma = 0.0;  ///< phi in (-pi, pi]
@@ -128,37 +141,37 @@ CosineFit fit_cosine(const std::vector<double>& delay_au, const std::vector<doub
 struct SpectralPeak {
   int order = 0;
   bool sideband = false;
-  double predicted_eV = 0.0;      ///< q hbar omega - Ip
-  double observed_eV = 0.0;       ///< centroid above the local baseline
+  double predicted_eV = 0.0;  ///< q hbar omega - Ip
+  double observed_eV = 0.0;   ///< centroid above the local baseline
   double observed_eV_sigma = 0.0;
-  double area_counts = 0.0;       ///< delay-integrated counts above the baseline
-  double significance = 0.0;      ///< area / Poisson sigma of the area
+  double area_counts = 0.0;   ///< delay-integrated counts above the baseline
+  double significance = 0.0;  ///< area / Poisson sigma of the area
   bool used_in_alignment = false;
 };
 
 /// Energy-axis alignment: W_obs = W_ref + offset + scale (W_pred - W_ref).
 struct EnergyAxisAlignment {
-  double reference_eV = 0.0;      ///< weighted mean predicted energy of the peaks used
+  double reference_eV = 0.0;  ///< weighted mean predicted energy of the peaks used
   double offset_eV = 0.0, offset_eV_sigma = 0.0;
   double scale = 1.0, scale_sigma = 0.0;
   double coarse_offset_eV = 0.0;  ///< from the 2 hbar omega Fourier phase (modulo 2 hbar omega)
   double resolution_eV = 0.0;     ///< resolution the result was compared with
   int peaks_used = 0;
-  bool fitted = false;            ///< false when fewer than 2 significant peaks
+  bool fitted = false;  ///< false when fewer than 2 significant peaks
   bool within_resolution = true;
 };
 
 /// One sideband in full detail (the contract's Sideband is derived from it).
 struct SidebandDetail {
   int order = 0;
-  double energy_eV = 0.0;             ///< nominal q hbar omega - Ip
-  double photon_energy_eV = 0.0;      ///< q hbar omega
+  double energy_eV = 0.0;                            ///< nominal q hbar omega - Ip
+  double photon_energy_eV = 0.0;                     ///< q hbar omega
   double window_low_eV = 0.0, window_high_eV = 0.0;  ///< integration window on the trace axis
   int window_bins = 0;
-  CosineFit fit;                      ///< fit of the window-integrated signal
-  double phase_unwrapped_rad = 0.0;   ///< phi after unwrapping across sidebands
-  double measured_delay_as = 0.0;     ///< phi_unwrapped / (2 omega)
-  AtomicDelay atomic;                 ///< correction applied (total_as subtracted)
+  CosineFit fit;                     ///< fit of the window-integrated signal
+  double phase_unwrapped_rad = 0.0;  ///< phi after unwrapping across sidebands
+  double measured_delay_as = 0.0;    ///< phi_unwrapped / (2 omega)
+  AtomicDelay atomic;                ///< correction applied (total_as subtracted)
   double group_delay_as = 0.0, group_delay_as_sigma = 0.0;  ///< XUV emission time t_e
   /// Rainbow RABBITT: phase (unwrapped within the sideband, relative branch of phi) per bin.
   std::vector<double> rainbow_energy_eV, rainbow_phase_rad, rainbow_phase_rad_sigma,
@@ -171,7 +184,7 @@ struct DelayAxisCheck {
   double nominal_frequency_au = 0.0;  ///< 2 omega
   double fitted_frequency_au = 0.0;
   double calibration_factor = 1.0, calibration_factor_sigma = 0.0;  ///< kappa (see header)
-  std::vector<int> sidebands_used;    ///< orders
+  std::vector<int> sidebands_used;                                  ///< orders
   bool applied = false;
 };
 
@@ -179,12 +192,12 @@ struct RabbittAnalysis {
   /// The contract section: sidebands (order, energy, phase, group delay, modulation depth,
   /// atomic delay) and the attochirp. train_burst_* are filled by retrieval/train_burst.h.
   RabbittSection section;
-  std::string gas;                    ///< gas symbol used
+  std::string gas;  ///< gas symbol used
   double ionization_energy_eV = 0.0;
   double ir_wavelength_nm = 0.0;
-  double ir_photon_energy_eV = 0.0;   ///< hbar omega
-  std::vector<double> energy_eV;      ///< the trace's energy axis (eV)
-  std::vector<double> delay_fs;       ///< the trace's delay axis (fs)
+  double ir_photon_energy_eV = 0.0;  ///< hbar omega
+  std::vector<double> energy_eV;     ///< the trace's energy axis (eV)
+  std::vector<double> delay_fs;      ///< the trace's delay axis (fs)
   /// Delay-integrated spectrum: per energy bin, the delay-step-weighted mean count times the
   /// number of delays (counts; equals the plain sum for uniform delays).
   std::vector<double> integrated_spectrum;

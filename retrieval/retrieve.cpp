@@ -6,6 +6,7 @@
 #include <numeric>
 #include <sstream>
 
+#include "retrieval/classifier.h"
 #include "retrieval/error.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/units.h"
@@ -141,34 +142,6 @@ double stddev(const std::vector<double>& v) {
   return std::sqrt(s / static_cast<double>(v.size() - 1));
 }
 
-VerdictSection verdict_from_retrieval(const PulseMetrics& m, const RetrieveOptions& o) {
-  VerdictSection v;
-  v.satellite_intensity_ratio = m.satellite_intensity_ratio;
-  v.main_burst_energy_fraction = m.main_burst_energy_fraction;
-  v.evidence.push_back({"retrieved_satellite_intensity_ratio", m.satellite_intensity_ratio});
-  v.evidence.push_back({"retrieved_main_burst_energy_fraction", m.main_burst_energy_fraction});
-  v.evidence.push_back({"retrieved_comparable_bursts", static_cast<long long>(m.comparable_bursts)});
-  std::ostringstream why;
-  if (m.comparable_bursts >= 3) {
-    v.pulse_class = PulseClass::kTrain;
-    why << m.comparable_bursts << " comparable bursts at T/2 spacing in the retrieved field";
-  } else if (m.satellite_intensity_ratio <= o.isolated_max_satellite_ratio) {
-    v.pulse_class = PulseClass::kIsolated;
-    why << "largest satellite " << 100 * m.satellite_intensity_ratio << " % <= "
-        << 100 * o.isolated_max_satellite_ratio << " % of the main burst";
-  } else if (m.satellite_intensity_ratio < o.satellites_max_satellite_ratio) {
-    v.pulse_class = PulseClass::kIsolatedWithSatellites;
-    why << "largest satellite " << 100 * m.satellite_intensity_ratio << " % of the main burst (above "
-        << 100 * o.isolated_max_satellite_ratio << " %, below " << 100 * o.satellites_max_satellite_ratio << " %)";
-  } else {
-    v.pulse_class = PulseClass::kUndetermined;
-    why << "satellite of " << 100 * m.satellite_intensity_ratio
-        << " % is comparable to the main burst but fewer than 3 comparable bursts were found";
-  }
-  v.reason = why.str();
-  return v;
-}
-
 }  // namespace
 
 RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const RetrieveProgress& progress) {
@@ -259,7 +232,12 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   res.xuv = m.xuv;
   res.ir = m.ir;
   res.ir->wavelength_nm = res.ir->wavelength_nm.value_or(trace.meta.ir_wavelength_nm);
-  VerdictSection v = verdict_from_retrieval(m, opt);
+  // The verdict of every analysis comes from one place (retrieval/classifier.h): the scan's
+  // spectral and delay evidence plus the reconstructed bursts.
+  ClassifierOptions co;
+  co.isolated_max_satellite_ratio = opt.isolated_max_satellite_ratio;
+  co.satellite_max_ratio = opt.satellites_max_satellite_ratio;
+  VerdictSection v = classify(trace, co, &rec);
   if (opt.bootstrap >= 2) {
     res.xuv->fwhm_as_sigma = stddev(bf);
     res.xuv->gdd_as2_sigma = stddev(bg);

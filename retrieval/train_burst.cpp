@@ -22,8 +22,8 @@ std::string num(double v) {
 
 // Area of the peak centred at c (a.u.) above the minimum of a 3-bin running mean within
 // +-omega/2, summed over |W - c| <= half; -1 when that window is not inside the energy axis.
-double peak_area(const std::vector<double>& W, const std::vector<double>& s, double c,
-                 double half, double omega) {
+double peak_area(const std::vector<double>& W, const std::vector<double>& s, double c, double half,
+                 double omega) {
   if (W.empty() || c - half < W.front() || c + half > W.back()) return -1.0;
   double base = 1e300;
   std::vector<std::size_t> idx;
@@ -127,8 +127,9 @@ TrainBurst reconstruct_train_burst(const Trace& trace, const RabbittAnalysis& rb
     a = b;
   }
   if (best_len == 0)
-    throw numeric_error("reconstruct_train_burst: no sideband phase is available; the burst "
-                        "needs at least two harmonics joined by a sideband.");
+    throw numeric_error(
+        "reconstruct_train_burst: no sideband phase is available; the burst "
+        "needs at least two harmonics joined by a sideband.");
   if (best_len < sbs.size())
     out.warnings.push_back("sidebands outside the longest run of consecutive orders (" +
                            std::to_string(sbs[best_start].order) + ".." +
@@ -145,7 +146,7 @@ TrainBurst reconstruct_train_burst(const Trace& trace, const RabbittAnalysis& rb
   } else {
     Wsp = trace.energy_au;
     spec = rb.integrated_spectrum.size() == trace.num_energies() ? rb.integrated_spectrum
-                                                                  : delay_integrated_spectrum(trace);
+                                                                 : delay_integrated_spectrum(trace);
     out.spectrum_source = "delay-integrated spectrum";
   }
   const EnergyAxisAlignment& al = rb.alignment;
@@ -180,8 +181,10 @@ TrainBurst reconstruct_train_burst(const Trace& trace, const RabbittAnalysis& rb
     }
     const double I = sigma > 0 && area > 0 ? area / sigma : 0.0;
     if (area < 0.0)
-      out.warnings.push_back("harmonic " + std::to_string(q) + " lies outside the energy axis of "
-                             "the " + out.spectrum_source + "; its amplitude is set to 0");
+      out.warnings.push_back("harmonic " + std::to_string(q) +
+                             " lies outside the energy axis of "
+                             "the " +
+                             out.spectrum_source + "; its amplitude is set to 0");
     else if (!(area > 0.0))
       out.warnings.push_back("harmonic " + std::to_string(q) +
                              " has no counts above the baseline; its amplitude is 0");
@@ -191,8 +194,10 @@ TrainBurst reconstruct_train_burst(const Trace& trace, const RabbittAnalysis& rb
     Imax = std::max(Imax, I);
   }
   if (!(Imax > 0.0))
-    throw numeric_error("reconstruct_train_burst: no harmonic peak has counts above the "
-                        "baseline in the " + out.spectrum_source + ".");
+    throw numeric_error(
+        "reconstruct_train_burst: no harmonic peak has counts above the "
+        "baseline in the " +
+        out.spectrum_source + ".");
   for (std::size_t h = 0; h < nh; ++h) {
     out.harmonic_intensity[h] /= Imax;
     amp[h] = std::sqrt(out.harmonic_intensity[h]);
@@ -208,7 +213,8 @@ TrainBurst reconstruct_train_burst(const Trace& trace, const RabbittAnalysis& rb
   // Half-period tables for FWHM evaluations.
   const std::size_t nhalf = static_cast<std::size_t>(opt.samples_per_period / 2);
   const double dt = 0.5 * T / static_cast<double>(nhalf);
-  std::vector<std::vector<std::complex<double>>> table(nh, std::vector<std::complex<double>>(nhalf));
+  std::vector<std::vector<std::complex<double>>> table(nh,
+                                                       std::vector<std::complex<double>>(nhalf));
   for (std::size_t h = 0; h < nh; ++h)
     for (std::size_t i = 0; i < nhalf; ++i)
       table[h][i] = std::polar(1.0, -out.harmonic_orders[h] * w * (static_cast<double>(i) * dt));

@@ -64,21 +64,21 @@ struct TrainBurstOptions {
 };
 
 struct TrainBurst {
-  std::vector<int> harmonic_orders;          ///< ascending, contiguous chain
+  std::vector<int> harmonic_orders;  ///< ascending, contiguous chain
   std::vector<double> harmonic_photon_energy_eV;
-  std::vector<double> harmonic_intensity;    ///< I_q after the cross-section, max = 1
-  std::vector<double> harmonic_phase_rad;    ///< phi_q (phi = 0 at the first)
-  std::vector<double> time_as;               ///< sample times (IR time axis)
-  std::vector<double> intensity;             ///< |E(t)|^2, max = 1
+  std::vector<double> harmonic_intensity;           ///< I_q after the cross-section, max = 1
+  std::vector<double> harmonic_phase_rad;           ///< phi_q (phi = 0 at the first)
+  std::vector<double> time_as;                      ///< sample times (IR time axis)
+  std::vector<double> intensity;                    ///< |E(t)|^2, max = 1
   std::vector<double> transform_limited_intensity;  ///< flat phases, max = 1, same times
   double fwhm_as = 0.0, fwhm_as_sigma = 0.0;
   double transform_limited_fwhm_as = 0.0;
-  double peak_time_as = 0.0;                 ///< main burst's maximum, in (-T/4, T/4] (bursts
-                                             ///< repeat every T/2)
+  double peak_time_as = 0.0;  ///< main burst's maximum, in (-T/4, T/4] (bursts
+                              ///< repeat every T/2)
   int monte_carlo_draws = 0;
-  std::string spectrum_source;               ///< "xuv-only spectrum" or "delay-integrated spectrum"
-  std::string cross_section;                 ///< model used
-  std::string assumptions;                   ///< the method's assumptions, for the report
+  std::string spectrum_source;  ///< "xuv-only spectrum" or "delay-integrated spectrum"
+  std::string cross_section;    ///< model used
+  std::string assumptions;      ///< the method's assumptions, for the report
   std::vector<std::string> warnings;
 };
 

@@ -36,20 +36,24 @@ void visit_axis(FieldVisitor& v, const std::string& p, AxisSpec& a) {
 void visit_fields(ScanConfig& c, FieldVisitor& v) {
   v.text("name", c.name);
   v.text("gas", c.gas);
-  visit_enum(v, "dipole", c.dipole, [](DipoleKind k) { return sw::to_string(k); },
-             [](const std::string& s, DipoleKind* o) { return parse_dipole_kind(s, o); },
-             {"constant", "hydrogenic"});
+  visit_enum(
+      v, "dipole", c.dipole, [](DipoleKind k) { return sw::to_string(k); },
+      [](const std::string& s, DipoleKind* o) { return parse_dipole_kind(s, o); },
+      {"constant", "hydrogenic"});
   v.number("dipole_reference_momentum_au", c.dipole_reference_momentum_au);
-  visit_enum(v, "kind", c.kind, [](TraceKind k) { return sw::to_string(k); },
-             [](const std::string& s, TraceKind* o) { return parse_trace_kind(s, o); },
-             {"streaking", "rabbitt", "xuv_only", ""});
-  visit_enum(v, "output_format", c.output_format, [](OutputFormat f) { return to_string(f); },
-             [](const std::string& s, OutputFormat* o) { return parse_output_format(s, o); },
-             {"png16", "tiff", "csv"});
+  visit_enum(
+      v, "kind", c.kind, [](TraceKind k) { return sw::to_string(k); },
+      [](const std::string& s, TraceKind* o) { return parse_trace_kind(s, o); },
+      {"streaking", "rabbitt", "xuv_only", ""});
+  visit_enum(
+      v, "output_format", c.output_format, [](OutputFormat f) { return to_string(f); },
+      [](const std::string& s, OutputFormat* o) { return parse_output_format(s, o); },
+      {"png16", "tiff", "csv"});
 
-  visit_enum(v, "xuv.kind", c.xuv.kind, [](XuvKind k) { return to_string(k); },
-             [](const std::string& s, XuvKind* o) { return parse_xuv_kind(s, o); },
-             {"gaussian", "train", "satellites", "tabulated"});
+  visit_enum(
+      v, "xuv.kind", c.xuv.kind, [](XuvKind k) { return to_string(k); },
+      [](const std::string& s, XuvKind* o) { return parse_xuv_kind(s, o); },
+      {"gaussian", "train", "satellites", "tabulated"});
   visit_burst(v, "xuv.gaussian.", c.xuv.gaussian);
   visit_burst(v, "xuv.train.burst.", c.xuv.train.burst);
   v.number("xuv.train.driver_wavelength_nm", c.xuv.train.driver_wavelength_nm);
@@ -66,9 +70,9 @@ void visit_fields(ScanConfig& c, FieldVisitor& v) {
   v.numbers("xuv.tabulated.spectral_intensity", c.xuv.tabulated.spectral_intensity);
   v.numbers("xuv.tabulated.spectral_phase_rad", c.xuv.tabulated.spectral_phase_rad);
 
-  visit_enum(v, "ir.kind", c.ir.kind, [](IrKind k) { return to_string(k); },
-             [](const std::string& s, IrKind* o) { return parse_ir_kind(s, o); },
-             {"gaussian", "none"});
+  visit_enum(
+      v, "ir.kind", c.ir.kind, [](IrKind k) { return to_string(k); },
+      [](const std::string& s, IrKind* o) { return parse_ir_kind(s, o); }, {"gaussian", "none"});
   v.number("ir.wavelength_nm", c.ir.pulse.wavelength_nm);
   v.number("ir.fwhm_fs", c.ir.pulse.fwhm_fs);
   v.number("ir.peak_intensity_Wcm2", c.ir.pulse.peak_intensity_Wcm2);
@@ -81,9 +85,10 @@ void visit_fields(ScanConfig& c, FieldVisitor& v) {
   v.numbers("delay_fs.values", c.geometry.delay_values_fs);
 
   NoiseConfig& n = c.noise;
-  visit_enum(v, "noise.resolution", n.resolution, [](ResolutionKind k) { return to_string(k); },
-             [](const std::string& s, ResolutionKind* o) { return parse_resolution_kind(s, o); },
-             {"none", "constant", "relative"});
+  visit_enum(
+      v, "noise.resolution", n.resolution, [](ResolutionKind k) { return to_string(k); },
+      [](const std::string& s, ResolutionKind* o) { return parse_resolution_kind(s, o); },
+      {"none", "constant", "relative"});
   v.number("noise.resolution_fwhm_eV", n.resolution_fwhm_eV);
   v.number("noise.resolution_relative", n.resolution_relative);
   v.number("noise.peak_counts", n.peak_counts);

@@ -19,9 +19,9 @@
 namespace sw::synthetic {
 
 struct RowPerturbation {
-  double delay_offset_fs = 0.0;      ///< actual delay - nominal delay
-  double intensity_factor = 1.0;     ///< actual / nominal IR peak intensity
-  double cep_offset_rad = 0.0;       ///< actual - nominal CEP
+  double delay_offset_fs = 0.0;   ///< actual delay - nominal delay
+  double intensity_factor = 1.0;  ///< actual / nominal IR peak intensity
+  double cep_offset_rad = 0.0;    ///< actual - nominal CEP
 };
 
 /// One perturbation per row (rows = delays in ascending order), drawn from the kDelayJitter,

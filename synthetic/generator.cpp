@@ -42,7 +42,8 @@ SyntheticScan generate_scan(const ScanConfig& c, unsigned long long seed) {
     max_factor = std::max(max_factor, out.rows[i].intensity_factor);
   }
   if (has_row_perturbations(c.noise))
-    for (const RowPerturbation& r : out.rows) mods.push_back({r.intensity_factor, r.cep_offset_rad});
+    for (const RowPerturbation& r : out.rows)
+      mods.push_back({r.intensity_factor, r.cep_offset_rad});
 
   std::optional<GaussianIrPulse> ir;
   if (c.ir.kind == IrKind::kGaussian) ir = c.ir.pulse;
@@ -53,8 +54,9 @@ SyntheticScan generate_scan(const ScanConfig& c, unsigned long long seed) {
   for (double w : W) detuning = std::max(detuning, std::abs(w + ip - wc));
   const double B = xuv_half_bandwidth_au(c.xuv);
   const double g = SfaQuadrature::gate_spread(ir, std::sqrt(2.0 * W.back()), max_factor);
-  const double h = std::min(SfaQuadrature::nyquist_step(detuning, B, g), units::kPi / B) /
-                   c.numerics.oversampling;
+  double h = std::min(SfaQuadrature::nyquist_step(detuning, B, g), units::kPi / B) /
+             c.numerics.oversampling;
+  if (!std::isfinite(h) || !(h > 0)) h = 1.0;  // degenerate spectrum: any step is alias-free
   const BuiltXuv built = build_xuv_auto(c.xuv, h, c.numerics.edge_tolerance);
 
   const double wref = xuv_carrier_au(c.xuv) - ip;
@@ -65,6 +67,15 @@ SyntheticScan generate_scan(const ScanConfig& c, unsigned long long seed) {
   qo.node_threshold = c.numerics.node_threshold;
   qo.threads = c.numerics.threads;
   const SfaQuadrature sfa(built.field, ir, ip, DipoleModel(c.dipole, ip, kref), qo);
+  const double work = static_cast<double>(sfa.active_nodes()) * static_cast<double>(W.size()) *
+                      static_cast<double>(tau.size());
+  if (work > 2e11) {
+    std::ostringstream s;
+    s << "synthetic scan: " << sfa.active_nodes() << " quadrature nodes x " << W.size()
+      << " energies x " << tau.size() << " delays is too large to evaluate (> 2e11 terms); "
+      << "shorten the XUV field (xuv.*), the energy axis (energy_eV) or the delay axis (delay_fs)";
+    throw usage_error(s.str());
+  }
   out.clean = sfa.density(tau_actual, W, mods);
   out.quadrature_step_au = built.field.grid().dt();
   out.quadrature_nodes = sfa.active_nodes();
@@ -111,10 +122,9 @@ SyntheticScan generate_scan(const ScanConfig& c, unsigned long long seed) {
 
   // Truth record from the exact field, sampled finely for the metrics.
   const double tl = transform_limited_fwhm(built.field);
-  const double fine_step =
-      tl > 0 ? c.numerics.truth_step_fraction * tl : built.field.grid().dt();
-  // ... and with spectral bins of 1/64 of the spectral width (time window >= 2 pi / bin).
-  const double min_window = units::kTwoPi / (xuv_spectral_scale_au(c.xuv) / 64.0);
+  const double fine_step = tl > 0 ? c.numerics.truth_step_fraction * tl : built.field.grid().dt();
+  // ... and with spectral bins of 1/32 of the spectral width (time window >= 2 pi / bin).
+  const double min_window = units::kTwoPi / (xuv_spectral_scale_au(c.xuv) / 32.0);
   out.xuv = refine_xuv(c.xuv, built.field.grid(), fine_step, min_window);
   out.truth = make_truth(c, out.xuv, sfa.ir_table());
   out.parameters = generator_parameters(c, seed, out.quadrature_step_au, out.quadrature_nodes,

@@ -59,8 +59,7 @@ void EnergyResolution::apply(Eigen::MatrixXd& counts, const std::vector<double>&
   }
 }
 
-void PeakScaling::apply(Eigen::MatrixXd& counts, const std::vector<double>&,
-                        RandomStreams&) const {
+void PeakScaling::apply(Eigen::MatrixXd& counts, const std::vector<double>&, RandomStreams&) const {
   const double m = counts.size() > 0 ? counts.maxCoeff() : 0.0;
   if (!(m > 0) || !std::isfinite(m))
     throw input_error(

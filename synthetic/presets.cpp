@@ -73,7 +73,6 @@ ScanConfig satellites() {
   c.xuv.satellites.driver_wavelength_nm = 800.0;
   c.xuv.satellites.satellite_intensity_ratio_before = 0.15;
   c.xuv.satellites.satellite_intensity_ratio_after = 0.08;
-  c.xuv.gaussian = c.xuv.satellites.burst;
   return c;
 }
 
@@ -112,7 +111,6 @@ ScanConfig rabbitt() {
   c.xuv.train.driver_wavelength_nm = 800.0;
   c.xuv.train.train_fwhm_fs = 8.0;
   c.xuv.train.max_bursts = 41;
-  c.xuv.gaussian = c.xuv.train.burst;
   c.ir.pulse = GaussianIrPulse{800.0, 30.0, 1e11, 0.0, 0.0, 0.0};
   // H13 (4.4 eV) .. H31 (32.3 eV) photoelectrons; 0.05 eV bins resolve the 0.23 eV lines.
   c.geometry.energy_eV = {3.0, 0.05, 641};

@@ -22,7 +22,7 @@ namespace sw::synthetic {
 
 struct Preset {
   std::string name;
-  std::string description;   ///< one line
+  std::string description;  ///< one line
   ScanConfig config;
 };
 

@@ -39,69 +39,99 @@ std::string check_axis(const char* key, const AxisSpec& a, bool positive_first) 
 
 const char* to_string(XuvKind k) {
   switch (k) {
-    case XuvKind::kTrain: return "train";
-    case XuvKind::kSatellites: return "satellites";
-    case XuvKind::kTabulated: return "tabulated";
-    default: return "gaussian";
+    case XuvKind::kTrain:
+      return "train";
+    case XuvKind::kSatellites:
+      return "satellites";
+    case XuvKind::kTabulated:
+      return "tabulated";
+    default:
+      return "gaussian";
   }
 }
 
 bool parse_xuv_kind(const std::string& s, XuvKind* out) {
-  if (s == "gaussian") *out = XuvKind::kGaussian;
-  else if (s == "train") *out = XuvKind::kTrain;
-  else if (s == "satellites") *out = XuvKind::kSatellites;
-  else if (s == "tabulated") *out = XuvKind::kTabulated;
-  else return false;
+  if (s == "gaussian")
+    *out = XuvKind::kGaussian;
+  else if (s == "train")
+    *out = XuvKind::kTrain;
+  else if (s == "satellites")
+    *out = XuvKind::kSatellites;
+  else if (s == "tabulated")
+    *out = XuvKind::kTabulated;
+  else
+    return false;
   return true;
 }
 
 const char* to_string(IrKind k) { return k == IrKind::kNone ? "none" : "gaussian"; }
 
 bool parse_ir_kind(const std::string& s, IrKind* out) {
-  if (s == "gaussian") *out = IrKind::kGaussian;
-  else if (s == "none") *out = IrKind::kNone;
-  else return false;
+  if (s == "gaussian")
+    *out = IrKind::kGaussian;
+  else if (s == "none")
+    *out = IrKind::kNone;
+  else
+    return false;
   return true;
 }
 
 const char* to_string(ResolutionKind k) {
   switch (k) {
-    case ResolutionKind::kConstant: return "constant";
-    case ResolutionKind::kRelative: return "relative";
-    default: return "none";
+    case ResolutionKind::kConstant:
+      return "constant";
+    case ResolutionKind::kRelative:
+      return "relative";
+    default:
+      return "none";
   }
 }
 
 bool parse_resolution_kind(const std::string& s, ResolutionKind* out) {
-  if (s == "none") *out = ResolutionKind::kNone;
-  else if (s == "constant") *out = ResolutionKind::kConstant;
-  else if (s == "relative") *out = ResolutionKind::kRelative;
-  else return false;
+  if (s == "none")
+    *out = ResolutionKind::kNone;
+  else if (s == "constant")
+    *out = ResolutionKind::kConstant;
+  else if (s == "relative")
+    *out = ResolutionKind::kRelative;
+  else
+    return false;
   return true;
 }
 
 const char* to_string(OutputFormat f) {
   switch (f) {
-    case OutputFormat::kTiff: return "tiff";
-    case OutputFormat::kCsv: return "csv";
-    default: return "png16";
+    case OutputFormat::kTiff:
+      return "tiff";
+    case OutputFormat::kCsv:
+      return "csv";
+    default:
+      return "png16";
   }
 }
 
 bool parse_output_format(const std::string& s, OutputFormat* out) {
-  if (s == "png16") *out = OutputFormat::kPng16;
-  else if (s == "tiff") *out = OutputFormat::kTiff;
-  else if (s == "csv") *out = OutputFormat::kCsv;
-  else return false;
+  if (s == "png16")
+    *out = OutputFormat::kPng16;
+  else if (s == "tiff")
+    *out = OutputFormat::kTiff;
+  else if (s == "csv")
+    *out = OutputFormat::kCsv;
+  else
+    return false;
   return true;
 }
 
 const GaussianXuvPulse* XuvConfig::burst() const {
   switch (kind) {
-    case XuvKind::kGaussian: return &gaussian;
-    case XuvKind::kTrain: return &train.burst;
-    case XuvKind::kSatellites: return &satellites.burst;
-    default: return nullptr;
+    case XuvKind::kGaussian:
+      return &gaussian;
+    case XuvKind::kTrain:
+      return &train.burst;
+    case XuvKind::kSatellites:
+      return &satellites.burst;
+    default:
+      return nullptr;
   }
 }
 
@@ -161,12 +191,12 @@ std::string IrConfig::validate() const {
     return bad("ir.wavelength_nm", p.wavelength_nm, "a finite wavelength > 0 nm");
   if (!finite(p.fwhm_fs) || !(p.fwhm_fs > 0))
     return bad("ir.fwhm_fs", p.fwhm_fs, "a finite duration > 0 fs");
-  if (!finite(p.peak_intensity_Wcm2) || p.peak_intensity_Wcm2 < 0 ||
-      p.peak_intensity_Wcm2 > 1e16)
+  if (!finite(p.peak_intensity_Wcm2) || p.peak_intensity_Wcm2 < 0 || p.peak_intensity_Wcm2 > 1e16)
     return bad("ir.peak_intensity_Wcm2", p.peak_intensity_Wcm2,
                "finite, >= 0 and at most 1e16 W/cm^2 (the SFA streaking regime)");
   if (!finite(p.cep_rad)) return bad("ir.cep_rad", p.cep_rad, "finite");
-  if (!finite(p.chirp_rad_per_fs2)) return bad("ir.chirp_rad_per_fs2", p.chirp_rad_per_fs2, "finite");
+  if (!finite(p.chirp_rad_per_fs2))
+    return bad("ir.chirp_rad_per_fs2", p.chirp_rad_per_fs2, "finite");
   if (!finite(p.center_fs)) return bad("ir.center_fs", p.center_fs, "finite");
   return {};
 }
@@ -257,8 +287,7 @@ std::string ScanConfig::validate() const {
         return bad(k, d[i], "larger than the previous delay (strictly ascending)");
     }
   }
-  if (ir.kind == IrKind::kNone &&
-      (kind == TraceKind::kStreaking || kind == TraceKind::kRabbitt))
+  if (ir.kind == IrKind::kNone && (kind == TraceKind::kStreaking || kind == TraceKind::kRabbitt))
     return std::string("kind = ") + sw::to_string(kind) +
            " is invalid with ir.kind = none: a streaking or RABBITT scan needs an IR field "
            "(use kind = xuv_only or give the IR pulse).";

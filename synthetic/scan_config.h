@@ -36,24 +36,24 @@ bool parse_xuv_kind(const std::string& s, XuvKind* out);
 /// A tabulated XUV spectrum (make_tabulated_xuv): columns of equal length, photon energies
 /// strictly ascending (eV), spectral intensity >= 0 (any unit), spectral phase (rad, unwrapped).
 struct TabulatedSpectrum {
-  double carrier_eV = 95.0;                 ///< reference photon energy of the envelope (> 0)
-  std::vector<double> photon_energy_eV;     ///< >= 2 values, strictly ascending
-  std::vector<double> spectral_intensity;   ///< same length, >= 0
-  std::vector<double> spectral_phase_rad;   ///< same length
+  double carrier_eV = 95.0;                ///< reference photon energy of the envelope (> 0)
+  std::vector<double> photon_energy_eV;    ///< >= 2 values, strictly ascending
+  std::vector<double> spectral_intensity;  ///< same length, >= 0
+  std::vector<double> spectral_phase_rad;  ///< same length
 };
 
 /// The XUV description: `kind` selects which of the parameter structs is used; the others are
 /// kept (and recorded) but ignored.
 struct XuvConfig {
   XuvKind kind = XuvKind::kGaussian;
-  GaussianXuvPulse gaussian;                ///< used when kind == kGaussian
-  XuvTrain train;                           ///< used when kind == kTrain
-  XuvWithSatellites satellites;             ///< used when kind == kSatellites
-  TabulatedSpectrum tabulated;              ///< used when kind == kTabulated
+  GaussianXuvPulse gaussian;     ///< used when kind == kGaussian
+  XuvTrain train;                ///< used when kind == kTrain
+  XuvWithSatellites satellites;  ///< used when kind == kSatellites
+  TabulatedSpectrum tabulated;   ///< used when kind == kTabulated
 
   /// The Gaussian burst underlying kGaussian/kTrain/kSatellites (nullptr for kTabulated).
   const GaussianXuvPulse* burst() const;
-  std::string validate() const;             ///< names fields as "xuv.<struct>.<field>"
+  std::string validate() const;  ///< names fields as "xuv.<struct>.<field>"
 };
 
 /// Presence of the IR streaking field.
@@ -69,7 +69,7 @@ struct IrConfig {
   /// The IR pulse. Defaults of the reference scenario: 800 nm, 5 fs, 5e12 W/cm^2, cosine CEP,
   /// centred on the IR reference time t_IR = 0.
   GaussianIrPulse pulse{800.0, 5.0, 5e12, 0.0, 0.0, 0.0};
-  std::string validate() const;             ///< names fields as "ir.<field>"
+  std::string validate() const;  ///< names fields as "ir.<field>"
 };
 
 /// A uniform axis {first, step, count} in boundary units.
@@ -121,24 +121,24 @@ bool parse_resolution_kind(const std::string& s, ResolutionKind* out);
 /// one effect on or off never changes the realisation of another.
 struct NoiseConfig {
   ResolutionKind resolution = ResolutionKind::kNone;  ///< spectrometer model
-  double resolution_fwhm_eV = 0.0;    ///< kConstant: FWHM (eV, > 0 when used)
-  double resolution_relative = 0.0;   ///< kRelative: FWHM / W (> 0 when used, < 1)
-  double peak_counts = 500.0;         ///< expected counts of the largest signal bin (> 0)
-  double background_counts = 0.0;     ///< constant background, expected counts per bin (>= 0)
+  double resolution_fwhm_eV = 0.0;                    ///< kConstant: FWHM (eV, > 0 when used)
+  double resolution_relative = 0.0;                   ///< kRelative: FWHM / W (> 0 when used, < 1)
+  double peak_counts = 500.0;      ///< expected counts of the largest signal bin (> 0)
+  double background_counts = 0.0;  ///< constant background, expected counts per bin (>= 0)
   /// Energy-dependent background B(W) = background_exp_counts * exp(-W / background_exp_decay_eV)
   /// (W = kinetic energy, eV): the low-energy electron tail; counts per bin at W = 0 (>= 0).
   double background_exp_counts = 0.0;
   double background_exp_decay_eV = 10.0;  ///< decay energy of that tail (> 0)
-  bool poisson = true;                ///< replace expected counts by Poisson draws
-  double readout_rms_counts = 0.0;    ///< Gaussian readout noise, rms counts per bin (>= 0)
-  double saturation_counts = 0.0;     ///< clip level of the detector (0 = no saturation)
-  double delay_jitter_rms_fs = 0.0;   ///< independent delay error per row, rms (fs, >= 0)
-  double delay_drift_fs_per_row = 0.0;  ///< linear stage drift per acquired row (fs, any sign)
-  double delay_walk_rms_fs = 0.0;     ///< random-walk drift: rms of each row's increment (fs, >= 0)
-  double ir_intensity_rms = 0.0;      ///< relative rms of the IR peak intensity per row, [0, 1)
-  double cep_jitter_rms_rad = 0.0;    ///< rms of the IR CEP per row (rad, >= 0)
+  bool poisson = true;                    ///< replace expected counts by Poisson draws
+  double readout_rms_counts = 0.0;        ///< Gaussian readout noise, rms counts per bin (>= 0)
+  double saturation_counts = 0.0;         ///< clip level of the detector (0 = no saturation)
+  double delay_jitter_rms_fs = 0.0;       ///< independent delay error per row, rms (fs, >= 0)
+  double delay_drift_fs_per_row = 0.0;    ///< linear stage drift per acquired row (fs, any sign)
+  double delay_walk_rms_fs = 0.0;   ///< random-walk drift: rms of each row's increment (fs, >= 0)
+  double ir_intensity_rms = 0.0;    ///< relative rms of the IR peak intensity per row, [0, 1)
+  double cep_jitter_rms_rad = 0.0;  ///< rms of the IR CEP per row (rad, >= 0)
 
-  std::string validate() const;       ///< names fields as "noise.<field>"
+  std::string validate() const;  ///< names fields as "noise.<field>"
 };
 
 /// How finely the SFA integral is sampled (defaults are accurate to ~1e-6 relative).
@@ -153,9 +153,9 @@ struct NumericsConfig {
   double edge_tolerance = 1e-6;
   /// Time step of the grid on which the truth pulse metrics are evaluated, as a fraction of
   /// the transform-limited FWHM (in (0, 0.2]).
-  double truth_step_fraction = 1.0 / 64.0;
-  int threads = 0;                    ///< OpenMP threads over delays; 0 = OpenMP default
-  std::string validate() const;       ///< names fields as "numerics.<field>"
+  double truth_step_fraction = 1.0 / 32.0;
+  int threads = 0;               ///< OpenMP threads over delays; 0 = OpenMP default
+  std::string validate() const;  ///< names fields as "numerics.<field>"
 };
 
 /// Preferred data format of the written scan (io/ writes; this is only recorded).
@@ -164,10 +164,10 @@ const char* to_string(OutputFormat f);
 bool parse_output_format(const std::string& s, OutputFormat* out);
 
 struct ScanConfig {
-  std::string name;                        ///< label for notes (e.g. the preset name)
+  std::string name;  ///< label for notes (e.g. the preset name)
   XuvConfig xuv;
   IrConfig ir;
-  std::string gas = "Ne";                  ///< target symbol or name (retrieval/gas.h)
+  std::string gas = "Ne";                     ///< target symbol or name (retrieval/gas.h)
   DipoleKind dipole = DipoleKind::kConstant;  ///< bound-free dipole model (retrieval/dipole.h)
   /// Momentum (a.u.) where the hydrogenic dipole is normalised to 1; 0 = the central momentum
   /// sqrt(2 (Omega0 - Ip)). Ignored by the constant dipole. (>= 0)

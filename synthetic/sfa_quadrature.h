@@ -23,8 +23,10 @@
 // the detuning and the Volkov phase rate, not by the XUV carrier.
 //
 // A is the analytic Gaussian vector potential at every node; I1, I2 come from VolkovTable.
-// Nodes where |eps| < node_threshold * max|eps| are skipped. OpenMP over delays; per-thread
-// buffers are allocated once.
+// Nodes where |eps| < node_threshold * max|eps| are skipped. On a uniform energy axis the
+// phasors are advanced from one energy to the next by a rotation (exactly recomputed every 32
+// energies; see the .cpp), so the cost per term is a few multiplications, not a sine and a
+// cosine. OpenMP over delays; per-thread buffers are allocated once.
 
 #include <optional>
 #include <vector>
@@ -46,8 +48,8 @@ class SfaQuadrature {
  public:
   /// xuv: the exact field on its grid; ir: the IR pulse (std::nullopt = no IR field);
   /// ionization_energy_au: Ip; dipole: d(k).
-  SfaQuadrature(XuvField xuv, const std::optional<GaussianIrPulse>& ir,
-                double ionization_energy_au, DipoleModel dipole, QuadratureOptions options = {});
+  SfaQuadrature(XuvField xuv, const std::optional<GaussianIrPulse>& ir, double ionization_energy_au,
+                DipoleModel dipole, QuadratureOptions options = {});
 
   /// Complex amplitudes a(W_j, tau_i) (rows = delays). `modifiers` (empty, or one per delay)
   /// perturb each row's IR pulse; `delay_au` are the actual delays of the rows.

@@ -44,16 +44,18 @@ VerdictSection classify_bursts(const BurstStructure& b, const VerdictThresholds&
 
 double truth_driver_period_au(const ScanConfig& c) {
   double nm = 800.0;
-  if (c.xuv.kind == XuvKind::kTrain) nm = c.xuv.train.driver_wavelength_nm;
-  else if (c.xuv.kind == XuvKind::kSatellites) nm = c.xuv.satellites.driver_wavelength_nm;
-  else if (c.ir.kind == IrKind::kGaussian) nm = c.ir.pulse.wavelength_nm;
+  if (c.xuv.kind == XuvKind::kTrain)
+    nm = c.xuv.train.driver_wavelength_nm;
+  else if (c.xuv.kind == XuvKind::kSatellites)
+    nm = c.xuv.satellites.driver_wavelength_nm;
+  else if (c.ir.kind == IrKind::kGaussian)
+    nm = c.ir.pulse.wavelength_nm;
   return driver_period_au(nm);
 }
 
 AnalysisResult make_truth(const ScanConfig& c, const XuvField& f, const VolkovTable* ir) {
   AnalysisResult r;
   r.analysis = "simulate";
-  r.input = c.name;
 
   XuvSection x;
   x.fwhm_as = units::au_to_as(intensity_fwhm(f));

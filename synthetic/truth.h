@@ -31,9 +31,9 @@ namespace sw::synthetic {
 
 /// Verdict thresholds (DESIGN.md defaults).
 struct VerdictThresholds {
-  double isolated_max_satellite = 0.10;   ///< isolated when the satellite ratio is <= this
-  double satellites_max_ratio = 0.70;     ///< isolated_with_satellites below this
-  int train_min_bursts = 3;               ///< train with at least this many comparable bursts
+  double isolated_max_satellite = 0.10;  ///< isolated when the satellite ratio is <= this
+  double satellites_max_ratio = 0.70;    ///< isolated_with_satellites below this
+  int train_min_bursts = 3;              ///< train with at least this many comparable bursts
 };
 
 /// Verdict of a known burst structure.
@@ -51,7 +51,6 @@ AnalysisResult make_truth(const ScanConfig& config, const XuvField& xuv_fine,
 /// The generator parameters: config fields, seed, numerics, realised per-row perturbations.
 std::vector<Param> generator_parameters(const ScanConfig& config, unsigned long long seed,
                                         double quadrature_step_au, std::size_t quadrature_nodes,
-                                        double window_au,
-                                        const std::vector<RowPerturbation>& rows);
+                                        double window_au, const std::vector<RowPerturbation>& rows);
 
 }  // namespace sw::synthetic

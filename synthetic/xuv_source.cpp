@@ -33,6 +33,14 @@ double burst_half_extent(const GaussianXuvPulse& b) {
          kTemporalSupportFwhms * units::as_to_au(b.transform_limited_fwhm_as) + gd;
 }
 
+// Grid sizes are powers of two: FFTW plans (made with FFTW_MEASURE, cached per size by sw::Fft)
+// are cheapest to make for them, and repeated scans reuse the same few sizes.
+std::size_t pow2_at_least(std::size_t n) {
+  std::size_t p = 16;
+  while (p < n) p *= 2;
+  return p;
+}
+
 double edge_level(const XuvField& f) {
   const CVec& e = f.envelope();
   const std::size_t n = e.size();
@@ -70,11 +78,14 @@ double xuv_half_bandwidth_au(const XuvConfig& x) {
 
 double xuv_half_extent_au(const XuvConfig& x) {
   switch (x.kind) {
-    case XuvKind::kGaussian: return burst_half_extent(x.gaussian);
+    case XuvKind::kGaussian:
+      return burst_half_extent(x.gaussian);
     case XuvKind::kTrain: {
-      const double T = units::period_au(units::wavelength_nm_to_omega_au(x.train.driver_wavelength_nm));
+      const double T =
+          units::period_au(units::wavelength_nm_to_omega_au(x.train.driver_wavelength_nm));
       const double env = kTemporalSupportFwhms * units::fs_to_au(x.train.train_fwhm_fs);
-      const double kmax = std::min(static_cast<double>(x.train.max_bursts / 2), std::ceil(env / (0.5 * T)));
+      const double kmax =
+          std::min(static_cast<double>(x.train.max_bursts / 2), std::ceil(env / (0.5 * T)));
       return burst_half_extent(x.train.burst) + kmax * 0.5 * T + 0.25 * T;
     }
     case XuvKind::kSatellites: {
@@ -101,12 +112,15 @@ double xuv_half_extent_au(const XuvConfig& x) {
 
 XuvField build_xuv(const XuvConfig& x, const TimeGrid& grid) {
   switch (x.kind) {
-    case XuvKind::kTrain: return make_xuv_train(grid, x.train);
-    case XuvKind::kSatellites: return make_xuv_with_satellites(grid, x.satellites);
+    case XuvKind::kTrain:
+      return make_xuv_train(grid, x.train);
+    case XuvKind::kSatellites:
+      return make_xuv_with_satellites(grid, x.satellites);
     case XuvKind::kTabulated:
       return make_tabulated_xuv(grid, x.tabulated.carrier_eV, x.tabulated.photon_energy_eV,
                                 x.tabulated.spectral_intensity, x.tabulated.spectral_phase_rad);
-    default: return make_gaussian_xuv(grid, x.gaussian);
+    default:
+      return make_gaussian_xuv(grid, x.gaussian);
   }
 }
 
@@ -124,9 +138,9 @@ BuiltXuv build_xuv_auto(const XuvConfig& x, double h, double edge_tolerance,
   const double max_window = xuv_max_window_au(x);
   const auto n_cap = static_cast<std::size_t>(
       std::min(static_cast<double>(max_points), std::floor(max_window / h)));
-  std::size_t n = std::min(
-      n_cap, good_fft_size(std::max<std::size_t>(64, static_cast<std::size_t>(std::ceil(L / h)))));
-  n = std::max<std::size_t>(n, 16);
+  std::size_t n =
+      pow2_at_least(std::max<std::size_t>(64, static_cast<std::size_t>(std::ceil(L / h))));
+  while (n > 16 && n > n_cap) n /= 2;
   BuiltXuv best;
   bool have = false;
   for (;;) {
@@ -139,22 +153,15 @@ BuiltXuv build_xuv_auto(const XuvConfig& x, double h, double edge_tolerance,
       have = true;
     }
     if (best.edges_ok) return best;
-    std::size_t next = good_fft_size(2 * n);
-    if (next > n_cap) {
-      // One last try at the largest allowed size (e.g. just below a tabulated echo).
-      next = n_cap;
-      while (next > n && good_fft_size(next) != next) --next;
-      if (next <= n) return best;
-    }
-    n = next;
+    if (2 * n > n_cap) return best;
+    n *= 2;
   }
 }
 
-XuvField refine_xuv(const XuvConfig& x, const TimeGrid& grid, double max_step,
-                    double min_window) {
+XuvField refine_xuv(const XuvConfig& x, const TimeGrid& grid, double max_step, double min_window) {
   const double L = std::max(grid.window(), std::min(min_window, xuv_max_window_au(x)));
   const double step = std::min(max_step, grid.dt());
-  const std::size_t n = good_fft_size(static_cast<std::size_t>(std::ceil(L / step)));
+  const std::size_t n = pow2_at_least(static_cast<std::size_t>(std::ceil(L / step)));
   return build_xuv(x, TimeGrid::centered(n, L / static_cast<double>(n)));
 }
 

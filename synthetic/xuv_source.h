@@ -39,8 +39,8 @@ XuvField build_xuv(const XuvConfig& xuv, const TimeGrid& grid);
 
 struct BuiltXuv {
   XuvField field;
-  bool edges_ok = true;        ///< false when the window limit was hit before the edges cleared
-  double edge_level = 0.0;     ///< max |envelope| in the outer 2 % relative to the peak
+  bool edges_ok = true;     ///< false when the window limit was hit before the edges cleared
+  double edge_level = 0.0;  ///< max |envelope| in the outer 2 % relative to the peak
 };
 
 /// Largest useful time window (a.u.): 0.8 * 2 pi / (smallest table spacing) for tabulated

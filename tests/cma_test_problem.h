@@ -39,6 +39,10 @@ struct CaseSpec {
   double energy_step_eV = 0.25;
   /// Poisson noise with this many counts at the trace's peak (0 = noise-free).
   double peak_counts = 0.0;
+  /// The field-free spectrum is recorded (IR blocked) with this many times the acquisition
+  /// time of one delay row, then normalised to one row (common practice: a reference
+  /// spectrum with good statistics).
+  double field_free_exposure = 10.0;
   unsigned long long seed = 7;
 };
 
@@ -101,7 +105,8 @@ inline Case make_case(const CaseSpec& c) {
         I(i, j) = n / scale;
         p.variance(i, j) = std::max(n, 1.0) / (scale * scale);
       }
-    for (Eigen::Index j = 0; j < S.cols(); ++j) S(0, j) = draw(S(0, j) * scale) / scale;
+    const double fs = scale * c.field_free_exposure;
+    for (Eigen::Index j = 0; j < S.cols(); ++j) S(0, j) = draw(S(0, j) * fs) / fs;
   }
   p.intensity = I;
   p.field_free_spectrum.assign(S.data(), S.data() + S.cols());
@@ -118,6 +123,39 @@ inline Metrics metrics(const XuvField& x, const IrField& ir) {
   m.gdd_as2 = units::au_to_as2(fit_spectral_phase(x).gdd);
   m.peak_A = ir.peak_vector_potential();
   return m;
+}
+
+}  // namespace sw::testing
+
+namespace sw::testing {
+
+/// Runs a registered engine on a case with the given options.
+inline Reconstruction retrieve(const Case& c, const std::string& engine, EngineOptions o = {}) {
+  auto e = make_engine(engine);
+  return run_engine(*e, c.problem, o);
+}
+
+/// Trace error of the retrieved fields pushed through sw::ForwardModel (an independent
+/// evaluation path: cubic-Hermite IR integrals instead of the engine's gate table), over the
+/// delays with |tau| <= max_delay_au (the retrieved A(t) covers the scanned range only).
+inline double forward_model_error(const Case& c, const Reconstruction& r, double max_delay_au) {
+  const RetrievalProblem& p = c.problem;
+  std::vector<double> D;
+  std::vector<Eigen::Index> rows;
+  for (std::size_t i = 0; i < p.delay_au.size(); ++i)
+    if (std::abs(p.delay_au[i]) <= max_delay_au) {
+      D.push_back(p.delay_au[i]);
+      rows.push_back(static_cast<Eigen::Index>(i));
+    }
+  ForwardModelOptions fo;
+  fo.central_momentum_au = p.central_momentum_au;
+  fo.energy_jacobian = false;
+  fo.threads = 1;
+  const Eigen::MatrixXd M =
+      ForwardModel(p.ionization_energy_au, DipoleModel(), fo).trace(r.xuv, r.ir, D, p.energy_au);
+  Eigen::MatrixXd I(static_cast<Eigen::Index>(rows.size()), p.intensity.cols());
+  for (std::size_t i = 0; i < rows.size(); ++i) I.row(static_cast<Eigen::Index>(i)) = p.intensity.row(rows[i]);
+  return trace_error(I, M);
 }
 
 }  // namespace sw::testing

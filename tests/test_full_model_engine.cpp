@@ -7,6 +7,7 @@
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
+#include <optional>
 #include <random>
 
 #include "retrieval/engine.h"
@@ -61,7 +62,7 @@ Scenario make_scenario(double center_eV, double tl_fwhm_as, double gdd_as2, doub
   const Eigen::MatrixXd dens = fm.trace(S.xuv, S.ir, S.D, S.W);  // p |a|^2
   const IrField no_ir(-span, 1.0, std::vector<double>(8, 0.0));
   const Eigen::MatrixXd ff = fm.trace(S.xuv, no_ir, {0.0}, S.W);
-  const double k = peak_counts / dens.maxCoeff();
+  const double k = std::abs(peak_counts) / dens.maxCoeff();  // < 0: noise-free
   std::mt19937 rng(seed);
   RetrievalProblem& R = S.problem;
   R.intensity.resize(nD, nW);
@@ -154,14 +155,27 @@ TEST_CASE("explore broadband", "[.explore]") {
   const double A_true = peak_A(S.ir, -200, 200);
   std::printf("truth fwhm %.1f as, A0 %.4f\n", units::au_to_as(fw_true), A_true);
   const int threads = std::getenv("FM_THREADS") ? std::atoi(std::getenv("FM_THREADS")) : 1;
-  for (int cma = 0; cma < 2; ++cma) {
+  std::optional<Reconstruction> warm;
+  for (int cma0 = 0; cma0 < 3; ++cma0) {
+    const int cma = std::getenv("FM_WARM") ? (cma0 == 0 ? 1 : 0) : cma0;
+    if (!std::getenv("FM_WARM") && cma0 == 2) break;
     auto e = cma ? make_cma_least_squares_engine() : make_full_model_engine();
     EngineOptions o;
+    if (warm && !cma) {
+      o.initial_xuv = warm->xuv;
+      o.initial_ir = warm->ir;
+    }
     o.max_iterations = 200;
     o.threads = threads;
     o.noise_floor_factor = 0;
+    if (const char* sup = std::getenv("FM_SUPPORT")) o.extra.emplace_back("support_threshold", sup);
+    if (const char* ir = std::getenv("FM_IR")) o.extra.emplace_back("ir", ir);
+    if (const char* sw = std::getenv("FM_SPECW")) o.extra.emplace_back("spectrum_weight", sw);
+    if (const char* mi = std::getenv("FM_MAXIT")) o.max_iterations = std::atoi(mi);
+    if (std::getenv("FM_ONLYFULL") && cma && !std::getenv("FM_WARM")) continue;
     auto a = std::chrono::steady_clock::now();
     Reconstruction r = run_engine(*e, S.problem, o);
+    if (cma) warm = r;
     auto b = std::chrono::steady_clock::now();
     std::printf("%s: %.2f s, G %.4g (noise %.4g), fwhm %.1f as, A0 %.4f, %s\n", r.engine.c_str(),
                 std::chrono::duration<double>(b - a).count(), r.trace_error,
@@ -169,9 +183,57 @@ TEST_CASE("explore broadband", "[.explore]") {
                 peak_A(r.ir, -200, 200), r.message.c_str());
     for (auto& [k, v] : r.settings)
       if (k.rfind("lbfgs", 0) == 0 || k.rfind("cost", 0) == 0 || k.rfind("weighted", 0) == 0 ||
-          k.rfind("ir_", 0) == 0 || k == "momentum_blocks" || k == "block_replans")
+          k.rfind("ir_", 0) == 0 || k == "momentum_blocks" || k == "block_replans" || k == "initial_trace_error")
         std::printf("   %s = %s\n", k.c_str(), v.c_str());
+    {
+      double off = 0, rms = 0;
+      int cnt = 0;
+      for (double tf = -5; tf <= 5.01; tf += 0.05) {
+        const double d = r.ir.vector_potential_at(units::fs_to_au(tf)) -
+                         S.ir.vector_potential_at(units::fs_to_au(tf));
+        off += d;
+        rms += d * d;
+        ++cnt;
+      }
+      std::printf("   A - truth over +-5 fs: mean %.4f rms %.4f\n", off / cnt, std::sqrt(rms / cnt));
+    }
+    if (std::getenv("FM_PRINTA"))
+      for (double tf = -7; tf <= 7.01; tf += 0.25)
+        std::printf("   A(%5.2f fs) = %8.4f truth %8.4f\n", tf, r.ir.vector_potential_at(units::fs_to_au(tf)),
+                    S.ir.vector_potential_at(units::fs_to_au(tf)));
     for (auto& h : r.history)
       if (h.iteration % 10 == 1) std::printf("   it %d G %.5g t %.2f\n", h.iteration, h.trace_error, h.seconds);
+  }
+}
+
+TEST_CASE("explore representation", "[.explore2]") {
+  Scenario S = make_scenario(130.0, 70.0, 0.0, 44.0, 0.5, 256, 512, 6.0, 61, -2000, 1);
+  GaussianIrPulse P;
+  P.peak_intensity_Wcm2 = 1e13;
+  P.cep_rad = 0.4;
+  const std::vector<double> th = GaussianIrParametrization::from_pulse(P);
+  for (double thr : {1e-3, 1e-5, 0.0}) {
+    for (double win : {6.8, 9.0, 12.0}) {
+      FullModelSettings st;
+      st.support_threshold = thr;
+      const double T = units::period_au(S.problem.ir_omega_au);
+      const IrSampling smp = IrSampling::covering(-units::fs_to_au(win), units::fs_to_au(win), T / 64);
+      FullModelObjective f(S.problem, st, MomentumModel::kFull,
+                           std::make_unique<GaussianIrParametrization>(smp), 2);
+      std::vector<cdouble> spec(S.W.size());
+      for (std::size_t j = 0; j < S.W.size(); ++j) {
+        cdouble acc = 0;
+        for (std::size_t k = 0; k < S.grid.size(); ++k)
+          acc += S.xuv.envelope()[k] *
+                 std::polar(1.0, (S.W[j] + S.ip - S.xuv.carrier_au()) * S.grid.time(k));
+        spec[j] = acc * S.grid.dt();
+      }
+      std::vector<double> x = f.encode(spec, th);
+      double mu;
+      const Eigen::MatrixXd m = f.model(x.data(), &mu);
+      std::printf("thr %g win %g: G %.3g cost %.3g support %zu\n", thr, win,
+                  trace_error(S.problem.intensity, m), f.evaluate(x.data(), nullptr),
+                  f.support().size());
+    }
   }
 }

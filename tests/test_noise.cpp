@@ -78,9 +78,9 @@ TEST_CASE("energy resolution conserves counts and has the set width", "[noise]")
   // Soc. 29, 353 (1898)). Counts are conserved (weights normalised over the axis).
   const auto E = axis(10.0, 0.1, 400);
   Eigen::MatrixXd m = Eigen::MatrixXd::Zero(3, 400);
-  m(0, 200) = 1000.0;                          // a line at 30 eV
+  m(0, 200) = 1000.0;                                                     // a line at 30 eV
   for (int j = 0; j < 400; ++j) m(1, j) = 5.0 + std::sin(0.1 * j) * 4.0;  // smooth
-  m(2, 0) = 77.0;                              // at the edge of the axis
+  m(2, 0) = 77.0;                                                         // at the edge of the axis
   m(2, 399) = 33.0;
   const Eigen::VectorXd before = m.rowwise().sum();
   RandomStreams rs(1);
@@ -100,7 +100,8 @@ TEST_CASE("energy resolution conserves counts and has the set width", "[noise]")
   EnergyResolution(0.0, 0.02).apply(r, E, rs);
   for (int i = 0; i < 3; ++i) CHECK(r.row(i).sum() == Approx(before(i)).epsilon(1e-12));
   double var2 = 0;
-  for (int j = 0; j < 400; ++j) var2 += r(0, j) * std::pow(E[static_cast<std::size_t>(j)] - 30.0, 2) / tot;
+  for (int j = 0; j < 400; ++j)
+    var2 += r(0, j) * std::pow(E[static_cast<std::size_t>(j)] - 30.0, 2) / tot;
   const double s2 = 0.6 / units::kFwhmPerSigma;
   CHECK(std::sqrt(var2) == Approx(std::sqrt(s2 * s2 + 0.01 / 12)).epsilon(0.01));
 }
@@ -196,8 +197,8 @@ TEST_CASE("stage and laser jitter change rows only when enabled", "[noise]") {
     if (i > 0) {
       // all - only_jitter = drift * i + walk_i: the walk increments have rms 0.002 fs.
       const double w1 = all[i].delay_offset_fs - only_jitter[i].delay_offset_fs - 0.001 * i;
-      const double w0 = all[i - 1].delay_offset_fs - only_jitter[i - 1].delay_offset_fs -
-                        0.001 * (i - 1);
+      const double w0 =
+          all[i - 1].delay_offset_fs - only_jitter[i - 1].delay_offset_fs - 0.001 * (i - 1);
       walk_ss += (w1 - w0) * (w1 - w0);
     }
   }

@@ -14,6 +14,8 @@
 #include "retrieval/train_burst.h"
 #include "retrieval/units.h"
 #include "retrieval/xuv_builders.h"
+#include "synthetic/generator.h"
+#include "synthetic/presets.h"
 
 using namespace sw;
 
@@ -24,14 +26,14 @@ constexpr double kHbar_eV_as = 658.2119569;
 
 struct Scenario {
   double gdd_as2 = 9900.0;
-  double center_eV = 34.1;      // burst centre photon energy
+  double center_eV = 34.1;  // burst centre photon energy
   double tl_fwhm_as = 130.0;
   double center_time_as = 0.0;
-  double ir_intensity = 1e10;   // W/cm^2: perturbative regime (one-photon sidebands)
+  double ir_intensity = 1e10;  // W/cm^2: perturbative regime (one-photon sidebands)
   double energy_first_eV = 0.5;
-  int energies = 901;           // 0.05 eV bins
+  int energies = 901;  // 0.05 eV bins
   double delay_first_fs = -4.0;
-  int delays = 81;              // 0.1 fs steps
+  int delays = 81;  // 0.1 fs steps
 };
 
 // Noise-free energy density on the scenario's axes (argon, 800 nm, constant dipole).
@@ -51,7 +53,8 @@ Trace clean_trace(const Scenario& s) {
   Trace t;
   for (int j = 0; j < s.energies; ++j)
     t.energy_au.push_back(units::eV_to_au(s.energy_first_eV + 0.05 * j));
-  for (int i = 0; i < s.delays; ++i) t.delay_au.push_back(units::fs_to_au(s.delay_first_fs + 0.1 * i));
+  for (int i = 0; i < s.delays; ++i)
+    t.delay_au.push_back(units::fs_to_au(s.delay_first_fs + 0.1 * i));
   ForwardModelOptions o;
   o.momentum = MomentumModel::kFull;
   t.counts = ForwardModel(ip, DipoleModel(), o).trace(x, ir, t.delay_au, t.energy_au);
@@ -200,8 +203,8 @@ TEST_CASE("attochirp within 3 sigma over seeds; phase sigmas match the seed scat
   CHECK(rms_pull < 2.0);
   for (int m = 0; m < 3; ++m) {
     const double mean = ps[m] / seeds;
-    const double scatter = std::sqrt(std::max(ps2[m] / seeds - mean * mean, 0.0) *
-                                     seeds / (seeds - 1.0));
+    const double scatter =
+        std::sqrt(std::max(ps2[m] / seeds - mean * mean, 0.0) * seeds / (seeds - 1.0));
     const double ratio = scatter / (sig[m] / seeds);
     INFO("SB " << orders[m] << ": scatter " << scatter << " rad, mean sigma " << sig[m] / seeds
                << " rad");
@@ -354,7 +357,8 @@ TEST_CASE("average burst of the train: FWHM of the chirped and transform-limited
       std::complex<double> e = 0;
       for (int q : b.harmonic_orders) {
         const double d = q * w - O0;
-        e += std::polar(std::exp(-d * d / (2 * sw * sw)), (chirped ? 0.5 * gdd * d * d : 0.0) - q * w * tt);
+        e += std::polar(std::exp(-d * d / (2 * sw * sw)),
+                        (chirped ? 0.5 * gdd * d * d : 0.0) - q * w * tt);
       }
       x.push_back(tt);
       y.push_back(std::norm(e));
@@ -390,4 +394,58 @@ TEST_CASE("average burst of the train: FWHM of the chirped and transform-limited
   TrainBurstOptions bad;
   bad.periods = 3;
   CHECK_THAT(bad.validate(), Catch::Contains("periods"));
+}
+
+TEST_CASE("argon-rabbitt preset of the direct-quadrature generator", "[rabbitt][synthetic]") {
+  // Independent data path: synthetic/ evaluates the SFA by direct quadrature (no FFT model).
+  // Truth from the generator's truth record: attochirp = GDD / hbar. The preset's IR
+  // (1e11 W/cm^2) adds strong-field corrections of ~0.1 as/eV, inside the brief's 1 as/eV.
+  const synthetic::SyntheticScan sc =
+      synthetic::generate_scan(synthetic::find_preset("argon-rabbitt").config, 1);
+  REQUIRE(sc.truth.rabbitt);
+  REQUIRE(sc.truth.rabbitt->attochirp_as_per_eV);
+  const double truth = *sc.truth.rabbitt->attochirp_as_per_eV;
+  CHECK(truth == Approx(9900.0 / kHbar_eV_as));  // the preset's GDD
+  const RabbittAnalysis r = analyze_rabbitt(sc.trace, no_atomic());
+  REQUIRE(r.section.attochirp_as_per_eV);
+  INFO("attochirp " << *r.section.attochirp_as_per_eV << " +- "
+                    << *r.section.attochirp_as_per_eV_sigma << ", truth " << truth);
+  CHECK(std::abs(*r.section.attochirp_as_per_eV - truth) < 1.0);
+  CHECK(r.sidebands.size() >= 8);
+  CHECK(r.alignment.within_resolution);
+  CHECK(std::abs(r.delay_check.calibration_factor - 1.0) < 0.005);
+  // With the atomic-delay model the attochirp changes by minus the weighted least-squares
+  // slope of the subtracted tau_A (the fit is linear in the delays, weights unchanged).
+  const RabbittAnalysis a = analyze_rabbitt(sc.trace, RabbittOptions());
+  REQUIRE(a.sidebands.size() == r.sidebands.size());
+  double S = 0, Sx = 0, Sy = 0, Sxx = 0, Sxy = 0;
+  for (const auto& sb : a.sidebands) {
+    const double wt = 1.0 / (sb.group_delay_as_sigma * sb.group_delay_as_sigma);
+    const double x = sb.photon_energy_eV, y = sb.atomic.total_as;
+    S += wt;
+    Sx += wt * x;
+    Sy += wt * y;
+    Sxx += wt * x * x;
+    Sxy += wt * x * y;
+  }
+  const double slope_atomic = (S * Sxy - Sx * Sy) / (S * Sxx - Sx * Sx);
+  CHECK(*a.section.attochirp_as_per_eV - *r.section.attochirp_as_per_eV ==
+        Approx(-slope_atomic).margin(1e-6));
+}
+
+TEST_CASE("a streaking scan of an isolated pulse is refused as not a RABBITT scan",
+          "[rabbitt][synthetic]") {
+  const synthetic::SyntheticScan sc =
+      synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 2);
+  try {
+    analyze_rabbitt(sc.trace, RabbittOptions());
+    FAIL("expected an error");
+  } catch (const Error& e) {
+    CHECK(e.kind() == ErrorKind::kInput);
+    CHECK_THAT(e.what(), Catch::Contains("not a RABBITT scan"));
+  }
+  RabbittOptions o;
+  o.require_comb = false;
+  const RabbittAnalysis r = analyze_rabbitt(sc.trace, o);
+  CHECK(has_warning(r, "no harmonic comb"));
 }

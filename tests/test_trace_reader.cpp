@@ -379,7 +379,7 @@ TEST_CASE("HDF5 dataset named as FILE.h5:/group/dataset", "[io][reader][hdf5]") 
   write_text(dir / "raw.json", R"({"streakwright": 1, "image": "run_17.h5:/scan/raw",
     "layout": "energy_rows", "energy_eV": [1, 2, 3, 4], "delay_fs": [0, 1, 2, 3, 4, 5]})");
   const sw::Trace raw = sw::read_trace(dir / "raw.json");
-  CHECK(raw.counts(5, 1) == 65535);  // file row 1, column 5, transposed by energy_rows
+  CHECK(raw.counts(5, 0) == 65535);  // file row 0 (energy 0), column 5 (delay 5): transposed
   CHECK(raw.counts(0, 0) == 4000);
 
   auto message = [&](const std::string& image) {

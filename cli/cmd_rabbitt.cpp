@@ -1,0 +1,239 @@
+// `streakwright rabbitt SCAN.json --out DIR`: sideband phases, group delays, attochirp and the
+// average burst of a pulse train from a RABBITT scan, plus the isolated-versus-train verdict.
+#include <cstdio>
+#include <filesystem>
+#include <memory>
+#include <sstream>
+
+#include "cli/analysis.h"
+#include "cli/commands.h"
+#include "cli/progress.h"
+#include "io/rabbitt_outputs.h"
+#include "io/trace_reader.h"
+#include "retrieval/classifier.h"
+#include "retrieval/dipole.h"
+#include "retrieval/error.h"
+#include "retrieval/rabbitt.h"
+#include "retrieval/train_burst.h"
+
+namespace sw::cli {
+
+/// The verdict thresholds of a job (analysis.h: satellite ratios from job.retrieve).
+ClassifierOptions classifier_options_for(const ScanJob& job);
+
+ClassifierOptions classifier_options_for(const ScanJob& job) {
+  ClassifierOptions c = job.classifier;
+  c.isolated_max_satellite_ratio = job.retrieve.isolated_max_satellite_ratio;
+  c.satellite_max_ratio = job.retrieve.satellites_max_satellite_ratio;
+  return c;
+}
+
+AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job,
+                                    const std::vector<Param>& prov) {
+  RabbittOptions ro = job.rabbitt;
+  if (!parse_atomic_delay_mode(job.atomic_correction, &ro.atomic.mode))
+    throw usage_error("--atomic-correction '" + job.atomic_correction +
+                      "': expected auto (subtract the atomic delays of the gas) or none");
+  if (const std::string e = ro.validate(); !e.empty()) throw usage_error("rabbitt options: " + e);
+  if (const std::string e = job.train_burst.validate(); !e.empty())
+    throw usage_error("average-burst options: " + e);
+  const ClassifierOptions co = classifier_options_for(job);
+  if (const std::string e = co.validate(); !e.empty())
+    throw usage_error("verdict thresholds: " + e);
+
+  if (job.progress) job.progress("rabbitt", "sideband fits");
+  const RabbittAnalysis rb = analyze_rabbitt(trace, ro);
+
+  AnalysisResult res;
+  res.input = trace.meta.source.empty() ? job.sidecar : trace.meta.source;
+  res.analysis = "rabbitt";
+  res.rabbitt = rb.section;
+  res.warnings = rb.warnings;
+
+  std::optional<Trace> xuv_only;
+  if (!job.xuv_only_sidecar.empty()) {
+    std::vector<std::string> rw;
+    xuv_only = read_trace(job.xuv_only_sidecar, &rw);
+    for (const auto& w : rw) res.warnings.push_back("xuv-only spectrum: " + w);
+    if (xuv_only->meta.kind != TraceKind::kXuvOnly && xuv_only->meta.kind != TraceKind::kUnknown)
+      res.warnings.push_back("the --xuv-only sidecar " + job.xuv_only_sidecar + " has kind '" +
+                             to_string(xuv_only->meta.kind) +
+                             "', not xuv_only: its delay-integrated spectrum is used anyway");
+  }
+
+  if (job.progress) job.progress("rabbitt", "average burst");
+  std::optional<TrainBurst> burst;
+  try {
+    burst = reconstruct_train_burst(trace, rb, job.train_burst, xuv_only ? &*xuv_only : nullptr);
+    fill_rabbitt_section(*burst, &*res.rabbitt);
+    for (const auto& w : burst->warnings) res.warnings.push_back("average burst: " + w);
+  } catch (const Error& e) {
+    if (e.kind() != ErrorKind::kNumeric) throw;
+    res.warnings.push_back(std::string("no average burst: ") + e.what());
+  }
+
+  if (job.progress) job.progress("rabbitt", "verdict");
+  res.verdict = classify(trace, co, nullptr);
+
+  res.extra = rb.params;
+  auto P = [&](const std::string& k, auto v) { res.extra.push_back({k, v}); };
+  if (burst) {
+    const TrainBurst& b = *burst;
+    std::vector<double> orders(b.harmonic_orders.begin(), b.harmonic_orders.end());
+    P("rabbitt.burst.harmonic_orders", orders);
+    P("rabbitt.burst.harmonic_photon_energy_eV", b.harmonic_photon_energy_eV);
+    P("rabbitt.burst.harmonic_intensity", b.harmonic_intensity);
+    P("rabbitt.burst.harmonic_phase_rad", b.harmonic_phase_rad);
+    P("rabbitt.burst.peak_time_as", b.peak_time_as);
+    P("rabbitt.burst.spectrum_source", b.spectrum_source);
+    P("rabbitt.burst.cross_section", b.cross_section);
+    P("rabbitt.burst.monte_carlo_draws", static_cast<long long>(b.monte_carlo_draws));
+    P("rabbitt.burst.assumptions", b.assumptions);
+  }
+  if (!rb.skipped_sidebands.empty()) {
+    std::string s;
+    for (const auto& k : rb.skipped_sidebands) s += (s.empty() ? "" : "; ") + k;
+    P("rabbitt.skipped_sidebands", s);
+  }
+  P("settings.atomic_correction", std::string(to_string(ro.atomic.mode)));
+  P("settings.window_half_width_fraction", ro.window_half_width_fraction);
+  P("settings.apply_delay_calibration", ro.apply_delay_calibration);
+  P("settings.cross_section", std::string(to_string(job.train_burst.cross_section)));
+  P("settings.dipole", std::string(to_string(job.train_burst.dipole)));
+  if (!job.xuv_only_sidecar.empty()) P("settings.xuv_only", job.xuv_only_sidecar);
+  P("settings.isolated_max_satellite_ratio", co.isolated_max_satellite_ratio);
+  P("settings.satellites_max_satellite_ratio", co.satellite_max_ratio);
+  for (const Param& p : prov) res.extra.push_back(p);
+  for (const auto& [k, v] : trace.meta.extra_json) res.extra_json["sidecar." + k] = v;
+
+  write_rabbitt_outputs(trace, rb, burst ? &*burst : nullptr, res, job.out_dir);
+  return res;
+}
+
+namespace {
+
+struct RabbittArgs {
+  std::string scan, out, xuv_only;
+  std::string atomic = "auto";
+  std::string cross_section = "sfa_dipole";
+  std::string dipole = "constant";
+  std::string gas;
+  double wavelength_nm = 0.0;
+  RabbittOptions options;
+  bool no_rainbow = false;
+  bool quiet = false;
+};
+
+std::string summary_line(const AnalysisResult& r) {
+  std::ostringstream s;
+  s.precision(4);
+  const RabbittSection& b = *r.rabbitt;
+  if (b.attochirp_as_per_eV) {
+    s << "attochirp " << *b.attochirp_as_per_eV;
+    if (b.attochirp_as_per_eV_sigma) s << " +- " << *b.attochirp_as_per_eV_sigma;
+    s << " as/eV";
+  } else {
+    s << "no attochirp";
+  }
+  s << " (" << b.sidebands.size() << " sidebands";
+  if (!b.sidebands.empty())
+    s << ", SB" << b.sidebands.front().order << "-SB" << b.sidebands.back().order;
+  s << ")";
+  if (b.train_burst_fwhm_as) {
+    s << "; burst FWHM " << *b.train_burst_fwhm_as;
+    if (b.train_burst_fwhm_as_sigma) s << " +- " << *b.train_burst_fwhm_as_sigma;
+    s << " as";
+    if (b.transform_limited_burst_fwhm_as) s << " (TL " << *b.transform_limited_burst_fwhm_as << " as)";
+  }
+  if (r.verdict) s << "; " << to_string(r.verdict->pulse_class);
+  if (!r.warnings.empty()) s << "; " << r.warnings.size() << " warning(s), see the report";
+  return s.str();
+}
+
+int run_rabbitt(RabbittArgs& a) {
+  ScanJob job;
+  job.sidecar = a.scan;
+  job.out_dir = a.out;
+  job.analysis = AnalysisKind::kRabbitt;
+  job.atomic_correction = a.atomic;
+  job.xuv_only_sidecar = a.xuv_only;
+  job.rabbitt = a.options;
+  job.rabbitt.rainbow = !a.no_rainbow;
+  if (!parse_cross_section_model(a.cross_section, &job.train_burst.cross_section))
+    throw usage_error("--cross-section " + a.cross_section + ": expected flat or sfa_dipole");
+  if (!parse_dipole_kind(a.dipole, &job.train_burst.dipole))
+    throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
+  if (!a.gas.empty()) job.overrides.gas = a.gas;
+  if (a.wavelength_nm > 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;
+  if (a.wavelength_nm < 0)
+    throw usage_error("--ir-wavelength " + std::to_string(a.wavelength_nm) + ": must be > 0 nm");
+  RabbittOptions check = job.rabbitt;
+  if (!parse_atomic_delay_mode(a.atomic, &check.atomic.mode))
+    throw usage_error("--atomic-correction " + a.atomic + ": expected auto or none");
+  if (const std::string e = check.validate(); !e.empty()) throw usage_error(e);
+  job.quiet = a.quiet;
+  Progress progress(a.quiet);
+  job.progress = [&](const std::string& stage, const std::string& m) { progress.update(stage, m); };
+  const ScanOutcome o = run_scan(job);
+  progress.done();
+  if (!o.ok) throw Error(o.error_kind, o.message);
+  std::printf("%s\n", summary_line(o.result).c_str());
+  if (!a.quiet)
+    for (const auto& w : o.result.warnings)
+      std::fprintf(stderr, "streakwright rabbitt: warning: %s\n", w.c_str());
+  std::printf("report: %s\n", (std::filesystem::path(a.out) / "report.html").string().c_str());
+  return o.exit_code;
+}
+
+}  // namespace
+
+void add_rabbitt_command(CLI::App& app) {
+  auto a = std::make_shared<RabbittArgs>();
+  auto* cmd = app.add_subcommand(
+      "rabbitt", "Attochirp and average burst of a pulse train from a RABBITT scan");
+  cmd->footer(
+      "Method: harmonic and sideband peaks are identified at q hbar omega - Ip (gas and IR\n"
+      "wavelength from the sidecar or --gas/--ir-wavelength); the energy axis offset and scale\n"
+      "that align them are reported. Each sideband is fitted over the whole delay axis with\n"
+      "S(tau) = A + B cos(2 omega tau + phi) (Poisson-weighted linear least squares; also per\n"
+      "energy bin: rainbow RABBITT), the oscillation frequency is fitted freely to check the\n"
+      "delay-stage calibration, and the group delay t_e = phi / (2 omega) - atomic delay gives\n"
+      "the attochirp (as/eV, positive = higher photon energies emitted later). The average\n"
+      "burst is E(t) = sum_q sqrt(I_q) exp(i phi_q - i q omega t) with the harmonic\n"
+      "intensities from the spectrum divided by the cross-section model.\n"
+      "Needs a weak IR field (one IR photon per path) and a harmonic comb: a streaking scan\n"
+      "without a comb is refused (exit 3).\n"
+      "Writes into DIR: result.json (rabbitt and verdict sections), sidebands.csv,\n"
+      "rainbow.csv, harmonics.csv, burst.csv, PNG figures and report.html.\n"
+      "Prints a one-line summary. Exit 0 ok, 2 bad usage, 3 bad input, 4 numerical failure.");
+  cmd->add_option("scan", a->scan, "sidecar of the RABBITT scan (NAME.json or NAME.yaml)")
+      ->required();
+  cmd->add_option("--out,-o", a->out, "output folder (created)")->required();
+  cmd->add_option("--atomic-correction", a->atomic,
+                  "auto: subtract the Wigner (Coulomb phase) and continuum-continuum delays of "
+                  "the gas; none: report the measured delays")
+      ->capture_default_str();
+  cmd->add_option("--xuv-only", a->xuv_only,
+                  "sidecar of a field-free XUV-only scan for the harmonic intensities (default: "
+                  "the delay-integrated RABBITT spectrum)");
+  cmd->add_option("--cross-section", a->cross_section,
+                  "harmonic intensity = peak area / cross section: flat | sfa_dipole (p |d(p)|^2)")
+      ->capture_default_str();
+  cmd->add_option("--dipole", a->dipole, "dipole of sfa_dipole: constant | hydrogenic")
+      ->capture_default_str();
+  cmd->add_option("--gas", a->gas, "target gas (overrides the sidecar)");
+  cmd->add_option("--ir-wavelength", a->wavelength_nm, "IR wavelength in nm (overrides the sidecar)");
+  cmd->add_option("--window", a->options.window_half_width_fraction,
+                  "half width of the sideband windows in units of hbar omega, (0, 0.5]")
+      ->capture_default_str();
+  cmd->add_option("--min-sideband-significance", a->options.min_modulation_significance,
+                  "report a sideband when its modulation B exceeds this many sigma")
+      ->capture_default_str();
+  cmd->add_flag("--apply-delay-calibration", a->options.apply_delay_calibration,
+                "use the fitted 2 omega frequency for the sideband fits (rescales the delay axis)");
+  cmd->add_flag("--no-rainbow", a->no_rainbow, "skip the per-energy-bin (rainbow) fits");
+  cmd->add_flag("--quiet,-q", a->quiet, "no warnings on stderr (they stay in the report)");
+  cmd->callback([a] { exit_code() = guarded("rabbitt", [&] { return run_rabbitt(*a); }); });
+}
+
+}  // namespace sw::cli

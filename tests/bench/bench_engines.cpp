@@ -1,0 +1,108 @@
+// Cost of the CMA engines against their FFT floor, in one run so that ratios can be read on a
+// shared machine:
+//   BM_FftFloor/N           2 x N_delay FFTs of the grid size (the floor of one CMA iteration);
+//   BM_PtychographicIteration, BM_ProjectionsIteration   one iteration, 121 delays x 400 energies;
+//   BM_*Retrieval           a full retrieval to convergence of that problem (Poisson noise,
+//                           100 counts at the peak), iterations and G as counters;
+//   BM_ForwardModelCma      the CMA forward model, 128 delays x 512 energies, 1024 grid,
+//                           single-threaded (ForwardModelOptions::threads = 1).
+// Build with -DSTREAKWRIGHT_BUILD_BENCHMARKS=ON; run bench_engines.
+#include <benchmark/benchmark.h>
+
+#include "retrieval/engine.h"
+#include "retrieval/forward_model.h"
+#include "tests/cma_test_problem.h"
+
+namespace {
+
+using namespace sw;
+
+const testing::Case& problem_121x400(bool noisy) {
+  static const testing::Case clean = [] {
+    testing::CaseSpec c;
+    c.gdd_as2 = 3000;
+    return testing::make_case(c);
+  }();
+  static const testing::Case noisy_case = [] {
+    testing::CaseSpec c;
+    c.gdd_as2 = 3000;
+    c.peak_counts = 100;
+    return testing::make_case(c);
+  }();
+  return noisy ? noisy_case : clean;
+}
+
+void BM_FftFloor(benchmark::State& state) {
+  const auto& p = problem_121x400(false).problem;
+  const std::size_t n = p.grid.size(), nd = p.delay_au.size();
+  const Fft fft(n);
+  CVec a(n, cdouble(1.0, 0.5)), b(n), c(n);
+  for (auto _ : state) {
+    for (std::size_t j = 0; j < nd; ++j) {
+      fft.time_to_freq(a, b);
+      fft.freq_to_time(b, c);
+    }
+    benchmark::DoNotOptimize(c.data());
+  }
+  state.counters["grid"] = static_cast<double>(n);
+  state.counters["ffts"] = static_cast<double>(2 * nd);
+}
+BENCHMARK(BM_FftFloor)->Unit(benchmark::kMicrosecond);
+
+void iteration(benchmark::State& state, const char* engine, int threads) {
+  const auto& p = problem_121x400(false).problem;
+  auto e = make_engine(engine);
+  EngineOptions o;
+  o.threads = threads;
+  e->prepare(p, o);
+  int k = 1;
+  for (auto _ : state) benchmark::DoNotOptimize(e->iterate(k++));
+  state.counters["delays"] = static_cast<double>(p.delay_au.size());
+  state.counters["energies"] = static_cast<double>(p.energy_au.size());
+}
+
+void BM_PtychographicIteration(benchmark::State& state) { iteration(state, "ptychographic", 1); }
+BENCHMARK(BM_PtychographicIteration)->Unit(benchmark::kMicrosecond);
+void BM_ProjectionsIteration(benchmark::State& state) {
+  iteration(state, "projections", static_cast<int>(state.range(0)));
+}
+BENCHMARK(BM_ProjectionsIteration)->Arg(1)->Arg(2)->Unit(benchmark::kMicrosecond)->UseRealTime();
+
+void retrieval(benchmark::State& state, const char* engine, int threads) {
+  const auto& p = problem_121x400(true).problem;
+  Reconstruction r;
+  for (auto _ : state) {
+    auto e = make_engine(engine);
+    EngineOptions o;
+    o.threads = threads;
+    r = run_engine(*e, p, o);
+    benchmark::DoNotOptimize(r.trace_error);
+  }
+  state.counters["iterations"] = r.iterations;
+  state.counters["G"] = r.trace_error;
+  state.counters["converged"] = r.converged() ? 1 : 0;
+}
+
+void BM_PtychographicRetrieval(benchmark::State& state) { retrieval(state, "ptychographic", 1); }
+BENCHMARK(BM_PtychographicRetrieval)->Unit(benchmark::kMillisecond)->UseRealTime();
+void BM_ProjectionsRetrieval(benchmark::State& state) {
+  retrieval(state, "projections", static_cast<int>(state.range(0)));
+}
+BENCHMARK(BM_ProjectionsRetrieval)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
+
+void BM_ForwardModelCma(benchmark::State& state) {
+  const auto& c = problem_121x400(false);
+  const TimeGrid g = TimeGrid::for_energy_step(1024, units::eV_to_au(0.25));
+  const XuvField x = make_gaussian_xuv(g, GaussianXuvPulse{});
+  std::vector<double> W, D;
+  for (int j = 0; j < 512; ++j) W.push_back(units::eV_to_au(20.0) + g.dw() * j);
+  for (int i = 0; i < 128; ++i) D.push_back(units::fs_to_au(-6.0 + 12.0 * i / 127.0));
+  ForwardModelOptions o;
+  o.central_momentum_au = c.problem.central_momentum_au;
+  o.threads = 1;
+  const ForwardModel fm(c.problem.ionization_energy_au, DipoleModel(), o);
+  for (auto _ : state) benchmark::DoNotOptimize(fm.trace(x, c.ir, D, W));
+}
+BENCHMARK(BM_ForwardModelCma)->Unit(benchmark::kMillisecond);
+
+}  // namespace

@@ -1,0 +1,333 @@
+// Engine framework: options validation, the registry, the shared loop's stopping rules and
+// callbacks (with a scripted fake engine), the trace error and the reports.
+#include <catch2/catch.hpp>
+
+#include <chrono>
+#include <cmath>
+#include <limits>
+#include <thread>
+
+#include "retrieval/engine.h"
+#include "retrieval/error.h"
+
+using namespace sw;
+
+namespace {
+
+// An engine whose trace error follows a script; records its life cycle.
+class FakeEngine : public Engine {
+ public:
+  explicit FakeEngine(std::function<double(int)> g, double sleep_s = 0.0)
+      : g_(std::move(g)), sleep_s_(sleep_s) {}
+  std::string name() const override { return "fake"; }
+  std::string description() const override { return "scripted trace error"; }
+  std::string reference() const override { return "none"; }
+  std::vector<ExtraOption> extra_options() const override {
+    return {{"knob", ExtraOption::Kind::kNumber, "1", "a number in [0, 2]", 0, 2, {}},
+            {"count", ExtraOption::Kind::kInteger, "3", "an integer in [1, 9]", 1, 9, {}},
+            {"style", ExtraOption::Kind::kChoice, "a", "a or b", 0, 0, {"a", "b"}}};
+  }
+  void prepare(const RetrievalProblem&, const EngineOptions&) override { ++prepared; }
+  IterationRecord iterate(int k) override {
+    if (sleep_s_ > 0) std::this_thread::sleep_for(std::chrono::duration<double>(sleep_s_));
+    IterationRecord r;
+    r.trace_error = g_(k);
+    if (r.trace_error < best) {
+      best = r.trace_error;
+      best_k = k;
+    }
+    last_k = k;
+    return r;
+  }
+  Reconstruction finalize() override {
+    ++finalized;
+    Reconstruction r;
+    r.trace_error = best;
+    r.model = "none";
+    return r;
+  }
+  int prepared = 0, finalized = 0, last_k = 0, best_k = 0;
+  double best = std::numeric_limits<double>::infinity();
+
+ private:
+  std::function<double(int)> g_;
+  double sleep_s_;
+};
+
+RetrievalProblem tiny_problem(double variance) {
+  RetrievalProblem p;
+  p.intensity = Eigen::MatrixXd::Constant(4, 5, 1.0);
+  p.variance = Eigen::MatrixXd::Constant(4, 5, variance);
+  return p;
+}
+
+}  // namespace
+
+TEST_CASE("default engine options validate", "[engine]") {
+  // STYLE.md (Ceres Options::IsValid practice): the defaults must be valid.
+  CHECK(EngineOptions().validate().empty());
+}
+
+TEST_CASE("each bad option is named with its value", "[engine]") {
+  struct Bad {
+    const char* field;
+    std::function<void(EngineOptions&)> set;
+  };
+  const std::vector<Bad> bad = {
+      {"max_iterations", [](EngineOptions& o) { o.max_iterations = 0; }},
+      {"relative_tolerance", [](EngineOptions& o) { o.relative_tolerance = -1; }},
+      {"patience", [](EngineOptions& o) { o.patience = 0; }},
+      {"noise_floor_factor", [](EngineOptions& o) { o.noise_floor_factor = -0.5; }},
+      {"noise_floor_relative_tolerance",
+       [](EngineOptions& o) { o.noise_floor_relative_tolerance = -1; }},
+      {"threads", [](EngineOptions& o) { o.threads = 0; }},
+      {"max_seconds", [](EngineOptions& o) { o.max_seconds = 0; }},
+  };
+  for (const Bad& b : bad) {
+    EngineOptions o;
+    b.set(o);
+    const std::string m = o.validate();
+    INFO(b.field << ": " << m);
+    CHECK(m.find(b.field) == 0);  // the message starts with the field's name
+    FakeEngine e([](int) { return 1.0; });
+    try {
+      run_engine(e, tiny_problem(0.0), o);
+      FAIL("run_engine accepted a bad option");
+    } catch (const Error& err) {
+      CHECK(err.kind() == ErrorKind::kUsage);
+      CHECK(std::string(err.what()).find(b.field) != std::string::npos);
+    }
+    CHECK(e.prepared == 0);  // bad configuration is reported before any work starts
+  }
+}
+
+TEST_CASE("registry lists the built-in engines and rejects unknown names", "[engine]") {
+  const auto names = engine_names();
+  CHECK(std::find(names.begin(), names.end(), "ptychographic") != names.end());
+  CHECK(std::find(names.begin(), names.end(), "projections") != names.end());
+  for (const auto& n : names) {
+    auto e = make_engine(n);
+    REQUIRE(e);
+    CHECK(e->name() == n);
+    CHECK(!e->reference().empty());
+    CHECK(!e->description().empty());
+  }
+  try {
+    make_engine("no-such-engine");
+    FAIL("unknown engine accepted");
+  } catch (const Error& err) {
+    CHECK(err.kind() == ErrorKind::kUsage);
+    const std::string m = err.what();
+    CHECK(m.find("no-such-engine") != std::string::npos);
+    for (const auto& n : names) CHECK(m.find(n) != std::string::npos);
+  }
+  CHECK_FALSE(register_engine("ptychographic", [] { return make_engine("projections"); }));
+  CHECK(register_engine("fake-for-registry-test",
+                        [] { return std::make_unique<FakeEngine>([](int) { return 1.0; }); }));
+  CHECK(make_engine("fake-for-registry-test")->name() == "fake");
+}
+
+TEST_CASE("engine-specific options are checked against the engine's description", "[engine]") {
+  auto run_with = [](std::vector<std::pair<std::string, std::string>> extra) {
+    FakeEngine e([](int) { return 1.0; });
+    EngineOptions o;
+    o.max_iterations = 2;
+    o.extra = std::move(extra);
+    return run_engine(e, tiny_problem(0.0), o);
+  };
+  CHECK_NOTHROW(run_with({{"knob", "1.5"}, {"count", "4"}, {"style", "b"}}));
+  const std::vector<std::pair<std::pair<std::string, std::string>, std::string>> bad = {
+      {{"knob", "3"}, "knob = '3'"},          {{"knob", "abc"}, "knob = 'abc'"},
+      {{"count", "2.5"}, "count = '2.5'"},    {{"count", "0"}, "count = '0'"},
+      {{"style", "c"}, "expected one of a|b"}, {{"nonsense", "1"}, "unknown engine option"}};
+  for (const auto& [kv, expect] : bad) {
+    INFO(kv.first << " = " << kv.second);
+    try {
+      run_with({kv});
+      FAIL("bad extra accepted");
+    } catch (const Error& err) {
+      CHECK(err.kind() == ErrorKind::kUsage);
+      CHECK(std::string(err.what()).find(expect) != std::string::npos);
+    }
+  }
+  // An option another registered engine declares is meant for that engine (engine chains).
+  CHECK_NOTHROW(run_with({{"beta_object", "0.2"}}));
+  EngineOptions o;
+  o.extra = {{"x", "1"}, {"x", "2.5"}};
+  CHECK(o.extra_double("x", 0) == 2.5);  // the last entry wins
+  CHECK(o.extra_double("y", 7) == 7);
+  CHECK_THROWS_AS(o.extra_int("x", 0), Error);
+}
+
+TEST_CASE("the loop stops at max_iterations and returns the best estimate", "[engine]") {
+  // G oscillates: the best (lowest) iterate is not the last one.
+  FakeEngine e([](int k) { return 1.0 + 0.5 * std::sin(0.7 * k) + 1.0 / k; });
+  EngineOptions o;
+  o.max_iterations = 20;
+  o.relative_tolerance = 0;
+  const Reconstruction r = run_engine(e, tiny_problem(0.0), o);
+  CHECK(r.termination == Termination::kMaxIterations);
+  CHECK_FALSE(r.converged());
+  CHECK(r.iterations == 20);
+  REQUIRE(r.history.size() == 20);
+  CHECK(e.prepared == 1);
+  CHECK(e.finalized == 1);
+  CHECK(r.best_iteration == e.best_k);
+  CHECK(r.best_iteration == 16);  // the deepest minimum of the script, not the last iterate
+  for (std::size_t i = 0; i < r.history.size(); ++i) {
+    CHECK(r.history[i].iteration == static_cast<int>(i) + 1);
+    if (i > 0) CHECK(r.history[i].seconds >= r.history[i - 1].seconds);
+  }
+  CHECK(r.engine == "fake");
+  CHECK(r.message.find("max_iterations") != std::string::npos);
+}
+
+TEST_CASE("the stall rule compares G over the patience window", "[engine]") {
+  // G halves until iteration 10, then is constant: the relative change over 5 iterations
+  // first vanishes at k = 15.
+  FakeEngine e([](int k) { return std::pow(0.5, std::min(k, 10)); });
+  EngineOptions o;
+  o.patience = 5;
+  o.relative_tolerance = 1e-6;
+  const Reconstruction r = run_engine(e, tiny_problem(0.0), o);
+  CHECK(r.termination == Termination::kConverged);
+  CHECK(r.converged());
+  CHECK(r.iterations == 15);
+}
+
+TEST_CASE("the noise floor stops only once G has settled there", "[engine]") {
+  // G_noise = sqrt(sum var / (N max^2)) = sqrt(0.04) = 0.2 for var = 0.04, I = 1.
+  const RetrievalProblem p = tiny_problem(0.04);
+  EngineOptions o;
+  o.patience = 4;
+  o.relative_tolerance = 0;
+  o.max_iterations = 200;
+  SECTION("settled below the floor") {
+    // Below the floor from k = 3 (0.19), still moving 5 %/iteration until k = 8, then flat.
+    FakeEngine e([](int k) { return k < 3 ? 0.5 : 0.19 * std::pow(0.95, std::min(k, 8) - 3); });
+    const Reconstruction r = run_engine(e, p, o);
+    CHECK(r.termination == Termination::kNoiseFloor);
+    CHECK(r.converged());
+    CHECK(r.iterations == 12);  // first k with |G_k - G_{k-4}| / G_k < 1e-3
+    CHECK(r.noise_floor_trace_error == Approx(0.2));
+  }
+  SECTION("above the floor it does not fire") {
+    FakeEngine e([](int) { return 0.3; });
+    o.max_iterations = 30;
+    const Reconstruction r = run_engine(e, p, o);
+    CHECK(r.termination == Termination::kMaxIterations);
+  }
+  SECTION("max_iterations reached at the floor counts as converged") {
+    FakeEngine e([](int k) { return 0.19 * std::pow(0.9, k); });
+    o.max_iterations = 10;
+    const Reconstruction r = run_engine(e, p, o);
+    CHECK(r.termination == Termination::kNoiseFloor);
+    CHECK(r.iterations == 10);
+  }
+  SECTION("factor 0 disables the rule") {
+    FakeEngine e([](int) { return 0.1; });
+    o.noise_floor_factor = 0;
+    o.max_iterations = 10;
+    CHECK(run_engine(e, p, o).termination == Termination::kMaxIterations);
+  }
+}
+
+TEST_CASE("the time limit ends the run", "[engine]") {
+  FakeEngine e([](int k) { return 1.0 / k; }, 0.02);
+  EngineOptions o;
+  o.max_seconds = 0.1;
+  o.max_iterations = 1000;
+  const Reconstruction r = run_engine(e, tiny_problem(0.0), o);
+  CHECK(r.termination == Termination::kTimeLimit);
+  CHECK(r.iterations >= 2);
+  CHECK(r.iterations < 20);
+  CHECK(r.seconds >= 0.1);
+}
+
+TEST_CASE("callbacks see every record and can stop or abort", "[engine]") {
+  std::vector<int> seen;
+  auto watcher = [&](const IterationRecord& r) {
+    seen.push_back(r.iteration);
+    return CallbackResult::kContinue;
+  };
+  SECTION("stop") {
+    FakeEngine e([](int k) { return 1.0 / k; });
+    auto stop_at_3 = [](const IterationRecord& r) {
+      return r.iteration == 3 ? CallbackResult::kStop : CallbackResult::kContinue;
+    };
+    const Reconstruction r = run_engine(e, tiny_problem(0.0), EngineOptions(), {watcher, stop_at_3});
+    CHECK(r.termination == Termination::kUserStopped);
+    CHECK(r.iterations == 3);
+    CHECK(seen == std::vector<int>{1, 2, 3});
+    CHECK(e.finalized == 1);  // a stopped run still returns its best estimate
+  }
+  SECTION("abort") {
+    FakeEngine e([](int k) { return 1.0 / k; });
+    auto abort_at_2 = [](const IterationRecord& r) {
+      return r.iteration == 2 ? CallbackResult::kAbort : CallbackResult::kContinue;
+    };
+    const Reconstruction r = run_engine(e, tiny_problem(0.0), EngineOptions(), {abort_at_2, watcher});
+    CHECK(r.termination == Termination::kFailure);
+    CHECK(r.iterations == 2);
+    CHECK(seen == std::vector<int>{1});  // callbacks after a decision are not called
+    CHECK(r.message.find("aborted") != std::string::npos);
+  }
+}
+
+TEST_CASE("numerical failure keeps the best estimate", "[engine]") {
+  SECTION("G not finite") {
+    FakeEngine e([](int k) { return k < 4 ? 1.0 / k : std::numeric_limits<double>::quiet_NaN(); });
+    const Reconstruction r = run_engine(e, tiny_problem(0.0), EngineOptions());
+    CHECK(r.termination == Termination::kFailure);
+    CHECK(r.iterations == 4);
+    CHECK(r.best_iteration == 3);
+    CHECK(r.trace_error == Approx(1.0 / 3));
+  }
+  SECTION("the engine reports a numerical error") {
+    FakeEngine e([](int k) -> double {
+      if (k == 5) throw numeric_error("diverged");
+      return 1.0 / k;
+    });
+    const Reconstruction r = run_engine(e, tiny_problem(0.0), EngineOptions());
+    CHECK(r.termination == Termination::kFailure);
+    CHECK(r.message.find("diverged") != std::string::npos);
+    CHECK(r.iterations == 4);
+  }
+}
+
+TEST_CASE("trace error and noise floor follow their definitions", "[engine]") {
+  // G of Fittinghoff et al., JOSA B 12, 1955 (1995), normalised to the measured peak, with the
+  // optimal scale mu; here by hand on a 2 x 2 example.
+  Eigen::MatrixXd I(2, 2), M(2, 2), V(2, 2);
+  I << 1, 2, 3, 4;
+  M << 2, 4, 6, 8;
+  double mu = 0;
+  CHECK(trace_error(I, M, &mu) == Approx(0.0).margin(1e-15));
+  CHECK(mu == Approx(0.5));
+  M << 1, 2, 3, 5;
+  const double m = (1 + 4 + 9 + 20) / 39.0;  // sum I M / sum M^2
+  const double r2 = std::pow(1 - m, 2) + std::pow(2 - 2 * m, 2) + std::pow(3 - 3 * m, 2) +
+                    std::pow(4 - 5 * m, 2);
+  CHECK(trace_error(I, M, &mu) == Approx(std::sqrt(r2 / (4 * 16))));
+  CHECK(mu == Approx(m));
+  V << 1, 2, 3, 4;  // Poisson: variance = counts
+  CHECK(noise_floor_trace_error(I, V) == Approx(std::sqrt(10.0 / (4 * 16))));
+  CHECK(noise_floor_trace_error(I, Eigen::MatrixXd()) == 0.0);
+  CHECK_THROWS_AS(trace_error(I, Eigen::MatrixXd::Zero(3, 2)), Error);
+}
+
+TEST_CASE("reports name the engine, the termination and every iteration", "[engine]") {
+  FakeEngine e([](int k) { return 1.0 / k; });
+  EngineOptions o;
+  o.max_iterations = 100;
+  const Reconstruction r = run_engine(e, tiny_problem(0.0), o);
+  const std::string b = r.brief_report();
+  CHECK(b.find("fake") != std::string::npos);
+  CHECK(b.find(to_string(r.termination)) != std::string::npos);
+  CHECK(b.find('\n') == std::string::npos);
+  const std::string f = r.full_report();
+  CHECK(f.find("iteration") != std::string::npos);
+  CHECK(f.find("<- best") != std::string::npos);
+  CHECK(f.find("\n        100 ") != std::string::npos);  // the last iteration is listed
+  CHECK(std::string(to_string(Termination::kNoiseFloor)) == "noise_floor");
+}
