@@ -35,7 +35,7 @@ test: build
 
 demo: build
 	./$(BUILD)/cli/streakwright simulate --preset $(PRESET) --out $(DEMO) --seed 7
-	./$(BUILD)/cli/streakwright retrieve $(DEMO)/$(PRESET).json --out $(DEMO)/retrieval
+	./$(BUILD)/cli/streakwright retrieve $(DEMO)/$(PRESET).json --out $(DEMO)/retrieval --bootstrap 4
 
 bench: deps
 	cmake -S . -B $(BUILD) -DCMAKE_BUILD_TYPE=Release -DSTREAKWRIGHT_BUILD_BENCHMARKS=ON

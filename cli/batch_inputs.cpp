@@ -28,7 +28,8 @@ std::string lower(std::string s) {
 }
 
 bool ends_with(const std::string& s, const std::string& suffix) {
-  return s.size() >= suffix.size() && s.compare(s.size() - suffix.size(), suffix.size(), suffix) == 0;
+  return s.size() >= suffix.size() &&
+         s.compare(s.size() - suffix.size(), suffix.size(), suffix) == 0;
 }
 
 std::string trim(const std::string& s) {
@@ -77,6 +78,11 @@ FileRole classify_structured(const fs::path& p) {
   return scans ? FileRole::kManifest : FileRole::kOther;
 }
 
+/// The folder of a file ("." for a bare file name).
+fs::path folder_of(const fs::path& p) {
+  return p.parent_path().empty() ? fs::path(".") : p.parent_path();
+}
+
 bool structured_ext(const fs::path& p) {
   const std::string ext = lower(p.extension().string());
   return ext == ".json" || ext == ".yaml" || ext == ".yml";
@@ -97,7 +103,7 @@ std::string strip_ext(const fs::path& rel) {
 /// Scan name of `sidecar` under `root` (both made absolute and normal).
 std::string name_under(const fs::path& sidecar, const fs::path& root) {
   const fs::path a = fs::absolute(sidecar).lexically_normal();
-  const fs::path r = fs::absolute(root).lexically_normal();
+  const fs::path r = fs::absolute(root.empty() ? fs::path(".") : root).lexically_normal();
   fs::path rel = a.lexically_relative(r);
   if (rel.empty() || *rel.begin() == "..") rel = a.relative_path();
   return strip_ext(rel);
@@ -106,7 +112,8 @@ std::string name_under(const fs::path& sidecar, const fs::path& root) {
 void check_name(const std::string& name, const std::string& origin) {
   if (name.empty()) throw usage_error(origin + ": empty scan name");
   const fs::path p(name);
-  if (p.is_absolute()) throw usage_error(origin + ": scan name '" + name + "' must be a relative path");
+  if (p.is_absolute())
+    throw usage_error(origin + ": scan name '" + name + "' must be a relative path");
   for (const auto& part : p) {
     const std::string s = part.string();
     if (s.empty() || s == "." || s == ".." || s[0] == '.')
@@ -214,10 +221,11 @@ std::vector<BatchScan> read_manifest_structured(const fs::path& file) {
     list = &j["scans"];
   }
   if (!list->is_array())
-    throw usage_error("manifest '" + file.string() + "': \"scans\" must be a list of sidecar paths "
+    throw usage_error("manifest '" + file.string() +
+                      "': \"scans\" must be a list of sidecar paths "
                       "or objects {scan: ..., gas: ..., ...}");
   std::vector<BatchScan> out;
-  const fs::path root = file.parent_path();
+  const fs::path root = folder_of(file);
   std::size_t i = 0;
   for (const auto& e : *list) {
     const std::string where = "manifest '" + file.string() + "' scans[" + std::to_string(i++) + "]";
@@ -226,8 +234,10 @@ std::vector<BatchScan> read_manifest_structured(const fs::path& file) {
       cells["scan"] = e.get<std::string>();
     } else if (e.is_object()) {
       for (auto it = e.begin(); it != e.end(); ++it) {
-        if (it.value().is_string()) cells[it.key()] = it.value().get<std::string>();
-        else if (it.value().is_number()) cells[it.key()] = it.value().dump();
+        if (it.value().is_string())
+          cells[it.key()] = it.value().get<std::string>();
+        else if (it.value().is_number())
+          cells[it.key()] = it.value().dump();
         else if (!it.value().is_null())
           throw usage_error(where + ", " + it.key() + ": expected a string or a number");
       }
@@ -264,7 +274,8 @@ std::vector<BatchScan> parse_manifest_csv(const std::string& text, const std::st
       if (std::find(header.begin(), header.end(), "scan") == header.end() &&
           std::find(header.begin(), header.end(), "sidecar") == header.end())
         throw usage_error("manifest '" + where + "' line " + std::to_string(line_no) +
-                          ": the header must name a 'scan' column (the sidecar path); got '" + line + "'");
+                          ": the header must name a 'scan' column (the sidecar path); got '" +
+                          line + "'");
     } else {
       const std::vector<std::string> cells = split_csv_line(line, sep);
       const std::string at = "manifest '" + where + "' line " + std::to_string(line_no);
@@ -272,35 +283,42 @@ std::vector<BatchScan> parse_manifest_csv(const std::string& text, const std::st
         throw usage_error(at + ": " + std::to_string(cells.size()) + " cells but the header has " +
                           std::to_string(header.size()) + " columns");
       std::map<std::string, std::string> m;
-      for (std::size_t k = 0; k < header.size(); ++k) m[header[k]] = k < cells.size() ? cells[k] : "";
+      for (std::size_t k = 0; k < header.size(); ++k)
+        m[header[k]] = k < cells.size() ? cells[k] : "";
       out.push_back(make_entry(m, at, root));
     }
     if (end == text.size()) break;
   }
-  if (header.empty()) throw usage_error("manifest '" + where + "' is empty; expected a header row and scans");
+  if (header.empty())
+    throw usage_error("manifest '" + where + "' is empty; expected a header row and scans");
   return out;
 }
 
 std::vector<BatchScan> collect_scans(const std::vector<std::string>& inputs,
-                                     const std::string& out_dir, std::vector<std::string>* skipped) {
+                                     const std::string& out_dir,
+                                     std::vector<std::string>* skipped) {
   std::vector<BatchScan> all;
   std::error_code ec;
   const fs::path out_abs = fs::weakly_canonical(fs::absolute(out_dir), ec);
   for (const std::string& in : inputs) {
     const fs::path p(in);
     if (!fs::exists(p, ec))
-      throw usage_error("input '" + in + "' does not exist; expected a folder, a sidecar or a manifest");
+      throw usage_error("input '" + in +
+                        "' does not exist; expected a folder, a sidecar or a manifest");
     if (fs::is_directory(p, ec)) {
       std::vector<BatchScan> found;
-      fs::recursive_directory_iterator it(p, fs::directory_options::skip_permission_denied, ec), end;
+      fs::recursive_directory_iterator it(p, fs::directory_options::skip_permission_denied, ec),
+          end;
       if (ec) throw usage_error("input folder '" + in + "' cannot be listed: " + ec.message());
       for (; it != end; it.increment(ec)) {
         if (ec) throw usage_error("input folder '" + in + "' cannot be listed: " + ec.message());
         const fs::path& f = it->path();
         const std::string fname = f.filename().string();
         if (it->is_directory(ec)) {
-          if (!fname.empty() && fname[0] == '.') it.disable_recursion_pending();
-          else if (fs::weakly_canonical(f, ec) == out_abs) it.disable_recursion_pending();
+          if (!fname.empty() && fname[0] == '.')
+            it.disable_recursion_pending();
+          else if (fs::weakly_canonical(f, ec) == out_abs)
+            it.disable_recursion_pending();
           continue;
         }
         if (!fname.empty() && fname[0] == '.') continue;
@@ -314,10 +332,11 @@ std::vector<BatchScan> collect_scans(const std::vector<std::string>& inputs,
           check_name(s.name, s.origin + " file '" + f.string() + "'");
           found.push_back(std::move(s));
         } else if (skipped) {
-          skipped->push_back(f.string() + (role == FileRole::kManifest
-                                               ? ": a manifest inside a searched folder is not "
-                                                 "expanded (give it as an input)"
-                                               : ": no \"streakwright\" key (not a trace sidecar)"));
+          skipped->push_back(f.string() +
+                             (role == FileRole::kManifest
+                                  ? ": a manifest inside a searched folder is not "
+                                    "expanded (give it as an input)"
+                                  : ": no \"streakwright\" key (not a trace sidecar)"));
         }
       }
       all.insert(all.end(), found.begin(), found.end());
@@ -331,7 +350,7 @@ std::vector<BatchScan> collect_scans(const std::vector<std::string>& inputs,
       } catch (const Error& e) {
         throw usage_error(std::string("manifest: ") + e.what());
       }
-      const auto rows = parse_manifest_csv(text, in, p.parent_path().string());
+      const auto rows = parse_manifest_csv(text, in, folder_of(p).string());
       all.insert(all.end(), rows.begin(), rows.end());
       continue;
     }
@@ -346,12 +365,13 @@ std::vector<BatchScan> collect_scans(const std::vector<std::string>& inputs,
     } else if (role == FileRole::kSidecar) {
       BatchScan s;
       s.sidecar = in;
-      s.name = name_under(p, p.parent_path());
+      s.name = name_under(p, folder_of(p));
       s.origin = "input '" + in + "'";
       check_name(s.name, s.origin);
       all.push_back(std::move(s));
     } else {
-      throw usage_error("input '" + in + "' is neither a trace sidecar (no \"streakwright\" key) "
+      throw usage_error("input '" + in +
+                        "' is neither a trace sidecar (no \"streakwright\" key) "
                         "nor a manifest (no \"scans\" list)");
     }
   }

@@ -15,8 +15,10 @@ std::string clock_text(double s) {
   if (!(s >= 0) || s > 1e7) return "--";
   const long long t = static_cast<long long>(s + 0.5);
   char buf[32];
-  if (t >= 3600) std::snprintf(buf, sizeof buf, "%lld:%02lld:%02lld", t / 3600, (t / 60) % 60, t % 60);
-  else std::snprintf(buf, sizeof buf, "%lld:%02lld", t / 60, t % 60);
+  if (t >= 3600)
+    std::snprintf(buf, sizeof buf, "%lld:%02lld:%02lld", t / 3600, (t / 60) % 60, t % 60);
+  else
+    std::snprintf(buf, sizeof buf, "%lld:%02lld", t / 60, t % 60);
   return buf;
 }
 
@@ -43,8 +45,9 @@ std::string BatchProgress::bar_locked() const {
   const double rate = elapsed > 0 ? static_cast<double>(analysed_) / elapsed : 0.0;
   const double eta = rate > 0 ? static_cast<double>(total_ - done_) / rate : -1.0;
   char buf[160];
-  std::snprintf(buf, sizeof buf, " %zu/%zu  ok %zu  failed %zu  %.2f scans/s  ETA %s", done_, total_,
-                done_ - failed_, failed_, rate, done_ == total_ ? "0:00" : clock_text(eta).c_str());
+  std::snprintf(buf, sizeof buf, " %zu/%zu  ok %zu  failed %zu  %.2f scans/s  ETA %s", done_,
+                total_, done_ - failed_, failed_, rate,
+                done_ == total_ ? "0:00" : clock_text(eta).c_str());
   std::string line = bar + buf;
   if (!running_.empty()) {
     std::string names;
@@ -81,8 +84,10 @@ void BatchProgress::finished(const std::string& scan, bool ok, bool reused,
   running_.erase(scan);
   ++done_;
   if (!ok) ++failed_;
-  if (reused) ++reused_;
-  else ++analysed_;
+  if (reused)
+    ++reused_;
+  else
+    ++analysed_;
   if (quiet_) return;
   if (tty_) {
     if (!ok) {
@@ -94,13 +99,14 @@ void BatchProgress::finished(const std::string& scan, bool ok, bool reused,
   }
   const int w = static_cast<int>(std::to_string(total_).size());
   if (!ok)
-    std::fprintf(stderr, "batch [%*zu/%zu] FAILED  %s: %s\n", w, done_, total_, scan.c_str(), message.c_str());
+    std::fprintf(stderr, "batch [%*zu/%zu] FAILED  %s: %s\n", w, done_, total_, scan.c_str(),
+                 message.c_str());
   else if (reused)
-    std::fprintf(stderr, "batch [%*zu/%zu] reused  %s  (unchanged since the last run)\n", w, done_, total_,
-                 scan.c_str());
+    std::fprintf(stderr, "batch [%*zu/%zu] reused  %s  (unchanged since the last run)\n", w, done_,
+                 total_, scan.c_str());
   else
-    std::fprintf(stderr, "batch [%*zu/%zu] ok      %s  %.2f s%s%s\n", w, done_, total_, scan.c_str(), seconds,
-                 message.empty() ? "" : "  ", message.c_str());
+    std::fprintf(stderr, "batch [%*zu/%zu] ok      %s  %.2f s%s%s\n", w, done_, total_,
+                 scan.c_str(), seconds, message.empty() ? "" : "  ", message.c_str());
   std::fflush(stderr);
 }
 

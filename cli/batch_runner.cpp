@@ -1,6 +1,7 @@
 #include "cli/batch_runner.h"
 
 #include <fcntl.h>
+#include <omp.h>
 #include <signal.h>
 #include <stdio.h>
 #include <sys/types.h>
@@ -88,9 +89,12 @@ std::string num(double v) {
 std::string escape_name(const std::string& name) {
   std::string out;
   for (char c : name) {
-    if (c == '%') out += "%25";
-    else if (c == '/') out += "%2F";
-    else out += c;
+    if (c == '%')
+      out += "%25";
+    else if (c == '/')
+      out += "%2F";
+    else
+      out += c;
   }
   return out;
 }
@@ -107,7 +111,8 @@ SidecarPeek peek_sidecar(const std::string& path) {
     const nlohmann::json j = read_structured_file(path, "sidecar");
     if (j.is_object()) {
       if (j.contains("image") && j["image"].is_string()) p.image = j["image"].get<std::string>();
-      if (j.contains("acquired") && j["acquired"].is_string()) p.acquired = j["acquired"].get<std::string>();
+      if (j.contains("acquired") && j["acquired"].is_string())
+        p.acquired = j["acquired"].get<std::string>();
     }
   } catch (...) {
   }
@@ -168,7 +173,8 @@ std::string install(const fs::path& tmp, const fs::path& final_dir, const fs::pa
   if (ec) return "cannot create '" + final_dir.parent_path().string() + "': " + ec.message();
   if (!fs::exists(final_dir, ec)) {
     fs::rename(tmp, final_dir, ec);
-    return ec ? "cannot move the finished output to '" + final_dir.string() + "': " + ec.message() : "";
+    return ec ? "cannot move the finished output to '" + final_dir.string() + "': " + ec.message()
+              : "";
   }
   if (!fs::is_directory(final_dir, ec))
     return "cannot replace '" + final_dir.string() + "': it exists and is not a folder";
@@ -266,9 +272,10 @@ std::string batch_options_string(const BatchOptions& o) {
   std::ostringstream s;
   s << "analysis=" << to_string(o.analysis) << ";atomic_correction=" << o.atomic_correction
     << ";bootstrap=" << r.bootstrap << ";cma_phase_error_max_rad=" << num(r.cma_phase_error_max_rad)
-    << ";dipole=" << to_string(r.preprocess.dipole) << ";despike=" << (r.preprocess.remove_hot_pixels ? 1 : 0)
-    << ";engine=" << r.engine << ";isolated_max=" << num(r.isolated_max_satellite_ratio)
-    << ";iterations=" << r.iterations << ";max_seconds=" << num(r.max_seconds)
+    << ";dipole=" << to_string(r.preprocess.dipole)
+    << ";despike=" << (r.preprocess.remove_hot_pixels ? 1 : 0) << ";engine=" << r.engine
+    << ";isolated_max=" << num(r.isolated_max_satellite_ratio) << ";iterations=" << r.iterations
+    << ";max_seconds=" << num(r.max_seconds)
     << ";satellites_max=" << num(r.satellites_max_satellite_ratio) << ";base_seed=" << r.seed
     << ";threads=" << engine_threads(o);
   for (const auto& [k, v] : r.engine_extra) s << ";engine." << k << "=" << v;
@@ -281,14 +288,16 @@ std::string scan_options_string(const BatchScan& scan, const BatchOptions& o) {
   std::ostringstream s;
   s << "analysis=" << to_string(e.analysis) << ";atomic_correction=" << o.atomic_correction
     << ";bootstrap=" << r.bootstrap << ";cma_phase_error_max_rad=" << num(r.cma_phase_error_max_rad)
-    << ";dipole=" << to_string(r.preprocess.dipole) << ";despike=" << (r.preprocess.remove_hot_pixels ? 1 : 0)
-    << ";engine=" << e.overrides.engine.value_or(r.engine) << ";isolated_max=" << num(r.isolated_max_satellite_ratio)
-    << ";iterations=" << r.iterations << ";max_seconds=" << num(r.max_seconds)
+    << ";dipole=" << to_string(r.preprocess.dipole)
+    << ";despike=" << (r.preprocess.remove_hot_pixels ? 1 : 0)
+    << ";engine=" << e.overrides.engine.value_or(r.engine)
+    << ";isolated_max=" << num(r.isolated_max_satellite_ratio) << ";iterations=" << r.iterations
+    << ";max_seconds=" << num(r.max_seconds)
     << ";satellites_max=" << num(r.satellites_max_satellite_ratio)
     << ";seed=" << scan_seed(r.seed, scan.name) << ";threads=" << engine_threads(o);
   for (const auto& [k, v] : r.engine_extra) s << ";engine." << k << "=" << v;
-  s << ";override.gas=" << e.overrides.gas.value_or("")
-    << ";override.ir_wavelength_nm=" << (e.overrides.ir_wavelength_nm ? num(*e.overrides.ir_wavelength_nm) : "")
+  s << ";override.gas=" << e.overrides.gas.value_or("") << ";override.ir_wavelength_nm="
+    << (e.overrides.ir_wavelength_nm ? num(*e.overrides.ir_wavelength_nm) : "")
     << ";override.kind=" << e.overrides.kind.value_or("");
   return s.str();
 }
@@ -297,9 +306,13 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
   const auto t_start = std::chrono::steady_clock::now();
   const fs::path out(o.out_dir);
-  std::error_code ec;
-  fs::create_directories(out, ec);
-  if (ec) throw input_error("cannot create the batch output folder '" + o.out_dir + "': " + ec.message());
+  {
+    std::error_code ec;
+    fs::create_directories(out, ec);
+    if (ec)
+      throw input_error("cannot create the batch output folder '" + o.out_dir +
+                        "': " + ec.message());
+  }
   remove_stale_temporaries(out);
 
   SignalScope signals;
@@ -307,7 +320,8 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
   std::vector<SummaryRow> rows(scans.size());
   std::vector<char> started(scans.size(), 0);
   std::atomic<std::size_t> next{0};
-  const int jobs = std::max(1, std::min<int>(o.jobs, static_cast<int>(std::max<std::size_t>(1, scans.size()))));
+  const int jobs =
+      std::max(1, std::min<int>(o.jobs, static_cast<int>(std::max<std::size_t>(1, scans.size()))));
 
   auto process = [&](std::size_t i) {
     const BatchScan& s = scans[i];
@@ -315,16 +329,17 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
     row.scan = s.name;
     row.input = s.sidecar;
     const Effective e = effective(s, o);
-    const std::string options = scan_options_string(s, o);
-    const std::string options_hash = hex64(fnv1a64(options));
-    const SidecarPeek peek = peek_sidecar(s.sidecar);
-    const std::string hash = input_hash(s.sidecar, peek.image);
-    row.input_hash = hash;
-    row.acquired = peek.acquired;
     row.analysis = to_string(e.analysis);
     const fs::path final_dir = out / fs::path(s.name);
+    std::error_code ec;  // this worker's own
     progress.started(s.name);
     try {
+      const std::string options = scan_options_string(s, o);
+      const std::string options_hash = hex64(fnv1a64(options));
+      const SidecarPeek peek = peek_sidecar(s.sidecar);
+      const std::string hash = input_hash(s.sidecar, peek.image);
+      row.input_hash = hash;
+      row.acquired = peek.acquired;
       if (o.resume) {
         if (auto r = reusable(final_dir / "result.json", hash, options_hash)) {
           row = row_from_result(s.name, *r);
@@ -349,7 +364,8 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
       job.quiet = true;
       job.progress = [](const std::string&, const std::string&) {
         if (g_interrupts.load() >= 2)
-          throw Error(ErrorKind::kInternal, "abandoned after a second interrupt (partial output removed)");
+          throw Error(ErrorKind::kInternal,
+                      "abandoned after a second interrupt (partial output removed)");
       };
       job.extra_provenance = {{"batch.scan", s.name},
                               {"batch.options", options},
@@ -357,7 +373,8 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
                               {"batch.seed", std::to_string(job.retrieve.seed)}};
       if (!peek.acquired.empty()) job.extra_provenance.push_back({"batch.acquired", peek.acquired});
       const ScanOutcome oc = run_scan(job);
-      row.analysis = to_string(oc.analysis_run != AnalysisKind::kAuto ? oc.analysis_run : e.analysis);
+      row.analysis =
+          to_string(oc.analysis_run != AnalysisKind::kAuto ? oc.analysis_run : e.analysis);
       if (!oc.ok) {
         row.status = "failed";
         row.message = oc.message;
@@ -366,7 +383,8 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
         return;
       }
       add_seconds(tmp.path() / "result.json", oc.seconds);
-      SummaryRow r = row_from_result(s.name, read_result_json((tmp.path() / "result.json").string()));
+      SummaryRow r =
+          row_from_result(s.name, read_result_json((tmp.path() / "result.json").string()));
       r.input = s.sidecar;
       if (const std::string why = install(tmp.path(), final_dir, out, escaped); !why.empty()) {
         row.status = "failed";
@@ -390,6 +408,8 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
   std::vector<std::thread> workers;
   for (int w = 0; w < jobs; ++w)
     workers.emplace_back([&] {
+      // OpenMP regions outside the engines (preprocessing, analyses) stay on this thread too.
+      if (jobs > 1) omp_set_num_threads(1);
       for (;;) {
         if (g_interrupts.load() > 0) break;
         const std::size_t i = next.fetch_add(1);
@@ -410,10 +430,11 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
       if (n != seen_interrupts) {
         seen_interrupts = n;
         lock.unlock();
-        progress.note(n == 1 ? "streakwright batch: interrupted: no new scans start; waiting for the "
-                               "running ones to finish (interrupt again to abandon them)"
-                             : "streakwright batch: second interrupt: abandoning the running scans "
-                               "(interrupt again to exit at once)");
+        progress.note(n == 1
+                          ? "streakwright batch: interrupted: no new scans start; waiting for the "
+                            "running ones to finish (interrupt again to abandon them)"
+                          : "streakwright batch: second interrupt: abandoning the running scans "
+                            "(interrupt again to exit at once)");
         lock.lock();
       }
       lock.unlock();
@@ -436,8 +457,10 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
       r.message = "not run: the batch was interrupted before this scan started";
       ++rep.not_run;
     }
-    if (r.status == "ok") ++rep.ok;
-    else ++rep.failed;
+    if (r.status == "ok")
+      ++rep.ok;
+    else
+      ++rep.failed;
     if (r.reused) ++rep.reused;
   }
   rep.rows = std::move(rows);

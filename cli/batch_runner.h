@@ -34,24 +34,24 @@
 namespace sw::cli {
 
 struct BatchOptions {
-  std::string out_dir;                        ///< the batch output folder (created)
-  int jobs = 1;                               ///< parallel scans (>= 1)
-  bool resume = false;                        ///< reuse unchanged results (see above)
-  int shard_k = 1, shard_n = 1;               ///< this process runs shard K of N (1-based)
+  std::string out_dir;                          ///< the batch output folder (created)
+  int jobs = 1;                                 ///< parallel scans (>= 1)
+  bool resume = false;                          ///< reuse unchanged results (see above)
+  int shard_k = 1, shard_n = 1;                 ///< this process runs shard K of N (1-based)
   AnalysisKind analysis = AnalysisKind::kAuto;  ///< analysis unless a manifest row says otherwise
-  RetrieveOptions retrieve;                   ///< base options; retrieve.seed is the base seed
-  std::string atomic_correction = "auto";     ///< rabbitt: auto | none
-  ScanOverrides overrides;                    ///< for every scan (a manifest row's values win)
-  bool quiet = false;                         ///< no progress on stderr
+  RetrieveOptions retrieve;                     ///< base options; retrieve.seed is the base seed
+  std::string atomic_correction = "auto";       ///< rabbitt: auto | none
+  ScanOverrides overrides;                      ///< for every scan (a manifest row's values win)
+  bool quiet = false;                           ///< no progress on stderr
   /// Empty if usable, else a message naming the option, its value and the constraint.
   std::string validate() const;
 };
 
 struct BatchReport {
-  std::vector<SummaryRow> rows;   ///< one per scan of this shard, in name order
+  std::vector<SummaryRow> rows;  ///< one per scan of this shard, in name order
   std::size_t ok = 0, failed = 0, reused = 0, not_run = 0;
-  bool interrupted = false;       ///< a SIGINT/SIGTERM arrived
-  double seconds = 0.0;           ///< wall time of the batch
+  bool interrupted = false;  ///< a SIGINT/SIGTERM arrived
+  double seconds = 0.0;      ///< wall time of the batch
 };
 
 /// The canonical options string of one scan ("analysis=retrieve;bootstrap=8;..."): every

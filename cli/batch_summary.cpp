@@ -61,8 +61,10 @@ std::string csv_cell(const std::string& s) {
 std::string display(const std::optional<double>& v, const std::optional<double>& s) {
   if (!v) return "";
   char buf[64];
-  if (s && *s > 0) std::snprintf(buf, sizeof buf, "%.4g +- %.2g", *v, *s);
-  else std::snprintf(buf, sizeof buf, "%.4g", *v);
+  if (s && *s > 0)
+    std::snprintf(buf, sizeof buf, "%.4g +- %.2g", *v, *s);
+  else
+    std::snprintf(buf, sizeof buf, "%.4g", *v);
   return buf;
 }
 
@@ -184,7 +186,8 @@ const std::vector<std::string>& summary_columns() {
       v.push_back(q.column);
       if (q.sigma) v.push_back(std::string(q.column) + "_sigma");
     }
-    for (const char* s : {"seconds", "converged", "reused", "acquired", "input", "input_hash", "report"})
+    for (const char* s :
+         {"seconds", "converged", "reused", "acquired", "input", "input_hash", "report"})
       v.push_back(s);
     return v;
   }();
@@ -243,7 +246,8 @@ std::string summary_csv(const std::vector<SummaryRow>& rows) {
     cells.push_back(r.seconds ? fmt_number(*r.seconds) : "");
     cells.push_back(r.converged ? (*r.converged ? "true" : "false") : "");
     cells.push_back(r.reused ? "true" : "false");
-    for (const std::string* s : {&r.acquired, &r.input, &r.input_hash, &r.report}) cells.push_back(*s);
+    for (const std::string* s : {&r.acquired, &r.input, &r.input_hash, &r.report})
+      cells.push_back(*s);
     for (std::size_t k = 0; k < cells.size(); ++k) {
       if (k) out += ',';
       out += csv_cell(cells[k]);
@@ -297,7 +301,8 @@ std::vector<SummaryRow> rows_from_summary_json(const std::string& text, const st
   }
   if (!j.is_object() || !j.contains("streakwright_summary") || !j.contains("scans") ||
       !j["scans"].is_array())
-    throw input_error(where + ": expected a batch summary with \"streakwright_summary\": 1 and a "
+    throw input_error(where +
+                      ": expected a batch summary with \"streakwright_summary\": 1 and a "
                       "\"scans\" array");
   std::vector<SummaryRow> rows;
   std::size_t i = 0;
@@ -327,7 +332,8 @@ std::vector<SummaryRow> rows_from_summary_json(const std::string& text, const st
       if (q.sigma) number(std::string(q.column) + "_sigma", &(r.*q.sigma));
     }
     number("seconds", &r.seconds);
-    if (s.contains("converged") && s["converged"].is_boolean()) r.converged = s["converged"].get<bool>();
+    if (s.contains("converged") && s["converged"].is_boolean())
+      r.converged = s["converged"].get<bool>();
     if (s.contains("reused") && s["reused"].is_boolean()) r.reused = s["reused"].get<bool>();
     str("acquired", &r.acquired);
     str("input", &r.input);
@@ -349,7 +355,9 @@ std::optional<double> parse_iso8601_utc(const std::string& text) {
   std::size_t pos = static_cast<std::size_t>(used);
   if (pos < text.size() && text[pos] == ':') {
     std::size_t end = pos + 1;
-    while (end < text.size() && (std::isdigit(static_cast<unsigned char>(text[end])) || text[end] == '.')) ++end;
+    while (end < text.size() &&
+           (std::isdigit(static_cast<unsigned char>(text[end])) || text[end] == '.'))
+      ++end;
     try {
       sec = std::stod(text.substr(pos + 1, end - pos - 1));
     } catch (...) {
@@ -424,22 +432,26 @@ void write_summary_outputs(const std::string& dir, const std::vector<SummaryRow>
   page.add_heading("Scans");
   std::vector<std::vector<std::string>> table, links;
   for (const auto& r : rows) {
-    std::vector<std::string> row = {r.scan, r.status, r.analysis, r.pulse_class,
-                                    display(r.fwhm_as, r.fwhm_as_sigma),
-                                    display(r.gdd_as2, r.gdd_as2_sigma),
-                                    display(r.attochirp_as_per_eV, r.attochirp_as_per_eV_sigma),
-                                    display(r.peak_vector_potential_au, r.peak_vector_potential_au_sigma),
-                                    display(r.satellite_intensity_ratio, r.satellite_intensity_ratio_sigma),
-                                    display(r.trace_error, std::nullopt),
-                                    r.seconds ? display(r.seconds, std::nullopt) : "",
-                                    r.message};
+    std::vector<std::string> row = {
+        r.scan,
+        r.status,
+        r.analysis,
+        r.pulse_class,
+        display(r.fwhm_as, r.fwhm_as_sigma),
+        display(r.gdd_as2, r.gdd_as2_sigma),
+        display(r.attochirp_as_per_eV, r.attochirp_as_per_eV_sigma),
+        display(r.peak_vector_potential_au, r.peak_vector_potential_au_sigma),
+        display(r.satellite_intensity_ratio, r.satellite_intensity_ratio_sigma),
+        display(r.trace_error, std::nullopt),
+        r.seconds ? display(r.seconds, std::nullopt) : "",
+        r.message};
     table.push_back(std::move(row));
     links.push_back({r.report.empty() ? "" : url_path(r.report)});
   }
-  page.add_table_with_links({"scan (report)", "status", "analysis", "class", "FWHM (as)", "GDD (as^2)",
-                             "attochirp (as/eV)", "IR A0 (a.u.)", "satellite ratio", "G", "time (s)",
-                             "remark"},
-                            table, links);
+  page.add_table_with_links(
+      {"scan (report)", "status", "analysis", "class", "FWHM (as)", "GDD (as^2)",
+       "attochirp (as/eV)", "IR A0 (a.u.)", "satellite ratio", "G", "time (s)", "remark"},
+      table, links);
   page.add_heading("Trends");
   page.add_figure(path("trend_fwhm.png"),
                   "XUV FWHM with its bootstrap 1-sigma versus scan number (or acquisition time "
@@ -457,7 +469,8 @@ std::vector<SummaryRow> load_batch_rows(const std::string& dir, std::string* sou
     throw input_error("'" + dir + "' is not a folder; expected a batch output folder");
   const fs::path root(dir);
   auto from_summary = [](const fs::path& file, const fs::path& prefix) {
-    std::vector<SummaryRow> rows = rows_from_summary_json(read_file_bytes(file.string()), file.string());
+    std::vector<SummaryRow> rows =
+        rows_from_summary_json(read_file_bytes(file.string()), file.string());
     for (auto& r : rows)
       if (!r.report.empty()) r.report = (prefix / r.report).generic_string();
     return rows;
@@ -495,7 +508,8 @@ std::vector<SummaryRow> load_batch_rows(const std::string& dir, std::string* sou
     const fs::path folder = it->path().parent_path();
     fs::path rel = folder.lexically_relative(root);
     std::string name = rel.generic_string();
-    if (name.empty() || name == ".") name = fs::absolute(root).lexically_normal().filename().string();
+    if (name.empty() || name == ".")
+      name = fs::absolute(root).lexically_normal().filename().string();
     SummaryRow row;
     try {
       row = row_from_result(name, read_result_json(it->path().string()));
@@ -504,13 +518,16 @@ std::vector<SummaryRow> load_batch_rows(const std::string& dir, std::string* sou
       row.status = "failed";
       row.message = std::string("cannot read the result: ") + e.what();
     }
-    if (fs::exists(folder / "report.html")) row.report = (rel / "report.html").lexically_normal().generic_string();
+    if (fs::exists(folder / "report.html"))
+      row.report = (rel / "report.html").lexically_normal().generic_string();
     rows.push_back(std::move(row));
   }
   if (rows.empty())
-    throw input_error("'" + dir + "' holds no summary.json (neither in it nor in its sub-folders) and "
+    throw input_error("'" + dir +
+                      "' holds no summary.json (neither in it nor in its sub-folders) and "
                       "no result.json; expected the output folder of streakwright batch");
-  std::sort(rows.begin(), rows.end(), [](const SummaryRow& a, const SummaryRow& b) { return a.scan < b.scan; });
+  std::sort(rows.begin(), rows.end(),
+            [](const SummaryRow& a, const SummaryRow& b) { return a.scan < b.scan; });
   if (source) *source = "result.json files under " + dir;
   return rows;
 }

@@ -31,14 +31,14 @@ struct SummaryRow {
   std::optional<double> peak_vector_potential_au, peak_vector_potential_au_sigma;
   std::optional<double> satellite_intensity_ratio, satellite_intensity_ratio_sigma;
   std::optional<double> trace_error;
-  std::optional<double> seconds;       ///< wall time of the scan's analysis
-  std::optional<bool> converged;       ///< fit.converged when the analysis has a fit
-  std::string acquired;                ///< acquisition time from the sidecar ("acquired", ISO 8601)
-  std::string input;                   ///< sidecar path as given
-  std::string input_hash;              ///< FNV-1a 64 of sidecar + data (provenance)
+  std::optional<double> seconds;  ///< wall time of the scan's analysis
+  std::optional<bool> converged;  ///< fit.converged when the analysis has a fit
+  std::string acquired;           ///< acquisition time from the sidecar ("acquired", ISO 8601)
+  std::string input;              ///< sidecar path as given
+  std::string input_hash;         ///< FNV-1a 64 of sidecar + data (provenance)
   /// Path of the scan's report.html relative to the folder holding the summary ("" if none).
   std::string report;
-  bool reused = false;                 ///< --resume kept an existing result
+  bool reused = false;  ///< --resume kept an existing result
 };
 
 /// A headline number of the summary: its column name, a label with unit for figures and text,

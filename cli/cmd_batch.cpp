@@ -35,7 +35,8 @@ struct BatchArgs {
 void apply_config(BatchArgs& a) {
   const nlohmann::json j = read_structured_file(a.config, "batch config");
   if (!j.is_object())
-    throw usage_error("batch config '" + a.config + "': expected a mapping of option names to values");
+    throw usage_error("batch config '" + a.config +
+                      "': expected a mapping of option names to values");
   auto given = [&](const std::string& k) {
     const auto it = a.cli.find(k);
     return it != a.cli.end() && it->second->count() > 0;
@@ -63,49 +64,63 @@ void apply_config(BatchArgs& a) {
     }
     if (k == "ir_wavelength_nm") {
       const double w = get_number(k, v);
-      if (!(w > 0)) throw usage_error(where(k) + " = " + v.dump() + "; expected a wavelength > 0 nm");
+      if (!(w > 0))
+        throw usage_error(where(k) + " = " + v.dump() + "; expected a wavelength > 0 nm");
       a.options.overrides.ir_wavelength_nm = w;
       continue;
     }
     if (k == "kind") {
       TraceKind tk;
       const std::string s = get_string(k, v);
-      if (!parse_trace_kind(s, &tk)) throw usage_error(where(k) + " = '" + s + "'; expected streaking, rabbitt or xuv_only");
+      if (!parse_trace_kind(s, &tk))
+        throw usage_error(where(k) + " = '" + s + "'; expected streaking, rabbitt or xuv_only");
       a.options.overrides.kind = s;
       continue;
     }
     static const std::vector<std::string> known = {
-        "analysis", "engine", "iterations", "bootstrap", "seed", "threads", "jobs", "dipole",
-        "despike", "atomic_correction", "cma_phase_limit", "isolated_max", "satellites_max",
-        "max_seconds", "resume"};
+        "analysis",        "engine",       "iterations",     "bootstrap",   "seed",
+        "threads",         "jobs",         "dipole",         "despike",     "atomic_correction",
+        "cma_phase_limit", "isolated_max", "satellites_max", "max_seconds", "resume"};
     if (std::find(known.begin(), known.end(), k) == known.end()) {
       std::string list = "gas, ir_wavelength_nm, kind";
       for (const auto& n : known) list += ", " + n;
       throw usage_error(where(k) + ": unknown key; expected one of " + list);
     }
     if (given(k)) continue;  // the command line wins
-    if (k == "analysis") a.analysis = get_string(k, v);
-    else if (k == "engine") r.engine = get_string(k, v);
-    else if (k == "iterations") r.iterations = static_cast<int>(get_int(k, v));
-    else if (k == "bootstrap") r.bootstrap = static_cast<int>(get_int(k, v));
+    if (k == "analysis")
+      a.analysis = get_string(k, v);
+    else if (k == "engine")
+      r.engine = get_string(k, v);
+    else if (k == "iterations")
+      r.iterations = static_cast<int>(get_int(k, v));
+    else if (k == "bootstrap")
+      r.bootstrap = static_cast<int>(get_int(k, v));
     else if (k == "seed") {
       const long long s = get_int(k, v);
       if (s < 0) throw usage_error(where(k) + " = " + v.dump() + "; expected a seed >= 0");
       r.seed = static_cast<unsigned long long>(s);
-    } else if (k == "threads") r.threads = static_cast<int>(get_int(k, v));
-    else if (k == "jobs") a.options.jobs = static_cast<int>(get_int(k, v));
-    else if (k == "dipole") a.dipole = get_string(k, v);
+    } else if (k == "threads")
+      r.threads = static_cast<int>(get_int(k, v));
+    else if (k == "jobs")
+      a.options.jobs = static_cast<int>(get_int(k, v));
+    else if (k == "dipole")
+      a.dipole = get_string(k, v);
     else if (k == "despike") {
       if (!v.is_boolean()) throw usage_error(where(k) + ": expected true or false");
       r.preprocess.remove_hot_pixels = v.get<bool>();
     } else if (k == "resume") {
       if (!v.is_boolean()) throw usage_error(where(k) + ": expected true or false");
       a.options.resume = v.get<bool>();
-    } else if (k == "atomic_correction") a.options.atomic_correction = get_string(k, v);
-    else if (k == "cma_phase_limit") r.cma_phase_error_max_rad = get_number(k, v);
-    else if (k == "isolated_max") r.isolated_max_satellite_ratio = get_number(k, v);
-    else if (k == "satellites_max") r.satellites_max_satellite_ratio = get_number(k, v);
-    else if (k == "max_seconds") r.max_seconds = get_number(k, v);
+    } else if (k == "atomic_correction")
+      a.options.atomic_correction = get_string(k, v);
+    else if (k == "cma_phase_limit")
+      r.cma_phase_error_max_rad = get_number(k, v);
+    else if (k == "isolated_max")
+      r.isolated_max_satellite_ratio = get_number(k, v);
+    else if (k == "satellites_max")
+      r.satellites_max_satellite_ratio = get_number(k, v);
+    else if (k == "max_seconds")
+      r.max_seconds = get_number(k, v);
   }
 }
 
@@ -116,7 +131,8 @@ int run_batch_command(BatchArgs& a) {
   if (!parse_shard(a.shard, &o.shard_k, &o.shard_n))
     throw usage_error("--shard " + a.shard + ": expected K/N with 1 <= K <= N (e.g. 2/8)");
   if (!parse_analysis_kind(a.analysis, &o.analysis))
-    throw usage_error("--analysis " + a.analysis + ": expected auto, retrieve, rabbitt or classify");
+    throw usage_error("--analysis " + a.analysis +
+                      ": expected auto, retrieve, rabbitt or classify");
   if (!parse_dipole_kind(a.dipole, &o.retrieve.preprocess.dipole))
     throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
   if (o.retrieve.engine != "auto") (void)make_engine(o.retrieve.engine);  // lists the names
@@ -139,35 +155,47 @@ int run_batch_command(BatchArgs& a) {
   }
   if (!o.quiet) {
     std::fprintf(stderr, "streakwright batch: %zu scan(s)", mine.size());
-    if (o.shard_n > 1) std::fprintf(stderr, " in shard %d/%d of %zu", o.shard_k, o.shard_n, all.size());
-    std::fprintf(stderr, ", %d job(s), output %s%s\n", o.jobs, a.out.c_str(), o.resume ? ", resuming" : "");
+    if (o.shard_n > 1)
+      std::fprintf(stderr, " in shard %d/%d of %zu", o.shard_k, o.shard_n, all.size());
+    std::fprintf(stderr, ", %d job(s), output %s%s\n", o.jobs, a.out.c_str(),
+                 o.resume ? ", resuming" : "");
     if (!skipped.empty())
-      std::fprintf(stderr, "streakwright batch: %zu structured file(s) skipped (not trace sidecars), "
-                   "e.g. %s\n", skipped.size(), skipped.front().c_str());
+      std::fprintf(stderr,
+                   "streakwright batch: %zu structured file(s) skipped (not trace sidecars), "
+                   "e.g. %s\n",
+                   skipped.size(), skipped.front().c_str());
   }
   if (o.jobs > 1 && o.retrieve.threads > 1 && !o.quiet)
-    std::fprintf(stderr, "streakwright batch: --threads %d ignored: engines run single-threaded when "
-                 "--jobs > 1\n", o.retrieve.threads);
+    std::fprintf(stderr,
+                 "streakwright batch: --threads %d ignored: engines run single-threaded when "
+                 "--jobs > 1\n",
+                 o.retrieve.threads);
 
   const BatchReport rep = run_batch(mine, o);
 
   std::vector<std::pair<std::string, std::string>> info = {
-      {"out", a.out}, {"shard", std::to_string(o.shard_k) + "/" + std::to_string(o.shard_n)},
+      {"out", a.out},
+      {"shard", std::to_string(o.shard_k) + "/" + std::to_string(o.shard_n)},
       {"options", batch_options_string(o)}};
   std::string inputs;
   for (const auto& i : a.inputs) inputs += (inputs.empty() ? "" : " ") + i;
   info.push_back({"inputs", inputs});
   if (rep.interrupted) info.push_back({"interrupted", "true"});
-  std::vector<std::string> notes = {"Inputs: " + inputs + ". Options: " + batch_options_string(o) + "."};
+  std::vector<std::string> notes = {"Inputs: " + inputs + ". Options: " + batch_options_string(o) +
+                                    "."};
   if (o.shard_n > 1)
-    notes.push_back("Shard " + std::to_string(o.shard_k) + " of " + std::to_string(o.shard_n) + " (" +
-                    std::to_string(mine.size()) + " of " + std::to_string(all.size()) + " scans).");
-  if (rep.interrupted) notes.push_back("The batch was interrupted; scans marked 'not run' did not start.");
+    notes.push_back("Shard " + std::to_string(o.shard_k) + " of " + std::to_string(o.shard_n) +
+                    " (" + std::to_string(mine.size()) + " of " + std::to_string(all.size()) +
+                    " scans).");
+  if (rep.interrupted)
+    notes.push_back("The batch was interrupted; scans marked 'not run' did not start.");
   const std::filesystem::path out(a.out);
-  write_summary_outputs(a.out, rep.rows, info, "streakwright batch: " + out.filename().string(), notes);
+  write_summary_outputs(a.out, rep.rows, info, "streakwright batch: " + out.filename().string(),
+                        notes);
 
   for (const auto& r : rep.rows)
-    if (r.status != "ok") std::fprintf(stderr, "failed: %s: %s\n", r.scan.c_str(), r.message.c_str());
+    if (r.status != "ok")
+      std::fprintf(stderr, "failed: %s: %s\n", r.scan.c_str(), r.message.c_str());
   std::printf("batch: %zu scan(s): %zu ok, %zu failed", rep.rows.size(), rep.ok, rep.failed);
   if (rep.reused) std::printf(" (%zu reused by --resume)", rep.reused);
   if (rep.not_run) std::printf(", %zu not run", rep.not_run);
@@ -175,7 +203,8 @@ int run_batch_command(BatchArgs& a) {
   std::printf("summary: %s, %s; index: %s\n", (out / "summary.csv").string().c_str(),
               (out / "summary.json").string().c_str(), (out / "index.html").string().c_str());
   if (rep.interrupted) {
-    std::printf("interrupted: finished scans are complete; run again with --resume to do the rest\n");
+    std::printf(
+        "interrupted: finished scans are complete; run again with --resume to do the rest\n");
     return 130;
   }
   return rep.failed > 0 ? 5 : 0;
@@ -185,7 +214,9 @@ int run_batch_command(BatchArgs& a) {
 
 void add_batch_command(CLI::App& app) {
   auto a = std::make_shared<BatchArgs>();
-  auto* cmd = app.add_subcommand("batch", "Analyse many scans: folders, sidecars or manifests; resumable, parallel, shardable");
+  auto* cmd = app.add_subcommand(
+      "batch",
+      "Analyse many scans: folders, sidecars or manifests; resumable, parallel, shardable");
   cmd->footer(
       "INPUT: a folder (searched recursively for trace sidecars), a sidecar, or a manifest\n"
       "(.csv, or .json/.yaml with a \"scans\" list; per-scan columns scan, name, gas,\n"
@@ -202,39 +233,58 @@ void add_batch_command(CLI::App& app) {
       "Exit: 0 all ok, 5 some scan failed, 2 bad usage, 130 interrupted. See docs/batch.md.");
   cmd->add_option("inputs", a->inputs, "folders, sidecars or manifests")->required();
   cmd->add_option("--out,-o", a->out, "batch output folder (created)")->required();
-  a->cli["jobs"] = cmd->add_option("--jobs,-j", a->options.jobs, "scans analysed in parallel")->capture_default_str();
-  a->cli["resume"] = cmd->add_flag("--resume", a->options.resume,
-                                   "skip scans whose result has the same input hash, options and version");
-  cmd->add_option("--shard", a->shard, "run only shard K of N (1-based), e.g. 3/8")->capture_default_str();
-  a->cli["analysis"] = cmd->add_option("--analysis", a->analysis, "auto | retrieve | rabbitt | classify")
-                           ->capture_default_str();
-  cmd->add_option("--config", a->config, "batch options and overrides (JSON or YAML)");
-  a->cli["engine"] = cmd->add_option("--engine", a->options.retrieve.engine, "retrieve: engine (auto, ptychographic, projections, full-model)")
-                         ->capture_default_str();
-  a->cli["iterations"] = cmd->add_option("--iterations", a->options.retrieve.iterations,
-                                         "retrieve: iterations of the first engine; 0 = engine default")
-                             ->capture_default_str();
-  a->cli["bootstrap"] = cmd->add_option("--bootstrap", a->options.retrieve.bootstrap,
-                                        "retrieve: Poisson-bootstrap replicas (0 = no sigmas)")->capture_default_str();
-  a->cli["seed"] = cmd->add_option("--seed", a->options.retrieve.seed, "base seed (each scan derives its own)")
+  a->cli["jobs"] = cmd->add_option("--jobs,-j", a->options.jobs, "scans analysed in parallel")
                        ->capture_default_str();
+  a->cli["resume"] =
+      cmd->add_flag("--resume", a->options.resume,
+                    "skip scans whose result has the same input hash, options and version");
+  cmd->add_option("--shard", a->shard, "run only shard K of N (1-based), e.g. 3/8")
+      ->capture_default_str();
+  a->cli["analysis"] =
+      cmd->add_option("--analysis", a->analysis, "auto | retrieve | rabbitt | classify")
+          ->capture_default_str();
+  cmd->add_option("--config", a->config, "batch options and overrides (JSON or YAML)");
+  a->cli["engine"] =
+      cmd->add_option("--engine", a->options.retrieve.engine,
+                      "retrieve: engine (auto, ptychographic, projections, full-model)")
+          ->capture_default_str();
+  a->cli["iterations"] =
+      cmd->add_option("--iterations", a->options.retrieve.iterations,
+                      "retrieve: iterations of the first engine; 0 = engine default")
+          ->capture_default_str();
+  a->cli["bootstrap"] = cmd->add_option("--bootstrap", a->options.retrieve.bootstrap,
+                                        "retrieve: Poisson-bootstrap replicas (0 = no sigmas)")
+                            ->capture_default_str();
+  a->cli["seed"] =
+      cmd->add_option("--seed", a->options.retrieve.seed, "base seed (each scan derives its own)")
+          ->capture_default_str();
   a->cli["threads"] = cmd->add_option("--threads", a->options.retrieve.threads,
-                                      "engine threads per scan (only with --jobs 1)")->capture_default_str();
-  a->cli["dipole"] = cmd->add_option("--dipole", a->dipole, "retrieve: constant | hydrogenic")->capture_default_str();
+                                      "engine threads per scan (only with --jobs 1)")
+                          ->capture_default_str();
+  a->cli["dipole"] = cmd->add_option("--dipole", a->dipole, "retrieve: constant | hydrogenic")
+                         ->capture_default_str();
   a->cli["despike"] = cmd->add_flag("--despike", a->options.retrieve.preprocess.remove_hot_pixels,
                                     "retrieve: replace isolated hot pixels");
-  a->cli["atomic_correction"] = cmd->add_option("--atomic-correction", a->options.atomic_correction,
-                                                "rabbitt: auto | none")->capture_default_str();
-  a->cli["cma_phase_limit"] = cmd->add_option("--cma-phase-limit", a->options.retrieve.cma_phase_error_max_rad,
-                                              "retrieve auto: CMA phase error (rad) above which the full model refines")
-                                  ->capture_default_str();
-  a->cli["isolated_max"] = cmd->add_option("--isolated-max", a->options.retrieve.isolated_max_satellite_ratio,
-                                           "verdict: largest satellite/main ratio for 'isolated'")->capture_default_str();
-  a->cli["satellites_max"] = cmd->add_option("--satellites-max", a->options.retrieve.satellites_max_satellite_ratio,
-                                             "verdict: upper limit for 'isolated_with_satellites'")->capture_default_str();
+  a->cli["atomic_correction"] =
+      cmd->add_option("--atomic-correction", a->options.atomic_correction, "rabbitt: auto | none")
+          ->capture_default_str();
+  a->cli["cma_phase_limit"] =
+      cmd->add_option("--cma-phase-limit", a->options.retrieve.cma_phase_error_max_rad,
+                      "retrieve auto: CMA phase error (rad) above which the full model refines")
+          ->capture_default_str();
+  a->cli["isolated_max"] =
+      cmd->add_option("--isolated-max", a->options.retrieve.isolated_max_satellite_ratio,
+                      "verdict: largest satellite/main ratio for 'isolated'")
+          ->capture_default_str();
+  a->cli["satellites_max"] =
+      cmd->add_option("--satellites-max", a->options.retrieve.satellites_max_satellite_ratio,
+                      "verdict: upper limit for 'isolated_with_satellites'")
+          ->capture_default_str();
   a->cli["max_seconds"] = cmd->add_option("--max-seconds", a->options.retrieve.max_seconds,
-                                          "wall-time budget per scan (s)")->capture_default_str();
-  cmd->add_flag("--dry-run", a->dry_run, "list the scans (name and sidecar) of this shard and exit");
+                                          "wall-time budget per scan (s)")
+                              ->capture_default_str();
+  cmd->add_flag("--dry-run", a->dry_run,
+                "list the scans (name and sidecar) of this shard and exit");
   cmd->add_flag("--quiet,-q", a->options.quiet, "no progress on stderr");
   cmd->callback([a] { exit_code() = guarded("batch", [&] { return run_batch_command(*a); }); });
 }

@@ -74,7 +74,7 @@ void add_retrieve_command(CLI::App& app) {
   std::string engines =
       "Engines:\n"
       "  auto           ptychographic first; full-model refinement when the CMA's own phase error\n"
-      "                 (estimated from the retrieved field) exceeds 0.3 rad (broadband pulses)\n"
+      "                 (estimated from the retrieved field) exceeds 0.6 rad (broadband pulses)\n"
       "  ptychographic  ePIE applied to streaking (CMA): XUV = object, phase gate = probe\n"
       "  projections    generalized projections (CMA): PCGPA on matched grids, LSGPA otherwise\n"
       "  full-model     least-squares fit of the full SFA model without the CMA (Ceres, L-BFGS)\n"

@@ -36,7 +36,8 @@ std::vector<SummaryRow> merge(const std::vector<std::string>& dirs, const std::s
     for (SummaryRow& r : rows) {
       if (!r.report.empty() && !base.empty()) {
         const fs::path abs_report = fs::absolute(fs::path(d) / r.report).lexically_normal();
-        r.report = abs_report.lexically_relative(fs::absolute(base).lexically_normal()).generic_string();
+        r.report =
+            abs_report.lexically_relative(fs::absolute(base).lexically_normal()).generic_string();
       } else if (!r.report.empty()) {
         r.report = (fs::path(d) / r.report).generic_string();
       }
@@ -48,8 +49,8 @@ std::vector<SummaryRow> merge(const std::vector<std::string>& dirs, const std::s
       }
       // The same scan in two inputs: an ok row wins over a failed one; else the first stays.
       const bool replace = it->second.status != "ok" && r.status == "ok";
-      notes->push_back("scan " + r.scan + " appears in " + from[r.scan] + " and " + d + "; kept the " +
-                       (replace ? "ok row of " + d : "row of " + from[r.scan]));
+      notes->push_back("scan " + r.scan + " appears in " + from[r.scan] + " and " + d +
+                       "; kept the " + (replace ? "ok row of " + d : "row of " + from[r.scan]));
       if (replace) {
         from[r.scan] = d;
         it->second = std::move(r);
@@ -68,8 +69,8 @@ int run_summarize(const SummarizeArgs& a) {
   for (const auto& r : rows) ok += r.status == "ok" ? 1 : 0;
   if (!a.quiet)
     for (const auto& n : notes) std::fprintf(stderr, "summarize: %s\n", n.c_str());
-  std::printf("summarize: %zu scan(s) from %zu folder(s): %zu ok, %zu failed\n", rows.size(), a.dirs.size(), ok,
-              rows.size() - ok);
+  std::printf("summarize: %zu scan(s) from %zu folder(s): %zu ok, %zu failed\n", rows.size(),
+              a.dirs.size(), ok, rows.size() - ok);
   std::vector<SummaryTable> tables;
   std::optional<SummaryComparison> cmp;
   if (!a.against.empty()) {
@@ -87,7 +88,8 @@ int run_summarize(const SummarizeArgs& a) {
     if (!a.against.empty()) info.push_back({"against", a.against});
     std::vector<std::string> page_notes = {"Merged from: " + inputs + "."};
     for (const auto& n : notes) page_notes.push_back(n);
-    write_summary_outputs(a.out, rows, info, "streakwright summary: " + fs::path(a.out).filename().string(),
+    write_summary_outputs(a.out, rows, info,
+                          "streakwright summary: " + fs::path(a.out).filename().string(),
                           page_notes, tables);
     if (cmp) write_file_atomic((fs::path(a.out) / "comparison.csv").string(), comparison_csv(*cmp));
     std::printf("summary: %s; index: %s\n", (fs::path(a.out) / "summary.csv").string().c_str(),
@@ -100,9 +102,11 @@ int run_summarize(const SummarizeArgs& a) {
 
 void add_summarize_command(CLI::App& app) {
   auto a = std::make_shared<SummarizeArgs>();
-  auto* cmd = app.add_subcommand("summarize", "Merge batch outputs (e.g. shards) into one summary; compare two runs");
+  auto* cmd = app.add_subcommand(
+      "summarize", "Merge batch outputs (e.g. shards) into one summary; compare two runs");
   cmd->footer(
-      "Each DIR is a batch output folder: its summary.json is used, else the summary.json files of\n"
+      "Each DIR is a batch output folder: its summary.json is used, else the summary.json files "
+      "of\n"
       "its sub-folders (shard-1, shard-2, ...), else its result.json files. Scans are merged by\n"
       "name. With --out, writes summary.csv, summary.json, trend figures and index.html there\n"
       "(links point into the input folders). With --against OLD_DIR, lists the scans whose\n"

@@ -62,8 +62,8 @@ nlohmann::json read_structured_file(const std::string& path, const std::string& 
     std::size_t start = text.compare(0, 3, "\xEF\xBB\xBF") == 0 ? 3 : 0;
     if (text.compare(start, 5, "%YAML") != 0) text = "%YAML:1.0\n" + text.substr(start);
     try {
-      cv::FileStorage fsr(text, cv::FileStorage::READ | cv::FileStorage::MEMORY |
-                                    cv::FileStorage::FORMAT_YAML);
+      cv::FileStorage fsr(
+          text, cv::FileStorage::READ | cv::FileStorage::MEMORY | cv::FileStorage::FORMAT_YAML);
       if (!fsr.isOpened()) throw usage_error(what + " '" + path + "' is not valid YAML");
       return to_json(fsr.root());
     } catch (const cv::Exception& e) {

@@ -35,8 +35,9 @@ SummaryComparison compare_summaries(const std::vector<SummaryRow>& now,
     const SummaryRow& o = *it->second;
     ++c.common_scans;
     if (o.status != n->status)
-      c.changes.push_back(name + ": status " + o.status + " -> " + n->status +
-                          (n->status != "ok" && !n->message.empty() ? " (" + n->message + ")" : ""));
+      c.changes.push_back(
+          name + ": status " + o.status + " -> " + n->status +
+          (n->status != "ok" && !n->message.empty() ? " (" + n->message + ")" : ""));
     if (o.pulse_class != n->pulse_class && !o.pulse_class.empty() && !n->pulse_class.empty())
       c.changes.push_back(name + ": class " + o.pulse_class + " -> " + n->pulse_class);
     for (const auto& q : headline_quantities()) {
@@ -69,19 +70,20 @@ std::string comparison_text(const SummaryComparison& c) {
     std::size_t w = 4;
     for (const auto& m : c.moved) w = std::max(w, m.scan.size());
     char line[512];
-    std::snprintf(line, sizeof line, "  %-*s  %-26s  %-24s  %-24s  %-12s  %s\n", static_cast<int>(w), "scan",
-                  "quantity", "before", "now", "change", "sigmas");
+    std::snprintf(line, sizeof line, "  %-*s  %-26s  %-24s  %-24s  %-12s  %s\n",
+                  static_cast<int>(w), "scan", "quantity", "before", "now", "change", "sigmas");
     s << line;
     for (const auto& m : c.moved) {
-      std::snprintf(line, sizeof line, "  %-*s  %-26s  %-24s  %-24s  %-12s  %.1f\n", static_cast<int>(w),
-                    m.scan.c_str(), m.quantity.c_str(), pm(m.old_value, m.old_sigma).c_str(),
-                    pm(m.new_value, m.new_sigma).c_str(), g(m.difference, "%+.4g").c_str(),
-                    std::abs(m.difference) / m.combined_sigma);
+      std::snprintf(line, sizeof line, "  %-*s  %-26s  %-24s  %-24s  %-12s  %.1f\n",
+                    static_cast<int>(w), m.scan.c_str(), m.quantity.c_str(),
+                    pm(m.old_value, m.old_sigma).c_str(), pm(m.new_value, m.new_sigma).c_str(),
+                    g(m.difference, "%+.4g").c_str(), std::abs(m.difference) / m.combined_sigma);
       s << line;
     }
   }
   if (c.without_uncertainty)
-    s << c.without_uncertainty << " value(s) differ but have no uncertainty in either run (not judged; "
+    s << c.without_uncertainty
+      << " value(s) differ but have no uncertainty in either run (not judged; "
       << "run with --bootstrap > 0)\n";
   for (const auto& ch : c.changes) s << "changed: " << ch << "\n";
   if (!c.only_new.empty()) {
@@ -106,9 +108,10 @@ std::string comparison_csv(const SummaryComparison& c) {
       for (char ch : scan) q += ch == '"' ? std::string("\"\"") : std::string(1, ch);
       scan = q + "\"";
     }
-    out += scan + "," + m.quantity + "," + g(m.old_value, "%.12g") + "," + g(m.old_sigma, "%.12g") + "," +
-           g(m.new_value, "%.12g") + "," + g(m.new_sigma, "%.12g") + "," + g(m.difference, "%.12g") + "," +
-           g(m.combined_sigma, "%.12g") + "," + g(std::abs(m.difference) / m.combined_sigma, "%.4g") + "\n";
+    out += scan + "," + m.quantity + "," + g(m.old_value, "%.12g") + "," + g(m.old_sigma, "%.12g") +
+           "," + g(m.new_value, "%.12g") + "," + g(m.new_sigma, "%.12g") + "," +
+           g(m.difference, "%.12g") + "," + g(m.combined_sigma, "%.12g") + "," +
+           g(std::abs(m.difference) / m.combined_sigma, "%.4g") + "\n";
   }
   return out;
 }
@@ -116,11 +119,13 @@ std::string comparison_csv(const SummaryComparison& c) {
 SummaryTable comparison_table(const SummaryComparison& c, const std::string& against) {
   SummaryTable t;
   t.heading = "Changes against " + against + " (" + std::to_string(c.moved.size()) + " moved)";
-  t.caption = "Headline numbers that moved by more than sqrt(s_old^2 + s_new^2) between the two runs";
+  t.caption =
+      "Headline numbers that moved by more than sqrt(s_old^2 + s_new^2) between the two runs";
   t.header = {"scan", "quantity", "before", "now", "change", "sigmas"};
   for (const auto& m : c.moved)
-    t.rows.push_back({m.scan, m.quantity, pm(m.old_value, m.old_sigma), pm(m.new_value, m.new_sigma),
-                      g(m.difference, "%+.4g"), g(std::abs(m.difference) / m.combined_sigma, "%.1f")});
+    t.rows.push_back({m.scan, m.quantity, pm(m.old_value, m.old_sigma),
+                      pm(m.new_value, m.new_sigma), g(m.difference, "%+.4g"),
+                      g(std::abs(m.difference) / m.combined_sigma, "%.1f")});
   for (const auto& ch : c.changes) t.rows.push_back({ch, "", "", "", "", ""});
   return t;
 }

@@ -15,21 +15,21 @@ namespace sw::cli {
 
 struct MovedValue {
   std::string scan;
-  std::string quantity;          ///< summary column, e.g. "fwhm_as"
+  std::string quantity;  ///< summary column, e.g. "fwhm_as"
   double old_value = 0, old_sigma = 0;
   double new_value = 0, new_sigma = 0;
-  double difference = 0;         ///< new - old
-  double combined_sigma = 0;     ///< sqrt(old_sigma^2 + new_sigma^2)
+  double difference = 0;      ///< new - old
+  double combined_sigma = 0;  ///< sqrt(old_sigma^2 + new_sigma^2)
 };
 
 struct SummaryComparison {
-  std::vector<MovedValue> moved;       ///< by scan, then quantity order
-  std::vector<std::string> changes;    ///< "scan: class isolated -> train", status changes
-  std::vector<std::string> only_new;   ///< scans only in the new run
-  std::vector<std::string> only_old;   ///< scans only in the old run
-  std::size_t common_scans = 0;        ///< scans present in both
-  std::size_t compared_values = 0;     ///< values present in both with some uncertainty
-  std::size_t without_uncertainty = 0; ///< values that differ but have no sigma on either side
+  std::vector<MovedValue> moved;        ///< by scan, then quantity order
+  std::vector<std::string> changes;     ///< "scan: class isolated -> train", status changes
+  std::vector<std::string> only_new;    ///< scans only in the new run
+  std::vector<std::string> only_old;    ///< scans only in the old run
+  std::size_t common_scans = 0;         ///< scans present in both
+  std::size_t compared_values = 0;      ///< values present in both with some uncertainty
+  std::size_t without_uncertainty = 0;  ///< values that differ but have no sigma on either side
 };
 
 /// Compares rows of the new run against the old run (matched by scan name).

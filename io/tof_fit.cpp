@@ -51,7 +51,8 @@ std::vector<PeakWindow> find_peaks(const std::vector<double>& t, const std::vect
   for (std::size_t i = 1; i + 1 < n; ++i)
     if (ys[i] > ys[i - 1] && ys[i] >= ys[i + 1] && ys[i] >= o.min_peak_fraction * tallest)
       maxima.push_back(i);
-  std::sort(maxima.begin(), maxima.end(), [&](std::size_t a, std::size_t b) { return ys[a] > ys[b]; });
+  std::sort(maxima.begin(), maxima.end(),
+            [&](std::size_t a, std::size_t b) { return ys[a] > ys[b]; });
   std::vector<char> claimed(n, 0);
   std::vector<PeakWindow> peaks;
   for (std::size_t m : maxima) {
@@ -75,8 +76,9 @@ std::vector<PeakWindow> find_peaks(const std::vector<double>& t, const std::vect
     p.mean_time_ns = wt / w;
     peaks.push_back(p);
   }
-  std::sort(peaks.begin(), peaks.end(),
-            [](const PeakWindow& a, const PeakWindow& b) { return a.mean_time_ns < b.mean_time_ns; });
+  std::sort(peaks.begin(), peaks.end(), [](const PeakWindow& a, const PeakWindow& b) {
+    return a.mean_time_ns < b.mean_time_ns;
+  });
   return peaks;
 }
 
@@ -109,7 +111,8 @@ struct FitState {
 };
 
 /// Residuals and Jacobian at x; false if some window bin is not after t0.
-bool evaluate(const FitProblem& p, const Eigen::Vector3d& x, Eigen::VectorXd* r, Eigen::MatrixXd* J) {
+bool evaluate(const FitProblem& p, const Eigen::Vector3d& x, Eigen::VectorXd* r,
+              Eigen::MatrixXd* J) {
   const int np = p.fit_offset ? 3 : 2;
   const std::size_t m = p.peaks.size();
   r->resize(static_cast<Eigen::Index>(m));
@@ -213,8 +216,7 @@ std::string TofFitOptions::validate() const {
 TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
                                       const std::vector<double>& counts,
                                       double ionization_energy_eV, double ir_wavelength_nm,
-                                      const TofCalibration& initial,
-                                      const TofFitOptions& options) {
+                                      const TofCalibration& initial, const TofFitOptions& options) {
   const std::string where = "TOF calibration fit";
   if (const std::string e = options.validate(); !e.empty())
     throw input_error(where + ": TofFitOptions." + e);
@@ -227,7 +229,8 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
     throw input_error(where + ": " + std::to_string(times_ns.size()) +
                       " time bins; expected a spectrum of at least 8 bins");
   if (!(ionization_energy_eV > 0))
-    throw input_error(where + ": ionization energy " + num(ionization_energy_eV) + " eV; expected > 0");
+    throw input_error(where + ": ionization energy " + num(ionization_energy_eV) +
+                      " eV; expected > 0");
   if (!(ir_wavelength_nm > 0))
     throw input_error(where + ": IR wavelength " + num(ir_wavelength_nm) + " nm; expected > 0");
   for (std::size_t i = 0; i < counts.size(); ++i) {
@@ -280,8 +283,10 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
                     shift * options.harmonic_step;
       if (!(q * hw - ionization_energy_eV > off)) continue;
       auto it = best.find(q);
-      if (it == best.end()) best[q] = k;
-      else if (found[it->second].counts < w.counts) it->second = k;
+      if (it == best.end())
+        best[q] = k;
+      else if (found[it->second].counts < w.counts)
+        it->second = k;
     }
     for (const auto& [q, k] : best) {
       peaks->push_back(found[k]);
@@ -290,8 +295,9 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
     // Keep ascending flight time (orders descend with time).
     std::vector<std::size_t> idx(peaks->size());
     std::iota(idx.begin(), idx.end(), 0);
-    std::sort(idx.begin(), idx.end(),
-              [&](std::size_t a, std::size_t b) { return (*peaks)[a].mean_time_ns < (*peaks)[b].mean_time_ns; });
+    std::sort(idx.begin(), idx.end(), [&](std::size_t a, std::size_t b) {
+      return (*peaks)[a].mean_time_ns < (*peaks)[b].mean_time_ns;
+    });
     std::vector<PeakWindow> p2;
     std::vector<int> o2;
     for (std::size_t i : idx) {
@@ -356,7 +362,8 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
   out.calibration = initial;
   out.calibration.length_m = best.x[0];
   out.calibration.t0_ns = best.x[1];
-  out.calibration.energy_offset_eV = options.fit_energy_offset ? best.x[2] : initial.energy_offset_eV;
+  out.calibration.energy_offset_eV =
+      options.fit_energy_offset ? best.x[2] : initial.energy_offset_eV;
   out.photon_energy_eV = hw;
   out.order_shift = best_shift;
   out.iterations = best.iterations;
@@ -390,13 +397,14 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
       << " ns, rms residual " << out.rms_residual_eV << " eV";
   if (!out.converged) msg << "; NOT CONVERGED after " << out.iterations << " iterations";
   if (best_shift != 0)
-    msg << "; the initial guess's order assignment was shifted by " << best_shift * options.harmonic_step
-        << " orders";
+    msg << "; the initial guess's order assignment was shifted by "
+        << best_shift * options.harmonic_step << " orders";
   if (options.fit_energy_offset)
     msg << "; with E_offset free the orders rest on the initial guess (a shift of every order is "
            "equivalent to a change of E_offset)";
   if (found.size() > m)
-    msg << "; " << found.size() - m << " peak(s) not used (same order as a larger peak, or below E_offset)";
+    msg << "; " << found.size() - m
+        << " peak(s) not used (same order as a larger peak, or below E_offset)";
   out.message = msg.str();
   return out;
 }

@@ -81,10 +81,10 @@ struct TofCalibrationFit {
   std::vector<TofPeak> peaks;           ///< in ascending flight time
   double rms_residual_eV = 0.0;         ///< sqrt(mean residual_eV^2)
   double photon_energy_eV = 0.0;        ///< hbar omega used
-  int order_shift = 0;                  ///< shift of the initial assignment that won (allowed orders)
-  int iterations = 0;                   ///< LM iterations of the final fit
-  bool converged = false;               ///< relative step below 1e-12 before max_iterations
-  std::string message;                  ///< one line: what was fitted, how well, caveats
+  int order_shift = 0;     ///< shift of the initial assignment that won (allowed orders)
+  int iterations = 0;      ///< LM iterations of the final fit
+  bool converged = false;  ///< relative step below 1e-12 before max_iterations
+  std::string message;     ///< one line: what was fitted, how well, caveats
 };
 
 /// Fits the calibration from one TOF spectrum: `counts[i]` counts in the bin centred at

@@ -18,23 +18,51 @@ std::vector<ExtraOption> cma_extra_options() {
   using K = ExtraOption::Kind;
   const CmaSettings d;
   return {
-      {"spectrum_constraint", K::kChoice, "amplitude",
+      {"spectrum_constraint",
+       K::kChoice,
+       "amplitude",
        "use of the field-free spectrum: amplitude (impose |E_X| and align the centroid), "
-       "centroid (align only), off", 0, 0, {"amplitude", "centroid", "off"}},
-      {"spectrum_interval", K::kInteger, std::to_string(d.spectrum_interval),
-       "impose |E_X(W + Ip)| = sqrt(field-free spectrum) every n iterations (0 = never)", 0, 1e6,
+       "centroid (align only), off",
+       0,
+       0,
+       {"amplitude", "centroid", "off"}},
+      {"spectrum_interval",
+       K::kInteger,
+       std::to_string(d.spectrum_interval),
+       "apply the field-free-spectrum constraint (spectrum_constraint) every n iterations (0 = "
+       "never)",
+       0,
+       1e6,
        {}},
-      {"gate_smoothing_interval", K::kInteger, std::to_string(d.gate_smoothing_interval),
-       "project the gate phase onto a cubic B-spline every n iterations (0 = at the end only)", 0,
-       1e6, {}},
-      {"gate_knots_per_period", K::kNumber, "32",
-       "B-spline knots per IR period of the smooth gate phase (>= 8)", 8, 1e4, {}},
-      {"unmeasured_damping", K::kNumber, "1",
-       "exit-wave spectrum factor on FFT bins outside the energy window (1 free, 0 zero)", 0, 1,
+      {"gate_smoothing_interval",
+       K::kInteger,
+       std::to_string(d.gate_smoothing_interval),
+       "project the gate phase onto a cubic B-spline every n iterations (0 = at the end only)",
+       0,
+       1e6,
        {}},
-      {"noise_tolerance", K::kNumber, "0",
+      {"gate_knots_per_period",
+       K::kNumber,
+       "32",
+       "B-spline knots per IR period of the smooth gate phase (>= 8)",
+       8,
+       1e4,
+       {}},
+      {"unmeasured_damping",
+       K::kNumber,
+       "1",
+       "exit-wave spectrum factor on FFT bins outside the energy window (1 free, 0 zero)",
+       0,
+       1,
+       {}},
+      {"noise_tolerance",
+       K::kNumber,
+       "0",
        "half-width of the accepted modulus band, in standard deviations of sqrt(I) (0 = exact "
-       "modulus replacement)", 0, 10, {}},
+       "modulus replacement)",
+       0,
+       10,
+       {}},
   };
 }
 
@@ -108,10 +136,11 @@ inline std::size_t fft_index(long b, std::size_t n) {
 }  // namespace
 
 CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, std::string engine)
-    : problem_(p), settings_(settings), engine_(std::move(engine)), fft_(std::max<std::size_t>(p.grid.size(), 2)) {
-  auto fail = [&](const std::string& m) {
-    throw input_error(engine_ + ": RetrievalProblem." + m);
-  };
+    : problem_(p),
+      settings_(settings),
+      engine_(std::move(engine)),
+      fft_(std::max<std::size_t>(p.grid.size(), 2)) {
+  auto fail = [&](const std::string& m) { throw input_error(engine_ + ": RetrievalProblem." + m); };
   n_ = p.grid.size();
   nd_ = p.delay_au.size();
   ne_ = p.energy_au.size();
@@ -121,8 +150,8 @@ CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, s
   if (p.intensity.rows() != static_cast<Eigen::Index>(nd_) ||
       p.intensity.cols() != static_cast<Eigen::Index>(ne_))
     fail("intensity is " + std::to_string(p.intensity.rows()) + "x" +
-         std::to_string(p.intensity.cols()) + ": expected delays x energies = " +
-         std::to_string(nd_) + "x" + std::to_string(ne_));
+         std::to_string(p.intensity.cols()) +
+         ": expected delays x energies = " + std::to_string(nd_) + "x" + std::to_string(ne_));
   if (p.variance.size() != 0 &&
       (p.variance.rows() != p.intensity.rows() || p.variance.cols() != p.intensity.cols()))
     fail("variance must be empty or the size of intensity");
@@ -183,7 +212,8 @@ CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, s
   }
   for (std::size_t j = 0; j < ne_; ++j)
     if (map.frac[j] != 0.0 || std::abs(map.carrier_shift) > 1e-6 * dw)
-      fail("energy_au does not fall on the FFT bins of the grid (energy " + std::to_string(j) + ")");
+      fail("energy_au does not fall on the FFT bins of the grid (energy " + std::to_string(j) +
+           ")");
   bin_ = map.bin;
 
   // Measured and unmeasured FFT-index segments.
@@ -219,8 +249,8 @@ CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, s
       const double a = std::sqrt(std::max(I, 0.0));
       double sa = 0.0;
       if (with_noise) {
-        const double sI = std::sqrt(std::max(
-            p.variance(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j)), 0.0));
+        const double sI = std::sqrt(
+            std::max(p.variance(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j)), 0.0));
         sa = settings_.noise_tolerance * std::min(a > 0 ? sI / (2.0 * a) : sI, std::sqrt(sI));
       }
       lo_[i * ne_ + j] = std::max(a - sa, 0.0) / dt_;
@@ -236,8 +266,7 @@ double CmaProblem::knot_step_au() const {
   return units::period_au(problem_.ir_omega_au) / settings_.gate_knots_per_period;
 }
 
-void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums,
-                         double* scratch) const {
+void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums, double* scratch) const {
   double* S = reinterpret_cast<double*>(spectrum);
   const double* lo = lo_.data() + j * ne_;
   const double* hi = hi_.data() + j * ne_;

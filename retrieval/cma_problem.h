@@ -14,16 +14,32 @@
 // "raw" spectra below are unscaled FFTs (sw::Fft::time_to_freq).
 //
 // Modulus replacement (the projection onto the measured data): on measured bins
-//     psi~ <- sqrt(max(I, 0)) / dt * psi~ / |psi~|        (a zero psi~ gets phase 0),
-// on the other bins psi~ <- unmeasured_damping * psi~. Default damping 1 ("free"): the
+//     psi~ <- sqrt(max(I, 0)) / dt * psi~ / |psi~|        (a bin that is exactly 0 stays 0),
+// the least-squares projection for errors on sqrt(I) (a Gaussian amplitude noise model; the
+// trace error G of engine.h weights every bin equally). With noise_tolerance = k > 0 and
+// variances, |psi~| is only clamped into sqrt(I) +- k sigma_sqrt(I) (sigma_sqrt(I) =
+// min(sigma_I / (2 sqrt I), sqrt(sigma_I))): a projection onto the noise band instead of onto
+// the noisy value; off by default (on our Poisson tests it did not improve the durations).
+// On the other bins psi~ <- unmeasured_damping * psi~. Default damping 1 ("free"): the
 // spectrometer window says nothing about those energies, and the XUV spectrum there is
 // already removed by the spectral constraint; 0 forces them to zero (use it when the window
 // is known to contain the whole streaked spectrum and the run shows leakage).
 //
-// Spectral constraint (fixes the frequency-shift ambiguity, DESIGN.md): on measured bins
-//     |eps~_j| <- c sqrt(field-free spectrum_j),  c^2 = sum |eps~|^2 / sum spectrum (the
-// current energy in the window is kept), phases kept; XUV bins outside the window are zeroed
-// (photon energies the spectrometer cannot see are assumed absent).
+// Ambiguities of the blind problem (DESIGN.md) and how they are fixed:
+//   global phase      arg eps = 0 at the peak of |eps| (reconstruct());
+//   frequency shift   (eps e^{-i d s}, G e^{+i d t}) leaves every |a| unchanged; align_spectrum()
+//                     moves the XUV spectral centroid onto the field-free spectrum's, and
+//                     impose_spectrum() then sets |eps~_j| <- c sqrt(field-free spectrum_j),
+//                     c^2 = sum |eps~|^2 / sum spectrum (the energy in the window is kept),
+//                     phases kept, XUV bins outside the window zeroed (photon energies the
+//                     spectrometer cannot see are assumed absent). The amplitude step passes
+//                     the reference spectrum's noise on to |E_X| (and to the duration):
+//                     spectrum_constraint = centroid keeps only the alignment;
+//   common time shift (eps(s - d), G(t - d)): not applied; the gate's time axis is the delay
+//                     axis (t = s + tau), the initial gate comes from the streaking centroids
+//                     at t = tau, so the XUV lands where the data put it relative to the IR;
+//                     retrieve.h's fix_time_origin() later centres the XUV if wanted;
+//   time reversal     fixed by the delay axis (the gate is not the time-reversed XUV).
 //
 // Trace error during an iteration: the running G of the exit waves each delay saw before its
 // update (common practice for ePIE-type engines), with the optimal scale of engine.h; the
@@ -46,11 +62,12 @@ struct CmaSettings {
   /// frequency-shift ambiguity), kOff ignores it.
   enum class Spectrum { kAmplitude, kCentroid, kOff };
   Spectrum spectrum = Spectrum::kAmplitude;
-  int spectrum_interval = 1;           ///< use the field-free spectrum every n iterations (0 = never)
-  int gate_smoothing_interval = 4;     ///< smooth the gate phase every n iterations (0 = at the end only)
-  double gate_knots_per_period = 32;   ///< B-spline knots per IR period for the smooth gate phase
-  double unmeasured_damping = 1.0;     ///< exit-wave factor on unmeasured FFT bins (1 free, 0 zero)
-  double noise_tolerance = 0.0;        ///< half-width of the modulus band in standard deviations
+  int spectrum_interval = 1;  ///< use the field-free spectrum every n iterations (0 = never)
+  int gate_smoothing_interval =
+      4;  ///< smooth the gate phase every n iterations (0 = at the end only)
+  double gate_knots_per_period = 32;  ///< B-spline knots per IR period for the smooth gate phase
+  double unmeasured_damping = 1.0;    ///< exit-wave factor on unmeasured FFT bins (1 free, 0 zero)
+  double noise_tolerance = 0.0;       ///< half-width of the modulus band in standard deviations
 };
 /// Descriptions of the CMA settings (names, defaults, limits) for Engine::extra_options().
 std::vector<ExtraOption> cma_extra_options();
@@ -109,7 +126,8 @@ class CmaProblem {
   /// the smooth-gate projection, weighted by the coverage, would discard them anyway).
   static void support(const CVec& eps, std::size_t* lo, std::size_t* hi);
 
-  /// Initial XUV envelope: options.initial_xuv re-expressed about the carrier, else
+  /// Initial XUV envelope: options.initial_xuv re-expressed about the carrier (it must be on
+  /// the problem's grid, else sw::Error(kUsage)), else
   /// sqrt(field-free spectrum) (else sqrt of the delay-averaged spectrum) with flat phase,
   /// centred at s = 0.
   CVec initial_xuv(const EngineOptions& options) const;
@@ -137,7 +155,7 @@ class CmaProblem {
     std::size_t j0 = 0;  // first energy index (measured segments)
     std::size_t len = 0;
   };
-  RetrievalProblem problem_;          // a copy: the engine outlives no caller's data
+  RetrievalProblem problem_;  // a copy: the engine outlives no caller's data
   CmaSettings settings_;
   std::string engine_;
   std::size_t n_ = 0, nd_ = 0, ne_ = 0;

@@ -16,12 +16,18 @@ namespace sw {
 
 const char* to_string(Termination t) {
   switch (t) {
-    case Termination::kConverged: return "converged";
-    case Termination::kNoiseFloor: return "noise_floor";
-    case Termination::kMaxIterations: return "max_iterations";
-    case Termination::kTimeLimit: return "time_limit";
-    case Termination::kUserStopped: return "user_stopped";
-    default: return "failure";
+    case Termination::kConverged:
+      return "converged";
+    case Termination::kNoiseFloor:
+      return "noise_floor";
+    case Termination::kMaxIterations:
+      return "max_iterations";
+    case Termination::kTimeLimit:
+      return "time_limit";
+    case Termination::kUserStopped:
+      return "user_stopped";
+    default:
+      return "failure";
   }
 }
 
@@ -134,8 +140,7 @@ std::string ExtraOption::validate(const std::string& value) const {
     }
     case Kind::kInteger: {
       long long x = 0;
-      if (!parse_integer(value, &x) || static_cast<double>(x) < min ||
-          static_cast<double>(x) > max)
+      if (!parse_integer(value, &x) || static_cast<double>(x) < min || static_cast<double>(x) > max)
         s << name << " = '" << value << "': expected an integer in " << range();
       break;
     }
@@ -205,8 +210,8 @@ void validate_extras(const Engine& engine, const EngineOptions& options) {
   if (options.extra.empty()) return;
   const std::vector<ExtraOption> own = engine.extra_options();
   for (const auto& [name, value] : options.extra) {
-    const auto it = std::find_if(own.begin(), own.end(),
-                                 [&](const ExtraOption& o) { return o.name == name; });
+    const auto it =
+        std::find_if(own.begin(), own.end(), [&](const ExtraOption& o) { return o.name == name; });
     if (it != own.end()) {
       if (const std::string e = it->validate(value); !e.empty())
         throw usage_error(engine.name() + ": engine option " + e);
@@ -222,7 +227,8 @@ void validate_extras(const Engine& engine, const EngineOptions& options) {
     if (elsewhere) continue;
     std::vector<std::string> names;
     for (const ExtraOption& o : own) names.push_back(o.name);
-    throw usage_error(engine.name() + ": unknown engine option '" + name + "' (this engine accepts " +
+    throw usage_error(engine.name() + ": unknown engine option '" + name +
+                      "' (this engine accepts " +
                       (names.empty() ? std::string("no extra options") : join(names)) + ")");
   }
 }
@@ -231,11 +237,10 @@ void validate_extras(const Engine& engine, const EngineOptions& options) {
 
 double trace_error(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& model, double* mu) {
   if (measured.rows() != model.rows() || measured.cols() != model.cols())
-    throw Error(ErrorKind::kInternal, "trace_error: measured is " +
-                                          std::to_string(measured.rows()) + "x" +
-                                          std::to_string(measured.cols()) + " but model is " +
-                                          std::to_string(model.rows()) + "x" +
-                                          std::to_string(model.cols()));
+    throw Error(ErrorKind::kInternal,
+                "trace_error: measured is " + std::to_string(measured.rows()) + "x" +
+                    std::to_string(measured.cols()) + " but model is " +
+                    std::to_string(model.rows()) + "x" + std::to_string(model.cols()));
   const double n = static_cast<double>(measured.size());
   const double peak = measured.size() ? measured.maxCoeff() : 0.0;
   const double mm = model.squaredNorm();
@@ -248,10 +253,12 @@ double trace_error(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& model
 double noise_floor_trace_error(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& variance) {
   if (variance.size() == 0 || measured.size() == 0) return 0.0;
   if (measured.rows() != variance.rows() || measured.cols() != variance.cols())
-    throw Error(ErrorKind::kInternal, "noise_floor_trace_error: measured and variance differ in size");
+    throw Error(ErrorKind::kInternal,
+                "noise_floor_trace_error: measured and variance differ in size");
   const double peak = measured.maxCoeff();
   if (!(peak > 0)) return 0.0;
-  return std::sqrt(variance.cwiseMax(0.0).sum() / (static_cast<double>(measured.size()) * peak * peak));
+  return std::sqrt(variance.cwiseMax(0.0).sum() /
+                   (static_cast<double>(measured.size()) * peak * peak));
 }
 
 // --- the loop -------------------------------------------------------------------------------
@@ -387,8 +394,8 @@ Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
     }
     if (out_of_time(rec.seconds, options)) {
       term = Termination::kTimeLimit;
-      why << "wall time " << fmt(rec.seconds) << " s reached max_seconds = "
-          << fmt(options.max_seconds) << " at iteration " << k;
+      why << "wall time " << fmt(rec.seconds)
+          << " s reached max_seconds = " << fmt(options.max_seconds) << " at iteration " << k;
       break;
     }
   }
@@ -417,9 +424,9 @@ Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
 std::string Reconstruction::brief_report() const {
   std::ostringstream s;
   s << engine << " (" << (model.empty() ? "?" : model) << "): " << to_string(termination)
-    << " after " << iterations << " iterations in " << fmt(seconds) << " s, G = "
-    << fmt(trace_error) << " (noise floor " << fmt(noise_floor_trace_error) << "), scale "
-    << fmt(scale) << "; " << message;
+    << " after " << iterations << " iterations in " << fmt(seconds)
+    << " s, G = " << fmt(trace_error) << " (noise floor " << fmt(noise_floor_trace_error)
+    << "), scale " << fmt(scale) << "; " << message;
   return s.str();
 }
 
@@ -428,9 +435,10 @@ std::string Reconstruction::full_report() const {
   s << "engine        " << engine << " (forward model: " << model << ")\n";
   if (!reference.empty()) s << "reference     " << reference << "\n";
   s << "termination   " << to_string(termination) << ": " << message << "\n";
-  s << "trace error   G = " << fmt(trace_error, 4) << ", noise floor G_noise = "
-    << fmt(noise_floor_trace_error, 4) << ", scale mu = " << fmt(scale, 4)
-    << ", best iteration " << best_iteration << " of " << iterations << "\n";
+  s << "trace error   G = " << fmt(trace_error, 4)
+    << ", noise floor G_noise = " << fmt(noise_floor_trace_error, 4)
+    << ", scale mu = " << fmt(scale, 4) << ", best iteration " << best_iteration << " of "
+    << iterations << "\n";
   s << "time          " << fmt(seconds) << " s total = " << fmt(prepare_seconds) << " s prepare + "
     << fmt(iterate_seconds) << " s iterations + " << fmt(finalize_seconds) << " s finalize";
   if (iterations > 0) s << " (" << fmt(1e3 * iterate_seconds / iterations) << " ms/iteration)";
@@ -442,7 +450,8 @@ std::string Reconstruction::full_report() const {
   const std::size_t stride = n > 60 ? (n - 10) / 50 + 1 : 1;
   for (std::size_t i = 0; i < n; ++i) {
     const IterationRecord& h = history[i];
-    const bool keep = i < 10 || (i - 10) % stride == 0 || i + 1 == n || h.iteration == best_iteration;
+    const bool keep =
+        i < 10 || (i - 10) % stride == 0 || i + 1 == n || h.iteration == best_iteration;
     if (!keep) continue;
     char line[128];
     std::snprintf(line, sizeof line, "  %9d   %13.6e   %9.4f   %9.3g%s\n", h.iteration,

@@ -32,14 +32,15 @@ struct RetrievalProblem {
   /// Measured photoelectron energy density after background subtraction, divided by the
   /// energy Jacobian p (so it is comparable to |a|^2); rows = delays, cols = energies.
   Eigen::MatrixXd intensity;
-  /// Poisson variance estimate of each element of `intensity` (same layout; > 0).
+  /// Poisson variance estimate of each element of `intensity` (same layout; > 0). May be
+  /// empty (noise-free synthetic data): the noise-floor rule is then off.
   Eigen::MatrixXd variance;
-  std::vector<double> energy_au;      ///< uniform, step == grid.dw()
-  std::vector<double> delay_au;       ///< ascending, any spacing
-  TimeGrid grid;                      ///< XUV grid matched to the energy step
+  std::vector<double> energy_au;  ///< uniform, step == grid.dw()
+  std::vector<double> delay_au;   ///< ascending, any spacing
+  TimeGrid grid;                  ///< XUV grid matched to the energy step
   double ionization_energy_au = 0.0;
-  double central_momentum_au = 0.0;   ///< p0 at the photoelectron-spectrum centroid
-  double ir_omega_au = 0.0;           ///< IR angular frequency from the sidecar
+  double central_momentum_au = 0.0;  ///< p0 at the photoelectron-spectrum centroid
+  double ir_omega_au = 0.0;          ///< IR angular frequency from the sidecar
   /// Field-free (or delay-averaged) photoelectron spectrum on energy_au, |a|^2 units:
   /// constrains |E_X(Omega = W + Ip)|^2.
   std::vector<double> field_free_spectrum;
@@ -49,26 +50,26 @@ struct RetrievalProblem {
 /// Options shared by every engine; engine-specific settings go in `extra` as name=value
 /// strings documented by each engine. Defaults validate (tests/test_engine.cpp checks it).
 struct EngineOptions {
-  int max_iterations = 300;           ///< > 0
+  int max_iterations = 300;  ///< > 0
   /// Stop when the relative change of the trace error G over the last `patience` iterations
   /// is below this: |G_k - G_{k-patience}| / G_k < relative_tolerance.
-  double relative_tolerance = 1e-4;   ///< >= 0
-  int patience = 20;                  ///< > 0
+  double relative_tolerance = 1e-4;  ///< >= 0
+  int patience = 20;                 ///< > 0
   /// Stop when G reaches the noise floor estimated from the variances (G_noise) times this,
   /// G_k <= noise_floor_factor * G_noise, and has settled there: the relative change over the
   /// last `patience` iterations is below noise_floor_relative_tolerance. (A fit reaches the
   /// floor long before its parameters settle, so the floor alone is no stopping rule.)
-  double noise_floor_factor = 1.0;    ///< >= 0 (0 disables)
+  double noise_floor_factor = 1.0;               ///< >= 0 (0 disables)
   double noise_floor_relative_tolerance = 1e-3;  ///< >= 0
-  unsigned long long seed = 1;        ///< random delay order, initial guesses
-  int threads = 1;                    ///< >= 1
-  double max_seconds = 600.0;         ///< wall-time budget (> 0)
+  unsigned long long seed = 1;                   ///< random delay order, initial guesses
+  int threads = 1;                               ///< >= 1
+  double max_seconds = 600.0;                    ///< wall-time budget (> 0)
   /// Warm start (used by bootstrap and chaining); empty = engine's own initial guess.
   std::optional<XuvField> initial_xuv;
   std::optional<IrField> initial_ir;
   std::vector<std::pair<std::string, std::string>> extra;
 
-  std::string validate() const;       ///< "" when valid; else names field, value, constraint
+  std::string validate() const;  ///< "" when valid; else names field, value, constraint
   /// Value of an extra option, or fallback. The last entry of a repeated name wins. A value
   /// that is not a number throws sw::Error(kUsage) naming the option.
   double extra_double(const std::string& name, double fallback) const;
@@ -82,13 +83,13 @@ struct EngineOptions {
 /// and used for validation, --help text and documentation.
 struct ExtraOption {
   enum class Kind { kNumber, kInteger, kChoice };
-  std::string name;                   ///< key in EngineOptions::extra
+  std::string name;  ///< key in EngineOptions::extra
   Kind kind = Kind::kNumber;
-  std::string default_value;          ///< as text, e.g. "0.25"
-  std::string help;                   ///< one line; units in the text
-  double min = -1e308;                ///< inclusive bounds for kNumber / kInteger
+  std::string default_value;  ///< as text, e.g. "0.25"
+  std::string help;           ///< one line; units in the text
+  double min = -1e308;        ///< inclusive bounds for kNumber / kInteger
   double max = 1e308;
-  std::vector<std::string> choices;   ///< allowed values for kChoice
+  std::vector<std::string> choices;  ///< allowed values for kChoice
   /// "" when `value` is acceptable; else a message naming the option, the value and the rule.
   std::string validate(const std::string& value) const;
 };
@@ -96,33 +97,40 @@ struct ExtraOption {
 /// One iteration's record.
 struct IterationRecord {
   int iteration = 0;
-  double trace_error = 0.0;           ///< G (Fittinghoff et al., JOSA B 12, 1955 (1995))
-  double seconds = 0.0;               ///< wall time since start
-  double step_size = 0.0;             ///< engine-specific (ePIE beta, trust radius ...)
+  double trace_error = 0.0;  ///< G (Fittinghoff et al., JOSA B 12, 1955 (1995))
+  double seconds = 0.0;      ///< wall time since start
+  double step_size = 0.0;    ///< engine-specific (ePIE beta, trust radius ...)
 };
 
-enum class Termination { kConverged, kNoiseFloor, kMaxIterations, kTimeLimit, kUserStopped, kFailure };
+enum class Termination {
+  kConverged,
+  kNoiseFloor,
+  kMaxIterations,
+  kTimeLimit,
+  kUserStopped,
+  kFailure
+};
 const char* to_string(Termination t);
 
 /// What an engine returns.
 struct Reconstruction {
-  std::string engine;                 ///< registered name
-  std::string model;                  ///< "cma" or "full" (the forward model it assumed)
-  XuvField xuv;                       ///< time origin: IR reference (tau = 0, DESIGN.md)
-  IrField ir;                         ///< retrieved vector potential A(t)
-  Eigen::MatrixXd retrieved;          ///< model trace on the problem's axes (|a|^2 units)
-  double scale = 1.0;                 ///< optimal scale mu of measured vs model
-  double trace_error = 0.0;           ///< best G
+  std::string engine;         ///< registered name
+  std::string model;          ///< "cma" or "full" (the forward model it assumed)
+  XuvField xuv;               ///< time origin: IR reference (tau = 0, DESIGN.md)
+  IrField ir;                 ///< retrieved vector potential A(t)
+  Eigen::MatrixXd retrieved;  ///< model trace on the problem's axes (|a|^2 units)
+  double scale = 1.0;         ///< optimal scale mu of measured vs model
+  double trace_error = 0.0;   ///< G of the returned (best) estimate, on `retrieved`
   double noise_floor_trace_error = 0.0;
   std::vector<IterationRecord> history;
   Termination termination = Termination::kFailure;
-  std::string message;                ///< human-readable termination message
+  std::string message;  ///< human-readable termination message
   double seconds = 0.0;
   // --- additions beside the original fields ---
-  std::string reference;              ///< paper(s) the engine implements
-  int iterations = 0;                 ///< iterations run (== history.size())
-  int best_iteration = 0;             ///< iteration whose estimate was returned (0 = initial)
-  double prepare_seconds = 0.0;       ///< timing breakdown of `seconds`
+  std::string reference;         ///< paper(s) the engine implements
+  int iterations = 0;            ///< iterations run (== history.size())
+  int best_iteration = 0;        ///< iteration whose estimate was returned (0 = initial)
+  double prepare_seconds = 0.0;  ///< timing breakdown of `seconds`
   double iterate_seconds = 0.0;
   double finalize_seconds = 0.0;
   /// Settings the engine actually used (name, value), e.g. the resolved mode of "auto", step
@@ -131,11 +139,14 @@ struct Reconstruction {
   bool converged() const {
     return termination == Termination::kConverged || termination == Termination::kNoiseFloor;
   }
-  std::string brief_report() const;   ///< one line
-  std::string full_report() const;    ///< table of iterations and timings
+  std::string brief_report() const;  ///< one line
+  std::string full_report() const;   ///< table of iterations and timings
 };
 
-/// Callback decision (Ceres style).
+/// Callback decision (Ceres style). Callbacks run after every iteration, in the order given;
+/// the first one that does not return kContinue ends the run (later ones are not called):
+/// kStop -> Termination::kUserStopped, kAbort -> Termination::kFailure. Either way the best
+/// estimate is returned.
 enum class CallbackResult { kContinue, kStop, kAbort };
 using IterationCallback = std::function<CallbackResult(const IterationRecord&)>;
 
@@ -151,7 +162,8 @@ class Engine {
   /// no registered engine declares is a usage error (names declared only by other engines
   /// are ignored, so one option set can drive an engine chain).
   virtual std::vector<ExtraOption> extra_options() const { return {}; }
-  /// Throws sw::Error(kUsage) for bad engine-specific extras.
+  /// Throws sw::Error(kUsage) for bad engine-specific extras, sw::Error(kInput) for a
+  /// problem the engine cannot use (naming the RetrievalProblem field).
   virtual void prepare(const RetrievalProblem& problem, const EngineOptions& options) = 0;
   /// One iteration; returns its record (iteration and seconds filled in by the loop).
   virtual IterationRecord iterate(int k) = 0;
@@ -178,7 +190,8 @@ std::vector<std::pair<std::string, EngineFactory>> builtin_engines();
 /// G = sqrt( sum (I_meas - mu I_model)^2 / (N max(I_meas)^2) ) with the optimal scale
 /// mu = sum I_meas I_model / sum I_model^2 (Fittinghoff et al. 1995, normalised to the
 /// measured peak). Also returns mu.
-double trace_error(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& model, double* mu = nullptr);
+double trace_error(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& model,
+                   double* mu = nullptr);
 /// G expected from noise alone: sqrt(sum variance / (N max^2)).
 double noise_floor_trace_error(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& variance);
 
@@ -195,10 +208,10 @@ double noise_floor_trace_error(const Eigen::MatrixXd& measured, const Eigen::Mat
 ///      trace error at the noise floor is convergence, DESIGN.md);
 ///   6. wall time since the start of run_engine >= max_seconds -> kTimeLimit.
 /// Whatever the termination, finalize() supplies the best (lowest-G) estimate; the loop fills
-/// history, termination, message, timings, noise floor and iterations.
+/// history, termination, message, timings, noise floor and iterations. Exceptions other than
+/// sw::Error(kNumeric) from the engine propagate unchanged.
 Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
                           const EngineOptions& options,
                           const std::vector<IterationCallback>& callbacks = {});
 
 }  // namespace sw
-

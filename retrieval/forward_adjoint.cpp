@@ -155,28 +155,29 @@ void ForwardAdjoint::vjp(const CVec& eps, const IrField& ir, const Eigen::Matrix
 }
 
 void ForwardAdjoint::scaled_cost(const CVec& eps, const IrField& ir, const Eigen::MatrixXd& M,
-                                 const Eigen::MatrixXd& w, bool with_gradient,
-                                 ScaledCostParts* out, Eigen::MatrixXd* model) const {
+                                 const Eigen::MatrixXd& w, bool with_gradient, ScaledCostParts* out,
+                                 Eigen::MatrixXd* model) const {
   const auto nd = static_cast<Eigen::Index>(delay_.size());
   const auto ne = static_cast<Eigen::Index>(energy_.size());
   if (M.rows() != nd || M.cols() != ne || w.rows() != nd || w.cols() != ne)
-    throw std::invalid_argument("ForwardAdjoint::scaled_cost: measured/weight not delays x energies");
+    throw std::invalid_argument(
+        "ForwardAdjoint::scaled_cost: measured/weight not delays x energies");
   run(Mode::kScaledCost, eps, ir, nullptr, &M, &w, with_gradient, nullptr, model, out, nullptr,
       nullptr);
 }
 
 // Per-thread buffers and accumulators (structure-of-arrays so the inner loops vectorise).
 struct ForwardAdjoint::Workspace {
-  std::vector<double> A, u, v;            // A, I1 - I1_mid, I2/2 at s + tau
-  std::vector<double> ph, sn, cs;         // phases and their sines/cosines
-  std::vector<double> emr, emi;           // exp(i phi) of the block's mid momentum
-  std::vector<double> r1, i1, r2, i2;     // exp(i phi) of a node pair
-  std::vector<double> gre, gim;           // nodes x n: gate d(p + A) exp(i phi)
-  std::vector<double> pre, pim, ddip;     // nodes x n: exp(i phi), d'(p + A) (dipole != const)
+  std::vector<double> A, u, v;         // A, I1 - I1_mid, I2/2 at s + tau
+  std::vector<double> ph, sn, cs;      // phases and their sines/cosines
+  std::vector<double> emr, emi;        // exp(i phi) of the block's mid momentum
+  std::vector<double> r1, i1, r2, i2;  // exp(i phi) of a node pair
+  std::vector<double> gre, gim;        // nodes x n: gate d(p + A) exp(i phi)
+  std::vector<double> pre, pim, ddip;  // nodes x n: exp(i phi), d'(p + A) (dipole != const)
   CVec psi, raw, rawbar, psibar;
   std::vector<cdouble> acc, row_a;
-  std::vector<cdouble> row_bar;           // K x ne
-  std::vector<double> gA, gI1, gI2;       // K x n adjoints of A, I1, I2 at s + tau
+  std::vector<cdouble> row_bar;      // K x ne
+  std::vector<double> gA, gI1, gI2;  // K x n adjoints of A, I1, I2 at s + tau
   // Totals over this thread's delays.
   std::vector<double> ebr, ebi;           // K x n
   std::vector<double> bA, bdA, bI1, bI2;  // K x n_ir
@@ -185,11 +186,20 @@ struct ForwardAdjoint::Workspace {
 
 namespace {
 
-// sin and cos of x[i] (|x| < 1e6), branch-free so that the loop vectorises: Cody-Waite
-// reduction by pi/2 with the three-part split of fdlibm's __ieee754_rem_pio2 (pio2_1, pio2_2,
-// pio2_2t) and Taylor polynomials on [-pi/4, pi/4] to order 17 (truncation < 1e-19); the
-// result agrees with libm to ~2 ulp.
+// sin and cos of x[i], branch-free so that the loop vectorises (libm beyond |x| = 1e6):
+// Cody-Waite reduction by pi/2 with the three-part split of fdlibm's __ieee754_rem_pio2
+// (pio2_1, pio2_2, pio2_2t) and Taylor polynomials on [-pi/4, pi/4] to order 17 (truncation
+// < 1e-19); the result agrees with libm to ~2 ulp.
 void sincos_array(const double* x, double* s, double* c, std::size_t n) {
+  double xmax = 0;
+  for (std::size_t i = 0; i < n; ++i) xmax = std::max(xmax, std::abs(x[i]));
+  if (!(xmax < 1e6)) {  // outside the exact range of the reduction (or not finite): libm
+    for (std::size_t i = 0; i < n; ++i) {
+      s[i] = std::sin(x[i]);
+      c[i] = std::cos(x[i]);
+    }
+    return;
+  }
   constexpr double kTwoOverPi = 0.63661977236758134308;
   constexpr double kRound = 6755399441055744.0;  // 1.5 * 2^52: adding it rounds to an integer
   constexpr double kP1 = 1.57079632673412561417e+00, kP2 = 6.07710050630396597660e-11,
@@ -274,14 +284,13 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
                          const Eigen::MatrixXd* w, bool with_gradient, Eigen::MatrixXcd* amp_out,
                          Eigen::MatrixXd* model_out, ScaledCostParts* parts, CVec* eps_bar_out,
                          std::vector<double>* A_bar_out) const {
-  if (!planned_) throw std::logic_error("ForwardAdjoint: no momentum plan (call plan_full/central)");
+  if (!planned_)
+    throw std::logic_error("ForwardAdjoint: no momentum plan (call plan_full/central)");
   const std::size_t n = grid_.size();
   if (eps_in.size() != n) throw std::invalid_argument("ForwardAdjoint: envelope size != grid size");
   const std::size_t ne = energy_.size(), nir = ir.size();
   const auto nd = static_cast<long>(delay_.size());
-  const int K = mode == Mode::kAmplitude ? 0
-                : mode == Mode::kVjp     ? 1
-                                         : (with_gradient ? 2 : 0);
+  const int K = mode == Mode::kAmplitude ? 0 : mode == Mode::kVjp ? 1 : (with_gradient ? 2 : 0);
   const auto Ku = static_cast<std::size_t>(K);
   const bool const_dipole = dipole_.kind() == DipoleKind::kConstant;
 
@@ -321,7 +330,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
 #pragma omp parallel num_threads(threads)
   {
     Workspace& W = ws[static_cast<std::size_t>(omp_get_thread_num())];
-    for (auto* b : {&W.A, &W.u, &W.v, &W.ph, &W.sn, &W.cs, &W.emr, &W.emi, &W.r1, &W.i1, &W.r2, &W.i2})
+    for (auto* b :
+         {&W.A, &W.u, &W.v, &W.ph, &W.sn, &W.cs, &W.emr, &W.emi, &W.r1, &W.i1, &W.r2, &W.i2})
       b->resize(n);
     W.gre.resize(total_nodes * n);
     W.gim.resize(total_nodes * n);
@@ -417,7 +427,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       }
       const auto ii = static_cast<Eigen::Index>(i);
       if (amp_out)
-        for (std::size_t j = 0; j < ne; ++j) (*amp_out)(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
+        for (std::size_t j = 0; j < ne; ++j)
+          (*amp_out)(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
       if (mode == Mode::kScaledCost) {
         for (std::size_t j = 0; j < ne; ++j) {
           const auto jj = static_cast<Eigen::Index>(j);
@@ -432,7 +443,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
           }
         }
       } else if (mode == Mode::kVjp) {
-        for (std::size_t j = 0; j < ne; ++j) W.row_bar[j] = (*a_bar)(ii, static_cast<Eigen::Index>(j));
+        for (std::size_t j = 0; j < ne; ++j)
+          W.row_bar[j] = (*a_bar)(ii, static_cast<Eigen::Index>(j));
       }
       if (K == 0) continue;
 
@@ -455,9 +467,9 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
             const cdouble* accbar = &W.row_bar[k * ne];
             std::fill(W.rawbar.begin(), W.rawbar.end(), cdouble(0.0));
             for (std::size_t j = b.first; j < b.last; ++j) {
-              const cdouble val = b.lagrange(static_cast<Eigen::Index>(j - b.first),
-                                             static_cast<Eigen::Index>(m)) *
-                                  accbar[j];
+              const cdouble val =
+                  b.lagrange(static_cast<Eigen::Index>(j - b.first), static_cast<Eigen::Index>(m)) *
+                  accbar[j];
               const double f = map_.frac[j];
               if (f == 0.0) {
                 W.rawbar[ilo[j]] += std::conj(clo[j]) * val;

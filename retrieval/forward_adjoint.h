@@ -4,7 +4,8 @@
 //
 // Forward (identical arithmetic to sw::ForwardModel for the same momentum-block plan):
 //   a(W_j, tau_i) = -i exp(i (W_j + Ip) tau_i - i p_j I1_mid)
-//                   x sum_m L_jm  FFT_s[ eps(s) d(p_m + A) exp(-i p_m (I1 - I1_mid) - i I2/2) ](w_j)
+//                   x sum_m L_jm  FFT_s[ eps(s) d(p_m + A) exp(-i p_m (I1 - I1_mid) - i I2/2)
+//                   ](w_j)
 // with A, I1, I2 evaluated at s + tau_i by IrField::at (cubic Hermite between the IR samples),
 // L_jm the Chebyshev-Lagrange weights of the block holding energy j (MomentumBlockPlan), and
 // the FFT scaled to Int ds (.) exp(i w s) (retrieval/grid.h). The CMA is the plan with one
@@ -50,11 +51,11 @@ namespace sw {
 
 /// Coefficients of C(mu) = c2 mu^2 + c1 mu + c0 and the adjoints of c2 and c1.
 struct ScaledCostParts {
-  double c2 = 0.0;   ///< sum w |a|^4
-  double c1 = 0.0;   ///< -2 sum w M |a|^2
-  double c0 = 0.0;   ///< sum w M^2 (independent of the fields)
-  CVec eps_bar2, eps_bar1;                ///< adjoints of c2, c1 w.r.t. the XUV envelope
-  std::vector<double> A_bar2, A_bar1;     ///< adjoints of c2, c1 w.r.t. the IR samples A_i
+  double c2 = 0.0;                     ///< sum w |a|^4
+  double c1 = 0.0;                     ///< -2 sum w M |a|^2
+  double c0 = 0.0;                     ///< sum w M^2 (independent of the fields)
+  CVec eps_bar2, eps_bar1;             ///< adjoints of c2, c1 w.r.t. the XUV envelope
+  std::vector<double> A_bar2, A_bar1;  ///< adjoints of c2, c1 w.r.t. the IR samples A_i
 };
 
 class ForwardAdjoint {

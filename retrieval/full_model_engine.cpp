@@ -55,6 +55,13 @@ std::string FullModelSettings::validate() const {
     s << "support_margin_eV = " << support_margin_eV << ": must be >= 0";
   else if (!(spectrum_weight >= 0) || !std::isfinite(spectrum_weight))
     s << "spectrum_weight = " << spectrum_weight << ": must be finite and >= 0";
+  else if (spectrum_constraint != "amplitude" && spectrum_constraint != "centroid" &&
+           spectrum_constraint != "off")
+    s << "spectrum_constraint = '" << spectrum_constraint << "': expected amplitude|centroid|off";
+  else if (!(ir_lowpass_weight >= 0) || !std::isfinite(ir_lowpass_weight))
+    s << "ir_lowpass_weight = " << ir_lowpass_weight << ": must be finite and >= 0";
+  else if (variance_smoothing_bins < 0)
+    s << "variance_smoothing_bins = " << variance_smoothing_bins << ": must be >= 0";
   return s.str();
 }
 
@@ -62,32 +69,107 @@ std::vector<ExtraOption> full_model_extra_options() {
   using K = ExtraOption::Kind;
   const FullModelSettings d;
   return {
-      {"ir", K::kChoice, d.ir,
+      {"ir",
+       K::kChoice,
+       d.ir,
        "IR form: parametric (Gaussian pulse, 6 parameters), spline (cubic B-spline), auto "
        "(spline with a warm start, else parametric)",
-       0, 0, {"auto", "parametric", "spline"}},
-      {"lbfgs_per_iteration", K::kInteger, std::to_string(d.lbfgs_per_iteration),
-       "L-BFGS iterations per engine iteration", 1, 1e5, {}},
-      {"lbfgs_memory", K::kInteger, std::to_string(d.lbfgs_memory),
-       "L-BFGS rank (past steps kept)", 1, 1000, {}},
-      {"knots_per_period", K::kNumber, num(d.knots_per_period),
-       "spline IR: knots per IR period (knot spacing T / value)", 1e-3, 1e3, {}},
-      {"ir_samples_per_period", K::kNumber, num(d.ir_samples_per_period),
-       "samples per IR period of the fitted vector potential", 8, 1e4, {}},
-      {"chebyshev_nodes", K::kInteger, std::to_string(d.chebyshev_nodes),
-       "full model: Chebyshev nodes per momentum block", 2, 64, {}},
-      {"block_phase_rad", K::kNumber, num(d.block_phase_rad),
-       "full model: largest phase excursion (p - p_mid)(I1 - I1_mid) per block, rad", 1e-3, 50,
+       0,
+       0,
+       {"auto", "parametric", "spline"}},
+      {"lbfgs_per_iteration",
+       K::kInteger,
+       std::to_string(d.lbfgs_per_iteration),
+       "L-BFGS iterations per engine iteration",
+       1,
+       1e5,
        {}},
-      {"variance_floor", K::kNumber, num(d.variance_floor),
-       "least-squares weights 1/max(variance, value x largest variance)", 0, 1, {}},
-      {"support_threshold", K::kNumber, num(d.support_threshold),
-       "XUV bins free where the field-free spectrum exceeds value x its maximum (0 = all)", 0,
-       0.999999, {}},
-      {"support_margin_eV", K::kNumber, num(d.support_margin_eV),
-       "widening of the XUV spectral support on each side, eV", 0, 1e4, {}},
-      {"spectrum_weight", K::kNumber, num(d.spectrum_weight),
-       "weight of the field-free-spectrum term relative to the trace (0 = off)", 0, 1e6, {}},
+      {"lbfgs_memory",
+       K::kInteger,
+       std::to_string(d.lbfgs_memory),
+       "L-BFGS rank (past steps kept)",
+       1,
+       1000,
+       {}},
+      {"knots_per_period",
+       K::kNumber,
+       num(d.knots_per_period),
+       "spline IR: knots per IR period (knot spacing T / value)",
+       1e-3,
+       1e3,
+       {}},
+      {"ir_samples_per_period",
+       K::kNumber,
+       num(d.ir_samples_per_period),
+       "samples per IR period of the fitted vector potential",
+       8,
+       1e4,
+       {}},
+      {"chebyshev_nodes",
+       K::kInteger,
+       std::to_string(d.chebyshev_nodes),
+       "full model: Chebyshev nodes per momentum block",
+       2,
+       64,
+       {}},
+      {"block_phase_rad",
+       K::kNumber,
+       num(d.block_phase_rad),
+       "full model: largest phase excursion (p - p_mid)(I1 - I1_mid) per block, rad",
+       1e-3,
+       50,
+       {}},
+      {"variance_floor",
+       K::kNumber,
+       num(d.variance_floor),
+       "least-squares weights 1/max(variance, value x largest variance)",
+       0,
+       1,
+       {}},
+      {"support_threshold",
+       K::kNumber,
+       num(d.support_threshold),
+       "XUV bins free where the field-free spectrum exceeds value x its maximum (0 = all)",
+       0,
+       0.999999,
+       {}},
+      {"support_margin_eV",
+       K::kNumber,
+       num(d.support_margin_eV),
+       "widening of the XUV spectral support on each side, eV",
+       0,
+       1e4,
+       {}},
+      {"spectrum_weight",
+       K::kNumber,
+       num(d.spectrum_weight),
+       "weight of the field-free-spectrum term relative to the trace (0 = off)",
+       0,
+       1e6,
+       {}},
+      {"spectrum_constraint",
+       K::kChoice,
+       d.spectrum_constraint,
+       "use of the field-free spectrum: amplitude (least-squares term), centroid (carrier, "
+       "support and initial guess only), off (no spectrum term either)",
+       0,
+       0,
+       {"amplitude", "centroid", "off"}},
+      {"ir_lowpass_weight",
+       K::kNumber,
+       num(d.ir_lowpass_weight),
+       "weight of the penalty on the IR's content below ~omega/4 (Gaussian low pass, sigma = one "
+       "IR period); 0 = off",
+       0,
+       1e6,
+       {}},
+      {"variance_smoothing_bins",
+       K::kInteger,
+       std::to_string(d.variance_smoothing_bins),
+       "weights from variances averaged over +-n energy bins and +-1 delay (0 = per bin)",
+       0,
+       100,
+       {}},
   };
 }
 
@@ -98,7 +180,8 @@ FullModelSettings read_full_model_settings(const EngineOptions& o) {
         throw usage_error("full-model: engine option " + e);
   FullModelSettings s;
   s.ir = o.extra_string("ir", s.ir);
-  s.lbfgs_per_iteration = static_cast<int>(o.extra_int("lbfgs_per_iteration", s.lbfgs_per_iteration));
+  s.lbfgs_per_iteration =
+      static_cast<int>(o.extra_int("lbfgs_per_iteration", s.lbfgs_per_iteration));
   s.lbfgs_memory = static_cast<int>(o.extra_int("lbfgs_memory", s.lbfgs_memory));
   s.knots_per_period = o.extra_double("knots_per_period", s.knots_per_period);
   s.ir_samples_per_period = o.extra_double("ir_samples_per_period", s.ir_samples_per_period);
@@ -108,6 +191,10 @@ FullModelSettings read_full_model_settings(const EngineOptions& o) {
   s.support_threshold = o.extra_double("support_threshold", s.support_threshold);
   s.support_margin_eV = o.extra_double("support_margin_eV", s.support_margin_eV);
   s.spectrum_weight = o.extra_double("spectrum_weight", s.spectrum_weight);
+  s.spectrum_constraint = o.extra_string("spectrum_constraint", s.spectrum_constraint);
+  s.ir_lowpass_weight = o.extra_double("ir_lowpass_weight", s.ir_lowpass_weight);
+  s.variance_smoothing_bins =
+      static_cast<int>(o.extra_int("variance_smoothing_bins", s.variance_smoothing_bins));
   if (const std::string e = s.validate(); !e.empty()) throw usage_error("full-model: " + e);
   return s;
 }
@@ -175,12 +262,19 @@ double FullModelObjective::carrier_for(const RetrievalProblem& P) {
   return P.energy_au[jc] + P.ionization_energy_au;
 }
 
+namespace {
+double checked_carrier(const RetrievalProblem& P) {
+  check_problem(P, "full-model");
+  return FullModelObjective::carrier_for(P);
+}
+}  // namespace
+
 FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullModelSettings& s,
                                        MomentumModel model, std::unique_ptr<IrParametrization> ir,
                                        int threads)
     : model_(model),
       settings_(s),
-      carrier_((check_problem(P, "full-model"), carrier_for(P))),
+      carrier_(checked_carrier(P)),
       ne_(P.energy_au.size()),
       nd_(P.delay_au.size()),
       n_(P.grid.size()),
@@ -192,14 +286,37 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
   fft_slot_.resize(ne_);
   for (std::size_t j = 0; j < ne_; ++j) {
     if (map.frac[j] != 0.0)
-      throw input_error("full-model: the energy axis does not fall on the XUV grid's bins "
-                        "(RetrievalProblem.energy_au must be uniform with step grid.dw() = " +
-                        num(units::au_to_eV(grid_.dw())) + " eV)");
+      throw input_error(
+          "full-model: the energy axis does not fall on the XUV grid's bins "
+          "(RetrievalProblem.energy_au must be uniform with step grid.dw() = " +
+          num(units::au_to_eV(grid_.dw())) + " eV)");
     fft_slot_[j] = fft_slot(map.bin[j], n_);
   }
   measured_ = P.intensity;
-  const double floor = std::max(s.variance_floor * P.variance.maxCoeff(), 1e-300);
-  weight_ = P.variance.cwiseMax(floor).cwiseInverse();
+  // Weights from (optionally locally averaged) variances: a weight computed from the bin's own
+  // counts is correlated with its fluctuation, which biases least squares towards low counts
+  // (Neyman's chi^2); averaging over neighbours removes most of that correlation.
+  Eigen::MatrixXd var = P.variance;
+  if (s.variance_smoothing_bins > 0) {
+    const auto h = static_cast<Eigen::Index>(s.variance_smoothing_bins);
+    const Eigen::Index nd = var.rows(), ne = var.cols();
+    Eigen::MatrixXd sm(nd, ne);
+    for (Eigen::Index i = 0; i < nd; ++i)
+      for (Eigen::Index j = 0; j < ne; ++j) {
+        double acc = 0;
+        int cnt = 0;
+        for (Eigen::Index a = std::max<Eigen::Index>(i - 1, 0); a <= std::min(i + 1, nd - 1); ++a)
+          for (Eigen::Index b = std::max<Eigen::Index>(j - h, 0); b <= std::min(j + h, ne - 1);
+               ++b) {
+            acc += P.variance(a, b);
+            ++cnt;
+          }
+        sm(i, j) = acc / cnt;
+      }
+    var = sm;
+  }
+  const double floor = std::max(s.variance_floor * var.maxCoeff(), 1e-300);
+  weight_ = var.cwiseMax(floor).cwiseInverse();
   inv_elements_ = 1.0 / static_cast<double>(measured_.size());
 
   // Spectral support.
@@ -251,6 +368,19 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
     fa_.plan_central(P.central_momentum_au);
   }
   ir_scale_.assign(ir_->num_params(), 1.0);
+  // Gaussian low pass of standard deviation one IR period, normalised to unit DC gain.
+  const double omega =
+      P.ir_omega_au > 0 ? P.ir_omega_au : units::wavelength_nm_to_omega_au(800.0);
+  const double sigma = units::period_au(omega), dt = ir_->sampling().dt_au;
+  const auto half = static_cast<std::size_t>(std::ceil(4.0 * sigma / dt));
+  lowpass_kernel_.resize(half + 1);
+  double norm = 0;
+  for (std::size_t m = 0; m <= half; ++m) {
+    const double t = static_cast<double>(m) * dt;
+    lowpass_kernel_[m] = std::exp(-0.5 * t * t / (sigma * sigma));
+    norm += (m == 0 ? 1.0 : 2.0) * lowpass_kernel_[m];
+  }
+  for (double& k : lowpass_kernel_) k /= norm;
 }
 
 std::vector<double> FullModelObjective::encode(const std::vector<cdouble>& spec,
@@ -260,11 +390,34 @@ std::vector<double> FullModelObjective::encode(const std::vector<cdouble>& spec,
   double mx = 0;
   for (std::size_t j : support_) mx = std::max(mx, std::abs(spec[j]));
   xuv_scale_ = mx > 0 ? mx : 1.0;
+  // Diagonal preconditioner of the XUV samples: the Gauss-Newton curvature of bin j is
+  // ~ sum_i w_ij |a_ij|^2 ~ D_j = sum_i w_ij max(M_ij, 0) (its photons land mostly near energy
+  // j), so x_j = E~_j / (xuv_scale sqrt(D_max / D_j)) gives every bin a comparable curvature;
+  // capped at 30x for bins without signal.
+  bin_scale_.assign(support_.size(), 1.0);
+  {
+    std::vector<double> D(support_.size(), 0.0);
+    double dmax = 0;
+    for (std::size_t k = 0; k < support_.size(); ++k) {
+      const auto j = static_cast<Eigen::Index>(support_[k]);
+      D[k] = (weight_.col(j).array() * measured_.col(j).array().max(0.0)).sum();
+      dmax = std::max(dmax, D[k]);
+    }
+    for (std::size_t k = 0; k < support_.size(); ++k)
+      bin_scale_[k] = dmax > 0 ? std::min(std::sqrt(dmax / std::max(D[k], 1e-300)), 30.0) : 1.0;
+  }
   ir_scale_ = ir_->scales(theta.data());
+  {
+    std::vector<double> A;
+    ir_->samples(theta.data(), &A);
+    double amax = 1e-3;
+    for (double a : A) amax = std::max(amax, std::abs(a));
+    lowpass_weight_ = settings_.ir_lowpass_weight / (static_cast<double>(A.size()) * amax * amax);
+  }
   std::vector<double> x(static_cast<std::size_t>(num_parameters()));
   for (std::size_t k = 0; k < support_.size(); ++k) {
-    x[2 * k] = spec[support_[k]].real() / xuv_scale_;
-    x[2 * k + 1] = spec[support_[k]].imag() / xuv_scale_;
+    x[2 * k] = spec[support_[k]].real() / (xuv_scale_ * bin_scale_[k]);
+    x[2 * k + 1] = spec[support_[k]].imag() / (xuv_scale_ * bin_scale_[k]);
   }
   for (std::size_t r = 0; r < theta.size(); ++r) x[num_xuv_ + r] = theta[r] / ir_scale_[r];
   replan(x.data());
@@ -274,7 +427,7 @@ std::vector<double> FullModelObjective::encode(const std::vector<cdouble>& spec,
 std::vector<cdouble> FullModelObjective::spectrum(const double* x) const {
   std::vector<cdouble> s(ne_, 0.0);
   for (std::size_t k = 0; k < support_.size(); ++k)
-    s[support_[k]] = cdouble(x[2 * k], x[2 * k + 1]) * xuv_scale_;
+    s[support_[k]] = cdouble(x[2 * k], x[2 * k + 1]) * (xuv_scale_ * bin_scale_[k]);
   return s;
 }
 
@@ -298,6 +451,26 @@ void FullModelObjective::xuv_adjoint(const CVec& eps_bar, std::vector<cdouble>* 
   }
 }
 
+void FullModelObjective::lowpass(const std::vector<double>& a, std::vector<double>* out) const {
+  const std::size_t n = a.size();
+  const auto h = static_cast<long>(lowpass_kernel_.size()) - 1;
+  out->assign(n, 0.0);
+  for (std::size_t i = 0; i < n; ++i) {
+    double acc = 0;
+    const long lo = std::max(-h, -static_cast<long>(i));
+    const long hi = std::min(h, static_cast<long>(n - 1 - i));
+    for (long m = lo; m <= hi; ++m)
+      acc += lowpass_kernel_[static_cast<std::size_t>(std::abs(m))] *
+             a[static_cast<std::size_t>(static_cast<long>(i) + m)];
+    (*out)[i] = acc;
+  }
+}
+
+bool FullModelObjective::spectrum_term() const {
+  return settings_.spectrum_constraint == "amplitude" && settings_.spectrum_weight > 0 &&
+         spectrum_.size() == ne_;
+}
+
 std::vector<double> FullModelObjective::ir_theta(const double* x) const {
   std::vector<double> th(ir_->num_params());
   for (std::size_t r = 0; r < th.size(); ++r) th[r] = x[num_xuv_ + r] * ir_scale_[r];
@@ -318,7 +491,7 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
   ScaledCostParts P;
   fa_.scaled_cost(eps, irf, measured_, weight_, grad != nullptr, &P);
   // Field-free-spectrum term (quadratic in the same mu).
-  const bool use_spec = settings_.spectrum_weight > 0 && spectrum_.size() == ne_;
+  const bool use_spec = spectrum_term();
   std::vector<cdouble> pb2, pb1;
   if (use_spec) {
     pb2.assign(ne_, 0.0);
@@ -334,7 +507,15 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
     }
   }
   const double mu = P.c2 > 0 ? -P.c1 / (2.0 * P.c2) : 0.0;
-  const double C = (P.c0 + mu * (P.c1 + mu * P.c2)) * inv_elements_;
+  double C = (P.c0 + mu * (P.c1 + mu * P.c2)) * inv_elements_;
+  // Low-frequency penalty of the IR: kappa sum_i (L A)_i^2, L a Gaussian low pass.
+  std::vector<double> LA;
+  if (lowpass_weight_ > 0) {
+    lowpass(irf.vector_potential(), &LA);
+    double s2 = 0;
+    for (double v : LA) s2 += v * v;
+    C += lowpass_weight_ * s2;
+  }
   if (grad) {
     CVec eb(n_);
     for (std::size_t s = 0; s < n_; ++s) eb[s] = mu * mu * P.eps_bar2[s] + mu * P.eps_bar1[s];
@@ -344,15 +525,20 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
       for (std::size_t j : support_) sb[j] += mu * mu * pb2[j] + mu * pb1[j];
     const double gx = 2.0 * xuv_scale_ * inv_elements_;
     for (std::size_t k = 0; k < support_.size(); ++k) {
-      grad[2 * k] = gx * sb[support_[k]].real();
-      grad[2 * k + 1] = gx * sb[support_[k]].imag();
+      grad[2 * k] = gx * bin_scale_[k] * sb[support_[k]].real();
+      grad[2 * k + 1] = gx * bin_scale_[k] * sb[support_[k]].imag();
     }
     std::vector<double> Ab(irf.size());
-    for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] = mu * mu * P.A_bar2[r] + mu * P.A_bar1[r];
+    for (std::size_t r = 0; r < Ab.size(); ++r)
+      Ab[r] = (mu * mu * P.A_bar2[r] + mu * P.A_bar1[r]) * inv_elements_;
+    if (lowpass_weight_ > 0) {
+      std::vector<double> LLA;
+      lowpass(LA, &LLA);  // L is symmetric: L^T = L
+      for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] += 2.0 * lowpass_weight_ * LLA[r];
+    }
     std::vector<double> tb(ir_->num_params());
     ir_->pullback(th.data(), Ab, tb.data());
-    for (std::size_t r = 0; r < tb.size(); ++r)
-      grad[num_xuv_ + r] = tb[r] * ir_scale_[r] * inv_elements_;
+    for (std::size_t r = 0; r < tb.size(); ++r) grad[num_xuv_ + r] = tb[r] * ir_scale_[r];
   }
   return C;
 }
@@ -362,7 +548,7 @@ Eigen::MatrixXd FullModelObjective::model(const double* x, double* mu) const {
   ScaledCostParts P;
   Eigen::MatrixXd m;
   fa_.scaled_cost(envelope(x), ir_field(x), measured_, weight_, false, &P, &m);
-  if (settings_.spectrum_weight > 0 && spectrum_.size() == ne_)
+  if (spectrum_term())
     for (std::size_t j : support_) {
       const double lam = settings_.spectrum_weight * spectrum_weight_col_[j];
       const double m0 = dip2_[j] * std::norm(spec[j]);
@@ -545,7 +731,8 @@ void centroid_curve(const RetrievalProblem& P, std::vector<double>* A) {
   for (std::size_t i = 0; i < nd; ++i) {
     double nn = 0, dd = 0;
     for (std::size_t j = 0; j < ne; ++j) {
-      const double m = std::max(P.intensity(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j)), 0.0);
+      const double m =
+          std::max(P.intensity(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j)), 0.0);
       nn += m * p[j];
       dd += m;
     }
@@ -593,7 +780,7 @@ class LeastSquaresEngine : public Engine {
   ceres::GradientProblemSolver::Options ceres_options_;
   std::unique_ptr<LbfgsRunner> runner_;
   std::vector<double> x_, best_x_;
-  double best_G_ = 0.0, initial_G_ = 0.0, last_G_ = 0.0;
+  double best_G_ = 0.0, initial_G_ = 0.0, last_G_ = 0.0, initial_cost_ = 0.0;
   bool done_ = false;
   long long lbfgs_iterations_ = 0;
   int runs_ = 0, replans_ = 0;
@@ -612,8 +799,7 @@ void LeastSquaresEngine::prepare(const RetrievalProblem& P, const EngineOptions&
   last_termination_.clear();
 
   const double ip = P.ionization_energy_au;
-  const double omega =
-      P.ir_omega_au > 0 ? P.ir_omega_au : units::wavelength_nm_to_omega_au(800.0);
+  const double omega = P.ir_omega_au > 0 ? P.ir_omega_au : units::wavelength_nm_to_omega_au(800.0);
   const double T = units::period_au(omega);
   const double carrier = FullModelObjective::carrier_for(P);
   const std::size_t n = P.grid.size(), ne = P.energy_au.size();
@@ -649,9 +835,8 @@ void LeastSquaresEngine::prepare(const RetrievalProblem& P, const EngineOptions&
       s_hi = std::min(P.grid.time(n - 1), P.grid.time(last) + T / 4);
     }
   }
-  const IrSampling sampling = IrSampling::covering(P.delay_au.front() + s_lo,
-                                                   P.delay_au.back() + s_hi,
-                                                   T / settings_.ir_samples_per_period);
+  const IrSampling sampling = IrSampling::covering(
+      P.delay_au.front() + s_lo, P.delay_au.back() + s_hi, T / settings_.ir_samples_per_period);
 
   // IR form and initial parameters.
   ir_form_ = settings_.ir == "auto" ? (options.initial_ir ? "spline" : "parametric") : settings_.ir;
@@ -693,11 +878,12 @@ void LeastSquaresEngine::prepare(const RetrievalProblem& P, const EngineOptions&
     sp->set_amplitude_scale(std::max(amax, 1e-2));
     param = std::move(sp);
   }
-  objective_ = std::make_unique<FullModelObjective>(P, settings_, model_, std::move(param),
-                                                    options.threads);
+  objective_ =
+      std::make_unique<FullModelObjective>(P, settings_, model_, std::move(param), options.threads);
   x_ = objective_->encode(spec, theta);
   best_x_ = x_;
   initial_G_ = best_G_ = last_G_ = current_G(x_);
+  initial_cost_ = objective_->evaluate(x_.data(), nullptr);
 
   ceres_options_ = ceres::GradientProblemSolver::Options();
   ceres_options_.line_search_direction_type = ceres::LBFGS;
@@ -804,13 +990,14 @@ Reconstruction LeastSquaresEngine::finalize() {
   S.emplace_back("forward_model", r.model);
   S.emplace_back("ir_form", ir_form_);
   S.emplace_back("ir_initial_guess", ir_guess_);
-  S.emplace_back("xuv_initial_guess", options_.initial_xuv ? "initial_xuv" : "sqrt(spectrum)/|d|, flat phase");
+  S.emplace_back("xuv_initial_guess",
+                 options_.initial_xuv ? "initial_xuv" : "sqrt(spectrum)/|d|, flat phase");
   S.emplace_back("parameters", std::to_string(f.num_parameters()));
   S.emplace_back("xuv_support_bins", std::to_string(f.support().size()));
   S.emplace_back("carrier_eV", num(units::au_to_eV(f.carrier_au())));
   const IrSampling& smp = f.ir_parametrization().sampling();
-  S.emplace_back("ir_window_fs", num(units::au_to_fs(smp.t0_au)) + " .. " +
-                                     num(units::au_to_fs(smp.last_time())));
+  S.emplace_back("ir_window_fs",
+                 num(units::au_to_fs(smp.t0_au)) + " .. " + num(units::au_to_fs(smp.last_time())));
   S.emplace_back("ir_samples", std::to_string(smp.size));
   if (const auto* sp = dynamic_cast<const SplineIrParametrization*>(&f.ir_parametrization()))
     S.emplace_back("spline_knot_spacing_fs", num(units::au_to_fs(sp->knot_spacing_au())));
@@ -833,6 +1020,7 @@ Reconstruction LeastSquaresEngine::finalize() {
   S.emplace_back("weighted_cost_per_element", num(wcost));
   S.emplace_back("weighted_scale", num(wmu));
   S.emplace_back("initial_trace_error", num(initial_G_));
+  S.emplace_back("initial_weighted_cost_per_element", num(initial_cost_));
   S.emplace_back("noise_model", "poisson (weights 1/variance)");
   for (const auto& [k, v] : options_.extra) S.emplace_back("extra." + k, v);
   return r;

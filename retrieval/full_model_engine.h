@@ -14,10 +14,19 @@
 //    bin nearest the field-free-spectrum centroid, so bin j is FFT bin j - c). Real/imaginary
 //    rather than amplitude/phase: the cost is then a polynomial (quartic) in the parameters,
 //    smooth everywhere, with no phase wrapping and no singular phase where the amplitude
-//    vanishes. Only bins inside the spectral support are free (field-free spectrum above
-//    support_threshold x its maximum, widened by support_margin_eV); the rest are zero, which
-//    also removes the frequency-shift ambiguity (DESIGN.md). Optionally (spectrum_weight > 0)
-//    |d(p_j) E~_j|^2 is tied to the field-free spectrum by an extra least-squares term.
+//    vanishes. Only bins inside the spectral support are free (smoothed field-free spectrum
+//    above support_threshold x its maximum, widened by support_margin_eV; default 1e-5, i.e.
+//    essentially every bin with signal: a tighter support truncates the spectral wings and
+//    biases the fit, e.g. +2 % FWHM at 1e-3 for a 70 as pulse); the rest are zero. The
+//    field-free-spectrum term (spectrum_weight, default 0.1) ties |d(p_j) E~_j|^2 to the
+//    measured field-free spectrum. It is needed: without it an offset A -> A + c of a free-form
+//    IR is compensated almost exactly by stretching the XUV spectrum (the gate of momentum p
+//    with A + c is the gate of p + c with A, up to an energy shift p c + c^2/2), and L-BFGS drifts
+//    along that valley while fitting noise (+7 % in peak A in tests). 0.1 gives the spectrum the
+//    weight of a mean over 10 % of the delay rows, about what edge rows of a scan provide.
+//    The same term fixes the frequency-shift ambiguity of DESIGN.md. Diagonal preconditioning:
+//    bin j's parameters are E~_j / (s sqrt(D_max / D_j)), D_j = sum_i w_ij max(M_ij, 0) (its
+//    Gauss-Newton curvature, up to a common factor; ratio capped at 30).
 //  * IR: "parametric" (6 parameters of a Gaussian-envelope pulse, retrieval/ir_parametrization.h)
 //    or "spline" (cubic B-spline coefficients, knot spacing T/knots_per_period). ir=auto (the
 //    default) takes the spline when refining a warm start (EngineOptions::initial_ir given:
@@ -60,7 +69,8 @@
 //   support_threshold     XUV support: field-free spectrum above this fraction of its maximum
 //                         (0 = every bin of the window is free)
 //   support_margin_eV     widening of that support on both sides
-//   spectrum_weight       weight of the field-free-spectrum term (0 = off)
+//   spectrum_weight       weight of the field-free-spectrum term (0 = off; 1 = as much
+//                         weight as the whole trace)
 
 #include <memory>
 #include <string>
@@ -89,8 +99,11 @@ struct FullModelSettings {
   double support_threshold = 1e-5;    ///< in [0, 1)
   double support_margin_eV = 1.0;     ///< >= 0
   double spectrum_weight = 0.1;       ///< >= 0
+  std::string spectrum_constraint = "amplitude";  ///< amplitude | centroid | off
+  double ir_lowpass_weight = 1.0;     ///< >= 0
+  int variance_smoothing_bins = 2;    ///< >= 0
 
-  std::string validate() const;       ///< "" when valid; else names field, value, constraint
+  std::string validate() const;  ///< "" when valid; else names field, value, constraint
 };
 std::vector<ExtraOption> full_model_extra_options();
 /// Reads and validates the extras (throws sw::Error(kUsage) naming the option).
@@ -113,7 +126,8 @@ class FullModelObjective {
 
   /// x from spectral samples at the energy bins (size num energies; only support bins used)
   /// and physical IR parameters theta. Sets the XUV and IR parameter scales from them.
-  std::vector<double> encode(const std::vector<cdouble>& spectrum, const std::vector<double>& theta);
+  std::vector<double> encode(const std::vector<cdouble>& spectrum,
+                             const std::vector<double>& theta);
   /// Spectral samples at the energy bins (0 outside the support).
   std::vector<cdouble> spectrum(const double* x) const;
   CVec envelope(const double* x) const;
@@ -139,6 +153,8 @@ class FullModelObjective {
 
  private:
   void xuv_adjoint(const CVec& eps_bar, std::vector<cdouble>* spec_bar) const;
+  void lowpass(const std::vector<double>& a, std::vector<double>* out) const;
+  bool spectrum_term() const;
 
   MomentumModel model_;
   FullModelSettings settings_;
@@ -153,8 +169,11 @@ class FullModelObjective {
   std::vector<std::size_t> fft_slot_;                          // FFT index of each energy bin
   std::size_t num_xuv_ = 0;
   double xuv_scale_ = 1.0;
+  std::vector<double> bin_scale_;  // per support bin, >= 1
   std::vector<double> ir_scale_;
   double inv_elements_ = 1.0;
+  std::vector<double> lowpass_kernel_;                         // one side, unit DC gain
+  double lowpass_weight_ = 0.0;                                // kappa (set by encode)
   mutable long long evaluations_ = 0;
 };
 

@@ -147,8 +147,8 @@ SW_HOT_LOOP void linear_kernel(const double* T, const double* E, double* G, doub
 }
 
 // G = 4-tap cubic Lagrange interpolation of the table, psi = eps * G.
-SW_HOT_LOOP void cubic_kernel(const double* T, const double* E, double* G, double* P,
-                              std::size_t a, std::size_t b, const double* w) {
+SW_HOT_LOOP void cubic_kernel(const double* T, const double* E, double* G, double* P, std::size_t a,
+                              std::size_t b, const double* w) {
   const double w0 = w[0], w1 = w[1], w2 = w[2], w3 = w[3];
 #pragma omp simd
   for (std::size_t q = a; q < b; ++q) {
@@ -221,9 +221,7 @@ void PhaseGate::update(std::size_t j, const cdouble* u, std::size_t lo, std::siz
   normalize(first, std::min(size(), first + (hi - lo) + (exact_[j] ? 0 : 3)));
 }
 
-void normalize_to_unit(cdouble* v, std::size_t n) {
-  unit_kernel(reinterpret_cast<double*>(v), n);
-}
+void normalize_to_unit(cdouble* v, std::size_t n) { unit_kernel(reinterpret_cast<double*>(v), n); }
 
 void PhaseGate::normalize(std::size_t first, std::size_t last) {
   if (first < last) normalize_to_unit(table_.data() + first, last - first);
@@ -337,8 +335,8 @@ IrField ir_from_gate_phase(const SmoothPhase& phase, double p0, double t_first, 
       std::max<std::size_t>(5, static_cast<std::size_t>(std::ceil((t_last - t_first) / dt)) + 1);
   std::vector<double> A(n);
   for (std::size_t i = 0; i < n; ++i)
-    A[i] = vector_potential_from_phase_rate(
-        phase.derivative(t_first + static_cast<double>(i) * dt), p0);
+    A[i] = vector_potential_from_phase_rate(phase.derivative(t_first + static_cast<double>(i) * dt),
+                                            p0);
   return IrField(t_first, dt, std::move(A));
 }
 

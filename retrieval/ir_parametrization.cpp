@@ -178,16 +178,18 @@ std::vector<double> GaussianIrParametrization::fit_samples(const std::vector<dou
   ceres::Problem problem;
   for (std::size_t k = 0; k < t.size(); ++k) {
     if (!(wt[k] > 0)) continue;
-    problem.AddResidualBlock(
-        new ceres::AutoDiffCostFunction<GaussianResidual, 1, kCount>(
-            new GaussianResidual{t[k], A[k], std::sqrt(wt[k])}),
-        nullptr, th.data());
+    problem.AddResidualBlock(new ceres::AutoDiffCostFunction<GaussianResidual, 1, kCount>(
+                                 new GaussianResidual{t[k], A[k], std::sqrt(wt[k])}),
+                             nullptr, th.data());
   }
   problem.SetParameterLowerBound(th.data(), kFwhm, 0.25 * units::period_au(omega_guess));
   problem.SetParameterLowerBound(th.data(), kOmega, 0.5 * omega_guess);
   problem.SetParameterUpperBound(th.data(), kOmega, 2.0 * omega_guess);
   ceres::Solver::Options o;
   o.max_num_iterations = 200;
+  o.function_tolerance = 1e-14;
+  o.parameter_tolerance = 1e-14;
+  o.gradient_tolerance = 1e-16;
   o.logging_type = ceres::SILENT;
   o.linear_solver_type = ceres::DENSE_QR;
   ceres::Solver::Summary summary;
@@ -216,9 +218,9 @@ std::vector<double> GaussianIrParametrization::fit(const IrField& ir) const {
       ++crossings;
     }
   }
-  const double omega =
-      crossings >= 3 ? units::kPi * (crossings - 1) / (last - first)
-                     : units::wavelength_nm_to_omega_au(800.0);  // common Ti:sapphire default
+  const double omega = crossings >= 3
+                           ? units::kPi * (crossings - 1) / (last - first)
+                           : units::wavelength_nm_to_omega_au(800.0);  // common Ti:sapphire default
   return fit_samples(t, A, w, omega);
 }
 
@@ -260,7 +262,8 @@ void SplineIrParametrization::pullback(const double*, const std::vector<double>&
                                        double* cb) const {
   std::fill(cb, cb + num_coeffs_, 0.0);
   for (std::size_t i = 0; i < sampling_.size; ++i)
-    for (int r = 0; r < 4; ++r) cb[first_[i] + static_cast<std::size_t>(r)] += weight_[4 * i + r] * Ab[i];
+    for (int r = 0; r < 4; ++r)
+      cb[first_[i] + static_cast<std::size_t>(r)] += weight_[4 * i + r] * Ab[i];
 }
 
 std::vector<double> SplineIrParametrization::scales(const double*) const {

@@ -110,8 +110,8 @@ class SplineIrParametrization : public IrParametrization {
  private:
   double h_;
   std::size_t num_coeffs_;
-  std::vector<std::size_t> first_;   // first coefficient index per sample
-  std::vector<double> weight_;       // 4 basis values per sample
+  std::vector<std::size_t> first_;  // first coefficient index per sample
+  std::vector<double> weight_;      // 4 basis values per sample
   double amplitude_scale_ = 0.1;
 };
 

@@ -200,7 +200,8 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   while (lo < nd && quiet_row(lo)) quiet.push_back(lo++);
   while (hi > lo && quiet_row(hi)) quiet.push_back(hi--);
   std::vector<double> ff(static_cast<std::size_t>(ne), 0.0);
-  if (quiet.size() >= 3 && max_shift > 0) {
+  s.field_free_measured = quiet.size() >= 3 && max_shift > 0;
+  if (s.field_free_measured) {
     for (Eigen::Index i : quiet)
       for (Eigen::Index j = 0; j < ne; ++j) ff[static_cast<std::size_t>(j)] += sig(i, j) / static_cast<double>(quiet.size());
     std::ostringstream os;
@@ -211,7 +212,9 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
     for (Eigen::Index j = 0; j < ne; ++j) ff[static_cast<std::size_t>(j)] = sig.col(j).mean();
     s.field_free_source = "delay average";
     if (max_shift > 0)
-      s.warnings.push_back("no field-free delay rows at the scan edges: the spectral constraint uses the delay-averaged spectrum, which streaking broadens");
+      s.warnings.push_back("no field-free delay rows at the scan edges (centroid shift below " +
+                           std::to_string(int(100 * opt.field_free_shift_fraction)) +
+                           " % of the largest): the spectral amplitude is not constrained, only its centroid (the delay-averaged spectrum is broadened by streaking)");
   }
   {
     std::vector<double> Wv(W.begin(), W.end()), dens(ff.size());

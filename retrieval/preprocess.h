@@ -16,9 +16,11 @@
 //      d^3p -> dW Jacobian (DESIGN.md "Jacobians");
 //   5. central momentum p0 from the centroid of the delay-averaged photoelectron spectrum
 //      (DESIGN.md: the photoelectron, not the photon, spectrum);
-//   6. the field-free spectrum: the mean of the delay rows least affected by the IR (rows at the
-//      scan edges whose centroid shift is below `field_free_shift_fraction` of the largest
-//      shift), else the delay-averaged spectrum (flagged, it is broadened by the streaking);
+//   6. the field-free spectrum: the mean of the delay rows least affected by the IR (rows at
+//      the scan edges whose centroid shift is below `field_free_shift_fraction` of the
+//      largest shift), else the delay-averaged spectrum,
+//      flagged (field_free_measured = false): it is broadened by the streaking, so it then
+//      serves as initial guess and centroid reference only, not as an amplitude constraint;
 //   7. the XUV grid: frequency step = energy step, size the next power of two >= 2x the number
 //      of energy bins (so the measured band sits inside the FFT band with margin).
 
@@ -38,6 +40,7 @@ struct PreprocessOptions {
   bool remove_hot_pixels = false;
   double hot_pixel_sigma = 8.0;         ///< > 0
   double hot_pixel_ratio = 5.0;         ///< > 1
+  /// Largest centroid shift (fraction of the scan's largest) of a field-free edge row.
   double field_free_shift_fraction = 0.1;  ///< in (0, 1)
   /// XUV grid size; 0 = automatic (next power of two >= 2 x energy bins, at least 256).
   std::size_t grid_size = 0;
@@ -57,7 +60,10 @@ struct PreprocessSummary {
   double central_momentum_au = 0.0;
   double bandwidth_fwhm_eV = 0.0;       ///< of the field-free photoelectron spectrum
   double bandwidth_ratio = 0.0;         ///< bandwidth / centroid energy (CMA validity)
-  std::string field_free_source;        ///< "edge rows i..j" or "delay average"
+  std::string field_free_source;        ///< "N edge rows ..." or "delay average"
+  /// True when real field-free rows were found; otherwise the engines constrain only the
+  /// spectral centroid, not the amplitude (the delay average is broadened by streaking).
+  bool field_free_measured = false;
   std::size_t grid_size = 0;
   double grid_dt_as = 0.0;
   double total_counts = 0.0;

@@ -70,9 +70,20 @@ class ProjectionsEngine final : public Engine {
   std::vector<ExtraOption> extra_options() const override {
     using K = ExtraOption::Kind;
     std::vector<ExtraOption> o = {
-        {"mode", K::kChoice, "auto",
-         "auto (pcgpa on a matched delay grid, else lsgpa), pcgpa or lsgpa", 0, 0,
+        {"mode",
+         K::kChoice,
+         "auto",
+         "auto (pcgpa on a matched delay grid, else lsgpa), pcgpa or lsgpa",
+         0,
+         0,
          {"auto", "pcgpa", "lsgpa"}},
+        {"gate_relaxation",
+         K::kNumber,
+         "1.8",
+         "over-relaxation omega of the gate update G <- G + omega (G_projected - G)",
+         0.1,
+         2,
+         {}},
     };
     for (auto& e : cma_extra_options()) o.push_back(e);
     return o;
@@ -89,6 +100,7 @@ class ProjectionsEngine final : public Engine {
           std::to_string(problem.grid.dt()) + " a.u.); use mode = lsgpa or auto");
     mode_ = mode == "lsgpa" || (mode == "auto" && !matched) ? GpMode::kLsgpa : GpMode::kPcgpa;
     threads_ = std::max(1, options.threads);
+    omega_ = options.extra_double("gate_relaxation", kOmega);
     const std::size_t n = cma_->samples(), nd = cma_->num_delays();
     eps_ = cma_->initial_xuv(options);
     gate_ = cma_->initial_gate(options);
@@ -127,8 +139,7 @@ class ProjectionsEngine final : public Engine {
       ErrorSums sums;
 #pragma omp for schedule(static)
       for (std::size_t j = 0; j < nd; ++j) {
-        const cdouble* gp =
-            gate_.sample_product(j, eps_.data(), w.g.data(), w.psi.data(), lo, hi);
+        const cdouble* gp = gate_.sample_product(j, eps_.data(), w.g.data(), w.psi.data(), lo, hi);
         cma_->fft().time_to_freq(w.psi, w.spec);
         cma_->project(j, w.spec.data(), sums, w.scratch.data());
         cdouble* out = exit_.data() + j * n;
@@ -176,13 +187,16 @@ class ProjectionsEngine final : public Engine {
     CVec& acc = per_thread_[0].acc;
     for (std::size_t t = 1; t < per_thread_.size(); ++t)
       for (std::size_t m = 0; m < M; ++m) acc[m] += per_thread_[t].acc[m];
-    // Unit-modulus least-squares gate per node: the phase of acc; nodes no delay constrains
-    // (acc ~ 0) keep their value through the small admixture of the old gate.
+    // Unit-modulus least-squares gate per node: the phase of acc (nodes no delay constrains,
+    // acc ~ 0, keep their value through a small admixture of the old gate), over-relaxed:
+    // G <- unit(G + omega (G_ls - G)).
     double amax2 = 0.0;
     for (const cdouble& a : acc) amax2 = std::max(amax2, std::norm(a));
     const double keep = 1e-6 * std::sqrt(amax2);
     CVec& T = gate_.table();
-    for (std::size_t m = 0; m < M; ++m) T[m] = acc[m] + keep * T[m];
+    for (std::size_t m = 0; m < M; ++m) acc[m] += keep * T[m];
+    normalize_to_unit(acc.data(), M);
+    for (std::size_t m = 0; m < M; ++m) T[m] += omega_ * (acc[m] - T[m]);
     gate_.normalize();
 
     const double G = cma_->trace_error(total);
@@ -202,6 +216,7 @@ class ProjectionsEngine final : public Engine {
     Reconstruction r = cma_->reconstruct(best_eps_, best_gate_);
     r.settings.emplace_back("mode", mode_ == GpMode::kPcgpa ? "pcgpa" : "lsgpa");
     r.settings.emplace_back("threads", std::to_string(threads_));
+    r.settings.emplace_back("gate_relaxation", std::to_string(omega_));
     return r;
   }
 
@@ -211,7 +226,9 @@ class ProjectionsEngine final : public Engine {
     std::vector<double> den, scratch;
   };
   std::optional<CmaProblem> cma_;
+  static constexpr double kOmega = 1.8;
   GpMode mode_ = GpMode::kLsgpa;
+  double omega_ = kOmega;
   int threads_ = 1;
   CVec eps_, eps_old_, exit_, work_;
   std::vector<Work> per_thread_;

@@ -6,21 +6,31 @@
 //          Electron. 4, 278 (1998)), applied to streaking by Y. Mairesse and F. Quere, Phys. Rev.
 //          A 71, 011401(R) (2005). Needs a matched grid: a uniform delay axis whose step is an
 //          integer multiple r of the XUV grid step, so every exit wave is an exact shift of the
-//          gate and the modified exit waves form the (row-rotated) outer-product matrix
-//          O(n, m) = eps_n G_m with m = n + r j. One power-method step per iteration:
-//          eps <- O conj(G) (norm kept), G <- phase of O^T conj(eps).
+//          gate (no interpolation) and the modified exit waves form the (row-rotated)
+//          outer-product matrix O(n, m) = eps_n G_m, m = n + r j. One simultaneous
+//          power-method step per iteration, both from the previous vectors:
+//          eps <- O conj(G) / N_delay,  G <- phase of O^T conj(eps_previous).
 //   lsgpa: least-squares generalized projections (P. Gagnon, E. Goulielmakis and V. S.
 //          Yakovlev, Appl. Phys. B 92, 25 (2008)) for any delay axis: after modulus replacement,
 //          alternately minimise sum_j ||psi'_j - eps G_j||^2 in closed form,
 //          eps = sum_j conj(G_j) psi'_j / sum_j |G_j|^2,
-//          G = phase of sum_j conj(eps) psi'_j scattered onto the gate table (|G| = 1).
+//          G = phase of sum_j conj(eps_new) psi'_j scattered onto the gate table by the
+//          transpose of its interpolation (the unit-modulus least-squares value per node).
 //   auto:  pcgpa on a matched grid, else lsgpa.
-// The modulus replacement, spectral constraint and gate smoothing are those of the
-// ptychographic engine (retrieval/cma_setup.h, retrieval/gate.h). The delays are independent
-// within an iteration, so EngineOptions::threads > 1 spreads them over OpenMP threads.
+// With a unit-modulus gate sum_j |G_j|^2 = N_delay, so on a matched grid the two differ only
+// in using the previous or the new eps for the gate (and in needing no interpolation).
+// Both over-relax the gate step, G <- unit(G + omega (G_projected - G)), omega =
+// gate_relaxation (default 1.8; 1 is the plain projection; relaxation is common practice for
+// alternating projections: it roughly halves the iterations on our noise-free traces).
+// The modulus replacement, spectral constraint, gate smoothing and final bookkeeping are those
+// of the ptychographic engine (retrieval/cma_problem.h, retrieval/gate.h); the gate is
+// updated on the XUV support only (CmaProblem::support). The delays are independent within an
+// iteration, so EngineOptions::threads > 1 spreads them over OpenMP threads (on a machine
+// loaded by other processes set OMP_WAIT_POLICY=passive: spinning threads then lose badly).
 //
-// Extra options: mode (auto|pcgpa|lsgpa), spectrum_interval, gate_smoothing_interval,
-// gate_knots_per_period, unmeasured_damping (as for the ptychographic engine).
+// Extra options: mode (auto|pcgpa|lsgpa), gate_relaxation, and those of the CMA engines
+// (spectrum_constraint, spectrum_interval, gate_smoothing_interval, gate_knots_per_period,
+// unmeasured_damping, noise_tolerance; retrieval/cma_problem.h).
 
 #include <memory>
 

@@ -60,7 +60,12 @@ class PtychographicEngine final : public Engine {
   std::vector<ExtraOption> extra_options() const override {
     using K = ExtraOption::Kind;
     std::vector<ExtraOption> o = {
-        {"beta_object", K::kNumber, "0.1", "ePIE step size of the XUV (object) update", 1e-6, 2,
+        {"beta_object",
+         K::kNumber,
+         "0.1",
+         "ePIE step size of the XUV (object) update",
+         1e-6,
+         2,
          {}},
         {"beta_gate", K::kNumber, "1.5", "ePIE step size of the gate (probe) update", 0, 2, {}},
     };
@@ -121,21 +126,23 @@ class PtychographicEngine final : public Engine {
     return r;
   }
 
-  void update_object(const cdouble* gp, std::size_t lo, std::size_t hi, double cg) {
-    epie_update(reinterpret_cast<const double*>(gp), reinterpret_cast<const double*>(back_.data()),
-                reinterpret_cast<const double*>(psi_.data()), reinterpret_cast<double*>(eps_.data()),
-                reinterpret_cast<double*>(du_.data()), cma_->samples(), lo, hi, beta_o_, cg);
-  }
-
   Reconstruction finalize() override {
     Reconstruction r = cma_->reconstruct(best_eps_, best_gate_);
     r.settings.emplace_back("beta_object", std::to_string(beta_o_));
     r.settings.emplace_back("beta_gate", std::to_string(beta_g_));
     r.settings.emplace_back("delay_order", "random permutation per iteration (seeded)");
+    r.settings.emplace_back("threads", "1 (the delays are updated in turn)");
     return r;
   }
 
  private:
+  void update_object(const cdouble* gp, std::size_t lo, std::size_t hi, double cg) {
+    epie_update(reinterpret_cast<const double*>(gp), reinterpret_cast<const double*>(back_.data()),
+                reinterpret_cast<const double*>(psi_.data()),
+                reinterpret_cast<double*>(eps_.data()), reinterpret_cast<double*>(du_.data()),
+                cma_->samples(), lo, hi, beta_o_, cg);
+  }
+
   std::optional<CmaProblem> cma_;
   static constexpr double kBetaObject = 0.1, kBetaGate = 1.5;
   double beta_o_ = kBetaObject, beta_g_ = kBetaGate;

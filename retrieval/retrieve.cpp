@@ -168,6 +168,11 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   eo.seed = opt.seed;
   eo.threads = opt.threads;
   eo.extra = opt.engine_extra;
+  // A streaking-broadened spectrum must not be imposed as the amplitude (DESIGN.md: |E_X| is
+  // constrained to the measured field-free spectrum; without one, only its centroid is used).
+  bool user_set = false;
+  for (const auto& kv : eo.extra) user_set = user_set || kv.first == "spectrum_constraint";
+  if (!out.preprocess.field_free_measured && !user_set) eo.extra.push_back({"spectrum_constraint", "centroid"});
   eo.max_seconds = opt.max_seconds;
 
   std::string final_engine = opt.engine;
@@ -278,6 +283,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   P("preprocess.bandwidth_fwhm_eV", s.bandwidth_fwhm_eV);
   P("preprocess.bandwidth_to_energy_ratio", s.bandwidth_ratio);
   P("preprocess.field_free_spectrum", s.field_free_source);
+  P("preprocess.field_free_measured", s.field_free_measured);
   P("preprocess.grid_size", static_cast<long long>(s.grid_size));
   P("preprocess.grid_dt_as", s.grid_dt_as);
   P("preprocess.total_counts", s.total_counts);

@@ -1,9 +1,12 @@
 #include "synthetic/truth.h"
 
+#include <algorithm>
 #include <climits>
 #include <cmath>
+#include <complex>
 #include <sstream>
 
+#include "retrieval/gas.h"
 #include "retrieval/units.h"
 #include "retrieval/xuv_builders.h"
 #include "synthetic/config_fields.h"
@@ -53,6 +56,56 @@ double truth_driver_period_au(const ScanConfig& c) {
   return driver_period_au(nm);
 }
 
+bool measurable_train_burst_fwhm_as(const ScanConfig& c, const XuvField& one, double* fwhm_as,
+                                    double* tl_fwhm_as) {
+  const double w = units::wavelength_nm_to_omega_au(c.xuv.train.driver_wavelength_nm);
+  const double ip = units::eV_to_au(find_gas(c.gas).ionization_energy_eV);
+  const std::vector<double> axis = c.geometry.energies_eV();
+  if (axis.size() < 2) return false;
+  const double lo = units::eV_to_au(axis.front()) + 0.5 * w;
+  const double hi = units::eV_to_au(axis.back()) - 0.5 * w;
+  // Complex spectrum of one burst, linearly interpolated at the harmonic photon energies.
+  const CVec spec = one.spectrum();
+  const std::vector<double> om = one.photon_energies_au();
+  std::vector<int> orders;
+  std::vector<std::complex<double>> amp;
+  for (int q = 1; q * w - ip <= hi; q += 2) {
+    if (q * w - ip < lo) continue;
+    const double x = q * w;
+    if (x <= om.front() || x >= om.back()) continue;
+    const std::size_t j = static_cast<std::size_t>(
+        std::upper_bound(om.begin(), om.end(), x) - om.begin());
+    const double u = (x - om[j - 1]) / (om[j] - om[j - 1]);
+    orders.push_back(q);
+    amp.push_back((1.0 - u) * spec[j - 1] + u * spec[j]);
+  }
+  if (orders.size() < 2) return false;
+  // |E(t)|^2 of E = sum_q a_q exp(-i q omega t) over one half period (its period for odd q).
+  const int n = 4096;
+  const double T2 = 0.5 * units::period_au(w);
+  auto width = [&](bool flat) {
+    std::vector<double> I(n);
+    for (int i = 0; i < n; ++i) {
+      const double t = T2 * i / n;
+      std::complex<double> e = 0.0;
+      for (std::size_t k = 0; k < orders.size(); ++k)
+        e += (flat ? std::complex<double>(std::abs(amp[k]), 0.0) : amp[k]) *
+             std::polar(1.0, -orders[k] * w * t);
+      I[i] = std::norm(e);
+    }
+    const int m = static_cast<int>(std::max_element(I.begin(), I.end()) - I.begin());
+    std::vector<double> x(n), y(n);
+    for (int k = 0; k < n; ++k) {
+      x[k] = (k - n / 2) * T2 / n;
+      y[k] = I[(m + k - n / 2 + n) % n];
+    }
+    return units::au_to_as(fwhm_of_main_peak(x, y));
+  };
+  *fwhm_as = width(false);
+  *tl_fwhm_as = width(true);
+  return *fwhm_as > 0.0 && *tl_fwhm_as > 0.0;
+}
+
 AnalysisResult make_truth(const ScanConfig& c, const XuvField& f, const VolkovTable* ir) {
   AnalysisResult r;
   r.analysis = "simulate";
@@ -85,8 +138,17 @@ AnalysisResult make_truth(const ScanConfig& c, const XuvField& f, const VolkovTa
     // (the units.h conversion; equals gdd_as2 / 658.2119569 with CODATA 2018 hbar).
     rb.attochirp_as_per_eV = units::au_to_as_per_eV(units::as2_to_au(c.xuv.train.burst.gdd_as2));
     const XuvField one = make_gaussian_xuv(f.grid(), c.xuv.train.burst);
-    rb.train_burst_fwhm_as = units::au_to_as(intensity_fwhm(one));
-    rb.transform_limited_burst_fwhm_as = units::au_to_as(transform_limited_fwhm(one));
+    // The average burst that the scan can measure: the harmonics whose photoelectron lines
+    // q hbar omega - Ip lie on the energy axis (see measurable_train_burst_fwhm_as); the burst
+    // of the full spectrum is the xuv section (main burst of the train).
+    double fwhm = 0.0, tl = 0.0;
+    if (measurable_train_burst_fwhm_as(c, one, &fwhm, &tl)) {
+      rb.train_burst_fwhm_as = fwhm;
+      rb.transform_limited_burst_fwhm_as = tl;
+    } else {
+      rb.train_burst_fwhm_as = units::au_to_as(intensity_fwhm(one));
+      rb.transform_limited_burst_fwhm_as = units::au_to_as(transform_limited_fwhm(one));
+    }
     r.rabbitt = rb;
   }
   return r;

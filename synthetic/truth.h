@@ -13,7 +13,11 @@
 //            `isolated` when the largest satellite at about +-T/2 is <= 10 % of the main
 //            burst, `isolated_with_satellites` below 70 %, `undetermined` above;
 //   rabbitt: for trains, attochirp_as_per_eV = burst GDD / hbar (hbar = 658.2119569 eV as,
-//            CODATA 2018), train_burst_fwhm_as and transform_limited_burst_fwhm_as of one burst;
+//            CODATA 2018), train_burst_fwhm_as and transform_limited_burst_fwhm_as of the
+//            average burst the scan can measure: the harmonics whose photoelectron lines
+//            q hbar omega - Ip lie on the energy axis (measurable_train_burst_fwhm_as); the
+//            burst of the full spectrum (harmonics off the axis or below Ip included) is the
+//            xuv section's fwhm_as / transform_limited_fwhm_as (main burst of the train);
 //   extra:   every ScanConfig field as "generator.<key>", "generator.seed", the quadrature
 //            grid ("generator.numerics.quadrature_step_as", ".quadrature_nodes",
 //            ".window_fs") and, when per-row effects are on, the realised per-row values
@@ -42,6 +46,14 @@ VerdictSection classify_bursts(const BurstStructure& b, const VerdictThresholds&
 /// Driver period (a.u.) used to look for satellites: the train's or satellites' driver, else
 /// the IR wavelength, else 800 nm.
 double truth_driver_period_au(const ScanConfig& config);
+
+/// FWHM and transform-limited FWHM (as) of one burst of a train built only from the odd
+/// harmonics q whose photoelectron energies q hbar omega - Ip lie at least hbar omega / 2
+/// inside the config's energy axis (the whole line recorded): E(t) = sum_q E~(q omega)
+/// exp(-i q omega t), E~ = the spectrum of `one_burst` (interpolated). False (outputs
+/// untouched) when fewer than two harmonics qualify.
+bool measurable_train_burst_fwhm_as(const ScanConfig& config, const XuvField& one_burst,
+                                    double* fwhm_as, double* tl_fwhm_as);
 
 /// Pulse sections of the truth record (xuv, ir, verdict, rabbitt) from the exact field
 /// `xuv_fine` (sampled finely enough for metrics) and the IR table (nullptr = no IR).

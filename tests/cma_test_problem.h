@@ -80,7 +80,8 @@ inline Case make_case(const CaseSpec& c) {
   GaussianIrPulse ip_pulse;
   ip_pulse.peak_intensity_Wcm2 = c.ir_intensity_Wcm2;
   ip_pulse.fwhm_fs = c.ir_fwhm_fs;
-  out.ir = make_gaussian_ir(ip_pulse, units::fs_to_au(-30), units::fs_to_au(30), units::as_to_au(20));
+  out.ir =
+      make_gaussian_ir(ip_pulse, units::fs_to_au(-30), units::fs_to_au(30), units::as_to_au(20));
   const double W0 = units::eV_to_au(c.center_eV) - ip;
   p.central_momentum_au = std::sqrt(2 * W0);
   p.ir_omega_au = units::wavelength_nm_to_omega_au(ip_pulse.wavelength_nm);
@@ -154,7 +155,8 @@ inline double forward_model_error(const Case& c, const Reconstruction& r, double
   const Eigen::MatrixXd M =
       ForwardModel(p.ionization_energy_au, DipoleModel(), fo).trace(r.xuv, r.ir, D, p.energy_au);
   Eigen::MatrixXd I(static_cast<Eigen::Index>(rows.size()), p.intensity.cols());
-  for (std::size_t i = 0; i < rows.size(); ++i) I.row(static_cast<Eigen::Index>(i)) = p.intensity.row(rows[i]);
+  for (std::size_t i = 0; i < rows.size(); ++i)
+    I.row(static_cast<Eigen::Index>(i)) = p.intensity.row(rows[i]);
   return trace_error(I, M);
 }
 

@@ -41,9 +41,10 @@ struct Cli {
 };
 
 Cli run_cli(const std::string& args, const std::string& tag) {
-  const fs::path o = fs::temp_directory_path() / ("sw_batch_cli_" + std::to_string(getpid()) + "_" + tag);
-  const std::string cmd = std::string("'") + STREAKWRIGHT_CLI_PATH + "' " + args + " > '" + o.string() +
-                          ".out' 2> '" + o.string() + ".err'";
+  const fs::path o =
+      fs::temp_directory_path() / ("sw_batch_cli_" + std::to_string(getpid()) + "_" + tag);
+  const std::string cmd = std::string("'") + STREAKWRIGHT_CLI_PATH + "' " + args + " > '" +
+                          o.string() + ".out' 2> '" + o.string() + ".err'";
   Cli c;
   const int rc = std::system(cmd.c_str());
   c.status = WIFEXITED(rc) ? WEXITSTATUS(rc) : -1;
@@ -132,12 +133,12 @@ struct Archive {
     using sw::TraceFormat;
     const sw::Trace a = generate(small_streaking(0.0), 11, "2023-05-02T09:15:00Z");
     write(a, archive / "2023/run1/scan_a.json", TraceFormat::kPng16);
-    write(generate(small_streaking(3000.0), 12, "2023-05-02T11:40:00Z"), archive / "2023/run2/scan_a.json",
-          TraceFormat::kTiff);
-    write(generate(small_streaking(-3000.0), 13, "2024-01-10T16:05:30+01:00"), archive / "2024/scan_b.yaml",
-          TraceFormat::kCsv);
-    write(generate(small_streaking(1500.0), 14, "2024-01-11T08:00:00Z"), archive / "2024/deep/x/scan_c.json",
-          TraceFormat::kPng16, sw::TraceLayout::kEnergyRows);
+    write(generate(small_streaking(3000.0), 12, "2023-05-02T11:40:00Z"),
+          archive / "2023/run2/scan_a.json", TraceFormat::kTiff);
+    write(generate(small_streaking(-3000.0), 13, "2024-01-10T16:05:30+01:00"),
+          archive / "2024/scan_b.yaml", TraceFormat::kCsv);
+    write(generate(small_streaking(1500.0), 14, "2024-01-11T08:00:00Z"),
+          archive / "2024/deep/x/scan_c.json", TraceFormat::kPng16, sw::TraceLayout::kEnergyRows);
     write(generate(small_rabbitt(), 15), archive / "rabbitt/ar_1.json", TraceFormat::kPng16);
     // Broken scans, each a good scan damaged in one way.
     const fs::path b = archive / "broken";
@@ -186,8 +187,8 @@ std::map<std::string, std::pair<std::string, long long>> tree_state(const fs::pa
     const std::string bytes = sw::read_file_bytes(e.path().string());
     unsigned long long h = 1469598103934665603ULL;
     for (unsigned char c : bytes) h = (h ^ c) * 1099511628211ULL;
-    m[fs::relative(e.path(), dir).generic_string()] = {std::to_string(h),
-                                                      st.st_mtim.tv_sec * 1000000000LL + st.st_mtim.tv_nsec};
+    m[fs::relative(e.path(), dir).generic_string()] = {
+        std::to_string(h), st.st_mtim.tv_sec * 1000000000LL + st.st_mtim.tv_nsec};
   }
   return m;
 }
@@ -202,7 +203,8 @@ std::vector<std::string> temporaries(const fs::path& dir) {
   std::vector<std::string> t;
   for (const auto& e : fs::recursive_directory_iterator(dir)) {
     const std::string n = e.path().filename().string();
-    if (n.rfind(".tmp-", 0) == 0 || n.rfind(".old-", 0) == 0 || n.find(".tmp-") != std::string::npos)
+    if (n.rfind(".tmp-", 0) == 0 || n.rfind(".old-", 0) == 0 ||
+        n.find(".tmp-") != std::string::npos)
       t.push_back(e.path().string());
   }
   return t;
@@ -258,7 +260,8 @@ const fs::path& reference_run() {
   static Cli cli;
   if (out.empty()) {
     out = archive().root / "out_reference";
-    cli = run_cli("batch " + q(archive().archive) + " --out " + q(out) + " --jobs 2" + kFast, "ref");
+    cli =
+        run_cli("batch " + q(archive().archive) + " --out " + q(out) + " --jobs 2" + kFast, "ref");
     INFO(cli.err);
     REQUIRE(cli.status == 5);  // broken scans present: documented exit status 5
   }
@@ -301,7 +304,10 @@ TEST_CASE("batch over a mixed archive: ok rows, specific failures, untouched inp
   const json& rb = rows.at(kRabbittName);
   INFO(rb.dump());
   CHECK(rb["analysis"] == "rabbitt");
-  if (rb["status"] != "ok") CHECK(rb["message"].get<std::string>().find("rabbitt") != std::string::npos);
+  if (rb["status"] != "ok")
+    CHECK(rb["message"].get<std::string>().find("rabbitt") != std::string::npos);
+  else
+    CHECK(rb["attochirp_as_per_eV"].get<double>() > 0);  // generated with 15 as/eV
 
   for (const auto& [n, words] : broken_expectations()) {
     INFO(n << ": " << rows.at(n).dump());
@@ -314,18 +320,19 @@ TEST_CASE("batch over a mixed archive: ok rows, specific failures, untouched inp
   // summary.csv: the documented columns, one line per scan; failures listed first in index.html.
   const std::string csv = sw::read_file_bytes((out / "summary.csv").string());
   const std::string header = csv.substr(0, csv.find('\n'));
-  for (const char* c : {"scan", "status", "message", "analysis", "class", "fwhm_as", "fwhm_as_sigma",
-                        "gdd_as2", "gdd_as2_sigma", "attochirp_as_per_eV", "attochirp_as_per_eV_sigma",
-                        "peak_vector_potential_au", "peak_vector_potential_au_sigma",
-                        "satellite_intensity_ratio", "satellite_intensity_ratio_sigma", "trace_error",
-                        "seconds"})
+  for (const char* c :
+       {"scan", "status", "message", "analysis", "class", "fwhm_as", "fwhm_as_sigma", "gdd_as2",
+        "gdd_as2_sigma", "attochirp_as_per_eV", "attochirp_as_per_eV_sigma",
+        "peak_vector_potential_au", "peak_vector_potential_au_sigma", "satellite_intensity_ratio",
+        "satellite_intensity_ratio_sigma", "trace_error", "seconds"})
     CHECK((header + ",").find(std::string(c) + ",") != std::string::npos);
   CHECK(std::count(csv.begin(), csv.end(), '\n') == static_cast<long>(expected.size()) + 1);
   const std::string html = sw::read_file_bytes((out / "index.html").string());
   const auto failed_at = html.find("Failed scans (");
   CHECK(failed_at != std::string::npos);
   CHECK(failed_at < html.find("<h2>Scans</h2>"));
-  for (const std::string& n : streaking_names()) CHECK(html.find("href=\"" + n + "/report.html\"") != std::string::npos);
+  for (const std::string& n : streaking_names())
+    CHECK(html.find("href=\"" + n + "/report.html\"") != std::string::npos);
   CHECK(fs::file_size(out / "trend_fwhm.png") > 1000);
   CHECK(fs::file_size(out / "trend_attochirp.png") > 1000);
 }
@@ -333,7 +340,8 @@ TEST_CASE("batch over a mixed archive: ok rows, specific failures, untouched inp
 TEST_CASE("--jobs 1 and --jobs 2 give identical result numbers", "[batch]") {
   const fs::path& ref = reference_run();
   const fs::path out = archive().root / "out_jobs1";
-  const Cli c = run_cli("batch " + q(archive().archive) + " --out " + q(out) + " --jobs 1" + kFast, "jobs1");
+  const Cli c =
+      run_cli("batch " + q(archive().archive) + " --out " + q(out) + " --jobs 1" + kFast, "jobs1");
   INFO(c.err);
   CHECK(c.status == 5);
   const auto a = rows_by_scan(ref), b = rows_by_scan(out);
@@ -351,7 +359,8 @@ TEST_CASE("--resume rewrites nothing when nothing changed and re-runs exactly th
   const fs::path src = archive().root / "resume_in";
   fs::remove_all(src);
   fs::create_directories(src);
-  for (const char* d : {"2023", "2024"}) fs::copy(archive().archive / d, src / d, fs::copy_options::recursive);
+  for (const char* d : {"2023", "2024"})
+    fs::copy(archive().archive / d, src / d, fs::copy_options::recursive);
   fs::copy(archive().archive / "broken", src / "broken", fs::copy_options::recursive);
   const fs::path out = archive().root / "resume_out";
   const std::string base = "batch " + q(src) + " --out " + q(out) + " --jobs 2" + kFast;
@@ -387,19 +396,21 @@ TEST_CASE("--resume rewrites nothing when nothing changed and re-runs exactly th
     CHECK(rows.at(n)["status"] == "ok");
   }
   // Different analysis options: nothing is reused.
-  const Cli opts = run_cli("batch " + q(src / "2024") + " --out " + q(archive().root / "resume_out2") +
-                               kFast + " --resume",
+  const Cli opts = run_cli("batch " + q(src / "2024") + " --out " +
+                               q(archive().root / "resume_out2") + kFast + " --resume",
                            "r3");
   CHECK(opts.status == 0);
-  const Cli opts2 = run_cli("batch " + q(src / "2024") + " --out " + q(archive().root / "resume_out2") +
-                                " --engine ptychographic --iterations 26 --bootstrap 0 -q --resume",
-                            "r4");
+  const Cli opts2 =
+      run_cli("batch " + q(src / "2024") + " --out " + q(archive().root / "resume_out2") +
+                  " --engine ptychographic --iterations 26 --bootstrap 0 -q --resume",
+              "r4");
   CHECK(opts2.status == 0);
   CHECK(opts2.out.find("reused") == std::string::npos);
   CHECK(temporaries(out).empty());
 }
 
-TEST_CASE("shards: union is every scan exactly once; merged summary equals one process", "[batch]") {
+TEST_CASE("shards: union is every scan exactly once; merged summary equals one process",
+          "[batch]") {
   const fs::path& ref = reference_run();
   const fs::path dir = archive().root / "sharded";
   fs::remove_all(dir);
@@ -424,7 +435,8 @@ TEST_CASE("shards: union is every scan exactly once; merged summary equals one p
   std::multiset<std::string> names;
   for (int k = 1; k <= 3; ++k) {
     INFO(res[static_cast<std::size_t>(k - 1)].err);
-    CHECK((res[static_cast<std::size_t>(k - 1)].status == 0 || res[static_cast<std::size_t>(k - 1)].status == 5));
+    CHECK((res[static_cast<std::size_t>(k - 1)].status == 0 ||
+           res[static_cast<std::size_t>(k - 1)].status == 5));
     for (const auto& [n, r] : rows_by_scan(dir / ("shard-" + std::to_string(k)))) names.insert(n);
     CHECK(temporaries(dir / ("shard-" + std::to_string(k))).empty());
   }
@@ -433,8 +445,8 @@ TEST_CASE("shards: union is every scan exactly once; merged summary equals one p
   for (const auto& [n, r] : single) all.insert(n);
   CHECK(names == all);  // every scan exactly once
 
-  const Cli m = run_cli("summarize " + q(dir / "shard-1") + " " + q(dir / "shard-2") + " " + q(dir / "shard-3") +
-                            " --out " + q(dir / "merged"),
+  const Cli m = run_cli("summarize " + q(dir / "shard-1") + " " + q(dir / "shard-2") + " " +
+                            q(dir / "shard-3") + " --out " + q(dir / "merged"),
                         "merge");
   INFO(m.err);
   REQUIRE(m.status == 0);
@@ -446,7 +458,8 @@ TEST_CASE("shards: union is every scan exactly once; merged summary equals one p
     INFO(n << ": " << why);
     CHECK(same);
     // Links of the merged index point into the shard folders.
-    if (r["status"] == "ok") CHECK(fs::exists(dir / "merged" / merged.at(n)["report"].get<std::string>()));
+    if (r["status"] == "ok")
+      CHECK(fs::exists(dir / "merged" / merged.at(n)["report"].get<std::string>()));
   }
   // The parent folder of the shards works as well (its shard-K/summary.json files are merged).
   const Cli p = run_cli("summarize " + q(dir) + " --out " + q(dir / "merged2"), "merge2");
@@ -472,15 +485,25 @@ TEST_CASE("manifests: per-scan names and overrides; bad usage exits 2 before any
   CHECK(rows.at("second")["message"].get<std::string>().find("Xx") != std::string::npos);
   CHECK(rows.at("archive/2024/deep/x/scan_c")["status"] == "ok");
 
+  // A manifest given by a bare file name (root = the current folder).
+  const std::string dry = "cd " + q(archive().root) + " && '" + STREAKWRIGHT_CLI_PATH +
+                          "' batch manifest.csv --dry-run --out x > dry.txt";
+  CHECK(std::system(dry.c_str()) == 0);
+  CHECK(sw::read_file_bytes((archive().root / "dry.txt").string()).find("\nfirst\t") !=
+        std::string::npos);
+
   // Usage errors: exit 2, nothing written.
   const fs::path none = archive().root / "usage_out";
   CHECK(run_cli("batch " + q(m) + " --out " + q(none) + " --shard 4/3", "u1").status == 2);
-  CHECK(run_cli("batch " + q(archive().root / "nonexistent") + " --out " + q(none), "u2").status == 2);
-  CHECK(run_cli("batch " + q(m) + " --out " + q(none) + " --analysis everything", "u3").status == 2);
+  CHECK(run_cli("batch " + q(archive().root / "nonexistent") + " --out " + q(none), "u2").status ==
+        2);
+  CHECK(run_cli("batch " + q(m) + " --out " + q(none) + " --analysis everything", "u3").status ==
+        2);
   CHECK(!fs::exists(none / "summary.json"));
   // Two different sidecars that would write the same output folder.
   const fs::path dup = archive().root / "dup.csv";
-  std::ofstream(dup) << "scan,name\narchive/2023/run1/scan_a.json,same\narchive/2024/scan_b.yaml,same\n";
+  std::ofstream(dup)
+      << "scan,name\narchive/2023/run1/scan_a.json,same\narchive/2024/scan_b.yaml,same\n";
   const Cli d = run_cli("batch " + q(dup) + " --out " + q(none), "u4");
   CHECK(d.status == 2);
   CHECK(d.err.find("share the output folder 'same'") != std::string::npos);

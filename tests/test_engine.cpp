@@ -69,6 +69,8 @@ TEST_CASE("default engine options validate", "[engine]") {
 }
 
 TEST_CASE("each bad option is named with its value", "[engine]") {
+  // STYLE.md / DESIGN.md "Engines": every option validated with a message naming the field;
+  // bad configuration is reported before any work starts (Ceres practice).
   struct Bad {
     const char* field;
     std::function<void(EngineOptions&)> set;
@@ -102,6 +104,8 @@ TEST_CASE("each bad option is named with its value", "[engine]") {
 }
 
 TEST_CASE("registry lists the built-in engines and rejects unknown names", "[engine]") {
+  // DESIGN.md "Engines" and STYLE.md (PtyPy practice): engines registered by name; unknown
+  // names give an error listing the registered ones.
   const auto names = engine_names();
   CHECK(std::find(names.begin(), names.end(), "ptychographic") != names.end());
   CHECK(std::find(names.begin(), names.end(), "projections") != names.end());
@@ -121,6 +125,13 @@ TEST_CASE("registry lists the built-in engines and rejects unknown names", "[eng
     CHECK(m.find("no-such-engine") != std::string::npos);
     for (const auto& n : names) CHECK(m.find(n) != std::string::npos);
   }
+  // Every declared default of every engine's extra options passes its own validation.
+  for (const auto& n : names)
+    for (const ExtraOption& x : make_engine(n)->extra_options()) {
+      INFO(n << ": " << x.name);
+      CHECK(x.validate(x.default_value).empty());
+      CHECK(!x.help.empty());
+    }
   CHECK_FALSE(register_engine("ptychographic", [] { return make_engine("projections"); }));
   CHECK(register_engine("fake-for-registry-test",
                         [] { return std::make_unique<FakeEngine>([](int) { return 1.0; }); }));
@@ -128,6 +139,7 @@ TEST_CASE("registry lists the built-in engines and rejects unknown names", "[eng
 }
 
 TEST_CASE("engine-specific options are checked against the engine's description", "[engine]") {
+  // STYLE.md "parameters described once": the description drives the validation.
   auto run_with = [](std::vector<std::pair<std::string, std::string>> extra) {
     FakeEngine e([](int) { return 1.0; });
     EngineOptions o;
@@ -137,8 +149,8 @@ TEST_CASE("engine-specific options are checked against the engine's description"
   };
   CHECK_NOTHROW(run_with({{"knob", "1.5"}, {"count", "4"}, {"style", "b"}}));
   const std::vector<std::pair<std::pair<std::string, std::string>, std::string>> bad = {
-      {{"knob", "3"}, "knob = '3'"},          {{"knob", "abc"}, "knob = 'abc'"},
-      {{"count", "2.5"}, "count = '2.5'"},    {{"count", "0"}, "count = '0'"},
+      {{"knob", "3"}, "knob = '3'"},           {{"knob", "abc"}, "knob = 'abc'"},
+      {{"count", "2.5"}, "count = '2.5'"},     {{"count", "0"}, "count = '0'"},
       {{"style", "c"}, "expected one of a|b"}, {{"nonsense", "1"}, "unknown engine option"}};
   for (const auto& [kv, expect] : bad) {
     INFO(kv.first << " = " << kv.second);
@@ -160,6 +172,8 @@ TEST_CASE("engine-specific options are checked against the engine's description"
 }
 
 TEST_CASE("the loop stops at max_iterations and returns the best estimate", "[engine]") {
+  // Contract of run_engine (retrieval/engine.h; Ceres practice: numerical trouble or a stop
+  // keeps the best estimate, never the last iterate if it was worse).
   // G oscillates: the best (lowest) iterate is not the last one.
   FakeEngine e([](int k) { return 1.0 + 0.5 * std::sin(0.7 * k) + 1.0 / k; });
   EngineOptions o;
@@ -183,6 +197,7 @@ TEST_CASE("the loop stops at max_iterations and returns the best estimate", "[en
 }
 
 TEST_CASE("the stall rule compares G over the patience window", "[engine]") {
+  // Rule 4 of run_engine (engine.h): |G_k - G_{k-patience}| / G_k < relative_tolerance.
   // G halves until iteration 10, then is constant: the relative change over 5 iterations
   // first vanishes at k = 15.
   FakeEngine e([](int k) { return std::pow(0.5, std::min(k, 10)); });
@@ -196,6 +211,8 @@ TEST_CASE("the stall rule compares G over the patience window", "[engine]") {
 }
 
 TEST_CASE("the noise floor stops only once G has settled there", "[engine]") {
+  // Rules 3 and 5 of run_engine (engine.h); DESIGN.md: "A trace error at the noise floor is
+  // convergence, not failure".
   // G_noise = sqrt(sum var / (N max^2)) = sqrt(0.04) = 0.2 for var = 0.04, I = 1.
   const RetrievalProblem p = tiny_problem(0.04);
   EngineOptions o;
@@ -233,6 +250,7 @@ TEST_CASE("the noise floor stops only once G has settled there", "[engine]") {
 }
 
 TEST_CASE("the time limit ends the run", "[engine]") {
+  // Rule 6 of run_engine (engine.h): wall time >= max_seconds.
   FakeEngine e([](int k) { return 1.0 / k; }, 0.02);
   EngineOptions o;
   o.max_seconds = 0.1;
@@ -245,6 +263,7 @@ TEST_CASE("the time limit ends the run", "[engine]") {
 }
 
 TEST_CASE("callbacks see every record and can stop or abort", "[engine]") {
+  // Ceres-style iteration callbacks (STYLE.md): continue / stop / abort.
   std::vector<int> seen;
   auto watcher = [&](const IterationRecord& r) {
     seen.push_back(r.iteration);
@@ -255,7 +274,8 @@ TEST_CASE("callbacks see every record and can stop or abort", "[engine]") {
     auto stop_at_3 = [](const IterationRecord& r) {
       return r.iteration == 3 ? CallbackResult::kStop : CallbackResult::kContinue;
     };
-    const Reconstruction r = run_engine(e, tiny_problem(0.0), EngineOptions(), {watcher, stop_at_3});
+    const Reconstruction r =
+        run_engine(e, tiny_problem(0.0), EngineOptions(), {watcher, stop_at_3});
     CHECK(r.termination == Termination::kUserStopped);
     CHECK(r.iterations == 3);
     CHECK(seen == std::vector<int>{1, 2, 3});
@@ -266,7 +286,8 @@ TEST_CASE("callbacks see every record and can stop or abort", "[engine]") {
     auto abort_at_2 = [](const IterationRecord& r) {
       return r.iteration == 2 ? CallbackResult::kAbort : CallbackResult::kContinue;
     };
-    const Reconstruction r = run_engine(e, tiny_problem(0.0), EngineOptions(), {abort_at_2, watcher});
+    const Reconstruction r =
+        run_engine(e, tiny_problem(0.0), EngineOptions(), {abort_at_2, watcher});
     CHECK(r.termination == Termination::kFailure);
     CHECK(r.iterations == 2);
     CHECK(seen == std::vector<int>{1});  // callbacks after a decision are not called
@@ -275,6 +296,7 @@ TEST_CASE("callbacks see every record and can stop or abort", "[engine]") {
 }
 
 TEST_CASE("numerical failure keeps the best estimate", "[engine]") {
+  // STYLE.md (Ceres): numerical failure ends with FAILURE and keeps the best estimate.
   SECTION("G not finite") {
     FakeEngine e([](int k) { return k < 4 ? 1.0 / k : std::numeric_limits<double>::quiet_NaN(); });
     const Reconstruction r = run_engine(e, tiny_problem(0.0), EngineOptions());
@@ -306,8 +328,8 @@ TEST_CASE("trace error and noise floor follow their definitions", "[engine]") {
   CHECK(mu == Approx(0.5));
   M << 1, 2, 3, 5;
   const double m = (1 + 4 + 9 + 20) / 39.0;  // sum I M / sum M^2
-  const double r2 = std::pow(1 - m, 2) + std::pow(2 - 2 * m, 2) + std::pow(3 - 3 * m, 2) +
-                    std::pow(4 - 5 * m, 2);
+  const double r2 =
+      std::pow(1 - m, 2) + std::pow(2 - 2 * m, 2) + std::pow(3 - 3 * m, 2) + std::pow(4 - 5 * m, 2);
   CHECK(trace_error(I, M, &mu) == Approx(std::sqrt(r2 / (4 * 16))));
   CHECK(mu == Approx(m));
   V << 1, 2, 3, 4;  // Poisson: variance = counts
@@ -317,6 +339,7 @@ TEST_CASE("trace error and noise floor follow their definitions", "[engine]") {
 }
 
 TEST_CASE("reports name the engine, the termination and every iteration", "[engine]") {
+  // STYLE.md: a one-line brief report and a full table (Ceres Summary practice).
   FakeEngine e([](int k) { return 1.0 / k; });
   EngineOptions o;
   o.max_iterations = 100;

@@ -63,7 +63,8 @@ double projected_cost(const ScaledCostParts& p) { return p.c0 - p.c1 * p.c1 / (4
 TEST_CASE("forward values equal sw::ForwardModel (full and CMA)", "[adjoint]") {
   // The engine must fit exactly the model the rest of the project uses (forward_model.h).
   Small S;
-  const DipoleModel d(DipoleKind::kHydrogenic, S.ip, 2.9);  // Lewenstein et al., PRA 49, 2117 (1994)
+  const DipoleModel d(DipoleKind::kHydrogenic, S.ip,
+                      2.9);  // Lewenstein et al., PRA 49, 2117 (1994)
   const CVec eps = test_envelope(S.grid, 3);
   ForwardModelOptions o;
   o.momentum = MomentumModel::kFull;
@@ -247,7 +248,8 @@ TEST_CASE("vjp is the transpose of the linearised model", "[adjoint]") {
   fa.plan_central(std::sqrt(2 * S.W[96]));
   std::mt19937 rng(1);
   std::normal_distribution<double> nrm;
-  Eigen::MatrixXcd abar(static_cast<Eigen::Index>(S.D.size()), static_cast<Eigen::Index>(S.W.size()));
+  Eigen::MatrixXcd abar(static_cast<Eigen::Index>(S.D.size()),
+                        static_cast<Eigen::Index>(S.W.size()));
   for (Eigen::Index i = 0; i < abar.size(); ++i) abar(i) = cdouble(nrm(rng), nrm(rng));
   CVec eb;
   std::vector<double> Ab;

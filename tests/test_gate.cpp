@@ -3,10 +3,10 @@
 // <-> vector potential conversion against a known IR field.
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <cmath>
 #include <complex>
 #include <random>
-#include <algorithm>
 
 #include "retrieval/gate.h"
 #include "retrieval/units.h"
@@ -113,8 +113,10 @@ TEST_CASE("the fused exit wave uses cubic samples on the support and linear ones
     double off = 0;
     for (std::size_t n = 0; n < g.size(); ++n) {
       CHECK(std::abs(psi[n] - eps[n] * used[n]) < 1e-14);
-      if (n >= 400 && n < 600) CHECK(std::abs(used[n] - ref[n]) < 1e-14);
-      else off = std::max(off, std::abs(used[n] - ref[n]));
+      if (n >= 400 && n < 600)
+        CHECK(std::abs(used[n] - ref[n]) < 1e-14);
+      else
+        off = std::max(off, std::abs(used[n] - ref[n]));
     }
     // Linear interpolation error <= h^2/8 max|G''| (common numerical analysis).
     const double h = g.dt(), curv = std::pow(2.0 * 0.057 + 1e-3, 2) + 2.0 * 0.057 * 0.057;
@@ -154,7 +156,8 @@ TEST_CASE("the vector potential comes back from the smooth gate phase", "[gate]"
   const TimeGrid g = grid();
   GaussianIrPulse P;
   P.peak_intensity_Wcm2 = 5e12;
-  const IrField ir = make_gaussian_ir(P, units::fs_to_au(-30), units::fs_to_au(30), units::as_to_au(20));
+  const IrField ir =
+      make_gaussian_ir(P, units::fs_to_au(-30), units::fs_to_au(30), units::as_to_au(20));
   const double p0 = std::sqrt(2 * units::eV_to_au(73.4));
   const auto d = delays(121, -6.0, 0.1);
   const double T = units::period_au(units::wavelength_nm_to_omega_au(800));
@@ -165,7 +168,8 @@ TEST_CASE("the vector potential comes back from the smooth gate phase", "[gate]"
   const IrField back = ir_from_gate_phase(s, p0, units::fs_to_au(-6), units::fs_to_au(6), T / 64);
   double worst = 0;
   for (std::size_t i = 0; i < back.size(); ++i)
-    worst = std::max(worst, std::abs(back.vector_potential()[i] - ir.vector_potential_at(back.time(i))));
+    worst = std::max(worst,
+                     std::abs(back.vector_potential()[i] - ir.vector_potential_at(back.time(i))));
   CHECK(worst < 5e-3 * ir.peak_vector_potential());
   // Round trip of the rate <-> A relation, both signs of A.
   for (double A : {-0.4, -0.05, 0.0, 0.03, 0.3})

@@ -180,10 +180,11 @@ TEST_CASE("report: CMA engines on the standard cases", "[.report]") {
       EngineOptions o = row.spec.peak_counts > 0 ? EngineOptions() : noise_free_options();
       const Reconstruction r = retrieve(c, engine, o);
       const Metrics m = metrics(r.xuv, r.ir);
-      std::printf("%-14s %-22s %9.1f %9.1f %9.0f %9.0f %8.4f %8.4f %6d %7.3f %s (G %.2e, G_noise %.2e)\n",
-                  engine, row.name, m.fwhm_as, t.fwhm_as, m.gdd_as2, t.gdd_as2, m.peak_A, t.peak_A,
-                  r.iterations, r.seconds, to_string(r.termination), r.trace_error,
-                  r.noise_floor_trace_error);
+      std::printf(
+          "%-14s %-22s %9.1f %9.1f %9.0f %9.0f %8.4f %8.4f %6d %7.3f %s (G %.2e, G_noise %.2e)\n",
+          engine, row.name, m.fwhm_as, t.fwhm_as, m.gdd_as2, t.gdd_as2, m.peak_A, t.peak_A,
+          r.iterations, r.seconds, to_string(r.termination), r.trace_error,
+          r.noise_floor_trace_error);
     }
   }
 }

@@ -29,8 +29,8 @@ struct Cli {
 
 Cli run_cli(const std::string& args) {
   const fs::path o = fs::temp_directory_path() / ("sw_summarize_cli_" + std::to_string(getpid()));
-  const std::string cmd = std::string("'") + STREAKWRIGHT_CLI_PATH + "' " + args + " > '" + o.string() +
-                          ".out' 2> '" + o.string() + ".err'";
+  const std::string cmd = std::string("'") + STREAKWRIGHT_CLI_PATH + "' " + args + " > '" +
+                          o.string() + ".out' 2> '" + o.string() + ".err'";
   Cli c;
   const int rc = std::system(cmd.c_str());
   c.status = WIFEXITED(rc) ? WEXITSTATUS(rc) : -1;
@@ -49,7 +49,8 @@ std::string q(const fs::path& p) {
 struct TempDir {
   fs::path path;
   explicit TempDir(const std::string& tag)
-      : path(fs::temp_directory_path() / ("sw_test_summarize_" + tag + "_" + std::to_string(getpid()))) {
+      : path(fs::temp_directory_path() /
+             ("sw_test_summarize_" + tag + "_" + std::to_string(getpid()))) {
     fs::remove_all(path);
     fs::create_directories(path);
   }
@@ -115,7 +116,8 @@ TEST_CASE("summarize merges result.json trees into one summary with the written 
   put(t.path / "a/s1", retrieval(151.25, 3.5, 120.0, 300.0, 0.209), true);
   put(t.path / "a/nested/deeper/s2", rabbitt(15.2, 0.4));
   put(t.path / "b/s3", retrieval(98.0, -1, -50.0, -1, 0.31, "isolated_with_satellites", 0.05));
-  const Cli c = run_cli("summarize " + q(t.path / "a") + " " + q(t.path / "b") + " --out " + q(t.path / "m"));
+  const Cli c =
+      run_cli("summarize " + q(t.path / "a") + " " + q(t.path / "b") + " --out " + q(t.path / "m"));
   INFO(c.err);
   REQUIRE(c.status == 0);
   const auto rows = rows_of(t.path / "m");
@@ -166,7 +168,8 @@ TEST_CASE("summarize --against lists exactly the values that moved beyond sqrt(s
   put(new_dir / "s5", retrieval(150, 3, 100, 400, 0.2));  // only in the new run
   put(old_dir / "s6", retrieval(150, 3, 100, 400, 0.2));  // only in the old run
 
-  const Cli c = run_cli("summarize " + q(new_dir) + " --against " + q(old_dir) + " --out " + q(t.path / "m"));
+  const Cli c =
+      run_cli("summarize " + q(new_dir) + " --against " + q(old_dir) + " --out " + q(t.path / "m"));
   INFO(c.out << c.err);
   REQUIRE(c.status == 0);
   CHECK(c.out.find("2 moved by more than their combined 1-sigma") != std::string::npos);

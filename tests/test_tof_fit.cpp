@@ -21,9 +21,9 @@ struct TofSpectrum {
 // Counts per time bin of a comb of Gaussian energy peaks at q hbar omega - Ip (orders q_lo..q_hi
 // in steps of `step`), drawn from the energy density through the exact t^3 Jacobian
 // (counts per time bin = density(E(t)) |dE/dt| dt), optionally with Poisson noise.
-TofSpectrum comb_spectrum(const sw::TofCalibration& truth, double ip_eV, double lambda_nm,
-                          int q_lo, int q_hi, int step, double fwhm_eV, double peak_counts,
-                          double background, unsigned seed, bool poisson) {
+TofSpectrum comb_spectrum(const sw::TofCalibration& truth, double ip_eV, double lambda_nm, int q_lo,
+                          int q_hi, int step, double fwhm_eV, double peak_counts, double background,
+                          unsigned seed, bool poisson) {
   const double hw = sw::units::kPlanckC_eV_nm / lambda_nm;
   const double sigma = fwhm_eV / sw::units::kFwhmPerSigma;
   TofSpectrum s;
@@ -38,7 +38,8 @@ TofSpectrum comb_spectrum(const sw::TofCalibration& truth, double ip_eV, double 
       const double a = 1.0 - 0.5 * std::pow((q - 0.5 * (q_lo + q_hi)) / (q_hi - q_lo + 2.0), 2);
       density += a * std::exp(-0.5 * std::pow((E - Eq) / sigma, 2));
     }
-    double mean = peak_counts * density * sw::tof_energy_jacobian_eV_per_ns(t, truth) * dt + background;
+    double mean =
+        peak_counts * density * sw::tof_energy_jacobian_eV_per_ns(t, truth) * dt + background;
     if (poisson) mean = static_cast<double>(std::poisson_distribution<long long>(mean)(rng));
     s.t_ns.push_back(t);
     s.counts.push_back(mean);

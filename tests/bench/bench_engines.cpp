@@ -76,10 +76,11 @@ void retrieval(benchmark::State& state, const char* engine, int threads) {
     EngineOptions o;
     o.threads = threads;
     r = run_engine(*e, p, o);
-    benchmark::DoNotOptimize(r.trace_error);
+    benchmark::DoNotOptimize(r.history.data());
   }
   state.counters["iterations"] = r.iterations;
   state.counters["G"] = r.trace_error;
+  state.counters["G_noise"] = r.noise_floor_trace_error;
   state.counters["converged"] = r.converged() ? 1 : 0;
 }
 
