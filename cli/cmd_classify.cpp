@@ -44,10 +44,14 @@ double classifier_wavelength(const Trace& trace, ClassifierOptions* co,
 std::string evidence_text(const Param& p) {
   std::ostringstream s;
   s.precision(5);
-  if (auto* d = std::get_if<double>(&p.value)) s << *d;
-  else if (auto* l = std::get_if<long long>(&p.value)) s << *l;
-  else if (auto* b = std::get_if<bool>(&p.value)) s << (*b ? "true" : "false");
-  else if (auto* st = std::get_if<std::string>(&p.value)) s << *st;
+  if (auto* d = std::get_if<double>(&p.value))
+    s << *d;
+  else if (auto* l = std::get_if<long long>(&p.value))
+    s << *l;
+  else if (auto* b = std::get_if<bool>(&p.value))
+    s << (*b ? "true" : "false");
+  else if (auto* st = std::get_if<std::string>(&p.value))
+    s << *st;
   else {
     const auto& v = std::get<std::vector<double>>(p.value);
     s << "[";
@@ -61,10 +65,14 @@ std::string evidence_text(const Param& p) {
 
 AnalysisKind auto_analysis(const Trace& t) {
   switch (t.meta.kind) {
-    case TraceKind::kRabbitt: return AnalysisKind::kRabbitt;
-    case TraceKind::kStreaking: return AnalysisKind::kRetrieve;
-    case TraceKind::kXuvOnly: return AnalysisKind::kClassify;
-    default: break;
+    case TraceKind::kRabbitt:
+      return AnalysisKind::kRabbitt;
+    case TraceKind::kStreaking:
+      return AnalysisKind::kRetrieve;
+    case TraceKind::kXuvOnly:
+      return AnalysisKind::kClassify;
+    default:
+      break;
   }
   // No kind: the spectral evidence decides (a harmonic comb or train-like fringes -> rabbitt).
   try {
@@ -96,9 +104,8 @@ AnalysisResult run_classify_analysis(const Trace& trace, const ScanJob& job,
   std::optional<RetrieveOutput> ret;
   if (job.classify_retrieve) {
     if (trace.meta.kind == TraceKind::kXuvOnly || trace.num_delays() < 8) {
-      res.warnings.push_back(
-          "--retrieve ignored: the scan has no delay scan to retrieve from (" +
-          std::to_string(trace.num_delays()) + " delay row(s))");
+      res.warnings.push_back("--retrieve ignored: the scan has no delay scan to retrieve from (" +
+                             std::to_string(trace.num_delays()) + " delay row(s))");
     } else {
       RetrieveOptions ro = job.retrieve;
       if (job.overrides.engine) ro.engine = *job.overrides.engine;
@@ -179,7 +186,8 @@ int run_classify(ClassifyArgs& a) {
   const VerdictSection& v = *o.result.verdict;
   std::printf("class: %s\n", to_string(v.pulse_class));
   std::printf("reason: %s\n", v.reason.c_str());
-  for (const Param& p : v.evidence) std::printf("  %s = %s\n", p.key.c_str(), evidence_text(p).c_str());
+  for (const Param& p : v.evidence)
+    std::printf("  %s = %s\n", p.key.c_str(), evidence_text(p).c_str());
   if (!a.quiet)
     for (const auto& w : o.result.warnings)
       std::fprintf(stderr, "streakwright classify: warning: %s\n", w.c_str());

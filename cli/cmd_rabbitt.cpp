@@ -143,7 +143,8 @@ std::string summary_line(const AnalysisResult& r) {
     s << "; burst FWHM " << *b.train_burst_fwhm_as;
     if (b.train_burst_fwhm_as_sigma) s << " +- " << *b.train_burst_fwhm_as_sigma;
     s << " as";
-    if (b.transform_limited_burst_fwhm_as) s << " (TL " << *b.transform_limited_burst_fwhm_as << " as)";
+    if (b.transform_limited_burst_fwhm_as)
+      s << " (TL " << *b.transform_limited_burst_fwhm_as << " as)";
   }
   if (r.verdict) s << "; " << to_string(r.verdict->pulse_class);
   if (!r.warnings.empty()) s << "; " << r.warnings.size() << " warning(s), see the report";
@@ -222,7 +223,8 @@ void add_rabbitt_command(CLI::App& app) {
   cmd->add_option("--dipole", a->dipole, "dipole of sfa_dipole: constant | hydrogenic")
       ->capture_default_str();
   cmd->add_option("--gas", a->gas, "target gas (overrides the sidecar)");
-  cmd->add_option("--ir-wavelength", a->wavelength_nm, "IR wavelength in nm (overrides the sidecar)");
+  cmd->add_option("--ir-wavelength", a->wavelength_nm,
+                  "IR wavelength in nm (overrides the sidecar)");
   cmd->add_option("--window", a->options.window_half_width_fraction,
                   "half width of the sideband windows in units of hbar omega, (0, 0.5]")
       ->capture_default_str();

@@ -65,7 +65,8 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
     std::ostringstream c;
     c << "key,value\n";
     c << "class," << to_string(v.pulse_class) << '\n';
-    for (const Param& p : v.evidence) c << csv_cell(p.key) << ',' << csv_cell(param_text(p, 10)) << '\n';
+    for (const Param& p : v.evidence)
+      c << csv_cell(p.key) << ',' << csv_cell(param_text(p, 10)) << '\n';
     write_file_atomic(path("evidence.csv"), c.str());
   }
 
@@ -98,7 +99,8 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
     const std::vector<double> t = rec->xuv.grid().times(), I = rec->xuv.intensity();
     const double T = units::period_au(units::wavelength_nm_to_omega_au(ir_wavelength_nm));
     const double Imax = *std::max_element(I.begin(), I.end());
-    const std::size_t im = static_cast<std::size_t>(std::max_element(I.begin(), I.end()) - I.begin());
+    const std::size_t im =
+        static_cast<std::size_t>(std::max_element(I.begin(), I.end()) - I.begin());
     std::vector<double> x, y;
     for (std::size_t i = 0; i < t.size(); ++i)
       if (std::abs(t[i] - t[im]) <= 1.5 * T) {
@@ -128,17 +130,16 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
                     "burst; dashed: where satellites of a half-cycle gate appear."});
   }
 
-  HtmlReport rep("streakwright classification: " +
-                 fs::path(trace.meta.source.empty() ? res.input : trace.meta.source)
-                     .filename()
-                     .string());
+  HtmlReport rep(
+      "streakwright classification: " +
+      fs::path(trace.meta.source.empty() ? res.input : trace.meta.source).filename().string());
   rep.set_footer(std::string("streakwright ") + STREAKWRIGHT_VERSION);
-  rep.add_paragraph("Input: " + res.input + "\nIR wavelength used: " + fmt(ir_wavelength_nm, 6) +
-                    " nm (T/2 = " +
-                    fmt(0.5 * units::au_to_as(units::period_au(
-                                  units::wavelength_nm_to_omega_au(ir_wavelength_nm))),
-                        5) +
-                    " as)");
+  rep.add_paragraph(
+      "Input: " + res.input + "\nIR wavelength used: " + fmt(ir_wavelength_nm, 6) + " nm (T/2 = " +
+      fmt(0.5 *
+              units::au_to_as(units::period_au(units::wavelength_nm_to_omega_au(ir_wavelength_nm))),
+          5) +
+      " as)");
   for (const auto& w : res.warnings) rep.add_warning(w);
   std::vector<KeyValueRow> vr;
   vr.push_back({"class", to_string(v.pulse_class), "", std::nullopt});

@@ -104,12 +104,10 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     std::vector<std::vector<std::string>> rows;
     for (const SidebandDetail& d : rb.sidebands)
       for (std::size_t k = 0; k < d.rainbow_energy_eV.size(); ++k)
-        rows.push_back({std::to_string(d.order), fmt(d.rainbow_energy_eV[k]),
-                        fmt(d.rainbow_phase_rad[k]),
-                        k < d.rainbow_phase_rad_sigma.size() ? fmt(d.rainbow_phase_rad_sigma[k])
-                                                             : "",
-                        k < d.rainbow_modulation_depth.size() ? fmt(d.rainbow_modulation_depth[k])
-                                                              : ""});
+        rows.push_back(
+            {std::to_string(d.order), fmt(d.rainbow_energy_eV[k]), fmt(d.rainbow_phase_rad[k]),
+             k < d.rainbow_phase_rad_sigma.size() ? fmt(d.rainbow_phase_rad_sigma[k]) : "",
+             k < d.rainbow_modulation_depth.size() ? fmt(d.rainbow_modulation_depth[k]) : ""});
     write_csv(path("rainbow.csv"),
               {"order", "energy_eV", "phase_rad", "phase_rad_sigma", "modulation_depth"}, rows);
   }
@@ -156,8 +154,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
                " eV, scale " + fmt(rb.alignment.scale, 5);
     lp.x_label = "photoelectron energy (eV)";
     lp.y_label = "counts (summed over delays)";
-    lp.series.push_back({eev, rb.integrated_spectrum, {}, "spectrum", std::nullopt, false, true,
-                         false, 1, false});
+    lp.series.push_back(
+        {eev, rb.integrated_spectrum, {}, "spectrum", std::nullopt, false, true, false, 1, false});
     double smax = 0;
     for (double v : rb.integrated_spectrum) smax = std::max(smax, v);
     bool first_h = true, first_s = true;
@@ -168,9 +166,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
       if (sb && first_s) label = "predicted sideband q hw - Ip";
       if (!sb && first_h) label = "predicted harmonic q hw - Ip";
       (sb ? first_s : first_h) = false;
-      lp.series.push_back(vertical(p.predicted_eV, 0.0, smax,
-                                   label, sb ? plot::Rgb{200, 60, 40} : plot::Rgb{120, 120, 120},
-                                   true));
+      lp.series.push_back(vertical(p.predicted_eV, 0.0, smax, label,
+                                   sb ? plot::Rgb{200, 60, 40} : plot::Rgb{120, 120, 120}, true));
     }
     Series obs;
     obs.label = "observed centroids";
@@ -304,11 +301,26 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
                fmt(burst->transform_limited_fwhm_as, 4) + " as)";
     lb.x_label = "time on the IR axis (as)";
     lb.y_label = "intensity (norm.)";
-    lb.series.push_back({burst->time_as, burst->intensity, {}, "reconstructed burst",
-                         std::nullopt, false, true, false, 2, false});
-    lb.series.push_back({burst->time_as, burst->transform_limited_intensity, {},
-                         "transform limit (flat phases, same harmonics)", std::nullopt, true,
-                         true, false, 2, false});
+    lb.series.push_back({burst->time_as,
+                         burst->intensity,
+                         {},
+                         "reconstructed burst",
+                         std::nullopt,
+                         false,
+                         true,
+                         false,
+                         2,
+                         false});
+    lb.series.push_back({burst->time_as,
+                         burst->transform_limited_intensity,
+                         {},
+                         "transform limit (flat phases, same harmonics)",
+                         std::nullopt,
+                         true,
+                         true,
+                         false,
+                         2,
+                         false});
     plot_lines(lb, path("burst.png"));
     add_fig("burst.png",
             "Average burst of the train, E(t) = sum_q sqrt(I_q) exp(i phi_q - i q omega t), "
@@ -316,14 +328,13 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   }
 
   // --- report ------------------------------------------------------------------------------
-  HtmlReport rep("streakwright RABBITT analysis: " +
-                 fs::path(trace.meta.source.empty() ? res.input : trace.meta.source)
-                     .filename()
-                     .string());
+  HtmlReport rep(
+      "streakwright RABBITT analysis: " +
+      fs::path(trace.meta.source.empty() ? res.input : trace.meta.source).filename().string());
   rep.set_footer(std::string("streakwright ") + STREAKWRIGHT_VERSION);
-  rep.add_paragraph("Input: " + res.input + "\nGas: " + rb.gas + " (Ip = " +
-                    fmt(rb.ionization_energy_eV, 6) + " eV), IR " + fmt(rb.ir_wavelength_nm, 6) +
-                    " nm (hbar omega = " + fmt(hw_eV, 5) + " eV)");
+  rep.add_paragraph("Input: " + res.input + "\nGas: " + rb.gas +
+                    " (Ip = " + fmt(rb.ionization_energy_eV, 6) + " eV), IR " +
+                    fmt(rb.ir_wavelength_nm, 6) + " nm (hbar omega = " + fmt(hw_eV, 5) + " eV)");
   for (const auto& w : res.warnings) rep.add_warning(w);
 
   std::vector<KeyValueRow> sr;
@@ -334,17 +345,15 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
                                        *s.attochirp_as_per_eV, "as/eV",
                                        s.attochirp_as_per_eV_sigma));
     if (s.attochirp_as_per_eV)
-      sr.push_back(KeyValueRow::number("equivalent burst GDD (attochirp x hbar)",
-                                       *s.attochirp_as_per_eV * units::au_to_as(1.0) *
-                                           units::au_to_eV(1.0),
-                                       "as^2",
-                                       s.attochirp_as_per_eV_sigma
-                                           ? std::optional<double>(*s.attochirp_as_per_eV_sigma *
-                                                                   units::au_to_as(1.0) *
-                                                                   units::au_to_eV(1.0))
-                                           : std::nullopt));
-    sr.push_back(KeyValueRow::number("reduced chi^2 of the attochirp fit",
-                                     rb.attochirp_reduced_chi2, ""));
+      sr.push_back(KeyValueRow::number(
+          "equivalent burst GDD (attochirp x hbar)",
+          *s.attochirp_as_per_eV * units::au_to_as(1.0) * units::au_to_eV(1.0), "as^2",
+          s.attochirp_as_per_eV_sigma
+              ? std::optional<double>(*s.attochirp_as_per_eV_sigma * units::au_to_as(1.0) *
+                                      units::au_to_eV(1.0))
+              : std::nullopt));
+    sr.push_back(
+        KeyValueRow::number("reduced chi^2 of the attochirp fit", rb.attochirp_reduced_chi2, ""));
     if (s.train_burst_fwhm_as)
       sr.push_back(KeyValueRow::number("average burst FWHM", *s.train_burst_fwhm_as, "as",
                                        s.train_burst_fwhm_as_sigma));
@@ -360,9 +369,9 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   rep.add_paragraph(
       "Per sideband q (even, between harmonics q-1 and q+1 of an odd-harmonic train) the counts "
       "in a window of +-" +
-      fmt(rb.sidebands.empty() ? 0.0
-                               : 0.5 * (rb.sidebands.front().window_high_eV -
-                                        rb.sidebands.front().window_low_eV),
+      fmt(rb.sidebands.empty()
+              ? 0.0
+              : 0.5 * (rb.sidebands.front().window_high_eV - rb.sidebands.front().window_low_eV),
           3) +
       " eV are fitted over the whole delay axis with S(tau) = A + B cos(2 omega tau + phi) by "
       "weighted linear least squares with Poisson weights (P. M. Paul et al., Science 292, "
@@ -379,8 +388,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   {
     const EnergyAxisAlignment& a = rb.alignment;
     std::vector<KeyValueRow> ar;
-    ar.push_back({"fitted", a.fitted ? "yes" : "no (fewer than 2 significant peaks)", "",
-                  std::nullopt});
+    ar.push_back(
+        {"fitted", a.fitted ? "yes" : "no (fewer than 2 significant peaks)", "", std::nullopt});
     ar.push_back(KeyValueRow::number("offset W_obs - W_pred at the reference", a.offset_eV, "eV",
                                      a.offset_eV_sigma));
     ar.push_back(KeyValueRow::number("scale", a.scale, "", a.scale_sigma));
@@ -457,8 +466,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     std::vector<KeyValueRow> vr;
     vr.push_back({"class", to_string(v.pulse_class), "", std::nullopt});
     if (v.satellite_intensity_ratio)
-      vr.push_back(KeyValueRow::number("satellite intensity ratio", *v.satellite_intensity_ratio,
-                                       ""));
+      vr.push_back(
+          KeyValueRow::number("satellite intensity ratio", *v.satellite_intensity_ratio, ""));
     vr.push_back({"reason", v.reason, "", std::nullopt});
     for (const Param& p : v.evidence) vr.push_back({p.key, param_text(p), "", std::nullopt});
     rep.add_key_value_table("Isolated or train (thresholds: common practice, options)", vr);
@@ -466,7 +475,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   for (std::size_t k = 0; k < figures.size(); ++k) rep.add_figure(figures[k], captions[k]);
   std::vector<std::vector<std::string>> settings;
   for (const Param& p : res.extra) settings.push_back({p.key, param_text(p)});
-  rep.add_table({"setting / diagnostic", "value"}, settings, "Settings, diagnostics and provenance");
+  rep.add_table({"setting / diagnostic", "value"}, settings,
+                "Settings, diagnostics and provenance");
   rep.add_paragraph(
       "Safety: this report analyses recorded data only. Local laser-safety rules and the "
       "facility's procedures for intense lasers, XUV beams and detector high voltage come "

@@ -150,8 +150,8 @@ std::vector<ExtraOption> full_model_extra_options() {
       {"spectrum_constraint",
        K::kChoice,
        d.spectrum_constraint,
-       "use of the field-free spectrum: amplitude (least-squares term), centroid (carrier, "
-       "support and initial guess only), off (no spectrum term either)",
+       "use of the field-free spectrum: centroid (carrier, support and initial guess only), "
+       "amplitude (also a least-squares term of weight spectrum_weight), off (as centroid)",
        0,
        0,
        {"amplitude", "centroid", "off"}},

@@ -17,27 +17,38 @@
 //    vanishes. Only bins inside the spectral support are free (smoothed field-free spectrum
 //    above support_threshold x its maximum, widened by support_margin_eV; default 1e-5, i.e.
 //    essentially every bin with signal: a tighter support truncates the spectral wings and
-//    biases the fit, e.g. +2 % FWHM at 1e-3 for a 70 as pulse); the rest are zero. The
-//    field-free-spectrum term (spectrum_weight, default 0.1) ties |d(p_j) E~_j|^2 to the
-//    measured field-free spectrum. It is needed: without it an offset A -> A + c of a free-form
-//    IR is compensated almost exactly by stretching the XUV spectrum (the gate of momentum p
-//    with A + c is the gate of p + c with A, up to an energy shift p c + c^2/2), and L-BFGS drifts
-//    along that valley while fitting noise (+7 % in peak A in tests). 0.1 gives the spectrum the
-//    weight of a mean over 10 % of the delay rows, about what edge rows of a scan provide.
-//    The same term fixes the frequency-shift ambiguity of DESIGN.md. Diagonal preconditioning:
-//    bin j's parameters are E~_j / (s sqrt(D_max / D_j)), D_j = sum_i w_ij max(M_ij, 0) (its
-//    Gauss-Newton curvature, up to a common factor; ratio capped at 30).
+//    biases the fit, e.g. +2 % FWHM at 1e-3 for a 70 as pulse); the rest are zero. With
+//    spectrum_constraint=amplitude a least-squares term (weight spectrum_weight) ties
+//    |d(p_j) E~_j|^2 to the field-free spectrum. It is off by default (centroid: the spectrum
+//    sets only carrier, support and initial guess) because "field-free" spectra from the edge
+//    rows of a scan still carry residual streaking, and imposing them distorts the fit (G = 0.02
+//    instead of 0 on noise-free data in tests). Diagonal preconditioning: bin j's parameters
+//    are E~_j / (s sqrt(D_max / D_j)), D_j = sum_i w_ij max(M_ij, 0) (its Gauss-Newton
+//    curvature, up to a common factor; ratio capped at 30).
 //  * IR: "parametric" (6 parameters of a Gaussian-envelope pulse, retrieval/ir_parametrization.h)
 //    or "spline" (cubic B-spline coefficients, knot spacing T/knots_per_period). ir=auto (the
 //    default) takes the spline when refining a warm start (EngineOptions::initial_ir given:
 //    the field is already close and may be non-Gaussian) and the parametric form from scratch
 //    (six parameters keep the first, far-from-solution steps well posed).
+//    Low-frequency penalty (ir_lowpass_weight): kappa sum_i (L A)_i^2 with L a Gaussian low pass
+//    of standard deviation one IR period (transfer exp(-W^2 T^2 / 2): 1 at W = 0, 3e-9 at the
+//    carrier, 7e-3 at half of it) and kappa = ir_lowpass_weight / (N_samples max|A_initial|^2).
+//    A laser pulse of more than ~1.5 cycles has no content there, so the penalty does not bias
+//    it; it removes a near-degeneracy of the free form: an offset A -> A + c is compensated
+//    almost exactly by stretching the XUV spectrum (the gate of momentum p with A + c is the
+//    gate of p + c with A, up to an energy shift p c + c^2/2), and without the penalty L-BFGS
+//    drifts along that valley while fitting noise (+5..7 % in peak A in tests). In the CMA the
+//    same offset is the gate side of the frequency-shift ambiguity of DESIGN.md.
 //
 // Cost (Poisson-aware weighted least squares, model in |a|^2 units: RetrievalProblem::intensity
 // is already divided by the energy Jacobian p, so the model carries no p either):
 //   C = (1/N) [ sum_ij w_ij (mu |a_ij|^2 - M_ij)^2
-//               + spectrum_weight sum_j wc_j (mu |d(p_j) E~_j|^2 - S_j)^2 ],
-//   w_ij = 1 / max(variance_ij, variance_floor x max variance),   wc_j = sum_i w_ij,
+//               + spectrum_weight sum_j wc_j (mu |d(p_j) E~_j|^2 - S_j)^2 ]  + IR penalty,
+//   w_ij = 1 / max(<variance>_ij, variance_floor x max variance),   wc_j = sum_i w_ij,
+// <variance> the variance averaged over +-variance_smoothing_bins energies and +-1 delay: a
+// weight from the bin's own counts is correlated with its fluctuation and biases least squares
+// towards low counts (Neyman's chi^2; e.g. S. Baker and R. D. Cousins, Nucl. Instrum. Methods
+// 221, 437 (1984)); the local mean keeps the Poisson scaling without most of that correlation.
 // N the number of trace elements, mu the optimal scale eliminated in closed form (variable
 // projection, G. H. Golub and V. Pereyra, SIAM J. Numer. Anal. 10, 413 (1973)): C is quadratic
 // in mu, mu* = -c1 / (2 c2), and since dC/dmu = 0 there the gradient of the projected cost is
@@ -69,8 +80,11 @@
 //   support_threshold     XUV support: field-free spectrum above this fraction of its maximum
 //                         (0 = every bin of the window is free)
 //   support_margin_eV     widening of that support on both sides
-//   spectrum_weight       weight of the field-free-spectrum term (0 = off; 1 = as much
-//                         weight as the whole trace)
+//   spectrum_constraint   centroid | amplitude | off (the option of the CMA engines, same
+//                         names): amplitude adds the field-free-spectrum term
+//   spectrum_weight       its weight (1 = as much weight as the whole trace)
+//   ir_lowpass_weight     weight of the IR low-frequency penalty (0 = off)
+//   variance_smoothing_bins  half-width in energy bins of the variance average (0 = per bin)
 
 #include <memory>
 #include <string>
@@ -98,8 +112,8 @@ struct FullModelSettings {
   double variance_floor = 1e-4;       ///< in [0, 1]: floor = value x max variance
   double support_threshold = 1e-5;    ///< in [0, 1)
   double support_margin_eV = 1.0;     ///< >= 0
-  double spectrum_weight = 0.1;       ///< >= 0
-  std::string spectrum_constraint = "amplitude";  ///< amplitude | centroid | off
+  double spectrum_weight = 0.01;      ///< >= 0 (used with spectrum_constraint = amplitude)
+  std::string spectrum_constraint = "centroid";  ///< centroid | amplitude | off
   double ir_lowpass_weight = 1.0;     ///< >= 0
   int variance_smoothing_bins = 2;    ///< >= 0
 

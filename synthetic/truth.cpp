@@ -73,8 +73,8 @@ bool measurable_train_burst_fwhm_as(const ScanConfig& c, const XuvField& one, do
     if (q * w - ip < lo) continue;
     const double x = q * w;
     if (x <= om.front() || x >= om.back()) continue;
-    const std::size_t j = static_cast<std::size_t>(
-        std::upper_bound(om.begin(), om.end(), x) - om.begin());
+    const std::size_t j =
+        static_cast<std::size_t>(std::upper_bound(om.begin(), om.end(), x) - om.begin());
     const double u = (x - om[j - 1]) / (om[j] - om[j - 1]);
     orders.push_back(q);
     amp.push_back((1.0 - u) * spec[j - 1] + u * spec[j]);

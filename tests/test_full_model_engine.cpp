@@ -125,6 +125,9 @@ TEST_CASE("full-model defaults validate and agree with the option descriptions",
   CHECK(r.support_threshold == Approx(d.support_threshold));
   CHECK(r.support_margin_eV == Approx(d.support_margin_eV));
   CHECK(r.spectrum_weight == Approx(d.spectrum_weight));
+  CHECK(r.spectrum_constraint == d.spectrum_constraint);
+  CHECK(r.ir_lowpass_weight == Approx(d.ir_lowpass_weight));
+  CHECK(r.variance_smoothing_bins == d.variance_smoothing_bins);
   EngineOptions bad;
   bad.extra.emplace_back("ir", "wavelet");
   CHECK_THROWS_WITH(read_full_model_settings(bad), Catch::Contains("ir = 'wavelet'"));
@@ -417,118 +420,19 @@ TEST_CASE("full-model refinement of a 121 x 400 trace: timing", "[fullmodel][slo
   CHECK(cma.G > 1.5 * stalled.G);
 }
 
-#include <cstdlib>
-#include <optional>
-#include "retrieval/preprocess.h"
+#include "retrieval/retrieve.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
-TEST_CASE("explore helium", "[.explore3]") {
-  synthetic::ScanConfig cfg = synthetic::find_preset(std::getenv("FM_PRESET") ? std::getenv("FM_PRESET") : "helium-70as").config;
-  if (std::getenv("FM_NOISEFREE")) cfg.noise.poisson = false;
-  if (std::getenv("FM_COUNTS")) cfg.noise.peak_counts = std::atof(std::getenv("FM_COUNTS"));
-  const auto scan = synthetic::generate_scan(cfg, 11);
-  PreprocessSummary ps;
-  PreprocessOptions po;
-  if (std::getenv("FM_NOBG")) po.signal_free_fraction = 1e-9;
-  const RetrievalProblem P = preprocess(scan.trace, po, &ps);
-  std::printf("ff source %s, truth fwhm %.1f A0 %.4f, p0 %.3f\n", ps.field_free_source.c_str(),
-              *scan.truth.xuv->fwhm_as, *scan.truth.ir->peak_vector_potential_au, P.central_momentum_au);
-  for (auto& w : ps.warnings) std::printf("  warn: %s\n", w.c_str());
-  std::printf("  background %.4g counts (%s), signal-free bins %zu, peak %.1f\n", ps.background_counts, ps.background_source.c_str(), ps.signal_free_bins, ps.peak_counts);
-  auto cmae = make_engine("ptychographic");
-  EngineOptions o0;
-  o0.threads = 2;
-  const Reconstruction c = run_engine(*cmae, P, o0);
-  std::printf("ptycho: fwhm %.1f A0 %.4f G %.4f floor %.4f\n", units::au_to_as(fine_fwhm(c.xuv)), c.ir.peak_vector_potential(), c.trace_error, c.noise_floor_trace_error);
-  const char* combos[][2] = {{"0", "1"}, {"2", "1"}};
-  for (auto& cb : combos) for (int warm = 0; warm < 1; ++warm) {
-    auto e = make_full_model_engine();
-    EngineOptions o;
+TEST_CASE("tmp pipeline", "[.tmp]") {
+  for (int nobg = 0; nobg < 2; ++nobg) {
+    const synthetic::ScanConfig cfg = synthetic::find_preset("helium-70as").config;
+    const auto scan = synthetic::generate_scan(cfg, 11);
+    RetrieveOptions o;
+    o.engine = "auto";
     o.threads = 2;
-    if (warm) { o.initial_xuv = c.xuv; o.initial_ir = c.ir; }
-    o.extra.emplace_back("variance_smoothing_bins", cb[0]);
-    o.extra.emplace_back("ir_lowpass_weight", cb[1]);
-    o.extra.emplace_back("spectrum_constraint", std::getenv("FM_SC") ? std::getenv("FM_SC") : (ps.field_free_measured ? "amplitude" : "centroid"));
-    const char* sw = cb[0];
-    std::printf("vs %s lp %s: ", cb[0], cb[1]);
-    const Reconstruction r = run_engine(*e, P, o);
-    std::string form;
-    for (auto& [k, v] : r.settings) if (k == "ir_form") form = v;
-    std::printf("full sw %s warm %d (%s): fwhm %.1f A0 %.4f G %.4f it %d\n", sw, warm, form.c_str(), units::au_to_as(fine_fwhm(r.xuv)), r.ir.peak_vector_potential(), r.trace_error, r.iterations);
-    if (std::getenv("FM_PRINTA") && warm)
-      for (double tf = -7; tf <= 7.01; tf += 0.5) {
-        GaussianIrPulse tp = cfg.ir.pulse;
-        std::printf("   A(%5.2f) = %8.4f truth %8.4f  ptycho %8.4f\n", tf, r.ir.vector_potential_at(units::fs_to_au(tf)),
-                    gaussian_ir_vector_potential(tp, units::fs_to_au(tf)), c.ir.vector_potential_at(units::fs_to_au(tf)));
-      }
-  }
-}
-
-TEST_CASE("explore broadband", "[.explore]") {
-  const char* env = std::getenv("FM_CASE");
-  const int cs = env ? std::atoi(env) : 0;
-  const double gdd = cs == 1 ? 2000.0 : (cs == 2 ? -2500.0 : 0.0);
-  const double counts = std::getenv("FM_COUNTS") ? std::atof(std::getenv("FM_COUNTS")) : 2000;
-  const bool big = std::getenv("FM_BIG") != nullptr;
-  auto t0 = std::chrono::steady_clock::now();
-  Scenario S = big ? make_scenario(130.0, 70.0, gdd, 50.0, 0.3, 400, 1024, 6.0, 121, counts, 1)
-                   : make_scenario(130.0, 70.0, gdd, 44.0, 0.5, 256, 512, 6.0, 61, counts, 1);
-  auto t1 = std::chrono::steady_clock::now();
-  std::printf("scenario %.2f s, p0 %.3f\n", std::chrono::duration<double>(t1 - t0).count(),
-              S.problem.central_momentum_au);
-  const double fw_true = fine_fwhm(S.xuv);
-  const double A_true = S.ir.peak_vector_potential();
-  std::printf("truth fwhm %.1f as, A0 %.4f\n", units::au_to_as(fw_true), A_true);
-  const int threads = std::getenv("FM_THREADS") ? std::atoi(std::getenv("FM_THREADS")) : 1;
-  std::optional<Reconstruction> warm;
-  (void)fw_true;
-  for (int cma0 = 0; cma0 < 3; ++cma0) {
-    const int cma = std::getenv("FM_WARM") ? (cma0 == 0 ? 1 : 0) : cma0;
-    if (!std::getenv("FM_WARM") && cma0 == 2) break;
-    auto e = cma ? make_cma_least_squares_engine() : make_full_model_engine();
-    EngineOptions o;
-    if (warm && !cma) {
-      o.initial_xuv = warm->xuv;
-      o.initial_ir = warm->ir;
-    }
-    o.max_iterations = 200;
-    o.threads = threads;
-    o.noise_floor_factor = 0;
-    if (const char* sup = std::getenv("FM_SUPPORT")) o.extra.emplace_back("support_threshold", sup);
-    if (const char* ir = std::getenv("FM_IR")) o.extra.emplace_back("ir", ir);
-    if (const char* sw = std::getenv("FM_SPECW")) o.extra.emplace_back("spectrum_weight", sw);
-    if (const char* lp = std::getenv("FM_LP")) o.extra.emplace_back("ir_lowpass_weight", lp);
-    if (const char* mi = std::getenv("FM_MAXIT")) o.max_iterations = std::atoi(mi);
-    if (std::getenv("FM_ONLYFULL") && cma && !std::getenv("FM_WARM")) continue;
-    auto a = std::chrono::steady_clock::now();
-    Reconstruction r = run_engine(*e, S.problem, o);
-    if (cma) warm = r;
-    auto b = std::chrono::steady_clock::now();
-    std::printf("%s: %.2f s, G %.4g (noise %.4g), fwhm %.1f as, A0 %.4f, %s\n", r.engine.c_str(),
-                std::chrono::duration<double>(b - a).count(), r.trace_error,
-                r.noise_floor_trace_error, units::au_to_as(fine_fwhm(r.xuv)),
-                r.ir.peak_vector_potential(), r.message.c_str());
-    for (auto& [k, v] : r.settings)
-      if (k.rfind("lbfgs", 0) == 0 || k.rfind("cost", 0) == 0 || k.rfind("weighted", 0) == 0 ||
-          k.rfind("ir_", 0) == 0 || k == "momentum_blocks" || k == "block_replans" || k == "initial_trace_error")
-        std::printf("   %s = %s\n", k.c_str(), v.c_str());
-    {
-      double off = 0, rms = 0;
-      int cnt = 0;
-      for (double tf = -5; tf <= 5.01; tf += 0.05) {
-        const double d = r.ir.vector_potential_at(units::fs_to_au(tf)) -
-                         S.ir.vector_potential_at(units::fs_to_au(tf));
-        off += d;
-        rms += d * d;
-        ++cnt;
-      }
-      std::printf("   A - truth over +-5 fs: mean %.4f rms %.4f\n", off / cnt, std::sqrt(rms / cnt));
-    }
-    if (std::getenv("FM_PRINTA"))
-      for (double tf = -7; tf <= 7.01; tf += 0.25)
-        std::printf("   A(%5.2f fs) = %8.4f truth %8.4f\n", tf, r.ir.vector_potential_at(units::fs_to_au(tf)),
-                    S.ir.vector_potential_at(units::fs_to_au(tf)));
-    for (auto& h : r.history)
-      if (h.iteration % 10 == 1) std::printf("   it %d G %.5g t %.2f\n", h.iteration, h.trace_error, h.seconds);
+    if (nobg) o.preprocess.signal_free_fraction = 1e-9;
+    const RetrieveOutput out = retrieve(scan.trace, o);
+    std::printf("nobg %d: %s FWHM %.1f A0 %.4f (truth %.1f %.4f)\n", nobg, out.result.engine.c_str(), *out.result.xuv->fwhm_as,
+                *out.result.ir->peak_vector_potential_au, *scan.truth.xuv->fwhm_as, *scan.truth.ir->peak_vector_potential_au);
   }
 }

@@ -198,7 +198,8 @@ TEST_CASE("classify gives the truth class of isolated, satellite, train and XUV-
     const Cli c = run_cli("classify " + q(scan) + " --out " + q(out) + " -q");
     INFO(preset << "\n" << c.out << c.err);
     REQUIRE(c.status == 0);
-    CHECK_THAT(c.out, Catch::Contains(std::string("class: ") + to_string(truth.verdict->pulse_class)));
+    CHECK_THAT(c.out,
+               Catch::Contains(std::string("class: ") + to_string(truth.verdict->pulse_class)));
     CHECK_THAT(c.out, Catch::Contains("spectrum.fringe_contrast_half_period = "));
     const AnalysisResult r = read_result_json((out / "result.json").string());
     CHECK(r.analysis == "classify");
@@ -230,7 +231,8 @@ TEST_CASE("rabbitt refuses a streaking scan; bad options are usage errors", "[cl
   CHECK_THAT(c.err, Catch::Contains("neon-150as.json"));
   CHECK_FALSE(fs::exists(out / "result.json"));  // never a half-finished result
 
-  const Cli u = run_cli("rabbitt " + q(scan) + " --out " + q(out) + " --atomic-correction maybe -q");
+  const Cli u =
+      run_cli("rabbitt " + q(scan) + " --out " + q(out) + " --atomic-correction maybe -q");
   CHECK(u.status == 2);
   CHECK_THAT(u.err, Catch::Contains("--atomic-correction"));
   const Cli w = run_cli("classify " + q(scan) + " --out " + q(out) + " --isolated-max 0.9 -q");

@@ -28,8 +28,8 @@
 
 #include "retrieval/preprocess.h"
 #include "retrieval/pulse_metrics.h"
-#include "retrieval/result.h"
 #include "retrieval/rabbitt.h"
+#include "retrieval/result.h"
 #include "retrieval/retrieve.h"
 #include "retrieval/train_burst.h"
 #include "retrieval/units.h"
@@ -146,9 +146,8 @@ EngineEstimate engine_estimate(const Trace& trace, double w, int q_lo, int q_hi,
   double sa = 0, sa2 = 0, sb = 0, sb2 = 0;
   for (int k = 0; k < replicas; ++k) {
     PreprocessSummary ps;
-    const RetrievalProblem pr =
-        preprocess(poisson_resample(trace, 1000 + static_cast<unsigned long long>(k)),
-                   o.preprocess, &ps);
+    const RetrievalProblem pr = preprocess(
+        poisson_resample(trace, 1000 + static_cast<unsigned long long>(k)), o.preprocess, &ps);
     EngineOptions eo;
     eo.seed = 100 + static_cast<unsigned long long>(k);
     eo.max_iterations = 100;

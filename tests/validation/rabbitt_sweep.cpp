@@ -45,8 +45,7 @@ Trace poisson(const synthetic::SyntheticScan& s, double peak, unsigned long long
   return t;
 }
 
-Trace subset(const Trace& t, const std::vector<std::size_t>& rows, double e_lo_eV,
-             double e_hi_eV) {
+Trace subset(const Trace& t, const std::vector<std::size_t>& rows, double e_lo_eV, double e_hi_eV) {
   Trace o;
   o.meta = t.meta;
   std::vector<std::size_t> cols;
@@ -76,8 +75,8 @@ struct Stats {
   double rms_error = 0;  // rms (a - truth)
   double rms_pull = 0;   // rms (a - truth) / sigma
   int within3 = 0, seeds = 0, failed = 0;
-  int sidebands = 0;     // in the first seed
-  double chi2 = 0;       // mean sideband reduced chi^2 (first seed)
+  int sidebands = 0;                  // in the first seed
+  double chi2 = 0;                    // mean sideband reduced chi^2 (first seed)
   double burst = 0, burst_truth = 0;  // mean burst FWHM and truth (as)
 };
 
@@ -156,8 +155,8 @@ std::string table(const std::string& what, const std::vector<Stats>& rows, bool 
   md << "| " << what
      << " | truth (as/eV) | mean (as/eV) | mean - truth | rms error | scatter | mean sigma | "
         "rms pull | within 3 sigma | sidebands | mean chi2_red |"
-     << (burst ? " burst FWHM (as) | truth (as) |" : "") << "\n|---|---|---|---|---|---|---|---|---|---|---|"
-     << (burst ? "---|---|" : "") << "\n";
+     << (burst ? " burst FWHM (as) | truth (as) |" : "")
+     << "\n|---|---|---|---|---|---|---|---|---|---|---|" << (burst ? "---|---|" : "") << "\n";
   for (const Stats& s : rows) {
     md << "| " << s.label << " | " << fmt("%.2f", s.truth) << " | ";
     if (s.seeds == 0) {
@@ -234,10 +233,14 @@ bool near_threshold(double before, double after) {
 
 const char* short_class(PulseClass c) {
   switch (c) {
-    case PulseClass::kIsolated: return "isolated";
-    case PulseClass::kIsolatedWithSatellites: return "satellites";
-    case PulseClass::kTrain: return "train";
-    default: return "undetermined";
+    case PulseClass::kIsolated:
+      return "isolated";
+    case PulseClass::kIsolatedWithSatellites:
+      return "satellites";
+    case PulseClass::kTrain:
+      return "train";
+    default:
+      return "undetermined";
   }
 }
 
@@ -272,9 +275,9 @@ int main(int argc, char** argv) {
     synthetic::ScanConfig c = preset;
     c.xuv.train.burst.gdd_as2 = gdd;
     const synthetic::SyntheticScan s = synthetic::generate_scan(c, 1);
-    sign.push_back(attochirp_stats(fmt("%+.0f as^2", gdd), truth_of(s), truth_of(s), seeds,
-                                   [&](int k) { return poisson(s, 2000, 10 + k); },
-                                   *s.truth.rabbitt->train_burst_fwhm_as));
+    sign.push_back(attochirp_stats(
+        fmt("%+.0f as^2", gdd), truth_of(s), truth_of(s), seeds,
+        [&](int k) { return poisson(s, 2000, 10 + k); }, *s.truth.rabbitt->train_burst_fwhm_as));
     std::fprintf(stderr, "sign %s done\n", sign.back().label.c_str());
   }
   md << "### Attochirp of both signs (argon-rabbitt geometry, 2000 peak counts, 1e11 W/cm^2)\n\n"
@@ -317,8 +320,8 @@ int main(int argc, char** argv) {
   }
   md << "### Peak counts per bin (argon-rabbitt, 1e11 W/cm^2)\n\n"
      << table("peak counts", counts) << "\n";
-  error_figure(counts, "attochirp error vs counts (argon-rabbitt)",
-               "log10(peak counts per bin)", figs + "/rabbitt_counts.png");
+  error_figure(counts, "attochirp error vs counts (argon-rabbitt)", "log10(peak counts per bin)",
+               figs + "/rabbitt_counts.png");
 
   // 3. IR intensity: the perturbative two-path picture (one IR photon per path) breaks when the
   // IR coupling p A0 / omega approaches 1.
@@ -330,15 +333,15 @@ int main(int argc, char** argv) {
     const synthetic::SyntheticScan s = synthetic::generate_scan(c, 1);
     const double w = units::wavelength_nm_to_omega_au(800.0);
     const double a0 = units::intensity_to_peak_field_au(I) / w;  // A0 = E0 / omega
-    const double p0 = std::sqrt(2 * units::eV_to_au(19.3));  // photoelectron centroid ~19 eV
+    const double p0 = std::sqrt(2 * units::eV_to_au(19.3));      // photoelectron centroid ~19 eV
     Stats st = attochirp_stats(fmt("%.0e W/cm^2", I) + fmt(" (p0 A0/omega %.2f)", p0 * a0 / w),
                                std::log10(I), truth_of(s), seeds,
                                [&](int k) { return poisson(s, 2000, 200 + k); });
     ir.push_back(st);
     std::fprintf(stderr, "ir %s done\n", ir.back().label.c_str());
   }
-  md << "### IR intensity (argon-rabbitt, 2000 peak counts)\n\n" << table("IR peak intensity", ir)
-     << "\n";
+  md << "### IR intensity (argon-rabbitt, 2000 peak counts)\n\n"
+     << table("IR peak intensity", ir) << "\n";
   {
     // Log scale: the error spans three decades once the two-path picture fails.
     LinePlot lp;
@@ -378,11 +381,10 @@ int main(int argc, char** argv) {
       // H13-H31 with SB14-SB32 (the axis ends below H33).
       const int qa = 23 - 2 * half, qb = std::min(23 + 2 * half, 31);
       const double lo = qa * w - ip - 0.5 * w, hi = qb * w - ip + (half == 5 ? 1.0 : 0.5) * w;
-      Stats st = attochirp_stats("H" + std::to_string(qa) + "-H" + std::to_string(qb) +
-                                     (half == 5 ? " (whole axis)" : ""),
-                                 2 * half, truth, seeds, [&](int k) {
-                                   return subset(poisson(base, 2000, 300 + k), rows, lo, hi);
-                                 });
+      Stats st = attochirp_stats(
+          "H" + std::to_string(qa) + "-H" + std::to_string(qb) + (half == 5 ? " (whole axis)" : ""),
+          2 * half, truth, seeds,
+          [&](int k) { return subset(poisson(base, 2000, 300 + k), rows, lo, hi); });
       range.push_back(st);
       std::fprintf(stderr, "range %s done\n", st.label.c_str());
     }
@@ -402,11 +404,10 @@ int main(int argc, char** argv) {
       std::vector<std::size_t> rows;
       for (std::size_t i = 0; i < s.trace.num_delays(); i += static_cast<std::size_t>(every))
         rows.push_back(i);
-      Stats st = attochirp_stats(fmt("%.2f fs", 0.05 * every) + " (" +
-                                     std::to_string(rows.size()) + " delays)",
-                                 0.05 * every, truth_of(s), seeds, [&](int k) {
-                                   return subset(poisson(s, 2000, 400 + k), rows, 0, 1e9);
-                                 });
+      Stats st = attochirp_stats(
+          fmt("%.2f fs", 0.05 * every) + " (" + std::to_string(rows.size()) + " delays)",
+          0.05 * every, truth_of(s), seeds,
+          [&](int k) { return subset(poisson(s, 2000, 400 + k), rows, 0, 1e9); });
       step.push_back(st);
       std::fprintf(stderr, "step %s done\n", st.label.c_str());
     }
@@ -426,14 +427,13 @@ int main(int argc, char** argv) {
         synthetic::ScanConfig c = ref;
         c.xuv.gaussian.gdd_as2 = gdd;
         c.noise.peak_counts = n;
-        set.push_back({"isolated, GDD " + fmt("%.0f", gdd) + " as^2, " + fmt("%.0f", n) +
-                           " counts",
-                       c, 1});
+        set.push_back(
+            {"isolated, GDD " + fmt("%.0f", gdd) + " as^2, " + fmt("%.0f", n) + " counts", c, 1});
       }
       const std::vector<std::pair<double, double>> sats =
           quick ? std::vector<std::pair<double, double>>{{0.15, 0.08}, {0.4, 0.4}}
                 : std::vector<std::pair<double, double>>{{0.02, 0.02}, {0.05, 0.0}, {0.15, 0.08},
-                                                         {0.25, 0.25}, {0.3, 0.0}, {0.4, 0.1},
+                                                         {0.25, 0.25}, {0.3, 0.0},  {0.4, 0.1},
                                                          {0.5, 0.5}};
       for (const auto& [b, a] : sats) {
         synthetic::ScanConfig c = synthetic::find_preset("neon-satellites").config;
@@ -450,9 +450,8 @@ int main(int argc, char** argv) {
         c.xuv.train.burst = ref.xuv.gaussian;
         c.xuv.train.train_fwhm_fs = len;
         c.noise.peak_counts = n;
-        set.push_back({"train " + fmt("%.0f", len) + " fs (streaking), " + fmt("%.0f", n) +
-                           " counts",
-                       c, 3});
+        set.push_back(
+            {"train " + fmt("%.0f", len) + " fs (streaking), " + fmt("%.0f", n) + " counts", c, 3});
       }
     }
     for (double len : quick ? std::vector<double>{8.0} : std::vector<double>{4.0, 8.0, 15.0}) {
@@ -481,8 +480,8 @@ int main(int argc, char** argv) {
     const double ratio = s.truth.verdict->satellite_intensity_ratio.value_or(0);
     const bool near = l.near;
     const int ti = static_cast<int>(std::find(classes.begin(), classes.end(), t) - classes.begin());
-    const int pi =
-        static_cast<int>(std::find(classes.begin(), classes.end(), v.pulse_class) - classes.begin());
+    const int pi = static_cast<int>(std::find(classes.begin(), classes.end(), v.pulse_class) -
+                                    classes.begin());
     ++confusion[{ti, pi}];
     if (!near) {
       ++confusion_far[{ti, pi}];
@@ -503,7 +502,8 @@ int main(int argc, char** argv) {
   }
   auto matrix = [&](const std::map<std::pair<int, int>, int>& m) {
     std::ostringstream o;
-    o << "| truth \\ predicted | isolated | satellites | train | undetermined |\n|---|---|---|---|---|\n";
+    o << "| truth \\ predicted | isolated | satellites | train | undetermined "
+         "|\n|---|---|---|---|---|\n";
     for (int i = 0; i < 3; ++i) {
       o << "| " << short_class(classes[static_cast<std::size_t>(i)]) << " |";
       for (int j = 0; j < 4; ++j) {
