@@ -1,6 +1,7 @@
 # streakwright: set-up, build, demo and tests on a fresh Debian 12 machine.
 #   make demo   install missing Debian packages, build, simulate a preset scan and retrieve it
 #   make test   install missing Debian packages, build, run the whole test suite
+#   make demo-batch  simulate a small archive and reprocess it with `batch`
 #   make bench  build and run the Google Benchmark programs (figures go in docs/performance.md)
 
 BUILD   ?= build
@@ -14,7 +15,7 @@ DEPS := cmake g++ make pkg-config libeigen3-dev libfftw3-dev libceres-dev \
         libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev \
         catch2 libcli11-dev nlohmann-json3-dev libhdf5-dev libbenchmark-dev
 
-.PHONY: deps configure build test demo bench clean format
+.PHONY: deps configure build test demo demo-batch bench clean format
 
 deps:
 	@missing=""; for p in $(DEPS); do dpkg -s $$p >/dev/null 2>&1 || missing="$$missing $$p"; done; \
@@ -36,6 +37,14 @@ test: build
 demo: build
 	./$(BUILD)/cli/streakwright simulate --preset $(PRESET) --out $(DEMO) --seed 7
 	./$(BUILD)/cli/streakwright retrieve $(DEMO)/$(PRESET).json --out $(DEMO)/retrieval --bootstrap 4
+
+# A small archive of simulated scans (nested folders, a duplicated file name) reprocessed in batch.
+demo-batch: build
+	./$(BUILD)/cli/streakwright simulate --preset neon-150as --out $(DEMO)/archive/day1 --name scan_001 --seed 1 --quiet
+	./$(BUILD)/cli/streakwright simulate --preset neon-chirped-pos --out $(DEMO)/archive/day1 --name scan_002 --seed 2 --quiet
+	./$(BUILD)/cli/streakwright simulate --preset neon-satellites --out $(DEMO)/archive/day2 --name scan_001 --seed 3 --quiet
+	./$(BUILD)/cli/streakwright simulate --preset argon-rabbitt --out $(DEMO)/archive/day2 --name scan_002 --seed 4 --quiet
+	./$(BUILD)/cli/streakwright batch $(DEMO)/archive --out $(DEMO)/reprocessed --jobs 2 --bootstrap 2
 
 bench: deps
 	cmake -S . -B $(BUILD) -DCMAKE_BUILD_TYPE=Release -DSTREAKWRIGHT_BUILD_BENCHMARKS=ON

@@ -424,15 +424,18 @@ TEST_CASE("full-model refinement of a 121 x 400 trace: timing", "[fullmodel][slo
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 TEST_CASE("tmp pipeline", "[.tmp]") {
-  for (int nobg = 0; nobg < 2; ++nobg) {
-    const synthetic::ScanConfig cfg = synthetic::find_preset("helium-70as").config;
-    const auto scan = synthetic::generate_scan(cfg, 11);
-    RetrieveOptions o;
-    o.engine = "auto";
-    o.threads = 2;
-    if (nobg) o.preprocess.signal_free_fraction = 1e-9;
-    const RetrieveOutput out = retrieve(scan.trace, o);
-    std::printf("nobg %d: %s FWHM %.1f A0 %.4f (truth %.1f %.4f)\n", nobg, out.result.engine.c_str(), *out.result.xuv->fwhm_as,
-                *out.result.ir->peak_vector_potential_au, *scan.truth.xuv->fwhm_as, *scan.truth.ir->peak_vector_potential_au);
+  const synthetic::ScanConfig cfg = synthetic::find_preset("helium-70as").config;
+  const auto scan = synthetic::generate_scan(cfg, 11);
+  RetrieveOptions o;
+  o.engine = "auto";
+  o.threads = 2;
+  const RetrieveOutput out = retrieve(scan.trace, o);
+  const IrField& a = out.chain[0].ir;
+  const IrField& b = out.chain[1].ir;
+  std::printf("ptycho window %.2f..%.2f fs, full %.2f..%.2f fs\n", units::au_to_fs(a.t0()), units::au_to_fs(a.time(a.size()-1)), units::au_to_fs(b.t0()), units::au_to_fs(b.time(b.size()-1)));
+  for (double tf = -8; tf <= 8.01; tf += 0.25) {
+    const double t = units::fs_to_au(tf);
+    std::printf("A(%5.2f) ptycho %8.4f full %8.4f truth %8.4f\n", tf, a.vector_potential_at(t), b.vector_potential_at(t), gaussian_ir_vector_potential(cfg.ir.pulse, t));
   }
+  for (auto& [k, v] : out.chain[1].settings) std::printf("  %s = %s\n", k.c_str(), v.c_str());
 }
