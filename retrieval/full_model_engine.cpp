@@ -229,12 +229,12 @@ void check_problem(const RetrievalProblem& P, const std::string& who) {
   else if (P.intensity.rows() != nd || P.intensity.cols() != ne)
     s << who << ": RetrievalProblem.intensity is " << P.intensity.rows() << "x"
       << P.intensity.cols() << ": expected delays x energies = " << nd << "x" << ne;
-  else if (P.variance.rows() != nd || P.variance.cols() != ne)
+  else if (P.variance.size() != 0 && (P.variance.rows() != nd || P.variance.cols() != ne))
     s << who << ": RetrievalProblem.variance is " << P.variance.rows() << "x" << P.variance.cols()
       << ": expected " << nd << "x" << ne;
   else if (!P.intensity.allFinite() || !P.variance.allFinite())
     s << who << ": RetrievalProblem.intensity/variance contain non-finite values";
-  else if (!(P.variance.maxCoeff() > 0))
+  else if (P.variance.size() != 0 && !(P.variance.maxCoeff() > 0))
     s << who << ": RetrievalProblem.variance has no positive entry";
   else if (!(P.intensity.maxCoeff() > 0))
     s << who << ": RetrievalProblem.intensity has no positive entry (no signal)";
@@ -296,8 +296,13 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
   // Weights from (optionally locally averaged) variances: a weight computed from the bin's own
   // counts is correlated with its fluctuation, which biases least squares towards low counts
   // (Neyman's chi^2); averaging over neighbours removes most of that correlation.
-  Eigen::MatrixXd var = P.variance;
-  if (s.variance_smoothing_bins > 0) {
+  // No variances (noise-free synthetic data): uniform weights, C ~ squared error / max^2.
+  Eigen::MatrixXd var =
+      P.variance.size() != 0
+          ? P.variance
+          : Eigen::MatrixXd::Constant(P.intensity.rows(), P.intensity.cols(),
+                                      P.intensity.maxCoeff() * P.intensity.maxCoeff());
+  if (s.variance_smoothing_bins > 0 && P.variance.size() != 0) {
     const auto h = static_cast<Eigen::Index>(s.variance_smoothing_bins);
     const Eigen::Index nd = var.rows(), ne = var.cols();
     Eigen::MatrixXd sm(nd, ne);
@@ -369,8 +374,7 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
   }
   ir_scale_.assign(ir_->num_params(), 1.0);
   // Gaussian low pass of standard deviation one IR period, normalised to unit DC gain.
-  const double omega =
-      P.ir_omega_au > 0 ? P.ir_omega_au : units::wavelength_nm_to_omega_au(800.0);
+  const double omega = P.ir_omega_au > 0 ? P.ir_omega_au : units::wavelength_nm_to_omega_au(800.0);
   const double sigma = units::period_au(omega), dt = ir_->sampling().dt_au;
   const auto half = static_cast<std::size_t>(std::ceil(4.0 * sigma / dt));
   lowpass_kernel_.resize(half + 1);
@@ -381,6 +385,11 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
     norm += (m == 0 ? 1.0 : 2.0) * lowpass_kernel_[m];
   }
   for (double& k : lowpass_kernel_) k /= norm;
+  const IrSampling& smp = ir_->sampling();
+  probed_.resize(smp.size);
+  for (std::size_t r = 0; r < smp.size; ++r)
+    probed_[r] = smp.time(r) >= P.delay_au.front() && smp.time(r) <= P.delay_au.back();
+  edge_ridge_ = ir_->kind() == "spline";
 }
 
 std::vector<double> FullModelObjective::encode(const std::vector<cdouble>& spec,
@@ -466,6 +475,16 @@ void FullModelObjective::lowpass(const std::vector<double>& a, std::vector<doubl
   }
 }
 
+std::vector<double> FullModelObjective::without_low_frequencies(
+    const std::vector<double>& theta) const {
+  std::vector<double> A, LA;
+  ir_->samples(theta.data(), &A);
+  lowpass(A, &LA);
+  for (std::size_t r = 0; r < A.size(); ++r) A[r] -= LA[r];
+  const IrSampling& s = ir_->sampling();
+  return ir_->fit(IrField(s.t0_au, s.dt_au, std::move(A)));
+}
+
 bool FullModelObjective::spectrum_term() const {
   return settings_.spectrum_constraint == "amplitude" && settings_.spectrum_weight > 0 &&
          spectrum_.size() == ne_;
@@ -508,12 +527,25 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
   }
   const double mu = P.c2 > 0 ? -P.c1 / (2.0 * P.c2) : 0.0;
   double C = (P.c0 + mu * (P.c1 + mu * P.c2)) * inv_elements_;
-  // Low-frequency penalty of the IR: kappa sum_i (L A)_i^2, L a Gaussian low pass.
-  std::vector<double> LA;
+  // IR penalty: kappa [sum_{i probed} (L A)_i^2 + edge x sum_{i not probed} A_i^2], L a Gaussian
+  // low pass, "probed" = inside the delay range, edge = 1 for the free form only.
+  std::vector<double> LA, A_edge;
   if (lowpass_weight_ > 0) {
-    lowpass(irf.vector_potential(), &LA);
+    const std::vector<double>& A = irf.vector_potential();
+    lowpass(A, &LA);
     double s2 = 0;
-    for (double v : LA) s2 += v * v;
+    for (std::size_t r = 0; r < LA.size(); ++r) {
+      if (!probed_[r]) LA[r] = 0.0;
+      s2 += LA[r] * LA[r];
+    }
+    if (edge_ridge_) {
+      A_edge.assign(A.size(), 0.0);
+      for (std::size_t r = 0; r < A.size(); ++r)
+        if (!probed_[r]) {
+          A_edge[r] = A[r];
+          s2 += A[r] * A[r];
+        }
+    }
     C += lowpass_weight_ * s2;
   }
   if (grad) {
@@ -533,8 +565,10 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
       Ab[r] = (mu * mu * P.A_bar2[r] + mu * P.A_bar1[r]) * inv_elements_;
     if (lowpass_weight_ > 0) {
       std::vector<double> LLA;
-      lowpass(LA, &LLA);  // L is symmetric: L^T = L
+      lowpass(LA, &LLA);  // L is symmetric: L^T = L (LA already masked)
       for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] += 2.0 * lowpass_weight_ * LLA[r];
+      if (edge_ridge_)
+        for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] += 2.0 * lowpass_weight_ * A_edge[r];
     }
     std::vector<double> tb(ir_->num_params());
     ir_->pullback(th.data(), Ab, tb.data());
@@ -880,6 +914,10 @@ void LeastSquaresEngine::prepare(const RetrievalProblem& P, const EngineOptions&
   }
   objective_ =
       std::make_unique<FullModelObjective>(P, settings_, model_, std::move(param), options.threads);
+  // A warm-start IR from a CMA engine carries an arbitrary low-frequency offset (the gate side of
+  // the frequency-shift ambiguity); start the free form without it.
+  if (ir_form_ == "spline" && settings_.ir_lowpass_weight > 0)
+    theta = objective_->without_low_frequencies(theta);
   x_ = objective_->encode(spec, theta);
   best_x_ = x_;
   initial_G_ = best_G_ = last_G_ = current_G(x_);
@@ -1021,7 +1059,13 @@ Reconstruction LeastSquaresEngine::finalize() {
   S.emplace_back("weighted_scale", num(wmu));
   S.emplace_back("initial_trace_error", num(initial_G_));
   S.emplace_back("initial_weighted_cost_per_element", num(initial_cost_));
-  S.emplace_back("noise_model", "poisson (weights 1/variance)");
+  S.emplace_back("noise_model", problem_.variance.size() != 0
+                                    ? "poisson (weights 1/variance, variance averaged over +-" +
+                                          std::to_string(settings_.variance_smoothing_bins) +
+                                          " energy bins and +-1 delay)"
+                                    : "none (no variances: uniform weights)");
+  S.emplace_back("spectrum_constraint", settings_.spectrum_constraint);
+  S.emplace_back("ir_lowpass_weight", num(settings_.ir_lowpass_weight));
   for (const auto& [k, v] : options_.extra) S.emplace_back("extra." + k, v);
   return r;
 }

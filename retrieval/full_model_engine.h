@@ -30,15 +30,21 @@
 //    default) takes the spline when refining a warm start (EngineOptions::initial_ir given:
 //    the field is already close and may be non-Gaussian) and the parametric form from scratch
 //    (six parameters keep the first, far-from-solution steps well posed).
-//    Low-frequency penalty (ir_lowpass_weight): kappa sum_i (L A)_i^2 with L a Gaussian low pass
-//    of standard deviation one IR period (transfer exp(-W^2 T^2 / 2): 1 at W = 0, 3e-9 at the
-//    carrier, 7e-3 at half of it) and kappa = ir_lowpass_weight / (N_samples max|A_initial|^2).
-//    A laser pulse of more than ~1.5 cycles has no content there, so the penalty does not bias
-//    it; it removes a near-degeneracy of the free form: an offset A -> A + c is compensated
-//    almost exactly by stretching the XUV spectrum (the gate of momentum p with A + c is the
-//    gate of p + c with A, up to an energy shift p c + c^2/2), and without the penalty L-BFGS
-//    drifts along that valley while fitting noise (+5..7 % in peak A in tests). In the CMA the
-//    same offset is the gate side of the frequency-shift ambiguity of DESIGN.md.
+//    IR penalty (ir_lowpass_weight): kappa [sum_{t_i in delay range} (L A)_i^2 + E], L a
+//    Gaussian low pass of standard deviation one IR period (transfer exp(-W^2 T^2 / 2): 1 at
+//    W = 0, 3e-9 at the carrier, 7e-3 at half of it), kappa = ir_lowpass_weight /
+//    (N_samples max|A_initial|^2). A laser pulse of more than ~1.5 cycles has no content there,
+//    so the penalty does not bias it; it removes a near-degeneracy of the free form: an offset
+//    A -> A + c is compensated almost exactly by stretching the XUV spectrum (the gate of
+//    momentum p with A + c is the gate of p + c with A, up to an energy shift p c + c^2/2), and
+//    without the penalty L-BFGS drifts along that valley while fitting noise (+5..7 % in peak A
+//    in tests; a CMA warm start brings an offset of its own). Default weight 100: on a
+//    direct-quadrature helium scan (500 counts) the offset falls from 0.011 (weight 1) to 2e-4
+//    with G unchanged; at 1000 G starts to rise. For the spline, E = sum_{t_i outside the delay
+//    range} A_i^2: where no delay probes the field directly (only XUV tails and I1's tail integral
+//    see it) A is pulled to 0, so that an offset inside cannot be balanced by a lobe outside and
+//    the edges stay tame. In the CMA the same offset is the gate side of the frequency-shift
+//    ambiguity of DESIGN.md.
 //
 // Cost (Poisson-aware weighted least squares, model in |a|^2 units: RetrievalProblem::intensity
 // is already divided by the energy Jacobian p, so the model carries no p either):
@@ -114,8 +120,8 @@ struct FullModelSettings {
   double support_margin_eV = 1.0;     ///< >= 0
   double spectrum_weight = 0.01;      ///< >= 0 (used with spectrum_constraint = amplitude)
   std::string spectrum_constraint = "centroid";  ///< centroid | amplitude | off
-  double ir_lowpass_weight = 1.0;     ///< >= 0
-  int variance_smoothing_bins = 2;    ///< >= 0
+  double ir_lowpass_weight = 100.0;              ///< >= 0
+  int variance_smoothing_bins = 2;               ///< >= 0
 
   std::string validate() const;  ///< "" when valid; else names field, value, constraint
 };
@@ -150,6 +156,8 @@ class FullModelObjective {
   /// |a|^2 (the model, no scale) and the weighted optimal scale mu at x.
   Eigen::MatrixXd model(const double* x, double* mu) const;
 
+  /// IR parameters whose field is that of theta minus its low-pass part (the penalty's L).
+  std::vector<double> without_low_frequencies(const std::vector<double>& theta) const;
   /// Momentum blocks from the IR of x (kFull); no-op for the CMA.
   void replan(const double* x);
   bool plan_covers(const double* x, double slack) const;
@@ -186,8 +194,10 @@ class FullModelObjective {
   std::vector<double> bin_scale_;  // per support bin, >= 1
   std::vector<double> ir_scale_;
   double inv_elements_ = 1.0;
-  std::vector<double> lowpass_kernel_;                         // one side, unit DC gain
-  double lowpass_weight_ = 0.0;                                // kappa (set by encode)
+  std::vector<double> lowpass_kernel_;  // one side, unit DC gain
+  double lowpass_weight_ = 0.0;         // kappa (set by encode)
+  std::vector<char> probed_;            // IR sample inside the delay range
+  bool edge_ridge_ = false;             // free form: also penalise A outside the delay range
   mutable long long evaluations_ = 0;
 };
 
