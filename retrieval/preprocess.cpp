@@ -136,9 +136,18 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
     s.background_source = "sidecar";
   } else {
     const double thr = opt.signal_free_fraction * mean_spec.maxCoeff();
+    // The signal region runs from the first to the last bin above the threshold; its wings
+    // (real signal below the threshold) are excluded by widening it by half its width on each
+    // side. Only bins outside count as signal-free, so neither the wings of a broadband
+    // spectrum nor the gaps of a harmonic comb are taken for background.
+    Eigen::Index first = 0, last = ne - 1;
+    while (first < ne && mean_spec(first) < thr) ++first;
+    while (last > first && mean_spec(last) < thr) --last;
+    const Eigen::Index pad = (last - first + 1) / 2;
+    const Eigen::Index lo_edge = first - pad, hi_edge = last + pad;
     double acc = 0;
     for (Eigen::Index j = 0; j < ne; ++j)
-      if (mean_spec(j) < thr) {
+      if ((j < lo_edge || j > hi_edge) && mean_spec(j) < thr) {
         acc += mean_spec(j);
         ++s.signal_free_bins;
       }

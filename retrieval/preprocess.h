@@ -3,9 +3,11 @@
 // practitioner would otherwise do by hand. Each step is recorded (PreprocessSummary) and
 // echoed into result.json under "preprocess".
 //
-//   1. background: the sidecar's value, or an estimate from signal-free energy bins
-//      (bins whose delay-averaged signal is below `signal_free_fraction` of the maximum; mean of
-//      their counts, which is unbiased for Poisson counts, unlike the median);
+//   1. background: the sidecar's value, or an estimate from signal-free energy bins (bins
+//      outside the signal region -- first to last bin whose delay-averaged signal exceeds
+//      `signal_free_fraction` of the maximum, widened by half its width on each side for the
+//      wings -- and below that threshold); the mean of their counts, which is unbiased for
+//      Poisson counts, unlike the median;
 //   2. isolated hot pixels (optional, no smoothing): a pixel above the median of its 8
 //      neighbours by more than `hot_pixel_sigma` Poisson standard deviations AND more than
 //      `hot_pixel_ratio` times that median is replaced by the median;
