@@ -3,6 +3,7 @@
 #include <chrono>
 #include <sstream>
 
+#include "cli/progress.h"
 #include "cli/provenance.h"
 #include "io/retrieval_outputs.h"
 #include "io/trace_reader.h"
@@ -83,6 +84,15 @@ ScanOutcome run_scan(const ScanJob& job) {
     o.exit_code = 1;
   }
   o.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  return o;
+}
+
+ScanOutcome run_scan_or_throw(ScanJob job) {
+  Progress progress(job.quiet);
+  job.progress = [&](const std::string& stage, const std::string& m) { progress.update(stage, m); };
+  ScanOutcome o = run_scan(job);
+  progress.done();
+  if (!o.ok) throw Error(o.error_kind, o.message);
   return o;
 }
 

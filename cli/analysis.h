@@ -80,6 +80,10 @@ struct ScanOutcome {
 /// Reads the scan, applies overrides, runs the analysis, writes out_dir (result.json last).
 ScanOutcome run_scan(const ScanJob& job);
 
+/// run_scan for the single-scan subcommands: progress on stderr unless job.quiet, and a failure
+/// thrown as sw::Error of its kind (so guarded() prints it and exits with its code).
+ScanOutcome run_scan_or_throw(ScanJob job);
+
 /// Applies overrides to a loaded trace's metadata.
 void apply_overrides(Trace& trace, const ScanOverrides& o);
 

@@ -1,5 +1,7 @@
 #include "cli/batch_inputs.h"
 
+#include "cli/provenance.h"
+
 #include <algorithm>
 #include <charconv>
 #include <cmath>
@@ -394,14 +396,7 @@ std::vector<BatchScan> collect_scans(const std::vector<std::string>& inputs,
   return unique;
 }
 
-std::uint64_t fnv1a64(const std::string& s) {
-  std::uint64_t h = 1469598103934665603ULL;
-  for (unsigned char c : s) {
-    h ^= c;
-    h *= 1099511628211ULL;
-  }
-  return h;
-}
+std::uint64_t fnv1a64(const std::string& s) { return fnv1a64_update(kFnv1a64Offset, s); }
 
 bool parse_shard(const std::string& text, int* k, int* n) {
   const auto slash = text.find('/');

@@ -8,7 +8,6 @@
 
 #include "cli/analysis.h"
 #include "cli/commands.h"
-#include "cli/progress.h"
 #include "io/classify_outputs.h"
 #include "retrieval/classifier.h"
 #include "retrieval/engine.h"
@@ -178,11 +177,7 @@ int run_classify(ClassifyArgs& a) {
   if (a.wavelength_nm > 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;
   if (!a.gas.empty()) job.overrides.gas = a.gas;
   job.quiet = a.quiet;
-  Progress progress(a.quiet);
-  job.progress = [&](const std::string& stage, const std::string& m) { progress.update(stage, m); };
-  const ScanOutcome o = run_scan(job);
-  progress.done();
-  if (!o.ok) throw Error(o.error_kind, o.message);
+  const ScanOutcome o = run_scan_or_throw(job);
   const VerdictSection& v = *o.result.verdict;
   std::printf("class: %s\n", to_string(v.pulse_class));
   std::printf("reason: %s\n", v.reason.c_str());

@@ -7,7 +7,6 @@
 
 #include "cli/analysis.h"
 #include "cli/commands.h"
-#include "cli/progress.h"
 #include "io/rabbitt_outputs.h"
 #include "io/trace_reader.h"
 #include "retrieval/classifier.h"
@@ -173,11 +172,7 @@ int run_rabbitt(RabbittArgs& a) {
     throw usage_error("--atomic-correction " + a.atomic + ": expected auto or none");
   if (const std::string e = check.validate(); !e.empty()) throw usage_error(e);
   job.quiet = a.quiet;
-  Progress progress(a.quiet);
-  job.progress = [&](const std::string& stage, const std::string& m) { progress.update(stage, m); };
-  const ScanOutcome o = run_scan(job);
-  progress.done();
-  if (!o.ok) throw Error(o.error_kind, o.message);
+  const ScanOutcome o = run_scan_or_throw(job);
   std::printf("%s\n", summary_line(o.result).c_str());
   if (!a.quiet)
     for (const auto& w : o.result.warnings)

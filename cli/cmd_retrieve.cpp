@@ -5,7 +5,6 @@
 #include <sstream>
 
 #include "cli/commands.h"
-#include "cli/progress.h"
 #include "cli/analysis.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
@@ -48,17 +47,13 @@ int run_retrieve(RetrieveArgs& a) {
     throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
   if (a.options.engine != "auto") (void)make_engine(a.options.engine);  // unknown names listed
   if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
-  Progress progress(a.quiet);
   ScanJob job;
   job.sidecar = a.scan;
   job.out_dir = a.out;
   job.analysis = AnalysisKind::kRetrieve;
   job.retrieve = a.options;
   job.quiet = a.quiet;
-  job.progress = [&](const std::string& stage, const std::string& m) { progress.update(stage, m); };
-  const ScanOutcome o = run_scan(job);
-  progress.done();
-  if (!o.ok) throw Error(o.error_kind, o.message);
+  const ScanOutcome o = run_scan_or_throw(job);
   std::printf("%s\n", summary_line(o.result).c_str());
   std::printf("report: %s\n", (std::filesystem::path(a.out) / "report.html").string().c_str());
   if (o.exit_code == 4)

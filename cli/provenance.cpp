@@ -11,33 +11,38 @@
 
 namespace sw::cli {
 
+std::uint64_t fnv1a64_update(std::uint64_t h, std::string_view bytes) {
+  for (unsigned char c : bytes) {
+    h ^= c;
+    h *= 1099511628211ULL;
+  }
+  return h;
+}
+
 namespace {
-void fnv1a(const std::string& path, unsigned long long& h) {
+void hash_file(const std::string& path, std::uint64_t& h) {
   std::ifstream f(path, std::ios::binary);
   char buf[1 << 16];
   while (f) {
     f.read(buf, sizeof buf);
-    for (std::streamsize i = 0; i < f.gcount(); ++i) {
-      h ^= static_cast<unsigned char>(buf[i]);
-      h *= 1099511628211ULL;
-    }
+    h = fnv1a64_update(h, std::string_view(buf, static_cast<std::size_t>(f.gcount())));
   }
 }
 }  // namespace
 
 std::string input_hash(const std::string& sidecar, const std::string& image) {
   namespace fs = std::filesystem;
-  unsigned long long h = 1469598103934665603ULL;
+  std::uint64_t h = kFnv1a64Offset;
   if (!fs::exists(sidecar)) return "";
-  fnv1a(sidecar, h);
+  hash_file(sidecar, h);
   std::string img = image;
   const auto colon = img.find(".h5:");
   if (colon != std::string::npos) img = img.substr(0, colon + 3);
   fs::path p(img);
   if (p.is_relative()) p = fs::path(sidecar).parent_path() / p;
-  fnv1a(p.string(), h);
+  hash_file(p.string(), h);
   char hex[17];
-  std::snprintf(hex, sizeof hex, "%016llx", h);
+  std::snprintf(hex, sizeof hex, "%016llx", static_cast<unsigned long long>(h));
   return hex;
 }
 

@@ -16,6 +16,7 @@
 
 #include "io/trace_reader.h"
 #include "retrieval/error.h"
+#include "tests/test_support.h"
 
 namespace fs = std::filesystem;
 using Catch::Contains;
@@ -23,25 +24,10 @@ using nlohmann::json;
 
 namespace {
 
-struct TempDir {
-  fs::path path;
-  TempDir() {
-    std::random_device rd;
-    path = fs::temp_directory_path() /
-           ("sw_test_bad_" + std::to_string(rd()) + "_" +
-            std::to_string(std::chrono::steady_clock::now().time_since_epoch().count()));
-    fs::create_directories(path);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path, ec);
-  }
-  std::string operator/(const std::string& name) const { return (path / name).string(); }
-};
+using sw::test::TempDir;
+using sw::test::write_text;
 
-void write_text(const std::string& path, const std::string& text) {
-  std::ofstream(path, std::ios::binary) << text;
-}
+
 
 /// A valid 4 delays x 5 energies scan: good.png + the sidecar below.
 struct Fixture {

@@ -13,32 +13,17 @@
 #include "io/figures.h"
 #include "io/plot.h"
 #include "retrieval/error.h"
+#include "tests/test_support.h"
 
 namespace fs = std::filesystem;
 using sw::plot::Rgb;
 
 namespace {
 
+using sw::test::TempDir;
+using sw::test::write_text;
+
 // A fresh, empty folder per test case, removed afterwards.
-struct TempDir {
-  fs::path path;
-  explicit TempDir(const std::string& tag) {
-    path =
-        fs::temp_directory_path() / ("sw_test_figures_" + tag + "_" + std::to_string(::getpid()));
-    fs::remove_all(path);
-    fs::create_directories(path);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path, ec);
-  }
-  std::string file(const std::string& name) const { return (path / name).string(); }
-  std::set<std::string> listing() const {
-    std::set<std::string> names;
-    for (const auto& e : fs::directory_iterator(path)) names.insert(e.path().filename().string());
-    return names;
-  }
-};
 
 Rgb pixel(const cv::Mat& img, int row, int col) {
   const cv::Vec3b p = img.at<cv::Vec3b>(row, col);
@@ -233,7 +218,7 @@ TEST_CASE("trace image: hot spot lands at its delay and energy; axis orientation
     const double px_per_fs = (g.right - g.left + 1) / (g.x_max - g.x_min);
     CHECK(c1 - c0 + 1 == Approx((d_hi - d_lo) * px_per_fs).margin(1.5));
   }
-  CHECK(dir.listing() == std::set<std::string>{"trace.png"});  // no temporary files left
+  CHECK(dir.listing() == std::vector<std::string>{"trace.png"});  // no temporary files left
 }
 
 TEST_CASE("difference trace uses the symmetric diverging map", "[figures][trace]") {
@@ -304,7 +289,7 @@ TEST_CASE("trace comparison and line plots are written as 3-channel PNGs", "[fig
   CHECK(lines.cols == 1000);
   CHECK(lines.rows == 700);
   CHECK(lines.channels() == 3);
-  CHECK(dir.listing() == std::set<std::string>{"cmp.png", "lines.png"});
+  CHECK(dir.listing() == std::vector<std::string>{"cmp.png", "lines.png"});
 
   // In-memory rendering decodes to the same image size.
   const std::vector<unsigned char> bytes = sw::render_lines_png(lp);

@@ -19,27 +19,16 @@
 #include "io/trace_writer.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/test_support.h"
 
 namespace fs = std::filesystem;
 using namespace sw;
 
 namespace {
 
-struct TempDir {
-  fs::path path;
-  TempDir() {
-    path = fs::temp_directory_path() /
-           ("sw_test_rabbitt_cli_" + std::to_string(getpid()) + "_" +
-            std::to_string(std::chrono::steady_clock::now().time_since_epoch().count()));
-    fs::create_directories(path);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path, ec);
-  }
-  TempDir(const TempDir&) = delete;
-  TempDir& operator=(const TempDir&) = delete;
-};
+using sw::test::TempDir;
+using sw::test::write_text;
+
 
 // One folder for the whole file (scans are generated once).
 TempDir& temp() {

@@ -14,29 +14,15 @@
 #include "io/figures.h"
 #include "io/report_html.h"
 #include "retrieval/error.h"
+#include "tests/test_support.h"
 
 namespace fs = std::filesystem;
 
 namespace {
 
-struct TempDir {
-  fs::path path;
-  explicit TempDir(const std::string& tag) {
-    path = fs::temp_directory_path() / ("sw_test_report_" + tag + "_" + std::to_string(::getpid()));
-    fs::remove_all(path);
-    fs::create_directories(path);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path, ec);
-  }
-  std::string file(const std::string& name) const { return (path / name).string(); }
-  std::set<std::string> listing() const {
-    std::set<std::string> names;
-    for (const auto& e : fs::directory_iterator(path)) names.insert(e.path().filename().string());
-    return names;
-  }
-};
+using sw::test::TempDir;
+using sw::test::write_text;
+
 
 std::string read_all(const std::string& path) {
   std::ifstream in(path, std::ios::binary);
@@ -186,8 +172,8 @@ TEST_CASE("report is written atomically, complete, and leaves no temporary file"
   r.add_paragraph("second version");
   r.write(path);  // replaces the old file
   CHECK(read_all(path) == r.html());
-  CHECK(dir.listing() == std::set<std::string>{"report.html"});
+  CHECK(dir.listing() == std::vector<std::string>{"report.html"});
   CHECK(r.html().rfind("</html>") != std::string::npos);
   CHECK_THROWS_AS(r.write(dir.file("no/such/folder/report.html")), sw::Error);
-  CHECK(dir.listing() == std::set<std::string>{"report.html"});
+  CHECK(dir.listing() == std::vector<std::string>{"report.html"});
 }

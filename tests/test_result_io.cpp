@@ -14,27 +14,16 @@
 #include "io/atomic_file.h"
 #include "io/result_io.h"
 #include "retrieval/error.h"
+#include "tests/test_support.h"
 
 namespace fs = std::filesystem;
 using nlohmann::json;
 
 namespace {
 
-struct TempDir {
-  fs::path path;
-  TempDir() {
-    std::random_device rd;
-    path = fs::temp_directory_path() /
-           ("sw_test_result_" + std::to_string(rd()) + "_" +
-            std::to_string(std::chrono::steady_clock::now().time_since_epoch().count()));
-    fs::create_directories(path);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path, ec);
-  }
-  std::string operator/(const std::string& name) const { return (path / name).string(); }
-};
+using sw::test::TempDir;
+using sw::test::write_text;
+
 
 sw::AnalysisResult full_result() {
   sw::AnalysisResult r;

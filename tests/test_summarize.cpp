@@ -16,11 +16,15 @@
 #include "io/atomic_file.h"
 #include "io/result_io.h"
 #include "retrieval/result.h"
+#include "tests/test_support.h"
 
 namespace fs = std::filesystem;
 using nlohmann::json;
 
 namespace {
+
+using sw::test::TempDir;
+using sw::test::write_text;
 
 struct Cli {
   int status = -1;
@@ -46,19 +50,6 @@ std::string q(const fs::path& p) {
   return s;
 }
 
-struct TempDir {
-  fs::path path;
-  explicit TempDir(const std::string& tag)
-      : path(fs::temp_directory_path() /
-             ("sw_test_summarize_" + tag + "_" + std::to_string(getpid()))) {
-    fs::remove_all(path);
-    fs::create_directories(path);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path, ec);
-  }
-};
 
 /// A retrieval result with the given headline numbers (sigma < 0 = absent).
 sw::AnalysisResult retrieval(double fwhm, double fwhm_s, double gdd, double gdd_s, double a0,

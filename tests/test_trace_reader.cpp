@@ -23,6 +23,7 @@
 #include "io/trace_reader.h"
 #include "retrieval/error.h"
 #include "retrieval/units.h"
+#include "tests/test_support.h"
 
 namespace fs = std::filesystem;
 using sw::units::au_to_eV;
@@ -30,25 +31,10 @@ using sw::units::au_to_fs;
 
 namespace {
 
-struct TempDir {
-  fs::path path;
-  TempDir() {
-    std::random_device rd;
-    path = fs::temp_directory_path() /
-           ("sw_test_reader_" + std::to_string(rd()) + "_" +
-            std::to_string(std::chrono::steady_clock::now().time_since_epoch().count()));
-    fs::create_directories(path);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path, ec);
-  }
-  std::string operator/(const std::string& name) const { return (path / name).string(); }
-};
+using sw::test::TempDir;
+using sw::test::write_text;
 
-void write_text(const std::string& path, const std::string& text) {
-  std::ofstream(path, std::ios::binary) << text;
-}
+
 
 /// Distinct integer counts per pixel: 10 + 7 r + 3 c (no two neighbours equal).
 cv::Mat pattern16(int rows, int cols) {

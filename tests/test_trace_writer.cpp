@@ -16,33 +16,15 @@
 #include "io/trace_writer.h"
 #include "retrieval/error.h"
 #include "retrieval/units.h"
+#include "tests/test_support.h"
 
 namespace fs = std::filesystem;
 
 namespace {
 
-struct TempDir {
-  fs::path path;
-  TempDir() {
-    std::random_device rd;
-    path = fs::temp_directory_path() /
-           ("sw_test_writer_" + std::to_string(rd()) + "_" +
-            std::to_string(std::chrono::steady_clock::now().time_since_epoch().count()));
-    fs::create_directories(path);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path, ec);
-  }
-  std::string operator/(const std::string& name) const { return (path / name).string(); }
-  std::vector<std::string> listing() const {
-    std::vector<std::string> names;
-    for (const auto& e : fs::directory_iterator(path))
-      names.push_back(e.path().filename().string());
-    std::sort(names.begin(), names.end());
-    return names;
-  }
-};
+using sw::test::TempDir;
+using sw::test::write_text;
+
 
 /// A streaking-like trace: Gaussian photoline whose centre oscillates with delay, non-integer
 /// counts up to ~`peak`, on uniform energy and (uniform or jittered) delay axes.

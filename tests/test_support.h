@@ -1,0 +1,53 @@
+#pragma once
+// Helpers shared by the test files: a self-removing temporary folder and a text writer.
+
+#include <unistd.h>
+
+#include <algorithm>
+#include <chrono>
+#include <filesystem>
+#include <fstream>
+#include <random>
+#include <string>
+#include <vector>
+
+namespace sw::test {
+
+/// A fresh folder under the system temp directory, removed with its contents on destruction.
+/// Unique per process, tag, random draw and clock tick, so parallel test processes never share it.
+class TempDir {
+ public:
+  explicit TempDir(const std::string& tag = "tmp") {
+    std::random_device rd;
+    path = std::filesystem::temp_directory_path() /
+           ("sw_test_" + tag + "_" + std::to_string(::getpid()) + "_" + std::to_string(rd()) + "_" +
+            std::to_string(std::chrono::steady_clock::now().time_since_epoch().count()));
+    std::filesystem::create_directories(path);
+  }
+  ~TempDir() {
+    std::error_code ec;
+    std::filesystem::remove_all(path, ec);
+  }
+  TempDir(const TempDir&) = delete;
+  TempDir& operator=(const TempDir&) = delete;
+
+  /// Path of a file inside the folder.
+  std::string file(const std::string& name) const { return (path / name).string(); }
+  std::string operator/(const std::string& name) const { return file(name); }
+  /// Names of the folder's entries, sorted.
+  std::vector<std::string> listing() const {
+    std::vector<std::string> names;
+    for (const auto& e : std::filesystem::directory_iterator(path))
+      names.push_back(e.path().filename().string());
+    std::sort(names.begin(), names.end());
+    return names;
+  }
+
+  std::filesystem::path path;
+};
+
+inline void write_text(const std::string& path, const std::string& text) {
+  std::ofstream(path, std::ios::binary) << text;
+}
+
+}  // namespace sw::test
