@@ -13,7 +13,7 @@ namespace sw::cli {
 
 /// 64-bit FNV-1a (Fowler, Noll and Vo; the offset basis and prime of the published 64-bit
 /// variant): h is the running hash, start with kFnv1a64Offset.
-inline constexpr std::uint64_t kFnv1a64Offset = 1469598103934665603ULL;
+inline constexpr std::uint64_t kFnv1a64Offset = 14695981039346656037ULL;
 std::uint64_t fnv1a64_update(std::uint64_t h, std::string_view bytes);
 
 /// 64-bit FNV-1a (hex) of the sidecar bytes followed by the data file's bytes; `image` is the
