@@ -151,18 +151,21 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   out.problem = preprocess(trace, opt.preprocess, &out.preprocess);
   const RetrievalProblem& pr = out.problem;
 
-  auto run = [&](const std::string& name, EngineOptions eo) {
+  // One engine run on one problem, progress reported under `stage`, time origin fixed.
+  auto run_on = [&](const RetrievalProblem& problem, const std::string& name, const EngineOptions& o,
+                    const std::string& stage) {
     auto engine = make_engine(name);
     std::vector<IterationCallback> cbs;
     if (progress)
-      cbs.push_back([&, name](const IterationRecord& r) {
-        progress(name, r);
+      cbs.push_back([&](const IterationRecord& r) {
+        progress(stage, r);
         return CallbackResult::kContinue;
       });
-    Reconstruction rec = run_engine(*engine, pr, eo, cbs);
+    Reconstruction rec = run_engine(*engine, problem, o, cbs);
     fix_time_origin(rec);
     return rec;
   };
+  auto run = [&](const std::string& name, const EngineOptions& o) { return run_on(pr, name, o, name); };
   EngineOptions eo;
   if (opt.iterations > 0) eo.max_iterations = opt.iterations;
   eo.seed = opt.seed;
@@ -212,16 +215,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     bo.max_iterations = std::max(20, (opt.iterations > 0 ? opt.iterations : eo.max_iterations) / 3);
     bo.initial_xuv = rec.xuv;
     bo.initial_ir = rec.ir;
-    auto engine = make_engine(final_engine);
-    std::vector<IterationCallback> cbs;
-    const std::string stage = "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
-    if (progress)
-      cbs.push_back([&](const IterationRecord& r) {
-        progress(stage, r);
-        return CallbackResult::kContinue;
-      });
-    Reconstruction br = run_engine(*engine, rp, bo, cbs);
-    fix_time_origin(br);
+    const Reconstruction br = run_on(rp, final_engine, bo,
+                                     "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap));
     const PulseMetrics bm = pulse_metrics(br, pr.ir_omega_au);
     bf.push_back(*bm.xuv.fwhm_as);
     bg.push_back(*bm.xuv.gdd_as2);
