@@ -125,19 +125,6 @@ SidecarPeek peek_sidecar(const std::string& path) {
   return p;
 }
 
-const Param* find_param(const AnalysisResult& r, const std::string& key) {
-  for (const Param& p : r.extra)
-    if (p.key == key) return &p;
-  return nullptr;
-}
-
-std::string param_string(const AnalysisResult& r, const std::string& key) {
-  const Param* p = find_param(r, key);
-  if (!p) return "";
-  if (const auto* s = std::get_if<std::string>(&p->value)) return *s;
-  return "";
-}
-
 /// The existing result of a scan if --resume may reuse it.
 std::optional<AnalysisResult> reusable(const fs::path& result_json, const std::string& input_hash,
                                        const std::string& options_hash) {
@@ -145,9 +132,9 @@ std::optional<AnalysisResult> reusable(const fs::path& result_json, const std::s
   if (input_hash.empty() || !fs::is_regular_file(result_json, ec)) return std::nullopt;
   try {
     AnalysisResult r = read_result_json(result_json.string());
-    if (param_string(r, "provenance.version") != STREAKWRIGHT_VERSION) return std::nullopt;
-    if (param_string(r, "provenance.input_hash_fnv1a64") != input_hash) return std::nullopt;
-    if (param_string(r, "batch.options_hash") != options_hash) return std::nullopt;
+    if (param_string(r.extra, "provenance.version") != STREAKWRIGHT_VERSION) return std::nullopt;
+    if (param_string(r.extra, "provenance.input_hash_fnv1a64") != input_hash) return std::nullopt;
+    if (param_string(r.extra, "batch.options_hash") != options_hash) return std::nullopt;
     return r;
   } catch (...) {
     return std::nullopt;

@@ -23,27 +23,6 @@ namespace {
 namespace fs = std::filesystem;
 using ojson = nlohmann::ordered_json;
 
-const Param* find_param(const AnalysisResult& r, const std::string& key) {
-  for (const Param& p : r.extra)
-    if (p.key == key) return &p;
-  return nullptr;
-}
-
-std::string param_string(const AnalysisResult& r, const std::string& key) {
-  const Param* p = find_param(r, key);
-  if (!p) return "";
-  if (const auto* s = std::get_if<std::string>(&p->value)) return *s;
-  return "";
-}
-
-std::optional<double> param_number(const AnalysisResult& r, const std::string& key) {
-  const Param* p = find_param(r, key);
-  if (!p) return std::nullopt;
-  if (const auto* d = std::get_if<double>(&p->value)) return *d;
-  if (const auto* i = std::get_if<long long>(&p->value)) return static_cast<double>(*i);
-  return std::nullopt;
-}
-
 std::string fmt_number(double v) {
   char buf[40];
   std::snprintf(buf, sizeof buf, "%.12g", v);
@@ -224,11 +203,11 @@ SummaryRow row_from_result(const std::string& scan, const AnalysisResult& r) {
     row.converged = r.fit->converged;
     row.seconds = r.fit->seconds;
   }
-  if (const auto s = param_number(r, "batch.seconds")) row.seconds = s;
+  if (const auto s = param_number(r.extra, "batch.seconds")) row.seconds = s;
   if (row.converged && !*row.converged)
     row.message = "the engine did not converge (best estimate written, converged: false)";
-  row.acquired = param_string(r, "batch.acquired");
-  row.input_hash = param_string(r, "provenance.input_hash_fnv1a64");
+  row.acquired = param_string(r.extra, "batch.acquired");
+  row.input_hash = param_string(r.extra, "provenance.input_hash_fnv1a64");
   return row;
 }
 

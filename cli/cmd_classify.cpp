@@ -40,26 +40,6 @@ double classifier_wavelength(const Trace& trace, ClassifierOptions* co,
   return 0.0;  // classify() reports the missing field
 }
 
-std::string evidence_text(const Param& p) {
-  std::ostringstream s;
-  s.precision(5);
-  if (auto* d = std::get_if<double>(&p.value))
-    s << *d;
-  else if (auto* l = std::get_if<long long>(&p.value))
-    s << *l;
-  else if (auto* b = std::get_if<bool>(&p.value))
-    s << (*b ? "true" : "false");
-  else if (auto* st = std::get_if<std::string>(&p.value))
-    s << *st;
-  else {
-    const auto& v = std::get<std::vector<double>>(p.value);
-    s << "[";
-    for (std::size_t i = 0; i < v.size(); ++i) s << (i ? " " : "") << v[i];
-    s << "]";
-  }
-  return s.str();
-}
-
 }  // namespace
 
 AnalysisKind auto_analysis(const Trace& t) {
@@ -182,7 +162,7 @@ int run_classify(ClassifyArgs& a) {
   std::printf("class: %s\n", to_string(v.pulse_class));
   std::printf("reason: %s\n", v.reason.c_str());
   for (const Param& p : v.evidence)
-    std::printf("  %s = %s\n", p.key.c_str(), evidence_text(p).c_str());
+    std::printf("  %s = %s\n", p.key.c_str(), param_text(p, 5, " ").c_str());
   if (!a.quiet)
     for (const auto& w : o.result.warnings)
       std::fprintf(stderr, "streakwright classify: warning: %s\n", w.c_str());

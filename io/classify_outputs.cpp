@@ -28,20 +28,6 @@ std::string fmt(double v, int prec = 8) {
   return s.str();
 }
 
-std::string param_text(const Param& p, int prec = 6) {
-  if (auto* d = std::get_if<double>(&p.value)) return fmt(*d, prec);
-  if (auto* l = std::get_if<long long>(&p.value)) return std::to_string(*l);
-  if (auto* b = std::get_if<bool>(&p.value)) return *b ? "true" : "false";
-  if (auto* s = std::get_if<std::string>(&p.value)) return *s;
-  const auto& v = std::get<std::vector<double>>(p.value);
-  std::string out = "[";
-  for (std::size_t i = 0; i < v.size(); ++i) {
-    if (i) out += " ";
-    out += fmt(v[i], 4);
-  }
-  return out + "]";
-}
-
 // CSV cell: quoted when it contains a separator or a quote (RFC 4180).
 std::string csv_cell(const std::string& s) {
   if (s.find_first_of(",\"\n") == std::string::npos) return s;
@@ -66,7 +52,7 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
     c << "key,value\n";
     c << "class," << to_string(v.pulse_class) << '\n';
     for (const Param& p : v.evidence)
-      c << csv_cell(p.key) << ',' << csv_cell(param_text(p, 10)) << '\n';
+      c << csv_cell(p.key) << ',' << csv_cell(param_text(p, 10, " ")) << '\n';
     write_file_atomic(path("evidence.csv"), c.str());
   }
 

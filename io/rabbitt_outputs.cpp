@@ -30,20 +30,6 @@ std::string fmt(double v, int prec = 8) {
   return s.str();
 }
 
-std::string param_text(const Param& p) {
-  if (auto* d = std::get_if<double>(&p.value)) return fmt(*d, 6);
-  if (auto* l = std::get_if<long long>(&p.value)) return std::to_string(*l);
-  if (auto* b = std::get_if<bool>(&p.value)) return *b ? "true" : "false";
-  if (auto* s = std::get_if<std::string>(&p.value)) return *s;
-  const auto& v = std::get<std::vector<double>>(p.value);
-  std::string out = "[";
-  for (std::size_t i = 0; i < v.size(); ++i) {
-    if (i) out += ", ";
-    out += fmt(v[i], 4);
-  }
-  return out + "]";
-}
-
 // Writes rows of cells (already formatted) under a header line.
 void write_csv(const std::string& path, const std::vector<std::string>& header,
                const std::vector<std::vector<std::string>>& rows) {

@@ -1,5 +1,8 @@
 #include "retrieval/result.h"
 
+#include <cmath>
+#include <sstream>
+
 namespace sw {
 
 const char* to_string(PulseClass c) {
@@ -18,6 +21,45 @@ bool parse_pulse_class(const std::string& s, PulseClass* out) {
   else if (s == "undetermined") *out = PulseClass::kUndetermined;
   else return false;
   return true;
+}
+
+const Param* find_param(const std::vector<Param>& params, const std::string& key) {
+  for (const Param& p : params)
+    if (p.key == key) return &p;
+  return nullptr;
+}
+
+std::string param_string(const std::vector<Param>& params, const std::string& key) {
+  const Param* p = find_param(params, key);
+  if (!p) return "";
+  if (const auto* s = std::get_if<std::string>(&p->value)) return *s;
+  return "";
+}
+
+std::optional<double> param_number(const std::vector<Param>& params, const std::string& key) {
+  const Param* p = find_param(params, key);
+  if (!p) return std::nullopt;
+  if (const auto* d = std::get_if<double>(&p->value)) return *d;
+  if (const auto* i = std::get_if<long long>(&p->value)) return static_cast<double>(*i);
+  return std::nullopt;
+}
+
+std::string param_text(const Param& p, int precision, const char* separator) {
+  auto number = [&](double v) {
+    if (!std::isfinite(v)) return std::string();
+    std::ostringstream s;
+    s.precision(precision);
+    s << v;
+    return s.str();
+  };
+  if (const auto* d = std::get_if<double>(&p.value)) return number(*d);
+  if (const auto* l = std::get_if<long long>(&p.value)) return std::to_string(*l);
+  if (const auto* b = std::get_if<bool>(&p.value)) return *b ? "true" : "false";
+  if (const auto* s = std::get_if<std::string>(&p.value)) return *s;
+  const auto& v = std::get<std::vector<double>>(p.value);
+  std::string out = "[";
+  for (std::size_t i = 0; i < v.size(); ++i) out += (i ? separator : "") + number(v[i]);
+  return out + "]";
 }
 
 }  // namespace sw

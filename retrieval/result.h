@@ -20,6 +20,16 @@ struct Param {
   std::variant<double, long long, bool, std::string, std::vector<double>> value;
 };
 
+/// The Param under `key`, or nullptr.
+const Param* find_param(const std::vector<Param>& params, const std::string& key);
+/// String value under `key`; "" when absent or not a string.
+std::string param_string(const std::vector<Param>& params, const std::string& key);
+/// Numeric value (double or integer) under `key`; nullopt when absent or not a number.
+std::optional<double> param_number(const std::vector<Param>& params, const std::string& key);
+/// The value as text for tables and terminals: numbers with `precision` significant digits
+/// ("" for a non-finite number), booleans as true/false, arrays as "[a<sep>b]".
+std::string param_text(const Param& p, int precision = 6, const char* separator = ", ");
+
 struct XuvSection {
   std::optional<double> fwhm_as, fwhm_as_sigma;
   std::optional<double> transform_limited_fwhm_as;

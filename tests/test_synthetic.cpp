@@ -37,12 +37,6 @@ ScanConfig noiseless(ScanConfig c) {
   return c;
 }
 
-const Param* find_param(const std::vector<Param>& ps, const std::string& key) {
-  for (const Param& p : ps)
-    if (p.key == key) return &p;
-  return nullptr;
-}
-
 // Dominant frequency of a real signal y(x) on a uniform axis: maximum of the Hann-windowed
 // periodogram of the mean-removed signal on a fine frequency grid in [f_lo, f_hi].
 double dominant_frequency(const std::vector<double>& x, const std::vector<double>& y, double f_lo,
