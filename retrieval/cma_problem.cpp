@@ -263,7 +263,19 @@ CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, s
 }
 
 double CmaProblem::knot_step_au() const {
-  return units::period_au(problem_.ir_omega_au) / settings_.gate_knots_per_period;
+  // The gate is probed at t = s + tau_j only within the XUV's support around each delay, so
+  // knots finer than the delay step let its phase wander between delays (and bias the peak of
+  // A(t) upwards). The knot step is therefore at least the median delay step, up to T / 8.
+  const double T = units::period_au(problem_.ir_omega_au);
+  std::vector<double> steps;
+  for (std::size_t i = 1; i < problem_.delay_au.size(); ++i)
+    steps.push_back(problem_.delay_au[i] - problem_.delay_au[i - 1]);
+  double median = 0.0;
+  if (!steps.empty()) {
+    std::nth_element(steps.begin(), steps.begin() + static_cast<long>(steps.size() / 2), steps.end());
+    median = steps[steps.size() / 2];
+  }
+  return std::max(T / settings_.gate_knots_per_period, std::min(median, T / 8.0));
 }
 
 void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums, double* scratch) const {
@@ -316,17 +328,43 @@ void CmaProblem::impose_spectrum(CVec& eps, CVec& work) const {
   if (spectrum_amp_.empty()) return;
   work.resize(n_);
   fft_.time_to_freq(eps, work);
+  // The target amplitude per energy index: the reference itself, or (when only its shape is
+  // trusted) the reference moved so that its centroid sits on the current XUV centroid.
+  std::vector<double> target = spectrum_amp_;
+  if (problem_.reference != ReferenceSpectrum::kFieldFree) {
+    double cx = 0, sx = 0, cr = 0, sr = 0;
+    for (const Segment& seg : measured_)
+      for (std::size_t q = 0; q < seg.len; ++q) {
+        const double j = static_cast<double>(seg.j0 + q), p = std::norm(work[seg.k0 + q]);
+        const double r = spectrum_amp_[seg.j0 + q] * spectrum_amp_[seg.j0 + q];
+        cx += j * p;
+        sx += p;
+        cr += j * r;
+        sr += r;
+      }
+    if (sx > 0 && sr > 0) {
+      const double shift = cr / sr - cx / sx;  // target(j) = reference(j + shift)
+      for (std::size_t j = 0; j < ne_; ++j) {
+        const double x = static_cast<double>(j) + shift;
+        const double f = std::floor(x);
+        const long i0 = static_cast<long>(f);
+        const double u = x - f;
+        auto at = [&](long i) { return i >= 0 && i < static_cast<long>(ne_) ? spectrum_amp_[static_cast<std::size_t>(i)] : 0.0; };
+        target[j] = (1.0 - u) * at(i0) + u * at(i0 + 1);
+      }
+    }
+  }
   double have = 0.0, want = 0.0;
   for (const Segment& seg : measured_)
     for (std::size_t q = 0; q < seg.len; ++q) {
       have += std::norm(work[seg.k0 + q]);
-      want += spectrum_amp_[seg.j0 + q] * spectrum_amp_[seg.j0 + q];
+      want += target[seg.j0 + q] * target[seg.j0 + q];
     }
   const double c = want > 0 && have > 0 ? std::sqrt(have / want) : 1.0 / dt_;
   for (const Segment& seg : measured_)
     for (std::size_t q = 0; q < seg.len; ++q) {
       cdouble& w = work[seg.k0 + q];
-      const double r = std::abs(w), t = c * spectrum_amp_[seg.j0 + q];
+      const double r = std::abs(w), t = c * target[seg.j0 + q];
       w = r > 1e-300 ? w * (t / r) : cdouble(t, 0.0);
     }
   for (const Segment& seg : unmeasured_)
@@ -336,8 +374,67 @@ void CmaProblem::impose_spectrum(CVec& eps, CVec& work) const {
   for (auto& e : eps) e *= inv;
 }
 
+namespace {
+
+// v[i] *= exp(i rate (t0 + i step)), by recurrence of unit rotations.
+void rotate_linear(cdouble* v, std::size_t n, double t0, double step, double rate) {
+  cdouble r = std::polar(1.0, rate * t0);
+  const cdouble d = std::polar(1.0, rate * step);
+  for (std::size_t i = 0; i < n; ++i) {
+    v[i] *= r;
+    r *= d;
+    if ((i & 255) == 255) r /= std::abs(r);
+  }
+}
+
+}  // namespace
+
+double CmaProblem::align_vector_potential(const CVec& eps, CVec& eps_out, PhaseGate& gate) const {
+  std::vector<double> cover;
+  gate.coverage(eps, cover);
+  double cmax = 0;
+  for (double c : cover) cmax = std::max(cmax, c);
+  const CVec& G = gate.table();
+  std::size_t lo = 0, hi = cover.size() - 1;
+  while (lo < hi && cover[lo] < 0.3 * cmax) ++lo;
+  while (hi > lo && cover[hi] < 0.3 * cmax) --hi;
+  if (hi < lo + 8) return 0.0;
+  // Phase rate between neighbouring nodes and Hann weights over [lo, hi].
+  const std::size_t m = hi - lo;
+  std::vector<double> rate(m), w(m);
+  for (std::size_t i = 0; i < m; ++i) {
+    rate[i] = std::arg(G[lo + i + 1] * std::conj(G[lo + i])) / gate.dt();
+    const double x = (static_cast<double>(i) + 0.5) / static_cast<double>(m);
+    w[i] = std::sin(units::kPi * x) * std::sin(units::kPi * x);
+  }
+  const double p0 = problem_.central_momentum_au;
+  // Newton on f(d) = sum w A(rate + d), f' = sum w / (p0 + A); f is increasing in d.
+  double d = 0.0;
+  for (int it = 0; it < 20; ++it) {
+    double f = 0, fp = 0, sw = 0;
+    for (std::size_t i = 0; i < m; ++i) {
+      const double A = vector_potential_from_phase_rate(rate[i] + d, p0);
+      f += w[i] * A;
+      fp += w[i] / std::max(p0 + A, 0.1 * p0);
+      sw += w[i];
+    }
+    const double step = f / fp;
+    d -= step;
+    if (std::abs(step) < 1e-10 * p0 || std::abs(f) < 1e-12 * sw) break;
+  }
+  if (!std::isfinite(d) || std::abs(d) < 1e-3 * problem_.grid.dw()) return 0.0;
+  eps_out = eps;
+  rotate_linear(eps_out.data(), n_, problem_.grid.t0(), problem_.grid.dt(), -d);
+  rotate_linear(gate.table().data(), gate.size(), gate.time(0), gate.dt(), d);
+  return d;
+}
+
 double CmaProblem::align_spectrum(CVec& eps, PhaseGate& gate, CVec& work) const {
   if (spectrum_amp_.empty()) return 0.0;
+  if (problem_.reference != ReferenceSpectrum::kFieldFree) {
+    const CVec in = eps;
+    return align_vector_potential(in, eps, gate);
+  }
   work.resize(n_);
   fft_.time_to_freq(eps, work);
   double cw = 0, c = 0, tw = 0, t = 0;
@@ -354,18 +451,9 @@ double CmaProblem::align_spectrum(CVec& eps, PhaseGate& gate, CVec& work) const 
   const double dw = problem_.grid.dw();
   const double delta = (tw / t - cw / c) * dw;
   if (std::abs(delta) < 1e-3 * dw) return 0.0;
-  // eps(s) exp(-i delta s), G(t) exp(+i delta t), by recurrence of the unit rotations.
-  auto rotate = [](cdouble* v, std::size_t n, double t0, double step, double rate) {
-    cdouble r = std::polar(1.0, rate * t0);
-    const cdouble d = std::polar(1.0, rate * step);
-    for (std::size_t i = 0; i < n; ++i) {
-      v[i] *= r;
-      r *= d;
-      if ((i & 255) == 255) r /= std::abs(r);
-    }
-  };
-  rotate(eps.data(), n_, problem_.grid.t0(), problem_.grid.dt(), -delta);
-  rotate(gate.table().data(), gate.size(), gate.time(0), gate.dt(), delta);
+  // eps(s) exp(-i delta s), G(t) exp(+i delta t).
+  rotate_linear(eps.data(), n_, problem_.grid.t0(), problem_.grid.dt(), -delta);
+  rotate_linear(gate.table().data(), gate.size(), gate.time(0), gate.dt(), delta);
   return delta;
 }
 
@@ -439,9 +527,9 @@ PhaseGate CmaProblem::initial_gate(const EngineOptions& o) const {
     gate_guess_ = "initial_ir";
     return gate;
   }
-  // Streaking-centroid curve. With p0 the final-momentum centroid, the CMA gate shifts the
-  // spectrum by -d phi/dt: W_c(tau) = W0 - p0 A(tau) - A(tau)^2 / 2 (= the classical
-  // (p_i - A)^2 / 2 with p_i = p0 + A), so A = -p0 + sqrt(p0^2 - 2 (W_c - W0)).
+  // Streaking-centroid curve. The gate shifts the spectrum by -d phi/dt = -(p0 A - A^2/2):
+  // W_c(tau) = W0 - p0 A(tau) + A(tau)^2 / 2 (= the classical (p0 - A)^2 / 2), so
+  // A = p0 - sqrt(p0^2 + 2 (W_c - W0)) (gate.h).
   const std::vector<double>& W = problem_.energy_au;
   std::vector<double> wc(nd_, 0.0);
   for (std::size_t i = 0; i < nd_; ++i) {

@@ -27,7 +27,12 @@
 //
 // Ambiguities of the blind problem (DESIGN.md) and how they are fixed:
 //   global phase      arg eps = 0 at the peak of |eps| (reconstruct());
-//   frequency shift   (eps e^{-i d s}, G e^{+i d t}) leaves every |a| unchanged; align_spectrum()
+//   frequency shift   (eps e^{-i d s}, G e^{+i d t}) leaves every |a| unchanged. Without a
+//                     truly field-free reference (RetrievalProblem::reference: weakly
+//                     streaked edge rows, or the delay average, whose centroid is shifted by
+//                     the ponderomotive term), d is fixed by a zero mean of A(t) over the scan
+//                     (align_vector_potential()) and impose_spectrum() uses the reference's
+//                     shape re-centred on the XUV. With one, align_spectrum()
 //                     moves the XUV spectral centroid onto the field-free spectrum's, and
 //                     impose_spectrum() then sets |eps~_j| <- c sqrt(field-free spectrum_j),
 //                     c^2 = sum |eps~|^2 / sum spectrum (the energy in the window is kept),
@@ -110,12 +115,22 @@ class CmaProblem {
   /// Running trace error G from the sums of one full sweep over the delays.
   double trace_error(const ErrorSums& sums) const;
   /// Spectral constraint on eps (in place; `work` is resized to N once). No-op without spectrum.
+  /// With a reference whose centroid is not trusted (kEdgeRows, kDelayAverage), its shape is
+  /// first moved (linear interpolation) onto the current XUV centroid.
   void impose_spectrum(CVec& eps, CVec& work) const;
   /// Frequency-shift ambiguity: moves eps~ by delta so that its centroid over the measured
   /// window equals the field-free spectrum's, and multiplies the gate by exp(i delta t), which
   /// leaves every |a(W, tau)| unchanged (psi_j gains only the phase exp(i delta tau_j)).
-  /// Returns delta (a.u.); no-op (0) without spectrum.
+  /// Returns delta (a.u.); no-op (0) without spectrum. When the reference's centroid is not
+  /// trusted (RetrievalProblem::reference != kFieldFree) it calls align_vector_potential().
   double align_spectrum(CVec& eps, PhaseGate& gate, CVec& work) const;
+  /// Frequency-shift ambiguity without a field-free reference: the same rotation, with delta
+  /// chosen so that the Hann-weighted time average of A(t) = -p0 + sqrt(p0^2 + 2 dphi/dt) over
+  /// the well-probed gate nodes (coverage >= 30 % of its maximum) is zero. A radiated field has
+  /// no DC part, so A averages to zero over a pulse; over a window that truncates it the Hann
+  /// taper keeps the leakage of the oscillation below ~1e-3 A0 (common practice for
+  /// windowed averages). Returns delta (a.u.).
+  double align_vector_potential(const CVec& eps, CVec& eps_out, PhaseGate& gate) const;
 
   /// The constraints both engines apply after iteration k (1-based), at their intervals:
   /// the field-free spectrum (align_spectrum, then impose_spectrum for kAmplitude) and the
@@ -132,8 +147,8 @@ class CmaProblem {
   /// centred at s = 0.
   CVec initial_xuv(const EngineOptions& options) const;
   /// Gate table for the problem's delays, initialised from options.initial_ir, else from the
-  /// streaking-centroid curve W_c(tau) = W0 - p0 A - A^2/2 (classical streaking with p0 the
-  /// final-momentum centroid, DESIGN.md),
+  /// streaking-centroid curve W_c(tau) = W0 - p0 A + A^2/2 = (p0 - A)^2/2 (classical
+  /// streaking, p0 ~ the field-free momentum, DESIGN.md),
   /// else flat when the centroid sweep is below two energy bins.
   PhaseGate initial_gate(const EngineOptions& options) const;
   /// What initial_gate() used ("initial_ir", "centroid curve", "flat").

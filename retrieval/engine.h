@@ -26,6 +26,15 @@
 
 namespace sw {
 
+/// The reference photoelectron spectrum of a RetrievalProblem:
+///   kFieldFree    measured without IR (or on edge rows spanning an IR period): fixes
+///                 |E_X| and the frequency-shift ambiguity (its centroid);
+///   kEdgeRows     weakly streaked edge rows: fixes the shape of |E_X| only; the centroid comes
+///                 from a zero time-average of A(t) over the scan;
+///   kDelayAverage the delay-averaged, streaking-broadened spectrum: an initial guess only;
+///                 the centroid as for kEdgeRows.
+enum class ReferenceSpectrum { kFieldFree, kEdgeRows, kDelayAverage };
+
 /// What an engine is asked to explain: a preprocessed trace on engine-ready axes.
 /// Built by retrieval/preprocess.h from a measured Trace.
 struct RetrievalProblem {
@@ -44,6 +53,8 @@ struct RetrievalProblem {
   /// Field-free (or delay-averaged) photoelectron spectrum on energy_au, |a|^2 units:
   /// constrains |E_X(Omega = W + Ip)|^2.
   std::vector<double> field_free_spectrum;
+  /// What field_free_spectrum is, and so what it may fix (retrieval/cma_problem.h).
+  ReferenceSpectrum reference = ReferenceSpectrum::kFieldFree;
   DipoleModel dipole;
 };
 

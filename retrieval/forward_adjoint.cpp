@@ -249,9 +249,9 @@ void gate_times_envelope(const double* __restrict__ er, const double* __restrict
 // Im(conj(psi_bar) psi) -> I1_bar += 2 p Im, I2_bar += Im.
 void node_adjoint(const double* __restrict__ pb, const double* __restrict__ er,
                   const double* __restrict__ ei, const double* __restrict__ gr,
-                  const double* __restrict__ gi, double two_p, double* __restrict__ ebr,
-                  double* __restrict__ ebi, double* __restrict__ gI1, double* __restrict__ gI2,
-                  std::size_t n) {
+                  const double* __restrict__ gi, double two_p, double i2_sign,
+                  double* __restrict__ ebr, double* __restrict__ ebi, double* __restrict__ gI1,
+                  double* __restrict__ gI2, std::size_t n) {
   for (std::size_t s = 0; s < n; ++s) {
     const double br = pb[2 * s], bi = pb[2 * s + 1];
     ebr[s] += br * gr[s] + bi * gi[s];
@@ -260,7 +260,7 @@ void node_adjoint(const double* __restrict__ pb, const double* __restrict__ er,
     const double si = er[s] * gi[s] + ei[s] * gr[s];
     const double im = br * si - bi * sr;
     gI1[s] += two_p * im;
-    gI2[s] += im;
+    gI2[s] += i2_sign * im;
   }
 }
 
@@ -318,6 +318,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
   std::size_t total_nodes = 0;
   for (const MomentumBlock& b : plan_.blocks) total_nodes += b.nodes.size();
   const double i1_mid = plan_.i1_mid;
+  const double i2_sign = central_ ? -1.0 : 1.0;  // sign of the I2/2 term subtracted in phi
   const std::vector<double> ts = grid_.times();
   const Fft fft(n);
 
@@ -398,7 +399,9 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
         const VolkovIntegrals vi = ir.at(ts[s] + tau);
         W.A[s] = vi.A;
         W.u[s] = vi.I1 - i1_mid;
-        W.v[s] = 0.5 * vi.I2;
+        // Exact model: phase -p I1 - I2/2; the CMA variant uses the delay-adapted gate
+        // -p0 I1 + I2/2 of retrieval/gate.h.
+        W.v[s] = i2_sign * 0.5 * vi.I2;
       }
       std::fill(W.acc.begin(), W.acc.end(), cdouble(0.0));
       // Forward. Chebyshev nodes come in pairs mid +- delta: exp(i phi) = exp(i phi_mid)
@@ -480,7 +483,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
             }
             fft.freq_to_time(W.rawbar, W.psibar);
             const double* pb = reinterpret_cast<const double*>(W.psibar.data());
-            node_adjoint(pb, er.data(), ei.data(), gr, gi, 2.0 * p, &W.ebr[k * n], &W.ebi[k * n],
+            node_adjoint(pb, er.data(), ei.data(), gr, gi, 2.0 * p, i2_sign, &W.ebr[k * n], &W.ebi[k * n],
                          &W.gI1[k * n], &W.gI2[k * n], n);
             if (!W.pre.empty()) {
               double* gA = &W.gA[k * n];

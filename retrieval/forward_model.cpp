@@ -36,7 +36,7 @@ void cma_gate(const IrField& ir, const DipoleModel& d, double p0, const double* 
               cdouble* g) {
   for (std::size_t i = 0; i < n; ++i) {
     const VolkovIntegrals v = ir.at(t[i]);
-    g[i] = d(p0 + v.A) * std::polar(1.0, -p0 * v.I1 - 0.5 * v.I2);
+    g[i] = d(p0 + v.A) * std::polar(1.0, -p0 * v.I1 + 0.5 * v.I2);
   }
 }
 
@@ -180,7 +180,7 @@ Eigen::MatrixXcd ForwardModel::amplitude(const XuvField& xuv_in, const IrField& 
       if (options_.momentum == MomentumModel::kCentral) {
         const double p0 = options_.central_momentum_au;
         for (std::size_t s = 0; s < n; ++s)
-          psi[s] = eps[s] * dipole_(p0 + v[s].A) * std::polar(1.0, -p0 * v[s].I1 - 0.5 * v[s].I2);
+          psi[s] = eps[s] * dipole_(p0 + v[s].A) * std::polar(1.0, -p0 * v[s].I1 + 0.5 * v[s].I2);
         fft.time_to_freq(psi, raw);
         for (std::size_t j = 0; j < W.size(); ++j)
           out(i, static_cast<Eigen::Index>(j)) =

@@ -12,8 +12,12 @@
 // axis works without rounding to a grid and without wrap-around.
 //
 // Momentum models:
-//   kCentral (CMA): p -> p0 in the gate, one FFT per delay (Mairesse and Quere, PRA 71,
-//                   011401 (2005)). d is evaluated at p0 + A(t).
+//   kCentral (CMA): one momentum in the gate, one FFT per delay (Mairesse and Quere, PRA 71,
+//                   011401 (2005)), in the delay-adapted form of retrieval/gate.h:
+//                   G(t) = d(p0 + A) exp(-i p0 I1 + i I2/2), whose phase rate p0 A - A^2/2 is
+//                   the exact one of the electrons streaked to p0 - A(tau) at t = tau (the
+//                   textbook p -> p0 gives p0 A + A^2/2, off by A^2). d is evaluated at
+//                   p0 + A(t).
 //   kFull:          the exact p dependence. For a block of energies with momenta in
 //                   [p_lo, p_hi], G_p(t) is interpolated in p on M Chebyshev nodes; each node
 //                   costs one FFT per delay. Blocks are sized so that the phase excursion
@@ -123,7 +127,7 @@ struct EnergyBinMap {
 EnergyBinMap map_energy_bins(const TimeGrid& grid, double carrier_au, double ionization_energy_au,
                              const std::vector<double>& energy_au);
 
-/// The CMA phase gate G(t) = d(p0 + A) exp(-i p0 I1(t) - i I2(t)/2) at times t (a.u.).
+/// The CMA phase gate G(t) = d(p0 + A) exp(-i p0 I1(t) + i I2(t)/2) at times t (a.u.).
 void cma_gate(const IrField& ir, const DipoleModel& d, double p0_au, const double* t_au,
               std::size_t n, cdouble* gate_out);
 

@@ -319,14 +319,14 @@ SmoothPhase PhaseGate::smooth(const std::vector<double>& weight) {
 }
 
 double vector_potential_from_phase_rate(double rate, double p0) {
-  const double q = p0 * p0 + 2.0 * rate;
-  if (q <= 0) return -p0;
-  return 2.0 * rate / (p0 + std::sqrt(q));  // = -p0 + sqrt(q), without cancellation
+  const double q = p0 * p0 - 2.0 * rate;
+  if (q <= 0) return p0;
+  return 2.0 * rate / (p0 + std::sqrt(q));  // = p0 - sqrt(q), without cancellation
 }
 
 double cma_gate_phase(const IrField& ir, double p0, double t) {
   const VolkovIntegrals v = ir.at(t);
-  return -p0 * v.I1 - 0.5 * v.I2;
+  return -p0 * v.I1 + 0.5 * v.I2;
 }
 
 IrField ir_from_gate_phase(const SmoothPhase& phase, double p0, double t_first, double t_last,

@@ -3,12 +3,22 @@
 // phase and the IR vector potential.
 //
 // In the central-momentum approximation (Mairesse and Quere, PRA 71, 011401 (2005)) the
-// streaking amplitude is a(W, tau) ~ Int ds eps(s) G(s + tau) exp(i w s) with the gate
-//     G(t) = exp(i phi(t)),   phi(t) = -p0 I1(t) - I2(t)/2,   I1 = Int_t^inf A,  I2 = Int_t^inf
-//     A^2,
-// so that d phi / dt = p0 A + A^2 / 2 and, inverting on the physical branch (A -> 0 with the
-// rate), A = -p0 + sqrt(p0^2 + 2 d phi/dt). (The dipole factor d(p0 + A) of
-// retrieval/forward_model.h is taken as constant over the streaking range: |G| = 1.)
+// streaking amplitude is a(W, tau) ~ Int ds eps(s) G(s + tau) exp(i w s) with a unit-modulus
+// gate G(t) = exp(i phi(t)). The textbook gate puts p -> p0 in the Volkov phase,
+// phi = -p0 I1 - I2/2 (d phi/dt = p0 A + A^2/2). We use instead the delay-adapted form
+//     phi(t) = -p0 I1(t) + I2(t)/2,   I1 = Int_t^inf A,  I2 = Int_t^inf A^2,
+//     d phi / dt = p0 A - A^2 / 2:
+// the electrons seen at delay tau are not at p0 but at p_f = p0 - A(tau) (classical
+// streaking, p_f = p_i - A, with p_i ~ p0 the field-free momentum), and their exact phase
+// rate p_f A + A^2/2 at t = tau is p0 A - A^2/2. The textbook gate therefore shifts the
+// spectrum by -(p0 A + A^2/2) where the data shift by -(p0 A - A^2/2) (= (p0 - A)^2/2 - W0),
+// an error of A^2 (1.1 eV, 9 % of the shift, at 5e12 W/cm^2 and 73 eV); a retrieval that
+// fits the data with it returns A(t) wrong by -A^2/p0, i.e. the two half-cycles of A
+// unequal by ~2 A0/p0 and the peak |A| ~9 % high (measured on direct-quadrature scans of
+// synthetic/, docs/validation.md). Inverting on the physical branch (A -> 0 with the rate):
+//     A = p0 - sqrt(p0^2 - 2 d phi/dt).
+// (The dipole factor d(p0 + A) of retrieval/forward_model.h is taken as constant over the
+// streaking range: |G| = 1.)
 //
 // Storage. The gate is kept as complex samples on a uniform table whose step is the XUV grid
 // step dt and which covers every time s_n + tau_j the exit waves need (s_n the XUV grid,
@@ -130,9 +140,9 @@ class PhaseGate {
 /// number plus a small update).
 void normalize_to_unit(cdouble* v, std::size_t n);
 
-/// A(t) from the gate-phase rate: A = -p0 + sqrt(p0^2 + 2 rate) (rate < -p0^2/2 gives -p0).
+/// A(t) from the gate-phase rate: A = p0 - sqrt(p0^2 - 2 rate) (rate > p0^2/2 gives p0).
 double vector_potential_from_phase_rate(double rate, double p0_au);
-/// The CMA gate phase -p0 I1(t) - I2(t)/2 of an IR field at time t.
+/// The (delay-adapted) CMA gate phase -p0 I1(t) + I2(t)/2 of an IR field at time t.
 double cma_gate_phase(const IrField& ir, double p0_au, double t_au);
 /// IR field sampled from a smooth gate phase on [t_first, t_last] with step dt (a.u.).
 IrField ir_from_gate_phase(const SmoothPhase& phase, double p0_au, double t_first_au,

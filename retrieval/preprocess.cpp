@@ -199,23 +199,51 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
     }
     centroid[static_cast<std::size_t>(i)] = b > 0 ? a / b : Wc;
   }
+  // Field-free rows: the runs of rows at either edge whose centroid stays within
+  // field_free_shift_fraction of the largest shift (from the delay-averaged centroid). A run
+  // spanning at least one IR period averages any residual oscillation of the centroid out
+  // (to first order in A): truly field-free (amplitude and centroid are used). Shorter runs
+  // at a weakly streaked edge still give the spectrum's shape, but their centroid can be off
+  // by the residual shift (about 1 eV on a 5 fs pulse scanned over +-6 fs): shape only.
+  const double period = units::period_au(units::wavelength_nm_to_omega_au(trace.meta.ir_wavelength_nm));
+  const std::vector<double>& tau = trace.delay_au;
+  const double step_tau = nd > 1 ? (tau.back() - tau.front()) / static_cast<double>(nd - 1) : 0.0;
   double max_shift = 0;
   for (double c : centroid) max_shift = std::max(max_shift, std::abs(c - Wc));
-  std::vector<Eigen::Index> quiet;
   auto quiet_row = [&](Eigen::Index i) {
     return std::abs(centroid[static_cast<std::size_t>(i)] - Wc) <= opt.field_free_shift_fraction * max_shift;
   };
   Eigen::Index lo = 0, hi = nd - 1;
-  while (lo < nd && quiet_row(lo)) quiet.push_back(lo++);
-  while (hi > lo && quiet_row(hi)) quiet.push_back(hi--);
+  while (lo < nd && quiet_row(lo)) ++lo;
+  while (hi > lo && quiet_row(hi)) --hi;
+  auto span = [&](Eigen::Index first, Eigen::Index end) {  // rows first..end-1
+    return end > first ? tau[static_cast<std::size_t>(end - 1)] - tau[static_cast<std::size_t>(first)] + step_tau : 0.0;
+  };
+  std::vector<Eigen::Index> quiet, settled;
+  for (auto [first, end] : {std::pair{Eigen::Index(0), lo}, std::pair{hi + 1, nd}})
+    for (Eigen::Index i = first; i < end; ++i) {
+      quiet.push_back(i);
+      if (span(first, end) >= period) settled.push_back(i);
+    }
+  if (max_shift > 0 && settled.size() >= 3) {
+    quiet = settled;
+    s.reference = ReferenceSpectrum::kFieldFree;
+  } else if (max_shift > 0 && quiet.size() >= 3) {
+    s.reference = ReferenceSpectrum::kEdgeRows;
+  } else {
+    quiet.clear();
+    s.reference = ReferenceSpectrum::kDelayAverage;
+  }
   std::vector<double> ff(static_cast<std::size_t>(ne), 0.0);
-  s.field_free_measured = quiet.size() >= 3 && max_shift > 0;
+  s.field_free_measured = !quiet.empty();
   if (s.field_free_measured) {
     for (Eigen::Index i : quiet)
       for (Eigen::Index j = 0; j < ne; ++j) ff[static_cast<std::size_t>(j)] += sig(i, j) / static_cast<double>(quiet.size());
     std::ostringstream os;
     os << quiet.size() << " edge rows with centroid shift <= " << opt.field_free_shift_fraction * 100
        << " % of the largest";
+    if (s.reference == ReferenceSpectrum::kEdgeRows)
+      os << " (spanning less than one IR period: shape only, centroid from a zero mean of A(t))";
     s.field_free_source = os.str();
   } else {
     for (Eigen::Index j = 0; j < ne; ++j) ff[static_cast<std::size_t>(j)] = sig.col(j).mean();
@@ -223,7 +251,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
     if (max_shift > 0)
       s.warnings.push_back("no field-free delay rows at the scan edges (centroid shift below " +
                            std::to_string(int(100 * opt.field_free_shift_fraction)) +
-                           " % of the largest): the spectral amplitude is not constrained, only its centroid (the delay-averaged spectrum is broadened by streaking)");
+                           " % of the largest): the spectral amplitude is not constrained, and the frequency-shift ambiguity is fixed by a zero mean of A(t) over the scan");
   }
   {
     std::vector<double> Wv(W.begin(), W.end()), dens(ff.size());
@@ -253,6 +281,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   pr.central_momentum_au = s.central_momentum_au;
   pr.ir_omega_au = units::wavelength_nm_to_omega_au(trace.meta.ir_wavelength_nm);
   pr.field_free_spectrum = ff;
+  pr.reference = s.reference;
   pr.dipole = DipoleModel(opt.dipole, ip, s.central_momentum_au);
   if (s.bandwidth_ratio > 0.1)
     s.warnings.push_back("bandwidth/energy = " + std::to_string(s.bandwidth_ratio) +

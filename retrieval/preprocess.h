@@ -20,9 +20,11 @@
 //      (DESIGN.md: the photoelectron, not the photon, spectrum);
 //   6. the field-free spectrum: the mean of the delay rows least affected by the IR (rows at
 //      the scan edges whose centroid shift is below `field_free_shift_fraction` of the
-//      largest shift), else the delay-averaged spectrum,
-//      flagged (field_free_measured = false): it is broadened by the streaking, so it then
-//      serves as initial guess and centroid reference only, not as an amplitude constraint;
+//      largest shift). Runs spanning at least one IR period are field-free (kFieldFree:
+//      amplitude and centroid); shorter runs are only weakly streaked (kEdgeRows: shape only,
+//      their centroid can be off by the residual shift); without such rows the
+//      delay-averaged spectrum (kDelayAverage, field_free_measured = false): it is broadened
+//      by the streaking, so it then serves as initial guess only;
 //   7. the XUV grid: frequency step = energy step, size the next power of two >= 2x the number
 //      of energy bins (so the measured band sits inside the FFT band with margin).
 
@@ -63,9 +65,11 @@ struct PreprocessSummary {
   double bandwidth_fwhm_eV = 0.0;       ///< of the field-free photoelectron spectrum
   double bandwidth_ratio = 0.0;         ///< bandwidth / centroid energy (CMA validity)
   std::string field_free_source;        ///< "N edge rows ..." or "delay average"
-  /// True when real field-free rows were found; otherwise the engines constrain only the
-  /// spectral centroid, not the amplitude (the delay average is broadened by streaking).
+  /// True when field-free (or weakly streaked) edge rows were found; otherwise the engines
+  /// do not constrain the amplitude (the delay average is broadened by streaking).
   bool field_free_measured = false;
+  /// What the reference spectrum is (RetrievalProblem::reference).
+  ReferenceSpectrum reference = ReferenceSpectrum::kDelayAverage;
   std::size_t grid_size = 0;
   double grid_dt_as = 0.0;
   double total_counts = 0.0;

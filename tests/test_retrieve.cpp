@@ -90,14 +90,13 @@ TEST_CASE("satellites are seen and classified", "[.][gap][retrieve]") {
   CHECK(c.out.result.verdict->pulse_class == PulseClass::kIsolatedWithSatellites);
 }
 
-// Known gap (hidden from the default run): the Poisson bootstrap spread is ~10x smaller than the
-// systematic bias of the CMA engines on direct-quadrature data (0/20 within 1 sigma).
-TEST_CASE("bootstrap sigmas cover the truth", "[.][gap][retrieve][slow]") {
+TEST_CASE("bootstrap sigmas cover the truth", "[retrieve][slow]") {
   // Wang, Zeek, Trebino and Kvam, JOSA B 20, 2400 (2003): bootstrap error bars; a calibrated
   // 1-sigma interval holds the truth in ~68 % of cases, 3 sigma in ~99.7 % (normal statistics).
+  // The neon reference scan at 100 peak counts and a 0.2 fs delay step; its edge rows are
+  // weakly streaked (shape reference, retrieval/preprocess.h).
   synthetic::ScanConfig cfg = synthetic::find_preset("neon-150as").config;
-  cfg.geometry.delay_fs = {-5.0, 0.2, 51};
-  cfg.geometry.energy_eV = {50.0, 0.25, 200};
+  cfg.geometry.delay_fs = {-6.0, 0.2, 61};
   cfg.noise.peak_counts = 100.0;
   int in1 = 0, in3 = 0, n = 0;
   for (unsigned long long seed = 1; seed <= 10; ++seed) {
