@@ -259,6 +259,7 @@ std::string batch_options_string(const BatchOptions& o) {
   std::ostringstream s;
   s << "analysis=" << to_string(o.analysis) << ";atomic_correction=" << o.atomic_correction
     << ";bootstrap=" << r.bootstrap << ";cma_phase_error_max_rad=" << num(r.cma_phase_error_max_rad)
+    << ";cma_trace_error_max_ratio=" << num(r.cma_trace_error_max_ratio)
     << ";dipole=" << to_string(r.preprocess.dipole)
     << ";despike=" << (r.preprocess.remove_hot_pixels ? 1 : 0) << ";engine=" << r.engine
     << ";isolated_max=" << num(r.isolated_max_satellite_ratio) << ";iterations=" << r.iterations
@@ -275,6 +276,7 @@ std::string scan_options_string(const BatchScan& scan, const BatchOptions& o) {
   std::ostringstream s;
   s << "analysis=" << to_string(e.analysis) << ";atomic_correction=" << o.atomic_correction
     << ";bootstrap=" << r.bootstrap << ";cma_phase_error_max_rad=" << num(r.cma_phase_error_max_rad)
+    << ";cma_trace_error_max_ratio=" << num(r.cma_trace_error_max_ratio)
     << ";dipole=" << to_string(r.preprocess.dipole)
     << ";despike=" << (r.preprocess.remove_hot_pixels ? 1 : 0)
     << ";engine=" << e.overrides.engine.value_or(r.engine)

@@ -80,7 +80,7 @@ void apply_config(BatchArgs& a) {
     static const std::vector<std::string> known = {
         "analysis",        "engine",       "iterations",     "bootstrap",   "seed",
         "threads",         "jobs",         "dipole",         "despike",     "atomic_correction",
-        "cma_phase_limit", "isolated_max", "satellites_max", "max_seconds", "resume"};
+        "cma_phase_limit", "cma_fit_limit", "isolated_max", "satellites_max", "max_seconds", "resume"};
     if (std::find(known.begin(), known.end(), k) == known.end()) {
       std::string list = "gas, ir_wavelength_nm, kind";
       for (const auto& n : known) list += ", " + n;
@@ -115,6 +115,8 @@ void apply_config(BatchArgs& a) {
       a.options.atomic_correction = get_string(k, v);
     else if (k == "cma_phase_limit")
       r.cma_phase_error_max_rad = get_number(k, v);
+    else if (k == "cma_fit_limit")
+      r.cma_trace_error_max_ratio = get_number(k, v);
     else if (k == "isolated_max")
       r.isolated_max_satellite_ratio = get_number(k, v);
     else if (k == "satellites_max")
@@ -225,7 +227,7 @@ void add_batch_command(CLI::App& app) {
       "temporary folder renamed into place. Then DIR/summary.csv, summary.json, trend_*.png and\n"
       "index.html. A failed scan never stops the batch.\n"
       "--config FILE (JSON or YAML): the options below as keys (analysis, engine, iterations,\n"
-      "bootstrap, seed, threads, jobs, dipole, despike, atomic_correction, cma_phase_limit,\n"
+      "bootstrap, seed, threads, jobs, dipole, despike, atomic_correction, cma_phase_limit, cma_fit_limit,\n"
       "isolated_max, satellites_max, max_seconds, resume), plus gas, ir_wavelength_nm and kind\n"
       "applied to every scan (manifest rows win); command-line options win over the file.\n"
       "Seeds: each scan's seed derives from --seed and its name, so results do not depend on\n"
@@ -271,6 +273,10 @@ void add_batch_command(CLI::App& app) {
   a->cli["cma_phase_limit"] =
       cmd->add_option("--cma-phase-limit", a->options.retrieve.cma_phase_error_max_rad,
                       "retrieve auto: CMA phase error (rad) above which the full model refines")
+          ->capture_default_str();
+  a->cli["cma_fit_limit"] =
+      cmd->add_option("--cma-fit-limit", a->options.retrieve.cma_trace_error_max_ratio,
+                      "retrieve auto: CMA trace error / noise floor above which the full model refines")
           ->capture_default_str();
   a->cli["isolated_max"] =
       cmd->add_option("--isolated-max", a->options.retrieve.isolated_max_satellite_ratio,

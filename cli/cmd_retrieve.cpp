@@ -89,6 +89,8 @@ void add_retrieve_command(CLI::App& app) {
   cmd->add_option("--dipole", a->dipole, "dipole model: constant | hydrogenic")->capture_default_str();
   cmd->add_option("--cma-phase-limit", a->options.cma_phase_error_max_rad,
                   "auto: CMA phase error (rad) above which the full model refines")->capture_default_str();
+  cmd->add_option("--cma-fit-limit", a->options.cma_trace_error_max_ratio,
+                  "auto: CMA trace error / noise floor above which the full model refines")->capture_default_str();
   cmd->add_option("--isolated-max", a->options.isolated_max_satellite_ratio,
                   "verdict: largest satellite/main intensity for 'isolated' (common practice)")->capture_default_str();
   cmd->add_option("--satellites-max", a->options.satellites_max_satellite_ratio,

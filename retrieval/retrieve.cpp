@@ -24,6 +24,7 @@ std::string RetrieveOptions::validate() const {
              satellites_max_satellite_ratio <= 1))
     s << "satellite thresholds " << isolated_max_satellite_ratio << ", " << satellites_max_satellite_ratio
       << ": need 0 < isolated < satellites <= 1";
+  else if (!(cma_trace_error_max_ratio > 1)) s << "cma_trace_error_max_ratio = " << cma_trace_error_max_ratio << ": must be > 1";
   else if (!(max_seconds > 0)) s << "max_seconds = " << max_seconds << ": must be > 0";
   else if (auto e = preprocess.validate(); !e.empty()) s << "preprocess." << e;
   return s.str();
@@ -189,13 +190,31 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     out.cma_phase_error_rad = cma_phase_error(first.ir, pr.central_momentum_au, Wc - hw, Wc + hw,
                                               pr.delay_au.front() - s_half, pr.delay_au.back() + s_half);
     final_engine = "ptychographic";
-    if (out.cma_phase_error_rad > opt.cma_phase_error_max_rad) {
+    const double floor = first.noise_floor_trace_error;
+    out.cma_trace_error_ratio = floor > 0 ? first.trace_error / floor : 0.0;
+    const bool cma_limited = out.cma_phase_error_rad > opt.cma_phase_error_max_rad;
+    const bool not_fitted = out.cma_trace_error_ratio > opt.cma_trace_error_max_ratio;
+    if (cma_limited || not_fitted) {
       EngineOptions fo = eo;
       fo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
       fo.initial_xuv = first.xuv;
       fo.initial_ir = first.ir;
       out.chain.push_back(run("full-model", fo));
+      out.full_model_start = "the CMA result";
       final_engine = "full-model";
+      if (not_fitted) {
+        // The CMA result may sit in a local minimum (multi-burst pulses): also start the full
+        // model from its own guess (parametric IR) and keep the better fit.
+        EngineOptions co = eo;
+        co.max_iterations = fo.max_iterations;
+        out.chain.push_back(run("full-model", co));
+        const std::size_t n = out.chain.size();
+        out.full_model_start = "its own guess (better G than from the CMA result)";
+        if (out.chain[n - 2].trace_error < out.chain[n - 1].trace_error) {
+          std::swap(out.chain[n - 2], out.chain[n - 1]);  // the chain ends with the result used
+          out.full_model_start = "the CMA result (better G than from its own guess)";
+        }
+      }
     }
   } else {
     out.chain.push_back(run(opt.engine, eo));
@@ -321,7 +340,11 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   P("fit.model", rec.model);
   P("fit.noise_floor_trace_error", rec.noise_floor_trace_error);
   P("fit.scale", rec.scale);
-  if (opt.engine == "auto") P("fit.cma_phase_error_rad", out.cma_phase_error_rad);
+  if (opt.engine == "auto") {
+    P("fit.cma_phase_error_rad", out.cma_phase_error_rad);
+    P("fit.cma_trace_error_ratio", out.cma_trace_error_ratio);
+    if (!out.full_model_start.empty()) P("fit.full_model_start", out.full_model_start);
+  }
   std::string chain;
   for (const auto& c : out.chain) chain += (chain.empty() ? "" : " -> ") + c.engine;
   P("fit.engine_chain", chain);
@@ -331,6 +354,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   P("settings.seed", static_cast<long long>(opt.seed));
   P("settings.threads", static_cast<long long>(opt.threads));
   P("settings.cma_phase_error_max_rad", opt.cma_phase_error_max_rad);
+  P("settings.cma_trace_error_max_ratio", opt.cma_trace_error_max_ratio);
   P("settings.isolated_max_satellite_ratio", opt.isolated_max_satellite_ratio);
   P("settings.satellites_max_satellite_ratio", opt.satellites_max_satellite_ratio);
   P("settings.dipole", std::string(to_string(opt.preprocess.dipole)));
