@@ -41,13 +41,29 @@ AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job, cons
 AnalysisResult run_classify_analysis(const Trace& trace, const ScanJob& job, const std::vector<Param>& prov);
 AnalysisKind auto_analysis(const Trace& trace);
 
+std::vector<std::string> input_warnings(const Trace& trace) {
+  std::vector<std::string> w;
+  const std::string s = param_string(trace.meta.calibration, "calibration.warning");
+  if (!s.empty()) w.push_back(s);
+  return w;
+}
+
 ScanOutcome run_scan(const ScanJob& job) {
   ScanOutcome o;
   const auto t0 = std::chrono::steady_clock::now();
   try {
-    Trace trace = read_trace(job.sidecar);
+    // The reader sees the overrides too: a time-of-flight fit needs the gas, wavelength and
+    // kind the analysis will use. An unparsable kind is left to apply_overrides' message.
+    TraceReadOverrides read_overrides;
+    read_overrides.gas = job.overrides.gas;
+    read_overrides.ir_wavelength_nm = job.overrides.ir_wavelength_nm;
+    if (TraceKind k; job.overrides.kind && parse_trace_kind(*job.overrides.kind, &k))
+      read_overrides.kind = k;
+    Trace trace = read_trace(job.sidecar, nullptr, read_overrides);
     apply_overrides(trace, job.overrides);
     std::vector<Param> prov = provenance(job.sidecar, trace.meta.image, "");
+    // The calibration of a time-of-flight axis (calibration.*) goes into every result.
+    for (const Param& p : trace.meta.calibration) prov.push_back(p);
     AnalysisKind kind = job.analysis == AnalysisKind::kAuto ? auto_analysis(trace) : job.analysis;
     o.analysis_run = kind;
     for (Param& p : prov)
@@ -56,13 +72,14 @@ ScanOutcome run_scan(const ScanJob& job) {
     if (kind == AnalysisKind::kRetrieve) {
       RetrieveOptions ro = job.retrieve;
       if (job.overrides.engine) ro.engine = *job.overrides.engine;
-      const RetrieveOutput out = retrieve(trace, ro, [&](const std::string& stage, const IterationRecord& r) {
+      RetrieveOutput out = retrieve(trace, ro, [&](const std::string& stage, const IterationRecord& r) {
         if (!job.progress) return;
         std::ostringstream m;
         m.precision(4);
         m << "iteration " << r.iteration << ", G = " << r.trace_error << ", " << r.seconds << " s";
         job.progress(stage, m.str());
       });
+      for (const std::string& w : input_warnings(trace)) out.result.warnings.push_back(w);
       write_retrieval_outputs(trace, out, job.out_dir, prov);
       o.result = out.result;
       for (const Param& p : prov) o.result.extra.push_back(p);

@@ -20,6 +20,16 @@
 //   tof_ns + calibration  time-of-flight axis (ns) with {length_m, t0_ns, energy_offset_eV}
 //                       (optional energy_count, energy_min_eV, energy_max_eV), converted to a
 //                       uniform energy axis conserving counts (io/tof_calibration.h).
+//                       With "fit": "harmonics" in the block, length_m, t0_ns and
+//                       energy_offset_eV are the initial guess of a fit of the calibration to
+//                       the harmonic peaks q hbar omega - Ip of the delay-summed TOF spectrum
+//                       (io/tof_fit.h; needs gas and ir_wavelength_nm). Optional fit keys:
+//                         harmonic_step      1 (harmonics and sidebands) or 2 (odd harmonics);
+//                                            default 1 for kind rabbitt, else 2
+//                         fit_energy_offset  true: fit E_offset too (default false)
+//                         min_peak_fraction  peak detection threshold, (0, 1) (default 0.05)
+//                       The calibration used (and the fit's peaks and residuals) is recorded
+//                       in meta.calibration (retrieval/trace.h).
 //   delay_fs            delay axis tau = t_XUV - t_IR (fs), or instead
 //   delay_um            delay-stage (mirror) travel x in micrometres, tau = 2 x / c
 //                       (1 um = 6.671 fs; retro-reflecting stage, double pass).
@@ -41,6 +51,7 @@
 // monotonic axis, NaN/inf/negative counts with their position, empty or all-zero image,
 // unknown kind, non-numeric CSV cell with line/column). Inputs are opened read-only.
 
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -48,10 +59,21 @@
 
 namespace sw {
 
+/// Values given outside the sidecar (batch manifest, config file, command line) that replace
+/// the sidecar's on reading, so that a time-of-flight fit uses the gas, wavelength and kind
+/// the analysis will use. nullopt = the sidecar's value.
+struct TraceReadOverrides {
+  std::optional<std::string> gas;          ///< replaces "gas"
+  std::optional<double> ir_wavelength_nm;  ///< replaces "ir_wavelength_nm" (nm, > 0)
+  std::optional<TraceKind> kind;           ///< replaces "kind"
+};
+
 /// Reads the scan described by the sidecar at `sidecar_path` (see above). Non-fatal remarks
-/// (8-bit image, time-of-flight counts dropped outside the energy window, ...) are appended
-/// to `warnings` when it is given.
-Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warnings = nullptr);
+/// (8-bit image, time-of-flight counts dropped outside the energy window, a fitted
+/// calibration whose residual exceeds the resolution, ...) are appended to `warnings` when it
+/// is given. `overrides` are applied to meta before anything uses them.
+Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warnings = nullptr,
+                 const TraceReadOverrides& overrides = {});
 
 /// The sidecar keys the reader interprets itself (everything else goes to meta.extra_json).
 const std::vector<std::string>& known_sidecar_keys();

@@ -10,6 +10,8 @@
 
 #include <Eigen/Core>
 
+#include "retrieval/result.h"
+
 namespace sw {
 
 /// What kind of scan the sidecar says this is (a hint; analyses may decide for themselves).
@@ -33,6 +35,23 @@ struct TraceMeta {
   /// Sidecar keys the contract does not define: key -> JSON text of the value, echoed into
   /// result.json untouched.
   std::map<std::string, std::string> extra_json;
+  /// How the energy axis was obtained from a time-of-flight axis (empty for a scan recorded
+  /// on an energy axis, and for synthetic scans): the calibration actually applied, as
+  /// records under dotted keys "calibration.*" that every analysis copies into result.extra
+  /// (so result.json carries them). Filled by io/trace_reader.cpp:
+  ///   calibration.source             "sidecar" (fixed numbers) or "fit: harmonics" (fitted
+  ///                                  from the harmonic peaks, io/tof_fit.h)
+  ///   calibration.length_m, .t0_ns, .energy_offset_eV   the values used (m, ns, eV)
+  ///   calibration.energy_step_eV, .counts_outside_fraction   output bin width; share of the
+  ///                                  counts that fell outside the energy window
+  /// and with a fit, in addition: the 1-sigma uncertainties (.length_m_sigma, .t0_ns_sigma,
+  /// .energy_offset_eV_sigma when E_offset was fitted), the initial guess (calibration.initial.*)
+  /// and calibration.fit.* (gas, Ip and hbar omega used, harmonic step, number of peaks, rms
+  /// residual in eV, per-peak orders, flight times and residuals in eV and ns, the fit's
+  /// message). "calibration.warning" (a string) is present when the fit's rms residual exceeds
+  /// the spectrometer resolution (energy_resolution_eV, else the output energy step); the
+  /// analyses also add it to the result's warnings.
+  std::vector<Param> calibration;
 };
 
 struct Trace {
