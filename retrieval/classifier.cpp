@@ -220,6 +220,8 @@ std::string ClassifierOptions::validate() const {
     return bad("delay_streaking_max_share", delay_streaking_max_share,
                "in (0, delay_train_min_share = " + num(delay_train_min_share) + ")");
   if (!(min_total_counts > 0.0)) return bad("min_total_counts", min_total_counts, "> 0");
+  if (!(retrieval_max_trace_error_ratio > 1.0))
+    return bad("retrieval_max_trace_error_ratio", retrieval_max_trace_error_ratio, "> 1");
   return {};
 }
 
@@ -295,6 +297,7 @@ VerdictSection classify(const Trace& trace, const ClassifierOptions& opt,
   E("signal.total_counts", total);
   E("thresholds.isolated_max_satellite_ratio", opt.isolated_max_satellite_ratio);
   E("thresholds.satellite_max_ratio", opt.satellite_max_ratio);
+  E("thresholds.retrieval_max_trace_error_ratio", opt.retrieval_max_trace_error_ratio);
   E("thresholds.comb_min_period_contrast", opt.comb_min_period_contrast);
 
   // Spectral evidence.
@@ -346,18 +349,35 @@ VerdictSection classify(const Trace& trace, const ClassifierOptions& opt,
 
   // Retrieval evidence.
   std::optional<PulseClass> retrieval_class;
+  std::string untrusted_note;
   if (rec) {
     const BurstStructure b = burst_structure(rec->xuv, T);
     E("retrieval.satellite_intensity_ratio", b.satellite_intensity_ratio);
     E("retrieval.main_burst_energy_fraction", b.main_burst_energy_fraction);
     E("retrieval.comparable_bursts", static_cast<long long>(b.comparable_bursts));
     E("retrieval.engine", rec->engine);
-    retrieval_class = b.comparable_bursts >= opt.train_min_comparable_bursts
-                          ? PulseClass::kTrain
-                          : class_from_ratio(b.satellite_intensity_ratio, opt);
-    E("retrieval.class", std::string(to_string(*retrieval_class)));
-    v.satellite_intensity_ratio = b.satellite_intensity_ratio;
+    const double ratio = rec->noise_floor_trace_error > 0
+                             ? rec->trace_error / rec->noise_floor_trace_error
+                             : 0.0;
+    const bool trusted = !(ratio > opt.retrieval_max_trace_error_ratio);
+    E("retrieval.trace_error_ratio", ratio);
+    E("retrieval.trusted", trusted);
+    const PulseClass rc = b.comparable_bursts >= opt.train_min_comparable_bursts
+                              ? PulseClass::kTrain
+                              : class_from_ratio(b.satellite_intensity_ratio, opt);
+    E("retrieval.class", std::string(to_string(rc)));
     v.main_burst_energy_fraction = b.main_burst_energy_fraction;
+    if (trusted) {
+      retrieval_class = rc;
+      v.satellite_intensity_ratio = b.satellite_intensity_ratio;
+    } else {
+      untrusted_note = "the reconstruction (" + rec->engine + ", G = " + num(ratio) +
+                       " x the noise floor) did not explain the data and is not used";
+      if (spectral_class && *spectral_class != PulseClass::kTrain)
+        v.satellite_intensity_ratio = sat_spec;
+      else
+        v.satellite_intensity_ratio = b.satellite_intensity_ratio;
+    }
   } else if (spectral_class && *spectral_class != PulseClass::kTrain) {
     v.satellite_intensity_ratio = sat_spec;
   }
@@ -430,6 +450,7 @@ VerdictSection classify(const Trace& trace, const ClassifierOptions& opt,
     v.pulse_class = PulseClass::kUndetermined;
     why << "not enough evidence: " << describe_spectrum() << "; " << describe_delay();
   }
+  if (!untrusted_note.empty()) why << " (" << untrusted_note << ")";
   v.reason = why.str();
   return v;
 }

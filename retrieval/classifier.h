@@ -44,7 +44,8 @@
 //
 // Decision (thresholds are options; defaults are DESIGN.md's, common practice, no published
 // standard): a class from each available piece of evidence, then
-//   - retrieval given: its class (comparable_bursts >= train_min_comparable_bursts -> train;
+//   - retrieval given and trusted (trace error <= retrieval_max_trace_error_ratio x its noise
+//     floor; otherwise it is reported as "retrieval.trusted" = false and ignored): its class (comparable_bursts >= train_min_comparable_bursts -> train;
 //     satellite ratio <= isolated_max_satellite_ratio -> isolated; < satellite_max_ratio ->
 //     isolated_with_satellites; else train), unless the spectral or delay evidence contradicts it
 //     by a full step (isolated vs train) -> undetermined;
@@ -82,6 +83,11 @@ struct ClassifierOptions {
   double delay_streaking_max_share = 0.35;
   /// Fewer counts in the whole trace -> undetermined (> 0).
   double min_total_counts = 2000.0;
+  /// A reconstruction whose trace error exceeds this multiple of its noise floor has not
+  /// explained the data (a stalled engine): its bursts are reported as evidence but do not
+  /// decide the class (> 1; our choice: converged fits sit at 1-1.4 x, stalled CMA runs on
+  /// multi-burst pulses at 4-6 x). Ignored when the reconstruction has no noise floor.
+  double retrieval_max_trace_error_ratio = 2.0;
 
   /// Empty when valid; otherwise names the field, its value and the constraint.
   std::string validate() const;
