@@ -208,6 +208,24 @@ TEST_CASE("a reconstruction is used and checked against the scan's evidence", "[
   const VerdictSection w =
       classify(streaking_trace(make_gaussian_xuv(streak_grid(), burst()), {}), o, &iso);
   CHECK(w.pulse_class == PulseClass::kIsolated);
+
+  // A satellite scan "explained" by an isolated reconstruction that stalled at 5 x its noise
+  // floor: the reconstruction is not trusted, the spectral evidence decides (a stalled engine
+  // must not hide satellites; the threshold is ours, common practice has no standard).
+  Reconstruction stalled = iso;
+  stalled.trace_error = 0.05;
+  stalled.noise_floor_trace_error = 0.01;
+  const VerdictSection x = classify(streaking_trace(sat_field, {}), o, &stalled);
+  INFO(x.reason);
+  CHECK(x.pulse_class == PulseClass::kIsolatedWithSatellites);
+  CHECK_THAT(x.reason, Catch::Contains("not used"));
+  const Param* t = find_param(x.evidence, "retrieval.trusted");
+  REQUIRE(t);
+  CHECK(param_text(*t) == "false");
+  // The same reconstruction at 1.2 x its floor is trusted (and then says isolated).
+  stalled.trace_error = 0.012;
+  const VerdictSection y = classify(streaking_trace(sat_field, {}), o, &stalled);
+  CHECK(y.pulse_class != PulseClass::kIsolatedWithSatellites);
 }
 
 TEST_CASE("weak signal, missing IR wavelength and bad options", "[classifier]") {
