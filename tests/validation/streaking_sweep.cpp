@@ -22,6 +22,7 @@ namespace {
 struct Row {
   std::string group, label, engine;
   double truth_fwhm, fwhm, truth_a0, a0, truth_gdd, gdd, G, floor, seconds;
+  double truth_ec = 0, ec = 0, truth_sat = 0, sat = 0;
 };
 
 synthetic::ScanConfig base() {
@@ -51,6 +52,10 @@ int main(int argc, char** argv) {
               *scan.truth.ir->peak_vector_potential_au, r.result.ir->peak_vector_potential_au.value_or(0),
               scan.truth.xuv->gdd_as2.value_or(0), r.result.xuv->gdd_as2.value_or(0), r.reconstruction.trace_error,
               r.reconstruction.noise_floor_trace_error, r.result.fit->seconds.value_or(0)};
+      row.truth_ec = scan.truth.xuv->center_photon_energy_eV.value_or(0);
+      row.ec = r.result.xuv->center_photon_energy_eV.value_or(0);
+      row.truth_sat = scan.truth.verdict->satellite_intensity_ratio.value_or(0);
+      row.sat = r.result.verdict->satellite_intensity_ratio.value_or(0);
       std::fprintf(stderr, "%-10s %-22s %-14s FWHM %7.1f / %7.1f  A0 %.4f / %.4f  GDD %7.0f / %7.0f\n", group.c_str(),
                    label.c_str(), row.engine.c_str(), row.fwhm, row.truth_fwhm, row.a0, row.truth_a0, row.gdd,
                    row.truth_gdd);
@@ -97,16 +102,21 @@ int main(int argc, char** argv) {
     c.geometry.delay_fs = {-6.0, 0.15, 81};
     run("broadband", "70 as at 130 eV (He)", c, {"ptychographic", "projections", "auto"});
   }
+  {
+    auto c = synthetic::find_preset("neon-satellites").config;
+    c.geometry.delay_fs = {-6.0, 0.15, 81};
+    run("satellites", "15 % / 8 % at -/+T/2", c, {"ptychographic", "auto"});
+  }
 
   std::ostringstream md;
   md << "| group | case | engine | FWHM truth (as) | FWHM (as) | error | A0 truth (a.u.) | A0 (a.u.) | error | "
-        "GDD truth (as^2) | GDD (as^2) | G / G_noise | time (s) |\n|---|---|---|---|---|---|---|---|---|---|---|---|---|\n";
+        "GDD truth (as^2) | GDD (as^2) | centre truth (eV) | centre (eV) | satellites truth | satellites | G / G_noise | time (s) |\n|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|\n";
   char buf[512];
   for (const Row& r : rows) {
-    std::snprintf(buf, sizeof buf, "| %s | %s | %s | %.1f | %.1f | %+.1f %% | %.4f | %.4f | %+.1f %% | %.0f | %.0f | %.2f | %.1f |\n",
+    std::snprintf(buf, sizeof buf, "| %s | %s | %s | %.1f | %.1f | %+.1f %% | %.4f | %.4f | %+.1f %% | %.0f | %.0f | %.2f | %.2f | %.3f | %.3f | %.2f | %.1f |\n",
                   r.group.c_str(), r.label.c_str(), r.engine.c_str(), r.truth_fwhm, r.fwhm,
                   100 * (r.fwhm - r.truth_fwhm) / r.truth_fwhm, r.truth_a0, r.a0, 100 * (r.a0 - r.truth_a0) / r.truth_a0,
-                  r.truth_gdd, r.gdd, r.G / r.floor, r.seconds);
+                  r.truth_gdd, r.gdd, r.truth_ec, r.ec, r.truth_sat, r.sat, r.G / r.floor, r.seconds);
     md << buf;
   }
   std::ofstream(out + "/validation_streaking_table.md") << md.str();
