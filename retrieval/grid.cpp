@@ -70,8 +70,12 @@ Fft::Fft(std::size_t n) : n_(n) {
     CVec a(n), b(n);
     auto* in = reinterpret_cast<fftw_complex*>(a.data());
     auto* out = reinterpret_cast<fftw_complex*>(b.data());
-    // MEASURE pays off for the engine sizes used thousands of times; large one-off sizes plan fast.
-    const unsigned flags = n <= 8192 ? FFTW_MEASURE : FFTW_ESTIMATE;
+    // ESTIMATE: the plan depends only on n, so every process (batch jobs, shards, re-runs)
+    // computes bit-identical results; MEASURE picks plans by timing, and iterative engines
+    // turned its last-digit differences into different summaries between runs. Cost: one FFT
+    // of 1024 points 1.5x slower, one ptychographic iteration 1.26x (docs/performance.md).
+    // Execution arrays are CVec (fftw_malloc alignment, as the planning arrays).
+    const unsigned flags = FFTW_ESTIMATE;
     p->backward = fftw_plan_dft_1d(static_cast<int>(n), in, out, FFTW_BACKWARD, flags);
     p->forward = fftw_plan_dft_1d(static_cast<int>(n), in, out, FFTW_FORWARD, flags);
   }
