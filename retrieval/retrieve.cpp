@@ -270,7 +270,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   if (opt.bootstrap >= 2) {
     // Bootstrap bias correction (Efron and Tibshirani, An Introduction to the Bootstrap,
     // Chapman & Hall 1993, ch. 10): bias = mean(replicas) - estimate; when |bias| exceeds a
-    // quarter of the standard error (their rule of thumb) the headline becomes
+    // quarter of the standard error (their rule of thumb) and B >= 4 the headline becomes
     // estimate - bias, and sigma includes the bias estimate's own spread, s sqrt(1 + 1/B).
     // Noise lengthens a retrieved pulse (phase noise); the replicas, with the noise doubled,
     // show that lengthening again. The satellite ratio stays uncorrected (the verdict uses it).
@@ -283,7 +283,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
       const double bias = mean - *value;
       res.extra.push_back({std::string("bootstrap.") + key + "_uncorrected", *value});
       res.extra.push_back({std::string("bootstrap.") + key + "_bias", bias});
-      const bool apply = std::abs(bias) > 0.25 * sd;
+      // With fewer than 4 replicas the bias estimate is too noisy to apply (our choice).
+      const bool apply = B >= 4 && std::abs(bias) > 0.25 * sd;
       res.extra.push_back({std::string("bootstrap.") + key + "_bias_corrected", apply});
       if (apply) {
         value = *value - bias;
