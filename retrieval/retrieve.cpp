@@ -301,6 +301,12 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   } else {
     res.warnings.push_back("no bootstrap replicas (--bootstrap < 2): no uncertainties reported");
   }
+  if (v.pulse_class == PulseClass::kTrain && final_engine != "full-model")
+    res.warnings.push_back(
+        "pulse train retrieved with a CMA engine: the burst phases (attochirp) are reliable, but "
+        "one central momentum for the whole harmonic comb distorts the harmonic amplitudes "
+        "(transform-limited burst ~6 % long) and the IR peak A0 (+49 % on the argon RABBITT "
+        "preset, docs/validation.md); use `rabbitt` for the burst and the sideband analysis");
   res.verdict = v;
   FitSection f;
   f.trace_error = rec.trace_error;
