@@ -223,11 +223,11 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   const Reconstruction& rec = out.reconstruction;
   const PulseMetrics m = pulse_metrics(rec, pr.ir_omega_au);
 
-  // Bootstrap: each replica repeats the analysis on a Poisson draw of the counts. A CMA
-  // engine restarts from its own initial guess with its own delay order (a warm start from the
-  // final estimate sits already at the noise floor and barely moves: the spread came out ~5x too
-  // small); the full model, too costly to rerun from scratch, restarts from the final estimate
-  // and runs to its own minimum (noise-floor stop off).
+  // Bootstrap: each replica repeats the whole analysis on a Poisson draw of the counts: the
+  // CMA engine from its own initial guess with its own delay order, the full model from that
+  // replica's CMA result (or from its own guess, as the estimate did). A warm start from the
+  // final estimate sits at the noise floor already and barely moves: the spread came out 5x
+  // (CMA) to 20x (full model) too small.
   std::vector<double> bf, bg, ba, bs;
   for (int b = 0; b < opt.bootstrap; ++b) {
     const Trace rep = poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
@@ -238,11 +238,16 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     const std::string stage = "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
     Reconstruction br;
     if (final_engine == "full-model") {
-      bo.max_iterations = std::max(20, (opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations) / 3);
-      bo.noise_floor_factor = 0.0;
-      bo.initial_xuv = rec.xuv;
-      bo.initial_ir = rec.ir;
-      br = run_on(rp, final_engine, bo, stage);
+      // The same chain as the estimate: from the replica's own CMA result, or from the full
+      // model's own guess when that is where the estimate came from.
+      EngineOptions fo = bo;
+      fo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+      if (opt.engine == "auto" && out.full_model_start.rfind("the CMA result", 0) == 0) {
+        const Reconstruction c = run_on(rp, "ptychographic", bo, stage);
+        fo.initial_xuv = c.xuv;
+        fo.initial_ir = c.ir;
+      }
+      br = run_on(rp, "full-model", fo, stage);
     } else {
       br = run_on(rp, final_engine, bo, stage);
     }

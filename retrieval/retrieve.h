@@ -17,8 +17,10 @@
 //
 // Uncertainties: parametric bootstrap (Wang, Zeek, Trebino and Kvam, JOSA B 20, 2400 (2003),
 // with Poisson resampling of the counts in place of resampling data points): each replica is
-// a Poisson draw of the measured counts, preprocessed identically and re-retrieved warm-started
-// from the final reconstruction; sigma = sample standard deviation over replicas.
+// a Poisson draw of the measured counts, preprocessed identically and analysed by the same
+// engine chain from the same kind of start (never warm-started from the final estimate, which
+// under-states the spread); sigma = sample standard deviation over replicas, with the
+// bootstrap bias correction of Efron and Tibshirani (1993) when the replicas show a bias.
 
 #include <array>
 #include <functional>
