@@ -65,8 +65,10 @@ TEST_CASE("chirp sign comes out right for both signs", "[retrieve]") {
   }
 }
 
-TEST_CASE("broadband pulse: the full model is right where the CMA is not", "[retrieve][slow]") {
-  // Bandwidth/energy ~0.25: the CMA neglects (p - p0)(I1 - I1_mid), ~1 rad here.
+TEST_CASE("broadband pulse: auto refines with the full model, which fits better", "[retrieve][slow]") {
+  // Bandwidth/energy ~0.25: the CMA neglects (p - p_f)(I1 - I1_mid), ~0.9 rad here. (With the
+  // delay-adapted gate the CMA's FWHM is within 1 % too; its trace stays 1.3 x the noise floor
+  // where the full model reaches it, and its error is printed, not hidden.)
   const Case cma = run_preset("helium-70as", "ptychographic");
   const Case au = run_preset("helium-70as", "auto");
   const double truth = *au.scan.truth.xuv->fwhm_as;
