@@ -41,12 +41,7 @@ AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job, cons
 AnalysisResult run_classify_analysis(const Trace& trace, const ScanJob& job, const std::vector<Param>& prov);
 AnalysisKind auto_analysis(const Trace& trace);
 
-std::vector<std::string> input_warnings(const Trace& trace) {
-  std::vector<std::string> w;
-  const std::string s = param_string(trace.meta.calibration, "calibration.warning");
-  if (!s.empty()) w.push_back(s);
-  return w;
-}
+std::vector<std::string> input_warnings(const Trace& trace) { return trace.meta.read_warnings; }
 
 ScanOutcome run_scan(const ScanJob& job) {
   ScanOutcome o;
@@ -59,7 +54,9 @@ ScanOutcome run_scan(const ScanJob& job) {
     read_overrides.ir_wavelength_nm = job.overrides.ir_wavelength_nm;
     if (TraceKind k; job.overrides.kind && parse_trace_kind(*job.overrides.kind, &k))
       read_overrides.kind = k;
-    Trace trace = read_trace(job.sidecar, nullptr, read_overrides);
+    std::vector<std::string> read_warnings;
+    Trace trace = read_trace(job.sidecar, &read_warnings, read_overrides);
+    trace.meta.read_warnings = read_warnings;
     apply_overrides(trace, job.overrides);
     std::vector<Param> prov = provenance(job.sidecar, trace.meta.image, "");
     // The calibration of a time-of-flight axis (calibration.*) goes into every result.

@@ -87,9 +87,9 @@ ScanOutcome run_scan_or_throw(ScanJob job);
 /// Applies overrides to a loaded trace's metadata.
 void apply_overrides(Trace& trace, const ScanOverrides& o);
 
-/// Warnings about how the scan was read that every analysis adds to its result's warnings:
-/// today the "calibration.warning" record of a fitted time-of-flight calibration whose rms
-/// residual exceeds the spectrometer resolution (io/trace_reader.h, TraceMeta::calibration).
+/// Warnings about how the scan was read that every analysis adds to its result's warnings
+/// (TraceMeta::read_warnings, filled by run_scan from the reader: 8-bit images, counts outside
+/// a time-of-flight calibration window, a calibration fit above the resolution, ...).
 std::vector<std::string> input_warnings(const Trace& trace);
 
 }  // namespace sw::cli

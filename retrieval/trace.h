@@ -52,6 +52,9 @@ struct TraceMeta {
   /// the spectrometer resolution (energy_resolution_eV, else the output energy step); the
   /// analyses also add it to the result's warnings.
   std::vector<Param> calibration;
+  /// Warnings the reader gave about the input (8-bit image, counts outside the calibration
+  /// window, a poor calibration fit, ...); every analysis copies them into its result.
+  std::vector<std::string> read_warnings;
 };
 
 struct Trace {
