@@ -15,36 +15,10 @@ using namespace sw::testing;
 
 namespace {
 
-// See test_ptychographic.cpp: noise-free data have no floor to settle on.
-EngineOptions noise_free_options() {
-  EngineOptions o;
-  o.relative_tolerance = 0.02;
-  o.max_iterations = 400;
-  return o;
-}
-
 std::string setting(const Reconstruction& r, const std::string& key) {
   for (const auto& [k, v] : r.settings)
     if (k == key) return v;
   return "";
-}
-
-void check_truth(const Case& c, const Reconstruction& r, double tolerance) {
-  const Metrics truth = metrics(c.xuv, c.ir), got = metrics(r.xuv, r.ir);
-  INFO(r.brief_report());
-  INFO("FWHM truth " << truth.fwhm_as << " as, retrieved " << got.fwhm_as << " as");
-  INFO("GDD truth " << truth.gdd_as2 << " as^2, retrieved " << got.gdd_as2 << " as^2");
-  INFO("peak A truth " << truth.peak_A << ", retrieved " << got.peak_A);
-  // 5 % on duration and field (common practice for attosecond pulse characterisation); the
-  // chirp sign right (DESIGN.md pitfall) and its size within 10 %.
-  CHECK(std::abs(got.fwhm_as / truth.fwhm_as - 1) < tolerance);
-  CHECK(std::abs(got.peak_A / truth.peak_A - 1) < tolerance);
-  if (std::abs(truth.gdd_as2) > 1000) {
-    CHECK(got.gdd_as2 * truth.gdd_as2 > 0);
-    CHECK(std::abs(got.gdd_as2 / truth.gdd_as2 - 1) < 0.1);
-  } else {
-    CHECK(std::abs(got.gdd_as2) < 300);
-  }
 }
 
 }  // namespace

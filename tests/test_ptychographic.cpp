@@ -13,39 +13,6 @@
 using namespace sw;
 using namespace sw::testing;
 
-namespace {
-
-// Noise-free data keep improving G by a few per cent per 20 iterations for hundreds of
-// iterations (there is no noise floor to reach); "converged" here means a relative change of
-// G below 2 % over `patience` iterations.
-EngineOptions noise_free_options() {
-  EngineOptions o;
-  o.relative_tolerance = 0.02;
-  o.max_iterations = 400;
-  return o;
-}
-
-void check_truth(const Case& c, const Reconstruction& r, double tolerance) {
-  const Metrics truth = metrics(c.xuv, c.ir), got = metrics(r.xuv, r.ir);
-  INFO(r.brief_report());
-  INFO("FWHM truth " << truth.fwhm_as << " as, retrieved " << got.fwhm_as << " as");
-  INFO("GDD truth " << truth.gdd_as2 << " as^2, retrieved " << got.gdd_as2 << " as^2");
-  INFO("peak A truth " << truth.peak_A << ", retrieved " << got.peak_A);
-  // 5 % on the duration and the field: the accuracy the retrieval is specified for (common
-  // practice for attosecond pulse characterisation).
-  CHECK(std::abs(got.fwhm_as / truth.fwhm_as - 1) < tolerance);
-  CHECK(std::abs(got.peak_A / truth.peak_A - 1) < tolerance);
-  // The chirp-sign pitfall (DESIGN.md): the sign must come out right, the size within 10 %.
-  if (std::abs(truth.gdd_as2) > 1000) {
-    CHECK(got.gdd_as2 * truth.gdd_as2 > 0);
-    CHECK(std::abs(got.gdd_as2 / truth.gdd_as2 - 1) < 0.1);
-  } else {
-    CHECK(std::abs(got.gdd_as2) < 300);
-  }
-}
-
-}  // namespace
-
 TEST_CASE("ptychographic: transform-limited 150 as pulse", "[ptychographic]") {
   const Case c = make_case(CaseSpec{});
   const Reconstruction r = retrieve(c, "ptychographic", noise_free_options());
