@@ -180,6 +180,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   eo.max_seconds = opt.max_seconds;
 
   std::string final_engine = opt.engine;
+  bool full_model_from_cma = false;  // auto: the full model's result started from the CMA's
   if (opt.engine == "auto") {
     out.chain.push_back(run("ptychographic", eo));
     const Reconstruction& first = out.chain.back();
@@ -201,6 +202,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
       fo.initial_ir = first.ir;
       out.chain.push_back(run("full-model", fo));
       out.full_model_start = "the CMA result";
+      full_model_from_cma = true;
       final_engine = "full-model";
       if (not_fitted) {
         // The CMA result may sit in a local minimum (multi-burst pulses): also start the full
@@ -210,7 +212,9 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
         out.chain.push_back(run("full-model", co));
         const std::size_t n = out.chain.size();
         out.full_model_start = "its own guess (better G than from the CMA result)";
+        full_model_from_cma = false;
         if (out.chain[n - 2].trace_error < out.chain[n - 1].trace_error) {
+          full_model_from_cma = true;
           std::swap(out.chain[n - 2], out.chain[n - 1]);  // the chain ends with the result used
           out.full_model_start = "the CMA result (better G than from its own guess)";
         }
@@ -242,7 +246,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
       // model's own guess when that is where the estimate came from.
       EngineOptions fo = bo;
       fo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
-      if (opt.engine == "auto" && out.full_model_start.rfind("the CMA result", 0) == 0) {
+      if (full_model_from_cma) {
         const Reconstruction c = run_on(rp, "ptychographic", bo, stage);
         fo.initial_xuv = c.xuv;
         fo.initial_ir = c.ir;
