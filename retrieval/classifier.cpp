@@ -349,6 +349,7 @@ VerdictSection classify(const Trace& trace, const ClassifierOptions& opt,
 
   // Retrieval evidence.
   std::optional<PulseClass> retrieval_class;
+  std::optional<double> retrieval_ratio;
   std::string untrusted_note;
   if (rec) {
     const BurstStructure b = burst_structure(rec->xuv, T);
@@ -367,20 +368,21 @@ VerdictSection classify(const Trace& trace, const ClassifierOptions& opt,
                               : class_from_ratio(b.satellite_intensity_ratio, opt);
     E("retrieval.class", std::string(to_string(rc)));
     v.main_burst_energy_fraction = b.main_burst_energy_fraction;
-    if (trusted) {
+    retrieval_ratio = b.satellite_intensity_ratio;
+    if (trusted)
       retrieval_class = rc;
-      v.satellite_intensity_ratio = b.satellite_intensity_ratio;
-    } else {
+    else
       untrusted_note = "the reconstruction (" + rec->engine + ", G = " + num(ratio) +
                        " x the noise floor) did not explain the data and is not used";
-      if (spectral_class && *spectral_class != PulseClass::kTrain)
-        v.satellite_intensity_ratio = sat_spec;
-      else
-        v.satellite_intensity_ratio = b.satellite_intensity_ratio;
-    }
-  } else if (spectral_class && *spectral_class != PulseClass::kTrain) {
-    v.satellite_intensity_ratio = sat_spec;
   }
+  // The satellite ratio reported: the deciding reconstruction's, else the spectral estimate
+  // (not for a comb), else an untrusted reconstruction's.
+  if (retrieval_class)
+    v.satellite_intensity_ratio = retrieval_ratio;
+  else if (spectral_class && *spectral_class != PulseClass::kTrain)
+    v.satellite_intensity_ratio = sat_spec;
+  else if (retrieval_ratio)
+    v.satellite_intensity_ratio = retrieval_ratio;
 
   std::ostringstream why;
   auto describe_spectrum = [&]() {

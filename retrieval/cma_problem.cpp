@@ -330,7 +330,8 @@ void CmaProblem::impose_spectrum(CVec& eps, CVec& work) const {
   fft_.time_to_freq(eps, work);
   // The target amplitude per energy index: the reference itself, or (when only its shape is
   // trusted) the reference moved so that its centroid sits on the current XUV centroid.
-  std::vector<double> target = spectrum_amp_;
+  const double* target = spectrum_amp_.data();
+  std::vector<double> moved;
   if (problem_.reference != ReferenceSpectrum::kFieldFree) {
     double cx = 0, sx = 0, cr = 0, sr = 0;
     for (const Segment& seg : measured_)
@@ -344,14 +345,16 @@ void CmaProblem::impose_spectrum(CVec& eps, CVec& work) const {
       }
     if (sx > 0 && sr > 0) {
       const double shift = cr / sr - cx / sx;  // target(j) = reference(j + shift)
+      moved.resize(ne_);
       for (std::size_t j = 0; j < ne_; ++j) {
         const double x = static_cast<double>(j) + shift;
         const double f = std::floor(x);
         const long i0 = static_cast<long>(f);
         const double u = x - f;
         auto at = [&](long i) { return i >= 0 && i < static_cast<long>(ne_) ? spectrum_amp_[static_cast<std::size_t>(i)] : 0.0; };
-        target[j] = (1.0 - u) * at(i0) + u * at(i0 + 1);
+        moved[j] = (1.0 - u) * at(i0) + u * at(i0 + 1);
       }
+      target = moved.data();
     }
   }
   double have = 0.0, want = 0.0;
@@ -389,7 +392,7 @@ void rotate_linear(cdouble* v, std::size_t n, double t0, double step, double rat
 
 }  // namespace
 
-double CmaProblem::align_vector_potential(const CVec& eps, CVec& eps_out, PhaseGate& gate) const {
+double CmaProblem::align_vector_potential(CVec& eps, PhaseGate& gate) const {
   std::vector<double> cover;
   gate.coverage(eps, cover);
   double cmax = 0;
@@ -423,18 +426,14 @@ double CmaProblem::align_vector_potential(const CVec& eps, CVec& eps_out, PhaseG
     if (std::abs(step) < 1e-10 * p0 || std::abs(f) < 1e-12 * sw) break;
   }
   if (!std::isfinite(d) || std::abs(d) < 1e-3 * problem_.grid.dw()) return 0.0;
-  eps_out = eps;
-  rotate_linear(eps_out.data(), n_, problem_.grid.t0(), problem_.grid.dt(), -d);
+  rotate_linear(eps.data(), n_, problem_.grid.t0(), problem_.grid.dt(), -d);
   rotate_linear(gate.table().data(), gate.size(), gate.time(0), gate.dt(), d);
   return d;
 }
 
 double CmaProblem::align_spectrum(CVec& eps, PhaseGate& gate, CVec& work) const {
   if (spectrum_amp_.empty()) return 0.0;
-  if (problem_.reference != ReferenceSpectrum::kFieldFree) {
-    const CVec in = eps;
-    return align_vector_potential(in, eps, gate);
-  }
+  if (problem_.reference != ReferenceSpectrum::kFieldFree) return align_vector_potential(eps, gate);
   work.resize(n_);
   fft_.time_to_freq(eps, work);
   double cw = 0, c = 0, tw = 0, t = 0;

@@ -104,7 +104,8 @@ class CmaProblem {
   double carrier_au() const { return carrier_; }
   double central_momentum_au() const { return problem_.central_momentum_au; }
   bool has_spectrum() const { return !spectrum_amp_.empty(); }
-  /// Knot step of the smooth gate phase: IR period / gate_knots_per_period.
+  /// Knot step of the smooth gate phase: IR period / gate_knots_per_period, but at least the
+  /// median delay step (at most T / 8).
   double knot_step_au() const;
 
   /// The modulus replacement of delay j on its raw exit-wave spectrum (FFT order, in place);
@@ -124,13 +125,14 @@ class CmaProblem {
   /// Returns delta (a.u.); no-op (0) without spectrum. When the reference's centroid is not
   /// trusted (RetrievalProblem::reference != kFieldFree) it calls align_vector_potential().
   double align_spectrum(CVec& eps, PhaseGate& gate, CVec& work) const;
-  /// Frequency-shift ambiguity without a field-free reference: the same rotation, with delta
-  /// chosen so that the Hann-weighted time average of A(t) = -p0 + sqrt(p0^2 + 2 dphi/dt) over
+  /// Frequency-shift ambiguity without a field-free reference: the same rotation (of eps and
+  /// the gate, in place), with delta chosen so that the Hann-weighted time average of
+  /// A(t) = p0 - sqrt(p0^2 - 2 dphi/dt) (gate.h) over
   /// the well-probed gate nodes (coverage >= 30 % of its maximum) is zero. A radiated field has
   /// no DC part, so A averages to zero over a pulse; over a window that truncates it the Hann
   /// taper keeps the leakage of the oscillation below ~1e-3 A0 (common practice for
   /// windowed averages). Returns delta (a.u.).
-  double align_vector_potential(const CVec& eps, CVec& eps_out, PhaseGate& gate) const;
+  double align_vector_potential(CVec& eps, PhaseGate& gate) const;
 
   /// The constraints both engines apply after iteration k (1-based), at their intervals:
   /// the field-free spectrum (align_spectrum, then impose_spectrum for kAmplitude) and the

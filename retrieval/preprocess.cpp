@@ -220,11 +220,13 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
     return end > first ? tau[static_cast<std::size_t>(end - 1)] - tau[static_cast<std::size_t>(first)] + step_tau : 0.0;
   };
   std::vector<Eigen::Index> quiet, settled;
-  for (auto [first, end] : {std::pair{Eigen::Index(0), lo}, std::pair{hi + 1, nd}})
+  for (auto [first, end] : {std::pair{Eigen::Index(0), lo}, std::pair{hi + 1, nd}}) {
+    const bool full_period = span(first, end) >= period;
     for (Eigen::Index i = first; i < end; ++i) {
       quiet.push_back(i);
-      if (span(first, end) >= period) settled.push_back(i);
+      if (full_period) settled.push_back(i);
     }
+  }
   if (max_shift > 0 && settled.size() >= 3) {
     quiet = settled;
     s.reference = ReferenceSpectrum::kFieldFree;

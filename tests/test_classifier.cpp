@@ -226,6 +226,9 @@ TEST_CASE("a reconstruction is used and checked against the scan's evidence", "[
   stalled.trace_error = 0.012;
   const VerdictSection y = classify(streaking_trace(sat_field, {}), o, &stalled);
   CHECK(y.pulse_class != PulseClass::kIsolatedWithSatellites);
+  const Param* ty = find_param(y.evidence, "retrieval.trusted");
+  REQUIRE(ty);
+  CHECK(param_text(*ty) == "true");
 }
 
 TEST_CASE("weak signal, missing IR wavelength and bad options", "[classifier]") {
