@@ -13,10 +13,21 @@
 //     |a(W_j, tau)|^2 = |Int ds psi(s) exp(i w_j s)|^2 = dt^2 |FFT(psi)_{b_j}|^2.
 // "raw" spectra below are unscaled FFTs (sw::Fft::time_to_freq).
 //
-// Modulus replacement (the projection onto the measured data): on measured bins
-//     psi~ <- sqrt(max(I, 0)) / dt * psi~ / |psi~|        (a bin that is exactly 0 stays 0),
-// the least-squares projection for errors on sqrt(I) (a Gaussian amplitude noise model; the
-// trace error G of engine.h weights every bin equally). With noise_tolerance = k > 0 and
+// The projection onto the measured data, on measured bins, one of:
+//   poisson (ptychographic's default): |psi~| <- (|psi~| + a^2 / |psi~|) / 2, a = sqrt(max(I, 0)) / dt (capped
+//     at 2 a + |psi~| / 2): one Newton step towards a, i.e. psi~ moves along the gradient
+//     (I / |psi~|^2 - 1) psi~ of the Poisson log-likelihood (Thibault and Guizar-Sicairos,
+//     New J. Phys. 14, 063004 (2012); Godard et al., Opt. Express 20, 25914 (2012)). The step
+//     is linear in I, so the fixed point over many noisy bins is |psi~|^2 = E[I]: unbiased in
+//     intensity. The amplitude projection's fixed point is |psi~| = E[sqrt(I)], which for
+//     Poisson counts N of mean lambda is biased low by ~1/(8 lambda) in intensity (40 % at one
+//     count): weak harmonics of a RABBITT scan at 2000 peak counts came out 10-40 % too weak
+//     and A0 5 % too high with it (docs/validation.md);
+//   amplitude (projections' default): modulus replacement psi~ <- a psi~ / |psi~| (a bin that
+//     is exactly 0 stays 0), the least-squares projection for errors on sqrt(I) (a Gaussian
+//     amplitude noise model); also the more robust one when a pedestal was left in the data
+//     (retrieve.h selects it when no background could be subtracted).
+// The trace error G of engine.h weights every bin equally either way. With noise_tolerance = k > 0 and
 // variances, |psi~| is only clamped into sqrt(I) +- k sigma_sqrt(I) (sigma_sqrt(I) =
 // min(sigma_I / (2 sqrt I), sqrt(sigma_I))): a projection onto the noise band instead of onto
 // the noisy value; off by default (on our Poisson tests it did not improve the durations).
@@ -50,6 +61,9 @@
 // update (common practice for ePIE-type engines), with the optimal scale of engine.h; the
 // Reconstruction reports the exact G of the returned estimate.
 
+#include <complex>
+#include <cstdint>
+#include <optional>
 #include <string>
 #include <utility>
 #include <vector>
@@ -73,10 +87,67 @@ struct CmaSettings {
   double gate_knots_per_period = 32;  ///< B-spline knots per IR period for the smooth gate phase
   double unmeasured_damping = 1.0;    ///< exit-wave factor on unmeasured FFT bins (1 free, 0 zero)
   double noise_tolerance = 0.0;       ///< half-width of the modulus band in standard deviations
+  /// The Poisson (intensity-unbiased) projection instead of the amplitude one (see above).
+  bool poisson_projection = false;
+  /// Number of momentum nodes of the gate (see MomentumBand): 1 = the one-p0 CMA, 0 = auto
+  /// (auto_momentum_bands). Only the ptychographic engine offers more than one.
+  int momentum_bands = 1;
+};
+
+/// One momentum node of the banded CMA: a gate with its own central momentum.
+///
+/// The CMA's phase error for an electron of momentum p in a gate built for p0 is
+/// (p - p0) I1(t), |I1| <= A0 / omega: over a broad band (a RABBITT comb spans p = 0.4-1.6 a.u.)
+/// one p0 couples every energy to the IR with the wrong strength -- a sideband's strength
+/// relative to its harmonics scales with (p A0 / omega)^2 -- and the fit trades the harmonic
+/// amplitudes against the wrong coupling. The banded CMA places B nodes p_b at equal spacing
+/// h over the signal's momentum range; node b has the gate exp(i phi_b) of one common A(t)
+/// with central momentum p_b, and the amplitude of a row of momentum p between nodes n and
+/// n + 1 is the linear interpolation in p of the two nodes' amplitudes,
+///     a(p) = (1 - u) FFT(eps G_n) + u FFT(eps G_{n+1}),   u = (p - p_n) / h,
+/// (extrapolated linearly up to h/2 beyond the end nodes, constant further out). The amplitude's dependence on p is
+/// exp(-i p I1), so the interpolation error is ~ (h I1)^2 / 8 instead of the one-p0 CMA's
+/// (p - p0) I1, at B FFT pairs per delay instead of one. (The exact limit is the full model
+/// of full_model_engine.h, which interpolates on Chebyshev nodes per energy block.)
+struct MomentumBand {
+  double p_au = 0.0;    ///< the node's central momentum (a.u.)
+  double weight = 0.0;  ///< share of the delay-averaged signal interpolated from the node
+};
+/// B for momentum_bands = 0, from the signal's momentum range [p_lo, p_hi] (the 0.05 % and
+/// 99.95 % points of the delay-averaged spectrum): the smallest number of equally spaced
+/// nodes whose spacing is at most 15 % of p0, 2 to 8 (common practice: the
+/// interpolation error (h dI1)^2 / 8, dI1 the change of I1 over the XUV's duration, is then
+/// below 0.01 rad on every scan of docs/validation.md, and the cost grows with B).
+int auto_momentum_bands(double p_lo_au, double p_hi_au, double p0_au);
+
+/// The nodes' current interpolation layout, owned by the engine and updated with the gates.
+///
+/// Two frames. The measured rows are final momenta p_f, for which the Volkov phase rate is
+/// exactly p_f A + A^2/2 (DESIGN.md's phi_V) whenever the electron is born: in the
+/// final-momentum frame node b's gate has rate p_b A + A^2/2 and a row is interpolated at
+/// its own p_f. The one-p0 gate instead uses the delay-adapted p0 A - A^2/2 (gate.h), exact
+/// for the electrons that leave p0 at the XUV's arrival tau; in the initial-momentum frame
+/// node b's gate has rate p_b A - A^2/2 and a row is interpolated at its initial momentum
+/// p_f + A(tau), so the layout follows the streaking. The first suits a train (bursts every
+/// half cycle see A of both signs, where the delay adaptation is off by 2 A^2 in the rate),
+/// the second a strongly streaked isolated pulse. band_gates() picks the final frame when
+/// the streaking shift max |A| is below half the node spacing (common practice: the rows'
+/// interpolation weights then hardly depend on the delay).
+struct BandState {
+  std::vector<std::uint8_t> node;  ///< delays x energies: lower node of each row
+  std::vector<double> frac;        ///< delays x energies: interpolation weight u of node + 1
+  /// delays x nodes: exp(-i p_b J1(tau_i)), J1(t) = Int_{t_end}^t A, the node gate's
+  /// p-dependent phase at the XUV's arrival, removed before rows are interpolated.
+  std::vector<std::complex<double>> twist;
+  std::size_t end_node = 0;        ///< gate node t_end where every node gate has one phase
+  bool final_momentum = false;     ///< frame (see above)
+  double streaking_shift_au = 0.0;  ///< max |A| (a.u.) the frame was chosen from
 };
 /// Descriptions of the CMA settings (names, defaults, limits) for Engine::extra_options().
-std::vector<ExtraOption> cma_extra_options();
-CmaSettings read_cma_settings(const EngineOptions& options);
+/// `poisson_default`: the engine's default data projection (ptychographic: poisson;
+/// projections: amplitude, since generalized projections need a true projection).
+std::vector<ExtraOption> cma_extra_options(bool poisson_default);
+CmaSettings read_cma_settings(const EngineOptions& options, bool poisson_default);
 
 /// Running sums of the trace error: sum I M and sum M^2 over the measured bins.
 struct ErrorSums {
@@ -112,6 +183,15 @@ class CmaProblem {
   /// adds the model-vs-measured sums of the spectrum it saw to `sums`. `scratch` holds
   /// scratch_size() doubles (one buffer per thread; no allocation here).
   void project(std::size_t j, cdouble* spectrum, ErrorSums& sums, double* scratch) const;
+  /// The modulus replacement of delay j for the banded CMA: spectra[b] is node b's raw
+  /// exit-wave spectrum; the rows are combined as in MomentumBand, projected, and each node's
+  /// spectrum moves by its interpolation weight times the change of the row (the gradient
+  /// of the combined model). `combined` and `before` are work buffers (resized to N).
+  void project_bands(std::size_t j, std::vector<CVec>& spectra, const BandState& state,
+                     ErrorSums& sums, double* scratch, CVec& combined, CVec& before) const;
+  /// The momentum nodes (one node at central_momentum_au unless CmaSettings::momentum_bands
+  /// asks for more).
+  const std::vector<MomentumBand>& bands() const { return bands_; }
   std::size_t scratch_size() const { return 3 * ne_; }
   /// Running trace error G from the sums of one full sweep over the delays.
   double trace_error(const ErrorSums& sums) const;
@@ -132,12 +212,32 @@ class CmaProblem {
   /// no DC part, so A averages to zero over a pulse; over a window that truncates it the Hann
   /// taper keeps the leakage of the oscillation below ~1e-3 A0 (common practice for
   /// windowed averages). Returns delta (a.u.).
-  double align_vector_potential(CVec& eps, PhaseGate& gate) const;
+  double align_vector_potential(CVec& eps, PhaseGate& gate) const {
+    return align_vector_potential(eps, gate, problem_.central_momentum_au);
+  }
+  /// The same for a gate built for central momentum p_au.
+  double align_vector_potential(CVec& eps, PhaseGate& gate, double p_au) const;
 
   /// The constraints both engines apply after iteration k (1-based), at their intervals:
   /// the field-free spectrum (align_spectrum, then impose_spectrum for kAmplitude) and the
   /// smooth-gate projection (PhaseGate::smooth with the current coverage).
   void constrain(int k, CVec& eps, PhaseGate& gate, CVec& work, std::vector<double>& cover) const;
+  /// The same for one gate per momentum band (gates[b] for bands()[b]): the spectral
+  /// alignment is computed on the band of largest weight and its rotation applied to every
+  /// gate; then reconcile_gates() every iteration (it is also the smooth-gate projection).
+  void constrain(int k, CVec& eps, std::vector<PhaseGate>& gates, CVec& work,
+                 std::vector<double>& cover, BandState& state) const;
+  /// Ties the band gates to one vector potential: each gate's phase is fitted as in
+  /// PhaseGate::smooth, converted to A_b(t) = p_b - sqrt(p_b^2 - 2 phi_b'), the A_b averaged
+  /// with the bands' weights, and every gate reset to exp(i phi_b) of that common A (phase
+  /// integrated node by node from the last well-probed node, where all bands share one
+  /// phase). One band: smooth().
+  /// The layout of `state` follows the new A (band_layout()).
+  void reconcile_gates(const CVec& eps, std::vector<PhaseGate>& gates, std::vector<double>& cover,
+                       BandState& state) const;
+  /// Interpolation layout of every row at every delay for a common A on the gate nodes
+  /// (nullptr: A = 0) in state's frame (BandState).
+  void band_layout(const std::vector<double>* A, const PhaseGate& gate, BandState& state) const;
   /// Samples [lo, hi) outside which |eps|^2 < 1e-4 max |eps|^2 (plus a 2-sample margin): the
   /// gate updates are applied there only, elsewhere they are below 1 % of their peak (and
   /// the smooth-gate projection, weighted by the coverage, would discard them anyway).
@@ -153,16 +253,27 @@ class CmaProblem {
   /// streaking, p0 ~ the field-free momentum, DESIGN.md),
   /// else flat when the centroid sweep is below two energy bins.
   PhaseGate initial_gate(const EngineOptions& options) const;
+  /// One gate per momentum band carrying the vector potential of a one-p0 gate (its smooth
+  /// phase fitted with the coverage of eps, A = p0 - sqrt(p0^2 - 2 phi')).
+  /// Also chooses the bands' frame (BandState) from that A and fills state.
+  std::vector<PhaseGate> band_gates(const CVec& eps, const PhaseGate& gate,
+                                    BandState& state) const;
   /// What initial_gate() used ("initial_ir", "centroid curve", "flat").
   const std::string& gate_guess() const { return gate_guess_; }
 
   /// Model trace |a|^2 on the problem's axes for (eps, gate).
   Eigen::MatrixXd model_trace(const CVec& eps, const PhaseGate& gate) const;
+  /// Model trace of the banded CMA (rows interpolated between the nodes' gates).
+  Eigen::MatrixXd model_trace(const CVec& eps, const std::vector<PhaseGate>& gates,
+                              const BandState& state) const;
   /// Final bookkeeping shared by the CMA engines: smooth gate phase, global phase (arg eps = 0
   /// at its peak, the gate rotated to compensate), A(t) from the gate phase over the delay
   /// range plus the XUV support, model trace, exact G and scale. No time shift is applied
   /// (the delay axis ties the gate's time axis to the IR reference).
   Reconstruction reconstruct(CVec eps, PhaseGate gate) const;
+  /// The same for reconciled band gates: A(t) is their common vector potential, the model
+  /// trace and G are the banded CMA's.
+  Reconstruction reconstruct(CVec eps, std::vector<PhaseGate> gates, BandState state) const;
   /// Settings the engines report (grid, carrier, bins, gate table, CMA settings).
   std::vector<std::pair<std::string, std::string>> used_settings() const;
 
@@ -182,9 +293,31 @@ class CmaProblem {
   std::vector<Segment> measured_, unmeasured_;
   std::vector<double> lo_, hi_;       // nd x ne, modulus band (raw units)
   bool band_ = false;                 // lo < hi somewhere (noise_tolerance > 0 with variances)
+  bool poisson_ = false;              // the Poisson projection (and no noise band)
   std::vector<double> meas_;          // nd x ne, I
   std::vector<double> spectrum_amp_;  // ne, sqrt(max(S_ff,0)) (empty: no spectrum)
   std::vector<long> bin_;             // signed FFT bin of each energy
+  std::vector<MomentumBand> bands_;
+  std::vector<double> row_momentum_;  // ne, sqrt(2 W_j)
+  double node_step_ = 1.0;            // spacing h of the momentum nodes (a.u.)
+  // Lower node n of momentum p and the weight u of node n + 1 (clamped to the end nodes).
+  std::size_t node_of(double p, double* u) const;
+  // The banded CMA's common A on the gate nodes (signal-weighted mean of the bands' A_b; one
+  // gate: its own A at p0), the last well-probed node and the phase every band gate takes
+  // there (the fitted phase of the heaviest band).
+  struct CommonPotential {
+    std::vector<double> A;
+    std::size_t end = 0;
+    double end_phase = 0.0;
+  };
+  CommonPotential common_potential(const CVec& eps, const std::vector<PhaseGate>& gates,
+                                   std::vector<double>& cover, bool final_frame) const;
+  static void set_gate_from_potential(PhaseGate& gate, const std::vector<double>& A, double p,
+                                      std::size_t end, double end_phase, bool final_frame);
+  void set_band_gates(const CommonPotential& c, std::vector<PhaseGate>& gates,
+                      bool final_frame) const;
+  // The IR guess of initial_gate() (none: flat gate).
+  std::optional<IrField> initial_field(const EngineOptions& options) const;
   double sum_ii_ = 0.0, peak_ = 0.0;
   mutable std::string gate_guess_;
 };

@@ -85,12 +85,12 @@ class ProjectionsEngine final : public Engine {
          2,
          {}},
     };
-    for (auto& e : cma_extra_options()) o.push_back(e);
+    for (auto& e : cma_extra_options(false)) o.push_back(e);
     return o;
   }
 
   void prepare(const RetrievalProblem& problem, const EngineOptions& options) override {
-    cma_.emplace(problem, read_cma_settings(options), name());
+    cma_.emplace(problem, read_cma_settings(options, false), name());
     const std::string mode = options.extra_string("mode", "auto");
     const bool matched = matched_grid(problem.delay_au, problem.grid.dt());
     if (mode == "pcgpa" && !matched)

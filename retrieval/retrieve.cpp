@@ -232,12 +232,28 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   // replica's CMA result (or from its own guess, as the estimate did). A warm start from the
   // final estimate sits at the noise floor already and barely moves: the spread came out 5x
   // (CMA) to 20x (full model) too small.
+  // The replicas' ptychographic runs use the momentum nodes exactly when the estimate's did
+  // (the engine adds them only when the one-p0 fit stalls above the noise floor, and a
+  // replica's doubled noise would otherwise decide differently and bias the correction).
+  EngineOptions beo = eo;
+  for (const Reconstruction& c : out.chain)
+    if (c.engine == "ptychographic") {
+      std::string nodes = "1";
+      if (c.model == "banded-cma")
+        for (const auto& kv : c.settings)
+          if (kv.first == "momentum_bands") nodes = kv.second.substr(0, kv.second.find(' '));
+      bool set = false;
+      for (auto& kv : beo.extra)
+        if (kv.first == "momentum_bands") set = true;
+      if (!set) beo.extra.push_back({"momentum_bands", nodes});
+      break;
+    }
   std::vector<double> bf, bg, ba, bs;
   for (int b = 0; b < opt.bootstrap; ++b) {
     const Trace rep = poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
     PreprocessSummary ps;
     RetrievalProblem rp = preprocess(rep, opt.preprocess, &ps);
-    EngineOptions bo = eo;
+    EngineOptions bo = beo;
     bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
     const std::string stage = "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
     Reconstruction br;
@@ -310,12 +326,19 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   } else {
     res.warnings.push_back("no bootstrap replicas (--bootstrap < 2): no uncertainties reported");
   }
-  if (v.pulse_class == PulseClass::kTrain && final_engine != "full-model")
+  if (v.pulse_class == PulseClass::kTrain && rec.model == "cma")
     res.warnings.push_back(
-        "pulse train retrieved with a CMA engine: the burst phases (attochirp) are reliable, but "
-        "one central momentum for the whole harmonic comb distorts the harmonic amplitudes "
-        "(transform-limited burst ~6 % long) and the IR peak A0 (+49 % on the argon RABBITT "
-        "preset, docs/validation.md); use `rabbitt` for the burst and the sideband analysis");
+        "pulse train retrieved with one central momentum (momentum nodes not used): the burst "
+        "phases (attochirp) are reliable, but one p0 for the whole harmonic comb distorts the "
+        "harmonic amplitudes (transform-limited burst ~6 % long) and the IR peak A0 (+49 % on "
+        "the argon RABBITT preset, docs/validation.md); use the ptychographic engine's momentum "
+        "nodes or `rabbitt`");
+  else if (v.pulse_class == PulseClass::kTrain)
+    res.warnings.push_back(
+        "pulse train: xuv.gdd_as2 is fitted over every bin above 5 % of the peak, including the "
+        "phases between harmonics; use the harmonic phases (`rabbitt`, or the attochirp of the "
+        "retrieved harmonics) for the chirp; the IR peak A0 of a weak RABBITT field came out "
+        "3-6 % high on validation scans (docs/validation.md)");
   res.verdict = v;
   FitSection f;
   f.trace_error = rec.trace_error;
@@ -364,6 +387,15 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   std::string chain;
   for (const auto& c : out.chain) chain += (chain.empty() ? "" : " -> ") + c.engine;
   P("fit.engine_chain", chain);
+  // What the CMA run of the chain modelled (theory.md: momentum nodes, data projection).
+  for (const auto& c : out.chain) {
+    if (c.model != "cma" && c.model != "banded-cma") continue;
+    for (const auto& [key, value] : c.settings)
+      if (key == "momentum_bands" || key == "momentum_bands_from_iteration" ||
+          key == "momentum_band_frame" || key == "projection")
+        P("fit.cma." + key, value);
+    break;
+  }
   P("settings.engine", opt.engine);
   P("settings.iterations", static_cast<long long>(opt.iterations));
   P("settings.bootstrap", static_cast<long long>(opt.bootstrap));

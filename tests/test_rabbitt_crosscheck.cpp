@@ -4,8 +4,7 @@
 // ptychographic engine through sw::retrieve. Both should give the same attochirp and average
 // burst duration within their uncertainties.
 //
-// What the engine needs, and the gap that remains (docs/validation.md, "RABBITT and
-// classification"):
+// What the engine needs (docs/validation.md, "RABBITT and classification"):
 //  * spectrum_constraint = centroid: the default "amplitude" imposes |E_X| = sqrt(field-free
 //    spectrum), and a RABBITT scan has no field-free rows (the IR covers the whole scan), so
 //    preprocessing falls back to the delay average, which contains the sidebands; imposing it
@@ -13,12 +12,16 @@
 //  * a known background (0 here, as a sidecar "background" would give it): the automatic
 //    estimate takes the wings of the narrow harmonic lines (bins below 2 % of the maximum) for
 //    background and subtracts ~2.6 counts per bin.
-//  * the CMA couples every energy to the IR with the one central momentum p0, while a
-//    sideband's strength relative to its harmonics scales with (p A / omega)^2; over a band of
-//    4-35 eV (bandwidth / energy 0.49) the fit trades harmonic amplitudes against the wrong
-//    coupling (low-energy harmonics retrieved too weak by ~p/p0): phases, hence the attochirp,
-//    stay close, but the transform limit comes out ~7 % and the burst ~4 % longer. The
-//    tolerance on the burst duration below includes that documented CMA bias.
+//  * momentum nodes (the banded CMA of retrieval/cma_problem.h, automatic here): with one
+//    central momentum over a band of 4-35 eV the fit traded the harmonic amplitudes against
+//    the wrong coupling (TL and burst 5-7 % long);
+//  * the Poisson projection (cma_problem.h): the amplitude projection's bias at a few counts
+//    made the weakest harmonics 10-40 % too weak and the burst 2-4 % short.
+// The sideband analysis has a systematic of its own: the two-path picture neglects the
+// higher-order paths, whose phase error grows with the IR intensity (the attochirp at
+// 1e11 W/cm^2 comes out +0.1 as/eV in argon and +0.24 as/eV in neon at 2e7 counts, four times
+// less at 2.5e10 W/cm^2; docs/validation.md). The comparison below allows that systematic,
+// measured on the same scan at 2e7 peak counts, on top of 3 combined sigmas.
 #include <catch2/catch.hpp>
 
 #include <cmath>
@@ -193,32 +196,53 @@ void cross_check(const synthetic::ScanConfig& config, const char* label) {
     }
   REQUIRE(q_hi - q_lo >= 10);
   const EngineEstimate e = engine_estimate(trace, w, q_lo, q_hi, 4);
+  // The sideband analysis's own systematic: the same scan at 2e7 peak counts vs the truth.
+  synthetic::ScanConfig hc = config;
+  hc.noise.peak_counts = 2e7;
+  Trace th = synthetic::generate_scan(hc, 1).trace;
+  th.meta.background = 0.0;
+  const RabbittAnalysis rh = analyze_rabbitt(th, ro);
+  const TrainBurst bh = reconstruct_train_burst(th, rh, bo);
 
   const double aR = *rb.section.attochirp_as_per_eV, saR = *rb.section.attochirp_as_per_eV_sigma;
   const double aE = e.value.attochirp_as_per_eV, saE = e.attochirp_sigma;
   const double fR = b.fwhm_as, sfR = b.fwhm_as_sigma;
   const double fE = e.value.burst_fwhm_as, sfE = e.burst_sigma;
   const double truth = *sc.truth.rabbitt->attochirp_as_per_eV;
+  const double truth_burst = *sc.truth.rabbitt->train_burst_fwhm_as;
+  const double sys_a = std::abs(*rh.section.attochirp_as_per_eV - truth);
+  const double sys_f = std::abs(bh.fwhm_as - truth_burst);
   INFO(label << ": attochirp sidebands " << aR << " +- " << saR << ", engine " << aE << " +- "
              << saE << ", truth " << truth << " as/eV; burst sidebands " << fR << " +- " << sfR
              << ", engine " << fE << " +- " << sfE << ", truth "
              << *sc.truth.rabbitt->train_burst_fwhm_as << " as; TL sidebands "
              << b.transform_limited_fwhm_as << ", engine " << e.value.burst_tl_fwhm_as
              << " as; engine G " << e.trace_error << " (noise floor " << e.noise_floor
-             << "), worst replica G / floor " << e.worst_replica_g_ratio);
+             << "), worst replica G / floor " << e.worst_replica_g_ratio
+             << "; sideband systematic at 2e7 counts: attochirp " << sys_a << " as/eV, burst "
+             << sys_f << " as");
+  std::printf("%s: attochirp sidebands %.3f +- %.3f, engine %.3f +- %.3f, truth %.3f; burst "
+              "sidebands %.1f +- %.1f, engine %.1f +- %.1f, truth %.1f; TL %.1f / %.1f; G/floor "
+              "%.3f; sideband systematic %.3f as/eV, %.1f as\n",
+              label, aR, saR, aE, saE, truth, fR, sfR, fE, sfE, truth_burst,
+              b.transform_limited_fwhm_as, e.value.burst_tl_fwhm_as,
+              e.trace_error / e.noise_floor, sys_a, sys_f);
   // The engine reached the Poisson noise floor (DESIGN.md: that is convergence) and sees a train.
   CHECK(e.trace_error < 1.5 * e.noise_floor);
   // Every bootstrap replica converged too: a replica is a Poisson draw of already noisy counts
   // (twice the variance its own noise floor estimate assumes, G / floor ~ sqrt(2)).
   CHECK(e.worst_replica_g_ratio < 2.0);
   CHECK(e.verdict == PulseClass::kTrain);
-  // Attochirp: the two estimates agree within 3 combined standard deviations.
-  CHECK(std::abs(aE - aR) < 3.0 * std::hypot(saR, saE));
+  // Attochirp and burst: the two estimates agree within 3 combined standard deviations plus
+  // the sideband analysis's measured systematic; the engine is within 1 as/eV of the truth.
+  CHECK(std::abs(aE - aR) < 3.0 * std::hypot(saR, saE) + sys_a);
   CHECK(std::abs(aE - truth) < 1.0);
-  // Burst duration: 3 combined sigmas plus the documented CMA amplitude bias (6 %).
-  CHECK(std::abs(fE - fR) < 3.0 * std::hypot(sfR, sfE) + 0.06 * fR);
+  CHECK(std::abs(fE - fR) < 3.0 * std::hypot(sfR, sfE) + sys_f);
+  // The engine's burst against the truth: 3 sigma plus 1 % (common practice for a 4-replica
+  // bootstrap, whose sigma is itself uncertain by ~40 %).
+  CHECK(std::abs(fE - truth_burst) < 3.0 * sfE + 0.01 * truth_burst);
   CHECK(std::abs(e.value.burst_tl_fwhm_as - b.transform_limited_fwhm_as) <
-        0.1 * b.transform_limited_fwhm_as);
+        0.03 * b.transform_limited_fwhm_as);
 }
 
 }  // namespace

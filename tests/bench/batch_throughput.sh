@@ -8,7 +8,7 @@
 # end unless WORK_DIR was given). The scans are made by `streakwright simulate` from the
 # neon-150as preset with seeds 1..20 (121 delays x 300 energies each). Analysis options:
 # $BATCH_BENCH_ARGS, default "--engine ptychographic" with the default 8 bootstrap replicas (about
-# 0.7 s per scan on one core); the engine runs single-threaded in both cases (batch gives each job one thread), so
+# 1.6 s per scan on one core); the engine runs single-threaded in both cases (batch gives each job one thread), so
 # the ratio measures scaling over scans, not inside an engine. Run it on an otherwise idle
 # machine: other processes on the cores lower the ratio.
 set -euo pipefail

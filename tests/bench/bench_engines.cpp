@@ -2,12 +2,17 @@
 // shared machine:
 //   BM_FftFloor/N           2 x N_delay FFTs of the grid size (the floor of one CMA iteration);
 //   BM_PtychographicIteration, BM_ProjectionsIteration   one iteration, 121 delays x 400 energies;
+//   BM_PtychographicIterationNodes/N   the same with N momentum nodes (floor: N x BM_FftFloor);
 //   BM_*Retrieval           a full retrieval to convergence of that problem (Poisson noise,
 //                           100 counts at the peak), iterations and G as counters;
 //   BM_ForwardModelCma      the CMA forward model, 128 delays x 512 energies, 1024 grid,
 //                           single-threaded (ForwardModelOptions::threads = 1).
 // Build with -DSTREAKWRIGHT_BUILD_BENCHMARKS=ON; run bench_engines.
 #include <benchmark/benchmark.h>
+
+#include <string>
+#include <utility>
+#include <vector>
 
 #include "retrieval/engine.h"
 #include "retrieval/forward_model.h"
@@ -49,20 +54,34 @@ void BM_FftFloor(benchmark::State& state) {
 }
 BENCHMARK(BM_FftFloor)->Unit(benchmark::kMicrosecond);
 
-void iteration(benchmark::State& state, const char* engine, int threads) {
+// `extra` engine options; `warmup` iterations run before timing (the ptychographic engine
+// adds its momentum nodes within its first 100 iterations).
+void iteration(benchmark::State& state, const char* engine, int threads,
+               std::vector<std::pair<std::string, std::string>> extra = {}, int warmup = 0) {
   const auto& p = problem_121x400(false).problem;
   auto e = make_engine(engine);
   EngineOptions o;
   o.threads = threads;
+  o.extra = std::move(extra);
   e->prepare(p, o);
   int k = 1;
+  for (; k <= warmup; ++k) e->iterate(k);
   for (auto _ : state) benchmark::DoNotOptimize(e->iterate(k++));
   state.counters["delays"] = static_cast<double>(p.delay_au.size());
   state.counters["energies"] = static_cast<double>(p.energy_au.size());
 }
 
-void BM_PtychographicIteration(benchmark::State& state) { iteration(state, "ptychographic", 1); }
+// One central momentum (the one-p0 stage).
+void BM_PtychographicIteration(benchmark::State& state) {
+  iteration(state, "ptychographic", 1, {{"momentum_bands", "1"}});
+}
 BENCHMARK(BM_PtychographicIteration)->Unit(benchmark::kMicrosecond);
+// With N momentum nodes (after the switch): N FFT pairs per delay plus the interpolation.
+void BM_PtychographicIterationNodes(benchmark::State& state) {
+  iteration(state, "ptychographic", 1, {{"momentum_bands", std::to_string(state.range(0))}}, 101);
+  state.counters["nodes"] = static_cast<double>(state.range(0));
+}
+BENCHMARK(BM_PtychographicIterationNodes)->Arg(3)->Arg(7)->Unit(benchmark::kMicrosecond);
 void BM_ProjectionsIteration(benchmark::State& state) {
   iteration(state, "projections", static_cast<int>(state.range(0)));
 }
