@@ -121,32 +121,15 @@ SW_HOT_LOOP void moduli_and_sums(const double* S, const double* I, double* r2, s
   *mm_out += mm;
 }
 
-// The exact modulus replacement of one segment, fused with the error sums:
-// S <- a S / |S| (a = target amplitude, raw units); a zero bin stays zero.
-SW_HOT_LOOP void modulus_kernel(double* S, const double* I, const double* a, std::size_t n,
-                                double dt2, double* im_out, double* mm_out) {
-  double im = 0.0, mm = 0.0;
-#pragma omp simd reduction(+ : im, mm)
-  for (std::size_t q = 0; q < n; ++q) {
-    const double re = S[2 * q], iv = S[2 * q + 1];
-    const double r2 = re * re + iv * iv;
-    const double M = dt2 * r2;
-    im += I[q] * M;
-    mm += M * M;
-    const double f = a[q] * detail::rsqrt_newton(r2 + 1e-300);
-    S[2 * q] = re * f;
-    S[2 * q + 1] = iv * f;
-  }
-  *im_out += im;
-  *mm_out += mm;
-}
-
-// The intensity-unbiased (Poisson) projection of one segment, fused with the error sums:
-// |S| <- |S| (1 + I / M) / 2 with the model intensity M = dt^2 |S|^2 and the measured I taken
-// as it is (negative after a background subtraction: clipping it at 0 would bias the weak
-// bins up), the factor kept in [0, 2 a / |S| + 1/2] (a = sqrt(max(I, 0)) / dt).
-SW_HOT_LOOP void poisson_kernel(double* S, const double* I, const double* a, std::size_t n,
-                                double dt2, double* im_out, double* mm_out) {
+// The data projection of one segment, fused with the error sums (a = target amplitude
+// sqrt(max(I, 0)) / dt, raw units; M = dt^2 |S|^2 the model intensity):
+//   Poisson = false: the exact modulus replacement S <- a S / |S| (a zero bin stays zero);
+//   Poisson = true:  |S| <- |S| (1 + I / M) / 2 with the measured I taken as it is (negative
+//                    after a background subtraction: clipping it at 0 would bias the weak bins
+//                    up), the factor kept in [0, 2 a / |S| + 1/2].
+template <bool Poisson>
+SW_HOT_LOOP void projection_kernel(double* S, const double* I, const double* a, std::size_t n,
+                                   double dt2, double* im_out, double* mm_out) {
   double im = 0.0, mm = 0.0;
 #pragma omp simd reduction(+ : im, mm)
   for (std::size_t q = 0; q < n; ++q) {
@@ -156,8 +139,11 @@ SW_HOT_LOOP void poisson_kernel(double* S, const double* I, const double* a, std
     im += I[q] * M;
     mm += M * M;
     const double rs = detail::rsqrt_newton(r2 + 1e-300);
-    const double f = std::clamp(0.5 + 0.5 * I[q] / (dt2 * (r2 + 1e-300)), 0.0,
-                                2.0 * a[q] * rs + 0.5);
+    double f;
+    if constexpr (Poisson)
+      f = std::clamp(0.5 + 0.5 * I[q] / (dt2 * (r2 + 1e-300)), 0.0, 2.0 * a[q] * rs + 0.5);
+    else
+      f = a[q] * rs;
     S[2 * q] = re * f;
     S[2 * q + 1] = iv * f;
   }
@@ -377,9 +363,9 @@ void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums, doub
     double* z = scratch + len;
     if (!band) {
       if (poisson_)
-        poisson_kernel(sp, ii, lo + seg.j0, len, dt2, &im, &mm);
+        projection_kernel<true>(sp, ii, lo + seg.j0, len, dt2, &im, &mm);
       else
-        modulus_kernel(sp, ii, lo + seg.j0, len, dt2, &im, &mm);
+        projection_kernel<false>(sp, ii, lo + seg.j0, len, dt2, &im, &mm);
       continue;
     }
     // Band mode: |psi~| clamped into [lo, hi] (Eigen vectorises sqrt, min and max).

@@ -200,6 +200,7 @@ class PtychographicEngine final : public Engine {
 
   Reconstruction finalize() override {
     Reconstruction r = cma_->reconstruct(best_eps_, best_gates_, best_state_);
+    r.settings.emplace_back("momentum_nodes_used", std::to_string(best_gates_.size()));
     if (cma_->bands().size() > 1)
       r.settings.emplace_back(
           "momentum_bands_from_iteration",

@@ -236,18 +236,14 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   // (the engine adds them only when the one-p0 fit stalls above the noise floor, and a
   // replica's doubled noise would otherwise decide differently and bias the correction).
   EngineOptions beo = eo;
-  for (const Reconstruction& c : out.chain)
-    if (c.engine == "ptychographic") {
-      std::string nodes = "1";
-      if (c.model == "banded-cma")
-        for (const auto& kv : c.settings)
-          if (kv.first == "momentum_bands") nodes = kv.second.substr(0, kv.second.find(' '));
-      bool set = false;
-      for (auto& kv : beo.extra)
-        if (kv.first == "momentum_bands") set = true;
-      if (!set) beo.extra.push_back({"momentum_bands", nodes});
-      break;
-    }
+  bool nodes_set = false;
+  for (const auto& kv : beo.extra) nodes_set = nodes_set || kv.first == "momentum_bands";
+  for (const Reconstruction& c : out.chain) {
+    if (c.engine != "ptychographic" || nodes_set) continue;
+    for (const auto& [key, value] : c.settings)
+      if (key == "momentum_nodes_used") beo.extra.push_back({"momentum_bands", value});
+    break;
+  }
   std::vector<double> bf, bg, ba, bs;
   for (int b = 0; b < opt.bootstrap; ++b) {
     const Trace rep = poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
