@@ -41,7 +41,9 @@ AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job, cons
 AnalysisResult run_classify_analysis(const Trace& trace, const ScanJob& job, const std::vector<Param>& prov);
 AnalysisKind auto_analysis(const Trace& trace);
 
-std::vector<std::string> input_warnings(const Trace& trace) { return trace.meta.read_warnings; }
+void add_input_warnings(const Trace& trace, std::vector<std::string>& warnings) {
+  warnings.insert(warnings.end(), trace.meta.read_warnings.begin(), trace.meta.read_warnings.end());
+}
 
 ScanOutcome run_scan(const ScanJob& job) {
   ScanOutcome o;
@@ -54,9 +56,7 @@ ScanOutcome run_scan(const ScanJob& job) {
     read_overrides.ir_wavelength_nm = job.overrides.ir_wavelength_nm;
     if (TraceKind k; job.overrides.kind && parse_trace_kind(*job.overrides.kind, &k))
       read_overrides.kind = k;
-    std::vector<std::string> read_warnings;
-    Trace trace = read_trace(job.sidecar, &read_warnings, read_overrides);
-    trace.meta.read_warnings = read_warnings;
+    Trace trace = read_trace(job.sidecar, nullptr, read_overrides);
     apply_overrides(trace, job.overrides);
     std::vector<Param> prov = provenance(job.sidecar, trace.meta.image, "");
     // The calibration of a time-of-flight axis (calibration.*) goes into every result.
@@ -76,7 +76,7 @@ ScanOutcome run_scan(const ScanJob& job) {
         m << "iteration " << r.iteration << ", G = " << r.trace_error << ", " << r.seconds << " s";
         job.progress(stage, m.str());
       });
-      for (const std::string& w : input_warnings(trace)) out.result.warnings.push_back(w);
+      add_input_warnings(trace, out.result.warnings);
       write_retrieval_outputs(trace, out, job.out_dir, prov);
       o.result = out.result;
       for (const Param& p : prov) o.result.extra.push_back(p);

@@ -87,9 +87,9 @@ ScanOutcome run_scan_or_throw(ScanJob job);
 /// Applies overrides to a loaded trace's metadata.
 void apply_overrides(Trace& trace, const ScanOverrides& o);
 
-/// Warnings about how the scan was read that every analysis adds to its result's warnings
-/// (TraceMeta::read_warnings, filled by run_scan from the reader: 8-bit images, counts outside
-/// a time-of-flight calibration window, a calibration fit above the resolution, ...).
-std::vector<std::string> input_warnings(const Trace& trace);
+/// Appends the warnings about how the scan was read (TraceMeta::read_warnings, filled by the
+/// reader: 8-bit images, counts outside a time-of-flight calibration window, a calibration fit
+/// above the resolution, ...) to an analysis result's warnings; every analysis calls it.
+void add_input_warnings(const Trace& trace, std::vector<std::string>& warnings);
 
 }  // namespace sw::cli

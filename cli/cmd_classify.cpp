@@ -78,7 +78,7 @@ AnalysisResult run_classify_analysis(const Trace& trace, const ScanJob& job,
   AnalysisResult res;
   res.input = trace.meta.source.empty() ? job.sidecar : trace.meta.source;
   res.analysis = "classify";
-  for (const std::string& w : input_warnings(trace)) res.warnings.push_back(w);
+  add_input_warnings(trace, res.warnings);
   const double lambda = classifier_wavelength(trace, &co, &res.warnings);
 
   std::optional<RetrieveOutput> ret;

@@ -48,7 +48,7 @@ AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job,
   res.analysis = "rabbitt";
   res.rabbitt = rb.section;
   res.warnings = rb.warnings;
-  for (const std::string& w : input_warnings(trace)) res.warnings.push_back(w);
+  add_input_warnings(trace, res.warnings);
 
   std::optional<Trace> xuv_only;
   if (!job.xuv_only_sidecar.empty()) {

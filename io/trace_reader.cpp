@@ -359,8 +359,10 @@ const std::vector<std::string>& known_sidecar_keys() {
   return keys;
 }
 
-Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warnings,
+Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warnings_out,
                  const TraceReadOverrides& overrides) {
+  std::vector<std::string> collected;  // -> meta.read_warnings (and warnings_out)
+  std::vector<std::string>* const warnings = &collected;
   const Sidecar sc(sidecar_path, load_sidecar(sidecar_path));
   const std::string& where = sidecar_path;
 
@@ -721,6 +723,8 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
         units::fs_to_au(stage ? units::stage_travel_um_to_fs(delay_axis[i]) : delay_axis[i]);
   trace.counts = std::move(counts);
   trace.validate(sidecar_path);
+  if (warnings_out) warnings_out->insert(warnings_out->end(), collected.begin(), collected.end());
+  trace.meta.read_warnings = std::move(collected);
   return trace;
 }
 

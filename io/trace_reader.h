@@ -70,8 +70,9 @@ struct TraceReadOverrides {
 
 /// Reads the scan described by the sidecar at `sidecar_path` (see above). Non-fatal remarks
 /// (8-bit image, time-of-flight counts dropped outside the energy window, a fitted
-/// calibration whose residual exceeds the resolution, ...) are appended to `warnings` when it
-/// is given. `overrides` are applied to meta before anything uses them.
+/// calibration whose residual exceeds the resolution, ...) are kept in meta.read_warnings
+/// and also appended to `warnings` when it is given. `overrides` are applied to meta before
+/// anything uses them.
 Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warnings = nullptr,
                  const TraceReadOverrides& overrides = {});
 

@@ -651,33 +651,25 @@ void CmaProblem::set_gate_from_potential(PhaseGate& gate, const std::vector<doub
   for (std::size_t i = 0; i < m; ++i) t[i] = std::polar(1.0, phi[i] + shift);
 }
 
-void CmaProblem::band_layout(const std::vector<double>* A, const PhaseGate& gate,
+void CmaProblem::band_layout(const CommonPotential& c, const PhaseGate& gate,
                              BandState& state) const {
   const std::size_t nb = bands_.size();
+  const std::vector<double>& A = c.A;
   state.node.assign(nd_ * ne_, 0);
   state.frac.assign(nd_ * ne_, 0.0);
   state.twist.assign(nd_ * nb, cdouble(1.0, 0.0));
-  if (nb < 2) return;
   // J1(t) = Int_{t_end}^t A on the gate nodes (set_gate_from_potential's origin).
-  std::vector<double> J1;
-  if (A && !A->empty()) {
-    J1.assign(A->size(), 0.0);
-    for (std::size_t m = 1; m < A->size(); ++m)
-      J1[m] = J1[m - 1] + 0.5 * gate.dt() * ((*A)[m - 1] + (*A)[m]);
-    const double e = J1[std::min(state.end_node, J1.size() - 1)];
-    for (double& v : J1) v -= e;
-  }
+  std::vector<double> J1(A.size(), 0.0);
+  for (std::size_t m = 1; m < A.size(); ++m) J1[m] = J1[m - 1] + 0.5 * gate.dt() * (A[m - 1] + A[m]);
+  const double e = J1[std::min(c.end, J1.size() - 1)];
+  for (double& v : J1) v -= e;
   for (std::size_t i = 0; i < nd_; ++i) {
-    double a = 0.0, j1 = 0.0;
-    if (!J1.empty()) {
-      const double x = (problem_.delay_au[i] - gate.time(0)) / gate.dt();
-      const long m = std::clamp(static_cast<long>(std::floor(x)), 0L,
-                                static_cast<long>(A->size()) - 2);
-      const double u = std::clamp(x - static_cast<double>(m), 0.0, 1.0);
-      const std::size_t q = static_cast<std::size_t>(m);
-      if (!state.final_momentum) a = (1.0 - u) * (*A)[q] + u * (*A)[q + 1];
-      j1 = (1.0 - u) * J1[q] + u * J1[q + 1];
-    }
+    const double x = (problem_.delay_au[i] - gate.time(0)) / gate.dt();
+    const long m = std::clamp(static_cast<long>(std::floor(x)), 0L, static_cast<long>(A.size()) - 2);
+    const double u = std::clamp(x - static_cast<double>(m), 0.0, 1.0);
+    const std::size_t q = static_cast<std::size_t>(m);
+    const double a = state.final_momentum ? 0.0 : (1.0 - u) * A[q] + u * A[q + 1];
+    const double j1 = (1.0 - u) * J1[q] + u * J1[q + 1];
     // Node b's gate carries the phase p_b J1(t); at t ~ tau_i that is a constant per node and
     // delay which |a| of one node ignores but the interpolation between nodes does not
     // (h J1 reaches radians in strong streaking): it is removed before combining.
@@ -686,9 +678,9 @@ void CmaProblem::band_layout(const std::vector<double>* A, const PhaseGate& gate
     // Initial-momentum frame: row p_f is interpolated at its initial momentum p_f + A(tau_i)
     // (classical streaking, p_f = p_i - A); final-momentum frame: at p_f (a = 0).
     for (std::size_t j = 0; j < ne_; ++j) {
-      double u;
-      state.node[i * ne_ + j] = static_cast<std::uint8_t>(node_of(row_momentum_[j] + a, &u));
-      state.frac[i * ne_ + j] = u;
+      double w;
+      state.node[i * ne_ + j] = static_cast<std::uint8_t>(node_of(row_momentum_[j] + a, &w));
+      state.frac[i * ne_ + j] = w;
     }
   }
 }
@@ -697,7 +689,9 @@ void CmaProblem::project_bands(std::size_t j, std::vector<CVec>& spectra, const 
                                ErrorSums& sums, double* scratch, CVec& combined,
                                CVec& before) const {
   if (spectra.size() == 1) return project(j, spectra[0].data(), sums, scratch);
-  combined.assign(n_, cdouble(0.0, 0.0));
+  // Only the measured bins are written below; the others stay 0 through project() (which
+  // at most scales them), so the buffers are zeroed once.
+  if (combined.size() != n_) combined.assign(n_, cdouble(0.0, 0.0));
   before.resize(n_);
   const std::uint8_t* node = state.node.data() + j * ne_;
   const double* frac = state.frac.data() + j * ne_;
@@ -728,10 +722,12 @@ void CmaProblem::project_bands(std::size_t j, std::vector<CVec>& spectra, const 
         for (std::size_t q = 0; q < seg.len; ++q) sp[seg.k0 + q] *= damp;
 }
 
-void CmaProblem::set_band_gates(const CommonPotential& c, std::vector<PhaseGate>& gates,
-                                bool final_frame) const {
+void CmaProblem::apply_potential(const CommonPotential& c, std::vector<PhaseGate>& gates,
+                                 BandState& state) const {
   for (std::size_t b = 0; b < gates.size(); ++b)
-    set_gate_from_potential(gates[b], c.A, bands_[b].p_au, c.end, c.end_phase, final_frame);
+    set_gate_from_potential(gates[b], c.A, bands_[b].p_au, c.end, c.end_phase,
+                            state.final_momentum);
+  band_layout(c, gates[0], state);
 }
 
 std::vector<PhaseGate> CmaProblem::band_gates(const CVec& eps, const PhaseGate& gate,
@@ -750,9 +746,7 @@ std::vector<PhaseGate> CmaProblem::band_gates(const CVec& eps, const PhaseGate& 
   state.final_momentum = a0 < 0.5 * node_step_;
   state.streaking_shift_au = a0;
   std::vector<PhaseGate> gates(bands_.size(), gate);
-  set_band_gates(c, gates, state.final_momentum);
-  state.end_node = c.end;
-  band_layout(&c.A, gate, state);
+  apply_potential(c, gates, state);
   return gates;
 }
 
@@ -763,10 +757,7 @@ void CmaProblem::reconcile_gates(const CVec& eps, std::vector<PhaseGate>& gates,
     gates[0].smooth(cover);
     return;
   }
-  const CommonPotential c = common_potential(eps, gates, cover, state.final_momentum);
-  set_band_gates(c, gates, state.final_momentum);
-  state.end_node = c.end;
-  band_layout(&c.A, gates[0], state);
+  apply_potential(common_potential(eps, gates, cover, state.final_momentum), gates, state);
 }
 
 void CmaProblem::support(const CVec& eps, std::size_t* lo, std::size_t* hi) {
@@ -816,11 +807,14 @@ CVec CmaProblem::initial_xuv(const EngineOptions& o) const {
   return eps;
 }
 
-std::optional<IrField> CmaProblem::initial_field(const EngineOptions& o) const {
+PhaseGate CmaProblem::initial_gate(const EngineOptions& o) const {
+  PhaseGate gate(problem_.grid, problem_.delay_au, knot_step_au());
   const double p0 = problem_.central_momentum_au;
   if (o.initial_ir && o.initial_ir->size() >= 5) {
+    const IrField& ir = *o.initial_ir;
+    gate.set_phase([&](double t) { return cma_gate_phase(ir, p0, t); });
     gate_guess_ = "initial_ir";
-    return *o.initial_ir;
+    return gate;
   }
   // Streaking-centroid curve. The gate shifts the spectrum by -d phi/dt = -(p0 A - A^2/2):
   // W_c(tau) = W0 - p0 A(tau) + A(tau)^2 / 2 (= the classical (p0 - A)^2 / 2), so
@@ -856,7 +850,7 @@ std::optional<IrField> CmaProblem::initial_field(const EngineOptions& o) const {
   }
   if (shift < 2.0 * problem_.grid.dw()) {
     gate_guess_ = "flat (centroid sweep below two energy bins)";
-    return std::nullopt;
+    return gate;
   }
   const std::vector<double>& tau = problem_.delay_au;
   const double step = units::period_au(problem_.ir_omega_au) / 64.0;
@@ -871,15 +865,9 @@ std::optional<IrField> CmaProblem::initial_field(const EngineOptions& o) const {
     const double f = std::clamp((t - tau[i]) / (tau[i + 1] - tau[i]), 0.0, 1.0);
     a[q] = (1.0 - f) * A[i] + f * A[i + 1];
   }
+  const IrField guess(tau.front(), h, std::move(a));
+  gate.set_phase([&](double t) { return cma_gate_phase(guess, p0, t); });
   gate_guess_ = "centroid curve";
-  return IrField(tau.front(), h, std::move(a));
-}
-
-PhaseGate CmaProblem::initial_gate(const EngineOptions& o) const {
-  PhaseGate gate(problem_.grid, problem_.delay_au, knot_step_au());
-  const std::optional<IrField> ir = initial_field(o);
-  const double p0 = problem_.central_momentum_au;
-  if (ir) gate.set_phase([&](double t) { return cma_gate_phase(*ir, p0, t); });
   return gate;
 }
 
@@ -924,15 +912,15 @@ Eigen::MatrixXd CmaProblem::model_trace(const CVec& eps, const std::vector<Phase
 }
 
 Reconstruction CmaProblem::reconstruct(CVec eps, std::vector<PhaseGate> gates,
-                                       BandState state) const {
+                                       bool final_momentum) const {
   if (gates.size() == 1) return reconstruct(std::move(eps), std::move(gates[0]));
-  // One consistent set: every block gate from the common A, the reported A(t) through the p0
+  // One consistent set: every node gate from the common A, the reported A(t) through the p0
   // gate of that A (the single-gate bookkeeping below then applies unchanged).
   std::vector<double> cover;
-  const CommonPotential c = common_potential(eps, gates, cover, state.final_momentum);
-  set_band_gates(c, gates, state.final_momentum);
-  state.end_node = c.end;
-  band_layout(&c.A, gates[0], state);
+  BandState state;
+  state.final_momentum = final_momentum;
+  const CommonPotential c = common_potential(eps, gates, cover, final_momentum);
+  apply_potential(c, gates, state);
   PhaseGate g0 = gates[0];
   set_gate_from_potential(g0, c.A, problem_.central_momentum_au, c.end, c.end_phase, false);
   Reconstruction rec = reconstruct(eps, std::move(g0));

@@ -63,7 +63,6 @@
 
 #include <complex>
 #include <cstdint>
-#include <optional>
 #include <string>
 #include <utility>
 #include <vector>
@@ -136,10 +135,10 @@ int auto_momentum_bands(double p_lo_au, double p_hi_au, double p0_au);
 struct BandState {
   std::vector<std::uint8_t> node;  ///< delays x energies: lower node of each row
   std::vector<double> frac;        ///< delays x energies: interpolation weight u of node + 1
-  /// delays x nodes: exp(-i p_b J1(tau_i)), J1(t) = Int_{t_end}^t A, the node gate's
+  /// delays x nodes: exp(-i p_b J1(tau_i)), J1(t) = Int_{t_end}^t A (t_end the last
+  /// well-probed gate node, where every node gate has one phase), the node gate's
   /// p-dependent phase at the XUV's arrival, removed before rows are interpolated.
   std::vector<std::complex<double>> twist;
-  std::size_t end_node = 0;        ///< gate node t_end where every node gate has one phase
   bool final_momentum = false;     ///< frame (see above)
   double streaking_shift_au = 0.0;  ///< max |A| (a.u.) the frame was chosen from
 };
@@ -227,17 +226,13 @@ class CmaProblem {
   /// gate; then reconcile_gates() every iteration (it is also the smooth-gate projection).
   void constrain(int k, CVec& eps, std::vector<PhaseGate>& gates, CVec& work,
                  std::vector<double>& cover, BandState& state) const;
-  /// Ties the band gates to one vector potential: each gate's phase is fitted as in
-  /// PhaseGate::smooth, converted to A_b(t) = p_b - sqrt(p_b^2 - 2 phi_b'), the A_b averaged
-  /// with the bands' weights, and every gate reset to exp(i phi_b) of that common A (phase
-  /// integrated node by node from the last well-probed node, where all bands share one
-  /// phase). One band: smooth().
-  /// The layout of `state` follows the new A (band_layout()).
+  /// Ties the node gates to one vector potential: each gate's phase is fitted as in
+  /// PhaseGate::smooth, converted to A_b(t) by the inverse of its frame's rate (BandState),
+  /// the A_b averaged with the nodes' signal shares, and every gate reset to exp(i phi_b) of
+  /// that common A (phase integrated node by node from the last well-probed node, where all
+  /// nodes share one phase); the layout of `state` follows the new A. One gate: smooth().
   void reconcile_gates(const CVec& eps, std::vector<PhaseGate>& gates, std::vector<double>& cover,
                        BandState& state) const;
-  /// Interpolation layout of every row at every delay for a common A on the gate nodes
-  /// (nullptr: A = 0) in state's frame (BandState).
-  void band_layout(const std::vector<double>* A, const PhaseGate& gate, BandState& state) const;
   /// Samples [lo, hi) outside which |eps|^2 < 1e-4 max |eps|^2 (plus a 2-sample margin): the
   /// gate updates are applied there only, elsewhere they are below 1 % of their peak (and
   /// the smooth-gate projection, weighted by the coverage, would discard them anyway).
@@ -271,9 +266,9 @@ class CmaProblem {
   /// range plus the XUV support, model trace, exact G and scale. No time shift is applied
   /// (the delay axis ties the gate's time axis to the IR reference).
   Reconstruction reconstruct(CVec eps, PhaseGate gate) const;
-  /// The same for reconciled band gates: A(t) is their common vector potential, the model
-  /// trace and G are the banded CMA's.
-  Reconstruction reconstruct(CVec eps, std::vector<PhaseGate> gates, BandState state) const;
+  /// The same for node gates in the given frame (BandState): A(t) is their common vector
+  /// potential, the model trace and G are the banded CMA's.
+  Reconstruction reconstruct(CVec eps, std::vector<PhaseGate> gates, bool final_momentum) const;
   /// Settings the engines report (grid, carrier, bins, gate table, CMA settings).
   std::vector<std::pair<std::string, std::string>> used_settings() const;
 
@@ -300,7 +295,8 @@ class CmaProblem {
   std::vector<MomentumBand> bands_;
   std::vector<double> row_momentum_;  // ne, sqrt(2 W_j)
   double node_step_ = 1.0;            // spacing h of the momentum nodes (a.u.)
-  // Lower node n of momentum p and the weight u of node n + 1 (clamped to the end nodes).
+  // Lower node n of momentum p and the weight u of node n + 1 (linear extrapolation up to
+  // half a node step beyond the end nodes, constant further out).
   std::size_t node_of(double p, double* u) const;
   // The banded CMA's common A on the gate nodes (signal-weighted mean of the bands' A_b; one
   // gate: its own A at p0), the last well-probed node and the phase every band gate takes
@@ -314,10 +310,11 @@ class CmaProblem {
                                    std::vector<double>& cover, bool final_frame) const;
   static void set_gate_from_potential(PhaseGate& gate, const std::vector<double>& A, double p,
                                       std::size_t end, double end_phase, bool final_frame);
-  void set_band_gates(const CommonPotential& c, std::vector<PhaseGate>& gates,
-                      bool final_frame) const;
-  // The IR guess of initial_gate() (none: flat gate).
-  std::optional<IrField> initial_field(const EngineOptions& options) const;
+  // Every node gate from the common A in state's frame, and the interpolation layout of every
+  // row at every delay that goes with it (band_layout).
+  void apply_potential(const CommonPotential& c, std::vector<PhaseGate>& gates,
+                       BandState& state) const;
+  void band_layout(const CommonPotential& c, const PhaseGate& gate, BandState& state) const;
   double sum_ii_ = 0.0, peak_ = 0.0;
   mutable std::string gate_guess_;
 };

@@ -167,7 +167,6 @@ class PtychographicEngine final : public Engine {
       best_ = G;
       best_eps_ = eps_;
       best_gates_ = gates_;
-      best_state_ = state_;
     }
     // Node gates started cold stall: each node's probe updates pull A its own way and their
     // average cancels (measured with separate bands: G stays at the flat-gate value on a
@@ -199,7 +198,7 @@ class PtychographicEngine final : public Engine {
   }
 
   Reconstruction finalize() override {
-    Reconstruction r = cma_->reconstruct(best_eps_, best_gates_, best_state_);
+    Reconstruction r = cma_->reconstruct(best_eps_, best_gates_, state_.final_momentum);
     r.settings.emplace_back("momentum_nodes_used", std::to_string(best_gates_.size()));
     if (cma_->bands().size() > 1)
       r.settings.emplace_back(
@@ -207,9 +206,8 @@ class PtychographicEngine final : public Engine {
           stage_switch_ > 0
               ? std::to_string(stage_switch_ + 1) +
                     (best_gates_.size() == 1 ? " (best estimate from the one-p0 stage)" : "") +
-                    (best_state_.final_momentum ? ", final-momentum frame"
-                                                : ", initial-momentum frame") +
-                    " (max |A| " + fmt(best_state_.streaking_shift_au) + " a.u. at the switch)"
+                    (state_.final_momentum ? ", final-momentum frame" : ", initial-momentum frame") +
+                    " (max |A| " + fmt(state_.streaking_shift_au) + " a.u. at the switch)"
           : !stage_note_.empty() ? stage_note_
                                  : std::string("never (the run ended in the one-p0 stage)"));
     r.settings.emplace_back("beta_object", std::to_string(beta_o_));
@@ -247,7 +245,7 @@ class PtychographicEngine final : public Engine {
   bool banded_ = false;
   int stage_switch_ = 0;
   std::vector<double> history_;
-  BandState state_, best_state_;
+  BandState state_;  // the frame is chosen once, at the switch
   CVec best_eps_;
   std::vector<PhaseGate> best_gates_;
   double best_ = 0.0;

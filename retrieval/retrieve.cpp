@@ -236,14 +236,13 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   // (the engine adds them only when the one-p0 fit stalls above the noise floor, and a
   // replica's doubled noise would otherwise decide differently and bias the correction).
   EngineOptions beo = eo;
-  bool nodes_set = false;
-  for (const auto& kv : beo.extra) nodes_set = nodes_set || kv.first == "momentum_bands";
-  for (const Reconstruction& c : out.chain) {
-    if (c.engine != "ptychographic" || nodes_set) continue;
-    for (const auto& [key, value] : c.settings)
+  const bool nodes_set = std::any_of(beo.extra.begin(), beo.extra.end(),
+                                     [](const auto& kv) { return kv.first == "momentum_bands"; });
+  const auto ptycho = std::find_if(out.chain.begin(), out.chain.end(),
+                                   [](const Reconstruction& c) { return c.engine == "ptychographic"; });
+  if (!nodes_set && ptycho != out.chain.end())
+    for (const auto& [key, value] : ptycho->settings)
       if (key == "momentum_nodes_used") beo.extra.push_back({"momentum_bands", value});
-    break;
-  }
   std::vector<double> bf, bg, ba, bs;
   for (int b = 0; b < opt.bootstrap; ++b) {
     const Trace rep = poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);

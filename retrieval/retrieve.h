@@ -10,9 +10,9 @@
 // full-model engine refines the CMA result (DESIGN.md: "switch to the full model when the
 // bandwidth is not small"). It also refines when the CMA engine stopped with its trace error
 // above `cma_trace_error_max_ratio` (default 2, our choice) times the noise floor: on the
-// satellite preset the CMA engines stall at 4.5 x the floor with the satellites at a quarter
-// of their size, and the full model started from that result reaches the floor (docs/validation.md);
-// the clean presets sit at 1.2-1.3 x. In that case the full model runs twice, from the CMA
+// satellite preset the CMA engines stall at 4-5 x the floor with the satellites too small,
+// and the full model started from that result reaches the floor (docs/validation.md); the
+// clean presets sit at 1.0-1.25 x. In that case the full model runs twice, from the CMA
 // result and from its own guess (parametric IR), and the better fit is kept.
 //
 // Uncertainties: parametric bootstrap (Wang, Zeek, Trebino and Kvam, JOSA B 20, 2400 (2003),

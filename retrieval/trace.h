@@ -53,7 +53,8 @@ struct TraceMeta {
   /// analyses also add it to the result's warnings.
   std::vector<Param> calibration;
   /// Warnings the reader gave about the input (8-bit image, counts outside the calibration
-  /// window, a poor calibration fit, ...); every analysis copies them into its result.
+  /// window, a poor calibration fit, ...; filled by io/trace_reader.h); every analysis copies
+  /// them into its result.
   std::vector<std::string> read_warnings;
 };
 

@@ -128,9 +128,6 @@ inline Metrics metrics(const XuvField& x, const IrField& ir) {
   return m;
 }
 
-}  // namespace sw::testing
-
-namespace sw::testing {
 
 /// Runs a registered engine on a case with the given options.
 inline Reconstruction retrieve(const Case& c, const std::string& engine, EngineOptions o = {}) {

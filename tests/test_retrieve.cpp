@@ -66,9 +66,10 @@ TEST_CASE("chirp sign comes out right for both signs", "[retrieve]") {
 }
 
 TEST_CASE("broadband pulse: auto refines with the full model, which fits better", "[retrieve][slow]") {
-  // Bandwidth/energy ~0.25: the CMA neglects (p - p_f)(I1 - I1_mid), ~0.9 rad here. (With the
-  // delay-adapted gate the CMA's FWHM is within 1 % too; its trace stays 1.3 x the noise floor
-  // where the full model reaches it, and its error is printed, not hidden.)
+  // Bandwidth/energy ~0.25: one central momentum neglects (p - p_f)(I1 - I1_mid), ~0.9 rad
+  // here. (With the delay-adapted gate and the momentum nodes the ptychographic FWHM is within
+  // 1 % too; its trace stays ~1.1 x the noise floor where the full model reaches it, and its
+  // error is printed, not hidden.)
   const Case cma = run_preset("helium-70as", "ptychographic");
   const Case au = run_preset("helium-70as", "auto");
   const double truth = *au.scan.truth.xuv->fwhm_as;
@@ -84,7 +85,7 @@ TEST_CASE("broadband pulse: auto refines with the full model, which fits better"
 
 TEST_CASE("satellites are seen and classified", "[retrieve][slow]") {
   // Satellites at -T/2 (15 %) and +T/2 (8 %) of the main burst. The CMA engines stall at
-  // ~4.5 x the noise floor with the satellites at a quarter of their size; auto notices the
+  // 4-5 x the noise floor with the satellites too small; auto notices the
   // unexplained trace (G > 2 G_noise) and refines with the full model.
   const Case c = run_preset("neon-satellites", "auto");
   CHECK(c.out.result.engine == "full-model");
