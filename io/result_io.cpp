@@ -160,6 +160,49 @@ ojson to_ojson(const AnalysisResult& r) {
     s["sidebands"] = std::move(sbs);
     j["rabbitt"] = std::move(s);
   }
+  if (r.quality) {
+    const QualitySection& q = *r.quality;
+    ojson s = ojson::object();
+    s["trusted"] = q.trusted;
+    s["failed"] = q.failed;
+    ojson cs = ojson::array();
+    for (std::size_t i = 0; i < q.checks.size(); ++i) {
+      const QualityCheck& c = q.checks[i];
+      const std::string k = "quality.checks[" + std::to_string(i) + "]";
+      ojson o;
+      o["name"] = c.name;
+      o["value"] = finite_number(c.value, k + ".value");
+      o["limit"] = finite_number(c.limit, k + ".limit");
+      o["pass"] = c.pass;
+      o["rule"] = c.rule;
+      o["guards_headline"] = c.guards_headline;
+      if (!c.detail.empty()) o["detail"] = c.detail;
+      cs.push_back(std::move(o));
+    }
+    s["checks"] = std::move(cs);
+    j["quality"] = std::move(s);
+  }
+  if (!r.lines.empty()) {
+    ojson ls = ojson::array();
+    for (std::size_t i = 0; i < r.lines.size(); ++i) {
+      const LineEntry& l = r.lines[i];
+      const std::string k = "lines[" + std::to_string(i) + "]";
+      ojson o;
+      o["name"] = l.name;
+      o["ionization_energy_eV"] = finite_number(l.ionization_energy_eV, k + ".ionization_energy_eV");
+      if (!l.gas.empty()) o["gas"] = l.gas;
+      put(o, k, "relative_strength", l.relative_strength);
+      put(o, k, "relative_strength_sigma", l.relative_strength_sigma);
+      put(o, k, "relative_delay_as", l.relative_delay_as);
+      put(o, k, "relative_delay_as_sigma", l.relative_delay_as_sigma);
+      put(o, k, "kinetic_energy_eV", l.kinetic_energy_eV);
+      if (l.reference) o["reference"] = true;
+      o["analysed"] = l.analysed;
+      if (!l.source.empty()) o["source"] = l.source;
+      ls.push_back(std::move(o));
+    }
+    j["lines"] = std::move(ls);
+  }
   for (const Param& p : r.extra) place(j, p.key, param_value(p, p.key));
   for (const auto& [key, text] : r.extra_json) {
     ojson v;
@@ -410,6 +453,67 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
         }
       }
       r.rabbitt = std::move(x);
+    } else if (key == "quality") {
+      if (!v.is_object()) rd.fail(key, "an object");
+      QualitySection q;
+      if (!v.contains("trusted") || !v["trusted"].is_boolean()) rd.fail("quality.trusted", "true or false");
+      if (v.contains("checks")) {
+        const ojson& cs = v["checks"];
+        if (!cs.is_array()) rd.fail("quality.checks", "an array");
+        for (std::size_t i = 0; i < cs.size(); ++i) {
+          const std::string k = "quality.checks[" + std::to_string(i) + "]";
+          const ojson& o = cs[i];
+          if (!o.is_object()) rd.fail(k, "an object");
+          QualityCheck c;
+          if (!o.contains("name")) rd.fail(k + ".name", "a string (required)");
+          c.name = rd.string(o["name"], k + ".name");
+          if (o.contains("value")) c.value = rd.number(o["value"], k + ".value");
+          if (o.contains("limit")) c.limit = rd.number(o["limit"], k + ".limit");
+          if (o.contains("rule")) c.rule = rd.string(o["rule"], k + ".rule");
+          if (o.contains("detail")) c.detail = rd.string(o["detail"], k + ".detail");
+          if (o.contains("pass")) {
+            if (!o["pass"].is_boolean()) rd.fail(k + ".pass", "true or false");
+            c.pass = o["pass"].get<bool>();
+          }
+          if (o.contains("guards_headline")) {
+            if (!o["guards_headline"].is_boolean()) rd.fail(k + ".guards_headline", "true or false");
+            c.guards_headline = o["guards_headline"].get<bool>();
+          }
+          q.checks.push_back(std::move(c));
+        }
+      }
+      q.finalize();
+      // The file's own verdict stands (it may come from a newer rule set).
+      q.trusted = v["trusted"].get<bool>();
+      r.quality = std::move(q);
+    } else if (key == "lines") {
+      if (!v.is_array()) rd.fail(key, "an array");
+      for (std::size_t i = 0; i < v.size(); ++i) {
+        const std::string k = "lines[" + std::to_string(i) + "]";
+        const ojson& o = v[i];
+        if (!o.is_object()) rd.fail(k, "an object");
+        LineEntry l;
+        if (!o.contains("name")) rd.fail(k + ".name", "a string (required)");
+        l.name = rd.string(o["name"], k + ".name");
+        if (o.contains("ionization_energy_eV"))
+          l.ionization_energy_eV = rd.number(o["ionization_energy_eV"], k + ".ionization_energy_eV");
+        if (o.contains("gas")) l.gas = rd.string(o["gas"], k + ".gas");
+        if (o.contains("source")) l.source = rd.string(o["source"], k + ".source");
+        auto opt = [&](const char* f, std::optional<double>* dst) {
+          if (o.contains(f)) *dst = rd.number(o[f], k + "." + f);
+        };
+        opt("relative_strength", &l.relative_strength);
+        opt("relative_strength_sigma", &l.relative_strength_sigma);
+        opt("relative_delay_as", &l.relative_delay_as);
+        opt("relative_delay_as_sigma", &l.relative_delay_as_sigma);
+        opt("kinetic_energy_eV", &l.kinetic_energy_eV);
+        for (const char* f : {"reference", "analysed"})
+          if (o.contains(f)) {
+            if (!o[f].is_boolean()) rd.fail(k + "." + f, "true or false");
+            (std::string(f) == "reference" ? l.reference : l.analysed) = o[f].get<bool>();
+          }
+        r.lines.push_back(std::move(l));
+      }
     } else if (key == "warnings") {
       if (!v.is_array()) rd.fail(key, "an array of strings");
       for (std::size_t i = 0; i < v.size(); ++i)

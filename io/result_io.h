@@ -6,7 +6,10 @@
 // evidence{...}), fit (trace_error, iterations, converged, seconds, noise_model, termination),
 // rabbitt (attochirp_as_per_eV[_sigma], train_burst_fwhm_as[_sigma],
 // transform_limited_burst_fwhm_as, sidebands[{order, energy_eV, phase_rad, phase_rad_sigma,
-// group_delay_as, group_delay_as_sigma, modulation_depth, atomic_delay_as}]), then every
+// group_delay_as, group_delay_as_sigma, modulation_depth, atomic_delay_as}]), quality
+// (trusted, failed[], checks[{name, value, limit, pass, rule, guards_headline, detail}]), lines
+// ([{name, ionization_energy_eV, gas, relative_strength[_sigma], relative_delay_as[_sigma],
+// kinetic_energy_eV, reference, analysed, source}]), then every
 // AnalysisResult::extra Param with its dotted key expanded into nested objects
 // ("generator.xuv.center_eV" -> {"generator": {"xuv": {"center_eV": ...}}}), then
 // AnalysisResult::extra_json (raw JSON text placed at its dotted key), then "warnings".

@@ -56,6 +56,15 @@ struct RetrievalProblem {
   /// What field_free_spectrum is, and so what it may fix (retrieval/cma_problem.h).
   ReferenceSpectrum reference = ReferenceSpectrum::kFieldFree;
   DipoleModel dipole;
+  /// Energy support of the signal (photoelectron kinetic energy, a.u.): the band where the
+  /// delay-integrated signal stands above the noise (retrieval/preprocess.h). Engines keep the
+  /// XUV spectrum zero at photon energies outside [support_lo + Ip, support_hi + Ip]; both 0 =
+  /// no support known (the whole axis).
+  double support_lo_au = 0.0, support_hi_au = 0.0;
+  /// Per-element weight of `intensity` in [0, 1] (same layout); empty = every element 1. A
+  /// weight of 0 (saturated bins) means the element is not data: projections keep the model
+  /// there and least squares ignore it.
+  Eigen::MatrixXd weight;
 };
 
 /// Options shared by every engine; engine-specific settings go in `extra` as name=value

@@ -74,6 +74,15 @@ struct PreprocessSummary {
   double grid_dt_as = 0.0;
   double total_counts = 0.0;
   double peak_counts = 0.0;
+  /// Energy support of the signal (kinetic energy, eV), copied to RetrievalProblem::support_*.
+  double support_lo_eV = 0.0, support_hi_eV = 0.0;
+  /// Analysis energy window actually used (kinetic energy, eV): the user's/sidecar's
+  /// energy_window_eV or the band chosen around the reference line; 0, 0 = whole axis.
+  double window_lo_eV = 0.0, window_hi_eV = 0.0;
+  /// Every photoelectron line found or declared (result.json "lines"); the one retrieved is
+  /// marked reference and analysed.
+  std::vector<LineEntry> lines;
+  std::size_t saturated_bins = 0;       ///< given zero weight
   std::vector<std::string> warnings;
 };
 

@@ -23,6 +23,38 @@ bool parse_pulse_class(const std::string& s, PulseClass* out) {
   return true;
 }
 
+QualityCheck& QualitySection::add(const std::string& name, double value, double limit,
+                                  const std::string& rule, const std::string& detail,
+                                  bool guards_headline) {
+  QualityCheck c;
+  c.name = name;
+  c.limit = limit;
+  c.rule = rule;
+  c.detail = detail;
+  c.guards_headline = guards_headline;
+  if (!std::isfinite(value)) {
+    c.value = 0;
+    c.pass = false;
+    c.detail += " (the value could not be computed)";
+  } else {
+    c.value = value;
+    c.pass = rule == ">=" ? value >= limit : value <= limit;
+  }
+  checks.push_back(std::move(c));
+  finalize();
+  return checks.back();
+}
+
+void QualitySection::finalize() {
+  trusted = true;
+  failed.clear();
+  for (const QualityCheck& c : checks) {
+    if (c.pass) continue;
+    failed.push_back(c.name);
+    if (c.guards_headline) trusted = false;
+  }
+}
+
 const Param* find_param(const std::vector<Param>& params, const std::string& key) {
   for (const Param& p : params)
     if (p.key == key) return &p;

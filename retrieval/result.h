@@ -85,6 +85,49 @@ struct RabbittSection {
   std::vector<Sideband> sidebands;
 };
 
+/// One quality check (DESIGN.md "quality"): a measured value against its limit. `rule` says how
+/// they compare ("<=" : pass when value <= limit, ">=" : pass when value >= limit). A check that
+/// does not guard a headline number (`guards_headline` false) is reported but does not decide
+/// `trusted`.
+struct QualityCheck {
+  std::string name;                   ///< snake_case, stable (e.g. "fwhm_vs_transform_limit")
+  double value = 0;                   ///< finite; what was measured
+  double limit = 0;                   ///< the threshold (an option with a documented default)
+  std::string rule = "<=";            ///< "<=" or ">="
+  bool pass = true;
+  bool guards_headline = true;
+  std::string detail;                 ///< one human sentence: what it measures, in which units
+};
+
+/// quality section: trusted is false when any headline-guarding check fails; the numbers are
+/// still written. `failed` names every failing check (guarding or not).
+struct QualitySection {
+  bool trusted = true;
+  std::vector<std::string> failed;
+  std::vector<QualityCheck> checks;
+  /// Adds a check, evaluating pass from value, limit and rule (a non-finite value fails and is
+  /// recorded as its limit's opposite extreme is not representable: value is stored as 0 with
+  /// the detail saying so).
+  QualityCheck& add(const std::string& name, double value, double limit, const std::string& rule,
+                    const std::string& detail, bool guards_headline = true);
+  /// Recomputes trusted and failed from the checks.
+  void finalize();
+};
+
+/// One photoelectron line of the scan (DESIGN.md "lines"). `relative_*` are relative to the
+/// line with reference = true; a line found but not analysed carries no delay.
+struct LineEntry {
+  std::string name;                   ///< "2p", "2s", "3p", ... (or the sidecar's name)
+  double ionization_energy_eV = 0;    ///< binding energy used (NIST ASD or sidecar)
+  std::string gas;                    ///< gas symbol the line belongs to
+  std::optional<double> relative_strength, relative_strength_sigma;
+  std::optional<double> relative_delay_as, relative_delay_as_sigma;
+  std::optional<double> kinetic_energy_eV;  ///< expected/found line centre (photon - Ip)
+  bool reference = false;             ///< the line the pulse was retrieved from / delays refer to
+  bool analysed = false;              ///< true for the line(s) the analysis used
+  std::string source;                 ///< "sidecar", "gas table", "detected"
+};
+
 struct AnalysisResult {
   std::string input;                  ///< sidecar path as given
   std::string analysis;               ///< "retrieve", "rabbitt", "classify", "simulate"
@@ -94,6 +137,8 @@ struct AnalysisResult {
   std::optional<VerdictSection> verdict;
   std::optional<FitSection> fit;
   std::optional<RabbittSection> rabbitt;
+  std::optional<QualitySection> quality;  ///< always set by retrieve, rabbitt and classify
+  std::vector<LineEntry> lines;           ///< written as "lines" when not empty
   std::vector<Param> extra;           ///< further keys beside the contract's
   /// Further values given as JSON text under a dotted key (e.g. "sidecar.operator" ->
   /// "\"A. N. Other\""), written verbatim at that position; used to echo unknown sidecar keys

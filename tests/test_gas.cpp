@@ -63,3 +63,22 @@ TEST_CASE("unknown gas gives an input error listing the known symbols", "[gas]")
   }
   CHECK_THROWS_AS(find_gas(""), Error);
 }
+
+TEST_CASE("inner-valence lines: thresholds and order", "[gas]") {
+  // Thresholds = first Ip + ion level (NIST ASD level tables, from memory to ~10 meV):
+  // Ne 2s 48.475 eV, Ar 3s 29.239 eV, Kr 4s 27.513 eV, Xe 5s 23.397 eV. DESIGN.md's example
+  // sidecar quotes 48.475 eV for Ne 2s.
+  CHECK(find_gas("Ne").lines.at(1).name == "2s");
+  CHECK(find_gas("Ne").lines.at(1).ionization_energy_eV == Approx(48.475).margin(0.01));
+  CHECK(find_gas("Ar").lines.at(1).ionization_energy_eV == Approx(29.239).margin(0.01));
+  CHECK(find_gas("Kr").lines.at(1).ionization_energy_eV == Approx(27.513).margin(0.01));
+  CHECK(find_gas("Xe").lines.at(1).ionization_energy_eV == Approx(23.397).margin(0.01));
+  // The outer-valence line comes first and is the first ionization energy; thresholds ascend.
+  for (const Gas& g : gas_table()) {
+    INFO("gas " << g.symbol);
+    REQUIRE(!g.lines.empty());
+    CHECK(g.lines.front().ionization_energy_eV == g.ionization_energy_eV);
+    for (std::size_t i = 1; i < g.lines.size(); ++i)
+      CHECK(g.lines[i].ionization_energy_eV > g.lines[i - 1].ionization_energy_eV);
+  }
+}
