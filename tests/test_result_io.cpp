@@ -278,28 +278,28 @@ TEST_CASE("reading a bad result file names the file and the key", "[io][result]"
 
 TEST_CASE("quality and lines sections follow DESIGN.md and round-trip", "[io][result]") {
   // Key names and shapes: ../shared/DESIGN.md "The result contract" (quality, lines).
-  AnalysisResult r;
+  sw::AnalysisResult r;
   r.analysis = "retrieve";
-  QualitySection q;
+  sw::QualitySection q;
   q.add("trace_error_vs_noise_floor", 1.04, 1.5, "<=", "G / G_noise");
   q.add("fwhm_vs_transform_limit", 0.42, 0.95, ">=", "FWHM / transform limit");
   q.add("total_counts", 10.0, 100.0, ">=", "informational", /*guards_headline=*/false);
   r.quality = q;
   CHECK_FALSE(q.trusted);
   CHECK(q.failed == std::vector<std::string>{"fwhm_vs_transform_limit", "total_counts"});
-  LineEntry a;
+  sw::LineEntry a;
   a.name = "2p";
   a.ionization_energy_eV = 21.5645;
   a.relative_strength = 1.0;
   a.reference = true;
   a.analysed = true;
-  LineEntry b;
+  sw::LineEntry b;
   b.name = "2s";
   b.ionization_energy_eV = 48.475;
   b.relative_strength = 0.31;
   b.relative_strength_sigma = 0.01;
   r.lines = {a, b};
-  const json j = json::parse(result_to_json(r));
+  const json j = json::parse(sw::result_to_json(r));
   CHECK(j["quality"]["trusted"] == false);
   CHECK(j["quality"]["failed"][0] == "fwhm_vs_transform_limit");
   CHECK(j["quality"]["checks"][1]["value"] == 0.42);
@@ -308,21 +308,21 @@ TEST_CASE("quality and lines sections follow DESIGN.md and round-trip", "[io][re
   CHECK(j["lines"][0]["reference"] == true);
   CHECK(j["lines"][1]["ionization_energy_eV"] == 48.475);
   CHECK_FALSE(j["lines"][1].contains("relative_delay_as"));  // not analysed: no delay
-  const AnalysisResult back = result_from_json(result_to_json(r), "mem");
+  const sw::AnalysisResult back = sw::result_from_json(sw::result_to_json(r), "mem");
   REQUIRE(back.quality);
   CHECK_FALSE(back.quality->trusted);
   CHECK(back.quality->checks.size() == 3);
   CHECK(back.quality->checks[2].guards_headline == false);
   REQUIRE(back.lines.size() == 2);
   CHECK(back.lines[1].relative_strength_sigma.value_or(0) == 0.01);
-  CHECK(result_to_json(back) == result_to_json(r));
+  CHECK(sw::result_to_json(back) == sw::result_to_json(r));
   // A guarding check that passes and an informational one that fails: still trusted.
-  QualitySection ok;
+  sw::QualitySection ok;
   ok.add("a", 1.0, 2.0, "<=", "");
   ok.add("b", 1.0, 2.0, ">=", "", false);
   CHECK(ok.trusted);
   // A non-finite value fails its check and is never written as NaN.
-  QualitySection bad;
+  sw::QualitySection bad;
   bad.add("c", std::nan(""), 2.0, "<=", "");
   CHECK_FALSE(bad.trusted);
   CHECK(std::isfinite(bad.checks[0].value));
