@@ -56,6 +56,8 @@ int run_simulate(const SimulateArgs& a) {
   const std::string sidecar = (std::filesystem::path(a.out) / (name + ".json")).string();
   TraceWriteOptions wo;
   wo.truth = &scan.truth;
+  if (scan.tof)
+    wo.tof = TraceTofAxis{scan.tof->tof_ns, scan.tof->length_m, scan.tof->t0_ns, scan.tof->energy_offset_eV};
   Trace t = scan.trace;
   t.meta.source.clear();
   const TraceFiles files = write_trace(t, sidecar, fmt, wo);

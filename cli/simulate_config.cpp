@@ -137,6 +137,40 @@ class Loader : public FieldVisitor {
       out.push_back(as_number((*n)[i], key + "[" + std::to_string(i) + "]"));
     v = std::move(out);
   }
+  void lines(const std::string& key, std::vector<sw::synthetic::LineSpec>& v) override {
+    const std::optional<cv::FileNode> n = take(key);
+    if (!n) return;
+    if (!n->isSeq())
+      fail(key, "a list of lines such as [{name: 2p}, {name: 2s, relative_strength: 0.3}]", *n);
+    std::vector<sw::synthetic::LineSpec> out;
+    for (int i = 0; i < static_cast<int>(n->size()); ++i) {
+      const cv::FileNode item = (*n)[i];
+      const std::string k = key + "[" + std::to_string(i) + "]";
+      if (!item.isMap())
+        fail(k, "a map {gas, name, ionization_energy_eV, relative_strength, delay_as}", item);
+      sw::synthetic::LineSpec l;
+      for (auto it = item.begin(); it != item.end(); ++it) {
+        const cv::FileNode f = *it;
+        const std::string name = f.name(), fk = k + "." + name;
+        if (name == "gas" || name == "name") {
+          if (!f.isString()) fail(fk, "a string", f);
+          (name == "gas" ? l.gas : l.name) = static_cast<std::string>(f);
+        } else if (name == "ionization_energy_eV") {
+          l.ionization_energy_eV = as_number(f, fk);
+        } else if (name == "relative_strength") {
+          l.relative_strength = as_number(f, fk);
+        } else if (name == "delay_as") {
+          l.delay_as = as_number(f, fk);
+        } else {
+          throw input_error(file_ + ": unknown key '" + fk +
+                            "'; a line has gas, name, ionization_energy_eV, relative_strength "
+                            "and delay_as.");
+        }
+      }
+      out.push_back(l);
+    }
+    v = std::move(out);
+  }
 
  private:
   // The node under `key`, removed from the leaves (what remains at the end is unknown).

@@ -156,8 +156,36 @@ TraceFiles write_trace(const Trace& trace, const std::string& sidecar_path, Trac
   if (trace.counts.size() == 0)
     throw input_error("cannot write the trace '" + sidecar_path + "': it has no data");
 
+  // Flight-time recording: columns reordered by ascending flight time.
+  Eigen::MatrixXd cols = trace.counts;
+  std::vector<double> tof_sorted;
+  if (options.tof) {
+    const TraceTofAxis& ta = *options.tof;
+    const std::size_t n = ta.tof_ns.size();
+    if (n != static_cast<std::size_t>(trace.counts.cols()) || n < 2)
+      throw input_error("cannot write the trace '" + sidecar_path + "': the flight-time axis has " +
+                        std::to_string(n) + " values for " + std::to_string(trace.counts.cols()) +
+                        " columns; expected one flight time per column (at least 2)");
+    if (!std::isfinite(ta.length_m) || !(ta.length_m > 0) || !std::isfinite(ta.t0_ns) ||
+        !std::isfinite(ta.energy_offset_eV))
+      throw input_error("cannot write the trace '" + sidecar_path +
+                        "': the time-of-flight calibration needs length_m > 0 and finite t0_ns "
+                        "and energy_offset_eV");
+    std::vector<std::size_t> order(n);
+    for (std::size_t k = 0; k < n; ++k) order[k] = k;
+    std::sort(order.begin(), order.end(),
+              [&](std::size_t a, std::size_t b) { return ta.tof_ns[a] < ta.tof_ns[b]; });
+    for (std::size_t k = 0; k < n; ++k) {
+      if (!std::isfinite(ta.tof_ns[order[k]]) || !(ta.tof_ns[order[k]] > ta.t0_ns) ||
+          (k > 0 && !(ta.tof_ns[order[k]] > ta.tof_ns[order[k - 1]])))
+        throw input_error("cannot write the trace '" + sidecar_path +
+                          "': flight times must be finite, distinct and after t0_ns");
+      cols.col(static_cast<Eigen::Index>(k)) = trace.counts.col(static_cast<Eigen::Index>(order[k]));
+      tof_sorted.push_back(ta.tof_ns[order[k]]);
+    }
+  }
   const bool energy_rows = options.layout == TraceLayout::kEnergyRows;
-  const Eigen::MatrixXd m = energy_rows ? Eigen::MatrixXd(trace.counts.transpose()) : trace.counts;
+  const Eigen::MatrixXd m = energy_rows ? Eigen::MatrixXd(cols.transpose()) : cols;
   const std::string image_name = sidecar.stem().string() + (fmt == TraceFormat::kPng16  ? ".png"
                                                             : fmt == TraceFormat::kTiff ? ".tiff"
                                                                                         : ".csv");
@@ -212,7 +240,14 @@ TraceFiles write_trace(const Trace& trace, const std::string& sidecar_path, Trac
   std::vector<double> e(trace.energy_au.size()), d(trace.delay_au.size());
   for (std::size_t j = 0; j < e.size(); ++j) e[j] = units::au_to_eV(trace.energy_au[j]);
   for (std::size_t i = 0; i < d.size(); ++i) d[i] = units::au_to_fs(trace.delay_au[i]);
-  sc["energy_eV"] = axis_json(e, options.explicit_axes);
+  if (options.tof) {
+    sc["tof_ns"] = axis_json(tof_sorted, options.explicit_axes);
+    sc["calibration"] = ojson{{"length_m", options.tof->length_m},
+                              {"t0_ns", options.tof->t0_ns},
+                              {"energy_offset_eV", options.tof->energy_offset_eV}};
+  } else {
+    sc["energy_eV"] = axis_json(e, options.explicit_axes);
+  }
   sc["delay_fs"] = axis_json(d, options.explicit_axes);
   if (meta.kind != TraceKind::kUnknown) sc["kind"] = to_string(meta.kind);
   if (!meta.gas.empty()) sc["gas"] = meta.gas;
@@ -227,7 +262,7 @@ TraceFiles write_trace(const Trace& trace, const std::string& sidecar_path, Trac
   const auto& known = known_sidecar_keys();
   for (const auto& [key, text] : meta.extra_json) {
     // Never let an extra shadow or contradict a key the reader interprets.
-    if (sc.contains(key) ||
+    if (sc.contains(key) || (key == "calibration" && options.tof) ||
         (key != "calibration" && std::find(known.begin(), known.end(), key) != known.end()))
       continue;
     try {

@@ -18,7 +18,9 @@
 // Every file is written atomically (io/atomic_file.h); the data file is written before the
 // sidecar, so a sidecar never names a missing image.
 
+#include <optional>
 #include <string>
+#include <vector>
 
 #include "retrieval/result.h"
 #include "retrieval/trace.h"
@@ -37,6 +39,18 @@ enum class TraceLayout { kDelayRows, kEnergyRows };
 const char* to_string(TraceLayout l);
 bool parse_trace_layout(const std::string& s, TraceLayout* out);
 
+/// A flight-time axis to write instead of the energy axis: the trace's columns are counts per
+/// flight-time bin (one tof_ns value per column, in column order), as the synthetic generator
+/// records them (synthetic/tof_recording.h). The sidecar gets `tof_ns` (ascending; the columns
+/// are reordered to match) and the `calibration` block {length_m, t0_ns, energy_offset_eV}
+/// that io/trace_reader.cpp reads (io/tof_calibration.h); the trace's energy axis is not written.
+struct TraceTofAxis {
+  std::vector<double> tof_ns;     ///< flight time (ns) of each column, distinct, > t0_ns
+  double length_m = 0.0;          ///< drift length (m, > 0)
+  double t0_ns = 0.0;             ///< time zero (ns)
+  double energy_offset_eV = 0.0;  ///< energy offset (eV)
+};
+
 struct TraceWriteOptions {
   /// Orientation of the written image (the sidecar's "layout").
   TraceLayout layout = TraceLayout::kDelayRows;
@@ -44,6 +58,8 @@ struct TraceWriteOptions {
   bool explicit_axes = false;
   /// When set, the truth record is written to truth_path_for(sidecar) via write_result_json.
   const AnalysisResult* truth = nullptr;
+  /// When set, write the flight-time axis and calibration instead of energy_eV (see above).
+  std::optional<TraceTofAxis> tof = std::nullopt;
 };
 
 /// Paths actually written.

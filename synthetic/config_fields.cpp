@@ -84,6 +84,12 @@ void visit_fields(ScanConfig& c, FieldVisitor& v) {
   visit_axis(v, "delay_fs.", c.geometry.delay_fs);
   v.numbers("delay_fs.values", c.geometry.delay_values_fs);
 
+  v.lines("lines", c.lines);
+  v.number("tof.length_m", c.tof.length_m);
+  v.number("tof.t0_ns", c.tof.t0_ns);
+  v.number("tof.energy_offset_eV", c.tof.energy_offset_eV);
+  v.integer("tof.bins", c.tof.bins);
+
   NoiseConfig& n = c.noise;
   visit_enum(
       v, "noise.resolution", n.resolution, [](ResolutionKind k) { return to_string(k); },
@@ -95,9 +101,13 @@ void visit_fields(ScanConfig& c, FieldVisitor& v) {
   v.number("noise.background_counts", n.background_counts);
   v.number("noise.background_exp_counts", n.background_exp_counts);
   v.number("noise.background_exp_decay_eV", n.background_exp_decay_eV);
+  v.number("noise.background_exp_onset_eV", n.background_exp_onset_eV);
   v.boolean("noise.poisson", n.poisson);
   v.number("noise.readout_rms_counts", n.readout_rms_counts);
   v.number("noise.saturation_counts", n.saturation_counts);
+  v.integer("noise.hot_pixels", n.hot_pixels);
+  v.number("noise.hot_pixel_factor_min", n.hot_pixel_factor_min);
+  v.number("noise.hot_pixel_factor_max", n.hot_pixel_factor_max);
   v.number("noise.delay_jitter_rms_fs", n.delay_jitter_rms_fs);
   v.number("noise.delay_drift_fs_per_row", n.delay_drift_fs_per_row);
   v.number("noise.delay_walk_rms_fs", n.delay_walk_rms_fs);
@@ -125,6 +135,7 @@ class KeyCollector : public FieldVisitor {
     keys.push_back(k);
   }
   void numbers(const std::string& k, std::vector<double>&) override { keys.push_back(k); }
+  void lines(const std::string& k, std::vector<LineSpec>&) override { keys.push_back(k); }
 };
 
 class ParamCollector : public FieldVisitor {
@@ -142,6 +153,24 @@ class ParamCollector : public FieldVisitor {
   }
   void numbers(const std::string& k, std::vector<double>& v) override {
     params.push_back({prefix_ + k, v});
+  }
+  // One record per line field as parallel lists: names and gases comma-separated, numbers as
+  // arrays (empty lines = the gas's outer-valence line).
+  void lines(const std::string& k, std::vector<LineSpec>& v) override {
+    std::string names, gases;
+    std::vector<double> ip, strength, delay;
+    for (const LineSpec& l : v) {
+      names += (names.empty() ? "" : ",") + l.name;
+      gases += (gases.empty() ? "" : ",") + l.gas;
+      ip.push_back(l.ionization_energy_eV);
+      strength.push_back(l.relative_strength);
+      delay.push_back(l.delay_as);
+    }
+    params.push_back({prefix_ + k + ".name", names});
+    params.push_back({prefix_ + k + ".gas", gases});
+    params.push_back({prefix_ + k + ".ionization_energy_eV", ip});
+    params.push_back({prefix_ + k + ".relative_strength", strength});
+    params.push_back({prefix_ + k + ".delay_as", delay});
   }
 
  private:

@@ -8,7 +8,8 @@
 // `xuv.kind`, `xuv.gaussian.*`, `xuv.train.burst.*`, `xuv.train.*`, `xuv.satellites.burst.*`,
 // `xuv.satellites.*`, `xuv.tabulated.*`, `ir.kind`, `ir.<GaussianIrPulse field>`,
 // `energy_eV.{first,step,count}`, `delay_fs.{first,step,count}`, `delay_fs.values`,
-// `noise.*`, `numerics.*`.
+// `lines` (a list of {gas, name, ionization_energy_eV, relative_strength, delay_as}),
+// `tof.{length_m,t0_ns,energy_offset_eV,bins}`, `noise.*`, `numerics.*`.
 
 #include <string>
 #include <vector>
@@ -31,6 +32,8 @@ class FieldVisitor {
   virtual void choice(const std::string& key, std::string& value,
                       const std::vector<std::string>& allowed) = 0;
   virtual void numbers(const std::string& key, std::vector<double>& value) = 0;
+  /// The photoelectron lines (ScanConfig::lines): a list of maps with the LineSpec fields.
+  virtual void lines(const std::string& key, std::vector<LineSpec>& value) = 0;
 };
 
 /// Calls the visitor once per field of `config`, in a fixed order.

@@ -69,7 +69,55 @@ void PeakScaling::apply(Eigen::MatrixXd& counts, const std::vector<double>&, Ran
   counts *= peak_ / m;
 }
 
-double Background::level(double W) const { return constant_ + exp_ * std::exp(-W / decay_); }
+double Background::level(double W) const {
+  return constant_ + (W >= onset_ ? exp_ * std::exp(-(W - onset_) / decay_) : 0.0);
+}
+
+void ColumnBackground::apply(Eigen::MatrixXd& counts, const std::vector<double>&,
+                             RandomStreams&) const {
+  for (Eigen::Index j = 0; j < counts.cols(); ++j)
+    counts.col(j).array() += level_[static_cast<std::size_t>(j)];
+}
+
+std::vector<HotPixel> draw_hot_pixels(const NoiseConfig& n, Eigen::Index rows, Eigen::Index cols,
+                                      RandomStreams& streams) {
+  std::vector<HotPixel> out;
+  if (n.hot_pixels <= 0) return out;
+  // At most one pixel per 3 x 3 block keeps the rejection sampling short.
+  if (static_cast<double>(n.hot_pixels) > 0.1 * static_cast<double>(rows * cols) / 9.0)
+    throw usage_error("noise.hot_pixels = " + std::to_string(n.hot_pixels) +
+                      " is too many for a " + std::to_string(rows) + " x " +
+                      std::to_string(cols) + " scan: at most 1 per 90 pixels");
+  auto& g = streams[Stream::kHotPixels];
+  std::uniform_int_distribution<Eigen::Index> r(0, rows - 1), c(0, cols - 1);
+  std::uniform_real_distribution<double> f(n.hot_pixel_factor_min, n.hot_pixel_factor_max);
+  while (static_cast<int>(out.size()) < n.hot_pixels) {
+    HotPixel p{r(g), c(g), 0.0};
+    bool isolated = true;
+    for (const HotPixel& q : out)
+      if (std::abs(q.row - p.row) <= 1 && std::abs(q.col - p.col) <= 1) isolated = false;
+    p.factor = f(g);
+    if (isolated) out.push_back(p);
+  }
+  return out;
+}
+
+void HotPixels::apply(Eigen::MatrixXd& counts, const std::vector<double>&, RandomStreams&) const {
+  const Eigen::MatrixXd before = counts;
+  for (const HotPixel& p : pixels_) {
+    double sum = 0;
+    int k = 0;
+    for (Eigen::Index a = p.row - 1; a <= p.row + 1; ++a)
+      for (Eigen::Index b = p.col - 1; b <= p.col + 1; ++b) {
+        if ((a == p.row && b == p.col) || a < 0 || b < 0 || a >= counts.rows() ||
+            b >= counts.cols())
+          continue;
+        sum += before(a, b);
+        ++k;
+      }
+    counts(p.row, p.col) = std::round(p.factor * std::max(1.0, k > 0 ? sum / k : 0.0));
+  }
+}
 
 void Background::apply(Eigen::MatrixXd& counts, const std::vector<double>& E,
                        RandomStreams&) const {
@@ -106,7 +154,18 @@ void DetectorClip::apply(Eigen::MatrixXd& counts, const std::vector<double>&,
   if (saturation_ > 0) counts = counts.cwiseMin(saturation_);
 }
 
-NoisePipeline make_noise_pipeline(const NoiseConfig& n) {
+namespace {
+
+void add_counting_stages(NoisePipeline& p, const NoiseConfig& n, const std::vector<HotPixel>& hot) {
+  if (n.poisson) p.push_back(std::make_unique<PoissonCounting>());
+  if (n.readout_rms_counts > 0) p.push_back(std::make_unique<ReadoutNoise>(n.readout_rms_counts));
+  if (!hot.empty()) p.push_back(std::make_unique<HotPixels>(hot));
+  p.push_back(std::make_unique<DetectorClip>(n.saturation_counts));
+}
+
+}  // namespace
+
+NoisePipeline make_noise_pipeline(const NoiseConfig& n, const std::vector<HotPixel>& hot) {
   NoisePipeline p;
   if (n.resolution == ResolutionKind::kConstant)
     p.push_back(std::make_unique<EnergyResolution>(n.resolution_fwhm_eV, 0.0));
@@ -115,10 +174,19 @@ NoisePipeline make_noise_pipeline(const NoiseConfig& n) {
   p.push_back(std::make_unique<PeakScaling>(n.peak_counts));
   if (n.background_counts > 0 || n.background_exp_counts > 0)
     p.push_back(std::make_unique<Background>(n.background_counts, n.background_exp_counts,
-                                             n.background_exp_decay_eV));
-  if (n.poisson) p.push_back(std::make_unique<PoissonCounting>());
-  if (n.readout_rms_counts > 0) p.push_back(std::make_unique<ReadoutNoise>(n.readout_rms_counts));
-  p.push_back(std::make_unique<DetectorClip>(n.saturation_counts));
+                                             n.background_exp_decay_eV,
+                                             n.background_exp_onset_eV));
+  add_counting_stages(p, n, hot);
+  return p;
+}
+
+NoisePipeline make_time_bin_pipeline(const NoiseConfig& n, std::vector<double> level,
+                                     const std::vector<HotPixel>& hot) {
+  NoisePipeline p;
+  p.push_back(std::make_unique<PeakScaling>(n.peak_counts));
+  if (std::any_of(level.begin(), level.end(), [](double v) { return v > 0; }))
+    p.push_back(std::make_unique<ColumnBackground>(std::move(level)));
+  add_counting_stages(p, n, hot);
   return p;
 }
 

@@ -29,6 +29,7 @@ enum class Stream : std::size_t {
   kCep,
   kPoisson,
   kReadout,
+  kHotPixels,
   kCount
 };
 

@@ -231,6 +231,15 @@ std::string NoiseConfig::validate() const {
     return bad("noise.background_exp_counts", background_exp_counts, "finite and >= 0");
   if (!finite(background_exp_decay_eV) || !(background_exp_decay_eV > 0))
     return bad("noise.background_exp_decay_eV", background_exp_decay_eV, "a finite energy > 0 eV");
+  if (!finite(background_exp_onset_eV) || background_exp_onset_eV < 0)
+    return bad("noise.background_exp_onset_eV", background_exp_onset_eV, "finite and >= 0 eV");
+  if (hot_pixels < 0) return bad("noise.hot_pixels", hot_pixels, ">= 0");
+  if (!finite(hot_pixel_factor_min) || !(hot_pixel_factor_min >= 2))
+    return bad("noise.hot_pixel_factor_min", hot_pixel_factor_min,
+               "finite and >= 2 (a hot pixel stands far above Poisson noise)");
+  if (!finite(hot_pixel_factor_max) || !(hot_pixel_factor_max >= hot_pixel_factor_min))
+    return bad("noise.hot_pixel_factor_max", hot_pixel_factor_max,
+               ">= noise.hot_pixel_factor_min and finite");
   if (!finite(readout_rms_counts) || readout_rms_counts < 0)
     return bad("noise.readout_rms_counts", readout_rms_counts, "finite and >= 0");
   if (!finite(saturation_counts) || saturation_counts < 0)
@@ -293,7 +302,72 @@ std::string ScanConfig::validate() const {
            "(use kind = xuv_only or give the IR pulse).";
   if (!(m = noise.validate()).empty()) return m;
   if (!(m = numerics.validate()).empty()) return m;
+  for (std::size_t i = 0; i < lines.size(); ++i) {
+    const LineSpec& l = lines[i];
+    const std::string k = indexed("lines", i);
+    if (!finite(l.ionization_energy_eV) || l.ionization_energy_eV < 0)
+      return bad(k + ".ionization_energy_eV", l.ionization_energy_eV,
+                 "finite and >= 0 eV (0 = the gas table's value of the line name)");
+    if (!finite(l.relative_strength) || !(l.relative_strength > 0))
+      return bad(k + ".relative_strength", l.relative_strength, "a finite factor > 0");
+    if (!finite(l.delay_as) || std::abs(l.delay_as) > 1e5)
+      return bad(k + ".delay_as", l.delay_as, "finite and within +-1e5 as");
+  }
+  try {
+    (void)resolved_lines();
+  } catch (const Error& e) {
+    return e.what();
+  }
+  if (tof.length_m != 0.0 || tof.bins != 0) {
+    if (!finite(tof.length_m) || !(tof.length_m > 0) || tof.length_m > 100)
+      return bad("tof.length_m", tof.length_m, "a drift length in (0, 100] m");
+    if (!finite(tof.t0_ns)) return bad("tof.t0_ns", tof.t0_ns, "finite");
+    if (!finite(tof.energy_offset_eV)) return bad("tof.energy_offset_eV", tof.energy_offset_eV, "finite");
+    if (tof.bins != 0 && tof.bins < 2) return bad("tof.bins", tof.bins, "0 (as many as energy bins) or >= 2");
+    const double lowest_edge = geometry.energy_eV.first - 0.5 * geometry.energy_eV.step;
+    if (!(lowest_edge - tof.energy_offset_eV > 0))
+      return bad("tof.energy_offset_eV", tof.energy_offset_eV,
+                 "below the lowest energy bin edge (energy_eV.first - step/2): electrons need a "
+                 "positive drift energy");
+  }
   return {};
+}
+
+std::vector<ResolvedLine> ScanConfig::resolved_lines() const {
+  const Gas& main = find_gas(gas);
+  std::vector<ResolvedLine> out;
+  if (lines.empty()) {
+    out.push_back({main.symbol, main.lines.front().name, main.lines.front().ionization_energy_eV,
+                   1.0, 0.0});
+    return out;
+  }
+  for (std::size_t i = 0; i < lines.size(); ++i) {
+    const LineSpec& l = lines[i];
+    const std::string k = indexed("lines", i);
+    const Gas* g = &main;
+    if (!l.gas.empty()) {
+      try {
+        g = &find_gas(l.gas);
+      } catch (const Error& e) {
+        throw input_error(k + ".gas = " + l.gas + " is invalid: " + e.what());
+      }
+    }
+    ResolvedLine r{g->symbol, l.name, l.ionization_energy_eV, l.relative_strength, l.delay_as};
+    if (r.ionization_energy_eV == 0.0) {
+      std::string known;
+      for (const GasLine& gl : g->lines) {
+        known += (known.empty() ? "" : ", ") + gl.name;
+        if (gl.name == l.name) r.ionization_energy_eV = gl.ionization_energy_eV;
+      }
+      if (r.ionization_energy_eV == 0.0)
+        throw input_error(k + ".name = '" + l.name + "' is not a line of " + g->symbol +
+                          " in the gas table (" + known +
+                          "); give one of those or lines[i].ionization_energy_eV");
+    }
+    if (r.name.empty()) r.name = "line" + std::to_string(i);
+    out.push_back(r);
+  }
+  return out;
 }
 
 }  // namespace sw::synthetic

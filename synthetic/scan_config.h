@@ -113,10 +113,16 @@ bool parse_resolution_kind(const std::string& s, ResolutionKind* out);
 ///   then on the noise-free energy density p|a|^2 (synthetic/noise.h), in this order:
 ///     1 energy resolution (Gaussian convolution, counts conserved),
 ///     2 peak scaling (the largest element becomes peak_counts),
-///     3 background (constant + exponential in kinetic energy, counts per bin),
+///     3 background (constant + exponential tail from its onset in kinetic energy, counts per
+///       bin),
 ///     4 Poisson counting (expected value -> integer draw),
 ///     5 Gaussian readout noise,
-///     6 saturation (clip at saturation_counts) and clipping of negative values to 0.
+///     6 hot pixels,
+///     7 saturation (clip at saturation_counts) and clipping of negative values to 0.
+/// With time-of-flight recording (ScanConfig::tof) the counts move to flight-time bins after
+/// step 1; the peak scaling, the constant background (now per time bin), the noise and the
+/// hot pixels act on the time bins, and the exponential tail (counts per energy bin of the
+/// energy axis) is moved to the time bins like the signal.
 /// Each random effect draws from its own sub-stream (synthetic/random_streams.h), so switching
 /// one effect on or off never changes the realisation of another.
 struct NoiseConfig {
@@ -129,9 +135,20 @@ struct NoiseConfig {
   /// (W = kinetic energy, eV): the low-energy electron tail; counts per bin at W = 0 (>= 0).
   double background_exp_counts = 0.0;
   double background_exp_decay_eV = 10.0;  ///< decay energy of that tail (> 0)
+  /// Onset of the tail (eV, >= 0): B_tail(W) = background_exp_counts *
+  /// exp(-(W - onset) / decay) for W >= onset and 0 below it (IR-only above-threshold electrons
+  /// start above the lowest recorded energy); background_exp_counts is then the level at the
+  /// onset. The tail is the same in every delay row.
+  double background_exp_onset_eV = 0.0;
   bool poisson = true;                    ///< replace expected counts by Poisson draws
   double readout_rms_counts = 0.0;        ///< Gaussian readout noise, rms counts per bin (>= 0)
   double saturation_counts = 0.0;         ///< clip level of the detector (0 = no saturation)
+  /// Hot pixels: this many isolated pixels (no two in one 3 x 3 neighbourhood) read
+  /// factor x max(1, mean of their 8 neighbours' counts), the factor uniform in
+  /// [hot_pixel_factor_min, hot_pixel_factor_max]; after readout noise, before the clip (>= 0).
+  int hot_pixels = 0;
+  double hot_pixel_factor_min = 20.0;   ///< smallest factor over the local counts (>= 2)
+  double hot_pixel_factor_max = 200.0;  ///< largest factor (>= hot_pixel_factor_min)
   double delay_jitter_rms_fs = 0.0;       ///< independent delay error per row, rms (fs, >= 0)
   double delay_drift_fs_per_row = 0.0;    ///< linear stage drift per acquired row (fs, any sign)
   double delay_walk_rms_fs = 0.0;   ///< random-walk drift: rms of each row's increment (fs, >= 0)
@@ -158,6 +175,52 @@ struct NumericsConfig {
   std::string validate() const;  ///< names fields as "numerics.<field>"
 };
 
+/// One photoelectron line of the scan. Every line is ionised by the same XUV pulse in the same
+/// IR field, with its own threshold Ip: its amplitude is the SFA amplitude of DESIGN.md with
+/// that Ip. Counts of different lines add incoherently (different final ionic states).
+struct LineSpec {
+  /// Gas of the line (symbol or name of retrieval/gas.h); "" = the scan's gas. A line of another
+  /// gas makes the scan a two-gas mixture.
+  std::string gas;
+  /// Hole orbital as in the gas table ("2p", "2s", "3p", "3s", ...); with ionization_energy_eV
+  /// given, any label (used only in records).
+  std::string name;
+  /// Threshold of the line (eV); 0 = the gas table's value of the line `name`.
+  double ionization_energy_eV = 0.0;
+  /// Factor on the line's |dipole|^2 (partial cross-section times, for a line of another gas,
+  /// that gas's share of the target density) relative to a line of strength 1 (> 0). The truth
+  /// record reports the resulting ratio of delay-integrated counts, which differs from this
+  /// factor by the p dW density of each line.
+  double relative_strength = 1.0;
+  /// Photoemission delay of the line (as): its amplitude is evaluated with E_X(t - delay_as),
+  /// a linear spectral phase of its dipole; positive = emitted later.
+  double delay_as = 0.0;
+};
+
+/// A line of a LineSpec with the table looked up.
+struct ResolvedLine {
+  std::string gas;                   ///< gas symbol
+  std::string name;                  ///< hole orbital or label
+  double ionization_energy_eV = 0.0; ///< threshold (eV)
+  double relative_strength = 1.0;    ///< |dipole|^2 factor
+  double delay_as = 0.0;             ///< photoemission delay (as)
+};
+
+/// Time-of-flight recording: the scan is written on a flight-time axis instead of the energy
+/// axis (io reads it back with its calibration block, io/tof_calibration.h). A field-free
+/// drift of length L after the start time t0: E(t) = (m_e / 2) (L / (t - t0))^2 / e +
+/// energy_offset_eV (CODATA 2018 m_e and e, retrieval/units.h). The flight-time bins are
+/// uniform and span exactly the flight times of the energy axis' outer bin edges; the
+/// noise-free counts of each energy bin are spread over the time bins by the overlap of their
+/// energy intervals (counts conserved: the t^3 Jacobian of DESIGN.md "Pitfalls").
+struct TofConfig {
+  double length_m = 0.0;          ///< drift length L (m); 0 = record on the energy axis
+  double t0_ns = 0.0;             ///< start time of the flight on the TOF clock (ns, finite)
+  double energy_offset_eV = 0.0;  ///< added to the drift energy (eV, finite, < lowest edge)
+  int bins = 0;                   ///< flight-time bins (>= 2); 0 = as many as energy bins
+  bool enabled() const { return length_m > 0; }
+};
+
 /// Preferred data format of the written scan (io/ writes; this is only recorded).
 enum class OutputFormat { kPng16, kTiff, kCsv };
 const char* to_string(OutputFormat f);
@@ -174,6 +237,10 @@ struct ScanConfig {
   double dipole_reference_momentum_au = 0.0;
   ScanGeometry geometry;
   TraceKind kind = TraceKind::kStreaking;  ///< kind hint written to the sidecar
+  /// Photoelectron lines; empty = the gas's outer-valence line alone (strength 1, no delay).
+  /// The first line is the reference of the truth record's relative strengths and delays.
+  std::vector<LineSpec> lines;
+  TofConfig tof;  ///< time-of-flight recording (off by default)
   NoiseConfig noise;
   NumericsConfig numerics;
   OutputFormat output_format = OutputFormat::kPng16;
@@ -182,6 +249,10 @@ struct ScanConfig {
   /// the constraint. Checks every sub-struct and their consistency (e.g. a streaking scan
   /// needs an IR field).
   std::string validate() const;
+
+  /// The lines with the gas table looked up (the default line when `lines` is empty). Throws
+  /// sw::Error (kInput) naming lines[i] when a gas or line name is unknown.
+  std::vector<ResolvedLine> resolved_lines() const;
 };
 
 }  // namespace sw::synthetic

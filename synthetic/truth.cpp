@@ -154,6 +154,24 @@ AnalysisResult make_truth(const ScanConfig& c, const XuvField& f, const VolkovTa
   return r;
 }
 
+std::vector<LineEntry> truth_lines(const std::vector<ResolvedLine>& lines,
+                                   const std::vector<double>& totals, double center_photon_eV) {
+  std::vector<LineEntry> out;
+  for (std::size_t i = 0; i < lines.size(); ++i) {
+    LineEntry e;
+    e.name = lines[i].name;
+    e.gas = lines[i].gas;
+    e.ionization_energy_eV = lines[i].ionization_energy_eV;
+    if (i < totals.size() && totals.front() > 0) e.relative_strength = totals[i] / totals.front();
+    e.relative_delay_as = lines[i].delay_as - lines.front().delay_as;
+    e.kinetic_energy_eV = center_photon_eV - lines[i].ionization_energy_eV;
+    e.reference = i == 0;
+    e.source = "generator";
+    out.push_back(e);
+  }
+  return out;
+}
+
 std::vector<Param> generator_parameters(const ScanConfig& c, unsigned long long seed, double h,
                                         std::size_t nodes, double window,
                                         const std::vector<RowPerturbation>& rows) {

@@ -18,6 +18,7 @@
 //            q hbar omega - Ip lie on the energy axis (measurable_train_burst_fwhm_as); the
 //            burst of the full spectrum (harmonics off the axis or below Ip included) is the
 //            xuv section's fwhm_as / transform_limited_fwhm_as (main burst of the train);
+//   lines:   truth_lines() (ScanConfig::lines, default the gas's outer-valence line);
 //   extra:   every ScanConfig field as "generator.<key>", "generator.seed", the quadrature
 //            grid ("generator.numerics.quadrature_step_as", ".quadrature_nodes",
 //            ".window_fs") and, when per-row effects are on, the realised per-row values
@@ -59,6 +60,13 @@ bool measurable_train_burst_fwhm_as(const ScanConfig& config, const XuvField& on
 /// `xuv_fine` (sampled finely enough for metrics) and the IR table (nullptr = no IR).
 AnalysisResult make_truth(const ScanConfig& config, const XuvField& xuv_fine,
                           const VolkovTable* ir);
+
+/// The truth record's `lines`: every line with its gas, threshold, kinetic energy at the
+/// centre photon energy (centre - Ip), the ratio of its delay-integrated noise-free counts to
+/// the first line's (`totals`, one per line) and its photoemission delay relative to the first
+/// line; the first line is the reference.
+std::vector<LineEntry> truth_lines(const std::vector<ResolvedLine>& lines,
+                                   const std::vector<double>& totals, double center_photon_eV);
 
 /// The generator parameters: config fields, seed, numerics, realised per-row perturbations.
 std::vector<Param> generator_parameters(const ScanConfig& config, unsigned long long seed,

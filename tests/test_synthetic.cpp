@@ -368,8 +368,9 @@ TEST_CASE("truth record equals the pulse metrics of the exact field", "[syntheti
     CHECK(s.truth.verdict->pulse_class == PulseClass::kIsolated);
     CHECK(s.truth.analysis == "simulate");
     CHECK(!s.truth.rabbitt);
-    // Every generator parameter is listed, the seed too.
-    CHECK(s.truth.extra.size() == config_keys().size() + 4);
+    // Every generator parameter is listed, the seed too (the `lines` key is recorded as its
+    // five fields: name, gas, ionization_energy_eV, relative_strength, delay_as).
+    CHECK(s.truth.extra.size() == config_keys().size() + 4 + 4);
     const Param* seed = find_param(s.truth.extra, "generator.seed");
     REQUIRE(seed);
     CHECK(std::get<long long>(seed->value) == 3);
