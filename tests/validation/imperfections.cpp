@@ -1,0 +1,638 @@
+#include "imperfections.h"
+
+#include <algorithm>
+#include <atomic>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <mutex>
+#include <sstream>
+#include <thread>
+
+#include "io/trace_reader.h"
+#include "io/trace_writer.h"
+#include "retrieval/error.h"
+#include "retrieval/retrieve.h"
+#include "synthetic/generator.h"
+
+namespace sw::validation {
+
+namespace {
+
+using synthetic::ScanConfig;
+using synthetic::XuvKind;
+
+// A Gaussian-burst streaking scan: gas, photon energy (eV), TL FWHM (as), GDD (as^2);
+// IR wavelength (nm), FWHM (fs), intensity (W/cm^2); energy axis; delay axis; peak counts.
+struct Scan {
+  std::string gas = "Ne";
+  double photon_eV = 95, tl_as = 150, gdd_as2 = 0;
+  double ir_nm = 800, ir_fs = 5, ir_Wcm2 = 5e12, cep = 0;
+  synthetic::AxisSpec energy{40, 0.25, 300};
+  synthetic::AxisSpec delay{-6, 0.15, 81};
+  double counts = 500;
+};
+
+ScanConfig make(const std::string& name, const Scan& s) {
+  ScanConfig c;
+  c.name = name;
+  c.gas = s.gas;
+  c.xuv.kind = XuvKind::kGaussian;
+  c.xuv.gaussian.center_eV = s.photon_eV;
+  c.xuv.gaussian.transform_limited_fwhm_as = s.tl_as;
+  c.xuv.gaussian.gdd_as2 = s.gdd_as2;
+  c.ir.pulse = GaussianIrPulse{s.ir_nm, s.ir_fs, s.ir_Wcm2, s.cep, 0.0, 0.0};
+  c.geometry.energy_eV = s.energy;
+  c.geometry.delay_fs = s.delay;
+  c.noise.peak_counts = s.counts;
+  return c;
+}
+
+// Turns the Gaussian burst of `c` into a satellites or train structure of the same burst.
+void satellites(ScanConfig& c, double before, double after) {
+  c.xuv.satellites.burst = c.xuv.gaussian;
+  c.xuv.satellites.driver_wavelength_nm = c.ir.pulse.wavelength_nm;
+  c.xuv.satellites.satellite_intensity_ratio_before = before;
+  c.xuv.satellites.satellite_intensity_ratio_after = after;
+  c.xuv.kind = XuvKind::kSatellites;
+}
+
+void train(ScanConfig& c, double train_fwhm_fs, int bursts) {
+  c.xuv.train.burst = c.xuv.gaussian;
+  c.xuv.train.driver_wavelength_nm = c.ir.pulse.wavelength_nm;
+  c.xuv.train.train_fwhm_fs = train_fwhm_fs;
+  c.xuv.train.max_bursts = bursts;
+  c.xuv.kind = XuvKind::kTrain;
+}
+
+synthetic::LineSpec line(const std::string& gas, const std::string& name, double strength,
+                         double delay_as) {
+  synthetic::LineSpec l;
+  l.gas = gas;
+  l.name = name;
+  l.relative_strength = strength;
+  l.delay_as = delay_as;
+  return l;
+}
+
+void add(std::vector<ValidationCase>& v, const std::string& group,
+                   const std::string& description, ScanConfig c, unsigned long long seed,
+                   bool good = false, bool no_field_free = false) {
+  ValidationCase k;
+  k.name = c.name;
+  k.imperfection = group;
+  k.description = description;
+  k.config = std::move(c);
+  k.seed = seed;
+  k.good = good;
+  k.no_field_free = no_field_free;
+  k.tolerance = tolerance_for(k.config, no_field_free);
+  const std::string err = k.config.validate();
+  if (!err.empty()) throw Error(ErrorKind::kInternal, "validation case " + k.name + ": " + err);
+  v.push_back(k);
+}
+
+}  // namespace
+
+double tolerance_for(const ScanConfig& c, bool no_field_free) {
+  if (c.noise.peak_counts < 100) return 0.10;
+  const GaussianXuvPulse* b = c.xuv.burst();
+  const double centre = b ? b->center_eV : c.xuv.tabulated.carrier_eV;
+  if ((centre >= 280 && centre <= 540) || no_field_free || c.noise.saturation_counts > 0)
+    return 0.08;
+  return 0.05;
+}
+
+std::vector<ValidationCase> validation_cases() {
+  std::vector<ValidationCase> v;
+  // --- good scans: clean, typical (false alarms) ---------------------------------------------
+  {
+    Scan s;  // neon, 95 eV, 150 as TL, 5 fs 800 nm
+    add(v, "good", "neon 95 eV, 150 as TL, 800 nm 5 fs 5e12, 500 counts",
+        make("good-ne-150as", s), 101, true);
+  }
+  {
+    Scan s{"Ar", 80, 200, 6000, 800, 6, 3e12, 0, {30, 0.25, 300}, {-7, 0.2, 71}, 800};
+    add(v, "good", "argon 80 eV, 200 as TL with GDD +6000 as^2, 6 fs 3e12, 800 counts",
+        make("good-ar-chirped", s), 102, true);
+  }
+  {
+    Scan s{"He", 120, 110, -3000, 750, 4.5, 6e12, 0.5, {45, 0.33, 300}, {-5, 0.125, 81}, 600};
+    add(v, "good", "helium 120 eV, 110 as TL with GDD -3000 as^2, 750 nm 4.5 fs 6e12",
+        make("good-he-neg-chirp", s), 103, true);
+  }
+  {
+    Scan s{"Ne", 130, 160, 2000, 1300, 9, 2e12, 0, {62, 0.3, 300}, {-10, 0.25, 81}, 700};
+    add(v, "good", "neon 130 eV, 160 as TL GDD +2000, 1300 nm 9 fs 2e12",
+        make("good-ne-1300nm", s), 104, true);
+  }
+  {
+    Scan s{"Kr", 100, 250, -8000, 800, 7, 2e12, 0, {55, 0.25, 260}, {-8, 0.2, 81}, 400};
+    add(v, "good", "krypton 100 eV, 250 as TL GDD -8000, 800 nm 7 fs 2e12, 400 counts",
+        make("good-kr-long", s), 105, true);
+  }
+  {
+    Scan s{"Ne", 110, 130, 0, 800, 5, 8e12, -0.8, {50, 0.3, 280}, {-6, 0.15, 81}, 1000};
+    ScanConfig c = make("good-ne-1000counts", s);
+    c.noise.background_counts = 1.0;
+    add(v, "good", "neon 110 eV, 130 as TL, 8e12, CEP -0.8, 1000 counts on 1 count background", c,
+        106, true);
+  }
+  // --- low counts (20-50 peak) -----------------------------------------------------------------
+  {
+    Scan s{"Ne", 100, 200, 3000, 800, 5, 5e12, 0, {30, 0.3, 300}, {-6, 0.15, 81}, 25};
+    ScanConfig c = make("low25-wide-window", s);
+    c.noise.background_counts = 1.0;
+    add(v, "low counts", "25 peak counts, 1 background count in every bin of a 90 eV window", c,
+        201);
+  }
+  {
+    Scan s{"Ar", 75, 170, 0, 800, 6, 4e12, 0, {20, 0.3, 300}, {-7, 0.2, 71}, 40};
+    ScanConfig c = make("low40-ar-wide", s);
+    c.noise.background_counts = 2.0;
+    add(v, "low counts", "argon 75 eV 170 as, 40 peak counts on 2 counts flat, 20-110 eV", c, 202);
+  }
+  {
+    Scan s{"He", 140, 90, 0, 700, 4, 7e12, 0.3, {60, 0.4, 300}, {-5, 0.125, 81}, 30};
+    add(v, "low counts", "helium 140 eV 90 as, 700 nm 4 fs 7e12, 30 peak counts, no background",
+        make("low30-he-90as", s), 203);
+  }
+  {
+    Scan s{"Ne", 90, 140, -5000, 800, 5, 4e12, 0, {35, 0.3, 300}, {-6, 0.15, 81}, 50};
+    ScanConfig c = make("low50-ne-neg-chirp", s);
+    c.noise.background_counts = 1.5;
+    add(v, "low counts", "neon 90 eV 140 as GDD -5000, 50 peak counts on 1.5 flat", c, 204);
+  }
+  // --- wide window with flat background, non-uniform delays ---------------------------------------
+  {
+    Scan s{"Ne", 105, 180, 4000, 800, 5, 5e12, 0, {30, 0.3, 300}, {-6, 0.15, 81}, 300};
+    ScanConfig c = make("wide-bg-nonuniform-delays", s);
+    c.noise.background_counts = 2.0;
+    c.geometry.delay_values_fs.clear();
+    for (int i = 0; i <= 80; ++i) {
+      const double x = -6.0 + 0.15 * i;
+      c.geometry.delay_values_fs.push_back(x + 0.03 * std::sin(1.7 * i));  // stage steps jitter
+    }
+    add(v, "background", "explicit non-uniform delay axis, 300 counts, 2 counts flat, 90 eV window",
+        c, 301);
+  }
+  // --- IR-only low-energy electrons --------------------------------------------------------
+  {
+    Scan s{"Ne", 95, 150, 0, 800, 5, 5e12, 0, {2, 0.4, 300}, {-6, 0.15, 81}, 500};
+    ScanConfig c = make("lowE-tail-ne", s);
+    c.noise.background_exp_counts = 300;
+    c.noise.background_exp_onset_eV = 3;
+    c.noise.background_exp_decay_eV = 8;
+    add(v, "low-energy electrons",
+        "IR-only electrons from 3 eV (300 counts/bin, 8 eV decay), same in every row", c, 401);
+  }
+  {
+    Scan s{"Ar", 60, 220, 4000, 900, 6, 3e12, 0, {1, 0.25, 300}, {-7, 0.2, 71}, 300};
+    ScanConfig c = make("lowE-tail-ar", s);
+    c.noise.background_exp_counts = 150;
+    c.noise.background_exp_onset_eV = 3;
+    c.noise.background_exp_decay_eV = 12;
+    add(v, "low-energy electrons", "argon 60 eV, 900 nm, tail 150 counts at 3 eV decaying 12 eV",
+        c, 402);
+  }
+  // --- second photoelectron line, two-gas mixture --------------------------------------------------
+  {
+    Scan s{"Ne", 120, 160, 0, 800, 5, 5e12, 0, {40, 0.33, 300}, {-6, 0.15, 81}, 500};
+    ScanConfig c = make("lines-ne-2s", s);
+    c.lines = {line("", "2p", 1.0, 0), line("", "2s", 0.3, 10)};
+    add(v, "second line", "neon 2s (48.47 eV) beside 2p at 120 eV photons, 2s delayed 10 as", c,
+        501);
+  }
+  {
+    Scan s{"Ar", 70, 190, 2000, 800, 6, 3e12, 0, {20, 0.25, 300}, {-7, 0.2, 71}, 500};
+    ScanConfig c = make("lines-ar-3s", s);
+    c.lines = {line("", "3p", 1.0, 0), line("", "3s", 0.2, 40)};
+    add(v, "second line", "argon 3s (29.24 eV) beside 3p at 70 eV, 3s delayed 40 as", c, 502);
+  }
+  {
+    Scan s{"He", 100, 250, 0, 800, 7, 3e12, 0, {50, 0.2, 300}, {-8, 0.2, 81}, 500};
+    ScanConfig c = make("mixture-he-kr", s);
+    c.lines = {line("", "1s", 1.0, 0), line("Kr", "4p", 0.4, 0)};
+    add(v, "two-gas mixture", "helium with krypton (4p line 10.6 eV above He 1s, strength 0.4)",
+        c, 503);
+  }
+  // --- time-of-flight recording ------------------------------------------------------------------
+  {
+    Scan s{"Ne", 95, 150, 0, 800, 5, 5e12, 0, {40, 0.1, 750}, {-6, 0.15, 81}, 400};
+    ScanConfig c = make("tof-ne-1m", s);
+    c.tof.length_m = 1.0;
+    c.tof.bins = 400;
+    c.noise.background_counts = 2.0;
+    add(v, "time of flight", "1 m drift, 400 flight-time bins, 2 counts per time bin", c, 601);
+  }
+  {
+    Scan s{"Ar", 65, 200, -3000, 900, 6, 3e12, 0, {25, 0.1, 650}, {-7, 0.2, 71}, 600};
+    ScanConfig c = make("tof-ar-offset", s);
+    c.tof.length_m = 0.5;
+    c.tof.t0_ns = 3.0;
+    c.tof.energy_offset_eV = 5.0;
+    c.tof.bins = 300;
+    c.noise.background_counts = 1.0;
+    add(v, "time of flight", "0.5 m drift, t0 3 ns, 5 eV offset, 300 bins, 1 count per time bin",
+        c, 602);
+  }
+  // --- spectrometer resolution dE/E ------------------------------------------------------------------
+  {
+    Scan s{"Ar", 90, 170, 0, 800, 5, 5e12, 0, {35, 0.3, 300}, {-6, 0.15, 81}, 500};
+    ScanConfig c = make("resolution-2pct-ar", s);
+    c.noise.resolution = synthetic::ResolutionKind::kRelative;
+    c.noise.resolution_relative = 0.02;
+    add(v, "resolution", "argon 90 eV, spectrometer dE/E = 2 %", c, 701);
+  }
+  // --- unrecorded delay drift and jitter ------------------------------------------------------------
+  {
+    Scan s{"Ne", 95, 150, 5000, 800, 5, 5e12, 0, {40, 0.25, 300}, {-6, 0.15, 81}, 500};
+    ScanConfig c = make("drift-jitter-ne", s);
+    c.noise.delay_drift_fs_per_row = 0.2 / 80;
+    c.noise.delay_jitter_rms_fs = 0.015;
+    add(v, "delay drift", "+0.2 fs drift over the scan and 15 as jitter, unrecorded", c, 801);
+  }
+  {
+    Scan s{"Kr", 85, 210, 0, 800, 6, 3e12, 0, {40, 0.25, 300}, {-7, 0.2, 71}, 500};
+    ScanConfig c = make("walk-laser-kr", s);
+    c.noise.delay_walk_rms_fs = 0.01;
+    c.noise.ir_intensity_rms = 0.05;
+    c.noise.cep_jitter_rms_rad = 0.3;
+    add(v, "delay drift", "random-walk drift 10 as/row, IR intensity 5 % rms, CEP 0.3 rad rms",
+        c, 802);
+  }
+  // --- delay ranges without field-free rows ---------------------------------------------------------------
+  {
+    Scan s{"Ne", 95, 350, 0, 800, 8, 3e12, 0, {50, 0.2, 250}, {-2.5, 0.1, 51}, 500};
+    add(v, "no field-free rows", "350 as TL under an 8 fs IR, delays -2.5..2.5 fs only",
+        make("nofieldfree-ne-350as", s), 901, false, true);
+  }
+  {
+    Scan s{"Ar", 85, 160, 3000, 800, 12, 1.5e12, 0, {45, 0.25, 240}, {-3, 0.1, 61}, 500};
+    add(v, "no field-free rows", "argon 160 as under a 12 fs IR, delays -3..3 fs",
+        make("nofieldfree-ar-12fs", s), 902, false, true);
+  }
+  // --- trains of 3-7 bursts under a few-cycle field --------------------------------------------------
+  {
+    Scan s{"Ne", 95, 200, 0, 800, 5, 3e12, 0, {40, 0.2, 350}, {-6, 0.15, 81}, 500};
+    ScanConfig c = make("train3-ne", s);
+    train(c, 4.0, 3);
+    add(v, "train", "3 bursts (train FWHM 4 fs) under a 5 fs IR", c, 1001);
+  }
+  {
+    Scan s{"Ar", 60, 250, 0, 800, 6, 2e12, 0, {20, 0.15, 400}, {-7, 0.2, 71}, 500};
+    ScanConfig c = make("train5-ar", s);
+    train(c, 5.0, 5);
+    add(v, "train", "5 bursts (train FWHM 5 fs) in argon under a 6 fs IR", c, 1002);
+  }
+  {
+    Scan s{"Ne", 110, 180, 1500, 800, 5, 4e12, 0, {55, 0.2, 400}, {-6, 0.15, 81}, 700};
+    ScanConfig c = make("train7-ne", s);
+    train(c, 8.0, 7);
+    add(v, "train", "7 bursts (train FWHM 8 fs), GDD 1500, under a 5 fs IR", c, 1003);
+  }
+  // --- satellites 2-50 % ------------------------------------------------------------------------------
+  {
+    Scan s{"Ne", 95, 170, 0, 800, 5, 5e12, 0, {40, 0.25, 300}, {-6, 0.15, 81}, 500};
+    ScanConfig c = make("sat2-ne", s);
+    satellites(c, 0.02, 0.01);
+    add(v, "satellites", "satellites 2 % / 1 % at -+T/2", c, 1101);
+  }
+  {
+    Scan s{"Ar", 85, 180, 2000, 800, 6, 3e12, 0, {35, 0.25, 300}, {-7, 0.2, 71}, 600};
+    ScanConfig c = make("sat4-ar", s);
+    satellites(c, 0.04, 0.02);
+    add(v, "satellites", "argon, satellites 4 % / 2 %", c, 1102);
+  }
+  {
+    Scan s{"Kr", 100, 200, 0, 800, 5, 4e12, 0, {50, 0.25, 280}, {-6, 0.15, 81}, 500};
+    ScanConfig c = make("sat20-kr", s);
+    satellites(c, 0.20, 0.12);
+    add(v, "satellites", "krypton, satellites 20 % / 12 %", c, 1103);
+  }
+  {
+    Scan s{"Ne", 110, 160, -2000, 800, 5, 5e12, 0, {50, 0.3, 280}, {-6, 0.15, 81}, 800};
+    ScanConfig c = make("sat50-ne", s);
+    satellites(c, 0.36, 0.50);
+    add(v, "satellites", "neon, satellites 36 % / 50 %", c, 1104);
+  }
+  // --- long-wavelength drivers, water-window photon energies -------------------------------------------
+  {
+    Scan s{"He", 300, 100, 0, 1800, 15, 1e12, 0, {205, 0.45, 310}, {-15, 0.3, 101}, 500};
+    add(v, "long wavelength", "helium 300 eV 100 as under 1800 nm 15 fs 1e12",
+        make("lw-1800nm-300eV", s), 1201);
+  }
+  {
+    Scan s{"Ne", 400, 80, 1000, 1500, 12, 8e11, 0, {300, 0.5, 320}, {-12, 0.25, 97}, 500};
+    add(v, "long wavelength", "neon 400 eV 80 as GDD 1000 under 1500 nm 12 fs 8e11",
+        make("lw-1500nm-400eV", s), 1202);
+  }
+  {
+    Scan s{"He", 520, 70, 0, 2000, 16, 5e11, 0, {415, 0.6, 350}, {-16, 0.32, 101}, 500};
+    add(v, "long wavelength", "helium 520 eV 70 as under 2000 nm 16 fs 5e11",
+        make("lw-2000nm-520eV", s), 1203);
+  }
+  // --- saturation and hot pixels ------------------------------------------------------------------------
+  {
+    Scan s{"Ne", 95, 150, 0, 800, 5, 5e12, 0, {40, 0.25, 300}, {-6, 0.15, 81}, 600};
+    ScanConfig c = make("hot15-ne", s);
+    c.noise.hot_pixels = 15;
+    add(v, "hot pixels", "15 hot pixels at 20-200 x the local counts", c, 1301);
+  }
+  {
+    Scan s{"Ar", 80, 190, -2500, 800, 6, 3e12, 0, {30, 0.25, 300}, {-7, 0.2, 71}, 1000};
+    ScanConfig c = make("saturated-hot-ar", s);
+    c.noise.saturation_counts = 700;
+    c.noise.hot_pixels = 10;
+    add(v, "saturation", "argon, detector clips at 70 % of the peak, 10 hot pixels", c, 1302);
+  }
+  // --- several imperfections at once ---------------------------------------------------------------------
+  {
+    Scan s{"Xe", 90, 200, 2000, 800, 6, 3e12, 0, {3, 0.4, 300}, {-7, 0.2, 71}, 400};
+    ScanConfig c = make("combined-xe-4d", s);
+    c.lines = {line("", "5p", 1.0, 0), line("", "5s", 0.1, 0), line("", "4d", 3.0, 0)};
+    c.noise.background_counts = 1.0;
+    c.noise.background_exp_counts = 80;
+    c.noise.background_exp_onset_eV = 3;
+    c.noise.background_exp_decay_eV = 6;
+    c.noise.resolution = synthetic::ResolutionKind::kConstant;
+    c.noise.resolution_fwhm_eV = 0.4;
+    add(v, "combined", "xenon 5p, 5s and a strong 4d line, tail, flat background, 0.4 eV resolution",
+        c, 1401);
+  }
+  {
+    Scan s{"Ne", 100, 170, 0, 800, 5, 5e12, 0, {35, 0.1, 800}, {-6, 0.15, 81}, 40};
+    ScanConfig c = make("low40-tof-ne", s);
+    c.tof.length_m = 0.8;
+    c.tof.bins = 350;
+    c.noise.background_counts = 1.0;
+    add(v, "low counts", "time of flight at 40 peak counts, 1 count per time bin", c, 1402);
+  }
+  return v;
+}
+
+double SweepRow::fwhm_error() const { return (fwhm_as - truth_fwhm_as) / truth_fwhm_as; }
+double SweepRow::a0_error() const { return (a0 - truth_a0) / truth_a0; }
+double SweepRow::pull() const {
+  return fwhm_sigma_as > 0 ? (fwhm_as - truth_fwhm_as) / fwhm_sigma_as : std::nan("");
+}
+bool SweepRow::within(double k) const {
+  return fwhm_sigma_as > 0 && std::abs(fwhm_as - truth_fwhm_as) <= k * fwhm_sigma_as;
+}
+bool SweepRow::wrong() const {
+  if (!error.empty()) return true;
+  return !(std::abs(fwhm_error()) <= tolerance) || !(std::abs(a0_error()) <= tolerance) ||
+         truth_class != retrieved_class;
+}
+bool SweepRow::wrong_and_trusted() const { return error.empty() && wrong() && trusted; }
+
+namespace {
+
+SweepRow run_case(const ValidationCase& k, const SweepOptions& o, const std::string& dir) {
+  SweepRow row;
+  row.name = k.name;
+  row.imperfection = k.imperfection;
+  row.good = k.good;
+  row.peak_counts = k.config.noise.peak_counts;
+  row.tolerance = k.tolerance;
+  const auto start = std::chrono::steady_clock::now();
+  try {
+    ScanConfig c = k.config;
+    if (o.jobs > 1) c.numerics.threads = 1;
+    const synthetic::SyntheticScan scan = synthetic::generate_scan(c, k.seed);
+    row.truth_fwhm_as = scan.truth.xuv->fwhm_as.value_or(0);
+    row.truth_a0 = scan.truth.ir ? scan.truth.ir->peak_vector_potential_au.value_or(0) : 0;
+    row.truth_class = to_string(scan.truth.verdict->pulse_class);
+    Trace trace = scan.trace;
+    if (scan.tof) {
+      // Time-of-flight scans go through the files: the reader applies the calibration.
+      TraceWriteOptions wo;
+      wo.tof = TraceTofAxis{scan.tof->tof_ns, scan.tof->length_m, scan.tof->t0_ns,
+                            scan.tof->energy_offset_eV};
+      const std::string sidecar = (std::filesystem::path(dir) / (k.name + ".json")).string();
+      trace.meta.source.clear();
+      write_trace(trace, sidecar, TraceFormat::kPng16, wo);
+      trace = read_trace(sidecar);
+    }
+    RetrieveOptions ro;
+    ro.bootstrap = o.bootstrap;
+    ro.threads = 1;
+    const RetrieveOutput r = retrieve(trace, ro);
+    const AnalysisResult& a = r.result;
+    row.engine = a.engine;
+    if (a.xuv) {
+      row.fwhm_as = a.xuv->fwhm_as.value_or(std::nan(""));
+      row.fwhm_sigma_as = a.xuv->fwhm_as_sigma.value_or(0);
+    }
+    row.a0 = a.ir ? a.ir->peak_vector_potential_au.value_or(std::nan("")) : std::nan("");
+    row.retrieved_class = a.verdict ? to_string(a.verdict->pulse_class) : "none";
+    if (a.quality) {
+      row.has_quality = true;
+      row.trusted = a.quality->trusted;
+      for (const std::string& f : a.quality->failed) row.failed += (row.failed.empty() ? "" : ";") + f;
+    }
+  } catch (const std::exception& e) {
+    row.error = e.what();
+    row.trusted = false;
+  }
+  row.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  return row;
+}
+
+std::string fmt(const char* f, double x) {
+  char b[64];
+  std::snprintf(b, sizeof b, f, x);
+  return b;
+}
+
+std::string csv_field(std::string s) {
+  if (s.find_first_of(",\"\n") == std::string::npos) return s;
+  std::string o = "\"";
+  for (char ch : s) o += ch == '"' ? std::string("\"\"") : std::string(1, ch);
+  return o + "\"";
+}
+
+}  // namespace
+
+std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const SweepOptions& o) {
+  const std::vector<ValidationCase> all = validation_cases();
+  std::vector<ValidationCase> todo;
+  if (names.empty()) {
+    todo = all;
+  } else {
+    for (const std::string& n : names) {
+      auto it = std::find_if(all.begin(), all.end(), [&](const ValidationCase& k) { return k.name == n; });
+      if (it == all.end()) {
+        std::string known;
+        for (const ValidationCase& k : all) known += (known.empty() ? "" : ", ") + k.name;
+        throw usage_error("unknown validation case '" + n + "'; known cases: " + known);
+      }
+      todo.push_back(*it);
+    }
+  }
+  if (o.bootstrap < 0) throw usage_error("--bootstrap = " + std::to_string(o.bootstrap) + "; expected >= 0");
+  if (o.jobs < 1) throw usage_error("--jobs = " + std::to_string(o.jobs) + "; expected >= 1");
+  std::filesystem::path dir = o.work_dir;
+  if (dir.empty())
+    dir = std::filesystem::temp_directory_path() /
+          ("sw_validation_" + std::to_string(std::chrono::steady_clock::now().time_since_epoch().count()));
+  std::filesystem::create_directories(dir);
+
+  std::vector<SweepRow> rows(todo.size());
+  std::atomic<std::size_t> next{0};
+  std::mutex log;
+  auto worker = [&] {
+    for (;;) {
+      const std::size_t i = next++;
+      if (i >= todo.size()) return;
+      rows[i] = run_case(todo[i], o, dir.string());
+      if (o.verbose) {
+        const SweepRow& r = rows[i];
+        std::lock_guard<std::mutex> lock(log);
+        if (!r.error.empty())
+          std::fprintf(stderr, "%-28s ERROR %s (%.0f s)\n", r.name.c_str(), r.error.c_str(), r.seconds);
+        else
+          std::fprintf(stderr, "%-28s FWHM %7.1f +- %5.1f / %7.1f as (%+6.1f %%)  A0 %+6.1f %%  %s/%s  %s%s  %.0f s\n",
+                       r.name.c_str(), r.fwhm_as, r.fwhm_sigma_as, r.truth_fwhm_as, 100 * r.fwhm_error(),
+                       100 * r.a0_error(), r.retrieved_class.c_str(), r.truth_class.c_str(),
+                       r.trusted ? "trusted" : "untrusted", r.wrong() ? " WRONG" : "", r.seconds);
+      }
+    }
+  };
+  std::vector<std::thread> pool;
+  const int n = std::min<int>(o.jobs, static_cast<int>(todo.size()));
+  for (int j = 1; j < n; ++j) pool.emplace_back(worker);
+  worker();
+  for (auto& t : pool) t.join();
+  if (o.work_dir.empty()) {
+    std::error_code ec;
+    std::filesystem::remove_all(dir, ec);
+  }
+  return rows;
+}
+
+std::string check_scans(const std::vector<std::string>& names, int jobs) {
+  std::vector<ValidationCase> todo;
+  for (const ValidationCase& k : validation_cases())
+    if (names.empty() || std::find(names.begin(), names.end(), k.name) != names.end())
+      todo.push_back(k);
+  std::vector<std::string> lines(todo.size());
+  std::atomic<std::size_t> next{0};
+  auto worker = [&] {
+    for (;;) {
+      const std::size_t i = next++;
+      if (i >= todo.size()) return;
+      ScanConfig c = todo[i].config;
+      if (jobs > 1) c.numerics.threads = 1;
+      try {
+        const synthetic::SyntheticScan s = synthetic::generate_scan(c, todo[i].seed);
+        const Eigen::Index n = s.clean.cols(), m = std::max<Eigen::Index>(2, n / 50);
+        const double edge = std::max(s.clean.leftCols(m).maxCoeff(), s.clean.rightCols(m).maxCoeff()) /
+                            s.clean.maxCoeff();
+        char b[512];
+        std::snprintf(b, sizeof b, "%-28s FWHM %7.1f TL %7.1f as  %-24s A0 %.4f  edge %.1e  %zux%zu  max %.0f  %.1f s%s",
+                      todo[i].name.c_str(), s.truth.xuv->fwhm_as.value_or(0),
+                      s.truth.xuv->transform_limited_fwhm_as.value_or(0),
+                      to_string(s.truth.verdict->pulse_class),
+                      s.truth.ir ? s.truth.ir->peak_vector_potential_au.value_or(0) : 0.0, edge,
+                      s.trace.num_delays(), s.trace.num_energies(), s.trace.counts.maxCoeff(),
+                      s.seconds, s.truth.warnings.empty() ? "" : "  WARNING");
+        lines[i] = b;
+      } catch (const std::exception& e) {
+        lines[i] = todo[i].name + " ERROR " + e.what();
+      }
+    }
+  };
+  std::vector<std::thread> pool;
+  for (int j = 1; j < jobs; ++j) pool.emplace_back(worker);
+  worker();
+  for (auto& t : pool) t.join();
+  std::string out;
+  for (const std::string& l : lines) out += l + "\n";
+  return out;
+}
+
+std::string sweep_csv(const std::vector<SweepRow>& rows) {
+  std::ostringstream s;
+  s << "case,imperfection,good,peak_counts,tolerance,truth_fwhm_as,fwhm_as,fwhm_sigma_as,"
+       "fwhm_error_pct,error_over_sigma,truth_a0_au,a0_au,a0_error_pct,truth_class,"
+       "retrieved_class,quality_present,trusted,failed,within_1sigma,within_2sigma,wrong,"
+       "wrong_and_trusted,engine,seconds,error\n";
+  s.precision(8);
+  for (const SweepRow& r : rows) {
+    s << csv_field(r.name) << ',' << csv_field(r.imperfection) << ',' << r.good << ','
+      << r.peak_counts << ',' << r.tolerance << ',' << r.truth_fwhm_as << ',' << r.fwhm_as << ','
+      << r.fwhm_sigma_as << ',' << 100 * r.fwhm_error() << ',' << r.pull() << ',' << r.truth_a0
+      << ',' << r.a0 << ',' << 100 * r.a0_error() << ',' << r.truth_class << ','
+      << r.retrieved_class << ',' << r.has_quality << ',' << r.trusted << ','
+      << csv_field(r.failed) << ',' << r.within(1) << ',' << r.within(2) << ',' << r.wrong()
+      << ',' << r.wrong_and_trusted() << ',' << r.engine << ',' << r.seconds << ','
+      << csv_field(r.error) << '\n';
+  }
+  return s.str();
+}
+
+std::string sweep_summary(const std::vector<SweepRow>& rows) {
+  int n50 = 0, w1 = 0, w2 = 0, good = 0, good_right = 0, false_alarms = 0, wt = 0, wrong = 0,
+      errors = 0, no_quality = 0;
+  for (const SweepRow& r : rows) {
+    if (!r.error.empty()) ++errors;
+    if (r.error.empty() && !r.has_quality) ++no_quality;
+    if (r.wrong()) ++wrong;
+    if (r.wrong_and_trusted()) ++wt;
+    if (r.error.empty() && r.peak_counts >= 50 && r.fwhm_sigma_as > 0) {
+      ++n50;
+      w1 += r.within(1);
+      w2 += r.within(2);
+    }
+    if (r.good) {
+      ++good;
+      if (!r.wrong()) {
+        ++good_right;
+        if (!r.trusted) ++false_alarms;
+      }
+    }
+  }
+  std::ostringstream s;
+  auto pct = [](int a, int b) { return b > 0 ? fmt("%.0f %%", 100.0 * a / b) : std::string("n/a"); };
+  s << "- coverage (rows >= 50 peak counts with a sigma): truth within 1 sigma in " << w1 << " / "
+    << n50 << " (" << pct(w1, n50) << "), within 2 sigma in " << w2 << " / " << n50 << " ("
+    << pct(w2, n50) << ")\n";
+  s << "- false alarms on good scans: " << false_alarms << " untrusted of " << good_right
+    << " right good scans (" << good << " good scans)\n";
+  s << "- wrong (beyond target or wrong class): " << wrong << " of " << rows.size()
+    << "; wrong and trusted: " << wt << "\n";
+  s << "- analyses that failed with an error: " << errors
+    << "; results without a quality section: " << no_quality << "\n";
+  return s.str();
+}
+
+std::string sweep_markdown(const std::vector<SweepRow>& rows) {
+  std::ostringstream s;
+  s << "| case | imperfection | peak counts | FWHM truth (as) | FWHM (as) | error | error/sigma | "
+       "A0 error | class truth / retrieved | trusted | failed checks | 1 sigma | 2 sigma | wrong | "
+       "wrong & trusted |\n|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|\n";
+  for (const SweepRow& r : rows) {
+    if (!r.error.empty()) {
+      s << "| " << r.name << " | " << r.imperfection << " | " << r.peak_counts << " | "
+        << fmt("%.1f", r.truth_fwhm_as) << " | error: " << r.error
+        << " | | | | | no | | | | yes | no |\n";
+      continue;
+    }
+    s << "| " << r.name << " | " << r.imperfection << " | " << r.peak_counts << " | "
+      << fmt("%.1f", r.truth_fwhm_as) << " | " << fmt("%.1f", r.fwhm_as) << " +- "
+      << fmt("%.1f", r.fwhm_sigma_as) << " | " << fmt("%+.1f %%", 100 * r.fwhm_error()) << " | "
+      << (r.fwhm_sigma_as > 0 ? fmt("%+.1f", r.pull()) : std::string("n/a")) << " | "
+      << fmt("%+.1f %%", 100 * r.a0_error()) << " | " << r.truth_class << " / "
+      << r.retrieved_class << " | "
+      << (r.has_quality ? (r.trusted ? "yes" : "no") : "(no section)") << " | " << r.failed
+      << " | " << (r.within(1) ? "yes" : "no") << " | " << (r.within(2) ? "yes" : "no") << " | "
+      << (r.wrong() ? "**yes**" : "no") << " | " << (r.wrong_and_trusted() ? "**yes**" : "no")
+      << " |\n";
+  }
+  s << "\n" << sweep_summary(rows);
+  return s.str();
+}
+
+}  // namespace sw::validation
