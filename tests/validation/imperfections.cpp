@@ -335,10 +335,10 @@ std::vector<ValidationCase> validation_cases() {
   }
   // --- saturation and hot pixels ------------------------------------------------------------------------
   {
-    Scan s{"Ne", 95, 150, 0, 800, 5, 5e12, 0, {40, 0.25, 300}, {-6, 0.15, 81}, 600};
+    Scan s{"Ne", 100, 140, 2000, 800, 6, 4e12, 0, {45, 0.25, 300}, {-7, 0.175, 81}, 600};
     ScanConfig c = make("hot15-ne", s);
     c.noise.hot_pixels = 15;
-    add(v, "hot pixels", "15 hot pixels at 20-200 x the local counts", c, 1301);
+    add(v, "hot pixels", "neon 100 eV 140 as GDD 2000, 15 hot pixels at 20-200 x the local counts", c, 1301);
   }
   {
     Scan s{"Ar", 80, 190, -2500, 800, 6, 3e12, 0, {30, 0.25, 300}, {-7, 0.2, 71}, 1000};
