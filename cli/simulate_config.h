@@ -12,7 +12,8 @@
 //   energy_eV: {first: 40, step: 0.25, count: 300}
 //   delay_fs: {first: -6, step: 0.1, count: 121}     # or an explicit list: delay_fs: [..]
 //   noise: {peak_counts: 500, poisson: true}
-//   lines: [{name: 2p}, {name: 2s, relative_strength: 0.3, delay_as: 10}]   # optional
+//   lines: [{name: "2p"}, {name: "2s", relative_strength: 0.3, delay_as: 10}]   # optional;
+//                               # quote names that start with a digit (OpenCV's YAML parser)
 //   tof: {length_m: 1.0, t0_ns: 0, bins: 400}   # optional: record on a flight-time axis
 //
 // Format: `.json` files are JSON, `.yaml`/`.yml` YAML, anything else is sniffed ('{' first means

@@ -5,6 +5,11 @@
 // here independently of the generator's code path.
 #include <catch2/catch.hpp>
 
+#include <sys/wait.h>
+
+#include <array>
+#include <cstdio>
+
 #include <algorithm>
 #include <cmath>
 #include <fstream>
@@ -13,6 +18,7 @@
 #include <string>
 #include <vector>
 
+#include "io/result_io.h"
 #include "io/trace_reader.h"
 #include "io/trace_writer.h"
 #include "retrieval/error.h"
@@ -339,4 +345,45 @@ TEST_CASE("a train of three bursts has three comparable bursts", "[imperfections
     if (I[k] >= 0.5 * peak && I[k] >= I[k - 1] && I[k] > I[k + 1]) ++bursts;
   CHECK(bursts == 3);
   CHECK(s.truth.verdict->pulse_class == PulseClass::kTrain);
+}
+
+TEST_CASE("simulate --config reads lines and tof keys and writes a flight-time scan",
+          "[imperfections][cli]") {
+  test::TempDir dir("gencfg");
+  test::write_text(dir / "scan.yaml",
+                   "preset: neon-150as\n"
+                   "energy_eV: {first: 40, step: 0.1, count: 750}\n"
+                   "delay_fs: {first: -1, step: 0.5, count: 5}\n"
+                   "lines: [{name: \"2p\"}, {name: \"2s\", relative_strength: 0.3, delay_as: 12}]\n"
+                   "tof: {length_m: 1.0, t0_ns: 2, bins: 300}\n"
+                   "noise: {hot_pixels: 2, background_exp_counts: 5, background_exp_onset_eV: 3}\n");
+  const std::string cmd = std::string(STREAKWRIGHT_CLI_PATH) + " simulate --quiet --config " +
+                          (dir / "scan.yaml") + " --name s --out " + dir.path.string() + " 2>&1";
+  FILE* p = popen(cmd.c_str(), "r");
+  REQUIRE(p);
+  std::array<char, 4096> buf{};
+  std::string out;
+  while (fgets(buf.data(), buf.size(), p)) out += buf.data();
+  const int st = pclose(p);
+  INFO(out);
+  REQUIRE(WIFEXITED(st));
+  REQUIRE(WEXITSTATUS(st) == 0);
+  const Trace t = read_trace(dir / "s.json");
+  CHECK(t.num_energies() == 300);
+  CHECK(!t.meta.calibration.empty());
+  const AnalysisResult truth = read_result_json(dir / "s.truth.json");
+  REQUIRE(truth.lines.size() == 2);
+  CHECK(truth.lines[1].name == "2s");
+  CHECK(*truth.lines[1].relative_delay_as == Approx(12.0));
+  // An unknown key of a line is named. (Line names that start with a digit are quoted in
+  // YAML: OpenCV's parser reads 2p as a malformed number.)
+  test::write_text(dir / "bad.yaml", "preset: neon-150as\nlines: [{name: \"2p\", strenght: 1}]\n");
+  const std::string bad = std::string(STREAKWRIGHT_CLI_PATH) + " simulate --quiet --config " +
+                          (dir / "bad.yaml") + " --out " + dir.path.string() + " 2>&1";
+  FILE* q = popen(bad.c_str(), "r");
+  REQUIRE(q);
+  std::string msg;
+  while (fgets(buf.data(), buf.size(), q)) msg += buf.data();
+  CHECK(WEXITSTATUS(pclose(q)) == 3);
+  CHECK(msg.find("lines[0].strenght") != std::string::npos);
 }

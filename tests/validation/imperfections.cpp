@@ -455,7 +455,8 @@ std::string csv_field(std::string s) {
 
 }  // namespace
 
-std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const SweepOptions& o) {
+std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const SweepOptions& o,
+                                const RowCallback& on_row) {
   const std::vector<ValidationCase> all = validation_cases();
   std::vector<ValidationCase> todo;
   if (names.empty()) {
@@ -487,9 +488,14 @@ std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const Swe
       const std::size_t i = next++;
       if (i >= todo.size()) return;
       rows[i] = run_case(todo[i], o, dir.string());
+      if (!o.verbose && on_row) {
+        std::lock_guard<std::mutex> lock(log);
+        on_row(rows[i]);
+      }
       if (o.verbose) {
         const SweepRow& r = rows[i];
         std::lock_guard<std::mutex> lock(log);
+        if (on_row) on_row(r);
         if (!r.error.empty())
           std::fprintf(stderr, "%-28s ERROR %s (%.0f s)\n", r.name.c_str(), r.error.c_str(), r.seconds);
         else
@@ -553,24 +559,30 @@ std::string check_scans(const std::vector<std::string>& names, int jobs) {
   return out;
 }
 
-std::string sweep_csv(const std::vector<SweepRow>& rows) {
+std::string sweep_csv_header() {
+  return "case,imperfection,good,peak_counts,tolerance,truth_fwhm_as,fwhm_as,fwhm_sigma_as,"
+         "fwhm_error_pct,error_over_sigma,truth_a0_au,a0_au,a0_error_pct,truth_class,"
+         "retrieved_class,quality_present,trusted,failed,within_1sigma,within_2sigma,wrong,"
+         "wrong_and_trusted,engine,seconds,error";
+}
+
+std::string sweep_csv_line(const SweepRow& r) {
   std::ostringstream s;
-  s << "case,imperfection,good,peak_counts,tolerance,truth_fwhm_as,fwhm_as,fwhm_sigma_as,"
-       "fwhm_error_pct,error_over_sigma,truth_a0_au,a0_au,a0_error_pct,truth_class,"
-       "retrieved_class,quality_present,trusted,failed,within_1sigma,within_2sigma,wrong,"
-       "wrong_and_trusted,engine,seconds,error\n";
   s.precision(8);
-  for (const SweepRow& r : rows) {
-    s << csv_field(r.name) << ',' << csv_field(r.imperfection) << ',' << r.good << ','
-      << r.peak_counts << ',' << r.tolerance << ',' << r.truth_fwhm_as << ',' << r.fwhm_as << ','
-      << r.fwhm_sigma_as << ',' << 100 * r.fwhm_error() << ',' << r.pull() << ',' << r.truth_a0
-      << ',' << r.a0 << ',' << 100 * r.a0_error() << ',' << r.truth_class << ','
-      << r.retrieved_class << ',' << r.has_quality << ',' << r.trusted << ','
-      << csv_field(r.failed) << ',' << r.within(1) << ',' << r.within(2) << ',' << r.wrong()
-      << ',' << r.wrong_and_trusted() << ',' << r.engine << ',' << r.seconds << ','
-      << csv_field(r.error) << '\n';
-  }
+  s << csv_field(r.name) << ',' << csv_field(r.imperfection) << ',' << r.good << ','
+    << r.peak_counts << ',' << r.tolerance << ',' << r.truth_fwhm_as << ',' << r.fwhm_as << ','
+    << r.fwhm_sigma_as << ',' << 100 * r.fwhm_error() << ',' << r.pull() << ',' << r.truth_a0
+    << ',' << r.a0 << ',' << 100 * r.a0_error() << ',' << r.truth_class << ','
+    << r.retrieved_class << ',' << r.has_quality << ',' << r.trusted << ','
+    << csv_field(r.failed) << ',' << r.within(1) << ',' << r.within(2) << ',' << r.wrong() << ','
+    << r.wrong_and_trusted() << ',' << r.engine << ',' << r.seconds << ',' << csv_field(r.error);
   return s.str();
+}
+
+std::string sweep_csv(const std::vector<SweepRow>& rows) {
+  std::string s = sweep_csv_header() + "\n";
+  for (const SweepRow& r : rows) s += sweep_csv_line(r) + "\n";
+  return s;
 }
 
 std::string sweep_summary(const std::vector<SweepRow>& rows) {

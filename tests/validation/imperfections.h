@@ -11,6 +11,7 @@
 // differs from the truth's. "wrong_and_trusted" = wrong with quality.trusted true (or with no
 // quality section, which the contract does not allow: counted as trusted).
 
+#include <functional>
 #include <optional>
 #include <string>
 #include <vector>
@@ -45,6 +46,10 @@ struct SweepOptions {
   bool verbose = true;   ///< one line per finished case on stderr
 };
 
+struct SweepRow;
+/// Called (under a lock) with each row as soon as its case has finished.
+using RowCallback = std::function<void(const SweepRow&)>;
+
 struct SweepRow {
   std::string name, imperfection;
   bool good = false;
@@ -69,7 +74,12 @@ struct SweepRow {
 
 /// Runs the named cases (all when `names` is empty); throws sw::Error (kUsage) naming an
 /// unknown case. Rows come back in the order of the cases.
-std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const SweepOptions& options);
+std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const SweepOptions& options,
+                                const RowCallback& on_row = {});
+
+/// One CSV line of a row (no newline) and the CSV header line.
+std::string sweep_csv_header();
+std::string sweep_csv_line(const SweepRow& row);
 
 /// Generates every case (no retrieval) and returns one line per case: truth FWHM, TL, class,
 /// A0, the largest noise-free signal in the outer 2 % of the energy axis relative to the peak

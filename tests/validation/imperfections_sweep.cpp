@@ -1,7 +1,8 @@
 // Imperfections validation sweep (issue 10): the named cases of imperfections.h simulated,
 // retrieved with default options and scored against the truth. Writes OUT_DIR/
 // validation_imperfections.csv and OUT_DIR/validation_imperfections_table.md (table and summary
-// lines) and prints the summary.
+// lines) and prints the summary; OUT_DIR/validation_imperfections.partial.csv grows row by row
+// while the sweep runs.
 // Usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N] [--jobs N] [--list]
 //        [--check-scans] (generate only: truth and whether the energy window holds the signal)
 #include <cstdio>
@@ -75,8 +76,14 @@ int main(int argc, char** argv) {
       std::printf("%s", validation::check_scans(names, o.jobs).c_str());
       return 0;
     }
-    const std::vector<validation::SweepRow> rows = validation::run_sweep(names, o);
     std::filesystem::create_directories(out);
+    // Rows are appended to the partial CSV as they finish (a long run can be inspected early).
+    std::ofstream partial(out + "/validation_imperfections.partial.csv");
+    partial << validation::sweep_csv_header() << "\n" << std::flush;
+    const std::vector<validation::SweepRow> rows =
+        validation::run_sweep(names, o, [&](const validation::SweepRow& r) {
+          partial << validation::sweep_csv_line(r) << "\n" << std::flush;
+        });
     std::ofstream(out + "/validation_imperfections.csv") << validation::sweep_csv(rows);
     std::ofstream(out + "/validation_imperfections_table.md") << validation::sweep_markdown(rows);
     std::printf("%s", validation::sweep_summary(rows).c_str());
