@@ -129,6 +129,42 @@ ScanConfig xuv_only() {
   return c;
 }
 
+ScanConfig two_lines() {
+  ScanConfig c = reference();
+  c.name = "neon-two-lines";
+  c.xuv.gaussian.center_eV = 120.0;
+  c.xuv.gaussian.transform_limited_fwhm_as = 160.0;
+  // 2p at 98.4 eV and 2s at 71.5 eV kinetic energy, each streaked by about +-16 eV.
+  c.geometry.energy_eV = {40.0, 0.33, 300};
+  LineSpec p2, s2;
+  p2.name = "2p";
+  s2.name = "2s";
+  s2.relative_strength = 0.3;
+  s2.delay_as = 10.0;
+  c.lines = {p2, s2};
+  return c;
+}
+
+ScanConfig argon_tof() {
+  ScanConfig c = reference();
+  c.name = "argon-tof";
+  c.gas = "Ar";
+  c.xuv.gaussian.center_eV = 70.0;
+  c.xuv.gaussian.transform_limited_fwhm_as = 200.0;
+  c.ir.pulse.peak_intensity_Wcm2 = 3e12;
+  // 3p photoelectrons at 54 eV; a 0.1 eV grid (finer than the time bins' energy width) from
+  // 25 to 90 eV recorded on 350 flight-time bins of a 0.8 m drift.
+  c.geometry.energy_eV = {25.0, 0.1, 650};
+  c.tof.length_m = 0.8;
+  c.tof.bins = 350;
+  c.noise.peak_counts = 600.0;
+  c.noise.background_counts = 1.0;
+  c.noise.background_exp_counts = 40.0;
+  c.noise.background_exp_onset_eV = 25.0;
+  c.noise.background_exp_decay_eV = 8.0;
+  return c;
+}
+
 std::vector<Preset> make_presets() {
   return {
       {"neon-150as",
@@ -161,6 +197,14 @@ std::vector<Preset> make_presets() {
        rabbitt()},
       {"neon-xuv-only", "field-free photoelectron spectrum of the 150 as pulse in neon (no IR)",
        xuv_only()},
+      {"neon-two-lines",
+       "160 as at 120 eV in neon: the 2p line and the 2s line (NIST threshold 48.47 eV, 0.3 of "
+       "the 2p cross-section, emitted 10 as later)",
+       two_lines()},
+      {"argon-tof",
+       "200 as at 70 eV in argon recorded on 350 flight-time bins of a 0.8 m drift, 1 count per "
+       "time bin and a low-energy tail",
+       argon_tof()},
   };
 }
 
