@@ -208,3 +208,32 @@ TEST_CASE("stage and laser jitter change rows only when enabled", "[noise]") {
   CHECK(std::sqrt(walk_ss / (rows - 1)) == Approx(0.002).epsilon(0.05));
   CHECK(all[0].delay_offset_fs == only_jitter[0].delay_offset_fs);  // walk_0 = 0, drift_0 = 0
 }
+
+TEST_CASE("hot pixels: own sub-stream, limits named", "[noise]") {
+  NoiseConfig n;
+  n.hot_pixels = 5;
+  RandomStreams a(9), b(9);
+  const auto p1 = draw_hot_pixels(n, 50, 80, a);
+  // Drawing hot pixels leaves the Poisson sub-stream untouched (synthetic/random_streams.h).
+  (void)draw_hot_pixels(n, 50, 80, b);
+  RandomStreams c(9);
+  CHECK(a[Stream::kPoisson]() == c[Stream::kPoisson]());
+  REQUIRE(p1.size() == 5);
+  // Too many for the image: refused with the field's name (1 per 90 pixels at most).
+  n.hot_pixels = 100;
+  CHECK_THROWS_WITH(draw_hot_pixels(n, 50, 80, a), Catch::Contains("noise.hot_pixels"));
+  n.hot_pixels = 1;
+  n.hot_pixel_factor_min = 1.0;
+  CHECK_THAT(n.validate(), Catch::Contains("noise.hot_pixel_factor_min"));
+  n.hot_pixel_factor_min = 30.0;
+  n.hot_pixel_factor_max = 20.0;
+  CHECK_THAT(n.validate(), Catch::Contains("noise.hot_pixel_factor_max"));
+  // A hot pixel reads factor x the mean of its 8 neighbours (rounded): 40 x 3 = 120
+  Eigen::MatrixXd m = Eigen::MatrixXd::Constant(5, 5, 2.0);
+  m(1, 1) = 10.0;  // one neighbour of (2,2) higher: mean = (7 x 2 + 10) / 8 = 3
+  const HotPixels h({HotPixel{2, 2, 40.0}});
+  RandomStreams r(1);
+  h.apply(m, {}, r);
+  CHECK(m(2, 2) == 120.0);
+  CHECK(m(1, 1) == 10.0);
+}

@@ -216,3 +216,35 @@ TEST_CASE("write_file_atomic replaces content whole and leaves no temporary", "[
   CHECK(sw::read_file_bytes(dir / "empty.txt").empty());
   CHECK(dir.listing() == std::vector<std::string>{"empty.txt", "f.txt"});
 }
+
+TEST_CASE("flight-time axis: written ascending with its calibration, bad axes refused",
+          "[io][writer][tof]") {
+  TempDir dir;
+  sw::Trace t = make_trace(true, 100.0);
+  const std::size_t n = t.num_energies();
+  sw::TraceWriteOptions wo;
+  sw::TraceTofAxis ax;
+  ax.length_m = 0.5;
+  ax.t0_ns = 1.0;
+  for (std::size_t j = 0; j < n; ++j) ax.tof_ns.push_back(400.0 - 2.0 * static_cast<double>(j));
+  wo.tof = ax;
+  const sw::TraceFiles f = sw::write_trace(t, dir / "tof.json", sw::TraceFormat::kCsv, wo);
+  const auto sc = sidecar_json(f.sidecar);
+  CHECK(!sc.contains("energy_eV"));
+  CHECK(sc["tof_ns"]["step"].get<double>() == Approx(2.0));  // ascending flight time
+  CHECK(sc["calibration"]["length_m"].get<double>() == 0.5);
+  CHECK(sc["calibration"]["t0_ns"].get<double>() == 1.0);
+  // The reader conserves the counts of every row (io/tof_calibration.h, DESIGN.md "Jacobians").
+  const sw::Trace back = sw::read_trace(f.sidecar);
+  for (Eigen::Index i = 0; i < t.counts.rows(); ++i)
+    CHECK(back.counts.row(i).sum() == Approx(t.counts.row(i).sum()).epsilon(1e-9));
+  // One flight time per column, after t0.
+  wo.tof->tof_ns.pop_back();
+  CHECK_THROWS_WITH(sw::write_trace(t, dir / "bad.json", sw::TraceFormat::kCsv, wo),
+                    Catch::Contains("one flight time per column"));
+  wo.tof = ax;
+  wo.tof->tof_ns[0] = 0.5;
+  CHECK_THROWS_WITH(sw::write_trace(t, dir / "bad.json", sw::TraceFormat::kCsv, wo),
+                    Catch::Contains("after t0_ns"));
+  CHECK(!fs::exists(dir / "bad.json"));
+}
