@@ -3,6 +3,7 @@
 #   make test   install missing Debian packages, build, run the whole test suite
 #   make demo-batch  simulate a small archive and reprocess it with `batch`
 #   make bench  build and run the Google Benchmark programs (figures go in docs/performance.md)
+#   make fuzz   coverage-guided fuzzing of the input readers with clang's libFuzzer (FUZZ_SECONDS)
 
 BUILD   ?= build
 JOBS    ?= $(shell nproc 2>/dev/null || echo 2)
@@ -15,7 +16,9 @@ DEPS := cmake g++ make pkg-config libeigen3-dev libfftw3-dev libceres-dev \
         libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev \
         catch2 libcli11-dev nlohmann-json3-dev libhdf5-dev libbenchmark-dev
 
-.PHONY: deps configure build test demo demo-batch bench clean format
+FUZZ_SECONDS ?= 60
+
+.PHONY: deps configure build test demo demo-batch bench fuzz clean format
 
 deps:
 	@missing=""; for p in $(DEPS); do dpkg -s $$p >/dev/null 2>&1 || missing="$$missing $$p"; done; \
@@ -50,6 +53,18 @@ bench: deps
 	cmake -S . -B $(BUILD) -DCMAKE_BUILD_TYPE=Release -DSTREAKWRIGHT_BUILD_BENCHMARKS=ON
 	cmake --build $(BUILD) -j$(JOBS)
 	for b in $(BUILD)/tests/bench/bench_*; do [ -x $$b ] && $$b; done
+
+# `make test` already runs the readers' fuzz target for a bounded time (ctest entry
+# fuzz_readers: a seeded mutation loop, no extra packages). This target builds the same target
+# with clang's libFuzzer and AddressSanitizer in $(BUILD)-fuzz (every source instrumented) and
+# runs it from the committed seeds.
+fuzz: deps
+	@dpkg -s clang >/dev/null 2>&1 || $(SUDO) env DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends clang
+	CXX=clang++ cmake -S . -B $(BUILD)-fuzz -DCMAKE_BUILD_TYPE=RelWithDebInfo -DSTREAKWRIGHT_LIBFUZZER=ON \
+	  -DCMAKE_CXX_FLAGS="-fsanitize=fuzzer-no-link,address" -DSTREAKWRIGHT_BUILD_TESTS=ON
+	cmake --build $(BUILD)-fuzz -j$(JOBS) --target fuzz_readers_libfuzzer
+	mkdir -p $(BUILD)-fuzz/corpus && cp tests/fuzz/corpus/* $(BUILD)-fuzz/corpus/
+	$(BUILD)-fuzz/tests/fuzz/fuzz_readers_libfuzzer -max_total_time=$(FUZZ_SECONDS) -rss_limit_mb=2048 $(BUILD)-fuzz/corpus
 
 format:
 	clang-format -i $$(git ls-files '*.h' '*.cpp')

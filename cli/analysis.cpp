@@ -1,9 +1,13 @@
 #include "cli/analysis.h"
 
+#include <cctype>
 #include <chrono>
+#include <filesystem>
 #include <sstream>
 
+#include "cli/output_folder.h"
 #include "cli/progress.h"
+#include "io/input_guard.h"
 #include "cli/provenance.h"
 #include "io/retrieval_outputs.h"
 #include "io/trace_reader.h"
@@ -56,8 +60,9 @@ ScanOutcome run_scan(const ScanJob& job) {
     read_overrides.ir_wavelength_nm = job.overrides.ir_wavelength_nm;
     if (TraceKind k; job.overrides.kind && parse_trace_kind(*job.overrides.kind, &k))
       read_overrides.kind = k;
-    Trace trace = read_trace(job.sidecar, nullptr, read_overrides);
+    Trace trace = read_trace(job.sidecar, nullptr, read_overrides, job.read_policy);
     apply_overrides(trace, job.overrides);
+    if (job.after_read) job.after_read(trace);
     std::vector<Param> prov = provenance(job.sidecar, trace.meta.image, "");
     // The calibration of a time-of-flight axis (calibration.*) goes into every result.
     for (const Param& p : trace.meta.calibration) prov.push_back(p);
@@ -87,11 +92,21 @@ ScanOutcome run_scan(const ScanJob& job) {
       o.result = run_classify_analysis(trace, job, prov);
     }
     o.ok = true;
+    if (const std::string bad = find_non_finite_output(job.out_dir); !bad.empty())
+      throw input_error("the analysis produced non-finite numbers (NaN or infinity) from this "
+                        "input, in '" + printable_path(bad) +
+                        "'; no estimate can be written (check the counts and 'scale' of the "
+                        "sidecar '" + printable_path(job.sidecar) + "')");
   } catch (const Error& e) {
     o.ok = false;
     o.message = e.what();
     o.exit_code = e.exit_code();
     o.error_kind = e.kind();
+    if (e.kind() == ErrorKind::kNumeric) {  // nothing was written: not the exit 4 of a result
+      o.message += " (no estimate could be computed from this input; nothing was written)";
+      o.exit_code = 3;
+      o.error_kind = ErrorKind::kInput;
+    }
   } catch (const std::exception& e) {
     o.ok = false;
     o.message = std::string("internal error: ") + e.what();
@@ -101,12 +116,91 @@ ScanOutcome run_scan(const ScanJob& job) {
   return o;
 }
 
+std::string find_non_finite_output(const std::string& dir) {
+  namespace fs = std::filesystem;
+  std::error_code ec;
+  for (fs::recursive_directory_iterator it(dir, ec), end; !ec && it != end; it.increment(ec)) {
+    const std::string ext = it->path().extension().string();
+    if (!it->is_regular_file(ec) || (ext != ".csv" && ext != ".json")) continue;
+    std::string text;
+    try {
+      text = read_regular_file(it->path().string(), limits::kMaxDataFileBytes, "output");
+    } catch (const Error&) {
+      continue;
+    }
+    const bool json = ext == ".json";
+    bool in_string = false, escaped = false;
+    for (std::size_t i = 0; i < text.size(); ++i) {
+      if (json && in_string) {  // JSON text values are words, not numbers
+        if (escaped) escaped = false;
+        else if (text[i] == '\\') escaped = true;
+        else if (text[i] == '"') in_string = false;
+        continue;
+      }
+      if (json && text[i] == '"') {
+        in_string = true;
+        continue;
+      }
+      const char c = static_cast<char>(std::tolower(static_cast<unsigned char>(text[i])));
+      if (c != 'n' && c != 'i') continue;
+      if (i > 0 && (std::isalnum(static_cast<unsigned char>(text[i - 1])) || text[i - 1] == '_'))
+        continue;
+      std::size_t j = i;
+      while (j < text.size() && std::isalpha(static_cast<unsigned char>(text[j]))) ++j;
+      std::string word = text.substr(i, j - i);
+      for (char& w : word) w = static_cast<char>(std::tolower(static_cast<unsigned char>(w)));
+      if ((word == "nan" || word == "inf" || word == "infinity") &&
+          (j == text.size() || !(std::isalnum(static_cast<unsigned char>(text[j])) || text[j] == '_'))) {
+        // Inside a JSON string ("name": "inf...") is text, not a number: require the token to
+        // follow a separator of numbers.
+        const char before = i == 0 ? ',' : text[i - 1];
+        if (before == ',' || before == ' ' || before == '\n' || before == '-' || before == '+' ||
+            before == ':' || before == '[' || before == '\t' || before == ';')
+          return it->path().string();
+      }
+      i = j - 1;
+    }
+  }
+  return "";
+}
+
 ScanOutcome run_scan_or_throw(ScanJob job) {
+  // Everything about the output folder is settled before any work (exit 2).
+  {
+    std::vector<std::string> inputs = {job.sidecar, sidecar_data_file(job.sidecar)};
+    if (!job.xuv_only_sidecar.empty()) {
+      inputs.push_back(job.xuv_only_sidecar);
+      inputs.push_back(sidecar_data_file(job.xuv_only_sidecar));
+    }
+    check_output_folder(job.out_dir, inputs, {});
+  }
+  OutputSwap swap(job.out_dir);
+  const std::string final_out = job.out_dir;
+  job.out_dir = swap.temp();
+  // The data file as the reader resolved it (the sidecar may be in a dialect only it reads).
+  job.after_read = [final_out, sidecar = job.sidecar](const Trace& t) {
+    std::string image = t.meta.image;
+    if (const auto colon = image.find(":/"); colon != std::string::npos) image.resize(colon);
+    const std::filesystem::path q(image), base = std::filesystem::path(sidecar).parent_path();
+    check_output_folder(final_out, {(q.is_absolute() || base.empty() ? q : base / q).string()},
+                        {});
+  };
+  InterruptScope interrupts;
   Progress progress(job.quiet);
-  job.progress = [&](const std::string& stage, const std::string& m) { progress.update(stage, m); };
+  job.progress = [&](const std::string& stage, const std::string& m) {
+    if (InterruptScope::signal_received())
+      throw Error(ErrorKind::kInternal, "interrupted");
+    progress.update(stage, m);
+  };
   ScanOutcome o = run_scan(job);
   progress.done();
+  if (const int sig = InterruptScope::signal_received())
+    throw InterruptedError(std::string("interrupted by ") + (sig == SIGTERM ? "SIGTERM" : "SIGINT") +
+                               "; the analysis stopped and nothing was written ('" +
+                               printable_path(final_out) + "' is unchanged)",
+                           InterruptScope::exit_code());
   if (!o.ok) throw Error(o.error_kind, o.message);
+  swap.commit();
   return o;
 }
 

@@ -7,6 +7,7 @@
 #include <string>
 #include <vector>
 
+#include "io/trace_reader.h"
 #include "retrieval/classifier.h"
 #include "retrieval/error.h"
 #include "retrieval/rabbitt.h"
@@ -43,6 +44,11 @@ struct ScanJob {
   /// Called with (stage, message) during long work; may be empty.
   std::function<void(const std::string&, const std::string&)> progress;
   std::vector<Param> extra_provenance; ///< e.g. batch options, appended to the result
+  /// Where data files may lie (io/trace_reader.h): batch input roots, --allow-outside-data.
+  TraceReadPolicy read_policy;
+  /// Called with the trace right after reading, before any analysis (e.g. the output-folder
+  /// check against the data file's folder); may throw sw::Error. May be empty.
+  std::function<void(const Trace&)> after_read;
   // --- rabbitt and classify (cli/cmd_rabbitt.cpp, cli/cmd_classify.cpp) ---
   /// rabbitt: sidecar of a field-free (XUV-only) scan whose spectrum gives the harmonic
   /// amplitudes of the average burst; "" = use the delay-integrated RABBITT spectrum.
@@ -78,11 +84,32 @@ struct ScanOutcome {
 };
 
 /// Reads the scan, applies overrides, runs the analysis, writes out_dir (result.json last).
+/// A numerical failure that leaves no estimate at all (an sw::Error of kind kNumeric thrown by
+/// an analysis) is reported as bad input (exit 3): exit 4 always means an estimate was written.
+/// Written files holding NaN or infinity are a failure of the same kind (the analysis could
+/// not produce finite numbers from this input); the caller discards the folder.
 ScanOutcome run_scan(const ScanJob& job);
 
-/// run_scan for the single-scan subcommands: progress on stderr unless job.quiet, and a failure
-/// thrown as sw::Error of its kind (so guarded() prints it and exits with its code).
+/// run_scan for the single-scan subcommands: checks the output folder against every input
+/// before any work (cli/output_folder.h, exit 2), writes into a temporary sibling that replaces
+/// the output folder only when complete, stops at SIGINT/SIGTERM (InterruptedError, exit
+/// 128 + signal, nothing written), shows progress on stderr unless job.quiet, and throws a
+/// failure as sw::Error of its kind (so guarded() prints it and exits with its code).
 ScanOutcome run_scan_or_throw(ScanJob job);
+
+/// Thrown by run_scan_or_throw when a SIGINT/SIGTERM stopped the analysis.
+class InterruptedError : public std::runtime_error {
+ public:
+  InterruptedError(const std::string& m, int code) : std::runtime_error(m), code_(code) {}
+  int exit_code() const { return code_; }
+
+ private:
+  int code_;
+};
+
+/// The first file under `dir` (recursively) whose text holds a non-finite number ("nan",
+/// "inf", "infinity" as a token, any case) among .csv/.json/.html files; "" if none.
+std::string find_non_finite_output(const std::string& dir);
 
 /// Applies overrides to a loaded trace's metadata.
 void apply_overrides(Trace& trace, const ScanOverrides& o);

@@ -20,9 +20,11 @@
 #include <nlohmann/json.hpp>
 
 #include "cli/batch_progress.h"
+#include "cli/output_folder.h"
 #include "cli/provenance.h"
 #include "cli/structured_file.h"
 #include "io/atomic_file.h"
+#include "io/input_guard.h"
 #include "io/result_io.h"
 #include "io/trace_reader.h"
 #include "retrieval/dipole.h"
@@ -40,8 +42,9 @@ namespace fs = std::filesystem;
 std::atomic<int> g_interrupts{0};
 static_assert(std::atomic<int>::is_always_lock_free, "signal handler needs a lock-free counter");
 
-extern "C" void on_batch_signal(int) {
-  const int n = g_interrupts.fetch_add(1) + 1;
+extern "C" void on_batch_signal(int sig) {
+  const int step = sig == SIGTERM ? 2 : 1;  // SIGTERM abandons the running scans at once
+  const int n = g_interrupts.fetch_add(step) + step;
   if (n >= 3) {
     static const char msg[] = "\nstreakwright batch: third interrupt, exiting now\n";
     const ssize_t w = write(STDERR_FILENO, msg, sizeof msg - 1);
@@ -105,7 +108,7 @@ struct SidecarPeek {
   std::string image, acquired;
 };
 
-SidecarPeek peek_sidecar(const std::string& path) {
+SidecarPeek peek_sidecar(const std::string& path, const TraceReadPolicy& policy) {
   SidecarPeek p;
   try {
     const nlohmann::json j = read_structured_file(path, "sidecar");
@@ -118,7 +121,7 @@ SidecarPeek peek_sidecar(const std::string& path) {
   }
   if (p.image.empty()) {
     try {
-      p.image = read_trace(path).meta.image;  // the reader's lenient JSON dialect
+      p.image = read_trace(path, nullptr, {}, policy).meta.image;  // the reader's JSON dialect
     } catch (...) {
     }
   }
@@ -165,6 +168,10 @@ std::string install(const fs::path& tmp, const fs::path& final_dir, const fs::pa
   }
   if (!fs::is_directory(final_dir, ec))
     return "cannot replace '" + final_dir.string() + "': it exists and is not a folder";
+  if (!looks_like_output_folder(final_dir.string()))
+    return "refusing to replace '" + printable_path(final_dir.string()) +
+           "': it exists and holds files but no result.json, so it is not an output of this "
+           "program (nothing was deleted); choose another --out";
   fs::path previous = tmp;  // after the exchange the temporary name holds the previous folder
   if (renameat2(AT_FDCWD, tmp.c_str(), AT_FDCWD, final_dir.c_str(), RENAME_EXCHANGE) != 0) {
     previous = out / (".old-" + escaped + "-" + std::to_string(getpid()));
@@ -321,11 +328,22 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
     row.analysis = to_string(e.analysis);
     const fs::path final_dir = out / fs::path(s.name);
     std::error_code ec;  // this worker's own
+    if (!is_valid_utf8(s.sidecar) || !is_valid_utf8(s.name)) {
+      row.scan = printable_path(s.name);
+      row.input = printable_path(s.sidecar);
+      row.status = "failed";
+      row.message = "sidecar '" + row.input +
+                    "': the file name is not valid UTF-8, which result.json and the summaries "
+                    "cannot record; expected a UTF-8 file name (rename the file)";
+      progress.started(row.scan);
+      progress.finished(row.scan, false, false, row.message, 0.0);
+      return;
+    }
     progress.started(s.name);
     try {
       const std::string options = scan_options_string(s, o);
       const std::string options_hash = hex64(fnv1a64(options));
-      const SidecarPeek peek = peek_sidecar(s.sidecar);
+      const SidecarPeek peek = peek_sidecar(s.sidecar, o.read_policy);
       const std::string hash = input_hash(s.sidecar, peek.image);
       row.input_hash = hash;
       row.acquired = peek.acquired;
@@ -351,6 +369,7 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
       job.retrieve.threads = engine_threads(o);
       job.atomic_correction = o.atomic_correction;
       job.quiet = true;
+      job.read_policy = o.read_policy;
       job.progress = [](const std::string&, const std::string&) {
         if (g_interrupts.load() >= 2)
           throw Error(ErrorKind::kInternal,

@@ -18,10 +18,14 @@
 // the same options (batch.options_hash = FNV-1a 64 of the canonical options string
 // batch.options) and the same program version (provenance.version).
 //
-// Interruption (SIGINT, SIGTERM): the first signal stops launching scans and lets the running
-// ones finish; the second abandons the running analyses at their next iteration (their temporary
-// folders are removed); the third exits at once (status 130). Scans that never started get a
+// Interruption: the first SIGINT stops launching scans and lets the running ones finish; the
+// second abandons the running analyses at their next iteration (their temporary folders are
+// removed); the third exits at once (status 130). SIGTERM (a scheduler or system shutdown)
+// counts twice: it abandons the running analyses at once. Scans that never started get a
 // failed row "not run: ...". The summary is written in every case.
+//
+// A scan whose sidecar path is not valid UTF-8 (result.json and the summaries are UTF-8) gets a
+// failed row with the escaped path instead of running.
 
 #include <string>
 #include <vector>
@@ -43,6 +47,7 @@ struct BatchOptions {
   std::string atomic_correction = "auto";       ///< rabbitt: auto | none
   ScanOverrides overrides;                      ///< for every scan (a manifest row's values win)
   bool quiet = false;                           ///< no progress on stderr
+  TraceReadPolicy read_policy;                  ///< data-file confinement (input roots)
   /// Empty if usable, else a message naming the option, its value and the constraint.
   std::string validate() const;
 };

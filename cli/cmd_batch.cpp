@@ -11,7 +11,10 @@
 #include "cli/batch_runner.h"
 #include "cli/batch_summary.h"
 #include "cli/commands.h"
+#include "cli/option_checks.h"
+#include "cli/output_folder.h"
 #include "cli/structured_file.h"
+#include "io/input_guard.h"
 #include "retrieval/dipole.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
@@ -26,6 +29,7 @@ struct BatchArgs {
   std::string out, shard = "1/1", analysis = "auto", config, dipole = "constant";
   BatchOptions options;
   bool dry_run = false;
+  bool allow_outside_data = false;
   // Options whose command-line presence decides whether the config file may set them.
   std::map<std::string, CLI::Option*> cli;
 };
@@ -64,8 +68,8 @@ void apply_config(BatchArgs& a) {
     }
     if (k == "ir_wavelength_nm") {
       const double w = get_number(k, v);
-      if (!(w > 0))
-        throw usage_error(where(k) + " = " + v.dump() + "; expected a wavelength > 0 nm");
+      if (const std::string p = ir_wavelength_nm_problem(w); !p.empty())
+        throw usage_error(where(k) + " = " + v.dump() + "; " + p);
       a.options.overrides.ir_wavelength_nm = w;
       continue;
     }
@@ -152,9 +156,35 @@ int run_batch_command(BatchArgs& a) {
   for (const auto& s : all)
     if (in_shard(s.name, o.shard_k, o.shard_n)) mine.push_back(s);
   if (a.dry_run) {
-    for (const auto& s : mine) std::printf("%s\t%s\n", s.name.c_str(), s.sidecar.c_str());
+    for (const auto& s : mine)
+      std::printf("%s\t%s\n", printable_path(s.name).c_str(), printable_path(s.sidecar).c_str());
     return 0;
   }
+  // Inputs are never touched: refuse an output folder that is or contains an input root, a
+  // sidecar's folder or a data file's folder (exit 2, before any work). Then lock it.
+  std::vector<std::string> roots, files;
+  for (const auto& i : a.inputs) {
+    std::error_code ec;
+    const std::filesystem::path p(i);
+    roots.push_back(std::filesystem::is_directory(p, ec)
+                        ? i
+                        : (p.parent_path().empty() ? std::string(".") : p.parent_path().string()));
+  }
+  for (const auto& s : all) {
+    files.push_back(s.sidecar);
+    files.push_back(sidecar_data_file(s.sidecar));
+  }
+  check_output_folder(a.out, files, roots);
+  o.read_policy.allowed_roots = roots;
+  o.read_policy.allow_outside_data = a.allow_outside_data;
+  {
+    std::error_code ec;
+    std::filesystem::create_directories(a.out, ec);
+    if (ec)
+      throw usage_error("--out '" + printable_path(a.out) + "': cannot create the folder (" +
+                        ec.message() + ")");
+  }
+  const BatchLock lock(a.out);
   if (!o.quiet) {
     std::fprintf(stderr, "streakwright batch: %zu scan(s)", mine.size());
     if (o.shard_n > 1)
@@ -292,6 +322,9 @@ void add_batch_command(CLI::App& app) {
   cmd->add_flag("--dry-run", a->dry_run,
                 "list the scans (name and sidecar) of this shard and exit");
   cmd->add_flag("--quiet,-q", a->options.quiet, "no progress on stderr");
+  cmd->add_flag("--allow-outside-data", a->allow_outside_data,
+                "read data files outside the input folders' trees (refused by default)");
+  check_numeric_options(cmd);
   cmd->callback([a] { exit_code() = guarded("batch", [&] { return run_batch_command(*a); }); });
 }
 

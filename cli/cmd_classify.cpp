@@ -8,6 +8,7 @@
 
 #include "cli/analysis.h"
 #include "cli/commands.h"
+#include "cli/option_checks.h"
 #include "io/classify_outputs.h"
 #include "retrieval/classifier.h"
 #include "retrieval/engine.h"
@@ -132,6 +133,7 @@ struct ClassifyArgs {
   std::string scan, out, gas, engine = "auto";
   double wavelength_nm = 0.0;
   bool retrieve = false, quiet = false;
+  bool allow_outside_data = false;
   int iterations = 0;
   RetrieveOptions retrieve_options;
   ClassifierOptions options;
@@ -153,11 +155,10 @@ int run_classify(ClassifyArgs& a) {
   job.retrieve.satellites_max_satellite_ratio = a.options.satellite_max_ratio;
   if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
   if (a.engine != "auto") (void)make_engine(a.engine);  // unknown names listed
-  if (a.wavelength_nm < 0)
-    throw usage_error("--ir-wavelength " + std::to_string(a.wavelength_nm) + ": must be > 0 nm");
-  if (a.wavelength_nm > 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;
+  if (a.wavelength_nm != 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;  // checked by CLI11
   if (!a.gas.empty()) job.overrides.gas = a.gas;
   job.quiet = a.quiet;
+  job.read_policy.allow_outside_data = a.allow_outside_data;
   const ScanOutcome o = run_scan_or_throw(job);
   const VerdictSection& v = *o.result.verdict;
   std::printf("class: %s\n", to_string(v.pulse_class));
@@ -201,7 +202,8 @@ void add_classify_command(CLI::App& app) {
   cmd->add_option("--iterations", a->iterations, "iterations of --retrieve; 0 = engine default")
       ->capture_default_str();
   cmd->add_option("--ir-wavelength", a->wavelength_nm,
-                  "IR (driver) wavelength in nm (overrides the sidecar)");
+                  "IR (driver) wavelength in nm (overrides the sidecar)")
+      ->check(ir_wavelength_nm_check());
   cmd->add_option("--gas", a->gas, "target gas (overrides the sidecar; used by --retrieve)");
   cmd->add_option("--isolated-max", a->options.isolated_max_satellite_ratio,
                   "largest satellite / main-burst peak intensity for 'isolated'")
@@ -225,6 +227,9 @@ void add_classify_command(CLI::App& app) {
                   "fewer counts in the whole scan give 'undetermined'")
       ->capture_default_str();
   cmd->add_flag("--quiet,-q", a->quiet, "no progress or warnings on stderr");
+  cmd->add_flag("--allow-outside-data", a->allow_outside_data,
+                "read a data file outside the sidecar's folder tree (refused by default)");
+  check_numeric_options(cmd);
   cmd->callback([a] { exit_code() = guarded("classify", [&] { return run_classify(*a); }); });
 }
 

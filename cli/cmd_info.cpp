@@ -6,6 +6,7 @@
 #include <sstream>
 
 #include "cli/commands.h"
+#include "io/input_guard.h"
 #include "io/trace_reader.h"
 #include "retrieval/error.h"
 #include "retrieval/gas.h"
@@ -36,17 +37,35 @@ AxisStats axis_stats(const std::vector<double>& v, double (*conv)(double)) {
   return a;
 }
 
-int run_info(const std::string& path) {
+int run_info(const std::string& path, bool allow_outside_data) {
   std::vector<std::string> warnings;
-  const Trace t = read_trace(path, &warnings);
+  TraceReadPolicy policy;
+  policy.allow_outside_data = allow_outside_data;
+  const Trace t = read_trace(path, &warnings, {}, policy);
+  // Legal but suspicious values the reader accepts.
+  if (!t.energy_au.empty() && t.energy_au.front() < 0) {
+    std::size_t negative = 0;
+    for (double e : t.energy_au) negative += e < 0 ? 1 : 0;
+    std::ostringstream w;
+    w << negative << " energy bins lie below 0 eV (from " << units::au_to_eV(t.energy_au.front())
+      << " eV): photoelectron kinetic energies are >= 0; check energy_eV or the calibration";
+    warnings.push_back(w.str());
+  }
+  if (t.meta.ir_wavelength_nm > 0 &&
+      (t.meta.ir_wavelength_nm < 400 || t.meta.ir_wavelength_nm > 12000)) {
+    std::ostringstream w;
+    w << "ir_wavelength_nm = " << t.meta.ir_wavelength_nm
+      << " nm is outside the usual drivers (400 nm .. 12 um); check the unit (nm)";
+    warnings.push_back(w.str());
+  }
   const AxisStats E = axis_stats(t.energy_au, units::au_to_eV);
   const AxisStats D = axis_stats(t.delay_au, units::au_to_fs);
   const double total = t.counts.sum(), peak = t.counts.maxCoeff();
   long long at_peak = 0;
   for (Eigen::Index i = 0; i < t.counts.size(); ++i) at_peak += t.counts.data()[i] >= peak ? 1 : 0;
 
-  std::printf("scan        %s\n", path.c_str());
-  std::printf("image       %s\n", t.meta.image.c_str());
+  std::printf("scan        %s\n", printable_path(path).c_str());
+  std::printf("image       %s\n", printable_path(t.meta.image).c_str());
   std::printf("kind hint   %s\n", *to_string(t.meta.kind) ? to_string(t.meta.kind) : "(none: the analysis decides)");
   std::printf("size        %zu delays x %zu energies\n", t.num_delays(), t.num_energies());
   std::printf("energy      %.3f .. %.3f eV, step %s%.4f eV\n", E.first, E.last, E.uniform ? "" : "~", E.max_step);
@@ -83,14 +102,15 @@ int run_info(const std::string& path) {
   if (t.meta.energy_resolution_eV) std::printf("resolution  %.3f eV (sidecar)\n", *t.meta.energy_resolution_eV);
   if (t.meta.background) std::printf("background  %.4g counts per bin (sidecar)\n", *t.meta.background);
   else if (t.meta.background_auto) std::printf("background  auto (estimated from signal-free bins)\n");
-  if (!t.meta.notes.empty()) std::printf("notes       %s\n", t.meta.notes.c_str());
-  for (const auto& [k, v] : t.meta.extra_json) std::printf("extra       %s = %s\n", k.c_str(), v.c_str());
+  if (!t.meta.notes.empty()) std::printf("notes       %s\n", escape_excerpt(t.meta.notes, 400).c_str());
+  for (const auto& [k, v] : t.meta.extra_json)
+    std::printf("extra       %s = %s\n", escape_excerpt(k, 64).c_str(), escape_excerpt(v, 200).c_str());
 
   if (peak < 20) warnings.push_back("peak of " + std::to_string(peak) + " counts per bin: Poisson noise will dominate (< 20 counts)");
   if (at_peak > 3 && static_cast<double>(at_peak) > 1e-3 * static_cast<double>(t.counts.size()))
     warnings.push_back(std::to_string(at_peak) + " bins sit exactly at the maximum value: detector saturation likely");
   if (t.num_delays() < 2 && t.meta.kind != TraceKind::kXuvOnly) warnings.push_back("only one delay row: no streaking information");
-  for (const auto& w : warnings) std::printf("warning     %s\n", w.c_str());
+  for (const auto& w : warnings) std::printf("warning     %s\n", escape_excerpt(w, 1000).c_str());
   return 0;
 }
 
@@ -103,8 +123,13 @@ void add_info_command(CLI::App& app) {
       "loaded, with warnings a physicist would want (delay step versus the 2 omega period,\n"
       "saturation, low counts, missing gas or wavelength). Exit 3 when the files are bad.");
   auto path = std::make_shared<std::string>();
+  auto outside = std::make_shared<bool>(false);
   cmd->add_option("scan", *path, "sidecar of the scan (NAME.json or NAME.yaml)")->required();
-  cmd->callback([path] { exit_code() = guarded("info", [&] { return run_info(*path); }); });
+  cmd->add_flag("--allow-outside-data", *outside,
+                "read a data file outside the sidecar's folder tree (refused by default)");
+  cmd->callback([path, outside] {
+    exit_code() = guarded("info", [&] { return run_info(*path, *outside); });
+  });
 }
 
 }  // namespace sw::cli

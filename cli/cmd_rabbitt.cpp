@@ -7,6 +7,7 @@
 
 #include "cli/analysis.h"
 #include "cli/commands.h"
+#include "cli/option_checks.h"
 #include "io/rabbitt_outputs.h"
 #include "io/trace_reader.h"
 #include "retrieval/classifier.h"
@@ -53,7 +54,7 @@ AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job,
   std::optional<Trace> xuv_only;
   if (!job.xuv_only_sidecar.empty()) {
     std::vector<std::string> rw;
-    xuv_only = read_trace(job.xuv_only_sidecar, &rw);
+    xuv_only = read_trace(job.xuv_only_sidecar, &rw, {}, job.read_policy);
     for (const auto& w : rw) res.warnings.push_back("xuv-only spectrum: " + w);
     if (xuv_only->meta.kind != TraceKind::kXuvOnly && xuv_only->meta.kind != TraceKind::kUnknown)
       res.warnings.push_back("the --xuv-only sidecar " + job.xuv_only_sidecar + " has kind '" +
@@ -122,6 +123,7 @@ struct RabbittArgs {
   RabbittOptions options;
   bool no_rainbow = false;
   bool quiet = false;
+  bool allow_outside_data = false;
 };
 
 std::string summary_line(const AnalysisResult& r) {
@@ -165,14 +167,13 @@ int run_rabbitt(RabbittArgs& a) {
   if (!parse_dipole_kind(a.dipole, &job.train_burst.dipole))
     throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
   if (!a.gas.empty()) job.overrides.gas = a.gas;
-  if (a.wavelength_nm > 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;
-  if (a.wavelength_nm < 0)
-    throw usage_error("--ir-wavelength " + std::to_string(a.wavelength_nm) + ": must be > 0 nm");
+  if (a.wavelength_nm != 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;  // checked by CLI11
   RabbittOptions check = job.rabbitt;
   if (!parse_atomic_delay_mode(a.atomic, &check.atomic.mode))
     throw usage_error("--atomic-correction " + a.atomic + ": expected auto or none");
   if (const std::string e = check.validate(); !e.empty()) throw usage_error(e);
   job.quiet = a.quiet;
+  job.read_policy.allow_outside_data = a.allow_outside_data;
   const ScanOutcome o = run_scan_or_throw(job);
   std::printf("%s\n", summary_line(o.result).c_str());
   if (!a.quiet)
@@ -220,7 +221,8 @@ void add_rabbitt_command(CLI::App& app) {
       ->capture_default_str();
   cmd->add_option("--gas", a->gas, "target gas (overrides the sidecar)");
   cmd->add_option("--ir-wavelength", a->wavelength_nm,
-                  "IR wavelength in nm (overrides the sidecar)");
+                  "IR wavelength in nm (overrides the sidecar)")
+      ->check(ir_wavelength_nm_check());
   cmd->add_option("--window", a->options.window_half_width_fraction,
                   "half width of the sideband windows in units of hbar omega, (0, 0.5]")
       ->capture_default_str();
@@ -231,6 +233,9 @@ void add_rabbitt_command(CLI::App& app) {
                 "use the fitted 2 omega frequency for the sideband fits (rescales the delay axis)");
   cmd->add_flag("--no-rainbow", a->no_rainbow, "skip the per-energy-bin (rainbow) fits");
   cmd->add_flag("--quiet,-q", a->quiet, "no warnings on stderr (they stay in the report)");
+  cmd->add_flag("--allow-outside-data", a->allow_outside_data,
+                "read data files outside the sidecars' folder trees (refused by default)");
+  check_numeric_options(cmd);
   cmd->callback([a] { exit_code() = guarded("rabbitt", [&] { return run_rabbitt(*a); }); });
 }
 

@@ -6,6 +6,7 @@
 
 #include "cli/commands.h"
 #include "cli/analysis.h"
+#include "cli/option_checks.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
 #include "retrieval/retrieve.h"
@@ -20,6 +21,7 @@ struct RetrieveArgs {
   RetrieveOptions options;
   std::string dipole = "constant";
   bool quiet = false;
+  bool allow_outside_data = false;
 };
 
 std::string summary_line(const AnalysisResult& r) {
@@ -53,6 +55,7 @@ int run_retrieve(RetrieveArgs& a) {
   job.analysis = AnalysisKind::kRetrieve;
   job.retrieve = a.options;
   job.quiet = a.quiet;
+  job.read_policy.allow_outside_data = a.allow_outside_data;
   const ScanOutcome o = run_scan_or_throw(job);
   std::printf("%s\n", summary_line(o.result).c_str());
   std::printf("report: %s\n", (std::filesystem::path(a.out) / "report.html").string().c_str());
@@ -97,6 +100,10 @@ void add_retrieve_command(CLI::App& app) {
                   "verdict: upper limit for 'isolated_with_satellites'")->capture_default_str();
   cmd->add_flag("--despike", a->options.preprocess.remove_hot_pixels, "replace isolated hot pixels (no smoothing)");
   cmd->add_flag("--quiet,-q", a->quiet, "no progress on stderr");
+  cmd->add_flag("--allow-outside-data", a->allow_outside_data,
+                "read a data file outside the sidecar's folder tree ('..', absolute or symlinked "
+                "paths; refused by default)");
+  check_numeric_options(cmd);
   cmd->callback([a] { exit_code() = guarded("retrieve", [&] { return run_retrieve(*a); }); });
 }
 

@@ -4,6 +4,7 @@
 
 #include <CLI/CLI.hpp>
 
+#include "cli/analysis.h"
 #include "cli/commands.h"
 #include "retrieval/error.h"
 #include "streakwright_version.h"
@@ -18,6 +19,9 @@ int& exit_code() {
 int guarded(const char* command, const std::function<int()>& body) {
   try {
     return body();
+  } catch (const InterruptedError& e) {
+    std::cerr << "streakwright " << command << ": " << e.what() << "\n";
+    return e.exit_code();
   } catch (const sw::Error& e) {
     std::cerr << "streakwright " << command << ": error: " << e.what() << "\n";
     return e.exit_code();
@@ -37,7 +41,8 @@ int main(int argc, char** argv) {
       "Reconstructs XUV pulses and IR streaking fields from photoelectron energy-vs-delay scans,\n"
       "analyses RABBITT sidebands, and decides isolated pulse versus train.\n"
       "Exit codes: 0 ok, 1 internal error, 2 bad usage, 3 bad input data, 4 numerical failure\n"
-      "(best estimate still written, flagged), 5 batch finished with failed scans.",
+      "(best estimate still written, flagged), 5 batch finished with failed scans,\n"
+      "130/143 stopped by SIGINT/SIGTERM (nothing written). See docs/cli.md.",
       "streakwright"};
   app.set_version_flag("--version", std::string("streakwright ") + STREAKWRIGHT_VERSION);
   app.require_subcommand(1);

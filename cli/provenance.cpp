@@ -7,6 +7,7 @@
 #include <iterator>
 
 #include <cstdio>
+#include "io/input_guard.h"
 #include "streakwright_version.h"
 
 namespace sw::cli {
@@ -21,6 +22,12 @@ std::uint64_t fnv1a64_update(std::uint64_t h, std::string_view bytes) {
 
 namespace {
 void hash_file(const std::string& path, std::uint64_t& h) {
+  // Only regular files within the data limit: a FIFO would block, /dev/zero never end
+  // (the reader refuses them with a message; the hash just leaves them out).
+  std::error_code ec;
+  if (!std::filesystem::is_regular_file(path, ec) ||
+      std::filesystem::file_size(path, ec) > limits::kMaxDataFileBytes || ec)
+    return;
   std::ifstream f(path, std::ios::binary);
   char buf[1 << 16];
   while (f) {
@@ -33,7 +40,8 @@ void hash_file(const std::string& path, std::uint64_t& h) {
 std::string input_hash(const std::string& sidecar, const std::string& image) {
   namespace fs = std::filesystem;
   std::uint64_t h = kFnv1a64Offset;
-  if (!fs::exists(sidecar)) return "";
+  std::error_code ec;
+  if (!fs::is_regular_file(sidecar, ec)) return "";
   hash_file(sidecar, h);
   std::string img = image;
   const auto colon = img.find(".h5:");

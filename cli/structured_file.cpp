@@ -5,6 +5,7 @@
 #include <opencv2/core/persistence.hpp>
 
 #include "io/atomic_file.h"
+#include "io/input_guard.h"
 #include "retrieval/error.h"
 
 namespace sw::cli {
@@ -39,23 +40,27 @@ std::string lower(std::string s) {
 
 nlohmann::json read_structured_file(const std::string& path, const std::string& what) {
   namespace fs = std::filesystem;
-  std::error_code ec;
-  if (!fs::is_regular_file(path, ec))
-    throw usage_error(what + " '" + path + "' does not exist or is not a file");
+  const std::string shown = printable_path(path);
   std::string text;
   try {
-    text = read_file_bytes(path);
+    text = read_regular_file(path, limits::kMaxSidecarBytes * 16, what);
   } catch (const Error& e) {
-    throw usage_error(what + " '" + path + "' cannot be read: " + e.what());
+    throw usage_error(what + " '" + shown + "' cannot be read: " + e.what());
   }
   const std::string ext = lower(fs::path(path).extension().string());
+  // The YAML reader recurses: bound the nesting before it runs (io/input_guard.h).
+  if (int line = 0; (nesting_depth(text, ext != ".json", limits::kMaxNestingDepth, &line), line > 0))
+    throw usage_error(what + " '" + shown + "' nests deeper than " +
+                      std::to_string(limits::kMaxNestingDepth) + " levels at line " +
+                      std::to_string(line) + "; expected a flat list of settings");
   if (ext == ".json") {
     try {
       return json::parse(text);
-    } catch (const json::parse_error& e) {
+    } catch (const json::exception& e) {
       std::string why = e.what();
       if (const auto p = why.find("] "); p != std::string::npos) why = why.substr(p + 2);
-      throw usage_error(what + " '" + path + "' is not valid JSON (RFC 8259): " + why);
+      throw usage_error(what + " '" + shown + "' is not valid JSON (RFC 8259): " +
+                        escape_excerpt(why, 200));
     }
   }
   if (ext == ".yaml" || ext == ".yml") {
@@ -67,7 +72,9 @@ nlohmann::json read_structured_file(const std::string& path, const std::string& 
       if (!fsr.isOpened()) throw usage_error(what + " '" + path + "' is not valid YAML");
       return to_json(fsr.root());
     } catch (const cv::Exception& e) {
-      throw usage_error(what + " '" + path + "' is not valid YAML: " + e.err);
+      // OpenCV 4.6 swaps the function name and the "(LINE): reason" text.
+      const std::string why = e.func.find("): ") != std::string::npos ? e.func : e.err;
+      throw usage_error(what + " '" + shown + "' is not valid YAML: " + escape_excerpt(why, 200));
     }
   }
   throw usage_error(what + " '" + path + "' has extension '" + ext +

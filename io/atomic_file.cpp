@@ -12,6 +12,7 @@
 
 #include <opencv2/imgcodecs.hpp>
 
+#include "io/input_guard.h"
 #include "retrieval/error.h"
 
 namespace sw {
@@ -81,16 +82,8 @@ void imwrite_atomic(const std::string& path, const cv::Mat& image, const std::ve
 }
 
 std::string read_file_bytes(const std::string& path) {
-  std::error_code ec;
-  if (!fs::exists(path, ec)) throw input_error("file '" + path + "' does not exist");
-  if (fs::is_directory(path, ec)) throw input_error("'" + path + "' is a folder; expected a file");
-  std::ifstream in(path, std::ios::binary);
-  if (!in)
-    throw input_error("cannot open '" + path + "' for reading (" + std::strerror(errno) + ")");
-  std::ostringstream s;
-  s << in.rdbuf();
-  if (in.bad()) throw input_error("reading '" + path + "' failed");
-  return s.str();
+  // Only regular files (a FIFO or device would block or never end), io/input_guard.h.
+  return read_regular_file(path, limits::kMaxDataFileBytes, "file");
 }
 
 }  // namespace sw

@@ -1,5 +1,7 @@
 #include "io/csv.h"
 
+#include "io/input_guard.h"
+
 #include <charconv>
 #include <cmath>
 #include <cstdio>
@@ -74,8 +76,10 @@ bool parse_number(std::string_view cell, char sep, double* out) {
 
 }  // namespace
 
-Eigen::MatrixXd parse_csv_matrix(std::string_view text, const std::string& where) {
+Eigen::MatrixXd parse_csv_matrix(std::string_view text, const std::string& where,
+                                 bool quote_cells) {
   std::vector<std::vector<double>> rows;
+  std::size_t samples = 0;
   std::size_t line_no = 0, pos = 0;
   bool first_content_line = true;
   if (text.size() >= 3 && text.substr(0, 3) == "\xEF\xBB\xBF") pos = 3;  // UTF-8 byte order mark
@@ -108,8 +112,10 @@ Eigen::MatrixXd parse_csv_matrix(std::string_view text, const std::string& where
       m << where << ": CSV cell at line " << line_no << ", column " << bad + 1 << " is ";
       if (cell.empty())
         m << "empty";
+      else if (quote_cells)
+        m << "'" << escape_excerpt(cell) << "', not a number";
       else
-        m << "'" << cell << "', not a number";
+        m << "not a number";
       m << "; expected a matrix of numbers separated by ',', ';' or spaces";
       throw input_error(m.str());
     }
@@ -121,6 +127,11 @@ Eigen::MatrixXd parse_csv_matrix(std::string_view text, const std::string& where
         << "of columns";
       throw input_error(m.str());
     }
+    samples += values.size();
+    if (samples > limits::kMaxSamples)
+      throw input_error(where + ": the CSV file has more than " +
+                        std::to_string(limits::kMaxSamples) +
+                        " numbers (docs/file_formats.md, Limits); expected a smaller matrix");
     rows.push_back(std::move(values));
   }
   if (rows.empty())
@@ -132,7 +143,8 @@ Eigen::MatrixXd parse_csv_matrix(std::string_view text, const std::string& where
 }
 
 Eigen::MatrixXd read_csv_matrix(const std::string& path) {
-  return parse_csv_matrix(read_file_bytes(path), path);
+  return parse_csv_matrix(read_regular_file(path, limits::kMaxDataFileBytes, "data file"),
+                          printable_path(path));
 }
 
 namespace {

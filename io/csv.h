@@ -14,7 +14,10 @@
 //  - numbers are parsed locale-independently (std::from_chars); "nan"/"inf" are parsed as such
 //    (the trace reader then reports their position);
 //  - every row must have the same number of cells.
-// Errors: sw::Error(kInput) naming `where` (the file), the 1-based line and column and the cell.
+// Errors: sw::Error(kInput) naming `where` (the file), the 1-based line and column and, when
+// `quote_cells`, a short escaped excerpt of the cell (io/input_guard.h escape_excerpt: control
+// bytes as \xNN, at most 24 characters); never a whole line. More than limits::kMaxSamples
+// numbers (io/input_guard.h) is an error before they are stored.
 
 #include <string>
 #include <string_view>
@@ -25,9 +28,11 @@
 namespace sw {
 
 /// Parses CSV text into a matrix (rows = lines). `where` names the file in messages.
-Eigen::MatrixXd parse_csv_matrix(std::string_view text, const std::string& where);
+Eigen::MatrixXd parse_csv_matrix(std::string_view text, const std::string& where,
+                                 bool quote_cells = true);
 
-/// Reads and parses a CSV file (see above). Throws sw::Error(kInput) if missing or malformed.
+/// Reads and parses a CSV file (see above; only a regular file, io/input_guard.h). Throws
+/// sw::Error(kInput) if missing or malformed.
 Eigen::MatrixXd read_csv_matrix(const std::string& path);
 
 /// Formats a matrix as comma-separated text, one line per row, with 17 significant digits

@@ -5,6 +5,7 @@
 #include <filesystem>
 #include <vector>
 
+#include "io/input_guard.h"
 #include "retrieval/error.h"
 
 #ifdef STREAKWRIGHT_HAVE_HDF5
@@ -47,7 +48,8 @@ Eigen::MatrixXd read_hdf5_matrix(const std::string& file, const std::string& dat
                       "'FILE.h5:/group/counts'");
   std::error_code ec;
   if (!std::filesystem::exists(file, ec))
-    throw input_error(what + ": the HDF5 file '" + file + "' does not exist");
+    throw input_error(what + ": the HDF5 file '" + printable_path(file) + "' does not exist");
+  check_regular_file(file, limits::kMaxDataFileBytes, what + ": the HDF5 file");
 #ifndef STREAKWRIGHT_HAVE_HDF5
   throw input_error(what +
                     ": this build of streakwright has no HDF5 support; convert the "
@@ -86,6 +88,13 @@ Eigen::MatrixXd read_hdf5_matrix(const std::string& file, const std::string& dat
     if (dims[0] == 0 || dims[1] == 0)
       throw input_error(what + ": the dataset is empty (" + std::to_string(dims[0]) + " x " +
                         std::to_string(dims[1]) + ")");
+    if (dims[0] > limits::kMaxAxisCount || dims[1] > limits::kMaxAxisCount ||
+        dims[0] * dims[1] > limits::kMaxSamples)
+      throw input_error(what + ": the dataset declares " + std::to_string(dims[0]) + " x " +
+                        std::to_string(dims[1]) + " values, above the limits of " +
+                        std::to_string(limits::kMaxAxisCount) + " per side and " +
+                        std::to_string(limits::kMaxSamples) +
+                        " in all (docs/file_formats.md, Limits); it was not read");
     std::vector<double> buffer(static_cast<std::size_t>(dims[0] * dims[1]));
     ds.read(buffer.data(), H5::PredType::NATIVE_DOUBLE);
     Eigen::MatrixXd m(static_cast<Eigen::Index>(dims[0]), static_cast<Eigen::Index>(dims[1]));

@@ -3,16 +3,22 @@
 #include <algorithm>
 #include <cctype>
 #include <cmath>
+#include <cstdio>
 #include <filesystem>
+#include <mutex>
 #include <sstream>
+
+#include <unistd.h>
 
 #include <nlohmann/json.hpp>
 #include <opencv2/core.hpp>
+#include <opencv2/core/utils/logger.hpp>
 #include <opencv2/imgcodecs.hpp>
 
 #include "io/atomic_file.h"
 #include "io/csv.h"
 #include "io/hdf5_reader.h"
+#include "io/input_guard.h"
 #include "io/tof_calibration.h"
 #include "io/tof_fit.h"
 #include "retrieval/error.h"
@@ -61,6 +67,7 @@ const char* type_name(const json& v) {
 
 // --- sidecar parsing into one JSON tree ------------------------------------------------------
 
+/// Recursion depth is bounded: the text was pre-scanned by nesting_depth() (input_guard.h).
 json filenode_to_json(const cv::FileNode& n) {
   if (n.isInt()) return static_cast<int>(n);
   if (n.isReal()) return static_cast<double>(n);
@@ -74,6 +81,9 @@ json filenode_to_json(const cv::FileNode& n) {
     json o = json::object();
     for (auto it = n.begin(); it != n.end(); ++it) {
       const cv::FileNode child = *it;
+      if (o.contains(child.name()))
+        throw input_error("the key '" + escape_excerpt(child.name()) +
+                          "' appears twice in one mapping; expected each key once");
       o[child.name()] = filenode_to_json(child);
     }
     return o;
@@ -89,20 +99,97 @@ bool parse_with_filestorage(const std::string& text, int format, json* out) {
   return true;
 }
 
+/// SAX handler that only finds duplicate keys (one set of keys per open object, no recursion).
+struct DuplicateKeyFinder : nlohmann::json_sax<json> {
+  std::vector<std::vector<std::string>> keys;
+  std::string duplicate;
+  bool null() override { return true; }
+  bool boolean(bool) override { return true; }
+  bool number_integer(number_integer_t) override { return true; }
+  bool number_unsigned(number_unsigned_t) override { return true; }
+  bool number_float(number_float_t, const string_t&) override { return true; }
+  bool string(string_t&) override { return true; }
+  bool binary(binary_t&) override { return true; }
+  bool start_object(std::size_t) override {
+    keys.emplace_back();
+    return true;
+  }
+  bool key(string_t& k) override {
+    auto& level = keys.back();
+    if (std::find(level.begin(), level.end(), k) != level.end()) {
+      duplicate = k;
+      return false;  // stop parsing
+    }
+    level.push_back(k);
+    return true;
+  }
+  bool end_object() override {
+    keys.pop_back();
+    return true;
+  }
+  bool start_array(std::size_t) override { return true; }
+  bool end_array() override { return true; }
+  bool parse_error(std::size_t, const std::string&, const nlohmann::detail::exception&) override {
+    return false;
+  }
+};
+
+/// OpenCV's YAML parser reports "(LINE): message" (line of the text it was given); turn it
+/// into "line N: message" of the file, minus the "%YAML" line the reader may have prepended.
+std::string yaml_reason(const cv::Exception& e, bool prepended) {
+  // OpenCV 4.6's parseError passes the text as the function name and vice versa: take
+  // whichever of the two carries the "(LINE): " form.
+  std::string err = e.func.find("): ") != std::string::npos ? e.func : e.err;
+  const auto open = err.find('(');
+  const auto close = err.find("): ");
+  if (open != std::string::npos && close != std::string::npos && close > open) {
+    const std::string digits = err.substr(open + 1, close - open - 1);
+    if (!digits.empty() && digits.find_first_not_of("0123456789") == std::string::npos &&
+        digits.size() < 9) {
+      const long line = std::stol(digits) - (prepended ? 1 : 0);
+      return "line " + std::to_string(std::max(1L, line)) + ": " +
+             escape_excerpt(err.substr(close + 3), 200);
+    }
+  }
+  return escape_excerpt(err, 200) + " (position unknown)";
+}
+
+/// The message of a nlohmann exception without its "[json.exception...] " prefix.
+std::string json_reason(const std::exception& e) {
+  std::string what = e.what();
+  if (const auto p = what.find("] "); p != std::string::npos) what = what.substr(p + 2);
+  return escape_excerpt(what, 200);
+}
+
 json load_sidecar(const std::string& path) {
-  std::error_code ec;
-  if (!fs::exists(path, ec))
-    throw input_error("sidecar file '" + path +
-                      "' does not exist; expected NAME.json or NAME.yaml "
-                      "describing the scan");
-  if (fs::is_directory(path, ec))
-    throw input_error("sidecar '" + path + "' is a folder; expected a NAME.json or NAME.yaml file");
+  const std::string shown = printable_path(path);
   const std::string ext = lower(fs::path(path).extension().string());
-  const std::string text = read_file_bytes(path);
+  if (ext != ".json" && ext != ".yaml" && ext != ".yml")
+    throw input_error("sidecar '" + shown + "' has extension '" + escape_excerpt(ext) +
+                      "'; expected NAME.json (JSON) or NAME.yaml / NAME.yml (YAML)");
+  const std::string text = read_regular_file(path, limits::kMaxSidecarBytes, "sidecar");
+  // Every parser below recurses (cv::FileStorage, nlohmann's dump): bound the nesting first.
+  {
+    int line = 0;
+    nesting_depth(text, ext != ".json", limits::kMaxNestingDepth, &line);
+    if (line > 0)
+      throw input_error("sidecar '" + shown + "' nests deeper than " +
+                        std::to_string(limits::kMaxNestingDepth) + " levels at line " +
+                        std::to_string(line) +
+                        "; expected a flat description of the scan (docs/file_formats.md, Limits)");
+  }
   json root;
   if (ext == ".json") {
     try {
+      DuplicateKeyFinder dup;
+      json::sax_parse(text, &dup);
+      if (!dup.duplicate.empty())
+        throw input_error("sidecar '" + shown + "': the key '" + escape_excerpt(dup.duplicate) +
+                          "' appears twice in one object; expected each key once");
       root = json::parse(text);
+    } catch (const json::out_of_range& e) {
+      throw input_error("sidecar '" + shown + "' has a number that does not fit a double (" +
+                        json_reason(e) + "); expected finite numbers");
     } catch (const json::parse_error& e) {
       // nlohmann is strict RFC 8259; give cv::FileStorage (the contract's reader) a chance at
       // its dialect before giving up, and report the strict parser's precise position.
@@ -111,14 +198,16 @@ json load_sidecar(const std::string& path) {
         ok = parse_with_filestorage(text, cv::FileStorage::FORMAT_JSON, &root);
       } catch (const cv::Exception&) {
         ok = false;
+      } catch (const Error&) {
+        ok = false;
       }
-      if (!ok) {
-        std::string what = e.what();
-        if (const auto p = what.find("] "); p != std::string::npos) what = what.substr(p + 2);
-        throw input_error("sidecar '" + path + "' is not valid JSON (RFC 8259): " + what);
-      }
+      if (!ok)
+        throw input_error("sidecar '" + shown + "' is not valid JSON (RFC 8259): " +
+                          json_reason(e));
+    } catch (const json::exception& e) {
+      throw input_error("sidecar '" + shown + "' could not be read as JSON: " + json_reason(e));
     }
-  } else if (ext == ".yaml" || ext == ".yml") {
+  } else {
     // OpenCV's YAML reader recognises YAML by its "%YAML" directive; hand-written sidecars
     // usually omit it.
     std::string yaml = text;
@@ -131,15 +220,14 @@ json load_sidecar(const std::string& path) {
       ok = parse_with_filestorage(yaml, cv::FileStorage::FORMAT_YAML, &root);
     } catch (const cv::Exception& e) {
       ok = false;
-      reason = e.err;
+      reason = yaml_reason(e, text.compare(start, 5, "%YAML") != 0);
+    } catch (const Error& e) {
+      throw input_error("sidecar '" + shown + "': " + e.what());
     }
-    if (!ok) throw input_error("sidecar '" + path + "' is not valid YAML: " + reason);
-  } else {
-    throw input_error("sidecar '" + path + "' has extension '" + ext +
-                      "'; expected NAME.json (JSON) or NAME.yaml / NAME.yml (YAML)");
+    if (!ok) throw input_error("sidecar '" + shown + "' is not valid YAML: " + reason);
   }
   if (!root.is_object())
-    throw input_error("sidecar '" + path + "': the top level is " + type_name(root) +
+    throw input_error("sidecar '" + shown + "': the top level is " + type_name(root) +
                       "; expected an object of key/value pairs such as {\"streakwright\": 1, ...}");
   return root;
 }
@@ -155,13 +243,13 @@ class Sidecar {
   const json& at(const std::string& key) const { return root_.at(key); }
 
   [[noreturn]] void fail(const std::string& field, const std::string& message) const {
-    throw input_error("sidecar '" + path_ + "', field '" + field + "': " + message);
+    throw input_error("sidecar '" + printable_path(path_) + "', field '" + field + "': " + message);
   }
 
   double number(const json& v, const std::string& field) const {
     if (!v.is_number())
       fail(field, std::string("is ") + type_name(v) +
-                      (v.is_string() ? " '" + v.get<std::string>() + "'" : "") +
+                      (v.is_string() ? " '" + escape_excerpt(v.get<std::string>()) + "'" : "") +
                       "; expected a number");
     const double d = v.get<double>();
     if (!std::isfinite(d)) fail(field, "is not finite; expected a finite number");
@@ -185,7 +273,7 @@ class Sidecar {
   }
   void require(const std::string& key, const std::string& expected) const {
     if (!has(key))
-      throw input_error("sidecar '" + path_ + "' is missing the required key '" + key +
+      throw input_error("sidecar '" + printable_path(path_) + "' is missing the required key '" + key +
                         "'; expected " + expected);
   }
 
@@ -195,6 +283,9 @@ class Sidecar {
     std::vector<double> values;
     if (v.is_array()) {
       if (v.empty()) fail(key, "is an empty array; expected axis values or {first, step, count}");
+      if (v.size() > limits::kMaxAxisCount)
+        fail(key, "has " + std::to_string(v.size()) + " values, above the limit of " +
+                      std::to_string(limits::kMaxAxisCount) + " (docs/file_formats.md, Limits)");
       for (std::size_t i = 0; i < v.size(); ++i)
         values.push_back(number(v[i], key + "[" + std::to_string(i) + "]"));
     } else if (v.is_object()) {
@@ -210,8 +301,12 @@ class Sidecar {
       const double step = number(v["step"], key + ".step");
       const double count = number(v["count"], key + ".count");
       if (step == 0) fail(key + ".step", "is 0; expected a non-zero step");
-      if (count < 1 || count != std::floor(count) || count > 1e7)
+      if (count < 1 || count != std::floor(count))
         fail(key + ".count", "is " + num(count) + "; expected a positive whole number");
+      if (count > static_cast<double>(limits::kMaxAxisCount))
+        fail(key + ".count", "is " + num(count) + ", above the limit of " +
+                                 std::to_string(limits::kMaxAxisCount) +
+                                 " values per axis (docs/file_formats.md, Limits)");
       values.resize(static_cast<std::size_t>(count));
       for (std::size_t i = 0; i < values.size(); ++i)
         values[i] = first + step * static_cast<double>(i);
@@ -239,51 +334,143 @@ bool descending(const std::vector<double>& v) { return v.size() >= 2 && v[1] < v
 
 // --- data file ---------------------------------------------------------------------------
 
+/// Runs cv::imread with OpenCV's logging silenced and stderr (where libpng/libtiff write their
+/// own diagnostics) captured; what the decoders said comes back in `chatter`.
+cv::Mat quiet_imread(const std::string& file, std::string* chatter) {
+  static std::mutex m;
+  std::lock_guard<std::mutex> lock(m);
+  cv::utils::logging::setLogLevel(cv::utils::logging::LOG_LEVEL_SILENT);
+  std::fflush(stderr);
+  std::FILE* sink = std::tmpfile();
+  const int saved = sink ? ::dup(STDERR_FILENO) : -1;
+  if (saved >= 0) ::dup2(::fileno(sink), STDERR_FILENO);
+  cv::Mat img;
+  std::string error;
+  try {
+    img = cv::imread(file, cv::IMREAD_UNCHANGED);
+  } catch (const cv::Exception& e) {
+    error = e.err;
+  }
+  std::fflush(stderr);
+  if (saved >= 0) {
+    ::dup2(saved, STDERR_FILENO);
+    ::close(saved);
+  }
+  if (sink) {
+    std::rewind(sink);
+    char buf[256];
+    const std::size_t n = std::fread(buf, 1, sizeof buf, sink);
+    std::fclose(sink);
+    *chatter = escape_excerpt(std::string_view(buf, n), 120);
+  }
+  if (!error.empty()) throw input_error(escape_excerpt(error, 200));
+  return img;
+}
+
 Eigen::MatrixXd load_image(const Sidecar& sc, const std::string& image,
-                           std::vector<std::string>* warnings, std::string* shown_name) {
+                           std::vector<std::string>* warnings, std::string* shown_name,
+                           const TraceReadPolicy& policy) {
   const fs::path base = fs::path(sc.path()).parent_path();
   auto resolve = [&](const std::string& p) {
     const fs::path q(p);
     return (q.is_absolute() || base.empty() ? q : base / q).string();
   };
+  // Confinement: the data file must lie in the sidecar's folder tree (or an allowed root).
+  auto confine = [&](const std::string& file) {
+    if (policy.allow_outside_data) return;
+    if (path_inside(file, base.empty() ? "." : base.string())) return;
+    for (const std::string& root : policy.allowed_roots)
+      if (path_inside(file, root)) return;
+    sc.fail("image", "names '" + printable_path(file) +
+                         "', which lies outside the sidecar's folder tree (after resolving '..' "
+                         "and symbolic links); expected a data file beside the sidecar or below "
+                         "it, or pass --allow-outside-data to read it");
+  };
   std::string h5_file, h5_dataset;
   if (split_hdf5_reference(image, &h5_file, &h5_dataset)) {
-    *shown_name = resolve(h5_file) + ":" + h5_dataset;
-    return read_hdf5_matrix(resolve(h5_file), h5_dataset,
-                            "sidecar '" + sc.path() + "', field 'image'");
+    const std::string f = resolve(h5_file);
+    *shown_name = printable_path(f) + ":" + escape_excerpt(h5_dataset, 200);
+    confine(f);
+    try {
+      check_regular_file(f, limits::kMaxDataFileBytes, "data file");
+    } catch (const Error& e) {
+      sc.fail("image", e.what());
+    }
+    return read_hdf5_matrix(f, h5_dataset,
+                            "sidecar '" + printable_path(sc.path()) + "', field 'image'");
   }
   const std::string file = resolve(image);
-  *shown_name = file;
-  std::error_code ec;
-  if (!fs::exists(file, ec))
-    sc.fail("image", "names the data file '" + file + "', which does not exist");
-  if (fs::is_directory(file, ec)) sc.fail("image", "names '" + file + "', which is a folder");
+  const std::string shown = printable_path(file);
+  *shown_name = shown;
+  confine(file);
+  try {
+    check_regular_file(file, limits::kMaxDataFileBytes, "data file");
+  } catch (const Error& e) {
+    sc.fail("image", e.what());
+  }
+  const bool quote_cells = path_inside(file, base.empty() ? "." : base.string()) ||
+                           std::any_of(policy.allowed_roots.begin(), policy.allowed_roots.end(),
+                                       [&](const std::string& r) { return path_inside(file, r); });
   const std::string ext = lower(fs::path(file).extension().string());
   if (ext == ".csv" || ext == ".txt" || ext == ".dat" || ext == ".tsv") {
     try {
-      return read_csv_matrix(file);
+      return parse_csv_matrix(read_regular_file(file, limits::kMaxDataFileBytes, "data file"),
+                              shown, quote_cells);
     } catch (const Error& e) {
       sc.fail("image", e.what());
     }
   }
 
-  cv::Mat img;
+  ImageHeader h;
   try {
-    img = cv::imread(file, cv::IMREAD_UNCHANGED);
-  } catch (const cv::Exception& e) {
-    sc.fail("image", "the data file '" + file + "' could not be decoded (" + e.err + ")");
+    h = read_image_header(file);
+  } catch (const Error& e) {
+    sc.fail("image", e.what());
+  }
+  if (h.samples_per_pixel != 1)
+    sc.fail("image", "the data file '" + shown + "' has " + std::to_string(h.samples_per_pixel) +
+                         " channels; expected a single-channel image (grey, no colour, no alpha)");
+  if (h.width == 0 || h.height == 0)
+    sc.fail("image", "the data file '" + shown + "' declares " + std::to_string(h.width) + " x " +
+                         std::to_string(h.height) + " pixels; expected a non-empty image");
+  if (h.width > limits::kMaxAxisCount || h.height > limits::kMaxAxisCount ||
+      h.width * h.height > limits::kMaxSamples)
+    sc.fail("image", "the data file '" + shown + "' declares " + std::to_string(h.width) + " x " +
+                         std::to_string(h.height) + " pixels, above the limits of " +
+                         std::to_string(limits::kMaxAxisCount) + " per side and " +
+                         std::to_string(limits::kMaxSamples) +
+                         " in all (docs/file_formats.md, Limits); it was not decoded");
+  if (h.pages > 1)
+    sc.fail("image", "the data file '" + shown + "' is a TIFF with " + std::to_string(h.pages) +
+                         (h.pages >= 1000 ? "+" : "") +
+                         " pages; expected one page (one scan per file): split the stack");
+  if (h.format == "tiff" && h.bits_per_sample == 32 && h.sample_format == 1)
+    sc.fail("image", "the data file '" + shown +
+                         "' has unsigned 32-bit integer samples, which the image decoder "
+                         "cannot represent; expected 16-bit unsigned, 32-bit signed integer or "
+                         "32/64-bit float samples (convert it, e.g. to 32-bit float)");
+  cv::Mat img;
+  std::string chatter;
+  try {
+    img = quiet_imread(file, &chatter);
+  } catch (const Error& e) {
+    sc.fail("image", "the data file '" + shown + "' could not be decoded (" + e.what() + ")");
   }
   if (img.empty())
-    sc.fail("image", "the data file '" + file +
-                         "' could not be decoded as an image; expected a "
-                         "16-bit PNG, a 16/32-bit TIFF, a CSV matrix or an HDF5 dataset");
+    sc.fail("image", "the data file '" + shown +
+                         "' could not be decoded as an image" +
+                         (chatter.empty() ? std::string() : " (decoder: " + chatter + ")") +
+                         "; expected a 16-bit PNG, a 16/32-bit TIFF, a CSV matrix or an HDF5 "
+                         "dataset");
+  if (!chatter.empty() && warnings)
+    warnings->push_back("image '" + shown + "': the decoder reported: " + chatter);
   if (img.channels() != 1)
-    sc.fail("image", "the data file '" + file + "' has " + std::to_string(img.channels()) +
+    sc.fail("image", "the data file '" + shown + "' has " + std::to_string(img.channels()) +
                          " channels; expected a single-channel image (grey, no colour, no alpha)");
   switch (img.depth()) {
     case CV_8U:
       if (warnings)
-        warnings->push_back("image '" + file +
+        warnings->push_back("image '" + shown +
                             "' has 8 bits per sample (256 levels); a 16-bit "
                             "PNG or a TIFF keeps the dynamic range of the detector");
       break;
@@ -294,7 +481,7 @@ Eigen::MatrixXd load_image(const Sidecar& sc, const std::string& image,
     case CV_64F:
       break;
     default:
-      sc.fail("image", "the data file '" + file +
+      sc.fail("image", "the data file '" + shown +
                            "' has an unsupported sample type (OpenCV depth " +
                            std::to_string(img.depth()) +
                            "); expected 16-bit or 32-bit integer or "
@@ -338,6 +525,80 @@ void summed_spectrum(const Eigen::MatrixXd& counts, const std::vector<double>& t
   }
 }
 
+/// Physical ranges of sidecar numbers (docs/file_formats.md "Limits"): wide enough for any
+/// attosecond streaking or RABBITT experiment, narrow enough that derived grids stay small.
+namespace ranges {
+constexpr double kMinEnergyEV = -100.0;       ///< kinetic energy axis, lower end (eV)
+constexpr double kMaxEnergyEV = 10000.0;      ///< kinetic energy axis, upper end (eV)
+constexpr double kMinEnergyStepEV = 1e-4;     ///< smallest energy step (eV)
+constexpr double kMaxTofNs = 1e7;             ///< |flight time| (ns)
+constexpr double kMinTofStepNs = 1e-6;        ///< smallest flight-time step (ns)
+constexpr double kMaxAbsDelayFs = 1e6;        ///< |delay| (fs), stage offsets included
+constexpr double kMaxDelaySpanFs = 2000.0;    ///< last minus first delay (fs)
+constexpr double kMinDelayStepFs = 1e-3;      ///< smallest delay step (fs)
+constexpr double kMinIrWavelengthNm = 100.0;  ///< IR (driving) wavelength, lower end (nm)
+constexpr double kMaxIrWavelengthNm = 20000.0;///< upper end (nm): mid-infrared drivers
+constexpr double kMinScale = 1e-30;           ///< counts per image unit
+constexpr double kMaxScale = 1e30;
+constexpr double kMaxCounts = 1e15;           ///< largest scaled count / background per bin
+constexpr double kMinPeakCounts = 1e-12;      ///< smallest allowed largest scaled count
+constexpr double kMaxResolutionEV = 100.0;    ///< energy_resolution_eV (FWHM)
+}  // namespace ranges
+
+/// Values in [lo, hi], consecutive steps of at least min_step, span at most max_span (0 = any).
+void check_axis_range(const Sidecar& sc, const std::string& key, const std::vector<double>& v,
+                      double lo, double hi, double min_step, double max_span, const char* unit) {
+  for (std::size_t i = 0; i < v.size(); ++i)
+    if (!(v[i] >= lo && v[i] <= hi))
+      sc.fail(key, "has the value " + num(v[i]) + " " + unit + " at index " + std::to_string(i) +
+                       "; expected values in [" + num(lo) + ", " + num(hi) + "] " + unit);
+  for (std::size_t i = 1; i < v.size(); ++i)
+    if (std::abs(v[i] - v[i - 1]) < min_step)
+      sc.fail(key, "has a step of " + num(std::abs(v[i] - v[i - 1])) + " " + unit +
+                       " at index " + std::to_string(i) + "; expected steps of at least " +
+                       num(min_step) + " " + unit);
+  if (max_span > 0 && v.size() >= 2 && std::abs(v.back() - v.front()) > max_span)
+    sc.fail(key, "spans " + num(std::abs(v.back() - v.front())) + " " + unit +
+                     "; expected at most " + num(max_span) + " " + unit +
+                     " (docs/file_formats.md, Limits)");
+}
+
+/// Echoes an unknown key into meta.extra_json unless it is too deep or too large to be useful
+/// in result.json (then a warning says it was dropped). Depth is measured without recursion.
+void echo_extra(const Sidecar& sc, const std::string& key, const json& value, TraceMeta* meta,
+                std::vector<std::string>* warnings) {
+  int depth = 0;
+  std::vector<std::pair<const json*, int>> stack{{&value, 1}};
+  while (!stack.empty()) {
+    const auto [v, d] = stack.back();
+    stack.pop_back();
+    if (v->is_structured()) {
+      depth = std::max(depth, d);
+      if (depth > limits::kMaxEchoDepth) break;
+      for (const auto& c : *v) stack.push_back({&c, d + 1});
+    }
+  }
+  const std::string shown_key = escape_excerpt(key, 64);
+  if (depth > limits::kMaxEchoDepth) {
+    if (warnings)
+      warnings->push_back("sidecar '" + printable_path(sc.path()) + "': the unknown key '" +
+                          shown_key + "' nests deeper than " +
+                          std::to_string(limits::kMaxEchoDepth) +
+                          " levels and is not echoed into the result");
+    return;
+  }
+  std::string text = value.dump(-1, ' ', false, json::error_handler_t::replace);
+  if (text.size() > limits::kMaxEchoBytes || key.size() > 256 || !is_valid_utf8(key)) {
+    if (warnings)
+      warnings->push_back("sidecar '" + printable_path(sc.path()) + "': the unknown key '" +
+                          shown_key + "' is longer than " + std::to_string(limits::kMaxEchoBytes) +
+                          " bytes of JSON (or its name is not short UTF-8) and is not echoed "
+                          "into the result");
+    return;
+  }
+  meta->extra_json[key] = std::move(text);
+}
+
 }  // namespace
 
 const std::vector<std::string>& known_sidecar_keys() {
@@ -360,11 +621,16 @@ const std::vector<std::string>& known_sidecar_keys() {
 }
 
 Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warnings_out,
-                 const TraceReadOverrides& overrides) {
+                 const TraceReadOverrides& overrides, const TraceReadPolicy& policy) {
   std::vector<std::string> collected;  // -> meta.read_warnings (and warnings_out)
   std::vector<std::string>* const warnings = &collected;
+  // result.json is UTF-8 JSON and records the input path: refuse what it cannot hold.
+  if (!is_valid_utf8(sidecar_path))
+    throw input_error("sidecar '" + printable_path(sidecar_path) +
+                      "': the file name is not valid UTF-8, which result.json cannot record; "
+                      "expected a UTF-8 file name (rename the file)");
   const Sidecar sc(sidecar_path, load_sidecar(sidecar_path));
-  const std::string& where = sidecar_path;
+  const std::string where = printable_path(sidecar_path);
 
   // --- required keys -----------------------------------------------------------------------
   sc.require("streakwright", "the format version, \"streakwright\": 1");
@@ -379,6 +645,8 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
   sc.require("image", "the data file name, e.g. \"image\": \"scan.png\" (relative to the sidecar)");
   const std::string image = sc.string(sc.at("image"), "image");
   if (image.empty()) sc.fail("image", "is empty; expected the data file name");
+  if (!is_valid_utf8(image) || image.find('\0') != std::string::npos)
+    sc.fail("image", "is not a valid UTF-8 file name; expected a UTF-8 path");
   sc.require("layout", "\"delay_rows\" or \"energy_rows\"");
   const std::string layout = sc.string(sc.at("layout"), "layout");
   if (layout != "delay_rows" && layout != "energy_rows")
@@ -407,6 +675,24 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
   const std::string delay_key = stage ? "delay_um" : "delay_fs";
   std::vector<double> energy_axis = sc.axis(energy_key);
   std::vector<double> delay_axis = sc.axis(delay_key);
+  if (energy_axis.size() * delay_axis.size() > limits::kMaxSamples)
+    sc.fail(delay_key, "declares " + std::to_string(delay_axis.size()) + " delays x " +
+                           std::to_string(energy_axis.size()) + " energies, above the limit of " +
+                           std::to_string(limits::kMaxSamples) +
+                           " samples (docs/file_formats.md, Limits)");
+  // Physical ranges: the engines derive their time and energy grids from these axes.
+  if (tof)
+    check_axis_range(sc, energy_key, energy_axis, -ranges::kMaxTofNs, ranges::kMaxTofNs,
+                     ranges::kMinTofStepNs, 0.0, "ns");
+  else
+    check_axis_range(sc, energy_key, energy_axis, ranges::kMinEnergyEV, ranges::kMaxEnergyEV,
+                     ranges::kMinEnergyStepEV, 0.0, "eV");
+  {
+    const double to_fs = stage ? units::stage_travel_um_to_fs(1.0) : 1.0;
+    check_axis_range(sc, delay_key, delay_axis, -ranges::kMaxAbsDelayFs / to_fs,
+                     ranges::kMaxAbsDelayFs / to_fs, ranges::kMinDelayStepFs / to_fs,
+                     ranges::kMaxDelaySpanFs / to_fs, stage ? "um" : "fs");
+  }
   TofCalibration cal;
   TofFitRequest fit_request;
   if (tof) {
@@ -451,21 +737,33 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
         if (!(v > 0 && v < 1))
           sc.fail(f, "is " + num(v) + "; expected a fraction of the tallest peak in (0, 1)");
         fit_request.min_peak_fraction = v;
-      } else if (k == "length_m")
+      } else if (k == "length_m") {
         cal.length_m = sc.number(*it, f);
-      else if (k == "t0_ns")
+        if (!(cal.length_m > 0 && cal.length_m <= 100))
+          sc.fail(f, "is " + num(cal.length_m) + "; expected a flight length in (0, 100] m");
+      } else if (k == "t0_ns") {
         cal.t0_ns = sc.number(*it, f);
-      else if (k == "energy_offset_eV")
+        if (!(std::abs(cal.t0_ns) <= ranges::kMaxTofNs))
+          sc.fail(f, "is " + num(cal.t0_ns) + "; expected |t0| <= " + num(ranges::kMaxTofNs) + " ns");
+      } else if (k == "energy_offset_eV") {
         cal.energy_offset_eV = sc.number(*it, f);
+        if (!(std::abs(cal.energy_offset_eV) <= ranges::kMaxEnergyEV))
+          sc.fail(f, "is " + num(cal.energy_offset_eV) + "; expected |offset| <= " +
+                         num(ranges::kMaxEnergyEV) + " eV");
+      }
       else if (k == "energy_count") {
         const double n = sc.number(*it, f);
-        if (n < 1 || n != std::floor(n) || n > 1e7)
-          sc.fail(f, "is " + num(n) + "; expected a positive whole number of energy bins");
+        if (n < 1 || n != std::floor(n) || n > static_cast<double>(limits::kMaxAxisCount))
+          sc.fail(f, "is " + num(n) + "; expected a whole number of energy bins in [1, " +
+                         std::to_string(limits::kMaxAxisCount) + "]");
         cal.energy_count = static_cast<int>(n);
-      } else if (k == "energy_min_eV")
-        cal.energy_min_eV = sc.number(*it, f);
-      else if (k == "energy_max_eV")
-        cal.energy_max_eV = sc.number(*it, f);
+      } else if (k == "energy_min_eV" || k == "energy_max_eV") {
+        const double e = sc.number(*it, f);
+        if (!(e >= ranges::kMinEnergyEV && e <= ranges::kMaxEnergyEV))
+          sc.fail(f, "is " + num(e) + "; expected an energy in [" + num(ranges::kMinEnergyEV) +
+                         ", " + num(ranges::kMaxEnergyEV) + "] eV");
+        (k == "energy_min_eV" ? cal.energy_min_eV : cal.energy_max_eV) = e;
+      }
       else
         sc.fail(f,
                 "is not a calibration key; expected length_m, t0_ns, energy_offset_eV "
@@ -502,12 +800,21 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
   if (sc.has("gas")) meta.gas = sc.string(sc.at("gas"), "gas");
   if (sc.has("ir_wavelength_nm")) {
     meta.ir_wavelength_nm = sc.number(sc.at("ir_wavelength_nm"), "ir_wavelength_nm");
-    if (!(meta.ir_wavelength_nm > 0))
-      sc.fail("ir_wavelength_nm",
-              "is " + num(meta.ir_wavelength_nm) + "; expected a wavelength > 0 nm");
+    if (!(meta.ir_wavelength_nm >= ranges::kMinIrWavelengthNm &&
+          meta.ir_wavelength_nm <= ranges::kMaxIrWavelengthNm))
+      sc.fail("ir_wavelength_nm", "is " + num(meta.ir_wavelength_nm) + "; expected a wavelength in [" +
+                                      num(ranges::kMinIrWavelengthNm) + ", " +
+                                      num(ranges::kMaxIrWavelengthNm) + "] nm");
   }
   if (overrides.gas) meta.gas = *overrides.gas;
-  if (overrides.ir_wavelength_nm) meta.ir_wavelength_nm = *overrides.ir_wavelength_nm;
+  if (overrides.ir_wavelength_nm) {
+    const double w = *overrides.ir_wavelength_nm;
+    if (!(w >= ranges::kMinIrWavelengthNm && w <= ranges::kMaxIrWavelengthNm))
+      throw input_error("the IR wavelength override for '" + where + "' is " + num(w) +
+                        " nm; expected a wavelength in [" + num(ranges::kMinIrWavelengthNm) +
+                        ", " + num(ranges::kMaxIrWavelengthNm) + "] nm");
+    meta.ir_wavelength_nm = w;
+  }
   if (overrides.kind) meta.kind = *overrides.kind;
   double fit_ip_eV = 0.0;
   if (fit_request.fit) {
@@ -534,6 +841,9 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
     meta.scale = sc.number(sc.at("scale"), "scale");
     if (!(meta.scale > 0))
       sc.fail("scale", "is " + num(meta.scale) + "; expected counts per image unit > 0");
+    if (!(meta.scale >= ranges::kMinScale && meta.scale <= ranges::kMaxScale))
+      sc.fail("scale", "is " + num(meta.scale) + "; expected counts per image unit in [" +
+                           num(ranges::kMinScale) + ", " + num(ranges::kMaxScale) + "]");
   }
   if (sc.has("background")) {
     const json& b = sc.at("background");
@@ -544,14 +854,17 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
       meta.background_auto = true;
     } else {
       const double v = sc.number(b, "background");
-      if (v < 0)
-        sc.fail("background", "is " + num(v) + "; expected counts per bin >= 0 or \"auto\"");
+      if (v < 0 || v > ranges::kMaxCounts)
+        sc.fail("background", "is " + num(v) + "; expected counts per bin in [0, " +
+                                  num(ranges::kMaxCounts) + "] or \"auto\"");
       meta.background = v;
     }
   }
   if (sc.has("energy_resolution_eV")) {
     const double v = sc.number(sc.at("energy_resolution_eV"), "energy_resolution_eV");
-    if (v < 0) sc.fail("energy_resolution_eV", "is " + num(v) + "; expected a FWHM >= 0 eV");
+    if (v < 0 || v > ranges::kMaxResolutionEV)
+      sc.fail("energy_resolution_eV", "is " + num(v) + "; expected a FWHM in [0, " +
+                                          num(ranges::kMaxResolutionEV) + "] eV");
     meta.energy_resolution_eV = v;
   }
   if (sc.has("notes")) {
@@ -567,11 +880,11 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
   for (auto it = sc.root().begin(); it != sc.root().end(); ++it)
     if (std::find(known.begin(), known.end(), it.key()) == known.end() ||
         (it.key() == "calibration" && !tof))
-      meta.extra_json[it.key()] = it.value().dump();
+      echo_extra(sc, it.key(), it.value(), &meta, warnings);
 
   // --- data --------------------------------------------------------------------------------
   std::string shown;
-  Eigen::MatrixXd m = load_image(sc, image, warnings, &shown);
+  Eigen::MatrixXd m = load_image(sc, image, warnings, &shown, policy);
   if (m.rows() == 0 || m.cols() == 0)
     sc.fail("image", "the data file '" + shown + "' is empty; expected a matrix of counts");
   const Eigen::Index n_energy = energy_rows ? m.rows() : m.cols();
@@ -605,6 +918,14 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
     sc.fail("image", "every value of the data file '" + shown +
                          "' is zero; expected a scan "
                          "with counts");
+  // The analyses square and sum counts: keep the largest scaled count where that stays finite
+  // and normal (no overflow to inf, no underflow to denormals and 0).
+  if (const double peak = m.maxCoeff() * meta.scale;
+      !(peak >= ranges::kMinPeakCounts && peak <= ranges::kMaxCounts))
+    sc.fail("image", "the largest count of '" + shown + "' times scale is " + num(peak) +
+                         "; expected it in [" + num(ranges::kMinPeakCounts) + ", " +
+                         num(ranges::kMaxCounts) +
+                         "] counts (set 'scale' to the counts per image unit)");
   if (meta.scale != 1.0) m *= meta.scale;
 
   // Rows = delays, columns = energies (or flight times).

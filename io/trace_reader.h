@@ -4,7 +4,8 @@
 // Sidecar: NAME.json (JSON, RFC 8259) or NAME.yaml / NAME.yml (YAML, OpenCV FileStorage
 // dialect), read with cv::FileStorage. Keys:
 //   streakwright        required, must be 1 (format version)
-//   image               required; path relative to the sidecar's folder (or absolute) of
+//   image               required; path relative to the sidecar's folder, inside its folder
+//                       tree unless TraceReadPolicy allows more, of
 //                       - a PNG (ISO/IEC 15948) of 16 bits per sample, one channel;
 //                       - a TIFF (TIFF 6.0) of 16- or 32-bit integer or 32/64-bit float samples;
 //                       - an 8-bit PNG/TIFF is accepted with a warning (256 levels limit the
@@ -68,13 +69,31 @@ struct TraceReadOverrides {
   std::optional<TraceKind> kind;           ///< replaces "kind"
 };
 
+/// Where data files may lie (docs/file_formats.md "Data path"). The data path of a sidecar is
+/// resolved relative to the sidecar's folder; after resolving "..", and symbolic links, it must
+/// lie inside that folder's tree or inside one of `allowed_roots` (a batch's input roots),
+/// unless `allow_outside_data` (the command-line option --allow-outside-data) is set. A file
+/// outside the allowed tree is never quoted in messages.
+struct TraceReadPolicy {
+  std::vector<std::string> allowed_roots;  ///< extra folders data files may lie in
+  bool allow_outside_data = false;         ///< true: any readable regular file
+};
+
 /// Reads the scan described by the sidecar at `sidecar_path` (see above). Non-fatal remarks
 /// (8-bit image, time-of-flight counts dropped outside the energy window, a fitted
 /// calibration whose residual exceeds the resolution, ...) are kept in meta.read_warnings
 /// and also appended to `warnings` when it is given. `overrides` are applied to meta before
 /// anything uses them.
+///
+/// Hardening (io/input_guard.h, docs/file_formats.md "Limits"): only regular files are read
+/// (FIFOs, devices and folders are refused by type before opening), sidecars are limited in
+/// size and nesting depth (checked by a non-recursive pre-scan before any parser runs),
+/// duplicate keys are an error, every number of the sidecar is range-checked, declared axis
+/// sizes and image dimensions (read from the PNG/TIFF header before decoding) are checked
+/// against the limits before anything is allocated, multi-page TIFFs are refused, and an
+/// unknown key too deep or too large to echo is dropped with a warning.
 Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warnings = nullptr,
-                 const TraceReadOverrides& overrides = {});
+                 const TraceReadOverrides& overrides = {}, const TraceReadPolicy& policy = {});
 
 /// The sidecar keys the reader interprets itself (everything else goes to meta.extra_json).
 const std::vector<std::string>& known_sidecar_keys();

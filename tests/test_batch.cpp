@@ -381,7 +381,8 @@ TEST_CASE("--resume rewrites nothing when nothing changed and re-runs exactly th
   write(redo, src / "2023/run1/scan_a.json", sw::TraceFormat::kPng16);
   {
     std::string y = sw::read_file_bytes((src / "2024/scan_b.yaml").string());
-    y += "notes: \"re-read after the detector gain change\"\n";
+    // A new key (a repeated one would be a duplicate-key error, io/trace_reader.h).
+    y += "gain_note: \"re-read after the detector gain change\"\n";
     std::ofstream(src / "2024/scan_b.yaml") << y;
   }
   const Cli changed = run_cli(base + " --resume", "r2");

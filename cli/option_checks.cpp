@@ -1,0 +1,70 @@
+#include "cli/option_checks.h"
+
+#include <cmath>
+#include <string>
+
+namespace sw::cli {
+
+namespace {
+
+bool parse_double(const std::string& s, double* v) {
+  try {
+    std::size_t used = 0;
+    *v = std::stod(s, &used);
+    return used == s.size();
+  } catch (...) {
+    return false;
+  }
+}
+
+}  // namespace
+
+std::string ir_wavelength_nm_problem(double nm) {
+  if (!(std::isfinite(nm) && nm >= 100.0 && nm <= 20000.0))
+    return "expected an IR wavelength in [100, 20000] nm";
+  return "";
+}
+
+CLI::Validator ir_wavelength_nm_check() {
+  return CLI::Validator(
+      [](std::string& s) -> std::string {
+        double v = 0;
+        if (!parse_double(s, &v)) return "'" + s + "' is not a number; expected nm";
+        if (const std::string p = ir_wavelength_nm_problem(v); !p.empty())
+          return "'" + s + "': " + p;
+        return "";
+      },
+      "NM in [100, 20000]");
+}
+
+void check_numeric_options(CLI::App* cmd) {
+  for (CLI::Option* opt : cmd->get_options()) {
+    const std::string type = opt->get_type_name();
+    if (type.rfind("FLOAT", 0) == 0) {
+      opt->check(CLI::Validator(
+          [](std::string& s) -> std::string {
+            double v = 0;
+            if (parse_double(s, &v) && !std::isfinite(v))
+              return "'" + s + "' is not a finite number; expected a finite value";
+            if (!parse_double(s, &v)) {
+              // std::stod rejects "1e999" by range: it is not finite either.
+              if (s.find_first_of("0123456789") != std::string::npos &&
+                  s.find_first_not_of("0123456789+-.eE") == std::string::npos)
+                return "'" + s + "' overflows a double; expected a finite value";
+            }
+            return "";
+          },
+          ""));
+    } else if (type.rfind("UINT", 0) == 0) {
+      opt->check(CLI::Validator(
+          [](std::string& s) -> std::string {
+            if (s.find('-') != std::string::npos)
+              return "'" + s + "' is negative; expected a whole number >= 0";
+            return "";
+          },
+          ""));
+    }
+  }
+}
+
+}  // namespace sw::cli

@@ -1,0 +1,21 @@
+#pragma once
+// Command-line numbers checked at parse time (exit 2 before any work, docs/cli.md):
+// every FLOAT option must be finite (no "nan", "inf", "1e999"), every UINT option must not be
+// negative (CLI11 would otherwise wrap "-1" to 2^64 - 1), and an IR wavelength must lie in the
+// range the trace reader accepts.
+
+#include <CLI/CLI.hpp>
+
+namespace sw::cli {
+
+/// Adds the finite / non-negative checks to every numeric option of `cmd` (call after all
+/// add_option calls of a subcommand).
+void check_numeric_options(CLI::App* cmd);
+
+/// Validator of an IR wavelength option (nm): finite, in [100, 20000] nm (io/trace_reader.cpp).
+CLI::Validator ir_wavelength_nm_check();
+
+/// The same rule for wavelengths from files (batch config, manifest): "" or the violated rule.
+std::string ir_wavelength_nm_problem(double nm);
+
+}  // namespace sw::cli
