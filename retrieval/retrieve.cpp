@@ -466,8 +466,10 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   auto once = [&](const std::string& k, double v2) {
     if (!find_param(res.extra, k)) P(k, v2);
   };
-  once("preprocess.support_lo_eV", s.support_lo_eV);
-  once("preprocess.support_hi_eV", s.support_hi_eV);
+  if (s.support_hi_eV > s.support_lo_eV) {  // absent when no support was found
+    once("preprocess.support_lo_eV", s.support_lo_eV);
+    once("preprocess.support_hi_eV", s.support_hi_eV);
+  }
   once("preprocess.support_peak_sigma", s.support_peak_sigma);
 
   // Quality section (retrieval/quality.h).

@@ -1,7 +1,13 @@
 #pragma once
 // The streaking-retrieval pipeline behind `streakwright retrieve` (and batch): preprocess ->
 // engine (or a chain of engines) -> time-origin fix -> pulse and field metrics -> verdict ->
-// Poisson-bootstrap uncertainties -> AnalysisResult. Library code: no files are written here.
+// Poisson-bootstrap uncertainties -> quality checks (retrieval/quality.h) -> AnalysisResult.
+// Library code: no files are written here.
+//
+// The XUV metrics come from the in-support field (preprocess's energy support, retrieval/
+// support.h; the engines keep the spectrum zero outside it). The IR wavelength reported is the
+// sidecar's; the retrieved field's own period goes to ir.wavelength_nm_retrieved, with a
+// warning above 2 % and the check ir_period_vs_sidecar.
 //
 // Engine "auto": run the fast CMA engine (ptychographic); then estimate the CMA's own error
 // from the retrieved field: the phase the CMA neglects is (p - p0) * (I1(t) - I1_mid) across
