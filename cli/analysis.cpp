@@ -2,6 +2,7 @@
 
 #include <cctype>
 #include <chrono>
+#include <cstdio>
 #include <filesystem>
 #include <sstream>
 
@@ -201,6 +202,15 @@ ScanOutcome run_scan_or_throw(ScanJob job) {
                            InterruptScope::exit_code());
   if (!o.ok) throw Error(o.error_kind, o.message);
   swap.commit();
+  // An untrusted result is still a result (exit code unchanged, docs/cli.md), but the user is
+  // told, whatever --quiet says.
+  if (o.result.quality && !o.result.quality->trusted) {
+    std::string failed;
+    for (const auto& c : o.result.quality->checks)
+      if (!c.pass && c.guards_headline) failed += (failed.empty() ? "" : ", ") + c.name;
+    std::fprintf(stderr, "streakwright %s: warning: the result is not trusted (failed checks: %s); see quality in result.json\n",
+                 to_string(o.analysis_run), failed.c_str());
+  }
   return o;
 }
 

@@ -166,7 +166,8 @@ const std::vector<std::string>& summary_columns() {
       if (q.sigma) v.push_back(std::string(q.column) + "_sigma");
     }
     for (const char* s :
-         {"seconds", "converged", "reused", "acquired", "input", "input_hash", "report"})
+         {"seconds", "converged", "trusted", "failed_checks", "reused", "acquired", "input", "input_hash",
+          "report"})
       v.push_back(s);
     return v;
   }();
@@ -204,8 +205,14 @@ SummaryRow row_from_result(const std::string& scan, const AnalysisResult& r) {
     row.seconds = r.fit->seconds;
   }
   if (const auto s = param_number(r.extra, "batch.seconds")) row.seconds = s;
+  if (r.quality) {
+    row.trusted = r.quality->trusted;
+    for (const auto& f : r.quality->failed) row.failed_checks += (row.failed_checks.empty() ? "" : ";") + f;
+  }
   if (row.converged && !*row.converged)
     row.message = "the engine did not converge (best estimate written, converged: false)";
+  else if (row.trusted && !*row.trusted)
+    row.message = "not trusted: failed quality checks " + row.failed_checks;
   row.acquired = param_string(r.extra, "batch.acquired");
   row.input_hash = param_string(r.extra, "provenance.input_hash_fnv1a64");
   return row;
@@ -224,6 +231,8 @@ std::string summary_csv(const std::vector<SummaryRow>& rows) {
     }
     cells.push_back(r.seconds ? fmt_number(*r.seconds) : "");
     cells.push_back(r.converged ? (*r.converged ? "true" : "false") : "");
+    cells.push_back(r.trusted ? (*r.trusted ? "true" : "false") : "");
+    cells.push_back(r.failed_checks);
     cells.push_back(r.reused ? "true" : "false");
     for (const std::string* s : {&r.acquired, &r.input, &r.input_hash, &r.report})
       cells.push_back(*s);
@@ -260,6 +269,8 @@ std::string summary_json(const std::vector<SummaryRow>& rows,
     }
     if (r.seconds) s["seconds"] = *r.seconds;
     if (r.converged) s["converged"] = *r.converged;
+    if (r.trusted) s["trusted"] = *r.trusted;
+    if (!r.failed_checks.empty()) s["failed_checks"] = r.failed_checks;
     if (r.reused) s["reused"] = true;
     if (!r.acquired.empty()) s["acquired"] = r.acquired;
     if (!r.input.empty()) s["input"] = r.input;
@@ -313,6 +324,8 @@ std::vector<SummaryRow> rows_from_summary_json(const std::string& text, const st
     number("seconds", &r.seconds);
     if (s.contains("converged") && s["converged"].is_boolean())
       r.converged = s["converged"].get<bool>();
+    if (s.contains("trusted") && s["trusted"].is_boolean()) r.trusted = s["trusted"].get<bool>();
+    str("failed_checks", &r.failed_checks);
     if (s.contains("reused") && s["reused"].is_boolean()) r.reused = s["reused"].get<bool>();
     str("acquired", &r.acquired);
     str("input", &r.input);
@@ -383,14 +396,16 @@ void write_summary_outputs(const std::string& dir, const std::vector<SummaryRow>
   trend_figure(rows, hq[0], "XUV pulse duration across the batch", path("trend_fwhm.png"));
   trend_figure(rows, hq[2], "RABBITT attochirp across the batch", path("trend_attochirp.png"));
 
-  std::size_t ok = 0, reused = 0;
+  std::size_t ok = 0, reused = 0, untrusted = 0;
   for (const auto& r : rows) {
     ok += r.status == "ok" ? 1 : 0;
     reused += r.reused ? 1 : 0;
+    untrusted += r.trusted && !*r.trusted ? 1 : 0;
   }
   HtmlReport page(title);
   std::ostringstream counts;
   counts << rows.size() << " scans: " << ok << " ok, " << rows.size() - ok << " failed";
+  if (untrusted) counts << "; " << untrusted << " of the ok results not trusted (quality checks failed)";
   if (reused) counts << " (" << reused << " results reused by --resume)";
   counts << ". Tables: summary.csv and summary.json in this folder.";
   page.add_paragraph(counts.str());

@@ -33,6 +33,8 @@ struct SummaryRow {
   std::optional<double> trace_error;
   std::optional<double> seconds;  ///< wall time of the scan's analysis
   std::optional<bool> converged;  ///< fit.converged when the analysis has a fit
+  std::optional<bool> trusted;    ///< quality.trusted when the result has a quality section
+  std::string failed_checks;      ///< quality.failed joined with ';' ("" when none)
   std::string acquired;           ///< acquisition time from the sidecar ("acquired", ISO 8601)
   std::string input;              ///< sidecar path as given
   std::string input_hash;         ///< FNV-1a 64 of sidecar + data (provenance)

@@ -13,6 +13,7 @@
 #include "retrieval/classifier.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
+#include "retrieval/quality.h"
 #include "retrieval/retrieve.h"
 
 namespace sw::cli {
@@ -110,6 +111,8 @@ AnalysisResult run_classify_analysis(const Trace& trace, const ScanJob& job,
   }
   if (job.progress) job.progress("classify", "evidence");
   res.verdict = classify(trace, co, ret ? &ret->reconstruction : nullptr);
+  res.quality = classify_quality(trace.counts, trace.meta.background.value_or(0.0), *res.verdict,
+                                 ret && ret->result.quality ? &*ret->result.quality : nullptr, job.retrieve.quality);
 
   auto P = [&](const std::string& k, auto v) { res.extra.push_back({k, v}); };
   P("settings.ir_wavelength_nm", lambda);

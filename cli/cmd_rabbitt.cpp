@@ -13,6 +13,7 @@
 #include "retrieval/classifier.h"
 #include "retrieval/dipole.h"
 #include "retrieval/error.h"
+#include "retrieval/quality.h"
 #include "retrieval/rabbitt.h"
 #include "retrieval/train_burst.h"
 
@@ -75,6 +76,7 @@ AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job,
 
   if (job.progress) job.progress("rabbitt", "verdict");
   res.verdict = classify(trace, co, nullptr);
+  res.quality = rabbitt_quality(trace.counts, trace.meta.background.value_or(0.0), *res.rabbitt, job.retrieve.quality);
 
   res.extra = rb.params;
   auto P = [&](const std::string& k, auto v) { res.extra.push_back({k, v}); };

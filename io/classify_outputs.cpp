@@ -120,6 +120,7 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
       "streakwright classification: " +
       fs::path(trace.meta.source.empty() ? res.input : trace.meta.source).filename().string());
   rep.set_footer(std::string("streakwright ") + STREAKWRIGHT_VERSION);
+  if (res.quality) rep.add_quality(*res.quality);
   rep.add_paragraph(
       "Input: " + res.input + "\nIR wavelength used: " + fmt(ir_wavelength_nm, 6) + " nm (T/2 = " +
       fmt(0.5 *

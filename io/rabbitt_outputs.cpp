@@ -318,6 +318,7 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
       "streakwright RABBITT analysis: " +
       fs::path(trace.meta.source.empty() ? res.input : trace.meta.source).filename().string());
   rep.set_footer(std::string("streakwright ") + STREAKWRIGHT_VERSION);
+  if (res.quality) rep.add_quality(*res.quality);
   rep.add_paragraph("Input: " + res.input + "\nGas: " + rb.gas +
                     " (Ip = " + fmt(rb.ionization_energy_eV, 6) + " eV), IR " +
                     fmt(rb.ir_wavelength_nm, 6) + " nm (hbar omega = " + fmt(hw_eV, 5) + " eV)");

@@ -5,6 +5,7 @@
 #include <cstdio>
 #include <fstream>
 #include <iterator>
+#include <sstream>
 
 #include "io/plot_canvas.h"
 #include "retrieval/error.h"
@@ -42,6 +43,8 @@ figcaption { color: var(--muted); font-size: 14px; margin-top: 4px; }
 figcaption b { color: var(--ink); }
 pre { background: var(--band); border: 1px solid var(--rule); padding: 10px 12px; overflow-x: auto;
       font: 13px/1.35 "DejaVu Sans Mono", Menlo, Consolas, monospace; white-space: pre-wrap; }
+.banner { background: #fde2e2; border-left: 6px solid #c00000; color: #600000; padding: 6px 12px;
+  margin: 8px 0; }
 .warning { background: var(--warn); border-left: 4px solid #d08a00; padding: 6px 12px; margin: 8px 0;
            white-space: pre-line; }
 footer { margin-top: 36px; padding-top: 8px; padding-bottom: 28px; border-top: 1px solid var(--rule);
@@ -50,7 +53,7 @@ footer { margin-top: 36px; padding-top: 8px; padding-bottom: 28px; border-top: 1
   body { font-size: 11pt; }
   main, header, footer { max-width: none; padding: 0; }
   h2, h3 { page-break-after: avoid; break-after: avoid; }
-  table, pre, .warning { page-break-inside: avoid; break-inside: avoid; }
+  table, pre, .warning, .banner { page-break-inside: avoid; break-inside: avoid; }
 }
 )css";
 
@@ -205,6 +208,31 @@ void HtmlReport::add_paragraph(const std::string& text) {
 
 void HtmlReport::add_warning(const std::string& text) {
   blocks_.push_back("<div class=\"warning\"><b>Warning:</b> " + html_escape(text) + "</div>");
+}
+
+void HtmlReport::add_quality(const QualitySection& q) {
+  auto num = [](double v) {
+    std::ostringstream o;
+    o.precision(4);
+    o << v;
+    return o.str();
+  };
+  if (!q.trusted) {
+    std::string h = "<div class=\"banner\"><b>Not trusted.</b> The numbers below are written, but "
+                    "these quality checks failed:<ul>";
+    for (const auto& c : q.checks)
+      if (!c.pass && c.guards_headline)
+        h += "<li>" + html_escape(c.name) + ": " + html_escape(num(c.value)) + " (required " +
+             html_escape(c.rule + " " + num(c.limit)) + ") &mdash; " + html_escape(c.detail) + "</li>";
+    h += "</ul></div>";
+    blocks_.push_back(std::move(h));
+  }
+  std::vector<std::vector<std::string>> rows;
+  for (const auto& c : q.checks)
+    rows.push_back({c.name, num(c.value), c.rule + " " + num(c.limit), c.pass ? "pass" : "FAIL",
+                    c.guards_headline ? "yes" : "no (reported)"});
+  add_table({"check", "value", "required", "result", "guards a headline number"}, rows,
+            q.trusted ? "Quality checks: trusted" : "Quality checks: NOT trusted");
 }
 
 void HtmlReport::add_key_value_table(const std::string& title,

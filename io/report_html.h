@@ -15,6 +15,8 @@
 #include <string>
 #include <vector>
 
+#include "retrieval/result.h"
+
 namespace sw {
 
 /// One row of a result table: name, value, unit and optional 1-sigma uncertainty, all as
@@ -42,6 +44,11 @@ class HtmlReport {
   void add_paragraph(const std::string& text);
   /// A highlighted warning box (physicist-facing warnings of an analysis).
   void add_warning(const std::string& text);
+  /// The quality section (DESIGN.md "quality"): when it is not trusted, a red banner naming
+  /// every failed check that guards a headline number with its value and limit; then a table
+  /// of all checks (name, value, rule and limit, pass, guards a headline). Call it first, so
+  /// the banner sits under the title.
+  void add_quality(const QualitySection& quality);
   /// A captioned table of name | value ± sigma | unit.
   void add_key_value_table(const std::string& title, const std::vector<KeyValueRow>& rows);
   /// A general table; every row should have header.size() cells (short rows are padded).

@@ -236,6 +236,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   // Report.
   HtmlReport rep("streakwright retrieval: " + fs::path(trace.meta.source).filename().string());
   rep.set_footer(std::string("streakwright ") + STREAKWRIGHT_VERSION);
+  if (res.quality) rep.add_quality(*res.quality);
   rep.add_paragraph("Input: " + trace.meta.source + "\nEngine chain: " + [&] {
     std::string c;
     for (const auto& r : out.chain) c += (c.empty() ? "" : " -> ") + r.engine + " (" + r.model + ")";

@@ -262,6 +262,19 @@ CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, s
       unmeasured_.push_back({k, 0, 1});
   }
 
+  // Energy support of the signal (RetrievalProblem::support_*): the FFT bins of photon energy
+  // outside [lo + Ip, hi + Ip] -- measured energies outside the band and every unmeasured bin.
+  // A support that reaches an end of the window leaves that side open: the signal may go on
+  // beyond the window (a harmonic just outside still feeds a sideband inside).
+  if (p.support_hi_au > p.support_lo_au) {
+    const bool lo_open = p.support_lo_au <= p.energy_au.front() - 0.5 * dw + 1e-6 * dw;
+    const bool hi_open = p.support_hi_au >= p.energy_au.back() + 0.5 * dw - 1e-6 * dw;
+    for (std::size_t k = 0; k < n_; ++k) {
+      const double W = carrier_ + p.grid.omega_fft(k) - p.ionization_energy_au;
+      if ((W < p.support_lo_au && !lo_open) || (W > p.support_hi_au && !hi_open)) outside_support_.push_back(k);
+    }
+  }
+
   // Momentum nodes: equally spaced over the signal's momentum range (spec above).
   {
     const double p0 = p.central_momentum_au;
@@ -447,6 +460,16 @@ void CmaProblem::impose_spectrum(CVec& eps, CVec& work) const {
   for (auto& e : eps) e *= inv;
 }
 
+void CmaProblem::impose_support(CVec& eps, CVec& work) const {
+  if (outside_support_.empty()) return;
+  work.resize(n_);
+  fft_.time_to_freq(eps, work);
+  for (std::size_t k : outside_support_) work[k] = 0.0;
+  fft_.freq_to_time(work, eps);
+  const double inv = 1.0 / static_cast<double>(n_);
+  for (auto& e : eps) e *= inv;
+}
+
 namespace {
 
 // v[i] *= exp(i rate (t0 + i step)), by recurrence of unit rotations.
@@ -533,6 +556,7 @@ void CmaProblem::constrain(int k, CVec& eps, PhaseGate& gate, CVec& work,
     align_spectrum(eps, gate, work);
     if (s.spectrum == CmaSettings::Spectrum::kAmplitude) impose_spectrum(eps, work);
   }
+  impose_support(eps, work);
   if (s.gate_smoothing_interval > 0 && k % s.gate_smoothing_interval == 0) {
     gate.coverage(eps, cover);
     gate.smooth(cover);
@@ -561,6 +585,7 @@ void CmaProblem::constrain(int k, CVec& eps, std::vector<PhaseGate>& gates, CVec
                         d);
     if (s.spectrum == CmaSettings::Spectrum::kAmplitude) impose_spectrum(eps, work);
   }
+  impose_support(eps, work);
   // Every iteration, whatever gate_smoothing_interval says: band gates left to their own
   // updates for a few iterations drift apart (each band alone has its own frequency-shift
   // freedom), and the shared XUV then fits none of them (measured: G stalls at 9x the noise

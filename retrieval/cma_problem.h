@@ -198,6 +198,11 @@ class CmaProblem {
   /// With a reference whose centroid is not trusted (kEdgeRows, kDelayAverage), its shape is
   /// first moved (linear interpolation) onto the current XUV centroid.
   void impose_spectrum(CVec& eps, CVec& work) const;
+  /// Energy-support constraint: zeroes eps~ at photon energies outside
+  /// [support_lo_au + Ip, support_hi_au + Ip] (RetrievalProblem), including every FFT bin
+  /// outside the measured window; no-op when the problem has no support. Applied by
+  /// constrain() after every iteration.
+  void impose_support(CVec& eps, CVec& work) const;
   /// Frequency-shift ambiguity: moves eps~ by delta so that its centroid over the measured
   /// window equals the field-free spectrum's, and multiplies the gate by exp(i delta t), which
   /// leaves every |a(W, tau)| unchanged (psi_j gains only the phase exp(i delta tau_j)).
@@ -291,6 +296,7 @@ class CmaProblem {
   bool poisson_ = false;              // the Poisson projection (and no noise band)
   std::vector<double> meas_;          // nd x ne, I
   std::vector<double> spectrum_amp_;  // ne, sqrt(max(S_ff,0)) (empty: no spectrum)
+  std::vector<std::size_t> outside_support_;  // FFT indices zeroed by impose_support()
   std::vector<long> bin_;             // signed FFT bin of each energy
   std::vector<MomentumBand> bands_;
   std::vector<double> row_momentum_;  // ne, sqrt(2 W_j)

@@ -350,8 +350,11 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
         const long k = static_cast<long>(j) + d;
         if (k >= 0 && k < static_cast<long>(ne_)) dil[static_cast<std::size_t>(k)] = 1;
       }
+  // ... inside the signal's energy support, when the problem has one (retrieval/support.h).
+  const bool band = P.support_hi_au > P.support_lo_au;
   for (std::size_t j = 0; j < ne_; ++j)
-    if (dil[j]) support_.push_back(j);
+    if (dil[j] && (!band || (P.energy_au[j] >= P.support_lo_au && P.energy_au[j] <= P.support_hi_au)))
+      support_.push_back(j);
   if (support_.empty())
     throw input_error("full-model: no XUV spectral support (the reference spectrum is empty)");
   num_xuv_ = 2 * support_.size();

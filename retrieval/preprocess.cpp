@@ -25,6 +25,7 @@ std::string PreprocessOptions::validate() const {
   if (!(hot_pixel_sigma > 0)) s << "hot_pixel_sigma = " << hot_pixel_sigma << ": must be > 0";
   else if (!(hot_pixel_ratio > 1)) s << "hot_pixel_ratio = " << hot_pixel_ratio << ": must be > 1";
   else if (grid_size != 0 && grid_size < 64) s << "grid_size = " << grid_size << ": must be 0 (auto) or >= 64";
+  else if (auto e = support.validate(); !e.empty()) s << "support." << e;
   return s.str();
 }
 
@@ -63,6 +64,29 @@ Eigen::MatrixXd rebin(const Eigen::MatrixXd& counts, const std::vector<double>& 
     }
   }
   return out;
+}
+
+// The energy support of the signal (retrieval/support.h), recorded in the summary.
+EnergySupport energy_support(const Trace& trace, const PreprocessOptions& opt, const Eigen::MatrixXd& sig,
+                             const Eigen::MatrixXd& counts, const std::vector<double>& W, PreprocessSummary* s) {
+  SupportOptions so = opt.support;
+  if (so.max_gap_eV == 0.0)
+    so.max_gap_eV = 2.0 * units::au_to_eV(units::wavelength_nm_to_omega_au(trace.meta.ir_wavelength_nm));
+  const EnergySupport band = find_energy_support(sig, counts, W, so);
+  s->support_peak_sigma = band.peak_sigma;
+  s->support_fills_window = band.fills_axis;
+  s->support_core_share = band.found ? band.core_share : 1.0;
+  if (!band.found) {
+    s->warnings.push_back("no energy bin of the delay-integrated spectrum stands " + std::to_string(so.min_sigma) +
+                          " sigma above the Poisson noise: no signal found, the XUV spectrum is not confined");
+  } else {
+    s->support_lo_eV = units::au_to_eV(band.lo_au);
+    s->support_hi_eV = units::au_to_eV(band.hi_au);
+    if (band.fills_axis)
+      s->warnings.push_back("the signal's energy support fills the whole energy axis: signal and "
+                            "background are not separated (no signal-free bins)");
+  }
+  return band;
 }
 
 }  // namespace
@@ -167,6 +191,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   // 5 counts/bin under neon-150as with the Poisson projection; docs/validation.md).
   Eigen::MatrixXd var = counts.cwiseMax(1.0);
   Eigen::MatrixXd sig = (counts.array() - s.background_counts).matrix();
+  const EnergySupport band = energy_support(trace, opt, sig, counts, W, &s);
 
   // 4. counts per bin -> |a|^2 (divide by bin width and by p).
   for (Eigen::Index j = 0; j < ne; ++j) {
@@ -288,6 +313,10 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   pr.field_free_spectrum = ff;
   pr.reference = s.reference;
   pr.dipole = DipoleModel(opt.dipole, ip, s.central_momentum_au);
+  if (band.found) {
+    pr.support_lo_au = band.lo_au;
+    pr.support_hi_au = band.hi_au;
+  }
   if (s.bandwidth_ratio > 0.1)
     s.warnings.push_back("bandwidth/energy = " + std::to_string(s.bandwidth_ratio) +
                          ": one central momentum is questionable over this band (the ptychographic engine adds "

@@ -32,6 +32,7 @@
 #include <vector>
 
 #include "retrieval/engine.h"
+#include "retrieval/support.h"
 #include "retrieval/trace.h"
 
 namespace sw {
@@ -50,6 +51,8 @@ struct PreprocessOptions {
   std::size_t grid_size = 0;
   /// Dipole model used by the engines.
   DipoleKind dipole = DipoleKind::kConstant;
+  /// Energy support of the signal (retrieval/support.h); max_gap_eV = 0 -> 2 x IR photon energy.
+  SupportOptions support;
   std::string validate() const;
 };
 
@@ -76,6 +79,10 @@ struct PreprocessSummary {
   double peak_counts = 0.0;
   /// Energy support of the signal (kinetic energy, eV), copied to RetrievalProblem::support_*.
   double support_lo_eV = 0.0, support_hi_eV = 0.0;
+  double support_peak_sigma = 0.0;      ///< largest significance of the delay-integrated spectrum
+  bool support_fills_window = false;    ///< the support reached both ends of the energy axis
+  /// Width of the support before its margin over the energy axis (1 when none was found).
+  double support_core_share = 1.0;
   /// Analysis energy window actually used (kinetic energy, eV): the user's/sidecar's
   /// energy_window_eV or the band chosen around the reference line; 0, 0 = whole axis.
   double window_lo_eV = 0.0, window_hi_eV = 0.0;

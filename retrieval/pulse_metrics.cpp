@@ -99,7 +99,10 @@ double rms_width(const std::vector<double>& x, const std::vector<double>& y) {
   return std::sqrt(std::max(s2 / s0, 0.0));
 }
 
-double intensity_fwhm(const XuvField& f) {
+namespace {
+
+// FWHM of the main peak of the field's intensity on its own grid.
+double grid_fwhm(const XuvField& f) {
   const std::vector<double> I = f.intensity();
   const long n = static_cast<long>(I.size());
   if (n < 3) return 0.0;
@@ -112,13 +115,65 @@ double intensity_fwhm(const XuvField& f) {
   return fwhm_of_main_peak(x, rotated);
 }
 
+}  // namespace
+
+XuvField refine_time_grid(const XuvField& f, std::size_t factor) {
+  if (factor < 1) throw usage_error("refine_time_grid: factor = 0: must be >= 1");
+  if (factor == 1) return f;
+  const TimeGrid& g = f.grid();
+  const std::size_t n = g.size(), m = n * factor;
+  const CVec s = f.spectrum();
+  CVec padded(m, cdouble(0.0, 0.0));
+  // Centred index j (w = (j - n/2) dw) goes to j - n/2 + m/2 on the finer grid (same dw).
+  for (std::size_t j = 0; j < n; ++j) padded[j + m / 2 - n / 2] = s[j];
+  return XuvField::from_spectrum(TimeGrid(m, g.dt() / static_cast<double>(factor), g.t0()),
+                                 f.carrier_au(), padded);
+}
+
+double intensity_fwhm(const XuvField& f, int min_samples) {
+  const double coarse = grid_fwhm(f);
+  const double dt = f.grid().dt();
+  if (min_samples <= 0 || f.grid().size() < 3) return coarse;
+  // Width too narrow to measure on the grid (0) is treated as one sample.
+  const double width = coarse > 0.0 ? coarse : dt;
+  if (width >= min_samples * dt) return coarse;
+  std::size_t factor = 1;
+  const std::size_t max_points = std::size_t{1} << 20;
+  while (width * static_cast<double>(factor) < min_samples * dt && factor * f.grid().size() * 2 <= max_points &&
+         factor < 256)
+    factor *= 2;
+  return grid_fwhm(refine_time_grid(f, factor));
+}
+
 XuvField transform_limited(const XuvField& f) {
   CVec s = f.spectrum();
   for (auto& v : s) v = cdouble(std::abs(v), 0.0);
   return XuvField::from_spectrum(f.grid(), f.carrier_au(), s);
 }
 
-double transform_limited_fwhm(const XuvField& f) { return intensity_fwhm(transform_limited(f)); }
+double transform_limited_fwhm(const XuvField& f, int min_samples) {
+  return intensity_fwhm(transform_limited(f), min_samples);
+}
+
+XuvField within_band(const XuvField& f, double lo, double hi) {
+  CVec s = f.spectrum();
+  const std::vector<double> w = f.photon_energies_au();
+  for (std::size_t j = 0; j < s.size(); ++j)
+    if (w[j] < lo || w[j] > hi) s[j] = 0.0;
+  return XuvField::from_spectrum(f.grid(), f.carrier_au(), s);
+}
+
+double spectral_energy_outside(const XuvField& f, double lo, double hi) {
+  const CVec s = f.spectrum();
+  const std::vector<double> w = f.photon_energies_au();
+  double out = 0, all = 0;
+  for (std::size_t j = 0; j < s.size(); ++j) {
+    const double p = std::norm(s[j]);
+    all += p;
+    if (w[j] < lo || w[j] > hi) out += p;
+  }
+  return all > 0 ? out / all : 0.0;
+}
 
 SpectralPhaseFit fit_spectral_phase(const XuvField& f, double threshold, int order) {
   if (!(threshold > 0.0 && threshold < 1.0))

@@ -9,6 +9,7 @@
 #include "retrieval/classifier.h"
 #include "retrieval/error.h"
 #include "retrieval/pulse_metrics.h"
+#include "retrieval/quality.h"
 #include "retrieval/units.h"
 
 namespace sw {
@@ -27,6 +28,7 @@ std::string RetrieveOptions::validate() const {
   else if (!(cma_trace_error_max_ratio > 1)) s << "cma_trace_error_max_ratio = " << cma_trace_error_max_ratio << ": must be > 1";
   else if (!(max_seconds > 0)) s << "max_seconds = " << max_seconds << ": must be > 0";
   else if (auto e = preprocess.validate(); !e.empty()) s << "preprocess." << e;
+  else if (auto e2 = quality.validate(); !e2.empty()) s << "quality." << e2;
   return s.str();
 }
 
@@ -51,9 +53,11 @@ double envelope_fwhm(const std::vector<double>& x, double dt) {
   return fwhm(t, env);
 }
 
-PulseMetrics pulse_metrics(const Reconstruction& r, double ir_omega_au) {
+PulseMetrics pulse_metrics(const Reconstruction& r, double ir_omega_au, double lo, double hi) {
   PulseMetrics m;
-  const XuvField& x = r.xuv;
+  const bool band = hi > lo;
+  if (band) m.energy_outside_support = spectral_energy_outside(r.xuv, lo, hi);
+  const XuvField x = band ? within_band(r.xuv, lo, hi) : r.xuv;
   m.xuv.fwhm_as = units::au_to_as(intensity_fwhm(x));
   m.xuv.transform_limited_fwhm_as = units::au_to_as(transform_limited_fwhm(x));
   {
@@ -74,28 +78,34 @@ PulseMetrics pulse_metrics(const Reconstruction& r, double ir_omega_au) {
   if (ir.size() >= 8) {
     m.ir.peak_vector_potential_au = ir.peak_vector_potential();
     m.ir.peak_intensity_Wcm2 = units::peak_field_au_to_intensity(ir.peak_electric_field());
-    // Wavelength from the mean spacing of the zero crossings of A(t) within the envelope FWHM.
-    const auto& A = ir.vector_potential();
-    const double amax = ir.peak_vector_potential();
-    std::vector<double> zc;
-    for (std::size_t i = 1; i < A.size(); ++i)
-      if ((A[i - 1] < 0) != (A[i] < 0) &&
-          std::max(std::abs(A[i - 1]), std::abs(A[i])) > 0.0 * amax) {
-        const double f = A[i - 1] / (A[i - 1] - A[i]);
-        zc.push_back(ir.time(i - 1) + f * ir.dt());
+    // Wavelength from the peak of the power spectrum of E(t) = -dA/dt (zero-padded 8x, peak
+    // searched between 0.3 and 3 x the sidecar's IR frequency and refined by a parabola through log |E~|^2): unlike counting zero crossings of A(t), noise
+    // wiggles in a low-count retrieval do not shorten it.
+    {
+      const std::vector<double> Ef = ir.electric_field();
+      const std::size_t n0 = Ef.size();
+      const std::size_t nf = good_fft_size(8 * n0);
+      CVec in(nf, 0.0), spec(nf);
+      for (std::size_t i = 0; i < n0; ++i) in[i] = Ef[i];
+      Fft(nf).time_to_freq(in, spec);
+      // Search between 0.3 and 3 times the sidecar's frequency: wide enough to see a field
+      // locked onto 2 omega, narrow enough to ignore the noise of a low-count retrieval.
+      const double dwf = units::kTwoPi / (static_cast<double>(nf) * ir.dt());
+      const std::size_t k_lo = std::max<std::size_t>(1, static_cast<std::size_t>(0.3 * ir_omega_au / dwf));
+      const std::size_t k_hi = std::min<std::size_t>(nf / 2 - 1, static_cast<std::size_t>(3.0 * ir_omega_au / dwf) + 1);
+      std::size_t kmax = k_lo;
+      for (std::size_t k = k_lo; k <= k_hi; ++k)
+        if (std::norm(spec[k]) > std::norm(spec[kmax])) kmax = k;
+      double k = static_cast<double>(kmax);
+      if (kmax > 1 && kmax + 1 < nf / 2) {
+        const double a = std::log(std::norm(spec[kmax - 1]) + 1e-300), b0 = std::log(std::norm(spec[kmax]) + 1e-300),
+                     c = std::log(std::norm(spec[kmax + 1]) + 1e-300);
+        const double den = a - 2 * b0 + c;
+        if (den < 0) k += std::clamp(0.5 * (a - c) / den, -0.5, 0.5);
       }
-    // Keep crossings where the local amplitude is significant (within the field).
-    std::vector<double> good;
-    for (double t : zc) {
-      double loc = 0;
-      const std::size_t c = static_cast<std::size_t>(std::clamp((t - ir.t0()) / ir.dt(), 0.0, double(A.size() - 1)));
-      const std::size_t w = static_cast<std::size_t>(units::period_au(ir_omega_au) / ir.dt() / 2) + 1;
-      for (std::size_t k = c > w ? c - w : 0; k < std::min(A.size(), c + w); ++k) loc = std::max(loc, std::abs(A[k]));
-      if (loc > 0.3 * amax) good.push_back(t);
+      const double w = dwf * k;
+      if (w > 0 && ir.peak_vector_potential() > 0) m.ir.wavelength_nm = units::omega_au_to_wavelength_nm(w);
     }
-    if (good.size() >= 3)
-      m.ir.wavelength_nm = units::omega_au_to_wavelength_nm(
-          units::kPi / ((good.back() - good.front()) / static_cast<double>(good.size() - 1)));
     const std::vector<double> E = ir.electric_field();
     const double f = envelope_fwhm(E, ir.dt());
     if (f > 0) m.ir.fwhm_fs = units::au_to_fs(f);
@@ -225,7 +235,32 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   }
   out.reconstruction = out.chain.back();
   const Reconstruction& rec = out.reconstruction;
-  const PulseMetrics m = pulse_metrics(rec, pr.ir_omega_au);
+  // Metrics from the in-support field (photon energy = kinetic energy + Ip).
+  auto band_of = [](const RetrievalProblem& p) {
+    const bool has = p.support_hi_au > p.support_lo_au;
+    return std::pair{has ? p.support_lo_au + p.ionization_energy_au : 0.0,
+                     has ? p.support_hi_au + p.ionization_energy_au : 0.0};
+  };
+  const auto [band_lo, band_hi] = band_of(pr);
+  const PulseMetrics m = pulse_metrics(rec, pr.ir_omega_au, band_lo, band_hi);
+  // The CMA's own error for every CMA run of the chain (auto computed it for the first).
+  const double s_half = 0.5 * pr.grid.window();
+  auto cma_error_of = [&](const Reconstruction& c) {
+    const double Wc = units::eV_to_au(out.preprocess.centroid_energy_eV);
+    const double hw = 0.5 * units::eV_to_au(out.preprocess.bandwidth_fwhm_eV);
+    return cma_phase_error(c.ir, pr.central_momentum_au, Wc - hw, Wc + hw, pr.delay_au.front() - s_half,
+                           pr.delay_au.back() + s_half);
+  };
+  // The chain's runs whose fits are equally good (retrieve.h): their spread is the retrieval's
+  // own systematic uncertainty.
+  double best_g = rec.trace_error;
+  for (const auto& c : out.chain) best_g = std::min(best_g, c.trace_error);
+  std::vector<PulseMetrics> comparable;
+  for (const auto& c : out.chain) {
+    if (!(c.trace_error <= opt.quality.comparable_fit_ratio * best_g)) continue;
+    if (c.model != "full" && c.ir.size() >= 5 && cma_error_of(c) > opt.cma_phase_error_max_rad) continue;
+    comparable.push_back(pulse_metrics(c, pr.ir_omega_au, band_lo, band_hi));
+  }
 
   // Bootstrap: each replica repeats the whole analysis on a Poisson draw of the counts: the
   // CMA engine from its own initial guess with its own delay order, the full model from that
@@ -266,7 +301,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     } else {
       br = run_on(rp, final_engine, bo, stage);
     }
-    const PulseMetrics bm = pulse_metrics(br, pr.ir_omega_au);
+    const auto [rlo, rhi] = band_of(rp);
+    const PulseMetrics bm = pulse_metrics(br, pr.ir_omega_au, rlo, rhi);
     bf.push_back(*bm.xuv.fwhm_as);
     bg.push_back(*bm.xuv.gdd_as2);
     ba.push_back(bm.ir.peak_vector_potential_au.value_or(0.0));
@@ -280,44 +316,68 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   res.engine = opt.engine == "auto" ? final_engine : opt.engine;
   res.xuv = m.xuv;
   res.ir = m.ir;
-  res.ir->wavelength_nm = res.ir->wavelength_nm.value_or(trace.meta.ir_wavelength_nm);
+  // The IR wavelength is the sidecar's: the period of a retrieved A(t) is a model output (a
+  // train's field can lock onto 2 omega); the retrieved one is kept beside it and checked.
+  std::optional<double> ir_mismatch;
+  if (res.ir->wavelength_nm) {
+    const double lr = *res.ir->wavelength_nm;
+    res.extra.push_back({"ir.wavelength_nm_retrieved", lr});
+    ir_mismatch = std::abs(lr / trace.meta.ir_wavelength_nm - 1.0);
+    if (*ir_mismatch > 0.02) {
+      std::ostringstream w;
+      w.precision(4);
+      w << "the retrieved vector potential oscillates with a period of " << lr << " nm, the sidecar says "
+        << trace.meta.ir_wavelength_nm << " nm (" << 100 * *ir_mismatch << " % apart";
+      if (std::abs(lr / trace.meta.ir_wavelength_nm - 0.5) < 0.05) w << ": locked onto 2 omega";
+      w << "); the sidecar's wavelength is reported";
+      res.warnings.push_back(w.str());
+    }
+  }
+  res.ir->wavelength_nm = trace.meta.ir_wavelength_nm;
   // The verdict of every analysis comes from one place (retrieval/classifier.h): the scan's
   // spectral and delay evidence plus the reconstructed bursts.
   ClassifierOptions co;
   co.isolated_max_satellite_ratio = opt.isolated_max_satellite_ratio;
   co.satellite_max_ratio = opt.satellites_max_satellite_ratio;
   VerdictSection v = classify(trace, co, &rec);
+  // Systematic spread over the equally good runs of the chain (0 with one).
+  auto systematic = [&](auto get) {
+    std::vector<double> vals;
+    for (const auto& c : comparable)
+      if (const std::optional<double> x = get(c)) vals.push_back(*x);
+    return stddev(vals);
+  };
+  std::optional<double> fwhm_bias_over_sigma;
   if (opt.bootstrap >= 2) {
-    // Bootstrap bias correction (Efron and Tibshirani, An Introduction to the Bootstrap,
-    // Chapman & Hall 1993, ch. 10): bias = mean(replicas) - estimate; when |bias| exceeds a
-    // quarter of the standard error (their rule of thumb) and B >= 4 the headline becomes
-    // estimate - bias, and sigma includes the bias estimate's own spread, s sqrt(1 + 1/B).
-    // Noise lengthens a retrieved pulse (phase noise); the replicas, with the noise doubled,
-    // show that lengthening again. The satellite ratio stays uncorrected (the verdict uses it).
-    const double B = static_cast<double>(opt.bootstrap);
-    auto corrected = [&](const char* key, std::optional<double>& value, std::optional<double>& sigma,
-                         const std::vector<double>& reps) {
+    // retrieve.h: Student-scaled replica spread, bias corrected only when small against it,
+    // otherwise added to sigma; plus the chain's systematic spread.
+    const double t = student_one_sigma_factor(opt.bootstrap);
+    res.extra.push_back({"bootstrap.student_factor", t});
+    auto corrected = [&](const std::string& key, std::optional<double>& value, std::optional<double>& sigma,
+                         const std::vector<double>& reps, double sys) {
       if (!value) return;
-      const double sd = stddev(reps);
-      const double mean = std::accumulate(reps.begin(), reps.end(), 0.0) / B;
-      const double bias = mean - *value;
-      res.extra.push_back({std::string("bootstrap.") + key + "_uncorrected", *value});
-      res.extra.push_back({std::string("bootstrap.") + key + "_bias", bias});
-      // With fewer than 4 replicas the bias estimate is too noisy to apply (our choice).
-      const bool apply = B >= 4 && std::abs(bias) > 0.25 * sd;
-      res.extra.push_back({std::string("bootstrap.") + key + "_bias_corrected", apply});
-      if (apply) {
-        value = *value - bias;
-        sigma = sd * std::sqrt(1.0 + 1.0 / B);
-      } else {
-        sigma = sd;
+      const BootstrapEstimate be = bootstrap_estimate(*value, reps, sys);
+      res.extra.push_back({"bootstrap." + key + "_uncorrected", *value});
+      res.extra.push_back({"bootstrap." + key + "_bias", be.bias});
+      res.extra.push_back({"bootstrap." + key + "_bias_corrected", be.corrected});
+      res.extra.push_back({"bootstrap." + key + "_sigma_statistical", be.sigma_statistical});
+      res.extra.push_back({"bootstrap." + key + "_sigma_systematic", be.sigma_systematic});
+      res.extra.push_back({"bootstrap." + key + "_sigma_bias", be.sigma_bias});
+      value = be.value;
+      sigma = be.sigma;
+      if (key == "fwhm_as") {
+        res.extra.push_back({"xuv.fwhm_as_sigma_statistical", be.sigma_statistical});
+        res.extra.push_back({"xuv.fwhm_as_sigma_systematic", std::hypot(be.sigma_systematic, be.sigma_bias)});
+        if (be.spread > 0) fwhm_bias_over_sigma = std::abs(be.bias) / be.spread;
       }
     };
-    corrected("fwhm_as", res.xuv->fwhm_as, res.xuv->fwhm_as_sigma, bf);
-    corrected("gdd_as2", res.xuv->gdd_as2, res.xuv->gdd_as2_sigma, bg);
-    corrected("peak_vector_potential_au", res.ir->peak_vector_potential_au,
-              res.ir->peak_vector_potential_au_sigma, ba);
-    v.satellite_intensity_ratio_sigma = stddev(bs);
+    corrected("fwhm_as", res.xuv->fwhm_as, res.xuv->fwhm_as_sigma, bf,
+              systematic([](const PulseMetrics& c) { return c.xuv.fwhm_as; }));
+    corrected("gdd_as2", res.xuv->gdd_as2, res.xuv->gdd_as2_sigma, bg,
+              systematic([](const PulseMetrics& c) { return c.xuv.gdd_as2; }));
+    corrected("peak_vector_potential_au", res.ir->peak_vector_potential_au, res.ir->peak_vector_potential_au_sigma,
+              ba, systematic([](const PulseMetrics& c) { return c.ir.peak_vector_potential_au; }));
+    v.satellite_intensity_ratio_sigma = t * stddev(bs);
   } else {
     res.warnings.push_back("no bootstrap replicas (--bootstrap < 2): no uncertainties reported");
   }
@@ -401,6 +461,84 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   P("settings.isolated_max_satellite_ratio", opt.isolated_max_satellite_ratio);
   P("settings.satellites_max_satellite_ratio", opt.satellites_max_satellite_ratio);
   P("settings.dipole", std::string(to_string(opt.preprocess.dipole)));
+
+  // Energy support (recorded once, whoever writes the preprocess block).
+  auto once = [&](const std::string& k, double v2) {
+    if (!find_param(res.extra, k)) P(k, v2);
+  };
+  if (s.support_hi_eV > s.support_lo_eV) {  // absent when no support was found
+    once("preprocess.support_lo_eV", s.support_lo_eV);
+    once("preprocess.support_hi_eV", s.support_hi_eV);
+  }
+  once("preprocess.support_peak_sigma", s.support_peak_sigma);
+
+  // Quality section (retrieval/quality.h).
+  QualitySection q;
+  add_signal_checks(q, trace.counts, s.background_counts, opt.quality);
+  RetrievalEvidence e;
+  e.trace_error = rec.trace_error;
+  e.noise_floor_trace_error = rec.noise_floor_trace_error;
+  e.fwhm_as = res.xuv->fwhm_as.value_or(0.0);
+  e.transform_limited_fwhm_as = res.xuv->transform_limited_fwhm_as.value_or(0.0);
+  {
+    const auto ne = pr.intensity.cols();
+    Eigen::Index lo = 0, hi = ne - 1;
+    if (pr.support_hi_au > pr.support_lo_au) {
+      while (lo < ne - 1 && pr.energy_au[static_cast<std::size_t>(lo)] < pr.support_lo_au) ++lo;
+      while (hi > lo && pr.energy_au[static_cast<std::size_t>(hi)] > pr.support_hi_au) --hi;
+    }
+    e.energy_support_share = s.support_core_share;
+    if (rec.retrieved.rows() == pr.intensity.rows() && rec.retrieved.cols() == ne && pr.variance.size() == pr.intensity.size()) {
+      double noise = 0;
+      const Eigen::VectorXd meas = pr.intensity.colwise().sum().transpose();
+      const Eigen::VectorXd model = rec.retrieved.colwise().sum().transpose();
+      const Eigen::VectorXd var = pr.variance.colwise().sum().transpose();
+      const double mis = spectrum_mismatch(meas, model, var, lo, hi, &noise);
+      e.spectrum_mismatch = mis;
+      e.spectrum_mismatch_noise = noise;
+    }
+  }
+  e.energy_outside_support = m.energy_outside_support;
+  e.fwhm_as_sigma = res.xuv->fwhm_as_sigma;
+  e.peak_vector_potential_au = res.ir->peak_vector_potential_au;
+  e.peak_vector_potential_au_sigma = res.ir->peak_vector_potential_au_sigma;
+  if (rec.model != "full" && rec.ir.size() >= 5) {
+    e.cma_phase_error_rad = opt.engine == "auto" && out.chain.size() == 1 ? out.cma_phase_error_rad : cma_error_of(rec);
+    e.cma_phase_error_max_rad = opt.cma_phase_error_max_rad;
+    e.momentum_nodes = rec.model == "banded-cma";
+  }
+  {
+    // Two full-model starts (auto, when the CMA stalled), and the CMA run against the result.
+    std::vector<const Reconstruction*> full;
+    const Reconstruction* cma = nullptr;
+    for (const auto& c : out.chain) {
+      if (c.model == "full") full.push_back(&c);
+      else if (!cma) cma = &c;
+    }
+    const double f_final = res.xuv->fwhm_as.value_or(0.0);
+    auto fwhm_of = [&](const Reconstruction& c) { return *pulse_metrics(c, pr.ir_omega_au, band_lo, band_hi).xuv.fwhm_as; };
+    if (full.size() >= 2 && f_final > 0) {
+      const Reconstruction& a = *full[full.size() - 2];
+      const Reconstruction& b = *full.back();
+      e.start_disagreement = std::abs(fwhm_of(a) - fwhm_of(b)) / f_final;
+      const double g_lo = std::min(a.trace_error, b.trace_error), g_hi = std::max(a.trace_error, b.trace_error);
+      e.starts_comparable = g_hi <= opt.quality.comparable_fit_ratio * g_lo;
+    }
+    if (cma && rec.model == "full" && f_final > 0) e.engine_disagreement = std::abs(fwhm_of(*cma) - f_final) / f_final;
+  }
+  e.bias_over_sigma = fwhm_bias_over_sigma;
+  if (rec.ir.size() >= 8 && rec.ir.peak_vector_potential() > 0)
+    e.ir_field_ratio = rec.ir.peak_electric_field() / (pr.ir_omega_au * rec.ir.peak_vector_potential());
+  e.ir_period_mismatch = ir_mismatch;
+  add_retrieval_checks(q, e, opt.quality);
+  res.quality = q;
+  if (!q.trusted) {
+    std::string failed;
+    for (const auto& c : q.checks)
+      if (!c.pass && c.guards_headline) failed += (failed.empty() ? "" : ", ") + c.name;
+    res.warnings.push_back("the result is not trusted: failed quality checks " + failed +
+                           " (the numbers are written; see quality in result.json)");
+  }
   return out;
 }
 

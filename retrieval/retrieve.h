@@ -1,7 +1,13 @@
 #pragma once
 // The streaking-retrieval pipeline behind `streakwright retrieve` (and batch): preprocess ->
 // engine (or a chain of engines) -> time-origin fix -> pulse and field metrics -> verdict ->
-// Poisson-bootstrap uncertainties -> AnalysisResult. Library code: no files are written here.
+// Poisson-bootstrap uncertainties -> quality checks (retrieval/quality.h) -> AnalysisResult.
+// Library code: no files are written here.
+//
+// The XUV metrics come from the in-support field (preprocess's energy support, retrieval/
+// support.h; the engines keep the spectrum zero outside it). The IR wavelength reported is the
+// sidecar's; the retrieved field's own period goes to ir.wavelength_nm_retrieved, with a
+// warning above 2 % and the check ir_period_vs_sidecar.
 //
 // Engine "auto": run the fast CMA engine (ptychographic); then estimate the CMA's own error
 // from the retrieved field: the phase the CMA neglects is (p - p0) * (I1(t) - I1_mid) across
@@ -19,8 +25,22 @@
 // with Poisson resampling of the counts in place of resampling data points): each replica is
 // a Poisson draw of the measured counts, preprocessed identically and analysed by the same
 // engine chain from the same kind of start (never warm-started from the final estimate, which
-// under-states the spread); sigma = sample standard deviation over replicas, with the
-// bootstrap bias correction of Efron and Tibshirani (1993) when the replicas show a bias.
+// under-states the spread). Per headline number (FWHM, GDD, A0):
+//   s_stat = t_B x sample standard deviation of the B replicas, t_B the Student factor of the
+//            central 68.27 % interval with B - 1 degrees of freedom (1.20 for B = 4, 1.08 for
+//            B = 8; Student, Biometrika 6, 1 (1908)): a few replicas under-estimate the spread;
+//   bias   = mean(replicas) - estimate (Efron and Tibshirani, An Introduction to the
+//            Bootstrap, Chapman & Hall 1993, ch. 10). Corrected (value - bias, sigma_stat =
+//            s_stat sqrt(1 + 1/B)) only when 0.25 s_stat < |bias| <= s_stat (small against
+//            sigma: the correction cannot move the value by more than its sigma); above s_stat
+//            the value stays and the bias enters sigma instead (the replicas, with the noise
+//            doubled, then show an effect that may be systematic, not statistical);
+//   s_sys  = the retrieval's own spread: the sample standard deviation of the number over the
+//            chain's runs whose fits are equally good (G within QualityOptions::
+//            comparable_fit_ratio of the best; a CMA run only when its phase error is within
+//            the limit), 0 with one such run;
+//   sigma  = sqrt(s_stat^2 + s_sys^2 + (uncorrected bias)^2), each part written under
+//            bootstrap.* (and xuv.fwhm_as_sigma_statistical / _systematic).
 
 #include <array>
 #include <functional>
@@ -29,6 +49,7 @@
 
 #include "retrieval/engine.h"
 #include "retrieval/preprocess.h"
+#include "retrieval/quality.h"
 #include "retrieval/result.h"
 #include "retrieval/trace.h"
 
@@ -57,6 +78,8 @@ struct RetrieveOptions {
   /// Wall-time budget for the whole analysis (s).
   double max_seconds = 900.0;
   PreprocessOptions preprocess;
+  /// Limits of the quality checks (retrieval/quality.h).
+  QualityOptions quality;
   std::vector<std::pair<std::string, std::string>> engine_extra;
   std::string validate() const;
 };
@@ -82,15 +105,23 @@ struct RetrieveOutput {
 RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& options,
                         const RetrieveProgress& progress = {});
 
-/// Headline metrics of a reconstruction (used by retrieve and by tests).
+/// Headline metrics of a reconstruction (used by retrieve and by tests). With a support band
+/// (photon energies lo < hi, a.u.) every XUV metric comes from the in-support field
+/// (within_band): noise outside the signal's band adds neither width nor a pedestal.
+/// FWHM and transform limit are measured with >= 16 samples per FWHM (intensity_fwhm).
+/// ir.wavelength_nm is the period of the retrieved A(t) (mean spacing of its zero crossings
+/// where |A| > 0.3 A0); retrieve() reports the sidecar's wavelength and keeps this one as
+/// ir.wavelength_nm_retrieved.
 struct PulseMetrics {
   XuvSection xuv;
   IrSection ir;
   double satellite_intensity_ratio = 0.0;
   double main_burst_energy_fraction = 1.0;
   int comparable_bursts = 1;
+  double energy_outside_support = 0.0;  ///< share of |E~|^2 outside the band (0 without one)
 };
-PulseMetrics pulse_metrics(const Reconstruction& r, double ir_omega_au);
+PulseMetrics pulse_metrics(const Reconstruction& r, double ir_omega_au, double support_lo_photon_au = 0.0,
+                           double support_hi_photon_au = 0.0);
 
 /// Moves the XUV so its intensity centroid is at s = 0 and the IR with it (the common time
 /// shift ambiguity), so that tau = 0 means the XUV centroid coincides with IR time 0.
