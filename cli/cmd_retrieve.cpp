@@ -8,6 +8,7 @@
 #include "cli/analysis.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
+#include "retrieval/lines.h"
 #include "retrieval/retrieve.h"
 #include "retrieval/dipole.h"
 
@@ -19,6 +20,7 @@ struct RetrieveArgs {
   std::string scan, out;
   RetrieveOptions options;
   std::string dipole = "constant";
+  std::string energy_window;  ///< --energy-window LO:HI (eV), "" = none
   bool quiet = false;
 };
 
@@ -43,6 +45,9 @@ std::string summary_line(const AnalysisResult& r) {
 }
 
 int run_retrieve(RetrieveArgs& a) {
+  if (!a.energy_window.empty())
+    parse_energy_window(a.energy_window, "--energy-window", &a.options.preprocess.energy_window_lo_eV,
+                        &a.options.preprocess.energy_window_hi_eV);
   if (!parse_dipole_kind(a.dipole, &a.options.preprocess.dipole))
     throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
   if (a.options.engine != "auto") (void)make_engine(a.options.engine);  // unknown names listed
@@ -95,7 +100,11 @@ void add_retrieve_command(CLI::App& app) {
                   "verdict: largest satellite/main intensity for 'isolated' (common practice)")->capture_default_str();
   cmd->add_option("--satellites-max", a->options.satellites_max_satellite_ratio,
                   "verdict: upper limit for 'isolated_with_satellites'")->capture_default_str();
-  cmd->add_flag("--despike", a->options.preprocess.remove_hot_pixels, "replace isolated hot pixels (no smoothing)");
+  cmd->add_flag("--despike,!--no-despike", a->options.preprocess.remove_hot_pixels,
+                "replace isolated hot pixels (no smoothing; on by default)");
+  cmd->add_option("--energy-window", a->energy_window,
+                  "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV "
+                  "and the automatic window around the strongest line");
   cmd->add_flag("--quiet,-q", a->quiet, "no progress on stderr");
   cmd->callback([a] { exit_code() = guarded("retrieve", [&] { return run_retrieve(*a); }); });
 }
