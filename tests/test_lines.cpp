@@ -4,6 +4,8 @@
 #include <cmath>
 #include <random>
 
+#include "io/trace_reader.h"
+#include "retrieval/error.h"
 #include "retrieval/gas.h"
 #include "retrieval/lines.h"
 #include "retrieval/preprocess.h"
@@ -11,6 +13,7 @@
 #include "retrieval/units.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/test_support.h"
 
 using namespace sw;
 
@@ -201,4 +204,62 @@ TEST_CASE("neon with a 2s line: the 2p pulse is retrieved within 8 %", "[lines][
   INFO("retrieved " << *out.result.xuv->fwhm_as << " as, truth " << s.outer_fwhm_as << " as");
   CHECK(std::abs(*out.result.xuv->fwhm_as / s.outer_fwhm_as - 1.0) < 0.08);
   CHECK(out.result.lines.size() == 2);
+}
+
+TEST_CASE("sidecar keys energy_window_eV, saturation_counts and lines are read and validated", "[lines][reader]") {
+  // The trace contract of DESIGN.md: energy_window_eV = [lo, hi] (finite, lo < hi), lines
+  // with "auto" or a number, saturation_counts > 0; bad values name the field.
+  sw::test::TempDir dir;
+  std::string csv;
+  for (int r = 0; r < 4; ++r) {
+    for (int c = 0; c < 10; ++c) {
+      if (c) csv += ',';
+      csv += std::to_string(10 + r + c);
+    }
+    csv += "\n";
+  }
+  sw::test::write_text(dir / "s.csv", csv);
+  auto sidecar = [&](const std::string& more) {
+    sw::test::write_text(dir / "s.json", R"({"streakwright": 1, "image": "s.csv", "layout": "delay_rows",
+      "energy_eV": {"first": 40, "step": 1, "count": 10}, "delay_fs": {"first": 0, "step": 0.1, "count": 4},
+      "gas": "Ne", "ir_wavelength_nm": 800)" + more + "}");
+    return dir / "s.json";
+  };
+  const Trace t = read_trace(sidecar(R"(, "energy_window_eV": [42.5, 47], "saturation_counts": 4000,
+      "lines": [{"name": "2p", "ionization_energy_eV": "auto"}, {"name": "2s", "ionization_energy_eV": 48.47,
+                 "relative_strength": 0.3}, {"name": "3p", "gas": "Ar", "ionization_energy_eV": "auto"}])"));
+  REQUIRE(t.meta.energy_window_eV.size() == 2);
+  CHECK(t.meta.energy_window_eV[0] == 42.5);
+  CHECK(t.meta.energy_window_eV[1] == 47.0);
+  CHECK(t.meta.saturation_counts == 4000.0);
+  REQUIRE(t.meta.lines.size() == 3);
+  CHECK_FALSE(t.meta.lines[0].ionization_energy_eV);
+  CHECK(t.meta.lines[1].ionization_energy_eV == 48.47);
+  CHECK(t.meta.lines[1].relative_strength == 0.3);
+  CHECK(t.meta.lines[2].gas == "Ar");
+  CHECK(t.meta.extra_json.count("lines") == 0);  // contract keys are not echoed as unknown
+  auto fails = [&](const std::string& more, const std::string& field) {
+    try {
+      (void)read_trace(sidecar(more));
+      FAIL("no error for " << more);
+    } catch (const Error& e) {
+      CHECK_THAT(std::string(e.what()), Catch::Contains(field));
+    }
+  };
+  fails(R"(, "energy_window_eV": [50, 40])", "energy_window_eV");
+  fails(R"(, "energy_window_eV": [40])", "energy_window_eV");
+  fails(R"(, "energy_window_eV": [40, "x"])", "energy_window_eV[1]");
+  fails(R"(, "saturation_counts": -1)", "saturation_counts");
+  fails(R"(, "lines": [{"name": "2s"}])", "lines[0].ionization_energy_eV");
+  fails(R"(, "lines": [{"name": "2s", "ionization_energy_eV": "guess"}])", "lines[0].ionization_energy_eV");
+  fails(R"(, "lines": {"name": "2s"})", "lines");
+}
+
+TEST_CASE("--energy-window LO:HI is parsed and checked", "[lines]") {
+  double lo = 0, hi = 0;
+  parse_energy_window("60:110.5", "--energy-window", &lo, &hi);
+  CHECK(lo == 60.0);
+  CHECK(hi == 110.5);
+  for (const char* bad : {"60", "110:60", "a:b", "60:110x", ":", "nan:5"})
+    CHECK_THROWS_WITH(parse_energy_window(bad, "--energy-window", &lo, &hi), Catch::Contains("--energy-window"));
 }

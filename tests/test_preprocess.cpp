@@ -4,6 +4,7 @@
 #include <cmath>
 #include <random>
 
+#include "retrieval/cma_problem.h"
 #include "retrieval/preprocess.h"
 #include "retrieval/retrieve.h"
 #include "retrieval/units.h"
@@ -149,4 +150,34 @@ TEST_CASE("the engines ignore weight-0 elements", "[preprocess][engine]") {
   // Noise floor over weighted elements only: sqrt(sum var / (N max^2)) with N = 3, max = 3.
   Eigen::MatrixXd var = Eigen::MatrixXd::Constant(2, 2, 1.0);
   CHECK(noise_floor_trace_error(meas, var, &w) == Approx(std::sqrt(3.0 / (3.0 * 9.0))));
+}
+
+TEST_CASE("the CMA projection keeps the model at weight-0 bins", "[preprocess][engine]") {
+  // RetrievalProblem::weight = 0 means "not data" (engine.h): projecting a delay row whose
+  // bins all have weight 0 must leave its exit-wave spectrum unchanged; with weight 1 it moves.
+  const synthetic::SyntheticScan sc = synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 2);
+  RetrievalProblem pr = preprocess(sc.trace, PreprocessOptions{}, nullptr);
+  pr.weight = Eigen::MatrixXd::Ones(pr.intensity.rows(), pr.intensity.cols());
+  const std::size_t row = 60;
+  pr.weight.row(static_cast<Eigen::Index>(row)).setZero();
+  for (bool poisson : {false, true}) {
+    CmaSettings set;
+    set.poisson_projection = poisson;
+    const CmaProblem cma(pr, set, "test");
+    std::mt19937_64 rng(3);
+    std::normal_distribution<double> g;
+    CVec spec(cma.samples());
+    for (auto& z : spec) z = cdouble(g(rng), g(rng));
+    std::vector<double> scratch(cma.scratch_size());
+    CVec a = spec, b = spec;
+    ErrorSums sums;
+    cma.project(row, a.data(), sums, scratch.data());
+    double moved = 0;
+    for (std::size_t k = 0; k < a.size(); ++k) moved += std::abs(a[k] - spec[k]);
+    CHECK(moved == 0.0);
+    cma.project(row - 1, b.data(), sums, scratch.data());
+    moved = 0;
+    for (std::size_t k = 0; k < b.size(); ++k) moved += std::abs(b[k] - spec[k]);
+    CHECK(moved > 0.0);
+  }
 }
