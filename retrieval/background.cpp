@@ -67,8 +67,9 @@ std::vector<bool> background_bins(const Eigen::MatrixXd& counts, const Backgroun
       D[static_cast<std::size_t>(q)] = m > 0 ? v / m : 1.0;
     }
     std::vector<double> sorted = D;
-    std::nth_element(sorted.begin(), sorted.begin() + static_cast<long>(sorted.size() / 4), sorted.end());
-    const double base = std::max(1.0, sorted[sorted.size() / 4]);
+    const auto q10 = static_cast<long>(sorted.size() / 10);
+    std::nth_element(sorted.begin(), sorted.begin() + q10, sorted.end());
+    const double base = std::max(1.0, sorted[static_cast<std::size_t>(q10)]);
     const double limit = base + o.dispersion_sigma * std::sqrt(2.0 / static_cast<double>(nd - 1));
     for (Eigen::Index q = 0; q < ng; ++q) varies[static_cast<std::size_t>(q)] = D[static_cast<std::size_t>(q)] > limit;
   }

@@ -17,8 +17,8 @@
 // Which bins are background. A bin j belongs to the background when (1) the counts of its
 // delay rows are consistent with one constant: the dispersion index D = var_i / mean_i of the
 // rows' counts (summed over `group_bins` neighbouring bins) is within `dispersion_sigma`
-// standard deviations sqrt(2 / (rows - 1)) of its lowest quartile over the axis (1 for pure
-// Poisson counts; the quartile absorbs extra readout variance), and (2) it lies outside the
+// standard deviations sqrt(2 / (rows - 1)) of its 10 % quantile over the axis (1 for pure
+// Poisson counts; the quantile absorbs extra readout variance), and (2) it lies outside the
 // signal envelope: the first to last group that fails (1) (scans with fewer than 4 rows: whose
 // delay-averaged counts exceed `signal_fraction` of the maximum), widened by `envelope_margin`
 // of its width on each side (streaked wings below the noise, which (1) cannot see).
@@ -49,8 +49,10 @@ struct BackgroundOptions {
   /// Scans with fewer than 4 delay rows: delay-averaged counts above this fraction of their
   /// maximum are signal (in (0, 1)).
   double signal_fraction = 0.02;
-  /// Widening of the signal envelope on each side, as a fraction of its width (>= 0).
-  double envelope_margin = 0.25;
+  /// Widening of the signal envelope on each side, as a fraction of its width (>= 0). The
+  /// dispersion test sees a streaked wing down to a variance of ~0.6 background counts, so
+  /// a small margin covers the Gaussian tails beyond it (our choice).
+  double envelope_margin = 0.1;
   /// Smallest share of the energy bins that must be background for a fit (in (0, 1)).
   double min_background_share = 0.05;
   /// Fit the low-energy exponential tail a exp(-W/w) (kept only if significant).
