@@ -274,6 +274,8 @@ std::string batch_options_string(const BatchOptions& o) {
     << ";satellites_max=" << num(r.satellites_max_satellite_ratio) << ";base_seed=" << r.seed
     << ";threads=" << engine_threads(o);
   for (const auto& [k, v] : r.engine_extra) s << ";engine." << k << "=" << v;
+  if (r.preprocess.energy_window_lo_eV != 0 || r.preprocess.energy_window_hi_eV != 0)
+    s << ";energy_window=" << num(r.preprocess.energy_window_lo_eV) << ":" << num(r.preprocess.energy_window_hi_eV);
   return s.str();
 }
 
@@ -292,6 +294,8 @@ std::string scan_options_string(const BatchScan& scan, const BatchOptions& o) {
     << ";satellites_max=" << num(r.satellites_max_satellite_ratio)
     << ";seed=" << scan_seed(r.seed, scan.name) << ";threads=" << engine_threads(o);
   for (const auto& [k, v] : r.engine_extra) s << ";engine." << k << "=" << v;
+  if (r.preprocess.energy_window_lo_eV != 0 || r.preprocess.energy_window_hi_eV != 0)
+    s << ";energy_window=" << num(r.preprocess.energy_window_lo_eV) << ":" << num(r.preprocess.energy_window_hi_eV);
   s << ";override.gas=" << e.overrides.gas.value_or("") << ";override.ir_wavelength_nm="
     << (e.overrides.ir_wavelength_nm ? num(*e.overrides.ir_wavelength_nm) : "")
     << ";override.kind=" << e.overrides.kind.value_or("");

@@ -18,6 +18,7 @@
 #include "retrieval/dipole.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
+#include "retrieval/lines.h"
 #include "retrieval/trace.h"
 
 namespace sw::cli {
@@ -27,6 +28,7 @@ namespace {
 struct BatchArgs {
   std::vector<std::string> inputs;
   std::string out, shard = "1/1", analysis = "auto", config, dipole = "constant";
+  std::string energy_window;  ///< --energy-window LO:HI (eV), "" = none
   BatchOptions options;
   bool dry_run = false;
   bool allow_outside_data = false;
@@ -84,7 +86,8 @@ void apply_config(BatchArgs& a) {
     static const std::vector<std::string> known = {
         "analysis",        "engine",       "iterations",     "bootstrap",   "seed",
         "threads",         "jobs",         "dipole",         "despike",     "atomic_correction",
-        "cma_phase_limit", "cma_fit_limit", "isolated_max", "satellites_max", "max_seconds", "resume"};
+        "cma_phase_limit", "cma_fit_limit", "isolated_max", "satellites_max", "max_seconds", "resume",
+        "energy_window"};
     if (std::find(known.begin(), known.end(), k) == known.end()) {
       std::string list = "gas, ir_wavelength_nm, kind";
       for (const auto& n : known) list += ", " + n;
@@ -109,6 +112,8 @@ void apply_config(BatchArgs& a) {
       a.options.jobs = static_cast<int>(get_int(k, v));
     else if (k == "dipole")
       a.dipole = get_string(k, v);
+    else if (k == "energy_window")
+      a.energy_window = get_string(k, v);
     else if (k == "despike") {
       if (!v.is_boolean()) throw usage_error(where(k) + ": expected true or false");
       r.preprocess.remove_hot_pixels = v.get<bool>();
@@ -139,6 +144,9 @@ int run_batch_command(BatchArgs& a) {
   if (!parse_analysis_kind(a.analysis, &o.analysis))
     throw usage_error("--analysis " + a.analysis +
                       ": expected auto, retrieve, rabbitt or classify");
+  if (!a.energy_window.empty())
+    parse_energy_window(a.energy_window, "--energy-window", &o.retrieve.preprocess.energy_window_lo_eV,
+                        &o.retrieve.preprocess.energy_window_hi_eV);
   if (!parse_dipole_kind(a.dipole, &o.retrieve.preprocess.dipole))
     throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
   if (o.retrieve.engine != "auto") (void)make_engine(o.retrieve.engine);  // lists the names
@@ -258,7 +266,7 @@ void add_batch_command(CLI::App& app) {
       "index.html. A failed scan never stops the batch.\n"
       "--config FILE (JSON or YAML): the options below as keys (analysis, engine, iterations,\n"
       "bootstrap, seed, threads, jobs, dipole, despike, atomic_correction, cma_phase_limit, cma_fit_limit,\n"
-      "isolated_max, satellites_max, max_seconds, resume), plus gas, ir_wavelength_nm and kind\n"
+      "isolated_max, satellites_max, max_seconds, resume, energy_window \"LO:HI\"), plus gas, ir_wavelength_nm and kind\n"
       "applied to every scan (manifest rows win); command-line options win over the file.\n"
       "Seeds: each scan's seed derives from --seed and its name, so results do not depend on\n"
       "--jobs or --shard. Ctrl-C: no new scans start, running ones finish (twice: abandoned).\n"
@@ -295,8 +303,10 @@ void add_batch_command(CLI::App& app) {
                           ->capture_default_str();
   a->cli["dipole"] = cmd->add_option("--dipole", a->dipole, "retrieve: constant | hydrogenic")
                          ->capture_default_str();
-  a->cli["despike"] = cmd->add_flag("--despike", a->options.retrieve.preprocess.remove_hot_pixels,
-                                    "retrieve: replace isolated hot pixels");
+  a->cli["despike"] = cmd->add_flag("--despike,!--no-despike", a->options.retrieve.preprocess.remove_hot_pixels,
+                                    "retrieve: replace isolated hot pixels (on by default)");
+  a->cli["energy_window"] = cmd->add_option("--energy-window", a->energy_window,
+                                            "analyse only photoelectron energies LO:HI (eV) in every scan");
   a->cli["atomic_correction"] =
       cmd->add_option("--atomic-correction", a->options.atomic_correction, "rabbitt: auto | none")
           ->capture_default_str();

@@ -14,6 +14,7 @@
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
 #include "retrieval/quality.h"
+#include "retrieval/lines.h"
 #include "retrieval/retrieve.h"
 
 namespace sw::cli {
@@ -72,8 +73,11 @@ AnalysisKind auto_analysis(const Trace& t) {
   }
 }
 
-AnalysisResult run_classify_analysis(const Trace& trace, const ScanJob& job,
+AnalysisResult run_classify_analysis(const Trace& scan, const ScanJob& job,
                                      const std::vector<Param>& prov) {
+  // An explicit window (option, else sidecar) applies to the evidence and to --retrieve alike.
+  const PreprocessOptions& pp = job.retrieve.preprocess;
+  const Trace trace = apply_energy_window(scan, pp.energy_window_lo_eV, pp.energy_window_hi_eV, nullptr);
   ClassifierOptions co = classifier_options_for(job);
   if (const std::string e = co.validate(); !e.empty())
     throw usage_error("classify thresholds: " + e);
@@ -140,6 +144,7 @@ struct ClassifyArgs {
   int iterations = 0;
   RetrieveOptions retrieve_options;
   ClassifierOptions options;
+  std::string energy_window;
 };
 
 int run_classify(ClassifyArgs& a) {
@@ -150,6 +155,9 @@ int run_classify(ClassifyArgs& a) {
   job.classify_retrieve = a.retrieve;
   job.classifier = a.options;
   job.retrieve = a.retrieve_options;
+  if (!a.energy_window.empty())
+    parse_energy_window(a.energy_window, "--energy-window", &job.retrieve.preprocess.energy_window_lo_eV,
+                        &job.retrieve.preprocess.energy_window_hi_eV);
   job.retrieve.engine = a.engine;
   job.retrieve.iterations = a.iterations;
   job.retrieve.bootstrap = 0;
@@ -208,6 +216,8 @@ void add_classify_command(CLI::App& app) {
                   "IR (driver) wavelength in nm (overrides the sidecar)")
       ->check(ir_wavelength_nm_check());
   cmd->add_option("--gas", a->gas, "target gas (overrides the sidecar; used by --retrieve)");
+  cmd->add_option("--energy-window", a->energy_window,
+                  "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV");
   cmd->add_option("--isolated-max", a->options.isolated_max_satellite_ratio,
                   "largest satellite / main-burst peak intensity for 'isolated'")
       ->capture_default_str();

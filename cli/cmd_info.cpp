@@ -10,6 +10,7 @@
 #include "io/trace_reader.h"
 #include "retrieval/error.h"
 #include "retrieval/gas.h"
+#include "retrieval/preprocess.h"
 #include "retrieval/units.h"
 
 namespace sw::cli {
@@ -101,11 +102,52 @@ int run_info(const std::string& path, bool allow_outside_data) {
   }
   if (t.meta.energy_resolution_eV) std::printf("resolution  %.3f eV (sidecar)\n", *t.meta.energy_resolution_eV);
   if (t.meta.background) std::printf("background  %.4g counts per bin (sidecar)\n", *t.meta.background);
-  else if (t.meta.background_auto) std::printf("background  auto (estimated from signal-free bins)\n");
+  else if (t.meta.background_auto) std::printf("background  auto (sidecar): the fitted model is below\n");
+  if (t.meta.energy_window_eV.size() == 2)
+    std::printf("window      %.3f .. %.3f eV (sidecar energy_window_eV)\n", t.meta.energy_window_eV[0], t.meta.energy_window_eV[1]);
+  if (t.meta.saturation_counts) std::printf("saturation  %.6g counts per bin (sidecar)\n", *t.meta.saturation_counts);
+  for (const DeclaredLine& d : t.meta.lines)
+    std::printf("line        %s%s%s, Ip %s (sidecar)\n", d.gas.empty() ? "" : d.gas.c_str(), d.gas.empty() ? "" : " ",
+                d.name.c_str(), d.ionization_energy_eV ? (std::to_string(*d.ionization_energy_eV) + " eV").c_str() : "auto");
   if (!t.meta.notes.empty()) std::printf("notes       %s\n", escape_excerpt(t.meta.notes, 400).c_str());
   for (const auto& [k, v] : t.meta.extra_json)
     std::printf("extra       %s = %s\n", escape_excerpt(k, 64).c_str(), escape_excerpt(v, 200).c_str());
 
+  // What retrieve's preprocessing finds (retrieval/preprocess.h, default options).
+  if (!t.meta.gas.empty() && t.meta.ir_wavelength_nm > 0 && t.num_delays() >= 4) {
+    try {
+      PreprocessSummary ps;
+      (void)preprocess(t, PreprocessOptions{}, &ps);
+      const BackgroundModel& b = ps.background;
+      std::printf("bg model    %s", b.model.c_str());
+      if (ps.background_source == "fit") {
+        std::printf(": %.4g +- %.2g counts per bin", b.constant_counts, b.constant_counts_sigma);
+        if (b.has_tail)
+          std::printf(" + (%.4g +- %.2g) exp(-W / (%.3g +- %.2g eV))", b.tail_counts_at_zero, b.tail_counts_at_zero_sigma,
+                      b.tail_decay_eV, b.tail_decay_eV_sigma);
+        if (b.has_tof) std::printf(" + (%.4g +- %.2g) (W_ref / W)^1.5", b.tof_counts, b.tof_counts_sigma);
+        std::printf(" (Poisson ML over %zu energy bins)", b.background_bins);
+      }
+      std::printf("\n");
+      std::printf("hot pixels  %zu replaced (isolated in delay and energy)\n", ps.hot_pixels_replaced);
+      std::printf("saturated   %zu bins", ps.saturated_bins);
+      if (ps.saturated_bins) std::printf(" at %.6g counts (%s): zero weight", ps.saturation_level_counts, ps.saturation_source.c_str());
+      std::printf("\n");
+      if (ps.photon_energy_eV > 0) std::printf("photon      %.2f eV (from the line pattern)\n", ps.photon_energy_eV);
+      for (const LineEntry& l : ps.lines) {
+        std::printf("line        %s %s: Ip %.4f eV, W %.2f eV", l.gas.c_str(), l.name.c_str(), l.ionization_energy_eV,
+                    l.kinetic_energy_eV.value_or(0.0));
+        if (l.relative_strength)
+          std::printf(", strength %.3g +- %.2g", *l.relative_strength, l.relative_strength_sigma.value_or(0.0));
+        std::printf("%s (%s)\n", l.reference ? ", reference" : "", l.source.c_str());
+      }
+      if (!ps.window_source.empty())
+        std::printf("analysed    %.3f .. %.3f eV (%s)\n", ps.window_lo_eV, ps.window_hi_eV, ps.window_source.c_str());
+      for (const auto& w : ps.warnings) warnings.push_back("preprocessing: " + w);
+    } catch (const Error& e) {
+      warnings.push_back(std::string("preprocessing not possible: ") + e.what());
+    }
+  }
   if (peak < 20) warnings.push_back("peak of " + std::to_string(peak) + " counts per bin: Poisson noise will dominate (< 20 counts)");
   if (at_peak > 3 && static_cast<double>(at_peak) > 1e-3 * static_cast<double>(t.counts.size()))
     warnings.push_back(std::to_string(at_peak) + " bins sit exactly at the maximum value: detector saturation likely");
@@ -121,7 +163,9 @@ void add_info_command(CLI::App& app) {
   cmd->footer(
       "Reads SCAN.json (or .yaml) and its data image without modifying them and prints what was\n"
       "loaded, with warnings a physicist would want (delay step versus the 2 omega period,\n"
-      "saturation, low counts, missing gas or wavelength). Exit 3 when the files are bad.");
+      "saturation, low counts, missing gas or wavelength) and what the preprocessing finds: the\n"
+      "background model, hot pixels, saturated bins, the photoelectron lines and the analysed\n"
+      "energy window. Exit 3 when the files are bad.");
   auto path = std::make_shared<std::string>();
   auto outside = std::make_shared<bool>(false);
   cmd->add_option("scan", *path, "sidecar of the scan (NAME.json or NAME.yaml)")->required();

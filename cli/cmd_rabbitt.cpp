@@ -14,6 +14,8 @@
 #include "retrieval/dipole.h"
 #include "retrieval/error.h"
 #include "retrieval/quality.h"
+#include "retrieval/lines.h"
+#include "retrieval/units.h"
 #include "retrieval/rabbitt.h"
 #include "retrieval/train_burst.h"
 
@@ -29,8 +31,11 @@ ClassifierOptions classifier_options_for(const ScanJob& job) {
   return c;
 }
 
-AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job,
+AnalysisResult run_rabbitt_analysis(const Trace& scan, const ScanJob& job,
                                     const std::vector<Param>& prov) {
+  std::string window_source;
+  const PreprocessOptions& pp = job.retrieve.preprocess;
+  const Trace trace = apply_energy_window(scan, pp.energy_window_lo_eV, pp.energy_window_hi_eV, &window_source);
   RabbittOptions ro = job.rabbitt;
   if (!parse_atomic_delay_mode(job.atomic_correction, &ro.atomic.mode))
     throw usage_error("--atomic-correction '" + job.atomic_correction +
@@ -51,6 +56,11 @@ AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job,
   res.rabbitt = rb.section;
   res.warnings = rb.warnings;
   add_input_warnings(trace, res.warnings);
+  if (!window_source.empty()) {
+    res.extra.push_back({"preprocess.window_source", window_source});
+    res.extra.push_back({"preprocess.window_lo_eV", units::au_to_eV(trace.energy_au.front())});
+    res.extra.push_back({"preprocess.window_hi_eV", units::au_to_eV(trace.energy_au.back())});
+  }
 
   std::optional<Trace> xuv_only;
   if (!job.xuv_only_sidecar.empty()) {
@@ -123,6 +133,7 @@ struct RabbittArgs {
   std::string gas;
   double wavelength_nm = 0.0;
   RabbittOptions options;
+  std::string energy_window;
   bool no_rainbow = false;
   bool quiet = false;
   bool allow_outside_data = false;
@@ -164,6 +175,9 @@ int run_rabbitt(RabbittArgs& a) {
   job.xuv_only_sidecar = a.xuv_only;
   job.rabbitt = a.options;
   job.rabbitt.rainbow = !a.no_rainbow;
+  if (!a.energy_window.empty())
+    parse_energy_window(a.energy_window, "--energy-window", &job.retrieve.preprocess.energy_window_lo_eV,
+                        &job.retrieve.preprocess.energy_window_hi_eV);
   if (!parse_cross_section_model(a.cross_section, &job.train_burst.cross_section))
     throw usage_error("--cross-section " + a.cross_section + ": expected flat or sfa_dipole");
   if (!parse_dipole_kind(a.dipole, &job.train_burst.dipole))
@@ -233,6 +247,8 @@ void add_rabbitt_command(CLI::App& app) {
       ->capture_default_str();
   cmd->add_flag("--apply-delay-calibration", a->options.apply_delay_calibration,
                 "use the fitted 2 omega frequency for the sideband fits (rescales the delay axis)");
+  cmd->add_option("--energy-window", a->energy_window,
+                  "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV");
   cmd->add_flag("--no-rainbow", a->no_rainbow, "skip the per-energy-bin (rainbow) fits");
   cmd->add_flag("--quiet,-q", a->quiet, "no warnings on stderr (they stay in the report)");
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,

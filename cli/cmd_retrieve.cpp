@@ -9,6 +9,7 @@
 #include "cli/option_checks.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
+#include "retrieval/lines.h"
 #include "retrieval/retrieve.h"
 #include "retrieval/dipole.h"
 
@@ -20,6 +21,7 @@ struct RetrieveArgs {
   std::string scan, out;
   RetrieveOptions options;
   std::string dipole = "constant";
+  std::string energy_window;  ///< --energy-window LO:HI (eV), "" = none
   bool quiet = false;
   bool allow_outside_data = false;
 };
@@ -45,6 +47,9 @@ std::string summary_line(const AnalysisResult& r) {
 }
 
 int run_retrieve(RetrieveArgs& a) {
+  if (!a.energy_window.empty())
+    parse_energy_window(a.energy_window, "--energy-window", &a.options.preprocess.energy_window_lo_eV,
+                        &a.options.preprocess.energy_window_hi_eV);
   if (!parse_dipole_kind(a.dipole, &a.options.preprocess.dipole))
     throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
   if (a.options.engine != "auto") (void)make_engine(a.options.engine);  // unknown names listed
@@ -98,7 +103,11 @@ void add_retrieve_command(CLI::App& app) {
                   "verdict: largest satellite/main intensity for 'isolated' (common practice)")->capture_default_str();
   cmd->add_option("--satellites-max", a->options.satellites_max_satellite_ratio,
                   "verdict: upper limit for 'isolated_with_satellites'")->capture_default_str();
-  cmd->add_flag("--despike", a->options.preprocess.remove_hot_pixels, "replace isolated hot pixels (no smoothing)");
+  cmd->add_flag("--despike,!--no-despike", a->options.preprocess.remove_hot_pixels,
+                "replace isolated hot pixels (no smoothing; on by default)");
+  cmd->add_option("--energy-window", a->energy_window,
+                  "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV "
+                  "and the automatic window around the strongest line");
   cmd->add_flag("--quiet,-q", a->quiet, "no progress on stderr");
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,
                 "read a data file outside the sidecar's folder tree ('..', absolute or symlinked "

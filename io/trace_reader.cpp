@@ -616,7 +616,10 @@ const std::vector<std::string>& known_sidecar_keys() {
                                                 "scale",
                                                 "background",
                                                 "energy_resolution_eV",
-                                                "notes"};
+                                                "notes",
+                                                "energy_window_eV",
+                                                "saturation_counts",
+                                                "lines"};
   return keys;
 }
 
@@ -874,6 +877,58 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
         meta.notes += (i ? "\n" : "") + sc.string(n[i], "notes[" + std::to_string(i) + "]");
     } else {
       meta.notes = sc.string(n, "notes");
+    }
+  }
+  if (sc.has("energy_window_eV")) {
+    const json& w = sc.at("energy_window_eV");
+    if (!w.is_array() || w.size() != 2)
+      sc.fail("energy_window_eV", std::string("is ") + type_name(w) +
+                                      "; expected [lo, hi] in eV (photoelectron kinetic energy)");
+    const double lo = sc.number(w[0], "energy_window_eV[0]");
+    const double hi = sc.number(w[1], "energy_window_eV[1]");
+    if (!(lo < hi))
+      sc.fail("energy_window_eV", "is [" + num(lo) + ", " + num(hi) + "]; expected lo < hi (eV)");
+    meta.energy_window_eV = {lo, hi};
+  }
+  if (sc.has("saturation_counts")) {
+    const double v = sc.number(sc.at("saturation_counts"), "saturation_counts");
+    if (!(v > 0)) sc.fail("saturation_counts", "is " + num(v) + "; expected counts per bin > 0");
+    meta.saturation_counts = v;
+  }
+  if (sc.has("lines")) {
+    const json& ls = sc.at("lines");
+    if (!ls.is_array())
+      sc.fail("lines", std::string("is ") + type_name(ls) +
+                           "; expected an array of {\"name\", \"ionization_energy_eV\"}");
+    for (std::size_t i = 0; i < ls.size(); ++i) {
+      const std::string f = "lines[" + std::to_string(i) + "]";
+      const json& l = ls[i];
+      if (!l.is_object())
+        sc.fail(f, std::string("is ") + type_name(l) +
+                       "; expected {\"name\": ..., \"ionization_energy_eV\": number or \"auto\"}");
+      DeclaredLine d;
+      if (!l.contains("name")) sc.fail(f + ".name", "is missing; expected the line's name, e.g. \"2s\"");
+      d.name = sc.string(l.at("name"), f + ".name");
+      if (d.name.empty() || d.name.size() > 32)
+        sc.fail(f + ".name", "has " + std::to_string(d.name.size()) + " characters; expected 1 to 32");
+      if (l.contains("gas")) d.gas = sc.string(l.at("gas"), f + ".gas");
+      if (!l.contains("ionization_energy_eV"))
+        sc.fail(f + ".ionization_energy_eV", "is missing; expected a binding energy in eV or \"auto\"");
+      const json& ie = l.at("ionization_energy_eV");
+      if (ie.is_string()) {
+        if (ie.get<std::string>() != "auto")
+          sc.fail(f + ".ionization_energy_eV", "is a string other than \"auto\"; expected eV or \"auto\"");
+      } else {
+        const double v = sc.number(ie, f + ".ionization_energy_eV");
+        if (!(v > 0)) sc.fail(f + ".ionization_energy_eV", "is " + num(v) + "; expected > 0 eV");
+        d.ionization_energy_eV = v;
+      }
+      if (l.contains("relative_strength")) {
+        const double v = sc.number(l.at("relative_strength"), f + ".relative_strength");
+        if (!(v > 0)) sc.fail(f + ".relative_strength", "is " + num(v) + "; expected > 0");
+        d.relative_strength = v;
+      }
+      meta.lines.push_back(d);
     }
   }
   const auto& known = known_sidecar_keys();

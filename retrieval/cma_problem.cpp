@@ -1,6 +1,7 @@
 #include "retrieval/cma_problem.h"
 
 #include <algorithm>
+#include <limits>
 #include <cmath>
 #include <cstdint>
 #include <sstream>
@@ -182,6 +183,9 @@ CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, s
   if (p.variance.size() != 0 &&
       (p.variance.rows() != p.intensity.rows() || p.variance.cols() != p.intensity.cols()))
     fail("variance must be empty or the size of intensity");
+  if (p.weight.size() != 0 &&
+      (p.weight.rows() != p.intensity.rows() || p.weight.cols() != p.intensity.cols()))
+    fail("weight must be empty or the size of intensity");
   if (ne_ > n_)
     fail("energy_au has " + std::to_string(ne_) + " bins but the XUV grid only " +
          std::to_string(n_) + ": expected grid.size() >= number of energies");
@@ -320,8 +324,31 @@ CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, s
   const bool with_noise = settings_.noise_tolerance > 0 && p.variance.size() != 0;
   band_ = with_noise;
   poisson_ = settings_.poisson_projection && !band_;
-  peak_ = p.intensity.maxCoeff();
-  sum_ii_ = p.intensity.squaredNorm();
+  // Elements of weight 0 are not data (RetrievalProblem::weight): the projection keeps the
+  // model there (frozen_*) and the running G leaves them out; any weight > 0 counts as data.
+  const bool weighted = p.weight.size() != 0;
+  peak_ = -std::numeric_limits<double>::infinity();
+  sum_ii_ = 0.0;
+  count_ = 0.0;
+  frozen_start_.assign(nd_ + 1, 0);
+  frozen_k_.clear();
+  frozen_j_.clear();
+  for (std::size_t i = 0; i < nd_; ++i) {
+    frozen_start_[i] = frozen_k_.size();
+    for (std::size_t j = 0; j < ne_; ++j) {
+      const auto ii = static_cast<Eigen::Index>(i), jj = static_cast<Eigen::Index>(j);
+      if (weighted && !(p.weight(ii, jj) > 0)) {
+        frozen_k_.push_back(fft_index(bin_[j], n_));
+        frozen_j_.push_back(j);
+        continue;
+      }
+      peak_ = std::max(peak_, p.intensity(ii, jj));
+      sum_ii_ += p.intensity(ii, jj) * p.intensity(ii, jj);
+      count_ += 1.0;
+    }
+  }
+  frozen_start_[nd_] = frozen_k_.size();
+  if (!(peak_ > 0)) fail("intensity has no positive value of weight > 0");
   for (std::size_t i = 0; i < nd_; ++i)
     for (std::size_t j = 0; j < ne_; ++j) {
       const double I = p.intensity(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
@@ -366,6 +393,13 @@ void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums, doub
   const double dt2 = dt_ * dt_;
   const bool band = band_;
   double im = 0.0, mm = 0.0;
+  // Weight-0 bins of this row: remember the model, restore it after the projection.
+  const std::size_t f0 = frozen_start_[j], f1 = frozen_start_[j + 1];
+  double* saved = scratch + 3 * ne_;
+  for (std::size_t f = f0; f < f1; ++f) {
+    saved[2 * (f - f0)] = S[2 * frozen_k_[f]];
+    saved[2 * (f - f0) + 1] = S[2 * frozen_k_[f] + 1];
+  }
   using Arr = Eigen::Map<Eigen::ArrayXd>;
   using CArr = Eigen::Map<const Eigen::ArrayXd>;
   for (const Segment& seg : measured_) {
@@ -391,6 +425,14 @@ void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums, doub
     R = r.max(L).min(H) / r.max(1e-300);
     scale_bins(sp, r2, len);
   }
+  for (std::size_t f = f0; f < f1; ++f) {
+    const double re = saved[2 * (f - f0)], iv = saved[2 * (f - f0) + 1];
+    const double M = dt2 * (re * re + iv * iv);
+    im -= I[frozen_j_[f]] * M;  // the sums above included the bin: take it out again
+    mm -= M * M;
+    S[2 * frozen_k_[f]] = re;
+    S[2 * frozen_k_[f] + 1] = iv;
+  }
   const double damp = settings_.unmeasured_damping;
   if (damp != 1.0)
     for (const Segment& seg : unmeasured_) {
@@ -404,7 +446,7 @@ void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums, doub
 
 double CmaProblem::trace_error(const ErrorSums& s) const {
   const double r = s.mm > 0 ? sum_ii_ - s.im * s.im / s.mm : sum_ii_;
-  return std::sqrt(std::max(r, 0.0) / (static_cast<double>(nd_ * ne_) * peak_ * peak_));
+  return std::sqrt(std::max(r, 0.0) / (count_ * peak_ * peak_));
 }
 
 void CmaProblem::impose_spectrum(CVec& eps, CVec& work) const {
@@ -955,7 +997,7 @@ Reconstruction CmaProblem::reconstruct(CVec eps, std::vector<PhaseGate> gates,
   rec.settings.emplace_back("momentum_band_frame",
                             state.final_momentum ? "final momentum (gate rate p_b A + A^2/2)"
                                                  : "initial momentum (delay-adapted, p_b A - A^2/2)");
-  rec.trace_error = sw::trace_error(problem_.intensity, rec.retrieved, &rec.scale);
+  rec.trace_error = sw::trace_error(problem_.intensity, rec.retrieved, &rec.scale, &problem_.weight);
   return rec;
 }
 
@@ -977,7 +1019,7 @@ Reconstruction CmaProblem::reconstruct(CVec eps, PhaseGate gate) const {
   rec.engine = engine_;
   rec.model = "cma";
   rec.retrieved = model_trace(eps, gate);
-  rec.trace_error = sw::trace_error(problem_.intensity, rec.retrieved, &rec.scale);
+  rec.trace_error = sw::trace_error(problem_.intensity, rec.retrieved, &rec.scale, &problem_.weight);
   rec.xuv = XuvField(problem_.grid, carrier_, std::move(eps));
   // A(t) where the data constrain the gate well: from the first to the last node whose
   // coverage reaches 30 % of its maximum (beyond the delay range only the XUV's tails probe

@@ -191,7 +191,8 @@ class CmaProblem {
   /// The momentum nodes (one node at central_momentum_au unless CmaSettings::momentum_bands
   /// asks for more).
   const std::vector<MomentumBand>& bands() const { return bands_; }
-  std::size_t scratch_size() const { return 3 * ne_; }
+  /// 3 ne work values plus 2 ne for the weight-0 bins of a row (kept as modelled).
+  std::size_t scratch_size() const { return 5 * ne_; }
   /// Running trace error G from the sums of one full sweep over the delays.
   double trace_error(const ErrorSums& sums) const;
   /// Spectral constraint on eps (in place; `work` is resized to N once). No-op without spectrum.
@@ -322,6 +323,9 @@ class CmaProblem {
                        BandState& state) const;
   void band_layout(const CommonPotential& c, const PhaseGate& gate, BandState& state) const;
   double sum_ii_ = 0.0, peak_ = 0.0;
+  double count_ = 0.0;                   // elements of weight > 0 (the G normalisation)
+  std::vector<std::size_t> frozen_start_;  // nd + 1: first weight-0 entry of each delay row
+  std::vector<std::size_t> frozen_k_, frozen_j_;  // FFT index and energy index of each
   mutable std::string gate_guess_;
 };
 

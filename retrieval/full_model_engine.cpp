@@ -232,6 +232,9 @@ void check_problem(const RetrievalProblem& P, const std::string& who) {
   else if (P.variance.size() != 0 && (P.variance.rows() != nd || P.variance.cols() != ne))
     s << who << ": RetrievalProblem.variance is " << P.variance.rows() << "x" << P.variance.cols()
       << ": expected " << nd << "x" << ne;
+  else if (P.weight.size() != 0 && (P.weight.rows() != nd || P.weight.cols() != ne))
+    s << who << ": RetrievalProblem.weight is " << P.weight.rows() << "x" << P.weight.cols()
+      << ": expected empty or delays x energies = " << nd << "x" << ne;
   else if (!P.intensity.allFinite() || !P.variance.allFinite())
     s << who << ": RetrievalProblem.intensity/variance contain non-finite values";
   else if (P.variance.size() != 0 && !(P.variance.maxCoeff() > 0))
@@ -322,6 +325,8 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
   }
   const double floor = std::max(s.variance_floor * var.maxCoeff(), 1e-300);
   weight_ = var.cwiseMax(floor).cwiseInverse();
+  // RetrievalProblem::weight (0 = not data, e.g. saturated bins) scales the residuals.
+  if (P.weight.size() != 0) weight_ = weight_.cwiseProduct(P.weight);
   inv_elements_ = 1.0 / static_cast<double>(measured_.size());
 
   // Spectral support.
@@ -806,7 +811,7 @@ class LeastSquaresEngine : public Engine {
 
  private:
   double current_G(const std::vector<double>& x) const {
-    return trace_error(problem_.intensity, objective_->model(x.data(), nullptr));
+    return trace_error(problem_.intensity, objective_->model(x.data(), nullptr), nullptr, &problem_.weight);
   }
 
   MomentumModel model_;
@@ -1020,7 +1025,7 @@ Reconstruction LeastSquaresEngine::finalize() {
   fo.threads = options_.threads;
   r.retrieved = ForwardModel(problem_.ionization_energy_au, problem_.dipole, fo)
                     .trace(r.xuv, r.ir, problem_.delay_au, problem_.energy_au);
-  r.trace_error = trace_error(problem_.intensity, r.retrieved, &r.scale);
+  r.trace_error = trace_error(problem_.intensity, r.retrieved, &r.scale, &problem_.weight);
   r.termination = done_ ? Termination::kConverged : Termination::kMaxIterations;
   r.message = last_termination_.empty() ? "L-BFGS still running" : "L-BFGS: " + last_termination_;
 

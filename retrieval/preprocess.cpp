@@ -15,21 +15,31 @@ namespace sw {
 
 std::string PreprocessOptions::validate() const {
   std::ostringstream s;
-  auto in01 = [&](double v, const char* name) {
-    if (!(v > 0 && v < 1)) s << name << " = " << v << ": must lie in (0, 1)";
-    return s.tellp() == 0;
-  };
-  if (!in01(signal_free_fraction, "signal_free_fraction")) return s.str();
-  if (!in01(min_signal_free_share, "min_signal_free_share")) return s.str();
-  if (!in01(field_free_shift_fraction, "field_free_shift_fraction")) return s.str();
-  if (!(hot_pixel_sigma > 0)) s << "hot_pixel_sigma = " << hot_pixel_sigma << ": must be > 0";
+  if (!(field_free_shift_fraction > 0 && field_free_shift_fraction < 1))
+    s << "field_free_shift_fraction = " << field_free_shift_fraction << ": must lie in (0, 1)";
+  else if (!(hot_pixel_sigma > 0)) s << "hot_pixel_sigma = " << hot_pixel_sigma << ": must be > 0";
   else if (!(hot_pixel_ratio > 1)) s << "hot_pixel_ratio = " << hot_pixel_ratio << ": must be > 1";
+  else if (saturation_plateau_bins < 2)
+    s << "saturation_plateau_bins = " << saturation_plateau_bins << ": must be >= 2";
   else if (grid_size != 0 && grid_size < 64) s << "grid_size = " << grid_size << ": must be 0 (auto) or >= 64";
   else if (auto e = support.validate(); !e.empty()) s << "support." << e;
+  else if (!std::isfinite(energy_window_lo_eV) || !std::isfinite(energy_window_hi_eV) ||
+           ((energy_window_lo_eV != 0 || energy_window_hi_eV != 0) && !(energy_window_lo_eV < energy_window_hi_eV)))
+    s << "energy_window = [" << energy_window_lo_eV << ", " << energy_window_hi_eV
+      << "] eV: must be finite with lo < hi (or both 0 = none)";
+  else if (const std::string b = background.validate(); !b.empty()) s << "background." << b;
+  else if (const std::string l = lines.validate(); !l.empty()) s << "lines." << l;
   return s.str();
 }
 
 namespace {
+
+std::string fmt(double v) {
+  std::ostringstream s;
+  s.precision(5);
+  s << v;
+  return s.str();
+}
 
 bool is_uniform(const std::vector<double>& x, double* step) {
   if (x.size() < 2) return false;
@@ -106,6 +116,17 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   const Gas& gas = find_gas(trace.meta.gas);
   const double ip = units::eV_to_au(gas.ionization_energy_eV);
 
+  // 0. saturation, on the measured bins (a rebinning would smear the plateau).
+  double sat_level = 0;
+  const auto sat = detect_saturation(trace.counts, trace.meta.saturation_counts.value_or(0.0),
+                                     opt.saturation_plateau_bins, &sat_level);
+  Eigen::MatrixXd satm = sat.cast<double>();
+  if (sat_level > 0) {
+    s.saturated_bins = static_cast<std::size_t>(satm.sum());
+    s.saturation_level_counts = sat_level;
+    s.saturation_source = trace.meta.saturation_counts ? "sidecar" : "plateau";
+  }
+
   // 3. energy axis onto a uniform grid (counts conserved).
   std::vector<double> W = trace.energy_au;
   Eigen::MatrixXd counts = trace.counts;
@@ -121,76 +142,169 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
     for (std::size_t i = 0; i <= n; ++i) to[i] = from.front() + dW * static_cast<double>(i);
     for (std::size_t i = 0; i < n; ++i) centres[i] = to[i] + 0.5 * dW;
     counts = rebin(counts, from, to);
+    if (s.saturated_bins) {  // any output bin fed by a saturated one is saturated
+      satm = (rebin(satm, from, to).array() > 0).cast<double>().matrix();
+      s.saturated_bins = static_cast<std::size_t>(satm.sum());
+    }
     W = centres;
     s.energy_resampled = true;
   }
   s.energy_step_eV = units::au_to_eV(dW);
-  const auto nd = counts.rows(), ne = counts.cols();
+  const Eigen::Index nd = counts.rows();
+  Eigen::Index ne = counts.cols();  // changes when a window crops the axis
   s.total_counts = counts.sum();
   s.peak_counts = counts.maxCoeff();
   if (!(s.peak_counts > 0)) throw input_error(where + ": the data are all zero; expected counts > 0");
+  if (s.saturated_bins)
+    s.warnings.push_back(std::to_string(s.saturated_bins) + " bins saturated at " + fmt(sat_level) +
+                         " counts (" + s.saturation_source + "): given zero weight, the engines fit the other bins");
 
-  // 2. isolated hot pixels.
+  // 2. isolated hot pixels: far above both delay neighbours and both energy neighbours.
   if (opt.remove_hot_pixels) {
     Eigen::MatrixXd fixed = counts;
-    for (Eigen::Index i = 0; i < nd; ++i)
-      for (Eigen::Index j = 0; j < ne; ++j) {
+    const double k = opt.hot_pixel_sigma, ratio = opt.hot_pixel_ratio;
+    for (Eigen::Index i = 1; i + 1 < nd; ++i)
+      for (Eigen::Index j = 1; j + 1 < ne; ++j) {
+        if (satm(i, j) > 0) continue;
+        const double c = counts(i, j);
+        const double rd = std::max(counts(i - 1, j), counts(i + 1, j));
+        if (!(c > ratio * std::max(rd, 1.0) && c > rd + k * std::sqrt(rd + 1.0)))
+          continue;  // a ridge along delay (a harmonic) or a fluctuation
         double nb[8];
         int m = 0;
         for (int di = -1; di <= 1; ++di)
-          for (int dj = -1; dj <= 1; ++dj) {
-            if (!di && !dj) continue;
-            const Eigen::Index a = i + di, b = j + dj;
-            if (a >= 0 && a < nd && b >= 0 && b < ne) nb[m++] = counts(a, b);
-          }
-        std::nth_element(nb, nb + m / 2, nb + m);
-        const double med = nb[m / 2], c = counts(i, j);
-        if (c > med + opt.hot_pixel_sigma * std::sqrt(med + 1.0) && c > opt.hot_pixel_ratio * std::max(med, 1.0)) {
-          fixed(i, j) = med;
-          ++s.hot_pixels_replaced;
-        }
+          for (int dj = -1; dj <= 1; ++dj)
+            if (di || dj) nb[m++] = counts(i + di, j + dj);
+        const double mean8 = (nb[0] + nb[1] + nb[2] + nb[3] + nb[4] + nb[5] + nb[6] + nb[7]) / 8.0;
+        const double el = counts(i, j - 1), eh = counts(i, j + 1);
+        const double re = std::max(el, eh);
+        // Isolated along energy too: above both energy neighbours by k sigma (of the larger of
+        // them and the 8-neighbour mean: two bins alone can be low by chance) and `ratio` times
+        // the smaller. A row shifted by stage jitter has a high energy neighbour on one side.
+        if (!(c > re + k * std::sqrt(std::max(re, mean8) + 1.0) && c > ratio * std::max(std::min(el, eh), 1.0)))
+          continue;
+        std::nth_element(nb, nb + 4, nb + 8);
+        fixed(i, j) = nb[4];
+        ++s.hot_pixels_replaced;
       }
     counts = fixed;
   }
 
-  // 1. background.
-  const Eigen::VectorXd mean_spec = counts.colwise().mean().transpose();
+  // 1. background, a model B(W) per energy bin (the same in every delay row).
+  std::vector<double> W_eV(W.size());
+  for (std::size_t j = 0; j < W.size(); ++j) W_eV[j] = units::au_to_eV(W[j]);
+  Eigen::VectorXd bgcol = Eigen::VectorXd::Zero(ne);
   if (trace.meta.background && !trace.meta.background_auto) {
     s.background_counts = *trace.meta.background;
     s.background_source = "sidecar";
+    s.background.model = "sidecar constant";
+    s.background.constant_counts = s.background_counts;
+    bgcol.setConstant(s.background_counts);
   } else {
-    const double thr = opt.signal_free_fraction * mean_spec.maxCoeff();
-    // The signal region runs from the first to the last bin above the threshold; its wings
-    // (real signal below the threshold) are excluded by widening it by half its width on each
-    // side. Only bins outside count as signal-free, so neither the wings of a broadband
-    // spectrum nor the gaps of a harmonic comb are taken for background.
-    Eigen::Index first = 0, last = ne - 1;
-    while (first < ne && mean_spec(first) < thr) ++first;
-    while (last > first && mean_spec(last) < thr) --last;
-    const Eigen::Index pad = (last - first + 1) / 2;
-    const Eigen::Index lo_edge = first - pad, hi_edge = last + pad;
-    double acc = 0;
-    for (Eigen::Index j = 0; j < ne; ++j)
-      if ((j < lo_edge || j > hi_edge) && mean_spec(j) < thr) {
-        acc += mean_spec(j);
-        ++s.signal_free_bins;
-      }
-    if (static_cast<double>(s.signal_free_bins) >= opt.min_signal_free_share * static_cast<double>(ne)) {
-      s.background_counts = acc / static_cast<double>(s.signal_free_bins);
-      s.background_source = "signal-free bins";
-    } else {
+    const bool tof = !trace.meta.calibration.empty();
+    const double off = tof ? param_number(trace.meta.calibration, "calibration.energy_offset_eV").value_or(0.0) : 0.0;
+    // Saturated bins carry no count information: fill them with their row's largest other
+    // value for the envelope search (they are signal, never background).
+    Eigen::MatrixXd for_fit = counts;
+    for (Eigen::Index i = 0; i < nd; ++i)
+      for (Eigen::Index j = 0; j < ne; ++j)
+        if (satm(i, j) > 0) for_fit(i, j) = s.peak_counts;
+    s.background = fit_background(for_fit, W_eV, opt.background, tof, off);
+    s.signal_free_bins = s.background.background_bins;
+    if (s.background.model == "none") {
       s.background_source = "none";
-      s.warnings.push_back("fewer than " + std::to_string(int(100 * opt.min_signal_free_share)) +
-                           " % of the energy bins are signal-free: no background subtracted");
+      s.warnings.push_back(s.background.note);
+    } else {
+      s.background_source = "fit";
+      s.background_counts = s.background.constant_counts;
+      for (Eigen::Index j = 0; j < ne; ++j) bgcol(j) = s.background.at(W_eV[static_cast<std::size_t>(j)]);
     }
   }
 
+  // 2b. lines of the gas and the analysis window.
+  {
+    std::vector<double> spec(static_cast<std::size_t>(ne)), var(static_cast<std::size_t>(ne));
+    for (Eigen::Index j = 0; j < ne; ++j) {
+      spec[static_cast<std::size_t>(j)] = counts.col(j).sum() - static_cast<double>(nd) * bgcol(j);
+      var[static_cast<std::size_t>(j)] = std::max(counts.col(j).sum(), 1.0);
+    }
+    LineSearch ls = find_lines(W_eV, spec, var, gas, trace.meta.lines, opt.lines);
+    for (const auto& w : ls.warnings) s.warnings.push_back(w);
+    s.photon_energy_eV = ls.photon_energy_eV;
+    double lo = 0, hi = 0;
+    if (opt.energy_window_lo_eV != 0 || opt.energy_window_hi_eV != 0) {
+      lo = opt.energy_window_lo_eV;
+      hi = opt.energy_window_hi_eV;
+      s.window_source = "option";
+    } else if (trace.meta.energy_window_eV.size() == 2) {
+      lo = trace.meta.energy_window_eV[0];
+      hi = trace.meta.energy_window_eV[1];
+      s.window_source = "sidecar";
+    } else if (opt.window_reference_line && ls.reference >= 0 && trace.meta.kind != TraceKind::kRabbitt) {
+      // (A harmonic comb is one line per harmonic: its lines are not windowed apart.)
+      // Streaking range: the largest shift of the rows' centroids over the reference band.
+      double streak = 0;
+      std::vector<double> cen;
+      for (Eigen::Index i = 0; i < nd; ++i) {
+        double a = 0, b = 0;
+        for (Eigen::Index j = 0; j < ne; ++j) {
+          const double w = W_eV[static_cast<std::size_t>(j)];
+          if (w < ls.support_lo_eV || w > ls.support_hi_eV) continue;
+          const double v = counts(i, j) - bgcol(j);
+          a += v * w;
+          b += v;
+        }
+        if (b > 0) cen.push_back(a / b);
+      }
+      if (!cen.empty()) {
+        const double mean = std::accumulate(cen.begin(), cen.end(), 0.0) / static_cast<double>(cen.size());
+        for (double c : cen) streak = std::max(streak, std::abs(c - mean));
+      }
+      if (choose_window(ls, W_eV, streak, &lo, &hi, &s.warnings)) s.window_source = "reference line";
+    }
+    // Only lines inside the analysed band are analysed.
+    s.lines = ls.lines;
+    if (!s.window_source.empty()) {
+      // Crop every per-bin quantity to [lo, hi].
+      std::vector<Eigen::Index> keep;
+      for (Eigen::Index j = 0; j < ne; ++j)
+        if (W_eV[static_cast<std::size_t>(j)] >= lo && W_eV[static_cast<std::size_t>(j)] <= hi) keep.push_back(j);
+      if (keep.size() < 8)
+        throw input_error(where + ": the energy window [" + fmt(lo) + ", " + fmt(hi) + "] eV (" + s.window_source +
+                          ") keeps " + std::to_string(keep.size()) + " energy bins of the axis " + fmt(W_eV.front()) +
+                          " .. " + fmt(W_eV.back()) + " eV; expected at least 8");
+      const auto nk = static_cast<Eigen::Index>(keep.size());
+      Eigen::MatrixXd c2(nd, nk), s2(nd, nk);
+      Eigen::VectorXd b2(nk);
+      std::vector<double> w2(keep.size());
+      for (Eigen::Index q = 0; q < nk; ++q) {
+        const Eigen::Index j = keep[static_cast<std::size_t>(q)];
+        c2.col(q) = counts.col(j);
+        s2.col(q) = satm.col(j);
+        b2(q) = bgcol(j);
+        w2[static_cast<std::size_t>(q)] = W[static_cast<std::size_t>(j)];
+      }
+      counts = c2;
+      satm = s2;
+      bgcol = b2;
+      W = w2;
+      ne = nk;
+      s.window_lo_eV = lo;
+      s.window_hi_eV = hi;
+      for (LineEntry& e : s.lines) {
+        const bool inside = e.kinetic_energy_eV && *e.kinetic_energy_eV >= lo && *e.kinetic_energy_eV <= hi;
+        if (!e.reference && inside && e.relative_strength && *e.relative_strength > 0)
+          s.warnings.push_back("line " + e.gas + " " + e.name + " lies inside the analysis window [" + fmt(lo) +
+                               ", " + fmt(hi) + "] eV: it is fitted as part of the analysed pulse");
+      }
+    }
+  }
   // Poisson variance of raw counts (>= 1 count to keep weights finite), then subtract. The
   // difference is kept signed: clipping it at 0 would bias every background-dominated bin up
   // (E[max(N - b, 0)] > E[N] - b), i.e. lift the spectral wings (measured: FWHM -7 % on a flat
   // 5 counts/bin under neon-150as with the Poisson projection; docs/validation.md).
   Eigen::MatrixXd var = counts.cwiseMax(1.0);
-  Eigen::MatrixXd sig = (counts.array() - s.background_counts).matrix();
+  Eigen::MatrixXd sig = counts.rowwise() - bgcol.transpose();
   const EnergySupport band = energy_support(trace, opt, sig, counts, W, &s);
 
   // 4. counts per bin -> |a|^2 (divide by bin width and by p).
@@ -266,6 +380,9 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   }
   std::vector<double> ff(static_cast<std::size_t>(ne), 0.0);
   s.field_free_measured = !quiet.empty();
+  // Saturated bins in the reference rows clip its peak: then its amplitude is not imposed.
+  bool quiet_saturated = false;
+  for (Eigen::Index i : quiet) quiet_saturated = quiet_saturated || satm.row(i).sum() > 0;
   if (s.field_free_measured) {
     for (Eigen::Index i : quiet)
       for (Eigen::Index j = 0; j < ne; ++j) ff[static_cast<std::size_t>(j)] += sig(i, j) / static_cast<double>(quiet.size());
@@ -275,6 +392,12 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
     if (s.reference == ReferenceSpectrum::kEdgeRows)
       os << " (spanning less than one IR period: shape only, centroid from a zero mean of A(t))";
     s.field_free_source = os.str();
+    if (quiet_saturated) {
+      s.field_free_measured = false;
+      s.field_free_source += "; saturated there: shape not imposed";
+      s.warnings.push_back("the field-free rows contain saturated bins: the measured spectrum's amplitude is not "
+                           "imposed on the XUV (only its centroid)");
+    }
   } else {
     for (Eigen::Index j = 0; j < ne; ++j) ff[static_cast<std::size_t>(j)] = sig.col(j).mean();
     s.field_free_source = "delay average";
@@ -305,6 +428,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   s.grid_dt_as = units::au_to_as(pr.grid.dt());
   pr.intensity = sig;
   pr.variance = var;
+  if (satm.sum() > 0) pr.weight = (1.0 - satm.array()).matrix();
   pr.energy_au = W;
   pr.delay_au = trace.delay_au;
   pr.ionization_energy_au = ip;
@@ -329,15 +453,123 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
 Trace poisson_resample(const Trace& trace, unsigned long long seed) {
   Trace t = trace;
   std::mt19937_64 rng(seed);
+  double level = 0;
+  const auto sat = detect_saturation(trace.counts, trace.meta.saturation_counts.value_or(0.0),
+                                     PreprocessOptions().saturation_plateau_bins, &level);
   for (Eigen::Index i = 0; i < t.counts.rows(); ++i)
     for (Eigen::Index j = 0; j < t.counts.cols(); ++j) {
       const double m = trace.counts(i, j);
+      if (level > 0 && sat(i, j)) continue;  // the detector reads its limit whatever the draw
       if (m > 0) {
         std::poisson_distribution<long long> d(m);
         t.counts(i, j) = static_cast<double>(d(rng));
+        if (level > 0) t.counts(i, j) = std::min(t.counts(i, j), level);
       }
     }
   return t;
+}
+
+Eigen::Matrix<std::uint8_t, Eigen::Dynamic, Eigen::Dynamic> detect_saturation(
+    const Eigen::MatrixXd& counts, double sidecar_level, int plateau_bins, double* level) {
+  const Eigen::Index nd = counts.rows(), ne = counts.cols();
+  Eigen::Matrix<std::uint8_t, Eigen::Dynamic, Eigen::Dynamic> sat =
+      Eigen::Matrix<std::uint8_t, Eigen::Dynamic, Eigen::Dynamic>::Zero(nd, ne);
+  *level = 0;
+  if (counts.size() == 0) return sat;
+  if (sidecar_level > 0) {
+    for (Eigen::Index i = 0; i < counts.size(); ++i)
+      sat.data()[i] = counts.data()[i] >= sidecar_level * (1 - 1e-9) ? 1 : 0;
+    if ((sat.array() > 0).count() > 0) *level = sidecar_level;
+    return sat;
+  }
+  const double m = counts.maxCoeff();
+  if (!(m > 0)) return sat;
+  const double tol = 1e-9 * m;
+  // 8-connected clusters of bins at the maximum; the plateau is every cluster of at least
+  // plateau_bins bins (isolated ties at the maximum are normal at low counts).
+  std::vector<Eigen::Index> stack, cluster;
+  Eigen::Matrix<std::uint8_t, Eigen::Dynamic, Eigen::Dynamic> seen =
+      Eigen::Matrix<std::uint8_t, Eigen::Dynamic, Eigen::Dynamic>::Zero(nd, ne);
+  for (Eigen::Index i0 = 0; i0 < nd; ++i0)
+    for (Eigen::Index j0 = 0; j0 < ne; ++j0) {
+      if (seen(i0, j0) || std::abs(counts(i0, j0) - m) > tol) continue;
+      cluster.clear();
+      stack.assign(1, i0 * ne + j0);
+      seen(i0, j0) = 1;
+      while (!stack.empty()) {
+        const Eigen::Index q = stack.back();
+        stack.pop_back();
+        cluster.push_back(q);
+        const Eigen::Index i = q / ne, j = q % ne;
+        for (int di = -1; di <= 1; ++di)
+          for (int dj = -1; dj <= 1; ++dj) {
+            const Eigen::Index a = i + di, b = j + dj;
+            if (a < 0 || a >= nd || b < 0 || b >= ne || seen(a, b) || std::abs(counts(a, b) - m) > tol) continue;
+            seen(a, b) = 1;
+            stack.push_back(a * ne + b);
+          }
+      }
+      if (static_cast<int>(cluster.size()) >= plateau_bins) *level = m;
+    }
+  // A plateau fixes the detector's level: every bin at it is saturated.
+  if (*level > 0)
+    for (Eigen::Index i = 0; i < counts.size(); ++i) sat.data()[i] = std::abs(counts.data()[i] - m) <= tol ? 1 : 0;
+  return sat;
+}
+
+void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* out) {
+  auto P = [&](const std::string& k, auto v) { out->push_back({"preprocess." + k, v}); };
+  auto I = [](std::size_t v) { return static_cast<long long>(v); };
+  P("background_counts", s.background_counts);
+  P("background_source", s.background_source);
+  P("signal_free_bins", I(s.signal_free_bins));
+  const BackgroundModel& b = s.background;
+  P("background.model", b.model);
+  if (s.background_source == "fit") {
+    P("background.method", std::string("Poisson maximum likelihood over delay-independent bins outside the signal "
+                                       "envelope (retrieval/background.h)"));
+    P("background.constant_counts", b.constant_counts);
+    P("background.constant_counts_sigma", b.constant_counts_sigma);
+    if (b.has_tail) {
+      P("background.tail_counts_at_0eV", b.tail_counts_at_zero);
+      P("background.tail_counts_at_0eV_sigma", b.tail_counts_at_zero_sigma);
+      P("background.tail_decay_eV", b.tail_decay_eV);
+      P("background.tail_decay_eV_sigma", b.tail_decay_eV_sigma);
+    }
+    if (b.has_tof) {
+      P("background.tof_counts", b.tof_counts);
+      P("background.tof_counts_sigma", b.tof_counts_sigma);
+      P("background.tof_reference_eV", b.tof_reference_eV);
+    }
+    P("background.rows", I(b.rows));
+    P("background.deviance", b.fit_deviance);
+  }
+  if (!b.note.empty()) P("background.note", b.note);
+  P("hot_pixels_replaced", I(s.hot_pixels_replaced));
+  P("saturated_bins", I(s.saturated_bins));
+  if (s.saturated_bins) {
+    P("saturation_level_counts", s.saturation_level_counts);
+    P("saturation_source", s.saturation_source);
+  }
+  if (s.photon_energy_eV > 0) P("photon_energy_eV", s.photon_energy_eV);
+  P("window_source", s.window_source.empty() ? std::string("whole axis") : s.window_source);
+  if (!s.window_source.empty()) {
+    P("window_lo_eV", s.window_lo_eV);
+    P("window_hi_eV", s.window_hi_eV);
+  }
+  P("energy_resampled", s.energy_resampled);
+  P("energy_step_eV", s.energy_step_eV);
+  P("energy_jacobian", std::string("counts per unit energy divided by p = sqrt(2W)"));
+  P("centroid_energy_eV", s.centroid_energy_eV);
+  P("central_momentum_au", s.central_momentum_au);
+  P("bandwidth_fwhm_eV", s.bandwidth_fwhm_eV);
+  P("bandwidth_to_energy_ratio", s.bandwidth_ratio);
+  P("field_free_spectrum", s.field_free_source);
+  P("field_free_measured", s.field_free_measured);
+  P("grid_size", I(s.grid_size));
+  P("grid_dt_as", s.grid_dt_as);
+  P("total_counts", s.total_counts);
+  P("peak_counts", s.peak_counts);
 }
 
 }  // namespace sw

@@ -3,14 +3,25 @@
 // practitioner would otherwise do by hand. Each step is recorded (PreprocessSummary) and
 // echoed into result.json under "preprocess".
 //
-//   1. background: the sidecar's value, or an estimate from signal-free energy bins (bins
-//      outside the signal region -- first to last bin whose delay-averaged signal exceeds
-//      `signal_free_fraction` of the maximum, widened by half its width on each side for the
-//      wings -- and below that threshold); the mean of their counts, which is unbiased for
-//      Poisson counts, unlike the median;
-//   2. isolated hot pixels (optional, no smoothing): a pixel above the median of its 8
-//      neighbours by more than `hot_pixel_sigma` Poisson standard deviations AND more than
-//      `hot_pixel_ratio` times that median is replaced by the median;
+//   0. saturation: a plateau of identical maximal counts (at least `saturation_plateau_bins`
+//      8-connected bins at the scan's largest value), or every bin at or above the sidecar's
+//      saturation_counts; those bins get RetrievalProblem::weight = 0 (not data);
+//   1. background: the sidecar's constant, or the model of retrieval/background.h fitted by
+//      Poisson maximum likelihood over the delay-independent bins outside the signal envelope
+//      (constant + significant low-energy tail + for time-of-flight scans the t^3-Jacobian
+//      term), subtracted signed (unbiased);
+//   2. isolated hot pixels (on by default, no smoothing; interior pixels): a pixel c is
+//      replaced by the median of its 8 neighbours when it is isolated in delay, c above
+//      `hot_pixel_ratio` x and `hot_pixel_sigma` Poisson sigmas over the larger delay
+//      neighbour, AND in energy, c above `hot_pixel_sigma` sigmas over the larger energy
+//      neighbour (sigma from the larger of it and the 8-neighbour mean) and `hot_pixel_ratio`
+//      x the smaller one. A one-bin-wide harmonic is a ridge along delay and stays; a row
+//      shifted by stage jitter has a high energy neighbour and stays;
+//   2b. lines and window (retrieval/lines.h): the lines of the gas (or the sidecar's) are
+//      found in the delay-integrated spectrum; the strongest is the reference, analysed
+//      alone inside a window that excludes the others (not for scans of kind rabbitt);
+//      options.energy_window_* and the sidecar's energy_window_eV override the window (in
+//      that order);
 //   3. energy resampling onto a uniform axis when the measured one is not uniform
 //      (overlap rebinning of counts: conserves counts exactly); delay axes stay as measured
 //      (the engines accept any delay grid);
@@ -28,23 +39,34 @@
 //   7. the XUV grid: frequency step = energy step, size the next power of two >= 2x the number
 //      of energy bins (so the measured band sits inside the FFT band with margin).
 
+#include <cstdint>
 #include <string>
 #include <vector>
 
+#include "retrieval/background.h"
 #include "retrieval/engine.h"
 #include "retrieval/support.h"
+#include "retrieval/lines.h"
 #include "retrieval/trace.h"
 
 namespace sw {
 
 struct PreprocessOptions {
-  /// Fraction of the delay-averaged maximum below which an energy bin counts as signal-free.
-  double signal_free_fraction = 0.02;   ///< in (0, 1)
-  /// Minimum share of signal-free bins for an automatic background estimate.
-  double min_signal_free_share = 0.05;  ///< in (0, 1)
-  bool remove_hot_pixels = false;
-  double hot_pixel_sigma = 8.0;         ///< > 0
-  double hot_pixel_ratio = 5.0;         ///< > 1
+  /// Replace isolated hot pixels (step 2).
+  bool remove_hot_pixels = true;
+  double hot_pixel_sigma = 8.0;         ///< > 0, Poisson sigmas above the reference r (step 2)
+  double hot_pixel_ratio = 5.0;         ///< > 1, times the reference r (step 2)
+  /// Smallest 8-connected plateau of bins at the scan's largest value taken as saturation.
+  int saturation_plateau_bins = 3;      ///< >= 2
+  /// Background model fit (retrieval/background.h).
+  BackgroundOptions background;
+  /// Line detection (retrieval/lines.h).
+  LineOptions lines;
+  /// Restrict the analysis to the reference line's window when other lines are found.
+  bool window_reference_line = true;
+  /// User's analysis window of photoelectron kinetic energy (eV); both 0 = none. Overrides
+  /// the sidecar's energy_window_eV and the automatic window.
+  double energy_window_lo_eV = 0.0, energy_window_hi_eV = 0.0;
   /// Largest centroid shift (fraction of the scan's largest) of a field-free edge row.
   double field_free_shift_fraction = 0.1;  ///< in (0, 1)
   /// XUV grid size; 0 = automatic (next power of two >= 2 x energy bins, at least 256).
@@ -57,9 +79,10 @@ struct PreprocessOptions {
 };
 
 struct PreprocessSummary {
-  double background_counts = 0.0;       ///< per bin, subtracted
-  std::string background_source;        ///< "sidecar", "signal-free bins", "none"
-  std::size_t signal_free_bins = 0;
+  double background_counts = 0.0;       ///< constant term per bin, subtracted
+  std::string background_source;        ///< "sidecar", "fit" (Poisson ML), "none"
+  std::size_t signal_free_bins = 0;     ///< energy bins the background fit used
+  BackgroundModel background;           ///< the full model (model "sidecar constant" / "none" too)
   std::size_t hot_pixels_replaced = 0;
   bool energy_resampled = false;
   double energy_step_eV = 0.0;
@@ -90,6 +113,10 @@ struct PreprocessSummary {
   /// marked reference and analysed.
   std::vector<LineEntry> lines;
   std::size_t saturated_bins = 0;       ///< given zero weight
+  double saturation_level_counts = 0.0;  ///< counts at which saturation was found (0 = none)
+  std::string saturation_source;        ///< "sidecar", "plateau" or "" (none)
+  std::string window_source;            ///< "option", "sidecar", "reference line", "" (whole axis)
+  double photon_energy_eV = 0.0;        ///< from the line pattern (0 = no line found)
   std::vector<std::string> warnings;
 };
 
@@ -98,7 +125,19 @@ struct PreprocessSummary {
 RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& options,
                             PreprocessSummary* summary);
 
-/// Poisson resample of a trace's counts (parametric bootstrap replica), seeded.
+/// Poisson resample of a trace's counts (parametric bootstrap replica), seeded. Saturated
+/// bins (detect_saturation) keep their value and draws are clipped at the saturation level,
+/// as the detector would.
 Trace poisson_resample(const Trace& trace, unsigned long long seed);
+
+/// Saturated bins of counts (delays x energies): 1 = saturated. By the sidecar level when
+/// given (> 0), else by a plateau of at least `plateau_bins` 8-connected bins at the largest
+/// value (relative tolerance 1e-9), which fixes the level: then every bin at it is saturated.
+/// *level receives the level (0 when none).
+Eigen::Matrix<std::uint8_t, Eigen::Dynamic, Eigen::Dynamic> detect_saturation(
+    const Eigen::MatrixXd& counts, double sidecar_level, int plateau_bins, double* level);
+
+/// The preprocessing record as result.json keys under "preprocess." (appended to `out`).
+void append_preprocess_params(const PreprocessSummary& summary, std::vector<Param>* out);
 
 }  // namespace sw

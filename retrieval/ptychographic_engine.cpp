@@ -111,7 +111,7 @@ class PtychographicEngine final : public Engine {
     history_.clear();
     // Noise floor of the trace error (engine.h), for the decision to add momentum nodes.
     noise_floor_ = problem.variance.size() != 0
-                       ? noise_floor_trace_error(problem.intensity, problem.variance)
+                       ? noise_floor_trace_error(problem.intensity, problem.variance, &problem.weight)
                        : 0.0;
     forced_bands_ = options.extra_int("momentum_bands", 0) > 0;
     order_.resize(cma_->num_delays());

@@ -414,23 +414,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
 
   auto P = [&](const std::string& k, auto v2) { res.extra.push_back({k, v2}); };
   const PreprocessSummary& s = out.preprocess;
-  P("preprocess.background_counts", s.background_counts);
-  P("preprocess.background_source", s.background_source);
-  P("preprocess.signal_free_bins", static_cast<long long>(s.signal_free_bins));
-  P("preprocess.hot_pixels_replaced", static_cast<long long>(s.hot_pixels_replaced));
-  P("preprocess.energy_resampled", s.energy_resampled);
-  P("preprocess.energy_step_eV", s.energy_step_eV);
-  P("preprocess.energy_jacobian", std::string("counts per unit energy divided by p = sqrt(2W)"));
-  P("preprocess.centroid_energy_eV", s.centroid_energy_eV);
-  P("preprocess.central_momentum_au", s.central_momentum_au);
-  P("preprocess.bandwidth_fwhm_eV", s.bandwidth_fwhm_eV);
-  P("preprocess.bandwidth_to_energy_ratio", s.bandwidth_ratio);
-  P("preprocess.field_free_spectrum", s.field_free_source);
-  P("preprocess.field_free_measured", s.field_free_measured);
-  P("preprocess.grid_size", static_cast<long long>(s.grid_size));
-  P("preprocess.grid_dt_as", s.grid_dt_as);
-  P("preprocess.total_counts", s.total_counts);
-  P("preprocess.peak_counts", s.peak_counts);
+  append_preprocess_params(s, &res.extra);
+  if (res.lines.empty()) res.lines = s.lines;
   P("fit.model", rec.model);
   P("fit.noise_floor_trace_error", rec.noise_floor_trace_error);
   P("fit.scale", rec.scale);

@@ -20,6 +20,15 @@ const char* to_string(TraceKind k);
 /// Parses "streaking", "rabbitt", "xuv_only" or "" (unknown); returns false on anything else.
 bool parse_trace_kind(const std::string& s, TraceKind* out);
 
+/// A photoelectron line declared by the sidecar's `lines` key (DESIGN.md trace contract).
+struct DeclaredLine {
+  std::string name;                            ///< e.g. "2s"; matched against the gas table
+  /// Binding energy (eV); nullopt = "auto" (the gas table's value for `name`).
+  std::optional<double> ionization_energy_eV;
+  std::optional<double> relative_strength;     ///< optional, as declared (> 0)
+  std::string gas;                             ///< gas of the line ("" = the sidecar's gas)
+};
+
 /// Everything the sidecar says about a scan besides its axes and counts.
 struct TraceMeta {
   std::string source;                 ///< sidecar path the trace was read from ("" if synthetic)
@@ -32,6 +41,13 @@ struct TraceMeta {
   bool background_auto = false;       ///< sidecar asked for "auto" background estimation
   std::optional<double> energy_resolution_eV;  ///< spectrometer FWHM resolution
   std::string notes;                  ///< free-form notes
+  /// Analysis band of photoelectron kinetic energy [lo, hi] (eV, finite, lo < hi) from the
+  /// sidecar's energy_window_eV; empty = chosen by preprocessing (retrieval/lines.h).
+  std::vector<double> energy_window_eV;
+  /// Detector saturation level in counts per bin (after `scale`); nullopt = detect plateaus.
+  std::optional<double> saturation_counts;
+  /// Lines declared by the sidecar (`lines`); empty = detected from the gas and photon energy.
+  std::vector<DeclaredLine> lines;
   /// Sidecar keys the contract does not define: key -> JSON text of the value, echoed into
   /// result.json untouched.
   std::map<std::string, std::string> extra_json;
