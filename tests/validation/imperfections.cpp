@@ -502,7 +502,8 @@ std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const Swe
           std::fprintf(stderr, "%-28s FWHM %7.1f +- %5.1f / %7.1f as (%+6.1f %%)  A0 %+6.1f %%  %s/%s  %s%s  %.0f s\n",
                        r.name.c_str(), r.fwhm_as, r.fwhm_sigma_as, r.truth_fwhm_as, 100 * r.fwhm_error(),
                        100 * r.a0_error(), r.retrieved_class.c_str(), r.truth_class.c_str(),
-                       r.trusted ? "trusted" : "untrusted", r.wrong() ? " WRONG" : "", r.seconds);
+                       !r.has_quality ? "no-quality-section" : r.trusted ? "trusted" : "untrusted",
+                       r.wrong() ? " WRONG" : "", r.seconds);
       }
     }
   };
