@@ -33,7 +33,8 @@ int main(int argc, char** argv) {
         const std::string v = value(flag);
         char* end = nullptr;
         const long n = std::strtol(v.c_str(), &end, 10);
-        if (v.empty() || *end != '\0') throw usage_error(std::string(flag) + " " + v + ": expected an integer");
+        if (v.empty() || *end != '\0')
+          throw usage_error(std::string(flag) + " " + v + ": expected an integer");
         return static_cast<int>(n);
       };
       if (a == "--list") {
@@ -57,8 +58,9 @@ int main(int argc, char** argv) {
       } else if (a == "--work") {
         o.work_dir = value("--work");
       } else if (a == "-h" || a == "--help") {
-        std::printf("usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
-                    "[--jobs N (1)] [--work DIR] [--list] [--check-scans]\n");
+        std::printf(
+            "usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
+            "[--jobs N (1)] [--work DIR] [--list] [--check-scans]\n");
         return 0;
       } else if (!a.empty() && a[0] == '-') {
         throw usage_error("unknown option " + a);
