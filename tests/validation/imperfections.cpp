@@ -427,6 +427,7 @@ SweepRow run_case(const ValidationCase& k, const SweepOptions& o, const std::str
     }
     RetrieveOptions ro;
     ro.bootstrap = o.bootstrap;
+    ro.engine = o.engine;
     ro.threads = 1;
     const RetrieveOutput r = retrieve(trace, ro);
     const AnalysisResult& a = r.result;

@@ -40,7 +40,10 @@ double tolerance_for(const synthetic::ScanConfig& c, bool no_field_free);
 std::vector<ValidationCase> validation_cases();
 
 struct SweepOptions {
-  int bootstrap = 4;     ///< Poisson-bootstrap replicas per retrieval (>= 0)
+  int bootstrap = 4;  ///< Poisson-bootstrap replicas per retrieval (>= 0)
+  /// Engine of sw::retrieve ("auto" = the default chain; or a registered engine name, for the
+  /// per-engine errors of docs/validation.md).
+  std::string engine = "auto";
   int jobs = 1;          ///< cases run at the same time (threads, >= 1)
   std::string work_dir;  ///< folder for the scans written through files (TOF); "" = temp
   bool verbose = true;   ///< one line per finished case on stderr
