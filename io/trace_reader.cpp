@@ -740,7 +740,7 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
       } else if (k == "length_m") {
         cal.length_m = sc.number(*it, f);
         if (!(cal.length_m > 0 && cal.length_m <= 100))
-          sc.fail(f, "is " + num(cal.length_m) + "; expected a flight length in (0, 100] m");
+          sc.fail(f, "is " + num(cal.length_m) + "; expected a flight length > 0 and <= 100 m");
       } else if (k == "t0_ns") {
         cal.t0_ns = sc.number(*it, f);
         if (!(std::abs(cal.t0_ns) <= ranges::kMaxTofNs))
