@@ -101,6 +101,10 @@ ScanOutcome run_scan(const ScanJob& job) {
   } catch (const Error& e) {
     o.ok = false;
     o.message = e.what();
+    // Every message names the file (an engine's own message may not).
+    if (const std::string shown = printable_path(job.sidecar);
+        o.message.find(shown) == std::string::npos && o.message.find(job.sidecar) == std::string::npos)
+      o.message = "scan '" + shown + "': " + o.message;
     o.exit_code = e.exit_code();
     o.error_kind = e.kind();
     if (e.kind() == ErrorKind::kNumeric) {  // nothing was written: not the exit 4 of a result

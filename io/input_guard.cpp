@@ -334,7 +334,8 @@ ImageHeader read_image_header(const std::string& path) {
     return hd;
   }
   throw input_error("the data file '" + shown +
-                    "' is neither a PNG nor a TIFF (by its first bytes); expected a 16-bit PNG, "
+                    "' could not be decoded: it is neither a PNG nor a TIFF (by its first "
+                    "bytes); expected a 16-bit PNG, "
                     "a 16/32-bit TIFF, a CSV matrix (.csv/.txt/.dat/.tsv) or an HDF5 dataset");
 }
 

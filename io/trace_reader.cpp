@@ -168,6 +168,20 @@ json load_sidecar(const std::string& path) {
     throw input_error("sidecar '" + shown + "' has extension '" + escape_excerpt(ext) +
                       "'; expected NAME.json (JSON) or NAME.yaml / NAME.yml (YAML)");
   const std::string text = read_regular_file(path, limits::kMaxSidecarBytes, "sidecar");
+  // result.json echoes sidecar text: it must be UTF-8 (RFC 8259 section 8.1).
+  if (!is_valid_utf8(text)) {
+    std::size_t line = 1;
+    for (std::size_t i = 0; i < text.size(); ++i) {
+      const auto c = static_cast<unsigned char>(text[i]);
+      if (c == '\n') ++line;
+      if (c < 0x80) continue;
+      const std::size_t n = c >= 0xF0 ? 4 : c >= 0xE0 ? 3 : c >= 0xC0 ? 2 : 1;
+      if (!is_valid_utf8(std::string_view(text).substr(i, n))) break;
+      i += n - 1;
+    }
+    throw input_error("sidecar '" + shown + "' is not valid UTF-8 (first bad byte near line " +
+                      std::to_string(line) + "); expected UTF-8 text");
+  }
   // Every parser below recurses (cv::FileStorage, nlohmann's dump): bound the nesting first.
   {
     int line = 0;
@@ -743,7 +757,7 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
       } else if (k == "length_m") {
         cal.length_m = sc.number(*it, f);
         if (!(cal.length_m > 0 && cal.length_m <= 100))
-          sc.fail(f, "is " + num(cal.length_m) + "; expected a flight length in (0, 100] m");
+          sc.fail(f, "is " + num(cal.length_m) + "; expected a flight length > 0 and <= 100 m");
       } else if (k == "t0_ns") {
         cal.t0_ns = sc.number(*it, f);
         if (!(std::abs(cal.t0_ns) <= ranges::kMaxTofNs))

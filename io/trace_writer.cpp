@@ -180,7 +180,8 @@ TraceFiles write_trace(const Trace& trace, const std::string& sidecar_path, Trac
           (k > 0 && !(ta.tof_ns[order[k]] > ta.tof_ns[order[k - 1]])))
         throw input_error("cannot write the trace '" + sidecar_path +
                           "': flight times must be finite, distinct and after t0_ns");
-      cols.col(static_cast<Eigen::Index>(k)) = trace.counts.col(static_cast<Eigen::Index>(order[k]));
+      cols.col(static_cast<Eigen::Index>(k)) =
+          trace.counts.col(static_cast<Eigen::Index>(order[k]));
       tof_sorted.push_back(ta.tof_ns[order[k]]);
     }
   }

@@ -114,11 +114,9 @@ SyntheticScan generate_scan(const ScanConfig& c, unsigned long long seed) {
   if (c.tof.enabled()) {
     // Energy resolution acts in energy; then counts per energy bin move to flight-time bins.
     if (c.noise.resolution != ResolutionKind::kNone)
-      EnergyResolution(c.noise.resolution == ResolutionKind::kConstant ? c.noise.resolution_fwhm_eV
-                                                                       : 0.0,
-                       c.noise.resolution == ResolutionKind::kRelative
-                           ? c.noise.resolution_relative
-                           : 0.0)
+      EnergyResolution(
+          c.noise.resolution == ResolutionKind::kConstant ? c.noise.resolution_fwhm_eV : 0.0,
+          c.noise.resolution == ResolutionKind::kRelative ? c.noise.resolution_relative : 0.0)
           .apply(counts, W_eV, streams);
     const TofRecorder rec(c.tof, W_eV);
     counts = rec.rebin(counts * c.geometry.energy_eV.step);
@@ -184,7 +182,8 @@ SyntheticScan generate_scan(const ScanConfig& c, unsigned long long seed) {
   const double min_window = units::kTwoPi / (xuv_spectral_scale_au(c.xuv) / 32.0);
   out.xuv = refine_xuv(c.xuv, built.field.grid(), fine_step, min_window);
   out.truth = make_truth(c, out.xuv, ir_table ? &*ir_table : nullptr);
-  out.truth.lines = truth_lines(lines, out.line_totals, out.truth.xuv->center_photon_energy_eV.value_or(units::au_to_eV(wc)));
+  out.truth.lines = truth_lines(
+      lines, out.line_totals, out.truth.xuv->center_photon_energy_eV.value_or(units::au_to_eV(wc)));
   out.parameters = generator_parameters(c, seed, out.quadrature_step_au, out.quadrature_nodes,
                                         built.field.grid().window(), out.rows);
   if (!out.hot_pixels.empty()) {

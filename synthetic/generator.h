@@ -64,7 +64,8 @@ struct SyntheticScan {
   /// The exact XUV field on the finely sampled truth grid.
   XuvField xuv;
   /// Noise-free energy density p |a|^2 (a.u.) of every row at its actual delay and IR pulse,
-  /// before resolution and scaling; same layout as trace.counts.
+  /// before resolution and scaling, summed over the lines; rows = delays, columns = the config's
+  /// energy axis (the layout of trace.counts, except with time-of-flight recording).
   Eigen::MatrixXd clean;
   /// The realised per-row perturbations (all zero / one when disabled).
   std::vector<RowPerturbation> rows;

@@ -85,9 +85,9 @@ std::vector<HotPixel> draw_hot_pixels(const NoiseConfig& n, Eigen::Index rows, E
   if (n.hot_pixels <= 0) return out;
   // At most one pixel per 3 x 3 block keeps the rejection sampling short.
   if (static_cast<double>(n.hot_pixels) > 0.1 * static_cast<double>(rows * cols) / 9.0)
-    throw usage_error("noise.hot_pixels = " + std::to_string(n.hot_pixels) +
-                      " is too many for a " + std::to_string(rows) + " x " +
-                      std::to_string(cols) + " scan: at most 1 per 90 pixels");
+    throw usage_error("noise.hot_pixels = " + std::to_string(n.hot_pixels) + " is too many for a " +
+                      std::to_string(rows) + " x " + std::to_string(cols) +
+                      " scan: at most 1 per 90 pixels");
   auto& g = streams[Stream::kHotPixels];
   std::uniform_int_distribution<Eigen::Index> r(0, rows - 1), c(0, cols - 1);
   std::uniform_real_distribution<double> f(n.hot_pixel_factor_min, n.hot_pixel_factor_max);
@@ -174,8 +174,7 @@ NoisePipeline make_noise_pipeline(const NoiseConfig& n, const std::vector<HotPix
   p.push_back(std::make_unique<PeakScaling>(n.peak_counts));
   if (n.background_counts > 0 || n.background_exp_counts > 0)
     p.push_back(std::make_unique<Background>(n.background_counts, n.background_exp_counts,
-                                             n.background_exp_decay_eV,
-                                             n.background_exp_onset_eV));
+                                             n.background_exp_decay_eV, n.background_exp_onset_eV));
   add_counting_stages(p, n, hot);
   return p;
 }

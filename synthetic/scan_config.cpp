@@ -322,8 +322,10 @@ std::string ScanConfig::validate() const {
     if (!finite(tof.length_m) || !(tof.length_m > 0) || tof.length_m > 100)
       return bad("tof.length_m", tof.length_m, "a drift length in (0, 100] m");
     if (!finite(tof.t0_ns)) return bad("tof.t0_ns", tof.t0_ns, "finite");
-    if (!finite(tof.energy_offset_eV)) return bad("tof.energy_offset_eV", tof.energy_offset_eV, "finite");
-    if (tof.bins != 0 && tof.bins < 2) return bad("tof.bins", tof.bins, "0 (as many as energy bins) or >= 2");
+    if (!finite(tof.energy_offset_eV))
+      return bad("tof.energy_offset_eV", tof.energy_offset_eV, "finite");
+    if (tof.bins != 0 && tof.bins < 2)
+      return bad("tof.bins", tof.bins, "0 (as many as energy bins) or >= 2");
     const double lowest_edge = geometry.energy_eV.first - 0.5 * geometry.energy_eV.step;
     if (!(lowest_edge - tof.energy_offset_eV > 0))
       return bad("tof.energy_offset_eV", tof.energy_offset_eV,
@@ -337,8 +339,8 @@ std::vector<ResolvedLine> ScanConfig::resolved_lines() const {
   const Gas& main = find_gas(gas);
   std::vector<ResolvedLine> out;
   if (lines.empty()) {
-    out.push_back({main.symbol, main.lines.front().name, main.lines.front().ionization_energy_eV,
-                   1.0, 0.0});
+    out.push_back(
+        {main.symbol, main.lines.front().name, main.lines.front().ionization_energy_eV, 1.0, 0.0});
     return out;
   }
   for (std::size_t i = 0; i < lines.size(); ++i) {

@@ -140,17 +140,17 @@ struct NoiseConfig {
   /// start above the lowest recorded energy); background_exp_counts is then the level at the
   /// onset. The tail is the same in every delay row.
   double background_exp_onset_eV = 0.0;
-  bool poisson = true;                    ///< replace expected counts by Poisson draws
-  double readout_rms_counts = 0.0;        ///< Gaussian readout noise, rms counts per bin (>= 0)
-  double saturation_counts = 0.0;         ///< clip level of the detector (0 = no saturation)
+  bool poisson = true;              ///< replace expected counts by Poisson draws
+  double readout_rms_counts = 0.0;  ///< Gaussian readout noise, rms counts per bin (>= 0)
+  double saturation_counts = 0.0;   ///< clip level of the detector (0 = no saturation)
   /// Hot pixels: this many isolated pixels (no two in one 3 x 3 neighbourhood) read
   /// factor x max(1, mean of their 8 neighbours' counts), the factor uniform in
   /// [hot_pixel_factor_min, hot_pixel_factor_max]; after readout noise, before the clip (>= 0).
   int hot_pixels = 0;
   double hot_pixel_factor_min = 20.0;   ///< smallest factor over the local counts (>= 2)
   double hot_pixel_factor_max = 200.0;  ///< largest factor (>= hot_pixel_factor_min)
-  double delay_jitter_rms_fs = 0.0;       ///< independent delay error per row, rms (fs, >= 0)
-  double delay_drift_fs_per_row = 0.0;    ///< linear stage drift per acquired row (fs, any sign)
+  double delay_jitter_rms_fs = 0.0;     ///< independent delay error per row, rms (fs, >= 0)
+  double delay_drift_fs_per_row = 0.0;  ///< linear stage drift per acquired row (fs, any sign)
   double delay_walk_rms_fs = 0.0;   ///< random-walk drift: rms of each row's increment (fs, >= 0)
   double ir_intensity_rms = 0.0;    ///< relative rms of the IR peak intensity per row, [0, 1)
   double cep_jitter_rms_rad = 0.0;  ///< rms of the IR CEP per row (rad, >= 0)
@@ -199,11 +199,11 @@ struct LineSpec {
 
 /// A line of a LineSpec with the table looked up.
 struct ResolvedLine {
-  std::string gas;                   ///< gas symbol
-  std::string name;                  ///< hole orbital or label
-  double ionization_energy_eV = 0.0; ///< threshold (eV)
-  double relative_strength = 1.0;    ///< |dipole|^2 factor
-  double delay_as = 0.0;             ///< photoemission delay (as)
+  std::string gas;                    ///< gas symbol
+  std::string name;                   ///< hole orbital or label
+  double ionization_energy_eV = 0.0;  ///< threshold (eV)
+  double relative_strength = 1.0;     ///< |dipole|^2 factor
+  double delay_as = 0.0;              ///< photoemission delay (as)
 };
 
 /// Time-of-flight recording: the scan is written on a flight-time axis instead of the energy

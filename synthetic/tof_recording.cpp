@@ -49,11 +49,13 @@ TofRecorder::TofRecorder(const TofConfig& c, const std::vector<double>& E) {
   for (std::size_t j = 0; j < n; ++j) {
     const double a = edge[j], b = edge[j + 1], w = b - a;
     // First column whose interval ends above a (e_hi ascending).
-    std::size_t q = static_cast<std::size_t>(std::upper_bound(e_hi.begin(), e_hi.end(), a) - e_hi.begin());
+    std::size_t q =
+        static_cast<std::size_t>(std::upper_bound(e_hi.begin(), e_hi.end(), a) - e_hi.begin());
     for (; q < m && e_lo[q] < b; ++q) {
       const double lo = std::max(a, e_lo[q]), hi = std::min(b, e_hi[q]);
       if (hi > lo)
-        shares_.push_back({static_cast<Eigen::Index>(j), static_cast<Eigen::Index>(q), (hi - lo) / w});
+        shares_.push_back(
+            {static_cast<Eigen::Index>(j), static_cast<Eigen::Index>(q), (hi - lo) / w});
     }
   }
   // Renormalise each energy bin's shares to exactly 1 (rounding of the edges).

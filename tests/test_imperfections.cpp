@@ -60,7 +60,8 @@ double centroid_eV(const SyntheticScan& s, double lo, double hi) {
   for (std::size_t j = 0; j < s.trace.energy_au.size(); ++j) {
     const double W = units::au_to_eV(s.trace.energy_au[j]);
     if (W < lo || W > hi) continue;
-    const double a2 = s.clean(0, static_cast<Eigen::Index>(j)) / std::sqrt(2.0 * s.trace.energy_au[j]);
+    const double a2 =
+        s.clean(0, static_cast<Eigen::Index>(j)) / std::sqrt(2.0 * s.trace.energy_au[j]);
     m0 += a2;
     m1 += a2 * W;
   }
@@ -124,14 +125,14 @@ TEST_CASE("a photoemission delay shifts the line's streaking trace in delay",
   const SyntheticScan late = generate_scan(c, 1);
   const double scale = prompt.clean.maxCoeff();
   for (Eigen::Index i = 0; i + 3 < prompt.clean.rows(); ++i)
-    CHECK((late.clean.row(i) - prompt.clean.row(i + 3)).cwiseAbs().maxCoeff() / scale <
-          1e-9);
+    CHECK((late.clean.row(i) - prompt.clean.row(i + 3)).cwiseAbs().maxCoeff() / scale < 1e-9);
   CHECK((late.clean.row(10) - prompt.clean.row(10)).cwiseAbs().maxCoeff() / scale > 1e-3);
   // The delay axis is the nominal one in both.
   CHECK(late.trace.delay_au == prompt.trace.delay_au);
 }
 
-TEST_CASE("IR-only low-energy tail: onset, decay, the same in every row", "[imperfections][noise]") {
+TEST_CASE("IR-only low-energy tail: onset, decay, the same in every row",
+          "[imperfections][noise]") {
   // The documented model (synthetic/noise.h): 0 below the onset, the set level at the onset,
   // 1/e of it one decay energy above (definition of an exponential).
   const Background b(0.0, 300.0, 8.0, 3.0);
@@ -264,7 +265,8 @@ TEST_CASE("time-of-flight scan: written, read back by io, counts and line conser
     }
     return m1 / m0;
   };
-  for (Eigen::Index i = 0; i < 5; ++i) CHECK(centroid(back, i) == Approx(centroid(e.trace, i)).margin(0.02));
+  for (Eigen::Index i = 0; i < 5; ++i)
+    CHECK(centroid(back, i) == Approx(centroid(e.trace, i)).margin(0.02));
   // Sidecar: flight-time axis and calibration block, no energy axis.
   const std::string text = [&] {
     std::ifstream in(f.sidecar);
@@ -313,8 +315,8 @@ TEST_CASE("1.8 um driver at 300 eV: classical streaking amplitude p0 A0", "[impe
     }
     cen.push_back(m1 / m0);
   }
-  const double swing = 0.5 * (*std::max_element(cen.begin(), cen.end()) -
-                              *std::min_element(cen.begin(), cen.end()));
+  const double swing =
+      0.5 * (*std::max_element(cen.begin(), cen.end()) - *std::min_element(cen.begin(), cen.end()));
   const double p0 = std::sqrt(2.0 * units::eV_to_au(300.0 - 24.5874));
   const double A0 = *s.truth.ir->peak_vector_potential_au;
   // A0 = E0 / omega with E0 from 1e12 W/cm^2 (I = E0^2 x 3.51e16 W/cm^2 per a.u.^2) and
@@ -350,13 +352,14 @@ TEST_CASE("a train of three bursts has three comparable bursts", "[imperfections
 TEST_CASE("simulate --config reads lines and tof keys and writes a flight-time scan",
           "[imperfections][cli]") {
   test::TempDir dir("gencfg");
-  test::write_text(dir / "scan.yaml",
-                   "preset: neon-150as\n"
-                   "energy_eV: {first: 40, step: 0.1, count: 750}\n"
-                   "delay_fs: {first: -1, step: 0.5, count: 5}\n"
-                   "lines: [{name: \"2p\"}, {name: \"2s\", relative_strength: 0.3, delay_as: 12}]\n"
-                   "tof: {length_m: 1.0, t0_ns: 2, bins: 300}\n"
-                   "noise: {hot_pixels: 2, background_exp_counts: 5, background_exp_onset_eV: 3}\n");
+  test::write_text(
+      dir / "scan.yaml",
+      "preset: neon-150as\n"
+      "energy_eV: {first: 40, step: 0.1, count: 750}\n"
+      "delay_fs: {first: -1, step: 0.5, count: 5}\n"
+      "lines: [{name: \"2p\"}, {name: \"2s\", relative_strength: 0.3, delay_as: 12}]\n"
+      "tof: {length_m: 1.0, t0_ns: 2, bins: 300}\n"
+      "noise: {hot_pixels: 2, background_exp_counts: 5, background_exp_onset_eV: 3}\n");
   const std::string cmd = std::string(STREAKWRIGHT_CLI_PATH) + " simulate --quiet --config " +
                           (dir / "scan.yaml") + " --name s --out " + dir.path.string() + " 2>&1";
   FILE* p = popen(cmd.c_str(), "r");

@@ -27,10 +27,10 @@ TEST_CASE("validation set: >= 30 distinct named scenarios, every imperfection pr
     good += k.good;
     low += k.config.noise.peak_counts <= 50;
   }
-  for (const char* g : {"good", "low counts", "background", "low-energy electrons", "second line",
-                        "two-gas mixture", "time of flight", "resolution", "delay drift",
-                        "no field-free rows", "train", "satellites", "long wavelength",
-                        "hot pixels", "saturation"})
+  for (const char* g :
+       {"good", "low counts", "background", "low-energy electrons", "second line",
+        "two-gas mixture", "time of flight", "resolution", "delay drift", "no field-free rows",
+        "train", "satellites", "long wavelength", "hot pixels", "saturation"})
     CHECK(groups.count(g) == 1);
   CHECK(good >= 5);
   CHECK(low >= 4);

@@ -357,3 +357,12 @@ TEST_CASE("input guard helpers", "[io][limits]") {
   CHECK_FALSE(sw::path_inside(d / "in/../x.png", d / "in"));
   CHECK_FALSE(sw::path_inside(d / "inner/x.png", d / "in"));  // a prefix is not a parent
 }
+
+TEST_CASE("a sidecar that is not UTF-8 is an input error with its line", "[io][limits]") {
+  // RFC 8259 section 8.1 (JSON exchanged between systems is UTF-8); result.json echoes
+  // sidecar text, so a Latin-1 byte would make the writer fail (exit 1).
+  Scan s;
+  write_text(s.dir / "latin1.yaml",
+             "streakwright: 1\nimage: good.png\nlayout: delay_rows\nnotes: \"caf\xe9\"\n");
+  CHECK_THAT(input_error(s.dir / "latin1.yaml"), Contains("not valid UTF-8") && Contains("line 4"));
+}

@@ -10,6 +10,7 @@
 
 #include <array>
 #include <chrono>
+#include <cstdint>
 #include <cstdio>
 #include <filesystem>
 #include <fstream>
@@ -299,4 +300,92 @@ TEST_CASE("info warns about negative energies and escapes control bytes", "[cli]
   CHECK_THAT(r.out, Contains("below 0 eV"));
   CHECK(r.out.find('\x1b') == std::string::npos);
   CHECK(r.out.find('\r') == std::string::npos);
+}
+
+TEST_CASE("decoder diagnostics do not reach the terminal raw", "[cli][safety]") {
+  // Defect 10: libpng prints "libpng warning: tEXt: CRC error" on stderr for an ancillary
+  // chunk with a wrong CRC (PNG spec, ISO/IEC 15948 section 13.2: ancillary chunk errors are
+  // benign). It must become a warning of the result instead.
+  TempDir d("safety");
+  const fs::path sc = simulate(d.path, "s");
+  auto chunk = [](const std::string& type, const std::string& data, bool bad) {
+    std::uint32_t crc = 0xffffffffu;  // CRC-32 of ISO 3309 / ITU-T V.42 (PNG spec Annex D)
+    for (unsigned char c : type + data) {
+      crc ^= c;
+      for (int k = 0; k < 8; ++k) crc = (crc >> 1) ^ (0xedb88320u & (0u - (crc & 1u)));
+    }
+    crc ^= 0xffffffffu;
+    if (bad) crc ^= 0xdeadbeefu;
+    std::string s;
+    for (int k = 3; k >= 0; --k) s += static_cast<char>((data.size() >> (8 * k)) & 0xff);
+    s += type + data;
+    for (int k = 3; k >= 0; --k) s += static_cast<char>((crc >> (8 * k)) & 0xff);
+    return s;
+  };
+  // Re-encode the simulated PNG with a tEXt chunk of wrong CRC after IHDR.
+  const std::string png = slurp(d.path / "s.png");
+  const std::size_t ihdr_end = 8 + 4 + 4 + 13 + 4;
+  const std::string text = std::string("Comment") + '\0' + "hello";
+  write_text((d.path / "s.png").string(),
+             png.substr(0, ihdr_end) + chunk("tEXt", text, true) + png.substr(ihdr_end));
+  const Run r = cli("info " + q(sc));
+  INFO(r.out);
+  CHECK(r.code == 0);
+  CHECK(r.out.find("\nlibpng") == std::string::npos);
+  CHECK(r.out.rfind("libpng", 0) != 0);
+  CHECK_THAT(r.out, Contains("the decoder reported"));
+}
+
+TEST_CASE("batch records a scan with a non-UTF-8 file name as failed and writes the summary",
+          "[cli][safety][batch]") {
+  // Defect 6: such a name made the summary writer fail (exit 1, no summary). RFC 8259 section
+  // 8.1: JSON text exchanged between systems must be UTF-8.
+  TempDir d("safety");
+  const fs::path in = d.path / "in";
+  const fs::path good = simulate(in, "good");
+  fs::copy_file(good, in / std::string("bad\xff.json"));
+  const Run r = cli("batch " + q(in) + " --out " + q(d.path / "out") + kFast);
+  INFO(r.out);
+  CHECK(r.code == 5);
+  const json rows = json::parse(slurp(d.path / "out" / "summary.json"));
+  CHECK_THAT(rows.dump(), Contains("bad\\\\xff") && Contains("not valid UTF-8"));
+}
+
+TEST_CASE("SIGTERM stops a batch promptly, without partial folders, with the summary written",
+          "[cli][safety][batch][signals]") {
+  // Issue 11: SIGTERM (a scheduler ending the job) used to wait for the running scans.
+  TempDir d("safety");
+  simulate(d.path / "in", "s");
+  const fs::path out = d.path / "out";
+  const pid_t pid = fork();
+  REQUIRE(pid >= 0);
+  if (pid == 0) {
+    const std::string i = (d.path / "in").string(), o = out.string();
+    execl(STREAKWRIGHT_CLI_PATH, "streakwright", "batch", i.c_str(), "--out", o.c_str(),
+          "--iterations", "100000", "--max-seconds", "600", "--quiet", static_cast<char*>(nullptr));
+    _exit(127);
+  }
+  const auto start = std::chrono::steady_clock::now();
+  bool running = false;
+  while (!running && std::chrono::steady_clock::now() - start < std::chrono::seconds(20)) {
+    running = fs::exists(out / ".streakwright.lock");  // taken just before the scans start
+    std::this_thread::sleep_for(std::chrono::milliseconds(50));
+  }
+  REQUIRE(running);
+  std::this_thread::sleep_for(std::chrono::milliseconds(1500));  // inside the engine
+  const auto t_kill = std::chrono::steady_clock::now();
+  kill(pid, SIGTERM);
+  int status = 0;
+  while (waitpid(pid, &status, WNOHANG) == 0 &&
+         std::chrono::steady_clock::now() - t_kill < std::chrono::seconds(10))
+    std::this_thread::sleep_for(std::chrono::milliseconds(10));
+  const double seconds =
+      std::chrono::duration<double>(std::chrono::steady_clock::now() - t_kill).count();
+  CHECK(seconds < 2.0);  // "promptly" (issue 11); summary writing included
+  REQUIRE(WIFEXITED(status));
+  CHECK(WEXITSTATUS(status) == 130);  // docs/cli.md
+  CHECK(fs::exists(out / "summary.json"));
+  for (const auto& e : fs::directory_iterator(out))
+    CHECK(e.path().filename().string().rfind(".tmp-", 0) != 0);
+  CHECK_FALSE(fs::exists(out / ".streakwright.lock"));
 }

@@ -76,9 +76,8 @@ synthetic::LineSpec line(const std::string& gas, const std::string& name, double
   return l;
 }
 
-void add(std::vector<ValidationCase>& v, const std::string& group,
-                   const std::string& description, ScanConfig c, unsigned long long seed,
-                   bool good = false, bool no_field_free = false) {
+void add(std::vector<ValidationCase>& v, const std::string& group, const std::string& description,
+         ScanConfig c, unsigned long long seed, bool good = false, bool no_field_free = false) {
   ValidationCase k;
   k.name = c.name;
   k.imperfection = group;
@@ -109,8 +108,8 @@ std::vector<ValidationCase> validation_cases() {
   // --- good scans: clean, typical (false alarms) ---------------------------------------------
   {
     Scan s;  // neon, 95 eV, 150 as TL, 5 fs 800 nm
-    add(v, "good", "neon 95 eV, 150 as TL, 800 nm 5 fs 5e12, 500 counts",
-        make("good-ne-150as", s), 101, true);
+    add(v, "good", "neon 95 eV, 150 as TL, 800 nm 5 fs 5e12, 500 counts", make("good-ne-150as", s),
+        101, true);
   }
   {
     Scan s{"Ar", 80, 200, 6000, 800, 6, 3e12, 0, {30, 0.25, 300}, {-7, 0.2, 71}, 800};
@@ -124,8 +123,8 @@ std::vector<ValidationCase> validation_cases() {
   }
   {
     Scan s{"Ne", 130, 160, 2000, 1300, 9, 2e12, 0, {62, 0.3, 300}, {-10, 0.25, 81}, 700};
-    add(v, "good", "neon 130 eV, 160 as TL GDD +2000, 1300 nm 9 fs 2e12",
-        make("good-ne-1300nm", s), 104, true);
+    add(v, "good", "neon 130 eV, 160 as TL GDD +2000, 1300 nm 9 fs 2e12", make("good-ne-1300nm", s),
+        104, true);
   }
   {
     Scan s{"Kr", 100, 250, -8000, 800, 7, 2e12, 0, {55, 0.25, 260}, {-8, 0.2, 81}, 400};
@@ -164,7 +163,8 @@ std::vector<ValidationCase> validation_cases() {
     c.noise.background_counts = 1.5;
     add(v, "low counts", "neon 90 eV 140 as GDD -5000, 50 peak counts on 1.5 flat", c, 204);
   }
-  // --- wide window with flat background, non-uniform delays ---------------------------------------
+  // --- wide window with flat background, non-uniform delays
+  // ---------------------------------------
   {
     Scan s{"Ne", 105, 180, 4000, 800, 5, 5e12, 0, {30, 0.3, 300}, {-6, 0.15, 81}, 300};
     ScanConfig c = make("wide-bg-nonuniform-delays", s);
@@ -193,10 +193,11 @@ std::vector<ValidationCase> validation_cases() {
     c.noise.background_exp_counts = 150;
     c.noise.background_exp_onset_eV = 3;
     c.noise.background_exp_decay_eV = 12;
-    add(v, "low-energy electrons", "argon 60 eV, 900 nm, tail 150 counts at 3 eV decaying 12 eV",
-        c, 402);
+    add(v, "low-energy electrons", "argon 60 eV, 900 nm, tail 150 counts at 3 eV decaying 12 eV", c,
+        402);
   }
-  // --- second photoelectron line, two-gas mixture --------------------------------------------------
+  // --- second photoelectron line, two-gas mixture
+  // --------------------------------------------------
   {
     Scan s{"Ne", 120, 160, 0, 800, 5, 5e12, 0, {40, 0.33, 300}, {-6, 0.15, 81}, 500};
     ScanConfig c = make("lines-ne-2s", s);
@@ -214,8 +215,8 @@ std::vector<ValidationCase> validation_cases() {
     Scan s{"He", 100, 250, 0, 800, 7, 3e12, 0, {50, 0.2, 300}, {-8, 0.2, 81}, 500};
     ScanConfig c = make("mixture-he-kr", s);
     c.lines = {line("", "1s", 1.0, 0), line("Kr", "4p", 0.4, 0)};
-    add(v, "two-gas mixture", "helium with krypton (4p line 10.6 eV above He 1s, strength 0.4)",
-        c, 503);
+    add(v, "two-gas mixture", "helium with krypton (4p line 10.6 eV above He 1s, strength 0.4)", c,
+        503);
   }
   // --- time-of-flight recording ------------------------------------------------------------------
   {
@@ -234,10 +235,11 @@ std::vector<ValidationCase> validation_cases() {
     c.tof.energy_offset_eV = 5.0;
     c.tof.bins = 300;
     c.noise.background_counts = 1.0;
-    add(v, "time of flight", "0.5 m drift, t0 3 ns, 5 eV offset, 300 bins, 1 count per time bin",
-        c, 602);
+    add(v, "time of flight", "0.5 m drift, t0 3 ns, 5 eV offset, 300 bins, 1 count per time bin", c,
+        602);
   }
-  // --- spectrometer resolution dE/E ------------------------------------------------------------------
+  // --- spectrometer resolution dE/E
+  // ------------------------------------------------------------------
   {
     Scan s{"Ar", 90, 170, 0, 800, 5, 5e12, 0, {35, 0.3, 300}, {-6, 0.15, 81}, 500};
     ScanConfig c = make("resolution-2pct-ar", s);
@@ -245,7 +247,8 @@ std::vector<ValidationCase> validation_cases() {
     c.noise.resolution_relative = 0.02;
     add(v, "resolution", "argon 90 eV, spectrometer dE/E = 2 %", c, 701);
   }
-  // --- unrecorded delay drift and jitter ------------------------------------------------------------
+  // --- unrecorded delay drift and jitter
+  // ------------------------------------------------------------
   {
     Scan s{"Ne", 95, 150, 5000, 800, 5, 5e12, 0, {40, 0.25, 300}, {-6, 0.15, 81}, 500};
     ScanConfig c = make("drift-jitter-ne", s);
@@ -259,10 +262,11 @@ std::vector<ValidationCase> validation_cases() {
     c.noise.delay_walk_rms_fs = 0.01;
     c.noise.ir_intensity_rms = 0.05;
     c.noise.cep_jitter_rms_rad = 0.3;
-    add(v, "delay drift", "random-walk drift 10 as/row, IR intensity 5 % rms, CEP 0.3 rad rms",
-        c, 802);
+    add(v, "delay drift", "random-walk drift 10 as/row, IR intensity 5 % rms, CEP 0.3 rad rms", c,
+        802);
   }
-  // --- delay ranges without field-free rows ---------------------------------------------------------------
+  // --- delay ranges without field-free rows
+  // ---------------------------------------------------------------
   {
     Scan s{"Ne", 95, 350, 0, 800, 8, 3e12, 0, {50, 0.2, 250}, {-2.5, 0.1, 51}, 500};
     add(v, "no field-free rows", "350 as TL under an 8 fs IR, delays -2.5..2.5 fs only",
@@ -273,7 +277,8 @@ std::vector<ValidationCase> validation_cases() {
     add(v, "no field-free rows", "argon 160 as under a 12 fs IR, delays -3..3 fs",
         make("nofieldfree-ar-12fs", s), 902, false, true);
   }
-  // --- trains of 3-7 bursts under a few-cycle field --------------------------------------------------
+  // --- trains of 3-7 bursts under a few-cycle field
+  // --------------------------------------------------
   {
     Scan s{"Ne", 95, 200, 0, 800, 5, 3e12, 0, {40, 0.2, 350}, {-6, 0.15, 81}, 500};
     ScanConfig c = make("train3-ne", s);
@@ -292,7 +297,8 @@ std::vector<ValidationCase> validation_cases() {
     train(c, 8.0, 7);
     add(v, "train", "7 bursts (train FWHM 8 fs), GDD 1500, under a 5 fs IR", c, 1003);
   }
-  // --- satellites 2-50 % ------------------------------------------------------------------------------
+  // --- satellites 2-50 %
+  // ------------------------------------------------------------------------------
   {
     Scan s{"Ne", 95, 170, 0, 800, 5, 5e12, 0, {40, 0.25, 300}, {-6, 0.15, 81}, 500};
     ScanConfig c = make("sat2-ne", s);
@@ -317,7 +323,8 @@ std::vector<ValidationCase> validation_cases() {
     satellites(c, 0.36, 0.50);
     add(v, "satellites", "neon, satellites 36 % / 50 %", c, 1104);
   }
-  // --- long-wavelength drivers, water-window photon energies -------------------------------------------
+  // --- long-wavelength drivers, water-window photon energies
+  // -------------------------------------------
   {
     Scan s{"He", 300, 100, 0, 1800, 15, 1e12, 0, {205, 0.45, 310}, {-15, 0.3, 101}, 500};
     add(v, "long wavelength", "helium 300 eV 100 as under 1800 nm 15 fs 1e12",
@@ -333,12 +340,14 @@ std::vector<ValidationCase> validation_cases() {
     add(v, "long wavelength", "helium 520 eV 70 as under 2000 nm 16 fs 5e11",
         make("lw-2000nm-520eV", s), 1203);
   }
-  // --- saturation and hot pixels ------------------------------------------------------------------------
+  // --- saturation and hot pixels
+  // ------------------------------------------------------------------------
   {
     Scan s{"Ne", 100, 140, 2000, 800, 6, 4e12, 0, {45, 0.25, 300}, {-7, 0.175, 81}, 600};
     ScanConfig c = make("hot15-ne", s);
     c.noise.hot_pixels = 15;
-    add(v, "hot pixels", "neon 100 eV 140 as GDD 2000, 15 hot pixels at 20-200 x the local counts", c, 1301);
+    add(v, "hot pixels", "neon 100 eV 140 as GDD 2000, 15 hot pixels at 20-200 x the local counts",
+        c, 1301);
   }
   {
     Scan s{"Ar", 80, 190, -2500, 800, 6, 3e12, 0, {30, 0.25, 300}, {-7, 0.2, 71}, 1000};
@@ -347,7 +356,8 @@ std::vector<ValidationCase> validation_cases() {
     c.noise.hot_pixels = 10;
     add(v, "saturation", "argon, detector clips at 70 % of the peak, 10 hot pixels", c, 1302);
   }
-  // --- several imperfections at once ---------------------------------------------------------------------
+  // --- several imperfections at once
+  // ---------------------------------------------------------------------
   {
     Scan s{"Xe", 90, 200, 2000, 800, 6, 3e12, 0, {3, 0.4, 300}, {-7, 0.2, 71}, 400};
     ScanConfig c = make("combined-xe-4d", s);
@@ -358,8 +368,8 @@ std::vector<ValidationCase> validation_cases() {
     c.noise.background_exp_decay_eV = 6;
     c.noise.resolution = synthetic::ResolutionKind::kConstant;
     c.noise.resolution_fwhm_eV = 0.4;
-    add(v, "combined", "xenon 5p, 5s and a strong 4d line, tail, flat background, 0.4 eV resolution",
-        c, 1401);
+    add(v, "combined",
+        "xenon 5p, 5s and a strong 4d line, tail, flat background, 0.4 eV resolution", c, 1401);
   }
   {
     Scan s{"Ne", 100, 170, 0, 800, 5, 5e12, 0, {35, 0.1, 800}, {-6, 0.15, 81}, 40};
@@ -417,6 +427,7 @@ SweepRow run_case(const ValidationCase& k, const SweepOptions& o, const std::str
     }
     RetrieveOptions ro;
     ro.bootstrap = o.bootstrap;
+    ro.engine = o.engine;
     ro.threads = 1;
     const RetrieveOutput r = retrieve(trace, ro);
     const AnalysisResult& a = r.result;
@@ -430,7 +441,8 @@ SweepRow run_case(const ValidationCase& k, const SweepOptions& o, const std::str
     if (a.quality) {
       row.has_quality = true;
       row.trusted = a.quality->trusted;
-      for (const std::string& f : a.quality->failed) row.failed += (row.failed.empty() ? "" : ";") + f;
+      for (const std::string& f : a.quality->failed)
+        row.failed += (row.failed.empty() ? "" : ";") + f;
     }
   } catch (const std::exception& e) {
     row.error = e.what();
@@ -463,7 +475,8 @@ std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const Swe
     todo = all;
   } else {
     for (const std::string& n : names) {
-      auto it = std::find_if(all.begin(), all.end(), [&](const ValidationCase& k) { return k.name == n; });
+      auto it = std::find_if(all.begin(), all.end(),
+                             [&](const ValidationCase& k) { return k.name == n; });
       if (it == all.end()) {
         std::string known;
         for (const ValidationCase& k : all) known += (known.empty() ? "" : ", ") + k.name;
@@ -472,12 +485,14 @@ std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const Swe
       todo.push_back(*it);
     }
   }
-  if (o.bootstrap < 0) throw usage_error("--bootstrap = " + std::to_string(o.bootstrap) + "; expected >= 0");
+  if (o.bootstrap < 0)
+    throw usage_error("--bootstrap = " + std::to_string(o.bootstrap) + "; expected >= 0");
   if (o.jobs < 1) throw usage_error("--jobs = " + std::to_string(o.jobs) + "; expected >= 1");
   std::filesystem::path dir = o.work_dir;
   if (dir.empty())
     dir = std::filesystem::temp_directory_path() /
-          ("sw_validation_" + std::to_string(std::chrono::steady_clock::now().time_since_epoch().count()));
+          ("sw_validation_" +
+           std::to_string(std::chrono::steady_clock::now().time_since_epoch().count()));
   std::filesystem::create_directories(dir);
 
   std::vector<SweepRow> rows(todo.size());
@@ -497,12 +512,19 @@ std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const Swe
         std::lock_guard<std::mutex> lock(log);
         if (on_row) on_row(r);
         if (!r.error.empty())
-          std::fprintf(stderr, "%-28s ERROR %s (%.0f s)\n", r.name.c_str(), r.error.c_str(), r.seconds);
+          std::fprintf(stderr, "%-28s ERROR %s (%.0f s)\n", r.name.c_str(), r.error.c_str(),
+                       r.seconds);
         else
-          std::fprintf(stderr, "%-28s FWHM %7.1f +- %5.1f / %7.1f as (%+6.1f %%)  A0 %+6.1f %%  %s/%s  %s%s  %.0f s\n",
-                       r.name.c_str(), r.fwhm_as, r.fwhm_sigma_as, r.truth_fwhm_as, 100 * r.fwhm_error(),
-                       100 * r.a0_error(), r.retrieved_class.c_str(), r.truth_class.c_str(),
-                       r.trusted ? "trusted" : "untrusted", r.wrong() ? " WRONG" : "", r.seconds);
+          std::fprintf(stderr,
+                       "%-28s FWHM %7.1f +- %5.1f / %7.1f as (%+6.1f %%)  A0 %+6.1f %%  %s/%s  "
+                       "%s%s  %.0f s\n",
+                       r.name.c_str(), r.fwhm_as, r.fwhm_sigma_as, r.truth_fwhm_as,
+                       100 * r.fwhm_error(), 100 * r.a0_error(), r.retrieved_class.c_str(),
+                       r.truth_class.c_str(),
+                       !r.has_quality ? "no-quality-section"
+                       : r.trusted    ? "trusted"
+                                      : "untrusted",
+                       r.wrong() ? " WRONG" : "", r.seconds);
       }
     }
   };
@@ -534,16 +556,19 @@ std::string check_scans(const std::vector<std::string>& names, int jobs) {
       try {
         const synthetic::SyntheticScan s = synthetic::generate_scan(c, todo[i].seed);
         const Eigen::Index n = s.clean.cols(), m = std::max<Eigen::Index>(2, n / 50);
-        const double edge = std::max(s.clean.leftCols(m).maxCoeff(), s.clean.rightCols(m).maxCoeff()) /
-                            s.clean.maxCoeff();
+        const double edge =
+            std::max(s.clean.leftCols(m).maxCoeff(), s.clean.rightCols(m).maxCoeff()) /
+            s.clean.maxCoeff();
         char b[512];
-        std::snprintf(b, sizeof b, "%-28s FWHM %7.1f TL %7.1f as  %-24s A0 %.4f  edge %.1e  %zux%zu  max %.0f  %.1f s%s",
-                      todo[i].name.c_str(), s.truth.xuv->fwhm_as.value_or(0),
-                      s.truth.xuv->transform_limited_fwhm_as.value_or(0),
-                      to_string(s.truth.verdict->pulse_class),
-                      s.truth.ir ? s.truth.ir->peak_vector_potential_au.value_or(0) : 0.0, edge,
-                      s.trace.num_delays(), s.trace.num_energies(), s.trace.counts.maxCoeff(),
-                      s.seconds, s.truth.warnings.empty() ? "" : "  WARNING");
+        std::snprintf(
+            b, sizeof b,
+            "%-28s FWHM %7.1f TL %7.1f as  %-24s A0 %.4f  edge %.1e  %zux%zu  max %.0f  %.1f s%s",
+            todo[i].name.c_str(), s.truth.xuv->fwhm_as.value_or(0),
+            s.truth.xuv->transform_limited_fwhm_as.value_or(0),
+            to_string(s.truth.verdict->pulse_class),
+            s.truth.ir ? s.truth.ir->peak_vector_potential_au.value_or(0) : 0.0, edge,
+            s.trace.num_delays(), s.trace.num_energies(), s.trace.counts.maxCoeff(), s.seconds,
+            s.truth.warnings.empty() ? "" : "  WARNING");
         lines[i] = b;
       } catch (const std::exception& e) {
         lines[i] = todo[i].name + " ERROR " + e.what();
@@ -571,11 +596,11 @@ std::string sweep_csv_line(const SweepRow& r) {
   s.precision(8);
   s << csv_field(r.name) << ',' << csv_field(r.imperfection) << ',' << r.good << ','
     << r.peak_counts << ',' << r.tolerance << ',' << r.truth_fwhm_as << ',' << r.fwhm_as << ','
-    << r.fwhm_sigma_as << ',' << 100 * r.fwhm_error() << ',' << r.pull() << ',' << r.truth_a0
-    << ',' << r.a0 << ',' << 100 * r.a0_error() << ',' << r.truth_class << ','
-    << r.retrieved_class << ',' << r.has_quality << ',' << r.trusted << ','
-    << csv_field(r.failed) << ',' << r.within(1) << ',' << r.within(2) << ',' << r.wrong() << ','
-    << r.wrong_and_trusted() << ',' << r.engine << ',' << r.seconds << ',' << csv_field(r.error);
+    << r.fwhm_sigma_as << ',' << 100 * r.fwhm_error() << ',' << r.pull() << ',' << r.truth_a0 << ','
+    << r.a0 << ',' << 100 * r.a0_error() << ',' << r.truth_class << ',' << r.retrieved_class << ','
+    << r.has_quality << ',' << r.trusted << ',' << csv_field(r.failed) << ',' << r.within(1) << ','
+    << r.within(2) << ',' << r.wrong() << ',' << r.wrong_and_trusted() << ',' << r.engine << ','
+    << r.seconds << ',' << csv_field(r.error);
   return s.str();
 }
 
@@ -607,7 +632,9 @@ std::string sweep_summary(const std::vector<SweepRow>& rows) {
     }
   }
   std::ostringstream s;
-  auto pct = [](int a, int b) { return b > 0 ? fmt("%.0f %%", 100.0 * a / b) : std::string("n/a"); };
+  auto pct = [](int a, int b) {
+    return b > 0 ? fmt("%.0f %%", 100.0 * a / b) : std::string("n/a");
+  };
   s << "- coverage (rows >= 50 peak counts with a sigma): truth within 1 sigma in " << w1 << " / "
     << n50 << " (" << pct(w1, n50) << "), within 2 sigma in " << w2 << " / " << n50 << " ("
     << pct(w2, n50) << ")\n";
@@ -636,9 +663,8 @@ std::string sweep_markdown(const std::vector<SweepRow>& rows) {
       << fmt("%.1f", r.truth_fwhm_as) << " | " << fmt("%.1f", r.fwhm_as) << " +- "
       << fmt("%.1f", r.fwhm_sigma_as) << " | " << fmt("%+.1f %%", 100 * r.fwhm_error()) << " | "
       << (r.fwhm_sigma_as > 0 ? fmt("%+.1f", r.pull()) : std::string("n/a")) << " | "
-      << fmt("%+.1f %%", 100 * r.a0_error()) << " | " << r.truth_class << " / "
-      << r.retrieved_class << " | "
-      << (r.has_quality ? (r.trusted ? "yes" : "no") : "(no section)") << " | " << r.failed
+      << fmt("%+.1f %%", 100 * r.a0_error()) << " | " << r.truth_class << " / " << r.retrieved_class
+      << " | " << (r.has_quality ? (r.trusted ? "yes" : "no") : "(no section)") << " | " << r.failed
       << " | " << (r.within(1) ? "yes" : "no") << " | " << (r.within(2) ? "yes" : "no") << " | "
       << (r.wrong() ? "**yes**" : "no") << " | " << (r.wrong_and_trusted() ? "**yes**" : "no")
       << " |\n";

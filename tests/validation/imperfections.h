@@ -26,8 +26,8 @@ struct ValidationCase {
   std::string description;   ///< one line: what the scan is
   synthetic::ScanConfig config;
   unsigned long long seed = 1;
-  bool good = false;            ///< a clean, typical scan (false-alarm count)
-  bool no_field_free = false;   ///< the delay range stays inside the IR pulse
+  bool good = false;           ///< a clean, typical scan (false-alarm count)
+  bool no_field_free = false;  ///< the delay range stays inside the IR pulse
   /// Relative tolerance of FWHM and A0 (issue 10 targets; see tolerance_for()).
   double tolerance = 0.05;
 };
@@ -40,8 +40,11 @@ double tolerance_for(const synthetic::ScanConfig& c, bool no_field_free);
 std::vector<ValidationCase> validation_cases();
 
 struct SweepOptions {
-  int bootstrap = 4;   ///< Poisson-bootstrap replicas per retrieval (>= 0)
-  int jobs = 1;        ///< cases run at the same time (threads, >= 1)
+  int bootstrap = 4;  ///< Poisson-bootstrap replicas per retrieval (>= 0)
+  /// Engine of sw::retrieve ("auto" = the default chain; or a registered engine name, for the
+  /// per-engine errors of docs/validation.md).
+  std::string engine = "auto";
+  int jobs = 1;          ///< cases run at the same time (threads, >= 1)
   std::string work_dir;  ///< folder for the scans written through files (TOF); "" = temp
   bool verbose = true;   ///< one line per finished case on stderr
 };
@@ -61,14 +64,14 @@ struct SweepRow {
   bool has_quality = false, trusted = true;
   std::string failed;  ///< quality.failed joined by ';'
   std::string engine;
-  std::string error;   ///< non-empty when the analysis threw (the message)
+  std::string error;  ///< non-empty when the analysis threw (the message)
   double seconds = 0;
 
-  double fwhm_error() const;     ///< (retrieved - truth) / truth
-  double a0_error() const;       ///< (retrieved - truth) / truth
-  double pull() const;           ///< (retrieved - truth) / sigma (NaN without sigma)
-  bool within(double k) const;   ///< |retrieved - truth| <= k sigma (false without sigma)
-  bool wrong() const;            ///< error beyond tolerance or class wrong (or analysis failed)
+  double fwhm_error() const;    ///< (retrieved - truth) / truth
+  double a0_error() const;      ///< (retrieved - truth) / truth
+  double pull() const;          ///< (retrieved - truth) / sigma (NaN without sigma)
+  bool within(double k) const;  ///< |retrieved - truth| <= k sigma (false without sigma)
+  bool wrong() const;           ///< error beyond tolerance or class wrong (or analysis failed)
   bool wrong_and_trusted() const;
 };
 

@@ -3,7 +3,8 @@
 // validation_imperfections.csv and OUT_DIR/validation_imperfections_table.md (table and summary
 // lines) and prints the summary; OUT_DIR/validation_imperfections.partial.csv grows row by row
 // while the sweep runs.
-// Usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N] [--jobs N] [--list]
+// Usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N] [--jobs N]
+//        [--engine NAME] [--list]
 //        [--check-scans] (generate only: truth and whether the energy window holds the signal)
 #include <cstdio>
 #include <cstdlib>
@@ -33,7 +34,8 @@ int main(int argc, char** argv) {
         const std::string v = value(flag);
         char* end = nullptr;
         const long n = std::strtol(v.c_str(), &end, 10);
-        if (v.empty() || *end != '\0') throw usage_error(std::string(flag) + " " + v + ": expected an integer");
+        if (v.empty() || *end != '\0')
+          throw usage_error(std::string(flag) + " " + v + ": expected an integer");
         return static_cast<int>(n);
       };
       if (a == "--list") {
@@ -54,11 +56,14 @@ int main(int argc, char** argv) {
         o.bootstrap = integer("--bootstrap");
       } else if (a == "--jobs") {
         o.jobs = integer("--jobs");
+      } else if (a == "--engine") {
+        o.engine = value("--engine");
       } else if (a == "--work") {
         o.work_dir = value("--work");
       } else if (a == "-h" || a == "--help") {
-        std::printf("usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
-                    "[--jobs N (1)] [--work DIR] [--list] [--check-scans]\n");
+        std::printf(
+            "usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
+            "[--jobs N (1)] [--engine NAME (auto)] [--work DIR] [--list] [--check-scans]\n");
         return 0;
       } else if (!a.empty() && a[0] == '-') {
         throw usage_error("unknown option " + a);
