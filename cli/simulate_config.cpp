@@ -268,6 +268,9 @@ ScanConfig parse_scan_config(const std::string& text, const std::string& name, b
   } catch (const cv::Exception& e) {
     throw input_error(name + ": not a valid " + (json ? "JSON" : "YAML") +
                       " document; check brackets, quotes and indentation (parser: " + e.err + ").");
+  } catch (const std::exception&) {  // OpenCV's parser throws std::length_error on an empty key
+    throw input_error(name + ": not a valid " + std::string(json ? "JSON" : "YAML") +
+                      " document: a malformed mapping (e.g. an empty key).");
   }
   if (!fs.isOpened())
     throw input_error(name + ": not a valid " + std::string(json ? "JSON" : "YAML") + " document.");

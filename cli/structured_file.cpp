@@ -75,6 +75,10 @@ nlohmann::json read_structured_file(const std::string& path, const std::string& 
       // OpenCV 4.6 swaps the function name and the "(LINE): reason" text.
       const std::string why = e.func.find("): ") != std::string::npos ? e.func : e.err;
       throw usage_error(what + " '" + shown + "' is not valid YAML: " + escape_excerpt(why, 200));
+    } catch (const Error&) {
+      throw;
+    } catch (const std::exception&) {  // OpenCV's parser throws std::length_error on an empty key
+      throw usage_error(what + " '" + shown + "' is not valid YAML: a malformed mapping (e.g. an empty key)");
     }
   }
   throw usage_error(what + " '" + path + "' has extension '" + ext +

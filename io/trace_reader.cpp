@@ -214,6 +214,8 @@ json load_sidecar(const std::string& path) {
         ok = false;
       } catch (const Error&) {
         ok = false;
+      } catch (const std::exception&) {  // OpenCV's parser can throw std::length_error
+        ok = false;
       }
       if (!ok)
         throw input_error("sidecar '" + shown + "' is not valid JSON (RFC 8259): " +
@@ -237,6 +239,11 @@ json load_sidecar(const std::string& path) {
       reason = yaml_reason(e, text.compare(start, 5, "%YAML") != 0);
     } catch (const Error& e) {
       throw input_error("sidecar '" + shown + "': " + e.what());
+    } catch (const std::exception&) {
+      // OpenCV 4.6's YAML parser throws std::length_error on some malformed mappings (an empty
+      // key, `{a: 1, : 4}`, found by tests/fuzz); that is bad input, not an internal error.
+      ok = false;
+      reason = "a malformed mapping (e.g. an empty key) that the YAML parser could not read";
     }
     if (!ok) throw input_error("sidecar '" + shown + "' is not valid YAML: " + reason);
   }

@@ -360,17 +360,10 @@ TEST_CASE("simulate --config reads lines and tof keys and writes a flight-time s
       "lines: [{name: \"2p\"}, {name: \"2s\", relative_strength: 0.3, delay_as: 12}]\n"
       "tof: {length_m: 1.0, t0_ns: 2, bins: 300}\n"
       "noise: {hot_pixels: 2, background_exp_counts: 5, background_exp_onset_eV: 3}\n");
-  const std::string cmd = std::string(STREAKWRIGHT_CLI_PATH) + " simulate --quiet --config " +
-                          (dir / "scan.yaml") + " --name s --out " + dir.path.string() + " 2>&1";
-  FILE* p = popen(cmd.c_str(), "r");
-  REQUIRE(p);
-  std::array<char, 4096> buf{};
-  std::string out;
-  while (fgets(buf.data(), buf.size(), p)) out += buf.data();
-  const int st = pclose(p);
-  INFO(out);
-  REQUIRE(WIFEXITED(st));
-  REQUIRE(WEXITSTATUS(st) == 0);
+  const test::CliRun run = test::run_cli("simulate --quiet --config " + (dir / "scan.yaml") +
+                                         " --name s --out " + dir.path.string());
+  INFO(run.out);
+  REQUIRE(run.code == 0);
   const Trace t = read_trace(dir / "s.json");
   CHECK(t.num_energies() == 300);
   CHECK(!t.meta.calibration.empty());
@@ -381,12 +374,8 @@ TEST_CASE("simulate --config reads lines and tof keys and writes a flight-time s
   // An unknown key of a line is named. (Line names that start with a digit are quoted in
   // YAML: OpenCV's parser reads 2p as a malformed number.)
   test::write_text(dir / "bad.yaml", "preset: neon-150as\nlines: [{name: \"2p\", strenght: 1}]\n");
-  const std::string bad = std::string(STREAKWRIGHT_CLI_PATH) + " simulate --quiet --config " +
-                          (dir / "bad.yaml") + " --out " + dir.path.string() + " 2>&1";
-  FILE* q = popen(bad.c_str(), "r");
-  REQUIRE(q);
-  std::string msg;
-  while (fgets(buf.data(), buf.size(), q)) msg += buf.data();
-  CHECK(WEXITSTATUS(pclose(q)) == 3);
-  CHECK(msg.find("lines[0].strenght") != std::string::npos);
+  const test::CliRun bad = test::run_cli("simulate --quiet --config " + (dir / "bad.yaml") +
+                                         " --out " + dir.path.string());
+  CHECK(bad.code == 3);
+  CHECK(bad.out.find("lines[0].strenght") != std::string::npos);
 }

@@ -297,6 +297,17 @@ TEST_CASE("YAML syntax errors give the line of the file", "[io][limits]") {
   CHECK_THAT(input_error(s.dir / "bad.yaml"), Contains("line 3:"));
 }
 
+TEST_CASE("a YAML mapping with an empty key is bad input, not a crash", "[io][limits]") {
+  // Found by tests/fuzz (corpus/sidecar_yaml_empty_key): OpenCV 4.6's YAML parser throws
+  // std::length_error on `{first: -1, step: 0.5, : 4}`; it ended the fuzz loop and gave exit 1
+  // ("internal error") in the CLI.
+  Scan s;
+  write_text(s.dir / "empty_key.yaml",
+             "streakwright: 1\nimage: good.png\nlayout: delay_rows\n"
+             "delay_fs: {first: -1, step: 0.5, : 4}\n");
+  CHECK_THAT(input_error(s.dir / "empty_key.yaml"), Contains("not valid YAML"));
+}
+
 TEST_CASE("unknown keys too deep or too large to echo are dropped with a warning",
           "[io][limits]") {
   // Defect 10: a deep unknown key made result.json unreadable for Python's json module, whose

@@ -30,10 +30,8 @@ using sw::test::write_text;
 
 namespace {
 
-struct Run {
-  int code;
-  std::string out;
-};
+using Run = sw::test::CliRun;
+Run cli(const std::string& args) { return sw::test::run_cli(args); }
 
 std::string q(const fs::path& p) {
   std::ostringstream s;
@@ -41,17 +39,6 @@ std::string q(const fs::path& p) {
   return s.str();
 }
 
-Run cli(const std::string& args) {
-  const std::string cmd = std::string(STREAKWRIGHT_CLI_PATH) + " " + args + " 2>&1";
-  FILE* p = popen(cmd.c_str(), "r");
-  Run r{-1, ""};
-  if (!p) return r;
-  std::array<char, 4096> buf{};
-  while (fgets(buf.data(), buf.size(), p)) r.out += buf.data();
-  const int st = pclose(p);
-  r.code = WIFEXITED(st) ? WEXITSTATUS(st) : -1;
-  return r;
-}
 
 std::string slurp(const fs::path& p) {
   std::ifstream in(p, std::ios::binary);

@@ -22,23 +22,9 @@ namespace fs = std::filesystem;
 
 namespace {
 
-struct Run {
-  int code;
-  std::string out;
-};
+using Run = sw::test::CliRun;
+Run cli(const std::string& args) { return sw::test::run_cli(args); }
 
-// The CLI with stdout+stderr captured (POSIX popen; exit status via WEXITSTATUS).
-Run cli(const std::string& args) {
-  const std::string cmd = std::string(STREAKWRIGHT_CLI_PATH) + " " + args + " 2>&1";
-  FILE* p = popen(cmd.c_str(), "r");
-  Run r{-1, ""};
-  if (!p) return r;
-  std::array<char, 4096> buf{};
-  while (fgets(buf.data(), buf.size(), p)) r.out += buf.data();
-  const int st = pclose(p);
-  r.code = WIFEXITED(st) ? WEXITSTATUS(st) : -1;
-  return r;
-}
 
 const QualityCheck* find(const QualitySection& q, const std::string& name) {
   for (const auto& c : q.checks)

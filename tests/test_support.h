@@ -1,9 +1,12 @@
 #pragma once
 // Helpers shared by the test files: a self-removing temporary folder and a text writer.
 
+#include <sys/wait.h>
 #include <unistd.h>
 
 #include <algorithm>
+#include <array>
+#include <cstdio>
 #include <chrono>
 #include <filesystem>
 #include <fstream>
@@ -49,5 +52,31 @@ class TempDir {
 inline void write_text(const std::string& path, const std::string& text) {
   std::ofstream(path, std::ios::binary) << text;
 }
+
+/// Exit code and combined stdout+stderr of one command-line run.
+struct CliRun {
+  int code = -1;  ///< exit status, -1 when the process did not exit normally
+  std::string out;
+};
+
+/// Runs `command` through the shell with stdout and stderr captured (POSIX popen; the exit
+/// status via WEXITSTATUS).
+inline CliRun run_command(const std::string& command) {
+  CliRun r;
+  FILE* p = popen((command + " 2>&1").c_str(), "r");
+  if (!p) return r;
+  std::array<char, 4096> buf{};
+  while (fgets(buf.data(), static_cast<int>(buf.size()), p)) r.out += buf.data();
+  const int st = pclose(p);
+  r.code = WIFEXITED(st) ? WEXITSTATUS(st) : -1;
+  return r;
+}
+
+#ifdef STREAKWRIGHT_CLI_PATH
+/// Runs the streakwright executable with `args` (shell syntax).
+inline CliRun run_cli(const std::string& args) {
+  return run_command(std::string(STREAKWRIGHT_CLI_PATH) + " " + args);
+}
+#endif
 
 }  // namespace sw::test

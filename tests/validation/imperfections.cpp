@@ -10,6 +10,7 @@
 #include <sstream>
 #include <thread>
 
+#include "io/figures.h"
 #include "io/trace_reader.h"
 #include "io/trace_writer.h"
 #include "retrieval/error.h"
@@ -602,6 +603,131 @@ std::string sweep_csv_line(const SweepRow& r) {
     << r.within(2) << ',' << r.wrong() << ',' << r.wrong_and_trusted() << ',' << r.engine << ','
     << r.seconds << ',' << csv_field(r.error);
   return s.str();
+}
+
+std::vector<SweepRow> rows_from_csv(const std::string& text, const std::string& where) {
+  // RFC 4180 fields: quoted fields may hold commas and doubled quotes.
+  auto split = [](const std::string& line) {
+    std::vector<std::string> f;
+    std::string cur;
+    bool q = false;
+    for (std::size_t i = 0; i < line.size(); ++i) {
+      const char c = line[i];
+      if (q) {
+        if (c == '"' && i + 1 < line.size() && line[i + 1] == '"') cur += '"', ++i;
+        else if (c == '"') q = false;
+        else cur += c;
+      } else if (c == '"') q = true;
+      else if (c == ',') f.push_back(cur), cur.clear();
+      else cur += c;
+    }
+    f.push_back(cur);
+    return f;
+  };
+  std::vector<SweepRow> rows;
+  std::istringstream in(text);
+  std::string line;
+  int n = 0;
+  while (std::getline(in, line)) {
+    if (++n == 1 || line.empty()) continue;
+    const std::vector<std::string> f = split(line);
+    if (f.size() != 25)
+      throw input_error(where + " line " + std::to_string(n) + ": expected 25 fields, got " +
+                        std::to_string(f.size()));
+    auto num = [&](int i) {
+      try {
+        return std::stod(f[static_cast<std::size_t>(i)]);
+      } catch (const std::exception&) {
+        return std::nan("");
+      }
+    };
+    SweepRow r;
+    r.name = f[0];
+    r.imperfection = f[1];
+    r.good = f[2] == "1";
+    r.peak_counts = num(3);
+    r.tolerance = num(4);
+    r.truth_fwhm_as = num(5);
+    r.fwhm_as = num(6);
+    r.fwhm_sigma_as = num(7);
+    r.truth_a0 = num(10);
+    r.a0 = num(11);
+    r.truth_class = f[13];
+    r.retrieved_class = f[14];
+    r.has_quality = f[15] == "1";
+    r.trusted = f[16] == "1";
+    r.failed = f[17];
+    r.engine = f[22];
+    r.seconds = num(23);
+    r.error = f[24];
+    rows.push_back(r);
+  }
+  return rows;
+}
+
+void sweep_figures(const std::vector<SweepRow>& rows, const std::string& dir) {
+  std::filesystem::create_directories(dir);
+  Series trusted, untrusted, band_hi, band_lo;
+  trusted.label = "trusted";
+  trusted.line = false;
+  trusted.markers = true;
+  trusted.color = plot::Rgb{30, 90, 200};
+  untrusted = trusted;
+  untrusted.label = "quality.trusted = false";
+  untrusted.color = plot::Rgb{210, 60, 40};
+  band_hi.label = "target (5 % / 8 % / 10 %)";
+  band_hi.dashed = true;
+  band_hi.color = plot::Rgb{120, 120, 120};
+  band_lo = band_hi;
+  band_lo.label = "";
+  Series pt = trusted, pu = untrusted;
+  for (std::size_t i = 0; i < rows.size(); ++i) {
+    const SweepRow& r = rows[i];
+    const double x = static_cast<double>(i + 1);
+    band_hi.x.push_back(x);
+    band_lo.x.push_back(x);
+    band_hi.y.push_back(100 * r.tolerance);
+    band_lo.y.push_back(-100 * r.tolerance);
+    if (!r.error.empty()) continue;
+    Series& s = r.trusted ? trusted : untrusted;
+    s.x.push_back(x);
+    s.y.push_back(std::clamp(100 * r.fwhm_error(), -60.0, 60.0));
+    s.y_err.push_back(r.fwhm_sigma_as > 0 ? std::min(100 * r.fwhm_sigma_as / r.truth_fwhm_as, 60.0) : 0.0);
+    if (r.fwhm_sigma_as > 0) {
+      Series& p = r.trusted ? pt : pu;
+      p.x.push_back(x);
+      p.y.push_back(std::clamp(r.pull(), -8.0, 8.0));
+    }
+  }
+  LinePlot lp;
+  lp.title = "Imperfections set: FWHM error per case (bars: reported 1 sigma; clipped at +-60 %)";
+  lp.x_label = "case number (docs/validation_imperfections_table.md)";
+  lp.y_label = "FWHM error (%)";
+  lp.series = {band_hi, band_lo, trusted, untrusted};
+  lp.zero_line = true;
+  lp.y_min = -60;
+  lp.y_max = 60;
+  plot_lines(lp, dir + "/imperfections_fwhm_error.png");
+  LinePlot pl;
+  pl.title = "Imperfections set: (retrieved - truth) / sigma of the FWHM (clipped at +-8)";
+  pl.x_label = lp.x_label;
+  pl.y_label = "pull";
+  Series p1, m1, p2, m2;
+  for (Series* s : {&p1, &m1, &p2, &m2}) {
+    s->dashed = true;
+    s->color = plot::Rgb{120, 120, 120};
+    s->x = band_hi.x;
+  }
+  p1.y.assign(p1.x.size(), 1);
+  m1.y.assign(m1.x.size(), -1);
+  p2.y.assign(p2.x.size(), 2);
+  m2.y.assign(m2.x.size(), -2);
+  p2.label = "+-1 and +-2";
+  pl.series = {p1, m1, p2, m2, pt, pu};
+  pl.zero_line = true;
+  pl.y_min = -8;
+  pl.y_max = 8;
+  plot_lines(pl, dir + "/imperfections_pull.png");
 }
 
 std::string sweep_csv(const std::vector<SweepRow>& rows) {

@@ -89,6 +89,15 @@ std::string sweep_csv_line(const SweepRow& row);
 /// (the window must hold the whole streaked spectrum), the generator's warnings and its time.
 std::string check_scans(const std::vector<std::string>& names, int jobs);
 
+/// Rows read back from a CSV written by sweep_csv (to redo tables and figures without rerunning
+/// the retrievals); throws sw::Error (kInput) naming the line on a malformed row.
+std::vector<SweepRow> rows_from_csv(const std::string& text, const std::string& where);
+
+/// Figures of a sweep into `dir`: imperfections_fwhm_error.png (FWHM error per case with its
+/// 1-sigma bar, trusted and untrusted results as separate series, the target band dashed) and
+/// imperfections_pull.png (error / sigma per case, +-1 and +-2 dashed).
+void sweep_figures(const std::vector<SweepRow>& rows, const std::string& dir);
+
 /// The CSV (header + one line per row) and the markdown table with the summary lines.
 std::string sweep_csv(const std::vector<SweepRow>& rows);
 std::string sweep_markdown(const std::vector<SweepRow>& rows);

@@ -6,10 +6,12 @@
 // Usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N] [--jobs N]
 //        [--engine NAME] [--list]
 //        [--check-scans] (generate only: truth and whether the energy window holds the signal)
+//        [--from-csv FILE] (tables, summary and figures again from a finished run's CSV)
 #include <cstdio>
 #include <cstdlib>
 #include <filesystem>
 #include <fstream>
+#include <sstream>
 #include <string>
 #include <vector>
 
@@ -23,6 +25,7 @@ int main(int argc, char** argv) {
   validation::SweepOptions o;
   std::vector<std::string> names;
   bool list = false, check = false;
+  std::string from_csv;
   try {
     for (int i = 1; i < argc; ++i) {
       const std::string a = argv[i];
@@ -58,6 +61,8 @@ int main(int argc, char** argv) {
         o.jobs = integer("--jobs");
       } else if (a == "--engine") {
         o.engine = value("--engine");
+      } else if (a == "--from-csv") {
+        from_csv = value("--from-csv");
       } else if (a == "--work") {
         o.work_dir = value("--work");
       } else if (a == "-h" || a == "--help") {
@@ -77,6 +82,18 @@ int main(int argc, char** argv) {
                     100 * k.tolerance, k.description.c_str(), k.good ? " [good scan]" : "");
       return 0;
     }
+    if (!from_csv.empty()) {  // tables and figures again from a finished run's CSV
+      std::ifstream in(from_csv);
+      if (!in) throw input_error("cannot read " + from_csv);
+      std::ostringstream text;
+      text << in.rdbuf();
+      const std::vector<validation::SweepRow> rows = validation::rows_from_csv(text.str(), from_csv);
+      std::filesystem::create_directories(out);
+      std::ofstream(out + "/validation_imperfections_table.md") << validation::sweep_markdown(rows);
+      validation::sweep_figures(rows, out + "/figures");
+      std::printf("%s", validation::sweep_summary(rows).c_str());
+      return 0;
+    }
     if (check) {
       std::printf("%s", validation::check_scans(names, o.jobs).c_str());
       return 0;
@@ -91,6 +108,7 @@ int main(int argc, char** argv) {
         });
     std::ofstream(out + "/validation_imperfections.csv") << validation::sweep_csv(rows);
     std::ofstream(out + "/validation_imperfections_table.md") << validation::sweep_markdown(rows);
+    validation::sweep_figures(rows, out + "/figures");
     std::printf("%s", validation::sweep_summary(rows).c_str());
     return 0;
   } catch (const Error& e) {
