@@ -27,6 +27,8 @@ std::string RetrieveOptions::validate() const {
       << ": need 0 < isolated < satellites <= 1";
   else if (!(cma_trace_error_max_ratio > 1)) s << "cma_trace_error_max_ratio = " << cma_trace_error_max_ratio << ": must be > 1";
   else if (!(max_seconds > 0)) s << "max_seconds = " << max_seconds << ": must be > 0";
+  else if (!(method_sigma_relative >= 0 && method_sigma_relative < 1))
+    s << "method_sigma_relative = " << method_sigma_relative << ": must be in [0, 1)";
   else if (auto e = preprocess.validate(); !e.empty()) s << "preprocess." << e;
   else if (auto e2 = quality.validate(); !e2.empty()) s << "quality." << e2;
   return s.str();
@@ -371,12 +373,17 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
         if (be.spread > 0) fwhm_bias_over_sigma = std::abs(be.bias) / be.spread;
       }
     };
+    // The method's own systematic (RetrieveOptions::method_sigma_relative) as a floor.
+    auto with_floor = [&](double sys, const std::optional<double>& value) {
+      return value ? std::max(sys, opt.method_sigma_relative * std::abs(*value)) : sys;
+    };
     corrected("fwhm_as", res.xuv->fwhm_as, res.xuv->fwhm_as_sigma, bf,
-              systematic([](const PulseMetrics& c) { return c.xuv.fwhm_as; }));
+              with_floor(systematic([](const PulseMetrics& c) { return c.xuv.fwhm_as; }), res.xuv->fwhm_as));
     corrected("gdd_as2", res.xuv->gdd_as2, res.xuv->gdd_as2_sigma, bg,
               systematic([](const PulseMetrics& c) { return c.xuv.gdd_as2; }));
     corrected("peak_vector_potential_au", res.ir->peak_vector_potential_au, res.ir->peak_vector_potential_au_sigma,
-              ba, systematic([](const PulseMetrics& c) { return c.ir.peak_vector_potential_au; }));
+              ba, with_floor(systematic([](const PulseMetrics& c) { return c.ir.peak_vector_potential_au; }),
+                             res.ir->peak_vector_potential_au));
     v.satellite_intensity_ratio_sigma = t * stddev(bs);
   } else {
     res.warnings.push_back("no bootstrap replicas (--bootstrap < 2): no uncertainties reported");
@@ -443,6 +450,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   P("settings.threads", static_cast<long long>(opt.threads));
   P("settings.cma_phase_error_max_rad", opt.cma_phase_error_max_rad);
   P("settings.cma_trace_error_max_ratio", opt.cma_trace_error_max_ratio);
+  P("settings.method_sigma_relative", opt.method_sigma_relative);
   P("settings.isolated_max_satellite_ratio", opt.isolated_max_satellite_ratio);
   P("settings.satellites_max_satellite_ratio", opt.satellites_max_satellite_ratio);
   P("settings.dipole", std::string(to_string(opt.preprocess.dipole)));
