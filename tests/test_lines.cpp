@@ -291,16 +291,21 @@ TEST_CASE("deblending: an overlapping neighbour line is subtracted per delay row
   INFO("scale " << str[1]);
   CHECK(str[0] == 0.0);
   CHECK(std::abs(str[1] - 0.3) < 0.03);
-  // Over the overlap band (78-90 eV: both lines present) the subtracted counts match the 2s
-  // truth within 10 % of the 2s counts there (our tolerance), and the remainder matches 2p.
+  // Over the overlap band (78-90 eV: both lines present), row by row (the streaking moves the
+  // lines differently in every row), the subtracted counts match the 2s truth within 10 % of
+  // the 2s counts there (our tolerance), and the remainder matches 2p within 5 %.
   double inner = 0, diff = 0, outer = 0, rest = 0;
-  for (std::size_t j = 0; j < W.size(); ++j) {
-    if (W[j] < 78.0 || W[j] > 90.0) continue;
-    const auto k = static_cast<Eigen::Index>(j);
-    inner += s.inner.col(k).sum();
-    diff += std::abs((est.col(k) - s.inner.col(k)).sum());
-    outer += s.outer.col(k).sum();
-    rest += (s.trace.counts.col(k) - est.col(k)).sum();
+  for (Eigen::Index i = 0; i < est.rows(); ++i) {
+    double row_diff = 0;
+    for (std::size_t j = 0; j < W.size(); ++j) {
+      if (W[j] < 78.0 || W[j] > 90.0) continue;
+      const auto k = static_cast<Eigen::Index>(j);
+      inner += s.inner(i, k);
+      row_diff += est(i, k) - s.inner(i, k);
+      outer += s.outer(i, k);
+      rest += s.trace.counts(i, k) - est(i, k);
+    }
+    diff += std::abs(row_diff);
   }
   INFO("2s in overlap " << inner << ", |estimate - truth| " << diff << "; 2p " << outer << ", remainder " << rest);
   CHECK(diff < 0.1 * inner);
