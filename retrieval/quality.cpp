@@ -97,6 +97,10 @@ void add_retrieval_checks(QualitySection& q, const RetrievalEvidence& e, const Q
   if (e.energy_outside_support)
     q.add("energy_outside_support", *e.energy_outside_support, o.max_energy_outside_support, "<=",
           "share of the retrieved spectral energy outside the signal's energy support");
+  // A headline number without an error bar is not a trusted result (every headline number
+  // comes with a sigma): with fewer than 2 bootstrap replicas there is none.
+  q.add("uncertainty_reported", e.fwhm_as_sigma ? 1.0 : 0.0, 1.0, ">=",
+        "1 when the FWHM and A0 carry a bootstrap sigma (--bootstrap >= 2), 0 otherwise");
   if (e.fwhm_as_sigma && e.fwhm_as > 0)
     q.add("fwhm_sigma_over_value", *e.fwhm_as_sigma / e.fwhm_as, o.max_relative_sigma, "<=",
           "uncertainty of the XUV FWHM relative to its value");

@@ -24,6 +24,7 @@
 //                                                                       <= max_spectrum_mismatch
 //                                                                          + 3 x its noise expectation
 //     energy_outside_support     share of |E~|^2 outside the support    <= max_energy_outside_support
+//     uncertainty_reported       1 with a bootstrap sigma, 0 without     >= 1
 //     fwhm_sigma_over_value      sigma / FWHM (with bootstrap)          <= max_relative_sigma
 //     a0_sigma_over_value        sigma / A0 (with bootstrap)            <= max_relative_sigma
 //     cma_phase_error_rad        the CMA's neglected phase (CMA result) <= the retrieve option
