@@ -66,20 +66,11 @@ std::vector<bool> background_bins(const Eigen::MatrixXd& counts, const Backgroun
       const double v = (r.array() - m).square().sum() / static_cast<double>(nd - 1);
       D[static_cast<std::size_t>(q)] = m > 0 ? v / m : 1.0;
     }
-    // Base level of D over the delay-independent groups: their 10 % quantile, raised by the
-    // 1.28 standard deviations a 10 % quantile lies below the mean (normal approximation of
-    // (rows - 1) D / base ~ chi^2(rows - 1)); groups without counts carry no information. The
-    // standard deviation scales with the base: an overdispersed scan (a Poisson replica of
-    // counts has D ~ 2, readout noise more) would otherwise flag ~10 % of its background groups.
-    std::vector<double> sorted;
-    for (Eigen::Index q = 0; q < ng; ++q)
-      if (counts.middleCols(q * g, std::min(g, ne - q * g)).sum() > 0) sorted.push_back(D[static_cast<std::size_t>(q)]);
-    if (sorted.empty()) sorted.push_back(1.0);
+    std::vector<double> sorted = D;
     const auto q10 = static_cast<long>(sorted.size() / 10);
     std::nth_element(sorted.begin(), sorted.begin() + q10, sorted.end());
-    const double rel = std::sqrt(2.0 / static_cast<double>(nd - 1));
-    const double base = std::max(1.0, sorted[static_cast<std::size_t>(q10)] / std::max(1.0 - 1.2816 * rel, 0.5));
-    const double limit = base * (1.0 + o.dispersion_sigma * rel);
+    const double base = std::max(1.0, sorted[static_cast<std::size_t>(q10)]);
+    const double limit = base + o.dispersion_sigma * std::sqrt(2.0 / static_cast<double>(nd - 1));
     for (Eigen::Index q = 0; q < ng; ++q) varies[static_cast<std::size_t>(q)] = D[static_cast<std::size_t>(q)] > limit;
   }
   Eigen::Index first = ne, last = -1;
@@ -164,35 +155,6 @@ BackgroundModel fit_background(const Eigen::MatrixXd& counts, const std::vector<
     m.note = s.str();
     return m;
   }
-  // Low-energy cutoff: counts that rise from the axis' first bins to a maximum (a
-  // spectrometer's transmission cutoff, an onset of the slow electrons) are no exponential
-  // tail; the fit starts at the maximum of the leading run of background bins when the rise
-  // is significant (5 Poisson sigmas of the delay-summed counts over `group_bins` bins).
-  if (o.fit_tail && !idx.empty()) {
-    std::size_t run = 1;
-    while (run < idx.size() && idx[run] == idx[0] + static_cast<Eigen::Index>(run)) ++run;
-    const auto g = static_cast<std::size_t>(o.group_bins);
-    if (run >= 2 * g) {
-      auto window = [&](std::size_t q) {
-        double r = 0;
-        for (std::size_t k = q; k < q + g; ++k) r += counts.col(idx[k]).sum();
-        return r;
-      };
-      std::size_t qmax = 0;
-      double rmax = window(0);
-      for (std::size_t q = 1; q + g <= run; ++q)
-        if (const double r = window(q); r > rmax) {
-          rmax = r;
-          qmax = q;
-        }
-      const double r0 = window(0);
-      if (qmax > 0 && rmax - r0 > 5.0 * std::sqrt(rmax + r0 + 1.0)) {
-        m.cutoff_eV = W[static_cast<std::size_t>(idx[qmax])];
-        idx.erase(idx.begin(), idx.begin() + static_cast<std::ptrdiff_t>(qmax));
-      }
-    }
-  }
-  m.background_bins = idx.size();
   const auto n = static_cast<Eigen::Index>(idx.size());
   const double rows = static_cast<double>(counts.rows());
   Eigen::VectorXd S(n), Wb(n);
@@ -288,12 +250,6 @@ BackgroundModel fit_background(const Eigen::MatrixXd& counts, const std::vector<
   m.covariance = best.cov;
   m.fit_deviance = best.deviance;
   m.model = std::string("constant") + (use_tail ? " + exponential tail" : "") + (use_tof ? " + time-of-flight" : "");
-  if (m.cutoff_eV > W.front()) {
-    std::ostringstream cut;
-    cut.precision(4);
-    cut << "counts rise up to " << m.cutoff_eV << " eV (low-energy cutoff): fitted from there on; ";
-    note << cut.str();
-  }
   m.note = note.str();
   if (!m.note.empty()) m.note.resize(m.note.size() - 2);
   return m;

@@ -31,13 +31,9 @@
 // log-likelihood. The tail (and the time-of-flight term) is kept only when it raises
 // 2 ln L by more than the 1 % point of the chi^2 distribution with the number of parameters
 // it adds (Wilks' theorem; 9.21 for 2, 6.63 for 1); otherwise the simpler model stands.
-// Counts that rise significantly from the axis' first bins to a maximum (a spectrometer's
-// low-energy cutoff or an onset of the slow electrons) are not an exponential: the fit starts
-// at that maximum (`cutoff_eV`) and the bins below are background measured by their mean.
 // Sigmas are from the inverse Fisher information (the decay's from the profile curvature).
 // Subtraction is signed: E[N - B] = 0 in background bins (clipping would bias them up).
 
-#include <limits>
 #include <string>
 #include <vector>
 
@@ -80,10 +76,6 @@ struct BackgroundModel {
   double tof_counts = 0.0, tof_counts_sigma = 0.0;  ///< d: counts per bin at W_ref
   double tof_reference_eV = 0.0;                    ///< W_ref
   double tof_offset_eV = 0.0;                       ///< W_off (energy offset of the calibration)
-  /// Lowest energy the fit used (eV) when the counts rise from the axis' start to a maximum
-  /// (a low-energy cutoff, see fit_background); -inf otherwise. Below it the model does not
-  /// apply: those bins are delay-independent background, measured directly by their mean.
-  double cutoff_eV = -std::numeric_limits<double>::infinity();
   std::size_t background_bins = 0;                  ///< energy bins the fit used
   std::size_t rows = 0;                             ///< delay rows summed
   double fit_deviance = 0.0;       ///< Poisson deviance of the fit over the background bins

@@ -150,35 +150,3 @@ TEST_CASE("preprocess subtracts the fitted background without bias", "[backgroun
   INFO("mean of N - B over " << n << " background-only bins: " << sum / static_cast<double>(n));
   CHECK(std::abs(sum) < 3.0 * (std::sqrt(var) + sb));
 }
-
-TEST_CASE("background fit: a tail with a low-energy onset is fitted from its maximum", "[background]") {
-  // Slow electrons from 3 eV on (150 counts/bin there, 10 eV decay; zero below, as behind a
-  // spectrometer's low-energy cutoff) on a 1-121 eV axis. The exponential cannot follow the
-  // step: the fit must start at the maximum (within one 4-bin group of 3 eV) and then recover
-  // the decay and the level under the signal within 3 sigma (Poisson ML, Cramer-Rao; standard
-  // statistics); the bins below the cutoff are background measured by their mean (preprocess).
-  synthetic::ScanConfig cfg = synthetic::find_preset("neon-150as").config;
-  cfg.geometry.energy_eV = {1.0, 0.25, 480};
-  cfg.noise.background_exp_counts = 150.0;
-  cfg.noise.background_exp_onset_eV = 3.0;
-  cfg.noise.background_exp_decay_eV = 10.0;
-  const auto sc = synthetic::generate_scan(cfg, 41);
-  const BackgroundModel m = fit_background(sc.trace.counts, energies_eV(sc.trace), BackgroundOptions{});
-  INFO(m.model << ": c = " << m.constant_counts << ", a = " << m.tail_counts_at_zero << ", w = " << m.tail_decay_eV
-               << " +- " << m.tail_decay_eV_sigma << ", cutoff " << m.cutoff_eV << "; " << m.note);
-  REQUIRE(m.has_tail);
-  CHECK(m.cutoff_eV >= 3.0);
-  CHECK(m.cutoff_eV <= 4.0);
-  CHECK(std::abs(m.tail_decay_eV - 10.0) < 3.0 * m.tail_decay_eV_sigma);
-  for (double W : {10.0, 30.0}) {
-    const double truth = 150.0 * std::exp(-(W - 3.0) / 10.0);
-    CHECK(std::abs(m.at(W) - truth) < 3.0 * m.sigma_at(W) + 0.02);
-  }
-  // Preprocessing records the same cutoff.
-  PreprocessSummary ps;
-  (void)preprocess(sc.trace, PreprocessOptions{}, &ps);
-  CHECK(ps.background.cutoff_eV == Approx(m.cutoff_eV));
-  // A tail without an onset keeps the whole axis (no cutoff).
-  const auto plain = neon_with_background(2.0, 60.0, 12.0, 21);
-  CHECK_FALSE(std::isfinite(fit_background(plain.trace.counts, energies_eV(plain.trace), BackgroundOptions{}).cutoff_eV));
-}
