@@ -115,6 +115,14 @@ AnalysisResult run_classify_analysis(const Trace& scan, const ScanJob& job,
   }
   if (job.progress) job.progress("classify", "evidence");
   res.verdict = classify(trace, co, ret ? &ret->reconstruction : nullptr);
+  // Lines (DESIGN.md "lines"): from the retrieval when it ran, else as preprocessing finds them.
+  if (ret && !ret->result.lines.empty()) {
+    res.lines = ret->result.lines;
+  } else {
+    std::string why;
+    res.lines = scan_lines(trace, pp, &why);
+    if (res.lines.empty() && !why.empty()) res.warnings.push_back("photoelectron lines not listed: " + why);
+  }
   res.quality = classify_quality(trace.counts, trace.meta.background.value_or(0.0), *res.verdict,
                                  ret && ret->result.quality ? &*ret->result.quality : nullptr, job.retrieve.quality);
 

@@ -86,6 +86,13 @@ AnalysisResult run_rabbitt_analysis(const Trace& scan, const ScanJob& job,
 
   if (job.progress) job.progress("rabbitt", "verdict");
   res.verdict = classify(trace, co, nullptr);
+  // Lines (DESIGN.md "lines"), as retrieve's preprocessing finds them; the sidebands belong to
+  // the reference line.
+  {
+    std::string why;
+    res.lines = scan_lines(trace, pp, &why);
+    if (res.lines.empty() && !why.empty()) res.warnings.push_back("photoelectron lines not listed: " + why);
+  }
   res.quality = rabbitt_quality(trace.counts, trace.meta.background.value_or(0.0), *res.rabbitt, job.retrieve.quality);
 
   res.extra = rb.params;

@@ -101,6 +101,18 @@ EnergySupport energy_support(const Trace& trace, const PreprocessOptions& opt, c
 
 }  // namespace
 
+std::vector<LineEntry> scan_lines(const Trace& trace, const PreprocessOptions& options,
+                                  std::string* why_not) {
+  PreprocessSummary s;
+  try {
+    (void)preprocess(trace, options, &s);
+  } catch (const Error& e) {
+    if (why_not) *why_not = e.what();
+    return {};
+  }
+  return s.lines;
+}
+
 RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, PreprocessSummary* sum) {
   const std::string where = trace.meta.source.empty() ? std::string("trace") : trace.meta.source;
   if (const std::string e = opt.validate(); !e.empty()) throw usage_error("preprocess: " + e);

@@ -125,6 +125,13 @@ struct PreprocessSummary {
 RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& options,
                             PreprocessSummary* summary);
 
+/// The photoelectron lines of a scan exactly as preprocess() finds them (background model, line
+/// detection, the reference line analysed), for the analyses that do not preprocess (classify,
+/// rabbitt): result.json "lines". A scan that preprocess() refuses gives no lines and the reason
+/// in *why_not.
+std::vector<LineEntry> scan_lines(const Trace& trace, const PreprocessOptions& options,
+                                  std::string* why_not);
+
 /// Poisson resample of a trace's counts (parametric bootstrap replica), seeded. Saturated
 /// bins (detect_saturation) keep their value and draws are clipped at the saturation level,
 /// as the detector would.

@@ -183,6 +183,12 @@ TEST_CASE("every retrieve, classify and rabbitt result carries a quality section
   const AnalysisResult cr = read_result_json(d.file("c") + "/result.json");
   REQUIRE(cr.quality);
   CHECK(find(*cr.quality, "verdict_determined"));
+  // DESIGN.md "lines": present in every retrieve, classify and rabbitt result; the neon 2p line
+  // (Ip 21.5645 eV, NIST ASD) is the reference of the neon scan.
+  REQUIRE(!rr.lines.empty());
+  CHECK(rr.lines[0].name == "2p");
+  REQUIRE(!cr.lines.empty());
+  CHECK(cr.lines[0].reference);
 
   REQUIRE(cli("simulate --preset argon-rabbitt --seed 2 --quiet --out " + d.file("a")).code == 0);
   const Run b = cli("rabbitt " + d.file("a") + "/argon-rabbitt.json --quiet --out " + d.file("b"));
@@ -190,6 +196,8 @@ TEST_CASE("every retrieve, classify and rabbitt result carries a quality section
   const AnalysisResult br = read_result_json(d.file("b") + "/result.json");
   REQUIRE(br.quality);
   CHECK(find(*br.quality, "sidebands_analysed"));
+  REQUIRE(!br.lines.empty());
+  CHECK(br.lines[0].name == "3p");  // argon's outer-valence line (NIST ASD 15.7596 eV)
   CHECK(br.quality->trusted);
 }
 
