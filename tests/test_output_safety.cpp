@@ -30,6 +30,16 @@ using sw::test::write_text;
 
 namespace {
 
+/// Sends `sig` to `pid` and reaps it (at most 10 s); returns the seconds it took to exit.
+double kill_and_wait(pid_t pid, int sig, int* status) {
+  const auto t_kill = std::chrono::steady_clock::now();
+  kill(pid, sig);
+  while (waitpid(pid, status, WNOHANG) == 0 &&
+         std::chrono::steady_clock::now() - t_kill < std::chrono::seconds(10))
+    std::this_thread::sleep_for(std::chrono::milliseconds(10));
+  return std::chrono::duration<double>(std::chrono::steady_clock::now() - t_kill).count();
+}
+
 using Run = sw::test::CliRun;
 Run cli(const std::string& args) { return sw::test::run_cli(args); }
 
@@ -151,14 +161,8 @@ TEST_CASE("SIGINT and SIGTERM stop a retrieve within a second and keep the old r
     }
     REQUIRE(running);
     std::this_thread::sleep_for(std::chrono::milliseconds(500));
-    const auto t_kill = std::chrono::steady_clock::now();
-    kill(pid, sig);
     int status = 0;
-    while (waitpid(pid, &status, WNOHANG) == 0 &&
-           std::chrono::steady_clock::now() - t_kill < std::chrono::seconds(10))
-      std::this_thread::sleep_for(std::chrono::milliseconds(10));
-    const double seconds =
-        std::chrono::duration<double>(std::chrono::steady_clock::now() - t_kill).count();
+    const double seconds = kill_and_wait(pid, sig, &status);
     CHECK(seconds < 1.5);  // "within about a second" (issue 11)
     REQUIRE(WIFEXITED(status));
     CHECK(WEXITSTATUS(status) == 128 + sig);
@@ -360,14 +364,8 @@ TEST_CASE("SIGTERM stops a batch promptly, without partial folders, with the sum
   }
   REQUIRE(running);
   std::this_thread::sleep_for(std::chrono::milliseconds(1500));  // inside the engine
-  const auto t_kill = std::chrono::steady_clock::now();
-  kill(pid, SIGTERM);
   int status = 0;
-  while (waitpid(pid, &status, WNOHANG) == 0 &&
-         std::chrono::steady_clock::now() - t_kill < std::chrono::seconds(10))
-    std::this_thread::sleep_for(std::chrono::milliseconds(10));
-  const double seconds =
-      std::chrono::duration<double>(std::chrono::steady_clock::now() - t_kill).count();
+  const double seconds = kill_and_wait(pid, SIGTERM, &status);
   CHECK(seconds < 2.0);  // "promptly" (issue 11); summary writing included
   REQUIRE(WIFEXITED(status));
   CHECK(WEXITSTATUS(status) == 130);  // docs/cli.md
