@@ -541,6 +541,26 @@ std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const Swe
   return rows;
 }
 
+std::vector<std::string> write_scans(const std::vector<std::string>& names,
+                                     const std::string& dir) {
+  std::filesystem::create_directories(dir);
+  std::vector<std::string> written;
+  for (const ValidationCase& k : validation_cases()) {
+    if (!names.empty() && std::find(names.begin(), names.end(), k.name) == names.end()) continue;
+    const synthetic::SyntheticScan scan = synthetic::generate_scan(k.config, k.seed);
+    Trace trace = scan.trace;
+    TraceWriteOptions wo;
+    if (scan.tof)
+      wo.tof = TraceTofAxis{scan.tof->tof_ns, scan.tof->length_m, scan.tof->t0_ns,
+                            scan.tof->energy_offset_eV};
+    trace.meta.source.clear();
+    const std::string sidecar = (std::filesystem::path(dir) / (k.name + ".json")).string();
+    write_trace(trace, sidecar, TraceFormat::kPng16, wo);
+    written.push_back(sidecar);
+  }
+  return written;
+}
+
 std::string check_scans(const std::vector<std::string>& names, int jobs) {
   std::vector<ValidationCase> todo;
   for (const ValidationCase& k : validation_cases())

@@ -75,6 +75,11 @@ struct SweepRow {
   bool wrong_and_trusted() const;
 };
 
+/// Writes the named cases' scans (all when `names` is empty) as 16-bit PNG scans with their
+/// sidecars into `dir` (time-of-flight cases on their flight-time axis), so that a case can be
+/// analysed with the command line; returns the sidecar paths.
+std::vector<std::string> write_scans(const std::vector<std::string>& names, const std::string& dir);
+
 /// Runs the named cases (all when `names` is empty); throws sw::Error (kUsage) naming an
 /// unknown case. Rows come back in the order of the cases.
 std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const SweepOptions& options,

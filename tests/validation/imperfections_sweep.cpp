@@ -7,6 +7,7 @@
 //        [--engine NAME] [--list]
 //        [--check-scans] (generate only: truth and whether the energy window holds the signal)
 //        [--from-csv FILE] (tables, summary and figures again from a finished run's CSV)
+//        [--write-scans DIR] (the cases' scans as files, to analyse with the command line)
 #include <cstdio>
 #include <cstdlib>
 #include <filesystem>
@@ -25,7 +26,7 @@ int main(int argc, char** argv) {
   validation::SweepOptions o;
   std::vector<std::string> names;
   bool list = false, check = false;
-  std::string from_csv;
+  std::string from_csv, write_dir;
   try {
     for (int i = 1; i < argc; ++i) {
       const std::string a = argv[i];
@@ -63,12 +64,14 @@ int main(int argc, char** argv) {
         o.engine = value("--engine");
       } else if (a == "--from-csv") {
         from_csv = value("--from-csv");
+      } else if (a == "--write-scans") {
+        write_dir = value("--write-scans");
       } else if (a == "--work") {
         o.work_dir = value("--work");
       } else if (a == "-h" || a == "--help") {
         std::printf(
             "usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
-            "[--jobs N (1)] [--engine NAME (auto)] [--work DIR] [--list] [--check-scans]\n");
+            "[--jobs N (1)] [--engine NAME (auto)] [--work DIR] [--list] [--check-scans] [--write-scans DIR]\n");
         return 0;
       } else if (!a.empty() && a[0] == '-') {
         throw usage_error("unknown option " + a);
@@ -92,6 +95,11 @@ int main(int argc, char** argv) {
       std::ofstream(out + "/validation_imperfections_table.md") << validation::sweep_markdown(rows);
       validation::sweep_figures(rows, out + "/figures");
       std::printf("%s", validation::sweep_summary(rows).c_str());
+      return 0;
+    }
+    if (!write_dir.empty()) {  // the scans as files, for the command line
+      for (const std::string& f : validation::write_scans(names, write_dir))
+        std::printf("%s\n", f.c_str());
       return 0;
     }
     if (check) {
