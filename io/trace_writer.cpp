@@ -234,6 +234,12 @@ TraceFiles write_trace(const Trace& trace, const std::string& sidecar_path, Trac
   finite(meta.ir_wavelength_nm, "ir_wavelength_nm");
   if (meta.background) finite(*meta.background, "background");
   if (meta.energy_resolution_eV) finite(*meta.energy_resolution_eV, "energy_resolution_eV");
+  for (double w : meta.energy_window_eV) finite(w, "energy_window_eV");
+  if (meta.saturation_counts) finite(*meta.saturation_counts, "saturation_counts");
+  for (const DeclaredLine& d : meta.lines) {
+    if (d.ionization_energy_eV) finite(*d.ionization_energy_eV, "lines[].ionization_energy_eV");
+    if (d.relative_strength) finite(*d.relative_strength, "lines[].relative_strength");
+  }
   ojson sc;
   sc["streakwright"] = 1;
   sc["image"] = image_name;
@@ -259,6 +265,20 @@ TraceFiles write_trace(const Trace& trace, const std::string& sidecar_path, Trac
   else if (meta.background)
     sc["background"] = *meta.background;
   if (meta.energy_resolution_eV) sc["energy_resolution_eV"] = *meta.energy_resolution_eV;
+  if (meta.energy_window_eV.size() == 2) sc["energy_window_eV"] = meta.energy_window_eV;
+  if (meta.saturation_counts) sc["saturation_counts"] = *meta.saturation_counts;
+  if (!meta.lines.empty()) {
+    ojson ls = ojson::array();
+    for (const DeclaredLine& line : meta.lines) {
+      ojson l{{"name", line.name}};
+      if (line.ionization_energy_eV) l["ionization_energy_eV"] = *line.ionization_energy_eV;
+      else l["ionization_energy_eV"] = "auto";
+      if (line.relative_strength) l["relative_strength"] = *line.relative_strength;
+      if (!line.gas.empty()) l["gas"] = line.gas;
+      ls.push_back(l);
+    }
+    sc["lines"] = ls;
+  }
   if (!meta.notes.empty()) sc["notes"] = meta.notes;
   const auto& known = known_sidecar_keys();
   for (const auto& [key, text] : meta.extra_json) {

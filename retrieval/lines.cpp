@@ -257,8 +257,102 @@ LineSearch find_lines(const std::vector<double>& W, const std::vector<double>& c
   return out;
 }
 
+std::string DeblendOptions::validate() const {
+  if (!(iterations >= 1)) return "iterations = " + std::to_string(iterations) + ": must be >= 1";
+  return "";
+}
+
+Eigen::MatrixXd deblend_neighbours(const LineSearch& s, const std::vector<double>& W,
+                                   const Eigen::MatrixXd& sig, const DeblendOptions& o,
+                                   std::vector<double>* strengths) {
+  if (const std::string e = o.validate(); !e.empty()) throw usage_error("deblend: " + e);
+  const Eigen::Index nd = sig.rows(), ne = sig.cols();
+  Eigen::MatrixXd total = Eigen::MatrixXd::Zero(nd, ne);
+  if (strengths) strengths->assign(s.lines.size(), 0.0);
+  if (s.reference < 0 || W.size() < 2 || static_cast<Eigen::Index>(W.size()) != ne) return total;
+  const double Wr = *s.lines[static_cast<std::size_t>(s.reference)].kinetic_energy_eV;
+  const double pr = units::momentum_au(units::eV_to_au(Wr));
+  struct Nb {
+    std::size_t line;
+    double c = 0, ratio = 0;  // centre (eV), 1 - p_k / p_r
+    std::vector<char> far;    // bin in the far half of the line
+    double scale = 0;
+    Eigen::MatrixXd est;
+  };
+  std::vector<Nb> nb;
+  for (std::size_t k = 0; k < s.lines.size(); ++k) {
+    if (static_cast<int>(k) == s.reference || !s.found[k] || !s.lines[k].kinetic_energy_eV) continue;
+    const double c = *s.lines[k].kinetic_energy_eV;
+    if (!(c > 0) || c < W.front() || c > W.back() || !(pr > 0)) continue;
+    Nb b;
+    b.line = k;
+    b.c = c;
+    b.ratio = 1.0 - units::momentum_au(units::eV_to_au(c)) / pr;
+    b.far.assign(W.size(), 0);
+    for (std::size_t j = 0; j < W.size(); ++j)
+      b.far[j] = c < Wr ? (W[j] <= c && W[j] >= c - s.line_below_eV) : (W[j] >= c && W[j] <= c + s.line_above_eV);
+    b.est = Eigen::MatrixXd::Zero(nd, ne);
+    nb.push_back(std::move(b));
+  }
+  if (nb.empty()) return total;
+  // Linear interpolation of row i of m at energy w (0 outside the axis).
+  auto at = [&](const Eigen::MatrixXd& m, Eigen::Index i, double w) {
+    if (w < W.front() || w > W.back()) return 0.0;
+    std::size_t u = static_cast<std::size_t>(std::upper_bound(W.begin(), W.end(), w) - W.begin());
+    u = std::min(std::max<std::size_t>(u, 1), W.size() - 1);
+    const double f = (w - W[u - 1]) / (W[u] - W[u - 1]);
+    return (1.0 - f) * m(i, static_cast<Eigen::Index>(u - 1)) + f * m(i, static_cast<Eigen::Index>(u));
+  };
+  for (int it = 0; it < o.iterations; ++it) {
+    const Eigen::MatrixXd ref = sig - total;  // the reference's image, current estimate
+    // Per row: the reference's streaking shift, its centroid over its band minus the mean.
+    std::vector<double> shift(static_cast<std::size_t>(nd), 0.0);
+    double mean = 0;
+    int rows = 0;
+    for (Eigen::Index i = 0; i < nd; ++i) {
+      double a = 0, d = 0;
+      for (Eigen::Index j = 0; j < ne; ++j) {
+        const double w = W[static_cast<std::size_t>(j)];
+        if (w < Wr - s.line_below_eV || w > Wr + s.line_above_eV) continue;
+        a += ref(i, j) * w;
+        d += ref(i, j);
+      }
+      shift[static_cast<std::size_t>(i)] = d > 0 ? a / d : Wr;
+      if (d > 0) {
+        mean += a / d;
+        ++rows;
+      }
+    }
+    mean = rows ? mean / rows : Wr;
+    for (double& x : shift) x -= mean;
+    for (Nb& b : nb) {
+      // The reference's row moved by its threshold difference and by the streaking shift the
+      // reference has beyond the neighbour's (p_r - p_k) A = shift * (1 - p_k / p_r).
+      Eigen::MatrixXd m(nd, ne);
+      for (Eigen::Index i = 0; i < nd; ++i)
+        for (Eigen::Index j = 0; j < ne; ++j)
+          m(i, j) = at(ref, i, W[static_cast<std::size_t>(j)] + (Wr - b.c) + shift[static_cast<std::size_t>(i)] * b.ratio);
+      // Data the line must explain: the signal minus the other neighbours.
+      const Eigen::MatrixXd rest = sig - (total - b.est);
+      double num = 0, den = 0;
+      for (Eigen::Index j = 0; j < ne; ++j)
+        if (b.far[static_cast<std::size_t>(j)]) {
+          num += rest.col(j).dot(m.col(j));
+          den += m.col(j).squaredNorm();
+        }
+      b.scale = den > 0 ? std::max(num / den, 0.0) : 0.0;
+      total -= b.est;
+      b.est = b.scale * m;
+      total += b.est;
+    }
+  }
+  if (strengths)
+    for (const Nb& b : nb) (*strengths)[b.line] = b.scale;
+  return total;
+}
+
 bool choose_window(const LineSearch& s, const std::vector<double>& W, double streak, double* lo_eV,
-                   double* hi_eV, std::vector<std::string>* warnings) {
+                   double* hi_eV, std::vector<std::string>* warnings, bool deblended) {
   if (s.reference < 0 || W.empty()) return false;
   const LineEntry& ref = s.lines[static_cast<std::size_t>(s.reference)];
   const double Wr = *ref.kinetic_energy_eV;
@@ -272,6 +366,11 @@ bool choose_window(const LineSearch& s, const std::vector<double>& W, double str
     if (c < W.front() || c > W.back()) continue;
     other = true;
     const std::string who = s.lines[k].gas + " " + s.lines[k].name;
+    if (deblended) {  // the neighbour is subtracted: keep the reference's band up to its centre
+      if (c < Wr) lo = std::max(lo, c);
+      else hi = std::min(hi, c);
+      continue;
+    }
     if (c < Wr) {
       const double edge = c + rh;  // the neighbour's upper support edge
       if (edge >= ref_lo) {

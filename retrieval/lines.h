@@ -84,9 +84,37 @@ LineSearch find_lines(const std::vector<double>& W_eV, const std::vector<double>
 /// The analysis window [lo, hi] (eV) around the reference line (see the header comment);
 /// `streak_range_eV` >= 0. Returns false (window = whole axis) when no other line was found
 /// inside [W_eV.front(), W_eV.back()] or when there is no reference. Warnings on overlap.
+/// With `deblended`, the found neighbours have been subtracted (deblend_neighbours): the window
+/// then keeps the reference's whole streaked band, cut only at each neighbour's centre.
 bool choose_window(const LineSearch& search, const std::vector<double>& W_eV,
                    double streak_range_eV, double* lo_eV, double* hi_eV,
-                   std::vector<std::string>* warnings);
+                   std::vector<std::string>* warnings, bool deblended = false);
+
+/// Deblending of the reference line's neighbours (per delay row, before the window cut).
+/// A line k of the same pulse and IR field differs from the reference by its threshold and by
+/// its streaking: its electrons take the same XUV spectrum shifted down by dIp = W_r - W_k, and
+/// the IR moves them by p_k A(t) instead of p_r A(t) (classical streaking, shift ~ p A). So
+/// row i of line k is row i of the reference moved in energy:
+///   N_k(W, i) = s_k * R(W + dIp + delta_i (1 - p_k / p_r), i)
+/// with delta_i the reference's centroid shift in row i (over its band W_r - line_below_eV ..
+/// W_r + line_above_eV, minus the rows' mean). R is the observed signal minus the current
+/// estimate of all neighbours (iterated `iterations` times); s_k is the least-squares scale over
+/// the neighbour's far half (the side of its centre away from the reference, out to one line
+/// half width), where the reference contributes least. Neglected: the line's own photoemission
+/// delay, the energy dependence of the dipole ratio and the difference of the streaking
+/// broadening (residuals measured in tests/test_lines.cpp).
+struct DeblendOptions {
+  int iterations = 4;  ///< fixed-point iterations of the joint estimate (>= 1)
+  std::string validate() const;  ///< "" when valid; else names field, value and rule
+};
+
+/// Estimated counts of every found, non-reference line whose centre lies inside the axis, on the
+/// grid of `signal` (rows = delays, columns = W_eV, background subtracted). `strengths`
+/// (optional) receives, per entry of search.lines, the fitted s_k (0 for lines not deblended).
+/// Returns an all-zero matrix when there is no such line.
+Eigen::MatrixXd deblend_neighbours(const LineSearch& search, const std::vector<double>& W_eV,
+                                   const Eigen::MatrixXd& signal, const DeblendOptions& options,
+                                   std::vector<double>* strengths = nullptr);
 
 /// Parses "LO:HI" (eV, finite, LO < HI) as given to --energy-window; throws sw::Error(kUsage)
 /// naming `option` and the text otherwise.

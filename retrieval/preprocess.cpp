@@ -29,6 +29,7 @@ std::string PreprocessOptions::validate() const {
       << "] eV: must be finite with lo < hi (or both 0 = none)";
   else if (const std::string b = background.validate(); !b.empty()) s << "background." << b;
   else if (const std::string l = lines.validate(); !l.empty()) s << "lines." << l;
+  else if (const std::string d = deblend.validate(); !d.empty()) s << "deblend." << d;
   return s.str();
 }
 
@@ -234,6 +235,8 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   }
 
   // 2b. lines of the gas and the analysis window.
+  Eigen::MatrixXd blend = Eigen::MatrixXd::Zero(nd, ne);  // neighbour lines' estimated counts
+  bool deblended = false;
   {
     std::vector<double> spec(static_cast<std::size_t>(ne)), var(static_cast<std::size_t>(ne));
     for (Eigen::Index j = 0; j < ne; ++j) {
@@ -272,7 +275,17 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
         const double mean = std::accumulate(cen.begin(), cen.end(), 0.0) / static_cast<double>(cen.size());
         for (double c : cen) streak = std::max(streak, std::abs(c - mean));
       }
-      if (choose_window(ls, W_eV, streak, &lo, &hi, &s.warnings)) s.window_source = "reference line";
+      if (opt.deblend_lines) {
+        Eigen::MatrixXd sg = counts.rowwise() - bgcol.transpose();
+        std::vector<double> str;
+        blend = deblend_neighbours(ls, W_eV, sg, opt.deblend, &str);
+        deblended = blend.cwiseAbs().sum() > 0;
+        for (std::size_t k = 0; k < str.size(); ++k)
+          if (str[k] > 0)
+            s.warnings.push_back("line " + ls.lines[k].gas + " " + ls.lines[k].name + " subtracted as the reference line's image moved to " +
+                                 fmt(*ls.lines[k].kinetic_energy_eV) + " eV, scale " + fmt(str[k]));
+      }
+      if (choose_window(ls, W_eV, streak, &lo, &hi, &s.warnings, deblended)) s.window_source = "reference line";
     }
     // Only lines inside the analysed band are analysed.
     s.lines = ls.lines;
@@ -286,25 +299,27 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
                           ") keeps " + std::to_string(keep.size()) + " energy bins of the axis " + fmt(W_eV.front()) +
                           " .. " + fmt(W_eV.back()) + " eV; expected at least 8");
       const auto nk = static_cast<Eigen::Index>(keep.size());
-      Eigen::MatrixXd c2(nd, nk), s2(nd, nk);
+      Eigen::MatrixXd c2(nd, nk), s2(nd, nk), l2(nd, nk);
       Eigen::VectorXd b2(nk);
       std::vector<double> w2(keep.size());
       for (Eigen::Index q = 0; q < nk; ++q) {
         const Eigen::Index j = keep[static_cast<std::size_t>(q)];
         c2.col(q) = counts.col(j);
         s2.col(q) = satm.col(j);
+        l2.col(q) = blend.col(j);
         b2(q) = bgcol(j);
         w2[static_cast<std::size_t>(q)] = W[static_cast<std::size_t>(j)];
       }
       counts = c2;
       satm = s2;
+      blend = l2;
       bgcol = b2;
       W = w2;
       ne = nk;
       s.window_lo_eV = lo;
       s.window_hi_eV = hi;
       for (LineEntry& e : s.lines) {
-        const bool inside = e.kinetic_energy_eV && *e.kinetic_energy_eV >= lo && *e.kinetic_energy_eV <= hi;
+        const bool inside = e.kinetic_energy_eV && *e.kinetic_energy_eV > lo && *e.kinetic_energy_eV < hi;
         if (!e.reference && inside && e.relative_strength && *e.relative_strength > 0)
           s.warnings.push_back("line " + e.gas + " " + e.name + " lies inside the analysis window [" + fmt(lo) +
                                ", " + fmt(hi) + "] eV: it is fitted as part of the analysed pulse");
@@ -317,6 +332,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   // 5 counts/bin under neon-150as with the Poisson projection; docs/validation.md).
   Eigen::MatrixXd var = counts.cwiseMax(1.0);
   Eigen::MatrixXd sig = counts.rowwise() - bgcol.transpose();
+  if (deblended) sig -= blend;
   const EnergySupport band = energy_support(trace, opt, sig, counts, W, &s);
 
   // 4. counts per bin -> |a|^2 (divide by bin width and by p).

@@ -64,6 +64,10 @@ struct PreprocessOptions {
   LineOptions lines;
   /// Restrict the analysis to the reference line's window when other lines are found.
   bool window_reference_line = true;
+  /// With the reference-line window: subtract the found neighbour lines per delay row
+  /// (deblend_neighbours, retrieval/lines.h) and keep the reference's whole streaked band.
+  bool deblend_lines = true;
+  DeblendOptions deblend;  ///< iterations of the neighbour estimate
   /// User's analysis window of photoelectron kinetic energy (eV); both 0 = none. Overrides
   /// the sidecar's energy_window_eV and the automatic window.
   double energy_window_lo_eV = 0.0, energy_window_hi_eV = 0.0;

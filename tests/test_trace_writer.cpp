@@ -248,3 +248,28 @@ TEST_CASE("flight-time axis: written ascending with its calibration, bad axes re
                     Catch::Contains("after t0_ns"));
   CHECK(!fs::exists(dir / "bad.json"));
 }
+
+TEST_CASE("declared lines, energy window and saturation level round-trip", "[io][writer]") {
+  // DESIGN.md's sidecar keys `lines`, `energy_window_eV`, `saturation_counts`: what the writer
+  // emits the reader must give back unchanged (a simulated two-gas scan keeps its declared lines).
+  TempDir dir;
+  sw::Trace t = make_trace(true, 10.0);
+  t.meta.energy_window_eV = {41.0, 48.5};
+  t.meta.saturation_counts = 900.0;
+  t.meta.lines = {{"2p", std::nullopt, std::nullopt, ""}, {"4p", 14.0, 0.4, "Kr"}};
+  const auto files = sw::write_trace(t, dir / "l.json", sw::TraceFormat::kCsv, {});
+  const auto sc = sidecar_json(files.sidecar);
+  CHECK(sc["lines"][0]["ionization_energy_eV"] == "auto");
+  const sw::Trace b = sw::read_trace(files.sidecar);
+  REQUIRE(b.meta.energy_window_eV.size() == 2);
+  CHECK(b.meta.energy_window_eV[0] == 41.0);
+  CHECK(b.meta.energy_window_eV[1] == 48.5);
+  REQUIRE(b.meta.saturation_counts);
+  CHECK(*b.meta.saturation_counts == 900.0);
+  REQUIRE(b.meta.lines.size() == 2);
+  CHECK(b.meta.lines[0].name == "2p");
+  CHECK_FALSE(b.meta.lines[0].ionization_energy_eV);
+  CHECK(b.meta.lines[1].gas == "Kr");
+  CHECK(*b.meta.lines[1].ionization_energy_eV == 14.0);
+  CHECK(*b.meta.lines[1].relative_strength == 0.4);
+}

@@ -218,6 +218,8 @@ std::vector<ValidationCase> validation_cases() {
     c.lines = {line("", "1s", 1.0, 0), line("Kr", "4p", 0.4, 0)};
     add(v, "two-gas mixture", "helium with krypton (4p line 10.6 eV above He 1s, strength 0.4)", c,
         503);
+    // The user knows the jet's gases: the sidecar declares both lines.
+    v.back().declared_lines = {{"1s", std::nullopt, std::nullopt, ""}, {"4p", std::nullopt, std::nullopt, "Kr"}};
   }
   // --- time-of-flight recording ------------------------------------------------------------------
   {
@@ -426,6 +428,7 @@ SweepRow run_case(const ValidationCase& k, const SweepOptions& o, const std::str
       write_trace(trace, sidecar, TraceFormat::kPng16, wo);
       trace = read_trace(sidecar);
     }
+    if (!k.declared_lines.empty()) trace.meta.lines = k.declared_lines;
     RetrieveOptions ro;
     ro.bootstrap = o.bootstrap;
     ro.engine = o.engine;

@@ -30,6 +30,8 @@ struct ValidationCase {
   bool no_field_free = false;  ///< the delay range stays inside the IR pulse
   /// Relative tolerance of FWHM and A0 (issue 10 targets; see tolerance_for()).
   double tolerance = 0.05;
+  /// The sidecar's `lines` a user would declare (e.g. the gases of a mixture); empty = none.
+  std::vector<DeclaredLine> declared_lines;
 };
 
 /// The issue's target for a case: 0.10 below 100 peak counts, else 0.08 for centre photon
