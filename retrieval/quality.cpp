@@ -176,9 +176,13 @@ BootstrapEstimate bootstrap_estimate(double estimate, const std::vector<double>&
   BootstrapEstimate e;
   e.spread = student_one_sigma_factor(B) * std::sqrt(ss / (B - 1));
   e.bias = mean - estimate;
-  e.corrected = B >= 4 && std::abs(e.bias) > 0.25 * e.spread && std::abs(e.bias) <= e.spread;
+  // The bias estimate is a mean of B replicas: its own standard error is about spread / sqrt(B).
+  // Corrected only when it stands out of that (>= 2 standard errors) and is still small against
+  // sigma; a bias that is neither negligible (< spread / 4) nor corrected widens sigma.
+  const double a = std::abs(e.bias);
+  e.corrected = a >= 2.0 * e.spread / std::sqrt(static_cast<double>(B)) && a <= e.spread;
   e.sigma_statistical = e.corrected ? e.spread * std::sqrt(1.0 + 1.0 / B) : e.spread;
-  e.sigma_bias = std::abs(e.bias) > e.spread ? std::abs(e.bias) : 0.0;
+  e.sigma_bias = !e.corrected && a > 0.25 * e.spread ? a : 0.0;
   e.sigma_systematic = sys;
   e.value = e.corrected ? estimate - e.bias : estimate;
   e.sigma = std::sqrt(e.sigma_statistical * e.sigma_statistical + sys * sys + e.sigma_bias * e.sigma_bias);

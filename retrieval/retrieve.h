@@ -31,10 +31,12 @@
 //            B = 8; Student, Biometrika 6, 1 (1908)): a few replicas under-estimate the spread;
 //   bias   = mean(replicas) - estimate (Efron and Tibshirani, An Introduction to the
 //            Bootstrap, Chapman & Hall 1993, ch. 10). Corrected (value - bias, sigma_stat =
-//            s_stat sqrt(1 + 1/B)) only when 0.25 s_stat < |bias| <= s_stat (small against
-//            sigma: the correction cannot move the value by more than its sigma); above s_stat
-//            the value stays and the bias enters sigma instead (the replicas, with the noise
-//            doubled, then show an effect that may be systematic, not statistical);
+//            s_stat sqrt(1 + 1/B)) only when 2 s_stat / sqrt(B) <= |bias| <= s_stat
+//            (significant against the bias estimate's own standard error, and small against
+//            sigma: the correction cannot move the value by more than its sigma; with B <= 4
+//            never). Otherwise, unless negligible (< s_stat / 4), the value stays and the bias
+//            enters sigma (the replicas, with the noise doubled, may show an effect that is
+//            systematic, not statistical);
 //   s_sys  = the retrieval's own spread: the sample standard deviation of the number over the
 //            chain's runs whose fits are equally good (G within QualityOptions::
 //            comparable_fit_ratio of the best; a CMA run only when its phase error is within

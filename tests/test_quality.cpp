@@ -153,11 +153,24 @@ TEST_CASE("the bias rule never moves an exact estimate by more than its sigma", 
         CHECK(e.sigma >= std::abs(e.bias));
       }
     }
-  // A small bias (below the spread, above a quarter of it) is corrected.
-  const BootstrapEstimate c = bootstrap_estimate(100.0, {99.0, 101.0, 102.0, 100.0}, 0.0);
-  CHECK(c.bias == Approx(0.5));
+  // A bias below the spread but within two standard errors of the replica mean (spread /
+  // sqrt(B)) is not significant: not corrected, it widens sigma. Replicas 99..102 (sample sd
+  // 1.195, Student factor 1.08 for B = 8: spread 1.291; numpy.std(ddof=1) gives the same sd).
+  const std::vector<double> eight{99.0, 101.0, 102.0, 100.0, 99.0, 101.0, 102.0, 100.0};
+  const BootstrapEstimate u = bootstrap_estimate(100.0, eight, 0.0);
+  CHECK(u.bias == Approx(0.5));
+  CHECK_FALSE(u.corrected);
+  CHECK(u.value == 100.0);
+  CHECK(u.sigma == Approx(std::hypot(u.spread, 0.5)));
+  // Bias 1.0 = 0.775 x spread: above 2 / sqrt(8) = 0.707 standard errors, below the spread:
+  // corrected, and sigma_statistical grows by sqrt(1 + 1/B).
+  const BootstrapEstimate c = bootstrap_estimate(99.5, eight, 0.0);
+  CHECK(c.bias == Approx(1.0));
   CHECK(c.corrected);
-  CHECK(c.value == Approx(99.5));
+  CHECK(c.value == Approx(98.5));
+  CHECK(c.sigma_statistical == Approx(c.spread * std::sqrt(1.125)));
+  // With four replicas a bias is never significant and small at once: never corrected.
+  CHECK_FALSE(bootstrap_estimate(100.0, {99.0, 101.0, 102.0, 100.0}, 0.0).corrected);
   // The systematic part adds in quadrature.
   const BootstrapEstimate s = bootstrap_estimate(100.0, {99.0, 101.0, 100.0, 100.0}, 3.0);
   CHECK(s.sigma == Approx(std::hypot(s.sigma_statistical, 3.0)));
