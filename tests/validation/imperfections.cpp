@@ -7,6 +7,7 @@
 #include <cstdio>
 #include <filesystem>
 #include <mutex>
+#include <random>
 #include <sstream>
 #include <thread>
 
@@ -14,6 +15,7 @@
 #include "io/trace_reader.h"
 #include "io/trace_writer.h"
 #include "retrieval/error.h"
+#include "retrieval/gas.h"
 #include "retrieval/retrieve.h"
 #include "synthetic/generator.h"
 
@@ -471,9 +473,85 @@ std::string csv_field(std::string s) {
 
 }  // namespace
 
+std::vector<ValidationCase> held_out_cases(int n, unsigned long long seed) {
+  if (n < 0 || n > 1000) throw usage_error("--held-out = " + std::to_string(n) + "; expected 0..1000");
+  std::mt19937_64 rng(seed);
+  std::uniform_real_distribution<double> u(0.0, 1.0);
+  auto uni = [&](double a, double b) { return a + (b - a) * u(rng); };
+  auto chance = [&](double p) { return u(rng) < p; };
+  const char* gases[] = {"He", "Ne", "Ar", "Kr", "Xe"};
+  std::vector<ValidationCase> v;
+  for (int k = 0; k < n; ++k) {
+    Scan s;
+    s.gas = gases[static_cast<int>(uni(0, 5)) % 5];
+    const double ip = find_gas(s.gas).ionization_energy_eV;
+    s.photon_eV = uni(std::max(60.0, ip + 35.0), 150.0);
+    s.tl_as = std::exp(uni(std::log(80.0), std::log(350.0)));
+    s.gdd_as2 = uni(-1.0, 1.0) * 0.3 * s.tl_as * s.tl_as;  // up to 1.3x the TL length
+    s.ir_nm = chance(0.7) ? uni(750, 850) : uni(1200, 2000);
+    const double period_fs = s.ir_nm / 299.792458;
+    s.ir_fs = uni(1.6, 2.6) * period_fs;
+    s.ir_Wcm2 = std::exp(uni(std::log(1e12), std::log(8e12))) * (s.ir_nm > 1000 ? 0.4 : 1.0);
+    s.cep = uni(0, 2 * 3.14159265358979);
+    s.counts = std::exp(uni(std::log(60.0), std::log(1000.0)));
+    // Axes that hold the streaked line: kinetic energy +- 2.5 bandwidths + 1.3 streak amplitudes
+    // (classical streaking, shift ~ p0 A0; Itatani et al., PRL 88, 173903 (2002)).
+    const double w0 = s.photon_eV - ip;
+    const double bw = 1825.0 / s.tl_as;  // eV: Gaussian time-bandwidth product 0.441 x h
+    const double e0 = std::sqrt(s.ir_Wcm2 / 3.50945e16), om = 45.5634 / s.ir_nm;  // a.u.
+    const double streak = std::sqrt(2 * w0 / 27.211386) * (e0 / om) * 27.211386;
+    const double lo = std::max(2.0, w0 - 2.5 * bw - 1.3 * streak), hi = w0 + 2.5 * bw + 1.3 * streak;
+    const int ne = static_cast<int>(uni(180, 420));
+    s.energy = {lo, (hi - lo) / (ne - 1), ne};
+    const double half = uni(1.1, 1.4) * s.ir_fs, step = std::min(0.2, period_fs / 14);
+    const int nd = static_cast<int>(2 * half / step) + 1;
+    s.delay = {-half, step, nd};
+    ScanConfig c = make("held-out-" + std::to_string(seed) + "-" + std::to_string(k), s);
+    std::string what = s.gas + " " + std::to_string(static_cast<int>(s.photon_eV)) + " eV, TL " +
+                       std::to_string(static_cast<int>(s.tl_as)) + " as, " +
+                       std::to_string(static_cast<int>(s.ir_nm)) + " nm, " +
+                       std::to_string(static_cast<int>(s.counts)) + " counts";
+    if (chance(0.5)) {
+      c.noise.background_counts = uni(0.3, 2.0);
+      what += ", flat background";
+    }
+    if (chance(0.3) && lo < 25) {
+      c.noise.background_exp_counts = uni(30, 200);
+      c.noise.background_exp_onset_eV = uni(2, 4);
+      c.noise.background_exp_decay_eV = uni(4, 10);
+      what += ", low-energy tail";
+    }
+    if (chance(0.3)) {
+      c.noise.delay_drift_fs_per_row = uni(-0.2, 0.2) / nd;
+      c.noise.delay_jitter_rms_fs = uni(0, 0.015);
+      what += ", delay drift and jitter";
+    }
+    if (chance(0.3)) {
+      c.noise.resolution = synthetic::ResolutionKind::kRelative;
+      c.noise.resolution_relative = uni(0.005, 0.02);
+      what += ", dE/E resolution";
+    }
+    if (chance(0.2)) {
+      c.noise.hot_pixels = static_cast<int>(uni(1, 10));
+      what += ", hot pixels";
+    }
+    if (chance(0.25)) {
+      const double r = uni(0.02, 0.2);
+      satellites(c, r, r * uni(0.5, 1.0));
+      what += ", satellites";
+    }
+    add(v, "held out", what, c, seed * 1000 + static_cast<unsigned long long>(k));
+  }
+  return v;
+}
+
+std::vector<ValidationCase> sweep_cases(const SweepOptions& o) {
+  return o.held_out > 0 ? held_out_cases(o.held_out, o.held_out_seed) : validation_cases();
+}
+
 std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const SweepOptions& o,
                                 const RowCallback& on_row) {
-  const std::vector<ValidationCase> all = validation_cases();
+  const std::vector<ValidationCase> all = sweep_cases(o);
   std::vector<ValidationCase> todo;
   if (names.empty()) {
     todo = all;
@@ -544,11 +622,11 @@ std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const Swe
   return rows;
 }
 
-std::vector<std::string> write_scans(const std::vector<std::string>& names,
+std::vector<std::string> write_scans(const std::vector<std::string>& names, const SweepOptions& o,
                                      const std::string& dir) {
   std::filesystem::create_directories(dir);
   std::vector<std::string> written;
-  for (const ValidationCase& k : validation_cases()) {
+  for (const ValidationCase& k : sweep_cases(o)) {
     if (!names.empty() && std::find(names.begin(), names.end(), k.name) == names.end()) continue;
     const synthetic::SyntheticScan scan = synthetic::generate_scan(k.config, k.seed);
     Trace trace = scan.trace;
@@ -557,6 +635,7 @@ std::vector<std::string> write_scans(const std::vector<std::string>& names,
       wo.tof = TraceTofAxis{scan.tof->tof_ns, scan.tof->length_m, scan.tof->t0_ns,
                             scan.tof->energy_offset_eV};
     trace.meta.source.clear();
+    if (!k.declared_lines.empty()) trace.meta.lines = k.declared_lines;
     const std::string sidecar = (std::filesystem::path(dir) / (k.name + ".json")).string();
     write_trace(trace, sidecar, TraceFormat::kPng16, wo);
     written.push_back(sidecar);
@@ -564,9 +643,10 @@ std::vector<std::string> write_scans(const std::vector<std::string>& names,
   return written;
 }
 
-std::string check_scans(const std::vector<std::string>& names, int jobs) {
+std::string check_scans(const std::vector<std::string>& names, const SweepOptions& o) {
+  const int jobs = o.jobs;
   std::vector<ValidationCase> todo;
-  for (const ValidationCase& k : validation_cases())
+  for (const ValidationCase& k : sweep_cases(o))
     if (names.empty() || std::find(names.begin(), names.end(), k.name) != names.end())
       todo.push_back(k);
   std::vector<std::string> lines(todo.size());

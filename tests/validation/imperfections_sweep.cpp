@@ -8,6 +8,8 @@
 //        [--check-scans] (generate only: truth and whether the energy window holds the signal)
 //        [--from-csv FILE] (tables, summary and figures again from a finished run's CSV)
 //        [--write-scans DIR] (the cases' scans as files, to analyse with the command line)
+//        [--held-out N] [--held-out-seed S] (N random held-out cases instead of the named set;
+//        the files are then named validation_heldout*)
 #include <cstdio>
 #include <cstdlib>
 #include <filesystem>
@@ -64,6 +66,10 @@ int main(int argc, char** argv) {
         o.engine = value("--engine");
       } else if (a == "--from-csv") {
         from_csv = value("--from-csv");
+      } else if (a == "--held-out") {
+        o.held_out = integer("--held-out");
+      } else if (a == "--held-out-seed") {
+        o.held_out_seed = static_cast<unsigned long long>(integer("--held-out-seed"));
       } else if (a == "--write-scans") {
         write_dir = value("--write-scans");
       } else if (a == "--work") {
@@ -71,7 +77,7 @@ int main(int argc, char** argv) {
       } else if (a == "-h" || a == "--help") {
         std::printf(
             "usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
-            "[--jobs N (1)] [--engine NAME (auto)] [--work DIR] [--list] [--check-scans] [--write-scans DIR]\n");
+            "[--jobs N (1)] [--engine NAME (auto)] [--work DIR] [--list] [--check-scans] [--write-scans DIR] [--held-out N [--held-out-seed S]]\n");
         return 0;
       } else if (!a.empty() && a[0] == '-') {
         throw usage_error("unknown option " + a);
@@ -80,7 +86,7 @@ int main(int argc, char** argv) {
       }
     }
     if (list) {
-      for (const validation::ValidationCase& k : validation::validation_cases())
+      for (const validation::ValidationCase& k : validation::sweep_cases(o))
         std::printf("%-28s %-22s tol %2.0f %%  %s%s\n", k.name.c_str(), k.imperfection.c_str(),
                     100 * k.tolerance, k.description.c_str(), k.good ? " [good scan]" : "");
       return 0;
@@ -98,25 +104,26 @@ int main(int argc, char** argv) {
       return 0;
     }
     if (!write_dir.empty()) {  // the scans as files, for the command line
-      for (const std::string& f : validation::write_scans(names, write_dir))
+      for (const std::string& f : validation::write_scans(names, o, write_dir))
         std::printf("%s\n", f.c_str());
       return 0;
     }
     if (check) {
-      std::printf("%s", validation::check_scans(names, o.jobs).c_str());
+      std::printf("%s", validation::check_scans(names, o).c_str());
       return 0;
     }
     std::filesystem::create_directories(out);
+    const std::string base = out + (o.held_out > 0 ? "/validation_heldout" : "/validation_imperfections");
     // Rows are appended to the partial CSV as they finish (a long run can be inspected early).
-    std::ofstream partial(out + "/validation_imperfections.partial.csv");
+    std::ofstream partial(base + ".partial.csv");
     partial << validation::sweep_csv_header() << "\n" << std::flush;
     const std::vector<validation::SweepRow> rows =
         validation::run_sweep(names, o, [&](const validation::SweepRow& r) {
           partial << validation::sweep_csv_line(r) << "\n" << std::flush;
         });
-    std::ofstream(out + "/validation_imperfections.csv") << validation::sweep_csv(rows);
-    std::ofstream(out + "/validation_imperfections_table.md") << validation::sweep_markdown(rows);
-    validation::sweep_figures(rows, out + "/figures");
+    std::ofstream(base + ".csv") << validation::sweep_csv(rows);
+    std::ofstream(base + "_table.md") << validation::sweep_markdown(rows);
+    if (o.held_out == 0) validation::sweep_figures(rows, out + "/figures");
     std::printf("%s", validation::sweep_summary(rows).c_str());
     return 0;
   } catch (const Error& e) {
