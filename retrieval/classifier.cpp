@@ -9,6 +9,7 @@
 #include <Eigen/Dense>
 
 #include "retrieval/error.h"
+#include "retrieval/preprocess.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/units.h"
 
@@ -222,6 +223,8 @@ std::string ClassifierOptions::validate() const {
   if (!(min_total_counts > 0.0)) return bad("min_total_counts", min_total_counts, "> 0");
   if (!(retrieval_max_trace_error_ratio > 1.0))
     return bad("retrieval_max_trace_error_ratio", retrieval_max_trace_error_ratio, "> 1");
+  if (!(hot_pixel_sigma > 0.0)) return bad("hot_pixel_sigma", hot_pixel_sigma, "> 0");
+  if (!(hot_pixel_ratio > 1.0)) return bad("hot_pixel_ratio", hot_pixel_ratio, "> 1");
   return {};
 }
 
@@ -273,14 +276,20 @@ double satellite_ratio_from_fringes(double r1, double r2) {
   return best;
 }
 
-VerdictSection classify(const Trace& trace, const ClassifierOptions& opt,
+VerdictSection classify(const Trace& raw, const ClassifierOptions& opt,
                         const Reconstruction* rec) {
   {
     const std::string m = opt.validate();
     if (!m.empty()) throw usage_error("classifier options: " + m);
   }
-  const std::string where = trace.meta.source.empty() ? "trace" : trace.meta.source;
-  trace.validate(where);
+  const std::string where = raw.meta.source.empty() ? "trace" : raw.meta.source;
+  raw.validate(where);
+  // The evidence is taken from the despiked counts (the engines' input): one hot pixel is a
+  // delta in energy, whose fringe contrast is 1 at every lag.
+  Trace trace = raw;
+  std::size_t hot = 0;
+  if (opt.remove_hot_pixels)
+    hot = remove_hot_pixels(trace.counts, Eigen::MatrixXd(), opt.hot_pixel_sigma, opt.hot_pixel_ratio);
   const double lambda =
       opt.ir_wavelength_nm > 0 ? opt.ir_wavelength_nm : trace.meta.ir_wavelength_nm;
   if (!(lambda > 0.0))
@@ -295,6 +304,7 @@ VerdictSection classify(const Trace& trace, const ClassifierOptions& opt,
   auto E = [&](const std::string& k, auto val) { v.evidence.push_back({k, val}); };
   const double total = trace.counts.sum();
   E("signal.total_counts", total);
+  if (opt.remove_hot_pixels) E("signal.hot_pixels_replaced", static_cast<long long>(hot));
   E("thresholds.isolated_max_satellite_ratio", opt.isolated_max_satellite_ratio);
   E("thresholds.satellite_max_ratio", opt.satellite_max_ratio);
   E("thresholds.retrieval_max_trace_error_ratio", opt.retrieval_max_trace_error_ratio);

@@ -88,6 +88,13 @@ struct ClassifierOptions {
   /// decide the class (> 1; our choice: converged fits sit at 1-1.4 x, stalled CMA runs on
   /// multi-burst pulses at 4-6 x). Ignored when the reconstruction has no noise floor.
   double retrieval_max_trace_error_ratio = 2.0;
+  /// Replace isolated hot pixels before taking the evidence (sw::remove_hot_pixels, the same
+  /// rule and defaults as preprocessing): a single spike fakes spectral fringes at every lag.
+  bool remove_hot_pixels = true;
+  /// Hot-pixel test: Poisson sigmas above the larger neighbour (> 0).
+  double hot_pixel_sigma = 8.0;
+  /// Hot-pixel test: times the reference neighbour (> 1).
+  double hot_pixel_ratio = 5.0;
 
   /// Empty when valid; otherwise names the field, its value and the constraint.
   std::string validate() const;

@@ -114,6 +114,43 @@ std::vector<LineEntry> scan_lines(const Trace& trace, const PreprocessOptions& o
   return s.lines;
 }
 
+std::size_t remove_hot_pixels(Eigen::MatrixXd& counts, const Eigen::MatrixXd& saturated, double k, double ratio) {
+  const Eigen::Index nd = counts.rows(), ne = counts.cols();
+  std::size_t replaced = 0;
+  if (nd < 2 || ne < 2) return 0;
+  Eigen::MatrixXd fixed = counts;
+  // Edge rows and columns compare with the neighbours they have (one delay or energy
+  // neighbour, 3 or 5 of the 8-neighbourhood): a hot first or last delay row would otherwise
+  // survive and pull the fit.
+  for (Eigen::Index i = 0; i < nd; ++i)
+    for (Eigen::Index j = 0; j < ne; ++j) {
+      if (saturated.size() && saturated(i, j) > 0) continue;
+      const double c = counts(i, j);
+      const double rd = std::max(i > 0 ? counts(i - 1, j) : 0.0, i + 1 < nd ? counts(i + 1, j) : 0.0);
+      if (!(c > ratio * std::max(rd, 1.0) && c > rd + k * std::sqrt(rd + 1.0)))
+        continue;  // a ridge along delay (a harmonic) or a fluctuation
+      double nb[8];
+      int m = 0;
+      for (Eigen::Index di = -1; di <= 1; ++di)
+        for (Eigen::Index dj = -1; dj <= 1; ++dj)
+          if ((di || dj) && i + di >= 0 && i + di < nd && j + dj >= 0 && j + dj < ne) nb[m++] = counts(i + di, j + dj);
+      const double mean8 = std::accumulate(nb, nb + m, 0.0) / m;
+      const bool has_l = j > 0, has_h = j + 1 < ne;
+      const double el = has_l ? counts(i, j - 1) : counts(i, j + 1), eh = has_h ? counts(i, j + 1) : el;
+      const double re = std::max(el, eh);
+      // Isolated along energy too: above both energy neighbours by k sigma (of the larger of
+      // them and the 8-neighbour mean: two bins alone can be low by chance) and `ratio` times
+      // the smaller. A row shifted by stage jitter has a high energy neighbour on one side.
+      if (!(c > re + k * std::sqrt(std::max(re, mean8) + 1.0) && c > ratio * std::max(std::min(el, eh), 1.0)))
+        continue;
+      std::nth_element(nb, nb + m / 2, nb + m);
+      fixed(i, j) = nb[m / 2];
+      ++replaced;
+    }
+  counts = fixed;
+  return replaced;
+}
+
 RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, PreprocessSummary* sum) {
   const std::string where = trace.meta.source.empty() ? std::string("trace") : trace.meta.source;
   if (const std::string e = opt.validate(); !e.empty()) throw usage_error("preprocess: " + e);
@@ -173,35 +210,8 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
                          " counts (" + s.saturation_source + "): given zero weight, the engines fit the other bins");
 
   // 2. isolated hot pixels: far above both delay neighbours and both energy neighbours.
-  if (opt.remove_hot_pixels) {
-    Eigen::MatrixXd fixed = counts;
-    const double k = opt.hot_pixel_sigma, ratio = opt.hot_pixel_ratio;
-    for (Eigen::Index i = 1; i + 1 < nd; ++i)
-      for (Eigen::Index j = 1; j + 1 < ne; ++j) {
-        if (satm(i, j) > 0) continue;
-        const double c = counts(i, j);
-        const double rd = std::max(counts(i - 1, j), counts(i + 1, j));
-        if (!(c > ratio * std::max(rd, 1.0) && c > rd + k * std::sqrt(rd + 1.0)))
-          continue;  // a ridge along delay (a harmonic) or a fluctuation
-        double nb[8];
-        int m = 0;
-        for (int di = -1; di <= 1; ++di)
-          for (int dj = -1; dj <= 1; ++dj)
-            if (di || dj) nb[m++] = counts(i + di, j + dj);
-        const double mean8 = (nb[0] + nb[1] + nb[2] + nb[3] + nb[4] + nb[5] + nb[6] + nb[7]) / 8.0;
-        const double el = counts(i, j - 1), eh = counts(i, j + 1);
-        const double re = std::max(el, eh);
-        // Isolated along energy too: above both energy neighbours by k sigma (of the larger of
-        // them and the 8-neighbour mean: two bins alone can be low by chance) and `ratio` times
-        // the smaller. A row shifted by stage jitter has a high energy neighbour on one side.
-        if (!(c > re + k * std::sqrt(std::max(re, mean8) + 1.0) && c > ratio * std::max(std::min(el, eh), 1.0)))
-          continue;
-        std::nth_element(nb, nb + 4, nb + 8);
-        fixed(i, j) = nb[4];
-        ++s.hot_pixels_replaced;
-      }
-    counts = fixed;
-  }
+  if (opt.remove_hot_pixels)
+    s.hot_pixels_replaced = remove_hot_pixels(counts, satm, opt.hot_pixel_sigma, opt.hot_pixel_ratio);
 
   // 1. background, a model B(W) per energy bin (the same in every delay row).
   std::vector<double> W_eV(W.size());

@@ -10,8 +10,8 @@
 //      Poisson maximum likelihood over the delay-independent bins outside the signal envelope
 //      (constant + significant low-energy tail + for time-of-flight scans the t^3-Jacobian
 //      term), subtracted signed (unbiased);
-//   2. isolated hot pixels (on by default, no smoothing; interior pixels): a pixel c is
-//      replaced by the median of its 8 neighbours when it is isolated in delay, c above
+//   2. isolated hot pixels (on by default, no smoothing; edge pixels compare with the
+//      neighbours they have): a pixel c is replaced by the median of its 8 neighbours when it is isolated in delay, c above
 //      `hot_pixel_ratio` x and `hot_pixel_sigma` Poisson sigmas over the larger delay
 //      neighbour, AND in energy, c above `hot_pixel_sigma` sigmas over the larger energy
 //      neighbour (sigma from the larger of it and the 8-neighbour mean) and `hot_pixel_ratio`
@@ -135,6 +135,14 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& options
 /// in *why_not.
 std::vector<LineEntry> scan_lines(const Trace& trace, const PreprocessOptions& options,
                                   std::string* why_not);
+
+/// Step 2 alone: replaces the isolated hot pixels of `counts` (delays x energies) by the median
+/// of their neighbours, by the rule in the header comment with k = hot_pixel_sigma and
+/// ratio = hot_pixel_ratio; bins flagged in `saturated` (same shape, > 0 = saturated; may be
+/// empty) are left alone. Returns the number replaced. Also used by the classifier, whose
+/// spectral fringe test a single spike would fake (a delta in energy has flat fringes).
+std::size_t remove_hot_pixels(Eigen::MatrixXd& counts, const Eigen::MatrixXd& saturated, double hot_pixel_sigma,
+                              double hot_pixel_ratio);
 
 /// Poisson resample of a trace's counts (parametric bootstrap replica), seeded. Saturated
 /// bins (detect_saturation) keep their value and draws are clipped at the saturation level,
