@@ -155,22 +155,42 @@ done
 st=$?
 [ "$st" = 0 ] || [ "$st" = 5 ] || fail "single-process batch exit $st"
 # Identical summaries: every column except seconds (run time) and report (the link goes
-# through shard-K/ in the merged summary). RFC 4180 CSV (quoted messages hold commas): parsed
-# with Python's csv module when a python3 is there, else only summarize --against below.
+# through shard-K/ in the merged summary); text exactly, numbers to 1e-9 relative (docs/batch.md
+# "Seeds": between processes FFTW's measured plans may change the last digits, ~1e-14).
+# RFC 4180 CSV (quoted messages hold commas): parsed with Python's csv module when a python3
+# is there, else only summarize --against below.
 rows=$(grep -c '' "$D/single/summary.csv")
 rows=$((rows - 1))
 [ "$rows" = 4 ] || fail "the single batch summary has $rows rows, expected 4"
 PY=$(command -v /usr/bin/python3 || command -v python3 || true)
 if [ -n "$PY" ]; then
   "$PY" - "$OUT/merged/summary.csv" "$D/single/summary.csv" <<'PYEOF' || fail "the merged Slurm summary differs from the single-process batch (above)"
-import csv, sys
+import csv, math, sys
 def rows(p):
     with open(p, newline="") as f:
         return [{k: v for k, v in r.items() if k not in ("seconds", "report")} for r in csv.DictReader(f)]
+def num(v):
+    try:
+        x = float(v)
+        return x if math.isfinite(x) else None
+    except ValueError:
+        return None
 a, b = rows(sys.argv[1]), rows(sys.argv[2])
-bad = [(x, y) for x, y in zip(a, b) if x != y]
-for x, y in bad:
-    print("merged:", x); print("single:", y)
+bad, worst = [], 0.0
+for x, y in zip(a, b):
+    if x.keys() != y.keys():
+        bad.append((x, y)); continue
+    for k in x:
+        u, v = num(x[k]), num(y[k])
+        if u is not None and v is not None:
+            rel = abs(u - v) / max(abs(u), abs(v), 1e-300)
+            worst = max(worst, rel)
+            if rel > 1e-9: bad.append((x["scan"] + "." + k, (x[k], y[k])))
+        elif x[k] != y[k]:
+            bad.append((x["scan"] + "." + k, (x[k], y[k])))
+for what, vals in bad:
+    print("differs:", what, vals)
+print(f"{len(a)} vs {len(b)} rows; largest relative difference of a number {worst:.1e}")
 sys.exit(1 if bad or len(a) != len(b) else 0)
 PYEOF
   echo "merged summary of 3 shards = single-process batch summary ($rows scans, all columns but seconds/report)"
