@@ -322,8 +322,7 @@ Canvas render_trace(const Eigen::MatrixXd& data, const std::vector<double>& dela
 
 Canvas render_comparison(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& retrieved,
                          const std::vector<double>& delay_fs, const std::vector<double>& energy_eV,
-                         const ComparisonFigureOptions& o, const std::string& path,
-                         bool vector) {
+                         const ComparisonFigureOptions& o, const std::string& path, bool vector) {
   const std::string figure = "trace comparison figure";
   require_valid(o.validate(), figure, path);
   check_trace_inputs(measured, delay_fs, energy_eV, figure, path);
@@ -664,8 +663,8 @@ void plot_trace_comparison(const Eigen::MatrixXd& measured, const Eigen::MatrixX
                            const std::vector<double>& delay_fs,
                            const std::vector<double>& energy_eV,
                            const ComparisonFigureOptions& options, const std::string& path) {
-  const Canvas c = render_comparison(measured, retrieved, delay_fs, energy_eV, options, path,
-                                     wants_svg(path));
+  const Canvas c =
+      render_comparison(measured, retrieved, delay_fs, energy_eV, options, path, wants_svg(path));
   write_canvas(c, path, "trace comparison figure");
 }
 
@@ -702,8 +701,8 @@ FigureBytes render_trace_image(const Eigen::MatrixXd& data_rows_delay,
                                const std::vector<double>& energy_eV,
                                const TraceFigureOptions& options, plot::FigureFormat format) {
   const bool v = format == plot::FigureFormat::kSvg;
-  const Canvas c = render_trace(data_rows_delay, delay_fs, energy_eV, options, "(in memory)",
-                                nullptr, v);
+  const Canvas c =
+      render_trace(data_rows_delay, delay_fs, energy_eV, options, "(in memory)", nullptr, v);
   return {c.encode_png(), v ? c.encode_svg() : std::string()};
 }
 

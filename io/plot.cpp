@@ -1,8 +1,8 @@
 #include "io/plot.h"
 
 #include <algorithm>
-#include <cctype>
 #include <array>
+#include <cctype>
 #include <cmath>
 #include <cstdio>
 #include <mutex>

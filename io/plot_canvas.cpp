@@ -96,11 +96,21 @@ std::string xml_text(const std::string& t) {
   o.reserve(t.size());
   for (char ch : t) {
     switch (ch) {
-      case '&': o += "&amp;"; break;
-      case '<': o += "&lt;"; break;
-      case '>': o += "&gt;"; break;
-      case '"': o += "&quot;"; break;
-      case '\'': o += "&apos;"; break;
+      case '&':
+        o += "&amp;";
+        break;
+      case '<':
+        o += "&lt;";
+        break;
+      case '>':
+        o += "&gt;";
+        break;
+      case '"':
+        o += "&quot;";
+        break;
+      case '\'':
+        o += "&apos;";
+        break;
       default:
         if (static_cast<unsigned char>(ch) < 0x20 && ch != '\t' && ch != '\n' && ch != '\r')
           o += '?';
@@ -181,8 +191,7 @@ void Canvas::text(const std::string& text, double x, double y, TextStyle style, 
     if (vector_) {
       // The anchor x stays where it is (text-anchor), so a wider or narrower SVG font keeps
       // its alignment; the baseline is the raster's (bottom edge of its baseline row).
-      svg_.push_back(
-          svg_text_element(text, x, std::lround(oy) + 1.0, style, color, h, ""));
+      svg_.push_back(svg_text_element(text, x, std::lround(oy) + 1.0, style, color, h, ""));
     }
     return;
   }
@@ -246,8 +255,9 @@ void Canvas::text_boxed(const std::string& text, double x, double y, TextStyle s
   }
   cv::putText(img_, text, o, kFont, scale, to_bgr(color), 1, cv::LINE_AA);
   if (vector_) {
-    const double ax = h == HAlign::kLeft ? o.x : h == HAlign::kCenter ? o.x + s.width / 2.0
-                                                                      : o.x + s.width;
+    const double ax = h == HAlign::kLeft     ? o.x
+                      : h == HAlign::kCenter ? o.x + s.width / 2.0
+                                             : o.x + s.width;
     svg_.push_back(svg_text_element(text, ax, o.y + 1.0, style, color, h, ""));
   }
 }
@@ -409,9 +419,10 @@ void Canvas::rect(const cv::Rect& r, Rgb color, int thickness) {
 void Canvas::pixel_line(int x0, int y0, int x1, int y1, Rgb color) {
   cv::line(img_, {x0, y0}, {x1, y1}, to_bgr(color), 1, cv::LINE_8);
   if (vector_) {
-    svg_.push_back("<line x1=\"" + f2(x0 + 0.5) + "\" y1=\"" + f2(y0 + 0.5) + "\" x2=\"" +
-                   f2(x1 + 0.5) + "\" y2=\"" + f2(y1 + 0.5) + "\" stroke=\"" + svg_color(color) +
-                   "\" stroke-width=\"1\" stroke-linecap=\"square\" shape-rendering=\"crispEdges\"/>");
+    svg_.push_back(
+        "<line x1=\"" + f2(x0 + 0.5) + "\" y1=\"" + f2(y0 + 0.5) + "\" x2=\"" + f2(x1 + 0.5) +
+        "\" y2=\"" + f2(y1 + 0.5) + "\" stroke=\"" + svg_color(color) +
+        "\" stroke-width=\"1\" stroke-linecap=\"square\" shape-rendering=\"crispEdges\"/>");
   }
 }
 
@@ -421,7 +432,8 @@ void Canvas::embed_raster(const cv::Rect& r) {
   if (in.empty()) return;
   std::vector<unsigned char> png;
   if (!cv::imencode(".png", img_(in), png)) {
-    throw Error(ErrorKind::kInternal, "PNG encoding of a figure's image region failed (OpenCV imencode).");
+    throw Error(ErrorKind::kInternal,
+                "PNG encoding of a figure's image region failed (OpenCV imencode).");
   }
   svg_.push_back("<image x=\"" + std::to_string(in.x) + "\" y=\"" + std::to_string(in.y) +
                  "\" width=\"" + std::to_string(in.width) + "\" height=\"" +
@@ -433,12 +445,14 @@ void Canvas::embed_raster(const cv::Rect& r) {
 
 std::string Canvas::encode_svg() const {
   if (!vector_) {
-    throw Error(ErrorKind::kInternal, "SVG requested from a figure canvas made without the vector back end.");
+    throw Error(ErrorKind::kInternal,
+                "SVG requested from a figure canvas made without the vector back end.");
   }
   const std::string w = std::to_string(img_.cols), h = std::to_string(img_.rows);
   std::string o = "<?xml version=\"1.0\" encoding=\"UTF-8\" standalone=\"no\"?>\n";
   o += "<svg xmlns=\"http://www.w3.org/2000/svg\" xmlns:xlink=\"http://www.w3.org/1999/xlink\" "
-       "version=\"1.1\" width=\"" + w + "\" height=\"" + h + "\" viewBox=\"0 0 " + w + " " + h +
+       "version=\"1.1\" width=\"" +
+       w + "\" height=\"" + h + "\" viewBox=\"0 0 " + w + " " + h +
        "\" font-family=\"DejaVu Sans, Helvetica, Arial, sans-serif\">\n";
   if (!defs_.empty()) {
     o += "<defs>\n";

@@ -83,9 +83,9 @@ class Canvas {
 
   cv::Mat img_;  // CV_8UC3, BGR
   bool vector_ = false;
-  std::vector<std::string> svg_;     // body elements in drawing order
-  std::vector<std::string> defs_;    // <clipPath> definitions
-  std::vector<cv::Rect> clip_rects_; // rectangles of defs_, index = id number
+  std::vector<std::string> svg_;      // body elements in drawing order
+  std::vector<std::string> defs_;     // <clipPath> definitions
+  std::vector<cv::Rect> clip_rects_;  // rectangles of defs_, index = id number
 };
 
 /// One axis: data range, scale and ticks.

@@ -2,8 +2,8 @@
 
 #include <algorithm>
 #include <array>
-#include <cstddef>
 #include <cmath>
+#include <cstddef>
 #include <cstdio>
 #include <fstream>
 #include <iterator>
@@ -74,7 +74,8 @@ bool is_png(const std::vector<unsigned char>& b) {
 
 // An SVG document as the figures write it: an XML declaration, then the <svg element.
 bool is_svg(const std::vector<unsigned char>& b) {
-  const std::string head(b.begin(), b.begin() + static_cast<std::ptrdiff_t>(std::min<std::size_t>(b.size(), 512)));
+  const std::string head(
+      b.begin(), b.begin() + static_cast<std::ptrdiff_t>(std::min<std::size_t>(b.size(), 512)));
   return head.rfind("<?xml", 0) == 0 && head.find("<svg") != std::string::npos;
 }
 
@@ -333,8 +334,8 @@ void HtmlReport::add_figure(const std::string& png_path, const std::string& capt
 void HtmlReport::add_embedded(const std::string& mime, const std::vector<unsigned char>& bytes,
                               const std::string& caption) {
   ++figures_;
-  std::string h = "<figure><img alt=\"Figure " + std::to_string(figures_) + "\" src=\"data:" +
-                  mime + ";base64," + base64_encode(bytes) + "\">";
+  std::string h = "<figure><img alt=\"Figure " + std::to_string(figures_) +
+                  "\" src=\"data:" + mime + ";base64," + base64_encode(bytes) + "\">";
   h += "<figcaption><b>Figure " + std::to_string(figures_) + ".</b> " + html_escape(caption) +
        "</figcaption></figure>";
   blocks_.push_back(std::move(h));

@@ -35,7 +35,9 @@ struct XmlElement {
   std::string text;                          ///< direct character data, entities decoded
 };
 
-bool name_start(char c) { return std::isalpha(static_cast<unsigned char>(c)) || c == '_' || c == ':'; }
+bool name_start(char c) {
+  return std::isalpha(static_cast<unsigned char>(c)) || c == '_' || c == ':';
+}
 bool name_char(char c) {
   return name_start(c) || std::isdigit(static_cast<unsigned char>(c)) || c == '-' || c == '.';
 }
@@ -52,11 +54,16 @@ bool decode_entities(const std::string& raw, std::string* out) {
     const std::size_t semi = raw.find(';', i);
     if (semi == std::string::npos) return false;
     const std::string ent = raw.substr(i + 1, semi - i - 1);
-    if (ent == "amp") *out += '&';
-    else if (ent == "lt") *out += '<';
-    else if (ent == "gt") *out += '>';
-    else if (ent == "quot") *out += '"';
-    else if (ent == "apos") *out += '\'';
+    if (ent == "amp")
+      *out += '&';
+    else if (ent == "lt")
+      *out += '<';
+    else if (ent == "gt")
+      *out += '>';
+    else if (ent == "quot")
+      *out += '"';
+    else if (ent == "apos")
+      *out += '\'';
     else if (ent.size() > 1 && ent[0] == '#') {
       const long v = ent[1] == 'x' ? std::strtol(ent.c_str() + 2, nullptr, 16)
                                    : std::strtol(ent.c_str() + 1, nullptr, 10);
@@ -85,7 +92,8 @@ std::string parse_xml(const std::string& doc, std::vector<XmlElement>* elements)
   while (i < doc.size()) {
     if (doc[i] != '<') {
       const std::size_t next = doc.find('<', i);
-      const std::string raw = doc.substr(i, next == std::string::npos ? std::string::npos : next - i);
+      const std::string raw =
+          doc.substr(i, next == std::string::npos ? std::string::npos : next - i);
       std::string text;
       if (!decode_entities(raw, &text)) return err("bad entity in character data");
       if (open.empty()) {
@@ -161,8 +169,10 @@ std::string parse_xml(const std::string& doc, std::vector<XmlElement>* elements)
     if (open.empty() && root_seen) return err("a second root element");
     root_seen = true;
     elements->push_back(el);
-    if (!self_closing) open.push_back(elements->size() - 1);
-    else if (open.empty()) root_closed = true;
+    if (!self_closing)
+      open.push_back(elements->size() - 1);
+    else if (open.empty())
+      root_closed = true;
     i = j;
   }
   if (!root_seen) return "no root element";
@@ -298,9 +308,11 @@ TEST_CASE("trace image as SVG: well-formed, labels as text, image embedded at th
   const TestTrace t = make_trace();
   sw::TraceFigureOptions o;
   o.title = "synthetic trace";
-  o.curves.push_back({t.delay, std::vector<double>(t.delay.size(), 95.0), "centre", {255, 255, 255}, true, 2});
+  o.curves.push_back(
+      {t.delay, std::vector<double>(t.delay.size(), 95.0), "centre", {255, 255, 255}, true, 2});
   o.markers.push_back({100.0, "SB14", {255, 255, 255}});
-  const sw::FigureBytes b = sw::render_trace_image(t.data, t.delay, t.energy, o, FigureFormat::kSvg);
+  const sw::FigureBytes b =
+      sw::render_trace_image(t.data, t.delay, t.energy, o, FigureFormat::kSvg);
   const std::vector<XmlElement> els = parsed_svg(b.svg);
 
   // Text as text: title, both axis labels, colour-bar label, marker label (W3C SVG 1.1 <text>).
@@ -354,7 +366,8 @@ TEST_CASE("trace image as SVG: well-formed, labels as text, image embedded at th
   double best = -1.0;
   for (int rr = 0; rr < img.rows; ++rr) {
     const cv::Vec3b p = img.at<cv::Vec3b>(rr, col0);
-    const double l = 0.0722 * p[0] + 0.7152 * p[1] + 0.2126 * p[2];  // Rec. 709 luma (common practice)
+    const double l =
+        0.0722 * p[0] + 0.7152 * p[1] + 0.2126 * p[2];  // Rec. 709 luma (common practice)
     if (l > best && std::abs(g.y_to_row(95.0) - g.top - rr) < 40) {  // skip the white overlay
       best = l;
       best_row = rr;
@@ -368,7 +381,8 @@ TEST_CASE("trace image as SVG: well-formed, labels as text, image embedded at th
   check_with_xmllint(dir.file("trace.svg"));
 }
 
-TEST_CASE("line plot as SVG: paths at the documented pixel positions, markers as circles", "[svg]") {
+TEST_CASE("line plot as SVG: paths at the documented pixel positions, markers as circles",
+          "[svg]") {
   const sw::LinePlot lp = make_lines();
   const sw::FigureBytes b = sw::render_lines(lp, FigureFormat::kSvg);
   const std::vector<XmlElement> els = parsed_svg(b.svg);
@@ -402,9 +416,8 @@ TEST_CASE("line plot as SVG: paths at the documented pixel positions, markers as
 
   // A comparison figure (three panels) is well-formed too and embeds 3 traces + 3 bars.
   const TestTrace t = make_trace();
-  const sw::FigureBytes c = sw::render_trace_comparison(t.data, t.data * 0.9, t.delay, t.energy,
-                                                        sw::ComparisonFigureOptions{},
-                                                        FigureFormat::kSvg);
+  const sw::FigureBytes c = sw::render_trace_comparison(
+      t.data, t.data * 0.9, t.delay, t.energy, sw::ComparisonFigureOptions{}, FigureFormat::kSvg);
   const std::vector<XmlElement> cels = parsed_svg(c.svg);
   CHECK(images(cels).size() == 6);
   CHECK(has_text(cels, "measured - retrieved"));
@@ -436,7 +449,8 @@ TEST_CASE("report.html embeds an SVG figure as image/svg+xml", "[svg]") {
   const auto at = h.find(key);
   REQUIRE(at != std::string::npos);
   const auto end = h.find('"', at);
-  const std::vector<unsigned char> back = sw::base64_decode(h.substr(at + key.size(), end - at - key.size()));
+  const std::vector<unsigned char> back =
+      sw::base64_decode(h.substr(at + key.size(), end - at - key.size()));
   CHECK(std::string(back.begin(), back.end()) == read_file(dir.file("f.svg")));
   sw::test::write_text(dir.file("bad.svg"), "not a figure");
   CHECK_THROWS_WITH(r.add_figure(dir.file("bad.svg"), "x"), Catch::Contains("neither a PNG"));
@@ -446,7 +460,8 @@ TEST_CASE("--figure-format svg on simulate, classify and batch", "[svg][cli]") {
   TempDir dir("svg_cli");
   const std::string d = dir.path.string();
   auto cli = [](const std::string& args) { return sw::test::run_cli(args); };
-  auto r = cli("simulate --preset neon-150as --out " + d + "/in --name s1 --seed 3 --quiet --figure-format svg");
+  auto r = cli("simulate --preset neon-150as --out " + d +
+               "/in --name s1 --seed 3 --quiet --figure-format svg");
   INFO(r.out);
   REQUIRE(r.code == 0);
   CHECK(fs::exists(d + "/in/s1.figure.svg"));
