@@ -15,6 +15,10 @@ PRESET  ?= neon-150as
 DEPS := cmake g++ make pkg-config libeigen3-dev libfftw3-dev libceres-dev \
         libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev \
         catch2 libcli11-dev nlohmann-json3-dev libhdf5-dev libbenchmark-dev
+# python3-matplotlib: the batch-trends example (docs/examples/plot_batch_trends.py) and its test.
+# slurm-wlm, munge: the Slurm array test (tests/slurm/, runs only as root); their services stay
+# off until /etc/slurm/slurm.conf exists, the test starts private daemons of its own.
+DEPS += python3-matplotlib slurm-wlm munge
 
 FUZZ_SECONDS ?= 60
 

@@ -83,7 +83,7 @@ ScanOutcome run_scan(const ScanJob& job) {
         job.progress(stage, m.str());
       });
       add_input_warnings(trace, out.result.warnings);
-      write_retrieval_outputs(trace, out, job.out_dir, prov);
+      write_retrieval_outputs(trace, out, job.out_dir, prov, job.figure_format);
       o.result = out.result;
       for (const Param& p : prov) o.result.extra.push_back(p);
       o.exit_code = out.reconstruction.converged() ? 0 : 4;

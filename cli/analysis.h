@@ -7,6 +7,7 @@
 #include <string>
 #include <vector>
 
+#include "io/plot.h"
 #include "io/trace_reader.h"
 #include "retrieval/classifier.h"
 #include "retrieval/error.h"
@@ -41,6 +42,8 @@ struct ScanJob {
   RetrieveOptions retrieve;            ///< options of the streaking retrieval
   std::string atomic_correction = "auto";  ///< rabbitt: auto | none
   bool quiet = true;                   ///< no progress output
+  /// Figures as PNG (default) or SVG (--figure-format); report.html embeds whichever.
+  plot::FigureFormat figure_format = plot::FigureFormat::kPng;
   /// Called with (stage, message) during long work; may be empty.
   std::function<void(const std::string&, const std::string&)> progress;
   std::vector<Param> extra_provenance; ///< e.g. batch options, appended to the result

@@ -276,6 +276,8 @@ std::string batch_options_string(const BatchOptions& o) {
   for (const auto& [k, v] : r.engine_extra) s << ";engine." << k << "=" << v;
   if (r.preprocess.energy_window_lo_eV != 0 || r.preprocess.energy_window_hi_eV != 0)
     s << ";energy_window=" << num(r.preprocess.energy_window_lo_eV) << ":" << num(r.preprocess.energy_window_hi_eV);
+  // Only when not the default, so results written before the option existed stay reusable.
+  if (o.figure_format != plot::FigureFormat::kPng) s << ";figure_format=" << to_string(o.figure_format);
   return s.str();
 }
 
@@ -299,6 +301,9 @@ std::string scan_options_string(const BatchScan& scan, const BatchOptions& o) {
   s << ";override.gas=" << e.overrides.gas.value_or("") << ";override.ir_wavelength_nm="
     << (e.overrides.ir_wavelength_nm ? num(*e.overrides.ir_wavelength_nm) : "")
     << ";override.kind=" << e.overrides.kind.value_or("");
+  // Only when not the default, so results written before the option existed stay reusable;
+  // --resume then redoes a scan whose figures are in the other format.
+  if (o.figure_format != plot::FigureFormat::kPng) s << ";figure_format=" << to_string(o.figure_format);
   return s.str();
 }
 
@@ -373,6 +378,7 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
       job.retrieve.threads = engine_threads(o);
       job.atomic_correction = o.atomic_correction;
       job.quiet = true;
+      job.figure_format = o.figure_format;
       job.read_policy = o.read_policy;
       job.progress = [](const std::string&, const std::string&) {
         if (g_interrupts.load() >= 2)

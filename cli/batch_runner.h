@@ -48,6 +48,8 @@ struct BatchOptions {
   ScanOverrides overrides;                      ///< for every scan (a manifest row's values win)
   bool quiet = false;                           ///< no progress on stderr
   TraceReadPolicy read_policy;                  ///< data-file confinement (input roots)
+  /// Figures of every scan and the trend figures: PNG (default) or SVG (--figure-format).
+  plot::FigureFormat figure_format = plot::FigureFormat::kPng;
   /// Empty if usable, else a message naming the option, its value and the constraint.
   std::string validate() const;
 };

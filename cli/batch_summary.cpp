@@ -385,11 +385,15 @@ std::optional<double> parse_iso8601_utc(const std::string& text) {
 void write_summary_outputs(const std::string& dir, const std::vector<SummaryRow>& rows,
                            const std::vector<std::pair<std::string, std::string>>& info,
                            const std::string& title, const std::vector<std::string>& notes,
-                           const std::vector<SummaryTable>& tables) {
+                           const std::vector<SummaryTable>& tables,
+                           plot::FigureFormat figure_format) {
   std::error_code ec;
   fs::create_directories(dir, ec);
   if (ec) throw input_error("cannot create the summary folder '" + dir + "': " + ec.message());
-  const auto path = [&](const char* f) { return (fs::path(dir) / f).string(); };
+  // Figures ("*.png" below) take the extension of the requested format.
+  const auto path = [&](const char* f) {
+    return (fs::path(dir) / plot::with_figure_extension(f, figure_format)).string();
+  };
   write_file_atomic(path("summary.csv"), summary_csv(rows));
   write_file_atomic(path("summary.json"), summary_json(rows, info));
   const auto& hq = headline_quantities();

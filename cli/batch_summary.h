@@ -15,6 +15,7 @@
 #include <string>
 #include <vector>
 
+#include "io/plot.h"
 #include "retrieval/result.h"
 
 namespace sw::cli {
@@ -88,7 +89,8 @@ struct SummaryTable {
 void write_summary_outputs(const std::string& dir, const std::vector<SummaryRow>& rows,
                            const std::vector<std::pair<std::string, std::string>>& info,
                            const std::string& title, const std::vector<std::string>& notes,
-                           const std::vector<SummaryTable>& tables = {});
+                           const std::vector<SummaryTable>& tables = {},
+                           plot::FigureFormat figure_format = plot::FigureFormat::kPng);
 
 /// The rows of a batch output folder: DIR/summary.json if present; else the summary.json files
 /// of its immediate sub-folders (shard-1, shard-2, ...); else one ok row per result.json found

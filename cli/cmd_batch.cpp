@@ -87,7 +87,7 @@ void apply_config(BatchArgs& a) {
         "analysis",        "engine",       "iterations",     "bootstrap",   "seed",
         "threads",         "jobs",         "dipole",         "despike",     "atomic_correction",
         "cma_phase_limit", "cma_fit_limit", "isolated_max", "satellites_max", "max_seconds", "resume",
-        "energy_window"};
+        "energy_window",   "figure_format"};
     if (std::find(known.begin(), known.end(), k) == known.end()) {
       std::string list = "gas, ir_wavelength_nm, kind";
       for (const auto& n : known) list += ", " + n;
@@ -114,6 +114,11 @@ void apply_config(BatchArgs& a) {
       a.dipole = get_string(k, v);
     else if (k == "energy_window")
       a.energy_window = get_string(k, v);
+    else if (k == "figure_format") {
+      const std::string f = get_string(k, v);
+      if (!plot::parse_figure_format(f, &a.options.figure_format))
+        throw usage_error(where(k) + " = '" + f + "'; expected png or svg");
+    }
     else if (k == "despike") {
       if (!v.is_boolean()) throw usage_error(where(k) + ": expected true or false");
       r.preprocess.remove_hot_pixels = v.get<bool>();
@@ -231,7 +236,7 @@ int run_batch_command(BatchArgs& a) {
     notes.push_back("The batch was interrupted; scans marked 'not run' did not start.");
   const std::filesystem::path out(a.out);
   write_summary_outputs(a.out, rep.rows, info, "streakwright batch: " + out.filename().string(),
-                        notes);
+                        notes, {}, o.figure_format);
 
   for (const auto& r : rep.rows)
     if (r.status != "ok")
@@ -262,12 +267,13 @@ void add_batch_command(CLI::App& app) {
       "(.csv, or .json/.yaml with a \"scans\" list; per-scan columns scan, name, gas,\n"
       "ir_wavelength_nm, engine, kind, analysis). Each scan is written to DIR/<its path relative\n"
       "to its input folder, without extension>/ (result.json, CSVs, figures, report.html), via a\n"
-      "temporary folder renamed into place. Then DIR/summary.csv, summary.json, trend_*.png and\n"
-      "index.html. A failed scan never stops the batch.\n"
+      "temporary folder renamed into place. Then DIR/summary.csv, summary.json, trend_*.png\n"
+      "(.svg with --figure-format svg) and index.html. A failed scan never stops the batch.\n"
       "--config FILE (JSON or YAML): the options below as keys (analysis, engine, iterations,\n"
       "bootstrap, seed, threads, jobs, dipole, despike, atomic_correction, cma_phase_limit, cma_fit_limit,\n"
-      "isolated_max, satellites_max, max_seconds, resume, energy_window \"LO:HI\"), plus gas, ir_wavelength_nm and kind\n"
-      "applied to every scan (manifest rows win); command-line options win over the file.\n"
+      "isolated_max, satellites_max, max_seconds, resume, energy_window \"LO:HI\", figure_format),\n"
+      "plus gas, ir_wavelength_nm and kind applied to every scan (manifest rows win);\n"
+      "command-line options win over the file.\n"
       "Seeds: each scan's seed derives from --seed and its name, so results do not depend on\n"
       "--jobs or --shard. Ctrl-C: no new scans start, running ones finish (twice: abandoned).\n"
       "Exit: 0 all ok, 5 some scan failed, 2 bad usage, 130 interrupted. See docs/batch.md.");
@@ -329,6 +335,7 @@ void add_batch_command(CLI::App& app) {
   a->cli["max_seconds"] = cmd->add_option("--max-seconds", a->options.retrieve.max_seconds,
                                           "wall-time budget per scan (s)")
                               ->capture_default_str();
+  a->cli["figure_format"] = add_figure_format_option(cmd, &a->options.figure_format);
   cmd->add_flag("--dry-run", a->dry_run,
                 "list the scans (name and sidecar) of this shard and exit");
   cmd->add_flag("--quiet,-q", a->options.quiet, "no progress on stderr");

@@ -138,7 +138,8 @@ AnalysisResult run_classify_analysis(const Trace& scan, const ScanJob& job,
   P("settings.retrieve", job.classify_retrieve);
   for (const Param& p : prov) res.extra.push_back(p);
   for (const auto& [k, v] : trace.meta.extra_json) res.extra_json["sidecar." + k] = v;
-  write_classify_outputs(trace, res, ret ? &ret->reconstruction : nullptr, lambda, job.out_dir);
+  write_classify_outputs(trace, res, ret ? &ret->reconstruction : nullptr, lambda, job.out_dir,
+                         job.figure_format);
   return res;
 }
 
@@ -153,6 +154,7 @@ struct ClassifyArgs {
   RetrieveOptions retrieve_options;
   ClassifierOptions options;
   std::string energy_window;
+  plot::FigureFormat figure_format = plot::FigureFormat::kPng;
 };
 
 int run_classify(ClassifyArgs& a) {
@@ -177,6 +179,7 @@ int run_classify(ClassifyArgs& a) {
   if (a.wavelength_nm != 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;  // checked by CLI11
   if (!a.gas.empty()) job.overrides.gas = a.gas;
   job.quiet = a.quiet;
+  job.figure_format = a.figure_format;
   job.read_policy.allow_outside_data = a.allow_outside_data;
   const ScanOutcome o = run_scan_or_throw(job);
   const VerdictSection& v = *o.result.verdict;
@@ -247,6 +250,7 @@ void add_classify_command(CLI::App& app) {
   cmd->add_option("--min-counts", a->options.min_total_counts,
                   "fewer counts in the whole scan give 'undetermined'")
       ->capture_default_str();
+  add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no progress or warnings on stderr");
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,
                 "read a data file outside the sidecar's folder tree (refused by default)");

@@ -126,7 +126,7 @@ AnalysisResult run_rabbitt_analysis(const Trace& scan, const ScanJob& job,
   for (const Param& p : prov) res.extra.push_back(p);
   for (const auto& [k, v] : trace.meta.extra_json) res.extra_json["sidecar." + k] = v;
 
-  write_rabbitt_outputs(trace, rb, burst ? &*burst : nullptr, res, job.out_dir);
+  write_rabbitt_outputs(trace, rb, burst ? &*burst : nullptr, res, job.out_dir, job.figure_format);
   return res;
 }
 
@@ -144,6 +144,7 @@ struct RabbittArgs {
   bool no_rainbow = false;
   bool quiet = false;
   bool allow_outside_data = false;
+  plot::FigureFormat figure_format = plot::FigureFormat::kPng;
 };
 
 std::string summary_line(const AnalysisResult& r) {
@@ -196,6 +197,7 @@ int run_rabbitt(RabbittArgs& a) {
     throw usage_error("--atomic-correction " + a.atomic + ": expected auto or none");
   if (const std::string e = check.validate(); !e.empty()) throw usage_error(e);
   job.quiet = a.quiet;
+  job.figure_format = a.figure_format;
   job.read_policy.allow_outside_data = a.allow_outside_data;
   const ScanOutcome o = run_scan_or_throw(job);
   std::printf("%s\n", summary_line(o.result).c_str());
@@ -257,6 +259,7 @@ void add_rabbitt_command(CLI::App& app) {
   cmd->add_option("--energy-window", a->energy_window,
                   "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV");
   cmd->add_flag("--no-rainbow", a->no_rainbow, "skip the per-energy-bin (rainbow) fits");
+  add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no warnings on stderr (they stay in the report)");
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,
                 "read data files outside the sidecars' folder trees (refused by default)");

@@ -24,6 +24,7 @@ struct RetrieveArgs {
   std::string energy_window;  ///< --energy-window LO:HI (eV), "" = none
   bool quiet = false;
   bool allow_outside_data = false;
+  plot::FigureFormat figure_format = plot::FigureFormat::kPng;
 };
 
 std::string summary_line(const AnalysisResult& r) {
@@ -60,6 +61,7 @@ int run_retrieve(RetrieveArgs& a) {
   job.analysis = AnalysisKind::kRetrieve;
   job.retrieve = a.options;
   job.quiet = a.quiet;
+  job.figure_format = a.figure_format;
   job.read_policy.allow_outside_data = a.allow_outside_data;
   const ScanOutcome o = run_scan_or_throw(job);
   std::printf("%s\n", summary_line(o.result).c_str());
@@ -81,7 +83,7 @@ void add_retrieve_command(CLI::App& app) {
       "  ptychographic  ePIE applied to streaking (CMA): XUV = object, phase gate = probe\n"
       "  projections    generalized projections (CMA): PCGPA on matched grids, LSGPA otherwise\n"
       "  full-model     least-squares fit of the full SFA model without the CMA (Ceres, L-BFGS)\n"
-      "Writes into DIR: result.json, report.html, CSVs (with units) and PNG figures.\n"
+      "Writes into DIR: result.json, report.html, CSVs (with units) and PNG (or SVG) figures.\n"
       "Prints a one-line summary. Exit 0 ok, 2 bad usage, 3 bad input, 4 not converged\n"
       "(best estimate written, converged: false).";
   cmd->footer(engines);
@@ -108,6 +110,7 @@ void add_retrieve_command(CLI::App& app) {
   cmd->add_option("--energy-window", a->energy_window,
                   "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV "
                   "and the automatic window around the strongest line");
+  add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no progress on stderr");
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,
                 "read a data file outside the sidecar's folder tree ('..', absolute or symlinked "

@@ -4,6 +4,7 @@
 #include <memory>
 
 #include "cli/commands.h"
+#include "cli/option_checks.h"
 #include "cli/simulate_config.h"
 #include "io/figures.h"
 #include "io/trace_writer.h"
@@ -21,6 +22,7 @@ struct SimulateArgs {
   unsigned long long seed = 1;
   bool list = false;
   bool quiet = false;
+  plot::FigureFormat figure_format = plot::FigureFormat::kPng;
 };
 
 TraceFormat to_trace_format(synthetic::OutputFormat f) {
@@ -66,7 +68,7 @@ int run_simulate(const SimulateArgs& a) {
   std::vector<double> dfs(t.num_delays()), eev(t.num_energies());
   for (std::size_t i = 0; i < dfs.size(); ++i) dfs[i] = units::au_to_fs(t.delay_au[i]);
   for (std::size_t j = 0; j < eev.size(); ++j) eev[j] = units::au_to_eV(t.energy_au[j]);
-  const std::string png = (std::filesystem::path(a.out) / (name + ".figure.png")).string();
+  const std::string png = (std::filesystem::path(a.out) / (name + ".figure" + plot::figure_extension(a.figure_format))).string();
   if (t.num_delays() >= 2) {
     TraceFigureOptions fo;
     fo.title = name + " (synthetic, seed " + std::to_string(a.seed) + ")";
@@ -99,7 +101,7 @@ void add_simulate_command(CLI::App& app) {
       "noise: energy resolution, background, Poisson counting, readout noise, saturation, delay\n"
       "jitter and drift, IR intensity and CEP fluctuations. Writes DIR/NAME.json (sidecar), the\n"
       "data image, DIR/NAME.truth.json (result.json keys + every generator parameter) and\n"
-      "DIR/NAME.figure.png. Every random draw derives from --seed.");
+      "DIR/NAME.figure.png (.svg with --figure-format svg). Every random draw derives from --seed.");
   cmd->add_flag("--list", a->list, "list the presets (name, then a one-line description) and exit");
   cmd->add_option("--preset", a->preset, "preset name (see --list)");
   cmd->add_option("--config", a->config, "scan configuration file (YAML or JSON; keys of docs/file_formats.md)");
@@ -107,6 +109,7 @@ void add_simulate_command(CLI::App& app) {
   cmd->add_option("--seed", a->seed, "seed of every random draw")->capture_default_str();
   cmd->add_option("--name", a->name, "base name of the written files (default: the preset or config name)");
   cmd->add_option("--format", a->format, "data format: png16 | tiff | csv (default: the config's)");
+  add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no progress on stderr");
   cmd->callback([a] { exit_code() = guarded("simulate", [&] { return run_simulate(*a); }); });
 }

@@ -7,6 +7,7 @@
 
 #include "cli/batch_summary.h"
 #include "cli/commands.h"
+#include "cli/option_checks.h"
 #include "cli/summary_compare.h"
 #include "io/atomic_file.h"
 #include "retrieval/error.h"
@@ -21,6 +22,7 @@ struct SummarizeArgs {
   std::vector<std::string> dirs;
   std::string against, out;
   bool quiet = false;
+  plot::FigureFormat figure_format = plot::FigureFormat::kPng;
 };
 
 /// Rows of several batch folders merged by scan name; report paths re-based on `base` (the
@@ -90,7 +92,7 @@ int run_summarize(const SummarizeArgs& a) {
     for (const auto& n : notes) page_notes.push_back(n);
     write_summary_outputs(a.out, rows, info,
                           "streakwright summary: " + fs::path(a.out).filename().string(),
-                          page_notes, tables);
+                          page_notes, tables, a.figure_format);
     if (cmp) write_file_atomic((fs::path(a.out) / "comparison.csv").string(), comparison_csv(*cmp));
     std::printf("summary: %s; index: %s\n", (fs::path(a.out) / "summary.csv").string().c_str(),
                 (fs::path(a.out) / "index.html").string().c_str());
@@ -116,6 +118,7 @@ void add_summarize_command(CLI::App& app) {
   cmd->add_option("dirs", a->dirs, "batch output folders to merge")->required();
   cmd->add_option("--against", a->against, "an older batch output folder to compare with");
   cmd->add_option("--out,-o", a->out, "folder for the merged summary (created)");
+  add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no notes on stderr");
   cmd->callback([a] { exit_code() = guarded("summarize", [&] { return run_summarize(*a); }); });
 }

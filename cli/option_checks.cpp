@@ -67,4 +67,16 @@ void check_numeric_options(CLI::App* cmd) {
   }
 }
 
+CLI::Option* add_figure_format_option(CLI::App* cmd, plot::FigureFormat* out) {
+  return cmd
+      ->add_option_function<std::string>(
+          "--figure-format",
+          [out](const std::string& s) {
+            if (!plot::parse_figure_format(s, out))
+              throw CLI::ValidationError("--figure-format", s + ": expected png or svg");
+          },
+          "figures: png (default) | svg (vector figures for papers; trace images embedded)")
+      ->check(CLI::IsMember({"png", "svg"}));
+}
+
 }  // namespace sw::cli

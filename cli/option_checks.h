@@ -6,6 +6,8 @@
 
 #include <CLI/CLI.hpp>
 
+#include "io/plot.h"
+
 namespace sw::cli {
 
 /// Adds the finite / non-negative checks to every numeric option of `cmd` (call after all
@@ -17,5 +19,9 @@ CLI::Validator ir_wavelength_nm_check();
 
 /// The same rule for wavelengths from files (batch config, manifest): "" or the violated rule.
 std::string ir_wavelength_nm_problem(double nm);
+
+/// `--figure-format png|svg` (default png: PNG figures; svg: vector figures for papers, trace
+/// images embedded), parsed into `out`. Shared by every subcommand that writes figures.
+CLI::Option* add_figure_format_option(CLI::App* cmd, plot::FigureFormat* out);
 
 }  // namespace sw::cli

@@ -11,8 +11,12 @@
 //                   warnings, settings, figures
 //   result.json     written LAST (io/result_io.h)
 // Every file is written atomically.
+// Figures are .png, or .svg with figure_format = FigureFormat::kSvg (same names, same
+// content; report.html embeds whichever was written).
 
 #include <string>
+
+#include "io/plot.h"
 
 #include "retrieval/engine.h"
 #include "retrieval/result.h"
@@ -26,6 +30,7 @@ namespace sw {
 /// Throws sw::Error (kInput) when the folder cannot be created or written.
 void write_classify_outputs(const Trace& trace, const AnalysisResult& result,
                             const Reconstruction* reconstruction, double ir_wavelength_nm,
-                            const std::string& out_dir);
+                            const std::string& out_dir,
+                            plot::FigureFormat figure_format = plot::FigureFormat::kPng);
 
 }  // namespace sw

@@ -225,6 +225,7 @@ Axes draw_trace_panel(Canvas& c, const cv::Rect& box, const Eigen::MatrixXd& dat
       row[area.x + cidx] = cv::Vec3b(col.b, col.g, col.r);
     }
   }
+  c.embed_raster(area);
 
   // Overlays.
   std::vector<plot::LegendEntry> legend;
@@ -278,6 +279,7 @@ Axes draw_trace_panel(Canvas& c, const cv::Rect& box, const Eigen::MatrixXd& dat
     cv::line(img, {bar.x, bar.y + r}, {bar.x + bar.width - 1, bar.y + r},
              cv::Scalar(col.b, col.g, col.r), 1, cv::LINE_8);
   }
+  c.embed_raster(bar);
   Axes bar_axes(bar, AxisSpec{0, 1, false, "", plot::Ticks{1.0, {}, 0}}, AxisSpec{});
   bar_axes.set_right_axis(cb);
   bar_axes.draw_frame(c, true, false);
@@ -293,11 +295,11 @@ void check_trace_inputs(const Eigen::MatrixXd& data, const std::vector<double>& 
 
 Canvas render_trace(const Eigen::MatrixXd& data, const std::vector<double>& delay_fs,
                     const std::vector<double>& energy_eV, const TraceFigureOptions& o,
-                    const std::string& path, PlotGeometry* geometry) {
+                    const std::string& path, PlotGeometry* geometry, bool vector) {
   const std::string figure = "trace figure";
   require_valid(o.validate(), figure, path);
   check_trace_inputs(data, delay_fs, energy_eV, figure, path);
-  Canvas c(o.width_px, o.height_px);
+  Canvas c(o.width_px, o.height_px, vector);
   TracePanel p;
   p.title = o.title;
   p.x_label = o.x_label;
@@ -320,7 +322,7 @@ Canvas render_trace(const Eigen::MatrixXd& data, const std::vector<double>& dela
 
 Canvas render_comparison(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& retrieved,
                          const std::vector<double>& delay_fs, const std::vector<double>& energy_eV,
-                         const ComparisonFigureOptions& o, const std::string& path) {
+                         const ComparisonFigureOptions& o, const std::string& path, bool vector) {
   const std::string figure = "trace comparison figure";
   require_valid(o.validate(), figure, path);
   check_trace_inputs(measured, delay_fs, energy_eV, figure, path);
@@ -347,7 +349,7 @@ Canvas render_comparison(const Eigen::MatrixXd& measured, const Eigen::MatrixXd&
   const Eigen::MatrixXd scaled = retrieved * mu;
   const Eigen::MatrixXd diff = measured - scaled;
 
-  Canvas c(o.width_px, o.height_px);
+  Canvas c(o.width_px, o.height_px, vector);
   const int top = o.title.empty() ? 0 : Canvas::text_size(o.title, TextStyle::kTitle).height + 22;
   if (!o.title.empty()) {
     c.text(o.title, c.width() / 2.0, top - 8, TextStyle::kTitle, kBlack, HAlign::kCenter,
@@ -424,7 +426,8 @@ std::pair<double, double> padded(Range r, bool log, double pad_fraction) {
   return {r.lo - pad_fraction * w, r.hi + pad_fraction * w};
 }
 
-Canvas render_lines(const LinePlot& lp, const std::string& path, PlotGeometry* geometry) {
+Canvas render_lines(const LinePlot& lp, const std::string& path, PlotGeometry* geometry,
+                    bool vector) {
   const std::string figure = "line plot";
   require_valid(lp.validate(), figure, path);
   for (std::size_t k = 0; k < lp.series.size(); ++k) {
@@ -486,7 +489,7 @@ Canvas render_lines(const LinePlot& lp, const std::string& path, PlotGeometry* g
   y.label = lp.y_label;
   y2.label = lp.y2_label;
 
-  Canvas c(lp.width_px, lp.height_px);
+  Canvas c(lp.width_px, lp.height_px, vector);
   const int top = title_margin(lp.title);
   const int est_h = c.height() - top - bottom_margin();
   y.make_ticks(ticks_target(est_h, 75, 4, 10));
@@ -627,28 +630,48 @@ std::string LinePlot::validate() const {
 // ---------------------------------------------------------------------------------------
 // Public entry points
 
+namespace {
+
+bool wants_svg(const std::string& path) {
+  return plot::figure_format_of_path(path) == plot::FigureFormat::kSvg;
+}
+
+// The canvas in the format its path asks for, written atomically.
+void write_canvas(const Canvas& c, const std::string& path, const std::string& what) {
+  if (c.has_vector()) {
+    const std::string svg = c.encode_svg();
+    plot::write_file_atomically(path, std::vector<unsigned char>(svg.begin(), svg.end()), what);
+  } else {
+    plot::write_file_atomically(path, c.encode_png(), what);
+  }
+}
+
+}  // namespace
+
 PlotGeometry plot_trace_image(const Eigen::MatrixXd& data_rows_delay,
                               const std::vector<double>& delay_fs,
                               const std::vector<double>& energy_eV,
-                              const TraceFigureOptions& options, const std::string& png_path) {
+                              const TraceFigureOptions& options, const std::string& path) {
   PlotGeometry g;
-  const Canvas c = render_trace(data_rows_delay, delay_fs, energy_eV, options, png_path, &g);
-  plot::write_file_atomically(png_path, c.encode_png(), "trace figure");
+  const Canvas c =
+      render_trace(data_rows_delay, delay_fs, energy_eV, options, path, &g, wants_svg(path));
+  write_canvas(c, path, "trace figure");
   return g;
 }
 
 void plot_trace_comparison(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& retrieved,
                            const std::vector<double>& delay_fs,
                            const std::vector<double>& energy_eV,
-                           const ComparisonFigureOptions& options, const std::string& png_path) {
-  const Canvas c = render_comparison(measured, retrieved, delay_fs, energy_eV, options, png_path);
-  plot::write_file_atomically(png_path, c.encode_png(), "trace comparison figure");
+                           const ComparisonFigureOptions& options, const std::string& path) {
+  const Canvas c =
+      render_comparison(measured, retrieved, delay_fs, energy_eV, options, path, wants_svg(path));
+  write_canvas(c, path, "trace comparison figure");
 }
 
-PlotGeometry plot_lines(const LinePlot& plot, const std::string& png_path) {
+PlotGeometry plot_lines(const LinePlot& plot, const std::string& path) {
   PlotGeometry g;
-  const Canvas c = render_lines(plot, png_path, &g);
-  plot::write_file_atomically(png_path, c.encode_png(), "line plot");
+  const Canvas c = render_lines(plot, path, &g, wants_svg(path));
+  write_canvas(c, path, "line plot");
   return g;
 }
 
@@ -656,7 +679,7 @@ std::vector<unsigned char> render_trace_image_png(const Eigen::MatrixXd& data_ro
                                                   const std::vector<double>& delay_fs,
                                                   const std::vector<double>& energy_eV,
                                                   const TraceFigureOptions& options) {
-  return render_trace(data_rows_delay, delay_fs, energy_eV, options, "(in memory)", nullptr)
+  return render_trace(data_rows_delay, delay_fs, energy_eV, options, "(in memory)", nullptr, false)
       .encode_png();
 }
 
@@ -665,12 +688,40 @@ std::vector<unsigned char> render_trace_comparison_png(const Eigen::MatrixXd& me
                                                        const std::vector<double>& delay_fs,
                                                        const std::vector<double>& energy_eV,
                                                        const ComparisonFigureOptions& options) {
-  return render_comparison(measured, retrieved, delay_fs, energy_eV, options, "(in memory)")
+  return render_comparison(measured, retrieved, delay_fs, energy_eV, options, "(in memory)", false)
       .encode_png();
 }
 
 std::vector<unsigned char> render_lines_png(const LinePlot& plot) {
-  return render_lines(plot, "(in memory)", nullptr).encode_png();
+  return render_lines(plot, "(in memory)", nullptr, false).encode_png();
+}
+
+FigureBytes render_trace_image(const Eigen::MatrixXd& data_rows_delay,
+                               const std::vector<double>& delay_fs,
+                               const std::vector<double>& energy_eV,
+                               const TraceFigureOptions& options, plot::FigureFormat format) {
+  const bool v = format == plot::FigureFormat::kSvg;
+  const Canvas c =
+      render_trace(data_rows_delay, delay_fs, energy_eV, options, "(in memory)", nullptr, v);
+  return {c.encode_png(), v ? c.encode_svg() : std::string()};
+}
+
+FigureBytes render_trace_comparison(const Eigen::MatrixXd& measured,
+                                    const Eigen::MatrixXd& retrieved,
+                                    const std::vector<double>& delay_fs,
+                                    const std::vector<double>& energy_eV,
+                                    const ComparisonFigureOptions& options,
+                                    plot::FigureFormat format) {
+  const bool v = format == plot::FigureFormat::kSvg;
+  const Canvas c =
+      render_comparison(measured, retrieved, delay_fs, energy_eV, options, "(in memory)", v);
+  return {c.encode_png(), v ? c.encode_svg() : std::string()};
+}
+
+FigureBytes render_lines(const LinePlot& plot, plot::FigureFormat format) {
+  const bool v = format == plot::FigureFormat::kSvg;
+  const Canvas c = render_lines(plot, "(in memory)", nullptr, v);
+  return {c.encode_png(), v ? c.encode_svg() : std::string()};
 }
 
 }  // namespace sw

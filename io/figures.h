@@ -3,6 +3,11 @@
 // retrieved / difference comparison, and line plots (pulse shapes, spectra, fields,
 // convergence histories, RABBITT phases with error bars and fits).
 //
+// Figures for papers: a path ending in ".svg" gets the same figure as SVG 1.1 from the same
+// drawing code (io/plot_canvas.h): text as <text>, lines, error bars and markers as vector
+// paths, the trace images and colour bars embedded as base64 PNG <image> elements at the
+// raster's resolution. Every other path gets the PNG, byte for byte as before.
+//
 // Every figure has a white background, labelled axes with units, ticks at 1-2-5 values
 // (io/plot.h), a title, and a legend when several series are labelled. Text is drawn with
 // OpenCV's Hershey fonts, which have no Greek letters: write "tau", "omega", "delay" in words.
@@ -85,10 +90,11 @@ struct TraceFigureOptions {
 /// A colour bar with its own ticks and label sits at the right.
 /// Throws sw::Error: kUsage for invalid options, kInput for data that do not fit the axes and
 /// for an output path that cannot be written (missing folder, no permission).
+/// `path` ending in ".svg": SVG, else PNG (also for plot_trace_comparison and plot_lines).
 PlotGeometry plot_trace_image(const Eigen::MatrixXd& data_rows_delay,
                               const std::vector<double>& delay_fs,
                               const std::vector<double>& energy_eV,
-                              const TraceFigureOptions& options, const std::string& png_path);
+                              const TraceFigureOptions& options, const std::string& path);
 
 /// Options of plot_trace_comparison.
 struct ComparisonFigureOptions {
@@ -117,7 +123,7 @@ struct ComparisonFigureOptions {
 void plot_trace_comparison(const Eigen::MatrixXd& measured, const Eigen::MatrixXd& retrieved,
                            const std::vector<double>& delay_fs,
                            const std::vector<double>& energy_eV,
-                           const ComparisonFigureOptions& options, const std::string& png_path);
+                           const ComparisonFigureOptions& options, const std::string& path);
 
 /// One series of a line plot.
 struct Series {
@@ -154,7 +160,7 @@ struct LinePlot {
 
 /// Draws the line plot into a PNG. A series with fewer than one finite point is skipped (the
 /// plot still appears, with "no data" if nothing was drawable).
-PlotGeometry plot_lines(const LinePlot& plot, const std::string& png_path);
+PlotGeometry plot_lines(const LinePlot& plot, const std::string& path);
 
 /// The same figures encoded as PNG bytes in memory (for embedding into reports without a file).
 std::vector<unsigned char> render_trace_image_png(const Eigen::MatrixXd& data_rows_delay,
@@ -167,5 +173,23 @@ std::vector<unsigned char> render_trace_comparison_png(const Eigen::MatrixXd& me
                                                        const std::vector<double>& energy_eV,
                                                        const ComparisonFigureOptions& options);
 std::vector<unsigned char> render_lines_png(const LinePlot& plot);
+
+/// A figure rendered in memory: the PNG bytes always, and the SVG document when asked for
+/// (same layout; SVG user units are the PNG's pixels).
+struct FigureBytes {
+  std::vector<unsigned char> png;
+  std::string svg;  ///< "" unless FigureFormat::kSvg was asked for
+};
+FigureBytes render_trace_image(const Eigen::MatrixXd& data_rows_delay,
+                               const std::vector<double>& delay_fs,
+                               const std::vector<double>& energy_eV,
+                               const TraceFigureOptions& options, plot::FigureFormat format);
+FigureBytes render_trace_comparison(const Eigen::MatrixXd& measured,
+                                    const Eigen::MatrixXd& retrieved,
+                                    const std::vector<double>& delay_fs,
+                                    const std::vector<double>& energy_eV,
+                                    const ComparisonFigureOptions& options,
+                                    plot::FigureFormat format);
+FigureBytes render_lines(const LinePlot& plot, plot::FigureFormat format);
 
 }  // namespace sw

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <array>
+#include <cctype>
 #include <cmath>
 #include <cstdio>
 #include <mutex>
@@ -50,6 +51,30 @@ bool parse_color_map(const std::string& s, ColorMap* out) {
     }
   }
   return false;
+}
+
+const char* to_string(FigureFormat f) { return f == FigureFormat::kSvg ? "svg" : "png"; }
+
+bool parse_figure_format(const std::string& s, FigureFormat* out) {
+  if (s == "png" || s == "svg") {
+    *out = s == "svg" ? FigureFormat::kSvg : FigureFormat::kPng;
+    return true;
+  }
+  return false;
+}
+
+const char* figure_extension(FigureFormat f) { return f == FigureFormat::kSvg ? ".svg" : ".png"; }
+
+FigureFormat figure_format_of_path(const std::string& path) {
+  if (path.size() < 4) return FigureFormat::kPng;
+  std::string ext = path.substr(path.size() - 4);
+  for (char& ch : ext) ch = static_cast<char>(std::tolower(static_cast<unsigned char>(ch)));
+  return ext == ".svg" ? FigureFormat::kSvg : FigureFormat::kPng;
+}
+
+std::string with_figure_extension(const std::string& name, FigureFormat f) {
+  if (name.size() < 4 || name.compare(name.size() - 4, 4, ".png") != 0) return name;
+  return name.substr(0, name.size() - 4) + figure_extension(f);
 }
 
 namespace {

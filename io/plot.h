@@ -39,6 +39,20 @@ bool parse_color_map(const std::string& s, ColorMap* out);
 /// entry 255 ("top colour").
 Rgb color_map_rgb(ColorMap m, double t);
 
+/// File format of the figures: PNG raster (the default) or SVG vector (text as text, curves
+/// as paths, trace images embedded as PNG), for papers.
+enum class FigureFormat { kPng, kSvg };
+const char* to_string(FigureFormat f);  ///< "png", "svg"
+/// Parses "png" or "svg"; returns false otherwise.
+bool parse_figure_format(const std::string& s, FigureFormat* out);
+/// File extension with the dot: ".png", ".svg".
+const char* figure_extension(FigureFormat f);
+/// The format a figure path asks for: SVG when it ends in ".svg" (any case), else PNG.
+FigureFormat figure_format_of_path(const std::string& path);
+/// `name` with a trailing ".png" replaced by the format's extension ("scan.png" -> "scan.svg");
+/// other names unchanged.
+std::string with_figure_extension(const std::string& name, FigureFormat f);
+
 /// Tick positions of one axis.
 struct Ticks {
   double step = 0.0;           ///< spacing of the major ticks (1, 2 or 5 x 10^k); 0 for log

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdio>
 #include <filesystem>
 #include <limits>
 
@@ -9,6 +10,7 @@
 #include <opencv2/imgproc.hpp>
 
 #include "io/atomic_file.h"
+#include "io/report_html.h"
 #include "retrieval/error.h"
 
 namespace sw::plot {
@@ -68,13 +70,100 @@ bool clip_segment(cv::Point2d& a, cv::Point2d& b, double x0, double y0, double x
   return true;
 }
 
+// ---- SVG helpers ----
+
+// A coordinate or length with at most two decimals, trailing zeros dropped ("12.5", "3").
+std::string f2(double v) {
+  char buf[48];
+  std::snprintf(buf, sizeof buf, "%.2f", v);
+  std::string t = buf;
+  while (!t.empty() && t.back() == '0') t.pop_back();
+  if (!t.empty() && t.back() == '.') t.pop_back();
+  if (t == "-0") t = "0";
+  return t;
+}
+
+std::string svg_color(Rgb c) {
+  char buf[16];
+  std::snprintf(buf, sizeof buf, "#%02x%02x%02x", c.r, c.g, c.b);
+  return buf;
+}
+
+// Text escaped for XML character data and attribute values; characters XML 1.0 does not allow
+// (C0 controls other than tab, newline, carriage return) become '?'.
+std::string xml_text(const std::string& t) {
+  std::string o;
+  o.reserve(t.size());
+  for (char ch : t) {
+    switch (ch) {
+      case '&':
+        o += "&amp;";
+        break;
+      case '<':
+        o += "&lt;";
+        break;
+      case '>':
+        o += "&gt;";
+        break;
+      case '"':
+        o += "&quot;";
+        break;
+      case '\'':
+        o += "&apos;";
+        break;
+      default:
+        if (static_cast<unsigned char>(ch) < 0x20 && ch != '\t' && ch != '\n' && ch != '\r')
+          o += '?';
+        else
+          o += ch;
+    }
+  }
+  return o;
+}
+
+// SVG font size (px) whose sans-serif capitals are as tall as the raster font's: cap height of
+// DejaVu Sans / Helvetica is about 0.72 em (from memory).
+double svg_font_px(TextStyle style) {
+  int baseline = 0;
+  const cv::Size cap = cv::getTextSize("H", kFont, font_scale(style), 1, &baseline);
+  return cap.height / 0.72;
+}
+
+std::string svg_text_element(const std::string& text, double x, double y, TextStyle style,
+                             Rgb color, HAlign h, const std::string& extra) {
+  const char* anchor = h == HAlign::kLeft ? "start" : h == HAlign::kCenter ? "middle" : "end";
+  return "<text x=\"" + f2(x) + "\" y=\"" + f2(y) + "\" font-size=\"" + f2(svg_font_px(style)) +
+         "\" text-anchor=\"" + anchor + "\" fill=\"" + svg_color(color) + "\"" + extra + ">" +
+         xml_text(text) + "</text>";
+}
+
 }  // namespace
 
 double snap(double px) { return std::floor(px) + 0.5; }
 
 cv::Scalar to_bgr(Rgb c) { return cv::Scalar(c.b, c.g, c.r); }
 
-Canvas::Canvas(int width, int height) : img_(height, width, CV_8UC3, cv::Scalar(255, 255, 255)) {}
+Canvas::Canvas(int width, int height, bool vector)
+    : img_(height, width, CV_8UC3, cv::Scalar(255, 255, 255)), vector_(vector) {}
+
+std::string Canvas::clip_id(const cv::Rect& r) {
+  if (r == cv::Rect(0, 0, img_.cols, img_.rows)) return "";
+  // Ids "c0", "c1", ... (built with append: GCC 12 warns falsely on "c" + std::string).
+  auto make_id = [](std::size_t i) {
+    std::string id(1, 'c');
+    id.append(std::to_string(i));
+    return id;
+  };
+  for (std::size_t i = 0; i < clip_rects_.size(); ++i) {
+    if (clip_rects_[i] == r) return make_id(i);
+  }
+  const std::string id = make_id(clip_rects_.size());
+  clip_rects_.push_back(r);
+  defs_.push_back("<clipPath id=\"" + id + "\"><rect x=\"" + std::to_string(r.x) + "\" y=\"" +
+                  std::to_string(r.y) + "\" width=\"" + std::to_string(r.width) + "\" height=\"" +
+                  std::to_string(r.height) + "\"/></clipPath>");
+  return id;
+}
 
 cv::Size Canvas::text_size(const std::string& text, TextStyle style) {
   int baseline = 0;
@@ -99,6 +188,11 @@ void Canvas::text(const std::string& text, double x, double y, TextStyle style, 
     cv::putText(img_, text,
                 cv::Point(static_cast<int>(std::lround(ox)), static_cast<int>(std::lround(oy))),
                 kFont, scale, to_bgr(color), 1, cv::LINE_AA);
+    if (vector_) {
+      // The anchor x stays where it is (text-anchor), so a wider or narrower SVG font keeps
+      // its alignment; the baseline is the raster's (bottom edge of its baseline row).
+      svg_.push_back(svg_text_element(text, x, std::lround(oy) + 1.0, style, color, h, ""));
+    }
     return;
   }
   // Render horizontally on white, rotate, and darken the canvas with it (text is dark).
@@ -115,6 +209,13 @@ void Canvas::text(const std::string& text, double x, double y, TextStyle style, 
   if (v == VAlign::kBottom) oy -= rot.rows;
   cv::Rect dst(static_cast<int>(std::lround(ox)), static_cast<int>(std::lround(oy)), rot.cols,
                rot.rows);
+  if (vector_) {
+    // Rotated -90 degrees about its anchor (reads bottom to top): the baseline becomes the
+    // vertical line at column bx, with the capitals to its left, centred on the box.
+    const double bx = dst.x + pad + s.height, by = dst.y + dst.height / 2.0;
+    svg_.push_back(svg_text_element(text, bx, by, style, color, HAlign::kCenter,
+                                    " transform=\"rotate(-90 " + f2(bx) + " " + f2(by) + ")\""));
+  }
   const cv::Rect inside = dst & cv::Rect(0, 0, img_.cols, img_.rows);
   if (inside.empty()) return;
   cv::Mat src = rot(cv::Rect(inside.x - dst.x, inside.y - dst.y, inside.width, inside.height));
@@ -145,8 +246,20 @@ void Canvas::text_boxed(const std::string& text, double x, double y, TextStyle s
     const cv::Mat fill(roi.size(), roi.type(), to_bgr(background));
     const double a = std::clamp(opacity, 0.0, 1.0);
     cv::addWeighted(roi, 1.0 - a, fill, a, 0.0, roi);
+    if (vector_) {
+      svg_.push_back("<rect x=\"" + std::to_string(box.x) + "\" y=\"" + std::to_string(box.y) +
+                     "\" width=\"" + std::to_string(box.width) + "\" height=\"" +
+                     std::to_string(box.height) + "\" fill=\"" + svg_color(background) +
+                     "\" fill-opacity=\"" + f2(a) + "\"/>");
+    }
   }
   cv::putText(img_, text, o, kFont, scale, to_bgr(color), 1, cv::LINE_AA);
+  if (vector_) {
+    const double ax = h == HAlign::kLeft     ? o.x
+                      : h == HAlign::kCenter ? o.x + s.width / 2.0
+                                             : o.x + s.width;
+    svg_.push_back(svg_text_element(text, ax, o.y + 1.0, style, color, h, ""));
+  }
 }
 
 void Canvas::line(cv::Point2d a, cv::Point2d b, Rgb color, int thickness, bool dashed,
@@ -192,6 +305,39 @@ void Canvas::polyline(const std::vector<cv::Point2d>& pts, Rgb color, int thickn
     phase = std::fmod(phase + full, dash_on + dash_off);
   }
   if (pieces.empty()) return;
+  if (vector_) {
+    // One path through the points (a non-finite point starts a new subpath); dashes by
+    // stroke-dasharray, which restarts at every subpath as the raster's pattern does.
+    std::string d;
+    bool open = false;
+    std::size_t run = 0;
+    std::string sub;
+    auto flush = [&] {
+      if (run >= 2) d += sub;
+      sub.clear();
+      run = 0;
+    };
+    for (const auto& p : pts) {
+      if (!finite(p)) {
+        flush();
+        open = false;
+        continue;
+      }
+      sub += (open ? "L" : "M") + f2(p.x) + " " + f2(p.y);
+      open = true;
+      ++run;
+    }
+    flush();
+    if (!d.empty()) {
+      std::string e = "<path d=\"" + d + "\" fill=\"none\" stroke=\"" + svg_color(color) +
+                      "\" stroke-width=\"" + std::to_string(thickness) +
+                      "\" stroke-linejoin=\"round\" stroke-linecap=\"" +
+                      (dashed ? "butt" : "round") + "\"";
+      if (dashed) e += " stroke-dasharray=\"" + f2(dash_on) + " " + f2(dash_off) + "\"";
+      if (const std::string id = clip_id(c); !id.empty()) e += " clip-path=\"url(#" + id + ")\"";
+      svg_.push_back(e + "/>");
+    }
+  }
 
   // 2) Coverage mask, 3x supersampled and drawn without anti-aliasing, so that joints of a
   //    many-segment curve are not blended twice (which shows as dark beads along AA lines).
@@ -246,10 +392,77 @@ void Canvas::filled_circle(cv::Point2d center, double radius, Rgb color, const c
   cv::circle(roi, fixed(p - cv::Point2d(0.5, 0.5)),
              static_cast<int>(std::lround(radius * kSubpixel)), to_bgr(color), cv::FILLED,
              cv::LINE_AA, kShift);
+  if (vector_) {
+    std::string e = "<circle cx=\"" + f2(center.x) + "\" cy=\"" + f2(center.y) + "\" r=\"" +
+                    f2(radius) + "\" fill=\"" + svg_color(color) + "\"";
+    if (const std::string id = clip_id(c); !id.empty()) e += " clip-path=\"url(#" + id + ")\"";
+    svg_.push_back(e + "/>");
+  }
 }
 
 void Canvas::rect(const cv::Rect& r, Rgb color, int thickness) {
   cv::rectangle(img_, r, to_bgr(color), thickness < 0 ? cv::FILLED : thickness, cv::LINE_8);
+  if (!vector_ || r.width <= 0 || r.height <= 0) return;
+  if (thickness < 0) {
+    svg_.push_back("<rect x=\"" + std::to_string(r.x) + "\" y=\"" + std::to_string(r.y) +
+                   "\" width=\"" + std::to_string(r.width) + "\" height=\"" +
+                   std::to_string(r.height) + "\" fill=\"" + svg_color(color) + "\"/>");
+    return;
+  }
+  // OpenCV centres a thickness-t outline on the pixels x .. x + width - 1.
+  svg_.push_back("<rect x=\"" + f2(r.x + 0.5) + "\" y=\"" + f2(r.y + 0.5) + "\" width=\"" +
+                 std::to_string(r.width - 1) + "\" height=\"" + std::to_string(r.height - 1) +
+                 "\" fill=\"none\" stroke=\"" + svg_color(color) + "\" stroke-width=\"" +
+                 std::to_string(thickness) + "\"/>");
+}
+
+void Canvas::pixel_line(int x0, int y0, int x1, int y1, Rgb color) {
+  cv::line(img_, {x0, y0}, {x1, y1}, to_bgr(color), 1, cv::LINE_8);
+  if (vector_) {
+    svg_.push_back(
+        "<line x1=\"" + f2(x0 + 0.5) + "\" y1=\"" + f2(y0 + 0.5) + "\" x2=\"" + f2(x1 + 0.5) +
+        "\" y2=\"" + f2(y1 + 0.5) + "\" stroke=\"" + svg_color(color) +
+        "\" stroke-width=\"1\" stroke-linecap=\"square\" shape-rendering=\"crispEdges\"/>");
+  }
+}
+
+void Canvas::embed_raster(const cv::Rect& r) {
+  if (!vector_) return;
+  const cv::Rect in = r & cv::Rect(0, 0, img_.cols, img_.rows);
+  if (in.empty()) return;
+  std::vector<unsigned char> png;
+  if (!cv::imencode(".png", img_(in), png)) {
+    throw Error(ErrorKind::kInternal,
+                "PNG encoding of a figure's image region failed (OpenCV imencode).");
+  }
+  svg_.push_back("<image x=\"" + std::to_string(in.x) + "\" y=\"" + std::to_string(in.y) +
+                 "\" width=\"" + std::to_string(in.width) + "\" height=\"" +
+                 std::to_string(in.height) +
+                 "\" preserveAspectRatio=\"none\" style=\"image-rendering:pixelated\" "
+                 "xlink:href=\"data:image/png;base64," +
+                 base64_encode(png) + "\"/>");
+}
+
+std::string Canvas::encode_svg() const {
+  if (!vector_) {
+    throw Error(ErrorKind::kInternal,
+                "SVG requested from a figure canvas made without the vector back end.");
+  }
+  const std::string w = std::to_string(img_.cols), h = std::to_string(img_.rows);
+  std::string o = "<?xml version=\"1.0\" encoding=\"UTF-8\" standalone=\"no\"?>\n";
+  o += "<svg xmlns=\"http://www.w3.org/2000/svg\" xmlns:xlink=\"http://www.w3.org/1999/xlink\" "
+       "version=\"1.1\" width=\"" +
+       w + "\" height=\"" + h + "\" viewBox=\"0 0 " + w + " " + h +
+       "\" font-family=\"DejaVu Sans, Helvetica, Arial, sans-serif\">\n";
+  if (!defs_.empty()) {
+    o += "<defs>\n";
+    for (const auto& d : defs_) o += d + "\n";
+    o += "</defs>\n";
+  }
+  o += "<rect width=\"" + w + "\" height=\"" + h + "\" fill=\"#ffffff\"/>\n";
+  for (const auto& e : svg_) o += e + "\n";
+  o += "</svg>\n";
+  return o;
 }
 
 std::vector<unsigned char> Canvas::encode_png() const {
@@ -319,11 +532,6 @@ int Axes::max_tick_label_width(const AxisSpec& a) {
 
 namespace {
 
-// Pixel line a..b drawn crisp (no anti-aliasing) for frames and ticks.
-void crisp(cv::Mat& img, int x0, int y0, int x1, int y1) {
-  cv::line(img, {x0, y0}, {x1, y1}, cv::Scalar(0, 0, 0), 1, cv::LINE_8);
-}
-
 std::vector<double> log_minor_ticks(const AxisSpec& a) {
   std::vector<double> out;
   if (!a.log || !(a.lo > 0.0)) return out;
@@ -342,13 +550,13 @@ std::vector<double> log_minor_ticks(const AxisSpec& a) {
 }  // namespace
 
 void Axes::draw_frame(Canvas& c, bool labels, bool y_tick_labels) const {
-  cv::Mat& img = c.image();
+  auto crisp = [&c](int x0, int y0, int x1, int y1) { c.pixel_line(x0, y0, x1, y1, Rgb{0, 0, 0}); };
   const int l = area_.x - 1, t = area_.y - 1;
   const int r = area_.x + area_.width, b = area_.y + area_.height;
-  crisp(img, l, t, r, t);
-  crisp(img, l, b, r, b);
-  crisp(img, l, t, l, b);
-  crisp(img, r, t, r, b);
+  crisp(l, t, r, t);
+  crisp(l, b, r, b);
+  crisp(l, t, l, b);
+  crisp(r, t, r, b);
   const Rgb black{0, 0, 0};
   const int tick_h = Canvas::text_size("0", TextStyle::kTick).height;
 
@@ -356,7 +564,7 @@ void Axes::draw_frame(Canvas& c, bool labels, bool y_tick_labels) const {
   for (std::size_t i = 0; i < x_.ticks.values.size(); ++i) {
     const int px = static_cast<int>(std::lround(x_px(x_.ticks.values[i])));
     if (px < l || px > r) continue;
-    crisp(img, px, b, px, b + kTickLength);
+    crisp(px, b, px, b + kTickLength);
     c.text(x_.tick_label(i), px, b + kTickLength + kTickGap, TextStyle::kTick, black,
            HAlign::kCenter, VAlign::kTop);
   }
@@ -365,11 +573,11 @@ void Axes::draw_frame(Canvas& c, bool labels, bool y_tick_labels) const {
       const int py = static_cast<int>(std::lround(y_px(a.ticks.values[i], right_side)));
       if (py < t || py > b) continue;
       if (right_side) {
-        crisp(img, r, py, r + kTickLength, py);
+        crisp(r, py, r + kTickLength, py);
         c.text(a.tick_label(i), r + kTickLength + kTickGap, py, TextStyle::kTick, black,
                HAlign::kLeft, VAlign::kMiddle);
       } else {
-        crisp(img, l, py, l - kTickLength, py);
+        crisp(l, py, l - kTickLength, py);
         if (with_labels) {
           c.text(a.tick_label(i), l - kTickLength - kTickGap, py, TextStyle::kTick, black,
                  HAlign::kRight, VAlign::kMiddle);
@@ -380,9 +588,9 @@ void Axes::draw_frame(Canvas& c, bool labels, bool y_tick_labels) const {
       const int py = static_cast<int>(std::lround(y_px(v, right_side)));
       if (py < t || py > b) continue;
       if (right_side)
-        crisp(img, r, py, r + 3, py);
+        crisp(r, py, r + 3, py);
       else
-        crisp(img, l, py, l - 3, py);
+        crisp(l, py, l - 3, py);
     }
   };
   y_ticks(y_, false, y_tick_labels);

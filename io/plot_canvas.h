@@ -4,6 +4,13 @@
 // labels, axis labels, grid and legend. Figures compose these; nothing here knows physics.
 // Coordinates are pixels (x to the right, y downward) as doubles; lines are anti-aliased and
 // drawn with sub-pixel precision.
+//
+// Two back ends from the same drawing calls: the raster (always drawn; encode_png) and, when
+// the canvas is made with `vector = true`, an SVG 1.1 document recorded call by call
+// (encode_svg): text as <text> (sans-serif, sized to the raster font's cap height), lines and
+// markers as <path>/<line>/<circle>/<rect> clipped with <clipPath>, and regions painted pixel
+// by pixel (trace images, colour bars) embedded as base64 PNG <image> elements via
+// embed_raster(). SVG user units are the raster's pixels, so both outputs share one layout.
 
 #include <string>
 #include <vector>
@@ -28,7 +35,8 @@ double snap(double px);
 
 class Canvas {
  public:
-  Canvas(int width, int height);
+  /// A white canvas; `vector` also records the SVG document (encode_svg).
+  Canvas(int width, int height, bool vector = false);
   cv::Mat& image() { return img_; }
   const cv::Mat& image() const { return img_; }
   int width() const { return img_.cols; }
@@ -53,11 +61,31 @@ class Canvas {
             const cv::Rect& clip);
   void filled_circle(cv::Point2d c, double radius, Rgb color, const cv::Rect& clip);
   void rect(const cv::Rect& r, Rgb color, int thickness);  ///< thickness < 0 fills
+  /// A crisp 1-pixel line between the centres of pixels (x0, y0) and (x1, y1), both included
+  /// (frames and ticks).
+  void pixel_line(int x0, int y0, int x1, int y1, Rgb color);
+  /// Declares that the raster inside `r` was painted directly through image() (a trace image,
+  /// a colour bar): the vector document gets those pixels, as they are now, as an embedded
+  /// PNG <image>. Call it after painting and before drawing anything over the region. No-op
+  /// without the vector back end.
+  void embed_raster(const cv::Rect& r);
   /// PNG bytes of the canvas.
   std::vector<unsigned char> encode_png() const;
+  /// True when the canvas records the SVG document.
+  bool has_vector() const { return vector_; }
+  /// The SVG document (UTF-8 text, XML declaration first). Throws sw::Error (kInternal) when
+  /// the canvas was made without the vector back end.
+  std::string encode_svg() const;
 
  private:
+  // Clip-path id of a rectangle (defined once in the document), "" when r covers the canvas.
+  std::string clip_id(const cv::Rect& r);
+
   cv::Mat img_;  // CV_8UC3, BGR
+  bool vector_ = false;
+  std::vector<std::string> svg_;      // body elements in drawing order
+  std::vector<std::string> defs_;     // <clipPath> definitions
+  std::vector<cv::Rect> clip_rects_;  // rectangles of defs_, index = id number
 };
 
 /// One axis: data range, scale and ticks.

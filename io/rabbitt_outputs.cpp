@@ -59,11 +59,15 @@ Series vertical(double x, double y0, double y1, const std::string& label, plot::
 }  // namespace
 
 void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const TrainBurst* burst,
-                           const AnalysisResult& res, const std::string& dir) {
+                           const AnalysisResult& res, const std::string& dir,
+                           plot::FigureFormat figure_format) {
   std::error_code ec;
   fs::create_directories(dir, ec);
   if (ec) throw input_error("cannot create output folder '" + dir + "': " + ec.message());
-  const auto path = [&](const std::string& f) { return (fs::path(dir) / f).string(); };
+  // Figures ("*.png" below) take the extension of the requested format.
+  const auto path = [&](const std::string& f) {
+    return (fs::path(dir) / plot::with_figure_extension(f, figure_format)).string();
+  };
   const double hw_eV = rb.ir_photon_energy_eV;
 
   // --- CSV files ---------------------------------------------------------------------------

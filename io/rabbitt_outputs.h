@@ -24,8 +24,12 @@
 //   result.json     written LAST (io/result_io.h), so its presence means the folder is complete
 // Every file is written atomically; CSV headers carry units. Non-finite numbers are written
 // as empty CSV cells.
+// Figures are .png, or .svg with figure_format = FigureFormat::kSvg (same names, same
+// content; report.html embeds whichever was written).
 
 #include <string>
+
+#include "io/plot.h"
 
 #include "retrieval/rabbitt.h"
 #include "retrieval/result.h"
@@ -40,6 +44,7 @@ namespace sw {
 /// Throws sw::Error (kInput) when the folder cannot be created or written.
 void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& analysis,
                            const TrainBurst* burst, const AnalysisResult& result,
-                           const std::string& out_dir);
+                           const std::string& out_dir,
+                           plot::FigureFormat figure_format = plot::FigureFormat::kPng);
 
 }  // namespace sw

@@ -1,7 +1,9 @@
 #include "io/report_html.h"
 
+#include <algorithm>
 #include <array>
 #include <cmath>
+#include <cstddef>
 #include <cstdio>
 #include <fstream>
 #include <iterator>
@@ -68,6 +70,13 @@ bool is_png(const std::vector<unsigned char>& b) {
   static constexpr std::array<unsigned char, 8> kSig = {0x89, 'P',  'N',  'G',
                                                         0x0D, 0x0A, 0x1A, 0x0A};
   return b.size() > kSig.size() && std::equal(kSig.begin(), kSig.end(), b.begin());
+}
+
+// An SVG document as the figures write it: an XML declaration, then the <svg element.
+bool is_svg(const std::vector<unsigned char>& b) {
+  const std::string head(
+      b.begin(), b.begin() + static_cast<std::ptrdiff_t>(std::min<std::size_t>(b.size(), 512)));
+  return head.rfind("<?xml", 0) == 0 && head.find("<svg") != std::string::npos;
 }
 
 }  // namespace
@@ -310,11 +319,26 @@ void HtmlReport::add_figure(const std::string& png_path, const std::string& capt
   }
   std::vector<unsigned char> bytes((std::istreambuf_iterator<char>(in)),
                                    std::istreambuf_iterator<char>());
+  if (is_svg(bytes)) {
+    add_embedded("image/svg+xml", bytes, caption);
+    return;
+  }
   if (!is_png(bytes)) {
     throw input_error("Cannot embed the figure '" + png_path +
-                      "' into the report: the file is not a PNG (no PNG signature).");
+                      "' into the report: the file is neither a PNG (no PNG signature) nor an "
+                      "SVG document (no <?xml ...?> declaration followed by <svg).");
   }
   add_figure_png(bytes, caption);
+}
+
+void HtmlReport::add_embedded(const std::string& mime, const std::vector<unsigned char>& bytes,
+                              const std::string& caption) {
+  ++figures_;
+  std::string h = "<figure><img alt=\"Figure " + std::to_string(figures_) +
+                  "\" src=\"data:" + mime + ";base64," + base64_encode(bytes) + "\">";
+  h += "<figcaption><b>Figure " + std::to_string(figures_) + ".</b> " + html_escape(caption) +
+       "</figcaption></figure>";
+  blocks_.push_back(std::move(h));
 }
 
 void HtmlReport::add_figure_png(const std::vector<unsigned char>& png, const std::string& caption) {
@@ -322,12 +346,7 @@ void HtmlReport::add_figure_png(const std::vector<unsigned char>& png, const std
     throw input_error("Cannot embed a figure into the report '" + title_ +
                       "': the bytes are not a PNG (no PNG signature).");
   }
-  ++figures_;
-  std::string h = "<figure><img alt=\"Figure " + std::to_string(figures_) +
-                  "\" src=\"data:image/png;base64," + base64_encode(png) + "\">";
-  h += "<figcaption><b>Figure " + std::to_string(figures_) + ".</b> " + html_escape(caption) +
-       "</figcaption></figure>";
-  blocks_.push_back(std::move(h));
+  add_embedded("image/png", png, caption);
 }
 
 void HtmlReport::add_preformatted(const std::string& text) {

@@ -61,8 +61,10 @@ class HtmlReport {
                             const std::vector<std::vector<std::string>>& rows,
                             const std::vector<std::vector<std::string>>& links,
                             const std::string& title = "");
-  /// Embeds the PNG file as a data:image/png;base64 URI with a caption. Throws sw::Error
-  /// (kInput) naming the path if the file cannot be read or is not a PNG.
+  /// Embeds the figure file as a data:image/png;base64 URI (a PNG) or a
+  /// data:image/svg+xml;base64 URI (an SVG document, as io/figures.h writes for ".svg" paths)
+  /// with a caption. Throws sw::Error (kInput) naming the path if the file cannot be read or
+  /// is neither.
   void add_figure(const std::string& png_path, const std::string& caption);
   /// Same, from PNG bytes in memory (e.g. sw::render_lines_png).
   void add_figure_png(const std::vector<unsigned char>& png, const std::string& caption);
@@ -79,6 +81,9 @@ class HtmlReport {
   void write(const std::string& path) const;
 
  private:
+  void add_embedded(const std::string& mime, const std::vector<unsigned char>& bytes,
+                    const std::string& caption);
+
   std::string title_;
   std::string footer_;
   std::vector<std::string> blocks_;  ///< body fragments, already escaped HTML

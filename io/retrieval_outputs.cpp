@@ -57,11 +57,15 @@ std::string fmt(double v, int prec = 6) {
 }  // namespace
 
 void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, const std::string& dir,
-                             const std::vector<Param>& provenance) {
+                             const std::vector<Param>& provenance,
+                             plot::FigureFormat figure_format) {
   std::error_code ec;
   fs::create_directories(dir, ec);
   if (ec) throw input_error("cannot create output folder '" + dir + "': " + ec.message());
-  const auto path = [&](const std::string& f) { return (fs::path(dir) / f).string(); };
+  // Figures ("*.png" below) take the extension of the requested format.
+  const auto path = [&](const std::string& f) {
+    return (fs::path(dir) / plot::with_figure_extension(f, figure_format)).string();
+  };
   const Reconstruction& rec = out.reconstruction;
   const RetrievalProblem& pr = out.problem;
   AnalysisResult res = out.result;

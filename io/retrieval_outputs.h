@@ -8,10 +8,13 @@
 //   report.html        self-contained: numbers, settings, warnings, all figures
 //   result.json        written LAST, so its presence means the folder is complete
 // Every file is written atomically (temporary name, then rename). The CSV headers carry units.
+// Figures are .png, or .svg with figure_format = FigureFormat::kSvg (same names, same
+// content; report.html embeds whichever was written).
 
 #include <string>
 #include <vector>
 
+#include "io/plot.h"
 #include "retrieval/result.h"
 #include "retrieval/retrieve.h"
 #include "retrieval/trace.h"
@@ -20,7 +23,8 @@ namespace sw {
 
 /// Writes the folder (created if missing). `provenance` is appended to result.extra.
 void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, const std::string& out_dir,
-                             const std::vector<Param>& provenance);
+                             const std::vector<Param>& provenance,
+                             plot::FigureFormat figure_format = plot::FigureFormat::kPng);
 
 /// Unwrapped phase of samples where |z|^2 >= threshold * max, NaN elsewhere.
 std::vector<double> unwrapped_phase(const std::vector<std::complex<double>>& z, double threshold);
