@@ -418,6 +418,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   }
   std::vector<double> ff(static_cast<std::size_t>(ne), 0.0);
   s.field_free_measured = !quiet.empty();
+  s.field_free_rows = quiet.size();
   // Saturated bins in the reference rows clip its peak: then its amplitude is not imposed.
   bool quiet_saturated = false;
   for (Eigen::Index i : quiet) quiet_saturated = quiet_saturated || satm.row(i).sum() > 0;
@@ -604,6 +605,7 @@ void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* ou
   P("bandwidth_to_energy_ratio", s.bandwidth_ratio);
   P("field_free_spectrum", s.field_free_source);
   P("field_free_measured", s.field_free_measured);
+  P("field_free_rows", I(s.field_free_rows));
   P("grid_size", I(s.grid_size));
   P("grid_dt_as", s.grid_dt_as);
   P("total_counts", s.total_counts);

@@ -98,6 +98,10 @@ struct PreprocessSummary {
   /// True when field-free (or weakly streaked) edge rows were found; otherwise the engines
   /// do not constrain the amplitude (the delay average is broadened by streaking).
   bool field_free_measured = false;
+  /// Edge rows with a centroid shift below field_free_shift_fraction of the largest (0 = the
+  /// whole scan is streaked: the spectral amplitude and the frequency shift are then set by a
+  /// convention, not by the data; quality check field_free_rows).
+  std::size_t field_free_rows = 0;
   /// What the reference spectrum is (RetrievalProblem::reference).
   ReferenceSpectrum reference = ReferenceSpectrum::kDelayAverage;
   std::size_t grid_size = 0;

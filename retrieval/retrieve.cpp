@@ -481,6 +481,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
       while (hi > lo && pr.energy_au[static_cast<std::size_t>(hi)] > pr.support_hi_au) --hi;
     }
     e.energy_support_share = s.support_core_share;
+    e.field_free_rows = static_cast<double>(s.field_free_rows);
     if (rec.retrieved.rows() == pr.intensity.rows() && rec.retrieved.cols() == ne && pr.variance.size() == pr.intensity.size()) {
       double noise = 0;
       const Eigen::VectorXd meas = pr.intensity.colwise().sum().transpose();

@@ -503,7 +503,7 @@ std::vector<ValidationCase> held_out_cases(int n, unsigned long long seed) {
     const double lo = std::max(2.0, w0 - 2.5 * bw - 1.3 * streak), hi = w0 + 2.5 * bw + 1.3 * streak;
     const int ne = static_cast<int>(uni(180, 420));
     s.energy = {lo, (hi - lo) / (ne - 1), ne};
-    const double half = uni(1.1, 1.4) * s.ir_fs, step = std::min(0.2, period_fs / 14);
+    const double half = uni(1.4, 2.0) * s.ir_fs, step = std::min(0.2, period_fs / 14);
     const int nd = static_cast<int>(2 * half / step) + 1;
     s.delay = {-half, step, nd};
     ScanConfig c = make("held-out-" + std::to_string(seed) + "-" + std::to_string(k), s);
