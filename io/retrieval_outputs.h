@@ -18,9 +18,10 @@
 
 namespace sw {
 
-/// Writes the folder (created if missing). `provenance` is appended to result.extra.
-void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, const std::string& out_dir,
-                             const std::vector<Param>& provenance);
+/// Writes the folder (created if missing). out.result is written unchanged as result.json (the
+/// caller has appended the provenance; analyse_retrieve, retrieval/analyses.h, the sidecar's
+/// extra keys).
+void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, const std::string& out_dir);
 
 /// Unwrapped phase of samples where |z|^2 >= threshold * max, NaN elsewhere.
 std::vector<double> unwrapped_phase(const std::vector<std::complex<double>>& z, double threshold);
