@@ -26,6 +26,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "cli/analysis.h"
 #include "cli/output_folder.h"
 #include "cli/provenance.h"
 #include "cli/simulate_config.h"
@@ -330,6 +331,11 @@ void write_result(const Result& r, const std::string& folder) {
         }
       },
       r.output);
+  // As the CLI (cli/analysis.cpp run_scan): files holding NaN or infinity are no result.
+  if (const std::string bad = cli::find_non_finite_output(swap.temp()); !bad.empty())
+    throw input_error("the analysis produced non-finite numbers (NaN or infinity) from this input, in '" +
+                      fs::path(bad).filename().string() + "'; no estimate can be written (check the counts and "
+                      "'scale' of the scan); '" + printable_path(folder) + "' is unchanged");
   swap.commit();
 }
 

@@ -22,10 +22,10 @@ def run_cli(*args):
 
 @pytest.fixture(scope="session")
 def archive(tmp_path_factory):
-    """Scans written by the CLI's simulate: a streaking scan and a RABBITT scan."""
+    """Scans written by the CLI's simulate: a streaking scan, a RABBITT scan, an XUV-only scan."""
     root = tmp_path_factory.mktemp("scans")
     out = {}
-    for preset, seed in (("neon-150as", 3), ("argon-rabbitt", 4)):
+    for preset, seed in (("neon-150as", 3), ("argon-rabbitt", 4), ("neon-xuv-only", 5)):
         r = run_cli("simulate", "--preset", preset, "--out", str(root), "--name", preset,
                     "--seed", str(seed), "--quiet")
         assert r.returncode == 0, r.stderr

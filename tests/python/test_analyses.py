@@ -77,6 +77,21 @@ def test_rabbitt_and_classify_to_dict_equal_cli_results(archive, tmp_path):
     assert got["verdict"]["class"] == "train"
 
 
+def test_xuv_only_and_classify_retrieve_equal_cli_results(archive, tmp_path):
+    xuv_only = archive["neon-xuv-only"]
+    path = archive["argon-rabbitt"]
+    expected, _ = cli_result(tmp_path, "rbx", "rabbitt", path, "--xuv-only", xuv_only)
+    got = sw.rabbitt(sw.load_scan(path), xuv_only=sw.load_scan(xuv_only)).to_dict()
+    assert got["settings"]["xuv_only"] == xuv_only
+    assert comparable(got) == comparable(expected)
+    path = archive["neon-150as"]
+    expected, _ = cli_result(tmp_path, "clr", "classify", path, "--retrieve", "--engine", "ptychographic",
+                             "--iterations", "20")
+    res = sw.classify(sw.load_scan(path), retrieve=True, engine="ptychographic", iterations=20)
+    assert comparable(res.to_dict()) == comparable(expected)
+    assert res.xuv_field is not None and res.to_dict()["verdict"]["class"] == "isolated"
+
+
 def test_bad_input_raises_value_error_with_the_cli_message(tmp_path):
     missing = str(tmp_path / "missing.json")
     r = run_cli("retrieve", missing, "--out", str(tmp_path / "o"))
