@@ -253,12 +253,14 @@ struct PendingError {
   std::shared_ptr<py::error_already_set> error;
 };
 
+// The callback is held as a handle (no reference count): the analysis may copy the function
+// without the GIL; the caller's argument keeps the object alive.
 AnalysisProgress make_progress(const py::object& callback, PendingError& pending) {
-  return [callback, &pending](const std::string& stage, const std::string& message) {
+  return [cb = py::handle(callback), &pending](const std::string& stage, const std::string& message) {
     py::gil_scoped_acquire gil;
     try {
       if (PyErr_CheckSignals() != 0) throw py::error_already_set();
-      if (!callback.is_none()) callback(stage, message);
+      if (!cb.is_none()) cb(stage, message);
     } catch (py::error_already_set& e) {
       pending.error = std::make_shared<py::error_already_set>(std::move(e));
       throw Error(ErrorKind::kInternal, "interrupted");
