@@ -100,6 +100,17 @@ ClassifyAnalysisOptions classify_options(const ScanJob& job) {
   return o;
 }
 
+Error scan_error(const Error& e, const std::string& sidecar) {
+  std::string message = e.what();
+  // Every message names the file (an engine's own message may not).
+  if (const std::string shown = printable_path(sidecar);
+      !sidecar.empty() && message.find(shown) == std::string::npos && message.find(sidecar) == std::string::npos)
+    message = "scan '" + shown + "': " + message;
+  if (e.kind() == ErrorKind::kNumeric)  // nothing was written: not the exit 4 of a result
+    return Error(ErrorKind::kInput, message + " (no estimate could be computed from this input; nothing was written)");
+  return Error(e.kind(), message);
+}
+
 namespace {
 
 // Provenance goes last into every result (after the analysis' settings echo).
@@ -156,18 +167,10 @@ ScanOutcome run_scan(const ScanJob& job) {
                         "sidecar '" + printable_path(job.sidecar) + "')");
   } catch (const Error& e) {
     o.ok = false;
-    o.message = e.what();
-    // Every message names the file (an engine's own message may not).
-    if (const std::string shown = printable_path(job.sidecar);
-        o.message.find(shown) == std::string::npos && o.message.find(job.sidecar) == std::string::npos)
-      o.message = "scan '" + shown + "': " + o.message;
-    o.exit_code = e.exit_code();
-    o.error_kind = e.kind();
-    if (e.kind() == ErrorKind::kNumeric) {  // nothing was written: not the exit 4 of a result
-      o.message += " (no estimate could be computed from this input; nothing was written)";
-      o.exit_code = 3;
-      o.error_kind = ErrorKind::kInput;
-    }
+    const Error shown = scan_error(e, job.sidecar);
+    o.message = shown.what();
+    o.exit_code = shown.exit_code();
+    o.error_kind = shown.kind();
   } catch (const std::exception& e) {
     o.ok = false;
     o.message = std::string("internal error: ") + e.what();

@@ -91,6 +91,12 @@ ScanOutcome run_scan(const ScanJob& job);
 /// failure as sw::Error of its kind (so guarded() prints it and exits with its code).
 ScanOutcome run_scan_or_throw(ScanJob job);
 
+/// An analysis' error as run_scan reports it: the message names the scan's sidecar (prefix
+/// "scan 'PATH': " unless it already does; no prefix when `sidecar` is empty), and a numerical
+/// failure that left no estimate (kNumeric) is bad input (kInput, exit 3) with a note that
+/// nothing was written.
+Error scan_error(const Error& e, const std::string& sidecar);
+
 /// Thrown by run_scan_or_throw when a SIGINT/SIGTERM stopped the analysis.
 class InterruptedError : public std::runtime_error {
  public:

@@ -269,14 +269,18 @@ AnalysisProgress make_progress(const py::object& callback, PendingError& pending
 }
 
 // Runs `work` without the GIL; a Python error raised in the progress callback wins over the
-// C++ exception it caused.
+// C++ exception it caused. Errors of the analysis read as the CLI reports them
+// (cli::scan_error: the scan's sidecar named, kNumeric as bad input).
 template <class F>
-auto run_released(const py::object& callback, F&& work) {
+auto run_released(const py::object& callback, const Trace& scan, F&& work) {
   PendingError pending;
   const AnalysisProgress progress = make_progress(callback, pending);
   try {
     py::gil_scoped_release release;
     return work(progress);
+  } catch (const Error& e) {
+    if (pending.error) throw *pending.error;
+    throw cli::scan_error(e, scan.meta.source);
   } catch (...) {
     if (pending.error) throw *pending.error;
     throw;
@@ -427,7 +431,7 @@ Result py_retrieve(const Scan& scan, const std::string& engine, int iterations, 
   set_energy_window(energy_window, o.preprocess);
   check_engine(o.engine);
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
-  Result r{run_released(progress, [&](const AnalysisProgress& p) { return AnyOutput(analyse_retrieve(scan.trace, o, p)); }),
+  Result r{run_released(progress, scan.trace, [&](const AnalysisProgress& p) { return AnyOutput(analyse_retrieve(scan.trace, o, p)); }),
            scan.trace, {}};
   add_inputs(r, scan.trace);
   add_provenance(r, "retrieve");
@@ -457,7 +461,7 @@ Result py_rabbitt(const Scan& scan, const std::string& atomic_correction, const 
     o.xuv_only_name = xo->trace.meta.source.empty() ? "Scan.from_arrays" : xo->trace.meta.source;
   }
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
-  Result r{run_released(progress,
+  Result r{run_released(progress, scan.trace,
                         [&](const AnalysisProgress& p) {
                           return AnyOutput(analyse_rabbitt(scan.trace, xo ? &xo->trace : nullptr, o, p));
                         }),
@@ -489,7 +493,7 @@ Result py_classify(const Scan& scan, bool retrieve, const std::string& engine, i
   o.classifier.min_total_counts = min_counts;
   if (const std::string e = o.classifier.validate(); !e.empty()) throw usage_error(e);
   check_engine(engine);
-  Result r{run_released(progress, [&](const AnalysisProgress& p) { return AnyOutput(analyse_classify(scan.trace, o, p)); }),
+  Result r{run_released(progress, scan.trace, [&](const AnalysisProgress& p) { return AnyOutput(analyse_classify(scan.trace, o, p)); }),
            scan.trace, {}};
   add_inputs(r, scan.trace);
   add_provenance(r, "classify");

@@ -92,13 +92,20 @@ def test_xuv_only_and_classify_retrieve_equal_cli_results(archive, tmp_path):
     assert res.xuv_field is not None and res.to_dict()["verdict"]["class"] == "isolated"
 
 
-def test_bad_input_raises_value_error_with_the_cli_message(tmp_path):
+def test_bad_input_raises_value_error_with_the_cli_message(archive, tmp_path):
     missing = str(tmp_path / "missing.json")
     r = run_cli("retrieve", missing, "--out", str(tmp_path / "o"))
     assert r.returncode == 3
     with pytest.raises(ValueError) as e:
         sw.load_scan(missing)
     assert str(e.value) in r.stderr
+    # An analysis refusing a scan: the message names the scan, as the CLI's does.
+    streaking = archive["neon-150as"]
+    r = run_cli("rabbitt", streaking, "--out", str(tmp_path / "rb"))
+    assert r.returncode == 3
+    with pytest.raises(ValueError) as e:
+        sw.rabbitt(sw.load_scan(streaking))
+    assert streaking in str(e.value) and str(e.value) in r.stderr
     scan, _ = sw.simulate("neon-150as", seed=2)
     with pytest.raises(ValueError, match="engine"):
         sw.retrieve(scan, engine="no-such-engine")
