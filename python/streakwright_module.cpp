@@ -27,6 +27,7 @@
 #include <nlohmann/json.hpp>
 
 #include "cli/analysis.h"
+#include "cli/option_checks.h"
 #include "cli/output_folder.h"
 #include "cli/provenance.h"
 #include "cli/simulate_config.h"
@@ -49,6 +50,7 @@
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 #include "synthetic/sfa_quadrature.h"
+#include "streakwright_version.h"
 
 namespace py = pybind11;
 namespace fs = std::filesystem;
@@ -410,6 +412,26 @@ void check_engine(const std::string& engine) {
   if (engine != "auto") (void)make_engine(engine);  // unknown names listed
 }
 
+// The CLI's --gas / --ir-wavelength of rabbitt and classify on a scan already read. A scan whose
+// energy axis was calibrated from flight times used the sidecar's values for that: those must
+// be given to load_scan (where the reader applies them before the calibration).
+Scan with_overrides(const Scan& scan, const py::object& gas, const py::object& ir_wavelength, const std::string& fn) {
+  if (gas.is_none() && ir_wavelength.is_none()) return scan;
+  if (!scan.trace.meta.calibration.empty())
+    throw usage_error(fn + ": gas / ir_wavelength given for a scan whose energy axis was calibrated from "
+                      "flight times with the sidecar's values; give them to load_scan(gas=..., "
+                      "ir_wavelength_nm=...) instead");
+  Scan s = scan;
+  if (!gas.is_none()) s.trace.meta.gas = gas.cast<std::string>();
+  if (!ir_wavelength.is_none()) {
+    const double w = ir_wavelength.cast<double>();
+    if (const std::string p = cli::ir_wavelength_nm_problem(w); !p.empty())
+      throw usage_error(fn + ": ir_wavelength = " + std::to_string(w) + ": " + p);
+    s.trace.meta.ir_wavelength_nm = w;
+  }
+  return s;
+}
+
 Result py_retrieve(const Scan& scan, const std::string& engine, int iterations, int bootstrap,
                    unsigned long long seed, int threads, const std::string& dipole,
                    double cma_phase_limit, double cma_fit_limit, double isolated_max,
@@ -438,10 +460,12 @@ Result py_retrieve(const Scan& scan, const std::string& engine, int iterations, 
   return r;
 }
 
-Result py_rabbitt(const Scan& scan, const std::string& atomic_correction, const py::object& xuv_only,
+Result py_rabbitt(const Scan& given, const py::object& gas, const py::object& ir_wavelength,
+                  const std::string& atomic_correction, const py::object& xuv_only,
                   const std::string& cross_section, const std::string& dipole, double window,
                   double min_sideband_significance, bool apply_delay_calibration, const py::object& energy_window,
                   bool no_rainbow, double isolated_max, double satellites_max, const py::object& progress) {
+  const Scan scan = with_overrides(given, gas, ir_wavelength, "rabbitt");
   RabbittAnalysisOptions o;
   o.atomic_correction = atomic_correction;
   o.rabbitt.window_half_width_fraction = window;
@@ -472,10 +496,11 @@ Result py_rabbitt(const Scan& scan, const std::string& atomic_correction, const 
   return r;
 }
 
-Result py_classify(const Scan& scan, bool retrieve, const std::string& engine, int iterations,
+Result py_classify(const Scan& given, const py::object& gas, const py::object& ir_wavelength, bool retrieve, const std::string& engine, int iterations,
                    const py::object& energy_window, double isolated_max, double satellites_max,
                    int comparable_bursts, double comb_contrast, double delay_train_share,
                    double delay_streaking_share, double min_counts, const py::object& progress) {
+  const Scan scan = with_overrides(given, gas, ir_wavelength, "classify");
   ClassifyAnalysisOptions o;
   o.retrieve = retrieve;
   o.retrieve_options.engine = engine;
@@ -579,6 +604,7 @@ PYBIND11_MODULE(streakwright, m) {
   using namespace sw;
   using namespace sw::python;
   m.doc() = "streakwright: attosecond streaking and RABBITT analysis (docs/python.md)";
+  m.attr("__version__") = STREAKWRIGHT_VERSION;
 
   py::register_exception_translator([](std::exception_ptr p) {
     try {
@@ -652,7 +678,8 @@ PYBIND11_MODULE(streakwright, m) {
         "Streaking retrieval (the CLI's `retrieve`); progress(stage, message) is called during the work.");
 
   const RabbittAnalysisOptions ra;
-  m.def("rabbitt", &py_rabbitt, py::arg("scan"), py::kw_only(), py::arg("atomic_correction") = ra.atomic_correction,
+  m.def("rabbitt", &py_rabbitt, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),
+        py::arg("ir_wavelength") = py::none(), py::arg("atomic_correction") = ra.atomic_correction,
         py::arg("xuv_only") = py::none(), py::arg("cross_section") = std::string(to_string(ra.train_burst.cross_section)),
         py::arg("dipole") = std::string(to_string(ra.train_burst.dipole)),
         py::arg("window") = ra.rabbitt.window_half_width_fraction,
@@ -664,7 +691,8 @@ PYBIND11_MODULE(streakwright, m) {
         "RABBITT analysis (the CLI's `rabbitt`); xuv_only: a Scan of the field-free spectrum.");
 
   const ClassifierOptions cd;
-  m.def("classify", &py_classify, py::arg("scan"), py::kw_only(), py::arg("retrieve") = false,
+  m.def("classify", &py_classify, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),
+        py::arg("ir_wavelength") = py::none(), py::arg("retrieve") = false,
         py::arg("engine") = rd.engine, py::arg("iterations") = rd.iterations, py::arg("energy_window") = py::none(),
         py::arg("isolated_max") = cd.isolated_max_satellite_ratio, py::arg("satellites_max") = cd.satellite_max_ratio,
         py::arg("comparable_bursts") = cd.train_min_comparable_bursts,

@@ -71,8 +71,9 @@ def test_rabbitt_and_classify_to_dict_equal_cli_results(archive, tmp_path):
     got = sw.rabbitt(scan).to_dict()
     assert comparable(got) == comparable(expected)
     assert got["rabbitt"]["sidebands"]
-    expected, _ = cli_result(tmp_path, "cl", "classify", path, "--min-counts", "1000")
-    got = sw.classify(scan, min_counts=1000).to_dict()
+    expected, _ = cli_result(tmp_path, "cl", "classify", path, "--min-counts", "1000", "--ir-wavelength", "790")
+    got = sw.classify(scan, min_counts=1000, ir_wavelength=790.0).to_dict()
+    assert got["settings"]["ir_wavelength_nm"] == 790.0
     assert comparable(got) == comparable(expected)
     assert got["verdict"]["class"] == "train"
 
