@@ -3,6 +3,7 @@
 #include "retrieval/atomic_delay.h"
 #include "retrieval/error.h"
 #include "retrieval/lines.h"
+#include "retrieval/units.h"
 
 namespace sw {
 
@@ -28,7 +29,8 @@ RabbittOutput analyse_rabbitt(const Trace& scan, const Trace* xuv_only,
                               const RabbittAnalysisOptions& options, const AnalysisProgress& progress) {
   RabbittOutput out;
   const PreprocessOptions& pp = options.preprocess;
-  out.trace = apply_energy_window(scan, pp.energy_window_lo_eV, pp.energy_window_hi_eV, nullptr);
+  std::string window_source;
+  out.trace = apply_energy_window(scan, pp.energy_window_lo_eV, pp.energy_window_hi_eV, &window_source);
   if (const std::string e = options.validate(); !e.empty()) throw usage_error(e);
   const Trace& trace = out.trace;
   RabbittOptions ro = options.rabbitt;
@@ -76,6 +78,12 @@ RabbittOutput analyse_rabbitt(const Trace& scan, const Trace* xuv_only,
   res.quality = rabbitt_quality(trace.counts, trace.meta.background.value_or(0.0), *res.rabbitt, options.quality);
 
   res.extra = rb.params;
+  // The energy window analysed (DESIGN.md: preprocess.window_*), when one was applied.
+  if (!window_source.empty()) {
+    res.extra.push_back({"preprocess.window_source", window_source});
+    res.extra.push_back({"preprocess.window_lo_eV", units::au_to_eV(trace.energy_au.front())});
+    res.extra.push_back({"preprocess.window_hi_eV", units::au_to_eV(trace.energy_au.back())});
+  }
   auto P = [&](const std::string& k, auto v) { res.extra.push_back({k, v}); };
   if (out.burst) {
     const TrainBurst& b = *out.burst;

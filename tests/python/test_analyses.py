@@ -78,6 +78,19 @@ def test_rabbitt_and_classify_to_dict_equal_cli_results(archive, tmp_path):
     assert got["verdict"]["class"] == "train"
 
 
+def test_rabbitt_echoes_the_energy_window(archive, tmp_path):
+    path = archive["argon-rabbitt"]
+    scan = sw.load_scan(path)
+    lo, hi = scan.energy_eV[0] + 2.0, scan.energy_eV[-1] - 2.0
+    expected, _ = cli_result(tmp_path, "rbw", "rabbitt", path, "--energy-window", f"{lo}:{hi}")
+    got = sw.rabbitt(scan, energy_window=(lo, hi)).to_dict()
+    assert comparable(got) == comparable(expected)
+    window = got["preprocess"]
+    assert window["window_source"] == "option"
+    step = scan.energy_eV[1] - scan.energy_eV[0]
+    assert lo - step <= window["window_lo_eV"] < window["window_hi_eV"] <= hi + step
+
+
 def test_xuv_only_and_classify_retrieve_equal_cli_results(archive, tmp_path):
     xuv_only = archive["neon-xuv-only"]
     path = archive["argon-rabbitt"]
