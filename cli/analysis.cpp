@@ -10,6 +10,8 @@
 #include "cli/progress.h"
 #include "io/input_guard.h"
 #include "cli/provenance.h"
+#include "io/classify_outputs.h"
+#include "io/rabbitt_outputs.h"
 #include "io/retrieval_outputs.h"
 #include "io/trace_reader.h"
 #include "retrieval/error.h"
@@ -34,63 +36,129 @@ bool parse_analysis_kind(const std::string& s, AnalysisKind* out) {
   return true;
 }
 
-void apply_overrides(Trace& t, const ScanOverrides& o) {
-  if (o.gas) t.meta.gas = *o.gas;
-  if (o.ir_wavelength_nm) t.meta.ir_wavelength_nm = *o.ir_wavelength_nm;
-  if (o.kind && !parse_trace_kind(*o.kind, &t.meta.kind))
-    throw usage_error("override kind '" + *o.kind + "': expected streaking, rabbitt or xuv_only");
+TraceReadOverrides read_overrides(const ScanOverrides& o) {
+  TraceReadOverrides r;
+  r.gas = o.gas;
+  r.ir_wavelength_nm = o.ir_wavelength_nm;
+  if (o.kind) {
+    TraceKind k;
+    if (!parse_trace_kind(*o.kind, &k))
+      throw usage_error("override kind '" + *o.kind + "': expected streaking, rabbitt or xuv_only");
+    r.kind = k;
+  }
+  return r;
 }
 
-// Implemented beside their subcommands (cli/cmd_rabbitt.cpp, cli/cmd_classify.cpp).
-AnalysisResult run_rabbitt_analysis(const Trace& trace, const ScanJob& job, const std::vector<Param>& prov);
-AnalysisResult run_classify_analysis(const Trace& trace, const ScanJob& job, const std::vector<Param>& prov);
-AnalysisKind auto_analysis(const Trace& trace);
-
-void add_input_warnings(const Trace& trace, std::vector<std::string>& warnings) {
-  warnings.insert(warnings.end(), trace.meta.read_warnings.begin(), trace.meta.read_warnings.end());
+AnalysisKind auto_analysis(const Trace& t) {
+  switch (t.meta.kind) {
+    case TraceKind::kRabbitt:
+      return AnalysisKind::kRabbitt;
+    case TraceKind::kStreaking:
+      return AnalysisKind::kRetrieve;
+    case TraceKind::kXuvOnly:
+      return AnalysisKind::kClassify;
+    default:
+      break;
+  }
+  // No kind: the spectral evidence decides (a harmonic comb or train-like fringes -> rabbitt).
+  try {
+    ClassifierOptions co;
+    if (!(classifier_wavelength(t, &co, nullptr) > 0)) return AnalysisKind::kRetrieve;
+    const VerdictSection v = classify(t, co, nullptr);
+    for (const Param& p : v.evidence)
+      if (p.key == "spectrum.class") {
+        const auto* s = std::get_if<std::string>(&p.value);
+        return s && *s == to_string(PulseClass::kTrain) ? AnalysisKind::kRabbitt
+                                                        : AnalysisKind::kRetrieve;
+      }
+    return v.pulse_class == PulseClass::kTrain ? AnalysisKind::kRabbitt : AnalysisKind::kRetrieve;
+  } catch (const Error&) {
+    return AnalysisKind::kRetrieve;  // retrieve reports what is missing
+  }
 }
+
+RabbittAnalysisOptions rabbitt_options(const ScanJob& job) {
+  RabbittAnalysisOptions o;
+  o.rabbitt = job.rabbitt;
+  o.atomic_correction = job.atomic_correction;
+  o.train_burst = job.train_burst;
+  o.classifier = job.classifier;
+  o.classifier.isolated_max_satellite_ratio = job.retrieve.isolated_max_satellite_ratio;
+  o.classifier.satellite_max_ratio = job.retrieve.satellites_max_satellite_ratio;
+  o.preprocess = job.retrieve.preprocess;
+  o.quality = job.retrieve.quality;
+  o.xuv_only_name = job.xuv_only_sidecar;
+  return o;
+}
+
+ClassifyAnalysisOptions classify_options(const ScanJob& job) {
+  ClassifyAnalysisOptions o;
+  o.classifier = job.classifier;
+  o.retrieve = job.classify_retrieve;
+  o.retrieve_options = job.retrieve;
+  if (job.overrides.engine) o.retrieve_options.engine = *job.overrides.engine;
+  return o;
+}
+
+Error scan_error(const Error& e, const std::string& sidecar) {
+  std::string message = e.what();
+  // Every message names the file (an engine's own message may not).
+  if (const std::string shown = printable_path(sidecar);
+      !sidecar.empty() && message.find(shown) == std::string::npos && message.find(sidecar) == std::string::npos)
+    message = "scan '" + shown + "': " + message;
+  if (e.kind() == ErrorKind::kNumeric)  // nothing was written: not the exit 4 of a result
+    return Error(ErrorKind::kInput, message + " (no estimate could be computed from this input; nothing was written)");
+  return Error(e.kind(), message);
+}
+
+namespace {
+
+// Provenance goes last into every result (after the analysis' settings echo).
+void add_provenance(AnalysisResult& r, const std::vector<Param>& prov, const std::string& sidecar) {
+  if (r.input.empty()) r.input = sidecar;
+  for (const Param& p : prov) r.extra.push_back(p);
+}
+
+}  // namespace
 
 ScanOutcome run_scan(const ScanJob& job) {
   ScanOutcome o;
   const auto t0 = std::chrono::steady_clock::now();
   try {
-    // The reader sees the overrides too: a time-of-flight fit needs the gas, wavelength and
-    // kind the analysis will use. An unparsable kind is left to apply_overrides' message.
-    TraceReadOverrides read_overrides;
-    read_overrides.gas = job.overrides.gas;
-    read_overrides.ir_wavelength_nm = job.overrides.ir_wavelength_nm;
-    if (TraceKind k; job.overrides.kind && parse_trace_kind(*job.overrides.kind, &k))
-      read_overrides.kind = k;
-    Trace trace = read_trace(job.sidecar, nullptr, read_overrides, job.read_policy);
-    apply_overrides(trace, job.overrides);
+    // Overrides are applied by the reader (a time-of-flight fit needs the gas, wavelength and
+    // kind the analysis will use).
+    const Trace trace = read_trace(job.sidecar, nullptr, read_overrides(job.overrides), job.read_policy);
     if (job.after_read) job.after_read(trace);
-    std::vector<Param> prov = provenance(job.sidecar, trace.meta.image, "");
+    const AnalysisKind kind = job.analysis == AnalysisKind::kAuto ? auto_analysis(trace) : job.analysis;
+    o.analysis_run = kind;
+    std::vector<Param> prov = provenance(job.sidecar, trace.meta.image, to_string(kind));
     // The calibration of a time-of-flight axis (calibration.*) goes into every result.
     for (const Param& p : trace.meta.calibration) prov.push_back(p);
-    AnalysisKind kind = job.analysis == AnalysisKind::kAuto ? auto_analysis(trace) : job.analysis;
-    o.analysis_run = kind;
-    for (Param& p : prov)
-      if (p.key == "provenance.command") p.value = std::string(to_string(kind));
     for (const Param& p : job.extra_provenance) prov.push_back(p);
+    const AnalysisProgress progress = job.progress;
     if (kind == AnalysisKind::kRetrieve) {
       RetrieveOptions ro = job.retrieve;
       if (job.overrides.engine) ro.engine = *job.overrides.engine;
-      RetrieveOutput out = retrieve(trace, ro, [&](const std::string& stage, const IterationRecord& r) {
-        if (!job.progress) return;
-        std::ostringstream m;
-        m.precision(4);
-        m << "iteration " << r.iteration << ", G = " << r.trace_error << ", " << r.seconds << " s";
-        job.progress(stage, m.str());
-      });
-      add_input_warnings(trace, out.result.warnings);
-      write_retrieval_outputs(trace, out, job.out_dir, prov, job.figure_format);
+      RetrieveOutput out = analyse_retrieve(trace, ro, progress);
+      add_provenance(out.result, prov, job.sidecar);
+      write_retrieval_outputs(trace, out, job.out_dir, job.figure_format);
       o.result = out.result;
-      for (const Param& p : prov) o.result.extra.push_back(p);
       o.exit_code = out.reconstruction.converged() ? 0 : 4;
     } else if (kind == AnalysisKind::kRabbitt) {
-      o.result = run_rabbitt_analysis(trace, job, prov);
+      std::optional<Trace> xuv_only;
+      if (!job.xuv_only_sidecar.empty())
+        xuv_only = read_trace(job.xuv_only_sidecar, nullptr, {}, job.read_policy);
+      RabbittOutput out = analyse_rabbitt(trace, xuv_only ? &*xuv_only : nullptr, rabbitt_options(job), progress);
+      add_provenance(out.result, prov, job.sidecar);
+      write_rabbitt_outputs(out.trace, out.analysis, out.burst ? &*out.burst : nullptr, out.result, job.out_dir,
+                            job.figure_format);
+      o.result = out.result;
     } else {
-      o.result = run_classify_analysis(trace, job, prov);
+      ClassifyOutput out = analyse_classify(trace, classify_options(job), progress);
+      add_provenance(out.result, prov, job.sidecar);
+      write_classify_outputs(out.trace, out.result, out.retrieval ? &out.retrieval->reconstruction : nullptr,
+                             out.ir_wavelength_nm, job.out_dir, job.figure_format);
+      o.result = out.result;
     }
     o.ok = true;
     if (const std::string bad = find_non_finite_output(job.out_dir); !bad.empty())
@@ -100,18 +168,10 @@ ScanOutcome run_scan(const ScanJob& job) {
                         "sidecar '" + printable_path(job.sidecar) + "')");
   } catch (const Error& e) {
     o.ok = false;
-    o.message = e.what();
-    // Every message names the file (an engine's own message may not).
-    if (const std::string shown = printable_path(job.sidecar);
-        o.message.find(shown) == std::string::npos && o.message.find(job.sidecar) == std::string::npos)
-      o.message = "scan '" + shown + "': " + o.message;
-    o.exit_code = e.exit_code();
-    o.error_kind = e.kind();
-    if (e.kind() == ErrorKind::kNumeric) {  // nothing was written: not the exit 4 of a result
-      o.message += " (no estimate could be computed from this input; nothing was written)";
-      o.exit_code = 3;
-      o.error_kind = ErrorKind::kInput;
-    }
+    const Error shown = scan_error(e, job.sidecar);
+    o.message = shown.what();
+    o.exit_code = shown.exit_code();
+    o.error_kind = shown.kind();
   } catch (const std::exception& e) {
     o.ok = false;
     o.message = std::string("internal error: ") + e.what();

@@ -9,6 +9,7 @@
 
 #include "io/plot.h"
 #include "io/trace_reader.h"
+#include "retrieval/analyses.h"
 #include "retrieval/classifier.h"
 #include "retrieval/error.h"
 #include "retrieval/rabbitt.h"
@@ -52,21 +53,14 @@ struct ScanJob {
   /// Called with the trace right after reading, before any analysis (e.g. the output-folder
   /// check against the data file's folder); may throw sw::Error. May be empty.
   std::function<void(const Trace&)> after_read;
-  // --- rabbitt and classify (cli/cmd_rabbitt.cpp, cli/cmd_classify.cpp) ---
+  // --- rabbitt and classify (retrieval/analyses.h) ---
   /// rabbitt: sidecar of a field-free (XUV-only) scan whose spectrum gives the harmonic
   /// amplitudes of the average burst; "" = use the delay-integrated RABBITT spectrum.
   std::string xuv_only_sidecar;
   /// rabbitt: analysis options; atomic.mode is set from atomic_correction above.
   RabbittOptions rabbitt;
-  /// rabbitt: average-burst options. Default cross section: the energy-density Jacobian p
-  /// alone (sfa_dipole with a constant dipole), the same division by p as retrieve's
-  /// preprocessing.
-  TrainBurstOptions train_burst = [] {
-    TrainBurstOptions o;
-    o.cross_section = CrossSectionModel::kSfaDipole;
-    o.dipole = DipoleKind::kConstant;
-    return o;
-  }();
+  /// rabbitt: average-burst options (retrieval/analyses.h).
+  TrainBurstOptions train_burst = rabbitt_train_burst_defaults();
   /// Verdict thresholds of classify and rabbitt. The two satellite-ratio thresholds are taken
   /// from retrieve.isolated_max_satellite_ratio / satellites_max_satellite_ratio (one place
   /// for every analysis and for batch); the fields of the same meaning here are ignored.
@@ -100,6 +94,12 @@ ScanOutcome run_scan(const ScanJob& job);
 /// failure as sw::Error of its kind (so guarded() prints it and exits with its code).
 ScanOutcome run_scan_or_throw(ScanJob job);
 
+/// An analysis' error as run_scan reports it: the message names the scan's sidecar (prefix
+/// "scan 'PATH': " unless it already does; no prefix when `sidecar` is empty), and a numerical
+/// failure that left no estimate (kNumeric) is bad input (kInput, exit 3) with a note that
+/// nothing was written.
+Error scan_error(const Error& e, const std::string& sidecar);
+
 /// Thrown by run_scan_or_throw when a SIGINT/SIGTERM stopped the analysis.
 class InterruptedError : public std::runtime_error {
  public:
@@ -114,12 +114,16 @@ class InterruptedError : public std::runtime_error {
 /// "inf", "infinity" as a token, any case) among .csv/.json/.html files; "" if none.
 std::string find_non_finite_output(const std::string& dir);
 
-/// Applies overrides to a loaded trace's metadata.
-void apply_overrides(Trace& trace, const ScanOverrides& o);
+/// The reader's overrides (io/trace_reader.h) of a job's overrides: the reader applies them
+/// once, before anything uses them. Throws sw::Error(kUsage) for an unknown kind.
+TraceReadOverrides read_overrides(const ScanOverrides& o);
 
-/// Appends the warnings about how the scan was read (TraceMeta::read_warnings, filled by the
-/// reader: 8-bit images, counts outside a time-of-flight calibration window, a calibration fit
-/// above the resolution, ...) to an analysis result's warnings; every analysis calls it.
-void add_input_warnings(const Trace& trace, std::vector<std::string>& warnings);
+/// The analysis kAuto picks for a scan that has been read (see AnalysisKind).
+AnalysisKind auto_analysis(const Trace& trace);
+
+/// The library options of a job's rabbitt and classify analyses (retrieval/analyses.h): the
+/// satellite-ratio thresholds come from job.retrieve, the engine override applies.
+RabbittAnalysisOptions rabbitt_options(const ScanJob& job);
+ClassifyAnalysisOptions classify_options(const ScanJob& job);
 
 }  // namespace sw::cli

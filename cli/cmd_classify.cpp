@@ -1,6 +1,6 @@
 // `streakwright classify SCAN.json --out DIR`: isolated pulse, isolated pulse with satellites,
-// pulse train or undetermined, with every piece of evidence reported. Also the automatic
-// choice of analysis used by batch (auto_analysis).
+// pulse train or undetermined, with every piece of evidence reported (the analysis itself:
+// analyse_classify, retrieval/analyses.h).
 #include <cstdio>
 #include <filesystem>
 #include <memory>
@@ -9,139 +9,12 @@
 #include "cli/analysis.h"
 #include "cli/commands.h"
 #include "cli/option_checks.h"
-#include "io/classify_outputs.h"
 #include "retrieval/classifier.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
-#include "retrieval/quality.h"
 #include "retrieval/lines.h"
-#include "retrieval/retrieve.h"
 
 namespace sw::cli {
-
-ClassifierOptions classifier_options_for(const ScanJob& job);  // cli/cmd_rabbitt.cpp
-
-namespace {
-
-constexpr double kFallbackWavelength_nm = 800.0;
-
-// The wavelength the classifier needs: option, sidecar, or (xuv_only scans only) 800 nm.
-// Returns the wavelength and appends a warning when it was assumed.
-double classifier_wavelength(const Trace& trace, ClassifierOptions* co,
-                             std::vector<std::string>* warnings) {
-  if (co->ir_wavelength_nm > 0) return co->ir_wavelength_nm;
-  if (trace.meta.ir_wavelength_nm > 0) return trace.meta.ir_wavelength_nm;
-  if (trace.meta.kind == TraceKind::kXuvOnly) {
-    co->ir_wavelength_nm = kFallbackWavelength_nm;
-    if (warnings)
-      warnings->push_back(
-          "the xuv_only sidecar gives no ir_wavelength_nm (the driver wavelength): 800 nm is "
-          "assumed for the burst spacing T/2; give ir_wavelength_nm in the sidecar or "
-          "--ir-wavelength");
-    return kFallbackWavelength_nm;
-  }
-  return 0.0;  // classify() reports the missing field
-}
-
-}  // namespace
-
-AnalysisKind auto_analysis(const Trace& t) {
-  switch (t.meta.kind) {
-    case TraceKind::kRabbitt:
-      return AnalysisKind::kRabbitt;
-    case TraceKind::kStreaking:
-      return AnalysisKind::kRetrieve;
-    case TraceKind::kXuvOnly:
-      return AnalysisKind::kClassify;
-    default:
-      break;
-  }
-  // No kind: the spectral evidence decides (a harmonic comb or train-like fringes -> rabbitt).
-  try {
-    ClassifierOptions co;
-    if (!(classifier_wavelength(t, &co, nullptr) > 0)) return AnalysisKind::kRetrieve;
-    const VerdictSection v = classify(t, co, nullptr);
-    for (const Param& p : v.evidence)
-      if (p.key == "spectrum.class") {
-        const auto* s = std::get_if<std::string>(&p.value);
-        return s && *s == to_string(PulseClass::kTrain) ? AnalysisKind::kRabbitt
-                                                        : AnalysisKind::kRetrieve;
-      }
-    return v.pulse_class == PulseClass::kTrain ? AnalysisKind::kRabbitt : AnalysisKind::kRetrieve;
-  } catch (const Error&) {
-    return AnalysisKind::kRetrieve;  // retrieve reports what is missing
-  }
-}
-
-AnalysisResult run_classify_analysis(const Trace& scan, const ScanJob& job,
-                                     const std::vector<Param>& prov) {
-  // An explicit window (option, else sidecar) applies to the evidence and to --retrieve alike.
-  const PreprocessOptions& pp = job.retrieve.preprocess;
-  const Trace trace = apply_energy_window(scan, pp.energy_window_lo_eV, pp.energy_window_hi_eV, nullptr);
-  ClassifierOptions co = classifier_options_for(job);
-  if (const std::string e = co.validate(); !e.empty())
-    throw usage_error("classify thresholds: " + e);
-  AnalysisResult res;
-  res.input = trace.meta.source.empty() ? job.sidecar : trace.meta.source;
-  res.analysis = "classify";
-  add_input_warnings(trace, res.warnings);
-  const double lambda = classifier_wavelength(trace, &co, &res.warnings);
-
-  std::optional<RetrieveOutput> ret;
-  if (job.classify_retrieve) {
-    if (trace.meta.kind == TraceKind::kXuvOnly || trace.num_delays() < 8) {
-      res.warnings.push_back("--retrieve ignored: the scan has no delay scan to retrieve from (" +
-                             std::to_string(trace.num_delays()) + " delay row(s))");
-    } else {
-      RetrieveOptions ro = job.retrieve;
-      if (job.overrides.engine) ro.engine = *job.overrides.engine;
-      ro.bootstrap = 0;
-      if (job.progress) job.progress("classify", "streaking retrieval");
-      ret = retrieve(trace, ro, [&](const std::string& stage, const IterationRecord& r) {
-        if (!job.progress) return;
-        std::ostringstream m;
-        m.precision(4);
-        m << "iteration " << r.iteration << ", G = " << r.trace_error;
-        job.progress(stage, m.str());
-      });
-      res.engine = ret->result.engine;
-      res.xuv = ret->result.xuv;
-      res.ir = ret->result.ir;
-      res.fit = ret->result.fit;
-      for (const auto& w : ret->result.warnings)
-        if (w.find("bootstrap") == std::string::npos) res.warnings.push_back("retrieval: " + w);
-      for (const Param& p : ret->result.extra) res.extra.push_back({"retrieval." + p.key, p.value});
-    }
-  }
-  if (job.progress) job.progress("classify", "evidence");
-  res.verdict = classify(trace, co, ret ? &ret->reconstruction : nullptr);
-  // Lines (DESIGN.md "lines"): from the retrieval when it ran, else as preprocessing finds them.
-  if (ret && !ret->result.lines.empty()) {
-    res.lines = ret->result.lines;
-  } else {
-    std::string why;
-    res.lines = scan_lines(trace, pp, &why);
-    if (res.lines.empty() && !why.empty()) res.warnings.push_back("photoelectron lines not listed: " + why);
-  }
-  res.quality = classify_quality(trace.counts, trace.meta.background.value_or(0.0), *res.verdict,
-                                 ret && ret->result.quality ? &*ret->result.quality : nullptr, job.retrieve.quality);
-
-  auto P = [&](const std::string& k, auto v) { res.extra.push_back({k, v}); };
-  P("settings.ir_wavelength_nm", lambda);
-  P("settings.isolated_max_satellite_ratio", co.isolated_max_satellite_ratio);
-  P("settings.satellites_max_satellite_ratio", co.satellite_max_ratio);
-  P("settings.train_min_comparable_bursts", static_cast<long long>(co.train_min_comparable_bursts));
-  P("settings.comb_min_period_contrast", co.comb_min_period_contrast);
-  P("settings.delay_train_min_share", co.delay_train_min_share);
-  P("settings.delay_streaking_max_share", co.delay_streaking_max_share);
-  P("settings.min_total_counts", co.min_total_counts);
-  P("settings.retrieve", job.classify_retrieve);
-  for (const Param& p : prov) res.extra.push_back(p);
-  for (const auto& [k, v] : trace.meta.extra_json) res.extra_json["sidecar." + k] = v;
-  write_classify_outputs(trace, res, ret ? &ret->reconstruction : nullptr, lambda, job.out_dir,
-                         job.figure_format);
-  return res;
-}
 
 namespace {
 

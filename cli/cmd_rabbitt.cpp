@@ -8,127 +8,12 @@
 #include "cli/analysis.h"
 #include "cli/commands.h"
 #include "cli/option_checks.h"
-#include "io/rabbitt_outputs.h"
-#include "io/trace_reader.h"
-#include "retrieval/classifier.h"
 #include "retrieval/dipole.h"
 #include "retrieval/error.h"
-#include "retrieval/quality.h"
 #include "retrieval/lines.h"
-#include "retrieval/units.h"
 #include "retrieval/rabbitt.h"
-#include "retrieval/train_burst.h"
 
 namespace sw::cli {
-
-/// The verdict thresholds of a job (analysis.h: satellite ratios from job.retrieve).
-ClassifierOptions classifier_options_for(const ScanJob& job);
-
-ClassifierOptions classifier_options_for(const ScanJob& job) {
-  ClassifierOptions c = job.classifier;
-  c.isolated_max_satellite_ratio = job.retrieve.isolated_max_satellite_ratio;
-  c.satellite_max_ratio = job.retrieve.satellites_max_satellite_ratio;
-  return c;
-}
-
-AnalysisResult run_rabbitt_analysis(const Trace& scan, const ScanJob& job,
-                                    const std::vector<Param>& prov) {
-  std::string window_source;
-  const PreprocessOptions& pp = job.retrieve.preprocess;
-  const Trace trace = apply_energy_window(scan, pp.energy_window_lo_eV, pp.energy_window_hi_eV, &window_source);
-  RabbittOptions ro = job.rabbitt;
-  if (!parse_atomic_delay_mode(job.atomic_correction, &ro.atomic.mode))
-    throw usage_error("--atomic-correction '" + job.atomic_correction +
-                      "': expected auto (subtract the atomic delays of the gas) or none");
-  if (const std::string e = ro.validate(); !e.empty()) throw usage_error("rabbitt options: " + e);
-  if (const std::string e = job.train_burst.validate(); !e.empty())
-    throw usage_error("average-burst options: " + e);
-  const ClassifierOptions co = classifier_options_for(job);
-  if (const std::string e = co.validate(); !e.empty())
-    throw usage_error("verdict thresholds: " + e);
-
-  if (job.progress) job.progress("rabbitt", "sideband fits");
-  const RabbittAnalysis rb = analyze_rabbitt(trace, ro);
-
-  AnalysisResult res;
-  res.input = trace.meta.source.empty() ? job.sidecar : trace.meta.source;
-  res.analysis = "rabbitt";
-  res.rabbitt = rb.section;
-  res.warnings = rb.warnings;
-  add_input_warnings(trace, res.warnings);
-  if (!window_source.empty()) {
-    res.extra.push_back({"preprocess.window_source", window_source});
-    res.extra.push_back({"preprocess.window_lo_eV", units::au_to_eV(trace.energy_au.front())});
-    res.extra.push_back({"preprocess.window_hi_eV", units::au_to_eV(trace.energy_au.back())});
-  }
-
-  std::optional<Trace> xuv_only;
-  if (!job.xuv_only_sidecar.empty()) {
-    std::vector<std::string> rw;
-    xuv_only = read_trace(job.xuv_only_sidecar, &rw, {}, job.read_policy);
-    for (const auto& w : rw) res.warnings.push_back("xuv-only spectrum: " + w);
-    if (xuv_only->meta.kind != TraceKind::kXuvOnly && xuv_only->meta.kind != TraceKind::kUnknown)
-      res.warnings.push_back("the --xuv-only sidecar " + job.xuv_only_sidecar + " has kind '" +
-                             to_string(xuv_only->meta.kind) +
-                             "', not xuv_only: its delay-integrated spectrum is used anyway");
-  }
-
-  if (job.progress) job.progress("rabbitt", "average burst");
-  std::optional<TrainBurst> burst;
-  try {
-    burst = reconstruct_train_burst(trace, rb, job.train_burst, xuv_only ? &*xuv_only : nullptr);
-    fill_rabbitt_section(*burst, &*res.rabbitt);
-    for (const auto& w : burst->warnings) res.warnings.push_back("average burst: " + w);
-  } catch (const Error& e) {
-    if (e.kind() != ErrorKind::kNumeric) throw;
-    res.warnings.push_back(std::string("no average burst: ") + e.what());
-  }
-
-  if (job.progress) job.progress("rabbitt", "verdict");
-  res.verdict = classify(trace, co, nullptr);
-  // Lines (DESIGN.md "lines"), as retrieve's preprocessing finds them; the sidebands belong to
-  // the reference line.
-  {
-    std::string why;
-    res.lines = scan_lines(trace, pp, &why);
-    if (res.lines.empty() && !why.empty()) res.warnings.push_back("photoelectron lines not listed: " + why);
-  }
-  res.quality = rabbitt_quality(trace.counts, trace.meta.background.value_or(0.0), *res.rabbitt, job.retrieve.quality);
-
-  res.extra = rb.params;
-  auto P = [&](const std::string& k, auto v) { res.extra.push_back({k, v}); };
-  if (burst) {
-    const TrainBurst& b = *burst;
-    std::vector<double> orders(b.harmonic_orders.begin(), b.harmonic_orders.end());
-    P("rabbitt.burst.harmonic_orders", orders);
-    P("rabbitt.burst.harmonic_photon_energy_eV", b.harmonic_photon_energy_eV);
-    P("rabbitt.burst.harmonic_intensity", b.harmonic_intensity);
-    P("rabbitt.burst.harmonic_phase_rad", b.harmonic_phase_rad);
-    P("rabbitt.burst.peak_time_as", b.peak_time_as);
-    P("rabbitt.burst.spectrum_source", b.spectrum_source);
-    P("rabbitt.burst.cross_section", b.cross_section);
-    P("rabbitt.burst.monte_carlo_draws", static_cast<long long>(b.monte_carlo_draws));
-    P("rabbitt.burst.assumptions", b.assumptions);
-  }
-  if (!rb.skipped_sidebands.empty()) {
-    std::string s;
-    for (const auto& k : rb.skipped_sidebands) s += (s.empty() ? "" : "; ") + k;
-    P("rabbitt.skipped_sidebands", s);
-  }
-  P("settings.atomic_correction", std::string(to_string(ro.atomic.mode)));
-  P("settings.window_half_width_fraction", ro.window_half_width_fraction);
-  P("settings.apply_delay_calibration", ro.apply_delay_calibration);
-  P("settings.cross_section", std::string(to_string(job.train_burst.cross_section)));
-  P("settings.dipole", std::string(to_string(job.train_burst.dipole)));
-  if (!job.xuv_only_sidecar.empty()) P("settings.xuv_only", job.xuv_only_sidecar);
-  P("settings.isolated_max_satellite_ratio", co.isolated_max_satellite_ratio);
-  P("settings.satellites_max_satellite_ratio", co.satellite_max_ratio);
-  for (const Param& p : prov) res.extra.push_back(p);
-  for (const auto& [k, v] : trace.meta.extra_json) res.extra_json["sidecar." + k] = v;
-
-  write_rabbitt_outputs(trace, rb, burst ? &*burst : nullptr, res, job.out_dir, job.figure_format);
-  return res;
-}
 
 namespace {
 

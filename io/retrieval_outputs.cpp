@@ -57,7 +57,6 @@ std::string fmt(double v, int prec = 6) {
 }  // namespace
 
 void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, const std::string& dir,
-                             const std::vector<Param>& provenance,
                              plot::FigureFormat figure_format) {
   std::error_code ec;
   fs::create_directories(dir, ec);
@@ -68,9 +67,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   };
   const Reconstruction& rec = out.reconstruction;
   const RetrievalProblem& pr = out.problem;
-  AnalysisResult res = out.result;
-  for (const Param& p : provenance) res.extra.push_back(p);
-  for (const auto& [k, v] : trace.meta.extra_json) res.extra_json["sidecar." + k] = v;
+  const AnalysisResult& res = out.result;
 
   // XUV about its centre photon energy (so the temporal phase shows the chirp, not the carrier).
   const double wc = res.xuv && res.xuv->center_photon_energy_eV ? units::eV_to_au(*res.xuv->center_photon_energy_eV)

@@ -21,9 +21,10 @@
 
 namespace sw {
 
-/// Writes the folder (created if missing). `provenance` is appended to result.extra.
+/// Writes the folder (created if missing). out.result is written unchanged as result.json (the
+/// caller has appended the provenance; analyse_retrieve, retrieval/analyses.h, the sidecar's
+/// extra keys). Figures take the extension of `figure_format`.
 void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, const std::string& out_dir,
-                             const std::vector<Param>& provenance,
                              plot::FigureFormat figure_format = plot::FigureFormat::kPng);
 
 /// Unwrapped phase of samples where |z|^2 >= threshold * max, NaN elsewhere.

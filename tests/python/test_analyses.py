@@ -1,0 +1,186 @@
+# The Python module against the CLI: the same scan and options give the same result.json
+# (Result.to_dict), the same output folder (Result.write), the same error messages; arrays in,
+# arrays out; progress and cancellation.
+import json
+import os
+import signal
+import threading
+
+import numpy as np
+import pytest
+
+import streakwright as sw
+from conftest import run_cli
+
+# Fast, deterministic retrieval settings (one thread, fixed seed, no bootstrap).
+RETRIEVE_CLI = ["--engine", "ptychographic", "--iterations", "40", "--bootstrap", "0", "--threads", "1",
+                "--seed", "7"]
+RETRIEVE_PY = dict(engine="ptychographic", iterations=40, bootstrap=0, threads=1, seed=7)
+
+
+def comparable(d):
+    """result.json without the values that differ between two runs: wall times (any key with
+    'seconds') and the time of the analysis (provenance.time_utc)."""
+    if isinstance(d, dict):
+        return {k: comparable(v) for k, v in d.items() if "seconds" not in k and k != "time_utc"}
+    if isinstance(d, list):
+        return [comparable(v) for v in d]
+    return d
+
+
+def cli_result(tmp_path, name, *args):
+    out = tmp_path / name
+    r = run_cli(*args, "--out", str(out), "--quiet")
+    assert r.returncode in (0, 4), r.stderr
+    with open(out / "result.json") as f:
+        return json.load(f), out
+
+
+def test_retrieve_to_dict_equals_cli_result(archive, tmp_path):
+    path = archive["neon-150as"]
+    expected, cli_out = cli_result(tmp_path, "cli", "retrieve", path, *RETRIEVE_CLI)
+    res = sw.retrieve(sw.load_scan(path), **RETRIEVE_PY)
+    got = res.to_dict()
+    assert got["provenance"]["command"] == "retrieve"
+    assert comparable(got) == comparable(expected)
+    # The numbers a physicist reads first are there and finite.
+    assert 100 < got["xuv"]["fwhm_as"] < 250
+    # Arrays: the retrieved XUV peaks near t = 0 (time origin fixed at the intensity centroid).
+    t, field = res.xuv_time_as, res.xuv_field
+    assert t.shape == field.shape and field.dtype == np.complex128
+    assert abs(t[np.argmax(np.abs(field))]) < 100
+    assert res.measured_trace.shape == res.retrieved_trace.shape
+    assert res.ir_time_fs.shape == res.ir_vector_potential_au.shape == res.ir_electric_field_au.shape
+    # Result.write: the folder the CLI writes (same files; same result.json up to wall times).
+    py_out = tmp_path / "py"
+    res.write(str(py_out))
+    assert sorted(os.listdir(py_out)) == sorted(os.listdir(cli_out))
+    with open(py_out / "result.json") as f:
+        assert comparable(json.load(f)) == comparable(expected)
+    # The CLI's output-folder safety: never into the folder of an input (docs/cli.md).
+    with pytest.raises(ValueError, match="input"):
+        res.write(os.path.dirname(path))
+    assert os.path.exists(path)
+
+
+def test_rabbitt_and_classify_to_dict_equal_cli_results(archive, tmp_path):
+    path = archive["argon-rabbitt"]
+    scan = sw.load_scan(path)
+    assert scan.kind == "rabbitt" and scan.gas
+    expected, _ = cli_result(tmp_path, "rb", "rabbitt", path)
+    got = sw.rabbitt(scan).to_dict()
+    assert comparable(got) == comparable(expected)
+    assert got["rabbitt"]["sidebands"]
+    expected, _ = cli_result(tmp_path, "cl", "classify", path, "--min-counts", "1000", "--ir-wavelength", "790")
+    got = sw.classify(scan, min_counts=1000, ir_wavelength=790.0).to_dict()
+    assert got["settings"]["ir_wavelength_nm"] == 790.0
+    assert comparable(got) == comparable(expected)
+    assert got["verdict"]["class"] == "train"
+
+
+def test_rabbitt_echoes_the_energy_window(archive, tmp_path):
+    path = archive["argon-rabbitt"]
+    scan = sw.load_scan(path)
+    lo, hi = scan.energy_eV[0] + 2.0, scan.energy_eV[-1] - 2.0
+    expected, _ = cli_result(tmp_path, "rbw", "rabbitt", path, "--energy-window", f"{lo}:{hi}")
+    got = sw.rabbitt(scan, energy_window=(lo, hi)).to_dict()
+    assert comparable(got) == comparable(expected)
+    window = got["preprocess"]
+    assert window["window_source"] == "option"
+    step = scan.energy_eV[1] - scan.energy_eV[0]
+    assert lo - step <= window["window_lo_eV"] < window["window_hi_eV"] <= hi + step
+
+
+def test_xuv_only_and_classify_retrieve_equal_cli_results(archive, tmp_path):
+    xuv_only = archive["neon-xuv-only"]
+    path = archive["argon-rabbitt"]
+    expected, _ = cli_result(tmp_path, "rbx", "rabbitt", path, "--xuv-only", xuv_only)
+    got = sw.rabbitt(sw.load_scan(path), xuv_only=sw.load_scan(xuv_only)).to_dict()
+    assert got["settings"]["xuv_only"] == xuv_only
+    assert comparable(got) == comparable(expected)
+    path = archive["neon-150as"]
+    expected, _ = cli_result(tmp_path, "clr", "classify", path, "--retrieve", "--engine", "ptychographic",
+                             "--iterations", "20")
+    res = sw.classify(sw.load_scan(path), retrieve=True, engine="ptychographic", iterations=20)
+    assert comparable(res.to_dict()) == comparable(expected)
+    assert res.xuv_field is not None and res.to_dict()["verdict"]["class"] == "isolated"
+
+
+def test_bad_input_raises_value_error_with_the_cli_message(archive, tmp_path):
+    missing = str(tmp_path / "missing.json")
+    r = run_cli("retrieve", missing, "--out", str(tmp_path / "o"))
+    assert r.returncode == 3
+    with pytest.raises(ValueError) as e:
+        sw.load_scan(missing)
+    assert str(e.value) in r.stderr
+    # An analysis refusing a scan: the message names the scan, as the CLI's does.
+    streaking = archive["neon-150as"]
+    r = run_cli("rabbitt", streaking, "--out", str(tmp_path / "rb"))
+    assert r.returncode == 3
+    with pytest.raises(ValueError) as e:
+        sw.rabbitt(sw.load_scan(streaking))
+    assert streaking in str(e.value) and str(e.value) in r.stderr
+    scan, _ = sw.simulate("neon-150as", seed=2)
+    with pytest.raises(ValueError, match="engine"):
+        sw.retrieve(scan, engine="no-such-engine")
+
+
+def test_scan_from_arrays_round_trip_and_checks(archive):
+    scan = sw.load_scan(archive["neon-150as"])
+    assert scan.counts.shape == (len(scan.delay_fs), len(scan.energy_eV))
+    again = sw.Scan.from_arrays(scan.counts, energy_eV=scan.energy_eV, delay_fs=scan.delay_fs, gas=scan.gas,
+                                ir_wavelength_nm=scan.ir_wavelength_nm, kind="streaking", operator="R. Example")
+    np.testing.assert_array_equal(again.counts, scan.counts)
+    np.testing.assert_allclose(again.energy_eV, scan.energy_eV, rtol=1e-14)
+    assert again.meta["extra"] == {"operator": "R. Example"}
+    bad = scan.counts.copy()
+    bad[3, 4] = -5.0
+    with pytest.raises(ValueError, match="Scan.from_arrays"):
+        sw.Scan.from_arrays(bad, energy_eV=scan.energy_eV, delay_fs=scan.delay_fs, gas=scan.gas,
+                            ir_wavelength_nm=scan.ir_wavelength_nm)
+    with pytest.raises(ValueError, match="shape"):
+        sw.Scan.from_arrays(scan.counts.T, energy_eV=scan.energy_eV, delay_fs=scan.delay_fs)
+    with pytest.raises(ValueError, match="ir_wavelength_nm"):
+        sw.Scan.from_arrays(scan.counts, energy_eV=scan.energy_eV, delay_fs=scan.delay_fs, gas="Ne",
+                            ir_wavelength_nm=-800.0)
+
+
+def test_simulate_returns_scan_and_truth():
+    scan, truth = sw.simulate("neon-150as", seed=5)
+    assert truth["xuv"]["fwhm_as"] > 0
+    assert scan.counts.ndim == 2 and scan.counts.sum() > 0
+    with pytest.raises(ValueError, match="preset"):
+        sw.simulate("no-such-preset")
+
+
+def test_progress_callback_and_cancellation():
+    scan, _ = sw.simulate("neon-150as", seed=6)
+    seen = []
+    sw.retrieve(scan, **{**RETRIEVE_PY, "iterations": 5}, progress=lambda stage, msg: seen.append((stage, msg)))
+    assert seen and all(isinstance(s, str) for s, _ in seen)
+
+    class Stop(Exception):
+        pass
+
+    def stop(stage, msg):
+        raise Stop(stage)
+
+    with pytest.raises(Stop):
+        sw.retrieve(scan, **RETRIEVE_PY, progress=stop)
+    # Ctrl-C while the engine runs (GIL released): SIGINT from another thread once the engine
+    # has reported its first iteration; the next progress call raises KeyboardInterrupt.
+    started, finished = threading.Event(), threading.Event()
+
+    def ctrl_c():
+        if started.wait(60) and not finished.is_set():
+            os.kill(os.getpid(), signal.SIGINT)
+
+    killer = threading.Thread(target=ctrl_c)
+    killer.start()
+    try:
+        with pytest.raises(KeyboardInterrupt):
+            sw.retrieve(scan, **{**RETRIEVE_PY, "iterations": 3000}, progress=lambda s, m: started.set())
+    finally:
+        finished.set()
+        started.set()
+        killer.join()
