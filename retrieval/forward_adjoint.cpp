@@ -188,7 +188,7 @@ struct ForwardAdjoint::Workspace {
   std::vector<double> r1, i1;          // scratch for the unpaired middle node
   std::vector<double> gre, gim;        // nodes x n: gate d(p + A) exp(i phi)
   std::vector<double> pre, pim, ddip;  // nodes x n: exp(i phi), d'(p + A) (dipole != const)
-  CVec psi, raw, rawbar, psibar;
+  CVec psi, psi2, raw, rawbar, psibar;
   std::vector<cdouble> acc, row_a;
   std::vector<cdouble> row_bar;      // K x ne
   std::vector<double> gA, gI1, gI2;  // K x n adjoints of A, I1, I2 at s + tau
@@ -285,6 +285,22 @@ SW_HOT_LOOP void node_adjoint(const double* __restrict__ pb, const double* __res
   }
 }
 
+// Exit waves eps * exp(i phi) of a node pair (interleaved complex p1, p2), the gates formed as
+// in pair_phases and multiplied as in gate_times_envelope.
+SW_HOT_LOOP void pair_exit_waves(const double* __restrict__ a, const double* __restrict__ b,
+                                 const double* __restrict__ c, const double* __restrict__ d,
+                                 const double* __restrict__ er, const double* __restrict__ ei,
+                                 double* __restrict__ p1, double* __restrict__ p2, std::size_t n) {
+  for (std::size_t s = 0; s < n; ++s) {
+    const double r1 = a[s] * c[s] - b[s] * d[s], i1 = a[s] * d[s] + b[s] * c[s];
+    const double r2 = a[s] * c[s] + b[s] * d[s], i2 = b[s] * c[s] - a[s] * d[s];
+    p1[2 * s] = er[s] * r1 - ei[s] * i1;
+    p1[2 * s + 1] = er[s] * i1 + ei[s] * r1;
+    p2[2 * s] = er[s] * r2 - ei[s] * i2;
+    p2[2 * s + 1] = er[s] * i2 + ei[s] * r2;
+  }
+}
+
 // exp(i phi) of a node pair from exp(i phi_mid) (a, b) and exp(i delta phase) (c, d).
 SW_HOT_LOOP void pair_phases(const double* __restrict__ a, const double* __restrict__ b,
                  const double* __restrict__ c, const double* __restrict__ d,
@@ -375,6 +391,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       if (K > 0) W.ddip.resize(per_delay);
     }
     W.psi.resize(n);
+    W.psi2.resize(n);
     W.raw.resize(n);
     W.rawbar.resize(n);
     W.psibar.resize(n);
@@ -399,9 +416,10 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     // Gates of every node at delay i: exp(i phi) of Chebyshev node pairs mid +- delta as
     // exp(i phi_mid) exp(-+i delta u), one sine/cosine array per pair plus one per block,
     // written straight into the node slots; times d(p + A) for a non-constant dipole.
-    auto compute_gates = [&](long i, const Gates& G) {
+    // A, u = I1 - I1_mid and v = +-I2/2 at s + tau_i; returns bounds of |u| and |v|.
+    auto load_ir = [&](long i, double* umax, double* vmax) {
       const double tau = delay_[static_cast<std::size_t>(i)];
-      double umax = 0.0, vmax = 0.0;
+      double um = 0.0, vm = 0.0;
       for (std::size_t s = 0; s < n; ++s) {
         const VolkovIntegrals vi = ir.at(ts[s] + tau);
         W.A[s] = vi.A;
@@ -409,10 +427,17 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
         // Exact model: phase -p I1 - I2/2; the CMA variant uses the delay-adapted gate
         // -p0 I1 + I2/2 of retrieval/gate.h.
         W.v[s] = i2_sign * 0.5 * vi.I2;
-        umax = std::max(umax, std::abs(W.u[s]));
-        vmax = std::max(vmax, std::abs(W.v[s]));
+        um = std::max(um, std::abs(W.u[s]));
+        vm = std::max(vm, std::abs(W.v[s]));
       }
-      if (!std::isfinite(umax) || !std::isfinite(vmax)) umax = vmax = 1e300;  // NaN: libm path
+      if (!std::isfinite(um) || !std::isfinite(vm)) um = vm = 1e300;  // NaN: libm path
+      *umax = um;
+      *vmax = vm;
+    };
+
+    auto compute_gates = [&](long i, const Gates& G) {
+      double umax, vmax;
+      load_ir(i, &umax, &vmax);
       double* cre = const_dipole ? G.re : G.pre;  // exp(i phi) of each node
       double* cim = const_dipole ? G.im : G.pim;
       std::size_t q0 = 0;
@@ -446,6 +471,25 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       }
     };
 
+    // FFT of psi; its bins' share (Lagrange weight of node m) added to the block's energies.
+    auto transform_node = [&](const MomentumBlock& b, std::size_t m, CVec& psi) {
+      fft.time_to_freq(psi, W.raw);
+      for (std::size_t j = b.first; j < b.last; ++j) {
+        cdouble val = W.raw[ilo[j]] * clo[j];
+        const double f = map_.frac[j];
+        if (f != 0.0) val = (1.0 - f) * val + f * (W.raw[ihi[j]] * chi[j]);
+        W.acc[j] +=
+            b.lagrange(static_cast<Eigen::Index>(j - b.first), static_cast<Eigen::Index>(m)) * val;
+      }
+    };
+    auto finish_row = [&](long i) {
+      const double tau = delay_[static_cast<std::size_t>(i)];
+      for (std::size_t j = 0; j < ne; ++j) {
+        const double theta = (energy_[j] + ip_) * tau - pj[j] * i1_mid;
+        W.row_a[j] = cdouble(0, -1) * std::polar(1.0, theta) * W.acc[j];
+      }
+    };
+
     // psi = eps * gate; FFT; bins and Lagrange sums, node order m, nb - 1 - m, ... per block.
     auto forward_amplitudes = [&](long i, const Gates& G) {
       std::fill(W.acc.begin(), W.acc.end(), cdouble(0.0));
@@ -457,23 +501,37 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
           const std::size_t o = (q0 + m) * n;
           gate_times_envelope(er.data(), ei.data(), G.re + o, G.im + o,
                               reinterpret_cast<double*>(W.psi.data()), n);
-          fft.time_to_freq(W.psi, W.raw);
-          for (std::size_t j = b.first; j < b.last; ++j) {
-            cdouble val = W.raw[ilo[j]] * clo[j];
-            const double f = map_.frac[j];
-            if (f != 0.0) val = (1.0 - f) * val + f * (W.raw[ihi[j]] * chi[j]);
-            W.acc[j] += b.lagrange(static_cast<Eigen::Index>(j - b.first),
-                                   static_cast<Eigen::Index>(m)) *
-                        val;
-          }
+          transform_node(b, m, W.psi);
         }
         q0 += nb;
       }
-      const double tau = delay_[static_cast<std::size_t>(i)];
-      for (std::size_t j = 0; j < ne; ++j) {
-        const double theta = (energy_[j] + ip_) * tau - pj[j] * i1_mid;
-        W.row_a[j] = cdouble(0, -1) * std::polar(1.0, theta) * W.acc[j];
+      finish_row(i);
+    };
+
+    // The same for a constant dipole when the gates are not needed afterwards: each pair's
+    // two exit waves straight from exp(i phi_mid) and exp(-+i delta u), no gate arrays (the
+    // same products in the same order, so the same numbers).
+    auto forward_direct = [&](long i) {
+      double umax, vmax;
+      load_ir(i, &umax, &vmax);
+      std::fill(W.acc.begin(), W.acc.end(), cdouble(0.0));
+      for (const MomentumBlock& b : plan_.blocks) {
+        const std::size_t nb = b.nodes.size();
+        const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
+        sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax,
+                      W.emi.data(), W.emr.data(), n);
+        for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
+          const double delta = b.nodes[m] - mid;
+          sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
+                        W.cs.data(), n);
+          pair_exit_waves(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(),
+                          ei.data(), reinterpret_cast<double*>(W.psi.data()),
+                          reinterpret_cast<double*>(W.psi2.data()), n);
+          transform_node(b, m, W.psi);
+          if (nb - 1 - m != m) transform_node(b, nb - 1 - m, W.psi2);
+        }
       }
+      finish_row(i);
     };
 
     // Adjoint of delay i for the Ku rows of W.row_bar (adjoints of a), accumulated into this
@@ -559,8 +617,12 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
 
 #pragma omp for schedule(static)
     for (long i = 0; i < nd; ++i) {
-      compute_gates(i, gates);
-      forward_amplitudes(i, gates);
+      if (const_dipole && (K == 0 || two_pass)) {
+        forward_direct(i);
+      } else {
+        compute_gates(i, gates);
+        forward_amplitudes(i, gates);
+      }
       const auto ii = static_cast<Eigen::Index>(i);
       if (amp_out)
         for (std::size_t j = 0; j < ne; ++j)

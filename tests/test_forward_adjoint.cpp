@@ -89,6 +89,18 @@ TEST_CASE("forward values equal sw::ForwardModel (full and CMA)", "[adjoint]") {
       ForwardModel(S.ip, d, c).amplitude(XuvField(S.grid, S.carrier, eps), S.ir, S.D, S.W);
   fa.plan_central(c.central_momentum_au);
   CHECK(max_rel_diff(fa.amplitude(eps, S.ir), ref_c) < 1e-10);
+
+  // Constant dipole (the exit waves formed without gate arrays), full plan and CMA.
+  const DipoleModel one;
+  ForwardAdjoint fa1(S.ip, one, S.grid, S.carrier, S.D, S.W, 2);
+  fa1.plan_full(S.ir, o);
+  CHECK(max_rel_diff(fa1.amplitude(eps, S.ir),
+                     ForwardModel(S.ip, one, o).amplitude(XuvField(S.grid, S.carrier, eps), S.ir,
+                                                          S.D, S.W)) < 1e-10);
+  fa1.plan_central(c.central_momentum_au);
+  CHECK(max_rel_diff(fa1.amplitude(eps, S.ir),
+                     ForwardModel(S.ip, one, c).amplitude(XuvField(S.grid, S.carrier, eps), S.ir,
+                                                          S.D, S.W)) < 1e-10);
 }
 
 TEST_CASE("plan_covers detects an IR field the blocks were not sized for", "[adjoint]") {
