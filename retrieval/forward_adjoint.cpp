@@ -209,8 +209,8 @@ namespace {
 // < 1e-19); the result agrees with libm to ~2 ulp.
 // The argument is x_i = a u_i + b v_i, formed in the loop; `bound` >= max |x_i| (from the
 // callers' max |u| and |v|) replaces a pass over x to choose the libm fallback.
-SW_HOT_LOOP void sincos_affine(const double* __restrict__ u, const double* __restrict__ v,
-                               double a, double b, double bound, double* __restrict__ s,
+SW_HOT_LOOP void sincos_affine(const double* __restrict__ u, const double* __restrict__ v, double a,
+                               double b, double bound, double* __restrict__ s,
                                double* __restrict__ c, std::size_t n) {
   if (!(bound < 1e6)) {  // outside the exact range of the reduction (or not finite): libm
     for (std::size_t i = 0; i < n; ++i) {
@@ -258,8 +258,8 @@ SW_HOT_LOOP void sincos_affine(const double* __restrict__ u, const double* __res
 
 // psi = eps * gate (interleaved complex output).
 SW_HOT_LOOP void gate_times_envelope(const double* __restrict__ er, const double* __restrict__ ei,
-                         const double* __restrict__ gr, const double* __restrict__ gi,
-                         double* __restrict__ psi, std::size_t n) {
+                                     const double* __restrict__ gr, const double* __restrict__ gi,
+                                     double* __restrict__ psi, std::size_t n) {
   for (std::size_t k = 0; k < n; ++k) {
     psi[2 * k] = er[k] * gr[k] - ei[k] * gi[k];
     psi[2 * k + 1] = er[k] * gi[k] + ei[k] * gr[k];
@@ -269,10 +269,10 @@ SW_HOT_LOOP void gate_times_envelope(const double* __restrict__ er, const double
 // Adjoint of psi = eps * gate for one node: eps_bar += psi_bar conj(g);
 // Im(conj(psi_bar) psi) -> I1_bar += 2 p Im, I2_bar += Im.
 SW_HOT_LOOP void node_adjoint(const double* __restrict__ pb, const double* __restrict__ er,
-                  const double* __restrict__ ei, const double* __restrict__ gr,
-                  const double* __restrict__ gi, double two_p, double i2_sign,
-                  double* __restrict__ ebr, double* __restrict__ ebi, double* __restrict__ gI1,
-                  double* __restrict__ gI2, std::size_t n) {
+                              const double* __restrict__ ei, const double* __restrict__ gr,
+                              const double* __restrict__ gi, double two_p, double i2_sign,
+                              double* __restrict__ ebr, double* __restrict__ ebi,
+                              double* __restrict__ gI1, double* __restrict__ gI2, std::size_t n) {
   for (std::size_t s = 0; s < n; ++s) {
     const double br = pb[2 * s], bi = pb[2 * s + 1];
     ebr[s] += br * gr[s] + bi * gi[s];
@@ -303,9 +303,9 @@ SW_HOT_LOOP void pair_exit_waves(const double* __restrict__ a, const double* __r
 
 // exp(i phi) of a node pair from exp(i phi_mid) (a, b) and exp(i delta phase) (c, d).
 SW_HOT_LOOP void pair_phases(const double* __restrict__ a, const double* __restrict__ b,
-                 const double* __restrict__ c, const double* __restrict__ d,
-                 double* __restrict__ r1, double* __restrict__ i1, double* __restrict__ r2,
-                 double* __restrict__ i2, std::size_t n) {
+                             const double* __restrict__ c, const double* __restrict__ d,
+                             double* __restrict__ r1, double* __restrict__ i1,
+                             double* __restrict__ r2, double* __restrict__ i2, std::size_t n) {
   for (std::size_t s = 0; s < n; ++s) {
     r1[s] = a[s] * c[s] - b[s] * d[s];  // e_mid e_pair
     i1[s] = a[s] * d[s] + b[s] * c[s];
@@ -381,8 +381,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
 #pragma omp parallel num_threads(threads)
   {
     Workspace& W = ws[static_cast<std::size_t>(omp_get_thread_num())];
-    for (auto* b : {&W.A, &W.u, &W.v, &W.sn, &W.cs, &W.emr, &W.emi, &W.r1, &W.i1})
-      b->resize(n);
+    for (auto* b : {&W.A, &W.u, &W.v, &W.sn, &W.cs, &W.emr, &W.emi, &W.r1, &W.i1}) b->resize(n);
     W.gre.resize(per_delay);
     W.gim.resize(per_delay);
     if (!const_dipole) {
@@ -444,8 +443,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       for (const MomentumBlock& b : plan_.blocks) {
         const std::size_t nb = b.nodes.size();
         const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
-        sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax,
-                      W.emi.data(), W.emr.data(), n);
+        sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax, W.emi.data(),
+                      W.emr.data(), n);
         for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
           const double delta = b.nodes[m] - mid;
           sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
@@ -518,8 +517,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       for (const MomentumBlock& b : plan_.blocks) {
         const std::size_t nb = b.nodes.size();
         const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
-        sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax,
-                      W.emi.data(), W.emr.data(), n);
+        sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax, W.emi.data(),
+                      W.emr.data(), n);
         for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
           const double delta = b.nodes[m] - mid;
           sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
@@ -628,7 +627,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
         for (std::size_t j = 0; j < ne; ++j)
           (*amp_out)(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
       if (two_pass)
-        for (std::size_t j = 0; j < ne; ++j) amp_keep(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
+        for (std::size_t j = 0; j < ne; ++j)
+          amp_keep(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
       if (cost_mode) {
         for (std::size_t j = 0; j < ne; ++j) {
           const auto jj = static_cast<Eigen::Index>(j);

@@ -570,8 +570,7 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
       grad[2 * k + 1] = gx * bin_scale_[k] * sb[support_[k]].imag();
     }
     std::vector<double> Ab(irf.size());
-    for (std::size_t r = 0; r < Ab.size(); ++r)
-      Ab[r] = P.A_bar[r] * inv_elements_;
+    for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] = P.A_bar[r] * inv_elements_;
     if (lowpass_weight_ > 0) {
       std::vector<double> LLA;
       lowpass(LA, &LLA);  // L is symmetric: L^T = L (LA already masked)

@@ -28,8 +28,8 @@ std::string fmt(double x) {
 //   U = cg conj(eps) d (cg = beta_gate / max|eps|^2, eps before this update) on [lo, hi).
 // Returns max |E|^2 over [lo, hi) after the update (the next step's object normalisation).
 SW_HOT_LOOP double epie_update(const double* G, const double* B, const double* P, double* E,
-                               double* U, std::size_t n, std::size_t lo, std::size_t hi,
-                               double bo, double cg) {
+                               double* U, std::size_t n, std::size_t lo, std::size_t hi, double bo,
+                               double cg) {
   double max_e2 = 0.0;
   const double inv_n = 1.0 / static_cast<double>(n);
 #pragma omp simd
@@ -225,10 +225,10 @@ class PtychographicEngine final : public Engine {
   // Returns max |eps|^2 over [lo, hi) after the update.
   double update_object(const cdouble* gp, const CVec& psi, std::size_t lo, std::size_t hi,
                        double cg) {
-    return epie_update(reinterpret_cast<const double*>(gp), reinterpret_cast<const double*>(back_.data()),
-                reinterpret_cast<const double*>(psi.data()),
-                reinterpret_cast<double*>(eps_.data()), reinterpret_cast<double*>(du_.data()),
-                cma_->samples(), lo, hi, beta_o_, cg);
+    return epie_update(
+        reinterpret_cast<const double*>(gp), reinterpret_cast<const double*>(back_.data()),
+        reinterpret_cast<const double*>(psi.data()), reinterpret_cast<double*>(eps_.data()),
+        reinterpret_cast<double*>(du_.data()), cma_->samples(), lo, hi, beta_o_, cg);
   }
 
   std::optional<CmaProblem> cma_;

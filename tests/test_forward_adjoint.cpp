@@ -94,13 +94,17 @@ TEST_CASE("forward values equal sw::ForwardModel (full and CMA)", "[adjoint]") {
   const DipoleModel one;
   ForwardAdjoint fa1(S.ip, one, S.grid, S.carrier, S.D, S.W, 2);
   fa1.plan_full(S.ir, o);
-  CHECK(max_rel_diff(fa1.amplitude(eps, S.ir),
-                     ForwardModel(S.ip, one, o).amplitude(XuvField(S.grid, S.carrier, eps), S.ir,
-                                                          S.D, S.W)) < 1e-10);
+  CHECK(
+      max_rel_diff(
+          fa1.amplitude(eps, S.ir),
+          ForwardModel(S.ip, one, o).amplitude(XuvField(S.grid, S.carrier, eps), S.ir, S.D, S.W)) <
+      1e-10);
   fa1.plan_central(c.central_momentum_au);
-  CHECK(max_rel_diff(fa1.amplitude(eps, S.ir),
-                     ForwardModel(S.ip, one, c).amplitude(XuvField(S.grid, S.carrier, eps), S.ir,
-                                                          S.D, S.W)) < 1e-10);
+  CHECK(
+      max_rel_diff(
+          fa1.amplitude(eps, S.ir),
+          ForwardModel(S.ip, one, c).amplitude(XuvField(S.grid, S.carrier, eps), S.ir, S.D, S.W)) <
+      1e-10);
 }
 
 TEST_CASE("plan_covers detects an IR field the blocks were not sized for", "[adjoint]") {
@@ -277,8 +281,8 @@ TEST_CASE("projected_cost: combined gradient with an extra term matches central 
     ScaledCostParts tmp;
     const Eigen::MatrixXd w0 = Eigen::MatrixXd::Ones(static_cast<Eigen::Index>(S.D.size()),
                                                      static_cast<Eigen::Index>(S.W.size()));
-    fa.scaled_cost(test_envelope(S.grid, 9), IrField(S.ir.t0(), S.ir.dt(), A2), w0, w0, false,
-                   &tmp, &M);
+    fa.scaled_cost(test_envelope(S.grid, 9), IrField(S.ir.t0(), S.ir.dt(), A2), w0, w0, false, &tmp,
+                   &M);
     const Eigen::MatrixXd w = (M.array() + 0.05 * M.maxCoeff()).inverse().matrix();
     // Extra term of the size of the data part's, so that it moves mu* visibly.
     fa.scaled_cost(eps, S.ir, M, w, false, &tmp);
