@@ -188,7 +188,7 @@ struct ForwardAdjoint::Workspace {
   std::vector<double> r1, i1;          // scratch for the unpaired middle node
   std::vector<double> gre, gim;        // nodes x n: gate d(p + A) exp(i phi)
   std::vector<double> pre, pim, ddip;  // nodes x n: exp(i phi), d'(p + A) (dipole != const)
-  CVec psi, psi2, raw, rawbar, psibar;
+  CVec psi, psi2, raw, rawbar, psibar, psibar2;
   std::vector<cdouble> acc, row_a;
   std::vector<cdouble> row_bar;      // K x ne
   std::vector<double> gA, gI1, gI2;  // K x n adjoints of A, I1, I2 at s + tau
@@ -301,6 +301,29 @@ SW_HOT_LOOP void pair_exit_waves(const double* __restrict__ a, const double* __r
   }
 }
 
+// node_adjoint for both nodes of a pair at once (psi_bar p1, p2; momenta 2p in tp1, tp2), the
+// gates formed on the fly as in pair_phases.
+SW_HOT_LOOP void pair_adjoint(const double* __restrict__ a, const double* __restrict__ b,
+                              const double* __restrict__ c, const double* __restrict__ d,
+                              const double* __restrict__ er, const double* __restrict__ ei,
+                              const double* __restrict__ p1, const double* __restrict__ p2,
+                              double tp1, double tp2, double i2_sign, double* __restrict__ ebr,
+                              double* __restrict__ ebi, double* __restrict__ gI1,
+                              double* __restrict__ gI2, std::size_t n) {
+  for (std::size_t s = 0; s < n; ++s) {
+    const double r1 = a[s] * c[s] - b[s] * d[s], i1 = a[s] * d[s] + b[s] * c[s];
+    const double r2 = a[s] * c[s] + b[s] * d[s], i2 = b[s] * c[s] - a[s] * d[s];
+    const double b1r = p1[2 * s], b1i = p1[2 * s + 1], b2r = p2[2 * s], b2i = p2[2 * s + 1];
+    ebr[s] += (b1r * r1 + b1i * i1) + (b2r * r2 + b2i * i2);
+    ebi[s] += (b1i * r1 - b1r * i1) + (b2i * r2 - b2r * i2);
+    const double s1r = er[s] * r1 - ei[s] * i1, s1i = er[s] * i1 + ei[s] * r1;
+    const double s2r = er[s] * r2 - ei[s] * i2, s2i = er[s] * i2 + ei[s] * r2;
+    const double im1 = b1r * s1i - b1i * s1r, im2 = b2r * s2i - b2i * s2r;
+    gI1[s] += tp1 * im1 + tp2 * im2;
+    gI2[s] += i2_sign * (im1 + im2);
+  }
+}
+
 // exp(i phi) of a node pair from exp(i phi_mid) (a, b) and exp(i delta phase) (c, d).
 SW_HOT_LOOP void pair_phases(const double* __restrict__ a, const double* __restrict__ b,
                              const double* __restrict__ c, const double* __restrict__ d,
@@ -382,8 +405,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
   {
     Workspace& W = ws[static_cast<std::size_t>(omp_get_thread_num())];
     for (auto* b : {&W.A, &W.u, &W.v, &W.sn, &W.cs, &W.emr, &W.emi, &W.r1, &W.i1}) b->resize(n);
-    W.gre.resize(per_delay);
-    W.gim.resize(per_delay);
+    W.gre.resize(const_dipole ? n : per_delay);  // constant dipole: scratch only
+    W.gim.resize(const_dipole ? n : per_delay);
     if (!const_dipole) {
       W.pre.resize(per_delay);
       W.pim.resize(per_delay);
@@ -394,6 +417,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     W.raw.resize(n);
     W.rawbar.resize(n);
     W.psibar.resize(n);
+    W.psibar2.resize(n);
     W.acc.resize(ne);
     W.row_a.resize(ne);
     W.row_bar.resize(Ku * ne);
@@ -507,7 +531,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       finish_row(i);
     };
 
-    // The same for a constant dipole when the gates are not needed afterwards: each pair's
+    // The same for a constant dipole (no gate arrays: the adjoint forms them again): each pair's
     // two exit waves straight from exp(i phi_mid) and exp(-+i delta u), no gate arrays (the
     // same products in the same order, so the same numbers).
     auto forward_direct = [&](long i) {
@@ -535,7 +559,28 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
 
     // Adjoint of delay i for the Ku rows of W.row_bar (adjoints of a), accumulated into this
     // thread's totals.
-    auto adjoint = [&](long i, const Gates& G) {
+    // psi_bar of node m of block b for the acc adjoints accbar: bins, then the inverse FFT.
+    auto node_psibar = [&](const MomentumBlock& b, std::size_t m, const cdouble* accbar,
+                           CVec& out) {
+      std::fill(W.rawbar.begin(), W.rawbar.end(), cdouble(0.0));
+      for (std::size_t j = b.first; j < b.last; ++j) {
+        const cdouble val =
+            b.lagrange(static_cast<Eigen::Index>(j - b.first), static_cast<Eigen::Index>(m)) *
+            accbar[j];
+        const double f = map_.frac[j];
+        if (f == 0.0) {
+          W.rawbar[ilo[j]] += std::conj(clo[j]) * val;
+        } else {
+          W.rawbar[ilo[j]] += (1.0 - f) * std::conj(clo[j]) * val;
+          W.rawbar[ihi[j]] += f * std::conj(chi[j]) * val;
+        }
+      }
+      fft.freq_to_time(W.rawbar, out);
+    };
+
+    // Adjoint of delay i. With gate arrays G (from compute_gates), or, when `direct` (constant
+    // dipole), with each pair's gates formed on the fly from the phase factors (load_ir first).
+    auto adjoint = [&](long i, const Gates& G, bool direct) {
       const double tau = delay_[static_cast<std::size_t>(i)];
       // a = -i e^{i theta} acc  ->  acc_bar = i e^{-i theta} a_bar.
       for (std::size_t j = 0; j < ne; ++j) {
@@ -546,28 +591,50 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       std::fill(W.gA.begin(), W.gA.end(), 0.0);
       std::fill(W.gI1.begin(), W.gI1.end(), 0.0);
       std::fill(W.gI2.begin(), W.gI2.end(), 0.0);
+      if (direct) {
+        double umax, vmax;
+        load_ir(i, &umax, &vmax);
+        for (const MomentumBlock& b : plan_.blocks) {
+          const std::size_t nb = b.nodes.size();
+          const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
+          sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax,
+                        W.emi.data(), W.emr.data(), n);
+          for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
+            const double delta = b.nodes[m] - mid;
+            sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax,
+                          W.sn.data(), W.cs.data(), n);
+            const std::size_t m2 = nb - 1 - m;
+            if (m2 == m)  // the unpaired middle node: its gate into scratch
+              pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), W.r1.data(),
+                          W.i1.data(), W.gre.data(), W.gim.data(), n);
+            for (std::size_t k = 0; k < Ku; ++k) {
+              const cdouble* accbar = &W.row_bar[k * ne];
+              node_psibar(b, m, accbar, W.psibar);
+              const double* pb = reinterpret_cast<const double*>(W.psibar.data());
+              if (m2 == m) {
+                node_adjoint(pb, er.data(), ei.data(), W.r1.data(), W.i1.data(), 2.0 * b.nodes[m],
+                             i2_sign, &W.ebr[k * n], &W.ebi[k * n], &W.gI1[k * n],
+                             &W.gI2[k * n], n);
+              } else {
+                node_psibar(b, m2, accbar, W.psibar2);
+                pair_adjoint(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(),
+                             ei.data(), pb, reinterpret_cast<const double*>(W.psibar2.data()),
+                             2.0 * b.nodes[m], 2.0 * b.nodes[m2], i2_sign, &W.ebr[k * n],
+                             &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n], n);
+              }
+            }
+          }
+        }
+      }
       std::size_t q = 0;
       for (const MomentumBlock& b : plan_.blocks) {
+        if (direct) break;
         for (std::size_t m = 0; m < b.nodes.size(); ++m, ++q) {
           const double p = b.nodes[m];
           const double* gr = G.re + q * n;
           const double* gi = G.im + q * n;
           for (std::size_t k = 0; k < Ku; ++k) {
-            const cdouble* accbar = &W.row_bar[k * ne];
-            std::fill(W.rawbar.begin(), W.rawbar.end(), cdouble(0.0));
-            for (std::size_t j = b.first; j < b.last; ++j) {
-              const cdouble val =
-                  b.lagrange(static_cast<Eigen::Index>(j - b.first), static_cast<Eigen::Index>(m)) *
-                  accbar[j];
-              const double f = map_.frac[j];
-              if (f == 0.0) {
-                W.rawbar[ilo[j]] += std::conj(clo[j]) * val;
-              } else {
-                W.rawbar[ilo[j]] += (1.0 - f) * std::conj(clo[j]) * val;
-                W.rawbar[ihi[j]] += f * std::conj(chi[j]) * val;
-              }
-            }
-            fft.freq_to_time(W.rawbar, W.psibar);
+            node_psibar(b, m, &W.row_bar[k * ne], W.psibar);
             const double* pb = reinterpret_cast<const double*>(W.psibar.data());
             node_adjoint(pb, er.data(), ei.data(), gr, gi, 2.0 * p, i2_sign, &W.ebr[k * n],
                          &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n], n);
@@ -616,7 +683,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
 
 #pragma omp for schedule(static)
     for (long i = 0; i < nd; ++i) {
-      if (const_dipole && (K == 0 || two_pass)) {
+      if (const_dipole) {
         forward_direct(i);
       } else {
         compute_gates(i, gates);
@@ -647,7 +714,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
           W.row_bar[j] = (*a_bar)(ii, static_cast<Eigen::Index>(j));
       }
       if (K == 0 || two_pass) continue;
-      adjoint(i, gates);
+      adjoint(i, gates, const_dipole);
     }
 
     if (two_pass) {
@@ -664,7 +731,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       // Adjoint of mu^2 c2 + mu c1 at fixed mu: a_bar = mu^2 2 w |a|^2 a - mu 2 w M a.
 #pragma omp for schedule(static)
       for (long i = 0; i < nd; ++i) {
-        compute_gates(i, gates);
+        if (!const_dipole) compute_gates(i, gates);
         const auto ii = static_cast<Eigen::Index>(i);
         for (std::size_t j = 0; j < ne; ++j) {
           const auto jj = static_cast<Eigen::Index>(j);
@@ -672,7 +739,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
           const double wij = (*w)(ii, jj);
           W.row_bar[j] = (mu * mu * 2.0 * wij * std::norm(a) - mu * 2.0 * wij * (*M)(ii, jj)) * a;
         }
-        adjoint(i, gates);
+        adjoint(i, gates, const_dipole);
       }
     }
   }

@@ -261,15 +261,19 @@ TEST_CASE("projected_cost: combined gradient with an extra term matches central 
   // term e2 mu^2 + e1 mu (as the engine's spectrum term): C = c0 + mu*(c1 + e1) + mu*^2 (c2 + e2)
   // at mu* = -(c1 + e1) / (2 (c2 + e2)); its gradient at fixed mu* must match central
   // differences (common practice; Nocedal and Wright, Numerical Optimization (2006), Sec. 8.1).
-  // Full model with a hydrogenic dipole (2 threads) and the CMA plan with a constant dipole.
+  // Full model with a hydrogenic dipole (gate arrays; 2 threads), with a constant dipole and an
+  // odd node count (gates formed on the fly, paired and unpaired nodes), and the CMA plan.
   Small S;
-  for (const bool full : {true, false}) {
-    INFO((full ? "full model" : "CMA"));
-    const DipoleModel d = full ? DipoleModel(DipoleKind::kHydrogenic, S.ip, 2.9) : DipoleModel();
+  for (const int config : {0, 1, 2}) {
+    INFO("configuration " << config);
+    const bool full = config < 2;
+    const DipoleModel d =
+        config == 0 ? DipoleModel(DipoleKind::kHydrogenic, S.ip, 2.9) : DipoleModel();
     ForwardAdjoint fa(S.ip, d, S.grid, S.carrier, S.D, S.W, full ? 2 : 1);
     if (full) {
       ForwardModelOptions o;
       o.momentum = MomentumModel::kFull;
+      if (config == 1) o.chebyshev_nodes = 5;
       fa.plan_full(S.ir, o);
     } else {
       fa.plan_central(std::sqrt(2.0 * S.W[S.W.size() / 2]));
