@@ -601,8 +601,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
                         W.emi.data(), W.emr.data(), n);
           for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
             const double delta = b.nodes[m] - mid;
-            sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax,
-                          W.sn.data(), W.cs.data(), n);
+            sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
+                          W.cs.data(), n);
             const std::size_t m2 = nb - 1 - m;
             if (m2 == m)  // the unpaired middle node: its gate into scratch
               pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), W.r1.data(),
@@ -613,8 +613,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
               const double* pb = reinterpret_cast<const double*>(W.psibar.data());
               if (m2 == m) {
                 node_adjoint(pb, er.data(), ei.data(), W.r1.data(), W.i1.data(), 2.0 * b.nodes[m],
-                             i2_sign, &W.ebr[k * n], &W.ebi[k * n], &W.gI1[k * n],
-                             &W.gI2[k * n], n);
+                             i2_sign, &W.ebr[k * n], &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n],
+                             n);
               } else {
                 node_psibar(b, m2, accbar, W.psibar2);
                 pair_adjoint(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(),
