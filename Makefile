@@ -57,7 +57,7 @@ demo-batch: build
 bench: deps
 	cmake -S . -B $(BUILD) -DCMAKE_BUILD_TYPE=Release -DSTREAKWRIGHT_BUILD_BENCHMARKS=ON
 	cmake --build $(BUILD) -j$(JOBS)
-	for b in $(BUILD)/tests/bench/bench_*; do [ -x $$b ] && $$b; done
+	tests/bench/run_bench.sh $(BUILD)
 
 # `make test` already runs the readers' fuzz target for a bounded time (ctest entry
 # fuzz_readers: a seeded mutation loop, no extra packages). This target builds the same target

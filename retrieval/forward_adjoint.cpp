@@ -6,6 +6,7 @@
 
 #include <omp.h>
 
+#include "retrieval/hot_loop.h"
 #include "retrieval/units.h"
 
 namespace sw {
@@ -141,7 +142,7 @@ bool ForwardAdjoint::plan_covers(const IrField& ir, double slack) const {
 Eigen::MatrixXcd ForwardAdjoint::amplitude(const CVec& eps, const IrField& ir) const {
   Eigen::MatrixXcd out;
   run(Mode::kAmplitude, eps, ir, nullptr, nullptr, nullptr, false, &out, nullptr, nullptr, nullptr,
-      nullptr);
+      nullptr, 0.0, 0.0, nullptr);
   return out;
 }
 
@@ -151,7 +152,7 @@ void ForwardAdjoint::vjp(const CVec& eps, const IrField& ir, const Eigen::Matrix
       a_bar.cols() != static_cast<Eigen::Index>(energy_.size()))
     throw std::invalid_argument("ForwardAdjoint::vjp: a_bar is not delays x energies");
   run(Mode::kVjp, eps, ir, &a_bar, nullptr, nullptr, true, nullptr, nullptr, nullptr, eps_bar,
-      A_bar);
+      A_bar, 0.0, 0.0, nullptr);
 }
 
 void ForwardAdjoint::scaled_cost(const CVec& eps, const IrField& ir, const Eigen::MatrixXd& M,
@@ -163,18 +164,31 @@ void ForwardAdjoint::scaled_cost(const CVec& eps, const IrField& ir, const Eigen
     throw std::invalid_argument(
         "ForwardAdjoint::scaled_cost: measured/weight not delays x energies");
   run(Mode::kScaledCost, eps, ir, nullptr, &M, &w, with_gradient, nullptr, model, out, nullptr,
-      nullptr);
+      nullptr, 0.0, 0.0, nullptr);
+}
+
+void ForwardAdjoint::projected_cost(const CVec& eps, const IrField& ir, const Eigen::MatrixXd& M,
+                                    const Eigen::MatrixXd& w, double extra_c2, double extra_c1,
+                                    bool with_gradient, ProjectedCostParts* out,
+                                    Eigen::MatrixXd* model) const {
+  const auto nd = static_cast<Eigen::Index>(delay_.size());
+  const auto ne = static_cast<Eigen::Index>(energy_.size());
+  if (M.rows() != nd || M.cols() != ne || w.rows() != nd || w.cols() != ne)
+    throw std::invalid_argument(
+        "ForwardAdjoint::projected_cost: measured/weight not delays x energies");
+  run(Mode::kProjected, eps, ir, nullptr, &M, &w, with_gradient, nullptr, model, nullptr, nullptr,
+      nullptr, extra_c2, extra_c1, out);
 }
 
 // Per-thread buffers and accumulators (structure-of-arrays so the inner loops vectorise).
 struct ForwardAdjoint::Workspace {
   std::vector<double> A, u, v;         // A, I1 - I1_mid, I2/2 at s + tau
-  std::vector<double> ph, sn, cs;      // phases and their sines/cosines
+  std::vector<double> sn, cs;          // sines/cosines of a pair's phase offset
   std::vector<double> emr, emi;        // exp(i phi) of the block's mid momentum
-  std::vector<double> r1, i1, r2, i2;  // exp(i phi) of a node pair
+  std::vector<double> r1, i1;          // scratch for the unpaired middle node
   std::vector<double> gre, gim;        // nodes x n: gate d(p + A) exp(i phi)
   std::vector<double> pre, pim, ddip;  // nodes x n: exp(i phi), d'(p + A) (dipole != const)
-  CVec psi, raw, rawbar, psibar;
+  CVec psi, psi2, raw, rawbar, psibar, psibar2;
   std::vector<cdouble> acc, row_a;
   std::vector<cdouble> row_bar;      // K x ne
   std::vector<double> gA, gI1, gI2;  // K x n adjoints of A, I1, I2 at s + tau
@@ -186,17 +200,23 @@ struct ForwardAdjoint::Workspace {
 
 namespace {
 
+// The element-wise kernels below are compiled for the baseline and for x86-64-v3 (SW_HOT_LOOP,
+// retrieval/hot_loop.h); only FMA rounding differs between the clones.
+
 // sin and cos of x[i], branch-free so that the loop vectorises (libm beyond |x| = 1e6):
 // Cody-Waite reduction by pi/2 with the three-part split of fdlibm's __ieee754_rem_pio2
 // (pio2_1, pio2_2, pio2_2t) and Taylor polynomials on [-pi/4, pi/4] to order 17 (truncation
 // < 1e-19); the result agrees with libm to ~2 ulp.
-void sincos_array(const double* x, double* s, double* c, std::size_t n) {
-  double xmax = 0;
-  for (std::size_t i = 0; i < n; ++i) xmax = std::max(xmax, std::abs(x[i]));
-  if (!(xmax < 1e6)) {  // outside the exact range of the reduction (or not finite): libm
+// The argument is x_i = a u_i + b v_i, formed in the loop; `bound` >= max |x_i| (from the
+// callers' max |u| and |v|) replaces a pass over x to choose the libm fallback.
+SW_HOT_LOOP void sincos_affine(const double* __restrict__ u, const double* __restrict__ v, double a,
+                               double b, double bound, double* __restrict__ s,
+                               double* __restrict__ c, std::size_t n) {
+  if (!(bound < 1e6)) {  // outside the exact range of the reduction (or not finite): libm
     for (std::size_t i = 0; i < n; ++i) {
-      s[i] = std::sin(x[i]);
-      c[i] = std::cos(x[i]);
+      const double x = a * u[i] + b * v[i];
+      s[i] = std::sin(x);
+      c[i] = std::cos(x);
     }
     return;
   }
@@ -205,8 +225,9 @@ void sincos_array(const double* x, double* s, double* c, std::size_t n) {
   constexpr double kP1 = 1.57079632673412561417e+00, kP2 = 6.07710050630396597660e-11,
                    kP3 = 2.02226624879595063154e-21;
   for (std::size_t i = 0; i < n; ++i) {
-    const double kd = (x[i] * kTwoOverPi + kRound) - kRound;
-    const double r = ((x[i] - kd * kP1) - kd * kP2) - kd * kP3;
+    const double x = a * u[i] + b * v[i];
+    const double kd = (x * kTwoOverPi + kRound) - kRound;
+    const double r = ((x - kd * kP1) - kd * kP2) - kd * kP3;
     const double r2 = r * r;
     double sp = 2.8114572543455207632e-15;
     sp = sp * r2 - 7.6471637318198164759e-13;
@@ -236,9 +257,9 @@ void sincos_array(const double* x, double* s, double* c, std::size_t n) {
 }
 
 // psi = eps * gate (interleaved complex output).
-void gate_times_envelope(const double* __restrict__ er, const double* __restrict__ ei,
-                         const double* __restrict__ gr, const double* __restrict__ gi,
-                         double* __restrict__ psi, std::size_t n) {
+SW_HOT_LOOP void gate_times_envelope(const double* __restrict__ er, const double* __restrict__ ei,
+                                     const double* __restrict__ gr, const double* __restrict__ gi,
+                                     double* __restrict__ psi, std::size_t n) {
   for (std::size_t k = 0; k < n; ++k) {
     psi[2 * k] = er[k] * gr[k] - ei[k] * gi[k];
     psi[2 * k + 1] = er[k] * gi[k] + ei[k] * gr[k];
@@ -247,11 +268,11 @@ void gate_times_envelope(const double* __restrict__ er, const double* __restrict
 
 // Adjoint of psi = eps * gate for one node: eps_bar += psi_bar conj(g);
 // Im(conj(psi_bar) psi) -> I1_bar += 2 p Im, I2_bar += Im.
-void node_adjoint(const double* __restrict__ pb, const double* __restrict__ er,
-                  const double* __restrict__ ei, const double* __restrict__ gr,
-                  const double* __restrict__ gi, double two_p, double i2_sign,
-                  double* __restrict__ ebr, double* __restrict__ ebi, double* __restrict__ gI1,
-                  double* __restrict__ gI2, std::size_t n) {
+SW_HOT_LOOP void node_adjoint(const double* __restrict__ pb, const double* __restrict__ er,
+                              const double* __restrict__ ei, const double* __restrict__ gr,
+                              const double* __restrict__ gi, double two_p, double i2_sign,
+                              double* __restrict__ ebr, double* __restrict__ ebi,
+                              double* __restrict__ gI1, double* __restrict__ gI2, std::size_t n) {
   for (std::size_t s = 0; s < n; ++s) {
     const double br = pb[2 * s], bi = pb[2 * s + 1];
     ebr[s] += br * gr[s] + bi * gi[s];
@@ -264,11 +285,50 @@ void node_adjoint(const double* __restrict__ pb, const double* __restrict__ er,
   }
 }
 
+// Exit waves eps * exp(i phi) of a node pair (interleaved complex p1, p2), the gates formed as
+// in pair_phases and multiplied as in gate_times_envelope.
+SW_HOT_LOOP void pair_exit_waves(const double* __restrict__ a, const double* __restrict__ b,
+                                 const double* __restrict__ c, const double* __restrict__ d,
+                                 const double* __restrict__ er, const double* __restrict__ ei,
+                                 double* __restrict__ p1, double* __restrict__ p2, std::size_t n) {
+  for (std::size_t s = 0; s < n; ++s) {
+    const double r1 = a[s] * c[s] - b[s] * d[s], i1 = a[s] * d[s] + b[s] * c[s];
+    const double r2 = a[s] * c[s] + b[s] * d[s], i2 = b[s] * c[s] - a[s] * d[s];
+    p1[2 * s] = er[s] * r1 - ei[s] * i1;
+    p1[2 * s + 1] = er[s] * i1 + ei[s] * r1;
+    p2[2 * s] = er[s] * r2 - ei[s] * i2;
+    p2[2 * s + 1] = er[s] * i2 + ei[s] * r2;
+  }
+}
+
+// node_adjoint for both nodes of a pair at once (psi_bar p1, p2; momenta 2p in tp1, tp2), the
+// gates formed on the fly as in pair_phases.
+SW_HOT_LOOP void pair_adjoint(const double* __restrict__ a, const double* __restrict__ b,
+                              const double* __restrict__ c, const double* __restrict__ d,
+                              const double* __restrict__ er, const double* __restrict__ ei,
+                              const double* __restrict__ p1, const double* __restrict__ p2,
+                              double tp1, double tp2, double i2_sign, double* __restrict__ ebr,
+                              double* __restrict__ ebi, double* __restrict__ gI1,
+                              double* __restrict__ gI2, std::size_t n) {
+  for (std::size_t s = 0; s < n; ++s) {
+    const double r1 = a[s] * c[s] - b[s] * d[s], i1 = a[s] * d[s] + b[s] * c[s];
+    const double r2 = a[s] * c[s] + b[s] * d[s], i2 = b[s] * c[s] - a[s] * d[s];
+    const double b1r = p1[2 * s], b1i = p1[2 * s + 1], b2r = p2[2 * s], b2i = p2[2 * s + 1];
+    ebr[s] += (b1r * r1 + b1i * i1) + (b2r * r2 + b2i * i2);
+    ebi[s] += (b1i * r1 - b1r * i1) + (b2i * r2 - b2r * i2);
+    const double s1r = er[s] * r1 - ei[s] * i1, s1i = er[s] * i1 + ei[s] * r1;
+    const double s2r = er[s] * r2 - ei[s] * i2, s2i = er[s] * i2 + ei[s] * r2;
+    const double im1 = b1r * s1i - b1i * s1r, im2 = b2r * s2i - b2i * s2r;
+    gI1[s] += tp1 * im1 + tp2 * im2;
+    gI2[s] += i2_sign * (im1 + im2);
+  }
+}
+
 // exp(i phi) of a node pair from exp(i phi_mid) (a, b) and exp(i delta phase) (c, d).
-void pair_phases(const double* __restrict__ a, const double* __restrict__ b,
-                 const double* __restrict__ c, const double* __restrict__ d,
-                 double* __restrict__ r1, double* __restrict__ i1, double* __restrict__ r2,
-                 double* __restrict__ i2, std::size_t n) {
+SW_HOT_LOOP void pair_phases(const double* __restrict__ a, const double* __restrict__ b,
+                             const double* __restrict__ c, const double* __restrict__ d,
+                             double* __restrict__ r1, double* __restrict__ i1,
+                             double* __restrict__ r2, double* __restrict__ i2, std::size_t n) {
   for (std::size_t s = 0; s < n; ++s) {
     r1[s] = a[s] * c[s] - b[s] * d[s];  // e_mid e_pair
     i1[s] = a[s] * d[s] + b[s] * c[s];
@@ -283,16 +343,23 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
                          const Eigen::MatrixXcd* a_bar, const Eigen::MatrixXd* M,
                          const Eigen::MatrixXd* w, bool with_gradient, Eigen::MatrixXcd* amp_out,
                          Eigen::MatrixXd* model_out, ScaledCostParts* parts, CVec* eps_bar_out,
-                         std::vector<double>* A_bar_out) const {
+                         std::vector<double>* A_bar_out, double extra_c2, double extra_c1,
+                         ProjectedCostParts* projected) const {
   if (!planned_)
     throw std::logic_error("ForwardAdjoint: no momentum plan (call plan_full/central)");
   const std::size_t n = grid_.size();
   if (eps_in.size() != n) throw std::invalid_argument("ForwardAdjoint: envelope size != grid size");
   const std::size_t ne = energy_.size(), nir = ir.size();
   const auto nd = static_cast<long>(delay_.size());
-  const int K = mode == Mode::kAmplitude ? 0 : mode == Mode::kVjp ? 1 : (with_gradient ? 2 : 0);
+  const bool two_pass = mode == Mode::kProjected && with_gradient;
+  // Adjoint passes per delay: vjp 1, scaled cost 2 (c2 and c1 apart), projected 1 (combined).
+  const int K = mode == Mode::kAmplitude    ? 0
+                : mode == Mode::kVjp        ? 1
+                : mode == Mode::kScaledCost ? (with_gradient ? 2 : 0)
+                                            : (with_gradient ? 1 : 0);
   const auto Ku = static_cast<std::size_t>(K);
   const bool const_dipole = dipole_.kind() == DipoleKind::kConstant;
+  const bool cost_mode = mode == Mode::kScaledCost || mode == Mode::kProjected;
 
   // Envelope about the shifted carrier (ForwardModel's with_carrier), split into re/im.
   std::vector<double> er(n), ei(n);
@@ -325,26 +392,32 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
   if (amp_out) amp_out->resize(nd, static_cast<Eigen::Index>(ne));
   if (model_out) model_out->resize(nd, static_cast<Eigen::Index>(ne));
 
+  // Two-pass projected cost: the forward pass keeps every delay's amplitudes.
+  const std::size_t per_delay = total_nodes * n;  // doubles per gate array
+  Eigen::MatrixXcd amp_keep;
+  if (two_pass) amp_keep.resize(nd, static_cast<Eigen::Index>(ne));
+  double mu = 0.0;
+
   const int threads = threads_ > 0 ? threads_ : omp_get_max_threads();
   std::vector<Workspace> ws(static_cast<std::size_t>(std::max(threads, 1)));
 
 #pragma omp parallel num_threads(threads)
   {
     Workspace& W = ws[static_cast<std::size_t>(omp_get_thread_num())];
-    for (auto* b :
-         {&W.A, &W.u, &W.v, &W.ph, &W.sn, &W.cs, &W.emr, &W.emi, &W.r1, &W.i1, &W.r2, &W.i2})
-      b->resize(n);
-    W.gre.resize(total_nodes * n);
-    W.gim.resize(total_nodes * n);
-    if (!const_dipole && K > 0) {
-      W.pre.resize(total_nodes * n);
-      W.pim.resize(total_nodes * n);
-      W.ddip.resize(total_nodes * n);
+    for (auto* b : {&W.A, &W.u, &W.v, &W.sn, &W.cs, &W.emr, &W.emi, &W.r1, &W.i1}) b->resize(n);
+    W.gre.resize(const_dipole ? n : per_delay);  // constant dipole: scratch only
+    W.gim.resize(const_dipole ? n : per_delay);
+    if (!const_dipole) {
+      W.pre.resize(per_delay);
+      W.pim.resize(per_delay);
+      if (K > 0) W.ddip.resize(per_delay);
     }
     W.psi.resize(n);
+    W.psi2.resize(n);
     W.raw.resize(n);
     W.rawbar.resize(n);
     W.psibar.resize(n);
+    W.psibar2.resize(n);
     W.acc.resize(ne);
     W.row_a.resize(ne);
     W.row_bar.resize(Ku * ne);
@@ -358,31 +431,72 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     W.bI1.assign(Ku * nir, 0.0);
     W.bI2.assign(Ku * nir, 0.0);
 
-    // Gate of node q with momentum p from exp(i phi) = (c, s); psi = eps * gate; FFT; Lagrange.
-    auto forward_node = [&](const MomentumBlock& b, std::size_t m, std::size_t q, const double* c,
-                            const double* s) {
-      const double p = b.nodes[m];
-      double* gr = &W.gre[q * n];
-      double* gi = &W.gim[q * n];
-      if (const_dipole) {
-        for (std::size_t k = 0; k < n; ++k) {
-          gr[k] = c[k];
-          gi[k] = s[k];
-        }
-      } else {
-        for (std::size_t k = 0; k < n; ++k) {
-          const double d = dipole_(p + W.A[k]);
-          gr[k] = d * c[k];
-          gi[k] = d * s[k];
-          if (!W.pre.empty()) {
-            W.pre[q * n + k] = c[k];
-            W.pim[q * n + k] = s[k];
-            W.ddip[q * n + k] = dipole_.derivative(p + W.A[k]);
-          }
-        }
+    struct Gates {
+      double *re, *im, *pre, *pim, *ddip;
+    };
+    const Gates gates{W.gre.data(), W.gim.data(), W.pre.data(), W.pim.data(), W.ddip.data()};
+
+    // Gates of every node at delay i: exp(i phi) of Chebyshev node pairs mid +- delta as
+    // exp(i phi_mid) exp(-+i delta u), one sine/cosine array per pair plus one per block,
+    // written straight into the node slots; times d(p + A) for a non-constant dipole.
+    // A, u = I1 - I1_mid and v = +-I2/2 at s + tau_i; returns bounds of |u| and |v|.
+    auto load_ir = [&](long i, double* umax, double* vmax) {
+      const double tau = delay_[static_cast<std::size_t>(i)];
+      double um = 0.0, vm = 0.0;
+      for (std::size_t s = 0; s < n; ++s) {
+        const VolkovIntegrals vi = ir.at(ts[s] + tau);
+        W.A[s] = vi.A;
+        W.u[s] = vi.I1 - i1_mid;
+        // Exact model: phase -p I1 - I2/2; the CMA variant uses the delay-adapted gate
+        // -p0 I1 + I2/2 of retrieval/gate.h.
+        W.v[s] = i2_sign * 0.5 * vi.I2;
+        um = std::max(um, std::abs(W.u[s]));
+        vm = std::max(vm, std::abs(W.v[s]));
       }
-      gate_times_envelope(er.data(), ei.data(), gr, gi, reinterpret_cast<double*>(W.psi.data()), n);
-      fft.time_to_freq(W.psi, W.raw);
+      if (!std::isfinite(um) || !std::isfinite(vm)) um = vm = 1e300;  // NaN: libm path
+      *umax = um;
+      *vmax = vm;
+    };
+
+    auto compute_gates = [&](long i, const Gates& G) {
+      double umax, vmax;
+      load_ir(i, &umax, &vmax);
+      double* cre = const_dipole ? G.re : G.pre;  // exp(i phi) of each node
+      double* cim = const_dipole ? G.im : G.pim;
+      std::size_t q0 = 0;
+      for (const MomentumBlock& b : plan_.blocks) {
+        const std::size_t nb = b.nodes.size();
+        const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
+        sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax, W.emi.data(),
+                      W.emr.data(), n);
+        for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
+          const double delta = b.nodes[m] - mid;
+          sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
+                        W.cs.data(), n);
+          const std::size_t m2 = nb - 1 - m;
+          double* r2 = m2 != m ? cre + (q0 + m2) * n : W.r1.data();
+          double* i2 = m2 != m ? cim + (q0 + m2) * n : W.i1.data();
+          pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), cre + (q0 + m) * n,
+                      cim + (q0 + m) * n, r2, i2, n);
+        }
+        if (!const_dipole)
+          for (std::size_t m = 0; m < nb; ++m) {
+            const double p = b.nodes[m];
+            const std::size_t o = (q0 + m) * n;
+            for (std::size_t k = 0; k < n; ++k) {
+              const double d = dipole_(p + W.A[k]);
+              G.re[o + k] = d * G.pre[o + k];
+              G.im[o + k] = d * G.pim[o + k];
+              if (K > 0) G.ddip[o + k] = dipole_.derivative(p + W.A[k]);
+            }
+          }
+        q0 += nb;
+      }
+    };
+
+    // FFT of psi; its bins' share (Lagrange weight of node m) added to the block's energies.
+    auto transform_node = [&](const MomentumBlock& b, std::size_t m, CVec& psi) {
+      fft.time_to_freq(psi, W.raw);
       for (std::size_t j = b.first; j < b.last; ++j) {
         cdouble val = W.raw[ilo[j]] * clo[j];
         const double f = map_.frac[j];
@@ -391,67 +505,84 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
             b.lagrange(static_cast<Eigen::Index>(j - b.first), static_cast<Eigen::Index>(m)) * val;
       }
     };
-
-#pragma omp for schedule(static)
-    for (long i = 0; i < nd; ++i) {
+    auto finish_row = [&](long i) {
       const double tau = delay_[static_cast<std::size_t>(i)];
-      for (std::size_t s = 0; s < n; ++s) {
-        const VolkovIntegrals vi = ir.at(ts[s] + tau);
-        W.A[s] = vi.A;
-        W.u[s] = vi.I1 - i1_mid;
-        // Exact model: phase -p I1 - I2/2; the CMA variant uses the delay-adapted gate
-        // -p0 I1 + I2/2 of retrieval/gate.h.
-        W.v[s] = i2_sign * 0.5 * vi.I2;
-      }
-      std::fill(W.acc.begin(), W.acc.end(), cdouble(0.0));
-      // Forward. Chebyshev nodes come in pairs mid +- delta: exp(i phi) = exp(i phi_mid)
-      // exp(-+i delta u): one sine/cosine array per pair plus one for the mid momentum.
-      std::size_t q0 = 0;
-      for (const MomentumBlock& b : plan_.blocks) {
-        const std::size_t nb = b.nodes.size();
-        const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
-        for (std::size_t s = 0; s < n; ++s) W.ph[s] = -mid * W.u[s] - W.v[s];
-        sincos_array(W.ph.data(), W.emi.data(), W.emr.data(), n);
-        for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
-          const double delta = b.nodes[m] - mid;
-          for (std::size_t s = 0; s < n; ++s) W.ph[s] = -delta * W.u[s];
-          sincos_array(W.ph.data(), W.sn.data(), W.cs.data(), n);
-          const std::size_t m2 = nb - 1 - m;
-          pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), W.r1.data(),
-                      W.i1.data(), W.r2.data(), W.i2.data(), n);
-          forward_node(b, m, q0 + m, W.r1.data(), W.i1.data());
-          if (m2 != m) forward_node(b, m2, q0 + m2, W.r2.data(), W.i2.data());
-        }
-        q0 += nb;
-      }
       for (std::size_t j = 0; j < ne; ++j) {
         const double theta = (energy_[j] + ip_) * tau - pj[j] * i1_mid;
         W.row_a[j] = cdouble(0, -1) * std::polar(1.0, theta) * W.acc[j];
       }
-      const auto ii = static_cast<Eigen::Index>(i);
-      if (amp_out)
-        for (std::size_t j = 0; j < ne; ++j)
-          (*amp_out)(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
-      if (mode == Mode::kScaledCost) {
-        for (std::size_t j = 0; j < ne; ++j) {
-          const auto jj = static_cast<Eigen::Index>(j);
-          const double mod = std::norm(W.row_a[j]), wij = (*w)(ii, jj), Mij = (*M)(ii, jj);
-          W.c2 += wij * mod * mod;
-          W.c1 += -2.0 * wij * Mij * mod;
-          W.c0 += wij * Mij * Mij;
-          if (model_out) (*model_out)(ii, jj) = mod;
-          if (K == 2) {
-            W.row_bar[j] = 2.0 * wij * mod * W.row_a[j];
-            W.row_bar[ne + j] = -2.0 * wij * Mij * W.row_a[j];
-          }
-        }
-      } else if (mode == Mode::kVjp) {
-        for (std::size_t j = 0; j < ne; ++j)
-          W.row_bar[j] = (*a_bar)(ii, static_cast<Eigen::Index>(j));
-      }
-      if (K == 0) continue;
+    };
 
-      // Adjoint: a = -i e^{i theta} acc  ->  acc_bar = i e^{-i theta} a_bar.
+    // psi = eps * gate; FFT; bins and Lagrange sums, node order m, nb - 1 - m, ... per block.
+    auto forward_amplitudes = [&](long i, const Gates& G) {
+      std::fill(W.acc.begin(), W.acc.end(), cdouble(0.0));
+      std::size_t q0 = 0;
+      for (const MomentumBlock& b : plan_.blocks) {
+        const std::size_t nb = b.nodes.size();
+        for (std::size_t r = 0; r < nb; ++r) {
+          const std::size_t m = r % 2 == 0 ? r / 2 : nb - 1 - r / 2;
+          const std::size_t o = (q0 + m) * n;
+          gate_times_envelope(er.data(), ei.data(), G.re + o, G.im + o,
+                              reinterpret_cast<double*>(W.psi.data()), n);
+          transform_node(b, m, W.psi);
+        }
+        q0 += nb;
+      }
+      finish_row(i);
+    };
+
+    // The same for a constant dipole (no gate arrays: the adjoint forms them again): each pair's
+    // two exit waves straight from exp(i phi_mid) and exp(-+i delta u), no gate arrays (the
+    // same products in the same order, so the same numbers).
+    auto forward_direct = [&](long i) {
+      double umax, vmax;
+      load_ir(i, &umax, &vmax);
+      std::fill(W.acc.begin(), W.acc.end(), cdouble(0.0));
+      for (const MomentumBlock& b : plan_.blocks) {
+        const std::size_t nb = b.nodes.size();
+        const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
+        sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax, W.emi.data(),
+                      W.emr.data(), n);
+        for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
+          const double delta = b.nodes[m] - mid;
+          sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
+                        W.cs.data(), n);
+          pair_exit_waves(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(),
+                          ei.data(), reinterpret_cast<double*>(W.psi.data()),
+                          reinterpret_cast<double*>(W.psi2.data()), n);
+          transform_node(b, m, W.psi);
+          if (nb - 1 - m != m) transform_node(b, nb - 1 - m, W.psi2);
+        }
+      }
+      finish_row(i);
+    };
+
+    // Adjoint of delay i for the Ku rows of W.row_bar (adjoints of a), accumulated into this
+    // thread's totals.
+    // psi_bar of node m of block b for the acc adjoints accbar: bins, then the inverse FFT.
+    auto node_psibar = [&](const MomentumBlock& b, std::size_t m, const cdouble* accbar,
+                           CVec& out) {
+      std::fill(W.rawbar.begin(), W.rawbar.end(), cdouble(0.0));
+      for (std::size_t j = b.first; j < b.last; ++j) {
+        const cdouble val =
+            b.lagrange(static_cast<Eigen::Index>(j - b.first), static_cast<Eigen::Index>(m)) *
+            accbar[j];
+        const double f = map_.frac[j];
+        if (f == 0.0) {
+          W.rawbar[ilo[j]] += std::conj(clo[j]) * val;
+        } else {
+          W.rawbar[ilo[j]] += (1.0 - f) * std::conj(clo[j]) * val;
+          W.rawbar[ihi[j]] += f * std::conj(chi[j]) * val;
+        }
+      }
+      fft.freq_to_time(W.rawbar, out);
+    };
+
+    // Adjoint of delay i. With gate arrays G (from compute_gates), or, when `direct` (constant
+    // dipole), with each pair's gates formed on the fly from the phase factors (load_ir first).
+    auto adjoint = [&](long i, const Gates& G, bool direct) {
+      const double tau = delay_[static_cast<std::size_t>(i)];
+      // a = -i e^{i theta} acc  ->  acc_bar = i e^{-i theta} a_bar.
       for (std::size_t j = 0; j < ne; ++j) {
         const double theta = (energy_[j] + ip_) * tau - pj[j] * i1_mid;
         const cdouble f = cdouble(0, 1) * std::polar(1.0, -theta);
@@ -460,36 +591,58 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       std::fill(W.gA.begin(), W.gA.end(), 0.0);
       std::fill(W.gI1.begin(), W.gI1.end(), 0.0);
       std::fill(W.gI2.begin(), W.gI2.end(), 0.0);
-      std::size_t q = 0;
-      for (const MomentumBlock& b : plan_.blocks) {
-        for (std::size_t m = 0; m < b.nodes.size(); ++m, ++q) {
-          const double p = b.nodes[m];
-          const double* gr = &W.gre[q * n];
-          const double* gi = &W.gim[q * n];
-          for (std::size_t k = 0; k < Ku; ++k) {
-            const cdouble* accbar = &W.row_bar[k * ne];
-            std::fill(W.rawbar.begin(), W.rawbar.end(), cdouble(0.0));
-            for (std::size_t j = b.first; j < b.last; ++j) {
-              const cdouble val =
-                  b.lagrange(static_cast<Eigen::Index>(j - b.first), static_cast<Eigen::Index>(m)) *
-                  accbar[j];
-              const double f = map_.frac[j];
-              if (f == 0.0) {
-                W.rawbar[ilo[j]] += std::conj(clo[j]) * val;
+      if (direct) {
+        double umax, vmax;
+        load_ir(i, &umax, &vmax);
+        for (const MomentumBlock& b : plan_.blocks) {
+          const std::size_t nb = b.nodes.size();
+          const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
+          sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax,
+                        W.emi.data(), W.emr.data(), n);
+          for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
+            const double delta = b.nodes[m] - mid;
+            sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
+                          W.cs.data(), n);
+            const std::size_t m2 = nb - 1 - m;
+            if (m2 == m)  // the unpaired middle node: its gate into scratch
+              pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), W.r1.data(),
+                          W.i1.data(), W.gre.data(), W.gim.data(), n);
+            for (std::size_t k = 0; k < Ku; ++k) {
+              const cdouble* accbar = &W.row_bar[k * ne];
+              node_psibar(b, m, accbar, W.psibar);
+              const double* pb = reinterpret_cast<const double*>(W.psibar.data());
+              if (m2 == m) {
+                node_adjoint(pb, er.data(), ei.data(), W.r1.data(), W.i1.data(), 2.0 * b.nodes[m],
+                             i2_sign, &W.ebr[k * n], &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n],
+                             n);
               } else {
-                W.rawbar[ilo[j]] += (1.0 - f) * std::conj(clo[j]) * val;
-                W.rawbar[ihi[j]] += f * std::conj(chi[j]) * val;
+                node_psibar(b, m2, accbar, W.psibar2);
+                pair_adjoint(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(),
+                             ei.data(), pb, reinterpret_cast<const double*>(W.psibar2.data()),
+                             2.0 * b.nodes[m], 2.0 * b.nodes[m2], i2_sign, &W.ebr[k * n],
+                             &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n], n);
               }
             }
-            fft.freq_to_time(W.rawbar, W.psibar);
+          }
+        }
+      }
+      std::size_t q = 0;
+      for (const MomentumBlock& b : plan_.blocks) {
+        if (direct) break;
+        for (std::size_t m = 0; m < b.nodes.size(); ++m, ++q) {
+          const double p = b.nodes[m];
+          const double* gr = G.re + q * n;
+          const double* gi = G.im + q * n;
+          for (std::size_t k = 0; k < Ku; ++k) {
+            node_psibar(b, m, &W.row_bar[k * ne], W.psibar);
             const double* pb = reinterpret_cast<const double*>(W.psibar.data());
-            node_adjoint(pb, er.data(), ei.data(), gr, gi, 2.0 * p, i2_sign, &W.ebr[k * n], &W.ebi[k * n],
-                         &W.gI1[k * n], &W.gI2[k * n], n);
-            if (!W.pre.empty()) {
+            node_adjoint(pb, er.data(), ei.data(), gr, gi, 2.0 * p, i2_sign, &W.ebr[k * n],
+                         &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n], n);
+            if (!const_dipole) {
               double* gA = &W.gA[k * n];
-              const double* c = &W.pre[q * n];
-              const double* sn = &W.pim[q * n];
-              const double* dd = &W.ddip[q * n];
+              const double* c = G.pre + q * n;
+              const double* sn = G.pim + q * n;
+              const double* dd = G.ddip + q * n;
               for (std::size_t s = 0; s < n; ++s) {
                 // 2 Re(conj(psi_bar) eps d' e^{i phi})
                 const double zr = er[s] * c[s] - ei[s] * sn[s];
@@ -526,17 +679,91 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
           W.bI2[kr + c + 1] += h.h01 * b2;
         }
       }
+    };
+
+#pragma omp for schedule(static)
+    for (long i = 0; i < nd; ++i) {
+      if (const_dipole) {
+        forward_direct(i);
+      } else {
+        compute_gates(i, gates);
+        forward_amplitudes(i, gates);
+      }
+      const auto ii = static_cast<Eigen::Index>(i);
+      if (amp_out)
+        for (std::size_t j = 0; j < ne; ++j)
+          (*amp_out)(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
+      if (two_pass)
+        for (std::size_t j = 0; j < ne; ++j)
+          amp_keep(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
+      if (cost_mode) {
+        for (std::size_t j = 0; j < ne; ++j) {
+          const auto jj = static_cast<Eigen::Index>(j);
+          const double mod = std::norm(W.row_a[j]), wij = (*w)(ii, jj), Mij = (*M)(ii, jj);
+          W.c2 += wij * mod * mod;
+          W.c1 += -2.0 * wij * Mij * mod;
+          W.c0 += wij * Mij * Mij;
+          if (model_out) (*model_out)(ii, jj) = mod;
+          if (K == 2) {
+            W.row_bar[j] = 2.0 * wij * mod * W.row_a[j];
+            W.row_bar[ne + j] = -2.0 * wij * Mij * W.row_a[j];
+          }
+        }
+      } else if (mode == Mode::kVjp) {
+        for (std::size_t j = 0; j < ne; ++j)
+          W.row_bar[j] = (*a_bar)(ii, static_cast<Eigen::Index>(j));
+      }
+      if (K == 0 || two_pass) continue;
+      adjoint(i, gates, const_dipole);
+    }
+
+    if (two_pass) {
+      // mu* from the totals, reduced in thread order (deterministic for a thread count).
+#pragma omp single
+      {
+        double c2 = extra_c2, c1 = extra_c1;
+        for (const Workspace& V : ws) {
+          c2 += V.c2;
+          c1 += V.c1;
+        }
+        mu = c2 > 0 ? -c1 / (2.0 * c2) : 0.0;
+      }
+      // Adjoint of mu^2 c2 + mu c1 at fixed mu: a_bar = mu^2 2 w |a|^2 a - mu 2 w M a.
+#pragma omp for schedule(static)
+      for (long i = 0; i < nd; ++i) {
+        if (!const_dipole) compute_gates(i, gates);
+        const auto ii = static_cast<Eigen::Index>(i);
+        for (std::size_t j = 0; j < ne; ++j) {
+          const auto jj = static_cast<Eigen::Index>(j);
+          const cdouble a = amp_keep(ii, jj);
+          const double wij = (*w)(ii, jj);
+          W.row_bar[j] = (mu * mu * 2.0 * wij * std::norm(a) - mu * 2.0 * wij * (*M)(ii, jj)) * a;
+        }
+        adjoint(i, gates, const_dipole);
+      }
     }
   }
 
   // Reduce in thread order (deterministic for a fixed thread count).
+  double c2 = 0.0, c1 = 0.0, c0 = 0.0;
+  for (const Workspace& W : ws) {
+    c2 += W.c2;
+    c1 += W.c1;
+    c0 += W.c0;
+  }
   if (parts) {
-    parts->c2 = parts->c1 = parts->c0 = 0.0;
-    for (const Workspace& W : ws) {
-      parts->c2 += W.c2;
-      parts->c1 += W.c1;
-      parts->c0 += W.c0;
-    }
+    parts->c2 = c2;
+    parts->c1 = c1;
+    parts->c0 = c0;
+  }
+  if (projected) {
+    projected->c2 = c2;
+    projected->c1 = c1;
+    projected->c0 = c0;
+    if (!two_pass) mu = c2 + extra_c2 > 0 ? -(c1 + extra_c1) / (2.0 * (c2 + extra_c2)) : 0.0;
+    projected->mu = mu;
+    projected->eps_bar.clear();
+    projected->A_bar.clear();
   }
   if (K == 0) return;
   std::vector<CVec> eb(Ku, CVec(n, 0.0));
@@ -560,6 +787,9 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
   if (mode == Mode::kVjp) {
     if (eps_bar_out) *eps_bar_out = std::move(eb[0]);
     if (A_bar_out) *A_bar_out = ir_samples_adjoint(ir, bA[0], bdA[0], bI1[0], bI2[0]);
+  } else if (mode == Mode::kProjected) {
+    projected->eps_bar = std::move(eb[0]);
+    projected->A_bar = ir_samples_adjoint(ir, bA[0], bdA[0], bI1[0], bI2[0]);
   } else {
     parts->eps_bar2 = std::move(eb[0]);
     parts->eps_bar1 = std::move(eb[1]);

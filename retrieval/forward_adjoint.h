@@ -58,6 +58,16 @@ struct ScaledCostParts {
   std::vector<double> A_bar2, A_bar1;  ///< adjoints of c2, c1 w.r.t. the IR samples A_i
 };
 
+/// The data part of the cost with the scale eliminated (ForwardAdjoint::projected_cost).
+struct ProjectedCostParts {
+  double c2 = 0.0;  ///< sum w |a|^4 (data part only)
+  double c1 = 0.0;  ///< -2 sum w M |a|^2
+  double c0 = 0.0;  ///< sum w M^2
+  double mu = 0.0;  ///< mu* = -(c1 + extra_c1) / (2 (c2 + extra_c2)); 0 when that c2 <= 0
+  CVec eps_bar;     ///< adjoint of mu*^2 c2 + mu* c1 (mu* held fixed) w.r.t. the XUV envelope
+  std::vector<double> A_bar;  ///< the same w.r.t. the IR samples A_i
+};
+
 class ForwardAdjoint {
  public:
   /// Model for fixed axes: XUV grid and carrier (a.u.), delays (ascending) and energies (a.u.).
@@ -102,13 +112,27 @@ class ForwardAdjoint {
                    const Eigen::MatrixXd& weight, bool with_gradient, ScaledCostParts* out,
                    Eigen::MatrixXd* model = nullptr) const;
 
+  /// The same cost with the scale eliminated inside: the caller's further terms quadratic in
+  /// mu enter through extra_c2 and extra_c1 (added to c2 and c1 before mu* = -c1 / (2 c2)), and
+  /// the gradient comes back combined, eps_bar = mu*^2 eps_bar2 + mu* eps_bar1 (likewise A_bar),
+  /// for the data part. Two passes over the delays: the forward pass keeps the amplitudes, the
+  /// adjoint pass (after mu*) recomputes each delay's gates (cheaper than keeping them in
+  /// memory: measured in docs/performance.md) and does one adjoint FFT per node and delay with
+  /// the combined a_bar instead of scaled_cost's two. Same numbers as scaled_cost combined by
+  /// the caller, to rounding.
+  void projected_cost(const CVec& eps, const IrField& ir, const Eigen::MatrixXd& measured,
+                      const Eigen::MatrixXd& weight, double extra_c2, double extra_c1,
+                      bool with_gradient, ProjectedCostParts* out,
+                      Eigen::MatrixXd* model = nullptr) const;
+
  private:
   struct Workspace;
-  enum class Mode { kAmplitude, kVjp, kScaledCost };
+  enum class Mode { kAmplitude, kVjp, kScaledCost, kProjected };
   void run(Mode mode, const CVec& eps, const IrField& ir, const Eigen::MatrixXcd* a_bar,
            const Eigen::MatrixXd* measured, const Eigen::MatrixXd* weight, bool with_gradient,
            Eigen::MatrixXcd* amp_out, Eigen::MatrixXd* model_out, ScaledCostParts* parts,
-           CVec* eps_bar, std::vector<double>* A_bar) const;
+           CVec* eps_bar, std::vector<double>* A_bar, double extra_c2, double extra_c1,
+           ProjectedCostParts* projected) const;
 
   double ip_;
   DipoleModel dipole_;

@@ -515,26 +515,29 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
   const CVec eps = envelope(x);
   const std::vector<double> th = ir_theta(x);
   const IrField irf = ir_->field(th.data());
-  ScaledCostParts P;
-  fa_.scaled_cost(eps, irf, measured_, weight_, grad != nullptr, &P);
-  // Field-free-spectrum term (quadratic in the same mu).
+  // Field-free-spectrum term (quadratic in the same mu), added to the data part's c2, c1, c0
+  // before mu is eliminated (ForwardAdjoint::projected_cost).
   const bool use_spec = spectrum_term();
   std::vector<cdouble> pb2, pb1;
+  double spec_2 = 0.0, spec_1 = 0.0, spec_0 = 0.0;
   if (use_spec) {
     pb2.assign(ne_, 0.0);
     pb1.assign(ne_, 0.0);
     for (std::size_t j : support_) {
       const double lam = settings_.spectrum_weight * spectrum_weight_col_[j];
       const double m0 = dip2_[j] * std::norm(spec[j]);
-      P.c2 += lam * m0 * m0;
-      P.c1 += -2.0 * lam * spectrum_[j] * m0;
-      P.c0 += lam * spectrum_[j] * spectrum_[j];
+      spec_2 += lam * m0 * m0;
+      spec_1 += -2.0 * lam * spectrum_[j] * m0;
+      spec_0 += lam * spectrum_[j] * spectrum_[j];
       pb2[j] = 2.0 * lam * m0 * dip2_[j] * spec[j];
       pb1[j] = -2.0 * lam * spectrum_[j] * dip2_[j] * spec[j];
     }
   }
-  const double mu = P.c2 > 0 ? -P.c1 / (2.0 * P.c2) : 0.0;
-  double C = (P.c0 + mu * (P.c1 + mu * P.c2)) * inv_elements_;
+  ProjectedCostParts P;
+  fa_.projected_cost(eps, irf, measured_, weight_, spec_2, spec_1, grad != nullptr, &P);
+  const double mu = P.mu;
+  const double c2 = P.c2 + spec_2, c1 = P.c1 + spec_1, c0 = P.c0 + spec_0;
+  double C = (c0 + mu * (c1 + mu * c2)) * inv_elements_;
   // IR penalty: kappa [sum_{i probed} (L A)_i^2 + edge x sum_{i not probed} A_i^2], L a Gaussian
   // low pass, "probed" = inside the delay range, edge = 1 for the free form only.
   std::vector<double> LA, A_edge;
@@ -557,10 +560,8 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
     C += lowpass_weight_ * s2;
   }
   if (grad) {
-    CVec eb(n_);
-    for (std::size_t s = 0; s < n_; ++s) eb[s] = mu * mu * P.eps_bar2[s] + mu * P.eps_bar1[s];
     std::vector<cdouble> sb;
-    xuv_adjoint(eb, &sb);
+    xuv_adjoint(P.eps_bar, &sb);
     if (use_spec)
       for (std::size_t j : support_) sb[j] += mu * mu * pb2[j] + mu * pb1[j];
     const double gx = 2.0 * xuv_scale_ * inv_elements_;
@@ -569,8 +570,7 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
       grad[2 * k + 1] = gx * bin_scale_[k] * sb[support_[k]].imag();
     }
     std::vector<double> Ab(irf.size());
-    for (std::size_t r = 0; r < Ab.size(); ++r)
-      Ab[r] = (mu * mu * P.A_bar2[r] + mu * P.A_bar1[r]) * inv_elements_;
+    for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] = P.A_bar[r] * inv_elements_;
     if (lowpass_weight_ > 0) {
       std::vector<double> LLA;
       lowpass(LA, &LLA);  // L is symmetric: L^T = L (LA already masked)

@@ -26,9 +26,11 @@ std::string fmt(double x) {
 // The ePIE updates of one delay, d = psi' - psi = back / N - psi:
 //   eps += bo conj(G) d / max|G|^2 (= 1) on every sample;
 //   U = cg conj(eps) d (cg = beta_gate / max|eps|^2, eps before this update) on [lo, hi).
-SW_HOT_LOOP void epie_update(const double* G, const double* B, const double* P, double* E,
-                             double* U, std::size_t n, std::size_t lo, std::size_t hi, double bo,
-                             double cg) {
+// Returns max |E|^2 over [lo, hi) after the update (the next step's object normalisation).
+SW_HOT_LOOP double epie_update(const double* G, const double* B, const double* P, double* E,
+                               double* U, std::size_t n, std::size_t lo, std::size_t hi, double bo,
+                               double cg) {
+  double max_e2 = 0.0;
   const double inv_n = 1.0 / static_cast<double>(n);
 #pragma omp simd
   for (std::size_t q = 0; q < lo; ++q) {
@@ -37,14 +39,16 @@ SW_HOT_LOOP void epie_update(const double* G, const double* B, const double* P, 
     E[2 * q] += bo * (gr * dr + gi * di);
     E[2 * q + 1] += bo * (gr * di - gi * dr);
   }
-#pragma omp simd
+#pragma omp simd reduction(max : max_e2)
   for (std::size_t q = lo; q < hi; ++q) {
     const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
     const double er = E[2 * q], ei = E[2 * q + 1], gr = G[2 * q], gi = G[2 * q + 1];
-    E[2 * q] = er + bo * (gr * dr + gi * di);
-    E[2 * q + 1] = ei + bo * (gr * di - gi * dr);
+    const double nr = er + bo * (gr * dr + gi * di), ni = ei + bo * (gr * di - gi * dr);
+    E[2 * q] = nr;
+    E[2 * q + 1] = ni;
     U[2 * q] = cg * (er * dr + ei * di);
     U[2 * q + 1] = cg * (er * di - ei * dr);
+    max_e2 = std::max(max_e2, nr * nr + ni * ni);
   }
 #pragma omp simd
   for (std::size_t q = hi; q < n; ++q) {
@@ -53,6 +57,7 @@ SW_HOT_LOOP void epie_update(const double* G, const double* B, const double* P, 
     E[2 * q] += bo * (gr * dr + gi * di);
     E[2 * q + 1] += bo * (gr * di - gi * dr);
   }
+  return max_e2;
 }
 
 class PtychographicEngine final : public Engine {
@@ -152,10 +157,9 @@ class PtychographicEngine final : public Engine {
         cma_->project_bands(j, spec_, state_, sums, scratch_.data(), comb_, before_);
       for (std::size_t b = 0; b < nb; ++b) {
         cma_->fft().freq_to_time(spec_[b], back_);
-        update_object(gp_[b], psi_[b], lo, hi, max_e2 > 0 ? beta_g_ / max_e2 : 0.0);
+        const double cg = max_e2 > 0 ? beta_g_ / max_e2 : 0.0;
+        max_e2 = update_object(gp_[b], psi_[b], lo, hi, cg);
         gates_[b].update(j, du_.data(), lo, hi);
-        max_e2 = 0.0;
-        for (std::size_t q = lo; q < hi; ++q) max_e2 = std::max(max_e2, std::norm(eps_[q]));
       }
     }
     const double G = cma_->trace_error(sums);
@@ -218,12 +222,13 @@ class PtychographicEngine final : public Engine {
   }
 
  private:
-  void update_object(const cdouble* gp, const CVec& psi, std::size_t lo, std::size_t hi,
-                     double cg) {
-    epie_update(reinterpret_cast<const double*>(gp), reinterpret_cast<const double*>(back_.data()),
-                reinterpret_cast<const double*>(psi.data()),
-                reinterpret_cast<double*>(eps_.data()), reinterpret_cast<double*>(du_.data()),
-                cma_->samples(), lo, hi, beta_o_, cg);
+  // Returns max |eps|^2 over [lo, hi) after the update.
+  double update_object(const cdouble* gp, const CVec& psi, std::size_t lo, std::size_t hi,
+                       double cg) {
+    return epie_update(
+        reinterpret_cast<const double*>(gp), reinterpret_cast<const double*>(back_.data()),
+        reinterpret_cast<const double*>(psi.data()), reinterpret_cast<double*>(eps_.data()),
+        reinterpret_cast<double*>(du_.data()), cma_->samples(), lo, hi, beta_o_, cg);
   }
 
   std::optional<CmaProblem> cma_;

@@ -89,6 +89,22 @@ TEST_CASE("forward values equal sw::ForwardModel (full and CMA)", "[adjoint]") {
       ForwardModel(S.ip, d, c).amplitude(XuvField(S.grid, S.carrier, eps), S.ir, S.D, S.W);
   fa.plan_central(c.central_momentum_au);
   CHECK(max_rel_diff(fa.amplitude(eps, S.ir), ref_c) < 1e-10);
+
+  // Constant dipole (the exit waves formed without gate arrays), full plan and CMA.
+  const DipoleModel one;
+  ForwardAdjoint fa1(S.ip, one, S.grid, S.carrier, S.D, S.W, 2);
+  fa1.plan_full(S.ir, o);
+  CHECK(
+      max_rel_diff(
+          fa1.amplitude(eps, S.ir),
+          ForwardModel(S.ip, one, o).amplitude(XuvField(S.grid, S.carrier, eps), S.ir, S.D, S.W)) <
+      1e-10);
+  fa1.plan_central(c.central_momentum_au);
+  CHECK(
+      max_rel_diff(
+          fa1.amplitude(eps, S.ir),
+          ForwardModel(S.ip, one, c).amplitude(XuvField(S.grid, S.carrier, eps), S.ir, S.D, S.W)) <
+      1e-10);
 }
 
 TEST_CASE("plan_covers detects an IR field the blocks were not sized for", "[adjoint]") {
@@ -237,6 +253,86 @@ TEST_CASE("gradient of the scale-projected cost matches central differences", "[
   }
   CHECK(gscale > 0);
   CHECK(worst / gscale < 1e-6);
+}
+
+TEST_CASE("projected_cost: combined gradient with an extra term matches central differences",
+          "[adjoint]") {
+  // Variable projection (Golub and Pereyra, SIAM J. Numer. Anal. 10, 413 (1973)) with a further
+  // term e2 mu^2 + e1 mu (as the engine's spectrum term): C = c0 + mu*(c1 + e1) + mu*^2 (c2 + e2)
+  // at mu* = -(c1 + e1) / (2 (c2 + e2)); its gradient at fixed mu* must match central
+  // differences (common practice; Nocedal and Wright, Numerical Optimization (2006), Sec. 8.1).
+  // Full model with a hydrogenic dipole (gate arrays; 2 threads), with a constant dipole and an
+  // odd node count (gates formed on the fly, paired and unpaired nodes), and the CMA plan.
+  Small S;
+  for (const int config : {0, 1, 2}) {
+    INFO("configuration " << config);
+    const bool full = config < 2;
+    const DipoleModel d =
+        config == 0 ? DipoleModel(DipoleKind::kHydrogenic, S.ip, 2.9) : DipoleModel();
+    ForwardAdjoint fa(S.ip, d, S.grid, S.carrier, S.D, S.W, full ? 2 : 1);
+    if (full) {
+      ForwardModelOptions o;
+      o.momentum = MomentumModel::kFull;
+      if (config == 1) o.chebyshev_nodes = 5;
+      fa.plan_full(S.ir, o);
+    } else {
+      fa.plan_central(std::sqrt(2.0 * S.W[S.W.size() / 2]));
+    }
+    const CVec eps = test_envelope(S.grid, 5);
+    std::vector<double> A2 = S.ir.vector_potential();
+    for (double& a : A2) a *= 0.9;
+    Eigen::MatrixXd M;
+    ScaledCostParts tmp;
+    const Eigen::MatrixXd w0 = Eigen::MatrixXd::Ones(static_cast<Eigen::Index>(S.D.size()),
+                                                     static_cast<Eigen::Index>(S.W.size()));
+    fa.scaled_cost(test_envelope(S.grid, 9), IrField(S.ir.t0(), S.ir.dt(), A2), w0, w0, false, &tmp,
+                   &M);
+    const Eigen::MatrixXd w = (M.array() + 0.05 * M.maxCoeff()).inverse().matrix();
+    // Extra term of the size of the data part's, so that it moves mu* visibly.
+    fa.scaled_cost(eps, S.ir, M, w, false, &tmp);
+    const double e2 = 0.3 * tmp.c2, e1 = 0.1 * tmp.c1;
+    auto cost = [&](const CVec& e, const IrField& f) {
+      ProjectedCostParts q;
+      fa.projected_cost(e, f, M, w, e2, e1, false, &q);
+      return q.c0 + q.mu * (q.c1 + e1) + q.mu * q.mu * (q.c2 + e2);
+    };
+    ProjectedCostParts P;
+    fa.projected_cost(eps, S.ir, M, w, e2, e1, true, &P);
+    CHECK(P.mu == Approx(-(tmp.c1 + e1) / (2 * (tmp.c2 + e2))).epsilon(1e-12));
+    CHECK(P.c2 == Approx(tmp.c2).epsilon(1e-12));
+    double worst = 0, gscale = 0;
+    const std::size_t mid = S.grid.size() / 2;
+    for (std::size_t s : {mid - 6, mid, mid + 5})
+      for (int part = 0; part < 2; ++part) {
+        const cdouble dir = part == 0 ? cdouble(1, 0) : cdouble(0, 1);
+        const double h = 1e-5 * std::abs(eps[mid]);
+        CVec ep = eps, em = eps;
+        ep[s] += h * dir;
+        em[s] -= h * dir;
+        const double fd = (cost(ep, S.ir) - cost(em, S.ir)) / (2 * h);
+        const double an = part == 0 ? 2 * P.eps_bar[s].real() : 2 * P.eps_bar[s].imag();
+        worst = std::max(worst, std::abs(fd - an));
+        gscale = std::max(gscale, std::abs(fd));
+      }
+    CHECK(gscale > 0);
+    CHECK(worst / gscale < 1e-6);
+    worst = gscale = 0;
+    const std::size_t n = S.ir.size();
+    const std::vector<double>& A = S.ir.vector_potential();
+    for (std::size_t k : {n / 2 - 7, n / 2, n / 2 + 33}) {
+      const double h = 1e-6;
+      std::vector<double> Ap = A, Am = A;
+      Ap[k] += h;
+      Am[k] -= h;
+      const double fd = (cost(eps, IrField(S.ir.t0(), S.ir.dt(), Ap)) -
+                         cost(eps, IrField(S.ir.t0(), S.ir.dt(), Am))) /
+                        (2 * h);
+      worst = std::max(worst, std::abs(fd - P.A_bar[k]));
+      gscale = std::max(gscale, std::abs(fd));
+    }
+    CHECK(gscale > 0);
+    CHECK(worst / gscale < 1e-6);
+  }
 }
 
 TEST_CASE("vjp is the transpose of the linearised model", "[adjoint]") {

@@ -1,0 +1,192 @@
+// Cost of the full-model path against its FFT floor and of the whole analysis of one broadband
+// scan, in one run so that ratios can be read on a shared machine:
+//   BM_FullModelFftFloor        the FFTs one cost-and-gradient evaluation must do: one forward
+//                               and one adjoint FFT per momentum node and delay (2 x nodes x
+//                               delays FFTs of the grid size);
+//   BM_FullModelCostGradient/T  one FullModelObjective::evaluate with gradient, T threads
+//                               (wall time);
+//   BM_FullModelCost            the same without gradient;
+//   BM_EpieFftFloor, BM_EpieIteration   two FFTs per delay and one ptychographic iteration
+//                               (one central momentum) on the same scan;
+//   BM_HeliumRetrieve/B         retrieve() of the helium-70as preset scan (121 x 330) with B
+//                               bootstrap replicas, wall time of one run (slow: ~1-2 min).
+// The problem is the helium-70as preset (seed 7) after preprocess(), as `retrieve` sees it.
+// tests/bench/run_bench.sh runs these with the numpy reference and prints the ratios.
+#include <benchmark/benchmark.h>
+#include <sys/resource.h>
+
+#include <cmath>
+#include <cstdlib>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "retrieval/engine.h"
+#include "retrieval/full_model_engine.h"
+#include "retrieval/grid.h"
+#include "retrieval/ir_parametrization.h"
+#include "retrieval/preprocess.h"
+#include "retrieval/retrieve.h"
+#include "retrieval/units.h"
+#include "synthetic/generator.h"
+#include "synthetic/presets.h"
+
+namespace {
+
+using namespace sw;
+
+const synthetic::SyntheticScan& helium_scan() {
+  static const synthetic::SyntheticScan s =
+      synthetic::generate_scan(synthetic::find_preset("helium-70as").config, 7);
+  return s;
+}
+
+const RetrievalProblem& helium_problem() {
+  static const RetrievalProblem p = [] {
+    PreprocessSummary sum;
+    return preprocess(helium_scan().trace, PreprocessOptions{}, &sum);
+  }();
+  return p;
+}
+
+// Objective with a parametric IR at the preset's pulse (so the momentum blocks are those of a
+// converged fit) and a chirped spectrum from the field-free spectrum.
+struct Objective {
+  std::unique_ptr<FullModelObjective> f;
+  std::vector<double> x;
+};
+Objective make_objective(int threads) {
+  {
+    const RetrievalProblem& P = helium_problem();
+    const auto& cfg = synthetic::find_preset("helium-70as").config;
+    const double T = units::period_au(P.ir_omega_au);
+    const IrSampling smp = IrSampling::covering(P.delay_au.front() - P.grid.window() / 2,
+                                                P.delay_au.back() + P.grid.window() / 2, T / 64);
+    Objective r;
+    r.f = std::make_unique<FullModelObjective>(P, FullModelSettings{}, MomentumModel::kFull,
+                                               std::make_unique<GaussianIrParametrization>(smp),
+                                               threads);
+    std::vector<cdouble> spec(P.energy_au.size());
+    for (std::size_t j = 0; j < spec.size(); ++j) {
+      const double x = units::au_to_eV(P.energy_au[j]) - 105.0;
+      spec[j] = std::sqrt(std::max(P.field_free_spectrum[j], 0.0)) * std::polar(1.0, 1e-3 * x * x);
+    }
+    r.x = r.f->encode(spec, GaussianIrParametrization::from_pulse(cfg.ir.pulse));
+    r.f->replan(r.x.data());
+    return r;
+  }
+}
+Objective& helium_objective(int threads = 1) {
+  static Objective one = make_objective(1), two = make_objective(2);
+  return threads == 1 ? one : two;
+}
+
+void BM_FullModelFftFloor(benchmark::State& state) {
+  const Objective& o = helium_objective();
+  const ForwardAdjoint& fa = o.f->forward();
+  std::size_t nodes = 0;
+  for (const MomentumBlock& b : fa.plan().blocks) nodes += b.nodes.size();
+  const std::size_t n = fa.grid().size(), ffts = 2 * nodes * fa.delays().size();
+  const Fft fft(n);
+  CVec a(n, cdouble(1.0, 0.5)), b(n);
+  for (auto _ : state) {
+    for (std::size_t j = 0; j < ffts / 2; ++j) {
+      fft.time_to_freq(a, b);
+      fft.freq_to_time(b, a);
+    }
+    benchmark::DoNotOptimize(a.data());
+  }
+  state.counters["grid"] = static_cast<double>(n);
+  state.counters["nodes"] = static_cast<double>(nodes);
+  state.counters["ffts"] = static_cast<double>(ffts);
+}
+BENCHMARK(BM_FullModelFftFloor)->Unit(benchmark::kMillisecond);
+
+// Arg: OpenMP threads over delays (wall time: the work of the second thread is not in the
+// CPU column).
+void BM_FullModelCostGradient(benchmark::State& state) {
+  const Objective& o = helium_objective(static_cast<int>(state.range(0)));
+  std::vector<double> g(o.x.size());
+  for (auto _ : state) benchmark::DoNotOptimize(o.f->evaluate(o.x.data(), g.data()));
+  state.counters["parameters"] = static_cast<double>(o.x.size());
+}
+BENCHMARK(BM_FullModelCostGradient)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
+
+void BM_FullModelCost(benchmark::State& state) {
+  const Objective& o = helium_objective();
+  for (auto _ : state) benchmark::DoNotOptimize(o.f->evaluate(o.x.data(), nullptr));
+}
+BENCHMARK(BM_FullModelCost)->Unit(benchmark::kMillisecond);
+
+void BM_EpieFftFloor(benchmark::State& state) {
+  const RetrievalProblem& p = helium_problem();
+  const std::size_t n = p.grid.size(), nd = p.delay_au.size();
+  const Fft fft(n);
+  CVec a(n, cdouble(1.0, 0.5)), b(n), c(n);
+  for (auto _ : state) {
+    for (std::size_t j = 0; j < nd; ++j) {
+      fft.time_to_freq(a, b);
+      fft.freq_to_time(b, c);
+    }
+    benchmark::DoNotOptimize(c.data());
+  }
+  state.counters["grid"] = static_cast<double>(n);
+  state.counters["ffts"] = static_cast<double>(2 * nd);
+}
+BENCHMARK(BM_EpieFftFloor)->Unit(benchmark::kMicrosecond);
+
+void BM_EpieIteration(benchmark::State& state) {
+  const RetrievalProblem& p = helium_problem();
+  auto e = make_engine("ptychographic");
+  EngineOptions o;
+  o.threads = 1;
+  o.extra = {{"momentum_bands", "1"}};
+  e->prepare(p, o);
+  int k = 1;
+  for (auto _ : state) benchmark::DoNotOptimize(e->iterate(k++));
+}
+BENCHMARK(BM_EpieIteration)->Unit(benchmark::kMicrosecond);
+
+// CPU seconds of the whole process, every thread (user + system).
+double process_cpu_seconds() {
+  rusage u{};
+  getrusage(RUSAGE_SELF, &u);
+  return static_cast<double>(u.ru_utime.tv_sec + u.ru_stime.tv_sec) +
+         1e-6 * static_cast<double>(u.ru_utime.tv_usec + u.ru_stime.tv_usec);
+}
+
+// Whole analysis (preprocess, engines, bootstrap, metrics, quality) as `retrieve` runs it.
+// Threads: STREAKWRIGHT_BENCH_THREADS (default 1). Counter process_cpu_s: CPU seconds of all
+// threads (the L-BFGS runs on a worker thread, so the CPU column shows only the main thread);
+// on a shared machine it is the figure to compare, wall time depends on the load.
+void BM_HeliumRetrieve(benchmark::State& state) {
+  const Trace& t = helium_scan().trace;
+  RetrieveOptions o;
+  o.bootstrap = static_cast<int>(state.range(0));
+  if (const char* th = std::getenv("STREAKWRIGHT_BENCH_THREADS")) o.threads = std::atoi(th);
+  RetrieveOutput r;
+  double cpu = 0.0;
+  for (auto _ : state) {
+    const double c0 = process_cpu_seconds();
+    r = retrieve(t, o);
+    cpu += process_cpu_seconds() - c0;
+    benchmark::DoNotOptimize(r.result.xuv.has_value());
+  }
+  state.counters["process_cpu_s"] = cpu / static_cast<double>(state.iterations());
+  if (r.result.xuv) {
+    state.counters["fwhm_as"] = r.result.xuv->fwhm_as.value_or(0.0);
+    state.counters["fwhm_sigma_as"] = r.result.xuv->fwhm_as_sigma.value_or(0.0);
+  }
+  state.counters["threads"] = o.threads;
+  long long it = 0;
+  for (const Reconstruction& c : r.chain) it += c.iterations;
+  state.counters["iterations"] = static_cast<double>(it);
+}
+BENCHMARK(BM_HeliumRetrieve)
+    ->Arg(0)
+    ->Arg(8)
+    ->Iterations(1)
+    ->Unit(benchmark::kSecond)
+    ->UseRealTime();
+
+}  // namespace
