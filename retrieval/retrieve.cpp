@@ -31,6 +31,7 @@ std::string RetrieveOptions::validate() const {
     s << "method_sigma_relative = " << method_sigma_relative << ": must be in [0, 1)";
   else if (auto e = preprocess.validate(); !e.empty()) s << "preprocess." << e;
   else if (auto e2 = quality.validate(); !e2.empty()) s << "quality." << e2;
+  else if (auto e3 = line_delays.validate(); !e3.empty()) s << "line_delays." << e3;
   return s.str();
 }
 
@@ -423,6 +424,20 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   const PreprocessSummary& s = out.preprocess;
   append_preprocess_params(s, &res.extra);
   if (res.lines.empty()) res.lines = s.lines;
+  // Relative delays of the other lines (retrieval/line_delays.h), on the whole scan.
+  if (res.lines.size() >= 2) {
+    std::vector<double> bg_bin(trace.energy_au.size());
+    for (std::size_t j = 0; j < bg_bin.size(); ++j) bg_bin[j] = s.background.at(units::au_to_eV(trace.energy_au[j]));
+    LineDelayOptions lo = opt.line_delays;
+    lo.seed = opt.seed;
+    LineDelayResult ld = measure_line_delays(trace, res.lines, bg_bin, lo);
+    for (auto& w : ld.warnings) res.warnings.push_back(std::move(w));
+    if (ld.done) {
+      res.lines = std::move(ld.lines);
+      for (auto& x : ld.extra) res.extra.push_back(std::move(x));
+      out.line_curves = std::move(ld.curves);
+    }
+  }
   P("fit.model", rec.model);
   P("fit.noise_floor_trace_error", rec.noise_floor_trace_error);
   P("fit.scale", rec.scale);
