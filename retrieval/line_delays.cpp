@@ -115,28 +115,61 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
     for (double& x : rowM) x -= M0;
   }
 
-  // Moments of the band [lo, hi] of row i (fractional edge bins).
-  auto band = [&](Eigen::Index i, double lo, double hi, double* N, double* M, double* var, double* rms) {
-    double s = 0, sw = 0;
+  // Net counts per unit energy of row i at energy y (linear between bin centres; 0 outside the
+  // axis), and the raw counts' density for the variance.
+  auto density = [&](Eigen::Index i, double y, double* raw) {
+    *raw = 0;
+    if (y <= W.front() || y >= W.back()) return 0.0;
+    const std::size_t j = static_cast<std::size_t>(std::upper_bound(W.begin(), W.end(), y) - W.begin());
+    const double t = (y - W[j - 1]) / (W[j] - W[j - 1]);
+    const double w0 = edge[j] - edge[j - 1], w1 = edge[j + 1] - edge[j];
+    const double c0 = C(i, static_cast<Eigen::Index>(j - 1)), c1 = C(i, static_cast<Eigen::Index>(j));
+    *raw = (1 - t) * std::max(c0, 0.0) / w0 + t * std::max(c1, 0.0) / w1;
+    return (1 - t) * (c0 - bg[j - 1]) / w0 + t * (c1 - bg[j]) / w1;
+  };
+  // Moments of line k's band [lo, hi] in row i (fractional edge bins). The tail of every other
+  // line q inside the band is removed by the mirror image of q about its current centre x_q
+  // (its far side; common practice for peak deblending, as in retrieval/lines.h), skipped where
+  // the mirror point is nearer a third line than q.
+  auto band = [&](Eigen::Index i, std::size_t k, const std::vector<double>& xc, double lo, double hi, double* N,
+                  double* M, double* var, double* rms) {
+    std::vector<double> net, raw, wj;
+    std::vector<std::size_t> js;
     for (std::size_t j = 0; j < W.size(); ++j) {
       const double a = std::max(lo, edge[j]), b = std::min(hi, edge[j + 1]);
       if (b <= a) continue;
       const double f = (b - a) / (edge[j + 1] - edge[j]);
-      const double n = f * (C(i, static_cast<Eigen::Index>(j)) - bg[j]);
-      s += n;
-      sw += n * W[j];
+      double n = C(i, static_cast<Eigen::Index>(j)) - bg[j], v = std::max(C(i, static_cast<Eigen::Index>(j)), 1.0);
+      for (std::size_t q = 0; q < xc.size(); ++q) {
+        if (q == k) continue;
+        const double y = 2.0 * xc[q] - W[j];
+        bool nearer_other = false;
+        for (std::size_t r2 = 0; r2 < xc.size(); ++r2)
+          if (r2 != q && std::abs(y - xc[r2]) < std::abs(y - xc[q])) nearer_other = true;
+        if (nearer_other) continue;
+        double rw = 0;
+        const double d = density(i, y, &rw);
+        n -= d * (edge[j + 1] - edge[j]);
+        v += rw * (edge[j + 1] - edge[j]);
+      }
+      js.push_back(j);
+      net.push_back(f * n);
+      raw.push_back(f * v);
+      wj.push_back(W[j]);
+    }
+    double s = 0, sw = 0;
+    for (std::size_t m = 0; m < net.size(); ++m) {
+      s += net[m];
+      sw += net[m] * wj[m];
     }
     *N = s;
     if (!(s > 0)) return;
     *M = sw / s;
     double v = 0, r = 0;
-    for (std::size_t j = 0; j < W.size(); ++j) {
-      const double a = std::max(lo, edge[j]), b = std::min(hi, edge[j + 1]);
-      if (b <= a) continue;
-      const double f = (b - a) / (edge[j + 1] - edge[j]);
-      const double d = W[j] - *M;
-      v += f * std::max(C(i, static_cast<Eigen::Index>(j)), 1.0) * d * d;
-      r += f * (C(i, static_cast<Eigen::Index>(j)) - bg[j]) * d * d;
+    for (std::size_t m = 0; m < net.size(); ++m) {
+      const double d = wj[m] - *M;
+      v += raw[m] * d * d;
+      r += net[m] * d * d;
     }
     *var = v / (s * s);
     *rms = r > 0 ? std::sqrt(r / s) : 0.0;
@@ -156,7 +189,8 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
     for (int it = 0; it < o.band_iterations; ++it) {
       for (Eigen::Index i = 0; i < nr; ++i) {
         const std::size_t ii = static_cast<std::size_t>(i);
-        std::vector<double> xn(K);
+        std::vector<double> xn(K), xc(K);
+        for (std::size_t k = 0; k < K; ++k) xc[k] = x[k][ii];
         for (std::size_t k = 0; k < K; ++k) {
           double lo = x[k][ii] - h[k], hi = x[k][ii] + h[k];
           for (std::size_t q = 0; q < K; ++q) {
@@ -166,7 +200,7 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
             else hi = std::min(hi, mid);
           }
           double n = 0, m = x[k][ii], v = 0, r = 0;
-          if (hi > lo) band(i, lo, hi, &n, &m, &v, &r);
+          if (hi > lo) band(i, k, xc, lo, hi, &n, &m, &v, &r);
           N[k][ii] = n;
           M[k][ii] = m;
           V[k][ii] = v;

@@ -174,3 +174,57 @@ TEST_CASE("retrieve on a generated neon 2s/2p scan names both lines and gives th
   CHECK(std::abs(*s2->relative_strength / truth_ratio - 1.0) < 0.05);
   REQUIRE(out.line_curves.size() == 2);
 }
+
+TEST_CASE("line delays: representative rows of the validation sweep", "[line_delays][validation]") {
+  // tests/validation/line_delay_sweep.cpp (docs/validation.md "Two photoelectron lines"): the
+  // issue's targets -- inserted delay within 3 sigma, sigma <= 5 as at >= 300 peak counts.
+  // Inserted delay and strength are the generator's (synthetic/scan_config.h LineSpec); the
+  // truth record gives the ratio of delay-integrated counts.
+  struct Case {
+    const char* gas;
+    double strength, peak, delay_as;
+    unsigned long long seed;
+  };
+  // Argon 3s/3p (13.5 eV apart) comes out 10 % strong on the sweep (overlapping tails): its
+  // strength is held to 15 %; neon (27 eV apart) to 2 % beyond 3 sigma.
+  for (const Case& k : {Case{"Ne", 0.1, 300, 50, 31}, Case{"Ne", 0.3, 1000, -20, 32}, Case{"Ar", 0.3, 300, 0, 33},
+                        Case{"Ar", 0.3, 1000, -50, 34}}) {
+    synthetic::ScanConfig c = synthetic::find_preset("neon-two-lines").config;
+    c.geometry.delay_fs = {-6.0, 0.15, 81};
+    if (std::string(k.gas) == "Ar") {  // 3p and 3s at 70 eV photons, 190 as (as in the sweep)
+      c.gas = "Ar";
+      c.xuv.gaussian.center_eV = 70.0;
+      c.xuv.gaussian.transform_limited_fwhm_as = 190.0;
+      c.ir.pulse.peak_intensity_Wcm2 = 3e12;
+      c.geometry.energy_eV = {20.0, 0.25, 280};
+      c.lines[0].name = "3p";
+      c.lines[1].name = "3s";
+    }
+    c.lines[1].relative_strength = k.strength;
+    c.lines[1].delay_as = k.delay_as;
+    c.noise.peak_counts = k.peak;
+    const synthetic::SyntheticScan s = synthetic::generate_scan(c, k.seed);
+    PreprocessSummary ps;
+    (void)preprocess(s.trace, PreprocessOptions{}, &ps);
+    std::vector<double> bg(s.trace.energy_au.size());
+    for (std::size_t j = 0; j < bg.size(); ++j) bg[j] = ps.background.at(units::au_to_eV(s.trace.energy_au[j]));
+    LineDelayOptions o;
+    o.bootstrap = 12;
+    const LineDelayResult r = measure_line_delays(s.trace, ps.lines, bg, o);
+    REQUIRE(r.done);
+    const LineEntry* l = nullptr;
+    for (const LineEntry& e : r.lines)
+      if (!e.reference && e.relative_delay_as) l = &e;
+    REQUIRE(l);
+    double truth_ratio = 0;
+    for (const LineEntry& e : s.truth.lines)
+      if (!e.reference) truth_ratio = e.relative_strength.value_or(0);
+    INFO(k.gas << " strength " << k.strength << " peak " << k.peak << ": inserted " << k.delay_as << " as, measured "
+               << *l->relative_delay_as << " +- " << *l->relative_delay_as_sigma << " as; strength "
+               << *l->relative_strength << " +- " << *l->relative_strength_sigma << " (truth " << truth_ratio << ")");
+    CHECK(std::abs(*l->relative_delay_as - k.delay_as) < 3 * *l->relative_delay_as_sigma);
+    CHECK(*l->relative_delay_as_sigma <= 5.0);
+    const double tol = std::string(k.gas) == "Ar" ? 0.15 : 0.02;
+    CHECK(std::abs(*l->relative_strength - truth_ratio) < 3 * *l->relative_strength_sigma + tol * truth_ratio);
+  }
+}

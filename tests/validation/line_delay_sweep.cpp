@@ -5,7 +5,7 @@
 // chain, no bootstrap) and compared with the truth.
 // Writes OUT/validation_line_delays.csv, OUT/validation_line_delays_table.md and
 // OUT/figures/line_delay_*.png.
-// Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B]
+// Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar]
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -69,21 +69,33 @@ int main(int argc, char** argv) {
   const std::string out = argc > 1 ? argv[1] : "docs";
   bool quick = false;
   int retrieve_every = 5, bootstrap = 24;
+  double only_strength = 0, only_peak = 0;  // restrict the grid (0 = all)
+  double band_factor = LineDelayOptions().band_half_width_factor;
+  int band_iterations = LineDelayOptions().band_iterations;
+  std::string only_target;
   for (int i = 2; i < argc; ++i) {
     const std::string a = argv[i];
     if (a == "--quick") quick = true;
     else if (a == "--retrieve-every" && i + 1 < argc) retrieve_every = std::atoi(argv[++i]);
     else if (a == "--bootstrap" && i + 1 < argc) bootstrap = std::atoi(argv[++i]);
+    else if (a == "--strength" && i + 1 < argc) only_strength = std::atof(argv[++i]);
+    else if (a == "--peak" && i + 1 < argc) only_peak = std::atof(argv[++i]);
+    else if (a == "--band" && i + 1 < argc) band_factor = std::atof(argv[++i]);
+    else if (a == "--band-iterations" && i + 1 < argc) band_iterations = std::atoi(argv[++i]);
+    else if (a == "--target" && i + 1 < argc) only_target = argv[++i];
     else {
-      std::fprintf(stderr, "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B]\n");
+      std::fprintf(stderr, "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar]\n");
       return 2;
     }
   }
   std::filesystem::create_directories(out + "/figures");
-  const std::vector<std::string> targets = quick ? std::vector<std::string>{"Ne"} : std::vector<std::string>{"Ne", "Ar"};
+  std::vector<std::string> targets = quick ? std::vector<std::string>{"Ne"} : std::vector<std::string>{"Ne", "Ar"};
+  if (!only_target.empty()) targets = {only_target};
   const std::vector<double> delays = {-50, -20, 0, 20, 50};
-  const std::vector<double> strengths = quick ? std::vector<double>{0.3} : std::vector<double>{0.1, 0.3, 1.0};
-  const std::vector<double> peaks = quick ? std::vector<double>{300} : std::vector<double>{100, 300, 1000};
+  std::vector<double> strengths = quick ? std::vector<double>{0.3} : std::vector<double>{0.1, 0.3, 1.0};
+  std::vector<double> peaks = quick ? std::vector<double>{300} : std::vector<double>{100, 300, 1000};
+  if (only_strength > 0) strengths = {only_strength};
+  if (only_peak > 0) peaks = {only_peak};
   std::vector<Row> rows;
   int n = 0;
   for (const std::string& tg : targets)
@@ -112,6 +124,8 @@ int main(int argc, char** argv) {
             for (std::size_t j = 0; j < bg.size(); ++j) bg[j] = ps.background.at(units::au_to_eV(s.trace.energy_au[j]));
             LineDelayOptions o;
             o.bootstrap = bootstrap;
+            o.band_half_width_factor = band_factor;
+            o.band_iterations = band_iterations;
             o.seed = static_cast<unsigned long long>(n);
             const LineDelayResult ld = measure_line_delays(s.trace, ps.lines, bg, o);
             for (const LineEntry& l : ld.lines)
@@ -123,6 +137,13 @@ int main(int argc, char** argv) {
                 r.strength_sigma = l.relative_strength_sigma.value_or(0);
               }
             if (ld.delay_cov_sigma_as.size() >= 2) r.sigma_fit_as = ld.delay_cov_sigma_as[1];
+            if (!r.found) {
+              for (const auto& w : ld.warnings) std::fprintf(stderr, "  warning: %s\n", w.c_str());
+              for (const auto& l : ps.lines)
+                std::fprintf(stderr, "  line %s at %.2f eV, strength %.3f +- %.3f%s\n", l.name.c_str(),
+                             l.kinetic_energy_eV.value_or(0), l.relative_strength.value_or(-1),
+                             l.relative_strength_sigma.value_or(-1), l.reference ? " (reference)" : "");
+            }
             r.chi2 = ld.reduced_chi2;
             if (retrieve_every > 0 && (n - 1) % retrieve_every == 0) {
               RetrieveOptions ro;
