@@ -385,17 +385,8 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
   return est;
 }
 
-LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEntry>& lines,
-                                    const std::vector<double>& bg, const LineDelayOptions& o) {
-  if (const std::string e = o.validate(); !e.empty()) throw usage_error("line delays: " + e);
-  LineDelayResult res;
-  res.lines = lines;
-  if (o.names.size() == 1 && o.names[0] == "none") {
-    res.warnings.clear();
-    return res;
-  }
-  const std::string gas = trace.meta.gas;
-  // Names asked for must be among the lines.
+void check_line_names(const std::vector<LineEntry>& lines, const LineDelayOptions& o, const std::string& gas) {
+  if (o.names.size() == 1 && o.names[0] == "none") return;
   for (const std::string& n : o.names) {
     bool known = false;
     for (const LineEntry& l : lines) known = known || n == l.name || n == label_of(l, gas) || n == l.gas + " " + l.name;
@@ -406,6 +397,19 @@ LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEn
                         (list.empty() ? std::string("(none found)") : list) + ", or none");
     }
   }
+}
+
+LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEntry>& lines,
+                                    const std::vector<double>& bg, const LineDelayOptions& o) {
+  if (const std::string e = o.validate(); !e.empty()) throw usage_error("line delays: " + e);
+  LineDelayResult res;
+  res.lines = lines;
+  if (o.names.size() == 1 && o.names[0] == "none") {
+    res.warnings.clear();
+    return res;
+  }
+  const std::string gas = trace.meta.gas;
+  check_line_names(lines, o, gas);
   int ref = -1;
   for (std::size_t k = 0; k < lines.size(); ++k)
     if (lines[k].reference) ref = static_cast<int>(k);

@@ -144,6 +144,10 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& counts, const
                                             const std::vector<LineEntry>& lines, double ir_omega_au,
                                             const LineDelayOptions& options);
 
+/// Throws sw::Error (kUsage) when a name in options.names (other than "none") is not among the
+/// lines (matched by name, or "GAS name"); the message lists the scan's lines.
+void check_line_names(const std::vector<LineEntry>& lines, const LineDelayOptions& options, const std::string& scan_gas);
+
 /// The whole analysis (header comment) on a scan whose lines were found by preprocessing:
 /// `lines` as in PreprocessSummary::lines (the reference flagged), background per energy bin
 /// of the trace (counts per row). Throws sw::Error (kUsage) for bad options or a name in

@@ -163,6 +163,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   const auto t_start = std::chrono::steady_clock::now();
   RetrieveOutput out;
   out.problem = preprocess(trace, opt.preprocess, &out.preprocess);
+  check_line_names(out.preprocess.lines, opt.line_delays, trace.meta.gas);  // before any engine runs
   const RetrievalProblem& pr = out.problem;
 
   // One engine run on one problem, progress reported under `stage`, time origin fixed.

@@ -13,6 +13,7 @@
 #include "retrieval/units.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/test_support.h"
 
 using namespace sw;
 
@@ -227,4 +228,20 @@ TEST_CASE("line delays: representative rows of the validation sweep", "[line_del
     const double tol = std::string(k.gas) == "Ar" ? 0.15 : 0.02;
     CHECK(std::abs(*l->relative_strength - truth_ratio) < 3 * *l->relative_strength_sigma + tol * truth_ratio);
   }
+}
+
+TEST_CASE("retrieve command: the lines summary, the figure and --lines", "[line_delays][cli]") {
+  // The preset's 2s line is emitted 10 as after 2p (synthetic/presets.cpp).
+  test::TempDir d("line_delays_cli");
+  const std::string scan = d / "scan" + "/neon-two-lines.json";
+  REQUIRE(test::run_cli("simulate --preset neon-two-lines -q -o " + d / "scan").code == 0);
+  const test::CliRun bad = test::run_cli("retrieve " + scan + " -q -o " + d / "bad" + " --lines 3s");
+  CHECK(bad.code == 2);
+  CHECK(bad.out.find("its lines are 2p, 2s") != std::string::npos);
+  CHECK_FALSE(std::filesystem::exists(d / "bad"));
+  const test::CliRun ok = test::run_cli("retrieve " + scan + " -q -o " + d / "ok" + " --bootstrap 0 --iterations 30");
+  INFO(ok.out);
+  CHECK((ok.code == 0 || ok.code == 4));
+  CHECK(ok.out.find("lines: Ne 2p (reference); Ne 2s delay ") != std::string::npos);
+  CHECK(std::filesystem::exists(d / "ok" + "/line_streaking.png"));
 }
