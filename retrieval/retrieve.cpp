@@ -425,8 +425,13 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   const PreprocessSummary& s = out.preprocess;
   append_preprocess_params(s, &res.extra);
   if (res.lines.empty()) res.lines = s.lines;
-  // Relative delays of the other lines (retrieval/line_delays.h), on the whole scan.
-  if (res.lines.size() >= 2) {
+  // Relative delays of the other lines (retrieval/line_delays.h), on the whole scan; not on a
+  // harmonic comb (each line is then a comb of harmonics: the sideband analysis applies).
+  const bool comb = trace.meta.kind == TraceKind::kRabbitt || v.pulse_class == PulseClass::kTrain;
+  if (res.lines.size() >= 2 && comb && !(opt.line_delays.names.size() == 1 && opt.line_delays.names[0] == "none"))
+    res.warnings.push_back("line delays not measured: the scan is a pulse train (harmonic comb); the "
+                           "centre-of-energy method assumes one isolated line per ionic state");
+  if (res.lines.size() >= 2 && !comb) {
     std::vector<double> bg_bin(trace.energy_au.size());
     for (std::size_t j = 0; j < bg_bin.size(); ++j) bg_bin[j] = s.background.at(units::au_to_eV(trace.energy_au[j]));
     LineDelayOptions lo = opt.line_delays;
