@@ -154,6 +154,8 @@ const std::vector<HeadlineQuantity>& headline_quantities() {
       {"satellite_intensity_ratio", "satellite / main intensity",
        &SummaryRow::satellite_intensity_ratio, &SummaryRow::satellite_intensity_ratio_sigma},
       {"trace_error", "trace error G", &SummaryRow::trace_error, nullptr},
+      {"line_delay_as", "second-line delay (as)", &SummaryRow::line_delay_as, &SummaryRow::line_delay_as_sigma},
+      {"line_strength", "second-line strength", &SummaryRow::line_strength, &SummaryRow::line_strength_sigma},
   };
   return q;
 }
@@ -167,7 +169,7 @@ const std::vector<std::string>& summary_columns() {
     }
     for (const char* s :
          {"seconds", "converged", "trusted", "failed_checks", "reused", "acquired", "input", "input_hash",
-          "report"})
+          "report", "delay_line"})
       v.push_back(s);
     return v;
   }();
@@ -205,6 +207,17 @@ SummaryRow row_from_result(const std::string& scan, const AnalysisResult& r) {
     row.seconds = r.fit->seconds;
   }
   if (const auto s = param_number(r.extra, "batch.seconds")) row.seconds = s;
+  for (const LineEntry& l : r.lines) {
+    if (l.reference || !l.relative_delay_as) continue;
+    row.line_delay_as = l.relative_delay_as;
+    row.line_delay_as_sigma = l.relative_delay_as_sigma;
+    row.line_strength = l.relative_strength;
+    row.line_strength_sigma = l.relative_strength_sigma;
+    row.delay_line = l.name;
+    for (const LineEntry& ref : r.lines)
+      if (ref.reference) row.delay_line += " vs " + ref.name;
+    break;
+  }
   if (r.quality) {
     row.trusted = r.quality->trusted;
     for (const auto& f : r.quality->failed) row.failed_checks += (row.failed_checks.empty() ? "" : ";") + f;
@@ -234,7 +247,7 @@ std::string summary_csv(const std::vector<SummaryRow>& rows) {
     cells.push_back(r.trusted ? (*r.trusted ? "true" : "false") : "");
     cells.push_back(r.failed_checks);
     cells.push_back(r.reused ? "true" : "false");
-    for (const std::string* s : {&r.acquired, &r.input, &r.input_hash, &r.report})
+    for (const std::string* s : {&r.acquired, &r.input, &r.input_hash, &r.report, &r.delay_line})
       cells.push_back(*s);
     for (std::size_t k = 0; k < cells.size(); ++k) {
       if (k) out += ',';
@@ -276,6 +289,7 @@ std::string summary_json(const std::vector<SummaryRow>& rows,
     if (!r.input.empty()) s["input"] = r.input;
     if (!r.input_hash.empty()) s["input_hash"] = r.input_hash;
     if (!r.report.empty()) s["report"] = r.report;
+    if (!r.delay_line.empty()) s["delay_line"] = r.delay_line;
     scans.push_back(std::move(s));
   }
   j["scans"] = std::move(scans);
@@ -331,6 +345,7 @@ std::vector<SummaryRow> rows_from_summary_json(const std::string& text, const st
     str("input", &r.input);
     str("input_hash", &r.input_hash);
     str("report", &r.report);
+    str("delay_line", &r.delay_line);
     rows.push_back(std::move(r));
   }
   return rows;

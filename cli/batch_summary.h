@@ -32,6 +32,10 @@ struct SummaryRow {
   std::optional<double> peak_vector_potential_au, peak_vector_potential_au_sigma;
   std::optional<double> satellite_intensity_ratio, satellite_intensity_ratio_sigma;
   std::optional<double> trace_error;
+  /// The first analysed non-reference photoelectron line (result lines): its relative delay
+  /// (raw, as) and strength, with sigmas; delay_line names it ("2s vs 2p"; "" when none).
+  std::optional<double> line_delay_as, line_delay_as_sigma, line_strength, line_strength_sigma;
+  std::string delay_line;
   std::optional<double> seconds;  ///< wall time of the scan's analysis
   std::optional<bool> converged;  ///< fit.converged when the analysis has a fit
   std::optional<bool> trusted;    ///< quality.trusted when the result has a quality section
@@ -53,7 +57,7 @@ struct HeadlineQuantity {
   std::optional<double> SummaryRow::*sigma;
 };
 /// fwhm_as, gdd_as2, attochirp_as_per_eV, peak_vector_potential_au, satellite_intensity_ratio,
-/// trace_error, in the column order of summary.csv.
+/// trace_error, line_delay_as, line_strength, in the column order of summary.csv.
 const std::vector<HeadlineQuantity>& headline_quantities();
 
 /// The summary row of a successful analysis (status ok). Reads batch.seconds / fit.seconds,

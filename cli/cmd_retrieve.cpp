@@ -1,4 +1,5 @@
 // `streakwright retrieve SCAN.json --out DIR`: reconstruct the XUV pulse and the IR field.
+#include <algorithm>
 #include <cstdio>
 #include <filesystem>
 #include <memory>
@@ -22,6 +23,7 @@ struct RetrieveArgs {
   RetrieveOptions options;
   std::string dipole = "constant";
   std::string energy_window;  ///< --energy-window LO:HI (eV), "" = none
+  std::string lines;          ///< --lines NAME[,NAME...] or none; "" = every line found
   bool quiet = false;
   bool allow_outside_data = false;
   plot::FigureFormat figure_format = plot::FigureFormat::kPng;
@@ -44,6 +46,24 @@ std::string summary_line(const AnalysisResult& r) {
   s << "; " << to_string(r.verdict->pulse_class) << " (satellite " << 100 * r.verdict->satellite_intensity_ratio.value_or(0)
     << " %); G " << r.fit->trace_error.value_or(0) << (r.fit->converged.value_or(false) ? "" : " NOT CONVERGED")
     << "; " << r.engine;
+  // Photoelectron lines with their relative delays (retrieval/line_delays.h).
+  if (r.lines.size() >= 2) {
+    s << "\nlines:";
+    for (const LineEntry& l : r.lines) {
+      s << " " << (l.gas.empty() ? "" : l.gas + " ") << l.name;
+      if (l.reference) s << " (reference)";
+      else if (l.relative_delay_as) {
+        s << " delay " << *l.relative_delay_as;
+        if (l.relative_delay_as_sigma) s << " +- " << *l.relative_delay_as_sigma;
+        s << " as";
+        if (l.relative_delay_as_corrected) s << " (" << *l.relative_delay_as_corrected << " as Coulomb-laser corrected)";
+        if (l.relative_strength) s << ", strength " << *l.relative_strength;
+      } else {
+        s << " (no delay)";
+      }
+      s << ";";
+    }
+  }
   return s.str();
 }
 
@@ -51,6 +71,18 @@ int run_retrieve(RetrieveArgs& a) {
   if (!a.energy_window.empty())
     parse_energy_window(a.energy_window, "--energy-window", &a.options.preprocess.energy_window_lo_eV,
                         &a.options.preprocess.energy_window_hi_eV);
+  if (!a.lines.empty()) {
+    a.options.line_delays.names.clear();
+    std::stringstream ls(a.lines);
+    for (std::string n; std::getline(ls, n, ',');) {
+      if (n.empty()) throw usage_error("--lines " + a.lines + ": an empty name; expected NAME[,NAME...] (e.g. 2s) or none");
+      a.options.line_delays.names.push_back(n);
+    }
+    if (a.options.line_delays.names.size() > 1 &&
+        std::find(a.options.line_delays.names.begin(), a.options.line_delays.names.end(), "none") !=
+            a.options.line_delays.names.end())
+      throw usage_error("--lines " + a.lines + ": none cannot be combined with line names");
+  }
   if (!parse_dipole_kind(a.dipole, &a.options.preprocess.dipole))
     throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
   if (a.options.engine != "auto") (void)make_engine(a.options.engine);  // unknown names listed
@@ -111,6 +143,10 @@ void add_retrieve_command(CLI::App& app) {
                   "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV "
                   "and the automatic window around the strongest line");
   add_figure_format_option(cmd, &a->figure_format);
+  cmd->add_option("--lines", a->lines,
+                  "photoelectron lines whose delay relative to the reference (strongest) line is measured: "
+                  "names such as 2s (comma-separated; a line of another gas as 'Kr 4p'), or none; default: every "
+                  "line found");
   cmd->add_flag("--quiet,-q", a->quiet, "no progress on stderr");
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,
                 "read a data file outside the sidecar's folder tree ('..', absolute or symlinked "

@@ -199,6 +199,10 @@ ojson to_ojson(const AnalysisResult& r) {
       if (l.reference) o["reference"] = true;
       o["analysed"] = l.analysed;
       if (!l.source.empty()) o["source"] = l.source;
+      if (!l.delay_method.empty()) o["delay_method"] = l.delay_method;
+      put(o, k, "clc_delay_as", l.clc_delay_as);
+      put(o, k, "clc_correction_as", l.clc_correction_as);
+      put(o, k, "relative_delay_as_corrected", l.relative_delay_as_corrected);
       ls.push_back(std::move(o));
     }
     j["lines"] = std::move(ls);
@@ -507,6 +511,10 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
         opt("relative_delay_as", &l.relative_delay_as);
         opt("relative_delay_as_sigma", &l.relative_delay_as_sigma);
         opt("kinetic_energy_eV", &l.kinetic_energy_eV);
+        opt("clc_delay_as", &l.clc_delay_as);
+        opt("clc_correction_as", &l.clc_correction_as);
+        opt("relative_delay_as_corrected", &l.relative_delay_as_corrected);
+        if (o.contains("delay_method")) l.delay_method = rd.string(o["delay_method"], k + ".delay_method");
         for (const char* f : {"reference", "analysed"})
           if (o.contains(f)) {
             if (!o[f].is_boolean()) rd.fail(k + "." + f, "true or false");

@@ -234,6 +234,40 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   }
   plot_lines(lc, path("convergence.png"));
 
+  // Each analysed line's first moment versus delay (minus its fitted field-free centre) with
+  // the joint fit (retrieval/line_delays.h).
+  if (out.line_curves.size() >= 2) {
+    LinePlot ll;
+    ll.title = "photoelectron lines: first moment versus delay, joint fit";
+    for (std::size_t k = 1; k < out.line_curves.size(); ++k)
+      ll.title += (k == 1 ? " (" : ", ") + out.line_curves[k].name + " shifted " + fmt(out.line_curves[k].shift_as, 3) + " as";
+    ll.title += ")";
+    ll.x_label = "delay (fs)";
+    ll.y_label = "first moment - field-free centre (eV)";
+    ll.zero_line = true;
+    for (std::size_t k = 0; k < out.line_curves.size(); ++k) {
+      const LineCurve& cv = out.line_curves[k];
+      Series pts, fit;
+      pts.x = cv.delay_fs;
+      fit.x = cv.delay_fs;
+      for (std::size_t i = 0; i < cv.delay_fs.size(); ++i) {
+        pts.y.push_back(cv.centroid_eV[i] - cv.field_free_eV);
+        fit.y.push_back(cv.model_eV[i] - cv.field_free_eV);
+      }
+      pts.y_err = cv.sigma_eV;
+      pts.label = cv.name + (k == 0 ? " (reference)" : "") + ": measured";
+      pts.line = false;
+      pts.markers = true;
+      pts.thickness_px = 1;
+      pts.color = plot::Rgb{static_cast<std::uint8_t>(k == 0 ? 40 : 200), 80, static_cast<std::uint8_t>(k == 0 ? 200 : 40)};
+      fit.label = cv.name + ": fit (a + g [-p A(tau + delta) + A^2/2])";
+      fit.color = pts.color;
+      ll.series.push_back(pts);
+      ll.series.push_back(fit);
+    }
+    plot_lines(ll, path("line_streaking.png"));
+  }
+
   // Report.
   HtmlReport rep("streakwright retrieval: " + fs::path(trace.meta.source).filename().string());
   rep.set_footer(std::string("streakwright ") + STREAKWRIGHT_VERSION);
@@ -281,6 +315,24 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   rep.add_figure(path("xuv_spectrum.png"), "Retrieved XUV spectrum and spectral phase; dashed: field-free photoelectron spectrum shifted by Ip.");
   rep.add_figure(path("ir_field.png"), "Retrieved IR vector potential and electric field on the IR time axis (delay convention tau = t_XUV - t_IR).");
   rep.add_figure(path("convergence.png"), "Trace error per iteration for each engine of the chain.");
+  if (out.line_curves.size() >= 2) {
+    std::vector<std::vector<std::string>> lt;
+    for (const LineEntry& l : res.lines) {
+      auto num = [](const std::optional<double>& v, const std::optional<double>& sg) {
+        if (!v) return std::string("-");
+        return fmt(*v, 4) + (sg ? " +- " + fmt(*sg, 2) : std::string());
+      };
+      lt.push_back({l.gas + " " + l.name + (l.reference ? " (reference)" : ""), fmt(l.ionization_energy_eV, 6),
+                    num(l.relative_strength, l.relative_strength_sigma), num(l.relative_delay_as, l.relative_delay_as_sigma),
+                    num(l.clc_correction_as, std::nullopt), num(l.relative_delay_as_corrected, l.relative_delay_as_sigma)});
+    }
+    rep.add_table({"line", "Ip (eV)", "relative strength", "relative delay (as)", "Coulomb-laser correction (as)",
+                   "corrected delay (as)"},
+                  lt, "Photoelectron lines: delays by the centre-of-energy method (positive = emitted later than the reference)");
+    rep.add_figure(path("line_streaking.png"),
+                   "First moment of each line's band versus delay, minus its field-free centre, with the joint fit of a "
+                   "common vector potential shifted by each line's delay.");
+  }
   std::vector<std::vector<std::string>> settings;
   for (const Param& p : res.extra) {
     std::string v;

@@ -126,6 +126,11 @@ struct LineEntry {
   bool reference = false;             ///< the line the pulse was retrieved from / delays refer to
   bool analysed = false;              ///< true for the line(s) the analysis used
   std::string source;                 ///< "sidecar", "gas table", "detected"
+  /// Line-delay analysis (retrieval/line_delays.h), added beside the contract's keys:
+  std::string delay_method;           ///< "centre of energy" when a delay was measured
+  std::optional<double> clc_delay_as;         ///< this line's Coulomb-laser coupling delay
+  std::optional<double> clc_correction_as;    ///< t_CLC(line) - t_CLC(reference), subtracted
+  std::optional<double> relative_delay_as_corrected;  ///< relative_delay_as - clc_correction_as
 };
 
 struct AnalysisResult {

@@ -31,6 +31,7 @@ std::string RetrieveOptions::validate() const {
     s << "method_sigma_relative = " << method_sigma_relative << ": must be in [0, 1)";
   else if (auto e = preprocess.validate(); !e.empty()) s << "preprocess." << e;
   else if (auto e2 = quality.validate(); !e2.empty()) s << "quality." << e2;
+  else if (auto e3 = line_delays.validate(); !e3.empty()) s << "line_delays." << e3;
   return s.str();
 }
 
@@ -162,6 +163,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   const auto t_start = std::chrono::steady_clock::now();
   RetrieveOutput out;
   out.problem = preprocess(trace, opt.preprocess, &out.preprocess);
+  check_line_names(out.preprocess.lines, opt.line_delays, trace.meta.gas);  // before any engine runs
   const RetrievalProblem& pr = out.problem;
 
   // One engine run on one problem, progress reported under `stage`, time origin fixed.
@@ -423,6 +425,25 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   const PreprocessSummary& s = out.preprocess;
   append_preprocess_params(s, &res.extra);
   if (res.lines.empty()) res.lines = s.lines;
+  // Relative delays of the other lines (retrieval/line_delays.h), on the whole scan; not on a
+  // harmonic comb (each line is then a comb of harmonics: the sideband analysis applies).
+  const bool comb = trace.meta.kind == TraceKind::kRabbitt || v.pulse_class == PulseClass::kTrain;
+  if (res.lines.size() >= 2 && comb && !(opt.line_delays.names.size() == 1 && opt.line_delays.names[0] == "none"))
+    res.warnings.push_back("line delays not measured: the scan is a pulse train (harmonic comb); the "
+                           "centre-of-energy method assumes one isolated line per ionic state");
+  if (res.lines.size() >= 2 && !comb) {
+    std::vector<double> bg_bin(trace.energy_au.size());
+    for (std::size_t j = 0; j < bg_bin.size(); ++j) bg_bin[j] = s.background.at(units::au_to_eV(trace.energy_au[j]));
+    LineDelayOptions lo = opt.line_delays;
+    lo.seed = opt.seed;
+    LineDelayResult ld = measure_line_delays(trace, res.lines, bg_bin, lo);
+    for (auto& w : ld.warnings) res.warnings.push_back(std::move(w));
+    if (ld.done) {
+      res.lines = std::move(ld.lines);
+      for (auto& x : ld.extra) res.extra.push_back(std::move(x));
+      out.line_curves = std::move(ld.curves);
+    }
+  }
   P("fit.model", rec.model);
   P("fit.noise_floor_trace_error", rec.noise_floor_trace_error);
   P("fit.scale", rec.scale);

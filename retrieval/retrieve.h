@@ -52,6 +52,7 @@
 #include <vector>
 
 #include "retrieval/engine.h"
+#include "retrieval/line_delays.h"
 #include "retrieval/preprocess.h"
 #include "retrieval/quality.h"
 #include "retrieval/result.h"
@@ -90,6 +91,9 @@ struct RetrieveOptions {
   PreprocessOptions preprocess;
   /// Limits of the quality checks (retrieval/quality.h).
   QualityOptions quality;
+  /// Relative delays of the other photoelectron lines (retrieval/line_delays.h); run when
+  /// preprocessing found two or more lines; its seed follows `seed`.
+  LineDelayOptions line_delays;
   std::vector<std::pair<std::string, std::string>> engine_extra;
   std::string validate() const;
 };
@@ -108,6 +112,9 @@ struct RetrieveOutput {
   std::string full_model_start;                ///< auto: where the full model's result started
   /// Bootstrap replicas' headline numbers (fwhm_as, gdd_as2, A0, satellite ratio).
   std::vector<std::array<double, 4>> bootstrap_samples;
+  /// First moment of each analysed line versus delay with the joint fit (reference first;
+  /// empty when fewer than two lines were analysed).
+  std::vector<LineCurve> line_curves;
 };
 
 /// Runs the pipeline. Throws sw::Error for bad options (kUsage) or data (kInput); a

@@ -1,0 +1,247 @@
+// Relative photoemission delays of two photoelectron lines (retrieval/line_delays.h).
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <random>
+
+#include "retrieval/atomic_delay.h"
+#include "retrieval/error.h"
+#include "retrieval/gas.h"
+#include "retrieval/line_delays.h"
+#include "retrieval/preprocess.h"
+#include "retrieval/retrieve.h"
+#include "retrieval/units.h"
+#include "synthetic/generator.h"
+#include "synthetic/presets.h"
+#include "tests/test_support.h"
+
+using namespace sw;
+
+namespace {
+
+LineEntry line(const std::string& name, double W_eV, bool reference) {
+  LineEntry l;
+  l.name = name;
+  l.gas = "Ne";
+  l.kinetic_energy_eV = W_eV;
+  l.reference = reference;
+  l.relative_strength = reference ? 1.0 : 0.5;
+  l.relative_strength_sigma = 0.01;
+  return l;
+}
+
+// A scan built by hand from the classical streaking picture alone (no generator, no SFA): each
+// line is a Gaussian of rms width `rms_eV` centred at W_k - p_k A(tau + delta_k) + A^2 / 2,
+// A(t) = A0 exp(-t^2 / T^2) cos(omega t) (DESIGN.md: p_f = p_i - A(t_i); an electron emitted
+// delta_k later sees A(tau + delta_k)). Poisson counts.
+Trace classical_scan(double W1_eV, double W2_eV, double strength2, double delay2_as, double peak, unsigned seed) {
+  const double omega = units::wavelength_nm_to_omega_au(800.0);
+  const double A0 = 0.15, T = units::fs_to_au(4.0), rms = units::eV_to_au(3.0);
+  Trace t;
+  t.meta.gas = "Ne";
+  t.meta.ir_wavelength_nm = 800.0;
+  for (int j = 0; j < 320; ++j) t.energy_au.push_back(units::eV_to_au(40.0 + 0.3 * j));
+  for (int i = 0; i < 101; ++i) t.delay_au.push_back(units::fs_to_au(-6.0 + 0.12 * i));
+  t.counts.setZero(101, 320);
+  std::mt19937_64 rng(seed);
+  auto A = [&](double s) { return A0 * std::exp(-s * s / (T * T)) * std::cos(omega * s); };
+  const double W1 = units::eV_to_au(W1_eV), W2 = units::eV_to_au(W2_eV);
+  const double p1 = std::sqrt(2 * W1), p2 = std::sqrt(2 * W2), d2 = units::as_to_au(delay2_as);
+  for (int i = 0; i < 101; ++i) {
+    const double a1 = A(t.delay_au[static_cast<std::size_t>(i)]);
+    const double a2 = A(t.delay_au[static_cast<std::size_t>(i)] + d2);
+    const double c1 = W1 - p1 * a1 + 0.5 * a1 * a1, c2 = W2 - p2 * a2 + 0.5 * a2 * a2;
+    for (int j = 0; j < 320; ++j) {
+      const double w = t.energy_au[static_cast<std::size_t>(j)];
+      const double mu = peak * (std::exp(-0.5 * std::pow((w - c1) / rms, 2)) +
+                                strength2 * std::exp(-0.5 * std::pow((w - c2) / rms, 2)));
+      t.counts(i, j) = static_cast<double>(std::poisson_distribution<long long>(mu)(rng));
+    }
+  }
+  return t;
+}
+
+}  // namespace
+
+TEST_CASE("line-delay options: defaults validate, bad fields are named", "[line_delays]") {
+  LineDelayOptions o;
+  CHECK(o.validate().empty());
+  o.bootstrap = 1;
+  CHECK(o.validate().find("bootstrap = 1") != std::string::npos);
+  o = {};
+  o.ion_charge = 0;
+  CHECK(o.validate().find("ion_charge") != std::string::npos);
+}
+
+TEST_CASE("Coulomb-laser coupling delay: value and agreement with the RABBITT cc delay", "[line_delays][clc]") {
+  const double omega = units::wavelength_nm_to_omega_au(800.0);
+  const double T = units::period_au(omega);
+  // Hand evaluation of t_CLC = Z/(2W)^1.5 [2 - ln(W T)] (Nagele et al., J. Phys. B 44, 081001
+  // (2011), formula from memory) at W = 100 eV, T = 2.6685 fs: (2 x 3.6749)^1.5 = 19.925,
+  // W T = 405.4, 2 - ln 405.4 = -4.0048 -> -0.20099 a.u. = -4.862 as (hand/calculator).
+  CHECK(units::au_to_as(coulomb_laser_delay_au(units::eV_to_au(100.0), T)) == Approx(-4.862).margin(0.01));
+  // Independent theory: the continuum-continuum delay of RABBITT (asymptotic formula, J. M.
+  // Dahlstrom, A. L'Huillier and A. Maquet, J. Phys. B 45, 183001 (2012)); R. Pazourek, S.
+  // Nagele and J. Burgdoerfer, Rev. Mod. Phys. 87, 765 (2015) show that t_CLC and t_cc agree
+  // closely well above threshold (from memory). Required here: within 25 % and 1.5 as between
+  // 40 and 120 eV, both negative.
+  for (double W_eV : {40.0, 70.0, 100.0, 120.0}) {
+    const double clc = units::au_to_as(coulomb_laser_delay_au(units::eV_to_au(W_eV), T));
+    const double cc = units::au_to_as(continuum_continuum_delay_au(units::eV_to_au(W_eV), omega));
+    INFO("W = " << W_eV << " eV: t_CLC " << clc << " as, t_cc " << cc << " as");
+    CHECK(clc < 0);
+    CHECK(cc < 0);
+    CHECK(std::abs(clc - cc) < std::max(1.5, 0.25 * std::abs(cc)));
+  }
+}
+
+TEST_CASE("centre of energy: a hand-built classical scan gives the inserted delay with its sign", "[line_delays]") {
+  // The scan's model is the classical picture itself, so the method must find the inserted
+  // delay within its sigma (3 sigma), positive when the second line is emitted later.
+  LineDelayOptions o;
+  o.bootstrap = 8;
+  o.coulomb_laser_correction = false;
+  const std::vector<double> bg(320, 0.0);
+  for (double d : {-40.0, 25.0}) {
+    const Trace t = classical_scan(95.0, 68.0, 0.4, d, 200.0, d > 0 ? 3u : 4u);
+    const std::vector<LineEntry> lines = {line("2p", 95.0, true), line("2s", 68.0, false)};
+    const LineDelayResult r = measure_line_delays(t, lines, bg, o);
+    REQUIRE(r.done);
+    REQUIRE(r.lines[1].relative_delay_as);
+    const double got = *r.lines[1].relative_delay_as, sig = *r.lines[1].relative_delay_as_sigma;
+    INFO("inserted " << d << " as, measured " << got << " +- " << sig << " as, chi2_red " << r.reduced_chi2);
+    CHECK(std::abs(got - d) < 3 * sig);
+    CHECK(sig < 5.0);
+    CHECK(sig > 0.05);
+    // Strength: equal widths, so the band-count ratio is the amplitude ratio 0.4 (within 3 sigma
+    // plus the share of a Gaussian outside +-3 rms, 0.27 %: textbook normal table).
+    CHECK(std::abs(*r.lines[1].relative_strength - 0.4) < 3 * *r.lines[1].relative_strength_sigma + 0.004);
+  }
+}
+
+TEST_CASE("line delays: names select lines, none switches off, unknown names are refused", "[line_delays]") {
+  const Trace t = classical_scan(95.0, 68.0, 0.4, 0.0, 100.0, 5u);
+  const std::vector<LineEntry> lines = {line("2p", 95.0, true), line("2s", 68.0, false)};
+  const std::vector<double> bg(320, 0.0);
+  LineDelayOptions o;
+  o.bootstrap = 2;
+  o.names = {"none"};
+  CHECK_FALSE(measure_line_delays(t, lines, bg, o).done);
+  o.names = {"3s"};
+  try {
+    (void)measure_line_delays(t, lines, bg, o);
+    FAIL("expected sw::Error");
+  } catch (const Error& e) {
+    CHECK(std::string(e.what()).find("2p, 2s") != std::string::npos);
+  }
+  o.names = {"2s"};
+  CHECK(measure_line_delays(t, lines, bg, o).done);
+}
+
+TEST_CASE("retrieve on a generated neon 2s/2p scan names both lines and gives their delay", "[line_delays][retrieve]") {
+  // The generator's SFA amplitude by direct quadrature, the 2s line delayed by 30 as
+  // (E_X(t - delay), synthetic/scan_config.h), 0.3 of the 2p cross-section.
+  synthetic::ScanConfig c = synthetic::find_preset("neon-two-lines").config;
+  c.lines[1].delay_as = 30.0;
+  c.geometry.delay_fs = {-6.0, 0.15, 81};
+  const synthetic::SyntheticScan s = synthetic::generate_scan(c, 11);
+  RetrieveOptions ro;
+  ro.bootstrap = 2;
+  ro.iterations = 60;
+  ro.line_delays.bootstrap = 12;
+  const RetrieveOutput out = retrieve(s.trace, ro);
+  const auto& L = out.result.lines;
+  REQUIRE(L.size() >= 2);
+  const LineEntry* s2 = nullptr;
+  for (const LineEntry& l : L)
+    if (l.name == "2s") s2 = &l;
+  REQUIRE(s2);
+  CHECK(s2->analysed);
+  REQUIRE(s2->relative_delay_as);
+  REQUIRE(s2->relative_delay_as_sigma);
+  INFO("2s delay " << *s2->relative_delay_as << " +- " << *s2->relative_delay_as_sigma << " as");
+  CHECK(std::abs(*s2->relative_delay_as - 30.0) < 3 * *s2->relative_delay_as_sigma);
+  CHECK(*s2->relative_delay_as_sigma < 5.0);
+  // The Coulomb-laser correction of 2s (71.5 eV) against 2p (98.4 eV): t_CLC(71.5) - t_CLC(98.4)
+  // = -7.4 - (-5.0) = about -2.4 as (formula of the CLC test case, evaluated by hand).
+  REQUIRE(s2->clc_correction_as);
+  CHECK(*s2->clc_correction_as == Approx(-2.4).margin(0.4));
+  CHECK(*s2->relative_delay_as_corrected == Approx(*s2->relative_delay_as - *s2->clc_correction_as));
+  // Strength against the truth record's ratio of delay-integrated counts.
+  double truth_ratio = 0;
+  for (const LineEntry& l : s.truth.lines)
+    if (l.name == "2s") truth_ratio = l.relative_strength.value_or(0);
+  REQUIRE(truth_ratio > 0);
+  CHECK(std::abs(*s2->relative_strength / truth_ratio - 1.0) < 0.05);
+  REQUIRE(out.line_curves.size() == 2);
+}
+
+TEST_CASE("line delays: representative rows of the validation sweep", "[line_delays][validation]") {
+  // tests/validation/line_delay_sweep.cpp (docs/validation.md "Two photoelectron lines"): the
+  // issue's targets -- inserted delay within 3 sigma, sigma <= 5 as at >= 300 peak counts.
+  // Inserted delay and strength are the generator's (synthetic/scan_config.h LineSpec); the
+  // truth record gives the ratio of delay-integrated counts.
+  struct Case {
+    const char* gas;
+    double strength, peak, delay_as;
+    unsigned long long seed;
+  };
+  // Argon 3s/3p (13.5 eV apart) comes out 10 % strong on the sweep (overlapping tails): its
+  // strength is held to 15 %; neon (27 eV apart) to 2 % beyond 3 sigma.
+  for (const Case& k : {Case{"Ne", 0.1, 300, 50, 31}, Case{"Ne", 0.3, 1000, -20, 32}, Case{"Ar", 0.3, 300, 0, 33},
+                        Case{"Ar", 0.3, 1000, -50, 34}}) {
+    synthetic::ScanConfig c = synthetic::find_preset("neon-two-lines").config;
+    c.geometry.delay_fs = {-6.0, 0.15, 81};
+    if (std::string(k.gas) == "Ar") {  // 3p and 3s at 70 eV photons, 190 as (as in the sweep)
+      c.gas = "Ar";
+      c.xuv.gaussian.center_eV = 70.0;
+      c.xuv.gaussian.transform_limited_fwhm_as = 190.0;
+      c.ir.pulse.peak_intensity_Wcm2 = 3e12;
+      c.geometry.energy_eV = {20.0, 0.25, 280};
+      c.lines[0].name = "3p";
+      c.lines[1].name = "3s";
+    }
+    c.lines[1].relative_strength = k.strength;
+    c.lines[1].delay_as = k.delay_as;
+    c.noise.peak_counts = k.peak;
+    const synthetic::SyntheticScan s = synthetic::generate_scan(c, k.seed);
+    PreprocessSummary ps;
+    (void)preprocess(s.trace, PreprocessOptions{}, &ps);
+    std::vector<double> bg(s.trace.energy_au.size());
+    for (std::size_t j = 0; j < bg.size(); ++j) bg[j] = ps.background.at(units::au_to_eV(s.trace.energy_au[j]));
+    LineDelayOptions o;
+    o.bootstrap = 12;
+    const LineDelayResult r = measure_line_delays(s.trace, ps.lines, bg, o);
+    REQUIRE(r.done);
+    const LineEntry* l = nullptr;
+    for (const LineEntry& e : r.lines)
+      if (!e.reference && e.relative_delay_as) l = &e;
+    REQUIRE(l);
+    double truth_ratio = 0;
+    for (const LineEntry& e : s.truth.lines)
+      if (!e.reference) truth_ratio = e.relative_strength.value_or(0);
+    INFO(k.gas << " strength " << k.strength << " peak " << k.peak << ": inserted " << k.delay_as << " as, measured "
+               << *l->relative_delay_as << " +- " << *l->relative_delay_as_sigma << " as; strength "
+               << *l->relative_strength << " +- " << *l->relative_strength_sigma << " (truth " << truth_ratio << ")");
+    CHECK(std::abs(*l->relative_delay_as - k.delay_as) < 3 * *l->relative_delay_as_sigma);
+    CHECK(*l->relative_delay_as_sigma <= 5.0);
+    const double tol = std::string(k.gas) == "Ar" ? 0.15 : 0.02;
+    CHECK(std::abs(*l->relative_strength - truth_ratio) < 3 * *l->relative_strength_sigma + tol * truth_ratio);
+  }
+}
+
+TEST_CASE("retrieve command: the lines summary, the figure and --lines", "[line_delays][cli]") {
+  // The preset's 2s line is emitted 10 as after 2p (synthetic/presets.cpp).
+  test::TempDir d("line_delays_cli");
+  const std::string scan = d / "scan" + "/neon-two-lines.json";
+  REQUIRE(test::run_cli("simulate --preset neon-two-lines -q -o " + d / "scan").code == 0);
+  const test::CliRun bad = test::run_cli("retrieve " + scan + " -q -o " + d / "bad" + " --lines 3s");
+  CHECK(bad.code == 2);
+  CHECK(bad.out.find("its lines are 2p, 2s") != std::string::npos);
+  CHECK_FALSE(std::filesystem::exists(d / "bad"));
+  const test::CliRun ok = test::run_cli("retrieve " + scan + " -q -o " + d / "ok" + " --bootstrap 0 --iterations 30");
+  INFO(ok.out);
+  CHECK((ok.code == 0 || ok.code == 4));
+  CHECK(ok.out.find("lines: Ne 2p (reference); Ne 2s delay ") != std::string::npos);
+  CHECK(std::filesystem::exists(d / "ok" + "/line_streaking.png"));
+}

@@ -1,0 +1,262 @@
+// Two-line delay validation sweep: synthetic scans from the direct-quadrature generator with a
+// second photoelectron line of known photoemission delay and strength; the relative delay is
+// measured by the centre-of-energy method (retrieval/line_delays.h) on the lines that
+// preprocessing finds, and on a subset the XUV pulse is retrieved (retrieve(), default engine
+// chain, no bootstrap) and compared with the truth.
+// Writes OUT/validation_line_delays.csv, OUT/validation_line_delays_table.md and
+// OUT/figures/line_delay_*.png.
+// Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar]
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include "io/figures.h"
+#include "retrieval/line_delays.h"
+#include "retrieval/preprocess.h"
+#include "retrieval/retrieve.h"
+#include "retrieval/units.h"
+#include "synthetic/generator.h"
+#include "synthetic/presets.h"
+
+using namespace sw;
+
+namespace {
+
+struct Row {
+  std::string target;
+  double inserted_as = 0, strength_in = 0, peak = 0;
+  double truth_strength = 0;
+  bool found = false;
+  double delay_as = 0, sigma_as = 0, sigma_fit_as = 0, strength = 0, strength_sigma = 0, chi2 = 0;
+  double truth_fwhm = 0, fwhm = 0;  // fwhm 0 = not retrieved
+  double seconds = 0;
+};
+
+// Neon: 2p and 2s (NIST thresholds via the gas table) at 120 eV photons, 160 as (the
+// neon-two-lines preset). Argon: 3p and 3s at 70 eV, 190 as.
+synthetic::ScanConfig target(const std::string& which) {
+  synthetic::ScanConfig c = synthetic::find_preset("neon-two-lines").config;
+  c.geometry.delay_fs = {-6.0, 0.15, 81};
+  if (which == "Ar") {
+    c.gas = "Ar";
+    c.xuv.gaussian.center_eV = 70.0;
+    c.xuv.gaussian.transform_limited_fwhm_as = 190.0;
+    c.ir.pulse.peak_intensity_Wcm2 = 3e12;
+    c.geometry.energy_eV = {20.0, 0.25, 280};
+    c.lines[0].name = "3p";
+    c.lines[1].name = "3s";
+  }
+  return c;
+}
+
+std::string f(double v, int prec = 4) {
+  std::ostringstream s;
+  s.precision(prec);
+  s << v;
+  return s.str();
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  const std::string out = argc > 1 ? argv[1] : "docs";
+  bool quick = false;
+  int retrieve_every = 5, bootstrap = 24;
+  double only_strength = 0, only_peak = 0;  // restrict the grid (0 = all)
+  double band_factor = LineDelayOptions().band_half_width_factor;
+  int band_iterations = LineDelayOptions().band_iterations;
+  std::string only_target;
+  for (int i = 2; i < argc; ++i) {
+    const std::string a = argv[i];
+    if (a == "--quick") quick = true;
+    else if (a == "--retrieve-every" && i + 1 < argc) retrieve_every = std::atoi(argv[++i]);
+    else if (a == "--bootstrap" && i + 1 < argc) bootstrap = std::atoi(argv[++i]);
+    else if (a == "--strength" && i + 1 < argc) only_strength = std::atof(argv[++i]);
+    else if (a == "--peak" && i + 1 < argc) only_peak = std::atof(argv[++i]);
+    else if (a == "--band" && i + 1 < argc) band_factor = std::atof(argv[++i]);
+    else if (a == "--band-iterations" && i + 1 < argc) band_iterations = std::atoi(argv[++i]);
+    else if (a == "--target" && i + 1 < argc) only_target = argv[++i];
+    else {
+      std::fprintf(stderr, "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar]\n");
+      return 2;
+    }
+  }
+  std::filesystem::create_directories(out + "/figures");
+  std::vector<std::string> targets = quick ? std::vector<std::string>{"Ne"} : std::vector<std::string>{"Ne", "Ar"};
+  if (!only_target.empty()) targets = {only_target};
+  const std::vector<double> delays = {-50, -20, 0, 20, 50};
+  std::vector<double> strengths = quick ? std::vector<double>{0.3} : std::vector<double>{0.1, 0.3, 1.0};
+  std::vector<double> peaks = quick ? std::vector<double>{300} : std::vector<double>{100, 300, 1000};
+  if (only_strength > 0) strengths = {only_strength};
+  if (only_peak > 0) peaks = {only_peak};
+  std::vector<Row> rows;
+  int n = 0;
+  for (const std::string& tg : targets)
+    for (double peak : peaks)
+      for (double st : strengths)
+        for (double d : delays) {
+          ++n;
+          synthetic::ScanConfig c = target(tg);
+          c.lines[1].delay_as = d;
+          c.lines[1].relative_strength = st;
+          c.noise.peak_counts = peak;
+          const auto t0 = std::chrono::steady_clock::now();
+          const synthetic::SyntheticScan s = synthetic::generate_scan(c, 7000 + static_cast<unsigned long long>(n));
+          Row r;
+          r.target = tg;
+          r.inserted_as = d;
+          r.strength_in = st;
+          r.peak = peak;
+          for (const LineEntry& l : s.truth.lines)
+            if (!l.reference && l.relative_strength) r.truth_strength = *l.relative_strength;
+          r.truth_fwhm = *s.truth.xuv->fwhm_as;
+          PreprocessSummary ps;
+          try {
+            (void)preprocess(s.trace, PreprocessOptions{}, &ps);
+            std::vector<double> bg(s.trace.energy_au.size());
+            for (std::size_t j = 0; j < bg.size(); ++j) bg[j] = ps.background.at(units::au_to_eV(s.trace.energy_au[j]));
+            LineDelayOptions o;
+            o.bootstrap = bootstrap;
+            o.band_half_width_factor = band_factor;
+            o.band_iterations = band_iterations;
+            o.seed = static_cast<unsigned long long>(n);
+            const LineDelayResult ld = measure_line_delays(s.trace, ps.lines, bg, o);
+            for (const LineEntry& l : ld.lines)
+              if (!l.reference && l.relative_delay_as) {
+                r.found = true;
+                r.delay_as = *l.relative_delay_as;
+                r.sigma_as = *l.relative_delay_as_sigma;
+                r.strength = l.relative_strength.value_or(0);
+                r.strength_sigma = l.relative_strength_sigma.value_or(0);
+              }
+            if (ld.delay_cov_sigma_as.size() >= 2) r.sigma_fit_as = ld.delay_cov_sigma_as[1];
+            if (!r.found) {
+              for (const auto& w : ld.warnings) std::fprintf(stderr, "  warning: %s\n", w.c_str());
+              for (const auto& l : ps.lines)
+                std::fprintf(stderr, "  line %s at %.2f eV, strength %.3f +- %.3f%s\n", l.name.c_str(),
+                             l.kinetic_energy_eV.value_or(0), l.relative_strength.value_or(-1),
+                             l.relative_strength_sigma.value_or(-1), l.reference ? " (reference)" : "");
+            }
+            r.chi2 = ld.reduced_chi2;
+            if (retrieve_every > 0 && (n - 1) % retrieve_every == 0) {
+              RetrieveOptions ro;
+              ro.bootstrap = 0;
+              ro.line_delays.names = {"none"};
+              const RetrieveOutput rr = retrieve(s.trace, ro);
+              r.fwhm = rr.result.xuv->fwhm_as.value_or(0);
+            }
+          } catch (const std::exception& e) {
+            std::fprintf(stderr, "  failed: %s\n", e.what());
+          }
+          r.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+          std::fprintf(stderr, "%s peak %5.0f strength %.1f delay %+4.0f: %s %7.2f +- %5.2f as (fit %5.2f) strength %.3f/%.3f chi2 %.2f FWHM %.1f/%.1f %.1f s\n",
+                       tg.c_str(), peak, st, d, r.found ? "found" : "MISSED", r.delay_as, r.sigma_as, r.sigma_fit_as,
+                       r.strength, r.truth_strength, r.chi2, r.fwhm, r.truth_fwhm, r.seconds);
+          rows.push_back(r);
+        }
+
+  // CSV and a summary table.
+  {
+    std::ofstream csv(out + "/validation_line_delays.csv");
+    csv << "target,peak_counts,strength_inserted,strength_truth,delay_inserted_as,found,delay_as,delay_sigma_as,"
+           "delay_sigma_fit_as,strength,strength_sigma,reduced_chi2,xuv_fwhm_truth_as,xuv_fwhm_as,seconds\n";
+    for (const Row& r : rows)
+      csv << r.target << "," << r.peak << "," << r.strength_in << "," << r.truth_strength << "," << r.inserted_as << ","
+          << (r.found ? 1 : 0) << "," << r.delay_as << "," << r.sigma_as << "," << r.sigma_fit_as << "," << r.strength
+          << "," << r.strength_sigma << "," << r.chi2 << "," << r.truth_fwhm << "," << r.fwhm << "," << r.seconds << "\n";
+  }
+  std::ofstream md(out + "/validation_line_delays_table.md");
+  md << "| target | peak counts | strength | rows | delay within 3 sigma | median sigma (as) | max sigma (as) | "
+        "mean (measured - inserted) (as) | strength within 3 sigma | XUV FWHM within 5 % |\n|---|---|---|---|---|---|---|---|---|---|\n";
+  int total = 0, within = 0, sig_ok = 0, sig_n = 0, fw_n = 0, fw_ok = 0;
+  for (const std::string& tg : targets)
+    for (double peak : peaks)
+      for (double st : strengths) {
+        std::vector<double> sig;
+        int m = 0, w = 0, sw3 = 0, fn = 0, fo = 0;
+        double bias = 0;
+        for (const Row& r : rows) {
+          if (r.target != tg || r.peak != peak || r.strength_in != st) continue;
+          ++m;
+          if (r.found && std::abs(r.delay_as - r.inserted_as) <= 3 * r.sigma_as) ++w;
+          if (r.found) {
+            sig.push_back(r.sigma_as);
+            bias += r.delay_as - r.inserted_as;
+          }
+          if (r.found && std::abs(r.strength - r.truth_strength) <= 3 * r.strength_sigma) ++sw3;
+          if (r.fwhm > 0) {
+            ++fn;
+            if (std::abs(r.fwhm / r.truth_fwhm - 1) <= 0.05) ++fo;
+          }
+          if (peak >= 300 && r.found) {
+            ++sig_n;
+            if (r.sigma_as <= 5) ++sig_ok;
+          }
+        }
+        total += m;
+        within += w;
+        fw_n += fn;
+        fw_ok += fo;
+        std::sort(sig.begin(), sig.end());
+        const double med = sig.empty() ? 0 : sig[sig.size() / 2], mx = sig.empty() ? 0 : sig.back();
+        md << "| " << tg << " | " << peak << " | " << st << " | " << m << " | " << w << "/" << m << " | " << f(med, 3)
+           << " | " << f(mx, 3) << " | " << f(sig.empty() ? 0 : bias / static_cast<double>(sig.size()), 3) << " | " << sw3
+           << "/" << m << " | " << (fn ? std::to_string(fo) + "/" + std::to_string(fn) : std::string("-")) << " |\n";
+      }
+  md << "\nAll rows: delay within 3 sigma in " << within << "/" << total << " (" << f(100.0 * within / std::max(total, 1), 3)
+     << " %); sigma <= 5 as in " << sig_ok << "/" << sig_n << " rows at >= 300 peak counts; XUV FWHM within 5 % in "
+     << fw_ok << "/" << fw_n << " retrieved rows.\n";
+  std::fprintf(stderr, "delay within 3 sigma: %d/%d; sigma <= 5 as at >= 300 counts: %d/%d; FWHM within 5 %%: %d/%d\n",
+               within, total, sig_ok, sig_n, fw_ok, fw_n);
+
+  // Figures: measured - inserted with error bars per row; sigma versus peak counts.
+  LinePlot p;
+  p.title = "second-line delay: measured - inserted (centre of energy), error bars 1 sigma";
+  p.x_label = "scan index";
+  p.y_label = "measured - inserted delay (as)";
+  p.zero_line = true;
+  for (const std::string& tg : targets) {
+    Series s;
+    for (std::size_t i = 0; i < rows.size(); ++i)
+      if (rows[i].target == tg && rows[i].found) {
+        s.x.push_back(static_cast<double>(i));
+        s.y.push_back(rows[i].delay_as - rows[i].inserted_as);
+        s.y_err.push_back(rows[i].sigma_as);
+      }
+    s.label = tg == "Ne" ? "neon 2s vs 2p" : "argon 3s vs 3p";
+    s.line = false;
+    s.markers = true;
+    p.series.push_back(s);
+  }
+  plot_lines(p, out + "/figures/line_delay_residuals.png");
+  LinePlot q;
+  q.title = "second-line delay sigma versus peak counts";
+  q.x_label = "peak counts per bin";
+  q.y_label = "delay sigma (as)";
+  q.log_y = true;
+  for (const std::string& tg : targets)
+    for (double st : strengths) {
+      Series s;
+      for (double peak : peaks) {
+        std::vector<double> v;
+        for (const Row& r : rows)
+          if (r.target == tg && r.peak == peak && r.strength_in == st && r.found) v.push_back(r.sigma_as);
+        if (v.empty()) continue;
+        std::sort(v.begin(), v.end());
+        s.x.push_back(peak);
+        s.y.push_back(v[v.size() / 2]);
+      }
+      s.label = tg + ", strength " + f(st, 2) + " (median)";
+      s.markers = true;
+      q.series.push_back(s);
+    }
+  plot_lines(q, out + "/figures/line_delay_sigma.png");
+  return 0;
+}
