@@ -323,19 +323,22 @@ void add_inputs(Result& r, const Trace& t) {
   r.inputs.push_back(cli::sidecar_data_file(t.meta.source));
 }
 
-void write_result(const Result& r, const std::string& folder) {
+void write_result(const Result& r, const std::string& folder, const std::string& figure_format) {
+  plot::FigureFormat ff = plot::FigureFormat::kPng;
+  if (!plot::parse_figure_format(figure_format, &ff))
+    throw usage_error("figure_format '" + figure_format + "': expected png or svg");
   cli::check_output_folder(folder, r.inputs, {}, "folder");
   cli::OutputSwap swap(folder);
   std::visit(
       [&](const auto& o) {
         using T = std::decay_t<decltype(o)>;
         if constexpr (std::is_same_v<T, RetrieveOutput>) {
-          write_retrieval_outputs(r.scan, o, swap.temp());
+          write_retrieval_outputs(r.scan, o, swap.temp(), ff);
         } else if constexpr (std::is_same_v<T, RabbittOutput>) {
-          write_rabbitt_outputs(o.trace, o.analysis, o.burst ? &*o.burst : nullptr, o.result, swap.temp());
+          write_rabbitt_outputs(o.trace, o.analysis, o.burst ? &*o.burst : nullptr, o.result, swap.temp(), ff);
         } else {
           write_classify_outputs(o.trace, o.result, o.retrieval ? &o.retrieval->reconstruction : nullptr,
-                                 o.ir_wavelength_nm, swap.temp());
+                                 o.ir_wavelength_nm, swap.temp(), ff);
         }
       },
       r.output);
@@ -639,11 +642,13 @@ PYBIND11_MODULE(streakwright, m) {
       .def("to_json", [](const Result& r) { return result_to_json(r.result()); }, "result.json text")
       .def("to_dict", [](const Result& r) { return json_loads(result_to_json(r.result())); },
            "result.json as a dict")
-      .def("write", [](const Result& r, const std::string& folder) {
+      .def("write", [](const Result& r, const std::string& folder, const std::string& figure_format) {
              py::gil_scoped_release release;
-             write_result(r, folder);
+             write_result(r, folder, figure_format);
            },
-           py::arg("folder"), "write the output folder the CLI writes (replaced only when complete)")
+           py::arg("folder"), py::arg("figure_format") = "png",
+           "write the output folder the CLI writes (replaced only when complete); figure_format "
+           "\"png\" or \"svg\" as the CLI's --figure-format")
       .def_property_readonly("arrays", &result_arrays, "every sampled quantity as numpy arrays")
       .def_property_readonly("xuv_time_as", [](const Result& r) { return arrays_item(r, "xuv_time_as"); })
       .def_property_readonly("xuv_field", [](const Result& r) { return arrays_item(r, "xuv_field"); },

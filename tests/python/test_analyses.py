@@ -61,6 +61,13 @@ def test_retrieve_to_dict_equals_cli_result(archive, tmp_path):
     with pytest.raises(ValueError, match="input"):
         res.write(os.path.dirname(path))
     assert os.path.exists(path)
+    # figure_format as the CLI's --figure-format: the same files with .svg figures.
+    svg_out = tmp_path / "svg"
+    res.write(str(svg_out), figure_format="svg")
+    names = sorted(os.listdir(svg_out))
+    assert [n[:-4] for n in names if n.endswith(".svg")] == [n[:-4] for n in sorted(os.listdir(cli_out)) if n.endswith(".png")]
+    with pytest.raises(ValueError, match="figure_format"):
+        res.write(str(tmp_path / "bad"), figure_format="gif")
 
 
 def test_rabbitt_and_classify_to_dict_equal_cli_results(archive, tmp_path):
