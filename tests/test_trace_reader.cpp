@@ -392,3 +392,25 @@ TEST_CASE("HDF5 dataset named as FILE.h5:/group/dataset", "[io][reader][hdf5]") 
              Catch::Contains("nothere.h5") && Catch::Contains("does not exist"));
 }
 #endif
+
+TEST_CASE("a damaged HDF5 file that crashes the HDF5 library is an input error", "[io][reader][hdf5]") {
+  // tests/fuzz/corpus/hdf5_crash_h5lexists: a mutated HDF5 file (after the fuzz harness's
+  // selector byte) on which H5Lexists reads out of bounds inside libhdf5 (Debian 1.10). The
+  // reader runs HDF5 in a child process: this process gets an input error naming the file.
+  TempDir dir;
+  std::ifstream in(std::string(STREAKWRIGHT_SOURCE_DIR) + "/tests/fuzz/corpus/hdf5_crash_h5lexists",
+                   std::ios::binary);
+  REQUIRE(in);
+  std::string bytes((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+  REQUIRE(bytes.size() > 1);
+  write_text(dir / "damaged.h5", bytes.substr(1));
+  write_text(dir / "d.json", R"({"streakwright": 1, "image": "damaged.h5:/scan/counts",
+    "layout": "delay_rows", "energy_eV": [1,2,3,4,5,6], "delay_fs": [0,1,2,3]})");
+  try {
+    (void)sw::read_trace(dir / "d.json");
+    FAIL("a damaged HDF5 file was read");
+  } catch (const sw::Error& e) {
+    CHECK(e.kind() == sw::ErrorKind::kInput);
+    CHECK(std::string(e.what()).find("damaged.h5") != std::string::npos);
+  }
+}
