@@ -209,7 +209,12 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     out.cma_trace_error_ratio = floor > 0 ? first.trace_error / floor : 0.0;
     const bool cma_limited = out.cma_phase_error_rad > opt.cma_phase_error_max_rad;
     const bool not_fitted = out.cma_trace_error_ratio > opt.cma_trace_error_max_ratio;
-    if (cma_limited || not_fitted) {
+    // A CMA field whose E(t) is far steeper than omega A(t) carries noise, not the IR (the
+    // quality check ir_field_vs_vector_potential would fail it): the full model refines it.
+    const double a_peak = first.ir.peak_vector_potential();
+    const bool noisy_field = a_peak > 0 && pr.ir_omega_au > 0 &&
+                             first.ir.peak_electric_field() / (pr.ir_omega_au * a_peak) > opt.quality.max_ir_field_ratio;
+    if (cma_limited || not_fitted || noisy_field) {
       EngineOptions fo = eo;
       fo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
       fo.initial_xuv = first.xuv;
