@@ -27,6 +27,7 @@ std::string QualityOptions::validate() const {
   else if (!(comparable_fit_ratio >= 1)) s << "comparable_fit_ratio = " << comparable_fit_ratio << ": must be >= 1";
   else if (!(max_ir_period_mismatch > 0)) s << "max_ir_period_mismatch = " << max_ir_period_mismatch << ": must be > 0";
   else if (!(min_field_free_rows >= 0)) s << "min_field_free_rows = " << min_field_free_rows << ": must be >= 0";
+  else if (!(min_class_margin_sigma >= 0)) s << "min_class_margin_sigma = " << min_class_margin_sigma << ": must be >= 0";
   else if (!(max_ir_field_ratio > 1)) s << "max_ir_field_ratio = " << max_ir_field_ratio << ": must be > 1";
   else if (min_sidebands < 2) s << "min_sidebands = " << min_sidebands << ": must be >= 2";
   return s.str();
@@ -129,6 +130,10 @@ void add_retrieval_checks(QualitySection& q, const RetrievalEvidence& e, const Q
     q.add("field_free_rows", *e.field_free_rows, o.min_field_free_rows, ">=",
           "delay rows at the scan edges without streaking; with none the XUV spectral amplitude and "
           "the frequency shift are fixed by the zero-mean A(t) convention, not by the data");
+  if (e.class_margin_sigma && o.min_class_margin_sigma > 0)
+    q.add("class_margin_sigma", *e.class_margin_sigma, o.min_class_margin_sigma, ">=",
+          "distance of the satellite intensity ratio from the nearest class threshold, in bootstrap sigmas: "
+          "closer than the limit, the class (isolated or with satellites) is not decided by the data");
   if (e.bias_over_sigma)
     q.add("bootstrap_bias_over_sigma", *e.bias_over_sigma, 1.0, "<=",
           "|bootstrap bias| of the FWHM over the replicas' spread (reported only: above 1 the "

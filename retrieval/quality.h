@@ -36,6 +36,8 @@
 //     bootstrap_bias_over_sigma  |bias| / replica spread of the FWHM (reported: the bias rule
 //                                widens sigma instead of moving the value)
 //     field_free_rows            edge delay rows without streaking      >= min_field_free_rows
+//     class_margin_sigma         |satellite ratio - nearest class threshold| / its bootstrap
+//                                sigma (isolated or with satellites)    >= min_class_margin_sigma
 //                                (none: the spectral amplitude and the frequency shift are set
 //                                by the zero-mean A(t) convention, not by the data)
 //     ir_period_vs_sidecar       |lambda(retrieved A(t)) / lambda(sidecar) - 1|
@@ -94,6 +96,11 @@ struct QualityOptions {
   /// validation scan (docs/validation.md) came out 9.3 % long with a 2.5 % sigma, and 2 % off
   /// once its delay range reached the field-free wings.
   double min_field_free_rows = 1.0;
+  /// Fewest bootstrap sigmas between the satellite ratio and the nearest class threshold
+  /// (isolated_max / satellites_max) for a trusted class (>= 0; 0 = off). Default 2 (common
+  /// practice: a class decided within 2 sigma of its threshold is a coin toss). A held-out
+  /// validation scan with 10-20 % satellites was called isolated, trusted (docs/validation.md).
+  double min_class_margin_sigma = 2.0;
   /// Largest relative difference between the period of the retrieved A(t) and the sidecar's
   /// IR wavelength (a field locked onto 2 omega gives 0.5); a warning is issued above 2 %.
   double max_ir_period_mismatch = 0.1;  ///< > 0
@@ -134,6 +141,9 @@ struct RetrievalEvidence {
   std::optional<double> ir_field_ratio;       ///< max |E(t)| / (omega max |A(t)|)
   std::optional<double> energy_support_share; ///< support width / energy axis
   std::optional<double> field_free_rows;      ///< edge rows without streaking (preprocess)
+  /// Distance of the satellite ratio from the nearest class threshold in bootstrap sigmas
+  /// (isolated / isolated_with_satellites results with a sigma only).
+  std::optional<double> class_margin_sigma;
 };
 
 void add_retrieval_checks(QualitySection& q, const RetrievalEvidence& e, const QualityOptions& options);

@@ -508,6 +508,15 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     }
     e.energy_support_share = s.support_core_share;
     e.field_free_rows = static_cast<double>(s.field_free_rows);
+    // Class margin: the satellite ratio against the nearest threshold, in bootstrap sigmas.
+    const VerdictSection& vd = *res.verdict;
+    if ((vd.pulse_class == PulseClass::kIsolated || vd.pulse_class == PulseClass::kIsolatedWithSatellites) &&
+        vd.satellite_intensity_ratio && vd.satellite_intensity_ratio_sigma && *vd.satellite_intensity_ratio_sigma > 0) {
+      const double r = *vd.satellite_intensity_ratio;
+      const double d = std::min(std::abs(r - opt.isolated_max_satellite_ratio),
+                                std::abs(r - opt.satellites_max_satellite_ratio));
+      e.class_margin_sigma = d / *vd.satellite_intensity_ratio_sigma;
+    }
     if (rec.retrieved.rows() == pr.intensity.rows() && rec.retrieved.cols() == ne && pr.variance.size() == pr.intensity.size()) {
       double noise = 0;
       const Eigen::VectorXd meas = pr.intensity.colwise().sum().transpose();
