@@ -173,32 +173,4 @@ std::string format_csv_matrix(const Eigen::MatrixXd& m, const std::vector<std::s
   return out;
 }
 
-std::string format_csv_table(const std::vector<std::string>& header,
-                             const std::vector<std::vector<double>>& columns) {
-  if (header.size() != columns.size())
-    throw Error(ErrorKind::kInternal, "format_csv_table: " + std::to_string(header.size()) +
-                                          " column names for " + std::to_string(columns.size()) +
-                                          " columns");
-  const std::size_t n = columns.empty() ? 0 : columns.front().size();
-  for (std::size_t c = 0; c < columns.size(); ++c)
-    if (columns[c].size() != n)
-      throw Error(ErrorKind::kInternal, "format_csv_table: column '" + header[c] + "' has " +
-                                            std::to_string(columns[c].size()) +
-                                            " values, expected " + std::to_string(n));
-  std::string out;
-  for (std::size_t j = 0; j < header.size(); ++j) {
-    if (j) out += ',';
-    out += header[j];
-  }
-  out += '\n';
-  for (std::size_t i = 0; i < n; ++i) {
-    for (std::size_t c = 0; c < columns.size(); ++c) {
-      if (c) out += ',';
-      append_number(out, columns[c][i]);
-    }
-    out += '\n';
-  }
-  return out;
-}
-
 }  // namespace sw

@@ -40,9 +40,4 @@ Eigen::MatrixXd read_csv_matrix(const std::string& path);
 std::string format_csv_matrix(const Eigen::MatrixXd& m,
                               const std::vector<std::string>& header = {});
 
-/// Formats columns of equal length as a table with a header line of names (e.g.
-/// {"time_fs", "intensity"}). Throws sw::Error(kInternal) if lengths or names disagree.
-std::string format_csv_table(const std::vector<std::string>& header,
-                             const std::vector<std::vector<double>>& columns);
-
 }  // namespace sw

@@ -23,14 +23,6 @@
 
 namespace sw {
 
-bool hdf5_available() {
-#ifdef STREAKWRIGHT_HAVE_HDF5
-  return true;
-#else
-  return false;
-#endif
-}
-
 bool split_hdf5_reference(const std::string& ref, std::string* file, std::string* dataset) {
   static const char* const kExtensions[] = {".h5:", ".hdf5:", ".he5:", ".nxs:"};
   std::string lower = ref;

@@ -9,9 +9,6 @@
 
 namespace sw {
 
-/// True when this build can read HDF5 files.
-bool hdf5_available();
-
 /// Splits an image reference "FILE.h5:/group/dataset" (extensions .h5, .hdf5, .he5, .nxs,
 /// case-insensitive) into file and dataset path. Returns false when `ref` is not of that form.
 bool split_hdf5_reference(const std::string& ref, std::string* file, std::string* dataset);

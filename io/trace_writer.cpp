@@ -129,15 +129,6 @@ const char* to_string(TraceLayout l) {
   return l == TraceLayout::kEnergyRows ? "energy_rows" : "delay_rows";
 }
 
-bool parse_trace_layout(const std::string& s, TraceLayout* out) {
-  if (s == "delay_rows")
-    *out = TraceLayout::kDelayRows;
-  else if (s == "energy_rows")
-    *out = TraceLayout::kEnergyRows;
-  else
-    return false;
-  return true;
-}
 
 std::string truth_path_for(const std::string& sidecar_path) {
   const fs::path p(sidecar_path);

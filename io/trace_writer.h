@@ -37,7 +37,6 @@ bool parse_trace_format(const std::string& s, TraceFormat* out);
 enum class TraceLayout { kDelayRows, kEnergyRows };
 /// "delay_rows", "energy_rows".
 const char* to_string(TraceLayout l);
-bool parse_trace_layout(const std::string& s, TraceLayout* out);
 
 /// A flight-time axis to write instead of the energy axis: the trace's columns are counts per
 /// flight-time bin (one tof_ns value per column, in column order), as the synthetic generator

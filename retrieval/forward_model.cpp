@@ -32,14 +32,6 @@ ForwardModel::ForwardModel(double ip_au, DipoleModel dipole, ForwardModelOptions
   if (!err.empty()) throw std::invalid_argument("ForwardModelOptions: " + err);
 }
 
-void cma_gate(const IrField& ir, const DipoleModel& d, double p0, const double* t, std::size_t n,
-              cdouble* g) {
-  for (std::size_t i = 0; i < n; ++i) {
-    const VolkovIntegrals v = ir.at(t[i]);
-    g[i] = d(p0 + v.A) * std::polar(1.0, -p0 * v.I1 + 0.5 * v.I2);
-  }
-}
-
 namespace {
 
 inline std::size_t fft_index(long b, std::size_t n) {

@@ -127,8 +127,4 @@ struct EnergyBinMap {
 EnergyBinMap map_energy_bins(const TimeGrid& grid, double carrier_au, double ionization_energy_au,
                              const std::vector<double>& energy_au);
 
-/// The CMA phase gate G(t) = d(p0 + A) exp(-i p0 I1(t) + i I2(t)/2) at times t (a.u.).
-void cma_gate(const IrField& ir, const DipoleModel& d, double p0_au, const double* t_au,
-              std::size_t n, cdouble* gate_out);
-
 }  // namespace sw

@@ -44,8 +44,6 @@ class IrField {
   double peak_vector_potential() const;
   /// max |E(t)| over the samples (a.u.).
   double peak_electric_field() const;
-  /// Int A dt over all time (a.u.): the phase offset between the two far sides of the gate.
-  double total_I1() const { return I1_.empty() ? 0.0 : I1_.front(); }
 
  private:
   void integrate();

@@ -79,9 +79,6 @@ constexpr double period_au(double omega_au) { return kTwoPi / omega_au; }
 constexpr double stage_travel_um_to_fs(double um) {
   return 2.0 * um * 1e-6 / kSpeedOfLight_m_per_s * 1e15;
 }
-constexpr double fs_to_stage_travel_um(double fs) {
-  return fs * 1e-15 * kSpeedOfLight_m_per_s / 2.0 * 1e6;
-}
 
 // --- intensity and field ----------------------------------------------------------------
 /// Peak field (a.u.) of a linearly polarised pulse of peak cycle-averaged intensity I (W/cm^2).
