@@ -458,11 +458,12 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       *vmax = vm;
     };
 
-    auto compute_gates = [&](long i, const Gates& G) {
+    // Loads the IR of delay i, then for each node pair (m, m2 = nb - 1 - m; m2 == m for the
+    // middle node of an odd block) of each block leaves exp(-i phi_mid) in W.emr/W.emi and
+    // exp(-+i delta u) in W.cs/W.sn and calls visit(block, first slot of the block, m, m2).
+    auto for_each_node_pair = [&](long i, auto&& visit) {
       double umax, vmax;
       load_ir(i, &umax, &vmax);
-      double* cre = const_dipole ? G.re : G.pre;  // exp(i phi) of each node
-      double* cim = const_dipole ? G.im : G.pim;
       std::size_t q0 = 0;
       for (const MomentumBlock& b : plan_.blocks) {
         const std::size_t nb = b.nodes.size();
@@ -473,25 +474,34 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
           const double delta = b.nodes[m] - mid;
           sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
                         W.cs.data(), n);
-          const std::size_t m2 = nb - 1 - m;
-          double* r2 = m2 != m ? cre + (q0 + m2) * n : W.r1.data();
-          double* i2 = m2 != m ? cim + (q0 + m2) * n : W.i1.data();
-          pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), cre + (q0 + m) * n,
-                      cim + (q0 + m) * n, r2, i2, n);
+          visit(b, q0, m, nb - 1 - m);
         }
-        if (!const_dipole)
-          for (std::size_t m = 0; m < nb; ++m) {
-            const double p = b.nodes[m];
-            const std::size_t o = (q0 + m) * n;
-            for (std::size_t k = 0; k < n; ++k) {
-              const double d = dipole_(p + W.A[k]);
-              G.re[o + k] = d * G.pre[o + k];
-              G.im[o + k] = d * G.pim[o + k];
-              if (K > 0) G.ddip[o + k] = dipole_.derivative(p + W.A[k]);
-            }
-          }
         q0 += nb;
       }
+    };
+
+    auto compute_gates = [&](long i, const Gates& G) {
+      double* cre = const_dipole ? G.re : G.pre;  // exp(i phi) of each node
+      double* cim = const_dipole ? G.im : G.pim;
+      for_each_node_pair(i, [&](const MomentumBlock&, std::size_t q0, std::size_t m, std::size_t m2) {
+        double* r2 = m2 != m ? cre + (q0 + m2) * n : W.r1.data();
+        double* i2 = m2 != m ? cim + (q0 + m2) * n : W.i1.data();
+        pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), cre + (q0 + m) * n,
+                    cim + (q0 + m) * n, r2, i2, n);
+      });
+      if (const_dipole) return;
+      std::size_t q = 0;  // times d(p + A) of each node (W.A holds delay i)
+      for (const MomentumBlock& b : plan_.blocks)
+        for (std::size_t m = 0; m < b.nodes.size(); ++m, ++q) {
+          const double p = b.nodes[m];
+          const std::size_t o = q * n;
+          for (std::size_t k = 0; k < n; ++k) {
+            const double d = dipole_(p + W.A[k]);
+            G.re[o + k] = d * G.pre[o + k];
+            G.im[o + k] = d * G.pim[o + k];
+            if (K > 0) G.ddip[o + k] = dipole_.derivative(p + W.A[k]);
+          }
+        }
     };
 
     // FFT of psi; its bins' share (Lagrange weight of node m) added to the block's energies.
@@ -535,25 +545,13 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     // two exit waves straight from exp(i phi_mid) and exp(-+i delta u), no gate arrays (the
     // same products in the same order, so the same numbers).
     auto forward_direct = [&](long i) {
-      double umax, vmax;
-      load_ir(i, &umax, &vmax);
       std::fill(W.acc.begin(), W.acc.end(), cdouble(0.0));
-      for (const MomentumBlock& b : plan_.blocks) {
-        const std::size_t nb = b.nodes.size();
-        const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
-        sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax, W.emi.data(),
-                      W.emr.data(), n);
-        for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
-          const double delta = b.nodes[m] - mid;
-          sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
-                        W.cs.data(), n);
-          pair_exit_waves(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(),
-                          ei.data(), reinterpret_cast<double*>(W.psi.data()),
-                          reinterpret_cast<double*>(W.psi2.data()), n);
-          transform_node(b, m, W.psi);
-          if (nb - 1 - m != m) transform_node(b, nb - 1 - m, W.psi2);
-        }
-      }
+      for_each_node_pair(i, [&](const MomentumBlock& b, std::size_t, std::size_t m, std::size_t m2) {
+        pair_exit_waves(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(), ei.data(),
+                        reinterpret_cast<double*>(W.psi.data()), reinterpret_cast<double*>(W.psi2.data()), n);
+        transform_node(b, m, W.psi);
+        if (m2 != m) transform_node(b, m2, W.psi2);
+      });
       finish_row(i);
     };
 
@@ -592,39 +590,26 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       std::fill(W.gI1.begin(), W.gI1.end(), 0.0);
       std::fill(W.gI2.begin(), W.gI2.end(), 0.0);
       if (direct) {
-        double umax, vmax;
-        load_ir(i, &umax, &vmax);
-        for (const MomentumBlock& b : plan_.blocks) {
-          const std::size_t nb = b.nodes.size();
-          const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
-          sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax,
-                        W.emi.data(), W.emr.data(), n);
-          for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
-            const double delta = b.nodes[m] - mid;
-            sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
-                          W.cs.data(), n);
-            const std::size_t m2 = nb - 1 - m;
-            if (m2 == m)  // the unpaired middle node: its gate into scratch
-              pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), W.r1.data(),
-                          W.i1.data(), W.gre.data(), W.gim.data(), n);
-            for (std::size_t k = 0; k < Ku; ++k) {
-              const cdouble* accbar = &W.row_bar[k * ne];
-              node_psibar(b, m, accbar, W.psibar);
-              const double* pb = reinterpret_cast<const double*>(W.psibar.data());
-              if (m2 == m) {
-                node_adjoint(pb, er.data(), ei.data(), W.r1.data(), W.i1.data(), 2.0 * b.nodes[m],
-                             i2_sign, &W.ebr[k * n], &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n],
-                             n);
-              } else {
-                node_psibar(b, m2, accbar, W.psibar2);
-                pair_adjoint(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(),
-                             ei.data(), pb, reinterpret_cast<const double*>(W.psibar2.data()),
-                             2.0 * b.nodes[m], 2.0 * b.nodes[m2], i2_sign, &W.ebr[k * n],
-                             &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n], n);
-              }
+        for_each_node_pair(i, [&](const MomentumBlock& b, std::size_t, std::size_t m, std::size_t m2) {
+          if (m2 == m)  // the unpaired middle node: its gate into scratch
+            pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), W.r1.data(), W.i1.data(),
+                        W.gre.data(), W.gim.data(), n);
+          for (std::size_t k = 0; k < Ku; ++k) {
+            const cdouble* accbar = &W.row_bar[k * ne];
+            node_psibar(b, m, accbar, W.psibar);
+            const double* pb = reinterpret_cast<const double*>(W.psibar.data());
+            if (m2 == m) {
+              node_adjoint(pb, er.data(), ei.data(), W.r1.data(), W.i1.data(), 2.0 * b.nodes[m], i2_sign,
+                           &W.ebr[k * n], &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n], n);
+            } else {
+              node_psibar(b, m2, accbar, W.psibar2);
+              pair_adjoint(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(), ei.data(), pb,
+                           reinterpret_cast<const double*>(W.psibar2.data()), 2.0 * b.nodes[m],
+                           2.0 * b.nodes[m2], i2_sign, &W.ebr[k * n], &W.ebi[k * n], &W.gI1[k * n],
+                           &W.gI2[k * n], n);
             }
           }
-        }
+        });
       }
       std::size_t q = 0;
       for (const MomentumBlock& b : plan_.blocks) {

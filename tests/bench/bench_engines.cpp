@@ -18,6 +18,8 @@
 #include "retrieval/forward_model.h"
 #include "tests/cma_test_problem.h"
 
+#include "tests/bench/bench_support.h"
+
 namespace {
 
 using namespace sw;
@@ -38,19 +40,8 @@ const testing::Case& problem_121x400(bool noisy) {
 }
 
 void BM_FftFloor(benchmark::State& state) {
-  const auto& p = problem_121x400(false).problem;
-  const std::size_t n = p.grid.size(), nd = p.delay_au.size();
-  const Fft fft(n);
-  CVec a(n, cdouble(1.0, 0.5)), b(n), c(n);
-  for (auto _ : state) {
-    for (std::size_t j = 0; j < nd; ++j) {
-      fft.time_to_freq(a, b);
-      fft.freq_to_time(b, c);
-    }
-    benchmark::DoNotOptimize(c.data());
-  }
-  state.counters["grid"] = static_cast<double>(n);
-  state.counters["ffts"] = static_cast<double>(2 * nd);
+  const RetrievalProblem& p = problem_121x400(false).problem;
+  bench::fft_floor(state, p.grid.size(), p.delay_au.size());
 }
 BENCHMARK(BM_FftFloor)->Unit(benchmark::kMicrosecond);
 

@@ -31,6 +31,8 @@
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
+#include "tests/bench/bench_support.h"
+
 namespace {
 
 using namespace sw;
@@ -120,18 +122,7 @@ BENCHMARK(BM_FullModelCost)->Unit(benchmark::kMillisecond);
 
 void BM_EpieFftFloor(benchmark::State& state) {
   const RetrievalProblem& p = helium_problem();
-  const std::size_t n = p.grid.size(), nd = p.delay_au.size();
-  const Fft fft(n);
-  CVec a(n, cdouble(1.0, 0.5)), b(n), c(n);
-  for (auto _ : state) {
-    for (std::size_t j = 0; j < nd; ++j) {
-      fft.time_to_freq(a, b);
-      fft.freq_to_time(b, c);
-    }
-    benchmark::DoNotOptimize(c.data());
-  }
-  state.counters["grid"] = static_cast<double>(n);
-  state.counters["ffts"] = static_cast<double>(2 * nd);
+  bench::fft_floor(state, p.grid.size(), p.delay_au.size());
 }
 BENCHMARK(BM_EpieFftFloor)->Unit(benchmark::kMicrosecond);
 
