@@ -61,6 +61,10 @@ struct RetrievalProblem {
   /// XUV spectrum zero at photon energies outside [support_lo + Ip, support_hi + Ip]; both 0 =
   /// no support known (the whole axis).
   double support_lo_au = 0.0, support_hi_au = 0.0;
+  /// Spectrometer resolution, Gaussian FWHM in energy (a.u.; 0 = not known): from the
+  /// sidecar's energy_resolution_eV. The full model convolves its model counts with it
+  /// (retrieval/forward_adjoint.h); the CMA engines, which project measured amplitudes, do not.
+  double energy_resolution_au = 0.0;
   /// Per-element weight of `intensity` in [0, 1] (same layout); empty = every element 1. A
   /// weight of 0 (saturated bins) means the element is not data: projections keep the model
   /// there and least squares ignore it.

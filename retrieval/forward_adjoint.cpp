@@ -180,6 +180,70 @@ void ForwardAdjoint::projected_cost(const CVec& eps, const IrField& ir, const Ei
       nullptr, extra_c2, extra_c1, out);
 }
 
+void ForwardAdjoint::set_energy_resolution(double fwhm_au) {
+  if (!(fwhm_au >= 0) || !std::isfinite(fwhm_au))
+    throw std::invalid_argument("ForwardAdjoint::set_energy_resolution: FWHM must be finite and >= 0");
+  resolution_fwhm_ = fwhm_au;
+  blur_first_.clear();
+  blur_w_.clear();
+  const std::size_t ne = energy_.size();
+  if (ne < 2 || fwhm_au == 0.0) return;
+  const double step = (energy_.back() - energy_.front()) / static_cast<double>(ne - 1);
+  if (!(fwhm_au > step / 3.0)) return;
+  // Normalised Gaussian weights on the (possibly non-uniform) axis, cut at 4 sigma; each
+  // energy's bin width as the quadrature weight, so a non-uniform axis conserves counts.
+  const double sigma = fwhm_au / (2.0 * std::sqrt(2.0 * std::log(2.0)));
+  blur_first_.resize(ne);
+  blur_w_.resize(ne);
+  for (std::size_t j = 0; j < ne; ++j) {
+    std::size_t a = j, b = j;
+    while (a > 0 && energy_[j] - energy_[a - 1] <= 4.0 * sigma) --a;
+    while (b + 1 < ne && energy_[b + 1] - energy_[j] <= 4.0 * sigma) ++b;
+    std::vector<double> wt(b - a + 1);
+    double sum = 0.0;
+    for (std::size_t k = a; k <= b; ++k) {
+      const double width = 0.5 * (energy_[std::min(k + 1, ne - 1)] - energy_[k > 0 ? k - 1 : 0]);
+      const double x = (energy_[k] - energy_[j]) / sigma;
+      wt[k - a] = std::exp(-0.5 * x * x) * width;
+      sum += wt[k - a];
+    }
+    for (double& x : wt) x /= sum;
+    blur_first_[j] = a;
+    blur_w_[j] = std::move(wt);
+  }
+}
+
+void ForwardAdjoint::blur_row(const double* in, double* out) const {
+  for (std::size_t j = 0; j < blur_w_.size(); ++j) {
+    const std::vector<double>& wt = blur_w_[j];
+    const double* x = in + blur_first_[j];
+    double acc = 0.0;
+    for (std::size_t t = 0; t < wt.size(); ++t) acc += wt[t] * x[t];
+    out[j] = acc;
+  }
+}
+
+void ForwardAdjoint::blur_row_transpose(const double* in, double* out) const {
+  std::fill(out, out + blur_w_.size(), 0.0);
+  for (std::size_t j = 0; j < blur_w_.size(); ++j) {
+    const std::vector<double>& wt = blur_w_[j];
+    double* y = out + blur_first_[j];
+    for (std::size_t t = 0; t < wt.size(); ++t) y[t] += wt[t] * in[j];
+  }
+}
+
+void ForwardAdjoint::blur_counts(Eigen::MatrixXd& c) const {
+  if (blur_first_.empty()) return;
+  if (c.cols() != static_cast<Eigen::Index>(energy_.size()))
+    throw std::invalid_argument("ForwardAdjoint::blur_counts: columns != energies");
+  std::vector<double> row(energy_.size()), out(energy_.size());
+  for (Eigen::Index i = 0; i < c.rows(); ++i) {
+    for (std::size_t j = 0; j < row.size(); ++j) row[j] = c(i, static_cast<Eigen::Index>(j));
+    blur_row(row.data(), out.data());
+    for (std::size_t j = 0; j < row.size(); ++j) c(i, static_cast<Eigen::Index>(j)) = out[j];
+  }
+}
+
 // Per-thread buffers and accumulators (structure-of-arrays so the inner loops vectorise).
 struct ForwardAdjoint::Workspace {
   std::vector<double> A, u, v;         // A, I1 - I1_mid, I2/2 at s + tau
@@ -190,6 +254,7 @@ struct ForwardAdjoint::Workspace {
   std::vector<double> pre, pim, ddip;  // nodes x n: exp(i phi), d'(p + A) (dipole != const)
   CVec psi, psi2, raw, rawbar, psibar, psibar2;
   std::vector<cdouble> acc, row_a;
+  std::vector<double> mod, bl, g2, g1;  // ne: |a|^2, blurred model, cost adjoints (resolution)
   std::vector<cdouble> row_bar;      // K x ne
   std::vector<double> gA, gI1, gI2;  // K x n adjoints of A, I1, I2 at s + tau
   // Totals over this thread's delays.
@@ -360,6 +425,10 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
   const auto Ku = static_cast<std::size_t>(K);
   const bool const_dipole = dipole_.kind() == DipoleKind::kConstant;
   const bool cost_mode = mode == Mode::kScaledCost || mode == Mode::kProjected;
+  // Resolution kernel K (set_energy_resolution): out = K in, and out = K^T in.
+  const bool blurred = !blur_first_.empty();
+  auto blur = [&](const double* in, double* out) { blur_row(in, out); };
+  auto blur_transpose = [&](const double* in, double* out) { blur_row_transpose(in, out); };
 
   // Envelope about the shifted carrier (ForwardModel's with_carrier), split into re/im.
   std::vector<double> er(n), ei(n);
@@ -420,6 +489,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     W.psibar2.resize(n);
     W.acc.resize(ne);
     W.row_a.resize(ne);
+    for (auto* b : {&W.mod, &W.bl, &W.g2, &W.g1}) b->resize(ne);
     W.row_bar.resize(Ku * ne);
     W.gA.resize(Ku * n);
     W.gI1.resize(Ku * n);
@@ -681,7 +751,27 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       if (two_pass)
         for (std::size_t j = 0; j < ne; ++j)
           amp_keep(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
-      if (cost_mode) {
+      if (cost_mode && blurred) {
+        // m = K |a|^2; the adjoints of c2, c1 w.r.t. m go back through K^T onto |a|^2.
+        for (std::size_t j = 0; j < ne; ++j) W.mod[j] = std::norm(W.row_a[j]);
+        blur(W.mod.data(), W.bl.data());
+        for (std::size_t j = 0; j < ne; ++j) {
+          const auto jj = static_cast<Eigen::Index>(j);
+          const double m = W.bl[j], wij = (*w)(ii, jj), Mij = (*M)(ii, jj);
+          W.c2 += wij * m * m;
+          W.c1 += -2.0 * wij * Mij * m;
+          W.c0 += wij * Mij * Mij;
+          if (model_out) (*model_out)(ii, jj) = m;
+          W.g2[j] = 2.0 * wij * m;
+          W.g1[j] = -2.0 * wij * Mij;
+        }
+        if (K == 2) {
+          blur_transpose(W.g2.data(), W.mod.data());
+          for (std::size_t j = 0; j < ne; ++j) W.row_bar[j] = W.mod[j] * W.row_a[j];
+          blur_transpose(W.g1.data(), W.mod.data());
+          for (std::size_t j = 0; j < ne; ++j) W.row_bar[ne + j] = W.mod[j] * W.row_a[j];
+        }
+      } else if (cost_mode) {
         for (std::size_t j = 0; j < ne; ++j) {
           const auto jj = static_cast<Eigen::Index>(j);
           const double mod = std::norm(W.row_a[j]), wij = (*w)(ii, jj), Mij = (*M)(ii, jj);
@@ -718,11 +808,23 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       for (long i = 0; i < nd; ++i) {
         if (!const_dipole) compute_gates(i, gates);
         const auto ii = static_cast<Eigen::Index>(i);
-        for (std::size_t j = 0; j < ne; ++j) {
-          const auto jj = static_cast<Eigen::Index>(j);
-          const cdouble a = amp_keep(ii, jj);
-          const double wij = (*w)(ii, jj);
-          W.row_bar[j] = (mu * mu * 2.0 * wij * std::norm(a) - mu * 2.0 * wij * (*M)(ii, jj)) * a;
+        if (blurred) {
+          for (std::size_t j = 0; j < ne; ++j) W.mod[j] = std::norm(amp_keep(ii, static_cast<Eigen::Index>(j)));
+          blur(W.mod.data(), W.bl.data());
+          for (std::size_t j = 0; j < ne; ++j) {
+            const auto jj = static_cast<Eigen::Index>(j);
+            const double wij = (*w)(ii, jj);
+            W.g2[j] = mu * mu * 2.0 * wij * W.bl[j] - mu * 2.0 * wij * (*M)(ii, jj);
+          }
+          blur_transpose(W.g2.data(), W.mod.data());
+          for (std::size_t j = 0; j < ne; ++j) W.row_bar[j] = W.mod[j] * amp_keep(ii, static_cast<Eigen::Index>(j));
+        } else {
+          for (std::size_t j = 0; j < ne; ++j) {
+            const auto jj = static_cast<Eigen::Index>(j);
+            const cdouble a = amp_keep(ii, jj);
+            const double wij = (*w)(ii, jj);
+            W.row_bar[j] = (mu * mu * 2.0 * wij * std::norm(a) - mu * 2.0 * wij * (*M)(ii, jj)) * a;
+          }
         }
         adjoint(i, gates, const_dipole);
       }

@@ -285,6 +285,7 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
       fa_(P.ionization_energy_au, P.dipole, P.grid, carrier_, P.delay_au, P.energy_au, threads),
       ir_(std::move(ir)) {
   if (!ir_) throw std::invalid_argument("FullModelObjective: no IR parametrisation");
+  fa_.set_energy_resolution(P.energy_resolution_au);  // model counts blurred like the data
   const EnergyBinMap& map = fa_.energy_bins();
   fft_slot_.resize(ne_);
   for (std::size_t j = 0; j < ne_; ++j) {
@@ -1025,6 +1026,7 @@ Reconstruction LeastSquaresEngine::finalize() {
   fo.threads = options_.threads;
   r.retrieved = ForwardModel(problem_.ionization_energy_au, problem_.dipole, fo)
                     .trace(r.xuv, r.ir, problem_.delay_au, problem_.energy_au);
+  f.apply_resolution(r.retrieved);  // counts as the spectrometer records them
   r.trace_error = trace_error(problem_.intensity, r.retrieved, &r.scale, &problem_.weight);
   r.termination = done_ ? Termination::kConverged : Termination::kMaxIterations;
   r.message = last_termination_.empty() ? "L-BFGS still running" : "L-BFGS: " + last_termination_;

@@ -153,8 +153,11 @@ class FullModelObjective {
   CVec envelope(const double* x) const;
   std::vector<double> ir_theta(const double* x) const;
   IrField ir_field(const double* x) const;
-  /// |a|^2 (the model, no scale) and the weighted optimal scale mu at x.
+  /// |a|^2 (the model, no scale; blurred by the problem's energy resolution) and the
+  /// weighted optimal scale mu at x.
   Eigen::MatrixXd model(const double* x, double* mu) const;
+  /// Blurs model counts (delays x energies) by the problem's energy resolution, in place.
+  void apply_resolution(Eigen::MatrixXd& counts) const { fa_.blur_counts(counts); }
 
   /// IR parameters whose field is that of theta minus its low-pass part (the penalty's L).
   std::vector<double> without_low_frequencies(const std::vector<double>& theta) const;

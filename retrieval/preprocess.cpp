@@ -473,6 +473,8 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   pr.ionization_energy_au = ip;
   pr.central_momentum_au = s.central_momentum_au;
   pr.ir_omega_au = units::wavelength_nm_to_omega_au(trace.meta.ir_wavelength_nm);
+  if (trace.meta.energy_resolution_eV && *trace.meta.energy_resolution_eV > 0)
+    pr.energy_resolution_au = units::eV_to_au(*trace.meta.energy_resolution_eV);
   pr.field_free_spectrum = ff;
   pr.reference = s.reference;
   pr.dipole = DipoleModel(opt.dipole, ip, s.central_momentum_au);

@@ -22,7 +22,12 @@ std::string QualityOptions::validate() const {
   else if (!(max_spectrum_mismatch > 0)) s << "max_spectrum_mismatch = " << max_spectrum_mismatch << ": must be > 0";
   else if (!(max_energy_outside_support > 0 && max_energy_outside_support < 1))
     s << "max_energy_outside_support = " << max_energy_outside_support << ": must lie in (0, 1)";
-  else if (!(max_relative_sigma > 0)) s << "max_relative_sigma = " << max_relative_sigma << ": must be > 0";
+  else if (!(accuracy_target > 0 && accuracy_target < 1))
+    s << "accuracy_target = " << accuracy_target << ": must be in (0, 1)";
+  else if (!(low_count_accuracy_target >= accuracy_target && low_count_accuracy_target < 1))
+    s << "low_count_accuracy_target = " << low_count_accuracy_target << ": must be in [accuracy_target, 1)";
+  else if (!(low_count_peak_counts >= 0))
+    s << "low_count_peak_counts = " << low_count_peak_counts << ": must be >= 0";
   else if (!(max_start_disagreement > 0)) s << "max_start_disagreement = " << max_start_disagreement << ": must be > 0";
   else if (!(comparable_fit_ratio >= 1)) s << "comparable_fit_ratio = " << comparable_fit_ratio << ": must be >= 1";
   else if (!(max_ir_period_mismatch > 0)) s << "max_ir_period_mismatch = " << max_ir_period_mismatch << ": must be > 0";
@@ -61,6 +66,19 @@ void add_signal_checks(QualitySection& q, const Eigen::MatrixXd& counts, double 
     q.add("delay_dependence_sigma", delay_dependence_sigma(counts), o.min_delay_dependence_sigma, ">=",
           "Pearson chi^2 of the scan against its delay average, (chi^2 - dof) / sqrt(2 dof): "
           "below the limit the counts do not depend on the delay (no streaking or sideband signal)");
+}
+
+double peak_signal_counts(const Eigen::MatrixXd& c, double bg) {
+  const Eigen::Index nr = c.rows(), nc = c.cols();
+  double best = 0;
+  for (Eigen::Index i = 0; i < nr; ++i)
+    for (Eigen::Index j = 0; j < nc; ++j) {
+      const Eigen::Index i0 = std::max<Eigen::Index>(i - 1, 0), i1 = std::min<Eigen::Index>(i + 1, nr - 1);
+      const Eigen::Index j0 = std::max<Eigen::Index>(j - 1, 0), j1 = std::min<Eigen::Index>(j + 1, nc - 1);
+      const auto block = c.block(i0, j0, i1 - i0 + 1, j1 - j0 + 1);
+      best = std::max(best, block.mean() - bg);
+    }
+  return best;
 }
 
 double spectrum_mismatch(const Eigen::VectorXd& m, const Eigen::VectorXd& r, const Eigen::VectorXd& v,
@@ -103,12 +121,16 @@ void add_retrieval_checks(QualitySection& q, const RetrievalEvidence& e, const Q
   // comes with a sigma): with fewer than 2 bootstrap replicas there is none.
   q.add("uncertainty_reported", e.fwhm_as_sigma ? 1.0 : 0.0, 1.0, ">=",
         "1 when the FWHM and A0 carry a bootstrap sigma (--bootstrap >= 2), 0 otherwise");
+  // The +-2 sigma interval inside the accuracy target (the weak-scan target below the limit).
+  const bool weak = e.peak_counts && *e.peak_counts < o.low_count_peak_counts;
+  const double target = weak ? o.low_count_accuracy_target : o.accuracy_target;
+  const std::string why = weak ? " (+-2 sigma inside the weak-scan accuracy target)" : " (+-2 sigma inside the accuracy target)";
   if (e.fwhm_as_sigma && e.fwhm_as > 0)
-    q.add("fwhm_sigma_over_value", *e.fwhm_as_sigma / e.fwhm_as, o.max_relative_sigma, "<=",
-          "uncertainty of the XUV FWHM relative to its value");
+    q.add("fwhm_sigma_over_value", *e.fwhm_as_sigma / e.fwhm_as, 0.5 * target, "<=",
+          "uncertainty of the XUV FWHM relative to its value" + why);
   if (e.peak_vector_potential_au_sigma && e.peak_vector_potential_au && *e.peak_vector_potential_au > 0)
-    q.add("a0_sigma_over_value", *e.peak_vector_potential_au_sigma / *e.peak_vector_potential_au,
-          o.max_relative_sigma, "<=", "uncertainty of the IR peak vector potential relative to its value");
+    q.add("a0_sigma_over_value", *e.peak_vector_potential_au_sigma / *e.peak_vector_potential_au, 0.5 * target,
+          "<=", "uncertainty of the IR peak vector potential relative to its value" + why);
   if (e.cma_phase_error_rad)
     q.add("cma_phase_error_rad", *e.cma_phase_error_rad, e.cma_phase_error_max_rad, "<=",
           e.momentum_nodes ? "phase the central momentum approximation neglects at the band edges (rad); "

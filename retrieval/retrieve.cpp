@@ -10,6 +10,7 @@
 #include "retrieval/error.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/quality.h"
+#include "retrieval/satellite_seed.h"
 #include "retrieval/units.h"
 
 namespace sw {
@@ -25,6 +26,8 @@ std::string RetrieveOptions::validate() const {
              satellites_max_satellite_ratio <= 1))
     s << "satellite thresholds " << isolated_max_satellite_ratio << ", " << satellites_max_satellite_ratio
       << ": need 0 < isolated < satellites <= 1";
+  else if (!(satellite_start_ratio > 0 && satellite_start_ratio < 1))
+    s << "satellite_start_ratio = " << satellite_start_ratio << ": must be in (0, 1)";
   else if (!(cma_trace_error_max_ratio > 1)) s << "cma_trace_error_max_ratio = " << cma_trace_error_max_ratio << ": must be > 1";
   else if (!(max_seconds > 0)) s << "max_seconds = " << max_seconds << ": must be > 0";
   else if (!(method_sigma_relative >= 0 && method_sigma_relative < 1))
@@ -193,6 +196,23 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   if (!out.preprocess.field_free_measured && !user_set) eo.extra.push_back({"spectrum_constraint", "centroid"});
   eo.max_seconds = opt.max_seconds;
 
+  // Metrics from the in-support field (photon energy = kinetic energy + Ip).
+  auto band_of = [](const RetrievalProblem& p) {
+    const bool has = p.support_hi_au > p.support_lo_au;
+    return std::pair{has ? p.support_lo_au + p.ionization_energy_au : 0.0,
+                     has ? p.support_hi_au + p.ionization_energy_au : 0.0};
+  };
+  const auto [band_lo, band_hi] = band_of(pr);
+  // The satellite hypothesis (retrieval/satellite_seed.h): the full model from `base` with
+  // satellites at -+T/2 of the given sign.
+  auto satellite_run = [&](const RetrievalProblem& problem, const Reconstruction& base, double sign,
+                           const EngineOptions& o, const std::string& stage) {
+    EngineOptions so = o;
+    so.initial_xuv = with_satellites(base.xuv, units::kPi / pr.ir_omega_au, opt.satellite_start_ratio, sign);
+    so.initial_ir = base.ir;
+    return run_on(problem, "full-model", so, stage);
+  };
+  double satellite_sign = 0.0;  // the sign of an adopted satellite start (0: none)
   std::string final_engine = opt.engine;
   bool full_model_from_cma = false;  // auto: the full model's result started from the CMA's
   if (opt.engine == "auto") {
@@ -238,19 +258,35 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
           out.full_model_start = "the CMA result (better G than from its own guess)";
         }
       }
+      const Reconstruction base = out.chain.back();
+      if (opt.satellite_start && pr.ir_omega_au > 0 &&
+          pulse_metrics(base, pr.ir_omega_au, band_lo, band_hi).satellite_intensity_ratio <
+              opt.isolated_max_satellite_ratio) {
+        // Both signs; the runs go into the chain before the result (the chain ends with it).
+        out.chain.pop_back();
+        std::size_t best = out.chain.size();
+        double best_g = base.trace_error;
+        for (double sign : {-1.0, 1.0}) {
+          out.chain.push_back(satellite_run(pr, base, sign, fo, "full-model (satellite start)"));
+          if (out.chain.back().trace_error < best_g) {
+            best_g = out.chain.back().trace_error;
+            best = out.chain.size() - 1;
+            satellite_sign = sign;
+          }
+        }
+        out.chain.push_back(base);
+        if (best < out.chain.size() - 1) {
+          std::swap(out.chain[best], out.chain.back());
+          out.full_model_start = std::string("the satellite hypothesis (satellites at -+T/2, sign ") +
+                                 (satellite_sign > 0 ? "+" : "-") + "; better G than without)";
+        }
+      }
     }
   } else {
     out.chain.push_back(run(opt.engine, eo));
   }
   out.reconstruction = out.chain.back();
   const Reconstruction& rec = out.reconstruction;
-  // Metrics from the in-support field (photon energy = kinetic energy + Ip).
-  auto band_of = [](const RetrievalProblem& p) {
-    const bool has = p.support_hi_au > p.support_lo_au;
-    return std::pair{has ? p.support_lo_au + p.ionization_energy_au : 0.0,
-                     has ? p.support_hi_au + p.ionization_energy_au : 0.0};
-  };
-  const auto [band_lo, band_hi] = band_of(pr);
   const PulseMetrics m = pulse_metrics(rec, pr.ir_omega_au, band_lo, band_hi);
   // The CMA's own error for every CMA run of the chain (auto computed it for the first).
   const double s_half = 0.5 * pr.grid.window();
@@ -307,6 +343,10 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
         fo.initial_ir = c.ir;
       }
       br = run_on(rp, "full-model", fo, stage);
+      if (satellite_sign != 0) {
+        Reconstruction sr = satellite_run(rp, br, satellite_sign, fo, stage);
+        if (sr.trace_error < br.trace_error) br = std::move(sr);
+      }
     } else {
       br = run_on(rp, final_engine, bo, stage);
     }
@@ -391,7 +431,16 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     corrected("peak_vector_potential_au", res.ir->peak_vector_potential_au, res.ir->peak_vector_potential_au_sigma,
               ba, with_floor(systematic([](const PulseMetrics& c) { return c.ir.peak_vector_potential_au; }),
                              res.ir->peak_vector_potential_au));
-    v.satellite_intensity_ratio_sigma = t * stddev(bs);
+    // The satellite ratio decides the class and is never moved; its sigma follows the same rule
+    // as the other headline numbers (replica spread, an uncorrected bias, the chain's
+    // systematic spread), and a bias that would be corrected widens it as well.
+    const BootstrapEstimate se = bootstrap_estimate(
+        v.satellite_intensity_ratio.value_or(0.0), bs,
+        systematic([](const PulseMetrics& c) { return std::optional<double>(c.satellite_intensity_ratio); }));
+    v.satellite_intensity_ratio_sigma = std::hypot(se.sigma, se.corrected ? se.bias : 0.0);
+    res.extra.push_back({"bootstrap.satellite_intensity_ratio_bias", se.bias});
+    res.extra.push_back({"bootstrap.satellite_intensity_ratio_sigma_statistical", se.sigma_statistical});
+    res.extra.push_back({"bootstrap.satellite_intensity_ratio_sigma_systematic", se.sigma_systematic});
   } else {
     res.warnings.push_back("no bootstrap replicas (--bootstrap < 2): no uncertainties reported");
   }
@@ -556,6 +605,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     if (cma && rec.model == "full" && f_final > 0) e.engine_disagreement = std::abs(fwhm_of(*cma) - f_final) / f_final;
   }
   e.bias_over_sigma = fwhm_bias_over_sigma;
+  e.peak_counts = peak_signal_counts(trace.counts, s.background_counts);
   if (rec.ir.size() >= 8 && rec.ir.peak_vector_potential() > 0)
     e.ir_field_ratio = rec.ir.peak_electric_field() / (pr.ir_omega_au * rec.ir.peak_vector_potential());
   e.ir_period_mismatch = ir_mismatch;

@@ -83,6 +83,15 @@ struct RetrieveOptions {
   /// Verdict thresholds (DESIGN.md defaults, common practice, no published standard).
   double isolated_max_satellite_ratio = 0.10;
   double satellites_max_satellite_ratio = 0.70;
+  /// auto: when the full model ran and its burst has no satellite above
+  /// isolated_max_satellite_ratio, run it twice more from that burst with satellites of
+  /// `satellite_start_ratio` at -+T/2 (each field sign; retrieval/satellite_seed.h) and keep a
+  /// start that fits better; an equally good start enters the systematic spread of the FWHM and
+  /// of the satellite ratio (so class_margin_sigma sees a class the data cannot decide).
+  bool satellite_start = true;
+  /// Intensity ratio of the seeded satellites (in (0, 1); 0.2, between the isolated and the
+  /// satellites thresholds: our choice).
+  double satellite_start_ratio = 0.2;
   /// Wall-time budget for the whole analysis (s).
   double max_seconds = 900.0;
   /// Relative systematic uncertainty of the retrieval method itself, a floor on s_sys of the
