@@ -1034,6 +1034,7 @@ Reconstruction CmaProblem::reconstruct(CVec eps, PhaseGate gate) const {
       std::min(0.5 * gate.knot_step(), units::period_au(problem_.ir_omega_au) / 64.0);
   rec.ir = ir_from_gate_phase(phase, p0, gate.time(lo), gate.time(hi), dt_ir);
   rec.settings = used_settings();
+  rec.noise_model = poisson_ ? "poisson" : "gaussian";
   rec.settings.emplace_back("gate_table_nodes", std::to_string(gate.size()));
   rec.settings.emplace_back("gate_exact_shifts", gate.exact_shifts() ? "yes" : "no");
   return rec;

@@ -136,6 +136,12 @@ const char* to_string(Termination t);
 struct Reconstruction {
   std::string engine;         ///< registered name
   std::string model;          ///< "cma" or "full" (the forward model it assumed)
+  /// Noise model of the data term the engine fitted (result.json fit.noise_model):
+  ///   "poisson"  intensity-unbiased projection (ptychographic's default) or least squares
+  ///              weighted by the Poisson variances (full model with variances);
+  ///   "gaussian" least squares on sqrt(I) (amplitude projection, noise band) or unweighted
+  ///              least squares on I (full model without variances): Gaussian errors.
+  std::string noise_model;
   XuvField xuv;               ///< time origin: IR reference (tau = 0, DESIGN.md)
   IrField ir;                 ///< retrieved vector potential A(t)
   Eigen::MatrixXd retrieved;  ///< model trace on the problem's axes (|a|^2 units)

@@ -1013,6 +1013,7 @@ Reconstruction LeastSquaresEngine::finalize() {
   Reconstruction r;
   r.engine = name();
   r.model = model_ == MomentumModel::kFull ? "full" : "cma";
+  r.noise_model = problem_.variance.size() != 0 ? "poisson" : "gaussian";
   r.reference = reference();
   r.xuv = XuvField(problem_.grid, f.carrier_au(), std::move(eps));
   r.ir = f.ir_field(best_x_.data());

@@ -420,7 +420,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   f.iterations = its;
   f.converged = rec.converged();
   f.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t_start).count();
-  f.noise_model = "poisson";
+  f.noise_model = rec.noise_model;  // the final engine's (Reconstruction::noise_model)
   f.termination = std::string(to_string(rec.termination)) + ": " + rec.message;
   res.fit = f;
   for (const auto& w : out.preprocess.warnings) res.warnings.push_back(w);
