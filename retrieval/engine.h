@@ -192,6 +192,9 @@ struct Reconstruction {
   ///   "gaussian" least squares on sqrt(I) (amplitude projection, noise band) or unweighted
   ///              least squares on I (full model without variances): Gaussian errors.
   std::string noise_model;
+  /// Momentum nodes of the gate a CMA engine used (1 = one p0; the banded CMA more; 0 = not
+  /// a CMA engine or not recorded): retrieve's bootstrap replicas use the same count.
+  int momentum_nodes = 0;
   XuvField xuv;               ///< time origin: IR reference (tau = 0, DESIGN.md)
   IrField ir;                 ///< retrieved vector potential A(t)
   Eigen::MatrixXd retrieved;  ///< model trace on the problem's axes (|a|^2 units)

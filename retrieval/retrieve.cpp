@@ -275,9 +275,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
                                      [](const auto& kv) { return kv.first == "momentum_bands"; });
   const auto ptycho = std::find_if(out.chain.begin(), out.chain.end(),
                                    [](const Reconstruction& c) { return c.engine == "ptychographic"; });
-  if (!nodes_set && ptycho != out.chain.end())
-    for (const auto& [key, value] : ptycho->settings)
-      if (key == "momentum_nodes_used") beo.extra.push_back({"momentum_bands", value});
+  if (!nodes_set && ptycho != out.chain.end() && ptycho->momentum_nodes > 0)
+    beo.extra.push_back({"momentum_bands", std::to_string(ptycho->momentum_nodes)});
   std::vector<double> bf, bg, ba, bs;
   for (int b = 0; b < opt.bootstrap; ++b) {
     const Trace rep = poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);

@@ -15,6 +15,8 @@
 #include "retrieval/engine.h"
 #include "retrieval/full_model_engine.h"
 #include "retrieval/option_spec.h"
+#include "retrieval/projections_engine.h"
+#include "retrieval/ptychographic_engine.h"
 #include "retrieval/retrieve.h"
 
 using namespace sw;
@@ -126,6 +128,9 @@ TEST_CASE("every options description: defaults valid, bounds and choices enforce
           "[options]") {
   walk_description<RetrieveOptions>("RetrieveOptions");
   walk_description<FullModelSettings>("FullModelSettings");
+  walk_description<CmaSettings>("CmaSettings");
+  walk_description<PtychographicSettings>("PtychographicSettings");
+  walk_description<ProjectionsSettings>("ProjectionsSettings");
 }
 
 TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") {
@@ -163,4 +168,9 @@ TEST_CASE("engine options from the typed settings' description", "[options]") {
   // The generated list carries the description's defaults and units.
   for (const ExtraOption& x : full_model_extra_options())
     if (x.name == "support_margin_eV") CHECK_THAT(x.help, Catch::EndsWith(", eV"));
+  // The CMA engines: their defaults differ only in the data projection
+  // (retrieval/cma_problem.h: poisson for ptychographic, amplitude for projections).
+  for (const auto& [engine, projection] : {std::pair{"ptychographic", "poisson"}, std::pair{"projections", "amplitude"}})
+    for (const ExtraOption& x : make_engine(engine)->extra_options())
+      if (x.name == "projection") CHECK(x.default_value == projection);
 }
