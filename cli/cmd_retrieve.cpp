@@ -106,10 +106,12 @@ int run_retrieve(RetrieveArgs& a) {
 void add_retrieve_command(CLI::App& app) {
   auto a = std::make_shared<RetrieveArgs>();
   auto* cmd = app.add_subcommand("retrieve", "Reconstruct the XUV pulse and the IR streaking field from a scan");
+  std::ostringstream limit;  // the default of --cma-phase-limit (RetrieveOptions)
+  limit << RetrieveOptions{}.cma_phase_error_max_rad;
   std::string engines =
       "Engines:\n"
       "  auto           ptychographic first; full-model refinement when the CMA's own phase error\n"
-      "                 (estimated from the retrieved field) exceeds 0.6 rad (broadband pulses)\n"
+      "                 (estimated from the retrieved field) exceeds " + limit.str() + " rad (broadband pulses)\n"
       "  ptychographic  ePIE applied to streaking (CMA): XUV = object, phase gate = probe\n"
       "  projections    generalized projections (CMA): PCGPA on matched grids, LSGPA otherwise\n"
       "  full-model     least-squares fit of the full SFA model without the CMA (Ceres, L-BFGS)\n"
