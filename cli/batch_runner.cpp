@@ -261,21 +261,32 @@ std::string BatchOptions::validate() const {
   return {};
 }
 
-std::string batch_options_string(const BatchOptions& o) {
+namespace {
+
+// The retrieve options of a batch string, from RetrieveOptions::describe: `name=value` for every
+// field with batch = true, with the seed, engine and thread count the scans actually get.
+void append_retrieve_texts(std::ostringstream& s, const BatchOptions& o, const std::string& seed_key,
+                           const std::string& seed, const std::string& engine) {
+  for (auto [k, v] : described_texts(o.retrieve)) {
+    if (k == "seed") {
+      k = seed_key;
+      v = seed;
+    } else if (k == "engine") v = engine;
+    else if (k == "threads") v = std::to_string(engine_threads(o));
+    s << ";" << k << "=" << v;
+  }
   const RetrieveOptions& r = o.retrieve;
-  std::ostringstream s;
-  s << "analysis=" << to_string(o.analysis) << ";atomic_correction=" << o.atomic_correction
-    << ";bootstrap=" << r.bootstrap << ";cma_phase_error_max_rad=" << num(r.cma_phase_error_max_rad)
-    << ";cma_trace_error_max_ratio=" << num(r.cma_trace_error_max_ratio)
-    << ";dipole=" << to_string(r.preprocess.dipole)
-    << ";despike=" << (r.preprocess.remove_hot_pixels ? 1 : 0) << ";engine=" << r.engine
-    << ";isolated_max=" << num(r.isolated_max_satellite_ratio) << ";iterations=" << r.iterations
-    << ";max_seconds=" << num(r.max_seconds)
-    << ";satellites_max=" << num(r.satellites_max_satellite_ratio) << ";base_seed=" << r.seed
-    << ";threads=" << engine_threads(o);
   for (const auto& [k, v] : r.engine_extra) s << ";engine." << k << "=" << v;
   if (r.preprocess.energy_window_lo_eV != 0 || r.preprocess.energy_window_hi_eV != 0)
     s << ";energy_window=" << num(r.preprocess.energy_window_lo_eV) << ":" << num(r.preprocess.energy_window_hi_eV);
+}
+
+}  // namespace
+
+std::string batch_options_string(const BatchOptions& o) {
+  std::ostringstream s;
+  s << "analysis=" << to_string(o.analysis) << ";atomic_correction=" << o.atomic_correction;
+  append_retrieve_texts(s, o, "base_seed", std::to_string(o.retrieve.seed), o.retrieve.engine);
   // Only when not the default, so results written before the option existed stay reusable.
   if (o.figure_format != plot::FigureFormat::kPng) s << ";figure_format=" << to_string(o.figure_format);
   return s.str();
@@ -283,21 +294,10 @@ std::string batch_options_string(const BatchOptions& o) {
 
 std::string scan_options_string(const BatchScan& scan, const BatchOptions& o) {
   const Effective e = effective(scan, o);
-  const RetrieveOptions& r = o.retrieve;
   std::ostringstream s;
-  s << "analysis=" << to_string(e.analysis) << ";atomic_correction=" << o.atomic_correction
-    << ";bootstrap=" << r.bootstrap << ";cma_phase_error_max_rad=" << num(r.cma_phase_error_max_rad)
-    << ";cma_trace_error_max_ratio=" << num(r.cma_trace_error_max_ratio)
-    << ";dipole=" << to_string(r.preprocess.dipole)
-    << ";despike=" << (r.preprocess.remove_hot_pixels ? 1 : 0)
-    << ";engine=" << e.overrides.engine.value_or(r.engine)
-    << ";isolated_max=" << num(r.isolated_max_satellite_ratio) << ";iterations=" << r.iterations
-    << ";max_seconds=" << num(r.max_seconds)
-    << ";satellites_max=" << num(r.satellites_max_satellite_ratio)
-    << ";seed=" << scan_seed(r.seed, scan.name) << ";threads=" << engine_threads(o);
-  for (const auto& [k, v] : r.engine_extra) s << ";engine." << k << "=" << v;
-  if (r.preprocess.energy_window_lo_eV != 0 || r.preprocess.energy_window_hi_eV != 0)
-    s << ";energy_window=" << num(r.preprocess.energy_window_lo_eV) << ":" << num(r.preprocess.energy_window_hi_eV);
+  s << "analysis=" << to_string(e.analysis) << ";atomic_correction=" << o.atomic_correction;
+  append_retrieve_texts(s, o, "seed", std::to_string(scan_seed(o.retrieve.seed, scan.name)),
+                        e.overrides.engine.value_or(o.retrieve.engine));
   s << ";override.gas=" << e.overrides.gas.value_or("") << ";override.ir_wavelength_nm="
     << (e.overrides.ir_wavelength_nm ? num(*e.overrides.ir_wavelength_nm) : "")
     << ";override.kind=" << e.overrides.kind.value_or("");

@@ -12,6 +12,7 @@
 #include "cli/batch_summary.h"
 #include "cli/commands.h"
 #include "cli/option_checks.h"
+#include "cli/option_registry.h"
 #include "cli/output_folder.h"
 #include "cli/structured_file.h"
 #include "io/input_guard.h"
@@ -27,7 +28,7 @@ namespace {
 
 struct BatchArgs {
   std::vector<std::string> inputs;
-  std::string out, shard = "1/1", analysis = "auto", config, dipole = "constant";
+  std::string out, shard = "1/1", analysis = "auto", config;
   std::string energy_window;  ///< --energy-window LO:HI (eV), "" = none
   BatchOptions options;
   bool dry_run = false;
@@ -35,6 +36,17 @@ struct BatchArgs {
   // Options whose command-line presence decides whether the config file may set them.
   std::map<std::string, CLI::Option*> cli;
 };
+
+// Config keys of the batch itself; the retrieve options' keys come from RetrieveOptions::describe.
+const std::vector<std::string> kBatchKeys = {"analysis", "jobs", "atomic_correction", "resume", "energy_window",
+                                             "figure_format"};
+
+std::string config_keys_text() {
+  std::string list;
+  for (const auto& n : kBatchKeys) list += (list.empty() ? "" : ", ") + n;
+  for (const auto& n : described_config_keys<RetrieveOptions>()) list += ", " + n;
+  return list;
+}
 
 /// Config file: the batch options as keys (command-line values win), plus gas,
 /// ir_wavelength_nm and kind as overrides for every scan.
@@ -61,6 +73,7 @@ void apply_config(BatchArgs& a) {
     return v.get<long long>();
   };
   RetrieveOptions& r = a.options.retrieve;
+  RetrieveOptions probe;  // type checks of keys the command line overrides
   for (auto it = j.begin(); it != j.end(); ++it) {
     const std::string& k = it.key();
     const nlohmann::json& v = it.value();
@@ -83,60 +96,28 @@ void apply_config(BatchArgs& a) {
       a.options.overrides.kind = s;
       continue;
     }
-    static const std::vector<std::string> known = {
-        "analysis",        "engine",       "iterations",     "bootstrap",   "seed",
-        "threads",         "jobs",         "dipole",         "despike",     "atomic_correction",
-        "cma_phase_limit", "cma_fit_limit", "isolated_max", "satellites_max", "max_seconds", "resume",
-        "energy_window",   "figure_format"};
-    if (std::find(known.begin(), known.end(), k) == known.end()) {
-      std::string list = "gas, ir_wavelength_nm, kind";
-      for (const auto& n : known) list += ", " + n;
-      throw usage_error(where(k) + ": unknown key; expected one of " + list);
-    }
+    const bool batch_key = std::find(kBatchKeys.begin(), kBatchKeys.end(), k) != kBatchKeys.end();
+    if (!batch_key && !set_described_from_config(probe, k, v, where(k)))
+      throw usage_error(where(k) + ": unknown key; expected one of gas, ir_wavelength_nm, kind, " +
+                        config_keys_text());
     if (given(k)) continue;  // the command line wins
-    if (k == "analysis")
+    if (!batch_key)
+      set_described_from_config(r, k, v, where(k));
+    else if (k == "analysis")
       a.analysis = get_string(k, v);
-    else if (k == "engine")
-      r.engine = get_string(k, v);
-    else if (k == "iterations")
-      r.iterations = static_cast<int>(get_int(k, v));
-    else if (k == "bootstrap")
-      r.bootstrap = static_cast<int>(get_int(k, v));
-    else if (k == "seed") {
-      const long long s = get_int(k, v);
-      if (s < 0) throw usage_error(where(k) + " = " + v.dump() + "; expected a seed >= 0");
-      r.seed = static_cast<unsigned long long>(s);
-    } else if (k == "threads")
-      r.threads = static_cast<int>(get_int(k, v));
     else if (k == "jobs")
       a.options.jobs = static_cast<int>(get_int(k, v));
-    else if (k == "dipole")
-      a.dipole = get_string(k, v);
     else if (k == "energy_window")
       a.energy_window = get_string(k, v);
     else if (k == "figure_format") {
       const std::string f = get_string(k, v);
       if (!plot::parse_figure_format(f, &a.options.figure_format))
         throw usage_error(where(k) + " = '" + f + "'; expected png or svg");
-    }
-    else if (k == "despike") {
-      if (!v.is_boolean()) throw usage_error(where(k) + ": expected true or false");
-      r.preprocess.remove_hot_pixels = v.get<bool>();
     } else if (k == "resume") {
       if (!v.is_boolean()) throw usage_error(where(k) + ": expected true or false");
       a.options.resume = v.get<bool>();
     } else if (k == "atomic_correction")
       a.options.atomic_correction = get_string(k, v);
-    else if (k == "cma_phase_limit")
-      r.cma_phase_error_max_rad = get_number(k, v);
-    else if (k == "cma_fit_limit")
-      r.cma_trace_error_max_ratio = get_number(k, v);
-    else if (k == "isolated_max")
-      r.isolated_max_satellite_ratio = get_number(k, v);
-    else if (k == "satellites_max")
-      r.satellites_max_satellite_ratio = get_number(k, v);
-    else if (k == "max_seconds")
-      r.max_seconds = get_number(k, v);
   }
 }
 
@@ -152,8 +133,6 @@ int run_batch_command(BatchArgs& a) {
   if (!a.energy_window.empty())
     parse_energy_window(a.energy_window, "--energy-window", &o.retrieve.preprocess.energy_window_lo_eV,
                         &o.retrieve.preprocess.energy_window_hi_eV);
-  if (!parse_dipole_kind(a.dipole, &o.retrieve.preprocess.dipole))
-    throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
   if (o.retrieve.engine != "auto") (void)make_engine(o.retrieve.engine);  // lists the names
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
 
@@ -263,15 +242,14 @@ void add_batch_command(CLI::App& app) {
       "batch",
       "Analyse many scans: folders, sidecars or manifests; resumable, parallel, shardable");
   cmd->footer(
-      "INPUT: a folder (searched recursively for trace sidecars), a sidecar, or a manifest\n"
+      std::string("INPUT: a folder (searched recursively for trace sidecars), a sidecar, or a manifest\n"
       "(.csv, or .json/.yaml with a \"scans\" list; per-scan columns scan, name, gas,\n"
       "ir_wavelength_nm, engine, kind, analysis). Each scan is written to DIR/<its path relative\n"
       "to its input folder, without extension>/ (result.json, CSVs, figures, report.html), via a\n"
       "temporary folder renamed into place. Then DIR/summary.csv, summary.json, trend_*.png\n"
-      "(.svg with --figure-format svg) and index.html. A failed scan never stops the batch.\n"
-      "--config FILE (JSON or YAML): the options below as keys (analysis, engine, iterations,\n"
-      "bootstrap, seed, threads, jobs, dipole, despike, atomic_correction, cma_phase_limit, cma_fit_limit,\n"
-      "isolated_max, satellites_max, max_seconds, resume, energy_window \"LO:HI\", figure_format),\n"
+      "(.svg with --figure-format svg) and index.html. A failed scan never stops the batch.\n") +
+      "--config FILE (JSON or YAML): the options below as keys (" + config_keys_text() +
+      "; energy_window as \"LO:HI\"),\n"
       "plus gas, ir_wavelength_nm and kind applied to every scan (manifest rows win);\n"
       "command-line options win over the file.\n"
       "Seeds: each scan's seed derives from --seed and its name, so results do not depend on\n"
@@ -290,51 +268,13 @@ void add_batch_command(CLI::App& app) {
       cmd->add_option("--analysis", a->analysis, "auto | retrieve | rabbitt | classify")
           ->capture_default_str();
   cmd->add_option("--config", a->config, "batch options and overrides (JSON or YAML)");
-  a->cli["engine"] =
-      cmd->add_option("--engine", a->options.retrieve.engine,
-                      "retrieve: engine (auto, ptychographic, projections, full-model)")
-          ->capture_default_str();
-  a->cli["iterations"] =
-      cmd->add_option("--iterations", a->options.retrieve.iterations,
-                      "retrieve: iterations of the first engine; 0 = engine default")
-          ->capture_default_str();
-  a->cli["bootstrap"] = cmd->add_option("--bootstrap", a->options.retrieve.bootstrap,
-                                        "retrieve: Poisson-bootstrap replicas (0 = no sigmas)")
-                            ->capture_default_str();
-  a->cli["seed"] =
-      cmd->add_option("--seed", a->options.retrieve.seed, "base seed (each scan derives its own)")
-          ->capture_default_str();
-  a->cli["threads"] = cmd->add_option("--threads", a->options.retrieve.threads,
-                                      "engine threads per scan (only with --jobs 1)")
-                          ->capture_default_str();
-  a->cli["dipole"] = cmd->add_option("--dipole", a->dipole, "retrieve: constant | hydrogenic")
-                         ->capture_default_str();
-  a->cli["despike"] = cmd->add_flag("--despike,!--no-despike", a->options.retrieve.preprocess.remove_hot_pixels,
-                                    "retrieve: replace isolated hot pixels (on by default)");
+  // The retrieve options of RetrieveOptions::describe (retrieval/retrieve.h).
+  a->cli.merge(add_described_options(cmd, a->options.retrieve));
   a->cli["energy_window"] = cmd->add_option("--energy-window", a->energy_window,
                                             "analyse only photoelectron energies LO:HI (eV) in every scan");
   a->cli["atomic_correction"] =
       cmd->add_option("--atomic-correction", a->options.atomic_correction, "rabbitt: auto | none")
           ->capture_default_str();
-  a->cli["cma_phase_limit"] =
-      cmd->add_option("--cma-phase-limit", a->options.retrieve.cma_phase_error_max_rad,
-                      "retrieve auto: CMA phase error (rad) above which the full model refines")
-          ->capture_default_str();
-  a->cli["cma_fit_limit"] =
-      cmd->add_option("--cma-fit-limit", a->options.retrieve.cma_trace_error_max_ratio,
-                      "retrieve auto: CMA trace error / noise floor above which the full model refines")
-          ->capture_default_str();
-  a->cli["isolated_max"] =
-      cmd->add_option("--isolated-max", a->options.retrieve.isolated_max_satellite_ratio,
-                      "verdict: largest satellite/main ratio for 'isolated'")
-          ->capture_default_str();
-  a->cli["satellites_max"] =
-      cmd->add_option("--satellites-max", a->options.retrieve.satellites_max_satellite_ratio,
-                      "verdict: upper limit for 'isolated_with_satellites'")
-          ->capture_default_str();
-  a->cli["max_seconds"] = cmd->add_option("--max-seconds", a->options.retrieve.max_seconds,
-                                          "wall-time budget per scan (s)")
-                              ->capture_default_str();
   a->cli["figure_format"] = add_figure_format_option(cmd, &a->options.figure_format);
   cmd->add_flag("--dry-run", a->dry_run,
                 "list the scans (name and sidecar) of this shard and exit");

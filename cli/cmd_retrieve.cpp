@@ -8,6 +8,7 @@
 #include "cli/commands.h"
 #include "cli/analysis.h"
 #include "cli/option_checks.h"
+#include "cli/option_registry.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
 #include "retrieval/lines.h"
@@ -21,7 +22,6 @@ namespace {
 struct RetrieveArgs {
   std::string scan, out;
   RetrieveOptions options;
-  std::string dipole = "constant";
   std::string energy_window;  ///< --energy-window LO:HI (eV), "" = none
   std::string lines;          ///< --lines NAME[,NAME...] or none; "" = every line found
   bool quiet = false;
@@ -83,8 +83,6 @@ int run_retrieve(RetrieveArgs& a) {
             a.options.line_delays.names.end())
       throw usage_error("--lines " + a.lines + ": none cannot be combined with line names");
   }
-  if (!parse_dipole_kind(a.dipole, &a.options.preprocess.dipole))
-    throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
   if (a.options.engine != "auto") (void)make_engine(a.options.engine);  // unknown names listed
   if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
   ScanJob job;
@@ -108,10 +106,12 @@ int run_retrieve(RetrieveArgs& a) {
 void add_retrieve_command(CLI::App& app) {
   auto a = std::make_shared<RetrieveArgs>();
   auto* cmd = app.add_subcommand("retrieve", "Reconstruct the XUV pulse and the IR streaking field from a scan");
+  std::ostringstream limit;  // the default of --cma-phase-limit (RetrieveOptions)
+  limit << RetrieveOptions{}.cma_phase_error_max_rad;
   std::string engines =
       "Engines:\n"
       "  auto           ptychographic first; full-model refinement when the CMA's own phase error\n"
-      "                 (estimated from the retrieved field) exceeds 0.6 rad (broadband pulses)\n"
+      "                 (estimated from the retrieved field) exceeds " + limit.str() + " rad (broadband pulses)\n"
       "  ptychographic  ePIE applied to streaking (CMA): XUV = object, phase gate = probe\n"
       "  projections    generalized projections (CMA): PCGPA on matched grids, LSGPA otherwise\n"
       "  full-model     least-squares fit of the full SFA model without the CMA (Ceres, L-BFGS)\n"
@@ -121,24 +121,8 @@ void add_retrieve_command(CLI::App& app) {
   cmd->footer(engines);
   cmd->add_option("scan", a->scan, "sidecar of the scan (NAME.json or NAME.yaml)")->required();
   cmd->add_option("--out,-o", a->out, "output folder (created)")->required();
-  cmd->add_option("--engine", a->options.engine, "reconstruction engine (see below)")->capture_default_str();
-  cmd->add_option("--iterations", a->options.iterations, "iterations of the first engine; 0 = engine default (300)")
-      ->capture_default_str();
-  cmd->add_option("--bootstrap", a->options.bootstrap,
-                  "Poisson-bootstrap replicas for the uncertainties (0 = none)")->capture_default_str();
-  cmd->add_option("--seed", a->options.seed, "seed of delay order and bootstrap draws")->capture_default_str();
-  cmd->add_option("--threads", a->options.threads, "worker threads inside the engines")->capture_default_str();
-  cmd->add_option("--dipole", a->dipole, "dipole model: constant | hydrogenic")->capture_default_str();
-  cmd->add_option("--cma-phase-limit", a->options.cma_phase_error_max_rad,
-                  "auto: CMA phase error (rad) above which the full model refines")->capture_default_str();
-  cmd->add_option("--cma-fit-limit", a->options.cma_trace_error_max_ratio,
-                  "auto: CMA trace error / noise floor above which the full model refines")->capture_default_str();
-  cmd->add_option("--isolated-max", a->options.isolated_max_satellite_ratio,
-                  "verdict: largest satellite/main intensity for 'isolated' (common practice)")->capture_default_str();
-  cmd->add_option("--satellites-max", a->options.satellites_max_satellite_ratio,
-                  "verdict: upper limit for 'isolated_with_satellites'")->capture_default_str();
-  cmd->add_flag("--despike,!--no-despike", a->options.preprocess.remove_hot_pixels,
-                "replace isolated hot pixels (no smoothing; on by default)");
+  // The options of RetrieveOptions::describe (retrieval/retrieve.h).
+  add_described_options(cmd, a->options);
   cmd->add_option("--energy-window", a->energy_window,
                   "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV "
                   "and the automatic window around the strongest line");

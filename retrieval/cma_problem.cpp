@@ -16,81 +16,29 @@
 
 namespace sw {
 
-std::vector<ExtraOption> cma_extra_options(bool poisson_default) {
-  using K = ExtraOption::Kind;
-  const CmaSettings d;
-  return {
-      {"spectrum_constraint",
-       K::kChoice,
-       "amplitude",
-       "use of the field-free spectrum: amplitude (impose |E_X| and align the centroid), "
-       "centroid (align only), off",
-       0,
-       0,
-       {"amplitude", "centroid", "off"}},
-      {"spectrum_interval",
-       K::kInteger,
-       std::to_string(d.spectrum_interval),
-       "apply the field-free-spectrum constraint (spectrum_constraint) every n iterations (0 = "
-       "never)",
-       0,
-       1e6,
-       {}},
-      {"gate_smoothing_interval",
-       K::kInteger,
-       std::to_string(d.gate_smoothing_interval),
-       "project the gate phase onto a cubic B-spline every n iterations (0 = at the end only)",
-       0,
-       1e6,
-       {}},
-      {"gate_knots_per_period",
-       K::kNumber,
-       "32",
-       "B-spline knots per IR period of the smooth gate phase (>= 8)",
-       8,
-       1e4,
-       {}},
-      {"unmeasured_damping",
-       K::kNumber,
-       "1",
-       "exit-wave spectrum factor on FFT bins outside the energy window (1 free, 0 zero)",
-       0,
-       1,
-       {}},
-      {"projection",
-       K::kChoice,
-       poisson_default ? "poisson" : "amplitude",
-       "data projection of the exit waves: poisson (step (|psi| + I/|psi|)/2, unbiased in "
-       "intensity at low counts) or amplitude (|psi| <- sqrt(I))",
-       0,
-       0,
-       {"poisson", "amplitude"}},
-      {"noise_tolerance",
-       K::kNumber,
-       "0",
-       "half-width of the accepted modulus band, in standard deviations of sqrt(I) (0 = exact "
-       "modulus replacement)",
-       0,
-       10,
-       {}},
-  };
+const char* to_string(CmaSpectrum s) {
+  switch (s) {
+    case CmaSpectrum::kCentroid: return "centroid";
+    case CmaSpectrum::kOff: return "off";
+    default: return "amplitude";
+  }
 }
 
-CmaSettings read_cma_settings(const EngineOptions& o, bool poisson_default) {
-  CmaSettings s;
-  const std::string sc = o.extra_string("spectrum_constraint", "amplitude");
-  s.spectrum = sc == "off"        ? CmaSettings::Spectrum::kOff
-               : sc == "centroid" ? CmaSettings::Spectrum::kCentroid
-                                  : CmaSettings::Spectrum::kAmplitude;
-  s.spectrum_interval = static_cast<int>(o.extra_int("spectrum_interval", s.spectrum_interval));
-  s.gate_smoothing_interval =
-      static_cast<int>(o.extra_int("gate_smoothing_interval", s.gate_smoothing_interval));
-  s.gate_knots_per_period = o.extra_double("gate_knots_per_period", s.gate_knots_per_period);
-  s.unmeasured_damping = o.extra_double("unmeasured_damping", s.unmeasured_damping);
-  s.noise_tolerance = o.extra_double("noise_tolerance", s.noise_tolerance);
-  s.poisson_projection =
-      o.extra_string("projection", poisson_default ? "poisson" : "amplitude") == "poisson";
-  return s;
+bool parse_option(const std::string& s, CmaSpectrum* out) {
+  if (s == "amplitude") *out = CmaSpectrum::kAmplitude;
+  else if (s == "centroid") *out = CmaSpectrum::kCentroid;
+  else if (s == "off") *out = CmaSpectrum::kOff;
+  else return false;
+  return true;
+}
+
+const char* to_string(CmaProjection p) { return p == CmaProjection::kPoisson ? "poisson" : "amplitude"; }
+
+bool parse_option(const std::string& s, CmaProjection* out) {
+  if (s == "poisson") *out = CmaProjection::kPoisson;
+  else if (s == "amplitude") *out = CmaProjection::kAmplitude;
+  else return false;
+  return true;
 }
 
 int auto_momentum_bands(double p_lo, double p_hi, double p0) {
@@ -323,7 +271,7 @@ CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, s
   meas_.resize(nd_ * ne_);
   const bool with_noise = settings_.noise_tolerance > 0 && p.variance.size() != 0;
   band_ = with_noise;
-  poisson_ = settings_.poisson_projection && !band_;
+  poisson_ = settings_.projection == CmaProjection::kPoisson && !band_;
   // Elements of weight 0 are not data (RetrievalProblem::weight): the projection keeps the
   // model there (frozen_*) and the running G leaves them out; any weight > 0 counts as data.
   const bool weighted = p.weight.size() != 0;
@@ -1034,6 +982,7 @@ Reconstruction CmaProblem::reconstruct(CVec eps, PhaseGate gate) const {
       std::min(0.5 * gate.knot_step(), units::period_au(problem_.ir_omega_au) / 64.0);
   rec.ir = ir_from_gate_phase(phase, p0, gate.time(lo), gate.time(hi), dt_ir);
   rec.settings = used_settings();
+  rec.noise_model = poisson_ ? "poisson" : "gaussian";
   rec.settings.emplace_back("gate_table_nodes", std::to_string(gate.size()));
   rec.settings.emplace_back("gate_exact_shifts", gate.exact_shifts() ? "yes" : "no");
   return rec;

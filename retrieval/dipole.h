@@ -15,6 +15,8 @@ namespace sw {
 enum class DipoleKind { kConstant, kHydrogenic };
 const char* to_string(DipoleKind k);
 bool parse_dipole_kind(const std::string& s, DipoleKind* out);
+/// The same, under the name option descriptions use (retrieval/option_spec.h).
+inline bool parse_option(const std::string& s, DipoleKind* out) { return parse_dipole_kind(s, out); }
 
 class DipoleModel {
  public:

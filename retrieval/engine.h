@@ -11,16 +11,20 @@
 // The loop (not the engines) owns counters, timing, callbacks and the stopping rules.
 
 #include <chrono>
+#include <cmath>
 #include <functional>
 #include <memory>
 #include <optional>
 #include <string>
+#include <type_traits>
 #include <vector>
 
 #include <Eigen/Core>
 
 #include "retrieval/dipole.h"
+#include "retrieval/error.h"
 #include "retrieval/ir_field.h"
+#include "retrieval/option_spec.h"
 #include "retrieval/trace.h"
 #include "retrieval/xuv_field.h"
 
@@ -118,6 +122,52 @@ struct ExtraOption {
   std::string validate(const std::string& value) const;
 };
 
+/// The ExtraOption list of an engine's typed settings, generated from their description
+/// (retrieval/option_spec.h; kind from the field's type, defaults from `defaults`, the unit
+/// appended to the help). Open bounds are listed as their closed ends; the typed validate()
+/// enforces them after reading.
+template <class Settings>
+std::vector<ExtraOption> described_extra_options(const Settings& defaults) {
+  std::vector<ExtraOption> out;
+  auto add = [&](const OptionSpec& s, const auto& value) {
+    using T = std::decay_t<decltype(value)>;
+    ExtraOption x;
+    x.name = std::string(s.name);
+    x.default_value = option_text(value);
+    x.help = std::string(s.help) + (s.unit.empty() ? "" : ", " + std::string(s.unit));
+    x.min = std::isfinite(s.min) ? s.min : -1e308;
+    x.max = std::isfinite(s.max) ? s.max : 1e308;
+    if constexpr (std::is_same_v<T, std::string> || std::is_enum_v<T>) {
+      x.kind = ExtraOption::Kind::kChoice;
+      std::string_view c = s.choices;
+      for (std::size_t bar; (bar = c.find('|')) != std::string_view::npos; c.remove_prefix(bar + 1))
+        x.choices.emplace_back(c.substr(0, bar));
+      x.choices.emplace_back(c);
+    } else {
+      x.kind = std::is_integral_v<T> ? ExtraOption::Kind::kInteger : ExtraOption::Kind::kNumber;
+    }
+    out.push_back(std::move(x));
+  };
+  Settings::describe(defaults, add);
+  return out;
+}
+
+/// Typed settings from an engine's extras (`name=value` text): every described field whose
+/// name appears in options.extra is set from its text (the last entry wins); the others keep
+/// the value in `*settings`. Throws sw::Error(kUsage) "<engine>: engine option <name> = '<text>':
+/// expected ..." for text of the wrong type; bounds are checked by the settings' validate().
+template <class Settings>
+void read_described_extras(const EngineOptions& options, const std::string& engine, Settings* settings) {
+  auto read = [&](const OptionSpec& s, auto& field) {
+    const std::string name(s.name);
+    if (!options.has_extra(name)) return;
+    const std::string text = options.extra_string(name, "");
+    if (const std::string e = set_option_from_text(s, text, &field); !e.empty())
+      throw usage_error(engine + ": engine option " + name + " = '" + text + "': " + e);
+  };
+  Settings::describe(*settings, read);
+}
+
 /// One iteration's record.
 struct IterationRecord {
   int iteration = 0;
@@ -140,6 +190,15 @@ const char* to_string(Termination t);
 struct Reconstruction {
   std::string engine;         ///< registered name
   std::string model;          ///< "cma" or "full" (the forward model it assumed)
+  /// Noise model of the data term the engine fitted (result.json fit.noise_model):
+  ///   "poisson"  intensity-unbiased projection (ptychographic's default) or least squares
+  ///              weighted by the Poisson variances (full model with variances);
+  ///   "gaussian" least squares on sqrt(I) (amplitude projection, noise band) or unweighted
+  ///              least squares on I (full model without variances): Gaussian errors.
+  std::string noise_model;
+  /// Momentum nodes of the gate a CMA engine used (1 = one p0; the banded CMA more; 0 = not
+  /// a CMA engine or not recorded): retrieve's bootstrap replicas use the same count.
+  int momentum_nodes = 0;
   XuvField xuv;               ///< time origin: IR reference (tau = 0, DESIGN.md)
   IrField ir;                 ///< retrieved vector potential A(t)
   Eigen::MatrixXd retrieved;  ///< model trace on the problem's axes (|a|^2 units)

@@ -31,147 +31,7 @@ inline std::size_t fft_slot(long b, std::size_t n) {
 
 // --- settings ---------------------------------------------------------------------------------
 
-std::string FullModelSettings::validate() const {
-  std::ostringstream s;
-  if (ir != "auto" && ir != "parametric" && ir != "spline")
-    s << "ir = '" << ir << "': expected auto|parametric|spline";
-  else if (lbfgs_per_iteration < 1)
-    s << "lbfgs_per_iteration = " << lbfgs_per_iteration << ": must be >= 1";
-  else if (lbfgs_memory < 1)
-    s << "lbfgs_memory = " << lbfgs_memory << ": must be >= 1";
-  else if (!(knots_per_period > 0))
-    s << "knots_per_period = " << knots_per_period << ": must be > 0";
-  else if (!(ir_samples_per_period >= 8))
-    s << "ir_samples_per_period = " << ir_samples_per_period << ": must be >= 8";
-  else if (chebyshev_nodes < 2)
-    s << "chebyshev_nodes = " << chebyshev_nodes << ": must be >= 2";
-  else if (!(block_phase_rad > 0))
-    s << "block_phase_rad = " << block_phase_rad << ": must be > 0";
-  else if (!(variance_floor >= 0 && variance_floor <= 1))
-    s << "variance_floor = " << variance_floor << ": must be in [0, 1]";
-  else if (!(support_threshold >= 0 && support_threshold < 1))
-    s << "support_threshold = " << support_threshold << ": must be in [0, 1)";
-  else if (!(support_margin_eV >= 0))
-    s << "support_margin_eV = " << support_margin_eV << ": must be >= 0";
-  else if (!(spectrum_weight >= 0) || !std::isfinite(spectrum_weight))
-    s << "spectrum_weight = " << spectrum_weight << ": must be finite and >= 0";
-  else if (spectrum_constraint != "amplitude" && spectrum_constraint != "centroid" &&
-           spectrum_constraint != "off")
-    s << "spectrum_constraint = '" << spectrum_constraint << "': expected amplitude|centroid|off";
-  else if (!(ir_lowpass_weight >= 0) || !std::isfinite(ir_lowpass_weight))
-    s << "ir_lowpass_weight = " << ir_lowpass_weight << ": must be finite and >= 0";
-  else if (variance_smoothing_bins < 0)
-    s << "variance_smoothing_bins = " << variance_smoothing_bins << ": must be >= 0";
-  return s.str();
-}
-
-std::vector<ExtraOption> full_model_extra_options() {
-  using K = ExtraOption::Kind;
-  const FullModelSettings d;
-  return {
-      {"ir",
-       K::kChoice,
-       d.ir,
-       "IR form: parametric (Gaussian pulse, 6 parameters), spline (cubic B-spline), auto "
-       "(spline with a warm start, else parametric)",
-       0,
-       0,
-       {"auto", "parametric", "spline"}},
-      {"lbfgs_per_iteration",
-       K::kInteger,
-       std::to_string(d.lbfgs_per_iteration),
-       "L-BFGS iterations per engine iteration",
-       1,
-       1e5,
-       {}},
-      {"lbfgs_memory",
-       K::kInteger,
-       std::to_string(d.lbfgs_memory),
-       "L-BFGS rank (past steps kept)",
-       1,
-       1000,
-       {}},
-      {"knots_per_period",
-       K::kNumber,
-       num(d.knots_per_period),
-       "spline IR: knots per IR period (knot spacing T / value)",
-       1e-3,
-       1e3,
-       {}},
-      {"ir_samples_per_period",
-       K::kNumber,
-       num(d.ir_samples_per_period),
-       "samples per IR period of the fitted vector potential",
-       8,
-       1e4,
-       {}},
-      {"chebyshev_nodes",
-       K::kInteger,
-       std::to_string(d.chebyshev_nodes),
-       "full model: Chebyshev nodes per momentum block",
-       2,
-       64,
-       {}},
-      {"block_phase_rad",
-       K::kNumber,
-       num(d.block_phase_rad),
-       "full model: largest phase excursion (p - p_mid)(I1 - I1_mid) per block, rad",
-       1e-3,
-       50,
-       {}},
-      {"variance_floor",
-       K::kNumber,
-       num(d.variance_floor),
-       "least-squares weights 1/max(variance, value x largest variance)",
-       0,
-       1,
-       {}},
-      {"support_threshold",
-       K::kNumber,
-       num(d.support_threshold),
-       "XUV bins free where the field-free spectrum exceeds value x its maximum (0 = all)",
-       0,
-       0.999999,
-       {}},
-      {"support_margin_eV",
-       K::kNumber,
-       num(d.support_margin_eV),
-       "widening of the XUV spectral support on each side, eV",
-       0,
-       1e4,
-       {}},
-      {"spectrum_weight",
-       K::kNumber,
-       num(d.spectrum_weight),
-       "weight of the field-free-spectrum term relative to the trace (0 = off)",
-       0,
-       1e6,
-       {}},
-      {"spectrum_constraint",
-       K::kChoice,
-       d.spectrum_constraint,
-       "use of the field-free spectrum: centroid (carrier, support and initial guess only), "
-       "amplitude (also a least-squares term of weight spectrum_weight), off (as centroid)",
-       0,
-       0,
-       {"amplitude", "centroid", "off"}},
-      {"ir_lowpass_weight",
-       K::kNumber,
-       num(d.ir_lowpass_weight),
-       "weight of the penalty on the IR's content below ~omega/4 (Gaussian low pass, sigma = one "
-       "IR period); 0 = off",
-       0,
-       1e6,
-       {}},
-      {"variance_smoothing_bins",
-       K::kInteger,
-       std::to_string(d.variance_smoothing_bins),
-       "weights from variances averaged over +-n energy bins and +-1 delay (0 = per bin)",
-       0,
-       100,
-       {}},
-  };
-}
+std::vector<ExtraOption> full_model_extra_options() { return described_extra_options(FullModelSettings{}); }
 
 FullModelSettings read_full_model_settings(const EngineOptions& o) {
   for (const ExtraOption& opt : full_model_extra_options())
@@ -179,22 +39,7 @@ FullModelSettings read_full_model_settings(const EngineOptions& o) {
       if (const std::string e = opt.validate(o.extra_string(opt.name, "")); !e.empty())
         throw usage_error("full-model: engine option " + e);
   FullModelSettings s;
-  s.ir = o.extra_string("ir", s.ir);
-  s.lbfgs_per_iteration =
-      static_cast<int>(o.extra_int("lbfgs_per_iteration", s.lbfgs_per_iteration));
-  s.lbfgs_memory = static_cast<int>(o.extra_int("lbfgs_memory", s.lbfgs_memory));
-  s.knots_per_period = o.extra_double("knots_per_period", s.knots_per_period);
-  s.ir_samples_per_period = o.extra_double("ir_samples_per_period", s.ir_samples_per_period);
-  s.chebyshev_nodes = static_cast<int>(o.extra_int("chebyshev_nodes", s.chebyshev_nodes));
-  s.block_phase_rad = o.extra_double("block_phase_rad", s.block_phase_rad);
-  s.variance_floor = o.extra_double("variance_floor", s.variance_floor);
-  s.support_threshold = o.extra_double("support_threshold", s.support_threshold);
-  s.support_margin_eV = o.extra_double("support_margin_eV", s.support_margin_eV);
-  s.spectrum_weight = o.extra_double("spectrum_weight", s.spectrum_weight);
-  s.spectrum_constraint = o.extra_string("spectrum_constraint", s.spectrum_constraint);
-  s.ir_lowpass_weight = o.extra_double("ir_lowpass_weight", s.ir_lowpass_weight);
-  s.variance_smoothing_bins =
-      static_cast<int>(o.extra_int("variance_smoothing_bins", s.variance_smoothing_bins));
+  read_described_extras(o, "full-model", &s);
   if (const std::string e = s.validate(); !e.empty()) throw usage_error("full-model: " + e);
   return s;
 }
@@ -1014,6 +859,7 @@ Reconstruction LeastSquaresEngine::finalize() {
   Reconstruction r;
   r.engine = name();
   r.model = model_ == MomentumModel::kFull ? "full" : "cma";
+  r.noise_model = problem_.variance.size() != 0 ? "poisson" : "gaussian";
   r.reference = reference();
   r.xuv = XuvField(problem_.grid, f.carrier_au(), std::move(eps));
   r.ir = f.ir_field(best_x_.data());

@@ -68,30 +68,15 @@ class ProjectionsEngine final : public Engine {
            "Yakovlev, Appl. Phys. B 92, 25 (2008)";
   }
   std::vector<ExtraOption> extra_options() const override {
-    using K = ExtraOption::Kind;
-    std::vector<ExtraOption> o = {
-        {"mode",
-         K::kChoice,
-         "auto",
-         "auto (pcgpa on a matched delay grid, else lsgpa), pcgpa or lsgpa",
-         0,
-         0,
-         {"auto", "pcgpa", "lsgpa"}},
-        {"gate_relaxation",
-         K::kNumber,
-         "1.8",
-         "over-relaxation omega of the gate update G <- G + omega (G_projected - G)",
-         0.1,
-         2,
-         {}},
-    };
-    for (auto& e : cma_extra_options(false)) o.push_back(e);
-    return o;
+    return described_extra_options(ProjectionsSettings{});
   }
 
   void prepare(const RetrievalProblem& problem, const EngineOptions& options) override {
-    cma_.emplace(problem, read_cma_settings(options, false), name());
-    const std::string mode = options.extra_string("mode", "auto");
+    ProjectionsSettings ps;
+    read_described_extras(options, name(), &ps);
+    if (const std::string e = ps.validate(); !e.empty()) throw usage_error(name() + ": " + e);
+    cma_.emplace(problem, ps.cma, name());
+    const std::string& mode = ps.mode;
     const bool matched = matched_grid(problem.delay_au, problem.grid.dt());
     if (mode == "pcgpa" && !matched)
       throw usage_error(
@@ -100,7 +85,7 @@ class ProjectionsEngine final : public Engine {
           std::to_string(problem.grid.dt()) + " a.u.); use mode = lsgpa or auto");
     mode_ = mode == "lsgpa" || (mode == "auto" && !matched) ? GpMode::kLsgpa : GpMode::kPcgpa;
     threads_ = std::max(1, options.threads);
-    omega_ = options.extra_double("gate_relaxation", kOmega);
+    omega_ = ps.gate_relaxation;
     const std::size_t n = cma_->samples(), nd = cma_->num_delays();
     eps_ = cma_->initial_xuv(options);
     gate_ = cma_->initial_gate(options);
@@ -226,9 +211,8 @@ class ProjectionsEngine final : public Engine {
     std::vector<double> den, scratch;
   };
   std::optional<CmaProblem> cma_;
-  static constexpr double kOmega = 1.8;
   GpMode mode_ = GpMode::kLsgpa;
-  double omega_ = kOmega;
+  double omega_ = ProjectionsSettings{}.gate_relaxation;
   int threads_ = 1;
   CVec eps_, eps_old_, exit_, work_;
   std::vector<Work> per_thread_;

@@ -72,37 +72,18 @@ class PtychographicEngine final : public Engine {
            "al., Opt. Express 23, 29502 (2015)";
   }
   std::vector<ExtraOption> extra_options() const override {
-    using K = ExtraOption::Kind;
-    std::vector<ExtraOption> o = {
-        {"beta_object",
-         K::kNumber,
-         "0.1",
-         "ePIE step size of the XUV (object) update",
-         1e-6,
-         2,
-         {}},
-        {"beta_gate", K::kNumber, "1.5", "ePIE step size of the gate (probe) update", 0, 2, {}},
-        {"momentum_bands",
-         K::kInteger,
-         "0",
-         "momentum nodes of the banded CMA, each a gate with its own central momentum, rows "
-         "interpolated between them (cma_problem.h): "
-         "1 = one p0, 0 = auto (node spacing <= 0.15 p0, 2 to 8 nodes; used only when the one-p0 "
-         "fit stalls above 1.1 x the noise floor)",
-         0,
-         16,
-         {}},
-    };
-    for (auto& e : cma_extra_options(true)) o.push_back(e);
-    return o;
+    return described_extra_options(PtychographicSettings{});
   }
 
   void prepare(const RetrievalProblem& problem, const EngineOptions& options) override {
-    CmaSettings settings = read_cma_settings(options, true);
-    settings.momentum_bands = static_cast<int>(options.extra_int("momentum_bands", 0));
+    PtychographicSettings ps;
+    read_described_extras(options, name(), &ps);
+    if (const std::string e = ps.validate(); !e.empty()) throw usage_error(name() + ": " + e);
+    CmaSettings settings = ps.cma;
+    settings.momentum_bands = ps.momentum_bands;
     cma_.emplace(problem, settings, name());
-    beta_o_ = options.extra_double("beta_object", kBetaObject);
-    beta_g_ = options.extra_double("beta_gate", kBetaGate);
+    beta_o_ = ps.beta_object;
+    beta_g_ = ps.beta_gate;
     rng_.seed(options.seed);
     const std::size_t n = cma_->samples();
     eps_ = cma_->initial_xuv(options);
@@ -118,7 +99,7 @@ class PtychographicEngine final : public Engine {
     noise_floor_ = problem.variance.size() != 0
                        ? noise_floor_trace_error(problem.intensity, problem.variance, &problem.weight)
                        : 0.0;
-    forced_bands_ = options.extra_int("momentum_bands", 0) > 0;
+    forced_bands_ = ps.momentum_bands > 0;
     order_.resize(cma_->num_delays());
     for (std::size_t j = 0; j < order_.size(); ++j) order_[j] = j;
     const std::size_t nb = cma_->bands().size();
@@ -203,6 +184,7 @@ class PtychographicEngine final : public Engine {
 
   Reconstruction finalize() override {
     Reconstruction r = cma_->reconstruct(best_eps_, best_gates_, state_.final_momentum);
+    r.momentum_nodes = static_cast<int>(best_gates_.size());
     r.settings.emplace_back("momentum_nodes_used", std::to_string(best_gates_.size()));
     if (cma_->bands().size() > 1)
       r.settings.emplace_back(
@@ -232,8 +214,7 @@ class PtychographicEngine final : public Engine {
   }
 
   std::optional<CmaProblem> cma_;
-  static constexpr double kBetaObject = 0.1, kBetaGate = 1.5;
-  double beta_o_ = kBetaObject, beta_g_ = kBetaGate;
+  double beta_o_ = PtychographicSettings{}.beta_object, beta_g_ = PtychographicSettings{}.beta_gate;
   std::mt19937_64 rng_;
   std::vector<std::size_t> order_;
   CVec eps_, back_, du_, work_, comb_, before_;

@@ -16,23 +16,12 @@
 namespace sw {
 
 std::string RetrieveOptions::validate() const {
+  if (std::string e = validate_described(*this); !e.empty()) return e;
   std::ostringstream s;
-  if (engine.empty()) s << "engine is empty: expected auto or one of the registered engines";
-  else if (iterations < 0) s << "iterations = " << iterations << ": must be >= 0";
-  else if (bootstrap < 0) s << "bootstrap = " << bootstrap << ": must be >= 0";
-  else if (threads < 1) s << "threads = " << threads << ": must be >= 1";
-  else if (!(cma_phase_error_max_rad > 0)) s << "cma_phase_error_max_rad = " << cma_phase_error_max_rad << ": must be > 0";
-  else if (!(isolated_max_satellite_ratio > 0 && isolated_max_satellite_ratio < satellites_max_satellite_ratio &&
-             satellites_max_satellite_ratio <= 1))
+  if (!(isolated_max_satellite_ratio < satellites_max_satellite_ratio))
     s << "satellite thresholds " << isolated_max_satellite_ratio << ", " << satellites_max_satellite_ratio
       << ": need 0 < isolated < satellites <= 1";
-  else if (!(satellite_start_ratio > 0 && satellite_start_ratio < 1))
-    s << "satellite_start_ratio = " << satellite_start_ratio << ": must be in (0, 1)";
-  else if (!(cma_trace_error_max_ratio > 1)) s << "cma_trace_error_max_ratio = " << cma_trace_error_max_ratio << ": must be > 1";
-  else if (!(max_seconds > 0)) s << "max_seconds = " << max_seconds << ": must be > 0";
-  else if (!(method_sigma_relative >= 0 && method_sigma_relative < 1))
-    s << "method_sigma_relative = " << method_sigma_relative << ": must be in [0, 1)";
-  else if (auto e = preprocess.validate(); !e.empty()) s << "preprocess." << e;
+  else if (auto e1 = preprocess.validate(); !e1.empty()) s << "preprocess." << e1;
   else if (auto e2 = quality.validate(); !e2.empty()) s << "quality." << e2;
   else if (auto e3 = line_delays.validate(); !e3.empty()) s << "line_delays." << e3;
   return s.str();
@@ -320,9 +309,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
                                      [](const auto& kv) { return kv.first == "momentum_bands"; });
   const auto ptycho = std::find_if(out.chain.begin(), out.chain.end(),
                                    [](const Reconstruction& c) { return c.engine == "ptychographic"; });
-  if (!nodes_set && ptycho != out.chain.end())
-    for (const auto& [key, value] : ptycho->settings)
-      if (key == "momentum_nodes_used") beo.extra.push_back({"momentum_bands", value});
+  if (!nodes_set && ptycho != out.chain.end() && ptycho->momentum_nodes > 0)
+    beo.extra.push_back({"momentum_bands", std::to_string(ptycho->momentum_nodes)});
   std::vector<double> bf, bg, ba, bs;
   for (int b = 0; b < opt.bootstrap; ++b) {
     const Trace rep = poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
@@ -469,7 +457,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   f.iterations = its;
   f.converged = rec.converged();
   f.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t_start).count();
-  f.noise_model = "poisson";
+  f.noise_model = rec.noise_model;  // the final engine's (Reconstruction::noise_model)
   f.termination = std::string(to_string(rec.termination)) + ": " + rec.message;
   res.fit = f;
   for (const auto& w : out.preprocess.warnings) res.warnings.push_back(w);
@@ -518,17 +506,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
         P("fit.cma." + key, value);
     break;
   }
-  P("settings.engine", opt.engine);
-  P("settings.iterations", static_cast<long long>(opt.iterations));
-  P("settings.bootstrap", static_cast<long long>(opt.bootstrap));
-  P("settings.seed", static_cast<long long>(opt.seed));
-  P("settings.threads", static_cast<long long>(opt.threads));
-  P("settings.cma_phase_error_max_rad", opt.cma_phase_error_max_rad);
-  P("settings.cma_trace_error_max_ratio", opt.cma_trace_error_max_ratio);
-  P("settings.method_sigma_relative", opt.method_sigma_relative);
-  P("settings.isolated_max_satellite_ratio", opt.isolated_max_satellite_ratio);
-  P("settings.satellites_max_satellite_ratio", opt.satellites_max_satellite_ratio);
-  P("settings.dipole", std::string(to_string(opt.preprocess.dipole)));
+  append_settings_echo(opt, &res.extra);  // settings.* from RetrieveOptions::describe
 
   // Energy support (recorded once, whoever writes the preprocess block).
   auto once = [&](const std::string& k, double v2) {

@@ -56,6 +56,7 @@
 
 #include "retrieval/engine.h"
 #include "retrieval/line_delays.h"
+#include "retrieval/option_spec.h"
 #include "retrieval/preprocess.h"
 #include "retrieval/quality.h"
 #include "retrieval/result.h"
@@ -63,6 +64,10 @@
 
 namespace sw {
 
+/// Options of the streaking retrieval. Each field is described once, in describe() below
+/// (bounds, unit, help, CLI flag, batch config key; retrieval/option_spec.h): validate(), the
+/// flags of `retrieve` and `batch`, the batch config file, the settings.* echo in result.json
+/// and the batch option strings are all walks of that description.
 struct RetrieveOptions {
   /// "auto", or a registered engine name (make_engine lists them).
   std::string engine = "auto";
@@ -107,6 +112,113 @@ struct RetrieveOptions {
   /// preprocessing found two or more lines; its seed follows `seed`.
   LineDelayOptions line_delays;
   std::vector<std::pair<std::string, std::string>> engine_extra;
+
+  /// The one description of the fields above that the CLI, config files and the result echo
+  /// use (retrieval/option_spec.h). Order = order of settings.* in result.json.
+  template <class Self, class V>
+  static void describe(Self& self, V& v) {
+    v(OptionSpec{.name = "engine",
+                 .help = "reconstruction engine: auto or a registered engine (see `retrieve --help`)",
+                 .flag = "--engine",
+                 .config_key = "engine"},
+      self.engine);
+    v(OptionSpec{.name = "iterations",
+                 .help = "iterations of the first engine; 0 = engine default (300)",
+                 .min = 0,
+                 .flag = "--iterations",
+                 .config_key = "iterations"},
+      self.iterations);
+    v(OptionSpec{.name = "bootstrap",
+                 .help = "Poisson-bootstrap replicas for the uncertainties (0 = none)",
+                 .min = 0,
+                 .flag = "--bootstrap",
+                 .config_key = "bootstrap"},
+      self.bootstrap);
+    v(OptionSpec{.name = "seed",
+                 .help = "seed of the delay order and the bootstrap draws (batch: the base seed; "
+                         "each scan derives its own)",
+                 .flag = "--seed",
+                 .config_key = "seed"},
+      self.seed);
+    v(OptionSpec{.name = "threads",
+                 .help = "worker threads inside the engines (batch: only with --jobs 1)",
+                 .min = 1,
+                 .flag = "--threads",
+                 .config_key = "threads"},
+      self.threads);
+    v(OptionSpec{.name = "cma_phase_error_max_rad",
+                 .unit = "rad",
+                 .help = "auto: CMA phase error above which the full model refines",
+                 .min = 0,
+                 .min_open = true,
+                 .flag = "--cma-phase-limit",
+                 .config_key = "cma_phase_limit"},
+      self.cma_phase_error_max_rad);
+    v(OptionSpec{.name = "cma_trace_error_max_ratio",
+                 .help = "auto: CMA trace error / noise floor above which the full model refines",
+                 .min = 1,
+                 .min_open = true,
+                 .flag = "--cma-fit-limit",
+                 .config_key = "cma_fit_limit"},
+      self.cma_trace_error_max_ratio);
+    v(OptionSpec{.name = "method_sigma_relative",
+                 .help = "relative systematic uncertainty of the method (floor of s_sys of FWHM and A0)",
+                 .min = 0,
+                 .max = 1,
+                 .max_open = true,
+                 .batch = false},  // not settable in batch: constant there
+      self.method_sigma_relative);
+    v(OptionSpec{.name = "isolated_max_satellite_ratio",
+                 .help = "verdict: largest satellite/main intensity ratio for 'isolated' (common practice)",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 1,
+                 .flag = "--isolated-max",
+                 .config_key = "isolated_max"},
+      self.isolated_max_satellite_ratio);
+    v(OptionSpec{.name = "satellites_max_satellite_ratio",
+                 .help = "verdict: upper limit of the satellite/main ratio for 'isolated_with_satellites'",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 1,
+                 .flag = "--satellites-max",
+                 .config_key = "satellites_max"},
+      self.satellites_max_satellite_ratio);
+    v(OptionSpec{.name = "satellite_start",
+                 .help = "auto: also start the full model from its burst with satellites at -+T/2 "
+                         "(on by default)",
+                 .flag = "--satellite-start,!--no-satellite-start",
+                 .config_key = "satellite_start"},
+      self.satellite_start);
+    v(OptionSpec{.name = "satellite_start_ratio",
+                 .help = "intensity ratio of the satellites of that start",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 1,
+                 .max_open = true},
+      self.satellite_start_ratio);
+    v(OptionSpec{.name = "dipole",
+                 .help = "dipole model of the photoionisation",
+                 .choices = "constant|hydrogenic",
+                 .flag = "--dipole",
+                 .config_key = "dipole"},
+      self.preprocess.dipole);
+    v(OptionSpec{.name = "despike",
+                 .help = "replace isolated hot pixels (no smoothing; on by default)",
+                 .flag = "--despike,!--no-despike",
+                 .config_key = "despike",
+                 .echo = false},
+      self.preprocess.remove_hot_pixels);
+    v(OptionSpec{.name = "max_seconds",
+                 .unit = "s",
+                 .help = "wall-time budget of the analysis of one scan",
+                 .min = 0,
+                 .min_open = true,
+                 .flag = "--max-seconds",
+                 .config_key = "max_seconds",
+                 .echo = false},
+      self.max_seconds);
+  }
   std::string validate() const;
 };
 

@@ -308,6 +308,8 @@ TEST_CASE("full-model without variances (noise-free data) uses uniform weights",
     if (k == "initial_trace_error") G0 = std::stod(v);
   CHECK(std::isfinite(r.trace_error));
   CHECK(r.trace_error < 0.7 * G0);
+  // Unweighted least squares on I: a Gaussian noise model (common practice).
+  CHECK(r.noise_model == "gaussian");
 }
 
 namespace {

@@ -162,7 +162,7 @@ TEST_CASE("the CMA projection keeps the model at weight-0 bins", "[preprocess][e
   pr.weight.row(static_cast<Eigen::Index>(row)).setZero();
   for (bool poisson : {false, true}) {
     CmaSettings set;
-    set.poisson_projection = poisson;
+    set.projection = poisson ? CmaProjection::kPoisson : CmaProjection::kAmplitude;
     const CmaProblem cma(pr, set, "test");
     std::mt19937_64 rng(3);
     std::normal_distribution<double> g;

@@ -32,6 +32,9 @@ TEST_CASE("projections: LSGPA on the standard delay axis, both chirp signs", "[p
     const Case c = make_case(s);
     const Reconstruction r = retrieve(c, "projections", noise_free_options());
     CHECK(setting(r, "mode") == "lsgpa");
+    // Modulus replacement is least squares on sqrt(I): Gaussian amplitude errors, not Poisson
+    // counts (Thibault and Guizar-Sicairos, New J. Phys. 14, 063004 (2012)).
+    CHECK(r.noise_model == "gaussian");
     check_truth(c, r, 0.05);
     CHECK(r.converged());
     CHECK(r.trace_error < 0.1 * r.history.front().trace_error);

@@ -25,6 +25,9 @@ TEST_CASE("ptychographic: transform-limited 150 as pulse", "[ptychographic]") {
   CHECK(r.converged());
   CHECK(r.engine == "ptychographic");
   CHECK(r.model == "cma");
+  // Its default data projection is the Poisson one (retrieval/cma_problem.h; Thibault and
+  // Guizar-Sicairos, New J. Phys. 14, 063004 (2012): the Poisson likelihood's update).
+  CHECK(r.noise_model == "poisson");
   // G falls by more than an order of magnitude from the initial guess.
   CHECK(r.trace_error < 0.1 * r.history.front().trace_error);
   CHECK(r.trace_error < 1e-3);
