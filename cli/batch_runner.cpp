@@ -245,7 +245,9 @@ Effective effective(const BatchScan& s, const BatchOptions& o) {
   return e;
 }
 
-int engine_threads(const BatchOptions& o) { return o.jobs > 1 ? 1 : o.retrieve.threads; }
+// Worker threads per scan: as given, or (0, the default) the machine's cores with one job and
+// one thread per job with --jobs > 1.
+int engine_threads(const BatchOptions& o) { return o.jobs > 1 && o.retrieve.threads == 0 ? 1 : o.retrieve.threads; }
 
 }  // namespace
 
@@ -278,6 +280,7 @@ std::string batch_options_string(const BatchOptions& o) {
     s << ";energy_window=" << num(r.preprocess.energy_window_lo_eV) << ":" << num(r.preprocess.energy_window_hi_eV);
   // Only when not the default, so results written before the option existed stay reusable.
   if (o.figure_format != plot::FigureFormat::kPng) s << ";figure_format=" << to_string(o.figure_format);
+  if (r.uncertainty != UncertaintyMethod::kFull) s << ";uncertainty=" << to_string(r.uncertainty);
   return s.str();
 }
 
@@ -304,6 +307,7 @@ std::string scan_options_string(const BatchScan& scan, const BatchOptions& o) {
   // Only when not the default, so results written before the option existed stay reusable;
   // --resume then redoes a scan whose figures are in the other format.
   if (o.figure_format != plot::FigureFormat::kPng) s << ";figure_format=" << to_string(o.figure_format);
+  if (r.uncertainty != UncertaintyMethod::kFull) s << ";uncertainty=" << to_string(r.uncertainty);
   return s.str();
 }
 

@@ -16,6 +16,7 @@
 #include "cli/structured_file.h"
 #include "io/input_guard.h"
 #include "retrieval/dipole.h"
+#include "retrieval/uncertainty.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
 #include "retrieval/lines.h"
@@ -28,6 +29,7 @@ namespace {
 struct BatchArgs {
   std::vector<std::string> inputs;
   std::string out, shard = "1/1", analysis = "auto", config, dipole = "constant";
+  std::string uncertainty = "full";  ///< --uncertainty full | warm
   std::string energy_window;  ///< --energy-window LO:HI (eV), "" = none
   BatchOptions options;
   bool dry_run = false;
@@ -87,7 +89,7 @@ void apply_config(BatchArgs& a) {
         "analysis",        "engine",       "iterations",     "bootstrap",   "seed",
         "threads",         "jobs",         "dipole",         "despike",     "atomic_correction",
         "cma_phase_limit", "cma_fit_limit", "isolated_max", "satellites_max", "max_seconds", "resume",
-        "energy_window",   "figure_format"};
+        "energy_window",   "figure_format", "uncertainty"};
     if (std::find(known.begin(), known.end(), k) == known.end()) {
       std::string list = "gas, ir_wavelength_nm, kind";
       for (const auto& n : known) list += ", " + n;
@@ -114,6 +116,8 @@ void apply_config(BatchArgs& a) {
       a.dipole = get_string(k, v);
     else if (k == "energy_window")
       a.energy_window = get_string(k, v);
+    else if (k == "uncertainty")
+      a.uncertainty = get_string(k, v);
     else if (k == "figure_format") {
       const std::string f = get_string(k, v);
       if (!plot::parse_figure_format(f, &a.options.figure_format))
@@ -154,6 +158,8 @@ int run_batch_command(BatchArgs& a) {
                         &o.retrieve.preprocess.energy_window_hi_eV);
   if (!parse_dipole_kind(a.dipole, &o.retrieve.preprocess.dipole))
     throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
+  if (!parse_uncertainty_method(a.uncertainty, &o.retrieve.uncertainty))
+    throw usage_error("--uncertainty " + a.uncertainty + ": expected full or warm");
   if (o.retrieve.engine != "auto") (void)make_engine(o.retrieve.engine);  // lists the names
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
 
@@ -210,11 +216,6 @@ int run_batch_command(BatchArgs& a) {
                    "e.g. %s\n",
                    skipped.size(), skipped.front().c_str());
   }
-  if (o.jobs > 1 && o.retrieve.threads > 1 && !o.quiet)
-    std::fprintf(stderr,
-                 "streakwright batch: --threads %d ignored: engines run single-threaded when "
-                 "--jobs > 1\n",
-                 o.retrieve.threads);
 
   const BatchReport rep = run_batch(mine, o);
 
@@ -271,7 +272,8 @@ void add_batch_command(CLI::App& app) {
       "(.svg with --figure-format svg) and index.html. A failed scan never stops the batch.\n"
       "--config FILE (JSON or YAML): the options below as keys (analysis, engine, iterations,\n"
       "bootstrap, seed, threads, jobs, dipole, despike, atomic_correction, cma_phase_limit, cma_fit_limit,\n"
-      "isolated_max, satellites_max, max_seconds, resume, energy_window \"LO:HI\", figure_format),\n"
+      "isolated_max, satellites_max, max_seconds, resume, energy_window \"LO:HI\", figure_format,\n"
+      "uncertainty),\n"
       "plus gas, ir_wavelength_nm and kind applied to every scan (manifest rows win);\n"
       "command-line options win over the file.\n"
       "Seeds: each scan's seed derives from --seed and its name, so results do not depend on\n"
@@ -305,8 +307,13 @@ void add_batch_command(CLI::App& app) {
       cmd->add_option("--seed", a->options.retrieve.seed, "base seed (each scan derives its own)")
           ->capture_default_str();
   a->cli["threads"] = cmd->add_option("--threads", a->options.retrieve.threads,
-                                      "engine threads per scan (only with --jobs 1)")
+                                      "worker threads per scan for its bootstrap replicas (0 = the cores with --jobs 1, 1 per job "
+                                      "with --jobs > 1); results do not depend on it")
                           ->capture_default_str();
+  a->cli["uncertainty"] = cmd->add_option("--uncertainty", a->uncertainty,
+                                          "retrieve: bootstrap replicas from scratch (full) or from the "
+                                          "estimate (warm); docs/theory.md")
+                              ->capture_default_str();
   a->cli["dipole"] = cmd->add_option("--dipole", a->dipole, "retrieve: constant | hydrogenic")
                          ->capture_default_str();
   a->cli["despike"] = cmd->add_flag("--despike,!--no-despike", a->options.retrieve.preprocess.remove_hot_pixels,

@@ -13,6 +13,7 @@
 #include "retrieval/lines.h"
 #include "retrieval/retrieve.h"
 #include "retrieval/dipole.h"
+#include "retrieval/uncertainty.h"
 
 namespace sw::cli {
 
@@ -22,6 +23,7 @@ struct RetrieveArgs {
   std::string scan, out;
   RetrieveOptions options;
   std::string dipole = "constant";
+  std::string uncertainty = "full";  ///< --uncertainty full | warm
   std::string energy_window;  ///< --energy-window LO:HI (eV), "" = none
   std::string lines;          ///< --lines NAME[,NAME...] or none; "" = every line found
   bool quiet = false;
@@ -85,6 +87,8 @@ int run_retrieve(RetrieveArgs& a) {
   }
   if (!parse_dipole_kind(a.dipole, &a.options.preprocess.dipole))
     throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
+  if (!parse_uncertainty_method(a.uncertainty, &a.options.uncertainty))
+    throw usage_error("--uncertainty " + a.uncertainty + ": expected full or warm");
   if (a.options.engine != "auto") (void)make_engine(a.options.engine);  // unknown names listed
   if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
   ScanJob job;
@@ -127,7 +131,13 @@ void add_retrieve_command(CLI::App& app) {
   cmd->add_option("--bootstrap", a->options.bootstrap,
                   "Poisson-bootstrap replicas for the uncertainties (0 = none)")->capture_default_str();
   cmd->add_option("--seed", a->options.seed, "seed of delay order and bootstrap draws")->capture_default_str();
-  cmd->add_option("--threads", a->options.threads, "worker threads inside the engines")->capture_default_str();
+  cmd->add_option("--threads", a->options.threads,
+                  "worker threads for the bootstrap replicas (0 = the machine's cores); results do not depend on it")
+      ->capture_default_str();
+  cmd->add_option("--uncertainty", a->uncertainty,
+                  "bootstrap replicas: full (engine chain from scratch) | warm (final engine from the estimate); "
+                  "docs/theory.md")
+      ->capture_default_str();
   cmd->add_option("--dipole", a->dipole, "dipole model: constant | hydrogenic")->capture_default_str();
   cmd->add_option("--cma-phase-limit", a->options.cma_phase_error_max_rad,
                   "auto: CMA phase error (rad) above which the full model refines")->capture_default_str();

@@ -1,0 +1,47 @@
+#include "retrieval/thread_pool.h"
+
+#include <omp.h>
+
+#include <algorithm>
+#include <atomic>
+#include <exception>
+#include <thread>
+#include <vector>
+
+namespace sw {
+
+int resolve_threads(int requested) {
+  if (requested >= 1) return requested;
+  const unsigned hw = std::thread::hardware_concurrency();
+  return hw > 0 ? static_cast<int>(hw) : 1;
+}
+
+void parallel_for(int n, int threads, const std::function<void(int)>& task) {
+  if (n <= 0) return;
+  const int workers = std::clamp(threads, 1, n);
+  std::atomic<int> next{0};
+  std::atomic<bool> failed{false};
+  std::vector<std::exception_ptr> errors(static_cast<std::size_t>(n));
+  auto work = [&] {
+    omp_set_num_threads(1);
+    for (;;) {
+      if (failed.load()) return;
+      const int i = next.fetch_add(1);
+      if (i >= n) return;
+      try {
+        task(i);
+      } catch (...) {
+        errors[static_cast<std::size_t>(i)] = std::current_exception();
+        failed.store(true);
+      }
+    }
+  };
+  std::vector<std::thread> pool;
+  pool.reserve(static_cast<std::size_t>(workers));
+  for (int w = 0; w < workers; ++w) pool.emplace_back(work);
+  for (auto& t : pool) t.join();
+  for (const auto& e : errors)
+    if (e) std::rethrow_exception(e);
+}
+
+}  // namespace sw
