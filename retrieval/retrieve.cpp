@@ -21,6 +21,7 @@ std::string RetrieveOptions::validate() const {
   if (engine.empty()) s << "engine is empty: expected auto or one of the registered engines";
   else if (iterations < 0) s << "iterations = " << iterations << ": must be >= 0";
   else if (bootstrap < 0) s << "bootstrap = " << bootstrap << ": must be >= 0";
+  else if (warm_patience < 1) s << "warm_patience = " << warm_patience << ": must be >= 1";
   else if (threads < 0) s << "threads = " << threads << ": must be >= 0 (0 = the machine's hardware threads)";
   else if (!(cma_phase_error_max_rad > 0)) s << "cma_phase_error_max_rad = " << cma_phase_error_max_rad << ": must be > 0";
   else if (!(isolated_max_satellite_ratio > 0 && isolated_max_satellite_ratio < satellites_max_satellite_ratio &&
@@ -314,6 +315,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
       wo.initial_ir = rec.ir;
       wo.noise_floor_factor = 0.0;
       wo.relative_tolerance = std::max(wo.relative_tolerance, wo.noise_floor_relative_tolerance);
+      wo.patience = opt.warm_patience;
       br = run_on(rp, final_engine, wo, stage);
     } else if (final_engine == "full-model") {
       // The same chain as the estimate: from the replica's own CMA result, or from the full
@@ -500,6 +502,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   P("settings.seed", static_cast<long long>(opt.seed));
   P("settings.threads", static_cast<long long>(resolve_threads(opt.threads)));
   P("settings.uncertainty", std::string(to_string(opt.uncertainty)));
+  if (opt.uncertainty == UncertaintyMethod::kWarm) P("settings.warm_patience", static_cast<long long>(opt.warm_patience));
   P("settings.cma_phase_error_max_rad", opt.cma_phase_error_max_rad);
   P("settings.cma_trace_error_max_ratio", opt.cma_trace_error_max_ratio);
   P("settings.method_sigma_relative", opt.method_sigma_relative);
