@@ -36,10 +36,16 @@ void parallel_for(int n, int threads, const std::function<void(int)>& task) {
       }
     }
   };
+  // The calling thread is one of the workers (a caller that checks for interrupts in its
+  // progress callback, as the Python module does, then still sees them); its OpenMP setting is
+  // restored afterwards.
+  const int caller_omp_threads = omp_get_max_threads();
   std::vector<std::thread> pool;
-  pool.reserve(static_cast<std::size_t>(workers));
-  for (int w = 0; w < workers; ++w) pool.emplace_back(work);
+  pool.reserve(static_cast<std::size_t>(workers - 1));
+  for (int w = 1; w < workers; ++w) pool.emplace_back(work);
+  work();
   for (auto& t : pool) t.join();
+  omp_set_num_threads(caller_omp_threads);
   for (const auto& e : errors)
     if (e) std::rethrow_exception(e);
 }

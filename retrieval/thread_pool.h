@@ -3,12 +3,13 @@
 // whose iterations share nothing but read-only inputs).
 //
 // parallel_for(n, threads, task) calls task(0) ... task(n - 1), each exactly once, on
-// min(threads, n) std::threads that take the next index in turn. Determinism: a task must write
+// min(threads, n) workers (the calling thread and new std::threads) that take the next index in
+// turn. Determinism: a task must write
 // only its own slot of a result indexed by i, and draw its random numbers from a seed derived
 // from i, never from a shared generator; then the results do not depend on the thread count or
 // on the order in which the tasks finish. OpenMP regions inside a task run single-threaded
-// (each worker sets omp_set_num_threads(1)), so the answer of a task is also the same for any
-// thread count. Tasks run on worker threads even with threads = 1, for that same reason.
+// (each worker sets omp_set_num_threads(1); the caller's own setting is restored at the end), so
+// the answer of a task is also the same for any thread count.
 //
 // Errors: the exception of the lowest failed index is rethrown on the calling thread after
 // every worker has stopped; once a task has failed no new task starts (running ones finish).

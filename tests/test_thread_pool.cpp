@@ -18,6 +18,7 @@
 using namespace sw;
 
 TEST_CASE("parallel_for runs every index exactly once, single-threaded OpenMP inside", "[thread_pool]") {
+  const int caller_omp = omp_get_max_threads();
   for (int threads : {1, 2, 5}) {
     std::vector<std::atomic<int>> hits(37);
     std::atomic<int> omp_max{0};
@@ -27,6 +28,7 @@ TEST_CASE("parallel_for runs every index exactly once, single-threaded OpenMP in
     });
     for (const auto& h : hits) CHECK(h.load() == 1);
     CHECK(omp_max.load() == 1);  // thread_pool.h: OpenMP regions in a task run on one thread
+    CHECK(omp_get_max_threads() == caller_omp);  // and the caller's setting comes back
   }
   int calls = 0;
   parallel_for(0, 2, [&](int) { ++calls; });
