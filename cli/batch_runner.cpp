@@ -245,7 +245,9 @@ Effective effective(const BatchScan& s, const BatchOptions& o) {
   return e;
 }
 
-int engine_threads(const BatchOptions& o) { return o.jobs > 1 ? 1 : o.retrieve.threads; }
+// Worker threads per scan: as given, or (0, the default) the machine's cores with one job and
+// one thread per job with --jobs > 1.
+int engine_threads(const BatchOptions& o) { return o.jobs > 1 && o.retrieve.threads == 0 ? 1 : o.retrieve.threads; }
 
 }  // namespace
 

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <chrono>
+#include <mutex>
 #include <cmath>
 #include <numeric>
 #include <sstream>
@@ -11,6 +12,7 @@
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/quality.h"
 #include "retrieval/satellite_seed.h"
+#include "retrieval/thread_pool.h"
 #include "retrieval/units.h"
 
 namespace sw {
@@ -158,13 +160,16 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   check_line_names(out.preprocess.lines, opt.line_delays, trace.meta.gas);  // before any engine runs
   const RetrievalProblem& pr = out.problem;
 
-  // One engine run on one problem, progress reported under `stage`, time origin fixed.
+  // One engine run on one problem, progress reported under `stage`, time origin fixed. The
+  // replicas call it from worker threads: progress reports go out one at a time.
+  std::mutex progress_mutex;
   auto run_on = [&](const RetrievalProblem& problem, const std::string& name, const EngineOptions& o,
                     const std::string& stage) {
     auto engine = make_engine(name);
     std::vector<IterationCallback> cbs;
     if (progress)
       cbs.push_back([&](const IterationRecord& r) {
+        const std::lock_guard<std::mutex> lock(progress_mutex);
         progress(stage, r);
         return CallbackResult::kContinue;
       });
@@ -176,7 +181,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   EngineOptions eo;
   if (opt.iterations > 0) eo.max_iterations = opt.iterations;
   eo.seed = opt.seed;
-  eo.threads = opt.threads;
+  eo.threads = 1;  // engines single-threaded: the replicas use the threads (bit-identical results)
   eo.extra = opt.engine_extra;
   // A streaking-broadened spectrum must not be imposed as the amplitude (DESIGN.md: |E_X| is
   // constrained to the measured field-free spectrum; without one, only its centroid is used).
@@ -296,11 +301,12 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     comparable.push_back(pulse_metrics(c, pr.ir_omega_au, band_lo, band_hi));
   }
 
-  // Bootstrap: each replica repeats the whole analysis on a Poisson draw of the counts: the
-  // CMA engine from its own initial guess with its own delay order, the full model from that
-  // replica's CMA result (or from its own guess, as the estimate did). A warm start from the
-  // final estimate sits at the noise floor already and barely moves: the spread came out 5x
-  // (CMA) to 20x (full model) too small.
+  // Bootstrap (uncertainty = full): each replica repeats the whole analysis on a Poisson draw
+  // of the counts: the CMA engine from its own initial guess with its own delay order, the full
+  // model from that replica's CMA result (or from its own guess, as the estimate did). A warm
+  // start from the final estimate stopped by the noise-floor rule sits at the floor already and
+  // barely moves: the spread came out 5x (CMA) to 20x (full model) too small; uncertainty = warm
+  // therefore turns that rule off (retrieval/uncertainty.h).
   // The replicas' ptychographic runs use the momentum nodes exactly when the estimate's did
   // (the engine adds them only when the one-p0 fit stalls above the noise floor, and a
   // replica's doubled noise would otherwise decide differently and bias the correction).
@@ -311,8 +317,11 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
                                    [](const Reconstruction& c) { return c.engine == "ptychographic"; });
   if (!nodes_set && ptycho != out.chain.end() && ptycho->momentum_nodes > 0)
     beo.extra.push_back({"momentum_bands", std::to_string(ptycho->momentum_nodes)});
-  std::vector<double> bf, bg, ba, bs;
-  for (int b = 0; b < opt.bootstrap; ++b) {
+  // Replicas are independent: each on a worker thread, its seeds from its index alone, its
+  // numbers into its own slot (the same results for any thread count).
+  const bool warm = opt.uncertainty == UncertaintyMethod::kWarm;
+  std::vector<std::array<double, 4>> samples(static_cast<std::size_t>(opt.bootstrap));
+  parallel_for(opt.bootstrap, resolve_threads(opt.threads), [&](int b) {
     const Trace rep = poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
     PreprocessSummary ps;
     RetrievalProblem rp = preprocess(rep, opt.preprocess, &ps);
@@ -320,7 +329,18 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
     const std::string stage = "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
     Reconstruction br;
-    if (final_engine == "full-model") {
+    if (warm) {
+      // retrieval/uncertainty.h: the final engine from the estimate, until it stops moving.
+      EngineOptions wo = bo;
+      if (final_engine == "full-model")
+        wo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+      wo.initial_xuv = rec.xuv;
+      wo.initial_ir = rec.ir;
+      wo.noise_floor_factor = 0.0;
+      wo.relative_tolerance = std::max(wo.relative_tolerance, wo.noise_floor_relative_tolerance);
+      wo.patience = opt.warm_patience;
+      br = run_on(rp, final_engine, wo, stage);
+    } else if (final_engine == "full-model") {
       // The same chain as the estimate: from the replica's own CMA result, or from the full
       // model's own guess when that is where the estimate came from.
       EngineOptions fo = bo;
@@ -340,11 +360,17 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     }
     const auto [rlo, rhi] = band_of(rp);
     const PulseMetrics bm = pulse_metrics(br, pr.ir_omega_au, rlo, rhi);
-    bf.push_back(*bm.xuv.fwhm_as);
-    bg.push_back(*bm.xuv.gdd_as2);
-    ba.push_back(bm.ir.peak_vector_potential_au.value_or(0.0));
-    bs.push_back(bm.satellite_intensity_ratio);
-    out.bootstrap_samples.push_back({bf.back(), bg.back(), ba.back(), bs.back()});
+    samples[static_cast<std::size_t>(b)] = {*bm.xuv.fwhm_as, *bm.xuv.gdd_as2,
+                                            bm.ir.peak_vector_potential_au.value_or(0.0),
+                                            bm.satellite_intensity_ratio};
+  });
+  std::vector<double> bf, bg, ba, bs;
+  for (const auto& x : samples) {
+    bf.push_back(x[0]);
+    bg.push_back(x[1]);
+    ba.push_back(x[2]);
+    bs.push_back(x[3]);
+    out.bootstrap_samples.push_back(x);
   }
 
   AnalysisResult& res = out.result;

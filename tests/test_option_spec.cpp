@@ -141,7 +141,8 @@ TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") 
   std::vector<std::string> keys;
   for (const Param& p : echo) keys.push_back(p.key);
   CHECK(keys == std::vector<std::string>{"settings.engine", "settings.iterations", "settings.bootstrap",
-                                         "settings.seed", "settings.threads", "settings.cma_phase_error_max_rad",
+                                         "settings.seed", "settings.threads", "settings.uncertainty",
+                                         "settings.warm_patience", "settings.cma_phase_error_max_rad",
                                          "settings.cma_trace_error_max_ratio", "settings.method_sigma_relative",
                                          "settings.isolated_max_satellite_ratio",
                                          "settings.satellites_max_satellite_ratio", "settings.satellite_start",

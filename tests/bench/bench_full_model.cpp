@@ -8,8 +8,9 @@
 //   BM_FullModelCost            the same without gradient;
 //   BM_EpieFftFloor, BM_EpieIteration   two FFTs per delay and one ptychographic iteration
 //                               (one central momentum) on the same scan;
-//   BM_HeliumRetrieve/B         retrieve() of the helium-70as preset scan (121 x 330) with B
-//                               bootstrap replicas, wall time of one run (slow: ~1-2 min).
+//   BM_HeliumRetrieve/B/T       retrieve() of the helium-70as preset scan (121 x 330) with B
+//                               bootstrap replicas on T worker threads, wall time of one run
+//                               (slow: ~1-4 min each).
 // The problem is the helium-70as preset (seed 7) after preprocess(), as `retrieve` sees it.
 // tests/bench/run_bench.sh runs these with the numpy reference and prints the ratios.
 #include <benchmark/benchmark.h>
@@ -147,14 +148,14 @@ double process_cpu_seconds() {
 }
 
 // Whole analysis (preprocess, engines, bootstrap, metrics, quality) as `retrieve` runs it.
-// Threads: STREAKWRIGHT_BENCH_THREADS (default 1). Counter process_cpu_s: CPU seconds of all
+// Threads: the second argument (RetrieveOptions::threads). Counter process_cpu_s: CPU seconds of all
 // threads (the L-BFGS runs on a worker thread, so the CPU column shows only the main thread);
 // on a shared machine it is the figure to compare, wall time depends on the load.
 void BM_HeliumRetrieve(benchmark::State& state) {
   const Trace& t = helium_scan().trace;
   RetrieveOptions o;
   o.bootstrap = static_cast<int>(state.range(0));
-  if (const char* th = std::getenv("STREAKWRIGHT_BENCH_THREADS")) o.threads = std::atoi(th);
+  o.threads = static_cast<int>(state.range(1));
   RetrieveOutput r;
   double cpu = 0.0;
   for (auto _ : state) {
@@ -174,8 +175,9 @@ void BM_HeliumRetrieve(benchmark::State& state) {
   state.counters["iterations"] = static_cast<double>(it);
 }
 BENCHMARK(BM_HeliumRetrieve)
-    ->Arg(0)
-    ->Arg(8)
+    ->Args({0, 1})
+    ->Args({8, 1})
+    ->Args({8, 2})
     ->Iterations(1)
     ->Unit(benchmark::kSecond)
     ->UseRealTime();

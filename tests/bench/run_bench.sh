@@ -5,7 +5,9 @@
 # Ratios of one-thread kernels use CPU time (robust on a shared machine); thread speed-ups and
 # the end-to-end runs use wall time, which depends on the machine's load (printed by each program).
 # BENCH_FILTER (a Google Benchmark regex) limits bench_full_model, e.g. 'Floor|Cost|Epie' to skip
-# the slow end-to-end runs; STREAKWRIGHT_BENCH_THREADS sets the threads of the end-to-end runs.
+# the slow end-to-end runs; SCALING_FILTER limits bench_scaling the same way ('ScanSize' skips
+# the 401 x 1200 runs with sigma). The scaling figure (OUT_DIR/scaling.svg, copied by hand to
+# docs/figures/) needs python3-matplotlib.
 set -eu
 BUILD=${1:-build}
 OUT=${2:-$BUILD/bench-results}
@@ -15,6 +17,14 @@ mkdir -p "$OUT"
 "$BUILD/tests/bench/bench_engines" --benchmark_out="$OUT/engines.json" --benchmark_out_format=json
 "$BUILD/tests/bench/bench_full_model" --benchmark_filter="${BENCH_FILTER:-.}" \
   --benchmark_out="$OUT/full_model.json" --benchmark_out_format=json
+
+"$BUILD/tests/bench/bench_scaling" --benchmark_filter="${SCALING_FILTER:-.}" \
+  --benchmark_out="$OUT/scaling.json" --benchmark_out_format=json
+# Peak memory of the 401 x 1200 analysis with sigma (2 worker threads), alone in its process.
+if [ -z "${SCALING_FILTER:-}" ]; then
+  /usr/bin/time -v "$BUILD/tests/bench/bench_scaling" --benchmark_filter='BM_LargeWithSigma/2' \
+    > "$OUT/large_memory.txt" 2>&1
+fi
 
 # The same scan (helium-70as, seed 7) as a CSV image for the numpy ePIE of 150 iterations.
 rm -rf "$OUT/scan"
@@ -51,13 +61,75 @@ if "BM_EpieIteration" in f:
 if "BM_PtychographicIteration" in e:
     ratio("ePIE iteration / 2 FFTs per delay (121 x 400)",
           seconds(e["BM_PtychographicIteration"]), seconds(e["BM_FftFloor"]), "<= 1.3")
-for b in (0, 8):
-    k = f"BM_HeliumRetrieve/{b}/iterations:1/real_time"
+for b, th in ((0, 1), (8, 1), (8, 2)):
+    k = f"BM_HeliumRetrieve/{b}/{th}/iterations:1/real_time"
     if k in f:
         t = seconds(f[k], "real_time")
         c = f[k]["process_cpu_s"]
         print(f"  helium-70as retrieve, bootstrap {b}: {c:.1f} s CPU ({t:.1f} s wall, "
-              f"{f[k]['threads']:.0f} thread(s)); / numpy ePIE 150 iterations ({numpy_cpu:.2f} s "
+              f"{th} thread(s)); / numpy ePIE 150 iterations ({numpy_cpu:.2f} s "
               f"CPU, {numpy_s:.2f} s wall) = {c / numpy_cpu:.1f} (CPU), {t / numpy_s:.1f} (wall)"
               + ("   target <= 3" if b == 8 else ""))
+k1, k2 = "BM_HeliumRetrieve/8/1/iterations:1/real_time", "BM_HeliumRetrieve/8/2/iterations:1/real_time"
+if k1 in f and k2 in f:
+    print(f"  {'helium-70as, 8 replicas: speed-up 2 threads / 1 (wall)':58s} "
+          f"{seconds(f[k1], 'real_time') / seconds(f[k2], 'real_time'):7.2f}")
+s = load("scaling")
+sizes = sorted((b for n, b in s.items() if n.startswith("BM_ScanSize/")), key=lambda b: b["delays"] * b["energies"])
+if sizes:
+    import math
+    # CPU seconds (one thread, bootstrap 0): on a shared machine the wall time measures the load.
+    print("  cost against scan size (bootstrap 0, CPU s; work = delays x energies x log2(grid)):")
+    base = None
+    for b in sizes:
+        work = b["delays"] * b["energies"] * math.log2(b["grid"])
+        t = b["process_cpu_s"]
+        per_it = t / max(b["iterations"], 1)
+        if base is None:
+            base = (work, t, per_it)
+        print(f"    {b['delays']:4.0f} x {b['energies']:4.0f} (grid {b['grid']:5.0f}): {t:7.2f} s CPU "
+              f"({seconds(b, 'real_time'):.2f} s wall), {b['iterations']:4.0f} iterations, {1e3 * per_it:8.1f} ms each; "
+              f"time / work relative to the smallest {t / work / (base[1] / base[0]):5.2f}, "
+              f"per iteration {per_it / work / (base[2] / base[0]):5.2f}")
+    try:
+        import matplotlib
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+        w = [b["delays"] * b["energies"] * math.log2(b["grid"]) for b in sizes]
+        t = [b["process_cpu_s"] for b in sizes]
+        ti = [b["process_cpu_s"] / max(b["iterations"], 1) for b in sizes]
+        fig, ax = plt.subplots(figsize=(5, 3.6))
+        ax.loglog(w, t, "o-", label="whole analysis (bootstrap 0)")
+        ax.loglog(w, ti, "s-", label="per engine iteration")
+        for y in (t, ti):
+            ax.loglog(w, [y[0] * x / w[0] for x in w], "k:", lw=0.8)
+        for b, x, y in zip(sizes, w, t):
+            ax.annotate(f"{b['delays']:.0f}x{b['energies']:.0f}", (x, y), fontsize=7,
+                        textcoords="offset points", xytext=(4, -10))
+        ax.set_xlabel("delays x energies x log2(grid points)")
+        ax.set_ylabel("CPU time, one thread (s)")
+        ax.set_title("cost against scan size (dotted: proportional)", fontsize=9)
+        ax.legend(fontsize=7)
+        fig.tight_layout()
+        fig.savefig(f"{out}/scaling.svg")
+        print(f"  figure: {out}/scaling.svg")
+    except ImportError:
+        print("  (no matplotlib: figure skipped)")
+for th in (1, 2):
+    k = f"BM_LargeWithSigma/{th}/iterations:1/real_time"
+    if k in s:
+        b = s[k]
+        print(f"  401 x 1200 with sigma (8 replicas, {th} thread(s)): {seconds(b, 'real_time'):.1f} s wall, "
+              f"{b['process_cpu_s']:.1f} s CPU, FWHM {b['fwhm_as']:.1f} +- {b['fwhm_sigma_as']:.1f} as   target <= 10 s")
+k1, k2 = "BM_LargeWithSigma/1/iterations:1/real_time", "BM_LargeWithSigma/2/iterations:1/real_time"
+if k1 in s and k2 in s:
+    print(f"  {'401 x 1200, 8 replicas: speed-up 2 threads / 1 (wall)':58s} "
+          f"{seconds(s[k1], 'real_time') / seconds(s[k2], 'real_time'):7.2f}")
+try:
+    for line in open(f"{out}/large_memory.txt"):
+        if "Maximum resident set size" in line:
+            kb = float(line.split(":")[-1])
+            print(f"  401 x 1200 with sigma, 2 threads: peak memory {kb / 1024:.0f} MB   target < 1024 MB")
+except FileNotFoundError:
+    pass
 EOF

@@ -435,6 +435,7 @@ SweepRow run_case(const ValidationCase& k, const SweepOptions& o, const std::str
     ro.bootstrap = o.bootstrap;
     ro.engine = o.engine;
     ro.threads = 1;
+    parse_uncertainty_method(o.uncertainty, &ro.uncertainty);  // checked by run_sweep
     const RetrieveOutput r = retrieve(trace, ro);
     const AnalysisResult& a = r.result;
     row.engine = a.engine;
@@ -570,6 +571,8 @@ std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const Swe
   if (o.bootstrap < 0)
     throw usage_error("--bootstrap = " + std::to_string(o.bootstrap) + "; expected >= 0");
   if (o.jobs < 1) throw usage_error("--jobs = " + std::to_string(o.jobs) + "; expected >= 1");
+  if (UncertaintyMethod u; !parse_uncertainty_method(o.uncertainty, &u))
+    throw usage_error("--uncertainty = " + o.uncertainty + "; expected full or warm");
   std::filesystem::path dir = o.work_dir;
   if (dir.empty())
     dir = std::filesystem::temp_directory_path() /

@@ -53,6 +53,7 @@ struct SweepOptions {
   /// Engine of sw::retrieve ("auto" = the default chain; or a registered engine name, for the
   /// per-engine errors of docs/validation.md).
   std::string engine = "auto";
+  std::string uncertainty = "full";  ///< RetrieveOptions::uncertainty by name (full | warm)
   int jobs = 1;          ///< cases run at the same time (threads, >= 1)
   std::string work_dir;  ///< folder for the scans written through files (TOF); "" = temp
   bool verbose = true;   ///< one line per finished case on stderr

@@ -4,7 +4,7 @@
 // lines) and prints the summary; OUT_DIR/validation_imperfections.partial.csv grows row by row
 // while the sweep runs.
 // Usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N] [--jobs N]
-//        [--engine NAME] [--list]
+//        [--engine NAME] [--uncertainty full|warm] [--list]
 //        [--check-scans] (generate only: truth and whether the energy window holds the signal)
 //        [--from-csv FILE] (tables, summary and figures again from a finished run's CSV)
 //        [--write-scans DIR] (the cases' scans as files, to analyse with the command line)
@@ -64,6 +64,8 @@ int main(int argc, char** argv) {
         o.jobs = integer("--jobs");
       } else if (a == "--engine") {
         o.engine = value("--engine");
+      } else if (a == "--uncertainty") {
+        o.uncertainty = value("--uncertainty");
       } else if (a == "--from-csv") {
         from_csv = value("--from-csv");
       } else if (a == "--held-out") {
@@ -77,7 +79,7 @@ int main(int argc, char** argv) {
       } else if (a == "-h" || a == "--help") {
         std::printf(
             "usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
-            "[--jobs N (1)] [--engine NAME (auto)] [--work DIR] [--list] [--check-scans] [--write-scans DIR] [--held-out N [--held-out-seed S]]\n");
+            "[--jobs N (1)] [--engine NAME (auto)] [--uncertainty full|warm (full)] [--work DIR] [--list] [--check-scans] [--write-scans DIR] [--held-out N [--held-out-seed S]]\n");
         return 0;
       } else if (!a.empty() && a[0] == '-') {
         throw usage_error("unknown option " + a);
