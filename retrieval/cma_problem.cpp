@@ -10,6 +10,7 @@
 #include <Eigen/Core>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/forward_model.h"
 #include "retrieval/hot_loop.h"
 #include "retrieval/units.h"
@@ -101,11 +102,7 @@ int auto_momentum_bands(double p_lo, double p_hi, double p0) {
 
 namespace {
 
-std::string num(double x) {
-  std::ostringstream s;
-  s << x;
-  return s.str();
-}
+std::string num(double x) { return format_g(x); }
 
 // r2 = |S|^2 per bin and the error sums sum I M, sum M^2 with M = dt^2 r2.
 SW_HOT_LOOP void moduli_and_sums(const double* S, const double* I, double* r2, std::size_t n,

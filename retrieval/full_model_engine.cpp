@@ -11,17 +11,14 @@
 #include <ceres/ceres.h>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/units.h"
 
 namespace sw {
 
 namespace {
 
-std::string num(double x) {
-  std::ostringstream s;
-  s << x;
-  return s.str();
-}
+std::string num(double x) { return format_g(x); }
 
 inline std::size_t fft_slot(long b, std::size_t n) {
   return static_cast<std::size_t>(b < 0 ? b + static_cast<long>(n) : b);

@@ -3,6 +3,8 @@
 #include <cmath>
 #include <sstream>
 
+#include "retrieval/format.h"
+
 namespace sw {
 
 const char* to_string(PulseClass c) {
@@ -78,11 +80,7 @@ std::optional<double> param_number(const std::vector<Param>& params, const std::
 
 std::string param_text(const Param& p, int precision, const char* separator) {
   auto number = [&](double v) {
-    if (!std::isfinite(v)) return std::string();
-    std::ostringstream s;
-    s.precision(precision);
-    s << v;
-    return s.str();
+    return std::isfinite(v) ? format_g(v, precision) : std::string();
   };
   if (const auto* d = std::get_if<double>(&p.value)) return number(*d);
   if (const auto* l = std::get_if<long long>(&p.value)) return std::to_string(*l);

@@ -7,6 +7,7 @@
 #include <sstream>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/units.h"
 
@@ -14,11 +15,6 @@ namespace sw {
 
 namespace {
 
-std::string num(double v) {
-  std::ostringstream os;
-  os << v;
-  return os.str();
-}
 
 // Area of the peak centred at c (a.u.) above the minimum of a 3-bin running mean within
 // +-omega/2, summed over |W - c| <= half; -1 when that window is not inside the energy axis.
@@ -96,7 +92,7 @@ std::string TrainBurstOptions::validate() const {
     return "monte_carlo_draws = " + std::to_string(monte_carlo_draws) +
            " is invalid: it must be 0 (no sigma) or >= 10.";
   if (!(window_half_width_fraction > 0.0 && window_half_width_fraction <= 0.5))
-    return "window_half_width_fraction = " + num(window_half_width_fraction) +
+    return "window_half_width_fraction = " + format_g(window_half_width_fraction) +
            " is invalid: it must lie in (0, 0.5] (units of hbar omega).";
   return {};
 }
