@@ -11,6 +11,7 @@
 #include "io/result_io.h"
 #include "retrieval/error.h"
 #include "retrieval/format.h"
+#include "retrieval/phase_unwrap.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/units.h"
 #include "streakwright_version.h"
@@ -32,16 +33,8 @@ std::vector<double> unwrapped_phase(const std::vector<std::complex<double>>& z, 
   if (!(mx > 0)) return ph;
   auto ok = [&](std::size_t i) { return std::norm(z[i]) >= threshold * mx; };
   ph[imax] = std::arg(z[imax]);
-  for (std::size_t i = imax + 1; i < z.size() && ok(i); ++i) {
-    double d = std::arg(z[i]) - std::arg(z[i - 1]);
-    d -= 2 * units::kPi * std::round(d / (2 * units::kPi));
-    ph[i] = ph[i - 1] + d;
-  }
-  for (std::size_t i = imax; i-- > 0 && ok(i);) {
-    double d = std::arg(z[i]) - std::arg(z[i + 1]);
-    d -= 2 * units::kPi * std::round(d / (2 * units::kPi));
-    ph[i] = ph[i + 1] + d;
-  }
+  for (std::size_t i = imax + 1; i < z.size() && ok(i); ++i) ph[i] = unwrap_next(ph[i - 1], std::arg(z[i]));
+  for (std::size_t i = imax; i-- > 0 && ok(i);) ph[i] = unwrap_next(ph[i + 1], std::arg(z[i]));
   return ph;
 }
 

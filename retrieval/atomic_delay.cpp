@@ -3,6 +3,7 @@
 #include <cmath>
 #include <sstream>
 
+#include "retrieval/enum_names.h"
 #include "retrieval/error.h"
 #include "retrieval/format.h"
 #include "retrieval/units.h"
@@ -122,19 +123,13 @@ double coulomb_wigner_delay_au(int l, double W, double omega, double Z) {
   return (coulomb_phase(l, kp, Z) - coulomb_phase(l, km, Z)) / (2.0 * omega);
 }
 
-const char* to_string(AtomicDelayMode m) { return m == AtomicDelayMode::kAuto ? "auto" : "none"; }
+constexpr EnumNames<AtomicDelayMode, 2> kAtomicDelayModeNames{{{
+    {AtomicDelayMode::kAuto, "auto"},
+    {AtomicDelayMode::kNone, "none"}}}};
 
-bool parse_atomic_delay_mode(const std::string& s, AtomicDelayMode* out) {
-  if (s == "auto") {
-    *out = AtomicDelayMode::kAuto;
-    return true;
-  }
-  if (s == "none") {
-    *out = AtomicDelayMode::kNone;
-    return true;
-  }
-  return false;
-}
+const char* to_string(AtomicDelayMode v) { return kAtomicDelayModeNames.name(v); }
+
+bool parse_atomic_delay_mode(const std::string& s, AtomicDelayMode* out) { return kAtomicDelayModeNames.parse(s, out); }
 
 std::string AtomicDelayOptions::validate() const {
   if (channel_l < -1 || channel_l > 6)

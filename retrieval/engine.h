@@ -135,7 +135,8 @@ const char* to_string(Termination t);
 /// What an engine returns.
 struct Reconstruction {
   std::string engine;         ///< registered name
-  std::string model;          ///< "cma" or "full" (the forward model it assumed)
+  std::string model;          ///< forward model it assumed: "cma" (central momentum), "banded-cma"
+                              ///< (momentum bands) or "full" (the electron's own momentum)
   XuvField xuv;               ///< time origin: IR reference (tau = 0, DESIGN.md)
   IrField ir;                 ///< retrieved vector potential A(t)
   Eigen::MatrixXd retrieved;  ///< model trace on the problem's axes (|a|^2 units)

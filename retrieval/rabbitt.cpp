@@ -10,6 +10,7 @@
 #include "retrieval/error.h"
 #include "retrieval/format.h"
 #include "retrieval/gas.h"
+#include "retrieval/phase_unwrap.h"
 #include "retrieval/units.h"
 
 namespace sw {
@@ -227,13 +228,6 @@ std::vector<double> delay_integrated_spectrum(const Trace& t) {
     for (std::size_t j = 0; j < t.num_energies(); ++j)
       s[j] += w[i] * t.counts(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
   return s;
-}
-
-std::vector<double> unwrap_sequence(const std::vector<double>& p) {
-  std::vector<double> out(p);
-  for (std::size_t k = 1; k < out.size(); ++k)
-    out[k] += units::kTwoPi * std::round((out[k - 1] - out[k]) / units::kTwoPi);
-  return out;
 }
 
 RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
@@ -587,7 +581,7 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   {
     std::vector<double> ph;
     for (const auto& d : sbs) ph.push_back(d.fit.phase_rad);
-    const std::vector<double> un = unwrap_sequence(ph);
+    const std::vector<double> un = unwrap_phase(ph);
     for (std::size_t k = 0; k < sbs.size(); ++k) {
       SidebandDetail& d = sbs[k];
       d.phase_unwrapped_rad = un[k];

@@ -6,6 +6,7 @@
 #include <random>
 #include <sstream>
 
+#include "retrieval/enum_names.h"
 #include "retrieval/error.h"
 #include "retrieval/format.h"
 #include "retrieval/pulse_metrics.h"
@@ -66,21 +67,13 @@ double periodic_burst_fwhm(const std::vector<double>& I, double dt, std::size_t*
 
 }  // namespace
 
-const char* to_string(CrossSectionModel m) {
-  return m == CrossSectionModel::kFlat ? "flat" : "sfa_dipole";
-}
+constexpr EnumNames<CrossSectionModel, 2> kCrossSectionModelNames{{{
+    {CrossSectionModel::kFlat, "flat"},
+    {CrossSectionModel::kSfaDipole, "sfa_dipole"}}}};
 
-bool parse_cross_section_model(const std::string& s, CrossSectionModel* out) {
-  if (s == "flat") {
-    *out = CrossSectionModel::kFlat;
-    return true;
-  }
-  if (s == "sfa_dipole") {
-    *out = CrossSectionModel::kSfaDipole;
-    return true;
-  }
-  return false;
-}
+const char* to_string(CrossSectionModel v) { return kCrossSectionModelNames.name(v); }
+
+bool parse_cross_section_model(const std::string& s, CrossSectionModel* out) { return kCrossSectionModelNames.parse(s, out); }
 
 std::string TrainBurstOptions::validate() const {
   if (periods != 1 && periods != 2)
