@@ -232,24 +232,7 @@ void HtmlReport::add_key_value_table(const std::string& title,
 void HtmlReport::add_table(const std::vector<std::string>& header,
                            const std::vector<std::vector<std::string>>& rows,
                            const std::string& title) {
-  std::string h = "<table>";
-  if (!title.empty()) h += "<caption>" + html_escape(title) + "</caption>";
-  if (!header.empty()) {
-    h += "<thead><tr>";
-    for (const auto& c : header) h += "<th>" + html_escape(c) + "</th>";
-    h += "</tr></thead>";
-  }
-  h += "<tbody>";
-  for (const auto& row : rows) {
-    h += "<tr>";
-    const std::size_t n = std::max(header.size(), row.size());
-    for (std::size_t k = 0; k < n; ++k) {
-      h += "<td>" + (k < row.size() ? html_escape(row[k]) : std::string()) + "</td>";
-    }
-    h += "</tr>";
-  }
-  h += "</tbody></table>";
-  blocks_.push_back(std::move(h));
+  add_table_with_links(header, rows, {}, title);
 }
 
 void HtmlReport::add_table_with_links(const std::vector<std::string>& header,

@@ -139,7 +139,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
     }
   const double pad = 0.25 * (thi - tlo);
   LinePlot lp;
-  lp.title = "XUV pulse: FWHM " + format_g(res.xuv->fwhm_as.value_or(0), kDisplayDigits) + " as (transform limit " +
+  lp.title = "XUV pulse: FWHM " + format_value_sigma(res.xuv->fwhm_as.value_or(0), res.xuv->fwhm_as_sigma, "as") + " (transform limit " +
              format_g(res.xuv->transform_limited_fwhm_as.value_or(0), kDisplayDigits) + " as)";
   lp.x_label = "time (as), XUV reference";
   lp.y_label = "intensity (norm.)";
@@ -154,7 +154,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
 
   LinePlot ls;
   ls.title = "XUV spectrum: centre " + format_g(res.xuv->center_photon_energy_eV.value_or(0), kDisplayDigits) + " eV, GDD " +
-             format_g(res.xuv->gdd_as2.value_or(0), kDisplayDigits) + " as^2";
+             format_value_sigma(res.xuv->gdd_as2.value_or(0), res.xuv->gdd_as2_sigma, "as^2");
   ls.x_label = "photon energy (eV)";
   ls.y_label = "spectral intensity (norm.)";
   ls.y2_label = "spectral phase, linear part removed (rad)";
@@ -184,7 +184,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   plot_lines(ls, path("xuv_spectrum.png"));
 
   LinePlot li;
-  li.title = "IR streaking field: A0 = " + format_g(res.ir->peak_vector_potential_au.value_or(0), kDisplayDigits) + " a.u., I = " +
+  li.title = "IR streaking field: A0 = " + format_value_sigma(res.ir->peak_vector_potential_au.value_or(0), res.ir->peak_vector_potential_au_sigma, "a.u.") + ", I = " +
              format_g(res.ir->peak_intensity_Wcm2.value_or(0), kDisplayDigits) + " W/cm^2";
   li.x_label = "IR time (fs)";
   li.y_label = "vector potential A (a.u.)";
