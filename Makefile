@@ -14,7 +14,7 @@ PRESET  ?= neon-150as
 # Debian 12 package names of everything the build and the tests need.
 DEPS := cmake g++ make pkg-config libeigen3-dev libfftw3-dev libceres-dev \
         libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev \
-        catch2 libcli11-dev nlohmann-json3-dev libhdf5-dev libbenchmark-dev \
+        catch2 libcli11-dev nlohmann-json3-dev libfmt-dev libhdf5-dev libbenchmark-dev \
         python3-dev pybind11-dev python3-numpy python3-scipy python3-pytest
 # python3-matplotlib: the batch-trends example (docs/examples/plot_batch_trends.py) and its test.
 # slurm-wlm, munge: the Slurm array test (tests/slurm/, runs only as root); their services stay

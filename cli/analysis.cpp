@@ -14,27 +14,20 @@
 #include "io/rabbitt_outputs.h"
 #include "io/retrieval_outputs.h"
 #include "io/trace_reader.h"
+#include "retrieval/enum_names.h"
 #include "retrieval/error.h"
 
 namespace sw::cli {
 
-const char* to_string(AnalysisKind k) {
-  switch (k) {
-    case AnalysisKind::kRetrieve: return "retrieve";
-    case AnalysisKind::kRabbitt: return "rabbitt";
-    case AnalysisKind::kClassify: return "classify";
-    default: return "auto";
-  }
-}
+constexpr EnumNames<AnalysisKind, 4> kAnalysisKindNames{{{
+    {AnalysisKind::kAuto, "auto"},
+    {AnalysisKind::kRetrieve, "retrieve"},
+    {AnalysisKind::kRabbitt, "rabbitt"},
+    {AnalysisKind::kClassify, "classify"}}}};
 
-bool parse_analysis_kind(const std::string& s, AnalysisKind* out) {
-  if (s == "auto") *out = AnalysisKind::kAuto;
-  else if (s == "retrieve") *out = AnalysisKind::kRetrieve;
-  else if (s == "rabbitt") *out = AnalysisKind::kRabbitt;
-  else if (s == "classify") *out = AnalysisKind::kClassify;
-  else return false;
-  return true;
-}
+const char* to_string(AnalysisKind v) { return kAnalysisKindNames.name(v); }
+
+bool parse_analysis_kind(const std::string& s, AnalysisKind* out) { return kAnalysisKindNames.parse(s, out); }
 
 TraceReadOverrides read_overrides(const ScanOverrides& o) {
   TraceReadOverrides r;

@@ -29,6 +29,7 @@
 #include "io/trace_reader.h"
 #include "retrieval/dipole.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "streakwright_version.h"
 
 namespace sw::cli {
@@ -82,11 +83,7 @@ std::string hex64(std::uint64_t h) {
 }
 
 /// Shortest text that reads back as the same double.
-std::string num(double v) {
-  char buf[32];
-  const auto r = std::to_chars(buf, buf + sizeof buf, v);
-  return std::string(buf, r.ptr);
-}
+std::string num(double v) { return format_exact(v); }
 
 /// A scan name as one path component: '%' and '/' escaped.
 std::string escape_name(const std::string& name) {

@@ -14,6 +14,7 @@
 #include "io/report_html.h"
 #include "io/result_io.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "streakwright_version.h"
 
 namespace sw::cli {
@@ -23,12 +24,6 @@ namespace {
 namespace fs = std::filesystem;
 using ojson = nlohmann::ordered_json;
 
-std::string fmt_number(double v) {
-  char buf[40];
-  std::snprintf(buf, sizeof buf, "%.12g", v);
-  return buf;
-}
-
 std::string csv_cell(const std::string& s) {
   if (s.find_first_of(",\"\r\n") == std::string::npos) return s;
   std::string q = "\"";
@@ -36,15 +31,10 @@ std::string csv_cell(const std::string& s) {
   return q + "\"";
 }
 
-/// Display of value +- sigma with a sensible number of digits (4 significant).
+/// Display of value +- sigma (retrieval/format.h: sigma to two significant digits).
 std::string display(const std::optional<double>& v, const std::optional<double>& s) {
   if (!v) return "";
-  char buf[64];
-  if (s && *s > 0)
-    std::snprintf(buf, sizeof buf, "%.4g +- %.2g", *v, *s);
-  else
-    std::snprintf(buf, sizeof buf, "%.4g", *v);
-  return buf;
+  return format_value_sigma(*v, s && *s > 0 ? s : std::nullopt);
 }
 
 /// Percent-encodes what a relative URL path cannot carry verbatim.
@@ -239,10 +229,10 @@ std::string summary_csv(const std::vector<SummaryRow>& rows) {
   for (const SummaryRow& r : rows) {
     std::vector<std::string> cells = {r.scan, r.status, r.message, r.analysis, r.pulse_class};
     for (const auto& q : headline_quantities()) {
-      cells.push_back((r.*q.value) ? fmt_number(*(r.*q.value)) : "");
-      if (q.sigma) cells.push_back((r.*q.sigma) ? fmt_number(*(r.*q.sigma)) : "");
+      cells.push_back((r.*q.value) ? format_exact(*(r.*q.value)) : "");
+      if (q.sigma) cells.push_back((r.*q.sigma) ? format_exact(*(r.*q.sigma)) : "");
     }
-    cells.push_back(r.seconds ? fmt_number(*r.seconds) : "");
+    cells.push_back(r.seconds ? format_exact(*r.seconds) : "");
     cells.push_back(r.converged ? (*r.converged ? "true" : "false") : "");
     cells.push_back(r.trusted ? (*r.trusted ? "true" : "false") : "");
     cells.push_back(r.failed_checks);

@@ -9,6 +9,7 @@
 #include "io/input_guard.h"
 #include "io/trace_reader.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/gas.h"
 #include "retrieval/preprocess.h"
 #include "retrieval/units.h"
@@ -121,11 +122,11 @@ int run_info(const std::string& path, bool allow_outside_data) {
       const BackgroundModel& b = ps.background;
       std::printf("bg model    %s", b.model.c_str());
       if (ps.background_source == "fit") {
-        std::printf(": %.4g +- %.2g counts per bin", b.constant_counts, b.constant_counts_sigma);
+        std::printf(": %s per bin", format_value_sigma(b.constant_counts, b.constant_counts_sigma, "counts").c_str());
         if (b.has_tail)
-          std::printf(" + (%.4g +- %.2g) exp(-W / (%.3g +- %.2g eV))", b.tail_counts_at_zero, b.tail_counts_at_zero_sigma,
-                      b.tail_decay_eV, b.tail_decay_eV_sigma);
-        if (b.has_tof) std::printf(" + (%.4g +- %.2g) (W_ref / W)^1.5", b.tof_counts, b.tof_counts_sigma);
+          std::printf(" + (%s) exp(-W / (%s))", format_value_sigma(b.tail_counts_at_zero, b.tail_counts_at_zero_sigma).c_str(),
+                      format_value_sigma(b.tail_decay_eV, b.tail_decay_eV_sigma, "eV").c_str());
+        if (b.has_tof) std::printf(" + (%s) (W_ref / W)^1.5", format_value_sigma(b.tof_counts, b.tof_counts_sigma).c_str());
         std::printf(" (Poisson ML over %zu energy bins)", b.background_bins);
       }
       std::printf("\n");
@@ -138,7 +139,7 @@ int run_info(const std::string& path, bool allow_outside_data) {
         std::printf("line        %s %s: Ip %.4f eV, W %.2f eV", l.gas.c_str(), l.name.c_str(), l.ionization_energy_eV,
                     l.kinetic_energy_eV.value_or(0.0));
         if (l.relative_strength)
-          std::printf(", strength %.3g +- %.2g", *l.relative_strength, l.relative_strength_sigma.value_or(0.0));
+          std::printf(", strength %s", format_value_sigma(*l.relative_strength, l.relative_strength_sigma).c_str());
         std::printf("%s (%s)\n", l.reference ? ", reference" : "", l.source.c_str());
       }
       if (!ps.window_source.empty())

@@ -10,6 +10,7 @@
 #include "cli/option_checks.h"
 #include "retrieval/dipole.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/lines.h"
 #include "retrieval/rabbitt.h"
 
@@ -33,26 +34,21 @@ struct RabbittArgs {
 };
 
 std::string summary_line(const AnalysisResult& r) {
+  // Numbers by the one precision policy of retrieval/format.h.
   std::ostringstream s;
-  s.precision(4);
   const RabbittSection& b = *r.rabbitt;
-  if (b.attochirp_as_per_eV) {
-    s << "attochirp " << *b.attochirp_as_per_eV;
-    if (b.attochirp_as_per_eV_sigma) s << " +- " << *b.attochirp_as_per_eV_sigma;
-    s << " as/eV";
-  } else {
+  if (b.attochirp_as_per_eV)
+    s << "attochirp " << format_value_sigma(*b.attochirp_as_per_eV, b.attochirp_as_per_eV_sigma, "as/eV");
+  else
     s << "no attochirp";
-  }
   s << " (" << b.sidebands.size() << " sidebands";
   if (!b.sidebands.empty())
     s << ", SB" << b.sidebands.front().order << "-SB" << b.sidebands.back().order;
   s << ")";
   if (b.train_burst_fwhm_as) {
-    s << "; burst FWHM " << *b.train_burst_fwhm_as;
-    if (b.train_burst_fwhm_as_sigma) s << " +- " << *b.train_burst_fwhm_as_sigma;
-    s << " as";
+    s << "; burst FWHM " << format_value_sigma(*b.train_burst_fwhm_as, b.train_burst_fwhm_as_sigma, "as");
     if (b.transform_limited_burst_fwhm_as)
-      s << " (TL " << *b.transform_limited_burst_fwhm_as << " as)";
+      s << " (TL " << format_g(*b.transform_limited_burst_fwhm_as, kDisplayDigits) << " as)";
   }
   if (r.verdict) s << "; " << to_string(r.verdict->pulse_class);
   if (!r.warnings.empty()) s << "; " << r.warnings.size() << " warning(s), see the report";

@@ -11,6 +11,7 @@
 #include "cli/option_registry.h"
 #include "retrieval/engine.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/lines.h"
 #include "retrieval/retrieve.h"
 #include "retrieval/dipole.h"
@@ -30,21 +31,17 @@ struct RetrieveArgs {
 };
 
 std::string summary_line(const AnalysisResult& r) {
+  // Numbers by the one precision policy of retrieval/format.h.
+  const auto g = [](double v) { return format_g(v, kDisplayDigits); };
   std::ostringstream s;
-  s.precision(4);
   const auto& x = *r.xuv;
-  s << "XUV FWHM " << *x.fwhm_as;
-  if (x.fwhm_as_sigma) s << " +- " << *x.fwhm_as_sigma;
-  s << " as (TL " << *x.transform_limited_fwhm_as << " as), GDD " << *x.gdd_as2;
-  if (x.gdd_as2_sigma) s << " +- " << *x.gdd_as2_sigma;
-  s << " as^2, centre " << *x.center_photon_energy_eV << " eV";
-  if (r.ir && r.ir->peak_vector_potential_au) {
-    s << "; IR A0 " << *r.ir->peak_vector_potential_au;
-    if (r.ir->peak_vector_potential_au_sigma) s << " +- " << *r.ir->peak_vector_potential_au_sigma;
-    s << " a.u.";
-  }
-  s << "; " << to_string(r.verdict->pulse_class) << " (satellite " << 100 * r.verdict->satellite_intensity_ratio.value_or(0)
-    << " %); G " << r.fit->trace_error.value_or(0) << (r.fit->converged.value_or(false) ? "" : " NOT CONVERGED")
+  s << "XUV FWHM " << format_value_sigma(*x.fwhm_as, x.fwhm_as_sigma, "as") << " (TL "
+    << g(*x.transform_limited_fwhm_as) << " as), GDD " << format_value_sigma(*x.gdd_as2, x.gdd_as2_sigma, "as^2")
+    << ", centre " << g(*x.center_photon_energy_eV) << " eV";
+  if (r.ir && r.ir->peak_vector_potential_au)
+    s << "; IR A0 " << format_value_sigma(*r.ir->peak_vector_potential_au, r.ir->peak_vector_potential_au_sigma, "a.u.");
+  s << "; " << to_string(r.verdict->pulse_class) << " (satellite " << g(100 * r.verdict->satellite_intensity_ratio.value_or(0))
+    << " %); G " << g(r.fit->trace_error.value_or(0)) << (r.fit->converged.value_or(false) ? "" : " NOT CONVERGED")
     << "; " << r.engine;
   // Photoelectron lines with their relative delays (retrieval/line_delays.h).
   if (r.lines.size() >= 2) {
@@ -53,11 +50,9 @@ std::string summary_line(const AnalysisResult& r) {
       s << " " << (l.gas.empty() ? "" : l.gas + " ") << l.name;
       if (l.reference) s << " (reference)";
       else if (l.relative_delay_as) {
-        s << " delay " << *l.relative_delay_as;
-        if (l.relative_delay_as_sigma) s << " +- " << *l.relative_delay_as_sigma;
-        s << " as";
-        if (l.relative_delay_as_corrected) s << " (" << *l.relative_delay_as_corrected << " as Coulomb-laser corrected)";
-        if (l.relative_strength) s << ", strength " << *l.relative_strength;
+        s << " delay " << format_value_sigma(*l.relative_delay_as, l.relative_delay_as_sigma, "as");
+        if (l.relative_delay_as_corrected) s << " (" << g(*l.relative_delay_as_corrected) << " as Coulomb-laser corrected)";
+        if (l.relative_strength) s << ", strength " << g(*l.relative_strength);
       } else {
         s << " (no delay)";
       }

@@ -25,14 +25,6 @@ struct SimulateArgs {
   plot::FigureFormat figure_format = plot::FigureFormat::kPng;
 };
 
-TraceFormat to_trace_format(synthetic::OutputFormat f) {
-  switch (f) {
-    case synthetic::OutputFormat::kTiff: return TraceFormat::kTiff;
-    case synthetic::OutputFormat::kCsv: return TraceFormat::kCsv;
-    default: return TraceFormat::kPng16;
-  }
-}
-
 int run_simulate(const SimulateArgs& a) {
   if (a.list) {
     for (const auto& p : synthetic::presets()) std::printf("%-22s %s\n", p.name.c_str(), p.description.c_str());
@@ -46,7 +38,7 @@ int run_simulate(const SimulateArgs& a) {
     throw input_error((a.config.empty() ? "preset " + a.preset : a.config) + ": " + e);
   std::string name = a.name;
   if (name.empty()) name = !cfg.name.empty() ? cfg.name : std::filesystem::path(a.config).stem().string();
-  TraceFormat fmt = to_trace_format(cfg.output_format);
+  TraceFormat fmt = cfg.output_format;
   if (!a.format.empty() && !parse_trace_format(a.format, &fmt))
     throw usage_error("--format " + a.format + ": expected png16, tiff or csv");
   std::error_code ec;

@@ -6,17 +6,18 @@
 #include <map>
 #include <sstream>
 
+#include <fmt/format.h>
+
+#include "retrieval/format.h"
+
 namespace sw::cli {
 
 namespace {
 
-std::string g(double v, const char* f = "%.6g") {
-  char buf[40];
-  std::snprintf(buf, sizeof buf, f, v);
-  return buf;
-}
+std::string pm(double v, double s) { return format_value_sigma(v, s); }
 
-std::string pm(double v, double s) { return g(v) + " +- " + g(s, "%.3g"); }
+/// A signed change with kDisplayDigits significant digits ("+1.234", "-0.5").
+std::string signed_change(double d) { return fmt::format("{:+.{}g}", d, kDisplayDigits); }
 
 }  // namespace
 
@@ -77,7 +78,7 @@ std::string comparison_text(const SummaryComparison& c) {
       std::snprintf(line, sizeof line, "  %-*s  %-26s  %-24s  %-24s  %-12s  %.1f\n",
                     static_cast<int>(w), m.scan.c_str(), m.quantity.c_str(),
                     pm(m.old_value, m.old_sigma).c_str(), pm(m.new_value, m.new_sigma).c_str(),
-                    g(m.difference, "%+.4g").c_str(), std::abs(m.difference) / m.combined_sigma);
+                    signed_change(m.difference).c_str(), std::abs(m.difference) / m.combined_sigma);
       s << line;
     }
   }
@@ -108,10 +109,10 @@ std::string comparison_csv(const SummaryComparison& c) {
       for (char ch : scan) q += ch == '"' ? std::string("\"\"") : std::string(1, ch);
       scan = q + "\"";
     }
-    out += scan + "," + m.quantity + "," + g(m.old_value, "%.12g") + "," + g(m.old_sigma, "%.12g") +
-           "," + g(m.new_value, "%.12g") + "," + g(m.new_sigma, "%.12g") + "," +
-           g(m.difference, "%.12g") + "," + g(m.combined_sigma, "%.12g") + "," +
-           g(std::abs(m.difference) / m.combined_sigma, "%.4g") + "\n";
+    out += scan + "," + m.quantity + "," + format_exact(m.old_value) + "," + format_exact(m.old_sigma) +
+           "," + format_exact(m.new_value) + "," + format_exact(m.new_sigma) + "," +
+           format_exact(m.difference) + "," + format_exact(m.combined_sigma) + "," +
+           format_exact(std::abs(m.difference) / m.combined_sigma) + "\n";
   }
   return out;
 }
@@ -124,8 +125,8 @@ SummaryTable comparison_table(const SummaryComparison& c, const std::string& aga
   t.header = {"scan", "quantity", "before", "now", "change", "sigmas"};
   for (const auto& m : c.moved)
     t.rows.push_back({m.scan, m.quantity, pm(m.old_value, m.old_sigma),
-                      pm(m.new_value, m.new_sigma), g(m.difference, "%+.4g"),
-                      g(std::abs(m.difference) / m.combined_sigma, "%.1f")});
+                      pm(m.new_value, m.new_sigma), signed_change(m.difference),
+                      fmt::format("{:.1f}", std::abs(m.difference) / m.combined_sigma)});
   for (const auto& ch : c.changes) t.rows.push_back({ch, "", "", "", "", ""});
   return t;
 }

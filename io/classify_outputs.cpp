@@ -10,6 +10,7 @@
 #include "io/report_html.h"
 #include "io/result_io.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/units.h"
 #include "streakwright_version.h"
@@ -19,14 +20,6 @@ namespace sw {
 namespace fs = std::filesystem;
 
 namespace {
-
-std::string fmt(double v, int prec = 8) {
-  if (!std::isfinite(v)) return "";
-  std::ostringstream s;
-  s.precision(prec);
-  s << v;
-  return s.str();
-}
 
 // CSV cell: quoted when it contains a separator or a quote (RFC 4180).
 std::string csv_cell(const std::string& s) {
@@ -75,7 +68,7 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
     for (Eigen::Index i = 0; i < trace.counts.rows(); ++i)
       for (Eigen::Index j = 0; j < trace.counts.cols(); ++j) s[j] += trace.counts(i, j);
     LinePlot lp;
-    lp.title = "delay-integrated spectrum (2 hbar omega = " + fmt(2 * hw, 4) + " eV)";
+    lp.title = "delay-integrated spectrum (2 hbar omega = " + format_g(2 * hw, kDisplayDigits) + " eV)";
     lp.x_label = "photoelectron energy (eV)";
     lp.y_label = "counts (summed over delays)";
     lp.series.push_back({eev, s, {}, "", std::nullopt, false, true, false, 1, false});
@@ -98,7 +91,7 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
       }
     LinePlot lp;
     lp.title = "retrieved XUV intensity (" + rec->engine + "): satellite ratio " +
-               fmt(res.verdict->satellite_intensity_ratio.value_or(0.0), 3);
+               format_g(res.verdict->satellite_intensity_ratio.value_or(0.0), kDisplayDigits);
     lp.x_label = "time (as), IR reference";
     lp.y_label = "intensity (norm.)";
     lp.series.push_back({x, y, {}, "retrieved", std::nullopt, false, true, false, 2, false});
@@ -125,10 +118,9 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
   rep.set_footer(std::string("streakwright ") + STREAKWRIGHT_VERSION);
   if (res.quality) rep.add_quality(*res.quality);
   rep.add_paragraph(
-      "Input: " + res.input + "\nIR wavelength used: " + fmt(ir_wavelength_nm, 6) + " nm (T/2 = " +
-      fmt(0.5 *
-              units::au_to_as(units::period_au(units::wavelength_nm_to_omega_au(ir_wavelength_nm))),
-          5) +
+      "Input: " + res.input + "\nIR wavelength used: " + format_g(ir_wavelength_nm, kDisplayDigits) + " nm (T/2 = " +
+      format_g(0.5 *
+              units::au_to_as(units::period_au(units::wavelength_nm_to_omega_au(ir_wavelength_nm))), kDisplayDigits) +
       " as)");
   for (const auto& w : res.warnings) rep.add_warning(w);
   std::vector<KeyValueRow> vr;

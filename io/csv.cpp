@@ -9,6 +9,7 @@
 
 #include "io/atomic_file.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 
 namespace sw {
 namespace {
@@ -147,14 +148,6 @@ Eigen::MatrixXd read_csv_matrix(const std::string& path) {
                           printable_path(path));
 }
 
-namespace {
-void append_number(std::string& out, double v) {
-  char buf[32];
-  const auto r = std::to_chars(buf, buf + sizeof buf, v, std::chars_format::general, 17);
-  out.append(buf, r.ptr);
-}
-}  // namespace
-
 std::string format_csv_matrix(const Eigen::MatrixXd& m, const std::vector<std::string>& header) {
   std::string out;
   out.reserve(static_cast<std::size_t>(m.size()) * 20 + 64);
@@ -166,7 +159,7 @@ std::string format_csv_matrix(const Eigen::MatrixXd& m, const std::vector<std::s
   for (Eigen::Index i = 0; i < m.rows(); ++i) {
     for (Eigen::Index j = 0; j < m.cols(); ++j) {
       if (j) out += ',';
-      append_number(out, m(i, j));
+      out += format_exact(m(i, j));
     }
     out += '\n';
   }

@@ -10,6 +10,7 @@
 
 #include "io/plot_canvas.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 
 namespace sw {
 
@@ -40,12 +41,6 @@ namespace {
 constexpr Rgb kBlack{0, 0, 0};
 constexpr Rgb kMissing{200, 200, 200};  // non-finite data pixels
 
-std::string num(double v) {
-  std::ostringstream s;
-  s << v;
-  return s.str();
-}
-
 std::string check_size(const char* who, int w, int h, int min_w, int min_h) {
   if (w < min_w || w > 8000) {
     return std::string(who) + ".width_px = " + std::to_string(w) + " must be in [" +
@@ -62,12 +57,12 @@ std::string check_limits(const char* who, const char* lo_name, const std::option
                          const char* hi_name, const std::optional<double>& hi) {
   for (auto [name, v] : {std::pair{lo_name, lo}, std::pair{hi_name, hi}}) {
     if (v && !std::isfinite(*v)) {
-      return std::string(who) + "." + name + " = " + num(*v) + " must be finite.";
+      return std::string(who) + "." + name + " = " + format_g(*v) + " must be finite.";
     }
   }
   if (lo && hi && !(*lo < *hi)) {
-    return std::string(who) + "." + lo_name + " = " + num(*lo) + " must be below " + who + "." +
-           hi_name + " = " + num(*hi) + ".";
+    return std::string(who) + "." + lo_name + " = " + format_g(*lo) + " must be below " + who + "." +
+           hi_name + " = " + format_g(*hi) + ".";
   }
   return "";
 }
@@ -96,7 +91,7 @@ void check_axis(const std::vector<double>& a, const char* name, Eigen::Index exp
   for (std::size_t i = 0; i < a.size(); ++i) {
     if (!std::isfinite(a[i]) || (i > 0 && !(a[i] > a[i - 1]))) {
       throw input_error("Cannot draw the " + figure + " '" + path + "': " + name + "[" +
-                        std::to_string(i) + "] = " + num(a[i]) +
+                        std::to_string(i) + "] = " + format_g(a[i]) +
                         " (the axis must be finite and strictly ascending).");
     }
   }
@@ -616,7 +611,7 @@ std::string LinePlot::validate() const {
   if (auto m = check_limits("LinePlot", "y_min", y_min, "y_max", y_max); !m.empty()) return m;
   if (auto m = check_limits("LinePlot", "y2_min", y2_min, "y2_max", y2_max); !m.empty()) return m;
   if (log_y && y_min && !(*y_min > 0.0)) {
-    return "LinePlot.y_min = " + num(*y_min) + " must be > 0 with log_y.";
+    return "LinePlot.y_min = " + format_g(*y_min) + " must be > 0 with log_y.";
   }
   for (std::size_t k = 0; k < series.size(); ++k) {
     if (series[k].thickness_px < 1 || series[k].thickness_px > 6) {

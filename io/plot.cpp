@@ -1,5 +1,7 @@
 #include "io/plot.h"
 
+#include "retrieval/enum_names.h"
+
 #include <algorithm>
 #include <array>
 #include <cctype>
@@ -26,42 +28,24 @@ Rgb palette_color(std::size_t i) {
   return kPalette[i % kPalette.size()];
 }
 
-const char* to_string(ColorMap m) {
-  switch (m) {
-    case ColorMap::kViridis:
-      return "viridis";
-    case ColorMap::kMagma:
-      return "magma";
-    case ColorMap::kInferno:
-      return "inferno";
-    case ColorMap::kDiverging:
-      return "diverging";
-    case ColorMap::kGray:
-      return "gray";
-  }
-  return "viridis";
-}
+constexpr EnumNames<ColorMap, 5> kColorMapNames{{{
+    {ColorMap::kViridis, "viridis"},
+    {ColorMap::kMagma, "magma"},
+    {ColorMap::kInferno, "inferno"},
+    {ColorMap::kDiverging, "diverging"},
+    {ColorMap::kGray, "gray"}}}};
 
-bool parse_color_map(const std::string& s, ColorMap* out) {
-  for (ColorMap m : {ColorMap::kViridis, ColorMap::kMagma, ColorMap::kInferno, ColorMap::kDiverging,
-                     ColorMap::kGray}) {
-    if (s == to_string(m)) {
-      *out = m;
-      return true;
-    }
-  }
-  return false;
-}
+const char* to_string(ColorMap v) { return kColorMapNames.name(v); }
 
-const char* to_string(FigureFormat f) { return f == FigureFormat::kSvg ? "svg" : "png"; }
+bool parse_color_map(const std::string& s, ColorMap* out) { return kColorMapNames.parse(s, out); }
 
-bool parse_figure_format(const std::string& s, FigureFormat* out) {
-  if (s == "png" || s == "svg") {
-    *out = s == "svg" ? FigureFormat::kSvg : FigureFormat::kPng;
-    return true;
-  }
-  return false;
-}
+constexpr EnumNames<FigureFormat, 2> kFigureFormatNames{{{
+    {FigureFormat::kPng, "png"},
+    {FigureFormat::kSvg, "svg"}}}};
+
+const char* to_string(FigureFormat v) { return kFigureFormatNames.name(v); }
+
+bool parse_figure_format(const std::string& s, FigureFormat* out) { return kFigureFormatNames.parse(s, out); }
 
 const char* figure_extension(FigureFormat f) { return f == FigureFormat::kSvg ? ".svg" : ".png"; }
 

@@ -11,6 +11,7 @@
 #include "io/report_html.h"
 #include "io/result_io.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/units.h"
 #include "streakwright_version.h"
 
@@ -21,14 +22,6 @@ namespace fs = std::filesystem;
 namespace {
 
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
-
-std::string fmt(double v, int prec = 8) {
-  if (!std::isfinite(v)) return "";
-  std::ostringstream s;
-  s.precision(prec);
-  s << v;
-  return s.str();
-}
 
 // Writes rows of cells (already formatted) under a header line.
 void write_csv(const std::string& path, const std::vector<std::string>& header,
@@ -75,13 +68,13 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     std::vector<std::vector<std::string>> rows;
     for (const SidebandDetail& d : rb.sidebands) {
       const bool a = d.atomic.applied;
-      rows.push_back({std::to_string(d.order), fmt(d.energy_eV), fmt(d.phase_unwrapped_rad),
-                      fmt(d.fit.phase_rad_sigma), fmt(d.group_delay_as),
-                      fmt(d.group_delay_as_sigma), fmt(d.fit.modulation_depth),
-                      a ? fmt(d.atomic.total_as) : "", fmt(d.photon_energy_eV),
-                      fmt(d.measured_delay_as), a ? fmt(d.atomic.wigner_as) : "",
-                      a ? fmt(d.atomic.continuum_continuum_as) : "", fmt(d.fit.reduced_chi2),
-                      fmt(d.window_low_eV), fmt(d.window_high_eV)});
+      rows.push_back({std::to_string(d.order), format_cell(d.energy_eV), format_cell(d.phase_unwrapped_rad),
+                      format_cell(d.fit.phase_rad_sigma), format_cell(d.group_delay_as),
+                      format_cell(d.group_delay_as_sigma), format_cell(d.fit.modulation_depth),
+                      a ? format_cell(d.atomic.total_as) : "", format_cell(d.photon_energy_eV),
+                      format_cell(d.measured_delay_as), a ? format_cell(d.atomic.wigner_as) : "",
+                      a ? format_cell(d.atomic.continuum_continuum_as) : "", format_cell(d.fit.reduced_chi2),
+                      format_cell(d.window_low_eV), format_cell(d.window_high_eV)});
     }
     write_csv(path("sidebands.csv"),
               {"order", "energy_eV", "phase_rad", "phase_rad_sigma", "group_delay_as",
@@ -95,9 +88,9 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     for (const SidebandDetail& d : rb.sidebands)
       for (std::size_t k = 0; k < d.rainbow_energy_eV.size(); ++k)
         rows.push_back(
-            {std::to_string(d.order), fmt(d.rainbow_energy_eV[k]), fmt(d.rainbow_phase_rad[k]),
-             k < d.rainbow_phase_rad_sigma.size() ? fmt(d.rainbow_phase_rad_sigma[k]) : "",
-             k < d.rainbow_modulation_depth.size() ? fmt(d.rainbow_modulation_depth[k]) : ""});
+            {std::to_string(d.order), format_cell(d.rainbow_energy_eV[k]), format_cell(d.rainbow_phase_rad[k]),
+             k < d.rainbow_phase_rad_sigma.size() ? format_cell(d.rainbow_phase_rad_sigma[k]) : "",
+             k < d.rainbow_modulation_depth.size() ? format_cell(d.rainbow_modulation_depth[k]) : ""});
     write_csv(path("rainbow.csv"),
               {"order", "energy_eV", "phase_rad", "phase_rad_sigma", "modulation_depth"}, rows);
   }
@@ -105,14 +98,14 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     std::vector<std::vector<std::string>> rows;
     for (std::size_t h = 0; h < burst->harmonic_orders.size(); ++h)
       rows.push_back({std::to_string(burst->harmonic_orders[h]),
-                      fmt(burst->harmonic_photon_energy_eV[h]), fmt(burst->harmonic_intensity[h]),
-                      fmt(burst->harmonic_phase_rad[h])});
+                      format_cell(burst->harmonic_photon_energy_eV[h]), format_cell(burst->harmonic_intensity[h]),
+                      format_cell(burst->harmonic_phase_rad[h])});
     write_csv(path("harmonics.csv"), {"order", "photon_energy_eV", "intensity_norm", "phase_rad"},
               rows);
     rows.clear();
     for (std::size_t i = 0; i < burst->time_as.size(); ++i)
-      rows.push_back({fmt(burst->time_as[i]), fmt(burst->intensity[i]),
-                      fmt(burst->transform_limited_intensity[i])});
+      rows.push_back({format_cell(burst->time_as[i]), format_cell(burst->intensity[i]),
+                      format_cell(burst->transform_limited_intensity[i])});
     write_csv(path("burst.csv"), {"time_as", "intensity_norm", "transform_limited_intensity_norm"},
               rows);
   }
@@ -129,7 +122,7 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   {
     TraceFigureOptions o;
     o.title = "RABBITT scan: " + std::to_string(rb.sidebands.size()) + " sidebands fitted (" +
-              rb.gas + ", " + fmt(rb.ir_wavelength_nm, 5) + " nm)";
+              rb.gas + ", " + format_g(rb.ir_wavelength_nm, kDisplayDigits) + " nm)";
     for (const SidebandDetail& d : rb.sidebands)
       o.markers.push_back({0.5 * (d.window_low_eV + d.window_high_eV),
                            "SB" + std::to_string(d.order), plot::Rgb{255, 255, 255}});
@@ -140,8 +133,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   }
   {
     LinePlot lp;
-    lp.title = "delay-integrated spectrum: offset " + fmt(rb.alignment.offset_eV, 3) +
-               " eV, scale " + fmt(rb.alignment.scale, 5);
+    lp.title = "delay-integrated spectrum: offset " + format_g(rb.alignment.offset_eV, kDisplayDigits) +
+               " eV, scale " + format_g(rb.alignment.scale, kDisplayDigits);
     lp.x_label = "photoelectron energy (eV)";
     lp.y_label = "counts (summed over delays)";
     lp.series.push_back(
@@ -223,8 +216,7 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     LinePlot lg;
     std::string t = "group delay per sideband";
     if (res.rabbitt && res.rabbitt->attochirp_as_per_eV) {
-      t = "attochirp " + fmt(*res.rabbitt->attochirp_as_per_eV, 4) + " +- " +
-          fmt(res.rabbitt->attochirp_as_per_eV_sigma.value_or(kNaN), 2) + " as/eV";
+      t = "attochirp " + format_value_sigma(*res.rabbitt->attochirp_as_per_eV, res.rabbitt->attochirp_as_per_eV_sigma, "as/eV");
       Series fit;
       fit.label = "weighted linear fit (attochirp)";
       fit.color = plot::Rgb{200, 40, 40};
@@ -286,9 +278,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   }
   if (burst) {
     LinePlot lb;
-    lb.title = "average burst: FWHM " + fmt(burst->fwhm_as, 4) + " +- " +
-               fmt(burst->fwhm_as_sigma, 2) + " as (transform limit " +
-               fmt(burst->transform_limited_fwhm_as, 4) + " as)";
+    lb.title = "average burst: FWHM " + format_value_sigma(burst->fwhm_as, burst->fwhm_as_sigma, "as") + " (transform limit " +
+               format_g(burst->transform_limited_fwhm_as, kDisplayDigits) + " as)";
     lb.x_label = "time on the IR axis (as)";
     lb.y_label = "intensity (norm.)";
     lb.series.push_back({burst->time_as,
@@ -324,8 +315,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   rep.set_footer(std::string("streakwright ") + STREAKWRIGHT_VERSION);
   if (res.quality) rep.add_quality(*res.quality);
   rep.add_paragraph("Input: " + res.input + "\nGas: " + rb.gas +
-                    " (Ip = " + fmt(rb.ionization_energy_eV, 6) + " eV), IR " +
-                    fmt(rb.ir_wavelength_nm, 6) + " nm (hbar omega = " + fmt(hw_eV, 5) + " eV)");
+                    " (Ip = " + format_g(rb.ionization_energy_eV, kDisplayDigits) + " eV), IR " +
+                    format_g(rb.ir_wavelength_nm, kDisplayDigits) + " nm (hbar omega = " + format_g(hw_eV, kDisplayDigits) + " eV)");
   for (const auto& w : res.warnings) rep.add_warning(w);
 
   std::vector<KeyValueRow> sr;
@@ -360,10 +351,9 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   rep.add_paragraph(
       "Per sideband q (even, between harmonics q-1 and q+1 of an odd-harmonic train) the counts "
       "in a window of +-" +
-      fmt(rb.sidebands.empty()
+      format_g(rb.sidebands.empty()
               ? 0.0
-              : 0.5 * (rb.sidebands.front().window_high_eV - rb.sidebands.front().window_low_eV),
-          3) +
+              : 0.5 * (rb.sidebands.front().window_high_eV - rb.sidebands.front().window_low_eV), kDisplayDigits) +
       " eV are fitted over the whole delay axis with S(tau) = A + B cos(2 omega tau + phi) by "
       "weighted linear least squares with Poisson weights (P. M. Paul et al., Science 292, "
       "1689 (2001); H. G. Muller, Appl. Phys. B 74, S17 (2002)). tau = t_XUV - t_IR, so "
@@ -419,12 +409,12 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     std::string desc;
     for (const SidebandDetail& d : rb.sidebands) {
       if (desc.empty()) desc = d.atomic.description;
-      rows.push_back({"SB" + std::to_string(d.order), fmt(d.energy_eV, 5),
+      rows.push_back({"SB" + std::to_string(d.order), format_g(d.energy_eV, kDisplayDigits),
                       d.atomic.applied ? "yes" : "no",
-                      d.atomic.applied ? fmt(d.atomic.wigner_as, 4) : "",
-                      d.atomic.applied ? fmt(d.atomic.continuum_continuum_as, 4) : "",
-                      d.atomic.applied ? fmt(d.atomic.total_as, 4) : "",
-                      fmt(d.measured_delay_as, 5), fmt(d.group_delay_as, 5)});
+                      d.atomic.applied ? format_g(d.atomic.wigner_as, kDisplayDigits) : "",
+                      d.atomic.applied ? format_g(d.atomic.continuum_continuum_as, kDisplayDigits) : "",
+                      d.atomic.applied ? format_g(d.atomic.total_as, kDisplayDigits) : "",
+                      format_g(d.measured_delay_as, kDisplayDigits), format_g(d.group_delay_as, kDisplayDigits)});
     }
     rep.add_heading("Atomic-delay corrections");
     rep.add_paragraph(
@@ -439,10 +429,10 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   {
     std::vector<std::vector<std::string>> rows;
     for (const SidebandDetail& d : rb.sidebands)
-      rows.push_back({"SB" + std::to_string(d.order), fmt(d.energy_eV, 5),
-                      fmt(d.phase_unwrapped_rad, 5) + " +- " + fmt(d.fit.phase_rad_sigma, 2),
-                      fmt(d.group_delay_as, 5) + " +- " + fmt(d.group_delay_as_sigma, 2),
-                      fmt(d.fit.modulation_depth, 3), fmt(d.fit.reduced_chi2, 3)});
+      rows.push_back({"SB" + std::to_string(d.order), format_g(d.energy_eV, kDisplayDigits),
+                      format_value_sigma(d.phase_unwrapped_rad, d.fit.phase_rad_sigma),
+                      format_value_sigma(d.group_delay_as, d.group_delay_as_sigma),
+                      format_g(d.fit.modulation_depth, kDisplayDigits), format_g(d.fit.reduced_chi2, kDisplayDigits)});
     rep.add_table({"sideband", "energy (eV)", "phase (rad)", "group delay (as)",
                    "modulation depth B/A", "reduced chi^2"},
                   rows, "Sidebands");

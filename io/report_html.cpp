@@ -11,6 +11,7 @@
 
 #include "io/plot_canvas.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "streakwright_version.h"
 
 namespace sw {
@@ -59,13 +60,6 @@ footer { margin-top: 36px; padding-top: 8px; padding-bottom: 28px; border-top: 1
 }
 )css";
 
-std::string format_g(double v, int significant) {
-  if (!std::isfinite(v)) return std::isnan(v) ? "nan" : (v > 0 ? "inf" : "-inf");
-  char buf[64];
-  std::snprintf(buf, sizeof buf, "%.*g", std::max(1, significant), v);
-  return buf;
-}
-
 bool is_png(const std::vector<unsigned char>& b) {
   static constexpr std::array<unsigned char, 8> kSig = {0x89, 'P',  'N',  'G',
                                                         0x0D, 0x0A, 0x1A, 0x0A};
@@ -85,29 +79,9 @@ KeyValueRow KeyValueRow::number(const std::string& name, double value, const std
                                 std::optional<double> sigma, int significant) {
   KeyValueRow row{name, format_g(value, significant), unit, std::nullopt};
   if (!sigma) return row;
-  const double s = std::abs(*sigma);
-  if (!std::isfinite(s) || s == 0.0 || !std::isfinite(value)) {
-    row.sigma = format_g(*sigma, 2);
-    return row;
-  }
-  // Two significant digits of sigma fix the last decimal place of both numbers.
-  const int place = static_cast<int>(std::floor(std::log10(s))) - 1;  // 10^place = last digit
-  const double mag = std::max(std::abs(value), s);
-  char vb[64], sb[64];
-  if (mag >= 1e6 || mag < 1e-3) {
-    const int digits = std::max(2, static_cast<int>(std::floor(std::log10(mag))) - place + 1);
-    std::snprintf(vb, sizeof vb, "%.*g", digits, value);
-    std::snprintf(sb, sizeof sb, "%.2g", s);
-  } else if (place < 0) {
-    std::snprintf(vb, sizeof vb, "%.*f", -place, value);
-    std::snprintf(sb, sizeof sb, "%.*f", -place, s);
-  } else {
-    const double q = std::pow(10.0, place);
-    std::snprintf(vb, sizeof vb, "%.0f", std::round(value / q) * q);
-    std::snprintf(sb, sizeof sb, "%.0f", std::round(s / q) * q);
-  }
-  row.value = vb;
-  row.sigma = sb;
+  ValueSigmaText t = round_value_sigma(value, *sigma);
+  row.value = std::move(t.value);
+  row.sigma = std::move(t.sigma);
   return row;
 }
 
@@ -206,9 +180,10 @@ HtmlReport::HtmlReport(std::string title)
     : title_(std::move(title)), footer_(std::string("streakwright ") + STREAKWRIGHT_VERSION) {}
 
 void HtmlReport::add_heading(const std::string& text, int level) {
-  const int l = level <= 2 ? 2 : 3;
-  const std::string tag = "h" + std::to_string(l);
-  blocks_.push_back("<" + tag + ">" + html_escape(text) + "</" + tag + ">");
+  const std::string tag = level <= 2 ? "h2" : "h3";
+  std::string block = "<";
+  block.append(tag).append(">").append(html_escape(text)).append("</").append(tag).append(">");
+  blocks_.push_back(std::move(block));
 }
 
 void HtmlReport::add_paragraph(const std::string& text) {
@@ -220,12 +195,7 @@ void HtmlReport::add_warning(const std::string& text) {
 }
 
 void HtmlReport::add_quality(const QualitySection& q) {
-  auto num = [](double v) {
-    std::ostringstream o;
-    o.precision(4);
-    o << v;
-    return o.str();
-  };
+  auto num = [](double v) { return format_g(v, kDisplayDigits); };
   if (!q.trusted) {
     std::string h = "<div class=\"banner\"><b>Not trusted.</b> The numbers below are written, but "
                     "these quality checks failed:<ul>";
@@ -262,24 +232,7 @@ void HtmlReport::add_key_value_table(const std::string& title,
 void HtmlReport::add_table(const std::vector<std::string>& header,
                            const std::vector<std::vector<std::string>>& rows,
                            const std::string& title) {
-  std::string h = "<table>";
-  if (!title.empty()) h += "<caption>" + html_escape(title) + "</caption>";
-  if (!header.empty()) {
-    h += "<thead><tr>";
-    for (const auto& c : header) h += "<th>" + html_escape(c) + "</th>";
-    h += "</tr></thead>";
-  }
-  h += "<tbody>";
-  for (const auto& row : rows) {
-    h += "<tr>";
-    const std::size_t n = std::max(header.size(), row.size());
-    for (std::size_t k = 0; k < n; ++k) {
-      h += "<td>" + (k < row.size() ? html_escape(row[k]) : std::string()) + "</td>";
-    }
-    h += "</tr>";
-  }
-  h += "</tbody></table>";
-  blocks_.push_back(std::move(h));
+  add_table_with_links(header, rows, {}, title);
 }
 
 void HtmlReport::add_table_with_links(const std::vector<std::string>& header,

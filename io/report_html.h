@@ -15,6 +15,7 @@
 #include <string>
 #include <vector>
 
+#include "retrieval/format.h"
 #include "retrieval/result.h"
 
 namespace sw {
@@ -27,11 +28,11 @@ struct KeyValueRow {
   std::string unit;
   std::optional<std::string> sigma;  ///< shown as "± sigma" after the value
 
-  /// Formats value (and sigma) with `significant` significant digits; when sigma is given,
-  /// the value is rounded to the decimal place of sigma's second significant digit
-  /// (common practice of quoting uncertainties with two significant digits).
+  /// Formats value with `significant` significant digits; with a sigma, value and sigma by
+  /// sw::round_value_sigma (retrieval/format.h: sigma to two significant digits, the value to
+  /// the same decimal place).
   static KeyValueRow number(const std::string& name, double value, const std::string& unit,
-                            std::optional<double> sigma = std::nullopt, int significant = 4);
+                            std::optional<double> sigma = std::nullopt, int significant = kDisplayDigits);
 };
 
 class HtmlReport {

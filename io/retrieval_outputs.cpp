@@ -10,6 +10,8 @@
 #include "io/report_html.h"
 #include "io/result_io.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
+#include "retrieval/phase_unwrap.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/units.h"
 #include "streakwright_version.h"
@@ -31,28 +33,12 @@ std::vector<double> unwrapped_phase(const std::vector<std::complex<double>>& z, 
   if (!(mx > 0)) return ph;
   auto ok = [&](std::size_t i) { return std::norm(z[i]) >= threshold * mx; };
   ph[imax] = std::arg(z[imax]);
-  for (std::size_t i = imax + 1; i < z.size() && ok(i); ++i) {
-    double d = std::arg(z[i]) - std::arg(z[i - 1]);
-    d -= 2 * units::kPi * std::round(d / (2 * units::kPi));
-    ph[i] = ph[i - 1] + d;
-  }
-  for (std::size_t i = imax; i-- > 0 && ok(i);) {
-    double d = std::arg(z[i]) - std::arg(z[i + 1]);
-    d -= 2 * units::kPi * std::round(d / (2 * units::kPi));
-    ph[i] = ph[i + 1] + d;
-  }
+  for (std::size_t i = imax + 1; i < z.size() && ok(i); ++i) ph[i] = unwrap_next(ph[i - 1], std::arg(z[i]));
+  for (std::size_t i = imax; i-- > 0 && ok(i);) ph[i] = unwrap_next(ph[i + 1], std::arg(z[i]));
   return ph;
 }
 
 namespace {
-
-std::string fmt(double v, int prec = 6) {
-  if (!std::isfinite(v)) return "";
-  std::ostringstream s;
-  s.precision(prec);
-  s << v;
-  return s.str();
-}
 
 }  // namespace
 
@@ -86,7 +72,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   {
     std::ostringstream c;
     c << "time_as,intensity_norm,phase_rad\n";
-    for (std::size_t i = 0; i < t.size(); ++i) c << fmt(t_as[i]) << ',' << fmt(In[i]) << ',' << fmt(tph[i]) << '\n';
+    for (std::size_t i = 0; i < t.size(); ++i) c << format_cell(t_as[i]) << ',' << format_cell(In[i]) << ',' << format_cell(tph[i]) << '\n';
     write_file_atomic(path("xuv_temporal.csv"), c.str());
   }
   const CVec spec = x.spectrum();
@@ -115,7 +101,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
         if (std::isfinite(v)) v -= ref;
     std::ostringstream c;
     c << "photon_energy_eV,spectral_intensity_norm,spectral_phase_rad\n";
-    for (std::size_t j = 0; j < Wph.size(); ++j) c << fmt(Weig[j], 8) << ',' << fmt(Sn[j]) << ',' << fmt(sph[j]) << '\n';
+    for (std::size_t j = 0; j < Wph.size(); ++j) c << format_cell(Weig[j]) << ',' << format_cell(Sn[j]) << ',' << format_cell(sph[j]) << '\n';
     write_file_atomic(path("xuv_spectral.csv"), c.str());
   }
   const IrField& ir = rec.ir;
@@ -124,14 +110,14 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   {
     std::ostringstream c;
     c << "time_fs,vector_potential_au,electric_field_au\n";
-    for (std::size_t i = 0; i < ir.size(); ++i) c << fmt(irt[i]) << ',' << fmt(irA[i]) << ',' << fmt(irE[i]) << '\n';
+    for (std::size_t i = 0; i < ir.size(); ++i) c << format_cell(irt[i]) << ',' << format_cell(irA[i]) << ',' << format_cell(irE[i]) << '\n';
     write_file_atomic(path("ir_field.csv"), c.str());
   }
   {
     std::ostringstream c;
     c << "engine,iteration,trace_error,seconds\n";
     for (const auto& r : out.chain)
-      for (const auto& h : r.history) c << r.engine << ',' << h.iteration << ',' << fmt(h.trace_error) << ',' << fmt(h.seconds) << '\n';
+      for (const auto& h : r.history) c << r.engine << ',' << h.iteration << ',' << format_cell(h.trace_error) << ',' << format_cell(h.seconds) << '\n';
     write_file_atomic(path("convergence.csv"), c.str());
   }
 
@@ -140,7 +126,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   for (std::size_t i = 0; i < dfs.size(); ++i) dfs[i] = units::au_to_fs(pr.delay_au[i]);
   for (std::size_t j = 0; j < eev.size(); ++j) eev[j] = units::au_to_eV(pr.energy_au[j]);
   ComparisonFigureOptions co;
-  co.title = "measured vs retrieved (" + rec.engine + ", " + rec.model + " model), G = " + fmt(rec.trace_error, 3);
+  co.title = "measured vs retrieved (" + rec.engine + ", " + rec.model + " model), G = " + format_g(rec.trace_error, kDisplayDigits);
   co.colorbar_label = "|a|^2 (arb. u.)";
   plot_trace_comparison(pr.intensity, rec.retrieved, dfs, eev, co, path("trace_comparison.png"));
 
@@ -153,8 +139,8 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
     }
   const double pad = 0.25 * (thi - tlo);
   LinePlot lp;
-  lp.title = "XUV pulse: FWHM " + fmt(res.xuv->fwhm_as.value_or(0), 4) + " as (transform limit " +
-             fmt(res.xuv->transform_limited_fwhm_as.value_or(0), 4) + " as)";
+  lp.title = "XUV pulse: FWHM " + format_value_sigma(res.xuv->fwhm_as.value_or(0), res.xuv->fwhm_as_sigma, "as") + " (transform limit " +
+             format_g(res.xuv->transform_limited_fwhm_as.value_or(0), kDisplayDigits) + " as)";
   lp.x_label = "time (as), XUV reference";
   lp.y_label = "intensity (norm.)";
   lp.y2_label = "temporal phase (rad)";
@@ -167,8 +153,8 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   plot_lines(lp, path("xuv_pulse.png"));
 
   LinePlot ls;
-  ls.title = "XUV spectrum: centre " + fmt(res.xuv->center_photon_energy_eV.value_or(0), 5) + " eV, GDD " +
-             fmt(res.xuv->gdd_as2.value_or(0), 4) + " as^2";
+  ls.title = "XUV spectrum: centre " + format_g(res.xuv->center_photon_energy_eV.value_or(0), kDisplayDigits) + " eV, GDD " +
+             format_value_sigma(res.xuv->gdd_as2.value_or(0), res.xuv->gdd_as2_sigma, "as^2");
   ls.x_label = "photon energy (eV)";
   ls.y_label = "spectral intensity (norm.)";
   ls.y2_label = "spectral phase, linear part removed (rad)";
@@ -198,8 +184,8 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   plot_lines(ls, path("xuv_spectrum.png"));
 
   LinePlot li;
-  li.title = "IR streaking field: A0 = " + fmt(res.ir->peak_vector_potential_au.value_or(0), 4) + " a.u., I = " +
-             fmt(res.ir->peak_intensity_Wcm2.value_or(0), 3) + " W/cm^2";
+  li.title = "IR streaking field: A0 = " + format_value_sigma(res.ir->peak_vector_potential_au.value_or(0), res.ir->peak_vector_potential_au_sigma, "a.u.") + ", I = " +
+             format_g(res.ir->peak_intensity_Wcm2.value_or(0), kDisplayDigits) + " W/cm^2";
   li.x_label = "IR time (fs)";
   li.y_label = "vector potential A (a.u.)";
   li.y2_label = "electric field E (a.u.)";
@@ -209,7 +195,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   plot_lines(li, path("ir_field.png"));
 
   LinePlot lc;
-  lc.title = "convergence: trace error G (noise floor " + fmt(rec.noise_floor_trace_error, 3) + ")";
+  lc.title = "convergence: trace error G (noise floor " + format_g(rec.noise_floor_trace_error, kDisplayDigits) + ")";
   lc.x_label = "iteration";
   lc.y_label = "trace error G";
   lc.log_y = true;
@@ -240,7 +226,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
     LinePlot ll;
     ll.title = "photoelectron lines: first moment versus delay, joint fit";
     for (std::size_t k = 1; k < out.line_curves.size(); ++k)
-      ll.title += (k == 1 ? " (" : ", ") + out.line_curves[k].name + " shifted " + fmt(out.line_curves[k].shift_as, 3) + " as";
+      ll.title += (k == 1 ? " (" : ", ") + out.line_curves[k].name + " shifted " + format_g(out.line_curves[k].shift_as, kDisplayDigits) + " as";
     ll.title += ")";
     ll.x_label = "delay (fs)";
     ll.y_label = "first moment - field-free centre (eV)";
@@ -320,9 +306,9 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
     for (const LineEntry& l : res.lines) {
       auto num = [](const std::optional<double>& v, const std::optional<double>& sg) {
         if (!v) return std::string("-");
-        return fmt(*v, 4) + (sg ? " +- " + fmt(*sg, 2) : std::string());
+        return format_value_sigma(*v, sg);
       };
-      lt.push_back({l.gas + " " + l.name + (l.reference ? " (reference)" : ""), fmt(l.ionization_energy_eV, 6),
+      lt.push_back({l.gas + " " + l.name + (l.reference ? " (reference)" : ""), format_g(l.ionization_energy_eV, kDisplayDigits),
                     num(l.relative_strength, l.relative_strength_sigma), num(l.relative_delay_as, l.relative_delay_as_sigma),
                     num(l.clc_correction_as, std::nullopt), num(l.relative_delay_as_corrected, l.relative_delay_as_sigma)});
     }
@@ -334,15 +320,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
                    "common vector potential shifted by each line's delay.");
   }
   std::vector<std::vector<std::string>> settings;
-  for (const Param& p : res.extra) {
-    std::string v;
-    if (auto* d = std::get_if<double>(&p.value)) v = fmt(*d);
-    else if (auto* l = std::get_if<long long>(&p.value)) v = std::to_string(*l);
-    else if (auto* b = std::get_if<bool>(&p.value)) v = *b ? "true" : "false";
-    else if (auto* st = std::get_if<std::string>(&p.value)) v = *st;
-    else v = "(array)";
-    settings.push_back({p.key, v});
-  }
+  for (const Param& p : res.extra) settings.push_back({p.key, param_text(p)});
   rep.add_table({"setting / step", "value"}, settings, "Preprocessing, settings and provenance");
   rep.add_preformatted(rec.full_report());
   rep.add_paragraph("Safety: this report analyses recorded data only. Local laser-safety rules and the facility's procedures for intense lasers, XUV beams and detector high voltage come first.");

@@ -6,37 +6,31 @@
 #include <sstream>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/units.h"
 
 namespace sw {
 namespace {
 
-std::string num(double v) {
-  std::ostringstream s;
-  s.precision(10);
-  s << v;
-  return s.str();
-}
-
 }  // namespace
 
 std::string TofCalibration::validate() const {
   if (!std::isfinite(length_m) || !(length_m > 0))
-    return "calibration.length_m = " + num(length_m) + "; expected a drift length > 0 m";
+    return "calibration.length_m = " + format_g(length_m) + "; expected a drift length > 0 m";
   if (!std::isfinite(t0_ns))
-    return "calibration.t0_ns = " + num(t0_ns) + "; expected a finite time";
+    return "calibration.t0_ns = " + format_g(t0_ns) + "; expected a finite time";
   if (!std::isfinite(energy_offset_eV))
-    return "calibration.energy_offset_eV = " + num(energy_offset_eV) + "; expected a finite energy";
+    return "calibration.energy_offset_eV = " + format_g(energy_offset_eV) + "; expected a finite energy";
   if (energy_count < 0)
     return "calibration.energy_count = " + std::to_string(energy_count) +
            "; expected 0 (as many as time bins) or a positive number of bins";
   if (energy_min_eV && !std::isfinite(*energy_min_eV))
-    return "calibration.energy_min_eV = " + num(*energy_min_eV) + "; expected a finite energy";
+    return "calibration.energy_min_eV = " + format_g(*energy_min_eV) + "; expected a finite energy";
   if (energy_max_eV && !std::isfinite(*energy_max_eV))
-    return "calibration.energy_max_eV = " + num(*energy_max_eV) + "; expected a finite energy";
+    return "calibration.energy_max_eV = " + format_g(*energy_max_eV) + "; expected a finite energy";
   if (energy_min_eV && energy_max_eV && !(*energy_min_eV < *energy_max_eV))
-    return "calibration.energy_min_eV = " + num(*energy_min_eV) +
-           " is not below energy_max_eV = " + num(*energy_max_eV);
+    return "calibration.energy_min_eV = " + format_g(*energy_min_eV) +
+           " is not below energy_max_eV = " + format_g(*energy_max_eV);
   return {};
 }
 
@@ -72,16 +66,16 @@ TofConversion tof_to_energy(const Eigen::MatrixXd& counts, const std::vector<dou
   for (std::size_t k = 0; k < n; ++k) t[k] = tof_ns[order[k]];
   for (std::size_t k = 1; k < n; ++k)
     if (!(t[k] > t[k - 1]))
-      throw input_error(where + ": tof_ns repeats the value " + num(t[k]) +
+      throw input_error(where + ": tof_ns repeats the value " + format_g(t[k]) +
                         "; expected strictly monotonic flight times");
   std::vector<double> edge(n + 1);
   edge[0] = t[0] - 0.5 * (t[1] - t[0]);
   for (std::size_t k = 1; k < n; ++k) edge[k] = 0.5 * (t[k - 1] + t[k]);
   edge[n] = t[n - 1] + 0.5 * (t[n - 1] - t[n - 2]);
   if (!(edge[0] > cal.t0_ns))
-    throw input_error(where + ": the earliest time-of-flight bin (centre " + num(t[0]) +
-                      " ns, lower edge " + num(edge[0]) +
-                      " ns) is not after calibration.t0_ns = " + num(cal.t0_ns) +
+    throw input_error(where + ": the earliest time-of-flight bin (centre " + format_g(t[0]) +
+                      " ns, lower edge " + format_g(edge[0]) +
+                      " ns) is not after calibration.t0_ns = " + format_g(cal.t0_ns) +
                       " ns; expected every bin after time zero (crop the "
                       "spectrum or correct t0_ns)");
   // Energy interval of each time bin: [E(edge[k+1]), E(edge[k])].
@@ -90,7 +84,7 @@ TofConversion tof_to_energy(const Eigen::MatrixXd& counts, const std::vector<dou
   const double lo = cal.energy_min_eV.value_or(e_edge[n]);
   const double hi = cal.energy_max_eV.value_or(e_edge[0]);
   if (!(hi > lo))
-    throw input_error(where + ": the calibration energy window [" + num(lo) + ", " + num(hi) +
+    throw input_error(where + ": the calibration energy window [" + format_g(lo) + ", " + format_g(hi) +
                       "] eV is empty; expected energy_min_eV < energy_max_eV");
   const int m = cal.energy_count > 0 ? cal.energy_count : static_cast<int>(n);
   const double w = (hi - lo) / m;

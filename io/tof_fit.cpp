@@ -10,17 +10,11 @@
 #include <Eigen/Dense>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/units.h"
 
 namespace sw {
 namespace {
-
-std::string num(double v) {
-  std::ostringstream s;
-  s.precision(10);
-  s << v;
-  return s.str();
-}
 
 /// A detected peak: its window of time bins [lo, hi] with weights (background subtracted).
 struct PeakWindow {
@@ -200,9 +194,9 @@ int allowed_order(double q_real, int step) {
 
 std::string TofFitOptions::validate() const {
   if (!(min_peak_fraction > 0 && min_peak_fraction < 1))
-    return "min_peak_fraction = " + num(min_peak_fraction) + "; expected a fraction in (0, 1)";
+    return "min_peak_fraction = " + format_g(min_peak_fraction) + "; expected a fraction in (0, 1)";
   if (!(window_fraction > 0 && window_fraction < 1))
-    return "window_fraction = " + num(window_fraction) + "; expected a fraction in (0, 1)";
+    return "window_fraction = " + format_g(window_fraction) + "; expected a fraction in (0, 1)";
   if (harmonic_step != 1 && harmonic_step != 2)
     return "harmonic_step = " + std::to_string(harmonic_step) +
            "; expected 2 (odd harmonics) or 1 (every order)";
@@ -229,17 +223,17 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
     throw input_error(where + ": " + std::to_string(times_ns.size()) +
                       " time bins; expected a spectrum of at least 8 bins");
   if (!(ionization_energy_eV > 0))
-    throw input_error(where + ": ionization energy " + num(ionization_energy_eV) +
+    throw input_error(where + ": ionization energy " + format_g(ionization_energy_eV) +
                       " eV; expected > 0");
   if (!(ir_wavelength_nm > 0))
-    throw input_error(where + ": IR wavelength " + num(ir_wavelength_nm) + " nm; expected > 0");
+    throw input_error(where + ": IR wavelength " + format_g(ir_wavelength_nm) + " nm; expected > 0");
   for (std::size_t i = 0; i < counts.size(); ++i) {
     if (!std::isfinite(counts[i]) || !std::isfinite(times_ns[i]))
       throw input_error(where + ": bin " + std::to_string(i) + " is not finite (time " +
-                        num(times_ns[i]) + " ns, counts " + num(counts[i]) + ")");
+                        format_g(times_ns[i]) + " ns, counts " + format_g(counts[i]) + ")");
     if (i > 0 && !(times_ns[i] > times_ns[i - 1]))
       throw input_error(where + ": flight times are not strictly ascending at bin " +
-                        std::to_string(i) + " (" + num(times_ns[i - 1]) + ", " + num(times_ns[i]) +
+                        std::to_string(i) + " (" + format_g(times_ns[i - 1]) + ", " + format_g(times_ns[i]) +
                         " ns)");
   }
   const double hw = units::kPlanckC_eV_nm / ir_wavelength_nm;  // hbar omega (eV)
@@ -256,8 +250,8 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
   const std::vector<PeakWindow> found = find_peaks(times_ns, counts, options);
   for (const PeakWindow& p : found)
     if (!(times_ns[p.lo] > initial.t0_ns))
-      throw input_error(where + ": a peak at " + num(p.mean_time_ns) +
-                        " ns starts before the initial t0_ns = " + num(initial.t0_ns) +
+      throw input_error(where + ": a peak at " + format_g(p.mean_time_ns) +
+                        " ns starts before the initial t0_ns = " + format_g(initial.t0_ns) +
                         " ns; expected a guess of t0 before every peak");
   prob.fit_offset = options.fit_energy_offset;
   prob.fixed_offset = initial.energy_offset_eV;
@@ -354,7 +348,7 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
   }
   if (!best.valid)
     throw input_error(where + ": found " + std::to_string(found.size()) +
-                      " harmonic peak(s) above " + num(100 * options.min_peak_fraction) +
+                      " harmonic peak(s) above " + format_g(100 * options.min_peak_fraction) +
                       " % of the tallest; expected at least " + std::to_string(np + 1) +
                       " peaks of distinct orders after t0 to fit " + std::to_string(np) +
                       " parameters");
@@ -392,9 +386,9 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
   msg.precision(4);
   msg << "fitted L" << (options.fit_energy_offset ? ", t0 and E_offset" : " and t0") << " to " << m
       << " harmonic peaks (orders " << out.peaks.back().order << ".." << out.peaks.front().order
-      << ", hbar omega " << hw << " eV): L = " << out.calibration.length_m << " +- "
-      << out.length_m_sigma << " m, t0 = " << out.calibration.t0_ns << " +- " << out.t0_ns_sigma
-      << " ns, rms residual " << out.rms_residual_eV << " eV";
+      << ", hbar omega " << hw << " eV): L = " << format_value_sigma(out.calibration.length_m, out.length_m_sigma, "m")
+      << ", t0 = " << format_value_sigma(out.calibration.t0_ns, out.t0_ns_sigma, "ns")
+      << ", rms residual " << out.rms_residual_eV << " eV";
   if (!out.converged) msg << "; NOT CONVERGED after " << out.iterations << " iterations";
   if (best_shift != 0)
     msg << "; the initial guess's order assignment was shifted by "

@@ -22,6 +22,7 @@
 #include "io/tof_calibration.h"
 #include "io/tof_fit.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/gas.h"
 #include "retrieval/units.h"
 
@@ -35,13 +36,6 @@ std::string lower(std::string s) {
   std::transform(s.begin(), s.end(), s.begin(),
                  [](unsigned char c) { return static_cast<char>(std::tolower(c)); });
   return s;
-}
-
-std::string num(double v) {
-  std::ostringstream s;
-  s.precision(10);
-  s << v;
-  return s.str();
 }
 
 const char* type_name(const json& v) {
@@ -323,9 +317,9 @@ class Sidecar {
       const double count = number(v["count"], key + ".count");
       if (step == 0) fail(key + ".step", "is 0; expected a non-zero step");
       if (count < 1 || count != std::floor(count))
-        fail(key + ".count", "is " + num(count) + "; expected a positive whole number");
+        fail(key + ".count", "is " + format_g(count) + "; expected a positive whole number");
       if (count > static_cast<double>(limits::kMaxAxisCount))
-        fail(key + ".count", "is " + num(count) + ", above the limit of " +
+        fail(key + ".count", "is " + format_g(count) + ", above the limit of " +
                                  std::to_string(limits::kMaxAxisCount) +
                                  " values per axis (docs/file_formats.md, Limits)");
       values.resize(static_cast<std::size_t>(count));
@@ -340,7 +334,7 @@ class Sidecar {
       for (std::size_t i = 1; i < values.size(); ++i)
         if (!(up ? values[i] > values[i - 1] : values[i] < values[i - 1]))
           fail(key, "is not strictly monotonic at index " + std::to_string(i) + " (" +
-                        num(values[i - 1]) + " then " + num(values[i]) +
+                        format_g(values[i - 1]) + " then " + format_g(values[i]) +
                         "); expected strictly increasing or strictly decreasing values");
     }
     return values;
@@ -571,16 +565,16 @@ void check_axis_range(const Sidecar& sc, const std::string& key, const std::vect
                       double lo, double hi, double min_step, double max_span, const char* unit) {
   for (std::size_t i = 0; i < v.size(); ++i)
     if (!(v[i] >= lo && v[i] <= hi))
-      sc.fail(key, "has the value " + num(v[i]) + " " + unit + " at index " + std::to_string(i) +
-                       "; expected values in [" + num(lo) + ", " + num(hi) + "] " + unit);
+      sc.fail(key, "has the value " + format_g(v[i]) + " " + unit + " at index " + std::to_string(i) +
+                       "; expected values in [" + format_g(lo) + ", " + format_g(hi) + "] " + unit);
   for (std::size_t i = 1; i < v.size(); ++i)
     if (std::abs(v[i] - v[i - 1]) < min_step)
-      sc.fail(key, "has a step of " + num(std::abs(v[i] - v[i - 1])) + " " + unit +
+      sc.fail(key, "has a step of " + format_g(std::abs(v[i] - v[i - 1])) + " " + unit +
                        " at index " + std::to_string(i) + "; expected steps of at least " +
-                       num(min_step) + " " + unit);
+                       format_g(min_step) + " " + unit);
   if (max_span > 0 && v.size() >= 2 && std::abs(v.back() - v.front()) > max_span)
-    sc.fail(key, "spans " + num(std::abs(v.back() - v.front())) + " " + unit +
-                     "; expected at most " + num(max_span) + " " + unit +
+    sc.fail(key, "spans " + format_g(std::abs(v.back() - v.front())) + " " + unit +
+                     "; expected at most " + format_g(max_span) + " " + unit +
                      " (docs/file_formats.md, Limits)");
 }
 
@@ -661,7 +655,7 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
   {
     const json& v = sc.at("streakwright");
     if (!v.is_number() || v.get<double>() != 1.0)
-      sc.fail("streakwright", (v.is_number() ? "is version " + num(v.get<double>()) +
+      sc.fail("streakwright", (v.is_number() ? "is version " + format_g(v.get<double>()) +
                                                    ", which this reader does not support"
                                              : std::string("is ") + type_name(v)) +
                                   "; expected 1");
@@ -750,7 +744,7 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
       } else if (k == "harmonic_step") {
         const double n = sc.number(*it, f);
         if (n != 1 && n != 2)
-          sc.fail(f, "is " + num(n) +
+          sc.fail(f, "is " + format_g(n) +
                          "; expected 1 (every order: harmonics and RABBITT sidebands) or 2 "
                          "(odd harmonics only)");
         fit_request.harmonic_step = static_cast<int>(n);
@@ -759,33 +753,33 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
       } else if (k == "min_peak_fraction") {
         const double v = sc.number(*it, f);
         if (!(v > 0 && v < 1))
-          sc.fail(f, "is " + num(v) + "; expected a fraction of the tallest peak in (0, 1)");
+          sc.fail(f, "is " + format_g(v) + "; expected a fraction of the tallest peak in (0, 1)");
         fit_request.min_peak_fraction = v;
       } else if (k == "length_m") {
         cal.length_m = sc.number(*it, f);
         if (!(cal.length_m > 0 && cal.length_m <= 100))
-          sc.fail(f, "is " + num(cal.length_m) + "; expected a flight length > 0 and <= 100 m");
+          sc.fail(f, "is " + format_g(cal.length_m) + "; expected a flight length > 0 and <= 100 m");
       } else if (k == "t0_ns") {
         cal.t0_ns = sc.number(*it, f);
         if (!(std::abs(cal.t0_ns) <= ranges::kMaxTofNs))
-          sc.fail(f, "is " + num(cal.t0_ns) + "; expected |t0| <= " + num(ranges::kMaxTofNs) + " ns");
+          sc.fail(f, "is " + format_g(cal.t0_ns) + "; expected |t0| <= " + format_g(ranges::kMaxTofNs) + " ns");
       } else if (k == "energy_offset_eV") {
         cal.energy_offset_eV = sc.number(*it, f);
         if (!(std::abs(cal.energy_offset_eV) <= ranges::kMaxEnergyEV))
-          sc.fail(f, "is " + num(cal.energy_offset_eV) + "; expected |offset| <= " +
-                         num(ranges::kMaxEnergyEV) + " eV");
+          sc.fail(f, "is " + format_g(cal.energy_offset_eV) + "; expected |offset| <= " +
+                         format_g(ranges::kMaxEnergyEV) + " eV");
       }
       else if (k == "energy_count") {
         const double n = sc.number(*it, f);
         if (n < 1 || n != std::floor(n) || n > static_cast<double>(limits::kMaxAxisCount))
-          sc.fail(f, "is " + num(n) + "; expected a whole number of energy bins in [1, " +
+          sc.fail(f, "is " + format_g(n) + "; expected a whole number of energy bins in [1, " +
                          std::to_string(limits::kMaxAxisCount) + "]");
         cal.energy_count = static_cast<int>(n);
       } else if (k == "energy_min_eV" || k == "energy_max_eV") {
         const double e = sc.number(*it, f);
         if (!(e >= ranges::kMinEnergyEV && e <= ranges::kMaxEnergyEV))
-          sc.fail(f, "is " + num(e) + "; expected an energy in [" + num(ranges::kMinEnergyEV) +
-                         ", " + num(ranges::kMaxEnergyEV) + "] eV");
+          sc.fail(f, "is " + format_g(e) + "; expected an energy in [" + format_g(ranges::kMinEnergyEV) +
+                         ", " + format_g(ranges::kMaxEnergyEV) + "] eV");
         (k == "energy_min_eV" ? cal.energy_min_eV : cal.energy_max_eV) = e;
       }
       else
@@ -826,17 +820,17 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
     meta.ir_wavelength_nm = sc.number(sc.at("ir_wavelength_nm"), "ir_wavelength_nm");
     if (!(meta.ir_wavelength_nm >= ranges::kMinIrWavelengthNm &&
           meta.ir_wavelength_nm <= ranges::kMaxIrWavelengthNm))
-      sc.fail("ir_wavelength_nm", "is " + num(meta.ir_wavelength_nm) + "; expected a wavelength in [" +
-                                      num(ranges::kMinIrWavelengthNm) + ", " +
-                                      num(ranges::kMaxIrWavelengthNm) + "] nm");
+      sc.fail("ir_wavelength_nm", "is " + format_g(meta.ir_wavelength_nm) + "; expected a wavelength in [" +
+                                      format_g(ranges::kMinIrWavelengthNm) + ", " +
+                                      format_g(ranges::kMaxIrWavelengthNm) + "] nm");
   }
   if (overrides.gas) meta.gas = *overrides.gas;
   if (overrides.ir_wavelength_nm) {
     const double w = *overrides.ir_wavelength_nm;
     if (!(w >= ranges::kMinIrWavelengthNm && w <= ranges::kMaxIrWavelengthNm))
-      throw input_error("the IR wavelength override for '" + where + "' is " + num(w) +
-                        " nm; expected a wavelength in [" + num(ranges::kMinIrWavelengthNm) +
-                        ", " + num(ranges::kMaxIrWavelengthNm) + "] nm");
+      throw input_error("the IR wavelength override for '" + where + "' is " + format_g(w) +
+                        " nm; expected a wavelength in [" + format_g(ranges::kMinIrWavelengthNm) +
+                        ", " + format_g(ranges::kMaxIrWavelengthNm) + "] nm");
     meta.ir_wavelength_nm = w;
   }
   if (overrides.kind) meta.kind = *overrides.kind;
@@ -864,10 +858,10 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
   if (sc.has("scale")) {
     meta.scale = sc.number(sc.at("scale"), "scale");
     if (!(meta.scale > 0))
-      sc.fail("scale", "is " + num(meta.scale) + "; expected counts per image unit > 0");
+      sc.fail("scale", "is " + format_g(meta.scale) + "; expected counts per image unit > 0");
     if (!(meta.scale >= ranges::kMinScale && meta.scale <= ranges::kMaxScale))
-      sc.fail("scale", "is " + num(meta.scale) + "; expected counts per image unit in [" +
-                           num(ranges::kMinScale) + ", " + num(ranges::kMaxScale) + "]");
+      sc.fail("scale", "is " + format_g(meta.scale) + "; expected counts per image unit in [" +
+                           format_g(ranges::kMinScale) + ", " + format_g(ranges::kMaxScale) + "]");
   }
   if (sc.has("background")) {
     const json& b = sc.at("background");
@@ -879,16 +873,16 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
     } else {
       const double v = sc.number(b, "background");
       if (v < 0 || v > ranges::kMaxCounts)
-        sc.fail("background", "is " + num(v) + "; expected counts per bin in [0, " +
-                                  num(ranges::kMaxCounts) + "] or \"auto\"");
+        sc.fail("background", "is " + format_g(v) + "; expected counts per bin in [0, " +
+                                  format_g(ranges::kMaxCounts) + "] or \"auto\"");
       meta.background = v;
     }
   }
   if (sc.has("energy_resolution_eV")) {
     const double v = sc.number(sc.at("energy_resolution_eV"), "energy_resolution_eV");
     if (v < 0 || v > ranges::kMaxResolutionEV)
-      sc.fail("energy_resolution_eV", "is " + num(v) + "; expected a FWHM in [0, " +
-                                          num(ranges::kMaxResolutionEV) + "] eV");
+      sc.fail("energy_resolution_eV", "is " + format_g(v) + "; expected a FWHM in [0, " +
+                                          format_g(ranges::kMaxResolutionEV) + "] eV");
     meta.energy_resolution_eV = v;
   }
   if (sc.has("notes")) {
@@ -908,12 +902,12 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
     const double lo = sc.number(w[0], "energy_window_eV[0]");
     const double hi = sc.number(w[1], "energy_window_eV[1]");
     if (!(lo < hi))
-      sc.fail("energy_window_eV", "is [" + num(lo) + ", " + num(hi) + "]; expected lo < hi (eV)");
+      sc.fail("energy_window_eV", "is [" + format_g(lo) + ", " + format_g(hi) + "]; expected lo < hi (eV)");
     meta.energy_window_eV = {lo, hi};
   }
   if (sc.has("saturation_counts")) {
     const double v = sc.number(sc.at("saturation_counts"), "saturation_counts");
-    if (!(v > 0)) sc.fail("saturation_counts", "is " + num(v) + "; expected counts per bin > 0");
+    if (!(v > 0)) sc.fail("saturation_counts", "is " + format_g(v) + "; expected counts per bin > 0");
     meta.saturation_counts = v;
   }
   if (sc.has("lines")) {
@@ -941,12 +935,12 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
           sc.fail(f + ".ionization_energy_eV", "is a string other than \"auto\"; expected eV or \"auto\"");
       } else {
         const double v = sc.number(ie, f + ".ionization_energy_eV");
-        if (!(v > 0)) sc.fail(f + ".ionization_energy_eV", "is " + num(v) + "; expected > 0 eV");
+        if (!(v > 0)) sc.fail(f + ".ionization_energy_eV", "is " + format_g(v) + "; expected > 0 eV");
         d.ionization_energy_eV = v;
       }
       if (l.contains("relative_strength")) {
         const double v = sc.number(l.at("relative_strength"), f + ".relative_strength");
-        if (!(v > 0)) sc.fail(f + ".relative_strength", "is " + num(v) + "; expected > 0");
+        if (!(v > 0)) sc.fail(f + ".relative_strength", "is " + format_g(v) + "; expected > 0");
         d.relative_strength = v;
       }
       meta.lines.push_back(d);
@@ -985,7 +979,7 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
         s << "the data file '" << shown << "' has "
           << (std::isnan(c)   ? "NaN"
               : std::isinf(c) ? "an infinite value"
-                              : "a negative value (" + num(c) + ")")
+                              : "a negative value (" + format_g(c) + ")")
           << " at row " << i << ", column " << j << " (0-based); expected finite counts >= 0";
         sc.fail("image", s.str());
       }
@@ -998,9 +992,9 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
   // and normal (no overflow to inf, no underflow to denormals and 0).
   if (const double peak = m.maxCoeff() * meta.scale;
       !(peak >= ranges::kMinPeakCounts && peak <= ranges::kMaxCounts))
-    sc.fail("image", "the largest count of '" + shown + "' times scale is " + num(peak) +
-                         "; expected it in [" + num(ranges::kMinPeakCounts) + ", " +
-                         num(ranges::kMaxCounts) +
+    sc.fail("image", "the largest count of '" + shown + "' times scale is " + format_g(peak) +
+                         "; expected it in [" + format_g(ranges::kMinPeakCounts) + ", " +
+                         format_g(ranges::kMaxCounts) +
                          "] counts (set 'scale' to the counts per image unit)");
   if (meta.scale != 1.0) m *= meta.scale;
 
@@ -1029,8 +1023,8 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
       } catch (const Error& e) {
         sc.fail("calibration.fit",
                 "the harmonic fit of the time-of-flight calibration failed (" +
-                    std::string(e.what()) + "; gas " + meta.gas + ", Ip " + num(fit_ip_eV) +
-                    " eV, ir_wavelength_nm " + num(meta.ir_wavelength_nm) + ", harmonic_step " +
+                    std::string(e.what()) + "; gas " + meta.gas + ", Ip " + format_g(fit_ip_eV) +
+                    " eV, ir_wavelength_nm " + format_g(meta.ir_wavelength_nm) + ", harmonic_step " +
                     std::to_string(fo.harmonic_step) +
                     "); give a fixed calibration (leave 'fit' out), or check gas, "
                     "ir_wavelength_nm, the initial length_m / t0_ns and harmonic_step");

@@ -13,6 +13,7 @@
 #include "io/csv.h"
 #include "io/result_io.h"
 #include "io/trace_reader.h"
+#include "retrieval/enum_names.h"
 #include "retrieval/error.h"
 #include "retrieval/units.h"
 
@@ -101,29 +102,6 @@ std::string yaml_text(const ojson& root, const std::string& where) {
 }
 
 }  // namespace
-
-const char* to_string(TraceFormat f) {
-  switch (f) {
-    case TraceFormat::kPng16:
-      return "png16";
-    case TraceFormat::kTiff:
-      return "tiff";
-    default:
-      return "csv";
-  }
-}
-
-bool parse_trace_format(const std::string& s, TraceFormat* out) {
-  if (s == "png16")
-    *out = TraceFormat::kPng16;
-  else if (s == "tiff")
-    *out = TraceFormat::kTiff;
-  else if (s == "csv")
-    *out = TraceFormat::kCsv;
-  else
-    return false;
-  return true;
-}
 
 const char* to_string(TraceLayout l) {
   return l == TraceLayout::kEnergyRows ? "energy_rows" : "delay_rows";

@@ -27,12 +27,6 @@
 
 namespace sw {
 
-enum class TraceFormat { kPng16, kTiff, kCsv };
-/// "png16", "tiff", "csv".
-const char* to_string(TraceFormat f);
-/// Parses the names above; returns false on anything else.
-bool parse_trace_format(const std::string& s, TraceFormat* out);
-
 /// Orientation of the data image in the file.
 enum class TraceLayout { kDelayRows, kEnergyRows };
 /// "delay_rows", "energy_rows".

@@ -3,7 +3,9 @@
 #include <cmath>
 #include <sstream>
 
+#include "retrieval/enum_names.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/units.h"
 
 namespace sw {
@@ -27,11 +29,6 @@ constexpr double kBernoulli[10] = {1.0 / 6.0,       -1.0 / 30.0,      1.0 / 42.0
 
 constexpr double kShiftTarget = 20.0;
 
-std::string fmt(double v) {
-  std::ostringstream os;
-  os << v;
-  return os.str();
-}
 
 }  // namespace
 
@@ -49,7 +46,7 @@ std::complex<double> log_gamma(std::complex<double> z) {
 
 std::complex<double> log_gamma_stirling(std::complex<double> z) {
   if (!(z.real() > 0.0))
-    throw usage_error("log_gamma_stirling: Re z = " + fmt(z.real()) +
+    throw usage_error("log_gamma_stirling: Re z = " + format_g(z.real()) +
                       " is invalid: the Stirling evaluation needs Re z > 0.");
   cplx shift = 0.0;
   while (z.real() < kShiftTarget) {
@@ -67,7 +64,7 @@ std::complex<double> log_gamma_stirling(std::complex<double> z) {
 
 std::complex<double> digamma(std::complex<double> z) {
   if (!(z.real() > 0.0))
-    throw usage_error("digamma: Re z = " + fmt(z.real()) + " is invalid: it must be > 0.");
+    throw usage_error("digamma: Re z = " + format_g(z.real()) + " is invalid: it must be > 0.");
   cplx shift = 0.0;
   while (z.real() < kShiftTarget) {
     shift += 1.0 / z;
@@ -93,8 +90,8 @@ double coulomb_wigner_delay_derivative_au(int l, double kinetic_energy_au, doubl
 
 double continuum_continuum_phase(double k, double kappa, double Z) {
   if (!(k > 0.0) || !(kappa > 0.0) || k == kappa)
-    throw usage_error("continuum_continuum_phase: momenta k = " + fmt(k) + ", kappa = " +
-                      fmt(kappa) + " are invalid: both must be > 0 a.u. and differ.");
+    throw usage_error("continuum_continuum_phase: momenta k = " + format_g(k) + ", kappa = " +
+                      format_g(kappa) + " are invalid: both must be > 0 a.u. and differ.");
   const double eta = Z * (1.0 / kappa - 1.0 / k);
   double phase = Z / kappa * std::log(2.0 * kappa) - Z / k * std::log(2.0 * k);
   phase += log_gamma(cplx(2.0, eta)).imag();
@@ -108,8 +105,8 @@ double continuum_continuum_phase(double k, double kappa, double Z) {
 double continuum_continuum_delay_au(double W, double omega, double Z) {
   if (!(omega > 0.0) || !(W > omega))
     throw usage_error("continuum_continuum_delay_au: sideband kinetic energy " +
-                      fmt(units::au_to_eV(W)) + " eV must exceed the IR photon energy " +
-                      fmt(units::au_to_eV(omega)) +
+                      format_g(units::au_to_eV(W)) + " eV must exceed the IR photon energy " +
+                      format_g(units::au_to_eV(omega)) +
                       " eV (both intermediate states must be in the continuum).");
   const double k = std::sqrt(2.0 * W);
   const double kp = std::sqrt(2.0 * (W + omega)), km = std::sqrt(2.0 * (W - omega));
@@ -120,32 +117,26 @@ double continuum_continuum_delay_au(double W, double omega, double Z) {
 double coulomb_wigner_delay_au(int l, double W, double omega, double Z) {
   if (!(omega > 0.0) || !(W > omega))
     throw usage_error("coulomb_wigner_delay_au: sideband kinetic energy " +
-                      fmt(units::au_to_eV(W)) + " eV must exceed the IR photon energy " +
-                      fmt(units::au_to_eV(omega)) + " eV.");
+                      format_g(units::au_to_eV(W)) + " eV must exceed the IR photon energy " +
+                      format_g(units::au_to_eV(omega)) + " eV.");
   const double kp = std::sqrt(2.0 * (W + omega)), km = std::sqrt(2.0 * (W - omega));
   return (coulomb_phase(l, kp, Z) - coulomb_phase(l, km, Z)) / (2.0 * omega);
 }
 
-const char* to_string(AtomicDelayMode m) { return m == AtomicDelayMode::kAuto ? "auto" : "none"; }
+constexpr EnumNames<AtomicDelayMode, 2> kAtomicDelayModeNames{{{
+    {AtomicDelayMode::kAuto, "auto"},
+    {AtomicDelayMode::kNone, "none"}}}};
 
-bool parse_atomic_delay_mode(const std::string& s, AtomicDelayMode* out) {
-  if (s == "auto") {
-    *out = AtomicDelayMode::kAuto;
-    return true;
-  }
-  if (s == "none") {
-    *out = AtomicDelayMode::kNone;
-    return true;
-  }
-  return false;
-}
+const char* to_string(AtomicDelayMode v) { return kAtomicDelayModeNames.name(v); }
+
+bool parse_atomic_delay_mode(const std::string& s, AtomicDelayMode* out) { return kAtomicDelayModeNames.parse(s, out); }
 
 std::string AtomicDelayOptions::validate() const {
   if (channel_l < -1 || channel_l > 6)
     return "channel_l = " + std::to_string(channel_l) +
            " is invalid: it must be -1 (automatic) or an angular momentum 0..6.";
   if (!(charge > 0.0) || !std::isfinite(charge))
-    return "charge = " + fmt(charge) + " is invalid: it must be a finite ion charge > 0.";
+    return "charge = " + format_g(charge) + " is invalid: it must be a finite ion charge > 0.";
   return {};
 }
 

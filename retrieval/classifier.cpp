@@ -9,6 +9,7 @@
 #include <Eigen/Dense>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/preprocess.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/units.h"
@@ -17,15 +18,9 @@ namespace sw {
 
 namespace {
 
-std::string num(double v, int precision = 3) {
-  std::ostringstream os;
-  os.precision(precision);
-  os << v;
-  return os.str();
-}
 
 std::string bad(const char* field, double value, const std::string& constraint) {
-  return std::string(field) + " = " + num(value, 6) + " is invalid: it must be " + constraint + ".";
+  return std::string(field) + " = " + format_g(value) + " is invalid: it must be " + constraint + ".";
 }
 
 double median(std::vector<double> v) {
@@ -55,7 +50,7 @@ SpectralEvidence spectral_evidence(const Trace& t, double T, double bg, int max_
   int K = 0;
   while (K < max_lags && (K + 1) * 0.5 * T + 0.125 * T < nyquist_lag) ++K;
   if (K < 1) {
-    ev.note = "the energy step (" + num(units::au_to_eV(step)) +
+    ev.note = "the energy step (" + format_g(units::au_to_eV(step)) +
               " eV) is too coarse to resolve fringes of period 2 hbar omega";
     return ev;
   }
@@ -208,7 +203,7 @@ std::string ClassifierOptions::validate() const {
     return bad("ir_wavelength_nm", ir_wavelength_nm, "0 (from the trace) or a wavelength > 0 nm");
   if (!(isolated_max_satellite_ratio > 0.0 && isolated_max_satellite_ratio < satellite_max_ratio))
     return bad("isolated_max_satellite_ratio", isolated_max_satellite_ratio,
-               "in (0, satellite_max_ratio = " + num(satellite_max_ratio) + ")");
+               "in (0, satellite_max_ratio = " + format_g(satellite_max_ratio) + ")");
   if (!(satellite_max_ratio <= 1.0))
     return bad("satellite_max_ratio", satellite_max_ratio, "in (isolated_max_satellite_ratio, 1]");
   if (train_min_comparable_bursts < 2)
@@ -219,7 +214,7 @@ std::string ClassifierOptions::validate() const {
     return bad("delay_train_min_share", delay_train_min_share, "in (0, 1)");
   if (!(delay_streaking_max_share > 0.0 && delay_streaking_max_share < delay_train_min_share))
     return bad("delay_streaking_max_share", delay_streaking_max_share,
-               "in (0, delay_train_min_share = " + num(delay_train_min_share) + ")");
+               "in (0, delay_train_min_share = " + format_g(delay_train_min_share) + ")");
   if (!(min_total_counts > 0.0)) return bad("min_total_counts", min_total_counts, "> 0");
   if (!(retrieval_max_trace_error_ratio > 1.0))
     return bad("retrieval_max_trace_error_ratio", retrieval_max_trace_error_ratio, "> 1");
@@ -382,7 +377,7 @@ VerdictSection classify(const Trace& raw, const ClassifierOptions& opt,
     if (trusted)
       retrieval_class = rc;
     else
-      untrusted_note = "the reconstruction (" + rec->engine + ", G = " + num(ratio) +
+      untrusted_note = "the reconstruction (" + rec->engine + ", G = " + format_g(ratio) +
                        " x the noise floor) did not explain the data and is not used";
   }
   // The satellite ratio reported: the deciding reconstruction's, else the spectral estimate
@@ -398,19 +393,19 @@ VerdictSection classify(const Trace& raw, const ClassifierOptions& opt,
   auto describe_spectrum = [&]() {
     std::ostringstream os;
     if (!se.available) return std::string("spectral fringes unavailable (") + se.note + ")";
-    os << "spectral fringe contrast r1 = " << num(se.r[0]);
-    if (se.r.size() > 1) os << ", r2 = " << num(se.r[1]);
-    os << " (effective burst count " << num(se.effective_bursts) << ")";
+    os << "spectral fringe contrast r1 = " << format_g(se.r[0]);
+    if (se.r.size() > 1) os << ", r2 = " << format_g(se.r[1]);
+    os << " (effective burst count " << format_g(se.effective_bursts) << ")";
     if (spectral_class == PulseClass::kTrain && se.r.size() > 1 &&
         se.r[1] >= opt.comb_min_period_contrast)
       os << ", a harmonic comb";
     else if (spectral_class)
-      os << ", satellite ratio estimate " << num(100.0 * sat_spec) << " %";
+      os << ", satellite ratio estimate " << format_g(100.0 * sat_spec) << " %";
     return os.str();
   };
   auto describe_delay = [&]() {
     if (!de.available) return std::string("delay oscillation unavailable (") + de.note + ")";
-    return "2 omega share of the delay oscillation " + num(de.share) +
+    return "2 omega share of the delay oscillation " + format_g(de.share) +
            (dk == DelayKind::kTrainLike       ? " (train-like)"
             : dk == DelayKind::kStreakingLike ? " (streaking-like)"
                                               : " (ambiguous)");
@@ -418,15 +413,15 @@ VerdictSection classify(const Trace& raw, const ClassifierOptions& opt,
 
   if (total < opt.min_total_counts) {
     v.pulse_class = PulseClass::kUndetermined;
-    why << "signal too weak: " << num(total) << " counts in the trace, below "
-        << num(opt.min_total_counts);
+    why << "signal too weak: " << format_g(total) << " counts in the trace, below "
+        << format_g(opt.min_total_counts);
   } else if (retrieval_class) {
     const PulseClass R = *retrieval_class;
     const bool spec_contra = spectral_class && contradicts(R, *spectral_class);
     const bool delay_contra = (R == PulseClass::kIsolated && delay_contradicts_isolated) ||
                               (R == PulseClass::kTrain && delay_contradicts_train);
     std::ostringstream rs;
-    rs << "reconstruction: largest satellite " << num(100.0 * *v.satellite_intensity_ratio)
+    rs << "reconstruction: largest satellite " << format_g(100.0 * *v.satellite_intensity_ratio)
        << " % of the main burst, " << rec->engine;
     if (spec_contra || delay_contra) {
       v.pulse_class = PulseClass::kUndetermined;

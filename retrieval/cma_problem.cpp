@@ -9,7 +9,9 @@
 
 #include <Eigen/Core>
 
+#include "retrieval/cma_kernels.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/forward_model.h"
 #include "retrieval/hot_loop.h"
 #include "retrieval/units.h"
@@ -49,65 +51,10 @@ int auto_momentum_bands(double p_lo, double p_hi, double p0) {
 
 namespace {
 
-std::string num(double x) {
-  std::ostringstream s;
-  s << x;
-  return s.str();
-}
+std::string num(double x) { return format_g(x); }
 
-// r2 = |S|^2 per bin and the error sums sum I M, sum M^2 with M = dt^2 r2.
-SW_HOT_LOOP void moduli_and_sums(const double* S, const double* I, double* r2, std::size_t n,
-                                 double dt2, double* im_out, double* mm_out) {
-  double im = 0.0, mm = 0.0;
-#pragma omp simd reduction(+ : im, mm)
-  for (std::size_t q = 0; q < n; ++q) {
-    r2[q] = S[2 * q] * S[2 * q] + S[2 * q + 1] * S[2 * q + 1];
-    const double M = dt2 * r2[q];
-    im += I[q] * M;
-    mm += M * M;
-  }
-  *im_out += im;
-  *mm_out += mm;
-}
-
-// The data projection of one segment, fused with the error sums (a = target amplitude
-// sqrt(max(I, 0)) / dt, raw units; M = dt^2 |S|^2 the model intensity):
-//   Poisson = false: the exact modulus replacement S <- a S / |S| (a zero bin stays zero);
-//   Poisson = true:  |S| <- |S| (1 + I / M) / 2 with the measured I taken as it is (negative
-//                    after a background subtraction: clipping it at 0 would bias the weak bins
-//                    up), the factor kept in [0, 2 a / |S| + 1/2].
-template <bool Poisson>
-SW_HOT_LOOP void projection_kernel(double* S, const double* I, const double* a, std::size_t n,
-                                   double dt2, double* im_out, double* mm_out) {
-  double im = 0.0, mm = 0.0;
-#pragma omp simd reduction(+ : im, mm)
-  for (std::size_t q = 0; q < n; ++q) {
-    const double re = S[2 * q], iv = S[2 * q + 1];
-    const double r2 = re * re + iv * iv;
-    const double M = dt2 * r2;
-    im += I[q] * M;
-    mm += M * M;
-    const double rs = detail::rsqrt_newton(r2 + 1e-300);
-    double f;
-    if constexpr (Poisson)
-      f = std::clamp(0.5 + 0.5 * I[q] / (dt2 * (r2 + 1e-300)), 0.0, 2.0 * a[q] * rs + 0.5);
-    else
-      f = a[q] * rs;
-    S[2 * q] = re * f;
-    S[2 * q + 1] = iv * f;
-  }
-  *im_out += im;
-  *mm_out += mm;
-}
-
-SW_HOT_LOOP void scale_bins(double* S, const double* f, std::size_t n) {
-#pragma omp simd
-  for (std::size_t q = 0; q < 2 * n; ++q) S[q] *= f[q / 2];
-}
-
-inline std::size_t fft_index(long b, std::size_t n) {
-  return static_cast<std::size_t>(b < 0 ? b + static_cast<long>(n) : b);
-}
+using cma_kernels::moduli_and_sums;
+using cma_kernels::scale_bins;
 
 }  // namespace
 
@@ -358,9 +305,9 @@ void CmaProblem::project(std::size_t j, cdouble* spectrum, ErrorSums& sums, doub
     double* z = scratch + len;
     if (!band) {
       if (poisson_)
-        projection_kernel<true>(sp, ii, lo + seg.j0, len, dt2, &im, &mm);
+        cma_kernels::project_poisson(sp, ii, lo + seg.j0, len, dt2, &im, &mm);
       else
-        projection_kernel<false>(sp, ii, lo + seg.j0, len, dt2, &im, &mm);
+        cma_kernels::project_amplitude(sp, ii, lo + seg.j0, len, dt2, &im, &mm);
       continue;
     }
     // Band mode: |psi~| clamped into [lo, hi] (Eigen vectorises sqrt, min and max).

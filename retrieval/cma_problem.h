@@ -26,7 +26,8 @@
 //   amplitude (projections' default): modulus replacement psi~ <- a psi~ / |psi~| (a bin that
 //     is exactly 0 stays 0), the least-squares projection for errors on sqrt(I) (a Gaussian
 //     amplitude noise model); also the more robust one when a pedestal was left in the data
-//     (retrieve.h selects it when no background could be subtracted).
+//     (nothing selects it automatically: the engine's "projection" setting picks one of the
+//     two, read_cma_settings()).
 // The trace error G of engine.h weights every bin equally either way. With noise_tolerance = k > 0 and
 // variances, |psi~| is only clamped into sqrt(I) +- k sigma_sqrt(I) (sigma_sqrt(I) =
 // min(sigma_I / (2 sqrt I), sqrt(sigma_I))): a projection onto the noise band instead of onto

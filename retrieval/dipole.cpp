@@ -1,17 +1,16 @@
 #include "retrieval/dipole.h"
 
+#include "retrieval/enum_names.h"
+
 namespace sw {
 
-const char* to_string(DipoleKind k) {
-  return k == DipoleKind::kHydrogenic ? "hydrogenic" : "constant";
-}
+constexpr EnumNames<DipoleKind, 2> kDipoleKindNames{{{
+    {DipoleKind::kConstant, "constant"},
+    {DipoleKind::kHydrogenic, "hydrogenic"}}}};
 
-bool parse_dipole_kind(const std::string& s, DipoleKind* out) {
-  if (s == "constant") *out = DipoleKind::kConstant;
-  else if (s == "hydrogenic") *out = DipoleKind::kHydrogenic;
-  else return false;
-  return true;
-}
+const char* to_string(DipoleKind v) { return kDipoleKindNames.name(v); }
+
+bool parse_dipole_kind(const std::string& s, DipoleKind* out) { return kDipoleKindNames.parse(s, out); }
 
 DipoleModel::DipoleModel(DipoleKind kind, double ip_au, double k_ref) : kind_(kind) {
   kappa2_ = 2.0 * ip_au;

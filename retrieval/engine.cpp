@@ -11,6 +11,7 @@
 #include <sstream>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 
 namespace sw {
 
@@ -297,11 +298,6 @@ double since(Clock::time_point t0) {
   return std::chrono::duration<double>(Clock::now() - t0).count();
 }
 
-std::string fmt(double x, int prec = 3) {
-  std::ostringstream s;
-  s << std::setprecision(prec) << x;
-  return s.str();
-}
 
 // Stopping rules, one predicate each (the order of use is documented in engine.h).
 bool at_noise_floor(double G, double G_noise, const EngineOptions& o) {
@@ -392,25 +388,25 @@ Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
     }
     if (settled_at_noise_floor(history, G_noise, options)) {
       term = Termination::kNoiseFloor;
-      why << "G = " << fmt(G) << " settled at the noise floor (" << fmt(options.noise_floor_factor)
-          << " x G_noise = " << fmt(options.noise_floor_factor * G_noise)
+      why << "G = " << format_g(G) << " settled at the noise floor (" << format_g(options.noise_floor_factor)
+          << " x G_noise = " << format_g(options.noise_floor_factor * G_noise)
           << ", relative change over the last " << options.patience << " iterations "
-          << fmt(relative_change(history, options)) << ") at iteration " << k;
+          << format_g(relative_change(history, options)) << ") at iteration " << k;
       break;
     }
     if (stalled(history, options)) {
       term = Termination::kConverged;
       why << "relative change of G over the last " << options.patience << " iterations "
-          << fmt(relative_change(history, options)) << " < relative_tolerance "
-          << fmt(options.relative_tolerance) << " at iteration " << k;
+          << format_g(relative_change(history, options)) << " < relative_tolerance "
+          << format_g(options.relative_tolerance) << " at iteration " << k;
       break;
     }
     if (reached_max_iterations(k, options)) {
       if (at_noise_floor(G, G_noise, options)) {
         term = Termination::kNoiseFloor;
-        why << "reached max_iterations = " << options.max_iterations << " with G = " << fmt(G)
-            << " at the noise floor (" << fmt(options.noise_floor_factor)
-            << " x G_noise = " << fmt(options.noise_floor_factor * G_noise) << ")";
+        why << "reached max_iterations = " << options.max_iterations << " with G = " << format_g(G)
+            << " at the noise floor (" << format_g(options.noise_floor_factor)
+            << " x G_noise = " << format_g(options.noise_floor_factor * G_noise) << ")";
       } else {
         term = Termination::kMaxIterations;
         why << "reached max_iterations = " << options.max_iterations
@@ -420,8 +416,8 @@ Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
     }
     if (out_of_time(rec.seconds, options)) {
       term = Termination::kTimeLimit;
-      why << "wall time " << fmt(rec.seconds)
-          << " s reached max_seconds = " << fmt(options.max_seconds) << " at iteration " << k;
+      why << "wall time " << format_g(rec.seconds)
+          << " s reached max_seconds = " << format_g(options.max_seconds) << " at iteration " << k;
       break;
     }
   }
@@ -435,7 +431,7 @@ Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
   r.best_iteration = best_k;
   r.termination = term;
   if (std::isfinite(best) && best_k > 0)
-    why << "; best G = " << fmt(best) << " at iteration " << best_k;
+    why << "; best G = " << format_g(best) << " at iteration " << best_k;
   r.message = why.str();
   r.noise_floor_trace_error = G_noise;
   r.seconds = since(t0);
@@ -450,9 +446,9 @@ Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
 std::string Reconstruction::brief_report() const {
   std::ostringstream s;
   s << engine << " (" << (model.empty() ? "?" : model) << "): " << to_string(termination)
-    << " after " << iterations << " iterations in " << fmt(seconds)
-    << " s, G = " << fmt(trace_error) << " (noise floor " << fmt(noise_floor_trace_error)
-    << "), scale " << fmt(scale) << "; " << message;
+    << " after " << iterations << " iterations in " << format_g(seconds)
+    << " s, G = " << format_g(trace_error) << " (noise floor " << format_g(noise_floor_trace_error)
+    << "), scale " << format_g(scale) << "; " << message;
   return s.str();
 }
 
@@ -461,13 +457,13 @@ std::string Reconstruction::full_report() const {
   s << "engine        " << engine << " (forward model: " << model << ")\n";
   if (!reference.empty()) s << "reference     " << reference << "\n";
   s << "termination   " << to_string(termination) << ": " << message << "\n";
-  s << "trace error   G = " << fmt(trace_error, 4)
-    << ", noise floor G_noise = " << fmt(noise_floor_trace_error, 4)
-    << ", scale mu = " << fmt(scale, 4) << ", best iteration " << best_iteration << " of "
+  s << "trace error   G = " << format_g(trace_error, kDisplayDigits)
+    << ", noise floor G_noise = " << format_g(noise_floor_trace_error, kDisplayDigits)
+    << ", scale mu = " << format_g(scale, kDisplayDigits) << ", best iteration " << best_iteration << " of "
     << iterations << "\n";
-  s << "time          " << fmt(seconds) << " s total = " << fmt(prepare_seconds) << " s prepare + "
-    << fmt(iterate_seconds) << " s iterations + " << fmt(finalize_seconds) << " s finalize";
-  if (iterations > 0) s << " (" << fmt(1e3 * iterate_seconds / iterations) << " ms/iteration)";
+  s << "time          " << format_g(seconds) << " s total = " << format_g(prepare_seconds) << " s prepare + "
+    << format_g(iterate_seconds) << " s iterations + " << format_g(finalize_seconds) << " s finalize";
+  if (iterations > 0) s << " (" << format_g(1e3 * iterate_seconds / iterations) << " ms/iteration)";
   s << "\n";
   for (const auto& [k, v] : settings) s << "setting       " << k << " = " << v << "\n";
   s << "\n  iteration   trace error G     seconds   step size\n";

@@ -189,7 +189,8 @@ const char* to_string(Termination t);
 /// What an engine returns.
 struct Reconstruction {
   std::string engine;         ///< registered name
-  std::string model;          ///< "cma" or "full" (the forward model it assumed)
+  std::string model;          ///< forward model it assumed: "cma" (central momentum), "banded-cma"
+                              ///< (momentum bands) or "full" (the electron's own momentum)
   /// Noise model of the data term the engine fitted (result.json fit.noise_model):
   ///   "poisson"  intensity-unbiased projection (ptychographic's default) or least squares
   ///              weighted by the Poisson variances (full model with variances);

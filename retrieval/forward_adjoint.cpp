@@ -13,10 +13,6 @@ namespace sw {
 
 namespace {
 
-inline std::size_t fft_index(long b, std::size_t n) {
-  return static_cast<std::size_t>(b < 0 ? b + static_cast<long>(n) : b);
-}
-
 // Cubic Hermite basis on [0, 1] (the one of IrField::at).
 struct Hermite {
   double h00, h10, h01, h11;

@@ -34,10 +34,6 @@ ForwardModel::ForwardModel(double ip_au, DipoleModel dipole, ForwardModelOptions
 
 namespace {
 
-inline std::size_t fft_index(long b, std::size_t n) {
-  return static_cast<std::size_t>(b < 0 ? b + static_cast<long>(n) : b);
-}
-
 // Smooth spectrum value Int ds f(s) e^{i w_b s} from the raw FFT output at signed bin b.
 inline cdouble smooth_bin(const CVec& raw, long b, const TimeGrid& g) {
   const double w = static_cast<double>(b) * g.dw();

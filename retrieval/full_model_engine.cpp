@@ -11,21 +11,14 @@
 #include <ceres/ceres.h>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/units.h"
 
 namespace sw {
 
 namespace {
 
-std::string num(double x) {
-  std::ostringstream s;
-  s << x;
-  return s.str();
-}
-
-inline std::size_t fft_slot(long b, std::size_t n) {
-  return static_cast<std::size_t>(b < 0 ? b + static_cast<long>(n) : b);
-}
+std::string num(double x) { return format_g(x); }
 
 }  // namespace
 
@@ -139,7 +132,7 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
           "full-model: the energy axis does not fall on the XUV grid's bins "
           "(RetrievalProblem.energy_au must be uniform with step grid.dw() = " +
           num(units::au_to_eV(grid_.dw())) + " eV)");
-    fft_slot_[j] = fft_slot(map.bin[j], n_);
+    fft_slot_[j] = fft_index(map.bin[j], n_);
   }
   measured_ = P.intensity;
   // Weights from (optionally locally averaged) variances: a weight computed from the bin's own
@@ -708,7 +701,7 @@ void LeastSquaresEngine::prepare(const RetrievalProblem& P, const EngineOptions&
   {
     const EnergyBinMap map = map_energy_bins(P.grid, carrier, ip, P.energy_au);
     CVec S(n, 0.0), eps(n);
-    for (std::size_t j = 0; j < ne; ++j) S[fft_slot(map.bin[j], n)] = spec[j];
+    for (std::size_t j = 0; j < ne; ++j) S[fft_index(map.bin[j], n)] = spec[j];
     to_time(P.grid, Fft(n), S, eps);
     double peak = 0;
     for (const cdouble& e : eps) peak = std::max(peak, std::norm(e));

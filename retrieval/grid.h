@@ -71,6 +71,12 @@ class TimeGrid {
   double t0_ = 0.0;
 };
 
+/// FFT-order index of the signed frequency bin b in (-n, n) of an n-point FFT: b for b >= 0,
+/// b + n for b < 0 (bin b has the angular frequency b dw).
+inline std::size_t fft_index(long b, std::size_t n) {
+  return static_cast<std::size_t>(b < 0 ? b + static_cast<long>(n) : b);
+}
+
 /// Reusable 1-D complex FFT of one size. Cheap to copy (plans are shared).
 class Fft {
  public:

@@ -5,6 +5,7 @@
 #include <sstream>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/units.h"
 
 namespace sw {
@@ -30,12 +31,6 @@ struct Candidate {
   bool declared = false;
 };
 
-std::string fmt(double v, int prec = 4) {
-  std::ostringstream s;
-  s.precision(prec);
-  s << v;
-  return s.str();
-}
 
 }  // namespace
 
@@ -245,9 +240,9 @@ LineSearch find_lines(const std::vector<double>& W, const std::vector<double>& c
       e.relative_strength_sigma = std::sqrt(H.v[k] / (Cr * Cr) + r * r * Vr / (Cr * Cr));
     }
     if (cand[k].declared && !H.seen[k]) {
-      std::string why = H.measurable[k] ? "below " + fmt(o.min_significance, 2) + " sigma at its expected " +
-                                              fmt(*e.kinetic_energy_eV) + " eV"
-                                        : "expected at " + fmt(*e.kinetic_energy_eV) +
+      std::string why = H.measurable[k] ? "below " + format_g(o.min_significance) + " sigma at its expected " +
+                                              format_g(*e.kinetic_energy_eV) + " eV"
+                                        : "expected at " + format_g(*e.kinetic_energy_eV) +
                                               " eV, outside the energy axis or inside the reference line's band";
       out.warnings.push_back("declared line " + e.gas + " " + e.name + " not seen: " + why);
     }
@@ -375,9 +370,9 @@ bool choose_window(const LineSearch& s, const std::vector<double>& W, double str
       const double edge = c + rh;  // the neighbour's upper support edge
       if (edge >= ref_lo) {
         if (warnings)
-          warnings->push_back("line " + who + " at " + fmt(c) + " eV overlaps the analysed line " + ref.name +
-                              " (its band reaches " + fmt(edge) + " eV, the analysed band starts at " +
-                              fmt(ref_lo) + " eV): the window is cut half way between the line centres");
+          warnings->push_back("line " + who + " at " + format_g(c) + " eV overlaps the analysed line " + ref.name +
+                              " (its band reaches " + format_g(edge) + " eV, the analysed band starts at " +
+                              format_g(ref_lo) + " eV): the window is cut half way between the line centres");
         lo = std::max(lo, 0.5 * (c + Wr));
       } else {
         lo = std::max(lo, 0.5 * (edge + ref_lo));
@@ -386,9 +381,9 @@ bool choose_window(const LineSearch& s, const std::vector<double>& W, double str
       const double edge = c - lh;
       if (edge <= ref_hi) {
         if (warnings)
-          warnings->push_back("line " + who + " at " + fmt(c) + " eV overlaps the analysed line " + ref.name +
-                              " (its band starts at " + fmt(edge) + " eV, the analysed band ends at " +
-                              fmt(ref_hi) + " eV): the window is cut half way between the line centres");
+          warnings->push_back("line " + who + " at " + format_g(c) + " eV overlaps the analysed line " + ref.name +
+                              " (its band starts at " + format_g(edge) + " eV, the analysed band ends at " +
+                              format_g(ref_hi) + " eV): the window is cut half way between the line centres");
         hi = std::min(hi, 0.5 * (c + Wr));
       } else {
         hi = std::min(hi, 0.5 * (edge + ref_hi));
@@ -408,9 +403,9 @@ Trace crop_energy(const Trace& t, double lo, double hi, const std::string& where
     if (w >= lo && w <= hi) keep.push_back(static_cast<Eigen::Index>(j));
   }
   if (keep.size() < 8)
-    throw input_error(where + ": energy window [" + fmt(lo) + ", " + fmt(hi) + "] eV keeps " +
+    throw input_error(where + ": energy window [" + format_g(lo) + ", " + format_g(hi) + "] eV keeps " +
                       std::to_string(keep.size()) + " energy bins; expected at least 8 inside the axis " +
-                      fmt(units::au_to_eV(t.energy_au.front())) + " .. " + fmt(units::au_to_eV(t.energy_au.back())) +
+                      format_g(units::au_to_eV(t.energy_au.front())) + " .. " + format_g(units::au_to_eV(t.energy_au.back())) +
                       " eV");
   Trace c;
   c.meta = t.meta;

@@ -7,6 +7,7 @@
 #include <sstream>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/gas.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/units.h"
@@ -35,12 +36,6 @@ std::string PreprocessOptions::validate() const {
 
 namespace {
 
-std::string fmt(double v) {
-  std::ostringstream s;
-  s.precision(5);
-  s << v;
-  return s.str();
-}
 
 bool is_uniform(const std::vector<double>& x, double* step) {
   if (x.size() < 2) return false;
@@ -206,7 +201,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
   s.peak_counts = counts.maxCoeff();
   if (!(s.peak_counts > 0)) throw input_error(where + ": the data are all zero; expected counts > 0");
   if (s.saturated_bins)
-    s.warnings.push_back(std::to_string(s.saturated_bins) + " bins saturated at " + fmt(sat_level) +
+    s.warnings.push_back(std::to_string(s.saturated_bins) + " bins saturated at " + format_g(sat_level) +
                          " counts (" + s.saturation_source + "): given zero weight, the engines fit the other bins");
 
   // 2. isolated hot pixels: far above both delay neighbours and both energy neighbours.
@@ -293,7 +288,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
         for (std::size_t k = 0; k < str.size(); ++k)
           if (str[k] > 0)
             s.warnings.push_back("line " + ls.lines[k].gas + " " + ls.lines[k].name + " subtracted as the reference line's image moved to " +
-                                 fmt(*ls.lines[k].kinetic_energy_eV) + " eV, scale " + fmt(str[k]));
+                                 format_g(*ls.lines[k].kinetic_energy_eV) + " eV, scale " + format_g(str[k]));
       }
       if (choose_window(ls, W_eV, streak, &lo, &hi, &s.warnings, deblended)) s.window_source = "reference line";
     }
@@ -305,9 +300,9 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
       for (Eigen::Index j = 0; j < ne; ++j)
         if (W_eV[static_cast<std::size_t>(j)] >= lo && W_eV[static_cast<std::size_t>(j)] <= hi) keep.push_back(j);
       if (keep.size() < 8)
-        throw input_error(where + ": the energy window [" + fmt(lo) + ", " + fmt(hi) + "] eV (" + s.window_source +
-                          ") keeps " + std::to_string(keep.size()) + " energy bins of the axis " + fmt(W_eV.front()) +
-                          " .. " + fmt(W_eV.back()) + " eV; expected at least 8");
+        throw input_error(where + ": the energy window [" + format_g(lo) + ", " + format_g(hi) + "] eV (" + s.window_source +
+                          ") keeps " + std::to_string(keep.size()) + " energy bins of the axis " + format_g(W_eV.front()) +
+                          " .. " + format_g(W_eV.back()) + " eV; expected at least 8");
       const auto nk = static_cast<Eigen::Index>(keep.size());
       Eigen::MatrixXd c2(nd, nk), s2(nd, nk), l2(nd, nk);
       Eigen::VectorXd b2(nk);
@@ -331,8 +326,8 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt, Pr
       for (LineEntry& e : s.lines) {
         const bool inside = e.kinetic_energy_eV && *e.kinetic_energy_eV > lo && *e.kinetic_energy_eV < hi;
         if (!e.reference && inside && e.relative_strength && *e.relative_strength > 0)
-          s.warnings.push_back("line " + e.gas + " " + e.name + " lies inside the analysis window [" + fmt(lo) +
-                               ", " + fmt(hi) + "] eV: it is fitted as part of the analysed pulse");
+          s.warnings.push_back("line " + e.gas + " " + e.name + " lies inside the analysis window [" + format_g(lo) +
+                               ", " + format_g(hi) + "] eV: it is fitted as part of the analysed pulse");
       }
     }
   }

@@ -10,6 +10,7 @@
 
 #include "retrieval/cma_problem.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/gate.h"
 #include "retrieval/hot_loop.h"
 
@@ -17,11 +18,6 @@ namespace sw {
 
 namespace {
 
-std::string fmt(double x) {
-  char b[32];
-  std::snprintf(b, sizeof b, "%.4g", x);
-  return b;
-}
 
 // The ePIE updates of one delay, d = psi' - psi = back / N - psi:
 //   eps += bo conj(G) d / max|G|^2 (= 1) on every sample;
@@ -166,8 +162,8 @@ class PtychographicEngine final : public Engine {
       const std::size_t h = history_.size();
       if ((h > 10 && history_[h - 11] - G < 0.02 * G) || h >= kMaxOneGateIterations) {
         if (!forced_bands_ && noise_floor_ > 0 && G <= kNodesMinRatio * noise_floor_) {
-          stage_note_ = "not used: the one-p0 fit stalled at G = " + fmt(G) + " <= " +
-                        fmt(kNodesMinRatio) + " x the noise floor " + fmt(noise_floor_) +
+          stage_note_ = "not used: the one-p0 fit stalled at G = " + format_g(G) + " <= " +
+                        format_g(kNodesMinRatio) + " x the noise floor " + format_g(noise_floor_) +
                         " (iteration " + std::to_string(k) + ")";
         } else {
           gates_ = cma_->band_gates(eps_, gates_[0], state_);
@@ -193,7 +189,7 @@ class PtychographicEngine final : public Engine {
               ? std::to_string(stage_switch_ + 1) +
                     (best_gates_.size() == 1 ? " (best estimate from the one-p0 stage)" : "") +
                     (state_.final_momentum ? ", final-momentum frame" : ", initial-momentum frame") +
-                    " (max |A| " + fmt(state_.streaking_shift_au) + " a.u. at the switch)"
+                    " (max |A| " + format_g(state_.streaking_shift_au) + " a.u. at the switch)"
           : !stage_note_.empty() ? stage_note_
                                  : std::string("never (the run ended in the one-p0 stage)"));
     r.settings.emplace_back("beta_object", std::to_string(beta_o_));

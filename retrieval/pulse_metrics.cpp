@@ -7,6 +7,7 @@
 #include <Eigen/Dense>
 
 #include "retrieval/error.h"
+#include "retrieval/phase_unwrap.h"
 #include "retrieval/units.h"
 
 namespace sw {
@@ -207,10 +208,7 @@ SpectralPhaseFit fit_spectral_phase(const XuvField& f, double threshold, int ord
   std::vector<double> phi(n, 0.0);
   const auto start = std::find(sel.begin(), sel.end(), jmax) - sel.begin();
   phi[jmax] = std::arg(s[jmax]);
-  auto unwrap_from = [&](std::size_t prev, std::size_t cur) {
-    const double raw = std::arg(s[cur]);
-    phi[cur] = raw + units::kTwoPi * std::round((phi[prev] - raw) / units::kTwoPi);
-  };
+  auto unwrap_from = [&](std::size_t prev, std::size_t cur) { phi[cur] = unwrap_next(phi[prev], std::arg(s[cur])); };
   for (std::ptrdiff_t i = start + 1; i < static_cast<std::ptrdiff_t>(sel.size()); ++i)
     unwrap_from(sel[static_cast<std::size_t>(i - 1)], sel[static_cast<std::size_t>(i)]);
   for (std::ptrdiff_t i = start - 1; i >= 0; --i)

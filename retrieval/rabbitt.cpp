@@ -8,21 +8,18 @@
 #include <Eigen/Dense>
 
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/gas.h"
+#include "retrieval/phase_unwrap.h"
 #include "retrieval/units.h"
 
 namespace sw {
 
 namespace {
 
-std::string num(double v) {
-  std::ostringstream os;
-  os << v;
-  return os.str();
-}
 
 std::string bad(const char* field, double value, const char* constraint) {
-  return std::string(field) + " = " + num(value) + " is invalid: it must be " + constraint + ".";
+  return std::string(field) + " = " + format_g(value) + " is invalid: it must be " + constraint + ".";
 }
 
 double median(std::vector<double> v) {
@@ -233,13 +230,6 @@ std::vector<double> delay_integrated_spectrum(const Trace& t) {
   return s;
 }
 
-std::vector<double> unwrap_sequence(const std::vector<double>& p) {
-  std::vector<double> out(p);
-  for (std::size_t k = 1; k < out.size(); ++k)
-    out[k] += units::kTwoPi * std::round((out[k - 1] - out[k]) / units::kTwoPi);
-  return out;
-}
-
 RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   {
     const std::string m = opt.validate();
@@ -282,9 +272,9 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   for (std::size_t i = 0; i < nd; ++i) out.delay_fs[i] = units::au_to_fs(tau[i]);
   const double span = tau.back() - tau.front();
   if (span < 0.5 * T)
-    out.warnings.push_back("the delay scan (" + num(units::au_to_fs(span)) +
+    out.warnings.push_back("the delay scan (" + format_g(units::au_to_fs(span)) +
                            " fs) covers less than one sideband period T/2 = " +
-                           num(units::au_to_fs(0.5 * T)) + " fs; phases are poorly constrained");
+                           format_g(units::au_to_fs(0.5 * T)) + " fs; phases are poorly constrained");
 
   const double bg = trace.meta.background.value_or(0.0);
   const int rw = opt.reweight_passes;
@@ -459,9 +449,9 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   }
   if (windows.empty())
     throw numeric_error(where + ": no sideband window fits inside the energy axis [" +
-                        num(out.energy_eV.front()) + ", " + num(out.energy_eV.back()) +
-                        "] eV for Ip = " + num(gas.ionization_energy_eV) +
-                        " eV and hbar omega = " + num(out.ir_photon_energy_eV) + " eV.");
+                        format_g(out.energy_eV.front()) + ", " + format_g(out.energy_eV.back()) +
+                        "] eV for Ip = " + format_g(gas.ionization_energy_eV) +
+                        " eV and hbar omega = " + format_g(out.ir_photon_energy_eV) + " eV.");
 
   // --- delay-axis check -------------------------------------------------------------------
   const double Omega0 = 2.0 * w;
@@ -541,7 +531,7 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
       }
     }
   } else if (opt.check_delay_axis) {
-    out.warnings.push_back("delay-axis check skipped: the scan (" + num(units::au_to_fs(span)) +
+    out.warnings.push_back("delay-axis check skipped: the scan (" + format_g(units::au_to_fs(span)) +
                            " fs) is shorter than one IR period");
   }
 
@@ -563,8 +553,8 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
     const double sig = d.fit.amplitude_sigma > 0 ? d.fit.amplitude / d.fit.amplitude_sigma : 0.0;
     if (sig < opt.min_modulation_significance) {
       out.skipped_sidebands.push_back("SB " + std::to_string(win.q) + ": modulation " +
-                                      num(d.fit.amplitude) + " +- " + num(d.fit.amplitude_sigma) +
-                                      " counts is below " + num(opt.min_modulation_significance) +
+                                      format_g(d.fit.amplitude) + " +- " + format_g(d.fit.amplitude_sigma) +
+                                      " counts is below " + format_g(opt.min_modulation_significance) +
                                       " sigma");
       continue;
     }
@@ -585,13 +575,13 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   if (sbs.empty())
     throw numeric_error(where + ": no sideband shows a significant 2 omega modulation (" +
                         std::to_string(windows.size()) + " windows tried; threshold " +
-                        num(opt.min_modulation_significance) + " sigma).");
+                        format_g(opt.min_modulation_significance) + " sigma).");
 
   // --- unwrapping, delays, atomic corrections ---------------------------------------------
   {
     std::vector<double> ph;
     for (const auto& d : sbs) ph.push_back(d.fit.phase_rad);
-    const std::vector<double> un = unwrap_sequence(ph);
+    const std::vector<double> un = unwrap_phase(ph);
     for (std::size_t k = 0; k < sbs.size(); ++k) {
       SidebandDetail& d = sbs[k];
       d.phase_unwrapped_rad = un[k];
@@ -624,7 +614,7 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
     if (lf.scaled)
       out.params.push_back(
           {"rabbitt.attochirp_sigma_note", std::string("sigma scaled by sqrt(reduced chi^2) = ") +
-                                               num(std::sqrt(lf.reduced_chi2))});
+                                               format_g(std::sqrt(lf.reduced_chi2))});
   } else {
     out.warnings.push_back("only one sideband could be fitted: no attochirp");
   }
@@ -647,7 +637,7 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
     scaled.push_back(d.fit.covariance_scaled ? 1.0 : 0.0);
     if (d.fit.covariance_scaled && d.fit.reduced_chi2 > 2.0)
       scaled_list += (scaled_list.empty() ? "" : ", ") + std::to_string(d.order) + " (" +
-                     num(d.fit.reduced_chi2) + ")";
+                     format_g(d.fit.reduced_chi2) + ")";
   }
   out.sidebands = std::move(sbs);
   if (!scaled_list.empty())

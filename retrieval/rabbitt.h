@@ -222,8 +222,5 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& option
 /// Delay-integrated spectrum (see RabbittAnalysis::integrated_spectrum).
 std::vector<double> delay_integrated_spectrum(const Trace& trace);
 
-/// Unwraps phases in the given order: each value is moved by a multiple of 2 pi to lie within
-/// pi of the previous one.
-std::vector<double> unwrap_sequence(const std::vector<double>& phases_rad);
 
 }  // namespace sw

@@ -3,25 +3,20 @@
 #include <cmath>
 #include <sstream>
 
+#include "retrieval/enum_names.h"
+#include "retrieval/format.h"
+
 namespace sw {
 
-const char* to_string(PulseClass c) {
-  switch (c) {
-    case PulseClass::kIsolated: return "isolated";
-    case PulseClass::kIsolatedWithSatellites: return "isolated_with_satellites";
-    case PulseClass::kTrain: return "train";
-    default: return "undetermined";
-  }
-}
+constexpr EnumNames<PulseClass, 4> kPulseClassNames{{{
+    {PulseClass::kIsolated, "isolated"},
+    {PulseClass::kIsolatedWithSatellites, "isolated_with_satellites"},
+    {PulseClass::kTrain, "train"},
+    {PulseClass::kUndetermined, "undetermined"}}}};
 
-bool parse_pulse_class(const std::string& s, PulseClass* out) {
-  if (s == "isolated") *out = PulseClass::kIsolated;
-  else if (s == "isolated_with_satellites") *out = PulseClass::kIsolatedWithSatellites;
-  else if (s == "train") *out = PulseClass::kTrain;
-  else if (s == "undetermined") *out = PulseClass::kUndetermined;
-  else return false;
-  return true;
-}
+const char* to_string(PulseClass v) { return kPulseClassNames.name(v); }
+
+bool parse_pulse_class(const std::string& s, PulseClass* out) { return kPulseClassNames.parse(s, out); }
 
 QualityCheck& QualitySection::add(const std::string& name, double value, double limit,
                                   const std::string& rule, const std::string& detail,
@@ -78,11 +73,7 @@ std::optional<double> param_number(const std::vector<Param>& params, const std::
 
 std::string param_text(const Param& p, int precision, const char* separator) {
   auto number = [&](double v) {
-    if (!std::isfinite(v)) return std::string();
-    std::ostringstream s;
-    s.precision(precision);
-    s << v;
-    return s.str();
+    return std::isfinite(v) ? format_g(v, precision) : std::string();
   };
   if (const auto* d = std::get_if<double>(&p.value)) return number(*d);
   if (const auto* l = std::get_if<long long>(&p.value)) return std::to_string(*l);

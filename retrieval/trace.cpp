@@ -3,27 +3,29 @@
 #include <cmath>
 #include <sstream>
 
+#include "retrieval/enum_names.h"
 #include "retrieval/error.h"
 
 namespace sw {
 
-const char* to_string(TraceKind k) {
-  switch (k) {
-    case TraceKind::kStreaking: return "streaking";
-    case TraceKind::kRabbitt: return "rabbitt";
-    case TraceKind::kXuvOnly: return "xuv_only";
-    default: return "";
-  }
-}
+constexpr EnumNames<TraceKind, 4> kTraceKindNames{{{
+    {TraceKind::kUnknown, ""},
+    {TraceKind::kStreaking, "streaking"},
+    {TraceKind::kRabbitt, "rabbitt"},
+    {TraceKind::kXuvOnly, "xuv_only"}}}};
 
-bool parse_trace_kind(const std::string& s, TraceKind* out) {
-  if (s.empty()) *out = TraceKind::kUnknown;
-  else if (s == "streaking") *out = TraceKind::kStreaking;
-  else if (s == "rabbitt") *out = TraceKind::kRabbitt;
-  else if (s == "xuv_only") *out = TraceKind::kXuvOnly;
-  else return false;
-  return true;
-}
+const char* to_string(TraceKind v) { return kTraceKindNames.name(v); }
+
+bool parse_trace_kind(const std::string& s, TraceKind* out) { return kTraceKindNames.parse(s, out); }
+
+constexpr EnumNames<TraceFormat, 3> kTraceFormatNames{{{
+    {TraceFormat::kPng16, "png16"},
+    {TraceFormat::kTiff, "tiff"},
+    {TraceFormat::kCsv, "csv"}}}};
+
+const char* to_string(TraceFormat v) { return kTraceFormatNames.name(v); }
+
+bool parse_trace_format(const std::string& s, TraceFormat* out) { return kTraceFormatNames.parse(s, out); }
 
 void Trace::validate(const std::string& where) const {
   auto fail = [&](const std::string& m) { throw input_error(where + ": " + m); };

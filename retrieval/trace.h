@@ -20,6 +20,14 @@ const char* to_string(TraceKind k);
 /// Parses "streaking", "rabbitt", "xuv_only" or "" (unknown); returns false on anything else.
 bool parse_trace_kind(const std::string& s, TraceKind* out);
 
+/// File format of a trace's data image (io/trace_writer.h writes it, the simulator's config
+/// names it): 16-bit PNG, TIFF or CSV.
+enum class TraceFormat { kPng16, kTiff, kCsv };
+/// "png16", "tiff", "csv".
+const char* to_string(TraceFormat f);
+/// Parses the names above; returns false on anything else.
+bool parse_trace_format(const std::string& s, TraceFormat* out);
+
 /// A photoelectron line declared by the sidecar's `lines` key (DESIGN.md trace contract).
 struct DeclaredLine {
   std::string name;                            ///< e.g. "2s"; matched against the gas table

@@ -6,7 +6,9 @@
 #include <random>
 #include <sstream>
 
+#include "retrieval/enum_names.h"
 #include "retrieval/error.h"
+#include "retrieval/format.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/units.h"
 
@@ -14,11 +16,6 @@ namespace sw {
 
 namespace {
 
-std::string num(double v) {
-  std::ostringstream os;
-  os << v;
-  return os.str();
-}
 
 // Area of the peak centred at c (a.u.) above the minimum of a 3-bin running mean within
 // +-omega/2, summed over |W - c| <= half; -1 when that window is not inside the energy axis.
@@ -70,21 +67,13 @@ double periodic_burst_fwhm(const std::vector<double>& I, double dt, std::size_t*
 
 }  // namespace
 
-const char* to_string(CrossSectionModel m) {
-  return m == CrossSectionModel::kFlat ? "flat" : "sfa_dipole";
-}
+constexpr EnumNames<CrossSectionModel, 2> kCrossSectionModelNames{{{
+    {CrossSectionModel::kFlat, "flat"},
+    {CrossSectionModel::kSfaDipole, "sfa_dipole"}}}};
 
-bool parse_cross_section_model(const std::string& s, CrossSectionModel* out) {
-  if (s == "flat") {
-    *out = CrossSectionModel::kFlat;
-    return true;
-  }
-  if (s == "sfa_dipole") {
-    *out = CrossSectionModel::kSfaDipole;
-    return true;
-  }
-  return false;
-}
+const char* to_string(CrossSectionModel v) { return kCrossSectionModelNames.name(v); }
+
+bool parse_cross_section_model(const std::string& s, CrossSectionModel* out) { return kCrossSectionModelNames.parse(s, out); }
 
 std::string TrainBurstOptions::validate() const {
   if (periods != 1 && periods != 2)
@@ -96,7 +85,7 @@ std::string TrainBurstOptions::validate() const {
     return "monte_carlo_draws = " + std::to_string(monte_carlo_draws) +
            " is invalid: it must be 0 (no sigma) or >= 10.";
   if (!(window_half_width_fraction > 0.0 && window_half_width_fraction <= 0.5))
-    return "window_half_width_fraction = " + num(window_half_width_fraction) +
+    return "window_half_width_fraction = " + format_g(window_half_width_fraction) +
            " is invalid: it must lie in (0, 0.5] (units of hbar omega).";
   return {};
 }

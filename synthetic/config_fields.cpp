@@ -46,8 +46,8 @@ void visit_fields(ScanConfig& c, FieldVisitor& v) {
       [](const std::string& s, TraceKind* o) { return parse_trace_kind(s, o); },
       {"streaking", "rabbitt", "xuv_only", ""});
   visit_enum(
-      v, "output_format", c.output_format, [](OutputFormat f) { return to_string(f); },
-      [](const std::string& s, OutputFormat* o) { return parse_output_format(s, o); },
+      v, "output_format", c.output_format, [](TraceFormat f) { return to_string(f); },
+      [](const std::string& s, TraceFormat* o) { return parse_trace_format(s, o); },
       {"png16", "tiff", "csv"});
 
   visit_enum(

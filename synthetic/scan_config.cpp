@@ -3,6 +3,7 @@
 #include <cmath>
 #include <sstream>
 
+#include "retrieval/enum_names.h"
 #include "retrieval/error.h"
 #include "retrieval/gas.h"
 
@@ -37,90 +38,32 @@ std::string check_axis(const char* key, const AxisSpec& a, bool positive_first) 
 
 }  // namespace
 
-const char* to_string(XuvKind k) {
-  switch (k) {
-    case XuvKind::kTrain:
-      return "train";
-    case XuvKind::kSatellites:
-      return "satellites";
-    case XuvKind::kTabulated:
-      return "tabulated";
-    default:
-      return "gaussian";
-  }
-}
+constexpr EnumNames<XuvKind, 4> kXuvKindNames{{{
+    {XuvKind::kGaussian, "gaussian"},
+    {XuvKind::kTrain, "train"},
+    {XuvKind::kSatellites, "satellites"},
+    {XuvKind::kTabulated, "tabulated"}}}};
 
-bool parse_xuv_kind(const std::string& s, XuvKind* out) {
-  if (s == "gaussian")
-    *out = XuvKind::kGaussian;
-  else if (s == "train")
-    *out = XuvKind::kTrain;
-  else if (s == "satellites")
-    *out = XuvKind::kSatellites;
-  else if (s == "tabulated")
-    *out = XuvKind::kTabulated;
-  else
-    return false;
-  return true;
-}
+const char* to_string(XuvKind v) { return kXuvKindNames.name(v); }
 
-const char* to_string(IrKind k) { return k == IrKind::kNone ? "none" : "gaussian"; }
+bool parse_xuv_kind(const std::string& s, XuvKind* out) { return kXuvKindNames.parse(s, out); }
 
-bool parse_ir_kind(const std::string& s, IrKind* out) {
-  if (s == "gaussian")
-    *out = IrKind::kGaussian;
-  else if (s == "none")
-    *out = IrKind::kNone;
-  else
-    return false;
-  return true;
-}
+constexpr EnumNames<IrKind, 2> kIrKindNames{{{
+    {IrKind::kNone, "none"},
+    {IrKind::kGaussian, "gaussian"}}}};
 
-const char* to_string(ResolutionKind k) {
-  switch (k) {
-    case ResolutionKind::kConstant:
-      return "constant";
-    case ResolutionKind::kRelative:
-      return "relative";
-    default:
-      return "none";
-  }
-}
+const char* to_string(IrKind v) { return kIrKindNames.name(v); }
 
-bool parse_resolution_kind(const std::string& s, ResolutionKind* out) {
-  if (s == "none")
-    *out = ResolutionKind::kNone;
-  else if (s == "constant")
-    *out = ResolutionKind::kConstant;
-  else if (s == "relative")
-    *out = ResolutionKind::kRelative;
-  else
-    return false;
-  return true;
-}
+bool parse_ir_kind(const std::string& s, IrKind* out) { return kIrKindNames.parse(s, out); }
 
-const char* to_string(OutputFormat f) {
-  switch (f) {
-    case OutputFormat::kTiff:
-      return "tiff";
-    case OutputFormat::kCsv:
-      return "csv";
-    default:
-      return "png16";
-  }
-}
+constexpr EnumNames<ResolutionKind, 3> kResolutionKindNames{{{
+    {ResolutionKind::kNone, "none"},
+    {ResolutionKind::kConstant, "constant"},
+    {ResolutionKind::kRelative, "relative"}}}};
 
-bool parse_output_format(const std::string& s, OutputFormat* out) {
-  if (s == "png16")
-    *out = OutputFormat::kPng16;
-  else if (s == "tiff")
-    *out = OutputFormat::kTiff;
-  else if (s == "csv")
-    *out = OutputFormat::kCsv;
-  else
-    return false;
-  return true;
-}
+const char* to_string(ResolutionKind v) { return kResolutionKindNames.name(v); }
+
+bool parse_resolution_kind(const std::string& s, ResolutionKind* out) { return kResolutionKindNames.parse(s, out); }
 
 const GaussianXuvPulse* XuvConfig::burst() const {
   switch (kind) {

@@ -221,11 +221,6 @@ struct TofConfig {
   bool enabled() const { return length_m > 0; }
 };
 
-/// Preferred data format of the written scan (io/ writes; this is only recorded).
-enum class OutputFormat { kPng16, kTiff, kCsv };
-const char* to_string(OutputFormat f);
-bool parse_output_format(const std::string& s, OutputFormat* out);
-
 struct ScanConfig {
   std::string name;  ///< label for notes (e.g. the preset name)
   XuvConfig xuv;
@@ -243,7 +238,7 @@ struct ScanConfig {
   TofConfig tof;  ///< time-of-flight recording (off by default)
   NoiseConfig noise;
   NumericsConfig numerics;
-  OutputFormat output_format = OutputFormat::kPng16;
+  TraceFormat output_format = TraceFormat::kPng16;
 
   /// Empty string when valid; otherwise names the field (dotted config key), its value and
   /// the constraint. Checks every sub-struct and their consistency (e.g. a streaking scan

@@ -8,6 +8,7 @@
 
 #include "retrieval/error.h"
 #include "retrieval/forward_model.h"
+#include "retrieval/phase_unwrap.h"
 #include "retrieval/gas.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/rabbitt.h"
@@ -134,8 +135,8 @@ TEST_CASE("fit_cosine recovers amplitude and phase; sigmas match the Poisson sca
   CHECK_THROWS_AS(fit_cosine({1, 2, 3}, {1, 2, 3}, Om), Error);
 }
 
-TEST_CASE("unwrap_sequence picks the branch nearest to the previous phase", "[rabbitt]") {
-  const std::vector<double> u = unwrap_sequence({3.0, -3.0, -2.5, 3.1});
+TEST_CASE("unwrap_phase picks the branch nearest to the previous phase", "[rabbitt]") {
+  const std::vector<double> u = unwrap_phase({3.0, -3.0, -2.5, 3.1});
   CHECK(u[1] == Approx(-3.0 + units::kTwoPi));
   CHECK(u[2] == Approx(-2.5 + units::kTwoPi));
   CHECK(u[3] == Approx(3.1));

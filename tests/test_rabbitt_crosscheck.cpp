@@ -27,6 +27,7 @@
 #include <cmath>
 #include <complex>
 #include <cstdio>
+#include <string>
 #include <vector>
 
 #include "retrieval/preprocess.h"
@@ -263,9 +264,13 @@ TEST_CASE("a neon train at higher kinetic energy (bandwidth/energy 0.32) agrees 
   cross_check(c, "neon train at 60 eV");
 }
 
-TEST_CASE("diagnostics: engine settings on argon-rabbitt (prints the table of the docs)",
-          "[.diagnostics]") {
-  // Not run by default (hidden tag): the numbers behind docs/validation.md's engine table.
+TEST_CASE("engine settings on argon-rabbitt: the claims of the docs' engine table",
+          "[crosscheck][slow]") {
+  // Prints the numbers behind docs/validation.md's engine table ("Settings matter") and checks
+  // the claims the docs draw from it: imposing the delay-averaged spectrum as the amplitude
+  // stalls the fit well above the noise floor (docs: 5.5 x), the centroid constraint reaches it
+  // (docs: 1.02 x), and a known background changes nothing. Margins (3 x, 1.2 x, 1 %) are common
+  // practice, set between the documented values.
   const synthetic::SyntheticScan sc =
       synthetic::generate_scan(synthetic::find_preset("argon-rabbitt").config, 1);
   const double w = units::wavelength_nm_to_omega_au(800.0);
@@ -274,6 +279,7 @@ TEST_CASE("diagnostics: engine settings on argon-rabbitt (prints the table of th
     const char* spectrum;
     bool known_background;
   };
+  double g_amplitude = 0.0, g_centroid = 0.0;  // G of the first ptychographic run of each kind
   for (const V v : {V{"ptychographic", "amplitude", false}, V{"ptychographic", "amplitude", true},
                     V{"ptychographic", "centroid", false}, V{"ptychographic", "centroid", true},
                     V{"projections", "amplitude", true}, V{"projections", "centroid", true},
@@ -290,5 +296,17 @@ TEST_CASE("diagnostics: engine settings on argon-rabbitt (prints the table of th
                 out.result.engine.c_str(), v.spectrum, v.known_background ? "0 (given)" : "auto",
                 out.reconstruction.trace_error, out.reconstruction.noise_floor_trace_error,
                 r.attochirp_as_per_eV, r.burst_fwhm_as, r.burst_tl_fwhm_as);
+    const double G = out.reconstruction.trace_error, G0 = out.reconstruction.noise_floor_trace_error;
+    const std::string engine = v.engine, spectrum = v.spectrum;
+    INFO(engine << " (" << out.result.engine << "), " << spectrum << ": G " << G << ", floor " << G0);
+    if (engine == "ptychographic" && spectrum == "amplitude") CHECK(G > 3.0 * G0);
+    if (engine == "ptychographic" && spectrum == "centroid") CHECK(G < 1.2 * G0);
+    // Not checked: the docs' auto row ("stays ptychographic", G 0.0046) is stale; auto now
+    // refines with the full model and ends at G 0.0074 (1.65 x the floor), reported for review.
+    if (engine == "ptychographic") {
+      auto& seen = spectrum == "amplitude" ? g_amplitude : g_centroid;
+      if (seen > 0) CHECK(G == Approx(seen).epsilon(0.01));  // known background: same answer
+      seen = G;
+    }
   }
 }
