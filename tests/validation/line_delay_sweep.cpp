@@ -8,7 +8,7 @@
 // With --joint B, every retrieved row runs retrieve() with default options and B bootstrap
 // replicas: the joint fit of the lines (retrieval/multi_line_fit.h) gives the pulse and the
 // delay with its sigma; written to OUT/validation_line_delays_joint.csv and _joint_table.md.
-// Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] [--joint B] [--delays LIST]
+// Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] [--joint B] [--delays LIST] [--strengths LIST]
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -82,7 +82,7 @@ int main(int argc, char** argv) {
   int band_iterations = LineDelayOptions().band_iterations;
   std::string only_target;
   int joint_bootstrap = -1;  // -1: no joint rows
-  std::vector<double> only_delays;
+  std::vector<double> only_delays, only_strengths;
   for (int i = 2; i < argc; ++i) {
     const std::string a = argv[i];
     if (a == "--quick") quick = true;
@@ -97,6 +97,9 @@ int main(int argc, char** argv) {
     else if (a == "--delays" && i + 1 < argc) {
       std::stringstream ds(argv[++i]);
       for (std::string t; std::getline(ds, t, ',');) only_delays.push_back(std::atof(t.c_str()));
+    } else if (a == "--strengths" && i + 1 < argc) {
+      std::stringstream ds(argv[++i]);
+      for (std::string t; std::getline(ds, t, ',');) only_strengths.push_back(std::atof(t.c_str()));
     } else {
       std::fprintf(stderr, "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar]\n");
       return 2;
@@ -110,6 +113,7 @@ int main(int argc, char** argv) {
   std::vector<double> strengths = quick ? std::vector<double>{0.3} : std::vector<double>{0.1, 0.3, 1.0};
   std::vector<double> peaks = quick ? std::vector<double>{300} : std::vector<double>{100, 300, 1000};
   if (only_strength > 0) strengths = {only_strength};
+  if (!only_strengths.empty()) strengths = only_strengths;
   if (only_peak > 0) peaks = {only_peak};
   std::vector<Row> rows;
   int n = 0;
