@@ -203,6 +203,10 @@ ojson to_ojson(const AnalysisResult& r) {
       put(o, k, "clc_delay_as", l.clc_delay_as);
       put(o, k, "clc_correction_as", l.clc_correction_as);
       put(o, k, "relative_delay_as_corrected", l.relative_delay_as_corrected);
+      put(o, k, "relative_delay_as_centre_of_energy", l.relative_delay_as_centre_of_energy);
+      put(o, k, "relative_delay_as_centre_of_energy_sigma", l.relative_delay_as_centre_of_energy_sigma);
+      put(o, k, "relative_strength_centre_of_energy", l.relative_strength_centre_of_energy);
+      put(o, k, "relative_strength_centre_of_energy_sigma", l.relative_strength_centre_of_energy_sigma);
       ls.push_back(std::move(o));
     }
     j["lines"] = std::move(ls);
@@ -514,6 +518,10 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
         opt("clc_delay_as", &l.clc_delay_as);
         opt("clc_correction_as", &l.clc_correction_as);
         opt("relative_delay_as_corrected", &l.relative_delay_as_corrected);
+        opt("relative_delay_as_centre_of_energy", &l.relative_delay_as_centre_of_energy);
+        opt("relative_delay_as_centre_of_energy_sigma", &l.relative_delay_as_centre_of_energy_sigma);
+        opt("relative_strength_centre_of_energy", &l.relative_strength_centre_of_energy);
+        opt("relative_strength_centre_of_energy_sigma", &l.relative_strength_centre_of_energy_sigma);
         if (o.contains("delay_method")) l.delay_method = rd.string(o["delay_method"], k + ".delay_method");
         for (const char* f : {"reference", "analysed"})
           if (o.contains(f)) {

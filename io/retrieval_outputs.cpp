@@ -224,7 +224,7 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
   // the joint fit (retrieval/line_delays.h).
   if (out.line_curves.size() >= 2) {
     LinePlot ll;
-    ll.title = "photoelectron lines: first moment versus delay, joint fit";
+    ll.title = "photoelectron lines: first moment versus delay, centre-of-energy fit";
     for (std::size_t k = 1; k < out.line_curves.size(); ++k)
       ll.title += (k == 1 ? " (" : ", ") + out.line_curves[k].name + " shifted " + format_g(out.line_curves[k].shift_as, kDisplayDigits) + " as";
     ll.title += ")";
@@ -310,14 +310,17 @@ void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, cons
       };
       lt.push_back({l.gas + " " + l.name + (l.reference ? " (reference)" : ""), format_g(l.ionization_energy_eV, kDisplayDigits),
                     num(l.relative_strength, l.relative_strength_sigma), num(l.relative_delay_as, l.relative_delay_as_sigma),
-                    num(l.clc_correction_as, std::nullopt), num(l.relative_delay_as_corrected, l.relative_delay_as_sigma)});
+                    num(l.clc_correction_as, std::nullopt), num(l.relative_delay_as_corrected, l.relative_delay_as_sigma),
+                    num(l.relative_delay_as_centre_of_energy, l.relative_delay_as_centre_of_energy_sigma),
+                    l.delay_method.empty() ? std::string("-") : l.delay_method});
     }
     rep.add_table({"line", "Ip (eV)", "relative strength", "relative delay (as)", "Coulomb-laser correction (as)",
-                   "corrected delay (as)"},
-                  lt, "Photoelectron lines: delays by the centre-of-energy method (positive = emitted later than the reference)");
+                   "corrected delay (as)", "centre of energy (as)", "method"},
+                  lt, "Photoelectron lines: relative delays (positive = emitted later than the reference); the joint "
+                      "full-model fit when it ran, the centre-of-energy value beside it as the cross-check");
     rep.add_figure(path("line_streaking.png"),
-                   "First moment of each line's band versus delay, minus its field-free centre, with the joint fit of a "
-                   "common vector potential shifted by each line's delay.");
+                   "First moment of each line's band versus delay, minus its field-free centre, with the centre-of-energy "
+                   "fit of a common vector potential shifted by each line's delay (the cross-check of the joint fit).");
   }
   std::vector<std::vector<std::string>> settings;
   for (const Param& p : res.extra) settings.push_back({p.key, param_text(p)});

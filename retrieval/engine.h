@@ -39,6 +39,17 @@ namespace sw {
 ///                 the centroid as for kEdgeRows.
 enum class ReferenceSpectrum { kFieldFree, kEdgeRows, kDelayAverage };
 
+/// A further photoelectron line of the same XUV and IR fields (joint fit of several lines,
+/// retrieval/multi_line_fit.h): its own binding energy, relative strength and relative
+/// photoemission delay; its counts lie at kinetic energies [energy_lo_au, energy_hi_au].
+struct ExtraLine {
+  std::string name;                 ///< "2s", "Kr 4p", ...
+  double ionization_energy_au = 0;  ///< > 0
+  double energy_lo_au = 0, energy_hi_au = 0;  ///< kinetic band of its counts (a.u.)
+  double strength = 1.0;            ///< initial |d_line|^2 / |d_reference|^2 (> 0)
+  double delay_au = 0.0;            ///< initial relative delay (+ = emitted later)
+};
+
 /// What an engine is asked to explain: a preprocessed trace on engine-ready axes.
 /// Built by retrieval/preprocess.h from a measured Trace.
 struct RetrievalProblem {
@@ -73,6 +84,8 @@ struct RetrievalProblem {
   /// weight of 0 (saturated bins) means the element is not data: projections keep the model
   /// there and least squares ignore it.
   Eigen::MatrixXd weight;
+  /// Further lines fitted jointly with the reference (full-model engine only; empty = one line).
+  std::vector<ExtraLine> extra_lines;
 };
 
 /// Options shared by every engine; engine-specific settings go in `extra` as name=value

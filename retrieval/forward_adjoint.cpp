@@ -228,16 +228,31 @@ void ForwardAdjoint::blur_row_transpose(const double* in, double* out) const {
   }
 }
 
+namespace {
+
+// Applies `op` (a row map of the resolution kernel) to every row of c, in place.
+template <class Op>
+void map_rows(Eigen::MatrixXd& c, std::size_t ne, Op op) {
+  if (c.cols() != static_cast<Eigen::Index>(ne))
+    throw std::invalid_argument("ForwardAdjoint: blurred counts need one column per energy");
+  std::vector<double> row(ne), out(ne);
+  for (Eigen::Index i = 0; i < c.rows(); ++i) {
+    for (std::size_t j = 0; j < ne; ++j) row[j] = c(i, static_cast<Eigen::Index>(j));
+    op(row.data(), out.data());
+    for (std::size_t j = 0; j < ne; ++j) c(i, static_cast<Eigen::Index>(j)) = out[j];
+  }
+}
+
+}  // namespace
+
 void ForwardAdjoint::blur_counts(Eigen::MatrixXd& c) const {
   if (blur_first_.empty()) return;
-  if (c.cols() != static_cast<Eigen::Index>(energy_.size()))
-    throw std::invalid_argument("ForwardAdjoint::blur_counts: columns != energies");
-  std::vector<double> row(energy_.size()), out(energy_.size());
-  for (Eigen::Index i = 0; i < c.rows(); ++i) {
-    for (std::size_t j = 0; j < row.size(); ++j) row[j] = c(i, static_cast<Eigen::Index>(j));
-    blur_row(row.data(), out.data());
-    for (std::size_t j = 0; j < row.size(); ++j) c(i, static_cast<Eigen::Index>(j)) = out[j];
-  }
+  map_rows(c, energy_.size(), [&](const double* in, double* out) { blur_row(in, out); });
+}
+
+void ForwardAdjoint::blur_counts_transpose(Eigen::MatrixXd& c) const {
+  if (blur_first_.empty()) return;
+  map_rows(c, energy_.size(), [&](const double* in, double* out) { blur_row_transpose(in, out); });
 }
 
 // Per-thread buffers and accumulators (structure-of-arrays so the inner loops vectorise).

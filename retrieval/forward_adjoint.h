@@ -112,6 +112,8 @@ class ForwardAdjoint {
   double energy_resolution_au() const { return resolution_fwhm_; }
   /// Applies the resolution kernel to every row of counts (delays x energies), in place.
   void blur_counts(Eigen::MatrixXd& counts) const;
+  /// The transpose K^T on every row, in place (adjoints of blurred counts -> of |a|^2).
+  void blur_counts_transpose(Eigen::MatrixXd& counts) const;
 
   /// a(W_j, tau_i) for envelope eps (grid samples about carrier_au) and IR field ir.
   Eigen::MatrixXcd amplitude(const CVec& eps, const IrField& ir) const;

@@ -237,6 +237,39 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
   for (std::size_t r = 0; r < smp.size; ++r)
     probed_[r] = smp.time(r) >= P.delay_au.front() && smp.time(r) <= P.delay_au.back();
   edge_ridge_ = ir_->kind() == "spline";
+
+  // Further lines of a joint fit (header comment).
+  energy_au_ = P.energy_au;
+  omega_bin_.resize(ne_);
+  for (std::size_t j = 0; j < ne_; ++j) omega_bin_[j] = grid_.omega_fft(fft_slot_[j]);
+  for (const ExtraLine& L : P.extra_lines) {
+    const std::string who = "full-model: joint line '" + L.name + "'";
+    if (model_ != MomentumModel::kFull)
+      throw input_error(who + ": several lines are fitted by the full model only");
+    if (!(L.ionization_energy_au > 0) || !(L.energy_lo_au < L.energy_hi_au) || !(L.strength > 0) ||
+        !std::isfinite(L.delay_au))
+      throw input_error(who + ": needs ionization_energy_au > 0, energy_lo_au < energy_hi_au, strength > 0 "
+                              "and a finite delay_au (got " + num(L.ionization_energy_au) + ", " +
+                        num(L.energy_lo_au) + " .. " + num(L.energy_hi_au) + ", " + num(L.strength) + ", " +
+                        num(L.delay_au) + ")");
+    LineTerm t;
+    t.spec = L;
+    while (t.c0 < ne_ && P.energy_au[t.c0] < L.energy_lo_au) ++t.c0;
+    t.c1 = t.c0;
+    while (t.c1 < ne_ && P.energy_au[t.c1] <= L.energy_hi_au) ++t.c1;
+    if (t.c1 < t.c0 + 4)
+      throw input_error(who + ": its band " + num(units::au_to_eV(L.energy_lo_au)) + " .. " +
+                        num(units::au_to_eV(L.energy_hi_au)) + " eV holds " + std::to_string(t.c1 - t.c0) +
+                        " energy bins of the problem: expected at least 4");
+    std::vector<double> E(P.energy_au.begin() + static_cast<long>(t.c0), P.energy_au.begin() + static_cast<long>(t.c1));
+    try {
+      t.fa = std::make_unique<ForwardAdjoint>(L.ionization_energy_au, P.dipole, P.grid, carrier_, P.delay_au,
+                                              std::move(E), threads);
+    } catch (const std::invalid_argument& e) {
+      throw input_error(who + ": its photon energies fall outside the XUV grid (" + e.what() + ")");
+    }
+    lines_.push_back(std::move(t));
+  }
 }
 
 std::vector<double> FullModelObjective::encode(const std::vector<cdouble>& spec,
@@ -276,8 +309,129 @@ std::vector<double> FullModelObjective::encode(const std::vector<cdouble>& spec,
     x[2 * k + 1] = spec[support_[k]].imag() / (xuv_scale_ * bin_scale_[k]);
   }
   for (std::size_t r = 0; r < theta.size(); ++r) x[num_xuv_ + r] = theta[r] / ir_scale_[r];
+  const std::size_t off = num_xuv_ + theta.size();
+  for (std::size_t l = 0; l < lines_.size(); ++l) {
+    x[off + 2 * l] = std::log(lines_[l].spec.strength);
+    x[off + 2 * l + 1] = lines_[l].spec.delay_au / units::as_to_au(kDelayScaleAs);
+  }
   replan(x.data());
   return x;
+}
+
+double FullModelObjective::line_strength(const double* x, std::size_t l) const {
+  return std::exp(x[num_xuv_ + ir_->num_params() + 2 * l]);
+}
+
+double FullModelObjective::line_delay_au(const double* x, std::size_t l) const {
+  return x[num_xuv_ + ir_->num_params() + 2 * l + 1] * units::as_to_au(kDelayScaleAs);
+}
+
+std::vector<cdouble> FullModelObjective::line_spectrum(const std::vector<cdouble>& spec, const double* x,
+                                                       std::size_t l) const {
+  const double g = std::sqrt(line_strength(x, l)), t = line_delay_au(x, l);
+  std::vector<cdouble> out(ne_, 0.0);
+  for (std::size_t j : support_) out[j] = g * std::polar(1.0, omega_bin_[j] * t) * spec[j];
+  return out;
+}
+
+CVec FullModelObjective::to_envelope(const std::vector<cdouble>& s) const {
+  CVec S(n_, 0.0), eps(n_);
+  for (std::size_t j = 0; j < ne_; ++j) S[fft_slot_[j]] = s[j];
+  to_time(grid_, Fft(n_), S, eps);
+  return eps;
+}
+
+void FullModelObjective::line_models(const double* x, Eigen::MatrixXd* ref,
+                                     std::vector<Eigen::MatrixXd>* per_line) const {
+  const std::vector<cdouble> spec = spectrum(x);
+  const IrField irf = ir_field(x);
+  *ref = fa_.amplitude(to_envelope(spec), irf).cwiseAbs2();
+  per_line->clear();
+  for (std::size_t l = 0; l < lines_.size(); ++l)
+    per_line->push_back(lines_[l].fa->amplitude(to_envelope(line_spectrum(spec, x, l)), irf).cwiseAbs2());
+}
+
+double FullModelObjective::line_counts_ratio(const double* x, std::size_t l) const {
+  Eigen::MatrixXd ref;
+  std::vector<Eigen::MatrixXd> lm;
+  line_models(x, &ref, &lm);
+  double r = 0, q = 0;
+  for (std::size_t j = 0; j < ne_; ++j) {
+    const double p = units::momentum_au(energy_au_[j]);
+    r += p * ref.col(static_cast<Eigen::Index>(j)).sum();
+    if (j >= lines_[l].c0 && j < lines_[l].c1)
+      q += p * lm[l].col(static_cast<Eigen::Index>(j - lines_[l].c0)).sum();
+  }
+  return r > 0 ? q / r : 0.0;
+}
+
+double FullModelObjective::evaluate_lines(const double* x, double* grad) const {
+  const std::vector<cdouble> spec = spectrum(x);
+  const CVec eps = to_envelope(spec);
+  const std::vector<double> th = ir_theta(x);
+  const IrField irf = ir_->field(th.data());
+  const std::size_t L = lines_.size();
+  std::vector<std::vector<cdouble>> lspec(L);
+  std::vector<CVec> leps(L);
+  std::vector<Eigen::MatrixXcd> al(L);
+  const Eigen::MatrixXcd a0 = fa_.amplitude(eps, irf);
+  Eigen::MatrixXd m = a0.cwiseAbs2();
+  for (std::size_t l = 0; l < L; ++l) {
+    lspec[l] = line_spectrum(spec, x, l);
+    leps[l] = to_envelope(lspec[l]);
+    al[l] = lines_[l].fa->amplitude(leps[l], irf);
+    const auto c0 = static_cast<Eigen::Index>(lines_[l].c0), w = static_cast<Eigen::Index>(lines_[l].c1 - lines_[l].c0);
+    m.middleCols(c0, w) += al[l].cwiseAbs2();
+  }
+  fa_.blur_counts(m);  // the spectrometer resolution acts on the summed counts
+  const Eigen::MatrixXd wm = weight_.cwiseProduct(m);
+  const double c2 = wm.cwiseProduct(m).sum(), c1 = -2.0 * wm.cwiseProduct(measured_).sum(),
+               c0 = weight_.cwiseProduct(measured_).cwiseProduct(measured_).sum();
+  const double mu = c2 > 0 ? -c1 / (2.0 * c2) : 0.0;
+  double C = (c0 + mu * (c1 + mu * c2)) * inv_elements_;
+  std::vector<double> LA, A_edge;
+  C += ir_penalty(irf, &LA, &A_edge);
+  if (!grad) return C;
+  std::vector<double> Ab(irf.size(), 0.0);
+  // a_bar = 2 w (mu m - M) mu a for every line (header comment).
+  Eigen::MatrixXd R = 2.0 * mu * weight_.cwiseProduct(mu * m - measured_);
+  fa_.blur_counts_transpose(R);  // back through the resolution onto each line's |a|^2
+  CVec eb;
+  std::vector<double> A_bar;
+  fa_.vjp(eps, irf, (a0.array() * R.array()).matrix(), &eb, &A_bar);
+  std::vector<cdouble> sb;
+  xuv_adjoint(eb, &sb);
+  for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] += A_bar[r] * inv_elements_;
+  ir_penalty_gradient(LA, A_edge, &Ab);
+  const std::size_t off = num_xuv_ + ir_->num_params();
+  for (std::size_t l = 0; l < L; ++l) {
+    const auto col0 = static_cast<Eigen::Index>(lines_[l].c0), w = static_cast<Eigen::Index>(lines_[l].c1 - lines_[l].c0);
+    const Eigen::MatrixXcd abar = (al[l].array() * R.middleCols(col0, w).array()).matrix();
+    CVec ebl;
+    std::vector<double> Abl;
+    lines_[l].fa->vjp(leps[l], irf, abar, &ebl, &Abl);
+    std::vector<cdouble> sbl;
+    xuv_adjoint(ebl, &sbl);
+    const double g = std::sqrt(line_strength(x, l)), t = line_delay_au(x, l);
+    double g_eta = 0.0, g_t = 0.0;
+    for (std::size_t j : support_) {
+      sb[j] += std::conj(g * std::polar(1.0, omega_bin_[j] * t)) * sbl[j];
+      g_eta += std::real(std::conj(sbl[j]) * lspec[l][j]);
+      g_t += 2.0 * std::real(std::conj(sbl[j]) * cdouble(0.0, omega_bin_[j]) * lspec[l][j]);
+    }
+    grad[off + 2 * l] = g_eta * inv_elements_;
+    grad[off + 2 * l + 1] = g_t * inv_elements_ * units::as_to_au(kDelayScaleAs);
+    for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] += Abl[r] * inv_elements_;
+  }
+  const double gx = 2.0 * xuv_scale_ * inv_elements_;
+  for (std::size_t k = 0; k < support_.size(); ++k) {
+    grad[2 * k] = gx * bin_scale_[k] * sb[support_[k]].real();
+    grad[2 * k + 1] = gx * bin_scale_[k] * sb[support_[k]].imag();
+  }
+  std::vector<double> tb(ir_->num_params());
+  ir_->pullback(th.data(), Ab, tb.data());
+  for (std::size_t r = 0; r < tb.size(); ++r) grad[num_xuv_ + r] = tb[r] * ir_scale_[r];
+  return C;
 }
 
 std::vector<cdouble> FullModelObjective::spectrum(const double* x) const {
@@ -348,8 +502,43 @@ IrField FullModelObjective::ir_field(const double* x) const {
   return ir_->field(th.data());
 }
 
+// IR penalty: kappa [sum_{i probed} (L A)_i^2 + edge x sum_{i not probed} A_i^2], L a Gaussian
+// low pass, "probed" = inside the delay range, edge = 1 for the free form only. LA and A_edge
+// are kept for the gradient.
+double FullModelObjective::ir_penalty(const IrField& irf, std::vector<double>* LA,
+                                      std::vector<double>* A_edge) const {
+  if (!(lowpass_weight_ > 0)) return 0.0;
+  const std::vector<double>& A = irf.vector_potential();
+  lowpass(A, LA);
+  double s2 = 0;
+  for (std::size_t r = 0; r < LA->size(); ++r) {
+    if (!probed_[r]) (*LA)[r] = 0.0;
+    s2 += (*LA)[r] * (*LA)[r];
+  }
+  if (edge_ridge_) {
+    A_edge->assign(A.size(), 0.0);
+    for (std::size_t r = 0; r < A.size(); ++r)
+      if (!probed_[r]) {
+        (*A_edge)[r] = A[r];
+        s2 += A[r] * A[r];
+      }
+  }
+  return lowpass_weight_ * s2;
+}
+
+void FullModelObjective::ir_penalty_gradient(const std::vector<double>& LA, const std::vector<double>& A_edge,
+                                             std::vector<double>* Ab) const {
+  if (!(lowpass_weight_ > 0)) return;
+  std::vector<double> LLA;
+  lowpass(LA, &LLA);  // L is symmetric: L^T = L (LA already masked)
+  for (std::size_t r = 0; r < Ab->size(); ++r) (*Ab)[r] += 2.0 * lowpass_weight_ * LLA[r];
+  if (edge_ridge_)
+    for (std::size_t r = 0; r < Ab->size(); ++r) (*Ab)[r] += 2.0 * lowpass_weight_ * A_edge[r];
+}
+
 double FullModelObjective::evaluate(const double* x, double* grad) const {
   ++evaluations_;
+  if (!lines_.empty()) return evaluate_lines(x, grad);
   const std::vector<cdouble> spec = spectrum(x);
   const CVec eps = envelope(x);
   const std::vector<double> th = ir_theta(x);
@@ -377,27 +566,8 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
   const double mu = P.mu;
   const double c2 = P.c2 + spec_2, c1 = P.c1 + spec_1, c0 = P.c0 + spec_0;
   double C = (c0 + mu * (c1 + mu * c2)) * inv_elements_;
-  // IR penalty: kappa [sum_{i probed} (L A)_i^2 + edge x sum_{i not probed} A_i^2], L a Gaussian
-  // low pass, "probed" = inside the delay range, edge = 1 for the free form only.
   std::vector<double> LA, A_edge;
-  if (lowpass_weight_ > 0) {
-    const std::vector<double>& A = irf.vector_potential();
-    lowpass(A, &LA);
-    double s2 = 0;
-    for (std::size_t r = 0; r < LA.size(); ++r) {
-      if (!probed_[r]) LA[r] = 0.0;
-      s2 += LA[r] * LA[r];
-    }
-    if (edge_ridge_) {
-      A_edge.assign(A.size(), 0.0);
-      for (std::size_t r = 0; r < A.size(); ++r)
-        if (!probed_[r]) {
-          A_edge[r] = A[r];
-          s2 += A[r] * A[r];
-        }
-    }
-    C += lowpass_weight_ * s2;
-  }
+  C += ir_penalty(irf, &LA, &A_edge);
   if (grad) {
     std::vector<cdouble> sb;
     xuv_adjoint(P.eps_bar, &sb);
@@ -410,13 +580,7 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
     }
     std::vector<double> Ab(irf.size());
     for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] = P.A_bar[r] * inv_elements_;
-    if (lowpass_weight_ > 0) {
-      std::vector<double> LLA;
-      lowpass(LA, &LLA);  // L is symmetric: L^T = L (LA already masked)
-      for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] += 2.0 * lowpass_weight_ * LLA[r];
-      if (edge_ridge_)
-        for (std::size_t r = 0; r < Ab.size(); ++r) Ab[r] += 2.0 * lowpass_weight_ * A_edge[r];
-    }
+    ir_penalty_gradient(LA, A_edge, &Ab);
     std::vector<double> tb(ir_->num_params());
     ir_->pullback(th.data(), Ab, tb.data());
     for (std::size_t r = 0; r < tb.size(); ++r) grad[num_xuv_ + r] = tb[r] * ir_scale_[r];
@@ -425,6 +589,20 @@ double FullModelObjective::evaluate(const double* x, double* grad) const {
 }
 
 Eigen::MatrixXd FullModelObjective::model(const double* x, double* mu) const {
+  if (!lines_.empty()) {
+    Eigen::MatrixXd m;
+    std::vector<Eigen::MatrixXd> lm;
+    line_models(x, &m, &lm);
+    for (std::size_t l = 0; l < lines_.size(); ++l)
+      m.middleCols(static_cast<Eigen::Index>(lines_[l].c0), static_cast<Eigen::Index>(lines_[l].c1 - lines_[l].c0)) += lm[l];
+    fa_.blur_counts(m);
+    if (mu) {
+      const Eigen::MatrixXd wm = weight_.cwiseProduct(m);
+      const double c2 = wm.cwiseProduct(m).sum(), c1 = -2.0 * wm.cwiseProduct(measured_).sum();
+      *mu = c2 > 0 ? -c1 / (2.0 * c2) : 0.0;
+    }
+    return m;
+  }
   const std::vector<cdouble> spec = spectrum(x);
   ScaledCostParts P;
   Eigen::MatrixXd m;
@@ -446,11 +624,17 @@ void FullModelObjective::replan(const double* x) {
   o.momentum = MomentumModel::kFull;
   o.chebyshev_nodes = settings_.chebyshev_nodes;
   o.max_block_phase_rad = settings_.block_phase_rad;
-  fa_.plan_full(ir_field(x), o);
+  const IrField irf = ir_field(x);
+  fa_.plan_full(irf, o);
+  for (LineTerm& t : lines_) t.fa->plan_full(irf, o);
 }
 
 bool FullModelObjective::plan_covers(const double* x, double slack) const {
-  return fa_.plan_covers(ir_field(x), slack);
+  const IrField irf = ir_field(x);
+  if (!fa_.plan_covers(irf, slack)) return false;
+  for (const LineTerm& t : lines_)
+    if (!t.fa->plan_covers(irf, slack)) return false;
+  return true;
 }
 
 // --- a pausable L-BFGS run ----------------------------------------------------------------------
@@ -863,9 +1047,14 @@ Reconstruction LeastSquaresEngine::finalize() {
   fo.max_block_phase_rad = settings_.block_phase_rad;
   fo.energy_jacobian = false;
   fo.threads = options_.threads;
-  r.retrieved = ForwardModel(problem_.ionization_energy_au, problem_.dipole, fo)
-                    .trace(r.xuv, r.ir, problem_.delay_au, problem_.energy_au);
-  f.apply_resolution(r.retrieved);  // counts as the spectrometer records them
+  if (f.num_lines() > 0) {
+    // Joint fit: the model of every line (the reference's own ForwardModel would miss the others).
+    r.retrieved = f.model(best_x_.data(), nullptr);
+  } else {
+    r.retrieved = ForwardModel(problem_.ionization_energy_au, problem_.dipole, fo)
+                      .trace(r.xuv, r.ir, problem_.delay_au, problem_.energy_au);
+    f.apply_resolution(r.retrieved);  // counts as the spectrometer records them
+  }
   r.trace_error = trace_error(problem_.intensity, r.retrieved, &r.scale, &problem_.weight);
   r.termination = done_ ? Termination::kConverged : Termination::kMaxIterations;
   r.message = last_termination_.empty() ? "L-BFGS still running" : "L-BFGS: " + last_termination_;
@@ -916,6 +1105,21 @@ Reconstruction LeastSquaresEngine::finalize() {
   S.emplace_back("spectrum_constraint", settings_.spectrum_constraint);
   S.emplace_back("ir_lowpass_weight", num(settings_.ir_lowpass_weight));
   for (const auto& [k, v] : options_.extra) S.emplace_back("extra." + k, v);
+  for (std::size_t l = 0; l < f.num_lines(); ++l) {
+    // Joint lines (read back by retrieval/multi_line_fit.cpp; full precision).
+    std::ostringstream d, g, c;
+    d.precision(12);
+    g.precision(12);
+    c.precision(12);
+    d << units::au_to_as(f.line_delay_au(best_x_.data(), l));
+    g << f.line_strength(best_x_.data(), l);
+    c << f.line_counts_ratio(best_x_.data(), l);
+    const std::string k = "joint_line." + std::to_string(l) + ".";
+    S.emplace_back(k + "name", f.line(l).name);
+    S.emplace_back(k + "delay_as", d.str());
+    S.emplace_back(k + "strength", g.str());
+    S.emplace_back(k + "counts_ratio", c.str());
+  }
   return r;
 }
 

@@ -77,6 +77,21 @@
 //
 // Extra options (EngineOptions::extra, name=value): the fields of FullModelSettings below,
 // described once in FullModelSettings::describe (defaults, limits, help).
+//
+// Several photoelectron lines (RetrievalProblem::extra_lines; retrieval/multi_line_fit.h): one
+// XUV field and one IR field shared by all lines. Line l has its own binding energy Ip_l (its
+// amplitude is the reference model with Ip_l: photon energy W + Ip_l), a strength s_l and a
+// relative photoemission delay t_l, a linear spectral phase of its dipole, i.e. the time-shifted
+// replica sqrt(s_l) eps(t - t_l) of the XUV envelope (E~_l = sqrt(s_l) E~ exp(i w t_l), w the
+// offset from the carrier, with the grid's convention eps(t) = int dw/2pi E~(w) e^{-i w t}); an
+// electron emitted t_l later sees A(tau + t_l). The counts of different lines add incoherently:
+//   model_ij = |a_ref,ij|^2 + sum_l s_l |a_l,ij|^2  (a_l on the columns of its kinetic band),
+// and the cost is the one above with this model (scale mu eliminated the same way). The
+// parameters of line l follow the IR parameters: ln s_l and t_l / (10 as). The gradient goes
+// through each line's own adjoint (ForwardAdjoint::vjp with a_bar = 2 w (mu m - M) mu a_l) and
+// the line's spectral map: d/dt_l = 2 Re sum conj(E~bar_l) i w E~_l, d/d ln s_l = Re sum
+// conj(E~bar_l) E~_l. The field-free-spectrum term is not used in this mode (the reference
+// spectrum then holds every line).
 
 #include <memory>
 #include <string>
@@ -199,7 +214,9 @@ class FullModelObjective {
   FullModelObjective(const RetrievalProblem& problem, const FullModelSettings& settings,
                      MomentumModel model, std::unique_ptr<IrParametrization> ir, int threads);
 
-  int num_parameters() const { return static_cast<int>(num_xuv_ + ir_->num_params()); }
+  int num_parameters() const {
+    return static_cast<int>(num_xuv_ + ir_->num_params() + 2 * lines_.size());
+  }
   std::size_t num_xuv_parameters() const { return num_xuv_; }
   /// Cost C(x); gradient dC/dx when grad is not null.
   double evaluate(const double* x, double* grad) const;
@@ -221,6 +238,15 @@ class FullModelObjective {
 
   /// IR parameters whose field is that of theta minus its low-pass part (the penalty's L).
   std::vector<double> without_low_frequencies(const std::vector<double>& theta) const;
+  /// Further lines of a joint fit (RetrievalProblem::extra_lines), in the problem's order.
+  std::size_t num_lines() const { return lines_.size(); }
+  const ExtraLine& line(std::size_t l) const { return lines_[l].spec; }
+  /// Strength s_l and relative delay t_l (a.u.) of line l at x.
+  double line_strength(const double* x, std::size_t l) const;
+  double line_delay_au(const double* x, std::size_t l) const;
+  /// Modelled counts of line l over the reference's (|a|^2 x p summed over the whole scan).
+  double line_counts_ratio(const double* x, std::size_t l) const;
+
   /// Momentum blocks from the IR of x (kFull); no-op for the CMA.
   void replan(const double* x);
   bool plan_covers(const double* x, double slack) const;
@@ -240,6 +266,24 @@ class FullModelObjective {
   void xuv_adjoint(const CVec& eps_bar, std::vector<cdouble>* spec_bar) const;
   void lowpass(const std::vector<double>& a, std::vector<double>* out) const;
   bool spectrum_term() const;
+  double evaluate_lines(const double* x, double* grad) const;
+  double ir_penalty(const IrField& irf, std::vector<double>* LA, std::vector<double>* A_edge) const;
+  void ir_penalty_gradient(const std::vector<double>& LA, const std::vector<double>& A_edge,
+                           std::vector<double>* Ab) const;
+  /// |a|^2 of the reference and of each line (line l on its columns) at x.
+  void line_models(const double* x, Eigen::MatrixXd* ref, std::vector<Eigen::MatrixXd>* per_line) const;
+  std::vector<cdouble> line_spectrum(const std::vector<cdouble>& spec, const double* x, std::size_t l) const;
+  CVec to_envelope(const std::vector<cdouble>& spec) const;
+
+  struct LineTerm {
+    ExtraLine spec;
+    std::unique_ptr<ForwardAdjoint> fa;
+    std::size_t c0 = 0, c1 = 0;  // columns [c0, c1) of the problem's energy axis
+  };
+  std::vector<LineTerm> lines_;
+  std::vector<double> energy_au_;
+  std::vector<double> omega_bin_;  // FFT angular frequency (about the carrier) of each energy bin
+  static constexpr double kDelayScaleAs = 10.0;
 
   MomentumModel model_;
   FullModelSettings settings_;

@@ -88,6 +88,9 @@ struct LineDelayOptions {
   bool coulomb_laser_correction = true;
   /// Charge of the residual ion seen by the photoelectron (> 0; 1 for neutral targets).
   double ion_charge = 1.0;
+  /// Fit the analysed lines jointly with the pulse (full model, retrieval/multi_line_fit.h):
+  /// its delays and strengths are then reported, the centre-of-energy ones beside them.
+  bool joint_fit = true;
   std::string validate() const;  ///< "" when valid; else names field, value and rule
 };
 

@@ -131,6 +131,10 @@ struct LineEntry {
   std::optional<double> clc_delay_as;         ///< this line's Coulomb-laser coupling delay
   std::optional<double> clc_correction_as;    ///< t_CLC(line) - t_CLC(reference), subtracted
   std::optional<double> relative_delay_as_corrected;  ///< relative_delay_as - clc_correction_as
+  /// The centre-of-energy values kept beside a joint fit's (retrieval/multi_line_fit.h) as the
+  /// cross-check; absent when the delay itself is the centre-of-energy one.
+  std::optional<double> relative_delay_as_centre_of_energy, relative_delay_as_centre_of_energy_sigma;
+  std::optional<double> relative_strength_centre_of_energy, relative_strength_centre_of_energy_sigma;
 };
 
 struct AnalysisResult {

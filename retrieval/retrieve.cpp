@@ -9,6 +9,7 @@
 
 #include "retrieval/classifier.h"
 #include "retrieval/error.h"
+#include "retrieval/multi_line_fit.h"
 #include "retrieval/pulse_metrics.h"
 #include "retrieval/quality.h"
 #include "retrieval/satellite_seed.h"
@@ -280,6 +281,39 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     out.chain.push_back(run(opt.engine, eo));
   }
   out.reconstruction = out.chain.back();
+  // Several photoelectron lines (retrieval/multi_line_fit.h): centre-of-energy delays, then the
+  // joint fit of the analysed lines from the single-line result; its pulse is the headline.
+  const std::string single_engine = final_engine;
+  const std::size_t single_runs = out.chain.size();
+  JointLineStep lines_step;
+  const EngineRunner runner = [&](const RetrievalProblem& p, const std::string& name, const EngineOptions& o,
+                                  const std::string& stage) { return run_on(p, name, o, stage); };
+  EngineOptions jeo = eo;
+  jeo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+  if (out.preprocess.lines.size() >= 2 && trace.meta.kind != TraceKind::kRabbitt &&
+      !(opt.line_delays.names.size() == 1 && opt.line_delays.names[0] == "none")) {
+    ClassifierOptions lc;
+    lc.isolated_max_satellite_ratio = opt.isolated_max_satellite_ratio;
+    lc.satellite_max_ratio = opt.satellites_max_satellite_ratio;
+    if (classify(trace, lc, &out.reconstruction).pulse_class != PulseClass::kTrain) {
+      LineDelayOptions lo = opt.line_delays;
+      lo.seed = opt.seed;
+      lines_step = joint_line_estimate(trace, opt.preprocess, lo, pr, out.preprocess, out.reconstruction, jeo, runner);
+      if (lines_step.used) {
+        out.chain.push_back(lines_step.reconstruction);
+        out.reconstruction = lines_step.reconstruction;
+        out.problem = lines_step.joint.problem;  // pr (a reference to it) from here on
+        out.preprocess.window_lo_eV = lines_step.joint.summary.window_lo_eV;
+        out.preprocess.window_hi_eV = lines_step.joint.summary.window_hi_eV;
+        out.preprocess.window_source = "joint lines";
+        out.preprocess.grid_size = lines_step.joint.summary.grid_size;
+        out.preprocess.grid_dt_as = lines_step.joint.summary.grid_dt_as;
+        final_engine = "full-model";
+      }
+    }
+  }
+  // Runs fitted to the headline's problem (the joint fit alone when it ran).
+  const std::size_t first_same = lines_step.used ? single_runs : 0;
   const Reconstruction& rec = out.reconstruction;
   const PulseMetrics m = pulse_metrics(rec, pr.ir_omega_au, band_lo, band_hi);
   // The CMA's own error for every CMA run of the chain (auto computed it for the first).
@@ -293,9 +327,10 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   // The chain's runs whose fits are equally good (retrieve.h): their spread is the retrieval's
   // own systematic uncertainty.
   double best_g = rec.trace_error;
-  for (const auto& c : out.chain) best_g = std::min(best_g, c.trace_error);
+  for (std::size_t ci = first_same; ci < out.chain.size(); ++ci) best_g = std::min(best_g, out.chain[ci].trace_error);
   std::vector<PulseMetrics> comparable;
-  for (const auto& c : out.chain) {
+  for (std::size_t ci = first_same; ci < out.chain.size(); ++ci) {
+    const Reconstruction& c = out.chain[ci];
     if (!(c.trace_error <= opt.quality.comparable_fit_ratio * best_g)) continue;
     if (c.model != "full" && c.ir.size() >= 5 && cma_error_of(c) > opt.cma_phase_error_max_rad) continue;
     comparable.push_back(pulse_metrics(c, pr.ir_omega_au, band_lo, band_hi));
@@ -329,18 +364,18 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
     const std::string stage = "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
     Reconstruction br;
-    if (warm) {
+    if (warm && !lines_step.used) {
       // retrieval/uncertainty.h: the final engine from the estimate, until it stops moving.
       EngineOptions wo = bo;
-      if (final_engine == "full-model")
+      if (single_engine == "full-model")
         wo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
       wo.initial_xuv = rec.xuv;
       wo.initial_ir = rec.ir;
       wo.noise_floor_factor = 0.0;
       wo.relative_tolerance = std::max(wo.relative_tolerance, wo.noise_floor_relative_tolerance);
       wo.patience = opt.warm_patience;
-      br = run_on(rp, final_engine, wo, stage);
-    } else if (final_engine == "full-model") {
+      br = run_on(rp, single_engine, wo, stage);
+    } else if (single_engine == "full-model") {
       // The same chain as the estimate: from the replica's own CMA result, or from the full
       // model's own guess when that is where the estimate came from.
       EngineOptions fo = bo;
@@ -356,7 +391,12 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
         if (sr.trace_error < br.trace_error) br = std::move(sr);
       }
     } else {
-      br = run_on(rp, final_engine, bo, stage);
+      br = run_on(rp, single_engine, bo, stage);
+    }
+    if (lines_step.used) {  // the joint fit on the replica, from its single-line result
+      EngineOptions jb = bo;
+      jb.max_iterations = jeo.max_iterations;
+      if (auto jr = joint_line_replica(lines_step, rep, opt.preprocess, rp, ps, br, jb, stage, runner)) br = std::move(*jr);
     }
     const auto [rlo, rhi] = band_of(rp);
     const PulseMetrics bm = pulse_metrics(br, pr.ir_omega_au, rlo, rhi);
@@ -499,18 +539,10 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
   if (res.lines.size() >= 2 && comb && !(opt.line_delays.names.size() == 1 && opt.line_delays.names[0] == "none"))
     res.warnings.push_back("line delays not measured: the scan is a pulse train (harmonic comb); the "
                            "centre-of-energy method assumes one isolated line per ionic state");
-  if (res.lines.size() >= 2 && !comb) {
-    std::vector<double> bg_bin(trace.energy_au.size());
-    for (std::size_t j = 0; j < bg_bin.size(); ++j) bg_bin[j] = s.background.at(units::au_to_eV(trace.energy_au[j]));
-    LineDelayOptions lo = opt.line_delays;
-    lo.seed = opt.seed;
-    LineDelayResult ld = measure_line_delays(trace, res.lines, bg_bin, lo);
-    for (auto& w : ld.warnings) res.warnings.push_back(std::move(w));
-    if (ld.done) {
-      res.lines = std::move(ld.lines);
-      for (auto& x : ld.extra) res.extra.push_back(std::move(x));
-      out.line_curves = std::move(ld.curves);
-    }
+  if (lines_step.centre_of_energy) {  // measured before the bootstrap (joint fit, multi_line_fit.h)
+    for (const auto& w : lines_step.centre_of_energy->warnings) res.warnings.push_back(w);
+    for (const auto& w : lines_step.warnings) res.warnings.push_back(w);
+    joint_line_report(lines_step, opt.bootstrap, &res.lines, &res.extra, &out.line_curves);
   }
   P("fit.model", rec.model);
   P("fit.noise_floor_trace_error", rec.noise_floor_trace_error);
@@ -593,9 +625,13 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt, const Re
     // Two full-model starts (auto, when the CMA stalled), and the CMA run against the result.
     std::vector<const Reconstruction*> full;
     const Reconstruction* cma = nullptr;
-    for (const auto& c : out.chain) {
-      if (c.model == "full") full.push_back(&c);
-      else if (!cma) cma = &c;
+    for (std::size_t ci = 0; ci < out.chain.size(); ++ci) {
+      const Reconstruction& c = out.chain[ci];
+      if (c.model == "full") {
+        if (ci >= first_same) full.push_back(&c);  // starts on the headline's problem
+      } else if (!cma) {
+        cma = &c;
+      }
     }
     const double f_final = res.xuv->fwhm_as.value_or(0.0);
     auto fwhm_of = [&](const Reconstruction& c) { return *pulse_metrics(c, pr.ir_omega_au, band_lo, band_hi).xuv.fwhm_as; };

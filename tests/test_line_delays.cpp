@@ -1,6 +1,8 @@
 // Relative photoemission delays of two photoelectron lines (retrieval/line_delays.h).
 #include <catch2/catch.hpp>
 
+#include <cstdio>
+
 #include <cmath>
 #include <random>
 
@@ -159,7 +161,23 @@ TEST_CASE("retrieve on a generated neon 2s/2p scan names both lines and gives th
   CHECK(s2->analysed);
   REQUIRE(s2->relative_delay_as);
   REQUIRE(s2->relative_delay_as_sigma);
-  INFO("2s delay " << *s2->relative_delay_as << " +- " << *s2->relative_delay_as_sigma << " as");
+  INFO("2s delay " << *s2->relative_delay_as << " +- " << *s2->relative_delay_as_sigma << " as ("
+                    << s2->delay_method << "); centre of energy "
+                    << s2->relative_delay_as_centre_of_energy.value_or(-999) << " +- "
+                    << s2->relative_delay_as_centre_of_energy_sigma.value_or(-999) << " as; FWHM "
+                    << out.result.xuv->fwhm_as.value_or(0) << " as (truth " << *s.truth.xuv->fwhm_as << " as)");
+  std::printf("2s delay %g +- %g as (%s); centre of energy %g +- %g; FWHM %g (truth %g); strength %g\n",
+              *s2->relative_delay_as, *s2->relative_delay_as_sigma, s2->delay_method.c_str(),
+              s2->relative_delay_as_centre_of_energy.value_or(-999),
+              s2->relative_delay_as_centre_of_energy_sigma.value_or(-999), out.result.xuv->fwhm_as.value_or(0),
+              *s.truth.xuv->fwhm_as, s2->relative_strength.value_or(0));
+  // Default options: the joint fit of both lines (retrieval/multi_line_fit.h), the centre of
+  // energy beside it.
+  CHECK(s2->delay_method == "joint full-model fit");
+  REQUIRE(s2->relative_delay_as_centre_of_energy);
+  CHECK(std::abs(*s2->relative_delay_as_centre_of_energy - 30.0) < 3 * *s2->relative_delay_as_centre_of_energy_sigma);
+  // The issue's XUV target: within 5 % of the generator's pulse.
+  CHECK(std::abs(*out.result.xuv->fwhm_as / *s.truth.xuv->fwhm_as - 1.0) < 0.05);
   CHECK(std::abs(*s2->relative_delay_as - 30.0) < 3 * *s2->relative_delay_as_sigma);
   CHECK(*s2->relative_delay_as_sigma < 5.0);
   // The Coulomb-laser correction of 2s (71.5 eV) against 2p (98.4 eV): t_CLC(71.5) - t_CLC(98.4)

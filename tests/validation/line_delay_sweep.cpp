@@ -5,7 +5,10 @@
 // chain, no bootstrap) and compared with the truth.
 // Writes OUT/validation_line_delays.csv, OUT/validation_line_delays_table.md and
 // OUT/figures/line_delay_*.png.
-// Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar]
+// With --joint B, every retrieved row runs retrieve() with default options and B bootstrap
+// replicas: the joint fit of the lines (retrieval/multi_line_fit.h) gives the pulse and the
+// delay with its sigma; written to OUT/validation_line_delays_joint.csv and _joint_table.md.
+// Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] [--joint B] [--delays LIST] [--strengths LIST]
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -36,6 +39,11 @@ struct Row {
   bool found = false;
   double delay_as = 0, sigma_as = 0, sigma_fit_as = 0, strength = 0, strength_sigma = 0, chi2 = 0;
   double truth_fwhm = 0, fwhm = 0;  // fwhm 0 = not retrieved
+  // --joint: retrieve() with default options (joint fit when two lines are analysed).
+  bool joint = false;
+  std::string method;
+  double j_delay = 0, j_sigma = 0, j_strength = 0, j_strength_sigma = 0, j_coe = 0, j_coe_sigma = 0;
+  bool j_trusted = false;
   double seconds = 0;
 };
 
@@ -73,6 +81,8 @@ int main(int argc, char** argv) {
   double band_factor = LineDelayOptions().band_half_width_factor;
   int band_iterations = LineDelayOptions().band_iterations;
   std::string only_target;
+  int joint_bootstrap = -1;  // -1: no joint rows
+  std::vector<double> only_delays, only_strengths;
   for (int i = 2; i < argc; ++i) {
     const std::string a = argv[i];
     if (a == "--quick") quick = true;
@@ -83,7 +93,14 @@ int main(int argc, char** argv) {
     else if (a == "--band" && i + 1 < argc) band_factor = std::atof(argv[++i]);
     else if (a == "--band-iterations" && i + 1 < argc) band_iterations = std::atoi(argv[++i]);
     else if (a == "--target" && i + 1 < argc) only_target = argv[++i];
-    else {
+    else if (a == "--joint" && i + 1 < argc) joint_bootstrap = std::atoi(argv[++i]);
+    else if (a == "--delays" && i + 1 < argc) {
+      std::stringstream ds(argv[++i]);
+      for (std::string t; std::getline(ds, t, ',');) only_delays.push_back(std::atof(t.c_str()));
+    } else if (a == "--strengths" && i + 1 < argc) {
+      std::stringstream ds(argv[++i]);
+      for (std::string t; std::getline(ds, t, ',');) only_strengths.push_back(std::atof(t.c_str()));
+    } else {
       std::fprintf(stderr, "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar]\n");
       return 2;
     }
@@ -91,10 +108,12 @@ int main(int argc, char** argv) {
   std::filesystem::create_directories(out + "/figures");
   std::vector<std::string> targets = quick ? std::vector<std::string>{"Ne"} : std::vector<std::string>{"Ne", "Ar"};
   if (!only_target.empty()) targets = {only_target};
-  const std::vector<double> delays = {-50, -20, 0, 20, 50};
+  std::vector<double> delays = {-50, -20, 0, 20, 50};
+  if (!only_delays.empty()) delays = only_delays;
   std::vector<double> strengths = quick ? std::vector<double>{0.3} : std::vector<double>{0.1, 0.3, 1.0};
   std::vector<double> peaks = quick ? std::vector<double>{300} : std::vector<double>{100, 300, 1000};
   if (only_strength > 0) strengths = {only_strength};
+  if (!only_strengths.empty()) strengths = only_strengths;
   if (only_peak > 0) peaks = {only_peak};
   std::vector<Row> rows;
   int n = 0;
@@ -148,9 +167,25 @@ int main(int argc, char** argv) {
             if (retrieve_every > 0 && (n - 1) % retrieve_every == 0) {
               RetrieveOptions ro;
               ro.bootstrap = 0;
-              ro.line_delays.names = {"none"};
+              if (joint_bootstrap >= 0) {
+                ro.bootstrap = joint_bootstrap;  // default line options: the joint fit
+              } else {
+                ro.line_delays.names = {"none"};
+              }
               const RetrieveOutput rr = retrieve(s.trace, ro);
               r.fwhm = rr.result.xuv->fwhm_as.value_or(0);
+              r.j_trusted = rr.result.quality && rr.result.quality->trusted;
+              for (const LineEntry& l : rr.result.lines)
+                if (joint_bootstrap >= 0 && !l.reference && l.relative_delay_as) {
+                  r.joint = true;
+                  r.method = l.delay_method;
+                  r.j_delay = *l.relative_delay_as;
+                  r.j_sigma = l.relative_delay_as_sigma.value_or(0);
+                  r.j_strength = l.relative_strength.value_or(0);
+                  r.j_strength_sigma = l.relative_strength_sigma.value_or(0);
+                  r.j_coe = l.relative_delay_as_centre_of_energy.value_or(0);
+                  r.j_coe_sigma = l.relative_delay_as_centre_of_energy_sigma.value_or(0);
+                }
             }
           } catch (const std::exception& e) {
             std::fprintf(stderr, "  failed: %s\n", e.what());
@@ -159,6 +194,10 @@ int main(int argc, char** argv) {
           std::fprintf(stderr, "%s peak %5.0f strength %.1f delay %+4.0f: %s %7.2f +- %5.2f as (fit %5.2f) strength %.3f/%.3f chi2 %.2f FWHM %.1f/%.1f %.1f s\n",
                        tg.c_str(), peak, st, d, r.found ? "found" : "MISSED", r.delay_as, r.sigma_as, r.sigma_fit_as,
                        r.strength, r.truth_strength, r.chi2, r.fwhm, r.truth_fwhm, r.seconds);
+          if (r.joint)
+            std::fprintf(stderr, "   joint (%s): %7.2f +- %5.2f as, strength %.3f +- %.3f, centre of energy %7.2f +- %5.2f as, %s\n",
+                         r.method.c_str(), r.j_delay, r.j_sigma, r.j_strength, r.j_strength_sigma, r.j_coe, r.j_coe_sigma,
+                         r.j_trusted ? "trusted" : "not trusted");
           rows.push_back(r);
         }
 
@@ -215,6 +254,50 @@ int main(int argc, char** argv) {
      << fw_ok << "/" << fw_n << " retrieved rows.\n";
   std::fprintf(stderr, "delay within 3 sigma: %d/%d; sigma <= 5 as at >= 300 counts: %d/%d; FWHM within 5 %%: %d/%d\n",
                within, total, sig_ok, sig_n, fw_ok, fw_n);
+
+  if (joint_bootstrap >= 0) {
+    // Joint rows: retrieve() with default options.
+    std::ofstream jc(out + "/validation_line_delays_joint.csv");
+    jc << "target,peak_counts,strength_inserted,strength_truth,delay_inserted_as,delay_method,delay_as,delay_sigma_as,"
+          "strength,strength_sigma,delay_centre_of_energy_as,delay_centre_of_energy_sigma_as,xuv_fwhm_truth_as,xuv_fwhm_as,"
+          "trusted,seconds\n";
+    int jn = 0, jw = 0, jf = 0, js_n = 0, js_ok = 0, jt = 0, cw = 0, rows_run = 0;
+    for (const Row& r : rows) {
+      if (!(r.fwhm > 0)) continue;
+      ++rows_run;
+      jc << r.target << "," << r.peak << "," << r.strength_in << "," << r.truth_strength << "," << r.inserted_as << ","
+         << (r.joint ? r.method : std::string("none")) << "," << r.j_delay << "," << r.j_sigma << "," << r.j_strength << ","
+         << r.j_strength_sigma << "," << r.j_coe << "," << r.j_coe_sigma << "," << r.truth_fwhm << "," << r.fwhm << ","
+         << (r.j_trusted ? 1 : 0) << "," << r.seconds << "\n";
+      if (!r.joint) continue;
+      ++jn;
+      if (r.j_sigma > 0 && std::abs(r.j_delay - r.inserted_as) <= 3 * r.j_sigma) ++jw;
+      if (r.j_coe_sigma > 0 && std::abs(r.j_coe - r.inserted_as) <= 3 * r.j_coe_sigma) ++cw;
+      if (std::abs(r.fwhm / r.truth_fwhm - 1) <= 0.05) ++jf;
+      if (r.j_trusted) ++jt;
+      if (r.peak >= 300) {
+        ++js_n;
+        if (r.j_sigma > 0 && r.j_sigma <= 5) ++js_ok;
+      }
+    }
+    std::ofstream jm(out + "/validation_line_delays_joint_table.md");
+    jm << "| target | peak counts | strength | inserted (as) | joint delay (as) | centre of energy (as) | strength (truth) | "
+          "XUV FWHM / truth (as) | trusted |\n|---|---|---|---|---|---|---|---|---|\n";
+    for (const Row& r : rows) {
+      if (!(r.fwhm > 0)) continue;
+      jm << "| " << r.target << " | " << r.peak << " | " << r.strength_in << " | " << r.inserted_as << " | "
+         << (r.joint ? f(r.j_delay, 4) + " ± " + f(r.j_sigma, 2) : std::string("-")) << " | "
+         << (r.joint ? f(r.j_coe, 4) + " ± " + f(r.j_coe_sigma, 2) : std::string("-")) << " | "
+         << (r.joint ? f(r.j_strength, 3) + " ± " + f(r.j_strength_sigma, 2) : std::string("-")) << " (" << f(r.truth_strength, 3)
+         << ") | " << f(r.fwhm, 4) << " / " << f(r.truth_fwhm, 4) << " | " << (r.j_trusted ? "yes" : "no") << " |\n";
+    }
+    jm << "\nJoint rows (retrieve, default options, " << joint_bootstrap << " replicas): " << jn << " of " << rows_run
+       << " retrieved rows fitted jointly; delay within 3 sigma in " << jw << "/" << jn << " (centre of energy: " << cw << "/"
+       << jn << "); sigma <= 5 as in " << js_ok << "/" << js_n << " rows at >= 300 peak counts; XUV FWHM within 5 % in " << jf
+       << "/" << jn << "; trusted " << jt << "/" << jn << ".\n";
+    std::fprintf(stderr, "joint: %d/%d rows jointly fitted; delay within 3 sigma %d/%d (centre of energy %d/%d); sigma <= 5 as at >= 300 counts %d/%d; FWHM within 5 %% %d/%d; trusted %d/%d\n",
+                 jn, rows_run, jw, jn, cw, jn, js_ok, js_n, jf, jn, jt, jn);
+  }
 
   // Figures: measured - inserted with error bars per row; sigma versus peak counts.
   LinePlot p;
