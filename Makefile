@@ -15,7 +15,7 @@ PRESET  ?= neon-150as
 DEPS := cmake g++ make pkg-config libeigen3-dev libfftw3-dev libceres-dev \
         libopencv-core-dev libopencv-imgproc-dev libopencv-imgcodecs-dev \
         catch2 libcli11-dev nlohmann-json3-dev libfmt-dev libhdf5-dev libbenchmark-dev \
-        python3-dev pybind11-dev python3-numpy python3-scipy python3-pytest
+        python3-dev pybind11-dev python3-numpy python3-scipy python3-pytest clang-format
 # python3-matplotlib: the batch-trends example (docs/examples/plot_batch_trends.py) and its test.
 # slurm-wlm, munge: the Slurm array test (tests/slurm/, runs only as root); their services stay
 # off until /etc/slurm/slurm.conf exists, the test starts private daemons of its own.
@@ -23,7 +23,7 @@ DEPS += python3-matplotlib slurm-wlm munge
 
 FUZZ_SECONDS ?= 60
 
-.PHONY: deps configure build test demo demo-batch bench fuzz clean format
+.PHONY: deps configure build test demo demo-batch bench fuzz clean format format-check
 
 deps:
 	@missing=""; for p in $(DEPS); do dpkg -s $$p >/dev/null 2>&1 || missing="$$missing $$p"; done; \
@@ -73,6 +73,10 @@ fuzz: deps
 
 format:
 	clang-format -i $$(git ls-files '*.h' '*.cpp')
+
+# Fails (and lists the places) when a tracked source is not clang-format clean (.ci/run).
+format-check: deps
+	clang-format --dry-run --Werror $$(git ls-files '*.h' '*.cpp')
 
 clean:
 	rm -rf $(BUILD) $(DEMO)

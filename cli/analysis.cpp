@@ -8,26 +8,27 @@
 
 #include "cli/output_folder.h"
 #include "cli/progress.h"
-#include "io/input_guard.h"
 #include "cli/provenance.h"
 #include "io/classify_outputs.h"
+#include "io/input_guard.h"
 #include "io/rabbitt_outputs.h"
 #include "io/retrieval_outputs.h"
 #include "io/trace_reader.h"
-#include "retrieval/enum_names.h"
-#include "retrieval/error.h"
+#include "retrieval/core/enum_names.h"
+#include "retrieval/core/error.h"
 
 namespace sw::cli {
 
-constexpr EnumNames<AnalysisKind, 4> kAnalysisKindNames{{{
-    {AnalysisKind::kAuto, "auto"},
-    {AnalysisKind::kRetrieve, "retrieve"},
-    {AnalysisKind::kRabbitt, "rabbitt"},
-    {AnalysisKind::kClassify, "classify"}}}};
+constexpr EnumNames<AnalysisKind, 4> kAnalysisKindNames{{{{AnalysisKind::kAuto, "auto"},
+                                                          {AnalysisKind::kRetrieve, "retrieve"},
+                                                          {AnalysisKind::kRabbitt, "rabbitt"},
+                                                          {AnalysisKind::kClassify, "classify"}}}};
 
 const char* to_string(AnalysisKind v) { return kAnalysisKindNames.name(v); }
 
-bool parse_analysis_kind(const std::string& s, AnalysisKind* out) { return kAnalysisKindNames.parse(s, out); }
+bool parse_analysis_kind(const std::string& s, AnalysisKind* out) {
+  return kAnalysisKindNames.parse(s, out);
+}
 
 TraceReadOverrides read_overrides(const ScanOverrides& o) {
   TraceReadOverrides r;
@@ -96,11 +97,13 @@ ClassifyAnalysisOptions classify_options(const ScanJob& job) {
 Error scan_error(const Error& e, const std::string& sidecar) {
   std::string message = e.what();
   // Every message names the file (an engine's own message may not).
-  if (const std::string shown = printable_path(sidecar);
-      !sidecar.empty() && message.find(shown) == std::string::npos && message.find(sidecar) == std::string::npos)
+  if (const std::string shown = printable_path(sidecar); !sidecar.empty() &&
+                                                         message.find(shown) == std::string::npos &&
+                                                         message.find(sidecar) == std::string::npos)
     message = "scan '" + shown + "': " + message;
   if (e.kind() == ErrorKind::kNumeric)  // nothing was written: not the exit 4 of a result
-    return Error(ErrorKind::kInput, message + " (no estimate could be computed from this input; nothing was written)");
+    return Error(ErrorKind::kInput,
+                 message + " (no estimate could be computed from this input; nothing was written)");
   return Error(e.kind(), message);
 }
 
@@ -120,9 +123,11 @@ ScanOutcome run_scan(const ScanJob& job) {
   try {
     // Overrides are applied by the reader (a time-of-flight fit needs the gas, wavelength and
     // kind the analysis will use).
-    const Trace trace = read_trace(job.sidecar, nullptr, read_overrides(job.overrides), job.read_policy);
+    const Trace trace =
+        read_trace(job.sidecar, nullptr, read_overrides(job.overrides), job.read_policy);
     if (job.after_read) job.after_read(trace);
-    const AnalysisKind kind = job.analysis == AnalysisKind::kAuto ? auto_analysis(trace) : job.analysis;
+    const AnalysisKind kind =
+        job.analysis == AnalysisKind::kAuto ? auto_analysis(trace) : job.analysis;
     o.analysis_run = kind;
     std::vector<Param> prov = provenance(job.sidecar, trace.meta.image, to_string(kind));
     // The calibration of a time-of-flight axis (calibration.*) goes into every result.
@@ -141,24 +146,29 @@ ScanOutcome run_scan(const ScanJob& job) {
       std::optional<Trace> xuv_only;
       if (!job.xuv_only_sidecar.empty())
         xuv_only = read_trace(job.xuv_only_sidecar, nullptr, {}, job.read_policy);
-      RabbittOutput out = analyse_rabbitt(trace, xuv_only ? &*xuv_only : nullptr, rabbitt_options(job), progress);
+      RabbittOutput out =
+          analyse_rabbitt(trace, xuv_only ? &*xuv_only : nullptr, rabbitt_options(job), progress);
       add_provenance(out.result, prov, job.sidecar);
-      write_rabbitt_outputs(out.trace, out.analysis, out.burst ? &*out.burst : nullptr, out.result, job.out_dir,
-                            job.figure_format);
+      write_rabbitt_outputs(out.trace, out.analysis, out.burst ? &*out.burst : nullptr, out.result,
+                            job.out_dir, job.figure_format);
       o.result = out.result;
     } else {
       ClassifyOutput out = analyse_classify(trace, classify_options(job), progress);
       add_provenance(out.result, prov, job.sidecar);
-      write_classify_outputs(out.trace, out.result, out.retrieval ? &out.retrieval->reconstruction : nullptr,
+      write_classify_outputs(out.trace, out.result,
+                             out.retrieval ? &out.retrieval->reconstruction : nullptr,
                              out.ir_wavelength_nm, job.out_dir, job.figure_format);
       o.result = out.result;
     }
     o.ok = true;
     if (const std::string bad = find_non_finite_output(job.out_dir); !bad.empty())
-      throw input_error("the analysis produced non-finite numbers (NaN or infinity) from this "
-                        "input, in '" + printable_path(bad) +
-                        "'; no estimate can be written (check the counts and 'scale' of the "
-                        "sidecar '" + printable_path(job.sidecar) + "')");
+      throw input_error(
+          "the analysis produced non-finite numbers (NaN or infinity) from this "
+          "input, in '" +
+          printable_path(bad) +
+          "'; no estimate can be written (check the counts and 'scale' of the "
+          "sidecar '" +
+          printable_path(job.sidecar) + "')");
   } catch (const Error& e) {
     o.ok = false;
     const Error shown = scan_error(e, job.sidecar);
@@ -190,9 +200,12 @@ std::string find_non_finite_output(const std::string& dir) {
     bool in_string = false, escaped = false;
     for (std::size_t i = 0; i < text.size(); ++i) {
       if (json && in_string) {  // JSON text values are words, not numbers
-        if (escaped) escaped = false;
-        else if (text[i] == '\\') escaped = true;
-        else if (text[i] == '"') in_string = false;
+        if (escaped)
+          escaped = false;
+        else if (text[i] == '\\')
+          escaped = true;
+        else if (text[i] == '"')
+          in_string = false;
         continue;
       }
       if (json && text[i] == '"') {
@@ -208,7 +221,8 @@ std::string find_non_finite_output(const std::string& dir) {
       std::string word = text.substr(i, j - i);
       for (char& w : word) w = static_cast<char>(std::tolower(static_cast<unsigned char>(w)));
       if ((word == "nan" || word == "inf" || word == "infinity") &&
-          (j == text.size() || !(std::isalnum(static_cast<unsigned char>(text[j])) || text[j] == '_'))) {
+          (j == text.size() ||
+           !(std::isalnum(static_cast<unsigned char>(text[j])) || text[j] == '_'))) {
         // Inside a JSON string ("name": "inf...") is text, not a number: require the token to
         // follow a separator of numbers.
         const char before = i == 0 ? ',' : text[i - 1];
@@ -240,20 +254,19 @@ ScanOutcome run_scan_or_throw(ScanJob job) {
     std::string image = t.meta.image;
     if (const auto colon = image.find(":/"); colon != std::string::npos) image.resize(colon);
     const std::filesystem::path q(image), base = std::filesystem::path(sidecar).parent_path();
-    check_output_folder(final_out, {(q.is_absolute() || base.empty() ? q : base / q).string()},
-                        {});
+    check_output_folder(final_out, {(q.is_absolute() || base.empty() ? q : base / q).string()}, {});
   };
   InterruptScope interrupts;
   Progress progress(job.quiet);
   job.progress = [&](const std::string& stage, const std::string& m) {
-    if (InterruptScope::signal_received())
-      throw Error(ErrorKind::kInternal, "interrupted");
+    if (InterruptScope::signal_received()) throw Error(ErrorKind::kInternal, "interrupted");
     progress.update(stage, m);
   };
   ScanOutcome o = run_scan(job);
   progress.done();
   if (const int sig = InterruptScope::signal_received())
-    throw InterruptedError(std::string("interrupted by ") + (sig == SIGTERM ? "SIGTERM" : "SIGINT") +
+    throw InterruptedError(std::string("interrupted by ") +
+                               (sig == SIGTERM ? "SIGTERM" : "SIGINT") +
                                "; the analysis stopped and nothing was written ('" +
                                printable_path(final_out) + "' is unchanged)",
                            InterruptScope::exit_code());
@@ -265,7 +278,9 @@ ScanOutcome run_scan_or_throw(ScanJob job) {
     std::string failed;
     for (const auto& c : o.result.quality->checks)
       if (!c.pass && c.guards_headline) failed += (failed.empty() ? "" : ", ") + c.name;
-    std::fprintf(stderr, "streakwright %s: warning: the result is not trusted (failed checks: %s); see quality in result.json\n",
+    std::fprintf(stderr,
+                 "streakwright %s: warning: the result is not trusted (failed checks: %s); see "
+                 "quality in result.json\n",
                  to_string(o.analysis_run), failed.c_str());
   }
   return o;

@@ -9,14 +9,14 @@
 
 #include "io/plot.h"
 #include "io/trace_reader.h"
-#include "retrieval/analyses.h"
-#include "retrieval/classifier.h"
-#include "retrieval/error.h"
-#include "retrieval/rabbitt.h"
-#include "retrieval/result.h"
-#include "retrieval/retrieve.h"
-#include "retrieval/trace.h"
-#include "retrieval/train_burst.h"
+#include "retrieval/analysis/analyses.h"
+#include "retrieval/analysis/classifier.h"
+#include "retrieval/analysis/rabbitt.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/analysis/train_burst.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/result.h"
+#include "retrieval/core/trace.h"
 
 namespace sw::cli {
 
@@ -36,30 +36,30 @@ struct ScanOverrides {
 };
 
 struct ScanJob {
-  std::string sidecar;                 ///< input sidecar path
-  std::string out_dir;                 ///< output folder of this scan
+  std::string sidecar;  ///< input sidecar path
+  std::string out_dir;  ///< output folder of this scan
   AnalysisKind analysis = AnalysisKind::kAuto;
   ScanOverrides overrides;
-  RetrieveOptions retrieve;            ///< options of the streaking retrieval
+  RetrieveOptions retrieve;                ///< options of the streaking retrieval
   std::string atomic_correction = "auto";  ///< rabbitt: auto | none
-  bool quiet = true;                   ///< no progress output
+  bool quiet = true;                       ///< no progress output
   /// Figures as PNG (default) or SVG (--figure-format); report.html embeds whichever.
   plot::FigureFormat figure_format = plot::FigureFormat::kPng;
   /// Called with (stage, message) during long work; may be empty.
   std::function<void(const std::string&, const std::string&)> progress;
-  std::vector<Param> extra_provenance; ///< e.g. batch options, appended to the result
+  std::vector<Param> extra_provenance;  ///< e.g. batch options, appended to the result
   /// Where data files may lie (io/trace_reader.h): batch input roots, --allow-outside-data.
   TraceReadPolicy read_policy;
   /// Called with the trace right after reading, before any analysis (e.g. the output-folder
   /// check against the data file's folder); may throw sw::Error. May be empty.
   std::function<void(const Trace&)> after_read;
-  // --- rabbitt and classify (retrieval/analyses.h) ---
+  // --- rabbitt and classify (retrieval/analysis/analyses.h) ---
   /// rabbitt: sidecar of a field-free (XUV-only) scan whose spectrum gives the harmonic
   /// amplitudes of the average burst; "" = use the delay-integrated RABBITT spectrum.
   std::string xuv_only_sidecar;
   /// rabbitt: analysis options; atomic.mode is set from atomic_correction above.
   RabbittOptions rabbitt;
-  /// rabbitt: average-burst options (retrieval/analyses.h).
+  /// rabbitt: average-burst options (retrieval/analysis/analyses.h).
   TrainBurstOptions train_burst = rabbitt_train_burst_defaults();
   /// Verdict thresholds of classify and rabbitt. The two satellite-ratio thresholds are taken
   /// from retrieve.isolated_max_satellite_ratio / satellites_max_satellite_ratio (one place
@@ -72,11 +72,11 @@ struct ScanJob {
 
 struct ScanOutcome {
   bool ok = false;
-  std::string message;                 ///< failure reason ("" when ok)
-  int exit_code = 0;                   ///< the single-scan exit code it corresponds to
+  std::string message;                          ///< failure reason ("" when ok)
+  int exit_code = 0;                            ///< the single-scan exit code it corresponds to
   ErrorKind error_kind = ErrorKind::kInternal;  ///< kind of the failure when !ok
   AnalysisKind analysis_run = AnalysisKind::kAuto;
-  AnalysisResult result;               ///< filled when ok (also written to out_dir/result.json)
+  AnalysisResult result;  ///< filled when ok (also written to out_dir/result.json)
   double seconds = 0.0;
 };
 
@@ -121,8 +121,8 @@ TraceReadOverrides read_overrides(const ScanOverrides& o);
 /// The analysis kAuto picks for a scan that has been read (see AnalysisKind).
 AnalysisKind auto_analysis(const Trace& trace);
 
-/// The library options of a job's rabbitt and classify analyses (retrieval/analyses.h): the
-/// satellite-ratio thresholds come from job.retrieve, the engine override applies.
+/// The library options of a job's rabbitt and classify analyses (retrieval/analysis/analyses.h):
+/// the satellite-ratio thresholds come from job.retrieve, the engine override applies.
 RabbittAnalysisOptions rabbitt_options(const ScanJob& job);
 ClassifyAnalysisOptions classify_options(const ScanJob& job);
 

@@ -13,9 +13,9 @@
 
 #include "cli/structured_file.h"
 #include "io/atomic_file.h"
-#include "retrieval/engine.h"
-#include "retrieval/error.h"
-#include "retrieval/trace.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/trace.h"
+#include "retrieval/engines/engine.h"
 
 namespace sw::cli {
 

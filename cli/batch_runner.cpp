@@ -27,9 +27,9 @@
 #include "io/input_guard.h"
 #include "io/result_io.h"
 #include "io/trace_reader.h"
-#include "retrieval/dipole.h"
-#include "retrieval/error.h"
-#include "retrieval/format.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
+#include "retrieval/physics/dipole.h"
 #include "streakwright_version.h"
 
 namespace sw::cli {
@@ -244,7 +244,9 @@ Effective effective(const BatchScan& s, const BatchOptions& o) {
 
 // Worker threads per scan: as given, or (0, the default) the machine's cores with one job and
 // one thread per job with --jobs > 1.
-int engine_threads(const BatchOptions& o) { return o.jobs > 1 && o.retrieve.threads == 0 ? 1 : o.retrieve.threads; }
+int engine_threads(const BatchOptions& o) {
+  return o.jobs > 1 && o.retrieve.threads == 0 ? 1 : o.retrieve.threads;
+}
 
 }  // namespace
 
@@ -264,20 +266,24 @@ namespace {
 
 // The retrieve options of a batch string, from RetrieveOptions::describe: `name=value` for every
 // field with batch = true, with the seed, engine and thread count the scans actually get.
-void append_retrieve_texts(std::ostringstream& s, const BatchOptions& o, const std::string& seed_key,
-                           const std::string& seed, const std::string& engine) {
+void append_retrieve_texts(std::ostringstream& s, const BatchOptions& o,
+                           const std::string& seed_key, const std::string& seed,
+                           const std::string& engine) {
   for (auto [k, v] : described_texts(o.retrieve)) {
     if (k == "seed") {
       k = seed_key;
       v = seed;
-    } else if (k == "engine") v = engine;
-    else if (k == "threads") v = std::to_string(engine_threads(o));
+    } else if (k == "engine")
+      v = engine;
+    else if (k == "threads")
+      v = std::to_string(engine_threads(o));
     s << ";" << k << "=" << v;
   }
   const RetrieveOptions& r = o.retrieve;
   for (const auto& [k, v] : r.engine_extra) s << ";engine." << k << "=" << v;
   if (r.preprocess.energy_window_lo_eV != 0 || r.preprocess.energy_window_hi_eV != 0)
-    s << ";energy_window=" << num(r.preprocess.energy_window_lo_eV) << ":" << num(r.preprocess.energy_window_hi_eV);
+    s << ";energy_window=" << num(r.preprocess.energy_window_lo_eV) << ":"
+      << num(r.preprocess.energy_window_hi_eV);
 }
 
 }  // namespace
@@ -287,7 +293,8 @@ std::string batch_options_string(const BatchOptions& o) {
   s << "analysis=" << to_string(o.analysis) << ";atomic_correction=" << o.atomic_correction;
   append_retrieve_texts(s, o, "base_seed", std::to_string(o.retrieve.seed), o.retrieve.engine);
   // Only when not the default, so results written before the option existed stay reusable.
-  if (o.figure_format != plot::FigureFormat::kPng) s << ";figure_format=" << to_string(o.figure_format);
+  if (o.figure_format != plot::FigureFormat::kPng)
+    s << ";figure_format=" << to_string(o.figure_format);
   return s.str();
 }
 
@@ -302,7 +309,8 @@ std::string scan_options_string(const BatchScan& scan, const BatchOptions& o) {
     << ";override.kind=" << e.overrides.kind.value_or("");
   // Only when not the default, so results written before the option existed stay reusable;
   // --resume then redoes a scan whose figures are in the other format.
-  if (o.figure_format != plot::FigureFormat::kPng) s << ";figure_format=" << to_string(o.figure_format);
+  if (o.figure_format != plot::FigureFormat::kPng)
+    s << ";figure_format=" << to_string(o.figure_format);
   return s.str();
 }
 

@@ -33,7 +33,7 @@
 #include "cli/analysis.h"
 #include "cli/batch_inputs.h"
 #include "cli/batch_summary.h"
-#include "retrieval/retrieve.h"
+#include "retrieval/analysis/retrieve.h"
 
 namespace sw::cli {
 

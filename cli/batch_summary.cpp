@@ -13,8 +13,8 @@
 #include "io/figures.h"
 #include "io/report_html.h"
 #include "io/result_io.h"
-#include "retrieval/error.h"
-#include "retrieval/format.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
 #include "streakwright_version.h"
 
 namespace sw::cli {
@@ -31,7 +31,7 @@ std::string csv_cell(const std::string& s) {
   return q + "\"";
 }
 
-/// Display of value +- sigma (retrieval/format.h: sigma to two significant digits).
+/// Display of value +- sigma (retrieval/core/format.h: sigma to two significant digits).
 std::string display(const std::optional<double>& v, const std::optional<double>& s) {
   if (!v) return "";
   return format_value_sigma(*v, s && *s > 0 ? s : std::nullopt);
@@ -144,8 +144,10 @@ const std::vector<HeadlineQuantity>& headline_quantities() {
       {"satellite_intensity_ratio", "satellite / main intensity",
        &SummaryRow::satellite_intensity_ratio, &SummaryRow::satellite_intensity_ratio_sigma},
       {"trace_error", "trace error G", &SummaryRow::trace_error, nullptr},
-      {"line_delay_as", "second-line delay (as)", &SummaryRow::line_delay_as, &SummaryRow::line_delay_as_sigma},
-      {"line_strength", "second-line strength", &SummaryRow::line_strength, &SummaryRow::line_strength_sigma},
+      {"line_delay_as", "second-line delay (as)", &SummaryRow::line_delay_as,
+       &SummaryRow::line_delay_as_sigma},
+      {"line_strength", "second-line strength", &SummaryRow::line_strength,
+       &SummaryRow::line_strength_sigma},
   };
   return q;
 }
@@ -157,9 +159,8 @@ const std::vector<std::string>& summary_columns() {
       v.push_back(q.column);
       if (q.sigma) v.push_back(std::string(q.column) + "_sigma");
     }
-    for (const char* s :
-         {"seconds", "converged", "trusted", "failed_checks", "reused", "acquired", "input", "input_hash",
-          "report", "delay_line"})
+    for (const char* s : {"seconds", "converged", "trusted", "failed_checks", "reused", "acquired",
+                          "input", "input_hash", "report", "delay_line"})
       v.push_back(s);
     return v;
   }();
@@ -210,7 +211,8 @@ SummaryRow row_from_result(const std::string& scan, const AnalysisResult& r) {
   }
   if (r.quality) {
     row.trusted = r.quality->trusted;
-    for (const auto& f : r.quality->failed) row.failed_checks += (row.failed_checks.empty() ? "" : ";") + f;
+    for (const auto& f : r.quality->failed)
+      row.failed_checks += (row.failed_checks.empty() ? "" : ";") + f;
   }
   if (row.converged && !*row.converged)
     row.message = "the engine did not converge (best estimate written, converged: false)";
@@ -414,7 +416,8 @@ void write_summary_outputs(const std::string& dir, const std::vector<SummaryRow>
   HtmlReport page(title);
   std::ostringstream counts;
   counts << rows.size() << " scans: " << ok << " ok, " << rows.size() - ok << " failed";
-  if (untrusted) counts << "; " << untrusted << " of the ok results not trusted (quality checks failed)";
+  if (untrusted)
+    counts << "; " << untrusted << " of the ok results not trusted (quality checks failed)";
   if (reused) counts << " (" << reused << " results reused by --resume)";
   counts << ". Tables: summary.csv and summary.json in this folder.";
   page.add_paragraph(counts.str());

@@ -16,7 +16,7 @@
 #include <vector>
 
 #include "io/plot.h"
-#include "retrieval/result.h"
+#include "retrieval/core/result.h"
 
 namespace sw::cli {
 

@@ -16,11 +16,11 @@
 #include "cli/output_folder.h"
 #include "cli/structured_file.h"
 #include "io/input_guard.h"
-#include "retrieval/dipole.h"
-#include "retrieval/engine.h"
-#include "retrieval/error.h"
-#include "retrieval/lines.h"
-#include "retrieval/trace.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/trace.h"
+#include "retrieval/engines/engine.h"
+#include "retrieval/physics/dipole.h"
+#include "retrieval/preprocess/lines.h"
 
 namespace sw::cli {
 
@@ -38,8 +38,8 @@ struct BatchArgs {
 };
 
 // Config keys of the batch itself; the retrieve options' keys come from RetrieveOptions::describe.
-const std::vector<std::string> kBatchKeys = {"analysis", "jobs", "atomic_correction", "resume", "energy_window",
-                                             "figure_format"};
+const std::vector<std::string> kBatchKeys = {"analysis", "jobs",          "atomic_correction",
+                                             "resume",   "energy_window", "figure_format"};
 
 std::string config_keys_text() {
   std::string list;
@@ -131,7 +131,8 @@ int run_batch_command(BatchArgs& a) {
     throw usage_error("--analysis " + a.analysis +
                       ": expected auto, retrieve, rabbitt or classify");
   if (!a.energy_window.empty())
-    parse_energy_window(a.energy_window, "--energy-window", &o.retrieve.preprocess.energy_window_lo_eV,
+    parse_energy_window(a.energy_window, "--energy-window",
+                        &o.retrieve.preprocess.energy_window_lo_eV,
                         &o.retrieve.preprocess.energy_window_hi_eV);
   if (o.retrieve.engine != "auto") (void)make_engine(o.retrieve.engine);  // lists the names
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
@@ -242,12 +243,16 @@ void add_batch_command(CLI::App& app) {
       "batch",
       "Analyse many scans: folders, sidecars or manifests; resumable, parallel, shardable");
   cmd->footer(
-      std::string("INPUT: a folder (searched recursively for trace sidecars), a sidecar, or a manifest\n"
-      "(.csv, or .json/.yaml with a \"scans\" list; per-scan columns scan, name, gas,\n"
-      "ir_wavelength_nm, engine, kind, analysis). Each scan is written to DIR/<its path relative\n"
-      "to its input folder, without extension>/ (result.json, CSVs, figures, report.html), via a\n"
-      "temporary folder renamed into place. Then DIR/summary.csv, summary.json, trend_*.png\n"
-      "(.svg with --figure-format svg) and index.html. A failed scan never stops the batch.\n") +
+      std::string(
+          "INPUT: a folder (searched recursively for trace sidecars), a sidecar, or a manifest\n"
+          "(.csv, or .json/.yaml with a \"scans\" list; per-scan columns scan, name, gas,\n"
+          "ir_wavelength_nm, engine, kind, analysis). Each scan is written to DIR/<its path "
+          "relative\n"
+          "to its input folder, without extension>/ (result.json, CSVs, figures, report.html), via "
+          "a\n"
+          "temporary folder renamed into place. Then DIR/summary.csv, summary.json, trend_*.png\n"
+          "(.svg with --figure-format svg) and index.html. A failed scan never stops the "
+          "batch.\n") +
       "--config FILE (JSON or YAML): the options below as keys (" + config_keys_text() +
       "; energy_window as \"LO:HI\"),\n"
       "plus gas, ir_wavelength_nm and kind applied to every scan (manifest rows win);\n"
@@ -268,10 +273,11 @@ void add_batch_command(CLI::App& app) {
       cmd->add_option("--analysis", a->analysis, "auto | retrieve | rabbitt | classify")
           ->capture_default_str();
   cmd->add_option("--config", a->config, "batch options and overrides (JSON or YAML)");
-  // The retrieve options of RetrieveOptions::describe (retrieval/retrieve.h).
+  // The retrieve options of RetrieveOptions::describe (retrieval/analysis/retrieve.h).
   a->cli.merge(add_described_options(cmd, a->options.retrieve));
-  a->cli["energy_window"] = cmd->add_option("--energy-window", a->energy_window,
-                                            "analyse only photoelectron energies LO:HI (eV) in every scan");
+  a->cli["energy_window"] =
+      cmd->add_option("--energy-window", a->energy_window,
+                      "analyse only photoelectron energies LO:HI (eV) in every scan");
   a->cli["atomic_correction"] =
       cmd->add_option("--atomic-correction", a->options.atomic_correction, "rabbitt: auto | none")
           ->capture_default_str();

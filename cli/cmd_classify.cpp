@@ -1,6 +1,6 @@
 // `streakwright classify SCAN.json --out DIR`: isolated pulse, isolated pulse with satellites,
 // pulse train or undetermined, with every piece of evidence reported (the analysis itself:
-// analyse_classify, retrieval/analyses.h).
+// analyse_classify, retrieval/analysis/analyses.h).
 #include <cstdio>
 #include <filesystem>
 #include <memory>
@@ -9,10 +9,10 @@
 #include "cli/analysis.h"
 #include "cli/commands.h"
 #include "cli/option_checks.h"
-#include "retrieval/classifier.h"
-#include "retrieval/engine.h"
-#include "retrieval/error.h"
-#include "retrieval/lines.h"
+#include "retrieval/analysis/classifier.h"
+#include "retrieval/core/error.h"
+#include "retrieval/engines/engine.h"
+#include "retrieval/preprocess/lines.h"
 
 namespace sw::cli {
 
@@ -39,7 +39,8 @@ int run_classify(ClassifyArgs& a) {
   job.classifier = a.options;
   job.retrieve = a.retrieve_options;
   if (!a.energy_window.empty())
-    parse_energy_window(a.energy_window, "--energy-window", &job.retrieve.preprocess.energy_window_lo_eV,
+    parse_energy_window(a.energy_window, "--energy-window",
+                        &job.retrieve.preprocess.energy_window_lo_eV,
                         &job.retrieve.preprocess.energy_window_hi_eV);
   job.retrieve.engine = a.engine;
   job.retrieve.iterations = a.iterations;
@@ -100,8 +101,9 @@ void add_classify_command(CLI::App& app) {
                   "IR (driver) wavelength in nm (overrides the sidecar)")
       ->check(ir_wavelength_nm_check());
   cmd->add_option("--gas", a->gas, "target gas (overrides the sidecar; used by --retrieve)");
-  cmd->add_option("--energy-window", a->energy_window,
-                  "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV");
+  cmd->add_option(
+      "--energy-window", a->energy_window,
+      "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV");
   cmd->add_option("--isolated-max", a->options.isolated_max_satellite_ratio,
                   "largest satellite / main-burst peak intensity for 'isolated'")
       ->capture_default_str();

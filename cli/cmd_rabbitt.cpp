@@ -8,11 +8,11 @@
 #include "cli/analysis.h"
 #include "cli/commands.h"
 #include "cli/option_checks.h"
-#include "retrieval/dipole.h"
-#include "retrieval/error.h"
-#include "retrieval/format.h"
-#include "retrieval/lines.h"
-#include "retrieval/rabbitt.h"
+#include "retrieval/analysis/rabbitt.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
+#include "retrieval/physics/dipole.h"
+#include "retrieval/preprocess/lines.h"
 
 namespace sw::cli {
 
@@ -34,11 +34,12 @@ struct RabbittArgs {
 };
 
 std::string summary_line(const AnalysisResult& r) {
-  // Numbers by the one precision policy of retrieval/format.h.
+  // Numbers by the one precision policy of retrieval/core/format.h.
   std::ostringstream s;
   const RabbittSection& b = *r.rabbitt;
   if (b.attochirp_as_per_eV)
-    s << "attochirp " << format_value_sigma(*b.attochirp_as_per_eV, b.attochirp_as_per_eV_sigma, "as/eV");
+    s << "attochirp "
+      << format_value_sigma(*b.attochirp_as_per_eV, b.attochirp_as_per_eV_sigma, "as/eV");
   else
     s << "no attochirp";
   s << " (" << b.sidebands.size() << " sidebands";
@@ -46,7 +47,8 @@ std::string summary_line(const AnalysisResult& r) {
     s << ", SB" << b.sidebands.front().order << "-SB" << b.sidebands.back().order;
   s << ")";
   if (b.train_burst_fwhm_as) {
-    s << "; burst FWHM " << format_value_sigma(*b.train_burst_fwhm_as, b.train_burst_fwhm_as_sigma, "as");
+    s << "; burst FWHM "
+      << format_value_sigma(*b.train_burst_fwhm_as, b.train_burst_fwhm_as_sigma, "as");
     if (b.transform_limited_burst_fwhm_as)
       s << " (TL " << format_g(*b.transform_limited_burst_fwhm_as, kDisplayDigits) << " as)";
   }
@@ -65,7 +67,8 @@ int run_rabbitt(RabbittArgs& a) {
   job.rabbitt = a.options;
   job.rabbitt.rainbow = !a.no_rainbow;
   if (!a.energy_window.empty())
-    parse_energy_window(a.energy_window, "--energy-window", &job.retrieve.preprocess.energy_window_lo_eV,
+    parse_energy_window(a.energy_window, "--energy-window",
+                        &job.retrieve.preprocess.energy_window_lo_eV,
                         &job.retrieve.preprocess.energy_window_hi_eV);
   if (!parse_cross_section_model(a.cross_section, &job.train_burst.cross_section))
     throw usage_error("--cross-section " + a.cross_section + ": expected flat or sfa_dipole");
@@ -137,8 +140,9 @@ void add_rabbitt_command(CLI::App& app) {
       ->capture_default_str();
   cmd->add_flag("--apply-delay-calibration", a->options.apply_delay_calibration,
                 "use the fitted 2 omega frequency for the sideband fits (rescales the delay axis)");
-  cmd->add_option("--energy-window", a->energy_window,
-                  "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV");
+  cmd->add_option(
+      "--energy-window", a->energy_window,
+      "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV");
   cmd->add_flag("--no-rainbow", a->no_rainbow, "skip the per-energy-bin (rainbow) fits");
   add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no warnings on stderr (they stay in the report)");

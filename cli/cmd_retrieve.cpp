@@ -5,16 +5,16 @@
 #include <memory>
 #include <sstream>
 
-#include "cli/commands.h"
 #include "cli/analysis.h"
+#include "cli/commands.h"
 #include "cli/option_checks.h"
 #include "cli/option_registry.h"
-#include "retrieval/engine.h"
-#include "retrieval/error.h"
-#include "retrieval/format.h"
-#include "retrieval/lines.h"
-#include "retrieval/retrieve.h"
-#include "retrieval/dipole.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
+#include "retrieval/engines/engine.h"
+#include "retrieval/physics/dipole.h"
+#include "retrieval/preprocess/lines.h"
 
 namespace sw::cli {
 
@@ -31,27 +31,33 @@ struct RetrieveArgs {
 };
 
 std::string summary_line(const AnalysisResult& r) {
-  // Numbers by the one precision policy of retrieval/format.h.
+  // Numbers by the one precision policy of retrieval/core/format.h.
   const auto g = [](double v) { return format_g(v, kDisplayDigits); };
   std::ostringstream s;
   const auto& x = *r.xuv;
   s << "XUV FWHM " << format_value_sigma(*x.fwhm_as, x.fwhm_as_sigma, "as") << " (TL "
-    << g(*x.transform_limited_fwhm_as) << " as), GDD " << format_value_sigma(*x.gdd_as2, x.gdd_as2_sigma, "as^2")
-    << ", centre " << g(*x.center_photon_energy_eV) << " eV";
+    << g(*x.transform_limited_fwhm_as) << " as), GDD "
+    << format_value_sigma(*x.gdd_as2, x.gdd_as2_sigma, "as^2") << ", centre "
+    << g(*x.center_photon_energy_eV) << " eV";
   if (r.ir && r.ir->peak_vector_potential_au)
-    s << "; IR A0 " << format_value_sigma(*r.ir->peak_vector_potential_au, r.ir->peak_vector_potential_au_sigma, "a.u.");
-  s << "; " << to_string(r.verdict->pulse_class) << " (satellite " << g(100 * r.verdict->satellite_intensity_ratio.value_or(0))
-    << " %); G " << g(r.fit->trace_error.value_or(0)) << (r.fit->converged.value_or(false) ? "" : " NOT CONVERGED")
-    << "; " << r.engine;
-  // Photoelectron lines with their relative delays (retrieval/line_delays.h).
+    s << "; IR A0 "
+      << format_value_sigma(*r.ir->peak_vector_potential_au, r.ir->peak_vector_potential_au_sigma,
+                            "a.u.");
+  s << "; " << to_string(r.verdict->pulse_class) << " (satellite "
+    << g(100 * r.verdict->satellite_intensity_ratio.value_or(0)) << " %); G "
+    << g(r.fit->trace_error.value_or(0))
+    << (r.fit->converged.value_or(false) ? "" : " NOT CONVERGED") << "; " << r.engine;
+  // Photoelectron lines with their relative delays (retrieval/analysis/line_delays.h).
   if (r.lines.size() >= 2) {
     s << "\nlines:";
     for (const LineEntry& l : r.lines) {
       s << " " << (l.gas.empty() ? "" : l.gas + " ") << l.name;
-      if (l.reference) s << " (reference)";
+      if (l.reference)
+        s << " (reference)";
       else if (l.relative_delay_as) {
         s << " delay " << format_value_sigma(*l.relative_delay_as, l.relative_delay_as_sigma, "as");
-        if (l.relative_delay_as_corrected) s << " (" << g(*l.relative_delay_as_corrected) << " as Coulomb-laser corrected)";
+        if (l.relative_delay_as_corrected)
+          s << " (" << g(*l.relative_delay_as_corrected) << " as Coulomb-laser corrected)";
         if (l.relative_strength) s << ", strength " << g(*l.relative_strength);
       } else {
         s << " (no delay)";
@@ -64,13 +70,16 @@ std::string summary_line(const AnalysisResult& r) {
 
 int run_retrieve(RetrieveArgs& a) {
   if (!a.energy_window.empty())
-    parse_energy_window(a.energy_window, "--energy-window", &a.options.preprocess.energy_window_lo_eV,
+    parse_energy_window(a.energy_window, "--energy-window",
+                        &a.options.preprocess.energy_window_lo_eV,
                         &a.options.preprocess.energy_window_hi_eV);
   if (!a.lines.empty()) {
     a.options.line_delays.names.clear();
     std::stringstream ls(a.lines);
     for (std::string n; std::getline(ls, n, ',');) {
-      if (n.empty()) throw usage_error("--lines " + a.lines + ": an empty name; expected NAME[,NAME...] (e.g. 2s) or none");
+      if (n.empty())
+        throw usage_error("--lines " + a.lines +
+                          ": an empty name; expected NAME[,NAME...] (e.g. 2s) or none");
       a.options.line_delays.names.push_back(n);
     }
     if (a.options.line_delays.names.size() > 1 &&
@@ -92,7 +101,9 @@ int run_retrieve(RetrieveArgs& a) {
   std::printf("%s\n", summary_line(o.result).c_str());
   std::printf("report: %s\n", (std::filesystem::path(a.out) / "report.html").string().c_str());
   if (o.exit_code == 4)
-    std::fprintf(stderr, "streakwright retrieve: warning: the engine did not converge; the best estimate was written with converged: false\n");
+    std::fprintf(stderr,
+                 "streakwright retrieve: warning: the engine did not converge; the best estimate "
+                 "was written with converged: false\n");
   return o.exit_code;
 }
 
@@ -100,13 +111,16 @@ int run_retrieve(RetrieveArgs& a) {
 
 void add_retrieve_command(CLI::App& app) {
   auto a = std::make_shared<RetrieveArgs>();
-  auto* cmd = app.add_subcommand("retrieve", "Reconstruct the XUV pulse and the IR streaking field from a scan");
+  auto* cmd = app.add_subcommand(
+      "retrieve", "Reconstruct the XUV pulse and the IR streaking field from a scan");
   std::ostringstream limit;  // the default of --cma-phase-limit (RetrieveOptions)
   limit << RetrieveOptions{}.cma_phase_error_max_rad;
   std::string engines =
       "Engines:\n"
       "  auto           ptychographic first; full-model refinement when the CMA's own phase error\n"
-      "                 (estimated from the retrieved field) exceeds " + limit.str() + " rad (broadband pulses)\n"
+      "                 (estimated from the retrieved field) exceeds " +
+      limit.str() +
+      " rad (broadband pulses)\n"
       "  ptychographic  ePIE applied to streaking (CMA): XUV = object, phase gate = probe\n"
       "  projections    generalized projections (CMA): PCGPA on matched grids, LSGPA otherwise\n"
       "  full-model     least-squares fit of the full SFA model without the CMA (Ceres, L-BFGS)\n"
@@ -116,16 +130,19 @@ void add_retrieve_command(CLI::App& app) {
   cmd->footer(engines);
   cmd->add_option("scan", a->scan, "sidecar of the scan (NAME.json or NAME.yaml)")->required();
   cmd->add_option("--out,-o", a->out, "output folder (created)")->required();
-  // The options of RetrieveOptions::describe (retrieval/retrieve.h).
+  // The options of RetrieveOptions::describe (retrieval/analysis/retrieve.h).
   add_described_options(cmd, a->options);
-  cmd->add_option("--energy-window", a->energy_window,
-                  "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV "
-                  "and the automatic window around the strongest line");
+  cmd->add_option(
+      "--energy-window", a->energy_window,
+      "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV "
+      "and the automatic window around the strongest line");
   add_figure_format_option(cmd, &a->figure_format);
-  cmd->add_option("--lines", a->lines,
-                  "photoelectron lines whose delay relative to the reference (strongest) line is measured: "
-                  "names such as 2s (comma-separated; a line of another gas as 'Kr 4p'), or none; default: every "
-                  "line found");
+  cmd->add_option(
+      "--lines", a->lines,
+      "photoelectron lines whose delay relative to the reference (strongest) line is measured: "
+      "names such as 2s (comma-separated; a line of another gas as 'Kr 4p'), or none; default: "
+      "every "
+      "line found");
   cmd->add_flag("--quiet,-q", a->quiet, "no progress on stderr");
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,
                 "read a data file outside the sidecar's folder tree ('..', absolute or symlinked "

@@ -10,7 +10,7 @@
 #include "cli/option_checks.h"
 #include "cli/summary_compare.h"
 #include "io/atomic_file.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 namespace sw::cli {
 

@@ -6,7 +6,7 @@
 
 #include "cli/analysis.h"
 #include "cli/commands.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 #include "streakwright_version.h"
 
 namespace sw::cli {

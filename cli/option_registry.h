@@ -1,7 +1,7 @@
 #pragma once
 // Command-line flags and config-file keys generated from an options description
-// (retrieval/option_spec.h): each described field with a flag becomes one CLI11 option bound to
-// the field, its --help text the description's help with the unit; each field with a config key
+// (retrieval/core/option_spec.h): each described field with a flag becomes one CLI11 option bound
+// to the field, its --help text the description's help with the unit; each field with a config key
 // can be set from a JSON/YAML value. No option is listed here by hand.
 
 #include <map>
@@ -12,8 +12,8 @@
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
 
-#include "retrieval/error.h"
-#include "retrieval/option_spec.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/option_spec.h"
 
 namespace sw::cli {
 
@@ -92,7 +92,8 @@ bool set_described_from_config(Options& o, const std::string& key, const nlohman
       if (!v.is_string()) fail("a string");
       field = v.get<std::string>();
     } else if constexpr (std::is_enum_v<T>) {
-      if (!v.is_string() || !parse_option(v.get<std::string>(), &field)) fail(std::string(s.choices));
+      if (!v.is_string() || !parse_option(v.get<std::string>(), &field))
+        fail(std::string(s.choices));
     } else if constexpr (std::is_integral_v<T>) {
       if (!v.is_number_integer()) fail("an integer");
       const long long x = v.get<long long>();

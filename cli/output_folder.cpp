@@ -17,7 +17,7 @@
 #include "cli/structured_file.h"
 #include "io/hdf5_reader.h"
 #include "io/input_guard.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 namespace sw::cli {
 
@@ -29,7 +29,9 @@ fs::path folder_of(const fs::path& p) {
   return p.parent_path().empty() ? fs::path(".") : p.parent_path();
 }
 
-bool pid_alive(long pid) { return pid > 0 && (kill(static_cast<pid_t>(pid), 0) == 0 || errno != ESRCH); }
+bool pid_alive(long pid) {
+  return pid > 0 && (kill(static_cast<pid_t>(pid), 0) == 0 || errno != ESRCH);
+}
 
 std::string host_name() {
   char buf[256] = {};

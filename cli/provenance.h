@@ -7,7 +7,7 @@
 #include <string_view>
 #include <vector>
 
-#include "retrieval/result.h"
+#include "retrieval/core/result.h"
 
 namespace sw::cli {
 

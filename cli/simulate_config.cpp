@@ -10,7 +10,7 @@
 
 #include <opencv2/core.hpp>
 
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 #include "synthetic/config_fields.h"
 #include "synthetic/presets.h"
 

@@ -6,7 +6,7 @@
 
 #include "io/atomic_file.h"
 #include "io/input_guard.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 namespace sw::cli {
 
@@ -49,7 +49,8 @@ nlohmann::json read_structured_file(const std::string& path, const std::string& 
   }
   const std::string ext = lower(fs::path(path).extension().string());
   // The YAML reader recurses: bound the nesting before it runs (io/input_guard.h).
-  if (int line = 0; (nesting_depth(text, ext != ".json", limits::kMaxNestingDepth, &line), line > 0))
+  if (int line = 0;
+      (nesting_depth(text, ext != ".json", limits::kMaxNestingDepth, &line), line > 0))
     throw usage_error(what + " '" + shown + "' nests deeper than " +
                       std::to_string(limits::kMaxNestingDepth) + " levels at line " +
                       std::to_string(line) + "; expected a flat list of settings");
@@ -59,8 +60,8 @@ nlohmann::json read_structured_file(const std::string& path, const std::string& 
     } catch (const json::exception& e) {
       std::string why = e.what();
       if (const auto p = why.find("] "); p != std::string::npos) why = why.substr(p + 2);
-      throw usage_error(what + " '" + shown + "' is not valid JSON (RFC 8259): " +
-                        escape_excerpt(why, 200));
+      throw usage_error(what + " '" + shown +
+                        "' is not valid JSON (RFC 8259): " + escape_excerpt(why, 200));
     }
   }
   if (ext == ".yaml" || ext == ".yml") {
@@ -78,7 +79,8 @@ nlohmann::json read_structured_file(const std::string& path, const std::string& 
     } catch (const Error&) {
       throw;
     } catch (const std::exception&) {  // OpenCV's parser throws std::length_error on an empty key
-      throw usage_error(what + " '" + shown + "' is not valid YAML: a malformed mapping (e.g. an empty key)");
+      throw usage_error(what + " '" + shown +
+                        "' is not valid YAML: a malformed mapping (e.g. an empty key)");
     }
   }
   throw usage_error(what + " '" + path + "' has extension '" + ext +

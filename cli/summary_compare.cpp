@@ -8,7 +8,7 @@
 
 #include <fmt/format.h>
 
-#include "retrieval/format.h"
+#include "retrieval/core/format.h"
 
 namespace sw::cli {
 
@@ -109,9 +109,10 @@ std::string comparison_csv(const SummaryComparison& c) {
       for (char ch : scan) q += ch == '"' ? std::string("\"\"") : std::string(1, ch);
       scan = q + "\"";
     }
-    out += scan + "," + m.quantity + "," + format_exact(m.old_value) + "," + format_exact(m.old_sigma) +
-           "," + format_exact(m.new_value) + "," + format_exact(m.new_sigma) + "," +
-           format_exact(m.difference) + "," + format_exact(m.combined_sigma) + "," +
+    out += scan + "," + m.quantity + "," + format_exact(m.old_value) + "," +
+           format_exact(m.old_sigma) + "," + format_exact(m.new_value) + "," +
+           format_exact(m.new_sigma) + "," + format_exact(m.difference) + "," +
+           format_exact(m.combined_sigma) + "," +
            format_exact(std::abs(m.difference) / m.combined_sigma) + "\n";
   }
   return out;

@@ -13,7 +13,7 @@
 #include <opencv2/imgcodecs.hpp>
 
 #include "io/input_guard.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 namespace sw {
 namespace {

@@ -9,10 +9,10 @@
 #include "io/figures.h"
 #include "io/report_html.h"
 #include "io/result_io.h"
-#include "retrieval/error.h"
-#include "retrieval/format.h"
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/pulse_metrics.h"
 #include "streakwright_version.h"
 
 namespace sw {
@@ -68,7 +68,8 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
     for (Eigen::Index i = 0; i < trace.counts.rows(); ++i)
       for (Eigen::Index j = 0; j < trace.counts.cols(); ++j) s[j] += trace.counts(i, j);
     LinePlot lp;
-    lp.title = "delay-integrated spectrum (2 hbar omega = " + format_g(2 * hw, kDisplayDigits) + " eV)";
+    lp.title =
+        "delay-integrated spectrum (2 hbar omega = " + format_g(2 * hw, kDisplayDigits) + " eV)";
     lp.x_label = "photoelectron energy (eV)";
     lp.y_label = "counts (summed over delays)";
     lp.series.push_back({eev, s, {}, "", std::nullopt, false, true, false, 1, false});
@@ -117,11 +118,12 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
       fs::path(trace.meta.source.empty() ? res.input : trace.meta.source).filename().string());
   rep.set_footer(std::string("streakwright ") + STREAKWRIGHT_VERSION);
   if (res.quality) rep.add_quality(*res.quality);
-  rep.add_paragraph(
-      "Input: " + res.input + "\nIR wavelength used: " + format_g(ir_wavelength_nm, kDisplayDigits) + " nm (T/2 = " +
-      format_g(0.5 *
-              units::au_to_as(units::period_au(units::wavelength_nm_to_omega_au(ir_wavelength_nm))), kDisplayDigits) +
-      " as)");
+  rep.add_paragraph("Input: " + res.input + "\nIR wavelength used: " +
+                    format_g(ir_wavelength_nm, kDisplayDigits) + " nm (T/2 = " +
+                    format_g(0.5 * units::au_to_as(units::period_au(
+                                       units::wavelength_nm_to_omega_au(ir_wavelength_nm))),
+                             kDisplayDigits) +
+                    " as)");
   for (const auto& w : res.warnings) rep.add_warning(w);
   std::vector<KeyValueRow> vr;
   vr.push_back({"class", to_string(v.pulse_class), "", std::nullopt});
@@ -136,9 +138,10 @@ void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
   rep.add_key_value_table("Verdict", vr);
   std::vector<std::vector<std::string>> ev;
   for (const Param& p : v.evidence) ev.push_back({p.key, param_text(p)});
-  rep.add_table({"evidence", "value"}, ev,
-                "Evidence (retrieval/classifier.h): spectral fringes at 2 hbar omega, share of "
-                "2 omega oscillation in delay, reconstructed bursts");
+  rep.add_table(
+      {"evidence", "value"}, ev,
+      "Evidence (retrieval/analysis/classifier.h): spectral fringes at 2 hbar omega, share of "
+      "2 omega oscillation in delay, reconstructed bursts");
   rep.add_paragraph(
       "Classes (DESIGN.md; thresholds are options, defaults are common practice with no "
       "published standard): isolated when the largest satellite at about +-T/2 has at most "

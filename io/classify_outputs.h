@@ -1,6 +1,7 @@
 #pragma once
 // Everything `classify` writes into its output folder:
-//   evidence.csv    key, value: every piece of evidence of the verdict (retrieval/classifier.h
+//   evidence.csv    key, value: every piece of evidence of the verdict
+//   (retrieval/analysis/classifier.h
 //                   keys: spectrum.*, delay.*, retrieval.*), numbers or text
 //   scan.png        the scan (counts per bin)
 //   spectrum.png    the delay-integrated photoelectron spectrum (fringes at 2 hbar omega mean
@@ -18,9 +19,9 @@
 
 #include "io/plot.h"
 
-#include "retrieval/engine.h"
-#include "retrieval/result.h"
-#include "retrieval/trace.h"
+#include "retrieval/core/result.h"
+#include "retrieval/core/trace.h"
+#include "retrieval/engines/engine.h"
 
 namespace sw {
 

@@ -8,8 +8,8 @@
 #include <sstream>
 
 #include "io/atomic_file.h"
-#include "retrieval/error.h"
-#include "retrieval/format.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
 
 namespace sw {
 namespace {

@@ -9,8 +9,8 @@
 #include <opencv2/imgproc.hpp>
 
 #include "io/plot_canvas.h"
-#include "retrieval/error.h"
-#include "retrieval/format.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
 
 namespace sw {
 
@@ -61,8 +61,8 @@ std::string check_limits(const char* who, const char* lo_name, const std::option
     }
   }
   if (lo && hi && !(*lo < *hi)) {
-    return std::string(who) + "." + lo_name + " = " + format_g(*lo) + " must be below " + who + "." +
-           hi_name + " = " + format_g(*hi) + ".";
+    return std::string(who) + "." + lo_name + " = " + format_g(*lo) + " must be below " + who +
+           "." + hi_name + " = " + format_g(*hi) + ".";
   }
   return "";
 }

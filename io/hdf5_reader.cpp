@@ -6,7 +6,7 @@
 #include <vector>
 
 #include "io/input_guard.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 #ifdef STREAKWRIGHT_HAVE_HDF5
 #include <poll.h>
@@ -46,7 +46,8 @@ namespace {
 // The HDF5 library itself can crash on a damaged file (a fuzzed file made H5Lexists read out
 // of bounds). So the file is read in a child process: a crash there becomes an input error
 // here, and this process is never touched by the library's reading of hostile bytes.
-Eigen::MatrixXd read_in_process(const std::string& file, const std::string& dataset, const std::string& what) {
+Eigen::MatrixXd read_in_process(const std::string& file, const std::string& dataset,
+                                const std::string& what) {
   H5::Exception::dontPrint();
   try {
     if (!H5::H5File::isHdf5(file)) throw input_error(what + ": '" + file + "' is not an HDF5 file");
@@ -116,7 +117,8 @@ bool write_all(int fd, const void* p, std::size_t n) {
 bool read_all(int fd, void* p, std::size_t n, std::chrono::steady_clock::time_point deadline) {
   char* c = static_cast<char*>(p);
   while (n > 0) {
-    const auto left = std::chrono::duration_cast<std::chrono::milliseconds>(deadline - std::chrono::steady_clock::now());
+    const auto left = std::chrono::duration_cast<std::chrono::milliseconds>(
+        deadline - std::chrono::steady_clock::now());
     if (left.count() <= 0) return false;
     pollfd pfd{fd, POLLIN, 0};
     const int r = ::poll(&pfd, 1, static_cast<int>(std::min<long long>(left.count(), 1000)));
@@ -132,7 +134,8 @@ bool read_all(int fd, void* p, std::size_t n, std::chrono::steady_clock::time_po
   return true;
 }
 
-Eigen::MatrixXd read_isolated(const std::string& file, const std::string& dataset, const std::string& what) {
+Eigen::MatrixXd read_isolated(const std::string& file, const std::string& dataset,
+                              const std::string& what) {
   int fds[2];
   if (::pipe(fds) != 0) return read_in_process(file, dataset, what);
   const pid_t pid = ::fork();
@@ -148,7 +151,8 @@ Eigen::MatrixXd read_isolated(const std::string& file, const std::string& datase
     std::uint8_t status = 0;
     try {
       const Eigen::MatrixXd m = read_in_process(file, dataset, what);
-      const std::uint64_t dims[2] = {static_cast<std::uint64_t>(m.rows()), static_cast<std::uint64_t>(m.cols())};
+      const std::uint64_t dims[2] = {static_cast<std::uint64_t>(m.rows()),
+                                     static_cast<std::uint64_t>(m.cols())};
       (void)(write_all(fds[1], &status, 1) && write_all(fds[1], dims, sizeof dims) &&
              write_all(fds[1], m.data(), sizeof(double) * static_cast<std::size_t>(m.size())));
     } catch (const std::exception& e) {
@@ -172,7 +176,8 @@ Eigen::MatrixXd read_isolated(const std::string& file, const std::string& datase
          dims[1] <= limits::kMaxAxisCount && dims[0] * dims[1] <= limits::kMaxSamples;
     if (ok) {
       m.resize(static_cast<Eigen::Index>(dims[0]), static_cast<Eigen::Index>(dims[1]));
-      ok = read_all(fds[0], m.data(), sizeof(double) * static_cast<std::size_t>(m.size()), deadline);
+      ok =
+          read_all(fds[0], m.data(), sizeof(double) * static_cast<std::size_t>(m.size()), deadline);
     }
   } else if (ok && status == 1) {
     std::uint64_t len = 0;
@@ -190,11 +195,14 @@ Eigen::MatrixXd read_isolated(const std::string& file, const std::string& datase
   if (ok && status == 0) return m;
   if (ok && status == 1) throw input_error(msg);
   if (WIFSIGNALED(ws) && WTERMSIG(ws) != SIGKILL)
-    throw input_error(what + ": the HDF5 library crashed reading it (signal " + std::to_string(WTERMSIG(ws)) +
-                      "): the file is damaged; export the dataset again, or convert it to a 16-bit PNG, a TIFF "
-                      "or a CSV file");
-  throw input_error(what + ": the HDF5 file could not be read within 300 s or its reader stopped early; "
-                           "export the dataset again, or convert it to a 16-bit PNG, a TIFF or a CSV file");
+    throw input_error(
+        what + ": the HDF5 library crashed reading it (signal " + std::to_string(WTERMSIG(ws)) +
+        "): the file is damaged; export the dataset again, or convert it to a 16-bit PNG, a TIFF "
+        "or a CSV file");
+  throw input_error(
+      what +
+      ": the HDF5 file could not be read within 300 s or its reader stopped early; "
+      "export the dataset again, or convert it to a 16-bit PNG, a TIFF or a CSV file");
 }
 
 }  // namespace

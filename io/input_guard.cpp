@@ -10,7 +10,7 @@
 #include <fstream>
 #include <set>
 
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 namespace sw {
 namespace {
@@ -40,14 +40,13 @@ void check_stat(const struct stat& st, const std::string& path, std::uint64_t ma
 
 }  // namespace
 
-void check_regular_file(const std::string& path, std::uint64_t max_bytes,
-                        const std::string& what) {
+void check_regular_file(const std::string& path, std::uint64_t max_bytes, const std::string& what) {
   struct stat st;
   if (::stat(path.c_str(), &st) != 0)
     throw input_error(what + " '" + printable_path(path) + "' " +
-                      (errno == ENOENT ? std::string("does not exist")
-                                       : "cannot be examined (" + std::string(std::strerror(errno)) +
-                                             ")"));
+                      (errno == ENOENT
+                           ? std::string("does not exist")
+                           : "cannot be examined (" + std::string(std::strerror(errno)) + ")"));
   check_stat(st, path, max_bytes, what);
 }
 
@@ -207,8 +206,7 @@ int nesting_depth(std::string_view text, bool yaml, int limit, int* line_out) {
       while (!indents.empty() && indents.back() > i) indents.pop_back();
       if (indents.empty() || indents.back() < i) indents.push_back(i);
       std::size_t j = i;
-      while (j < l.size() && l[j] == '-' &&
-             (j + 1 == l.size() || l[j + 1] == ' ')) {
+      while (j < l.size() && l[j] == '-' && (j + 1 == l.size() || l[j + 1] == ' ')) {
         ++dashes;
         j += 2;
         while (j < l.size() && l[j] == ' ') ++j;
@@ -279,7 +277,11 @@ ImageHeader read_image_header(const std::string& path) {
     hd.height = r.u(h + 12, 4);
     hd.bits_per_sample = h[16];
     const int colour = h[17];
-    hd.samples_per_pixel = colour == 0 ? 1 : colour == 2 ? 3 : colour == 3 ? 3 : colour == 4 ? 2 : 4;
+    hd.samples_per_pixel = colour == 0   ? 1
+                           : colour == 2 ? 3
+                           : colour == 3 ? 3
+                           : colour == 4 ? 2
+                                         : 4;
     return hd;
   }
   if (got && ((h[0] == 'I' && h[1] == 'I') || (h[0] == 'M' && h[1] == 'M'))) {
@@ -315,11 +317,16 @@ ImageHeader read_image_header(const std::string& path) {
             if (!r.read(r.u(ent + 8, 4), v, static_cast<std::size_t>(size))) return 0;
             return r.u(v, size);
           };
-          if (tag == 256) hd.width = first_value();
-          else if (tag == 257) hd.height = first_value();
-          else if (tag == 258) hd.bits_per_sample = static_cast<int>(first_value());
-          else if (tag == 277) hd.samples_per_pixel = static_cast<int>(first_value());
-          else if (tag == 339) hd.sample_format = static_cast<int>(first_value());
+          if (tag == 256)
+            hd.width = first_value();
+          else if (tag == 257)
+            hd.height = first_value();
+          else if (tag == 258)
+            hd.bits_per_sample = static_cast<int>(first_value());
+          else if (tag == 277)
+            hd.samples_per_pixel = static_cast<int>(first_value());
+          else if (tag == 339)
+            hd.sample_format = static_cast<int>(first_value());
         }
         if (hd.samples_per_pixel == 0) hd.samples_per_pixel = 1;  // TIFF 6.0 default
         if (hd.bits_per_sample == 0) hd.bits_per_sample = 1;

@@ -19,14 +19,14 @@ namespace sw {
 /// accepted scan still fits a workstation (a few hundred MB in the engines) and so that no real
 /// detector or sidecar comes near them.
 namespace limits {
-inline constexpr std::uint64_t kMaxSidecarBytes = 1u << 20;            ///< 1 MiB per sidecar
-inline constexpr std::uint64_t kMaxDataFileBytes = 1ull << 31;         ///< 2 GiB per data file
+inline constexpr std::uint64_t kMaxSidecarBytes = 1u << 20;     ///< 1 MiB per sidecar
+inline constexpr std::uint64_t kMaxDataFileBytes = 1ull << 31;  ///< 2 GiB per data file
 inline constexpr int kMaxNestingDepth = 64;          ///< brackets / indentation levels of a sidecar
 inline constexpr std::size_t kMaxAxisCount = 65536;  ///< values of one axis (or image side)
-inline constexpr std::size_t kMaxSamples = 1u << 24; ///< energies x delays (16.8 M samples)
-inline constexpr int kMaxEchoDepth = 8;              ///< nesting of an echoed unknown key
-inline constexpr std::size_t kMaxEchoBytes = 16384;  ///< JSON text of one echoed unknown key
-inline constexpr std::size_t kMaxExcerptChars = 24;  ///< quoted excerpt of an offending cell
+inline constexpr std::size_t kMaxSamples = 1u << 24;  ///< energies x delays (16.8 M samples)
+inline constexpr int kMaxEchoDepth = 8;               ///< nesting of an echoed unknown key
+inline constexpr std::size_t kMaxEchoBytes = 16384;   ///< JSON text of one echoed unknown key
+inline constexpr std::size_t kMaxExcerptChars = 24;   ///< quoted excerpt of an offending cell
 }  // namespace limits
 
 /// Throws unless `path` names an existing regular file (after following symbolic links) of at
@@ -62,13 +62,13 @@ int nesting_depth(std::string_view text, bool yaml, int limit, int* line = nullp
 
 /// What a PNG or TIFF header says about the image, read without decoding it.
 struct ImageHeader {
-  std::string format;              ///< "png" or "tiff"
-  std::uint64_t width = 0;         ///< samples per row
-  std::uint64_t height = 0;        ///< rows
-  int bits_per_sample = 0;         ///< 1, 8, 16, 32, 64
-  int samples_per_pixel = 0;       ///< 1 = grey
-  int sample_format = 1;           ///< TIFF SampleFormat: 1 unsigned, 2 signed, 3 float
-  int pages = 1;                   ///< TIFF image file directories (pages), counted up to 1000
+  std::string format;         ///< "png" or "tiff"
+  std::uint64_t width = 0;    ///< samples per row
+  std::uint64_t height = 0;   ///< rows
+  int bits_per_sample = 0;    ///< 1, 8, 16, 32, 64
+  int samples_per_pixel = 0;  ///< 1 = grey
+  int sample_format = 1;      ///< TIFF SampleFormat: 1 unsigned, 2 signed, 3 float
+  int pages = 1;              ///< TIFF image file directories (pages), counted up to 1000
 };
 
 /// Reads the header of the PNG (ISO/IEC 15948, IHDR chunk) or TIFF (TIFF 6.0, first IFD and

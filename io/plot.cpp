@@ -1,6 +1,6 @@
 #include "io/plot.h"
 
-#include "retrieval/enum_names.h"
+#include "retrieval/core/enum_names.h"
 
 #include <algorithm>
 #include <array>
@@ -28,24 +28,24 @@ Rgb palette_color(std::size_t i) {
   return kPalette[i % kPalette.size()];
 }
 
-constexpr EnumNames<ColorMap, 5> kColorMapNames{{{
-    {ColorMap::kViridis, "viridis"},
-    {ColorMap::kMagma, "magma"},
-    {ColorMap::kInferno, "inferno"},
-    {ColorMap::kDiverging, "diverging"},
-    {ColorMap::kGray, "gray"}}}};
+constexpr EnumNames<ColorMap, 5> kColorMapNames{{{{ColorMap::kViridis, "viridis"},
+                                                  {ColorMap::kMagma, "magma"},
+                                                  {ColorMap::kInferno, "inferno"},
+                                                  {ColorMap::kDiverging, "diverging"},
+                                                  {ColorMap::kGray, "gray"}}}};
 
 const char* to_string(ColorMap v) { return kColorMapNames.name(v); }
 
 bool parse_color_map(const std::string& s, ColorMap* out) { return kColorMapNames.parse(s, out); }
 
-constexpr EnumNames<FigureFormat, 2> kFigureFormatNames{{{
-    {FigureFormat::kPng, "png"},
-    {FigureFormat::kSvg, "svg"}}}};
+constexpr EnumNames<FigureFormat, 2> kFigureFormatNames{
+    {{{FigureFormat::kPng, "png"}, {FigureFormat::kSvg, "svg"}}}};
 
 const char* to_string(FigureFormat v) { return kFigureFormatNames.name(v); }
 
-bool parse_figure_format(const std::string& s, FigureFormat* out) { return kFigureFormatNames.parse(s, out); }
+bool parse_figure_format(const std::string& s, FigureFormat* out) {
+  return kFigureFormatNames.parse(s, out);
+}
 
 const char* figure_extension(FigureFormat f) { return f == FigureFormat::kSvg ? ".svg" : ".png"; }
 

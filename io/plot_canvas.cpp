@@ -11,7 +11,7 @@
 
 #include "io/atomic_file.h"
 #include "io/report_html.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 namespace sw::plot {
 

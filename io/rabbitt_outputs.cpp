@@ -10,9 +10,9 @@
 #include "io/figures.h"
 #include "io/report_html.h"
 #include "io/result_io.h"
-#include "retrieval/error.h"
-#include "retrieval/format.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
+#include "retrieval/core/units.h"
 #include "streakwright_version.h"
 
 namespace sw {
@@ -68,13 +68,14 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     std::vector<std::vector<std::string>> rows;
     for (const SidebandDetail& d : rb.sidebands) {
       const bool a = d.atomic.applied;
-      rows.push_back({std::to_string(d.order), format_cell(d.energy_eV), format_cell(d.phase_unwrapped_rad),
-                      format_cell(d.fit.phase_rad_sigma), format_cell(d.group_delay_as),
-                      format_cell(d.group_delay_as_sigma), format_cell(d.fit.modulation_depth),
-                      a ? format_cell(d.atomic.total_as) : "", format_cell(d.photon_energy_eV),
-                      format_cell(d.measured_delay_as), a ? format_cell(d.atomic.wigner_as) : "",
-                      a ? format_cell(d.atomic.continuum_continuum_as) : "", format_cell(d.fit.reduced_chi2),
-                      format_cell(d.window_low_eV), format_cell(d.window_high_eV)});
+      rows.push_back(
+          {std::to_string(d.order), format_cell(d.energy_eV), format_cell(d.phase_unwrapped_rad),
+           format_cell(d.fit.phase_rad_sigma), format_cell(d.group_delay_as),
+           format_cell(d.group_delay_as_sigma), format_cell(d.fit.modulation_depth),
+           a ? format_cell(d.atomic.total_as) : "", format_cell(d.photon_energy_eV),
+           format_cell(d.measured_delay_as), a ? format_cell(d.atomic.wigner_as) : "",
+           a ? format_cell(d.atomic.continuum_continuum_as) : "", format_cell(d.fit.reduced_chi2),
+           format_cell(d.window_low_eV), format_cell(d.window_high_eV)});
     }
     write_csv(path("sidebands.csv"),
               {"order", "energy_eV", "phase_rad", "phase_rad_sigma", "group_delay_as",
@@ -88,9 +89,11 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     for (const SidebandDetail& d : rb.sidebands)
       for (std::size_t k = 0; k < d.rainbow_energy_eV.size(); ++k)
         rows.push_back(
-            {std::to_string(d.order), format_cell(d.rainbow_energy_eV[k]), format_cell(d.rainbow_phase_rad[k]),
+            {std::to_string(d.order), format_cell(d.rainbow_energy_eV[k]),
+             format_cell(d.rainbow_phase_rad[k]),
              k < d.rainbow_phase_rad_sigma.size() ? format_cell(d.rainbow_phase_rad_sigma[k]) : "",
-             k < d.rainbow_modulation_depth.size() ? format_cell(d.rainbow_modulation_depth[k]) : ""});
+             k < d.rainbow_modulation_depth.size() ? format_cell(d.rainbow_modulation_depth[k])
+                                                   : ""});
     write_csv(path("rainbow.csv"),
               {"order", "energy_eV", "phase_rad", "phase_rad_sigma", "modulation_depth"}, rows);
   }
@@ -98,7 +101,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     std::vector<std::vector<std::string>> rows;
     for (std::size_t h = 0; h < burst->harmonic_orders.size(); ++h)
       rows.push_back({std::to_string(burst->harmonic_orders[h]),
-                      format_cell(burst->harmonic_photon_energy_eV[h]), format_cell(burst->harmonic_intensity[h]),
+                      format_cell(burst->harmonic_photon_energy_eV[h]),
+                      format_cell(burst->harmonic_intensity[h]),
                       format_cell(burst->harmonic_phase_rad[h])});
     write_csv(path("harmonics.csv"), {"order", "photon_energy_eV", "intensity_norm", "phase_rad"},
               rows);
@@ -133,8 +137,9 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   }
   {
     LinePlot lp;
-    lp.title = "delay-integrated spectrum: offset " + format_g(rb.alignment.offset_eV, kDisplayDigits) +
-               " eV, scale " + format_g(rb.alignment.scale, kDisplayDigits);
+    lp.title = "delay-integrated spectrum: offset " +
+               format_g(rb.alignment.offset_eV, kDisplayDigits) + " eV, scale " +
+               format_g(rb.alignment.scale, kDisplayDigits);
     lp.x_label = "photoelectron energy (eV)";
     lp.y_label = "counts (summed over delays)";
     lp.series.push_back(
@@ -216,7 +221,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     LinePlot lg;
     std::string t = "group delay per sideband";
     if (res.rabbitt && res.rabbitt->attochirp_as_per_eV) {
-      t = "attochirp " + format_value_sigma(*res.rabbitt->attochirp_as_per_eV, res.rabbitt->attochirp_as_per_eV_sigma, "as/eV");
+      t = "attochirp " + format_value_sigma(*res.rabbitt->attochirp_as_per_eV,
+                                            res.rabbitt->attochirp_as_per_eV_sigma, "as/eV");
       Series fit;
       fit.label = "weighted linear fit (attochirp)";
       fit.color = plot::Rgb{200, 40, 40};
@@ -278,8 +284,9 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   }
   if (burst) {
     LinePlot lb;
-    lb.title = "average burst: FWHM " + format_value_sigma(burst->fwhm_as, burst->fwhm_as_sigma, "as") + " (transform limit " +
-               format_g(burst->transform_limited_fwhm_as, kDisplayDigits) + " as)";
+    lb.title =
+        "average burst: FWHM " + format_value_sigma(burst->fwhm_as, burst->fwhm_as_sigma, "as") +
+        " (transform limit " + format_g(burst->transform_limited_fwhm_as, kDisplayDigits) + " as)";
     lb.x_label = "time on the IR axis (as)";
     lb.y_label = "intensity (norm.)";
     lb.series.push_back({burst->time_as,
@@ -316,7 +323,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   if (res.quality) rep.add_quality(*res.quality);
   rep.add_paragraph("Input: " + res.input + "\nGas: " + rb.gas +
                     " (Ip = " + format_g(rb.ionization_energy_eV, kDisplayDigits) + " eV), IR " +
-                    format_g(rb.ir_wavelength_nm, kDisplayDigits) + " nm (hbar omega = " + format_g(hw_eV, kDisplayDigits) + " eV)");
+                    format_g(rb.ir_wavelength_nm, kDisplayDigits) +
+                    " nm (hbar omega = " + format_g(hw_eV, kDisplayDigits) + " eV)");
   for (const auto& w : res.warnings) rep.add_warning(w);
 
   std::vector<KeyValueRow> sr;
@@ -351,9 +359,10 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
   rep.add_paragraph(
       "Per sideband q (even, between harmonics q-1 and q+1 of an odd-harmonic train) the counts "
       "in a window of +-" +
-      format_g(rb.sidebands.empty()
-              ? 0.0
-              : 0.5 * (rb.sidebands.front().window_high_eV - rb.sidebands.front().window_low_eV), kDisplayDigits) +
+      format_g(rb.sidebands.empty() ? 0.0
+                                    : 0.5 * (rb.sidebands.front().window_high_eV -
+                                             rb.sidebands.front().window_low_eV),
+               kDisplayDigits) +
       " eV are fitted over the whole delay axis with S(tau) = A + B cos(2 omega tau + phi) by "
       "weighted linear least squares with Poisson weights (P. M. Paul et al., Science 292, "
       "1689 (2001); H. G. Muller, Appl. Phys. B 74, S17 (2002)). tau = t_XUV - t_IR, so "
@@ -409,19 +418,21 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     std::string desc;
     for (const SidebandDetail& d : rb.sidebands) {
       if (desc.empty()) desc = d.atomic.description;
-      rows.push_back({"SB" + std::to_string(d.order), format_g(d.energy_eV, kDisplayDigits),
-                      d.atomic.applied ? "yes" : "no",
-                      d.atomic.applied ? format_g(d.atomic.wigner_as, kDisplayDigits) : "",
-                      d.atomic.applied ? format_g(d.atomic.continuum_continuum_as, kDisplayDigits) : "",
-                      d.atomic.applied ? format_g(d.atomic.total_as, kDisplayDigits) : "",
-                      format_g(d.measured_delay_as, kDisplayDigits), format_g(d.group_delay_as, kDisplayDigits)});
+      rows.push_back(
+          {"SB" + std::to_string(d.order), format_g(d.energy_eV, kDisplayDigits),
+           d.atomic.applied ? "yes" : "no",
+           d.atomic.applied ? format_g(d.atomic.wigner_as, kDisplayDigits) : "",
+           d.atomic.applied ? format_g(d.atomic.continuum_continuum_as, kDisplayDigits) : "",
+           d.atomic.applied ? format_g(d.atomic.total_as, kDisplayDigits) : "",
+           format_g(d.measured_delay_as, kDisplayDigits),
+           format_g(d.group_delay_as, kDisplayDigits)});
     }
     rep.add_heading("Atomic-delay corrections");
     rep.add_paragraph(
         (desc.empty() ? std::string("No correction applied.") : desc) +
         "\nModels: Wigner delay of the hydrogenic Coulomb phase and the continuum-continuum "
         "delay of the asymptotic formula of J. M. Dahlstrom, A. L'Huillier and A. Maquet, "
-        "J. Phys. B 45, 183001 (2012) (retrieval/atomic_delay.h). t_e = measured - total.");
+        "J. Phys. B 45, 183001 (2012) (retrieval/physics/atomic_delay.h). t_e = measured - total.");
     rep.add_table({"sideband", "energy (eV)", "applied", "Wigner (as)", "cc (as)", "total (as)",
                    "measured delay (as)", "group delay t_e (as)"},
                   rows, "Atomic delays subtracted per sideband");
@@ -432,7 +443,8 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
       rows.push_back({"SB" + std::to_string(d.order), format_g(d.energy_eV, kDisplayDigits),
                       format_value_sigma(d.phase_unwrapped_rad, d.fit.phase_rad_sigma),
                       format_value_sigma(d.group_delay_as, d.group_delay_as_sigma),
-                      format_g(d.fit.modulation_depth, kDisplayDigits), format_g(d.fit.reduced_chi2, kDisplayDigits)});
+                      format_g(d.fit.modulation_depth, kDisplayDigits),
+                      format_g(d.fit.reduced_chi2, kDisplayDigits)});
     rep.add_table({"sideband", "energy (eV)", "phase (rad)", "group delay (as)",
                    "modulation depth B/A", "reduced chi^2"},
                   rows, "Sidebands");

@@ -1,7 +1,7 @@
 #pragma once
 // Everything `rabbitt` writes into its output folder, from the RABBITT analysis
-// (retrieval/rabbitt.h), the average burst of the train (retrieval/train_burst.h) and the
-// finished AnalysisResult:
+// (retrieval/analysis/rabbitt.h), the average burst of the train (retrieval/analysis/train_burst.h)
+// and the finished AnalysisResult:
 //   sidebands.csv   order, energy_eV, phase_rad, phase_rad_sigma, group_delay_as,
 //                   group_delay_as_sigma, modulation_depth, atomic_delay_as, then
 //                   photon_energy_eV, measured_delay_as, wigner_delay_as,
@@ -31,10 +31,10 @@
 
 #include "io/plot.h"
 
-#include "retrieval/rabbitt.h"
-#include "retrieval/result.h"
-#include "retrieval/trace.h"
-#include "retrieval/train_burst.h"
+#include "retrieval/analysis/rabbitt.h"
+#include "retrieval/analysis/train_burst.h"
+#include "retrieval/core/result.h"
+#include "retrieval/core/trace.h"
 
 namespace sw {
 

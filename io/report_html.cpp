@@ -10,8 +10,8 @@
 #include <sstream>
 
 #include "io/plot_canvas.h"
-#include "retrieval/error.h"
-#include "retrieval/format.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
 #include "streakwright_version.h"
 
 namespace sw {
@@ -197,12 +197,14 @@ void HtmlReport::add_warning(const std::string& text) {
 void HtmlReport::add_quality(const QualitySection& q) {
   auto num = [](double v) { return format_g(v, kDisplayDigits); };
   if (!q.trusted) {
-    std::string h = "<div class=\"banner\"><b>Not trusted.</b> The numbers below are written, but "
-                    "these quality checks failed:<ul>";
+    std::string h =
+        "<div class=\"banner\"><b>Not trusted.</b> The numbers below are written, but "
+        "these quality checks failed:<ul>";
     for (const auto& c : q.checks)
       if (!c.pass && c.guards_headline)
         h += "<li>" + html_escape(c.name) + ": " + html_escape(num(c.value)) + " (required " +
-             html_escape(c.rule + " " + num(c.limit)) + ") &mdash; " + html_escape(c.detail) + "</li>";
+             html_escape(c.rule + " " + num(c.limit)) + ") &mdash; " + html_escape(c.detail) +
+             "</li>";
     h += "</ul></div>";
     blocks_.push_back(std::move(h));
   }

@@ -15,8 +15,8 @@
 #include <string>
 #include <vector>
 
-#include "retrieval/format.h"
-#include "retrieval/result.h"
+#include "retrieval/core/format.h"
+#include "retrieval/core/result.h"
 
 namespace sw {
 
@@ -29,10 +29,11 @@ struct KeyValueRow {
   std::optional<std::string> sigma;  ///< shown as "± sigma" after the value
 
   /// Formats value with `significant` significant digits; with a sigma, value and sigma by
-  /// sw::round_value_sigma (retrieval/format.h: sigma to two significant digits, the value to
+  /// sw::round_value_sigma (retrieval/core/format.h: sigma to two significant digits, the value to
   /// the same decimal place).
   static KeyValueRow number(const std::string& name, double value, const std::string& unit,
-                            std::optional<double> sigma = std::nullopt, int significant = kDisplayDigits);
+                            std::optional<double> sigma = std::nullopt,
+                            int significant = kDisplayDigits);
 };
 
 class HtmlReport {

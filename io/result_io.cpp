@@ -6,7 +6,7 @@
 #include <nlohmann/json.hpp>
 
 #include "io/atomic_file.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 namespace sw {
 namespace {
@@ -189,7 +189,8 @@ ojson to_ojson(const AnalysisResult& r) {
       const std::string k = "lines[" + std::to_string(i) + "]";
       ojson o;
       o["name"] = l.name;
-      o["ionization_energy_eV"] = finite_number(l.ionization_energy_eV, k + ".ionization_energy_eV");
+      o["ionization_energy_eV"] =
+          finite_number(l.ionization_energy_eV, k + ".ionization_energy_eV");
       if (!l.gas.empty()) o["gas"] = l.gas;
       put(o, k, "relative_strength", l.relative_strength);
       put(o, k, "relative_strength_sigma", l.relative_strength_sigma);
@@ -204,9 +205,11 @@ ojson to_ojson(const AnalysisResult& r) {
       put(o, k, "clc_correction_as", l.clc_correction_as);
       put(o, k, "relative_delay_as_corrected", l.relative_delay_as_corrected);
       put(o, k, "relative_delay_as_centre_of_energy", l.relative_delay_as_centre_of_energy);
-      put(o, k, "relative_delay_as_centre_of_energy_sigma", l.relative_delay_as_centre_of_energy_sigma);
+      put(o, k, "relative_delay_as_centre_of_energy_sigma",
+          l.relative_delay_as_centre_of_energy_sigma);
       put(o, k, "relative_strength_centre_of_energy", l.relative_strength_centre_of_energy);
-      put(o, k, "relative_strength_centre_of_energy_sigma", l.relative_strength_centre_of_energy_sigma);
+      put(o, k, "relative_strength_centre_of_energy_sigma",
+          l.relative_strength_centre_of_energy_sigma);
       ls.push_back(std::move(o));
     }
     j["lines"] = std::move(ls);
@@ -464,7 +467,8 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
     } else if (key == "quality") {
       if (!v.is_object()) rd.fail(key, "an object");
       QualitySection q;
-      if (!v.contains("trusted") || !v["trusted"].is_boolean()) rd.fail("quality.trusted", "true or false");
+      if (!v.contains("trusted") || !v["trusted"].is_boolean())
+        rd.fail("quality.trusted", "true or false");
       if (v.contains("checks")) {
         const ojson& cs = v["checks"];
         if (!cs.is_array()) rd.fail("quality.checks", "an array");
@@ -484,7 +488,8 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
             c.pass = o["pass"].get<bool>();
           }
           if (o.contains("guards_headline")) {
-            if (!o["guards_headline"].is_boolean()) rd.fail(k + ".guards_headline", "true or false");
+            if (!o["guards_headline"].is_boolean())
+              rd.fail(k + ".guards_headline", "true or false");
             c.guards_headline = o["guards_headline"].get<bool>();
           }
           q.checks.push_back(std::move(c));
@@ -504,7 +509,8 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
         if (!o.contains("name")) rd.fail(k + ".name", "a string (required)");
         l.name = rd.string(o["name"], k + ".name");
         if (o.contains("ionization_energy_eV"))
-          l.ionization_energy_eV = rd.number(o["ionization_energy_eV"], k + ".ionization_energy_eV");
+          l.ionization_energy_eV =
+              rd.number(o["ionization_energy_eV"], k + ".ionization_energy_eV");
         if (o.contains("gas")) l.gas = rd.string(o["gas"], k + ".gas");
         if (o.contains("source")) l.source = rd.string(o["source"], k + ".source");
         auto opt = [&](const char* f, std::optional<double>* dst) {
@@ -519,10 +525,13 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
         opt("clc_correction_as", &l.clc_correction_as);
         opt("relative_delay_as_corrected", &l.relative_delay_as_corrected);
         opt("relative_delay_as_centre_of_energy", &l.relative_delay_as_centre_of_energy);
-        opt("relative_delay_as_centre_of_energy_sigma", &l.relative_delay_as_centre_of_energy_sigma);
+        opt("relative_delay_as_centre_of_energy_sigma",
+            &l.relative_delay_as_centre_of_energy_sigma);
         opt("relative_strength_centre_of_energy", &l.relative_strength_centre_of_energy);
-        opt("relative_strength_centre_of_energy_sigma", &l.relative_strength_centre_of_energy_sigma);
-        if (o.contains("delay_method")) l.delay_method = rd.string(o["delay_method"], k + ".delay_method");
+        opt("relative_strength_centre_of_energy_sigma",
+            &l.relative_strength_centre_of_energy_sigma);
+        if (o.contains("delay_method"))
+          l.delay_method = rd.string(o["delay_method"], k + ".delay_method");
         for (const char* f : {"reference", "analysed"})
           if (o.contains(f)) {
             if (!o[f].is_boolean()) rd.fail(k + "." + f, "true or false");

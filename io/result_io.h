@@ -25,7 +25,7 @@
 
 #include <string>
 
-#include "retrieval/result.h"
+#include "retrieval/core/result.h"
 
 namespace sw {
 

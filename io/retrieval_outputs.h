@@ -15,16 +15,17 @@
 #include <vector>
 
 #include "io/plot.h"
-#include "retrieval/result.h"
-#include "retrieval/retrieve.h"
-#include "retrieval/trace.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/core/result.h"
+#include "retrieval/core/trace.h"
 
 namespace sw {
 
 /// Writes the folder (created if missing). out.result is written unchanged as result.json (the
-/// caller has appended the provenance; analyse_retrieve, retrieval/analyses.h, the sidecar's
-/// extra keys). Figures take the extension of `figure_format`.
-void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, const std::string& out_dir,
+/// caller has appended the provenance; analyse_retrieve, retrieval/analysis/analyses.h, the
+/// sidecar's extra keys). Figures take the extension of `figure_format`.
+void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out,
+                             const std::string& out_dir,
                              plot::FigureFormat figure_format = plot::FigureFormat::kPng);
 
 /// Unwrapped phase of samples where |z|^2 >= threshold * max, NaN elsewhere.

@@ -5,14 +5,12 @@
 #include <numeric>
 #include <sstream>
 
-#include "retrieval/error.h"
-#include "retrieval/format.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
+#include "retrieval/core/units.h"
 
 namespace sw {
-namespace {
-
-}  // namespace
+namespace {}  // namespace
 
 std::string TofCalibration::validate() const {
   if (!std::isfinite(length_m) || !(length_m > 0))
@@ -20,7 +18,8 @@ std::string TofCalibration::validate() const {
   if (!std::isfinite(t0_ns))
     return "calibration.t0_ns = " + format_g(t0_ns) + "; expected a finite time";
   if (!std::isfinite(energy_offset_eV))
-    return "calibration.energy_offset_eV = " + format_g(energy_offset_eV) + "; expected a finite energy";
+    return "calibration.energy_offset_eV = " + format_g(energy_offset_eV) +
+           "; expected a finite energy";
   if (energy_count < 0)
     return "calibration.energy_count = " + std::to_string(energy_count) +
            "; expected 0 (as many as time bins) or a positive number of bins";
@@ -84,8 +83,8 @@ TofConversion tof_to_energy(const Eigen::MatrixXd& counts, const std::vector<dou
   const double lo = cal.energy_min_eV.value_or(e_edge[n]);
   const double hi = cal.energy_max_eV.value_or(e_edge[0]);
   if (!(hi > lo))
-    throw input_error(where + ": the calibration energy window [" + format_g(lo) + ", " + format_g(hi) +
-                      "] eV is empty; expected energy_min_eV < energy_max_eV");
+    throw input_error(where + ": the calibration energy window [" + format_g(lo) + ", " +
+                      format_g(hi) + "] eV is empty; expected energy_min_eV < energy_max_eV");
   const int m = cal.energy_count > 0 ? cal.energy_count : static_cast<int>(n);
   const double w = (hi - lo) / m;
 

@@ -4,7 +4,7 @@
 //
 // Field-free drift of length L after a start time t0: v = L / (t - t0), so
 //   E(t) = (m_e / 2) (L / (t - t0))^2 / e + E_offset        [eV]
-// with m_e and e from CODATA 2018 (retrieval/units.h). E_offset absorbs retarding potentials
+// with m_e and e from CODATA 2018 (retrieval/core/units.h). E_offset absorbs retarding potentials
 // and contact potentials (common practice for magnetic-bottle and field-free TOF
 // spectrometers). E(t) decreases monotonically for t > t0.
 //

@@ -9,9 +9,9 @@
 
 #include <Eigen/Dense>
 
-#include "retrieval/error.h"
-#include "retrieval/format.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
+#include "retrieval/core/units.h"
 
 namespace sw {
 namespace {
@@ -226,15 +226,16 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
     throw input_error(where + ": ionization energy " + format_g(ionization_energy_eV) +
                       " eV; expected > 0");
   if (!(ir_wavelength_nm > 0))
-    throw input_error(where + ": IR wavelength " + format_g(ir_wavelength_nm) + " nm; expected > 0");
+    throw input_error(where + ": IR wavelength " + format_g(ir_wavelength_nm) +
+                      " nm; expected > 0");
   for (std::size_t i = 0; i < counts.size(); ++i) {
     if (!std::isfinite(counts[i]) || !std::isfinite(times_ns[i]))
       throw input_error(where + ": bin " + std::to_string(i) + " is not finite (time " +
                         format_g(times_ns[i]) + " ns, counts " + format_g(counts[i]) + ")");
     if (i > 0 && !(times_ns[i] > times_ns[i - 1]))
       throw input_error(where + ": flight times are not strictly ascending at bin " +
-                        std::to_string(i) + " (" + format_g(times_ns[i - 1]) + ", " + format_g(times_ns[i]) +
-                        " ns)");
+                        std::to_string(i) + " (" + format_g(times_ns[i - 1]) + ", " +
+                        format_g(times_ns[i]) + " ns)");
   }
   const double hw = units::kPlanckC_eV_nm / ir_wavelength_nm;  // hbar omega (eV)
   const int np = options.fit_energy_offset ? 3 : 2;
@@ -386,7 +387,8 @@ TofCalibrationFit fit_tof_calibration(const std::vector<double>& times_ns,
   msg.precision(4);
   msg << "fitted L" << (options.fit_energy_offset ? ", t0 and E_offset" : " and t0") << " to " << m
       << " harmonic peaks (orders " << out.peaks.back().order << ".." << out.peaks.front().order
-      << ", hbar omega " << hw << " eV): L = " << format_value_sigma(out.calibration.length_m, out.length_m_sigma, "m")
+      << ", hbar omega " << hw
+      << " eV): L = " << format_value_sigma(out.calibration.length_m, out.length_m_sigma, "m")
       << ", t0 = " << format_value_sigma(out.calibration.t0_ns, out.t0_ns_sigma, "ns")
       << ", rms residual " << out.rms_residual_eV << " eV";
   if (!out.converged) msg << "; NOT CONVERGED after " << out.iterations << " iterations";

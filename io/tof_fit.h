@@ -5,8 +5,8 @@
 // An odd-harmonic XUV comb of an IR field of angular frequency omega ionises a gas of
 // ionization energy Ip; photoelectrons of harmonic q have the kinetic energy
 //   E_q = q * hbar * omega - Ip                                   [eV]
-// (hbar * omega = h c / lambda with h c from retrieval/units.h, CODATA 2018; Ip from the NIST
-// ASD table of retrieval/gas.h). The spectrometer maps flight time t to energy with
+// (hbar * omega = h c / lambda with h c from retrieval/core/units.h, CODATA 2018; Ip from the NIST
+// ASD table of retrieval/physics/gas.h). The spectrometer maps flight time t to energy with
 //   E(t) = (m_e / 2) (L / (t - t0))^2 / e + E_offset               (io/tof_calibration.h)
 // and this module fits L, t0 (and optionally E_offset) so that the peaks land on E_q.
 //

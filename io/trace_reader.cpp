@@ -21,10 +21,10 @@
 #include "io/input_guard.h"
 #include "io/tof_calibration.h"
 #include "io/tof_fit.h"
-#include "retrieval/error.h"
-#include "retrieval/format.h"
-#include "retrieval/gas.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/gas.h"
 
 namespace sw {
 namespace {
@@ -212,8 +212,8 @@ json load_sidecar(const std::string& path) {
         ok = false;
       }
       if (!ok)
-        throw input_error("sidecar '" + shown + "' is not valid JSON (RFC 8259): " +
-                          json_reason(e));
+        throw input_error("sidecar '" + shown +
+                          "' is not valid JSON (RFC 8259): " + json_reason(e));
     } catch (const json::exception& e) {
       throw input_error("sidecar '" + shown + "' could not be read as JSON: " + json_reason(e));
     }
@@ -288,8 +288,8 @@ class Sidecar {
   }
   void require(const std::string& key, const std::string& expected) const {
     if (!has(key))
-      throw input_error("sidecar '" + printable_path(path_) + "' is missing the required key '" + key +
-                        "'; expected " + expected);
+      throw input_error("sidecar '" + printable_path(path_) + "' is missing the required key '" +
+                        key + "'; expected " + expected);
   }
 
   /// An axis: {first, step, count} or an explicit array. Strictly monotonic.
@@ -472,8 +472,7 @@ Eigen::MatrixXd load_image(const Sidecar& sc, const std::string& image,
     sc.fail("image", "the data file '" + shown + "' could not be decoded (" + e.what() + ")");
   }
   if (img.empty())
-    sc.fail("image", "the data file '" + shown +
-                         "' could not be decoded as an image" +
+    sc.fail("image", "the data file '" + shown + "' could not be decoded as an image" +
                          (chatter.empty() ? std::string() : " (decoder: " + chatter + ")") +
                          "; expected a 16-bit PNG, a 16/32-bit TIFF, a CSV matrix or an HDF5 "
                          "dataset");
@@ -543,21 +542,21 @@ void summed_spectrum(const Eigen::MatrixXd& counts, const std::vector<double>& t
 /// Physical ranges of sidecar numbers (docs/file_formats.md "Limits"): wide enough for any
 /// attosecond streaking or RABBITT experiment, narrow enough that derived grids stay small.
 namespace ranges {
-constexpr double kMinEnergyEV = -100.0;       ///< kinetic energy axis, lower end (eV)
-constexpr double kMaxEnergyEV = 10000.0;      ///< kinetic energy axis, upper end (eV)
-constexpr double kMinEnergyStepEV = 1e-4;     ///< smallest energy step (eV)
-constexpr double kMaxTofNs = 1e7;             ///< |flight time| (ns)
-constexpr double kMinTofStepNs = 1e-6;        ///< smallest flight-time step (ns)
-constexpr double kMaxAbsDelayFs = 1e6;        ///< |delay| (fs), stage offsets included
-constexpr double kMaxDelaySpanFs = 2000.0;    ///< last minus first delay (fs)
-constexpr double kMinDelayStepFs = 1e-3;      ///< smallest delay step (fs)
-constexpr double kMinIrWavelengthNm = 100.0;  ///< IR (driving) wavelength, lower end (nm)
-constexpr double kMaxIrWavelengthNm = 20000.0;///< upper end (nm): mid-infrared drivers
-constexpr double kMinScale = 1e-30;           ///< counts per image unit
+constexpr double kMinEnergyEV = -100.0;         ///< kinetic energy axis, lower end (eV)
+constexpr double kMaxEnergyEV = 10000.0;        ///< kinetic energy axis, upper end (eV)
+constexpr double kMinEnergyStepEV = 1e-4;       ///< smallest energy step (eV)
+constexpr double kMaxTofNs = 1e7;               ///< |flight time| (ns)
+constexpr double kMinTofStepNs = 1e-6;          ///< smallest flight-time step (ns)
+constexpr double kMaxAbsDelayFs = 1e6;          ///< |delay| (fs), stage offsets included
+constexpr double kMaxDelaySpanFs = 2000.0;      ///< last minus first delay (fs)
+constexpr double kMinDelayStepFs = 1e-3;        ///< smallest delay step (fs)
+constexpr double kMinIrWavelengthNm = 100.0;    ///< IR (driving) wavelength, lower end (nm)
+constexpr double kMaxIrWavelengthNm = 20000.0;  ///< upper end (nm): mid-infrared drivers
+constexpr double kMinScale = 1e-30;             ///< counts per image unit
 constexpr double kMaxScale = 1e30;
-constexpr double kMaxCounts = 1e15;           ///< largest scaled count / background per bin
-constexpr double kMinPeakCounts = 1e-12;      ///< smallest allowed largest scaled count
-constexpr double kMaxResolutionEV = 100.0;    ///< energy_resolution_eV (FWHM)
+constexpr double kMaxCounts = 1e15;         ///< largest scaled count / background per bin
+constexpr double kMinPeakCounts = 1e-12;    ///< smallest allowed largest scaled count
+constexpr double kMaxResolutionEV = 100.0;  ///< energy_resolution_eV (FWHM)
 }  // namespace ranges
 
 /// Values in [lo, hi], consecutive steps of at least min_step, span at most max_span (0 = any).
@@ -565,8 +564,9 @@ void check_axis_range(const Sidecar& sc, const std::string& key, const std::vect
                       double lo, double hi, double min_step, double max_span, const char* unit) {
   for (std::size_t i = 0; i < v.size(); ++i)
     if (!(v[i] >= lo && v[i] <= hi))
-      sc.fail(key, "has the value " + format_g(v[i]) + " " + unit + " at index " + std::to_string(i) +
-                       "; expected values in [" + format_g(lo) + ", " + format_g(hi) + "] " + unit);
+      sc.fail(key, "has the value " + format_g(v[i]) + " " + unit + " at index " +
+                       std::to_string(i) + "; expected values in [" + format_g(lo) + ", " +
+                       format_g(hi) + "] " + unit);
   for (std::size_t i = 1; i < v.size(); ++i)
     if (std::abs(v[i] - v[i - 1]) < min_step)
       sc.fail(key, "has a step of " + format_g(std::abs(v[i] - v[i - 1])) + " " + unit +
@@ -758,18 +758,19 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
       } else if (k == "length_m") {
         cal.length_m = sc.number(*it, f);
         if (!(cal.length_m > 0 && cal.length_m <= 100))
-          sc.fail(f, "is " + format_g(cal.length_m) + "; expected a flight length > 0 and <= 100 m");
+          sc.fail(f,
+                  "is " + format_g(cal.length_m) + "; expected a flight length > 0 and <= 100 m");
       } else if (k == "t0_ns") {
         cal.t0_ns = sc.number(*it, f);
         if (!(std::abs(cal.t0_ns) <= ranges::kMaxTofNs))
-          sc.fail(f, "is " + format_g(cal.t0_ns) + "; expected |t0| <= " + format_g(ranges::kMaxTofNs) + " ns");
+          sc.fail(f, "is " + format_g(cal.t0_ns) +
+                         "; expected |t0| <= " + format_g(ranges::kMaxTofNs) + " ns");
       } else if (k == "energy_offset_eV") {
         cal.energy_offset_eV = sc.number(*it, f);
         if (!(std::abs(cal.energy_offset_eV) <= ranges::kMaxEnergyEV))
-          sc.fail(f, "is " + format_g(cal.energy_offset_eV) + "; expected |offset| <= " +
-                         format_g(ranges::kMaxEnergyEV) + " eV");
-      }
-      else if (k == "energy_count") {
+          sc.fail(f, "is " + format_g(cal.energy_offset_eV) +
+                         "; expected |offset| <= " + format_g(ranges::kMaxEnergyEV) + " eV");
+      } else if (k == "energy_count") {
         const double n = sc.number(*it, f);
         if (n < 1 || n != std::floor(n) || n > static_cast<double>(limits::kMaxAxisCount))
           sc.fail(f, "is " + format_g(n) + "; expected a whole number of energy bins in [1, " +
@@ -778,11 +779,11 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
       } else if (k == "energy_min_eV" || k == "energy_max_eV") {
         const double e = sc.number(*it, f);
         if (!(e >= ranges::kMinEnergyEV && e <= ranges::kMaxEnergyEV))
-          sc.fail(f, "is " + format_g(e) + "; expected an energy in [" + format_g(ranges::kMinEnergyEV) +
-                         ", " + format_g(ranges::kMaxEnergyEV) + "] eV");
+          sc.fail(f, "is " + format_g(e) + "; expected an energy in [" +
+                         format_g(ranges::kMinEnergyEV) + ", " + format_g(ranges::kMaxEnergyEV) +
+                         "] eV");
         (k == "energy_min_eV" ? cal.energy_min_eV : cal.energy_max_eV) = e;
-      }
-      else
+      } else
         sc.fail(f,
                 "is not a calibration key; expected length_m, t0_ns, energy_offset_eV "
                 "(optional: energy_count, energy_min_eV, energy_max_eV; fit, harmonic_step, "
@@ -820,7 +821,8 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
     meta.ir_wavelength_nm = sc.number(sc.at("ir_wavelength_nm"), "ir_wavelength_nm");
     if (!(meta.ir_wavelength_nm >= ranges::kMinIrWavelengthNm &&
           meta.ir_wavelength_nm <= ranges::kMaxIrWavelengthNm))
-      sc.fail("ir_wavelength_nm", "is " + format_g(meta.ir_wavelength_nm) + "; expected a wavelength in [" +
+      sc.fail("ir_wavelength_nm", "is " + format_g(meta.ir_wavelength_nm) +
+                                      "; expected a wavelength in [" +
                                       format_g(ranges::kMinIrWavelengthNm) + ", " +
                                       format_g(ranges::kMaxIrWavelengthNm) + "] nm");
   }
@@ -902,12 +904,14 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
     const double lo = sc.number(w[0], "energy_window_eV[0]");
     const double hi = sc.number(w[1], "energy_window_eV[1]");
     if (!(lo < hi))
-      sc.fail("energy_window_eV", "is [" + format_g(lo) + ", " + format_g(hi) + "]; expected lo < hi (eV)");
+      sc.fail("energy_window_eV",
+              "is [" + format_g(lo) + ", " + format_g(hi) + "]; expected lo < hi (eV)");
     meta.energy_window_eV = {lo, hi};
   }
   if (sc.has("saturation_counts")) {
     const double v = sc.number(sc.at("saturation_counts"), "saturation_counts");
-    if (!(v > 0)) sc.fail("saturation_counts", "is " + format_g(v) + "; expected counts per bin > 0");
+    if (!(v > 0))
+      sc.fail("saturation_counts", "is " + format_g(v) + "; expected counts per bin > 0");
     meta.saturation_counts = v;
   }
   if (sc.has("lines")) {
@@ -922,20 +926,25 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
         sc.fail(f, std::string("is ") + type_name(l) +
                        "; expected {\"name\": ..., \"ionization_energy_eV\": number or \"auto\"}");
       DeclaredLine d;
-      if (!l.contains("name")) sc.fail(f + ".name", "is missing; expected the line's name, e.g. \"2s\"");
+      if (!l.contains("name"))
+        sc.fail(f + ".name", "is missing; expected the line's name, e.g. \"2s\"");
       d.name = sc.string(l.at("name"), f + ".name");
       if (d.name.empty() || d.name.size() > 32)
-        sc.fail(f + ".name", "has " + std::to_string(d.name.size()) + " characters; expected 1 to 32");
+        sc.fail(f + ".name",
+                "has " + std::to_string(d.name.size()) + " characters; expected 1 to 32");
       if (l.contains("gas")) d.gas = sc.string(l.at("gas"), f + ".gas");
       if (!l.contains("ionization_energy_eV"))
-        sc.fail(f + ".ionization_energy_eV", "is missing; expected a binding energy in eV or \"auto\"");
+        sc.fail(f + ".ionization_energy_eV",
+                "is missing; expected a binding energy in eV or \"auto\"");
       const json& ie = l.at("ionization_energy_eV");
       if (ie.is_string()) {
         if (ie.get<std::string>() != "auto")
-          sc.fail(f + ".ionization_energy_eV", "is a string other than \"auto\"; expected eV or \"auto\"");
+          sc.fail(f + ".ionization_energy_eV",
+                  "is a string other than \"auto\"; expected eV or \"auto\"");
       } else {
         const double v = sc.number(ie, f + ".ionization_energy_eV");
-        if (!(v > 0)) sc.fail(f + ".ionization_energy_eV", "is " + format_g(v) + "; expected > 0 eV");
+        if (!(v > 0))
+          sc.fail(f + ".ionization_energy_eV", "is " + format_g(v) + "; expected > 0 eV");
         d.ionization_energy_eV = v;
       }
       if (l.contains("relative_strength")) {
@@ -1024,8 +1033,8 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
         sc.fail("calibration.fit",
                 "the harmonic fit of the time-of-flight calibration failed (" +
                     std::string(e.what()) + "; gas " + meta.gas + ", Ip " + format_g(fit_ip_eV) +
-                    " eV, ir_wavelength_nm " + format_g(meta.ir_wavelength_nm) + ", harmonic_step " +
-                    std::to_string(fo.harmonic_step) +
+                    " eV, ir_wavelength_nm " + format_g(meta.ir_wavelength_nm) +
+                    ", harmonic_step " + std::to_string(fo.harmonic_step) +
                     "); give a fixed calibration (leave 'fit' out), or check gas, "
                     "ir_wavelength_nm, the initial length_m / t0_ns and harmonic_step");
       }

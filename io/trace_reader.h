@@ -30,7 +30,7 @@
 //                         fit_energy_offset  true: fit E_offset too (default false)
 //                         min_peak_fraction  peak detection threshold, (0, 1) (default 0.05)
 //                       The calibration used (and the fit's peaks and residuals) is recorded
-//                       in meta.calibration (retrieval/trace.h).
+//                       in meta.calibration (retrieval/core/trace.h).
 //   delay_fs            delay axis tau = t_XUV - t_IR (fs), or instead
 //   delay_um            delay-stage (mirror) travel x in micrometres, tau = 2 x / c
 //                       (1 um = 6.671 fs; retro-reflecting stage, double pass).
@@ -42,7 +42,7 @@
 //   background (counts per bin >= 0, or "auto"), energy_resolution_eV (>= 0), notes (string)
 //   anything else       kept verbatim as JSON text in meta.extra_json (echoed into results).
 //
-// The reader converts eV/fs to atomic units via retrieval/units.h, sets meta.source to the
+// The reader converts eV/fs to atomic units via retrieval/core/units.h, sets meta.source to the
 // sidecar path as given and meta.image to the "image" value as written in the sidecar, and
 // ends with Trace::validate(sidecar path). No background is subtracted here.
 //
@@ -56,7 +56,7 @@
 #include <string>
 #include <vector>
 
-#include "retrieval/trace.h"
+#include "retrieval/core/trace.h"
 
 namespace sw {
 

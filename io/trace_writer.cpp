@@ -13,9 +13,9 @@
 #include "io/csv.h"
 #include "io/result_io.h"
 #include "io/trace_reader.h"
-#include "retrieval/enum_names.h"
-#include "retrieval/error.h"
-#include "retrieval/units.h"
+#include "retrieval/core/enum_names.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
 
 namespace sw {
 namespace {
@@ -106,7 +106,6 @@ std::string yaml_text(const ojson& root, const std::string& where) {
 const char* to_string(TraceLayout l) {
   return l == TraceLayout::kEnergyRows ? "energy_rows" : "delay_rows";
 }
-
 
 std::string truth_path_for(const std::string& sidecar_path) {
   const fs::path p(sidecar_path);
@@ -240,8 +239,10 @@ TraceFiles write_trace(const Trace& trace, const std::string& sidecar_path, Trac
     ojson ls = ojson::array();
     for (const DeclaredLine& line : meta.lines) {
       ojson l{{"name", line.name}};
-      if (line.ionization_energy_eV) l["ionization_energy_eV"] = *line.ionization_energy_eV;
-      else l["ionization_energy_eV"] = "auto";
+      if (line.ionization_energy_eV)
+        l["ionization_energy_eV"] = *line.ionization_energy_eV;
+      else
+        l["ionization_energy_eV"] = "auto";
       if (line.relative_strength) l["relative_strength"] = *line.relative_strength;
       if (!line.gas.empty()) l["gas"] = line.gas;
       ls.push_back(l);

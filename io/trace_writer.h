@@ -22,8 +22,8 @@
 #include <string>
 #include <vector>
 
-#include "retrieval/result.h"
-#include "retrieval/trace.h"
+#include "retrieval/core/result.h"
+#include "retrieval/core/trace.h"
 
 namespace sw {
 

@@ -1,6 +1,6 @@
 // The Python module `streakwright` (docs/python.md): scans in, results out, numpy arrays for
 // every sampled quantity. Every analysis goes through the library's one shape
-// (retrieval/analyses.h) and every file through the io/ writers, so a result here is the
+// (retrieval/analysis/analyses.h) and every file through the io/ writers, so a result here is the
 // result the CLI writes: Result.to_dict() is result.json parsed (io/result_io.h, the one
 // serializer), Result.write(folder) is the CLI's output folder (cli/output_folder.h safety:
 // never over an input, swapped in only when complete).
@@ -38,19 +38,19 @@
 #include "io/result_io.h"
 #include "io/retrieval_outputs.h"
 #include "io/trace_reader.h"
-#include "retrieval/analyses.h"
-#include "retrieval/dipole.h"
-#include "retrieval/error.h"
-#include "retrieval/grid.h"
-#include "retrieval/ir_field.h"
-#include "retrieval/lines.h"
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/units.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/analysis/analyses.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/grid.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/dipole.h"
+#include "retrieval/physics/ir_field.h"
+#include "retrieval/physics/pulse_metrics.h"
+#include "retrieval/physics/xuv_builders.h"
+#include "retrieval/preprocess/lines.h"
+#include "streakwright_version.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 #include "synthetic/sfa_quadrature.h"
-#include "streakwright_version.h"
 
 namespace py = pybind11;
 namespace fs = std::filesystem;
@@ -84,7 +84,8 @@ py::array_t<double> to_numpy(const Eigen::MatrixXd& m) {
 }
 
 py::array_t<std::complex<double>> to_numpy(const Eigen::MatrixXcd& m) {
-  py::array_t<std::complex<double>> a({static_cast<py::ssize_t>(m.rows()), static_cast<py::ssize_t>(m.cols())});
+  py::array_t<std::complex<double>> a(
+      {static_cast<py::ssize_t>(m.rows()), static_cast<py::ssize_t>(m.cols())});
   auto r = a.mutable_unchecked<2>();
   for (Eigen::Index i = 0; i < m.rows(); ++i)
     for (Eigen::Index j = 0; j < m.cols(); ++j) r(i, j) = m(i, j);
@@ -101,7 +102,9 @@ double au_to_eV(double v) { return units::au_to_eV(v); }
 double au_to_fs(double v) { return units::au_to_fs(v); }
 double au_to_as(double v) { return units::au_to_as(v); }
 
-py::object json_loads(const std::string& text) { return py::module_::import("json").attr("loads")(text); }
+py::object json_loads(const std::string& text) {
+  return py::module_::import("json").attr("loads")(text);
+}
 std::string json_dumps(const py::handle& obj) {
   return py::module_::import("json").attr("dumps")(obj).cast<std::string>();
 }
@@ -128,7 +131,8 @@ py::dict scan_meta(const Scan& s) {
   d["scale"] = m.scale;
   d["background"] = m.background ? py::cast(*m.background) : py::none();
   d["background_auto"] = m.background_auto;
-  d["energy_resolution_eV"] = m.energy_resolution_eV ? py::cast(*m.energy_resolution_eV) : py::none();
+  d["energy_resolution_eV"] =
+      m.energy_resolution_eV ? py::cast(*m.energy_resolution_eV) : py::none();
   d["notes"] = m.notes;
   d["energy_window_eV"] = m.energy_window_eV;
   d["saturation_counts"] = m.saturation_counts ? py::cast(*m.saturation_counts) : py::none();
@@ -175,7 +179,8 @@ struct TempDir {
   fs::path path;
   TempDir() {
     std::string tmpl = (fs::temp_directory_path() / "streakwright-arrays-XXXXXX").string();
-    if (!mkdtemp(tmpl.data())) throw input_error("Scan.from_arrays: cannot create a temporary folder");
+    if (!mkdtemp(tmpl.data()))
+      throw input_error("Scan.from_arrays: cannot create a temporary folder");
     path = tmpl;
   }
   ~TempDir() {
@@ -186,7 +191,8 @@ struct TempDir {
 
 std::string replace_all(std::string s, const std::string& from, const std::string& to) {
   if (from.empty()) return s;
-  for (std::size_t pos = s.find(from); pos != std::string::npos; pos = s.find(from, pos + to.size()))
+  for (std::size_t pos = s.find(from); pos != std::string::npos;
+       pos = s.find(from, pos + to.size()))
     s.replace(pos, from.size(), to);
   return s;
 }
@@ -195,10 +201,11 @@ std::string replace_all(std::string s, const std::string& from, const std::strin
 // axes and the given keys, read back by the same reader as every file: the same checks,
 // conventions (e.g. a descending energy axis is reversed) and messages (the temporary folder
 // in messages reads "Scan.from_arrays").
-Scan scan_from_arrays(const py::array_t<double, py::array::c_style | py::array::forcecast>& counts,
-                      const py::array_t<double, py::array::c_style | py::array::forcecast>& energy_eV,
-                      const py::array_t<double, py::array::c_style | py::array::forcecast>& delay_fs,
-                      const py::object& gas, const py::object& ir_wavelength_nm, const py::kwargs& keys) {
+Scan scan_from_arrays(
+    const py::array_t<double, py::array::c_style | py::array::forcecast>& counts,
+    const py::array_t<double, py::array::c_style | py::array::forcecast>& energy_eV,
+    const py::array_t<double, py::array::c_style | py::array::forcecast>& delay_fs,
+    const py::object& gas, const py::object& ir_wavelength_nm, const py::kwargs& keys) {
   if (counts.ndim() != 2)
     throw usage_error("Scan.from_arrays: counts must be a 2-D array (one row per delay), got " +
                       std::to_string(counts.ndim()) + " dimension(s)");
@@ -208,13 +215,16 @@ Scan scan_from_arrays(const py::array_t<double, py::array::c_style | py::array::
   if (delay_fs.shape(0) != rows || energy_eV.shape(0) != cols)
     throw usage_error("Scan.from_arrays: counts has shape (" + std::to_string(rows) + ", " +
                       std::to_string(cols) + "); expected (len(delay_fs), len(energy_eV)) = (" +
-                      std::to_string(delay_fs.shape(0)) + ", " + std::to_string(energy_eV.shape(0)) + ")");
+                      std::to_string(delay_fs.shape(0)) + ", " +
+                      std::to_string(energy_eV.shape(0)) + ")");
   nlohmann::json extra = nlohmann::json::object();
   if (!gas.is_none()) extra["gas"] = gas.cast<std::string>();
   if (!ir_wavelength_nm.is_none()) extra["ir_wavelength_nm"] = ir_wavelength_nm.cast<double>();
-  for (const auto& [k, v] : keys) extra[k.cast<std::string>()] = nlohmann::json::parse(json_dumps(v));
+  for (const auto& [k, v] : keys)
+    extra[k.cast<std::string>()] = nlohmann::json::parse(json_dumps(v));
 
-  nlohmann::json sidecar_json = {{"streakwright", 1}, {"image", "arrays.csv"}, {"layout", "delay_rows"}};
+  nlohmann::json sidecar_json = {
+      {"streakwright", 1}, {"image", "arrays.csv"}, {"layout", "delay_rows"}};
   sidecar_json["energy_eV"] = std::vector<double>(energy_eV.data(), energy_eV.data() + cols);
   sidecar_json["delay_fs"] = std::vector<double>(delay_fs.data(), delay_fs.data() + rows);
   for (const auto& [k, v] : extra.items()) sidecar_json[k] = v;
@@ -258,16 +268,17 @@ struct PendingError {
 // The callback is held as a handle (no reference count): the analysis may copy the function
 // without the GIL; the caller's argument keeps the object alive.
 AnalysisProgress make_progress(const py::object& callback, PendingError& pending) {
-  return [cb = py::handle(callback), &pending](const std::string& stage, const std::string& message) {
-    py::gil_scoped_acquire gil;
-    try {
-      if (PyErr_CheckSignals() != 0) throw py::error_already_set();
-      if (!cb.is_none()) cb(stage, message);
-    } catch (py::error_already_set& e) {
-      pending.error = std::make_shared<py::error_already_set>(std::move(e));
-      throw Error(ErrorKind::kInternal, "interrupted");
-    }
-  };
+  return
+      [cb = py::handle(callback), &pending](const std::string& stage, const std::string& message) {
+        py::gil_scoped_acquire gil;
+        try {
+          if (PyErr_CheckSignals() != 0) throw py::error_already_set();
+          if (!cb.is_none()) cb(stage, message);
+        } catch (py::error_already_set& e) {
+          pending.error = std::make_shared<py::error_already_set>(std::move(e));
+          throw Error(ErrorKind::kInternal, "interrupted");
+        }
+      };
 }
 
 // Runs `work` without the GIL; a Python error raised in the progress callback wins over the
@@ -296,7 +307,7 @@ using AnyOutput = std::variant<RetrieveOutput, RabbittOutput, ClassifyOutput>;
 
 struct Result {
   AnyOutput output;
-  Trace scan;                    ///< the scan as given to the analysis
+  Trace scan;                       ///< the scan as given to the analysis
   std::vector<std::string> inputs;  ///< input files (sidecars, data files) for the folder check
   const AnalysisResult& result() const {
     return std::visit([](const auto& o) -> const AnalysisResult& { return o.result; }, output);
@@ -335,24 +346,30 @@ void write_result(const Result& r, const std::string& folder, const std::string&
         if constexpr (std::is_same_v<T, RetrieveOutput>) {
           write_retrieval_outputs(r.scan, o, swap.temp(), ff);
         } else if constexpr (std::is_same_v<T, RabbittOutput>) {
-          write_rabbitt_outputs(o.trace, o.analysis, o.burst ? &*o.burst : nullptr, o.result, swap.temp(), ff);
+          write_rabbitt_outputs(o.trace, o.analysis, o.burst ? &*o.burst : nullptr, o.result,
+                                swap.temp(), ff);
         } else {
-          write_classify_outputs(o.trace, o.result, o.retrieval ? &o.retrieval->reconstruction : nullptr,
+          write_classify_outputs(o.trace, o.result,
+                                 o.retrieval ? &o.retrieval->reconstruction : nullptr,
                                  o.ir_wavelength_nm, swap.temp(), ff);
         }
       },
       r.output);
   // As the CLI (cli/analysis.cpp run_scan): files holding NaN or infinity are no result.
   if (const std::string bad = cli::find_non_finite_output(swap.temp()); !bad.empty())
-    throw input_error("the analysis produced non-finite numbers (NaN or infinity) from this input, in '" +
-                      fs::path(bad).filename().string() + "'; no estimate can be written (check the counts and "
-                      "'scale' of the scan); '" + printable_path(folder) + "' is unchanged");
+    throw input_error(
+        "the analysis produced non-finite numbers (NaN or infinity) from this input, in '" +
+        fs::path(bad).filename().string() +
+        "'; no estimate can be written (check the counts and "
+        "'scale' of the scan); '" +
+        printable_path(folder) + "' is unchanged");
   swap.commit();
 }
 
 const RetrieveOutput* retrieval_of(const Result& r) {
   if (const auto* o = std::get_if<RetrieveOutput>(&r.output)) return o;
-  if (const auto* c = std::get_if<ClassifyOutput>(&r.output)) return c->retrieval ? &*c->retrieval : nullptr;
+  if (const auto* c = std::get_if<ClassifyOutput>(&r.output))
+    return c->retrieval ? &*c->retrieval : nullptr;
   return nullptr;
 }
 
@@ -402,7 +419,8 @@ py::object arrays_item(const Result& r, const char* key) {
 void set_energy_window(const py::object& window, PreprocessOptions& pp) {
   if (window.is_none()) return;
   if (py::isinstance<py::str>(window)) {
-    parse_energy_window(window.cast<std::string>(), "energy_window", &pp.energy_window_lo_eV, &pp.energy_window_hi_eV);
+    parse_energy_window(window.cast<std::string>(), "energy_window", &pp.energy_window_lo_eV,
+                        &pp.energy_window_hi_eV);
     return;
   }
   const auto lohi = window.cast<std::vector<double>>();
@@ -418,12 +436,15 @@ void check_engine(const std::string& engine) {
 // The CLI's --gas / --ir-wavelength of rabbitt and classify on a scan already read. A scan whose
 // energy axis was calibrated from flight times used the sidecar's values for that: those must
 // be given to load_scan (where the reader applies them before the calibration).
-Scan with_overrides(const Scan& scan, const py::object& gas, const py::object& ir_wavelength, const std::string& fn) {
+Scan with_overrides(const Scan& scan, const py::object& gas, const py::object& ir_wavelength,
+                    const std::string& fn) {
   if (gas.is_none() && ir_wavelength.is_none()) return scan;
   if (!scan.trace.meta.calibration.empty())
-    throw usage_error(fn + ": gas / ir_wavelength given for a scan whose energy axis was calibrated from "
-                      "flight times with the sidecar's values; give them to load_scan(gas=..., "
-                      "ir_wavelength_nm=...) instead");
+    throw usage_error(
+        fn +
+        ": gas / ir_wavelength given for a scan whose energy axis was calibrated from "
+        "flight times with the sidecar's values; give them to load_scan(gas=..., "
+        "ir_wavelength_nm=...) instead");
   Scan s = scan;
   if (!gas.is_none()) s.trace.meta.gas = gas.cast<std::string>();
   if (!ir_wavelength.is_none()) {
@@ -456,8 +477,12 @@ Result py_retrieve(const Scan& scan, const std::string& engine, int iterations, 
   set_energy_window(energy_window, o.preprocess);
   check_engine(o.engine);
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
-  Result r{run_released(progress, scan.trace, [&](const AnalysisProgress& p) { return AnyOutput(analyse_retrieve(scan.trace, o, p)); }),
-           scan.trace, {}};
+  Result r{run_released(progress, scan.trace,
+                        [&](const AnalysisProgress& p) {
+                          return AnyOutput(analyse_retrieve(scan.trace, o, p));
+                        }),
+           scan.trace,
+           {}};
   add_inputs(r, scan.trace);
   add_provenance(r, "retrieve");
   return r;
@@ -466,8 +491,9 @@ Result py_retrieve(const Scan& scan, const std::string& engine, int iterations, 
 Result py_rabbitt(const Scan& given, const py::object& gas, const py::object& ir_wavelength,
                   const std::string& atomic_correction, const py::object& xuv_only,
                   const std::string& cross_section, const std::string& dipole, double window,
-                  double min_sideband_significance, bool apply_delay_calibration, const py::object& energy_window,
-                  bool no_rainbow, double isolated_max, double satellites_max, const py::object& progress) {
+                  double min_sideband_significance, bool apply_delay_calibration,
+                  const py::object& energy_window, bool no_rainbow, double isolated_max,
+                  double satellites_max, const py::object& progress) {
   const Scan scan = with_overrides(given, gas, ir_wavelength, "rabbitt");
   RabbittAnalysisOptions o;
   o.atomic_correction = atomic_correction;
@@ -488,18 +514,21 @@ Result py_rabbitt(const Scan& given, const py::object& gas, const py::object& ir
     o.xuv_only_name = xo->trace.meta.source.empty() ? "Scan.from_arrays" : xo->trace.meta.source;
   }
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
-  Result r{run_released(progress, scan.trace,
-                        [&](const AnalysisProgress& p) {
-                          return AnyOutput(analyse_rabbitt(scan.trace, xo ? &xo->trace : nullptr, o, p));
-                        }),
-           scan.trace, {}};
+  Result r{
+      run_released(progress, scan.trace,
+                   [&](const AnalysisProgress& p) {
+                     return AnyOutput(analyse_rabbitt(scan.trace, xo ? &xo->trace : nullptr, o, p));
+                   }),
+      scan.trace,
+      {}};
   add_inputs(r, scan.trace);
   if (xo) add_inputs(r, xo->trace);
   add_provenance(r, "rabbitt");
   return r;
 }
 
-Result py_classify(const Scan& given, const py::object& gas, const py::object& ir_wavelength, bool retrieve, const std::string& engine, int iterations,
+Result py_classify(const Scan& given, const py::object& gas, const py::object& ir_wavelength,
+                   bool retrieve, const std::string& engine, int iterations,
                    const py::object& energy_window, double isolated_max, double satellites_max,
                    int comparable_bursts, double comb_contrast, double delay_train_share,
                    double delay_streaking_share, double min_counts, const py::object& progress) {
@@ -521,8 +550,12 @@ Result py_classify(const Scan& given, const py::object& gas, const py::object& i
   o.classifier.min_total_counts = min_counts;
   if (const std::string e = o.classifier.validate(); !e.empty()) throw usage_error(e);
   check_engine(engine);
-  Result r{run_released(progress, scan.trace, [&](const AnalysisProgress& p) { return AnyOutput(analyse_classify(scan.trace, o, p)); }),
-           scan.trace, {}};
+  Result r{run_released(progress, scan.trace,
+                        [&](const AnalysisProgress& p) {
+                          return AnyOutput(analyse_classify(scan.trace, o, p));
+                        }),
+           scan.trace,
+           {}};
   add_inputs(r, scan.trace);
   add_provenance(r, "classify");
   return r;
@@ -531,7 +564,8 @@ Result py_classify(const Scan& given, const py::object& gas, const py::object& i
 // ---------------------------------------------------------------------------------------------
 // simulate
 
-std::pair<Scan, py::object> py_simulate(const py::object& preset_or_config, unsigned long long seed) {
+std::pair<Scan, py::object> py_simulate(const py::object& preset_or_config,
+                                        unsigned long long seed) {
   synthetic::ScanConfig cfg;
   std::string what;
   if (py::isinstance<py::dict>(preset_or_config)) {
@@ -564,20 +598,21 @@ std::pair<Scan, py::object> py_simulate(const py::object& preset_or_config, unsi
 // reference hooks for the tests (docs/python.md "Checks against reference libraries")
 
 // The synthetic generator's SFA amplitude a(W, tau) (synthetic/sfa_quadrature.h) for a Gaussian
-// XUV pulse (retrieval/xuv_builders.h) and a Gaussian IR pulse (retrieval/ir_field.h), constant
-// dipole; rows = delays.
+// XUV pulse (retrieval/physics/xuv_builders.h) and a Gaussian IR pulse
+// (retrieval/physics/ir_field.h), constant dipole; rows = delays.
 py::array_t<std::complex<double>> sfa_amplitude(const std::vector<double>& delay_fs,
-                                                const std::vector<double>& energy_eV, double center_eV,
-                                                double transform_limited_fwhm_as, double gdd_as2,
-                                                double ionization_energy_eV, double ir_wavelength_nm,
-                                                double ir_fwhm_fs, double ir_peak_intensity_Wcm2,
-                                                double ir_cep_rad, double grid_step_as, int grid_points) {
+                                                const std::vector<double>& energy_eV,
+                                                double center_eV, double transform_limited_fwhm_as,
+                                                double gdd_as2, double ionization_energy_eV,
+                                                double ir_wavelength_nm, double ir_fwhm_fs,
+                                                double ir_peak_intensity_Wcm2, double ir_cep_rad,
+                                                double grid_step_as, int grid_points) {
   GaussianXuvPulse xp;
   xp.center_eV = center_eV;
   xp.transform_limited_fwhm_as = transform_limited_fwhm_as;
   xp.gdd_as2 = gdd_as2;
-  const XuvField xuv = make_gaussian_xuv(TimeGrid::centered(static_cast<std::size_t>(grid_points),
-                                                            units::as_to_au(grid_step_as)), xp);
+  const XuvField xuv = make_gaussian_xuv(
+      TimeGrid::centered(static_cast<std::size_t>(grid_points), units::as_to_au(grid_step_as)), xp);
   GaussianIrPulse ir;
   ir.wavelength_nm = ir_wavelength_nm;
   ir.fwhm_fs = ir_fwhm_fs;
@@ -591,7 +626,8 @@ py::array_t<std::complex<double>> sfa_amplitude(const std::vector<double>& delay
                                 scaled(energy_eV, [](double v) { return units::eV_to_au(v); })));
 }
 
-// The engines' FFT (retrieval/grid.h Fft::time_to_freq): out_k = sum_n in_n exp(+2 pi i k n / N).
+// The engines' FFT (retrieval/core/grid.h Fft::time_to_freq): out_k = sum_n in_n exp(+2 pi i k n /
+// N).
 py::array_t<std::complex<double>> fft_time_to_freq(const std::vector<std::complex<double>>& in) {
   const Fft fft(in.size());
   CVec a(in.begin(), in.end()), out(in.size());
@@ -618,102 +654,137 @@ PYBIND11_MODULE(streakwright, m) {
   });
 
   py::class_<Scan>(m, "Scan", "A photoelectron energy versus delay scan (rows = delays).")
-      .def_property_readonly("counts", [](const Scan& s) { return to_numpy(s.trace.counts); },
-                             "counts per bin, 2-D (delays x energies)")
-      .def_property_readonly("energy_eV", [](const Scan& s) { return to_numpy(scaled(s.trace.energy_au, au_to_eV)); })
-      .def_property_readonly("delay_fs", [](const Scan& s) { return to_numpy(scaled(s.trace.delay_au, au_to_fs)); })
+      .def_property_readonly(
+          "counts", [](const Scan& s) { return to_numpy(s.trace.counts); },
+          "counts per bin, 2-D (delays x energies)")
+      .def_property_readonly(
+          "energy_eV", [](const Scan& s) { return to_numpy(scaled(s.trace.energy_au, au_to_eV)); })
+      .def_property_readonly(
+          "delay_fs", [](const Scan& s) { return to_numpy(scaled(s.trace.delay_au, au_to_fs)); })
       .def_property_readonly("gas", [](const Scan& s) { return s.trace.meta.gas; })
-      .def_property_readonly("ir_wavelength_nm", [](const Scan& s) { return s.trace.meta.ir_wavelength_nm; })
-      .def_property_readonly("kind", [](const Scan& s) { return std::string(to_string(s.trace.meta.kind)); })
+      .def_property_readonly("ir_wavelength_nm",
+                             [](const Scan& s) { return s.trace.meta.ir_wavelength_nm; })
+      .def_property_readonly(
+          "kind", [](const Scan& s) { return std::string(to_string(s.trace.meta.kind)); })
       .def_property_readonly("meta", &scan_meta, "sidecar values, unknown keys under 'extra'")
-      .def_static("from_arrays", &scan_from_arrays, py::arg("counts"), py::kw_only(), py::arg("energy_eV"),
-                  py::arg("delay_fs"), py::arg("gas") = py::none(), py::arg("ir_wavelength_nm") = py::none(),
+      .def_static("from_arrays", &scan_from_arrays, py::arg("counts"), py::kw_only(),
+                  py::arg("energy_eV"), py::arg("delay_fs"), py::arg("gas") = py::none(),
+                  py::arg("ir_wavelength_nm") = py::none(),
                   "Scan from arrays in memory, validated as a sidecar file is; further keyword "
                   "arguments are sidecar keys (kind, background, energy_resolution_eV, ...).")
       .def("__repr__", [](const Scan& s) {
         return "<streakwright.Scan " + std::to_string(s.trace.num_delays()) + " delays x " +
-               std::to_string(s.trace.num_energies()) + " energies, gas '" + s.trace.meta.gas + "', kind " +
-               to_string(s.trace.meta.kind) + ">";
+               std::to_string(s.trace.num_energies()) + " energies, gas '" + s.trace.meta.gas +
+               "', kind " + to_string(s.trace.meta.kind) + ">";
       });
 
-  py::class_<Result>(m, "Result", "The result of one analysis (result.json and the sampled fields).")
+  py::class_<Result>(m, "Result",
+                     "The result of one analysis (result.json and the sampled fields).")
       .def_property_readonly("analysis", [](const Result& r) { return r.result().analysis; })
       .def_property_readonly("warnings", [](const Result& r) { return r.result().warnings; })
-      .def("to_json", [](const Result& r) { return result_to_json(r.result()); }, "result.json text")
-      .def("to_dict", [](const Result& r) { return json_loads(result_to_json(r.result())); },
-           "result.json as a dict")
-      .def("write", [](const Result& r, const std::string& folder, const std::string& figure_format) {
-             py::gil_scoped_release release;
-             write_result(r, folder, figure_format);
-           },
-           py::arg("folder"), py::arg("figure_format") = "png",
-           "write the output folder the CLI writes (replaced only when complete); figure_format "
-           "\"png\" or \"svg\" as the CLI's --figure-format")
+      .def(
+          "to_json", [](const Result& r) { return result_to_json(r.result()); }, "result.json text")
+      .def(
+          "to_dict", [](const Result& r) { return json_loads(result_to_json(r.result())); },
+          "result.json as a dict")
+      .def(
+          "write",
+          [](const Result& r, const std::string& folder, const std::string& figure_format) {
+            py::gil_scoped_release release;
+            write_result(r, folder, figure_format);
+          },
+          py::arg("folder"), py::arg("figure_format") = "png",
+          "write the output folder the CLI writes (replaced only when complete); figure_format "
+          "\"png\" or \"svg\" as the CLI's --figure-format")
       .def_property_readonly("arrays", &result_arrays, "every sampled quantity as numpy arrays")
-      .def_property_readonly("xuv_time_as", [](const Result& r) { return arrays_item(r, "xuv_time_as"); })
-      .def_property_readonly("xuv_field", [](const Result& r) { return arrays_item(r, "xuv_field"); },
-                             "complex XUV envelope about the centre photon energy")
-      .def_property_readonly("xuv_photon_energy_eV", [](const Result& r) { return arrays_item(r, "xuv_photon_energy_eV"); })
-      .def_property_readonly("xuv_spectrum", [](const Result& r) { return arrays_item(r, "xuv_spectrum"); })
-      .def_property_readonly("ir_time_fs", [](const Result& r) { return arrays_item(r, "ir_time_fs"); })
-      .def_property_readonly("ir_vector_potential_au", [](const Result& r) { return arrays_item(r, "ir_vector_potential_au"); })
-      .def_property_readonly("ir_electric_field_au", [](const Result& r) { return arrays_item(r, "ir_electric_field_au"); })
-      .def_property_readonly("measured_trace", [](const Result& r) { return arrays_item(r, "measured_trace"); })
-      .def_property_readonly("retrieved_trace", [](const Result& r) { return arrays_item(r, "retrieved_trace"); })
-      .def("__repr__", [](const Result& r) { return "<streakwright.Result " + r.result().analysis + ">"; });
+      .def_property_readonly("xuv_time_as",
+                             [](const Result& r) { return arrays_item(r, "xuv_time_as"); })
+      .def_property_readonly(
+          "xuv_field", [](const Result& r) { return arrays_item(r, "xuv_field"); },
+          "complex XUV envelope about the centre photon energy")
+      .def_property_readonly("xuv_photon_energy_eV",
+                             [](const Result& r) { return arrays_item(r, "xuv_photon_energy_eV"); })
+      .def_property_readonly("xuv_spectrum",
+                             [](const Result& r) { return arrays_item(r, "xuv_spectrum"); })
+      .def_property_readonly("ir_time_fs",
+                             [](const Result& r) { return arrays_item(r, "ir_time_fs"); })
+      .def_property_readonly(
+          "ir_vector_potential_au",
+          [](const Result& r) { return arrays_item(r, "ir_vector_potential_au"); })
+      .def_property_readonly("ir_electric_field_au",
+                             [](const Result& r) { return arrays_item(r, "ir_electric_field_au"); })
+      .def_property_readonly("measured_trace",
+                             [](const Result& r) { return arrays_item(r, "measured_trace"); })
+      .def_property_readonly("retrieved_trace",
+                             [](const Result& r) { return arrays_item(r, "retrieved_trace"); })
+      .def("__repr__",
+           [](const Result& r) { return "<streakwright.Result " + r.result().analysis + ">"; });
 
   m.def("load_scan", &load_scan, py::arg("path"), py::kw_only(), py::arg("gas") = py::none(),
         py::arg("ir_wavelength_nm") = py::none(), py::arg("kind") = py::none(),
         py::arg("allow_outside_data") = false,
         "Read a scan through its sidecar (NAME.json / NAME.yaml) with the CLI's reader.");
 
-  m.def("simulate", &py_simulate, py::arg("preset_or_config"), py::kw_only(), py::arg("seed") = 1ULL,
+  m.def("simulate", &py_simulate, py::arg("preset_or_config"), py::kw_only(),
+        py::arg("seed") = 1ULL,
         "Synthetic scan with known truth: a preset name, a config file path or a config dict. "
         "Returns (Scan, truth dict).");
 
   const RetrieveOptions rd;
   m.def("retrieve", &py_retrieve, py::arg("scan"), py::kw_only(), py::arg("engine") = rd.engine,
-        py::arg("iterations") = rd.iterations, py::arg("bootstrap") = rd.bootstrap, py::arg("seed") = rd.seed,
-        py::arg("threads") = rd.threads, py::arg("dipole") = "constant",
-        py::arg("cma_phase_limit") = rd.cma_phase_error_max_rad, py::arg("cma_fit_limit") = rd.cma_trace_error_max_ratio,
+        py::arg("iterations") = rd.iterations, py::arg("bootstrap") = rd.bootstrap,
+        py::arg("seed") = rd.seed, py::arg("threads") = rd.threads, py::arg("dipole") = "constant",
+        py::arg("cma_phase_limit") = rd.cma_phase_error_max_rad,
+        py::arg("cma_fit_limit") = rd.cma_trace_error_max_ratio,
         py::arg("isolated_max") = rd.isolated_max_satellite_ratio,
         py::arg("satellites_max") = rd.satellites_max_satellite_ratio,
         py::arg("despike") = rd.preprocess.remove_hot_pixels, py::arg("energy_window") = py::none(),
         py::arg("progress") = py::none(),
-        "Streaking retrieval (the CLI's `retrieve`); progress(stage, message) is called during the work.");
+        "Streaking retrieval (the CLI's `retrieve`); progress(stage, message) is called during the "
+        "work.");
 
   const RabbittAnalysisOptions ra;
   m.def("rabbitt", &py_rabbitt, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),
         py::arg("ir_wavelength") = py::none(), py::arg("atomic_correction") = ra.atomic_correction,
-        py::arg("xuv_only") = py::none(), py::arg("cross_section") = std::string(to_string(ra.train_burst.cross_section)),
+        py::arg("xuv_only") = py::none(),
+        py::arg("cross_section") = std::string(to_string(ra.train_burst.cross_section)),
         py::arg("dipole") = std::string(to_string(ra.train_burst.dipole)),
         py::arg("window") = ra.rabbitt.window_half_width_fraction,
         py::arg("min_sideband_significance") = ra.rabbitt.min_modulation_significance,
         py::arg("apply_delay_calibration") = ra.rabbitt.apply_delay_calibration,
         py::arg("energy_window") = py::none(), py::arg("no_rainbow") = !ra.rabbitt.rainbow,
         py::arg("isolated_max") = rd.isolated_max_satellite_ratio,
-        py::arg("satellites_max") = rd.satellites_max_satellite_ratio, py::arg("progress") = py::none(),
+        py::arg("satellites_max") = rd.satellites_max_satellite_ratio,
+        py::arg("progress") = py::none(),
         "RABBITT analysis (the CLI's `rabbitt`); xuv_only: a Scan of the field-free spectrum.");
 
   const ClassifierOptions cd;
   m.def("classify", &py_classify, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),
         py::arg("ir_wavelength") = py::none(), py::arg("retrieve") = false,
-        py::arg("engine") = rd.engine, py::arg("iterations") = rd.iterations, py::arg("energy_window") = py::none(),
-        py::arg("isolated_max") = cd.isolated_max_satellite_ratio, py::arg("satellites_max") = cd.satellite_max_ratio,
+        py::arg("engine") = rd.engine, py::arg("iterations") = rd.iterations,
+        py::arg("energy_window") = py::none(),
+        py::arg("isolated_max") = cd.isolated_max_satellite_ratio,
+        py::arg("satellites_max") = cd.satellite_max_ratio,
         py::arg("comparable_bursts") = cd.train_min_comparable_bursts,
         py::arg("comb_contrast") = cd.comb_min_period_contrast,
         py::arg("delay_train_share") = cd.delay_train_min_share,
-        py::arg("delay_streaking_share") = cd.delay_streaking_max_share, py::arg("min_counts") = cd.min_total_counts,
-        py::arg("progress") = py::none(), "Isolated / satellites / train verdict (the CLI's `classify`).");
+        py::arg("delay_streaking_share") = cd.delay_streaking_max_share,
+        py::arg("min_counts") = cd.min_total_counts, py::arg("progress") = py::none(),
+        "Isolated / satellites / train verdict (the CLI's `classify`).");
 
-  m.def("presets", [] {
-    std::vector<std::string> names;
-    for (const auto& p : synthetic::presets()) names.push_back(p.name);
-    return names;
-  }, "names of the built-in simulation presets");
+  m.def(
+      "presets",
+      [] {
+        std::vector<std::string> names;
+        for (const auto& p : synthetic::presets()) names.push_back(p.name);
+        return names;
+      },
+      "names of the built-in simulation presets");
 
-  // Unit conversions (retrieval/units.h, CODATA 2018), for analyses in Python and for the tests.
-  py::module_ u = m.def_submodule("units", "conversions between atomic units and eV/fs/as/nm/W cm^-2");
+  // Unit conversions (retrieval/core/units.h, CODATA 2018), for analyses in Python and for the
+  // tests.
+  py::module_ u =
+      m.def_submodule("units", "conversions between atomic units and eV/fs/as/nm/W cm^-2");
   u.def("eV_to_au", &units::eV_to_au);
   u.def("au_to_eV", &units::au_to_eV);
   u.def("fs_to_au", &units::fs_to_au);
@@ -730,8 +801,13 @@ PYBIND11_MODULE(streakwright, m) {
   r.def("sfa_amplitude", &sfa_amplitude, py::kw_only(), py::arg("delay_fs"), py::arg("energy_eV"),
         py::arg("center_eV"), py::arg("transform_limited_fwhm_as"), py::arg("gdd_as2"),
         py::arg("ionization_energy_eV"), py::arg("ir_wavelength_nm"), py::arg("ir_fwhm_fs"),
-        py::arg("ir_peak_intensity_Wcm2"), py::arg("ir_cep_rad"), py::arg("grid_step_as"), py::arg("grid_points"));
-  r.def("fwhm", [](const std::vector<double>& x, const std::vector<double>& y) { return fwhm_of_main_peak(x, y); },
-        py::arg("x"), py::arg("y"), "FWHM of the main peak (retrieval/pulse_metrics.h)");
+        py::arg("ir_peak_intensity_Wcm2"), py::arg("ir_cep_rad"), py::arg("grid_step_as"),
+        py::arg("grid_points"));
+  r.def(
+      "fwhm",
+      [](const std::vector<double>& x, const std::vector<double>& y) {
+        return fwhm_of_main_peak(x, y);
+      },
+      py::arg("x"), py::arg("y"), "FWHM of the main peak (retrieval/physics/pulse_metrics.h)");
   r.def("fft_time_to_freq", &fft_time_to_freq, py::arg("samples"));
 }

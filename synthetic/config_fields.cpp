@@ -1,6 +1,6 @@
 #include "synthetic/config_fields.h"
 
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 namespace sw::synthetic {
 

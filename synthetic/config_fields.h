@@ -14,7 +14,7 @@
 #include <string>
 #include <vector>
 
-#include "retrieval/result.h"
+#include "retrieval/core/result.h"
 #include "synthetic/scan_config.h"
 
 namespace sw::synthetic {

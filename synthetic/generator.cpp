@@ -5,10 +5,10 @@
 #include <cmath>
 #include <sstream>
 
-#include "retrieval/error.h"
-#include "retrieval/gas.h"
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/gas.h"
+#include "retrieval/physics/pulse_metrics.h"
 #include "synthetic/noise.h"
 #include "synthetic/random_streams.h"
 #include "synthetic/sfa_quadrature.h"

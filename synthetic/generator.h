@@ -23,9 +23,9 @@
 
 #include <Eigen/Core>
 
-#include "retrieval/result.h"
-#include "retrieval/trace.h"
-#include "retrieval/xuv_field.h"
+#include "retrieval/core/result.h"
+#include "retrieval/core/trace.h"
+#include "retrieval/physics/xuv_field.h"
 #include "synthetic/fluctuations.h"
 #include "synthetic/noise.h"
 #include "synthetic/scan_config.h"

@@ -5,8 +5,8 @@
 #include <random>
 #include <sstream>
 
-#include "retrieval/error.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
 
 namespace sw::synthetic {
 

@@ -2,8 +2,8 @@
 
 #include <cmath>
 
-#include "retrieval/error.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
 
 namespace sw::synthetic {
 

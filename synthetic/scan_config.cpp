@@ -3,9 +3,9 @@
 #include <cmath>
 #include <sstream>
 
-#include "retrieval/enum_names.h"
-#include "retrieval/error.h"
-#include "retrieval/gas.h"
+#include "retrieval/core/enum_names.h"
+#include "retrieval/core/error.h"
+#include "retrieval/physics/gas.h"
 
 namespace sw::synthetic {
 
@@ -38,32 +38,32 @@ std::string check_axis(const char* key, const AxisSpec& a, bool positive_first) 
 
 }  // namespace
 
-constexpr EnumNames<XuvKind, 4> kXuvKindNames{{{
-    {XuvKind::kGaussian, "gaussian"},
-    {XuvKind::kTrain, "train"},
-    {XuvKind::kSatellites, "satellites"},
-    {XuvKind::kTabulated, "tabulated"}}}};
+constexpr EnumNames<XuvKind, 4> kXuvKindNames{{{{XuvKind::kGaussian, "gaussian"},
+                                                {XuvKind::kTrain, "train"},
+                                                {XuvKind::kSatellites, "satellites"},
+                                                {XuvKind::kTabulated, "tabulated"}}}};
 
 const char* to_string(XuvKind v) { return kXuvKindNames.name(v); }
 
 bool parse_xuv_kind(const std::string& s, XuvKind* out) { return kXuvKindNames.parse(s, out); }
 
-constexpr EnumNames<IrKind, 2> kIrKindNames{{{
-    {IrKind::kNone, "none"},
-    {IrKind::kGaussian, "gaussian"}}}};
+constexpr EnumNames<IrKind, 2> kIrKindNames{
+    {{{IrKind::kNone, "none"}, {IrKind::kGaussian, "gaussian"}}}};
 
 const char* to_string(IrKind v) { return kIrKindNames.name(v); }
 
 bool parse_ir_kind(const std::string& s, IrKind* out) { return kIrKindNames.parse(s, out); }
 
-constexpr EnumNames<ResolutionKind, 3> kResolutionKindNames{{{
-    {ResolutionKind::kNone, "none"},
-    {ResolutionKind::kConstant, "constant"},
-    {ResolutionKind::kRelative, "relative"}}}};
+constexpr EnumNames<ResolutionKind, 3> kResolutionKindNames{
+    {{{ResolutionKind::kNone, "none"},
+      {ResolutionKind::kConstant, "constant"},
+      {ResolutionKind::kRelative, "relative"}}}};
 
 const char* to_string(ResolutionKind v) { return kResolutionKindNames.name(v); }
 
-bool parse_resolution_kind(const std::string& s, ResolutionKind* out) { return kResolutionKindNames.parse(s, out); }
+bool parse_resolution_kind(const std::string& s, ResolutionKind* out) {
+  return kResolutionKindNames.parse(s, out);
+}
 
 const GaussianXuvPulse* XuvConfig::burst() const {
   switch (kind) {

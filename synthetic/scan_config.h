@@ -3,7 +3,7 @@
 // delay axes, which detector and stage imperfections. Plain structs with in-class defaults and
 // validate() (empty string when valid, otherwise a sentence naming the field by its dotted
 // config key, its value and the constraint). Boundary units (eV, fs, as, nm, W/cm^2) are in the
-// field names; generate_scan() converts to atomic units through retrieval/units.h.
+// field names; generate_scan() converts to atomic units through retrieval/core/units.h.
 //
 // The defaults describe the reference scenario of the project: a transform-limited 150 as pulse
 // at 95 eV ionising neon, streaked by a 5 fs, 800 nm, 5e12 W/cm^2 pulse, 121 delays over
@@ -16,14 +16,14 @@
 #include <string>
 #include <vector>
 
-#include "retrieval/dipole.h"
-#include "retrieval/ir_field.h"
-#include "retrieval/trace.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/core/trace.h"
+#include "retrieval/physics/dipole.h"
+#include "retrieval/physics/ir_field.h"
+#include "retrieval/physics/xuv_builders.h"
 
 namespace sw::synthetic {
 
-/// Which builder of retrieval/xuv_builders.h makes the XUV field.
+/// Which builder of retrieval/physics/xuv_builders.h makes the XUV field.
 enum class XuvKind {
   kGaussian,    ///< one Gaussian-spectrum pulse (GaussianXuvPulse)
   kTrain,       ///< attosecond pulse train, odd-harmonic comb (XuvTrain)
@@ -58,7 +58,7 @@ struct XuvConfig {
 
 /// Presence of the IR streaking field.
 enum class IrKind {
-  kGaussian,  ///< sw::GaussianIrPulse (retrieval/ir_field.h)
+  kGaussian,  ///< sw::GaussianIrPulse (retrieval/physics/ir_field.h)
   kNone,      ///< no IR: field-free photoelectron spectra (XUV-only scans)
 };
 const char* to_string(IrKind k);
@@ -179,8 +179,8 @@ struct NumericsConfig {
 /// IR field, with its own threshold Ip: its amplitude is the SFA amplitude of DESIGN.md with
 /// that Ip. Counts of different lines add incoherently (different final ionic states).
 struct LineSpec {
-  /// Gas of the line (symbol or name of retrieval/gas.h); "" = the scan's gas. A line of another
-  /// gas makes the scan a two-gas mixture.
+  /// Gas of the line (symbol or name of retrieval/physics/gas.h); "" = the scan's gas. A line of
+  /// another gas makes the scan a two-gas mixture.
   std::string gas;
   /// Hole orbital as in the gas table ("2p", "2s", "3p", "3s", ...); with ionization_energy_eV
   /// given, any label (used only in records).
@@ -209,7 +209,7 @@ struct ResolvedLine {
 /// Time-of-flight recording: the scan is written on a flight-time axis instead of the energy
 /// axis (io reads it back with its calibration block, io/tof_calibration.h). A field-free
 /// drift of length L after the start time t0: E(t) = (m_e / 2) (L / (t - t0))^2 / e +
-/// energy_offset_eV (CODATA 2018 m_e and e, retrieval/units.h). The flight-time bins are
+/// energy_offset_eV (CODATA 2018 m_e and e, retrieval/core/units.h). The flight-time bins are
 /// uniform and span exactly the flight times of the energy axis' outer bin edges; the
 /// noise-free counts of each energy bin are spread over the time bins by the overlap of their
 /// energy intervals (counts conserved: the t^3 Jacobian of DESIGN.md "Pitfalls").
@@ -225,8 +225,9 @@ struct ScanConfig {
   std::string name;  ///< label for notes (e.g. the preset name)
   XuvConfig xuv;
   IrConfig ir;
-  std::string gas = "Ne";                     ///< target symbol or name (retrieval/gas.h)
-  DipoleKind dipole = DipoleKind::kConstant;  ///< bound-free dipole model (retrieval/dipole.h)
+  std::string gas = "Ne";  ///< target symbol or name (retrieval/physics/gas.h)
+  DipoleKind dipole =
+      DipoleKind::kConstant;  ///< bound-free dipole model (retrieval/physics/dipole.h)
   /// Momentum (a.u.) where the hydrogenic dipole is normalised to 1; 0 = the central momentum
   /// sqrt(2 (Omega0 - Ip)). Ignored by the constant dipole. (>= 0)
   double dipole_reference_momentum_au = 0.0;

@@ -6,8 +6,8 @@
 
 #include <omp.h>
 
-#include "retrieval/error.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
 
 namespace sw::synthetic {
 

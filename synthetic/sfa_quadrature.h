@@ -1,6 +1,6 @@
 #pragma once
 // The SFA streaking amplitude of DESIGN.md by direct quadrature, with the full momentum
-// dependence and independently of retrieval/forward_model.cpp (no FFT, no CMA gate, no
+// dependence and independently of retrieval/physics/forward_model.cpp (no FFT, no CMA gate, no
 // IrField interpolation):
 //
 //   a(W, tau) = -i Int dt E_X(t - tau) d(p + A(t)) exp(i phi_V(p, t)) exp(i (W + Ip) t),
@@ -33,8 +33,8 @@
 
 #include <Eigen/Core>
 
-#include "retrieval/dipole.h"
-#include "retrieval/xuv_field.h"
+#include "retrieval/physics/dipole.h"
+#include "retrieval/physics/xuv_field.h"
 #include "synthetic/volkov_table.h"
 
 namespace sw::synthetic {

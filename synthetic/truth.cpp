@@ -6,9 +6,9 @@
 #include <complex>
 #include <sstream>
 
-#include "retrieval/gas.h"
-#include "retrieval/units.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/gas.h"
+#include "retrieval/physics/xuv_builders.h"
 #include "synthetic/config_fields.h"
 
 namespace sw::synthetic {

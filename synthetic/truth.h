@@ -1,7 +1,7 @@
 #pragma once
 // The truth record of a synthetic scan: an sw::AnalysisResult (analysis = "simulate") holding
 // what a perfect analysis of the scan should report, computed from the exact fields with the
-// pulse metrics of retrieval/pulse_metrics.h, plus every generator parameter.
+// pulse metrics of retrieval/physics/pulse_metrics.h, plus every generator parameter.
 //
 //   xuv:     fwhm_as (main peak), transform_limited_fwhm_as, rms_duration_as, gdd_as2, tod_as3,
 //            center_photon_energy_eV, bandwidth_fwhm_eV (fit_spectral_phase, threshold 5 %,
@@ -26,8 +26,8 @@
 
 #include <vector>
 
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/result.h"
+#include "retrieval/core/result.h"
+#include "retrieval/physics/pulse_metrics.h"
 #include "synthetic/fluctuations.h"
 #include "synthetic/scan_config.h"
 #include "synthetic/volkov_table.h"

@@ -1,16 +1,17 @@
 #pragma once
 // The IR quantities of the Volkov phase for the synthetic generator, computed independently of
-// retrieval/ir_field.cpp (DESIGN.md: no inverse crime):
+// retrieval/physics/ir_field.cpp (DESIGN.md: no inverse crime):
 //
 //   phi_V(p, t) = -p I1(t) - I2(t)/2,   I1(t) = Int_t^inf A dt',   I2(t) = Int_t^inf A^2 dt',
 //
-// for a Gaussian IR pulse A(t) = -(E0/w) f(t) sin(w t + b t^2 + cep) (retrieval/ir_field.h).
-// A(t) itself is always the analytic sw::gaussian_ir_vector_potential. The integrals are
-// tabulated on a fine grid (step = optical period / 256 at the highest instantaneous frequency)
-// covering +-5.5 intensity FWHM about the pulse centre (where the envelope has fallen below
-// 1e-18), accumulated from the right with 4-point Gauss-Legendre quadrature per step (exact for
-// polynomials of degree 7; error ~ (w h)^8 / 8! per step), and evaluated between nodes by cubic
-// Hermite interpolation with the exact derivatives dI1/dt = -A, dI2/dt = -A^2 (error
+// for a Gaussian IR pulse A(t) = -(E0/w) f(t) sin(w t + b t^2 + cep)
+// (retrieval/physics/ir_field.h). A(t) itself is always the analytic
+// sw::gaussian_ir_vector_potential. The integrals are tabulated on a fine grid (step = optical
+// period / 256 at the highest instantaneous frequency) covering +-5.5 intensity FWHM about the
+// pulse centre (where the envelope has fallen below 1e-18), accumulated from the right with 4-point
+// Gauss-Legendre quadrature per step (exact for polynomials of degree 7; error ~ (w h)^8 / 8! per
+// step), and evaluated between nodes by cubic Hermite interpolation with the exact derivatives
+// dI1/dt = -A, dI2/dt = -A^2 (error
 // <= h^4 max|A'''| / 384, ~1e-9 A0/w).
 //
 // Per-row fluctuations of intensity and CEP are exact linear combinations of two tables: with
@@ -20,7 +21,7 @@
 
 #include <vector>
 
-#include "retrieval/ir_field.h"
+#include "retrieval/physics/ir_field.h"
 
 namespace sw::synthetic {
 

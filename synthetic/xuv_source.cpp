@@ -4,14 +4,14 @@
 #include <cmath>
 #include <limits>
 
-#include "retrieval/units.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/xuv_builders.h"
 
 namespace sw::synthetic {
 
 namespace {
 
-// Spectral amplitude width sigma_w of a Gaussian burst (retrieval/xuv_builders.h).
+// Spectral amplitude width sigma_w of a Gaussian burst (retrieval/physics/xuv_builders.h).
 double sigma_w(const GaussianXuvPulse& b) {
   return 2.0 * std::sqrt(std::log(2.0)) / units::as_to_au(b.transform_limited_fwhm_as);
 }

@@ -1,6 +1,6 @@
 #pragma once
 // The exact XUV field of a scan configuration, built with the retrieval builders
-// (retrieval/xuv_builders.h) on a grid the generator chooses for the quadrature:
+// (retrieval/physics/xuv_builders.h) on a grid the generator chooses for the quadrature:
 //
 //   step   h = min(2 pi / (D + B + g), pi / B) / oversampling, where D = largest detuning
 //            |W + Ip - Omega_c| of the energy axis, B = half-width of the XUV spectrum about
@@ -22,7 +22,7 @@
 
 #include <string>
 
-#include "retrieval/xuv_field.h"
+#include "retrieval/physics/xuv_field.h"
 #include "synthetic/scan_config.h"
 
 namespace sw::synthetic {

@@ -1,7 +1,7 @@
 #pragma once
 // Synthetic streaking problems with known truth for the CMA engine tests: the trace is made
 // with sw::ForwardModel (kCentral, the same p0 the engines use), from a Gaussian XUV
-// (retrieval/xuv_builders.h) and a Gaussian IR (sw::make_gaussian_ir). Neon target
+// (retrieval/physics/xuv_builders.h) and a Gaussian IR (sw::make_gaussian_ir). Neon target
 // (Ip = 21.5645 eV, NIST ASD), 95 eV photons, 800 nm IR. Independent validation against the
 // direct-quadrature generator is done elsewhere (synthetic/).
 
@@ -12,12 +12,12 @@
 #include <random>
 #include <vector>
 
-#include "retrieval/engine.h"
-#include "retrieval/forward_model.h"
-#include "retrieval/ir_field.h"
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/units.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/core/units.h"
+#include "retrieval/engines/engine.h"
+#include "retrieval/physics/forward_model.h"
+#include "retrieval/physics/ir_field.h"
+#include "retrieval/physics/pulse_metrics.h"
+#include "retrieval/physics/xuv_builders.h"
 
 namespace sw::testing {
 
@@ -127,7 +127,6 @@ inline Metrics metrics(const XuvField& x, const IrField& ir) {
   m.peak_A = ir.peak_vector_potential();
   return m;
 }
-
 
 /// Runs a registered engine on a case with the given options.
 inline Reconstruction retrieve(const Case& c, const std::string& engine, EngineOptions o = {}) {

@@ -5,10 +5,10 @@
 #include <cmath>
 #include <complex>
 
-#include "retrieval/atomic_delay.h"
-#include "retrieval/error.h"
-#include "retrieval/gas.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/atomic_delay.h"
+#include "retrieval/physics/gas.h"
 
 using namespace sw;
 using cplx = std::complex<double>;

@@ -1,12 +1,13 @@
-// Background model (retrieval/background.h) on synthetic counts whose background is known.
+// Background model (retrieval/preprocess/background.h) on synthetic counts whose background is
+// known.
 #include <catch2/catch.hpp>
 
 #include <cmath>
 #include <random>
 
-#include "retrieval/background.h"
-#include "retrieval/preprocess.h"
-#include "retrieval/units.h"
+#include "retrieval/core/units.h"
+#include "retrieval/preprocess/background.h"
+#include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -22,7 +23,8 @@ std::vector<double> energies_eV(const Trace& t) {
 
 // neon-150as on 20-140 eV (signal-free bins on both sides of the streaked line) with a known
 // background: constant c per bin plus a exp(-W / w).
-synthetic::SyntheticScan neon_with_background(double c, double a, double w, unsigned long long seed) {
+synthetic::SyntheticScan neon_with_background(double c, double a, double w,
+                                              unsigned long long seed) {
   synthetic::ScanConfig cfg = synthetic::find_preset("neon-150as").config;
   cfg.geometry.energy_eV = {20.0, 0.25, 480};
   cfg.noise.background_counts = c;
@@ -59,7 +61,8 @@ TEST_CASE("background bins avoid the streaked signal", "[background]") {
   CHECK(bg_count > 40);  // both sides of the 20-140 eV axis contribute
 }
 
-TEST_CASE("background fit is unbiased within its sigma: constant + exponential tail", "[background]") {
+TEST_CASE("background fit is unbiased within its sigma: constant + exponential tail",
+          "[background]") {
   // Known background 2 counts/bin + 60 exp(-W / 12 eV) (the low-energy electron tail shape
   // the generator adds; its parameters are ours). Poisson ML is asymptotically unbiased
   // with the inverse Fisher information as covariance (Cramer-Rao; standard statistics):
@@ -68,10 +71,12 @@ TEST_CASE("background fit is unbiased within its sigma: constant + exponential t
   double pull_c = 0, pull_a = 0;
   for (unsigned long long seed : {21ULL, 22ULL, 23ULL}) {
     const auto sc = neon_with_background(2.0, 60.0, 12.0, seed);
-    const BackgroundModel m = fit_background(sc.trace.counts, energies_eV(sc.trace), BackgroundOptions{});
-    INFO("seed " << seed << ": " << m.model << " c = " << m.constant_counts << " +- " << m.constant_counts_sigma
-                 << ", a = " << m.tail_counts_at_zero << " +- " << m.tail_counts_at_zero_sigma << ", w = "
-                 << m.tail_decay_eV << " +- " << m.tail_decay_eV_sigma << " (" << m.background_bins << " bins)");
+    const BackgroundModel m =
+        fit_background(sc.trace.counts, energies_eV(sc.trace), BackgroundOptions{});
+    INFO("seed " << seed << ": " << m.model << " c = " << m.constant_counts << " +- "
+                 << m.constant_counts_sigma << ", a = " << m.tail_counts_at_zero << " +- "
+                 << m.tail_counts_at_zero_sigma << ", w = " << m.tail_decay_eV << " +- "
+                 << m.tail_decay_eV_sigma << " (" << m.background_bins << " bins)");
     REQUIRE(m.has_tail);
     CHECK(std::abs(m.constant_counts - 2.0) < 3.0 * m.constant_counts_sigma);
     CHECK(std::abs(m.tail_decay_eV - 12.0) < 3.0 * m.tail_decay_eV_sigma);
@@ -89,8 +94,10 @@ TEST_CASE("background fit: a flat background gives the constant model", "[backgr
   // Without a tail the likelihood-ratio test (Wilks: chi^2 with 2 dof, 1 % point 9.21) must
   // keep the constant model on most draws; the constant is unbiased within 3 sigma.
   const auto sc = neon_with_background(4.0, 0.0, 10.0, 31);
-  const BackgroundModel m = fit_background(sc.trace.counts, energies_eV(sc.trace), BackgroundOptions{});
-  INFO(m.model << ": c = " << m.constant_counts << " +- " << m.constant_counts_sigma << "; " << m.note);
+  const BackgroundModel m =
+      fit_background(sc.trace.counts, energies_eV(sc.trace), BackgroundOptions{});
+  INFO(m.model << ": c = " << m.constant_counts << " +- " << m.constant_counts_sigma << "; "
+               << m.note);
   CHECK(m.model == "constant");
   CHECK(std::abs(m.constant_counts - 4.0) < 3.0 * m.constant_counts_sigma);
   // sigma of a Poisson mean over n bins x rows counts: sqrt(c / (n rows)) (standard).
@@ -112,12 +119,13 @@ TEST_CASE("background fit: time-of-flight background follows the t^3 Jacobian", 
     for (int j = 0; j < ne; ++j) {
       const double w = W[static_cast<std::size_t>(j)];
       const double centre = 60.0 + 5.0 * std::sin(0.3 * i);
-      const double mu = c + d * std::pow(10.0 / w, 1.5) + 300.0 * std::exp(-0.5 * std::pow((w - centre) / 4.0, 2));
+      const double mu = c + d * std::pow(10.0 / w, 1.5) +
+                        300.0 * std::exp(-0.5 * std::pow((w - centre) / 4.0, 2));
       counts(i, j) = static_cast<double>(std::poisson_distribution<long long>(mu)(rng));
     }
   const BackgroundModel m = fit_background(counts, W, BackgroundOptions{}, true, 0.0);
-  INFO(m.model << ": c = " << m.constant_counts << " +- " << m.constant_counts_sigma << ", d = " << m.tof_counts
-               << " +- " << m.tof_counts_sigma << "; " << m.note);
+  INFO(m.model << ": c = " << m.constant_counts << " +- " << m.constant_counts_sigma
+               << ", d = " << m.tof_counts << " +- " << m.tof_counts_sigma << "; " << m.note);
   REQUIRE(m.has_tof);
   CHECK(std::abs(m.tof_counts - d) < 3.0 * m.tof_counts_sigma);
   CHECK(std::abs(m.constant_counts - c) < 3.0 * m.constant_counts_sigma);
@@ -141,7 +149,8 @@ TEST_CASE("preprocess subtracts the fitted background without bias", "[backgroun
     for (Eigen::Index j = 0; j < pr.intensity.cols(); ++j)
       if (sc.clean(i, j) * scale < 1e-3) {
         const double W = units::au_to_eV(pr.energy_au[static_cast<std::size_t>(j)]);
-        sum += pr.intensity(i, j) * dW * units::momentum_au(pr.energy_au[static_cast<std::size_t>(j)]);
+        sum +=
+            pr.intensity(i, j) * dW * units::momentum_au(pr.energy_au[static_cast<std::size_t>(j)]);
         var += 2.0 + 60.0 * std::exp(-W / 12.0);
         sb += ps.background.sigma_at(W);
         ++n;

@@ -15,7 +15,7 @@
 #include <opencv2/imgcodecs.hpp>
 
 #include "io/trace_reader.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -26,8 +26,6 @@ namespace {
 
 using sw::test::TempDir;
 using sw::test::write_text;
-
-
 
 /// A valid 4 delays x 5 energies scan: good.png + the sidecar below.
 struct Fixture {

@@ -1,17 +1,18 @@
-// Isolated / satellites / train verdict on labelled synthetic scans (retrieval/xuv_builders.h
-// fields through the SFA forward model with the full momentum dependence, Poisson noise), far
-// from the DESIGN.md thresholds (10 % and 70 % satellite intensity).
+// Isolated / satellites / train verdict on labelled synthetic scans
+// (retrieval/physics/xuv_builders.h fields through the SFA forward model with the full momentum
+// dependence, Poisson noise), far from the DESIGN.md thresholds (10 % and 70 % satellite
+// intensity).
 #include <catch2/catch.hpp>
 
 #include <cmath>
 #include <random>
 
-#include "retrieval/classifier.h"
-#include "retrieval/error.h"
-#include "retrieval/forward_model.h"
-#include "retrieval/gas.h"
-#include "retrieval/units.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/analysis/classifier.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/forward_model.h"
+#include "retrieval/physics/gas.h"
+#include "retrieval/physics/xuv_builders.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -283,7 +284,10 @@ TEST_CASE("hot pixels do not fake spectral fringes: the classifier despikes", "[
   Trace hot = clean;
   const Eigen::Index nd = hot.counts.rows(), ne = hot.counts.cols();
   for (int k = 0; k < 15; ++k) {
-    const Eigen::Index i = k == 0 ? 0 : k == 1 ? nd - 1 : (k * 5) % nd, j = (ne / 3) + (k * 7) % (ne / 3);
+    const Eigen::Index i = k == 0   ? 0
+                           : k == 1 ? nd - 1
+                                    : (k * 5) % nd,
+                       j = (ne / 3) + (k * 7) % (ne / 3);
     hot.counts(i, j) = 100.0 * std::max(1.0, hot.counts(i, j));
   }
   const VerdictSection ref = classify(clean, o);

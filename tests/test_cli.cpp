@@ -18,7 +18,6 @@ namespace {
 using Run = sw::test::CliRun;
 Run cli(const std::string& args) { return sw::test::run_cli(args); }
 
-
 fs::path temp_dir() {
   std::random_device rd;
   fs::path d = fs::temp_directory_path() / ("sw-cli-" + std::to_string(rd()));
@@ -36,14 +35,15 @@ TEST_CASE("version, help and presets", "[cli]") {
   CHECK(h.out.find("full-model") != std::string::npos);
   const Run l = cli("simulate --list");
   CHECK(l.code == 0);
-  for (const char* name : {"neon-150as", "helium-70as", "neon-satellites", "argon-rabbitt", "neon-xuv-only"})
+  for (const char* name :
+       {"neon-150as", "helium-70as", "neon-satellites", "argon-rabbitt", "neon-xuv-only"})
     CHECK(l.out.find(name) != std::string::npos);
 }
 
 TEST_CASE("exit codes: usage 2, bad input 3", "[cli]") {
   // docs/cli.md exit-code table (the project's own contract).
   const fs::path d = temp_dir();
-  CHECK(cli("retrieve").code == 2);                              // missing required arguments
+  CHECK(cli("retrieve").code == 2);  // missing required arguments
   CHECK(cli("simulate --preset no-such-preset --out " + d.string()).code == 3);
   const Run missing = cli("info " + (d / "absent.json").string());
   CHECK(missing.code == 3);
@@ -52,8 +52,8 @@ TEST_CASE("exit codes: usage 2, bad input 3", "[cli]") {
   const Run broken = cli("info " + (d / "broken.json").string());
   CHECK(broken.code == 3);
   CHECK(broken.out.find("broken.json") != std::string::npos);
-  const Run engine = cli("retrieve " + (d / "broken.json").string() + " --out " + (d / "o").string() +
-                         " --engine no-such-engine");
+  const Run engine = cli("retrieve " + (d / "broken.json").string() + " --out " +
+                         (d / "o").string() + " --engine no-such-engine");
   CHECK(engine.code == 2);
   CHECK(engine.out.find("ptychographic") != std::string::npos);  // lists the registered engines
   fs::remove_all(d);
@@ -70,20 +70,22 @@ TEST_CASE("simulate then retrieve reproduces the truth", "[cli]") {
   const Run i = cli("info " + (d / "neon-150as.json").string());
   CHECK(i.code == 0);
   CHECK(i.out.find("121 delays x 300 energies") != std::string::npos);
-  const Run r = cli("retrieve " + (d / "neon-150as.json").string() + " --out " + (d / "r").string() +
-                    " --engine ptychographic --bootstrap 2 --quiet");
+  const Run r = cli("retrieve " + (d / "neon-150as.json").string() + " --out " +
+                    (d / "r").string() + " --engine ptychographic --bootstrap 2 --quiet");
   REQUIRE(r.code == 0);
   CHECK(r.out.find("XUV FWHM") != std::string::npos);
-  for (const char* f : {"result.json", "report.html", "xuv_temporal.csv", "xuv_spectral.csv", "ir_field.csv",
-                        "trace_comparison.png", "xuv_pulse.png", "convergence.png"})
+  for (const char* f : {"result.json", "report.html", "xuv_temporal.csv", "xuv_spectral.csv",
+                        "ir_field.csv", "trace_comparison.png", "xuv_pulse.png", "convergence.png"})
     CHECK(fs::exists(d / "r" / f));
   const sw::AnalysisResult res = sw::read_result_json((d / "r" / "result.json").string());
   const sw::AnalysisResult truth = sw::read_result_json((d / "neon-150as.truth.json").string());
   CHECK(std::abs(*res.xuv->fwhm_as / *truth.xuv->fwhm_as - 1) < 0.05);
-  CHECK(std::abs(*res.ir->peak_vector_potential_au / *truth.ir->peak_vector_potential_au - 1) < 0.05);
+  CHECK(std::abs(*res.ir->peak_vector_potential_au / *truth.ir->peak_vector_potential_au - 1) <
+        0.05);
   CHECK(res.xuv->fwhm_as_sigma.has_value());
   CHECK(res.fit->converged.value_or(false));
   // No temporary files left behind (atomic writes).
-  for (const auto& e : fs::directory_iterator(d / "r")) CHECK(e.path().filename().string().find(".tmp") == std::string::npos);
+  for (const auto& e : fs::directory_iterator(d / "r"))
+    CHECK(e.path().filename().string().find(".tmp") == std::string::npos);
   fs::remove_all(d);
 }

@@ -1,9 +1,9 @@
-// The CMA data-projection kernels (retrieval/cma_kernels.h) against a plain scalar reference
-// written here: std::complex, std::abs, std::sqrt, one bin at a time (no code shared with the
-// vectorised kernels). The reference follows the formulas of cma_problem.h: modulus
-// replacement (amplitude projection, the least-squares projection onto |psi~| = a) and the
-// Poisson Newton step of Thibault and Guizar-Sicairos, New J. Phys. 14, 063004 (2012).
-#include "retrieval/cma_kernels.h"
+// The CMA data-projection kernels (retrieval/engines/cma_kernels.h) against a plain scalar
+// reference written here: std::complex, std::abs, std::sqrt, one bin at a time (no code shared with
+// the vectorised kernels). The reference follows the formulas of cma_problem.h: modulus replacement
+// (amplitude projection, the least-squares projection onto |psi~| = a) and the Poisson Newton step
+// of Thibault and Guizar-Sicairos, New J. Phys. 14, 063004 (2012).
+#include "retrieval/engines/cma_kernels.h"
 
 #include <catch2/catch.hpp>
 
@@ -32,8 +32,8 @@ Segment make_segment(std::size_t n, unsigned seed) {
   s.a.resize(n);
   for (std::size_t q = 0; q < n; ++q) {
     double re = g(rng), im = g(rng);
-    if (q % 11 == 3) re = im = 0.0;             // an exact zero bin
-    if (q % 13 == 5) re *= 1e-9, im *= 1e-9;    // a nearly empty bin
+    if (q % 11 == 3) re = im = 0.0;           // an exact zero bin
+    if (q % 13 == 5) re *= 1e-9, im *= 1e-9;  // a nearly empty bin
     s.S[2 * q] = re;
     s.S[2 * q + 1] = im;
     s.I[q] = q % 7 == 2 ? -u(rng) : 20.0 * u(rng);  // some negative counts
@@ -98,7 +98,8 @@ TEST_CASE("amplitude and Poisson projections equal the scalar reference", "[cma_
       if (!poisson)  // modulus replacement: |S| = a exactly where S was not zero
         for (std::size_t q = 0; q < n; ++q)
           if (std::abs(want[q]) > 0)
-            CHECK(std::hypot(s.S[2 * q], s.S[2 * q + 1]) == Approx(s.a[q]).epsilon(1e-12).margin(1e-300));
+            CHECK(std::hypot(s.S[2 * q], s.S[2 * q + 1]) ==
+                  Approx(s.a[q]).epsilon(1e-12).margin(1e-300));
     }
   }
 }

@@ -1,14 +1,14 @@
-// Energy support of the signal (retrieval/support.h) on delay-integrated spectra with known
-// shape, and its use by preprocess().
+// Energy support of the signal (retrieval/preprocess/support.h) on delay-integrated spectra with
+// known shape, and its use by preprocess().
 #include <catch2/catch.hpp>
 
 #include <cmath>
 #include <random>
 
-#include "retrieval/error.h"
-#include "retrieval/preprocess.h"
-#include "retrieval/support.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/preprocess/preprocess.h"
+#include "retrieval/preprocess/support.h"
 
 using namespace sw;
 
@@ -50,7 +50,8 @@ TEST_CASE("support options: defaults validate, bad values are named", "[support]
                   Error);
 }
 
-TEST_CASE("a Gaussian line on a flat background: the support holds the line, not the window", "[support]") {
+TEST_CASE("a Gaussian line on a flat background: the support holds the line, not the window",
+          "[support]") {
   // 25 peak counts, 1 background count per element (issue 10's wide-window case), line at
   // 73 eV with sigma 5 eV in a 90 eV window. Summed over 121 delays and 5 bins, the 5-sigma
   // significance is reached where the line is ~ 5 sqrt(5 x 121) / (5 x 121) x 1 / 25 = 0.8 %
@@ -69,12 +70,14 @@ TEST_CASE("a Gaussian line on a flat background: the support holds the line, not
   CHECK(b.core_share < 0.5);
 }
 
-TEST_CASE("pure noise has no support; a constant level without subtraction fills the axis", "[support]") {
+TEST_CASE("pure noise has no support; a constant level without subtraction fills the axis",
+          "[support]") {
   // Background-subtracted Poisson noise: a 5-sigma excursion of a box sum has probability
   // 2.9e-7 per bin (normal tail, common practice), so none is found.
   std::mt19937_64 rng(3);
   const Scan s = scan(0.0, 73.0, 5.0, 2.0, &rng);
-  const EnergySupport none = find_energy_support(s.counts.array() - 2.0, s.counts, s.W, SupportOptions());
+  const EnergySupport none =
+      find_energy_support(s.counts.array() - 2.0, s.counts, s.W, SupportOptions());
   CHECK_FALSE(none.found);
   // Nothing subtracted: every bin is "signal" and the band is the whole axis.
   const EnergySupport all = find_energy_support(s.counts, s.counts, s.W, SupportOptions());

@@ -7,8 +7,8 @@
 #include <limits>
 #include <thread>
 
-#include "retrieval/engine.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
+#include "retrieval/engines/engine.h"
 
 using namespace sw;
 
@@ -172,7 +172,7 @@ TEST_CASE("engine-specific options are checked against the engine's description"
 }
 
 TEST_CASE("the loop stops at max_iterations and returns the best estimate", "[engine]") {
-  // Contract of run_engine (retrieval/engine.h; Ceres practice: numerical trouble or a stop
+  // Contract of run_engine (retrieval/engines/engine.h; Ceres practice: numerical trouble or a stop
   // keeps the best estimate, never the last iterate if it was worse).
   // G oscillates: the best (lowest) iterate is not the last one.
   FakeEngine e([](int k) { return 1.0 + 0.5 * std::sin(0.7 * k) + 1.0 / k; });

@@ -12,7 +12,7 @@
 
 #include "io/figures.h"
 #include "io/plot.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;

@@ -1,5 +1,5 @@
-// The one precision policy of retrieval/format.h.
-#include "retrieval/format.h"
+// The one precision policy of retrieval/core/format.h.
+#include "retrieval/core/format.h"
 
 #include <catch2/catch.hpp>
 
@@ -44,7 +44,8 @@ TEST_CASE("format_exact reads back as the same double and is the shortest such t
   CHECK(sw::format_cell(2.5) == "2.5");
 }
 
-TEST_CASE("value +- sigma: sigma to two significant digits, value to the same decimal place", "[format]") {
+TEST_CASE("value +- sigma: sigma to two significant digits, value to the same decimal place",
+          "[format]") {
   // Examples of the Particle Data Group's rounding section (R. L. Workman et al., PTEP 2022,
   // 083C01; from memory): 0.827 +- 0.119 -> 0.83 +- 0.12 (two digits, leading digits 119).
   auto t = sw::round_value_sigma(0.827, 0.119);

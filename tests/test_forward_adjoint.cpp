@@ -6,9 +6,9 @@
 #include <cmath>
 #include <random>
 
-#include "retrieval/forward_adjoint.h"
-#include "retrieval/forward_model.h"
-#include "retrieval/units.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/forward_adjoint.h"
+#include "retrieval/physics/forward_model.h"
 
 using namespace sw;
 
@@ -395,13 +395,15 @@ TEST_CASE("energy resolution: model counts are the unblurred counts convolved wi
   const int half = static_cast<int>(std::floor(4.0 * sigma));
   std::vector<double> k;
   double sum = 0;
-  for (int t = -half; t <= half; ++t) k.push_back(std::exp(-0.5 * t * t / (sigma * sigma))), sum += k.back();
+  for (int t = -half; t <= half; ++t)
+    k.push_back(std::exp(-0.5 * t * t / (sigma * sigma))), sum += k.back();
   for (double& x : k) x /= sum;
   double worst = 0;
   for (Eigen::Index i = 0; i < sharp.rows(); ++i)
     for (Eigen::Index j = half + 1; j < sharp.cols() - half - 1; ++j) {
       double ref = 0;
-      for (int t = -half; t <= half; ++t) ref += k[static_cast<std::size_t>(t + half)] * sharp(i, j + t);
+      for (int t = -half; t <= half; ++t)
+        ref += k[static_cast<std::size_t>(t + half)] * sharp(i, j + t);
       worst = std::max(worst, std::abs(blurred(i, j) - ref));
     }
   CHECK(worst < 1e-12 * sharp.maxCoeff());

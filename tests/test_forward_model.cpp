@@ -3,8 +3,8 @@
 
 #include <cmath>
 
-#include "retrieval/forward_model.h"
-#include "retrieval/units.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/forward_model.h"
 
 using namespace sw;
 
@@ -14,7 +14,8 @@ XuvField gaussian_xuv(const TimeGrid& g, double carrier_eV, double fwhm_as, doub
   const double tf = units::as_to_au(fwhm_as);
   for (std::size_t i = 0; i < g.size(); ++i) {
     const double t = g.time(i);
-    env[i] = std::exp(-2 * std::log(2.) * t * t / (tf * tf)) * std::polar(1.0, chirp * t * t / (tf * tf));
+    env[i] = std::exp(-2 * std::log(2.) * t * t / (tf * tf)) *
+             std::polar(1.0, chirp * t * t / (tf * tf));
   }
   return XuvField(g, units::eV_to_au(carrier_eV), env);
 }
@@ -30,7 +31,7 @@ TEST_CASE("energy centroid follows the classical (p - A(tau))^2 / 2", "[forward]
   // PRL 88, 173903 (2002)). Averaged over the electrons -- initial momenta distributed as the
   // field-free photoelectron spectrum, birth times as the XUV intensity (independent for a
   // transform-limited pulse) -- the centroid is <W>_ff - <p>_ff <A>_t + <A^2>_t / 2. That holds
-  // for the exact model and for the delay-adapted CMA gate (retrieval/gate.h) alike; the
+  // for the exact model and for the delay-adapted CMA gate (retrieval/physics/gate.h) alike; the
   // textbook CMA (shift -(p0 A + A^2/2)) would miss by up to A0^2 = 1.1 eV. Tolerance 0.1 eV,
   // a tenth of that difference (common practice); the residual, 0.05-0.06 eV when this test
   // was written, is beyond the classical picture (the gate's curvature over the pulse).
@@ -39,7 +40,8 @@ TEST_CASE("energy centroid follows the classical (p - A(tau))^2 / 2", "[forward]
   const XuvField x = gaussian_xuv(g, 95.0, 150.0);
   GaussianIrPulse P;
   P.peak_intensity_Wcm2 = 5e12;
-  const IrField ir = make_gaussian_ir(P, units::fs_to_au(-20), units::fs_to_au(20), units::as_to_au(20));
+  const IrField ir =
+      make_gaussian_ir(P, units::fs_to_au(-20), units::fs_to_au(20), units::as_to_au(20));
   const IrField no_ir(units::fs_to_au(-20), units::as_to_au(20), std::vector<double>(2001, 0.0));
   const auto W = axis(units::eV_to_au(40), units::eV_to_au(0.25), 300);
   const auto D = axis(units::fs_to_au(-6), units::fs_to_au(0.1), 121);
@@ -94,7 +96,8 @@ TEST_CASE("full model equals direct quadrature of the SFA integral", "[forward]"
   const XuvField x = gaussian_xuv(g, 95.0, 100.0, 0.3);
   GaussianIrPulse P;
   P.peak_intensity_Wcm2 = 1e13;
-  const IrField ir = make_gaussian_ir(P, units::fs_to_au(-20), units::fs_to_au(20), units::as_to_au(10));
+  const IrField ir =
+      make_gaussian_ir(P, units::fs_to_au(-20), units::fs_to_au(20), units::as_to_au(10));
   const DipoleModel d(DipoleKind::kHydrogenic, ip, 2.3);
   const auto W = axis(units::eV_to_au(40), units::eV_to_au(0.25), 300);
   const std::vector<double> D = {units::fs_to_au(-0.7), units::fs_to_au(0.33)};
@@ -111,7 +114,8 @@ TEST_CASE("full model equals direct quadrature of the SFA integral", "[forward]"
         const auto v = ir.at(s + D[i]);
         const auto ex = std::exp(-2 * std::log(2.) * s * s / (tf * tf)) *
                         std::polar(1.0, 0.3 * s * s / (tf * tf) - wc * s);
-        acc += ex * d(p + v.A) * std::polar(1.0, -p * v.I1 - 0.5 * v.I2 + (W[j] + ip) * (s + D[i])) * h;
+        acc += ex * d(p + v.A) *
+               std::polar(1.0, -p * v.I1 - 0.5 * v.I2 + (W[j] + ip) * (s + D[i])) * h;
       }
       acc *= std::complex<double>(0, -1);
       err = std::max(err, std::abs(acc - a(i, j)));

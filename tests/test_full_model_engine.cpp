@@ -8,12 +8,12 @@
 #include <cstdio>
 #include <random>
 
-#include "retrieval/engine.h"
-#include "retrieval/forward_model.h"
-#include "retrieval/full_model_engine.h"
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/units.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/core/units.h"
+#include "retrieval/engines/engine.h"
+#include "retrieval/engines/full_model_engine.h"
+#include "retrieval/physics/forward_model.h"
+#include "retrieval/physics/pulse_metrics.h"
+#include "retrieval/physics/xuv_builders.h"
 
 using namespace sw;
 
@@ -226,7 +226,7 @@ TEST_CASE("full-model gradient matches central differences", "[fullmodel]") {
 }
 
 TEST_CASE("Gaussian IR form is the one of sw::gaussian_ir_vector_potential", "[fullmodel]") {
-  // Same formula (retrieval/ir_field.h): the parametric engine reports pulses in its units.
+  // Same formula (retrieval/physics/ir_field.h): the parametric engine reports pulses in its units.
   GaussianIrPulse p;
   p.wavelength_nm = 780;
   p.fwhm_fs = 6.5;
@@ -396,8 +396,8 @@ TEST_CASE("broadband attosecond pulse: full model retrieves it, the CMA cannot",
 TEST_CASE("chirped broadband pulse from a flat-phase start", "[fullmodel]") {
   // Same scenario with GDD = +2000 as^2: the flat-phase initial guess (70 as) is far from the
   // 106 as truth, so the XUV phase must be found. Sign check of the chirp: positive GDD means
-  // higher photon energies later (retrieval/xuv_builders.h; Mairesse et al., Science 302, 1540
-  // (2003)), and the retrieved GDD must have that sign and magnitude.
+  // higher photon energies later (retrieval/physics/xuv_builders.h; Mairesse et al., Science 302,
+  // 1540 (2003)), and the retrieved GDD must have that sign and magnitude.
   const Scenario S = make_scenario(130.0, 70.0, 2000.0, 44.0, 0.5, 256, 512, 6.0, 41, 2000, 12);
   const double fwhm_true = units::au_to_as(fine_fwhm(S.xuv));
   const double A_true = S.ir.peak_vector_potential();

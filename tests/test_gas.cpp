@@ -1,10 +1,10 @@
-// Gas table (retrieval/gas.h): ionization energies and lookup.
+// Gas table (retrieval/physics/gas.h): ionization energies and lookup.
 #include <catch2/catch.hpp>
 
 #include <string>
 
-#include "retrieval/error.h"
-#include "retrieval/gas.h"
+#include "retrieval/core/error.h"
+#include "retrieval/physics/gas.h"
 
 using namespace sw;
 

@@ -8,8 +8,8 @@
 #include <complex>
 #include <random>
 
-#include "retrieval/gate.h"
-#include "retrieval/units.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/gate.h"
 
 using namespace sw;
 
@@ -152,8 +152,8 @@ TEST_CASE("updates keep the gate on the unit circle", "[gate]") {
 TEST_CASE("the vector potential comes back from the smooth gate phase", "[gate]") {
   // Delay-adapted CMA gate phase phi = -p0 I1 + I2/2, so d phi/dt = p0 A - A^2/2 (the exact
   // rate of electrons streaked to p0 - A, classical streaking: Itatani et al., PRL 88, 173903
-  // (2002); gate form of Mairesse and Quere, PRA 71, 011401 (2005)); the B-spline fit with knots every T/32 must return A(t) of a 5 fs,
-  // 5e12 W/cm^2 pulse to 0.5 % of its peak.
+  // (2002); gate form of Mairesse and Quere, PRA 71, 011401 (2005)); the B-spline fit with knots
+  // every T/32 must return A(t) of a 5 fs, 5e12 W/cm^2 pulse to 0.5 % of its peak.
   const TimeGrid g = grid();
   GaussianIrPulse P;
   P.peak_intensity_Wcm2 = 5e12;

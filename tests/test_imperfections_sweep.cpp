@@ -8,7 +8,7 @@
 #include <vector>
 
 #include "imperfections.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 #include "synthetic/config_fields.h"
 
 using namespace sw;

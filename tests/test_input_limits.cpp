@@ -19,7 +19,7 @@
 #include "io/csv.h"
 #include "io/input_guard.h"
 #include "io/trace_reader.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -113,7 +113,8 @@ std::string tiff_bytes(int width, int height, int bits, int format) {
   entry(279, 4, data_bytes);
   entry(339, 3, static_cast<std::uint32_t>(format));
   put_u32(s, 0);
-  for (std::uint32_t i = 0; i < data_bytes; ++i) s += static_cast<char>((i % (bits / 8)) == 0 ? 1 : 0);
+  for (std::uint32_t i = 0; i < data_bytes; ++i)
+    s += static_cast<char>((i % (bits / 8)) == 0 ? 1 : 0);
   return s;
 }
 
@@ -221,11 +222,13 @@ TEST_CASE("data paths stay inside the sidecar's tree and outside files are never
   };
   for (const std::string& image : {std::string("../secret.csv"), outer / "secret.csv"}) {
     const std::string m = input_error(sidecar_with(image));
-    CHECK_THAT(m, Contains("outside the sidecar's folder tree") && Contains("--allow-outside-data"));
+    CHECK_THAT(m,
+               Contains("outside the sidecar's folder tree") && Contains("--allow-outside-data"));
     CHECK_THAT(m, !Contains("secret-line"));
   }
   fs::create_symlink(outer.path / "secret.csv", scan_dir / "link.csv");
-  CHECK_THAT(input_error(sidecar_with("link.csv")), Contains("outside") && !Contains("secret-line"));
+  CHECK_THAT(input_error(sidecar_with("link.csv")),
+             Contains("outside") && !Contains("secret-line"));
   // Allowed explicitly: read, but the offending cell of an outside file is still not quoted.
   sw::TraceReadPolicy anywhere;
   anywhere.allow_outside_data = true;
@@ -308,8 +311,7 @@ TEST_CASE("a YAML mapping with an empty key is bad input, not a crash", "[io][li
   CHECK_THAT(input_error(s.dir / "empty_key.yaml"), Contains("not valid YAML"));
 }
 
-TEST_CASE("unknown keys too deep or too large to echo are dropped with a warning",
-          "[io][limits]") {
+TEST_CASE("unknown keys too deep or too large to echo are dropped with a warning", "[io][limits]") {
   // Defect 10: a deep unknown key made result.json unreadable for Python's json module, whose
   // default recursion limit is 1000 (Python documentation, sys.getrecursionlimit).
   Scan s;
@@ -354,11 +356,15 @@ TEST_CASE("unsigned 32-bit and multi-page TIFFs get accurate messages", "[io][li
 TEST_CASE("input guard helpers", "[io][limits]") {
   // UTF-8 validity: RFC 3629 section 3 (overlong forms and surrogates are invalid).
   CHECK(sw::is_valid_utf8("plain"));
-  CHECK(sw::is_valid_utf8("\xce\xbc" "m"));          // U+03BC
-  CHECK_FALSE(sw::is_valid_utf8("\xc0\xaf"));        // overlong '/'
-  CHECK_FALSE(sw::is_valid_utf8("\xed\xa0\x80"));    // surrogate U+D800
-  CHECK_FALSE(sw::is_valid_utf8("\xe2\x82"));        // truncated
-  CHECK(sw::escape_excerpt("a\x1b" "b", 10) == "a\\x1bb");
+  CHECK(
+      sw::is_valid_utf8("\xce\xbc"
+                        "m"));                     // U+03BC
+  CHECK_FALSE(sw::is_valid_utf8("\xc0\xaf"));      // overlong '/'
+  CHECK_FALSE(sw::is_valid_utf8("\xed\xa0\x80"));  // surrogate U+D800
+  CHECK_FALSE(sw::is_valid_utf8("\xe2\x82"));      // truncated
+  CHECK(sw::escape_excerpt("a\x1b"
+                           "b",
+                           10) == "a\\x1bb");
   // Nesting: common practice (count of open brackets outside strings).
   CHECK(sw::nesting_depth("{\"a\": [[1]], \"b\": \"[[[[\"}", false, 64) == 3);
   CHECK(sw::nesting_depth("a:\n  b:\n    c: 1\n", true, 64) == 3);

@@ -1,4 +1,4 @@
-// Relative photoemission delays of two photoelectron lines (retrieval/line_delays.h).
+// Relative photoemission delays of two photoelectron lines (retrieval/analysis/line_delays.h).
 #include <catch2/catch.hpp>
 
 #include <cstdio>
@@ -6,13 +6,13 @@
 #include <cmath>
 #include <random>
 
-#include "retrieval/atomic_delay.h"
-#include "retrieval/error.h"
-#include "retrieval/gas.h"
-#include "retrieval/line_delays.h"
-#include "retrieval/preprocess.h"
-#include "retrieval/retrieve.h"
-#include "retrieval/units.h"
+#include "retrieval/analysis/line_delays.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/atomic_delay.h"
+#include "retrieval/physics/gas.h"
+#include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 #include "tests/test_support.h"
@@ -36,7 +36,8 @@ LineEntry line(const std::string& name, double W_eV, bool reference) {
 // line is a Gaussian of rms width `rms_eV` centred at W_k - p_k A(tau + delta_k) + A^2 / 2,
 // A(t) = A0 exp(-t^2 / T^2) cos(omega t) (DESIGN.md: p_f = p_i - A(t_i); an electron emitted
 // delta_k later sees A(tau + delta_k)). Poisson counts.
-Trace classical_scan(double W1_eV, double W2_eV, double strength2, double delay2_as, double peak, unsigned seed) {
+Trace classical_scan(double W1_eV, double W2_eV, double strength2, double delay2_as, double peak,
+                     unsigned seed) {
   const double omega = units::wavelength_nm_to_omega_au(800.0);
   const double A0 = 0.15, T = units::fs_to_au(4.0), rms = units::eV_to_au(3.0);
   Trace t;
@@ -75,13 +76,15 @@ TEST_CASE("line-delay options: defaults validate, bad fields are named", "[line_
   CHECK(o.validate().find("ion_charge") != std::string::npos);
 }
 
-TEST_CASE("Coulomb-laser coupling delay: value and agreement with the RABBITT cc delay", "[line_delays][clc]") {
+TEST_CASE("Coulomb-laser coupling delay: value and agreement with the RABBITT cc delay",
+          "[line_delays][clc]") {
   const double omega = units::wavelength_nm_to_omega_au(800.0);
   const double T = units::period_au(omega);
   // Hand evaluation of t_CLC = Z/(2W)^1.5 [2 - ln(W T)] (Nagele et al., J. Phys. B 44, 081001
   // (2011), formula from memory) at W = 100 eV, T = 2.6685 fs: (2 x 3.6749)^1.5 = 19.925,
   // W T = 405.4, 2 - ln 405.4 = -4.0048 -> -0.20099 a.u. = -4.862 as (hand/calculator).
-  CHECK(units::au_to_as(coulomb_laser_delay_au(units::eV_to_au(100.0), T)) == Approx(-4.862).margin(0.01));
+  CHECK(units::au_to_as(coulomb_laser_delay_au(units::eV_to_au(100.0), T)) ==
+        Approx(-4.862).margin(0.01));
   // Independent theory: the continuum-continuum delay of RABBITT (asymptotic formula, J. M.
   // Dahlstrom, A. L'Huillier and A. Maquet, J. Phys. B 45, 183001 (2012)); R. Pazourek, S.
   // Nagele and J. Burgdoerfer, Rev. Mod. Phys. 87, 765 (2015) show that t_CLC and t_cc agree
@@ -97,7 +100,8 @@ TEST_CASE("Coulomb-laser coupling delay: value and agreement with the RABBITT cc
   }
 }
 
-TEST_CASE("centre of energy: a hand-built classical scan gives the inserted delay with its sign", "[line_delays]") {
+TEST_CASE("centre of energy: a hand-built classical scan gives the inserted delay with its sign",
+          "[line_delays]") {
   // The scan's model is the classical picture itself, so the method must find the inserted
   // delay within its sigma (3 sigma), positive when the second line is emitted later.
   LineDelayOptions o;
@@ -111,17 +115,20 @@ TEST_CASE("centre of energy: a hand-built classical scan gives the inserted dela
     REQUIRE(r.done);
     REQUIRE(r.lines[1].relative_delay_as);
     const double got = *r.lines[1].relative_delay_as, sig = *r.lines[1].relative_delay_as_sigma;
-    INFO("inserted " << d << " as, measured " << got << " +- " << sig << " as, chi2_red " << r.reduced_chi2);
+    INFO("inserted " << d << " as, measured " << got << " +- " << sig << " as, chi2_red "
+                     << r.reduced_chi2);
     CHECK(std::abs(got - d) < 3 * sig);
     CHECK(sig < 5.0);
     CHECK(sig > 0.05);
     // Strength: equal widths, so the band-count ratio is the amplitude ratio 0.4 (within 3 sigma
     // plus the share of a Gaussian outside +-3 rms, 0.27 %: textbook normal table).
-    CHECK(std::abs(*r.lines[1].relative_strength - 0.4) < 3 * *r.lines[1].relative_strength_sigma + 0.004);
+    CHECK(std::abs(*r.lines[1].relative_strength - 0.4) <
+          3 * *r.lines[1].relative_strength_sigma + 0.004);
   }
 }
 
-TEST_CASE("line delays: names select lines, none switches off, unknown names are refused", "[line_delays]") {
+TEST_CASE("line delays: names select lines, none switches off, unknown names are refused",
+          "[line_delays]") {
   const Trace t = classical_scan(95.0, 68.0, 0.4, 0.0, 100.0, 5u);
   const std::vector<LineEntry> lines = {line("2p", 95.0, true), line("2s", 68.0, false)};
   const std::vector<double> bg(320, 0.0);
@@ -140,7 +147,8 @@ TEST_CASE("line delays: names select lines, none switches off, unknown names are
   CHECK(measure_line_delays(t, lines, bg, o).done);
 }
 
-TEST_CASE("retrieve on a generated neon 2s/2p scan names both lines and gives their delay", "[line_delays][retrieve]") {
+TEST_CASE("retrieve on a generated neon 2s/2p scan names both lines and gives their delay",
+          "[line_delays][retrieve]") {
   // The generator's SFA amplitude by direct quadrature, the 2s line delayed by 30 as
   // (E_X(t - delay), synthetic/scan_config.h), 0.3 of the 2p cross-section.
   synthetic::ScanConfig c = synthetic::find_preset("neon-two-lines").config;
@@ -162,20 +170,24 @@ TEST_CASE("retrieve on a generated neon 2s/2p scan names both lines and gives th
   REQUIRE(s2->relative_delay_as);
   REQUIRE(s2->relative_delay_as_sigma);
   INFO("2s delay " << *s2->relative_delay_as << " +- " << *s2->relative_delay_as_sigma << " as ("
-                    << s2->delay_method << "); centre of energy "
-                    << s2->relative_delay_as_centre_of_energy.value_or(-999) << " +- "
-                    << s2->relative_delay_as_centre_of_energy_sigma.value_or(-999) << " as; FWHM "
-                    << out.result.xuv->fwhm_as.value_or(0) << " as (truth " << *s.truth.xuv->fwhm_as << " as)");
-  std::printf("2s delay %g +- %g as (%s); centre of energy %g +- %g; FWHM %g (truth %g); strength %g\n",
-              *s2->relative_delay_as, *s2->relative_delay_as_sigma, s2->delay_method.c_str(),
-              s2->relative_delay_as_centre_of_energy.value_or(-999),
-              s2->relative_delay_as_centre_of_energy_sigma.value_or(-999), out.result.xuv->fwhm_as.value_or(0),
-              *s.truth.xuv->fwhm_as, s2->relative_strength.value_or(0));
-  // Default options: the joint fit of both lines (retrieval/multi_line_fit.h), the centre of
-  // energy beside it.
+                   << s2->delay_method << "); centre of energy "
+                   << s2->relative_delay_as_centre_of_energy.value_or(-999) << " +- "
+                   << s2->relative_delay_as_centre_of_energy_sigma.value_or(-999) << " as; FWHM "
+                   << out.result.xuv->fwhm_as.value_or(0) << " as (truth " << *s.truth.xuv->fwhm_as
+                   << " as)");
+  std::printf(
+      "2s delay %g +- %g as (%s); centre of energy %g +- %g; FWHM %g (truth %g); strength %g\n",
+      *s2->relative_delay_as, *s2->relative_delay_as_sigma, s2->delay_method.c_str(),
+      s2->relative_delay_as_centre_of_energy.value_or(-999),
+      s2->relative_delay_as_centre_of_energy_sigma.value_or(-999),
+      out.result.xuv->fwhm_as.value_or(0), *s.truth.xuv->fwhm_as,
+      s2->relative_strength.value_or(0));
+  // Default options: the joint fit of both lines (retrieval/analysis/multi_line_fit.h), the centre
+  // of energy beside it.
   CHECK(s2->delay_method == "joint full-model fit");
   REQUIRE(s2->relative_delay_as_centre_of_energy);
-  CHECK(std::abs(*s2->relative_delay_as_centre_of_energy - 30.0) < 3 * *s2->relative_delay_as_centre_of_energy_sigma);
+  CHECK(std::abs(*s2->relative_delay_as_centre_of_energy - 30.0) <
+        3 * *s2->relative_delay_as_centre_of_energy_sigma);
   // The issue's XUV target: within 5 % of the generator's pulse.
   CHECK(std::abs(*out.result.xuv->fwhm_as / *s.truth.xuv->fwhm_as - 1.0) < 0.05);
   CHECK(std::abs(*s2->relative_delay_as - 30.0) < 3 * *s2->relative_delay_as_sigma);
@@ -184,7 +196,8 @@ TEST_CASE("retrieve on a generated neon 2s/2p scan names both lines and gives th
   // = -7.4 - (-5.0) = about -2.4 as (formula of the CLC test case, evaluated by hand).
   REQUIRE(s2->clc_correction_as);
   CHECK(*s2->clc_correction_as == Approx(-2.4).margin(0.4));
-  CHECK(*s2->relative_delay_as_corrected == Approx(*s2->relative_delay_as - *s2->clc_correction_as));
+  CHECK(*s2->relative_delay_as_corrected ==
+        Approx(*s2->relative_delay_as - *s2->clc_correction_as));
   // Strength against the truth record's ratio of delay-integrated counts.
   double truth_ratio = 0;
   for (const LineEntry& l : s.truth.lines)
@@ -206,8 +219,8 @@ TEST_CASE("line delays: representative rows of the validation sweep", "[line_del
   };
   // Argon 3s/3p (13.5 eV apart) comes out 10 % strong on the sweep (overlapping tails): its
   // strength is held to 15 %; neon (27 eV apart) to 2 % beyond 3 sigma.
-  for (const Case& k : {Case{"Ne", 0.1, 300, 50, 31}, Case{"Ne", 0.3, 1000, -20, 32}, Case{"Ar", 0.3, 300, 0, 33},
-                        Case{"Ar", 0.3, 1000, -50, 34}}) {
+  for (const Case& k : {Case{"Ne", 0.1, 300, 50, 31}, Case{"Ne", 0.3, 1000, -20, 32},
+                        Case{"Ar", 0.3, 300, 0, 33}, Case{"Ar", 0.3, 1000, -50, 34}}) {
     synthetic::ScanConfig c = synthetic::find_preset("neon-two-lines").config;
     c.geometry.delay_fs = {-6.0, 0.15, 81};
     if (std::string(k.gas) == "Ar") {  // 3p and 3s at 70 eV photons, 190 as (as in the sweep)
@@ -226,7 +239,8 @@ TEST_CASE("line delays: representative rows of the validation sweep", "[line_del
     PreprocessSummary ps;
     (void)preprocess(s.trace, PreprocessOptions{}, &ps);
     std::vector<double> bg(s.trace.energy_au.size());
-    for (std::size_t j = 0; j < bg.size(); ++j) bg[j] = ps.background.at(units::au_to_eV(s.trace.energy_au[j]));
+    for (std::size_t j = 0; j < bg.size(); ++j)
+      bg[j] = ps.background.at(units::au_to_eV(s.trace.energy_au[j]));
     LineDelayOptions o;
     o.bootstrap = 12;
     const LineDelayResult r = measure_line_delays(s.trace, ps.lines, bg, o);
@@ -238,13 +252,15 @@ TEST_CASE("line delays: representative rows of the validation sweep", "[line_del
     double truth_ratio = 0;
     for (const LineEntry& e : s.truth.lines)
       if (!e.reference) truth_ratio = e.relative_strength.value_or(0);
-    INFO(k.gas << " strength " << k.strength << " peak " << k.peak << ": inserted " << k.delay_as << " as, measured "
-               << *l->relative_delay_as << " +- " << *l->relative_delay_as_sigma << " as; strength "
-               << *l->relative_strength << " +- " << *l->relative_strength_sigma << " (truth " << truth_ratio << ")");
+    INFO(k.gas << " strength " << k.strength << " peak " << k.peak << ": inserted " << k.delay_as
+               << " as, measured " << *l->relative_delay_as << " +- " << *l->relative_delay_as_sigma
+               << " as; strength " << *l->relative_strength << " +- " << *l->relative_strength_sigma
+               << " (truth " << truth_ratio << ")");
     CHECK(std::abs(*l->relative_delay_as - k.delay_as) < 3 * *l->relative_delay_as_sigma);
     CHECK(*l->relative_delay_as_sigma <= 5.0);
     const double tol = std::string(k.gas) == "Ar" ? 0.15 : 0.02;
-    CHECK(std::abs(*l->relative_strength - truth_ratio) < 3 * *l->relative_strength_sigma + tol * truth_ratio);
+    CHECK(std::abs(*l->relative_strength - truth_ratio) <
+          3 * *l->relative_strength_sigma + tol * truth_ratio);
   }
 }
 
@@ -253,11 +269,13 @@ TEST_CASE("retrieve command: the lines summary, the figure and --lines", "[line_
   test::TempDir d("line_delays_cli");
   const std::string scan = d / "scan" + "/neon-two-lines.json";
   REQUIRE(test::run_cli("simulate --preset neon-two-lines -q -o " + d / "scan").code == 0);
-  const test::CliRun bad = test::run_cli("retrieve " + scan + " -q -o " + d / "bad" + " --lines 3s");
+  const test::CliRun bad =
+      test::run_cli("retrieve " + scan + " -q -o " + d / "bad" + " --lines 3s");
   CHECK(bad.code == 2);
   CHECK(bad.out.find("its lines are 2p, 2s") != std::string::npos);
   CHECK_FALSE(std::filesystem::exists(d / "bad"));
-  const test::CliRun ok = test::run_cli("retrieve " + scan + " -q -o " + d / "ok" + " --bootstrap 0 --iterations 30");
+  const test::CliRun ok =
+      test::run_cli("retrieve " + scan + " -q -o " + d / "ok" + " --bootstrap 0 --iterations 30");
   INFO(ok.out);
   CHECK((ok.code == 0 || ok.code == 4));
   CHECK(ok.out.find("lines: Ne 2p (reference); Ne 2s delay ") != std::string::npos);

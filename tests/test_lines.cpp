@@ -1,16 +1,16 @@
-// Photoelectron lines and the analysis window (retrieval/lines.h, preprocess step 2b).
+// Photoelectron lines and the analysis window (retrieval/preprocess/lines.h, preprocess step 2b).
 #include <catch2/catch.hpp>
 
 #include <cmath>
 #include <random>
 
 #include "io/trace_reader.h"
-#include "retrieval/error.h"
-#include "retrieval/gas.h"
-#include "retrieval/lines.h"
-#include "retrieval/preprocess.h"
-#include "retrieval/retrieve.h"
-#include "retrieval/units.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/gas.h"
+#include "retrieval/preprocess/lines.h"
+#include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 #include "tests/test_support.h"
@@ -19,7 +19,7 @@ using namespace sw;
 
 namespace {
 
-// Thresholds (NIST ASD via retrieval/gas.h; the test re-states them from memory of the NIST
+// Thresholds (NIST ASD via retrieval/physics/gas.h; the test re-states them from memory of the NIST
 // tables: Ne 2p 21.5645 eV, Ne 2s 21.5645 + 26.910 eV; Ar 3p 15.7596 eV, Ar 3s 15.7596 + 13.480).
 constexpr double kNe2p = 21.5645, kNe2s = 21.5645 + 26.910;
 constexpr double kAr3p = 15.7596, kAr3s = 15.7596 + 13.480;
@@ -54,7 +54,8 @@ TwoLineScan two_lines(synthetic::ScanConfig c, double photon_eV, double ip_outer
   std::mt19937_64 rng(seed + 99);
   for (Eigen::Index i = 0; i < s.trace.counts.size(); ++i) {
     const double mu = s.outer.data()[i] + s.inner.data()[i];
-    s.trace.counts.data()[i] = mu > 0 ? static_cast<double>(std::poisson_distribution<long long>(mu)(rng)) : 0.0;
+    s.trace.counts.data()[i] =
+        mu > 0 ? static_cast<double>(std::poisson_distribution<long long>(mu)(rng)) : 0.0;
   }
   return s;
 }
@@ -206,7 +207,8 @@ TEST_CASE("neon with a 2s line: the 2p pulse is retrieved within 8 %", "[lines][
   CHECK(out.result.lines.size() == 2);
 }
 
-TEST_CASE("sidecar keys energy_window_eV, saturation_counts and lines are read and validated", "[lines][reader]") {
+TEST_CASE("sidecar keys energy_window_eV, saturation_counts and lines are read and validated",
+          "[lines][reader]") {
   // The trace contract of DESIGN.md: energy_window_eV = [lo, hi] (finite, lo < hi), lines
   // with "auto" or a number, saturation_counts > 0; bad values name the field.
   sw::test::TempDir dir;
@@ -220,9 +222,11 @@ TEST_CASE("sidecar keys energy_window_eV, saturation_counts and lines are read a
   }
   sw::test::write_text(dir / "s.csv", csv);
   auto sidecar = [&](const std::string& more) {
-    sw::test::write_text(dir / "s.json", R"({"streakwright": 1, "image": "s.csv", "layout": "delay_rows",
+    sw::test::write_text(dir / "s.json",
+                         R"({"streakwright": 1, "image": "s.csv", "layout": "delay_rows",
       "energy_eV": {"first": 40, "step": 1, "count": 10}, "delay_fs": {"first": 0, "step": 0.1, "count": 4},
-      "gas": "Ne", "ir_wavelength_nm": 800)" + more + "}");
+      "gas": "Ne", "ir_wavelength_nm": 800)" +
+                             more + "}");
     return dir / "s.json";
   };
   const Trace t = read_trace(sidecar(R"(, "energy_window_eV": [42.5, 47], "saturation_counts": 4000,
@@ -251,7 +255,8 @@ TEST_CASE("sidecar keys energy_window_eV, saturation_counts and lines are read a
   fails(R"(, "energy_window_eV": [40, "x"])", "energy_window_eV[1]");
   fails(R"(, "saturation_counts": -1)", "saturation_counts");
   fails(R"(, "lines": [{"name": "2s"}])", "lines[0].ionization_energy_eV");
-  fails(R"(, "lines": [{"name": "2s", "ionization_energy_eV": "guess"}])", "lines[0].ionization_energy_eV");
+  fails(R"(, "lines": [{"name": "2s", "ionization_energy_eV": "guess"}])",
+        "lines[0].ionization_energy_eV");
   fails(R"(, "lines": {"name": "2s"})", "lines");
 }
 
@@ -261,7 +266,8 @@ TEST_CASE("--energy-window LO:HI is parsed and checked", "[lines]") {
   CHECK(lo == 60.0);
   CHECK(hi == 110.5);
   for (const char* bad : {"60", "110:60", "a:b", "60:110x", ":", "nan:5"})
-    CHECK_THROWS_WITH(parse_energy_window(bad, "--energy-window", &lo, &hi), Catch::Contains("--energy-window"));
+    CHECK_THROWS_WITH(parse_energy_window(bad, "--energy-window", &lo, &hi),
+                      Catch::Contains("--energy-window"));
 }
 
 TEST_CASE("deblending: an overlapping neighbour line is subtracted per delay row", "[lines]") {
@@ -307,7 +313,8 @@ TEST_CASE("deblending: an overlapping neighbour line is subtracted per delay row
     }
     diff += std::abs(row_diff);
   }
-  INFO("2s in overlap " << inner << ", |estimate - truth| " << diff << "; 2p " << outer << ", remainder " << rest);
+  INFO("2s in overlap " << inner << ", |estimate - truth| " << diff << "; 2p " << outer
+                        << ", remainder " << rest);
   CHECK(diff < 0.1 * inner);
   CHECK(std::abs(rest - outer) < 0.05 * outer);
 }

@@ -6,7 +6,7 @@
 #include <numeric>
 #include <vector>
 
-#include "retrieval/units.h"
+#include "retrieval/core/units.h"
 #include "synthetic/fluctuations.h"
 #include "synthetic/generator.h"
 #include "synthetic/noise.h"

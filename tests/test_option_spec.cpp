@@ -1,5 +1,5 @@
-// Options described once (retrieval/option_spec.h): every description is walked field by field.
-// Each default validates, each bound rejects the value just outside it with a message naming
+// Options described once (retrieval/core/option_spec.h): every description is walked field by
+// field. Each default validates, each bound rejects the value just outside it with a message naming
 // the field, each choice list rejects a word outside it, and each CLI flag and config key is
 // unique (common practice, STYLE.md: "parameters described once", "a test checks that the
 // defaults are valid").
@@ -12,12 +12,12 @@
 #include <type_traits>
 #include <vector>
 
-#include "retrieval/engine.h"
-#include "retrieval/full_model_engine.h"
-#include "retrieval/option_spec.h"
-#include "retrieval/projections_engine.h"
-#include "retrieval/ptychographic_engine.h"
-#include "retrieval/retrieve.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/core/option_spec.h"
+#include "retrieval/engines/engine.h"
+#include "retrieval/engines/full_model_engine.h"
+#include "retrieval/engines/projections_engine.h"
+#include "retrieval/engines/ptychographic_engine.h"
 
 using namespace sw;
 
@@ -87,7 +87,8 @@ void walk_description(const std::string& what) {
     std::string f(s.flag);
     for (std::size_t start = 0; !f.empty() && start <= f.size();) {
       const std::size_t comma = f.find(',', start);
-      std::string one = f.substr(start, comma == std::string::npos ? std::string::npos : comma - start);
+      std::string one =
+          f.substr(start, comma == std::string::npos ? std::string::npos : comma - start);
       if (!one.empty() && one[0] == '!') one.erase(0, 1);
       CHECK(flags.insert(one).second);
       if (comma == std::string::npos) break;
@@ -140,13 +141,13 @@ TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") 
   append_settings_echo(RetrieveOptions{}, &echo);
   std::vector<std::string> keys;
   for (const Param& p : echo) keys.push_back(p.key);
-  CHECK(keys == std::vector<std::string>{"settings.engine", "settings.iterations", "settings.bootstrap",
-                                         "settings.seed", "settings.threads", "settings.uncertainty",
-                                         "settings.warm_patience", "settings.cma_phase_error_max_rad",
-                                         "settings.cma_trace_error_max_ratio", "settings.method_sigma_relative",
-                                         "settings.isolated_max_satellite_ratio",
-                                         "settings.satellites_max_satellite_ratio", "settings.satellite_start",
-                                         "settings.satellite_start_ratio", "settings.dipole"});
+  CHECK(keys == std::vector<std::string>{
+                    "settings.engine", "settings.iterations", "settings.bootstrap", "settings.seed",
+                    "settings.threads", "settings.uncertainty", "settings.warm_patience",
+                    "settings.cma_phase_error_max_rad", "settings.cma_trace_error_max_ratio",
+                    "settings.method_sigma_relative", "settings.isolated_max_satellite_ratio",
+                    "settings.satellites_max_satellite_ratio", "settings.satellite_start",
+                    "settings.satellite_start_ratio", "settings.dipole"});
   // Integers are written as integers, the dipole by name.
   CHECK(std::holds_alternative<long long>(echo[1].value));
   CHECK(std::get<std::string>(echo.back().value) == "constant");
@@ -171,8 +172,9 @@ TEST_CASE("engine options from the typed settings' description", "[options]") {
   for (const ExtraOption& x : full_model_extra_options())
     if (x.name == "support_margin_eV") CHECK_THAT(x.help, Catch::EndsWith(", eV"));
   // The CMA engines: their defaults differ only in the data projection
-  // (retrieval/cma_problem.h: poisson for ptychographic, amplitude for projections).
-  for (const auto& [engine, projection] : {std::pair{"ptychographic", "poisson"}, std::pair{"projections", "amplitude"}})
+  // (retrieval/engines/cma_problem.h: poisson for ptychographic, amplitude for projections).
+  for (const auto& [engine, projection] :
+       {std::pair{"ptychographic", "poisson"}, std::pair{"projections", "amplitude"}})
     for (const ExtraOption& x : make_engine(engine)->extra_options())
       if (x.name == "projection") CHECK(x.default_value == projection);
 }

@@ -49,7 +49,6 @@ std::string q(const fs::path& p) {
   return s.str();
 }
 
-
 std::string slurp(const fs::path& p) {
   std::ifstream in(p, std::ios::binary);
   std::ostringstream s;
@@ -67,8 +66,8 @@ std::map<std::string, std::string> snapshot(const fs::path& dir) {
 
 /// A simulated streaking scan DIR/NAME.json + DIR/NAME.png.
 fs::path simulate(const fs::path& dir, const std::string& name) {
-  const Run r = cli("simulate --preset neon-150as --out " + q(dir) + " --name " + name +
-                    " --seed 3 --quiet");
+  const Run r =
+      cli("simulate --preset neon-150as --out " + q(dir) + " --name " + name + " --seed 3 --quiet");
   REQUIRE(r.code == 0);
   return dir / (name + ".json");
 }
@@ -103,7 +102,8 @@ TEST_CASE("--out equal to or containing a scan's folder is refused before any wo
   // A folder below the scan's folder is fine, and an existing folder of the user is not replaced.
   fs::create_directories(d.path / "mine");
   write_text((d.path / "mine" / "notes.txt").string(), "keep me");
-  const Run r = cli("retrieve " + q(scan_dir / "result.json") + " --out " + q(d.path / "mine") + kFast);
+  const Run r =
+      cli("retrieve " + q(scan_dir / "result.json") + " --out " + q(d.path / "mine") + kFast);
   CHECK(r.code == 2);
   CHECK_THAT(r.out, Contains("not a streakwright output folder"));
   CHECK(slurp(d.path / "mine" / "notes.txt") == "keep me");
@@ -208,7 +208,8 @@ TEST_CASE("a second batch on a locked output folder refuses naming the holder",
   CHECK_THAT(held.out, Contains("in use by another batch run") &&
                            Contains("process " + std::to_string(getpid())));
   CHECK_FALSE(fs::exists(out / "summary.json"));
-  write_text((out / ".streakwright.lock").string(), std::string("999999 ") + host + " 1700000000\n");
+  write_text((out / ".streakwright.lock").string(),
+             std::string("999999 ") + host + " 1700000000\n");
   const Run stale = cli("batch " + q(d.path / "in") + " --out " + q(out) + kFast);
   INFO(stale.out);
   CHECK((stale.code == 0 || stale.code == 5));
@@ -223,7 +224,8 @@ TEST_CASE("options are validated before any work: NaN, infinity, 0 nm, negative 
   const fs::path sc = simulate(d.path, "s");
   const std::string o = " --out " + q(d.path / "o");
   for (const std::string& args :
-       {"rabbitt " + q(sc) + o + " --ir-wavelength 0", "rabbitt " + q(sc) + o + " --ir-wavelength nan",
+       {"rabbitt " + q(sc) + o + " --ir-wavelength 0",
+        "rabbitt " + q(sc) + o + " --ir-wavelength nan",
         "classify " + q(sc) + o + " --ir-wavelength 1e6", "retrieve " + q(sc) + o + " --seed -1",
         "retrieve " + q(sc) + o + " --cma-phase-limit inf",
         "batch " + q(d.path) + o + " --max-seconds nan"}) {

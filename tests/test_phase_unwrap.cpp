@@ -1,5 +1,5 @@
-// retrieval/phase_unwrap.h against numpy.unwrap.
-#include "retrieval/phase_unwrap.h"
+// retrieval/core/phase_unwrap.h against numpy.unwrap.
+#include "retrieval/core/phase_unwrap.h"
 
 #include <catch2/catch.hpp>
 
@@ -7,7 +7,7 @@
 #include <random>
 #include <vector>
 
-#include "retrieval/units.h"
+#include "retrieval/core/units.h"
 
 using sw::units::kPi;
 
@@ -21,8 +21,10 @@ TEST_CASE("unwrap_phase gives numpy.unwrap's output", "[phase_unwrap]") {
   const std::vector<Case> cases = {
       {{3.0, -3.0, -2.5, 3.1}, {3.0, 3.2831853071795862, 3.7831853071795862, 3.1}},
       {{0.0, kPi, 0.0, -kPi, 0.0}, {0.0, 3.141592653589793, 0.0, -3.141592653589793, 0.0}},
-      {{0.0, 7.0, -7.0, 20.0, -1.0}, {0.0, 0.7168146928204138, -0.7168146928204138, 1.1504440784612413, -1.0}},
-      {{1.0, 1.0 + kPi, 1.0 + 2 * kPi + 1e-9, -10.0}, {1.0, 4.141592653589793, 1.000000001, 2.5663706143591725}},
+      {{0.0, 7.0, -7.0, 20.0, -1.0},
+       {0.0, 0.7168146928204138, -0.7168146928204138, 1.1504440784612413, -1.0}},
+      {{1.0, 1.0 + kPi, 1.0 + 2 * kPi + 1e-9, -10.0},
+       {1.0, 4.141592653589793, 1.000000001, 2.5663706143591725}},
       {{0.5, 0.5 + 3 * kPi, 0.5 - 3 * kPi}, {0.5, 3.641592653589793, 3.641592653589793}},
   };
   for (const Case& c : cases) {

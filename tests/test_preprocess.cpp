@@ -1,13 +1,13 @@
-// Preprocessing (retrieval/preprocess.h) on synthetic counts whose statistics are known.
+// Preprocessing (retrieval/preprocess/preprocess.h) on synthetic counts whose statistics are known.
 #include <catch2/catch.hpp>
 
 #include <cmath>
 #include <random>
 
-#include "retrieval/cma_problem.h"
-#include "retrieval/preprocess.h"
-#include "retrieval/retrieve.h"
-#include "retrieval/units.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/core/units.h"
+#include "retrieval/engines/cma_problem.h"
+#include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -34,7 +34,8 @@ TEST_CASE("background subtraction is unbiased in the background-dominated bins",
   for (Eigen::Index i = 0; i < pr.intensity.rows(); ++i)
     for (Eigen::Index j = 0; j < pr.intensity.cols(); ++j)
       if (sc.clean(i, j) * (5e2 / sc.clean.maxCoeff()) < 1e-3) {
-        sum += pr.intensity(i, j) * dW * units::momentum_au(pr.energy_au[static_cast<std::size_t>(j)]);
+        sum +=
+            pr.intensity(i, j) * dW * units::momentum_au(pr.energy_au[static_cast<std::size_t>(j)]);
         ++n;
       }
   REQUIRE(n > 1000);
@@ -44,7 +45,8 @@ TEST_CASE("background subtraction is unbiased in the background-dominated bins",
   CHECK(pr.intensity.minCoeff() < 0.0);  // kept signed
 }
 
-TEST_CASE("preprocess options: defaults validate; hot-pixel removal is on by default", "[preprocess]") {
+TEST_CASE("preprocess options: defaults validate; hot-pixel removal is on by default",
+          "[preprocess]") {
   CHECK(PreprocessOptions{}.validate().empty());
   CHECK(PreprocessOptions{}.remove_hot_pixels);
   PreprocessOptions o;
@@ -67,11 +69,13 @@ TEST_CASE("hot pixels are removed without touching RABBITT harmonic peaks", "[pr
   const Eigen::VectorXd spec = sc.trace.counts.colwise().sum().transpose();
   Eigen::Index jmax = 0;
   spec.maxCoeff(&jmax);
-  CHECK(spec(jmax) > 0.5 * (spec(std::max<Eigen::Index>(jmax - 1, 0)) + spec(jmax) + spec(std::min<Eigen::Index>(jmax + 1, spec.size() - 1))));
+  CHECK(spec(jmax) > 0.5 * (spec(std::max<Eigen::Index>(jmax - 1, 0)) + spec(jmax) +
+                            spec(std::min<Eigen::Index>(jmax + 1, spec.size() - 1))));
 
   Trace hot = sc.trace;
   std::mt19937_64 rng(17);
-  std::uniform_int_distribution<Eigen::Index> ri(1, hot.counts.rows() - 2), rj(1, hot.counts.cols() - 2);
+  std::uniform_int_distribution<Eigen::Index> ri(1, hot.counts.rows() - 2),
+      rj(1, hot.counts.cols() - 2);
   int injected = 0;
   std::vector<std::pair<Eigen::Index, Eigen::Index>> at;
   while (injected < 20) {
@@ -89,12 +93,14 @@ TEST_CASE("hot pixels are removed without touching RABBITT harmonic peaks", "[pr
   // No false hits on a weak background with readout noise: neon-150as-lab has 2 counts/bin plus
   // a tail and 1 count rms readout noise; an 8-sigma Poisson excess has probability ~1e-9 per
   // bin (Poisson tail, standard), so none of its 36300 bins may be replaced.
-  const synthetic::SyntheticScan lab = synthetic::generate_scan(synthetic::find_preset("neon-150as-lab").config, 6);
+  const synthetic::SyntheticScan lab =
+      synthetic::generate_scan(synthetic::find_preset("neon-150as-lab").config, 6);
   (void)preprocess(lab.trace, PreprocessOptions{}, &ps);
   CHECK(ps.hot_pixels_replaced == 0);
 }
 
-TEST_CASE("saturated bins get zero weight; the saturated scan retrieves the FWHM within 8 %", "[preprocess][retrieve]") {
+TEST_CASE("saturated bins get zero weight; the saturated scan retrieves the FWHM within 8 %",
+          "[preprocess][retrieve]") {
   // neon-150as clipped at 60 % of its peak (a detector limit of our scenario): the plateau
   // of identical maximal counts is found without being told, each clipped bin gets weight 0,
   // and the retrieval on the rest gives the generator's FWHM within 8 % (our tolerance, the
@@ -103,7 +109,8 @@ TEST_CASE("saturated bins get zero weight; the saturated scan retrieves the FWHM
   c.noise.saturation_counts = 300.0;
   const synthetic::SyntheticScan sc = synthetic::generate_scan(c, 4);
   long clipped = 0;
-  for (Eigen::Index i = 0; i < sc.trace.counts.size(); ++i) clipped += sc.trace.counts.data()[i] >= 300.0 ? 1 : 0;
+  for (Eigen::Index i = 0; i < sc.trace.counts.size(); ++i)
+    clipped += sc.trace.counts.data()[i] >= 300.0 ? 1 : 0;
   REQUIRE(clipped > 20);
   PreprocessSummary ps;
   const RetrievalProblem pr = preprocess(sc.trace, PreprocessOptions{}, &ps);
@@ -121,7 +128,8 @@ TEST_CASE("saturated bins get zero weight; the saturated scan retrieves the FWHM
   CHECK(ps.saturation_source == "sidecar");
   CHECK(ps.saturated_bins == static_cast<std::size_t>(clipped));
   // An unsaturated Poisson scan has no plateau.
-  const synthetic::SyntheticScan clean = synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 4);
+  const synthetic::SyntheticScan clean =
+      synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 4);
   (void)preprocess(clean.trace, PreprocessOptions{}, &ps);
   CHECK(ps.saturated_bins == 0);
 
@@ -155,7 +163,8 @@ TEST_CASE("the engines ignore weight-0 elements", "[preprocess][engine]") {
 TEST_CASE("the CMA projection keeps the model at weight-0 bins", "[preprocess][engine]") {
   // RetrievalProblem::weight = 0 means "not data" (engine.h): projecting a delay row whose
   // bins all have weight 0 must leave its exit-wave spectrum unchanged; with weight 1 it moves.
-  const synthetic::SyntheticScan sc = synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 2);
+  const synthetic::SyntheticScan sc =
+      synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 2);
   RetrievalProblem pr = preprocess(sc.trace, PreprocessOptions{}, nullptr);
   pr.weight = Eigen::MatrixXd::Ones(pr.intensity.rows(), pr.intensity.cols());
   const std::size_t row = 60;
@@ -187,14 +196,16 @@ TEST_CASE("hot pixels on the edge rows and columns are removed too", "[preproces
   // (one neighbour fewer); left in, it is a 30-200 count spike the engines must fit (common
   // practice for detector defects). The clean scan must lose no bin; 4 corner-side spikes
   // must all go, and be replaced by a neighbour-level value.
-  const synthetic::SyntheticScan sc = synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 9);
+  const synthetic::SyntheticScan sc =
+      synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 9);
   Eigen::MatrixXd clean = sc.trace.counts, none;
   CHECK(remove_hot_pixels(clean, none, 8.0, 5.0) == 0);
   Eigen::MatrixXd hot = sc.trace.counts;
   const Eigen::Index nd = hot.rows(), ne = hot.cols();
   Eigen::Index jpk = 0;
   hot.row(0).maxCoeff(&jpk);
-  const std::vector<std::pair<Eigen::Index, Eigen::Index>> at = {{0, jpk}, {nd - 1, ne / 3}, {nd / 2, 0}, {nd / 3, ne - 1}};
+  const std::vector<std::pair<Eigen::Index, Eigen::Index>> at = {
+      {0, jpk}, {nd - 1, ne / 3}, {nd / 2, 0}, {nd / 3, ne - 1}};
   for (auto [i, j] : at) hot(i, j) = 50.0 * std::max(1.0, sc.trace.counts(i, j));
   CHECK(remove_hot_pixels(hot, none, 8.0, 5.0) == at.size());
   for (auto [i, j] : at) {

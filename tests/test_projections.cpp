@@ -7,7 +7,7 @@
 #include <cmath>
 #include <cstdio>
 
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 #include "tests/cma_test_problem.h"
 
 using namespace sw;
@@ -123,7 +123,8 @@ TEST_CASE("projections: two threads give the single-thread answer", "[projection
   CHECK(metrics(two.xuv, two.ir).fwhm_as == Approx(metrics(one.xuv, one.ir).fwhm_as).epsilon(1e-6));
 }
 
-TEST_CASE("both CMA engines on the standard cases (the engines' report table)", "[projections][slow]") {
+TEST_CASE("both CMA engines on the standard cases (the engines' report table)",
+          "[projections][slow]") {
   // Prints the numbers quoted in the engines' report and holds every row to check_truth's
   // tolerances (cma_test_problem.h: 5 % on FWHM and A0, chirp sign and 10 % on GDD).
   std::printf("%-14s %-22s %9s %9s %9s %9s %8s %8s %6s %7s %s\n", "engine", "case", "FWHM", "truth",

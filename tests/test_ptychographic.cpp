@@ -9,8 +9,8 @@
 
 #include <complex>
 
-#include "retrieval/error.h"
-#include "retrieval/preprocess.h"
+#include "retrieval/core/error.h"
+#include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 #include "tests/cma_test_problem.h"
@@ -25,7 +25,7 @@ TEST_CASE("ptychographic: transform-limited 150 as pulse", "[ptychographic]") {
   CHECK(r.converged());
   CHECK(r.engine == "ptychographic");
   CHECK(r.model == "cma");
-  // Its default data projection is the Poisson one (retrieval/cma_problem.h; Thibault and
+  // Its default data projection is the Poisson one (retrieval/engines/cma_problem.h; Thibault and
   // Guizar-Sicairos, New J. Phys. 14, 063004 (2012): the Poisson likelihood's update).
   CHECK(r.noise_model == "poisson");
   // G falls by more than an order of magnitude from the initial guess.

@@ -1,5 +1,5 @@
-// Pulse metrics (retrieval/pulse_metrics.h) on analytic profiles and on synthetic fields with
-// known truth.
+// Pulse metrics (retrieval/physics/pulse_metrics.h) on analytic profiles and on synthetic fields
+// with known truth.
 #include <catch2/catch.hpp>
 
 #include <algorithm>
@@ -7,10 +7,10 @@
 #include <string>
 #include <vector>
 
-#include "retrieval/error.h"
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/units.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/pulse_metrics.h"
+#include "retrieval/physics/xuv_builders.h"
 
 using namespace sw;
 
@@ -262,7 +262,9 @@ TEST_CASE("intensity FWHM of a coarsely sampled Gaussian is exact after refineme
   for (double shift_as : {0.0, 17.0, 31.0}) {
     GaussianXuvPulse p;
     p.center_time_as = shift_as;
-    worst = std::max(worst, std::abs(units::au_to_as(intensity_fwhm(make_gaussian_xuv(coarse, p), 0)) / 150.0 - 1));
+    worst = std::max(
+        worst,
+        std::abs(units::au_to_as(intensity_fwhm(make_gaussian_xuv(coarse, p), 0)) / 150.0 - 1));
   }
   CHECK(worst > 0.01);
 }

@@ -1,5 +1,5 @@
-// The quality verdict (retrieval/quality.h): each check against its limit, the bootstrap rule,
-// the Student factor, and the quality section in every retrieve, classify and rabbitt result
+// The quality verdict (retrieval/analysis/quality.h): each check against its limit, the bootstrap
+// rule, the Student factor, and the quality section in every retrieve, classify and rabbitt result
 // of the executable (docs/cli.md "Quality checks").
 #include <catch2/catch.hpp>
 
@@ -13,8 +13,8 @@
 #include <string>
 
 #include "io/result_io.h"
-#include "retrieval/error.h"
-#include "retrieval/quality.h"
+#include "retrieval/analysis/quality.h"
+#include "retrieval/core/error.h"
 #include "test_support.h"
 
 using namespace sw;
@@ -24,7 +24,6 @@ namespace {
 
 using Run = sw::test::CliRun;
 Run cli(const std::string& args) { return sw::test::run_cli(args); }
-
 
 const QualityCheck* find(const QualitySection& q, const std::string& name) {
   for (const auto& c : q.checks)
@@ -103,7 +102,8 @@ TEST_CASE("a check fails exactly when its limit is crossed", "[quality]") {
   CHECK_FALSE(q6.trusted);
 }
 
-TEST_CASE("delay dependence: a constant scan shows none, a streaked one is significant", "[quality]") {
+TEST_CASE("delay dependence: a constant scan shows none, a streaked one is significant",
+          "[quality]") {
   // Pearson's chi^2 homogeneity statistic is chi^2(dof)-distributed under the null (common
   // practice), so (chi^2 - dof)/sqrt(2 dof) is ~N(0, 1): |z| < 5 for Poisson noise alone.
   std::mt19937_64 rng(11);
@@ -176,18 +176,21 @@ TEST_CASE("the bias rule never moves an exact estimate by more than its sigma", 
   CHECK(s.sigma == Approx(std::hypot(s.sigma_statistical, 3.0)));
 }
 
-TEST_CASE("every retrieve, classify and rabbitt result carries a quality section", "[quality][cli]") {
+TEST_CASE("every retrieve, classify and rabbitt result carries a quality section",
+          "[quality][cli]") {
   sw::test::TempDir d("quality");
   REQUIRE(cli("simulate --preset neon-150as --seed 2 --quiet --out " + d.file("s")).code == 0);
   const std::string scan = d.file("s") + "/neon-150as.json";
-  const Run r = cli("retrieve " + scan + " --engine ptychographic --bootstrap 2 --quiet --out " + d.file("r"));
+  const Run r = cli("retrieve " + scan + " --engine ptychographic --bootstrap 2 --quiet --out " +
+                    d.file("r"));
   REQUIRE(r.code == 0);
   const AnalysisResult rr = read_result_json(d.file("r") + "/result.json");
   REQUIRE(rr.quality);
   // The reference scan (500 peak counts) is retrieved within 2 % (docs/validation.md): trusted.
   CHECK(rr.quality->trusted);
-  for (const char* name : {"trace_error_vs_noise_floor", "fwhm_vs_transform_limit", "spectrum_vs_measured",
-                           "energy_outside_support", "fwhm_sigma_over_value", "total_counts", "peak_snr"})
+  for (const char* name :
+       {"trace_error_vs_noise_floor", "fwhm_vs_transform_limit", "spectrum_vs_measured",
+        "energy_outside_support", "fwhm_sigma_over_value", "total_counts", "peak_snr"})
     CHECK(find(*rr.quality, name));
   CHECK(r.out.find("not trusted") == std::string::npos);
 
@@ -228,8 +231,8 @@ TEST_CASE("a constant image is bad input or untrusted, never a trusted pulse", "
                            "energy_eV": {"first": 40.0, "step": 0.25, "count": 300},
                            "delay_fs": {"first": -6.0, "step": 0.1, "count": 121},
                            "gas": "Ne", "ir_wavelength_nm": 800.0, "kind": "streaking"})");
-  const Run r = cli("retrieve " + d.file("flat.json") + " --engine ptychographic --bootstrap 0 --quiet --out " +
-                    d.file("r"));
+  const Run r = cli("retrieve " + d.file("flat.json") +
+                    " --engine ptychographic --bootstrap 0 --quiet --out " + d.file("r"));
   if (r.code == 3) return;  // refused as bad input: fine
   REQUIRE(r.code == 0);
   const AnalysisResult res = read_result_json(d.file("r") + "/result.json");

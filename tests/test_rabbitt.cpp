@@ -1,20 +1,20 @@
 // RABBITT analysis and the average burst of the train, on synthetic scans with known truth:
-// an odd-harmonic train (retrieval/xuv_builders.h) with a chirped burst, dressed by a weak IR
-// pulse, through the SFA forward model with the full momentum dependence, plus Poisson noise.
+// an odd-harmonic train (retrieval/physics/xuv_builders.h) with a chirped burst, dressed by a weak
+// IR pulse, through the SFA forward model with the full momentum dependence, plus Poisson noise.
 #include <catch2/catch.hpp>
 
 #include <cmath>
 #include <random>
 
-#include "retrieval/error.h"
-#include "retrieval/forward_model.h"
-#include "retrieval/phase_unwrap.h"
-#include "retrieval/gas.h"
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/rabbitt.h"
-#include "retrieval/train_burst.h"
-#include "retrieval/units.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/analysis/rabbitt.h"
+#include "retrieval/analysis/train_burst.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/phase_unwrap.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/forward_model.h"
+#include "retrieval/physics/gas.h"
+#include "retrieval/physics/pulse_metrics.h"
+#include "retrieval/physics/xuv_builders.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -85,7 +85,7 @@ RabbittOptions no_atomic() {
 }
 
 // Truth: group delay of photon energy Omega for the builder's spectral phase
-// t_c + GDD (Omega - Omega0) (retrieval/xuv_builders.h), in as.
+// t_c + GDD (Omega - Omega0) (retrieval/physics/xuv_builders.h), in as.
 double true_group_delay_as(const Scenario& s, double photon_eV) {
   return s.center_time_as + s.gdd_as2 * (photon_eV - s.center_eV) / kHbar_eV_as;
 }
@@ -335,7 +335,7 @@ TEST_CASE("missing metadata and bad options give errors naming the field", "[rab
 TEST_CASE("average burst of the train: FWHM of the chirped and transform-limited bursts",
           "[rabbitt][train_burst]") {
   // Truth: the same harmonics with the builder's amplitudes exp(-(Omega-Omega0)^2/(2 s^2)) and
-  // phases GDD/2 (Omega-Omega0)^2 (retrieval/xuv_builders.h), summed as E(t) = sum_q
+  // phases GDD/2 (Omega-Omega0)^2 (retrieval/physics/xuv_builders.h), summed as E(t) = sum_q
   // a_q e^{i phi_q} e^{-i q omega t}; the forward model's counts carry p |d|^2 (constant dipole:
   // p), which the kSfaDipole cross-section with a constant dipole divides out.
   Scenario s;

@@ -29,7 +29,6 @@ namespace {
 using sw::test::TempDir;
 using sw::test::write_text;
 
-
 // One folder for the whole file (scans are generated once).
 TempDir& temp() {
   static TempDir d;

@@ -1,7 +1,7 @@
 // Cross-check of two independent analyses of one RABBITT scan (the direct-quadrature
 // generator of synthetic/, full momentum dependence): the sideband analysis
-// (retrieval/rabbitt.h + train_burst.h) and a blind reconstruction of the whole train by the
-// ptychographic engine through sw::retrieve. Both should give the same attochirp and average
+// (retrieval/analysis/rabbitt.h + train_burst.h) and a blind reconstruction of the whole train by
+// the ptychographic engine through sw::retrieve. Both should give the same attochirp and average
 // burst duration within their uncertainties.
 //
 // What the engine needs (docs/validation.md, "RABBITT and classification"):
@@ -12,7 +12,7 @@
 //  * a known background (0 here, as a sidecar "background" would give it): the automatic
 //    estimate takes the wings of the narrow harmonic lines (bins below 2 % of the maximum) for
 //    background and subtracts ~2.6 counts per bin.
-//  * momentum nodes (the banded CMA of retrieval/cma_problem.h, automatic here): with one
+//  * momentum nodes (the banded CMA of retrieval/engines/cma_problem.h, automatic here): with one
 //    central momentum over a band of 4-35 eV the fit traded the harmonic amplitudes against
 //    the wrong coupling (TL and burst 5-7 % long);
 //  * the Poisson projection (cma_problem.h): the amplitude projection's bias at a few counts
@@ -30,13 +30,13 @@
 #include <string>
 #include <vector>
 
-#include "retrieval/preprocess.h"
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/rabbitt.h"
-#include "retrieval/result.h"
-#include "retrieval/retrieve.h"
-#include "retrieval/train_burst.h"
-#include "retrieval/units.h"
+#include "retrieval/analysis/rabbitt.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/analysis/train_burst.h"
+#include "retrieval/core/result.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/pulse_metrics.h"
+#include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -124,11 +124,11 @@ TrainFromField train_from_field(const XuvField& x, double w, int q_lo, int q_hi)
   return t;
 }
 
-// Poisson bootstrap of the engine, the recipe of retrieve's own bootstrap (retrieval/retrieve.h;
-// parametric bootstrap of Wang, Zeek, Trebino and Kvam, JOSA B 20, 2400 (2003), with Poisson
-// resampling of the counts): each replica is a Poisson draw of the counts, preprocessed alike
-// and re-retrieved warm-started from the final reconstruction. (retrieve's bootstrap keeps only
-// its headline numbers, so the replicas are run here.)
+// Poisson bootstrap of the engine, the recipe of retrieve's own bootstrap
+// (retrieval/analysis/retrieve.h; parametric bootstrap of Wang, Zeek, Trebino and Kvam, JOSA B 20,
+// 2400 (2003), with Poisson resampling of the counts): each replica is a Poisson draw of the
+// counts, preprocessed alike and re-retrieved warm-started from the final reconstruction.
+// (retrieve's bootstrap keeps only its headline numbers, so the replicas are run here.)
 struct EngineEstimate {
   TrainFromField value;
   double attochirp_sigma = 0.0, burst_sigma = 0.0;
@@ -222,12 +222,12 @@ void cross_check(const synthetic::ScanConfig& config, const char* label) {
              << "), worst replica G / floor " << e.worst_replica_g_ratio
              << "; sideband systematic at 2e7 counts: attochirp " << sys_a << " as/eV, burst "
              << sys_f << " as");
-  std::printf("%s: attochirp sidebands %.3f +- %.3f, engine %.3f +- %.3f, truth %.3f; burst "
-              "sidebands %.1f +- %.1f, engine %.1f +- %.1f, truth %.1f; TL %.1f / %.1f; G/floor "
-              "%.3f; sideband systematic %.3f as/eV, %.1f as\n",
-              label, aR, saR, aE, saE, truth, fR, sfR, fE, sfE, truth_burst,
-              b.transform_limited_fwhm_as, e.value.burst_tl_fwhm_as,
-              e.trace_error / e.noise_floor, sys_a, sys_f);
+  std::printf(
+      "%s: attochirp sidebands %.3f +- %.3f, engine %.3f +- %.3f, truth %.3f; burst "
+      "sidebands %.1f +- %.1f, engine %.1f +- %.1f, truth %.1f; TL %.1f / %.1f; G/floor "
+      "%.3f; sideband systematic %.3f as/eV, %.1f as\n",
+      label, aR, saR, aE, saE, truth, fR, sfR, fE, sfE, truth_burst, b.transform_limited_fwhm_as,
+      e.value.burst_tl_fwhm_as, e.trace_error / e.noise_floor, sys_a, sys_f);
   // The engine reached the Poisson noise floor (DESIGN.md: that is convergence) and sees a train.
   CHECK(e.trace_error < 1.5 * e.noise_floor);
   // Every bootstrap replica converged too: a replica is a Poisson draw of already noisy counts
@@ -296,9 +296,11 @@ TEST_CASE("engine settings on argon-rabbitt: the claims of the docs' engine tabl
                 out.result.engine.c_str(), v.spectrum, v.known_background ? "0 (given)" : "auto",
                 out.reconstruction.trace_error, out.reconstruction.noise_floor_trace_error,
                 r.attochirp_as_per_eV, r.burst_fwhm_as, r.burst_tl_fwhm_as);
-    const double G = out.reconstruction.trace_error, G0 = out.reconstruction.noise_floor_trace_error;
+    const double G = out.reconstruction.trace_error,
+                 G0 = out.reconstruction.noise_floor_trace_error;
     const std::string engine = v.engine, spectrum = v.spectrum;
-    INFO(engine << " (" << out.result.engine << "), " << spectrum << ": G " << G << ", floor " << G0);
+    INFO(engine << " (" << out.result.engine << "), " << spectrum << ": G " << G << ", floor "
+                << G0);
     if (engine == "ptychographic" && spectrum == "amplitude") CHECK(G > 3.0 * G0);
     if (engine == "ptychographic" && spectrum == "centroid") CHECK(G < 1.2 * G0);
     // Not checked: the docs' auto row ("stays ptychographic", G 0.0046) is stale; auto now

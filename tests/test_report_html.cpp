@@ -13,7 +13,7 @@
 
 #include "io/figures.h"
 #include "io/report_html.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -22,7 +22,6 @@ namespace {
 
 using sw::test::TempDir;
 using sw::test::write_text;
-
 
 std::string read_all(const std::string& path) {
   std::ifstream in(path, std::ios::binary);

@@ -13,7 +13,7 @@
 
 #include "io/atomic_file.h"
 #include "io/result_io.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -23,7 +23,6 @@ namespace {
 
 using sw::test::TempDir;
 using sw::test::write_text;
-
 
 sw::AnalysisResult full_result() {
   sw::AnalysisResult r;

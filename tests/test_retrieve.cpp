@@ -7,9 +7,9 @@
 #include <cmath>
 #include <cstdio>
 
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/retrieve.h"
-#include "retrieval/units.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/pulse_metrics.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -33,11 +33,13 @@ Case run_preset(const std::string& name, const std::string& engine, unsigned lon
   o.threads = 2;
   c.out = retrieve(c.scan.trace, o);
   const auto& x = *c.out.result.xuv;
-  std::printf("%-18s %-14s FWHM %.1f as (truth %.1f), GDD %.0f as^2 (truth %.0f), A0 %.4f (truth %.4f), G %.4f (floor %.4f), %s\n",
-              name.c_str(), c.out.result.engine.c_str(), *x.fwhm_as, *c.scan.truth.xuv->fwhm_as, *x.gdd_as2,
-              c.scan.truth.xuv->gdd_as2.value_or(0), c.out.result.ir->peak_vector_potential_au.value_or(0),
-              *c.scan.truth.ir->peak_vector_potential_au, c.out.reconstruction.trace_error,
-              c.out.reconstruction.noise_floor_trace_error, c.out.reconstruction.message.c_str());
+  std::printf(
+      "%-18s %-14s FWHM %.1f as (truth %.1f), GDD %.0f as^2 (truth %.0f), A0 %.4f (truth %.4f), G "
+      "%.4f (floor %.4f), %s\n",
+      name.c_str(), c.out.result.engine.c_str(), *x.fwhm_as, *c.scan.truth.xuv->fwhm_as, *x.gdd_as2,
+      c.scan.truth.xuv->gdd_as2.value_or(0), c.out.result.ir->peak_vector_potential_au.value_or(0),
+      *c.scan.truth.ir->peak_vector_potential_au, c.out.reconstruction.trace_error,
+      c.out.reconstruction.noise_floor_trace_error, c.out.reconstruction.message.c_str());
   return c;
 }
 
@@ -49,7 +51,8 @@ TEST_CASE("transform-limited neon pulse: FWHM and A0 within 5 %", "[retrieve]") 
   for (const char* engine : {"ptychographic", "projections"}) {
     const Case c = run_preset("neon-150as", engine);
     CHECK(rel_err(*c.out.result.xuv->fwhm_as, *c.scan.truth.xuv->fwhm_as) < 0.05);
-    CHECK(rel_err(*c.out.result.ir->peak_vector_potential_au, *c.scan.truth.ir->peak_vector_potential_au) < 0.05);
+    CHECK(rel_err(*c.out.result.ir->peak_vector_potential_au,
+                  *c.scan.truth.ir->peak_vector_potential_au) < 0.05);
     CHECK(c.out.result.verdict->pulse_class == PulseClass::kIsolated);
   }
 }
@@ -69,7 +72,8 @@ TEST_CASE("chirp sign comes out right for both signs", "[retrieve]") {
   }
 }
 
-TEST_CASE("broadband pulse: auto refines with the full model, which fits better", "[retrieve][slow]") {
+TEST_CASE("broadband pulse: auto refines with the full model, which fits better",
+          "[retrieve][slow]") {
   // Bandwidth/energy ~0.25: one central momentum neglects (p - p_f)(I1 - I1_mid), ~0.9 rad
   // here. (With the delay-adapted gate and the momentum nodes the ptychographic FWHM is within
   // 1 % too; its trace stays ~1.1 x the noise floor where the full model reaches it, and its
@@ -79,11 +83,12 @@ TEST_CASE("broadband pulse: auto refines with the full model, which fits better"
   const double truth = *au.scan.truth.xuv->fwhm_as;
   const double e_cma = rel_err(*cma.out.result.xuv->fwhm_as, truth);
   const double e_full = rel_err(*au.out.result.xuv->fwhm_as, truth);
-  std::printf("broadband: CMA FWHM error %.1f %%, auto (%s) %.1f %%, CMA phase error %.2f rad\n", 100 * e_cma,
-              au.out.result.engine.c_str(), 100 * e_full, au.out.cma_phase_error_rad);
+  std::printf("broadband: CMA FWHM error %.1f %%, auto (%s) %.1f %%, CMA phase error %.2f rad\n",
+              100 * e_cma, au.out.result.engine.c_str(), 100 * e_full, au.out.cma_phase_error_rad);
   CHECK(au.out.result.engine == "full-model");
   CHECK(e_full < 0.05);
-  CHECK(rel_err(*au.out.result.ir->peak_vector_potential_au, *au.scan.truth.ir->peak_vector_potential_au) < 0.05);
+  CHECK(rel_err(*au.out.result.ir->peak_vector_potential_au,
+                *au.scan.truth.ir->peak_vector_potential_au) < 0.05);
   CHECK(au.out.reconstruction.trace_error < cma.out.reconstruction.trace_error);
 }
 
@@ -108,7 +113,7 @@ TEST_CASE("bootstrap sigmas cover the truth", "[retrieve][slow]") {
   // Wang, Zeek, Trebino and Kvam, JOSA B 20, 2400 (2003): bootstrap error bars; a calibrated
   // 1-sigma interval holds the truth in ~68 % of cases, 3 sigma in ~99.7 % (normal statistics).
   // The neon reference scan at 100 peak counts and a 0.2 fs delay step; its edge rows are
-  // weakly streaked (shape reference, retrieval/preprocess.h).
+  // weakly streaked (shape reference, retrieval/preprocess/preprocess.h).
   synthetic::ScanConfig cfg = synthetic::find_preset("neon-150as").config;
   cfg.geometry.delay_fs = {-6.0, 0.2, 61};
   cfg.noise.peak_counts = 100.0;
@@ -122,9 +127,11 @@ TEST_CASE("bootstrap sigmas cover the truth", "[retrieve][slow]") {
     o.threads = 2;
     const RetrieveOutput out = retrieve(scan.trace, o);
     const double f = *out.result.xuv->fwhm_as, s = *out.result.xuv->fwhm_as_sigma;
-    const double a = *out.result.ir->peak_vector_potential_au, sa = *out.result.ir->peak_vector_potential_au_sigma;
+    const double a = *out.result.ir->peak_vector_potential_au,
+                 sa = *out.result.ir->peak_vector_potential_au_sigma;
     const double ft = *scan.truth.xuv->fwhm_as, at = *scan.truth.ir->peak_vector_potential_au;
-    std::printf("seed %llu: FWHM %.1f +- %.1f (truth %.1f), A0 %.4f +- %.4f (truth %.4f)\n", seed, f, s, ft, a, sa, at);
+    std::printf("seed %llu: FWHM %.1f +- %.1f (truth %.1f), A0 %.4f +- %.4f (truth %.4f)\n", seed,
+                f, s, ft, a, sa, at);
     for (auto [v, sg, t] : {std::tuple{f, s, ft}, std::tuple{a, sa, at}}) {
       ++n;
       in1 += std::abs(v - t) <= sg;
@@ -135,9 +142,9 @@ TEST_CASE("bootstrap sigmas cover the truth", "[retrieve][slow]") {
   // Derivation: with calibrated sigmas, in1 ~ Binomial(n = 20, p = 0.683): mean 13.7, sd 2.1,
   // so in1 >= 8 (= n/2 - 2) fails with probability < 1 % (2.7 sd below the mean); in3 ~
   // Binomial(20, 0.997): P(in3 <= 18) ~ 0.2 %; in1 = 20 has probability 0.683^20 ~ 5e-4.
-  CHECK(in3 >= n - 1);               // "nearly every case"
-  CHECK(in1 >= n / 2 - 2);           // ~68 % expected; binomial spread over 20 cases
-  CHECK(in1 <= n - 1);               // sigmas not absurdly inflated
+  CHECK(in3 >= n - 1);      // "nearly every case"
+  CHECK(in1 >= n / 2 - 2);  // ~68 % expected; binomial spread over 20 cases
+  CHECK(in1 <= n - 1);      // sigmas not absurdly inflated
 }
 
 TEST_CASE("a noise-filled wide window gives a sensible FWHM or an untrusted result", "[retrieve]") {
@@ -157,17 +164,21 @@ TEST_CASE("a noise-filled wide window gives a sensible FWHM or an untrusted resu
   const RetrieveOutput out = retrieve(scan.trace, o);
   const double f = *out.result.xuv->fwhm_as, ft = *scan.truth.xuv->fwhm_as;
   REQUIRE(out.result.quality);
-  std::printf("wide noisy window: FWHM %.1f as (truth %.1f), bandwidth %.1f eV, support %.1f-%.1f eV, trusted %d\n", f,
-              ft, *out.result.xuv->bandwidth_fwhm_eV, out.preprocess.support_lo_eV, out.preprocess.support_hi_eV,
-              out.result.quality->trusted ? 1 : 0);
+  std::printf(
+      "wide noisy window: FWHM %.1f as (truth %.1f), bandwidth %.1f eV, support %.1f-%.1f eV, "
+      "trusted %d\n",
+      f, ft, *out.result.xuv->bandwidth_fwhm_eV, out.preprocess.support_lo_eV,
+      out.preprocess.support_hi_eV, out.result.quality->trusted ? 1 : 0);
   // The support must exclude most of the 90 eV window: under 80 eV is a loose bound (the
   // line's own FWHM band is 12.2 eV; common practice, set well above it).
   CHECK(out.preprocess.support_hi_eV - out.preprocess.support_lo_eV < 80.0);
   // 1e-6 of the spectral energy: round-off level of the support projection, which zeroes the
-  // bins outside (retrieval/support.h); the check is that nothing leaks, not an accuracy.
-  CHECK(spectral_energy_outside(out.reconstruction.xuv,
-                                units::eV_to_au(out.preprocess.support_lo_eV) + out.problem.ionization_energy_au,
-                                units::eV_to_au(out.preprocess.support_hi_eV) + out.problem.ionization_energy_au) <
+  // bins outside (retrieval/preprocess/support.h); the check is that nothing leaks, not an
+  // accuracy.
+  CHECK(spectral_energy_outside(
+            out.reconstruction.xuv,
+            units::eV_to_au(out.preprocess.support_lo_eV) + out.problem.ionization_energy_au,
+            units::eV_to_au(out.preprocess.support_hi_eV) + out.problem.ionization_energy_au) <
         1e-6);
   if (out.result.quality->trusted) CHECK(rel_err(f, ft) < 0.15);
   // The bandwidth is that of the line (12.2 eV for 150 as, Gaussian time-bandwidth product

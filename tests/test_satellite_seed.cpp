@@ -1,11 +1,11 @@
-// The satellite start of the full model (retrieval/satellite_seed.h): intensities of the
+// The satellite start of the full model (retrieval/physics/satellite_seed.h): intensities of the
 // satellites and the spectral fringes they make, checked against the Fourier shift theorem.
 #include <catch2/catch.hpp>
 
 #include <cmath>
 
-#include "retrieval/satellite_seed.h"
-#include "retrieval/units.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/satellite_seed.h"
 
 using namespace sw;
 
@@ -31,9 +31,11 @@ TEST_CASE("satellites at -+T/2 carry the requested intensity ratio", "[satellite
   const XuvField s = with_satellites(x, 0.5 * T, 0.2, -1.0);
   const std::vector<double> I = s.intensity();
   const TimeGrid& g = s.grid();
-  auto at = [&](double t) { return I[static_cast<std::size_t>(std::lround((t - g.t0()) / g.dt()))]; };
+  auto at = [&](double t) {
+    return I[static_cast<std::size_t>(std::lround((t - g.t0()) / g.dt()))];
+  };
   // The copies do not overlap (100 as bursts 1.3 fs apart): |c|^2 = ratio at their peaks
-  // (intensity ~ |E|^2; the definition of the ratio in retrieval/pulse_metrics.h).
+  // (intensity ~ |E|^2; the definition of the ratio in retrieval/physics/pulse_metrics.h).
   CHECK(at(0.5 * T) / at(0.0) == Approx(0.2).epsilon(0.01));
   CHECK(at(-0.5 * T) / at(0.0) == Approx(0.2).epsilon(0.01));
   CHECK(at(0.25 * T) / at(0.0) < 1e-6);

@@ -15,7 +15,7 @@
 
 #include "io/atomic_file.h"
 #include "io/result_io.h"
-#include "retrieval/result.h"
+#include "retrieval/core/result.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -49,7 +49,6 @@ std::string q(const fs::path& p) {
   s += '\'';
   return s;
 }
-
 
 /// A retrieval result with the given headline numbers (sigma < 0 = absent).
 sw::AnalysisResult retrieval(double fwhm, double fwhm_s, double gdd, double gdd_s, double a0,

@@ -9,12 +9,12 @@
 #include <string>
 #include <vector>
 
-#include "retrieval/error.h"
-#include "retrieval/forward_model.h"
-#include "retrieval/gas.h"
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/units.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/forward_model.h"
+#include "retrieval/physics/gas.h"
+#include "retrieval/physics/pulse_metrics.h"
+#include "retrieval/physics/xuv_builders.h"
 #include "synthetic/config_fields.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
@@ -407,7 +407,8 @@ TEST_CASE("truth record equals the pulse metrics of the exact field", "[syntheti
     // full spectrum but shorter than the full chirped burst (synthetic/truth.h).
     CHECK(*s.truth.xuv->fwhm_as == Approx(tau0 * std::sqrt(1 + chirp * chirp)).epsilon(5e-3));
     CHECK(*s.truth.rabbitt->train_burst_fwhm_as < *s.truth.xuv->fwhm_as);
-    CHECK(*s.truth.rabbitt->train_burst_fwhm_as > *s.truth.rabbitt->transform_limited_burst_fwhm_as);
+    CHECK(*s.truth.rabbitt->train_burst_fwhm_as >
+          *s.truth.rabbitt->transform_limited_burst_fwhm_as);
     CHECK(*s.truth.rabbitt->transform_limited_burst_fwhm_as > tau0);
     // The comb's phase fit recovers the burst GDD (phase at odd harmonics = burst phase).
     CHECK(*s.truth.xuv->gdd_as2 == Approx(c.xuv.train.burst.gdd_as2).epsilon(0.02));

@@ -1,5 +1,5 @@
-// retrieval/thread_pool.h and its use by retrieve(): every task runs once, errors come back to
-// the caller, and the bootstrap replicas give the same numbers for any thread count.
+// retrieval/analysis/thread_pool.h and its use by retrieve(): every task runs once, errors come
+// back to the caller, and the bootstrap replicas give the same numbers for any thread count.
 #include <catch2/catch.hpp>
 
 #include <omp.h>
@@ -10,14 +10,15 @@
 #include <thread>
 #include <vector>
 
-#include "retrieval/retrieve.h"
-#include "retrieval/thread_pool.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/analysis/thread_pool.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
 using namespace sw;
 
-TEST_CASE("parallel_for runs every index exactly once, single-threaded OpenMP inside", "[thread_pool]") {
+TEST_CASE("parallel_for runs every index exactly once, single-threaded OpenMP inside",
+          "[thread_pool]") {
   const int caller_omp = omp_get_max_threads();
   for (int threads : {1, 2, 5}) {
     std::vector<std::atomic<int>> hits(37);
@@ -57,7 +58,8 @@ TEST_CASE("resolve_threads: 0 means the hardware threads", "[thread_pool]") {
   CHECK(resolve_threads(0) == (hw > 0 ? static_cast<int>(hw) : 1));
 }
 
-TEST_CASE("bootstrap replicas give bit-identical results for 1 and 3 threads", "[thread_pool][retrieve]") {
+TEST_CASE("bootstrap replicas give bit-identical results for 1 and 3 threads",
+          "[thread_pool][retrieve]") {
   // retrieve.h: seeds per replica index, engines single-threaded; the replica numbers and the
   // reported sigma must not depend on the thread count (common practice for parallel Monte
   // Carlo: reproducible streams per task).
@@ -75,11 +77,14 @@ TEST_CASE("bootstrap replicas give bit-identical results for 1 and 3 threads", "
   REQUIRE(a.bootstrap_samples.size() == 5);
   REQUIRE(b.bootstrap_samples.size() == 5);
   for (std::size_t i = 0; i < 5; ++i)
-    for (std::size_t k = 0; k < 4; ++k) CHECK(a.bootstrap_samples[i][k] == b.bootstrap_samples[i][k]);
+    for (std::size_t k = 0; k < 4; ++k)
+      CHECK(a.bootstrap_samples[i][k] == b.bootstrap_samples[i][k]);
   CHECK(*a.result.xuv->fwhm_as == *b.result.xuv->fwhm_as);
   CHECK(*a.result.xuv->fwhm_as_sigma == *b.result.xuv->fwhm_as_sigma);
-  CHECK(*a.result.ir->peak_vector_potential_au_sigma == *b.result.ir->peak_vector_potential_au_sigma);
+  CHECK(*a.result.ir->peak_vector_potential_au_sigma ==
+        *b.result.ir->peak_vector_potential_au_sigma);
   // The replicas differ from one another (distinct Poisson draws, not one draw five times).
   CHECK(a.bootstrap_samples[0][0] != a.bootstrap_samples[1][0]);
-  std::printf("FWHM %.3f +- %.3f as with 1 and 3 threads\n", *a.result.xuv->fwhm_as, *a.result.xuv->fwhm_as_sigma);
+  std::printf("FWHM %.3f +- %.3f as with 1 and 3 threads\n", *a.result.xuv->fwhm_as,
+              *a.result.xuv->fwhm_as_sigma);
 }

@@ -8,9 +8,9 @@
 
 #include "io/tof_calibration.h"
 #include "io/tof_fit.h"
-#include "retrieval/error.h"
-#include "retrieval/gas.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/gas.h"
 
 namespace {
 
@@ -65,7 +65,7 @@ TEST_CASE("default TOF fit options validate", "[tof_fit]") {
 }
 
 TEST_CASE("harmonic comb recovers L and t0 from a rough guess", "[tof_fit]") {
-  // Argon (Ip from the NIST ASD table of retrieval/gas.h), 800 nm driver: harmonics 13..31.
+  // Argon (Ip from the NIST ASD table of retrieval/physics/gas.h), 800 nm driver: harmonics 13..31.
   const double ip = sw::find_gas("Ar").ionization_energy_eV;
   const sw::TofCalibration truth = cal(1.2, 5.0);
   const TofSpectrum s = comb_spectrum(truth, ip, 800.0, 13, 31, 2, 0.4, 2.0e4, 3.0, 11, true);

@@ -4,8 +4,8 @@
 // onto a flight-time axis with a known drift length L and time zero t0 (counts per time bin =
 // energy density * |dE/dt| * dt, then Poisson), written as a 16-bit PNG + JSON sidecar by hand and
 // read back. Harmonic energies q hbar omega - Ip: hbar omega = h c / lambda with h c from
-// retrieval/units.h (CODATA 2018), Ip from retrieval/gas.h (NIST ASD). Calibrating a TOF
-// spectrometer on the harmonic comb is common practice.
+// retrieval/core/units.h (CODATA 2018), Ip from retrieval/physics/gas.h (NIST ASD). Calibrating a
+// TOF spectrometer on the harmonic comb is common practice.
 #include <sys/wait.h>
 #include <unistd.h>
 
@@ -25,10 +25,10 @@
 #include "io/atomic_file.h"
 #include "io/tof_calibration.h"
 #include "io/trace_reader.h"
-#include "retrieval/error.h"
-#include "retrieval/gas.h"
-#include "retrieval/result.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/result.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/gas.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 #include "tests/test_support.h"

@@ -21,8 +21,8 @@
 #include "io/atomic_file.h"
 #include "io/tof_calibration.h"
 #include "io/trace_reader.h"
-#include "retrieval/error.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -33,8 +33,6 @@ namespace {
 
 using sw::test::TempDir;
 using sw::test::write_text;
-
-
 
 /// Distinct integer counts per pixel: 10 + 7 r + 3 c (no two neighbours equal).
 cv::Mat pattern16(int rows, int cols) {
@@ -393,7 +391,8 @@ TEST_CASE("HDF5 dataset named as FILE.h5:/group/dataset", "[io][reader][hdf5]") 
 }
 #endif
 
-TEST_CASE("a damaged HDF5 file that crashes the HDF5 library is an input error", "[io][reader][hdf5]") {
+TEST_CASE("a damaged HDF5 file that crashes the HDF5 library is an input error",
+          "[io][reader][hdf5]") {
   // tests/fuzz/corpus/hdf5_crash_h5lexists: a mutated HDF5 file (after the fuzz harness's
   // selector byte) on which H5Lexists reads out of bounds inside libhdf5 (Debian 1.10). The
   // reader runs HDF5 in a child process: this process gets an input error naming the file.

@@ -14,8 +14,8 @@
 #include "io/result_io.h"
 #include "io/trace_reader.h"
 #include "io/trace_writer.h"
-#include "retrieval/error.h"
-#include "retrieval/units.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -24,7 +24,6 @@ namespace {
 
 using sw::test::TempDir;
 using sw::test::write_text;
-
 
 /// A streaking-like trace: Gaussian photoline whose centre oscillates with delay, non-integer
 /// counts up to ~`peak`, on uniform energy and (uniform or jittered) delay axes.

@@ -1,6 +1,6 @@
-// retrieval/uncertainty.h: the warm-started bootstrap against the spread the estimator really
-// has over independent noise draws of the same scan (the frequentist meaning of sigma), and the
-// method names.
+// retrieval/analysis/uncertainty.h: the warm-started bootstrap against the spread the estimator
+// really has over independent noise draws of the same scan (the frequentist meaning of sigma), and
+// the method names.
 #include <catch2/catch.hpp>
 
 #include <cmath>
@@ -9,8 +9,8 @@
 #include <optional>
 #include <vector>
 
-#include "retrieval/retrieve.h"
-#include "retrieval/uncertainty.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/analysis/uncertainty.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -18,7 +18,8 @@ using namespace sw;
 
 TEST_CASE("uncertainty method names round-trip; unknown names are refused", "[uncertainty]") {
   for (UncertaintyMethod m : {UncertaintyMethod::kFull, UncertaintyMethod::kWarm}) {
-    UncertaintyMethod back = m == UncertaintyMethod::kFull ? UncertaintyMethod::kWarm : UncertaintyMethod::kFull;
+    UncertaintyMethod back =
+        m == UncertaintyMethod::kFull ? UncertaintyMethod::kWarm : UncertaintyMethod::kFull;
     REQUIRE(parse_uncertainty_method(to_string(m), &back));
     CHECK(back == m);
   }
@@ -49,7 +50,8 @@ TEST_CASE("warm-started replicas: statistical sigma matches the spread over inde
     o.uncertainty = UncertaintyMethod::kWarm;
     const RetrieveOutput out = retrieve(scan.trace, o);
     fwhm.push_back(*out.result.xuv->fwhm_as);
-    const std::optional<double> s = param_number(out.result.extra, "bootstrap.fwhm_as_sigma_statistical");
+    const std::optional<double> s =
+        param_number(out.result.extra, "bootstrap.fwhm_as_sigma_statistical");
     REQUIRE(s);
     sig.push_back(*s);
   }
@@ -59,8 +61,9 @@ TEST_CASE("warm-started replicas: statistical sigma matches the spread over inde
   for (double f : fwhm) ss += (f - mean) * (f - mean);
   const double spread = std::sqrt(ss / (n - 1));
   const double warm = std::accumulate(sig.begin(), sig.end(), 0.0) / n;
-  std::printf("FWHM over 8 scans: mean %.2f as, spread %.2f as; mean warm sigma_statistical %.2f as\n", mean,
-              spread, warm);
+  std::printf(
+      "FWHM over 8 scans: mean %.2f as, spread %.2f as; mean warm sigma_statistical %.2f as\n",
+      mean, spread, warm);
   CHECK(warm > 0.5 * spread);
   CHECK(warm < 2.0 * spread);
 }

@@ -1,11 +1,11 @@
-// Unit conversions (retrieval/units.h) against CODATA 2018 and textbook strong-field numbers.
+// Unit conversions (retrieval/core/units.h) against CODATA 2018 and textbook strong-field numbers.
 #include <catch2/catch.hpp>
 
 #include <cmath>
 #include <numbers>
 
-#include "retrieval/gas.h"
-#include "retrieval/units.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/gas.h"
 
 using namespace sw;
 

@@ -1,17 +1,17 @@
-// XUV field builders (retrieval/xuv_builders.h): Gaussian pulses with spectral phase, tabulated
-// spectra, attosecond pulse trains and satellites. Checks are against textbook pulse optics and
-// the published structure of HHG trains, on convention-free quantities (widths, delays, comb
-// positions) plus the documented sign conventions.
+// XUV field builders (retrieval/physics/xuv_builders.h): Gaussian pulses with spectral phase,
+// tabulated spectra, attosecond pulse trains and satellites. Checks are against textbook pulse
+// optics and the published structure of HHG trains, on convention-free quantities (widths, delays,
+// comb positions) plus the documented sign conventions.
 #include <catch2/catch.hpp>
 
 #include <cmath>
 #include <string>
 #include <vector>
 
-#include "retrieval/error.h"
-#include "retrieval/pulse_metrics.h"
-#include "retrieval/units.h"
-#include "retrieval/xuv_builders.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/pulse_metrics.h"
+#include "retrieval/physics/xuv_builders.h"
 
 using namespace sw;
 

@@ -14,8 +14,8 @@
 #include <utility>
 #include <vector>
 
-#include "retrieval/engine.h"
-#include "retrieval/forward_model.h"
+#include "retrieval/engines/engine.h"
+#include "retrieval/physics/forward_model.h"
 #include "tests/cma_test_problem.h"
 
 #include "tests/bench/bench_support.h"

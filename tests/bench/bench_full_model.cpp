@@ -22,13 +22,13 @@
 #include <string>
 #include <vector>
 
-#include "retrieval/engine.h"
-#include "retrieval/full_model_engine.h"
-#include "retrieval/grid.h"
-#include "retrieval/ir_parametrization.h"
-#include "retrieval/preprocess.h"
-#include "retrieval/retrieve.h"
-#include "retrieval/units.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/core/grid.h"
+#include "retrieval/core/units.h"
+#include "retrieval/engines/engine.h"
+#include "retrieval/engines/full_model_engine.h"
+#include "retrieval/physics/ir_parametrization.h"
+#include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -148,8 +148,8 @@ double process_cpu_seconds() {
 }
 
 // Whole analysis (preprocess, engines, bootstrap, metrics, quality) as `retrieve` runs it.
-// Threads: the second argument (RetrieveOptions::threads). Counter process_cpu_s: CPU seconds of all
-// threads (the L-BFGS runs on a worker thread, so the CPU column shows only the main thread);
+// Threads: the second argument (RetrieveOptions::threads). Counter process_cpu_s: CPU seconds of
+// all threads (the L-BFGS runs on a worker thread, so the CPU column shows only the main thread);
 // on a shared machine it is the figure to compare, wall time depends on the load.
 void BM_HeliumRetrieve(benchmark::State& state) {
   const Trace& t = helium_scan().trace;

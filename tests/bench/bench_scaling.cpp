@@ -13,8 +13,8 @@
 #include <benchmark/benchmark.h>
 #include <sys/resource.h>
 
-#include "retrieval/retrieve.h"
-#include "retrieval/thread_pool.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/analysis/thread_pool.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -76,7 +76,14 @@ BENCHMARK(BM_ScanSize)
     ->Unit(benchmark::kSecond)
     ->UseRealTime();
 
-void BM_LargeWithSigma(benchmark::State& state) { run(state, 401, 1200, 8, static_cast<int>(state.range(0))); }
-BENCHMARK(BM_LargeWithSigma)->Arg(1)->Arg(2)->Iterations(1)->Unit(benchmark::kSecond)->UseRealTime();
+void BM_LargeWithSigma(benchmark::State& state) {
+  run(state, 401, 1200, 8, static_cast<int>(state.range(0)));
+}
+BENCHMARK(BM_LargeWithSigma)
+    ->Arg(1)
+    ->Arg(2)
+    ->Iterations(1)
+    ->Unit(benchmark::kSecond)
+    ->UseRealTime();
 
 }  // namespace

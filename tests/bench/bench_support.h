@@ -5,7 +5,7 @@
 
 #include <cstddef>
 
-#include "retrieval/grid.h"
+#include "retrieval/core/grid.h"
 
 namespace sw::bench {
 

@@ -21,7 +21,7 @@
 
 #include "io/csv.h"
 #include "io/trace_reader.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 namespace {
 

@@ -31,15 +31,19 @@ std::string slurp(const fs::path& p) {
 
 const std::vector<std::string>& tokens() {
   static const std::vector<std::string> t = {
-      "[", "]", "{", "}", "[[[[[[[[", "{\"a\":", "1e999", "-1e308", "nan", "inf", "0", "-0",
-      "65536", "1e7", "4294967295", "\"", "\\", ":", ",", "\n", "- ", "  ", "\x00", "\x1b",
-      "\xff\xfe", "\xc0\xaf", "%YAML:1.0\n", "&a [*a]", "count", "step", "first", "image",
-      "tof_ns", "calibration", "../", "/dev/zero", "IHDR", "IDAT", "II*\x00", "MM\x00*"};
+      "[",          "]",    "{",     "}",        "[[[[[[[[", "{\"a\":",     "1e999",
+      "-1e308",     "nan",  "inf",   "0",        "-0",       "65536",       "1e7",
+      "4294967295", "\"",   "\\",    ":",        ",",        "\n",          "- ",
+      "  ",         "\x00", "\x1b",  "\xff\xfe", "\xc0\xaf", "%YAML:1.0\n", "&a [*a]",
+      "count",      "step", "first", "image",    "tof_ns",   "calibration", "../",
+      "/dev/zero",  "IHDR", "IDAT",  "II*\x00",  "MM\x00*"};
   return t;
 }
 
 std::string mutate(std::string s, const std::vector<std::string>& seeds, std::mt19937_64& rng) {
-  auto pick = [&](std::size_t n) { return n == 0 ? std::size_t{0} : static_cast<std::size_t>(rng() % n); };
+  auto pick = [&](std::size_t n) {
+    return n == 0 ? std::size_t{0} : static_cast<std::size_t>(rng() % n);
+  };
   const int rounds = 1 + static_cast<int>(rng() % 4);
   for (int r = 0; r < rounds; ++r) {
     const std::size_t body = s.size() > 1 ? s.size() - 1 : 0;  // keep the selector byte

@@ -23,7 +23,7 @@ def au_field_V_per_m():
 # (the SFA streaking amplitude: M. Kitzler, N. Milosevic, A. Scrinzi, F. Krausz and T. Brabec,
 # Phys. Rev. Lett. 88, 173904 (2002); Y. Mairesse and F. Quere, Phys. Rev. A 71, 011401(R)
 # (2005)), constant dipole d = 1, atomic units. Fields as documented in retrieval/
-# xuv_builders.h and retrieval/ir_field.h, written out here:
+# xuv_builders.h and retrieval/physics/ir_field.h, written out here:
 #   E_X(t) = eps(t) exp(-i Omega0 t), eps(t) = (1/2pi) Int dD exp(-D^2/(2 s^2) + i GDD D^2/2 - i D t)
 #          = (1/2pi) sqrt(2 pi / a) exp(-t^2 / (2 a)),  a = 1/s^2 - i GDD,  s = 2 sqrt(ln 2)/tl_fwhm
 #   (the Gaussian integral, from memory; Fourier sign E ~ exp(-i Omega t) of DESIGN.md);

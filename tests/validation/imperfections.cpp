@@ -14,9 +14,9 @@
 #include "io/figures.h"
 #include "io/trace_reader.h"
 #include "io/trace_writer.h"
-#include "retrieval/error.h"
-#include "retrieval/gas.h"
-#include "retrieval/retrieve.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/core/error.h"
+#include "retrieval/physics/gas.h"
 #include "synthetic/generator.h"
 
 namespace sw::validation {
@@ -221,7 +221,8 @@ std::vector<ValidationCase> validation_cases() {
     add(v, "two-gas mixture", "helium with krypton (4p line 10.6 eV above He 1s, strength 0.4)", c,
         503);
     // The user knows the jet's gases: the sidecar declares both lines.
-    v.back().declared_lines = {{"1s", std::nullopt, std::nullopt, ""}, {"4p", std::nullopt, std::nullopt, "Kr"}};
+    v.back().declared_lines = {{"1s", std::nullopt, std::nullopt, ""},
+                               {"4p", std::nullopt, std::nullopt, "Kr"}};
   }
   // --- time-of-flight recording ------------------------------------------------------------------
   {
@@ -475,7 +476,8 @@ std::string csv_field(std::string s) {
 }  // namespace
 
 std::vector<ValidationCase> held_out_cases(int n, unsigned long long seed) {
-  if (n < 0 || n > 1000) throw usage_error("--held-out = " + std::to_string(n) + "; expected 0..1000");
+  if (n < 0 || n > 1000)
+    throw usage_error("--held-out = " + std::to_string(n) + "; expected 0..1000");
   std::mt19937_64 rng(seed);
   std::uniform_real_distribution<double> u(0.0, 1.0);
   auto uni = [&](double a, double b) { return a + (b - a) * u(rng); };
@@ -501,7 +503,8 @@ std::vector<ValidationCase> held_out_cases(int n, unsigned long long seed) {
     const double bw = 1825.0 / s.tl_as;  // eV: Gaussian time-bandwidth product 0.441 x h
     const double e0 = std::sqrt(s.ir_Wcm2 / 3.50945e16), om = 45.5634 / s.ir_nm;  // a.u.
     const double streak = std::sqrt(2 * w0 / 27.211386) * (e0 / om) * 27.211386;
-    const double lo = std::max(2.0, w0 - 2.5 * bw - 1.3 * streak), hi = w0 + 2.5 * bw + 1.3 * streak;
+    const double lo = std::max(2.0, w0 - 2.5 * bw - 1.3 * streak),
+                 hi = w0 + 2.5 * bw + 1.3 * streak;
     const int ne = static_cast<int>(uni(180, 420));
     s.energy = {lo, (hi - lo) / (ne - 1), ne};
     const double half = uni(1.4, 2.0) * s.ir_fs, step = std::min(0.2, period_fs / 14);
@@ -720,12 +723,18 @@ std::vector<SweepRow> rows_from_csv(const std::string& text, const std::string& 
     for (std::size_t i = 0; i < line.size(); ++i) {
       const char c = line[i];
       if (q) {
-        if (c == '"' && i + 1 < line.size() && line[i + 1] == '"') cur += '"', ++i;
-        else if (c == '"') q = false;
-        else cur += c;
-      } else if (c == '"') q = true;
-      else if (c == ',') f.push_back(cur), cur.clear();
-      else cur += c;
+        if (c == '"' && i + 1 < line.size() && line[i + 1] == '"')
+          cur += '"', ++i;
+        else if (c == '"')
+          q = false;
+        else
+          cur += c;
+      } else if (c == '"')
+        q = true;
+      else if (c == ',')
+        f.push_back(cur), cur.clear();
+      else
+        cur += c;
     }
     f.push_back(cur);
     return f;
@@ -798,7 +807,8 @@ void sweep_figures(const std::vector<SweepRow>& rows, const std::string& dir) {
     Series& s = r.trusted ? trusted : untrusted;
     s.x.push_back(x);
     s.y.push_back(std::clamp(100 * r.fwhm_error(), -60.0, 60.0));
-    s.y_err.push_back(r.fwhm_sigma_as > 0 ? std::min(100 * r.fwhm_sigma_as / r.truth_fwhm_as, 60.0) : 0.0);
+    s.y_err.push_back(r.fwhm_sigma_as > 0 ? std::min(100 * r.fwhm_sigma_as / r.truth_fwhm_as, 60.0)
+                                          : 0.0);
     if (r.fwhm_sigma_as > 0) {
       Series& p = r.trusted ? pt : pu;
       p.x.push_back(x);

@@ -54,7 +54,7 @@ struct SweepOptions {
   /// per-engine errors of docs/validation.md).
   std::string engine = "auto";
   std::string uncertainty = "full";  ///< RetrieveOptions::uncertainty by name (full | warm)
-  int jobs = 1;          ///< cases run at the same time (threads, >= 1)
+  int jobs = 1;                      ///< cases run at the same time (threads, >= 1)
   std::string work_dir;  ///< folder for the scans written through files (TOF); "" = temp
   bool verbose = true;   ///< one line per finished case on stderr
   /// > 0: run held_out_cases(held_out, held_out_seed) instead of the named set.
@@ -91,8 +91,8 @@ struct SweepRow {
 /// Writes the named cases' scans (all when `names` is empty) as 16-bit PNG scans with their
 /// sidecars into `dir` (time-of-flight cases on their flight-time axis), so that a case can be
 /// analysed with the command line; returns the sidecar paths.
-std::vector<std::string> write_scans(const std::vector<std::string>& names, const SweepOptions& options,
-                                     const std::string& dir);
+std::vector<std::string> write_scans(const std::vector<std::string>& names,
+                                     const SweepOptions& options, const std::string& dir);
 
 /// The cases a sweep with these options draws from: held_out_cases() when options.held_out > 0,
 /// else validation_cases().

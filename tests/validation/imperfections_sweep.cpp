@@ -19,7 +19,7 @@
 #include <vector>
 
 #include "imperfections.h"
-#include "retrieval/error.h"
+#include "retrieval/core/error.h"
 
 using namespace sw;
 
@@ -79,7 +79,8 @@ int main(int argc, char** argv) {
       } else if (a == "-h" || a == "--help") {
         std::printf(
             "usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
-            "[--jobs N (1)] [--engine NAME (auto)] [--uncertainty full|warm (full)] [--work DIR] [--list] [--check-scans] [--write-scans DIR] [--held-out N [--held-out-seed S]]\n");
+            "[--jobs N (1)] [--engine NAME (auto)] [--uncertainty full|warm (full)] [--work DIR] "
+            "[--list] [--check-scans] [--write-scans DIR] [--held-out N [--held-out-seed S]]\n");
         return 0;
       } else if (!a.empty() && a[0] == '-') {
         throw usage_error("unknown option " + a);
@@ -98,7 +99,8 @@ int main(int argc, char** argv) {
       if (!in) throw input_error("cannot read " + from_csv);
       std::ostringstream text;
       text << in.rdbuf();
-      const std::vector<validation::SweepRow> rows = validation::rows_from_csv(text.str(), from_csv);
+      const std::vector<validation::SweepRow> rows =
+          validation::rows_from_csv(text.str(), from_csv);
       std::filesystem::create_directories(out);
       std::ofstream(out + "/validation_imperfections_table.md") << validation::sweep_markdown(rows);
       validation::sweep_figures(rows, out + "/figures");
@@ -115,7 +117,8 @@ int main(int argc, char** argv) {
       return 0;
     }
     std::filesystem::create_directories(out);
-    const std::string base = out + (o.held_out > 0 ? "/validation_heldout" : "/validation_imperfections");
+    const std::string base =
+        out + (o.held_out > 0 ? "/validation_heldout" : "/validation_imperfections");
     // Rows are appended to the partial CSV as they finish (a long run can be inspected early).
     std::ofstream partial(base + ".partial.csv");
     partial << validation::sweep_csv_header() << "\n" << std::flush;

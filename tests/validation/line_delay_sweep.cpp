@@ -1,14 +1,16 @@
 // Two-line delay validation sweep: synthetic scans from the direct-quadrature generator with a
 // second photoelectron line of known photoemission delay and strength; the relative delay is
-// measured by the centre-of-energy method (retrieval/line_delays.h) on the lines that
+// measured by the centre-of-energy method (retrieval/analysis/line_delays.h) on the lines that
 // preprocessing finds, and on a subset the XUV pulse is retrieved (retrieve(), default engine
 // chain, no bootstrap) and compared with the truth.
 // Writes OUT/validation_line_delays.csv, OUT/validation_line_delays_table.md and
 // OUT/figures/line_delay_*.png.
 // With --joint B, every retrieved row runs retrieve() with default options and B bootstrap
-// replicas: the joint fit of the lines (retrieval/multi_line_fit.h) gives the pulse and the
-// delay with its sigma; written to OUT/validation_line_delays_joint.csv and _joint_table.md.
-// Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] [--joint B] [--delays LIST] [--strengths LIST]
+// replicas: the joint fit of the lines (retrieval/analysis/multi_line_fit.h) gives the pulse and
+// the delay with its sigma; written to OUT/validation_line_delays_joint.csv and _joint_table.md.
+// Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S]
+// [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] [--joint B] [--delays LIST]
+// [--strengths LIST]
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -21,10 +23,10 @@
 #include <vector>
 
 #include "io/figures.h"
-#include "retrieval/line_delays.h"
-#include "retrieval/preprocess.h"
-#include "retrieval/retrieve.h"
-#include "retrieval/units.h"
+#include "retrieval/analysis/line_delays.h"
+#include "retrieval/analysis/retrieve.h"
+#include "retrieval/core/units.h"
+#include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -85,15 +87,24 @@ int main(int argc, char** argv) {
   std::vector<double> only_delays, only_strengths;
   for (int i = 2; i < argc; ++i) {
     const std::string a = argv[i];
-    if (a == "--quick") quick = true;
-    else if (a == "--retrieve-every" && i + 1 < argc) retrieve_every = std::atoi(argv[++i]);
-    else if (a == "--bootstrap" && i + 1 < argc) bootstrap = std::atoi(argv[++i]);
-    else if (a == "--strength" && i + 1 < argc) only_strength = std::atof(argv[++i]);
-    else if (a == "--peak" && i + 1 < argc) only_peak = std::atof(argv[++i]);
-    else if (a == "--band" && i + 1 < argc) band_factor = std::atof(argv[++i]);
-    else if (a == "--band-iterations" && i + 1 < argc) band_iterations = std::atoi(argv[++i]);
-    else if (a == "--target" && i + 1 < argc) only_target = argv[++i];
-    else if (a == "--joint" && i + 1 < argc) joint_bootstrap = std::atoi(argv[++i]);
+    if (a == "--quick")
+      quick = true;
+    else if (a == "--retrieve-every" && i + 1 < argc)
+      retrieve_every = std::atoi(argv[++i]);
+    else if (a == "--bootstrap" && i + 1 < argc)
+      bootstrap = std::atoi(argv[++i]);
+    else if (a == "--strength" && i + 1 < argc)
+      only_strength = std::atof(argv[++i]);
+    else if (a == "--peak" && i + 1 < argc)
+      only_peak = std::atof(argv[++i]);
+    else if (a == "--band" && i + 1 < argc)
+      band_factor = std::atof(argv[++i]);
+    else if (a == "--band-iterations" && i + 1 < argc)
+      band_iterations = std::atoi(argv[++i]);
+    else if (a == "--target" && i + 1 < argc)
+      only_target = argv[++i];
+    else if (a == "--joint" && i + 1 < argc)
+      joint_bootstrap = std::atoi(argv[++i]);
     else if (a == "--delays" && i + 1 < argc) {
       std::stringstream ds(argv[++i]);
       for (std::string t; std::getline(ds, t, ',');) only_delays.push_back(std::atof(t.c_str()));
@@ -101,17 +112,22 @@ int main(int argc, char** argv) {
       std::stringstream ds(argv[++i]);
       for (std::string t; std::getline(ds, t, ',');) only_strengths.push_back(std::atof(t.c_str()));
     } else {
-      std::fprintf(stderr, "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar]\n");
+      std::fprintf(stderr,
+                   "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] "
+                   "[--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar]\n");
       return 2;
     }
   }
   std::filesystem::create_directories(out + "/figures");
-  std::vector<std::string> targets = quick ? std::vector<std::string>{"Ne"} : std::vector<std::string>{"Ne", "Ar"};
+  std::vector<std::string> targets =
+      quick ? std::vector<std::string>{"Ne"} : std::vector<std::string>{"Ne", "Ar"};
   if (!only_target.empty()) targets = {only_target};
   std::vector<double> delays = {-50, -20, 0, 20, 50};
   if (!only_delays.empty()) delays = only_delays;
-  std::vector<double> strengths = quick ? std::vector<double>{0.3} : std::vector<double>{0.1, 0.3, 1.0};
-  std::vector<double> peaks = quick ? std::vector<double>{300} : std::vector<double>{100, 300, 1000};
+  std::vector<double> strengths =
+      quick ? std::vector<double>{0.3} : std::vector<double>{0.1, 0.3, 1.0};
+  std::vector<double> peaks =
+      quick ? std::vector<double>{300} : std::vector<double>{100, 300, 1000};
   if (only_strength > 0) strengths = {only_strength};
   if (!only_strengths.empty()) strengths = only_strengths;
   if (only_peak > 0) peaks = {only_peak};
@@ -127,7 +143,8 @@ int main(int argc, char** argv) {
           c.lines[1].relative_strength = st;
           c.noise.peak_counts = peak;
           const auto t0 = std::chrono::steady_clock::now();
-          const synthetic::SyntheticScan s = synthetic::generate_scan(c, 7000 + static_cast<unsigned long long>(n));
+          const synthetic::SyntheticScan s =
+              synthetic::generate_scan(c, 7000 + static_cast<unsigned long long>(n));
           Row r;
           r.target = tg;
           r.inserted_as = d;
@@ -140,7 +157,8 @@ int main(int argc, char** argv) {
           try {
             (void)preprocess(s.trace, PreprocessOptions{}, &ps);
             std::vector<double> bg(s.trace.energy_au.size());
-            for (std::size_t j = 0; j < bg.size(); ++j) bg[j] = ps.background.at(units::au_to_eV(s.trace.energy_au[j]));
+            for (std::size_t j = 0; j < bg.size(); ++j)
+              bg[j] = ps.background.at(units::au_to_eV(s.trace.energy_au[j]));
             LineDelayOptions o;
             o.bootstrap = bootstrap;
             o.band_half_width_factor = band_factor;
@@ -159,9 +177,10 @@ int main(int argc, char** argv) {
             if (!r.found) {
               for (const auto& w : ld.warnings) std::fprintf(stderr, "  warning: %s\n", w.c_str());
               for (const auto& l : ps.lines)
-                std::fprintf(stderr, "  line %s at %.2f eV, strength %.3f +- %.3f%s\n", l.name.c_str(),
-                             l.kinetic_energy_eV.value_or(0), l.relative_strength.value_or(-1),
-                             l.relative_strength_sigma.value_or(-1), l.reference ? " (reference)" : "");
+                std::fprintf(
+                    stderr, "  line %s at %.2f eV, strength %.3f +- %.3f%s\n", l.name.c_str(),
+                    l.kinetic_energy_eV.value_or(0), l.relative_strength.value_or(-1),
+                    l.relative_strength_sigma.value_or(-1), l.reference ? " (reference)" : "");
             }
             r.chi2 = ld.reduced_chi2;
             if (retrieve_every > 0 && (n - 1) % retrieve_every == 0) {
@@ -191,29 +210,39 @@ int main(int argc, char** argv) {
             std::fprintf(stderr, "  failed: %s\n", e.what());
           }
           r.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-          std::fprintf(stderr, "%s peak %5.0f strength %.1f delay %+4.0f: %s %7.2f +- %5.2f as (fit %5.2f) strength %.3f/%.3f chi2 %.2f FWHM %.1f/%.1f %.1f s\n",
-                       tg.c_str(), peak, st, d, r.found ? "found" : "MISSED", r.delay_as, r.sigma_as, r.sigma_fit_as,
-                       r.strength, r.truth_strength, r.chi2, r.fwhm, r.truth_fwhm, r.seconds);
+          std::fprintf(stderr,
+                       "%s peak %5.0f strength %.1f delay %+4.0f: %s %7.2f +- %5.2f as (fit %5.2f) "
+                       "strength %.3f/%.3f chi2 %.2f FWHM %.1f/%.1f %.1f s\n",
+                       tg.c_str(), peak, st, d, r.found ? "found" : "MISSED", r.delay_as,
+                       r.sigma_as, r.sigma_fit_as, r.strength, r.truth_strength, r.chi2, r.fwhm,
+                       r.truth_fwhm, r.seconds);
           if (r.joint)
-            std::fprintf(stderr, "   joint (%s): %7.2f +- %5.2f as, strength %.3f +- %.3f, centre of energy %7.2f +- %5.2f as, %s\n",
-                         r.method.c_str(), r.j_delay, r.j_sigma, r.j_strength, r.j_strength_sigma, r.j_coe, r.j_coe_sigma,
-                         r.j_trusted ? "trusted" : "not trusted");
+            std::fprintf(stderr,
+                         "   joint (%s): %7.2f +- %5.2f as, strength %.3f +- %.3f, centre of "
+                         "energy %7.2f +- %5.2f as, %s\n",
+                         r.method.c_str(), r.j_delay, r.j_sigma, r.j_strength, r.j_strength_sigma,
+                         r.j_coe, r.j_coe_sigma, r.j_trusted ? "trusted" : "not trusted");
           rows.push_back(r);
         }
 
   // CSV and a summary table.
   {
     std::ofstream csv(out + "/validation_line_delays.csv");
-    csv << "target,peak_counts,strength_inserted,strength_truth,delay_inserted_as,found,delay_as,delay_sigma_as,"
-           "delay_sigma_fit_as,strength,strength_sigma,reduced_chi2,xuv_fwhm_truth_as,xuv_fwhm_as,seconds\n";
+    csv << "target,peak_counts,strength_inserted,strength_truth,delay_inserted_as,found,delay_as,"
+           "delay_sigma_as,"
+           "delay_sigma_fit_as,strength,strength_sigma,reduced_chi2,xuv_fwhm_truth_as,xuv_fwhm_as,"
+           "seconds\n";
     for (const Row& r : rows)
-      csv << r.target << "," << r.peak << "," << r.strength_in << "," << r.truth_strength << "," << r.inserted_as << ","
-          << (r.found ? 1 : 0) << "," << r.delay_as << "," << r.sigma_as << "," << r.sigma_fit_as << "," << r.strength
-          << "," << r.strength_sigma << "," << r.chi2 << "," << r.truth_fwhm << "," << r.fwhm << "," << r.seconds << "\n";
+      csv << r.target << "," << r.peak << "," << r.strength_in << "," << r.truth_strength << ","
+          << r.inserted_as << "," << (r.found ? 1 : 0) << "," << r.delay_as << "," << r.sigma_as
+          << "," << r.sigma_fit_as << "," << r.strength << "," << r.strength_sigma << "," << r.chi2
+          << "," << r.truth_fwhm << "," << r.fwhm << "," << r.seconds << "\n";
   }
   std::ofstream md(out + "/validation_line_delays_table.md");
-  md << "| target | peak counts | strength | rows | delay within 3 sigma | median sigma (as) | max sigma (as) | "
-        "mean (measured - inserted) (as) | strength within 3 sigma | XUV FWHM within 5 % |\n|---|---|---|---|---|---|---|---|---|---|\n";
+  md << "| target | peak counts | strength | rows | delay within 3 sigma | median sigma (as) | max "
+        "sigma (as) | "
+        "mean (measured - inserted) (as) | strength within 3 sigma | XUV FWHM within 5 % "
+        "|\n|---|---|---|---|---|---|---|---|---|---|\n";
   int total = 0, within = 0, sig_ok = 0, sig_n = 0, fw_n = 0, fw_ok = 0;
   for (const std::string& tg : targets)
     for (double peak : peaks)
@@ -245,29 +274,37 @@ int main(int argc, char** argv) {
         fw_ok += fo;
         std::sort(sig.begin(), sig.end());
         const double med = sig.empty() ? 0 : sig[sig.size() / 2], mx = sig.empty() ? 0 : sig.back();
-        md << "| " << tg << " | " << peak << " | " << st << " | " << m << " | " << w << "/" << m << " | " << f(med, 3)
-           << " | " << f(mx, 3) << " | " << f(sig.empty() ? 0 : bias / static_cast<double>(sig.size()), 3) << " | " << sw3
-           << "/" << m << " | " << (fn ? std::to_string(fo) + "/" + std::to_string(fn) : std::string("-")) << " |\n";
+        md << "| " << tg << " | " << peak << " | " << st << " | " << m << " | " << w << "/" << m
+           << " | " << f(med, 3) << " | " << f(mx, 3) << " | "
+           << f(sig.empty() ? 0 : bias / static_cast<double>(sig.size()), 3) << " | " << sw3 << "/"
+           << m << " | " << (fn ? std::to_string(fo) + "/" + std::to_string(fn) : std::string("-"))
+           << " |\n";
       }
-  md << "\nAll rows: delay within 3 sigma in " << within << "/" << total << " (" << f(100.0 * within / std::max(total, 1), 3)
-     << " %); sigma <= 5 as in " << sig_ok << "/" << sig_n << " rows at >= 300 peak counts; XUV FWHM within 5 % in "
-     << fw_ok << "/" << fw_n << " retrieved rows.\n";
-  std::fprintf(stderr, "delay within 3 sigma: %d/%d; sigma <= 5 as at >= 300 counts: %d/%d; FWHM within 5 %%: %d/%d\n",
+  md << "\nAll rows: delay within 3 sigma in " << within << "/" << total << " ("
+     << f(100.0 * within / std::max(total, 1), 3) << " %); sigma <= 5 as in " << sig_ok << "/"
+     << sig_n << " rows at >= 300 peak counts; XUV FWHM within 5 % in " << fw_ok << "/" << fw_n
+     << " retrieved rows.\n";
+  std::fprintf(stderr,
+               "delay within 3 sigma: %d/%d; sigma <= 5 as at >= 300 counts: %d/%d; FWHM within 5 "
+               "%%: %d/%d\n",
                within, total, sig_ok, sig_n, fw_ok, fw_n);
 
   if (joint_bootstrap >= 0) {
     // Joint rows: retrieve() with default options.
     std::ofstream jc(out + "/validation_line_delays_joint.csv");
-    jc << "target,peak_counts,strength_inserted,strength_truth,delay_inserted_as,delay_method,delay_as,delay_sigma_as,"
-          "strength,strength_sigma,delay_centre_of_energy_as,delay_centre_of_energy_sigma_as,xuv_fwhm_truth_as,xuv_fwhm_as,"
+    jc << "target,peak_counts,strength_inserted,strength_truth,delay_inserted_as,delay_method,"
+          "delay_as,delay_sigma_as,"
+          "strength,strength_sigma,delay_centre_of_energy_as,delay_centre_of_energy_sigma_as,xuv_"
+          "fwhm_truth_as,xuv_fwhm_as,"
           "trusted,seconds\n";
     int jn = 0, jw = 0, jf = 0, js_n = 0, js_ok = 0, jt = 0, cw = 0, rows_run = 0;
     for (const Row& r : rows) {
       if (!(r.fwhm > 0)) continue;
       ++rows_run;
-      jc << r.target << "," << r.peak << "," << r.strength_in << "," << r.truth_strength << "," << r.inserted_as << ","
-         << (r.joint ? r.method : std::string("none")) << "," << r.j_delay << "," << r.j_sigma << "," << r.j_strength << ","
-         << r.j_strength_sigma << "," << r.j_coe << "," << r.j_coe_sigma << "," << r.truth_fwhm << "," << r.fwhm << ","
+      jc << r.target << "," << r.peak << "," << r.strength_in << "," << r.truth_strength << ","
+         << r.inserted_as << "," << (r.joint ? r.method : std::string("none")) << "," << r.j_delay
+         << "," << r.j_sigma << "," << r.j_strength << "," << r.j_strength_sigma << "," << r.j_coe
+         << "," << r.j_coe_sigma << "," << r.truth_fwhm << "," << r.fwhm << ","
          << (r.j_trusted ? 1 : 0) << "," << r.seconds << "\n";
       if (!r.joint) continue;
       ++jn;
@@ -281,22 +318,29 @@ int main(int argc, char** argv) {
       }
     }
     std::ofstream jm(out + "/validation_line_delays_joint_table.md");
-    jm << "| target | peak counts | strength | inserted (as) | joint delay (as) | centre of energy (as) | strength (truth) | "
+    jm << "| target | peak counts | strength | inserted (as) | joint delay (as) | centre of energy "
+          "(as) | strength (truth) | "
           "XUV FWHM / truth (as) | trusted |\n|---|---|---|---|---|---|---|---|---|\n";
     for (const Row& r : rows) {
       if (!(r.fwhm > 0)) continue;
-      jm << "| " << r.target << " | " << r.peak << " | " << r.strength_in << " | " << r.inserted_as << " | "
-         << (r.joint ? f(r.j_delay, 4) + " ± " + f(r.j_sigma, 2) : std::string("-")) << " | "
-         << (r.joint ? f(r.j_coe, 4) + " ± " + f(r.j_coe_sigma, 2) : std::string("-")) << " | "
-         << (r.joint ? f(r.j_strength, 3) + " ± " + f(r.j_strength_sigma, 2) : std::string("-")) << " (" << f(r.truth_strength, 3)
-         << ") | " << f(r.fwhm, 4) << " / " << f(r.truth_fwhm, 4) << " | " << (r.j_trusted ? "yes" : "no") << " |\n";
+      jm << "| " << r.target << " | " << r.peak << " | " << r.strength_in << " | " << r.inserted_as
+         << " | " << (r.joint ? f(r.j_delay, 4) + " ± " + f(r.j_sigma, 2) : std::string("-"))
+         << " | " << (r.joint ? f(r.j_coe, 4) + " ± " + f(r.j_coe_sigma, 2) : std::string("-"))
+         << " | "
+         << (r.joint ? f(r.j_strength, 3) + " ± " + f(r.j_strength_sigma, 2) : std::string("-"))
+         << " (" << f(r.truth_strength, 3) << ") | " << f(r.fwhm, 4) << " / " << f(r.truth_fwhm, 4)
+         << " | " << (r.j_trusted ? "yes" : "no") << " |\n";
     }
-    jm << "\nJoint rows (retrieve, default options, " << joint_bootstrap << " replicas): " << jn << " of " << rows_run
-       << " retrieved rows fitted jointly; delay within 3 sigma in " << jw << "/" << jn << " (centre of energy: " << cw << "/"
-       << jn << "); sigma <= 5 as in " << js_ok << "/" << js_n << " rows at >= 300 peak counts; XUV FWHM within 5 % in " << jf
-       << "/" << jn << "; trusted " << jt << "/" << jn << ".\n";
-    std::fprintf(stderr, "joint: %d/%d rows jointly fitted; delay within 3 sigma %d/%d (centre of energy %d/%d); sigma <= 5 as at >= 300 counts %d/%d; FWHM within 5 %% %d/%d; trusted %d/%d\n",
-                 jn, rows_run, jw, jn, cw, jn, js_ok, js_n, jf, jn, jt, jn);
+    jm << "\nJoint rows (retrieve, default options, " << joint_bootstrap << " replicas): " << jn
+       << " of " << rows_run << " retrieved rows fitted jointly; delay within 3 sigma in " << jw
+       << "/" << jn << " (centre of energy: " << cw << "/" << jn << "); sigma <= 5 as in " << js_ok
+       << "/" << js_n << " rows at >= 300 peak counts; XUV FWHM within 5 % in " << jf << "/" << jn
+       << "; trusted " << jt << "/" << jn << ".\n";
+    std::fprintf(
+        stderr,
+        "joint: %d/%d rows jointly fitted; delay within 3 sigma %d/%d (centre of energy %d/%d); "
+        "sigma <= 5 as at >= 300 counts %d/%d; FWHM within 5 %% %d/%d; trusted %d/%d\n",
+        jn, rows_run, jw, jn, cw, jn, js_ok, js_n, jf, jn, jt, jn);
   }
 
   // Figures: measured - inserted with error bars per row; sigma versus peak counts.
@@ -330,7 +374,8 @@ int main(int argc, char** argv) {
       for (double peak : peaks) {
         std::vector<double> v;
         for (const Row& r : rows)
-          if (r.target == tg && r.peak == peak && r.strength_in == st && r.found) v.push_back(r.sigma_as);
+          if (r.target == tg && r.peak == peak && r.strength_in == st && r.found)
+            v.push_back(r.sigma_as);
         if (v.empty()) continue;
         std::sort(v.begin(), v.end());
         s.x.push_back(peak);

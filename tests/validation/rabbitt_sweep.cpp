@@ -20,11 +20,11 @@
 #include <vector>
 
 #include "io/figures.h"
-#include "retrieval/classifier.h"
-#include "retrieval/error.h"
-#include "retrieval/rabbitt.h"
-#include "retrieval/train_burst.h"
-#include "retrieval/units.h"
+#include "retrieval/analysis/classifier.h"
+#include "retrieval/analysis/rabbitt.h"
+#include "retrieval/analysis/train_burst.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 

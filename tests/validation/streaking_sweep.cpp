@@ -11,7 +11,7 @@
 #include <vector>
 
 #include "io/figures.h"
-#include "retrieval/retrieve.h"
+#include "retrieval/analysis/retrieve.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 
@@ -39,8 +39,8 @@ int main(int argc, char** argv) {
   std::filesystem::create_directories(out + "/figures");
   std::vector<Row> rows;
   std::vector<std::string> engines = {"ptychographic", "projections"};
-  auto run = [&](const std::string& group, const std::string& label, const synthetic::ScanConfig& cfg,
-                 const std::vector<std::string>& engs) {
+  auto run = [&](const std::string& group, const std::string& label,
+                 const synthetic::ScanConfig& cfg, const std::vector<std::string>& engs) {
     const auto scan = synthetic::generate_scan(cfg, 5);
     for (const auto& e : engs) {
       RetrieveOptions o;
@@ -48,25 +48,36 @@ int main(int argc, char** argv) {
       o.bootstrap = 0;
       o.threads = 1;
       const RetrieveOutput r = retrieve(scan.trace, o);
-      Row row{group, label, r.result.engine, *scan.truth.xuv->fwhm_as, *r.result.xuv->fwhm_as,
-              *scan.truth.ir->peak_vector_potential_au, r.result.ir->peak_vector_potential_au.value_or(0),
-              scan.truth.xuv->gdd_as2.value_or(0), r.result.xuv->gdd_as2.value_or(0), r.reconstruction.trace_error,
-              r.reconstruction.noise_floor_trace_error, r.result.fit->seconds.value_or(0)};
+      Row row{group,
+              label,
+              r.result.engine,
+              *scan.truth.xuv->fwhm_as,
+              *r.result.xuv->fwhm_as,
+              *scan.truth.ir->peak_vector_potential_au,
+              r.result.ir->peak_vector_potential_au.value_or(0),
+              scan.truth.xuv->gdd_as2.value_or(0),
+              r.result.xuv->gdd_as2.value_or(0),
+              r.reconstruction.trace_error,
+              r.reconstruction.noise_floor_trace_error,
+              r.result.fit->seconds.value_or(0)};
       row.truth_ec = scan.truth.xuv->center_photon_energy_eV.value_or(0);
       row.ec = r.result.xuv->center_photon_energy_eV.value_or(0);
       row.truth_sat = scan.truth.verdict->satellite_intensity_ratio.value_or(0);
       row.sat = r.result.verdict->satellite_intensity_ratio.value_or(0);
-      std::fprintf(stderr, "%-10s %-22s %-14s FWHM %7.1f / %7.1f  A0 %.4f / %.4f  GDD %7.0f / %7.0f\n", group.c_str(),
-                   label.c_str(), row.engine.c_str(), row.fwhm, row.truth_fwhm, row.a0, row.truth_a0, row.gdd,
-                   row.truth_gdd);
+      std::fprintf(stderr,
+                   "%-10s %-22s %-14s FWHM %7.1f / %7.1f  A0 %.4f / %.4f  GDD %7.0f / %7.0f\n",
+                   group.c_str(), label.c_str(), row.engine.c_str(), row.fwhm, row.truth_fwhm,
+                   row.a0, row.truth_a0, row.gdd, row.truth_gdd);
       rows.push_back(row);
     }
   };
-  for (double d : quick ? std::vector<double>{80, 150, 300} : std::vector<double>{60, 80, 120, 150, 200, 300, 400}) {
+  for (double d : quick ? std::vector<double>{80, 150, 300}
+                        : std::vector<double>{60, 80, 120, 150, 200, 300, 400}) {
     auto c = base();
     c.xuv.gaussian.transform_limited_fwhm_as = d;
     if (d < 100) c.geometry.energy_eV = {30.0, 0.3, 300};
-    run("duration", std::to_string(int(d)) + " as TL", c, d < 100 ? std::vector<std::string>{"ptychographic", "auto"} : engines);
+    run("duration", std::to_string(int(d)) + " as TL", c,
+        d < 100 ? std::vector<std::string>{"ptychographic", "auto"} : engines);
   }
   for (double g : {-8000.0, -3000.0, 3000.0, 8000.0}) {
     auto c = base();
@@ -109,14 +120,20 @@ int main(int argc, char** argv) {
   }
 
   std::ostringstream md;
-  md << "| group | case | engine | FWHM truth (as) | FWHM (as) | error | A0 truth (a.u.) | A0 (a.u.) | error | "
-        "GDD truth (as^2) | GDD (as^2) | centre truth (eV) | centre (eV) | satellites truth | satellites | G / G_noise | time (s) |\n|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|\n";
+  md << "| group | case | engine | FWHM truth (as) | FWHM (as) | error | A0 truth (a.u.) | A0 "
+        "(a.u.) | error | "
+        "GDD truth (as^2) | GDD (as^2) | centre truth (eV) | centre (eV) | satellites truth | "
+        "satellites | G / G_noise | time (s) "
+        "|\n|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|\n";
   char buf[512];
   for (const Row& r : rows) {
-    std::snprintf(buf, sizeof buf, "| %s | %s | %s | %.1f | %.1f | %+.1f %% | %.4f | %.4f | %+.1f %% | %.0f | %.0f | %.2f | %.2f | %.3f | %.3f | %.2f | %.1f |\n",
+    std::snprintf(buf, sizeof buf,
+                  "| %s | %s | %s | %.1f | %.1f | %+.1f %% | %.4f | %.4f | %+.1f %% | %.0f | %.0f "
+                  "| %.2f | %.2f | %.3f | %.3f | %.2f | %.1f |\n",
                   r.group.c_str(), r.label.c_str(), r.engine.c_str(), r.truth_fwhm, r.fwhm,
-                  100 * (r.fwhm - r.truth_fwhm) / r.truth_fwhm, r.truth_a0, r.a0, 100 * (r.a0 - r.truth_a0) / r.truth_a0,
-                  r.truth_gdd, r.gdd, r.truth_ec, r.ec, r.truth_sat, r.sat, r.G / r.floor, r.seconds);
+                  100 * (r.fwhm - r.truth_fwhm) / r.truth_fwhm, r.truth_a0, r.a0,
+                  100 * (r.a0 - r.truth_a0) / r.truth_a0, r.truth_gdd, r.gdd, r.truth_ec, r.ec,
+                  r.truth_sat, r.sat, r.G / r.floor, r.seconds);
     md << buf;
   }
   std::ofstream(out + "/validation_streaking_table.md") << md.str();

@@ -1,0 +1,558 @@
+#include "retrieval/analysis/line_delays.h"
+
+#include <algorithm>
+#include <cmath>
+#include <sstream>
+
+#include <Eigen/Dense>
+
+#include "retrieval/analysis/quality.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/preprocess/preprocess.h"
+
+namespace sw {
+
+std::string LineDelayOptions::validate() const {
+  std::ostringstream s;
+  if (bootstrap < 2)
+    s << "bootstrap = " << bootstrap << ": must be >= 2";
+  else if (!(max_frequency_factor > 1))
+    s << "max_frequency_factor = " << max_frequency_factor << ": must be > 1";
+  else if (band_iterations < 1)
+    s << "band_iterations = " << band_iterations << ": must be >= 1";
+  else if (!(band_half_width_factor > 1))
+    s << "band_half_width_factor = " << band_half_width_factor << ": must be > 1";
+  else if (!(min_row_counts >= 1))
+    s << "min_row_counts = " << min_row_counts << ": must be >= 1";
+  else if (!(ion_charge > 0))
+    s << "ion_charge = " << ion_charge << ": must be > 0";
+  else
+    for (const std::string& n : names)
+      if (n.empty()) {
+        s << "names: an empty line name; expected names such as 2s, or none";
+        break;
+      }
+  return s.str();
+}
+
+double coulomb_laser_delay_au(double W, double T, double Z) {
+  if (!(W > 0) || !(T > 0)) return 0.0;
+  return Z / std::pow(2.0 * W, 1.5) * (2.0 - std::log(W * T));
+}
+
+namespace {
+
+std::string label_of(const LineEntry& l, const std::string& scan_gas) {
+  return (l.gas.empty() || l.gas == scan_gas) ? l.name : l.gas + " " + l.name;
+}
+
+double mean(const std::vector<double>& v) {
+  double s = 0;
+  for (double x : v) s += x;
+  return v.empty() ? 0.0 : s / static_cast<double>(v.size());
+}
+
+double sample_sd(const std::vector<double>& v) {
+  if (v.size() < 2) return 0.0;
+  const double m = mean(v);
+  double s = 0;
+  for (double x : v) s += (x - m) * (x - m);
+  return std::sqrt(s / static_cast<double>(v.size() - 1));
+}
+
+// Rows of one line: delay index, first moment, variance, counts.
+struct Rows {
+  std::vector<int> row;
+  std::vector<double> M, var;
+  double counts = 0;  // summed over every row (also the ones dropped)
+};
+
+}  // namespace
+
+LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std::vector<double>& W,
+                                            const std::vector<double>& tau,
+                                            const std::vector<double>& bg,
+                                            const std::vector<LineEntry>& lines, double omega,
+                                            const LineDelayOptions& o) {
+  LineDelayEstimate est;
+  const Eigen::Index nr = C.rows(), ne = C.cols();
+  const std::size_t K = lines.size();
+  if (K < 2 || nr < 8 || ne < 8 || static_cast<std::size_t>(ne) != W.size() ||
+      static_cast<std::size_t>(nr) != tau.size() || bg.size() != W.size()) {
+    est.why_not = "fewer than two lines, fewer than 8 rows or energy bins, or inconsistent axes";
+    return est;
+  }
+  // Bin edges (the axis may be non-uniform).
+  std::vector<double> edge(W.size() + 1);
+  for (std::size_t j = 1; j < W.size(); ++j) edge[j] = 0.5 * (W[j - 1] + W[j]);
+  edge[0] = W[0] - (edge[1] - W[0]);
+  edge[W.size()] = W.back() + (W.back() - edge[W.size() - 1]);
+
+  std::vector<double> c(K), p(K);
+  for (std::size_t k = 0; k < K; ++k) {
+    c[k] = units::eV_to_au(lines[k].kinetic_energy_eV.value_or(0.0));
+    p[k] = units::momentum_au(c[k]);
+  }
+  // Half distance to the nearest other line (field-free centres).
+  std::vector<double> half_gap(K, W.back() - W.front());
+  for (std::size_t k = 0; k < K; ++k)
+    for (std::size_t q = 0; q < K; ++q)
+      if (q != k) half_gap[k] = std::min(half_gap[k], 0.5 * std::abs(c[q] - c[k]));
+
+  // Overall centroid shift of each row (first guess of the lines' streaking).
+  std::vector<double> rowM(static_cast<std::size_t>(nr), 0.0);
+  {
+    double mm = 0, nn = 0;
+    for (Eigen::Index i = 0; i < nr; ++i) {
+      double s = 0, sw = 0;
+      for (Eigen::Index j = 0; j < ne; ++j) {
+        const double n = C(i, j) - bg[static_cast<std::size_t>(j)];
+        s += n;
+        sw += n * W[static_cast<std::size_t>(j)];
+      }
+      rowM[static_cast<std::size_t>(i)] = s > 0 ? sw / s : 0.0;
+      if (s > 0) {
+        mm += sw;
+        nn += s;
+      }
+    }
+    const double M0 = nn > 0 ? mm / nn : 0.0;
+    for (double& x : rowM) x -= M0;
+  }
+
+  // Net counts per unit energy of row i at energy y (linear between bin centres; 0 outside the
+  // axis), and the raw counts' density for the variance.
+  auto density = [&](Eigen::Index i, double y, double* raw) {
+    *raw = 0;
+    if (y <= W.front() || y >= W.back()) return 0.0;
+    const std::size_t j =
+        static_cast<std::size_t>(std::upper_bound(W.begin(), W.end(), y) - W.begin());
+    const double t = (y - W[j - 1]) / (W[j] - W[j - 1]);
+    const double w0 = edge[j] - edge[j - 1], w1 = edge[j + 1] - edge[j];
+    const double c0 = C(i, static_cast<Eigen::Index>(j - 1)),
+                 c1 = C(i, static_cast<Eigen::Index>(j));
+    *raw = (1 - t) * std::max(c0, 0.0) / w0 + t * std::max(c1, 0.0) / w1;
+    return (1 - t) * (c0 - bg[j - 1]) / w0 + t * (c1 - bg[j]) / w1;
+  };
+  // Moments of line k's band [lo, hi] in row i (fractional edge bins). The tail of every other
+  // line q inside the band is removed by the mirror image of q about its current centre x_q
+  // (its far side; common practice for peak deblending, as in retrieval/preprocess/lines.h),
+  // skipped where the mirror point is nearer a third line than q.
+  auto band = [&](Eigen::Index i, std::size_t k, const std::vector<double>& xc, double lo,
+                  double hi, double* N, double* M, double* var, double* rms) {
+    std::vector<double> net, raw, wj;
+    std::vector<std::size_t> js;
+    for (std::size_t j = 0; j < W.size(); ++j) {
+      const double a = std::max(lo, edge[j]), b = std::min(hi, edge[j + 1]);
+      if (b <= a) continue;
+      const double f = (b - a) / (edge[j + 1] - edge[j]);
+      double n = C(i, static_cast<Eigen::Index>(j)) - bg[j],
+             v = std::max(C(i, static_cast<Eigen::Index>(j)), 1.0);
+      for (std::size_t q = 0; q < xc.size(); ++q) {
+        if (q == k) continue;
+        const double y = 2.0 * xc[q] - W[j];
+        bool nearer_other = false;
+        for (std::size_t r2 = 0; r2 < xc.size(); ++r2)
+          if (r2 != q && std::abs(y - xc[r2]) < std::abs(y - xc[q])) nearer_other = true;
+        if (nearer_other) continue;
+        double rw = 0;
+        const double d = density(i, y, &rw);
+        n -= d * (edge[j + 1] - edge[j]);
+        v += rw * (edge[j + 1] - edge[j]);
+      }
+      js.push_back(j);
+      net.push_back(f * n);
+      raw.push_back(f * v);
+      wj.push_back(W[j]);
+    }
+    double s = 0, sw = 0;
+    for (std::size_t m = 0; m < net.size(); ++m) {
+      s += net[m];
+      sw += net[m] * wj[m];
+    }
+    *N = s;
+    if (!(s > 0)) return;
+    *M = sw / s;
+    double v = 0, r = 0;
+    for (std::size_t m = 0; m < net.size(); ++m) {
+      const double d = wj[m] - *M;
+      v += raw[m] * d * d;
+      r += net[m] * d * d;
+    }
+    *var = v / (s * s);
+    *rms = r > 0 ? std::sqrt(r / s) : 0.0;
+  };
+
+  // Step 1: per-row bands that follow each line.
+  std::vector<Rows> rows(K);
+  std::vector<double> h(half_gap);  // first pass: half way to the neighbours
+  std::vector<std::vector<double>> x(K, std::vector<double>(static_cast<std::size_t>(nr)));
+  for (int pass = 0; pass < 2; ++pass) {
+    for (std::size_t k = 0; k < K; ++k)
+      for (Eigen::Index i = 0; i < nr; ++i)
+        x[k][static_cast<std::size_t>(i)] =
+            c[k] + (p[k] / p[0]) * rowM[static_cast<std::size_t>(i)];
+    std::vector<std::vector<double>> rms(K);
+    std::vector<std::vector<double>> N(K, std::vector<double>(static_cast<std::size_t>(nr), 0.0)),
+        M(K, std::vector<double>(static_cast<std::size_t>(nr), 0.0)),
+        V(K, std::vector<double>(static_cast<std::size_t>(nr), 0.0));
+    for (int it = 0; it < o.band_iterations; ++it) {
+      for (Eigen::Index i = 0; i < nr; ++i) {
+        const std::size_t ii = static_cast<std::size_t>(i);
+        std::vector<double> xn(K), xc(K);
+        for (std::size_t k = 0; k < K; ++k) xc[k] = x[k][ii];
+        for (std::size_t k = 0; k < K; ++k) {
+          double lo = x[k][ii] - h[k], hi = x[k][ii] + h[k];
+          for (std::size_t q = 0; q < K; ++q) {
+            if (q == k) continue;
+            const double mid = 0.5 * (x[q][ii] + x[k][ii]);
+            if (x[q][ii] < x[k][ii])
+              lo = std::max(lo, mid);
+            else
+              hi = std::min(hi, mid);
+          }
+          double n = 0, m = x[k][ii], v = 0, r = 0;
+          if (hi > lo) band(i, k, xc, lo, hi, &n, &m, &v, &r);
+          N[k][ii] = n;
+          M[k][ii] = m;
+          V[k][ii] = v;
+          xn[k] = n > 0 && m > lo && m < hi ? m : x[k][ii];
+          if (it == o.band_iterations - 1 && n >= o.min_row_counts && r > 0) rms[k].push_back(r);
+        }
+        for (std::size_t k = 0; k < K; ++k) x[k][ii] = xn[k];
+      }
+    }
+    if (pass == 0) {
+      // Second pass: bands of band_half_width_factor x the line's typical rms width in a row.
+      for (std::size_t k = 0; k < K; ++k) {
+        if (rms[k].empty()) continue;
+        std::nth_element(rms[k].begin(), rms[k].begin() + static_cast<long>(rms[k].size() / 2),
+                         rms[k].end());
+        h[k] = std::min(half_gap[k] * 2.0, o.band_half_width_factor * rms[k][rms[k].size() / 2]);
+      }
+      continue;
+    }
+    for (std::size_t k = 0; k < K; ++k) {
+      rows[k] = Rows{};
+      for (Eigen::Index i = 0; i < nr; ++i) {
+        const std::size_t ii = static_cast<std::size_t>(i);
+        rows[k].counts += std::max(N[k][ii], 0.0);
+        if (N[k][ii] >= o.min_row_counts && V[k][ii] > 0 && std::isfinite(M[k][ii])) {
+          rows[k].row.push_back(static_cast<int>(i));
+          rows[k].M.push_back(M[k][ii]);
+          rows[k].var.push_back(V[k][ii]);
+        }
+      }
+    }
+  }
+  for (std::size_t k = 0; k < K; ++k)
+    if (rows[k].row.size() < 8) {
+      est.why_not = "line " + lines[k].name + " has " + std::to_string(rows[k].row.size()) +
+                    " delay rows with at least " + std::to_string(o.min_row_counts) +
+                    " counts in its band; need 8";
+      return est;
+    }
+
+  // Step 2: joint fit. Basis of A_eff on a period 1.5 x the delay span.
+  const double t_lo = *std::min_element(tau.begin(), tau.end()),
+               t_hi = *std::max_element(tau.begin(), tau.end());
+  const double tc = 0.5 * (t_lo + t_hi);
+  const double L = 1.5 * std::max(t_hi - t_lo, units::period_au(omega));
+  const int J =
+      std::max(2, static_cast<int>(std::floor(o.max_frequency_factor * omega * L / units::kTwoPi)));
+  const int nA = 2 * J;
+  const int iA = 0, ia = nA, ig = nA + static_cast<int>(K),
+            id = nA + static_cast<int>(K) + static_cast<int>(K) - 1;
+  const int np = nA + static_cast<int>(K) + 2 * (static_cast<int>(K) - 1);
+  auto A_of = [&](const Eigen::VectorXd& P, double u, double* dA) {
+    double A = 0, d = 0;
+    for (int m = 1; m <= J; ++m) {
+      const double w = units::kTwoPi * m / L;
+      const double cs = std::cos(w * (u - tc)), sn = std::sin(w * (u - tc));
+      A += P[iA + 2 * (m - 1)] * cs + P[iA + 2 * (m - 1) + 1] * sn;
+      d += w * (-P[iA + 2 * (m - 1)] * sn + P[iA + 2 * (m - 1) + 1] * cs);
+    }
+    if (dA) *dA = d;
+    return A;
+  };
+  std::size_t nd = 0;
+  for (const Rows& r : rows) nd += r.row.size();
+  auto residuals = [&](const Eigen::VectorXd& P, Eigen::VectorXd* r, Eigen::MatrixXd* Jm) {
+    r->resize(static_cast<Eigen::Index>(nd));
+    if (Jm) Jm->setZero(static_cast<Eigen::Index>(nd), np);
+    Eigen::Index q = 0;
+    for (std::size_t k = 0; k < K; ++k) {
+      const double g = k == 0 ? 1.0 : P[ig + static_cast<int>(k) - 1];
+      const double dl = k == 0 ? 0.0 : P[id + static_cast<int>(k) - 1];
+      for (std::size_t n = 0; n < rows[k].row.size(); ++n, ++q) {
+        const double u = tau[static_cast<std::size_t>(rows[k].row[n])] + dl;
+        double dA = 0;
+        const double A = A_of(P, u, &dA);
+        const double f = -p[k] * A + 0.5 * A * A;
+        const double s = std::sqrt(rows[k].var[n]);
+        (*r)[q] = (rows[k].M[n] - (P[ia + static_cast<int>(k)] + g * f)) / s;
+        if (!Jm) continue;
+        const double dfdA = -p[k] + A;
+        for (int m = 1; m <= J; ++m) {
+          const double w = units::kTwoPi * m / L;
+          (*Jm)(q, iA + 2 * (m - 1)) = -g * dfdA * std::cos(w * (u - tc)) / s;
+          (*Jm)(q, iA + 2 * (m - 1) + 1) = -g * dfdA * std::sin(w * (u - tc)) / s;
+        }
+        (*Jm)(q, ia + static_cast<int>(k)) = -1.0 / s;
+        if (k > 0) {
+          (*Jm)(q, ig + static_cast<int>(k) - 1) = -f / s;
+          (*Jm)(q, id + static_cast<int>(k) - 1) = -g * dfdA * dA / s;
+        }
+      }
+    }
+  };
+  // Start: a_k the weighted mean moments, g = 1, delta = 0, A_eff from the reference alone.
+  Eigen::VectorXd P = Eigen::VectorXd::Zero(np);
+  for (std::size_t k = 0; k < K; ++k) {
+    double s = 0, sw = 0;
+    for (std::size_t n = 0; n < rows[k].M.size(); ++n) {
+      s += 1.0 / rows[k].var[n];
+      sw += rows[k].M[n] / rows[k].var[n];
+    }
+    P[ia + static_cast<int>(k)] = sw / s;
+    if (k > 0) P[ig + static_cast<int>(k) - 1] = 1.0;
+  }
+  {
+    const Rows& r = rows[0];
+    Eigen::MatrixXd B(static_cast<Eigen::Index>(r.row.size()), nA);
+    Eigen::VectorXd y(static_cast<Eigen::Index>(r.row.size()));
+    for (std::size_t n = 0; n < r.row.size(); ++n) {
+      const double u = tau[static_cast<std::size_t>(r.row[n])];
+      const double wt = p[0] / std::sqrt(r.var[n]);
+      for (int m = 1; m <= J; ++m) {
+        const double w = units::kTwoPi * m / L;
+        B(static_cast<Eigen::Index>(n), 2 * (m - 1)) = wt * std::cos(w * (u - tc));
+        B(static_cast<Eigen::Index>(n), 2 * (m - 1) + 1) = wt * std::sin(w * (u - tc));
+      }
+      y[static_cast<Eigen::Index>(n)] = wt * (-(r.M[n] - P[ia]) / p[0]);
+    }
+    Eigen::MatrixXd N = B.transpose().lazyProduct(B);
+    N.diagonal().array() += 1e-9 * N.diagonal().maxCoeff();
+    P.segment(iA, nA) = N.ldlt().solve(B.transpose() * y);
+  }
+  Eigen::VectorXd r;
+  Eigen::MatrixXd Jm;
+  residuals(P, &r, &Jm);
+  double chi2 = r.squaredNorm();
+  double mu = 1e-3;
+  for (int it = 0; it < 200; ++it) {
+    const Eigen::MatrixXd H = Jm.transpose().lazyProduct(Jm);  // small: no threaded GEMM
+    const Eigen::VectorXd gvec = Jm.transpose() * r;
+    bool accepted = false;
+    for (int tries = 0; tries < 12 && !accepted; ++tries) {
+      Eigen::MatrixXd Hd = H;
+      for (int a = 0; a < np; ++a) Hd(a, a) += mu * std::max(H(a, a), 1e-12);
+      const Eigen::VectorXd step = Hd.ldlt().solve(-gvec);
+      const Eigen::VectorXd Pn = P + step;
+      Eigen::VectorXd rn;
+      residuals(Pn, &rn, nullptr);
+      const double c2 = rn.squaredNorm();
+      if (std::isfinite(c2) && c2 < chi2) {
+        const double gain = chi2 - c2;
+        P = Pn;
+        residuals(P, &r, &Jm);
+        chi2 = c2;
+        mu = std::max(mu * 0.3, 1e-12);
+        accepted = true;
+        if (gain < 1e-9 * std::max(chi2, 1.0)) it = 1000;  // converged
+      } else {
+        mu *= 10;
+      }
+    }
+    if (!accepted) break;
+  }
+  const int dof = static_cast<int>(nd) - np;
+  est.reduced_chi2 = dof > 0 ? chi2 / dof : 0.0;
+  const Eigen::MatrixXd H = Jm.transpose().lazyProduct(Jm);  // small: no threaded GEMM
+  const Eigen::MatrixXd Cov = H.completeOrthogonalDecomposition().pseudoInverse();
+  const double infl = std::max(1.0, est.reduced_chi2);
+  est.delay_as.assign(K, 0.0);
+  est.delay_cov_sigma_as.assign(K, 0.0);
+  est.strength.assign(K, 1.0);
+  for (std::size_t k = 1; k < K; ++k) {
+    const int a = id + static_cast<int>(k) - 1;
+    est.delay_as[k] = units::au_to_as(P[a]);
+    est.delay_cov_sigma_as[k] = units::au_to_as(std::sqrt(std::max(Cov(a, a), 0.0) * infl));
+    est.strength[k] = rows[0].counts > 0 ? rows[k].counts / rows[0].counts : 0.0;
+  }
+  for (std::size_t k = 0; k < K; ++k) {
+    LineCurve cv;
+    cv.name = lines[k].name;
+    cv.shift_as = est.delay_as[k];
+    cv.field_free_eV = units::au_to_eV(P[ia + static_cast<int>(k)]);
+    cv.gain = k == 0 ? 1.0 : P[ig + static_cast<int>(k) - 1];
+    const double dl = k == 0 ? 0.0 : P[id + static_cast<int>(k) - 1];
+    for (std::size_t n = 0; n < rows[k].row.size(); ++n) {
+      const double t = tau[static_cast<std::size_t>(rows[k].row[n])];
+      const double A = A_of(P, t + dl, nullptr);
+      cv.delay_fs.push_back(units::au_to_fs(t));
+      cv.centroid_eV.push_back(units::au_to_eV(rows[k].M[n]));
+      cv.sigma_eV.push_back(units::au_to_eV(std::sqrt(rows[k].var[n])));
+      cv.model_eV.push_back(
+          units::au_to_eV(P[ia + static_cast<int>(k)] + cv.gain * (-p[k] * A + 0.5 * A * A)));
+    }
+    est.curves.push_back(std::move(cv));
+  }
+  est.ok = std::isfinite(chi2);
+  if (!est.ok) est.why_not = "the fit of the first moments did not give a finite chi^2";
+  return est;
+}
+
+void check_line_names(const std::vector<LineEntry>& lines, const LineDelayOptions& o,
+                      const std::string& gas) {
+  if (o.names.size() == 1 && o.names[0] == "none") return;
+  for (const std::string& n : o.names) {
+    bool known = false;
+    for (const LineEntry& l : lines)
+      known = known || n == l.name || n == label_of(l, gas) || n == l.gas + " " + l.name;
+    if (!known) {
+      std::string list;
+      for (const LineEntry& l : lines) list += (list.empty() ? "" : ", ") + label_of(l, gas);
+      throw usage_error("--lines " + n + ": not a line of this scan; its lines are " +
+                        (list.empty() ? std::string("(none found)") : list) + ", or none");
+    }
+  }
+}
+
+LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEntry>& lines,
+                                    const std::vector<double>& bg, const LineDelayOptions& o) {
+  if (const std::string e = o.validate(); !e.empty()) throw usage_error("line delays: " + e);
+  LineDelayResult res;
+  res.lines = lines;
+  if (o.names.size() == 1 && o.names[0] == "none") {
+    res.warnings.clear();
+    return res;
+  }
+  const std::string gas = trace.meta.gas;
+  check_line_names(lines, o, gas);
+  int ref = -1;
+  for (std::size_t k = 0; k < lines.size(); ++k)
+    if (lines[k].reference) ref = static_cast<int>(k);
+  if (ref < 0 || trace.energy_au.size() < 8) return res;
+  const double Wlo = units::au_to_eV(trace.energy_au.front()),
+               Whi = units::au_to_eV(trace.energy_au.back());
+  std::vector<int> use{ref};
+  for (std::size_t k = 0; k < lines.size(); ++k) {
+    if (static_cast<int>(k) == ref) continue;
+    const LineEntry& l = lines[k];
+    if (!o.names.empty() && std::find_if(o.names.begin(), o.names.end(), [&](const std::string& n) {
+                              return n == l.name || n == label_of(l, gas) ||
+                                     n == l.gas + " " + l.name;
+                            }) == o.names.end())
+      continue;
+    if (!l.kinetic_energy_eV || *l.kinetic_energy_eV <= Wlo || *l.kinetic_energy_eV >= Whi) {
+      res.warnings.push_back("line " + label_of(l, gas) +
+                             ": its centre lies outside the energy axis; no delay");
+      continue;
+    }
+    if (!l.relative_strength || !(*l.relative_strength > 0)) {
+      res.warnings.push_back("line " + label_of(l, gas) +
+                             ": not measurable beside the reference line; no delay");
+      continue;
+    }
+    // A declared line that was not seen (lines.cpp warns) carries no significant counts.
+    if (l.relative_strength_sigma && *l.relative_strength < 3.0 * *l.relative_strength_sigma) {
+      res.warnings.push_back("line " + label_of(l, gas) + ": strength below 3 sigma; no delay");
+      continue;
+    }
+    use.push_back(static_cast<int>(k));
+  }
+  if (use.size() < 2) return res;
+  if (!(trace.meta.ir_wavelength_nm > 0)) {
+    res.warnings.push_back("line delays: no IR wavelength in the sidecar; no delays");
+    return res;
+  }
+  const double omega = units::wavelength_nm_to_omega_au(trace.meta.ir_wavelength_nm);
+  std::vector<LineEntry> sel;
+  for (int k : use) sel.push_back(lines[static_cast<std::size_t>(k)]);
+  const LineDelayEstimate e0 =
+      centre_of_energy_estimate(trace.counts, trace.energy_au, trace.delay_au, bg, sel, omega, o);
+  if (!e0.ok) {
+    res.warnings.push_back("line delays (centre of energy) not measured: " + e0.why_not);
+    return res;
+  }
+  // Bootstrap replicas.
+  const std::size_t K = sel.size();
+  std::vector<std::vector<double>> bd(K), bs(K);
+  for (int b = 0; b < o.bootstrap; ++b) {
+    const Trace rep = poisson_resample(
+        trace, o.seed * 2654435761ULL + 17ULL * static_cast<unsigned long long>(b) + 5);
+    const LineDelayEstimate e =
+        centre_of_energy_estimate(rep.counts, rep.energy_au, rep.delay_au, bg, sel, omega, o);
+    if (!e.ok) continue;
+    for (std::size_t k = 1; k < K; ++k) {
+      bd[k].push_back(e.delay_as[k]);
+      bs[k].push_back(e.strength[k]);
+    }
+    ++res.replicas_used;
+  }
+  const double tB = res.replicas_used >= 2 ? student_one_sigma_factor(res.replicas_used) : 0.0;
+  if (res.replicas_used < 2)
+    res.warnings.push_back(
+        "line delays: fewer than 2 bootstrap replicas could be analysed; sigma from the fit alone");
+  const double T = units::period_au(omega);
+  const double Wref = units::eV_to_au(e0.curves[0].field_free_eV);
+  const double clc_ref =
+      o.coulomb_laser_correction ? coulomb_laser_delay_au(Wref, T, o.ion_charge) : 0.0;
+  res.curves = e0.curves;
+  res.reduced_chi2 = e0.reduced_chi2;
+  for (std::size_t k = 0; k < K; ++k) {
+    const std::size_t li = static_cast<std::size_t>(use[k]);
+    LineEntry& l = res.lines[li];
+    l.analysed = true;
+    const double Wk = units::eV_to_au(e0.curves[k].field_free_eV);
+    const double clc =
+        o.coulomb_laser_correction ? coulomb_laser_delay_au(Wk, T, o.ion_charge) : 0.0;
+    res.analysed.push_back(static_cast<int>(li));
+    res.clc_delay_as.push_back(units::au_to_as(clc));
+    res.clc_correction_as.push_back(units::au_to_as(clc - clc_ref));
+    res.corrected_delay_as.push_back(e0.delay_as[k] - units::au_to_as(clc - clc_ref));
+    res.delay_cov_sigma_as.push_back(e0.delay_cov_sigma_as[k]);
+    l.delay_method = "centre of energy";
+    if (o.coulomb_laser_correction) l.clc_delay_as = units::au_to_as(clc);
+    if (k == 0) continue;
+    const double sboot = tB * sample_sd(bd[k]);
+    l.relative_delay_as = e0.delay_as[k];
+    l.relative_delay_as_sigma = std::max(sboot, e0.delay_cov_sigma_as[k]);
+    l.relative_strength = e0.strength[k];
+    l.relative_strength_sigma = tB * sample_sd(bs[k]);
+    if (o.coulomb_laser_correction) {
+      l.clc_correction_as = res.clc_correction_as.back();
+      l.relative_delay_as_corrected = res.corrected_delay_as.back();
+    }
+    const std::string key = "line_delays." + (l.gas.empty() ? gas : l.gas) + "_" + l.name;
+    res.extra.push_back({key + ".delay_as_sigma_bootstrap", sboot});
+    res.extra.push_back({key + ".delay_as_sigma_fit", e0.delay_cov_sigma_as[k]});
+    res.extra.push_back({key + ".delay_as_bootstrap_mean", mean(bd[k])});
+    res.extra.push_back({key + ".gain", e0.curves[k].gain});
+    res.extra.push_back({key + ".rows_used", static_cast<long long>(e0.curves[k].delay_fs.size())});
+  }
+  res.extra.push_back(
+      {"line_delays.method", std::string("centre of energy (joint first-moment fit)")});
+  res.extra.push_back({"line_delays.reduced_chi2", e0.reduced_chi2});
+  res.extra.push_back(
+      {"line_delays.bootstrap_replicas", static_cast<long long>(res.replicas_used)});
+  res.extra.push_back(
+      {"line_delays.coulomb_laser_formula",
+       std::string(o.coulomb_laser_correction ? "Z/(2W)^1.5 [2 - ln(W T_IR)], Nagele et al. 2011"
+                                              : "off")});
+  if (e0.reduced_chi2 > 3.0) {
+    std::ostringstream w;
+    w.precision(3);
+    w << "line delays: the joint first-moment fit has reduced chi^2 " << e0.reduced_chi2
+      << " (the common-curve model does not describe the moments to their Poisson noise); the "
+         "delay sigma is "
+         "scaled by it";
+    res.warnings.push_back(w.str());
+  }
+  res.done = true;
+  return res;
+}
+
+}  // namespace sw

@@ -1,0 +1,691 @@
+#include "retrieval/analysis/rabbitt.h"
+
+#include <algorithm>
+#include <cmath>
+#include <complex>
+#include <sstream>
+
+#include <Eigen/Dense>
+
+#include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
+#include "retrieval/core/phase_unwrap.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/gas.h"
+
+namespace sw {
+
+namespace {
+
+std::string bad(const char* field, double value, const char* constraint) {
+  return std::string(field) + " = " + format_g(value) + " is invalid: it must be " + constraint +
+         ".";
+}
+
+double median(std::vector<double> v) {
+  if (v.empty()) return 0.0;
+  std::nth_element(v.begin(), v.begin() + v.size() / 2, v.end());
+  return v[v.size() / 2];
+}
+
+// Delay weights: trapezoid half-intervals normalised to sum N (1 each for a uniform axis).
+std::vector<double> delay_weights(const std::vector<double>& tau) {
+  const std::size_t n = tau.size();
+  std::vector<double> w(n, 1.0);
+  if (n < 2) return w;
+  double sum = 0.0;
+  for (std::size_t i = 0; i < n; ++i) {
+    const double lo = i == 0 ? tau[0] : 0.5 * (tau[i - 1] + tau[i]);
+    const double hi = i + 1 == n ? tau[n - 1] : 0.5 * (tau[i] + tau[i + 1]);
+    w[i] = hi - lo;
+    sum += w[i];
+  }
+  for (double& x : w) x *= static_cast<double>(n) / sum;
+  return w;
+}
+
+struct LineFit {
+  double intercept = 0, slope = 0, intercept_sigma = 0, slope_sigma = 0, reduced_chi2 = 0;
+  bool scaled = false;
+};
+
+// Weighted fit y = a + b (x - x0), weights 1/sigma^2; sigmas scaled by sqrt(chi2_red) if > 1.
+LineFit weighted_line(const std::vector<double>& x, const std::vector<double>& y,
+                      const std::vector<double>& sigma, double x0) {
+  double S = 0, Sx = 0, Sxx = 0, Sy = 0, Sxy = 0;
+  for (std::size_t i = 0; i < x.size(); ++i) {
+    const double w = 1.0 / (sigma[i] * sigma[i]), u = x[i] - x0;
+    S += w;
+    Sx += w * u;
+    Sxx += w * u * u;
+    Sy += w * y[i];
+    Sxy += w * u * y[i];
+  }
+  LineFit f;
+  const double det = S * Sxx - Sx * Sx;
+  if (!(det > 0.0)) {
+    f.intercept = Sy / S;
+    f.intercept_sigma = std::sqrt(1.0 / S);
+    return f;
+  }
+  f.slope = (S * Sxy - Sx * Sy) / det;
+  f.intercept = (Sxx * Sy - Sx * Sxy) / det;
+  f.slope_sigma = std::sqrt(S / det);
+  f.intercept_sigma = std::sqrt(Sxx / det);
+  if (x.size() > 2) {
+    double chi2 = 0;
+    for (std::size_t i = 0; i < x.size(); ++i) {
+      const double r = (y[i] - f.intercept - f.slope * (x[i] - x0)) / sigma[i];
+      chi2 += r * r;
+    }
+    f.reduced_chi2 = chi2 / static_cast<double>(x.size() - 2);
+    if (f.reduced_chi2 > 1.0) {
+      const double s = std::sqrt(f.reduced_chi2);
+      f.slope_sigma *= s;
+      f.intercept_sigma *= s;
+      f.scaled = true;
+    }
+  }
+  return f;
+}
+
+double wrap_pi(double a) { return a - units::kTwoPi * std::round(a / units::kTwoPi); }
+
+// Golden-section maximisation of f on [a, b].
+template <class F>
+double golden_max(F f, double a, double b, int iterations) {
+  const double r = 0.5 * (std::sqrt(5.0) - 1.0);
+  double c = b - r * (b - a), d = a + r * (b - a);
+  double fc = f(c), fd = f(d);
+  for (int k = 0; k < iterations; ++k) {
+    if (fc > fd) {
+      b = d;
+      d = c;
+      fd = fc;
+      c = b - r * (b - a);
+      fc = f(c);
+    } else {
+      a = c;
+      c = d;
+      fc = fd;
+      d = a + r * (b - a);
+      fd = f(d);
+    }
+  }
+  return 0.5 * (a + b);
+}
+
+}  // namespace
+
+std::string RabbittOptions::validate() const {
+  if (!(ir_wavelength_nm >= 0.0) || !std::isfinite(ir_wavelength_nm))
+    return bad("ir_wavelength_nm", ir_wavelength_nm, "0 (from the trace) or a wavelength > 0 nm");
+  if (!(window_half_width_fraction > 0.0 && window_half_width_fraction <= 0.5))
+    return bad("window_half_width_fraction", window_half_width_fraction,
+               "in (0, 0.5] (units of hbar omega)");
+  if (!(min_peak_significance > 0.0))
+    return bad("min_peak_significance", min_peak_significance, "> 0");
+  if (!(min_modulation_significance > 0.0))
+    return bad("min_modulation_significance", min_modulation_significance, "> 0");
+  if (!(energy_resolution_eV >= 0.0) || !std::isfinite(energy_resolution_eV))
+    return bad("energy_resolution_eV", energy_resolution_eV, "0 (automatic) or > 0 eV");
+  if (!(frequency_search_fraction > 0.0 && frequency_search_fraction < 0.5))
+    return bad("frequency_search_fraction", frequency_search_fraction, "in (0, 0.5)");
+  if (reweight_passes < 0 || reweight_passes > 10)
+    return bad("reweight_passes", reweight_passes, "in 0..10");
+  if (calibration_sidebands < 1)
+    return bad("calibration_sidebands", calibration_sidebands, "at least 1");
+  if (!(min_comb_contrast >= 0.0 && min_comb_contrast < 2.0))
+    return bad("min_comb_contrast", min_comb_contrast, "in [0, 2)");
+  if (!(calibration_warn_fraction >= 0.0))
+    return bad("calibration_warn_fraction", calibration_warn_fraction, ">= 0");
+  const std::string a = atomic.validate();
+  if (!a.empty()) return "atomic." + a;
+  return {};
+}
+
+CosineFit fit_cosine(const std::vector<double>& tau, const std::vector<double>& S, double Omega,
+                     int reweight_passes) {
+  if (tau.size() != S.size())
+    throw usage_error("fit_cosine: " + std::to_string(tau.size()) + " delays but " +
+                      std::to_string(S.size()) + " signal values.");
+  const std::size_t n = tau.size();
+  if (n < 4)
+    throw usage_error("fit_cosine: " + std::to_string(n) +
+                      " points are too few for a 3-parameter fit (need >= 4).");
+  if (reweight_passes < 0)
+    throw usage_error("fit_cosine: reweight_passes = " + std::to_string(reweight_passes) +
+                      " is invalid: it must be >= 0.");
+  std::vector<double> cs(n), sn(n), wt(n);
+  for (std::size_t i = 0; i < n; ++i) {
+    cs[i] = std::cos(Omega * tau[i]);
+    sn[i] = std::sin(Omega * tau[i]);
+    wt[i] = 1.0 / std::max(S[i], 1.0);
+  }
+  Eigen::Matrix3d C;
+  Eigen::Vector3d c;
+  for (int pass = 0; pass <= reweight_passes; ++pass) {
+    Eigen::Matrix3d N = Eigen::Matrix3d::Zero();
+    Eigen::Vector3d b = Eigen::Vector3d::Zero();
+    for (std::size_t i = 0; i < n; ++i) {
+      const Eigen::Vector3d x(1.0, cs[i], sn[i]);
+      N += wt[i] * x * x.transpose();
+      b += wt[i] * S[i] * x;
+    }
+    C = N.inverse();
+    c = C * b;
+    if (pass < reweight_passes)
+      for (std::size_t i = 0; i < n; ++i)
+        wt[i] = 1.0 / std::max(c(0) + c(1) * cs[i] + c(2) * sn[i], 1.0);
+  }
+  CosineFit f;
+  f.angular_frequency_au = Omega;
+  f.points = static_cast<int>(n);
+  double sw = 0, swy = 0;
+  for (std::size_t i = 0; i < n; ++i) {
+    sw += wt[i];
+    swy += wt[i] * S[i];
+  }
+  const double mean0 = swy / sw;
+  double chi2 = 0, chi2_0 = 0;
+  for (std::size_t i = 0; i < n; ++i) {
+    const double model = c(0) + c(1) * cs[i] + c(2) * sn[i];
+    chi2 += wt[i] * (S[i] - model) * (S[i] - model);
+    chi2_0 += wt[i] * (S[i] - mean0) * (S[i] - mean0);
+  }
+  f.chi2 = chi2;
+  f.explained_chi2 = std::max(chi2_0 - chi2, 0.0);
+  f.reduced_chi2 = chi2 / static_cast<double>(n - 3);
+  double scale = 1.0;
+  if (f.reduced_chi2 > 1.0) {
+    scale = f.reduced_chi2;
+    f.covariance_scaled = true;
+  }
+  const Eigen::Matrix3d Cs = scale * C;
+  f.mean = c(0);
+  f.mean_sigma = std::sqrt(std::max(Cs(0, 0), 0.0));
+  const double B = std::hypot(c(1), c(2));
+  f.amplitude = B;
+  f.phase_rad = std::atan2(-c(2), c(1));
+  if (B > 0.0) {
+    // dB/dc = (c1, c2)/B; dphi/dc = (c2, -c1)/B^2.
+    const Eigen::Vector2d jb(c(1) / B, c(2) / B), jp(c(2) / (B * B), -c(1) / (B * B));
+    const Eigen::Matrix2d C2 = Cs.block<2, 2>(1, 1);
+    f.amplitude_sigma = std::sqrt(std::max(jb.dot(C2 * jb), 0.0));
+    f.phase_rad_sigma = std::sqrt(std::max(jp.dot(C2 * jp), 0.0));
+  } else {
+    f.amplitude_sigma = std::sqrt(std::max(0.5 * (Cs(1, 1) + Cs(2, 2)), 0.0));
+    f.phase_rad_sigma = units::kPi;
+  }
+  f.modulation_depth = f.mean > 0.0 ? B / f.mean : 0.0;
+  return f;
+}
+
+std::vector<double> delay_integrated_spectrum(const Trace& t) {
+  const std::vector<double> w = delay_weights(t.delay_au);
+  std::vector<double> s(t.num_energies(), 0.0);
+  for (std::size_t i = 0; i < t.num_delays(); ++i)
+    for (std::size_t j = 0; j < t.num_energies(); ++j)
+      s[j] += w[i] * t.counts(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
+  return s;
+}
+
+RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
+  {
+    const std::string m = opt.validate();
+    if (!m.empty()) throw usage_error("rabbitt options: " + m);
+  }
+  const std::string where = trace.meta.source.empty() ? "trace" : trace.meta.source;
+  trace.validate(where);
+  RabbittAnalysis out;
+
+  // --- target and driver -----------------------------------------------------------------
+  const std::string gas_key = opt.gas.empty() ? trace.meta.gas : opt.gas;
+  if (gas_key.empty())
+    throw input_error(where +
+                      ": field 'gas' is missing; the RABBITT analysis needs the target "
+                      "gas (its ionization energy places the harmonics).");
+  const Gas& gas = find_gas(gas_key);
+  const double lambda =
+      opt.ir_wavelength_nm > 0 ? opt.ir_wavelength_nm : trace.meta.ir_wavelength_nm;
+  if (!(lambda > 0.0))
+    throw input_error(where +
+                      ": field 'ir_wavelength_nm' is missing or not > 0; the RABBITT "
+                      "analysis needs the IR wavelength (it sets the 2 omega frequency).");
+  const double w = units::wavelength_nm_to_omega_au(lambda);
+  const double ip = units::eV_to_au(gas.ionization_energy_eV);
+  const double T = units::period_au(w);
+  out.gas = gas.symbol;
+  out.ionization_energy_eV = gas.ionization_energy_eV;
+  out.ir_wavelength_nm = lambda;
+  out.ir_photon_energy_eV = units::au_to_eV(w);
+
+  const std::size_t nd = trace.num_delays(), ne = trace.num_energies();
+  if (nd < 5)
+    throw input_error(where + ": the delay axis has " + std::to_string(nd) +
+                      " delays; a sideband fit needs at least 5.");
+  const std::vector<double>& W = trace.energy_au;
+  const std::vector<double>& tau = trace.delay_au;
+  out.energy_eV.resize(ne);
+  for (std::size_t j = 0; j < ne; ++j) out.energy_eV[j] = units::au_to_eV(W[j]);
+  out.delay_fs.resize(nd);
+  for (std::size_t i = 0; i < nd; ++i) out.delay_fs[i] = units::au_to_fs(tau[i]);
+  const double span = tau.back() - tau.front();
+  if (span < 0.5 * T)
+    out.warnings.push_back(
+        "the delay scan (" + format_g(units::au_to_fs(span)) +
+        " fs) covers less than one sideband period T/2 = " + format_g(units::au_to_fs(0.5 * T)) +
+        " fs; phases are poorly constrained");
+
+  const double bg = trace.meta.background.value_or(0.0);
+  const int rw = opt.reweight_passes;
+  const int parity = opt.odd_harmonics ? 1 : 0;  // harmonic orders q with q % 2 == parity
+  auto is_harmonic = [&](int q) { return ((q % 2) + 2) % 2 == parity; };
+  auto predicted = [&](int q) { return q * w - ip; };
+
+  // --- delay-integrated spectrum and coarse offset ----------------------------------------
+  out.integrated_spectrum = delay_integrated_spectrum(trace);
+  const std::vector<double>& s = out.integrated_spectrum;
+  std::vector<double> dW(ne);
+  for (std::size_t j = 0; j < ne; ++j) dW[j] = j + 1 < ne ? W[j + 1] - W[j] : W[j] - W[j - 1];
+  const double bin_eV = units::au_to_eV(median(dW));
+  std::complex<double> F = 0.0;
+  double total = 0.0;
+  for (std::size_t j = 0; j < ne; ++j) {
+    F += s[j] * std::polar(1.0, -units::kPi * (W[j] + ip) / w);
+    total += s[j];
+  }
+  if (!(total > 0.0)) throw input_error(where + ": the trace holds no counts.");
+  F *= std::polar(1.0, units::kPi * parity);
+  const double comb_contrast = 2.0 * std::abs(F) / total;
+  if (comb_contrast < opt.min_comb_contrast) {
+    std::ostringstream os;
+    os << "the delay-integrated spectrum shows no harmonic comb at 2 hbar omega = "
+       << 2.0 * out.ir_photon_energy_eV << " eV (contrast " << comb_contrast << " < "
+       << opt.min_comb_contrast << ")";
+    if (opt.require_comb)
+      throw input_error(where + ": " + os.str() +
+                        "; this is not a RABBITT scan of a pulse train (check 'kind', the IR "
+                        "wavelength and the energy axis).");
+    out.warnings.push_back(os.str() + "; the RABBITT results are probably meaningless");
+  }
+  const double coarse = comb_contrast > 0.02 ? -(w / units::kPi) * std::arg(F) : 0.0;
+  out.alignment.coarse_offset_eV = units::au_to_eV(coarse);
+
+  // --- peaks ------------------------------------------------------------------------------
+  const int q_lo = static_cast<int>(std::ceil((W.front() + ip - coarse) / w - 0.5));
+  const int q_hi = static_cast<int>(std::floor((W.back() + ip - coarse) / w + 0.5));
+  for (int q = std::max(q_lo, 1); q <= q_hi; ++q) {
+    if (predicted(q) <= 0.0) continue;
+    const double c = predicted(q) + coarse;
+    std::vector<std::size_t> idx;
+    for (std::size_t j = 0; j < ne; ++j)
+      if (std::abs(W[j] - c) <= 0.5 * w) idx.push_back(j);
+    if (idx.size() < 3) continue;
+    if (W[idx.front()] > c - 0.4 * w || W[idx.back()] < c + 0.4 * w) continue;  // truncated
+    // Baseline: minimum of a 3-bin running mean inside the window.
+    double base = 1e300;
+    for (std::size_t k = 1; k + 1 < idx.size(); ++k)
+      base = std::min(base, (s[idx[k - 1]] + s[idx[k]] + s[idx[k + 1]]) / 3.0);
+    double area = 0, m1 = 0, sum = 0;
+    for (std::size_t j : idx) {
+      area += s[j] - base;
+      m1 += (s[j] - base) * W[j];
+      sum += s[j];
+    }
+    SpectralPeak p;
+    p.order = q;
+    p.sideband = !is_harmonic(q);
+    p.predicted_eV = units::au_to_eV(predicted(q));
+    p.area_counts = area;
+    p.significance = sum > 0 ? area / std::sqrt(sum) : 0.0;
+    if (area > 0) {
+      const double cen = m1 / area;
+      double var = 0;
+      for (std::size_t j : idx) var += std::max(s[j], 0.0) * (W[j] - cen) * (W[j] - cen);
+      p.observed_eV = units::au_to_eV(cen);
+      p.observed_eV_sigma = units::au_to_eV(std::sqrt(var) / area);
+    } else {
+      p.observed_eV = p.predicted_eV;
+    }
+    out.peaks.push_back(p);
+  }
+
+  // --- energy-axis alignment --------------------------------------------------------------
+  EnergyAxisAlignment& al = out.alignment;
+  al.resolution_eV = opt.energy_resolution_eV > 0
+                         ? opt.energy_resolution_eV
+                         : trace.meta.energy_resolution_eV.value_or(bin_eV);
+  {
+    std::vector<double> x, y, sg;
+    for (SpectralPeak& p : out.peaks)
+      if (p.significance >= opt.min_peak_significance && p.observed_eV_sigma > 0) {
+        p.used_in_alignment = true;
+        x.push_back(p.predicted_eV);
+        y.push_back(p.observed_eV - p.predicted_eV);
+        sg.push_back(p.observed_eV_sigma);
+      }
+    al.peaks_used = static_cast<int>(x.size());
+    if (!x.empty()) {
+      double sw_ = 0, swx = 0;
+      for (std::size_t k = 0; k < x.size(); ++k) {
+        sw_ += 1.0 / (sg[k] * sg[k]);
+        swx += x[k] / (sg[k] * sg[k]);
+      }
+      al.reference_eV = swx / sw_;
+      const LineFit lf = weighted_line(x, y, sg, al.reference_eV);
+      al.offset_eV = lf.intercept;
+      al.offset_eV_sigma = lf.intercept_sigma;
+      al.scale = 1.0 + lf.slope;
+      al.scale_sigma = lf.slope_sigma;
+      al.fitted = x.size() >= 2;
+      if (!al.fitted) al.scale = 1.0;
+      const double half_span =
+          0.5 * (*std::max_element(x.begin(), x.end()) - *std::min_element(x.begin(), x.end()));
+      al.within_resolution = std::abs(al.offset_eV) <= al.resolution_eV &&
+                             std::abs(al.scale - 1.0) * half_span <= al.resolution_eV;
+      if (!al.within_resolution) {
+        std::ostringstream os;
+        os << "the observed harmonic/sideband peaks are offset by " << al.offset_eV << " eV (scale "
+           << al.scale << ") from q hbar omega - Ip (Ip = " << gas.ionization_energy_eV
+           << " eV, hbar omega = " << out.ir_photon_energy_eV << " eV), more than the resolution "
+           << al.resolution_eV
+           << " eV: check the energy calibration, the gas and the IR wavelength";
+        out.warnings.push_back(os.str());
+      }
+    } else {
+      out.warnings.push_back(
+          "no significant harmonic peak found in the delay-integrated "
+          "spectrum; windows are placed at q hbar omega - Ip");
+    }
+    double harm = 0, side = 0;
+    int nh = 0, ns = 0;
+    for (const SpectralPeak& p : out.peaks) {
+      if (p.sideband) {
+        side += p.area_counts;
+        ++ns;
+      } else {
+        harm += p.area_counts;
+        ++nh;
+      }
+    }
+    if (nh > 0 && ns > 0 && side / ns > harm / nh)
+      out.warnings.push_back(
+          "the sideband peaks are on average stronger than the harmonic "
+          "peaks: the IR is strong (multi-photon sidebands) or the harmonic "
+          "parity is not the expected one");
+  }
+  auto aligned_au = [&](int q) {
+    const double wp = units::au_to_eV(predicted(q));
+    if (al.peaks_used == 0) return predicted(q) + coarse;
+    return units::eV_to_au(al.reference_eV + al.offset_eV + al.scale * (wp - al.reference_eV));
+  };
+
+  // --- sideband windows and signals -------------------------------------------------------
+  struct Window {
+    int q;
+    std::vector<std::size_t> bins;
+    std::vector<double> signal;
+    double lo, hi;
+  };
+  std::vector<Window> windows;
+  const double half = opt.window_half_width_fraction * w;
+  for (int q = std::max(q_lo, 2); q <= q_hi; ++q) {
+    if (is_harmonic(q)) continue;
+    if (predicted(q - 1) <= 0.0) continue;  // the lower harmonic must ionize
+    const double c = aligned_au(q);
+    if (c - half < W.front() || c + half > W.back()) continue;
+    Window win;
+    win.q = q;
+    win.lo = c - half;
+    win.hi = c + half;
+    for (std::size_t j = 0; j < ne; ++j)
+      if (W[j] >= win.lo && W[j] <= win.hi) win.bins.push_back(j);
+    if (win.bins.empty()) continue;
+    win.signal.assign(nd, 0.0);
+    for (std::size_t i = 0; i < nd; ++i)
+      for (std::size_t j : win.bins)
+        win.signal[i] += trace.counts(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
+    windows.push_back(std::move(win));
+  }
+  if (windows.empty())
+    throw numeric_error(where + ": no sideband window fits inside the energy axis [" +
+                        format_g(out.energy_eV.front()) + ", " + format_g(out.energy_eV.back()) +
+                        "] eV for Ip = " + format_g(gas.ionization_energy_eV) +
+                        " eV and hbar omega = " + format_g(out.ir_photon_energy_eV) + " eV.");
+
+  // --- delay-axis check -------------------------------------------------------------------
+  const double Omega0 = 2.0 * w;
+  double Omega = Omega0;
+  DelayAxisCheck& dc = out.delay_check;
+  dc.nominal_frequency_au = Omega0;
+  dc.fitted_frequency_au = Omega0;
+  if (opt.check_delay_axis && span >= T) {
+    std::vector<std::pair<double, std::size_t>> strength;
+    for (std::size_t k = 0; k < windows.size(); ++k) {
+      const CosineFit f = fit_cosine(tau, windows[k].signal, Omega0, rw);
+      strength.emplace_back(f.amplitude_sigma > 0 ? f.amplitude / f.amplitude_sigma : 0.0, k);
+    }
+    std::sort(strength.rbegin(), strength.rend());
+    std::vector<std::size_t> use;
+    for (const auto& [sig, k] : strength)
+      if (static_cast<int>(use.size()) < opt.calibration_sidebands &&
+          sig >= opt.min_modulation_significance)
+        use.push_back(k);
+    if (!use.empty()) {
+      // Data-based weights only: model-based weights make the objective jump where a wrong
+      // frequency drives the model through zero.
+      auto explained = [&](double Om) {
+        double e = 0;
+        for (std::size_t k : use) e += fit_cosine(tau, windows[k].signal, Om, 0).explained_chi2;
+        return e;
+      };
+      auto chi2 = [&](double Om) {
+        double c = 0;
+        for (std::size_t k : use) c += fit_cosine(tau, windows[k].signal, Om, 0).chi2;
+        return c;
+      };
+      const double lo = Omega0 * (1.0 - opt.frequency_search_fraction);
+      const double hi = Omega0 * (1.0 + opt.frequency_search_fraction);
+      const double res = units::kTwoPi / span;
+      const int ngrid = std::max(41, static_cast<int>(std::ceil(8.0 * (hi - lo) / res)) + 1);
+      double best = lo, best_val = -1.0;
+      const double step = (hi - lo) / (ngrid - 1);
+      for (int g = 0; g < ngrid; ++g) {
+        const double Om = lo + g * step;
+        const double v = explained(Om);
+        if (v > best_val) {
+          best_val = v;
+          best = Om;
+        }
+      }
+      const double Om_fit =
+          golden_max(explained, std::max(lo, best - step), std::min(hi, best + step), 60);
+      dc.performed = true;
+      dc.fitted_frequency_au = Om_fit;
+      dc.calibration_factor = Om_fit / Omega0;
+      for (std::size_t k : use) dc.sidebands_used.push_back(windows[k].q);
+      // Curvature of the summed chi^2 (Delta chi^2 = 1), scaled by the pooled reduced chi^2.
+      const double h = 0.05 * res;
+      const double c0 = chi2(Om_fit), cp = chi2(Om_fit + h), cm = chi2(Om_fit - h);
+      const double curv = (cp - 2.0 * c0 + cm) / (h * h);
+      const double dof = static_cast<double>(use.size() * (nd - 3) - 1);
+      const double red = dof > 0 ? c0 / dof : 1.0;
+      if (curv > 0) {
+        const double sOm = std::sqrt(2.0 / curv) * std::sqrt(std::max(red, 1.0));
+        dc.calibration_factor_sigma = sOm / Omega0;
+      }
+      if (std::abs(dc.calibration_factor - 1.0) > opt.calibration_warn_fraction) {
+        std::ostringstream os;
+        os << "the sideband oscillation frequency is " << dc.calibration_factor << " +- "
+           << dc.calibration_factor_sigma
+           << " times 2 omega: the delay axis should be multiplied by this factor (stage "
+              "calibration off by "
+           << 100.0 * (dc.calibration_factor - 1.0) << " %)"
+           << (opt.apply_delay_calibration ? "; the fitted frequency was used"
+                                           : "; not applied (apply_delay_calibration = false)");
+        out.warnings.push_back(os.str());
+      }
+      if (opt.apply_delay_calibration) {
+        Omega = Om_fit;
+        dc.applied = true;
+      }
+    }
+  } else if (opt.check_delay_axis) {
+    out.warnings.push_back("delay-axis check skipped: the scan (" +
+                           format_g(units::au_to_fs(span)) + " fs) is shorter than one IR period");
+  }
+
+  // --- sideband fits ----------------------------------------------------------------------
+  std::vector<SidebandDetail> sbs;
+  for (const Window& win : windows) {
+    SidebandDetail d;
+    d.order = win.q;
+    d.energy_eV = units::au_to_eV(predicted(win.q));
+    d.photon_energy_eV = units::au_to_eV(win.q * w);
+    d.window_low_eV = units::au_to_eV(win.lo);
+    d.window_high_eV = units::au_to_eV(win.hi);
+    d.window_bins = static_cast<int>(win.bins.size());
+    d.fit = fit_cosine(tau, win.signal, Omega, rw);
+    if (bg > 0.0) {
+      const double a = d.fit.mean - bg * static_cast<double>(win.bins.size());
+      d.fit.modulation_depth = a > 0 ? d.fit.amplitude / a : 0.0;
+    }
+    const double sig = d.fit.amplitude_sigma > 0 ? d.fit.amplitude / d.fit.amplitude_sigma : 0.0;
+    if (sig < opt.min_modulation_significance) {
+      out.skipped_sidebands.push_back("SB " + std::to_string(win.q) + ": modulation " +
+                                      format_g(d.fit.amplitude) + " +- " +
+                                      format_g(d.fit.amplitude_sigma) + " counts is below " +
+                                      format_g(opt.min_modulation_significance) + " sigma");
+      continue;
+    }
+    if (opt.rainbow) {
+      std::vector<double> col(nd);
+      for (std::size_t j : win.bins) {
+        for (std::size_t i = 0; i < nd; ++i)
+          col[i] = trace.counts(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
+        const CosineFit f = fit_cosine(tau, col, Omega, rw);
+        d.rainbow_energy_eV.push_back(units::au_to_eV(W[j]));
+        d.rainbow_phase_rad.push_back(f.phase_rad);
+        d.rainbow_phase_rad_sigma.push_back(f.phase_rad_sigma);
+        d.rainbow_modulation_depth.push_back(f.modulation_depth);
+      }
+    }
+    sbs.push_back(std::move(d));
+  }
+  if (sbs.empty())
+    throw numeric_error(where + ": no sideband shows a significant 2 omega modulation (" +
+                        std::to_string(windows.size()) + " windows tried; threshold " +
+                        format_g(opt.min_modulation_significance) + " sigma).");
+
+  // --- unwrapping, delays, atomic corrections ---------------------------------------------
+  {
+    std::vector<double> ph;
+    for (const auto& d : sbs) ph.push_back(d.fit.phase_rad);
+    const std::vector<double> un = unwrap_phase(ph);
+    for (std::size_t k = 0; k < sbs.size(); ++k) {
+      SidebandDetail& d = sbs[k];
+      d.phase_unwrapped_rad = un[k];
+      for (double& r : d.rainbow_phase_rad) r = un[k] + wrap_pi(r - un[k]);
+      d.measured_delay_as = units::au_to_as(un[k] / (2.0 * w));
+      d.atomic = sideband_atomic_delay(gas, predicted(d.order), w, opt.atomic);
+      d.group_delay_as = d.measured_delay_as - (d.atomic.applied ? d.atomic.total_as : 0.0);
+      d.group_delay_as_sigma = units::au_to_as(d.fit.phase_rad_sigma / (2.0 * w));
+    }
+  }
+
+  // --- attochirp --------------------------------------------------------------------------
+  RabbittSection& sec = out.section;
+  if (sbs.size() >= 2) {
+    std::vector<double> x, y, sg;
+    double swt = 0, swx = 0;
+    for (const auto& d : sbs) {
+      x.push_back(d.photon_energy_eV);
+      y.push_back(d.group_delay_as);
+      sg.push_back(std::max(d.group_delay_as_sigma, 1e-9));
+      swt += 1.0 / (sg.back() * sg.back());
+      swx += x.back() / (sg.back() * sg.back());
+    }
+    out.attochirp_reference_eV = swx / swt;
+    const LineFit lf = weighted_line(x, y, sg, out.attochirp_reference_eV);
+    sec.attochirp_as_per_eV = lf.slope;
+    sec.attochirp_as_per_eV_sigma = lf.slope_sigma;
+    out.attochirp_intercept_as = lf.intercept;
+    out.attochirp_reduced_chi2 = lf.reduced_chi2;
+    if (lf.scaled)
+      out.params.push_back(
+          {"rabbitt.attochirp_sigma_note", std::string("sigma scaled by sqrt(reduced chi^2) = ") +
+                                               format_g(std::sqrt(lf.reduced_chi2))});
+  } else {
+    out.warnings.push_back("only one sideband could be fitted: no attochirp");
+  }
+
+  // --- contract section, diagnostics ------------------------------------------------------
+  std::vector<double> red, scaled;
+  std::string scaled_list;
+  for (const auto& d : sbs) {
+    Sideband c;
+    c.order = d.order;
+    c.energy_eV = d.energy_eV;
+    c.phase_rad = d.phase_unwrapped_rad;
+    c.phase_rad_sigma = d.fit.phase_rad_sigma;
+    c.group_delay_as = d.group_delay_as;
+    c.group_delay_as_sigma = d.group_delay_as_sigma;
+    c.modulation_depth = d.fit.modulation_depth;
+    if (d.atomic.applied) c.atomic_delay_as = d.atomic.total_as;
+    sec.sidebands.push_back(c);
+    red.push_back(d.fit.reduced_chi2);
+    scaled.push_back(d.fit.covariance_scaled ? 1.0 : 0.0);
+    if (d.fit.covariance_scaled && d.fit.reduced_chi2 > 2.0)
+      scaled_list += (scaled_list.empty() ? "" : ", ") + std::to_string(d.order) + " (" +
+                     format_g(d.fit.reduced_chi2) + ")";
+  }
+  out.sidebands = std::move(sbs);
+  if (!scaled_list.empty())
+    out.warnings.push_back(
+        "sideband fits with reduced chi^2 > 2 (phase sigmas scaled by "
+        "sqrt(chi^2_red)): SB " +
+        scaled_list +
+        "; the signal departs from A + B cos(2 omega tau) beyond Poisson "
+        "noise (higher-order sidebands at strong IR, IR envelope, delay or "
+        "intensity fluctuations)");
+
+  auto P = [&](const std::string& k, auto v) { out.params.push_back({"rabbitt." + k, v}); };
+  P("gas", out.gas);
+  P("ionization_energy_eV", out.ionization_energy_eV);
+  P("ir_photon_energy_eV", out.ir_photon_energy_eV);
+  P("sign_convention",
+    std::string("S(tau) = A + B cos(2 omega tau + phase_rad), tau = t_XUV - t_IR; group delay = "
+                "phase/(2 omega) - atomic delay; positive attochirp = higher photon energies "
+                "emitted later"));
+  P("uncertainty_note",
+    std::string("phase sigmas from the weighted least-squares covariance (Poisson weights "
+                "1/max(S,1)), multiplied by the reduced chi^2 where it exceeds 1"));
+  P("energy_axis.offset_eV", al.offset_eV);
+  P("energy_axis.offset_eV_sigma", al.offset_eV_sigma);
+  P("energy_axis.scale", al.scale);
+  P("energy_axis.scale_sigma", al.scale_sigma);
+  P("energy_axis.reference_eV", al.reference_eV);
+  P("energy_axis.peaks_used", static_cast<long long>(al.peaks_used));
+  P("energy_axis.resolution_eV", al.resolution_eV);
+  P("energy_axis.comb_contrast", comb_contrast);
+  if (dc.performed) {
+    P("delay_axis.calibration_factor", dc.calibration_factor);
+    P("delay_axis.calibration_factor_sigma", dc.calibration_factor_sigma);
+    P("delay_axis.applied", dc.applied);
+  }
+  P("window_half_width_eV", units::au_to_eV(half));
+  P("sideband_reduced_chi2", red);
+  P("sideband_covariance_scaled", scaled);
+  P("atomic_delay.mode", std::string(to_string(opt.atomic.mode)));
+  if (!out.sidebands.empty())
+    P("atomic_delay.description", out.sidebands.front().atomic.description);
+  if (sec.attochirp_as_per_eV) {
+    P("attochirp_reference_eV", out.attochirp_reference_eV);
+    P("attochirp_intercept_as", out.attochirp_intercept_as);
+    P("attochirp_reduced_chi2", out.attochirp_reduced_chi2);
+  }
+  return out;
+}
+
+}  // namespace sw

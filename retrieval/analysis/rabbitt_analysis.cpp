@@ -1,0 +1,124 @@
+// analyse_rabbitt (retrieval/analysis/analyses.h): the RABBITT pipeline of `streakwright rabbitt`.
+#include "retrieval/analysis/analyses.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/atomic_delay.h"
+#include "retrieval/preprocess/lines.h"
+
+namespace sw {
+
+TrainBurstOptions rabbitt_train_burst_defaults() {
+  TrainBurstOptions o;
+  o.cross_section = CrossSectionModel::kSfaDipole;
+  o.dipole = DipoleKind::kConstant;
+  return o;
+}
+
+std::string RabbittAnalysisOptions::validate() const {
+  RabbittOptions ro = rabbitt;
+  if (!parse_atomic_delay_mode(atomic_correction, &ro.atomic.mode))
+    return "--atomic-correction '" + atomic_correction +
+           "': expected auto (subtract the atomic delays of the gas) or none";
+  if (const std::string e = ro.validate(); !e.empty()) return "rabbitt options: " + e;
+  if (const std::string e = train_burst.validate(); !e.empty())
+    return "average-burst options: " + e;
+  if (const std::string e = classifier.validate(); !e.empty()) return "verdict thresholds: " + e;
+  return "";
+}
+
+RabbittOutput analyse_rabbitt(const Trace& scan, const Trace* xuv_only,
+                              const RabbittAnalysisOptions& options,
+                              const AnalysisProgress& progress) {
+  RabbittOutput out;
+  const PreprocessOptions& pp = options.preprocess;
+  std::string window_source;
+  out.trace =
+      apply_energy_window(scan, pp.energy_window_lo_eV, pp.energy_window_hi_eV, &window_source);
+  if (const std::string e = options.validate(); !e.empty()) throw usage_error(e);
+  const Trace& trace = out.trace;
+  RabbittOptions ro = options.rabbitt;
+  parse_atomic_delay_mode(options.atomic_correction, &ro.atomic.mode);  // checked by validate()
+  const ClassifierOptions& co = options.classifier;
+
+  if (progress) progress("rabbitt", "sideband fits");
+  out.analysis = analyze_rabbitt(trace, ro);
+  const RabbittAnalysis& rb = out.analysis;
+
+  AnalysisResult& res = out.result;
+  res.input = trace.meta.source;
+  res.analysis = "rabbitt";
+  res.rabbitt = rb.section;
+  res.warnings = rb.warnings;
+  add_input_warnings(trace, res.warnings);
+
+  if (xuv_only) {
+    for (const auto& w : xuv_only->meta.read_warnings)
+      res.warnings.push_back("xuv-only spectrum: " + w);
+    if (xuv_only->meta.kind != TraceKind::kXuvOnly && xuv_only->meta.kind != TraceKind::kUnknown)
+      res.warnings.push_back("the --xuv-only sidecar " + options.xuv_only_name + " has kind '" +
+                             to_string(xuv_only->meta.kind) +
+                             "', not xuv_only: its delay-integrated spectrum is used anyway");
+  }
+
+  if (progress) progress("rabbitt", "average burst");
+  try {
+    out.burst = reconstruct_train_burst(trace, rb, options.train_burst, xuv_only);
+    fill_rabbitt_section(*out.burst, &*res.rabbitt);
+    for (const auto& w : out.burst->warnings) res.warnings.push_back("average burst: " + w);
+  } catch (const Error& e) {
+    if (e.kind() != ErrorKind::kNumeric) throw;
+    res.warnings.push_back(std::string("no average burst: ") + e.what());
+  }
+
+  if (progress) progress("rabbitt", "verdict");
+  res.verdict = classify(trace, co, nullptr);
+  // Lines (DESIGN.md "lines"), as retrieve's preprocessing finds them; the sidebands belong to
+  // the reference line.
+  {
+    std::string why;
+    res.lines = scan_lines(trace, pp, &why);
+    if (res.lines.empty() && !why.empty())
+      res.warnings.push_back("photoelectron lines not listed: " + why);
+  }
+  res.quality = rabbitt_quality(trace.counts, trace.meta.background.value_or(0.0), *res.rabbitt,
+                                options.quality);
+
+  res.extra = rb.params;
+  // The energy window analysed (DESIGN.md: preprocess.window_*), when one was applied.
+  if (!window_source.empty()) {
+    res.extra.push_back({"preprocess.window_source", window_source});
+    res.extra.push_back({"preprocess.window_lo_eV", units::au_to_eV(trace.energy_au.front())});
+    res.extra.push_back({"preprocess.window_hi_eV", units::au_to_eV(trace.energy_au.back())});
+  }
+  auto P = [&](const std::string& k, auto v) { res.extra.push_back({k, v}); };
+  if (out.burst) {
+    const TrainBurst& b = *out.burst;
+    std::vector<double> orders(b.harmonic_orders.begin(), b.harmonic_orders.end());
+    P("rabbitt.burst.harmonic_orders", orders);
+    P("rabbitt.burst.harmonic_photon_energy_eV", b.harmonic_photon_energy_eV);
+    P("rabbitt.burst.harmonic_intensity", b.harmonic_intensity);
+    P("rabbitt.burst.harmonic_phase_rad", b.harmonic_phase_rad);
+    P("rabbitt.burst.peak_time_as", b.peak_time_as);
+    P("rabbitt.burst.spectrum_source", b.spectrum_source);
+    P("rabbitt.burst.cross_section", b.cross_section);
+    P("rabbitt.burst.monte_carlo_draws", static_cast<long long>(b.monte_carlo_draws));
+    P("rabbitt.burst.assumptions", b.assumptions);
+  }
+  if (!rb.skipped_sidebands.empty()) {
+    std::string s;
+    for (const auto& k : rb.skipped_sidebands) s += (s.empty() ? "" : "; ") + k;
+    P("rabbitt.skipped_sidebands", s);
+  }
+  P("settings.atomic_correction", std::string(to_string(ro.atomic.mode)));
+  P("settings.window_half_width_fraction", ro.window_half_width_fraction);
+  P("settings.apply_delay_calibration", ro.apply_delay_calibration);
+  P("settings.cross_section", std::string(to_string(options.train_burst.cross_section)));
+  P("settings.dipole", std::string(to_string(options.train_burst.dipole)));
+  if (!options.xuv_only_name.empty()) P("settings.xuv_only", options.xuv_only_name);
+  P("settings.isolated_max_satellite_ratio", co.isolated_max_satellite_ratio);
+  P("settings.satellites_max_satellite_ratio", co.satellite_max_ratio);
+  add_sidecar_extras(trace, res);
+  return out;
+}
+
+}  // namespace sw

@@ -1,0 +1,717 @@
+#include "retrieval/analysis/retrieve.h"
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <mutex>
+#include <numeric>
+#include <sstream>
+
+#include "retrieval/analysis/classifier.h"
+#include "retrieval/analysis/multi_line_fit.h"
+#include "retrieval/analysis/quality.h"
+#include "retrieval/analysis/thread_pool.h"
+#include "retrieval/core/error.h"
+#include "retrieval/core/units.h"
+#include "retrieval/physics/pulse_metrics.h"
+#include "retrieval/physics/satellite_seed.h"
+
+namespace sw {
+
+std::string RetrieveOptions::validate() const {
+  if (std::string e = validate_described(*this); !e.empty()) return e;
+  std::ostringstream s;
+  if (!(isolated_max_satellite_ratio < satellites_max_satellite_ratio))
+    s << "satellite thresholds " << isolated_max_satellite_ratio << ", "
+      << satellites_max_satellite_ratio << ": need 0 < isolated < satellites <= 1";
+  else if (auto e1 = preprocess.validate(); !e1.empty())
+    s << "preprocess." << e1;
+  else if (auto e2 = quality.validate(); !e2.empty())
+    s << "quality." << e2;
+  else if (auto e3 = line_delays.validate(); !e3.empty())
+    s << "line_delays." << e3;
+  return s.str();
+}
+
+double envelope_fwhm(const std::vector<double>& x, double dt) {
+  const std::size_t n0 = x.size();
+  if (n0 < 8) return 0.0;
+  const std::size_t n = good_fft_size(2 * n0);
+  CVec a(n, 0.0), s(n);
+  for (std::size_t i = 0; i < n0; ++i) a[i] = x[i];
+  const Fft fft(n);
+  fft.freq_to_time(a, s);  // any sign: keep one half of the spectrum -> analytic signal
+  for (std::size_t k = 1; k < n; ++k) {
+    if (k < n / 2)
+      s[k] *= 2.0;
+    else if (k > n / 2)
+      s[k] = 0.0;
+  }
+  fft.time_to_freq(s, a);
+  std::vector<double> t(n0), env(n0);
+  for (std::size_t i = 0; i < n0; ++i) {
+    t[i] = static_cast<double>(i) * dt;
+    env[i] = std::norm(a[i]) / static_cast<double>(n) / static_cast<double>(n);
+  }
+  return fwhm(t, env);
+}
+
+PulseMetrics pulse_metrics(const Reconstruction& r, double ir_omega_au, double lo, double hi) {
+  PulseMetrics m;
+  const bool band = hi > lo;
+  if (band) m.energy_outside_support = spectral_energy_outside(r.xuv, lo, hi);
+  const XuvField x = band ? within_band(r.xuv, lo, hi) : r.xuv;
+  m.xuv.fwhm_as = units::au_to_as(intensity_fwhm(x));
+  m.xuv.transform_limited_fwhm_as = units::au_to_as(transform_limited_fwhm(x));
+  {
+    const std::vector<double> t = x.grid().times(), I = x.intensity();
+    m.xuv.rms_duration_as = units::au_to_as(rms_width(t, I));
+  }
+  const SpectralPhaseFit fit = fit_spectral_phase(x);
+  m.xuv.gdd_as2 = units::au_to_as2(fit.gdd);
+  m.xuv.tod_as3 = units::au_to_as3(fit.tod);
+  m.xuv.center_photon_energy_eV = units::au_to_eV(fit.center_photon_energy);
+  m.xuv.bandwidth_fwhm_eV = units::au_to_eV(fit.bandwidth_fwhm);
+  const BurstStructure b = burst_structure(x, units::period_au(ir_omega_au));
+  m.satellite_intensity_ratio = b.satellite_intensity_ratio;
+  m.main_burst_energy_fraction = b.main_burst_energy_fraction;
+  m.comparable_bursts = b.comparable_bursts;
+
+  const IrField& ir = r.ir;
+  if (ir.size() >= 8) {
+    m.ir.peak_vector_potential_au = ir.peak_vector_potential();
+    m.ir.peak_intensity_Wcm2 = units::peak_field_au_to_intensity(ir.peak_electric_field());
+    // Wavelength from the peak of the power spectrum of E(t) = -dA/dt (zero-padded 8x, peak
+    // searched between 0.3 and 3 x the sidecar's IR frequency and refined by a parabola through log
+    // |E~|^2): unlike counting zero crossings of A(t), noise wiggles in a low-count retrieval do
+    // not shorten it.
+    {
+      const std::vector<double> Ef = ir.electric_field();
+      const std::size_t n0 = Ef.size();
+      const std::size_t nf = good_fft_size(8 * n0);
+      CVec in(nf, 0.0), spec(nf);
+      for (std::size_t i = 0; i < n0; ++i) in[i] = Ef[i];
+      Fft(nf).time_to_freq(in, spec);
+      // Search between 0.3 and 3 times the sidecar's frequency: wide enough to see a field
+      // locked onto 2 omega, narrow enough to ignore the noise of a low-count retrieval.
+      const double dwf = units::kTwoPi / (static_cast<double>(nf) * ir.dt());
+      const std::size_t k_lo =
+          std::max<std::size_t>(1, static_cast<std::size_t>(0.3 * ir_omega_au / dwf));
+      const std::size_t k_hi =
+          std::min<std::size_t>(nf / 2 - 1, static_cast<std::size_t>(3.0 * ir_omega_au / dwf) + 1);
+      std::size_t kmax = k_lo;
+      for (std::size_t k = k_lo; k <= k_hi; ++k)
+        if (std::norm(spec[k]) > std::norm(spec[kmax])) kmax = k;
+      double k = static_cast<double>(kmax);
+      if (kmax > 1 && kmax + 1 < nf / 2) {
+        const double a = std::log(std::norm(spec[kmax - 1]) + 1e-300),
+                     b0 = std::log(std::norm(spec[kmax]) + 1e-300),
+                     c = std::log(std::norm(spec[kmax + 1]) + 1e-300);
+        const double den = a - 2 * b0 + c;
+        if (den < 0) k += std::clamp(0.5 * (a - c) / den, -0.5, 0.5);
+      }
+      const double w = dwf * k;
+      if (w > 0 && ir.peak_vector_potential() > 0)
+        m.ir.wavelength_nm = units::omega_au_to_wavelength_nm(w);
+    }
+    const std::vector<double> E = ir.electric_field();
+    const double f = envelope_fwhm(E, ir.dt());
+    if (f > 0) m.ir.fwhm_fs = units::au_to_fs(f);
+  }
+  return m;
+}
+
+void fix_time_origin(Reconstruction& r) {
+  const std::vector<double> t = r.xuv.grid().times(), I = r.xuv.intensity();
+  double num = 0, den = 0;
+  for (std::size_t i = 0; i < t.size(); ++i) {
+    num += t[i] * I[i];
+    den += I[i];
+  }
+  if (!(den > 0)) return;
+  const double sc = num / den;
+  if (std::abs(sc) < 1e-9) return;
+  // eps'(s) = eps(s + sc): multiply the spectrum by exp(-i w sc).
+  const TimeGrid& g = r.xuv.grid();
+  CVec spec = r.xuv.spectrum();
+  for (std::size_t j = 0; j < spec.size(); ++j)
+    spec[j] *= std::polar(1.0, -g.omega_centered(j) * sc);
+  r.xuv = XuvField::from_spectrum(g, r.xuv.carrier_au(), spec);
+  if (r.ir.size() >= 5) r.ir = IrField(r.ir.t0() - sc, r.ir.dt(), r.ir.vector_potential());
+}
+
+double cma_phase_error(const IrField& ir, double p0, double lo, double hi, double t_first,
+                       double t_last) {
+  double mn = 1e300, mx = -1e300;
+  const int n = 2000;
+  for (int i = 0; i <= n; ++i) {
+    const double I1 = ir.at(t_first + (t_last - t_first) * i / n).I1;
+    mn = std::min(mn, I1);
+    mx = std::max(mx, I1);
+  }
+  const double dp =
+      std::max(std::abs(units::momentum_au(hi) - p0), std::abs(p0 - units::momentum_au(lo)));
+  return dp * 0.5 * (mx - mn);
+}
+
+namespace {
+
+double stddev(const std::vector<double>& v) {
+  if (v.size() < 2) return 0.0;
+  const double m = std::accumulate(v.begin(), v.end(), 0.0) / static_cast<double>(v.size());
+  double s = 0;
+  for (double x : v) s += (x - m) * (x - m);
+  return std::sqrt(s / static_cast<double>(v.size() - 1));
+}
+
+}  // namespace
+
+RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
+                        const RetrieveProgress& progress) {
+  if (const std::string e = opt.validate(); !e.empty()) throw usage_error("retrieve: " + e);
+  const auto t_start = std::chrono::steady_clock::now();
+  RetrieveOutput out;
+  out.problem = preprocess(trace, opt.preprocess, &out.preprocess);
+  check_line_names(out.preprocess.lines, opt.line_delays,
+                   trace.meta.gas);  // before any engine runs
+  const RetrievalProblem& pr = out.problem;
+
+  // One engine run on one problem, progress reported under `stage`, time origin fixed. The
+  // replicas call it from worker threads: progress reports go out one at a time.
+  std::mutex progress_mutex;
+  auto run_on = [&](const RetrievalProblem& problem, const std::string& name,
+                    const EngineOptions& o, const std::string& stage) {
+    auto engine = make_engine(name);
+    std::vector<IterationCallback> cbs;
+    if (progress)
+      cbs.push_back([&](const IterationRecord& r) {
+        const std::lock_guard<std::mutex> lock(progress_mutex);
+        progress(stage, r);
+        return CallbackResult::kContinue;
+      });
+    Reconstruction rec = run_engine(*engine, problem, o, cbs);
+    fix_time_origin(rec);
+    return rec;
+  };
+  auto run = [&](const std::string& name, const EngineOptions& o) {
+    return run_on(pr, name, o, name);
+  };
+  EngineOptions eo;
+  if (opt.iterations > 0) eo.max_iterations = opt.iterations;
+  eo.seed = opt.seed;
+  eo.threads = 1;  // engines single-threaded: the replicas use the threads (bit-identical results)
+  eo.extra = opt.engine_extra;
+  // A streaking-broadened spectrum must not be imposed as the amplitude (DESIGN.md: |E_X| is
+  // constrained to the measured field-free spectrum; without one, only its centroid is used).
+  bool user_set = false;
+  for (const auto& kv : eo.extra) user_set = user_set || kv.first == "spectrum_constraint";
+  if (!out.preprocess.field_free_measured && !user_set)
+    eo.extra.push_back({"spectrum_constraint", "centroid"});
+  eo.max_seconds = opt.max_seconds;
+
+  // Metrics from the in-support field (photon energy = kinetic energy + Ip).
+  auto band_of = [](const RetrievalProblem& p) {
+    const bool has = p.support_hi_au > p.support_lo_au;
+    return std::pair{has ? p.support_lo_au + p.ionization_energy_au : 0.0,
+                     has ? p.support_hi_au + p.ionization_energy_au : 0.0};
+  };
+  const auto [band_lo, band_hi] = band_of(pr);
+  // The satellite hypothesis (retrieval/physics/satellite_seed.h): the full model from `base` with
+  // satellites at -+T/2 of the given sign.
+  auto satellite_run = [&](const RetrievalProblem& problem, const Reconstruction& base, double sign,
+                           const EngineOptions& o, const std::string& stage) {
+    EngineOptions so = o;
+    so.initial_xuv =
+        with_satellites(base.xuv, units::kPi / pr.ir_omega_au, opt.satellite_start_ratio, sign);
+    so.initial_ir = base.ir;
+    return run_on(problem, "full-model", so, stage);
+  };
+  double satellite_sign = 0.0;  // the sign of an adopted satellite start (0: none)
+  std::string final_engine = opt.engine;
+  bool full_model_from_cma = false;  // auto: the full model's result started from the CMA's
+  if (opt.engine == "auto") {
+    out.chain.push_back(run("ptychographic", eo));
+    const Reconstruction& first = out.chain.back();
+    // Band edges: centroid +- FWHM/2 of the photoelectron spectrum.
+    const double Wc = units::eV_to_au(out.preprocess.centroid_energy_eV);
+    const double hw = 0.5 * units::eV_to_au(out.preprocess.bandwidth_fwhm_eV);
+    const double s_half = 0.5 * pr.grid.window();
+    out.cma_phase_error_rad =
+        cma_phase_error(first.ir, pr.central_momentum_au, Wc - hw, Wc + hw,
+                        pr.delay_au.front() - s_half, pr.delay_au.back() + s_half);
+    final_engine = "ptychographic";
+    const double floor = first.noise_floor_trace_error;
+    out.cma_trace_error_ratio = floor > 0 ? first.trace_error / floor : 0.0;
+    const bool cma_limited = out.cma_phase_error_rad > opt.cma_phase_error_max_rad;
+    const bool not_fitted = out.cma_trace_error_ratio > opt.cma_trace_error_max_ratio;
+    // A CMA field whose E(t) is far steeper than omega A(t) carries noise, not the IR (the
+    // quality check ir_field_vs_vector_potential would fail it): the full model refines it.
+    const double a_peak = first.ir.peak_vector_potential();
+    const bool noisy_field =
+        a_peak > 0 && pr.ir_omega_au > 0 &&
+        first.ir.peak_electric_field() / (pr.ir_omega_au * a_peak) > opt.quality.max_ir_field_ratio;
+    if (cma_limited || not_fitted || noisy_field) {
+      EngineOptions fo = eo;
+      fo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+      fo.initial_xuv = first.xuv;
+      fo.initial_ir = first.ir;
+      out.chain.push_back(run("full-model", fo));
+      out.full_model_start = "the CMA result";
+      full_model_from_cma = true;
+      final_engine = "full-model";
+      if (not_fitted) {
+        // The CMA result may sit in a local minimum (multi-burst pulses): also start the full
+        // model from its own guess (parametric IR) and keep the better fit.
+        EngineOptions co = eo;
+        co.max_iterations = fo.max_iterations;
+        out.chain.push_back(run("full-model", co));
+        const std::size_t n = out.chain.size();
+        out.full_model_start = "its own guess (better G than from the CMA result)";
+        full_model_from_cma = false;
+        if (out.chain[n - 2].trace_error < out.chain[n - 1].trace_error) {
+          full_model_from_cma = true;
+          std::swap(out.chain[n - 2], out.chain[n - 1]);  // the chain ends with the result used
+          out.full_model_start = "the CMA result (better G than from its own guess)";
+        }
+      }
+      const Reconstruction base = out.chain.back();
+      if (opt.satellite_start && pr.ir_omega_au > 0 &&
+          pulse_metrics(base, pr.ir_omega_au, band_lo, band_hi).satellite_intensity_ratio <
+              opt.isolated_max_satellite_ratio) {
+        // Both signs; the runs go into the chain before the result (the chain ends with it).
+        out.chain.pop_back();
+        std::size_t best = out.chain.size();
+        double best_g = base.trace_error;
+        for (double sign : {-1.0, 1.0}) {
+          out.chain.push_back(satellite_run(pr, base, sign, fo, "full-model (satellite start)"));
+          if (out.chain.back().trace_error < best_g) {
+            best_g = out.chain.back().trace_error;
+            best = out.chain.size() - 1;
+            satellite_sign = sign;
+          }
+        }
+        out.chain.push_back(base);
+        if (best < out.chain.size() - 1) {
+          std::swap(out.chain[best], out.chain.back());
+          out.full_model_start =
+              std::string("the satellite hypothesis (satellites at -+T/2, sign ") +
+              (satellite_sign > 0 ? "+" : "-") + "; better G than without)";
+        }
+      }
+    }
+  } else {
+    out.chain.push_back(run(opt.engine, eo));
+  }
+  out.reconstruction = out.chain.back();
+  // Several photoelectron lines (retrieval/analysis/multi_line_fit.h): centre-of-energy delays,
+  // then the joint fit of the analysed lines from the single-line result; its pulse is the
+  // headline.
+  const std::string single_engine = final_engine;
+  const std::size_t single_runs = out.chain.size();
+  JointLineStep lines_step;
+  const EngineRunner runner = [&](const RetrievalProblem& p, const std::string& name,
+                                  const EngineOptions& o,
+                                  const std::string& stage) { return run_on(p, name, o, stage); };
+  EngineOptions jeo = eo;
+  jeo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+  if (out.preprocess.lines.size() >= 2 && trace.meta.kind != TraceKind::kRabbitt &&
+      !(opt.line_delays.names.size() == 1 && opt.line_delays.names[0] == "none")) {
+    ClassifierOptions lc;
+    lc.isolated_max_satellite_ratio = opt.isolated_max_satellite_ratio;
+    lc.satellite_max_ratio = opt.satellites_max_satellite_ratio;
+    if (classify(trace, lc, &out.reconstruction).pulse_class != PulseClass::kTrain) {
+      LineDelayOptions lo = opt.line_delays;
+      lo.seed = opt.seed;
+      lines_step = joint_line_estimate(trace, opt.preprocess, lo, pr, out.preprocess,
+                                       out.reconstruction, jeo, runner);
+      if (lines_step.used) {
+        out.chain.push_back(lines_step.reconstruction);
+        out.reconstruction = lines_step.reconstruction;
+        out.problem = lines_step.joint.problem;  // pr (a reference to it) from here on
+        out.preprocess.window_lo_eV = lines_step.joint.summary.window_lo_eV;
+        out.preprocess.window_hi_eV = lines_step.joint.summary.window_hi_eV;
+        out.preprocess.window_source = "joint lines";
+        out.preprocess.grid_size = lines_step.joint.summary.grid_size;
+        out.preprocess.grid_dt_as = lines_step.joint.summary.grid_dt_as;
+        final_engine = "full-model";
+      }
+    }
+  }
+  // Runs fitted to the headline's problem (the joint fit alone when it ran).
+  const std::size_t first_same = lines_step.used ? single_runs : 0;
+  const Reconstruction& rec = out.reconstruction;
+  const PulseMetrics m = pulse_metrics(rec, pr.ir_omega_au, band_lo, band_hi);
+  // The CMA's own error for every CMA run of the chain (auto computed it for the first).
+  const double s_half = 0.5 * pr.grid.window();
+  auto cma_error_of = [&](const Reconstruction& c) {
+    const double Wc = units::eV_to_au(out.preprocess.centroid_energy_eV);
+    const double hw = 0.5 * units::eV_to_au(out.preprocess.bandwidth_fwhm_eV);
+    return cma_phase_error(c.ir, pr.central_momentum_au, Wc - hw, Wc + hw,
+                           pr.delay_au.front() - s_half, pr.delay_au.back() + s_half);
+  };
+  // The chain's runs whose fits are equally good (retrieve.h): their spread is the retrieval's
+  // own systematic uncertainty.
+  double best_g = rec.trace_error;
+  for (std::size_t ci = first_same; ci < out.chain.size(); ++ci)
+    best_g = std::min(best_g, out.chain[ci].trace_error);
+  std::vector<PulseMetrics> comparable;
+  for (std::size_t ci = first_same; ci < out.chain.size(); ++ci) {
+    const Reconstruction& c = out.chain[ci];
+    if (!(c.trace_error <= opt.quality.comparable_fit_ratio * best_g)) continue;
+    if (c.model != "full" && c.ir.size() >= 5 && cma_error_of(c) > opt.cma_phase_error_max_rad)
+      continue;
+    comparable.push_back(pulse_metrics(c, pr.ir_omega_au, band_lo, band_hi));
+  }
+
+  // Bootstrap (uncertainty = full): each replica repeats the whole analysis on a Poisson draw
+  // of the counts: the CMA engine from its own initial guess with its own delay order, the full
+  // model from that replica's CMA result (or from its own guess, as the estimate did). A warm
+  // start from the final estimate stopped by the noise-floor rule sits at the floor already and
+  // barely moves: the spread came out 5x (CMA) to 20x (full model) too small; uncertainty = warm
+  // therefore turns that rule off (retrieval/analysis/uncertainty.h).
+  // The replicas' ptychographic runs use the momentum nodes exactly when the estimate's did
+  // (the engine adds them only when the one-p0 fit stalls above the noise floor, and a
+  // replica's doubled noise would otherwise decide differently and bias the correction).
+  EngineOptions beo = eo;
+  const bool nodes_set = std::any_of(beo.extra.begin(), beo.extra.end(),
+                                     [](const auto& kv) { return kv.first == "momentum_bands"; });
+  const auto ptycho = std::find_if(out.chain.begin(), out.chain.end(), [](const Reconstruction& c) {
+    return c.engine == "ptychographic";
+  });
+  if (!nodes_set && ptycho != out.chain.end() && ptycho->momentum_nodes > 0)
+    beo.extra.push_back({"momentum_bands", std::to_string(ptycho->momentum_nodes)});
+  // Replicas are independent: each on a worker thread, its seeds from its index alone, its
+  // numbers into its own slot (the same results for any thread count).
+  const bool warm = opt.uncertainty == UncertaintyMethod::kWarm;
+  std::vector<std::array<double, 4>> samples(static_cast<std::size_t>(opt.bootstrap));
+  parallel_for(opt.bootstrap, resolve_threads(opt.threads), [&](int b) {
+    const Trace rep =
+        poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
+    PreprocessSummary ps;
+    RetrievalProblem rp = preprocess(rep, opt.preprocess, &ps);
+    EngineOptions bo = beo;
+    bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
+    const std::string stage =
+        "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
+    Reconstruction br;
+    if (warm && !lines_step.used) {
+      // retrieval/analysis/uncertainty.h: the final engine from the estimate, until it stops
+      // moving.
+      EngineOptions wo = bo;
+      if (single_engine == "full-model")
+        wo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+      wo.initial_xuv = rec.xuv;
+      wo.initial_ir = rec.ir;
+      wo.noise_floor_factor = 0.0;
+      wo.relative_tolerance = std::max(wo.relative_tolerance, wo.noise_floor_relative_tolerance);
+      wo.patience = opt.warm_patience;
+      br = run_on(rp, single_engine, wo, stage);
+    } else if (single_engine == "full-model") {
+      // The same chain as the estimate: from the replica's own CMA result, or from the full
+      // model's own guess when that is where the estimate came from.
+      EngineOptions fo = bo;
+      fo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+      if (full_model_from_cma) {
+        const Reconstruction c = run_on(rp, "ptychographic", bo, stage);
+        fo.initial_xuv = c.xuv;
+        fo.initial_ir = c.ir;
+      }
+      br = run_on(rp, "full-model", fo, stage);
+      if (satellite_sign != 0) {
+        Reconstruction sr = satellite_run(rp, br, satellite_sign, fo, stage);
+        if (sr.trace_error < br.trace_error) br = std::move(sr);
+      }
+    } else {
+      br = run_on(rp, single_engine, bo, stage);
+    }
+    if (lines_step.used) {  // the joint fit on the replica, from its single-line result
+      EngineOptions jb = bo;
+      jb.max_iterations = jeo.max_iterations;
+      if (auto jr =
+              joint_line_replica(lines_step, rep, opt.preprocess, rp, ps, br, jb, stage, runner))
+        br = std::move(*jr);
+    }
+    const auto [rlo, rhi] = band_of(rp);
+    const PulseMetrics bm = pulse_metrics(br, pr.ir_omega_au, rlo, rhi);
+    samples[static_cast<std::size_t>(b)] = {*bm.xuv.fwhm_as, *bm.xuv.gdd_as2,
+                                            bm.ir.peak_vector_potential_au.value_or(0.0),
+                                            bm.satellite_intensity_ratio};
+  });
+  std::vector<double> bf, bg, ba, bs;
+  for (const auto& x : samples) {
+    bf.push_back(x[0]);
+    bg.push_back(x[1]);
+    ba.push_back(x[2]);
+    bs.push_back(x[3]);
+    out.bootstrap_samples.push_back(x);
+  }
+
+  AnalysisResult& res = out.result;
+  res.input = trace.meta.source;
+  res.analysis = "retrieve";
+  res.engine = opt.engine == "auto" ? final_engine : opt.engine;
+  res.xuv = m.xuv;
+  res.ir = m.ir;
+  // The IR wavelength is the sidecar's: the period of a retrieved A(t) is a model output (a
+  // train's field can lock onto 2 omega); the retrieved one is kept beside it and checked.
+  std::optional<double> ir_mismatch;
+  if (res.ir->wavelength_nm) {
+    const double lr = *res.ir->wavelength_nm;
+    res.extra.push_back({"ir.wavelength_nm_retrieved", lr});
+    ir_mismatch = std::abs(lr / trace.meta.ir_wavelength_nm - 1.0);
+    if (*ir_mismatch > 0.02) {
+      std::ostringstream w;
+      w.precision(4);
+      w << "the retrieved vector potential oscillates with a period of " << lr
+        << " nm, the sidecar says " << trace.meta.ir_wavelength_nm << " nm (" << 100 * *ir_mismatch
+        << " % apart";
+      if (std::abs(lr / trace.meta.ir_wavelength_nm - 0.5) < 0.05) w << ": locked onto 2 omega";
+      w << "); the sidecar's wavelength is reported";
+      res.warnings.push_back(w.str());
+    }
+  }
+  res.ir->wavelength_nm = trace.meta.ir_wavelength_nm;
+  // The verdict of every analysis comes from one place (retrieval/analysis/classifier.h): the
+  // scan's spectral and delay evidence plus the reconstructed bursts.
+  ClassifierOptions co;
+  co.isolated_max_satellite_ratio = opt.isolated_max_satellite_ratio;
+  co.satellite_max_ratio = opt.satellites_max_satellite_ratio;
+  VerdictSection v = classify(trace, co, &rec);
+  // Systematic spread over the equally good runs of the chain (0 with one).
+  auto systematic = [&](auto get) {
+    std::vector<double> vals;
+    for (const auto& c : comparable)
+      if (const std::optional<double> x = get(c)) vals.push_back(*x);
+    return stddev(vals);
+  };
+  std::optional<double> fwhm_bias_over_sigma;
+  if (opt.bootstrap >= 2) {
+    // retrieve.h: Student-scaled replica spread, bias corrected only when small against it,
+    // otherwise added to sigma; plus the chain's systematic spread.
+    const double t = student_one_sigma_factor(opt.bootstrap);
+    res.extra.push_back({"bootstrap.student_factor", t});
+    auto corrected = [&](const std::string& key, std::optional<double>& value,
+                         std::optional<double>& sigma, const std::vector<double>& reps,
+                         double sys) {
+      if (!value) return;
+      const BootstrapEstimate be = bootstrap_estimate(*value, reps, sys);
+      res.extra.push_back({"bootstrap." + key + "_uncorrected", *value});
+      res.extra.push_back({"bootstrap." + key + "_bias", be.bias});
+      res.extra.push_back({"bootstrap." + key + "_bias_corrected", be.corrected});
+      res.extra.push_back({"bootstrap." + key + "_sigma_statistical", be.sigma_statistical});
+      res.extra.push_back({"bootstrap." + key + "_sigma_systematic", be.sigma_systematic});
+      res.extra.push_back({"bootstrap." + key + "_sigma_bias", be.sigma_bias});
+      value = be.value;
+      sigma = be.sigma;
+      if (key == "fwhm_as") {
+        res.extra.push_back({"xuv.fwhm_as_sigma_statistical", be.sigma_statistical});
+        res.extra.push_back(
+            {"xuv.fwhm_as_sigma_systematic", std::hypot(be.sigma_systematic, be.sigma_bias)});
+        if (be.spread > 0) fwhm_bias_over_sigma = std::abs(be.bias) / be.spread;
+      }
+    };
+    // The method's own systematic (RetrieveOptions::method_sigma_relative) as a floor.
+    auto with_floor = [&](double sys, const std::optional<double>& value) {
+      return value ? std::max(sys, opt.method_sigma_relative * std::abs(*value)) : sys;
+    };
+    corrected("fwhm_as", res.xuv->fwhm_as, res.xuv->fwhm_as_sigma, bf,
+              with_floor(systematic([](const PulseMetrics& c) { return c.xuv.fwhm_as; }),
+                         res.xuv->fwhm_as));
+    corrected("gdd_as2", res.xuv->gdd_as2, res.xuv->gdd_as2_sigma, bg,
+              systematic([](const PulseMetrics& c) { return c.xuv.gdd_as2; }));
+    corrected(
+        "peak_vector_potential_au", res.ir->peak_vector_potential_au,
+        res.ir->peak_vector_potential_au_sigma, ba,
+        with_floor(systematic([](const PulseMetrics& c) { return c.ir.peak_vector_potential_au; }),
+                   res.ir->peak_vector_potential_au));
+    // The satellite ratio decides the class and is never moved; its sigma follows the same rule
+    // as the other headline numbers (replica spread, an uncorrected bias, the chain's
+    // systematic spread), and a bias that would be corrected widens it as well.
+    const BootstrapEstimate se = bootstrap_estimate(
+        v.satellite_intensity_ratio.value_or(0.0), bs, systematic([](const PulseMetrics& c) {
+          return std::optional<double>(c.satellite_intensity_ratio);
+        }));
+    v.satellite_intensity_ratio_sigma = std::hypot(se.sigma, se.corrected ? se.bias : 0.0);
+    res.extra.push_back({"bootstrap.satellite_intensity_ratio_bias", se.bias});
+    res.extra.push_back(
+        {"bootstrap.satellite_intensity_ratio_sigma_statistical", se.sigma_statistical});
+    res.extra.push_back(
+        {"bootstrap.satellite_intensity_ratio_sigma_systematic", se.sigma_systematic});
+  } else {
+    res.warnings.push_back("no bootstrap replicas (--bootstrap < 2): no uncertainties reported");
+  }
+  if (v.pulse_class == PulseClass::kTrain && rec.model == "cma")
+    res.warnings.push_back(
+        "pulse train retrieved with one central momentum (momentum nodes not used): the burst "
+        "phases (attochirp) are reliable, but one p0 for the whole harmonic comb distorts the "
+        "harmonic amplitudes (transform-limited burst ~6 % long) and the IR peak A0 (+49 % on "
+        "the argon RABBITT preset, docs/validation.md); use the ptychographic engine's momentum "
+        "nodes or `rabbitt`");
+  else if (v.pulse_class == PulseClass::kTrain)
+    res.warnings.push_back(
+        "pulse train: xuv.gdd_as2 is fitted over every bin above 5 % of the peak, including the "
+        "phases between harmonics; use the harmonic phases (`rabbitt`, or the attochirp of the "
+        "retrieved harmonics) for the chirp; the IR peak A0 of a weak RABBITT field came out "
+        "3-6 % high on validation scans (docs/validation.md)");
+  res.verdict = v;
+  FitSection f;
+  f.trace_error = rec.trace_error;
+  long long its = 0;
+  double secs = 0;
+  for (const auto& c : out.chain) {
+    its += static_cast<long long>(c.history.size());
+    secs += c.seconds;
+  }
+  f.iterations = its;
+  f.converged = rec.converged();
+  f.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t_start).count();
+  f.noise_model = rec.noise_model;  // the final engine's (Reconstruction::noise_model)
+  f.termination = std::string(to_string(rec.termination)) + ": " + rec.message;
+  res.fit = f;
+  for (const auto& w : out.preprocess.warnings) res.warnings.push_back(w);
+  if (!rec.converged()) res.warnings.push_back("the engine did not converge: " + rec.message);
+
+  auto P = [&](const std::string& k, auto v2) { res.extra.push_back({k, v2}); };
+  const PreprocessSummary& s = out.preprocess;
+  append_preprocess_params(s, &res.extra);
+  if (res.lines.empty()) res.lines = s.lines;
+  // Relative delays of the other lines (retrieval/analysis/line_delays.h), on the whole scan; not
+  // on a harmonic comb (each line is then a comb of harmonics: the sideband analysis applies).
+  const bool comb = trace.meta.kind == TraceKind::kRabbitt || v.pulse_class == PulseClass::kTrain;
+  if (res.lines.size() >= 2 && comb &&
+      !(opt.line_delays.names.size() == 1 && opt.line_delays.names[0] == "none"))
+    res.warnings.push_back(
+        "line delays not measured: the scan is a pulse train (harmonic comb); the "
+        "centre-of-energy method assumes one isolated line per ionic state");
+  if (lines_step.centre_of_energy) {  // measured before the bootstrap (joint fit, multi_line_fit.h)
+    for (const auto& w : lines_step.centre_of_energy->warnings) res.warnings.push_back(w);
+    for (const auto& w : lines_step.warnings) res.warnings.push_back(w);
+    joint_line_report(lines_step, opt.bootstrap, &res.lines, &res.extra, &out.line_curves);
+  }
+  P("fit.model", rec.model);
+  P("fit.noise_floor_trace_error", rec.noise_floor_trace_error);
+  P("fit.scale", rec.scale);
+  if (opt.engine == "auto") {
+    P("fit.cma_phase_error_rad", out.cma_phase_error_rad);
+    P("fit.cma_trace_error_ratio", out.cma_trace_error_ratio);
+    if (!out.full_model_start.empty()) P("fit.full_model_start", out.full_model_start);
+  }
+  std::string chain;
+  for (const auto& c : out.chain) chain += (chain.empty() ? "" : " -> ") + c.engine;
+  P("fit.engine_chain", chain);
+  // What the CMA run of the chain modelled (theory.md: momentum nodes, data projection).
+  for (const auto& c : out.chain) {
+    if (c.model != "cma" && c.model != "banded-cma") continue;
+    for (const auto& [key, value] : c.settings)
+      if (key == "momentum_bands" || key == "momentum_bands_from_iteration" ||
+          key == "momentum_band_frame" || key == "projection")
+        P("fit.cma." + key, value);
+    break;
+  }
+  append_settings_echo(opt, &res.extra);  // settings.* from RetrieveOptions::describe
+
+  // Energy support (recorded once, whoever writes the preprocess block).
+  auto once = [&](const std::string& k, double v2) {
+    if (!find_param(res.extra, k)) P(k, v2);
+  };
+  if (s.support_hi_eV > s.support_lo_eV) {  // absent when no support was found
+    once("preprocess.support_lo_eV", s.support_lo_eV);
+    once("preprocess.support_hi_eV", s.support_hi_eV);
+  }
+  once("preprocess.support_peak_sigma", s.support_peak_sigma);
+
+  // Quality section (retrieval/analysis/quality.h).
+  QualitySection q;
+  add_signal_checks(q, trace.counts, s.background_counts, opt.quality);
+  RetrievalEvidence e;
+  e.trace_error = rec.trace_error;
+  e.noise_floor_trace_error = rec.noise_floor_trace_error;
+  e.fwhm_as = res.xuv->fwhm_as.value_or(0.0);
+  e.transform_limited_fwhm_as = res.xuv->transform_limited_fwhm_as.value_or(0.0);
+  {
+    const auto ne = pr.intensity.cols();
+    Eigen::Index lo = 0, hi = ne - 1;
+    if (pr.support_hi_au > pr.support_lo_au) {
+      while (lo < ne - 1 && pr.energy_au[static_cast<std::size_t>(lo)] < pr.support_lo_au) ++lo;
+      while (hi > lo && pr.energy_au[static_cast<std::size_t>(hi)] > pr.support_hi_au) --hi;
+    }
+    e.energy_support_share = s.support_core_share;
+    e.field_free_rows = static_cast<double>(s.field_free_rows);
+    // Class margin: the satellite ratio against the nearest threshold, in bootstrap sigmas.
+    const VerdictSection& vd = *res.verdict;
+    if ((vd.pulse_class == PulseClass::kIsolated ||
+         vd.pulse_class == PulseClass::kIsolatedWithSatellites) &&
+        vd.satellite_intensity_ratio && vd.satellite_intensity_ratio_sigma &&
+        *vd.satellite_intensity_ratio_sigma > 0) {
+      const double r = *vd.satellite_intensity_ratio;
+      const double d = std::min(std::abs(r - opt.isolated_max_satellite_ratio),
+                                std::abs(r - opt.satellites_max_satellite_ratio));
+      e.class_margin_sigma = d / *vd.satellite_intensity_ratio_sigma;
+    }
+    if (rec.retrieved.rows() == pr.intensity.rows() && rec.retrieved.cols() == ne &&
+        pr.variance.size() == pr.intensity.size()) {
+      double noise = 0;
+      const Eigen::VectorXd meas = pr.intensity.colwise().sum().transpose();
+      const Eigen::VectorXd model = rec.retrieved.colwise().sum().transpose();
+      const Eigen::VectorXd var = pr.variance.colwise().sum().transpose();
+      const double mis = spectrum_mismatch(meas, model, var, lo, hi, &noise);
+      e.spectrum_mismatch = mis;
+      e.spectrum_mismatch_noise = noise;
+    }
+  }
+  e.energy_outside_support = m.energy_outside_support;
+  e.fwhm_as_sigma = res.xuv->fwhm_as_sigma;
+  e.peak_vector_potential_au = res.ir->peak_vector_potential_au;
+  e.peak_vector_potential_au_sigma = res.ir->peak_vector_potential_au_sigma;
+  if (rec.model != "full" && rec.ir.size() >= 5) {
+    e.cma_phase_error_rad =
+        opt.engine == "auto" && out.chain.size() == 1 ? out.cma_phase_error_rad : cma_error_of(rec);
+    e.cma_phase_error_max_rad = opt.cma_phase_error_max_rad;
+    e.momentum_nodes = rec.model == "banded-cma";
+  }
+  {
+    // Two full-model starts (auto, when the CMA stalled), and the CMA run against the result.
+    std::vector<const Reconstruction*> full;
+    const Reconstruction* cma = nullptr;
+    for (std::size_t ci = 0; ci < out.chain.size(); ++ci) {
+      const Reconstruction& c = out.chain[ci];
+      if (c.model == "full") {
+        if (ci >= first_same) full.push_back(&c);  // starts on the headline's problem
+      } else if (!cma) {
+        cma = &c;
+      }
+    }
+    const double f_final = res.xuv->fwhm_as.value_or(0.0);
+    auto fwhm_of = [&](const Reconstruction& c) {
+      return *pulse_metrics(c, pr.ir_omega_au, band_lo, band_hi).xuv.fwhm_as;
+    };
+    if (full.size() >= 2 && f_final > 0) {
+      const Reconstruction& a = *full[full.size() - 2];
+      const Reconstruction& b = *full.back();
+      e.start_disagreement = std::abs(fwhm_of(a) - fwhm_of(b)) / f_final;
+      const double g_lo = std::min(a.trace_error, b.trace_error),
+                   g_hi = std::max(a.trace_error, b.trace_error);
+      e.starts_comparable = g_hi <= opt.quality.comparable_fit_ratio * g_lo;
+    }
+    if (cma && rec.model == "full" && f_final > 0)
+      e.engine_disagreement = std::abs(fwhm_of(*cma) - f_final) / f_final;
+  }
+  e.bias_over_sigma = fwhm_bias_over_sigma;
+  e.peak_counts = peak_signal_counts(trace.counts, s.background_counts);
+  if (rec.ir.size() >= 8 && rec.ir.peak_vector_potential() > 0)
+    e.ir_field_ratio =
+        rec.ir.peak_electric_field() / (pr.ir_omega_au * rec.ir.peak_vector_potential());
+  e.ir_period_mismatch = ir_mismatch;
+  add_retrieval_checks(q, e, opt.quality);
+  res.quality = q;
+  if (!q.trusted) {
+    std::string failed;
+    for (const auto& c : q.checks)
+      if (!c.pass && c.guards_headline) failed += (failed.empty() ? "" : ", ") + c.name;
+    res.warnings.push_back("the result is not trusted: failed quality checks " + failed +
+                           " (the numbers are written; see quality in result.json)");
+  }
+  return out;
+}
+
+}  // namespace sw

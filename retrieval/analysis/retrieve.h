@@ -1,0 +1,318 @@
+#pragma once
+// The streaking-retrieval pipeline behind `streakwright retrieve` (and batch): preprocess ->
+// engine (or a chain of engines) -> time-origin fix -> pulse and field metrics -> verdict ->
+// Poisson-bootstrap uncertainties -> quality checks (retrieval/analysis/quality.h) ->
+// AnalysisResult. Library code: no files are written here.
+//
+// The XUV metrics come from the in-support field (preprocess's energy support, retrieval/
+// support.h; the engines keep the spectrum zero outside it). The IR wavelength reported is the
+// sidecar's; the retrieved field's own period goes to ir.wavelength_nm_retrieved, with a
+// warning above 2 % and the check ir_period_vs_sidecar.
+//
+// Engine "auto": run the fast CMA engine (ptychographic); then estimate the CMA's own error
+// from the retrieved field: the phase the CMA neglects is (p - p0) * (I1(t) - I1_mid) across
+// the photoelectron band, evaluated at the band's FWHM edges. When it exceeds
+// `cma_phase_error_max_rad` (default 0.6 rad, our choice: the reference 150 as neon case at 5e12
+// W/cm^2 sits at 0.38 rad and is retrieved within 3 % by the CMA; the broadband helium case sits at
+// ~1 rad) the full-model engine refines the CMA result (DESIGN.md: "switch to the full model when
+// the bandwidth is not small"). It also refines when the CMA engine stopped with its trace error
+// above `cma_trace_error_max_ratio` (default 2, our choice) times the noise floor: on the
+// satellite preset the CMA engines stall at 4-5 x the floor with the satellites too small,
+// and the full model started from that result reaches the floor (docs/validation.md); the
+// clean presets sit at 1.0-1.25 x. It also refines when the CMA's IR field fails the
+// ir_field_vs_vector_potential limit (max |E| > QualityOptions::max_ir_field_ratio x omega
+// max |A|: noise in A(t)); on the imperfections set that took a 25-count wide-window scan
+// from +10 % to +4.6 % and CEP-jittered krypton's A0 from +24 % to +1.6 % (docs/validation.md). In
+// that case the full model runs twice, from the CMA result and from its own guess (parametric IR),
+// and the better fit is kept.
+//
+// Uncertainties: parametric bootstrap (Wang, Zeek, Trebino and Kvam, JOSA B 20, 2400 (2003),
+// with Poisson resampling of the counts in place of resampling data points): each replica is
+// a Poisson draw of the measured counts, preprocessed identically and, by default
+// (`uncertainty` = full), analysed by the same engine chain from the same kind of start;
+// `uncertainty` = warm starts the final engine from the estimate instead (retrieval/
+// uncertainty.h, docs/theory.md). The replicas run concurrently on `threads` worker threads
+// (retrieval/analysis/thread_pool.h). Per headline number (FWHM, GDD, A0):
+//   s_stat = t_B x sample standard deviation of the B replicas, t_B the Student factor of the
+//            central 68.27 % interval with B - 1 degrees of freedom (1.20 for B = 4, 1.08 for
+//            B = 8; Student, Biometrika 6, 1 (1908)): a few replicas under-estimate the spread;
+//   bias   = mean(replicas) - estimate (Efron and Tibshirani, An Introduction to the
+//            Bootstrap, Chapman & Hall 1993, ch. 10). Corrected (value - bias, sigma_stat =
+//            s_stat sqrt(1 + 1/B)) only when 2 s_stat / sqrt(B) <= |bias| <= s_stat
+//            (significant against the bias estimate's own standard error, and small against
+//            sigma: the correction cannot move the value by more than its sigma; with B <= 4
+//            never). Otherwise, unless negligible (< s_stat / 4), the value stays and the bias
+//            enters sigma (the replicas, with the noise doubled, may show an effect that is
+//            systematic, not statistical);
+//   s_sys  = the retrieval's own spread: the sample standard deviation of the number over the
+//            chain's runs whose fits are equally good (G within QualityOptions::
+//            comparable_fit_ratio of the best; a CMA run only when its phase error is within
+//            the limit), 0 with one such run;
+//            for the FWHM and A0 at least `method_sigma_relative` x |value| (the method's own
+//            accuracy on scans it was not tuned on, see the option);
+//   sigma  = sqrt(s_stat^2 + s_sys^2 + (uncorrected bias)^2), each part written under
+//            bootstrap.* (and xuv.fwhm_as_sigma_statistical / _systematic).
+
+#include <array>
+#include <functional>
+#include <string>
+#include <vector>
+
+#include "retrieval/analysis/line_delays.h"
+#include "retrieval/analysis/quality.h"
+#include "retrieval/analysis/uncertainty.h"
+#include "retrieval/core/option_spec.h"
+#include "retrieval/core/result.h"
+#include "retrieval/core/trace.h"
+#include "retrieval/engines/engine.h"
+#include "retrieval/preprocess/preprocess.h"
+
+namespace sw {
+
+/// Options of the streaking retrieval. Each field is described once, in describe() below
+/// (bounds, unit, help, CLI flag, batch config key; retrieval/core/option_spec.h): validate(), the
+/// flags of `retrieve` and `batch`, the batch config file, the settings.* echo in result.json
+/// and the batch option strings are all walks of that description.
+struct RetrieveOptions {
+  /// "auto", or a registered engine name (make_engine lists them).
+  std::string engine = "auto";
+  /// Iterations of the (first) engine; 0 = the engine's default (EngineOptions).
+  int iterations = 0;
+  /// Bootstrap replicas for the uncertainties (>= 0; 0 = no sigmas, with a warning).
+  int bootstrap = 8;
+  /// Seed of the random delay order and the bootstrap draws.
+  unsigned long long seed = 1;
+  /// Worker threads of the analysis (>= 0; 0 = the machine's hardware threads): the bootstrap
+  /// replicas run concurrently, one per thread (retrieval/analysis/thread_pool.h); every engine
+  /// runs single-threaded, so the results are bit-identical for any value.
+  int threads = 0;
+  /// How the bootstrap replicas start (retrieval/analysis/uncertainty.h): kFull = the whole engine
+  /// chain from scratch (default), kWarm = the final engine from the estimate.
+  UncertaintyMethod uncertainty = UncertaintyMethod::kFull;
+  /// kWarm: a replica stops when |G_k - G_{k-warm_patience}| / G_k is below
+  /// max(relative_tolerance, noise_floor_relative_tolerance) of EngineOptions (>= 1). Default 5
+  /// iterations (our choice): from the converged estimate the replica only follows the linear
+  /// response to its extra noise. On the sat2-ne validation scan (full model, 4 replicas) the
+  /// analysis took 23.6 s CPU with 20 (the cold-start patience), 13.2 s with 5, and 17-19 s
+  /// with the full chain (docs/performance.md).
+  int warm_patience = 5;
+  /// auto: largest CMA phase error (rad) tolerated before the full model refines.
+  double cma_phase_error_max_rad = 0.6;
+  /// auto: largest G / G_noise (trace error over its noise floor) accepted from the CMA
+  /// engine before the full model refines (> 1). A CMA result well above the floor has not
+  /// explained the data -- a local minimum (multi-burst pulses) or a CMA-limited case.
+  double cma_trace_error_max_ratio = 2.0;
+  /// Verdict thresholds (DESIGN.md defaults, common practice, no published standard).
+  double isolated_max_satellite_ratio = 0.10;
+  double satellites_max_satellite_ratio = 0.70;
+  /// auto: when the full model ran and its burst has no satellite above
+  /// isolated_max_satellite_ratio, run it twice more from that burst with satellites of
+  /// `satellite_start_ratio` at -+T/2 (each field sign; retrieval/physics/satellite_seed.h) and
+  /// keep a start that fits better; an equally good start enters the systematic spread of the FWHM
+  /// and of the satellite ratio (so class_margin_sigma sees a class the data cannot decide).
+  bool satellite_start = true;
+  /// Intensity ratio of the seeded satellites (in (0, 1); 0.2, between the isolated and the
+  /// satellites thresholds: our choice).
+  double satellite_start_ratio = 0.2;
+  /// Wall-time budget for the whole analysis (s).
+  double max_seconds = 900.0;
+  /// Relative systematic uncertainty of the retrieval method itself, a floor on s_sys of the
+  /// FWHM and of A0 (>= 0; 0 = off). Default 0.01: the rms error of the "good scans" block of
+  /// the imperfections validation set (docs/validation.md: 1.1 % in FWHM, 1.0 % in A0 over six
+  /// clean scans of five gases; a counting-noise sigma alone left four of them outside 2 sigma).
+  /// The other 31 cases of that set were not used to choose it.
+  double method_sigma_relative = 0.01;
+  PreprocessOptions preprocess;
+  /// Limits of the quality checks (retrieval/analysis/quality.h).
+  QualityOptions quality;
+  /// Relative delays of the other photoelectron lines (retrieval/analysis/line_delays.h); run when
+  /// preprocessing found two or more lines; its seed follows `seed`.
+  LineDelayOptions line_delays;
+  std::vector<std::pair<std::string, std::string>> engine_extra;
+
+  /// The one description of the fields above that the CLI, config files and the result echo
+  /// use (retrieval/core/option_spec.h). Order = order of settings.* in result.json.
+  template <class Self, class V>
+  static void describe(Self& self, V& v) {
+    v(OptionSpec{.name = "engine",
+                 .help =
+                     "reconstruction engine: auto or a registered engine (see `retrieve --help`)",
+                 .flag = "--engine",
+                 .config_key = "engine"},
+      self.engine);
+    v(OptionSpec{.name = "iterations",
+                 .help = "iterations of the first engine; 0 = engine default (300)",
+                 .min = 0,
+                 .flag = "--iterations",
+                 .config_key = "iterations"},
+      self.iterations);
+    v(OptionSpec{.name = "bootstrap",
+                 .help = "Poisson-bootstrap replicas for the uncertainties (0 = none)",
+                 .min = 0,
+                 .flag = "--bootstrap",
+                 .config_key = "bootstrap"},
+      self.bootstrap);
+    v(OptionSpec{.name = "seed",
+                 .help = "seed of the delay order and the bootstrap draws (batch: the base seed; "
+                         "each scan derives its own)",
+                 .flag = "--seed",
+                 .config_key = "seed"},
+      self.seed);
+    v(OptionSpec{.name = "threads",
+                 .help =
+                     "worker threads for the bootstrap replicas (0 = the machine's cores; batch: "
+                     "1 per job with --jobs > 1); results do not depend on it",
+                 .min = 0,
+                 .flag = "--threads",
+                 .config_key = "threads"},
+      self.threads);
+    v(OptionSpec{.name = "uncertainty",
+                 .help = "bootstrap replicas from scratch (full) or warm-started from the estimate "
+                         "(warm); docs/theory.md",
+                 .choices = "full|warm",
+                 .flag = "--uncertainty",
+                 .config_key = "uncertainty"},
+      self.uncertainty);
+    v(OptionSpec{.name = "warm_patience",
+                 .help = "warm replicas: iterations over which G must change by < 1e-3 to stop",
+                 .min = 1},
+      self.warm_patience);
+    v(OptionSpec{.name = "cma_phase_error_max_rad",
+                 .unit = "rad",
+                 .help = "auto: CMA phase error above which the full model refines",
+                 .min = 0,
+                 .min_open = true,
+                 .flag = "--cma-phase-limit",
+                 .config_key = "cma_phase_limit"},
+      self.cma_phase_error_max_rad);
+    v(OptionSpec{.name = "cma_trace_error_max_ratio",
+                 .help = "auto: CMA trace error / noise floor above which the full model refines",
+                 .min = 1,
+                 .min_open = true,
+                 .flag = "--cma-fit-limit",
+                 .config_key = "cma_fit_limit"},
+      self.cma_trace_error_max_ratio);
+    v(
+        OptionSpec{
+            .name = "method_sigma_relative",
+            .help = "relative systematic uncertainty of the method (floor of s_sys of FWHM and A0)",
+            .min = 0,
+            .max = 1,
+            .max_open = true,
+            .batch = false},  // not settable in batch: constant there
+        self.method_sigma_relative);
+    v(
+        OptionSpec{
+            .name = "isolated_max_satellite_ratio",
+            .help =
+                "verdict: largest satellite/main intensity ratio for 'isolated' (common practice)",
+            .min = 0,
+            .min_open = true,
+            .max = 1,
+            .flag = "--isolated-max",
+            .config_key = "isolated_max"},
+        self.isolated_max_satellite_ratio);
+    v(
+        OptionSpec{
+            .name = "satellites_max_satellite_ratio",
+            .help =
+                "verdict: upper limit of the satellite/main ratio for 'isolated_with_satellites'",
+            .min = 0,
+            .min_open = true,
+            .max = 1,
+            .flag = "--satellites-max",
+            .config_key = "satellites_max"},
+        self.satellites_max_satellite_ratio);
+    v(OptionSpec{.name = "satellite_start",
+                 .help = "auto: also start the full model from its burst with satellites at -+T/2 "
+                         "(on by default)",
+                 .flag = "--satellite-start,!--no-satellite-start",
+                 .config_key = "satellite_start"},
+      self.satellite_start);
+    v(OptionSpec{.name = "satellite_start_ratio",
+                 .help = "intensity ratio of the satellites of that start",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 1,
+                 .max_open = true},
+      self.satellite_start_ratio);
+    v(OptionSpec{.name = "dipole",
+                 .help = "dipole model of the photoionisation",
+                 .choices = "constant|hydrogenic",
+                 .flag = "--dipole",
+                 .config_key = "dipole"},
+      self.preprocess.dipole);
+    v(OptionSpec{.name = "despike",
+                 .help = "replace isolated hot pixels (no smoothing; on by default)",
+                 .flag = "--despike,!--no-despike",
+                 .config_key = "despike",
+                 .echo = false},
+      self.preprocess.remove_hot_pixels);
+    v(OptionSpec{.name = "max_seconds",
+                 .unit = "s",
+                 .help = "wall-time budget of the analysis of one scan",
+                 .min = 0,
+                 .min_open = true,
+                 .flag = "--max-seconds",
+                 .config_key = "max_seconds",
+                 .echo = false},
+      self.max_seconds);
+  }
+  std::string validate() const;
+};
+
+/// Progress report: stage ("ptychographic", "full-model", "bootstrap 3/8"), iteration record.
+/// Called from the replicas' worker threads too, one call at a time (retrieve() serialises them).
+using RetrieveProgress = std::function<void(const std::string& stage, const IterationRecord&)>;
+
+struct RetrieveOutput {
+  AnalysisResult result;
+  RetrievalProblem problem;
+  PreprocessSummary preprocess;
+  Reconstruction reconstruction;       ///< final (time origin fixed)
+  std::vector<Reconstruction> chain;   ///< every engine run, in order
+  double cma_phase_error_rad = 0.0;    ///< estimate used by auto
+  double cma_trace_error_ratio = 0.0;  ///< G / G_noise of the CMA run (auto; 0 = no floor)
+  std::string full_model_start;        ///< auto: where the full model's result started
+  /// Bootstrap replicas' headline numbers (fwhm_as, gdd_as2, A0, satellite ratio).
+  std::vector<std::array<double, 4>> bootstrap_samples;
+  /// First moment of each analysed line versus delay with the joint fit (reference first;
+  /// empty when fewer than two lines were analysed).
+  std::vector<LineCurve> line_curves;
+};
+
+/// Runs the pipeline. Throws sw::Error for bad options (kUsage) or data (kInput); a
+/// non-converged engine still returns its best estimate with fit.converged = false.
+RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& options,
+                        const RetrieveProgress& progress = {});
+
+/// Headline metrics of a reconstruction (used by retrieve and by tests). With a support band
+/// (photon energies lo < hi, a.u.) every XUV metric comes from the in-support field
+/// (within_band): noise outside the signal's band adds neither width nor a pedestal.
+/// FWHM and transform limit are measured with >= 16 samples per FWHM (intensity_fwhm).
+/// ir.wavelength_nm is the period of the retrieved A(t) (mean spacing of its zero crossings
+/// where |A| > 0.3 A0); retrieve() reports the sidecar's wavelength and keeps this one as
+/// ir.wavelength_nm_retrieved.
+struct PulseMetrics {
+  XuvSection xuv;
+  IrSection ir;
+  double satellite_intensity_ratio = 0.0;
+  double main_burst_energy_fraction = 1.0;
+  int comparable_bursts = 1;
+  double energy_outside_support = 0.0;  ///< share of |E~|^2 outside the band (0 without one)
+};
+PulseMetrics pulse_metrics(const Reconstruction& r, double ir_omega_au,
+                           double support_lo_photon_au = 0.0, double support_hi_photon_au = 0.0);
+
+/// Moves the XUV so its intensity centroid is at s = 0 and the IR with it (the common time
+/// shift ambiguity), so that tau = 0 means the XUV centroid coincides with IR time 0.
+void fix_time_origin(Reconstruction& r);
+
+/// The CMA's neglected phase (rad) for a retrieved IR field over a photoelectron band.
+double cma_phase_error(const IrField& ir, double p0_au, double band_lo_au, double band_hi_au,
+                       double t_first_au, double t_last_au);
+
+/// Envelope FWHM (a.u.) of a real field sampled uniformly (|analytic signal|^2).
+double envelope_fwhm(const std::vector<double>& samples, double dt_au);
+
+}  // namespace sw

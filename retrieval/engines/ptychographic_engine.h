@@ -1,0 +1,78 @@
+#pragma once
+// The "ptychographic" engine: ePIE (extended ptychographical iterative engine, A. M. Maiden
+// and J. M. Rodenburg, Ultramicroscopy 109, 1256 (2009)) applied to attosecond streaking in
+// the central-momentum approximation (M. Lucchini et al., Opt. Express 23, 29502 (2015)).
+//
+// Object: the XUV envelope eps(s) on the problem's grid. Probe: the unit-modulus CMA phase
+// gate G(t) = exp(i phi(t)), phi = -p0 I1 - I2/2 (retrieval/physics/gate.h). For each delay tau_j,
+// in a seeded random order every iteration, the exit wave psi_j(s) = eps(s) G(s + tau_j) is Fourier
+// transformed, its modulus replaced by the measured sqrt(I) on the measured bins
+// (retrieval/engines/cma_problem.h), transformed back, and both factors are updated:
+//   eps += beta_object conj(G_j) (psi' - psi) / max|G_j|^2            (max|G_j|^2 = 1),
+//   G_j += beta_gate   conj(eps) (psi' - psi) / max|eps|^2,
+// the gate update being scattered onto the gate table by the transpose of its interpolation
+// and renormalised to |G| = 1 (a phase increment arg(1 + dG/G)). Exactly two FFTs per delay.
+// The gate update is applied where |eps|^2 >= 1e-4 max|eps|^2 (the support, recomputed every
+// iteration; elsewhere it is below 1 % of its peak), and the gate is sampled there with
+// cubic, elsewhere with linear interpolation (retrieval/physics/gate.h: the difference changes psi
+// by < 2e-4 of its peak). After each sweep: the field-free-spectrum constraint and, every
+// gate_smoothing_interval iterations, the smooth-gate projection. The estimate of the
+// iteration with the lowest running trace error is the one returned.
+//
+// Step sizes: beta_object = 0.1 and beta_gate = 1.5 by default. Every XUV sample appears in
+// every exit wave (the gate has no compact support), so the object step is small, an
+// exponential average over ~10 delays; the gate is localised by eps and takes a larger step.
+// Chosen on the synthetic traces of tests/test_ptychographic.cpp (noise-free and Poisson;
+// beta_gate in [1, 2] and beta_object in [0.1, 0.5] all converge there).
+//
+// Extra options (EngineOptions::extra, name=value): the fields of PtychographicSettings below,
+// described once in its describe() (the step sizes above, the momentum nodes and the CMA
+// settings of retrieval/engines/cma_problem.h).
+
+#include <memory>
+
+#include "retrieval/engines/cma_problem.h"
+#include "retrieval/engines/engine.h"
+
+namespace sw {
+
+/// The engine's typed settings (read from EngineOptions::extra through describe()).
+struct PtychographicSettings {
+  double beta_object = 0.1;  ///< ePIE step size of the XUV (object) update
+  double beta_gate = 1.5;    ///< ePIE step size of the gate (probe) update
+  int momentum_bands = 0;    ///< momentum nodes (CmaSettings::momentum_bands; 0 = auto)
+  /// The CMA settings, with this engine's default data projection (Poisson).
+  CmaSettings cma{.projection = CmaProjection::kPoisson};
+
+  template <class Self, class V>
+  static void describe(Self& self, V& v) {
+    v(OptionSpec{.name = "beta_object",
+                 .help = "ePIE step size of the XUV (object) update",
+                 .min = 1e-6,
+                 .max = 2},
+      self.beta_object);
+    v(OptionSpec{.name = "beta_gate",
+                 .help = "ePIE step size of the gate (probe) update",
+                 .min = 0,
+                 .max = 2},
+      self.beta_gate);
+    v(
+        OptionSpec{
+            .name = "momentum_bands",
+            .help =
+                "momentum nodes of the banded CMA, each a gate with its own central momentum, rows "
+                "interpolated between them (cma_problem.h): 1 = one p0, 0 = auto (node spacing <= "
+                "0.15 "
+                "p0, 2 to 8 nodes; used only when the one-p0 fit stalls above 1.1 x the noise "
+                "floor)",
+            .min = 0,
+            .max = 16},
+        self.momentum_bands);
+    CmaSettings::describe(self.cma, v);
+  }
+  std::string validate() const { return validate_described(*this); }  ///< names field and rule
+};
+
+std::unique_ptr<Engine> make_ptychographic_engine();
+
+}  // namespace sw

@@ -1,0 +1,361 @@
+#include "retrieval/physics/gate.h"
+
+#include <algorithm>
+#include <cmath>
+#include <stdexcept>
+
+#include "retrieval/core/hot_loop.h"
+
+namespace sw {
+
+namespace {
+
+// Uniform cubic B-spline weights of coefficients i..i+3 at fraction f in [0, 1].
+inline void bspline_weights(double f, double b[4]) {
+  const double g = 1.0 - f, f2 = f * f, f3 = f2 * f;
+  b[0] = g * g * g / 6.0;
+  b[1] = (3.0 * f3 - 6.0 * f2 + 4.0) / 6.0;
+  b[2] = (-3.0 * f3 + 3.0 * f2 + 3.0 * f + 1.0) / 6.0;
+  b[3] = f3 / 6.0;
+}
+
+// d/df of the same weights.
+inline void bspline_slopes(double f, double b[4]) {
+  const double g = 1.0 - f;
+  b[0] = -0.5 * g * g;
+  b[1] = 0.5 * (3.0 * f * f - 4.0 * f);
+  b[2] = 0.5 * (-3.0 * f * f + 2.0 * f + 1.0);
+  b[3] = 0.5 * f * f;
+}
+
+// Four-point cubic Lagrange weights for nodes -1, 0, 1, 2 at fraction f.
+inline void lagrange_weights(double f, double* w) {
+  w[0] = -f * (f - 1.0) * (f - 2.0) / 6.0;
+  w[1] = (f + 1.0) * (f - 1.0) * (f - 2.0) / 2.0;
+  w[2] = -(f + 1.0) * f * (f - 2.0) / 2.0;
+  w[3] = (f + 1.0) * f * (f - 1.0) / 6.0;
+}
+
+// Knot index and fraction of time t on a spline, clamped to the covered range.
+inline std::size_t locate(const SmoothPhase& s, double t, double* f) {
+  const std::size_t last = s.coef.size() - 4;
+  double u = (t - s.t0) / s.h;
+  u = std::clamp(u, 0.0, static_cast<double>(last) + 1.0);
+  std::size_t i = static_cast<std::size_t>(u);
+  if (i > last) i = last;
+  *f = u - static_cast<double>(i);
+  return i;
+}
+
+}  // namespace
+
+double SmoothPhase::value(double t) const {
+  if (coef.size() < 4) return 0.0;
+  double f, b[4];
+  const std::size_t i = locate(*this, t, &f);
+  bspline_weights(f, b);
+  return b[0] * coef[i] + b[1] * coef[i + 1] + b[2] * coef[i + 2] + b[3] * coef[i + 3];
+}
+
+double SmoothPhase::derivative(double t) const {
+  if (coef.size() < 4) return 0.0;
+  double f, b[4];
+  const std::size_t i = locate(*this, t, &f);
+  bspline_slopes(f, b);
+  return (b[0] * coef[i] + b[1] * coef[i + 1] + b[2] * coef[i + 2] + b[3] * coef[i + 3]) / h;
+}
+
+double SmoothPhase::t_last() const {
+  return coef.size() < 4 ? t0 : t0 + static_cast<double>(coef.size() - 3) * h;
+}
+
+PhaseGate::PhaseGate(const TimeGrid& g, const std::vector<double>& delay, double knot_step)
+    : n_(g.size()), dt_(g.dt()) {
+  if (delay.empty()) throw std::invalid_argument("PhaseGate: no delays");
+  h_ = std::max(knot_step, dt_);
+  t0_ = g.time(0) + delay.front() - dt_;
+  const std::size_t nd = delay.size();
+  first_.resize(nd);
+  weights_.assign(4 * nd, 0.0);
+  frac_.assign(nd, 0.0);
+  exact_.assign(nd, 0);
+  std::size_t last_start = 0;
+  for (std::size_t j = 0; j < nd; ++j) {
+    const double u = (delay[j] - delay.front()) / dt_ + 1.0;
+    auto i = static_cast<std::size_t>(std::floor(u));
+    double f = u - static_cast<double>(i);
+    if (f > 1.0 - 1e-6) {
+      ++i;
+      f = 0.0;
+    }
+    if (f < 1e-6) {
+      exact_[j] = 1;
+      first_[j] = i;
+      weights_[4 * j + 1] = 1.0;
+    } else {
+      exact_all_ = false;
+      first_[j] = i - 1;
+      frac_[j] = f;
+      lagrange_weights(f, &weights_[4 * j]);
+    }
+    last_start = std::max(last_start, i);
+  }
+  table_.assign(last_start + n_ + 3, cdouble(1.0, 0.0));
+}
+
+void PhaseGate::sample(std::size_t j, cdouble* g) const {
+  const double* T = reinterpret_cast<const double*>(table_.data() + first_[j]);
+  double* out = reinterpret_cast<double*>(g);
+  const std::size_t m = 2 * n_;
+  if (exact_[j]) {
+    std::copy(T, T + m, out);
+    return;
+  }
+  const double w0 = weights_[4 * j], w1 = weights_[4 * j + 1], w2 = weights_[4 * j + 2],
+               w3 = weights_[4 * j + 3];
+#pragma omp simd
+  for (std::size_t k = 0; k < m; ++k)
+    out[k] = w0 * T[k] + w1 * T[k + 2] + w2 * T[k + 4] + w3 * T[k + 6];
+}
+
+namespace {
+
+// psi = eps * G with G read from the table (exact shift).
+SW_HOT_LOOP void product_kernel(const double* E, const double* G, double* P, std::size_t n) {
+#pragma omp simd
+  for (std::size_t q = 0; q < n; ++q) {
+    const double er = E[2 * q], ei = E[2 * q + 1], gr = G[2 * q], gi = G[2 * q + 1];
+    P[2 * q] = er * gr - ei * gi;
+    P[2 * q + 1] = er * gi + ei * gr;
+  }
+}
+
+// G = linear interpolation between table nodes T + 2 and T + 4 (per sample), psi = eps * G.
+SW_HOT_LOOP void linear_kernel(const double* T, const double* E, double* G, double* P,
+                               std::size_t a, std::size_t b, double f) {
+  const double f1 = 1.0 - f;
+#pragma omp simd
+  for (std::size_t q = a; q < b; ++q) {
+    const std::size_t k = 2 * q;
+    const double gr = f1 * T[k + 2] + f * T[k + 4], gi = f1 * T[k + 3] + f * T[k + 5];
+    G[k] = gr;
+    G[k + 1] = gi;
+    const double er = E[k], ei = E[k + 1];
+    P[k] = er * gr - ei * gi;
+    P[k + 1] = er * gi + ei * gr;
+  }
+}
+
+// G = 4-tap cubic Lagrange interpolation of the table, psi = eps * G.
+SW_HOT_LOOP void cubic_kernel(const double* T, const double* E, double* G, double* P, std::size_t a,
+                              std::size_t b, const double* w) {
+  const double w0 = w[0], w1 = w[1], w2 = w[2], w3 = w[3];
+#pragma omp simd
+  for (std::size_t q = a; q < b; ++q) {
+    const std::size_t k = 2 * q;
+    const double gr = w0 * T[k] + w1 * T[k + 2] + w2 * T[k + 4] + w3 * T[k + 6];
+    const double gi = w0 * T[k + 1] + w1 * T[k + 3] + w2 * T[k + 5] + w3 * T[k + 7];
+    G[k] = gr;
+    G[k + 1] = gi;
+    const double er = E[k], ei = E[k + 1];
+    P[k] = er * gr - ei * gi;
+    P[k + 1] = er * gi + ei * gr;
+  }
+}
+
+SW_HOT_LOOP void axpy_kernel(double* a, const double* u, std::size_t m, double w) {
+#pragma omp simd
+  for (std::size_t k = 0; k < m; ++k) a[k] += w * u[k];
+}
+
+// a[k + 2q] += w[q] u[k] for q = 0..3 and k < m in one pass over a (the four axpy passes of
+// the interpolated scatter fused; the terms are added to each a[i] in the same order, q = 0..3).
+SW_HOT_LOOP void scatter4_kernel(double* a, const double* u, std::size_t m, const double* w) {
+  const double w0 = w[0], w1 = w[1], w2 = w[2], w3 = w[3];
+  auto edge = [&](std::size_t i) {
+    double acc = a[i];
+    for (std::size_t q = 0; q < 4; ++q)
+      if (i >= 2 * q && i - 2 * q < m) acc += w[q] * u[i - 2 * q];
+    a[i] = acc;
+  };
+  const std::size_t head = std::min<std::size_t>(6, m);
+  for (std::size_t i = 0; i < head; ++i) edge(i);
+#pragma omp simd
+  for (std::size_t i = 6; i < m; ++i)
+    a[i] = a[i] + w0 * u[i] + w1 * u[i - 2] + w2 * u[i - 4] + w3 * u[i - 6];
+  for (std::size_t i = std::max<std::size_t>(6, m); i < m + 6; ++i) edge(i);
+}
+
+SW_HOT_LOOP void unit_kernel(double* V, std::size_t n) {
+#pragma omp simd
+  for (std::size_t m = 0; m < n; ++m) {
+    const double re = V[2 * m], im = V[2 * m + 1];
+    const double s = detail::rsqrt_newton(re * re + im * im + 1e-300);
+    V[2 * m] = re * s;
+    V[2 * m + 1] = im * s;
+  }
+}
+
+}  // namespace
+
+const cdouble* PhaseGate::sample_product(std::size_t j, const cdouble* eps, cdouble* g,
+                                         cdouble* psi, std::size_t lo, std::size_t hi) const {
+  const double* E = reinterpret_cast<const double*>(eps);
+  double* P = reinterpret_cast<double*>(psi);
+  if (exact_[j]) {
+    const cdouble* gp = table_.data() + first_[j];
+    product_kernel(E, reinterpret_cast<const double*>(gp), P, n_);
+    return gp;
+  }
+  const double* T = reinterpret_cast<const double*>(table_.data() + first_[j]);
+  double* G = reinterpret_cast<double*>(g);
+  hi = std::min(hi, n_);
+  lo = std::min(lo, hi);
+  linear_kernel(T, E, G, P, 0, lo, frac_[j]);
+  cubic_kernel(T, E, G, P, lo, hi, &weights_[4 * j]);
+  linear_kernel(T, E, G, P, hi, n_, frac_[j]);
+  return g;
+}
+
+void PhaseGate::scatter(std::size_t j, const cdouble* u, cdouble* acc, std::size_t lo,
+                        std::size_t hi) const {
+  hi = std::min(hi, n_);
+  if (lo >= hi) return;
+  double* A = reinterpret_cast<double*>(acc + first_[j] + lo);
+  const double* U = reinterpret_cast<const double*>(u + lo);
+  const std::size_t m = 2 * (hi - lo);
+  if (exact_[j]) {
+    axpy_kernel(A, U, m, 1.0);
+    return;
+  }
+  scatter4_kernel(A, U, m, &weights_[4 * j]);
+}
+
+void PhaseGate::update(std::size_t j, const cdouble* u, std::size_t lo, std::size_t hi) {
+  hi = std::min(hi, n_);
+  if (lo >= hi) return;
+  scatter(j, u, table_.data(), lo, hi);
+  const std::size_t first = first_[j] + lo;
+  normalize(first, std::min(size(), first + (hi - lo) + (exact_[j] ? 0 : 3)));
+}
+
+void normalize_to_unit(cdouble* v, std::size_t n) { unit_kernel(reinterpret_cast<double*>(v), n); }
+
+void PhaseGate::normalize(std::size_t first, std::size_t last) {
+  if (first < last) normalize_to_unit(table_.data() + first, last - first);
+}
+
+void PhaseGate::rotate(double a) {
+  const cdouble r = std::polar(1.0, a);
+  for (auto& g : table_) g *= r;
+}
+
+void PhaseGate::set_phase(const std::function<double(double)>& phi) {
+  for (std::size_t m = 0; m < table_.size(); ++m) table_[m] = std::polar(1.0, phi(time(m)));
+}
+
+void PhaseGate::coverage(const CVec& eps, std::vector<double>& w) const {
+  w.assign(table_.size(), 0.0);
+  std::vector<double> e2(n_);
+  for (std::size_t n = 0; n < n_; ++n) e2[n] = std::norm(eps[n]);
+  for (std::size_t j = 0; j < first_.size(); ++j) {
+    std::size_t base = first_[j];
+    if (!exact_[j]) base += weights_[4 * j + 2] > weights_[4 * j + 1] ? 2 : 1;
+    double* wj = w.data() + base;
+#pragma omp simd
+    for (std::size_t n = 0; n < n_; ++n) wj[n] += e2[n];
+  }
+}
+
+SmoothPhase PhaseGate::fit_phase(const std::vector<double>& weight) const {
+  const std::size_t M = table_.size();
+  // Unwrapped phase along the table.
+  std::vector<double> ph(M);
+  ph[0] = std::arg(table_[0]);
+  for (std::size_t m = 1; m < M; ++m)
+    ph[m] = ph[m - 1] + std::arg(table_[m] * std::conj(table_[m - 1]));
+
+  SmoothPhase s;
+  s.t0 = time(0);
+  s.h = h_;
+  const std::size_t K = static_cast<std::size_t>(std::floor((time(M - 1) - s.t0) / h_)) + 4;
+  s.coef.assign(K, 0.0);
+  // Banded normal equations: band(k, d) = N(k, k - d), d = 0..3.
+  std::vector<double> band(4 * K, 0.0), rhs(K, 0.0);
+  auto at = [&](std::size_t k, std::size_t d) -> double& { return band[4 * k + d]; };
+  double wmax = 0.0;
+  for (double w : weight) wmax = std::max(wmax, w);
+  const double inv = wmax > 0 ? 1.0 / wmax : 0.0;
+  for (std::size_t m = 0; m < M; ++m) {
+    const double w = (m < weight.size() ? weight[m] : 0.0) * inv;
+    if (!(w > 0)) continue;
+    double f, b[4];
+    const std::size_t i = locate(s, time(m), &f);
+    bspline_weights(f, b);
+    for (std::size_t a = 0; a < 4; ++a) {
+      rhs[i + a] += w * b[a] * ph[m];
+      for (std::size_t c = 0; c <= a; ++c) at(i + a, a - c) += w * b[a] * b[c];
+    }
+  }
+  // Second-difference penalty (linear extension where unconstrained) and a tiny ridge.
+  const double lambda = 1e-3;
+  const double d2[3] = {1.0, -2.0, 1.0};
+  for (std::size_t k = 1; k + 1 < K; ++k)
+    for (std::size_t a = 0; a < 3; ++a)
+      for (std::size_t c = 0; c <= a; ++c) at(k - 1 + a, a - c) += lambda * d2[a] * d2[c];
+  for (std::size_t k = 0; k < K; ++k) at(k, 0) += 1e-12;
+  // Banded Cholesky N = L L^T (L overwrites band), then two triangular solves.
+  for (std::size_t k = 0; k < K; ++k) {
+    for (std::size_t d = std::min<std::size_t>(3, k); d >= 1; --d) {
+      const std::size_t j = k - d;
+      double v = at(k, d);
+      for (std::size_t e = d + 1; e <= 3 && e <= k; ++e) v -= at(k, e) * at(j, e - d);
+      at(k, d) = v / at(j, 0);
+    }
+    double v = at(k, 0);
+    for (std::size_t e = 1; e <= 3 && e <= k; ++e) v -= at(k, e) * at(k, e);
+    at(k, 0) = std::sqrt(std::max(v, 1e-300));
+  }
+  std::vector<double>& c = s.coef;
+  for (std::size_t k = 0; k < K; ++k) {
+    double v = rhs[k];
+    for (std::size_t e = 1; e <= 3 && e <= k; ++e) v -= at(k, e) * c[k - e];
+    c[k] = v / at(k, 0);
+  }
+  for (std::size_t k = K; k-- > 0;) {
+    double v = c[k];
+    for (std::size_t e = 1; e <= 3 && k + e < K; ++e) v -= at(k + e, e) * c[k + e];
+    c[k] = v / at(k, 0);
+  }
+  return s;
+}
+
+SmoothPhase PhaseGate::smooth(const std::vector<double>& weight) {
+  SmoothPhase s = fit_phase(weight);
+  for (std::size_t m = 0; m < table_.size(); ++m) table_[m] = std::polar(1.0, s.value(time(m)));
+  return s;
+}
+
+double vector_potential_from_phase_rate(double rate, double p0) {
+  const double q = p0 * p0 - 2.0 * rate;
+  if (q <= 0) return p0;
+  return 2.0 * rate / (p0 + std::sqrt(q));  // = p0 - sqrt(q), without cancellation
+}
+
+double cma_gate_phase(const IrField& ir, double p0, double t) {
+  const VolkovIntegrals v = ir.at(t);
+  return -p0 * v.I1 + 0.5 * v.I2;
+}
+
+IrField ir_from_gate_phase(const SmoothPhase& phase, double p0, double t_first, double t_last,
+                           double dt) {
+  const std::size_t n =
+      std::max<std::size_t>(5, static_cast<std::size_t>(std::ceil((t_last - t_first) / dt)) + 1);
+  std::vector<double> A(n);
+  for (std::size_t i = 0; i < n; ++i)
+    A[i] = vector_potential_from_phase_rate(phase.derivative(t_first + static_cast<double>(i) * dt),
+                                            p0);
+  return IrField(t_first, dt, std::move(A));
+}
+
+}  // namespace sw
