@@ -275,7 +275,9 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         }
       }
       const Reconstruction base = out.chain.back();
+      // (the shift is circular on the grid: only when the copies at -+T/2 lie inside its window)
       if (opt.satellite_start && pr.ir_omega_au > 0 &&
+          units::period_au(pr.ir_omega_au) < pr.grid.window() &&
           pulse_metrics(base, pr.ir_omega_au, band_lo, band_hi).satellite_intensity_ratio <
               opt.isolated_max_satellite_ratio) {
         // Both signs; the runs go into the chain before the result (the chain ends with it).

@@ -437,10 +437,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
   const auto Ku = static_cast<std::size_t>(K);
   const bool const_dipole = dipole_.kind() == DipoleKind::kConstant;
   const bool cost_mode = mode == Mode::kScaledCost || mode == Mode::kProjected;
-  // Resolution kernel K (set_energy_resolution): out = K in, and out = K^T in.
+  // Resolution kernel K (set_energy_resolution), applied per row by blur_row / blur_row_transpose.
   const bool blurred = !blur_first_.empty();
-  auto blur = [&](const double* in, double* out) { blur_row(in, out); };
-  auto blur_transpose = [&](const double* in, double* out) { blur_row_transpose(in, out); };
 
   // Envelope about the shifted carrier (ForwardModel's with_carrier), split into re/im.
   std::vector<double> er(n), ei(n);
@@ -770,7 +768,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       if (cost_mode && blurred) {
         // m = K |a|^2; the adjoints of c2, c1 w.r.t. m go back through K^T onto |a|^2.
         for (std::size_t j = 0; j < ne; ++j) W.mod[j] = std::norm(W.row_a[j]);
-        blur(W.mod.data(), W.bl.data());
+        blur_row(W.mod.data(), W.bl.data());
         for (std::size_t j = 0; j < ne; ++j) {
           const auto jj = static_cast<Eigen::Index>(j);
           const double m = W.bl[j], wij = (*w)(ii, jj), Mij = (*M)(ii, jj);
@@ -782,9 +780,9 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
           W.g1[j] = -2.0 * wij * Mij;
         }
         if (K == 2) {
-          blur_transpose(W.g2.data(), W.mod.data());
+          blur_row_transpose(W.g2.data(), W.mod.data());
           for (std::size_t j = 0; j < ne; ++j) W.row_bar[j] = W.mod[j] * W.row_a[j];
-          blur_transpose(W.g1.data(), W.mod.data());
+          blur_row_transpose(W.g1.data(), W.mod.data());
           for (std::size_t j = 0; j < ne; ++j) W.row_bar[ne + j] = W.mod[j] * W.row_a[j];
         }
       } else if (cost_mode) {
@@ -827,13 +825,13 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
         if (blurred) {
           for (std::size_t j = 0; j < ne; ++j)
             W.mod[j] = std::norm(amp_keep(ii, static_cast<Eigen::Index>(j)));
-          blur(W.mod.data(), W.bl.data());
+          blur_row(W.mod.data(), W.bl.data());
           for (std::size_t j = 0; j < ne; ++j) {
             const auto jj = static_cast<Eigen::Index>(j);
             const double wij = (*w)(ii, jj);
             W.g2[j] = mu * mu * 2.0 * wij * W.bl[j] - mu * 2.0 * wij * (*M)(ii, jj);
           }
-          blur_transpose(W.g2.data(), W.mod.data());
+          blur_row_transpose(W.g2.data(), W.mod.data());
           for (std::size_t j = 0; j < ne; ++j)
             W.row_bar[j] = W.mod[j] * amp_keep(ii, static_cast<Eigen::Index>(j));
         } else {
