@@ -172,6 +172,15 @@ int run_info(const std::string& path, bool allow_outside_data) {
                       format_value_sigma(*l.relative_strength, l.relative_strength_sigma).c_str());
         std::printf("%s (%s)\n", l.reference ? ", reference" : "", l.source.c_str());
       }
+      for (const UnseenLine& u : ps.unseen_lines) {
+        std::printf("not seen    %s %s expected at W %.2f eV, inside the signal's support",
+                    u.gas.c_str(), u.name.c_str(), u.kinetic_energy_eV);
+        if (u.separable)
+          std::printf(": strength %s, upper limit %.3g (2 sigma)\n",
+                      format_value_sigma(u.strength, u.strength_sigma).c_str(), u.upper_limit);
+        else
+          std::printf(": inside the reference line's own band, not separable\n");
+      }
       if (!ps.window_source.empty())
         std::printf("analysed    %.3f .. %.3f eV (%s)\n", ps.window_lo_eV, ps.window_hi_eV,
                     ps.window_source.c_str());

@@ -138,7 +138,9 @@ TEST_CASE("preprocess subtracts the fitted background without bias", "[backgroun
   sc.trace.meta.background.reset();
   sc.trace.meta.background_auto = true;
   PreprocessSummary ps;
-  const RetrievalProblem pr = preprocess(sc.trace, PreprocessOptions{}, &ps);
+  PreprocessOptions po;  // the whole axis (no window at the expected 2s line): bins as the scan's
+  po.lines.assume_expected_lines = false;
+  const RetrievalProblem pr = preprocess(sc.trace, po, &ps);
   CHECK(ps.background_source == "fit");
   CHECK(ps.background.model == "constant + exponential tail");
   const double dW = pr.energy_au[1] - pr.energy_au[0];

@@ -346,7 +346,9 @@ TEST_CASE("batch records a scan with a non-UTF-8 file name as failed and writes 
 
 TEST_CASE("SIGTERM stops a batch promptly, without partial folders, with the summary written",
           "[cli][safety][batch][signals]") {
-  // Issue 11: SIGTERM (a scheduler ending the job) used to wait for the running scans.
+  // Issue 11: SIGTERM (a scheduler ending the job) used to wait for the running scans. The scan
+  // must still be running 1.5 s after the start: 400 bootstrap replicas on one thread (the
+  // engine alone may stop at its noise floor in under a second).
   TempDir d("safety");
   simulate(d.path / "in", "s");
   const fs::path out = d.path / "out";
@@ -355,7 +357,8 @@ TEST_CASE("SIGTERM stops a batch promptly, without partial folders, with the sum
   if (pid == 0) {
     const std::string i = (d.path / "in").string(), o = out.string();
     execl(STREAKWRIGHT_CLI_PATH, "streakwright", "batch", i.c_str(), "--out", o.c_str(),
-          "--iterations", "100000", "--max-seconds", "600", "--quiet", static_cast<char*>(nullptr));
+          "--iterations", "100000", "--max-seconds", "600", "--bootstrap", "400", "--threads", "1",
+          "--quiet", static_cast<char*>(nullptr));
     _exit(127);
   }
   const auto start = std::chrono::steady_clock::now();

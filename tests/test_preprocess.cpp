@@ -25,7 +25,10 @@ TEST_CASE("background subtraction is unbiased in the background-dominated bins",
   const synthetic::SyntheticScan sc = synthetic::generate_scan(c, 3);
   REQUIRE(sc.trace.meta.background);
   PreprocessSummary ps;
-  const RetrievalProblem pr = preprocess(sc.trace, PreprocessOptions{}, &ps);
+  // The whole axis (no window at the expected 2s line), so the bins match the scan's.
+  PreprocessOptions po;
+  po.lines.assume_expected_lines = false;
+  const RetrievalProblem pr = preprocess(sc.trace, po, &ps);
   CHECK(ps.background_source == "sidecar");
   // Bins whose noise-free signal is below 1e-3 count: there I = (N - 5) / (dW p).
   const double dW = pr.energy_au[1] - pr.energy_au[0];
@@ -113,7 +116,9 @@ TEST_CASE("saturated bins get zero weight; the saturated scan retrieves the FWHM
     clipped += sc.trace.counts.data()[i] >= 300.0 ? 1 : 0;
   REQUIRE(clipped > 20);
   PreprocessSummary ps;
-  const RetrievalProblem pr = preprocess(sc.trace, PreprocessOptions{}, &ps);
+  PreprocessOptions po;  // the whole axis, so the bins match the scan's
+  po.lines.assume_expected_lines = false;
+  const RetrievalProblem pr = preprocess(sc.trace, po, &ps);
   CHECK(ps.saturated_bins == static_cast<std::size_t>(clipped));
   CHECK(ps.saturation_source == "plateau");
   REQUIRE(pr.weight.size() == pr.intensity.size());

@@ -39,6 +39,8 @@ std::string QualityOptions::validate() const {
     s << "comparable_fit_ratio = " << comparable_fit_ratio << ": must be >= 1";
   else if (!(max_ir_period_mismatch > 0))
     s << "max_ir_period_mismatch = " << max_ir_period_mismatch << ": must be > 0";
+  else if (!(max_unseen_line_strength > 0 && max_unseen_line_strength <= 1))
+    s << "max_unseen_line_strength = " << max_unseen_line_strength << ": must lie in (0, 1]";
   else if (!(min_field_free_rows >= 0))
     s << "min_field_free_rows = " << min_field_free_rows << ": must be >= 0";
   else if (!(min_class_margin_sigma >= 0))
@@ -188,6 +190,12 @@ void add_retrieval_checks(QualitySection& q, const RetrievalEvidence& e, const Q
           "|bootstrap bias| of the FWHM over the replicas' spread (reported only: above 1 the "
           "value is not corrected and sigma is widened by the bias)",
           false);
+  if (e.unseen_line_strength)
+    q.add("unseen_line_strength", *e.unseen_line_strength, o.max_unseen_line_strength, "<=",
+          "upper limit (2 sigma) of the relative strength of " + e.unseen_line +
+              ": a line of the gas expected inside the signal's support but not seen is fitted "
+              "as part of the XUV spectrum, and even 1 % of the reference's counts changes the "
+              "FWHM by ~10 % (declare the line in the sidecar to have it deblended)");
   if (e.ir_period_mismatch)
     q.add(
         "ir_period_vs_sidecar", *e.ir_period_mismatch, o.max_ir_period_mismatch, "<=",

@@ -46,6 +46,9 @@
 //                                by the zero-mean A(t) convention, not by the data)
 //     ir_period_vs_sidecar       |lambda(retrieved A(t)) / lambda(sidecar) - 1|
 //                                                                       <= max_ir_period_mismatch
+//     unseen_line_strength       upper limit (2 sigma) of the relative strength of a line of the
+//                                gas expected inside the support but not seen
+//                                                                       <= max_unseen_line_strength
 //     ir_field_vs_vector_potential  max |E(t)| / (omega_IR max |A(t)|): ~1 for a field whose
 //                                spectrum sits at omega (1.06 for a 5 fs, 800 nm pulse); a
 //                                noise-dominated A(t) has a much larger derivative
@@ -117,6 +120,12 @@ struct QualityOptions {
   /// Largest max |E| / (omega max |A|) of the retrieved IR field (our choice: 1.5; a clean
   /// few-cycle field gives 1.0-1.1, a retrieval whose A(t) carries noise wiggles far more).
   double max_ir_field_ratio = 1.5;  ///< > 1
+  /// Largest upper limit (2 sigma) of the relative strength of a line of the gas that is expected
+  /// inside the signal's support but not seen (preprocess: lines.h UnseenLine). Such a line is
+  /// fitted as part of the XUV spectrum and beats with it: measured on argon 3s under 3p (190 as,
+  /// 13.5 eV apart), strength 0.01 gave FWHM -11 %, 0.05 gave -24 % (docs/validation.md); the
+  /// intensity modulation is about +-2 sqrt(strength), so 0.003 keeps it near the 5 % target.
+  double max_unseen_line_strength = 0.003;  ///< in (0, 1]
   /// rabbitt: fewest sidebands with a phase for an attochirp.
   int min_sidebands = 3;  ///< >= 2
   std::string validate() const;
@@ -156,6 +165,10 @@ struct RetrievalEvidence {
   std::optional<double> class_margin_sigma;
   /// Peak counts of the scan (peak_signal_counts): selects the accuracy target.
   std::optional<double> peak_counts;
+  /// Largest strength upper limit of a line expected inside the support but not seen, and
+  /// which line it is ("Ar 3s at 40.9 eV ..."); absent when there is none.
+  std::optional<double> unseen_line_strength;
+  std::string unseen_line;
 };
 
 /// Largest 3 x 3 average of (counts - background) over the scan's elements: the "peak counts"

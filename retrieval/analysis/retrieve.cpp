@@ -12,6 +12,7 @@
 #include "retrieval/analysis/quality.h"
 #include "retrieval/analysis/thread_pool.h"
 #include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
 #include "retrieval/core/units.h"
 #include "retrieval/physics/pulse_metrics.h"
 #include "retrieval/physics/satellite_seed.h"
@@ -639,6 +640,12 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     }
     e.energy_support_share = s.support_core_share;
     e.field_free_rows = static_cast<double>(s.field_free_rows);
+    for (const UnseenLine& u : s.unseen_lines)
+      if (!e.unseen_line_strength || u.upper_limit > *e.unseen_line_strength) {
+        e.unseen_line_strength = u.upper_limit;
+        e.unseen_line = u.gas + " " + u.name + " (expected at " + format_g(u.kinetic_energy_eV, 4) +
+                        " eV" + (u.separable ? "" : ", inside the analysed line's own band") + ")";
+      }
     // Class margin: the satellite ratio against the nearest threshold, in bootstrap sigmas.
     const VerdictSection& vd = *res.verdict;
     if ((vd.pulse_class == PulseClass::kIsolated ||

@@ -26,11 +26,15 @@
 //      `min_relative_strength` of the reference's counts;
 //      its relative strength is counts_k / counts_reference (the reference over its own
 //      cell, without subtraction: a neighbour's tail inside it is not removed) with the
-//      Poisson sigma of the ratio (both counts treated as independent).
+//      sigma of the ratio: Poisson (both counts treated as independent) and the mirror
+//      estimate's systematic error of the subtracted tail.
 // Candidates: the sidecar's declared lines when it has any (a value "auto" takes the table's
 // threshold; a line of another gas must name its gas), else every line of the sidecar's gas.
-// Declared lines are always listed (source "sidecar"), also when they are not seen; table
-// lines only when found (source "detected"). The reference line is the strongest one found.
+// Declared lines are always listed (source "sidecar"), also when they are not seen, and are then
+// assumed present (deblended and windowed as found lines: the user knows the target); table
+// lines are listed when found (source "detected"); a table line that is not seen but lies on the
+// axis is assumed present (source "gas table", LineOptions::assume_expected_lines), else
+// reported in LineSearch::unseen with an upper limit of its strength. The reference line is the strongest one found.
 //
 // Window (choose_window): the reference line's support widened on each side by the streaking
 // range (the largest shift of the rows' centroids), then cut half way between the reference's
@@ -59,12 +63,41 @@ struct LineOptions {
   /// Systematic error of the mirrored tail, as a fraction of the counts subtracted; added in
   /// quadrature to the Poisson noise in the significance (our choice).
   double mirror_systematic_fraction = 0.1;  ///< >= 0
+  /// Treat every line of the gas table that the photon energy puts on the energy axis (outside
+  /// the reference's half-maximum band) as present, also when it is not seen: it is listed
+  /// (source "gas table"), deblended and kept out of the analysis window like a found line.
+  /// A weak line left inside the window is fitted as XUV spectrum and beats with it: measured,
+  /// strength 0.01 gave FWHM -11 % (argon 3s) and -26 % (neon 2s); assumed present, the error
+  /// was +4.3 % and -2.0 % (docs/validation.md, "Lines that are not seen"). Off: such lines are
+  /// only reported (LineSearch::unseen) and the quality check unseen_line_strength judges them.
+  bool assume_expected_lines = true;
   std::string validate() const;             ///< "" when valid; else names field, value and rule
+};
+
+/// A line of the gas table that the photon energy reaches inside the energy axis but that was
+/// not seen (table candidates only: a declared line is the user's statement and is assumed
+/// present). Its electrons, if any, are inside the analysed data and would be taken for part of
+/// the XUV spectrum: a weak line beats with the spectrum it overlaps and modulates the pulse's
+/// intensity by about +-2 sqrt(strength) (docs/validation.md, "Lines that are not seen").
+struct UnseenLine {
+  std::string name, gas;
+  double kinetic_energy_eV = 0.0;  ///< expected centre, photon energy - Ip
+  /// False when the line lies inside the reference's own half-maximum band: not separable,
+  /// its strength has no bound (upper_limit = 1).
+  bool separable = false;
+  /// Counts over its cell minus the reference's mirrored tail, relative to the reference's
+  /// counts, with its sigma (Poisson and the mirror's systematic error).
+  double strength = 0.0, strength_sigma = 0.0;
+  double upper_limit = 1.0;  ///< max(strength, 0) + 2 strength_sigma (~97.7 % one-sided)
 };
 
 struct LineSearch {
   std::vector<LineEntry> lines;   ///< every line found or declared
   std::vector<char> found;        ///< per line: seen above min_significance (1) or not
+  /// Per line: treated as present although not seen (a declared line inside the axis and outside
+  /// the reference's half-maximum band): deblended and windowed like a found line.
+  std::vector<char> assumed;
+  std::vector<UnseenLine> unseen;  ///< table lines inside the axis that were not seen
   int reference = -1;             ///< index into lines of the reference (-1: none found)
   double photon_energy_eV = 0.0;  ///< hbar Omega of the winning hypothesis
   /// The reference line's support (cut half way to every other line found).
@@ -73,6 +106,12 @@ struct LineSearch {
   double line_below_eV = 0.0, line_above_eV = 0.0;
   std::vector<std::string> warnings;
 };
+
+/// Line k is present: found, or assumed present (declared, or expected from the gas table).
+bool present(const LineSearch& search, std::size_t k);
+
+/// A line other than the reference is present with its centre on the axis W_eV (eV, ascending).
+bool has_neighbours(const LineSearch& search, const std::vector<double>& W_eV);
 
 /// Runs the detection on a delay-integrated spectrum: W_eV ascending (uniform or not), counts
 /// (background subtracted, may be negative) and their variance, both summed over delays.
@@ -100,11 +139,18 @@ bool choose_window(const LineSearch& search, const std::vector<double>& W_eV,
 /// W_r + line_above_eV, minus the rows' mean). R is the observed signal minus the current
 /// estimate of all neighbours (iterated `iterations` times); s_k is the least-squares scale over
 /// the neighbour's far half (the side of its centre away from the reference, out to one line
-/// half width), where the reference contributes least. Neglected: the line's own photoemission
+/// half width), where the reference contributes least, in the unstreaked edge rows when there
+/// are >= 3 (DeblendOptions::quiet_shift_fraction), else in every row. Neglected: the line's own photoemission
 /// delay, the energy dependence of the dipole ratio and the difference of the streaking
 /// broadening (residuals measured in tests/test_lines.cpp).
 struct DeblendOptions {
-  int iterations = 4;            ///< fixed-point iterations of the joint estimate (>= 1)
+  int iterations = 4;  ///< fixed-point iterations of the joint estimate (>= 1)
+  /// Edge rows whose centroid shift stays within this fraction of the largest are unstreaked;
+  /// with >= 3 of them the scale s_k is fitted over them alone: there the reference's own tail
+  /// does not reach the neighbour's far half, whereas the streaked rows push it there (on an
+  /// argon scan without 3s, all rows gave s = 0.010, a false 1 % line). Same default as
+  /// PreprocessOptions::field_free_shift_fraction.
+  double quiet_shift_fraction = 0.1;  ///< in (0, 1)
   std::string validate() const;  ///< "" when valid; else names field, value and rule
 };
 

@@ -270,6 +270,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
   // 2b. lines of the gas and the analysis window.
   Eigen::MatrixXd blend = Eigen::MatrixXd::Zero(nd, ne);  // neighbour lines' estimated counts
   bool deblended = false;
+  std::vector<UnseenLine> unseen;  // table lines on the axis that were not seen
   {
     std::vector<double> spec(static_cast<std::size_t>(ne)), var(static_cast<std::size_t>(ne));
     for (Eigen::Index j = 0; j < ne; ++j) {
@@ -278,6 +279,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
     }
     LineSearch ls = find_lines(W_eV, spec, var, gas, trace.meta.lines, opt.lines);
     for (const auto& w : ls.warnings) s.warnings.push_back(w);
+    unseen = ls.unseen;
     s.photon_energy_eV = ls.photon_energy_eV;
     double lo = 0, hi = 0;
     if (opt.energy_window_lo_eV != 0 || opt.energy_window_hi_eV != 0) {
@@ -314,7 +316,9 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
         Eigen::MatrixXd sg = counts.rowwise() - bgcol.transpose();
         std::vector<double> str;
         blend = deblend_neighbours(ls, W_eV, sg, opt.deblend, &str);
-        deblended = blend.cwiseAbs().sum() > 0;
+        // Deblended also when a scale came out 0 (an assumed line that is absent): the window
+        // is then cut at the neighbour's centre, not half way into the reference's band.
+        deblended = has_neighbours(ls, W_eV);
         for (std::size_t k = 0; k < str.size(); ++k)
           if (str[k] > 0)
             s.warnings.push_back("line " + ls.lines[k].gas + " " + ls.lines[k].name +
@@ -376,6 +380,21 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
   Eigen::MatrixXd sig = counts.rowwise() - bgcol.transpose();
   if (deblended) sig -= blend;
   const EnergySupport band = energy_support(trace, opt, sig, counts, W, &s);
+  // Lines expected inside the signal's support but not seen: if present, their electrons are
+  // fitted as XUV spectrum (quality check unseen_line_strength).
+  if (band.found && trace.meta.kind != TraceKind::kRabbitt)
+    for (const UnseenLine& u : unseen) {
+      if (u.kinetic_energy_eV < s.support_lo_eV || u.kinetic_energy_eV > s.support_hi_eV) continue;
+      s.unseen_lines.push_back(u);
+      s.warnings.push_back(
+          "line " + u.gas + " " + u.name + " expected at " + format_g(u.kinetic_energy_eV) +
+          " eV inside the signal's support, not seen" +
+          (u.separable ? " (strength " + format_g(u.strength, 2) + " +- " +
+                             format_g(u.strength_sigma, 2) + ")"
+                       : " (inside the analysed line's own band)") +
+          ": if present it is fitted as part of the XUV spectrum; declare it in the sidecar's "
+          "lines to have it deblended, or set --energy-window");
+    }
 
   // 4. counts per bin -> |a|^2 (divide by bin width and by p).
   for (Eigen::Index j = 0; j < ne; ++j) {
@@ -642,6 +661,15 @@ void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* ou
     P("saturation_source", s.saturation_source);
   }
   if (s.photon_energy_eV > 0) P("photon_energy_eV", s.photon_energy_eV);
+  for (const UnseenLine& u : s.unseen_lines) {
+    const std::string k = "unseen_line_" + u.gas + "_" + u.name + ".";
+    P(k + "kinetic_energy_eV", u.kinetic_energy_eV);
+    if (u.separable) {
+      P(k + "relative_strength", u.strength);
+      P(k + "relative_strength_sigma", u.strength_sigma);
+    }
+    P(k + "relative_strength_upper_limit", u.upper_limit);
+  }
   P("window_source", s.window_source.empty() ? std::string("whole axis") : s.window_source);
   if (!s.window_source.empty()) {
     P("window_lo_eV", s.window_lo_eV);

@@ -124,6 +124,9 @@ struct PreprocessSummary {
   /// Every photoelectron line found or declared (result.json "lines"); the one retrieved is
   /// marked reference and analysed.
   std::vector<LineEntry> lines;
+  /// Lines of the gas table expected inside the signal's support (after the window) but not
+  /// seen (lines.h UnseenLine): quality check unseen_line_strength.
+  std::vector<UnseenLine> unseen_lines;
   std::size_t saturated_bins = 0;        ///< given zero weight
   double saturation_level_counts = 0.0;  ///< counts at which saturation was found (0 = none)
   std::string saturation_source;         ///< "sidecar", "plateau" or "" (none)
