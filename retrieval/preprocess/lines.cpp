@@ -288,13 +288,12 @@ LineSearch find_lines(const std::vector<double>& W, const std::vector<double>& c
     if (H.measurable[k] && Cr > 0) {
       const double r = H.cnt[k] / Cr;
       e.relative_strength = r;
-      // Poisson of both counts and the mirror estimate's systematic error of the tail.
-      e.relative_strength_sigma = std::sqrt((H.v[k] + H.sys[k] * H.sys[k]) / (Cr * Cr) +
-                                            r * r * Vr / (Cr * Cr));
+      e.relative_strength_sigma = std::sqrt(H.v[k] / (Cr * Cr) + r * r * Vr / (Cr * Cr));
     }
     if (!H.seen[k] && !cand[k].declared) {
       e.source = "gas table";
-      out.warnings.push_back("line " + e.gas + " " + e.name + " (gas table) not seen at its expected " +
+      out.warnings.push_back("line " + e.gas + " " + e.name +
+                             " (gas table) not seen at its expected " +
                              format_g(*e.kinetic_energy_eV) +
                              " eV: assumed present (deblended and kept out of the analysis "
                              "window); even 1 % of the reference's counts, fitted as XUV "
@@ -314,8 +313,7 @@ LineSearch find_lines(const std::vector<double>& W, const std::vector<double>& c
     }
     out.lines.push_back(e);
     out.found.push_back(H.seen[k]);
-    out.assumed.push_back(!H.seen[k] && (cand[k].declared || assume) && on_axis &&
-                          H.measurable[k]);
+    out.assumed.push_back(!H.seen[k] && (cand[k].declared || assume) && on_axis && H.measurable[k]);
   }
   return out;
 }

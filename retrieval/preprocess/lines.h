@@ -26,15 +26,16 @@
 //      `min_relative_strength` of the reference's counts;
 //      its relative strength is counts_k / counts_reference (the reference over its own
 //      cell, without subtraction: a neighbour's tail inside it is not removed) with the
-//      sigma of the ratio: Poisson (both counts treated as independent) and the mirror
-//      estimate's systematic error of the subtracted tail.
+//      Poisson sigma of the ratio (both counts treated as independent; the mirror estimate's
+//      systematic error is not in it: it enters the detection and UnseenLine only).
 // Candidates: the sidecar's declared lines when it has any (a value "auto" takes the table's
 // threshold; a line of another gas must name its gas), else every line of the sidecar's gas.
 // Declared lines are always listed (source "sidecar"), also when they are not seen, and are then
 // assumed present (deblended and windowed as found lines: the user knows the target); table
 // lines are listed when found (source "detected"); a table line that is not seen but lies on the
 // axis is assumed present (source "gas table", LineOptions::assume_expected_lines), else
-// reported in LineSearch::unseen with an upper limit of its strength. The reference line is the strongest one found.
+// reported in LineSearch::unseen with an upper limit of its strength. The reference line is the
+// strongest one found.
 //
 // Window (choose_window): the reference line's support widened on each side by the streaking
 // range (the largest shift of the rows' centroids), then cut half way between the reference's
@@ -71,7 +72,7 @@ struct LineOptions {
   /// was +4.3 % and -2.0 % (docs/validation.md, "Lines that are not seen"). Off: such lines are
   /// only reported (LineSearch::unseen) and the quality check unseen_line_strength judges them.
   bool assume_expected_lines = true;
-  std::string validate() const;             ///< "" when valid; else names field, value and rule
+  std::string validate() const;  ///< "" when valid; else names field, value and rule
 };
 
 /// A line of the gas table that the photon energy reaches inside the energy axis but that was
@@ -92,14 +93,14 @@ struct UnseenLine {
 };
 
 struct LineSearch {
-  std::vector<LineEntry> lines;   ///< every line found or declared
-  std::vector<char> found;        ///< per line: seen above min_significance (1) or not
+  std::vector<LineEntry> lines;  ///< every line found or declared
+  std::vector<char> found;       ///< per line: seen above min_significance (1) or not
   /// Per line: treated as present although not seen (a declared line inside the axis and outside
   /// the reference's half-maximum band): deblended and windowed like a found line.
   std::vector<char> assumed;
   std::vector<UnseenLine> unseen;  ///< table lines inside the axis that were not seen
-  int reference = -1;             ///< index into lines of the reference (-1: none found)
-  double photon_energy_eV = 0.0;  ///< hbar Omega of the winning hypothesis
+  int reference = -1;              ///< index into lines of the reference (-1: none found)
+  double photon_energy_eV = 0.0;   ///< hbar Omega of the winning hypothesis
   /// The reference line's support (cut half way to every other line found).
   double support_lo_eV = 0.0, support_hi_eV = 0.0;
   /// Extent of one line below / above its centre (eV): the uncut support's half widths.
@@ -140,9 +141,9 @@ bool choose_window(const LineSearch& search, const std::vector<double>& W_eV,
 /// estimate of all neighbours (iterated `iterations` times); s_k is the least-squares scale over
 /// the neighbour's far half (the side of its centre away from the reference, out to one line
 /// half width), where the reference contributes least, in the unstreaked edge rows when there
-/// are >= 3 (DeblendOptions::quiet_shift_fraction), else in every row. Neglected: the line's own photoemission
-/// delay, the energy dependence of the dipole ratio and the difference of the streaking
-/// broadening (residuals measured in tests/test_lines.cpp).
+/// are >= 3 (DeblendOptions::quiet_shift_fraction), else in every row. Neglected: the line's own
+/// photoemission delay, the energy dependence of the dipole ratio and the difference of the
+/// streaking broadening (residuals measured in tests/test_lines.cpp).
 struct DeblendOptions {
   int iterations = 4;  ///< fixed-point iterations of the joint estimate (>= 1)
   /// Edge rows whose centroid shift stays within this fraction of the largest are unstreaked;
@@ -151,7 +152,7 @@ struct DeblendOptions {
   /// argon scan without 3s, all rows gave s = 0.010, a false 1 % line). Same default as
   /// PreprocessOptions::field_free_shift_fraction.
   double quiet_shift_fraction = 0.1;  ///< in (0, 1)
-  std::string validate() const;  ///< "" when valid; else names field, value and rule
+  std::string validate() const;       ///< "" when valid; else names field, value and rule
 };
 
 /// Estimated counts of every found, non-reference line whose centre lies inside the axis, on the

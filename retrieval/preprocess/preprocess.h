@@ -19,9 +19,12 @@
 //      `hot_pixel_ratio` x the smaller one. A one-bin-wide harmonic is a ridge along delay and
 //      stays; a row shifted by stage jitter has a high energy neighbour and stays;
 //   2b. lines and window (retrieval/preprocess/lines.h): the lines of the gas (or the sidecar's)
-//   are
-//      found in the delay-integrated spectrum; the strongest is the reference, analysed
-//      alone inside a window that excludes the others (not for scans of kind rabbitt);
+//      found in the delay-integrated spectrum, or expected there (assumed present); the
+//      strongest is the reference, analysed alone inside a window that excludes the others
+//      (not for scans of kind rabbitt); where the window is cut at a subtracted neighbour
+//      inside the reference's streaked band, one streaking range of bins beyond the cut stays
+//      with zero weight (model-only margin; reference spectrum and support there from the
+//      reference line's mirror image; docs/theory.md "Lines that are not seen");
 //      options.energy_window_* and the sidecar's energy_window_eV override the window (in
 //      that order);
 //   3. energy resampling onto a uniform axis when the measured one is not uniform
