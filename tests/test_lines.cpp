@@ -199,6 +199,31 @@ TEST_CASE("a weak 2s line below detection is assumed present: the 2p pulse stays
   CHECK_FALSE(bad.result.quality->trusted);
 }
 
+TEST_CASE("two equal lines merged by streaking are caught by the unstreaked edge rows", "[lines]") {
+  // Argon 3p and 3s of equal counts, 13.5 eV apart (NIST ASD via the gas table), 190 as at 70 eV
+  // under 3e12 W/cm^2: streaking (+-8 eV) merges them in the delay-integrated spectrum, whose
+  // single peak lies between the lines; the edge rows resolve them. The scan is built by
+  // two_lines (independent of the detection). The disagreement must be reported, and it must
+  // not be on the same scan with a 3s line of 0.1 (a line the edge rows see but that is
+  // assumed present anyway).
+  synthetic::ScanConfig c = neon_wide();
+  c.gas = "Ar";
+  c.xuv.gaussian.transform_limited_fwhm_as = 190.0;
+  c.ir.pulse.peak_intensity_Wcm2 = 3e12;
+  c.geometry.energy_eV = {20.0, 0.25, 280};
+  c.geometry.delay_fs = {-6.0, 0.15, 81};
+  const TwoLineScan merged = two_lines(c, 70.0, kAr3p, kAr3s, 1.0, 300.0, 31);
+  PreprocessSummary ps;
+  (void)preprocess(merged.trace, PreprocessOptions{}, &ps);
+  REQUIRE(ps.line_pattern_checked);
+  INFO(ps.line_pattern_disagreement);
+  CHECK_THAT(ps.line_pattern_disagreement, Catch::Contains("does not resolve"));
+  const TwoLineScan weak = two_lines(c, 70.0, kAr3p, kAr3s, 0.1, 300.0, 32);
+  (void)preprocess(weak.trace, PreprocessOptions{}, &ps);
+  REQUIRE(ps.line_pattern_checked);
+  CHECK(ps.line_pattern_disagreement.empty());
+}
+
 TEST_CASE("the window keeps the reference line and excludes the second one", "[lines]") {
   // 250 as TL (7.3 eV FWHM) under a 1e12 W/cm^2 IR (streaking +-6 eV): the 2p and 2s lines,
   // 26.9 eV apart, do not overlap at any delay, so a window can hold one without the other.

@@ -190,6 +190,12 @@ void add_retrieval_checks(QualitySection& q, const RetrievalEvidence& e, const Q
           "|bootstrap bias| of the FWHM over the replicas' spread (reported only: above 1 the "
           "value is not corrected and sigma is widened by the bias)",
           false);
+  if (e.line_pattern_agreement)
+    q.add("line_pattern_agreement", *e.line_pattern_agreement, 1.0, ">=",
+          e.line_pattern_detail.empty()
+              ? "1 when the photoelectron lines found on the unstreaked edge rows agree with the "
+                "delay-integrated detection, 0 when not"
+              : "the lines found on the unstreaked edge rows disagree: " + e.line_pattern_detail);
   if (e.unseen_line_strength)
     q.add("unseen_line_strength", *e.unseen_line_strength, o.max_unseen_line_strength, "<=",
           "upper limit (2 sigma) of the relative strength of " + e.unseen_line +

@@ -46,6 +46,9 @@
 //                                by the zero-mean A(t) convention, not by the data)
 //     ir_period_vs_sidecar       |lambda(retrieved A(t)) / lambda(sidecar) - 1|
 //                                                                       <= max_ir_period_mismatch
+//     line_pattern_agreement     1 when the lines found on the unstreaked edge rows alone agree
+//                                with the delay-integrated detection (lines.h
+//                                compare_line_patterns), 0 when not        >= 1
 //     unseen_line_strength       upper limit (2 sigma) of the relative strength of a line of the
 //                                gas expected inside the support but not seen
 //                                                                       <= max_unseen_line_strength
@@ -169,6 +172,10 @@ struct RetrievalEvidence {
   /// which line it is ("Ar 3s at 40.9 eV ..."); absent when there is none.
   std::optional<double> unseen_line_strength;
   std::string unseen_line;
+  /// 1 when the line detection on the unstreaked edge rows agrees with the delay-integrated
+  /// one, 0 when not (what differs in line_pattern_detail); absent when not run.
+  std::optional<double> line_pattern_agreement;
+  std::string line_pattern_detail;
 };
 
 /// Largest 3 x 3 average of (counts - background) over the scan's elements: the "peak counts"

@@ -640,6 +640,10 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     }
     e.energy_support_share = s.support_core_share;
     e.field_free_rows = static_cast<double>(s.field_free_rows);
+    if (s.line_pattern_checked) {
+      e.line_pattern_agreement = s.line_pattern_disagreement.empty() ? 1.0 : 0.0;
+      e.line_pattern_detail = s.line_pattern_disagreement;
+    }
     for (const UnseenLine& u : s.unseen_lines)
       if (!e.unseen_line_strength || u.upper_limit > *e.unseen_line_strength) {
         e.unseen_line_strength = u.upper_limit;

@@ -72,6 +72,11 @@ struct LineOptions {
   /// was +4.3 % and -2.0 % (docs/validation.md, "Lines that are not seen"). Off: such lines are
   /// only reported (LineSearch::unseen) and the quality check unseen_line_strength judges them.
   bool assume_expected_lines = true;
+  /// The peak's bands (support and half-maximum) stop where the smoothed spectrum rises again
+  /// by this fraction of the peak above its lowest value so far: the dip between two resolved
+  /// lines. 0 = off (the default for the delay-integrated spectrum, whose streaked lines are
+  /// double-humped); preprocess's cross-check on the unstreaked edge rows uses 0.1.
+  double dip_fraction = 0.0;     ///< in [0, 1)
   std::string validate() const;  ///< "" when valid; else names field, value and rule
 };
 
@@ -121,11 +126,26 @@ LineSearch find_lines(const std::vector<double>& W_eV, const std::vector<double>
                       const std::vector<double>& variance, const Gas& gas,
                       const std::vector<DeclaredLine>& declared, const LineOptions& options);
 
+/// Cross-check of a detection on the delay-integrated spectrum (`integrated`) against one on
+/// the unstreaked edge rows alone (`unstreaked`, same candidates). Streaking broadens every line
+/// of the integrated spectrum by twice the streaking range, so two lines that the edge rows
+/// resolve can merge into one peak there: the pattern is then placed between them (measured:
+/// argon 3p and 3s of equal strength, 13.5 eV apart, read as one line at the wrong photon
+/// energy, FWHM -37 %, trusted). Returns "" when every line the edge rows detect with relative
+/// strength >= `min_strength` is also present (found, assumed or the reference) in `integrated`
+/// within `tolerance_eV`; otherwise what differs, for a warning and the quality check
+/// line_pattern_agreement. (Weaker lines are assumed present anyway; the photon energies alone
+/// differ by 1-2 eV on satellites' fringes, so they are not compared.)
+std::string compare_line_patterns(const LineSearch& integrated, const LineSearch& unstreaked,
+                                  double tolerance_eV, double min_strength = 0.3);
+
 /// The analysis window [lo, hi] (eV) around the reference line (see the header comment);
 /// `streak_range_eV` >= 0. Returns false (window = whole axis) when no other line was found
 /// inside [W_eV.front(), W_eV.back()] or when there is no reference. Warnings on overlap.
 /// With `deblended`, the found neighbours have been subtracted (deblend_neighbours): the window
-/// then keeps the reference's whole streaked band, cut only at each neighbour's centre.
+/// then keeps the whole axis on a side without a neighbour; a side with one is cut at the
+/// neighbour's centre or at the reference's support widened by the streaking range, whichever
+/// is nearer the reference.
 bool choose_window(const LineSearch& search, const std::vector<double>& W_eV,
                    double streak_range_eV, double* lo_eV, double* hi_eV,
                    std::vector<std::string>* warnings, bool deblended = false);

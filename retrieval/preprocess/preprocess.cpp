@@ -283,6 +283,67 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
     LineSearch ls = find_lines(W_eV, spec, var, gas, trace.meta.lines, opt.lines);
     for (const auto& w : ls.warnings) s.warnings.push_back(w);
     unseen = ls.unseen;
+    // Cross-check on the unstreaked edge rows (lines.h compare_line_patterns): the runs of rows
+    // at either end whose centroid over the reference's support stays within
+    // field_free_shift_fraction of the largest shift.
+    // Per row: the centroid of the background-subtracted counts over the reference's support
+    // (eV) and whether the row has positive counts there.
+    std::vector<double> cen(static_cast<std::size_t>(nd), 0.0);
+    std::vector<char> has(static_cast<std::size_t>(nd), 0);
+    for (Eigen::Index i = 0; i < nd; ++i) {
+      double a = 0, b = 0;
+      for (Eigen::Index j = 0; j < ne; ++j) {
+        const double w = W_eV[static_cast<std::size_t>(j)];
+        if (w < ls.support_lo_eV || w > ls.support_hi_eV) continue;
+        const double v = counts(i, j) - bgcol(j);
+        a += v * w;
+        b += v;
+      }
+      if (b > 0) {
+        cen[static_cast<std::size_t>(i)] = a / b;
+        has[static_cast<std::size_t>(i)] = 1;
+      }
+    }
+    if (ls.reference >= 0 && trace.meta.kind != TraceKind::kRabbitt && nd >= 6) {
+      double mean = 0, m = 0, big = 0;
+      for (Eigen::Index i = 0; i < nd; ++i)
+        if (has[static_cast<std::size_t>(i)]) {
+          mean += cen[static_cast<std::size_t>(i)];
+          ++m;
+        }
+      mean = m > 0 ? mean / m : 0.0;
+      for (Eigen::Index i = 0; i < nd; ++i)
+        if (has[static_cast<std::size_t>(i)])
+          big = std::max(big, std::abs(cen[static_cast<std::size_t>(i)] - mean));
+      // Quiet: within the fraction of the largest shift from the edge row's own centroid (the
+      // scan's mean centroid is itself pulled by the streaked rows).
+      auto quiet = [&](Eigen::Index i, Eigen::Index edge) {
+        return has[static_cast<std::size_t>(i)] && has[static_cast<std::size_t>(edge)] &&
+               std::abs(cen[static_cast<std::size_t>(i)] - cen[static_cast<std::size_t>(edge)]) <=
+                   opt.field_free_shift_fraction * big;
+      };
+      std::vector<Eigen::Index> rows;
+      for (Eigen::Index i = 0; i < nd / 2 && quiet(i, 0); ++i) rows.push_back(i);
+      for (Eigen::Index i = nd - 1; i >= nd / 2 && quiet(i, nd - 1); --i) rows.push_back(i);
+      if (big > 0 && rows.size() >= 3) {
+        std::vector<double> fs(static_cast<std::size_t>(ne), 0.0), fv(fs.size(), 0.0);
+        for (Eigen::Index j = 0; j < ne; ++j) {
+          double c = 0;
+          for (Eigen::Index i : rows) c += counts(i, j);
+          fs[static_cast<std::size_t>(j)] = c - static_cast<double>(rows.size()) * bgcol(j);
+          fv[static_cast<std::size_t>(j)] = std::max(c, 1.0);
+        }
+        LineOptions lo_ff = opt.lines;
+        lo_ff.dip_fraction = 0.1;  // unstreaked lines are single-humped: a dip separates two
+        const LineSearch lf = find_lines(W_eV, fs, fv, gas, trace.meta.lines, lo_ff);
+        s.line_pattern_checked = true;
+        s.line_pattern_disagreement =
+            compare_line_patterns(ls, lf, 0.15 * (lf.line_below_eV + lf.line_above_eV));
+        if (!s.line_pattern_disagreement.empty())
+          s.warnings.push_back("line assignment in doubt: " + s.line_pattern_disagreement +
+                               "; declare the lines in the sidecar or set --energy-window");
+      }
+    }
     s.photon_energy_eV = ls.photon_energy_eV;
     double lo = 0, hi = 0;
     if (opt.energy_window_lo_eV != 0 || opt.energy_window_hi_eV != 0) {
@@ -298,22 +359,13 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
       // (A harmonic comb is one line per harmonic: its lines are not windowed apart.)
       // Streaking range: the largest shift of the rows' centroids over the reference band.
       double streak = 0;
-      std::vector<double> cen;
-      for (Eigen::Index i = 0; i < nd; ++i) {
-        double a = 0, b = 0;
-        for (Eigen::Index j = 0; j < ne; ++j) {
-          const double w = W_eV[static_cast<std::size_t>(j)];
-          if (w < ls.support_lo_eV || w > ls.support_hi_eV) continue;
-          const double v = counts(i, j) - bgcol(j);
-          a += v * w;
-          b += v;
-        }
-        if (b > 0) cen.push_back(a / b);
-      }
-      if (!cen.empty()) {
+      std::vector<double> rc;
+      for (std::size_t i = 0; i < cen.size(); ++i)
+        if (has[i]) rc.push_back(cen[i]);
+      if (!rc.empty()) {
         const double mean =
-            std::accumulate(cen.begin(), cen.end(), 0.0) / static_cast<double>(cen.size());
-        for (double c : cen) streak = std::max(streak, std::abs(c - mean));
+            std::accumulate(rc.begin(), rc.end(), 0.0) / static_cast<double>(rc.size());
+        for (double c : rc) streak = std::max(streak, std::abs(c - mean));
       }
       streak_range = streak;
       if (opt.deblend_lines) {
@@ -718,6 +770,10 @@ void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* ou
     P("saturation_source", s.saturation_source);
   }
   if (s.photon_energy_eV > 0) P("photon_energy_eV", s.photon_energy_eV);
+  if (s.line_pattern_checked)
+    P("line_pattern_check", s.line_pattern_disagreement.empty()
+                                ? std::string("the unstreaked edge rows agree")
+                                : s.line_pattern_disagreement);
   for (const UnseenLine& u : s.unseen_lines) {
     const std::string k = "unseen_line_" + u.gas + "_" + u.name + ".";
     P(k + "kinetic_energy_eV", u.kinetic_energy_eV);

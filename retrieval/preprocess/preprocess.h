@@ -130,6 +130,11 @@ struct PreprocessSummary {
   /// Lines of the gas table expected inside the signal's support (after the window) but not
   /// seen (lines.h UnseenLine): quality check unseen_line_strength.
   std::vector<UnseenLine> unseen_lines;
+  /// The line detection repeated on the unstreaked edge rows alone (lines.h
+  /// compare_line_patterns): run when there are >= 3 such rows; "" when it agrees, else what
+  /// differs (quality check line_pattern_agreement).
+  bool line_pattern_checked = false;
+  std::string line_pattern_disagreement;
   std::size_t saturated_bins = 0;        ///< given zero weight
   double saturation_level_counts = 0.0;  ///< counts at which saturation was found (0 = none)
   std::string saturation_source;         ///< "sidecar", "plateau" or "" (none)
