@@ -10,6 +10,7 @@
 
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
+#include "retrieval/core/statistics.h"
 #include "retrieval/core/units.h"
 #include "retrieval/physics/pulse_metrics.h"
 #include "retrieval/preprocess/preprocess.h"
@@ -17,17 +18,6 @@
 namespace sw {
 
 namespace {
-
-std::string bad(const char* field, double value, const std::string& constraint) {
-  return std::string(field) + " = " + format_g(value) + " is invalid: it must be " + constraint +
-         ".";
-}
-
-double median(std::vector<double> v) {
-  if (v.empty()) return 0.0;
-  std::nth_element(v.begin(), v.begin() + v.size() / 2, v.end());
-  return v[v.size() / 2];
-}
 
 struct SpectralEvidence {
   bool available = false;
@@ -200,26 +190,28 @@ bool contradicts(PulseClass a, PulseClass b) {
 
 std::string ClassifierOptions::validate() const {
   if (!(ir_wavelength_nm >= 0.0) || !std::isfinite(ir_wavelength_nm))
-    return bad("ir_wavelength_nm", ir_wavelength_nm, "0 (from the trace) or a wavelength > 0 nm");
+    return invalid_value("ir_wavelength_nm", ir_wavelength_nm,
+                         "0 (from the trace) or a wavelength > 0 nm");
   if (!(isolated_max_satellite_ratio > 0.0 && isolated_max_satellite_ratio < satellite_max_ratio))
-    return bad("isolated_max_satellite_ratio", isolated_max_satellite_ratio,
-               "in (0, satellite_max_ratio = " + format_g(satellite_max_ratio) + ")");
+    return invalid_value("isolated_max_satellite_ratio", isolated_max_satellite_ratio,
+                         "in (0, satellite_max_ratio = " + format_g(satellite_max_ratio) + ")");
   if (!(satellite_max_ratio <= 1.0))
-    return bad("satellite_max_ratio", satellite_max_ratio, "in (isolated_max_satellite_ratio, 1]");
+    return invalid_value("satellite_max_ratio", satellite_max_ratio,
+                         "in (isolated_max_satellite_ratio, 1]");
   if (train_min_comparable_bursts < 2)
-    return bad("train_min_comparable_bursts", train_min_comparable_bursts, ">= 2");
+    return invalid_value("train_min_comparable_bursts", train_min_comparable_bursts, ">= 2");
   if (!(comb_min_period_contrast > 1.0 / 3.0 && comb_min_period_contrast < 1.0))
-    return bad("comb_min_period_contrast", comb_min_period_contrast, "in (1/3, 1)");
+    return invalid_value("comb_min_period_contrast", comb_min_period_contrast, "in (1/3, 1)");
   if (!(delay_train_min_share > 0.0 && delay_train_min_share < 1.0))
-    return bad("delay_train_min_share", delay_train_min_share, "in (0, 1)");
+    return invalid_value("delay_train_min_share", delay_train_min_share, "in (0, 1)");
   if (!(delay_streaking_max_share > 0.0 && delay_streaking_max_share < delay_train_min_share))
-    return bad("delay_streaking_max_share", delay_streaking_max_share,
-               "in (0, delay_train_min_share = " + format_g(delay_train_min_share) + ")");
-  if (!(min_total_counts > 0.0)) return bad("min_total_counts", min_total_counts, "> 0");
+    return invalid_value("delay_streaking_max_share", delay_streaking_max_share,
+                         "in (0, delay_train_min_share = " + format_g(delay_train_min_share) + ")");
+  if (!(min_total_counts > 0.0)) return invalid_value("min_total_counts", min_total_counts, "> 0");
   if (!(retrieval_max_trace_error_ratio > 1.0))
-    return bad("retrieval_max_trace_error_ratio", retrieval_max_trace_error_ratio, "> 1");
-  if (!(hot_pixel_sigma > 0.0)) return bad("hot_pixel_sigma", hot_pixel_sigma, "> 0");
-  if (!(hot_pixel_ratio > 1.0)) return bad("hot_pixel_ratio", hot_pixel_ratio, "> 1");
+    return invalid_value("retrieval_max_trace_error_ratio", retrieval_max_trace_error_ratio, "> 1");
+  if (!(hot_pixel_sigma > 0.0)) return invalid_value("hot_pixel_sigma", hot_pixel_sigma, "> 0");
+  if (!(hot_pixel_ratio > 1.0)) return invalid_value("hot_pixel_ratio", hot_pixel_ratio, "> 1");
   return {};
 }
 

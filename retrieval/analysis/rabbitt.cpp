@@ -10,23 +10,13 @@
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
 #include "retrieval/core/phase_unwrap.h"
+#include "retrieval/core/statistics.h"
 #include "retrieval/core/units.h"
 #include "retrieval/physics/gas.h"
 
 namespace sw {
 
 namespace {
-
-std::string bad(const char* field, double value, const char* constraint) {
-  return std::string(field) + " = " + format_g(value) + " is invalid: it must be " + constraint +
-         ".";
-}
-
-double median(std::vector<double> v) {
-  if (v.empty()) return 0.0;
-  std::nth_element(v.begin(), v.begin() + v.size() / 2, v.end());
-  return v[v.size() / 2];
-}
 
 // Delay weights: trapezoid half-intervals normalised to sum N (1 each for a uniform axis).
 std::vector<double> delay_weights(const std::vector<double>& tau) {
@@ -119,26 +109,27 @@ double golden_max(F f, double a, double b, int iterations) {
 
 std::string RabbittOptions::validate() const {
   if (!(ir_wavelength_nm >= 0.0) || !std::isfinite(ir_wavelength_nm))
-    return bad("ir_wavelength_nm", ir_wavelength_nm, "0 (from the trace) or a wavelength > 0 nm");
+    return invalid_value("ir_wavelength_nm", ir_wavelength_nm,
+                         "0 (from the trace) or a wavelength > 0 nm");
   if (!(window_half_width_fraction > 0.0 && window_half_width_fraction <= 0.5))
-    return bad("window_half_width_fraction", window_half_width_fraction,
-               "in (0, 0.5] (units of hbar omega)");
+    return invalid_value("window_half_width_fraction", window_half_width_fraction,
+                         "in (0, 0.5] (units of hbar omega)");
   if (!(min_peak_significance > 0.0))
-    return bad("min_peak_significance", min_peak_significance, "> 0");
+    return invalid_value("min_peak_significance", min_peak_significance, "> 0");
   if (!(min_modulation_significance > 0.0))
-    return bad("min_modulation_significance", min_modulation_significance, "> 0");
+    return invalid_value("min_modulation_significance", min_modulation_significance, "> 0");
   if (!(energy_resolution_eV >= 0.0) || !std::isfinite(energy_resolution_eV))
-    return bad("energy_resolution_eV", energy_resolution_eV, "0 (automatic) or > 0 eV");
+    return invalid_value("energy_resolution_eV", energy_resolution_eV, "0 (automatic) or > 0 eV");
   if (!(frequency_search_fraction > 0.0 && frequency_search_fraction < 0.5))
-    return bad("frequency_search_fraction", frequency_search_fraction, "in (0, 0.5)");
+    return invalid_value("frequency_search_fraction", frequency_search_fraction, "in (0, 0.5)");
   if (reweight_passes < 0 || reweight_passes > 10)
-    return bad("reweight_passes", reweight_passes, "in 0..10");
+    return invalid_value("reweight_passes", reweight_passes, "in 0..10");
   if (calibration_sidebands < 1)
-    return bad("calibration_sidebands", calibration_sidebands, "at least 1");
+    return invalid_value("calibration_sidebands", calibration_sidebands, "at least 1");
   if (!(min_comb_contrast >= 0.0 && min_comb_contrast < 2.0))
-    return bad("min_comb_contrast", min_comb_contrast, "in [0, 2)");
+    return invalid_value("min_comb_contrast", min_comb_contrast, "in [0, 2)");
   if (!(calibration_warn_fraction >= 0.0))
-    return bad("calibration_warn_fraction", calibration_warn_fraction, ">= 0");
+    return invalid_value("calibration_warn_fraction", calibration_warn_fraction, ">= 0");
   const std::string a = atomic.validate();
   if (!a.empty()) return "atomic." + a;
   return {};

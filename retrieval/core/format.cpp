@@ -53,4 +53,9 @@ std::string format_value_sigma(double value, std::optional<double> sigma, std::s
   return out;
 }
 
+std::string invalid_value(std::string_view field, double value, std::string_view constraint) {
+  return std::string(field) + " = " + format_g(value) + " is invalid: it must be " +
+         std::string(constraint) + ".";
+}
+
 }  // namespace sw

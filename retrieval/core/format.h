@@ -59,4 +59,8 @@ ValueSigmaText round_value_sigma(double value, double sigma);
 std::string format_value_sigma(double value, std::optional<double> sigma,
                                std::string_view unit = {});
 
+/// The text of an option validation error: "FIELD = VALUE is invalid: it must be CONSTRAINT."
+/// (the value by format_g).
+std::string invalid_value(std::string_view field, double value, std::string_view constraint);
+
 }  // namespace sw

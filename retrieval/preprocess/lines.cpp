@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <optional>
 #include <sstream>
 
 #include "retrieval/core/error.h"
@@ -22,6 +23,12 @@ std::string LineOptions::validate() const {
     s << "mirror_systematic_fraction = " << mirror_systematic_fraction << ": must be >= 0";
   else if (!(dip_fraction >= 0 && dip_fraction < 1))
     s << "dip_fraction = " << dip_fraction << ": must lie in [0, 1)";
+  else if (!(pattern_dip_fraction > 0 && pattern_dip_fraction < 1))
+    s << "pattern_dip_fraction = " << pattern_dip_fraction << ": must lie in (0, 1)";
+  else if (!(pattern_min_strength > 0 && pattern_min_strength <= 1))
+    s << "pattern_min_strength = " << pattern_min_strength << ": must lie in (0, 1]";
+  else if (!(pattern_tolerance_fraction > 0))
+    s << "pattern_tolerance_fraction = " << pattern_tolerance_fraction << ": must be > 0";
   return s.str();
 }
 
@@ -40,15 +47,29 @@ bool present(const LineSearch& s, std::size_t k) {
   return (k < s.found.size() && s.found[k]) || (k < s.assumed.size() && s.assumed[k]);
 }
 
+std::optional<double> neighbour_centre(const LineSearch& s, std::size_t k,
+                                       const std::vector<double>& W) {
+  if (W.empty() || static_cast<int>(k) == s.reference || !present(s, k) ||
+      !s.lines[k].kinetic_energy_eV)
+    return std::nullopt;
+  const double c = *s.lines[k].kinetic_energy_eV;
+  if (!(c > 0) || c < W.front() || c > W.back()) return std::nullopt;
+  return c;
+}
+
 bool has_neighbours(const LineSearch& s, const std::vector<double>& W) {
-  if (s.reference < 0 || W.empty()) return false;
-  for (std::size_t k = 0; k < s.lines.size(); ++k) {
-    if (static_cast<int>(k) == s.reference || !present(s, k) || !s.lines[k].kinetic_energy_eV)
-      continue;
-    const double c = *s.lines[k].kinetic_energy_eV;
-    if (c > 0 && c >= W.front() && c <= W.back()) return true;
-  }
+  if (s.reference < 0) return false;
+  for (std::size_t k = 0; k < s.lines.size(); ++k)
+    if (neighbour_centre(s, k, W)) return true;
   return false;
+}
+
+bool axis_bracket(const std::vector<double>& W, double w, std::size_t* u, double* f) {
+  if (W.size() < 2 || w < W.front() || w > W.back()) return false;
+  *u = static_cast<std::size_t>(std::upper_bound(W.begin(), W.end(), w) - W.begin());
+  *u = std::min(std::max<std::size_t>(*u, 1), W.size() - 1);
+  *f = (w - W[*u - 1]) / (W[*u] - W[*u - 1]);
+  return true;
 }
 
 LineSearch find_lines(const std::vector<double>& W, const std::vector<double>& counts,
@@ -252,12 +273,19 @@ LineSearch find_lines(const std::vector<double>& W, const std::vector<double>& c
   out.photon_energy_eV = Wp + cand[pick].ip_eV;
   double Cr = 0, Vr = 0, unused = 0;
   cell_counts(Wp, H.c0[pick], H.c1[pick], false, &Cr, &Vr, &unused);
-  // The reference's support, cut half way to every line found.
+  // Per candidate: assumed present although not seen (a declared line, or with
+  // assume_expected_lines a table line, on the axis and separable from the reference).
+  std::vector<char> assumed(cand.size(), 0);
+  for (std::size_t k = 0; k < cand.size(); ++k) {
+    const double c = H.centre[k];
+    assumed[k] = k != pick && !H.seen[k] && H.measurable[k] && c > 0 && c >= W.front() &&
+                 c <= W.back() && (cand[k].declared || (o.assume_expected_lines && Cr > 0));
+  }
+  // The reference's support, cut half way to every line found or assumed.
   out.support_lo_eV = W[lo];
   out.support_hi_eV = W[hi];
   for (std::size_t k = 0; k < cand.size(); ++k)
-    if (H.seen[k] || ((cand[k].declared || o.assume_expected_lines) && H.measurable[k] &&
-                      H.centre[k] >= W.front() && H.centre[k] <= W.back())) {
+    if (H.seen[k] || assumed[k]) {
       const double mid = 0.5 * (H.centre[k] + Wp);
       if (H.centre[k] < Wp)
         out.support_lo_eV = std::max(out.support_lo_eV, mid);
@@ -285,8 +313,7 @@ LineSearch find_lines(const std::vector<double>& W, const std::vector<double>& c
     }
     const double c = H.centre[k];
     const bool on_axis = c > 0 && c >= W.front() && c <= W.back();
-    const bool assume = o.assume_expected_lines && on_axis && H.measurable[k] && Cr > 0;
-    if (!H.seen[k] && !cand[k].declared && !assume) {  // table lines listed when found/assumed
+    if (!H.seen[k] && !assumed[k] && !cand[k].declared) {  // table lines: found or assumed
       if (on_axis) {
         UnseenLine u;
         u.name = cand[k].name;
@@ -323,14 +350,14 @@ LineSearch find_lines(const std::vector<double>& W, const std::vector<double>& c
                           : "expected at " + format_g(*e.kinetic_energy_eV) +
                                 " eV, outside the energy axis or inside the reference line's band";
       out.warnings.push_back("declared line " + e.gas + " " + e.name + " not seen: " + why +
-                             (H.measurable[k] && on_axis
+                             (assumed[k]
                                   ? "; assumed present as declared (deblended and kept out of "
                                     "the analysis window)"
                                   : ""));
     }
     out.lines.push_back(e);
     out.found.push_back(H.seen[k]);
-    out.assumed.push_back(!H.seen[k] && (cand[k].declared || assume) && on_axis && H.measurable[k]);
+    out.assumed.push_back(assumed[k]);
   }
   return out;
 }
@@ -388,10 +415,9 @@ Eigen::MatrixXd deblend_neighbours(const LineSearch& s, const std::vector<double
   };
   std::vector<Nb> nb;
   for (std::size_t k = 0; k < s.lines.size(); ++k) {
-    if (static_cast<int>(k) == s.reference || !present(s, k) || !s.lines[k].kinetic_energy_eV)
-      continue;
-    const double c = *s.lines[k].kinetic_energy_eV;
-    if (!(c > 0) || c < W.front() || c > W.back() || !(pr > 0)) continue;
+    const std::optional<double> centre = neighbour_centre(s, k, W);
+    if (!centre || !(pr > 0)) continue;
+    const double c = *centre;
     Nb b;
     b.line = k;
     b.c = c;
@@ -406,10 +432,9 @@ Eigen::MatrixXd deblend_neighbours(const LineSearch& s, const std::vector<double
   if (nb.empty()) return total;
   // Linear interpolation of row i of m at energy w (0 outside the axis).
   auto at = [&](const Eigen::MatrixXd& m, Eigen::Index i, double w) {
-    if (w < W.front() || w > W.back()) return 0.0;
-    std::size_t u = static_cast<std::size_t>(std::upper_bound(W.begin(), W.end(), w) - W.begin());
-    u = std::min(std::max<std::size_t>(u, 1), W.size() - 1);
-    const double f = (w - W[u - 1]) / (W[u] - W[u - 1]);
+    std::size_t u = 0;
+    double f = 0;
+    if (!axis_bracket(W, w, &u, &f)) return 0.0;
     return (1.0 - f) * m(i, static_cast<Eigen::Index>(u - 1)) +
            f * m(i, static_cast<Eigen::Index>(u));
   };
@@ -499,10 +524,9 @@ bool choose_window(const LineSearch& s, const std::vector<double>& W, double str
   double lo = deblended ? W.front() : ref_lo - streak, hi = deblended ? W.back() : ref_hi + streak;
   bool other = false;
   for (std::size_t k = 0; k < s.lines.size(); ++k) {
-    if (static_cast<int>(k) == s.reference || !present(s, k) || !s.lines[k].kinetic_energy_eV)
-      continue;
-    const double c = *s.lines[k].kinetic_energy_eV;
-    if (c < W.front() || c > W.back()) continue;
+    const std::optional<double> centre = neighbour_centre(s, k, W);
+    if (!centre) continue;
+    const double c = *centre;
     other = true;
     const std::string who = s.lines[k].gas + " " + s.lines[k].name;
     if (deblended) {  // the neighbour is subtracted: keep the reference's band up to its centre

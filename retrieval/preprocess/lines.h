@@ -43,6 +43,7 @@
 // reaches into the reference's support overlaps it (warning). With no other line in the
 // scan's energy range the whole axis is kept.
 
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -76,8 +77,17 @@ struct LineOptions {
   /// by this fraction of the peak above its lowest value so far: the dip between two resolved
   /// lines. 0 = off (the default for the delay-integrated spectrum, whose streaked lines are
   /// double-humped); preprocess's cross-check on the unstreaked edge rows uses 0.1.
-  double dip_fraction = 0.0;     ///< in [0, 1)
-  std::string validate() const;  ///< "" when valid; else names field, value and rule
+  double dip_fraction = 0.0;  ///< in [0, 1)
+  /// The cross-check on the unstreaked edge rows (preprocess, compare_line_patterns): its
+  /// dip_fraction (our choice: 0.1, well above the 5-bin smoothed noise at 300 peak counts) ...
+  double pattern_dip_fraction = 0.1;  ///< in (0, 1)
+  /// ... the weakest line there that must also be in the delay-integrated detection (our
+  /// choice: 0.3; weaker lines are assumed present anyway) ...
+  double pattern_min_strength = 0.3;  ///< in (0, 1]
+  /// ... and the position tolerance as a fraction of the edge-row line's support width (our
+  /// choice: 0.15, about 0.3 FWHM; photon energies on satellites' fringes differ by 1-2 eV).
+  double pattern_tolerance_fraction = 0.15;  ///< > 0
+  std::string validate() const;              ///< "" when valid; else names field, value and rule
 };
 
 /// A line of the gas table that the photon energy reaches inside the energy axis but that was
@@ -116,8 +126,17 @@ struct LineSearch {
 /// Line k is present: found, or assumed present (declared, or expected from the gas table).
 bool present(const LineSearch& search, std::size_t k);
 
+/// The centre (eV) of line k when it is a present line other than the reference with its centre
+/// on the axis W_eV (eV, ascending, > 0); nothing otherwise.
+std::optional<double> neighbour_centre(const LineSearch& search, std::size_t k,
+                                       const std::vector<double>& W_eV);
+
 /// A line other than the reference is present with its centre on the axis W_eV (eV, ascending).
 bool has_neighbours(const LineSearch& search, const std::vector<double>& W_eV);
+
+/// Linear interpolation on the ascending axis W: the value at w is (1 - f) y[u - 1] + f y[u].
+/// False (u, f unchanged) when w lies outside [W.front(), W.back()] or W has < 2 points.
+bool axis_bracket(const std::vector<double>& W, double w, std::size_t* u, double* f);
 
 /// Runs the detection on a delay-integrated spectrum: W_eV ascending (uniform or not), counts
 /// (background subtracted, may be negative) and their variance, both summed over delays.
@@ -137,7 +156,7 @@ LineSearch find_lines(const std::vector<double>& W_eV, const std::vector<double>
 /// line_pattern_agreement. (Weaker lines are assumed present anyway; the photon energies alone
 /// differ by 1-2 eV on satellites' fringes, so they are not compared.)
 std::string compare_line_patterns(const LineSearch& integrated, const LineSearch& unstreaked,
-                                  double tolerance_eV, double min_strength = 0.3);
+                                  double tolerance_eV, double min_strength);
 
 /// The analysis window [lo, hi] (eV) around the reference line (see the header comment);
 /// `streak_range_eV` >= 0. Returns false (window = whole axis) when no other line was found

@@ -333,12 +333,13 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
           fs[static_cast<std::size_t>(j)] = c - static_cast<double>(rows.size()) * bgcol(j);
           fv[static_cast<std::size_t>(j)] = std::max(c, 1.0);
         }
-        LineOptions lo_ff = opt.lines;
-        lo_ff.dip_fraction = 0.1;  // unstreaked lines are single-humped: a dip separates two
+        LineOptions lo_ff = opt.lines;  // unstreaked lines are single-humped: a dip separates two
+        lo_ff.dip_fraction = opt.lines.pattern_dip_fraction;
         const LineSearch lf = find_lines(W_eV, fs, fv, gas, trace.meta.lines, lo_ff);
         s.line_pattern_checked = true;
-        s.line_pattern_disagreement =
-            compare_line_patterns(ls, lf, 0.15 * (lf.line_below_eV + lf.line_above_eV));
+        s.line_pattern_disagreement = compare_line_patterns(
+            ls, lf, opt.lines.pattern_tolerance_fraction * (lf.line_below_eV + lf.line_above_eV),
+            opt.lines.pattern_min_strength);
         if (!s.line_pattern_disagreement.empty())
           s.warnings.push_back("line assignment in doubt: " + s.line_pattern_disagreement +
                                "; declare the lines in the sidecar or set --energy-window");
@@ -458,17 +459,14 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
     const double c = units::eV_to_au(ref_centre_eV);
     for (Eigen::Index j = 0; j < ne; ++j) {
       if (!masked[static_cast<std::size_t>(j)]) continue;
-      const double x = 2.0 * c - W[static_cast<std::size_t>(j)];
       out.col(j).setZero();
-      if (x < W.front() || x > W.back()) continue;
-      const auto u = static_cast<Eigen::Index>(std::min<std::size_t>(
-          std::max<std::size_t>(
-              static_cast<std::size_t>(std::upper_bound(W.begin(), W.end(), x) - W.begin()), 1),
-          W.size() - 1));
-      if (masked[static_cast<std::size_t>(u)] || masked[static_cast<std::size_t>(u - 1)]) continue;
-      const double f = (x - W[static_cast<std::size_t>(u - 1)]) /
-                       (W[static_cast<std::size_t>(u)] - W[static_cast<std::size_t>(u - 1)]);
-      out.col(j) = (1.0 - f) * m.col(u - 1) + f * m.col(u);
+      std::size_t u = 0;
+      double f = 0;
+      if (!axis_bracket(W, 2.0 * c - W[static_cast<std::size_t>(j)], &u, &f) || masked[u] ||
+          masked[u - 1])
+        continue;
+      const auto q = static_cast<Eigen::Index>(u);
+      out.col(j) = (1.0 - f) * m.col(q - 1) + f * m.col(q);
     }
     return out;
   };
