@@ -27,6 +27,10 @@ inline constexpr std::size_t kMaxSamples = 1u << 24;  ///< energies x delays (16
 inline constexpr int kMaxEchoDepth = 8;               ///< nesting of an echoed unknown key
 inline constexpr std::size_t kMaxEchoBytes = 16384;   ///< JSON text of one echoed unknown key
 inline constexpr std::size_t kMaxExcerptChars = 24;   ///< quoted excerpt of an offending cell
+/// Declared photoelectron lines of one sidecar. The line analysis compares every pair of lines
+/// and the joint fit carries one strength and delay per line; a real scan has two to six (the
+/// inner- and outer-valence states of one or two gases).
+inline constexpr std::size_t kMaxDeclaredLines = 16;
 }  // namespace limits
 
 /// Throws unless `path` names an existing regular file (after following symbolic links) of at

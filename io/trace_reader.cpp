@@ -919,6 +919,10 @@ Trace read_trace(const std::string& sidecar_path, std::vector<std::string>* warn
     if (!ls.is_array())
       sc.fail("lines", std::string("is ") + type_name(ls) +
                            "; expected an array of {\"name\", \"ionization_energy_eV\"}");
+    if (ls.size() > limits::kMaxDeclaredLines)
+      sc.fail("lines", "lists " + std::to_string(ls.size()) + " lines, above the limit of " +
+                           std::to_string(limits::kMaxDeclaredLines) +
+                           "; list only the lines of the scan's gases on its energy axis");
     for (std::size_t i = 0; i < ls.size(); ++i) {
       const std::string f = "lines[" + std::to_string(i) + "]";
       const json& l = ls[i];

@@ -186,6 +186,13 @@ TEST_CASE("declared sizes and physical ranges are checked before allocation", "[
   json e = s.sidecar;
   e["energy_eV"]["step"] = 1e-9;
   CHECK_THAT(input_error(s.write(e)), Contains("energy_eV") && Contains("at least"));
+  // A 1 MiB sidecar holds ~20000 line entries; the pairwise line analysis must never see them
+  // (5000 here, to stay below the sidecar size limit).
+  json f = s.sidecar;
+  f["lines"] = json::array();
+  for (int i = 0; i < 5000; ++i)
+    f["lines"].push_back({{"name", "l" + std::to_string(i)}, {"ionization_energy_eV", 20.0}});
+  CHECK_THAT(input_error(s.write(f)), Contains("lines") && Contains("limit of 16"));
 }
 
 TEST_CASE("image dimensions come from the header, before decoding", "[io][limits]") {
