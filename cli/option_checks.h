@@ -14,7 +14,8 @@ namespace sw::cli {
 /// add_option calls of a subcommand).
 void check_numeric_options(CLI::App* cmd);
 
-/// Validator of an IR wavelength option (nm): finite, in [100, 20000] nm (io/trace_reader.cpp).
+/// Validator of an IR wavelength option (nm): finite, in [100, 20000] nm (the trace reader's range,
+/// io/trace_reader_internal.h).
 CLI::Validator ir_wavelength_nm_check();
 
 /// The same rule for wavelengths from files (batch config, manifest): "" or the violated rule.

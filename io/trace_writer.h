@@ -36,7 +36,8 @@ const char* to_string(TraceLayout l);
 /// flight-time bin (one tof_ns value per column, in column order), as the synthetic generator
 /// records them (synthetic/tof_recording.h). The sidecar gets `tof_ns` (ascending; the columns
 /// are reordered to match) and the `calibration` block {length_m, t0_ns, energy_offset_eV}
-/// that io/trace_reader.cpp reads (io/tof_calibration.h); the trace's energy axis is not written.
+/// that io/trace_reader_tof.cpp reads (io/tof_calibration.h); the trace's energy axis is not
+/// written.
 struct TraceTofAxis {
   std::vector<double> tof_ns;     ///< flight time (ns) of each column, distinct, > t0_ns
   double length_m = 0.0;          ///< drift length (m, > 0)

@@ -1,0 +1,18 @@
+#pragma once
+// Internals shared by the CmaProblem files (cma_problem.cpp, cma_constraints.cpp,
+// cma_momentum_bands.cpp, cma_initial_guess.cpp); not part of its interface (cma_problem.h).
+
+#include <cstddef>
+#include <string>
+
+#include "retrieval/core/format.h"
+#include "retrieval/core/grid.h"
+
+namespace sw::cma_detail {
+
+inline std::string num(double x) { return format_g(x); }
+
+// v[i] *= exp(i rate (t0 + i step)), by recurrence of unit rotations.
+void rotate_linear(cdouble* v, std::size_t n, double t0, double step, double rate);
+
+}  // namespace sw::cma_detail

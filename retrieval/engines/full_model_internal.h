@@ -1,0 +1,22 @@
+#pragma once
+// Internals shared by the full-model files (full_model_objective.cpp, full_model_lines.cpp,
+// full_model_engine.cpp); not part of the engine's interface (full_model_engine.h).
+
+#include <string>
+#include <vector>
+
+#include "retrieval/core/format.h"
+#include "retrieval/engines/problem.h"
+
+namespace sw::full_model_detail {
+
+inline std::string num(double x) { return format_g(x); }
+
+// The spectrum that defines carrier and support: field-free if usable, else delay average.
+std::vector<double> reference_spectrum(const RetrievalProblem& P);
+
+// Throws sw::Error(kInput) naming `who` and the field when the problem's sizes or values do
+// not make a full-model problem.
+void check_problem(const RetrievalProblem& P, const std::string& who);
+
+}  // namespace sw::full_model_detail
