@@ -73,20 +73,7 @@ int run_retrieve(RetrieveArgs& a) {
     parse_energy_window(a.energy_window, "--energy-window",
                         &a.options.preprocess.energy_window_lo_eV,
                         &a.options.preprocess.energy_window_hi_eV);
-  if (!a.lines.empty()) {
-    a.options.line_delays.names.clear();
-    std::stringstream ls(a.lines);
-    for (std::string n; std::getline(ls, n, ',');) {
-      if (n.empty())
-        throw usage_error("--lines " + a.lines +
-                          ": an empty name; expected NAME[,NAME...] (e.g. 2s) or none");
-      a.options.line_delays.names.push_back(n);
-    }
-    if (a.options.line_delays.names.size() > 1 &&
-        std::find(a.options.line_delays.names.begin(), a.options.line_delays.names.end(), "none") !=
-            a.options.line_delays.names.end())
-      throw usage_error("--lines " + a.lines + ": none cannot be combined with line names");
-  }
+  if (!a.lines.empty()) parse_line_names(a.lines, "--lines", &a.options.line_delays.names);
   if (a.options.engine != "auto") (void)make_engine(a.options.engine);  // unknown names listed
   if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
   ScanJob job;

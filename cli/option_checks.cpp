@@ -1,7 +1,11 @@
 #include "cli/option_checks.h"
 
+#include <algorithm>
 #include <cmath>
+#include <sstream>
 #include <string>
+
+#include "retrieval/core/error.h"
 
 namespace sw::cli {
 
@@ -18,6 +22,20 @@ bool parse_double(const std::string& s, double* v) {
 }
 
 }  // namespace
+
+void parse_line_names(const std::string& text, const std::string& option,
+                      std::vector<std::string>* names) {
+  names->clear();
+  std::stringstream ls(text);
+  for (std::string n; std::getline(ls, n, ',');) {
+    if (n.empty())
+      throw usage_error(option + " " + text +
+                        ": an empty name; expected NAME[,NAME...] (e.g. 2s) or none");
+    names->push_back(n);
+  }
+  if (names->size() > 1 && std::find(names->begin(), names->end(), "none") != names->end())
+    throw usage_error(option + " " + text + ": none cannot be combined with line names");
+}
 
 std::string ir_wavelength_nm_problem(double nm) {
   if (!(std::isfinite(nm) && nm >= 100.0 && nm <= 20000.0))

@@ -38,6 +38,7 @@
 #include "io/result_io.h"
 #include "io/retrieval_outputs.h"
 #include "io/trace_reader.h"
+#include "python/described_kwargs.h"
 #include "retrieval/analysis/analyses.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/grid.h"
@@ -456,25 +457,32 @@ Scan with_overrides(const Scan& scan, const py::object& gas, const py::object& i
   return s;
 }
 
-Result py_retrieve(const Scan& scan, const std::string& engine, int iterations, int bootstrap,
-                   unsigned long long seed, int threads, const std::string& dipole,
-                   double cma_phase_limit, double cma_fit_limit, double isolated_max,
-                   double satellites_max, bool despike, const py::object& energy_window,
-                   const py::object& progress) {
+// The CLI's --lines: "2s,3s" or none as there, or a list of names.
+void set_line_names(const py::object& lines, LineDelayOptions& o) {
+  if (lines.is_none()) return;
+  std::string text;
+  if (py::isinstance<py::str>(lines)) {
+    text = lines.cast<std::string>();
+  } else {
+    try {
+      for (const std::string& n : lines.cast<std::vector<std::string>>())
+        text += (text.empty() ? "" : ",") + n;
+    } catch (const py::cast_error&) {
+      throw py::type_error("retrieve(): lines = " + py::repr(lines).cast<std::string>() +
+                           ": expected NAME[,NAME...], none or a list of names");
+    }
+  }
+  if (!text.empty()) cli::parse_line_names(text, "lines", &o.names);
+}
+
+// The options of RetrieveOptions::describe arrive as keywords (python/described_kwargs.h);
+// energy_window and lines are the CLI's --energy-window and --lines.
+Result py_retrieve(const Scan& scan, const py::object& energy_window, const py::object& lines,
+                   const py::object& progress, const py::kwargs& options) {
   RetrieveOptions o;
-  o.engine = engine;
-  o.iterations = iterations;
-  o.bootstrap = bootstrap;
-  o.seed = seed;
-  o.threads = threads;
-  if (!parse_dipole_kind(dipole, &o.preprocess.dipole))
-    throw usage_error("dipole " + dipole + ": expected constant or hydrogenic");
-  o.cma_phase_error_max_rad = cma_phase_limit;
-  o.cma_trace_error_max_ratio = cma_fit_limit;
-  o.isolated_max_satellite_ratio = isolated_max;
-  o.satellites_max_satellite_ratio = satellites_max;
-  o.preprocess.remove_hot_pixels = despike;
+  set_described_from_kwargs(o, options, "retrieve");
   set_energy_window(energy_window, o.preprocess);
+  set_line_names(lines, o.line_delays);
   check_engine(o.engine);
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
   Result r{run_released(progress, scan.trace,
@@ -731,17 +739,18 @@ PYBIND11_MODULE(streakwright, m) {
         "Returns (Scan, truth dict).");
 
   const RetrieveOptions rd;
-  m.def("retrieve", &py_retrieve, py::arg("scan"), py::kw_only(), py::arg("engine") = rd.engine,
-        py::arg("iterations") = rd.iterations, py::arg("bootstrap") = rd.bootstrap,
-        py::arg("seed") = rd.seed, py::arg("threads") = rd.threads, py::arg("dipole") = "constant",
-        py::arg("cma_phase_limit") = rd.cma_phase_error_max_rad,
-        py::arg("cma_fit_limit") = rd.cma_trace_error_max_ratio,
-        py::arg("isolated_max") = rd.isolated_max_satellite_ratio,
-        py::arg("satellites_max") = rd.satellites_max_satellite_ratio,
-        py::arg("despike") = rd.preprocess.remove_hot_pixels, py::arg("energy_window") = py::none(),
-        py::arg("progress") = py::none(),
-        "Streaking retrieval (the CLI's `retrieve`); progress(stage, message) is called during the "
-        "work.");
+  // Keywords: the flags of the CLI's `retrieve` from RetrieveOptions::describe, plus
+  // energy_window, lines and progress.
+  static const std::string retrieve_doc =
+      "Streaking retrieval (the CLI's `retrieve`); progress(stage, message) is called during the "
+      "work.\n\nKeyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
+      described_kwargs_doc(rd) +
+      "  energy_window = None: analyse only photoelectron energies (LO, HI) or \"LO:HI\" (eV)\n"
+      "  lines = None: lines whose delay relative to the reference line is measured: "
+      "\"2s,3s\", [\"2s\", \"Kr 4p\"] or \"none\"; None = every line found\n";
+  m.def("retrieve", &py_retrieve, py::arg("scan"), py::kw_only(),
+        py::arg("energy_window") = py::none(), py::arg("lines") = py::none(),
+        py::arg("progress") = py::none(), retrieve_doc.c_str());
 
   const RabbittAnalysisOptions ra;
   m.def("rabbitt", &py_rabbitt, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),

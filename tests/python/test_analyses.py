@@ -3,6 +3,7 @@
 # arrays out; progress and cancellation.
 import json
 import os
+import re
 import signal
 import threading
 
@@ -130,6 +131,36 @@ def test_bad_input_raises_value_error_with_the_cli_message(archive, tmp_path):
     scan, _ = sw.simulate("neon-150as", seed=2)
     with pytest.raises(ValueError, match="engine"):
         sw.retrieve(scan, engine="no-such-engine")
+
+
+def test_retrieve_keywords_are_the_cli_options():
+    """Every option of the CLI's `retrieve` is a keyword of sw.retrieve (its flag with '-' -> '_',
+    the same default and checks: both come from RetrieveOptions::describe)."""
+    helptext = run_cli("retrieve", "--help").stdout
+    flags = set(re.findall(r"^  (?:-\w,)?--([a-z][a-z-]*)", helptext, re.M))  # first flag of a row
+    # Not options of the analysis: the output folder and terminal (Result.write, figure_format
+    # there) and the data-path policy (load_scan).
+    not_analysis = {"help", "out", "quiet", "allow-outside-data", "figure-format"}
+    keywords = {f.replace("-", "_") for f in flags - not_analysis}
+    assert {"engine", "uncertainty", "satellite_start", "max_seconds", "lines"} <= keywords
+    documented = set(re.findall(r"^  (\w+) = ", sw.retrieve.__doc__, re.M))
+    assert keywords == documented
+    scan, _ = sw.simulate("neon-150as", seed=8)
+    fast = {**RETRIEVE_PY, "iterations": 5}
+    got = sw.retrieve(scan, **fast, uncertainty="warm", satellite_start=False, lines="none").to_dict()
+    assert got["settings"]["uncertainty"] == "warm"
+    assert got["settings"]["satellite_start"] is False
+    # An invalid value: ValueError naming the keyword (and the rule); a wrong type: TypeError.
+    with pytest.raises(ValueError, match=r"uncertainty = 'lukewarm': expected full\|warm"):
+        sw.retrieve(scan, **fast, uncertainty="lukewarm")
+    with pytest.raises(ValueError, match="cma_phase_limit = 0: must be > 0 rad"):
+        sw.retrieve(scan, **fast, cma_phase_limit=0.0)
+    with pytest.raises(ValueError, match="lines"):
+        sw.retrieve(scan, **fast, lines="2s,none")
+    with pytest.raises(TypeError, match="bootstrap"):
+        sw.retrieve(scan, **{**fast, "bootstrap": "many"})
+    with pytest.raises(TypeError, match="uncertainty_method"):
+        sw.retrieve(scan, **fast, uncertainty_method="warm")
 
 
 def test_scan_from_arrays_round_trip_and_checks(archive):
