@@ -28,6 +28,7 @@ struct RabbittArgs {
   RabbittOptions options;
   std::string energy_window;
   bool no_rainbow = false;
+  bool no_lines = false;
   bool quiet = false;
   bool allow_outside_data = false;
   plot::FigureFormat figure_format = plot::FigureFormat::kPng;
@@ -57,6 +58,32 @@ std::string summary_line(const AnalysisResult& r) {
   return s.str();
 }
 
+// One logbook line per line with a RABBITT relative delay ("" when there is none).
+std::string line_delay_lines(const AnalysisResult& r) {
+  std::ostringstream s;
+  std::string ref;
+  for (const LineEntry& l : r.lines)
+    if (l.reference) ref = l.gas + " " + l.name;
+  for (const LineEntry& l : r.lines) {
+    if (l.reference || !l.relative_delay_as || l.sidebands.empty()) continue;
+    s << "relative delay " << l.gas << " " << l.name << " - " << ref << ": "
+      << format_value_sigma(*l.relative_delay_as, l.relative_delay_as_sigma, "as");
+    if (l.relative_delay_as_corrected)
+      s << ", corrected for continuum-continuum coupling "
+        << format_value_sigma(*l.relative_delay_as_corrected, l.relative_delay_as_corrected_sigma,
+                              "as");
+    s << " (weighted mean of " << l.sidebands.size() << " sideband"
+      << (l.sidebands.size() == 1 ? "" : "s") << " SB" << l.sidebands.front().order;
+    if (l.sidebands.size() > 1) s << "-SB" << l.sidebands.back().order;
+    if (l.relative_delay_reduced_chi2 && l.sidebands.size() > 1)
+      s << ", chi2/dof " << format_g(*l.relative_delay_reduced_chi2, 2);
+    if (!l.overlapped_orders.empty())
+      s << "; " << l.overlapped_orders.size() << " overlapped order(s) left out";
+    s << "; positive = emitted later)\n";
+  }
+  return s.str();
+}
+
 int run_rabbitt(RabbittArgs& a) {
   ScanJob job;
   job.sidecar = a.scan;
@@ -66,6 +93,7 @@ int run_rabbitt(RabbittArgs& a) {
   job.xuv_only_sidecar = a.xuv_only;
   job.rabbitt = a.options;
   job.rabbitt.rainbow = !a.no_rainbow;
+  job.rabbitt.analyse_lines = !a.no_lines;
   if (!a.energy_window.empty())
     parse_energy_window(a.energy_window, "--energy-window",
                         &job.retrieve.preprocess.energy_window_lo_eV,
@@ -85,6 +113,7 @@ int run_rabbitt(RabbittArgs& a) {
   job.read_policy.allow_outside_data = a.allow_outside_data;
   const ScanOutcome o = run_scan_or_throw(job);
   std::printf("%s\n", summary_line(o.result).c_str());
+  std::printf("%s", line_delay_lines(o.result).c_str());
   if (!a.quiet)
     for (const auto& w : o.result.warnings)
       std::fprintf(stderr, "streakwright rabbitt: warning: %s\n", w.c_str());
@@ -110,8 +139,14 @@ void add_rabbitt_command(CLI::App& app) {
       "intensities from the spectrum divided by the cross-section model.\n"
       "Needs a weak IR field (one IR photon per path) and a harmonic comb: a streaking scan\n"
       "without a comb is refused (exit 3).\n"
+      "With a second photoelectron line (declared in the sidecar's lines, or a line of the\n"
+      "gas table seen in the comb) each sideband order present for both lines gives the\n"
+      "relative delay (phi_line - phi_reference) / (2 omega), raw and corrected for the\n"
+      "continuum-continuum delay at each line's kinetic energy, and their weighted mean;\n"
+      "orders where the two lines' peaks overlap are left out.\n"
       "Writes into DIR: result.json (rabbitt and verdict sections), sidebands.csv,\n"
-      "rainbow.csv, harmonics.csv, burst.csv, PNG figures and report.html.\n"
+      "rainbow.csv, harmonics.csv, burst.csv, line_delays.csv (with a second line), PNG\n"
+      "figures and report.html.\n"
       "Prints a one-line summary. Exit 0 ok, 2 bad usage, 3 bad input, 4 numerical failure.");
   cmd->add_option("scan", a->scan, "sidecar of the RABBITT scan (NAME.json or NAME.yaml)")
       ->required();
@@ -144,6 +179,8 @@ void add_rabbitt_command(CLI::App& app) {
       "--energy-window", a->energy_window,
       "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV");
   cmd->add_flag("--no-rainbow", a->no_rainbow, "skip the per-energy-bin (rainbow) fits");
+  cmd->add_flag("--no-lines", a->no_lines,
+                "do not look for further photoelectron lines (no relative line delays)");
   add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no warnings on stderr (they stay in the report)");
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,

@@ -97,6 +97,23 @@ void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const 
     write_csv(path("rainbow.csv"),
               {"order", "energy_eV", "phase_rad", "phase_rad_sigma", "modulation_depth"}, rows);
   }
+  {
+    // Relative delays of further lines (retrieval/analysis/rabbitt_lines.h), one row per order.
+    std::vector<std::vector<std::string>> rows;
+    auto opt_cell = [](const std::optional<double>& v) { return v ? format_cell(*v) : ""; };
+    for (const LineEntry& l : res.lines)
+      for (const LineSideband& b : l.sidebands)
+        rows.push_back({l.gas, l.name, std::to_string(b.order), format_cell(b.energy_eV),
+                        format_cell(b.relative_phase_rad), format_cell(b.relative_phase_rad_sigma),
+                        format_cell(b.relative_delay_as), format_cell(b.relative_delay_as_sigma),
+                        opt_cell(b.relative_delay_as_corrected), opt_cell(b.cc_correction_as)});
+    if (!rows.empty())
+      write_csv(path("line_delays.csv"),
+                {"gas", "line", "order", "energy_eV", "relative_phase_rad",
+                 "relative_phase_rad_sigma", "relative_delay_as", "relative_delay_as_sigma",
+                 "relative_delay_as_corrected", "cc_correction_as"},
+                rows);
+  }
   if (burst) {
     std::vector<std::vector<std::string>> rows;
     for (std::size_t h = 0; h < burst->harmonic_orders.size(); ++h)

@@ -210,6 +210,29 @@ ojson to_ojson(const AnalysisResult& r) {
       put(o, k, "relative_strength_centre_of_energy", l.relative_strength_centre_of_energy);
       put(o, k, "relative_strength_centre_of_energy_sigma",
           l.relative_strength_centre_of_energy_sigma);
+      put(o, k, "relative_delay_as_corrected_sigma", l.relative_delay_as_corrected_sigma);
+      put(o, k, "relative_delay_reduced_chi2", l.relative_delay_reduced_chi2);
+      put(o, k, "nearest_other_peak_eV", l.nearest_other_peak_eV);
+      if (!l.overlapped_orders.empty()) o["overlapped_orders"] = l.overlapped_orders;
+      if (!l.sidebands.empty()) {
+        ojson sbs = ojson::array();
+        for (std::size_t m = 0; m < l.sidebands.size(); ++m) {
+          const LineSideband& b = l.sidebands[m];
+          const std::string km = k + ".sidebands[" + std::to_string(m) + "]";
+          ojson e;
+          e["order"] = b.order;
+          for (const auto& [key, v] : {std::pair<const char*, double>{"energy_eV", b.energy_eV},
+                                       {"relative_phase_rad", b.relative_phase_rad},
+                                       {"relative_phase_rad_sigma", b.relative_phase_rad_sigma},
+                                       {"relative_delay_as", b.relative_delay_as},
+                                       {"relative_delay_as_sigma", b.relative_delay_as_sigma}})
+            e[key] = finite_number(v, km + "." + key);
+          put(e, km, "relative_delay_as_corrected", b.relative_delay_as_corrected);
+          put(e, km, "cc_correction_as", b.cc_correction_as);
+          sbs.push_back(std::move(e));
+        }
+        o["sidebands"] = std::move(sbs);
+      }
       ls.push_back(std::move(o));
     }
     j["lines"] = std::move(ls);
@@ -530,6 +553,44 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
         opt("relative_strength_centre_of_energy", &l.relative_strength_centre_of_energy);
         opt("relative_strength_centre_of_energy_sigma",
             &l.relative_strength_centre_of_energy_sigma);
+        opt("relative_delay_as_corrected_sigma", &l.relative_delay_as_corrected_sigma);
+        opt("relative_delay_reduced_chi2", &l.relative_delay_reduced_chi2);
+        opt("nearest_other_peak_eV", &l.nearest_other_peak_eV);
+        if (o.contains("overlapped_orders")) {
+          const ojson& a = o["overlapped_orders"];
+          if (!a.is_array()) rd.fail(k + ".overlapped_orders", "an array of orders");
+          for (std::size_t m = 0; m < a.size(); ++m)
+            l.overlapped_orders.push_back(static_cast<int>(
+                rd.number(a[m], k + ".overlapped_orders[" + std::to_string(m) + "]")));
+        }
+        if (o.contains("sidebands")) {
+          const ojson& a = o["sidebands"];
+          if (!a.is_array()) rd.fail(k + ".sidebands", "an array");
+          for (std::size_t m = 0; m < a.size(); ++m) {
+            const std::string km = k + ".sidebands[" + std::to_string(m) + "]";
+            const ojson& e = a[m];
+            if (!e.is_object()) rd.fail(km, "an object");
+            LineSideband b;
+            auto num = [&](const char* f, double* dst) {
+              if (!e.contains(f)) rd.fail(km + "." + f, "a number (required)");
+              *dst = rd.number(e[f], km + "." + f);
+            };
+            double order = 0;
+            num("order", &order);
+            b.order = static_cast<int>(order);
+            num("energy_eV", &b.energy_eV);
+            num("relative_phase_rad", &b.relative_phase_rad);
+            num("relative_phase_rad_sigma", &b.relative_phase_rad_sigma);
+            num("relative_delay_as", &b.relative_delay_as);
+            num("relative_delay_as_sigma", &b.relative_delay_as_sigma);
+            if (e.contains("relative_delay_as_corrected"))
+              b.relative_delay_as_corrected =
+                  rd.number(e["relative_delay_as_corrected"], km + ".relative_delay_as_corrected");
+            if (e.contains("cc_correction_as"))
+              b.cc_correction_as = rd.number(e["cc_correction_as"], km + ".cc_correction_as");
+            l.sidebands.push_back(b);
+          }
+        }
         if (o.contains("delay_method"))
           l.delay_method = rd.string(o["delay_method"], k + ".delay_method");
         for (const char* f : {"reference", "analysed"})

@@ -210,4 +210,17 @@ SyntheticScan generate_scan(const ScanConfig& c, unsigned long long seed) {
   return out;
 }
 
+Trace redraw_counts(const SyntheticScan& scan, double peak_counts, unsigned long long seed) {
+  if (scan.tof || scan.clean.rows() != static_cast<Eigen::Index>(scan.trace.num_delays()) ||
+      scan.clean.cols() != static_cast<Eigen::Index>(scan.trace.num_energies()))
+    throw usage_error("redraw_counts: the scan is not recorded on its energy axis.");
+  NoiseConfig noise;
+  noise.peak_counts = peak_counts;
+  RandomStreams streams(seed);
+  Trace t = scan.trace;
+  t.counts = scan.clean;
+  apply_noise(make_noise_pipeline(noise), t.counts, {}, streams);
+  return t;
+}
+
 }  // namespace sw::synthetic

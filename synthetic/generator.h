@@ -81,4 +81,10 @@ struct SyntheticScan {
 
 SyntheticScan generate_scan(const ScanConfig& config, unsigned long long seed);
 
+/// The scan at another count level from the same noise-free density: scan.clean scaled to
+/// `peak_counts` expected counts at its largest element and drawn again with Poisson noise
+/// (`seed` for the draws); no other noise stage (ideal spectrometer). The scan must be recorded
+/// on its energy axis (no time-of-flight); throws sw::Error (kUsage) otherwise.
+Trace redraw_counts(const SyntheticScan& scan, double peak_counts, unsigned long long seed);
+
 }  // namespace sw::synthetic

@@ -49,6 +49,10 @@ std::string QualityOptions::validate() const {
     s << "max_ir_field_ratio = " << max_ir_field_ratio << ": must be > 1";
   else if (min_sidebands < 2)
     s << "min_sidebands = " << min_sidebands << ": must be >= 2";
+  else if (min_line_sidebands < 1)
+    s << "min_line_sidebands = " << min_line_sidebands << ": must be >= 1";
+  else if (!(min_line_separation_sigmas > 0) || !std::isfinite(min_line_separation_sigmas))
+    s << "min_line_separation_sigmas = " << min_line_separation_sigmas << ": must be > 0";
   return s.str();
 }
 
@@ -232,12 +236,30 @@ QualitySection classify_quality(const Eigen::MatrixXd& counts, double bg, const 
 }
 
 QualitySection rabbitt_quality(const Eigen::MatrixXd& counts, double bg, const RabbittSection& r,
-                               const QualityOptions& o) {
+                               const QualityOptions& o,
+                               const std::vector<RabbittLineEvidence>& lines) {
   QualitySection q;
   add_signal_checks(q, counts, bg, o);
   q.add("sidebands_analysed", static_cast<double>(r.sidebands.size()),
         static_cast<double>(o.min_sidebands),
         ">=", "sidebands with a measured phase (an attochirp needs at least min_sidebands)");
+  if (!lines.empty()) {
+    const RabbittLineEvidence* few = &lines.front();
+    const RabbittLineEvidence* near = &lines.front();
+    for (const RabbittLineEvidence& e : lines) {
+      if (e.sidebands_with_delay < few->sidebands_with_delay) few = &e;
+      if (e.separation_sigmas < near->separation_sigmas) near = &e;
+    }
+    q.add("line_sidebands_for_delay", static_cast<double>(few->sidebands_with_delay),
+          static_cast<double>(o.min_line_sidebands), ">=",
+          "sideband orders giving a relative delay of line " + few->line +
+              (few->why.empty() ? std::string() : " (" + few->why + ")"));
+    q.add("line_sideband_separation_sigmas", near->separation_sigmas, o.min_line_separation_sigmas,
+          ">=",
+          "distance between a sideband of line " + near->line +
+              " and the nearest peak of the other line, in peak sigmas (below the limit the two "
+              "sets of sidebands overlap)");
+  }
   q.finalize();
   return q;
 }

@@ -56,7 +56,13 @@
 //                                spectrum sits at omega (1.06 for a 5 fs, 800 nm pulse); a
 //                                noise-dominated A(t) has a much larger derivative
 //                                                                       <= max_ir_field_ratio
-//   rabbitt: sidebands_analysed (>= 3, to fit an attochirp).
+//   rabbitt: sidebands_analysed (>= 3, to fit an attochirp); with a second photoelectron line
+//     (retrieval/analysis/rabbitt_lines.h), over the non-reference lines:
+//     line_sidebands_for_delay   fewest sideband orders giving a relative delay (overlapped or
+//                                too weak sidebands give none)          >= min_line_sidebands
+//     line_sideband_separation_sigmas  smallest distance between a sideband and a peak of the
+//                                other line, in Gaussian peak sigmas    >=
+//                                min_line_separation_sigmas
 //   classify: verdict_determined (reported), plus the retrieval's checks with --retrieve.
 // Default limits: common practice (no published standard); see the fields.
 
@@ -131,6 +137,13 @@ struct QualityOptions {
   double max_unseen_line_strength = 0.003;  ///< in (0, 1]
   /// rabbitt: fewest sidebands with a phase for an attochirp.
   int min_sidebands = 3;  ///< >= 2
+  /// rabbitt with two lines: fewest sideband orders giving a relative delay of a line (>= 1;
+  /// default 2: the chi^2 of their weighted mean then tests their agreement; common practice).
+  int min_line_sidebands = 2;
+  /// rabbitt with two lines: smallest distance of a sideband from the other line's peaks, in
+  /// Gaussian peak sigmas (> 0; default 4 = the window rule of RabbittOptions: one sigma of
+  /// half width plus the 3-sigma guard).
+  double min_line_separation_sigmas = 4.0;
   std::string validate() const;
 };
 
@@ -193,10 +206,20 @@ QualitySection classify_quality(const Eigen::MatrixXd& counts, double background
                                 const VerdictSection& verdict, const QualitySection* retrieval,
                                 const QualityOptions& options);
 
+/// What the two-line checks of a rabbitt result need, per non-reference line analysed.
+struct RabbittLineEvidence {
+  std::string line;                ///< "Ar 3s"
+  int sidebands_with_delay = 0;    ///< orders giving a relative delay
+  double separation_sigmas = 0.0;  ///< nearest other-line peak / peak sigma
+  std::string why;                 ///< why orders are missing ("" when none are)
+};
+
 /// The quality section of a rabbitt result: the signal checks, sidebands_analysed (sidebands
-/// with a phase >= min_sidebands, guarding the attochirp).
+/// with a phase >= min_sidebands, guarding the attochirp) and, when `lines` is not empty, the
+/// two-line checks (header comment; guarding: the relative delay is a headline number).
 QualitySection rabbitt_quality(const Eigen::MatrixXd& counts, double background_counts,
-                               const RabbittSection& rabbitt, const QualityOptions& options);
+                               const RabbittSection& rabbitt, const QualityOptions& options,
+                               const std::vector<RabbittLineEvidence>& lines = {});
 
 /// Relative L2 difference sqrt(sum (m - c r)^2 / sum m^2) of a measured and a retrieved
 /// spectrum over bins [lo, hi] (c = least-squares scale of r), and (noise_out) the same

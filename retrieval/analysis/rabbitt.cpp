@@ -3,12 +3,14 @@
 #include <algorithm>
 #include <cmath>
 #include <complex>
+#include <limits>
 #include <sstream>
 
 #include <Eigen/Dense>
 
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
+#include "retrieval/core/golden_section.h"
 #include "retrieval/core/phase_unwrap.h"
 #include "retrieval/core/statistics.h"
 #include "retrieval/core/units.h"
@@ -17,6 +19,10 @@
 namespace sw {
 
 namespace {
+
+// Largest energy-scale error the comb-model alignment of several lines searches (our choice:
+// 3 %, beyond the time-of-flight calibrations the single-line alignment warns about at ~1 %).
+constexpr double kCombMaxScaleError = 0.03;
 
 // Delay weights: trapezoid half-intervals normalised to sum N (1 each for a uniform axis).
 std::vector<double> delay_weights(const std::vector<double>& tau) {
@@ -81,30 +87,6 @@ LineFit weighted_line(const std::vector<double>& x, const std::vector<double>& y
 
 double wrap_pi(double a) { return a - units::kTwoPi * std::round(a / units::kTwoPi); }
 
-// Golden-section maximisation of f on [a, b].
-template <class F>
-double golden_max(F f, double a, double b, int iterations) {
-  const double r = 0.5 * (std::sqrt(5.0) - 1.0);
-  double c = b - r * (b - a), d = a + r * (b - a);
-  double fc = f(c), fd = f(d);
-  for (int k = 0; k < iterations; ++k) {
-    if (fc > fd) {
-      b = d;
-      d = c;
-      fd = fc;
-      c = b - r * (b - a);
-      fc = f(c);
-    } else {
-      a = c;
-      c = d;
-      fc = fd;
-      d = a + r * (b - a);
-      fd = f(d);
-    }
-  }
-  return 0.5 * (a + b);
-}
-
 }  // namespace
 
 std::string RabbittOptions::validate() const {
@@ -130,6 +112,14 @@ std::string RabbittOptions::validate() const {
     return invalid_value("min_comb_contrast", min_comb_contrast, "in [0, 2)");
   if (!(calibration_warn_fraction >= 0.0))
     return invalid_value("calibration_warn_fraction", calibration_warn_fraction, ">= 0");
+  if (!(min_line_significance > 0.0) || !std::isfinite(min_line_significance))
+    return invalid_value("min_line_significance", min_line_significance, "> 0");
+  if (!(min_line_relative_strength >= 0.0 && min_line_relative_strength < 1.0))
+    return invalid_value("min_line_relative_strength", min_line_relative_strength, "in [0, 1)");
+  if (!(line_guard_sigmas >= 0.0) || !std::isfinite(line_guard_sigmas))
+    return invalid_value("line_guard_sigmas", line_guard_sigmas, ">= 0");
+  if (!(max_line_leakage > 0.0 && max_line_leakage <= 1.0))
+    return invalid_value("max_line_leakage", max_line_leakage, "in (0, 1]");
   const std::string a = atomic.validate();
   if (!a.empty()) return "atomic." + a;
   return {};
@@ -406,10 +396,113 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
           "peaks: the IR is strong (multi-photon sidebands) or the harmonic "
           "parity is not the expected one");
   }
-  auto aligned_au = [&](int q) {
-    const double wp = units::au_to_eV(predicted(q));
-    if (al.peaks_used == 0) return predicted(q) + coarse;
+  auto aligned_at = [&](double wp_au) {
+    if (al.peaks_used == 0) return wp_au + coarse;
+    const double wp = units::au_to_eV(wp_au);
     return units::eV_to_au(al.reference_eV + al.offset_eV + al.scale * (wp - al.reference_eV));
+  };
+
+  // --- photoelectron lines (step 6, rabbitt_lines.h) --------------------------------------
+  std::vector<char> present;
+  constexpr int kRef = 0;  // rabbitt_line_candidates puts the reference first
+  if (opt.analyse_lines) {
+    const std::vector<RabbittLineCandidate> cands =
+        rabbitt_line_candidates(gas, trace.meta.lines, &out.warnings);
+    present.assign(cands.size(), 0);
+    present[kRef] = 1;
+    for (const RabbittLineCandidate& c : cands) {
+      RabbittLine L;
+      L.candidate = c;
+      L.source = c.declared ? "sidecar" : "gas table";
+      out.lines.push_back(L);
+    }
+    if (cands.size() > 1) {
+      // Peak width: the strongest peak of the spectrum (a harmonic of some line).
+      const std::size_t top =
+          static_cast<std::size_t>(std::max_element(s.begin(), s.end()) - s.begin());
+      double fwhm =
+          measure_peak_fwhm_eV(out.energy_eV, s, out.energy_eV[top], 0.5 * out.ir_photon_energy_eV);
+      if (!(fwhm > 0.0)) {
+        fwhm = 0.2 * out.ir_photon_energy_eV;
+        out.warnings.push_back("line analysis: the harmonic peak width could not be measured; " +
+                               format_g(fwhm, 3) + " eV (0.2 hbar omega) assumed");
+      }
+      // Every line is ionised by the same harmonics: where the reference's comb ends inside the
+      // axis, a candidate has no peaks beyond its last significant harmonic (+ its sideband).
+      int q_first = 1, q_last = std::numeric_limits<int>::max();
+      {
+        int a = std::numeric_limits<int>::max(), b = 0;
+        for (const SpectralPeak& p : out.peaks)
+          if (!p.sideband && p.significance >= opt.min_peak_significance) {
+            a = std::min(a, p.order);
+            b = std::max(b, p.order);
+          }
+        // Only where the comb ends inside the axis: beyond its edges it is not known.
+        if (b > 0 && (a - 2) * w - ip > W.front()) q_first = a - 1;
+        if (b > 0 && (b + 2) * w - ip < W.back()) q_last = b + 1;
+      }
+      std::vector<std::vector<PeakCentre>> centres(cands.size());
+      for (std::size_t k = 0; k < cands.size(); ++k) {
+        const double ipk = units::eV_to_au(cands[k].ionization_energy_eV);
+        const int lo = std::max(static_cast<int>(std::floor((W.front() + ipk) / w)) - 1, q_first);
+        const int hi = std::min(static_cast<int>(std::ceil((W.back() + ipk) / w)) + 1, q_last);
+        for (int q = std::max(lo, 1); q <= hi; ++q) {
+          const bool sb = !is_harmonic(q);
+          if (q * w - ipk <= 0.0 || (sb && (q - 1) * w - ipk <= 0.0)) continue;
+          centres[k].push_back({q, units::au_to_eV(q * w - ipk), sb});
+        }
+      }
+      // The comb model's own alignment, started from the single-line one at its reference.
+      const double ref_eV = al.peaks_used > 0
+                                ? al.reference_eV
+                                : 0.5 * (out.energy_eV.front() + out.energy_eV.back());
+      const double start = al.peaks_used > 0 ? al.offset_eV : al.coarse_offset_eV;
+      const CombAlignment ca =
+          align_comb(out.energy_eV, s, centres, kRef, fwhm, 2.0 * out.ir_photon_energy_eV, ref_eV,
+                     start, out.ir_photon_energy_eV, kCombMaxScaleError);
+      out.comb_model = ca.model;
+      bool other_present = false;
+      for (std::size_t k = 0; k < cands.size(); ++k) {
+        RabbittLine& L = out.lines[k];
+        L.significance = out.comb_model.line_significance[k];
+        L.relative_strength = k == kRef ? 1.0 : out.comb_model.relative_strength[k];
+        L.relative_strength_sigma = k == kRef ? 0.0 : out.comb_model.relative_strength_sigma[k];
+        const bool seen = out.comb_model.fitted && L.significance >= opt.min_line_significance &&
+                          L.relative_strength >= opt.min_line_relative_strength;
+        if (k != kRef) present[k] = cands[k].declared || seen;
+        if (seen && !cands[k].declared && k != kRef) L.source = "detected";
+        if (k != kRef && present[k]) other_present = true;
+      }
+      if (other_present && out.comb_model.fitted) {
+        // Several lines: the comb model's alignment replaces the centroid one (and its warning).
+        std::erase_if(out.warnings, [](const std::string& x) {
+          return x.rfind("the observed harmonic/sideband peaks are offset", 0) == 0;
+        });
+        al.reference_eV = ref_eV;
+        al.offset_eV = ca.offset_eV;
+        al.offset_eV_sigma = ca.offset_eV_sigma;
+        al.scale = ca.scale;
+        al.scale_sigma = ca.scale_sigma;
+        al.fitted = true;
+        al.peaks_used = static_cast<int>(out.comb_model.peaks.size());
+        const double half_span = 0.5 * (out.energy_eV.back() - out.energy_eV.front());
+        al.within_resolution = std::abs(al.offset_eV) <= al.resolution_eV &&
+                               std::abs(al.scale - 1.0) * half_span <= al.resolution_eV;
+        if (!al.within_resolution)
+          out.warnings.push_back(
+              "the observed harmonic/sideband peaks of the " + std::to_string(cands.size()) +
+              " lines are offset by " + format_g(al.offset_eV, 3) + " eV (scale " +
+              format_g(al.scale, 5) + ") from q hbar omega - Ip, more than the resolution " +
+              format_g(al.resolution_eV, 3) +
+              " eV: check the energy calibration, the gas and the IR wavelength");
+        out.params.push_back({"rabbitt.energy_axis.method",
+                              std::string("comb model of every line's peaks (rabbitt_lines.h)")});
+      }
+    }
+  }
+  auto line_label = [&](int k) {
+    const RabbittLineCandidate& c = out.lines[static_cast<std::size_t>(k)].candidate;
+    return c.gas + " " + c.name;
   };
 
   // --- sideband windows and signals -------------------------------------------------------
@@ -419,25 +512,65 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
     std::vector<double> signal;
     double lo, hi;
   };
-  std::vector<Window> windows;
   const double half = opt.window_half_width_fraction * w;
-  for (int q = std::max(q_lo, 2); q <= q_hi; ++q) {
-    if (is_harmonic(q)) continue;
-    if (predicted(q - 1) <= 0.0) continue;  // the lower harmonic must ionize
-    const double c = aligned_au(q);
-    if (c - half < W.front() || c + half > W.back()) continue;
-    Window win;
-    win.q = q;
-    win.lo = c - half;
-    win.hi = c + half;
-    for (std::size_t j = 0; j < ne; ++j)
-      if (W[j] >= win.lo && W[j] <= win.hi) win.bins.push_back(j);
-    if (win.bins.empty()) continue;
-    win.signal.assign(nd, 0.0);
-    for (std::size_t i = 0; i < nd; ++i)
-      for (std::size_t j : win.bins)
-        win.signal[i] += trace.counts(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
-    windows.push_back(std::move(win));
+  // Windows of the sidebands of line `k` (threshold ip_line): the single-line half width, or
+  // with other lines present the plan of rabbitt_lines.h (overlapped orders are skipped).
+  auto line_windows = [&](int k, double ip_line, std::vector<std::string>* skipped, bool plan) {
+    std::vector<Window> ws;
+    RabbittLine* L = out.lines.empty() || !plan ? nullptr : &out.lines[static_cast<std::size_t>(k)];
+    const int qa = static_cast<int>(std::ceil((W.front() + ip_line - coarse) / w - 0.5));
+    const int qb = static_cast<int>(std::floor((W.back() + ip_line - coarse) / w + 0.5));
+    for (int q = std::max(qa, 2); q <= qb; ++q) {
+      if (is_harmonic(q)) continue;
+      if ((q - 1) * w - ip_line <= 0.0) continue;  // the lower harmonic must ionize
+      const double c = aligned_at(q * w - ip_line);
+      double h = half;
+      if (c - h < W.front() || c + h > W.back()) continue;
+      if (L) {
+        const SidebandWindowPlan p = plan_sideband_window(
+            out.comb_model, present, k, q, units::au_to_eV(c), units::au_to_eV(half),
+            opt.line_guard_sigmas, opt.max_line_leakage);
+        if (p.nearest_other_line >= 0 &&
+            (L->nearest_other_peak_eV == 0.0 || p.nearest_other_eV < L->nearest_other_peak_eV))
+          L->nearest_other_peak_eV = p.nearest_other_eV;
+        if (p.overlapped) {
+          L->overlapped_orders.push_back(q);
+          skipped->push_back("SB " + std::to_string(q) + ": overlaps " +
+                             line_label(p.nearest_other_line) + ": " + p.why);
+          continue;
+        }
+        h = units::eV_to_au(p.half_width_eV);
+      }
+      Window win;
+      win.q = q;
+      win.lo = c - h;
+      win.hi = c + h;
+      for (std::size_t j = 0; j < ne; ++j)
+        if (W[j] >= win.lo && W[j] <= win.hi) win.bins.push_back(j);
+      if (win.bins.empty()) continue;
+      win.signal.assign(nd, 0.0);
+      for (std::size_t i = 0; i < nd; ++i)
+        for (std::size_t j : win.bins)
+          win.signal[i] += trace.counts(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
+      ws.push_back(std::move(win));
+    }
+    return ws;
+  };
+  std::vector<std::string> ref_skipped;
+  bool ref_mixed = false;  // every reference sideband overlaps: fitted as in a single-line scan
+  std::vector<Window> windows = line_windows(kRef, ip, &ref_skipped, true);
+  if (windows.empty() && !out.lines.empty() && !out.lines[kRef].overlapped_orders.empty()) {
+    // Every reference sideband overlaps another line: the attochirp comes from the mixed
+    // sidebands (their XUV phase is common to both lines; the atomic phases mix), and no
+    // relative delay is given for those orders.
+    windows = line_windows(kRef, ip, &out.skipped_sidebands, false);
+    ref_mixed = true;
+    out.warnings.push_back(
+        "every sideband of the reference line overlaps a peak of another line: the sidebands "
+        "and the attochirp are from the mixed signal of both lines");
+  } else {
+    out.skipped_sidebands.insert(out.skipped_sidebands.end(), ref_skipped.begin(),
+                                 ref_skipped.end());
   }
   if (windows.empty())
     throw numeric_error(where + ": no sideband window fits inside the energy axis [" +
@@ -491,7 +624,8 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
         }
       }
       const double Om_fit =
-          golden_max(explained, std::max(lo, best - step), std::min(hi, best + step), 60);
+          golden_section_min([&](double x) { return -explained(x); }, std::max(lo, best - step),
+                             std::min(hi, best + step), 60);
       dc.performed = true;
       dc.fitted_frequency_au = Om_fit;
       dc.calibration_factor = Om_fit / Omega0;
@@ -528,42 +662,48 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   }
 
   // --- sideband fits ----------------------------------------------------------------------
-  std::vector<SidebandDetail> sbs;
-  for (const Window& win : windows) {
-    SidebandDetail d;
-    d.order = win.q;
-    d.energy_eV = units::au_to_eV(predicted(win.q));
-    d.photon_energy_eV = units::au_to_eV(win.q * w);
-    d.window_low_eV = units::au_to_eV(win.lo);
-    d.window_high_eV = units::au_to_eV(win.hi);
-    d.window_bins = static_cast<int>(win.bins.size());
-    d.fit = fit_cosine(tau, win.signal, Omega, rw);
-    if (bg > 0.0) {
-      const double a = d.fit.mean - bg * static_cast<double>(win.bins.size());
-      d.fit.modulation_depth = a > 0 ? d.fit.amplitude / a : 0.0;
-    }
-    const double sig = d.fit.amplitude_sigma > 0 ? d.fit.amplitude / d.fit.amplitude_sigma : 0.0;
-    if (sig < opt.min_modulation_significance) {
-      out.skipped_sidebands.push_back("SB " + std::to_string(win.q) + ": modulation " +
-                                      format_g(d.fit.amplitude) + " +- " +
-                                      format_g(d.fit.amplitude_sigma) + " counts is below " +
-                                      format_g(opt.min_modulation_significance) + " sigma");
-      continue;
-    }
-    if (opt.rainbow) {
-      std::vector<double> col(nd);
-      for (std::size_t j : win.bins) {
-        for (std::size_t i = 0; i < nd; ++i)
-          col[i] = trace.counts(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
-        const CosineFit f = fit_cosine(tau, col, Omega, rw);
-        d.rainbow_energy_eV.push_back(units::au_to_eV(W[j]));
-        d.rainbow_phase_rad.push_back(f.phase_rad);
-        d.rainbow_phase_rad_sigma.push_back(f.phase_rad_sigma);
-        d.rainbow_modulation_depth.push_back(f.modulation_depth);
+  // Fits of one line's windows (threshold ip_line); weak sidebands go to `skipped`.
+  auto fit_windows = [&](const std::vector<Window>& ws, double ip_line, bool rainbow,
+                         std::vector<std::string>* skipped) {
+    std::vector<SidebandDetail> fitted;
+    for (const Window& win : ws) {
+      SidebandDetail d;
+      d.order = win.q;
+      d.energy_eV = units::au_to_eV(win.q * w - ip_line);
+      d.photon_energy_eV = units::au_to_eV(win.q * w);
+      d.window_low_eV = units::au_to_eV(win.lo);
+      d.window_high_eV = units::au_to_eV(win.hi);
+      d.window_bins = static_cast<int>(win.bins.size());
+      d.fit = fit_cosine(tau, win.signal, Omega, rw);
+      if (bg > 0.0) {
+        const double a = d.fit.mean - bg * static_cast<double>(win.bins.size());
+        d.fit.modulation_depth = a > 0 ? d.fit.amplitude / a : 0.0;
       }
+      const double sig = d.fit.amplitude_sigma > 0 ? d.fit.amplitude / d.fit.amplitude_sigma : 0.0;
+      if (sig < opt.min_modulation_significance) {
+        skipped->push_back("SB " + std::to_string(win.q) + ": modulation " +
+                           format_g(d.fit.amplitude) + " +- " + format_g(d.fit.amplitude_sigma) +
+                           " counts is below " + format_g(opt.min_modulation_significance) +
+                           " sigma");
+        continue;
+      }
+      if (rainbow) {
+        std::vector<double> col(nd);
+        for (std::size_t j : win.bins) {
+          for (std::size_t i = 0; i < nd; ++i)
+            col[i] = trace.counts(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
+          const CosineFit f = fit_cosine(tau, col, Omega, rw);
+          d.rainbow_energy_eV.push_back(units::au_to_eV(W[j]));
+          d.rainbow_phase_rad.push_back(f.phase_rad);
+          d.rainbow_phase_rad_sigma.push_back(f.phase_rad_sigma);
+          d.rainbow_modulation_depth.push_back(f.modulation_depth);
+        }
+      }
+      fitted.push_back(std::move(d));
     }
-    sbs.push_back(std::move(d));
-  }
+    return fitted;
+  };
+  std::vector<SidebandDetail> sbs = fit_windows(windows, ip, opt.rainbow, &out.skipped_sidebands);
   if (sbs.empty())
     throw numeric_error(where + ": no sideband shows a significant 2 omega modulation (" +
                         std::to_string(windows.size()) + " windows tried; threshold " +
@@ -641,6 +781,77 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
         "noise (higher-order sidebands at strong IR, IR envelope, delay or "
         "intensity fluctuations)");
 
+  // --- further lines: their sidebands and delays relative to the reference (step 6) ---------
+  for (std::size_t k = 1; k < out.lines.size(); ++k) {
+    RabbittLine& L = out.lines[k];
+    L.present = present[k] != 0;
+    if (!L.present) continue;
+    const double ipk = units::eV_to_au(L.candidate.ionization_energy_eV);
+    const std::vector<Window> ws = line_windows(static_cast<int>(k), ipk, &L.skipped, true);
+    L.sidebands = fit_windows(ws, ipk, false, &L.skipped);
+    std::vector<double> ph;
+    for (const auto& d : L.sidebands) ph.push_back(d.fit.phase_rad);
+    const std::vector<double> un = unwrap_phase(ph);
+    Gas line_gas = find_gas(L.candidate.gas);
+    line_gas.valence_l = L.candidate.channel_l0;
+    for (std::size_t m = 0; m < L.sidebands.size(); ++m) {
+      SidebandDetail& d = L.sidebands[m];
+      d.phase_unwrapped_rad = un[m];
+      d.measured_delay_as = units::au_to_as(un[m] / (2.0 * w));
+      d.atomic = sideband_atomic_delay(line_gas, d.order * w - ipk, w, opt.atomic);
+      d.group_delay_as = d.measured_delay_as - (d.atomic.applied ? d.atomic.total_as : 0.0);
+      d.group_delay_as_sigma = units::au_to_as(d.fit.phase_rad_sigma / (2.0 * w));
+      for (const SidebandDetail& r : out.sidebands)
+        if (r.order == d.order)
+          L.relative.push_back(relative_sideband_delay(
+              d.order, d.order * w - ipk, d.fit.phase_rad, d.fit.phase_rad_sigma, r.order * w - ip,
+              r.fit.phase_rad, r.fit.phase_rad_sigma, w, opt.atomic.charge));
+    }
+    std::vector<double> v, sg, vc, sgc;
+    for (const RelativeSidebandDelay& r : L.relative) {
+      v.push_back(r.relative_delay_as);
+      sg.push_back(std::max(r.relative_delay_as_sigma, 1e-9));
+      if (r.corrected) {
+        vc.push_back(r.relative_delay_as_corrected);
+        sgc.push_back(sg.back());
+      }
+    }
+    const std::string label = line_label(static_cast<int>(k));
+    const double dip = L.candidate.ionization_energy_eV - gas.ionization_energy_eV;
+    if (!L.overlapped_orders.empty()) {
+      std::string orders;
+      for (int q : L.overlapped_orders) orders += (orders.empty() ? "" : ", ") + std::to_string(q);
+      out.warnings.push_back(
+          "line " + label + ": sidebands SB " + orders + " overlap the peaks of another line (" +
+          "Delta Ip = " + format_g(dip, 5) + " eV = " + format_g(dip / out.ir_photon_energy_eV, 4) +
+          " hbar omega; nearest peaks " + format_g(L.nearest_other_peak_eV, 3) +
+          " eV apart, peak FWHM " + format_g(out.comb_model.peak_fwhm_eV, 3) +
+          " eV): no relative delay there");
+    }
+    if (v.empty()) {
+      out.warnings.push_back("line " + label +
+                             ": no sideband order is fitted for both this line and the "
+                             "reference: no relative delay");
+      continue;
+    }
+    L.delay = weighted_mean_delay(v, sg);
+    if (!vc.empty() && vc.size() == v.size()) L.delay_corrected = weighted_mean_delay(vc, sgc);
+    if (L.delay->scaled && L.delay->reduced_chi2 > 2.0)
+      out.warnings.push_back("line " + label +
+                             ": the sidebands' relative delays disagree (chi^2/dof " +
+                             format_g(L.delay->reduced_chi2, 3) +
+                             "); the sigma of the mean is scaled by sqrt(chi^2/dof)");
+  }
+  // The reference's own overlapped sidebands are in skipped_sidebands; warn once.
+  if (!ref_mixed && !out.lines.empty() && !out.lines[kRef].overlapped_orders.empty()) {
+    std::string orders;
+    for (int q : out.lines[kRef].overlapped_orders)
+      orders += (orders.empty() ? "" : ", ") + std::to_string(q);
+    out.warnings.push_back("reference line " + line_label(kRef) + ": sidebands SB " + orders +
+                           " overlap the peaks of another line and are left out");
+  }
+  if (!out.lines.empty()) out.lines[kRef].present = true;
+
   auto P = [&](const std::string& k, auto v) { out.params.push_back({"rabbitt." + k, v}); };
   P("gas", out.gas);
   P("ionization_energy_eV", out.ionization_energy_eV);
@@ -671,6 +882,14 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
   P("atomic_delay.mode", std::string(to_string(opt.atomic.mode)));
   if (!out.sidebands.empty())
     P("atomic_delay.description", out.sidebands.front().atomic.description);
+  if (out.comb_model.fitted) {
+    P("lines.peak_fwhm_eV", out.comb_model.peak_fwhm_eV);
+    P("lines.comb_model_reduced_chi2", out.comb_model.reduced_chi2);
+    P("lines.method",
+      std::string("peaks assigned to lines by a Gaussian comb model of the delay-integrated "
+                  "spectrum; relative delay = (phi_line - phi_reference) / (2 omega) per "
+                  "sideband order, corrected = minus [tau_cc(W_line) - tau_cc(W_reference)]"));
+  }
   if (sec.attochirp_as_per_eV) {
     P("attochirp_reference_eV", out.attochirp_reference_eV);
     P("attochirp_intercept_as", out.attochirp_intercept_as);

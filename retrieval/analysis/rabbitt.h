@@ -60,10 +60,18 @@
 //  5. Atomic delays (retrieval/physics/atomic_delay.h) are subtracted from each sideband's delay
 //  when
 //     options.atomic.mode == kAuto; the applied value is listed per sideband.
+//  6. Several photoelectron lines (retrieval/analysis/rabbitt_lines.h): the peaks are assigned
+//     to the scan's lines by a Gaussian model of the delay-integrated spectrum; when a second
+//     line is present, every line's sideband windows stop short of the other line's peaks and
+//     overlapped orders are left out; each further line's sidebands are fitted like the
+//     reference's and give per-sideband relative delays and their weighted mean.
 
 #include <string>
 #include <vector>
 
+#include <optional>
+
+#include "retrieval/analysis/rabbitt_lines.h"
 #include "retrieval/core/result.h"
 #include "retrieval/core/trace.h"
 #include "retrieval/physics/atomic_delay.h"
@@ -111,8 +119,26 @@ struct RabbittOptions {
   /// Use the fitted frequency for the sideband fits (equivalent to rescaling the delay axis by
   /// kappa); false = only report and warn.
   bool apply_delay_calibration = false;
-  /// Atomic-delay correction (mode auto|none, channel, parts).
+  /// Atomic-delay correction (mode auto|none, channel, parts). Its `charge` is also the ion
+  /// charge of the continuum-continuum correction of relative line delays.
   AtomicDelayOptions atomic;
+  /// Look for the scan's other photoelectron lines (the sidecar's declared lines, else the gas
+  /// table's) and give their delays relative to the reference line (step 6).
+  bool analyse_lines = true;
+  /// A line of the gas table counts as present when its summed peak area is this many sigma
+  /// (> 0; 5 sigma: common practice for "a signal is present") ...
+  double min_line_significance = 5.0;
+  /// ... and its harmonic area reaches this fraction of the reference's at the same orders
+  /// ([0, 1); 0.03 as LineOptions::min_relative_strength of the streaking analysis).
+  double min_line_relative_strength = 0.03;
+  /// Gap between a sideband window's edge and the centre of the nearest peak of another line,
+  /// in Gaussian peak sigmas (>= 0; our choice: 3, where a Gaussian neighbour leaves 0.13 % of
+  /// its area). A window narrower than one sigma is not placed: the order is overlapped.
+  double line_guard_sigmas = 3.0;
+  /// Largest share of another line's (model) counts in a sideband window relative to the
+  /// line's own; above it the order is overlapped (in (0, 1]; our choice: 0.02, a contaminant
+  /// modulated like the sideband then moves its phase by at most ~0.02 rad, ~4 as at 800 nm).
+  double max_line_leakage = 0.02;
 
   /// Empty when valid; otherwise names the field, its value and the constraint.
   std::string validate() const;
@@ -179,6 +205,23 @@ struct SidebandDetail {
       rainbow_modulation_depth;
 };
 
+/// One photoelectron line of a RABBITT scan (step 6).
+struct RabbittLine {
+  RabbittLineCandidate candidate;
+  std::string source;  ///< "sidecar", "gas table" (detected in the comb)
+  bool present = false;
+  double significance = 0.0;                                      ///< summed peak area / sigma
+  double relative_strength = 0.0, relative_strength_sigma = 0.0;  ///< harmonic areas / reference's
+  /// Non-reference lines: their own sideband fits (ascending order) and skipped orders.
+  std::vector<SidebandDetail> sidebands;
+  std::vector<std::string> skipped;
+  std::vector<int> overlapped_orders;  ///< sideband orders left out for overlap
+  double nearest_other_peak_eV = 0.0;  ///< smallest sideband-to-other-line-peak distance (eV)
+  std::vector<RelativeSidebandDelay> relative;  ///< orders present for this line and the reference
+  std::optional<WeightedMean> delay;            ///< weighted mean of relative_delay_as
+  std::optional<WeightedMean> delay_corrected;  ///< same of the corrected delays
+};
+
 /// Result of the delay-axis check.
 struct DelayAxisCheck {
   bool performed = false;
@@ -207,6 +250,10 @@ struct RabbittAnalysis {
   DelayAxisCheck delay_check;
   std::vector<SidebandDetail> sidebands;       ///< reported sidebands, ascending order
   std::vector<std::string> skipped_sidebands;  ///< "SB 12: reason"
+  /// Photoelectron lines (step 6): every candidate, the reference first; empty when the line
+  /// analysis is off. The sidebands above are the reference's.
+  std::vector<RabbittLine> lines;
+  CombPeakModel comb_model;  ///< the peak model of the lines (fitted with >= 2 candidates)
   /// Attochirp fit t_e = intercept + attochirp (q hbar omega - reference): reference photon
   /// energy (eV) and intercept (as); reduced chi^2 of that fit.
   double attochirp_reference_eV = 0.0;

@@ -7,6 +7,78 @@
 
 namespace sw {
 
+namespace {
+
+// The lines section of a rabbitt result from the analysis' lines (rabbitt_lines.h): every line
+// present (found in the comb or declared), the reference first; the quality evidence per
+// non-reference line.
+std::vector<LineEntry> rabbitt_line_entries(const RabbittAnalysis& rb,
+                                            std::vector<RabbittLineEvidence>* evidence) {
+  std::vector<LineEntry> out;
+  const double sigma_peak = rb.comb_model.peak_sigma_eV;
+  for (std::size_t k = 0; k < rb.lines.size(); ++k) {
+    const RabbittLine& L = rb.lines[k];
+    if (!L.present) continue;
+    LineEntry e;
+    e.name = L.candidate.name;
+    e.gas = L.candidate.gas;
+    e.ionization_energy_eV = L.candidate.ionization_energy_eV;
+    e.reference = L.candidate.reference;
+    e.analysed = true;
+    e.source = L.source;
+    e.overlapped_orders = L.overlapped_orders;
+    if (L.nearest_other_peak_eV > 0) e.nearest_other_peak_eV = L.nearest_other_peak_eV;
+    // A line whose every sideband overlaps the other's has no separable peaks: no strength.
+    const bool inseparable = !L.overlapped_orders.empty() && L.relative.empty();
+    if (rb.comb_model.fitted && !(inseparable && !e.reference)) {
+      e.relative_strength = L.relative_strength;
+      if (!e.reference) e.relative_strength_sigma = L.relative_strength_sigma;
+    }
+    if (!e.reference) {
+      for (const RelativeSidebandDelay& r : L.relative) {
+        LineSideband b;
+        b.order = r.order;
+        b.energy_eV = r.energy_eV;
+        b.relative_phase_rad = r.relative_phase_rad;
+        b.relative_phase_rad_sigma = r.relative_phase_rad_sigma;
+        b.relative_delay_as = r.relative_delay_as;
+        b.relative_delay_as_sigma = r.relative_delay_as_sigma;
+        if (r.corrected) {
+          b.relative_delay_as_corrected = r.relative_delay_as_corrected;
+          b.cc_correction_as = r.cc_correction_as;
+        }
+        e.sidebands.push_back(b);
+      }
+      if (L.delay) {
+        e.delay_method = "rabbitt sidebands";
+        e.relative_delay_as = L.delay->mean;
+        e.relative_delay_as_sigma = L.delay->sigma;
+        e.relative_delay_reduced_chi2 = L.delay->reduced_chi2;
+      }
+      if (L.delay && L.delay_corrected) {
+        e.relative_delay_as_corrected = L.delay_corrected->mean;
+        e.relative_delay_as_corrected_sigma = L.delay_corrected->sigma;
+        e.clc_correction_as = L.delay->mean - L.delay_corrected->mean;
+      }
+      if (evidence) {
+        RabbittLineEvidence ev;
+        ev.line = L.candidate.gas + " " + L.candidate.name;
+        ev.sidebands_with_delay = static_cast<int>(L.relative.size());
+        ev.separation_sigmas = sigma_peak > 0 ? L.nearest_other_peak_eV / sigma_peak : 0.0;
+        if (!L.overlapped_orders.empty())
+          ev.why = std::to_string(L.overlapped_orders.size()) + " overlapped";
+        const std::size_t weak = L.skipped.size() - L.overlapped_orders.size();
+        if (weak > 0) ev.why += (ev.why.empty() ? "" : ", ") + std::to_string(weak) + " too weak";
+        evidence->push_back(ev);
+      }
+    }
+    out.push_back(std::move(e));
+  }
+  return out;
+}
+
+}  // namespace
+
 TrainBurstOptions rabbitt_train_burst_defaults() {
   TrainBurstOptions o;
   o.cross_section = CrossSectionModel::kSfaDipole;
@@ -72,16 +144,19 @@ RabbittOutput analyse_rabbitt(const Trace& scan, const Trace* xuv_only,
 
   if (progress) progress("rabbitt", "verdict");
   res.verdict = classify(trace, co, nullptr);
-  // Lines (DESIGN.md "lines"), as retrieve's preprocessing finds them; the sidebands belong to
-  // the reference line.
-  {
+  // Lines (DESIGN.md "lines"): those the RABBITT analysis assigned peaks to (rabbitt_lines.h),
+  // else as retrieve's preprocessing finds them; the sidebands belong to the reference line.
+  std::vector<RabbittLineEvidence> line_evidence;
+  if (rb.comb_model.fitted) {
+    res.lines = rabbitt_line_entries(rb, &line_evidence);
+  } else {
     std::string why;
     res.lines = scan_lines(trace, pp, &why);
     if (res.lines.empty() && !why.empty())
       res.warnings.push_back("photoelectron lines not listed: " + why);
   }
   res.quality = rabbitt_quality(trace.counts, trace.meta.background.value_or(0.0), *res.rabbitt,
-                                options.quality);
+                                options.quality, line_evidence);
 
   res.extra = rb.params;
   // The energy window analysed (DESIGN.md: preprocess.window_*), when one was applied.

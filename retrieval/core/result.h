@@ -114,6 +114,19 @@ struct QualitySection {
   void finalize();
 };
 
+/// One sideband order of a line's RABBITT relative delay (retrieval/analysis/rabbitt_lines.h):
+/// the line's sideband phase minus the reference's at the same order.
+struct LineSideband {
+  int order = 0;
+  double energy_eV = 0;  ///< the line's sideband kinetic energy q hbar omega - Ip
+  double relative_phase_rad = 0, relative_phase_rad_sigma = 0;
+  double relative_delay_as = 0, relative_delay_as_sigma = 0;
+  /// Minus the continuum-continuum delay difference of the two lines' sidebands (absent when a
+  /// sideband lies below hbar omega, where tau_cc is not defined).
+  std::optional<double> relative_delay_as_corrected;
+  std::optional<double> cc_correction_as;  ///< tau_cc(line) - tau_cc(reference), subtracted
+};
+
 /// One photoelectron line of the scan (DESIGN.md "lines"). `relative_*` are relative to the
 /// line with reference = true; a line found but not analysed carries no delay.
 struct LineEntry {
@@ -137,6 +150,15 @@ struct LineEntry {
       relative_delay_as_centre_of_energy_sigma;
   std::optional<double> relative_strength_centre_of_energy,
       relative_strength_centre_of_energy_sigma;
+  /// RABBITT (retrieval/analysis/rabbitt_lines.h), added beside the contract's keys: per sideband
+  /// order the relative phase and delay; the weighted mean's sigma of the corrected delays and
+  /// the chi^2 / dof of the raw ones about their mean; orders left out because the two lines'
+  /// peaks overlap; the smallest distance of a sideband to another line's peak.
+  std::vector<LineSideband> sidebands;
+  std::optional<double> relative_delay_as_corrected_sigma;
+  std::optional<double> relative_delay_reduced_chi2;
+  std::vector<int> overlapped_orders;
+  std::optional<double> nearest_other_peak_eV;
 };
 
 struct AnalysisResult {
