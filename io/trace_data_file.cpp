@@ -76,28 +76,27 @@ Eigen::MatrixXd load_image(const Sidecar& sc, const std::string& image,
                          "and symbolic links); expected a data file beside the sidecar or below "
                          "it, or pass --allow-outside-data to read it");
   };
-  std::string h5_file, h5_dataset;
-  if (split_hdf5_reference(image, &h5_file, &h5_dataset)) {
-    const std::string f = resolve(h5_file);
-    *shown_name = printable_path(f) + ":" + escape_excerpt(h5_dataset, 200);
+  // Inside the allowed tree, and a regular file of at most the data-file limit.
+  auto admit = [&](const std::string& f) {
     confine(f);
     try {
       check_regular_file(f, limits::kMaxDataFileBytes, "data file");
     } catch (const Error& e) {
       sc.fail("image", e.what());
     }
+  };
+  std::string h5_file, h5_dataset;
+  if (split_hdf5_reference(image, &h5_file, &h5_dataset)) {
+    const std::string f = resolve(h5_file);
+    *shown_name = printable_path(f) + ":" + escape_excerpt(h5_dataset, 200);
+    admit(f);
     return read_hdf5_matrix(f, h5_dataset,
                             "sidecar '" + printable_path(sc.path()) + "', field 'image'");
   }
   const std::string file = resolve(image);
   const std::string shown = printable_path(file);
   *shown_name = shown;
-  confine(file);
-  try {
-    check_regular_file(file, limits::kMaxDataFileBytes, "data file");
-  } catch (const Error& e) {
-    sc.fail("image", e.what());
-  }
+  admit(file);
   const bool quote_cells = path_inside(file, base.empty() ? "." : base.string()) ||
                            std::any_of(policy.allowed_roots.begin(), policy.allowed_roots.end(),
                                        [&](const std::string& r) { return path_inside(file, r); });
