@@ -62,7 +62,7 @@ struct TraceMeta {
   /// How the energy axis was obtained from a time-of-flight axis (empty for a scan recorded
   /// on an energy axis, and for synthetic scans): the calibration actually applied, as
   /// records under dotted keys "calibration.*" that every analysis copies into result.extra
-  /// (so result.json carries them). Filled by io/trace_reader.cpp:
+  /// (so result.json carries them). Filled by io/trace_reader_tof.cpp:
   ///   calibration.source             "sidecar" (fixed numbers) or "fit: harmonics" (fitted
   ///                                  from the harmonic peaks, io/tof_fit.h)
   ///   calibration.length_m, .t0_ns, .energy_offset_eV   the values used (m, ns, eV)

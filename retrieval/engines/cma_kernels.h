@@ -4,7 +4,7 @@
 // FFT values as interleaved (re, im) pairs, I the measured counts of the same bins, a the
 // target amplitudes sqrt(max(I, 0)) / dt (raw units), dt2 = dt^2, so that M = dt2 |S|^2 is the
 // model intensity. Each kernel that takes im_out, mm_out adds sum I M and sum M^2 over the
-// segment (before any change of S) to them: the error sums of engine.h's trace error.
+// segment (before any change of S) to them: the error sums of trace_error.h's trace error.
 // tests/test_cma_kernels.cpp checks them against a plain scalar reference.
 
 #include <cstddef>

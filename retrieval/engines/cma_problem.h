@@ -28,11 +28,12 @@
 //     is exactly 0 stays 0), the least-squares projection for errors on sqrt(I) (a Gaussian
 //     amplitude noise model); also the more robust one when a pedestal was left in the data
 //     (nothing selects it automatically: the engine's "projection" setting picks one of the
-//     two, read_cma_settings()).
-// The trace error G of engine.h weights every bin equally either way. With noise_tolerance = k > 0
-// and variances, |psi~| is only clamped into sqrt(I) +- k sigma_sqrt(I) (sigma_sqrt(I) =
-// min(sigma_I / (2 sqrt I), sqrt(sigma_I))): a projection onto the noise band instead of onto
-// the noisy value; off by default (on our Poisson tests it did not improve the durations).
+//     two, CmaSettings below).
+// The trace error G of trace_error.h weights every bin equally either way. With
+// noise_tolerance = k > 0 and variances, |psi~| is only clamped into sqrt(I) +- k sigma_sqrt(I)
+// (sigma_sqrt(I) = min(sigma_I / (2 sqrt I), sqrt(sigma_I))): a projection onto the noise band
+// instead of onto the noisy value; off by default (on our Poisson tests it did not improve the
+// durations).
 // On the other bins psi~ <- unmeasured_damping * psi~. Default damping 1 ("free"): the
 // spectrometer window says nothing about those energies, and the XUV spectrum there is
 // already removed by the spectral constraint; 0 forces them to zero (use it when the window
@@ -60,7 +61,7 @@
 //   time reversal     fixed by the delay axis (the gate is not the time-reversed XUV).
 //
 // Trace error during an iteration: the running G of the exit waves each delay saw before its
-// update (common practice for ePIE-type engines), with the optimal scale of engine.h; the
+// update (common practice for ePIE-type engines), with the optimal scale of trace_error.h; the
 // Reconstruction reports the exact G of the returned estimate.
 
 #include <complex>

@@ -90,7 +90,7 @@ class PtychographicEngine final : public Engine {
     stage_switch_ = 0;
     stage_note_.clear();
     history_.clear();
-    // Noise floor of the trace error (engine.h), for the decision to add momentum nodes.
+    // Noise floor of the trace error (trace_error.h), for the decision to add momentum nodes.
     noise_floor_ =
         problem.variance.size() != 0
             ? noise_floor_trace_error(problem.intensity, problem.variance, &problem.weight)

@@ -1,5 +1,5 @@
 // Streaking-retrieval validation sweep: scans from the direct-quadrature generator with known
-// truth, retrieved by each engine; writes docs/validation_streaking.md (tables) and a figure.
+// truth, retrieved by each engine; writes docs/validation_streaking_table.md (tables) and a figure.
 // Usage: streaking_sweep OUT_DIR [--quick]
 #include <cmath>
 #include <cstdio>
