@@ -72,11 +72,7 @@ AnalysisKind auto_analysis(const Trace& t) {
 }
 
 RabbittAnalysisOptions rabbitt_options(const ScanJob& job) {
-  RabbittAnalysisOptions o;
-  o.rabbitt = job.rabbitt;
-  o.atomic_correction = job.atomic_correction;
-  o.train_burst = job.train_burst;
-  o.classifier = job.classifier;
+  RabbittAnalysisOptions o = job.rabbitt;
   o.classifier.isolated_max_satellite_ratio = job.retrieve.isolated_max_satellite_ratio;
   o.classifier.satellite_max_ratio = job.retrieve.satellites_max_satellite_ratio;
   o.preprocess = job.retrieve.preprocess;
@@ -86,9 +82,7 @@ RabbittAnalysisOptions rabbitt_options(const ScanJob& job) {
 }
 
 ClassifyAnalysisOptions classify_options(const ScanJob& job) {
-  ClassifyAnalysisOptions o;
-  o.classifier = job.classifier;
-  o.retrieve = job.classify_retrieve;
+  ClassifyAnalysisOptions o = job.classify;
   o.retrieve_options = job.retrieve;
   if (job.overrides.engine) o.retrieve_options.engine = *job.overrides.engine;
   return o;

@@ -40,9 +40,8 @@ struct ScanJob {
   std::string out_dir;  ///< output folder of this scan
   AnalysisKind analysis = AnalysisKind::kAuto;
   ScanOverrides overrides;
-  RetrieveOptions retrieve;                ///< options of the streaking retrieval
-  std::string atomic_correction = "auto";  ///< rabbitt: auto | none
-  bool quiet = true;                       ///< no progress output
+  RetrieveOptions retrieve;  ///< options of the streaking retrieval
+  bool quiet = true;         ///< no progress output
   /// Figures as PNG (default) or SVG (--figure-format); report.html embeds whichever.
   plot::FigureFormat figure_format = plot::FigureFormat::kPng;
   /// Called with (stage, message) during long work; may be empty.
@@ -57,17 +56,14 @@ struct ScanJob {
   /// rabbitt: sidecar of a field-free (XUV-only) scan whose spectrum gives the harmonic
   /// amplitudes of the average burst; "" = use the delay-integrated RABBITT spectrum.
   std::string xuv_only_sidecar;
-  /// rabbitt: analysis options; atomic.mode is set from atomic_correction above.
-  RabbittOptions rabbitt;
-  /// rabbitt: average-burst options (retrieval/analysis/analyses.h).
-  TrainBurstOptions train_burst = rabbitt_train_burst_defaults();
-  /// Verdict thresholds of classify and rabbitt. The two satellite-ratio thresholds are taken
-  /// from retrieve.isolated_max_satellite_ratio / satellites_max_satellite_ratio (one place
-  /// for every analysis and for batch); the fields of the same meaning here are ignored.
-  ClassifierOptions classifier;
-  /// classify: run the streaking retrieval first (bootstrap 0) and use its reconstruction as
-  /// evidence.
-  bool classify_retrieve = false;
+  /// rabbitt: analysis options (retrieval/analysis/analyses.h). The two satellite-ratio
+  /// thresholds, the preprocessing, the quality limits and the xuv-only name are taken from
+  /// this job (retrieve, xuv_only_sidecar: one place for every analysis and for batch); the
+  /// fields of the same meaning here are ignored (rabbitt_options).
+  RabbittAnalysisOptions rabbitt;
+  /// classify: analysis options; its retrieve_options are this job's retrieve (with the engine
+  /// override; classify_options), the fields here are ignored.
+  ClassifyAnalysisOptions classify;
 };
 
 struct ScanOutcome {

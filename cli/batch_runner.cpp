@@ -256,19 +256,19 @@ std::string BatchOptions::validate() const {
   if (shard_n < 1 || shard_k < 1 || shard_k > shard_n)
     return "--shard " + std::to_string(shard_k) + "/" + std::to_string(shard_n) +
            "; expected K/N with 1 <= K <= N";
-  if (atomic_correction != "auto" && atomic_correction != "none")
-    return "--atomic-correction = '" + atomic_correction + "'; expected auto or none";
+  if (const std::string e = validate_described(rabbitt); !e.empty()) return e;
   if (const std::string e = retrieve.validate(); !e.empty()) return e;
   return {};
 }
 
 namespace {
 
-// The retrieve options of a batch string, from RetrieveOptions::describe: `name=value` for every
-// field with batch = true, with the seed, engine and thread count the scans actually get.
-void append_retrieve_texts(std::ostringstream& s, const BatchOptions& o,
-                           const std::string& seed_key, const std::string& seed,
-                           const std::string& engine) {
+// The options of a batch string, from the descriptions: `name=value` for every field with
+// batch = true (RabbittAnalysisOptions::describe: atomic_correction, then
+// RetrieveOptions::describe), with the seed, engine and thread count the scans actually get.
+void append_option_texts(std::ostringstream& s, const BatchOptions& o, const std::string& seed_key,
+                         const std::string& seed, const std::string& engine) {
+  for (const auto& [k, v] : described_texts(o.rabbitt)) s << ";" << k << "=" << v;
   for (auto [k, v] : described_texts(o.retrieve)) {
     if (k == "seed") {
       k = seed_key;
@@ -290,8 +290,8 @@ void append_retrieve_texts(std::ostringstream& s, const BatchOptions& o,
 
 std::string batch_options_string(const BatchOptions& o) {
   std::ostringstream s;
-  s << "analysis=" << to_string(o.analysis) << ";atomic_correction=" << o.atomic_correction;
-  append_retrieve_texts(s, o, "base_seed", std::to_string(o.retrieve.seed), o.retrieve.engine);
+  s << "analysis=" << to_string(o.analysis);
+  append_option_texts(s, o, "base_seed", std::to_string(o.retrieve.seed), o.retrieve.engine);
   // Only when not the default, so results written before the option existed stay reusable.
   if (o.figure_format != plot::FigureFormat::kPng)
     s << ";figure_format=" << to_string(o.figure_format);
@@ -301,9 +301,9 @@ std::string batch_options_string(const BatchOptions& o) {
 std::string scan_options_string(const BatchScan& scan, const BatchOptions& o) {
   const Effective e = effective(scan, o);
   std::ostringstream s;
-  s << "analysis=" << to_string(e.analysis) << ";atomic_correction=" << o.atomic_correction;
-  append_retrieve_texts(s, o, "seed", std::to_string(scan_seed(o.retrieve.seed, scan.name)),
-                        e.overrides.engine.value_or(o.retrieve.engine));
+  s << "analysis=" << to_string(e.analysis);
+  append_option_texts(s, o, "seed", std::to_string(scan_seed(o.retrieve.seed, scan.name)),
+                      e.overrides.engine.value_or(o.retrieve.engine));
   s << ";override.gas=" << e.overrides.gas.value_or("") << ";override.ir_wavelength_nm="
     << (e.overrides.ir_wavelength_nm ? num(*e.overrides.ir_wavelength_nm) : "")
     << ";override.kind=" << e.overrides.kind.value_or("");
@@ -383,7 +383,7 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
       job.retrieve = o.retrieve;
       job.retrieve.seed = scan_seed(o.retrieve.seed, s.name);
       job.retrieve.threads = engine_threads(o);
-      job.atomic_correction = o.atomic_correction;
+      job.rabbitt = o.rabbitt;
       job.quiet = true;
       job.figure_format = o.figure_format;
       job.read_policy = o.read_policy;

@@ -44,10 +44,12 @@ struct BatchOptions {
   int shard_k = 1, shard_n = 1;                 ///< this process runs shard K of N (1-based)
   AnalysisKind analysis = AnalysisKind::kAuto;  ///< analysis unless a manifest row says otherwise
   RetrieveOptions retrieve;                     ///< base options; retrieve.seed is the base seed
-  std::string atomic_correction = "auto";       ///< rabbitt: auto | none
-  ScanOverrides overrides;                      ///< for every scan (a manifest row's values win)
-  bool quiet = false;                           ///< no progress on stderr
-  TraceReadPolicy read_policy;                  ///< data-file confinement (input roots)
+  /// rabbitt: the options a batch can set (those of RabbittAnalysisOptions::describe with a
+  /// config key: atomic_correction); the rest keep their defaults.
+  RabbittAnalysisOptions rabbitt;
+  ScanOverrides overrides;      ///< for every scan (a manifest row's values win)
+  bool quiet = false;           ///< no progress on stderr
+  TraceReadPolicy read_policy;  ///< data-file confinement (input roots)
   /// Figures of every scan and the trend figures: PNG (default) or SVG (--figure-format).
   plot::FigureFormat figure_format = plot::FigureFormat::kPng;
   /// Empty if usable, else a message naming the option, its value and the constraint.

@@ -37,13 +37,15 @@ struct BatchArgs {
   std::map<std::string, CLI::Option*> cli;
 };
 
-// Config keys of the batch itself; the retrieve options' keys come from RetrieveOptions::describe.
-const std::vector<std::string> kBatchKeys = {"analysis", "jobs",          "atomic_correction",
-                                             "resume",   "energy_window", "figure_format"};
+// Config keys of the batch itself; the analyses' keys come from RabbittAnalysisOptions::describe
+// and RetrieveOptions::describe.
+const std::vector<std::string> kBatchKeys = {"analysis", "jobs", "resume", "energy_window",
+                                             "figure_format"};
 
 std::string config_keys_text() {
   std::string list;
   for (const auto& n : kBatchKeys) list += (list.empty() ? "" : ", ") + n;
+  for (const auto& n : described_config_keys<RabbittAnalysisOptions>()) list += ", " + n;
   for (const auto& n : described_config_keys<RetrieveOptions>()) list += ", " + n;
   return list;
 }
@@ -74,6 +76,7 @@ void apply_config(BatchArgs& a) {
   };
   RetrieveOptions& r = a.options.retrieve;
   RetrieveOptions probe;  // type checks of keys the command line overrides
+  RabbittAnalysisOptions rabbitt_probe;
   for (auto it = j.begin(); it != j.end(); ++it) {
     const std::string& k = it.key();
     const nlohmann::json& v = it.value();
@@ -97,11 +100,14 @@ void apply_config(BatchArgs& a) {
       continue;
     }
     const bool batch_key = std::find(kBatchKeys.begin(), kBatchKeys.end(), k) != kBatchKeys.end();
-    if (!batch_key && !set_described_from_config(probe, k, v, where(k)))
+    const bool rabbitt_key = !batch_key && set_described_from_config(rabbitt_probe, k, v, where(k));
+    if (!batch_key && !rabbitt_key && !set_described_from_config(probe, k, v, where(k)))
       throw usage_error(where(k) + ": unknown key; expected one of gas, ir_wavelength_nm, kind, " +
                         config_keys_text());
     if (given(k)) continue;  // the command line wins
-    if (!batch_key)
+    if (rabbitt_key)
+      set_described_from_config(a.options.rabbitt, k, v, where(k));
+    else if (!batch_key)
       set_described_from_config(r, k, v, where(k));
     else if (k == "analysis")
       a.analysis = get_string(k, v);
@@ -116,8 +122,7 @@ void apply_config(BatchArgs& a) {
     } else if (k == "resume") {
       if (!v.is_boolean()) throw usage_error(where(k) + ": expected true or false");
       a.options.resume = v.get<bool>();
-    } else if (k == "atomic_correction")
-      a.options.atomic_correction = get_string(k, v);
+    }
   }
 }
 
@@ -278,9 +283,9 @@ void add_batch_command(CLI::App& app) {
   a->cli["energy_window"] =
       cmd->add_option("--energy-window", a->energy_window,
                       "analyse only photoelectron energies LO:HI (eV) in every scan");
-  a->cli["atomic_correction"] =
-      cmd->add_option("--atomic-correction", a->options.atomic_correction, "rabbitt: auto | none")
-          ->capture_default_str();
+  // The rabbitt options a batch sets for every scan (RabbittAnalysisOptions::describe).
+  a->cli.merge(
+      add_described_options(cmd, a->options.rabbitt, DescribedFlags::kConfigKeyed, "rabbitt: "));
   a->cli["figure_format"] = add_figure_format_option(cmd, &a->options.figure_format);
   cmd->add_flag("--dry-run", a->dry_run,
                 "list the scans (name and sidecar) of this shard and exit");

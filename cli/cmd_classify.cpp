@@ -9,7 +9,8 @@
 #include "cli/analysis.h"
 #include "cli/commands.h"
 #include "cli/option_checks.h"
-#include "retrieval/analysis/classifier.h"
+#include "cli/option_registry.h"
+#include "retrieval/analysis/analyses.h"
 #include "retrieval/core/error.h"
 #include "retrieval/engines/engine.h"
 #include "retrieval/preprocess/lines.h"
@@ -19,13 +20,11 @@ namespace sw::cli {
 namespace {
 
 struct ClassifyArgs {
-  std::string scan, out, gas, engine = "auto";
+  std::string scan, out, gas;
   double wavelength_nm = 0.0;
-  bool retrieve = false, quiet = false;
+  bool quiet = false;
   bool allow_outside_data = false;
-  int iterations = 0;
-  RetrieveOptions retrieve_options;
-  ClassifierOptions options;
+  ClassifyAnalysisOptions options;  ///< the flags of ClassifyAnalysisOptions::describe
   std::string energy_window;
   plot::FigureFormat figure_format = plot::FigureFormat::kPng;
 };
@@ -35,21 +34,16 @@ int run_classify(ClassifyArgs& a) {
   job.sidecar = a.scan;
   job.out_dir = a.out;
   job.analysis = AnalysisKind::kClassify;
-  job.classify_retrieve = a.retrieve;
-  job.classifier = a.options;
-  job.retrieve = a.retrieve_options;
+  job.classify = a.options;
+  // The retrieval's options, with the satellite thresholds (one place for them, analysis.h).
+  job.retrieve = a.options.retrieve_options;
   if (!a.energy_window.empty())
     parse_energy_window(a.energy_window, "--energy-window",
                         &job.retrieve.preprocess.energy_window_lo_eV,
                         &job.retrieve.preprocess.energy_window_hi_eV);
-  job.retrieve.engine = a.engine;
-  job.retrieve.iterations = a.iterations;
   job.retrieve.bootstrap = 0;
-  // One place for the satellite thresholds (analysis.h): the retrieve options.
-  job.retrieve.isolated_max_satellite_ratio = a.options.isolated_max_satellite_ratio;
-  job.retrieve.satellites_max_satellite_ratio = a.options.satellite_max_ratio;
   if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
-  if (a.engine != "auto") (void)make_engine(a.engine);  // unknown names listed
+  if (job.retrieve.engine != "auto") (void)make_engine(job.retrieve.engine);   // names listed
   if (a.wavelength_nm != 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;  // checked by CLI11
   if (!a.gas.empty()) job.overrides.gas = a.gas;
   job.quiet = a.quiet;
@@ -91,12 +85,8 @@ void add_classify_command(CLI::App& app) {
       "Exit 0 ok, 2 bad usage, 3 bad input, 4 numerical failure.");
   cmd->add_option("scan", a->scan, "sidecar of the scan (NAME.json or NAME.yaml)")->required();
   cmd->add_option("--out,-o", a->out, "output folder (created)")->required();
-  cmd->add_flag("--retrieve", a->retrieve,
-                "run the streaking retrieval first and use the reconstructed bursts");
-  cmd->add_option("--engine", a->engine, "engine of --retrieve (see `retrieve --help`)")
-      ->capture_default_str();
-  cmd->add_option("--iterations", a->iterations, "iterations of --retrieve; 0 = engine default")
-      ->capture_default_str();
+  // The options of ClassifyAnalysisOptions::describe (retrieval/analysis/analyses.h).
+  add_described_options(cmd, a->options);
   cmd->add_option("--ir-wavelength", a->wavelength_nm,
                   "IR (driver) wavelength in nm (overrides the sidecar)")
       ->check(ir_wavelength_nm_check());
@@ -104,27 +94,6 @@ void add_classify_command(CLI::App& app) {
   cmd->add_option(
       "--energy-window", a->energy_window,
       "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV");
-  cmd->add_option("--isolated-max", a->options.isolated_max_satellite_ratio,
-                  "largest satellite / main-burst peak intensity for 'isolated'")
-      ->capture_default_str();
-  cmd->add_option("--satellites-max", a->options.satellite_max_ratio,
-                  "upper limit of the satellite ratio for 'isolated_with_satellites'")
-      ->capture_default_str();
-  cmd->add_option("--comparable-bursts", a->options.train_min_comparable_bursts,
-                  "reconstructed bursts >= 50 % of the main one that make a train")
-      ->capture_default_str();
-  cmd->add_option("--comb-contrast", a->options.comb_min_period_contrast,
-                  "fringe contrast at period T above which the spectrum is a harmonic comb")
-      ->capture_default_str();
-  cmd->add_option("--delay-train-share", a->options.delay_train_min_share,
-                  "2 omega share above which the delay oscillation is train-like")
-      ->capture_default_str();
-  cmd->add_option("--delay-streaking-share", a->options.delay_streaking_max_share,
-                  "2 omega share below which the delay oscillation is streaking-like")
-      ->capture_default_str();
-  cmd->add_option("--min-counts", a->options.min_total_counts,
-                  "fewer counts in the whole scan give 'undetermined'")
-      ->capture_default_str();
   add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no progress or warnings on stderr");
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,

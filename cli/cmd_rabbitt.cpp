@@ -8,10 +8,10 @@
 #include "cli/analysis.h"
 #include "cli/commands.h"
 #include "cli/option_checks.h"
-#include "retrieval/analysis/rabbitt.h"
+#include "cli/option_registry.h"
+#include "retrieval/analysis/analyses.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
-#include "retrieval/physics/dipole.h"
 #include "retrieval/preprocess/lines.h"
 
 namespace sw::cli {
@@ -20,15 +20,10 @@ namespace {
 
 struct RabbittArgs {
   std::string scan, out, xuv_only;
-  std::string atomic = "auto";
-  std::string cross_section = "sfa_dipole";
-  std::string dipole = "constant";
   std::string gas;
   double wavelength_nm = 0.0;
-  RabbittOptions options;
+  RabbittAnalysisOptions options;  ///< the flags of RabbittAnalysisOptions::describe
   std::string energy_window;
-  bool no_rainbow = false;
-  bool no_lines = false;
   bool quiet = false;
   bool allow_outside_data = false;
   plot::FigureFormat figure_format = plot::FigureFormat::kPng;
@@ -89,25 +84,18 @@ int run_rabbitt(RabbittArgs& a) {
   job.sidecar = a.scan;
   job.out_dir = a.out;
   job.analysis = AnalysisKind::kRabbitt;
-  job.atomic_correction = a.atomic;
   job.xuv_only_sidecar = a.xuv_only;
   job.rabbitt = a.options;
-  job.rabbitt.rainbow = !a.no_rainbow;
-  job.rabbitt.analyse_lines = !a.no_lines;
+  // One place for the satellite thresholds (analysis.h): the retrieve options.
+  job.retrieve.isolated_max_satellite_ratio = a.options.classifier.isolated_max_satellite_ratio;
+  job.retrieve.satellites_max_satellite_ratio = a.options.classifier.satellite_max_ratio;
   if (!a.energy_window.empty())
     parse_energy_window(a.energy_window, "--energy-window",
                         &job.retrieve.preprocess.energy_window_lo_eV,
                         &job.retrieve.preprocess.energy_window_hi_eV);
-  if (!parse_cross_section_model(a.cross_section, &job.train_burst.cross_section))
-    throw usage_error("--cross-section " + a.cross_section + ": expected flat or sfa_dipole");
-  if (!parse_dipole_kind(a.dipole, &job.train_burst.dipole))
-    throw usage_error("--dipole " + a.dipole + ": expected constant or hydrogenic");
   if (!a.gas.empty()) job.overrides.gas = a.gas;
   if (a.wavelength_nm != 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;  // checked by CLI11
-  RabbittOptions check = job.rabbitt;
-  if (!parse_atomic_delay_mode(a.atomic, &check.atomic.mode))
-    throw usage_error("--atomic-correction " + a.atomic + ": expected auto or none");
-  if (const std::string e = check.validate(); !e.empty()) throw usage_error(e);
+  if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
   job.quiet = a.quiet;
   job.figure_format = a.figure_format;
   job.read_policy.allow_outside_data = a.allow_outside_data;
@@ -151,36 +139,18 @@ void add_rabbitt_command(CLI::App& app) {
   cmd->add_option("scan", a->scan, "sidecar of the RABBITT scan (NAME.json or NAME.yaml)")
       ->required();
   cmd->add_option("--out,-o", a->out, "output folder (created)")->required();
-  cmd->add_option("--atomic-correction", a->atomic,
-                  "auto: subtract the Wigner (Coulomb phase) and continuum-continuum delays of "
-                  "the gas; none: report the measured delays")
-      ->capture_default_str();
+  // The options of RabbittAnalysisOptions::describe (retrieval/analysis/analyses.h).
+  add_described_options(cmd, a->options);
   cmd->add_option("--xuv-only", a->xuv_only,
                   "sidecar of a field-free XUV-only scan for the harmonic intensities (default: "
                   "the delay-integrated RABBITT spectrum)");
-  cmd->add_option("--cross-section", a->cross_section,
-                  "harmonic intensity = peak area / cross section: flat | sfa_dipole (p |d(p)|^2)")
-      ->capture_default_str();
-  cmd->add_option("--dipole", a->dipole, "dipole of sfa_dipole: constant | hydrogenic")
-      ->capture_default_str();
   cmd->add_option("--gas", a->gas, "target gas (overrides the sidecar)");
   cmd->add_option("--ir-wavelength", a->wavelength_nm,
                   "IR wavelength in nm (overrides the sidecar)")
       ->check(ir_wavelength_nm_check());
-  cmd->add_option("--window", a->options.window_half_width_fraction,
-                  "half width of the sideband windows in units of hbar omega, (0, 0.5]")
-      ->capture_default_str();
-  cmd->add_option("--min-sideband-significance", a->options.min_modulation_significance,
-                  "report a sideband when its modulation B exceeds this many sigma")
-      ->capture_default_str();
-  cmd->add_flag("--apply-delay-calibration", a->options.apply_delay_calibration,
-                "use the fitted 2 omega frequency for the sideband fits (rescales the delay axis)");
   cmd->add_option(
       "--energy-window", a->energy_window,
       "analyse only photoelectron energies LO:HI (eV); overrides the sidecar's energy_window_eV");
-  cmd->add_flag("--no-rainbow", a->no_rainbow, "skip the per-energy-bin (rainbow) fits");
-  cmd->add_flag("--no-lines", a->no_lines,
-                "do not look for further photoelectron lines (no relative line delays)");
   add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no warnings on stderr (they stay in the report)");
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,

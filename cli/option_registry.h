@@ -25,20 +25,43 @@ inline std::string described_help(const OptionSpec& s) {
   return h;
 }
 
-/// Registers one option of `cmd` per described field of `o` that has a flag, bound to that
-/// field (`o` must outlive the parse); defaults are shown in --help. Returns config key (or,
-/// without one, the field name) -> option, so that a config file can tell which options the
-/// command line set.
+/// Which described fields add_described_options registers: every field with a flag, or only
+/// those that also have a config key (the options a batch can set for every scan).
+enum class DescribedFlags { kAll, kConfigKeyed };
+
+/// Registers one option of `cmd` per described field of `o` that has a flag (see `which`),
+/// bound to that field (`o` must outlive the parse); defaults are shown in --help, whose text
+/// starts with `help_prefix`. A text field with choices is checked at parse time, like an enum.
+/// Returns config key (or, without one, the field name) -> option, so that a config file can
+/// tell which options the command line set.
 template <class Options>
-std::map<std::string, CLI::Option*> add_described_options(CLI::App* cmd, Options& o) {
+std::map<std::string, CLI::Option*> add_described_options(
+    CLI::App* cmd, Options& o, DescribedFlags which = DescribedFlags::kAll,
+    const std::string& help_prefix = "") {
   std::map<std::string, CLI::Option*> added;
   auto add = [&](const OptionSpec& s, auto& field) {
     using T = std::decay_t<decltype(field)>;
-    if (s.flag.empty()) return;
+    if (s.flag.empty() || (which == DescribedFlags::kConfigKeyed && s.config_key.empty())) return;
     const std::string flag(s.flag);
+    const std::string help = help_prefix + described_help(s);
     CLI::Option* opt = nullptr;
     if constexpr (std::is_same_v<T, bool>) {
-      opt = cmd->add_flag(flag, field, described_help(s));
+      if (negated_flag(s)) {
+        T* target = &field;
+        opt = cmd->add_flag_callback(
+            flag.substr(1), [target] { *target = false; }, help);
+      } else {
+        opt = cmd->add_flag(flag, field, help);
+      }
+    } else if constexpr (std::is_same_v<T, std::string>) {
+      opt = cmd->add_option(flag, field, help)->capture_default_str();
+      if (!s.choices.empty())
+        opt->check(
+            [choices = std::string(s.choices)](const std::string& text) {
+              return sw::detail::is_choice(choices, text) ? std::string()
+                                                          : text + ": expected " + choices;
+            },
+            "");  // the choices are in the help text already
     } else if constexpr (std::is_enum_v<T>) {
       T* target = &field;
       const std::string choices(s.choices);
@@ -48,10 +71,10 @@ std::map<std::string, CLI::Option*> add_described_options(CLI::App* cmd, Options
                      if (!parse_option(text, target))
                        throw CLI::ValidationError(flag, text + ": expected " + choices);
                    },
-                   described_help(s))
+                   help)
                 ->default_str(to_string(field));
     } else {
-      opt = cmd->add_option(flag, field, described_help(s))->capture_default_str();
+      opt = cmd->add_option(flag, field, help)->capture_default_str();
     }
     added[std::string(s.config_key.empty() ? s.name : s.config_key)] = opt;
   };

@@ -21,10 +21,12 @@
 
 namespace sw::python {
 
-/// The keyword of a described field: its first flag without "--", '-' -> '_'; "" without a flag.
+/// The keyword of a described field: its first flag without "!" and "--", '-' -> '_'; "" without
+/// a flag. A field whose only flag is a negation (negated_flag: "!--no-rainbow") has the keyword
+/// no_rainbow, and no_rainbow = True sets the field false.
 inline std::string described_keyword(const OptionSpec& s) {
   std::string_view f = s.flag.substr(0, s.flag.find(','));
-  while (!f.empty() && f.front() == '-') f.remove_prefix(1);
+  while (!f.empty() && (f.front() == '-' || f.front() == '!')) f.remove_prefix(1);
   std::string k(f);
   for (char& c : k)
     if (c == '-') c = '_';
@@ -75,6 +77,8 @@ void set_described_from_kwargs(Options& o, const pybind11::kwargs& kwargs, const
       if (v.is_none()) wrong_type();
       try {
         field = v.cast<T>();
+        if constexpr (std::is_same_v<T, bool>)
+          if (negated_flag(s)) field = !field;
       } catch (const py::cast_error&) {
         wrong_type();
       }
@@ -104,7 +108,7 @@ std::string described_kwargs_doc(const Options& defaults) {
     if (key.empty()) return;
     using T = std::decay_t<decltype(value)>;
     std::string shown = option_text(value);
-    if constexpr (std::is_same_v<T, bool>) shown = value ? "True" : "False";
+    if constexpr (std::is_same_v<T, bool>) shown = (value != negated_flag(s)) ? "True" : "False";
     if constexpr (std::is_same_v<T, std::string> || std::is_enum_v<T>) shown = "'" + shown + "'";
     doc += "  " + key + " = " + shown + ": " + std::string(s.help);
     if (!s.unit.empty()) doc += " (" + std::string(s.unit) + ")";

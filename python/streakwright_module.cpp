@@ -496,25 +496,14 @@ Result py_retrieve(const Scan& scan, const py::object& energy_window, const py::
   return r;
 }
 
+// The options of RabbittAnalysisOptions::describe arrive as keywords (python/described_kwargs.h);
+// gas and ir_wavelength are the CLI's overrides, energy_window its --energy-window.
 Result py_rabbitt(const Scan& given, const py::object& gas, const py::object& ir_wavelength,
-                  const std::string& atomic_correction, const py::object& xuv_only,
-                  const std::string& cross_section, const std::string& dipole, double window,
-                  double min_sideband_significance, bool apply_delay_calibration,
-                  const py::object& energy_window, bool no_rainbow, double isolated_max,
-                  double satellites_max, const py::object& progress) {
+                  const py::object& xuv_only, const py::object& energy_window,
+                  const py::object& progress, const py::kwargs& options) {
   const Scan scan = with_overrides(given, gas, ir_wavelength, "rabbitt");
   RabbittAnalysisOptions o;
-  o.atomic_correction = atomic_correction;
-  o.rabbitt.window_half_width_fraction = window;
-  o.rabbitt.min_modulation_significance = min_sideband_significance;
-  o.rabbitt.apply_delay_calibration = apply_delay_calibration;
-  o.rabbitt.rainbow = !no_rainbow;
-  if (!parse_cross_section_model(cross_section, &o.train_burst.cross_section))
-    throw usage_error("cross_section " + cross_section + ": expected flat or sfa_dipole");
-  if (!parse_dipole_kind(dipole, &o.train_burst.dipole))
-    throw usage_error("dipole " + dipole + ": expected constant or hydrogenic");
-  o.classifier.isolated_max_satellite_ratio = isolated_max;
-  o.classifier.satellite_max_ratio = satellites_max;
+  set_described_from_kwargs(o, options, "rabbitt");
   set_energy_window(energy_window, o.preprocess);
   const Scan* xo = nullptr;
   if (!xuv_only.is_none()) {
@@ -535,29 +524,18 @@ Result py_rabbitt(const Scan& given, const py::object& gas, const py::object& ir
   return r;
 }
 
+// The options of ClassifyAnalysisOptions::describe arrive as keywords (python/described_kwargs.h);
+// gas and ir_wavelength are the CLI's overrides, energy_window its --energy-window.
 Result py_classify(const Scan& given, const py::object& gas, const py::object& ir_wavelength,
-                   bool retrieve, const std::string& engine, int iterations,
-                   const py::object& energy_window, double isolated_max, double satellites_max,
-                   int comparable_bursts, double comb_contrast, double delay_train_share,
-                   double delay_streaking_share, double min_counts, const py::object& progress) {
+                   const py::object& energy_window, const py::object& progress,
+                   const py::kwargs& options) {
   const Scan scan = with_overrides(given, gas, ir_wavelength, "classify");
   ClassifyAnalysisOptions o;
-  o.retrieve = retrieve;
-  o.retrieve_options.engine = engine;
-  o.retrieve_options.iterations = iterations;
+  set_described_from_kwargs(o, options, "classify");
   o.retrieve_options.bootstrap = 0;
-  o.retrieve_options.isolated_max_satellite_ratio = isolated_max;
-  o.retrieve_options.satellites_max_satellite_ratio = satellites_max;
   set_energy_window(energy_window, o.retrieve_options.preprocess);
-  o.classifier.isolated_max_satellite_ratio = isolated_max;
-  o.classifier.satellite_max_ratio = satellites_max;
-  o.classifier.train_min_comparable_bursts = comparable_bursts;
-  o.classifier.comb_min_period_contrast = comb_contrast;
-  o.classifier.delay_train_min_share = delay_train_share;
-  o.classifier.delay_streaking_max_share = delay_streaking_share;
-  o.classifier.min_total_counts = min_counts;
-  if (const std::string e = o.classifier.validate(); !e.empty()) throw usage_error(e);
-  check_engine(engine);
+  if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
+  check_engine(o.retrieve_options.engine);
   Result r{run_released(progress, scan.trace,
                         [&](const AnalysisProgress& p) {
                           return AnyOutput(analyse_classify(scan.trace, o, p));
@@ -752,34 +730,24 @@ PYBIND11_MODULE(streakwright, m) {
         py::arg("energy_window") = py::none(), py::arg("lines") = py::none(),
         py::arg("progress") = py::none(), retrieve_doc.c_str());
 
-  const RabbittAnalysisOptions ra;
+  // Keywords: the flags of the CLI's `rabbitt` and `classify` from their descriptions, plus the
+  // overrides gas and ir_wavelength, energy_window, (rabbitt) xuv_only and progress.
+  static const std::string rabbitt_doc =
+      "RABBITT analysis (the CLI's `rabbitt`); xuv_only: a Scan of the field-free spectrum.\n\n"
+      "Keyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
+      described_kwargs_doc(RabbittAnalysisOptions{});
   m.def("rabbitt", &py_rabbitt, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),
-        py::arg("ir_wavelength") = py::none(), py::arg("atomic_correction") = ra.atomic_correction,
-        py::arg("xuv_only") = py::none(),
-        py::arg("cross_section") = std::string(to_string(ra.train_burst.cross_section)),
-        py::arg("dipole") = std::string(to_string(ra.train_burst.dipole)),
-        py::arg("window") = ra.rabbitt.window_half_width_fraction,
-        py::arg("min_sideband_significance") = ra.rabbitt.min_modulation_significance,
-        py::arg("apply_delay_calibration") = ra.rabbitt.apply_delay_calibration,
-        py::arg("energy_window") = py::none(), py::arg("no_rainbow") = !ra.rabbitt.rainbow,
-        py::arg("isolated_max") = rd.isolated_max_satellite_ratio,
-        py::arg("satellites_max") = rd.satellites_max_satellite_ratio,
-        py::arg("progress") = py::none(),
-        "RABBITT analysis (the CLI's `rabbitt`); xuv_only: a Scan of the field-free spectrum.");
+        py::arg("ir_wavelength") = py::none(), py::arg("xuv_only") = py::none(),
+        py::arg("energy_window") = py::none(), py::arg("progress") = py::none(),
+        rabbitt_doc.c_str());
 
-  const ClassifierOptions cd;
+  static const std::string classify_doc =
+      "Isolated / satellites / train verdict (the CLI's `classify`).\n\n"
+      "Keyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
+      described_kwargs_doc(ClassifyAnalysisOptions{});
   m.def("classify", &py_classify, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),
-        py::arg("ir_wavelength") = py::none(), py::arg("retrieve") = false,
-        py::arg("engine") = rd.engine, py::arg("iterations") = rd.iterations,
-        py::arg("energy_window") = py::none(),
-        py::arg("isolated_max") = cd.isolated_max_satellite_ratio,
-        py::arg("satellites_max") = cd.satellite_max_ratio,
-        py::arg("comparable_bursts") = cd.train_min_comparable_bursts,
-        py::arg("comb_contrast") = cd.comb_min_period_contrast,
-        py::arg("delay_train_share") = cd.delay_train_min_share,
-        py::arg("delay_streaking_share") = cd.delay_streaking_max_share,
-        py::arg("min_counts") = cd.min_total_counts, py::arg("progress") = py::none(),
-        "Isolated / satellites / train verdict (the CLI's `classify`).");
+        py::arg("ir_wavelength") = py::none(), py::arg("energy_window") = py::none(),
+        py::arg("progress") = py::none(), classify_doc.c_str());
 
   m.def(
       "presets",

@@ -12,6 +12,7 @@
 #include <type_traits>
 #include <vector>
 
+#include "retrieval/analysis/analyses.h"
 #include "retrieval/analysis/retrieve.h"
 #include "retrieval/core/option_spec.h"
 #include "retrieval/engines/engine.h"
@@ -132,6 +133,36 @@ TEST_CASE("every options description: defaults valid, bounds and choices enforce
   walk_description<CmaSettings>("CmaSettings");
   walk_description<PtychographicSettings>("PtychographicSettings");
   walk_description<ProjectionsSettings>("ProjectionsSettings");
+  walk_description<RabbittAnalysisOptions>("RabbittAnalysisOptions");
+  walk_description<ClassifyAnalysisOptions>("ClassifyAnalysisOptions");
+}
+
+TEST_CASE("the rabbitt and classify settings echo keeps the result.json keys", "[options]") {
+  // The settings.* keys these analyses wrote before their descriptions existed (from memory of
+  // rabbitt_analysis.cpp and classify_analysis.cpp; settings.xuv_only and
+  // settings.ir_wavelength_nm are added by the analyses themselves).
+  auto keys_of = [](const auto& options) {
+    std::vector<Param> echo;
+    append_settings_echo(options, &echo);
+    std::vector<std::string> keys;
+    for (const Param& p : echo) keys.push_back(p.key);
+    return keys;
+  };
+  CHECK(keys_of(RabbittAnalysisOptions{}) ==
+        std::vector<std::string>{
+            "settings.atomic_correction", "settings.window_half_width_fraction",
+            "settings.apply_delay_calibration", "settings.cross_section", "settings.dipole",
+            "settings.isolated_max_satellite_ratio", "settings.satellites_max_satellite_ratio"});
+  CHECK(keys_of(ClassifyAnalysisOptions{}) ==
+        std::vector<std::string>{
+            "settings.isolated_max_satellite_ratio", "settings.satellites_max_satellite_ratio",
+            "settings.train_min_comparable_bursts", "settings.comb_min_period_contrast",
+            "settings.delay_train_min_share", "settings.delay_streaking_max_share",
+            "settings.min_total_counts", "settings.retrieve"});
+  // Only atomic_correction reaches the batch option strings (its resume hash).
+  const auto texts = described_texts(RabbittAnalysisOptions{});
+  REQUIRE(texts.size() == 1);
+  CHECK(texts[0] == std::pair<std::string, std::string>{"atomic_correction", "auto"});
 }
 
 TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") {

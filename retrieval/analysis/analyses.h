@@ -30,6 +30,7 @@
 #include "retrieval/analysis/rabbitt.h"
 #include "retrieval/analysis/retrieve.h"
 #include "retrieval/analysis/train_burst.h"
+#include "retrieval/core/option_spec.h"
 #include "retrieval/core/result.h"
 #include "retrieval/core/trace.h"
 #include "retrieval/preprocess/preprocess.h"
@@ -63,16 +64,29 @@ RetrieveOutput analyse_retrieve(const Trace& scan, const RetrieveOptions& option
 /// The rabbitt analysis' default average-burst options: the cross section is the
 /// energy-density Jacobian p alone (sfa_dipole with a constant dipole), the same division by p
 /// as retrieve's preprocessing.
-TrainBurstOptions rabbitt_train_burst_defaults();
+inline TrainBurstOptions rabbitt_train_burst_defaults() {
+  TrainBurstOptions o;
+  o.cross_section = CrossSectionModel::kSfaDipole;
+  o.dipole = DipoleKind::kConstant;
+  return o;
+}
 
+/// Options of the RABBITT analysis. The fields a user sets (the flags of `rabbitt`, the Python
+/// keywords of rabbitt(), the batch config key atomic_correction) are described once, in
+/// describe() below (retrieval/core/option_spec.h); the settings.* echo of the result and the
+/// batch option strings are walks of that description too.
 struct RabbittAnalysisOptions {
+  // Not an aggregate: RabbittAnalysisOptions{} value-initialises (zeroes, then the defaults
+  // below), which keeps GCC 12's -Wmaybe-uninitialized quiet about the nested text fields.
+  RabbittAnalysisOptions() = default;
   /// Sideband analysis (retrieval/analysis/rabbitt.h); atomic.mode is set from atomic_correction.
   RabbittOptions rabbitt;
   /// "auto" (subtract the atomic delays of the gas) or "none".
   std::string atomic_correction = "auto";
   /// Average-burst options (default: rabbitt_train_burst_defaults()).
   TrainBurstOptions train_burst = rabbitt_train_burst_defaults();
-  /// Verdict thresholds (retrieval/analysis/classifier.h), used as given.
+  /// Verdict thresholds (retrieval/analysis/classifier.h), used as given. The CLI and batch set
+  /// the two satellite-ratio thresholds from RetrieveOptions (cli/analysis.h).
   ClassifierOptions classifier;
   /// Only the energy window (energy_window_lo_eV/_hi_eV) and the line detection of
   /// scan_lines() are used.
@@ -80,8 +94,86 @@ struct RabbittAnalysisOptions {
   /// Limits of the quality checks (retrieval/analysis/quality.h).
   QualityOptions quality;
   /// Name of the field-free (XUV-only) scan passed to analyse_rabbitt, for the settings echo
-  /// (settings.xuv_only) and warnings; "" = none.
+  /// (settings.xuv_only, after the described settings) and warnings; "" = none.
   std::string xuv_only_name;
+
+  /// The one description of the user-facing fields. Order = order of settings.* in result.json.
+  /// Only atomic_correction can be set for a whole batch (config key; batch option strings).
+  template <class Self, class V>
+  static void describe(Self& self, V& v) {
+    v(OptionSpec{.name = "atomic_correction",
+                 .help = "auto: subtract the Wigner (Coulomb phase) and continuum-continuum delays "
+                         "of the gas; none: report the measured delays",
+                 .choices = "auto|none",
+                 .flag = "--atomic-correction",
+                 .config_key = "atomic_correction"},
+      self.atomic_correction);
+    v(OptionSpec{.name = "window_half_width_fraction",
+                 .unit = "hbar omega",
+                 .help = "half width of the sideband windows",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 0.5,
+                 .flag = "--window",
+                 .batch = false},
+      self.rabbitt.window_half_width_fraction);
+    v(OptionSpec{.name = "apply_delay_calibration",
+                 .help = "use the fitted 2 omega frequency for the sideband fits (rescales the "
+                         "delay axis)",
+                 .flag = "--apply-delay-calibration",
+                 .batch = false},
+      self.rabbitt.apply_delay_calibration);
+    v(OptionSpec{.name = "cross_section",
+                 .help = "harmonic intensity = peak area / cross section (sfa_dipole: p |d(p)|^2)",
+                 .choices = "flat|sfa_dipole",
+                 .flag = "--cross-section",
+                 .batch = false},
+      self.train_burst.cross_section);
+    v(OptionSpec{.name = "dipole",
+                 .help = "dipole of sfa_dipole",
+                 .choices = "constant|hydrogenic",
+                 .flag = "--dipole",
+                 .batch = false},
+      self.train_burst.dipole);
+    v(OptionSpec{.name = "min_modulation_significance",
+                 .help = "report a sideband when its modulation B exceeds this many sigma",
+                 .min = 0,
+                 .min_open = true,
+                 .flag = "--min-sideband-significance",
+                 .echo = false,
+                 .batch = false},
+      self.rabbitt.min_modulation_significance);
+    v(OptionSpec{.name = "rainbow",
+                 .help = "skip the per-energy-bin (rainbow) fits",
+                 .flag = "!--no-rainbow",
+                 .echo = false,
+                 .batch = false},
+      self.rabbitt.rainbow);
+    v(OptionSpec{.name = "analyse_lines",
+                 .help = "do not look for further photoelectron lines (no relative line delays)",
+                 .flag = "!--no-lines",
+                 .echo = false,
+                 .batch = false},
+      self.rabbitt.analyse_lines);
+    v(OptionSpec{.name = "isolated_max_satellite_ratio",
+                 .help = "verdict: largest satellite/main intensity ratio for 'isolated' (common "
+                         "practice)",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 1,
+                 .flag = "--isolated-max",
+                 .batch = false},
+      self.classifier.isolated_max_satellite_ratio);
+    v(OptionSpec{.name = "satellites_max_satellite_ratio",
+                 .help = "verdict: upper limit of the satellite/main ratio for "
+                         "'isolated_with_satellites'",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 1,
+                 .flag = "--satellites-max",
+                 .batch = false},
+      self.classifier.satellite_max_ratio);
+  }
 
   /// Empty when valid; otherwise names the field, its value and the rule.
   std::string validate() const;
@@ -105,6 +197,9 @@ RabbittOutput analyse_rabbitt(const Trace& scan, const Trace* xuv_only,
 // ---------------------------------------------------------------------------------------------
 // classify
 
+/// Options of the classification. The fields a user sets (the flags of `classify`, the Python
+/// keywords of classify()) are described once, in describe() below; the settings.* echo of the
+/// result is a walk of that description (after settings.ir_wavelength_nm, the wavelength used).
 struct ClassifyAnalysisOptions {
   /// Verdict thresholds. The two satellite-ratio thresholds are taken from
   /// retrieve.isolated_max_satellite_ratio / satellites_max_satellite_ratio (one place for
@@ -114,6 +209,75 @@ struct ClassifyAnalysisOptions {
   bool retrieve = false;
   /// Options of that retrieval; its preprocess.energy_window_* also crops the evidence.
   RetrieveOptions retrieve_options;
+
+  /// The one description of the user-facing fields. Order = order of settings.* in result.json.
+  template <class Self, class V>
+  static void describe(Self& self, V& v) {
+    v(OptionSpec{.name = "isolated_max_satellite_ratio",
+                 .help = "largest satellite / main-burst peak intensity for 'isolated'",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 1,
+                 .flag = "--isolated-max"},
+      self.retrieve_options.isolated_max_satellite_ratio);
+    v(OptionSpec{.name = "satellites_max_satellite_ratio",
+                 .help = "upper limit of the satellite ratio for 'isolated_with_satellites'",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 1,
+                 .flag = "--satellites-max"},
+      self.retrieve_options.satellites_max_satellite_ratio);
+    v(OptionSpec{.name = "train_min_comparable_bursts",
+                 .help = "reconstructed bursts >= 50 % of the main one that make a train",
+                 .min = 2,
+                 .flag = "--comparable-bursts"},
+      self.classifier.train_min_comparable_bursts);
+    v(OptionSpec{.name = "comb_min_period_contrast",
+                 .help = "fringe contrast at period T above which the spectrum is a harmonic comb",
+                 .min = 1.0 / 3.0,
+                 .min_open = true,
+                 .max = 1,
+                 .max_open = true,
+                 .flag = "--comb-contrast"},
+      self.classifier.comb_min_period_contrast);
+    v(OptionSpec{.name = "delay_train_min_share",
+                 .help = "2 omega share above which the delay oscillation is train-like",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 1,
+                 .max_open = true,
+                 .flag = "--delay-train-share"},
+      self.classifier.delay_train_min_share);
+    v(OptionSpec{.name = "delay_streaking_max_share",
+                 .help = "2 omega share below which the delay oscillation is streaking-like",
+                 .min = 0,
+                 .min_open = true,
+                 .max = 1,
+                 .max_open = true,
+                 .flag = "--delay-streaking-share"},
+      self.classifier.delay_streaking_max_share);
+    v(OptionSpec{.name = "min_total_counts",
+                 .help = "fewer counts in the whole scan give 'undetermined'",
+                 .min = 0,
+                 .min_open = true,
+                 .flag = "--min-counts"},
+      self.classifier.min_total_counts);
+    v(OptionSpec{.name = "retrieve",
+                 .help = "run the streaking retrieval first and use the reconstructed bursts",
+                 .flag = "--retrieve"},
+      self.retrieve);
+    v(OptionSpec{.name = "engine",
+                 .help = "engine of --retrieve (see `retrieve --help`)",
+                 .flag = "--engine",
+                 .echo = false},
+      self.retrieve_options.engine);
+    v(OptionSpec{.name = "iterations",
+                 .help = "iterations of --retrieve; 0 = engine default",
+                 .min = 0,
+                 .flag = "--iterations",
+                 .echo = false},
+      self.retrieve_options.iterations);
+  }
 
   /// Empty when valid; otherwise names the field, its value and the rule.
   std::string validate() const;

@@ -20,6 +20,7 @@ ClassifierOptions effective_classifier_options(const ClassifyAnalysisOptions& op
 }
 
 std::string ClassifyAnalysisOptions::validate() const {
+  if (const std::string e = validate_described(*this); !e.empty()) return e;
   if (const std::string e = effective_classifier_options(*this).validate(); !e.empty())
     return "classify thresholds: " + e;
   return "";
@@ -99,14 +100,7 @@ ClassifyOutput analyse_classify(const Trace& scan, const ClassifyAnalysisOptions
 
   auto P = [&](const std::string& k, auto v) { res.extra.push_back({k, v}); };
   P("settings.ir_wavelength_nm", lambda);
-  P("settings.isolated_max_satellite_ratio", co.isolated_max_satellite_ratio);
-  P("settings.satellites_max_satellite_ratio", co.satellite_max_ratio);
-  P("settings.train_min_comparable_bursts", static_cast<long long>(co.train_min_comparable_bursts));
-  P("settings.comb_min_period_contrast", co.comb_min_period_contrast);
-  P("settings.delay_train_min_share", co.delay_train_min_share);
-  P("settings.delay_streaking_max_share", co.delay_streaking_max_share);
-  P("settings.min_total_counts", co.min_total_counts);
-  P("settings.retrieve", options.retrieve);
+  append_settings_echo(options, &res.extra);
   add_sidecar_extras(trace, res);
   return out;
 }

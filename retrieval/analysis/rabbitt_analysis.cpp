@@ -79,18 +79,10 @@ std::vector<LineEntry> rabbitt_line_entries(const RabbittAnalysis& rb,
 
 }  // namespace
 
-TrainBurstOptions rabbitt_train_burst_defaults() {
-  TrainBurstOptions o;
-  o.cross_section = CrossSectionModel::kSfaDipole;
-  o.dipole = DipoleKind::kConstant;
-  return o;
-}
-
 std::string RabbittAnalysisOptions::validate() const {
+  if (const std::string e = validate_described(*this); !e.empty()) return e;
   RabbittOptions ro = rabbitt;
-  if (!parse_atomic_delay_mode(atomic_correction, &ro.atomic.mode))
-    return "--atomic-correction '" + atomic_correction +
-           "': expected auto (subtract the atomic delays of the gas) or none";
+  parse_atomic_delay_mode(atomic_correction, &ro.atomic.mode);  // one of the described choices
   if (const std::string e = ro.validate(); !e.empty()) return "rabbitt options: " + e;
   if (const std::string e = train_burst.validate(); !e.empty())
     return "average-burst options: " + e;
@@ -184,14 +176,8 @@ RabbittOutput analyse_rabbitt(const Trace& scan, const Trace* xuv_only,
     for (const auto& k : rb.skipped_sidebands) s += (s.empty() ? "" : "; ") + k;
     P("rabbitt.skipped_sidebands", s);
   }
-  P("settings.atomic_correction", std::string(to_string(ro.atomic.mode)));
-  P("settings.window_half_width_fraction", ro.window_half_width_fraction);
-  P("settings.apply_delay_calibration", ro.apply_delay_calibration);
-  P("settings.cross_section", std::string(to_string(options.train_burst.cross_section)));
-  P("settings.dipole", std::string(to_string(options.train_burst.dipole)));
+  append_settings_echo(options, &res.extra);
   if (!options.xuv_only_name.empty()) P("settings.xuv_only", options.xuv_only_name);
-  P("settings.isolated_max_satellite_ratio", co.isolated_max_satellite_ratio);
-  P("settings.satellites_max_satellite_ratio", co.satellite_max_ratio);
   add_sidecar_extras(trace, res);
   return out;
 }

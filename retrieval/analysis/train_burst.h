@@ -42,6 +42,10 @@ enum class CrossSectionModel {
 const char* to_string(CrossSectionModel m);
 /// Parses "flat" or "sfa_dipole"; false on anything else.
 bool parse_cross_section_model(const std::string& s, CrossSectionModel* out);
+/// The same, under the name option descriptions use (retrieval/core/option_spec.h).
+inline bool parse_option(const std::string& s, CrossSectionModel* out) {
+  return parse_cross_section_model(s, out);
+}
 
 struct TrainBurstOptions {
   /// Cross-section model dividing the harmonic peak areas.

@@ -52,12 +52,19 @@ struct OptionSpec {
   /// Allowed words of a text or enum field, separated by '|' ("" = any non-empty text).
   std::string_view choices = {};
   /// Command-line flag(s) in CLI11 syntax ("--cma-phase-limit"; "--despike,!--no-despike" for a
-  /// boolean with its negation); "" = not on the command line.
+  /// boolean with its negation; "!--no-rainbow" for a boolean whose only flag turns it off);
+  /// "" = not on the command line.
   std::string_view flag = {};
   std::string_view config_key = {};  ///< key in the batch config file; "" = none
   bool echo = true;                  ///< written to result.json as settings.<name>
   bool batch = true;                 ///< part of the canonical batch option strings (resume hash)
 };
+
+/// Whether the field's only flag is a negation ("!--no-rainbow"): the flag (and the Python
+/// keyword no_rainbow = True) sets the boolean to false.
+inline bool negated_flag(const OptionSpec& s) {
+  return !s.flag.empty() && s.flag.front() == '!' && s.flag.find(',') == std::string_view::npos;
+}
 
 namespace detail {
 

@@ -163,6 +163,36 @@ def test_retrieve_keywords_are_the_cli_options():
         sw.retrieve(scan, **fast, uncertainty_method="warm")
 
 
+@pytest.mark.parametrize("command", ["rabbitt", "classify"])
+def test_rabbitt_and_classify_keywords_are_the_cli_options(command):
+    """Every option of the CLI's `rabbitt` / `classify` is a keyword of the function of that name
+    (documented with its default; both come from RabbittAnalysisOptions::describe and
+    ClassifyAnalysisOptions::describe), besides the overrides and energy_window."""
+    helptext = run_cli(command, "--help").stdout
+    flags = set(re.findall(r"^  (?:-\w,)?--([a-z][a-z-]*)", helptext, re.M))
+    not_described = {"help", "out", "quiet", "allow-outside-data", "figure-format", "gas",
+                     "ir-wavelength", "energy-window", "xuv-only"}
+    keywords = {f.replace("-", "_") for f in flags - not_described}
+    documented = set(re.findall(r"^  (\w+) = ", getattr(sw, command).__doc__, re.M))
+    assert keywords == documented
+    scan, _ = sw.simulate("argon-rabbitt", seed=3)
+    # Checked before any work: ValueError naming the keyword and the rule; TypeError for a
+    # keyword that no option has.
+    if command == "rabbitt":
+        assert "no_rainbow = False" in sw.rabbitt.__doc__
+        with pytest.raises(ValueError, match=r"window = 0.7: must be in \(0, 0.5\]"):
+            sw.rabbitt(scan, window=0.7)
+        with pytest.raises(ValueError, match=r"atomic_correction = 'maybe': expected auto\|none"):
+            sw.rabbitt(scan, atomic_correction="maybe")
+    else:
+        with pytest.raises(ValueError, match="comparable_bursts = 1: must be >= 2"):
+            sw.classify(scan, comparable_bursts=1)
+        with pytest.raises(ValueError, match="isolated_max_satellite_ratio"):
+            sw.classify(scan, isolated_max=0.9)  # above satellites_max (a rule between fields)
+    with pytest.raises(TypeError, match="no_such_option"):
+        getattr(sw, command)(scan, no_such_option=1)
+
+
 def test_scan_from_arrays_round_trip_and_checks(archive):
     scan = sw.load_scan(archive["neon-150as"])
     assert scan.counts.shape == (len(scan.delay_fs), len(scan.energy_eV))
