@@ -5,6 +5,7 @@
 #include <opencv2/core/persistence.hpp>
 
 #include "io/atomic_file.h"
+#include "io/filenode_json.h"
 #include "io/input_guard.h"
 #include "retrieval/core/error.h"
 
@@ -13,23 +14,6 @@ namespace sw::cli {
 namespace {
 
 using json = nlohmann::json;
-
-json to_json(const cv::FileNode& n) {
-  if (n.isInt()) return static_cast<int>(n);
-  if (n.isReal()) return static_cast<double>(n);
-  if (n.isString()) return static_cast<std::string>(n);
-  if (n.isSeq()) {
-    json a = json::array();
-    for (auto it = n.begin(); it != n.end(); ++it) a.push_back(to_json(*it));
-    return a;
-  }
-  if (n.isMap()) {
-    json o = json::object();
-    for (auto it = n.begin(); it != n.end(); ++it) o[(*it).name()] = to_json(*it);
-    return o;
-  }
-  return nullptr;
-}
 
 std::string lower(std::string s) {
   for (char& c : s) c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
@@ -65,13 +49,12 @@ nlohmann::json read_structured_file(const std::string& path, const std::string& 
     }
   }
   if (ext == ".yaml" || ext == ".yml") {
-    std::size_t start = text.compare(0, 3, "\xEF\xBB\xBF") == 0 ? 3 : 0;
-    if (text.compare(start, 5, "%YAML") != 0) text = "%YAML:1.0\n" + text.substr(start);
     try {
-      cv::FileStorage fsr(
-          text, cv::FileStorage::READ | cv::FileStorage::MEMORY | cv::FileStorage::FORMAT_YAML);
+      cv::FileStorage fsr(with_yaml_directive(text), cv::FileStorage::READ |
+                                                         cv::FileStorage::MEMORY |
+                                                         cv::FileStorage::FORMAT_YAML);
       if (!fsr.isOpened()) throw usage_error(what + " '" + path + "' is not valid YAML");
-      return to_json(fsr.root());
+      return filenode_to_json(fsr.root(), DuplicateKeys::kLastWins);
     } catch (const cv::Exception& e) {
       // OpenCV 4.6 swaps the function name and the "(LINE): reason" text.
       const std::string why = e.func.find("): ") != std::string::npos ? e.func : e.err;

@@ -7,6 +7,7 @@
 
 #include <opencv2/core.hpp>
 
+#include "io/filenode_json.h"
 #include "io/trace_reader_internal.h"
 #include "retrieval/core/format.h"
 
@@ -45,35 +46,12 @@ namespace {
 
 // --- sidecar parsing into one JSON tree ------------------------------------------------------
 
-/// Recursion depth is bounded: the text was pre-scanned by nesting_depth() (input_guard.h).
-json filenode_to_json(const cv::FileNode& n) {
-  if (n.isInt()) return static_cast<int>(n);
-  if (n.isReal()) return static_cast<double>(n);
-  if (n.isString()) return static_cast<std::string>(n);
-  if (n.isSeq()) {
-    json a = json::array();
-    for (auto it = n.begin(); it != n.end(); ++it) a.push_back(filenode_to_json(*it));
-    return a;
-  }
-  if (n.isMap()) {
-    json o = json::object();
-    for (auto it = n.begin(); it != n.end(); ++it) {
-      const cv::FileNode child = *it;
-      if (o.contains(child.name()))
-        throw input_error("the key '" + escape_excerpt(child.name()) +
-                          "' appears twice in one mapping; expected each key once");
-      o[child.name()] = filenode_to_json(child);
-    }
-    return o;
-  }
-  return nullptr;
-}
-
 /// Parses text with cv::FileStorage (in memory); throws cv::Exception or returns false.
 bool parse_with_filestorage(const std::string& text, int format, json* out) {
   cv::FileStorage storage(text, cv::FileStorage::READ | cv::FileStorage::MEMORY | format);
   if (!storage.isOpened()) return false;
-  *out = filenode_to_json(storage.root());
+  // Recursion depth is bounded: the text was pre-scanned by nesting_depth() (input_guard.h).
+  *out = filenode_to_json(storage.root(), DuplicateKeys::kRefuse);
   return true;
 }
 
@@ -206,10 +184,8 @@ json load_sidecar(const std::string& path) {
   } else {
     // OpenCV's YAML reader recognises YAML by its "%YAML" directive; hand-written sidecars
     // usually omit it.
-    std::string yaml = text;
-    std::size_t start = 0;
-    if (yaml.size() >= 3 && yaml.compare(0, 3, "\xEF\xBB\xBF") == 0) start = 3;
-    if (yaml.compare(start, 5, "%YAML") != 0) yaml = "%YAML:1.0\n" + yaml.substr(start);
+    const std::string yaml = with_yaml_directive(text);
+    const std::size_t start = text.compare(0, 3, "\xEF\xBB\xBF") == 0 ? 3 : 0;
     bool ok = false;
     std::string reason = "the file is empty or not a mapping";
     try {
