@@ -1,7 +1,7 @@
 #include "io/filenode_json.h"
 
-#include "retrieval/core/error.h"
 #include "io/input_guard.h"
+#include "retrieval/core/error.h"
 
 namespace sw {
 
