@@ -64,6 +64,16 @@ VolkovIntegrals IrField::at(double t) const {
   return v;
 }
 
+void IrField::sample(const double* t, std::size_t n, double shift, double* A, double* I1,
+                     double* I2) const {
+  for (std::size_t k = 0; k < n; ++k) {
+    const VolkovIntegrals v = at(t[k] + shift);
+    A[k] = v.A;
+    I1[k] = v.I1;
+    I2[k] = v.I2;
+  }
+}
+
 double IrField::peak_vector_potential() const {
   double m = 0;
   for (double a : A_) m = std::max(m, std::abs(a));
