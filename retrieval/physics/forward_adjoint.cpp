@@ -832,11 +832,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
         mu = c2 > 0 ? -c1 / (2.0 * c2) : 0.0;
       }
       // Adjoint of mu^2 c2 + mu c1 at fixed mu: a_bar = mu^2 2 w |a|^2 a - mu 2 w M a.
-      // Delays in reverse order: the phase factors stored last are the ones still in the
-      // cache (measured 0.9x the time of the forward order; docs/performance.md).
 #pragma omp for schedule(static)
-      for (long r = 0; r < nd; ++r) {
-        const long i = nd - 1 - r;
+      for (long i = 0; i < nd; ++i) {
         if (!const_dipole) compute_gates(i, gates);
         const auto ii = static_cast<Eigen::Index>(i);
         if (blurred) {
