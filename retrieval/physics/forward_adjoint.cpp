@@ -764,21 +764,10 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       }
     };
 
-#pragma omp for schedule(static)
-    for (long i = 0; i < nd; ++i) {
-      if (const_dipole) {
-        forward_direct(i, two_pass ? StoreUse::kFill : StoreUse::kNone);
-      } else {
-        compute_gates(i, gates);
-        forward_amplitudes(i, gates);
-      }
+    // The cost terms (and for scaled_cost their a_bar rows, for vjp the given a_bar) of delay
+    // i from its amplitudes in W.row_a, added to this thread's sums.
+    auto cost_row = [&](long i) {
       const auto ii = static_cast<Eigen::Index>(i);
-      if (amp_out)
-        for (std::size_t j = 0; j < ne; ++j)
-          (*amp_out)(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
-      if (two_pass)
-        for (std::size_t j = 0; j < ne; ++j)
-          amp_keep(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
       if (cost_mode && blurred) {
         // m = K |a|^2; the adjoints of c2, c1 w.r.t. m go back through K^T onto |a|^2.
         for (std::size_t j = 0; j < ne; ++j) W.mod[j] = std::norm(W.row_a[j]);
@@ -816,11 +805,42 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
         for (std::size_t j = 0; j < ne; ++j)
           W.row_bar[j] = (*a_bar)(ii, static_cast<Eigen::Index>(j));
       }
-      if (K == 0 || two_pass) continue;
+    };
+
+    // Two-pass projected cost: the forward pass runs over the delays in descending order, so
+    // that the adjoint pass (ascending) starts on the phase factors stored last, still in the
+    // cache; its cost sums are taken afterwards in ascending order (the order of one pass, so
+    // the same numbers).
+#pragma omp for schedule(static)
+    for (long r = 0; r < nd; ++r) {
+      const long i = two_pass ? nd - 1 - r : r;
+      if (const_dipole) {
+        forward_direct(i, two_pass ? StoreUse::kFill : StoreUse::kNone);
+      } else {
+        compute_gates(i, gates);
+        forward_amplitudes(i, gates);
+      }
+      const auto ii = static_cast<Eigen::Index>(i);
+      if (amp_out)
+        for (std::size_t j = 0; j < ne; ++j)
+          (*amp_out)(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
+      if (two_pass) {
+        for (std::size_t j = 0; j < ne; ++j)
+          amp_keep(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
+        continue;
+      }
+      cost_row(i);
+      if (K == 0) continue;
       adjoint(i, gates, const_dipole, StoreUse::kNone);
     }
 
     if (two_pass) {
+#pragma omp for schedule(static)
+      for (long i = 0; i < nd; ++i) {
+        for (std::size_t j = 0; j < ne; ++j)
+          W.row_a[j] = amp_keep(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
+        cost_row(i);
+      }
       // mu* from the totals, reduced in thread order (deterministic for a thread count).
 #pragma omp single
       {
