@@ -143,11 +143,12 @@ class ForwardAdjoint {
   /// The same cost with the scale eliminated inside: the caller's further terms quadratic in
   /// mu enter through extra_c2 and extra_c1 (added to c2 and c1 before mu* = -c1 / (2 c2)), and
   /// the gradient comes back combined, eps_bar = mu*^2 eps_bar2 + mu* eps_bar1 (likewise A_bar),
-  /// for the data part. Two passes over the delays: the forward pass keeps the amplitudes, the
-  /// adjoint pass (after mu*) recomputes each delay's gates (cheaper than keeping them in
-  /// memory: measured in docs/performance.md) and does one adjoint FFT per node and delay with
-  /// the combined a_bar instead of scaled_cost's two. Same numbers as scaled_cost combined by
-  /// the caller, to rounding.
+  /// for the data part. Two passes over the delays: the forward pass (descending delays) keeps
+  /// the amplitudes and, for a constant dipole, the gate's phase factors in the phase store
+  /// (set_phase_store_limit); the adjoint pass (after mu*, ascending) reads them (or, beyond the
+  /// store and for other dipoles, forms each delay's gates again) and does one adjoint FFT per
+  /// node and delay with the combined a_bar instead of scaled_cost's two
+  /// (docs/performance.md). Same numbers as scaled_cost combined by the caller, to rounding.
   void projected_cost(const CVec& eps, const IrField& ir, const Eigen::MatrixXd& measured,
                       const Eigen::MatrixXd& weight, double extra_c2, double extra_c1,
                       bool with_gradient, ProjectedCostParts* out,
