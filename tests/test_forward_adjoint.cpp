@@ -415,3 +415,38 @@ TEST_CASE("energy resolution: model counts are the unblurred counts convolved wi
   fa.scaled_cost(eps, S.ir, ones, ones, false, &tmp, &again);
   CHECK((again - sharp).cwiseAbs().maxCoeff() == 0.0);
 }
+
+TEST_CASE("projected_cost: the phase store changes no number", "[adjoint]") {
+  // The fast path (phase factors of the forward pass kept for the adjoint pass) against the
+  // reference path that forms them again (limit 0), and a store that holds only some delays:
+  // the same arithmetic in the same order, so the same bits (common practice for a cache).
+  Small S;
+  const CVec eps = test_envelope(S.grid, 5);
+  ForwardModelOptions o;
+  o.momentum = MomentumModel::kFull;
+  ForwardAdjoint fa(S.ip, DipoleModel{}, S.grid, S.carrier, S.D, S.W, 1);
+  fa.plan_full(S.ir, o);
+  Eigen::MatrixXd M;
+  ScaledCostParts tmp;
+  const Eigen::MatrixXd w = Eigen::MatrixXd::Ones(static_cast<Eigen::Index>(S.D.size()),
+                                                  static_cast<Eigen::Index>(S.W.size()));
+  fa.scaled_cost(test_envelope(S.grid, 9), S.ir, w, w, false, &tmp, &M);
+  auto run = [&](std::size_t limit) {
+    fa.set_phase_store_limit(limit);
+    ProjectedCostParts P;
+    fa.projected_cost(eps, S.ir, M, w, 0.0, 0.0, true, &P);
+    return P;
+  };
+  const ProjectedCostParts ref = run(0);
+  std::size_t arrays = 0;
+  for (const MomentumBlock& b : fa.plan().blocks) arrays += 1 + (b.nodes.size() + 1) / 2;
+  const std::size_t per_delay = 2 * arrays * S.grid.size() * sizeof(double);
+  for (std::size_t limit : {per_delay * 4, per_delay * S.D.size()}) {
+    const ProjectedCostParts P = run(limit);
+    CHECK(P.c2 == ref.c2);
+    CHECK(P.c1 == ref.c1);
+    CHECK(P.mu == ref.mu);
+    CHECK(P.eps_bar == ref.eps_bar);
+    CHECK(P.A_bar == ref.A_bar);
+  }
+}

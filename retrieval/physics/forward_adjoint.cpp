@@ -8,6 +8,7 @@
 
 #include "retrieval/core/hot_loop.h"
 #include "retrieval/core/units.h"
+#include "retrieval/physics/phase_factors.h"
 
 namespace sw {
 
@@ -100,6 +101,31 @@ ForwardAdjoint::ForwardAdjoint(double ip, DipoleModel dipole, TimeGrid grid, dou
     shift_phase_t_.resize(grid_.size());
     for (std::size_t i = 0; i < grid_.size(); ++i) shift_phase_t_[i] = -d * grid_.time(i);
   }
+  const std::size_t n = grid_.size(), ne = energy_.size();
+  bin_lo_.resize(ne);
+  bin_hi_.resize(ne);
+  bin_wlo_.resize(ne);
+  bin_whi_.resize(ne);
+  momentum_.resize(ne);
+  for (std::size_t j = 0; j < ne; ++j) {
+    const long b = map_.bin[j];
+    bin_lo_[j] = fft_index(b, n);
+    bin_hi_[j] = fft_index(b + 1, n);
+    bin_wlo_[j] = grid_.dt() * std::polar(1.0, static_cast<double>(b) * grid_.dw() * grid_.t0());
+    bin_whi_[j] =
+        grid_.dt() * std::polar(1.0, static_cast<double>(b + 1) * grid_.dw() * grid_.t0());
+    momentum_[j] = units::momentum_au(energy_[j]);
+  }
+}
+
+void ForwardAdjoint::set_row_phases() {
+  const std::size_t nd = delay_.size(), ne = energy_.size();
+  row_phase_.resize(nd * ne);
+  for (std::size_t i = 0; i < nd; ++i)
+    for (std::size_t j = 0; j < ne; ++j) {
+      const double theta = (energy_[j] + ip_) * delay_[i] - momentum_[j] * plan_.i1_mid;
+      row_phase_[i * ne + j] = cdouble(0, -1) * std::polar(1.0, theta);
+    }
 }
 
 void ForwardAdjoint::plan_full(const IrField& ir, const ForwardModelOptions& options) {
@@ -107,6 +133,7 @@ void ForwardAdjoint::plan_full(const IrField& ir, const ForwardModelOptions& opt
   max_block_phase_ = options.max_block_phase_rad;
   central_ = false;
   planned_ = true;
+  set_row_phases();
 }
 
 void ForwardAdjoint::plan_central(double p0) {
@@ -119,6 +146,7 @@ void ForwardAdjoint::plan_central(double p0) {
   plan_.blocks.push_back(std::move(b));
   central_ = true;
   planned_ = true;
+  set_row_phases();
 }
 
 bool ForwardAdjoint::plan_covers(const IrField& ir, double slack) const {
@@ -178,9 +206,12 @@ void ForwardAdjoint::projected_cost(const CVec& eps, const IrField& ir, const Ei
 
 // Per-thread buffers and accumulators (structure-of-arrays so the inner loops vectorise).
 struct ForwardAdjoint::Workspace {
-  std::vector<double> A, u, v;         // A, I1 - I1_mid, I2/2 at s + tau
-  std::vector<double> sn, cs;          // sines/cosines of a pair's phase offset
-  std::vector<double> emr, emi;        // exp(i phi) of the block's mid momentum
+  std::vector<double> A, u, v;   // A, I1 - I1_mid, I2/2 at s + tau
+  std::vector<double> sn, cs;    // sines/cosines of a pair's phase offset
+  std::vector<double> emr, emi;  // exp(i phi) of the block's mid momentum
+  struct {
+    const double *emr, *emi, *cs, *sn;  // the current block's and pair's factors (above or stored)
+  } ph{};
   std::vector<double> r1, i1;          // scratch for the unpaired middle node
   std::vector<double> gre, gim;        // nodes x n: gate d(p + A) exp(i phi)
   std::vector<double> pre, pim, ddip;  // nodes x n: exp(i phi), d'(p + A) (dipole != const)
@@ -199,59 +230,6 @@ namespace {
 
 // The element-wise kernels below are compiled for the baseline and for x86-64-v3 (SW_HOT_LOOP,
 // retrieval/core/hot_loop.h); only FMA rounding differs between the clones.
-
-// sin and cos of x[i], branch-free so that the loop vectorises (libm beyond |x| = 1e6):
-// Cody-Waite reduction by pi/2 with the three-part split of fdlibm's __ieee754_rem_pio2
-// (pio2_1, pio2_2, pio2_2t) and Taylor polynomials on [-pi/4, pi/4] to order 17 (truncation
-// < 1e-19); the result agrees with libm to ~2 ulp.
-// The argument is x_i = a u_i + b v_i, formed in the loop; `bound` >= max |x_i| (from the
-// callers' max |u| and |v|) replaces a pass over x to choose the libm fallback.
-SW_HOT_LOOP void sincos_affine(const double* __restrict__ u, const double* __restrict__ v, double a,
-                               double b, double bound, double* __restrict__ s,
-                               double* __restrict__ c, std::size_t n) {
-  if (!(bound < 1e6)) {  // outside the exact range of the reduction (or not finite): libm
-    for (std::size_t i = 0; i < n; ++i) {
-      const double x = a * u[i] + b * v[i];
-      s[i] = std::sin(x);
-      c[i] = std::cos(x);
-    }
-    return;
-  }
-  constexpr double kTwoOverPi = 0.63661977236758134308;
-  constexpr double kRound = 6755399441055744.0;  // 1.5 * 2^52: adding it rounds to an integer
-  constexpr double kP1 = 1.57079632673412561417e+00, kP2 = 6.07710050630396597660e-11,
-                   kP3 = 2.02226624879595063154e-21;
-  for (std::size_t i = 0; i < n; ++i) {
-    const double x = a * u[i] + b * v[i];
-    const double kd = (x * kTwoOverPi + kRound) - kRound;
-    const double r = ((x - kd * kP1) - kd * kP2) - kd * kP3;
-    const double r2 = r * r;
-    double sp = 2.8114572543455207632e-15;
-    sp = sp * r2 - 7.6471637318198164759e-13;
-    sp = sp * r2 + 1.6059043836821614599e-10;
-    sp = sp * r2 - 2.5052108385441718775e-08;
-    sp = sp * r2 + 2.7557319223985890653e-06;
-    sp = sp * r2 - 1.9841269841269841270e-04;
-    sp = sp * r2 + 8.3333333333333333333e-03;
-    sp = sp * r2 - 1.6666666666666666667e-01;
-    const double sr = r + r * r2 * sp;
-    double cp = 4.7794773323873852974e-14;
-    cp = cp * r2 - 1.1470745597729724714e-11;
-    cp = cp * r2 + 2.0876756987868098979e-09;
-    cp = cp * r2 - 2.7557319223985890653e-07;
-    cp = cp * r2 + 2.4801587301587301587e-05;
-    cp = cp * r2 - 1.3888888888888888889e-03;
-    cp = cp * r2 + 4.1666666666666666667e-02;
-    cp = cp * r2 - 0.5;
-    const double cr = 1.0 + r2 * cp;
-    const int q = static_cast<int>(kd);
-    const double swap = static_cast<double>(q & 1);
-    const double sgn_s = 1.0 - 2.0 * static_cast<double>((q >> 1) & 1);
-    const double sgn_c = 1.0 - 2.0 * static_cast<double>(((q + 1) >> 1) & 1);
-    s[i] = sgn_s * (sr + swap * (cr - sr));
-    c[i] = sgn_c * (cr + swap * (sr - cr));
-  }
-}
 
 // psi = eps * gate (interleaved complex output).
 SW_HOT_LOOP void gate_times_envelope(const double* __restrict__ er, const double* __restrict__ ei,
@@ -369,18 +347,9 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     ei[s] = e.imag();
   }
 
-  // Per-energy constants: bin indices and weights.
-  std::vector<std::size_t> ilo(ne), ihi(ne);
-  std::vector<cdouble> clo(ne), chi(ne);
-  std::vector<double> pj(ne);
-  for (std::size_t j = 0; j < ne; ++j) {
-    const long b = map_.bin[j];
-    ilo[j] = fft_index(b, n);
-    ihi[j] = fft_index(b + 1, n);
-    clo[j] = grid_.dt() * std::polar(1.0, static_cast<double>(b) * grid_.dw() * grid_.t0());
-    chi[j] = grid_.dt() * std::polar(1.0, static_cast<double>(b + 1) * grid_.dw() * grid_.t0());
-    pj[j] = units::momentum_au(energy_[j]);
-  }
+  // Per-energy constants (constructor): bin indices and weights.
+  const std::vector<std::size_t>&ilo = bin_lo_, &ihi = bin_hi_;
+  const std::vector<cdouble>&clo = bin_wlo_, &chi = bin_whi_;
   std::size_t total_nodes = 0;
   for (const MomentumBlock& b : plan_.blocks) total_nodes += b.nodes.size();
   const double i1_mid = plan_.i1_mid;
@@ -396,6 +365,22 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
   Eigen::MatrixXcd amp_keep;
   if (two_pass) amp_keep.resize(nd, static_cast<Eigen::Index>(ne));
   double mu = 0.0;
+
+  // Phase store (set_phase_store_limit): the forward pass of the two-pass projected cost keeps
+  // the first store_delays delays' phase factors, so the adjoint pass need not form them again
+  // (constant dipole: the factors are all its gates need).
+  enum class StoreUse { kNone, kFill, kReuse };
+  std::size_t phase_arrays = 0;  // sine/cosine pairs per delay
+  for (const MomentumBlock& b : plan_.blocks) phase_arrays += 1 + (b.nodes.size() + 1) / 2;
+  const std::size_t slot_doubles = 2 * phase_arrays * n;
+  std::size_t store_delays = 0;
+  std::unique_lock<std::mutex> store_lock(store_.busy, std::defer_lock);
+  if (two_pass && const_dipole && store_lock.try_lock()) {
+    store_delays = std::min(static_cast<std::size_t>(nd),
+                            store_limit_bytes_ / (slot_doubles * sizeof(double)));
+    if (store_.values.size() < store_delays * slot_doubles)
+      store_.values.resize(store_delays * slot_doubles);
+  }
 
   const int threads = threads_ > 0 ? threads_ : omp_get_max_threads();
   std::vector<Workspace> ws(static_cast<std::size_t>(std::max(threads, 1)));
@@ -443,13 +428,12 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     auto load_ir = [&](long i, double* umax, double* vmax) {
       const double tau = delay_[static_cast<std::size_t>(i)];
       double um = 0.0, vm = 0.0;
+      ir.sample(ts.data(), n, tau, W.A.data(), W.u.data(), W.v.data());  // A, I1, I2
       for (std::size_t s = 0; s < n; ++s) {
-        const VolkovIntegrals vi = ir.at(ts[s] + tau);
-        W.A[s] = vi.A;
-        W.u[s] = vi.I1 - i1_mid;
+        W.u[s] = W.u[s] - i1_mid;
         // Exact model: phase -p I1 - I2/2; the CMA variant uses the delay-adapted gate
         // -p0 I1 + I2/2 of retrieval/physics/gate.h.
-        W.v[s] = i2_sign * 0.5 * vi.I2;
+        W.v[s] = i2_sign * 0.5 * W.v[s];
         um = std::max(um, std::abs(W.u[s]));
         vm = std::max(vm, std::abs(W.v[s]));
       }
@@ -459,21 +443,43 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     };
 
     // Loads the IR of delay i, then for each node pair (m, m2 = nb - 1 - m; m2 == m for the
-    // middle node of an odd block) of each block leaves exp(-i phi_mid) in W.emr/W.emi and
-    // exp(-+i delta u) in W.cs/W.sn and calls visit(block, first slot of the block, m, m2).
-    auto for_each_node_pair = [&](long i, auto&& visit) {
-      double umax, vmax;
-      load_ir(i, &umax, &vmax);
+    // middle node of an odd block) of each block points W.ph at exp(-i phi_mid) and
+    // exp(-+i delta u) and calls visit(block, first slot of the block, m, m2). The factors are
+    // formed in the work arrays, or, for a delay that has a slot in the phase store, in that
+    // slot (kFill: the forward pass) or read back from it (kReuse: the adjoint pass, no IR load).
+    auto for_each_node_pair = [&](long i, StoreUse use, auto&& visit) {
+      double* slot = use != StoreUse::kNone && static_cast<std::size_t>(i) < store_delays
+                         ? store_.values.data() + static_cast<std::size_t>(i) * slot_doubles
+                         : nullptr;
+      const bool form = slot == nullptr || use == StoreUse::kFill;
+      double umax = 0.0, vmax = 0.0;
+      if (form) load_ir(i, &umax, &vmax);
+      // Next pair of arrays (cosines, sines): a store slot's, else the work arrays `re`, `im`.
+      auto arrays = [&](std::vector<double>& re, std::vector<double>& im, double** c, double** sn) {
+        *c = slot ? slot : re.data();
+        *sn = slot ? slot + n : im.data();
+        if (slot) slot += 2 * n;
+      };
       std::size_t q0 = 0;
       for (const MomentumBlock& b : plan_.blocks) {
         const std::size_t nb = b.nodes.size();
         const double mid = 0.5 * (b.nodes.front() + b.nodes.back());
-        sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax, W.emi.data(),
-                      W.emr.data(), n);
+        double *emr, *emi;
+        arrays(W.emr, W.emi, &emr, &emi);
+        if (form)
+          detail::sincos_affine(W.u.data(), W.v.data(), -mid, -1.0, std::abs(mid) * umax + vmax,
+                                emi, emr, n);
+        W.ph.emr = emr;
+        W.ph.emi = emi;
         for (std::size_t m = 0; m < (nb + 1) / 2; ++m) {
           const double delta = b.nodes[m] - mid;
-          sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, W.sn.data(),
-                        W.cs.data(), n);
+          double *cs, *sn;
+          arrays(W.cs, W.sn, &cs, &sn);
+          if (form)
+            detail::sincos_affine(W.u.data(), W.v.data(), -delta, 0.0, std::abs(delta) * umax, sn,
+                                  cs, n);
+          W.ph.cs = cs;
+          W.ph.sn = sn;
           visit(b, q0, m, nb - 1 - m);
         }
         q0 += nb;
@@ -483,12 +489,12 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     auto compute_gates = [&](long i, const Gates& G) {
       double* cre = const_dipole ? G.re : G.pre;  // exp(i phi) of each node
       double* cim = const_dipole ? G.im : G.pim;
-      for_each_node_pair(i,
+      for_each_node_pair(i, StoreUse::kNone,
                          [&](const MomentumBlock&, std::size_t q0, std::size_t m, std::size_t m2) {
                            double* r2 = m2 != m ? cre + (q0 + m2) * n : W.r1.data();
                            double* i2 = m2 != m ? cim + (q0 + m2) * n : W.i1.data();
-                           pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(),
-                                       cre + (q0 + m) * n, cim + (q0 + m) * n, r2, i2, n);
+                           pair_phases(W.ph.emr, W.ph.emi, W.ph.cs, W.ph.sn, cre + (q0 + m) * n,
+                                       cim + (q0 + m) * n, r2, i2, n);
                          });
       if (const_dipole) return;
       std::size_t q = 0;  // times d(p + A) of each node (W.A holds delay i)
@@ -517,11 +523,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       }
     };
     auto finish_row = [&](long i) {
-      const double tau = delay_[static_cast<std::size_t>(i)];
-      for (std::size_t j = 0; j < ne; ++j) {
-        const double theta = (energy_[j] + ip_) * tau - pj[j] * i1_mid;
-        W.row_a[j] = cdouble(0, -1) * std::polar(1.0, theta) * W.acc[j];
-      }
+      const cdouble* rot = &row_phase_[static_cast<std::size_t>(i) * ne];
+      for (std::size_t j = 0; j < ne; ++j) W.row_a[j] = rot[j] * W.acc[j];
     };
 
     // psi = eps * gate; FFT; bins and Lagrange sums, node order m, nb - 1 - m, ... per block.
@@ -545,16 +548,16 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     // The same for a constant dipole (no gate arrays: the adjoint forms them again): each pair's
     // two exit waves straight from exp(i phi_mid) and exp(-+i delta u), no gate arrays (the
     // same products in the same order, so the same numbers).
-    auto forward_direct = [&](long i) {
+    auto forward_direct = [&](long i, StoreUse use) {
       std::fill(W.acc.begin(), W.acc.end(), cdouble(0.0));
-      for_each_node_pair(
-          i, [&](const MomentumBlock& b, std::size_t, std::size_t m, std::size_t m2) {
-            pair_exit_waves(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(),
-                            ei.data(), reinterpret_cast<double*>(W.psi.data()),
-                            reinterpret_cast<double*>(W.psi2.data()), n);
-            transform_node(b, m, W.psi);
-            if (m2 != m) transform_node(b, m2, W.psi2);
-          });
+      for_each_node_pair(i, use,
+                         [&](const MomentumBlock& b, std::size_t, std::size_t m, std::size_t m2) {
+                           pair_exit_waves(W.ph.emr, W.ph.emi, W.ph.cs, W.ph.sn, er.data(),
+                                           ei.data(), reinterpret_cast<double*>(W.psi.data()),
+                                           reinterpret_cast<double*>(W.psi2.data()), n);
+                           transform_node(b, m, W.psi);
+                           if (m2 != m) transform_node(b, m2, W.psi2);
+                         });
       finish_row(i);
     };
 
@@ -563,7 +566,8 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     // psi_bar of node m of block b for the acc adjoints accbar: bins, then the inverse FFT.
     auto node_psibar = [&](const MomentumBlock& b, std::size_t m, const cdouble* accbar,
                            CVec& out) {
-      std::fill(W.rawbar.begin(), W.rawbar.end(), cdouble(0.0));
+      // W.rawbar is zero outside this block's bins (cleared again after the FFT, which
+      // leaves its input unchanged: out of place).
       for (std::size_t j = b.first; j < b.last; ++j) {
         const cdouble val =
             b.lagrange(static_cast<Eigen::Index>(j - b.first), static_cast<Eigen::Index>(m)) *
@@ -577,43 +581,48 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
         }
       }
       fft.freq_to_time(W.rawbar, out);
+      for (std::size_t j = b.first; j < b.last; ++j) {
+        W.rawbar[ilo[j]] = 0.0;
+        W.rawbar[ihi[j]] = 0.0;
+      }
     };
 
     // Adjoint of delay i. With gate arrays G (from compute_gates), or, when `direct` (constant
     // dipole), with each pair's gates formed on the fly from the phase factors (load_ir first).
-    auto adjoint = [&](long i, const Gates& G, bool direct) {
+    auto adjoint = [&](long i, const Gates& G, bool direct, StoreUse use) {
       const double tau = delay_[static_cast<std::size_t>(i)];
-      // a = -i e^{i theta} acc  ->  acc_bar = i e^{-i theta} a_bar.
+      // a = -i e^{i theta} acc  ->  acc_bar = i e^{-i theta} a_bar = conj(-i e^{i theta}) a_bar.
+      const cdouble* rot = &row_phase_[static_cast<std::size_t>(i) * ne];
       for (std::size_t j = 0; j < ne; ++j) {
-        const double theta = (energy_[j] + ip_) * tau - pj[j] * i1_mid;
-        const cdouble f = cdouble(0, 1) * std::polar(1.0, -theta);
+        const cdouble f = std::conj(rot[j]);
         for (std::size_t k = 0; k < Ku; ++k) W.row_bar[k * ne + j] *= f;
       }
       std::fill(W.gA.begin(), W.gA.end(), 0.0);
       std::fill(W.gI1.begin(), W.gI1.end(), 0.0);
       std::fill(W.gI2.begin(), W.gI2.end(), 0.0);
       if (direct) {
-        for_each_node_pair(i, [&](const MomentumBlock& b, std::size_t, std::size_t m,
-                                  std::size_t m2) {
-          if (m2 == m)  // the unpaired middle node: its gate into scratch
-            pair_phases(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), W.r1.data(),
-                        W.i1.data(), W.gre.data(), W.gim.data(), n);
-          for (std::size_t k = 0; k < Ku; ++k) {
-            const cdouble* accbar = &W.row_bar[k * ne];
-            node_psibar(b, m, accbar, W.psibar);
-            const double* pb = reinterpret_cast<const double*>(W.psibar.data());
-            if (m2 == m) {
-              node_adjoint(pb, er.data(), ei.data(), W.r1.data(), W.i1.data(), 2.0 * b.nodes[m],
-                           i2_sign, &W.ebr[k * n], &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n], n);
-            } else {
-              node_psibar(b, m2, accbar, W.psibar2);
-              pair_adjoint(W.emr.data(), W.emi.data(), W.cs.data(), W.sn.data(), er.data(),
-                           ei.data(), pb, reinterpret_cast<const double*>(W.psibar2.data()),
-                           2.0 * b.nodes[m], 2.0 * b.nodes[m2], i2_sign, &W.ebr[k * n],
-                           &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n], n);
-            }
-          }
-        });
+        for_each_node_pair(
+            i, use, [&](const MomentumBlock& b, std::size_t, std::size_t m, std::size_t m2) {
+              if (m2 == m)  // the unpaired middle node: its gate into scratch
+                pair_phases(W.ph.emr, W.ph.emi, W.ph.cs, W.ph.sn, W.r1.data(), W.i1.data(),
+                            W.gre.data(), W.gim.data(), n);
+              for (std::size_t k = 0; k < Ku; ++k) {
+                const cdouble* accbar = &W.row_bar[k * ne];
+                node_psibar(b, m, accbar, W.psibar);
+                const double* pb = reinterpret_cast<const double*>(W.psibar.data());
+                if (m2 == m) {
+                  node_adjoint(pb, er.data(), ei.data(), W.r1.data(), W.i1.data(), 2.0 * b.nodes[m],
+                               i2_sign, &W.ebr[k * n], &W.ebi[k * n], &W.gI1[k * n], &W.gI2[k * n],
+                               n);
+                } else {
+                  node_psibar(b, m2, accbar, W.psibar2);
+                  pair_adjoint(W.ph.emr, W.ph.emi, W.ph.cs, W.ph.sn, er.data(), ei.data(), pb,
+                               reinterpret_cast<const double*>(W.psibar2.data()), 2.0 * b.nodes[m],
+                               2.0 * b.nodes[m2], i2_sign, &W.ebr[k * n], &W.ebi[k * n],
+                               &W.gI1[k * n], &W.gI2[k * n], n);
+                }
+              }
+            });
       }
       std::size_t q = 0;
       for (const MomentumBlock& b : plan_.blocks) {
@@ -658,10 +667,15 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
           }
           const std::size_t c = static_cast<std::size_t>(x);
           const Hermite h = hermite_basis(x - static_cast<double>(c));
-          W.bA[kr + c] += h.h00 * a_ - h.h10 * dt * (b1 + 2.0 * A[c] * b2);
-          W.bA[kr + c + 1] += h.h01 * a_ - h.h11 * dt * (b1 + 2.0 * A[c + 1] * b2);
-          W.bdA[kr + c] += h.h10 * dt * a_;
-          W.bdA[kr + c + 1] += h.h11 * dt * a_;
+          if (const_dipole) {  // A_bar at s + tau is zero: only the I1, I2 terms
+            W.bA[kr + c] -= h.h10 * dt * (b1 + 2.0 * A[c] * b2);
+            W.bA[kr + c + 1] -= h.h11 * dt * (b1 + 2.0 * A[c + 1] * b2);
+          } else {
+            W.bA[kr + c] += h.h00 * a_ - h.h10 * dt * (b1 + 2.0 * A[c] * b2);
+            W.bA[kr + c + 1] += h.h01 * a_ - h.h11 * dt * (b1 + 2.0 * A[c + 1] * b2);
+            W.bdA[kr + c] += h.h10 * dt * a_;
+            W.bdA[kr + c + 1] += h.h11 * dt * a_;
+          }
           W.bI1[kr + c] += h.h00 * b1;
           W.bI1[kr + c + 1] += h.h01 * b1;
           W.bI2[kr + c] += h.h00 * b2;
@@ -670,21 +684,10 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
       }
     };
 
-#pragma omp for schedule(static)
-    for (long i = 0; i < nd; ++i) {
-      if (const_dipole) {
-        forward_direct(i);
-      } else {
-        compute_gates(i, gates);
-        forward_amplitudes(i, gates);
-      }
+    // The cost terms (and for scaled_cost their a_bar rows, for vjp the given a_bar) of delay
+    // i from its amplitudes in W.row_a, added to this thread's sums.
+    auto cost_row = [&](long i) {
       const auto ii = static_cast<Eigen::Index>(i);
-      if (amp_out)
-        for (std::size_t j = 0; j < ne; ++j)
-          (*amp_out)(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
-      if (two_pass)
-        for (std::size_t j = 0; j < ne; ++j)
-          amp_keep(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
       if (cost_mode && blurred) {
         // m = K |a|^2; the adjoints of c2, c1 w.r.t. m go back through K^T onto |a|^2.
         for (std::size_t j = 0; j < ne; ++j) W.mod[j] = std::norm(W.row_a[j]);
@@ -722,11 +725,42 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
         for (std::size_t j = 0; j < ne; ++j)
           W.row_bar[j] = (*a_bar)(ii, static_cast<Eigen::Index>(j));
       }
-      if (K == 0 || two_pass) continue;
-      adjoint(i, gates, const_dipole);
+    };
+
+    // Two-pass projected cost: the forward pass runs over the delays in descending order, so
+    // that the adjoint pass (ascending) starts on the phase factors stored last, still in the
+    // cache; its cost sums are taken afterwards in ascending order (the order of one pass, so
+    // the same numbers).
+#pragma omp for schedule(static)
+    for (long r = 0; r < nd; ++r) {
+      const long i = two_pass ? nd - 1 - r : r;
+      if (const_dipole) {
+        forward_direct(i, two_pass ? StoreUse::kFill : StoreUse::kNone);
+      } else {
+        compute_gates(i, gates);
+        forward_amplitudes(i, gates);
+      }
+      const auto ii = static_cast<Eigen::Index>(i);
+      if (amp_out)
+        for (std::size_t j = 0; j < ne; ++j)
+          (*amp_out)(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
+      if (two_pass) {
+        for (std::size_t j = 0; j < ne; ++j)
+          amp_keep(ii, static_cast<Eigen::Index>(j)) = W.row_a[j];
+        continue;
+      }
+      cost_row(i);
+      if (K == 0) continue;
+      adjoint(i, gates, const_dipole, StoreUse::kNone);
     }
 
     if (two_pass) {
+#pragma omp for schedule(static)
+      for (long i = 0; i < nd; ++i) {
+        for (std::size_t j = 0; j < ne; ++j)
+          W.row_a[j] = amp_keep(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j));
+        cost_row(i);
+      }
       // mu* from the totals, reduced in thread order (deterministic for a thread count).
 #pragma omp single
       {
@@ -762,7 +796,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
             W.row_bar[j] = (mu * mu * 2.0 * wij * std::norm(a) - mu * 2.0 * wij * (*M)(ii, jj)) * a;
           }
         }
-        adjoint(i, gates, const_dipole);
+        adjoint(i, gates, const_dipole, StoreUse::kReuse);
       }
     }
   }

@@ -45,6 +45,8 @@
 // (allocated once per call, none inside the per-delay loop) and accumulators, reduced in a
 // fixed order, so results are deterministic for a given thread count.
 
+#include <cstddef>
+#include <mutex>
 #include <vector>
 
 #include <Eigen/Core>
@@ -110,6 +112,14 @@ class ForwardAdjoint {
   /// are unaffected (amplitudes are coherent; the resolution acts on counts).
   void set_energy_resolution(double fwhm_au);
   double energy_resolution_au() const { return resolution_fwhm_; }
+
+  /// Memory (bytes) that projected_cost may keep between its forward and adjoint pass for
+  /// the gate phase factors of a constant dipole (one sine and cosine array per node pair and
+  /// block per delay), so that the adjoint pass reads them instead of evaluating them again.
+  /// Delays beyond the limit are recomputed; 0 = recompute all (same numbers either way).
+  /// The buffer is kept between calls (no allocation per evaluation).
+  void set_phase_store_limit(std::size_t bytes) { store_limit_bytes_ = bytes; }
+  std::size_t phase_store_limit() const { return store_limit_bytes_; }
   /// Applies the resolution kernel to every row of counts (delays x energies), in place.
   void blur_counts(Eigen::MatrixXd& counts) const;
   /// The transpose K^T on every row, in place (adjoints of blurred counts -> of |a|^2).
@@ -133,11 +143,12 @@ class ForwardAdjoint {
   /// The same cost with the scale eliminated inside: the caller's further terms quadratic in
   /// mu enter through extra_c2 and extra_c1 (added to c2 and c1 before mu* = -c1 / (2 c2)), and
   /// the gradient comes back combined, eps_bar = mu*^2 eps_bar2 + mu* eps_bar1 (likewise A_bar),
-  /// for the data part. Two passes over the delays: the forward pass keeps the amplitudes, the
-  /// adjoint pass (after mu*) recomputes each delay's gates (cheaper than keeping them in
-  /// memory: measured in docs/performance.md) and does one adjoint FFT per node and delay with
-  /// the combined a_bar instead of scaled_cost's two. Same numbers as scaled_cost combined by
-  /// the caller, to rounding.
+  /// for the data part. Two passes over the delays: the forward pass (descending delays) keeps
+  /// the amplitudes and, for a constant dipole, the gate's phase factors in the phase store
+  /// (set_phase_store_limit); the adjoint pass (after mu*, ascending) reads them (or, beyond the
+  /// store and for other dipoles, forms each delay's gates again) and does one adjoint FFT per
+  /// node and delay with the combined a_bar instead of scaled_cost's two
+  /// (docs/performance.md). Same numbers as scaled_cost combined by the caller, to rounding.
   void projected_cost(const CVec& eps, const IrField& ir, const Eigen::MatrixXd& measured,
                       const Eigen::MatrixXd& weight, double extra_c2, double extra_c1,
                       bool with_gradient, ProjectedCostParts* out,
@@ -160,6 +171,25 @@ class ForwardAdjoint {
   int threads_;
   EnergyBinMap map_;
   std::vector<double> shift_phase_t_;  // carrier-shift phase per time sample (0 when exact)
+  // Per energy (fixed axes): FFT bins below/above and their weights dt exp(i w_b t_0), momentum.
+  std::vector<std::size_t> bin_lo_, bin_hi_;
+  std::vector<cdouble> bin_wlo_, bin_whi_;
+  std::vector<double> momentum_;
+  // Per delay and energy (fixed by the axes and the plan's I1_mid): -i exp(i theta_ij),
+  // theta_ij = (W_j + Ip) tau_i - p_j I1_mid; delays x energies, row-major.
+  std::vector<cdouble> row_phase_;
+  void set_row_phases();
+  // Phase factors kept between the two passes of projected_cost (set_phase_store_limit). A
+  // call that finds the store busy (another thread inside the same object) recomputes.
+  struct PhaseStore {
+    PhaseStore() = default;
+    PhaseStore(const PhaseStore&) {}
+    PhaseStore& operator=(const PhaseStore&) { return *this; }
+    std::mutex busy;
+    std::vector<double> values;
+  };
+  mutable PhaseStore store_;
+  std::size_t store_limit_bytes_ = std::size_t{64} << 20;
   MomentumBlockPlan plan_;
   double max_block_phase_ = 2.0;
   bool central_ = false;

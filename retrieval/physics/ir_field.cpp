@@ -48,20 +48,41 @@ inline double hermite(double s, double y0, double y1, double m0, double m1) {
   return (2 * s3 - 3 * s2 + 1) * y0 + (s3 - 2 * s2 + s) * m0 + (-2 * s3 + 3 * s2) * y1 +
          (s3 - s2) * m1;
 }
+
+// IrField::at on the stored samples (inline, so that IrField::sample's loop has no call).
+struct Samples {
+  double t0, dt;
+  const std::vector<double>&A, &dA, &I1, &I2;
+};
+inline VolkovIntegrals interpolate(const Samples& f, double t) {
+  const double x = (t - f.t0) / f.dt;
+  const std::size_t n = f.A.size();
+  if (x <= 0) return {0.0, f.I1.front(), f.I2.front() + 0.0};
+  if (x >= static_cast<double>(n - 1)) return {0.0, 0.0, 0.0};
+  const std::size_t i = static_cast<std::size_t>(x);
+  const double s = x - static_cast<double>(i), dt = f.dt;
+  const std::vector<double>& A = f.A;
+  VolkovIntegrals v;
+  v.A = hermite(s, A[i], A[i + 1], f.dA[i] * dt, f.dA[i + 1] * dt);
+  v.I1 = hermite(s, f.I1[i], f.I1[i + 1], -A[i] * dt, -A[i + 1] * dt);
+  v.I2 = hermite(s, f.I2[i], f.I2[i + 1], -A[i] * A[i] * dt, -A[i + 1] * A[i + 1] * dt);
+  return v;
+}
 }  // namespace
 
 VolkovIntegrals IrField::at(double t) const {
-  const double x = (t - t0_) / dt_;
-  const std::size_t n = A_.size();
-  if (x <= 0) return {0.0, I1_.front(), I2_.front() + 0.0};
-  if (x >= static_cast<double>(n - 1)) return {0.0, 0.0, 0.0};
-  const std::size_t i = static_cast<std::size_t>(x);
-  const double s = x - static_cast<double>(i);
-  VolkovIntegrals v;
-  v.A = hermite(s, A_[i], A_[i + 1], dA_[i] * dt_, dA_[i + 1] * dt_);
-  v.I1 = hermite(s, I1_[i], I1_[i + 1], -A_[i] * dt_, -A_[i + 1] * dt_);
-  v.I2 = hermite(s, I2_[i], I2_[i + 1], -A_[i] * A_[i] * dt_, -A_[i + 1] * A_[i + 1] * dt_);
-  return v;
+  return interpolate({t0_, dt_, A_, dA_, I1_, I2_}, t);
+}
+
+void IrField::sample(const double* t, std::size_t n, double shift, double* A, double* I1,
+                     double* I2) const {
+  const Samples f{t0_, dt_, A_, dA_, I1_, I2_};
+  for (std::size_t k = 0; k < n; ++k) {
+    const VolkovIntegrals v = interpolate(f, t[k] + shift);
+    A[k] = v.A;
+    I1[k] = v.I1;
+    I2[k] = v.I2;
+  }
 }
 
 double IrField::peak_vector_potential() const {

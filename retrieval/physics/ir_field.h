@@ -38,6 +38,10 @@ class IrField {
   std::vector<double> electric_field() const;
   /// A, I1, I2 at an arbitrary time t (a.u.).
   VolkovIntegrals at(double t_au) const;
+  /// at(t_au[k] + shift_au) for k < n into A, I1, I2 (the same numbers, one call for a whole
+  /// grid: what the forward model evaluates per delay).
+  void sample(const double* t_au, std::size_t n, double shift_au, double* A, double* I1,
+              double* I2) const;
   /// A(t) at arbitrary t (cubic Hermite).
   double vector_potential_at(double t_au) const { return at(t_au).A; }
   /// max |A(t)| over the samples (a.u.).
