@@ -517,9 +517,16 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     auto with_floor = [&](double sys, const std::optional<double>& value) {
       return value ? std::max(sys, opt.method_sigma_relative * std::abs(*value)) : sys;
     };
+    // A window cut inside the reference's streaked band leaves part of the line unmeasured.
+    const double cut_sigma = res.xuv->fwhm_as
+                                 ? opt.window_cut_sigma_per_share *
+                                       out.preprocess.window_cut_share * std::abs(*res.xuv->fwhm_as)
+                                 : 0.0;
+    if (cut_sigma > 0) res.extra.push_back({"xuv.fwhm_as_sigma_window_cut", cut_sigma});
     corrected("fwhm_as", res.xuv->fwhm_as, res.xuv->fwhm_as_sigma, bf,
-              with_floor(systematic([](const PulseMetrics& c) { return c.xuv.fwhm_as; }),
-                         res.xuv->fwhm_as));
+              std::hypot(with_floor(systematic([](const PulseMetrics& c) { return c.xuv.fwhm_as; }),
+                                    res.xuv->fwhm_as),
+                         cut_sigma));
     corrected("gdd_as2", res.xuv->gdd_as2, res.xuv->gdd_as2_sigma, bg,
               systematic([](const PulseMetrics& c) { return c.xuv.gdd_as2; }));
     corrected(

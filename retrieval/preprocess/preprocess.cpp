@@ -473,6 +473,16 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
   const EnergySupport band =
       any_masked ? energy_support(trace, opt, mirrored(sig), mirrored(counts), W, &s)
                  : energy_support(trace, opt, sig, counts, W, &s);
+  // Depth of a cut inside the streaked band: the share of the reference line's delay-summed
+  // counts that its mirror image puts beyond the cut (in the model-only margin).
+  if (any_masked) {
+    const Eigen::MatrixXd image = mirrored(sig).cwiseMax(0.0);
+    double beyond = 0, inside = 0;
+    for (Eigen::Index j = 0; j < ne; ++j)
+      (masked[static_cast<std::size_t>(j)] ? beyond : inside) +=
+          masked[static_cast<std::size_t>(j)] ? image.col(j).sum() : sig.col(j).cwiseMax(0.0).sum();
+    s.window_cut_share = beyond + inside > 0 ? beyond / (beyond + inside) : 0.0;
+  }
   // Lines expected inside the signal's support but not seen: if present, their electrons are
   // fitted as XUV spectrum (quality check unseen_line_strength).
   if (band.found && trace.meta.kind != TraceKind::kRabbitt)
@@ -785,6 +795,7 @@ void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* ou
   if (!s.window_source.empty()) {
     P("window_lo_eV", s.window_lo_eV);
     P("window_hi_eV", s.window_hi_eV);
+    P("window_cut_share", s.window_cut_share);
   }
   P("energy_resampled", s.energy_resampled);
   P("energy_step_eV", s.energy_step_eV);

@@ -139,7 +139,12 @@ struct PreprocessSummary {
   double saturation_level_counts = 0.0;  ///< counts at which saturation was found (0 = none)
   std::string saturation_source;         ///< "sidecar", "plateau" or "" (none)
   std::string window_source;             ///< "option", "sidecar", "reference line", "" (whole axis)
-  double photon_energy_eV = 0.0;         ///< from the line pattern (0 = no line found)
+  /// Where the reference-line window is cut at a neighbour inside the reference's streaked band:
+  /// the share of the reference's delay-summed counts beyond the cut, estimated by its mirror
+  /// image about the line centre (0 = no such cut). Sets the window-cut part of the FWHM's
+  /// systematic sigma (RetrieveOptions::window_cut_sigma_per_share).
+  double window_cut_share = 0.0;
+  double photon_energy_eV = 0.0;  ///< from the line pattern (0 = no line found)
   std::vector<std::string> warnings;
 };
 
