@@ -470,17 +470,19 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
     }
     return out;
   };
-  const EnergySupport band =
-      any_masked ? energy_support(trace, opt, mirrored(sig), mirrored(counts), W, &s)
-                 : energy_support(trace, opt, sig, counts, W, &s);
+  const Eigen::MatrixXd image = any_masked ? mirrored(sig) : Eigen::MatrixXd();
+  const EnergySupport band = any_masked ? energy_support(trace, opt, image, mirrored(counts), W, &s)
+                                        : energy_support(trace, opt, sig, counts, W, &s);
   // Depth of a cut inside the streaked band: the share of the reference line's delay-summed
   // counts that its mirror image puts beyond the cut (in the model-only margin).
   if (any_masked) {
-    const Eigen::MatrixXd image = mirrored(sig).cwiseMax(0.0);
     double beyond = 0, inside = 0;
-    for (Eigen::Index j = 0; j < ne; ++j)
-      (masked[static_cast<std::size_t>(j)] ? beyond : inside) +=
-          masked[static_cast<std::size_t>(j)] ? image.col(j).sum() : sig.col(j).cwiseMax(0.0).sum();
+    for (Eigen::Index j = 0; j < ne; ++j) {
+      if (masked[static_cast<std::size_t>(j)])
+        beyond += image.col(j).cwiseMax(0.0).sum();
+      else
+        inside += sig.col(j).cwiseMax(0.0).sum();
+    }
     s.window_cut_share = beyond + inside > 0 ? beyond / (beyond + inside) : 0.0;
   }
   // Lines expected inside the signal's support but not seen: if present, their electrons are
