@@ -27,7 +27,19 @@ std::string BackgroundOptions::validate() const {
   return s.str();
 }
 
+namespace {
+// Index of the below-onset bin nearest to W (the table holds bin centres).
+std::size_t nearest_below_onset(const std::vector<double>& Ws, double W) {
+  const auto it = std::lower_bound(Ws.begin(), Ws.end(), W);
+  std::size_t k = static_cast<std::size_t>(it - Ws.begin());
+  if (k == Ws.size() || (k > 0 && W - Ws[k - 1] < Ws[k] - W)) --k;
+  return k;
+}
+}  // namespace
+
 double BackgroundModel::at(double W) const {
+  if (onset_eV > 0 && W < onset_eV && !below_onset_W_eV.empty())
+    return below_onset_counts[nearest_below_onset(below_onset_W_eV, W)];
   double b = constant_counts;
   if (has_tail) b += tail_counts_at_zero * std::exp(-W / tail_decay_eV);
   if (has_tof && W > tof_offset_eV)
@@ -36,6 +48,9 @@ double BackgroundModel::at(double W) const {
 }
 
 double BackgroundModel::sigma_at(double W) const {
+  if (onset_eV > 0 && W < onset_eV && !below_onset_W_eV.empty())  // Poisson, mean over rows
+    return std::sqrt(std::max(below_onset_counts[nearest_below_onset(below_onset_W_eV, W)], 0.0) /
+                     static_cast<double>(std::max<std::size_t>(rows, 1)));
   if (covariance.size() == 0) return 0.0;
   Eigen::VectorXd g(covariance.rows());
   int k = 0;
@@ -168,8 +183,41 @@ BackgroundModel fit_background(const Eigen::MatrixXd& counts, const std::vector<
     m.note = s.str();
     return m;
   }
-  const auto n = static_cast<Eigen::Index>(idx.size());
   const double rows = static_cast<double>(counts.rows());
+  // Onset of the tail (header): the leading background bins, contiguous from the axis start.
+  {
+    std::size_t lead = 0;
+    while (lead < idx.size() && idx[lead] == static_cast<Eigen::Index>(lead)) ++lead;
+    const auto g = static_cast<std::size_t>(o.group_bins);
+    if (o.fit_tail && lead >= 2 * g) {
+      auto group = [&](std::size_t q) {
+        double t = 0;
+        for (std::size_t j = q; j < q + g; ++j) t += counts.col(static_cast<Eigen::Index>(j)).sum();
+        return t;
+      };
+      std::size_t qmax = 0;
+      double ymax = group(0);
+      for (std::size_t q = 1; q + g <= lead; ++q)
+        if (const double y = group(q); y > ymax) {
+          ymax = y;
+          qmax = q;
+        }
+      // A rise and then a decay inside the run: a streaked wing rising towards the signal
+      // envelope (no decay after its maximum) is not an onset.
+      const double y0 = group(0), yend = group(lead - g);
+      auto below = [&](double y) { return y < 0.5 * ymax && ymax - y > 5.0 * std::sqrt(ymax + y); };
+      if (qmax > 0 && below(y0) && below(yend) && idx.size() - qmax >= 4) {
+        m.onset_eV = W[qmax];
+        for (std::size_t j = 0; j < qmax; ++j) {
+          m.below_onset_W_eV.push_back(W[j]);
+          m.below_onset_counts.push_back(counts.col(static_cast<Eigen::Index>(j)).sum() / rows);
+        }
+        idx.erase(idx.begin(), idx.begin() + static_cast<std::ptrdiff_t>(qmax));
+        m.background_bins = idx.size();
+      }
+    }
+  }
+  const auto n = static_cast<Eigen::Index>(idx.size());
   Eigen::VectorXd S(n), Wb(n);
   for (Eigen::Index q = 0; q < n; ++q) {
     S(q) = counts.col(idx[static_cast<std::size_t>(q)]).sum();
@@ -267,6 +315,9 @@ BackgroundModel fit_background(const Eigen::MatrixXd& counts, const std::vector<
   m.fit_deviance = best.deviance;
   m.model = std::string("constant") + (use_tail ? " + exponential tail" : "") +
             (use_tof ? " + time-of-flight" : "");
+  if (m.onset_eV > 0)
+    note << "below the tail's onset at " << m.onset_eV
+         << " eV each bin's own delay average (the fit starts there); ";
   m.note = note.str();
   if (!m.note.empty()) m.note.resize(m.note.size() - 2);
   return m;

@@ -34,6 +34,16 @@
 // it adds (Wilks' theorem; 9.21 for 2, 6.63 for 1); otherwise the simpler model stands.
 // Sigmas are from the inverse Fisher information (the decay's from the profile curvature).
 // Subtraction is signed: E[N - B] = 0 in background bins (clipping would bias them up).
+//
+// Onset. Spectrometers pass few electrons of the lowest energies, so a measured low-energy tail
+// rises to a maximum before it decays; a exp(-W/w) fitted through the rising bins is pulled
+// flat and the constant negative, which leaves a false line at high energy. When the leading
+// background bins (from the axis start, below the signal) rise to a maximum of their
+// `group_bins` sums that is at least twice the first sum and 5 Poisson sigmas above it, and
+// decay again to half of it by the run's end (a streaked wing rising towards the signal does
+// not; our choice), the bins below that maximum keep their own delay-averaged counts as the
+// background (they are delay-independent, so this is unbiased) and the fit uses the bins from the
+// maximum on. A tail that decays from the axis start is unaffected.
 
 #include <string>
 #include <vector>
@@ -79,7 +89,11 @@ struct BackgroundModel {
   double tof_reference_eV = 0.0;                    ///< W_ref
   double tof_offset_eV = 0.0;                       ///< W_off (energy offset of the calibration)
   std::size_t background_bins = 0;                  ///< energy bins the fit used
-  std::size_t rows = 0;                             ///< delay rows summed
+  /// Onset of the tail (eV; 0 = none): below it B(W) is each bin's own delay average,
+  /// `below_onset_counts` at `below_onset_W_eV` (ascending); the fit starts here.
+  double onset_eV = 0.0;
+  std::vector<double> below_onset_W_eV, below_onset_counts;
+  std::size_t rows = 0;       ///< delay rows summed
   double fit_deviance = 0.0;  ///< Poisson deviance of the fit over the background bins
   std::string note;           ///< why no fit, or which terms were rejected
   /// B(W) in counts per bin per row at kinetic energy W (eV).
