@@ -10,18 +10,15 @@
 
 namespace sw {
 
-using cma_detail::num;
-
 CVec CmaProblem::initial_xuv(const EngineOptions& o) const {
   const TimeGrid& g = problem_.grid;
   if (o.initial_xuv) {
+    // A start made on another grid (a bootstrap replica's support can change the grid) is
+    // carried over by its spectrum (XuvField::resampled).
     const TimeGrid& h = o.initial_xuv->grid();
     if (h.size() != n_ || std::abs(h.dt() - g.dt()) > 1e-9 * g.dt() ||
         std::abs(h.t0() - g.t0()) > 1e-6 * g.dt())
-      throw usage_error(engine_ + ": EngineOptions.initial_xuv is on a grid of " +
-                        std::to_string(h.size()) + " points, step " + num(h.dt()) +
-                        " a.u., start " + num(h.t0()) + " a.u.: expected the problem's grid (" +
-                        std::to_string(n_) + ", " + num(g.dt()) + ", " + num(g.t0()) + ")");
+      return o.initial_xuv->resampled(g).with_carrier(carrier_).envelope();
     return o.initial_xuv->with_carrier(carrier_).envelope();
   }
   // sqrt(spectrum) with flat phase, peak at s = 0: raw_k = |E~(w_b)| exp(-i w_b t0) / dt.

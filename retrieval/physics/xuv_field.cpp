@@ -1,6 +1,9 @@
 #include "retrieval/physics/xuv_field.h"
 
+#include <cmath>
 #include <stdexcept>
+
+#include "retrieval/core/units.h"
 
 namespace sw {
 
@@ -58,6 +61,22 @@ double XuvField::mean_photon_energy_au() const {
     den += w;
   }
   return den > 0 ? num / den : carrier_;
+}
+
+XuvField XuvField::resampled(const TimeGrid& g) const {
+  // E~(w) = dt sum_n env_n exp(i w t_n) at the new grid's centred frequencies, zero beyond the
+  // old grid's Nyquist frequency (the sum there is an alias).
+  CVec spec(g.size(), cdouble(0.0, 0.0));
+  const double nyquist = units::kPi / grid_.dt();
+  for (std::size_t j = 0; j < g.size(); ++j) {
+    const double w = g.omega_centered(j);
+    if (std::abs(w) >= nyquist) continue;
+    cdouble acc = 0.0;
+    for (std::size_t n = 0; n < grid_.size(); ++n)
+      acc += envelope_[n] * std::polar(1.0, w * grid_.time(n));
+    spec[j] = acc * grid_.dt();
+  }
+  return from_spectrum(g, carrier_, spec);
 }
 
 }  // namespace sw

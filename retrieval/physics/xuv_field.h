@@ -34,6 +34,11 @@ class XuvField {
   XuvField with_carrier(double new_carrier_au) const;
   /// Intensity-weighted centre photon energy (a.u.).
   double mean_photon_energy_au() const;
+  /// The same field on another time grid (same carrier): its spectrum evaluated by direct
+  /// summation at the new grid's frequencies (trigonometric interpolation of the envelope; zero
+  /// outside the old grid's span), O(old size x new size). Used where an estimate made on one
+  /// grid starts an engine on another (e.g. a bootstrap replica whose support changed).
+  XuvField resampled(const TimeGrid& grid) const;
 
  private:
   TimeGrid grid_;
