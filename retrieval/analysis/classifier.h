@@ -57,11 +57,41 @@
 
 #include <string>
 
+#include "retrieval/core/option_spec.h"
 #include "retrieval/core/result.h"
 #include "retrieval/core/trace.h"
 #include "retrieval/engines/engine.h"
 
 namespace sw {
+
+/// The two satellite-ratio thresholds of the verdict (DESIGN.md defaults, common practice, no
+/// published standard), described once for every analysis: the retrieve flags, batch config
+/// keys and batch option strings as RetrieveOptions uses them.
+inline constexpr OptionSpec kIsolatedMaxSpec{
+    .name = "isolated_max_satellite_ratio",
+    .help = "verdict: largest satellite/main intensity ratio for 'isolated' (common practice)",
+    .min = 0,
+    .min_open = true,
+    .max = 1,
+    .flag = "--isolated-max",
+    .config_key = "isolated_max"};
+inline constexpr OptionSpec kSatellitesMaxSpec{
+    .name = "satellites_max_satellite_ratio",
+    .help = "verdict: upper limit of the satellite/main ratio for 'isolated_with_satellites'",
+    .min = 0,
+    .min_open = true,
+    .max = 1,
+    .flag = "--satellites-max",
+    .config_key = "satellites_max"};
+
+/// A threshold as an analysis other than retrieve takes it (rabbitt, classify): on its command
+/// line only, with no config key and outside the batch option strings (batch sets the
+/// thresholds through RetrieveOptions).
+constexpr OptionSpec command_line_only(OptionSpec spec) {
+  spec.config_key = {};
+  spec.batch = false;
+  return spec;
+}
 
 struct ClassifierOptions {
   /// IR wavelength, nm; 0 = trace.meta.ir_wavelength_nm (must then be > 0).
