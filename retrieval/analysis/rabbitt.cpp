@@ -8,6 +8,7 @@
 
 #include <Eigen/Dense>
 
+#include "retrieval/analysis/analysis_internal.h"
 #include "retrieval/analysis/rabbitt_internal.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
@@ -109,12 +110,9 @@ RabbittAnalysis analyze_rabbitt(const Trace& trace, const RabbittOptions& opt) {
                       ": field 'gas' is missing; the RABBITT analysis needs the target "
                       "gas (its ionization energy places the harmonics).");
   const Gas& gas = find_gas(gas_key);
-  const double lambda =
-      opt.ir_wavelength_nm > 0 ? opt.ir_wavelength_nm : trace.meta.ir_wavelength_nm;
-  if (!(lambda > 0.0))
-    throw input_error(where +
-                      ": field 'ir_wavelength_nm' is missing or not > 0; the RABBITT "
-                      "analysis needs the IR wavelength (it sets the 2 omega frequency).");
+  const double lambda = analysis_detail::ir_wavelength_nm_or_throw(
+      opt.ir_wavelength_nm, trace, where,
+      "RABBITT analysis needs the IR wavelength (it sets the 2 omega frequency).");
   const double w = units::wavelength_nm_to_omega_au(lambda);
   const double ip = units::eV_to_au(gas.ionization_energy_eV);
   const double T = units::period_au(w);
