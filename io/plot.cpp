@@ -34,18 +34,12 @@ constexpr EnumNames<ColorMap, 5> kColorMapNames{{{{ColorMap::kViridis, "viridis"
                                                   {ColorMap::kDiverging, "diverging"},
                                                   {ColorMap::kGray, "gray"}}}};
 
-const char* to_string(ColorMap v) { return kColorMapNames.name(v); }
-
-bool parse_color_map(const std::string& s, ColorMap* out) { return kColorMapNames.parse(s, out); }
+SW_ENUM_NAME_FUNCTIONS(ColorMap, parse_color_map, kColorMapNames)
 
 constexpr EnumNames<FigureFormat, 2> kFigureFormatNames{
     {{{FigureFormat::kPng, "png"}, {FigureFormat::kSvg, "svg"}}}};
 
-const char* to_string(FigureFormat v) { return kFigureFormatNames.name(v); }
-
-bool parse_figure_format(const std::string& s, FigureFormat* out) {
-  return kFigureFormatNames.parse(s, out);
-}
+SW_ENUM_NAME_FUNCTIONS(FigureFormat, parse_figure_format, kFigureFormatNames)
 
 const char* figure_extension(FigureFormat f) { return f == FigureFormat::kSvg ? ".svg" : ".png"; }
 
