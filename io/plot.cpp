@@ -1,12 +1,14 @@
 #include "io/plot.h"
 
 #include "retrieval/core/enum_names.h"
+#include "retrieval/core/error.h"
 
 #include <algorithm>
 #include <array>
 #include <cctype>
 #include <cmath>
 #include <cstdio>
+#include <filesystem>
 #include <mutex>
 
 #include <opencv2/core.hpp>
@@ -53,6 +55,17 @@ FigureFormat figure_format_of_path(const std::string& path) {
 std::string with_figure_extension(const std::string& name, FigureFormat f) {
   if (name.size() < 4 || name.compare(name.size() - 4, 4, ".png") != 0) return name;
   return name.substr(0, name.size() - 4) + figure_extension(f);
+}
+
+std::string OutputPaths::operator()(const std::string& name) const {
+  return (std::filesystem::path(dir) / with_figure_extension(name, format)).string();
+}
+
+OutputPaths make_output_folder(const std::string& dir, FigureFormat format) {
+  std::error_code ec;
+  std::filesystem::create_directories(dir, ec);
+  if (ec) throw input_error("cannot create output folder '" + dir + "': " + ec.message());
+  return {dir, format};
 }
 
 namespace {
