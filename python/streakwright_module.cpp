@@ -706,13 +706,19 @@ PYBIND11_MODULE(streakwright, m) {
         "Synthetic scan with known truth: a preset name, a config file path or a config dict. "
         "Returns (Scan, truth dict).");
 
-  const RetrieveOptions rd;
+  // An analysis' docstring: its summary, then its keyword options from the description.
+  const auto analysis_doc = [](const char* summary, const auto& defaults) {
+    return std::string(summary) +
+           "\n\nKeyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
+           described_kwargs_doc(defaults);
+  };
   // Keywords: the flags of the CLI's `retrieve` from RetrieveOptions::describe, plus
   // energy_window, lines and progress.
   static const std::string retrieve_doc =
-      "Streaking retrieval (the CLI's `retrieve`); progress(stage, message) is called during the "
-      "work.\n\nKeyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
-      described_kwargs_doc(rd) +
+      analysis_doc(
+          "Streaking retrieval (the CLI's `retrieve`); progress(stage, message) is called "
+          "during the work.",
+          RetrieveOptions{}) +
       "  energy_window = None: analyse only photoelectron energies (LO, HI) or \"LO:HI\" (eV)\n"
       "  lines = None: lines whose delay relative to the reference line is measured: "
       "\"2s,3s\", [\"2s\", \"Kr 4p\"] or \"none\"; None = every line found\n";
@@ -722,19 +728,16 @@ PYBIND11_MODULE(streakwright, m) {
 
   // Keywords: the flags of the CLI's `rabbitt` and `classify` from their descriptions, plus the
   // overrides gas and ir_wavelength, energy_window, (rabbitt) xuv_only and progress.
-  static const std::string rabbitt_doc =
-      "RABBITT analysis (the CLI's `rabbitt`); xuv_only: a Scan of the field-free spectrum.\n\n"
-      "Keyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
-      described_kwargs_doc(RabbittAnalysisOptions{});
+  static const std::string rabbitt_doc = analysis_doc(
+      "RABBITT analysis (the CLI's `rabbitt`); xuv_only: a Scan of the field-free spectrum.",
+      RabbittAnalysisOptions{});
   m.def("rabbitt", &py_rabbitt, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),
         py::arg("ir_wavelength") = py::none(), py::arg("xuv_only") = py::none(),
         py::arg("energy_window") = py::none(), py::arg("progress") = py::none(),
         rabbitt_doc.c_str());
 
-  static const std::string classify_doc =
-      "Isolated / satellites / train verdict (the CLI's `classify`).\n\n"
-      "Keyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
-      described_kwargs_doc(ClassifyAnalysisOptions{});
+  static const std::string classify_doc = analysis_doc(
+      "Isolated / satellites / train verdict (the CLI's `classify`).", ClassifyAnalysisOptions{});
   m.def("classify", &py_classify, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),
         py::arg("ir_wavelength") = py::none(), py::arg("energy_window") = py::none(),
         py::arg("progress") = py::none(), classify_doc.c_str());
