@@ -24,11 +24,7 @@ constexpr EnumNames<AnalysisKind, 4> kAnalysisKindNames{{{{AnalysisKind::kAuto, 
                                                           {AnalysisKind::kRabbitt, "rabbitt"},
                                                           {AnalysisKind::kClassify, "classify"}}}};
 
-const char* to_string(AnalysisKind v) { return kAnalysisKindNames.name(v); }
-
-bool parse_analysis_kind(const std::string& s, AnalysisKind* out) {
-  return kAnalysisKindNames.parse(s, out);
-}
+SW_ENUM_NAME_FUNCTIONS(AnalysisKind, parse_analysis_kind, kAnalysisKindNames)
 
 TraceReadOverrides read_overrides(const ScanOverrides& o) {
   TraceReadOverrides r;

@@ -54,26 +54,6 @@ extern "C" void on_batch_signal(int sig) {
   }
 }
 
-class SignalScope {
- public:
-  SignalScope() {
-    g_interrupts = 0;
-    struct sigaction sa;
-    std::memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_batch_signal;
-    sigemptyset(&sa.sa_mask);
-    sigaction(SIGINT, &sa, &old_int_);
-    sigaction(SIGTERM, &sa, &old_term_);
-  }
-  ~SignalScope() {
-    sigaction(SIGINT, &old_int_, nullptr);
-    sigaction(SIGTERM, &old_term_, nullptr);
-  }
-
- private:
-  struct sigaction old_int_, old_term_;
-};
-
 // --- small helpers ---------------------------------------------------------------------------
 
 std::string hex64(std::uint64_t h) {
@@ -327,7 +307,7 @@ BatchReport run_batch(const std::vector<BatchScan>& scans, const BatchOptions& o
   }
   remove_stale_temporaries(out);
 
-  SignalScope signals;
+  StopSignalHandlers signals(g_interrupts, on_batch_signal);
   BatchProgress progress(scans.size(), o.quiet);
   std::vector<SummaryRow> rows(scans.size());
   std::vector<char> started(scans.size(), 0);

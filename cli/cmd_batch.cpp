@@ -243,11 +243,9 @@ int run_batch_command(BatchArgs& a) {
 }  // namespace
 
 void add_batch_command(CLI::App& app) {
-  auto a = std::make_shared<BatchArgs>();
-  auto* cmd = app.add_subcommand(
-      "batch",
-      "Analyse many scans: folders, sidecars or manifests; resumable, parallel, shardable");
-  cmd->footer(
+  const auto [cmd, a] = add_command<BatchArgs>(
+      app, "batch", run_batch_command,
+      "Analyse many scans: folders, sidecars or manifests; resumable, parallel, shardable",
       std::string(
           "INPUT: a folder (searched recursively for trace sidecars), a sidecar, or a manifest\n"
           "(.csv, or .json/.yaml with a \"scans\" list; per-scan columns scan, name, gas,\n"
@@ -258,13 +256,13 @@ void add_batch_command(CLI::App& app) {
           "temporary folder renamed into place. Then DIR/summary.csv, summary.json, trend_*.png\n"
           "(.svg with --figure-format svg) and index.html. A failed scan never stops the "
           "batch.\n") +
-      "--config FILE (JSON or YAML): the options below as keys (" + config_keys_text() +
-      "; energy_window as \"LO:HI\"),\n"
-      "plus gas, ir_wavelength_nm and kind applied to every scan (manifest rows win);\n"
-      "command-line options win over the file.\n"
-      "Seeds: each scan's seed derives from --seed and its name, so results do not depend on\n"
-      "--jobs or --shard. Ctrl-C: no new scans start, running ones finish (twice: abandoned).\n"
-      "Exit: 0 all ok, 5 some scan failed, 2 bad usage, 130 interrupted. See docs/batch.md.");
+          "--config FILE (JSON or YAML): the options below as keys (" + config_keys_text() +
+          "; energy_window as \"LO:HI\"),\n"
+          "plus gas, ir_wavelength_nm and kind applied to every scan (manifest rows win);\n"
+          "command-line options win over the file.\n"
+          "Seeds: each scan's seed derives from --seed and its name, so results do not depend on\n"
+          "--jobs or --shard. Ctrl-C: no new scans start, running ones finish (twice: abandoned).\n"
+          "Exit: 0 all ok, 5 some scan failed, 2 bad usage, 130 interrupted. See docs/batch.md.");
   cmd->add_option("inputs", a->inputs, "folders, sidecars or manifests")->required();
   cmd->add_option("--out,-o", a->out, "batch output folder (created)")->required();
   a->cli["jobs"] = cmd->add_option("--jobs,-j", a->options.jobs, "scans analysed in parallel")
@@ -293,7 +291,6 @@ void add_batch_command(CLI::App& app) {
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,
                 "read data files outside the input folders' trees (refused by default)");
   check_numeric_options(cmd);
-  cmd->callback([a] { exit_code() = guarded("batch", [&] { return run_batch_command(*a); }); });
 }
 
 }  // namespace sw::cli

@@ -2,7 +2,6 @@
 // pulse train or undetermined, with every piece of evidence reported (the analysis itself:
 // analyse_classify, retrieval/analysis/analyses.h).
 #include <cstdio>
-#include <filesystem>
 #include <memory>
 #include <sstream>
 
@@ -10,6 +9,7 @@
 #include "cli/commands.h"
 #include "cli/option_checks.h"
 #include "cli/option_registry.h"
+#include "cli/scan_command.h"
 #include "retrieval/analysis/analyses.h"
 #include "retrieval/core/error.h"
 #include "retrieval/engines/engine.h"
@@ -19,56 +19,38 @@ namespace sw::cli {
 
 namespace {
 
-struct ClassifyArgs {
-  std::string scan, out, gas;
+struct ClassifyArgs : ScanCommandArgs {
+  std::string gas;
   double wavelength_nm = 0.0;
-  bool quiet = false;
-  bool allow_outside_data = false;
   ClassifyAnalysisOptions options;  ///< the flags of ClassifyAnalysisOptions::describe
-  std::string energy_window;
-  plot::FigureFormat figure_format = plot::FigureFormat::kPng;
 };
 
 int run_classify(ClassifyArgs& a) {
-  ScanJob job;
-  job.sidecar = a.scan;
-  job.out_dir = a.out;
-  job.analysis = AnalysisKind::kClassify;
+  ScanJob job = scan_command_job(a, AnalysisKind::kClassify);
   job.classify = a.options;
   // The retrieval's options, with the satellite thresholds (one place for them, analysis.h).
   job.retrieve = a.options.retrieve_options;
-  if (!a.energy_window.empty())
-    parse_energy_window(a.energy_window, "--energy-window",
-                        &job.retrieve.preprocess.energy_window_lo_eV,
-                        &job.retrieve.preprocess.energy_window_hi_eV);
+  apply_energy_window(a, job.retrieve.preprocess);
   job.retrieve.bootstrap = 0;
   if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
   if (job.retrieve.engine != "auto") (void)make_engine(job.retrieve.engine);   // names listed
   if (a.wavelength_nm != 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;  // checked by CLI11
   if (!a.gas.empty()) job.overrides.gas = a.gas;
-  job.quiet = a.quiet;
-  job.figure_format = a.figure_format;
-  job.read_policy.allow_outside_data = a.allow_outside_data;
   const ScanOutcome o = run_scan_or_throw(job);
   const VerdictSection& v = *o.result.verdict;
   std::printf("class: %s\n", to_string(v.pulse_class));
   std::printf("reason: %s\n", v.reason.c_str());
   for (const Param& p : v.evidence)
     std::printf("  %s = %s\n", p.key.c_str(), param_text(p, 5, " ").c_str());
-  if (!a.quiet)
-    for (const auto& w : o.result.warnings)
-      std::fprintf(stderr, "streakwright classify: warning: %s\n", w.c_str());
-  std::printf("report: %s\n", (std::filesystem::path(a.out) / "report.html").string().c_str());
-  return o.exit_code;
+  return finish_scan_command("classify", a, o);
 }
 
 }  // namespace
 
 void add_classify_command(CLI::App& app) {
-  auto a = std::make_shared<ClassifyArgs>();
-  auto* cmd = app.add_subcommand(
-      "classify", "Decide isolated pulse, isolated with satellites, or pulse train from a scan");
-  cmd->footer(
+  const auto [cmd, a] = add_command<ClassifyArgs>(
+      app, "classify", run_classify,
+      "Decide isolated pulse, isolated with satellites, or pulse train from a scan",
       "Evidence (each value printed and written to result.json verdict.evidence):\n"
       "  spectrum.*   fringe contrast of the photoelectron spectrum at 2 hbar omega (bursts\n"
       "               T/2 apart) and hbar omega (T apart): a satellite-ratio estimate, or a\n"
@@ -83,8 +65,7 @@ void add_classify_command(CLI::App& app) {
       "An xuv_only scan without ir_wavelength_nm is read with 800 nm (warned).\n"
       "Writes into DIR: result.json, evidence.csv, PNG figures and report.html.\n"
       "Exit 0 ok, 2 bad usage, 3 bad input, 4 numerical failure.");
-  cmd->add_option("scan", a->scan, "sidecar of the scan (NAME.json or NAME.yaml)")->required();
-  cmd->add_option("--out,-o", a->out, "output folder (created)")->required();
+  add_scan_and_out_options(cmd, *a);
   // The options of ClassifyAnalysisOptions::describe (retrieval/analysis/analyses.h).
   add_described_options(cmd, a->options);
   cmd->add_option("--ir-wavelength", a->wavelength_nm,
@@ -99,7 +80,6 @@ void add_classify_command(CLI::App& app) {
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,
                 "read a data file outside the sidecar's folder tree (refused by default)");
   check_numeric_options(cmd);
-  cmd->callback([a] { exit_code() = guarded("classify", [&] { return run_classify(*a); }); });
 }
 
 }  // namespace sw::cli

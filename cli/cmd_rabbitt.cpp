@@ -1,7 +1,6 @@
 // `streakwright rabbitt SCAN.json --out DIR`: sideband phases, group delays, attochirp and the
 // average burst of a pulse train from a RABBITT scan, plus the isolated-versus-train verdict.
 #include <cstdio>
-#include <filesystem>
 #include <memory>
 #include <sstream>
 
@@ -9,6 +8,7 @@
 #include "cli/commands.h"
 #include "cli/option_checks.h"
 #include "cli/option_registry.h"
+#include "cli/scan_command.h"
 #include "retrieval/analysis/analyses.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
@@ -18,15 +18,11 @@ namespace sw::cli {
 
 namespace {
 
-struct RabbittArgs {
-  std::string scan, out, xuv_only;
+struct RabbittArgs : ScanCommandArgs {
+  std::string xuv_only;
   std::string gas;
   double wavelength_nm = 0.0;
   RabbittAnalysisOptions options;  ///< the flags of RabbittAnalysisOptions::describe
-  std::string energy_window;
-  bool quiet = false;
-  bool allow_outside_data = false;
-  plot::FigureFormat figure_format = plot::FigureFormat::kPng;
 };
 
 std::string summary_line(const AnalysisResult& r) {
@@ -80,42 +76,28 @@ std::string line_delay_lines(const AnalysisResult& r) {
 }
 
 int run_rabbitt(RabbittArgs& a) {
-  ScanJob job;
-  job.sidecar = a.scan;
-  job.out_dir = a.out;
-  job.analysis = AnalysisKind::kRabbitt;
+  ScanJob job = scan_command_job(a, AnalysisKind::kRabbitt);
   job.xuv_only_sidecar = a.xuv_only;
   job.rabbitt = a.options;
   // One place for the satellite thresholds (analysis.h): the retrieve options.
   job.retrieve.isolated_max_satellite_ratio = a.options.classifier.isolated_max_satellite_ratio;
   job.retrieve.satellites_max_satellite_ratio = a.options.classifier.satellite_max_ratio;
-  if (!a.energy_window.empty())
-    parse_energy_window(a.energy_window, "--energy-window",
-                        &job.retrieve.preprocess.energy_window_lo_eV,
-                        &job.retrieve.preprocess.energy_window_hi_eV);
+  apply_energy_window(a, job.retrieve.preprocess);
   if (!a.gas.empty()) job.overrides.gas = a.gas;
   if (a.wavelength_nm != 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;  // checked by CLI11
   if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
-  job.quiet = a.quiet;
-  job.figure_format = a.figure_format;
-  job.read_policy.allow_outside_data = a.allow_outside_data;
   const ScanOutcome o = run_scan_or_throw(job);
   std::printf("%s\n", summary_line(o.result).c_str());
   std::printf("%s", line_delay_lines(o.result).c_str());
-  if (!a.quiet)
-    for (const auto& w : o.result.warnings)
-      std::fprintf(stderr, "streakwright rabbitt: warning: %s\n", w.c_str());
-  std::printf("report: %s\n", (std::filesystem::path(a.out) / "report.html").string().c_str());
-  return o.exit_code;
+  return finish_scan_command("rabbitt", a, o);
 }
 
 }  // namespace
 
 void add_rabbitt_command(CLI::App& app) {
-  auto a = std::make_shared<RabbittArgs>();
-  auto* cmd = app.add_subcommand(
-      "rabbitt", "Attochirp and average burst of a pulse train from a RABBITT scan");
-  cmd->footer(
+  const auto [cmd, a] = add_command<RabbittArgs>(
+      app, "rabbitt", run_rabbitt,
+      "Attochirp and average burst of a pulse train from a RABBITT scan",
       "Method: harmonic and sideband peaks are identified at q hbar omega - Ip (gas and IR\n"
       "wavelength from the sidecar or --gas/--ir-wavelength); the energy axis offset and scale\n"
       "that align them are reported. Each sideband is fitted over the whole delay axis with\n"
@@ -136,9 +118,7 @@ void add_rabbitt_command(CLI::App& app) {
       "rainbow.csv, harmonics.csv, burst.csv, line_delays.csv (with a second line), PNG\n"
       "figures and report.html.\n"
       "Prints a one-line summary. Exit 0 ok, 2 bad usage, 3 bad input, 4 numerical failure.");
-  cmd->add_option("scan", a->scan, "sidecar of the RABBITT scan (NAME.json or NAME.yaml)")
-      ->required();
-  cmd->add_option("--out,-o", a->out, "output folder (created)")->required();
+  add_scan_and_out_options(cmd, *a, "sidecar of the RABBITT scan (NAME.json or NAME.yaml)");
   // The options of RabbittAnalysisOptions::describe (retrieval/analysis/analyses.h).
   add_described_options(cmd, a->options);
   cmd->add_option("--xuv-only", a->xuv_only,
@@ -156,7 +136,6 @@ void add_rabbitt_command(CLI::App& app) {
   cmd->add_flag("--allow-outside-data", a->allow_outside_data,
                 "read data files outside the sidecars' folder trees (refused by default)");
   check_numeric_options(cmd);
-  cmd->callback([a] { exit_code() = guarded("rabbitt", [&] { return run_rabbitt(*a); }); });
 }
 
 }  // namespace sw::cli

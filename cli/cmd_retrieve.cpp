@@ -1,7 +1,6 @@
 // `streakwright retrieve SCAN.json --out DIR`: reconstruct the XUV pulse and the IR field.
 #include <algorithm>
 #include <cstdio>
-#include <filesystem>
 #include <memory>
 #include <sstream>
 
@@ -9,6 +8,7 @@
 #include "cli/commands.h"
 #include "cli/option_checks.h"
 #include "cli/option_registry.h"
+#include "cli/scan_command.h"
 #include "retrieval/analysis/retrieve.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
@@ -20,14 +20,9 @@ namespace sw::cli {
 
 namespace {
 
-struct RetrieveArgs {
-  std::string scan, out;
+struct RetrieveArgs : ScanCommandArgs {
   RetrieveOptions options;
-  std::string energy_window;  ///< --energy-window LO:HI (eV), "" = none
-  std::string lines;          ///< --lines NAME[,NAME...] or none; "" = every line found
-  bool quiet = false;
-  bool allow_outside_data = false;
-  plot::FigureFormat figure_format = plot::FigureFormat::kPng;
+  std::string lines;  ///< --lines NAME[,NAME...] or none; "" = every line found
 };
 
 std::string summary_line(const AnalysisResult& r) {
@@ -69,24 +64,15 @@ std::string summary_line(const AnalysisResult& r) {
 }
 
 int run_retrieve(RetrieveArgs& a) {
-  if (!a.energy_window.empty())
-    parse_energy_window(a.energy_window, "--energy-window",
-                        &a.options.preprocess.energy_window_lo_eV,
-                        &a.options.preprocess.energy_window_hi_eV);
+  apply_energy_window(a, a.options.preprocess);
   if (!a.lines.empty()) parse_line_names(a.lines, "--lines", &a.options.line_delays.names);
   if (a.options.engine != "auto") (void)make_engine(a.options.engine);  // unknown names listed
   if (const std::string e = a.options.validate(); !e.empty()) throw usage_error(e);
-  ScanJob job;
-  job.sidecar = a.scan;
-  job.out_dir = a.out;
-  job.analysis = AnalysisKind::kRetrieve;
+  ScanJob job = scan_command_job(a, AnalysisKind::kRetrieve);
   job.retrieve = a.options;
-  job.quiet = a.quiet;
-  job.figure_format = a.figure_format;
-  job.read_policy.allow_outside_data = a.allow_outside_data;
   const ScanOutcome o = run_scan_or_throw(job);
   std::printf("%s\n", summary_line(o.result).c_str());
-  std::printf("report: %s\n", (std::filesystem::path(a.out) / "report.html").string().c_str());
+  print_report_path(a);
   if (o.exit_code == 4)
     std::fprintf(stderr,
                  "streakwright retrieve: warning: the engine did not converge; the best estimate "
@@ -97,9 +83,6 @@ int run_retrieve(RetrieveArgs& a) {
 }  // namespace
 
 void add_retrieve_command(CLI::App& app) {
-  auto a = std::make_shared<RetrieveArgs>();
-  auto* cmd = app.add_subcommand(
-      "retrieve", "Reconstruct the XUV pulse and the IR streaking field from a scan");
   std::ostringstream limit;  // the default of --cma-phase-limit (RetrieveOptions)
   limit << RetrieveOptions{}.cma_phase_error_max_rad;
   std::string engines =
@@ -114,9 +97,10 @@ void add_retrieve_command(CLI::App& app) {
       "Writes into DIR: result.json, report.html, CSVs (with units) and PNG (or SVG) figures.\n"
       "Prints a one-line summary. Exit 0 ok, 2 bad usage, 3 bad input, 4 not converged\n"
       "(best estimate written, converged: false).";
-  cmd->footer(engines);
-  cmd->add_option("scan", a->scan, "sidecar of the scan (NAME.json or NAME.yaml)")->required();
-  cmd->add_option("--out,-o", a->out, "output folder (created)")->required();
+  const auto [cmd, a] = add_command<RetrieveArgs>(
+      app, "retrieve", run_retrieve,
+      "Reconstruct the XUV pulse and the IR streaking field from a scan", engines);
+  add_scan_and_out_options(cmd, *a);
   // The options of RetrieveOptions::describe (retrieval/analysis/retrieve.h).
   add_described_options(cmd, a->options);
   cmd->add_option(
@@ -135,7 +119,6 @@ void add_retrieve_command(CLI::App& app) {
                 "read a data file outside the sidecar's folder tree ('..', absolute or symlinked "
                 "paths; refused by default)");
   check_numeric_options(cmd);
-  cmd->callback([a] { exit_code() = guarded("retrieve", [&] { return run_retrieve(*a); }); });
 }
 
 }  // namespace sw::cli

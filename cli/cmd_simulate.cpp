@@ -94,10 +94,9 @@ int run_simulate(const SimulateArgs& a) {
 }  // namespace
 
 void add_simulate_command(CLI::App& app) {
-  auto a = std::make_shared<SimulateArgs>();
-  auto* cmd = app.add_subcommand(
-      "simulate", "Generate a synthetic scan with known truth (preset or config file)");
-  cmd->footer(
+  const auto [cmd, a] = add_command<SimulateArgs>(
+      app, "simulate", run_simulate,
+      "Generate a synthetic scan with known truth (preset or config file)",
       "The generator evaluates the SFA streaking amplitude by direct quadrature with the full\n"
       "momentum dependence (independently of the engines' FFT model) and applies the configured\n"
       "noise: energy resolution, background, Poisson counting, readout noise, saturation, delay\n"
@@ -116,7 +115,6 @@ void add_simulate_command(CLI::App& app) {
   cmd->add_option("--format", a->format, "data format: png16 | tiff | csv (default: the config's)");
   add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no progress on stderr");
-  cmd->callback([a] { exit_code() = guarded("simulate", [&] { return run_simulate(*a); }); });
 }
 
 }  // namespace sw::cli

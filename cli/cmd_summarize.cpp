@@ -103,10 +103,9 @@ int run_summarize(const SummarizeArgs& a) {
 }  // namespace
 
 void add_summarize_command(CLI::App& app) {
-  auto a = std::make_shared<SummarizeArgs>();
-  auto* cmd = app.add_subcommand(
-      "summarize", "Merge batch outputs (e.g. shards) into one summary; compare two runs");
-  cmd->footer(
+  const auto [cmd, a] = add_command<SummarizeArgs>(
+      app, "summarize", run_summarize,
+      "Merge batch outputs (e.g. shards) into one summary; compare two runs",
       "Each DIR is a batch output folder: its summary.json is used, else the summary.json files "
       "of\n"
       "its sub-folders (shard-1, shard-2, ...), else its result.json files. Scans are merged by\n"
@@ -120,7 +119,6 @@ void add_summarize_command(CLI::App& app) {
   cmd->add_option("--out,-o", a->out, "folder for the merged summary (created)");
   add_figure_format_option(cmd, &a->figure_format);
   cmd->add_flag("--quiet,-q", a->quiet, "no notes on stderr");
-  cmd->callback([a] { exit_code() = guarded("summarize", [&] { return run_summarize(*a); }); });
 }
 
 }  // namespace sw::cli

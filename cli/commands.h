@@ -4,6 +4,11 @@
 // Exit codes (documented in docs/cli.md): 0 success, 1 internal error, 2 bad usage,
 // 3 bad input data, 4 numerical failure (result still written, flagged), 5 batch with failures.
 
+#include <functional>
+#include <memory>
+#include <string>
+#include <utility>
+
 #include <CLI/CLI.hpp>
 
 namespace sw::cli {
@@ -22,5 +27,19 @@ int guarded(const char* command, const std::function<int()>& body);
 
 /// Exit code a subcommand's callback stored (CLI11 callbacks return void).
 int& exit_code();
+
+/// Registers the subcommand `name` (one-line `description`; `footer` below its options in
+/// --help) with a fresh Args for its options to bind to. Calling the subcommand runs `run(args)`
+/// through guarded() and stores its exit code. Returns the subcommand and its Args.
+template <class Args, class Run>
+std::pair<CLI::App*, std::shared_ptr<Args>> add_command(CLI::App& app, const char* name, Run run,
+                                                        const char* description,
+                                                        const std::string& footer) {
+  auto args = std::make_shared<Args>();
+  CLI::App* cmd = app.add_subcommand(name, description);
+  cmd->footer(footer);
+  cmd->callback([args, run, name] { exit_code() = guarded(name, [&] { return run(*args); }); });
+  return {cmd, args};
+}
 
 }  // namespace sw::cli

@@ -247,20 +247,22 @@ BatchLock::~BatchLock() {
   fs::remove(path_, ec);
 }
 
-InterruptScope::InterruptScope() {
-  g_signal = 0;
+StopSignalHandlers::StopSignalHandlers(std::atomic<int>& flag, void (*handler)(int)) {
+  flag = 0;
   struct sigaction sa;
   std::memset(&sa, 0, sizeof sa);
-  sa.sa_handler = on_command_signal;
+  sa.sa_handler = handler;
   sigemptyset(&sa.sa_mask);
   sigaction(SIGINT, &sa, &old_int_);
   sigaction(SIGTERM, &sa, &old_term_);
 }
 
-InterruptScope::~InterruptScope() {
+StopSignalHandlers::~StopSignalHandlers() {
   sigaction(SIGINT, &old_int_, nullptr);
   sigaction(SIGTERM, &old_term_, nullptr);
 }
+
+InterruptScope::InterruptScope() : handlers_(g_signal, on_command_signal) {}
 
 int InterruptScope::signal_received() { return g_signal.load(); }
 

@@ -18,6 +18,7 @@
 //  - InterruptScope: SIGINT/SIGTERM handlers for single-scan commands; the analysis checks
 //    interrupted() at every iteration (through the progress callback) and stops.
 
+#include <atomic>
 #include <csignal>
 #include <string>
 #include <vector>
@@ -67,21 +68,32 @@ class BatchLock {
   std::string path_;
 };
 
+/// For its lifetime: `handler` (async-signal-safe, it may only touch `flag`) handles SIGINT and
+/// SIGTERM; `flag` is set to 0 before the handler is installed. The previous handlers are
+/// restored on destruction.
+class StopSignalHandlers {
+ public:
+  StopSignalHandlers(std::atomic<int>& flag, void (*handler)(int));
+  ~StopSignalHandlers();
+  StopSignalHandlers(const StopSignalHandlers&) = delete;
+  StopSignalHandlers& operator=(const StopSignalHandlers&) = delete;
+
+ private:
+  struct sigaction old_int_, old_term_;
+};
+
 /// SIGINT / SIGTERM for single-scan commands: the first one sets the flag (the analysis stops
 /// at its next iteration, the temporary output is removed); a second one exits at once.
 class InterruptScope {
  public:
   InterruptScope();
-  ~InterruptScope();
-  InterruptScope(const InterruptScope&) = delete;
-  InterruptScope& operator=(const InterruptScope&) = delete;
   /// The signal number received (0 = none).
   static int signal_received();
   /// The exit code of an interrupted command: 128 + signal number (130 SIGINT, 143 SIGTERM).
   static int exit_code() { return 128 + signal_received(); }
 
  private:
-  struct sigaction old_int_, old_term_;
+  StopSignalHandlers handlers_;
 };
 
 }  // namespace sw::cli

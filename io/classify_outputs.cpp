@@ -34,13 +34,8 @@ std::string csv_cell(const std::string& s) {
 void write_classify_outputs(const Trace& trace, const AnalysisResult& res,
                             const Reconstruction* rec, double ir_wavelength_nm,
                             const std::string& dir, plot::FigureFormat figure_format) {
-  std::error_code ec;
-  fs::create_directories(dir, ec);
-  if (ec) throw input_error("cannot create output folder '" + dir + "': " + ec.message());
   // Figures ("*.png" below) take the extension of the requested format.
-  const auto path = [&](const std::string& f) {
-    return (fs::path(dir) / plot::with_figure_extension(f, figure_format)).string();
-  };
+  const plot::OutputPaths path = plot::make_output_folder(dir, figure_format);
   const VerdictSection& v = *res.verdict;
 
   {

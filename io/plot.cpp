@@ -1,12 +1,14 @@
 #include "io/plot.h"
 
 #include "retrieval/core/enum_names.h"
+#include "retrieval/core/error.h"
 
 #include <algorithm>
 #include <array>
 #include <cctype>
 #include <cmath>
 #include <cstdio>
+#include <filesystem>
 #include <mutex>
 
 #include <opencv2/core.hpp>
@@ -34,18 +36,12 @@ constexpr EnumNames<ColorMap, 5> kColorMapNames{{{{ColorMap::kViridis, "viridis"
                                                   {ColorMap::kDiverging, "diverging"},
                                                   {ColorMap::kGray, "gray"}}}};
 
-const char* to_string(ColorMap v) { return kColorMapNames.name(v); }
-
-bool parse_color_map(const std::string& s, ColorMap* out) { return kColorMapNames.parse(s, out); }
+SW_ENUM_NAME_FUNCTIONS(ColorMap, parse_color_map, kColorMapNames)
 
 constexpr EnumNames<FigureFormat, 2> kFigureFormatNames{
     {{{FigureFormat::kPng, "png"}, {FigureFormat::kSvg, "svg"}}}};
 
-const char* to_string(FigureFormat v) { return kFigureFormatNames.name(v); }
-
-bool parse_figure_format(const std::string& s, FigureFormat* out) {
-  return kFigureFormatNames.parse(s, out);
-}
+SW_ENUM_NAME_FUNCTIONS(FigureFormat, parse_figure_format, kFigureFormatNames)
 
 const char* figure_extension(FigureFormat f) { return f == FigureFormat::kSvg ? ".svg" : ".png"; }
 
@@ -59,6 +55,17 @@ FigureFormat figure_format_of_path(const std::string& path) {
 std::string with_figure_extension(const std::string& name, FigureFormat f) {
   if (name.size() < 4 || name.compare(name.size() - 4, 4, ".png") != 0) return name;
   return name.substr(0, name.size() - 4) + figure_extension(f);
+}
+
+std::string OutputPaths::operator()(const std::string& name) const {
+  return (std::filesystem::path(dir) / with_figure_extension(name, format)).string();
+}
+
+OutputPaths make_output_folder(const std::string& dir, FigureFormat format) {
+  std::error_code ec;
+  std::filesystem::create_directories(dir, ec);
+  if (ec) throw input_error("cannot create output folder '" + dir + "': " + ec.message());
+  return {dir, format};
 }
 
 namespace {

@@ -53,6 +53,18 @@ FigureFormat figure_format_of_path(const std::string& path);
 /// other names unchanged.
 std::string with_figure_extension(const std::string& name, FigureFormat f);
 
+/// Paths of the files an analysis writes into its output folder: `paths("burst.png")` is
+/// DIR/burst.png, or DIR/burst.svg for FigureFormat::kSvg (with_figure_extension).
+struct OutputPaths {
+  std::string dir;
+  FigureFormat format = FigureFormat::kPng;
+  std::string operator()(const std::string& name) const;
+};
+
+/// Creates the output folder `dir` (and its parents) and returns its OutputPaths. Throws
+/// sw::Error(kInput) "cannot create output folder '<dir>': <reason>".
+OutputPaths make_output_folder(const std::string& dir, FigureFormat format);
+
 /// Tick positions of one axis.
 struct Ticks {
   double step = 0.0;           ///< spacing of the major ticks (1, 2 or 5 x 10^k); 0 for log

@@ -89,37 +89,8 @@ std::string svg_color(Rgb c) {
   return buf;
 }
 
-// Text escaped for XML character data and attribute values; characters XML 1.0 does not allow
-// (C0 controls other than tab, newline, carriage return) become '?'.
-std::string xml_text(const std::string& t) {
-  std::string o;
-  o.reserve(t.size());
-  for (char ch : t) {
-    switch (ch) {
-      case '&':
-        o += "&amp;";
-        break;
-      case '<':
-        o += "&lt;";
-        break;
-      case '>':
-        o += "&gt;";
-        break;
-      case '"':
-        o += "&quot;";
-        break;
-      case '\'':
-        o += "&apos;";
-        break;
-      default:
-        if (static_cast<unsigned char>(ch) < 0x20 && ch != '\t' && ch != '\n' && ch != '\r')
-          o += '?';
-        else
-          o += ch;
-    }
-  }
-  return o;
-}
+// Text escaped for XML character data and attribute values.
+std::string xml_text(const std::string& t) { return escape_markup(t, "&apos;", true); }
 
 // SVG font size (px) whose sans-serif capitals are as tall as the raster font's: cap height of
 // DejaVu Sans / Helvetica is about 0.72 em (from memory).
@@ -688,6 +659,37 @@ void write_file_atomically(const std::string& path, const std::vector<unsigned c
   } catch (const Error& e) {
     throw Error(e.kind(), "Cannot write the " + what + ": " + e.what());
   }
+}
+
+std::string escape_markup(const std::string& text, const char* apostrophe, bool replace_controls) {
+  std::string out;
+  out.reserve(text.size() + text.size() / 8);
+  for (char ch : text) {
+    switch (ch) {
+      case '&':
+        out += "&amp;";
+        break;
+      case '<':
+        out += "&lt;";
+        break;
+      case '>':
+        out += "&gt;";
+        break;
+      case '"':
+        out += "&quot;";
+        break;
+      case '\'':
+        out += apostrophe;
+        break;
+      default:
+        if (replace_controls && static_cast<unsigned char>(ch) < 0x20 && ch != '\t' && ch != '\n' &&
+            ch != '\r')
+          out += '?';
+        else
+          out += ch;
+    }
+  }
+  return out;
 }
 
 }  // namespace sw::plot

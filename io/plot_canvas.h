@@ -158,4 +158,10 @@ void draw_legend(Canvas& c, const cv::Rect& area, const std::vector<LegendEntry>
 void write_file_atomically(const std::string& path, const std::vector<unsigned char>& bytes,
                            const std::string& what);
 
+/// `text` escaped for markup character data and attribute values: & < > " as their entities and
+/// the apostrophe as `apostrophe` ("&apos;" in SVG/XML, "&#39;" in the HTML report). With
+/// `replace_controls`, the C0 controls XML 1.0 does not allow (all but tab, newline and carriage
+/// return) become '?'.
+std::string escape_markup(const std::string& text, const char* apostrophe, bool replace_controls);
+
 }  // namespace sw::plot

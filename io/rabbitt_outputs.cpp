@@ -54,13 +54,8 @@ Series vertical(double x, double y0, double y1, const std::string& label, plot::
 void write_rabbitt_outputs(const Trace& trace, const RabbittAnalysis& rb, const TrainBurst* burst,
                            const AnalysisResult& res, const std::string& dir,
                            plot::FigureFormat figure_format) {
-  std::error_code ec;
-  fs::create_directories(dir, ec);
-  if (ec) throw input_error("cannot create output folder '" + dir + "': " + ec.message());
   // Figures ("*.png" below) take the extension of the requested format.
-  const auto path = [&](const std::string& f) {
-    return (fs::path(dir) / plot::with_figure_extension(f, figure_format)).string();
-  };
+  const plot::OutputPaths path = plot::make_output_folder(dir, figure_format);
   const double hw_eV = rb.ir_photon_energy_eV;
 
   // --- CSV files ---------------------------------------------------------------------------

@@ -86,30 +86,7 @@ KeyValueRow KeyValueRow::number(const std::string& name, double value, const std
 }
 
 std::string html_escape(const std::string& text) {
-  std::string out;
-  out.reserve(text.size() + text.size() / 8);
-  for (char ch : text) {
-    switch (ch) {
-      case '&':
-        out += "&amp;";
-        break;
-      case '<':
-        out += "&lt;";
-        break;
-      case '>':
-        out += "&gt;";
-        break;
-      case '"':
-        out += "&quot;";
-        break;
-      case '\'':
-        out += "&#39;";
-        break;
-      default:
-        out += ch;
-    }
-  }
-  return out;
+  return plot::escape_markup(text, "&#39;", false);
 }
 
 std::string base64_encode(const unsigned char* data, std::size_t size) {

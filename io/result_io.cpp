@@ -56,6 +56,74 @@ void place(ojson& root, const std::string& dotted, ojson value) {
   }
 }
 
+/// The optional numbers of one result section, in the order they are written.
+template <typename Section>
+struct NumberField {
+  const char* key;
+  std::optional<double> Section::*member;
+};
+
+constexpr NumberField<XuvSection> kXuvFields[] = {
+    {"fwhm_as", &XuvSection::fwhm_as},
+    {"fwhm_as_sigma", &XuvSection::fwhm_as_sigma},
+    {"transform_limited_fwhm_as", &XuvSection::transform_limited_fwhm_as},
+    {"rms_duration_as", &XuvSection::rms_duration_as},
+    {"gdd_as2", &XuvSection::gdd_as2},
+    {"gdd_as2_sigma", &XuvSection::gdd_as2_sigma},
+    {"tod_as3", &XuvSection::tod_as3},
+    {"tod_as3_sigma", &XuvSection::tod_as3_sigma},
+    {"center_photon_energy_eV", &XuvSection::center_photon_energy_eV},
+    {"bandwidth_fwhm_eV", &XuvSection::bandwidth_fwhm_eV}};
+
+constexpr NumberField<IrSection> kIrFields[] = {
+    {"peak_vector_potential_au", &IrSection::peak_vector_potential_au},
+    {"peak_vector_potential_au_sigma", &IrSection::peak_vector_potential_au_sigma},
+    {"peak_intensity_Wcm2", &IrSection::peak_intensity_Wcm2},
+    {"peak_intensity_Wcm2_sigma", &IrSection::peak_intensity_Wcm2_sigma},
+    {"wavelength_nm", &IrSection::wavelength_nm},
+    {"fwhm_fs", &IrSection::fwhm_fs}};
+
+constexpr NumberField<VerdictSection> kVerdictFields[] = {
+    {"satellite_intensity_ratio", &VerdictSection::satellite_intensity_ratio},
+    {"satellite_intensity_ratio_sigma", &VerdictSection::satellite_intensity_ratio_sigma},
+    {"main_burst_energy_fraction", &VerdictSection::main_burst_energy_fraction}};
+
+constexpr NumberField<RabbittSection> kRabbittFields[] = {
+    {"attochirp_as_per_eV", &RabbittSection::attochirp_as_per_eV},
+    {"attochirp_as_per_eV_sigma", &RabbittSection::attochirp_as_per_eV_sigma},
+    {"train_burst_fwhm_as", &RabbittSection::train_burst_fwhm_as},
+    {"train_burst_fwhm_as_sigma", &RabbittSection::train_burst_fwhm_as_sigma},
+    {"transform_limited_burst_fwhm_as", &RabbittSection::transform_limited_burst_fwhm_as}};
+
+/// A line's numbers written before its flags and names ...
+constexpr NumberField<LineEntry> kLineFieldsFirst[] = {
+    {"relative_strength", &LineEntry::relative_strength},
+    {"relative_strength_sigma", &LineEntry::relative_strength_sigma},
+    {"relative_delay_as", &LineEntry::relative_delay_as},
+    {"relative_delay_as_sigma", &LineEntry::relative_delay_as_sigma},
+    {"kinetic_energy_eV", &LineEntry::kinetic_energy_eV}};
+
+/// ... and after them.
+constexpr NumberField<LineEntry> kLineFieldsLast[] = {
+    {"clc_delay_as", &LineEntry::clc_delay_as},
+    {"clc_correction_as", &LineEntry::clc_correction_as},
+    {"relative_delay_as_corrected", &LineEntry::relative_delay_as_corrected},
+    {"relative_delay_as_centre_of_energy", &LineEntry::relative_delay_as_centre_of_energy},
+    {"relative_delay_as_centre_of_energy_sigma",
+     &LineEntry::relative_delay_as_centre_of_energy_sigma},
+    {"relative_strength_centre_of_energy", &LineEntry::relative_strength_centre_of_energy},
+    {"relative_strength_centre_of_energy_sigma",
+     &LineEntry::relative_strength_centre_of_energy_sigma},
+    {"relative_delay_as_corrected_sigma", &LineEntry::relative_delay_as_corrected_sigma},
+    {"relative_delay_reduced_chi2", &LineEntry::relative_delay_reduced_chi2},
+    {"nearest_other_peak_eV", &LineEntry::nearest_other_peak_eV}};
+
+template <typename Section, std::size_t N>
+void put_all(ojson& obj, const std::string& section, const Section& x,
+             const NumberField<Section> (&fields)[N]) {
+  for (const auto& f : fields) put(obj, section, f.key, x.*f.member);
+}
+
 ojson param_value(const Param& p, const std::string& shown_key) {
   return std::visit(
       [&](const auto& v) -> ojson {
@@ -83,36 +151,20 @@ ojson to_ojson(const AnalysisResult& r) {
   if (r.xuv) {
     const XuvSection& x = *r.xuv;
     ojson s = ojson::object();
-    put(s, "xuv", "fwhm_as", x.fwhm_as);
-    put(s, "xuv", "fwhm_as_sigma", x.fwhm_as_sigma);
-    put(s, "xuv", "transform_limited_fwhm_as", x.transform_limited_fwhm_as);
-    put(s, "xuv", "rms_duration_as", x.rms_duration_as);
-    put(s, "xuv", "gdd_as2", x.gdd_as2);
-    put(s, "xuv", "gdd_as2_sigma", x.gdd_as2_sigma);
-    put(s, "xuv", "tod_as3", x.tod_as3);
-    put(s, "xuv", "tod_as3_sigma", x.tod_as3_sigma);
-    put(s, "xuv", "center_photon_energy_eV", x.center_photon_energy_eV);
-    put(s, "xuv", "bandwidth_fwhm_eV", x.bandwidth_fwhm_eV);
+    put_all(s, "xuv", x, kXuvFields);
     j["xuv"] = std::move(s);
   }
   if (r.ir) {
     const IrSection& x = *r.ir;
     ojson s = ojson::object();
-    put(s, "ir", "peak_vector_potential_au", x.peak_vector_potential_au);
-    put(s, "ir", "peak_vector_potential_au_sigma", x.peak_vector_potential_au_sigma);
-    put(s, "ir", "peak_intensity_Wcm2", x.peak_intensity_Wcm2);
-    put(s, "ir", "peak_intensity_Wcm2_sigma", x.peak_intensity_Wcm2_sigma);
-    put(s, "ir", "wavelength_nm", x.wavelength_nm);
-    put(s, "ir", "fwhm_fs", x.fwhm_fs);
+    put_all(s, "ir", x, kIrFields);
     j["ir"] = std::move(s);
   }
   if (r.verdict) {
     const VerdictSection& v = *r.verdict;
     ojson s = ojson::object();
     s["class"] = to_string(v.pulse_class);
-    put(s, "verdict", "satellite_intensity_ratio", v.satellite_intensity_ratio);
-    put(s, "verdict", "satellite_intensity_ratio_sigma", v.satellite_intensity_ratio_sigma);
-    put(s, "verdict", "main_burst_energy_fraction", v.main_burst_energy_fraction);
+    put_all(s, "verdict", v, kVerdictFields);
     if (!v.reason.empty()) s["reason"] = v.reason;
     if (!v.evidence.empty()) {
       ojson ev = ojson::object();
@@ -136,11 +188,7 @@ ojson to_ojson(const AnalysisResult& r) {
   if (r.rabbitt) {
     const RabbittSection& x = *r.rabbitt;
     ojson s = ojson::object();
-    put(s, "rabbitt", "attochirp_as_per_eV", x.attochirp_as_per_eV);
-    put(s, "rabbitt", "attochirp_as_per_eV_sigma", x.attochirp_as_per_eV_sigma);
-    put(s, "rabbitt", "train_burst_fwhm_as", x.train_burst_fwhm_as);
-    put(s, "rabbitt", "train_burst_fwhm_as_sigma", x.train_burst_fwhm_as_sigma);
-    put(s, "rabbitt", "transform_limited_burst_fwhm_as", x.transform_limited_burst_fwhm_as);
+    put_all(s, "rabbitt", x, kRabbittFields);
     ojson sbs = ojson::array();
     for (std::size_t i = 0; i < x.sidebands.size(); ++i) {
       const Sideband& b = x.sidebands[i];
@@ -192,27 +240,12 @@ ojson to_ojson(const AnalysisResult& r) {
       o["ionization_energy_eV"] =
           finite_number(l.ionization_energy_eV, k + ".ionization_energy_eV");
       if (!l.gas.empty()) o["gas"] = l.gas;
-      put(o, k, "relative_strength", l.relative_strength);
-      put(o, k, "relative_strength_sigma", l.relative_strength_sigma);
-      put(o, k, "relative_delay_as", l.relative_delay_as);
-      put(o, k, "relative_delay_as_sigma", l.relative_delay_as_sigma);
-      put(o, k, "kinetic_energy_eV", l.kinetic_energy_eV);
+      put_all(o, k, l, kLineFieldsFirst);
       if (l.reference) o["reference"] = true;
       o["analysed"] = l.analysed;
       if (!l.source.empty()) o["source"] = l.source;
       if (!l.delay_method.empty()) o["delay_method"] = l.delay_method;
-      put(o, k, "clc_delay_as", l.clc_delay_as);
-      put(o, k, "clc_correction_as", l.clc_correction_as);
-      put(o, k, "relative_delay_as_corrected", l.relative_delay_as_corrected);
-      put(o, k, "relative_delay_as_centre_of_energy", l.relative_delay_as_centre_of_energy);
-      put(o, k, "relative_delay_as_centre_of_energy_sigma",
-          l.relative_delay_as_centre_of_energy_sigma);
-      put(o, k, "relative_strength_centre_of_energy", l.relative_strength_centre_of_energy);
-      put(o, k, "relative_strength_centre_of_energy_sigma",
-          l.relative_strength_centre_of_energy_sigma);
-      put(o, k, "relative_delay_as_corrected_sigma", l.relative_delay_as_corrected_sigma);
-      put(o, k, "relative_delay_reduced_chi2", l.relative_delay_reduced_chi2);
-      put(o, k, "nearest_other_peak_eV", l.nearest_other_peak_eV);
+      put_all(o, k, l, kLineFieldsLast);
       if (!l.overlapped_orders.empty()) o["overlapped_orders"] = l.overlapped_orders;
       if (!l.sidebands.empty()) {
         ojson sbs = ojson::array();
@@ -309,21 +342,34 @@ class Reader {
     (*raw)[key] = v.dump();
   }
 
+  /// Reads `v` into the member of `fields` named `key`; false when no field has that name.
+  template <typename Section, std::size_t N>
+  bool number_field(const std::string& key, const ojson& v, const std::string& shown_key,
+                    const NumberField<Section> (&fields)[N], Section* out) const {
+    for (const auto& f : fields)
+      if (key == f.key) {
+        out->*f.member = number(v, shown_key);
+        return true;
+      }
+    return false;
+  }
+
+  /// Reads those `fields` that the object `o` at `shown_key` holds.
+  template <typename Section, std::size_t N>
+  void present_numbers(const ojson& o, const std::string& shown_key,
+                       const NumberField<Section> (&fields)[N], Section* out) const {
+    for (const auto& f : fields)
+      if (o.contains(f.key)) out->*f.member = number(o[f.key], shown_key + "." + f.key);
+  }
+
   /// Reads the optional numbers `keys` of `section` into `fields`, the rest into extras.
-  template <typename Section>
-  void section(const ojson& s, const std::string& name,
-               const std::vector<std::pair<const char*, std::optional<double> Section::*>>& fields,
+  template <typename Section, std::size_t N>
+  void section(const ojson& s, const std::string& name, const NumberField<Section> (&fields)[N],
                Section* out, AnalysisResult* r) const {
     if (!s.is_object()) fail(name, "an object");
-    for (auto it = s.begin(); it != s.end(); ++it) {
-      bool typed = false;
-      for (const auto& [k, member] : fields)
-        if (it.key() == k) {
-          out->*member = number(it.value(), name + "." + k);
-          typed = true;
-        }
-      if (!typed) flatten(it.value(), name + "." + it.key(), &r->extra, &r->extra_json);
-    }
+    for (auto it = s.begin(); it != s.end(); ++it)
+      if (!number_field(it.key(), it.value(), name + "." + it.key(), fields, out))
+        flatten(it.value(), name + "." + it.key(), &r->extra, &r->extra_json);
   }
 
  private:
@@ -369,30 +415,11 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
       r.engine = rd.string(v, key);
     else if (key == "xuv") {
       XuvSection x;
-      rd.section<XuvSection>(v, "xuv",
-                             {{"fwhm_as", &XuvSection::fwhm_as},
-                              {"fwhm_as_sigma", &XuvSection::fwhm_as_sigma},
-                              {"transform_limited_fwhm_as", &XuvSection::transform_limited_fwhm_as},
-                              {"rms_duration_as", &XuvSection::rms_duration_as},
-                              {"gdd_as2", &XuvSection::gdd_as2},
-                              {"gdd_as2_sigma", &XuvSection::gdd_as2_sigma},
-                              {"tod_as3", &XuvSection::tod_as3},
-                              {"tod_as3_sigma", &XuvSection::tod_as3_sigma},
-                              {"center_photon_energy_eV", &XuvSection::center_photon_energy_eV},
-                              {"bandwidth_fwhm_eV", &XuvSection::bandwidth_fwhm_eV}},
-                             &x, &r);
+      rd.section(v, "xuv", kXuvFields, &x, &r);
       r.xuv = x;
     } else if (key == "ir") {
       IrSection x;
-      rd.section<IrSection>(
-          v, "ir",
-          {{"peak_vector_potential_au", &IrSection::peak_vector_potential_au},
-           {"peak_vector_potential_au_sigma", &IrSection::peak_vector_potential_au_sigma},
-           {"peak_intensity_Wcm2", &IrSection::peak_intensity_Wcm2},
-           {"peak_intensity_Wcm2_sigma", &IrSection::peak_intensity_Wcm2_sigma},
-           {"wavelength_nm", &IrSection::wavelength_nm},
-           {"fwhm_fs", &IrSection::fwhm_fs}},
-          &x, &r);
+      rd.section(v, "ir", kIrFields, &x, &r);
       r.ir = x;
     } else if (key == "verdict") {
       if (!v.is_object()) rd.fail(key, "an object");
@@ -411,13 +438,7 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
           std::map<std::string, std::string> raw;
           rd.flatten(s.value(), "", &x.evidence, &raw);
           for (auto& [rk, rv] : raw) r.extra_json["verdict.evidence." + rk] = rv;
-        } else if (s.key() == "satellite_intensity_ratio") {
-          x.satellite_intensity_ratio = rd.number(s.value(), k);
-        } else if (s.key() == "satellite_intensity_ratio_sigma") {
-          x.satellite_intensity_ratio_sigma = rd.number(s.value(), k);
-        } else if (s.key() == "main_burst_energy_fraction") {
-          x.main_burst_energy_fraction = rd.number(s.value(), k);
-        } else {
+        } else if (!rd.number_field(s.key(), s.value(), k, kVerdictFields, &x)) {
           rd.flatten(s.value(), k, &r.extra, &r.extra_json);
         }
       }
@@ -452,14 +473,7 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
       ojson rest = ojson::object();
       for (auto s = v.begin(); s != v.end(); ++s)
         if (s.key() != "sidebands") rest[s.key()] = s.value();
-      rd.section<RabbittSection>(
-          rest, "rabbitt",
-          {{"attochirp_as_per_eV", &RabbittSection::attochirp_as_per_eV},
-           {"attochirp_as_per_eV_sigma", &RabbittSection::attochirp_as_per_eV_sigma},
-           {"train_burst_fwhm_as", &RabbittSection::train_burst_fwhm_as},
-           {"train_burst_fwhm_as_sigma", &RabbittSection::train_burst_fwhm_as_sigma},
-           {"transform_limited_burst_fwhm_as", &RabbittSection::transform_limited_burst_fwhm_as}},
-          &x, &r);
+      rd.section(rest, "rabbitt", kRabbittFields, &x, &r);
       if (v.contains("sidebands")) {
         const ojson& sbs = v["sidebands"];
         if (!sbs.is_array()) rd.fail("rabbitt.sidebands", "an array");
@@ -536,26 +550,8 @@ AnalysisResult result_from_json(const std::string& text, const std::string& wher
               rd.number(o["ionization_energy_eV"], k + ".ionization_energy_eV");
         if (o.contains("gas")) l.gas = rd.string(o["gas"], k + ".gas");
         if (o.contains("source")) l.source = rd.string(o["source"], k + ".source");
-        auto opt = [&](const char* f, std::optional<double>* dst) {
-          if (o.contains(f)) *dst = rd.number(o[f], k + "." + f);
-        };
-        opt("relative_strength", &l.relative_strength);
-        opt("relative_strength_sigma", &l.relative_strength_sigma);
-        opt("relative_delay_as", &l.relative_delay_as);
-        opt("relative_delay_as_sigma", &l.relative_delay_as_sigma);
-        opt("kinetic_energy_eV", &l.kinetic_energy_eV);
-        opt("clc_delay_as", &l.clc_delay_as);
-        opt("clc_correction_as", &l.clc_correction_as);
-        opt("relative_delay_as_corrected", &l.relative_delay_as_corrected);
-        opt("relative_delay_as_centre_of_energy", &l.relative_delay_as_centre_of_energy);
-        opt("relative_delay_as_centre_of_energy_sigma",
-            &l.relative_delay_as_centre_of_energy_sigma);
-        opt("relative_strength_centre_of_energy", &l.relative_strength_centre_of_energy);
-        opt("relative_strength_centre_of_energy_sigma",
-            &l.relative_strength_centre_of_energy_sigma);
-        opt("relative_delay_as_corrected_sigma", &l.relative_delay_as_corrected_sigma);
-        opt("relative_delay_reduced_chi2", &l.relative_delay_reduced_chi2);
-        opt("nearest_other_peak_eV", &l.nearest_other_peak_eV);
+        rd.present_numbers(o, k, kLineFieldsFirst, &l);
+        rd.present_numbers(o, k, kLineFieldsLast, &l);
         if (o.contains("overlapped_orders")) {
           const ojson& a = o["overlapped_orders"];
           if (!a.is_array()) rd.fail(k + ".overlapped_orders", "an array of orders");

@@ -39,17 +39,10 @@ std::vector<double> unwrapped_phase(const std::vector<std::complex<double>>& z, 
   return ph;
 }
 
-namespace {}  // namespace
-
 void write_retrieval_outputs(const Trace& trace, const RetrieveOutput& out, const std::string& dir,
                              plot::FigureFormat figure_format) {
-  std::error_code ec;
-  fs::create_directories(dir, ec);
-  if (ec) throw input_error("cannot create output folder '" + dir + "': " + ec.message());
   // Figures ("*.png" below) take the extension of the requested format.
-  const auto path = [&](const std::string& f) {
-    return (fs::path(dir) / plot::with_figure_extension(f, figure_format)).string();
-  };
+  const plot::OutputPaths path = plot::make_output_folder(dir, figure_format);
   const Reconstruction& rec = out.reconstruction;
   const RetrievalProblem& pr = out.problem;
   const AnalysisResult& res = out.result;

@@ -335,6 +335,21 @@ void add_inputs(Result& r, const Trace& t) {
   r.inputs.push_back(cli::sidecar_data_file(t.meta.source));
 }
 
+// Runs an analysis of `scan` without the GIL (run_released) and records its inputs (`scan`,
+// then `extra_input` when given) and the provenance of `command`.
+template <class F>
+Result run_analysis(const py::object& progress, const Trace& scan, const std::string& command,
+                    F&& analyse, const Trace* extra_input = nullptr) {
+  Result r{run_released(progress, scan,
+                        [&](const AnalysisProgress& p) { return AnyOutput(analyse(p)); }),
+           scan,
+           {}};
+  add_inputs(r, scan);
+  if (extra_input) add_inputs(r, *extra_input);
+  add_provenance(r, command);
+  return r;
+}
+
 void write_result(const Result& r, const std::string& folder, const std::string& figure_format) {
   plot::FigureFormat ff = plot::FigureFormat::kPng;
   if (!plot::parse_figure_format(figure_format, &ff))
@@ -485,15 +500,9 @@ Result py_retrieve(const Scan& scan, const py::object& energy_window, const py::
   set_line_names(lines, o.line_delays);
   check_engine(o.engine);
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
-  Result r{run_released(progress, scan.trace,
-                        [&](const AnalysisProgress& p) {
-                          return AnyOutput(analyse_retrieve(scan.trace, o, p));
-                        }),
-           scan.trace,
-           {}};
-  add_inputs(r, scan.trace);
-  add_provenance(r, "retrieve");
-  return r;
+  return run_analysis(progress, scan.trace, "retrieve", [&](const AnalysisProgress& p) {
+    return analyse_retrieve(scan.trace, o, p);
+  });
 }
 
 // The options of RabbittAnalysisOptions::describe arrive as keywords (python/described_kwargs.h);
@@ -511,17 +520,11 @@ Result py_rabbitt(const Scan& given, const py::object& gas, const py::object& ir
     o.xuv_only_name = xo->trace.meta.source.empty() ? "Scan.from_arrays" : xo->trace.meta.source;
   }
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
-  Result r{
-      run_released(progress, scan.trace,
-                   [&](const AnalysisProgress& p) {
-                     return AnyOutput(analyse_rabbitt(scan.trace, xo ? &xo->trace : nullptr, o, p));
-                   }),
-      scan.trace,
-      {}};
-  add_inputs(r, scan.trace);
-  if (xo) add_inputs(r, xo->trace);
-  add_provenance(r, "rabbitt");
-  return r;
+  const Trace* xo_trace = xo ? &xo->trace : nullptr;
+  return run_analysis(
+      progress, scan.trace, "rabbitt",
+      [&](const AnalysisProgress& p) { return analyse_rabbitt(scan.trace, xo_trace, o, p); },
+      xo_trace);
 }
 
 // The options of ClassifyAnalysisOptions::describe arrive as keywords (python/described_kwargs.h);
@@ -536,15 +539,9 @@ Result py_classify(const Scan& given, const py::object& gas, const py::object& i
   set_energy_window(energy_window, o.retrieve_options.preprocess);
   if (const std::string e = o.validate(); !e.empty()) throw usage_error(e);
   check_engine(o.retrieve_options.engine);
-  Result r{run_released(progress, scan.trace,
-                        [&](const AnalysisProgress& p) {
-                          return AnyOutput(analyse_classify(scan.trace, o, p));
-                        }),
-           scan.trace,
-           {}};
-  add_inputs(r, scan.trace);
-  add_provenance(r, "classify");
-  return r;
+  return run_analysis(progress, scan.trace, "classify", [&](const AnalysisProgress& p) {
+    return analyse_classify(scan.trace, o, p);
+  });
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -664,8 +661,9 @@ PYBIND11_MODULE(streakwright, m) {
                "', kind " + to_string(s.trace.meta.kind) + ">";
       });
 
-  py::class_<Result>(m, "Result",
-                     "The result of one analysis (result.json and the sampled fields).")
+  py::class_<Result> result_class(
+      m, "Result", "The result of one analysis (result.json and the sampled fields).");
+  result_class
       .def_property_readonly("analysis", [](const Result& r) { return r.result().analysis; })
       .def_property_readonly("warnings", [](const Result& r) { return r.result().warnings; })
       .def(
@@ -687,24 +685,16 @@ PYBIND11_MODULE(streakwright, m) {
                              [](const Result& r) { return arrays_item(r, "xuv_time_as"); })
       .def_property_readonly(
           "xuv_field", [](const Result& r) { return arrays_item(r, "xuv_field"); },
-          "complex XUV envelope about the centre photon energy")
-      .def_property_readonly("xuv_photon_energy_eV",
-                             [](const Result& r) { return arrays_item(r, "xuv_photon_energy_eV"); })
-      .def_property_readonly("xuv_spectrum",
-                             [](const Result& r) { return arrays_item(r, "xuv_spectrum"); })
-      .def_property_readonly("ir_time_fs",
-                             [](const Result& r) { return arrays_item(r, "ir_time_fs"); })
-      .def_property_readonly(
-          "ir_vector_potential_au",
-          [](const Result& r) { return arrays_item(r, "ir_vector_potential_au"); })
-      .def_property_readonly("ir_electric_field_au",
-                             [](const Result& r) { return arrays_item(r, "ir_electric_field_au"); })
-      .def_property_readonly("measured_trace",
-                             [](const Result& r) { return arrays_item(r, "measured_trace"); })
-      .def_property_readonly("retrieved_trace",
-                             [](const Result& r) { return arrays_item(r, "retrieved_trace"); })
-      .def("__repr__",
-           [](const Result& r) { return "<streakwright.Result " + r.result().analysis + ">"; });
+          "complex XUV envelope about the centre photon energy");
+  // The other sampled quantities, one read-only property each (named as in `arrays`).
+  for (const char* name :
+       {"xuv_photon_energy_eV", "xuv_spectrum", "ir_time_fs", "ir_vector_potential_au",
+        "ir_electric_field_au", "measured_trace", "retrieved_trace"})
+    result_class.def_property_readonly(name,
+                                       [name](const Result& r) { return arrays_item(r, name); });
+  result_class.def("__repr__", [](const Result& r) {
+    return "<streakwright.Result " + r.result().analysis + ">";
+  });
 
   m.def("load_scan", &load_scan, py::arg("path"), py::kw_only(), py::arg("gas") = py::none(),
         py::arg("ir_wavelength_nm") = py::none(), py::arg("kind") = py::none(),
@@ -716,13 +706,19 @@ PYBIND11_MODULE(streakwright, m) {
         "Synthetic scan with known truth: a preset name, a config file path or a config dict. "
         "Returns (Scan, truth dict).");
 
-  const RetrieveOptions rd;
+  // An analysis' docstring: its summary, then its keyword options from the description.
+  const auto analysis_doc = [](const char* summary, const auto& defaults) {
+    return std::string(summary) +
+           "\n\nKeyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
+           described_kwargs_doc(defaults);
+  };
   // Keywords: the flags of the CLI's `retrieve` from RetrieveOptions::describe, plus
   // energy_window, lines and progress.
   static const std::string retrieve_doc =
-      "Streaking retrieval (the CLI's `retrieve`); progress(stage, message) is called during the "
-      "work.\n\nKeyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
-      described_kwargs_doc(rd) +
+      analysis_doc(
+          "Streaking retrieval (the CLI's `retrieve`); progress(stage, message) is called "
+          "during the work.",
+          RetrieveOptions{}) +
       "  energy_window = None: analyse only photoelectron energies (LO, HI) or \"LO:HI\" (eV)\n"
       "  lines = None: lines whose delay relative to the reference line is measured: "
       "\"2s,3s\", [\"2s\", \"Kr 4p\"] or \"none\"; None = every line found\n";
@@ -732,19 +728,16 @@ PYBIND11_MODULE(streakwright, m) {
 
   // Keywords: the flags of the CLI's `rabbitt` and `classify` from their descriptions, plus the
   // overrides gas and ir_wavelength, energy_window, (rabbitt) xuv_only and progress.
-  static const std::string rabbitt_doc =
-      "RABBITT analysis (the CLI's `rabbitt`); xuv_only: a Scan of the field-free spectrum.\n\n"
-      "Keyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
-      described_kwargs_doc(RabbittAnalysisOptions{});
+  static const std::string rabbitt_doc = analysis_doc(
+      "RABBITT analysis (the CLI's `rabbitt`); xuv_only: a Scan of the field-free spectrum.",
+      RabbittAnalysisOptions{});
   m.def("rabbitt", &py_rabbitt, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),
         py::arg("ir_wavelength") = py::none(), py::arg("xuv_only") = py::none(),
         py::arg("energy_window") = py::none(), py::arg("progress") = py::none(),
         rabbitt_doc.c_str());
 
-  static const std::string classify_doc =
-      "Isolated / satellites / train verdict (the CLI's `classify`).\n\n"
-      "Keyword options (the CLI's flags with '-' -> '_'; defaults as there):\n" +
-      described_kwargs_doc(ClassifyAnalysisOptions{});
+  static const std::string classify_doc = analysis_doc(
+      "Isolated / satellites / train verdict (the CLI's `classify`).", ClassifyAnalysisOptions{});
   m.def("classify", &py_classify, py::arg("scan"), py::kw_only(), py::arg("gas") = py::none(),
         py::arg("ir_wavelength") = py::none(), py::arg("energy_window") = py::none(),
         py::arg("progress") = py::none(), classify_doc.c_str());

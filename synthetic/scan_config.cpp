@@ -43,27 +43,19 @@ constexpr EnumNames<XuvKind, 4> kXuvKindNames{{{{XuvKind::kGaussian, "gaussian"}
                                                 {XuvKind::kSatellites, "satellites"},
                                                 {XuvKind::kTabulated, "tabulated"}}}};
 
-const char* to_string(XuvKind v) { return kXuvKindNames.name(v); }
-
-bool parse_xuv_kind(const std::string& s, XuvKind* out) { return kXuvKindNames.parse(s, out); }
+SW_ENUM_NAME_FUNCTIONS(XuvKind, parse_xuv_kind, kXuvKindNames)
 
 constexpr EnumNames<IrKind, 2> kIrKindNames{
     {{{IrKind::kNone, "none"}, {IrKind::kGaussian, "gaussian"}}}};
 
-const char* to_string(IrKind v) { return kIrKindNames.name(v); }
-
-bool parse_ir_kind(const std::string& s, IrKind* out) { return kIrKindNames.parse(s, out); }
+SW_ENUM_NAME_FUNCTIONS(IrKind, parse_ir_kind, kIrKindNames)
 
 constexpr EnumNames<ResolutionKind, 3> kResolutionKindNames{
     {{{ResolutionKind::kNone, "none"},
       {ResolutionKind::kConstant, "constant"},
       {ResolutionKind::kRelative, "relative"}}}};
 
-const char* to_string(ResolutionKind v) { return kResolutionKindNames.name(v); }
-
-bool parse_resolution_kind(const std::string& s, ResolutionKind* out) {
-  return kResolutionKindNames.parse(s, out);
-}
+SW_ENUM_NAME_FUNCTIONS(ResolutionKind, parse_resolution_kind, kResolutionKindNames)
 
 const GaussianXuvPulse* XuvConfig::burst() const {
   switch (kind) {

@@ -58,25 +58,9 @@ void add_sidecar_extras(const Trace& trace, AnalysisResult& result);
 RetrieveOutput analyse_retrieve(const Trace& scan, const RetrieveOptions& options,
                                 const AnalysisProgress& progress = {});
 
-/// The verdict thresholds as rabbitt and classify describe them (DESIGN.md defaults, common
-/// practice; retrieve's description uses the same words). Not part of the batch option strings:
-/// batch sets them through RetrieveOptions.
-inline constexpr OptionSpec kIsolatedMaxSpec{
-    .name = "isolated_max_satellite_ratio",
-    .help = "verdict: largest satellite/main intensity ratio for 'isolated' (common practice)",
-    .min = 0,
-    .min_open = true,
-    .max = 1,
-    .flag = "--isolated-max",
-    .batch = false};
-inline constexpr OptionSpec kSatellitesMaxSpec{
-    .name = "satellites_max_satellite_ratio",
-    .help = "verdict: upper limit of the satellite/main ratio for 'isolated_with_satellites'",
-    .min = 0,
-    .min_open = true,
-    .max = 1,
-    .flag = "--satellites-max",
-    .batch = false};
+/// The verdict thresholds as rabbitt and classify describe them (retrieval/analysis/classifier.h).
+inline constexpr OptionSpec kIsolatedMaxFlagSpec = command_line_only(kIsolatedMaxSpec);
+inline constexpr OptionSpec kSatellitesMaxFlagSpec = command_line_only(kSatellitesMaxSpec);
 
 // ---------------------------------------------------------------------------------------------
 // rabbitt
@@ -175,8 +159,8 @@ struct RabbittAnalysisOptions {
                  .echo = false,
                  .batch = false},
       self.rabbitt.analyse_lines);
-    v(kIsolatedMaxSpec, self.classifier.isolated_max_satellite_ratio);
-    v(kSatellitesMaxSpec, self.classifier.satellite_max_ratio);
+    v(kIsolatedMaxFlagSpec, self.classifier.isolated_max_satellite_ratio);
+    v(kSatellitesMaxFlagSpec, self.classifier.satellite_max_ratio);
   }
 
   /// Empty when valid; otherwise names the field, its value and the rule.
@@ -217,8 +201,8 @@ struct ClassifyAnalysisOptions {
   /// The one description of the user-facing fields. Order = order of settings.* in result.json.
   template <class Self, class V>
   static void describe(Self& self, V& v) {
-    v(kIsolatedMaxSpec, self.retrieve_options.isolated_max_satellite_ratio);
-    v(kSatellitesMaxSpec, self.retrieve_options.satellites_max_satellite_ratio);
+    v(kIsolatedMaxFlagSpec, self.retrieve_options.isolated_max_satellite_ratio);
+    v(kSatellitesMaxFlagSpec, self.retrieve_options.satellites_max_satellite_ratio);
     v(OptionSpec{.name = "train_min_comparable_bursts",
                  .help = "reconstructed bursts >= 50 % of the main one that make a train",
                  .min = 2,

@@ -8,6 +8,7 @@
 
 #include <Eigen/Dense>
 
+#include "retrieval/analysis/analysis_internal.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
 #include "retrieval/core/statistics.h"
@@ -277,12 +278,9 @@ VerdictSection classify(const Trace& raw, const ClassifierOptions& opt, const Re
   if (opt.remove_hot_pixels)
     hot = remove_hot_pixels(trace.counts, Eigen::MatrixXd(), opt.hot_pixel_sigma,
                             opt.hot_pixel_ratio);
-  const double lambda =
-      opt.ir_wavelength_nm > 0 ? opt.ir_wavelength_nm : trace.meta.ir_wavelength_nm;
-  if (!(lambda > 0.0))
-    throw input_error(where +
-                      ": field 'ir_wavelength_nm' is missing or not > 0; the "
-                      "classification needs the IR period (bursts repeat every T/2).");
+  const double lambda = analysis_detail::ir_wavelength_nm_or_throw(
+      opt.ir_wavelength_nm, trace, where,
+      "classification needs the IR period (bursts repeat every T/2).");
   const double omega = units::wavelength_nm_to_omega_au(lambda);
   const double T = units::period_au(omega);
   const double bg = trace.meta.background.value_or(0.0);

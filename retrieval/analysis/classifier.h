@@ -57,11 +57,45 @@
 
 #include <string>
 
+#include "retrieval/core/option_spec.h"
 #include "retrieval/core/result.h"
 #include "retrieval/core/trace.h"
 #include "retrieval/engines/engine.h"
 
 namespace sw {
+
+/// A satellite/main intensity ratio threshold of the verdict: a number in (0, 1].
+constexpr OptionSpec satellite_ratio_spec(std::string_view name, std::string_view help,
+                                          std::string_view flag, std::string_view config_key) {
+  return OptionSpec{.name = name,
+                    .help = help,
+                    .min = 0,
+                    .min_open = true,
+                    .max = 1,
+                    .flag = flag,
+                    .config_key = config_key};
+}
+
+/// The two satellite-ratio thresholds of the verdict (DESIGN.md defaults, common practice, no
+/// published standard), described once for every analysis: the retrieve flags, batch config
+/// keys and batch option strings as RetrieveOptions uses them.
+inline constexpr OptionSpec kIsolatedMaxSpec = satellite_ratio_spec(
+    "isolated_max_satellite_ratio",
+    "verdict: largest satellite/main intensity ratio for 'isolated' (common practice)",
+    "--isolated-max", "isolated_max");
+inline constexpr OptionSpec kSatellitesMaxSpec = satellite_ratio_spec(
+    "satellites_max_satellite_ratio",
+    "verdict: upper limit of the satellite/main ratio for 'isolated_with_satellites'",
+    "--satellites-max", "satellites_max");
+
+/// A threshold as an analysis other than retrieve takes it (rabbitt, classify): on its command
+/// line only, with no config key and outside the batch option strings (batch sets the
+/// thresholds through RetrieveOptions).
+constexpr OptionSpec command_line_only(OptionSpec spec) {
+  spec.config_key = {};
+  spec.batch = false;
+  return spec;
+}
 
 struct ClassifierOptions {
   /// IR wavelength, nm; 0 = trace.meta.ir_wavelength_nm (must then be > 0).

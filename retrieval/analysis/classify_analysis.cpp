@@ -3,6 +3,7 @@
 #include <sstream>
 
 #include "retrieval/analysis/analyses.h"
+#include "retrieval/analysis/analysis_internal.h"
 #include "retrieval/core/error.h"
 #include "retrieval/preprocess/lines.h"
 
@@ -89,10 +90,7 @@ ClassifyOutput analyse_classify(const Trace& scan, const ClassifyAnalysisOptions
   if (ret && !ret->result.lines.empty()) {
     res.lines = ret->result.lines;
   } else {
-    std::string why;
-    res.lines = scan_lines(trace, pp, &why);
-    if (res.lines.empty() && !why.empty())
-      res.warnings.push_back("photoelectron lines not listed: " + why);
+    res.lines = analysis_detail::scan_lines_or_warn(trace, pp, res.warnings);
   }
   res.quality = classify_quality(trace.counts, trace.meta.background.value_or(0.0), *res.verdict,
                                  ret && ret->result.quality ? &*ret->result.quality : nullptr,

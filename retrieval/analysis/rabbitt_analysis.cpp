@@ -1,5 +1,6 @@
 // analyse_rabbitt (retrieval/analysis/analyses.h): the RABBITT pipeline of `streakwright rabbitt`.
 #include "retrieval/analysis/analyses.h"
+#include "retrieval/analysis/analysis_internal.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/units.h"
 #include "retrieval/physics/atomic_delay.h"
@@ -142,10 +143,7 @@ RabbittOutput analyse_rabbitt(const Trace& scan, const Trace* xuv_only,
   if (rb.comb_model.fitted) {
     res.lines = rabbitt_line_entries(rb, &line_evidence);
   } else {
-    std::string why;
-    res.lines = scan_lines(trace, pp, &why);
-    if (res.lines.empty() && !why.empty())
-      res.warnings.push_back("photoelectron lines not listed: " + why);
+    res.lines = analysis_detail::scan_lines_or_warn(trace, pp, res.warnings);
   }
   res.quality = rabbitt_quality(trace.counts, trace.meta.background.value_or(0.0), *res.rabbitt,
                                 options.quality, line_evidence);

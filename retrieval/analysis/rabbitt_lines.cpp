@@ -237,10 +237,11 @@ CombPeakModel fit_comb_peaks(const std::vector<double>& W, const std::vector<dou
     for (std::size_t p : Pk) ak += m.peaks[p].area;
     for (std::size_t p : Pr) ar += m.peaks[p].area;
     if (Pk.empty() || !(ar > 0)) continue;
-    const double R = ak / ar;
+    const double ratio = ak / ar;
     const double v =
-        (sum_var(Pk, Pk) - 2.0 * R * sum_var(Pk, Pr) + R * R * sum_var(Pr, Pr)) / (ar * ar);
-    m.relative_strength[k] = R;
+        (sum_var(Pk, Pk) - 2.0 * ratio * sum_var(Pk, Pr) + ratio * ratio * sum_var(Pr, Pr)) /
+        (ar * ar);
+    m.relative_strength[k] = ratio;
     m.relative_strength_sigma[k] = std::sqrt(std::max(v, 0.0));
   }
   return m;

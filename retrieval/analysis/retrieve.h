@@ -60,6 +60,7 @@
 #include <string>
 #include <vector>
 
+#include "retrieval/analysis/classifier.h"
 #include "retrieval/analysis/line_delays.h"
 #include "retrieval/analysis/quality.h"
 #include "retrieval/analysis/uncertainty.h"
@@ -218,28 +219,8 @@ struct RetrieveOptions {
                  .max = 100,
                  .batch = false},  // not settable in batch: constant there
       self.window_cut_sigma_per_share);
-    v(
-        OptionSpec{
-            .name = "isolated_max_satellite_ratio",
-            .help =
-                "verdict: largest satellite/main intensity ratio for 'isolated' (common practice)",
-            .min = 0,
-            .min_open = true,
-            .max = 1,
-            .flag = "--isolated-max",
-            .config_key = "isolated_max"},
-        self.isolated_max_satellite_ratio);
-    v(
-        OptionSpec{
-            .name = "satellites_max_satellite_ratio",
-            .help =
-                "verdict: upper limit of the satellite/main ratio for 'isolated_with_satellites'",
-            .min = 0,
-            .min_open = true,
-            .max = 1,
-            .flag = "--satellites-max",
-            .config_key = "satellites_max"},
-        self.satellites_max_satellite_ratio);
+    v(kIsolatedMaxSpec, self.isolated_max_satellite_ratio);
+    v(kSatellitesMaxSpec, self.satellites_max_satellite_ratio);
     v(OptionSpec{.name = "satellite_start",
                  .help = "auto: also start the full model from its burst with satellites at -+T/2 "
                          "(on by default)",

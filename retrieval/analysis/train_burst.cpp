@@ -69,11 +69,7 @@ double periodic_burst_fwhm(const std::vector<double>& I, double dt, std::size_t*
 constexpr EnumNames<CrossSectionModel, 2> kCrossSectionModelNames{
     {{{CrossSectionModel::kFlat, "flat"}, {CrossSectionModel::kSfaDipole, "sfa_dipole"}}}};
 
-const char* to_string(CrossSectionModel v) { return kCrossSectionModelNames.name(v); }
-
-bool parse_cross_section_model(const std::string& s, CrossSectionModel* out) {
-  return kCrossSectionModelNames.parse(s, out);
-}
+SW_ENUM_NAME_FUNCTIONS(CrossSectionModel, parse_cross_section_model, kCrossSectionModelNames)
 
 std::string TrainBurstOptions::validate() const {
   if (periods != 1 && periods != 2)

@@ -1,25 +1,16 @@
 #include "retrieval/analysis/uncertainty.h"
 
+#include "retrieval/core/enum_names.h"
+
 namespace sw {
 
-const char* to_string(UncertaintyMethod m) {
-  switch (m) {
-    case UncertaintyMethod::kFull:
-      return "full";
-    case UncertaintyMethod::kWarm:
-      return "warm";
-  }
-  return "full";
-}
+namespace {
 
-bool parse_uncertainty_method(const std::string& s, UncertaintyMethod* m) {
-  if (s == "full")
-    *m = UncertaintyMethod::kFull;
-  else if (s == "warm")
-    *m = UncertaintyMethod::kWarm;
-  else
-    return false;
-  return true;
-}
+constexpr EnumNames<UncertaintyMethod, 2> kUncertaintyMethodNames{
+    {{{UncertaintyMethod::kFull, "full"}, {UncertaintyMethod::kWarm, "warm"}}}};
+
+}  // namespace
+
+SW_ENUM_NAME_FUNCTIONS(UncertaintyMethod, parse_uncertainty_method, kUncertaintyMethodNames)
 
 }  // namespace sw

@@ -1,16 +1,15 @@
 #pragma once
 // Enum <-> name through one table per enum, so a name is written once for printing and parsing
-// (CLI flags, config files, result files). Each enum keeps its own to_string / parse_x pair; their
-// bodies are one call here:
+// (CLI flags, config files, result files). Each enum keeps its own to_string / parse_x pair
+// (declared in its header); SW_ENUM_NAME_FUNCTIONS defines both from the table:
 //
 //   constexpr EnumNames<DipoleKind, 2> kDipoleNames{{{DipoleKind::kConstant, "constant"},
 //                                                    {DipoleKind::kHydrogenic, "hydrogenic"}}};
-//   const char* to_string(DipoleKind k) { return kDipoleNames.name(k); }
-//   bool parse_dipole_kind(const std::string& s, DipoleKind* out) { return kDipoleNames.parse(s,
-//   out); }
+//   SW_ENUM_NAME_FUNCTIONS(DipoleKind, parse_dipole_kind, kDipoleNames)
 
 #include <array>
 #include <cstddef>
+#include <string>
 #include <string_view>
 #include <utility>
 
@@ -38,3 +37,9 @@ struct EnumNames {
 };
 
 }  // namespace sw
+
+/// Defines `const char* to_string(Enum)` (EnumNames::name) and `bool PARSE(const std::string&,
+/// Enum*)` (EnumNames::parse) from the EnumNames table `NAMES`, in the enclosing namespace.
+#define SW_ENUM_NAME_FUNCTIONS(Enum, PARSE, NAMES)        \
+  const char* to_string(Enum v) { return NAMES.name(v); } \
+  bool PARSE(const std::string& s, Enum* out) { return NAMES.parse(s, out); }

@@ -14,11 +14,7 @@ constexpr EnumNames<PulseClass, 4> kPulseClassNames{
       {PulseClass::kTrain, "train"},
       {PulseClass::kUndetermined, "undetermined"}}}};
 
-const char* to_string(PulseClass v) { return kPulseClassNames.name(v); }
-
-bool parse_pulse_class(const std::string& s, PulseClass* out) {
-  return kPulseClassNames.parse(s, out);
-}
+SW_ENUM_NAME_FUNCTIONS(PulseClass, parse_pulse_class, kPulseClassNames)
 
 QualityCheck& QualitySection::add(const std::string& name, double value, double limit,
                                   const std::string& rule, const std::string& detail,

@@ -1,5 +1,5 @@
 #pragma once
-// Small order statistics shared by the analyses.
+// Small order statistics and smoothing shared by the analyses and engines.
 
 #include <algorithm>
 #include <vector>
@@ -12,6 +12,23 @@ inline double median(std::vector<double> v) {
   if (v.empty()) return 0.0;
   std::nth_element(v.begin(), v.begin() + static_cast<long>(v.size() / 2), v.end());
   return v[v.size() / 2];
+}
+
+/// Moving average of v over the 2 half_width + 1 samples centred on each element; near the ends
+/// the window is cut to the samples that exist (the mean of those, no padding).
+inline std::vector<double> moving_average(const std::vector<double>& v, long half_width) {
+  const long n = static_cast<long>(v.size());
+  std::vector<double> out(v.size(), 0.0);
+  for (long j = 0; j < n; ++j) {
+    double sum = 0;
+    int count = 0;
+    for (long k = std::max(j - half_width, 0L); k <= std::min(j + half_width, n - 1); ++k) {
+      sum += v[static_cast<std::size_t>(k)];
+      ++count;
+    }
+    out[static_cast<std::size_t>(j)] = sum / count;
+  }
+  return out;
 }
 
 }  // namespace sw

@@ -13,20 +13,12 @@ constexpr EnumNames<TraceKind, 4> kTraceKindNames{{{{TraceKind::kUnknown, ""},
                                                     {TraceKind::kRabbitt, "rabbitt"},
                                                     {TraceKind::kXuvOnly, "xuv_only"}}}};
 
-const char* to_string(TraceKind v) { return kTraceKindNames.name(v); }
-
-bool parse_trace_kind(const std::string& s, TraceKind* out) {
-  return kTraceKindNames.parse(s, out);
-}
+SW_ENUM_NAME_FUNCTIONS(TraceKind, parse_trace_kind, kTraceKindNames)
 
 constexpr EnumNames<TraceFormat, 3> kTraceFormatNames{
     {{{TraceFormat::kPng16, "png16"}, {TraceFormat::kTiff, "tiff"}, {TraceFormat::kCsv, "csv"}}}};
 
-const char* to_string(TraceFormat v) { return kTraceFormatNames.name(v); }
-
-bool parse_trace_format(const std::string& s, TraceFormat* out) {
-  return kTraceFormatNames.parse(s, out);
-}
+SW_ENUM_NAME_FUNCTIONS(TraceFormat, parse_trace_format, kTraceFormatNames)
 
 void Trace::validate(const std::string& where) const {
   auto fail = [&](const std::string& m) { throw input_error(where + ": " + m); };

@@ -9,6 +9,7 @@
 
 #include <Eigen/Core>
 
+#include "retrieval/core/enum_names.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
 #include "retrieval/core/hot_loop.h"
@@ -19,42 +20,19 @@
 
 namespace sw {
 
-const char* to_string(CmaSpectrum s) {
-  switch (s) {
-    case CmaSpectrum::kCentroid:
-      return "centroid";
-    case CmaSpectrum::kOff:
-      return "off";
-    default:
-      return "amplitude";
-  }
-}
+namespace {
 
-bool parse_option(const std::string& s, CmaSpectrum* out) {
-  if (s == "amplitude")
-    *out = CmaSpectrum::kAmplitude;
-  else if (s == "centroid")
-    *out = CmaSpectrum::kCentroid;
-  else if (s == "off")
-    *out = CmaSpectrum::kOff;
-  else
-    return false;
-  return true;
-}
+constexpr EnumNames<CmaSpectrum, 3> kCmaSpectrumNames{{{{CmaSpectrum::kAmplitude, "amplitude"},
+                                                        {CmaSpectrum::kCentroid, "centroid"},
+                                                        {CmaSpectrum::kOff, "off"}}}};
+constexpr EnumNames<CmaProjection, 2> kCmaProjectionNames{
+    {{{CmaProjection::kPoisson, "poisson"}, {CmaProjection::kAmplitude, "amplitude"}}}};
 
-const char* to_string(CmaProjection p) {
-  return p == CmaProjection::kPoisson ? "poisson" : "amplitude";
-}
+}  // namespace
 
-bool parse_option(const std::string& s, CmaProjection* out) {
-  if (s == "poisson")
-    *out = CmaProjection::kPoisson;
-  else if (s == "amplitude")
-    *out = CmaProjection::kAmplitude;
-  else
-    return false;
-  return true;
-}
+SW_ENUM_NAME_FUNCTIONS(CmaSpectrum, parse_option, kCmaSpectrumNames)
+
+SW_ENUM_NAME_FUNCTIONS(CmaProjection, parse_option, kCmaProjectionNames)
 
 namespace {
 

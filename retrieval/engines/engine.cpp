@@ -10,27 +10,25 @@
 #include <mutex>
 #include <sstream>
 
+#include "retrieval/core/enum_names.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
 
 namespace sw {
 
-const char* to_string(Termination t) {
-  switch (t) {
-    case Termination::kConverged:
-      return "converged";
-    case Termination::kNoiseFloor:
-      return "noise_floor";
-    case Termination::kMaxIterations:
-      return "max_iterations";
-    case Termination::kTimeLimit:
-      return "time_limit";
-    case Termination::kUserStopped:
-      return "user_stopped";
-    default:
-      return "failure";
-  }
-}
+namespace {
+
+constexpr EnumNames<Termination, 6> kTerminationNames{
+    {{{Termination::kConverged, "converged"},
+      {Termination::kNoiseFloor, "noise_floor"},
+      {Termination::kMaxIterations, "max_iterations"},
+      {Termination::kTimeLimit, "time_limit"},
+      {Termination::kUserStopped, "user_stopped"},
+      {Termination::kFailure, "failure"}}}};
+
+}  // namespace
+
+const char* to_string(Termination t) { return kTerminationNames.name(t); }
 
 // --- options --------------------------------------------------------------------------------
 

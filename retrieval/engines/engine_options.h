@@ -108,4 +108,14 @@ void read_described_extras(const EngineOptions& options, const std::string& engi
   Settings::describe(*settings, read);
 }
 
+/// read_described_extras over the defaults, then the settings' validate(): throws
+/// sw::Error(kUsage) "<engine>: <validate() message>" when a bound is broken.
+template <class Settings>
+Settings read_validated_extras(const EngineOptions& options, const std::string& engine) {
+  Settings settings;
+  read_described_extras(options, engine, &settings);
+  if (const std::string e = settings.validate(); !e.empty()) throw usage_error(engine + ": " + e);
+  return settings;
+}
+
 }  // namespace sw

@@ -34,10 +34,7 @@ FullModelSettings read_full_model_settings(const EngineOptions& o) {
     if (o.has_extra(opt.name))
       if (const std::string e = opt.validate(o.extra_string(opt.name, "")); !e.empty())
         throw usage_error("full-model: engine option " + e);
-  FullModelSettings s;
-  read_described_extras(o, "full-model", &s);
-  if (const std::string e = s.validate(); !e.empty()) throw usage_error("full-model: " + e);
-  return s;
+  return read_validated_extras<FullModelSettings>(o, "full-model");
 }
 
 namespace {

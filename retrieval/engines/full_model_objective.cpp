@@ -5,6 +5,7 @@
 #include <sstream>
 
 #include "retrieval/core/error.h"
+#include "retrieval/core/statistics.h"
 #include "retrieval/core/units.h"
 #include "retrieval/engines/full_model_internal.h"
 
@@ -151,18 +152,7 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
 
   // Spectral support.
   const std::vector<double> ref = reference_spectrum(P);
-  std::vector<double> smooth(ne_, 0.0);
-  for (std::size_t j = 0; j < ne_; ++j) {
-    double acc = 0;
-    int cnt = 0;
-    for (long d = -2; d <= 2; ++d) {
-      const long k = static_cast<long>(j) + d;
-      if (k < 0 || k >= static_cast<long>(ne_)) continue;
-      acc += ref[static_cast<std::size_t>(k)];
-      ++cnt;
-    }
-    smooth[j] = acc / cnt;
-  }
+  const std::vector<double> smooth = moving_average(ref, 2);
   const double mx = *std::max_element(smooth.begin(), smooth.end());
   std::vector<char> in(ne_, s.support_threshold == 0.0 ? 1 : 0);
   if (s.support_threshold > 0)

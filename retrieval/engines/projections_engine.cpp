@@ -72,9 +72,7 @@ class ProjectionsEngine final : public Engine {
   }
 
   void prepare(const RetrievalProblem& problem, const EngineOptions& options) override {
-    ProjectionsSettings ps;
-    read_described_extras(options, name(), &ps);
-    if (const std::string e = ps.validate(); !e.empty()) throw usage_error(name() + ": " + e);
+    const auto ps = read_validated_extras<ProjectionsSettings>(options, name());
     cma_.emplace(problem, ps.cma, name());
     const std::string& mode = ps.mode;
     const bool matched = matched_grid(problem.delay_au, problem.grid.dt());
@@ -93,11 +91,7 @@ class ProjectionsEngine final : public Engine {
     exit_.assign(nd * n, 0.0);
     per_thread_.resize(static_cast<std::size_t>(threads_));
     for (auto& t : per_thread_) {
-      t.g.assign(n, 0.0);
-      t.psi.assign(n, 0.0);
-      t.spec.assign(n, 0.0);
-      t.u.assign(n, 0.0);
-      t.num.assign(n, 0.0);
+      for (CVec* v : {&t.g, &t.psi, &t.spec, &t.u, &t.num}) v->assign(n, 0.0);
       t.den.assign(n, 0.0);
       t.acc.assign(M, 0.0);
       t.scratch.assign(cma_->scratch_size(), 0.0);

@@ -71,9 +71,7 @@ class PtychographicEngine final : public Engine {
   }
 
   void prepare(const RetrievalProblem& problem, const EngineOptions& options) override {
-    PtychographicSettings ps;
-    read_described_extras(options, name(), &ps);
-    if (const std::string e = ps.validate(); !e.empty()) throw usage_error(name() + ": " + e);
+    const auto ps = read_validated_extras<PtychographicSettings>(options, name());
     CmaSettings settings = ps.cma;
     settings.momentum_bands = ps.momentum_bands;
     cma_.emplace(problem, settings, name());

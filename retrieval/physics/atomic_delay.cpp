@@ -125,11 +125,7 @@ double coulomb_wigner_delay_au(int l, double W, double omega, double Z) {
 constexpr EnumNames<AtomicDelayMode, 2> kAtomicDelayModeNames{
     {{{AtomicDelayMode::kAuto, "auto"}, {AtomicDelayMode::kNone, "none"}}}};
 
-const char* to_string(AtomicDelayMode v) { return kAtomicDelayModeNames.name(v); }
-
-bool parse_atomic_delay_mode(const std::string& s, AtomicDelayMode* out) {
-  return kAtomicDelayModeNames.parse(s, out);
-}
+SW_ENUM_NAME_FUNCTIONS(AtomicDelayMode, parse_atomic_delay_mode, kAtomicDelayModeNames)
 
 std::string AtomicDelayOptions::validate() const {
   if (channel_l < -1 || channel_l > 6)

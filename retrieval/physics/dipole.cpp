@@ -7,11 +7,7 @@ namespace sw {
 constexpr EnumNames<DipoleKind, 2> kDipoleKindNames{
     {{{DipoleKind::kConstant, "constant"}, {DipoleKind::kHydrogenic, "hydrogenic"}}}};
 
-const char* to_string(DipoleKind v) { return kDipoleKindNames.name(v); }
-
-bool parse_dipole_kind(const std::string& s, DipoleKind* out) {
-  return kDipoleKindNames.parse(s, out);
-}
+SW_ENUM_NAME_FUNCTIONS(DipoleKind, parse_dipole_kind, kDipoleKindNames)
 
 DipoleModel::DipoleModel(DipoleKind kind, double ip_au, double k_ref) : kind_(kind) {
   kappa2_ = 2.0 * ip_au;

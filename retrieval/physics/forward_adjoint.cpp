@@ -179,14 +179,19 @@ void ForwardAdjoint::vjp(const CVec& eps, const IrField& ir, const Eigen::Matrix
       A_bar, 0.0, 0.0, nullptr);
 }
 
-void ForwardAdjoint::scaled_cost(const CVec& eps, const IrField& ir, const Eigen::MatrixXd& M,
-                                 const Eigen::MatrixXd& w, bool with_gradient, ScaledCostParts* out,
-                                 Eigen::MatrixXd* model) const {
+void ForwardAdjoint::check_cost_inputs(const Eigen::MatrixXd& M, const Eigen::MatrixXd& w,
+                                       const char* method) const {
   const auto nd = static_cast<Eigen::Index>(delay_.size());
   const auto ne = static_cast<Eigen::Index>(energy_.size());
   if (M.rows() != nd || M.cols() != ne || w.rows() != nd || w.cols() != ne)
-    throw std::invalid_argument(
-        "ForwardAdjoint::scaled_cost: measured/weight not delays x energies");
+    throw std::invalid_argument(std::string("ForwardAdjoint::") + method +
+                                ": measured/weight not delays x energies");
+}
+
+void ForwardAdjoint::scaled_cost(const CVec& eps, const IrField& ir, const Eigen::MatrixXd& M,
+                                 const Eigen::MatrixXd& w, bool with_gradient, ScaledCostParts* out,
+                                 Eigen::MatrixXd* model) const {
+  check_cost_inputs(M, w, "scaled_cost");
   run(Mode::kScaledCost, eps, ir, nullptr, &M, &w, with_gradient, nullptr, model, out, nullptr,
       nullptr, 0.0, 0.0, nullptr);
 }
@@ -195,11 +200,7 @@ void ForwardAdjoint::projected_cost(const CVec& eps, const IrField& ir, const Ei
                                     const Eigen::MatrixXd& w, double extra_c2, double extra_c1,
                                     bool with_gradient, ProjectedCostParts* out,
                                     Eigen::MatrixXd* model) const {
-  const auto nd = static_cast<Eigen::Index>(delay_.size());
-  const auto ne = static_cast<Eigen::Index>(energy_.size());
-  if (M.rows() != nd || M.cols() != ne || w.rows() != nd || w.cols() != ne)
-    throw std::invalid_argument(
-        "ForwardAdjoint::projected_cost: measured/weight not delays x energies");
+  check_cost_inputs(M, w, "projected_cost");
   run(Mode::kProjected, eps, ir, nullptr, &M, &w, with_gradient, nullptr, model, nullptr, nullptr,
       nullptr, extra_c2, extra_c1, out);
 }

@@ -156,6 +156,9 @@ class ForwardAdjoint {
 
  private:
   struct Workspace;
+  // Throws std::invalid_argument naming `method` unless M and w are delays x energies.
+  void check_cost_inputs(const Eigen::MatrixXd& M, const Eigen::MatrixXd& w,
+                         const char* method) const;
   enum class Mode { kAmplitude, kVjp, kScaledCost, kProjected };
   void run(Mode mode, const CVec& eps, const IrField& ir, const Eigen::MatrixXcd* a_bar,
            const Eigen::MatrixXd* measured, const Eigen::MatrixXd* weight, bool with_gradient,

@@ -6,6 +6,28 @@
 
 namespace sw::detail {
 
+namespace {
+
+// Taylor coefficients of (sin r - r) / r^3 and (cos r - 1) / r^2 in r^2, highest order first.
+constexpr double kSinTaylor[] = {2.8114572543455207632e-15, -7.6471637318198164759e-13,
+                                 1.6059043836821614599e-10, -2.5052108385441718775e-08,
+                                 2.7557319223985890653e-06, -1.9841269841269841270e-04,
+                                 8.3333333333333333333e-03, -1.6666666666666666667e-01};
+constexpr double kCosTaylor[] = {4.7794773323873852974e-14, -1.1470745597729724714e-11,
+                                 2.0876756987868098979e-09, -2.7557319223985890653e-07,
+                                 2.4801587301587301587e-05, -1.3888888888888888889e-03,
+                                 4.1666666666666666667e-02, -0.5};
+
+// The polynomial with coefficients c (highest order first) at x, by Horner's rule.
+template <std::size_t N>
+inline double horner(double x, const double (&c)[N]) {
+  double p = c[0];
+  for (std::size_t k = 1; k < N; ++k) p = p * x + c[k];
+  return p;
+}
+
+}  // namespace
+
 SW_WIDE_LOOP void sincos_affine(const double* __restrict__ u, const double* __restrict__ v,
                                 double a, double b, double bound, double* __restrict__ s,
                                 double* __restrict__ c, std::size_t n) {
@@ -26,24 +48,8 @@ SW_WIDE_LOOP void sincos_affine(const double* __restrict__ u, const double* __re
     const double kd = (x * kTwoOverPi + kRound) - kRound;
     const double r = ((x - kd * kP1) - kd * kP2) - kd * kP3;
     const double r2 = r * r;
-    double sp = 2.8114572543455207632e-15;
-    sp = sp * r2 - 7.6471637318198164759e-13;
-    sp = sp * r2 + 1.6059043836821614599e-10;
-    sp = sp * r2 - 2.5052108385441718775e-08;
-    sp = sp * r2 + 2.7557319223985890653e-06;
-    sp = sp * r2 - 1.9841269841269841270e-04;
-    sp = sp * r2 + 8.3333333333333333333e-03;
-    sp = sp * r2 - 1.6666666666666666667e-01;
-    const double sr = r + r * r2 * sp;
-    double cp = 4.7794773323873852974e-14;
-    cp = cp * r2 - 1.1470745597729724714e-11;
-    cp = cp * r2 + 2.0876756987868098979e-09;
-    cp = cp * r2 - 2.7557319223985890653e-07;
-    cp = cp * r2 + 2.4801587301587301587e-05;
-    cp = cp * r2 - 1.3888888888888888889e-03;
-    cp = cp * r2 + 4.1666666666666666667e-02;
-    cp = cp * r2 - 0.5;
-    const double cr = 1.0 + r2 * cp;
+    const double sr = r + r * r2 * horner(r2, kSinTaylor);
+    const double cr = 1.0 + r2 * horner(r2, kCosTaylor);
     const int q = static_cast<int>(kd);
     const double swap = static_cast<double>(q & 1);
     const double sgn_s = 1.0 - 2.0 * static_cast<double>((q >> 1) & 1);

@@ -17,6 +17,14 @@ std::string describe(const char* field, double value, const char* constraint) {
   return os.str();
 }
 
+// The checks a train and a burst with satellites share: the burst, then the driver wavelength.
+std::string validate_burst_and_driver(const GaussianXuvPulse& burst, double driver_wavelength_nm) {
+  if (std::string m = burst.validate(); !m.empty()) return "burst." + m;
+  if (!(driver_wavelength_nm > 0.0) || !std::isfinite(driver_wavelength_nm))
+    return describe("driver_wavelength_nm", driver_wavelength_nm, "a finite wavelength > 0 nm");
+  return {};
+}
+
 void throw_if_invalid(const std::string& what, const std::string& message) {
   if (!message.empty()) throw usage_error(what + ": " + message);
 }
@@ -71,10 +79,7 @@ std::string GaussianXuvPulse::validate() const {
 }
 
 std::string XuvTrain::validate() const {
-  std::string m = burst.validate();
-  if (!m.empty()) return "burst." + m;
-  if (!(driver_wavelength_nm > 0.0) || !std::isfinite(driver_wavelength_nm))
-    return describe("driver_wavelength_nm", driver_wavelength_nm, "a finite wavelength > 0 nm");
+  if (std::string m = validate_burst_and_driver(burst, driver_wavelength_nm); !m.empty()) return m;
   if (!(train_fwhm_fs > 0.0) || !std::isfinite(train_fwhm_fs))
     return describe("train_fwhm_fs", train_fwhm_fs, "a finite duration > 0 fs");
   if (max_bursts < 1) return describe("max_bursts", max_bursts, "at least 1");
@@ -82,10 +87,7 @@ std::string XuvTrain::validate() const {
 }
 
 std::string XuvWithSatellites::validate() const {
-  std::string m = burst.validate();
-  if (!m.empty()) return "burst." + m;
-  if (!(driver_wavelength_nm > 0.0) || !std::isfinite(driver_wavelength_nm))
-    return describe("driver_wavelength_nm", driver_wavelength_nm, "a finite wavelength > 0 nm");
+  if (std::string m = validate_burst_and_driver(burst, driver_wavelength_nm); !m.empty()) return m;
   if (!(satellite_intensity_ratio_before >= 0.0) ||
       !std::isfinite(satellite_intensity_ratio_before))
     return describe("satellite_intensity_ratio_before", satellite_intensity_ratio_before,

@@ -292,22 +292,23 @@ BackgroundModel fit_background(const Eigen::MatrixXd& counts, const std::vector<
       note << "no significant low-energy tail; ";
     }
   }
+  // The fitted amplitudes in the order of the design's columns, each with its sigma.
   int c = 0;
-  m.constant_counts = best.theta(c);
-  m.constant_counts_sigma = std::sqrt(best.cov(c, c));
-  ++c;
+  auto next_amplitude = [&](double& value, double& sigma) {
+    value = best.theta(c);
+    sigma = std::sqrt(best.cov(c, c));
+    ++c;
+  };
+  next_amplitude(m.constant_counts, m.constant_counts_sigma);
   if (use_tail) {
     m.has_tail = true;
-    m.tail_counts_at_zero = best.theta(c);
-    m.tail_counts_at_zero_sigma = std::sqrt(best.cov(c, c));
+    next_amplitude(m.tail_counts_at_zero, m.tail_counts_at_zero_sigma);
     m.tail_decay_eV = best_w;
     m.tail_decay_eV_sigma = w_sigma;
-    ++c;
   }
   if (use_tof) {
     m.has_tof = true;
-    m.tof_counts = best.theta(c);
-    m.tof_counts_sigma = std::sqrt(best.cov(c, c));
+    next_amplitude(m.tof_counts, m.tof_counts_sigma);
     m.tof_reference_eV = Wref;
     m.tof_offset_eV = tof_offset_eV;
   }

@@ -7,6 +7,7 @@
 
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
+#include "retrieval/core/statistics.h"
 #include "retrieval/core/units.h"
 
 namespace sw {
@@ -118,18 +119,7 @@ LineSearch find_lines(const std::vector<double>& W, const std::vector<double>& c
   if (cand.empty()) return out;
 
   // Smoothed spectrum, its peak and the peak's support.
-  std::vector<double> sm(n, 0.0);
-  for (std::size_t j = 0; j < n; ++j) {
-    double a = 0;
-    int c = 0;
-    for (long d = -2; d <= 2; ++d) {
-      const long k = static_cast<long>(j) + d;
-      if (k < 0 || k >= static_cast<long>(n)) continue;
-      a += counts[static_cast<std::size_t>(k)];
-      ++c;
-    }
-    sm[j] = a / c;
-  }
+  const std::vector<double> sm = moving_average(counts, 2);
   const std::size_t jp =
       static_cast<std::size_t>(std::max_element(sm.begin(), sm.end()) - sm.begin());
   const double peak = sm[jp];
@@ -217,15 +207,8 @@ LineSearch find_lines(const std::vector<double>& W, const std::vector<double>& c
   for (std::size_t h = 0; h < cand.size(); ++h) {
     Hyp& H = hyp[h];
     const std::size_t m = cand.size();
-    H.centre.assign(m, 0.0);
-    H.c0.assign(m, 0.0);
-    H.c1.assign(m, 0.0);
-    H.cnt.assign(m, 0.0);
-    H.v.assign(m, 0.0);
-    H.sig.assign(m, 0.0);
-    H.sys.assign(m, 0.0);
-    H.measurable.assign(m, 0);
-    H.seen.assign(m, 0);
+    for (auto* v : {&H.centre, &H.c0, &H.c1, &H.cnt, &H.v, &H.sig, &H.sys}) v->assign(m, 0.0);
+    for (auto* f : {&H.measurable, &H.seen}) f->assign(m, 0);
     const double photon = Wp + cand[h].ip_eV;
     for (std::size_t k = 0; k < m; ++k) H.centre[k] = photon - cand[k].ip_eV;
     // Cells: the reference's support moved to each line, cut half way to the nearest
@@ -542,31 +525,21 @@ bool choose_window(const LineSearch& s, const std::vector<double>& W, double str
         hi = std::min(hi, std::min(c, ref_hi + streak));
       continue;
     }
-    if (c < Wr) {
-      const double edge = c + rh;  // the neighbour's upper support edge
-      if (edge >= ref_lo) {
-        if (warnings)
-          warnings->push_back(
-              "line " + who + " at " + format_g(c) + " eV overlaps the analysed line " + ref.name +
-              " (its band reaches " + format_g(edge) + " eV, the analysed band starts at " +
-              format_g(ref_lo) + " eV): the window is cut half way between the line centres");
-        lo = std::max(lo, 0.5 * (c + Wr));
-      } else {
-        lo = std::max(lo, 0.5 * (edge + ref_lo));
-      }
-    } else {
-      const double edge = c - lh;
-      if (edge <= ref_hi) {
-        if (warnings)
-          warnings->push_back(
-              "line " + who + " at " + format_g(c) + " eV overlaps the analysed line " + ref.name +
-              " (its band starts at " + format_g(edge) + " eV, the analysed band ends at " +
-              format_g(ref_hi) + " eV): the window is cut half way between the line centres");
-        hi = std::min(hi, 0.5 * (c + Wr));
-      } else {
-        hi = std::min(hi, 0.5 * (edge + ref_hi));
-      }
-    }
+    // The neighbour's support edge facing the reference, and the reference's edge facing it.
+    const bool below = c < Wr;
+    const double edge = below ? c + rh : c - lh, ref_edge = below ? ref_lo : ref_hi;
+    const bool overlaps = below ? edge >= ref_lo : edge <= ref_hi;
+    if (overlaps && warnings)
+      warnings->push_back(
+          "line " + who + " at " + format_g(c) + " eV overlaps the analysed line " + ref.name +
+          (below ? " (its band reaches " : " (its band starts at ") + format_g(edge) +
+          (below ? " eV, the analysed band starts at " : " eV, the analysed band ends at ") +
+          format_g(ref_edge) + " eV): the window is cut half way between the line centres");
+    const double cut = overlaps ? 0.5 * (c + Wr) : 0.5 * (edge + ref_edge);
+    if (below)
+      lo = std::max(lo, cut);
+    else
+      hi = std::min(hi, cut);
   }
   if (!other) return false;
   *lo_eV = std::max(lo, W.front());
