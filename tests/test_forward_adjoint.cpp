@@ -9,16 +9,12 @@
 #include "retrieval/core/units.h"
 #include "retrieval/physics/forward_adjoint.h"
 #include "retrieval/physics/forward_model.h"
+#include "test_support.h"
 
 using namespace sw;
+using sw::test::axis;
 
 namespace {
-
-std::vector<double> axis(double first, double step, int n) {
-  std::vector<double> v(static_cast<std::size_t>(n));
-  for (int i = 0; i < n; ++i) v[static_cast<std::size_t>(i)] = first + step * i;
-  return v;
-}
 
 // A chirped ~100 as pulse at the given carrier with a small random ripple, so that no
 // symmetry hides a sign error in the adjoint.

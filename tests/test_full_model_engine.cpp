@@ -14,16 +14,12 @@
 #include "retrieval/physics/forward_model.h"
 #include "retrieval/physics/pulse_metrics.h"
 #include "retrieval/physics/xuv_builders.h"
+#include "test_support.h"
 
 using namespace sw;
+using sw::test::axis;
 
 namespace {
-
-std::vector<double> axis(double first, double step, int n) {
-  std::vector<double> v(static_cast<std::size_t>(n));
-  for (int i = 0; i < n; ++i) v[static_cast<std::size_t>(i)] = first + step * i;
-  return v;
-}
 
 // A synthetic scan with known truth, built the way preprocess() hands it to the engines:
 // counts per bin ~ Poisson(peak_counts x p |a|^2 / max), intensity = counts / p, Poisson

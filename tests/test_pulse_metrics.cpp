@@ -11,16 +11,12 @@
 #include "retrieval/core/units.h"
 #include "retrieval/physics/pulse_metrics.h"
 #include "retrieval/physics/xuv_builders.h"
+#include "test_support.h"
 
 using namespace sw;
+using sw::test::axis;
 
 namespace {
-
-std::vector<double> axis(double first, double step, int n) {
-  std::vector<double> x(static_cast<std::size_t>(n));
-  for (int i = 0; i < n; ++i) x[static_cast<std::size_t>(i)] = first + step * i;
-  return x;
-}
 
 template <class F>
 std::vector<double> sample(const std::vector<double>& x, F f) {

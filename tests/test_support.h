@@ -1,5 +1,6 @@
 #pragma once
-// Helpers shared by the test files: a self-removing temporary folder and a text writer.
+// Helpers shared by the test files: a uniform axis, a self-removing temporary folder, a text
+// writer and command-line runs.
 
 #include <sys/wait.h>
 #include <unistd.h>
@@ -15,6 +16,13 @@
 #include <vector>
 
 namespace sw::test {
+
+/// `n` values first, first + step, ..., first + (n - 1) step.
+inline std::vector<double> axis(double first, double step, int n) {
+  std::vector<double> v(static_cast<std::size_t>(n));
+  for (int i = 0; i < n; ++i) v[static_cast<std::size_t>(i)] = first + step * i;
+  return v;
+}
 
 /// A fresh folder under the system temp directory, removed with its contents on destruction.
 /// Unique per process, tag, random draw and clock tick, so parallel test processes never share it.

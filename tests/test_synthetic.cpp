@@ -20,17 +20,13 @@
 #include "synthetic/presets.h"
 #include "synthetic/sfa_quadrature.h"
 #include "synthetic/volkov_table.h"
+#include "test_support.h"
 
 using namespace sw;
+using sw::test::axis;
 using namespace sw::synthetic;
 
 namespace {
-
-std::vector<double> axis(double first, double step, int n) {
-  std::vector<double> v(static_cast<std::size_t>(n));
-  for (int i = 0; i < n; ++i) v[static_cast<std::size_t>(i)] = first + step * i;
-  return v;
-}
 
 ScanConfig noiseless(ScanConfig c) {
   c.noise.poisson = false;
