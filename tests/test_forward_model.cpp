@@ -5,7 +5,7 @@
 
 #include "retrieval/core/units.h"
 #include "retrieval/physics/forward_model.h"
-#include "test_support.h"
+#include "tests/test_support.h"
 
 using namespace sw;
 using sw::test::axis;

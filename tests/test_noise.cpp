@@ -11,7 +11,7 @@
 #include "synthetic/generator.h"
 #include "synthetic/noise.h"
 #include "synthetic/presets.h"
-#include "test_support.h"
+#include "tests/test_support.h"
 
 using namespace sw;
 using sw::test::axis;
