@@ -10,6 +10,7 @@
 #include <algorithm>
 #include <cmath>
 #include <random>
+#include <utility>
 #include <vector>
 
 #include "retrieval/core/units.h"
@@ -47,6 +48,16 @@ struct CaseSpec {
   double field_free_exposure = 10.0;
   unsigned long long seed = 7;
 };
+
+/// The noisy case of the engine tests: Poisson noise at 100 counts at the trace's peak (seed
+/// 2024) on a pulse with the given GDD.
+inline CaseSpec poisson_100_spec(double gdd_as2) {
+  CaseSpec s;
+  s.gdd_as2 = gdd_as2;
+  s.peak_counts = 100;
+  s.seed = 2024;
+  return s;
+}
 
 struct Case {
   RetrievalProblem problem;
@@ -189,6 +200,16 @@ inline void check_truth(const Case& c, const Reconstruction& r, double tolerance
   } else {
     CHECK(std::abs(got.gdd_as2) < 300);
   }
+}
+
+// Runs a registered engine on a case and checks it against the truth to 5 % (check_truth) and
+// that it converged.
+inline Reconstruction retrieve_checked(const Case& c, const std::string& engine,
+                                       EngineOptions o = {}) {
+  Reconstruction r = retrieve(c, engine, std::move(o));
+  check_truth(c, r, 0.05);
+  CHECK(r.converged());
+  return r;
 }
 
 }  // namespace sw::testing

@@ -10,6 +10,7 @@
 #include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/check_support.h"
 
 using namespace sw;
 
@@ -36,13 +37,9 @@ synthetic::SyntheticScan neon_with_background(double c, double a, double w,
 }  // namespace
 
 TEST_CASE("background options: defaults validate, bad values are named", "[background]") {
-  CHECK(BackgroundOptions{}.validate().empty());
-  BackgroundOptions o;
-  o.group_bins = 0;
-  CHECK_THAT(o.validate(), Catch::Contains("group_bins = 0"));
-  o = BackgroundOptions{};
-  o.tail_decay_max_eV = 0.5;
-  CHECK_THAT(o.validate(), Catch::Contains("tail_decay_max_eV"));
+  test::check_validation<BackgroundOptions>(
+      {{[](auto& o) { o.group_bins = 0; }, "group_bins = 0"},
+       {[](auto& o) { o.tail_decay_max_eV = 0.5; }, "tail_decay_max_eV"}});
 }
 
 TEST_CASE("background bins avoid the streaked signal", "[background]") {

@@ -26,41 +26,17 @@
 #include "io/trace_writer.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/test_support.h"
 
 namespace fs = std::filesystem;
 using nlohmann::json;
 
 namespace {
 
+using namespace sw::test;
+
 // Fast analysis settings: few iterations, no bootstrap (the brief's recipe for test speed).
 const std::string kFast = " --engine ptychographic --iterations 25 --bootstrap 0 -q";
-
-struct Cli {
-  int status = -1;
-  std::string out, err;
-};
-
-Cli run_cli(const std::string& args, const std::string& tag) {
-  const fs::path o =
-      fs::temp_directory_path() / ("sw_batch_cli_" + std::to_string(getpid()) + "_" + tag);
-  const std::string cmd = std::string("'") + STREAKWRIGHT_CLI_PATH + "' " + args + " > '" +
-                          o.string() + ".out' 2> '" + o.string() + ".err'";
-  Cli c;
-  const int rc = std::system(cmd.c_str());
-  c.status = WIFEXITED(rc) ? WEXITSTATUS(rc) : -1;
-  c.out = sw::read_file_bytes(o.string() + ".out");
-  c.err = sw::read_file_bytes(o.string() + ".err");
-  fs::remove(o.string() + ".out");
-  fs::remove(o.string() + ".err");
-  return c;
-}
-
-std::string q(const fs::path& p) {
-  std::string s(1, '\'');
-  s += p.string();
-  s += '\'';
-  return s;
-}
 
 /// Small streaking scan of the reference scenario (neon, 800 nm, 5 fs IR): 41 delays x 120
 /// energies, enough for the CMA engines and fast to generate.
@@ -254,14 +230,22 @@ bool same_numbers(const json& a, const json& b, std::string* why) {
   return true;
 }
 
+/// Checks that scan `n` has the same result numbers in rows `a` and `b` (same_numbers).
+void check_same_numbers(const std::string& n, const json& a, const json& b) {
+  std::string why;
+  const bool same = same_numbers(numbers_of(a), numbers_of(b), &why);
+  INFO(n << ": " << why);
+  CHECK(same);
+}
+
 /// The single-process reference run (--jobs 2), made once.
 const fs::path& reference_run() {
   static fs::path out;
-  static Cli cli;
+  static CliOutput cli;
   if (out.empty()) {
     out = archive().root / "out_reference";
-    cli =
-        run_cli("batch " + q(archive().archive) + " --out " + q(out) + " --jobs 2" + kFast, "ref");
+    cli = run_cli_apart("batch " + shell_quoted(archive().archive) + " --out " + shell_quoted(out) +
+                        " --jobs 2" + kFast);
     INFO(cli.err);
     REQUIRE(cli.status == 5);  // broken scans present: documented exit status 5
   }
@@ -340,18 +324,13 @@ TEST_CASE("batch over a mixed archive: ok rows, specific failures, untouched inp
 TEST_CASE("--jobs 1 and --jobs 2 give identical result numbers", "[batch]") {
   const fs::path& ref = reference_run();
   const fs::path out = archive().root / "out_jobs1";
-  const Cli c =
-      run_cli("batch " + q(archive().archive) + " --out " + q(out) + " --jobs 1" + kFast, "jobs1");
+  const CliOutput c = run_cli_apart("batch " + shell_quoted(archive().archive) + " --out " +
+                                    shell_quoted(out) + " --jobs 1" + kFast);
   INFO(c.err);
   CHECK(c.status == 5);
   const auto a = rows_by_scan(ref), b = rows_by_scan(out);
   REQUIRE(a.size() == b.size());
-  for (const auto& [n, r] : a) {
-    std::string why;
-    const bool same = same_numbers(numbers_of(r), numbers_of(b.at(n)), &why);
-    INFO(n << ": " << why);
-    CHECK(same);
-  }
+  for (const auto& [n, r] : a) check_same_numbers(n, r, b.at(n));
 }
 
 TEST_CASE("--resume rewrites nothing when nothing changed and re-runs exactly the changed scans",
@@ -363,12 +342,13 @@ TEST_CASE("--resume rewrites nothing when nothing changed and re-runs exactly th
     fs::copy(archive().archive / d, src / d, fs::copy_options::recursive);
   fs::copy(archive().archive / "broken", src / "broken", fs::copy_options::recursive);
   const fs::path out = archive().root / "resume_out";
-  const std::string base = "batch " + q(src) + " --out " + q(out) + " --jobs 2" + kFast;
-  REQUIRE(run_cli(base, "r0").status == 5);
+  const std::string base =
+      "batch " + shell_quoted(src) + " --out " + shell_quoted(out) + " --jobs 2" + kFast;
+  REQUIRE(run_cli_apart(base).status == 5);
   std::map<std::string, long long> t0;
   for (const auto& n : streaking_names()) t0[n] = mtime_ns(out / n / "result.json");
 
-  const Cli same = run_cli(base + " --resume", "r1");
+  const CliOutput same = run_cli_apart(base + " --resume");
   INFO(same.err);
   CHECK(same.status == 5);  // the broken scans are still broken
   for (const auto& n : streaking_names()) CHECK(mtime_ns(out / n / "result.json") == t0[n]);
@@ -385,7 +365,7 @@ TEST_CASE("--resume rewrites nothing when nothing changed and re-runs exactly th
     y += "gain_note: \"re-read after the detector gain change\"\n";
     std::ofstream(src / "2024/scan_b.yaml") << y;
   }
-  const Cli changed = run_cli(base + " --resume", "r2");
+  const CliOutput changed = run_cli_apart(base + " --resume");
   INFO(changed.err);
   CHECK(changed.status == 5);
   rows = rows_by_scan(out);
@@ -397,14 +377,14 @@ TEST_CASE("--resume rewrites nothing when nothing changed and re-runs exactly th
     CHECK(rows.at(n)["status"] == "ok");
   }
   // Different analysis options: nothing is reused.
-  const Cli opts = run_cli("batch " + q(src / "2024") + " --out " +
-                               q(archive().root / "resume_out2") + kFast + " --resume",
-                           "r3");
+  const CliOutput opts =
+      run_cli_apart("batch " + shell_quoted(src / "2024") + " --out " +
+                    shell_quoted(archive().root / "resume_out2") + kFast + " --resume");
   CHECK(opts.status == 0);
-  const Cli opts2 =
-      run_cli("batch " + q(src / "2024") + " --out " + q(archive().root / "resume_out2") +
-                  " --engine ptychographic --iterations 26 --bootstrap 0 -q --resume",
-              "r4");
+  const CliOutput opts2 =
+      run_cli_apart("batch " + shell_quoted(src / "2024") + " --out " +
+                    shell_quoted(archive().root / "resume_out2") +
+                    " --engine ptychographic --iterations 26 --bootstrap 0 -q --resume");
   CHECK(opts2.status == 0);
   CHECK(opts2.out.find("reused") == std::string::npos);
   CHECK(temporaries(out).empty());
@@ -416,21 +396,23 @@ TEST_CASE("shards: union is every scan exactly once; merged summary equals one p
   const fs::path dir = archive().root / "sharded";
   fs::remove_all(dir);
   // Shard membership is a function of the name only: stable when the inputs are reordered.
-  const std::string a = q(archive().archive / "2023") + " " + q(archive().archive / "2024");
-  const std::string b = q(archive().archive / "2024") + " " + q(archive().archive / "2023");
+  const std::string a =
+      shell_quoted(archive().archive / "2023") + " " + shell_quoted(archive().archive / "2024");
+  const std::string b =
+      shell_quoted(archive().archive / "2024") + " " + shell_quoted(archive().archive / "2023");
   for (int k = 1; k <= 3; ++k) {
-    const std::string sh = " --shard " + std::to_string(k) + "/3 --dry-run --out " + q(dir / "dry");
-    CHECK(run_cli("batch " + a + sh, "dry_a").out == run_cli("batch " + b + sh, "dry_b").out);
+    const std::string sh =
+        " --shard " + std::to_string(k) + "/3 --dry-run --out " + shell_quoted(dir / "dry");
+    CHECK(run_cli_apart("batch " + a + sh).out == run_cli_apart("batch " + b + sh).out);
   }
   // Three shard processes at the same time on the same input.
-  std::vector<Cli> res(3);
+  std::vector<CliOutput> res(3);
   std::vector<std::thread> procs;
   for (int k = 1; k <= 3; ++k)
     procs.emplace_back([&, k] {
-      res[static_cast<std::size_t>(k - 1)] =
-          run_cli("batch " + q(archive().archive) + " --shard " + std::to_string(k) + "/3 --out " +
-                      q(dir / ("shard-" + std::to_string(k))) + " --jobs 1" + kFast,
-                  "shard" + std::to_string(k));
+      res[static_cast<std::size_t>(k - 1)] = run_cli_apart(
+          "batch " + shell_quoted(archive().archive) + " --shard " + std::to_string(k) +
+          "/3 --out " + shell_quoted(dir / ("shard-" + std::to_string(k))) + " --jobs 1" + kFast);
     });
   for (auto& p : procs) p.join();
   std::multiset<std::string> names;
@@ -446,24 +428,22 @@ TEST_CASE("shards: union is every scan exactly once; merged summary equals one p
   for (const auto& [n, r] : single) all.insert(n);
   CHECK(names == all);  // every scan exactly once
 
-  const Cli m = run_cli("summarize " + q(dir / "shard-1") + " " + q(dir / "shard-2") + " " +
-                            q(dir / "shard-3") + " --out " + q(dir / "merged"),
-                        "merge");
+  const CliOutput m = run_cli_apart(
+      "summarize " + shell_quoted(dir / "shard-1") + " " + shell_quoted(dir / "shard-2") + " " +
+      shell_quoted(dir / "shard-3") + " --out " + shell_quoted(dir / "merged"));
   INFO(m.err);
   REQUIRE(m.status == 0);
   const auto merged = rows_by_scan(dir / "merged");
   REQUIRE(merged.size() == single.size());
   for (const auto& [n, r] : single) {
-    std::string why;
-    const bool same = same_numbers(numbers_of(r), numbers_of(merged.at(n)), &why);
-    INFO(n << ": " << why);
-    CHECK(same);
+    check_same_numbers(n, r, merged.at(n));
     // Links of the merged index point into the shard folders.
     if (r["status"] == "ok")
       CHECK(fs::exists(dir / "merged" / merged.at(n)["report"].get<std::string>()));
   }
   // The parent folder of the shards works as well (its shard-K/summary.json files are merged).
-  const Cli p = run_cli("summarize " + q(dir) + " --out " + q(dir / "merged2"), "merge2");
+  const CliOutput p =
+      run_cli_apart("summarize " + shell_quoted(dir) + " --out " + shell_quoted(dir / "merged2"));
   CHECK(p.status == 0);
   CHECK(rows_by_scan(dir / "merged2").size() == single.size());
 }
@@ -476,7 +456,8 @@ TEST_CASE("manifests: per-scan names and overrides; bad usage exits 2 before any
                    << "\"archive/2023/run2/scan_a.json\",second,Xx,,\n"
                    << "archive/2024/deep/x/scan_c.json,,,800,\n";
   const fs::path out = archive().root / "manifest_out";
-  const Cli c = run_cli("batch " + q(m) + " --out " + q(out) + kFast, "manifest");
+  const CliOutput c =
+      run_cli_apart("batch " + shell_quoted(m) + " --out " + shell_quoted(out) + kFast);
   INFO(c.err);
   CHECK(c.status == 5);
   const auto rows = rows_by_scan(out);
@@ -487,7 +468,7 @@ TEST_CASE("manifests: per-scan names and overrides; bad usage exits 2 before any
   CHECK(rows.at("archive/2024/deep/x/scan_c")["status"] == "ok");
 
   // A manifest given by a bare file name (root = the current folder).
-  const std::string dry = "cd " + q(archive().root) + " && '" + STREAKWRIGHT_CLI_PATH +
+  const std::string dry = "cd " + shell_quoted(archive().root) + " && '" + STREAKWRIGHT_CLI_PATH +
                           "' batch manifest.csv --dry-run --out x > dry.txt";
   CHECK(std::system(dry.c_str()) == 0);
   CHECK(sw::read_file_bytes((archive().root / "dry.txt").string()).find("\nfirst\t") !=
@@ -495,17 +476,20 @@ TEST_CASE("manifests: per-scan names and overrides; bad usage exits 2 before any
 
   // Usage errors: exit 2, nothing written.
   const fs::path none = archive().root / "usage_out";
-  CHECK(run_cli("batch " + q(m) + " --out " + q(none) + " --shard 4/3", "u1").status == 2);
-  CHECK(run_cli("batch " + q(archive().root / "nonexistent") + " --out " + q(none), "u2").status ==
-        2);
-  CHECK(run_cli("batch " + q(m) + " --out " + q(none) + " --analysis everything", "u3").status ==
-        2);
+  CHECK(run_cli_apart("batch " + shell_quoted(m) + " --out " + shell_quoted(none) + " --shard 4/3")
+            .status == 2);
+  CHECK(run_cli_apart("batch " + shell_quoted(archive().root / "nonexistent") + " --out " +
+                      shell_quoted(none))
+            .status == 2);
+  CHECK(run_cli_apart("batch " + shell_quoted(m) + " --out " + shell_quoted(none) +
+                      " --analysis everything")
+            .status == 2);
   CHECK(!fs::exists(none / "summary.json"));
   // Two different sidecars that would write the same output folder.
   const fs::path dup = archive().root / "dup.csv";
   std::ofstream(dup)
       << "scan,name\narchive/2023/run1/scan_a.json,same\narchive/2024/scan_b.yaml,same\n";
-  const Cli d = run_cli("batch " + q(dup) + " --out " + q(none), "u4");
+  const CliOutput d = run_cli_apart("batch " + shell_quoted(dup) + " --out " + shell_quoted(none));
   CHECK(d.status == 2);
   CHECK(d.err.find("share the output folder 'same'") != std::string::npos);
 }

@@ -15,6 +15,8 @@
 #include "retrieval/physics/xuv_builders.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/check_support.h"
+#include "tests/trace_support.h"
 
 using namespace sw;
 
@@ -45,18 +47,9 @@ Trace streaking_trace(const XuvField& x, const Geometry& g) {
   Trace t;
   for (int j = 0; j < 300; ++j) t.energy_au.push_back(units::eV_to_au(40.0 + 0.25 * j));
   for (int i = 0; i < 121; ++i) t.delay_au.push_back(units::fs_to_au(-6.0 + 0.1 * i));
-  ForwardModelOptions o;
-  o.momentum = MomentumModel::kFull;
-  const Eigen::MatrixXd S =
-      ForwardModel(ip, DipoleModel(), o).trace(x, ir, t.delay_au, t.energy_au);
-  const double scale = g.peak_counts / S.maxCoeff();
+  const Eigen::MatrixXd S = test::full_momentum_density(ip, x, ir, t.delay_au, t.energy_au);
   std::mt19937_64 rng(g.seed);
-  t.counts.resize(S.rows(), S.cols());
-  for (Eigen::Index i = 0; i < S.rows(); ++i)
-    for (Eigen::Index j = 0; j < S.cols(); ++j) {
-      std::poisson_distribution<long long> pd(scale * S(i, j));
-      t.counts(i, j) = static_cast<double>(pd(rng));
-    }
+  t.counts = test::poisson_counts(S, g.peak_counts / S.maxCoeff(), rng);
   t.meta.gas = "Ne";
   t.meta.ir_wavelength_nm = 800.0;
   return t;
@@ -161,10 +154,8 @@ TEST_CASE("a RABBITT scan of a train in a weak IR field is a harmonic comb", "[c
   Trace t;
   for (int j = 0; j < 640; ++j) t.energy_au.push_back(units::eV_to_au(3.0 + 0.05 * j));
   for (int i = 0; i < 81; ++i) t.delay_au.push_back(units::fs_to_au(-4.0 + 0.1 * i));
-  ForwardModelOptions fo;
-  fo.momentum = MomentumModel::kFull;
-  const Eigen::MatrixXd S = ForwardModel(ip, DipoleModel(), fo)
-                                .trace(make_xuv_train(grid, tr), ir, t.delay_au, t.energy_au);
+  const Eigen::MatrixXd S =
+      test::full_momentum_density(ip, make_xuv_train(grid, tr), ir, t.delay_au, t.energy_au);
   std::mt19937_64 rng(9);
   t.counts.resize(S.rows(), S.cols());
   for (Eigen::Index i = 0; i < S.rows(); ++i)
@@ -243,13 +234,9 @@ TEST_CASE("weak signal, missing IR wavelength and bad options", "[classifier]") 
 
   Trace t = streaking_trace(make_gaussian_xuv(streak_grid(), burst()), {});
   t.meta.ir_wavelength_nm = 0.0;
-  try {
-    classify(t, ClassifierOptions());
-    FAIL("expected an error");
-  } catch (const Error& e) {
-    CHECK(e.kind() == ErrorKind::kInput);
-    CHECK_THAT(e.what(), Catch::Contains("ir_wavelength_nm"));
-  }
+  CHECK_THAT(
+      test::error_message([&] { (void)classify(t, ClassifierOptions()); }, ErrorKind::kInput),
+      Catch::Contains("ir_wavelength_nm"));
   ClassifierOptions o;
   o.isolated_max_satellite_ratio = 0.8;
   CHECK_THAT(o.validate(), Catch::Contains("isolated_max_satellite_ratio"));

@@ -43,19 +43,27 @@ TEST_CASE("version, help and presets", "[cli]") {
 TEST_CASE("exit codes: usage 2, bad input 3", "[cli]") {
   // docs/cli.md exit-code table (the project's own contract).
   const fs::path d = temp_dir();
-  CHECK(cli("retrieve").code == 2);  // missing required arguments
-  CHECK(cli("simulate --preset no-such-preset --out " + d.string()).code == 3);
-  const Run missing = cli("info " + (d / "absent.json").string());
-  CHECK(missing.code == 3);
-  CHECK(missing.out.find("absent.json") != std::string::npos);
   std::ofstream(d / "broken.json") << "{ \"streakwright\": 1, \"image\": ";
-  const Run broken = cli("info " + (d / "broken.json").string());
-  CHECK(broken.code == 3);
-  CHECK(broken.out.find("broken.json") != std::string::npos);
-  const Run engine = cli("retrieve " + (d / "broken.json").string() + " --out " +
-                         (d / "o").string() + " --engine no-such-engine");
-  CHECK(engine.code == 2);
-  CHECK(engine.out.find("ptychographic") != std::string::npos);  // lists the registered engines
+  // Arguments, exit code and a text the output must hold (what is wrong, or the valid choices).
+  const struct {
+    std::string args;
+    int code;
+    const char* says;
+  } runs[] = {
+      {"retrieve", 2, "scan is required"},  // missing required arguments
+      {"simulate --preset no-such-preset --out " + d.string(), 3, "no-such-preset"},
+      {"info " + (d / "absent.json").string(), 3, "absent.json"},
+      {"info " + (d / "broken.json").string(), 3, "broken.json"},
+      {"retrieve " + (d / "broken.json").string() + " --out " + (d / "o").string() +
+           " --engine no-such-engine",
+       2, "ptychographic"},  // lists the registered engines
+  };
+  for (const auto& r : runs) {
+    INFO(r.args);
+    const Run run = cli(r.args);
+    CHECK(run.code == r.code);
+    CHECK(run.out.find(r.says) != std::string::npos);
+  }
   fs::remove_all(d);
 }
 

@@ -9,6 +9,7 @@
 #include "retrieval/core/units.h"
 #include "retrieval/preprocess/preprocess.h"
 #include "retrieval/preprocess/support.h"
+#include "tests/check_support.h"
 
 using namespace sw;
 
@@ -38,13 +39,11 @@ Scan scan(double peak, double centre_eV, double sigma_eV, double background, std
 }  // namespace
 
 TEST_CASE("support options: defaults validate, bad values are named", "[support]") {
-  CHECK(SupportOptions().validate().empty());
+  test::check_validation<SupportOptions>(
+      {{[](auto& o) { o.min_sigma = 0; }, "min_sigma"},
+       {[](auto& o) { o.smoothing_bins = 0; }, "smoothing_bins"}});
   SupportOptions o;
-  o.min_sigma = 0;
-  CHECK(o.validate().find("min_sigma") != std::string::npos);
-  o = SupportOptions();
   o.smoothing_bins = 0;
-  CHECK(o.validate().find("smoothing_bins") != std::string::npos);
   CHECK_THROWS_AS(find_energy_support(Eigen::MatrixXd::Ones(2, 3), Eigen::MatrixXd::Ones(2, 3),
                                       {0.1, 0.2, 0.3}, o),
                   Error);

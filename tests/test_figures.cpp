@@ -13,6 +13,7 @@
 #include "io/figures.h"
 #include "io/plot.h"
 #include "retrieval/core/error.h"
+#include "tests/plot_test_support.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -265,24 +266,7 @@ TEST_CASE("trace comparison and line plots are written as 3-channel PNGs", "[fig
   CHECK(cmp.rows == co.height_px);
   CHECK(cmp.channels() == 3);
 
-  sw::LinePlot lp;
-  lp.title = "intensity and phase";
-  lp.x_label = "time (as)";
-  lp.y_label = "intensity (arb. u.)";
-  lp.y2_label = "phase (rad)";
-  sw::Series a, b;
-  for (int k = 0; k <= 200; ++k) {
-    const double t = -500.0 + 5.0 * k;
-    a.x.push_back(t);
-    a.y.push_back(std::exp(-t * t / (2 * 80.0 * 80.0)));
-    b.x.push_back(t);
-    b.y.push_back(1e-5 * t * t);
-  }
-  a.label = "intensity";
-  b.label = "phase";
-  b.right_axis = true;
-  b.dashed = true;
-  lp.series = {a, b};
+  const sw::LinePlot lp = sw::test::pulse_and_phase_plot();
   sw::plot_lines(lp, dir.file("lines.png"));
   const cv::Mat lines = cv::imread(dir.file("lines.png"), cv::IMREAD_UNCHANGED);
   REQUIRE(!lines.empty());

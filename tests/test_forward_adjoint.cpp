@@ -4,21 +4,18 @@
 #include <catch2/catch.hpp>
 
 #include <cmath>
+#include <initializer_list>
 #include <random>
 
 #include "retrieval/core/units.h"
 #include "retrieval/physics/forward_adjoint.h"
 #include "retrieval/physics/forward_model.h"
+#include "tests/test_support.h"
 
 using namespace sw;
+using sw::test::axis;
 
 namespace {
-
-std::vector<double> axis(double first, double step, int n) {
-  std::vector<double> v(static_cast<std::size_t>(n));
-  for (int i = 0; i < n; ++i) v[static_cast<std::size_t>(i)] = first + step * i;
-  return v;
-}
 
 // A chirped ~100 as pulse at the given carrier with a small random ripple, so that no
 // symmetry hides a sign error in the adjoint.
@@ -51,12 +48,73 @@ struct Small {
   }
 };
 
+// "Measured" data of the cost checks: the model M of another field pair (envelope seed 9, IR
+// 10 % weaker) and positive weights w = 1 / (M + 0.05 max M).
+void measured_data(ForwardAdjoint& fa, const Small& S, Eigen::MatrixXd* M, Eigen::MatrixXd* w) {
+  std::vector<double> A2 = S.ir.vector_potential();
+  for (double& a : A2) a *= 0.9;
+  ScaledCostParts tmp;
+  const Eigen::MatrixXd w0 = Eigen::MatrixXd::Ones(static_cast<Eigen::Index>(S.D.size()),
+                                                   static_cast<Eigen::Index>(S.W.size()));
+  fa.scaled_cost(test_envelope(S.grid, 9), IrField(S.ir.t0(), S.ir.dt(), A2), w0, w0, false, &tmp,
+                 M);
+  *w = (M->array() + 0.05 * M->maxCoeff()).inverse().matrix();
+}
+
 double max_rel_diff(const Eigen::MatrixXcd& a, const Eigen::MatrixXcd& b) {
   return (a - b).cwiseAbs().maxCoeff() / b.cwiseAbs().maxCoeff();
 }
 
 // C(theta) of the scale-projected weighted least squares, mu eliminated.
 double projected_cost(const ScaledCostParts& p) { return p.c0 - p.c1 * p.c1 / (4 * p.c2); }
+
+// Worst |central difference - hand-written gradient| and largest |central difference| over the
+// checked coordinates.
+struct FdCheck {
+  double worst = 0, gscale = 0;
+  void add(double fd, double an) {
+    worst = std::max(worst, std::abs(fd - an));
+    gscale = std::max(gscale, std::abs(fd));
+  }
+};
+
+// Central differences of cost(eps, ir) along the real and imaginary parts of the XUV samples
+// `samples` (step 1e-5 |eps[mid]|) against grad(s, part) (part 0: real, 1: imaginary).
+template <class Cost, class Grad>
+FdCheck check_xuv_samples(const Cost& cost, const CVec& eps, const IrField& ir,
+                          std::initializer_list<std::size_t> samples, std::size_t mid,
+                          const Grad& grad) {
+  FdCheck c;
+  for (std::size_t s : samples)
+    for (int part = 0; part < 2; ++part) {
+      const cdouble dir = part == 0 ? cdouble(1, 0) : cdouble(0, 1);
+      const double h = 1e-5 * std::abs(eps[mid]);
+      CVec ep = eps, em = eps;
+      ep[s] += h * dir;
+      em[s] -= h * dir;
+      c.add((cost(ep, ir) - cost(em, ir)) / (2 * h), grad(s, part));
+    }
+  return c;
+}
+
+// Central differences of cost(eps, ir) along the IR samples `samples` of A(t) (step 1e-6)
+// against grad(k).
+template <class Cost, class Grad>
+FdCheck check_ir_samples(const Cost& cost, const CVec& eps, const IrField& ir,
+                         std::initializer_list<std::size_t> samples, const Grad& grad) {
+  FdCheck c;
+  const std::vector<double>& A = ir.vector_potential();
+  for (std::size_t k : samples) {
+    const double h = 1e-6;
+    std::vector<double> Ap = A, Am = A;
+    Ap[k] += h;
+    Am[k] -= h;
+    c.add((cost(eps, IrField(ir.t0(), ir.dt(), Ap)) - cost(eps, IrField(ir.t0(), ir.dt(), Am))) /
+              (2 * h),
+          grad(k));
+  }
+  return c;
+}
 
 }  // namespace
 
@@ -193,15 +251,8 @@ TEST_CASE("gradient of the scale-projected cost matches central differences", "[
   ForwardAdjoint fa(S.ip, d, S.grid, S.carrier, S.D, S.W, 2);
   fa.plan_full(S.ir, o);
   // "Measured" data: the model of a different field pair, plus positive weights.
-  CVec eps2 = test_envelope(S.grid, 9);
-  std::vector<double> A2 = S.ir.vector_potential();
-  for (double& a : A2) a *= 0.9;
-  Eigen::MatrixXd M;
-  ScaledCostParts tmp;
-  const Eigen::MatrixXd w0 = Eigen::MatrixXd::Ones(static_cast<Eigen::Index>(S.D.size()),
-                                                   static_cast<Eigen::Index>(S.W.size()));
-  fa.scaled_cost(eps2, IrField(S.ir.t0(), S.ir.dt(), A2), w0, w0, false, &tmp, &M);
-  const Eigen::MatrixXd w = (M.array() + 0.05 * M.maxCoeff()).inverse().matrix();
+  Eigen::MatrixXd M, w;
+  measured_data(fa, S, &M, &w);
 
   ScaledCostParts P;
   fa.scaled_cost(eps, S.ir, M, w, true, &P);
@@ -215,44 +266,23 @@ TEST_CASE("gradient of the scale-projected cost matches central differences", "[
   CHECK(C0 > 0);
 
   // XUV samples around the pulse: dC/dRe = 2 Re eps_bar, dC/dIm = 2 Im eps_bar.
-  double worst = 0, gscale = 0;
   const std::size_t mid = S.grid.size() / 2;
-  for (std::size_t s : {mid - 6, mid - 1, mid, mid + 2, mid + 5}) {
-    for (int part = 0; part < 2; ++part) {
-      const cdouble dir = part == 0 ? cdouble(1, 0) : cdouble(0, 1);
-      const double h = 1e-5 * std::abs(eps[mid]);
-      CVec ep = eps, em = eps;
-      ep[s] += h * dir;
-      em[s] -= h * dir;
-      const double fd = (cost(ep, S.ir) - cost(em, S.ir)) / (2 * h);
-      const cdouble eb = mu * mu * P.eps_bar2[s] + mu * P.eps_bar1[s];
-      const double an = part == 0 ? 2 * eb.real() : 2 * eb.imag();
-      worst = std::max(worst, std::abs(fd - an));
-      gscale = std::max(gscale, std::abs(fd));
-    }
-  }
-  CHECK(gscale > 0);
-  CHECK(worst / gscale < 1e-6);
+  const FdCheck x = check_xuv_samples(cost, eps, S.ir, {mid - 6, mid - 1, mid, mid + 2, mid + 5},
+                                      mid, [&](std::size_t s, int part) {
+                                        const cdouble eb =
+                                            mu * mu * P.eps_bar2[s] + mu * P.eps_bar1[s];
+                                        return part == 0 ? 2 * eb.real() : 2 * eb.imag();
+                                      });
+  CHECK(x.gscale > 0);
+  CHECK(x.worst / x.gscale < 1e-6);
 
   // IR samples where the XUV probes the field (delays +- pulse) and near the window edges.
-  worst = 0;
-  gscale = 0;
   const std::size_t n = S.ir.size();
-  const std::vector<double>& A = S.ir.vector_potential();
-  for (std::size_t k : {n / 2 - 40, n / 2 - 7, n / 2, n / 2 + 3, n / 2 + 33, std::size_t{3}}) {
-    const double h = 1e-6;
-    std::vector<double> Ap = A, Am = A;
-    Ap[k] += h;
-    Am[k] -= h;
-    const double fd = (cost(eps, IrField(S.ir.t0(), S.ir.dt(), Ap)) -
-                       cost(eps, IrField(S.ir.t0(), S.ir.dt(), Am))) /
-                      (2 * h);
-    const double an = mu * mu * P.A_bar2[k] + mu * P.A_bar1[k];
-    worst = std::max(worst, std::abs(fd - an));
-    gscale = std::max(gscale, std::abs(fd));
-  }
-  CHECK(gscale > 0);
-  CHECK(worst / gscale < 1e-6);
+  const FdCheck a = check_ir_samples(
+      cost, eps, S.ir, {n / 2 - 40, n / 2 - 7, n / 2, n / 2 + 3, n / 2 + 33, std::size_t{3}},
+      [&](std::size_t k) { return mu * mu * P.A_bar2[k] + mu * P.A_bar1[k]; });
+  CHECK(a.gscale > 0);
+  CHECK(a.worst / a.gscale < 1e-6);
 }
 
 TEST_CASE("projected_cost: combined gradient with an extra term matches central differences",
@@ -281,16 +311,10 @@ TEST_CASE("projected_cost: combined gradient with an extra term matches central 
     }
     if (config == 3) fa.set_energy_resolution(units::eV_to_au(1.5));
     const CVec eps = test_envelope(S.grid, 5);
-    std::vector<double> A2 = S.ir.vector_potential();
-    for (double& a : A2) a *= 0.9;
-    Eigen::MatrixXd M;
-    ScaledCostParts tmp;
-    const Eigen::MatrixXd w0 = Eigen::MatrixXd::Ones(static_cast<Eigen::Index>(S.D.size()),
-                                                     static_cast<Eigen::Index>(S.W.size()));
-    fa.scaled_cost(test_envelope(S.grid, 9), IrField(S.ir.t0(), S.ir.dt(), A2), w0, w0, false, &tmp,
-                   &M);
-    const Eigen::MatrixXd w = (M.array() + 0.05 * M.maxCoeff()).inverse().matrix();
+    Eigen::MatrixXd M, w;
+    measured_data(fa, S, &M, &w);
     // Extra term of the size of the data part's, so that it moves mu* visibly.
+    ScaledCostParts tmp;
     fa.scaled_cost(eps, S.ir, M, w, false, &tmp);
     const double e2 = 0.3 * tmp.c2, e1 = 0.1 * tmp.c1;
     auto cost = [&](const CVec& e, const IrField& f) {
@@ -302,38 +326,18 @@ TEST_CASE("projected_cost: combined gradient with an extra term matches central 
     fa.projected_cost(eps, S.ir, M, w, e2, e1, true, &P);
     CHECK(P.mu == Approx(-(tmp.c1 + e1) / (2 * (tmp.c2 + e2))).epsilon(1e-12));
     CHECK(P.c2 == Approx(tmp.c2).epsilon(1e-12));
-    double worst = 0, gscale = 0;
     const std::size_t mid = S.grid.size() / 2;
-    for (std::size_t s : {mid - 6, mid, mid + 5})
-      for (int part = 0; part < 2; ++part) {
-        const cdouble dir = part == 0 ? cdouble(1, 0) : cdouble(0, 1);
-        const double h = 1e-5 * std::abs(eps[mid]);
-        CVec ep = eps, em = eps;
-        ep[s] += h * dir;
-        em[s] -= h * dir;
-        const double fd = (cost(ep, S.ir) - cost(em, S.ir)) / (2 * h);
-        const double an = part == 0 ? 2 * P.eps_bar[s].real() : 2 * P.eps_bar[s].imag();
-        worst = std::max(worst, std::abs(fd - an));
-        gscale = std::max(gscale, std::abs(fd));
-      }
-    CHECK(gscale > 0);
-    CHECK(worst / gscale < 1e-6);
-    worst = gscale = 0;
+    const FdCheck x = check_xuv_samples(
+        cost, eps, S.ir, {mid - 6, mid, mid + 5}, mid, [&](std::size_t s, int part) {
+          return part == 0 ? 2 * P.eps_bar[s].real() : 2 * P.eps_bar[s].imag();
+        });
+    CHECK(x.gscale > 0);
+    CHECK(x.worst / x.gscale < 1e-6);
     const std::size_t n = S.ir.size();
-    const std::vector<double>& A = S.ir.vector_potential();
-    for (std::size_t k : {n / 2 - 7, n / 2, n / 2 + 33}) {
-      const double h = 1e-6;
-      std::vector<double> Ap = A, Am = A;
-      Ap[k] += h;
-      Am[k] -= h;
-      const double fd = (cost(eps, IrField(S.ir.t0(), S.ir.dt(), Ap)) -
-                         cost(eps, IrField(S.ir.t0(), S.ir.dt(), Am))) /
-                        (2 * h);
-      worst = std::max(worst, std::abs(fd - P.A_bar[k]));
-      gscale = std::max(gscale, std::abs(fd));
-    }
-    CHECK(gscale > 0);
-    CHECK(worst / gscale < 1e-6);
+    const FdCheck a = check_ir_samples(cost, eps, S.ir, {n / 2 - 7, n / 2, n / 2 + 33},
+                                       [&](std::size_t k) { return P.A_bar[k]; });
+    CHECK(a.gscale > 0);
+    CHECK(a.worst / a.gscale < 1e-6);
   }
 }
 

@@ -5,8 +5,10 @@
 
 #include "retrieval/core/units.h"
 #include "retrieval/physics/forward_model.h"
+#include "tests/test_support.h"
 
 using namespace sw;
+using sw::test::axis;
 
 namespace {
 XuvField gaussian_xuv(const TimeGrid& g, double carrier_eV, double fwhm_as, double chirp = 0.0) {
@@ -18,11 +20,6 @@ XuvField gaussian_xuv(const TimeGrid& g, double carrier_eV, double fwhm_as, doub
              std::polar(1.0, chirp * t * t / (tf * tf));
   }
   return XuvField(g, units::eV_to_au(carrier_eV), env);
-}
-std::vector<double> axis(double first, double step, int n) {
-  std::vector<double> v(n);
-  for (int i = 0; i < n; ++i) v[i] = first + step * i;
-  return v;
 }
 }  // namespace
 

@@ -7,6 +7,7 @@
 #include <cmath>
 #include <cstdio>
 #include <random>
+#include <utility>
 
 #include "retrieval/core/units.h"
 #include "retrieval/engines/engine.h"
@@ -14,16 +15,14 @@
 #include "retrieval/physics/forward_model.h"
 #include "retrieval/physics/pulse_metrics.h"
 #include "retrieval/physics/xuv_builders.h"
+#include "tests/full_model_test_support.h"
+#include "tests/test_support.h"
 
 using namespace sw;
+using sw::test::axis;
+using sw::test::worst_relative_gradient_error;
 
 namespace {
-
-std::vector<double> axis(double first, double step, int n) {
-  std::vector<double> v(static_cast<std::size_t>(n));
-  for (int i = 0; i < n; ++i) v[static_cast<std::size_t>(i)] = first + step * i;
-  return v;
-}
 
 // A synthetic scan with known truth, built the way preprocess() hands it to the engines:
 // counts per bin ~ Poisson(peak_counts x p |a|^2 / max), intensity = counts / p, Poisson
@@ -63,29 +62,11 @@ Scenario make_scenario(double center_eV, double tl_fwhm_as, double gdd_as2, doub
   const double k = std::abs(peak_counts) / dens.maxCoeff();  // < 0: noise-free
   std::mt19937 rng(seed);
   RetrievalProblem& R = S.problem;
-  R.intensity.resize(nD, nW);
-  R.variance.resize(nD, nW);
-  for (int i = 0; i < nD; ++i)
-    for (int j = 0; j < nW; ++j) {
-      const double p = std::sqrt(2 * S.W[static_cast<std::size_t>(j)]);
-      const double lam = k * dens(i, j);
-      const double c = peak_counts > 0 ? std::poisson_distribution<long>(lam)(rng) : lam;
-      R.intensity(i, j) = c / p;
-      R.variance(i, j) = std::max(c, 1.0) / (p * p);
-    }
-  R.field_free_spectrum.resize(static_cast<std::size_t>(nW));
-  double num = 0, den = 0;
-  for (int j = 0; j < nW; ++j) {
-    const double p = std::sqrt(2 * S.W[static_cast<std::size_t>(j)]);
-    R.field_free_spectrum[static_cast<std::size_t>(j)] = k * ff(0, j) / p;
-    num += ff(0, j) * S.W[static_cast<std::size_t>(j)];
-    den += ff(0, j);
-  }
-  R.energy_au = S.W;
+  test::fill_counts(R, dens, S.W, k, peak_counts > 0, rng);
+  test::fill_field_free(R, ff, S.W, k);
   R.delay_au = S.D;
   R.grid = S.grid;
   R.ionization_energy_au = S.ip;
-  R.central_momentum_au = std::sqrt(2 * num / den);
   R.ir_omega_au = units::wavelength_nm_to_omega_au(800.0);
   return S;
 }
@@ -99,6 +80,11 @@ double fine_fwhm(const XuvField& f) {
   for (std::size_t j = 0; j < n; ++j) big[j + (m - n) / 2] = s[j];
   const TimeGrid g = TimeGrid::centered(m, f.grid().dt() / 4);
   return intensity_fwhm(XuvField::from_spectrum(g, f.carrier_au(), big));
+}
+
+// The true FWHM (as, on the fine grid the fits are measured on) and peak vector potential (a.u.).
+std::pair<double, double> truth_of(const Scenario& S) {
+  return {units::au_to_as(fine_fwhm(S.xuv)), S.ir.peak_vector_potential()};
 }
 
 }  // namespace
@@ -144,27 +130,6 @@ RetrievalProblem small_problem() {
   return P;
 }
 
-// Central differences of the objective along coordinate k, against the adjoint gradient.
-double worst_relative_gradient_error(const FullModelObjective& f, std::vector<double> x,
-                                     const std::vector<std::size_t>& coords) {
-  std::vector<double> g(x.size());
-  f.evaluate(x.data(), g.data());
-  double gmax = 0;
-  for (double v : g) gmax = std::max(gmax, std::abs(v));
-  double worst = 0;
-  for (std::size_t k : coords) {
-    const double h = 1e-5 * std::max(1.0, std::abs(x[k]));
-    const double x0 = x[k];
-    x[k] = x0 + h;
-    const double fp = f.evaluate(x.data(), nullptr);
-    x[k] = x0 - h;
-    const double fm = f.evaluate(x.data(), nullptr);
-    x[k] = x0;
-    worst = std::max(worst, std::abs((fp - fm) / (2 * h) - g[k]) / gmax);
-  }
-  return worst;
-}
-
 }  // namespace
 
 TEST_CASE("full-model gradient matches central differences", "[fullmodel]") {
@@ -175,19 +140,11 @@ TEST_CASE("full-model gradient matches central differences", "[fullmodel]") {
   FullModelSettings st;
   st.spectrum_weight = 0.3;
   const double T = units::period_au(P.ir_omega_au);
-  const IrSampling smp =
-      IrSampling::covering(P.delay_au.front() - 150, P.delay_au.back() + 150, T / 64);
+  const IrSampling smp = test::gradient_check_sampling(P);
   // A perturbed guess: chirped spectrum, IR 10 % off, so no gradient component vanishes.
-  std::vector<cdouble> spec(P.energy_au.size());
-  for (std::size_t j = 0; j < spec.size(); ++j) {
-    const double x = units::au_to_eV(P.energy_au[j]) - 108.0;
-    spec[j] = std::exp(-x * x / (2 * 12.0 * 12.0)) * std::polar(1.0, 0.002 * x * x + 0.01 * x);
-  }
-  GaussianIrPulse ip;
-  ip.peak_intensity_Wcm2 = 0.8e13;
-  ip.cep_rad = 0.7;
+  const std::vector<cdouble> spec = test::perturbed_spectrum(P.energy_au);
+  GaussianIrPulse ip = test::perturbed_ir_pulse();
   ip.chirp_rad_per_fs2 = 0.03;
-  ip.center_fs = 0.2;
   const std::vector<double> theta = GaussianIrParametrization::from_pulse(ip);
 
   SECTION("parametric IR, full model") {
@@ -201,11 +158,7 @@ TEST_CASE("full-model gradient matches central differences", "[fullmodel]") {
   }
   SECTION("spline IR, full model") {
     auto sp = std::make_unique<SplineIrParametrization>(smp, T / 6);
-    std::vector<double> A(smp.size);
-    for (std::size_t i = 0; i < A.size(); ++i)
-      A[i] = GaussianIrParametrization::value(theta.data(), smp.time(i));
-    const std::vector<double> coef = sp->fit_samples(A);
-    sp->set_amplitude_scale(0.1);
+    const std::vector<double> coef = test::fit_gaussian_ir(*sp, smp, theta);
     FullModelObjective f(P, st, MomentumModel::kFull, std::move(sp), 2);
     const std::vector<double> x = f.encode(spec, coef);
     const std::size_t nx = f.num_xuv_parameters(), ni = coef.size();
@@ -320,8 +273,19 @@ struct Fit {
   Reconstruction r;
 };
 
-Fit retrieve(Engine& e, const RetrievalProblem& P, const Reconstruction* warm,
+void report(const char* what, const Fit& f, double fwhm_true, double A_true) {
+  std::printf(
+      "  %-34s FWHM %6.1f as (%+5.1f %%)  A0 %.4f (%+5.1f %%)  G %.4f = %.2f G_noise  "
+      "%s IR, %d it, %.1f s\n",
+      what, f.fwhm_as, 100 * (f.fwhm_as / fwhm_true - 1), f.peak_A, 100 * (f.peak_A / A_true - 1),
+      f.G, f.G / f.G_noise, f.ir_form.c_str(), f.r.iterations, f.seconds);
+}
+
+// Runs `e` on the scenario's problem (warm-started from `warm` when given) and prints the fit
+// against the truth under `what`.
+Fit retrieve(Engine& e, const Scenario& S, const Reconstruction* warm, const char* what,
              double noise_floor_factor = 1.0) {
+  const RetrievalProblem& P = S.problem;
   EngineOptions o;  // the shared loop's defaults: stops at the Poisson noise floor
   o.threads = 2;
   o.noise_floor_factor = noise_floor_factor;
@@ -339,15 +303,9 @@ Fit retrieve(Engine& e, const RetrievalProblem& P, const Reconstruction* warm,
   f.G_noise = f.r.noise_floor_trace_error;
   for (const auto& [k, v] : f.r.settings)
     if (k == "ir_form") f.ir_form = v;
+  const auto [fwhm_true, A_true] = truth_of(S);
+  report(what, f, fwhm_true, A_true);
   return f;
-}
-
-void report(const char* what, const Fit& f, double fwhm_true, double A_true) {
-  std::printf(
-      "  %-34s FWHM %6.1f as (%+5.1f %%)  A0 %.4f (%+5.1f %%)  G %.4f = %.2f G_noise  "
-      "%s IR, %d it, %.1f s\n",
-      what, f.fwhm_as, 100 * (f.fwhm_as / fwhm_true - 1), f.peak_A, 100 * (f.peak_A / A_true - 1),
-      f.G, f.G / f.G_noise, f.ir_form.c_str(), f.r.iterations, f.seconds);
 }
 
 }  // namespace
@@ -359,20 +317,16 @@ TEST_CASE("broadband attosecond pulse: full model retrieves it, the CMA cannot",
   // et al., New J. Phys. 18, 073009 (2016)). IR: 800 nm, 5 fs, 1e13 W/cm^2 (A0 = 0.29 a.u.,
   // streaking +-23 eV). Trace from sw::ForwardModel kFull with Poisson counts (peak 2000).
   const Scenario S = make_scenario(130.0, 70.0, 0.0, 44.0, 0.5, 256, 512, 6.0, 41, 2000, 11);
-  const double fwhm_true = units::au_to_as(fine_fwhm(S.xuv));
-  const double A_true = S.ir.peak_vector_potential();
+  const auto [fwhm_true, A_true] = truth_of(S);
   // Gaussian time-bandwidth product (xuv_builders.h): the builder makes the pulse asked for.
   REQUIRE(fwhm_true == Approx(70.0).epsilon(0.01));
   std::printf("broadband case: truth FWHM %.1f as, A0 %.4f a.u.\n", fwhm_true, A_true);
 
   auto full = make_full_model_engine();
-  const Fit scratch = retrieve(*full, S.problem, nullptr);
-  report("full model, parametric start", scratch, fwhm_true, A_true);
+  const Fit scratch = retrieve(*full, S, nullptr, "full model, parametric start");
   auto cma_engine = make_cma_least_squares_engine();
-  const Fit cma = retrieve(*cma_engine, S.problem, nullptr);
-  report("CMA least squares, same data", cma, fwhm_true, A_true);
-  const Fit warm = retrieve(*full, S.problem, &cma.r);
-  report("full model, CMA warm start", warm, fwhm_true, A_true);
+  const Fit cma = retrieve(*cma_engine, S, nullptr, "CMA least squares, same data");
+  const Fit warm = retrieve(*full, S, &cma.r, "full model, CMA warm start");
 
   // Accuracy required of the retrieval: 5 % on FWHM and peak A (the task's tolerance; well
   // above the ~1-2 % Poisson scatter of these numbers at 2000 peak counts).
@@ -399,11 +353,9 @@ TEST_CASE("chirped broadband pulse from a flat-phase start", "[fullmodel]") {
   // higher photon energies later (retrieval/physics/xuv_builders.h; Mairesse et al., Science 302,
   // 1540 (2003)), and the retrieved GDD must have that sign and magnitude.
   const Scenario S = make_scenario(130.0, 70.0, 2000.0, 44.0, 0.5, 256, 512, 6.0, 41, 2000, 12);
-  const double fwhm_true = units::au_to_as(fine_fwhm(S.xuv));
-  const double A_true = S.ir.peak_vector_potential();
+  const auto [fwhm_true, A_true] = truth_of(S);
   auto full = make_full_model_engine();
-  const Fit f = retrieve(*full, S.problem, nullptr);
-  report("chirped: full model, parametric start", f, fwhm_true, A_true);
+  const Fit f = retrieve(*full, S, nullptr, "chirped: full model, parametric start");
   const double gdd = units::au_to_as2(fit_spectral_phase(f.r.xuv, 0.05, 3).gdd);
   const double gdd_true = units::au_to_as2(fit_spectral_phase(S.xuv, 0.05, 3).gdd);
   std::printf("  chirped: GDD %.0f as^2 (truth %.0f as^2)\n", gdd, gdd_true);
@@ -419,16 +371,12 @@ TEST_CASE("full-model refinement of a 121 x 400 trace: timing", "[fullmodel][slo
   // them. Timings are reported (the machine is shared; the target is < 30 s on 2 cores), the
   // physics is checked as above.
   const Scenario S = make_scenario(130.0, 70.0, 2000.0, 50.0, 0.3, 400, 1024, 6.0, 121, 2000, 13);
-  const double fwhm_true = units::au_to_as(fine_fwhm(S.xuv));
-  const double A_true = S.ir.peak_vector_potential();
+  const auto [fwhm_true, A_true] = truth_of(S);
   auto cma_engine = make_cma_least_squares_engine();
-  const Fit cma = retrieve(*cma_engine, S.problem, nullptr);
-  report("121x400 CMA least squares", cma, fwhm_true, A_true);
+  const Fit cma = retrieve(*cma_engine, S, nullptr, "121x400 CMA least squares");
   auto full = make_full_model_engine();
-  const Fit at_floor = retrieve(*full, S.problem, &cma.r);
-  report("121x400 refine, stop at noise floor", at_floor, fwhm_true, A_true);
-  const Fit stalled = retrieve(*full, S.problem, &cma.r, 0.0);
-  report("121x400 refine, stop at stall", stalled, fwhm_true, A_true);
+  const Fit at_floor = retrieve(*full, S, &cma.r, "121x400 refine, stop at noise floor");
+  const Fit stalled = retrieve(*full, S, &cma.r, "121x400 refine, stop at stall", 0.0);
   for (const Fit* f : {&at_floor, &stalled}) {
     CHECK(f->r.converged());
     CHECK(f->fwhm_as == Approx(fwhm_true).epsilon(0.05));

@@ -27,7 +27,7 @@
 #include "synthetic/noise.h"
 #include "synthetic/presets.h"
 #include "synthetic/tof_recording.h"
-#include "test_support.h"
+#include "tests/test_support.h"
 
 using namespace sw;
 using namespace sw::synthetic;

@@ -48,6 +48,13 @@ struct Scan {
     write_text(dir / name, sc.dump());
     return dir / name;
   }
+  /// Writes the sidecar's text with `members` (raw JSON text) appended inside its braces.
+  std::string write_appended(const std::string& members, const std::string& name) {
+    std::string t = sidecar.dump();
+    t.pop_back();
+    write_text(dir / name, t + members + "}");
+    return dir / name;
+  }
 };
 
 /// The kInput message of reading `path` (fails the test on anything else), within 10 s.
@@ -146,13 +153,9 @@ TEST_CASE("deeply nested sidecars are refused before any parser recurses", "[io]
   // Defect 2 (stack overflow): 100000 levels overflow any recursive parser's 8 MB stack.
   Scan s;
   const int n = 100000;
-  {
-    std::string t = s.sidecar.dump();
-    t.pop_back();
-    t += ",\"deep\":" + std::string(n, '[') + std::string(n, ']') + "}";
-    write_text(s.dir / "valid_deep.json", t);
-    CHECK_THAT(input_error(s.dir / "valid_deep.json"), Contains("nests deeper than 64"));
-  }
+  CHECK_THAT(input_error(s.write_appended(",\"deep\":" + std::string(n, '[') + std::string(n, ']'),
+                                          "valid_deep.json")),
+             Contains("nests deeper than 64"));
   write_text(s.dir / "invalid_deep.json", "{\"streakwright\": 1, \"x\": " + std::string(n, '{'));
   CHECK_THAT(input_error(s.dir / "invalid_deep.json"), Contains("nests deeper than 64"));
   write_text(s.dir / "deep.yaml", "streakwright: 1\nx: " + std::string(n, '['));
@@ -190,8 +193,11 @@ TEST_CASE("declared sizes and physical ranges are checked before allocation", "[
   // (5000 here, to stay below the sidecar size limit).
   json f = s.sidecar;
   f["lines"] = json::array();
-  for (int i = 0; i < 5000; ++i)
-    f["lines"].push_back({{"name", "l" + std::to_string(i)}, {"ionization_energy_eV", 20.0}});
+  for (int i = 0; i < 5000; ++i) {
+    std::string name(1, 'l');  // built by appending: GCC 12 warns falsely on "l" + std::string
+    name += std::to_string(i);
+    f["lines"].push_back({{"name", name}, {"ionization_energy_eV", 20.0}});
+  }
   CHECK_THAT(input_error(s.write(f)), Contains("lines") && Contains("limit of 16"));
 }
 
@@ -261,10 +267,8 @@ TEST_CASE("number overflow and non-UTF-8 file names are input errors (exit 3)", 
   // Defect 6: these gave exit 1 ("internal error"). RFC 8259 section 6: numbers beyond the
   // implementation's range may be rejected.
   Scan s;
-  std::string t = s.sidecar.dump();
-  t.pop_back();
-  write_text(s.dir / "overflow.json", t + ",\"scale\": 1e999}");
-  CHECK_THAT(input_error(s.dir / "overflow.json"), Contains("does not fit a double"));
+  CHECK_THAT(input_error(s.write_appended(",\"scale\": 1e999", "overflow.json")),
+             Contains("does not fit a double"));
   const std::string bad_name = s.dir / std::string("scan\xff\xfe.json");
   write_text(bad_name, s.sidecar.dump());
   CHECK_THAT(input_error(bad_name), Contains("not valid UTF-8") && Contains("\\xff\\xfe"));
@@ -291,10 +295,8 @@ TEST_CASE("duplicate keys are an error in JSON and YAML sidecars", "[io][limits]
   // Defect 10. RFC 8259 section 4: names within an object SHOULD be unique; YAML 1.2 section
   // 3.2.1.1: mapping keys MUST be unique.
   Scan s;
-  std::string t = s.sidecar.dump();
-  t.pop_back();
-  write_text(s.dir / "dup.json", t + ",\"gas\": \"Ar\"}");
-  CHECK_THAT(input_error(s.dir / "dup.json"), Contains("'gas' appears twice"));
+  CHECK_THAT(input_error(s.write_appended(",\"gas\": \"Ar\"", "dup.json")),
+             Contains("'gas' appears twice"));
   write_text(s.dir / "dup.yaml",
              "streakwright: 1\nimage: good.png\nlayout: delay_rows\nlayout: energy_rows\n");
   CHECK_THAT(input_error(s.dir / "dup.yaml"), Contains("'layout' appears twice"));

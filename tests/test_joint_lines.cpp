@@ -14,8 +14,10 @@
 #include "retrieval/physics/forward_model.h"
 #include "retrieval/physics/pulse_metrics.h"
 #include "retrieval/physics/xuv_builders.h"
+#include "tests/full_model_test_support.h"
 
 using namespace sw;
+using sw::test::worst_relative_gradient_error;
 
 namespace {
 
@@ -62,32 +64,15 @@ TwoLines make_two_lines(double delay_as, double strength, double peak_counts, in
   const double k = peak_counts / dens.maxCoeff();
   std::mt19937 rng(seed);
   RetrievalProblem& R = S.problem;
-  R.intensity.resize(nD, nW);
-  R.variance.resize(nD, nW);
-  for (int i = 0; i < nD; ++i)
-    for (int j = 0; j < nW; ++j) {
-      const double p = std::sqrt(2 * W[static_cast<std::size_t>(j)]);
-      const double c = static_cast<double>(std::poisson_distribution<long>(k * dens(i, j))(rng));
-      R.intensity(i, j) = c / p;
-      R.variance(i, j) = std::max(c, 1.0) / (p * p);
-    }
+  test::fill_counts(R, dens, W, k, true, rng);
   // The reference spectrum: the 2p line's band only (as retrieval/analysis/multi_line_fit.cpp sets
   // it).
   const IrField no_ir(-span, 1.0, std::vector<double>(8, 0.0));
   const Eigen::MatrixXd ff = ForwardModel(kIp2p, DipoleModel(), o).trace(S.xuv, no_ir, {0.0}, W);
-  R.field_free_spectrum.resize(static_cast<std::size_t>(nW));
-  double num = 0, den = 0;
-  for (int j = 0; j < nW; ++j) {
-    const double p = std::sqrt(2 * W[static_cast<std::size_t>(j)]);
-    R.field_free_spectrum[static_cast<std::size_t>(j)] = k * ff(0, j) / p;
-    num += ff(0, j) * W[static_cast<std::size_t>(j)];
-    den += ff(0, j);
-  }
-  R.energy_au = W;
+  test::fill_field_free(R, ff, W, k);
   R.delay_au = D;
   R.grid = grid;
   R.ionization_energy_au = kIp2p;
-  R.central_momentum_au = std::sqrt(2 * num / den);
   R.ir_omega_au = units::wavelength_nm_to_omega_au(800.0);
   R.support_lo_au = units::eV_to_au(95.0);  // the 2p line's band, cut half way to 2s
   R.support_hi_au = units::eV_to_au(129.5);
@@ -101,28 +86,6 @@ TwoLines make_two_lines(double delay_as, double strength, double peak_counts, in
   return S;
 }
 
-double worst_relative_gradient_error(const FullModelObjective& f, std::vector<double> x,
-                                     const std::vector<std::size_t>& coords) {
-  std::vector<double> g(x.size());
-  f.evaluate(x.data(), g.data());
-  double gmax = 0;
-  for (double v : g) gmax = std::max(gmax, std::abs(v));
-  double worst = 0;
-  for (std::size_t k : coords) {
-    const double h = 1e-5 * std::max(1.0, std::abs(x[k]));
-    const double x0 = x[k];
-    x[k] = x0 + h;
-    const double fp = f.evaluate(x.data(), nullptr);
-    x[k] = x0 - h;
-    const double fm = f.evaluate(x.data(), nullptr);
-    x[k] = x0;
-    INFO("coordinate " << k << ": adjoint " << g[k] << ", central difference "
-                       << (fp - fm) / (2 * h));
-    worst = std::max(worst, std::abs((fp - fm) / (2 * h) - g[k]) / gmax);
-  }
-  return worst;
-}
-
 }  // namespace
 
 TEST_CASE("joint two-line objective: gradient matches central differences", "[lines][joint]") {
@@ -134,18 +97,10 @@ TEST_CASE("joint two-line objective: gradient matches central differences", "[li
   P.extra_lines[0].strength = 0.3;
   P.extra_lines[0].delay_au = units::as_to_au(12.0);
   const double T = units::period_au(P.ir_omega_au);
-  const IrSampling smp =
-      IrSampling::covering(P.delay_au.front() - 150, P.delay_au.back() + 150, T / 64);
-  std::vector<cdouble> spec(P.energy_au.size());
-  for (std::size_t j = 0; j < spec.size(); ++j) {
-    const double x = units::au_to_eV(P.energy_au[j]) - 108.0;
-    spec[j] = std::exp(-x * x / (2 * 12.0 * 12.0)) * std::polar(1.0, 0.002 * x * x + 0.01 * x);
-  }
-  GaussianIrPulse ip;
-  ip.peak_intensity_Wcm2 = 0.8e13;
-  ip.cep_rad = 0.7;
-  ip.center_fs = 0.2;
-  const std::vector<double> theta = GaussianIrParametrization::from_pulse(ip);
+  const IrSampling smp = test::gradient_check_sampling(P);
+  const std::vector<cdouble> spec = test::perturbed_spectrum(P.energy_au);
+  const std::vector<double> theta =
+      GaussianIrParametrization::from_pulse(test::perturbed_ir_pulse());
   FullModelSettings st;
   SECTION("parametric IR") {
     FullModelObjective f(P, st, MomentumModel::kFull,
@@ -170,11 +125,7 @@ TEST_CASE("joint two-line objective: gradient matches central differences", "[li
   }
   SECTION("spline IR") {
     auto sp = std::make_unique<SplineIrParametrization>(smp, T / 6);
-    std::vector<double> A(smp.size);
-    for (std::size_t i = 0; i < A.size(); ++i)
-      A[i] = GaussianIrParametrization::value(theta.data(), smp.time(i));
-    const std::vector<double> coef = sp->fit_samples(A);
-    sp->set_amplitude_scale(0.1);
+    const std::vector<double> coef = test::fit_gaussian_ir(*sp, smp, theta);
     FullModelObjective f(P, st, MomentumModel::kFull, std::move(sp), 1);
     const std::vector<double> x = f.encode(spec, coef);
     const std::size_t nx = f.num_xuv_parameters(), ni = coef.size(), n = x.size();

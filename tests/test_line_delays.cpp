@@ -16,6 +16,7 @@
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 #include "tests/test_support.h"
+#include "tests/validation/two_line_targets.h"
 
 using namespace sw;
 
@@ -221,17 +222,7 @@ TEST_CASE("line delays: representative rows of the validation sweep", "[line_del
   // strength is held to 15 %; neon (27 eV apart) to 2 % beyond 3 sigma.
   for (const Case& k : {Case{"Ne", 0.1, 300, 50, 31}, Case{"Ne", 0.3, 1000, -20, 32},
                         Case{"Ar", 0.3, 300, 0, 33}, Case{"Ar", 0.3, 1000, -50, 34}}) {
-    synthetic::ScanConfig c = synthetic::find_preset("neon-two-lines").config;
-    c.geometry.delay_fs = {-6.0, 0.15, 81};
-    if (std::string(k.gas) == "Ar") {  // 3p and 3s at 70 eV photons, 190 as (as in the sweep)
-      c.gas = "Ar";
-      c.xuv.gaussian.center_eV = 70.0;
-      c.xuv.gaussian.transform_limited_fwhm_as = 190.0;
-      c.ir.pulse.peak_intensity_Wcm2 = 3e12;
-      c.geometry.energy_eV = {20.0, 0.25, 280};
-      c.lines[0].name = "3p";
-      c.lines[1].name = "3s";
-    }
+    synthetic::ScanConfig c = validation::two_line_target(k.gas);  // the sweep's scans
     c.lines[1].relative_strength = k.strength;
     c.lines[1].delay_as = k.delay_as;
     c.noise.peak_counts = k.peak;

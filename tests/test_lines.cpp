@@ -13,6 +13,7 @@
 #include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/check_support.h"
 #include "tests/test_support.h"
 
 using namespace sw;
@@ -86,10 +87,8 @@ const LineEntry* find_line(const std::vector<LineEntry>& v, const std::string& n
 }  // namespace
 
 TEST_CASE("line options: defaults validate", "[lines]") {
-  CHECK(LineOptions{}.validate().empty());
-  LineOptions o;
-  o.support_fraction = 1.5;
-  CHECK_THAT(o.validate(), Catch::Contains("support_fraction = 1.5"));
+  test::check_validation<LineOptions>(
+      {{[](auto& o) { o.support_fraction = 1.5; }, "support_fraction = 1.5"}});
 }
 
 TEST_CASE("neon: the 2s line is found beside 2p at 95-110 eV photon energy", "[lines]") {

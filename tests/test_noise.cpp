@@ -11,17 +11,13 @@
 #include "synthetic/generator.h"
 #include "synthetic/noise.h"
 #include "synthetic/presets.h"
+#include "tests/test_support.h"
 
 using namespace sw;
+using sw::test::axis;
 using namespace sw::synthetic;
 
 namespace {
-
-std::vector<double> axis(double first, double step, int n) {
-  std::vector<double> v(static_cast<std::size_t>(n));
-  for (int i = 0; i < n; ++i) v[static_cast<std::size_t>(i)] = first + step * i;
-  return v;
-}
 
 // A small XUV-only scan with many identical rows (no IR: every row has the same expectation).
 ScanConfig repeated_field_free(int rows, double peak_counts) {

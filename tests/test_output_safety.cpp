@@ -25,6 +25,8 @@
 namespace fs = std::filesystem;
 using Catch::Contains;
 using nlohmann::json;
+using sw::test::read_text;
+using sw::test::shell_quoted;
 using sw::test::TempDir;
 using sw::test::write_text;
 
@@ -43,31 +45,18 @@ double kill_and_wait(pid_t pid, int sig, int* status) {
 using Run = sw::test::CliRun;
 Run cli(const std::string& args) { return sw::test::run_cli(args); }
 
-std::string q(const fs::path& p) {
-  std::ostringstream s;
-  s << '\'' << p.string() << '\'';
-  return s.str();
-}
-
-std::string slurp(const fs::path& p) {
-  std::ifstream in(p, std::ios::binary);
-  std::ostringstream s;
-  s << in.rdbuf();
-  return s.str();
-}
-
 /// Every regular file under `dir` with its bytes (to prove nothing changed).
 std::map<std::string, std::string> snapshot(const fs::path& dir) {
   std::map<std::string, std::string> m;
   for (const auto& e : fs::recursive_directory_iterator(dir))
-    if (e.is_regular_file()) m[fs::relative(e.path(), dir).string()] = slurp(e.path());
+    if (e.is_regular_file()) m[fs::relative(e.path(), dir).string()] = read_text(e.path());
   return m;
 }
 
 /// A simulated streaking scan DIR/NAME.json + DIR/NAME.png.
 fs::path simulate(const fs::path& dir, const std::string& name) {
-  const Run r =
-      cli("simulate --preset neon-150as --out " + q(dir) + " --name " + name + " --seed 3 --quiet");
+  const Run r = cli("simulate --preset neon-150as --out " + shell_quoted(dir) + " --name " + name +
+                    " --seed 3 --quiet");
   REQUIRE(r.code == 0);
   return dir / (name + ".json");
 }
@@ -83,7 +72,7 @@ TEST_CASE("--out equal to or containing a scan's folder is refused before any wo
   TempDir d("safety");
   const fs::path scan_dir = d.path / "scan";
   const fs::path sc = simulate(scan_dir, "s");
-  json j = json::parse(slurp(sc));
+  json j = json::parse(read_text(sc));
   fs::rename(scan_dir / "s.png", scan_dir / "xuv_temporal.png");
   j["image"] = "xuv_temporal.png";
   write_text((scan_dir / "result.json").string(), j.dump());
@@ -91,7 +80,8 @@ TEST_CASE("--out equal to or containing a scan's folder is refused before any wo
   const auto before = snapshot(scan_dir);
   for (const fs::path& out : {scan_dir, d.path}) {
     const auto t0 = std::chrono::steady_clock::now();
-    const Run r = cli("retrieve " + q(scan_dir / "result.json") + " --out " + q(out) + kFast);
+    const Run r = cli("retrieve " + shell_quoted(scan_dir / "result.json") + " --out " +
+                      shell_quoted(out) + kFast);
     INFO(r.out);
     CHECK(r.code == 2);
     CHECK_THAT(r.out, Contains("could replace or delete inputs"));
@@ -102,11 +92,11 @@ TEST_CASE("--out equal to or containing a scan's folder is refused before any wo
   // A folder below the scan's folder is fine, and an existing folder of the user is not replaced.
   fs::create_directories(d.path / "mine");
   write_text((d.path / "mine" / "notes.txt").string(), "keep me");
-  const Run r =
-      cli("retrieve " + q(scan_dir / "result.json") + " --out " + q(d.path / "mine") + kFast);
+  const Run r = cli("retrieve " + shell_quoted(scan_dir / "result.json") + " --out " +
+                    shell_quoted(d.path / "mine") + kFast);
   CHECK(r.code == 2);
   CHECK_THAT(r.out, Contains("not a streakwright output folder"));
-  CHECK(slurp(d.path / "mine" / "notes.txt") == "keep me");
+  CHECK(read_text(d.path / "mine" / "notes.txt") == "keep me");
 }
 
 TEST_CASE("batch --out ARCHIVE with data in a folder named like the scan deletes nothing",
@@ -117,20 +107,21 @@ TEST_CASE("batch --out ARCHIVE with data in a folder named like the scan deletes
   const fs::path sc = simulate(archive, "run1");
   fs::create_directories(archive / "run1");
   fs::rename(archive / "run1.png", archive / "run1" / "counts.png");
-  json j = json::parse(slurp(sc));
+  json j = json::parse(read_text(sc));
   j["image"] = "run1/counts.png";
   write_text(sc.string(), j.dump());
   const auto before = snapshot(archive);
-  const Run r = cli("batch " + q(archive) + " --out " + q(archive) + kFast);
+  const Run r = cli("batch " + shell_quoted(archive) + " --out " + shell_quoted(archive) + kFast);
   INFO(r.out);
   CHECK(r.code == 2);
   CHECK(snapshot(archive) == before);
   // Inside the archive but not containing any input: allowed, inputs untouched.
-  const Run ok = cli("batch " + q(archive) + " --out " + q(archive / "reprocessed") + kFast);
+  const Run ok = cli("batch " + shell_quoted(archive) + " --out " +
+                     shell_quoted(archive / "reprocessed") + kFast);
   INFO(ok.out);
   CHECK((ok.code == 0 || ok.code == 5));
   CHECK(fs::exists(archive / "reprocessed" / "summary.json"));
-  for (const auto& [k, v] : before) CHECK(slurp(archive / k) == v);
+  for (const auto& [k, v] : before) CHECK(read_text(archive / k) == v);
 }
 
 TEST_CASE("SIGINT and SIGTERM stop a retrieve within a second and keep the old result",
@@ -139,8 +130,8 @@ TEST_CASE("SIGINT and SIGTERM stop a retrieve within a second and keep the old r
   TempDir d("safety");
   const fs::path sc = simulate(d.path, "s");
   const fs::path out = d.path / "out";
-  REQUIRE(cli("retrieve " + q(sc) + " --out " + q(out) + kFast).code <= 4);
-  const std::string old_result = slurp(out / "result.json");
+  REQUIRE(cli("retrieve " + shell_quoted(sc) + " --out " + shell_quoted(out) + kFast).code <= 4);
+  const std::string old_result = read_text(out / "result.json");
   REQUIRE(!old_result.empty());
   for (int sig : {SIGINT, SIGTERM}) {
     const pid_t pid = fork();
@@ -166,7 +157,7 @@ TEST_CASE("SIGINT and SIGTERM stop a retrieve within a second and keep the old r
     CHECK(seconds < 1.5);  // "within about a second" (issue 11)
     REQUIRE(WIFEXITED(status));
     CHECK(WEXITSTATUS(status) == 128 + sig);
-    CHECK(slurp(out / "result.json") == old_result);
+    CHECK(read_text(out / "result.json") == old_result);
     for (const auto& e : fs::directory_iterator(d.path))
       CHECK(e.path().filename().string().find(".partial-") == std::string::npos);
   }
@@ -182,13 +173,13 @@ TEST_CASE("a killed run's temporary folder is removed and the output is replaced
   fs::create_directories(out);
   write_text((out / "result.json").string(), "{}");
   write_text((out / "stale_from_an_older_version.csv").string(), "1\n");
-  const Run r = cli("retrieve " + q(sc) + " --out " + q(out) + kFast);
+  const Run r = cli("retrieve " + shell_quoted(sc) + " --out " + shell_quoted(out) + kFast);
   INFO(r.out);
   CHECK(r.code <= 4);
   CHECK_FALSE(fs::exists(d.path / ".out.partial-999999"));
   CHECK_FALSE(fs::exists(out / "stale_from_an_older_version.csv"));
   CHECK(fs::exists(out / "report.html"));
-  CHECK(slurp(out / "result.json") != "{}");
+  CHECK(read_text(out / "result.json") != "{}");
 }
 
 TEST_CASE("a second batch on a locked output folder refuses naming the holder",
@@ -203,14 +194,16 @@ TEST_CASE("a second batch on a locked output folder refuses naming the holder",
   gethostname(host, sizeof host - 1);
   write_text((out / ".streakwright.lock").string(),
              std::to_string(getpid()) + " " + host + " 1700000000\n");
-  const Run held = cli("batch " + q(d.path / "in") + " --out " + q(out) + kFast);
+  const Run held =
+      cli("batch " + shell_quoted(d.path / "in") + " --out " + shell_quoted(out) + kFast);
   CHECK(held.code == 2);
   CHECK_THAT(held.out, Contains("in use by another batch run") &&
                            Contains("process " + std::to_string(getpid())));
   CHECK_FALSE(fs::exists(out / "summary.json"));
   write_text((out / ".streakwright.lock").string(),
              std::string("999999 ") + host + " 1700000000\n");
-  const Run stale = cli("batch " + q(d.path / "in") + " --out " + q(out) + kFast);
+  const Run stale =
+      cli("batch " + shell_quoted(d.path / "in") + " --out " + shell_quoted(out) + kFast);
   INFO(stale.out);
   CHECK((stale.code == 0 || stale.code == 5));
   CHECK(fs::exists(out / "summary.json"));
@@ -222,13 +215,13 @@ TEST_CASE("options are validated before any work: NaN, infinity, 0 nm, negative 
   // Defect 6: these were silently ignored or accepted (exit 2 = bad usage, docs/cli.md).
   TempDir d("safety");
   const fs::path sc = simulate(d.path, "s");
-  const std::string o = " --out " + q(d.path / "o");
-  for (const std::string& args :
-       {"rabbitt " + q(sc) + o + " --ir-wavelength 0",
-        "rabbitt " + q(sc) + o + " --ir-wavelength nan",
-        "classify " + q(sc) + o + " --ir-wavelength 1e6", "retrieve " + q(sc) + o + " --seed -1",
-        "retrieve " + q(sc) + o + " --cma-phase-limit inf",
-        "batch " + q(d.path) + o + " --max-seconds nan"}) {
+  const std::string o = " --out " + shell_quoted(d.path / "o");
+  for (const std::string& args : {"rabbitt " + shell_quoted(sc) + o + " --ir-wavelength 0",
+                                  "rabbitt " + shell_quoted(sc) + o + " --ir-wavelength nan",
+                                  "classify " + shell_quoted(sc) + o + " --ir-wavelength 1e6",
+                                  "retrieve " + shell_quoted(sc) + o + " --seed -1",
+                                  "retrieve " + shell_quoted(sc) + o + " --cma-phase-limit inf",
+                                  "batch " + shell_quoted(d.path) + o + " --max-seconds nan"}) {
     const Run r = cli(args);
     INFO(args << "\n" << r.out);
     CHECK(r.code == 2);
@@ -241,7 +234,8 @@ TEST_CASE("rabbitt on a scan without a harmonic comb is bad input (3) and writes
   // Defect 6: exit 4 promises a written estimate (docs/cli.md).
   TempDir d("safety");
   const fs::path sc = simulate(d.path, "s");
-  const Run r = cli("rabbitt " + q(sc) + " --out " + q(d.path / "o") + " --quiet");
+  const Run r =
+      cli("rabbitt " + shell_quoted(sc) + " --out " + shell_quoted(d.path / "o") + " --quiet");
   INFO(r.out);
   CHECK(r.code == 3);
   CHECK_FALSE(fs::exists(d.path / "o"));
@@ -253,7 +247,7 @@ TEST_CASE("batch survives hostile sidecars: deep nesting, FIFO data, outside pat
   TempDir d("safety");
   const fs::path in = d.path / "in";
   const fs::path good = simulate(in, "good");
-  const json j = json::parse(slurp(good));
+  const json j = json::parse(read_text(good));
   {
     std::string t = j.dump();
     t.pop_back();
@@ -268,13 +262,13 @@ TEST_CASE("batch survives hostile sidecars: deep nesting, FIFO data, outside pat
   json s = j;
   s["image"] = "../secret.csv";
   write_text((in / "leak.json").string(), s.dump());
-  const Run r = cli("batch " + q(in) + " --out " + q(d.path / "out") + kFast);
+  const Run r = cli("batch " + shell_quoted(in) + " --out " + shell_quoted(d.path / "out") + kFast);
   INFO(r.out);
   CHECK(r.code == 5);
-  const std::string summary = slurp(d.path / "out" / "summary.json");
+  const std::string summary = read_text(d.path / "out" / "summary.json");
   const json rows = json::parse(summary);
   CHECK(summary.find("secret-line") == std::string::npos);
-  CHECK(slurp(d.path / "out" / "summary.csv").find("secret-line") == std::string::npos);
+  CHECK(read_text(d.path / "out" / "summary.csv").find("secret-line") == std::string::npos);
   CHECK(r.out.find("secret-line") == std::string::npos);
   CHECK_THAT(summary, Contains("nests deeper") && Contains("FIFO") && Contains("outside"));
 }
@@ -283,11 +277,11 @@ TEST_CASE("info warns about negative energies and escapes control bytes", "[cli]
   // Defect 10; kinetic energies are >= 0 (from memory: W = p^2 / 2).
   TempDir d("safety");
   const fs::path sc = simulate(d.path, "s");
-  json j = json::parse(slurp(sc));
+  json j = json::parse(read_text(sc));
   j["energy_eV"]["first"] = -10.0;
   j["operator"] = "\x1b[31mred\r";
   write_text(sc.string(), j.dump());
-  const Run r = cli("info " + q(sc));
+  const Run r = cli("info " + shell_quoted(sc));
   INFO(r.out);
   CHECK(r.code == 0);
   CHECK_THAT(r.out, Contains("below 0 eV"));
@@ -316,12 +310,12 @@ TEST_CASE("decoder diagnostics do not reach the terminal raw", "[cli][safety]") 
     return s;
   };
   // Re-encode the simulated PNG with a tEXt chunk of wrong CRC after IHDR.
-  const std::string png = slurp(d.path / "s.png");
+  const std::string png = read_text(d.path / "s.png");
   const std::size_t ihdr_end = 8 + 4 + 4 + 13 + 4;
   const std::string text = std::string("Comment") + '\0' + "hello";
   write_text((d.path / "s.png").string(),
              png.substr(0, ihdr_end) + chunk("tEXt", text, true) + png.substr(ihdr_end));
-  const Run r = cli("info " + q(sc));
+  const Run r = cli("info " + shell_quoted(sc));
   INFO(r.out);
   CHECK(r.code == 0);
   CHECK(r.out.find("\nlibpng") == std::string::npos);
@@ -337,10 +331,10 @@ TEST_CASE("batch records a scan with a non-UTF-8 file name as failed and writes 
   const fs::path in = d.path / "in";
   const fs::path good = simulate(in, "good");
   fs::copy_file(good, in / std::string("bad\xff.json"));
-  const Run r = cli("batch " + q(in) + " --out " + q(d.path / "out") + kFast);
+  const Run r = cli("batch " + shell_quoted(in) + " --out " + shell_quoted(d.path / "out") + kFast);
   INFO(r.out);
   CHECK(r.code == 5);
-  const json rows = json::parse(slurp(d.path / "out" / "summary.json"));
+  const json rows = json::parse(read_text(d.path / "out" / "summary.json"));
   CHECK_THAT(rows.dump(), Contains("bad\\\\xff") && Contains("not valid UTF-8"));
 }
 

@@ -93,14 +93,8 @@ TEST_CASE("projections: LSGPA on a jittered delay axis", "[projections]") {
 TEST_CASE("projections: Poisson noise at 100 counts at the peak", "[projections][slow]") {
   for (const double gdd : {0.0, -3000.0}) {
     INFO("GDD " << gdd << " as^2");
-    CaseSpec s;
-    s.gdd_as2 = gdd;
-    s.peak_counts = 100;
-    s.seed = 2024;
-    const Case c = make_case(s);
-    const Reconstruction r = retrieve(c, "projections");
-    check_truth(c, r, 0.05);
-    CHECK(r.converged());
+    const Case c = make_case(poisson_100_spec(gdd));
+    const Reconstruction r = retrieve_checked(c, "projections");
     CHECK(r.trace_error < 1.05 * r.noise_floor_trace_error);
     // The two CMA engines agree on the same noisy data to 3 %.
     const Reconstruction p = retrieve(c, "ptychographic");
@@ -146,11 +140,7 @@ TEST_CASE("both CMA engines on the standard cases (the engines' report table)",
     rows.push_back({"GDD +3000 jitter", s});
   }
   for (double g : {0.0, 3000.0}) {
-    CaseSpec s;
-    s.gdd_as2 = g;
-    s.peak_counts = 100;
-    s.seed = 2024;
-    rows.push_back({g == 0 ? "TL Poisson 100" : "GDD +3000 Poisson 100", s});
+    rows.push_back({g == 0 ? "TL Poisson 100" : "GDD +3000 Poisson 100", poisson_100_spec(g)});
   }
   for (const Row& row : rows) {
     const Case c = make_case(row.spec);

@@ -20,9 +20,7 @@ using namespace sw::testing;
 
 TEST_CASE("ptychographic: transform-limited 150 as pulse", "[ptychographic]") {
   const Case c = make_case(CaseSpec{});
-  const Reconstruction r = retrieve(c, "ptychographic", noise_free_options());
-  check_truth(c, r, 0.05);
-  CHECK(r.converged());
+  const Reconstruction r = retrieve_checked(c, "ptychographic", noise_free_options());
   CHECK(r.engine == "ptychographic");
   CHECK(r.model == "cma");
   // Its default data projection is the Poisson one (retrieval/engines/cma_problem.h; Thibault and
@@ -42,9 +40,7 @@ TEST_CASE("ptychographic: the sign of the chirp comes out right", "[ptychographi
     CaseSpec s;
     s.gdd_as2 = gdd;
     const Case c = make_case(s);
-    const Reconstruction r = retrieve(c, "ptychographic", noise_free_options());
-    check_truth(c, r, 0.05);
-    CHECK(r.converged());
+    const Reconstruction r = retrieve_checked(c, "ptychographic", noise_free_options());
   }
 }
 
@@ -54,23 +50,15 @@ TEST_CASE("ptychographic: a jittered delay axis", "[ptychographic]") {
   s.gdd_as2 = 3000;
   s.jitter = 0.4;
   const Case c = make_case(s);
-  const Reconstruction r = retrieve(c, "ptychographic", noise_free_options());
-  check_truth(c, r, 0.05);
-  CHECK(r.converged());
+  const Reconstruction r = retrieve_checked(c, "ptychographic", noise_free_options());
   CHECK(r.trace_error < 1e-3);
 }
 
 TEST_CASE("ptychographic: Poisson noise at 100 counts at the peak", "[ptychographic][slow]") {
   for (const double gdd : {0.0, 3000.0}) {
     INFO("GDD " << gdd << " as^2");
-    CaseSpec s;
-    s.gdd_as2 = gdd;
-    s.peak_counts = 100;
-    s.seed = 2024;
-    const Case c = make_case(s);
-    const Reconstruction r = retrieve(c, "ptychographic");
-    check_truth(c, r, 0.05);
-    CHECK(r.converged());
+    const Case c = make_case(poisson_100_spec(gdd));
+    const Reconstruction r = retrieve_checked(c, "ptychographic");
     // A fit at the noise floor (Poisson variances of the counts), not below it by much either.
     CHECK(r.trace_error < 1.05 * r.noise_floor_trace_error);
     CHECK(r.trace_error > 0.9 * r.noise_floor_trace_error);
@@ -84,9 +72,7 @@ TEST_CASE("ptychographic: without a field-free spectrum", "[ptychographic]") {
   s.gdd_as2 = 3000;
   Case c = make_case(s);
   c.problem.field_free_spectrum.clear();
-  const Reconstruction r = retrieve(c, "ptychographic", noise_free_options());
-  check_truth(c, r, 0.05);
-  CHECK(r.converged());
+  const Reconstruction r = retrieve_checked(c, "ptychographic", noise_free_options());
 }
 
 TEST_CASE("ptychographic: the retrieved fields reproduce the trace through the forward model",

@@ -11,16 +11,12 @@
 #include "retrieval/core/units.h"
 #include "retrieval/physics/pulse_metrics.h"
 #include "retrieval/physics/xuv_builders.h"
+#include "tests/test_support.h"
 
 using namespace sw;
+using sw::test::axis;
 
 namespace {
-
-std::vector<double> axis(double first, double step, int n) {
-  std::vector<double> x(static_cast<std::size_t>(n));
-  for (int i = 0; i < n; ++i) x[static_cast<std::size_t>(i)] = first + step * i;
-  return x;
-}
 
 template <class F>
 std::vector<double> sample(const std::vector<double>& x, F f) {
@@ -114,15 +110,9 @@ TEST_CASE("intensity FWHM of a field, also across the periodic window edge", "[m
 
 TEST_CASE("transform-limited FWHM of a chirped pulse equals the flat-phase FWHM", "[metrics]") {
   const TimeGrid grid = standard_grid();
-  GaussianXuvPulse p;
-  p.transform_limited_fwhm_as = 150.0;
-  p.gdd_as2 = 12000.0;
-  p.tod_as3 = 4.0e5;
-  p.center_time_as = 700.0;
-  const XuvField chirped = make_gaussian_xuv(grid, p);
-  GaussianXuvPulse flat;
-  flat.transform_limited_fwhm_as = 150.0;
-  const double flat_fwhm = intensity_fwhm(make_gaussian_xuv(grid, flat));
+  // {centre eV, TL FWHM as, GDD as^2, TOD as^3, centre time as}
+  const XuvField chirped = make_gaussian_xuv(grid, {95.0, 150.0, 12000.0, 4.0e5, 700.0});
+  const double flat_fwhm = intensity_fwhm(make_gaussian_xuv(grid, {95.0, 150.0, 0.0, 0.0, 0.0}));
   // Chirp lengthens the pulse (Diels and Rudolph); its transform limit is the flat-phase pulse.
   CHECK(intensity_fwhm(chirped) > 1.5 * flat_fwhm);
   CHECK(transform_limited_fwhm(chirped) == Approx(flat_fwhm).epsilon(1e-6));

@@ -15,7 +15,8 @@
 #include "io/result_io.h"
 #include "retrieval/analysis/quality.h"
 #include "retrieval/core/error.h"
-#include "test_support.h"
+#include "tests/check_support.h"
+#include "tests/test_support.h"
 
 using namespace sw;
 namespace fs = std::filesystem;
@@ -46,59 +47,56 @@ RetrievalEvidence good_evidence() {
   return e;
 }
 
+// The retrieval checks of evidence `e` with the default options.
+QualitySection checked(const RetrievalEvidence& e) {
+  QualitySection q;
+  add_retrieval_checks(q, e, QualityOptions());
+  return q;
+}
+
 }  // namespace
 
 TEST_CASE("quality options: defaults validate, a bad value is named", "[quality]") {
-  CHECK(QualityOptions().validate().empty());
-  QualityOptions o;
-  o.min_fwhm_to_transform_limit = 1.5;
-  CHECK(o.validate().find("min_fwhm_to_transform_limit = 1.5") != std::string::npos);
-  o = QualityOptions();
-  o.max_trace_error_ratio = 0.9;
-  CHECK(o.validate().find("max_trace_error_ratio") != std::string::npos);
+  test::check_validation<QualityOptions>(
+      {{[](auto& o) { o.min_fwhm_to_transform_limit = 1.5; }, "min_fwhm_to_transform_limit = 1.5"},
+       {[](auto& o) { o.max_trace_error_ratio = 0.9; }, "max_trace_error_ratio"}});
 }
 
 TEST_CASE("a check fails exactly when its limit is crossed", "[quality]") {
   // A pulse cannot be shorter than its transform limit (Fourier uncertainty; issue 10 allows
   // 5 % for the grid): FWHM / TL = 0.94 fails, 0.96 passes. G / G_noise: a fit at the noise
   // floor has ~1 (chi^2 per degree of freedom ~1, common practice); 1.6 > 1.5 fails.
-  QualitySection q;
-  add_retrieval_checks(q, good_evidence(), QualityOptions());
+  const QualitySection q = checked(good_evidence());
   CHECK(q.trusted);
   CHECK(q.failed.empty());
 
   RetrievalEvidence e = good_evidence();
   e.fwhm_as = 0.94 * e.transform_limited_fwhm_as;
-  QualitySection q2;
-  add_retrieval_checks(q2, e, QualityOptions());
+  const QualitySection q2 = checked(e);
   CHECK_FALSE(q2.trusted);
   REQUIRE(find(q2, "fwhm_vs_transform_limit"));
   CHECK_FALSE(find(q2, "fwhm_vs_transform_limit")->pass);
   e.fwhm_as = 0.96 * e.transform_limited_fwhm_as;
-  QualitySection q3;
-  add_retrieval_checks(q3, e, QualityOptions());
+  const QualitySection q3 = checked(e);
   CHECK(q3.trusted);
 
   e = good_evidence();
   e.trace_error = 1.6 * e.noise_floor_trace_error;
-  QualitySection q4;
-  add_retrieval_checks(q4, e, QualityOptions());
+  const QualitySection q4 = checked(e);
   CHECK_FALSE(q4.trusted);
   CHECK(q4.failed == std::vector<std::string>{"trace_error_vs_noise_floor"});
 
   // A failing check that guards no headline number is listed but leaves trusted.
   e = good_evidence();
   e.bias_over_sigma = 3.0;
-  QualitySection q5;
-  add_retrieval_checks(q5, e, QualityOptions());
+  const QualitySection q5 = checked(e);
   CHECK(q5.trusted);
   CHECK(q5.failed == std::vector<std::string>{"bootstrap_bias_over_sigma"});
 
   // A value that could not be computed fails (never passes silently).
   e = good_evidence();
   e.transform_limited_fwhm_as = 0.0;
-  QualitySection q6;
-  add_retrieval_checks(q6, e, QualityOptions());
+  const QualitySection q6 = checked(e);
   CHECK_FALSE(q6.trusted);
 }
 

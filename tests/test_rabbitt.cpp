@@ -17,6 +17,8 @@
 #include "retrieval/physics/xuv_builders.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/check_support.h"
+#include "tests/trace_support.h"
 
 using namespace sw;
 
@@ -56,9 +58,7 @@ Trace clean_trace(const Scenario& s) {
     t.energy_au.push_back(units::eV_to_au(s.energy_first_eV + 0.05 * j));
   for (int i = 0; i < s.delays; ++i)
     t.delay_au.push_back(units::fs_to_au(s.delay_first_fs + 0.1 * i));
-  ForwardModelOptions o;
-  o.momentum = MomentumModel::kFull;
-  t.counts = ForwardModel(ip, DipoleModel(), o).trace(x, ir, t.delay_au, t.energy_au);
+  t.counts = test::full_momentum_density(ip, x, ir, t.delay_au, t.energy_au);
   t.meta.gas = "Ar";
   t.meta.ir_wavelength_nm = 800.0;
   t.meta.kind = TraceKind::kRabbitt;
@@ -68,13 +68,8 @@ Trace clean_trace(const Scenario& s) {
 // Poisson counts with the given expected peak counts per bin.
 Trace noisy(const Trace& clean, double peak_counts, unsigned long long seed) {
   Trace t = clean;
-  const double scale = peak_counts / clean.counts.maxCoeff();
   std::mt19937_64 rng(seed);
-  for (Eigen::Index i = 0; i < t.counts.rows(); ++i)
-    for (Eigen::Index j = 0; j < t.counts.cols(); ++j) {
-      std::poisson_distribution<long long> pd(scale * clean.counts(i, j));
-      t.counts(i, j) = static_cast<double>(pd(rng));
-    }
+  t.counts = test::poisson_counts(clean.counts, peak_counts / clean.counts.maxCoeff(), rng);
   return t;
 }
 
@@ -88,6 +83,23 @@ RabbittOptions no_atomic() {
 // t_c + GDD (Omega - Omega0) (retrieval/physics/xuv_builders.h), in as.
 double true_group_delay_as(const Scenario& s, double photon_eV) {
   return s.center_time_as + s.gdd_as2 * (photon_eV - s.center_eV) / kHbar_eV_as;
+}
+
+// Slope of the straight line fitted to (x, y) by least squares with weights 1 / sigma^2 (the
+// normal equations of a weighted linear fit; e.g. Bevington and Robinson, Data Reduction and
+// Error Analysis for the Physical Sciences, 3rd ed. (2003), ch. 6).
+double weighted_slope(const std::vector<double>& x, const std::vector<double>& y,
+                      const std::vector<double>& sigma) {
+  double S = 0, Sx = 0, Sy = 0, Sxx = 0, Sxy = 0;
+  for (std::size_t k = 0; k < x.size(); ++k) {
+    const double wt = 1.0 / (sigma[k] * sigma[k]);
+    S += wt;
+    Sx += wt * x[k];
+    Sy += wt * y[k];
+    Sxx += wt * x[k] * x[k];
+    Sxy += wt * x[k] * y[k];
+  }
+  return (S * Sxy - Sx * Sy) / (S * Sxx - Sx * Sx);
 }
 
 bool has_warning(const RabbittAnalysis& r, const std::string& what) {
@@ -270,17 +282,8 @@ TEST_CASE("rainbow RABBITT: the phase slope across a sideband is 2 omega GDD", "
       if (sb.order != 22) continue;
       seen = true;
       REQUIRE(sb.rainbow_phase_rad.size() == static_cast<std::size_t>(sb.window_bins));
-      double S = 0, Sx = 0, Sy = 0, Sxx = 0, Sxy = 0;
-      for (std::size_t k = 0; k < sb.rainbow_phase_rad.size(); ++k) {
-        const double wt = 1.0 / (sb.rainbow_phase_rad_sigma[k] * sb.rainbow_phase_rad_sigma[k]);
-        const double x = sb.rainbow_energy_eV[k], y = sb.rainbow_phase_rad[k];
-        S += wt;
-        Sx += wt * x;
-        Sy += wt * y;
-        Sxx += wt * x * x;
-        Sxy += wt * x * y;
-      }
-      const double slope = (S * Sxy - Sx * Sy) / (S * Sxx - Sx * Sx);
+      const double slope =
+          weighted_slope(sb.rainbow_energy_eV, sb.rainbow_phase_rad, sb.rainbow_phase_rad_sigma);
       INFO("GDD " << gdd << ": slope " << slope << " rad/eV, expected " << expect);
       CHECK(slope == Approx(expect).epsilon(0.25));
     }
@@ -320,13 +323,9 @@ TEST_CASE("missing metadata and bad options give errors naming the field", "[rab
   s.delays = 20;
   Trace t = noisy(clean_trace(s), 100.0, 1);
   t.meta.gas.clear();
-  try {
-    analyze_rabbitt(t, RabbittOptions());
-    FAIL("expected an error");
-  } catch (const Error& e) {
-    CHECK(e.kind() == ErrorKind::kInput);
-    CHECK_THAT(e.what(), Catch::Contains("gas"));
-  }
+  CHECK_THAT(
+      test::error_message([&] { (void)analyze_rabbitt(t, RabbittOptions()); }, ErrorKind::kInput),
+      Catch::Contains("gas"));
   t.meta.gas = "Ar";
   t.meta.ir_wavelength_nm = 0.0;
   CHECK_THROWS_WITH(analyze_rabbitt(t, RabbittOptions()), Catch::Contains("ir_wavelength_nm"));
@@ -419,17 +418,13 @@ TEST_CASE("argon-rabbitt preset of the direct-quadrature generator", "[rabbitt][
   // slope of the subtracted tau_A (the fit is linear in the delays, weights unchanged).
   const RabbittAnalysis a = analyze_rabbitt(sc.trace, RabbittOptions());
   REQUIRE(a.sidebands.size() == r.sidebands.size());
-  double S = 0, Sx = 0, Sy = 0, Sxx = 0, Sxy = 0;
+  std::vector<double> x, y, sigma;
   for (const auto& sb : a.sidebands) {
-    const double wt = 1.0 / (sb.group_delay_as_sigma * sb.group_delay_as_sigma);
-    const double x = sb.photon_energy_eV, y = sb.atomic.total_as;
-    S += wt;
-    Sx += wt * x;
-    Sy += wt * y;
-    Sxx += wt * x * x;
-    Sxy += wt * x * y;
+    x.push_back(sb.photon_energy_eV);
+    y.push_back(sb.atomic.total_as);
+    sigma.push_back(sb.group_delay_as_sigma);
   }
-  const double slope_atomic = (S * Sxy - Sx * Sy) / (S * Sxx - Sx * Sx);
+  const double slope_atomic = weighted_slope(x, y, sigma);
   CHECK(*a.section.attochirp_as_per_eV - *r.section.attochirp_as_per_eV ==
         Approx(-slope_atomic).margin(1e-6));
 }
@@ -438,13 +433,9 @@ TEST_CASE("a streaking scan of an isolated pulse is refused as not a RABBITT sca
           "[rabbitt][synthetic]") {
   const synthetic::SyntheticScan sc =
       synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 2);
-  try {
-    analyze_rabbitt(sc.trace, RabbittOptions());
-    FAIL("expected an error");
-  } catch (const Error& e) {
-    CHECK(e.kind() == ErrorKind::kInput);
-    CHECK_THAT(e.what(), Catch::Contains("not a RABBITT scan"));
-  }
+  CHECK_THAT(test::error_message([&] { (void)analyze_rabbitt(sc.trace, RabbittOptions()); },
+                                 ErrorKind::kInput),
+             Catch::Contains("not a RABBITT scan"));
   RabbittOptions o;
   o.require_comb = false;
   const RabbittAnalysis r = analyze_rabbitt(sc.trace, o);

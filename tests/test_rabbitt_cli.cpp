@@ -26,39 +26,12 @@ using namespace sw;
 
 namespace {
 
-using sw::test::TempDir;
-using sw::test::write_text;
+using namespace sw::test;
 
 // One folder for the whole file (scans are generated once).
 TempDir& temp() {
   static TempDir d;
   return d;
-}
-
-// Shell-quoted path (built by appending: GCC 12 warns falsely on "'" + std::string).
-std::string q(const fs::path& p) {
-  std::string s(1, '\'');
-  s += p.string();
-  s += '\'';
-  return s;
-}
-
-struct Cli {
-  int status = -1;
-  std::string out, err;
-};
-
-Cli run_cli(const std::string& args) {
-  static int n = 0;
-  const fs::path o = temp().path / ("cli_" + std::to_string(++n));
-  const std::string cmd = q(STREAKWRIGHT_CLI_PATH) + " " + args + " > " + q(o.string() + ".out") +
-                          " 2> " + q(o.string() + ".err");
-  const int rc = std::system(cmd.c_str());
-  Cli c;
-  c.status = WIFEXITED(rc) ? WEXITSTATUS(rc) : -1;
-  c.out = read_file_bytes(o.string() + ".out");
-  c.err = read_file_bytes(o.string() + ".err");
-  return c;
 }
 
 // Generates a config once and writes it with its truth record; returns the
@@ -90,7 +63,8 @@ TEST_CASE("rabbitt on the argon-rabbitt preset matches the truth record", "[cli]
   REQUIRE(truth.rabbitt);
   const fs::path out = temp().path / "rabbitt_out";
   // The generator's SFA has no atomic delays: none is the matching correction.
-  const Cli c = run_cli("rabbitt " + q(scan) + " --out " + q(out) + " --atomic-correction none -q");
+  const CliOutput c = run_cli_apart("rabbitt " + shell_quoted(scan) + " --out " +
+                                    shell_quoted(out) + " --atomic-correction none -q");
   INFO(c.out << c.err);
   REQUIRE(c.status == 0);
   CHECK_THAT(c.out, Catch::Contains("attochirp"));
@@ -137,7 +111,8 @@ TEST_CASE("rabbitt on the argon-rabbitt preset matches the truth record", "[cli]
 
   // With the atomic-delay model of argon every sideband lists its correction.
   const fs::path out2 = temp().path / "rabbitt_auto";
-  REQUIRE(run_cli("rabbitt " + q(scan) + " --out " + q(out2) + " -q").status == 0);
+  REQUIRE(run_cli_apart("rabbitt " + shell_quoted(scan) + " --out " + shell_quoted(out2) + " -q")
+              .status == 0);
   const AnalysisResult r2 = read_result_json((out2 / "result.json").string());
   REQUIRE(r2.rabbitt);
   for (const Sideband& sb : r2.rabbitt->sidebands) CHECK(sb.atomic_delay_as);
@@ -154,8 +129,9 @@ TEST_CASE("rabbitt with a field-free XUV-only spectrum for the harmonic amplitud
   c.geometry.delay_fs = {0.0, 1.0, 1};
   const fs::path xuv = write_scan(c, "argon-xuv-only", 2);
   const fs::path out = temp().path / "rabbitt_xuv";
-  const Cli cl = run_cli("rabbitt " + q(scan) + " --out " + q(out) + " --xuv-only " + q(xuv) +
-                         " --atomic-correction none -q");
+  const CliOutput cl =
+      run_cli_apart("rabbitt " + shell_quoted(scan) + " --out " + shell_quoted(out) +
+                    " --xuv-only " + shell_quoted(xuv) + " --atomic-correction none -q");
   INFO(cl.out << cl.err);
   REQUIRE(cl.status == 0);
   const AnalysisResult r = read_result_json((out / "result.json").string());
@@ -170,8 +146,9 @@ TEST_CASE("rabbitt with a field-free XUV-only spectrum for the harmonic amplitud
   CHECK(source);
 
   // A missing sidecar is bad input naming the file.
-  const Cli bad = run_cli("rabbitt " + q(scan) + " --out " + q(temp().path / "rabbitt_xuv_bad") +
-                          " --xuv-only " + q(temp().path / "missing.json") + " -q");
+  const CliOutput bad = run_cli_apart(
+      "rabbitt " + shell_quoted(scan) + " --out " + shell_quoted(temp().path / "rabbitt_xuv_bad") +
+      " --xuv-only " + shell_quoted(temp().path / "missing.json") + " -q");
   CHECK(bad.status == 3);
   CHECK_THAT(bad.err, Catch::Contains("missing.json"));
 }
@@ -183,7 +160,8 @@ TEST_CASE("classify gives the truth class of isolated, satellite, train and XUV-
     const fs::path scan = preset_scan(preset, &truth);
     REQUIRE(truth.verdict);
     const fs::path out = temp().path / (std::string("classify_") + preset);
-    const Cli c = run_cli("classify " + q(scan) + " --out " + q(out) + " -q");
+    const CliOutput c =
+        run_cli_apart("classify " + shell_quoted(scan) + " --out " + shell_quoted(out) + " -q");
     INFO(preset << "\n" << c.out << c.err);
     REQUIRE(c.status == 0);
     CHECK_THAT(c.out,
@@ -212,21 +190,23 @@ TEST_CASE("classify gives the truth class of isolated, satellite, train and XUV-
 TEST_CASE("rabbitt refuses a streaking scan; bad options are usage errors", "[cli][rabbitt]") {
   const fs::path scan = preset_scan("neon-150as");
   const fs::path out = temp().path / "rabbitt_streaking";
-  const Cli c = run_cli("rabbitt " + q(scan) + " --out " + q(out) + " -q");
+  const CliOutput c =
+      run_cli_apart("rabbitt " + shell_quoted(scan) + " --out " + shell_quoted(out) + " -q");
   INFO(c.out << c.err);
   CHECK(c.status == 3);  // bad input data (cli/commands.h)
   CHECK_THAT(c.err, Catch::Contains("not a RABBITT scan"));
   CHECK_THAT(c.err, Catch::Contains("neon-150as.json"));
   CHECK_FALSE(fs::exists(out / "result.json"));  // never a half-finished result
 
-  const Cli u =
-      run_cli("rabbitt " + q(scan) + " --out " + q(out) + " --atomic-correction maybe -q");
+  const CliOutput u = run_cli_apart("rabbitt " + shell_quoted(scan) + " --out " +
+                                    shell_quoted(out) + " --atomic-correction maybe -q");
   CHECK(u.status == 2);
   CHECK_THAT(u.err, Catch::Contains("--atomic-correction"));
-  const Cli w = run_cli("classify " + q(scan) + " --out " + q(out) + " --isolated-max 0.9 -q");
+  const CliOutput w = run_cli_apart("classify " + shell_quoted(scan) + " --out " +
+                                    shell_quoted(out) + " --isolated-max 0.9 -q");
   CHECK(w.status == 2);
   CHECK_THAT(w.err, Catch::Contains("isolated_max_satellite_ratio"));
-  const Cli h = run_cli("rabbitt --help");
+  const CliOutput h = run_cli_apart("rabbitt --help");
   CHECK(h.status == 0);
   CHECK_THAT(h.out, Catch::Contains("attochirp"));
 }

@@ -14,6 +14,7 @@
 #include "io/figures.h"
 #include "io/report_html.h"
 #include "retrieval/core/error.h"
+#include "tests/plot_test_support.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -34,17 +35,11 @@ std::size_t count(const std::string& hay, const std::string& needle) {
   return n;
 }
 
+// The shared line plot at a small size.
 sw::LinePlot small_plot() {
-  sw::LinePlot lp;
-  lp.title = "test";
-  lp.x_label = "x (fs)";
-  lp.y_label = "y (arb. u.)";
+  sw::LinePlot lp = sw::test::pulse_and_phase_plot();
   lp.width_px = 400;
   lp.height_px = 300;
-  sw::Series s;
-  s.x = {0, 1, 2, 3};
-  s.y = {0, 1, 4, 9};
-  lp.series = {s};
   return lp;
 }
 

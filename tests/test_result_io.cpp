@@ -14,6 +14,7 @@
 #include "io/atomic_file.h"
 #include "io/result_io.h"
 #include "retrieval/core/error.h"
+#include "tests/check_support.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -159,14 +160,7 @@ TEST_CASE("sections not computed are absent", "[io][result]") {
 TEST_CASE("NaN and infinity are refused with the key named", "[io][result]") {
   // RFC 8259 section 6: NaN and Infinity are not permitted JSON numbers.
   auto message = [](const sw::AnalysisResult& r) {
-    try {
-      (void)sw::result_to_json(r);
-    } catch (const sw::Error& e) {
-      CHECK(e.kind() == sw::ErrorKind::kNumeric);
-      return std::string(e.what());
-    }
-    FAIL("expected sw::Error");
-    return std::string();
+    return sw::test::error_message([&] { (void)sw::result_to_json(r); }, sw::ErrorKind::kNumeric);
   };
   sw::AnalysisResult r = full_result();
   r.xuv->gdd_as2_sigma = std::numeric_limits<double>::quiet_NaN();
@@ -245,14 +239,8 @@ TEST_CASE("reading a bad result file names the file and the key", "[io][result]"
   TempDir dir;
   auto message = [&](const std::string& text) {
     sw::write_file_atomic(dir / "r.json", text);
-    try {
-      (void)sw::read_result_json(dir / "r.json");
-    } catch (const sw::Error& e) {
-      CHECK(e.kind() == sw::ErrorKind::kInput);
-      return std::string(e.what());
-    }
-    FAIL("expected sw::Error");
-    return std::string();
+    return sw::test::error_message([&] { (void)sw::read_result_json(dir / "r.json"); },
+                                   sw::ErrorKind::kInput);
   };
   CHECK_THAT(message("{\"streakwright_result\": 1,"),
              Catch::Contains("r.json") && Catch::Contains("not valid JSON"));
@@ -266,13 +254,9 @@ TEST_CASE("reading a bad result file names the file and the key", "[io][result]"
              Catch::Contains("fit.converged"));
   CHECK_THAT(message(R"({"streakwright_result": 1, "rabbitt": {"sidebands": [{"order": 12}]}})"),
              Catch::Contains("rabbitt.sidebands[0].energy_eV"));
-  try {
-    (void)sw::read_result_json(dir / "nothing.json");
-    FAIL("expected sw::Error");
-  } catch (const sw::Error& e) {
-    CHECK(e.kind() == sw::ErrorKind::kInput);
-    CHECK_THAT(e.what(), Catch::Contains("nothing.json"));
-  }
+  CHECK_THAT(sw::test::error_message([&] { (void)sw::read_result_json(dir / "nothing.json"); },
+                                     sw::ErrorKind::kInput),
+             Catch::Contains("nothing.json"));
 }
 
 TEST_CASE("quality and lines sections follow DESIGN.md and round-trip", "[io][result]") {

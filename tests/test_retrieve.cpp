@@ -12,6 +12,7 @@
 #include "retrieval/physics/pulse_metrics.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/retrieve_test_support.h"
 
 using namespace sw;
 
@@ -114,15 +115,11 @@ TEST_CASE("bootstrap sigmas cover the truth", "[retrieve][slow]") {
   // 1-sigma interval holds the truth in ~68 % of cases, 3 sigma in ~99.7 % (normal statistics).
   // The neon reference scan at 100 peak counts and a 0.2 fs delay step; its edge rows are
   // weakly streaked (shape reference, retrieval/preprocess/preprocess.h).
-  synthetic::ScanConfig cfg = synthetic::find_preset("neon-150as").config;
-  cfg.geometry.delay_fs = {-6.0, 0.2, 61};
-  cfg.noise.peak_counts = 100.0;
+  const synthetic::ScanConfig cfg = test::neon_reference_61_delays(100.0);
   int in1 = 0, in3 = 0, n = 0;
   for (unsigned long long seed = 1; seed <= 10; ++seed) {
     const auto scan = synthetic::generate_scan(cfg, seed);
-    RetrieveOptions o;
-    o.engine = "ptychographic";
-    o.bootstrap = 8;
+    RetrieveOptions o = test::ptychographic_options(8);
     o.seed = seed;
     o.threads = 2;
     const RetrieveOutput out = retrieve(scan.trace, o);
@@ -157,9 +154,7 @@ TEST_CASE("a noise-filled wide window gives a sensible FWHM or an untrusted resu
   cfg.noise.peak_counts = 25.0;
   cfg.noise.background_counts = 1.0;
   const auto scan = synthetic::generate_scan(cfg, 4);
-  RetrieveOptions o;
-  o.engine = "ptychographic";
-  o.bootstrap = 0;
+  RetrieveOptions o = test::ptychographic_options(0);
   o.threads = 2;
   const RetrieveOutput out = retrieve(scan.trace, o);
   const double f = *out.result.xuv->fwhm_as, ft = *scan.truth.xuv->fwhm_as;

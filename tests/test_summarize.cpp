@@ -23,32 +23,7 @@ using nlohmann::json;
 
 namespace {
 
-using sw::test::TempDir;
-using sw::test::write_text;
-
-struct Cli {
-  int status = -1;
-  std::string out, err;
-};
-
-Cli run_cli(const std::string& args) {
-  const fs::path o = fs::temp_directory_path() / ("sw_summarize_cli_" + std::to_string(getpid()));
-  const std::string cmd = std::string("'") + STREAKWRIGHT_CLI_PATH + "' " + args + " > '" +
-                          o.string() + ".out' 2> '" + o.string() + ".err'";
-  Cli c;
-  const int rc = std::system(cmd.c_str());
-  c.status = WIFEXITED(rc) ? WEXITSTATUS(rc) : -1;
-  c.out = sw::read_file_bytes(o.string() + ".out");
-  c.err = sw::read_file_bytes(o.string() + ".err");
-  return c;
-}
-
-std::string q(const fs::path& p) {
-  std::string s(1, '\'');
-  s += p.string();
-  s += '\'';
-  return s;
-}
+using namespace sw::test;
 
 /// A retrieval result with the given headline numbers (sigma < 0 = absent).
 sw::AnalysisResult retrieval(double fwhm, double fwhm_s, double gdd, double gdd_s, double a0,
@@ -106,8 +81,9 @@ TEST_CASE("summarize merges result.json trees into one summary with the written 
   put(t.path / "a/s1", retrieval(151.25, 3.5, 120.0, 300.0, 0.209), true);
   put(t.path / "a/nested/deeper/s2", rabbitt(15.2, 0.4));
   put(t.path / "b/s3", retrieval(98.0, -1, -50.0, -1, 0.31, "isolated_with_satellites", 0.05));
-  const Cli c =
-      run_cli("summarize " + q(t.path / "a") + " " + q(t.path / "b") + " --out " + q(t.path / "m"));
+  const CliOutput c =
+      run_cli_apart("summarize " + shell_quoted(t.path / "a") + " " + shell_quoted(t.path / "b") +
+                    " --out " + shell_quoted(t.path / "m"));
   INFO(c.err);
   REQUIRE(c.status == 0);
   const auto rows = rows_of(t.path / "m");
@@ -158,8 +134,8 @@ TEST_CASE("summarize --against lists exactly the values that moved beyond sqrt(s
   put(new_dir / "s5", retrieval(150, 3, 100, 400, 0.2));  // only in the new run
   put(old_dir / "s6", retrieval(150, 3, 100, 400, 0.2));  // only in the old run
 
-  const Cli c =
-      run_cli("summarize " + q(new_dir) + " --against " + q(old_dir) + " --out " + q(t.path / "m"));
+  const CliOutput c = run_cli_apart("summarize " + shell_quoted(new_dir) + " --against " +
+                                    shell_quoted(old_dir) + " --out " + shell_quoted(t.path / "m"));
   INFO(c.out << c.err);
   REQUIRE(c.status == 0);
   CHECK(c.out.find("2 moved by more than their combined 1-sigma") != std::string::npos);
@@ -188,7 +164,8 @@ TEST_CASE("summarize merges shard summaries; an ok row wins over a failed one; b
   std::ofstream(p / "shard-2/summary.json") << R"({"streakwright_summary": 1, "scans": [
     {"scan": "day2/c", "status": "ok", "analysis": "rabbitt", "attochirp_as_per_eV": 12.5},
     {"scan": "day1/b", "status": "ok", "analysis": "retrieve", "fwhm_as": 160.0}]})";
-  const Cli c = run_cli("summarize " + q(p) + " --out " + q(t.path / "m"));
+  const CliOutput c =
+      run_cli_apart("summarize " + shell_quoted(p) + " --out " + shell_quoted(t.path / "m"));
   INFO(c.err);
   REQUIRE(c.status == 0);
   const auto rows = rows_of(t.path / "m");
@@ -199,9 +176,9 @@ TEST_CASE("summarize merges shard summaries; an ok row wins over a failed one; b
   CHECK(rows.at("day2/c")["attochirp_as_per_eV"].get<double>() == 12.5);
   CHECK(c.err.find("day1/b appears in") != std::string::npos);
 
-  CHECK(run_cli("summarize " + q(t.path / "nowhere")).status == 3);
+  CHECK(run_cli_apart("summarize " + shell_quoted(t.path / "nowhere")).status == 3);
   fs::create_directories(t.path / "empty");
-  const Cli e = run_cli("summarize " + q(t.path / "empty"));
+  const CliOutput e = run_cli_apart("summarize " + shell_quoted(t.path / "empty"));
   CHECK(e.status == 3);
   CHECK(e.err.find("no summary.json") != std::string::npos);
 }

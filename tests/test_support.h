@@ -1,5 +1,6 @@
 #pragma once
-// Helpers shared by the test files: a self-removing temporary folder and a text writer.
+// Helpers shared by the test files: a uniform axis, a self-removing temporary folder, a text
+// writer and command-line runs.
 
 #include <sys/wait.h>
 #include <unistd.h>
@@ -8,13 +9,22 @@
 #include <array>
 #include <chrono>
 #include <cstdio>
+#include <cstdlib>
 #include <filesystem>
 #include <fstream>
+#include <iterator>
 #include <random>
 #include <string>
 #include <vector>
 
 namespace sw::test {
+
+/// `n` values first, first + step, ..., first + (n - 1) step.
+inline std::vector<double> axis(double first, double step, int n) {
+  std::vector<double> v(static_cast<std::size_t>(n));
+  for (int i = 0; i < n; ++i) v[static_cast<std::size_t>(i)] = first + step * i;
+  return v;
+}
 
 /// A fresh folder under the system temp directory, removed with its contents on destruction.
 /// Unique per process, tag, random draw and clock tick, so parallel test processes never share it.
@@ -72,10 +82,51 @@ inline CliRun run_command(const std::string& command) {
   return r;
 }
 
+/// A path in single quotes for the shell (built by appending: GCC 12 warns falsely on
+/// "'" + std::string).
+inline std::string shell_quoted(const std::filesystem::path& p) {
+  std::string s(1, '\'');
+  s += p.string();
+  s += '\'';
+  return s;
+}
+
+/// Exit status, stdout and stderr (apart) of one command-line run.
+struct CliOutput {
+  int status = -1;  ///< exit status, -1 when the process did not exit normally
+  std::string out, err;
+};
+
+inline std::string read_text(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  return std::string(std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>());
+}
+
 #ifdef STREAKWRIGHT_CLI_PATH
 /// Runs the streakwright executable with `args` (shell syntax).
 inline CliRun run_cli(const std::string& args) {
   return run_command(std::string(STREAKWRIGHT_CLI_PATH) + " " + args);
+}
+
+/// Runs the streakwright executable with `args` (shell syntax), stdout and stderr captured apart
+/// through two temporary files (unique per process and call, removed afterwards).
+inline CliOutput run_cli_apart(const std::string& args) {
+  static int calls = 0;
+  const std::string stem =
+      (std::filesystem::temp_directory_path() /
+       ("sw_cli_" + std::to_string(::getpid()) + "_" + std::to_string(++calls)))
+          .string();
+  const std::string cmd = shell_quoted(STREAKWRIGHT_CLI_PATH) + " " + args + " > " +
+                          shell_quoted(stem + ".out") + " 2> " + shell_quoted(stem + ".err");
+  CliOutput c;
+  const int rc = std::system(cmd.c_str());
+  c.status = WIFEXITED(rc) ? WEXITSTATUS(rc) : -1;
+  c.out = read_text(stem + ".out");
+  c.err = read_text(stem + ".err");
+  std::error_code ec;
+  std::filesystem::remove(stem + ".out", ec);
+  std::filesystem::remove(stem + ".err", ec);
+  return c;
 }
 #endif
 

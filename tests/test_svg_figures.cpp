@@ -19,10 +19,12 @@
 #include "io/figures.h"
 #include "io/plot.h"
 #include "io/report_html.h"
+#include "tests/plot_test_support.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
 using sw::plot::FigureFormat;
+using sw::test::pulse_and_phase_plot;
 using sw::test::TempDir;
 
 namespace {
@@ -254,35 +256,6 @@ TestTrace make_trace() {
   return t;
 }
 
-sw::LinePlot make_lines() {
-  sw::LinePlot lp;
-  lp.title = "pulse & phase <test>";
-  lp.x_label = "time (as)";
-  lp.y_label = "intensity (arb. u.)";
-  lp.y2_label = "phase (rad)";
-  sw::Series a, b;
-  for (int k = 0; k <= 40; ++k) {
-    const double t = -400.0 + 20.0 * k;
-    a.x.push_back(t);
-    a.y.push_back(std::exp(-0.5 * std::pow(t / 90.0, 2)));
-    b.x.push_back(t);
-    b.y.push_back(1e-5 * t * t);
-  }
-  a.label = "intensity";
-  b.label = "phase";
-  b.right_axis = true;
-  b.dashed = true;
-  sw::Series e;  // markers with error bars
-  e.x = {-200, 0, 200};
-  e.y = {0.2, 0.9, 0.3};
-  e.y_err = {0.05, 0.1, 0.05};
-  e.line = false;
-  e.markers = true;
-  e.label = "points";
-  lp.series = {a, b, e};
-  return lp;
-}
-
 }  // namespace
 
 TEST_CASE("figure formats: names, parsing and file extensions", "[svg]") {
@@ -391,7 +364,7 @@ TEST_CASE("trace image as SVG: well-formed, labels as text, image embedded at th
 
 TEST_CASE("line plot as SVG: paths at the documented pixel positions, markers as circles",
           "[svg]") {
-  const sw::LinePlot lp = make_lines();
+  const sw::LinePlot lp = pulse_and_phase_plot();
   const sw::FigureBytes b = sw::render_lines(lp, FigureFormat::kSvg);
   const std::vector<XmlElement> els = parsed_svg(b.svg);
   CHECK(has_text(els, "pulse & phase <test>"));  // escaped and decoded back
@@ -439,7 +412,7 @@ TEST_CASE("the vector back end leaves the PNG output unchanged", "[svg]") {
   o.markers.push_back({100.0, "SB14", {255, 255, 255}});
   CHECK(sw::render_trace_image(t.data, t.delay, t.energy, o, FigureFormat::kSvg).png ==
         sw::render_trace_image_png(t.data, t.delay, t.energy, o));
-  const sw::LinePlot lp = make_lines();
+  const sw::LinePlot lp = pulse_and_phase_plot();
   CHECK(sw::render_lines(lp, FigureFormat::kSvg).png == sw::render_lines_png(lp));
   CHECK(sw::render_lines(lp, FigureFormat::kPng).svg.empty());
   const sw::ComparisonFigureOptions co;
@@ -449,7 +422,7 @@ TEST_CASE("the vector back end leaves the PNG output unchanged", "[svg]") {
 
 TEST_CASE("report.html embeds an SVG figure as image/svg+xml", "[svg]") {
   TempDir dir("svg_report");
-  sw::plot_lines(make_lines(), dir.file("f.svg"));
+  sw::plot_lines(pulse_and_phase_plot(), dir.file("f.svg"));
   sw::HtmlReport r("svg report");
   r.add_figure(dir.file("f.svg"), "a vector figure");
   const std::string h = r.html();

@@ -20,17 +20,13 @@
 #include "synthetic/presets.h"
 #include "synthetic/sfa_quadrature.h"
 #include "synthetic/volkov_table.h"
+#include "tests/test_support.h"
 
 using namespace sw;
+using sw::test::axis;
 using namespace sw::synthetic;
 
 namespace {
-
-std::vector<double> axis(double first, double step, int n) {
-  std::vector<double> v(static_cast<std::size_t>(n));
-  for (int i = 0; i < n; ++i) v[static_cast<std::size_t>(i)] = first + step * i;
-  return v;
-}
 
 ScanConfig noiseless(ScanConfig c) {
   c.noise.poisson = false;
@@ -148,10 +144,7 @@ TEST_CASE("direct quadrature agrees with the FFT forward model (full momentum)",
   // PRA 49, 2117 (1994)) so that d(p + A) is exercised.
   const double ip = units::eV_to_au(find_gas("Ne").ionization_energy_eV);
   const TimeGrid g = TimeGrid::for_energy_step(1024, units::eV_to_au(0.25));
-  GaussianXuvPulse X;
-  X.center_eV = 95.0;
-  X.transform_limited_fwhm_as = 150.0;
-  X.gdd_as2 = 3000.0;
+  const GaussianXuvPulse X{95.0, 150.0, 3000.0, 0.0, 0.0};  // eV, as (TL), as^2, as^3, as
   const XuvField xuv = make_gaussian_xuv(g, X);
   GaussianIrPulse P;
   P.peak_intensity_Wcm2 = 5e12;

@@ -14,6 +14,7 @@
 #include "retrieval/analysis/thread_pool.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/retrieve_test_support.h"
 
 using namespace sw;
 
@@ -63,13 +64,8 @@ TEST_CASE("bootstrap replicas give bit-identical results for 1 and 3 threads",
   // retrieve.h: seeds per replica index, engines single-threaded; the replica numbers and the
   // reported sigma must not depend on the thread count (common practice for parallel Monte
   // Carlo: reproducible streams per task).
-  synthetic::ScanConfig cfg = synthetic::find_preset("neon-150as").config;
-  cfg.geometry.delay_fs = {-6.0, 0.2, 61};
-  cfg.noise.peak_counts = 200.0;
-  const auto scan = synthetic::generate_scan(cfg, 3);
-  RetrieveOptions o;
-  o.engine = "ptychographic";
-  o.bootstrap = 5;
+  const auto scan = synthetic::generate_scan(test::neon_reference_61_delays(200.0), 3);
+  RetrieveOptions o = test::ptychographic_options(5);
   o.threads = 1;
   const RetrieveOutput a = retrieve(scan.trace, o);
   o.threads = 3;

@@ -23,6 +23,7 @@
 #include "io/trace_reader.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/units.h"
+#include "tests/check_support.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -371,14 +372,8 @@ TEST_CASE("HDF5 dataset named as FILE.h5:/group/dataset", "[io][reader][hdf5]") 
         dir / "bad.json",
         R"({"streakwright": 1, "image": ")" + image +
             R"(", "layout": "delay_rows", "energy_eV": [1,2,3,4,5,6], "delay_fs": [0,1,2,3]})");
-    try {
-      (void)sw::read_trace(dir / "bad.json");
-    } catch (const sw::Error& e) {
-      CHECK(e.kind() == sw::ErrorKind::kInput);
-      return std::string(e.what());
-    }
-    FAIL("expected sw::Error");
-    return std::string();
+    return sw::test::error_message([&] { (void)sw::read_trace(dir / "bad.json"); },
+                                   sw::ErrorKind::kInput);
   };
   CHECK_THAT(message("run_17.h5:/scan/missing"), Catch::Contains("/scan/missing") &&
                                                      Catch::Contains("does not exist") &&

@@ -16,6 +16,7 @@
 #include "io/trace_writer.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/units.h"
+#include "tests/check_support.h"
 #include "tests/test_support.h"
 
 namespace fs = std::filesystem;
@@ -185,20 +186,13 @@ TEST_CASE("truth record is written beside the sidecar", "[io][writer]") {
 TEST_CASE("writer refuses bad targets and leaves nothing behind", "[io][writer]") {
   TempDir dir;
   const sw::Trace t = make_trace(true, 10.0);
-  try {
-    sw::write_trace(t, dir / "s.txt", sw::TraceFormat::kCsv);
-    FAIL("expected sw::Error");
-  } catch (const sw::Error& e) {
-    CHECK(e.kind() == sw::ErrorKind::kInput);
-    CHECK_THAT(e.what(), Catch::Contains("s.txt") && Catch::Contains(".json"));
-  }
-  try {
-    sw::write_trace(t, dir / "missing_folder/s.json", sw::TraceFormat::kCsv);
-    FAIL("expected sw::Error");
-  } catch (const sw::Error& e) {
-    CHECK(e.kind() == sw::ErrorKind::kInput);
-    CHECK_THAT(e.what(), Catch::Contains("missing_folder") && Catch::Contains("does not exist"));
-  }
+  auto message = [&](const std::string& path) {
+    return sw::test::error_message([&] { sw::write_trace(t, path, sw::TraceFormat::kCsv); },
+                                   sw::ErrorKind::kInput);
+  };
+  CHECK_THAT(message(dir / "s.txt"), Catch::Contains("s.txt") && Catch::Contains(".json"));
+  CHECK_THAT(message(dir / "missing_folder/s.json"),
+             Catch::Contains("missing_folder") && Catch::Contains("does not exist"));
   sw::Trace bad = t;
   bad.counts(0, 0) = -1;
   CHECK_THROWS_AS(sw::write_trace(bad, dir / "b.json", sw::TraceFormat::kCsv), sw::Error);

@@ -13,6 +13,7 @@
 #include "retrieval/analysis/uncertainty.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/retrieve_test_support.h"
 
 using namespace sw;
 
@@ -37,15 +38,11 @@ TEST_CASE("warm-started replicas: statistical sigma matches the spread over inde
   // 1993, ch. 6). With 8 scans that sample deviation is itself uncertain by ~25 % (chi-square
   // with 7 degrees of freedom: 90 % interval 0.63-1.43 x), so we ask for agreement within a
   // factor of 2 of the mean warm sigma.
-  synthetic::ScanConfig cfg = synthetic::find_preset("neon-150as").config;
-  cfg.geometry.delay_fs = {-6.0, 0.2, 61};
-  cfg.noise.peak_counts = 100.0;
+  const synthetic::ScanConfig cfg = test::neon_reference_61_delays(100.0);
   std::vector<double> fwhm, sig;
   for (unsigned long long seed = 1; seed <= 8; ++seed) {
     const auto scan = synthetic::generate_scan(cfg, seed);
-    RetrieveOptions o;
-    o.engine = "ptychographic";
-    o.bootstrap = 6;
+    RetrieveOptions o = test::ptychographic_options(6);
     o.seed = seed;
     o.uncertainty = UncertaintyMethod::kWarm;
     const RetrieveOutput out = retrieve(scan.trace, o);

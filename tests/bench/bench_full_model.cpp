@@ -178,8 +178,6 @@ BENCHMARK(BM_HeliumRetrieve)
     ->Args({0, 1})
     ->Args({8, 1})
     ->Args({8, 2})
-    ->Iterations(1)
-    ->Unit(benchmark::kSecond)
-    ->UseRealTime();
+    ->Apply(sw::bench::one_timed_run);
 
 }  // namespace

@@ -17,6 +17,7 @@
 #include "retrieval/analysis/thread_pool.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/bench/bench_support.h"
 
 namespace {
 
@@ -72,18 +73,11 @@ BENCHMARK(BM_ScanSize)
     ->Args({121, 600})
     ->Args({241, 900})
     ->Args({401, 1200})
-    ->Iterations(1)
-    ->Unit(benchmark::kSecond)
-    ->UseRealTime();
+    ->Apply(sw::bench::one_timed_run);
 
 void BM_LargeWithSigma(benchmark::State& state) {
   run(state, 401, 1200, 8, static_cast<int>(state.range(0)));
 }
-BENCHMARK(BM_LargeWithSigma)
-    ->Arg(1)
-    ->Arg(2)
-    ->Iterations(1)
-    ->Unit(benchmark::kSecond)
-    ->UseRealTime();
+BENCHMARK(BM_LargeWithSigma)->Arg(1)->Arg(2)->Apply(sw::bench::one_timed_run);
 
 }  // namespace

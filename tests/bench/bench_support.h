@@ -26,4 +26,10 @@ inline void fft_floor(benchmark::State& state, std::size_t n, std::size_t rows) 
   state.counters["ffts"] = static_cast<double>(2 * nd);
 }
 
+/// One timed run per argument set, in seconds of wall-clock time (the settings of the end-to-end
+/// benchmarks: `BENCHMARK(f)->Args(...)->Apply(sw::bench::one_timed_run)`).
+inline void one_timed_run(benchmark::internal::Benchmark* b) {
+  b->Iterations(1)->Unit(benchmark::kSecond)->UseRealTime();
+}
+
 }  // namespace sw::bench

@@ -29,6 +29,7 @@
 #include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "two_line_targets.h"
 
 using namespace sw;
 
@@ -48,23 +49,6 @@ struct Row {
   bool j_trusted = false;
   double seconds = 0;
 };
-
-// Neon: 2p and 2s (NIST thresholds via the gas table) at 120 eV photons, 160 as (the
-// neon-two-lines preset). Argon: 3p and 3s at 70 eV, 190 as.
-synthetic::ScanConfig target(const std::string& which) {
-  synthetic::ScanConfig c = synthetic::find_preset("neon-two-lines").config;
-  c.geometry.delay_fs = {-6.0, 0.15, 81};
-  if (which == "Ar") {
-    c.gas = "Ar";
-    c.xuv.gaussian.center_eV = 70.0;
-    c.xuv.gaussian.transform_limited_fwhm_as = 190.0;
-    c.ir.pulse.peak_intensity_Wcm2 = 3e12;
-    c.geometry.energy_eV = {20.0, 0.25, 280};
-    c.lines[0].name = "3p";
-    c.lines[1].name = "3s";
-  }
-  return c;
-}
 
 std::string f(double v, int prec = 4) {
   std::ostringstream s;
@@ -138,7 +122,7 @@ int main(int argc, char** argv) {
       for (double st : strengths)
         for (double d : delays) {
           ++n;
-          synthetic::ScanConfig c = target(tg);
+          synthetic::ScanConfig c = validation::two_line_target(tg);
           c.lines[1].delay_as = d;
           c.lines[1].relative_strength = st;
           c.noise.peak_counts = peak;

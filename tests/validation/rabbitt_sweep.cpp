@@ -27,6 +27,7 @@
 #include "retrieval/core/units.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/trace_support.h"
 
 using namespace sw;
 
@@ -35,13 +36,8 @@ namespace {
 // Poisson counts of a noise-free density scaled so that its maximum is `peak` expected counts.
 Trace poisson(const synthetic::SyntheticScan& s, double peak, unsigned long long seed) {
   Trace t = s.trace;
-  const double k = peak / s.clean.maxCoeff();
   std::mt19937_64 rng(seed);
-  for (Eigen::Index i = 0; i < t.counts.rows(); ++i)
-    for (Eigen::Index j = 0; j < t.counts.cols(); ++j) {
-      std::poisson_distribution<long long> pd(k * s.clean(i, j));
-      t.counts(i, j) = static_cast<double>(pd(rng));
-    }
+  t.counts = test::poisson_counts(s.clean, peak / s.clean.maxCoeff(), rng);
   return t;
 }
 
@@ -200,15 +196,32 @@ Series sigmas(const std::vector<Stats>& rows, const std::string& label) {
   return s;
 }
 
-void error_figure(const std::vector<Stats>& rows, const std::string& title,
-                  const std::string& xlabel, const std::string& path) {
+// A 760 x 500 px line plot (the size of every figure of this sweep).
+LinePlot sweep_plot(const std::string& title, const std::string& x_label,
+                    const std::string& y_label) {
   LinePlot lp;
   lp.title = title;
-  lp.x_label = xlabel;
-  lp.y_label = "attochirp error (as/eV)";
-  lp.zero_line = true;
+  lp.x_label = x_label;
+  lp.y_label = y_label;
   lp.width_px = 760;
   lp.height_px = 500;
+  return lp;
+}
+
+// The dashed identity line y = x from x0 to x1.
+Series identity_line(double x0, double x1) {
+  Series id;
+  id.label = "identity";
+  id.dashed = true;
+  id.x = {x0, x1};
+  id.y = id.x;
+  return id;
+}
+
+void error_figure(const std::vector<Stats>& rows, const std::string& title,
+                  const std::string& xlabel, const std::string& path) {
+  LinePlot lp = sweep_plot(title, xlabel, "attochirp error (as/eV)");
+  lp.zero_line = true;
   lp.series.push_back(errors(rows, "mean error +- seed scatter"));
   lp.series.push_back(sigmas(rows, "mean reported sigma"));
   plot_lines(lp, path);
@@ -231,17 +244,10 @@ bool near_threshold(double before, double after) {
   return close(big, 0.10) || close(big, 0.70) || (close(big, 0.5) && close(small, 0.5));
 }
 
+// The class's name in the tables: the result name, "satellites" for the isolated pulse with
+// satellites.
 const char* short_class(PulseClass c) {
-  switch (c) {
-    case PulseClass::kIsolated:
-      return "isolated";
-    case PulseClass::kIsolatedWithSatellites:
-      return "satellites";
-    case PulseClass::kTrain:
-      return "train";
-    default:
-      return "undetermined";
-  }
+  return c == PulseClass::kIsolatedWithSatellites ? "satellites" : to_string(c);
 }
 
 double evidence(const VerdictSection& v, const std::string& key) {
@@ -283,18 +289,9 @@ int main(int argc, char** argv) {
   md << "### Attochirp of both signs (argon-rabbitt geometry, 2000 peak counts, 1e11 W/cm^2)\n\n"
      << table("burst GDD", sign, true) << "\n";
   {
-    LinePlot lp;
-    lp.title = "retrieved vs true attochirp (argon, H13-H31)";
-    lp.x_label = "true attochirp GDD/hbar (as/eV)";
-    lp.y_label = "retrieved attochirp (as/eV)";
-    lp.width_px = 760;
-    lp.height_px = 500;
-    Series id;
-    id.label = "identity";
-    id.dashed = true;
-    id.x = {sign.front().truth - 2, sign.back().truth + 2};
-    id.y = id.x;
-    lp.series.push_back(id);
+    LinePlot lp = sweep_plot("retrieved vs true attochirp (argon, H13-H31)",
+                             "true attochirp GDD/hbar (as/eV)", "retrieved attochirp (as/eV)");
+    lp.series.push_back(identity_line(sign.front().truth - 2, sign.back().truth + 2));
     Series s;
     s.label = "mean over seeds +- scatter";
     s.markers = true;
@@ -344,13 +341,9 @@ int main(int argc, char** argv) {
      << table("IR peak intensity", ir) << "\n";
   {
     // Log scale: the error spans three decades once the two-path picture fails.
-    LinePlot lp;
-    lp.title = "attochirp error vs IR intensity (argon-rabbitt, 2000 counts)";
-    lp.x_label = "log10(IR peak intensity / (W/cm^2))";
-    lp.y_label = "as/eV";
+    LinePlot lp = sweep_plot("attochirp error vs IR intensity (argon-rabbitt, 2000 counts)",
+                             "log10(IR peak intensity / (W/cm^2))", "as/eV");
     lp.log_y = true;
-    lp.width_px = 760;
-    lp.height_px = 500;
     Series e, r, sg;
     e.label = "|mean error|";
     r.label = "rms error";
@@ -520,18 +513,10 @@ int main(int argc, char** argv) {
      << matrix(confusion_far) << "\n"
      << cases.str() << "\n";
   {
-    LinePlot lp;
-    lp.title = "classifier: spectral satellite estimate vs truth (1 = train-like)";
-    lp.x_label = "true largest satellite / main peak intensity";
-    lp.y_label = "estimate from the 2 hbar omega fringes";
-    lp.width_px = 760;
-    lp.height_px = 500;
-    Series id;
-    id.label = "identity";
-    id.dashed = true;
-    id.x = {0.0, 1.0};
-    id.y = id.x;
-    lp.series.push_back(id);
+    LinePlot lp = sweep_plot("classifier: spectral satellite estimate vs truth (1 = train-like)",
+                             "true largest satellite / main peak intensity",
+                             "estimate from the 2 hbar omega fringes");
+    lp.series.push_back(identity_line(0.0, 1.0));
     for (double th : {0.10, 0.70}) {
       Series s;
       s.x = {0.0, 1.0};
