@@ -98,6 +98,17 @@ TEST_CASE("a check fails exactly when its limit is crossed", "[quality]") {
   e.transform_limited_fwhm_as = 0.0;
   const QualitySection q6 = checked(e);
   CHECK_FALSE(q6.trusted);
+
+  // The lines' centre-of-energy fit: a reduced chi^2 near 1 is a fit to the noise (chi^2 per
+  // degree of freedom ~1, common practice); 20 (a weak argon 3s under the 3p tail measured 16-33,
+  // docs/validation.md) fails and guards the result.
+  e = good_evidence();
+  e.line_delay_reduced_chi2 = 1.2;
+  CHECK(checked(e).trusted);
+  e.line_delay_reduced_chi2 = 20.0;
+  const QualitySection q7 = checked(e);
+  CHECK_FALSE(q7.trusted);
+  CHECK(q7.failed == std::vector<std::string>{"line_delay_fit_chi2"});
 }
 
 TEST_CASE("delay dependence: a constant scan shows none, a streaked one is significant",

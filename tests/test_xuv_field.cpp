@@ -17,7 +17,9 @@ TEST_CASE("an XUV field resampled onto a finer, shifted grid keeps its envelope"
   // interpolation is exact up to the Gaussian's tails at the grid edges (Shannon sampling
   // theorem; standard numerics).
   const double s = 6.0, b = 0.8, carrier = 3.5;
-  auto envelope = [&](double t) { return std::exp(-std::complex<double>(1.0, b) * t * t / (2 * s * s)); };
+  auto envelope = [&](double t) {
+    return std::exp(-std::complex<double>(1.0, b) * t * t / (2 * s * s));
+  };
   const TimeGrid coarse(256, 1.3357, -170.0);
   CVec e(coarse.size());
   for (std::size_t i = 0; i < e.size(); ++i) e[i] = envelope(coarse.time(i));

@@ -41,6 +41,8 @@ std::string QualityOptions::validate() const {
     s << "max_ir_period_mismatch = " << max_ir_period_mismatch << ": must be > 0";
   else if (!(max_unseen_line_strength > 0 && max_unseen_line_strength <= 1))
     s << "max_unseen_line_strength = " << max_unseen_line_strength << ": must lie in (0, 1]";
+  else if (!(max_line_delay_chi2 > 1))
+    s << "max_line_delay_chi2 = " << max_line_delay_chi2 << ": must be > 1";
   else if (!(min_field_free_rows >= 0))
     s << "min_field_free_rows = " << min_field_free_rows << ": must be >= 0";
   else if (!(min_class_margin_sigma >= 0))
@@ -200,6 +202,11 @@ void add_retrieval_checks(QualitySection& q, const RetrievalEvidence& e, const Q
               ? "1 when the photoelectron lines found on the unstreaked edge rows agree with the "
                 "delay-integrated detection, 0 when not"
               : "the lines found on the unstreaked edge rows disagree: " + e.line_pattern_detail);
+  if (e.line_delay_reduced_chi2)
+    q.add("line_delay_fit_chi2", *e.line_delay_reduced_chi2, o.max_line_delay_chi2, "<=",
+          "reduced chi^2 of the centre-of-energy fit of the lines' streaking curves: above the "
+          "limit a line's moments are not one shifted copy of the reference's (a neighbour's "
+          "tail inside its band), and its relative delay is biased beyond its sigma");
   if (e.unseen_line_strength)
     q.add("unseen_line_strength", *e.unseen_line_strength, o.max_unseen_line_strength, "<=",
           "upper limit (2 sigma) of the relative strength of " + e.unseen_line +
