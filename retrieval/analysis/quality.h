@@ -53,7 +53,8 @@
 //                                gas expected inside the support but not seen
 //                                                                       <= max_unseen_line_strength
 //     line_delay_fit_chi2        reduced chi^2 of the centre-of-energy fit of the lines'
-//                                streaking curves (line_delays.h), when two lines were analysed
+//                                streaking curves (line_delays.h), when that method gives the
+//                                lines' delays (not with the joint fit)
 //                                                                       <= max_line_delay_chi2
 //     ir_field_vs_vector_potential  max |E(t)| / (omega_IR max |A(t)|): ~1 for a field whose
 //                                spectrum sits at omega (1.06 for a 5 fs, 800 nm pulse); a
