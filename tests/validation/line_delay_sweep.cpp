@@ -60,7 +60,17 @@ std::string f(double v, int prec = 4) {
 }  // namespace
 
 int main(int argc, char** argv) {
+  auto usage = [](int code) {
+    std::fprintf(code ? stderr : stdout,
+                 "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] "
+                 "[--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] "
+                 "[--joint B] [--delays LIST] [--strengths LIST]\n");
+    return code;
+  };
   const std::string out = argc > 1 ? argv[1] : "docs";
+  // An option in place of the output folder is a mistake, not a folder name.
+  if (out == "--help" || out == "-h") return usage(0);
+  if (!out.empty() && out[0] == '-') return usage(2);
   bool quick = false;
   int retrieve_every = 5, bootstrap = 24;
   double only_strength = 0, only_peak = 0;  // restrict the grid (0 = all)
@@ -96,10 +106,7 @@ int main(int argc, char** argv) {
       std::stringstream ds(argv[++i]);
       for (std::string t; std::getline(ds, t, ',');) only_strengths.push_back(std::atof(t.c_str()));
     } else {
-      std::fprintf(stderr,
-                   "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] "
-                   "[--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar]\n");
-      return 2;
+      return usage(2);
     }
   }
   std::filesystem::create_directories(out + "/figures");
