@@ -41,20 +41,6 @@ namespace {
 
 // --- initial guesses --------------------------------------------------------------------------
 
-// E~(W_j + Ip) of a field by direct summation (any grid and carrier).
-std::vector<cdouble> spectrum_at(const XuvField& x, const std::vector<double>& W, double ip) {
-  const TimeGrid& g = x.grid();
-  std::vector<cdouble> s(W.size(), 0.0);
-  const CVec& e = x.envelope();
-  for (std::size_t j = 0; j < W.size(); ++j) {
-    const double w = W[j] + ip - x.carrier_au();
-    cdouble acc = 0.0;
-    for (std::size_t n = 0; n < g.size(); ++n) acc += e[n] * std::polar(1.0, w * g.time(n));
-    s[j] = acc * g.dt();
-  }
-  return s;
-}
-
 // A(tau) = p_ref - <p>(tau) from the momentum centroids (classical streaking, p_f = p_i - A:
 // DESIGN.md; J. Itatani et al., PRL 88, 173903 (2002)).
 void centroid_curve(const RetrievalProblem& P, std::vector<double>* A) {
@@ -149,7 +135,10 @@ void LeastSquaresEngine::prepare(const RetrievalProblem& P, const EngineOptions&
   // Initial XUV spectrum at the energy bins.
   std::vector<cdouble> spec(ne, 0.0);
   if (options.initial_xuv) {
-    spec = spectrum_at(*options.initial_xuv, P.energy_au, ip);
+    std::vector<double> omegas(P.energy_au.size());  // photon energies W_j + Ip
+    for (std::size_t j = 0; j < omegas.size(); ++j) omegas[j] = P.energy_au[j] + ip;
+    const CVec s = options.initial_xuv->spectrum_at(omegas);
+    spec.assign(s.begin(), s.end());
   } else {
     const std::vector<double> ref = reference_spectrum(P);
     for (std::size_t j = 0; j < ne; ++j) {

@@ -63,19 +63,32 @@ double XuvField::mean_photon_energy_au() const {
   return den > 0 ? num / den : carrier_;
 }
 
-XuvField XuvField::resampled(const TimeGrid& g) const {
-  // E~(w) = dt sum_n env_n exp(i w t_n) at the new grid's centred frequencies, zero beyond the
-  // old grid's Nyquist frequency (the sum there is an alias).
-  CVec spec(g.size(), cdouble(0.0, 0.0));
-  const double nyquist = units::kPi / grid_.dt();
-  for (std::size_t j = 0; j < g.size(); ++j) {
-    const double w = g.omega_centered(j);
-    if (std::abs(w) >= nyquist) continue;
+CVec XuvField::spectrum_at(const std::vector<double>& photon_energies_au) const {
+  CVec s(photon_energies_au.size(), cdouble(0.0, 0.0));
+  for (std::size_t j = 0; j < s.size(); ++j) {
+    const double w = photon_energies_au[j] - carrier_;
     cdouble acc = 0.0;
     for (std::size_t n = 0; n < grid_.size(); ++n)
       acc += envelope_[n] * std::polar(1.0, w * grid_.time(n));
-    spec[j] = acc * grid_.dt();
+    s[j] = acc * grid_.dt();
   }
+  return s;
+}
+
+XuvField XuvField::resampled(const TimeGrid& g) const {
+  // The spectrum at the new grid's centred frequencies, zero beyond the old grid's Nyquist
+  // frequency (the sum there is an alias).
+  const double nyquist = units::kPi / grid_.dt();
+  std::vector<double> omegas;
+  std::vector<std::size_t> kept;
+  for (std::size_t j = 0; j < g.size(); ++j)
+    if (std::abs(g.omega_centered(j)) < nyquist) {
+      omegas.push_back(carrier_ + g.omega_centered(j));
+      kept.push_back(j);
+    }
+  const CVec inside = spectrum_at(omegas);
+  CVec spec(g.size(), cdouble(0.0, 0.0));
+  for (std::size_t k = 0; k < kept.size(); ++k) spec[kept[k]] = inside[k];
   return from_spectrum(g, carrier_, spec);
 }
 

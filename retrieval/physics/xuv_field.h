@@ -34,6 +34,9 @@ class XuvField {
   XuvField with_carrier(double new_carrier_au) const;
   /// Intensity-weighted centre photon energy (a.u.).
   double mean_photon_energy_au() const;
+  /// E~(Omega) at any photon energies Omega (a.u.) by direct summation over the grid,
+  /// dt sum_n env_n exp(i (Omega - carrier) t_n) (the convention of spectrum()); O(size x count).
+  CVec spectrum_at(const std::vector<double>& photon_energies_au) const;
   /// The same field on another time grid (same carrier): its spectrum evaluated by direct
   /// summation at the new grid's frequencies (trigonometric interpolation of the envelope; zero
   /// outside the old grid's span), O(old size x new size). Used where an estimate made on one
