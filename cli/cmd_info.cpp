@@ -153,7 +153,7 @@ int run_info(const std::string& path, bool allow_outside_data) {
           std::printf(" + (%s) (W_ref / W)^1.5",
                       format_value_sigma(b.tof_counts, b.tof_counts_sigma).c_str());
         std::printf(" (Poisson ML over %zu energy bins)", b.background_bins);
-        if (b.onset_eV > 0)
+        if (!b.below_onset_W_eV.empty())
           std::printf("; below %.4g eV (the tail's onset) each bin's own delay average",
                       b.onset_eV);
       }

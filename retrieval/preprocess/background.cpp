@@ -38,7 +38,7 @@ std::size_t nearest_below_onset(const std::vector<double>& Ws, double W) {
 }  // namespace
 
 double BackgroundModel::at(double W) const {
-  if (onset_eV > 0 && W < onset_eV && !below_onset_W_eV.empty())
+  if (!below_onset_W_eV.empty() && W < onset_eV)
     return below_onset_counts[nearest_below_onset(below_onset_W_eV, W)];
   double b = constant_counts;
   if (has_tail) b += tail_counts_at_zero * std::exp(-W / tail_decay_eV);
@@ -48,7 +48,7 @@ double BackgroundModel::at(double W) const {
 }
 
 double BackgroundModel::sigma_at(double W) const {
-  if (onset_eV > 0 && W < onset_eV && !below_onset_W_eV.empty())  // Poisson, mean over rows
+  if (!below_onset_W_eV.empty() && W < onset_eV)  // Poisson, mean over rows
     return std::sqrt(std::max(below_onset_counts[nearest_below_onset(below_onset_W_eV, W)], 0.0) /
                      static_cast<double>(std::max<std::size_t>(rows, 1)));
   if (covariance.size() == 0) return 0.0;
@@ -184,6 +184,7 @@ BackgroundModel fit_background(const Eigen::MatrixXd& counts, const std::vector<
     return m;
   }
   const double rows = static_cast<double>(counts.rows());
+  const Eigen::VectorXd colsum = counts.colwise().sum().transpose();  // delay-summed counts
   // Onset of the tail (header): the leading background bins, contiguous from the axis start.
   {
     std::size_t lead = 0;
@@ -192,7 +193,7 @@ BackgroundModel fit_background(const Eigen::MatrixXd& counts, const std::vector<
     if (o.fit_tail && lead >= 2 * g) {
       auto group = [&](std::size_t q) {
         double t = 0;
-        for (std::size_t j = q; j < q + g; ++j) t += counts.col(static_cast<Eigen::Index>(j)).sum();
+        for (std::size_t j = q; j < q + g; ++j) t += colsum(static_cast<Eigen::Index>(j));
         return t;
       };
       std::size_t qmax = 0;
@@ -210,7 +211,7 @@ BackgroundModel fit_background(const Eigen::MatrixXd& counts, const std::vector<
         m.onset_eV = W[qmax];
         for (std::size_t j = 0; j < qmax; ++j) {
           m.below_onset_W_eV.push_back(W[j]);
-          m.below_onset_counts.push_back(counts.col(static_cast<Eigen::Index>(j)).sum() / rows);
+          m.below_onset_counts.push_back(colsum(static_cast<Eigen::Index>(j)) / rows);
         }
         idx.erase(idx.begin(), idx.begin() + static_cast<std::ptrdiff_t>(qmax));
         m.background_bins = idx.size();
@@ -220,7 +221,7 @@ BackgroundModel fit_background(const Eigen::MatrixXd& counts, const std::vector<
   const auto n = static_cast<Eigen::Index>(idx.size());
   Eigen::VectorXd S(n), Wb(n);
   for (Eigen::Index q = 0; q < n; ++q) {
-    S(q) = counts.col(idx[static_cast<std::size_t>(q)]).sum();
+    S(q) = colsum(idx[static_cast<std::size_t>(q)]);
     Wb(q) = W[static_cast<std::size_t>(idx[static_cast<std::size_t>(q)])];
   }
   const double Wref = W.front();
@@ -316,7 +317,7 @@ BackgroundModel fit_background(const Eigen::MatrixXd& counts, const std::vector<
   m.fit_deviance = best.deviance;
   m.model = std::string("constant") + (use_tail ? " + exponential tail" : "") +
             (use_tof ? " + time-of-flight" : "");
-  if (m.onset_eV > 0)
+  if (!m.below_onset_W_eV.empty())
     note << "below the tail's onset at " << m.onset_eV
          << " eV each bin's own delay average (the fit starts there); ";
   m.note = note.str();

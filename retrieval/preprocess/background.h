@@ -89,8 +89,8 @@ struct BackgroundModel {
   double tof_reference_eV = 0.0;                    ///< W_ref
   double tof_offset_eV = 0.0;                       ///< W_off (energy offset of the calibration)
   std::size_t background_bins = 0;                  ///< energy bins the fit used
-  /// Onset of the tail (eV; 0 = none): below it B(W) is each bin's own delay average,
-  /// `below_onset_counts` at `below_onset_W_eV` (ascending); the fit starts here.
+  /// Onset of the tail (eV; 0 and empty tables = none): below it B(W) is each bin's own delay
+  /// average, `below_onset_counts` at `below_onset_W_eV` (ascending); the fit starts here.
   double onset_eV = 0.0;
   std::vector<double> below_onset_W_eV, below_onset_counts;
   std::size_t rows = 0;       ///< delay rows summed

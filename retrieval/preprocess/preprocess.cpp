@@ -764,7 +764,7 @@ void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* ou
       P("background.tail_decay_eV", b.tail_decay_eV);
       P("background.tail_decay_eV_sigma", b.tail_decay_eV_sigma);
     }
-    if (b.onset_eV > 0) P("background.tail_onset_eV", b.onset_eV);
+    if (!b.below_onset_W_eV.empty()) P("background.tail_onset_eV", b.onset_eV);
     if (b.has_tof) {
       P("background.tof_counts", b.tof_counts);
       P("background.tof_counts_sigma", b.tof_counts_sigma);
