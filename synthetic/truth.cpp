@@ -56,6 +56,24 @@ double truth_driver_period_au(const ScanConfig& c) {
   return driver_period_au(nm);
 }
 
+double comb_burst_fwhm_as(const std::vector<int>& orders,
+                          const std::vector<std::complex<double>>& amplitudes, double omega_au,
+                          bool flat_phase) {
+  // |E(t)|^2 of E = sum_q a_q exp(-i q omega t) over one half period (its period for odd q).
+  const int n = 4096;
+  const double T2 = 0.5 * units::period_au(omega_au);
+  std::vector<double> I(n);
+  for (int i = 0; i < n; ++i) {
+    const double t = T2 * i / n;
+    std::complex<double> e = 0.0;
+    for (std::size_t k = 0; k < orders.size(); ++k)
+      e += (flat_phase ? std::complex<double>(std::abs(amplitudes[k]), 0.0) : amplitudes[k]) *
+           std::polar(1.0, -orders[k] * omega_au * t);
+    I[i] = std::norm(e);
+  }
+  return units::au_to_as(periodic_main_peak_fwhm(I, T2 / n));
+}
+
 bool measurable_train_burst_fwhm_as(const ScanConfig& c, const XuvField& one, double* fwhm_as,
                                     double* tl_fwhm_as) {
   const double w = units::wavelength_nm_to_omega_au(c.xuv.train.driver_wavelength_nm);
@@ -80,29 +98,8 @@ bool measurable_train_burst_fwhm_as(const ScanConfig& c, const XuvField& one, do
     amp.push_back((1.0 - u) * spec[j - 1] + u * spec[j]);
   }
   if (orders.size() < 2) return false;
-  // |E(t)|^2 of E = sum_q a_q exp(-i q omega t) over one half period (its period for odd q).
-  const int n = 4096;
-  const double T2 = 0.5 * units::period_au(w);
-  auto width = [&](bool flat) {
-    std::vector<double> I(n);
-    for (int i = 0; i < n; ++i) {
-      const double t = T2 * i / n;
-      std::complex<double> e = 0.0;
-      for (std::size_t k = 0; k < orders.size(); ++k)
-        e += (flat ? std::complex<double>(std::abs(amp[k]), 0.0) : amp[k]) *
-             std::polar(1.0, -orders[k] * w * t);
-      I[i] = std::norm(e);
-    }
-    const int m = static_cast<int>(std::max_element(I.begin(), I.end()) - I.begin());
-    std::vector<double> x(n), y(n);
-    for (int k = 0; k < n; ++k) {
-      x[k] = (k - n / 2) * T2 / n;
-      y[k] = I[(m + k - n / 2 + n) % n];
-    }
-    return units::au_to_as(fwhm_of_main_peak(x, y));
-  };
-  *fwhm_as = width(false);
-  *tl_fwhm_as = width(true);
+  *fwhm_as = comb_burst_fwhm_as(orders, amp, w, false);
+  *tl_fwhm_as = comb_burst_fwhm_as(orders, amp, w, true);
   return *fwhm_as > 0.0 && *tl_fwhm_as > 0.0;
 }
 

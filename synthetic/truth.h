@@ -24,6 +24,7 @@
 //            ".window_fs") and, when per-row effects are on, the realised per-row values
 //            ("generator.realized.delay_offset_fs", ".ir_intensity_factor", ".cep_offset_rad").
 
+#include <complex>
 #include <vector>
 
 #include "retrieval/core/result.h"
@@ -47,6 +48,13 @@ VerdictSection classify_bursts(const BurstStructure& b, const VerdictThresholds&
 /// Driver period (a.u.) used to look for satellites: the train's or satellites' driver, else
 /// the IR wavelength, else 800 nm.
 double truth_driver_period_au(const ScanConfig& config);
+
+/// FWHM (as) of the main burst of the train E(t) = sum_k a_k exp(-i q_k omega t) of odd
+/// harmonic orders q_k with complex amplitudes a_k (omega the driver frequency, a.u.), from
+/// |E|^2 on 4096 samples of one half period; flat_phase = true uses |a_k| (the transform limit).
+double comb_burst_fwhm_as(const std::vector<int>& orders,
+                          const std::vector<std::complex<double>>& amplitudes, double omega_au,
+                          bool flat_phase);
 
 /// FWHM and transform-limited FWHM (as) of one burst of a train built only from the odd
 /// harmonics q whose photoelectron energies q hbar omega - Ip lie at least hbar omega / 2

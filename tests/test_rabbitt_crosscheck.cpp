@@ -39,6 +39,7 @@
 #include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "synthetic/truth.h"
 
 using namespace sw;
 
@@ -57,27 +58,6 @@ struct TrainFromField {
   double burst_fwhm_as = 0.0, burst_tl_fwhm_as = 0.0;
   double main_burst_fwhm_as = 0.0;  // FWHM of the retrieved field's main burst (upsampled)
 };
-
-double burst_fwhm(const std::vector<int>& q, const std::vector<std::complex<double>>& a, double w,
-                  bool flat) {
-  const int n = 4096;
-  const double T2 = 0.5 * units::period_au(w);
-  std::vector<double> I(n);
-  for (int i = 0; i < n; ++i) {
-    std::complex<double> e = 0.0;
-    for (std::size_t k = 0; k < q.size(); ++k)
-      e += (flat ? std::complex<double>(std::abs(a[k])) : a[k]) *
-           std::polar(1.0, -q[k] * w * (T2 * i / n));
-    I[i] = std::norm(e);
-  }
-  const int m = static_cast<int>(std::max_element(I.begin(), I.end()) - I.begin());
-  std::vector<double> x(n), y(n);
-  for (int k = 0; k < n; ++k) {
-    x[k] = (k - n / 2) * T2 / n;
-    y[k] = I[(m + k - n / 2 + n) % n];
-  }
-  return units::au_to_as(fwhm_of_main_peak(x, y));
-}
 
 TrainFromField train_from_field(const XuvField& x, double w, int q_lo, int q_hi) {
   TrainFromField t;
@@ -110,8 +90,8 @@ TrainFromField train_from_field(const XuvField& x, double w, int q_lo, int q_hi)
     Sxy += wt * xx * yy;
   }
   t.attochirp_as_per_eV = (S * Sxy - Sx * Sy) / (S * Sxx - Sx * Sx);
-  t.burst_fwhm_as = burst_fwhm(t.orders, t.amp, w, false);
-  t.burst_tl_fwhm_as = burst_fwhm(t.orders, t.amp, w, true);
+  t.burst_fwhm_as = synthetic::comb_burst_fwhm_as(t.orders, t.amp, w, false);
+  t.burst_tl_fwhm_as = synthetic::comb_burst_fwhm_as(t.orders, t.amp, w, true);
   // Main burst of the retrieved field on an 8x finer time grid (zero-padded spectrum).
   {
     const std::size_t n = x.grid().size(), m = 8 * n;

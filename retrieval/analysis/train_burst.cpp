@@ -50,20 +50,6 @@ void half_period_intensity(const std::vector<std::vector<std::complex<double>>>&
   }
 }
 
-// FWHM (a.u.) of the burst in a periodic half-period profile sampled with step dt; also the
-// index of its maximum.
-double periodic_burst_fwhm(const std::vector<double>& I, double dt, std::size_t* imax) {
-  const std::size_t n = I.size();
-  const std::size_t m = static_cast<std::size_t>(std::max_element(I.begin(), I.end()) - I.begin());
-  if (imax) *imax = m;
-  std::vector<double> x(n), y(n);
-  for (std::size_t k = 0; k < n; ++k) {
-    x[k] = (static_cast<double>(k) - static_cast<double>(n / 2)) * dt;
-    y[k] = I[(m + k + n - n / 2) % n];
-  }
-  return fwhm_of_main_peak(x, y);
-}
-
 }  // namespace
 
 constexpr EnumNames<CrossSectionModel, 2> kCrossSectionModelNames{
@@ -206,12 +192,12 @@ TrainBurst reconstruct_train_burst(const Trace& trace, const RabbittAnalysis& rb
   std::vector<double> I;
   half_period_intensity(table, amp, phase, I);
   std::size_t imax = 0;
-  const double fwhm = periodic_burst_fwhm(I, dt, &imax);
+  const double fwhm = periodic_main_peak_fwhm(I, dt, &imax);
   const std::vector<double> flat(nh, 0.0);
   std::vector<double> Itl;
   half_period_intensity(table, amp, flat, Itl);
   std::size_t itl = 0;
-  const double fwhm_tl = periodic_burst_fwhm(Itl, dt, &itl);
+  const double fwhm_tl = periodic_main_peak_fwhm(Itl, dt, &itl);
   if (!(fwhm > 0.0))
     out.warnings.push_back("the burst does not fall below half maximum within +-T/4: no FWHM");
   out.fwhm_as = units::au_to_as(fwhm);
@@ -230,7 +216,7 @@ TrainBurst reconstruct_train_burst(const Trace& trace, const RabbittAnalysis& rb
     for (int k = 0; k < opt.monte_carlo_draws; ++k) {
       for (std::size_t j = 0; j < best_len; ++j) d[j] = te[j] + te_sigma[j] * gauss(rng);
       half_period_intensity(table, amp, phases_from(d), Id);
-      const double f = periodic_burst_fwhm(Id, dt, nullptr);
+      const double f = periodic_main_peak_fwhm(Id, dt, nullptr);
       if (f > 0.0) draws.push_back(f);
     }
     if (draws.size() >= 2) {

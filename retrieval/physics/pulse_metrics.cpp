@@ -70,6 +70,19 @@ double fwhm(const std::vector<double>& x, const std::vector<double>& y) {
   return crossing(x[r], y[r], x[r + 1], y[r + 1], h) - crossing(x[l - 1], y[l - 1], x[l], y[l], h);
 }
 
+double periodic_main_peak_fwhm(const std::vector<double>& I, double dt, std::size_t* imax) {
+  const std::size_t n = I.size();
+  if (n == 0) return 0.0;
+  const std::size_t m = argmax(I);
+  if (imax) *imax = m;
+  std::vector<double> x(n), y(n);
+  for (std::size_t k = 0; k < n; ++k) {
+    x[k] = (static_cast<double>(k) - static_cast<double>(n / 2)) * dt;
+    y[k] = I[(m + k + n - n / 2) % n];
+  }
+  return fwhm_of_main_peak(x, y);
+}
+
 double fwhm_of_main_peak(const std::vector<double>& x, const std::vector<double>& y) {
   check_same_size(x, y, "fwhm_of_main_peak");
   const std::size_t n = y.size();
@@ -102,18 +115,11 @@ double rms_width(const std::vector<double>& x, const std::vector<double>& y) {
 
 namespace {
 
-// FWHM of the main peak of the field's intensity on its own grid.
+// FWHM of the main peak of the field's intensity on its own (periodic) grid.
 double grid_fwhm(const XuvField& f) {
   const std::vector<double> I = f.intensity();
-  const long n = static_cast<long>(I.size());
-  if (n < 3) return 0.0;
-  const long shift = static_cast<long>(argmax(I)) - n / 2;
-  std::vector<double> rotated(I.size()), x(I.size());
-  for (long i = 0; i < n; ++i) {
-    rotated[static_cast<std::size_t>(i)] = I[static_cast<std::size_t>(wrap(i + shift, n))];
-    x[static_cast<std::size_t>(i)] = static_cast<double>(i) * f.grid().dt();
-  }
-  return fwhm_of_main_peak(x, rotated);
+  if (I.size() < 3) return 0.0;
+  return periodic_main_peak_fwhm(I, f.grid().dt());
 }
 
 }  // namespace

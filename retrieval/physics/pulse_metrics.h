@@ -24,6 +24,12 @@ double fwhm(const std::vector<double>& x, const std::vector<double>& y);
 /// the first crossing): the width of the main burst even when satellites exceed half maximum.
 double fwhm_of_main_peak(const std::vector<double>& x, const std::vector<double>& y);
 
+/// FWHM of the main peak of a periodic profile I sampled with step dt over one period (the
+/// profile is rotated so its maximum sits mid-window first); `imax`, when given, receives the
+/// index of the maximum. Same units as dt.
+double periodic_main_peak_fwhm(const std::vector<double>& I, double dt,
+                               std::size_t* imax = nullptr);
+
 /// Intensity-weighted rms width sqrt(<x^2> - <x>^2) (0 when the weights sum to 0).
 double rms_width(const std::vector<double>& x, const std::vector<double>& y);
 
