@@ -3,59 +3,19 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
-#include <sstream>
 
 #include "retrieval/core/error.h"
+#include "retrieval/core/format.h"
 #include "retrieval/core/units.h"
 
 namespace sw {
 
 std::string QualityOptions::validate() const {
-  std::ostringstream s;
-  if (!(min_total_counts > 0))
-    s << "min_total_counts = " << min_total_counts << ": must be > 0";
-  else if (!(min_peak_snr > 0))
-    s << "min_peak_snr = " << min_peak_snr << ": must be > 0";
-  else if (!(min_delay_dependence_sigma > 0))
-    s << "min_delay_dependence_sigma = " << min_delay_dependence_sigma << ": must be > 0";
-  else if (!(max_trace_error_ratio > 1))
-    s << "max_trace_error_ratio = " << max_trace_error_ratio << ": must be > 1";
-  else if (!(min_fwhm_to_transform_limit > 0 && min_fwhm_to_transform_limit <= 1))
-    s << "min_fwhm_to_transform_limit = " << min_fwhm_to_transform_limit << ": must lie in (0, 1]";
-  else if (!(max_spectrum_mismatch > 0))
-    s << "max_spectrum_mismatch = " << max_spectrum_mismatch << ": must be > 0";
-  else if (!(max_energy_outside_support > 0 && max_energy_outside_support < 1))
-    s << "max_energy_outside_support = " << max_energy_outside_support << ": must lie in (0, 1)";
-  else if (!(accuracy_target > 0 && accuracy_target < 1))
-    s << "accuracy_target = " << accuracy_target << ": must be in (0, 1)";
-  else if (!(low_count_accuracy_target >= accuracy_target && low_count_accuracy_target < 1))
-    s << "low_count_accuracy_target = " << low_count_accuracy_target
-      << ": must be in [accuracy_target, 1)";
-  else if (!(low_count_peak_counts >= 0))
-    s << "low_count_peak_counts = " << low_count_peak_counts << ": must be >= 0";
-  else if (!(max_start_disagreement > 0))
-    s << "max_start_disagreement = " << max_start_disagreement << ": must be > 0";
-  else if (!(comparable_fit_ratio >= 1))
-    s << "comparable_fit_ratio = " << comparable_fit_ratio << ": must be >= 1";
-  else if (!(max_ir_period_mismatch > 0))
-    s << "max_ir_period_mismatch = " << max_ir_period_mismatch << ": must be > 0";
-  else if (!(max_unseen_line_strength > 0 && max_unseen_line_strength <= 1))
-    s << "max_unseen_line_strength = " << max_unseen_line_strength << ": must lie in (0, 1]";
-  else if (!(max_line_delay_chi2 > 1))
-    s << "max_line_delay_chi2 = " << max_line_delay_chi2 << ": must be > 1";
-  else if (!(min_field_free_rows >= 0))
-    s << "min_field_free_rows = " << min_field_free_rows << ": must be >= 0";
-  else if (!(min_class_margin_sigma >= 0))
-    s << "min_class_margin_sigma = " << min_class_margin_sigma << ": must be >= 0";
-  else if (!(max_ir_field_ratio > 1))
-    s << "max_ir_field_ratio = " << max_ir_field_ratio << ": must be > 1";
-  else if (min_sidebands < 2)
-    s << "min_sidebands = " << min_sidebands << ": must be >= 2";
-  else if (min_line_sidebands < 1)
-    s << "min_line_sidebands = " << min_line_sidebands << ": must be >= 1";
-  else if (!(min_line_separation_sigmas > 0) || !std::isfinite(min_line_separation_sigmas))
-    s << "min_line_separation_sigmas = " << min_line_separation_sigmas << ": must be > 0";
-  return s.str();
+  if (std::string e = validate_described(*this); !e.empty()) return e;
+  if (!(low_count_accuracy_target >= accuracy_target))
+    return "low_count_accuracy_target = " + format_g(low_count_accuracy_target) +
+           ": must be in [accuracy_target, 1)";
+  return "";
 }
 
 double delay_dependence_sigma(const Eigen::MatrixXd& c) {

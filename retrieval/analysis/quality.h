@@ -70,12 +70,15 @@
 //   classify: verdict_determined (reported), plus the retrieval's checks with --retrieve.
 // Default limits: common practice (no published standard); see the fields.
 
+#include <limits>
 #include <optional>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include <Eigen/Core>
 
+#include "retrieval/core/option_spec.h"
 #include "retrieval/core/result.h"
 
 namespace sw {
@@ -155,6 +158,47 @@ struct QualityOptions {
   /// Gaussian peak sigmas (> 0; default 4 = the window rule of RabbittOptions: one sigma of
   /// half width plus the 3-sigma guard).
   double min_line_separation_sigmas = 4.0;
+
+  /// Names and bounds of the limits (retrieval/core/option_spec.h), for validation only: the
+  /// limits are not echoed in result.json and have no flag or config key of their own.
+  template <class Self, class V>
+  static void describe(Self& self, V& v) {
+    constexpr double kInf = std::numeric_limits<double>::infinity();
+    auto limit = [&](std::string_view name, auto& field, double min, bool min_open, double max,
+                     bool max_open) {
+      v(OptionSpec{.name = name,
+                   .min = min,
+                   .min_open = min_open,
+                   .max = max,
+                   .max_open = max_open,
+                   .echo = false,
+                   .batch = false},
+        field);
+    };
+    limit("min_total_counts", self.min_total_counts, 0, true, kInf, false);
+    limit("min_peak_snr", self.min_peak_snr, 0, true, kInf, false);
+    limit("min_delay_dependence_sigma", self.min_delay_dependence_sigma, 0, true, kInf, false);
+    limit("max_trace_error_ratio", self.max_trace_error_ratio, 1, true, kInf, false);
+    limit("min_fwhm_to_transform_limit", self.min_fwhm_to_transform_limit, 0, true, 1, false);
+    limit("max_spectrum_mismatch", self.max_spectrum_mismatch, 0, true, kInf, false);
+    limit("max_energy_outside_support", self.max_energy_outside_support, 0, true, 1, true);
+    limit("accuracy_target", self.accuracy_target, 0, true, 1, true);
+    limit("low_count_accuracy_target", self.low_count_accuracy_target, 0, true, 1, true);
+    limit("low_count_peak_counts", self.low_count_peak_counts, 0, false, kInf, false);
+    limit("max_start_disagreement", self.max_start_disagreement, 0, true, kInf, false);
+    limit("comparable_fit_ratio", self.comparable_fit_ratio, 1, false, kInf, false);
+    limit("max_ir_period_mismatch", self.max_ir_period_mismatch, 0, true, kInf, false);
+    limit("max_unseen_line_strength", self.max_unseen_line_strength, 0, true, 1, false);
+    limit("max_line_delay_chi2", self.max_line_delay_chi2, 1, true, kInf, false);
+    limit("min_field_free_rows", self.min_field_free_rows, 0, false, kInf, false);
+    limit("min_class_margin_sigma", self.min_class_margin_sigma, 0, false, kInf, false);
+    limit("max_ir_field_ratio", self.max_ir_field_ratio, 1, true, kInf, false);
+    limit("min_sidebands", self.min_sidebands, 2, false, kInf, false);
+    limit("min_line_sidebands", self.min_line_sidebands, 1, false, kInf, false);
+    limit("min_line_separation_sigmas", self.min_line_separation_sigmas, 0, true, kInf, false);
+  }
+  /// "" when valid; else names the field, its value and the rule (the bounds above, then
+  /// low_count_accuracy_target >= accuracy_target).
   std::string validate() const;
 };
 
