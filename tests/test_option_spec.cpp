@@ -175,9 +175,9 @@ TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") 
   CHECK(keys == std::vector<std::string>{
                     "settings.engine", "settings.iterations", "settings.bootstrap", "settings.seed",
                     "settings.threads", "settings.uncertainty", "settings.warm_patience",
-                    "settings.cma_phase_error_max_rad", "settings.cma_trace_error_max_ratio",
-                    "settings.method_sigma_relative", "settings.window_cut_sigma_per_share",
-                    "settings.isolated_max_satellite_ratio",
+                    "settings.full_model_patience", "settings.cma_phase_error_max_rad",
+                    "settings.cma_trace_error_max_ratio", "settings.method_sigma_relative",
+                    "settings.window_cut_sigma_per_share", "settings.isolated_max_satellite_ratio",
                     "settings.satellites_max_satellite_ratio", "settings.satellite_start",
                     "settings.satellite_start_ratio", "settings.dipole"});
   // Integers are written as integers, the dipole by name.

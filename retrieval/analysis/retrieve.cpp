@@ -209,6 +209,13 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   if (!out.preprocess.field_free_measured && !user_set)
     eo.extra.push_back({"spectrum_constraint", "centroid"});
   eo.max_seconds = opt.max_seconds;
+  // A full-model run of the chain: the default iteration limit when the first engine's was
+  // changed by --iterations, and its own patience (RetrieveOptions::full_model_patience).
+  auto full_model_options = [&](EngineOptions o) {
+    o.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+    o.patience = opt.full_model_patience;
+    return o;
+  };
 
   // Metrics from the in-support field (photon energy = kinetic energy + Ip).
   auto band_of = [](const RetrievalProblem& p) {
@@ -252,8 +259,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         a_peak > 0 && pr.ir_omega_au > 0 &&
         first.ir.peak_electric_field() / (pr.ir_omega_au * a_peak) > opt.quality.max_ir_field_ratio;
     if (cma_limited || not_fitted || noisy_field) {
-      EngineOptions fo = eo;
-      fo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+      EngineOptions fo = full_model_options(eo);
       fo.initial_xuv = first.xuv;
       fo.initial_ir = first.ir;
       out.chain.push_back(run("full-model", fo));
@@ -263,8 +269,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       if (not_fitted) {
         // The CMA result may sit in a local minimum (multi-burst pulses): also start the full
         // model from its own guess (parametric IR) and keep the better fit.
-        EngineOptions co = eo;
-        co.max_iterations = fo.max_iterations;
+        const EngineOptions co = full_model_options(eo);
         out.chain.push_back(run("full-model", co));
         const std::size_t n = out.chain.size();
         out.full_model_start = "its own guess (better G than from the CMA result)";
@@ -303,7 +308,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       }
     }
   } else {
-    out.chain.push_back(run(opt.engine, eo));
+    out.chain.push_back(run(opt.engine, opt.engine == "full-model" ? full_model_options(eo) : eo));
   }
   out.reconstruction = out.chain.back();
   // Several photoelectron lines (retrieval/analysis/multi_line_fit.h): centre-of-energy delays,
@@ -315,8 +320,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   const EngineRunner runner = [&](const RetrievalProblem& p, const std::string& name,
                                   const EngineOptions& o,
                                   const std::string& stage) { return run_on(p, name, o, stage); };
-  EngineOptions jeo = eo;
-  jeo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+  const EngineOptions jeo = full_model_options(eo);
   if (out.preprocess.lines.size() >= 2 && trace.meta.kind != TraceKind::kRabbitt &&
       !(opt.line_delays.names.size() == 1 && opt.line_delays.names[0] == "none")) {
     ClassifierOptions lc;
@@ -400,9 +404,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     if (warm && !lines_step.used) {
       // retrieval/analysis/uncertainty.h: the final engine from the estimate, until it stops
       // moving.
-      EngineOptions wo = bo;
-      if (single_engine == "full-model")
-        wo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+      EngineOptions wo = single_engine == "full-model" ? full_model_options(bo) : bo;
       wo.initial_xuv = rec.xuv;
       wo.initial_ir = rec.ir;
       wo.noise_floor_factor = 0.0;
@@ -412,8 +414,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     } else if (single_engine == "full-model") {
       // The same chain as the estimate: from the replica's own CMA result, or from the full
       // model's own guess when that is where the estimate came from.
-      EngineOptions fo = bo;
-      fo.max_iterations = opt.iterations > 0 ? opt.iterations : EngineOptions().max_iterations;
+      EngineOptions fo = full_model_options(bo);
       if (full_model_from_cma) {
         const Reconstruction c = run_on(rp, "ptychographic", bo, stage);
         fo.initial_xuv = c.xuv;
@@ -428,8 +429,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       br = run_on(rp, single_engine, bo, stage);
     }
     if (lines_step.used) {  // the joint fit on the replica, from its single-line result
-      EngineOptions jb = bo;
-      jb.max_iterations = jeo.max_iterations;
+      const EngineOptions jb = full_model_options(bo);
       if (auto jr =
               joint_line_replica(lines_step, rep, opt.preprocess, rp, ps, br, jb, stage, runner))
         br = std::move(*jr);

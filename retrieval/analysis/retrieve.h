@@ -99,6 +99,16 @@ struct RetrieveOptions {
   /// analysis took 23.6 s CPU with 20 (the cold-start patience), 13.2 s with 5, and 17-19 s
   /// with the full chain (docs/performance.md).
   int warm_patience = 5;
+  /// Every full-model run of the chain (from the CMA result, from its own guess, the satellite
+  /// starts, the joint lines, each replica): EngineOptions::patience, the engine iterations
+  /// (FullModelSettings::lbfgs_per_iteration = 10 L-BFGS iterations each) over which G must
+  /// settle -- at the noise floor, relative change < noise_floor_relative_tolerance; above it,
+  /// < relative_tolerance -- before the run stops (>= 1). Default 5 (our choice; 20 before, the
+  /// patience of the CMA engines, whose iteration is one pass over the delays): started from a
+  /// CMA result the full model reaches the floor within 1-2 iterations and then only moves G by
+  /// ~1e-5 of itself while following the counting noise, so 20 iterations spent 200 L-BFGS
+  /// iterations for nothing (docs/performance.md "Fewer evaluations").
+  int full_model_patience = 5;
   /// auto: largest CMA phase error (rad) tolerated before the full model refines.
   double cma_phase_error_max_rad = 0.6;
   /// auto: largest G / G_noise (trace error over its noise floor) accepted from the CMA
@@ -188,6 +198,12 @@ struct RetrieveOptions {
                  .help = "warm replicas: iterations over which G must change by < 1e-3 to stop",
                  .min = 1},
       self.warm_patience);
+    v(OptionSpec{.name = "full_model_patience",
+                 .help = "full-model runs: iterations (10 L-BFGS steps each) over which G must "
+                         "settle to stop",
+                 .min = 1,
+                 .max = 1000},
+      self.full_model_patience);
     v(OptionSpec{.name = "cma_phase_error_max_rad",
                  .unit = "rad",
                  .help = "auto: CMA phase error above which the full model refines",
