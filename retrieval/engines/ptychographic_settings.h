@@ -1,0 +1,49 @@
+#pragma once
+// The ptychographic engine's settings (the engine: retrieval/engines/ptychographic_engine.h), in a
+// header of their own that depends only on option_spec.h and the CMA settings.
+
+#include <string>
+
+#include "retrieval/core/option_spec.h"
+#include "retrieval/engines/cma_settings.h"
+
+namespace sw {
+
+/// The engine's typed settings (read from EngineOptions::extra through describe()).
+struct PtychographicSettings {
+  double beta_object = 0.1;  ///< ePIE step size of the XUV (object) update
+  double beta_gate = 1.5;    ///< ePIE step size of the gate (probe) update
+  int momentum_bands = 0;    ///< momentum nodes (CmaSettings::momentum_bands; 0 = auto)
+  /// The CMA settings, with this engine's default data projection (Poisson).
+  CmaSettings cma{.projection = CmaProjection::kPoisson};
+
+  template <class Self, class V>
+  static void describe(Self& self, V& v) {
+    v(OptionSpec{.name = "beta_object",
+                 .help = "ePIE step size of the XUV (object) update",
+                 .min = 1e-6,
+                 .max = 2},
+      self.beta_object);
+    v(OptionSpec{.name = "beta_gate",
+                 .help = "ePIE step size of the gate (probe) update",
+                 .min = 0,
+                 .max = 2},
+      self.beta_gate);
+    v(
+        OptionSpec{
+            .name = "momentum_bands",
+            .help =
+                "momentum nodes of the banded CMA, each a gate with its own central momentum, rows "
+                "interpolated between them (cma_problem.h): 1 = one p0, 0 = auto (node spacing <= "
+                "0.15 "
+                "p0, 2 to 8 nodes; used only when the one-p0 fit stalls above 1.1 x the noise "
+                "floor)",
+            .min = 0,
+            .max = 16},
+        self.momentum_bands);
+    CmaSettings::describe(self.cma, v);
+  }
+  std::string validate() const { return validate_described(*this); }  ///< names field and rule
+};
+
+}  // namespace sw
