@@ -2,7 +2,7 @@
 // The settings shared by the CMA engines (ptychographic, projections): how the field-free
 // spectrum and the data projection are used, the smooth-gate projection and the momentum nodes
 // (their meaning: retrieval/engines/cma_problem.h). A header of its own that depends only on
-// option_spec.h (no engine headers).
+// option_spec.h, so that retrieval/engines/engine_options.h can carry the engines' settings typed.
 
 #include <string>
 
@@ -22,8 +22,9 @@ enum class CmaProjection { kPoisson, kAmplitude };
 const char* to_string(CmaProjection p);
 bool parse_option(const std::string& s, CmaProjection* out);
 
-/// Settings shared by the CMA engines, read from EngineOptions::extra through describe() (the
-/// one description of their names, defaults, limits and help; retrieval/core/option_spec.h).
+/// Settings shared by the CMA engines (EngineOptions::settings carries them typed, inside each
+/// engine's own settings); describe() is the one description of their names, defaults, limits and
+/// help (retrieval/core/option_spec.h).
 struct CmaSettings {
   using Spectrum = CmaSpectrum;
   Spectrum spectrum = Spectrum::kAmplitude;
@@ -38,7 +39,7 @@ struct CmaSettings {
   double noise_tolerance = 0.0;  ///< half-width of the modulus band in standard deviations
   /// Number of momentum nodes of the gate (see MomentumBand): 1 = the one-p0 CMA, 0 = auto
   /// (auto_momentum_bands). Only the ptychographic engine offers more than one (described
-  /// there, PtychographicSettings).
+  /// there, PtychographicSettings, with its default 0).
   int momentum_bands = 1;
 
   template <class Self, class V>

@@ -76,9 +76,9 @@
 // engines), IR on a grid covering the delays +- the XUV support, the retrieved trace from
 // sw::ForwardModel kFull itself, scale mu of sw::trace_error.
 //
-// Extra options (EngineOptions::extra, name=value): the fields of FullModelSettings
-// (retrieval/engines/full_model_settings.h), described once in FullModelSettings::describe
-// (defaults, limits, help).
+// Settings: FullModelSettings (retrieval/engines/full_model_settings.h; carried typed by
+// EngineOptions::settings), described once in FullModelSettings::describe (defaults, limits,
+// help).
 //
 // Several photoelectron lines (RetrievalProblem::extra_lines; retrieval/analysis/multi_line_fit.h):
 // one XUV field and one IR field shared by all lines. Line l has its own binding energy Ip_l (its
@@ -108,11 +108,6 @@
 #include "retrieval/physics/ir_parametrization.h"
 
 namespace sw {
-
-/// The engine's ExtraOption list (Engine::extra_options), from FullModelSettings::describe.
-std::vector<ExtraOption> full_model_extra_options();
-/// Reads and validates the extras (throws sw::Error(kUsage) naming the option).
-FullModelSettings read_full_model_settings(const EngineOptions& options);
 
 /// The cost function of the engine on a flat parameter vector x (scaled XUV real/imaginary
 /// parts, then scaled IR parameters), with its adjoint gradient. Public so that tests can check

@@ -1,7 +1,7 @@
 #pragma once
 // The full-model engine's settings (the engine and the meaning of each setting:
 // retrieval/engines/full_model_engine.h), in a header of their own that depends only on
-// option_spec.h.
+// option_spec.h, so that retrieval/engines/engine_options.h can carry them typed.
 
 #include <string>
 
@@ -9,9 +9,10 @@
 
 namespace sw {
 
-/// The engine's settings, read from EngineOptions::extra. Each field is described once, in
-/// describe() (bounds, unit, help): validate(), full_model_extra_options() and
-/// read_full_model_settings() walk that description.
+/// The engine's settings (EngineOptions::settings.full_model). Each field is described once, in
+/// describe() (bounds, unit, help): validate(), the text form (apply_engine_option_text) and the
+/// settings listing (engine_options_help, retrieval/engines/engine_options.h) walk that
+/// description.
 struct FullModelSettings {
   std::string ir = "auto";            ///< auto | parametric | spline
   int lbfgs_per_iteration = 10;       ///< L-BFGS iterations per engine iteration
@@ -28,9 +29,9 @@ struct FullModelSettings {
   double ir_lowpass_weight = 100.0;              ///< weight of the IR low-frequency penalty
   int variance_smoothing_bins = 2;               ///< half-width of the variance average (bins)
 
-  /// The one description (retrieval/core/option_spec.h). The bounds are those every text option
-  /// was held to before (the former extra-option list); the upper end of support_threshold
-  /// is the exact rule (< 1: at 1 no bin would be free).
+  /// The one description (retrieval/core/option_spec.h). The text form is checked against the
+  /// closed ends of these bounds, validate() against the exact rules (the upper end of
+  /// support_threshold is open: at 1 no bin would be free).
   template <class Self, class V>
   static void describe(Self& self, V& v) {
     v(

@@ -28,9 +28,9 @@
 // iteration, so EngineOptions::threads > 1 spreads them over OpenMP threads (on a machine
 // loaded by other processes set OMP_WAIT_POLICY=passive: spinning threads then lose badly).
 //
-// Extra options (EngineOptions::extra, name=value): the fields of ProjectionsSettings
-// (retrieval/engines/projections_settings.h), described once in its describe() (mode,
-// gate_relaxation and the CMA settings of retrieval/engines/cma_problem.h).
+// Settings: ProjectionsSettings (retrieval/engines/projections_settings.h; carried typed by
+// EngineOptions::settings), described once in its describe() (mode, gate_relaxation and the CMA
+// settings of retrieval/engines/cma_settings.h).
 
 #include <memory>
 #include <string>

@@ -1,6 +1,7 @@
 #pragma once
 // The projections engine's settings (the engine: retrieval/engines/projections_engine.h), in a
-// header of their own that depends only on option_spec.h and the CMA settings.
+// header of their own that depends only on option_spec.h and the CMA settings, so that
+// retrieval/engines/engine_options.h can carry them typed.
 
 #include <string>
 
@@ -9,7 +10,8 @@
 
 namespace sw {
 
-/// The engine's typed settings (read from EngineOptions::extra through describe()).
+/// The engine's typed settings (EngineOptions::settings.projections; their text form is read
+/// through describe(), retrieval/engines/engine_options.h).
 struct ProjectionsSettings {
   std::string mode = "auto";  ///< auto (pcgpa on a matched delay grid, else lsgpa) | pcgpa | lsgpa
   double gate_relaxation = 1.8;  ///< over-relaxation omega of the gate update

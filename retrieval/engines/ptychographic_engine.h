@@ -25,9 +25,9 @@
 // Chosen on the synthetic traces of tests/test_ptychographic.cpp (noise-free and Poisson;
 // beta_gate in [1, 2] and beta_object in [0.1, 0.5] all converge there).
 //
-// Extra options (EngineOptions::extra, name=value): the fields of PtychographicSettings
-// (retrieval/engines/ptychographic_settings.h), described once in its describe() (the step sizes
-// above, the momentum nodes and the CMA settings of retrieval/engines/cma_problem.h).
+// Settings: PtychographicSettings (retrieval/engines/ptychographic_settings.h; carried typed by
+// EngineOptions::settings), described once in its describe() (the step sizes above, the momentum
+// nodes and the CMA settings of retrieval/engines/cma_settings.h).
 
 #include <memory>
 

@@ -1,6 +1,7 @@
 #pragma once
 // The ptychographic engine's settings (the engine: retrieval/engines/ptychographic_engine.h), in a
-// header of their own that depends only on option_spec.h and the CMA settings.
+// header of their own that depends only on option_spec.h and the CMA settings, so that
+// retrieval/engines/engine_options.h can carry them typed.
 
 #include <string>
 
@@ -9,13 +10,14 @@
 
 namespace sw {
 
-/// The engine's typed settings (read from EngineOptions::extra through describe()).
+/// The engine's typed settings (EngineOptions::settings.ptychographic; their text form is read
+/// through describe(), retrieval/engines/engine_options.h).
 struct PtychographicSettings {
   double beta_object = 0.1;  ///< ePIE step size of the XUV (object) update
   double beta_gate = 1.5;    ///< ePIE step size of the gate (probe) update
-  int momentum_bands = 0;    ///< momentum nodes (CmaSettings::momentum_bands; 0 = auto)
-  /// The CMA settings, with this engine's default data projection (Poisson).
-  CmaSettings cma{.projection = CmaProjection::kPoisson};
+  /// The CMA settings, with this engine's default data projection (Poisson) and momentum nodes
+  /// (cma.momentum_bands = 0: auto; the only CMA engine that describes them).
+  CmaSettings cma{.projection = CmaProjection::kPoisson, .momentum_bands = 0};
 
   template <class Self, class V>
   static void describe(Self& self, V& v) {
@@ -40,7 +42,7 @@ struct PtychographicSettings {
                 "floor)",
             .min = 0,
             .max = 16},
-        self.momentum_bands);
+        self.cma.momentum_bands);
     CmaSettings::describe(self.cma, v);
   }
   std::string validate() const { return validate_described(*this); }  ///< names field and rule
