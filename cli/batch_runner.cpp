@@ -260,7 +260,8 @@ void append_option_texts(std::ostringstream& s, const BatchOptions& o, const std
     s << ";" << k << "=" << v;
   }
   const RetrieveOptions& r = o.retrieve;
-  for (const auto& [k, v] : r.engine_extra) s << ";engine." << k << "=" << v;
+  for (const std::string& k : r.engine_settings.given)
+    s << ";engine." << k << "=" << r.engine_settings.text(k);
   if (r.preprocess.energy_window_lo_eV != 0 || r.preprocess.energy_window_hi_eV != 0)
     s << ";energy_window=" << num(r.preprocess.energy_window_lo_eV) << ":"
       << num(r.preprocess.energy_window_hi_eV);

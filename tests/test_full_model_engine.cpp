@@ -93,13 +93,12 @@ TEST_CASE("full-model defaults validate and agree with the option descriptions",
   // Common practice (STYLE.md): defaults validate; one description drives validation.
   const FullModelSettings d;
   CHECK(d.validate().empty());
-  EngineOptions o;
-  for (const ExtraOption& x : full_model_extra_options()) {
-    INFO(x.name);
-    CHECK(x.validate(x.default_value).empty());
-    o.extra.emplace_back(x.name, x.default_value);
-  }
-  const FullModelSettings r = read_full_model_settings(o);
+  // Every default in its text form (option_text) passes the text boundary and reads back.
+  const auto texts = described_texts(d);
+  CHECK(texts.size() == 14);
+  EngineSettings from_text;
+  apply_engine_option_text("full-model", texts, &from_text);
+  const FullModelSettings& r = from_text.full_model;
   CHECK(r.ir == d.ir);
   CHECK(r.lbfgs_per_iteration == d.lbfgs_per_iteration);
   CHECK(r.lbfgs_memory == d.lbfgs_memory);
@@ -114,9 +113,12 @@ TEST_CASE("full-model defaults validate and agree with the option descriptions",
   CHECK(r.spectrum_constraint == d.spectrum_constraint);
   CHECK(r.ir_lowpass_weight == Approx(d.ir_lowpass_weight));
   CHECK(r.variance_smoothing_bins == d.variance_smoothing_bins);
-  EngineOptions bad;
-  bad.extra.emplace_back("ir", "wavelet");
-  CHECK_THROWS_WITH(read_full_model_settings(bad), Catch::Contains("ir = 'wavelet'"));
+  EngineSettings bad;
+  CHECK_THROWS_WITH(apply_engine_option_text("full-model", {{"ir", "wavelet"}}, &bad),
+                    Catch::Contains("ir = 'wavelet'"));
+  FullModelSettings typed;  // the typed value is checked by validate()
+  typed.ir = "wavelet";
+  CHECK_THAT(typed.validate(), Catch::Contains("ir = 'wavelet'"));
   CHECK(make_engine("full-model")->name() == "full-model");
 }
 

@@ -186,27 +186,34 @@ TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") 
 }
 
 TEST_CASE("engine options from the typed settings' description", "[options]") {
-  // The text form (name=value) reads into the typed settings through the same description.
-  EngineOptions o;
-  o.extra = {{"lbfgs_memory", "7"}, {"block_phase_rad", "1.5"}, {"ir", "spline"}};
-  const FullModelSettings s = read_full_model_settings(o);
+  // The text form (name=value) reads into the typed settings through the same description,
+  // once, where it enters (apply_engine_option_text).
+  auto full_model = [](std::vector<std::pair<std::string, std::string>> text) {
+    EngineSettings settings;
+    apply_engine_option_text("full-model", text, &settings);
+    return settings.full_model;
+  };
+  const FullModelSettings s =
+      full_model({{"lbfgs_memory", "7"}, {"block_phase_rad", "1.5"}, {"ir", "spline"}});
   CHECK(s.lbfgs_memory == 7);
   CHECK(s.block_phase_rad == 1.5);
   CHECK(s.ir == "spline");
   CHECK(s.chebyshev_nodes == FullModelSettings{}.chebyshev_nodes);
-  o.extra = {{"lbfgs_memory", "7.5"}};
-  CHECK_THROWS_WITH(read_full_model_settings(o), Catch::Contains("lbfgs_memory = '7.5'"));
+  CHECK_THROWS_WITH(full_model({{"lbfgs_memory", "7.5"}}), Catch::Contains("lbfgs_memory = '7.5'"));
   // The open upper bound of support_threshold: 1 passes the listed (closed) range but not the
   // typed rule.
-  o.extra = {{"support_threshold", "1"}};
-  CHECK_THROWS_WITH(read_full_model_settings(o), Catch::Contains("support_threshold = 1"));
-  // The generated list carries the description's defaults and units.
-  for (const ExtraOption& x : full_model_extra_options())
-    if (x.name == "support_margin_eV") CHECK_THAT(x.help, Catch::EndsWith(", eV"));
+  CHECK_THROWS_WITH(full_model({{"support_threshold", "1"}}),
+                    Catch::Contains("support_threshold = 1"));
+  // The generated listing carries the description's defaults and units.
+  CHECK_THAT(engine_options_help("full-model"),
+             Catch::Contains("support_margin_eV = 1  widening of the XUV spectral support on each "
+                             "side, eV (a number in [0, 10000])"));
   // The CMA engines: their defaults differ only in the data projection
   // (retrieval/engines/cma_problem.h: poisson for ptychographic, amplitude for projections).
   for (const auto& [engine, projection] :
        {std::pair{"ptychographic", "poisson"}, std::pair{"projections", "amplitude"}})
-    for (const ExtraOption& x : make_engine(engine)->extra_options())
-      if (x.name == "projection") CHECK(x.default_value == projection);
+    CHECK_THAT(engine_options_help(engine),
+               Catch::Contains(std::string("\nprojection = ") + projection + "  "));
+  CHECK(to_string(PtychographicSettings{}.cma.projection) == std::string("poisson"));
+  CHECK(to_string(ProjectionsSettings{}.cma.projection) == std::string("amplitude"));
 }

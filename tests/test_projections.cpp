@@ -56,7 +56,7 @@ TEST_CASE("projections: PCGPA on a matched delay grid", "[projections]") {
   CHECK(r.trace_error < 1e-3);
   // LSGPA forced on the same data agrees.
   EngineOptions o = noise_free_options();
-  o.extra = {{"mode", "lsgpa"}};
+  o.settings.projections.mode = "lsgpa";
   const Reconstruction l = retrieve(c, "projections", o);
   CHECK(setting(l, "mode") == "lsgpa");
   check_truth(c, l, 0.05);
@@ -65,7 +65,7 @@ TEST_CASE("projections: PCGPA on a matched delay grid", "[projections]") {
 TEST_CASE("projections: PCGPA refuses an unmatched delay axis", "[projections]") {
   const Case c = make_case(CaseSpec{});
   EngineOptions o;
-  o.extra = {{"mode", "pcgpa"}};
+  o.settings.projections.mode = "pcgpa";
   try {
     retrieve(c, "projections", o);
     FAIL("pcgpa accepted an unmatched grid");
@@ -73,8 +73,12 @@ TEST_CASE("projections: PCGPA refuses an unmatched delay axis", "[projections]")
     CHECK(e.kind() == ErrorKind::kUsage);
     CHECK(std::string(e.what()).find("mode = pcgpa") != std::string::npos);
   }
-  o.extra = {{"mode", "fast"}};
+  o.settings.projections.mode = "fast";
   CHECK_THROWS_AS(retrieve(c, "projections", o), Error);
+  // The text form of the same word is refused where the text is read.
+  EngineSettings text;
+  CHECK_THROWS_WITH(apply_engine_option_text("projections", {{"mode", "fast"}}, &text),
+                    Catch::Contains("projections: engine option mode = 'fast'"));
 }
 
 TEST_CASE("projections: LSGPA on a jittered delay axis", "[projections]") {

@@ -13,6 +13,7 @@
 #include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/check_support.h"
 #include "tests/cma_test_problem.h"
 
 using namespace sw;
@@ -147,15 +148,23 @@ TEST_CASE("ptychographic: bad problems and options are named", "[ptychographic]"
   p = c.problem;
   std::swap(p.delay_au[3], p.delay_au[4]);
   expect(p, {}, ErrorKind::kInput, "delay_au is not strictly ascending");
+  // Typed settings out of their bounds: the engine refuses them, naming the setting.
   EngineOptions o;
-  o.extra = {{"beta_object", "5"}};
+  o.settings.ptychographic.beta_object = 5;
   expect(c.problem, o, ErrorKind::kUsage, "beta_object");
-  o.extra = {{"spectrum_constraint", "sometimes"}};
-  expect(c.problem, o, ErrorKind::kUsage, "spectrum_constraint");
-  o.extra = {{"momentum_bands", "40"}};
+  o = EngineOptions{};
+  o.settings.ptychographic.cma.momentum_bands = 40;
   expect(c.problem, o, ErrorKind::kUsage, "momentum_bands");
-  o.extra = {{"projection", "sometimes"}};
-  expect(c.problem, o, ErrorKind::kUsage, "projection");
+  // Their text form: words outside the choices are refused where the text is read.
+  for (const char* name : {"spectrum_constraint", "projection"}) {
+    EngineSettings s;
+    const std::string m = test::error_message(
+        [&] {
+          apply_engine_option_text("ptychographic", {{name, "sometimes"}}, &s);
+        },
+        ErrorKind::kUsage);
+    CHECK(m.find(name) != std::string::npos);
+  }
 }
 
 namespace {
@@ -202,10 +211,14 @@ struct RabbittCase {
     truth_shares = harmonic_shares(scan.xuv, problem.ir_omega_au);
     a0_truth = *scan.truth.ir->peak_vector_potential_au;
   }
-  Reconstruction run(std::vector<std::pair<std::string, std::string>> extra) const {
+  // The ptychographic engine with the given momentum nodes and data projection (defaults: the
+  // engine's), the spectrum used for its centroid only.
+  Reconstruction run(int momentum_bands = PtychographicSettings{}.cma.momentum_bands,
+                     CmaProjection projection = PtychographicSettings{}.cma.projection) const {
     EngineOptions o;
-    o.extra = std::move(extra);
-    o.extra.push_back({"spectrum_constraint", "centroid"});
+    o.settings.ptychographic.cma.momentum_bands = momentum_bands;
+    o.settings.ptychographic.cma.projection = projection;
+    o.settings.set_spectrum_constraint(CmaSpectrum::kCentroid);
     auto e = make_engine("ptychographic");
     return run_engine(*e, problem, o);
   }
@@ -235,8 +248,8 @@ TEST_CASE("ptychographic: momentum nodes on a broad RABBITT comb", "[ptychograph
       if (c.truth_shares[k] > 0.02) worst = std::max(worst, std::abs(ratio[k] - 1));
     return worst;
   };
-  const Reconstruction nodes = c.run({{"momentum_bands", "0"}});
-  const Reconstruction one = c.run({{"momentum_bands", "1"}});
+  const Reconstruction nodes = c.run(0);
+  const Reconstruction one = c.run(1);
   const double e_nodes = worst_share_error(nodes), e_one = worst_share_error(one);
   INFO("nodes: G/floor " << nodes.trace_error / nodes.noise_floor_trace_error << ", A0 "
                          << peak_abs(nodes.ir) << " (truth " << c.a0_truth
@@ -264,8 +277,9 @@ TEST_CASE("ptychographic: the Poisson projection keeps weak harmonics", "[ptycho
   // 8 % weak with the amplitude projection, 1.6 % with the Poisson one.
   const RabbittCase c(2000);
   // Mean share ratio of the harmonics below 5 % of the comb.
-  auto wings = [&](const char* projection) {
-    const std::vector<double> ratio = c.share_ratios(c.run({{"projection", projection}}));
+  auto wings = [&](CmaProjection projection) {
+    const std::vector<double> ratio =
+        c.share_ratios(c.run(PtychographicSettings{}.cma.momentum_bands, projection));
     double sum = 0.0;
     int n = 0;
     for (std::size_t k = 0; k < ratio.size(); ++k)
@@ -275,7 +289,8 @@ TEST_CASE("ptychographic: the Poisson projection keeps weak harmonics", "[ptycho
       }
     return sum / n;
   };
-  const double poisson = wings("poisson"), amplitude = wings("amplitude");
+  const double poisson = wings(CmaProjection::kPoisson),
+               amplitude = wings(CmaProjection::kAmplitude);
   INFO("wing harmonics' share / truth: poisson " << poisson << ", amplitude " << amplitude);
   CHECK(std::abs(poisson - 1.0) < 0.06);
   CHECK(amplitude < poisson);

@@ -120,7 +120,7 @@ EngineEstimate engine_estimate(const Trace& trace, double w, int q_lo, int q_hi,
   RetrieveOptions o;
   o.engine = "ptychographic";
   o.bootstrap = 0;
-  o.engine_extra = {{"spectrum_constraint", "centroid"}};
+  o.engine_settings.set_spectrum_constraint(CmaSpectrum::kCentroid);
   const RetrieveOutput out = retrieve(trace, o);
   EngineEstimate e;
   e.value = train_from_field(out.reconstruction.xuv, w, q_lo, q_hi);
@@ -137,7 +137,7 @@ EngineEstimate engine_estimate(const Trace& trace, double w, int q_lo, int q_hi,
     eo.max_iterations = 100;
     eo.initial_xuv = out.reconstruction.xuv;
     eo.initial_ir = out.reconstruction.ir;
-    eo.extra = o.engine_extra;
+    eo.settings = o.engine_settings;
     auto engine = make_engine(o.engine);
     Reconstruction r = run_engine(*engine, pr, eo);
     fix_time_origin(r);
@@ -269,7 +269,9 @@ TEST_CASE("engine settings on argon-rabbitt: the claims of the docs' engine tabl
     RetrieveOptions o;
     o.engine = v.engine;
     o.bootstrap = 0;
-    o.engine_extra = {{"spectrum_constraint", v.spectrum}};
+    CmaSpectrum constraint = CmaSpectrum::kAmplitude;
+    REQUIRE(parse_option(v.spectrum, &constraint));
+    o.engine_settings.set_spectrum_constraint(constraint);
     const RetrieveOutput out = retrieve(t, o);
     const TrainFromField r = train_from_field(out.reconstruction.xuv, w, 13, 31);
     std::printf("| %s (%s) | %s | %s | %.4f | %.4f | %.2f | %.1f | %.1f |\n", v.engine,

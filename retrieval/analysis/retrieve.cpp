@@ -201,13 +201,11 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   if (opt.iterations > 0) eo.max_iterations = opt.iterations;
   eo.seed = opt.seed;
   eo.threads = 1;  // engines single-threaded: the replicas use the threads (bit-identical results)
-  eo.extra = opt.engine_extra;
+  eo.settings = opt.engine_settings;
   // A streaking-broadened spectrum must not be imposed as the amplitude (DESIGN.md: |E_X| is
   // constrained to the measured field-free spectrum; without one, only its centroid is used).
-  bool user_set = false;
-  for (const auto& kv : eo.extra) user_set = user_set || kv.first == "spectrum_constraint";
-  if (!out.preprocess.field_free_measured && !user_set)
-    eo.extra.push_back({"spectrum_constraint", "centroid"});
+  if (!out.preprocess.field_free_measured && !eo.settings.is_given("spectrum_constraint"))
+    eo.settings.set_spectrum_constraint(CmaSpectrum::kCentroid);
   eo.max_seconds = opt.max_seconds;
   // A full-model run of the chain: the default iteration limit when the first engine's was
   // changed by --iterations, and its own patience (RetrieveOptions::full_model_patience).
@@ -380,13 +378,12 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // (the engine adds them only when the one-p0 fit stalls above the noise floor, and a
   // replica's doubled noise would otherwise decide differently and bias the correction).
   EngineOptions beo = eo;
-  const bool nodes_set = std::any_of(beo.extra.begin(), beo.extra.end(),
-                                     [](const auto& kv) { return kv.first == "momentum_bands"; });
+  const bool nodes_set = beo.settings.is_given("momentum_bands");
   const auto ptycho = std::find_if(out.chain.begin(), out.chain.end(), [](const Reconstruction& c) {
     return c.engine == "ptychographic";
   });
   if (!nodes_set && ptycho != out.chain.end() && ptycho->momentum_nodes > 0)
-    beo.extra.push_back({"momentum_bands", std::to_string(ptycho->momentum_nodes)});
+    beo.settings.set_momentum_bands(ptycho->momentum_nodes);
   // Replicas are independent: each on a worker thread, its seeds from its index alone, its
   // numbers into its own slot (the same results for any thread count).
   const bool warm = opt.uncertainty == UncertaintyMethod::kWarm;

@@ -149,7 +149,12 @@ struct RetrieveOptions {
   /// Relative delays of the other photoelectron lines (retrieval/analysis/line_delays.h); run when
   /// preprocessing found two or more lines; its seed follows `seed`.
   LineDelayOptions line_delays;
-  std::vector<std::pair<std::string, std::string>> engine_extra;
+  /// The engines' own settings, typed (retrieval/engines/engine_options.h; the name=value text
+  /// form goes through apply_engine_option_text with `engine`). Every engine run of the analysis
+  /// gets them. Without a measured field-free spectrum, spectrum_constraint becomes centroid
+  /// unless it is given (EngineSettings::given); the bootstrap's ptychographic runs use the
+  /// estimate's momentum nodes unless momentum_bands is given.
+  EngineSettings engine_settings;
 
   /// The one description of the fields above that the CLI, config files and the result echo
   /// use (retrieval/core/option_spec.h). Order = order of settings.* in result.json.

@@ -1,7 +1,6 @@
 #include "retrieval/engines/engine.h"
 
 #include <algorithm>
-#include <cerrno>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
@@ -54,33 +53,6 @@ std::string EngineOptions::validate() const {
 
 namespace {
 
-const std::string* find_extra(const EngineOptions& o, const std::string& name) {
-  const std::string* v = nullptr;
-  for (const auto& [k, val] : o.extra)
-    if (k == name) v = &val;  // last entry wins
-  return v;
-}
-
-bool parse_number(const std::string& text, double* out) {
-  if (text.empty()) return false;
-  char* end = nullptr;
-  errno = 0;
-  const double v = std::strtod(text.c_str(), &end);
-  if (errno != 0 || end != text.c_str() + text.size() || !std::isfinite(v)) return false;
-  *out = v;
-  return true;
-}
-
-bool parse_integer(const std::string& text, long long* out) {
-  if (text.empty()) return false;
-  char* end = nullptr;
-  errno = 0;
-  const long long v = std::strtoll(text.c_str(), &end, 10);
-  if (errno != 0 || end != text.c_str() + text.size()) return false;
-  *out = v;
-  return true;
-}
-
 std::string join(const std::vector<std::string>& v, const char* sep = ", ") {
   std::string s;
   for (const auto& x : v) s += (s.empty() ? "" : sep) + x;
@@ -88,68 +60,6 @@ std::string join(const std::vector<std::string>& v, const char* sep = ", ") {
 }
 
 }  // namespace
-
-bool EngineOptions::has_extra(const std::string& name) const {
-  return find_extra(*this, name) != nullptr;
-}
-
-double EngineOptions::extra_double(const std::string& name, double fallback) const {
-  const std::string* v = find_extra(*this, name);
-  if (!v) return fallback;
-  double x = 0;
-  if (!parse_number(*v, &x))
-    throw usage_error("engine option " + name + " = '" + *v + "': expected a finite number");
-  return x;
-}
-
-std::string EngineOptions::extra_string(const std::string& name,
-                                        const std::string& fallback) const {
-  const std::string* v = find_extra(*this, name);
-  return v ? *v : fallback;
-}
-
-long long EngineOptions::extra_int(const std::string& name, long long fallback) const {
-  const std::string* v = find_extra(*this, name);
-  if (!v) return fallback;
-  long long x = 0;
-  if (!parse_integer(*v, &x))
-    throw usage_error("engine option " + name + " = '" + *v + "': expected an integer");
-  return x;
-}
-
-std::string ExtraOption::validate(const std::string& value) const {
-  std::ostringstream s;
-  auto bound = [](double b) {
-    if (std::abs(b) >= 1e307) return std::string(b < 0 ? "-inf" : "inf");
-    std::ostringstream r;
-    r << b;
-    return r.str();
-  };
-  auto range = [&] {
-    std::ostringstream r;
-    r << '[' << bound(min) << ", " << bound(max) << ']';
-    return r.str();
-  };
-  switch (kind) {
-    case Kind::kNumber: {
-      double x = 0;
-      if (!parse_number(value, &x) || x < min || x > max)
-        s << name << " = '" << value << "': expected a number in " << range();
-      break;
-    }
-    case Kind::kInteger: {
-      long long x = 0;
-      if (!parse_integer(value, &x) || static_cast<double>(x) < min || static_cast<double>(x) > max)
-        s << name << " = '" << value << "': expected an integer in " << range();
-      break;
-    }
-    case Kind::kChoice:
-      if (std::find(choices.begin(), choices.end(), value) == choices.end())
-        s << name << " = '" << value << "': expected one of " << join(choices, "|");
-      break;
-  }
-  return s.str();
-}
 
 // --- registry -------------------------------------------------------------------------------
 
@@ -205,33 +115,6 @@ std::unique_ptr<Engine> make_engine(const std::string& name) {
   return f();
 }
 
-void validate_extras(const Engine& engine, const EngineOptions& options) {
-  if (options.extra.empty()) return;
-  const std::vector<ExtraOption> own = engine.extra_options();
-  for (const auto& [name, value] : options.extra) {
-    const auto it =
-        std::find_if(own.begin(), own.end(), [&](const ExtraOption& o) { return o.name == name; });
-    if (it != own.end()) {
-      if (const std::string e = it->validate(value); !e.empty())
-        throw usage_error(engine.name() + ": engine option " + e);
-      continue;
-    }
-    // Declared by another registered engine: meant for that engine of a chain.
-    bool elsewhere = false;
-    for (const std::string& other : engine_names()) {
-      if (other == engine.name()) continue;
-      for (const ExtraOption& o : make_engine(other)->extra_options())
-        elsewhere = elsewhere || o.name == name;
-    }
-    if (elsewhere) continue;
-    std::vector<std::string> names;
-    for (const ExtraOption& o : own) names.push_back(o.name);
-    throw usage_error(engine.name() + ": unknown engine option '" + name +
-                      "' (this engine accepts " +
-                      (names.empty() ? std::string("no extra options") : join(names)) + ")");
-  }
-}
-
 // --- the loop -------------------------------------------------------------------------------
 
 namespace {
@@ -279,7 +162,6 @@ Reconstruction run_engine(Engine& engine, const RetrievalProblem& problem,
                           const std::vector<IterationCallback>& callbacks) {
   if (const std::string e = options.validate(); !e.empty())
     throw usage_error(engine.name() + ": EngineOptions." + e);
-  validate_extras(engine, options);
 
   const Clock::time_point t0 = Clock::now();
   engine.prepare(problem, options);

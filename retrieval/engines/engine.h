@@ -10,8 +10,8 @@
 //   finalize() -> Reconstruction  (best estimate so far, never the last if it was worse)
 // The loop (not the engines) owns counters, timing, callbacks and the stopping rules.
 // The concepts it uses live one per header: problem.h (RetrievalProblem), engine_options.h
-// (EngineOptions, typed extras), reconstruction.h (Reconstruction, IterationRecord,
-// Termination), trace_error.h (G and its noise floor).
+// (EngineOptions with the engines' typed settings), reconstruction.h (Reconstruction,
+// IterationRecord, Termination), trace_error.h (G and its noise floor).
 
 #include <chrono>
 #include <cmath>
@@ -51,13 +51,9 @@ class Engine {
   virtual std::string name() const = 0;
   virtual std::string description() const = 0;
   virtual std::string reference() const = 0;
-  /// The engine-specific options it reads from EngineOptions::extra. run_engine() checks every
-  /// extra against this list before prepare(): a declared name must have a valid value; a name
-  /// no registered engine declares is a usage error (names declared only by other engines
-  /// are ignored, so one option set can drive an engine chain).
-  virtual std::vector<ExtraOption> extra_options() const { return {}; }
-  /// Throws sw::Error(kUsage) for bad engine-specific extras, sw::Error(kInput) for a
-  /// problem the engine cannot use (naming the RetrievalProblem field).
+  /// Throws sw::Error(kUsage) for bad settings of its own (its member of
+  /// EngineOptions::settings, validated_settings), sw::Error(kInput) for a problem the engine
+  /// cannot use (naming the RetrievalProblem field).
   virtual void prepare(const RetrievalProblem& problem, const EngineOptions& options) = 0;
   /// One iteration; returns its record (iteration and seconds filled in by the loop).
   virtual IterationRecord iterate(int k) = 0;
@@ -72,9 +68,6 @@ bool register_engine(const std::string& name, EngineFactory factory);
 /// Throws sw::Error(kUsage) listing the registered names when `name` is unknown.
 std::unique_ptr<Engine> make_engine(const std::string& name);
 std::vector<std::string> engine_names();
-/// Checks options.extra against engine.extra_options() (see Engine::extra_options); throws
-/// sw::Error(kUsage) naming the option. Called by run_engine().
-void validate_extras(const Engine& engine, const EngineOptions& options);
 
 namespace detail {
 /// The built-in engines (defined in retrieval/engines/engine_registry.cpp), registered on first
@@ -83,7 +76,8 @@ std::vector<std::pair<std::string, EngineFactory>> builtin_engines();
 }  // namespace detail
 
 /// The shared iteration loop: prepare, iterate until a stopping rule fires, finalize.
-/// Validates options first (throws sw::Error(kUsage) naming the field), then the extras.
+/// Validates the common options first (throws sw::Error(kUsage) naming the field); the engine
+/// validates its own settings in prepare().
 /// After each iteration k (1-based) the rules are checked in this order:
 ///   1. numerical failure: G not finite, or iterate() threw sw::Error(kNumeric) -> kFailure;
 ///   2. callbacks, in order: kAbort -> kFailure, kStop -> kUserStopped;

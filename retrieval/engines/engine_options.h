@@ -1,21 +1,63 @@
 #pragma once
-// Options shared by every engine (EngineOptions) and the engines' own typed settings read from
-// its name=value extras through their one description (retrieval/core/option_spec.h).
+// Options shared by every engine (EngineOptions) and the built-in engines' own settings, typed
+// (EngineSettings), with their one text form (name=value pairs: apply_engine_option_text).
+//
+// Why one member per engine rather than a std::variant of one engine's settings: one
+// EngineOptions drives a chain of engines (retrieve's auto runs the ptychographic engine and then
+// the full model from its result, the bootstrap repeats that chain, the satellite hypotheses run
+// the full model), and a setting named once (spectrum_constraint) applies to every engine that
+// has it. Each engine reads only its own member, already typed; the name=value text is parsed
+// once, where it enters (apply_engine_option_text), never by the engines. An engine registered at
+// run time (register_engine) has no member here and reads the common fields only.
+//
+// Each settings struct lives in a header of its own that depends only on option_spec.h
+// (cma_settings.h, ptychographic_settings.h, projections_settings.h, full_model_settings.h), so
+// this header includes them without including the engines.
 #include <optional>
 #include <string>
-#include <type_traits>
 #include <utility>
 #include <vector>
 
 #include "retrieval/core/error.h"
 #include "retrieval/core/option_spec.h"
+#include "retrieval/engines/cma_settings.h"
+#include "retrieval/engines/full_model_settings.h"
+#include "retrieval/engines/projections_settings.h"
+#include "retrieval/engines/ptychographic_settings.h"
 #include "retrieval/physics/ir_field.h"
 #include "retrieval/physics/xuv_field.h"
 
 namespace sw {
 
-/// Options shared by every engine; engine-specific settings go in `extra` as name=value
-/// strings documented by each engine. Defaults validate (tests/test_engine.cpp checks it).
+/// The built-in engines' own settings, typed (see the header comment), and the names of those
+/// set explicitly.
+struct EngineSettings {
+  PtychographicSettings ptychographic;  ///< engine "ptychographic"
+  ProjectionsSettings projections;      ///< engine "projections"
+  FullModelSettings full_model;         ///< engines "full-model" and "cma-least-squares"
+  /// Names of the settings set explicitly, each once, in the order first set: by their text
+  /// (apply_engine_option_text) or by set_spectrum_constraint / set_momentum_bands. The retrieve
+  /// pipeline leaves such a setting alone (retrieval/analysis/retrieve.cpp), the full model lists
+  /// them in its report ("extra.<name>") and batch option strings name them.
+  std::vector<std::string> given;
+
+  bool is_given(const std::string& name) const;
+  /// Sets spectrum_constraint of every engine that has one (CmaSettings::spectrum of the CMA
+  /// engines, FullModelSettings::spectrum_constraint) and records the name as given.
+  void set_spectrum_constraint(CmaSpectrum spectrum);
+  /// Sets the ptychographic engine's momentum nodes (the only engine that has them) and records
+  /// momentum_bands as given.
+  void set_momentum_bands(int nodes);
+  /// The text of the setting `name` (option_text of its typed value, from the first member above
+  /// that has it); "" when no engine has it.
+  std::string text(const std::string& name) const;
+  /// "" when every member validates; else "<engine>: <its validate() message>" of the first
+  /// that does not.
+  std::string validate() const;
+};
+
+/// Options shared by every engine, plus the engines' own settings (`settings`). Defaults
+/// validate (tests/test_engine.cpp checks it).
 struct EngineOptions {
   int max_iterations = 300;  ///< > 0
   /// Stop when the relative change of the trace error G over the last `patience` iterations
@@ -34,86 +76,41 @@ struct EngineOptions {
   /// Warm start (used by bootstrap and chaining); empty = engine's own initial guess.
   std::optional<XuvField> initial_xuv;
   std::optional<IrField> initial_ir;
-  std::vector<std::pair<std::string, std::string>> extra;
+  /// The engines' own settings; each engine validates its member when it starts (prepare).
+  EngineSettings settings;
 
-  std::string validate() const;  ///< "" when valid; else names field, value, constraint
-  /// Value of an extra option, or fallback. The last entry of a repeated name wins. A value
-  /// that is not a number throws sw::Error(kUsage) naming the option.
-  double extra_double(const std::string& name, double fallback) const;
-  std::string extra_string(const std::string& name, const std::string& fallback) const;
-  /// Integer-valued extra (throws sw::Error(kUsage) when the value is not an integer).
-  long long extra_int(const std::string& name, long long fallback) const;
-  bool has_extra(const std::string& name) const;
+  /// "" when valid; else names field, value, constraint (the common fields; each engine checks
+  /// its own settings)
+  std::string validate() const;
 };
 
-/// Description of one engine-specific option (EngineOptions::extra), given once by the engine
-/// and used for validation, --help text and documentation.
-struct ExtraOption {
-  enum class Kind { kNumber, kInteger, kChoice };
-  std::string name;  ///< key in EngineOptions::extra
-  Kind kind = Kind::kNumber;
-  std::string default_value;  ///< as text, e.g. "0.25"
-  std::string help;           ///< one line; units in the text
-  double min = -1e308;        ///< inclusive bounds for kNumber / kInteger
-  double max = 1e308;
-  std::vector<std::string> choices;  ///< allowed values for kChoice
-  /// "" when `value` is acceptable; else a message naming the option, the value and the rule.
-  std::string validate(const std::string& value) const;
-};
+/// The text form of the engines' settings: sets the settings named in `pairs` (name=value text,
+/// as a command line or a config file gives them; a repeated name: the last entry wins) and
+/// records each name as given. `engine` is the engine the settings are for (a registered name,
+/// or "auto" for retrieve's chain, which accepts the settings of every engine); it names the
+/// errors. A name sets that setting of every engine that has it; its text must suit each of them
+/// (numbers and integers within the closed ends of the bounds, words among the choices).
+/// Throws sw::Error(kUsage):
+///   "<engine>: unknown engine option '<name>' (this engine accepts a, b, ...)" when no engine
+///   has the setting;
+///   "<engine>: engine option <name> = '<text>': expected a number in [lo, hi]" (an integer in
+///   [lo, hi], one of a|b|c) for text that does not suit the setting;
+///   "<engine>: <validate() message>" when a value breaks an exact (open) bound.
+/// The error names the engine that has the setting when it is not `engine` itself.
+void apply_engine_option_text(const std::string& engine,
+                              const std::vector<std::pair<std::string, std::string>>& pairs,
+                              EngineSettings* settings);
 
-/// The ExtraOption list of an engine's typed settings, generated from their description
-/// (retrieval/core/option_spec.h; kind from the field's type, defaults from `defaults`, the unit
-/// appended to the help). Open bounds are listed as their closed ends; the typed validate()
-/// enforces them after reading.
-template <class Settings>
-std::vector<ExtraOption> described_extra_options(const Settings& defaults) {
-  std::vector<ExtraOption> out;
-  auto add = [&](const OptionSpec& s, const auto& value) {
-    using T = std::decay_t<decltype(value)>;
-    ExtraOption x;
-    x.name = std::string(s.name);
-    x.default_value = option_text(value);
-    x.help = std::string(s.help) + (s.unit.empty() ? "" : ", " + std::string(s.unit));
-    x.min = std::isfinite(s.min) ? s.min : -1e308;
-    x.max = std::isfinite(s.max) ? s.max : 1e308;
-    if constexpr (std::is_same_v<T, std::string> || std::is_enum_v<T>) {
-      x.kind = ExtraOption::Kind::kChoice;
-      std::string_view c = s.choices;
-      for (std::size_t bar; (bar = c.find('|')) != std::string_view::npos; c.remove_prefix(bar + 1))
-        x.choices.emplace_back(c.substr(0, bar));
-      x.choices.emplace_back(c);
-    } else {
-      x.kind = std::is_integral_v<T> ? ExtraOption::Kind::kInteger : ExtraOption::Kind::kNumber;
-    }
-    out.push_back(std::move(x));
-  };
-  Settings::describe(defaults, add);
-  return out;
-}
+/// The settings of `engine` (registered name; "auto": every engine's, each name once), one line
+/// each, generated from their descriptions: "<name> = <default>  <help>, <unit> (<rule>)" with
+/// the rule "a number in [lo, hi]", "an integer in [lo, hi]" or "one of a|b". "" for an engine
+/// without settings of its own.
+std::string engine_options_help(const std::string& engine);
 
-/// Typed settings from an engine's extras (`name=value` text): every described field whose
-/// name appears in options.extra is set from its text (the last entry wins); the others keep
-/// the value in `*settings`. Throws sw::Error(kUsage) "<engine>: engine option <name> = '<text>':
-/// expected ..." for text of the wrong type; bounds are checked by the settings' validate().
+/// `settings` when they validate; else throws sw::Error(kUsage) "<engine>: <validate() message>".
+/// Engines call it on their member of EngineOptions::settings first thing in prepare().
 template <class Settings>
-void read_described_extras(const EngineOptions& options, const std::string& engine,
-                           Settings* settings) {
-  auto read = [&](const OptionSpec& s, auto& field) {
-    const std::string name(s.name);
-    if (!options.has_extra(name)) return;
-    const std::string text = options.extra_string(name, "");
-    if (const std::string e = set_option_from_text(s, text, &field); !e.empty())
-      throw usage_error(engine + ": engine option " + name + " = '" + text + "': " + e);
-  };
-  Settings::describe(*settings, read);
-}
-
-/// read_described_extras over the defaults, then the settings' validate(): throws
-/// sw::Error(kUsage) "<engine>: <validate() message>" when a bound is broken.
-template <class Settings>
-Settings read_validated_extras(const EngineOptions& options, const std::string& engine) {
-  Settings settings;
-  read_described_extras(options, engine, &settings);
+const Settings& validated_settings(const Settings& settings, const std::string& engine) {
   if (const std::string e = settings.validate(); !e.empty()) throw usage_error(engine + ": " + e);
   return settings;
 }

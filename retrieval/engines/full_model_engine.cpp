@@ -23,20 +23,6 @@ using full_model_detail::reference_spectrum;
 
 }  // namespace
 
-// --- settings ---------------------------------------------------------------------------------
-
-std::vector<ExtraOption> full_model_extra_options() {
-  return described_extra_options(FullModelSettings{});
-}
-
-FullModelSettings read_full_model_settings(const EngineOptions& o) {
-  for (const ExtraOption& opt : full_model_extra_options())
-    if (o.has_extra(opt.name))
-      if (const std::string e = opt.validate(o.extra_string(opt.name, "")); !e.empty())
-        throw usage_error("full-model: engine option " + e);
-  return read_validated_extras<FullModelSettings>(o, "full-model");
-}
-
 namespace {
 
 // --- initial guesses --------------------------------------------------------------------------
@@ -88,8 +74,6 @@ class LeastSquaresEngine : public Engine {
     return "P. D. Keathley et al., New J. Phys. 18, 073009 (2016); D. C. Liu and J. Nocedal, "
            "Math. Program. 45, 503 (1989)";
   }
-  std::vector<ExtraOption> extra_options() const override { return full_model_extra_options(); }
-
   void prepare(const RetrievalProblem& problem, const EngineOptions& options) override;
   IterationRecord iterate(int k) override;
   Reconstruction finalize() override;
@@ -120,7 +104,7 @@ void LeastSquaresEngine::prepare(const RetrievalProblem& P, const EngineOptions&
   check_problem(P, name());
   problem_ = P;
   options_ = options;
-  settings_ = read_full_model_settings(options);
+  settings_ = validated_settings(options.settings.full_model, name());
   done_ = false;
   lbfgs_iterations_ = 0;
   runs_ = replans_ = 0;
@@ -370,7 +354,8 @@ Reconstruction LeastSquaresEngine::finalize() {
                                     : "none (no variances: uniform weights)");
   S.emplace_back("spectrum_constraint", settings_.spectrum_constraint);
   S.emplace_back("ir_lowpass_weight", num(settings_.ir_lowpass_weight));
-  for (const auto& [k, v] : options_.extra) S.emplace_back("extra." + k, v);
+  for (const std::string& k : options_.settings.given)
+    S.emplace_back("extra." + k, options_.settings.text(k));
   for (std::size_t l = 0; l < f.num_lines(); ++l) {
     // Joint lines (read back by retrieval/analysis/multi_line_fit.cpp; full precision).
     std::ostringstream d, g, c;

@@ -67,12 +67,8 @@ class ProjectionsEngine final : public Engine {
            "Quere, Phys. Rev. A 71, 011401(R) (2005); P. Gagnon, E. Goulielmakis and V. S. "
            "Yakovlev, Appl. Phys. B 92, 25 (2008)";
   }
-  std::vector<ExtraOption> extra_options() const override {
-    return described_extra_options(ProjectionsSettings{});
-  }
-
   void prepare(const RetrievalProblem& problem, const EngineOptions& options) override {
-    const auto ps = read_validated_extras<ProjectionsSettings>(options, name());
+    const ProjectionsSettings& ps = validated_settings(options.settings.projections, name());
     cma_.emplace(problem, ps.cma, name());
     const std::string& mode = ps.mode;
     const bool matched = matched_grid(problem.delay_au, problem.grid.dt());

@@ -28,42 +28,17 @@
 // iteration, so EngineOptions::threads > 1 spreads them over OpenMP threads (on a machine
 // loaded by other processes set OMP_WAIT_POLICY=passive: spinning threads then lose badly).
 //
-// Extra options (EngineOptions::extra, name=value): the fields of ProjectionsSettings below,
-// described once in its describe() (mode, gate_relaxation and the CMA settings of
-// retrieval/engines/cma_problem.h).
+// Settings: ProjectionsSettings (retrieval/engines/projections_settings.h; carried typed by
+// EngineOptions::settings), described once in its describe() (mode, gate_relaxation and the CMA
+// settings of retrieval/engines/cma_settings.h).
 
 #include <memory>
 #include <string>
 
-#include "retrieval/engines/cma_problem.h"
 #include "retrieval/engines/engine.h"
+#include "retrieval/engines/projections_settings.h"
 
 namespace sw {
-
-/// The engine's typed settings (read from EngineOptions::extra through describe()).
-struct ProjectionsSettings {
-  std::string mode = "auto";  ///< auto (pcgpa on a matched delay grid, else lsgpa) | pcgpa | lsgpa
-  double gate_relaxation = 1.8;  ///< over-relaxation omega of the gate update
-  /// The CMA settings, with this engine's default data projection (amplitude: generalized
-  /// projections need a true projection).
-  CmaSettings cma{.projection = CmaProjection::kAmplitude};
-
-  template <class Self, class V>
-  static void describe(Self& self, V& v) {
-    v(OptionSpec{.name = "mode",
-                 .help = "auto (pcgpa on a matched delay grid, else lsgpa), pcgpa or lsgpa",
-                 .choices = "auto|pcgpa|lsgpa"},
-      self.mode);
-    v(OptionSpec{.name = "gate_relaxation",
-                 .help =
-                     "over-relaxation omega of the gate update G <- G + omega (G_projected - G)",
-                 .min = 0.1,
-                 .max = 2},
-      self.gate_relaxation);
-    CmaSettings::describe(self.cma, v);
-  }
-  std::string validate() const { return validate_described(*this); }  ///< names field and rule
-};
 
 std::unique_ptr<Engine> make_projections_engine();
 

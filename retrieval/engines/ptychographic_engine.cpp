@@ -66,15 +66,9 @@ class PtychographicEngine final : public Engine {
     return "A. M. Maiden and J. M. Rodenburg, Ultramicroscopy 109, 1256 (2009); M. Lucchini et "
            "al., Opt. Express 23, 29502 (2015)";
   }
-  std::vector<ExtraOption> extra_options() const override {
-    return described_extra_options(PtychographicSettings{});
-  }
-
   void prepare(const RetrievalProblem& problem, const EngineOptions& options) override {
-    const auto ps = read_validated_extras<PtychographicSettings>(options, name());
-    CmaSettings settings = ps.cma;
-    settings.momentum_bands = ps.momentum_bands;
-    cma_.emplace(problem, settings, name());
+    const PtychographicSettings& ps = validated_settings(options.settings.ptychographic, name());
+    cma_.emplace(problem, ps.cma, name());
     beta_o_ = ps.beta_object;
     beta_g_ = ps.beta_gate;
     rng_.seed(options.seed);
@@ -93,7 +87,7 @@ class PtychographicEngine final : public Engine {
         problem.variance.size() != 0
             ? noise_floor_trace_error(problem.intensity, problem.variance, &problem.weight)
             : 0.0;
-    forced_bands_ = ps.momentum_bands > 0;
+    forced_bands_ = ps.cma.momentum_bands > 0;
     order_.resize(cma_->num_delays());
     for (std::size_t j = 0; j < order_.size(); ++j) order_[j] = j;
     const std::size_t nb = cma_->bands().size();

@@ -25,53 +25,16 @@
 // Chosen on the synthetic traces of tests/test_ptychographic.cpp (noise-free and Poisson;
 // beta_gate in [1, 2] and beta_object in [0.1, 0.5] all converge there).
 //
-// Extra options (EngineOptions::extra, name=value): the fields of PtychographicSettings below,
-// described once in its describe() (the step sizes above, the momentum nodes and the CMA
-// settings of retrieval/engines/cma_problem.h).
+// Settings: PtychographicSettings (retrieval/engines/ptychographic_settings.h; carried typed by
+// EngineOptions::settings), described once in its describe() (the step sizes above, the momentum
+// nodes and the CMA settings of retrieval/engines/cma_settings.h).
 
 #include <memory>
 
-#include "retrieval/engines/cma_problem.h"
 #include "retrieval/engines/engine.h"
+#include "retrieval/engines/ptychographic_settings.h"
 
 namespace sw {
-
-/// The engine's typed settings (read from EngineOptions::extra through describe()).
-struct PtychographicSettings {
-  double beta_object = 0.1;  ///< ePIE step size of the XUV (object) update
-  double beta_gate = 1.5;    ///< ePIE step size of the gate (probe) update
-  int momentum_bands = 0;    ///< momentum nodes (CmaSettings::momentum_bands; 0 = auto)
-  /// The CMA settings, with this engine's default data projection (Poisson).
-  CmaSettings cma{.projection = CmaProjection::kPoisson};
-
-  template <class Self, class V>
-  static void describe(Self& self, V& v) {
-    v(OptionSpec{.name = "beta_object",
-                 .help = "ePIE step size of the XUV (object) update",
-                 .min = 1e-6,
-                 .max = 2},
-      self.beta_object);
-    v(OptionSpec{.name = "beta_gate",
-                 .help = "ePIE step size of the gate (probe) update",
-                 .min = 0,
-                 .max = 2},
-      self.beta_gate);
-    v(
-        OptionSpec{
-            .name = "momentum_bands",
-            .help =
-                "momentum nodes of the banded CMA, each a gate with its own central momentum, rows "
-                "interpolated between them (cma_problem.h): 1 = one p0, 0 = auto (node spacing <= "
-                "0.15 "
-                "p0, 2 to 8 nodes; used only when the one-p0 fit stalls above 1.1 x the noise "
-                "floor)",
-            .min = 0,
-            .max = 16},
-        self.momentum_bands);
-    CmaSettings::describe(self.cma, v);
-  }
-  std::string validate() const { return validate_described(*this); }  ///< names field and rule
-};
 
 std::unique_ptr<Engine> make_ptychographic_engine();
 

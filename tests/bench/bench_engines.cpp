@@ -45,15 +45,15 @@ void BM_FftFloor(benchmark::State& state) {
 }
 BENCHMARK(BM_FftFloor)->Unit(benchmark::kMicrosecond);
 
-// `extra` engine options; `warmup` iterations run before timing (the ptychographic engine
+// `settings` of the engines; `warmup` iterations run before timing (the ptychographic engine
 // adds its momentum nodes within its first 100 iterations).
 void iteration(benchmark::State& state, const char* engine, int threads,
-               std::vector<std::pair<std::string, std::string>> extra = {}, int warmup = 0) {
+               EngineSettings settings = {}, int warmup = 0) {
   const auto& p = problem_121x400(false).problem;
   auto e = make_engine(engine);
   EngineOptions o;
   o.threads = threads;
-  o.extra = std::move(extra);
+  o.settings = std::move(settings);
   e->prepare(p, o);
   int k = 1;
   for (; k <= warmup; ++k) e->iterate(k);
@@ -62,14 +62,21 @@ void iteration(benchmark::State& state, const char* engine, int threads,
   state.counters["energies"] = static_cast<double>(p.energy_au.size());
 }
 
+// The ptychographic engine's settings with `nodes` momentum nodes.
+EngineSettings with_nodes(int nodes) {
+  EngineSettings s;
+  s.ptychographic.cma.momentum_bands = nodes;
+  return s;
+}
+
 // One central momentum (the one-p0 stage).
 void BM_PtychographicIteration(benchmark::State& state) {
-  iteration(state, "ptychographic", 1, {{"momentum_bands", "1"}});
+  iteration(state, "ptychographic", 1, with_nodes(1));
 }
 BENCHMARK(BM_PtychographicIteration)->Unit(benchmark::kMicrosecond);
 // With N momentum nodes (after the switch): N FFT pairs per delay plus the interpolation.
 void BM_PtychographicIterationNodes(benchmark::State& state) {
-  iteration(state, "ptychographic", 1, {{"momentum_bands", std::to_string(state.range(0))}}, 101);
+  iteration(state, "ptychographic", 1, with_nodes(static_cast<int>(state.range(0))), 101);
   state.counters["nodes"] = static_cast<double>(state.range(0));
 }
 BENCHMARK(BM_PtychographicIterationNodes)->Arg(3)->Arg(7)->Unit(benchmark::kMicrosecond);

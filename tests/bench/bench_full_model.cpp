@@ -132,7 +132,7 @@ void BM_EpieIteration(benchmark::State& state) {
   auto e = make_engine("ptychographic");
   EngineOptions o;
   o.threads = 1;
-  o.extra = {{"momentum_bands", "1"}};
+  o.settings.ptychographic.cma.momentum_bands = 1;
   e->prepare(p, o);
   int k = 1;
   for (auto _ : state) benchmark::DoNotOptimize(e->iterate(k++));
