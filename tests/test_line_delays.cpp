@@ -255,6 +255,110 @@ TEST_CASE("line delays: representative rows of the validation sweep", "[line_del
   }
 }
 
+TEST_CASE("centre of energy: noiseless generated scans give the inserted delay (no neighbour pull)",
+          "[line_delays][validation]") {
+  // Issue 14 defect (a): neon 2s at +-50 as came out 2-3 % short. Two independent routes on the
+  // generator's noise-free counts (synthetic/generator.h SyntheticScan::clean, the SFA by
+  // direct quadrature; the line's amplitude uses E_X(t - tau - delta), synthetic/scan_config.h):
+  //  1. each line generated alone, its first moment over the whole axis per row, fitted by
+  //     fit_line_moments: the generator's inserted delay and the first-moment model agree to
+  //     0.05 as (measured: -50.004 and +49.996 as), so the bias was not in the physics;
+  //  2. both lines in one scan through the whole method: with bands of 3 rms (the old default)
+  //     the neighbour's tail inside the bands streaks with the neighbour's curve and compressed
+  //     the delay (measured -48.75 as for -50 at strength 0.3); with 1.5 rms it is -49.94.
+  // Required (our choice, a tenth of the old bias's size): within 0.5 as of the inserted delay.
+  for (double d : {-50.0, 50.0}) {
+    synthetic::ScanConfig c = validation::two_line_target("Ne");  // the sweep's scans
+    c.lines[1].relative_strength = 0.3;
+    c.lines[1].delay_as = d;
+    c.noise.poisson = false;
+    const synthetic::SyntheticScan s = synthetic::generate_scan(c, 1);
+    const double scale = 1000.0 / s.clean.maxCoeff();  // 1000 peak counts: the variances
+    const std::vector<double> bg(s.trace.energy_au.size(), 0.0);
+    const double omega = units::wavelength_nm_to_omega_au(800.0);
+    // Route 1: the lines alone.
+    std::vector<LineMoments> lm;
+    for (std::size_t k = 0; k < 2; ++k) {
+      synthetic::ScanConfig ck = c;
+      ck.lines = {c.lines[k]};
+      const Eigen::MatrixXd Ck = synthetic::generate_scan(ck, 1).clean * scale;
+      const double Wk = units::eV_to_au(*s.truth.lines[k].kinetic_energy_eV);
+      LineMoments m;
+      m.name = s.truth.lines[k].name;
+      m.momentum_au = std::sqrt(2.0 * Wk);
+      for (Eigen::Index i = 0; i < Ck.rows(); ++i) {
+        double n = 0, nw = 0, v = 0;
+        for (Eigen::Index j = 0; j < Ck.cols(); ++j) {
+          n += Ck(i, j);
+          nw += Ck(i, j) * s.trace.energy_au[static_cast<std::size_t>(j)];
+        }
+        for (Eigen::Index j = 0; j < Ck.cols(); ++j)
+          v += Ck(i, j) * std::pow(s.trace.energy_au[static_cast<std::size_t>(j)] - nw / n, 2);
+        m.delay_au.push_back(s.trace.delay_au[static_cast<std::size_t>(i)]);
+        m.moment_au.push_back(nw / n);
+        m.variance_au2.push_back(v / (n * n));
+        m.counts += n;
+      }
+      lm.push_back(m);
+    }
+    const LineDelayEstimate alone =
+        fit_line_moments(lm, s.trace.delay_au.front(), s.trace.delay_au.back(), omega);
+    REQUIRE(alone.ok);
+    // Route 2: both lines, the method as retrieve runs it.
+    const LineDelayEstimate both = centre_of_energy_estimate(
+        s.clean * scale, s.trace.energy_au, s.trace.delay_au, bg, s.truth.lines, omega, {});
+    REQUIRE(both.ok);
+    INFO("inserted " << d << " as: lines alone " << alone.delay_as[1] << " as, both lines "
+                     << both.delay_as[1] << " as");
+    CHECK(std::abs(alone.delay_as[1] - d) < 0.05);
+    CHECK(std::abs(both.delay_as[1] - d) < 0.5);
+  }
+}
+
+TEST_CASE("line delays: lines merged by streaking are anchored on the unstreaked edge rows",
+          "[line_delays][validation]") {
+  // Issue 14 defect (b): argon 3s and 3p of equal strength (13.5 eV apart) merge into one peak
+  // of the delay-integrated spectrum; the detection places the pattern between them (photon
+  // energy 64 eV for 70 eV, preprocess's line_pattern_agreement check) and no delay was written.
+  // The edge rows resolve both lines, and their photon energy puts the bands on the lines.
+  // Truth: the generator's inserted delay (synthetic/scan_config.h LineSpec::delay_as).
+  synthetic::ScanConfig c = validation::two_line_target("Ar");  // the sweep's scans
+  c.lines[1].relative_strength = 1.0;
+  c.lines[1].delay_as = 20.0;
+  c.noise.peak_counts = 300;
+  const synthetic::SyntheticScan s = synthetic::generate_scan(c, 7);
+  PreprocessSummary ps;
+  (void)preprocess(s.trace, PreprocessOptions{}, &ps);
+  REQUIRE_FALSE(ps.line_pattern_disagreement.empty());  // the merged-peak case
+  std::vector<double> bg(s.trace.energy_au.size());
+  for (std::size_t j = 0; j < bg.size(); ++j)
+    bg[j] = ps.background.at(units::au_to_eV(s.trace.energy_au[j]));
+  LineDelayOptions o;
+  o.bootstrap = 12;
+  o.reanchor_on_unstreaked_rows = false;  // as before: no delay
+  const LineDelayResult before = measure_line_delays(s.trace, ps.lines, bg, o);
+  for (const LineEntry& e : before.lines) CHECK_FALSE(e.relative_delay_as);
+  o.reanchor_on_unstreaked_rows = true;
+  const LineDelayResult r = measure_line_delays(s.trace, ps.lines, bg, o);
+  REQUIRE(r.done);
+  const LineEntry* l = nullptr;
+  for (const LineEntry& e : r.lines)
+    if (e.name == "3s") l = &e;
+  REQUIRE(l);
+  REQUIRE(l->relative_delay_as);
+  INFO("3s: " << *l->relative_delay_as << " +- " << *l->relative_delay_as_sigma << " as at "
+              << l->kinetic_energy_eV.value_or(0) << " eV, chi2 " << r.reduced_chi2);
+  CHECK(std::abs(*l->relative_delay_as - 20.0) < 3 * *l->relative_delay_as_sigma);
+  CHECK(*l->relative_delay_as_sigma <= 5.0);
+  // 70 eV photons - 29.24 eV (Ar 3s threshold, NIST ASD): 40.76 eV; the edge rows' centroids
+  // are good to about a tenth of the line's 9.6 eV FWHM (common practice for the tolerance).
+  CHECK(std::abs(*l->kinetic_energy_eV - 40.76) < 2.5);
+  bool warned = false;
+  for (const std::string& w : r.warnings)
+    warned = warned || w.find("edge rows") != std::string::npos;
+  CHECK(warned);
+}
+
 TEST_CASE("retrieve command: the lines summary, the figure and --lines", "[line_delays][cli]") {
   // The preset's 2s line is emitted 10 as after 2p (synthetic/presets.cpp).
   test::TempDir d("line_delays_cli");

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <optional>
 #include <sstream>
 
 #include <Eigen/Dense>
@@ -9,6 +10,8 @@
 #include "retrieval/analysis/quality.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/units.h"
+#include "retrieval/physics/gas.h"
+#include "retrieval/preprocess/lines.h"
 #include "retrieval/preprocess/preprocess.h"
 
 namespace sw {
@@ -59,6 +62,68 @@ double sample_sd(const std::vector<double>& v) {
   double s = 0;
   for (double x : v) s += (x - m) * (x - m);
   return std::sqrt(s / static_cast<double>(v.size() - 1));
+}
+
+// The lines found on the unstreaked edge rows alone (the runs of rows at either end of the scan
+// whose centroid stays within `quiet` of the largest centroid shift, as in preprocess's
+// cross-check, lines.h compare_line_patterns), with a dip of 0.1 of the peak separating two
+// lines. Nothing when there are fewer than 3 such rows or the gas is unknown.
+std::optional<LineSearch> unstreaked_lines(const Trace& trace, const std::vector<double>& bg,
+                                           double quiet) {
+  const Eigen::MatrixXd& C = trace.counts;
+  const Eigen::Index nr = C.rows(), ne = C.cols();
+  if (nr < 6 || ne < 8) return std::nullopt;
+  std::vector<double> W_eV(static_cast<std::size_t>(ne));
+  for (Eigen::Index j = 0; j < ne; ++j)
+    W_eV[static_cast<std::size_t>(j)] =
+        units::au_to_eV(trace.energy_au[static_cast<std::size_t>(j)]);
+  std::vector<double> cen(static_cast<std::size_t>(nr), 0.0);
+  std::vector<char> has(static_cast<std::size_t>(nr), 0);
+  double mean = 0, m = 0;
+  for (Eigen::Index i = 0; i < nr; ++i) {
+    double a = 0, b = 0;
+    for (Eigen::Index j = 0; j < ne; ++j) {
+      const double v = C(i, j) - bg[static_cast<std::size_t>(j)];
+      a += v * W_eV[static_cast<std::size_t>(j)];
+      b += v;
+    }
+    if (b > 0) {
+      cen[static_cast<std::size_t>(i)] = a / b;
+      has[static_cast<std::size_t>(i)] = 1;
+      mean += a / b;
+      ++m;
+    }
+  }
+  if (m < 6) return std::nullopt;
+  mean /= m;
+  double big = 0;
+  for (Eigen::Index i = 0; i < nr; ++i)
+    if (has[static_cast<std::size_t>(i)])
+      big = std::max(big, std::abs(cen[static_cast<std::size_t>(i)] - mean));
+  auto is_quiet = [&](Eigen::Index i, Eigen::Index edge) {
+    return has[static_cast<std::size_t>(i)] && has[static_cast<std::size_t>(edge)] &&
+           std::abs(cen[static_cast<std::size_t>(i)] - cen[static_cast<std::size_t>(edge)]) <=
+               quiet * big;
+  };
+  std::vector<Eigen::Index> rows;
+  for (Eigen::Index i = 0; i < nr / 2 && is_quiet(i, 0); ++i) rows.push_back(i);
+  for (Eigen::Index i = nr - 1; i >= nr / 2 && is_quiet(i, nr - 1); --i) rows.push_back(i);
+  if (!(big > 0) || rows.size() < 3) return std::nullopt;
+  std::vector<double> fs(static_cast<std::size_t>(ne), 0.0), fv(fs.size(), 0.0);
+  for (Eigen::Index j = 0; j < ne; ++j) {
+    double c = 0;
+    for (Eigen::Index i : rows) c += C(i, j);
+    fs[static_cast<std::size_t>(j)] =
+        c - static_cast<double>(rows.size()) * bg[static_cast<std::size_t>(j)];
+    fv[static_cast<std::size_t>(j)] = std::max(c, 1.0);
+  }
+  try {
+    LineOptions lo;
+    lo.dip_fraction = lo.pattern_dip_fraction;
+    return find_lines(W_eV, fs, fv, find_gas(trace.meta.gas), trace.meta.lines, lo);
+  } catch (const Error&) {
+    return std::nullopt;
+  }
 }
 
 // Rows of one line: delay index, first moment, variance, counts.
@@ -139,8 +204,16 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
   // line q inside the band is removed by the mirror image of q about its current centre x_q
   // (its far side; common practice for peak deblending, as in retrieval/preprocess/lines.h),
   // skipped where the mirror point is nearer a third line than q.
+  // The band follows its own first moment (re-centred until M = its centre): M is then the
+  // root of F(M) = sum over [M - h, M + h] of (W - M) n(W), an M-estimator, whose Poisson
+  // variance is sum (W_j - M)^2 n_j / D^2 with D = -dF/dM = N - h [rho(M + h) + rho(M - h)]
+  // (Leibniz rule; rho the net counts per unit energy at an edge). An edge held half way to a
+  // neighbour moves by 1/2 per unit of M (lo_move, hi_move = 0.5), one set by the line's own
+  // width by 1. Without the edge terms the variance of a band of +-1.5 rms is understated by
+  // a factor ~3 (Gaussian line: D / N = 1 - 2 c phi(c) / (2 Phi(c) - 1) = 0.55 at c = 1.5).
   auto band = [&](Eigen::Index i, std::size_t k, const std::vector<double>& xc, double lo,
-                  double hi, double* N, double* M, double* var, double* rms) {
+                  double hi, double lo_move, double hi_move, double* N, double* M, double* var,
+                  double* rms) {
     std::vector<double> net, raw, wj;
     std::vector<std::size_t> js;
     for (std::size_t j = 0; j < W.size(); ++j) {
@@ -180,7 +253,25 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
       v += raw[m] * d * d;
       r += net[m] * d * d;
     }
-    *var = v / (s * s);
+    // The line's own density at an edge: the net density minus the neighbours' mirrored tails
+    // there (as for the counts above).
+    auto own_density = [&](double y) {
+      double unused = 0;
+      double d = density(i, y, &unused);
+      for (std::size_t q = 0; q < xc.size(); ++q) {
+        if (q == k) continue;
+        const double yq = 2.0 * xc[q] - y;
+        bool nearer_other = false;
+        for (std::size_t r2 = 0; r2 < xc.size(); ++r2)
+          if (r2 != q && std::abs(yq - xc[r2]) < std::abs(yq - xc[q])) nearer_other = true;
+        if (!nearer_other) d -= density(i, yq, &unused);
+      }
+      return std::max(d, 0.0);
+    };
+    const double D =
+        s - lo_move * (*M - lo) * own_density(lo) - hi_move * (hi - *M) * own_density(hi);
+    const double Dc = std::max(D, 0.2 * s);  // guard: a band edge on a steep flank
+    *var = v / (Dc * Dc);
     *rms = r > 0 ? std::sqrt(r / s) : 0.0;
   };
 
@@ -204,16 +295,20 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
         for (std::size_t k = 0; k < K; ++k) xc[k] = x[k][ii];
         for (std::size_t k = 0; k < K; ++k) {
           double lo = x[k][ii] - h[k], hi = x[k][ii] + h[k];
+          double lo_move = 1.0, hi_move = 1.0;
           for (std::size_t q = 0; q < K; ++q) {
             if (q == k) continue;
             const double mid = 0.5 * (x[q][ii] + x[k][ii]);
-            if (x[q][ii] < x[k][ii])
+            if (x[q][ii] < x[k][ii]) {
+              if (mid > lo) lo_move = 0.5;
               lo = std::max(lo, mid);
-            else
+            } else {
+              if (mid < hi) hi_move = 0.5;
               hi = std::min(hi, mid);
+            }
           }
           double n = 0, m = x[k][ii], v = 0, r = 0;
-          if (hi > lo) band(i, k, xc, lo, hi, &n, &m, &v, &r);
+          if (hi > lo) band(i, k, xc, lo, hi, lo_move, hi_move, &n, &m, &v, &r);
           N[k][ii] = n;
           M[k][ii] = m;
           V[k][ii] = v;
@@ -253,14 +348,42 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
                     " counts in its band; need 8";
       return est;
     }
+  std::vector<LineMoments> lm(K);
+  for (std::size_t k = 0; k < K; ++k) {
+    lm[k].name = lines[k].name;
+    lm[k].momentum_au = p[k];
+    lm[k].counts = rows[k].counts;
+    for (std::size_t n = 0; n < rows[k].row.size(); ++n) {
+      lm[k].delay_au.push_back(tau[static_cast<std::size_t>(rows[k].row[n])]);
+      lm[k].moment_au.push_back(rows[k].M[n]);
+      lm[k].variance_au2.push_back(rows[k].var[n]);
+    }
+  }
+  return fit_line_moments(lm, *std::min_element(tau.begin(), tau.end()),
+                          *std::max_element(tau.begin(), tau.end()), omega, o.max_frequency_factor);
+}
 
-  // Step 2: joint fit. Basis of A_eff on a period 1.5 x the delay span.
-  const double t_lo = *std::min_element(tau.begin(), tau.end()),
-               t_hi = *std::max_element(tau.begin(), tau.end());
+LineDelayEstimate fit_line_moments(const std::vector<LineMoments>& m, double t_lo, double t_hi,
+                                   double omega, double max_frequency_factor) {
+  LineDelayEstimate est;
+  const std::size_t K = m.size();
+  std::vector<double> p(K);
+  for (std::size_t k = 0; k < K; ++k) p[k] = m[k].momentum_au;
+  if (K < 2 || !(t_hi > t_lo) || !(omega > 0)) {
+    est.why_not = "fewer than two lines or an empty delay range";
+    return est;
+  }
+  for (std::size_t k = 0; k < K; ++k)
+    if (m[k].delay_au.size() < 8 || m[k].moment_au.size() != m[k].delay_au.size() ||
+        m[k].variance_au2.size() != m[k].delay_au.size()) {
+      est.why_not = "line " + m[k].name + ": fewer than 8 rows or inconsistent moments";
+      return est;
+    }
+  // Joint fit. Basis of A_eff on a period 1.5 x the delay span.
   const double tc = 0.5 * (t_lo + t_hi);
   const double L = 1.5 * std::max(t_hi - t_lo, units::period_au(omega));
   const int J =
-      std::max(2, static_cast<int>(std::floor(o.max_frequency_factor * omega * L / units::kTwoPi)));
+      std::max(2, static_cast<int>(std::floor(max_frequency_factor * omega * L / units::kTwoPi)));
   const int nA = 2 * J;
   const int iA = 0, ia = nA, ig = nA + static_cast<int>(K),
             id = nA + static_cast<int>(K) + static_cast<int>(K) - 1;
@@ -277,7 +400,7 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
     return A;
   };
   std::size_t nd = 0;
-  for (const Rows& r : rows) nd += r.row.size();
+  for (const LineMoments& r : m) nd += r.delay_au.size();
   auto residuals = [&](const Eigen::VectorXd& P, Eigen::VectorXd* r, Eigen::MatrixXd* Jm) {
     r->resize(static_cast<Eigen::Index>(nd));
     if (Jm) Jm->setZero(static_cast<Eigen::Index>(nd), np);
@@ -285,13 +408,13 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
     for (std::size_t k = 0; k < K; ++k) {
       const double g = k == 0 ? 1.0 : P[ig + static_cast<int>(k) - 1];
       const double dl = k == 0 ? 0.0 : P[id + static_cast<int>(k) - 1];
-      for (std::size_t n = 0; n < rows[k].row.size(); ++n, ++q) {
-        const double u = tau[static_cast<std::size_t>(rows[k].row[n])] + dl;
+      for (std::size_t n = 0; n < m[k].delay_au.size(); ++n, ++q) {
+        const double u = m[k].delay_au[n] + dl;
         double dA = 0;
         const double A = A_of(P, u, &dA);
         const double f = -p[k] * A + 0.5 * A * A;
-        const double s = std::sqrt(rows[k].var[n]);
-        (*r)[q] = (rows[k].M[n] - (P[ia + static_cast<int>(k)] + g * f)) / s;
+        const double s = std::sqrt(m[k].variance_au2[n]);
+        (*r)[q] = (m[k].moment_au[n] - (P[ia + static_cast<int>(k)] + g * f)) / s;
         if (!Jm) continue;
         const double dfdA = -p[k] + A;
         for (int m = 1; m <= J; ++m) {
@@ -311,26 +434,26 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
   Eigen::VectorXd P = Eigen::VectorXd::Zero(np);
   for (std::size_t k = 0; k < K; ++k) {
     double s = 0, sw = 0;
-    for (std::size_t n = 0; n < rows[k].M.size(); ++n) {
-      s += 1.0 / rows[k].var[n];
-      sw += rows[k].M[n] / rows[k].var[n];
+    for (std::size_t n = 0; n < m[k].moment_au.size(); ++n) {
+      s += 1.0 / m[k].variance_au2[n];
+      sw += m[k].moment_au[n] / m[k].variance_au2[n];
     }
     P[ia + static_cast<int>(k)] = sw / s;
     if (k > 0) P[ig + static_cast<int>(k) - 1] = 1.0;
   }
   {
-    const Rows& r = rows[0];
-    Eigen::MatrixXd B(static_cast<Eigen::Index>(r.row.size()), nA);
-    Eigen::VectorXd y(static_cast<Eigen::Index>(r.row.size()));
-    for (std::size_t n = 0; n < r.row.size(); ++n) {
-      const double u = tau[static_cast<std::size_t>(r.row[n])];
-      const double wt = p[0] / std::sqrt(r.var[n]);
+    const LineMoments& r = m[0];
+    Eigen::MatrixXd B(static_cast<Eigen::Index>(r.delay_au.size()), nA);
+    Eigen::VectorXd y(static_cast<Eigen::Index>(r.delay_au.size()));
+    for (std::size_t n = 0; n < r.delay_au.size(); ++n) {
+      const double u = r.delay_au[n];
+      const double wt = p[0] / std::sqrt(r.variance_au2[n]);
       for (int m = 1; m <= J; ++m) {
         const double w = units::kTwoPi * m / L;
         B(static_cast<Eigen::Index>(n), 2 * (m - 1)) = wt * std::cos(w * (u - tc));
         B(static_cast<Eigen::Index>(n), 2 * (m - 1) + 1) = wt * std::sin(w * (u - tc));
       }
-      y[static_cast<Eigen::Index>(n)] = wt * (-(r.M[n] - P[ia]) / p[0]);
+      y[static_cast<Eigen::Index>(n)] = wt * (-(r.moment_au[n] - P[ia]) / p[0]);
     }
     Eigen::MatrixXd N = B.transpose().lazyProduct(B);
     N.diagonal().array() += 1e-9 * N.diagonal().maxCoeff();
@@ -379,21 +502,21 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
     const int a = id + static_cast<int>(k) - 1;
     est.delay_as[k] = units::au_to_as(P[a]);
     est.delay_cov_sigma_as[k] = units::au_to_as(std::sqrt(std::max(Cov(a, a), 0.0) * infl));
-    est.strength[k] = rows[0].counts > 0 ? rows[k].counts / rows[0].counts : 0.0;
+    est.strength[k] = m[0].counts > 0 ? m[k].counts / m[0].counts : 0.0;
   }
   for (std::size_t k = 0; k < K; ++k) {
     LineCurve cv;
-    cv.name = lines[k].name;
+    cv.name = m[k].name;
     cv.shift_as = est.delay_as[k];
     cv.field_free_eV = units::au_to_eV(P[ia + static_cast<int>(k)]);
     cv.gain = k == 0 ? 1.0 : P[ig + static_cast<int>(k) - 1];
     const double dl = k == 0 ? 0.0 : P[id + static_cast<int>(k) - 1];
-    for (std::size_t n = 0; n < rows[k].row.size(); ++n) {
-      const double t = tau[static_cast<std::size_t>(rows[k].row[n])];
+    for (std::size_t n = 0; n < m[k].delay_au.size(); ++n) {
+      const double t = m[k].delay_au[n];
       const double A = A_of(P, t + dl, nullptr);
       cv.delay_fs.push_back(units::au_to_fs(t));
-      cv.centroid_eV.push_back(units::au_to_eV(rows[k].M[n]));
-      cv.sigma_eV.push_back(units::au_to_eV(std::sqrt(rows[k].var[n])));
+      cv.centroid_eV.push_back(units::au_to_eV(m[k].moment_au[n]));
+      cv.sigma_eV.push_back(units::au_to_eV(std::sqrt(m[k].variance_au2[n])));
       cv.model_eV.push_back(
           units::au_to_eV(P[ia + static_cast<int>(k)] + cv.gain * (-p[k] * A + 0.5 * A * A)));
     }
@@ -420,17 +543,76 @@ void check_line_names(const std::vector<LineEntry>& lines, const LineDelayOption
   }
 }
 
-LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEntry>& lines,
+LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEntry>& lines_in,
                                     const std::vector<double>& bg, const LineDelayOptions& o) {
   if (const std::string e = o.validate(); !e.empty()) throw usage_error("line delays: " + e);
   LineDelayResult res;
-  res.lines = lines;
+  res.lines = lines_in;
   if (o.names.size() == 1 && o.names[0] == "none") {
     res.warnings.clear();
     return res;
   }
   const std::string gas = trace.meta.gas;
-  check_line_names(lines, o, gas);
+  check_line_names(lines_in, o, gas);
+  // Lines merged by streaking: two strong lines closer than twice the streaking range form one
+  // peak in the delay-integrated spectrum, and the detection places the pattern between them
+  // (preprocess's check line_pattern_agreement). The line centres then come from the
+  // unstreaked edge rows, where the lines are resolved: when every line there is found and
+  // their photon energy differs from the detection's by more than the pattern tolerance, the
+  // centres are moved to photon - Ip_k (the gas table's or the sidecar's thresholds), with the
+  // strengths measured there for the choice of lines below.
+  std::vector<LineEntry> lines = lines_in;
+  if (o.reanchor_on_unstreaked_rows) {
+    int r0 = -1;
+    for (std::size_t k = 0; k < lines.size(); ++k)
+      if (lines[k].reference && lines[k].kinetic_energy_eV) r0 = static_cast<int>(k);
+    const std::optional<LineSearch> lf =
+        r0 >= 0 ? unstreaked_lines(trace, bg, PreprocessOptions().field_free_shift_fraction)
+                : std::nullopt;
+    if (lf && lf->reference >= 0) {
+      const LineEntry& R = lines[static_cast<std::size_t>(r0)];
+      const double tol =
+          LineOptions().pattern_tolerance_fraction * (lf->line_below_eV + lf->line_above_eV);
+      // Each line of the scan, matched by gas and name, must be found on the edge rows.
+      std::vector<int> match(lines.size(), -1);
+      bool all = true;
+      for (std::size_t k = 0; k < lines.size(); ++k) {
+        for (std::size_t q = 0; q < lf->lines.size(); ++q)
+          if (lf->lines[q].name == lines[k].name && lf->lines[q].gas == lines[k].gas &&
+              lf->lines[q].kinetic_energy_eV)
+            match[k] = static_cast<int>(q);
+        all = all && match[k] >= 0 && lf->found[static_cast<std::size_t>(match[k])];
+      }
+      const LineEntry* ref_edge =
+          all ? &lf->lines[static_cast<std::size_t>(match[static_cast<std::size_t>(r0)])] : nullptr;
+      if (ref_edge && lines.size() >= 2 &&
+          std::abs(*ref_edge->kinetic_energy_eV - *R.kinetic_energy_eV) > tol) {
+        const double ref_strength = ref_edge->relative_strength.value_or(1.0);
+        for (std::size_t k = 0; k < lines.size(); ++k) {
+          const LineEntry& e = lf->lines[static_cast<std::size_t>(match[k])];
+          // On the edge rows: the reference's centroid, the others at photon - Ip_k.
+          lines[k].kinetic_energy_eV = e.kinetic_energy_eV;
+          if (static_cast<int>(k) == r0) continue;
+          // Strengths on the edge rows are relative to their strongest line.
+          if (e.relative_strength && ref_strength > 0) {
+            lines[k].relative_strength = *e.relative_strength / ref_strength;
+            lines[k].relative_strength_sigma = e.relative_strength_sigma.value_or(0) / ref_strength;
+          }
+        }
+        std::ostringstream w;
+        w.precision(4);
+        w << "line delays: the line centres are taken from the unstreaked edge rows (reference "
+             "line "
+          << R.name << " at " << *ref_edge->kinetic_energy_eV << " eV there, "
+          << *R.kinetic_energy_eV << " eV from the delay-integrated spectrum, where the lines "
+          << "merge; photon energy " << lf->photon_energy_eV << " eV)";
+        res.warnings.push_back(w.str());
+        res.extra.push_back({"line_delays.photon_energy_eV_unstreaked_rows", lf->photon_energy_eV});
+        for (std::size_t k = 0; k < lines.size(); ++k)
+          res.lines[k].kinetic_energy_eV = lines[k].kinetic_energy_eV;
+      }
+    }
+  }
   int ref = -1;
   for (std::size_t k = 0; k < lines.size(); ++k)
     if (lines[k].reference) ref = static_cast<int>(k);

@@ -23,9 +23,12 @@
 //      moment `band_iterations` times; the tail of each neighbouring line inside the band is
 //      removed by the neighbour's mirror image about its own centre (its far side; common
 //      practice for peak deblending, as in retrieval/preprocess/lines.h); the row's first moment
-//      and its Poisson variance Var M = sum_j (W_j - M)^2 n_j / N^2 (n_j the raw counts, N the
-//      background-subtracted sum) are kept, rows with fewer than `min_row_counts` in the band
-//      dropped;
+//      and its Poisson variance Var M = sum_j (W_j - M)^2 n_j / D^2 (n_j the raw counts,
+//      D = N - h [rho(M + h) + rho(M - h)] with N the background-subtracted sum and rho the
+//      line's density at the band edges: the band follows M, an M-estimator; docs/theory.md)
+//      are kept, rows with fewer than `min_row_counts` in the band dropped; when the lines
+//      merged in the delay-integrated spectrum (options.reanchor_on_unstreaked_rows) the line
+//      centres come from the unstreaked edge rows;
 //   2. a joint weighted least-squares fit of all lines' first moments with the model above:
 //      A_eff is a band-limited Fourier series on a period 1.5 x the delay span (frequencies up
 //      to `max_frequency_factor` x the IR frequency), shared by all lines; per line a_k, g_k
@@ -79,8 +82,14 @@ struct LineDelayOptions {
   /// delays towards 0 (argon 3s/3p, 13.5 eV apart: -9 % at 4 passes, none at 12 on the
   /// validation sweep, docs/validation.md).
   int band_iterations = 12;
-  /// Half width of a row's band in units of the line's rms width in a row (> 1).
-  double band_half_width_factor = 3.0;
+  /// Half width of a row's band in units of the line's rms width in a row (> 1). Narrow, so
+  /// that a neighbour's tail stays out of the band: with 3 the bands reached half way to the
+  /// neighbour and its tail, which streaks with the neighbour's curve, compressed the delays
+  /// (noiseless scans, docs/validation.md: neon 2s at +-50 as -2.5 % at strength 0.3, argon 3s
+  /// -15 % at strength 1 and x2.1 at 0.1; 1.5: within 2 % in all six). Below ~1.25 the
+  /// re-centring converges too slowly (its contraction factor 2 c phi(c) / (2 Phi(c) - 1) is
+  /// 0.45 at c = 1.5, 0.71 at 1) and keeps a memory of the start.
+  double band_half_width_factor = 1.5;
   /// Rows whose band holds fewer background-subtracted counts are not used (>= 1).
   double min_row_counts = 10.0;
   /// Subtract the Coulomb-laser coupling delays (the corrected delay is always listed beside
@@ -88,6 +97,10 @@ struct LineDelayOptions {
   bool coulomb_laser_correction = true;
   /// Charge of the residual ion seen by the photoelectron (> 0; 1 for neutral targets).
   double ion_charge = 1.0;
+  /// When the delay-integrated detection placed the line pattern between two merged lines and
+  /// the unstreaked edge rows resolve every line at another photon energy, take the line
+  /// centres from the edge rows (measure_line_delays; a warning says so).
+  bool reanchor_on_unstreaked_rows = true;
   /// Fit the analysed lines jointly with the pulse (full model,
   /// retrieval/analysis/multi_line_fit.h): its delays and strengths are then reported, the
   /// centre-of-energy ones beside them.
@@ -138,6 +151,24 @@ struct LineDelayResult {
 /// Coulomb-laser coupling delay t_CLC (a.u.) of a photoelectron of kinetic energy W (a.u.)
 /// streaked by an IR field of period T (a.u.): Z / (2W)^{3/2} [2 - ln(W T)] (header comment).
 double coulomb_laser_delay_au(double kinetic_energy_au, double ir_period_au, double charge = 1.0);
+
+/// First moments of one line's band, per delay row used (step 1 of the header comment).
+struct LineMoments {
+  std::string name;                  ///< for messages and the curve
+  double momentum_au = 0.0;          ///< p_k of the line's field-free centre
+  std::vector<double> delay_au;      ///< delay of each row used
+  std::vector<double> moment_au;     ///< first moment M_k of the band in that row
+  std::vector<double> variance_au2;  ///< its variance (> 0)
+  double counts = 0.0;               ///< band counts summed over every row (for the strength)
+};
+
+/// Step 2 of the header comment alone: the joint weighted fit of the lines' first moments
+/// (index 0 the reference) with A_eff a Fourier series on a period 1.5 x (t_hi - t_lo)
+/// (at least one IR period) up to max_frequency_factor x omega. ok = false (why_not) when a
+/// line has fewer than 8 rows.
+LineDelayEstimate fit_line_moments(const std::vector<LineMoments>& moments, double t_lo_au,
+                                   double t_hi_au, double ir_omega_au,
+                                   double max_frequency_factor = 2.5);
 
 /// One centre-of-energy estimate on counts (delays x energies, raw) minus a background per
 /// energy bin (counts per row). `lines` are the lines to analyse (centres in
