@@ -64,6 +64,22 @@ double sample_sd(const std::vector<double>& v) {
   return std::sqrt(s / static_cast<double>(v.size() - 1));
 }
 
+// Background-subtracted sums of each delay row over the whole axis: counts and counts x W.
+struct RowSums {
+  double counts = 0.0, weighted = 0.0;
+};
+std::vector<RowSums> row_sums(const Eigen::MatrixXd& C, const std::vector<double>& bg,
+                              const std::vector<double>& W) {
+  std::vector<RowSums> out(static_cast<std::size_t>(C.rows()));
+  for (Eigen::Index i = 0; i < C.rows(); ++i)
+    for (Eigen::Index j = 0; j < C.cols(); ++j) {
+      const double n = C(i, j) - bg[static_cast<std::size_t>(j)];
+      out[static_cast<std::size_t>(i)].counts += n;
+      out[static_cast<std::size_t>(i)].weighted += n * W[static_cast<std::size_t>(j)];
+    }
+  return out;
+}
+
 // The lines found on the unstreaked edge rows alone (the runs of rows at either end of the scan
 // whose centroid stays within `quiet` of the largest centroid shift, as in preprocess's
 // cross-check, lines.h compare_line_patterns), with a dip of 0.1 of the peak separating two
@@ -80,17 +96,13 @@ std::optional<LineSearch> unstreaked_lines(const Trace& trace, const std::vector
   std::vector<double> cen(static_cast<std::size_t>(nr), 0.0);
   std::vector<char> has(static_cast<std::size_t>(nr), 0);
   double mean = 0, m = 0;
+  const std::vector<RowSums> sums = row_sums(C, bg, W_eV);
   for (Eigen::Index i = 0; i < nr; ++i) {
-    double a = 0, b = 0;
-    for (Eigen::Index j = 0; j < ne; ++j) {
-      const double v = C(i, j) - bg[static_cast<std::size_t>(j)];
-      a += v * W_eV[static_cast<std::size_t>(j)];
-      b += v;
-    }
-    if (b > 0) {
-      cen[static_cast<std::size_t>(i)] = a / b;
+    const RowSums& r = sums[static_cast<std::size_t>(i)];
+    if (r.counts > 0) {
+      cen[static_cast<std::size_t>(i)] = r.weighted / r.counts;
       has[static_cast<std::size_t>(i)] = 1;
-      mean += a / b;
+      mean += r.weighted / r.counts;
       ++m;
     }
   }
@@ -169,17 +181,13 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
   std::vector<double> rowM(static_cast<std::size_t>(nr), 0.0);
   {
     double mm = 0, nn = 0;
+    const std::vector<RowSums> sums = row_sums(C, bg, W);
     for (Eigen::Index i = 0; i < nr; ++i) {
-      double s = 0, sw = 0;
-      for (Eigen::Index j = 0; j < ne; ++j) {
-        const double n = C(i, j) - bg[static_cast<std::size_t>(j)];
-        s += n;
-        sw += n * W[static_cast<std::size_t>(j)];
-      }
-      rowM[static_cast<std::size_t>(i)] = s > 0 ? sw / s : 0.0;
-      if (s > 0) {
-        mm += sw;
-        nn += s;
+      const RowSums& r = sums[static_cast<std::size_t>(i)];
+      rowM[static_cast<std::size_t>(i)] = r.counts > 0 ? r.weighted / r.counts : 0.0;
+      if (r.counts > 0) {
+        mm += r.weighted;
+        nn += r.counts;
       }
     }
     const double M0 = nn > 0 ? mm / nn : 0.0;
@@ -390,11 +398,11 @@ LineDelayEstimate fit_line_moments(const std::vector<LineMoments>& m, double t_l
   const int np = nA + static_cast<int>(K) + 2 * (static_cast<int>(K) - 1);
   auto A_of = [&](const Eigen::VectorXd& P, double u, double* dA) {
     double A = 0, d = 0;
-    for (int m = 1; m <= J; ++m) {
-      const double w = units::kTwoPi * m / L;
+    for (int h = 1; h <= J; ++h) {
+      const double w = units::kTwoPi * h / L;
       const double cs = std::cos(w * (u - tc)), sn = std::sin(w * (u - tc));
-      A += P[iA + 2 * (m - 1)] * cs + P[iA + 2 * (m - 1) + 1] * sn;
-      d += w * (-P[iA + 2 * (m - 1)] * sn + P[iA + 2 * (m - 1) + 1] * cs);
+      A += P[iA + 2 * (h - 1)] * cs + P[iA + 2 * (h - 1) + 1] * sn;
+      d += w * (-P[iA + 2 * (h - 1)] * sn + P[iA + 2 * (h - 1) + 1] * cs);
     }
     if (dA) *dA = d;
     return A;
@@ -417,10 +425,10 @@ LineDelayEstimate fit_line_moments(const std::vector<LineMoments>& m, double t_l
         (*r)[q] = (m[k].moment_au[n] - (P[ia + static_cast<int>(k)] + g * f)) / s;
         if (!Jm) continue;
         const double dfdA = -p[k] + A;
-        for (int m = 1; m <= J; ++m) {
-          const double w = units::kTwoPi * m / L;
-          (*Jm)(q, iA + 2 * (m - 1)) = -g * dfdA * std::cos(w * (u - tc)) / s;
-          (*Jm)(q, iA + 2 * (m - 1) + 1) = -g * dfdA * std::sin(w * (u - tc)) / s;
+        for (int h = 1; h <= J; ++h) {
+          const double w = units::kTwoPi * h / L;
+          (*Jm)(q, iA + 2 * (h - 1)) = -g * dfdA * std::cos(w * (u - tc)) / s;
+          (*Jm)(q, iA + 2 * (h - 1) + 1) = -g * dfdA * std::sin(w * (u - tc)) / s;
         }
         (*Jm)(q, ia + static_cast<int>(k)) = -1.0 / s;
         if (k > 0) {
@@ -448,10 +456,10 @@ LineDelayEstimate fit_line_moments(const std::vector<LineMoments>& m, double t_l
     for (std::size_t n = 0; n < r.delay_au.size(); ++n) {
       const double u = r.delay_au[n];
       const double wt = p[0] / std::sqrt(r.variance_au2[n]);
-      for (int m = 1; m <= J; ++m) {
-        const double w = units::kTwoPi * m / L;
-        B(static_cast<Eigen::Index>(n), 2 * (m - 1)) = wt * std::cos(w * (u - tc));
-        B(static_cast<Eigen::Index>(n), 2 * (m - 1) + 1) = wt * std::sin(w * (u - tc));
+      for (int h = 1; h <= J; ++h) {
+        const double w = units::kTwoPi * h / L;
+        B(static_cast<Eigen::Index>(n), 2 * (h - 1)) = wt * std::cos(w * (u - tc));
+        B(static_cast<Eigen::Index>(n), 2 * (h - 1) + 1) = wt * std::sin(w * (u - tc));
       }
       y[static_cast<Eigen::Index>(n)] = wt * (-(r.moment_au[n] - P[ia]) / p[0]);
     }
