@@ -15,6 +15,7 @@
 #include "retrieval/preprocess/preprocess.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/check_support.h"
 #include "tests/test_support.h"
 #include "tests/validation/two_line_targets.h"
 
@@ -375,4 +376,17 @@ TEST_CASE("retrieve command: the lines summary, the figure and --lines", "[line_
   CHECK((ok.code == 0 || ok.code == 4));
   CHECK(ok.out.find("lines: Ne 2p (reference); Ne 2s delay ") != std::string::npos);
   CHECK(std::filesystem::exists(d / "ok" + "/line_streaking.png"));
+}
+
+TEST_CASE("line-delay options: defaults validate, a bad value is named", "[line_delays]") {
+  // The bounds of LineDelayOptions' header comments (a bootstrap sigma needs >= 2 replicas,
+  // common practice; a band half width of at most one rms leaves no band).
+  test::check_validation<LineDelayOptions>(
+      {{[](auto& o) { o.bootstrap = 1; }, "bootstrap = 1"},
+       {[](auto& o) { o.band_half_width_factor = 1.0; }, "band_half_width_factor = 1"},
+       {[](auto& o) { o.ion_charge = 0.0; }, "ion_charge = 0"},
+       {[](auto& o) {
+          o.names = {"2s", ""};
+        },
+        "an empty line name"}});
 }

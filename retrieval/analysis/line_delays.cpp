@@ -17,26 +17,10 @@
 namespace sw {
 
 std::string LineDelayOptions::validate() const {
-  std::ostringstream s;
-  if (bootstrap < 2)
-    s << "bootstrap = " << bootstrap << ": must be >= 2";
-  else if (!(max_frequency_factor > 1))
-    s << "max_frequency_factor = " << max_frequency_factor << ": must be > 1";
-  else if (band_iterations < 1)
-    s << "band_iterations = " << band_iterations << ": must be >= 1";
-  else if (!(band_half_width_factor > 1))
-    s << "band_half_width_factor = " << band_half_width_factor << ": must be > 1";
-  else if (!(min_row_counts >= 1))
-    s << "min_row_counts = " << min_row_counts << ": must be >= 1";
-  else if (!(ion_charge > 0))
-    s << "ion_charge = " << ion_charge << ": must be > 0";
-  else
-    for (const std::string& n : names)
-      if (n.empty()) {
-        s << "names: an empty line name; expected names such as 2s, or none";
-        break;
-      }
-  return s.str();
+  if (std::string e = validate_described(*this); !e.empty()) return e;
+  for (const std::string& n : names)
+    if (n.empty()) return "names: an empty line name; expected names such as 2s, or none";
+  return "";
 }
 
 double coulomb_laser_delay_au(double W, double T, double Z) {

@@ -59,9 +59,12 @@
 // which shifts lines of different p differently; the tail of a strong neighbour inside a weak
 // line's band also pulls its moment. Both are measured on the validation sweep.
 
+#include <limits>
 #include <string>
+#include <string_view>
 #include <vector>
 
+#include "retrieval/core/option_spec.h"
 #include "retrieval/core/result.h"
 #include "retrieval/core/trace.h"
 
@@ -105,7 +108,30 @@ struct LineDelayOptions {
   /// retrieval/analysis/multi_line_fit.h): its delays and strengths are then reported, the
   /// centre-of-energy ones beside them.
   bool joint_fit = true;
-  std::string validate() const;  ///< "" when valid; else names field, value and rule
+
+  /// Names and bounds of the numeric fields (retrieval/core/option_spec.h), for validation
+  /// only: not echoed, no flag or config key (retrieve's --lines sets `names`).
+  template <class Self, class V>
+  static void describe(Self& self, V& v) {
+    constexpr double kInf = std::numeric_limits<double>::infinity();
+    auto number = [&](std::string_view name, auto& field, double min, bool min_open) {
+      v(OptionSpec{.name = name,
+                   .min = min,
+                   .min_open = min_open,
+                   .max = kInf,
+                   .echo = false,
+                   .batch = false},
+        field);
+    };
+    number("bootstrap", self.bootstrap, 2, false);
+    number("max_frequency_factor", self.max_frequency_factor, 1, true);
+    number("band_iterations", self.band_iterations, 1, false);
+    number("band_half_width_factor", self.band_half_width_factor, 1, true);
+    number("min_row_counts", self.min_row_counts, 1, false);
+    number("ion_charge", self.ion_charge, 0, true);
+  }
+  /// "" when valid; else names field, value and rule (the bounds above; no empty name).
+  std::string validate() const;
 };
 
 /// One line's first moment versus delay (for the figure): measured points and the fitted curve.
