@@ -129,6 +129,31 @@ TEST_CASE("centre of energy: a hand-built classical scan gives the inserted dela
   }
 }
 
+TEST_CASE("band consistency: on a clean hand-built scan the second band gives the same delay",
+          "[line_delays]") {
+  // Two lines 27 eV (9 rms) apart: no tail of either reaches the other's band at 1.5 or 2 rms,
+  // so both bands measure the same streaking and their difference is noise. The difference is
+  // judged by its paired bootstrap spread (common practice for paired estimates: the spread of
+  // the per-replica differences, not the two sigmas added).
+  LineDelayOptions o;
+  o.bootstrap = 8;
+  o.coulomb_laser_correction = false;
+  const std::vector<double> bg(320, 0.0);
+  const Trace t = classical_scan(95.0, 68.0, 0.4, -40.0, 200.0, 4u);
+  const std::vector<LineEntry> lines = {line("2p", 95.0, true), line("2s", 68.0, false)};
+  CHECK(measure_line_delays(t, lines, bg, o).band_difference_as.empty());  // off by default
+  o.consistency_band_half_width_factor = 2.0;
+  const LineDelayResult r = measure_line_delays(t, lines, bg, o);
+  REQUIRE(r.done);
+  REQUIRE(r.band_difference_as.size() == 2);
+  const double d = r.band_difference_as[1], sd = r.band_difference_sigma_as[1];
+  INFO("d = " << d << " +- " << sd << " as; delay sigma " << *r.lines[1].relative_delay_as_sigma);
+  CHECK(sd > 0.0);
+  CHECK(std::abs(d) < 3 * sd);
+  // The paired spread is below the delay's own sigma (most noise is common to both bands).
+  CHECK(sd < *r.lines[1].relative_delay_as_sigma);
+}
+
 TEST_CASE("line delays: names select lines, none switches off, unknown names are refused",
           "[line_delays]") {
   const Trace t = classical_scan(95.0, 68.0, 0.4, 0.0, 100.0, 5u);
@@ -385,6 +410,8 @@ TEST_CASE("line-delay options: defaults validate, a bad value is named", "[line_
       {{[](auto& o) { o.bootstrap = 1; }, "bootstrap = 1"},
        {[](auto& o) { o.band_half_width_factor = 1.0; }, "band_half_width_factor = 1"},
        {[](auto& o) { o.ion_charge = 0.0; }, "ion_charge = 0"},
+       {[](auto& o) { o.consistency_band_half_width_factor = 0.5; },
+        "consistency_band_half_width_factor = 0.5"},
        {[](auto& o) {
           o.names = {"2s", ""};
         },

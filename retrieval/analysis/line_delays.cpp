@@ -20,6 +20,12 @@ std::string LineDelayOptions::validate() const {
   if (std::string e = validate_described(*this); !e.empty()) return e;
   for (const std::string& n : names)
     if (n.empty()) return "names: an empty line name; expected names such as 2s, or none";
+  if (consistency_band_half_width_factor != 0.0 && !(consistency_band_half_width_factor > 1.0)) {
+    std::ostringstream m;
+    m << "consistency_band_half_width_factor = " << consistency_band_half_width_factor
+      << ": expected 0 (off) or > 1";
+    return m.str();
+  }
   return "";
 }
 
@@ -651,9 +657,17 @@ LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEn
     res.warnings.push_back("line delays (centre of energy) not measured: " + e0.why_not);
     return res;
   }
+  // Band consistency (step 3b): the same estimate with the second band half width.
+  const bool consistency = o.consistency_band_half_width_factor > 0.0;
+  LineDelayOptions o2 = o;
+  o2.band_half_width_factor = o.consistency_band_half_width_factor;
+  LineDelayEstimate e0b;
+  if (consistency)
+    e0b = centre_of_energy_estimate(trace.counts, trace.energy_au, trace.delay_au, bg, sel, omega,
+                                    o2);
   // Bootstrap replicas.
   const std::size_t K = sel.size();
-  std::vector<std::vector<double>> bd(K), bs(K);
+  std::vector<std::vector<double>> bd(K), bs(K), bdiff(K);
   for (int b = 0; b < o.bootstrap; ++b) {
     const Trace rep = poisson_resample(
         trace, o.seed * 2654435761ULL + 17ULL * static_cast<unsigned long long>(b) + 5);
@@ -665,8 +679,25 @@ LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEn
       bs[k].push_back(e.strength[k]);
     }
     ++res.replicas_used;
+    if (consistency && e0b.ok) {
+      // Paired: the same replica with the second band.
+      const LineDelayEstimate eb =
+          centre_of_energy_estimate(rep.counts, rep.energy_au, rep.delay_au, bg, sel, omega, o2);
+      if (eb.ok)
+        for (std::size_t k = 1; k < K; ++k) bdiff[k].push_back(eb.delay_as[k] - e.delay_as[k]);
+    }
   }
   const double tB = res.replicas_used >= 2 ? student_one_sigma_factor(res.replicas_used) : 0.0;
+  if (consistency && e0b.ok) {
+    res.band_difference_as.assign(K, 0.0);
+    res.band_difference_sigma_as.assign(K, 0.0);
+    for (std::size_t k = 1; k < K; ++k) {
+      const int nd = static_cast<int>(bdiff[k].size());
+      res.band_difference_as[k] = e0b.delay_as[k] - e0.delay_as[k];
+      res.band_difference_sigma_as[k] =
+          nd >= 2 ? student_one_sigma_factor(nd) * sample_sd(bdiff[k]) : 0.0;
+    }
+  }
   if (res.replicas_used < 2)
     res.warnings.push_back(
         "line delays: fewer than 2 bootstrap replicas could be analysed; sigma from the fit alone");
@@ -706,6 +737,10 @@ LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEn
     res.extra.push_back({key + ".delay_as_bootstrap_mean", mean(bd[k])});
     res.extra.push_back({key + ".gain", e0.curves[k].gain});
     res.extra.push_back({key + ".rows_used", static_cast<long long>(e0.curves[k].delay_fs.size())});
+    if (!res.band_difference_as.empty()) {
+      res.extra.push_back({key + ".band_difference_as", res.band_difference_as[k]});
+      res.extra.push_back({key + ".band_difference_sigma_as", res.band_difference_sigma_as[k]});
+    }
   }
   res.extra.push_back(
       {"line_delays.method", std::string("centre of energy (joint first-moment fit)")});

@@ -38,6 +38,12 @@
 //      headline numbers, retrieve.h): each replica repeats steps 1-2;
 //      sigma = t_B x standard deviation of the replicas (Student factor as in retrieve.h),
 //      never below the fit's covariance sigma (scaled by the reduced chi^2 when above 1);
+//   3b. band consistency (options.consistency_band_half_width_factor > 0): the delay is measured
+//      once more with that second band half width, on the scan and on the same replicas, and
+//      the difference d = delta(second band) - delta(band) is judged by its own paired spread
+//      sigma_d = t_B x standard deviation of the replicas' differences. A delay that a
+//      neighbour's tail pulls depends on how far the band reaches into that tail; a delay set
+//      by the line's own streaking does not (docs/validation.md "Band consistency");
 //   4. relative strength: the ratio of the band counts summed over the rows (each line's
 //      band follows its streaking, so no line's tail is counted twice), sigma likewise
 //      from the replicas;
@@ -93,6 +99,11 @@ struct LineDelayOptions {
   /// re-centring converges too slowly (its contraction factor 2 c phi(c) / (2 Phi(c) - 1) is
   /// 0.45 at c = 1.5, 0.71 at 1) and keeps a memory of the start.
   double band_half_width_factor = 1.5;
+  /// Second band half width (units of the rms width, as band_half_width_factor) at which the
+  /// delay is measured again on the scan and on the same replicas, for the band-consistency
+  /// difference (step 3b of the header comment); 0 = not measured (0, or > 1). Doubles the
+  /// cost of the analysis.
+  double consistency_band_half_width_factor = 0.0;
   /// Rows whose band holds fewer background-subtracted counts are not used (>= 1).
   double min_row_counts = 10.0;
   /// Subtract the Coulomb-laser coupling delays (the corrected delay is always listed beside
@@ -127,6 +138,7 @@ struct LineDelayOptions {
     number("max_frequency_factor", self.max_frequency_factor, 1, true);
     number("band_iterations", self.band_iterations, 1, false);
     number("band_half_width_factor", self.band_half_width_factor, 1, true);
+    number("consistency_band_half_width_factor", self.consistency_band_half_width_factor, 0, false);
     number("min_row_counts", self.min_row_counts, 1, false);
     number("ion_charge", self.ion_charge, 0, true);
   }
@@ -167,6 +179,10 @@ struct LineDelayResult {
   std::vector<int> analysed;
   std::vector<double> clc_delay_as, clc_correction_as, corrected_delay_as;
   std::vector<double> delay_cov_sigma_as;  ///< the fit's own sigma per analysed line
+  /// Band consistency (step 3b; empty when not measured), per analysed line (0 for the
+  /// reference): d = delay at consistency_band_half_width_factor - delay at
+  /// band_half_width_factor (as), and its paired bootstrap sigma (as; 0 with < 2 replicas).
+  std::vector<double> band_difference_as, band_difference_sigma_as;
   double reduced_chi2 = 0.0;
   int replicas_used = 0;
   std::vector<Param> extra;  ///< "lines.*" records for result.json

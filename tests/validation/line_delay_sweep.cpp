@@ -10,7 +10,13 @@
 // the delay with its sigma; written to OUT/validation_line_delays_joint.csv and _joint_table.md.
 // Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S]
 // [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] [--joint B] [--delays LIST]
-// [--strengths LIST]
+// [--strengths LIST] [--band-check F] [--shard I/N]
+// --band-check F (default 2; 0 = off): the delay is measured again with band half width F x rms
+// on the same replicas (LineDelayOptions::consistency_band_half_width_factor); the difference d
+// and its paired sigma are written (band_difference_as, band_difference_sigma_as).
+// --shard I/N: only the rows whose grid index n (1-based, over the whole grid) has
+// (n - 1) % N == I; the seeds stay those of the whole grid, so N shards run in parallel give
+// the rows of one run (their CSVs concatenated without the repeated header).
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -48,6 +54,7 @@ struct Row {
   std::string method;
   double j_delay = 0, j_sigma = 0, j_strength = 0, j_strength_sigma = 0, j_coe = 0, j_coe_sigma = 0;
   bool j_trusted = false;
+  double band_diff = 0, band_diff_sigma = 0;  // --band-check (0 = not measured)
   double seconds = 0;
 };
 
@@ -65,7 +72,7 @@ int main(int argc, char** argv) {
     std::fprintf(code ? stderr : stdout,
                  "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] "
                  "[--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] "
-                 "[--joint B] [--delays LIST] [--strengths LIST]\n");
+                 "[--joint B] [--delays LIST] [--strengths LIST] [--band-check F] [--shard I/N]\n");
     return code;
   };
   const std::string out = argc > 1 ? argv[1] : "docs";
@@ -80,6 +87,8 @@ int main(int argc, char** argv) {
   std::string only_target;
   int joint_bootstrap = -1;  // -1: no joint rows
   std::vector<double> only_delays, only_strengths;
+  double band_check = 2.0;
+  int shard = 0, shards = 1;
   for (int i = 2; i < argc; ++i) {
     const std::string a = argv[i];
     if (a == "--quick")
@@ -106,6 +115,12 @@ int main(int argc, char** argv) {
     } else if (a == "--strengths" && i + 1 < argc) {
       std::stringstream ds(argv[++i]);
       for (std::string t; std::getline(ds, t, ',');) only_strengths.push_back(std::atof(t.c_str()));
+    } else if (a == "--band-check" && i + 1 < argc) {
+      band_check = std::atof(argv[++i]);
+    } else if (a == "--shard" && i + 1 < argc) {
+      if (std::sscanf(argv[++i], "%d/%d", &shard, &shards) != 2 || shards < 1 || shard < 0 ||
+          shard >= shards)
+        return usage(2);
     } else {
       return usage(2);
     }
@@ -130,6 +145,7 @@ int main(int argc, char** argv) {
       for (double st : strengths)
         for (double d : delays) {
           ++n;
+          if ((n - 1) % shards != shard) continue;
           synthetic::ScanConfig c = validation::two_line_target(tg);
           c.lines[1].delay_as = d;
           c.lines[1].relative_strength = st;
@@ -155,6 +171,7 @@ int main(int argc, char** argv) {
             o.bootstrap = bootstrap;
             o.band_half_width_factor = band_factor;
             o.band_iterations = band_iterations;
+            o.consistency_band_half_width_factor = band_check;
             o.seed = static_cast<unsigned long long>(n);
             const LineDelayResult ld = measure_line_delays(s.trace, ps.lines, bg, o);
             for (const LineEntry& l : ld.lines)
@@ -166,6 +183,10 @@ int main(int argc, char** argv) {
                 r.strength_sigma = l.relative_strength_sigma.value_or(0);
               }
             if (ld.delay_cov_sigma_as.size() >= 2) r.sigma_fit_as = ld.delay_cov_sigma_as[1];
+            if (ld.band_difference_as.size() >= 2) {
+              r.band_diff = ld.band_difference_as[1];
+              r.band_diff_sigma = ld.band_difference_sigma_as[1];
+            }
             if (!r.found) {
               for (const auto& w : ld.warnings) std::fprintf(stderr, "  warning: %s\n", w.c_str());
               for (const auto& l : ps.lines)
@@ -204,10 +225,10 @@ int main(int argc, char** argv) {
           r.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
           std::fprintf(stderr,
                        "%s peak %5.0f strength %.1f delay %+4.0f: %s %7.2f +- %5.2f as (fit %5.2f) "
-                       "strength %.3f/%.3f chi2 %.2f FWHM %.1f/%.1f %.1f s\n",
+                       "strength %.3f/%.3f chi2 %.2f band d %+.2f +- %.2f FWHM %.1f/%.1f %.1f s\n",
                        tg.c_str(), peak, st, d, r.found ? "found" : "MISSED", r.delay_as,
-                       r.sigma_as, r.sigma_fit_as, r.strength, r.truth_strength, r.chi2, r.fwhm,
-                       r.truth_fwhm, r.seconds);
+                       r.sigma_as, r.sigma_fit_as, r.strength, r.truth_strength, r.chi2,
+                       r.band_diff, r.band_diff_sigma, r.fwhm, r.truth_fwhm, r.seconds);
           if (r.joint)
             std::fprintf(stderr,
                          "   joint (%s): %7.2f +- %5.2f as, strength %.3f +- %.3f, centre of "
@@ -223,12 +244,13 @@ int main(int argc, char** argv) {
     csv << "target,peak_counts,strength_inserted,strength_truth,delay_inserted_as,found,delay_as,"
            "delay_sigma_as,"
            "delay_sigma_fit_as,strength,strength_sigma,reduced_chi2,xuv_fwhm_truth_as,xuv_fwhm_as,"
-           "seconds\n";
+           "seconds,band_difference_as,band_difference_sigma_as\n";
     for (const Row& r : rows)
       csv << r.target << "," << r.peak << "," << r.strength_in << "," << r.truth_strength << ","
           << r.inserted_as << "," << (r.found ? 1 : 0) << "," << r.delay_as << "," << r.sigma_as
           << "," << r.sigma_fit_as << "," << r.strength << "," << r.strength_sigma << "," << r.chi2
-          << "," << r.truth_fwhm << "," << r.fwhm << "," << r.seconds << "\n";
+          << "," << r.truth_fwhm << "," << r.fwhm << "," << r.seconds << "," << r.band_diff << ","
+          << r.band_diff_sigma << "\n";
   }
   std::ofstream md(out + "/validation_line_delays_table.md");
   // The quality check line_delay_fit_chi2 (retrieval/analysis/quality.h) that a retrieve result
