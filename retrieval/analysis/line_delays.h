@@ -102,7 +102,9 @@ struct LineDelayOptions {
   /// Second band half width (units of the rms width, as band_half_width_factor) at which the
   /// delay is measured again on the scan and on the same replicas, for the band-consistency
   /// difference (step 3b of the header comment); 0 = not measured (0, or > 1). Doubles the
-  /// cost of the analysis.
+  /// cost of the analysis. Reported only, not a quality check: on the 90-row validation sweep
+  /// no limit on |d| / sigma_d (2 or 1.25 rms) separated the two wrong rows from the 88 right
+  /// ones (docs/validation.md "Band consistency").
   double consistency_band_half_width_factor = 0.0;
   /// Rows whose band holds fewer background-subtracted counts are not used (>= 1).
   double min_row_counts = 10.0;
