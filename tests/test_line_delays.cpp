@@ -66,6 +66,18 @@ Trace classical_scan(double W1_eV, double W2_eV, double strength2, double delay2
   return t;
 }
 
+// The two lines of the hand-built scans (2p reference at 95 eV, 2s at 68 eV, 9 rms apart), a
+// background of zero on their 320 bins, and the options of the centre-of-energy tests on them
+// (8 replicas, no Coulomb-laser correction: the scan has no Coulomb field).
+const std::vector<LineEntry> kHandBuiltLines = {line("2p", 95.0, true), line("2s", 68.0, false)};
+const std::vector<double> kHandBuiltBackground(320, 0.0);
+LineDelayOptions hand_built_options() {
+  LineDelayOptions o;
+  o.bootstrap = 8;
+  o.coulomb_laser_correction = false;
+  return o;
+}
+
 }  // namespace
 
 TEST_CASE("line-delay options: defaults validate, bad fields are named", "[line_delays]") {
@@ -106,14 +118,10 @@ TEST_CASE("centre of energy: a hand-built classical scan gives the inserted dela
           "[line_delays]") {
   // The scan's model is the classical picture itself, so the method must find the inserted
   // delay within its sigma (3 sigma), positive when the second line is emitted later.
-  LineDelayOptions o;
-  o.bootstrap = 8;
-  o.coulomb_laser_correction = false;
-  const std::vector<double> bg(320, 0.0);
+  const LineDelayOptions o = hand_built_options();
   for (double d : {-40.0, 25.0}) {
     const Trace t = classical_scan(95.0, 68.0, 0.4, d, 200.0, d > 0 ? 3u : 4u);
-    const std::vector<LineEntry> lines = {line("2p", 95.0, true), line("2s", 68.0, false)};
-    const LineDelayResult r = measure_line_delays(t, lines, bg, o);
+    const LineDelayResult r = measure_line_delays(t, kHandBuiltLines, kHandBuiltBackground, o);
     REQUIRE(r.done);
     REQUIRE(r.lines[1].relative_delay_as);
     const double got = *r.lines[1].relative_delay_as, sig = *r.lines[1].relative_delay_as_sigma;
@@ -135,12 +143,10 @@ TEST_CASE("band consistency: on a clean hand-built scan the second band gives th
   // so both bands measure the same streaking and their difference is noise. The difference is
   // judged by its paired bootstrap spread (common practice for paired estimates: the spread of
   // the per-replica differences, not the two sigmas added).
-  LineDelayOptions o;
-  o.bootstrap = 8;
-  o.coulomb_laser_correction = false;
-  const std::vector<double> bg(320, 0.0);
+  LineDelayOptions o = hand_built_options();
   const Trace t = classical_scan(95.0, 68.0, 0.4, -40.0, 200.0, 4u);
-  const std::vector<LineEntry> lines = {line("2p", 95.0, true), line("2s", 68.0, false)};
+  const std::vector<LineEntry>& lines = kHandBuiltLines;
+  const std::vector<double>& bg = kHandBuiltBackground;
   CHECK(measure_line_delays(t, lines, bg, o).band_difference_as.empty());  // off by default
   o.consistency_band_half_width_factor = 2.0;
   const LineDelayResult r = measure_line_delays(t, lines, bg, o);
@@ -157,8 +163,8 @@ TEST_CASE("band consistency: on a clean hand-built scan the second band gives th
 TEST_CASE("line delays: names select lines, none switches off, unknown names are refused",
           "[line_delays]") {
   const Trace t = classical_scan(95.0, 68.0, 0.4, 0.0, 100.0, 5u);
-  const std::vector<LineEntry> lines = {line("2p", 95.0, true), line("2s", 68.0, false)};
-  const std::vector<double> bg(320, 0.0);
+  const std::vector<LineEntry>& lines = kHandBuiltLines;
+  const std::vector<double>& bg = kHandBuiltBackground;
   LineDelayOptions o;
   o.bootstrap = 2;
   o.names = {"none"};

@@ -200,6 +200,14 @@ TEST_CASE("engine options from the typed settings' description", "[options]") {
   CHECK(s.ir == "spline");
   CHECK(s.chebyshev_nodes == FullModelSettings{}.chebyshev_nodes);
   CHECK_THROWS_WITH(full_model({{"lbfgs_memory", "7.5"}}), Catch::Contains("lbfgs_memory = '7.5'"));
+  // An integer beyond the field's type is refused, not wrapped into its bounds (2^32 + 7 would
+  // become 7 in a 32-bit int).
+  CHECK_THROWS_WITH(full_model({{"lbfgs_memory", "4294967303"}}),
+                    Catch::Contains("lbfgs_memory = '4294967303'"));
+  int wrapped = 0;
+  CHECK(set_option_from_text(OptionSpec{.name = "n"}, "4294967303", &wrapped) ==
+        "expected an integer");
+  CHECK(wrapped == 0);
   // The open upper bound of support_threshold: 1 passes the listed (closed) range but not the
   // typed rule.
   CHECK_THROWS_WITH(full_model({{"support_threshold", "1"}}),

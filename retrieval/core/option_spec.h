@@ -182,6 +182,11 @@ std::string set_option_from_text(const OptionSpec& s, const std::string& text, T
       const long long v = std::stoll(text, &used);
       if (used != text.size()) return "expected an integer";
       if (std::is_unsigned_v<T> && v < 0) return "expected an integer >= 0";
+      // A value outside the field's type would wrap in the cast and then pass its bounds.
+      if constexpr (!std::is_unsigned_v<T> && sizeof(T) < sizeof(long long))
+        if (v < static_cast<long long>(std::numeric_limits<T>::min()) ||
+            v > static_cast<long long>(std::numeric_limits<T>::max()))
+          return "expected an integer";
       *out = static_cast<T>(v);
     } catch (...) {
       return "expected an integer";

@@ -1,9 +1,7 @@
 #include "retrieval/engines/engine_options.h"
 
 #include <algorithm>
-#include <cerrno>
 #include <cmath>
-#include <cstdlib>
 #include <sstream>
 #include <type_traits>
 
@@ -34,26 +32,6 @@ void for_each_engine_own_first(Settings& s, const std::string& engine, F&& f) {
     for_each_engine(s, engine, [&](const std::string& owner, auto& member) {
       if (owns(engine, owner) == own) f(owner, member);
     });
-}
-
-bool parse_number(const std::string& text, double* out) {
-  if (text.empty()) return false;
-  char* end = nullptr;
-  errno = 0;
-  const double v = std::strtod(text.c_str(), &end);
-  if (errno != 0 || end != text.c_str() + text.size() || !std::isfinite(v)) return false;
-  *out = v;
-  return true;
-}
-
-bool parse_integer(const std::string& text, long long* out) {
-  if (text.empty()) return false;
-  char* end = nullptr;
-  errno = 0;
-  const long long v = std::strtoll(text.c_str(), &end, 10);
-  if (errno != 0 || end != text.c_str() + text.size()) return false;
-  *out = v;
-  return true;
 }
 
 // The closed range of a numeric description, "[lo, hi]" (an open end listed as its closed end,
@@ -92,14 +70,14 @@ bool text_suits(const OptionSpec& s, const std::string& text) {
   if constexpr (kIsChoice<T>) {
     return s.choices.empty() ? !text.empty() : detail::is_choice(s.choices, text);
   } else if constexpr (std::is_same_v<T, bool>) {
-    return text == "true" || text == "1" || text == "false" || text == "0";
-  } else if constexpr (std::is_integral_v<T>) {
-    long long x = 0;
-    return parse_integer(text, &x) && static_cast<double>(x) >= s.min &&
-           static_cast<double>(x) <= s.max;
+    bool b = false;
+    return set_option_from_text(s, text, &b).empty();
   } else {
-    double x = 0;
-    return parse_number(text, &x) && x >= s.min && x <= s.max;
+    // Read as the widest type of its kind, so the bounds see the value as written.
+    std::conditional_t<std::is_integral_v<T>, long long, double> x{};
+    if (!set_option_from_text(s, text, &x).empty()) return false;
+    const double v = static_cast<double>(x);
+    return std::isfinite(v) && v >= s.min && v <= s.max;
   }
 }
 

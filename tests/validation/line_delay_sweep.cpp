@@ -116,7 +116,14 @@ int main(int argc, char** argv) {
       std::stringstream ds(argv[++i]);
       for (std::string t; std::getline(ds, t, ',');) only_strengths.push_back(std::atof(t.c_str()));
     } else if (a == "--band-check" && i + 1 < argc) {
-      band_check = std::atof(argv[++i]);
+      char* end = nullptr;
+      const char* text = argv[++i];
+      band_check = std::strtod(text, &end);
+      if (end == text || *end != '\0' || !(band_check == 0 || band_check > 1)) {
+        std::fprintf(stderr,
+                     "line_delay_sweep: --band-check %s: expected 0 (off) or a number > 1\n", text);
+        return 2;
+      }
     } else if (a == "--shard" && i + 1 < argc) {
       if (std::sscanf(argv[++i], "%d/%d", &shard, &shards) != 2 || shards < 1 || shard < 0 ||
           shard >= shards)
