@@ -2,11 +2,13 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <optional>
 #include <sstream>
 
 #include <Eigen/Dense>
 
+#include "retrieval/analysis/line_profiles.h"
 #include "retrieval/analysis/quality.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/units.h"
@@ -339,6 +341,54 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
       }
     }
   }
+  // Per-row Gaussian fits of every line (retrieval/analysis/line_profiles.h), started from the
+  // bands' converged centres: their widths give the lines' separation in rms widths (reported:
+  // the quality check line_separation_widths), and with row_estimator = "profile" their
+  // centres replace the band moments of step 1.
+  {
+    const bool profile = o.row_estimator == "profile";
+    std::vector<double> bin_width(W.size()), s0(K), row(W.size());
+    std::vector<std::vector<double>> widths(K);
+    for (std::size_t j = 0; j < W.size(); ++j) bin_width[j] = edge[j + 1] - edge[j];
+    for (std::size_t k = 0; k < K; ++k) {
+      s0[k] = h[k] / o.band_half_width_factor;
+      if (profile) rows[k] = Rows{};
+    }
+    for (Eigen::Index i = 0; i < nr; ++i) {
+      const std::size_t ii = static_cast<std::size_t>(i);
+      for (Eigen::Index j = 0; j < ne; ++j) row[static_cast<std::size_t>(j)] = C(i, j);
+      std::vector<double> xs(K);
+      for (std::size_t k = 0; k < K; ++k) xs[k] = x[k][ii];
+      const RowProfileFit f = fit_row_profiles(row.data(), W, bin_width, bg, xs, s0);
+      if (!f.ok) continue;
+      for (std::size_t k = 0; k < K; ++k) {
+        if (f.counts[k] >= o.min_row_counts) widths[k].push_back(f.width[k]);
+        if (!profile) continue;
+        rows[k].counts += f.counts[k];
+        if (f.counts[k] >= o.min_row_counts) {
+          rows[k].row.push_back(static_cast<int>(i));
+          rows[k].M.push_back(f.centre[k]);
+          rows[k].var.push_back(f.centre_var[k]);
+        }
+      }
+    }
+    // Smallest distance of two lines' field-free centres over the larger of their median
+    // widths in a row (0 when a line has no fitted row).
+    std::vector<double> width(K, 0.0);
+    for (std::size_t k = 0; k < K; ++k)
+      if (!widths[k].empty()) {
+        auto mid = widths[k].begin() + static_cast<long>(widths[k].size() / 2);
+        std::nth_element(widths[k].begin(), mid, widths[k].end());
+        width[k] = *mid;
+      }
+    double sep = std::numeric_limits<double>::infinity();
+    for (std::size_t k = 0; k < K; ++k)
+      for (std::size_t q = k + 1; q < K; ++q)
+        sep = std::min(sep, width[k] > 0 && width[q] > 0
+                                ? std::abs(c[k] - c[q]) / std::max(width[k], width[q])
+                                : 0.0);
+    est.separation_widths = std::isfinite(sep) ? sep : 0.0;
+  }
   for (std::size_t k = 0; k < K; ++k)
     if (rows[k].row.size() < 8) {
       est.why_not = "line " + lines[k].name + " has " + std::to_string(rows[k].row.size()) +
@@ -357,8 +407,11 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
       lm[k].variance_au2.push_back(rows[k].var[n]);
     }
   }
-  return fit_line_moments(lm, *std::min_element(tau.begin(), tau.end()),
-                          *std::max_element(tau.begin(), tau.end()), omega, o.max_frequency_factor);
+  LineDelayEstimate fitted =
+      fit_line_moments(lm, *std::min_element(tau.begin(), tau.end()),
+                       *std::max_element(tau.begin(), tau.end()), omega, o.max_frequency_factor);
+  fitted.separation_widths = est.separation_widths;
+  return fitted;
 }
 
 LineDelayEstimate fit_line_moments(const std::vector<LineMoments>& m, double t_lo, double t_hi,
@@ -707,6 +760,7 @@ LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEn
       o.coulomb_laser_correction ? coulomb_laser_delay_au(Wref, T, o.ion_charge) : 0.0;
   res.curves = e0.curves;
   res.reduced_chi2 = e0.reduced_chi2;
+  res.separation_widths = e0.separation_widths;
   for (std::size_t k = 0; k < K; ++k) {
     const std::size_t li = static_cast<std::size_t>(use[k]);
     LineEntry& l = res.lines[li];
@@ -745,6 +799,7 @@ LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEn
   res.extra.push_back(
       {"line_delays.method", std::string("centre of energy (joint first-moment fit)")});
   res.extra.push_back({"line_delays.reduced_chi2", e0.reduced_chi2});
+  res.extra.push_back({"line_delays.separation_widths", e0.separation_widths});
   res.extra.push_back(
       {"line_delays.bootstrap_replicas", static_cast<long long>(res.replicas_used)});
   res.extra.push_back(

@@ -106,6 +106,12 @@ struct LineDelayOptions {
   /// no limit on |d| / sigma_d (2 or 1.25 rms) separated the two wrong rows from the 88 right
   /// ones (docs/validation.md "Band consistency").
   double consistency_band_half_width_factor = 0.0;
+  /// How step 1 measures a line's position in a delay row: "band" (the band first moments
+  /// above) or "profile" (a Poisson maximum-likelihood fit of every line as a Gaussian per row,
+  /// retrieval/analysis/line_profiles.h, started from the bands' result: the whole profile
+  /// informs the centre and the neighbours' tails are modelled; docs/validation.md "Row
+  /// estimator").
+  std::string row_estimator = "band";
   /// Rows whose band holds fewer background-subtracted counts are not used (>= 1).
   double min_row_counts = 10.0;
   /// Subtract the Coulomb-laser coupling delays (the corrected delay is always listed beside
@@ -143,6 +149,8 @@ struct LineDelayOptions {
     number("consistency_band_half_width_factor", self.consistency_band_half_width_factor, 0, false);
     number("min_row_counts", self.min_row_counts, 1, false);
     number("ion_charge", self.ion_charge, 0, true);
+    v(OptionSpec{.name = "row_estimator", .choices = "band|profile", .echo = false, .batch = false},
+      self.row_estimator);
   }
   /// "" when valid; else names field, value and rule (the bounds above; no empty name).
   std::string validate() const;
@@ -166,6 +174,10 @@ struct LineDelayEstimate {
   std::vector<double> delay_cov_sigma_as;  ///< fit-covariance sigma of delta_k
   std::vector<double> strength;            ///< band counts over the reference's
   double reduced_chi2 = 0.0;
+  /// Smallest distance of two analysed lines' field-free centres in units of the larger of
+  /// their rms widths in a delay row (median of the per-row Gaussian fits,
+  /// retrieval/analysis/line_profiles.h); 0 when not measured.
+  double separation_widths = 0.0;
   bool ok = false;                ///< false when a line had too few usable rows
   std::string why_not;            ///< reason when !ok
   std::vector<LineCurve> curves;  ///< analysed lines, reference first
@@ -186,6 +198,7 @@ struct LineDelayResult {
   /// band_half_width_factor (as), and its paired bootstrap sigma (as; 0 with < 2 replicas).
   std::vector<double> band_difference_as, band_difference_sigma_as;
   double reduced_chi2 = 0.0;
+  double separation_widths = 0.0;  ///< LineDelayEstimate::separation_widths of the scan
   int replicas_used = 0;
   std::vector<Param> extra;  ///< "lines.*" records for result.json
   std::vector<std::string> warnings;
