@@ -109,6 +109,17 @@ TEST_CASE("a check fails exactly when its limit is crossed", "[quality]") {
   const QualitySection q7 = checked(e);
   CHECK_FALSE(q7.trusted);
   CHECK(q7.failed == std::vector<std::string>{"line_delay_fit_chi2"});
+
+  // The lines' separation in rms widths: neon 2s/2p (5.4) passes, argon 3s/3p (3.25), whose
+  // centre-of-energy delay moved by 10-18 as under a chirp (docs/validation.md "Line shape"),
+  // fails and guards the result.
+  e = good_evidence();
+  e.line_separation_widths = 5.4;
+  CHECK(checked(e).trusted);
+  e.line_separation_widths = 3.25;
+  const QualitySection q8 = checked(e);
+  CHECK_FALSE(q8.trusted);
+  CHECK(q8.failed == std::vector<std::string>{"line_separation_widths"});
 }
 
 TEST_CASE("delay dependence: a constant scan shows none, a streaked one is significant",

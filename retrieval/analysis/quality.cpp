@@ -167,6 +167,12 @@ void add_retrieval_checks(QualitySection& q, const RetrievalEvidence& e, const Q
           "reduced chi^2 of the centre-of-energy fit of the lines' streaking curves: above the "
           "limit a line's moments are not one shifted copy of the reference's (a neighbour's "
           "tail inside its band), and its relative delay is biased beyond its sigma");
+  if (e.line_separation_widths)
+    q.add("line_separation_widths", *e.line_separation_widths, o.min_line_separation_widths, ">=",
+          "smallest distance of two analysed lines' field-free centres in their rms widths in a "
+          "delay row: closer lines' tails overlap, and the centre-of-energy delay then depends on "
+          "the pulse's spectral phase (a chirp moved argon 3s/3p by 10-18 as); the joint fit of "
+          "the lines models it");
   if (e.unseen_line_strength)
     q.add("unseen_line_strength", *e.unseen_line_strength, o.max_unseen_line_strength, "<=",
           "upper limit (2 sigma) of the relative strength of " + e.unseen_line +

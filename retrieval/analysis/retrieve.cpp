@@ -646,8 +646,10 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     e.field_free_rows = static_cast<double>(s.field_free_rows);
     // Guards the lines' delays where the centre-of-energy method gives them (the joint fit,
     // when it ran, models the neighbour's tail and reports its own).
-    if (!lines_step.used && lines_step.centre_of_energy && lines_step.centre_of_energy->done)
+    if (!lines_step.used && lines_step.centre_of_energy && lines_step.centre_of_energy->done) {
       e.line_delay_reduced_chi2 = lines_step.centre_of_energy->reduced_chi2;
+      e.line_separation_widths = lines_step.centre_of_energy->separation_widths;
+    }
     if (s.line_pattern_checked) {
       e.line_pattern_agreement = s.line_pattern_disagreement.empty() ? 1.0 : 0.0;
       e.line_pattern_detail = s.line_pattern_disagreement;
