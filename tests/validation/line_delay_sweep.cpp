@@ -10,13 +10,19 @@
 // the delay with its sigma; written to OUT/validation_line_delays_joint.csv and _joint_table.md.
 // Usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] [--strength S]
 // [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] [--joint B] [--delays LIST]
-// [--strengths LIST] [--band-check F] [--shard I/N]
+// [--strengths LIST] [--band-check F] [--shard I/N] [--row-estimator band|profile]
 // --band-check F (default 2; 0 = off): the delay is measured again with band half width F x rms
 // on the same replicas (LineDelayOptions::consistency_band_half_width_factor); the difference d
 // and its paired sigma are written (band_difference_as, band_difference_sigma_as).
 // --shard I/N: only the rows whose grid index n (1-based, over the whole grid) has
 // (n - 1) % N == I; the seeds stay those of the whole grid, so N shards run in parallel give
 // the rows of one run (their CSVs concatenated without the repeated header).
+// --row-estimator: LineDelayOptions::row_estimator (default band).
+// --shape S: the XUV and dipole of every scan made unlike the Gaussian targets, to test the
+// row estimators' shape assumptions: gdd (GDD +8000 as^2), tod (TOD +2e5 as^3), dipole
+// (hydrogenic dipole), satellites (bursts at -+T/2 with 10 % of the main burst's intensity:
+// spectral fringes), skewed (a tabulated spectrum, the Gaussian times 1 + 0.7 tanh((E - E0) / w),
+// w = half the FWHM: its peak moved and one flank steeper).
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -55,6 +61,7 @@ struct Row {
   double j_delay = 0, j_sigma = 0, j_strength = 0, j_strength_sigma = 0, j_coe = 0, j_coe_sigma = 0;
   bool j_trusted = false;
   double band_diff = 0, band_diff_sigma = 0;  // --band-check (0 = not measured)
+  double separation = 0;                      // LineDelayResult::separation_widths
   double seconds = 0;
 };
 
@@ -65,6 +72,40 @@ std::string f(double v, int prec = 4) {
   return s.str();
 }
 
+// --shape (header comment).
+void apply_shape(const std::string& shape, synthetic::ScanConfig& c) {
+  GaussianXuvPulse& g = c.xuv.gaussian;
+  if (shape == "gdd") g.gdd_as2 = 8000.0;
+  if (shape == "tod") g.tod_as3 = 2e5;
+  if (shape == "dipole") c.dipole = DipoleKind::kHydrogenic;
+  if (shape == "satellites") {
+    c.xuv.kind = synthetic::XuvKind::kSatellites;
+    c.xuv.satellites.burst = g;
+    c.xuv.satellites.driver_wavelength_nm = c.ir.pulse.wavelength_nm;
+    c.xuv.satellites.satellite_intensity_ratio_before = 0.1;
+    c.xuv.satellites.satellite_intensity_ratio_after = 0.1;
+  }
+  if (shape == "skewed") {
+    // Intensity FWHM of the transform-limited Gaussian: 4 ln 2 hbar / tau (hbar = 658.2 eV as).
+    const double fwhm_eV = 4.0 * std::log(2.0) * 658.2119569 / g.transform_limited_fwhm_as;
+    const double w = 0.5 * fwhm_eV;
+    synthetic::TabulatedSpectrum& t = c.xuv.tabulated;
+    t.carrier_eV = g.center_eV;
+    t.photon_energy_eV.clear();
+    t.spectral_intensity.clear();
+    t.spectral_phase_rad.clear();
+    for (int i = -200; i <= 200; ++i) {
+      const double e = g.center_eV + 0.02 * fwhm_eV * i;
+      const double x = (e - g.center_eV) / fwhm_eV;
+      t.photon_energy_eV.push_back(e);
+      t.spectral_intensity.push_back(std::exp(-4.0 * std::log(2.0) * x * x) *
+                                     (1.0 + 0.7 * std::tanh((e - g.center_eV) / w)));
+      t.spectral_phase_rad.push_back(0.0);
+    }
+    c.xuv.kind = synthetic::XuvKind::kTabulated;
+  }
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -72,7 +113,8 @@ int main(int argc, char** argv) {
     std::fprintf(code ? stderr : stdout,
                  "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] "
                  "[--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] "
-                 "[--joint B] [--delays LIST] [--strengths LIST] [--band-check F] [--shard I/N]\n");
+                 "[--joint B] [--delays LIST] [--strengths LIST] [--band-check F] [--shard I/N] "
+                 "[--row-estimator band|profile] [--shape gdd|tod|dipole|satellites|skewed]\n");
     return code;
   };
   const std::string out = argc > 1 ? argv[1] : "docs";
@@ -89,6 +131,8 @@ int main(int argc, char** argv) {
   std::vector<double> only_delays, only_strengths;
   double band_check = 2.0;
   int shard = 0, shards = 1;
+  std::string row_estimator = LineDelayOptions().row_estimator;
+  std::string shape;  // empty: the targets as they are
   for (int i = 2; i < argc; ++i) {
     const std::string a = argv[i];
     if (a == "--quick")
@@ -124,6 +168,14 @@ int main(int argc, char** argv) {
                      "line_delay_sweep: --band-check %s: expected 0 (off) or a number > 1\n", text);
         return 2;
       }
+    } else if (a == "--row-estimator" && i + 1 < argc) {
+      row_estimator = argv[++i];
+      if (row_estimator != "band" && row_estimator != "profile") return usage(2);
+    } else if (a == "--shape" && i + 1 < argc) {
+      shape = argv[++i];
+      if (shape != "gdd" && shape != "tod" && shape != "dipole" && shape != "satellites" &&
+          shape != "skewed")
+        return usage(2);
     } else if (a == "--shard" && i + 1 < argc) {
       if (std::sscanf(argv[++i], "%d/%d", &shard, &shards) != 2 || shards < 1 || shard < 0 ||
           shard >= shards)
@@ -157,6 +209,7 @@ int main(int argc, char** argv) {
           c.lines[1].delay_as = d;
           c.lines[1].relative_strength = st;
           c.noise.peak_counts = peak;
+          apply_shape(shape, c);
           const auto t0 = std::chrono::steady_clock::now();
           const synthetic::SyntheticScan s =
               synthetic::generate_scan(c, 7000 + static_cast<unsigned long long>(n));
@@ -179,6 +232,7 @@ int main(int argc, char** argv) {
             o.band_half_width_factor = band_factor;
             o.band_iterations = band_iterations;
             o.consistency_band_half_width_factor = band_check;
+            o.row_estimator = row_estimator;
             o.seed = static_cast<unsigned long long>(n);
             const LineDelayResult ld = measure_line_delays(s.trace, ps.lines, bg, o);
             for (const LineEntry& l : ld.lines)
@@ -203,6 +257,7 @@ int main(int argc, char** argv) {
                     l.relative_strength_sigma.value_or(-1), l.reference ? " (reference)" : "");
             }
             r.chi2 = ld.reduced_chi2;
+            r.separation = ld.separation_widths;
             if (retrieve_every > 0 && (n - 1) % retrieve_every == 0) {
               RetrieveOptions ro;
               ro.bootstrap = 0;
@@ -230,12 +285,13 @@ int main(int argc, char** argv) {
             std::fprintf(stderr, "  failed: %s\n", e.what());
           }
           r.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-          std::fprintf(stderr,
-                       "%s peak %5.0f strength %.1f delay %+4.0f: %s %7.2f +- %5.2f as (fit %5.2f) "
-                       "strength %.3f/%.3f chi2 %.2f band d %+.2f +- %.2f FWHM %.1f/%.1f %.1f s\n",
-                       tg.c_str(), peak, st, d, r.found ? "found" : "MISSED", r.delay_as,
-                       r.sigma_as, r.sigma_fit_as, r.strength, r.truth_strength, r.chi2,
-                       r.band_diff, r.band_diff_sigma, r.fwhm, r.truth_fwhm, r.seconds);
+          std::fprintf(
+              stderr,
+              "%s peak %5.0f strength %.1f delay %+4.0f: %s %7.2f +- %5.2f as (fit %5.2f) "
+              "strength %.3f/%.3f chi2 %.2f sep %.2f band d %+.2f +- %.2f FWHM %.1f/%.1f %.1f s\n",
+              tg.c_str(), peak, st, d, r.found ? "found" : "MISSED", r.delay_as, r.sigma_as,
+              r.sigma_fit_as, r.strength, r.truth_strength, r.chi2, r.separation, r.band_diff,
+              r.band_diff_sigma, r.fwhm, r.truth_fwhm, r.seconds);
           if (r.joint)
             std::fprintf(stderr,
                          "   joint (%s): %7.2f +- %5.2f as, strength %.3f +- %.3f, centre of "
@@ -251,20 +307,23 @@ int main(int argc, char** argv) {
     csv << "target,peak_counts,strength_inserted,strength_truth,delay_inserted_as,found,delay_as,"
            "delay_sigma_as,"
            "delay_sigma_fit_as,strength,strength_sigma,reduced_chi2,xuv_fwhm_truth_as,xuv_fwhm_as,"
-           "seconds,band_difference_as,band_difference_sigma_as\n";
+           "seconds,band_difference_as,band_difference_sigma_as,separation_widths\n";
     for (const Row& r : rows)
       csv << r.target << "," << r.peak << "," << r.strength_in << "," << r.truth_strength << ","
           << r.inserted_as << "," << (r.found ? 1 : 0) << "," << r.delay_as << "," << r.sigma_as
           << "," << r.sigma_fit_as << "," << r.strength << "," << r.strength_sigma << "," << r.chi2
           << "," << r.truth_fwhm << "," << r.fwhm << "," << r.seconds << "," << r.band_diff << ","
-          << r.band_diff_sigma << "\n";
+          << r.band_diff_sigma << "," << r.separation << "\n";
   }
   std::ofstream md(out + "/validation_line_delays_table.md");
-  // The quality check line_delay_fit_chi2 (retrieval/analysis/quality.h) that a retrieve result
-  // applies to its centre-of-energy delays.
+  // The quality checks line_delay_fit_chi2 and line_separation_widths
+  // (retrieval/analysis/quality.h) that a retrieve result applies to its centre-of-energy delays.
   const double chi2_limit = QualityOptions().max_line_delay_chi2;
-  auto passes = [&](const Row& r) { return r.found && r.chi2 <= chi2_limit; };
-  md << "| target | peak counts | strength | rows | delay written | passes line_delay_fit_chi2 | "
+  const double separation_limit = QualityOptions().min_line_separation_widths;
+  auto passes = [&](const Row& r) {
+    return r.found && r.chi2 <= chi2_limit && r.separation >= separation_limit;
+  };
+  md << "| target | peak counts | strength | rows | delay written | passes the quality checks | "
         "delay within 3 sigma | median sigma (as) | max "
         "sigma (as) | "
         "mean (measured - inserted) (as) | strength within 3 sigma | XUV FWHM within 5 % "
@@ -316,7 +375,8 @@ int main(int argc, char** argv) {
            << " |\n";
       }
   md << "\nAll rows: a delay written in " << written << "/" << total << "; passing "
-     << "line_delay_fit_chi2 (reduced chi^2 <= " << chi2_limit << ") " << passed
+     << "line_delay_fit_chi2 (reduced chi^2 <= " << chi2_limit
+     << ") and line_separation_widths (>= " << separation_limit << ") " << passed
      << ", of which within 3 sigma " << within_passed << " ("
      << f(100.0 * within_passed / std::max(passed, 1), 3) << " %); delay within 3 sigma in "
      << within << "/" << total << " (" << f(100.0 * within / std::max(total, 1), 3)
@@ -324,7 +384,7 @@ int main(int argc, char** argv) {
      << " rows at >= 300 peak counts; XUV FWHM within 5 % in " << fw_ok << "/" << fw_n
      << " retrieved rows.\n";
   std::fprintf(stderr,
-               "delay written: %d/%d; passing line_delay_fit_chi2: %d, within 3 sigma %d; delay "
+               "delay written: %d/%d; passing the quality checks: %d, within 3 sigma %d; delay "
                "within 3 sigma: %d/%d; sigma <= 5 as at >= 300 counts: %d/%d; FWHM within 5 "
                "%%: %d/%d\n",
                written, total, passed, within_passed, within, total, sig_ok, sig_n, fw_ok, fw_n);
