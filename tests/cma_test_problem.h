@@ -23,11 +23,11 @@
 namespace sw::testing {
 
 struct CaseSpec {
-  double tl_fwhm_as = 150.0;
-  double gdd_as2 = 0.0;
-  double center_eV = 95.0;
-  double ir_intensity_Wcm2 = 5e12;
-  double ir_fwhm_fs = 5.0;
+  /// The XUV pulse: 95 eV photons, 150 as transform-limited, GDD 0 unless set (the
+  /// GaussianXuvPulse defaults).
+  GaussianXuvPulse xuv{};
+  /// The IR pulse: 800 nm, 5 fs, 5e12 W/cm^2.
+  GaussianIrPulse ir{.fwhm_fs = 5.0, .peak_intensity_Wcm2 = 5e12};
   int delays = 121;
   double delay_first_fs = -6.0;
   double delay_last_fs = 6.0;
@@ -52,11 +52,7 @@ struct CaseSpec {
 /// The noisy case of the engine tests: Poisson noise at 100 counts at the trace's peak (seed
 /// 2024) on a pulse with the given GDD.
 inline CaseSpec poisson_100_spec(double gdd_as2) {
-  CaseSpec s;
-  s.gdd_as2 = gdd_as2;
-  s.peak_counts = 100;
-  s.seed = 2024;
-  return s;
+  return {.xuv = {.gdd_as2 = gdd_as2}, .peak_counts = 100, .seed = 2024};
 }
 
 struct Case {
@@ -85,19 +81,11 @@ inline Case make_case(const CaseSpec& c) {
     for (int i = 0; i < c.delays; ++i) p.delay_au.push_back(a + step * i + step * u(rng));
     std::sort(p.delay_au.begin(), p.delay_au.end());
   }
-  GaussianXuvPulse xp;
-  xp.center_eV = c.center_eV;
-  xp.transform_limited_fwhm_as = c.tl_fwhm_as;
-  xp.gdd_as2 = c.gdd_as2;
-  out.xuv = make_gaussian_xuv(p.grid, xp);
-  GaussianIrPulse ip_pulse;
-  ip_pulse.peak_intensity_Wcm2 = c.ir_intensity_Wcm2;
-  ip_pulse.fwhm_fs = c.ir_fwhm_fs;
-  out.ir =
-      make_gaussian_ir(ip_pulse, units::fs_to_au(-30), units::fs_to_au(30), units::as_to_au(20));
-  const double W0 = units::eV_to_au(c.center_eV) - ip;
+  out.xuv = make_gaussian_xuv(p.grid, c.xuv);
+  out.ir = make_gaussian_ir(c.ir, units::fs_to_au(-30), units::fs_to_au(30), units::as_to_au(20));
+  const double W0 = units::eV_to_au(c.xuv.center_eV) - ip;
   p.central_momentum_au = std::sqrt(2 * W0);
-  p.ir_omega_au = units::wavelength_nm_to_omega_au(ip_pulse.wavelength_nm);
+  p.ir_omega_au = units::wavelength_nm_to_omega_au(c.ir.wavelength_nm);
   ForwardModelOptions fo;
   fo.central_momentum_au = p.central_momentum_au;
   fo.energy_jacobian = false;  // the problem holds |a|^2 (engine.h)

@@ -9,6 +9,7 @@
 #include <algorithm>
 #include <cmath>
 #include <complex>
+#include <memory>
 #include <random>
 #include <vector>
 
@@ -84,16 +85,24 @@ inline GaussianIrPulse perturbed_ir_pulse() {
   return ip;
 }
 
-/// Coefficients of `sp` fitted to the Gaussian IR of parameters `theta` sampled on `smp`; the
-/// coefficients' amplitude scale is then set to 0.1 a.u.
-inline std::vector<double> fit_gaussian_ir(SplineIrParametrization& sp, const IrSampling& smp,
-                                           const std::vector<double>& theta) {
+/// A spline IR and its coefficients.
+struct FittedSplineIr {
+  std::unique_ptr<SplineIrParametrization> ir;
+  std::vector<double> coef;
+};
+
+/// A spline IR on `smp` with knots every `knot_spacing_au`, its coefficients fitted to the
+/// Gaussian IR of parameters `theta` sampled on `smp`; the coefficients' amplitude scale is then
+/// set to 0.1 a.u.
+inline FittedSplineIr fitted_spline_ir(const IrSampling& smp, double knot_spacing_au,
+                                       const std::vector<double>& theta) {
+  FittedSplineIr s{std::make_unique<SplineIrParametrization>(smp, knot_spacing_au), {}};
   std::vector<double> A(smp.size);
   for (std::size_t i = 0; i < A.size(); ++i)
     A[i] = GaussianIrParametrization::value(theta.data(), smp.time(i));
-  const std::vector<double> coef = sp.fit_samples(A);
-  sp.set_amplitude_scale(0.1);
-  return coef;
+  s.coef = s.ir->fit_samples(A);
+  s.ir->set_amplitude_scale(0.1);
+  return s;
 }
 
 /// Central differences of `f.evaluate(x, g)` (g = nullptr: value only) along each coordinate of

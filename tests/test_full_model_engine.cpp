@@ -159,11 +159,10 @@ TEST_CASE("full-model gradient matches central differences", "[fullmodel]") {
     CHECK(worst_relative_gradient_error(f, x, c) < 1e-6);
   }
   SECTION("spline IR, full model") {
-    auto sp = std::make_unique<SplineIrParametrization>(smp, T / 6);
-    const std::vector<double> coef = test::fit_gaussian_ir(*sp, smp, theta);
-    FullModelObjective f(P, st, MomentumModel::kFull, std::move(sp), 2);
-    const std::vector<double> x = f.encode(spec, coef);
-    const std::size_t nx = f.num_xuv_parameters(), ni = coef.size();
+    test::FittedSplineIr sp = test::fitted_spline_ir(smp, T / 6, theta);
+    FullModelObjective f(P, st, MomentumModel::kFull, std::move(sp.ir), 2);
+    const std::vector<double> x = f.encode(spec, sp.coef);
+    const std::size_t nx = f.num_xuv_parameters(), ni = sp.coef.size();
     std::vector<std::size_t> c = {3, nx / 2 + 1, nx - 2};
     for (std::size_t k : {ni / 2 - 3, ni / 2 - 1, ni / 2, ni / 2 + 2, ni / 2 + 4})
       c.push_back(nx + k);

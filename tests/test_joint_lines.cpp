@@ -124,11 +124,10 @@ TEST_CASE("joint two-line objective: gradient matches central differences", "[li
     CHECK(worst_relative_gradient_error(f, x, c) < 1e-6);
   }
   SECTION("spline IR") {
-    auto sp = std::make_unique<SplineIrParametrization>(smp, T / 6);
-    const std::vector<double> coef = test::fit_gaussian_ir(*sp, smp, theta);
-    FullModelObjective f(P, st, MomentumModel::kFull, std::move(sp), 1);
-    const std::vector<double> x = f.encode(spec, coef);
-    const std::size_t nx = f.num_xuv_parameters(), ni = coef.size(), n = x.size();
+    test::FittedSplineIr sp = test::fitted_spline_ir(smp, T / 6, theta);
+    FullModelObjective f(P, st, MomentumModel::kFull, std::move(sp.ir), 1);
+    const std::vector<double> x = f.encode(spec, sp.coef);
+    const std::size_t nx = f.num_xuv_parameters(), ni = sp.coef.size(), n = x.size();
     std::vector<std::size_t> c = {3, nx / 2 + 1, nx + ni / 2 - 1, nx + ni / 2 + 2, n - 2, n - 1};
     CHECK(worst_relative_gradient_error(f, x, c) < 1e-6);
   }

@@ -27,9 +27,7 @@ TEST_CASE("projections: LSGPA on the standard delay axis, both chirp signs", "[p
   // 0.1 fs delay steps are not a multiple of the 16 as grid step: auto picks LSGPA.
   for (const double gdd : {0.0, 3000.0, -3000.0}) {
     INFO("GDD " << gdd << " as^2");
-    CaseSpec s;
-    s.gdd_as2 = gdd;
-    const Case c = make_case(s);
+    const Case c = make_case({.xuv = {.gdd_as2 = gdd}});
     const Reconstruction r = retrieve(c, "projections", noise_free_options());
     CHECK(setting(r, "mode") == "lsgpa");
     // Modulus replacement is least squares on sqrt(I): Gaussian amplitude errors, not Poisson
@@ -44,10 +42,7 @@ TEST_CASE("projections: LSGPA on the standard delay axis, both chirp signs", "[p
 
 TEST_CASE("projections: PCGPA on a matched delay grid", "[projections]") {
   // 121 delays spaced by 3 grid steps (48 as): every exit wave is an exact shift of the gate.
-  CaseSpec s;
-  s.gdd_as2 = 3000;
-  s.matched_ratio = 3;
-  const Case c = make_case(s);
+  const Case c = make_case({.xuv = {.gdd_as2 = 3000}, .matched_ratio = 3});
   const Reconstruction r = retrieve(c, "projections", noise_free_options());
   CHECK(setting(r, "mode") == "pcgpa");
   CHECK(setting(r, "gate_exact_shifts") == "yes");
@@ -82,10 +77,7 @@ TEST_CASE("projections: PCGPA refuses an unmatched delay axis", "[projections]")
 }
 
 TEST_CASE("projections: LSGPA on a jittered delay axis", "[projections]") {
-  CaseSpec s;
-  s.gdd_as2 = -3000;
-  s.jitter = 0.4;
-  const Case c = make_case(s);
+  const Case c = make_case({.xuv = {.gdd_as2 = -3000}, .jitter = 0.4});
   const Reconstruction r = retrieve(c, "projections", noise_free_options());
   CHECK(setting(r, "mode") == "lsgpa");
   check_truth(c, r, 0.05);
@@ -107,10 +99,7 @@ TEST_CASE("projections: Poisson noise at 100 counts at the peak", "[projections]
 }
 
 TEST_CASE("projections: two threads give the single-thread answer", "[projections]") {
-  CaseSpec s;
-  s.gdd_as2 = 3000;
-  s.jitter = 0.2;
-  const Case c = make_case(s);
+  const Case c = make_case({.xuv = {.gdd_as2 = 3000}, .jitter = 0.2});
   EngineOptions o;
   o.max_iterations = 30;
   const Reconstruction one = retrieve(c, "projections", o);
@@ -132,17 +121,9 @@ TEST_CASE("both CMA engines on the standard cases (the engines' report table)",
     CaseSpec spec;
   };
   std::vector<Row> rows;
-  for (double g : {0.0, 3000.0, -3000.0}) {
-    CaseSpec s;
-    s.gdd_as2 = g;
-    rows.push_back({g == 0 ? "TL" : (g > 0 ? "GDD +3000" : "GDD -3000"), s});
-  }
-  {
-    CaseSpec s;
-    s.gdd_as2 = 3000;
-    s.jitter = 0.4;
-    rows.push_back({"GDD +3000 jitter", s});
-  }
+  for (double g : {0.0, 3000.0, -3000.0})
+    rows.push_back({g == 0 ? "TL" : (g > 0 ? "GDD +3000" : "GDD -3000"), {.xuv = {.gdd_as2 = g}}});
+  rows.push_back({"GDD +3000 jitter", {.xuv = {.gdd_as2 = 3000}, .jitter = 0.4}});
   for (double g : {0.0, 3000.0}) {
     rows.push_back({g == 0 ? "TL Poisson 100" : "GDD +3000 Poisson 100", poisson_100_spec(g)});
   }

@@ -38,19 +38,14 @@ TEST_CASE("ptychographic: transform-limited 150 as pulse", "[ptychographic]") {
 TEST_CASE("ptychographic: the sign of the chirp comes out right", "[ptychographic]") {
   for (const double gdd : {3000.0, -3000.0}) {
     INFO("GDD " << gdd << " as^2");
-    CaseSpec s;
-    s.gdd_as2 = gdd;
-    const Case c = make_case(s);
+    const Case c = make_case({.xuv = {.gdd_as2 = gdd}});
     const Reconstruction r = retrieve_checked(c, "ptychographic", noise_free_options());
   }
 }
 
 TEST_CASE("ptychographic: a jittered delay axis", "[ptychographic]") {
   // Stage jitter: every delay off its nominal position by up to +-40 % of the step.
-  CaseSpec s;
-  s.gdd_as2 = 3000;
-  s.jitter = 0.4;
-  const Case c = make_case(s);
+  const Case c = make_case({.xuv = {.gdd_as2 = 3000}, .jitter = 0.4});
   const Reconstruction r = retrieve_checked(c, "ptychographic", noise_free_options());
   CHECK(r.trace_error < 1e-3);
 }
@@ -69,9 +64,7 @@ TEST_CASE("ptychographic: Poisson noise at 100 counts at the peak", "[ptychograp
 TEST_CASE("ptychographic: without a field-free spectrum", "[ptychographic]") {
   // Then nothing fixes the frequency-shift ambiguity (DESIGN.md) but the initial guess (the
   // delay-averaged spectrum and the centroid curve); the pulse and the field still come out.
-  CaseSpec s;
-  s.gdd_as2 = 3000;
-  Case c = make_case(s);
+  Case c = make_case({.xuv = {.gdd_as2 = 3000}});
   c.problem.field_free_spectrum.clear();
   const Reconstruction r = retrieve_checked(c, "ptychographic", noise_free_options());
 }
@@ -80,9 +73,7 @@ TEST_CASE("ptychographic: the retrieved fields reproduce the trace through the f
           "[ptychographic]") {
   // sw::ForwardModel evaluates the CMA amplitude from the returned XuvField and IrField by its
   // own path; a sign slip in A, the delay or the time axis would show up here.
-  CaseSpec s;
-  s.gdd_as2 = -3000;
-  const Case c = make_case(s);
+  const Case c = make_case({.xuv = {.gdd_as2 = -3000}});
   const Reconstruction r = retrieve(c, "ptychographic", noise_free_options());
   const double G = forward_model_error(c, r, units::fs_to_au(5.0));
   INFO("engine G " << r.trace_error << ", forward-model G " << G);
@@ -95,9 +86,7 @@ TEST_CASE("ptychographic: the retrieved fields reproduce the trace through the f
 }
 
 TEST_CASE("ptychographic: the seed fixes the result", "[ptychographic]") {
-  CaseSpec s;
-  s.peak_counts = 100;
-  const Case c = make_case(s);
+  const Case c = make_case({.peak_counts = 100});
   EngineOptions o;
   o.max_iterations = 15;
   const Reconstruction a = retrieve(c, "ptychographic", o), b = retrieve(c, "ptychographic", o);
@@ -109,9 +98,7 @@ TEST_CASE("ptychographic: the seed fixes the result", "[ptychographic]") {
 }
 
 TEST_CASE("ptychographic: warm start from the truth stays there", "[ptychographic]") {
-  CaseSpec s;
-  s.gdd_as2 = 3000;
-  const Case c = make_case(s);
+  const Case c = make_case({.xuv = {.gdd_as2 = 3000}});
   EngineOptions o = noise_free_options();
   o.initial_xuv = c.xuv;
   o.initial_ir = c.ir;

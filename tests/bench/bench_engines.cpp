@@ -25,17 +25,9 @@ namespace {
 using namespace sw;
 
 const testing::Case& problem_121x400(bool noisy) {
-  static const testing::Case clean = [] {
-    testing::CaseSpec c;
-    c.gdd_as2 = 3000;
-    return testing::make_case(c);
-  }();
-  static const testing::Case noisy_case = [] {
-    testing::CaseSpec c;
-    c.gdd_as2 = 3000;
-    c.peak_counts = 100;
-    return testing::make_case(c);
-  }();
+  static const testing::Case clean = testing::make_case({.xuv = {.gdd_as2 = 3000}});
+  static const testing::Case noisy_case =
+      testing::make_case({.xuv = {.gdd_as2 = 3000}, .peak_counts = 100});
   return noisy ? noisy_case : clean;
 }
 

@@ -16,6 +16,8 @@
 #include <string>
 #include <vector>
 
+#include "tests/program_support.h"
+
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size);
 
 namespace {
@@ -101,10 +103,7 @@ std::string mutate(std::string s, const std::vector<std::string>& seeds, std::mt
 }  // namespace
 
 int main(int argc, char** argv) {
-  if (argc < 3) {
-    std::fprintf(stderr, "usage: %s CORPUS_DIR SECONDS [SEED]\n", argv[0]);
-    return 2;
-  }
+  if (!sw::test::has_arguments(argc, argv, 2, "CORPUS_DIR SECONDS [SEED]")) return 2;
   const fs::path corpus = argv[1];
   const double budget = std::stod(argv[2]);
   const std::uint64_t seed = argc > 3 ? std::stoull(argv[3]) : 1;

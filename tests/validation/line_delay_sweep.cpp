@@ -32,6 +32,7 @@
 #include <fstream>
 #include <sstream>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "io/figures.h"
@@ -133,32 +134,36 @@ int main(int argc, char** argv) {
   int shard = 0, shards = 1;
   std::string row_estimator = LineDelayOptions().row_estimator;
   std::string shape;  // empty: the targets as they are
+  // The flags followed by one integer or one number, and where each value goes.
+  const std::pair<const char*, int*> integer_flags[] = {{"--retrieve-every", &retrieve_every},
+                                                        {"--bootstrap", &bootstrap},
+                                                        {"--band-iterations", &band_iterations},
+                                                        {"--joint", &joint_bootstrap}};
+  const std::pair<const char*, double*> number_flags[] = {
+      {"--strength", &only_strength}, {"--peak", &only_peak}, {"--band", &band_factor}};
+  // The flags followed by a comma-separated list of numbers.
+  const std::pair<const char*, std::vector<double>*> list_flags[] = {
+      {"--delays", &only_delays}, {"--strengths", &only_strengths}};
   for (int i = 2; i < argc; ++i) {
     const std::string a = argv[i];
+    // Where the value after `a` goes when `a` is one of `flags` and a value follows; else null.
+    auto destination = [&](const auto& flags) {
+      decltype(flags[0].second) to = nullptr;
+      for (const auto& [flag, where] : flags)
+        if (a == flag && i + 1 < argc) to = where;
+      return to;
+    };
     if (a == "--quick")
       quick = true;
-    else if (a == "--retrieve-every" && i + 1 < argc)
-      retrieve_every = std::atoi(argv[++i]);
-    else if (a == "--bootstrap" && i + 1 < argc)
-      bootstrap = std::atoi(argv[++i]);
-    else if (a == "--strength" && i + 1 < argc)
-      only_strength = std::atof(argv[++i]);
-    else if (a == "--peak" && i + 1 < argc)
-      only_peak = std::atof(argv[++i]);
-    else if (a == "--band" && i + 1 < argc)
-      band_factor = std::atof(argv[++i]);
-    else if (a == "--band-iterations" && i + 1 < argc)
-      band_iterations = std::atoi(argv[++i]);
+    else if (int* n = destination(integer_flags))
+      *n = std::atoi(argv[++i]);
+    else if (double* x = destination(number_flags))
+      *x = std::atof(argv[++i]);
     else if (a == "--target" && i + 1 < argc)
       only_target = argv[++i];
-    else if (a == "--joint" && i + 1 < argc)
-      joint_bootstrap = std::atoi(argv[++i]);
-    else if (a == "--delays" && i + 1 < argc) {
+    else if (std::vector<double>* list = destination(list_flags)) {
       std::stringstream ds(argv[++i]);
-      for (std::string t; std::getline(ds, t, ',');) only_delays.push_back(std::atof(t.c_str()));
-    } else if (a == "--strengths" && i + 1 < argc) {
-      std::stringstream ds(argv[++i]);
-      for (std::string t; std::getline(ds, t, ',');) only_strengths.push_back(std::atof(t.c_str()));
+      for (std::string t; std::getline(ds, t, ',');) list->push_back(std::atof(t.c_str()));
     } else if (a == "--band-check" && i + 1 < argc) {
       char* end = nullptr;
       const char* text = argv[++i];

@@ -17,6 +17,7 @@
 #include "retrieval/core/units.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
+#include "tests/program_support.h"
 
 using namespace sw;
 
@@ -42,10 +43,7 @@ synthetic::ScanConfig two_line_config(const std::string& second_gas, const std::
 }  // namespace
 
 int main(int argc, char** argv) {
-  if (argc < 2) {
-    std::fprintf(stderr, "usage: %s OUT_DIR [--quick]\n", argv[0]);
-    return 2;
-  }
+  if (!test::has_arguments(argc, argv, 1, "OUT_DIR [--quick]")) return 2;
   const bool quick = argc > 2 && std::string(argv[2]) == "--quick";
   const std::vector<double> delays =
       quick ? std::vector<double>{50.0} : std::vector<double>{-30.0, 0.0, 50.0};
