@@ -60,10 +60,14 @@
 // reference line (DESIGN.md "lines"); the curve of a later line is the reference curve moved
 // to earlier delays (M_k(tau) ~ M_ref(tau + delta_k)).
 //
-// Known bias (docs/validation.md "Two lines"): the first moment averages -p A over the
-// XUV intensity; for a chirped pulse the momentum spread over the band correlates with time,
-// which shifts lines of different p differently; the tail of a strong neighbour inside a weak
-// line's band also pulls its moment. Both are measured on the validation sweep.
+// Known bias (docs/validation.md "Two lines", "Line shape"): the first moment averages -p A
+// over the XUV intensity; for a chirped pulse the momentum spread over the band correlates with
+// time, which shifts lines of different p differently (small); the tail of a strong neighbour
+// inside a weak line's band pulls its moment, and where the tails overlap the streaked shape
+// of that tail follows the pulse's spectral phase, which the method does not model: argon
+// 3s/3p (3.25 rms widths apart) moved by 10-18 as under GDD 8000 as^2 or TOD 2e5 as^3 at a
+// passing chi^2. LineDelayResult::separation_widths measures the overlap; the quality check
+// line_separation_widths (retrieval/analysis/quality.h) guards it.
 
 #include <limits>
 #include <string>

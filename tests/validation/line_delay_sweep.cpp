@@ -23,6 +23,8 @@
 // (hydrogenic dipole), satellites (bursts at -+T/2 with 10 % of the main burst's intensity:
 // spectral fringes), skewed (a tabulated spectrum, the Gaussian times 1 + 0.7 tanh((E - E0) / w),
 // w = half the FWHM: its peak moved and one flank steeper).
+// --fwhm-as T: every scan's transform-limited FWHM (as), the gdd and tod phases scaled with it
+// (apply_shape), to move the lines' separation in units of their width.
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -74,10 +76,14 @@ std::string f(double v, int prec = 4) {
 }
 
 // --shape (header comment).
-void apply_shape(const std::string& shape, synthetic::ScanConfig& c) {
+// fwhm_as > 0: the pulse's transform limit, with the gdd and tod phases scaled by (fwhm_as /
+// the target's) squared and cubed, so that the phase at a given fraction of the bandwidth stays.
+void apply_shape(const std::string& shape, double fwhm_as, synthetic::ScanConfig& c) {
   GaussianXuvPulse& g = c.xuv.gaussian;
-  if (shape == "gdd") g.gdd_as2 = 8000.0;
-  if (shape == "tod") g.tod_as3 = 2e5;
+  const double scale = fwhm_as > 0 ? fwhm_as / g.transform_limited_fwhm_as : 1.0;
+  if (fwhm_as > 0) g.transform_limited_fwhm_as = fwhm_as;
+  if (shape == "gdd") g.gdd_as2 = 8000.0 * scale * scale;
+  if (shape == "tod") g.tod_as3 = 2e5 * scale * scale * scale;
   if (shape == "dipole") c.dipole = DipoleKind::kHydrogenic;
   if (shape == "satellites") {
     c.xuv.kind = synthetic::XuvKind::kSatellites;
@@ -115,7 +121,8 @@ int main(int argc, char** argv) {
                  "usage: line_delay_sweep OUT_DIR [--quick] [--retrieve-every N] [--bootstrap B] "
                  "[--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] "
                  "[--joint B] [--delays LIST] [--strengths LIST] [--band-check F] [--shard I/N] "
-                 "[--row-estimator band|profile] [--shape gdd|tod|dipole|satellites|skewed]\n");
+                 "[--row-estimator band|profile] [--shape gdd|tod|dipole|satellites|skewed] "
+                 "[--fwhm-as T]\n");
     return code;
   };
   const std::string out = argc > 1 ? argv[1] : "docs";
@@ -133,14 +140,17 @@ int main(int argc, char** argv) {
   double band_check = 2.0;
   int shard = 0, shards = 1;
   std::string row_estimator = LineDelayOptions().row_estimator;
-  std::string shape;  // empty: the targets as they are
+  std::string shape;   // empty: the targets as they are
+  double fwhm_as = 0;  // > 0: --fwhm-as, the transform limit of every scan
   // The flags followed by one integer or one number, and where each value goes.
   const std::pair<const char*, int*> integer_flags[] = {{"--retrieve-every", &retrieve_every},
                                                         {"--bootstrap", &bootstrap},
                                                         {"--band-iterations", &band_iterations},
                                                         {"--joint", &joint_bootstrap}};
-  const std::pair<const char*, double*> number_flags[] = {
-      {"--strength", &only_strength}, {"--peak", &only_peak}, {"--band", &band_factor}};
+  const std::pair<const char*, double*> number_flags[] = {{"--strength", &only_strength},
+                                                          {"--peak", &only_peak},
+                                                          {"--band", &band_factor},
+                                                          {"--fwhm-as", &fwhm_as}};
   // The flags followed by a comma-separated list of numbers.
   const std::pair<const char*, std::vector<double>*> list_flags[] = {
       {"--delays", &only_delays}, {"--strengths", &only_strengths}};
@@ -214,7 +224,7 @@ int main(int argc, char** argv) {
           c.lines[1].delay_as = d;
           c.lines[1].relative_strength = st;
           c.noise.peak_counts = peak;
-          apply_shape(shape, c);
+          apply_shape(shape, fwhm_as, c);
           const auto t0 = std::chrono::steady_clock::now();
           const synthetic::SyntheticScan s =
               synthetic::generate_scan(c, 7000 + static_cast<unsigned long long>(n));
