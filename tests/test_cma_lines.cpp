@@ -40,6 +40,17 @@ EngineOptions cma_options(const PreprocessSummary& ps, unsigned long long seed) 
   return eo;
 }
 
+// The joint problem of retrieval/analysis/multi_line_fit.h (the window of the joint fit) with
+// every non-reference line found, started at delay 0 and strength s0.
+JointLineProblem joint_problem(const Trace& trace, const RetrievalProblem& single,
+                               const PreprocessSummary& ps, double s0) {
+  std::vector<char> joint(ps.lines.size(), 0);
+  std::vector<double> delay(ps.lines.size(), 0.0), strength(ps.lines.size(), s0);
+  for (std::size_t k = 0; k < ps.lines.size(); ++k) joint[k] = ps.lines[k].reference ? 0 : 1;
+  return joint_line_problem(trace, PreprocessOptions{}, single, ps, ps.lines, joint, delay,
+                            strength);
+}
+
 // A neon two-line scan (2p reference, 2s at `strength` and `delay_as`) through the single-line
 // CMA, then the joint problem of retrieval/analysis/multi_line_fit.h (the window of the joint
 // fit) and the ptychographic engine on it from the single-line result. The lines' start: delay 0
@@ -60,11 +71,7 @@ JointCma run_joint(double delay_as, double strength, bool poisson, double peak, 
   const RetrievalProblem single = preprocess(s.trace, PreprocessOptions{}, &ps);
   EngineOptions eo = cma_options(ps, seed);
   const Reconstruction sr = run_engine(*make_engine("ptychographic"), single, eo);
-  std::vector<char> joint(ps.lines.size(), 0);
-  std::vector<double> d0(ps.lines.size(), 0.0), s0(ps.lines.size(), 0.5);
-  for (std::size_t k = 0; k < ps.lines.size(); ++k) joint[k] = ps.lines[k].reference ? 0 : 1;
-  const JointLineProblem jp =
-      joint_line_problem(s.trace, PreprocessOptions{}, single, ps, ps.lines, joint, d0, s0);
+  const JointLineProblem jp = joint_problem(s.trace, single, ps, 0.5);
   REQUIRE(jp.ok);
   eo.initial_xuv = sr.xuv;
   eo.initial_ir = sr.ir;
@@ -134,11 +141,7 @@ TEST_CASE("joint CMA: a single-line problem runs the single-line path unchanged"
   CHECK(a.trace_error == b.trace_error);
   CHECK(a.xuv.envelope() == b.xuv.envelope());
   // A joint problem with the setting off is the same problem without its extra lines.
-  std::vector<char> joint(ps.lines.size(), 0);
-  std::vector<double> d0(ps.lines.size(), 0.0), s0(ps.lines.size(), 0.3);
-  for (std::size_t k = 0; k < ps.lines.size(); ++k) joint[k] = ps.lines[k].reference ? 0 : 1;
-  const JointLineProblem jp =
-      joint_line_problem(s.trace, PreprocessOptions{}, single, ps, ps.lines, joint, d0, s0);
+  const JointLineProblem jp = joint_problem(s.trace, single, ps, 0.3);
   REQUIRE(jp.ok);
   RetrievalProblem bare = jp.problem;
   bare.extra_lines.clear();

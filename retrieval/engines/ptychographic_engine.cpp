@@ -152,11 +152,7 @@ class PtychographicEngine final : public Engine {
       cma_->constrain(k, eps_, gates_, work_, cover_, state_);
     else
       cma_->constrain(k, eps_, gates_[0], work_, cover_);
-    if (G < best_) {
-      best_ = G;
-      best_eps_ = eps_;
-      best_gates_ = gates_;
-    }
+    keep_best(G);
     // Node gates started cold stall: each node's probe updates pull A its own way and their
     // average cancels (measured with separate bands: G stays at the flat-gate value on a
     // 38 eV neon train). The nodes therefore start from the one-p0 solution, once it has
@@ -180,10 +176,7 @@ class PtychographicEngine final : public Engine {
         }
       }
     }
-    IterationRecord r;
-    r.trace_error = G;
-    r.step_size = beta_o_;
-    return r;
+    return record(G);
   }
 
   Reconstruction finalize() override {
@@ -340,13 +333,20 @@ class PtychographicEngine final : public Engine {
     (void)cma_->reconcile_line_gates(eps_, gates_, modes_, strength, cover_);
     cma_->constrain(k, eps_, gates_[0], work_, cover_);
     rebuild_line_gates(true);
-    if (G < best_) {
-      best_ = G;
-      best_eps_ = eps_;
-      best_gates_ = gates_;
-      best_amp_ = amp_;
-      best_delay_ = delay_;
-    }
+    keep_best(G);
+    return record(G);
+  }
+
+  // The estimate of the lowest running trace error so far is the one returned.
+  void keep_best(double G) {
+    if (!(G < best_)) return;
+    best_ = G;
+    best_eps_ = eps_;
+    best_gates_ = gates_;
+    best_amp_ = amp_;
+    best_delay_ = delay_;
+  }
+  IterationRecord record(double G) const {
     IterationRecord r;
     r.trace_error = G;
     r.step_size = beta_o_;
