@@ -4,7 +4,9 @@
 // with the two-line targets of the line-delay validation (tests/validation/two_line_targets.h):
 // the generator evaluates each line with the full momentum dependence and inserts the second
 // line's delay itself, so its inserted delay and its XUV are an independent reference for the
-// engine's FFT-based CMA model.
+// engine's FFT-based CMA model. Also: the single-line path bit for bit, one mode's projection
+// against the single-line projection, and the hook in retrieve's joint-lines step
+// (retrieval/analysis/multi_line_fit.h) with a recording runner.
 #include <catch2/catch.hpp>
 
 #include <cmath>
@@ -179,4 +181,59 @@ TEST_CASE("joint CMA: the projection of one mode is the single-line projection",
     CHECK(s1.im == Approx(s2.im).epsilon(1e-12));
     CHECK(s1.mm == Approx(s2.mm).epsilon(1e-12));
   }
+}
+
+TEST_CASE("joint lines in retrieve's chain: the CMA stage starts the joint full model",
+          "[cma][lines]") {
+  // A recording runner in place of the engines: the joint CMA stage runs on the joint problem
+  // from the single-line result, and the joint full model gets its XUV, IR, delay and strength.
+  synthetic::ScanConfig c = validation::two_line_target("Ne");
+  c.lines[1].delay_as = -50.0;
+  c.noise.peak_counts = 300;
+  const synthetic::SyntheticScan s = synthetic::generate_scan(c, 6);
+  PreprocessSummary ps;
+  const RetrievalProblem single = preprocess(s.trace, PreprocessOptions{}, &ps);
+  Reconstruction single_rec;
+  single_rec.xuv = XuvField(single.grid, 4.0, CVec(single.grid.size(), cdouble(1.0, 0.0)));
+  const XuvField cma_xuv(single.grid, 4.0, CVec(single.grid.size(), cdouble(0.5, 0.0)));
+  std::vector<std::string> engines;
+  std::vector<double> start_delay_as, start_strength;
+  bool full_from_cma = false;
+  const EngineRunner runner = [&](const RetrievalProblem& p, const std::string& engine,
+                                  const EngineOptions& o, const std::string&) {
+    engines.push_back(engine);
+    REQUIRE(p.extra_lines.size() == 1);
+    start_delay_as.push_back(units::au_to_as(p.extra_lines[0].delay_au));
+    start_strength.push_back(p.extra_lines[0].strength);
+    Reconstruction r;
+    r.engine = engine;
+    r.settings = {{"joint_line.0.delay_as", engine == "ptychographic" ? "-47.5" : "-48.5"},
+                  {"joint_line.0.strength", "0.29"},
+                  {"joint_line.0.counts_ratio", "0.25"}};
+    if (engine == "ptychographic") {
+      CHECK(o.initial_xuv->envelope() == single_rec.xuv.envelope());
+      r.xuv = cma_xuv;
+    } else {
+      full_from_cma = o.initial_xuv && o.initial_xuv->envelope() == cma_xuv.envelope();
+    }
+    return r;
+  };
+  LineDelayOptions lo;
+  lo.bootstrap = 4;
+  EngineOptions cma = cma_options(ps, 1), full = cma;
+  const JointLineStep step = joint_line_estimate(s.trace, PreprocessOptions{}, lo, single, ps,
+                                                 single_rec, full, runner, &cma);
+  REQUIRE(step.used);
+  REQUIRE(engines == std::vector<std::string>{"ptychographic", "full-model"});
+  CHECK(full_from_cma);
+  CHECK(start_delay_as[1] == Approx(-47.5).margin(1e-9));  // the CMA's delay and strength
+  CHECK(start_strength[1] == Approx(0.29).margin(1e-12));
+  REQUIRE(step.cma_reconstruction);
+  CHECK(step.values.delay_as[0] == Approx(-48.5).margin(1e-9));
+  // With joint_lines off the joint full model starts from the single-line result directly.
+  engines.clear();
+  cma.settings.ptychographic.joint_lines = false;
+  (void)joint_line_estimate(s.trace, PreprocessOptions{}, lo, single, ps, single_rec, full, runner,
+                            &cma);
+  CHECK(engines == std::vector<std::string>{"full-model"});
 }
