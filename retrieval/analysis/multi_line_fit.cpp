@@ -149,13 +149,40 @@ void initial_values(const LineDelayResult& ld, const std::vector<int>* only,
   }
 }
 
+// The full model's start on the joint problem `jp`: the single-line result, or (step 4 of the
+// header) the joint CMA's result when `cma` asks for it, whose line delays and strengths then
+// replace the centre-of-energy ones in jp.problem.extra_lines. Throws what the CMA run throws.
+EngineOptions joint_start(JointLineProblem& jp, const Reconstruction& single_rec,
+                          const EngineOptions& eo, const EngineOptions* cma,
+                          const std::string& stage, const EngineRunner& run,
+                          std::optional<Reconstruction>* cma_rec) {
+  EngineOptions jo = eo;
+  jo.initial_xuv = single_rec.xuv;
+  jo.initial_ir = single_rec.ir;
+  if (!cma || !cma->settings.ptychographic.joint_lines) return jo;
+  EngineOptions co = *cma;
+  co.initial_xuv = single_rec.xuv;
+  co.initial_ir = single_rec.ir;
+  Reconstruction c = run(jp.problem, "ptychographic", co, stage + " (joint lines, CMA)");
+  const JointLineValues v = joint_line_values(c, jp.line_index.size());
+  for (std::size_t l = 0; l < jp.problem.extra_lines.size(); ++l) {
+    jp.problem.extra_lines[l].delay_au = units::as_to_au(v.delay_as[l]);
+    if (std::isfinite(v.dipole_strength[l]))
+      jp.problem.extra_lines[l].strength = std::clamp(v.dipole_strength[l], 1e-3, 1e3);
+  }
+  jo.initial_xuv = c.xuv;
+  jo.initial_ir = c.ir;
+  *cma_rec = std::move(c);
+  return jo;
+}
+
 }  // namespace
 
 JointLineStep joint_line_estimate(const Trace& trace, const PreprocessOptions& popt,
                                   const LineDelayOptions& lopt, const RetrievalProblem& single,
                                   const PreprocessSummary& summary,
                                   const Reconstruction& single_rec, const EngineOptions& eo,
-                                  const EngineRunner& run) {
+                                  const EngineRunner& run, const EngineOptions* cma) {
   JointLineStep S;
   std::vector<double> bg(trace.energy_au.size());
   for (std::size_t j = 0; j < bg.size(); ++j)
@@ -172,10 +199,15 @@ JointLineStep joint_line_estimate(const Trace& trace, const PreprocessOptions& p
                          "; the centre-of-energy delays are reported");
     return S;
   }
-  EngineOptions jo = eo;
-  jo.initial_xuv = single_rec.xuv;
-  jo.initial_ir = single_rec.ir;
   try {
+    EngineOptions jo = eo;
+    try {
+      jo = joint_start(S.joint, single_rec, eo, cma, "joint lines", run, &S.cma_reconstruction);
+    } catch (const Error& e) {
+      jo = joint_start(S.joint, single_rec, eo, nullptr, "", run, &S.cma_reconstruction);
+      S.warnings.push_back(std::string("joint CMA fit of the lines failed (") + e.what() +
+                           "); the joint full model starts from the single-line result");
+    }
     S.reconstruction = run(S.joint.problem, "full-model", jo, "joint lines");
     S.values = joint_line_values(S.reconstruction, S.joint.line_index.size());
     S.used = true;
@@ -188,13 +220,11 @@ JointLineStep joint_line_estimate(const Trace& trace, const PreprocessOptions& p
   return S;
 }
 
-std::optional<Reconstruction> joint_line_replica(JointLineStep& S, const Trace& replica,
-                                                 const PreprocessOptions& popt,
-                                                 const RetrievalProblem& single,
-                                                 const PreprocessSummary& summary,
-                                                 const Reconstruction& single_rec,
-                                                 const EngineOptions& eo, const std::string& stage,
-                                                 const EngineRunner& run) {
+std::optional<Reconstruction> joint_line_replica(
+    JointLineStep& S, const Trace& replica, const PreprocessOptions& popt,
+    const RetrievalProblem& single, const PreprocessSummary& summary,
+    const Reconstruction& single_rec, const EngineOptions& eo, const std::string& stage,
+    const EngineRunner& run, const EngineOptions* cma) {
   if (!S.used) return std::nullopt;
   std::vector<char> flags;
   std::vector<double> delay, strength;
@@ -205,10 +235,14 @@ std::optional<Reconstruction> joint_line_replica(JointLineStep& S, const Trace& 
     ++S.replicas_failed;
     return std::nullopt;
   }
-  EngineOptions jo = eo;
-  jo.initial_xuv = single_rec.xuv;
-  jo.initial_ir = single_rec.ir;
   try {
+    std::optional<Reconstruction> cma_rec;
+    EngineOptions jo = eo;
+    try {
+      jo = joint_start(jp, single_rec, eo, cma, stage, run, &cma_rec);
+    } catch (const Error&) {
+      jo = joint_start(jp, single_rec, eo, nullptr, stage, run, &cma_rec);
+    }
     Reconstruction r = run(jp.problem, "full-model", jo, stage + " (joint lines)");
     const JointLineValues v = joint_line_values(r, jp.line_index.size());
     for (std::size_t l = 0; l < v.delay_as.size(); ++l) {

@@ -16,7 +16,11 @@
 //   3. each other line is modelled over every column of the window whose photon energy
 //      W + Ip_k lies inside the XUV grid's band, started from the centre-of-energy delay and
 //      strength (retrieval/analysis/line_delays.h);
-//   4. the full model is started from the single-line result (XUV and IR); its result replaces
+//   4. the full model is started from the single-line result (XUV and IR) -- or, when the CMA
+//      options are given and their ptychographic joint_lines setting is on, first the
+//      ptychographic engine runs on the joint problem from the single-line result (the lines as
+//      incoherent modes, retrieval/engines/cma_problem.h LineMode) and the full model starts from
+//      its XUV, IR, delays and strengths; its result replaces
 //      the single-line one as the headline pulse, and the lines' delays and strengths (ratio
 //      of the modelled counts, as the centre-of-energy strength) are read back.
 // Uncertainties: retrieve() repeats steps 1-4 on each Poisson replica
@@ -79,29 +83,32 @@ struct JointLineStep {
   JointLineProblem joint;         ///< its problem (valid when used)
   Reconstruction reconstruction;  ///< its result (time origin fixed by the runner)
   JointLineValues values;         ///< its line values (problem.extra_lines order)
+  /// The joint CMA stage's result (step 4; absent when it did not run or failed): its
+  /// joint_line.<l>.* settings carry the CMA's per-line delay and strength.
+  std::optional<Reconstruction> cma_reconstruction;
   std::vector<std::vector<double>> replica_delay_as, replica_strength;  ///< per joint line
   int replicas_failed = 0;
   std::vector<std::string> warnings;
 };
 
 /// Step 1, after the single-line chain: centre of energy (on `trace`, lines of `summary`),
-/// then the joint fit from `single_rec` (engine options `eo`, iterations as given).
+/// then the joint fit from `single_rec` (full-model options `eo`, iterations as given; with
+/// `cma`, the CMA options of the chain, the joint CMA stage of step 4 first).
 JointLineStep joint_line_estimate(const Trace& trace, const PreprocessOptions& popt,
                                   const LineDelayOptions& lopt, const RetrievalProblem& single,
                                   const PreprocessSummary& summary,
                                   const Reconstruction& single_rec, const EngineOptions& eo,
-                                  const EngineRunner& run);
+                                  const EngineRunner& run, const EngineOptions* cma = nullptr);
 /// Step 2, per bootstrap replica: the joint fit on the replica from its single-line result
 /// `single_rec` (its problem `single`, summary `summary`), started from the estimate's
-/// centre-of-energy values. Records the replica's line values; returns its reconstruction
-/// (std::nullopt when the replica's joint problem could not be built or the fit failed).
-std::optional<Reconstruction> joint_line_replica(JointLineStep& step, const Trace& replica,
-                                                 const PreprocessOptions& popt,
-                                                 const RetrievalProblem& single,
-                                                 const PreprocessSummary& summary,
-                                                 const Reconstruction& single_rec,
-                                                 const EngineOptions& eo, const std::string& stage,
-                                                 const EngineRunner& run);
+/// centre-of-energy values (through the joint CMA stage first when `cma` is given, as the
+/// estimate). Records the replica's line values; returns its reconstruction (std::nullopt when
+/// the replica's joint problem could not be built or the fit failed).
+std::optional<Reconstruction> joint_line_replica(
+    JointLineStep& step, const Trace& replica, const PreprocessOptions& popt,
+    const RetrievalProblem& single, const PreprocessSummary& summary,
+    const Reconstruction& single_rec, const EngineOptions& eo, const std::string& stage,
+    const EngineRunner& run, const EngineOptions* cma = nullptr);
 /// Step 3: the lines section. Without the joint fit, the centre-of-energy lines; with it, each
 /// joint line's relative_delay_as / relative_strength from the joint fit with sigma from the
 /// replicas (bootstrap_estimate of retrieval/analysis/quality.h, as the headline numbers; never

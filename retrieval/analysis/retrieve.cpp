@@ -328,7 +328,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       LineDelayOptions lo = opt.line_delays;
       lo.seed = opt.seed;
       lines_step = joint_line_estimate(trace, opt.preprocess, lo, pr, out.preprocess,
-                                       out.reconstruction, jeo, runner);
+                                       out.reconstruction, jeo, runner, &eo);
       if (lines_step.used) {
         out.chain.push_back(lines_step.reconstruction);
         out.reconstruction = lines_step.reconstruction;
@@ -427,8 +427,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     }
     if (lines_step.used) {  // the joint fit on the replica, from its single-line result
       const EngineOptions jb = full_model_options(bo);
-      if (auto jr =
-              joint_line_replica(lines_step, rep, opt.preprocess, rp, ps, br, jb, stage, runner))
+      if (auto jr = joint_line_replica(lines_step, rep, opt.preprocess, rp, ps, br, jb, stage,
+                                       runner, &bo))
         br = std::move(*jr);
     }
     const auto [rlo, rhi] = band_of(rp);

@@ -55,6 +55,23 @@ SW_HOT_LOOP void moduli_and_sums(const double* S, const double* I, double* r2, s
   *mm_out += mm;
 }
 
+SW_HOT_LOOP void mode_factors(double* r2, const double* I, const double* a, std::size_t n,
+                              double dt2, bool poisson, double* im_out, double* mm_out) {
+  double im = 0.0, mm = 0.0;
+#pragma omp simd reduction(+ : im, mm)
+  for (std::size_t q = 0; q < n; ++q) {
+    const double M = dt2 * r2[q];
+    im += I[q] * M;
+    mm += M * M;
+    const double rs = detail::rsqrt_newton(r2[q] + 1e-300);
+    r2[q] = poisson ? std::clamp(0.5 + 0.5 * I[q] / (dt2 * (r2[q] + 1e-300)), 0.0,
+                                 2.0 * a[q] * rs + 0.5)
+                    : a[q] * rs;
+  }
+  *im_out += im;
+  *mm_out += mm;
+}
+
 SW_HOT_LOOP void scale_bins(double* S, const double* f, std::size_t n) {
 #pragma omp simd
   for (std::size_t q = 0; q < 2 * n; ++q) S[q] *= f[q / 2];

@@ -24,6 +24,13 @@ void project_amplitude(double* S, const double* I, const double* a, std::size_t 
 void project_poisson(double* S, const double* I, const double* a, std::size_t n, double dt2,
                      double* im_out, double* mm_out);
 
+/// The factor of the projection for a bin whose model is r2[q] = sum of |S|^2 over several
+/// incoherent modes (cma_problem.h, project_modes): on return r2[q] holds the factor f_q that
+/// project_amplitude (poisson = false) or project_poisson (true) would apply to one spectrum of
+/// that modulus; adds the sums of M = dt2 r2 as the others.
+void mode_factors(double* r2, const double* I, const double* a, std::size_t n, double dt2,
+                  bool poisson, double* im_out, double* mm_out);
+
 /// S_q <- f_q S_q (both components).
 void scale_bins(double* S, const double* f, std::size_t n);
 

@@ -11,6 +11,7 @@
 
 namespace sw {
 
+using cma_detail::last_probed_node;
 using cma_detail::rotate_linear;
 
 int auto_momentum_bands(double p_lo, double p_hi, double p0) {
@@ -64,16 +65,15 @@ double band_potential(double rate, double p, bool final_frame) {
   return 2.0 * rate / (p + std::sqrt(q));
 }
 
-// Last gate node whose coverage reaches 30 % of the maximum (where reconstruct() ends A(t)).
-std::size_t last_probed_node(const std::vector<double>& cover) {
+}  // namespace
+
+std::size_t cma_detail::last_probed_node(const std::vector<double>& cover) {
   double cmax = 0;
   for (double c : cover) cmax = std::max(cmax, c);
   std::size_t hi = cover.empty() ? 0 : cover.size() - 1;
   while (hi > 0 && cover[hi] < 0.3 * cmax) --hi;
   return hi;
 }
-
-}  // namespace
 
 std::size_t CmaProblem::node_of(double p, double* u) const {
   const std::size_t nb = bands_.size();

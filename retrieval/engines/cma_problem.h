@@ -127,6 +127,34 @@ struct BandState {
   double streaking_shift_au = 0.0;  ///< max |A| (a.u.) the frame was chosen from
 };
 
+/// One further photoelectron line of the mixed-state CMA (RetrievalProblem::extra_lines): an
+/// incoherent mode of the exit wave (P. Thibault and A. Menzel, Nature 494, 68 (2013)).
+///
+/// Line k's electrons at kinetic energy W come from photon energy W + Ip_k, i.e. from the
+/// envelope frequency w_j + D_k with D_k = Ip_k - Ip_ref (w_j the reference line's offset of
+/// energy j from the carrier). Its amplitude on the reference's FFT bins is therefore the FFT of
+///     psi_k(s) = sqrt(s_k) eps(s) exp(i D_k s) G_k(s + tau + t_k),
+/// s_k its strength |d_k|^2 / |d_ref|^2, t_k its relative photoemission delay (+ = emitted
+/// later: the line's envelope sqrt(s_k) eps(s - t_k), a linear spectral phase exp(i w t_k) of
+/// its dipole, full_model_engine.h "Several photoelectron lines"; substituting s -> s + t_k
+/// leaves a unit-modulus factor per bin, so the line sees the gate at tau + t_k), and G_k the
+/// CMA gate of the one shared A(t) at the line's own central momentum
+/// p_k = sqrt(p0^2 - 2 D_k). The counts of the lines add incoherently (project_modes()).
+struct LineMode {
+  std::string name;
+  double offset_au = 0.0;  ///< D_k = Ip_k - Ip_ref (a.u.)
+  double p0_au = 0.0;      ///< the line's central momentum (a.u.)
+  CVec modulation;         ///< exp(i D_k s_n) on the XUV grid
+};
+
+/// The problem the mixed-state CMA works on: `problem` with the XUV support (and the reference
+/// spectrum, zeroed outside it) cut at the fraction `reach` of the way from the reference
+/// line's kinetic energy W0 = p0^2 / 2 to each other line's W0 - D_k. The same photon energy
+/// gives electrons D_k apart in the two lines, so an XUV band that reaches the other line lets
+/// the reference mode explain that line's counts (and those counts would move the spectral
+/// centroid the field-free constraint aligns on). Unchanged without extra lines.
+RetrievalProblem joint_lines_view(const RetrievalProblem& problem, double reach);
+
 /// Running sums of the trace error: sum I M and sum M^2 over the measured bins.
 struct ErrorSums {
   double im = 0.0;
@@ -172,6 +200,60 @@ class CmaProblem {
   const std::vector<MomentumBand>& bands() const { return bands_; }
   /// 3 ne work values plus 2 ne for the weight-0 bins of a row (kept as modelled).
   std::size_t scratch_size() const { return 5 * ne_; }
+  /// The mixed-state projection of delay j (modes: the reference line's raw exit-wave spectrum
+  /// spectra[0], then one per LineMode, spectra[0..count)): the model is the incoherent sum
+  /// M = dt^2 sum_k |psi~_k|^2, and every mode is scaled by the one factor per bin that
+  /// project() would apply to a single spectrum of modulus sqrt(sum_k |psi~_k|^2) (amplitude:
+  /// psi~_k <- psi~_k sqrt(I / sum_j |psi~_j|^2); poisson: the same Newton step on M; noise band:
+  /// the clamp), which keeps each mode's share of the bin. Weight-0 bins keep the model;
+  /// unmeasured bins are damped as in project(). `scratch` holds scratch_size() doubles.
+  void project_modes(std::size_t j, std::vector<CVec>& spectra, std::size_t count, ErrorSums& sums,
+                     double* scratch) const;
+  /// The problem's extra lines as modes (empty without them); throws sw::Error(kInput) naming
+  /// the line when its central momentum sqrt(p0^2 - 2 D_k) is not real or its band does not fit
+  /// the grid's FFT range.
+  std::vector<LineMode> line_modes() const;
+  /// The gate of a line at delays tau_j + delay_au, central momentum p_au, carrying the vector
+  /// potential A of the reference gate `reference` (delay-adapted frame, gate.h); A is taken on
+  /// the reference's nodes and interpolated linearly onto the line's.
+  PhaseGate line_gate(const std::vector<double>& A, const PhaseGate& reference, double p_au,
+                      double delay_au) const;
+  /// The shared A(t) of the mixed-state CMA on the reference gate's nodes: each gate's fitted
+  /// smooth phase (weights: its own coverage) turned into A at its central momentum
+  /// (gates[0]: p0, gates[1 + k]: modes[k].p0_au) and averaged with the weights 1 and
+  /// strength[k]; the reference gate is reset to exp(i phi) of that A (its phase kept at the
+  /// last well-probed node). Returns A.
+  std::vector<double> reconcile_line_gates(const CVec& eps, std::vector<PhaseGate>& gates,
+                                           const std::vector<LineMode>& modes,
+                                           const std::vector<double>& strength,
+                                           std::vector<double>& cover) const;
+  /// Line l's delay by a least-squares profile: for trial delays t - h, t, t + h the residual
+  /// sum over the data bins (weight > 0) of (I - M_other - s M_l(t))^2, M_l(t) the line's model
+  /// trace at unit strength from its gate of `A` (line_gate) at delay t, s >= 0 its
+  /// least-squares strength at that delay, M_other the model of every other mode; returns the
+  /// vertex of the parabola through the three residuals, within t +- max_step_au (t +- h
+  /// downhill when the parabola opens downwards).
+  double line_delay_step(const CVec& eps, const std::vector<double>& A, const PhaseGate& reference,
+                         const LineMode& mode, const Eigen::MatrixXd& other, double delay_au,
+                         double h_au, double max_step_au) const;
+  /// The model trace of one line mode (amplitude a, gate `gate`) on the problem's axes.
+  Eigen::MatrixXd mode_trace(const CVec& eps, const PhaseGate& gate, const LineMode* mode,
+                             double amplitude) const;
+  /// Per line: the model trace of the line alone (|a_k|^2, its strength included), on the
+  /// problem's axes; [0] is the reference line.
+  std::vector<Eigen::MatrixXd> line_model_traces(const CVec& eps,
+                                                 const std::vector<PhaseGate>& gates,
+                                                 const std::vector<LineMode>& modes,
+                                                 const std::vector<double>& amplitude) const;
+  /// Reconstruction of the mixed-state CMA: the single-gate bookkeeping of reconstruct() on the
+  /// reference gate, the model trace the incoherent sum of the lines, and per line (index l of
+  /// problem().extra_lines) the settings joint_line.<l>.delay_as, .strength (s_l) and
+  /// .counts_ratio (its modelled counts p-weighted over the reference's), as the full model
+  /// reports them (retrieval/analysis/multi_line_fit.h reads them).
+  Reconstruction reconstruct_lines(CVec eps, std::vector<PhaseGate> gates,
+                                   const std::vector<LineMode>& modes,
+                                   const std::vector<double>& amplitude,
+                                   const std::vector<double>& delay_au) const;
   /// Running trace error G from the sums of one full sweep over the delays.
   double trace_error(const ErrorSums& sums) const;
   /// Spectral constraint on eps (in place; `work` is resized to N once). No-op without spectrum.

@@ -4,6 +4,7 @@
 
 #include <cstddef>
 #include <string>
+#include <vector>
 
 #include "retrieval/core/format.h"
 #include "retrieval/core/grid.h"
@@ -14,5 +15,8 @@ inline std::string num(double x) { return format_g(x); }
 
 // v[i] *= exp(i rate (t0 + i step)), by recurrence of unit rotations.
 void rotate_linear(cdouble* v, std::size_t n, double t0, double step, double rate);
+
+// Last gate node whose coverage reaches 30 % of the maximum (where reconstruct() ends A(t)).
+std::size_t last_probed_node(const std::vector<double>& cover);
 
 }  // namespace sw::cma_detail

@@ -11,6 +11,7 @@
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
 #include "retrieval/core/hot_loop.h"
+#include "retrieval/core/units.h"
 #include "retrieval/engines/cma_problem.h"
 #include "retrieval/physics/gate.h"
 
@@ -68,7 +69,15 @@ class PtychographicEngine final : public Engine {
   }
   void prepare(const RetrievalProblem& problem, const EngineOptions& options) override {
     const PtychographicSettings& ps = validated_settings(options.settings.ptychographic, name());
-    cma_.emplace(problem, ps.cma, name());
+    const bool lines = ps.joint_lines && !problem.extra_lines.empty();
+    if (lines) {
+      // The joint window's reference spectrum holds every line's counts: only its centroid
+      // (of the part inside the cut support) is used.
+      CmaSettings cs = ps.cma;
+      if (cs.spectrum == CmaSpectrum::kAmplitude) cs.spectrum = CmaSpectrum::kCentroid;
+      cma_.emplace(joint_lines_view(problem, ps.joint_lines_reach), cs, name());
+    } else
+      cma_.emplace(problem, ps.cma, name());
     beta_o_ = ps.beta_object;
     beta_g_ = ps.beta_gate;
     rng_.seed(options.seed);
@@ -99,12 +108,19 @@ class PtychographicEngine final : public Engine {
     du_.assign(n, 0.0);
     work_.assign(n, 0.0);
     scratch_.assign(cma_->scratch_size(), 0.0);
+    modes_.clear();
+    amp_.clear();
+    delay_.clear();
+    if (lines) prepare_lines(problem);
     best_eps_ = eps_;
     best_gates_ = gates_;
+    best_amp_ = amp_;
+    best_delay_ = delay_;
     best_ = std::numeric_limits<double>::infinity();
   }
 
   IterationRecord iterate(int k) override {
+    if (!modes_.empty()) return iterate_lines(k);
     std::shuffle(order_.begin(), order_.end(), rng_);
     const std::size_t n = cma_->samples();
     std::size_t lo = 0, hi = n;
@@ -136,11 +152,7 @@ class PtychographicEngine final : public Engine {
       cma_->constrain(k, eps_, gates_, work_, cover_, state_);
     else
       cma_->constrain(k, eps_, gates_[0], work_, cover_);
-    if (G < best_) {
-      best_ = G;
-      best_eps_ = eps_;
-      best_gates_ = gates_;
-    }
+    keep_best(G);
     // Node gates started cold stall: each node's probe updates pull A its own way and their
     // average cancels (measured with separate bands: G stays at the flat-gate value on a
     // 38 eV neon train). The nodes therefore start from the one-p0 solution, once it has
@@ -164,17 +176,20 @@ class PtychographicEngine final : public Engine {
         }
       }
     }
-    IterationRecord r;
-    r.trace_error = G;
-    r.step_size = beta_o_;
-    return r;
+    return record(G);
   }
 
   Reconstruction finalize() override {
-    Reconstruction r = cma_->reconstruct(best_eps_, best_gates_, state_.final_momentum);
-    r.momentum_nodes = static_cast<int>(best_gates_.size());
-    r.settings.emplace_back("momentum_nodes_used", std::to_string(best_gates_.size()));
-    if (cma_->bands().size() > 1)
+    const bool lines = !modes_.empty();
+    Reconstruction r =
+        lines ? cma_->reconstruct_lines(best_eps_, best_gates_, modes_, best_amp_, best_delay_)
+              : cma_->reconstruct(best_eps_, best_gates_, state_.final_momentum);
+    r.momentum_nodes = lines ? 1 : static_cast<int>(best_gates_.size());
+    r.settings.emplace_back("momentum_nodes_used", std::to_string(r.momentum_nodes));
+    if (lines)
+      r.settings.emplace_back("momentum_bands_from_iteration",
+                              "never (the lines are fitted jointly: one central momentum each)");
+    else if (cma_->bands().size() > 1)
       r.settings.emplace_back(
           "momentum_bands_from_iteration",
           stage_switch_ > 0
@@ -193,6 +208,151 @@ class PtychographicEngine final : public Engine {
   }
 
  private:
+  // Joint lines (LineMode, cma_problem.h): one incoherent exit-wave mode per line, the mixed-state
+  // ePIE of P. Thibault and A. Menzel, Nature 494, 68 (2013). Mode 0 is the reference line
+  // (probe G_0), mode 1 + l line l (probe P_l = a_l exp(i D_l s) G_l(s + tau + t_l), a_l =
+  // sqrt(s_l)). Per delay: every mode's exit wave from the same eps, one joint projection
+  // (project_modes), then per mode the ePIE steps with the object normalised by
+  // max sum_k |P_k|^2 = 1 + sum_l s_l:
+  //   eps += beta_object conj(P_k) d_k / (1 + sum_l s_l),
+  //   G_k += beta_gate conj(a_k exp(i D_k s) eps) d_k / (a_k^2 max|eps|^2)   (a_0 = 1, D_0 = 0).
+  // Each line's amplitude takes one Gauss-Newton step per sweep on its exit waves, from the sums
+  // over the delays of the sweep (psi the mode before the projection, d = psi' - psi):
+  //   a_l <- a_l (1 + sum Re(conj(psi) d) / sum |psi|^2)   (factor kept in [0.5, 2]).
+  // After the sweep the gates are tied to one A(t) (reconcile_line_gates, weights 1 and s_l),
+  // the spectral constraints act on the reference gate, each line's delay takes the step of its
+  // least-squares profile (CmaProblem::line_delay_step: the parabola through t_l and
+  // t_l +- kProfileStepAs, at most kMaxDelayStepAs), and the line gates are rebuilt from the
+  // reference's A at their own central momenta and the new delays. (A Gauss-Newton step on the
+  // exit waves, d psi / d t_l = i phi' psi, moved t_l by only ~3 % of its error per sweep: the
+  // projection corrects moduli, and a delay error shows mostly in phases.)
+  void prepare_lines(const RetrievalProblem& problem) {
+    modes_ = cma_->line_modes();
+    for (const ExtraLine& e : problem.extra_lines) {
+      amp_.push_back(std::sqrt(std::max(e.strength, kMinStrength)));
+      delay_.push_back(e.delay_au);
+    }
+    banded_ = true;  // one gate per line instead of momentum nodes: no second stage
+    const std::size_t nm = 1 + modes_.size(), n = cma_->samples();
+    g_.assign(nm, CVec(n, 0.0));
+    psi_.assign(nm, CVec(n, 0.0));
+    spec_.assign(nm, CVec(n, 0.0));
+    gp_.assign(nm, nullptr);
+    probe_.assign(n, 0.0);
+    gn_.assign(2 * modes_.size(), 0.0);
+    rebuild_line_gates();
+  }
+
+  // Line gates from the reference gate's A (which this also smooths) at the current delays;
+  // with `search`, each line's delay first takes its least-squares profile step
+  // (CmaProblem::line_delay_step) against the model of the other modes.
+  void rebuild_line_gates(bool search = false) {
+    std::vector<PhaseGate> line_gates(gates_.begin() + 1, gates_.end());
+    gates_.resize(1);
+    const std::vector<double> A = cma_->reconcile_line_gates(eps_, gates_, {}, {}, cover_);
+    if (search && line_gates.size() == modes_.size()) {
+      gates_.insert(gates_.end(), line_gates.begin(), line_gates.end());
+      const std::vector<Eigen::MatrixXd> M = cma_->line_model_traces(eps_, gates_, modes_, amp_);
+      Eigen::MatrixXd all = M[0];
+      for (std::size_t l = 1; l < M.size(); ++l) all += M[l];
+      const double h = kProfileStepAs * units::as_to_au(1.0);
+      const double max_step = kMaxDelayStepAs * units::as_to_au(1.0);
+      for (std::size_t l = 0; l < modes_.size(); ++l)
+        delay_[l] = cma_->line_delay_step(eps_, A, gates_[0], modes_[l], all - M[l + 1], delay_[l],
+                                          h, max_step);
+      gates_.resize(1);
+    }
+    for (std::size_t l = 0; l < modes_.size(); ++l)
+      gates_.push_back(cma_->line_gate(A, gates_[0], modes_[l].p0_au, delay_[l]));
+  }
+
+  IterationRecord iterate_lines(int k) {
+    std::shuffle(order_.begin(), order_.end(), rng_);
+    const std::size_t n = cma_->samples(), nm = gates_.size();
+    std::size_t lo = 0, hi = n;
+    CmaProblem::support(eps_, &lo, &hi);
+    double max_e2 = 0.0;
+    for (std::size_t q = lo; q < hi; ++q) max_e2 = std::max(max_e2, std::norm(eps_[q]));
+    double probe_power = 1.0;
+    for (double a : amp_) probe_power += a * a;
+    const double bo = beta_o_ / probe_power;
+    std::fill(gn_.begin(), gn_.end(), 0.0);
+    const double inv_n = 1.0 / static_cast<double>(n);
+    ErrorSums sums;
+    for (const std::size_t j : order_) {
+      for (std::size_t m = 0; m < nm; ++m) {
+        gp_[m] = gates_[m].sample_product(j, eps_.data(), g_[m].data(), psi_[m].data(), lo, hi);
+        if (m > 0) {
+          const CVec& mod = modes_[m - 1].modulation;
+          const double a = amp_[m - 1];
+          for (std::size_t q = 0; q < n; ++q) psi_[m][q] *= a * mod[q];
+        }
+        cma_->fft().time_to_freq(psi_[m], spec_[m]);
+      }
+      cma_->project_modes(j, spec_, nm, sums, scratch_.data());
+      for (std::size_t m = 0; m < nm; ++m) {
+        cma_->fft().freq_to_time(spec_[m], back_);
+        double cg = max_e2 > 0 ? beta_g_ / max_e2 : 0.0;
+        const cdouble* probe = gp_[m];
+        if (m > 0) {
+          const std::size_t l = m - 1;
+          const CVec& mod = modes_[l].modulation;
+          const cdouble* g = gp_[m];
+          const CVec& psi = psi_[m];
+          double* acc = &gn_[2 * l];
+          for (std::size_t q = lo; q < hi; ++q) {
+            acc[0] += std::real(std::conj(psi[q]) * (back_[q] * inv_n - psi[q]));
+            acc[1] += std::norm(psi[q]);
+          }
+          for (std::size_t q = 0; q < n; ++q) probe_[q] = amp_[l] * mod[q] * g[q];
+          probe = probe_.data();
+          cg /= amp_[l];
+        }
+        max_e2 = epie_update(
+            reinterpret_cast<const double*>(probe), reinterpret_cast<const double*>(back_.data()),
+            reinterpret_cast<const double*>(psi_[m].data()), reinterpret_cast<double*>(eps_.data()),
+            reinterpret_cast<double*>(du_.data()), n, lo, hi, bo, cg);
+        if (m > 0) {
+          const CVec& mod = modes_[m - 1].modulation;
+          for (std::size_t q = lo; q < hi; ++q) du_[q] *= std::conj(mod[q]);
+        }
+        gates_[m].update(j, du_.data(), lo, hi);
+      }
+    }
+    const double G = cma_->trace_error(sums);
+    // The lines' amplitudes (one Gauss-Newton step each, bounded).
+    for (std::size_t l = 0; l < modes_.size(); ++l) {
+      const double* acc = &gn_[2 * l];
+      if (acc[1] > 0) amp_[l] *= std::clamp(1.0 + acc[0] / acc[1], 0.5, 2.0);
+      amp_[l] = std::max(amp_[l], std::sqrt(kMinStrength));
+    }
+    // One A(t) for every gate, the spectral constraints on the reference gate, the line gates
+    // from its A.
+    std::vector<double> strength(amp_.size());
+    for (std::size_t l = 0; l < amp_.size(); ++l) strength[l] = amp_[l] * amp_[l];
+    (void)cma_->reconcile_line_gates(eps_, gates_, modes_, strength, cover_);
+    cma_->constrain(k, eps_, gates_[0], work_, cover_);
+    rebuild_line_gates(true);
+    keep_best(G);
+    return record(G);
+  }
+
+  // The estimate of the lowest running trace error so far is the one returned.
+  void keep_best(double G) {
+    if (!(G < best_)) return;
+    best_ = G;
+    best_eps_ = eps_;
+    best_gates_ = gates_;
+    best_amp_ = amp_;
+    best_delay_ = delay_;
+  }
+  IterationRecord record(double G) const {
+    IterationRecord r;
+    r.trace_error = G;
+    r.step_size = beta_o_;
+    return r;
+  }
+
   // Returns max |eps|^2 over [lo, hi) after the update.
   double update_object(const cdouble* gp, const CVec& psi, std::size_t lo, std::size_t hi,
                        double cg) {
@@ -224,6 +384,17 @@ class PtychographicEngine final : public Engine {
   CVec best_eps_;
   std::vector<PhaseGate> best_gates_;
   double best_ = 0.0;
+  // Joint lines (empty: one line): the modes, amplitudes a_l = sqrt(s_l), delays t_l (a.u.), the
+  // probe buffer of a line mode and the Gauss-Newton sums (4 per line).
+  std::vector<LineMode> modes_;
+  std::vector<double> amp_, delay_, best_amp_, best_delay_, gn_;
+  CVec probe_;
+  // The delay profile's trial step and the bound of one sweep's delay step (common practice: a
+  // step well below the XUV's duration keeps the parabola a local model of the profile), and
+  // the smallest strength kept.
+  static constexpr double kMaxDelayStepAs = 10.0;
+  static constexpr double kProfileStepAs = 3.0;
+  static constexpr double kMinStrength = 1e-4;
 };
 
 }  // namespace

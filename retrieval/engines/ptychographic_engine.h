@@ -25,9 +25,21 @@
 // Chosen on the synthetic traces of tests/test_ptychographic.cpp (noise-free and Poisson;
 // beta_gate in [1, 2] and beta_object in [0.1, 0.5] all converge there).
 //
+// Several photoelectron lines (RetrievalProblem::extra_lines, setting joint_lines, default on):
+// one incoherent exit-wave mode per line and delay, the counts their sum (mixed-state
+// ptychography, P. Thibault and A. Menzel, Nature 494, 68 (2013)); each line's mode is the
+// shared XUV moved to its kinetic energy, scaled by the square root of its strength and seeing
+// the shared A(t) at its own central momentum and delay (LineMode, cma_problem.h). Per delay: one
+// joint projection of the modes, then the ePIE steps of every mode with the object normalised by
+// 1 + sum of the strengths; per sweep: the gates tied to one A(t), each line's strength by a
+// Gauss-Newton step and its delay by a step on its least-squares profile. The XUV support is
+// cut between the lines (joint_lines_reach), the field-free spectrum used for its centroid only,
+// no momentum nodes. Reported as joint_line.<l>.delay_as / .strength / .counts_ratio in the
+// Reconstruction's settings (docs/theory.md "Joint lines in the CMA").
+//
 // Settings: PtychographicSettings (retrieval/engines/ptychographic_settings.h; carried typed by
 // EngineOptions::settings), described once in its describe() (the step sizes above, the momentum
-// nodes and the CMA settings of retrieval/engines/cma_settings.h).
+// nodes, the joint lines and the CMA settings of retrieval/engines/cma_settings.h).
 
 #include <memory>
 
