@@ -67,7 +67,8 @@ struct RetrievalProblem {
   /// weight of 0 (saturated bins) means the element is not data: projections keep the model
   /// there and least squares ignore it.
   Eigen::MatrixXd weight;
-  /// Further lines fitted jointly with the reference (full-model engine only; empty = one line).
+  /// Further lines fitted jointly with the reference (the full-model engine, and the
+  /// ptychographic engine with its joint_lines setting; empty = one line).
   std::vector<ExtraLine> extra_lines;
 };
 
