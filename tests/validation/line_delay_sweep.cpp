@@ -24,7 +24,8 @@
 // spectral fringes), skewed (a tabulated spectrum, the Gaussian times 1 + 0.7 tanh((E - E0) / w),
 // w = half the FWHM: its peak moved and one flank steeper).
 // --fwhm-as T: every scan's transform-limited FWHM (as), the gdd and tod phases scaled with it
-// (apply_shape), to move the lines' separation in units of their width.
+// (apply_shape), to move the lines' separation in units of their width. --phase-scale F: a
+// factor on those gdd and tod phases (default 1).
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -78,12 +79,14 @@ std::string f(double v, int prec = 4) {
 // --shape (header comment).
 // fwhm_as > 0: the pulse's transform limit, with the gdd and tod phases scaled by (fwhm_as /
 // the target's) squared and cubed, so that the phase at a given fraction of the bandwidth stays.
-void apply_shape(const std::string& shape, double fwhm_as, synthetic::ScanConfig& c) {
+// phase_scale: a factor on the gdd and tod phases.
+void apply_shape(const std::string& shape, double fwhm_as, double phase_scale,
+                 synthetic::ScanConfig& c) {
   GaussianXuvPulse& g = c.xuv.gaussian;
   const double scale = fwhm_as > 0 ? fwhm_as / g.transform_limited_fwhm_as : 1.0;
   if (fwhm_as > 0) g.transform_limited_fwhm_as = fwhm_as;
-  if (shape == "gdd") g.gdd_as2 = 8000.0 * scale * scale;
-  if (shape == "tod") g.tod_as3 = 2e5 * scale * scale * scale;
+  if (shape == "gdd") g.gdd_as2 = 8000.0 * phase_scale * scale * scale;
+  if (shape == "tod") g.tod_as3 = 2e5 * phase_scale * scale * scale * scale;
   if (shape == "dipole") c.dipole = DipoleKind::kHydrogenic;
   if (shape == "satellites") {
     c.xuv.kind = synthetic::XuvKind::kSatellites;
@@ -122,7 +125,7 @@ int main(int argc, char** argv) {
                  "[--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] "
                  "[--joint B] [--delays LIST] [--strengths LIST] [--band-check F] [--shard I/N] "
                  "[--row-estimator band|profile] [--shape gdd|tod|dipole|satellites|skewed] "
-                 "[--fwhm-as T]\n");
+                 "[--fwhm-as T] [--phase-scale F]\n");
     return code;
   };
   const std::string out = argc > 1 ? argv[1] : "docs";
@@ -140,8 +143,9 @@ int main(int argc, char** argv) {
   double band_check = 2.0;
   int shard = 0, shards = 1;
   std::string row_estimator = LineDelayOptions().row_estimator;
-  std::string shape;   // empty: the targets as they are
-  double fwhm_as = 0;  // > 0: --fwhm-as, the transform limit of every scan
+  std::string shape;       // empty: the targets as they are
+  double fwhm_as = 0;      // > 0: --fwhm-as, the transform limit of every scan
+  double phase_scale = 1;  // --phase-scale: factor on the gdd and tod phases
   // The flags followed by one integer or one number, and where each value goes.
   const std::pair<const char*, int*> integer_flags[] = {{"--retrieve-every", &retrieve_every},
                                                         {"--bootstrap", &bootstrap},
@@ -150,7 +154,8 @@ int main(int argc, char** argv) {
   const std::pair<const char*, double*> number_flags[] = {{"--strength", &only_strength},
                                                           {"--peak", &only_peak},
                                                           {"--band", &band_factor},
-                                                          {"--fwhm-as", &fwhm_as}};
+                                                          {"--fwhm-as", &fwhm_as},
+                                                          {"--phase-scale", &phase_scale}};
   // The flags followed by a comma-separated list of numbers.
   const std::pair<const char*, std::vector<double>*> list_flags[] = {
       {"--delays", &only_delays}, {"--strengths", &only_strengths}};
@@ -224,7 +229,7 @@ int main(int argc, char** argv) {
           c.lines[1].delay_as = d;
           c.lines[1].relative_strength = st;
           c.noise.peak_counts = peak;
-          apply_shape(shape, fwhm_as, c);
+          apply_shape(shape, fwhm_as, phase_scale, c);
           const auto t0 = std::chrono::steady_clock::now();
           const synthetic::SyntheticScan s =
               synthetic::generate_scan(c, 7000 + static_cast<unsigned long long>(n));
