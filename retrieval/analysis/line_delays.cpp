@@ -143,7 +143,7 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
                                             const std::vector<double>& tau,
                                             const std::vector<double>& bg,
                                             const std::vector<LineEntry>& lines, double omega,
-                                            const LineDelayOptions& o) {
+                                            const LineDelayOptions& o, bool measure_separation) {
   LineDelayEstimate est;
   const Eigen::Index nr = C.rows(), ne = C.cols();
   const std::size_t K = lines.size();
@@ -344,9 +344,10 @@ LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& C, const std:
   // Per-row Gaussian fits of every line (retrieval/analysis/line_profiles.h), started from the
   // bands' converged centres: their widths give the lines' separation in rms widths (reported:
   // the quality check line_separation_widths), and with row_estimator = "profile" their
-  // centres replace the band moments of step 1.
-  {
-    const bool profile = o.row_estimator == "profile";
+  // centres replace the band moments of step 1. Skipped when neither is asked for (the band
+  // estimator's bootstrap replicas).
+  const bool profile = o.row_estimator == "profile";
+  if (profile || measure_separation) {
     std::vector<double> bin_width(W.size()), s0(K), row(W.size());
     std::vector<std::vector<double>> widths(K);
     for (std::size_t j = 0; j < W.size(); ++j) bin_width[j] = edge[j + 1] - edge[j];
@@ -717,15 +718,15 @@ LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEn
   LineDelayEstimate e0b;
   if (consistency)
     e0b = centre_of_energy_estimate(trace.counts, trace.energy_au, trace.delay_au, bg, sel, omega,
-                                    o2);
+                                    o2, false);
   // Bootstrap replicas.
   const std::size_t K = sel.size();
   std::vector<std::vector<double>> bd(K), bs(K), bdiff(K);
   for (int b = 0; b < o.bootstrap; ++b) {
     const Trace rep = poisson_resample(
         trace, o.seed * 2654435761ULL + 17ULL * static_cast<unsigned long long>(b) + 5);
-    const LineDelayEstimate e =
-        centre_of_energy_estimate(rep.counts, rep.energy_au, rep.delay_au, bg, sel, omega, o);
+    const LineDelayEstimate e = centre_of_energy_estimate(rep.counts, rep.energy_au, rep.delay_au,
+                                                          bg, sel, omega, o, false);
     if (!e.ok) continue;
     for (std::size_t k = 1; k < K; ++k) {
       bd[k].push_back(e.delay_as[k]);
@@ -734,8 +735,8 @@ LineDelayResult measure_line_delays(const Trace& trace, const std::vector<LineEn
     ++res.replicas_used;
     if (consistency && e0b.ok) {
       // Paired: the same replica with the second band.
-      const LineDelayEstimate eb =
-          centre_of_energy_estimate(rep.counts, rep.energy_au, rep.delay_au, bg, sel, omega, o2);
+      const LineDelayEstimate eb = centre_of_energy_estimate(
+          rep.counts, rep.energy_au, rep.delay_au, bg, sel, omega, o2, false);
       if (eb.ok)
         for (std::size_t k = 1; k < K; ++k) bdiff[k].push_back(eb.delay_as[k] - e.delay_as[k]);
     }

@@ -234,12 +234,15 @@ LineDelayEstimate fit_line_moments(const std::vector<LineMoments>& moments, doub
 /// One centre-of-energy estimate on counts (delays x energies, raw) minus a background per
 /// energy bin (counts per row). `lines` are the lines to analyse (centres in
 /// kinetic_energy_eV, index 0 the reference); ir_omega_au the IR frequency.
+/// measure_separation = false skips the per-row Gaussian fits that give separation_widths (then
+/// 0) unless options.row_estimator needs them (the bootstrap replicas use only the delays).
 LineDelayEstimate centre_of_energy_estimate(const Eigen::MatrixXd& counts,
                                             const std::vector<double>& energy_au,
                                             const std::vector<double>& delay_au,
                                             const std::vector<double>& background_per_bin,
                                             const std::vector<LineEntry>& lines, double ir_omega_au,
-                                            const LineDelayOptions& options);
+                                            const LineDelayOptions& options,
+                                            bool measure_separation = true);
 
 /// Throws sw::Error (kUsage) when a name in options.names (other than "none") is not among the
 /// lines (matched by name, or "GAS name"); the message lists the scan's lines.
