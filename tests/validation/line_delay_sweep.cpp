@@ -26,6 +26,10 @@
 // --fwhm-as T: every scan's transform-limited FWHM (as), the gdd and tod phases scaled with it
 // (apply_shape), to move the lines' separation in units of their width. --phase-scale F: a
 // factor on those gdd and tod phases (default 1).
+// --cramer-rao: each row's Cramér–Rao bound of the delay (line_delay_bound.h, from the
+// generator's expected counts: the delay alone, and jointly with the nuisances), written as
+// crb_delay_only_as and crb_delay_as; the summary counts rows whose sigma is below the bound
+// (an understated sigma) and rows at >= 300 counts where the bound itself exceeds 5 as.
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -39,6 +43,7 @@
 #include <vector>
 
 #include "io/figures.h"
+#include "line_delay_bound.h"
 #include "retrieval/analysis/line_delays.h"
 #include "retrieval/analysis/quality.h"
 #include "retrieval/analysis/retrieve.h"
@@ -64,8 +69,11 @@ struct Row {
   std::string method;
   double j_delay = 0, j_sigma = 0, j_strength = 0, j_strength_sigma = 0, j_coe = 0, j_coe_sigma = 0;
   bool j_trusted = false;
+  // The joint fit's bootstrap sigma, its curvature sigma and its delay before the line polish.
+  double j_sigma_boot = 0, j_sigma_curv = 0, j_before_polish = 0;
   double band_diff = 0, band_diff_sigma = 0;  // --band-check (0 = not measured)
   double separation = 0;                      // LineDelayResult::separation_widths
+  double crb_only = 0, crb = 0;               // --cramer-rao (0 = not computed)
   double seconds = 0;
 };
 
@@ -125,14 +133,14 @@ int main(int argc, char** argv) {
                  "[--strength S] [--peak P] [--band F] [--band-iterations N] [--target Ne|Ar] "
                  "[--joint B] [--delays LIST] [--strengths LIST] [--band-check F] [--shard I/N] "
                  "[--row-estimator band|profile] [--shape gdd|tod|dipole|satellites|skewed] "
-                 "[--fwhm-as T] [--phase-scale F]\n");
+                 "[--fwhm-as T] [--phase-scale F] [--cramer-rao]\n");
     return code;
   };
   const std::string out = argc > 1 ? argv[1] : "docs";
   // An option in place of the output folder is a mistake, not a folder name.
   if (out == "--help" || out == "-h") return usage(0);
   if (!out.empty() && out[0] == '-') return usage(2);
-  bool quick = false;
+  bool quick = false, cramer_rao = false;
   int retrieve_every = 5, bootstrap = 24;
   double only_strength = 0, only_peak = 0;  // restrict the grid (0 = all)
   double band_factor = LineDelayOptions().band_half_width_factor;
@@ -170,6 +178,8 @@ int main(int argc, char** argv) {
     };
     if (a == "--quick")
       quick = true;
+    else if (a == "--cramer-rao")
+      cramer_rao = true;
     else if (int* n = destination(integer_flags))
       *n = std::atoi(argv[++i]);
     else if (double* x = destination(number_flags))
@@ -243,6 +253,11 @@ int main(int argc, char** argv) {
           r.truth_fwhm = *s.truth.xuv->fwhm_as;
           PreprocessSummary ps;
           try {
+            if (cramer_rao) {
+              const validation::DelayBound b = validation::line_delay_cramer_rao(c);
+              r.crb_only = b.delay_only_as;
+              r.crb = b.with_nuisances_as;
+            }
             (void)preprocess(s.trace, PreprocessOptions{}, &ps);
             std::vector<double> bg(s.trace.energy_au.size());
             for (std::size_t j = 0; j < bg.size(); ++j)
@@ -299,25 +314,35 @@ int main(int argc, char** argv) {
                   r.j_strength_sigma = l.relative_strength_sigma.value_or(0);
                   r.j_coe = l.relative_delay_as_centre_of_energy.value_or(0);
                   r.j_coe_sigma = l.relative_delay_as_centre_of_energy_sigma.value_or(0);
+                  const std::string key = "line_delays.joint_fit." +
+                                          (l.gas.empty() ? std::string() : l.gas + "_") + l.name;
+                  const auto& ex = rr.result.extra;
+                  r.j_sigma_boot = param_number(ex, key + ".delay_as_sigma_bootstrap").value_or(0);
+                  r.j_sigma_curv = param_number(ex, key + ".delay_as_sigma_curvature").value_or(0);
+                  r.j_before_polish = param_number(ex, key + ".delay_as_before_polish").value_or(0);
                 }
             }
           } catch (const std::exception& e) {
             std::fprintf(stderr, "  failed: %s\n", e.what());
           }
           r.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-          std::fprintf(
-              stderr,
-              "%s peak %5.0f strength %.1f delay %+4.0f: %s %7.2f +- %5.2f as (fit %5.2f) "
-              "strength %.3f/%.3f chi2 %.2f sep %.2f band d %+.2f +- %.2f FWHM %.1f/%.1f %.1f s\n",
-              tg.c_str(), peak, st, d, r.found ? "found" : "MISSED", r.delay_as, r.sigma_as,
-              r.sigma_fit_as, r.strength, r.truth_strength, r.chi2, r.separation, r.band_diff,
-              r.band_diff_sigma, r.fwhm, r.truth_fwhm, r.seconds);
+          std::fprintf(stderr,
+                       "%s peak %5.0f strength %.1f delay %+4.0f: %s %7.2f +- %5.2f as (fit %5.2f) "
+                       "strength %.3f/%.3f chi2 %.2f sep %.2f band d %+.2f +- %.2f FWHM %.1f/%.1f "
+                       "CRB %.2f/%.2f "
+                       "as %.1f s\n",
+                       tg.c_str(), peak, st, d, r.found ? "found" : "MISSED", r.delay_as,
+                       r.sigma_as, r.sigma_fit_as, r.strength, r.truth_strength, r.chi2,
+                       r.separation, r.band_diff, r.band_diff_sigma, r.fwhm, r.truth_fwhm,
+                       r.crb_only, r.crb, r.seconds);
           if (r.joint)
             std::fprintf(stderr,
                          "   joint (%s): %7.2f +- %5.2f as, strength %.3f +- %.3f, centre of "
-                         "energy %7.2f +- %5.2f as, %s\n",
+                         "energy %7.2f +- %5.2f as, %s; sigma bootstrap %.2f, curvature %.2f; "
+                         "before the polish %.2f as\n",
                          r.method.c_str(), r.j_delay, r.j_sigma, r.j_strength, r.j_strength_sigma,
-                         r.j_coe, r.j_coe_sigma, r.j_trusted ? "trusted" : "not trusted");
+                         r.j_coe, r.j_coe_sigma, r.j_trusted ? "trusted" : "not trusted",
+                         r.j_sigma_boot, r.j_sigma_curv, r.j_before_polish);
           rows.push_back(r);
         }
 
@@ -327,13 +352,15 @@ int main(int argc, char** argv) {
     csv << "target,peak_counts,strength_inserted,strength_truth,delay_inserted_as,found,delay_as,"
            "delay_sigma_as,"
            "delay_sigma_fit_as,strength,strength_sigma,reduced_chi2,xuv_fwhm_truth_as,xuv_fwhm_as,"
-           "seconds,band_difference_as,band_difference_sigma_as,separation_widths\n";
+           "seconds,band_difference_as,band_difference_sigma_as,separation_widths,crb_delay_only_"
+           "as,"
+           "crb_delay_as\n";
     for (const Row& r : rows)
       csv << r.target << "," << r.peak << "," << r.strength_in << "," << r.truth_strength << ","
           << r.inserted_as << "," << (r.found ? 1 : 0) << "," << r.delay_as << "," << r.sigma_as
           << "," << r.sigma_fit_as << "," << r.strength << "," << r.strength_sigma << "," << r.chi2
           << "," << r.truth_fwhm << "," << r.fwhm << "," << r.seconds << "," << r.band_diff << ","
-          << r.band_diff_sigma << "," << r.separation << "\n";
+          << r.band_diff_sigma << "," << r.separation << "," << r.crb_only << "," << r.crb << "\n";
   }
   std::ofstream md(out + "/validation_line_delays_table.md");
   // The quality checks line_delay_fit_chi2 and line_separation_widths
@@ -403,6 +430,28 @@ int main(int argc, char** argv) {
      << " %); sigma <= 5 as in " << sig_ok << "/" << sig_n
      << " rows at >= 300 peak counts; XUV FWHM within 5 % in " << fw_ok << "/" << fw_n
      << " retrieved rows.\n";
+  if (cramer_rao) {
+    // The reported sigma against the bound: below it the sigma is understated; a bound above
+    // 5 as at >= 300 counts is a row where the sigma target cannot be met by any unbiased method.
+    int below = 0, bound_over_5 = 0, bounded = 0;
+    std::vector<double> efficiency;  // sigma / bound with nuisances
+    for (const Row& r : rows) {
+      if (!r.found || !(r.crb > 0)) continue;
+      ++bounded;
+      if (r.sigma_as < r.crb) ++below;
+      if (r.peak >= 300 && r.crb > 5) ++bound_over_5;
+      efficiency.push_back(r.sigma_as / r.crb);
+    }
+    std::sort(efficiency.begin(), efficiency.end());
+    const double med = efficiency.empty() ? 0 : efficiency[efficiency.size() / 2];
+    md << "\nCramér–Rao bound (with nuisances): sigma below it in " << below << "/" << bounded
+       << " rows; the bound above 5 as in " << bound_over_5
+       << " rows at >= 300 peak counts; median sigma / bound " << f(med, 3) << ".\n";
+    std::fprintf(stderr,
+                 "Cramer-Rao: sigma below the bound in %d/%d rows; bound > 5 as in %d rows at >= "
+                 "300 counts; median sigma / bound %.2f\n",
+                 below, bounded, bound_over_5, med);
+  }
   std::fprintf(stderr,
                "delay written: %d/%d; passing the quality checks: %d, within 3 sigma %d; delay "
                "within 3 sigma: %d/%d; sigma <= 5 as at >= 300 counts: %d/%d; FWHM within 5 "
@@ -416,7 +465,8 @@ int main(int argc, char** argv) {
           "delay_as,delay_sigma_as,"
           "strength,strength_sigma,delay_centre_of_energy_as,delay_centre_of_energy_sigma_as,xuv_"
           "fwhm_truth_as,xuv_fwhm_as,"
-          "trusted,seconds\n";
+          "trusted,seconds,delay_sigma_bootstrap_as,delay_sigma_curvature_as,"
+          "delay_before_polish_as\n";
     int jn = 0, jw = 0, jf = 0, js_n = 0, js_ok = 0, jt = 0, cw = 0, rows_run = 0;
     for (const Row& r : rows) {
       if (!(r.fwhm > 0)) continue;
@@ -425,7 +475,8 @@ int main(int argc, char** argv) {
          << r.inserted_as << "," << (r.joint ? r.method : std::string("none")) << "," << r.j_delay
          << "," << r.j_sigma << "," << r.j_strength << "," << r.j_strength_sigma << "," << r.j_coe
          << "," << r.j_coe_sigma << "," << r.truth_fwhm << "," << r.fwhm << ","
-         << (r.j_trusted ? 1 : 0) << "," << r.seconds << "\n";
+         << (r.j_trusted ? 1 : 0) << "," << r.seconds << "," << r.j_sigma_boot << ","
+         << r.j_sigma_curv << "," << r.j_before_polish << "\n";
       if (!r.joint) continue;
       ++jn;
       if (r.j_sigma > 0 && std::abs(r.j_delay - r.inserted_as) <= 3 * r.j_sigma) ++jw;
