@@ -95,7 +95,7 @@ TEST_CASE("full-model defaults validate and agree with the option descriptions",
   CHECK(d.validate().empty());
   // Every default in its text form (option_text) passes the text boundary and reads back.
   const auto texts = described_texts(d);
-  CHECK(texts.size() == 14);
+  CHECK(texts.size() == 16);
   EngineSettings from_text;
   apply_engine_option_text("full-model", texts, &from_text);
   const FullModelSettings& r = from_text.full_model;

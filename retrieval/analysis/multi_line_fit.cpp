@@ -103,6 +103,8 @@ JointLineValues joint_line_values(const Reconstruction& r, std::size_t n) {
   v.delay_as.assign(n, NAN);
   v.strength.assign(n, NAN);
   v.dipole_strength.assign(n, NAN);
+  v.delay_before_polish_as.assign(n, NAN);
+  v.delay_curvature_sigma_as.assign(n, NAN);
   for (const auto& [key, value] : r.settings) {
     if (key.rfind("joint_line.", 0) != 0) continue;
     const std::size_t dot = key.find('.', 11);
@@ -116,6 +118,10 @@ JointLineValues joint_line_values(const Reconstruction& r, std::size_t n) {
       v.strength[l] = std::stod(value);
     else if (what == "strength")
       v.dipole_strength[l] = std::stod(value);
+    else if (what == "delay_before_polish_as")
+      v.delay_before_polish_as[l] = std::stod(value);
+    else if (what == "delay_curvature_sigma_as")
+      v.delay_curvature_sigma_as[l] = std::stod(value);
   }
   for (std::size_t l = 0; l < n; ++l)
     if (!std::isfinite(v.delay_as[l]) || !std::isfinite(v.strength[l]))
@@ -282,6 +288,10 @@ void joint_line_report(const JointLineStep& S, int bootstrap, std::vector<LineEn
         "line_delays.joint_fit." + (e.gas.empty() ? std::string() : e.gas + "_") + e.name;
     extra->push_back({key + ".delay_as_estimate", S.values.delay_as[l]});
     extra->push_back({key + ".dipole_strength", S.values.dipole_strength[l]});
+    if (std::isfinite(S.values.delay_curvature_sigma_as[l])) {
+      extra->push_back({key + ".delay_as_before_polish", S.values.delay_before_polish_as[l]});
+      extra->push_back({key + ".delay_as_sigma_curvature", S.values.delay_curvature_sigma_as[l]});
+    }
     const std::size_t reps = S.replica_delay_as[l].size();
     extra->push_back({key + ".replicas", static_cast<long long>(reps)});
     if (bootstrap >= 2 && reps >= 2) {
@@ -290,12 +300,18 @@ void joint_line_report(const JointLineStep& S, int bootstrap, std::vector<LineEn
           bootstrap_estimate(S.values.delay_as[l], S.replica_delay_as[l], 0.0);
       const BootstrapEstimate bs =
           bootstrap_estimate(S.values.strength[l], S.replica_strength[l], 0.0);
-      // Never below the centre-of-energy sigma (24 replicas by default): the spread of the few
-      // headline replicas is itself uncertain by ~1/sqrt(2(B - 1)) (41 % at B = 4), and on the
-      // validation sweep it came out 2-4x below the error in 2 of 6 rows (docs/validation.md).
+      // The delay's sigma is never below the curvature sigma of the joint fit (the cost's
+      // curvature in the delay with the rest held: the Cramer-Rao bound at the fit, which no
+      // unbiased estimate beats), since the spread of the few headline replicas is itself
+      // uncertain by ~1/sqrt(2(B - 1)) (27 % at B = 8). Without a curvature sigma (the CMA),
+      // never below the centre-of-energy sigma (24 replicas by default). The strength keeps the
+      // centre-of-energy floor.
       e.relative_delay_as = bd.value;
+      const double curvature = S.values.delay_curvature_sigma_as[l];
       e.relative_delay_as_sigma =
-          std::max(bd.sigma, e.relative_delay_as_centre_of_energy_sigma.value_or(0.0));
+          std::max(bd.sigma, std::isfinite(curvature) && curvature > 0
+                                 ? curvature
+                                 : e.relative_delay_as_centre_of_energy_sigma.value_or(0.0));
       e.relative_strength = bs.value;
       e.relative_strength_sigma =
           std::max(bs.sigma, e.relative_strength_centre_of_energy_sigma.value_or(0.0));

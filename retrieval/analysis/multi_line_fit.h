@@ -66,6 +66,9 @@ JointLineProblem joint_line_problem(const Trace& trace, const PreprocessOptions&
 /// counts over the reference's). Throws sw::Error (kInternal) when the reconstruction lacks them.
 struct JointLineValues {
   std::vector<double> delay_as, strength, dipole_strength;
+  /// Full model only (NaN otherwise): the delay before the engine's line polish and the sigma
+  /// of the delay from the cost's curvature with the rest held (full_model_engine.h).
+  std::vector<double> delay_before_polish_as, delay_curvature_sigma_as;
 };
 JointLineValues joint_line_values(const Reconstruction& r, std::size_t num_lines);
 
@@ -111,10 +114,10 @@ std::optional<Reconstruction> joint_line_replica(
     const EngineRunner& run, const EngineOptions* cma = nullptr);
 /// Step 3: the lines section. Without the joint fit, the centre-of-energy lines; with it, each
 /// joint line's relative_delay_as / relative_strength from the joint fit with sigma from the
-/// replicas (bootstrap_estimate of retrieval/analysis/quality.h, as the headline numbers; never
-/// below the centre-of-energy sigma, whose 24 replicas estimate the same precision more stably),
-/// the centre-of-energy values beside them, the Coulomb-laser correction applied to the joint
-/// delay.
+/// replicas (bootstrap_estimate of retrieval/analysis/quality.h, as the headline numbers; the
+/// delay's never below the joint fit's curvature sigma, its Cramer-Rao bound at the fit, and the
+/// strength's never below the centre-of-energy sigma), the centre-of-energy values beside them,
+/// the Coulomb-laser correction applied to the joint delay.
 void joint_line_report(const JointLineStep& step, int bootstrap, std::vector<LineEntry>* lines,
                        std::vector<Param>* extra, std::vector<LineCurve>* curves);
 

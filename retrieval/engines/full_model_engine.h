@@ -94,6 +94,15 @@
 // the line's spectral map: d/dt_l = 2 Re sum conj(E~bar_l) i w E~_l, d/d ln s_l = Re sum
 // conj(E~bar_l) E~_l. The field-free-spectrum term is not used in this mode (the reference
 // spectrum then holds every line).
+// Line polish (finalize()): a weak line's delay and strength change the cost by far less than
+// the rules that stop the engine can see (noise floor, relative change of G), so the run can
+// end with them near their start. Each line's ln s_l and t_l are then minimised in turn by
+// golden-section search (t_l within +-30 as, s_l within a factor e^0.5; line_polish_sweeps
+// sweeps) with every other parameter held, L-BFGS follows for 3 engine iterations' worth, and
+// the polish repeats until no delay moves by more than 0.05 of its curvature sigma
+// (line_polish_rounds at most). The curvature sigma sqrt(2 / chi2''(t_l)) (chi2 = C x elements,
+// second difference over +-1 as) is the Cramer-Rao bound of t_l at the fit with the rest held.
+// Settings joint_line.<l>.delay_before_polish_as, .delay_curvature_sigma_as, .polish_rounds.
 
 #include <memory>
 #include <string>

@@ -28,6 +28,8 @@ struct FullModelSettings {
   std::string spectrum_constraint = "centroid";  ///< centroid | amplitude | off
   double ir_lowpass_weight = 100.0;              ///< weight of the IR low-frequency penalty
   int variance_smoothing_bins = 2;               ///< half-width of the variance average (bins)
+  int line_polish_sweeps = 2;  ///< joint lines: golden-section sweeps over delays and strengths
+  int line_polish_rounds = 4;  ///< joint lines: at most this many polishes, L-BFGS between them
 
   /// The one description (retrieval/core/option_spec.h). The text form is checked against the
   /// closed ends of these bounds, validate() against the exact rules (the upper end of
@@ -119,6 +121,20 @@ struct FullModelSettings {
             .min = 0,
             .max = 100},
         self.variance_smoothing_bins);
+    v(OptionSpec{.name = "line_polish_sweeps",
+                 .help = "joint lines: after L-BFGS, sweeps of golden-section minimisations of the "
+                         "cost over each line's delay (+-30 as) and strength (x e^+-0.5) with the "
+                         "pulse and field held (0 = off)",
+                 .min = 0,
+                 .max = 20},
+      self.line_polish_sweeps);
+    v(OptionSpec{.name = "line_polish_rounds",
+                 .help = "joint lines: at most this many polishes, each after 3 engine "
+                         "iterations' worth of L-BFGS, until no delay moves by more than 0.05 of "
+                         "its curvature sigma",
+                 .min = 1,
+                 .max = 20},
+      self.line_polish_rounds);
   }
   /// "" when valid; else names field, value and rule (validate_described).
   std::string validate() const { return validate_described(*this); }
