@@ -1,6 +1,7 @@
 #include "retrieval/engines/cma_kernels.h"
 
 #include <algorithm>
+#include <cmath>
 
 #include "retrieval/core/hot_loop.h"
 
@@ -75,6 +76,132 @@ SW_HOT_LOOP void mode_factors(double* r2, const double* I, const double* a, std:
 SW_HOT_LOOP void scale_bins(double* S, const double* f, std::size_t n) {
 #pragma omp simd
   for (std::size_t q = 0; q < 2 * n; ++q) S[q] *= f[q / 2];
+}
+
+DelayTaps delay_taps(const std::vector<double>& delay, double dt, std::size_t j) {
+  DelayTaps t;
+  const double u = (delay[j] - delay.front()) / dt + 1.0;
+  auto i = static_cast<std::size_t>(std::floor(u));
+  double f = u - static_cast<double>(i);
+  if (f > 1.0 - 1e-6) {
+    ++i;
+    f = 0.0;
+  }
+  t.exact = f < 1e-6;
+  t.first = t.exact ? i : i - 1;
+  if (!t.exact) {
+    t.f = f;
+    t.w[0] = -f * (f - 1.0) * (f - 2.0) / 6.0;
+    t.w[1] = (f + 1.0) * (f - 1.0) * (f - 2.0) / 2.0;
+    t.w[2] = -(f + 1.0) * f * (f - 2.0) / 2.0;
+    t.w[3] = (f + 1.0) * f * (f - 1.0) / 6.0;
+  }
+  return t;
+}
+
+// The ePIE kernels (cma_kernels.h).
+SW_HOT_LOOP double epie_update(const double* G, const double* B, const double* P, double* E,
+                               double* U, std::size_t n, std::size_t lo, std::size_t hi, double bo,
+                               double cg) {
+  double max_e2 = 0.0;
+  const double inv_n = 1.0 / static_cast<double>(n);
+#pragma omp simd
+  for (std::size_t q = 0; q < lo; ++q) {
+    const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
+    const double gr = G[2 * q], gi = G[2 * q + 1];
+    E[2 * q] += bo * (gr * dr + gi * di);
+    E[2 * q + 1] += bo * (gr * di - gi * dr);
+  }
+#pragma omp simd reduction(max : max_e2)
+  for (std::size_t q = lo; q < hi; ++q) {
+    const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
+    const double er = E[2 * q], ei = E[2 * q + 1], gr = G[2 * q], gi = G[2 * q + 1];
+    const double nr = er + bo * (gr * dr + gi * di), ni = ei + bo * (gr * di - gi * dr);
+    E[2 * q] = nr;
+    E[2 * q + 1] = ni;
+    U[2 * q] = cg * (er * dr + ei * di);
+    U[2 * q + 1] = cg * (er * di - ei * dr);
+    max_e2 = std::max(max_e2, nr * nr + ni * ni);
+  }
+#pragma omp simd
+  for (std::size_t q = hi; q < n; ++q) {
+    const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
+    const double gr = G[2 * q], gi = G[2 * q + 1];
+    E[2 * q] += bo * (gr * dr + gi * di);
+    E[2 * q + 1] += bo * (gr * di - gi * dr);
+  }
+  return max_e2;
+}
+
+SW_HOT_LOOP void exit_wave_interp(const double* T, const double* E, double* G, double* P,
+                                  std::size_t n, std::size_t lo, std::size_t hi, double f,
+                                  const double* w) {
+  const double f1 = 1.0 - f;
+#pragma omp simd
+  for (std::size_t q = 0; q < lo; ++q) {
+    const std::size_t k = 2 * q;
+    const double gr = f1 * T[k + 2] + f * T[k + 4], gi = f1 * T[k + 3] + f * T[k + 5];
+    const double er = E[k], ei = E[k + 1];
+    P[k] = er * gr - ei * gi;
+    P[k + 1] = er * gi + ei * gr;
+  }
+  const double w0 = w[0], w1 = w[1], w2 = w[2], w3 = w[3];
+#pragma omp simd
+  for (std::size_t q = lo; q < hi; ++q) {
+    const std::size_t k = 2 * q;
+    const double gr = w0 * T[k] + w1 * T[k + 2] + w2 * T[k + 4] + w3 * T[k + 6];
+    const double gi = w0 * T[k + 1] + w1 * T[k + 3] + w2 * T[k + 5] + w3 * T[k + 7];
+    G[k] = gr;
+    G[k + 1] = gi;
+    const double er = E[k], ei = E[k + 1];
+    P[k] = er * gr - ei * gi;
+    P[k + 1] = er * gi + ei * gr;
+  }
+#pragma omp simd
+  for (std::size_t q = hi; q < n; ++q) {
+    const std::size_t k = 2 * q;
+    const double gr = f1 * T[k + 2] + f * T[k + 4], gi = f1 * T[k + 3] + f * T[k + 5];
+    const double er = E[k], ei = E[k + 1];
+    P[k] = er * gr - ei * gi;
+    P[k + 1] = er * gi + ei * gr;
+  }
+}
+
+SW_HOT_LOOP double epie_update_interp(const double* T, const double* G, const double* B,
+                                      const double* P, double* E, double* U, std::size_t n,
+                                      std::size_t lo, std::size_t hi, double bo, double cg,
+                                      double f) {
+  double max_e2 = 0.0;
+  const double inv_n = 1.0 / static_cast<double>(n);
+  const double f1 = 1.0 - f;
+#pragma omp simd
+  for (std::size_t q = 0; q < lo; ++q) {
+    const std::size_t k = 2 * q;
+    const double dr = B[k] * inv_n - P[k], di = B[k + 1] * inv_n - P[k + 1];
+    const double gr = f1 * T[k + 2] + f * T[k + 4], gi = f1 * T[k + 3] + f * T[k + 5];
+    E[k] += bo * (gr * dr + gi * di);
+    E[k + 1] += bo * (gr * di - gi * dr);
+  }
+#pragma omp simd reduction(max : max_e2)
+  for (std::size_t q = lo; q < hi; ++q) {
+    const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
+    const double er = E[2 * q], ei = E[2 * q + 1], gr = G[2 * q], gi = G[2 * q + 1];
+    const double nr = er + bo * (gr * dr + gi * di), ni = ei + bo * (gr * di - gi * dr);
+    E[2 * q] = nr;
+    E[2 * q + 1] = ni;
+    U[2 * q] = cg * (er * dr + ei * di);
+    U[2 * q + 1] = cg * (er * di - ei * dr);
+    max_e2 = std::max(max_e2, nr * nr + ni * ni);
+  }
+#pragma omp simd
+  for (std::size_t q = hi; q < n; ++q) {
+    const std::size_t k = 2 * q;
+    const double dr = B[k] * inv_n - P[k], di = B[k + 1] * inv_n - P[k + 1];
+    const double gr = f1 * T[k + 2] + f * T[k + 4], gi = f1 * T[k + 3] + f * T[k + 5];
+    E[k] += bo * (gr * dr + gi * di);
+    E[k + 1] += bo * (gr * di - gi * dr);
+  }
+  return max_e2;
 }
 
 void project_amplitude(double* S, const double* I, const double* a, std::size_t n, double dt2,

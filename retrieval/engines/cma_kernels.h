@@ -8,6 +8,7 @@
 // tests/test_cma_kernels.cpp checks them against a plain scalar reference.
 
 #include <cstddef>
+#include <vector>
 
 namespace sw::cma_kernels {
 
@@ -33,5 +34,43 @@ void mode_factors(double* r2, const double* I, const double* a, std::size_t n, d
 
 /// S_q <- f_q S_q (both components).
 void scale_bins(double* S, const double* f, std::size_t n);
+
+/// How the gate samples of one delay are read from the gate table (PhaseGate, gate.h): from
+/// node `first`, and for a delay that is not an exact shift with the fraction f of the linear
+/// interpolation and the four cubic Lagrange weights w.
+struct DelayTaps {
+  std::size_t first = 0;
+  bool exact = true;
+  double f = 0.0;
+  double w[4] = {0.0, 1.0, 0.0, 0.0};
+};
+
+/// The taps of delay j of the ascending delays `delay_au` on a table of step dt_au, computed as
+/// PhaseGate's constructor computes them (tests/test_cma_kernels.cpp checks them against it).
+DelayTaps delay_taps(const std::vector<double>& delay_au, double dt_au, std::size_t j);
+
+/// The ePIE updates of one delay (ptychographic engine; interleaved (re, im) arrays of n
+/// samples), d = psi' - psi = B / n - P with B the inverse FFT of the projected spectrum and P
+/// the exit wave psi:
+///   E += bo conj(G) d on every sample (the probe's max |G|^2 is 1);
+///   U = cg conj(E) d (cg = beta_gate / max|E|^2, E before this update) on [lo, hi).
+/// Returns max |E|^2 over [lo, hi) after the update (the next step's object normalisation).
+double epie_update(const double* G, const double* B, const double* P, double* E, double* U,
+                   std::size_t n, std::size_t lo, std::size_t hi, double bo, double cg);
+
+/// The exit wave P = E G(s + tau_j) of a delay that is not an exact shift of the gate table,
+/// G read from the table T (from the delay's first stencil node, PhaseGate::first_node) as
+/// PhaseGate::sample_product reads it, bit for bit: linear interpolation with fraction f
+/// between nodes 1 and 2 off [lo, hi) (0 <= lo <= hi <= n), 4-tap cubic weights w on it. Only
+/// the cubic samples are stored in G (on [lo, hi)); epie_update_interp recomputes the linear
+/// ones from the same, unchanged, table instead of reading them back.
+void exit_wave_interp(const double* T, const double* E, double* G, double* P, std::size_t n,
+                      std::size_t lo, std::size_t hi, double f, const double* w);
+
+/// epie_update for a delay sampled by exit_wave_interp: the gate off [lo, hi) recomputed from T
+/// and f, on [lo, hi) the stored samples G. The same numbers as epie_update with the full gate.
+double epie_update_interp(const double* T, const double* G, const double* B, const double* P,
+                          double* E, double* U, std::size_t n, std::size_t lo, std::size_t hi,
+                          double bo, double cg, double f);
 
 }  // namespace sw::cma_kernels

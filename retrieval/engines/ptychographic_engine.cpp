@@ -12,6 +12,7 @@
 #include "retrieval/core/format.h"
 #include "retrieval/core/hot_loop.h"
 #include "retrieval/core/units.h"
+#include "retrieval/engines/cma_kernels.h"
 #include "retrieval/engines/cma_problem.h"
 #include "retrieval/physics/gate.h"
 
@@ -19,42 +20,11 @@ namespace sw {
 
 namespace {
 
-// The ePIE updates of one delay, d = psi' - psi = back / N - psi:
-//   eps += bo conj(G) d / max|G|^2 (= 1) on every sample;
-//   U = cg conj(eps) d (cg = beta_gate / max|eps|^2, eps before this update) on [lo, hi).
-// Returns max |E|^2 over [lo, hi) after the update (the next step's object normalisation).
-SW_HOT_LOOP double epie_update(const double* G, const double* B, const double* P, double* E,
-                               double* U, std::size_t n, std::size_t lo, std::size_t hi, double bo,
-                               double cg) {
-  double max_e2 = 0.0;
-  const double inv_n = 1.0 / static_cast<double>(n);
-#pragma omp simd
-  for (std::size_t q = 0; q < lo; ++q) {
-    const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
-    const double gr = G[2 * q], gi = G[2 * q + 1];
-    E[2 * q] += bo * (gr * dr + gi * di);
-    E[2 * q + 1] += bo * (gr * di - gi * dr);
-  }
-#pragma omp simd reduction(max : max_e2)
-  for (std::size_t q = lo; q < hi; ++q) {
-    const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
-    const double er = E[2 * q], ei = E[2 * q + 1], gr = G[2 * q], gi = G[2 * q + 1];
-    const double nr = er + bo * (gr * dr + gi * di), ni = ei + bo * (gr * di - gi * dr);
-    E[2 * q] = nr;
-    E[2 * q + 1] = ni;
-    U[2 * q] = cg * (er * dr + ei * di);
-    U[2 * q + 1] = cg * (er * di - ei * dr);
-    max_e2 = std::max(max_e2, nr * nr + ni * ni);
-  }
-#pragma omp simd
-  for (std::size_t q = hi; q < n; ++q) {
-    const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
-    const double gr = G[2 * q], gi = G[2 * q + 1];
-    E[2 * q] += bo * (gr * dr + gi * di);
-    E[2 * q + 1] += bo * (gr * di - gi * dr);
-  }
-  return max_e2;
-}
+using cma_kernels::delay_taps;
+using cma_kernels::DelayTaps;
+using cma_kernels::epie_update;
+using cma_kernels::epie_update_interp;
+using cma_kernels::exit_wave_interp;
 
 class PtychographicEngine final : public Engine {
  public:
@@ -111,7 +81,11 @@ class PtychographicEngine final : public Engine {
     modes_.clear();
     amp_.clear();
     delay_.clear();
-    if (lines) prepare_lines(problem);
+    taps_.clear();
+    if (lines)
+      prepare_lines(problem);
+    else
+      prepare_taps();
     best_eps_ = eps_;
     best_gates_ = gates_;
     best_amp_ = amp_;
@@ -132,8 +106,15 @@ class PtychographicEngine final : public Engine {
       const std::size_t nb = gates_.size();
       // Every node's exit wave from the same eps; one projection of the (interpolated) rows;
       // then one ePIE step per node with its share of the change (one node: plain ePIE).
+      const DelayTaps* tap = taps_.empty() || taps_[j].exact ? nullptr : &taps_[j];
       for (std::size_t b = 0; b < nb; ++b) {
-        gp_[b] = gates_[b].sample_product(j, eps_.data(), g_[b].data(), psi_[b].data(), lo, hi);
+        if (tap)
+          exit_wave_interp(table_at(b, *tap), reinterpret_cast<const double*>(eps_.data()),
+                           reinterpret_cast<double*>(g_[b].data()),
+                           reinterpret_cast<double*>(psi_[b].data()), n, lo, hi, tap->f, tap->w);
+        else
+          gp_[b] =
+              gates_[b].sample_product(j, eps_.data(), g_[b].data(), psi_[b].data(), lo, hi);
         cma_->fft().time_to_freq(psi_[b], spec_[b]);
       }
       if (nb == 1)
@@ -143,7 +124,15 @@ class PtychographicEngine final : public Engine {
       for (std::size_t b = 0; b < nb; ++b) {
         cma_->fft().freq_to_time(spec_[b], back_);
         const double cg = max_e2 > 0 ? beta_g_ / max_e2 : 0.0;
-        max_e2 = update_object(gp_[b], psi_[b], lo, hi, cg);
+        if (tap)
+          max_e2 = epie_update_interp(
+              table_at(b, *tap), reinterpret_cast<const double*>(g_[b].data()),
+              reinterpret_cast<const double*>(back_.data()),
+              reinterpret_cast<const double*>(psi_[b].data()),
+              reinterpret_cast<double*>(eps_.data()), reinterpret_cast<double*>(du_.data()), n,
+              lo, hi, beta_o_, cg, tap->f);
+        else
+          max_e2 = update_object(gp_[b], psi_[b], lo, hi, cg);
         gates_[b].update(j, du_.data(), lo, hi);
       }
     }
@@ -337,6 +326,24 @@ class PtychographicEngine final : public Engine {
     return record(G);
   }
 
+  // The gate taps of every delay (cma_kernels::delay_taps); left empty (every delay through PhaseGate::sample_product) if any delay's
+  // node or exactness differs from the gate's own.
+  void prepare_taps() {
+    const PhaseGate& g = gates_[0];
+    const std::vector<double>& delay = cma_->problem().delay_au;
+    taps_.assign(delay.size(), DelayTaps{});
+    for (std::size_t j = 0; j < delay.size(); ++j) {
+      const DelayTaps& t = taps_[j] = delay_taps(delay, g.dt(), j);
+      if (t.exact != g.exact_shift(j) || t.first != g.first_node(j)) {
+        taps_.clear();
+        return;
+      }
+    }
+  }
+  const double* table_at(std::size_t b, const DelayTaps& t) const {
+    return reinterpret_cast<const double*>(gates_[b].table().data() + t.first);
+  }
+
   // The estimate of the lowest running trace error so far is the one returned.
   void keep_best(double G) {
     if (!(G < best_)) return;
@@ -369,6 +376,7 @@ class PtychographicEngine final : public Engine {
   CVec eps_, back_, du_, work_, comb_, before_;
   std::vector<CVec> g_, psi_, spec_;  // per momentum node
   std::vector<const cdouble*> gp_;
+  std::vector<DelayTaps> taps_;  // per delay (empty: PhaseGate::sample_product)
   std::vector<double> cover_, scratch_;
   static constexpr std::size_t kMaxOneGateIterations = 100;
   static constexpr double kNodesMinRatio = 1.1;  // common practice (see iterate())
