@@ -15,6 +15,8 @@
 #include <vector>
 
 #include "retrieval/core/grid.h"
+#include "retrieval/core/units.h"
+#include "retrieval/engines/cma_problem_internal.h"
 #include "retrieval/physics/gate.h"
 
 namespace {
@@ -214,4 +216,50 @@ TEST_CASE("the interpolated ePIE kernels equal PhaseGate sampling bit for bit", 
     }
   }
   CHECK(interpolated > 10);
+}
+
+// The node-by-node coverage of the CMA constraints (cma_problem_internal.h) against
+// PhaseGate::coverage: the same sums in the same order, so the same bits.
+TEST_CASE("the blocked gate coverage equals PhaseGate::coverage bit for bit", "[cma_kernels]") {
+  std::mt19937 rng(5);
+  std::normal_distribution<double> g(0.0, 1.0);
+  for (const std::size_t n : {64u, 100u, 256u}) {
+    const sw::TimeGrid grid = sw::TimeGrid::centered(n, 0.7);
+    std::vector<double> on_nodes, off_nodes;
+    for (int j = 0; j < 41; ++j) {
+      on_nodes.push_back(-10.0 + 1.4 * j);  // exact shifts (2 dt)
+      off_nodes.push_back(-10.0 + 0.83 * j + (j % 3 == 0 ? 0.05 : 0.0));
+    }
+    for (const auto* delay : {&on_nodes, &off_nodes}) {
+      sw::PhaseGate gate(grid, *delay, 3.0);
+      sw::CVec eps(n);
+      for (std::size_t q = 0; q < n; ++q) {
+        const double env = std::exp(-std::pow((static_cast<double>(q) - 0.4 * n) / 9.0, 2));
+        eps[q] = sw::cdouble(env * g(rng), env * g(rng) + 1e-7 * g(rng));
+      }
+      std::vector<double> want, got;
+      gate.coverage(eps, want);
+      sw::cma_detail::coverage(gate, *delay, eps, got);
+      INFO("n = " << n << (delay == &on_nodes ? ", exact shifts" : ", interpolated"));
+      REQUIRE(got.size() == want.size());
+      bool same = true;
+      for (std::size_t m = 0; m < want.size(); ++m) same = same && got[m] == want[m];
+      CHECK(same);
+      // Delays that are not the gate's: PhaseGate::coverage itself.
+      std::vector<double> other = *delay;
+      other.pop_back();
+      sw::cma_detail::coverage(gate, other, eps, got);
+      CHECK(got == want);
+    }
+  }
+  // The Hann weights (common practice: the sin^2 window), as align_vector_potential formed them
+  // in its own loop before they were kept per thread.
+  for (const std::size_t m : {9u, 300u, 9u}) {
+    const std::vector<double>& w = sw::cma_detail::hann_weights(m);
+    REQUIRE(w.size() == m);
+    for (std::size_t i = 0; i < m; ++i) {
+      const double x = (static_cast<double>(i) + 0.5) / static_cast<double>(m);
+      CHECK(w[i] == std::sin(sw::units::kPi * x) * std::sin(sw::units::kPi * x));
+    }
+  }
 }
