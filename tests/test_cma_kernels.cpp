@@ -174,8 +174,7 @@ TEST_CASE("the interpolated ePIE kernels equal PhaseGate sampling bit for bit", 
       const double* T = reinterpret_cast<const double*>(gate.table().data() + t.first);
       sw::cma_kernels::exit_wave_interp(T, reinterpret_cast<const double*>(eps.data()),
                                         reinterpret_cast<double*>(G.data()),
-                                        reinterpret_cast<double*>(psi.data()), n, lo, hi, t.f,
-                                        t.w);
+                                        reinterpret_cast<double*>(psi.data()), n, lo, hi, t.f, t.w);
       bool same_psi = true, same_g = true;
       for (std::size_t q = 0; q < n; ++q) same_psi = same_psi && psi[q] == psi_ref[q];
       for (std::size_t q = lo; q < hi; ++q) same_g = same_g && G[q] == G_ref[q];
@@ -191,9 +190,9 @@ TEST_CASE("the interpolated ePIE kernels equal PhaseGate sampling bit for bit", 
           reinterpret_cast<double*>(U_ref.data()), n, lo, hi, bo, cg);
       const double m = sw::cma_kernels::epie_update_interp(
           T, reinterpret_cast<const double*>(G.data()),
-          reinterpret_cast<const double*>(back.data()),
-          reinterpret_cast<const double*>(psi.data()), reinterpret_cast<double*>(E.data()),
-          reinterpret_cast<double*>(U.data()), n, lo, hi, bo, cg, t.f);
+          reinterpret_cast<const double*>(back.data()), reinterpret_cast<const double*>(psi.data()),
+          reinterpret_cast<double*>(E.data()), reinterpret_cast<double*>(U.data()), n, lo, hi, bo,
+          cg, t.f);
       CHECK(m == m_ref);
       bool same_e = true, same_u = true, close = true;
       double m_plain = 0.0;

@@ -106,7 +106,6 @@ const std::vector<double>& hann_weights(std::size_t m) {
 
 using cma_detail::rotate_linear;
 
-
 void CmaProblem::impose_spectrum(CVec& eps, CVec& work) const {
   if (spectrum_amp_.empty()) return;
   work.resize(n_);

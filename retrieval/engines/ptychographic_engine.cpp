@@ -113,8 +113,7 @@ class PtychographicEngine final : public Engine {
                            reinterpret_cast<double*>(g_[b].data()),
                            reinterpret_cast<double*>(psi_[b].data()), n, lo, hi, tap->f, tap->w);
         else
-          gp_[b] =
-              gates_[b].sample_product(j, eps_.data(), g_[b].data(), psi_[b].data(), lo, hi);
+          gp_[b] = gates_[b].sample_product(j, eps_.data(), g_[b].data(), psi_[b].data(), lo, hi);
         cma_->fft().time_to_freq(psi_[b], spec_[b]);
       }
       if (nb == 1)
@@ -129,8 +128,8 @@ class PtychographicEngine final : public Engine {
               table_at(b, *tap), reinterpret_cast<const double*>(g_[b].data()),
               reinterpret_cast<const double*>(back_.data()),
               reinterpret_cast<const double*>(psi_[b].data()),
-              reinterpret_cast<double*>(eps_.data()), reinterpret_cast<double*>(du_.data()), n,
-              lo, hi, beta_o_, cg, tap->f);
+              reinterpret_cast<double*>(eps_.data()), reinterpret_cast<double*>(du_.data()), n, lo,
+              hi, beta_o_, cg, tap->f);
         else
           max_e2 = update_object(gp_[b], psi_[b], lo, hi, cg);
         gates_[b].update(j, du_.data(), lo, hi);
@@ -326,8 +325,8 @@ class PtychographicEngine final : public Engine {
     return record(G);
   }
 
-  // The gate taps of every delay (cma_kernels::delay_taps); left empty (every delay through PhaseGate::sample_product) if any delay's
-  // node or exactness differs from the gate's own.
+  // The gate taps of every delay (cma_kernels::delay_taps); left empty (every delay through
+  // PhaseGate::sample_product) if any delay's node or exactness differs from the gate's own.
   void prepare_taps() {
     const PhaseGate& g = gates_[0];
     const std::vector<double>& delay = cma_->problem().delay_au;
