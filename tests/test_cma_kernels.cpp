@@ -15,6 +15,7 @@
 #include <vector>
 
 #include "retrieval/core/grid.h"
+#include "retrieval/core/hot_loop.h"
 #include "retrieval/core/units.h"
 #include "retrieval/engines/cma_problem_internal.h"
 #include "retrieval/physics/gate.h"
@@ -261,4 +262,58 @@ TEST_CASE("the blocked gate coverage equals PhaseGate::coverage bit for bit", "[
       CHECK(w[i] == std::sin(sw::units::kPi * x) * std::sin(sw::units::kPi * x));
     }
   }
+}
+
+namespace {
+
+// The Poisson projection kernel as it was written before its blocked form (one loop: the sums,
+// the reciprocal modulus and the clamped factor per bin), kept here as the bit-for-bit reference
+// of project_poisson.
+SW_HOT_LOOP void poisson_one_loop(double* S, const double* I, const double* a, std::size_t n,
+                                  double dt2, double* im_out, double* mm_out) {
+  double im = 0.0, mm = 0.0;
+#pragma omp simd reduction(+ : im, mm)
+  for (std::size_t q = 0; q < n; ++q) {
+    const double re = S[2 * q], iv = S[2 * q + 1];
+    const double r2 = re * re + iv * iv;
+    const double M = dt2 * r2;
+    im += I[q] * M;
+    mm += M * M;
+    const double rs = sw::detail::rsqrt_newton(r2 + 1e-300);
+    const double f =
+        std::clamp(0.5 + 0.5 * I[q] / (dt2 * (r2 + 1e-300)), 0.0, 2.0 * a[q] * rs + 0.5);
+    S[2 * q] = re * f;
+    S[2 * q + 1] = iv * f;
+  }
+  *im_out += im;
+  *mm_out += mm;
+}
+
+}  // namespace
+
+TEST_CASE("project_poisson equals the one-loop Poisson kernel bit for bit", "[cma_kernels]") {
+  std::vector<std::size_t> sizes;
+  for (std::size_t n = 1; n <= 70; ++n) sizes.push_back(n);
+  for (std::size_t n : {127u, 128u, 129u, 400u, 1001u}) sizes.push_back(n);
+  std::size_t fast_only = 0;
+  for (const std::size_t n : sizes)
+    for (const double scale : {1.0, 30.0, 0.05}) {  // model near, above and far below the data
+      Segment s = make_segment(n, static_cast<unsigned>(7 * n));
+      for (double& x : s.S) x *= scale;
+      std::vector<double> S_ref = s.S;
+      double im_ref = 0.25, mm_ref = 0.5, im = 0.25, mm = 0.5;
+      poisson_one_loop(S_ref.data(), s.I.data(), s.a.data(), n, s.dt2, &im_ref, &mm_ref);
+      sw::cma_kernels::project_poisson(s.S.data(), s.I.data(), s.a.data(), n, s.dt2, &im, &mm);
+      INFO("n = " << n << ", scale " << scale);
+      CHECK(im == im_ref);
+      CHECK(mm == mm_ref);
+      CHECK(s.S == S_ref);
+      double vmax = 0.0;
+      for (std::size_t q = 0; q < n; ++q) {
+        const double r2 = S_ref[2 * q] * S_ref[2 * q] + S_ref[2 * q + 1] * S_ref[2 * q + 1];
+        if (r2 > 0) vmax = std::max(vmax, s.I[q] / (s.dt2 * r2));
+      }
+      if (scale == 30.0 && vmax < 1.0) ++fast_only;
+    }
+  CHECK(fast_only > 0);  // some segments take only the path without the reciprocal modulus
 }

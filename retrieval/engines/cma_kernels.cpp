@@ -39,6 +39,69 @@ SW_HOT_LOOP void projection_kernel(double* S, const double* I, const double* a, 
   *mm_out += mm;
 }
 
+// The Poisson projection of projection_kernel<true>, bit for bit, without the reciprocal
+// modulus where the clamp cannot bite. With a = sqrt(max(I, 0)) / dt (the contract of
+// project_poisson) and y = I / M, the step is v = (1 + y) / 2 and the clamp's upper bound
+// 2 a / |S| + 1/2 = 2 sqrt(y) + 1/2 (both up to rounding), which exceeds v by at least 0.24
+// (3 %) for every y <= 15, i.e. v <= 8; there the factor is max(v, 0) exactly, whatever the
+// bound's last bits. Blocks of kPoissonBlock bins whose largest v exceeds 8 take the full
+// formula. The error sums run first, in a loop of their own with the reduction of
+// projection_kernel (tests/test_cma_kernels.cpp checks the bits against it for every
+// remainder of the vector width).
+constexpr std::size_t kPoissonBlock = 16;
+
+SW_HOT_LOOP void poisson_sums(const double* S, const double* I, std::size_t n, double dt2,
+                              double* im_out, double* mm_out) {
+  double im = 0.0, mm = 0.0;
+#pragma omp simd reduction(+ : im, mm)
+  for (std::size_t q = 0; q < n; ++q) {
+    const double re = S[2 * q], iv = S[2 * q + 1];
+    const double r2 = re * re + iv * iv;
+    const double M = dt2 * r2;
+    im += I[q] * M;
+    mm += M * M;
+  }
+  *im_out += im;
+  *mm_out += mm;
+}
+
+SW_HOT_LOOP void poisson_steps(double* S, const double* I, const double* a, std::size_t n,
+                               double dt2) {
+  double v[kPoissonBlock];
+  for (std::size_t q0 = 0; q0 < n; q0 += kPoissonBlock) {
+    const std::size_t m = std::min(kPoissonBlock, n - q0);
+    double* s = S + 2 * q0;
+    const double* i0 = I + q0;
+    double vmax = 0.0;
+#pragma omp simd reduction(max : vmax)
+    for (std::size_t q = 0; q < m; ++q) {
+      const double re = s[2 * q], iv = s[2 * q + 1];
+      const double r2 = re * re + iv * iv;
+      v[q] = 0.5 + 0.5 * i0[q] / (dt2 * (r2 + 1e-300));
+      vmax = std::max(vmax, v[q]);
+    }
+    if (!(vmax > 8.0)) {
+#pragma omp simd
+      for (std::size_t q = 0; q < m; ++q) {
+        const double f = v[q] < 0.0 ? 0.0 : v[q];
+        s[2 * q] *= f;
+        s[2 * q + 1] *= f;
+      }
+      continue;
+    }
+    const double* a0 = a + q0;
+#pragma omp simd
+    for (std::size_t q = 0; q < m; ++q) {
+      const double re = s[2 * q], iv = s[2 * q + 1];
+      const double r2 = re * re + iv * iv;
+      const double rs = detail::rsqrt_newton(r2 + 1e-300);
+      const double f = std::clamp(v[q], 0.0, 2.0 * a0[q] * rs + 0.5);
+      s[2 * q] = re * f;
+      s[2 * q + 1] = iv * f;
+    }
+  }
+}
+
 }  // namespace
 
 // r2 = |S|^2 per bin and the error sums sum I M, sum M^2 with M = dt^2 r2.
@@ -211,7 +274,8 @@ void project_amplitude(double* S, const double* I, const double* a, std::size_t 
 
 void project_poisson(double* S, const double* I, const double* a, std::size_t n, double dt2,
                      double* im_out, double* mm_out) {
-  projection_kernel<true>(S, I, a, n, dt2, im_out, mm_out);
+  poisson_sums(S, I, n, dt2, im_out, mm_out);
+  poisson_steps(S, I, a, n, dt2);
 }
 
 }  // namespace sw::cma_kernels
