@@ -135,15 +135,15 @@ TEST_CASE("moduli_and_sums and scale_bins equal the scalar reference", "[cma_ker
   }
 }
 
-// The ePIE kernels against PhaseGate's own sampling (retrieval/physics/gate.h) and the plain
-// ePIE update written with std::complex (Maiden and Rodenburg, Ultramicroscopy 109, 1256
-// (2009)): the interpolated path must give the same numbers bit for bit as sampling the whole
-// gate first (the engine's results do not depend on which path it takes).
-TEST_CASE("the interpolated ePIE kernels equal PhaseGate sampling bit for bit", "[cma_kernels]") {
+// The ePIE update against the plain update written with std::complex (Maiden and Rodenburg,
+// Ultramicroscopy 109, 1256 (2009)), with the gate sampled by PhaseGate; and the delay taps
+// against the gate's own nodes.
+TEST_CASE("epie_update equals the std::complex ePIE step; delay_taps the gate's nodes",
+          "[cma_kernels]") {
   using cd = std::complex<double>;
   const std::size_t n = 256;
   const sw::TimeGrid grid = sw::TimeGrid::centered(n, 0.7);
-  // Delays on and off the table's nodes (steps of 1.3 dt, a few exact multiples).
+  // Delays on and off the table's nodes.
   std::vector<double> delay;
   for (int j = 0; j < 23; ++j) delay.push_back(-8.0 + (j % 5 == 0 ? 2.1 * j : 0.91 * j + 0.3));
   std::sort(delay.begin(), delay.end());
@@ -157,51 +157,29 @@ TEST_CASE("the interpolated ePIE kernels equal PhaseGate sampling bit for bit", 
     eps[q] = cd(env * g(rng), env * g(rng)) + cd(1e-4 * g(rng), 0.0);
     back[q] = cd(static_cast<double>(n) * g(rng), static_cast<double>(n) * g(rng));
   }
-  std::size_t interpolated = 0;
+  std::size_t exact = 0;
   for (std::size_t j = 0; j < delay.size(); ++j) {
     const sw::cma_kernels::DelayTaps t = sw::cma_kernels::delay_taps(delay, grid.dt(), j);
     INFO("delay " << j);
     CHECK(t.exact == gate.exact_shift(j));
     CHECK(t.first == gate.first_node(j));
-    if (t.exact) continue;
-    ++interpolated;
-    const std::vector<std::pair<std::size_t, std::size_t>> supports = {
-        {60, 190}, {0, n}, {0, 0}, {255, 256}, {3, 4}};
-    for (const auto& [lo, hi] : supports) {
+    exact += t.exact ? 1 : 0;
+    for (const auto& [lo, hi] : std::vector<std::pair<std::size_t, std::size_t>>{
+             {60, 190}, {0, n}, {0, 0}, {255, 256}, {3, 4}}) {
       INFO("support [" << lo << ", " << hi << ")");
-      std::vector<cd> G_ref(n), psi_ref(n), G(n, cd(-7.0, -7.0)), psi(n);
-      const cd* gp = gate.sample_product(j, eps.data(), G_ref.data(), psi_ref.data(), lo, hi);
-      REQUIRE(gp == G_ref.data());
-      const double* T = reinterpret_cast<const double*>(gate.table().data() + t.first);
-      sw::cma_kernels::exit_wave_interp(T, reinterpret_cast<const double*>(eps.data()),
-                                        reinterpret_cast<double*>(G.data()),
-                                        reinterpret_cast<double*>(psi.data()), n, lo, hi, t.f, t.w);
-      bool same_psi = true, same_g = true;
-      for (std::size_t q = 0; q < n; ++q) same_psi = same_psi && psi[q] == psi_ref[q];
-      for (std::size_t q = lo; q < hi; ++q) same_g = same_g && G[q] == G_ref[q];
-      CHECK(same_psi);
-      CHECK(same_g);
-      // The update: the full gate against the recomputed one, and against std::complex.
-      std::vector<cd> E_ref = eps, E = eps, U_ref(n), U(n);
+      std::vector<cd> G(n), psi(n);
+      const cd* gp = gate.sample_product(j, eps.data(), G.data(), psi.data(), lo, hi);
+      std::vector<cd> E = eps, U(n);
       const double bo = 0.9, cg = 0.37;
-      const double m_ref = sw::cma_kernels::epie_update(
-          reinterpret_cast<const double*>(G_ref.data()),
-          reinterpret_cast<const double*>(back.data()),
-          reinterpret_cast<const double*>(psi_ref.data()), reinterpret_cast<double*>(E_ref.data()),
-          reinterpret_cast<double*>(U_ref.data()), n, lo, hi, bo, cg);
-      const double m = sw::cma_kernels::epie_update_interp(
-          T, reinterpret_cast<const double*>(G.data()),
-          reinterpret_cast<const double*>(back.data()), reinterpret_cast<const double*>(psi.data()),
-          reinterpret_cast<double*>(E.data()), reinterpret_cast<double*>(U.data()), n, lo, hi, bo,
-          cg, t.f);
-      CHECK(m == m_ref);
-      bool same_e = true, same_u = true, close = true;
+      const double m = sw::cma_kernels::epie_update(
+          reinterpret_cast<const double*>(gp), reinterpret_cast<const double*>(back.data()),
+          reinterpret_cast<const double*>(psi.data()), reinterpret_cast<double*>(E.data()),
+          reinterpret_cast<double*>(U.data()), n, lo, hi, bo, cg);
+      bool close = true;
       double m_plain = 0.0;
       for (std::size_t q = 0; q < n; ++q) {
-        same_e = same_e && E[q] == E_ref[q];
-        if (q >= lo && q < hi) same_u = same_u && U[q] == U_ref[q];
-        const cd d = back[q] / static_cast<double>(n) - psi_ref[q];
-        const cd e = eps[q] + bo * std::conj(G_ref[q]) * d;
+        const cd d = back[q] / static_cast<double>(n) - psi[q];
+        const cd e = eps[q] + bo * std::conj(gp[q]) * d;
         close = close && std::abs(E[q] - e) <= 1e-12 * (std::abs(e) + std::abs(d));
         if (q >= lo && q < hi) {
           const cd u = cg * std::conj(eps[q]) * d;
@@ -209,13 +187,12 @@ TEST_CASE("the interpolated ePIE kernels equal PhaseGate sampling bit for bit", 
           m_plain = std::max(m_plain, std::norm(e));
         }
       }
-      CHECK(same_e);
-      CHECK(same_u);
       CHECK(close);
       CHECK(m == Approx(m_plain).epsilon(1e-12).margin(1e-300));
     }
   }
-  CHECK(interpolated > 10);
+  CHECK(exact > 0);
+  CHECK(exact < delay.size());
 }
 
 // The node-by-node coverage of the CMA constraints (cma_problem_internal.h) against

@@ -5,6 +5,8 @@
 // target amplitudes sqrt(max(I, 0)) / dt (raw units), dt2 = dt^2, so that M = dt2 |S|^2 is the
 // model intensity. Each kernel that takes im_out, mm_out adds sum I M and sum M^2 over the
 // segment (before any change of S) to them: the error sums of trace_error.h's trace error.
+// project_poisson relies on a being that amplitude (see its comment). Beside them: the gate
+// taps of a delay and the ePIE update of the ptychographic engine.
 // tests/test_cma_kernels.cpp checks them against a plain scalar reference.
 
 #include <cstddef>
@@ -21,7 +23,9 @@ void project_amplitude(double* S, const double* I, const double* a, std::size_t 
                        double* im_out, double* mm_out);
 
 /// Poisson step S_q <- f S_q, f = (1 + I_q / M_q) / 2 clamped into [0, 2 a_q / |S_q| + 1/2]
-/// (I taken as it is, negative values included), with the sums.
+/// (I taken as it is, negative values included), with the sums. The upper bound is evaluated
+/// only where it can bite (f > 8), which needs a_q = sqrt(max(I_q, 0)) / dt: another a would
+/// change the factor wherever 2 a_q / |S_q| + 1/2 < f <= 8.
 void project_poisson(double* S, const double* I, const double* a, std::size_t n, double dt2,
                      double* im_out, double* mm_out);
 
@@ -37,7 +41,8 @@ void scale_bins(double* S, const double* f, std::size_t n);
 
 /// How the gate samples of one delay are read from the gate table (PhaseGate, gate.h): from
 /// node `first`, and for a delay that is not an exact shift with the fraction f of the linear
-/// interpolation and the four cubic Lagrange weights w.
+/// interpolation and the four cubic Lagrange weights w (the CMA constraints' coverage takes the
+/// nearest node of the stencil from them).
 struct DelayTaps {
   std::size_t first = 0;
   bool exact = true;
@@ -57,20 +62,5 @@ DelayTaps delay_taps(const std::vector<double>& delay_au, double dt_au, std::siz
 /// Returns max |E|^2 over [lo, hi) after the update (the next step's object normalisation).
 double epie_update(const double* G, const double* B, const double* P, double* E, double* U,
                    std::size_t n, std::size_t lo, std::size_t hi, double bo, double cg);
-
-/// The exit wave P = E G(s + tau_j) of a delay that is not an exact shift of the gate table,
-/// G read from the table T (from the delay's first stencil node, PhaseGate::first_node) as
-/// PhaseGate::sample_product reads it, bit for bit: linear interpolation with fraction f
-/// between nodes 1 and 2 off [lo, hi) (0 <= lo <= hi <= n), 4-tap cubic weights w on it. Only
-/// the cubic samples are stored in G (on [lo, hi)); epie_update_interp recomputes the linear
-/// ones from the same, unchanged, table instead of reading them back.
-void exit_wave_interp(const double* T, const double* E, double* G, double* P, std::size_t n,
-                      std::size_t lo, std::size_t hi, double f, const double* w);
-
-/// epie_update for a delay sampled by exit_wave_interp: the gate off [lo, hi) recomputed from T
-/// and f, on [lo, hi) the stored samples G. The same numbers as epie_update with the full gate.
-double epie_update_interp(const double* T, const double* G, const double* B, const double* P,
-                          double* E, double* U, std::size_t n, std::size_t lo, std::size_t hi,
-                          double bo, double cg, double f);
 
 }  // namespace sw::cma_kernels

@@ -10,7 +10,6 @@
 
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
-#include "retrieval/core/hot_loop.h"
 #include "retrieval/core/units.h"
 #include "retrieval/engines/cma_kernels.h"
 #include "retrieval/engines/cma_problem.h"
@@ -20,11 +19,7 @@ namespace sw {
 
 namespace {
 
-using cma_kernels::delay_taps;
-using cma_kernels::DelayTaps;
 using cma_kernels::epie_update;
-using cma_kernels::epie_update_interp;
-using cma_kernels::exit_wave_interp;
 
 class PtychographicEngine final : public Engine {
  public:
@@ -81,11 +76,7 @@ class PtychographicEngine final : public Engine {
     modes_.clear();
     amp_.clear();
     delay_.clear();
-    taps_.clear();
-    if (lines)
-      prepare_lines(problem);
-    else
-      prepare_taps();
+    if (lines) prepare_lines(problem);
     best_eps_ = eps_;
     best_gates_ = gates_;
     best_amp_ = amp_;
@@ -106,14 +97,8 @@ class PtychographicEngine final : public Engine {
       const std::size_t nb = gates_.size();
       // Every node's exit wave from the same eps; one projection of the (interpolated) rows;
       // then one ePIE step per node with its share of the change (one node: plain ePIE).
-      const DelayTaps* tap = taps_.empty() || taps_[j].exact ? nullptr : &taps_[j];
       for (std::size_t b = 0; b < nb; ++b) {
-        if (tap)
-          exit_wave_interp(table_at(b, *tap), reinterpret_cast<const double*>(eps_.data()),
-                           reinterpret_cast<double*>(g_[b].data()),
-                           reinterpret_cast<double*>(psi_[b].data()), n, lo, hi, tap->f, tap->w);
-        else
-          gp_[b] = gates_[b].sample_product(j, eps_.data(), g_[b].data(), psi_[b].data(), lo, hi);
+        gp_[b] = gates_[b].sample_product(j, eps_.data(), g_[b].data(), psi_[b].data(), lo, hi);
         cma_->fft().time_to_freq(psi_[b], spec_[b]);
       }
       if (nb == 1)
@@ -123,15 +108,7 @@ class PtychographicEngine final : public Engine {
       for (std::size_t b = 0; b < nb; ++b) {
         cma_->fft().freq_to_time(spec_[b], back_);
         const double cg = max_e2 > 0 ? beta_g_ / max_e2 : 0.0;
-        if (tap)
-          max_e2 = epie_update_interp(
-              table_at(b, *tap), reinterpret_cast<const double*>(g_[b].data()),
-              reinterpret_cast<const double*>(back_.data()),
-              reinterpret_cast<const double*>(psi_[b].data()),
-              reinterpret_cast<double*>(eps_.data()), reinterpret_cast<double*>(du_.data()), n, lo,
-              hi, beta_o_, cg, tap->f);
-        else
-          max_e2 = update_object(gp_[b], psi_[b], lo, hi, cg);
+        max_e2 = update_object(gp_[b], psi_[b], lo, hi, cg);
         gates_[b].update(j, du_.data(), lo, hi);
       }
     }
@@ -325,24 +302,6 @@ class PtychographicEngine final : public Engine {
     return record(G);
   }
 
-  // The gate taps of every delay (cma_kernels::delay_taps); left empty (every delay through
-  // PhaseGate::sample_product) if any delay's node or exactness differs from the gate's own.
-  void prepare_taps() {
-    const PhaseGate& g = gates_[0];
-    const std::vector<double>& delay = cma_->problem().delay_au;
-    taps_.assign(delay.size(), DelayTaps{});
-    for (std::size_t j = 0; j < delay.size(); ++j) {
-      const DelayTaps& t = taps_[j] = delay_taps(delay, g.dt(), j);
-      if (t.exact != g.exact_shift(j) || t.first != g.first_node(j)) {
-        taps_.clear();
-        return;
-      }
-    }
-  }
-  const double* table_at(std::size_t b, const DelayTaps& t) const {
-    return reinterpret_cast<const double*>(gates_[b].table().data() + t.first);
-  }
-
   // The estimate of the lowest running trace error so far is the one returned.
   void keep_best(double G) {
     if (!(G < best_)) return;
@@ -375,7 +334,6 @@ class PtychographicEngine final : public Engine {
   CVec eps_, back_, du_, work_, comb_, before_;
   std::vector<CVec> g_, psi_, spec_;  // per momentum node
   std::vector<const cdouble*> gp_;
-  std::vector<DelayTaps> taps_;  // per delay (empty: PhaseGate::sample_product)
   std::vector<double> cover_, scratch_;
   static constexpr std::size_t kMaxOneGateIterations = 100;
   static constexpr double kNodesMinRatio = 1.1;  // common practice (see iterate())
