@@ -188,24 +188,15 @@ double CmaProblem::align_vector_potential(CVec& eps, PhaseGate& gate, double p0)
   const std::vector<double>& w = cma_detail::hann_weights(m);
   for (std::size_t i = 0; i < m; ++i)
     rate[i] = std::arg(G[lo + i + 1] * std::conj(G[lo + i])) / gate.dt();
-  // Newton on f(d) = sum w A(rate + d), f' = sum w / (p0 + A); f is increasing in d. The
-  // potentials and the terms of f' in a pass of their own (vector_potential_from_phase_rate's
-  // operations, gate.cpp, written out), the sums after it in the order of i; sum w once.
-  double sw = 0;
-  for (std::size_t i = 0; i < m; ++i) sw += w[i];
-  std::vector<double> A(m), t(m);
-  const double p0sq = p0 * p0, least = 0.1 * p0;
+  // Newton on f(d) = sum w A(rate + d), f' = sum w / (p0 + A); f is increasing in d.
   double d = 0.0;
   for (int it = 0; it < 20; ++it) {
+    double f = 0, fp = 0, sw = 0;
     for (std::size_t i = 0; i < m; ++i) {
-      const double r = rate[i] + d, q = p0sq - 2.0 * r;
-      A[i] = q <= 0 ? p0 : 2.0 * r / (p0 + std::sqrt(q));
-      t[i] = w[i] / std::max(p0 + A[i], least);
-    }
-    double f = 0, fp = 0;
-    for (std::size_t i = 0; i < m; ++i) {
-      f += w[i] * A[i];
-      fp += t[i];
+      const double A = vector_potential_from_phase_rate(rate[i] + d, p0);
+      f += w[i] * A;
+      fp += w[i] / std::max(p0 + A, 0.1 * p0);
+      sw += w[i];
     }
     const double step = f / fp;
     d -= step;
