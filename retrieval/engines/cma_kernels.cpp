@@ -41,10 +41,11 @@ SW_HOT_LOOP void projection_kernel(double* S, const double* I, const double* a, 
 
 // The Poisson projection of projection_kernel<true>, bit for bit, without the reciprocal
 // modulus where the clamp cannot bite. With a = sqrt(max(I, 0)) / dt (the contract of
-// project_poisson) and y = I / M, the step is v = (1 + y) / 2 and the clamp's upper bound
-// 2 a / |S| + 1/2 = 2 sqrt(y) + 1/2 (both up to rounding), which exceeds v by at least 0.24
-// (3 %) for every y <= 15, i.e. v <= 8; there the factor is max(v, 0) exactly, whatever the
-// bound's last bits. Blocks of kPoissonBlock bins whose largest v exceeds 8 take the full
+// project_poisson) and y = I / M, the step is v = 1/2 + y/2 and the clamp's upper bound
+// 1/2 + 2 a / |S| = 1/2 + 2 sqrt(y) (both terms up to rounding); 2 sqrt(y) exceeds y/2 by at
+// least 3 % of itself for every 0 < y <= 15, i.e. v <= 8, and 1/2 + term rounds monotonically
+// (I <= 0: v <= 1/2 <= bound), so there the factor is max(v, 0) exactly, whatever the bound's
+// last bits. Blocks of kPoissonBlock bins whose largest v exceeds 8 take the full
 // formula. The error sums run first, in a loop of their own with the reduction of
 // projection_kernel (tests/test_cma_kernels.cpp checks the bits against it for every
 // remainder of the vector width).
