@@ -49,7 +49,7 @@ SW_HOT_LOOP void projection_kernel(double* S, const double* I, const double* a, 
 // formula. The error sums run first, in a loop of their own with the reduction of
 // projection_kernel (tests/test_cma_kernels.cpp checks the bits against it for every
 // remainder of the vector width).
-constexpr std::size_t kPoissonBlock = 16;
+constexpr std::size_t kPoissonBlock = 64;
 
 SW_HOT_LOOP void poisson_sums(const double* S, const double* I, std::size_t n, double dt2,
                               double* im_out, double* mm_out) {
