@@ -11,7 +11,14 @@
 #include <cmath>
 #include <complex>
 #include <random>
+#include <utility>
 #include <vector>
+
+#include "retrieval/core/grid.h"
+#include "retrieval/core/hot_loop.h"
+#include "retrieval/core/units.h"
+#include "retrieval/engines/cma_problem_internal.h"
+#include "retrieval/physics/gate.h"
 
 namespace {
 
@@ -126,4 +133,164 @@ TEST_CASE("moduli_and_sums and scale_bins equal the scalar reference", "[cma_ker
     CHECK(s.S[2 * q] == before[2 * q] * f[q]);
     CHECK(s.S[2 * q + 1] == before[2 * q + 1] * f[q]);
   }
+}
+
+// The ePIE update against the plain update written with std::complex (Maiden and Rodenburg,
+// Ultramicroscopy 109, 1256 (2009)), with the gate sampled by PhaseGate; and the delay taps
+// against the gate's own nodes.
+TEST_CASE("epie_update equals the std::complex ePIE step; delay_taps the gate's nodes",
+          "[cma_kernels]") {
+  using cd = std::complex<double>;
+  const std::size_t n = 256;
+  const sw::TimeGrid grid = sw::TimeGrid::centered(n, 0.7);
+  // Delays on and off the table's nodes.
+  std::vector<double> delay;
+  for (int j = 0; j < 23; ++j) delay.push_back(-8.0 + (j % 5 == 0 ? 2.1 * j : 0.91 * j + 0.3));
+  std::sort(delay.begin(), delay.end());
+  sw::PhaseGate gate(grid, delay, 3.0);
+  gate.set_phase([](double t) { return 0.8 * std::sin(0.11 * t) + 0.002 * t * t; });
+  std::mt19937 rng(11);
+  std::normal_distribution<double> g(0.0, 1.0);
+  std::vector<cd> eps(n), back(n);
+  for (std::size_t q = 0; q < n; ++q) {
+    const double env = std::exp(-std::pow((static_cast<double>(q) - 120.0) / 25.0, 2));
+    eps[q] = cd(env * g(rng), env * g(rng)) + cd(1e-4 * g(rng), 0.0);
+    back[q] = cd(static_cast<double>(n) * g(rng), static_cast<double>(n) * g(rng));
+  }
+  std::size_t exact = 0;
+  for (std::size_t j = 0; j < delay.size(); ++j) {
+    const sw::cma_kernels::DelayTaps t = sw::cma_kernels::delay_taps(delay, grid.dt(), j);
+    INFO("delay " << j);
+    CHECK(t.exact == gate.exact_shift(j));
+    CHECK(t.first == gate.first_node(j));
+    exact += t.exact ? 1 : 0;
+    for (const auto& [lo, hi] : std::vector<std::pair<std::size_t, std::size_t>>{
+             {60, 190}, {0, n}, {0, 0}, {255, 256}, {3, 4}}) {
+      INFO("support [" << lo << ", " << hi << ")");
+      std::vector<cd> G(n), psi(n);
+      const cd* gp = gate.sample_product(j, eps.data(), G.data(), psi.data(), lo, hi);
+      std::vector<cd> E = eps, U(n);
+      const double bo = 0.9, cg = 0.37;
+      const double m = sw::cma_kernels::epie_update(
+          reinterpret_cast<const double*>(gp), reinterpret_cast<const double*>(back.data()),
+          reinterpret_cast<const double*>(psi.data()), reinterpret_cast<double*>(E.data()),
+          reinterpret_cast<double*>(U.data()), n, lo, hi, bo, cg);
+      bool close = true;
+      double m_plain = 0.0;
+      for (std::size_t q = 0; q < n; ++q) {
+        const cd d = back[q] / static_cast<double>(n) - psi[q];
+        const cd e = eps[q] + bo * std::conj(gp[q]) * d;
+        close = close && std::abs(E[q] - e) <= 1e-12 * (std::abs(e) + std::abs(d));
+        if (q >= lo && q < hi) {
+          const cd u = cg * std::conj(eps[q]) * d;
+          close = close && std::abs(U[q] - u) <= 1e-12 * (std::abs(u) + 1e-300);
+          m_plain = std::max(m_plain, std::norm(e));
+        }
+      }
+      CHECK(close);
+      CHECK(m == Approx(m_plain).epsilon(1e-12).margin(1e-300));
+    }
+  }
+  CHECK(exact > 0);
+  CHECK(exact < delay.size());
+}
+
+// The node-by-node coverage of the CMA constraints (cma_problem_internal.h) against
+// PhaseGate::coverage: the same sums in the same order, so the same bits.
+TEST_CASE("the blocked gate coverage equals PhaseGate::coverage bit for bit", "[cma_kernels]") {
+  std::mt19937 rng(5);
+  std::normal_distribution<double> g(0.0, 1.0);
+  for (const std::size_t n : {64u, 100u, 256u}) {
+    const sw::TimeGrid grid = sw::TimeGrid::centered(n, 0.7);
+    std::vector<double> on_nodes, off_nodes;
+    for (int j = 0; j < 41; ++j) {
+      on_nodes.push_back(-10.0 + 1.4 * j);  // exact shifts (2 dt)
+      off_nodes.push_back(-10.0 + 0.83 * j + (j % 3 == 0 ? 0.05 : 0.0));
+    }
+    for (const auto* delay : {&on_nodes, &off_nodes}) {
+      sw::PhaseGate gate(grid, *delay, 3.0);
+      sw::CVec eps(n);
+      for (std::size_t q = 0; q < n; ++q) {
+        const double env = std::exp(-std::pow((static_cast<double>(q) - 0.4 * n) / 9.0, 2));
+        eps[q] = sw::cdouble(env * g(rng), env * g(rng) + 1e-7 * g(rng));
+      }
+      std::vector<double> want, got;
+      gate.coverage(eps, want);
+      sw::cma_detail::coverage(gate, *delay, eps, got);
+      INFO("n = " << n << (delay == &on_nodes ? ", exact shifts" : ", interpolated"));
+      REQUIRE(got.size() == want.size());
+      bool same = true;
+      for (std::size_t m = 0; m < want.size(); ++m) same = same && got[m] == want[m];
+      CHECK(same);
+      // Delays that are not the gate's: PhaseGate::coverage itself.
+      std::vector<double> other = *delay;
+      other.pop_back();
+      sw::cma_detail::coverage(gate, other, eps, got);
+      CHECK(got == want);
+    }
+  }
+  // The Hann weights (common practice: the sin^2 window), as align_vector_potential formed them
+  // in its own loop before they were kept per thread.
+  for (const std::size_t m : {9u, 300u, 9u}) {
+    const std::vector<double>& w = sw::cma_detail::hann_weights(m);
+    REQUIRE(w.size() == m);
+    for (std::size_t i = 0; i < m; ++i) {
+      const double x = (static_cast<double>(i) + 0.5) / static_cast<double>(m);
+      CHECK(w[i] == std::sin(sw::units::kPi * x) * std::sin(sw::units::kPi * x));
+    }
+  }
+}
+
+namespace {
+
+// The Poisson projection kernel as it was written before its blocked form (one loop: the sums,
+// the reciprocal modulus and the clamped factor per bin), kept here as the bit-for-bit reference
+// of project_poisson.
+SW_HOT_LOOP void poisson_one_loop(double* S, const double* I, const double* a, std::size_t n,
+                                  double dt2, double* im_out, double* mm_out) {
+  double im = 0.0, mm = 0.0;
+#pragma omp simd reduction(+ : im, mm)
+  for (std::size_t q = 0; q < n; ++q) {
+    const double re = S[2 * q], iv = S[2 * q + 1];
+    const double r2 = re * re + iv * iv;
+    const double M = dt2 * r2;
+    im += I[q] * M;
+    mm += M * M;
+    const double rs = sw::detail::rsqrt_newton(r2 + 1e-300);
+    const double f =
+        std::clamp(0.5 + 0.5 * I[q] / (dt2 * (r2 + 1e-300)), 0.0, 2.0 * a[q] * rs + 0.5);
+    S[2 * q] = re * f;
+    S[2 * q + 1] = iv * f;
+  }
+  *im_out += im;
+  *mm_out += mm;
+}
+
+}  // namespace
+
+TEST_CASE("project_poisson equals the one-loop Poisson kernel bit for bit", "[cma_kernels]") {
+  std::vector<std::size_t> sizes;
+  for (std::size_t n = 1; n <= 70; ++n) sizes.push_back(n);
+  for (std::size_t n : {127u, 128u, 129u, 400u, 1001u}) sizes.push_back(n);
+  std::size_t fast_only = 0;
+  for (const std::size_t n : sizes)
+    for (const double scale : {1.0, 30.0, 0.05}) {  // model near, above and far below the data
+      Segment s = make_segment(n, static_cast<unsigned>(7 * n));
+      for (double& x : s.S) x *= scale;
+      std::vector<double> S_ref = s.S;
+      double im_ref = 0.25, mm_ref = 0.5, im = 0.25, mm = 0.5;
+      poisson_one_loop(S_ref.data(), s.I.data(), s.a.data(), n, s.dt2, &im_ref, &mm_ref);
+      sw::cma_kernels::project_poisson(s.S.data(), s.I.data(), s.a.data(), n, s.dt2, &im, &mm);
+      INFO("n = " << n << ", scale " << scale);
+      CHECK(im == im_ref);
+      CHECK(mm == mm_ref);
+      CHECK(s.S == S_ref);
+      double vmax = 0.0;
+      for (std::size_t q = 0; q < n; ++q) {
+        const double r2 = S_ref[2 * q] * S_ref[2 * q] + S_ref[2 * q + 1] * S_ref[2 * q + 1];
+        if (r2 > 0) vmax = std::max(vmax, s.I[q] / (s.dt2 * r2));
+      }
+      if (scale == 30.0 && vmax < 1.0) ++fast_only;
+    }
+  CHECK(fast_only > 0);  // some segments take only the path without the reciprocal modulus
 }

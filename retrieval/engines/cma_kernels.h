@@ -5,9 +5,12 @@
 // target amplitudes sqrt(max(I, 0)) / dt (raw units), dt2 = dt^2, so that M = dt2 |S|^2 is the
 // model intensity. Each kernel that takes im_out, mm_out adds sum I M and sum M^2 over the
 // segment (before any change of S) to them: the error sums of trace_error.h's trace error.
+// project_poisson relies on a being that amplitude (see its comment). Beside them: the gate
+// taps of a delay and the ePIE update of the ptychographic engine.
 // tests/test_cma_kernels.cpp checks them against a plain scalar reference.
 
 #include <cstddef>
+#include <vector>
 
 namespace sw::cma_kernels {
 
@@ -20,7 +23,9 @@ void project_amplitude(double* S, const double* I, const double* a, std::size_t 
                        double* im_out, double* mm_out);
 
 /// Poisson step S_q <- f S_q, f = (1 + I_q / M_q) / 2 clamped into [0, 2 a_q / |S_q| + 1/2]
-/// (I taken as it is, negative values included), with the sums.
+/// (I taken as it is, negative values included), with the sums. The upper bound is evaluated
+/// only where it can bite (f > 8), which needs a_q = sqrt(max(I_q, 0)) / dt: another a would
+/// change the factor wherever 2 a_q / |S_q| + 1/2 < f <= 8.
 void project_poisson(double* S, const double* I, const double* a, std::size_t n, double dt2,
                      double* im_out, double* mm_out);
 
@@ -33,5 +38,29 @@ void mode_factors(double* r2, const double* I, const double* a, std::size_t n, d
 
 /// S_q <- f_q S_q (both components).
 void scale_bins(double* S, const double* f, std::size_t n);
+
+/// How the gate samples of one delay are read from the gate table (PhaseGate, gate.h): from
+/// node `first`, and for a delay that is not an exact shift with the fraction f of the linear
+/// interpolation and the four cubic Lagrange weights w (the CMA constraints' coverage takes the
+/// nearest node of the stencil from them).
+struct DelayTaps {
+  std::size_t first = 0;
+  bool exact = true;
+  double f = 0.0;
+  double w[4] = {0.0, 1.0, 0.0, 0.0};
+};
+
+/// The taps of delay j of the ascending delays `delay_au` on a table of step dt_au, computed as
+/// PhaseGate's constructor computes them (tests/test_cma_kernels.cpp checks them against it).
+DelayTaps delay_taps(const std::vector<double>& delay_au, double dt_au, std::size_t j);
+
+/// The ePIE updates of one delay (ptychographic engine; interleaved (re, im) arrays of n
+/// samples), d = psi' - psi = B / n - P with B the inverse FFT of the projected spectrum and P
+/// the exit wave psi:
+///   E += bo conj(G) d on every sample (the probe's max |G|^2 is 1);
+///   U = cg conj(E) d (cg = beta_gate / max|E|^2, E before this update) on [lo, hi).
+/// Returns max |E|^2 over [lo, hi) after the update (the next step's object normalisation).
+double epie_update(const double* G, const double* B, const double* P, double* E, double* U,
+                   std::size_t n, std::size_t lo, std::size_t hi, double bo, double cg);
 
 }  // namespace sw::cma_kernels

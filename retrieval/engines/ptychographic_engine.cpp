@@ -10,8 +10,8 @@
 
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
-#include "retrieval/core/hot_loop.h"
 #include "retrieval/core/units.h"
+#include "retrieval/engines/cma_kernels.h"
 #include "retrieval/engines/cma_problem.h"
 #include "retrieval/physics/gate.h"
 
@@ -19,42 +19,7 @@ namespace sw {
 
 namespace {
 
-// The ePIE updates of one delay, d = psi' - psi = back / N - psi:
-//   eps += bo conj(G) d / max|G|^2 (= 1) on every sample;
-//   U = cg conj(eps) d (cg = beta_gate / max|eps|^2, eps before this update) on [lo, hi).
-// Returns max |E|^2 over [lo, hi) after the update (the next step's object normalisation).
-SW_HOT_LOOP double epie_update(const double* G, const double* B, const double* P, double* E,
-                               double* U, std::size_t n, std::size_t lo, std::size_t hi, double bo,
-                               double cg) {
-  double max_e2 = 0.0;
-  const double inv_n = 1.0 / static_cast<double>(n);
-#pragma omp simd
-  for (std::size_t q = 0; q < lo; ++q) {
-    const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
-    const double gr = G[2 * q], gi = G[2 * q + 1];
-    E[2 * q] += bo * (gr * dr + gi * di);
-    E[2 * q + 1] += bo * (gr * di - gi * dr);
-  }
-#pragma omp simd reduction(max : max_e2)
-  for (std::size_t q = lo; q < hi; ++q) {
-    const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
-    const double er = E[2 * q], ei = E[2 * q + 1], gr = G[2 * q], gi = G[2 * q + 1];
-    const double nr = er + bo * (gr * dr + gi * di), ni = ei + bo * (gr * di - gi * dr);
-    E[2 * q] = nr;
-    E[2 * q + 1] = ni;
-    U[2 * q] = cg * (er * dr + ei * di);
-    U[2 * q + 1] = cg * (er * di - ei * dr);
-    max_e2 = std::max(max_e2, nr * nr + ni * ni);
-  }
-#pragma omp simd
-  for (std::size_t q = hi; q < n; ++q) {
-    const double dr = B[2 * q] * inv_n - P[2 * q], di = B[2 * q + 1] * inv_n - P[2 * q + 1];
-    const double gr = G[2 * q], gi = G[2 * q + 1];
-    E[2 * q] += bo * (gr * dr + gi * di);
-    E[2 * q + 1] += bo * (gr * di - gi * dr);
-  }
-  return max_e2;
-}
+using cma_kernels::epie_update;
 
 class PtychographicEngine final : public Engine {
  public:
