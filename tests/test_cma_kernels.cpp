@@ -135,11 +135,31 @@ TEST_CASE("moduli_and_sums and scale_bins equal the scalar reference", "[cma_ker
   }
 }
 
+// Where a delay's gate samples start, from the definition of the table (gate.h: node m at time
+// t_0 + m dt, t_0 = s_0 + tau_0 - dt): u = (tau_j - tau_0) / dt + 1 nodes; an exact shift when u
+// is within 1e-6 of an integer, else the cubic stencil starts at floor(u) - 1 and its nearest
+// node is floor(u) or floor(u) + 1. Written here independently of PhaseGate's constructor.
+struct Taps {
+  bool exact = false;
+  std::size_t first = 0, nearest = 0;
+};
+Taps reference_taps(const std::vector<double>& delay, double dt, std::size_t j) {
+  const double u = (delay[j] - delay.front()) / dt + 1.0;
+  const double r = std::round(u);
+  Taps t;
+  t.exact = std::abs(u - r) < 1e-6;
+  const auto fl = static_cast<std::size_t>(std::floor(u));
+  t.first = t.exact ? static_cast<std::size_t>(r) : fl - 1;
+  t.nearest = t.exact ? t.first : (u - std::floor(u) > 0.5 ? fl + 1 : fl);
+  return t;
+}
+
 // The ePIE update against the plain update written with std::complex (Maiden and Rodenburg,
 // Ultramicroscopy 109, 1256 (2009)), with the gate sampled by PhaseGate; and the delay taps
 // against the gate's own nodes.
-TEST_CASE("epie_update equals the std::complex ePIE step; delay_taps the gate's nodes",
-          "[cma_kernels]") {
+TEST_CASE(
+    "epie_update equals the std::complex ePIE step; the gate's nodes where the delays put them",
+    "[cma_kernels]") {
   using cd = std::complex<double>;
   const std::size_t n = 256;
   const sw::TimeGrid grid = sw::TimeGrid::centered(n, 0.7);
@@ -159,10 +179,11 @@ TEST_CASE("epie_update equals the std::complex ePIE step; delay_taps the gate's 
   }
   std::size_t exact = 0;
   for (std::size_t j = 0; j < delay.size(); ++j) {
-    const sw::cma_kernels::DelayTaps t = sw::cma_kernels::delay_taps(delay, grid.dt(), j);
+    const Taps t = reference_taps(delay, grid.dt(), j);
     INFO("delay " << j);
     CHECK(t.exact == gate.exact_shift(j));
     CHECK(t.first == gate.first_node(j));
+    CHECK(t.nearest == gate.nearest_node(j));
     exact += t.exact ? 1 : 0;
     for (const auto& [lo, hi] : std::vector<std::pair<std::size_t, std::size_t>>{
              {60, 190}, {0, n}, {0, 0}, {255, 256}, {3, 4}}) {
@@ -195,9 +216,10 @@ TEST_CASE("epie_update equals the std::complex ePIE step; delay_taps the gate's 
   CHECK(exact < delay.size());
 }
 
-// The node-by-node coverage of the CMA constraints (cma_problem_internal.h) against
-// PhaseGate::coverage: the same sums in the same order, so the same bits.
-TEST_CASE("the blocked gate coverage equals PhaseGate::coverage bit for bit", "[cma_kernels]") {
+// PhaseGate::coverage (accumulated node block by node block) against the plain sum written delay
+// by delay, each delay's |eps|^2 added from its nearest node (reference_taps): the same sums in
+// the same order, so the same bits.
+TEST_CASE("the blocked gate coverage equals the delay-by-delay sum bit for bit", "[cma_kernels]") {
   std::mt19937 rng(5);
   std::normal_distribution<double> g(0.0, 1.0);
   for (const std::size_t n : {64u, 100u, 256u}) {
@@ -208,25 +230,31 @@ TEST_CASE("the blocked gate coverage equals PhaseGate::coverage bit for bit", "[
       off_nodes.push_back(-10.0 + 0.83 * j + (j % 3 == 0 ? 0.05 : 0.0));
     }
     for (const auto* delay : {&on_nodes, &off_nodes}) {
-      sw::PhaseGate gate(grid, *delay, 3.0);
       sw::CVec eps(n);
       for (std::size_t q = 0; q < n; ++q) {
         const double env = std::exp(-std::pow((static_cast<double>(q) - 0.4 * n) / 9.0, 2));
         eps[q] = sw::cdouble(env * g(rng), env * g(rng) + 1e-7 * g(rng));
       }
-      std::vector<double> want, got;
-      gate.coverage(eps, want);
-      sw::cma_detail::coverage(gate, *delay, eps, got);
-      INFO("n = " << n << (delay == &on_nodes ? ", exact shifts" : ", interpolated"));
-      REQUIRE(got.size() == want.size());
-      bool same = true;
-      for (std::size_t m = 0; m < want.size(); ++m) same = same && got[m] == want[m];
-      CHECK(same);
-      // Delays that are not the gate's: PhaseGate::coverage itself.
-      std::vector<double> other = *delay;
-      other.pop_back();
-      sw::cma_detail::coverage(gate, other, eps, got);
-      CHECK(got == want);
+      // The gate of all the delays, and of all but the last.
+      const std::vector<double> all = *delay;
+      std::vector<double> fewer = all;
+      fewer.pop_back();
+      for (const std::vector<double>* d : {&all, static_cast<const std::vector<double>*>(&fewer)}) {
+        sw::PhaseGate gate(grid, *d, 3.0);
+        std::vector<double> want(gate.size(), 0.0), got;
+        for (std::size_t j = 0; j < d->size(); ++j) {
+          const std::size_t base = reference_taps(*d, grid.dt(), j).nearest;
+          for (std::size_t q = 0; q < n; ++q) want[base + q] += std::norm(eps[q]);
+        }
+        gate.coverage(eps, got);
+        INFO("n = " << n << (delay == &on_nodes ? ", exact shifts" : ", interpolated")
+                    << (d == &fewer ? ", one delay fewer" : ""));
+        REQUIRE(got.size() == want.size());
+        bool same = true;
+        for (std::size_t m = 0; m < want.size(); ++m) same = same && got[m] == want[m];
+        CHECK(same);
+        CHECK(got == want);
+      }
     }
   }
   // The Hann weights (common practice: the sin^2 window), as align_vector_potential formed them

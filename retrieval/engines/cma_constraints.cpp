@@ -4,12 +4,9 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstring>
 #include <vector>
 
-#include "retrieval/core/hot_loop.h"
 #include "retrieval/core/units.h"
-#include "retrieval/engines/cma_kernels.h"
 #include "retrieval/engines/cma_problem_internal.h"
 
 namespace sw {
@@ -25,69 +22,6 @@ void rotate_linear(cdouble* v, std::size_t n, double t0, double step, double rat
     r *= d;
     if ((i & 255) == 255) r /= std::abs(r);
   }
-}
-
-namespace {
-
-constexpr std::size_t kBlock = 32;  // nodes accumulated together, in eight registers of four
-using V4 = double __attribute__((vector_size(4 * sizeof(double))));
-
-// a += the four values at p (by reference: a vector passed by value changes the baseline ABI).
-inline void add4(V4& a, const double* p) {
-  V4 v;
-  std::memcpy(&v, p, sizeof v);
-  a += v;
-}
-
-// w[m0 + i] = sum over j (in order) of e[m0 + i - base[j]] for the nodes m0 = 0, kBlock, ...;
-// e is |eps|^2 with `pad` zeros before and after it, so that every read is inside. Adding a
-// zero leaves a sum of non-negative terms unchanged, which makes the reads outside eps, and the
-// delays skipped because they do not reach a block, no change of any bit.
-SW_HOT_LOOP void coverage_blocks(const double* e, std::size_t n, std::size_t pad,
-                                 const std::size_t* base, std::size_t nd, double* w,
-                                 std::size_t nodes) {
-  for (std::size_t m0 = 0; m0 < nodes; m0 += kBlock) {
-    V4 a0 = {}, a1 = {}, a2 = {}, a3 = {}, a4 = {}, a5 = {}, a6 = {}, a7 = {};
-    for (std::size_t j = 0; j < nd; ++j) {
-      if (base[j] >= m0 + kBlock || base[j] + n <= m0) continue;
-      const double* p = e + pad + m0 - base[j];
-      add4(a0, p);
-      add4(a1, p + 4);
-      add4(a2, p + 8);
-      add4(a3, p + 12);
-      add4(a4, p + 16);
-      add4(a5, p + 20);
-      add4(a6, p + 24);
-      add4(a7, p + 28);
-    }
-    double* out = w + m0;
-    for (const V4& a : {a0, a1, a2, a3, a4, a5, a6, a7}) {
-      std::memcpy(out, &a, sizeof a);
-      out += 4;
-    }
-  }
-}
-
-}  // namespace
-
-void coverage(const PhaseGate& gate, const std::vector<double>& delay_au, const CVec& eps,
-              std::vector<double>& cover) {
-  const std::size_t n = gate.samples(), nd = gate.num_delays(), M = gate.size();
-  std::vector<std::size_t> base(nd);
-  bool same = delay_au.size() == nd && eps.size() == n;
-  for (std::size_t j = 0; same && j < nd; ++j) {
-    const cma_kernels::DelayTaps t = cma_kernels::delay_taps(delay_au, gate.dt(), j);
-    same = t.exact == gate.exact_shift(j) && t.first == gate.first_node(j);
-    // PhaseGate::coverage: the nearest node of the 4-tap stencil.
-    base[j] = t.exact ? t.first : t.first + (t.w[2] > t.w[1] ? 2 : 1);
-    same = same && base[j] + n <= M;
-  }
-  if (!same) return gate.coverage(eps, cover);
-  const std::size_t nodes = (M + kBlock - 1) / kBlock * kBlock, pad = nodes;
-  std::vector<double> e(pad + n + pad, 0.0), w(nodes);
-  for (std::size_t q = 0; q < n; ++q) e[pad + q] = std::norm(eps[q]);
-  coverage_blocks(e.data(), n, pad, base.data(), nd, w.data(), nodes);
-  cover.assign(w.begin(), w.begin() + static_cast<std::ptrdiff_t>(M));
 }
 
 const std::vector<double>& hann_weights(std::size_t m) {
@@ -174,7 +108,7 @@ void CmaProblem::impose_support(CVec& eps, CVec& work) const {
 
 double CmaProblem::align_vector_potential(CVec& eps, PhaseGate& gate, double p0) const {
   std::vector<double> cover;
-  cma_detail::coverage(gate, problem_.delay_au, eps, cover);
+  gate.coverage(eps, cover);
   double cmax = 0;
   for (double c : cover) cmax = std::max(cmax, c);
   const CVec& G = gate.table();
@@ -243,7 +177,7 @@ void CmaProblem::constrain(int k, CVec& eps, PhaseGate& gate, CVec& work,
   }
   impose_support(eps, work);
   if (s.gate_smoothing_interval > 0 && k % s.gate_smoothing_interval == 0) {
-    cma_detail::coverage(gate, problem_.delay_au, eps, cover);
+    gate.coverage(eps, cover);
     gate.smooth(cover);
   }
 }

@@ -1,7 +1,6 @@
 #include "retrieval/engines/cma_kernels.h"
 
 #include <algorithm>
-#include <cmath>
 
 #include "retrieval/core/hot_loop.h"
 
@@ -140,27 +139,6 @@ SW_HOT_LOOP void mode_factors(double* r2, const double* I, const double* a, std:
 SW_HOT_LOOP void scale_bins(double* S, const double* f, std::size_t n) {
 #pragma omp simd
   for (std::size_t q = 0; q < 2 * n; ++q) S[q] *= f[q / 2];
-}
-
-DelayTaps delay_taps(const std::vector<double>& delay, double dt, std::size_t j) {
-  DelayTaps t;
-  const double u = (delay[j] - delay.front()) / dt + 1.0;
-  auto i = static_cast<std::size_t>(std::floor(u));
-  double f = u - static_cast<double>(i);
-  if (f > 1.0 - 1e-6) {
-    ++i;
-    f = 0.0;
-  }
-  t.exact = f < 1e-6;
-  t.first = t.exact ? i : i - 1;
-  if (!t.exact) {
-    t.f = f;
-    t.w[0] = -f * (f - 1.0) * (f - 2.0) / 6.0;
-    t.w[1] = (f + 1.0) * (f - 1.0) * (f - 2.0) / 2.0;
-    t.w[2] = -(f + 1.0) * f * (f - 2.0) / 2.0;
-    t.w[3] = (f + 1.0) * f * (f - 1.0) / 6.0;
-  }
-  return t;
 }
 
 // The ePIE kernels (cma_kernels.h).

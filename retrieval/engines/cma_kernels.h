@@ -5,12 +5,11 @@
 // target amplitudes sqrt(max(I, 0)) / dt (raw units), dt2 = dt^2, so that M = dt2 |S|^2 is the
 // model intensity. Each kernel that takes im_out, mm_out adds sum I M and sum M^2 over the
 // segment (before any change of S) to them: the error sums of trace_error.h's trace error.
-// project_poisson relies on a being that amplitude (see its comment). Beside them: the gate
-// taps of a delay and the ePIE update of the ptychographic engine.
+// project_poisson relies on a being that amplitude (see its comment). Beside them: the ePIE
+// update of the ptychographic engine.
 // tests/test_cma_kernels.cpp checks them against a plain scalar reference.
 
 #include <cstddef>
-#include <vector>
 
 namespace sw::cma_kernels {
 
@@ -38,21 +37,6 @@ void mode_factors(double* r2, const double* I, const double* a, std::size_t n, d
 
 /// S_q <- f_q S_q (both components).
 void scale_bins(double* S, const double* f, std::size_t n);
-
-/// How the gate samples of one delay are read from the gate table (PhaseGate, gate.h): from
-/// node `first`, and for a delay that is not an exact shift with the fraction f of the linear
-/// interpolation and the four cubic Lagrange weights w (the CMA constraints' coverage takes the
-/// nearest node of the stencil from them).
-struct DelayTaps {
-  std::size_t first = 0;
-  bool exact = true;
-  double f = 0.0;
-  double w[4] = {0.0, 1.0, 0.0, 0.0};
-};
-
-/// The taps of delay j of the ascending delays `delay_au` on a table of step dt_au, computed as
-/// PhaseGate's constructor computes them (tests/test_cma_kernels.cpp checks them against it).
-DelayTaps delay_taps(const std::vector<double>& delay_au, double dt_au, std::size_t j);
 
 /// The ePIE updates of one delay (ptychographic engine; interleaved (re, im) arrays of n
 /// samples), d = psi' - psi = B / n - P with B the inverse FFT of the projected spectrum and P

@@ -89,7 +89,7 @@ CmaProblem::CommonPotential CmaProblem::common_potential(const CVec& eps,
                                                          const std::vector<PhaseGate>& gates,
                                                          std::vector<double>& cover,
                                                          bool final_frame) const {
-  cma_detail::coverage(gates[0], problem_.delay_au, eps, cover);
+  gates[0].coverage(eps, cover);
   CommonPotential c;
   c.end = last_probed_node(cover);
   const std::size_t m = gates[0].size();
@@ -236,7 +236,7 @@ std::vector<PhaseGate> CmaProblem::band_gates(const CVec& eps, const PhaseGate& 
 void CmaProblem::reconcile_gates(const CVec& eps, std::vector<PhaseGate>& gates,
                                  std::vector<double>& cover, BandState& state) const {
   if (gates.size() == 1) {
-    cma_detail::coverage(gates[0], problem_.delay_au, eps, cover);
+    gates[0].coverage(eps, cover);
     gates[0].smooth(cover);
     return;
   }

@@ -20,13 +20,6 @@ void rotate_linear(cdouble* v, std::size_t n, double t0, double step, double rat
 // Last gate node whose coverage reaches 30 % of the maximum (where reconstruct() ends A(t)).
 std::size_t last_probed_node(const std::vector<double>& cover);
 
-// cover = gate.coverage(eps) (PhaseGate: cover[m] = sum over the delays j, in order, of
-// |eps[m - base_j]|^2), the same sums in the same order, bit for bit, accumulated node by node
-// in registers instead of delay by delay in memory. `delay_au` are the delays the gate was built
-// for; a gate whose nodes differ from them takes gate.coverage itself.
-void coverage(const PhaseGate& gate, const std::vector<double>& delay_au, const CVec& eps,
-              std::vector<double>& cover);
-
 // sin^2(pi (i + 1/2) / m), i < m: the Hann weights of align_vector_potential, kept per thread
 // for the last m asked for.
 const std::vector<double>& hann_weights(std::size_t m);

@@ -118,7 +118,13 @@ class PhaseGate {
 
   /// table[m] = exp(i phi(time(m))).
   void set_phase(const std::function<double(double)>& phi);
-  /// w[m] = sum_j |eps(time(m) - tau_j)|^2 (nearest node): how strongly node m is probed.
+  /// The table node nearest G(s_0 + tau_j) (the middle pair of the cubic stencil for a delay
+  /// between nodes): where delay j's samples start in coverage().
+  std::size_t nearest_node(std::size_t j) const {
+    return exact_[j] ? first_[j] : first_[j] + (weights_[4 * j + 2] > weights_[4 * j + 1] ? 2 : 1);
+  }
+  /// w[m] = sum_j |eps(time(m) - tau_j)|^2 (nearest node, the delays summed in order): how
+  /// strongly node m is probed. Accumulated node block by node block in registers.
   void coverage(const CVec& eps, std::vector<double>& w) const;
   /// Weighted least-squares cubic B-spline fit of the unwrapped table phase (see header).
   SmoothPhase fit_phase(const std::vector<double>& weight) const;
