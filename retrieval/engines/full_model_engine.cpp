@@ -4,6 +4,7 @@
 #include <cmath>
 #include <exception>
 #include <sstream>
+#include <utility>
 
 #include <ceres/ceres.h>
 
@@ -84,11 +85,12 @@ class LeastSquaresEngine : public Engine {
     return trace_error(problem_.intensity, objective_->model(x.data(), nullptr), nullptr,
                        &problem_.weight);
   }
-  void polish_lines();
+  double polish_lines();
 
-  // Per joint line: the delay before the polish (as) and the curvature sigma after it (as).
+  // Per joint line: the delay before the first polish (as) and the curvature sigma after the
+  // last (as).
   struct LinePolish {
-    double start_as = 0.0, end_as = 0.0, curvature_sigma_as = 0.0;
+    double start_as = 0.0, curvature_sigma_as = 0.0;
   };
   std::vector<LinePolish> polish_;
   int polish_rounds_ = 0;
@@ -281,12 +283,12 @@ IterationRecord LeastSquaresEngine::iterate(int) {
 // stop L-BFGS can see (noise floor, relative change of G), so the run may end with them near
 // their start. Each line's two coordinates are minimised in turn by golden-section search with
 // every other parameter held; then the cost's curvature in the delay gives its sigma with the
-// rest fixed, sqrt(2 / chi2''), chi2 = cost x elements (weights 1 / variance).
-void LeastSquaresEngine::polish_lines() {
+// rest fixed, sqrt(2 / chi2''), chi2 = cost x elements (weights 1 / variance). Returns the
+// largest move of a delay in units of its curvature sigma.
+double LeastSquaresEngine::polish_lines() {
   const FullModelObjective& f = *objective_;
   const std::size_t off =
       f.num_xuv_parameters() + static_cast<std::size_t>(f.ir_parametrization().num_params());
-  // x holds ln(strength) at off + 2l and the delay (in units of a fixed scale) at off + 2l + 1.
   auto cost_with = [&](std::size_t i, double v) {
     const double keep = best_x_[i];
     best_x_[i] = v;
@@ -297,37 +299,39 @@ void LeastSquaresEngine::polish_lines() {
   auto delay_as = [&](std::size_t l) {
     return units::au_to_as(f.line_delay_au(best_x_.data(), l));
   };
-  polish_.assign(f.num_lines(), {});
-  for (std::size_t l = 0; l < f.num_lines(); ++l) polish_[l].start_as = delay_as(l);
-  // One unit of x in as, and the brackets: +-30 as for the delay, e^(+-0.5) for the strength.
-  const double unit_as = [&] {
-    if (f.num_lines() == 0) return 1.0;
-    const std::size_t i = off + 1;
-    const double d0 = delay_as(0);
-    best_x_[i] += 1.0;
-    const double d1 = delay_as(0);
-    best_x_[i] -= 1.0;
-    return d1 - d0;
-  }();
+  std::vector<double> before(f.num_lines());
+  for (std::size_t l = 0; l < f.num_lines(); ++l) before[l] = delay_as(l);
+  // Brackets: +-30 as for the delay, a factor e^(+-0.5) for the strength.
+  const double unit_as = FullModelObjective::kDelayScaleAs;
+  double cost = f.evaluate(best_x_.data(), nullptr);
   for (int sweep = 0; sweep < settings_.line_polish_sweeps; ++sweep)
     for (std::size_t l = 0; l < f.num_lines(); ++l)
-      for (const std::size_t i : {off + 2 * l + 1, off + 2 * l}) {
-        const double half = i % 2 == (off + 1) % 2 ? 30.0 / unit_as : 0.5;
-        const double c0 = f.evaluate(best_x_.data(), nullptr);
+      for (const auto& [i, half] :
+           {std::pair{off + 2 * l + 1, 30.0 / unit_as}, std::pair{off + 2 * l, 0.5}}) {
         const double v = golden_section_min([&](double t) { return cost_with(i, t); },
                                             best_x_[i] - half, best_x_[i] + half, 18);
-        if (cost_with(i, v) < c0) best_x_[i] = v;
+        const double c = cost_with(i, v);
+        if (c < cost) {
+          best_x_[i] = v;
+          cost = c;
+        }
       }
   const double elements = static_cast<double>(problem_.intensity.size());
   const double h = 1.0 / unit_as;  // 1 as
+  polish_.assign(f.num_lines(), {});
+  double largest = 0.0;
   for (std::size_t l = 0; l < f.num_lines(); ++l) {
     const std::size_t i = off + 2 * l + 1;
-    const double c0 = f.evaluate(best_x_.data(), nullptr);
     const double chi2_curvature =
-        (cost_with(i, best_x_[i] + h) - 2.0 * c0 + cost_with(i, best_x_[i] - h)) * elements;
-    polish_[l].curvature_sigma_as = chi2_curvature > 0 ? std::sqrt(2.0 / chi2_curvature) : 0.0;
-    polish_[l].end_as = delay_as(l);
+        (cost_with(i, best_x_[i] + h) - 2.0 * cost + cost_with(i, best_x_[i] - h)) * elements;
+    LinePolish& p = polish_[l];
+    p.curvature_sigma_as = chi2_curvature > 0 ? std::sqrt(2.0 / chi2_curvature) : 0.0;
+    const double moved = std::abs(delay_as(l) - before[l]);
+    largest = std::max(largest, p.curvature_sigma_as > 0 ? moved / p.curvature_sigma_as
+                                : moved > 0              ? HUGE_VAL
+                                                         : 0.0);
   }
+  return largest;
 }
 
 Reconstruction LeastSquaresEngine::finalize() {
@@ -339,11 +343,12 @@ Reconstruction LeastSquaresEngine::finalize() {
   if (objective_->num_lines() > 0) {
     // The polished line coordinates move the pulse and field's optimum a little: L-BFGS follows
     // for a few engine iterations' worth and the lines are polished again, until a polish moves
-    // no delay by more than 0.05 of its curvature sigma (at most line_polish_rounds rounds).
+    // no delay by more than 0.05 of its curvature sigma (at most line_polish_rounds polishes).
+    std::vector<double> start(objective_->num_lines());
+    for (std::size_t l = 0; l < start.size(); ++l)
+      start[l] = units::au_to_as(objective_->line_delay_au(best_x_.data(), l));
     polish_lines();
-    const std::vector<LinePolish> first = polish_;
-    polish_rounds_ = 1;
-    for (; polish_rounds_ < settings_.line_polish_rounds; ++polish_rounds_) {
+    for (polish_rounds_ = 1; polish_rounds_ < settings_.line_polish_rounds; ++polish_rounds_) {
       LbfgsRunner follow(*objective_, ceres_options_, best_x_);
       follow.advance(3 * settings_.lbfgs_per_iteration);
       follow.stop();
@@ -351,13 +356,9 @@ Reconstruction LeastSquaresEngine::finalize() {
       if (!follow.error() && objective_->evaluate(follow.x().data(), nullptr) <
                                  objective_->evaluate(best_x_.data(), nullptr))
         best_x_ = follow.x();
-      polish_lines();
-      bool settled = true;
-      for (const LinePolish& p : polish_)
-        if (std::abs(p.end_as - p.start_as) > 0.05 * p.curvature_sigma_as) settled = false;
-      if (settled) break;
+      if (polish_lines() <= 0.05) break;
     }
-    for (std::size_t l = 0; l < polish_.size(); ++l) polish_[l].start_as = first[l].start_as;
+    for (std::size_t l = 0; l < start.size(); ++l) polish_[l].start_as = start[l];
   }
   const FullModelObjective& f = *objective_;
   CVec eps = f.envelope(best_x_.data());
@@ -457,7 +458,9 @@ Reconstruction LeastSquaresEngine::finalize() {
     S.emplace_back(k + "counts_ratio", c.str());
     if (l < polish_.size()) {
       S.emplace_back(k + "delay_before_polish_as", num(polish_[l].start_as));
-      S.emplace_back(k + "delay_curvature_sigma_as", num(polish_[l].curvature_sigma_as));
+      // A sigma only where the cost is a chi^2 (weights 1 / variance).
+      if (problem_.variance.size() != 0)
+        S.emplace_back(k + "delay_curvature_sigma_as", num(polish_[l].curvature_sigma_as));
       S.emplace_back(k + "polish_rounds", std::to_string(polish_rounds_));
     }
   }

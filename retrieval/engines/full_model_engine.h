@@ -155,6 +155,8 @@ class FullModelObjective {
   /// Further lines of a joint fit (RetrievalProblem::extra_lines), in the problem's order.
   std::size_t num_lines() const { return lines_.size(); }
   const ExtraLine& line(std::size_t l) const { return lines_[l].spec; }
+  /// x holds, after the IR parameters, ln s_l at 2l and t_l / kDelayScaleAs at 2l + 1 per line.
+  static constexpr double kDelayScaleAs = 10.0;
   /// Strength s_l and relative delay t_l (a.u.) of line l at x.
   double line_strength(const double* x, std::size_t l) const;
   double line_delay_au(const double* x, std::size_t l) const;
@@ -199,7 +201,6 @@ class FullModelObjective {
   std::vector<LineTerm> lines_;
   std::vector<double> energy_au_;
   std::vector<double> omega_bin_;  // FFT angular frequency (about the carrier) of each energy bin
-  static constexpr double kDelayScaleAs = 10.0;
 
   MomentumModel model_;
   FullModelSettings settings_;
