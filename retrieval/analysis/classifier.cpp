@@ -48,7 +48,8 @@ SpectralEvidence spectral_evidence(const Trace& t, double T, double bg, int max_
   // Per-row fringe contrasts r_k (noise-debiased, maximum over the lag window).
   const int lags_per_window = 13;
   std::vector<std::vector<double>> rk;  // per qualifying row
-  std::vector<double> weight;
+  std::vector<double> weight, noise;
+  std::vector<std::size_t> rows;
   for (std::size_t i = 0; i < nd; ++i) {
     double tot = 0, var = 0;
     for (std::size_t j = 0; j < ne; ++j) {
@@ -57,21 +58,32 @@ SpectralEvidence spectral_evidence(const Trace& t, double T, double bg, int max_
       var += std::max(c, 0.0);
     }
     if (!(tot > 0)) continue;
-    std::vector<double> r(static_cast<std::size_t>(K));
-    for (int k = 1; k <= K; ++k) {
+    rows.push_back(i);
+    weight.push_back(tot);
+    noise.push_back(var);
+    rk.emplace_back(static_cast<std::size_t>(K));
+  }
+  // The phase factors of one lag window, shared by every row.
+  std::vector<std::complex<double>> factor(static_cast<std::size_t>(lags_per_window) * ne);
+  std::vector<double> row(ne);
+  for (int k = 1; k <= K; ++k) {
+    for (int l = 0; l < lags_per_window; ++l) {
+      const double s = k * 0.5 * T + (-0.125 + 0.25 * l / (lags_per_window - 1)) * T;
+      for (std::size_t j = 0; j < ne; ++j)
+        factor[static_cast<std::size_t>(l) * ne + j] = std::polar(1.0, -W[j] * s);
+    }
+    for (std::size_t q = 0; q < rows.size(); ++q) {
+      for (std::size_t j = 0; j < ne; ++j)
+        row[j] = t.counts(static_cast<Eigen::Index>(rows[q]), static_cast<Eigen::Index>(j)) - bg;
       double best = 0;
       for (int l = 0; l < lags_per_window; ++l) {
-        const double s = k * 0.5 * T + (-0.125 + 0.25 * l / (lags_per_window - 1)) * T;
+        const std::complex<double>* f = factor.data() + static_cast<std::size_t>(l) * ne;
         std::complex<double> F = 0.0;
-        for (std::size_t j = 0; j < ne; ++j)
-          F += (t.counts(static_cast<Eigen::Index>(i), static_cast<Eigen::Index>(j)) - bg) *
-               std::polar(1.0, -W[j] * s);
-        best = std::max(best, std::norm(F) - var);
+        for (std::size_t j = 0; j < ne; ++j) F += row[j] * f[j];
+        best = std::max(best, std::norm(F) - noise[q]);
       }
-      r[static_cast<std::size_t>(k - 1)] = std::sqrt(std::max(best, 0.0)) / tot;
+      rk[q][static_cast<std::size_t>(k - 1)] = std::sqrt(std::max(best, 0.0)) / weight[q];
     }
-    rk.push_back(std::move(r));
-    weight.push_back(tot);
   }
   if (rk.empty()) {
     ev.note = "no delay row holds counts above the background";
