@@ -167,7 +167,7 @@ TEST_CASE("the rabbitt and classify settings echo keeps the result.json keys", "
 
 TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") {
   // DESIGN.md result contract: these settings.* keys, in this order, as written before the
-  // description existed (tests and DESIGN.md rely on them).
+  // description existed (tests and DESIGN.md rely on them); energy_combine added after them.
   std::vector<Param> echo;
   append_settings_echo(RetrieveOptions{}, &echo);
   std::vector<std::string> keys;
@@ -179,10 +179,12 @@ TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") 
                     "settings.cma_trace_error_max_ratio", "settings.method_sigma_relative",
                     "settings.window_cut_sigma_per_share", "settings.isolated_max_satellite_ratio",
                     "settings.satellites_max_satellite_ratio", "settings.satellite_start",
-                    "settings.satellite_start_ratio", "settings.dipole"});
+                    "settings.satellite_start_ratio", "settings.dipole",
+                    "settings.energy_combine"});
   // Integers are written as integers, the dipole by name.
   CHECK(std::holds_alternative<long long>(echo[1].value));
-  CHECK(std::get<std::string>(echo.back().value) == "constant");
+  CHECK(std::get<std::string>(echo[echo.size() - 2].value) == "constant");
+  CHECK(std::get<long long>(echo.back().value) == 0);
 }
 
 TEST_CASE("engine options from the typed settings' description", "[options]") {

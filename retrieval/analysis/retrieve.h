@@ -261,6 +261,14 @@ struct RetrieveOptions {
                  .flag = "--dipole",
                  .config_key = "dipole"},
       self.preprocess.dipole);
+    v(OptionSpec{.name = "energy_combine",
+                 .help = "energy bins summed into one before the engines: 0 = auto (an axis finer "
+                         "than the XUV window needs), 1 = never, k = always k",
+                 .min = 0,
+                 .max = 64,
+                 .flag = "--energy-combine",
+                 .config_key = "energy_combine"},
+      self.preprocess.energy_combine);
     v(OptionSpec{.name = "despike",
                  .help = "replace isolated hot pixels (no smoothing; on by default)",
                  .flag = "--despike,!--no-despike",

@@ -41,6 +41,10 @@
 //      their centroid can be off by the residual shift); without such rows the
 //      delay-averaged spectrum (kDelayAverage, field_free_measured = false): it is broadened
 //      by the streaking, so it then serves as initial guess only;
+//   4a. oversampled axes: k adjacent energy bins summed into one (counts, background and
+//      neighbour-line estimates summed, a group with a saturated or model-only bin is one),
+//      after the background, hot-pixel, line and window steps have run on the measured bins
+//      (PreprocessOptions::energy_combine; the last ne mod k bins are left out);
 //   7. the XUV grid: frequency step = energy step, size the next power of two >= 2x the number
 //      of energy bins (so the measured band sits inside the FFT band with margin).
 
@@ -79,6 +83,23 @@ struct PreprocessOptions {
   double energy_window_lo_eV = 0.0, energy_window_hi_eV = 0.0;
   /// Largest centroid shift (fraction of the scan's largest) of a field-free edge row.
   double field_free_shift_fraction = 0.1;  ///< in (0, 1)
+  /// Adjacent energy bins summed into one before the engines (step 4a): 0 = automatic, 1 =
+  /// never, k >= 2 = always k. Automatic: the largest k whose XUV-grid time window
+  /// h / (k dW) stays at least
+  ///   - combine_min_window_periods IR periods,
+  ///   - combine_min_window_span_factor x the delay span, and
+  ///   - combine_min_window_lags x the signal's lag extent: the largest lag at which the
+  ///     Fourier transform over energy of the rows' counts (the autocorrelation of the
+  ///     photoelectron wave packet) stands combine_noise_sigmas above the counting noise
+  ///     (a pulse train or distant satellites keep a fine axis),
+  /// and which leaves >= 64 bins. A packet confined to a window T has spectra with no structure
+  /// finer than h / T, so the sum loses nothing the engines can represent on that window,
+  /// while the grid and every FFT shrink by k.
+  int energy_combine = 0;
+  double combine_min_window_periods = 6.0;      ///< > 0, IR periods (automatic combination)
+  double combine_min_window_span_factor = 1.5;  ///< >= 0, x the delay span (automatic)
+  double combine_min_window_lags = 3.0;         ///< >= 2, x the lag extent (automatic)
+  double combine_noise_sigmas = 5.0;            ///< > 0 (automatic)
   /// XUV grid size; 0 = automatic (next power of two >= 2 x energy bins, at least 256).
   std::size_t grid_size = 0;
   /// Dipole model used by the engines.
@@ -96,7 +117,14 @@ struct PreprocessSummary {
   BackgroundModel background;        ///< the full model (model "sidecar constant" / "none" too)
   std::size_t hot_pixels_replaced = 0;
   bool energy_resampled = false;
-  double energy_step_eV = 0.0;
+  double energy_step_eV = 0.0;  ///< of the engines' axis (after step 4a)
+  /// Step 4a: measured (or resampled) bins summed into one engine bin (1 = none), the step before
+  /// the sum, and the bins at the top of the axis left out (fewer than energy_bins_combined).
+  std::size_t energy_bins_combined = 1;
+  double measured_energy_step_eV = 0.0;
+  std::size_t energy_bins_left_out = 0;
+  /// Lag extent of the signal (fs) measured by the automatic rule of step 4a (0 = not needed).
+  double signal_lag_extent_fs = 0.0;
   double centroid_energy_eV = 0.0;  ///< photoelectron-spectrum centroid
   double central_momentum_au = 0.0;
   double bandwidth_fwhm_eV = 0.0;  ///< of the field-free photoelectron spectrum

@@ -5,10 +5,15 @@
 //                              40..115 eV (finer steps, the same physics); counters: seconds
 //                              (wall), process_cpu_s, engine iterations, delays, energies, grid
 //                              (XUV time-grid points), and per_iteration_ms;
+//                              The engines' scaling: the energy bins are never combined
+//                              (PreprocessOptions::energy_combine = 1), so the grid follows NE;
 //   BM_LargeWithSigma/T        the 401 x 1200 scan with the default 8 bootstrap replicas on T
-//                              worker threads (T = 1 and 2: the replicas' speed-up); counter
-//                              fwhm_sigma_as. tests/bench/run_bench.sh also runs the T = 2 case
-//                              alone under /usr/bin/time -v for the peak memory.
+//                              worker threads (T = 1 and 2: the replicas' speed-up) and default
+//                              options (its 0.0625 eV bins are summed in threes, preprocess step
+//                              4a); counters fwhm_as, fwhm_sigma_as, energy_bins_combined.
+//                              tests/bench/run_bench.sh also runs the T = 2 case alone under
+//                              /usr/bin/time -v for the peak memory;
+//   BM_LargeWithSigmaUncombined/T  the same with energy_combine = 1 (every measured bin).
 // Wall time on a shared machine depends on the load: compare rows of one run.
 #include <benchmark/benchmark.h>
 #include <sys/resource.h>
@@ -37,11 +42,12 @@ synthetic::SyntheticScan neon_scan(int nd, int ne) {
   return synthetic::generate_scan(c, 5);
 }
 
-void run(benchmark::State& state, int nd, int ne, int bootstrap, int threads) {
+void run(benchmark::State& state, int nd, int ne, int bootstrap, int threads, int combine) {
   const synthetic::SyntheticScan scan = neon_scan(nd, ne);
   RetrieveOptions o;
   o.bootstrap = bootstrap;
   o.threads = threads;
+  o.preprocess.energy_combine = combine;
   RetrieveOutput r;
   double cpu = 0.0;
   for (auto _ : state) {
@@ -58,6 +64,7 @@ void run(benchmark::State& state, int nd, int ne, int bootstrap, int threads) {
   state.counters["delays"] = nd;
   state.counters["energies"] = ne;
   state.counters["grid"] = static_cast<double>(r.problem.grid.size());
+  state.counters["energy_bins_combined"] = static_cast<double>(r.preprocess.energy_bins_combined);
   state.counters["threads"] = resolve_threads(threads);
   if (r.result.xuv) {
     state.counters["fwhm_as"] = r.result.xuv->fwhm_as.value_or(0.0);
@@ -66,7 +73,7 @@ void run(benchmark::State& state, int nd, int ne, int bootstrap, int threads) {
 }
 
 void BM_ScanSize(benchmark::State& state) {
-  run(state, static_cast<int>(state.range(0)), static_cast<int>(state.range(1)), 0, 1);
+  run(state, static_cast<int>(state.range(0)), static_cast<int>(state.range(1)), 0, 1, 1);
 }
 BENCHMARK(BM_ScanSize)
     ->Args({61, 300})
@@ -76,8 +83,13 @@ BENCHMARK(BM_ScanSize)
     ->Apply(sw::bench::one_timed_run);
 
 void BM_LargeWithSigma(benchmark::State& state) {
-  run(state, 401, 1200, 8, static_cast<int>(state.range(0)));
+  run(state, 401, 1200, 8, static_cast<int>(state.range(0)), 0);
 }
 BENCHMARK(BM_LargeWithSigma)->Arg(1)->Arg(2)->Apply(sw::bench::one_timed_run);
+
+void BM_LargeWithSigmaUncombined(benchmark::State& state) {
+  run(state, 401, 1200, 8, static_cast<int>(state.range(0)), 1);
+}
+BENCHMARK(BM_LargeWithSigmaUncombined)->Arg(2)->Apply(sw::bench::one_timed_run);
 
 }  // namespace

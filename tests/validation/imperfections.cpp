@@ -73,6 +73,7 @@ SweepRow run_case(const ValidationCase& k, const SweepOptions& o, const std::str
     ro.engine = o.engine;
     ro.threads = 1;
     parse_uncertainty_method(o.uncertainty, &ro.uncertainty);  // checked by run_sweep
+    ro.preprocess.energy_combine = o.energy_combine;
     const RetrieveOutput r = retrieve(trace, ro);
     const AnalysisResult& a = r.result;
     row.engine = a.engine;

@@ -60,7 +60,16 @@ struct SweepOptions {
   /// > 0: run held_out_cases(held_out, held_out_seed) instead of the named set.
   int held_out = 0;
   unsigned long long held_out_seed = 1;
+  /// >= 1: every scan recorded on an energy axis this many times finer (refined_scan()).
+  int energy_refine = 1;
+  int energy_combine = 0;  ///< RetrieveOptions::preprocess.energy_combine (0 = auto, 1 = never)
 };
+
+/// The same measurement histogrammed on `f` times finer energy bins: step / f, count x f (and
+/// time-of-flight bins x f); the expected counts per bin (peak, background, tail, saturation
+/// level) / f and the readout rms / sqrt(f), so that f adjacent bins sum to the original
+/// statistics.
+synthetic::ScanConfig refined_scan(synthetic::ScanConfig c, int f);
 
 struct SweepRow;
 /// Called (under a lock) with each row as soon as its case has finished.

@@ -540,8 +540,25 @@ std::vector<ValidationCase> held_out_cases(int n, unsigned long long seed) {
   return v;
 }
 
+synthetic::ScanConfig refined_scan(synthetic::ScanConfig c, int f) {
+  if (f <= 1) return c;
+  const double r = f;
+  c.geometry.energy_eV.step /= r;
+  c.geometry.energy_eV.count *= f;
+  c.tof.bins *= f;
+  c.noise.peak_counts /= r;
+  c.noise.background_counts /= r;
+  c.noise.background_exp_counts /= r;
+  c.noise.saturation_counts /= r;
+  c.noise.readout_rms_counts /= std::sqrt(r);
+  return c;
+}
+
 std::vector<ValidationCase> sweep_cases(const SweepOptions& o) {
-  return o.held_out > 0 ? held_out_cases(o.held_out, o.held_out_seed) : validation_cases();
+  std::vector<ValidationCase> v =
+      o.held_out > 0 ? held_out_cases(o.held_out, o.held_out_seed) : validation_cases();
+  for (ValidationCase& c : v) c.config = refined_scan(c.config, o.energy_refine);
+  return v;
 }
 
 }  // namespace sw::validation

@@ -72,6 +72,10 @@ int main(int argc, char** argv) {
         o.held_out = integer("--held-out");
       } else if (a == "--held-out-seed") {
         o.held_out_seed = static_cast<unsigned long long>(integer("--held-out-seed"));
+      } else if (a == "--energy-refine") {
+        o.energy_refine = integer("--energy-refine");
+      } else if (a == "--energy-combine") {
+        o.energy_combine = integer("--energy-combine");
       } else if (a == "--write-scans") {
         write_dir = value("--write-scans");
       } else if (a == "--work") {
@@ -80,7 +84,8 @@ int main(int argc, char** argv) {
         std::printf(
             "usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
             "[--jobs N (1)] [--engine NAME (auto)] [--uncertainty full|warm (full)] [--work DIR] "
-            "[--list] [--check-scans] [--write-scans DIR] [--held-out N [--held-out-seed S]]\n");
+            "[--list] [--check-scans] [--write-scans DIR] [--held-out N [--held-out-seed S]] "
+            "[--energy-refine F (1)] [--energy-combine K (0 = auto)]\n");
         return 0;
       } else if (!a.empty() && a[0] == '-') {
         throw usage_error("unknown option " + a);
