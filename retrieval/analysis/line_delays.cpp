@@ -13,6 +13,7 @@
 #include "retrieval/core/error.h"
 #include "retrieval/core/units.h"
 #include "retrieval/physics/gas.h"
+#include "retrieval/preprocess/edge_rows.h"
 #include "retrieval/preprocess/lines.h"
 #include "retrieval/preprocess/preprocess.h"
 
@@ -73,9 +74,9 @@ std::vector<RowSums> row_sums(const Eigen::MatrixXd& C, const std::vector<double
 }
 
 // The lines found on the unstreaked edge rows alone (the runs of rows at either end of the scan
-// whose centroid stays within `quiet` of the largest centroid shift, as in preprocess's
-// cross-check, lines.h compare_line_patterns), with a dip of 0.1 of the peak separating two
-// lines. Nothing when there are fewer than 3 such rows or the gas is unknown.
+// whose centroid stays within `quiet` of the largest centroid shift, edge_rows.h, as in
+// preprocess's cross-check, lines.h compare_line_patterns), with a dip of 0.1 of the peak
+// separating two lines. Nothing when there are fewer than 3 such rows or the gas is unknown.
 std::optional<LineSearch> unstreaked_lines(const Trace& trace, const std::vector<double>& bg,
                                            double quiet) {
   const Eigen::MatrixXd& C = trace.counts;
@@ -87,32 +88,19 @@ std::optional<LineSearch> unstreaked_lines(const Trace& trace, const std::vector
         units::au_to_eV(trace.energy_au[static_cast<std::size_t>(j)]);
   std::vector<double> cen(static_cast<std::size_t>(nr), 0.0);
   std::vector<char> has(static_cast<std::size_t>(nr), 0);
-  double mean = 0, m = 0;
+  int m = 0;  // rows with a centroid
   const std::vector<RowSums> sums = row_sums(C, bg, W_eV);
   for (Eigen::Index i = 0; i < nr; ++i) {
     const RowSums& r = sums[static_cast<std::size_t>(i)];
     if (r.counts > 0) {
       cen[static_cast<std::size_t>(i)] = r.weighted / r.counts;
       has[static_cast<std::size_t>(i)] = 1;
-      mean += r.weighted / r.counts;
       ++m;
     }
   }
   if (m < 6) return std::nullopt;
-  mean /= m;
-  double big = 0;
-  for (Eigen::Index i = 0; i < nr; ++i)
-    if (has[static_cast<std::size_t>(i)])
-      big = std::max(big, std::abs(cen[static_cast<std::size_t>(i)] - mean));
-  auto is_quiet = [&](Eigen::Index i, Eigen::Index edge) {
-    return has[static_cast<std::size_t>(i)] && has[static_cast<std::size_t>(edge)] &&
-           std::abs(cen[static_cast<std::size_t>(i)] - cen[static_cast<std::size_t>(edge)]) <=
-               quiet * big;
-  };
-  std::vector<Eigen::Index> rows;
-  for (Eigen::Index i = 0; i < nr / 2 && is_quiet(i, 0); ++i) rows.push_back(i);
-  for (Eigen::Index i = nr - 1; i >= nr / 2 && is_quiet(i, nr - 1); --i) rows.push_back(i);
-  if (!(big > 0) || rows.size() < 3) return std::nullopt;
+  const std::vector<Eigen::Index> rows = quiet_edge_rows(cen, has, quiet);
+  if (rows.empty()) return std::nullopt;
   std::vector<double> fs(static_cast<std::size_t>(ne), 0.0), fv(fs.size(), 0.0);
   for (Eigen::Index j = 0; j < ne; ++j) {
     double c = 0;

@@ -12,6 +12,7 @@
 #include "retrieval/core/units.h"
 #include "retrieval/physics/gas.h"
 #include "retrieval/physics/pulse_metrics.h"
+#include "retrieval/preprocess/edge_rows.h"
 
 namespace sw {
 
@@ -384,27 +385,10 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
       }
     }
     if (ls.reference >= 0 && trace.meta.kind != TraceKind::kRabbitt && nd >= 6) {
-      double mean = 0, m = 0, big = 0;
-      for (Eigen::Index i = 0; i < nd; ++i)
-        if (has[static_cast<std::size_t>(i)]) {
-          mean += cen[static_cast<std::size_t>(i)];
-          ++m;
-        }
-      mean = m > 0 ? mean / m : 0.0;
-      for (Eigen::Index i = 0; i < nd; ++i)
-        if (has[static_cast<std::size_t>(i)])
-          big = std::max(big, std::abs(cen[static_cast<std::size_t>(i)] - mean));
-      // Quiet: within the fraction of the largest shift from the edge row's own centroid (the
-      // scan's mean centroid is itself pulled by the streaked rows).
-      auto quiet = [&](Eigen::Index i, Eigen::Index edge) {
-        return has[static_cast<std::size_t>(i)] && has[static_cast<std::size_t>(edge)] &&
-               std::abs(cen[static_cast<std::size_t>(i)] - cen[static_cast<std::size_t>(edge)]) <=
-                   opt.field_free_shift_fraction * big;
-      };
-      std::vector<Eigen::Index> rows;
-      for (Eigen::Index i = 0; i < nd / 2 && quiet(i, 0); ++i) rows.push_back(i);
-      for (Eigen::Index i = nd - 1; i >= nd / 2 && quiet(i, nd - 1); --i) rows.push_back(i);
-      if (big > 0 && rows.size() >= 3) {
+      // Quiet: within the fraction of the largest shift from the edge row's own centroid.
+      const std::vector<Eigen::Index> rows =
+          quiet_edge_rows(cen, has, opt.field_free_shift_fraction);
+      if (!rows.empty()) {
         std::vector<double> fs(static_cast<std::size_t>(ne), 0.0), fv(fs.size(), 0.0);
         for (Eigen::Index j = 0; j < ne; ++j) {
           double c = 0;
