@@ -101,15 +101,23 @@ Eigen::MatrixXd read_in_process(const std::string& file, const std::string& data
   }
 }
 
+// The bookkeeping of one ::read or ::write call that moved `done` bytes (its result) of the n
+// left at c: true to go on (c and n advanced past the bytes moved, or nothing moved because a
+// signal interrupted the call: call again), false when the transfer failed (an error, or end of
+// data).
+template <typename Byte>
+bool advance(ssize_t done, Byte*& c, std::size_t& n) {
+  if (done < 0 && errno == EINTR) return true;
+  if (done <= 0) return false;
+  c += done;
+  n -= static_cast<std::size_t>(done);
+  return true;
+}
+
 bool write_all(int fd, const void* p, std::size_t n) {
   const char* c = static_cast<const char*>(p);
-  while (n > 0) {
-    const ssize_t w = ::write(fd, c, n);
-    if (w < 0 && errno == EINTR) continue;
-    if (w <= 0) return false;
-    c += w;
-    n -= static_cast<std::size_t>(w);
-  }
+  while (n > 0)
+    if (!advance(::write(fd, c, n), c, n)) return false;
   return true;
 }
 
@@ -125,11 +133,7 @@ bool read_all(int fd, void* p, std::size_t n, std::chrono::steady_clock::time_po
     if (r < 0 && errno == EINTR) continue;
     if (r < 0) return false;
     if (r == 0) continue;
-    const ssize_t got = ::read(fd, c, n);
-    if (got < 0 && errno == EINTR) continue;
-    if (got <= 0) return false;
-    c += got;
-    n -= static_cast<std::size_t>(got);
+    if (!advance(::read(fd, c, n), c, n)) return false;
   }
   return true;
 }
