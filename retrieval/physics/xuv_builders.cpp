@@ -60,6 +60,23 @@ void check_inside_window(const TimeGrid& grid, double t_au, const char* what) {
   }
 }
 
+// The start a train and a burst with satellites share (Params: XuvTrain or XuvWithSatellites):
+// the parameters checked (a usage error "<who>: <problem>"), the driver period T and the main
+// burst's centre, which must lie inside the time window (else the usage error of
+// check_inside_window, naming it `centre`).
+struct BurstTiming {
+  double period_au = 0.0, center_au = 0.0;
+};
+template <typename Params>
+BurstTiming periodic_burst_timing(const TimeGrid& grid, const Params& p, const char* who,
+                                  const char* centre) {
+  throw_if_invalid(who, p.validate());
+  const BurstTiming b{driver_period_au(p.driver_wavelength_nm),
+                      units::as_to_au(p.burst.center_time_as)};
+  check_inside_window(grid, b.center_au, centre);
+  return b;
+}
+
 }  // namespace
 
 double driver_period_au(double driver_wavelength_nm) {
@@ -159,10 +176,8 @@ XuvField make_tabulated_xuv(const TimeGrid& grid, double carrier_eV,
 }
 
 XuvField make_xuv_train(const TimeGrid& grid, const XuvTrain& train) {
-  throw_if_invalid("make_xuv_train", train.validate());
-  const double T = driver_period_au(train.driver_wavelength_nm);
-  const double t_center = units::as_to_au(train.burst.center_time_as);
-  check_inside_window(grid, t_center, "make_xuv_train: the train centre (burst.center_time_as)");
+  const auto [T, t_center] = periodic_burst_timing(
+      grid, train, "make_xuv_train", "make_xuv_train: the train centre (burst.center_time_as)");
   const double fwhm = units::fs_to_au(train.train_fwhm_fs);
   const double first = grid.time(0) + 0.25 * T;
   const double last = grid.time(grid.size() - 1) - 0.25 * T;
@@ -190,10 +205,9 @@ XuvField make_xuv_train(const TimeGrid& grid, const XuvTrain& train) {
 }
 
 XuvField make_xuv_with_satellites(const TimeGrid& grid, const XuvWithSatellites& p) {
-  throw_if_invalid("make_xuv_with_satellites", p.validate());
-  const double T = driver_period_au(p.driver_wavelength_nm);
-  const double tc = units::as_to_au(p.burst.center_time_as);
-  check_inside_window(grid, tc, "make_xuv_with_satellites: the main burst (burst.center_time_as)");
+  const auto [T, tc] =
+      periodic_burst_timing(grid, p, "make_xuv_with_satellites",
+                            "make_xuv_with_satellites: the main burst (burst.center_time_as)");
   const double w0 = units::eV_to_au(p.burst.center_eV);
   const double a_before = -std::sqrt(p.satellite_intensity_ratio_before);
   const double a_after = -std::sqrt(p.satellite_intensity_ratio_after);
