@@ -246,23 +246,19 @@ void add_batch_command(CLI::App& app) {
   const auto [cmd, a] = add_command<BatchArgs>(
       app, "batch", run_batch_command,
       "Analyse many scans: folders, sidecars or manifests; resumable, parallel, shardable",
-      std::string(
-          "INPUT: a folder (searched recursively for trace sidecars), a sidecar, or a manifest\n"
-          "(.csv, or .json/.yaml with a \"scans\" list; per-scan columns scan, name, gas,\n"
-          "ir_wavelength_nm, engine, kind, analysis). Each scan is written to DIR/<its path "
-          "relative\n"
-          "to its input folder, without extension>/ (result.json, CSVs, figures, report.html), via "
-          "a\n"
-          "temporary folder renamed into place. Then DIR/summary.csv, summary.json, trend_*.png\n"
-          "(.svg with --figure-format svg) and index.html. A failed scan never stops the "
-          "batch.\n") +
-          "--config FILE (JSON or YAML): the options below as keys (" + config_keys_text() +
-          "; energy_window as \"LO:HI\"),\n"
-          "plus gas, ir_wavelength_nm and kind applied to every scan (manifest rows win);\n"
-          "command-line options win over the file.\n"
-          "Seeds: each scan's seed derives from --seed and its name, so results do not depend on\n"
-          "--jobs or --shard. Ctrl-C: no new scans start, running ones finish (twice: abandoned).\n"
-          "Exit: 0 all ok, 5 some scan failed, 2 bad usage, 130 interrupted. See docs/batch.md.");
+      R"(INPUT: a folder (searched recursively for trace sidecars), a sidecar, or a manifest
+(.csv, or .json/.yaml with a "scans" list; per-scan columns scan, name, gas,
+ir_wavelength_nm, engine, kind, analysis). Each scan is written to DIR/<its path relative
+to its input folder, without extension>/ (result.json, CSVs, figures, report.html), via a
+temporary folder renamed into place. Then DIR/summary.csv, summary.json, trend_*.png
+(.svg with --figure-format svg) and index.html. A failed scan never stops the batch.
+--config FILE (JSON or YAML): the options below as keys ()" +
+          config_keys_text() + R"(; energy_window as "LO:HI"),
+plus gas, ir_wavelength_nm and kind applied to every scan (manifest rows win);
+command-line options win over the file.
+Seeds: each scan's seed derives from --seed and its name, so results do not depend on
+--jobs or --shard. Ctrl-C: no new scans start, running ones finish (twice: abandoned).
+Exit: 0 all ok, 5 some scan failed, 2 bad usage, 130 interrupted. See docs/batch.md.)");
   cmd->add_option("inputs", a->inputs, "folders, sidecars or manifests")->required();
   cmd->add_option("--out,-o", a->out, "batch output folder (created)")->required();
   a->cli["jobs"] = cmd->add_option("--jobs,-j", a->options.jobs, "scans analysed in parallel")

@@ -51,20 +51,20 @@ void add_classify_command(CLI::App& app) {
   const auto [cmd, a] = add_command<ClassifyArgs>(
       app, "classify", run_classify,
       "Decide isolated pulse, isolated with satellites, or pulse train from a scan",
-      "Evidence (each value printed and written to result.json verdict.evidence):\n"
-      "  spectrum.*   fringe contrast of the photoelectron spectrum at 2 hbar omega (bursts\n"
-      "               T/2 apart) and hbar omega (T apart): a satellite-ratio estimate, or a\n"
-      "               harmonic comb;\n"
-      "  delay.*      share of 2 omega (sideband) versus omega (streaking) oscillation in delay;\n"
-      "  retrieval.*  with --retrieve: satellites of the reconstructed XUV field (the streaking\n"
-      "               retrieval runs first, without bootstrap).\n"
-      "Classes: isolated (largest satellite <= --isolated-max of the main burst's peak),\n"
-      "isolated_with_satellites (below --satellites-max), train (>= --comparable-bursts bursts\n"
-      "or a harmonic comb), undetermined (evidence disagrees or signal too weak). Default\n"
-      "thresholds: common practice, no published standard.\n"
-      "An xuv_only scan without ir_wavelength_nm is read with 800 nm (warned).\n"
-      "Writes into DIR: result.json, evidence.csv, PNG figures and report.html.\n"
-      "Exit 0 ok, 2 bad usage, 3 bad input, 4 numerical failure.");
+      R"(Evidence (each value printed and written to result.json verdict.evidence):
+  spectrum.*   fringe contrast of the photoelectron spectrum at 2 hbar omega (bursts
+               T/2 apart) and hbar omega (T apart): a satellite-ratio estimate, or a
+               harmonic comb;
+  delay.*      share of 2 omega (sideband) versus omega (streaking) oscillation in delay;
+  retrieval.*  with --retrieve: satellites of the reconstructed XUV field (the streaking
+               retrieval runs first, without bootstrap).
+Classes: isolated (largest satellite <= --isolated-max of the main burst's peak),
+isolated_with_satellites (below --satellites-max), train (>= --comparable-bursts bursts
+or a harmonic comb), undetermined (evidence disagrees or signal too weak). Default
+thresholds: common practice, no published standard.
+An xuv_only scan without ir_wavelength_nm is read with 800 nm (warned).
+Writes into DIR: result.json, evidence.csv, PNG figures and report.html.
+Exit 0 ok, 2 bad usage, 3 bad input, 4 numerical failure.)");
   add_scan_and_out_options(cmd, *a);
   // The options of ClassifyAnalysisOptions::describe (retrieval/analysis/analyses.h).
   add_described_options(cmd, a->options);

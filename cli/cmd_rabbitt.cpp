@@ -98,26 +98,26 @@ void add_rabbitt_command(CLI::App& app) {
   const auto [cmd, a] = add_command<RabbittArgs>(
       app, "rabbitt", run_rabbitt,
       "Attochirp and average burst of a pulse train from a RABBITT scan",
-      "Method: harmonic and sideband peaks are identified at q hbar omega - Ip (gas and IR\n"
-      "wavelength from the sidecar or --gas/--ir-wavelength); the energy axis offset and scale\n"
-      "that align them are reported. Each sideband is fitted over the whole delay axis with\n"
-      "S(tau) = A + B cos(2 omega tau + phi) (Poisson-weighted linear least squares; also per\n"
-      "energy bin: rainbow RABBITT), the oscillation frequency is fitted freely to check the\n"
-      "delay-stage calibration, and the group delay t_e = phi / (2 omega) - atomic delay gives\n"
-      "the attochirp (as/eV, positive = higher photon energies emitted later). The average\n"
-      "burst is E(t) = sum_q sqrt(I_q) exp(i phi_q - i q omega t) with the harmonic\n"
-      "intensities from the spectrum divided by the cross-section model.\n"
-      "Needs a weak IR field (one IR photon per path) and a harmonic comb: a streaking scan\n"
-      "without a comb is refused (exit 3).\n"
-      "With a second photoelectron line (declared in the sidecar's lines, or a line of the\n"
-      "gas table seen in the comb) each sideband order present for both lines gives the\n"
-      "relative delay (phi_line - phi_reference) / (2 omega), raw and corrected for the\n"
-      "continuum-continuum delay at each line's kinetic energy, and their weighted mean;\n"
-      "orders where the two lines' peaks overlap are left out.\n"
-      "Writes into DIR: result.json (rabbitt and verdict sections), sidebands.csv,\n"
-      "rainbow.csv, harmonics.csv, burst.csv, line_delays.csv (with a second line), PNG\n"
-      "figures and report.html.\n"
-      "Prints a one-line summary. Exit 0 ok, 2 bad usage, 3 bad input, 4 numerical failure.");
+      R"(Method: harmonic and sideband peaks are identified at q hbar omega - Ip (gas and IR
+wavelength from the sidecar or --gas/--ir-wavelength); the energy axis offset and scale
+that align them are reported. Each sideband is fitted over the whole delay axis with
+S(tau) = A + B cos(2 omega tau + phi) (Poisson-weighted linear least squares; also per
+energy bin: rainbow RABBITT), the oscillation frequency is fitted freely to check the
+delay-stage calibration, and the group delay t_e = phi / (2 omega) - atomic delay gives
+the attochirp (as/eV, positive = higher photon energies emitted later). The average
+burst is E(t) = sum_q sqrt(I_q) exp(i phi_q - i q omega t) with the harmonic
+intensities from the spectrum divided by the cross-section model.
+Needs a weak IR field (one IR photon per path) and a harmonic comb: a streaking scan
+without a comb is refused (exit 3).
+With a second photoelectron line (declared in the sidecar's lines, or a line of the
+gas table seen in the comb) each sideband order present for both lines gives the
+relative delay (phi_line - phi_reference) / (2 omega), raw and corrected for the
+continuum-continuum delay at each line's kinetic energy, and their weighted mean;
+orders where the two lines' peaks overlap are left out.
+Writes into DIR: result.json (rabbitt and verdict sections), sidebands.csv,
+rainbow.csv, harmonics.csv, burst.csv, line_delays.csv (with a second line), PNG
+figures and report.html.
+Prints a one-line summary. Exit 0 ok, 2 bad usage, 3 bad input, 4 numerical failure.)");
   add_scan_and_out_options(cmd, *a, "sidecar of the RABBITT scan (NAME.json or NAME.yaml)");
   // The options of RabbittAnalysisOptions::describe (retrieval/analysis/analyses.h).
   add_described_options(cmd, a->options);

@@ -86,17 +86,16 @@ void add_retrieve_command(CLI::App& app) {
   std::ostringstream limit;  // the default of --cma-phase-limit (RetrieveOptions)
   limit << RetrieveOptions{}.cma_phase_error_max_rad;
   std::string engines =
-      "Engines:\n"
-      "  auto           ptychographic first; full-model refinement when the CMA's own phase error\n"
-      "                 (estimated from the retrieved field) exceeds " +
-      limit.str() +
-      " rad (broadband pulses)\n"
-      "  ptychographic  ePIE applied to streaking (CMA): XUV = object, phase gate = probe\n"
-      "  projections    generalized projections (CMA): PCGPA on matched grids, LSGPA otherwise\n"
-      "  full-model     least-squares fit of the full SFA model without the CMA (Ceres, L-BFGS)\n"
-      "Writes into DIR: result.json, report.html, CSVs (with units) and PNG (or SVG) figures.\n"
-      "Prints a one-line summary. Exit 0 ok, 2 bad usage, 3 bad input, 4 not converged\n"
-      "(best estimate written, converged: false).";
+      R"(Engines:
+  auto           ptychographic first; full-model refinement when the CMA's own phase error
+                 (estimated from the retrieved field) exceeds )" +
+      limit.str() + R"( rad (broadband pulses)
+  ptychographic  ePIE applied to streaking (CMA): XUV = object, phase gate = probe
+  projections    generalized projections (CMA): PCGPA on matched grids, LSGPA otherwise
+  full-model     least-squares fit of the full SFA model without the CMA (Ceres, L-BFGS)
+Writes into DIR: result.json, report.html, CSVs (with units) and PNG (or SVG) figures.
+Prints a one-line summary. Exit 0 ok, 2 bad usage, 3 bad input, 4 not converged
+(best estimate written, converged: false).)";
   const auto [cmd, a] = add_command<RetrieveArgs>(
       app, "retrieve", run_retrieve,
       "Reconstruct the XUV pulse and the IR streaking field from a scan", engines);

@@ -97,13 +97,12 @@ void add_simulate_command(CLI::App& app) {
   const auto [cmd, a] = add_command<SimulateArgs>(
       app, "simulate", run_simulate,
       "Generate a synthetic scan with known truth (preset or config file)",
-      "The generator evaluates the SFA streaking amplitude by direct quadrature with the full\n"
-      "momentum dependence (independently of the engines' FFT model) and applies the configured\n"
-      "noise: energy resolution, background, Poisson counting, readout noise, saturation, delay\n"
-      "jitter and drift, IR intensity and CEP fluctuations. Writes DIR/NAME.json (sidecar), the\n"
-      "data image, DIR/NAME.truth.json (result.json keys + every generator parameter) and\n"
-      "DIR/NAME.figure.png (.svg with --figure-format svg). Every random draw derives from "
-      "--seed.");
+      R"(The generator evaluates the SFA streaking amplitude by direct quadrature with the full
+momentum dependence (independently of the engines' FFT model) and applies the configured
+noise: energy resolution, background, Poisson counting, readout noise, saturation, delay
+jitter and drift, IR intensity and CEP fluctuations. Writes DIR/NAME.json (sidecar), the
+data image, DIR/NAME.truth.json (result.json keys + every generator parameter) and
+DIR/NAME.figure.png (.svg with --figure-format svg). Every random draw derives from --seed.)");
   cmd->add_flag("--list", a->list, "list the presets (name, then a one-line description) and exit");
   cmd->add_option("--preset", a->preset, "preset name (see --list)");
   cmd->add_option("--config", a->config,

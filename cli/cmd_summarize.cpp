@@ -106,14 +106,13 @@ void add_summarize_command(CLI::App& app) {
   const auto [cmd, a] = add_command<SummarizeArgs>(
       app, "summarize", run_summarize,
       "Merge batch outputs (e.g. shards) into one summary; compare two runs",
-      "Each DIR is a batch output folder: its summary.json is used, else the summary.json files "
-      "of\n"
-      "its sub-folders (shard-1, shard-2, ...), else its result.json files. Scans are merged by\n"
-      "name. With --out, writes summary.csv, summary.json, trend figures and index.html there\n"
-      "(links point into the input folders). With --against OLD_DIR, lists the scans whose\n"
-      "headline numbers (FWHM, GDD, attochirp, A0, satellite ratio) moved by more than their\n"
-      "combined uncertainty sqrt(s_old^2 + s_new^2), class and status changes, and scans present\n"
-      "in only one run (also written to comparison.csv). Exit 0, 2 bad usage, 3 unreadable input.");
+      R"(Each DIR is a batch output folder: its summary.json is used, else the summary.json files of
+its sub-folders (shard-1, shard-2, ...), else its result.json files. Scans are merged by
+name. With --out, writes summary.csv, summary.json, trend figures and index.html there
+(links point into the input folders). With --against OLD_DIR, lists the scans whose
+headline numbers (FWHM, GDD, attochirp, A0, satellite ratio) moved by more than their
+combined uncertainty sqrt(s_old^2 + s_new^2), class and status changes, and scans present
+in only one run (also written to comparison.csv). Exit 0, 2 bad usage, 3 unreadable input.)");
   cmd->add_option("dirs", a->dirs, "batch output folders to merge")->required();
   cmd->add_option("--against", a->against, "an older batch output folder to compare with");
   cmd->add_option("--out,-o", a->out, "folder for the merged summary (created)");
