@@ -45,7 +45,8 @@ TEST_CASE("energy combination options are validated", "[preprocess][combine]") {
   // A forced factor that leaves too few bins is a usage error naming the field.
   const synthetic::SyntheticScan sc =
       synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 2);
-  CHECK_THROWS_WITH(preprocess(sc.trace, whole_axis(40), nullptr), Catch::Contains("energy_combine = 40"));
+  CHECK_THROWS_WITH(preprocess(sc.trace, whole_axis(40), nullptr),
+                    Catch::Contains("energy_combine = 40"));
 }
 
 TEST_CASE("summed bins conserve the background-subtracted counts", "[preprocess][combine]") {
@@ -119,13 +120,15 @@ TEST_CASE("satellites and pulse trains keep the bins they need", "[preprocess][c
   // resolve the harmonics): its autocorrelation extends over the train, far beyond the
   // 6-period window, so its bins are kept.
   PreprocessSummary r;
-  (void)preprocess(synthetic::generate_scan(synthetic::find_preset("argon-rabbitt").config, 6).trace,
-                   whole_axis(0), &r);
+  (void)preprocess(
+      synthetic::generate_scan(synthetic::find_preset("argon-rabbitt").config, 6).trace,
+      whole_axis(0), &r);
   CHECK(r.signal_lag_extent_fs > 8.0);
   CHECK(r.energy_bins_combined == 1);
 }
 
-TEST_CASE("summing oversampled bins leaves the retrieved pulse unchanged", "[retrieve][combine][slow]") {
+TEST_CASE("summing oversampled bins leaves the retrieved pulse unchanged",
+          "[retrieve][combine][slow]") {
   // The same fine-binned scan analysed on every measured bin and on the automatic sums (k = 3):
   // the FWHMs agree within their sigmas and both cover the generator's truth (the truth comes
   // from the generator's direct quadrature, not from the engines).
@@ -143,8 +146,8 @@ TEST_CASE("summing oversampled bins leaves the retrieved pulse unchanged", "[ret
   const double truth = *sc.truth.xuv->fwhm_as;
   const double f1 = *every.result.xuv->fwhm_as, s1 = *every.result.xuv->fwhm_as_sigma;
   const double f3 = *summed.result.xuv->fwhm_as, s3 = *summed.result.xuv->fwhm_as_sigma;
-  INFO("every bin " << f1 << " +- " << s1 << " as; summed " << f3 << " +- " << s3
-                    << " as; truth " << truth << " as");
+  INFO("every bin " << f1 << " +- " << s1 << " as; summed " << f3 << " +- " << s3 << " as; truth "
+                    << truth << " as");
   CHECK(std::abs(f1 - f3) <= std::hypot(s1, s3));
   CHECK(std::abs(f3 - truth) <= 3 * s3);
   CHECK(std::abs(f1 - truth) <= 3 * s1);

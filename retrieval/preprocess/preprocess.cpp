@@ -31,8 +31,7 @@ std::string PreprocessOptions::validate() const {
   else if (!(combine_min_window_periods > 0) || !std::isfinite(combine_min_window_periods))
     s << "combine_min_window_periods = " << combine_min_window_periods << ": must be > 0";
   else if (!(combine_min_window_span_factor >= 0) || !std::isfinite(combine_min_window_span_factor))
-    s << "combine_min_window_span_factor = " << combine_min_window_span_factor
-      << ": must be >= 0";
+    s << "combine_min_window_span_factor = " << combine_min_window_span_factor << ": must be >= 0";
   else if (!(combine_min_window_lags >= 2) || !std::isfinite(combine_min_window_lags))
     s << "combine_min_window_lags = " << combine_min_window_lags << ": must be >= 2";
   else if (!(combine_noise_sigmas > 0) || !std::isfinite(combine_noise_sigmas))
@@ -137,8 +136,8 @@ double signal_lag_extent(const Eigen::MatrixXd& counts, const Eigen::VectorXd& b
   std::vector<double> power(n / 2 + 1, 0.0), taper(static_cast<std::size_t>(ne));
   for (Eigen::Index j = 0; j < ne; ++j)
     taper[static_cast<std::size_t>(j)] =
-        0.5 - 0.5 * std::cos(units::kTwoPi * (static_cast<double>(j) + 0.5) /
-                             static_cast<double>(ne));
+        0.5 -
+        0.5 * std::cos(units::kTwoPi * (static_cast<double>(j) + 0.5) / static_cast<double>(ne));
   double noise = 0, spread2 = 0;
   for (Eigen::Index i = 0; i < nd; ++i) {
     std::fill(in.begin(), in.end(), cdouble(0.0));
