@@ -99,6 +99,12 @@ TEST_CASE("the automatic factor follows the window rule", "[preprocess][combine]
   CHECK(s.energy_bins_combined == expect);
   CHECK(s.signal_lag_extent_fs > 0.1);
   CHECK(s.signal_lag_extent_fs < 1.0);
+  // A Poisson-bootstrap replica carries the counting noise twice (the scan's and its own draw),
+  // which the Poisson noise power of the rule does not expect: structure at every lag, k = 1.
+  // That is why retrieve() gives every replica (and the joint-lines problem) the scan's k.
+  PreprocessSummary sr;
+  (void)preprocess(poisson_resample(sc.trace, 11), whole_axis(0), &sr);
+  CHECK(sr.energy_bins_combined == 1);
   // The scan's own 0.25 eV bins already give a window below 18 fs: nothing is summed.
   PreprocessSummary s0;
   (void)preprocess(synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 4).trace,

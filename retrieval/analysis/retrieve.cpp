@@ -173,6 +173,11 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   const auto t_start = std::chrono::steady_clock::now();
   RetrieveOutput out;
   out.problem = preprocess(trace, opt.preprocess, &out.preprocess);
+  // The joint-lines problem and every replica are summed like the scan itself (step 4a's k is
+  // chosen once, on the measured counts): a replica's doubled counting noise would otherwise
+  // read as structure at every lag, and the joint window must share the single problem's step.
+  PreprocessOptions same_bins = opt.preprocess;
+  same_bins.energy_combine = static_cast<int>(out.preprocess.energy_bins_combined);
   check_line_names(out.preprocess.lines, opt.line_delays,
                    trace.meta.gas);  // before any engine runs
   const RetrievalProblem& pr = out.problem;
@@ -327,8 +332,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     if (classify(trace, lc, &out.reconstruction).pulse_class != PulseClass::kTrain) {
       LineDelayOptions lo = opt.line_delays;
       lo.seed = opt.seed;
-      lines_step = joint_line_estimate(trace, opt.preprocess, lo, pr, out.preprocess,
-                                       out.reconstruction, jeo, runner, &eo);
+      lines_step = joint_line_estimate(trace, same_bins, lo, pr, out.preprocess, out.reconstruction,
+                                       jeo, runner, &eo);
       if (lines_step.used) {
         out.chain.push_back(lines_step.reconstruction);
         out.reconstruction = lines_step.reconstruction;
@@ -392,7 +397,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     const Trace rep =
         poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
     PreprocessSummary ps;
-    RetrievalProblem rp = preprocess(rep, opt.preprocess, &ps);
+    RetrievalProblem rp = preprocess(rep, same_bins, &ps);
     EngineOptions bo = beo;
     bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
     const std::string stage =
@@ -427,8 +432,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     }
     if (lines_step.used) {  // the joint fit on the replica, from its single-line result
       const EngineOptions jb = full_model_options(bo);
-      if (auto jr = joint_line_replica(lines_step, rep, opt.preprocess, rp, ps, br, jb, stage,
-                                       runner, &bo))
+      if (auto jr =
+              joint_line_replica(lines_step, rep, same_bins, rp, ps, br, jb, stage, runner, &bo))
         br = std::move(*jr);
     }
     const auto [rlo, rhi] = band_of(rp);
