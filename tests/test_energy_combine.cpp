@@ -122,6 +122,10 @@ TEST_CASE("satellites and pulse trains keep the bins they need", "[preprocess][c
                    &s);
   const double period_fs = 800e-9 / 299792458.0 * 1e15;
   CHECK(s.signal_lag_extent_fs > period_fs);
+  // ... and 12 x that lag (the sum's attenuation <= 1.1 % there) needs a window of > 32 fs,
+  // which the 0.0625 eV bins give only unsummed: h / (2 x 0.0625 eV) = 33.1 fs is the largest
+  // window of a sum, and it falls short of 12 x 3.04 fs.
+  CHECK(s.energy_bins_combined == 1);
   // A train of bursts every T/2 under a 8 fs train envelope (argon-rabbitt, 0.05 eV bins that
   // resolve the harmonics): its autocorrelation extends over the train, far beyond the
   // 6-period window, so its bins are kept.
