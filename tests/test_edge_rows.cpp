@@ -35,8 +35,7 @@ TEST_CASE("quiet edge rows: a run stops at its first loud row", "[preprocess][ed
   // Row 2 moved by 0.5 (half the streaking range): the forward run ends before it.
   const std::vector<double> c = series(0.5);
   const std::vector<char> has(c.size(), 1);
-  CHECK(quiet_edge_rows(c, has, 0.1) ==
-        std::vector<Eigen::Index>{0, 1, 19, 18, 17, 16, 15});
+  CHECK(quiet_edge_rows(c, has, 0.1) == std::vector<Eigen::Index>{0, 1, 19, 18, 17, 16, 15});
 }
 
 TEST_CASE("quiet edge rows: rows without a centroid and the empty cases",
