@@ -555,6 +555,14 @@ synthetic::ScanConfig refined_scan(synthetic::ScanConfig c, int f) {
 }
 
 std::vector<ValidationCase> sweep_cases(const SweepOptions& o) {
+  // Every path (run, --list, --write-scans) comes here before a scan is generated: a factor of
+  // thousands would ask the generator for millions of bins per row.
+  if (o.energy_refine < 1 || o.energy_refine > 16)
+    throw usage_error("--energy-refine = " + std::to_string(o.energy_refine) +
+                      "; expected 1 to 16");
+  if (o.energy_combine < 0 || o.energy_combine > 64)
+    throw usage_error("--energy-combine = " + std::to_string(o.energy_combine) +
+                      "; expected 0 (auto), 1 (never) or up to 64");
   std::vector<ValidationCase> v =
       o.held_out > 0 ? held_out_cases(o.held_out, o.held_out_seed) : validation_cases();
   for (ValidationCase& c : v) c.config = refined_scan(c.config, o.energy_refine);
