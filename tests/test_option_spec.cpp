@@ -167,7 +167,8 @@ TEST_CASE("the rabbitt and classify settings echo keeps the result.json keys", "
 
 TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") {
   // DESIGN.md result contract: these settings.* keys, in this order, as written before the
-  // description existed (tests and DESIGN.md rely on them); energy_combine added after them.
+  // description existed (tests and DESIGN.md rely on them); cma_min_signal_counts and
+  // energy_combine added since (the old keys keep their order).
   std::vector<Param> echo;
   append_settings_echo(RetrieveOptions{}, &echo);
   std::vector<std::string> keys;
@@ -176,7 +177,8 @@ TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") 
                     "settings.engine", "settings.iterations", "settings.bootstrap", "settings.seed",
                     "settings.threads", "settings.uncertainty", "settings.warm_patience",
                     "settings.full_model_patience", "settings.cma_phase_error_max_rad",
-                    "settings.cma_trace_error_max_ratio", "settings.method_sigma_relative",
+                    "settings.cma_trace_error_max_ratio", "settings.cma_min_signal_counts",
+                    "settings.method_sigma_relative",
                     "settings.window_cut_sigma_per_share", "settings.isolated_max_satellite_ratio",
                     "settings.satellites_max_satellite_ratio", "settings.satellite_start",
                     "settings.satellite_start_ratio", "settings.dipole",

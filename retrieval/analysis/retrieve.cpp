@@ -261,7 +261,13 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     const bool noisy_field =
         a_peak > 0 && pr.ir_omega_au > 0 &&
         first.ir.peak_electric_field() / (pr.ir_omega_au * a_peak) > opt.quality.max_ir_field_ratio;
-    if (cma_limited || not_fitted || noisy_field) {
+    // Few counts per bin: the CMA engine's result is biased by the counting noise (retrieve.h).
+    const bool few_counts = out.preprocess.signal_peak_counts < opt.cma_min_signal_counts;
+    for (const auto& [why, on] :
+         {std::pair{"cma phase error", cma_limited}, std::pair{"cma fit above floor", not_fitted},
+          std::pair{"noisy IR field", noisy_field}, std::pair{"few counts per bin", few_counts}})
+      if (on) out.full_model_reason += (out.full_model_reason.empty() ? "" : ", ") + std::string(why);
+    if (cma_limited || not_fitted || noisy_field || few_counts) {
       EngineOptions fo = full_model_options(eo);
       fo.initial_xuv = first.xuv;
       fo.initial_ir = first.ir;
@@ -607,6 +613,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     P("fit.cma_phase_error_rad", out.cma_phase_error_rad);
     P("fit.cma_trace_error_ratio", out.cma_trace_error_ratio);
     if (!out.full_model_start.empty()) P("fit.full_model_start", out.full_model_start);
+    if (!out.full_model_reason.empty()) P("fit.full_model_reason", out.full_model_reason);
   }
   std::string chain;
   for (const auto& c : out.chain) chain += (chain.empty() ? "" : " -> ") + c.engine;

@@ -550,6 +550,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
   Eigen::MatrixXd var = counts.cwiseMax(1.0);
   Eigen::MatrixXd sig = counts.rowwise() - bgcol.transpose();
   if (deblended) sig -= blend;
+  s.signal_peak_counts = std::max(sig.colwise().mean().maxCoeff(), 0.0);
   // In the model-only margin the support sees the reference line's mirror image, not the
   // subtracted neighbour's residue (as the reference spectrum below).
   const bool any_masked = std::any_of(masked.begin(), masked.end(), [](char m) { return m != 0; });
@@ -919,6 +920,7 @@ void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* ou
   P("grid_dt_as", s.grid_dt_as);
   P("total_counts", s.total_counts);
   P("peak_counts", s.peak_counts);
+  P("signal_peak_counts", s.signal_peak_counts);
 }
 
 }  // namespace sw

@@ -148,6 +148,11 @@ struct PreprocessSummary {
   double grid_dt_as = 0.0;
   double total_counts = 0.0;
   double peak_counts = 0.0;
+  /// Counts per delay row in the strongest analysed bin: the largest delay-average of the
+  /// background-subtracted counts over the analysed bins (after the window and step 4a's sum).
+  /// The counting statistics the engines see; `auto` refines a CMA result below
+  /// RetrieveOptions::cma_min_signal_counts with the full model (retrieval/analysis/retrieve.h).
+  double signal_peak_counts = 0.0;
   /// Energy support of the signal (kinetic energy, eV), copied to RetrievalProblem::support_*.
   double support_lo_eV = 0.0, support_hi_eV = 0.0;
   double support_peak_sigma = 0.0;    ///< largest significance of the delay-integrated spectrum
