@@ -801,10 +801,10 @@ void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* ou
     }
     P(k + "relative_strength_upper_limit", u.upper_limit);
   }
-  P("window_source", s.window_source.empty() ? std::string("whole axis") : s.window_source);
-  if (!s.window_source.empty()) {
-    P("window_lo_eV", s.window_lo_eV);
-    P("window_hi_eV", s.window_hi_eV);
+  if (s.window_source.empty()) {
+    P("window_source", std::string("whole axis"));
+  } else {
+    append_window_params(s.window_source, s.window_lo_eV, s.window_hi_eV, out);
     P("window_cut_share", s.window_cut_share);
   }
   P("energy_resampled", s.energy_resampled);
@@ -827,6 +827,13 @@ void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* ou
   P("grid_dt_as", s.grid_dt_as);
   P("total_counts", s.total_counts);
   P("peak_counts", s.peak_counts);
+}
+
+void append_window_params(const std::string& source, double lo_eV, double hi_eV,
+                          std::vector<Param>* out) {
+  out->push_back({"preprocess.window_source", source});
+  out->push_back({"preprocess.window_lo_eV", lo_eV});
+  out->push_back({"preprocess.window_hi_eV", hi_eV});
 }
 
 }  // namespace sw

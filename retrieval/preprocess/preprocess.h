@@ -204,4 +204,10 @@ Eigen::Matrix<std::uint8_t, Eigen::Dynamic, Eigen::Dynamic> detect_saturation(
 /// The preprocessing record as result.json keys under "preprocess." (appended to `out`).
 void append_preprocess_params(const PreprocessSummary& summary, std::vector<Param>* out);
 
+/// The energy window an analysis applied, as preprocess.window_source (where it came from:
+/// "option", "sidecar", "reference line"), preprocess.window_lo_eV and preprocess.window_hi_eV
+/// (appended to `out`; the analyses without a PreprocessSummary write it this way too).
+void append_window_params(const std::string& source, double lo_eV, double hi_eV,
+                          std::vector<Param>* out);
+
 }  // namespace sw
