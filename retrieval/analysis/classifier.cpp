@@ -223,8 +223,8 @@ std::string ClassifierOptions::validate() const {
   if (!(min_total_counts > 0.0)) return invalid_value("min_total_counts", min_total_counts, "> 0");
   if (!(retrieval_max_trace_error_ratio > 1.0))
     return invalid_value("retrieval_max_trace_error_ratio", retrieval_max_trace_error_ratio, "> 1");
-  if (!(hot_pixel_sigma > 0.0)) return invalid_value("hot_pixel_sigma", hot_pixel_sigma, "> 0");
-  if (!(hot_pixel_ratio > 1.0)) return invalid_value("hot_pixel_ratio", hot_pixel_ratio, "> 1");
+  if (!(hot_pixels.sigma > 0.0)) return invalid_value("hot_pixel_sigma", hot_pixels.sigma, "> 0");
+  if (!(hot_pixels.ratio > 1.0)) return invalid_value("hot_pixel_ratio", hot_pixels.ratio, "> 1");
   return {};
 }
 
@@ -287,9 +287,9 @@ VerdictSection classify(const Trace& raw, const ClassifierOptions& opt, const Re
   // delta in energy, whose fringe contrast is 1 at every lag.
   Trace trace = raw;
   std::size_t hot = 0;
-  if (opt.remove_hot_pixels)
-    hot = remove_hot_pixels(trace.counts, Eigen::MatrixXd(), opt.hot_pixel_sigma,
-                            opt.hot_pixel_ratio);
+  if (opt.hot_pixels.remove)
+    hot = remove_hot_pixels(trace.counts, Eigen::MatrixXd(), opt.hot_pixels.sigma,
+                            opt.hot_pixels.ratio);
   const double lambda = analysis_detail::ir_wavelength_nm_or_throw(
       opt.ir_wavelength_nm, trace, where,
       "classification needs the IR period (bursts repeat every T/2).");
@@ -301,7 +301,7 @@ VerdictSection classify(const Trace& raw, const ClassifierOptions& opt, const Re
   auto E = [&](const std::string& k, auto val) { v.evidence.push_back({k, val}); };
   const double total = trace.counts.sum();
   E("signal.total_counts", total);
-  if (opt.remove_hot_pixels) E("signal.hot_pixels_replaced", static_cast<long long>(hot));
+  if (opt.hot_pixels.remove) E("signal.hot_pixels_replaced", static_cast<long long>(hot));
   E("thresholds.isolated_max_satellite_ratio", opt.isolated_max_satellite_ratio);
   E("thresholds.satellite_max_ratio", opt.satellite_max_ratio);
   E("thresholds.retrieval_max_trace_error_ratio", opt.retrieval_max_trace_error_ratio);

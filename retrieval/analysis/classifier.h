@@ -61,6 +61,7 @@
 #include "retrieval/core/result.h"
 #include "retrieval/core/trace.h"
 #include "retrieval/engines/engine.h"
+#include "retrieval/preprocess/preprocess.h"
 
 namespace sw {
 
@@ -125,11 +126,7 @@ struct ClassifierOptions {
   double retrieval_max_trace_error_ratio = 2.0;
   /// Replace isolated hot pixels before taking the evidence (sw::remove_hot_pixels, the same
   /// rule and defaults as preprocessing): a single spike fakes spectral fringes at every lag.
-  bool remove_hot_pixels = true;
-  /// Hot-pixel test: Poisson sigmas above the larger neighbour (> 0).
-  double hot_pixel_sigma = 8.0;
-  /// Hot-pixel test: times the reference neighbour (> 1).
-  double hot_pixel_ratio = 5.0;
+  HotPixelOptions hot_pixels;
 
   /// Empty when valid; otherwise names the field, its value and the constraint.
   std::string validate() const;

@@ -274,7 +274,7 @@ struct RetrieveOptions {
                  .flag = "--despike,!--no-despike",
                  .config_key = "despike",
                  .echo = false},
-      self.preprocess.remove_hot_pixels);
+      self.preprocess.hot_pixels.remove);
     v(OptionSpec{.name = "max_seconds",
                  .unit = "s",
                  .help = "wall-time budget of the analysis of one scan",

@@ -21,10 +21,10 @@ std::string PreprocessOptions::validate() const {
   std::ostringstream s;
   if (!(field_free_shift_fraction > 0 && field_free_shift_fraction < 1))
     s << "field_free_shift_fraction = " << field_free_shift_fraction << ": must lie in (0, 1)";
-  else if (!(hot_pixel_sigma > 0))
-    s << "hot_pixel_sigma = " << hot_pixel_sigma << ": must be > 0";
-  else if (!(hot_pixel_ratio > 1))
-    s << "hot_pixel_ratio = " << hot_pixel_ratio << ": must be > 1";
+  else if (!(hot_pixels.sigma > 0))
+    s << "hot_pixel_sigma = " << hot_pixels.sigma << ": must be > 0";
+  else if (!(hot_pixels.ratio > 1))
+    s << "hot_pixel_ratio = " << hot_pixels.ratio << ": must be > 1";
   else if (saturation_plateau_bins < 2)
     s << "saturation_plateau_bins = " << saturation_plateau_bins << ": must be >= 2";
   else if (energy_combine < 0)
@@ -243,9 +243,9 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
                          "): given zero weight, the engines fit the other bins");
 
   // 2. isolated hot pixels: far above both delay neighbours and both energy neighbours.
-  if (opt.remove_hot_pixels)
+  if (opt.hot_pixels.remove)
     s.hot_pixels_replaced =
-        remove_hot_pixels(counts, satm, opt.hot_pixel_sigma, opt.hot_pixel_ratio);
+        remove_hot_pixels(counts, satm, opt.hot_pixels.sigma, opt.hot_pixels.ratio);
 
   // 1. background, a model B(W) per energy bin (the same in every delay row).
   std::vector<double> W_eV(W.size());

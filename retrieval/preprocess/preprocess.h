@@ -61,11 +61,17 @@
 
 namespace sw {
 
+/// Step 2, isolated hot pixels (remove_hot_pixels below, the rule in the file comment); the
+/// classifier despikes its evidence with the same options.
+struct HotPixelOptions {
+  bool remove = true;  ///< replace them
+  double sigma = 8.0;  ///< hot_pixel_sigma: > 0, Poisson sigmas above the reference r
+  double ratio = 5.0;  ///< hot_pixel_ratio: > 1, times the reference r
+};
+
 struct PreprocessOptions {
   /// Replace isolated hot pixels (step 2).
-  bool remove_hot_pixels = true;
-  double hot_pixel_sigma = 8.0;  ///< > 0, Poisson sigmas above the reference r (step 2)
-  double hot_pixel_ratio = 5.0;  ///< > 1, times the reference r (step 2)
+  HotPixelOptions hot_pixels;
   /// Smallest 8-connected plateau of bins at the scan's largest value taken as saturation.
   int saturation_plateau_bins = 3;  ///< >= 2
   /// Background model fit (retrieval/preprocess/background.h).
