@@ -238,7 +238,7 @@ TEST_CASE("weak signal, missing IR wavelength and bad options", "[classifier]") 
       test::error_message([&] { (void)classify(t, ClassifierOptions()); }, ErrorKind::kInput),
       Catch::Contains("ir_wavelength_nm"));
   ClassifierOptions o;
-  o.isolated_max_satellite_ratio = 0.8;
+  o.satellite_ratio.isolated_max = 0.8;
   CHECK_THAT(o.validate(), Catch::Contains("isolated_max_satellite_ratio"));
   o = ClassifierOptions();
   o.comb_min_period_contrast = 0.2;

@@ -115,11 +115,11 @@ struct RetrieveOptions {
   /// engine before the full model refines (> 1). A CMA result well above the floor has not
   /// explained the data -- a local minimum (multi-burst pulses) or a CMA-limited case.
   double cma_trace_error_max_ratio = 2.0;
-  /// Verdict thresholds (DESIGN.md defaults, common practice, no published standard).
-  double isolated_max_satellite_ratio = 0.10;
-  double satellites_max_satellite_ratio = 0.70;
+  /// Verdict thresholds (DESIGN.md defaults, common practice, no published standard), for
+  /// every analysis.
+  SatelliteThresholds satellite_ratio;
   /// auto: when the full model ran and its burst has no satellite above
-  /// isolated_max_satellite_ratio, run it twice more from that burst with satellites of
+  /// satellite_ratio.isolated_max, run it twice more from that burst with satellites of
   /// `satellite_start_ratio` at -+T/2 (each field sign; retrieval/physics/satellite_seed.h) and
   /// keep a start that fits better; an equally good start enters the systematic spread of the FWHM
   /// and of the satellite ratio (so class_margin_sigma sees a class the data cannot decide).
@@ -240,8 +240,8 @@ struct RetrieveOptions {
                  .max = 100,
                  .batch = false},  // not settable in batch: constant there
       self.window_cut_sigma_per_share);
-    v(kIsolatedMaxSpec, self.isolated_max_satellite_ratio);
-    v(kSatellitesMaxSpec, self.satellites_max_satellite_ratio);
+    v(kIsolatedMaxSpec, self.satellite_ratio.isolated_max);
+    v(kSatellitesMaxSpec, self.satellite_ratio.satellites_max);
     v(OptionSpec{.name = "satellite_start",
                  .help = "auto: also start the full model from its burst with satellites at -+T/2 "
                          "(on by default)",
