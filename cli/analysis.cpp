@@ -69,8 +69,7 @@ AnalysisKind auto_analysis(const Trace& t) {
 
 RabbittAnalysisOptions rabbitt_options(const ScanJob& job) {
   RabbittAnalysisOptions o = job.rabbitt;
-  o.classifier.isolated_max_satellite_ratio = job.retrieve.isolated_max_satellite_ratio;
-  o.classifier.satellite_max_ratio = job.retrieve.satellites_max_satellite_ratio;
+  o.classifier.satellite_ratio = job.retrieve.satellite_ratio;
   o.preprocess = job.retrieve.preprocess;
   o.quality = job.retrieve.quality;
   o.xuv_only_name = job.xuv_only_sidecar;

@@ -80,8 +80,7 @@ int run_rabbitt(RabbittArgs& a) {
   job.xuv_only_sidecar = a.xuv_only;
   job.rabbitt = a.options;
   // One place for the satellite thresholds (analysis.h): the retrieve options.
-  job.retrieve.isolated_max_satellite_ratio = a.options.classifier.isolated_max_satellite_ratio;
-  job.retrieve.satellites_max_satellite_ratio = a.options.classifier.satellite_max_ratio;
+  job.retrieve.satellite_ratio = a.options.classifier.satellite_ratio;
   apply_energy_window(a, job.retrieve.preprocess);
   if (!a.gas.empty()) job.overrides.gas = a.gas;
   if (a.wavelength_nm != 0) job.overrides.ir_wavelength_nm = a.wavelength_nm;  // checked by CLI11

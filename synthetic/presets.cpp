@@ -27,6 +27,20 @@ ScanConfig reference() {
   return c;
 }
 
+// The reference scan with another Gaussian pulse (centre, transform-limited FWHM) in another gas
+// and IR intensity, recorded on another energy axis.
+ScanConfig retuned(const char* name, const char* gas, double center_eV, double tl_fwhm_as,
+                   double ir_peak_intensity_Wcm2, AxisSpec energy_eV) {
+  ScanConfig c = reference();
+  c.name = name;
+  c.gas = gas;
+  c.xuv.gaussian.center_eV = center_eV;
+  c.xuv.gaussian.transform_limited_fwhm_as = tl_fwhm_as;
+  c.ir.pulse.peak_intensity_Wcm2 = ir_peak_intensity_Wcm2;
+  c.geometry.energy_eV = energy_eV;
+  return c;
+}
+
 ScanConfig chirped(double gdd_as2, const char* name) {
   ScanConfig c = reference();
   c.name = name;
@@ -53,15 +67,8 @@ ScanConfig lab() {
 }
 
 ScanConfig helium_broadband() {
-  ScanConfig c = reference();
-  c.name = "helium-70as";
-  c.gas = "He";
-  c.xuv.gaussian.center_eV = 130.0;
-  c.xuv.gaussian.transform_limited_fwhm_as = 70.0;
-  c.ir.pulse.peak_intensity_Wcm2 = 1e13;
   // W0 = 105 eV, streaking +-22 eV, spectral FWHM 26 eV: 40..171.6 eV.
-  c.geometry.energy_eV = {40.0, 0.4, 330};
-  return c;
+  return retuned("helium-70as", "He", 130.0, 70.0, 1e13, {40.0, 0.4, 330});
 }
 
 ScanConfig satellites() {
@@ -130,31 +137,17 @@ ScanConfig xuv_only() {
 }
 
 ScanConfig two_lines() {
-  ScanConfig c = reference();
-  c.name = "neon-two-lines";
-  c.xuv.gaussian.center_eV = 120.0;
-  c.xuv.gaussian.transform_limited_fwhm_as = 160.0;
   // 2p at 98.4 eV and 2s at 71.5 eV kinetic energy, each streaked by about +-16 eV.
-  c.geometry.energy_eV = {40.0, 0.33, 300};
-  LineSpec p2, s2;
-  p2.name = "2p";
-  s2.name = "2s";
-  s2.relative_strength = 0.3;
-  s2.delay_as = 10.0;
-  c.lines = {p2, s2};
+  ScanConfig c = retuned("neon-two-lines", "Ne", 120.0, 160.0, 5e12, {40.0, 0.33, 300});
+  c.lines = {LineSpec{.gas = "", .name = "2p"},
+             LineSpec{.gas = "", .name = "2s", .relative_strength = 0.3, .delay_as = 10.0}};
   return c;
 }
 
 ScanConfig argon_tof() {
-  ScanConfig c = reference();
-  c.name = "argon-tof";
-  c.gas = "Ar";
-  c.xuv.gaussian.center_eV = 70.0;
-  c.xuv.gaussian.transform_limited_fwhm_as = 200.0;
-  c.ir.pulse.peak_intensity_Wcm2 = 3e12;
   // 3p photoelectrons at 54 eV; a 0.1 eV grid (finer than the time bins' energy width) from
   // 25 to 90 eV recorded on 350 flight-time bins of a 0.8 m drift.
-  c.geometry.energy_eV = {25.0, 0.1, 650};
+  ScanConfig c = retuned("argon-tof", "Ar", 70.0, 200.0, 3e12, {25.0, 0.1, 650});
   c.tof.length_m = 0.8;
   c.tof.bins = 350;
   c.noise.peak_counts = 600.0;

@@ -238,7 +238,7 @@ TEST_CASE("weak signal, missing IR wavelength and bad options", "[classifier]") 
       test::error_message([&] { (void)classify(t, ClassifierOptions()); }, ErrorKind::kInput),
       Catch::Contains("ir_wavelength_nm"));
   ClassifierOptions o;
-  o.isolated_max_satellite_ratio = 0.8;
+  o.satellite_ratio.isolated_max = 0.8;
   CHECK_THAT(o.validate(), Catch::Contains("isolated_max_satellite_ratio"));
   o = ClassifierOptions();
   o.comb_min_period_contrast = 0.2;
@@ -286,11 +286,11 @@ TEST_CASE("hot pixels do not fake spectral fringes: the classifier despikes", "[
         Approx(evidence(ref, "spectrum.fringe_contrast_half_period")).margin(0.02));
   // The switch off sees the spikes (the test can fail): contrast far above the clean scan's.
   ClassifierOptions off;
-  off.remove_hot_pixels = false;
+  off.hot_pixels.remove = false;
   const VerdictSection raw = classify(hot, off);
   CHECK(evidence(raw, "spectrum.fringe_contrast_half_period") >
         evidence(ref, "spectrum.fringe_contrast_half_period") + 0.05);
   off = ClassifierOptions{};
-  off.hot_pixel_ratio = 1.0;
+  off.hot_pixels.ratio = 1.0;
   CHECK_THAT(off.validate(), Catch::Contains("hot_pixel_ratio"));
 }

@@ -271,24 +271,22 @@ TEST_CASE("the blocked gate coverage equals the delay-by-delay sum bit for bit",
 
 namespace {
 
-// The Poisson projection kernel as it was written before its blocked form (one loop: the sums,
-// the reciprocal modulus and the clamped factor per bin), kept here as the bit-for-bit reference
-// of project_poisson.
+// The Poisson projection in one loop, bin by bin on std::complex values: the step of
+// cma_problem.h with its bound 2 a / |S| + 1/2 evaluated in every bin. It is the bit-for-bit
+// reference of project_poisson, whose blocked form leaves the bound out where it cannot bite; bit
+// for bit needs the same arithmetic: the error sums in a vectorised reduction, 1/|S| from
+// rsqrt_newton, and a clone for the same instruction set (SW_HOT_LOOP).
 SW_HOT_LOOP void poisson_one_loop(double* S, const double* I, const double* a, std::size_t n,
                                   double dt2, double* im_out, double* mm_out) {
+  auto* z = reinterpret_cast<std::complex<double>*>(S);  // interleaved (re, im) pairs
   double im = 0.0, mm = 0.0;
 #pragma omp simd reduction(+ : im, mm)
   for (std::size_t q = 0; q < n; ++q) {
-    const double re = S[2 * q], iv = S[2 * q + 1];
-    const double r2 = re * re + iv * iv;
-    const double M = dt2 * r2;
-    im += I[q] * M;
-    mm += M * M;
-    const double rs = sw::detail::rsqrt_newton(r2 + 1e-300);
-    const double f =
-        std::clamp(0.5 + 0.5 * I[q] / (dt2 * (r2 + 1e-300)), 0.0, 2.0 * a[q] * rs + 0.5);
-    S[2 * q] = re * f;
-    S[2 * q + 1] = iv * f;
+    const double r2 = std::norm(z[q]), model = dt2 * r2;
+    im += I[q] * model;
+    mm += model * model;
+    const double bound = 2.0 * a[q] * sw::detail::rsqrt_newton(r2 + 1e-300) + 0.5;
+    z[q] *= std::clamp(0.5 + 0.5 * I[q] / (dt2 * (r2 + 1e-300)), 0.0, bound);
   }
   *im_out += im;
   *mm_out += mm;

@@ -51,7 +51,7 @@ TEST_CASE("background subtraction is unbiased in the background-dominated bins",
 TEST_CASE("preprocess options: defaults validate; hot-pixel removal is on by default",
           "[preprocess]") {
   CHECK(PreprocessOptions{}.validate().empty());
-  CHECK(PreprocessOptions{}.remove_hot_pixels);
+  CHECK(PreprocessOptions{}.hot_pixels.remove);
   PreprocessOptions o;
   o.energy_window_lo_eV = 80;
   o.energy_window_hi_eV = 60;

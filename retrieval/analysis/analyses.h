@@ -159,8 +159,8 @@ struct RabbittAnalysisOptions {
                  .echo = false,
                  .batch = false},
       self.rabbitt.analyse_lines);
-    v(kIsolatedMaxFlagSpec, self.classifier.isolated_max_satellite_ratio);
-    v(kSatellitesMaxFlagSpec, self.classifier.satellite_max_ratio);
+    v(kIsolatedMaxFlagSpec, self.classifier.satellite_ratio.isolated_max);
+    v(kSatellitesMaxFlagSpec, self.classifier.satellite_ratio.satellites_max);
   }
 
   /// Empty when valid; otherwise names the field, its value and the rule.
@@ -190,8 +190,8 @@ RabbittOutput analyse_rabbitt(const Trace& scan, const Trace* xuv_only,
 /// result is a walk of that description (after settings.ir_wavelength_nm, the wavelength used).
 struct ClassifyAnalysisOptions {
   /// Verdict thresholds. The two satellite-ratio thresholds are taken from
-  /// retrieve.isolated_max_satellite_ratio / satellites_max_satellite_ratio (one place for
-  /// every analysis and for batch); the fields of the same meaning here are ignored.
+  /// retrieve_options.satellite_ratio (one place for every analysis and for batch);
+  /// classifier.satellite_ratio is ignored.
   ClassifierOptions classifier;
   /// Run the streaking retrieval first (bootstrap 0) and use its reconstruction as evidence.
   bool retrieve = false;
@@ -201,8 +201,8 @@ struct ClassifyAnalysisOptions {
   /// The one description of the user-facing fields. Order = order of settings.* in result.json.
   template <class Self, class V>
   static void describe(Self& self, V& v) {
-    v(kIsolatedMaxFlagSpec, self.retrieve_options.isolated_max_satellite_ratio);
-    v(kSatellitesMaxFlagSpec, self.retrieve_options.satellites_max_satellite_ratio);
+    v(kIsolatedMaxFlagSpec, self.retrieve_options.satellite_ratio.isolated_max);
+    v(kSatellitesMaxFlagSpec, self.retrieve_options.satellite_ratio.satellites_max);
     v(OptionSpec{.name = "train_min_comparable_bursts",
                  .help = "reconstructed bursts >= 50 % of the main one that make a train",
                  .min = 2,

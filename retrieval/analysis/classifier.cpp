@@ -188,8 +188,8 @@ DelayEvidence delay_evidence(const Trace& t, double omega) {
 }
 
 PulseClass class_from_ratio(double ratio, const ClassifierOptions& o) {
-  if (ratio <= o.isolated_max_satellite_ratio) return PulseClass::kIsolated;
-  if (ratio < o.satellite_max_ratio) return PulseClass::kIsolatedWithSatellites;
+  if (ratio <= o.satellite_ratio.isolated_max) return PulseClass::kIsolated;
+  if (ratio < o.satellite_ratio.satellites_max) return PulseClass::kIsolatedWithSatellites;
   return PulseClass::kTrain;
 }
 
@@ -205,11 +205,12 @@ std::string ClassifierOptions::validate() const {
   if (!(ir_wavelength_nm >= 0.0) || !std::isfinite(ir_wavelength_nm))
     return invalid_value("ir_wavelength_nm", ir_wavelength_nm,
                          "0 (from the trace) or a wavelength > 0 nm");
-  if (!(isolated_max_satellite_ratio > 0.0 && isolated_max_satellite_ratio < satellite_max_ratio))
-    return invalid_value("isolated_max_satellite_ratio", isolated_max_satellite_ratio,
-                         "in (0, satellite_max_ratio = " + format_g(satellite_max_ratio) + ")");
-  if (!(satellite_max_ratio <= 1.0))
-    return invalid_value("satellite_max_ratio", satellite_max_ratio,
+  const auto [isolated_max, satellites_max] = satellite_ratio;
+  if (!(isolated_max > 0.0 && isolated_max < satellites_max))
+    return invalid_value("isolated_max_satellite_ratio", isolated_max,
+                         "in (0, satellite_max_ratio = " + format_g(satellites_max) + ")");
+  if (!(satellites_max <= 1.0))
+    return invalid_value("satellite_max_ratio", satellites_max,
                          "in (isolated_max_satellite_ratio, 1]");
   if (train_min_comparable_bursts < 2)
     return invalid_value("train_min_comparable_bursts", train_min_comparable_bursts, ">= 2");
@@ -223,8 +224,8 @@ std::string ClassifierOptions::validate() const {
   if (!(min_total_counts > 0.0)) return invalid_value("min_total_counts", min_total_counts, "> 0");
   if (!(retrieval_max_trace_error_ratio > 1.0))
     return invalid_value("retrieval_max_trace_error_ratio", retrieval_max_trace_error_ratio, "> 1");
-  if (!(hot_pixel_sigma > 0.0)) return invalid_value("hot_pixel_sigma", hot_pixel_sigma, "> 0");
-  if (!(hot_pixel_ratio > 1.0)) return invalid_value("hot_pixel_ratio", hot_pixel_ratio, "> 1");
+  if (!(hot_pixels.sigma > 0.0)) return invalid_value("hot_pixel_sigma", hot_pixels.sigma, "> 0");
+  if (!(hot_pixels.ratio > 1.0)) return invalid_value("hot_pixel_ratio", hot_pixels.ratio, "> 1");
   return {};
 }
 
@@ -287,9 +288,9 @@ VerdictSection classify(const Trace& raw, const ClassifierOptions& opt, const Re
   // delta in energy, whose fringe contrast is 1 at every lag.
   Trace trace = raw;
   std::size_t hot = 0;
-  if (opt.remove_hot_pixels)
-    hot = remove_hot_pixels(trace.counts, Eigen::MatrixXd(), opt.hot_pixel_sigma,
-                            opt.hot_pixel_ratio);
+  if (opt.hot_pixels.remove)
+    hot = remove_hot_pixels(trace.counts, Eigen::MatrixXd(), opt.hot_pixels.sigma,
+                            opt.hot_pixels.ratio);
   const double lambda = analysis_detail::ir_wavelength_nm_or_throw(
       opt.ir_wavelength_nm, trace, where,
       "classification needs the IR period (bursts repeat every T/2).");
@@ -301,9 +302,9 @@ VerdictSection classify(const Trace& raw, const ClassifierOptions& opt, const Re
   auto E = [&](const std::string& k, auto val) { v.evidence.push_back({k, val}); };
   const double total = trace.counts.sum();
   E("signal.total_counts", total);
-  if (opt.remove_hot_pixels) E("signal.hot_pixels_replaced", static_cast<long long>(hot));
-  E("thresholds.isolated_max_satellite_ratio", opt.isolated_max_satellite_ratio);
-  E("thresholds.satellite_max_ratio", opt.satellite_max_ratio);
+  if (opt.hot_pixels.remove) E("signal.hot_pixels_replaced", static_cast<long long>(hot));
+  E("thresholds.isolated_max_satellite_ratio", opt.satellite_ratio.isolated_max);
+  E("thresholds.satellite_max_ratio", opt.satellite_ratio.satellites_max);
   E("thresholds.retrieval_max_trace_error_ratio", opt.retrieval_max_trace_error_ratio);
   E("thresholds.comb_min_period_contrast", opt.comb_min_period_contrast);
 

@@ -47,7 +47,7 @@
 //   - retrieval given and trusted (trace error <= retrieval_max_trace_error_ratio x its noise
 //     floor; otherwise it is reported as "retrieval.trusted" = false and ignored): its class
 //     (comparable_bursts >= train_min_comparable_bursts -> train; satellite ratio <=
-//     isolated_max_satellite_ratio -> isolated; < satellite_max_ratio -> isolated_with_satellites;
+//     satellite_ratio.isolated_max -> isolated; < satellites_max -> isolated_with_satellites;
 //     else train), unless the spectral or delay evidence contradicts it by a full step (isolated vs
 //     train) -> undetermined;
 //   - otherwise the spectral class (comb -> train; else by the fitted satellite ratio), checked
@@ -61,6 +61,7 @@
 #include "retrieval/core/result.h"
 #include "retrieval/core/trace.h"
 #include "retrieval/engines/engine.h"
+#include "retrieval/preprocess/preprocess.h"
 
 namespace sw {
 
@@ -88,6 +89,17 @@ inline constexpr OptionSpec kSatellitesMaxSpec = satellite_ratio_spec(
     "verdict: upper limit of the satellite/main ratio for 'isolated_with_satellites'",
     "--satellites-max", "satellites_max");
 
+/// The two satellite-ratio thresholds of the verdict, one place for every analysis (the retrieve
+/// options carry them into each verdict; their flags and keys: kIsolatedMaxSpec,
+/// kSatellitesMaxSpec): 0 < isolated_max < satellites_max <= 1.
+struct SatelliteThresholds {
+  /// isolated when the largest satellite has at most this fraction of the main burst's peak
+  /// intensity (DESIGN.md: 10 %).
+  double isolated_max = 0.10;
+  /// isolated_with_satellites while the largest satellite stays below this (DESIGN.md: 70 %).
+  double satellites_max = 0.70;
+};
+
 /// A threshold as an analysis other than retrieve takes it (rabbitt, classify): on its command
 /// line only, with no config key and outside the batch option strings (batch sets the
 /// thresholds through RetrieveOptions).
@@ -100,12 +112,9 @@ constexpr OptionSpec command_line_only(OptionSpec spec) {
 struct ClassifierOptions {
   /// IR wavelength, nm; 0 = trace.meta.ir_wavelength_nm (must then be > 0).
   double ir_wavelength_nm = 0.0;
-  /// isolated when the largest satellite has at most this fraction of the main burst's peak
-  /// intensity (DESIGN.md: 10 %), in (0, satellite_max_ratio).
-  double isolated_max_satellite_ratio = 0.10;
-  /// isolated_with_satellites while the largest satellite stays below this (DESIGN.md: 70 %),
-  /// in (isolated_max_satellite_ratio, 1].
-  double satellite_max_ratio = 0.70;
+  /// The satellite-ratio thresholds (named isolated_max_satellite_ratio and satellite_max_ratio
+  /// in messages and in the evidence).
+  SatelliteThresholds satellite_ratio;
   /// train when a reconstruction shows at least this many bursts with >= 50 % of the main
   /// burst's peak intensity (DESIGN.md: 3), >= 2.
   int train_min_comparable_bursts = 3;
@@ -125,11 +134,7 @@ struct ClassifierOptions {
   double retrieval_max_trace_error_ratio = 2.0;
   /// Replace isolated hot pixels before taking the evidence (sw::remove_hot_pixels, the same
   /// rule and defaults as preprocessing): a single spike fakes spectral fringes at every lag.
-  bool remove_hot_pixels = true;
-  /// Hot-pixel test: Poisson sigmas above the larger neighbour (> 0).
-  double hot_pixel_sigma = 8.0;
-  /// Hot-pixel test: times the reference neighbour (> 1).
-  double hot_pixel_ratio = 5.0;
+  HotPixelOptions hot_pixels;
 
   /// Empty when valid; otherwise names the field, its value and the constraint.
   std::string validate() const;

@@ -15,8 +15,7 @@ constexpr double kFallbackWavelength_nm = 800.0;
 
 ClassifierOptions effective_classifier_options(const ClassifyAnalysisOptions& options) {
   ClassifierOptions c = options.classifier;
-  c.isolated_max_satellite_ratio = options.retrieve_options.isolated_max_satellite_ratio;
-  c.satellite_max_ratio = options.retrieve_options.satellites_max_satellite_ratio;
+  c.satellite_ratio = options.retrieve_options.satellite_ratio;
   return c;
 }
 

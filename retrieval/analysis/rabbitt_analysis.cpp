@@ -5,6 +5,7 @@
 #include "retrieval/core/units.h"
 #include "retrieval/physics/atomic_delay.h"
 #include "retrieval/preprocess/lines.h"
+#include "retrieval/preprocess/preprocess.h"
 
 namespace sw {
 
@@ -150,11 +151,9 @@ RabbittOutput analyse_rabbitt(const Trace& scan, const Trace* xuv_only,
 
   res.extra = rb.params;
   // The energy window analysed (DESIGN.md: preprocess.window_*), when one was applied.
-  if (!window_source.empty()) {
-    res.extra.push_back({"preprocess.window_source", window_source});
-    res.extra.push_back({"preprocess.window_lo_eV", units::au_to_eV(trace.energy_au.front())});
-    res.extra.push_back({"preprocess.window_hi_eV", units::au_to_eV(trace.energy_au.back())});
-  }
+  if (!window_source.empty())
+    append_window_params(window_source, units::au_to_eV(trace.energy_au.front()),
+                         units::au_to_eV(trace.energy_au.back()), &res.extra);
   auto P = [&](const std::string& k, auto v) { res.extra.push_back({k, v}); };
   if (out.burst) {
     const TrainBurst& b = *out.burst;

@@ -22,9 +22,9 @@ namespace sw {
 std::string RetrieveOptions::validate() const {
   if (std::string e = validate_described(*this); !e.empty()) return e;
   std::ostringstream s;
-  if (!(isolated_max_satellite_ratio < satellites_max_satellite_ratio))
-    s << "satellite thresholds " << isolated_max_satellite_ratio << ", "
-      << satellites_max_satellite_ratio << ": need 0 < isolated < satellites <= 1";
+  if (!(satellite_ratio.isolated_max < satellite_ratio.satellites_max))
+    s << "satellite thresholds " << satellite_ratio.isolated_max << ", "
+      << satellite_ratio.satellites_max << ": need 0 < isolated < satellites <= 1";
   else if (auto e1 = preprocess.validate(); !e1.empty())
     s << "preprocess." << e1;
   else if (auto e2 = quality.validate(); !e2.empty())
@@ -294,7 +294,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       if (opt.satellite_start && pr.ir_omega_au > 0 &&
           units::period_au(pr.ir_omega_au) < pr.grid.window() &&
           pulse_metrics(base, pr.ir_omega_au, band_lo, band_hi).satellite_intensity_ratio <
-              opt.isolated_max_satellite_ratio) {
+              opt.satellite_ratio.isolated_max) {
         // Both signs; the runs go into the chain before the result (the chain ends with it).
         out.chain.pop_back();
         std::size_t best = out.chain.size();
@@ -333,8 +333,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   if (out.preprocess.lines.size() >= 2 && trace.meta.kind != TraceKind::kRabbitt &&
       !(opt.line_delays.names.size() == 1 && opt.line_delays.names[0] == "none")) {
     ClassifierOptions lc;
-    lc.isolated_max_satellite_ratio = opt.isolated_max_satellite_ratio;
-    lc.satellite_max_ratio = opt.satellites_max_satellite_ratio;
+    lc.satellite_ratio = opt.satellite_ratio;
     if (classify(trace, lc, &out.reconstruction).pulse_class != PulseClass::kTrain) {
       LineDelayOptions lo = opt.line_delays;
       lo.seed = opt.seed;
@@ -485,8 +484,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // The verdict of every analysis comes from one place (retrieval/analysis/classifier.h): the
   // scan's spectral and delay evidence plus the reconstructed bursts.
   ClassifierOptions co;
-  co.isolated_max_satellite_ratio = opt.isolated_max_satellite_ratio;
-  co.satellite_max_ratio = opt.satellites_max_satellite_ratio;
+  co.satellite_ratio = opt.satellite_ratio;
   VerdictSection v = classify(trace, co, &rec);
   // Systematic spread over the equally good runs of the chain (0 with one).
   auto systematic = [&](auto get) {
@@ -679,8 +677,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         vd.satellite_intensity_ratio && vd.satellite_intensity_ratio_sigma &&
         *vd.satellite_intensity_ratio_sigma > 0) {
       const double r = *vd.satellite_intensity_ratio;
-      const double d = std::min(std::abs(r - opt.isolated_max_satellite_ratio),
-                                std::abs(r - opt.satellites_max_satellite_ratio));
+      const double d = std::min(std::abs(r - opt.satellite_ratio.isolated_max),
+                                std::abs(r - opt.satellite_ratio.satellites_max));
       e.class_margin_sigma = d / *vd.satellite_intensity_ratio_sigma;
     }
     if (rec.retrieved.rows() == pr.intensity.rows() && rec.retrieved.cols() == ne &&

@@ -126,11 +126,11 @@ struct RetrieveOptions {
   /// (FWHM -9 % to +9 %, GDD shrunk by 40 %) beyond its replicas' spread, where the full model,
   /// a least-squares fit weighted by the Poisson variances, stays within 1-5 %. 0 = off.
   double cma_min_signal_counts = 60.0;
-  /// Verdict thresholds (DESIGN.md defaults, common practice, no published standard).
-  double isolated_max_satellite_ratio = 0.10;
-  double satellites_max_satellite_ratio = 0.70;
+  /// Verdict thresholds (DESIGN.md defaults, common practice, no published standard), for
+  /// every analysis.
+  SatelliteThresholds satellite_ratio;
   /// auto: when the full model ran and its burst has no satellite above
-  /// isolated_max_satellite_ratio, run it twice more from that burst with satellites of
+  /// satellite_ratio.isolated_max, run it twice more from that burst with satellites of
   /// `satellite_start_ratio` at -+T/2 (each field sign; retrieval/physics/satellite_seed.h) and
   /// keep a start that fits better; an equally good start enters the systematic spread of the FWHM
   /// and of the satellite ratio (so class_margin_sigma sees a class the data cannot decide).
@@ -259,8 +259,8 @@ struct RetrieveOptions {
                  .max = 100,
                  .batch = false},  // not settable in batch: constant there
       self.window_cut_sigma_per_share);
-    v(kIsolatedMaxSpec, self.isolated_max_satellite_ratio);
-    v(kSatellitesMaxSpec, self.satellites_max_satellite_ratio);
+    v(kIsolatedMaxSpec, self.satellite_ratio.isolated_max);
+    v(kSatellitesMaxSpec, self.satellite_ratio.satellites_max);
     v(OptionSpec{.name = "satellite_start",
                  .help = "auto: also start the full model from its burst with satellites at -+T/2 "
                          "(on by default)",
@@ -293,7 +293,7 @@ struct RetrieveOptions {
                  .flag = "--despike,!--no-despike",
                  .config_key = "despike",
                  .echo = false},
-      self.preprocess.remove_hot_pixels);
+      self.preprocess.hot_pixels.remove);
     v(OptionSpec{.name = "max_seconds",
                  .unit = "s",
                  .help = "wall-time budget of the analysis of one scan",

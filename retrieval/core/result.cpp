@@ -19,21 +19,16 @@ SW_ENUM_NAME_FUNCTIONS(PulseClass, parse_pulse_class, kPulseClassNames)
 QualityCheck& QualitySection::add(const std::string& name, double value, double limit,
                                   const std::string& rule, const std::string& detail,
                                   bool guards_headline) {
-  QualityCheck c;
-  c.name = name;
-  c.limit = limit;
-  c.rule = rule;
-  c.detail = detail;
-  c.guards_headline = guards_headline;
-  if (!std::isfinite(value)) {
-    c.value = 0;
-    c.pass = false;
-    c.detail += " (the value could not be computed)";
-  } else {
-    c.value = value;
-    c.pass = rule == ">=" ? value >= limit : value <= limit;
-  }
-  checks.push_back(std::move(c));
+  // A value that could not be computed fails its check and is written as 0.
+  const bool finite = std::isfinite(value);
+  checks.push_back(
+      QualityCheck{.name = name,
+                   .value = finite ? value : 0.0,
+                   .limit = limit,
+                   .rule = rule,
+                   .pass = finite && (rule == ">=" ? value >= limit : value <= limit),
+                   .guards_headline = guards_headline,
+                   .detail = finite ? detail : detail + " (the value could not be computed)"});
   finalize();
   return checks.back();
 }

@@ -8,15 +8,11 @@ namespace sw::cma_kernels {
 
 namespace {
 
-// The data projection of one segment, fused with the error sums (a = target amplitude
-// sqrt(max(I, 0)) / dt, raw units; M = dt^2 |S|^2 the model intensity):
-//   Poisson = false: the exact modulus replacement S <- a S / |S| (a zero bin stays zero);
-//   Poisson = true:  |S| <- |S| (1 + I / M) / 2 with the measured I taken as it is (negative
-//                    after a background subtraction: clipping it at 0 would bias the weak bins
-//                    up), the factor kept in [0, 2 a / |S| + 1/2].
-template <bool Poisson>
-SW_HOT_LOOP void projection_kernel(double* S, const double* I, const double* a, std::size_t n,
-                                   double dt2, double* im_out, double* mm_out) {
+// The modulus replacement of one segment, S <- a S / |S| (a zero bin stays zero), fused with
+// the error sums (a = target amplitude sqrt(max(I, 0)) / dt, raw units; M = dt^2 |S|^2 the
+// model intensity).
+SW_HOT_LOOP void amplitude_kernel(double* S, const double* I, const double* a, std::size_t n,
+                                  double dt2, double* im_out, double* mm_out) {
   double im = 0.0, mm = 0.0;
 #pragma omp simd reduction(+ : im, mm)
   for (std::size_t q = 0; q < n; ++q) {
@@ -25,12 +21,7 @@ SW_HOT_LOOP void projection_kernel(double* S, const double* I, const double* a, 
     const double M = dt2 * r2;
     im += I[q] * M;
     mm += M * M;
-    const double rs = detail::rsqrt_newton(r2 + 1e-300);
-    double f;
-    if constexpr (Poisson)
-      f = std::clamp(0.5 + 0.5 * I[q] / (dt2 * (r2 + 1e-300)), 0.0, 2.0 * a[q] * rs + 0.5);
-    else
-      f = a[q] * rs;
+    const double f = a[q] * detail::rsqrt_newton(r2 + 1e-300);
     S[2 * q] = re * f;
     S[2 * q + 1] = iv * f;
   }
@@ -38,16 +29,18 @@ SW_HOT_LOOP void projection_kernel(double* S, const double* I, const double* a, 
   *mm_out += mm;
 }
 
-// The Poisson projection of projection_kernel<true>, bit for bit, without the reciprocal
-// modulus where the clamp cannot bite. With a = sqrt(max(I, 0)) / dt (the contract of
-// project_poisson) and y = I / M, the step is v = 1/2 + y/2 and the clamp's upper bound
-// 1/2 + 2 a / |S| = 1/2 + 2 sqrt(y) (both terms up to rounding); 2 sqrt(y) exceeds y/2 by at
-// least 3 % of itself for every 0 < y <= 15, i.e. v <= 8, and 1/2 + term rounds monotonically
-// (I <= 0: v <= 1/2 <= bound), so there the factor is max(v, 0) exactly, whatever the bound's
-// last bits. Blocks of kPoissonBlock bins whose largest v exceeds 8 take the full
+// The Poisson projection |S| <- |S| (1 + I / M) / 2, with the measured I taken as it is
+// (negative after a background subtraction: clipping it at 0 would bias the weak bins up), the
+// factor kept in [0, 2 a / |S| + 1/2]: bit for bit that step computed in one loop over the bins,
+// but without the reciprocal modulus where the clamp cannot bite. With a = sqrt(max(I, 0)) / dt
+// (the contract of project_poisson) and y = I / M, the step is v = 1/2 + y/2 and the clamp's
+// upper bound 1/2 + 2 a / |S| = 1/2 + 2 sqrt(y) (both terms up to rounding); 2 sqrt(y) exceeds
+// y/2 by at least 3 % of itself for every 0 < y <= 15, i.e. v <= 8, and 1/2 + term rounds
+// monotonically (I <= 0: v <= 1/2 <= bound), so there the factor is max(v, 0) exactly, whatever
+// the bound's last bits. Blocks of kPoissonBlock bins whose largest v exceeds 8 take the full
 // formula. The error sums run first, in a loop of their own with the reduction of
-// projection_kernel (tests/test_cma_kernels.cpp checks the bits against it for every
-// remainder of the vector width).
+// amplitude_kernel (tests/test_cma_kernels.cpp checks the bits against the one-loop step for
+// every remainder of the vector width).
 constexpr std::size_t kPoissonBlock = 64;
 
 SW_HOT_LOOP void poisson_sums(const double* S, const double* I, std::size_t n, double dt2,
@@ -177,7 +170,7 @@ SW_HOT_LOOP double epie_update(const double* G, const double* B, const double* P
 
 void project_amplitude(double* S, const double* I, const double* a, std::size_t n, double dt2,
                        double* im_out, double* mm_out) {
-  projection_kernel<false>(S, I, a, n, dt2, im_out, mm_out);
+  amplitude_kernel(S, I, a, n, dt2, im_out, mm_out);
 }
 
 void project_poisson(double* S, const double* I, const double* a, std::size_t n, double dt2,

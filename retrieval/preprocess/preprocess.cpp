@@ -13,6 +13,7 @@
 #include "retrieval/physics/gas.h"
 #include "retrieval/physics/pulse_metrics.h"
 #include "retrieval/preprocess/edge_rows.h"
+#include "retrieval/preprocess/energy_combine.h"
 
 namespace sw {
 
@@ -20,10 +21,10 @@ std::string PreprocessOptions::validate() const {
   std::ostringstream s;
   if (!(field_free_shift_fraction > 0 && field_free_shift_fraction < 1))
     s << "field_free_shift_fraction = " << field_free_shift_fraction << ": must lie in (0, 1)";
-  else if (!(hot_pixel_sigma > 0))
-    s << "hot_pixel_sigma = " << hot_pixel_sigma << ": must be > 0";
-  else if (!(hot_pixel_ratio > 1))
-    s << "hot_pixel_ratio = " << hot_pixel_ratio << ": must be > 1";
+  else if (!(hot_pixels.sigma > 0))
+    s << "hot_pixel_sigma = " << hot_pixels.sigma << ": must be > 0";
+  else if (!(hot_pixels.ratio > 1))
+    s << "hot_pixel_ratio = " << hot_pixels.ratio << ": must be > 1";
   else if (saturation_plateau_bins < 2)
     s << "saturation_plateau_bins = " << saturation_plateau_bins << ": must be >= 2";
   else if (energy_combine < 0)
@@ -118,72 +119,6 @@ EnergySupport energy_support(const Trace& trace, const PreprocessOptions& opt,
           "background are not separated (no signal-free bins)");
   }
   return band;
-}
-
-// Largest time lag (a.u.) at which the delay rows' spectra still hold structure above the
-// counting noise. The Fourier transform over energy of a row's counts is the autocorrelation of
-// the photoelectron wave packet in time (Wiener-Khinchin), so its extent in lag bounds the
-// packet's duration, satellites and train included. Rows are Hann-tapered (no leakage from the
-// axis edges); for Poisson counts the noise adds sum_j w_j^2 c_j to every lag's power, with a
-// spread of that per row: a lag is signal when the summed power exceeds the noise by `z` spreads.
-double signal_lag_extent(const Eigen::MatrixXd& counts, const Eigen::VectorXd& bg, double dW,
-                         double z) {
-  const Eigen::Index nd = counts.rows(), ne = counts.cols();
-  std::size_t n = 64;
-  while (n < 2 * static_cast<std::size_t>(ne)) n *= 2;
-  const Fft fft(n);
-  CVec in(n), out(n);
-  std::vector<double> power(n / 2 + 1, 0.0), taper(static_cast<std::size_t>(ne));
-  for (Eigen::Index j = 0; j < ne; ++j)
-    taper[static_cast<std::size_t>(j)] =
-        0.5 -
-        0.5 * std::cos(units::kTwoPi * (static_cast<double>(j) + 0.5) / static_cast<double>(ne));
-  double noise = 0, spread2 = 0;
-  for (Eigen::Index i = 0; i < nd; ++i) {
-    std::fill(in.begin(), in.end(), cdouble(0.0));
-    double row_noise = 0;
-    for (Eigen::Index j = 0; j < ne; ++j) {
-      const double w = taper[static_cast<std::size_t>(j)];
-      in[static_cast<std::size_t>(j)] = w * (counts(i, j) - bg(j));
-      row_noise += w * w * std::max(counts(i, j), 0.0);
-    }
-    fft.time_to_freq(in, out);
-    for (std::size_t m = 0; m <= n / 2; ++m) power[m] += std::norm(out[m]);
-    noise += row_noise;
-    spread2 += row_noise * row_noise;
-  }
-  const double threshold = noise + z * std::sqrt(spread2);
-  std::size_t last = 0;
-  for (std::size_t m = 0; m <= n / 2; ++m)
-    if (power[m] > threshold) last = m;
-  return units::kTwoPi * static_cast<double>(last) / (static_cast<double>(n) * dW);
-}
-
-// Step 4a's factor: PreprocessOptions::energy_combine, or the automatic rule there.
-int combine_factor(const Trace& trace, const PreprocessOptions& opt, const Eigen::MatrixXd& counts,
-                   const Eigen::VectorXd& bg, double dW, PreprocessSummary* s) {
-  const Eigen::Index ne = counts.cols();
-  if (opt.energy_combine == 1) return 1;
-  if (opt.energy_combine >= 2) {
-    if (ne / opt.energy_combine < 16)
-      throw usage_error("preprocess: energy_combine = " + std::to_string(opt.energy_combine) +
-                        " leaves " + std::to_string(ne / opt.energy_combine) + " of " +
-                        std::to_string(ne) + " energy bins; expected at least 16");
-    return opt.energy_combine;
-  }
-  const double period =
-      units::period_au(units::wavelength_nm_to_omega_au(trace.meta.ir_wavelength_nm));
-  const auto [lo, hi] = std::minmax_element(trace.delay_au.begin(), trace.delay_au.end());
-  double window = std::max(opt.combine_min_window_periods * period,
-                           opt.combine_min_window_span_factor * (*hi - *lo));
-  // The XUV grid's time window is 2 pi / (k dW) (a.u.).
-  if (std::floor(units::kTwoPi / (dW * window)) < 2) return 1;
-  const double lag = signal_lag_extent(counts, bg, dW, opt.combine_noise_sigmas);
-  s->signal_lag_extent_fs = units::au_to_fs(lag);
-  window = std::max(window, opt.combine_min_window_lags * lag);
-  const double k = std::floor(units::kTwoPi / (dW * window));
-  const double most = std::floor(static_cast<double>(ne) / 64.0);
-  return static_cast<int>(std::max(1.0, std::min(k, most)));
 }
 
 }  // namespace
@@ -308,9 +243,9 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
                          "): given zero weight, the engines fit the other bins");
 
   // 2. isolated hot pixels: far above both delay neighbours and both energy neighbours.
-  if (opt.remove_hot_pixels)
+  if (opt.hot_pixels.remove)
     s.hot_pixels_replaced =
-        remove_hot_pixels(counts, satm, opt.hot_pixel_sigma, opt.hot_pixel_ratio);
+        remove_hot_pixels(counts, satm, opt.hot_pixels.sigma, opt.hot_pixels.ratio);
 
   // 1. background, a model B(W) per energy bin (the same in every delay row).
   std::vector<double> W_eV(W.size());
@@ -506,40 +441,13 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
       }
     }
   }
-  // 4a. oversampled axis: k adjacent bins summed (counts conserved).
-  if (const int k = combine_factor(trace, opt, counts, bgcol, dW, &s); k > 1) {
-    const Eigen::Index ng = ne / k;
-    auto sum_groups = [&](const Eigen::MatrixXd& m, bool largest) {
-      Eigen::MatrixXd out(m.rows(), ng);
-      for (Eigen::Index g = 0; g < ng; ++g)
-        if (largest)
-          out.col(g) = m.middleCols(g * k, k).rowwise().maxCoeff();
-        else
-          out.col(g) = m.middleCols(g * k, k).rowwise().sum();
-      return out;
-    };
-    counts = sum_groups(counts, false);
-    blend = sum_groups(blend, false);
-    satm = sum_groups(satm, true);
-    Eigen::VectorXd b2(ng);
-    std::vector<double> w2(static_cast<std::size_t>(ng));
-    std::vector<char> m2(masked.empty() ? 0 : static_cast<std::size_t>(ng), 0);
-    for (Eigen::Index g = 0; g < ng; ++g) {
-      b2(g) = bgcol.segment(g * k, k).sum();
-      double w = 0;
-      for (Eigen::Index j = g * k; j < (g + 1) * k; ++j) {
-        w += W[static_cast<std::size_t>(j)];
-        if (!masked.empty() && masked[static_cast<std::size_t>(j)])
-          m2[static_cast<std::size_t>(g)] = 1;
-      }
-      w2[static_cast<std::size_t>(g)] = w / k;
-    }
-    bgcol = b2;
-    W = w2;
-    masked = m2;
+  // 4a. oversampled axis: k adjacent bins summed (counts conserved; energy_combine.h).
+  const EnergyCombineChoice combine = choose_energy_combine(trace, opt, counts, bgcol, dW);
+  s.signal_lag_extent_fs = combine.signal_lag_extent_fs;
+  if (const int k = combine.k; k > 1) {
+    s.energy_bins_left_out = sum_energy_bins(k, counts, blend, satm, bgcol, W, masked);
     s.energy_bins_combined = static_cast<std::size_t>(k);
-    s.energy_bins_left_out = static_cast<std::size_t>(ne - ng * k);
-    ne = ng;
+    ne = counts.cols();
     dW *= k;
     s.energy_step_eV = units::au_to_eV(dW);
   }
@@ -894,10 +802,10 @@ void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* ou
     }
     P(k + "relative_strength_upper_limit", u.upper_limit);
   }
-  P("window_source", s.window_source.empty() ? std::string("whole axis") : s.window_source);
-  if (!s.window_source.empty()) {
-    P("window_lo_eV", s.window_lo_eV);
-    P("window_hi_eV", s.window_hi_eV);
+  if (s.window_source.empty()) {
+    P("window_source", std::string("whole axis"));
+  } else {
+    append_window_params(s.window_source, s.window_lo_eV, s.window_hi_eV, out);
     P("window_cut_share", s.window_cut_share);
   }
   P("energy_resampled", s.energy_resampled);
@@ -921,6 +829,13 @@ void append_preprocess_params(const PreprocessSummary& s, std::vector<Param>* ou
   P("total_counts", s.total_counts);
   P("peak_counts", s.peak_counts);
   P("signal_peak_counts", s.signal_peak_counts);
+}
+
+void append_window_params(const std::string& source, double lo_eV, double hi_eV,
+                          std::vector<Param>* out) {
+  out->push_back({"preprocess.window_source", source});
+  out->push_back({"preprocess.window_lo_eV", lo_eV});
+  out->push_back({"preprocess.window_hi_eV", hi_eV});
 }
 
 }  // namespace sw

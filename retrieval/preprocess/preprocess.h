@@ -44,7 +44,8 @@
 //   4a. oversampled axes: k adjacent energy bins summed into one (counts, background and
 //      neighbour-line estimates summed, a group with a saturated or model-only bin is one),
 //      after the background, hot-pixel, line and window steps have run on the measured bins
-//      (PreprocessOptions::energy_combine; the last ne mod k bins are left out);
+//      (PreprocessOptions::energy_combine, retrieval/preprocess/energy_combine.h; the last
+//      ne mod k bins are left out);
 //   7. the XUV grid: frequency step = energy step, size the next power of two >= 2x the number
 //      of energy bins (so the measured band sits inside the FFT band with margin).
 
@@ -60,11 +61,17 @@
 
 namespace sw {
 
+/// Step 2, isolated hot pixels (remove_hot_pixels below, the rule in the file comment); the
+/// classifier despikes its evidence with the same options.
+struct HotPixelOptions {
+  bool remove = true;  ///< replace them
+  double sigma = 8.0;  ///< hot_pixel_sigma: > 0, Poisson sigmas above the reference r
+  double ratio = 5.0;  ///< hot_pixel_ratio: > 1, times the reference r
+};
+
 struct PreprocessOptions {
   /// Replace isolated hot pixels (step 2).
-  bool remove_hot_pixels = true;
-  double hot_pixel_sigma = 8.0;  ///< > 0, Poisson sigmas above the reference r (step 2)
-  double hot_pixel_ratio = 5.0;  ///< > 1, times the reference r (step 2)
+  HotPixelOptions hot_pixels;
   /// Smallest 8-connected plateau of bins at the scan's largest value taken as saturation.
   int saturation_plateau_bins = 3;  ///< >= 2
   /// Background model fit (retrieval/preprocess/background.h).
@@ -84,22 +91,9 @@ struct PreprocessOptions {
   /// Largest centroid shift (fraction of the scan's largest) of a field-free edge row.
   double field_free_shift_fraction = 0.1;  ///< in (0, 1)
   /// Adjacent energy bins summed into one before the engines (step 4a): 0 = automatic, 1 =
-  /// never, k >= 2 = always k. Automatic: the largest k whose XUV-grid time window
-  /// h / (k dW) stays at least
-  ///   - combine_min_window_periods IR periods,
-  ///   - combine_min_window_span_factor x the delay span, and
-  ///   - combine_min_window_lags x the signal's lag extent: the largest lag at which the
-  ///     Fourier transform over energy of the rows' counts (the autocorrelation of the
-  ///     photoelectron wave packet) stands combine_noise_sigmas above the counting noise
-  ///     (a pulse train or distant satellites keep a fine axis),
-  /// and which leaves >= 64 bins. A packet confined to a window T has spectra with no structure
-  /// finer than h / T, so the sum loses nothing the engines can represent on that window,
-  /// while the grid and every FFT shrink by k. But the engines sample the spectrum at bin
-  /// centres while a sum of k bins integrates over k dW: structure at lag L is attenuated by
-  /// sinc(pi k dW L / h) relative to the model. The lag factor 12 keeps that <= 1.1 % at the
-  /// largest significant lag (sinc(pi / 12) = 0.989); with 3 (a window just free of aliasing,
-  /// 17 % there) the high-count 2 % satellite scan sat2-ne, on 4x finer bins summed in threes,
-  /// fitted above its noise floor and lost its trust.
+  /// never, k >= 2 = always k. Automatic: the largest k whose XUV-grid time window h / (k dW)
+  /// stays at least the three windows below and which leaves >= 64 bins (the rule and its
+  /// reasons: retrieval/preprocess/energy_combine.h).
   int energy_combine = 0;
   double combine_min_window_periods = 6.0;      ///< > 0, IR periods (automatic combination)
   double combine_min_window_span_factor = 1.5;  ///< >= 0, x the delay span (automatic)
@@ -220,5 +214,11 @@ Eigen::Matrix<std::uint8_t, Eigen::Dynamic, Eigen::Dynamic> detect_saturation(
 
 /// The preprocessing record as result.json keys under "preprocess." (appended to `out`).
 void append_preprocess_params(const PreprocessSummary& summary, std::vector<Param>* out);
+
+/// The energy window an analysis applied, as preprocess.window_source (where it came from:
+/// "option", "sidecar", "reference line"), preprocess.window_lo_eV and preprocess.window_hi_eV
+/// (appended to `out`; the analyses without a PreprocessSummary write it this way too).
+void append_window_params(const std::string& source, double lo_eV, double hi_eV,
+                          std::vector<Param>* out);
 
 }  // namespace sw

@@ -16,12 +16,29 @@
 #include <fstream>
 #include <sstream>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "imperfections.h"
 #include "retrieval/core/error.h"
 
 using namespace sw;
+
+namespace {
+
+// The sweep options that one flag sets from its value.
+const std::pair<const char*, int validation::SweepOptions::*> kIntegerFlags[] = {
+    {"--bootstrap", &validation::SweepOptions::bootstrap},
+    {"--jobs", &validation::SweepOptions::jobs},
+    {"--held-out", &validation::SweepOptions::held_out},
+    {"--energy-refine", &validation::SweepOptions::energy_refine},
+    {"--energy-combine", &validation::SweepOptions::energy_combine}};
+const std::pair<const char*, std::string validation::SweepOptions::*> kTextFlags[] = {
+    {"--engine", &validation::SweepOptions::engine},
+    {"--uncertainty", &validation::SweepOptions::uncertainty},
+    {"--work", &validation::SweepOptions::work_dir}};
+
+}  // namespace
 
 int main(int argc, char** argv) {
   std::string out = "docs";
@@ -44,6 +61,16 @@ int main(int argc, char** argv) {
           throw usage_error(std::string(flag) + " " + v + ": expected an integer");
         return static_cast<int>(n);
       };
+      // A flag of one of the tables sets its field from its value.
+      auto from_table = [&](const auto& table, const auto& read) {
+        for (const auto& [flag, field] : table)
+          if (a == flag) {
+            o.*field = read(flag);
+            return true;
+          }
+        return false;
+      };
+      if (from_table(kIntegerFlags, integer) || from_table(kTextFlags, value)) continue;
       if (a == "--list") {
         list = true;
       } else if (a == "--check-scans") {
@@ -58,28 +85,12 @@ int main(int argc, char** argv) {
           if (q == std::string::npos) break;
           p = q + 1;
         }
-      } else if (a == "--bootstrap") {
-        o.bootstrap = integer("--bootstrap");
-      } else if (a == "--jobs") {
-        o.jobs = integer("--jobs");
-      } else if (a == "--engine") {
-        o.engine = value("--engine");
-      } else if (a == "--uncertainty") {
-        o.uncertainty = value("--uncertainty");
       } else if (a == "--from-csv") {
         from_csv = value("--from-csv");
-      } else if (a == "--held-out") {
-        o.held_out = integer("--held-out");
       } else if (a == "--held-out-seed") {
         o.held_out_seed = static_cast<unsigned long long>(integer("--held-out-seed"));
-      } else if (a == "--energy-refine") {
-        o.energy_refine = integer("--energy-refine");
-      } else if (a == "--energy-combine") {
-        o.energy_combine = integer("--energy-combine");
       } else if (a == "--write-scans") {
         write_dir = value("--write-scans");
-      } else if (a == "--work") {
-        o.work_dir = value("--work");
       } else if (a == "-h" || a == "--help") {
         std::printf(
             "usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
