@@ -178,8 +178,8 @@ TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") 
                     "settings.threads", "settings.uncertainty", "settings.warm_patience",
                     "settings.full_model_patience", "settings.cma_phase_error_max_rad",
                     "settings.cma_trace_error_max_ratio", "settings.cma_min_signal_counts",
-                    "settings.method_sigma_relative",
-                    "settings.window_cut_sigma_per_share", "settings.isolated_max_satellite_ratio",
+                    "settings.method_sigma_relative", "settings.window_cut_sigma_per_share",
+                    "settings.isolated_max_satellite_ratio",
                     "settings.satellites_max_satellite_ratio", "settings.satellite_start",
                     "settings.satellite_start_ratio", "settings.dipole",
                     "settings.energy_combine"});

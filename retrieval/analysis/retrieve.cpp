@@ -266,7 +266,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     for (const auto& [why, on] :
          {std::pair{"cma phase error", cma_limited}, std::pair{"cma fit above floor", not_fitted},
           std::pair{"noisy IR field", noisy_field}, std::pair{"few counts per bin", few_counts}})
-      if (on) out.full_model_reason += (out.full_model_reason.empty() ? "" : ", ") + std::string(why);
+      if (on)
+        out.full_model_reason += (out.full_model_reason.empty() ? "" : ", ") + std::string(why);
     if (cma_limited || not_fitted || noisy_field || few_counts) {
       EngineOptions fo = full_model_options(eo);
       fo.initial_xuv = first.xuv;
