@@ -458,7 +458,7 @@ RetrievalProblem preprocess(const Trace& trace, const PreprocessOptions& opt,
   Eigen::MatrixXd var = counts.cwiseMax(1.0);
   Eigen::MatrixXd sig = counts.rowwise() - bgcol.transpose();
   if (deblended) sig -= blend;
-  s.signal_peak_counts = std::max(sig.colwise().mean().maxCoeff(), 0.0);
+  if (sig.size() > 0) s.signal_peak_counts = std::max(sig.colwise().mean().maxCoeff(), 0.0);
   // In the model-only margin the support sees the reference line's mirror image, not the
   // subtracted neighbour's residue (as the reference spectrum below).
   const bool any_masked = std::any_of(masked.begin(), masked.end(), [](char m) { return m != 0; });
