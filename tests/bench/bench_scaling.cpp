@@ -14,6 +14,11 @@
 //                              tests/bench/run_bench.sh also runs the T = 2 case alone under
 //                              /usr/bin/time -v for the peak memory;
 //   BM_LargeWithSigmaUncombined/T  the same with energy_combine = 1 (every measured bin).
+//   BM_FewCounts/M             a 121 x 300 neon scan at 40 peak counts (~22 counts per delay row
+//                              in its strongest bin) with 8 replicas on 2 threads and
+//                              RetrieveOptions::cma_min_signal_counts = M: M = 0 keeps the CMA
+//                              result, M = 60 (the default) refines it with the full model (the
+//                              cost of the few-counts rule, docs/performance.md "Round 6").
 // Wall time on a shared machine depends on the load: compare rows of one run.
 #include <benchmark/benchmark.h>
 #include <sys/resource.h>
@@ -35,19 +40,22 @@ double process_cpu_seconds() {
          1e-6 * static_cast<double>(u.ru_utime.tv_usec + u.ru_stime.tv_usec);
 }
 
-synthetic::SyntheticScan neon_scan(int nd, int ne) {
+synthetic::SyntheticScan neon_scan(int nd, int ne, double peak_counts = 0.0) {
   synthetic::ScanConfig c = synthetic::find_preset("neon-150as").config;
   c.geometry.delay_fs = {-6.0, 12.0 / (nd - 1), nd};
   c.geometry.energy_eV = {40.0, 75.0 / ne, ne};
+  if (peak_counts > 0) c.noise.peak_counts = peak_counts;
   return synthetic::generate_scan(c, 5);
 }
 
-void run(benchmark::State& state, int nd, int ne, int bootstrap, int threads, int combine) {
-  const synthetic::SyntheticScan scan = neon_scan(nd, ne);
+void run(benchmark::State& state, int nd, int ne, int bootstrap, int threads, int combine,
+         double peak_counts = 0.0, double cma_min_signal_counts = -1.0) {
+  const synthetic::SyntheticScan scan = neon_scan(nd, ne, peak_counts);
   RetrieveOptions o;
   o.bootstrap = bootstrap;
   o.threads = threads;
   o.preprocess.energy_combine = combine;
+  if (cma_min_signal_counts >= 0) o.cma_min_signal_counts = cma_min_signal_counts;
   RetrieveOutput r;
   double cpu = 0.0;
   for (auto _ : state) {
@@ -66,6 +74,8 @@ void run(benchmark::State& state, int nd, int ne, int bootstrap, int threads, in
   state.counters["grid"] = static_cast<double>(r.problem.grid.size());
   state.counters["energy_bins_combined"] = static_cast<double>(r.preprocess.energy_bins_combined);
   state.counters["threads"] = resolve_threads(threads);
+  state.counters["signal_peak_counts"] = r.preprocess.signal_peak_counts;
+  state.counters["full_model"] = r.result.engine == "full-model" ? 1 : 0;
   if (r.result.xuv) {
     state.counters["fwhm_as"] = r.result.xuv->fwhm_as.value_or(0.0);
     state.counters["fwhm_sigma_as"] = r.result.xuv->fwhm_as_sigma.value_or(0.0);
@@ -91,5 +101,10 @@ void BM_LargeWithSigmaUncombined(benchmark::State& state) {
   run(state, 401, 1200, 8, static_cast<int>(state.range(0)), 1);
 }
 BENCHMARK(BM_LargeWithSigmaUncombined)->Arg(2)->Apply(sw::bench::one_timed_run);
+
+void BM_FewCounts(benchmark::State& state) {
+  run(state, 121, 300, 8, 2, 0, 40.0, static_cast<double>(state.range(0)));
+}
+BENCHMARK(BM_FewCounts)->Arg(0)->Arg(60)->Apply(sw::bench::one_timed_run);
 
 }  // namespace

@@ -126,6 +126,12 @@ k1, k2 = "BM_LargeWithSigma/1/iterations:1/real_time", "BM_LargeWithSigma/2/iter
 if k1 in s and k2 in s:
     print(f"  {'401 x 1200, 8 replicas: speed-up 2 threads / 1 (wall)':58s} "
           f"{seconds(s[k1], 'real_time') / seconds(s[k2], 'real_time'):7.2f}")
+f0, f60 = "BM_FewCounts/0/iterations:1/real_time", "BM_FewCounts/60/iterations:1/real_time"
+if f0 in s and f60 in s:
+    a, b = s[f0], s[f60]
+    print(f"  {'few counts (121 x 300, 8 replicas): full model / CMA (CPU)':58s} "
+          f"{b['process_cpu_s'] / a['process_cpu_s']:7.2f}   (FWHM {a['fwhm_as']:.1f} +- "
+          f"{a['fwhm_sigma_as']:.1f} as -> {b['fwhm_as']:.1f} +- {b['fwhm_sigma_as']:.1f} as)")
 try:
     for line in open(f"{out}/large_memory.txt"):
         if "Maximum resident set size" in line:
