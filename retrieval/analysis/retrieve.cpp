@@ -268,7 +268,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
           std::pair{"noisy IR field", noisy_field}, std::pair{"few counts per bin", few_counts}})
       if (on)
         out.full_model_reason += (out.full_model_reason.empty() ? "" : ", ") + std::string(why);
-    if (cma_limited || not_fitted || noisy_field || few_counts) {
+    if (!out.full_model_reason.empty()) {  // one of the four rules fired
       EngineOptions fo = full_model_options(eo);
       fo.initial_xuv = first.xuv;
       fo.initial_ir = first.ir;
