@@ -86,6 +86,18 @@ TEST_CASE("a check fails exactly when its limit is crossed", "[quality]") {
   CHECK_FALSE(q4.trusted);
   CHECK(q4.failed == std::vector<std::string>{"trace_error_vs_noise_floor"});
 
+  // A CMA result below the counts limit (docs/validation.md "Few counts per bin": CMA errors of
+  // 5-28 % at 9-53 counts, our measurement) fails; at the limit it passes; limit 0 = no check.
+  e = good_evidence();
+  e.cma_signal_counts = 59.0;
+  CHECK(checked(e).failed == std::vector<std::string>{"cma_signal_counts"});
+  CHECK_FALSE(checked(e).trusted);
+  e.cma_signal_counts = 60.0;
+  CHECK(checked(e).trusted);
+  e.cma_signal_counts = 5.0;
+  e.cma_min_signal_counts = 0.0;
+  CHECK_FALSE(find(checked(e), "cma_signal_counts"));
+
   // A failing check that guards no headline number is listed but leaves trusted.
   e = good_evidence();
   e.bias_over_sigma = 3.0;

@@ -4,6 +4,7 @@
 // counts; chirp sign right for both signs; the broadband case right only through the full model.
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 
@@ -228,4 +229,14 @@ TEST_CASE("few counts per bin: auto refines the CMA result with the full model a
   const RetrieveOutput off = retrieve(scan.trace, o);
   CHECK(off.full_model_reason.empty());
   CHECK(off.result.engine == "ptychographic");
+  // A CMA engine chosen by hand on such a scan keeps its number but not the trust: the check
+  // cma_signal_counts guards the headline (bootstrap 2 so that the sigma checks exist too).
+  o.cma_min_signal_counts = RetrieveOptions().cma_min_signal_counts;
+  o.engine = "ptychographic";
+  o.bootstrap = 2;
+  const RetrieveOutput forced = retrieve(scan.trace, o);
+  REQUIRE(forced.result.quality);
+  const auto& failed = forced.result.quality->failed;
+  CHECK(std::find(failed.begin(), failed.end(), "cma_signal_counts") != failed.end());
+  CHECK_FALSE(forced.result.quality->trusted);
 }

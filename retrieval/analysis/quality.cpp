@@ -128,6 +128,11 @@ void add_retrieval_checks(QualitySection& q, const RetrievalEvidence& e, const Q
                 "reported only: the result used momentum nodes"
               : "phase the central momentum approximation neglects at the band edges (rad)",
           !e.momentum_nodes);
+  if (e.cma_signal_counts && e.cma_min_signal_counts > 0)
+    q.add("cma_signal_counts", *e.cma_signal_counts, e.cma_min_signal_counts, ">=",
+          "counts per delay row in the strongest analysed bin of a CMA result: fewer, and the CMA "
+          "engine's error follows the counting noise beyond its replicas' spread (the full model, "
+          "which auto runs below the limit, fits such scans)");
   if (e.start_disagreement)
     q.add("starts_agreement", *e.start_disagreement, o.max_start_disagreement, "<=",
           e.starts_comparable

@@ -33,6 +33,10 @@
 //                                low-count target below low_count_peak_counts)
 //     cma_phase_error_rad        the CMA's neglected phase (CMA result) <= the retrieve option
 //                                (guarding for one central momentum; reported for momentum nodes)
+//     cma_signal_counts          counts per delay row in the strongest  >= the retrieve option
+//                                analysed bin (CMA result; below it the CMA engine's error
+//                                follows the counting noise: docs/validation.md "Few counts
+//                                per bin")
 //     starts_agreement           |FWHM_a - FWHM_b| / FWHM of two full-model starts whose fits
 //                                are equally good (G within 20 %)        <= max_start_disagreement
 //     engines_agreement          the same between the CMA run and the full model (reported only:
@@ -236,7 +240,13 @@ struct RetrievalEvidence {
   std::optional<double> fwhm_as_sigma, peak_vector_potential_au, peak_vector_potential_au_sigma;
   std::optional<double> cma_phase_error_rad;  ///< set when a CMA engine gave the result
   double cma_phase_error_max_rad = 0.6;
-  bool momentum_nodes = false;                 ///< the CMA result used momentum nodes
+  bool momentum_nodes = false;  ///< the CMA result used momentum nodes
+  /// Counts per delay row in the strongest analysed bin (PreprocessSummary::signal_peak_counts),
+  /// set when a CMA engine that projects the measured modulus (ptychographic, projections) gave
+  /// the result, and its limit (RetrieveOptions::cma_min_signal_counts;
+  /// 0 = no check).
+  std::optional<double> cma_signal_counts;
+  double cma_min_signal_counts = 60.0;
   std::optional<double> start_disagreement;    ///< two full-model starts
   bool starts_comparable = false;              ///< their fits equally good
   std::optional<double> engine_disagreement;   ///< CMA run vs final

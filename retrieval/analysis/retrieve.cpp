@@ -703,6 +703,10 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     e.cma_phase_error_max_rad = opt.cma_phase_error_max_rad;
     e.momentum_nodes = rec.model == "banded-cma";
   }
+  if (rec.engine == "ptychographic" || rec.engine == "projections") {  // measured-projection CMA
+    e.cma_signal_counts = out.preprocess.signal_peak_counts;
+    e.cma_min_signal_counts = opt.cma_min_signal_counts;
+  }
   {
     // Two full-model starts (auto, when the CMA stalled), and the CMA run against the result.
     std::vector<const Reconstruction*> full;
