@@ -98,8 +98,11 @@ TEST_CASE("full model equals direct quadrature of the SFA integral", "[forward]"
   const DipoleModel d(DipoleKind::kHydrogenic, ip, 2.3);
   const auto W = axis(units::eV_to_au(40), units::eV_to_au(0.25), 300);
   const std::vector<double> D = {units::fs_to_au(-0.7), units::fs_to_au(0.33)};
+  // Both block layouts: the fewest-nodes plan (default) and blocks of 2 rad with 10 nodes each.
+  const bool fewest = GENERATE(true, false);
   ForwardModelOptions o;
   o.momentum = MomentumModel::kFull;
+  o.fewest_nodes = fewest;
   const Eigen::MatrixXcd a = ForwardModel(ip, d, o).amplitude(x, ir, D, W);
   double err = 0, amax = 0;
   for (std::size_t i = 0; i < D.size(); ++i)
@@ -119,4 +122,70 @@ TEST_CASE("full model equals direct quadrature of the SFA integral", "[forward]"
       amax = std::max(amax, std::abs(acc));
     }
   CHECK(err / amax < 1e-5);
+}
+
+TEST_CASE("the fewest-nodes plan keeps the interpolation bound with fewer nodes", "[forward]") {
+  // The bound itself: interpolating exp(i theta x) on [-1, 1] at M Chebyshev points of the
+  // first kind, the largest error over 2001 points stays below 2 (theta/2)^M / M! (the
+  // Lagrange remainder with |prod (x - x_m)| <= 2^(1-M); E. Suli and D. Mayers, An Introduction
+  // to Numerical Analysis, CUP 2003, ch. 6, from memory) and above a tenth of it (the bound is
+  // tight to within the factor |f^(M)| / c^M, here 1).
+  for (const auto& [theta, M] : {std::pair{2.0, 10}, std::pair{5.0, 16}, std::pair{9.0, 22}}) {
+    std::vector<double> xm(static_cast<std::size_t>(M));
+    for (int m = 0; m < M; ++m)
+      xm[static_cast<std::size_t>(m)] = std::cos(units::kPi * (m + 0.5) / M);
+    double worst = 0;
+    for (int k = 0; k <= 2000; ++k) {
+      const double x = -1.0 + k / 1000.0;
+      std::complex<double> p = 0;
+      for (int m = 0; m < M; ++m) {
+        double L = 1;
+        for (int q = 0; q < M; ++q)
+          if (q != m)
+            L *= (x - xm[static_cast<std::size_t>(q)]) /
+                 (xm[static_cast<std::size_t>(m)] - xm[static_cast<std::size_t>(q)]);
+        p += L * std::polar(1.0, theta * xm[static_cast<std::size_t>(m)]);
+      }
+      worst = std::max(worst, std::abs(p - std::polar(1.0, theta * x)));
+    }
+    const double bound = chebyshev_interpolation_bound(theta, M);
+    CHECK(worst <= bound);
+    CHECK(worst > 0.1 * bound);
+  }
+
+  // A broadband axis under a strong field: the fixed layout needs several blocks of 10 nodes;
+  // the fewest-nodes plan has fewer nodes in all, every block within its bound.
+  const TimeGrid g = TimeGrid::for_energy_step(1024, units::eV_to_au(0.25));
+  GaussianIrPulse P;
+  P.peak_intensity_Wcm2 = 2e13;
+  const IrField ir =
+      make_gaussian_ir(P, units::fs_to_au(-20), units::fs_to_au(20), units::as_to_au(10));
+  const auto W = axis(units::eV_to_au(60), units::eV_to_au(0.25), 400);
+  const std::vector<double> D = {units::fs_to_au(-3), units::fs_to_au(3)};
+  ForwardModelOptions fixed;
+  fixed.fewest_nodes = false;
+  const MomentumBlockPlan pf = plan_momentum_blocks(ir, g, D, W, fixed);
+  const MomentumBlockPlan pn = plan_momentum_blocks(ir, g, D, W, ForwardModelOptions{});
+  auto total = [](const MomentumBlockPlan& p) {
+    std::size_t n = 0;
+    for (const MomentumBlock& b : p.blocks) n += b.nodes.size();
+    return n;
+  };
+  // Measured: 30 nodes in 3 blocks, and 16 in 1.
+  INFO("fixed " << total(pf) << " nodes in " << pf.blocks.size() << " blocks; fewest " << total(pn)
+                << " in " << pn.blocks.size());
+  REQUIRE(pf.blocks.size() >= 3);
+  CHECK(total(pn) < total(pf));
+  const double target = chebyshev_interpolation_bound(2.0, 10);
+  const double half_span = 0.5 * (pn.i1_hi - pn.i1_lo);
+  std::size_t covered = 0;
+  for (const MomentumBlock& b : pn.blocks) {
+    CHECK(b.first == covered);  // contiguous, every energy once
+    covered = b.last;
+    const double hw = 0.5 * (units::momentum_au(W[b.last - 1]) - units::momentum_au(W[b.first]));
+    CHECK(hw * half_span <= pn.block_phase_rad * (1 + 1e-12));
+    CHECK(chebyshev_interpolation_bound(pn.block_phase_rad, static_cast<int>(b.nodes.size())) <=
+          target);
+  }
+  CHECK(covered == W.size());
 }

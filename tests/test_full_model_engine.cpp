@@ -95,7 +95,7 @@ TEST_CASE("full-model defaults validate and agree with the option descriptions",
   CHECK(d.validate().empty());
   // Every default in its text form (option_text) passes the text boundary and reads back.
   const auto texts = described_texts(d);
-  CHECK(texts.size() == 16);
+  CHECK(texts.size() == 17);
   EngineSettings from_text;
   apply_engine_option_text("full-model", texts, &from_text);
   const FullModelSettings& r = from_text.full_model;
@@ -106,6 +106,7 @@ TEST_CASE("full-model defaults validate and agree with the option descriptions",
   CHECK(r.ir_samples_per_period == Approx(d.ir_samples_per_period));
   CHECK(r.chebyshev_nodes == d.chebyshev_nodes);
   CHECK(r.block_phase_rad == Approx(d.block_phase_rad));
+  CHECK(r.node_plan == d.node_plan);
   CHECK(r.variance_floor == Approx(d.variance_floor));
   CHECK(r.support_threshold == Approx(d.support_threshold));
   CHECK(r.support_margin_eV == Approx(d.support_margin_eV));

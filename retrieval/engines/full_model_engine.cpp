@@ -381,6 +381,7 @@ Reconstruction LeastSquaresEngine::finalize() {
   fo.central_momentum_au = problem_.central_momentum_au;
   fo.chebyshev_nodes = settings_.chebyshev_nodes;
   fo.max_block_phase_rad = settings_.block_phase_rad;
+  fo.fewest_nodes = settings_.node_plan != "fixed";
   fo.energy_jacobian = false;
   fo.threads = options_.threads;
   if (f.num_lines() > 0) {

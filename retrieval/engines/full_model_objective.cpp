@@ -487,6 +487,7 @@ void FullModelObjective::replan(const double* x) {
   o.momentum = MomentumModel::kFull;
   o.chebyshev_nodes = settings_.chebyshev_nodes;
   o.max_block_phase_rad = settings_.block_phase_rad;
+  o.fewest_nodes = settings_.node_plan != "fixed";
   const IrField irf = ir_field(x);
   fa_.plan_full(irf, o);
   for (LineTerm& t : lines_) t.fa->plan_full(irf, o);

@@ -21,6 +21,7 @@ struct FullModelSettings {
   double ir_samples_per_period = 64;  ///< IR sample step <= T_IR / value
   int chebyshev_nodes = 10;           ///< ForwardModelOptions::chebyshev_nodes
   double block_phase_rad = 2.0;       ///< ForwardModelOptions::max_block_phase_rad
+  std::string node_plan = "fewest";   ///< fewest | fixed (ForwardModelOptions::fewest_nodes)
   double variance_floor = 1e-4;       ///< weight floor = value x max variance
   double support_threshold = 1e-5;    ///< field-free spectrum fraction that frees an XUV bin
   double support_margin_eV = 1.0;     ///< widening of the XUV support on each side
@@ -74,6 +75,12 @@ struct FullModelSettings {
                  .min = 1e-3,
                  .max = 50},
       self.block_phase_rad);
+    v(OptionSpec{.name = "node_plan",
+                 .help = "full model: momentum blocks with the fewest nodes in all whose "
+                         "interpolation bound is that of chebyshev_nodes over block_phase_rad "
+                         "(fewest), or blocks of block_phase_rad with chebyshev_nodes each (fixed)",
+                 .choices = "fewest|fixed"},
+      self.node_plan);
     v(OptionSpec{.name = "variance_floor",
                  .help = "least-squares weights 1/max(variance, value x largest variance)",
                  .min = 0,

@@ -130,7 +130,9 @@ void ForwardAdjoint::set_row_phases() {
 
 void ForwardAdjoint::plan_full(const IrField& ir, const ForwardModelOptions& options) {
   plan_ = plan_momentum_blocks(ir, grid_, delay_, energy_, options);
-  max_block_phase_ = options.max_block_phase_rad;
+  // The accuracy the plan was made for: the bound of chebyshev_nodes over max_block_phase_rad.
+  cover_bound_phase_ = options.max_block_phase_rad;
+  cover_bound_nodes_ = options.chebyshev_nodes;
   central_ = false;
   planned_ = true;
   set_row_phases();
@@ -158,7 +160,9 @@ bool ForwardAdjoint::plan_covers(const IrField& ir, double slack) const {
   for (const MomentumBlock& b : plan_.blocks) {
     const double half_width =
         0.5 * (units::momentum_au(energy_[b.last - 1]) - units::momentum_au(energy_[b.first]));
-    if (half_width * excursion > (1.0 + slack) * max_block_phase_) return false;
+    if (chebyshev_interpolation_bound(half_width * excursion, static_cast<int>(b.nodes.size())) >
+        chebyshev_interpolation_bound((1.0 + slack) * cover_bound_phase_, cover_bound_nodes_))
+      return false;
   }
   return true;
 }

@@ -93,9 +93,12 @@ class ForwardAdjoint {
   void plan_central(double p0_au);
   const MomentumBlockPlan& plan() const { return plan_; }
   bool is_central() const { return central_; }
-  /// True when the current full-model plan keeps the phase excursion |(p - p_mid)(I1 - I1_mid)|
-  /// of every block below (1 + slack) x options.max_block_phase_rad for this IR field (the
-  /// accuracy the blocks were sized for). Always true for the CMA plan.
+  /// True when, for this IR field, the interpolation bound of every block of the current
+  /// full-model plan (chebyshev_interpolation_bound of its phase excursion
+  /// |(p - p_mid)(I1 - I1_mid)| and node count) stays within that of the plan's
+  /// chebyshev_nodes over (1 + slack) x max_block_phase_rad: the accuracy the blocks were sized
+  /// for, loosened by the slack (for blocks of max_block_phase_rad with chebyshev_nodes each,
+  /// the excursion below (1 + slack) x max_block_phase_rad). Always true for the CMA plan.
   bool plan_covers(const IrField& ir, double slack) const;
 
   const TimeGrid& grid() const { return grid_; }
@@ -194,7 +197,8 @@ class ForwardAdjoint {
   mutable PhaseStore store_;
   std::size_t store_limit_bytes_ = std::size_t{64} << 20;
   MomentumBlockPlan plan_;
-  double max_block_phase_ = 2.0;
+  double cover_bound_phase_ = 2.0;  // plan_covers: ForwardModelOptions::max_block_phase_rad
+  int cover_bound_nodes_ = 10;      // and chebyshev_nodes of the plan
   bool central_ = false;
   bool planned_ = false;
   void blur_row(const double* in, double* out) const;            // out = K in (ne each)

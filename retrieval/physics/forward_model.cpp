@@ -17,8 +17,9 @@ std::string ForwardModelOptions::validate() const {
   std::ostringstream s;
   if (momentum == MomentumModel::kCentral && !(central_momentum_au > 0))
     s << "central_momentum_au = " << central_momentum_au << ": must be > 0 for the CMA";
-  else if (chebyshev_nodes < 2)
-    s << "chebyshev_nodes = " << chebyshev_nodes << ": must be >= 2";
+  else if (chebyshev_nodes < 2 || chebyshev_nodes > kMaxChebyshevNodes)
+    s << "chebyshev_nodes = " << chebyshev_nodes << ": must be in [2, " << kMaxChebyshevNodes
+      << "]";
   else if (!(max_block_phase_rad > 0))
     s << "max_block_phase_rad = " << max_block_phase_rad << ": must be > 0";
   else if (threads < 0)
@@ -79,6 +80,41 @@ EnergyBinMap map_energy_bins(const TimeGrid& grid, double carrier, double ip,
   return m;
 }
 
+namespace {
+
+// One block of energies [j0, j1) with M Chebyshev nodes spanning their momenta.
+MomentumBlock make_block(const std::vector<double>& W, std::size_t j0, std::size_t j1, int M) {
+  MomentumBlock b;
+  b.first = j0;
+  b.last = j1;
+  const double pa = units::momentum_au(W[j0]), pb = units::momentum_au(W[j1 - 1]);
+  const double mid = 0.5 * (pa + pb), hw = std::max(0.5 * (pb - pa), 1e-9);
+  for (int m = 0; m < M; ++m) b.nodes.push_back(mid + hw * std::cos(units::kPi * (m + 0.5) / M));
+  b.lagrange.resize(static_cast<Eigen::Index>(j1 - j0), M);
+  for (std::size_t j = j0; j < j1; ++j) {
+    const double p = units::momentum_au(W[j]);
+    for (int m = 0; m < M; ++m) {
+      double L = 1.0;
+      for (int q = 0; q < M; ++q)
+        if (q != m) L *= (p - b.nodes[q]) / (b.nodes[m] - b.nodes[q]);
+      b.lagrange(static_cast<Eigen::Index>(j - j0), m) = L;
+    }
+  }
+  return b;
+}
+
+}  // namespace
+
+// Bound on the error of interpolating f(x) = exp(i c s x), |s| <= 1, on [-1, 1] at M Chebyshev
+// points: the remainder f^(M)(xi) / M! prod (x - x_m), with |f^(M)| <= c^M and
+// |prod (x - x_m)| <= 2^(1 - M) at the Chebyshev points (e.g. E. Suli and D. Mayers, An
+// Introduction to Numerical Analysis, CUP 2003, ch. 6; from memory), is 2 (c/2)^M / M!.
+double chebyshev_interpolation_bound(double c, int M) {
+  double r = 2.0;
+  for (int k = 1; k <= M; ++k) r *= 0.5 * c / k;
+  return r;
+}
+
 MomentumBlockPlan plan_momentum_blocks(const IrField& ir, const TimeGrid& g,
                                        const std::vector<double>& delay,
                                        const std::vector<double>& W,
@@ -98,32 +134,52 @@ MomentumBlockPlan plan_momentum_blocks(const IrField& ir, const TimeGrid& g,
   plan.i1_hi = hi;
   plan.i1_mid = 0.5 * (lo + hi);
   const double half_span = std::max(0.5 * (hi - lo), 1e-12);
-  const double max_dp = 2.0 * options.max_block_phase_rad / half_span;  // block width in p
-  const int M = options.chebyshev_nodes;
-  std::size_t j0 = 0;
-  while (j0 < W.size()) {
-    const double p_start = units::momentum_au(W[j0]);
-    std::size_t j1 = j0 + 1;
-    while (j1 < W.size() && units::momentum_au(W[j1]) - p_start <= max_dp) ++j1;
-    MomentumBlock b;
-    b.first = j0;
-    b.last = j1;
-    const double pa = p_start, pb = units::momentum_au(W[j1 - 1]);
-    const double mid = 0.5 * (pa + pb), hw = std::max(0.5 * (pb - pa), 1e-9);
-    for (int m = 0; m < M; ++m) b.nodes.push_back(mid + hw * std::cos(units::kPi * (m + 0.5) / M));
-    b.lagrange.resize(static_cast<Eigen::Index>(j1 - j0), M);
-    for (std::size_t j = j0; j < j1; ++j) {
-      const double p = units::momentum_au(W[j]);
-      for (int m = 0; m < M; ++m) {
-        double L = 1.0;
-        for (int q = 0; q < M; ++q)
-          if (q != m) L *= (p - b.nodes[q]) / (b.nodes[m] - b.nodes[q]);
-        b.lagrange(static_cast<Eigen::Index>(j - j0), m) = L;
-      }
+  const int M0 = options.chebyshev_nodes;
+  const double theta0 = options.max_block_phase_rad;
+  if (!options.fewest_nodes) {
+    // Blocks of width 2 theta0 / half_span in p from the lowest energy, M0 nodes each.
+    const double max_dp = 2.0 * theta0 / half_span;
+    std::size_t j0 = 0;
+    while (j0 < W.size()) {
+      const double p_start = units::momentum_au(W[j0]);
+      std::size_t j1 = j0 + 1;
+      while (j1 < W.size() && units::momentum_au(W[j1]) - p_start <= max_dp) ++j1;
+      plan.blocks.push_back(make_block(W, j0, j1, M0));
+      j0 = j1;
     }
-    plan.blocks.push_back(std::move(b));
+    plan.block_phase_rad = theta0;
+    return plan;
+  }
+  // The fewest nodes in all: B equal blocks in p, each of phase excursion theta = total / B,
+  // with the fewest nodes M whose bound does not exceed that of (theta0, M0).
+  const double p_lo = units::momentum_au(W.front()), p_hi = units::momentum_au(W.back());
+  const double total = 0.5 * (p_hi - p_lo) * half_span;  // the phase excursion of one block
+  const double target = chebyshev_interpolation_bound(theta0, M0);
+  // theta <= theta0 (M <= M0 meets the bound) by b_max blocks; no more blocks than energies.
+  const int b_max =
+      static_cast<int>(std::min(std::ceil(total / theta0) + 1.0, static_cast<double>(W.size())));
+  int best_b = b_max, best_m = M0;
+  for (int B = 1; B <= b_max; ++B) {
+    const double theta = total / B;
+    int M = 2;
+    while (M < kMaxChebyshevNodes && chebyshev_interpolation_bound(theta, M) > target) ++M;
+    if (chebyshev_interpolation_bound(theta, M) > target) continue;
+    if (B * M < best_b * best_m) {
+      best_b = B;
+      best_m = M;
+    }
+  }
+  const double dp = (p_hi - p_lo) / best_b;
+  std::size_t j0 = 0;
+  for (int k = 0; k < best_b && j0 < W.size(); ++k) {
+    std::size_t j1 = j0;
+    const double edge = k + 1 == best_b ? 1e300 : p_lo + (k + 1) * dp;
+    while (j1 < W.size() && units::momentum_au(W[j1]) <= edge) ++j1;
+    if (j1 == j0) continue;  // no energy in this slice
+    plan.blocks.push_back(make_block(W, j0, j1, best_m));
     j0 = j1;
   }
+  plan.block_phase_rad = total / best_b;
   return plan;
 }
 
@@ -159,8 +215,9 @@ Eigen::MatrixXcd ForwardModel::amplitude(const XuvField& xuv_in, const IrField& 
     CVec psi(n), raw(n);
     std::vector<VolkovIntegrals> v(n);
     std::vector<CVec> node_raw;
-    if (options_.momentum == MomentumModel::kFull)
-      node_raw.assign(static_cast<std::size_t>(options_.chebyshev_nodes), CVec(n));
+    std::size_t most_nodes = 0;
+    for (const MomentumBlock& b : blocks) most_nodes = std::max(most_nodes, b.nodes.size());
+    node_raw.assign(most_nodes, CVec(n));
 #pragma omp for schedule(static)
     for (long i = 0; i < nd; ++i) {
       const double tau = delay[static_cast<std::size_t>(i)];

@@ -20,9 +20,11 @@
 //                   p0 + A(t).
 //   kFull:          the exact p dependence. For a block of energies with momenta in
 //                   [p_lo, p_hi], G_p(t) is interpolated in p on M Chebyshev nodes; each node
-//                   costs one FFT per delay. Blocks are sized so that the phase excursion
-//                   (p - p_mid) * (I1 - I1_mid) stays below max_block_phase_rad, which makes the
-//                   interpolation error ~ 2 (theta/2)^M / M! (1e-6 for the defaults).
+//                   costs one FFT per delay. The interpolation error of M nodes over a block
+//                   whose phase excursion (p - p_mid) * (I1 - I1_mid) stays below theta is at
+//                   most 2 (theta/2)^M / M!; chebyshev_nodes and max_block_phase_rad set that
+//                   bound (5.5e-7 for the defaults), and the plan takes the blocks and nodes
+//                   with the fewest nodes in all that meet it (ForwardModelOptions::fewest_nodes).
 //
 // Output: trace() returns the photoelectron energy density dP/dW = p |a|^2 (the factor p is the
 // d^3p -> dW Jacobian, DESIGN.md "Jacobians"); amplitude() returns a itself.
@@ -42,6 +44,13 @@
 namespace sw {
 
 enum class MomentumModel { kCentral, kFull };
+
+/// Most Chebyshev nodes per momentum block (ForwardModelOptions::chebyshev_nodes, and the
+/// fewest-nodes plan).
+inline constexpr int kMaxChebyshevNodes = 64;
+/// Error bound of interpolating exp(i theta x), x in [-1, 1], at `nodes` Chebyshev points:
+/// 2 (theta/2)^nodes / nodes! (the full model's accuracy per momentum block).
+double chebyshev_interpolation_bound(double phase_rad, int nodes);
 const char* to_string(MomentumModel m);
 
 struct ForwardModelOptions {
@@ -50,10 +59,18 @@ struct ForwardModelOptions {
   /// Central momentum p0 (a.u.) used by the CMA; must be > 0 when momentum == kCentral.
   /// Choose it at the photoelectron-spectrum centroid (DESIGN.md pitfall).
   double central_momentum_au = 0.0;
-  /// kFull: Chebyshev nodes per momentum block (>= 2).
+  /// kFull: Chebyshev nodes per momentum block (>= 2, <= kMaxChebyshevNodes).
   int chebyshev_nodes = 10;
   /// kFull: largest |(p - p_mid)(I1 - I1_mid)| within a block, radians (> 0).
   double max_block_phase_rad = 2.0;
+  /// kFull: true (default): the two settings above fix only the accuracy, the interpolation
+  /// error bound 2 (theta/2)^M / M! of M nodes over a block of phase excursion theta
+  /// (chebyshev_interpolation_bound; 5.5e-7 for the defaults); the plan then takes the number
+  /// of blocks and of nodes per block with the fewest nodes in all whose bound is no larger
+  /// (fewer, wider blocks with more nodes each: every node is one FFT per delay, and the bound
+  /// falls faster with M than it rises with theta). false: blocks of max_block_phase_rad with
+  /// chebyshev_nodes nodes each (the layout before 2026-12-05; for comparisons).
+  bool fewest_nodes = true;
   /// Multiply |a|^2 by p so that trace() is a density per unit energy (true) or per momentum
   /// magnitude squared (false).
   bool energy_jacobian = true;
@@ -102,13 +119,17 @@ struct MomentumBlock {
 /// XUV grid can sample, [t_0 + tau_first, t_last + tau_last] (the range the blocks were sized
 /// for); i1_mid = (i1_lo + i1_hi) / 2.
 struct MomentumBlockPlan {
+  /// The phase excursion bound the blocks were sized for (radians): every block has
+  /// |(p - p_mid)(I1 - I1_mid)| <= block_phase_rad for the IR it was planned on.
+  double block_phase_rad = 0.0;
   double i1_mid = 0.0;
   double i1_lo = 0.0;
   double i1_hi = 0.0;
   std::vector<MomentumBlock> blocks;
 };
 /// Blocks for energies energy_au (ascending), delays delay_au, the XUV grid and an IR field,
-/// sized by options.chebyshev_nodes and options.max_block_phase_rad (momentum model ignored).
+/// sized by options.chebyshev_nodes, options.max_block_phase_rad and options.fewest_nodes
+/// (momentum model ignored).
 MomentumBlockPlan plan_momentum_blocks(const IrField& ir, const TimeGrid& xuv_grid,
                                        const std::vector<double>& delay_au,
                                        const std::vector<double>& energy_au,
