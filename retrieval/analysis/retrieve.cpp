@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <chrono>
 #include <cmath>
+#include <functional>
 #include <mutex>
 #include <numeric>
 #include <sstream>
@@ -237,6 +238,11 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     so.initial_ir = base.ir;
     return run_on(problem, "full-model", so, stage);
   };
+  // Two independent runs of the estimate's chain side by side on the worker threads (each run
+  // single-threaded, so every number is the same for any thread count).
+  auto run_both = [&](const std::function<void()>& a, const std::function<void()>& b) {
+    parallel_for(2, resolve_threads(opt.threads), [&](int i) { i == 0 ? a() : b(); });
+  };
   double satellite_sign = 0.0;  // the sign of an adopted satellite start (0: none)
   std::string final_engine = opt.engine;
   bool full_model_from_cma = false;  // auto: the full model's result started from the CMA's
@@ -272,16 +278,19 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       EngineOptions fo = full_model_options(eo);
       fo.initial_xuv = first.xuv;
       fo.initial_ir = first.ir;
-      out.chain.push_back(run("full-model", fo));
+      if (!not_fitted) out.chain.push_back(run("full-model", fo));
       out.full_model_start = "the CMA result";
       full_model_from_cma = true;
       final_engine = "full-model";
       if (not_fitted) {
         // The CMA result may sit in a local minimum (multi-burst pulses): also start the full
-        // model from its own guess (parametric IR) and keep the better fit.
+        // model from its own guess (parametric IR) and keep the better fit. The two runs are
+        // independent: they share the worker threads.
+        out.chain.resize(out.chain.size() + 2);
         const EngineOptions co = full_model_options(eo);
-        out.chain.push_back(run("full-model", co));
         const std::size_t n = out.chain.size();
+        run_both([&] { out.chain[n - 2] = run("full-model", fo); },
+                 [&] { out.chain[n - 1] = run("full-model", co); });
         out.full_model_start = "its own guess (better G than from the CMA result)";
         full_model_from_cma = false;
         if (out.chain[n - 2].trace_error < out.chain[n - 1].trace_error) {
@@ -296,16 +305,26 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
           units::period_au(pr.ir_omega_au) < pr.grid.window() &&
           pulse_metrics(base, pr.ir_omega_au, band_lo, band_hi).satellite_intensity_ratio <
               opt.satellite_ratio.isolated_max) {
-        // Both signs; the runs go into the chain before the result (the chain ends with it).
+        // Both signs, run side by side; they go into the chain before the result (the chain
+        // ends with it), the sign - first.
         out.chain.pop_back();
+        const std::size_t s0 = out.chain.size();
+        out.chain.resize(s0 + 2);
+        run_both(
+            [&] {
+              out.chain[s0] = satellite_run(pr, base, -1.0, fo, "full-model (satellite start -)");
+            },
+            [&] {
+              out.chain[s0 + 1] =
+                  satellite_run(pr, base, 1.0, fo, "full-model (satellite start +)");
+            });
         std::size_t best = out.chain.size();
         double best_g = base.trace_error;
-        for (double sign : {-1.0, 1.0}) {
-          out.chain.push_back(satellite_run(pr, base, sign, fo, "full-model (satellite start)"));
-          if (out.chain.back().trace_error < best_g) {
-            best_g = out.chain.back().trace_error;
-            best = out.chain.size() - 1;
-            satellite_sign = sign;
+        for (std::size_t i : {s0, s0 + 1}) {
+          if (out.chain[i].trace_error < best_g) {
+            best_g = out.chain[i].trace_error;
+            best = i;
+            satellite_sign = i == s0 ? -1.0 : 1.0;
           }
         }
         out.chain.push_back(base);

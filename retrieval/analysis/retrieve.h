@@ -90,8 +90,10 @@ struct RetrieveOptions {
   /// Seed of the random delay order and the bootstrap draws.
   unsigned long long seed = 1;
   /// Worker threads of the analysis (>= 0; 0 = the machine's hardware threads): the bootstrap
-  /// replicas run concurrently, one per thread (retrieval/analysis/thread_pool.h); every engine
-  /// runs single-threaded, so the results are bit-identical for any value.
+  /// replicas run concurrently, one per thread (retrieval/analysis/thread_pool.h), and so do
+  /// the estimate's two independent full-model runs (the satellite starts of both signs; the
+  /// starts from the CMA result and from the full model's own guess); every engine runs
+  /// single-threaded, so the results are bit-identical for any value.
   int threads = 0;
   /// How the bootstrap replicas start (retrieval/analysis/uncertainty.h): kFull = the whole engine
   /// chain from scratch (default), kWarm = the final engine from the estimate.
@@ -197,8 +199,9 @@ struct RetrieveOptions {
       self.seed);
     v(OptionSpec{.name = "threads",
                  .help =
-                     "worker threads for the bootstrap replicas (0 = the machine's cores; batch: "
-                     "1 per job with --jobs > 1); results do not depend on it",
+                     "worker threads for the bootstrap replicas and the estimate's paired "
+                     "full-model starts (0 = the machine's cores; batch: 1 per job with --jobs > "
+                     "1); results do not depend on it",
                  .min = 0,
                  .flag = "--threads",
                  .config_key = "threads"},
