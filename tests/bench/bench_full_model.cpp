@@ -6,11 +6,16 @@
 //   BM_FullModelCostGradient/T  one FullModelObjective::evaluate with gradient, T threads
 //                               (wall time);
 //   BM_FullModelCost            the same without gradient;
+//   BM_FullModelFixedFftFloor, BM_FullModelFixedCostGradient   the floor and one evaluation
+//                               (1 thread) with the fixed block layout (node_plan = fixed),
+//                               against the default fewest-nodes plan above;
 //   BM_EpieFftFloor, BM_EpieIteration   two FFTs per delay and one ptychographic iteration
 //                               (one central momentum) on the same scan;
 //   BM_HeliumRetrieve/B/T       retrieve() of the helium-70as preset scan (121 x 330) with B
 //                               bootstrap replicas on T worker threads, wall time of one run
-//                               (slow: ~1-4 min each).
+//                               (slow: ~1-4 min each);
+//   BM_HeliumRetrieveFixed/8/2  BM_HeliumRetrieve/8/2 with the fixed block layout;
+//   BM_NarrowRetrieve/8/2       the same for the narrow-band neon-150as preset (ptychographic).
 // The problem is the helium-70as preset (seed 7) after preprocess(), as `retrieve` sees it.
 // tests/bench/run_bench.sh runs these with the numpy reference and prints the ratios.
 #include <benchmark/benchmark.h>
@@ -58,7 +63,7 @@ struct Objective {
   std::unique_ptr<FullModelObjective> f;
   std::vector<double> x;
 };
-Objective make_objective(int threads) {
+Objective make_objective(int threads, const std::string& node_plan = "fewest") {
   {
     const RetrievalProblem& P = helium_problem();
     const auto& cfg = synthetic::find_preset("helium-70as").config;
@@ -66,9 +71,10 @@ Objective make_objective(int threads) {
     const IrSampling smp = IrSampling::covering(P.delay_au.front() - P.grid.window() / 2,
                                                 P.delay_au.back() + P.grid.window() / 2, T / 64);
     Objective r;
-    r.f = std::make_unique<FullModelObjective>(P, FullModelSettings{}, MomentumModel::kFull,
-                                               std::make_unique<GaussianIrParametrization>(smp),
-                                               threads);
+    FullModelSettings fs;
+    fs.node_plan = node_plan;
+    r.f = std::make_unique<FullModelObjective>(
+        P, fs, MomentumModel::kFull, std::make_unique<GaussianIrParametrization>(smp), threads);
     std::vector<cdouble> spec(P.energy_au.size());
     for (std::size_t j = 0; j < spec.size(); ++j) {
       const double x = units::au_to_eV(P.energy_au[j]) - 105.0;
@@ -83,9 +89,14 @@ Objective& helium_objective(int threads = 1) {
   static Objective one = make_objective(1), two = make_objective(2);
   return threads == 1 ? one : two;
 }
+// The same with the fixed block layout (FullModelSettings::node_plan = fixed: blocks of 2 rad,
+// 10 nodes each), one thread.
+Objective& helium_objective_fixed() {
+  static Objective o = make_objective(1, "fixed");
+  return o;
+}
 
-void BM_FullModelFftFloor(benchmark::State& state) {
-  const Objective& o = helium_objective();
+void fft_floor_of(benchmark::State& state, const Objective& o) {
   const ForwardAdjoint& fa = o.f->forward();
   std::size_t nodes = 0;
   for (const MomentumBlock& b : fa.plan().blocks) nodes += b.nodes.size();
@@ -103,7 +114,12 @@ void BM_FullModelFftFloor(benchmark::State& state) {
   state.counters["nodes"] = static_cast<double>(nodes);
   state.counters["ffts"] = static_cast<double>(ffts);
 }
+void BM_FullModelFftFloor(benchmark::State& state) { fft_floor_of(state, helium_objective()); }
 BENCHMARK(BM_FullModelFftFloor)->Unit(benchmark::kMillisecond);
+void BM_FullModelFixedFftFloor(benchmark::State& state) {
+  fft_floor_of(state, helium_objective_fixed());
+}
+BENCHMARK(BM_FullModelFixedFftFloor)->Unit(benchmark::kMillisecond);
 
 // Arg: OpenMP threads over delays (wall time: the work of the second thread is not in the
 // CPU column).
@@ -114,6 +130,14 @@ void BM_FullModelCostGradient(benchmark::State& state) {
   state.counters["parameters"] = static_cast<double>(o.x.size());
 }
 BENCHMARK(BM_FullModelCostGradient)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
+
+// The fixed block layout, one thread (the fewest-nodes plan's gain, in one run).
+void BM_FullModelFixedCostGradient(benchmark::State& state) {
+  const Objective& o = helium_objective_fixed();
+  std::vector<double> g(o.x.size());
+  for (auto _ : state) benchmark::DoNotOptimize(o.f->evaluate(o.x.data(), g.data()));
+}
+BENCHMARK(BM_FullModelFixedCostGradient)->Unit(benchmark::kMillisecond);
 
 void BM_FullModelCost(benchmark::State& state) {
   const Objective& o = helium_objective();
@@ -151,9 +175,10 @@ double process_cpu_seconds() {
 // Threads: the second argument (RetrieveOptions::threads). Counter process_cpu_s: CPU seconds of
 // all threads (the L-BFGS runs on a worker thread, so the CPU column shows only the main thread);
 // on a shared machine it is the figure to compare, wall time depends on the load.
-void BM_HeliumRetrieve(benchmark::State& state) {
-  const Trace& t = helium_scan().trace;
+void retrieve_run(benchmark::State& state, const Trace& t,
+                  const std::string& node_plan = "fewest") {
   RetrieveOptions o;
+  o.engine_settings.full_model.node_plan = node_plan;
   o.bootstrap = static_cast<int>(state.range(0));
   o.threads = static_cast<int>(state.range(1));
   RetrieveOutput r;
@@ -174,10 +199,27 @@ void BM_HeliumRetrieve(benchmark::State& state) {
   for (const Reconstruction& c : r.chain) it += c.iterations;
   state.counters["iterations"] = static_cast<double>(it);
 }
+void BM_HeliumRetrieve(benchmark::State& state) { retrieve_run(state, helium_scan().trace); }
 BENCHMARK(BM_HeliumRetrieve)
     ->Args({0, 1})
     ->Args({8, 1})
     ->Args({8, 2})
     ->Apply(sw::bench::one_timed_run);
+
+// The same with the fixed block layout of the full model (node_plan = fixed), 8 replicas on 2
+// threads: the fewest-nodes plan's gain on the whole analysis, in one run.
+void BM_HeliumRetrieveFixed(benchmark::State& state) {
+  retrieve_run(state, helium_scan().trace, "fixed");
+}
+BENCHMARK(BM_HeliumRetrieveFixed)->Args({8, 2})->Apply(sw::bench::one_timed_run);
+
+// The narrow-band reference: the neon-150as preset (seed 7), which `auto` keeps with the
+// ptychographic engine; the default analysis (8 replicas, 2 threads).
+void BM_NarrowRetrieve(benchmark::State& state) {
+  static const synthetic::SyntheticScan s =
+      synthetic::generate_scan(synthetic::find_preset("neon-150as").config, 7);
+  retrieve_run(state, s.trace);
+}
+BENCHMARK(BM_NarrowRetrieve)->Args({8, 2})->Apply(sw::bench::one_timed_run);
 
 }  // namespace

@@ -30,6 +30,9 @@ fi
 rm -rf "$OUT/scan"
 "$BUILD/cli/streakwright" simulate --preset helium-70as --out "$OUT/scan" --seed 7 --format csv --quiet
 "$PY" "$(dirname "$0")/numpy_epie.py" "$OUT/scan/helium-70as.json" 150 | tee "$OUT/numpy.txt"
+# The narrow-band reference scan (neon-150as, seed 7) for BM_NarrowRetrieve.
+"$BUILD/cli/streakwright" simulate --preset neon-150as --out "$OUT/scan" --seed 7 --format csv --quiet
+"$PY" "$(dirname "$0")/numpy_epie.py" "$OUT/scan/neon-150as.json" 150 | tee "$OUT/numpy_narrow.txt"
 
 "$PY" - "$OUT" <<'EOF'
 import json, sys
@@ -55,6 +58,13 @@ if k1 in f:
           seconds(f[k1]), seconds(f["BM_FullModelFftFloor"]), "<= 1.5")
     print(f"  {'full model cost+gradient, speed-up 2 threads / 1 thread':58s} "
           f"{seconds(f[k1], 'real_time') / seconds(f[k2], 'real_time'):7.2f}")
+if "BM_FullModelFixedCostGradient" in f and k1 in f:
+    print(f"  {'full model cost+gradient: nodes, fewest-nodes plan / fixed':58s} "
+          f"{f['BM_FullModelFftFloor']['nodes']:.0f} / {f['BM_FullModelFixedFftFloor']['nodes']:.0f}")
+    ratio("full model cost+gradient, fewest-nodes plan / fixed (time)",
+          seconds(f[k1]), seconds(f["BM_FullModelFixedCostGradient"]), "< 1")
+    ratio("the same, fixed layout / its FFTs",
+          seconds(f["BM_FullModelFixedCostGradient"]), seconds(f["BM_FullModelFixedFftFloor"]), "<= 1.5")
 if "BM_EpieIteration" in f:
     ratio("ePIE iteration / 2 FFTs per delay (helium 121 x 330)",
           seconds(f["BM_EpieIteration"]), seconds(f["BM_EpieFftFloor"]), "<= 1.3")
@@ -70,6 +80,20 @@ for b, th in ((0, 1), (8, 1), (8, 2)):
               f"{th} thread(s)); / numpy ePIE 150 iterations ({numpy_cpu:.2f} s "
               f"CPU, {numpy_s:.2f} s wall) = {c / numpy_cpu:.1f} (CPU), {t / numpy_s:.1f} (wall)"
               + ("   target <= 3" if b == 8 else ""))
+k, kf = "BM_HeliumRetrieve/8/2/iterations:1/real_time", "BM_HeliumRetrieveFixed/8/2/iterations:1/real_time"
+if k in f and kf in f:
+    print(f"  {'helium-70as, 8 replicas: fewest-nodes plan / fixed (CPU)':58s} "
+          f"{f[k]['process_cpu_s'] / f[kf]['process_cpu_s']:7.2f}   (fixed: {f[kf]['process_cpu_s']:.1f} s CPU, "
+          f"FWHM {f[kf]['fwhm_as']:.2f} +- {f[kf]['fwhm_sigma_as']:.2f} as)")
+k = "BM_NarrowRetrieve/8/2/iterations:1/real_time"
+if k in f:
+    nt = open(f"{out}/numpy_narrow.txt").read()
+    n_cpu = float(nt.split("cpu_seconds")[-1].split()[0])
+    n_s = float(nt.split("\nseconds")[-1].split()[0])
+    t, c = seconds(f[k], "real_time"), f[k]["process_cpu_s"]
+    print(f"  neon-150as retrieve, bootstrap 8: {c:.1f} s CPU ({t:.1f} s wall, 2 threads); / numpy "
+          f"ePIE 150 iterations ({n_cpu:.2f} s CPU, {n_s:.2f} s wall) = {c / n_cpu:.1f} (CPU), "
+          f"{t / n_s:.1f} (wall)   target <= 1")
 k1, k2 = "BM_HeliumRetrieve/8/1/iterations:1/real_time", "BM_HeliumRetrieve/8/2/iterations:1/real_time"
 if k1 in f and k2 in f:
     print(f"  {'helium-70as, 8 replicas: speed-up 2 threads / 1 (wall)':58s} "
