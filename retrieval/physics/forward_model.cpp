@@ -136,7 +136,9 @@ MomentumBlockPlan plan_momentum_blocks(const IrField& ir, const TimeGrid& g,
   const double half_span = std::max(0.5 * (hi - lo), 1e-12);
   const int M0 = options.chebyshev_nodes;
   const double theta0 = options.max_block_phase_rad;
-  if (!options.fewest_nodes) {
+  const double p_lo = units::momentum_au(W.front()), p_hi = units::momentum_au(W.back());
+  const double total = 0.5 * (p_hi - p_lo) * half_span;  // the phase excursion of one block
+  if (!options.fewest_nodes || !std::isfinite(total)) {  // (a non-finite IR: the fixed layout)
     // Blocks of width 2 theta0 / half_span in p from the lowest energy, M0 nodes each.
     const double max_dp = 2.0 * theta0 / half_span;
     std::size_t j0 = 0;
@@ -152,8 +154,6 @@ MomentumBlockPlan plan_momentum_blocks(const IrField& ir, const TimeGrid& g,
   }
   // The fewest nodes in all: B equal blocks in p, each of phase excursion theta = total / B,
   // with the fewest nodes M whose bound does not exceed that of (theta0, M0).
-  const double p_lo = units::momentum_au(W.front()), p_hi = units::momentum_au(W.back());
-  const double total = 0.5 * (p_hi - p_lo) * half_span;  // the phase excursion of one block
   const double target = chebyshev_interpolation_bound(theta0, M0);
   // theta <= theta0 (M <= M0 meets the bound) by b_max blocks; no more blocks than energies.
   const int b_max =
