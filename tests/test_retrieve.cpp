@@ -216,6 +216,15 @@ TEST_CASE("few counts per bin: auto refines the CMA result with the full model a
   CHECK(out.result.engine == "full-model");
   CHECK(out.full_model_reason.find("few counts per bin") != std::string::npos);
   CHECK(param_string(out.result.extra, "fit.full_model_reason") == out.full_model_reason);
+  // What the full model modelled: its momentum blocks and nodes (the fewest-nodes plan, at least
+  // two nodes per block) and the evaluations of its final run.
+  const auto blocks = param_number(out.result.extra, "fit.full_model.momentum_blocks");
+  const auto nodes = param_number(out.result.extra, "fit.full_model.momentum_nodes");
+  REQUIRE((blocks && nodes));
+  CHECK(*blocks >= 1);
+  CHECK(*nodes >= 2 * *blocks);
+  CHECK(param_number(out.result.extra, "fit.full_model.cost_evaluations").value_or(0) > 0);
+  CHECK(param_string(out.result.extra, "fit.full_model.node_plan").rfind("fewest", 0) == 0);
   // The rule alone decides here (no other rule of auto fires on this scan).
   CHECK(out.full_model_reason == "few counts per bin");
   // Issue 10's tolerance at 20-50 peak counts: FWHM within 10 %.

@@ -645,6 +645,14 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         P("fit.cma." + key, value);
     break;
   }
+  // What the headline's full-model run modelled and what it cost (docs/theory.md "Full model").
+  if (out.reconstruction.model == "full")
+    for (const auto& [key, value] : out.reconstruction.settings) {
+      if (key == "momentum_blocks" || key == "momentum_nodes" || key == "cost_evaluations")
+        P("fit.full_model." + key, std::stoll(value));
+      else if (key == "node_plan")
+        P("fit.full_model." + key, value);
+    }
   append_settings_echo(opt, &res.extra);  // settings.* from RetrieveOptions::describe
 
   // Energy support (recorded once, whoever writes the preprocess block).

@@ -425,6 +425,13 @@ Reconstruction LeastSquaresEngine::finalize() {
     S.emplace_back("ir_center_fs", num(p.center_fs));
   }
   S.emplace_back("momentum_blocks", std::to_string(f.forward().plan().blocks.size()));
+  std::size_t nodes = 0;
+  for (const MomentumBlock& b : f.forward().plan().blocks) nodes += b.nodes.size();
+  S.emplace_back("momentum_nodes", std::to_string(nodes));
+  S.emplace_back("node_plan", settings_.node_plan + " (interpolation bound " +
+                                  num(chebyshev_interpolation_bound(settings_.block_phase_rad,
+                                                                    settings_.chebyshev_nodes)) +
+                                  ")");
   S.emplace_back("lbfgs_runs", std::to_string(runs_));
   S.emplace_back("lbfgs_iterations", std::to_string(lbfgs_iterations_));
   S.emplace_back("cost_evaluations", std::to_string(f.evaluations()));
