@@ -278,11 +278,12 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       EngineOptions fo = full_model_options(eo);
       fo.initial_xuv = first.xuv;
       fo.initial_ir = first.ir;
-      if (!not_fitted) out.chain.push_back(run("full-model", fo));
       out.full_model_start = "the CMA result";
       full_model_from_cma = true;
       final_engine = "full-model";
-      if (not_fitted) {
+      if (!not_fitted) {
+        out.chain.push_back(run("full-model", fo));
+      } else {
         // The CMA result may sit in a local minimum (multi-burst pulses): also start the full
         // model from its own guess (parametric IR) and keep the better fit. The two runs are
         // independent: they share the worker threads.

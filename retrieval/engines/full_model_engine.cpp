@@ -21,6 +21,7 @@ namespace {
 using full_model_detail::check_problem;
 using full_model_detail::LbfgsRunner;
 using full_model_detail::num;
+using full_model_detail::plan_options;
 using full_model_detail::reference_spectrum;
 
 }  // namespace
@@ -376,12 +377,9 @@ Reconstruction LeastSquaresEngine::finalize() {
   r.reference = reference();
   r.xuv = XuvField(problem_.grid, f.carrier_au(), std::move(eps));
   r.ir = f.ir_field(best_x_.data());
-  ForwardModelOptions fo;
+  ForwardModelOptions fo = plan_options(settings_);
   fo.momentum = model_;
   fo.central_momentum_au = problem_.central_momentum_au;
-  fo.chebyshev_nodes = settings_.chebyshev_nodes;
-  fo.max_block_phase_rad = settings_.block_phase_rad;
-  fo.fewest_nodes = settings_.node_plan != "fixed";
   fo.energy_jacobian = false;
   fo.threads = options_.threads;
   if (f.num_lines() > 0) {

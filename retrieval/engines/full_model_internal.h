@@ -6,7 +6,9 @@
 #include <vector>
 
 #include "retrieval/core/format.h"
+#include "retrieval/engines/full_model_settings.h"
 #include "retrieval/engines/problem.h"
+#include "retrieval/physics/forward_model.h"
 
 namespace sw::full_model_detail {
 
@@ -18,5 +20,16 @@ std::vector<double> reference_spectrum(const RetrievalProblem& P);
 // Throws sw::Error(kInput) naming `who` and the field when the problem's sizes or values do
 // not make a full-model problem.
 void check_problem(const RetrievalProblem& P, const std::string& who);
+
+// Forward-model options of the full model (kFull) with the momentum-block plan of the settings
+// (chebyshev_nodes, block_phase_rad, node_plan); the callers set the rest.
+inline ForwardModelOptions plan_options(const FullModelSettings& s) {
+  ForwardModelOptions o;
+  o.momentum = MomentumModel::kFull;
+  o.chebyshev_nodes = s.chebyshev_nodes;
+  o.max_block_phase_rad = s.block_phase_rad;
+  o.fewest_nodes = s.node_plan != "fixed";
+  return o;
+}
 
 }  // namespace sw::full_model_detail

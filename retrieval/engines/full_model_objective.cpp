@@ -68,6 +68,7 @@ void check_problem(const RetrievalProblem& P, const std::string& who) {
 namespace {
 using full_model_detail::check_problem;
 using full_model_detail::num;
+using full_model_detail::plan_options;
 using full_model_detail::reference_spectrum;
 }  // namespace
 
@@ -483,11 +484,7 @@ Eigen::MatrixXd FullModelObjective::model(const double* x, double* mu) const {
 
 void FullModelObjective::replan(const double* x) {
   if (model_ == MomentumModel::kCentral) return;
-  ForwardModelOptions o;
-  o.momentum = MomentumModel::kFull;
-  o.chebyshev_nodes = settings_.chebyshev_nodes;
-  o.max_block_phase_rad = settings_.block_phase_rad;
-  o.fewest_nodes = settings_.node_plan != "fixed";
+  const ForwardModelOptions o = plan_options(settings_);
   const IrField irf = ir_field(x);
   fa_.plan_full(irf, o);
   for (LineTerm& t : lines_) t.fa->plan_full(irf, o);

@@ -159,7 +159,7 @@ MomentumBlockPlan plan_momentum_blocks(const IrField& ir, const TimeGrid& g,
   const int b_max =
       static_cast<int>(std::min(std::ceil(total / theta0) + 1.0, static_cast<double>(W.size())));
   int best_b = b_max, best_m = M0;
-  for (int B = 1; B <= b_max; ++B) {
+  for (int B = 1; B <= b_max && 2 * B < best_b * best_m; ++B) {  // M >= 2: B x 2 nodes at least
     const double theta = total / B;
     int M = 2;
     while (M < kMaxChebyshevNodes && chebyshev_interpolation_bound(theta, M) > target) ++M;

@@ -123,19 +123,19 @@ BENCHMARK(BM_FullModelFixedFftFloor)->Unit(benchmark::kMillisecond);
 
 // Arg: OpenMP threads over delays (wall time: the work of the second thread is not in the
 // CPU column).
-void BM_FullModelCostGradient(benchmark::State& state) {
-  const Objective& o = helium_objective(static_cast<int>(state.range(0)));
+void cost_gradient_of(benchmark::State& state, const Objective& o) {
   std::vector<double> g(o.x.size());
   for (auto _ : state) benchmark::DoNotOptimize(o.f->evaluate(o.x.data(), g.data()));
   state.counters["parameters"] = static_cast<double>(o.x.size());
+}
+void BM_FullModelCostGradient(benchmark::State& state) {
+  cost_gradient_of(state, helium_objective(static_cast<int>(state.range(0))));
 }
 BENCHMARK(BM_FullModelCostGradient)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
 
 // The fixed block layout, one thread (the fewest-nodes plan's gain, in one run).
 void BM_FullModelFixedCostGradient(benchmark::State& state) {
-  const Objective& o = helium_objective_fixed();
-  std::vector<double> g(o.x.size());
-  for (auto _ : state) benchmark::DoNotOptimize(o.f->evaluate(o.x.data(), g.data()));
+  cost_gradient_of(state, helium_objective_fixed());
 }
 BENCHMARK(BM_FullModelFixedCostGradient)->Unit(benchmark::kMillisecond);
 

@@ -46,9 +46,11 @@ def seconds(b, key="cpu_time"):
     scale = {"ns": 1e-9, "us": 1e-6, "ms": 1e-3, "s": 1.0}[b["time_unit"]]
     return b[key] * scale
 e, f = load("engines"), load("full_model")
-numpy_txt = open(f"{out}/numpy.txt").read()
-numpy_cpu = float(numpy_txt.split("cpu_seconds")[-1].split()[0])
-numpy_s = float(numpy_txt.split("\nseconds")[-1].split()[0])
+def numpy_times(name):  # CPU and wall seconds printed by numpy_epie.py
+    txt = open(f"{out}/{name}").read()
+    return (float(txt.split("cpu_seconds")[-1].split()[0]),
+            float(txt.split("\nseconds")[-1].split()[0]))
+numpy_cpu, numpy_s = numpy_times("numpy.txt")
 print("\nratios (this run)")
 def ratio(label, a, b, target):
     print(f"  {label:58s} {a / b:7.2f}   target {target}")
@@ -87,9 +89,7 @@ if k in f and kf in f:
           f"FWHM {f[kf]['fwhm_as']:.2f} +- {f[kf]['fwhm_sigma_as']:.2f} as)")
 k = "BM_NarrowRetrieve/8/2/iterations:1/real_time"
 if k in f:
-    nt = open(f"{out}/numpy_narrow.txt").read()
-    n_cpu = float(nt.split("cpu_seconds")[-1].split()[0])
-    n_s = float(nt.split("\nseconds")[-1].split()[0])
+    n_cpu, n_s = numpy_times("numpy_narrow.txt")
     t, c = seconds(f[k], "real_time"), f[k]["process_cpu_s"]
     print(f"  neon-150as retrieve, bootstrap 8: {c:.1f} s CPU ({t:.1f} s wall, 2 threads); / numpy "
           f"ePIE 150 iterations ({n_cpu:.2f} s CPU, {n_s:.2f} s wall) = {c / n_cpu:.1f} (CPU), "
