@@ -19,7 +19,9 @@ namespace sw {
 namespace {
 
 using full_model_detail::check_problem;
+using full_model_detail::FullModelStart;
 using full_model_detail::LbfgsRunner;
+using full_model_detail::make_full_model_start;
 using full_model_detail::num;
 using full_model_detail::plan_options;
 using full_model_detail::reference_spectrum;
@@ -55,6 +57,110 @@ void centroid_curve(const RetrievalProblem& P, std::vector<double>* A) {
     (*A)[i] = dd > 0 ? pref - nn / dd : 0.0;
   }
 }
+
+}  // namespace
+
+namespace full_model_detail {
+
+FullModelStart make_full_model_start(const RetrievalProblem& P, const EngineOptions& options,
+                                     const FullModelSettings& settings, MomentumModel model) {
+  FullModelStart st;
+  const double ip = P.ionization_energy_au;
+  const double omega = P.ir_omega_au > 0 ? P.ir_omega_au : units::wavelength_nm_to_omega_au(800.0);
+  const double T = units::period_au(omega);
+  const double carrier = FullModelObjective::carrier_for(P);
+  const std::size_t n = P.grid.size(), ne = P.energy_au.size();
+
+  // Initial XUV spectrum at the energy bins.
+  std::vector<cdouble> spec(ne, 0.0);
+  if (options.initial_xuv) {
+    std::vector<double> omegas(P.energy_au.size());  // photon energies W_j + Ip
+    for (std::size_t j = 0; j < omegas.size(); ++j) omegas[j] = P.energy_au[j] + ip;
+    const CVec s = options.initial_xuv->spectrum_at(omegas);
+    spec.assign(s.begin(), s.end());
+  } else {
+    const std::vector<double> ref = reference_spectrum(P);
+    for (std::size_t j = 0; j < ne; ++j) {
+      const double d = std::abs(P.dipole(units::momentum_au(P.energy_au[j])));
+      spec[j] = d > 0 ? std::sqrt(std::max(ref[j], 0.0)) / d : 0.0;
+    }
+  }
+  // Time support of that XUV (|eps|^2 above 1e-6 of its peak), widened by T/4.
+  double s_lo = P.grid.time(0), s_hi = P.grid.time(n - 1);
+  {
+    const EnergyBinMap map = map_energy_bins(P.grid, carrier, ip, P.energy_au);
+    CVec S(n, 0.0), eps(n);
+    for (std::size_t j = 0; j < ne; ++j) S[fft_index(map.bin[j], n)] = spec[j];
+    to_time(P.grid, Fft(n), S, eps);
+    double peak = 0;
+    for (const cdouble& e : eps) peak = std::max(peak, std::norm(e));
+    std::size_t first = n, last = 0;
+    for (std::size_t s = 0; s < n; ++s)
+      if (std::norm(eps[s]) >= 1e-6 * peak) {
+        first = std::min(first, s);
+        last = s;
+      }
+    if (first < n) {
+      s_lo = std::max(P.grid.time(0), P.grid.time(first) - T / 4);
+      s_hi = std::min(P.grid.time(n - 1), P.grid.time(last) + T / 4);
+    }
+  }
+  const IrSampling sampling = IrSampling::covering(
+      P.delay_au.front() + s_lo, P.delay_au.back() + s_hi, T / settings.ir_samples_per_period);
+
+  // IR form and initial parameters.
+  st.ir_form = settings.ir == "auto" ? (options.initial_ir ? "spline" : "parametric") : settings.ir;
+  std::vector<double> gauss;  // parametric guess when needed
+  if (!options.initial_ir) {
+    std::vector<double> A;
+    centroid_curve(P, &A);
+    double amax = 0;
+    for (double a : A) amax = std::max(amax, std::abs(a));
+    if (amax > 0) {
+      gauss = GaussianIrParametrization::fit_samples(P.delay_au, A,
+                                                     std::vector<double>(A.size(), 1.0), omega);
+      st.ir_guess = "centroid curve";
+    } else {
+      gauss = {1e-3, omega, 2 * T, 0.0, 0.0, 0.5 * (P.delay_au.front() + P.delay_au.back())};
+      st.ir_guess = "weak default (no centroid sweep)";
+    }
+  } else {
+    st.ir_guess = "initial_ir";
+  }
+  std::unique_ptr<IrParametrization> param;
+  std::vector<double> theta;
+  if (st.ir_form == "parametric") {
+    auto g = std::make_unique<GaussianIrParametrization>(sampling);
+    theta = options.initial_ir ? g->fit(*options.initial_ir) : gauss;
+    param = std::move(g);
+  } else {
+    auto sp = std::make_unique<SplineIrParametrization>(sampling, T / settings.knots_per_period);
+    if (options.initial_ir) {
+      theta = sp->fit(*options.initial_ir);
+    } else {
+      std::vector<double> A(sampling.size);
+      for (std::size_t i = 0; i < A.size(); ++i)
+        A[i] = GaussianIrParametrization::value(gauss.data(), sampling.time(i));
+      theta = sp->fit_samples(A);
+    }
+    double amax = 0;
+    for (double c : theta) amax = std::max(amax, std::abs(c));
+    sp->set_amplitude_scale(std::max(amax, 1e-2));
+    param = std::move(sp);
+  }
+  st.objective =
+      std::make_unique<FullModelObjective>(P, settings, model, std::move(param), options.threads);
+  // A warm-start IR from a CMA engine carries an arbitrary low-frequency offset (the gate side of
+  // the frequency-shift ambiguity); start the free form without it.
+  if (st.ir_form == "spline" && settings.ir_lowpass_weight > 0)
+    theta = st.objective->without_low_frequencies(theta);
+  st.x = st.objective->encode(spec, theta);
+  return st;
+}
+
+}  // namespace full_model_detail
+
+namespace {
 
 // --- the engine -------------------------------------------------------------------------------
 
@@ -122,96 +228,11 @@ void LeastSquaresEngine::prepare(const RetrievalProblem& P, const EngineOptions&
   runs_ = replans_ = 0;
   last_termination_.clear();
 
-  const double ip = P.ionization_energy_au;
-  const double omega = P.ir_omega_au > 0 ? P.ir_omega_au : units::wavelength_nm_to_omega_au(800.0);
-  const double T = units::period_au(omega);
-  const double carrier = FullModelObjective::carrier_for(P);
-  const std::size_t n = P.grid.size(), ne = P.energy_au.size();
-
-  // Initial XUV spectrum at the energy bins.
-  std::vector<cdouble> spec(ne, 0.0);
-  if (options.initial_xuv) {
-    std::vector<double> omegas(P.energy_au.size());  // photon energies W_j + Ip
-    for (std::size_t j = 0; j < omegas.size(); ++j) omegas[j] = P.energy_au[j] + ip;
-    const CVec s = options.initial_xuv->spectrum_at(omegas);
-    spec.assign(s.begin(), s.end());
-  } else {
-    const std::vector<double> ref = reference_spectrum(P);
-    for (std::size_t j = 0; j < ne; ++j) {
-      const double d = std::abs(P.dipole(units::momentum_au(P.energy_au[j])));
-      spec[j] = d > 0 ? std::sqrt(std::max(ref[j], 0.0)) / d : 0.0;
-    }
-  }
-  // Time support of that XUV (|eps|^2 above 1e-6 of its peak), widened by T/4.
-  double s_lo = P.grid.time(0), s_hi = P.grid.time(n - 1);
-  {
-    const EnergyBinMap map = map_energy_bins(P.grid, carrier, ip, P.energy_au);
-    CVec S(n, 0.0), eps(n);
-    for (std::size_t j = 0; j < ne; ++j) S[fft_index(map.bin[j], n)] = spec[j];
-    to_time(P.grid, Fft(n), S, eps);
-    double peak = 0;
-    for (const cdouble& e : eps) peak = std::max(peak, std::norm(e));
-    std::size_t first = n, last = 0;
-    for (std::size_t s = 0; s < n; ++s)
-      if (std::norm(eps[s]) >= 1e-6 * peak) {
-        first = std::min(first, s);
-        last = s;
-      }
-    if (first < n) {
-      s_lo = std::max(P.grid.time(0), P.grid.time(first) - T / 4);
-      s_hi = std::min(P.grid.time(n - 1), P.grid.time(last) + T / 4);
-    }
-  }
-  const IrSampling sampling = IrSampling::covering(
-      P.delay_au.front() + s_lo, P.delay_au.back() + s_hi, T / settings_.ir_samples_per_period);
-
-  // IR form and initial parameters.
-  ir_form_ = settings_.ir == "auto" ? (options.initial_ir ? "spline" : "parametric") : settings_.ir;
-  std::vector<double> gauss;  // parametric guess when needed
-  if (!options.initial_ir) {
-    std::vector<double> A;
-    centroid_curve(P, &A);
-    double amax = 0;
-    for (double a : A) amax = std::max(amax, std::abs(a));
-    if (amax > 0) {
-      gauss = GaussianIrParametrization::fit_samples(P.delay_au, A,
-                                                     std::vector<double>(A.size(), 1.0), omega);
-      ir_guess_ = "centroid curve";
-    } else {
-      gauss = {1e-3, omega, 2 * T, 0.0, 0.0, 0.5 * (P.delay_au.front() + P.delay_au.back())};
-      ir_guess_ = "weak default (no centroid sweep)";
-    }
-  } else {
-    ir_guess_ = "initial_ir";
-  }
-  std::unique_ptr<IrParametrization> param;
-  std::vector<double> theta;
-  if (ir_form_ == "parametric") {
-    auto g = std::make_unique<GaussianIrParametrization>(sampling);
-    theta = options.initial_ir ? g->fit(*options.initial_ir) : gauss;
-    param = std::move(g);
-  } else {
-    auto sp = std::make_unique<SplineIrParametrization>(sampling, T / settings_.knots_per_period);
-    if (options.initial_ir) {
-      theta = sp->fit(*options.initial_ir);
-    } else {
-      std::vector<double> A(sampling.size);
-      for (std::size_t i = 0; i < A.size(); ++i)
-        A[i] = GaussianIrParametrization::value(gauss.data(), sampling.time(i));
-      theta = sp->fit_samples(A);
-    }
-    double amax = 0;
-    for (double c : theta) amax = std::max(amax, std::abs(c));
-    sp->set_amplitude_scale(std::max(amax, 1e-2));
-    param = std::move(sp);
-  }
-  objective_ =
-      std::make_unique<FullModelObjective>(P, settings_, model_, std::move(param), options.threads);
-  // A warm-start IR from a CMA engine carries an arbitrary low-frequency offset (the gate side of
-  // the frequency-shift ambiguity); start the free form without it.
-  if (ir_form_ == "spline" && settings_.ir_lowpass_weight > 0)
-    theta = objective_->without_low_frequencies(theta);
-  x_ = objective_->encode(spec, theta);
+  FullModelStart st = make_full_model_start(P, options, settings_, model_);
+  objective_ = std::move(st.objective);
+  x_ = std::move(st.x);
+  ir_form_ = std::move(st.ir_form);
+  ir_guess_ = std::move(st.ir_guess);
   best_x_ = x_;
   initial_G_ = best_G_ = last_G_ = current_G(x_);
   initial_cost_ = objective_->evaluate(x_.data(), nullptr);

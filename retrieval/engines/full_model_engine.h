@@ -147,6 +147,12 @@ class FullModelObjective {
   /// |a|^2 (the model, no scale; blurred by the problem's energy resolution) and the
   /// weighted optimal scale mu at x.
   Eigen::MatrixXd model(const double* x, double* mu) const;
+  /// The least-squares weights w_ij (delays x energies; see the cost above).
+  const Eigen::MatrixXd& weights() const { return weight_; }
+  /// Replaces the measured counts (delays x energies, the problem's shape) and keeps everything
+  /// that was derived from the problem: weights, parameter scales, support, lines. The same cost
+  /// on other counts (linearised replicas, retrieval/engines/full_model_laplace.h).
+  void set_measured(const Eigen::MatrixXd& counts);
   /// Blurs model counts (delays x energies) by the problem's energy resolution, in place.
   void apply_resolution(Eigen::MatrixXd& counts) const { fa_.blur_counts(counts); }
 

@@ -2,10 +2,13 @@
 // Internals shared by the full-model files (full_model_objective.cpp, full_model_lines.cpp,
 // full_model_engine.cpp); not part of the engine's interface (full_model_engine.h).
 
+#include <memory>
 #include <string>
 #include <vector>
 
 #include "retrieval/core/format.h"
+#include "retrieval/engines/engine_options.h"
+#include "retrieval/engines/full_model_engine.h"
 #include "retrieval/engines/full_model_settings.h"
 #include "retrieval/engines/problem.h"
 #include "retrieval/physics/forward_model.h"
@@ -31,5 +34,19 @@ inline ForwardModelOptions plan_options(const FullModelSettings& s) {
   o.fewest_nodes = s.node_plan != "fixed";
   return o;
 }
+
+// The objective and the parameters a full-model run starts from (LeastSquaresEngine::prepare):
+// the XUV from options.initial_xuv (its spectrum at the energy bins) or sqrt(spectrum)/|d| with a
+// flat phase; the IR form of settings.ir (auto: spline from options.initial_ir, else the
+// parametric pulse fitted to the centroid curve), on a sampling that covers the delays +- the
+// XUV's time support + T/4. Settings must be validated.
+struct FullModelStart {
+  std::unique_ptr<FullModelObjective> objective;
+  std::vector<double> x;  // the start, encoded (objective scales set, blocks planned)
+  std::string ir_form;    // "parametric" | "spline"
+  std::string ir_guess;   // where the IR came from
+};
+FullModelStart make_full_model_start(const RetrievalProblem& P, const EngineOptions& options,
+                                     const FullModelSettings& settings, MomentumModel model);
 
 }  // namespace sw::full_model_detail

@@ -250,6 +250,12 @@ FullModelObjective::FullModelObjective(const RetrievalProblem& P, const FullMode
   }
 }
 
+void FullModelObjective::set_measured(const Eigen::MatrixXd& counts) {
+  if (counts.rows() != measured_.rows() || counts.cols() != measured_.cols())
+    throw std::invalid_argument("FullModelObjective::set_measured: wrong shape");
+  measured_ = counts;
+}
+
 std::vector<double> FullModelObjective::encode(const std::vector<cdouble>& spec,
                                                const std::vector<double>& theta) {
   if (spec.size() != ne_ || theta.size() != ir_->num_params())
