@@ -1,6 +1,7 @@
 #include "retrieval/analysis/retrieve.h"
 
 #include <algorithm>
+#include <atomic>
 #include <chrono>
 #include <cmath>
 #include <functional>
@@ -15,6 +16,7 @@
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
 #include "retrieval/core/units.h"
+#include "retrieval/engines/full_model_laplace.h"
 #include "retrieval/physics/pulse_metrics.h"
 #include "retrieval/physics/satellite_seed.h"
 
@@ -164,6 +166,70 @@ double stddev(const std::vector<double>& v) {
   double s = 0;
   for (double x : v) s += (x - m) * (x - m);
   return std::sqrt(s / static_cast<double>(v.size() - 1));
+}
+
+// The four numbers a replica contributes: FWHM (as), GDD (as^2), peak A (a.u.), satellite ratio.
+std::array<double, 4> replica_metrics(const PulseMetrics& bm) {
+  return {*bm.xuv.fwhm_as, *bm.xuv.gdd_as2, bm.ir.peak_vector_potential_au.value_or(0.0),
+          bm.satellite_intensity_ratio};
+}
+
+// Linearised replicas of a full-model estimate (retrieval/engines/full_model_laplace.h) on the
+// worker threads, `done` after each. A replica's numbers are the estimate's plus the move of the
+// linearised replica from the linearisation point (so that the re-encoding does not read as a
+// bias), centred on the estimate: the replicas have zero mean to first order, and their mean
+// move (second order, and with a few replicas mostly noise) is no estimate of the retrieval's
+// bias, so bootstrap_estimate's bias rule must not act on it.
+struct LaplaceSamples {
+  std::vector<std::array<double, 4>> samples;
+  std::string failure;  // empty: every replica made
+  int cg_iterations_max = 0;
+};
+LaplaceSamples laplace_samples(const RetrievalProblem& pr, const EngineOptions& eo,
+                               const Reconstruction& rec, const PulseMetrics& m, double lo,
+                               double hi, const RetrieveOptions& opt,
+                               const std::function<void()>& done) {
+  LaplaceSamples out;
+  LaplaceOptions lopt;
+  lopt.seed = opt.seed;
+  const LaplaceReplicas lap(pr, eo, rec, lopt);
+  out.failure = lap.failure();
+  if (!lap.ok()) return out;
+  const std::size_t B = static_cast<std::size_t>(opt.bootstrap);
+  const std::array<double, 4> m0 = replica_metrics(m);
+  const std::array<double, 4> mc =
+      replica_metrics(pulse_metrics(lap.centre(), pr.ir_omega_au, lo, hi));
+  std::vector<LaplaceReplica> reps(B);
+  out.samples.assign(B, m0);
+  // After a failure the full bootstrap will run: the replicas not yet started are skipped (they
+  // are taken in index order, so the first failure by index is the same for any thread count).
+  std::atomic<bool> failed{false};
+  parallel_for(opt.bootstrap, resolve_threads(opt.threads), [&](int b) {
+    LaplaceReplica& rb = reps[static_cast<std::size_t>(b)];
+    if (failed) {
+      rb.failure = "skipped";
+      return;
+    }
+    rb = lap.replica(b);
+    if (!rb.ok) failed = true;
+    if (rb.ok) {
+      const std::array<double, 4> mb =
+          replica_metrics(pulse_metrics(rb.fields, pr.ir_omega_au, lo, hi));
+      for (std::size_t k = 0; k < 4; ++k)
+        out.samples[static_cast<std::size_t>(b)][k] = m0[k] + (mb[k] - mc[k]);
+    }
+    done();
+  });
+  for (const LaplaceReplica& rb : reps) {
+    if (!rb.ok && out.failure.empty()) out.failure = "replica: " + rb.failure;
+    out.cg_iterations_max = std::max(out.cg_iterations_max, rb.cg_iterations);
+  }
+  for (std::size_t k = 0; k < 4; ++k) {
+    double mean = 0.0;
+    for (const auto& x : out.samples) mean += (x[k] - m0[k]) / static_cast<double>(B);
+    for (auto& x : out.samples) x[k] -= mean;
+  }
+  return out;
 }
 
 }  // namespace
@@ -419,55 +485,85 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // numbers into its own slot (the same results for any thread count).
   const bool warm = opt.uncertainty == UncertaintyMethod::kWarm;
   std::vector<std::array<double, 4>> samples(static_cast<std::size_t>(opt.bootstrap));
-  parallel_for(opt.bootstrap, resolve_threads(opt.threads), [&](int b) {
-    const Trace rep =
-        poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
-    PreprocessSummary ps;
-    RetrievalProblem rp = preprocess(rep, same_bins, &ps);
-    EngineOptions bo = beo;
-    bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
-    const std::string stage =
-        "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
-    Reconstruction br;
-    if (warm && !lines_step.used) {
-      // retrieval/analysis/uncertainty.h: the final engine from the estimate, until it stops
-      // moving.
-      EngineOptions wo = single_engine == "full-model" ? full_model_options(bo) : bo;
-      wo.initial_xuv = rec.xuv;
-      wo.initial_ir = rec.ir;
-      wo.noise_floor_factor = 0.0;
-      wo.relative_tolerance = std::max(wo.relative_tolerance, wo.noise_floor_relative_tolerance);
-      wo.patience = opt.warm_patience;
-      br = run_on(rp, single_engine, wo, stage);
-    } else if (single_engine == "full-model") {
-      // The same chain as the estimate: from the replica's own CMA result, or from the full
-      // model's own guess when that is where the estimate came from.
-      EngineOptions fo = full_model_options(bo);
-      if (full_model_from_cma) {
-        const Reconstruction c = run_on(rp, "ptychographic", bo, stage);
-        fo.initial_xuv = c.xuv;
-        fo.initial_ir = c.ir;
-      }
-      br = run_on(rp, "full-model", fo, stage);
-      if (satellite_sign != 0) {
-        Reconstruction sr = satellite_run(rp, br, satellite_sign, fo, stage);
-        if (sr.trace_error < br.trace_error) br = std::move(sr);
-      }
+  // uncertainty = laplace (retrieval/engines/full_model_laplace.h), where it applies.
+  std::string uncertainty_used = to_string(opt.uncertainty);
+  bool replicas_done = false;
+  int laplace_cg_iterations = 0;  // the most Hessian-vector products of one replica
+  if (opt.uncertainty == UncertaintyMethod::kLaplace && opt.bootstrap > 0) {
+    std::string why_not;
+    if (single_engine != "full-model" || lines_step.used) {
+      why_not = lines_step.used ? "joint lines" : "the headline is not a full-model fit";
     } else {
-      br = run_on(rp, single_engine, bo, stage);
+      std::atomic<int> finished{0};
+      auto done = [&] {
+        if (!progress) return;
+        IterationRecord r;
+        r.iteration = ++finished;
+        r.trace_error = rec.trace_error;
+        const std::lock_guard<std::mutex> lock(progress_mutex);
+        progress("bootstrap (laplace) " + std::to_string(r.iteration) + "/" +
+                     std::to_string(opt.bootstrap),
+                 r);
+      };
+      LaplaceSamples ls =
+          laplace_samples(pr, full_model_options(beo), rec, m, band_lo, band_hi, opt, done);
+      why_not = ls.failure;
+      if (why_not.empty()) {
+        samples = std::move(ls.samples);
+        replicas_done = true;
+        laplace_cg_iterations = ls.cg_iterations_max;
+      }
     }
-    if (lines_step.used) {  // the joint fit on the replica, from its single-line result
-      const EngineOptions jb = full_model_options(bo);
-      if (auto jr =
-              joint_line_replica(lines_step, rep, same_bins, rp, ps, br, jb, stage, runner, &bo))
-        br = std::move(*jr);
-    }
-    const auto [rlo, rhi] = band_of(rp);
-    const PulseMetrics bm = pulse_metrics(br, pr.ir_omega_au, rlo, rhi);
-    samples[static_cast<std::size_t>(b)] = {*bm.xuv.fwhm_as, *bm.xuv.gdd_as2,
-                                            bm.ir.peak_vector_potential_au.value_or(0.0),
-                                            bm.satellite_intensity_ratio};
-  });
+    if (!replicas_done) uncertainty_used = "full (laplace not applicable: " + why_not + ")";
+  }
+  if (!replicas_done)
+    parallel_for(opt.bootstrap, resolve_threads(opt.threads), [&](int b) {
+      const Trace rep =
+          poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
+      PreprocessSummary ps;
+      RetrievalProblem rp = preprocess(rep, same_bins, &ps);
+      EngineOptions bo = beo;
+      bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
+      const std::string stage =
+          "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
+      Reconstruction br;
+      if (warm && !lines_step.used) {
+        // retrieval/analysis/uncertainty.h: the final engine from the estimate, until it stops
+        // moving.
+        EngineOptions wo = single_engine == "full-model" ? full_model_options(bo) : bo;
+        wo.initial_xuv = rec.xuv;
+        wo.initial_ir = rec.ir;
+        wo.noise_floor_factor = 0.0;
+        wo.relative_tolerance = std::max(wo.relative_tolerance, wo.noise_floor_relative_tolerance);
+        wo.patience = opt.warm_patience;
+        br = run_on(rp, single_engine, wo, stage);
+      } else if (single_engine == "full-model") {
+        // The same chain as the estimate: from the replica's own CMA result, or from the full
+        // model's own guess when that is where the estimate came from.
+        EngineOptions fo = full_model_options(bo);
+        if (full_model_from_cma) {
+          const Reconstruction c = run_on(rp, "ptychographic", bo, stage);
+          fo.initial_xuv = c.xuv;
+          fo.initial_ir = c.ir;
+        }
+        br = run_on(rp, "full-model", fo, stage);
+        if (satellite_sign != 0) {
+          Reconstruction sr = satellite_run(rp, br, satellite_sign, fo, stage);
+          if (sr.trace_error < br.trace_error) br = std::move(sr);
+        }
+      } else {
+        br = run_on(rp, single_engine, bo, stage);
+      }
+      if (lines_step.used) {  // the joint fit on the replica, from its single-line result
+        const EngineOptions jb = full_model_options(bo);
+        if (auto jr =
+                joint_line_replica(lines_step, rep, same_bins, rp, ps, br, jb, stage, runner, &bo))
+          br = std::move(*jr);
+      }
+      const auto [rlo, rhi] = band_of(rp);
+      samples[static_cast<std::size_t>(b)] =
+          replica_metrics(pulse_metrics(br, pr.ir_omega_au, rlo, rhi));
+    });
   std::vector<double> bf, bg, ba, bs;
   for (const auto& x : samples) {
     bf.push_back(x[0]);
@@ -520,6 +616,9 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     // otherwise added to sigma; plus the chain's systematic spread.
     const double t = student_one_sigma_factor(opt.bootstrap);
     res.extra.push_back({"bootstrap.student_factor", t});
+    res.extra.push_back({"bootstrap.method", uncertainty_used});
+    if (laplace_cg_iterations > 0)
+      res.extra.push_back({"bootstrap.laplace_cg_iterations_max", laplace_cg_iterations});
     auto corrected = [&](const std::string& key, std::optional<double>& value,
                          std::optional<double>& sigma, const std::vector<double>& reps,
                          double sys) {

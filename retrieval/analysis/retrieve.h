@@ -34,7 +34,8 @@
 // with Poisson resampling of the counts in place of resampling data points): each replica is
 // a Poisson draw of the measured counts, preprocessed identically and, by default
 // (`uncertainty` = full), analysed by the same engine chain from the same kind of start;
-// `uncertainty` = warm starts the final engine from the estimate instead (retrieval/
+// `uncertainty` = warm starts the final engine from the estimate instead, `uncertainty` =
+// laplace takes one Newton step from a full-model estimate per replica (retrieval/analysis/
 // uncertainty.h, docs/theory.md). The replicas run concurrently on `threads` worker threads
 // (retrieval/analysis/thread_pool.h). Per headline number (FWHM, GDD, A0):
 //   s_stat = t_B x sample standard deviation of the B replicas, t_B the Student factor of the
@@ -96,7 +97,8 @@ struct RetrieveOptions {
   /// single-threaded, so the results are bit-identical for any value.
   int threads = 0;
   /// How the bootstrap replicas start (retrieval/analysis/uncertainty.h): kFull = the whole engine
-  /// chain from scratch (default), kWarm = the final engine from the estimate.
+  /// chain from scratch (default), kWarm = the final engine from the estimate, kLaplace = one
+  /// Newton step per replica from a full-model estimate (else kFull).
   UncertaintyMethod uncertainty = UncertaintyMethod::kFull;
   /// kWarm: a replica stops when |G_k - G_{k-warm_patience}| / G_k is below
   /// max(relative_tolerance, noise_floor_relative_tolerance) of EngineOptions (>= 1). Default 5
@@ -207,9 +209,10 @@ struct RetrieveOptions {
                  .config_key = "threads"},
       self.threads);
     v(OptionSpec{.name = "uncertainty",
-                 .help = "bootstrap replicas from scratch (full) or warm-started from the estimate "
-                         "(warm); docs/theory.md",
-                 .choices = "full|warm",
+                 .help = "bootstrap replicas from scratch (full), warm-started from the estimate "
+                         "(warm), or one Newton step from a full-model estimate each (laplace: the "
+                         "Laplace approximation, sampled); docs/theory.md",
+                 .choices = "full|warm|laplace",
                  .flag = "--uncertainty",
                  .config_key = "uncertainty"},
       self.uncertainty);

@@ -6,8 +6,10 @@ namespace sw {
 
 namespace {
 
-constexpr EnumNames<UncertaintyMethod, 2> kUncertaintyMethodNames{
-    {{{UncertaintyMethod::kFull, "full"}, {UncertaintyMethod::kWarm, "warm"}}}};
+constexpr EnumNames<UncertaintyMethod, 3> kUncertaintyMethodNames{
+    {{{UncertaintyMethod::kFull, "full"},
+      {UncertaintyMethod::kWarm, "warm"},
+      {UncertaintyMethod::kLaplace, "laplace"}}}};
 
 }  // namespace
 

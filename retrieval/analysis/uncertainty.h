@@ -15,6 +15,15 @@
 //          replica's floor, so that rule would stop it where it started). Cheaper (one engine run
 //          from a converged start instead of the chain from scratch), but it keeps only the
 //          spread of the minimum under the counting noise, not the start-to-start spread.
+//   kLaplace  the Laplace approximation of a full-model estimate, sampled: each replica is one
+//          Newton step from the estimate on Gaussian counting noise of the preprocessed counts'
+//          variances (retrieval/engines/full_model_laplace.h). The cheapest (no engine run per
+//          replica: about a hundred cost-and-gradient evaluations, against ~250 for a chain),
+//          and like kWarm it keeps only the spread of the minimum under the counting noise,
+//          linearised. Applies where the headline comes from one full-model fit; elsewhere
+//          (CMA engines, joint lines) and wherever the linearisation fails (no variances,
+//          negative curvature, CG not converged) the replicas are kFull's, and result.json says
+//          so (bootstrap.method).
 //
 // The replicas' seeds depend only on the replica index (results are the same for any thread
 // count, retrieval/analysis/thread_pool.h).
@@ -23,11 +32,11 @@
 
 namespace sw {
 
-enum class UncertaintyMethod { kFull, kWarm };
+enum class UncertaintyMethod { kFull, kWarm, kLaplace };
 
-/// "full" / "warm".
+/// "full" / "warm" / "laplace".
 const char* to_string(UncertaintyMethod m);
-/// Parses "full" or "warm"; false (and *m unchanged) for anything else.
+/// Parses "full", "warm" or "laplace"; false (and *m unchanged) for anything else.
 bool parse_uncertainty_method(const std::string& s, UncertaintyMethod* m);
 /// The same for the option descriptions (retrieval/core/option_spec.h, found by ADL).
 inline bool parse_option(const std::string& s, UncertaintyMethod* m) {

@@ -15,6 +15,7 @@
 //                               bootstrap replicas on T worker threads, wall time of one run
 //                               (slow: ~1-4 min each);
 //   BM_HeliumRetrieveFixed/8/2  BM_HeliumRetrieve/8/2 with the fixed block layout;
+//   BM_HeliumRetrieveLaplace/8/2  BM_HeliumRetrieve/8/2 with `--uncertainty laplace`;
 //   BM_NarrowRetrieve/8/2       the same for the narrow-band neon-150as preset (ptychographic).
 // The problem is the helium-70as preset (seed 7) after preprocess(), as `retrieve` sees it.
 // tests/bench/run_bench.sh runs these with the numpy reference and prints the ratios.
@@ -175,10 +176,11 @@ double process_cpu_seconds() {
 // Threads: the second argument (RetrieveOptions::threads). Counter process_cpu_s: CPU seconds of
 // all threads (the L-BFGS runs on a worker thread, so the CPU column shows only the main thread);
 // on a shared machine it is the figure to compare, wall time depends on the load.
-void retrieve_run(benchmark::State& state, const Trace& t,
-                  const std::string& node_plan = "fewest") {
+void retrieve_run(benchmark::State& state, const Trace& t, const std::string& node_plan = "fewest",
+                  UncertaintyMethod uncertainty = UncertaintyMethod::kFull) {
   RetrieveOptions o;
   o.engine_settings.full_model.node_plan = node_plan;
+  o.uncertainty = uncertainty;
   o.bootstrap = static_cast<int>(state.range(0));
   o.threads = static_cast<int>(state.range(1));
   RetrieveOutput r;
@@ -212,6 +214,13 @@ void BM_HeliumRetrieveFixed(benchmark::State& state) {
   retrieve_run(state, helium_scan().trace, "fixed");
 }
 BENCHMARK(BM_HeliumRetrieveFixed)->Args({8, 2})->Apply(sw::bench::one_timed_run);
+
+// The same with linearised replicas (retrieval/engines/full_model_laplace.h): one Newton step per
+// replica from the estimate instead of the engine chain.
+void BM_HeliumRetrieveLaplace(benchmark::State& state) {
+  retrieve_run(state, helium_scan().trace, "fewest", UncertaintyMethod::kLaplace);
+}
+BENCHMARK(BM_HeliumRetrieveLaplace)->Args({8, 2})->Apply(sw::bench::one_timed_run);
 
 // The narrow-band reference: the neon-150as preset (seed 7), which `auto` keeps with the
 // ptychographic engine; the default analysis (8 replicas, 2 threads).
