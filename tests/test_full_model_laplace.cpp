@@ -78,21 +78,13 @@ EngineOptions laplace_engine_options(const Reconstruction& estimate) {
   return eo;
 }
 
-double relative_difference(const CVec& a, const CVec& b, const CVec& c) {
+// |a - b| / |b - c| over the samples (complex or real; std::norm is |.|^2 for both).
+template <class V>
+double relative_difference(const V& a, const V& b, const V& c) {
   double num = 0, den = 0;
   for (std::size_t i = 0; i < a.size(); ++i) {
     num += std::norm(a[i] - b[i]);
     den += std::norm(b[i] - c[i]);
-  }
-  return std::sqrt(num / den);
-}
-
-double relative_difference(const std::vector<double>& a, const std::vector<double>& b,
-                           const std::vector<double>& c) {
-  double num = 0, den = 0;
-  for (std::size_t i = 0; i < a.size(); ++i) {
-    num += (a[i] - b[i]) * (a[i] - b[i]);
-    den += (b[i] - c[i]) * (b[i] - c[i]);
   }
   return std::sqrt(num / den);
 }

@@ -15,6 +15,7 @@
 #include "retrieval/analysis/thread_pool.h"
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
+#include "retrieval/core/statistics.h"
 #include "retrieval/core/units.h"
 #include "retrieval/engines/full_model_laplace.h"
 #include "retrieval/physics/pulse_metrics.h"
@@ -211,12 +212,13 @@ LaplaceSamples laplace_samples(const RetrievalProblem& pr, const EngineOptions& 
       return;
     }
     rb = lap.replica(b);
-    if (!rb.ok) failed = true;
     if (rb.ok) {
       const std::array<double, 4> mb =
           replica_metrics(pulse_metrics(rb.fields, pr.ir_omega_au, lo, hi));
       for (std::size_t k = 0; k < 4; ++k)
         out.samples[static_cast<std::size_t>(b)][k] = m0[k] + (mb[k] - mc[k]);
+    } else {
+      failed = true;
     }
     done();
   });
@@ -495,11 +497,14 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       why_not = lines_step.used ? "joint lines" : "the headline is not a full-model fit";
     } else {
       std::atomic<int> finished{0};
+      const auto laplace_start = std::chrono::steady_clock::now();
       auto done = [&] {
         if (!progress) return;
         IterationRecord r;
         r.iteration = ++finished;
         r.trace_error = rec.trace_error;
+        r.seconds =
+            std::chrono::duration<double>(std::chrono::steady_clock::now() - laplace_start).count();
         const std::lock_guard<std::mutex> lock(progress_mutex);
         progress("bootstrap (laplace) " + std::to_string(r.iteration) + "/" +
                      std::to_string(opt.bootstrap),
@@ -518,8 +523,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   }
   if (!replicas_done)
     parallel_for(opt.bootstrap, resolve_threads(opt.threads), [&](int b) {
-      const Trace rep =
-          poisson_resample(trace, opt.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
+      const Trace rep = poisson_resample(trace, replica_seed(opt.seed, b));
       PreprocessSummary ps;
       RetrievalProblem rp = preprocess(rep, same_bins, &ps);
       EngineOptions bo = beo;

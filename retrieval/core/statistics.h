@@ -6,6 +6,13 @@
 
 namespace sw {
 
+/// The seed of bootstrap replica b (>= 0) of an analysis seeded with `seed`: every replica draws
+/// from (seed, b) alone, so the replicas are the same for any thread count and order
+/// (retrieval/analysis/thread_pool.h; docs/theory.md "Replicas in parallel").
+inline unsigned long long replica_seed(unsigned long long seed, int b) {
+  return seed * 1000003ULL + static_cast<unsigned long long>(b) + 1;
+}
+
 /// The upper median of v (element size / 2 after a partial sort; the mean of the two middle
 /// elements is not taken), 0 for an empty v. Takes v by value: the caller's order is kept.
 inline double median(std::vector<double> v) {

@@ -9,6 +9,7 @@
 
 #include "retrieval/core/error.h"
 #include "retrieval/core/format.h"
+#include "retrieval/core/statistics.h"
 #include "retrieval/engines/full_model_internal.h"
 
 namespace sw {
@@ -68,17 +69,30 @@ LaplaceReplicas::LaplaceReplicas(const RetrievalProblem& problem, const EngineOp
   }
   const FullModelSettings settings = validated_settings(options_.settings.full_model, "full-model");
   const auto st = make_full_model_start(problem_, options_, settings, MomentumModel::kFull);
-  centre_ = fields_at(*st.objective, problem_, st.x.data());
+  FullModelObjective& f = *st.objective;
+  x_ = Eigen::Map<const Vec>(st.x.data(), static_cast<Eigen::Index>(st.x.size()));
+  centre_ = fields_at(f, problem_, x_.data());
+  phase_ = phase_direction(x_, f.num_xuv_parameters());
   // The replicas' noise: the variance the weights stand for (1/w; 0 where a bin has no weight).
-  const Eigen::MatrixXd& w = st.objective->weights();
+  const Eigen::MatrixXd& w = f.weights();
   noise_sd_ = (w.array() > 0).select(w.cwiseMax(1e-300).cwiseInverse().cwiseSqrt(), 0.0);
+  // What every replica shares: the gradient on the measured counts, and the counts mu m(x) that
+  // the model at x fits exactly with the gradient there (the Gauss-Newton Hessian's base point).
+  g_measured_.resize(x_.size());
+  f.evaluate(x_.data(), g_measured_.data());
+  double mu = 0.0;
+  fit_counts_ = f.model(x_.data(), &mu);
+  fit_counts_ *= mu;
+  f.set_measured(fit_counts_);
+  g_fit_.resize(x_.size());
+  f.evaluate(x_.data(), g_fit_.data());
 }
 
 Eigen::MatrixXd LaplaceReplicas::replica_counts(int b) const {
   if (!ok() || b < 0)
     throw usage_error("laplace replicas: replica_counts(" + std::to_string(b) + ")" +
                       (ok() ? ": expected b >= 0" : ": " + failure_));
-  std::mt19937_64 rng(laplace_.seed * 1000003ULL + static_cast<unsigned long long>(b) + 1);
+  std::mt19937_64 rng(replica_seed(laplace_.seed, b));
   std::normal_distribution<double> gauss(0.0, 1.0);
   Eigen::MatrixXd counts = problem_.intensity;
   for (Eigen::Index c = 0; c < counts.cols(); ++c)
@@ -94,26 +108,22 @@ LaplaceReplica LaplaceReplicas::replica(int b) const {
   }
   const FullModelSettings settings = validated_settings(options_.settings.full_model, "full-model");
   auto st = make_full_model_start(problem_, options_, settings, MomentumModel::kFull);
+  // Each replica its own objective (an objective is not thread-safe), built like the one in the
+  // constructor, so at the same x.
   FullModelObjective& f = *st.objective;
-  const Vec x = Eigen::Map<const Vec>(st.x.data(), static_cast<Eigen::Index>(st.x.size()));
+  const Vec& x = x_;
   const Eigen::Index n = x.size();
-  const Vec u = phase_direction(x, f.num_xuv_parameters());
-  auto project_out = [&u](Vec& v) { v -= u.dot(v) * u; };
+  auto project_out = [this](Vec& v) { v -= phase_.dot(v) * phase_; };
 
   // Right-hand side: the gradient's change from the measured counts to the replica's.
-  Vec g_measured(n), g_replica(n);
-  f.evaluate(x.data(), g_measured.data());
+  Vec g_replica(n);
   f.set_measured(replica_counts(b));
   f.evaluate(x.data(), g_replica.data());
-  Vec rhs = g_measured - g_replica;  // H z = -(g_b - g)
+  Vec rhs = g_measured_ - g_replica;  // H z = -(g_b - g)
   project_out(rhs);
   // The Gauss-Newton Hessian: the Hessian of the same cost on counts the model at x fits
   // exactly (mu m(x)), where every residual and with it every second-derivative term vanishes.
-  double mu = 0.0;
-  const Eigen::MatrixXd m = f.model(x.data(), &mu);
-  f.set_measured(mu * m);
-  Vec g_fit(n);
-  f.evaluate(x.data(), g_fit.data());
+  f.set_measured(fit_counts_);
 
   const double step = std::sqrt(std::numeric_limits<double>::epsilon()) * (1.0 + x.norm());
   Vec xh(n), gh(n);
@@ -122,7 +132,7 @@ LaplaceReplica LaplaceReplicas::replica(int b) const {
     const double h = step / v.norm();
     xh = x + h * v;
     f.evaluate(xh.data(), gh.data());
-    Hv = (gh - g_fit) / h;
+    Hv = (gh - g_fit_) / h;
     project_out(Hv);
   };
 

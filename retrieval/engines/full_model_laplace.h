@@ -77,7 +77,7 @@ struct LaplaceOptions {
 struct LaplaceReplica {
   Reconstruction fields;           ///< xuv and ir of x + z_b (nothing else filled in)
   bool ok = false;                 ///< false: `failure` says why; `fields` empty
-  std::string failure;             ///< e.g. "negative curvature at CG iteration 12"
+  std::string failure;             ///< e.g. "CG did not converge in 200 iterations ..."
   int cg_iterations = 0;           ///< Hessian-vector products used
   double relative_residual = 0.0;  ///< |H z + dg| / |dg| at the end
 };
@@ -109,7 +109,12 @@ class LaplaceReplicas {
   EngineOptions options_;
   LaplaceOptions laplace_;
   Reconstruction centre_;
-  Eigen::MatrixXd noise_sd_;  // standard deviation of each bin's replica noise
+  Eigen::MatrixXd noise_sd_;    // standard deviation of each bin's replica noise
+  Eigen::VectorXd x_;           // the linearisation point (scaled parameters)
+  Eigen::VectorXd phase_;       // the XUV's global-phase direction at x_, normalised
+  Eigen::VectorXd g_measured_;  // gradient at x_ on the measured counts
+  Eigen::MatrixXd fit_counts_;  // mu m(x_): counts the model at x_ fits exactly
+  Eigen::VectorXd g_fit_;       // gradient at x_ on fit_counts_
   std::string failure_;
 };
 
