@@ -317,6 +317,82 @@ SW_HOT_LOOP void pair_phases(const double* __restrict__ a, const double* __restr
   }
 }
 
+// Adjoints of the IR samples A_i, dA/dt_i, I1_i, I2_i.
+struct IrSampleAdjoints {
+  double *A, *dA, *I1, *I2;
+};
+
+// Adjoint of IrField::at at the ascending times t[s] + tau: gA, gI1, gI2 (adjoints of A, I1, I2
+// there; gA unused for a constant dipole, whose gate does not depend on A) added onto the
+// samples' adjoints `out`. Every sample receives its additions in the order of the times; the
+// two samples of the current IR interval are held in registers while the times stay in it
+// (several XUV samples per IR interval), so the sums are those of a plain loop.
+void hermite_adjoint(const IrField& ir, const double* t, std::size_t n, double tau,
+                     bool const_dipole, const double* gA, const double* gI1, const double* gI2,
+                     IrSampleAdjoints out) {
+  const double t0 = ir.t0(), dt = ir.dt();
+  const double* A = ir.vector_potential().data();
+  const std::size_t nir = ir.size(), none = nir;
+  const double last = static_cast<double>(nir - 1);
+  std::size_t s = 0;
+  // Before the first sample IrField::at returns I1_0 and I2_0 (and A = 0).
+  for (; s < n; ++s) {
+    const double x = (t[s] + tau - t0) / dt;
+    if (x >= last || !(x <= 0)) break;
+    out.I1[0] += gI1[s];
+    out.I2[0] += gI2[s];
+  }
+  std::size_t c0 = none;  // the interval held in lo (sample c0) and hi (sample c0 + 1)
+  struct Held {
+    double A, dA, I1, I2;
+  } lo{}, hi{};
+  auto load = [&](std::size_t i) { return Held{out.A[i], out.dA[i], out.I1[i], out.I2[i]}; };
+  auto store = [&](std::size_t i, const Held& h) {
+    out.A[i] = h.A;
+    out.dA[i] = h.dA;
+    out.I1[i] = h.I1;
+    out.I2[i] = h.I2;
+  };
+  for (; s < n; ++s) {
+    const double x = (t[s] + tau - t0) / dt;
+    if (x >= last) break;  // beyond the last sample (and every later time): A = I1 = I2 = 0
+    const std::size_t c = static_cast<std::size_t>(x);
+    if (c != c0) {
+      if (c0 != none && c == c0 + 1) {
+        store(c0, lo);
+        lo = hi;
+      } else {
+        if (c0 != none) {
+          store(c0, lo);
+          store(c0 + 1, hi);
+        }
+        lo = load(c);
+      }
+      hi = load(c + 1);
+      c0 = c;
+    }
+    const Hermite h = hermite_basis(x - static_cast<double>(c));
+    const double a_ = gA[s], b1 = gI1[s], b2 = gI2[s];
+    if (const_dipole) {
+      lo.A -= h.h10 * dt * (b1 + 2.0 * A[c] * b2);
+      hi.A -= h.h11 * dt * (b1 + 2.0 * A[c + 1] * b2);
+    } else {
+      lo.A += h.h00 * a_ - h.h10 * dt * (b1 + 2.0 * A[c] * b2);
+      hi.A += h.h01 * a_ - h.h11 * dt * (b1 + 2.0 * A[c + 1] * b2);
+      lo.dA += h.h10 * dt * a_;
+      hi.dA += h.h11 * dt * a_;
+    }
+    lo.I1 += h.h00 * b1;
+    hi.I1 += h.h01 * b1;
+    lo.I2 += h.h00 * b2;
+    hi.I2 += h.h01 * b2;
+  }
+  if (c0 != none) {
+    store(c0, lo);
+    store(c0 + 1, hi);
+  }
+}
+
 }  // namespace
 
 void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
@@ -657,35 +733,10 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
         }
       }
       // Through IrField::at at s + tau onto the stored IR arrays.
-      const double t0 = ir.t0(), dt = ir.dt();
-      const std::vector<double>& A = ir.vector_potential();
-      for (std::size_t s = 0; s < n; ++s) {
-        const double x = (ts[s] + tau - t0) / dt;
-        if (x >= static_cast<double>(nir - 1)) continue;
-        for (std::size_t k = 0; k < Ku; ++k) {
-          const std::size_t ko = k * n, kr = k * nir;
-          const double a_ = W.gA[ko + s], b1 = W.gI1[ko + s], b2 = W.gI2[ko + s];
-          if (x <= 0) {
-            W.bI1[kr] += b1;
-            W.bI2[kr] += b2;
-            continue;
-          }
-          const std::size_t c = static_cast<std::size_t>(x);
-          const Hermite h = hermite_basis(x - static_cast<double>(c));
-          if (const_dipole) {  // A_bar at s + tau is zero: only the I1, I2 terms
-            W.bA[kr + c] -= h.h10 * dt * (b1 + 2.0 * A[c] * b2);
-            W.bA[kr + c + 1] -= h.h11 * dt * (b1 + 2.0 * A[c + 1] * b2);
-          } else {
-            W.bA[kr + c] += h.h00 * a_ - h.h10 * dt * (b1 + 2.0 * A[c] * b2);
-            W.bA[kr + c + 1] += h.h01 * a_ - h.h11 * dt * (b1 + 2.0 * A[c + 1] * b2);
-            W.bdA[kr + c] += h.h10 * dt * a_;
-            W.bdA[kr + c + 1] += h.h11 * dt * a_;
-          }
-          W.bI1[kr + c] += h.h00 * b1;
-          W.bI1[kr + c + 1] += h.h01 * b1;
-          W.bI2[kr + c] += h.h00 * b2;
-          W.bI2[kr + c + 1] += h.h01 * b2;
-        }
+      for (std::size_t k = 0; k < Ku; ++k) {
+        const std::size_t ko = k * n, kr = k * nir;
+        hermite_adjoint(ir, ts.data(), n, tau, const_dipole, &W.gA[ko], &W.gI1[ko], &W.gI2[ko],
+                        {&W.bA[kr], &W.bdA[kr], &W.bI1[kr], &W.bI2[kr]});
       }
     };
 

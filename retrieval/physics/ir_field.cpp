@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <stdexcept>
 
 #include "retrieval/core/units.h"
@@ -57,6 +58,10 @@ struct Samples {
 inline VolkovIntegrals interpolate(const Samples& f, double t) {
   const double x = (t - f.t0) / f.dt;
   const std::size_t n = f.A.size();
+  if (std::isnan(x)) {  // a time that is not a number: no sample to read
+    const double nan = std::numeric_limits<double>::quiet_NaN();
+    return {nan, nan, nan};
+  }
   if (x <= 0) return {0.0, f.I1.front(), f.I2.front() + 0.0};
   if (x >= static_cast<double>(n - 1)) return {0.0, 0.0, 0.0};
   const std::size_t i = static_cast<std::size_t>(x);
