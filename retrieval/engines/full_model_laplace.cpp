@@ -86,6 +86,27 @@ LaplaceReplicas::LaplaceReplicas(const RetrievalProblem& problem, const EngineOp
   f.set_measured(fit_counts_);
   g_fit_.resize(x_.size());
   f.evaluate(x_.data(), g_fit_.data());
+  if (laplace_.precondition) {
+    first_ = solve(0, nullptr, &preconditioner_);
+    const bool not_converged = !first_.ok && first_.cg_iterations == laplace_.max_cg_iterations &&
+                               first_.relative_residual > laplace_.cg_tolerance;
+    have_first_ = !not_converged;
+    if (not_converged) first_.failure.clear();  // replica(0) solves again, preconditioned
+  }
+}
+
+Eigen::VectorXd LaplaceReplicas::QuasiNewtonInverse::apply(const Vec& v) const {
+  // Nocedal and Wright, Numerical Optimization (2006), algorithm 7.4.
+  const std::size_t m = s.size();
+  std::vector<double> a(m);
+  Vec q = v;
+  for (std::size_t i = m; i-- > 0;) {
+    a[i] = rho[i] * s[i].dot(q);
+    q -= a[i] * y[i];
+  }
+  Vec r = gamma * q;
+  for (std::size_t i = 0; i < m; ++i) r += (a[i] - rho[i] * y[i].dot(r)) * s[i];
+  return r;
 }
 
 Eigen::MatrixXd LaplaceReplicas::replica_counts(int b) const {
@@ -101,11 +122,21 @@ Eigen::MatrixXd LaplaceReplicas::replica_counts(int b) const {
 }
 
 LaplaceReplica LaplaceReplicas::replica(int b) const {
-  LaplaceReplica out;
   if (!ok()) {
+    LaplaceReplica out;
     out.failure = failure_;
     return out;
   }
+  if (!laplace_.precondition) return solve(b, nullptr, nullptr);
+  if (b == 0 && have_first_) return first_;
+  LaplaceReplica out = solve(b, &preconditioner_, nullptr);
+  if (b == 0) out.cg_iterations += first_.cg_iterations;  // the plain solve that did not converge
+  return out;
+}
+
+LaplaceReplica LaplaceReplicas::solve(int b, const QuasiNewtonInverse* pre,
+                                      QuasiNewtonInverse* collect) const {
+  LaplaceReplica out;
   const FullModelSettings settings = validated_settings(options_.settings.full_model, "full-model");
   auto st = make_full_model_start(problem_, options_, settings, MomentumModel::kFull);
   // Each replica its own objective (an objective is not thread-safe), built like the one in the
@@ -136,11 +167,18 @@ LaplaceReplica LaplaceReplicas::replica(int b) const {
     project_out(Hv);
   };
 
-  // Conjugate gradients (Hestenes and Stiefel 1952) on H z = rhs from z = 0.
-  Vec z = Vec::Zero(n), r = rhs, p = rhs, Hp(n);
-  double rr = r.squaredNorm();
-  const double r0 = std::sqrt(rr);
-  if (!(r0 > 0) || !std::isfinite(r0)) {
+  // Conjugate gradients (Hestenes and Stiefel 1952) on H z = rhs from z = 0, preconditioned by
+  // `pre` (y = P r; plain CG when null).
+  auto precondition = [&](const Vec& v) {
+    if (!pre) return v;
+    Vec y = pre->apply(v);
+    project_out(y);
+    return y;
+  };
+  Vec z = Vec::Zero(n), r = rhs, y = precondition(r), p = y, Hp(n);
+  double ry = r.dot(y);
+  const double r0 = r.norm();
+  if (!(r0 > 0) || !std::isfinite(r0) || !(ry > 0)) {
     out.failure = "the replica's gradient is zero or not finite";
     return out;
   }
@@ -149,23 +187,34 @@ LaplaceReplica LaplaceReplicas::replica(int b) const {
     hessian_times(p, Hp);
     out.cg_iterations = k;
     const double pHp = p.dot(Hp);
+    if (!std::isfinite(pHp)) {
+      out.failure = "a Hessian product is not finite at CG iteration " + std::to_string(k);
+      return out;
+    }
     if (!(pHp > 0)) {
       out.failure = "no positive curvature at CG iteration " + std::to_string(k) +
                     " (a direction the data do not constrain)";
       return out;
     }
-    const double alpha = rr / pHp;
+    if (collect) {
+      collect->s.push_back(p);
+      collect->y.push_back(Hp);
+      collect->rho.push_back(1.0 / pHp);
+      collect->gamma = pHp / Hp.squaredNorm();
+    }
+    const double alpha = ry / pHp;
     z += alpha * p;
     r -= alpha * Hp;
     project_out(r);
-    const double rr_new = r.squaredNorm();
-    out.relative_residual = std::sqrt(rr_new) / r0;
+    out.relative_residual = r.norm() / r0;
     if (out.relative_residual <= laplace_.cg_tolerance) {
       converged = true;
       break;
     }
-    p = r + (rr_new / rr) * p;
-    rr = rr_new;
+    y = precondition(r);
+    const double ry_new = r.dot(y);
+    p = y + (ry_new / ry) * p;
+    ry = ry_new;
   }
   if (!converged) {
     out.failure = "CG did not converge in " + std::to_string(laplace_.max_cg_iterations) +

@@ -43,9 +43,9 @@
 // estimate and moves by one linear step), the preprocessing's own noise (the background fit,
 // the support), and anything beyond first order in the noise. It fails (ok = false, `failure`
 // says why) instead of returning a number it cannot stand behind: no variances (no noise model),
-// joint lines, a direction without positive curvature (the data do not constrain it: no
-// Gaussian), CG not converged within max_cg_iterations, or a non-finite step. retrieve() then falls
-// back to the full bootstrap.
+// joint lines, a non-finite Hessian product, a direction without positive curvature (the data
+// do not constrain it: no Gaussian), CG not converged within max_cg_iterations, or a non-finite
+// step. retrieve() then falls back to the full bootstrap.
 
 #include <string>
 #include <vector>
@@ -68,6 +68,16 @@ struct LaplaceOptions {
   double cg_tolerance = 1e-3;
   /// CG iterations (Hessian-vector products) per replica before it gives up (failure).
   int max_cg_iterations = 200;
+  /// Precondition the replicas' CG with the limited-memory quasi-Newton inverse built from the
+  /// pairs (p, H p) of one plain CG solve, replica 0's, made once in the constructor
+  /// (automatic preconditioning by limited-memory quasi-Newton updating: J. L. Morales and
+  /// J. Nocedal, SIAM J. Optim. 10, 1079 (2000)). The pairs span the directions that solve
+  /// explored, where the preconditioned operator is the identity, so the other replicas spend
+  /// their products on the rest. Every replica still stops at cg_tolerance on its own residual:
+  /// the steps agree with plain CG's to that tolerance. When replica 0's plain solve does not
+  /// converge, replica 0 is solved again, preconditioned by its own pairs (its products then
+  /// count both solves). true (default): fewer products; false: plain CG for every replica.
+  bool precondition = true;
 
   /// "" when valid; else names the field, its value and the rule.
   std::string validate() const;
@@ -116,6 +126,19 @@ class LaplaceReplicas {
   Eigen::MatrixXd fit_counts_;  // mu m(x_): counts the model at x_ fits exactly
   Eigen::VectorXd g_fit_;       // gradient at x_ on fit_counts_
   std::string failure_;
+  // LaplaceOptions::precondition: the quasi-Newton inverse from replica 0's plain CG pairs, and
+  // replica 0 itself when that solve is its answer (converged, or failed for another reason).
+  struct QuasiNewtonInverse {
+    std::vector<Eigen::VectorXd> s, y;  // CG directions p and H p
+    std::vector<double> rho;            // 1 / (s . y)
+    double gamma = 1.0;                 // scale of the identity: s . y / y . y of the last pair
+    Eigen::VectorXd apply(const Eigen::VectorXd& v) const;  // two-loop recursion
+  };
+  QuasiNewtonInverse preconditioner_;
+  bool have_first_ = false;
+  LaplaceReplica first_;
+  // Replica b by CG (preconditioned by `pre` unless null), the pairs into `collect` if not null.
+  LaplaceReplica solve(int b, const QuasiNewtonInverse* pre, QuasiNewtonInverse* collect) const;
 };
 
 }  // namespace sw

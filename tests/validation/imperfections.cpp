@@ -135,7 +135,7 @@ std::vector<SweepRow> run_sweep(const std::vector<std::string>& names, const Swe
     throw usage_error("--bootstrap = " + std::to_string(o.bootstrap) + "; expected >= 0");
   if (o.jobs < 1) throw usage_error("--jobs = " + std::to_string(o.jobs) + "; expected >= 1");
   if (UncertaintyMethod u; !parse_uncertainty_method(o.uncertainty, &u))
-    throw usage_error("--uncertainty = " + o.uncertainty + "; expected full or warm");
+    throw usage_error("--uncertainty = " + o.uncertainty + "; expected full, warm or laplace");
   std::filesystem::path dir = o.work_dir;
   if (dir.empty())
     dir = std::filesystem::temp_directory_path() /

@@ -4,7 +4,7 @@
 // lines) and prints the summary; OUT_DIR/validation_imperfections.partial.csv grows row by row
 // while the sweep runs.
 // Usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N] [--jobs N]
-//        [--engine NAME] [--uncertainty full|warm] [--list]
+//        [--engine NAME] [--uncertainty full|warm|laplace] [--list]
 //        [--check-scans] (generate only: truth and whether the energy window holds the signal)
 //        [--from-csv FILE] (tables, summary and figures again from a finished run's CSV)
 //        [--write-scans DIR] (the cases' scans as files, to analyse with the command line)
@@ -94,7 +94,8 @@ int main(int argc, char** argv) {
       } else if (a == "-h" || a == "--help") {
         std::printf(
             "usage: imperfections_sweep [OUT_DIR] [--cases a,b,c] [--bootstrap N (4)] "
-            "[--jobs N (1)] [--engine NAME (auto)] [--uncertainty full|warm (full)] [--work DIR] "
+            "[--jobs N (1)] [--engine NAME (auto)] [--uncertainty full|warm|laplace (full)] "
+            "[--work DIR] "
             "[--list] [--check-scans] [--write-scans DIR] [--held-out N [--held-out-seed S]] "
             "[--energy-refine F (1)] [--energy-combine K (0 = auto)]\n");
         return 0;
