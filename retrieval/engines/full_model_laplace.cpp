@@ -86,13 +86,7 @@ LaplaceReplicas::LaplaceReplicas(const RetrievalProblem& problem, const EngineOp
   f.set_measured(fit_counts_);
   g_fit_.resize(x_.size());
   f.evaluate(x_.data(), g_fit_.data());
-  if (laplace_.precondition) {
-    first_ = solve(0, nullptr, &preconditioner_);
-    const bool not_converged = !first_.ok && first_.cg_iterations == laplace_.max_cg_iterations &&
-                               first_.relative_residual > laplace_.cg_tolerance;
-    have_first_ = !not_converged;
-    if (not_converged) first_.failure.clear();  // replica(0) solves again, preconditioned
-  }
+  if (laplace_.precondition) first_ = solve(0, nullptr, &preconditioner_);
 }
 
 Eigen::VectorXd LaplaceReplicas::QuasiNewtonInverse::apply(const Vec& v) const {
@@ -128,10 +122,13 @@ LaplaceReplica LaplaceReplicas::replica(int b) const {
     return out;
   }
   if (!laplace_.precondition) return solve(b, nullptr, nullptr);
-  if (b == 0 && have_first_) return first_;
-  LaplaceReplica out = solve(b, &preconditioner_, nullptr);
-  if (b == 0) out.cg_iterations += first_.cg_iterations;  // the plain solve that did not converge
-  return out;
+  if (b == 0) return first_;
+  if (!first_.ok) {  // no preconditioner, and retrieve() falls back on replica 0's failure anyway
+    LaplaceReplica out;
+    out.failure = "replica 0: " + first_.failure;
+    return out;
+  }
+  return solve(b, &preconditioner_, nullptr);
 }
 
 LaplaceReplica LaplaceReplicas::solve(int b, const QuasiNewtonInverse* pre,

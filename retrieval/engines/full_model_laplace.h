@@ -74,9 +74,11 @@ struct LaplaceOptions {
   /// J. Nocedal, SIAM J. Optim. 10, 1079 (2000)). The pairs span the directions that solve
   /// explored, where the preconditioned operator is the identity, so the other replicas spend
   /// their products on the rest. Every replica still stops at cg_tolerance on its own residual:
-  /// the steps agree with plain CG's to that tolerance. When replica 0's plain solve does not
-  /// converge, replica 0 is solved again, preconditioned by its own pairs (its products then
-  /// count both solves). true (default): fewer products; false: plain CG for every replica.
+  /// the steps agree with plain CG's to that tolerance where H is well conditioned (where it is
+  /// not, the preconditioned solve reaches further into the flat directions; docs/theory.md).
+  /// When replica 0's plain solve fails (e.g. does not converge: H too ill-conditioned for a
+  /// linearisation to be trusted) every replica fails with it. true (default): fewer products;
+  /// false: plain CG for every replica.
   bool precondition = true;
 
   /// "" when valid; else names the field, its value and the rule.
@@ -127,7 +129,7 @@ class LaplaceReplicas {
   Eigen::VectorXd g_fit_;       // gradient at x_ on fit_counts_
   std::string failure_;
   // LaplaceOptions::precondition: the quasi-Newton inverse from replica 0's plain CG pairs, and
-  // replica 0 itself when that solve is its answer (converged, or failed for another reason).
+  // replica 0 itself.
   struct QuasiNewtonInverse {
     std::vector<Eigen::VectorXd> s, y;  // CG directions p and H p
     std::vector<double> rho;            // 1 / (s . y)
@@ -135,7 +137,6 @@ class LaplaceReplicas {
     Eigen::VectorXd apply(const Eigen::VectorXd& v) const;  // two-loop recursion
   };
   QuasiNewtonInverse preconditioner_;
-  bool have_first_ = false;
   LaplaceReplica first_;
   // Replica b by CG (preconditioned by `pre` unless null), the pairs into `collect` if not null.
   LaplaceReplica solve(int b, const QuasiNewtonInverse* pre, QuasiNewtonInverse* collect) const;
