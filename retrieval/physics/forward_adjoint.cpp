@@ -355,7 +355,9 @@ void hermite_adjoint(const IrField& ir, const double* t, std::size_t n, double t
   };
   for (; s < n; ++s) {
     const double x = (t[s] + tau - t0) / dt;
-    if (x >= last) break;  // beyond the last sample (and every later time): A = I1 = I2 = 0
+    // Beyond the last sample (and every later time): A = I1 = I2 = 0; a time that is not a
+    // number reads no sample either.
+    if (!(x < last)) break;
     const std::size_t c = static_cast<std::size_t>(x);
     if (c != c0) {
       if (c0 != none && c == c0 + 1) {
