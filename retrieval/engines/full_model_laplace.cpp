@@ -193,7 +193,7 @@ LaplaceReplica LaplaceReplicas::solve(int b, const QuasiNewtonInverse* pre,
                     " (a direction the data do not constrain)";
       return out;
     }
-    if (collect) {
+    if (collect && collect->s.size() < LaplaceOptions::kMaxPreconditionerPairs) {
       collect->s.push_back(p);
       collect->y.push_back(Hp);
       collect->rho.push_back(1.0 / pHp);

@@ -77,9 +77,13 @@ struct LaplaceOptions {
   /// the steps agree with plain CG's to that tolerance where H is well conditioned (where it is
   /// not, the preconditioned solve reaches further into the flat directions; docs/theory.md).
   /// When replica 0's plain solve fails (e.g. does not converge: H too ill-conditioned for a
-  /// linearisation to be trusted) every replica fails with it. true (default): fewer products;
-  /// false: plain CG for every replica.
+  /// linearisation to be trusted) every replica fails with it. At most kMaxPreconditionerPairs
+  /// pairs are kept (the first; memory 2 x pairs x parameters doubles, bounded whatever
+  /// max_cg_iterations is). true (default): fewer products; false: plain CG for every replica.
   bool precondition = true;
+  /// The most (p, H p) pairs the preconditioner keeps: the default max_cg_iterations, so that a
+  /// converged replica 0 gives all of its pairs.
+  static constexpr int kMaxPreconditionerPairs = 200;
 
   /// "" when valid; else names the field, its value and the rule.
   std::string validate() const;
