@@ -1,7 +1,7 @@
 #pragma once
 // Helpers shared by the tests of sw::retrieve on generated scans (test_retrieve.cpp,
 // test_thread_pool.cpp, test_uncertainty.cpp, ...): the neon reference scan at a given count
-// level and the ptychographic engine's options.
+// level, the few-counts scan, and the ptychographic engine's options.
 
 #include "retrieval/analysis/retrieve.h"
 #include "synthetic/presets.h"
@@ -15,6 +15,15 @@ inline synthetic::ScanConfig neon_reference_61_delays(double peak_counts) {
   synthetic::ScanConfig cfg = synthetic::find_preset("neon-150as").config;
   cfg.geometry.delay_fs = {-6.0, 0.2, 61};
   cfg.noise.peak_counts = peak_counts;
+  return cfg;
+}
+
+/// The few-counts scan (preset neon-chirped-neg at 40 expected peak counts, no background),
+/// which `auto` hands to the full model (RetrieveOptions::cma_min_signal_counts).
+inline synthetic::ScanConfig neon_few_counts() {
+  synthetic::ScanConfig cfg = synthetic::find_preset("neon-chirped-neg").config;
+  cfg.noise.peak_counts = 40.0;
+  cfg.noise.background_counts = 0.0;
   return cfg;
 }
 

@@ -173,16 +173,26 @@ TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") 
   append_settings_echo(RetrieveOptions{}, &echo);
   std::vector<std::string> keys;
   for (const Param& p : echo) keys.push_back(p.key);
-  CHECK(keys == std::vector<std::string>{
-                    "settings.engine", "settings.iterations", "settings.bootstrap", "settings.seed",
-                    "settings.threads", "settings.uncertainty", "settings.warm_patience",
-                    "settings.full_model_patience", "settings.cma_phase_error_max_rad",
-                    "settings.cma_trace_error_max_ratio", "settings.cma_min_signal_counts",
-                    "settings.method_sigma_relative", "settings.window_cut_sigma_per_share",
-                    "settings.isolated_max_satellite_ratio",
-                    "settings.satellites_max_satellite_ratio", "settings.satellite_start",
-                    "settings.satellite_start_ratio", "settings.dipole",
-                    "settings.energy_combine"});
+  CHECK(keys == std::vector<std::string>{"settings.engine",
+                                         "settings.iterations",
+                                         "settings.bootstrap",
+                                         "settings.seed",
+                                         "settings.threads",
+                                         "settings.uncertainty",
+                                         "settings.laplace_check_replicas",
+                                         "settings.warm_patience",
+                                         "settings.full_model_patience",
+                                         "settings.cma_phase_error_max_rad",
+                                         "settings.cma_trace_error_max_ratio",
+                                         "settings.cma_min_signal_counts",
+                                         "settings.method_sigma_relative",
+                                         "settings.window_cut_sigma_per_share",
+                                         "settings.isolated_max_satellite_ratio",
+                                         "settings.satellites_max_satellite_ratio",
+                                         "settings.satellite_start",
+                                         "settings.satellite_start_ratio",
+                                         "settings.dipole",
+                                         "settings.energy_combine"});
   // Integers are written as integers, the dipole by name.
   CHECK(std::holds_alternative<long long>(echo[1].value));
   CHECK(std::get<std::string>(echo[echo.size() - 2].value) == "constant");

@@ -190,9 +190,7 @@ TEST_CASE("few counts per bin: auto refines the CMA result with the full model a
   // At ~22 counts per delay row in the strongest bin the CMA engine's projections follow the
   // counting noise (docs/validation.md "Few counts per bin"); auto hands such scans to the
   // full model (RetrieveOptions::cma_min_signal_counts, default 60, our choice).
-  synthetic::ScanConfig cfg = synthetic::find_preset("neon-chirped-neg").config;
-  cfg.noise.peak_counts = 40.0;
-  cfg.noise.background_counts = 0.0;
+  const synthetic::ScanConfig cfg = test::neon_few_counts();
   const auto scan = synthetic::generate_scan(cfg, 21);
   RetrieveOptions o;
   o.bootstrap = 0;

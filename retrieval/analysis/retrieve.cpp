@@ -467,6 +467,30 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     comparable.push_back(pulse_metrics(c, pr.ir_omega_au, band_lo, band_hi));
   }
 
+  // The systematic parts of the headline sigmas (retrieve.h): the spread over the equally good
+  // runs of the chain (0 with one), the method's own systematic as a floor
+  // (RetrieveOptions::method_sigma_relative), and for the FWHM a window cut inside the
+  // reference's streaked band (it leaves part of the line unmeasured).
+  auto systematic = [&](auto get) {
+    std::vector<double> vals;
+    for (const auto& c : comparable)
+      if (const std::optional<double> x = get(c)) vals.push_back(*x);
+    return stddev(vals);
+  };
+  auto with_floor = [&](double sys, const std::optional<double>& value) {
+    return value ? std::max(sys, opt.method_sigma_relative * std::abs(*value)) : sys;
+  };
+  const double cut_sigma = m.xuv.fwhm_as
+                               ? opt.window_cut_sigma_per_share * out.preprocess.window_cut_share *
+                                     std::abs(*m.xuv.fwhm_as)
+                               : 0.0;
+  const double fwhm_sys = std::hypot(
+      with_floor(systematic([](const PulseMetrics& c) { return c.xuv.fwhm_as; }), m.xuv.fwhm_as),
+      cut_sigma);
+  const double a0_sys =
+      with_floor(systematic([](const PulseMetrics& c) { return c.ir.peak_vector_potential_au; }),
+                 m.ir.peak_vector_potential_au);
+
   // Bootstrap (uncertainty = full): each replica repeats the whole analysis on a Poisson draw
   // of the counts: the CMA engine from its own initial guess with its own delay order, the full
   // model from that replica's CMA result (or from its own guess, as the estimate did). A warm
@@ -487,6 +511,50 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // numbers into its own slot (the same results for any thread count).
   const bool warm = opt.uncertainty == UncertaintyMethod::kWarm;
   std::vector<std::array<double, 4>> samples(static_cast<std::size_t>(opt.bootstrap));
+  // Replica b of the chain (kFull's, or kWarm's), its progress under `stage`.
+  auto chain_replica = [&](int b, const std::string& stage) {
+    const Trace rep = poisson_resample(trace, replica_seed(opt.seed, b));
+    PreprocessSummary ps;
+    RetrievalProblem rp = preprocess(rep, same_bins, &ps);
+    EngineOptions bo = beo;
+    bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
+    Reconstruction br;
+    if (warm && !lines_step.used) {
+      // retrieval/analysis/uncertainty.h: the final engine from the estimate, until it stops
+      // moving.
+      EngineOptions wo = single_engine == "full-model" ? full_model_options(bo) : bo;
+      wo.initial_xuv = rec.xuv;
+      wo.initial_ir = rec.ir;
+      wo.noise_floor_factor = 0.0;
+      wo.relative_tolerance = std::max(wo.relative_tolerance, wo.noise_floor_relative_tolerance);
+      wo.patience = opt.warm_patience;
+      br = run_on(rp, single_engine, wo, stage);
+    } else if (single_engine == "full-model") {
+      // The same chain as the estimate: from the replica's own CMA result, or from the full
+      // model's own guess when that is where the estimate came from.
+      EngineOptions fo = full_model_options(bo);
+      if (full_model_from_cma) {
+        const Reconstruction c = run_on(rp, "ptychographic", bo, stage);
+        fo.initial_xuv = c.xuv;
+        fo.initial_ir = c.ir;
+      }
+      br = run_on(rp, "full-model", fo, stage);
+      if (satellite_sign != 0) {
+        Reconstruction sr = satellite_run(rp, br, satellite_sign, fo, stage);
+        if (sr.trace_error < br.trace_error) br = std::move(sr);
+      }
+    } else {
+      br = run_on(rp, single_engine, bo, stage);
+    }
+    if (lines_step.used) {  // the joint fit on the replica, from its single-line result
+      const EngineOptions jb = full_model_options(bo);
+      if (auto jr =
+              joint_line_replica(lines_step, rep, same_bins, rp, ps, br, jb, stage, runner, &bo))
+        br = std::move(*jr);
+    }
+    const auto [rlo, rhi] = band_of(rp);
+    return replica_metrics(pulse_metrics(br, pr.ir_omega_au, rlo, rhi));
+  };
   // uncertainty = laplace (retrieval/engines/full_model_laplace.h), where it applies.
   std::string uncertainty_used = to_string(opt.uncertainty);
   bool replicas_done = false;
@@ -521,52 +589,48 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     }
     if (!replicas_done) uncertainty_used = "full (laplace not applicable: " + why_not + ")";
   }
+  // The linearised sigmas tested against replicas of the full chain (uncertainty.h,
+  // RetrieveOptions::laplace_check_replicas); replicas 0 .. K-1 of the full bootstrap, kept for
+  // it when the check fails.
+  int chain_done = 0;
+  std::vector<std::pair<std::string, SigmaCheck>> checks;
+  if (replicas_done && opt.laplace_check_replicas > 0 && opt.bootstrap >= 2) {
+    const int K = std::min(opt.laplace_check_replicas, opt.bootstrap);
+    std::vector<std::array<double, 4>> chain(static_cast<std::size_t>(K));
+    parallel_for(K, resolve_threads(opt.threads), [&](int b) {
+      chain[static_cast<std::size_t>(b)] =
+          chain_replica(b, "laplace check " + std::to_string(b + 1) + "/" + std::to_string(K));
+    });
+    auto check = [&](const char* name, std::size_t k, const std::optional<double>& value,
+                     double sys) {
+      if (!value) return;
+      std::vector<double> lin, full;
+      for (const auto& x : samples) lin.push_back(x[k]);
+      for (const auto& x : chain) full.push_back(x[k]);
+      checks.emplace_back(name,
+                          check_sigma(*value, bootstrap_estimate(*value, lin, sys).sigma, full));
+    };
+    check("fwhm_as", 0, m.xuv.fwhm_as, fwhm_sys);
+    check("peak_vector_potential_au", 2, m.ir.peak_vector_potential_au, a0_sys);
+    std::string failed;
+    for (const auto& [name, c] : checks)
+      if (!c.pass)
+        failed += (failed.empty() ? "" : ", ") + name + " chi2 " + format_g(c.chi2, 3) + " > " +
+                  format_g(c.limit, 3);
+    if (!failed.empty()) {
+      replicas_done = false;
+      uncertainty_used = "full (laplace failed its check against " + std::to_string(K) +
+                         " full-chain replicas: " + failed + ")";
+      for (int b = 0; b < K; ++b)
+        samples[static_cast<std::size_t>(b)] = chain[static_cast<std::size_t>(b)];
+      chain_done = K;
+    }
+  }
   if (!replicas_done)
-    parallel_for(opt.bootstrap, resolve_threads(opt.threads), [&](int b) {
-      const Trace rep = poisson_resample(trace, replica_seed(opt.seed, b));
-      PreprocessSummary ps;
-      RetrievalProblem rp = preprocess(rep, same_bins, &ps);
-      EngineOptions bo = beo;
-      bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
-      const std::string stage =
-          "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
-      Reconstruction br;
-      if (warm && !lines_step.used) {
-        // retrieval/analysis/uncertainty.h: the final engine from the estimate, until it stops
-        // moving.
-        EngineOptions wo = single_engine == "full-model" ? full_model_options(bo) : bo;
-        wo.initial_xuv = rec.xuv;
-        wo.initial_ir = rec.ir;
-        wo.noise_floor_factor = 0.0;
-        wo.relative_tolerance = std::max(wo.relative_tolerance, wo.noise_floor_relative_tolerance);
-        wo.patience = opt.warm_patience;
-        br = run_on(rp, single_engine, wo, stage);
-      } else if (single_engine == "full-model") {
-        // The same chain as the estimate: from the replica's own CMA result, or from the full
-        // model's own guess when that is where the estimate came from.
-        EngineOptions fo = full_model_options(bo);
-        if (full_model_from_cma) {
-          const Reconstruction c = run_on(rp, "ptychographic", bo, stage);
-          fo.initial_xuv = c.xuv;
-          fo.initial_ir = c.ir;
-        }
-        br = run_on(rp, "full-model", fo, stage);
-        if (satellite_sign != 0) {
-          Reconstruction sr = satellite_run(rp, br, satellite_sign, fo, stage);
-          if (sr.trace_error < br.trace_error) br = std::move(sr);
-        }
-      } else {
-        br = run_on(rp, single_engine, bo, stage);
-      }
-      if (lines_step.used) {  // the joint fit on the replica, from its single-line result
-        const EngineOptions jb = full_model_options(bo);
-        if (auto jr =
-                joint_line_replica(lines_step, rep, same_bins, rp, ps, br, jb, stage, runner, &bo))
-          br = std::move(*jr);
-      }
-      const auto [rlo, rhi] = band_of(rp);
-      samples[static_cast<std::size_t>(b)] =
-          replica_metrics(pulse_metrics(br, pr.ir_omega_au, rlo, rhi));
+    parallel_for(opt.bootstrap - chain_done, resolve_threads(opt.threads), [&](int i) {
+      const int b = chain_done + i;
+      samples[static_cast<std::size_t>(b)] = chain_replica(
+          b, "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap));
     });
   std::vector<double> bf, bg, ba, bs;
   for (const auto& x : samples) {
@@ -607,13 +671,6 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   ClassifierOptions co;
   co.satellite_ratio = opt.satellite_ratio;
   VerdictSection v = classify(trace, co, &rec);
-  // Systematic spread over the equally good runs of the chain (0 with one).
-  auto systematic = [&](auto get) {
-    std::vector<double> vals;
-    for (const auto& c : comparable)
-      if (const std::optional<double> x = get(c)) vals.push_back(*x);
-    return stddev(vals);
-  };
   std::optional<double> fwhm_bias_over_sigma;
   if (opt.bootstrap >= 2) {
     // retrieve.h: Student-scaled replica spread, bias corrected only when small against it,
@@ -643,27 +700,17 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         if (be.spread > 0) fwhm_bias_over_sigma = std::abs(be.bias) / be.spread;
       }
     };
-    // The method's own systematic (RetrieveOptions::method_sigma_relative) as a floor.
-    auto with_floor = [&](double sys, const std::optional<double>& value) {
-      return value ? std::max(sys, opt.method_sigma_relative * std::abs(*value)) : sys;
-    };
-    // A window cut inside the reference's streaked band leaves part of the line unmeasured.
-    const double cut_sigma = res.xuv->fwhm_as
-                                 ? opt.window_cut_sigma_per_share *
-                                       out.preprocess.window_cut_share * std::abs(*res.xuv->fwhm_as)
-                                 : 0.0;
     if (cut_sigma > 0) res.extra.push_back({"xuv.fwhm_as_sigma_window_cut", cut_sigma});
-    corrected("fwhm_as", res.xuv->fwhm_as, res.xuv->fwhm_as_sigma, bf,
-              std::hypot(with_floor(systematic([](const PulseMetrics& c) { return c.xuv.fwhm_as; }),
-                                    res.xuv->fwhm_as),
-                         cut_sigma));
+    for (const auto& [name, c] : checks) {  // an infinite chi2 (bootstrap.method says so): none
+      if (std::isfinite(c.chi2))
+        res.extra.push_back({"bootstrap.laplace_check_" + name + "_chi2", c.chi2});
+      res.extra.push_back({"bootstrap.laplace_check_" + name + "_limit", c.limit});
+    }
+    corrected("fwhm_as", res.xuv->fwhm_as, res.xuv->fwhm_as_sigma, bf, fwhm_sys);
     corrected("gdd_as2", res.xuv->gdd_as2, res.xuv->gdd_as2_sigma, bg,
               systematic([](const PulseMetrics& c) { return c.xuv.gdd_as2; }));
-    corrected(
-        "peak_vector_potential_au", res.ir->peak_vector_potential_au,
-        res.ir->peak_vector_potential_au_sigma, ba,
-        with_floor(systematic([](const PulseMetrics& c) { return c.ir.peak_vector_potential_au; }),
-                   res.ir->peak_vector_potential_au));
+    corrected("peak_vector_potential_au", res.ir->peak_vector_potential_au,
+              res.ir->peak_vector_potential_au_sigma, ba, a0_sys);
     // The satellite ratio decides the class and is never moved; its sigma follows the same rule
     // as the other headline numbers (replica spread, an uncorrected bias, the chain's
     // systematic spread), and a bias that would be corrected widens it as well.

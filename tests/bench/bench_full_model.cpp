@@ -15,7 +15,8 @@
 //                               bootstrap replicas on T worker threads, wall time of one run
 //                               (slow: ~1-4 min each);
 //   BM_HeliumRetrieveFixed/8/2  BM_HeliumRetrieve/8/2 with the fixed block layout;
-//   BM_HeliumRetrieveLaplace/8/2  BM_HeliumRetrieve/8/2 with `--uncertainty laplace`;
+//   BM_HeliumRetrieveLaplace/8/2/K  BM_HeliumRetrieve/8/2 with `--uncertainty laplace` and
+//                               `--laplace-check K` (K = 2, the default, and 0);
 //   BM_NarrowRetrieve/8/2       the same for the narrow-band neon-150as preset (ptychographic).
 // The problem is the helium-70as preset (seed 7) after preprocess(), as `retrieve` sees it.
 // tests/bench/run_bench.sh runs these with the numpy reference and prints the ratios.
@@ -181,6 +182,8 @@ void retrieve_run(benchmark::State& state, const Trace& t, const std::string& no
   RetrieveOptions o;
   o.engine_settings.full_model.node_plan = node_plan;
   o.uncertainty = uncertainty;
+  if (uncertainty == UncertaintyMethod::kLaplace)
+    o.laplace_check_replicas = static_cast<int>(state.range(2));
   o.bootstrap = static_cast<int>(state.range(0));
   o.threads = static_cast<int>(state.range(1));
   RetrieveOutput r;
@@ -216,11 +219,15 @@ void BM_HeliumRetrieveFixed(benchmark::State& state) {
 BENCHMARK(BM_HeliumRetrieveFixed)->Args({8, 2})->Apply(sw::bench::one_timed_run);
 
 // The same with linearised replicas (retrieval/engines/full_model_laplace.h): one Newton step per
-// replica from the estimate instead of the engine chain.
+// replica from the estimate instead of the engine chain; the third argument the full-chain
+// replicas that check them (RetrieveOptions::laplace_check_replicas: 2 the default, 0 none).
 void BM_HeliumRetrieveLaplace(benchmark::State& state) {
   retrieve_run(state, helium_scan().trace, "fewest", UncertaintyMethod::kLaplace);
 }
-BENCHMARK(BM_HeliumRetrieveLaplace)->Args({8, 2})->Apply(sw::bench::one_timed_run);
+BENCHMARK(BM_HeliumRetrieveLaplace)
+    ->Args({8, 2, 2})
+    ->Args({8, 2, 0})
+    ->Apply(sw::bench::one_timed_run);
 
 // The narrow-band reference: the neon-150as preset (seed 7), which `auto` keeps with the
 // ptychographic engine; the default analysis (8 replicas, 2 threads).

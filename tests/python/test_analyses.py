@@ -152,8 +152,11 @@ def test_retrieve_keywords_are_the_cli_options():
     assert got["settings"]["satellite_start"] is False
     # Linearised replicas apply to a full-model headline only; on this CMA one the full bootstrap
     # runs and result.json says why.
-    got = sw.retrieve(scan, **{**fast, "bootstrap": 2}, uncertainty="laplace").to_dict()
+    got = sw.retrieve(
+        scan, **{**fast, "bootstrap": 2}, uncertainty="laplace", laplace_check=1
+    ).to_dict()
     assert got["settings"]["uncertainty"] == "laplace"
+    assert got["settings"]["laplace_check_replicas"] == 1
     assert got["bootstrap"]["method"].startswith("full (laplace not applicable")
     # An invalid value: ValueError naming the keyword (and the rule); a wrong type: TypeError.
     with pytest.raises(ValueError, match=r"uncertainty = 'lukewarm': expected full\|warm"):

@@ -84,6 +84,7 @@ SweepRow run_case(const ValidationCase& k, const SweepOptions& o, const std::str
     row.a0 = a.ir ? a.ir->peak_vector_potential_au.value_or(std::nan("")) : std::nan("");
     row.retrieved_class = a.verdict ? to_string(a.verdict->pulse_class) : "none";
     row.window_cut_share = param_number(a.extra, "preprocess.window_cut_share").value_or(0.0);
+    row.uncertainty_method = param_string(a.extra, "bootstrap.method");
     if (a.quality) {
       row.has_quality = true;
       row.trusted = a.quality->trusted;
@@ -258,7 +259,7 @@ std::string sweep_csv_header() {
   return "case,imperfection,good,peak_counts,tolerance,truth_fwhm_as,fwhm_as,fwhm_sigma_as,"
          "fwhm_error_pct,error_over_sigma,truth_a0_au,a0_au,a0_error_pct,truth_class,"
          "retrieved_class,quality_present,trusted,failed,within_1sigma,within_2sigma,wrong,"
-         "wrong_and_trusted,engine,seconds,error,window_cut_share";
+         "wrong_and_trusted,engine,seconds,error,window_cut_share,uncertainty_method";
 }
 
 std::string sweep_csv_line(const SweepRow& r) {
@@ -270,7 +271,8 @@ std::string sweep_csv_line(const SweepRow& r) {
     << r.a0 << ',' << 100 * r.a0_error() << ',' << r.truth_class << ',' << r.retrieved_class << ','
     << r.has_quality << ',' << r.trusted << ',' << csv_field(r.failed) << ',' << r.within(1) << ','
     << r.within(2) << ',' << r.wrong() << ',' << r.wrong_and_trusted() << ',' << r.engine << ','
-    << r.seconds << ',' << csv_field(r.error) << ',' << r.window_cut_share;
+    << r.seconds << ',' << csv_field(r.error) << ',' << r.window_cut_share << ','
+    << csv_field(r.uncertainty_method);
   return s.str();
 }
 
@@ -306,8 +308,9 @@ std::vector<SweepRow> rows_from_csv(const std::string& text, const std::string& 
   while (std::getline(in, line)) {
     if (++n == 1 || line.empty()) continue;
     const std::vector<std::string> f = split(line);
-    if (f.size() != 25 && f.size() != 26)  // 25: files written before window_cut_share
-      throw input_error(where + " line " + std::to_string(n) + ": expected 26 fields, got " +
+    // 25: files written before window_cut_share, 26: before uncertainty_method.
+    if (f.size() < 25 || f.size() > 27)
+      throw input_error(where + " line " + std::to_string(n) + ": expected 27 fields, got " +
                         std::to_string(f.size()));
     auto num = [&](int i) {
       try {
@@ -336,6 +339,7 @@ std::vector<SweepRow> rows_from_csv(const std::string& text, const std::string& 
     r.seconds = num(23);
     r.error = f[24];
     if (f.size() > 25) r.window_cut_share = num(25);
+    if (f.size() > 26) r.uncertainty_method = f[26];
     rows.push_back(r);
   }
   return rows;

@@ -88,7 +88,8 @@ struct SweepRow {
   std::string engine;
   std::string error;  ///< non-empty when the analysis threw (the message)
   double seconds = 0;
-  double window_cut_share = 0;  ///< preprocess.window_cut_share (0 = no cut inside the band)
+  double window_cut_share = 0;     ///< preprocess.window_cut_share (0 = no cut inside the band)
+  std::string uncertainty_method;  ///< bootstrap.method ("" without replicas)
 
   double fwhm_error() const;    ///< (retrieved - truth) / truth
   double a0_error() const;      ///< (retrieved - truth) / truth
