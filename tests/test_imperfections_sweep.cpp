@@ -119,3 +119,34 @@ TEST_CASE("smoke run: two cases end to end through the sweep", "[validation]") {
   CHECK(md.find("wrong and trusted") != std::string::npos);
   CHECK_THROWS_WITH(run_sweep({"no-such-case"}, o), Catch::Contains("known cases"));
 }
+
+TEST_CASE(
+    "laplace's check on a scan where the linearised sigma is 4x too small: the full "
+    "bootstrap runs and reuses its replicas",
+    "[validation][slow]") {
+  // low40-tof-ne (time of flight, 40 peak counts): the full bootstrap's FWHM sigma is 56.5 as,
+  // the linearised one 14.7 as (docs/validation.md, "Checked linearised replicas"). The two
+  // checking replicas must fail the chi-square test (retrieval/analysis/uncertainty.h), and the
+  // result must then be the full bootstrap's to the digit: the same replicas, the same seeds.
+  SweepOptions o;
+  o.bootstrap = 4;
+  o.jobs = 1;
+  o.verbose = false;
+  o.uncertainty = "laplace";
+  const std::vector<SweepRow> checked = run_sweep({"low40-tof-ne"}, o);
+  o.uncertainty = "full";
+  const std::vector<SweepRow> full = run_sweep({"low40-tof-ne"}, o);
+  REQUIRE(checked.size() == 1);
+  REQUIRE(full.size() == 1);
+  INFO(checked[0].uncertainty_method);
+  CHECK(checked[0].uncertainty_method.rfind(
+            "full (laplace failed its check against 2 full-chain replicas: fwhm_as chi2 ", 0) == 0);
+  CHECK(full[0].uncertainty_method == "full");
+  CHECK(checked[0].fwhm_as == full[0].fwhm_as);
+  CHECK(checked[0].fwhm_sigma_as == full[0].fwhm_sigma_as);
+  CHECK(checked[0].trusted == full[0].trusted);
+  // The method travels through the CSV (its last column).
+  const std::vector<SweepRow> back = rows_from_csv(sweep_csv(checked), "test");
+  REQUIRE(back.size() == 1);
+  CHECK(back[0].uncertainty_method == checked[0].uncertainty_method);
+}
