@@ -310,7 +310,7 @@ std::vector<SweepRow> rows_from_csv(const std::string& text, const std::string& 
     const std::vector<std::string> f = split(line);
     // 25: files written before window_cut_share, 26: before uncertainty_method.
     if (f.size() < 25 || f.size() > 27)
-      throw input_error(where + " line " + std::to_string(n) + ": expected 27 fields, got " +
+      throw input_error(where + " line " + std::to_string(n) + ": expected 25 to 27 fields, got " +
                         std::to_string(f.size()));
     auto num = [&](int i) {
       try {
