@@ -5,6 +5,7 @@
 #include <chrono>
 #include <cmath>
 #include <functional>
+#include <memory>
 #include <mutex>
 #include <numeric>
 #include <sstream>
@@ -175,64 +176,105 @@ std::array<double, 4> replica_metrics(const PulseMetrics& bm) {
           bm.satellite_intensity_ratio};
 }
 
-// Linearised replicas of a full-model estimate (retrieval/engines/full_model_laplace.h) on the
-// worker threads, `done` after each. A replica's numbers are the estimate's plus the move of the
-// linearised replica from the linearisation point (so that the re-encoding does not read as a
-// bias), centred on the estimate: the replicas have zero mean to first order, and their mean
-// move (second order, and with a few replicas mostly noise) is no estimate of the retrieval's
-// bias, so bootstrap_estimate's bias rule must not act on it.
+// Linearised replicas of a full-model estimate (retrieval/engines/full_model_laplace.h), one
+// per call of run(b) from any worker thread, `done` after each. A replica's numbers are the
+// estimate's plus the move of the linearised replica from the linearisation point (so that the
+// re-encoding does not read as a bias), centred on the estimate by finish(): the replicas have
+// zero mean to first order, and their mean move (second order, and with a few replicas mostly
+// noise) is no estimate of the retrieval's bias, so bootstrap_estimate's bias rule must not act
+// on it. The LaplaceReplicas are built by the first run() (replica 0's solve builds the
+// preconditioner the others use); a run(b) that comes while that is under way waits for it.
 struct LaplaceSamples {
   std::vector<std::array<double, 4>> samples;
   std::string failure;  // empty: every replica made
   int cg_iterations_max = 0;
 };
-LaplaceSamples laplace_samples(const RetrievalProblem& pr, const EngineOptions& eo,
-                               const Reconstruction& rec, const PulseMetrics& m, double lo,
-                               double hi, const RetrieveOptions& opt,
-                               const std::function<void()>& done) {
-  LaplaceSamples out;
-  LaplaceOptions lopt;
-  lopt.seed = opt.seed;
-  const LaplaceReplicas lap(pr, eo, rec, lopt);
-  out.failure = lap.failure();
-  if (!lap.ok()) return out;
-  const std::size_t B = static_cast<std::size_t>(opt.bootstrap);
-  const std::array<double, 4> m0 = replica_metrics(m);
-  const std::array<double, 4> mc =
-      replica_metrics(pulse_metrics(lap.centre(), pr.ir_omega_au, lo, hi));
-  std::vector<LaplaceReplica> reps(B);
-  out.samples.assign(B, m0);
-  // After a failure the full bootstrap will run: the replicas not yet started are skipped (they
-  // are taken in index order, so the first failure by index is the same for any thread count).
-  std::atomic<bool> failed{false};
-  parallel_for(opt.bootstrap, resolve_threads(opt.threads), [&](int b) {
-    LaplaceReplica& rb = reps[static_cast<std::size_t>(b)];
-    if (failed) {
+class LaplaceSampler {
+ public:
+  LaplaceSampler(const RetrievalProblem& pr, const EngineOptions& eo, const Reconstruction& rec,
+                 const PulseMetrics& m, double lo, double hi, const RetrieveOptions& opt,
+                 std::function<void()> done)
+      : pr_(pr),
+        eo_(eo),
+        rec_(rec),
+        lo_(lo),
+        hi_(hi),
+        seed_(opt.seed),
+        done_(std::move(done)),
+        m0_(replica_metrics(m)),
+        reps_(static_cast<std::size_t>(opt.bootstrap)) {
+    samples_.assign(reps_.size(), m0_);
+  }
+
+  void run(int b) {
+    std::call_once(built_, [&] {
+      LaplaceOptions lopt;
+      lopt.seed = seed_;
+      lap_ = std::make_unique<const LaplaceReplicas>(pr_, eo_, rec_, lopt);
+      if (lap_->ok())
+        mc_ = replica_metrics(pulse_metrics(lap_->centre(), pr_.ir_omega_au, lo_, hi_));
+    });
+    LaplaceReplica& rb = reps_[static_cast<std::size_t>(b)];
+    // After a failure the full bootstrap will run: replicas not yet started are skipped.
+    if (!lap_->ok() || failed_) {
       rb.failure = "skipped";
       return;
     }
-    rb = lap.replica(b);
+    rb = lap_->replica(b);
     if (rb.ok) {
       const std::array<double, 4> mb =
-          replica_metrics(pulse_metrics(rb.fields, pr.ir_omega_au, lo, hi));
+          replica_metrics(pulse_metrics(rb.fields, pr_.ir_omega_au, lo_, hi_));
       for (std::size_t k = 0; k < 4; ++k)
-        out.samples[static_cast<std::size_t>(b)][k] = m0[k] + (mb[k] - mc[k]);
+        samples_[static_cast<std::size_t>(b)][k] = m0_[k] + (mb[k] - mc_[k]);
     } else {
-      failed = true;
+      failed_ = true;
     }
-    done();
-  });
-  for (const LaplaceReplica& rb : reps) {
-    if (!rb.ok && out.failure.empty()) out.failure = "replica: " + rb.failure;
-    out.cg_iterations_max = std::max(out.cg_iterations_max, rb.cg_iterations);
+    done_();
   }
-  for (std::size_t k = 0; k < 4; ++k) {
-    double mean = 0.0;
-    for (const auto& x : out.samples) mean += (x[k] - m0[k]) / static_cast<double>(B);
-    for (auto& x : out.samples) x[k] -= mean;
+
+  // After every run(b): the samples, or the reason they cannot be used (the construction's
+  // failure, else that of the lowest failed replica, which does not depend on the thread count:
+  // a replica's failure is a property of its own draw, and every replica below the first
+  // failure by index has started before it).
+  LaplaceSamples finish() {
+    LaplaceSamples out;
+    if (!lap_) {
+      out.failure = "no replica ran";
+      return out;
+    }
+    out.failure = lap_->failure();
+    if (!lap_->ok()) return out;
+    for (const LaplaceReplica& rb : reps_) {
+      if (!rb.ok && rb.failure != "skipped" && out.failure.empty())
+        out.failure = "replica: " + rb.failure;
+      out.cg_iterations_max = std::max(out.cg_iterations_max, rb.cg_iterations);
+    }
+    if (!out.failure.empty()) return out;
+    const auto B = static_cast<double>(samples_.size());
+    for (std::size_t k = 0; k < 4; ++k) {
+      double mean = 0.0;
+      for (const auto& x : samples_) mean += (x[k] - m0_[k]) / B;
+      for (auto& x : samples_) x[k] -= mean;
+    }
+    out.samples = std::move(samples_);
+    return out;
   }
-  return out;
-}
+
+ private:
+  const RetrievalProblem& pr_;
+  const EngineOptions eo_;  // a copy: the caller passes a temporary
+  const Reconstruction& rec_;
+  const double lo_, hi_;
+  const unsigned long long seed_;
+  const std::function<void()> done_;
+  const std::array<double, 4> m0_;
+  std::array<double, 4> mc_{};
+  std::once_flag built_;
+  std::unique_ptr<const LaplaceReplicas> lap_;
+  std::vector<LaplaceReplica> reps_;
+  std::vector<std::array<double, 4>> samples_;
+  std::atomic<bool> failed_{false};
+};
 
 }  // namespace
 
@@ -555,10 +597,15 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     const auto [rlo, rhi] = band_of(rp);
     return replica_metrics(pulse_metrics(br, pr.ir_omega_au, rlo, rhi));
   };
-  // uncertainty = laplace (retrieval/engines/full_model_laplace.h), where it applies.
+  // uncertainty = laplace (retrieval/engines/full_model_laplace.h), where it applies, with the
+  // full-chain replicas that test its sigmas (uncertainty.h, RetrieveOptions::
+  // laplace_check_replicas): replicas 0 .. K-1 of the full bootstrap, kept for it when laplace
+  // fails or fails its check.
   std::string uncertainty_used = to_string(opt.uncertainty);
   bool replicas_done = false;
   int laplace_cg_iterations = 0;  // the most Hessian-vector products of one replica
+  int chain_done = 0;             // replicas 0 .. chain_done - 1 of the full bootstrap are made
+  std::vector<std::array<double, 4>> check_chain;  // the check's full-chain replicas
   if (opt.uncertainty == UncertaintyMethod::kLaplace && opt.bootstrap > 0) {
     std::string why_not;
     if (single_engine != "full-model" || lines_step.used) {
@@ -578,35 +625,47 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
                      std::to_string(opt.bootstrap),
                  r);
       };
-      LaplaceSamples ls =
-          laplace_samples(pr, full_model_options(beo), rec, m, band_lo, band_hi, opt, done);
+      const int K = opt.bootstrap >= 2 ? std::min(opt.laplace_check_replicas, opt.bootstrap) : 0;
+      check_chain.resize(static_cast<std::size_t>(K));
+      LaplaceSampler sampler(pr, full_model_options(beo), rec, m, band_lo, band_hi, opt, done);
+      // One task list on the worker threads: linearised replica 0 (it builds the preconditioner
+      // of the others), the K check replicas (each a whole chain, the longest tasks), then the
+      // other linearised replicas; so a second thread runs a check replica while replica 0's CG
+      // runs. Every task writes its own slot: the same numbers for any thread count.
+      parallel_for(opt.bootstrap + K, resolve_threads(opt.threads), [&](int t) {
+        if (t == 0) {
+          sampler.run(0);
+        } else if (t <= K) {
+          check_chain[static_cast<std::size_t>(t - 1)] =
+              chain_replica(t - 1, "laplace check " + std::to_string(t) + "/" + std::to_string(K));
+        } else {
+          sampler.run(t - K);
+        }
+      });
+      LaplaceSamples ls = sampler.finish();
       why_not = ls.failure;
       if (why_not.empty()) {
         samples = std::move(ls.samples);
         replicas_done = true;
         laplace_cg_iterations = ls.cg_iterations_max;
+      } else {
+        for (int b = 0; b < K; ++b)
+          samples[static_cast<std::size_t>(b)] = check_chain[static_cast<std::size_t>(b)];
+        chain_done = K;
       }
     }
     if (!replicas_done) uncertainty_used = "full (laplace not applicable: " + why_not + ")";
   }
-  // The linearised sigmas tested against replicas of the full chain (uncertainty.h,
-  // RetrieveOptions::laplace_check_replicas); replicas 0 .. K-1 of the full bootstrap, kept for
-  // it when the check fails.
-  int chain_done = 0;
+  // The linearised sigmas tested against the full-chain replicas.
   std::vector<std::pair<std::string, SigmaCheck>> checks;
-  if (replicas_done && opt.laplace_check_replicas > 0 && opt.bootstrap >= 2) {
-    const int K = std::min(opt.laplace_check_replicas, opt.bootstrap);
-    std::vector<std::array<double, 4>> chain(static_cast<std::size_t>(K));
-    parallel_for(K, resolve_threads(opt.threads), [&](int b) {
-      chain[static_cast<std::size_t>(b)] =
-          chain_replica(b, "laplace check " + std::to_string(b + 1) + "/" + std::to_string(K));
-    });
+  if (replicas_done && !check_chain.empty()) {
+    const int K = static_cast<int>(check_chain.size());
     auto check = [&](const char* name, std::size_t k, const std::optional<double>& value,
                      double sys) {
       if (!value) return;
       std::vector<double> lin, full;
       for (const auto& x : samples) lin.push_back(x[k]);
-      for (const auto& x : chain) full.push_back(x[k]);
+      for (const auto& x : check_chain) full.push_back(x[k]);
       checks.emplace_back(name,
                           check_sigma(*value, bootstrap_estimate(*value, lin, sys).sigma, full));
     };
@@ -622,7 +681,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       uncertainty_used = "full (laplace failed its check against " + std::to_string(K) +
                          " full-chain replicas: " + failed + ")";
       for (int b = 0; b < K; ++b)
-        samples[static_cast<std::size_t>(b)] = chain[static_cast<std::size_t>(b)];
+        samples[static_cast<std::size_t>(b)] = check_chain[static_cast<std::size_t>(b)];
       chain_done = K;
     }
   }

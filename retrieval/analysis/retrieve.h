@@ -104,7 +104,8 @@ struct RetrieveOptions {
   /// test the linearised sigmas of the FWHM and the IR peak A0 before they are reported
   /// (check_sigma, retrieval/analysis/uncertainty.h); when either fails, the full bootstrap runs
   /// (reusing these K) and result.json's bootstrap.method says why. 0 = no check. Default 2 (our
-  /// choice, each costing one replica of the full bootstrap). Measured on the validation set
+  /// choice, each costing one replica of the full bootstrap; they run on the worker threads beside
+  /// the linearised replicas). Measured on the validation set
   /// (docs/validation.md): a linearised sigma 3.8x too small (a time-of-flight scan, 14.7 as
   /// against the full bootstrap's 56.5 as) failed at chi2 = 38; a second minimum that one of
   /// four full replicas fell into (a 3-burst train, 174 as against 203 as) is seen only when
@@ -121,12 +122,14 @@ struct RetrieveOptions {
   /// starts, the joint lines, each replica): EngineOptions::patience, the engine iterations
   /// (FullModelSettings::lbfgs_per_iteration = 10 L-BFGS iterations each) over which G must
   /// settle -- at the noise floor, relative change < noise_floor_relative_tolerance; above it,
-  /// < relative_tolerance -- before the run stops (>= 1). Default 5 (our choice; 20 before, the
-  /// patience of the CMA engines, whose iteration is one pass over the delays): started from a
-  /// CMA result the full model reaches the floor within 1-2 iterations and then only moves G by
-  /// ~1e-5 of itself while following the counting noise, so 20 iterations spent 200 L-BFGS
-  /// iterations for nothing (docs/performance.md "Fewer evaluations").
-  int full_model_patience = 5;
+  /// < relative_tolerance -- before the run stops (>= 1). Default 2 (our choice; 20 at first, the
+  /// patience of the CMA engines, whose iteration is one pass over the delays, then 5): started
+  /// from a CMA result the full model reaches the floor within 1-2 iterations and then only moves
+  /// G by ~1e-5 of itself while following the counting noise, so the window is spent for nothing
+  /// (docs/performance.md "Fewer evaluations" and "Round 11": 5 -> 2 took the helium analysis from
+  /// 38.2 to 27.4 s CPU, with the coverage, wrong and trusted counts of the validation set
+  /// unchanged, docs/validation.md).
+  int full_model_patience = 2;
   /// auto: largest CMA phase error (rad) tolerated before the full model refines.
   double cma_phase_error_max_rad = 0.6;
   /// auto: largest G / G_noise (trace error over its noise floor) accepted from the CMA
@@ -240,9 +243,11 @@ struct RetrieveOptions {
       self.warm_patience);
     v(OptionSpec{.name = "full_model_patience",
                  .help = "full-model runs: iterations (10 L-BFGS steps each) over which G must "
-                         "settle to stop",
+                         "settle to stop (5 reproduces results made before the default became 2)",
                  .min = 1,
-                 .max = 1000},
+                 .max = 1000,
+                 .flag = "--full-model-patience",
+                 .config_key = "full_model_patience"},
       self.full_model_patience);
     v(OptionSpec{.name = "cma_phase_error_max_rad",
                  .unit = "rad",

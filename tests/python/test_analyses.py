@@ -153,16 +153,20 @@ def test_retrieve_keywords_are_the_cli_options():
     # Linearised replicas apply to a full-model headline only; on this CMA one the full bootstrap
     # runs and result.json says why.
     got = sw.retrieve(
-        scan, **{**fast, "bootstrap": 2}, uncertainty="laplace", laplace_check=1
+        scan, **{**fast, "bootstrap": 2}, uncertainty="laplace", laplace_check=1,
+        full_model_patience=5,
     ).to_dict()
     assert got["settings"]["uncertainty"] == "laplace"
     assert got["settings"]["laplace_check_replicas"] == 1
+    assert got["settings"]["full_model_patience"] == 5
     assert got["bootstrap"]["method"].startswith("full (laplace not applicable")
     # An invalid value: ValueError naming the keyword (and the rule); a wrong type: TypeError.
     with pytest.raises(ValueError, match=r"uncertainty = 'lukewarm': expected full\|warm"):
         sw.retrieve(scan, **fast, uncertainty="lukewarm")
     with pytest.raises(ValueError, match="cma_phase_limit = 0: must be > 0 rad"):
         sw.retrieve(scan, **fast, cma_phase_limit=0.0)
+    with pytest.raises(ValueError, match="full_model_patience = 0"):
+        sw.retrieve(scan, **fast, full_model_patience=0)
     with pytest.raises(ValueError, match="lines"):
         sw.retrieve(scan, **fast, lines="2s,none")
     with pytest.raises(TypeError, match="bootstrap"):
