@@ -244,9 +244,8 @@ class LaplaceSampler {
     }
     out.failure = lap_->failure();
     if (!lap_->ok()) return out;
-    for (const LaplaceReplica& rb : reps_) {
-      if (!rb.ok && rb.failure != "skipped" && out.failure.empty())
-        out.failure = "replica: " + rb.failure;
+    for (const LaplaceReplica& rb : reps_) {  // the first by index is never a skipped one
+      if (!rb.ok && out.failure.empty()) out.failure = "replica: " + rb.failure;
       out.cg_iterations_max = std::max(out.cg_iterations_max, rb.cg_iterations);
     }
     if (!out.failure.empty()) return out;
@@ -604,7 +603,6 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   std::string uncertainty_used = to_string(opt.uncertainty);
   bool replicas_done = false;
   int laplace_cg_iterations = 0;  // the most Hessian-vector products of one replica
-  int chain_done = 0;             // replicas 0 .. chain_done - 1 of the full bootstrap are made
   std::vector<std::array<double, 4>> check_chain;  // the check's full-chain replicas
   if (opt.uncertainty == UncertaintyMethod::kLaplace && opt.bootstrap > 0) {
     std::string why_not;
@@ -648,10 +646,6 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         samples = std::move(ls.samples);
         replicas_done = true;
         laplace_cg_iterations = ls.cg_iterations_max;
-      } else {
-        for (int b = 0; b < K; ++b)
-          samples[static_cast<std::size_t>(b)] = check_chain[static_cast<std::size_t>(b)];
-        chain_done = K;
       }
     }
     if (!replicas_done) uncertainty_used = "full (laplace not applicable: " + why_not + ")";
@@ -680,11 +674,12 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       replicas_done = false;
       uncertainty_used = "full (laplace failed its check against " + std::to_string(K) +
                          " full-chain replicas: " + failed + ")";
-      for (int b = 0; b < K; ++b)
-        samples[static_cast<std::size_t>(b)] = check_chain[static_cast<std::size_t>(b)];
-      chain_done = K;
     }
   }
+  // Where the full bootstrap runs after all, the check's replicas are its replicas 0 .. K-1.
+  const int chain_done = replicas_done ? 0 : static_cast<int>(check_chain.size());
+  for (int b = 0; b < chain_done; ++b)
+    samples[static_cast<std::size_t>(b)] = check_chain[static_cast<std::size_t>(b)];
   if (!replicas_done)
     parallel_for(opt.bootstrap - chain_done, resolve_threads(opt.threads), [&](int i) {
       const int b = chain_done + i;

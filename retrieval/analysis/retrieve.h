@@ -106,8 +106,9 @@ struct RetrieveOptions {
   /// (reusing these K) and result.json's bootstrap.method says why. 0 = no check. Default 2 (our
   /// choice, each costing one replica of the full bootstrap; they run on the worker threads beside
   /// the linearised replicas). Measured on the validation set
-  /// (docs/validation.md): a linearised sigma 3.8x too small (a time-of-flight scan, 14.7 as
-  /// against the full bootstrap's 56.5 as) failed at chi2 = 38; a second minimum that one of
+  /// (docs/validation.md, with the settle window of 5): a linearised sigma 3.8x too small (a
+  /// time-of-flight scan, 14.7 as against the full bootstrap's 56.5 as) failed at chi2 = 38
+  /// (31.8 with the window of 2); a second minimum that one of
   /// four full replicas fell into (a 3-burst train, 174 as against 203 as) is seen only when
   /// that replica is among the K (K = 2: probability 1 - (3/4)^2 = 0.44; it was not).
   int laplace_check_replicas = 2;
@@ -127,8 +128,10 @@ struct RetrieveOptions {
   /// from a CMA result the full model reaches the floor within 1-2 iterations and then only moves
   /// G by ~1e-5 of itself while following the counting noise, so the window is spent for nothing
   /// (docs/performance.md "Fewer evaluations" and "Round 11": 5 -> 2 took the helium analysis from
-  /// 38.2 to 27.4 s CPU, with the coverage, wrong and trusted counts of the validation set
-  /// unchanged, docs/validation.md).
+  /// 34.5 to 24.4 s CPU; on the eight validation files no change beyond their noise, paired
+  /// |error|/sigma +0.03 +- 0.04, within 2 sigma 91 -> 90 of 96, wrong 12 -> 11, wrong and
+  /// trusted 0, trusted 54 -> 52; docs/validation.md "A shorter settle window"). The window is
+  /// echoed as settings.full_model_patience: 5 in a result.json made before.
   int full_model_patience = 2;
   /// auto: largest CMA phase error (rad) tolerated before the full model refines.
   double cma_phase_error_max_rad = 0.6;
