@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <stdexcept>
 #include <string>
 
 #include "retrieval/analysis/quality.h"
@@ -221,26 +222,23 @@ JointLineStep joint_line_estimate(const Trace& trace, const PreprocessOptions& p
     S.warnings.push_back(std::string("joint fit of the lines failed (") + e.what() +
                          "); the single-line pulse and the centre-of-energy delays are reported");
   }
-  S.replica_delay_as.assign(S.joint.line_index.size(), {});
-  S.replica_strength.assign(S.joint.line_index.size(), {});
   return S;
 }
 
 std::optional<Reconstruction> joint_line_replica(
-    JointLineStep& S, const Trace& replica, const PreprocessOptions& popt,
+    JointLineStep& S, int index, const Trace& replica, const PreprocessOptions& popt,
     const RetrievalProblem& single, const PreprocessSummary& summary,
     const Reconstruction& single_rec, const EngineOptions& eo, const std::string& stage,
     const EngineRunner& run, const EngineOptions* cma) {
   if (!S.used) return std::nullopt;
+  if (index < 0 || static_cast<std::size_t>(index) >= S.replicas.size())
+    throw std::logic_error("joint_line_replica: replica index outside JointLineStep::replicas");
   std::vector<char> flags;
   std::vector<double> delay, strength;
   initial_values(*S.centre_of_energy, &S.joint.line_index, &flags, &delay, &strength);
   JointLineProblem jp = joint_line_problem(replica, popt, single, summary,
                                            S.centre_of_energy->lines, flags, delay, strength);
-  if (!jp.ok || jp.line_index != S.joint.line_index) {
-    ++S.replicas_failed;
-    return std::nullopt;
-  }
+  if (!jp.ok || jp.line_index != S.joint.line_index) return std::nullopt;
   try {
     std::optional<Reconstruction> cma_rec;
     EngineOptions jo = eo;
@@ -250,14 +248,9 @@ std::optional<Reconstruction> joint_line_replica(
       jo = joint_start(jp, single_rec, eo, nullptr, stage, run, &cma_rec);
     }
     Reconstruction r = run(jp.problem, "full-model", jo, stage + " (joint lines)");
-    const JointLineValues v = joint_line_values(r, jp.line_index.size());
-    for (std::size_t l = 0; l < v.delay_as.size(); ++l) {
-      S.replica_delay_as[l].push_back(v.delay_as[l]);
-      S.replica_strength[l].push_back(v.strength[l]);
-    }
+    S.replicas[static_cast<std::size_t>(index)] = joint_line_values(r, jp.line_index.size());
     return r;
   } catch (const Error&) {
-    ++S.replicas_failed;
     return std::nullopt;
   }
 }
@@ -275,8 +268,21 @@ void joint_line_report(const JointLineStep& S, int bootstrap, std::vector<LineEn
       {"line_delays.joint_fit.noise_floor_trace_error", S.reconstruction.noise_floor_trace_error});
   extra->push_back({"line_delays.joint_fit.window_lo_eV", S.joint.summary.window_lo_eV});
   extra->push_back({"line_delays.joint_fit.window_hi_eV", S.joint.summary.window_hi_eV});
-  extra->push_back(
-      {"line_delays.joint_fit.replicas_failed", static_cast<long long>(S.replicas_failed)});
+  // The replicas' values per joint line, in replica order.
+  const std::size_t nl = S.joint.line_index.size();
+  std::vector<std::vector<double>> rep_delay(nl), rep_strength(nl);
+  long long failed = 0;
+  for (const std::optional<JointLineValues>& v : S.replicas) {
+    if (!v) {
+      ++failed;
+      continue;
+    }
+    for (std::size_t l = 0; l < nl; ++l) {
+      rep_delay[l].push_back(v->delay_as[l]);
+      rep_strength[l].push_back(v->strength[l]);
+    }
+  }
+  extra->push_back({"line_delays.joint_fit.replicas_failed", failed});
   for (std::size_t l = 0; l < S.joint.line_index.size(); ++l) {
     LineEntry& e = (*lines)[static_cast<std::size_t>(S.joint.line_index[l])];
     e.relative_delay_as_centre_of_energy = e.relative_delay_as;
@@ -292,14 +298,12 @@ void joint_line_report(const JointLineStep& S, int bootstrap, std::vector<LineEn
       extra->push_back({key + ".delay_as_before_polish", S.values.delay_before_polish_as[l]});
       extra->push_back({key + ".delay_as_sigma_curvature", S.values.delay_curvature_sigma_as[l]});
     }
-    const std::size_t reps = S.replica_delay_as[l].size();
+    const std::size_t reps = rep_delay[l].size();
     extra->push_back({key + ".replicas", static_cast<long long>(reps)});
     if (bootstrap >= 2 && reps >= 2) {
       // The same rule as the headline numbers (retrieval/analysis/quality.h, retrieve.h).
-      const BootstrapEstimate bd =
-          bootstrap_estimate(S.values.delay_as[l], S.replica_delay_as[l], 0.0);
-      const BootstrapEstimate bs =
-          bootstrap_estimate(S.values.strength[l], S.replica_strength[l], 0.0);
+      const BootstrapEstimate bd = bootstrap_estimate(S.values.delay_as[l], rep_delay[l], 0.0);
+      const BootstrapEstimate bs = bootstrap_estimate(S.values.strength[l], rep_strength[l], 0.0);
       // The delay's sigma is never below the curvature sigma of the joint fit (the cost's
       // curvature in the delay with the rest held: the Cramer-Rao bound at the fit, which no
       // unbiased estimate beats), since the spread of the few headline replicas is itself

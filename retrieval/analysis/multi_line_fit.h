@@ -89,8 +89,11 @@ struct JointLineStep {
   /// The joint CMA stage's result (step 4; absent when it did not run or failed): its
   /// joint_line.<l>.* settings carry the CMA's per-line delay and strength.
   std::optional<Reconstruction> cma_reconstruction;
-  std::vector<std::vector<double>> replica_delay_as, replica_strength;  ///< per joint line
-  int replicas_failed = 0;
+  /// One slot per bootstrap replica, sized by the caller before the replicas run: replica b's
+  /// line values, written by joint_line_replica(b) alone (so replicas may run on any threads
+  /// and the report reads them in index order, the same numbers for any thread count); empty
+  /// when its joint problem could not be built or its fit failed.
+  std::vector<std::optional<JointLineValues>> replicas;
   std::vector<std::string> warnings;
 };
 
@@ -102,13 +105,14 @@ JointLineStep joint_line_estimate(const Trace& trace, const PreprocessOptions& p
                                   const PreprocessSummary& summary,
                                   const Reconstruction& single_rec, const EngineOptions& eo,
                                   const EngineRunner& run, const EngineOptions* cma = nullptr);
-/// Step 2, per bootstrap replica: the joint fit on the replica from its single-line result
-/// `single_rec` (its problem `single`, summary `summary`), started from the estimate's
-/// centre-of-energy values (through the joint CMA stage first when `cma` is given, as the
-/// estimate). Records the replica's line values; returns its reconstruction (std::nullopt when
-/// the replica's joint problem could not be built or the fit failed).
+/// Step 2, per bootstrap replica: the joint fit on replica `index` (< step.replicas.size())
+/// from its single-line result `single_rec` (its problem `single`, summary `summary`), started
+/// from the estimate's centre-of-energy values (through the joint CMA stage first when `cma` is
+/// given, as the estimate). Records the replica's line values in its slot; returns its
+/// reconstruction (std::nullopt when the replica's joint problem could not be built or the fit
+/// failed).
 std::optional<Reconstruction> joint_line_replica(
-    JointLineStep& step, const Trace& replica, const PreprocessOptions& popt,
+    JointLineStep& step, int index, const Trace& replica, const PreprocessOptions& popt,
     const RetrievalProblem& single, const PreprocessSummary& summary,
     const Reconstruction& single_rec, const EngineOptions& eo, const std::string& stage,
     const EngineRunner& run, const EngineOptions* cma = nullptr);

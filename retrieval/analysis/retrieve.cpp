@@ -5,9 +5,11 @@
 #include <chrono>
 #include <cmath>
 #include <functional>
+#include <future>
 #include <memory>
 #include <mutex>
 #include <numeric>
+#include <optional>
 #include <sstream>
 
 #include "retrieval/analysis/classifier.h"
@@ -275,6 +277,72 @@ class LaplaceSampler {
   std::atomic<bool> failed_{false};
 };
 
+// One bootstrap replica of the full chain: the Poisson draw of the scan, its problem (preprocessed
+// like the scan), its engine options and, once made, its single-line result before any satellite
+// start.
+struct ReplicaDraw {
+  Trace trace;
+  PreprocessSummary summary;
+  RetrievalProblem problem;
+  EngineOptions options;
+  std::optional<Reconstruction> single;
+};
+
+// Replicas of the full chain made before the bootstrap stage, up to their single-line result
+// (it depends on nothing the estimate decides after its first full-model run): ahead, on
+// threads of their own while that run has one thread (start_ahead), and beside the estimate's
+// satellite starts in their task list (put). Each replica writes its own slot from its own
+// seed: the numbers are those of a replica made later. A failure ahead is kept and raises
+// `abandon` (the analysis will fail: every engine run of the estimate then stops at its next
+// iteration); take() and rethrow_failure() rethrow it. The destructor waits for the replicas.
+class ReplicaStarts {
+ public:
+  ReplicaStarts(int count, std::atomic<bool>* abandon)
+      : abandon_(abandon), slots_(static_cast<std::size_t>(std::max(count, 0))) {}
+  ReplicaStarts(const ReplicaStarts&) = delete;
+  ReplicaStarts& operator=(const ReplicaStarts&) = delete;
+  ~ReplicaStarts() {
+    if (ahead_done_.valid()) ahead_done_.wait();
+  }
+
+  int count() const { return static_cast<int>(slots_.size()); }
+  int ahead() const { return ahead_; }
+  // make(b) for b in [0, n) on n threads of their own, at once (n <= 0: nothing; once).
+  void start_ahead(int n, std::function<ReplicaDraw(int)> make) {
+    n = std::min(n, count());
+    if (n <= 0 || ahead_done_.valid()) return;
+    ahead_ = n;
+    ahead_done_ =
+        std::async(std::launch::async, [this, n, make = std::move(make)] {
+          try {
+            parallel_for(n, n, [&](int b) { slots_[static_cast<std::size_t>(b)] = make(b); });
+          } catch (...) {
+            abandon_->store(true);
+            throw;
+          }
+        }).share();
+  }
+  // Replica b in [ahead(), count()), made by the caller (one thread per slot).
+  void put(int b, ReplicaDraw d) { slots_[static_cast<std::size_t>(b)] = std::move(d); }
+  // Replica b if it was made (waits for those made ahead; rethrows their failure); each b once.
+  std::optional<ReplicaDraw> take(int b) {
+    if (b < 0 || b >= count()) return std::nullopt;
+    if (b < ahead_) std::shared_future<void>(ahead_done_).get();
+    std::optional<ReplicaDraw> d = std::move(slots_[static_cast<std::size_t>(b)]);
+    slots_[static_cast<std::size_t>(b)].reset();
+    return d;
+  }
+  void rethrow_failure() const {
+    if (abandon_->load() && ahead_done_.valid()) std::shared_future<void>(ahead_done_).get();
+  }
+
+ private:
+  std::atomic<bool>* abandon_;
+  std::vector<std::optional<ReplicaDraw>> slots_;
+  int ahead_ = 0;
+  std::shared_future<void> ahead_done_;
+};
+
 }  // namespace
 
 RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
@@ -295,10 +363,15 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // One engine run on one problem, progress reported under `stage`, time origin fixed. The
   // replicas call it from worker threads: progress reports go out one at a time.
   std::mutex progress_mutex;
+  // Raised when a replica started ahead has failed (ReplicaStarts): the analysis will fail,
+  // so every engine run stops at its next iteration.
+  std::atomic<bool> abandon{false};
   auto run_on = [&](const RetrievalProblem& problem, const std::string& name,
                     const EngineOptions& o, const std::string& stage) {
     auto engine = make_engine(name);
-    std::vector<IterationCallback> cbs;
+    std::vector<IterationCallback> cbs{[&](const IterationRecord&) {
+      return abandon.load() ? CallbackResult::kStop : CallbackResult::kContinue;
+    }};
     if (progress)
       cbs.push_back([&](const IterationRecord& r) {
         const std::lock_guard<std::mutex> lock(progress_mutex);
@@ -352,6 +425,61 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   auto run_both = [&](const std::function<void()>& a, const std::function<void()>& b) {
     parallel_for(2, resolve_threads(opt.threads), [&](int i) { i == 0 ? a() : b(); });
   };
+  // The replicas' engine options: the estimate's, and the ptychographic runs use the momentum
+  // nodes exactly when the estimate's did (the engine adds them only when the one-p0 fit stalls
+  // above the noise floor, and a replica's doubled noise would otherwise decide differently and
+  // bias the correction).
+  auto replica_base_options = [&] {
+    EngineOptions o = eo;
+    const auto ptycho =
+        std::find_if(out.chain.begin(), out.chain.end(),
+                     [](const Reconstruction& c) { return c.engine == "ptychographic"; });
+    if (!o.settings.is_given("momentum_bands") && ptycho != out.chain.end() &&
+        ptycho->momentum_nodes > 0)
+      o.settings.set_momentum_bands(ptycho->momentum_nodes);
+    return o;
+  };
+  // Replica b's draw (seeds from its index alone).
+  auto replica_draw = [&](int b, const EngineOptions& base) {
+    ReplicaDraw d;
+    d.trace = poisson_resample(trace, replica_seed(opt.seed, b));
+    d.problem = preprocess(d.trace, same_bins, &d.summary);
+    d.options = base;
+    d.options.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
+    return d;
+  };
+  // Its single-line result by the full model from its own CMA result.
+  auto replica_from_cma = [&](ReplicaDraw& d, const std::string& stage) {
+    EngineOptions fo = full_model_options(d.options);
+    const Reconstruction c = run_on(d.problem, "ptychographic", d.options, stage);
+    fo.initial_xuv = c.xuv;
+    fo.initial_ir = c.ir;
+    d.single = run_on(d.problem, "full-model", fo, stage);
+  };
+  // The replicas of the full chain the uncertainty will run (kFull: all; kLaplace: its check's
+  // K; kWarm: none) and their progress stage.
+  const int laplace_k =
+      opt.bootstrap >= 2 ? std::min(opt.laplace_check_replicas, opt.bootstrap) : 0;
+  const int chain_replicas = opt.uncertainty == UncertaintyMethod::kFull      ? opt.bootstrap
+                             : opt.uncertainty == UncertaintyMethod::kLaplace ? laplace_k
+                                                                              : 0;
+  auto replica_stage = [&](int b) {
+    return opt.uncertainty == UncertaintyMethod::kLaplace
+               ? "laplace check " + std::to_string(b + 1) + "/" + std::to_string(laplace_k)
+               : "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
+  };
+  // Replica b up to its single-line result, as the chain of the estimate makes it (auto with the
+  // full model: from the replica's CMA result, or from the full model's own guess).
+  auto make_start = [&](const EngineOptions& base, int b, bool from_cma) {
+    ReplicaDraw d = replica_draw(b, base);
+    if (from_cma)
+      replica_from_cma(d, replica_stage(b));
+    else
+      d.single = run_on(d.problem, "full-model", full_model_options(d.options), replica_stage(b));
+    return d;
+  };
+  // Declared after everything its replicas use: its destructor waits for those made ahead.
+  ReplicaStarts starts(chain_replicas, &abandon);
   double satellite_sign = 0.0;  // the sign of an adopted satellite start (0: none)
   std::string final_engine = opt.engine;
   bool full_model_from_cma = false;  // auto: the full model's result started from the CMA's
@@ -391,6 +519,11 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       full_model_from_cma = true;
       final_engine = "full-model";
       if (!not_fitted) {
+        // The run has the thread to itself: the other threads start the replicas of the full
+        // chain meanwhile (a replica's single-line chain is the estimate's, decided above).
+        starts.start_ahead(
+            resolve_threads(opt.threads) - 1,
+            [&, base = replica_base_options()](int b) { return make_start(base, b, true); });
         out.chain.push_back(run("full-model", fo));
       } else {
         // The CMA result may sit in a local minimum (multi-burst pulses): also start the full
@@ -420,13 +553,20 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         out.chain.pop_back();
         const std::size_t s0 = out.chain.size();
         out.chain.resize(s0 + 2);
-        run_both(
-            [&] {
-              out.chain[s0] = satellite_run(pr, base, -1.0, fo, "full-model (satellite start -)");
-            },
-            [&] {
-              out.chain[s0 + 1] =
-                  satellite_run(pr, base, 1.0, fo, "full-model (satellite start +)");
+        // The replicas not made ahead start in the same task list (their single-line chain is
+        // decided; the satellite decision below only adds a run to each), so that no thread
+        // waits for the longer of the two starts.
+        const int first = starts.ahead();
+        parallel_for(
+            2 + starts.count() - first, resolve_threads(opt.threads),
+            [&, rbase = replica_base_options()](int t) {
+              if (t == 0)
+                out.chain[s0] = satellite_run(pr, base, -1.0, fo, "full-model (satellite start -)");
+              else if (t == 1)
+                out.chain[s0 + 1] =
+                    satellite_run(pr, base, 1.0, fo, "full-model (satellite start +)");
+              else
+                starts.put(first + t - 2, make_start(rbase, first + t - 2, full_model_from_cma));
             });
         std::size_t best = out.chain.size();
         double best_g = base.trace_error;
@@ -449,6 +589,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   } else {
     out.chain.push_back(run(opt.engine, opt.engine == "full-model" ? full_model_options(eo) : eo));
   }
+  starts.rethrow_failure();
   out.reconstruction = out.chain.back();
   // Several photoelectron lines (retrieval/analysis/multi_line_fit.h): centre-of-energy delays,
   // then the joint fit of the analysed lines from the single-line result; its pulse is the
@@ -470,6 +611,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       lines_step = joint_line_estimate(trace, same_bins, lo, pr, out.preprocess, out.reconstruction,
                                        jeo, runner, &eo);
       if (lines_step.used) {
+        lines_step.replicas.resize(static_cast<std::size_t>(opt.bootstrap));
         out.chain.push_back(lines_step.reconstruction);
         out.reconstruction = lines_step.reconstruction;
         out.problem = lines_step.joint.problem;  // pr (a reference to it) from here on
@@ -482,6 +624,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       }
     }
   }
+  starts.rethrow_failure();
   // Runs fitted to the headline's problem (the joint fit alone when it ran).
   const std::size_t first_same = lines_step.used ? single_runs : 0;
   const Reconstruction& rec = out.reconstruction;
@@ -538,27 +681,20 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // start from the final estimate stopped by the noise-floor rule sits at the floor already and
   // barely moves: the spread came out 5x (CMA) to 20x (full model) too small; uncertainty = warm
   // therefore turns that rule off (retrieval/analysis/uncertainty.h).
-  // The replicas' ptychographic runs use the momentum nodes exactly when the estimate's did
-  // (the engine adds them only when the one-p0 fit stalls above the noise floor, and a
-  // replica's doubled noise would otherwise decide differently and bias the correction).
-  EngineOptions beo = eo;
-  const bool nodes_set = beo.settings.is_given("momentum_bands");
-  const auto ptycho = std::find_if(out.chain.begin(), out.chain.end(), [](const Reconstruction& c) {
-    return c.engine == "ptychographic";
-  });
-  if (!nodes_set && ptycho != out.chain.end() && ptycho->momentum_nodes > 0)
-    beo.settings.set_momentum_bands(ptycho->momentum_nodes);
+  // (replica_base_options: the momentum nodes as the estimate's CMA run used them.)
+  const EngineOptions beo = replica_base_options();
   // Replicas are independent: each on a worker thread, its seeds from its index alone, its
   // numbers into its own slot (the same results for any thread count).
   const bool warm = opt.uncertainty == UncertaintyMethod::kWarm;
   std::vector<std::array<double, 4>> samples(static_cast<std::size_t>(opt.bootstrap));
   // Replica b of the chain (kFull's, or kWarm's), its progress under `stage`.
   auto chain_replica = [&](int b, const std::string& stage) {
-    const Trace rep = poisson_resample(trace, replica_seed(opt.seed, b));
-    PreprocessSummary ps;
-    RetrievalProblem rp = preprocess(rep, same_bins, &ps);
-    EngineOptions bo = beo;
-    bo.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
+    std::optional<ReplicaDraw> made = starts.take(b);
+    ReplicaDraw d = made ? std::move(*made) : replica_draw(b, beo);
+    const Trace& rep = d.trace;
+    const PreprocessSummary& ps = d.summary;
+    const RetrievalProblem& rp = d.problem;
+    EngineOptions& bo = d.options;
     Reconstruction br;
     if (warm && !lines_step.used) {
       // retrieval/analysis/uncertainty.h: the final engine from the estimate, until it stops
@@ -572,14 +708,15 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       br = run_on(rp, single_engine, wo, stage);
     } else if (single_engine == "full-model") {
       // The same chain as the estimate: from the replica's own CMA result, or from the full
-      // model's own guess when that is where the estimate came from.
-      EngineOptions fo = full_model_options(bo);
-      if (full_model_from_cma) {
-        const Reconstruction c = run_on(rp, "ptychographic", bo, stage);
-        fo.initial_xuv = c.xuv;
-        fo.initial_ir = c.ir;
+      // model's own guess when that is where the estimate came from (unless started ahead).
+      const EngineOptions fo = full_model_options(bo);
+      if (!d.single) {
+        if (full_model_from_cma)
+          replica_from_cma(d, stage);
+        else
+          d.single = run_on(rp, "full-model", fo, stage);
       }
-      br = run_on(rp, "full-model", fo, stage);
+      br = std::move(*d.single);
       if (satellite_sign != 0) {
         Reconstruction sr = satellite_run(rp, br, satellite_sign, fo, stage);
         if (sr.trace_error < br.trace_error) br = std::move(sr);
@@ -590,7 +727,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     if (lines_step.used) {  // the joint fit on the replica, from its single-line result
       const EngineOptions jb = full_model_options(bo);
       if (auto jr =
-              joint_line_replica(lines_step, rep, same_bins, rp, ps, br, jb, stage, runner, &bo))
+              joint_line_replica(lines_step, b, rep, same_bins, rp, ps, br, jb, stage, runner, &bo))
         br = std::move(*jr);
     }
     const auto [rlo, rhi] = band_of(rp);
@@ -623,7 +760,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
                      std::to_string(opt.bootstrap),
                  r);
       };
-      const int K = opt.bootstrap >= 2 ? std::min(opt.laplace_check_replicas, opt.bootstrap) : 0;
+      const int K = laplace_k;
       check_chain.resize(static_cast<std::size_t>(K));
       LaplaceSampler sampler(pr, full_model_options(beo), rec, m, band_lo, band_hi, opt, done);
       // One task list on the worker threads: linearised replica 0 (it builds the preconditioner

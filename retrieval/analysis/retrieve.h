@@ -93,8 +93,12 @@ struct RetrieveOptions {
   /// Worker threads of the analysis (>= 0; 0 = the machine's hardware threads): the bootstrap
   /// replicas run concurrently, one per thread (retrieval/analysis/thread_pool.h), and so do
   /// the estimate's two independent full-model runs (the satellite starts of both signs; the
-  /// starts from the CMA result and from the full model's own guess); every engine runs
-  /// single-threaded, so the results are bit-identical for any value.
+  /// starts from the CMA result and from the full model's own guess). The replicas of the full
+  /// chain (`uncertainty` full, or laplace's check) start during the estimate: while its
+  /// single full-model run from the CMA result has one thread, on the others, and the rest in
+  /// the task list of its satellite starts, each up to its own full-model result. Every engine
+  /// runs single-threaded and every replica draws from its index alone, so the results are
+  /// bit-identical for any value.
   int threads = 0;
   /// How the bootstrap replicas start (retrieval/analysis/uncertainty.h): kFull = the whole engine
   /// chain from scratch (default), kWarm = the final engine from the estimate, kLaplace = one
@@ -217,9 +221,10 @@ struct RetrieveOptions {
       self.seed);
     v(OptionSpec{.name = "threads",
                  .help =
-                     "worker threads for the bootstrap replicas and the estimate's paired "
-                     "full-model starts (0 = the machine's cores; batch: 1 per job with --jobs > "
-                     "1); results do not depend on it",
+                     "worker threads for the bootstrap replicas (they start beside the "
+                     "estimate's full-model runs) and the estimate's paired full-model starts "
+                     "(0 = the machine's cores; batch: 1 per job with --jobs > 1); results do not "
+                     "depend on it",
                  .min = 0,
                  .flag = "--threads",
                  .config_key = "threads"},

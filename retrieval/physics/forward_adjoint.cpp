@@ -461,8 +461,10 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
   if (two_pass && const_dipole && store_lock.try_lock()) {
     store_delays = std::min(static_cast<std::size_t>(nd),
                             store_limit_bytes_ / (slot_doubles * sizeof(double)));
-    if (store_.values.size() < store_delays * slot_doubles)
-      store_.values.resize(store_delays * slot_doubles);
+    if (store_.size < store_delays * slot_doubles) {
+      store_.size = store_delays * slot_doubles;
+      store_.values.reset(new double[store_.size]);
+    }
   }
 
   const int threads = threads_ > 0 ? threads_ : omp_get_max_threads();
@@ -532,7 +534,7 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     // slot (kFill: the forward pass) or read back from it (kReuse: the adjoint pass, no IR load).
     auto for_each_node_pair = [&](long i, StoreUse use, auto&& visit) {
       double* slot = use != StoreUse::kNone && static_cast<std::size_t>(i) < store_delays
-                         ? store_.values.data() + static_cast<std::size_t>(i) * slot_doubles
+                         ? store_.values.get() + static_cast<std::size_t>(i) * slot_doubles
                          : nullptr;
       const bool form = slot == nullptr || use == StoreUse::kFill;
       double umax = 0.0, vmax = 0.0;

@@ -46,6 +46,7 @@
 // fixed order, so results are deterministic for a given thread count.
 
 #include <cstddef>
+#include <memory>
 #include <mutex>
 #include <vector>
 
@@ -186,13 +187,16 @@ class ForwardAdjoint {
   std::vector<cdouble> row_phase_;
   void set_row_phases();
   // Phase factors kept between the two passes of projected_cost (set_phase_store_limit). A
-  // call that finds the store busy (another thread inside the same object) recomputes.
+  // call that finds the store busy (another thread inside the same object) recomputes. Not
+  // initialised (tens of MB): a forward pass writes every slot its adjoint pass reads, and a
+  // larger plan replaces the buffer without copying it.
   struct PhaseStore {
     PhaseStore() = default;
     PhaseStore(const PhaseStore&) {}
     PhaseStore& operator=(const PhaseStore&) { return *this; }
     std::mutex busy;
-    std::vector<double> values;
+    std::unique_ptr<double[]> values;
+    std::size_t size = 0;
   };
   mutable PhaseStore store_;
   std::size_t store_limit_bytes_ = std::size_t{64} << 20;
