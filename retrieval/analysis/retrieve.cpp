@@ -556,20 +556,26 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         // The replicas not made ahead start in the same task list (their single-line chain is
         // decided; the satellite decision below only adds a run to each), so that no thread
         // waits for the longer of the two starts.
-        const int first = starts.ahead();
-        parallel_for(
-            2 + starts.count() - first, resolve_threads(opt.threads),
-            [&, rbase = replica_base_options()](int t) {
-              if (t == 0)
-                out.chain[s0] = satellite_run(pr, base, -1.0, fo, "full-model (satellite start -)");
-              else if (t == 1)
-                out.chain[s0 + 1] =
-                    satellite_run(pr, base, 1.0, fo, "full-model (satellite start +)");
-              else
-                starts.put(first + t - 2, make_start(rbase, first + t - 2, full_model_from_cma));
-            });
+        const int made_ahead = starts.ahead();
+        parallel_for(2 + starts.count() - made_ahead, resolve_threads(opt.threads),
+                     [&, rbase = replica_base_options()](int t) {
+                       if (t == 0)
+                         out.chain[s0] =
+                             satellite_run(pr, base, -1.0, fo, "full-model (satellite start -)");
+                       else if (t == 1)
+                         out.chain[s0 + 1] =
+                             satellite_run(pr, base, 1.0, fo, "full-model (satellite start +)");
+                       else
+                         starts.put(made_ahead + t - 2,
+                                    make_start(rbase, made_ahead + t - 2, full_model_from_cma));
+                     });
+        // A start is kept only when it fits better than G's own counting-noise scatter allows
+        // (RetrieveOptions::satellite_start_margin); both stay in the chain (the systematic
+        // spread of equally good runs).
         std::size_t best = out.chain.size();
-        double best_g = base.trace_error;
+        double best_g =
+            base.trace_error * (1.0 - opt.satellite_start_margin /
+                                          std::sqrt(static_cast<double>(pr.intensity.size())));
         for (std::size_t i : {s0, s0 + 1}) {
           if (out.chain[i].trace_error < best_g) {
             best_g = out.chain[i].trace_error;

@@ -162,6 +162,17 @@ struct RetrieveOptions {
   /// Intensity ratio of the seeded satellites (in (0, 1); 0.2, between the isolated and the
   /// satellites thresholds: our choice).
   double satellite_start_ratio = 0.2;
+  /// A satellite start is kept only when its trace error G is below the first result's by more
+  /// than satellite_start_margin / sqrt(N) of it (N = the analysed delays x energies; >= 0).
+  /// Counting noise alone scatters G by about 1 / sqrt(2 N) of itself (G is the square root of a
+  /// sum of N weighted squares), so 1 asks for ~1.4 of that scatter: a start that ends in the
+  /// first result's minimum (G lower by ~1e-4, both at the noise floor) is then not adopted, and
+  /// the replicas run no satellite start of their own (half the CPU of the default analysis of
+  /// helium-70as, docs/performance.md "Round 12"). Default 0: keep any start with a lower G.
+  /// Not 1, because on the validation set such a start also acts as a restart that moves a
+  /// flat, low-count estimate (low40-ar-wide: FWHM +8.6 % with margin 0, +10.1 % with 1, beyond
+  /// its 10 % tolerance and trusted; docs/validation.md "The satellite start's margin").
+  double satellite_start_margin = 0.0;
   /// Wall-time budget for the whole analysis (s).
   double max_seconds = 900.0;
   /// Relative systematic uncertainty of the retrieval method itself, a floor on s_sys of the
@@ -311,6 +322,14 @@ struct RetrieveOptions {
                  .max = 1,
                  .max_open = true},
       self.satellite_start_ratio);
+    v(OptionSpec{.name = "satellite_start_margin",
+                 .help = "keep a satellite start only if its G is lower by more than this / "
+                         "sqrt(delays x energies) (relative; 0 = any lower G; 1 halves the CPU "
+                         "where a start only restates the first result, docs/cli.md)",
+                 .min = 0,
+                 .flag = "--satellite-start-margin",
+                 .config_key = "satellite_start_margin"},
+      self.satellite_start_margin);
     v(OptionSpec{.name = "dipole",
                  .help = "dipole model of the photoionisation",
                  .choices = "constant|hydrogenic",
