@@ -111,10 +111,11 @@ TEST_CASE("bootstrap replicas give bit-identical results for 1 and 3 threads",
 TEST_CASE("replicas made during the estimate give the same numbers for any thread count",
           "[thread_pool][retrieve][slow]") {
   // retrieve.cpp (ReplicaStarts): while the estimate's first full-model run has one thread,
-  // the others make replicas of the full chain up to their single-line result, and the rest are
-  // made in the task list of the estimate's satellite starts. A replica's numbers depend on its
-  // index alone (retrieve.h), so with 1 thread (all three beside the satellite starts, one after
-  // another), 2 (one ahead) and 3 (two ahead) every number must be the same to the last bit
+  // the others make replicas of the full chain up to their single-line result, and more (up to
+  // twice the threads in all) are made in the task list of the estimate's satellite starts. A
+  // replica's numbers depend on its index alone (retrieve.h), so with 1 thread (two beside the
+  // satellite starts, one in the bootstrap stage), 2 (one ahead, two beside) and 3 (two ahead,
+  // one beside) every number must be the same to the last bit
   // (common practice for parallel Monte Carlo: reproducible streams per task). The few-counts
   // scan goes to the full model from the CMA result (test_retrieve.cpp).
   const auto& scan = few_counts_scan();

@@ -478,8 +478,10 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       d.single = run_on(d.problem, "full-model", full_model_options(d.options), replica_stage(b));
     return d;
   };
-  // Declared after everything its replicas use: its destructor waits for those made ahead.
-  ReplicaStarts starts(chain_replicas, &abandon);
+  // At most twice the threads (each holds its draw and problem until the bootstrap stage: the
+  // memory stays that of a few replicas for any --bootstrap). Declared after everything its
+  // replicas use: its destructor waits for those made ahead.
+  ReplicaStarts starts(std::min(chain_replicas, 2 * resolve_threads(opt.threads)), &abandon);
   double satellite_sign = 0.0;  // the sign of an adopted satellite start (0: none)
   std::string final_engine = opt.engine;
   bool full_model_from_cma = false;  // auto: the full model's result started from the CMA's
@@ -573,9 +575,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         // (RetrieveOptions::satellite_start_margin); both stay in the chain (the systematic
         // spread of equally good runs).
         std::size_t best = out.chain.size();
-        double best_g =
-            base.trace_error * (1.0 - opt.satellite_start_margin /
-                                          std::sqrt(static_cast<double>(pr.intensity.size())));
+        const double cells = std::max(1.0, static_cast<double>(pr.intensity.size()));
+        double best_g = base.trace_error * (1.0 - opt.satellite_start_margin / std::sqrt(cells));
         for (std::size_t i : {s0, s0 + 1}) {
           if (out.chain[i].trace_error < best_g) {
             best_g = out.chain[i].trace_error;

@@ -95,8 +95,9 @@ struct RetrieveOptions {
   /// the estimate's two independent full-model runs (the satellite starts of both signs; the
   /// starts from the CMA result and from the full model's own guess). The replicas of the full
   /// chain (`uncertainty` full, or laplace's check) start during the estimate: while its
-  /// single full-model run from the CMA result has one thread, on the others, and the rest in
-  /// the task list of its satellite starts, each up to its own full-model result. Every engine
+  /// single full-model run from the CMA result has one thread, on the others, and more (up to
+  /// twice the threads in all) in the task list of its satellite starts, each up to its own
+  /// full-model result. Every engine
   /// runs single-threaded and every replica draws from its index alone, so the results are
   /// bit-identical for any value.
   int threads = 0;
