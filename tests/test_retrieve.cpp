@@ -251,8 +251,9 @@ TEST_CASE("few counts per bin: auto refines the CMA result with the full model a
 TEST_CASE("a satellite start that ends in the first result's minimum is not adopted",
           "[retrieve]") {
   // RetrieveOptions::satellite_start_margin: counting noise scatters G by about 1/sqrt(2N) of
-  // itself (G is the root of a sum of N weighted squares of Poisson residuals; e.g. the chi-square
-  // distribution's relative spread sqrt(2/N), halved by the square root), so a start whose G is
+  // itself (G is the root of a sum of N weighted squares of Poisson residuals: a chi-square
+  // variable with N degrees of freedom has mean N and variance 2N, relative spread sqrt(2/N),
+  // halved by the square root; from memory, any statistics text), so a start whose G is
   // lower by less than 1/sqrt(N) fits no better than the first result. On this 40-count scan
   // both satellite starts decay back to the burst (satellite ratio ~1e-5): with margin 0 (the
   // default) one of them is adopted for a G lower by ~1e-4; with margin 1 it is not, and both

@@ -448,12 +448,15 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     d.options.seed = opt.seed + 7919ULL * static_cast<unsigned long long>(b + 1);
     return d;
   };
-  // Its single-line result by the full model from its own CMA result.
-  auto replica_from_cma = [&](ReplicaDraw& d, const std::string& stage) {
+  // Its single-line result by the full model, from its own CMA result or from the model's own
+  // guess (as the estimate's chain made its own).
+  auto replica_single = [&](ReplicaDraw& d, bool from_cma, const std::string& stage) {
     EngineOptions fo = full_model_options(d.options);
-    const Reconstruction c = run_on(d.problem, "ptychographic", d.options, stage);
-    fo.initial_xuv = c.xuv;
-    fo.initial_ir = c.ir;
+    if (from_cma) {
+      const Reconstruction c = run_on(d.problem, "ptychographic", d.options, stage);
+      fo.initial_xuv = c.xuv;
+      fo.initial_ir = c.ir;
+    }
     d.single = run_on(d.problem, "full-model", fo, stage);
   };
   // The replicas of the full chain the uncertainty will run (kFull: all; kLaplace: its check's
@@ -472,10 +475,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // full model: from the replica's CMA result, or from the full model's own guess).
   auto make_start = [&](const EngineOptions& base, int b, bool from_cma) {
     ReplicaDraw d = replica_draw(b, base);
-    if (from_cma)
-      replica_from_cma(d, replica_stage(b));
-    else
-      d.single = run_on(d.problem, "full-model", full_model_options(d.options), replica_stage(b));
+    replica_single(d, from_cma, replica_stage(b));
     return d;
   };
   // At most twice the threads (each holds its draw and problem until the bootstrap stage: the
@@ -527,6 +527,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
             resolve_threads(opt.threads) - 1,
             [&, base = replica_base_options()](int b) { return make_start(base, b, true); });
         out.chain.push_back(run("full-model", fo));
+        starts.rethrow_failure();  // before the satellite starts: the analysis fails anyway
       } else {
         // The CMA result may sit in a local minimum (multi-burst pulses): also start the full
         // model from its own guess (parametric IR) and keep the better fit. The two runs are
@@ -716,14 +717,9 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
     } else if (single_engine == "full-model") {
       // The same chain as the estimate: from the replica's own CMA result, or from the full
       // model's own guess when that is where the estimate came from (unless started ahead).
-      const EngineOptions fo = full_model_options(bo);
-      if (!d.single) {
-        if (full_model_from_cma)
-          replica_from_cma(d, stage);
-        else
-          d.single = run_on(rp, "full-model", fo, stage);
-      }
+      if (!d.single) replica_single(d, full_model_from_cma, stage);
       br = std::move(*d.single);
+      const EngineOptions fo = full_model_options(bo);
       if (satellite_sign != 0) {
         Reconstruction sr = satellite_run(rp, br, satellite_sign, fo, stage);
         if (sr.trace_error < br.trace_error) br = std::move(sr);
@@ -767,7 +763,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
                      std::to_string(opt.bootstrap),
                  r);
       };
-      const int K = laplace_k;
+      const int K = laplace_k;  // the check's replicas
       check_chain.resize(static_cast<std::size_t>(K));
       LaplaceSampler sampler(pr, full_model_options(beo), rec, m, band_lo, band_hi, opt, done);
       // One task list on the worker threads: linearised replica 0 (it builds the preconditioner

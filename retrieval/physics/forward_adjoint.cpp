@@ -462,8 +462,9 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     store_delays = std::min(static_cast<std::size_t>(nd),
                             store_limit_bytes_ / (slot_doubles * sizeof(double)));
     if (store_.size < store_delays * slot_doubles) {
-      store_.size = store_delays * slot_doubles;
-      store_.values.reset(new double[store_.size]);
+      store_.values.reset();  // the old buffer first (its contents are never reused)
+      store_.values.reset(new double[store_delays * slot_doubles]);
+      store_.size = store_delays * slot_doubles;  // after the allocation has succeeded
     }
   }
 
