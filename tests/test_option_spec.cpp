@@ -192,6 +192,7 @@ TEST_CASE("the retrieve settings echo keeps the result.json keys", "[options]") 
                                          "settings.satellite_start",
                                          "settings.satellite_start_ratio",
                                          "settings.satellite_start_margin",
+                                         "settings.replica_satellite_margin",
                                          "settings.dipole",
                                          "settings.energy_combine"});
   // Integers are written as integers, the dipole by name.

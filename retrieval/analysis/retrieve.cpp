@@ -483,6 +483,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // replicas use: its destructor waits for those made ahead.
   ReplicaStarts starts(std::min(chain_replicas, 2 * resolve_threads(opt.threads)), &abandon);
   double satellite_sign = 0.0;  // the sign of an adopted satellite start (0: none)
+  // The replicas repeat that start (RetrieveOptions::replica_satellite_margin).
+  bool replica_satellite = false;
   std::string final_engine = opt.engine;
   bool full_model_from_cma = false;  // auto: the full model's result started from the CMA's
   if (opt.engine == "auto") {
@@ -588,9 +590,14 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         out.chain.push_back(base);
         if (best < out.chain.size() - 1) {
           std::swap(out.chain[best], out.chain.back());
+          const double gain = 1.0 - best_g / base.trace_error;  // > 0
+          replica_satellite = gain > opt.replica_satellite_margin / std::sqrt(cells);
           out.full_model_start =
               std::string("the satellite hypothesis (satellites at -+T/2, sign ") +
-              (satellite_sign > 0 ? "+" : "-") + "; better G than without)";
+              (satellite_sign > 0 ? "+" : "-") + "; G lower by " + format_g(gain, 2) +
+              " of itself than without; " +
+              (replica_satellite ? "the replicas repeat it)"
+                                 : "within the counting noise: the replicas do not repeat it)");
         }
       }
     }
@@ -720,7 +727,9 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
       if (!d.single) replica_single(d, full_model_from_cma, stage);
       br = std::move(*d.single);
       const EngineOptions fo = full_model_options(bo);
-      if (satellite_sign != 0) {
+      // (with the joint lines the satellite runs are not among the headline's equally good
+      // runs, so there every replica repeats an adopted start)
+      if (satellite_sign != 0 && (replica_satellite || lines_step.used)) {
         Reconstruction sr = satellite_run(rp, br, satellite_sign, fo, stage);
         if (sr.trace_error < br.trace_error) br = std::move(sr);
       }

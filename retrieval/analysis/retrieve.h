@@ -157,8 +157,9 @@ struct RetrieveOptions {
   /// auto: when the full model ran and its burst has no satellite above
   /// satellite_ratio.isolated_max, run it twice more from that burst with satellites of
   /// `satellite_start_ratio` at -+T/2 (each field sign; retrieval/physics/satellite_seed.h) and
-  /// keep a start that fits better; an equally good start enters the systematic spread of the FWHM
-  /// and of the satellite ratio (so class_margin_sigma sees a class the data cannot decide).
+  /// keep a start that fits better; an equally good start enters the systematic spread (s_sys
+  /// above) of the headline numbers and of the satellite ratio (so class_margin_sigma sees a
+  /// class the data cannot decide).
   bool satellite_start = true;
   /// Intensity ratio of the seeded satellites (in (0, 1); 0.2, between the isolated and the
   /// satellites thresholds: our choice).
@@ -167,13 +168,25 @@ struct RetrieveOptions {
   /// than satellite_start_margin / sqrt(N) of it (N = the analysed delays x energies; >= 0).
   /// Counting noise alone scatters G by about 1 / sqrt(2 N) of itself (G is the square root of a
   /// sum of N weighted squares), so 1 asks for ~1.4 of that scatter: a start that ends in the
-  /// first result's minimum (G lower by ~1e-4, both at the noise floor) is then not adopted, and
-  /// the replicas run no satellite start of their own (half the CPU of the default analysis of
-  /// helium-70as, docs/performance.md "Round 12"). Default 0: keep any start with a lower G.
+  /// first result's minimum (G lower by ~1e-4, both at the noise floor) is then not adopted
+  /// (replica_satellite_margin below already spares the replicas its restart). Default 0: keep
+  /// any start with a lower G.
   /// Not 1, because on the validation set such a start also acts as a restart that moves a
   /// flat, low-count estimate (low40-ar-wide: FWHM +8.6 % with margin 0, +10.1 % with 1, beyond
   /// its 10 % tolerance and trusted; docs/validation.md "The satellite start's margin").
   double satellite_start_margin = 0.0;
+  /// Each bootstrap replica (uncertainty full, and the laplace check's) repeats an adopted
+  /// satellite start from its own result only when that start lowered the estimate's G by more
+  /// than replica_satellite_margin / sqrt(N) of it (>= 0; 0: whenever a start was adopted).
+  /// Below that the adopted start and the first result are two equally good fits (G within the
+  /// counting noise), and their spread is already in the systematic part of the headline sigma
+  /// (comparable_fit_ratio, retrieve.h above): a restart in every replica would add the same
+  /// spread again at the cost of one more full-model run per replica (half the CPU of the
+  /// default analysis of helium-70as, docs/performance.md "Round 13"). The headline value is
+  /// not affected, only its sigma. With the joint lines (whose sigma holds no such spread) every
+  /// replica repeats an adopted start. Default 1 (docs/validation.md "The replicas' satellite
+  /// start").
+  double replica_satellite_margin = 1.0;
   /// Wall-time budget for the whole analysis (s).
   double max_seconds = 900.0;
   /// Relative systematic uncertainty of the retrieval method itself, a floor on s_sys of the
@@ -331,6 +344,13 @@ struct RetrieveOptions {
                  .flag = "--satellite-start-margin",
                  .config_key = "satellite_start_margin"},
       self.satellite_start_margin);
+    v(OptionSpec{.name = "replica_satellite_margin",
+                 .help = "bootstrap replicas repeat an adopted satellite start only if it "
+                         "lowered G by more than this / sqrt(delays x energies) (0 = always)",
+                 .min = 0,
+                 .flag = "--replica-satellite-margin",
+                 .config_key = "replica_satellite_margin"},
+      self.replica_satellite_margin);
     v(OptionSpec{.name = "dipole",
                  .help = "dipole model of the photoionisation",
                  .choices = "constant|hydrogenic",

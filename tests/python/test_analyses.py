@@ -154,12 +154,13 @@ def test_retrieve_keywords_are_the_cli_options():
     # runs and result.json says why.
     got = sw.retrieve(
         scan, **{**fast, "bootstrap": 2}, uncertainty="laplace", laplace_check=1,
-        full_model_patience=5, satellite_start_margin=1.0,
+        full_model_patience=5, satellite_start_margin=1.0, replica_satellite_margin=0.0,
     ).to_dict()
     assert got["settings"]["uncertainty"] == "laplace"
     assert got["settings"]["laplace_check_replicas"] == 1
     assert got["settings"]["full_model_patience"] == 5
     assert got["settings"]["satellite_start_margin"] == 1.0
+    assert got["settings"]["replica_satellite_margin"] == 0.0
     assert got["bootstrap"]["method"].startswith("full (laplace not applicable")
     # An invalid value: ValueError naming the keyword (and the rule); a wrong type: TypeError.
     with pytest.raises(ValueError, match=r"uncertainty = 'lukewarm': expected full\|warm"):
@@ -170,6 +171,8 @@ def test_retrieve_keywords_are_the_cli_options():
         sw.retrieve(scan, **fast, full_model_patience=0)
     with pytest.raises(ValueError, match="satellite_start_margin = -1"):
         sw.retrieve(scan, **fast, satellite_start_margin=-1.0)
+    with pytest.raises(ValueError, match="replica_satellite_margin = -0.5"):
+        sw.retrieve(scan, **fast, replica_satellite_margin=-0.5)
     with pytest.raises(ValueError, match="lines"):
         sw.retrieve(scan, **fast, lines="2s,none")
     with pytest.raises(TypeError, match="bootstrap"):
