@@ -26,6 +26,12 @@ struct Case {
   RetrieveOutput out;
 };
 
+// The 40-count neon scan (seed 1) of the satellite-start tests, made once.
+const synthetic::SyntheticScan& few_counts_scan() {
+  static const synthetic::SyntheticScan s = synthetic::generate_scan(test::neon_few_counts(), 1);
+  return s;
+}
+
 Case run_preset(const std::string& name, const std::string& engine, unsigned long long seed = 11,
                 int bootstrap = 0) {
   Case c;
@@ -260,7 +266,7 @@ TEST_CASE("a satellite start that ends in the first result's minimum is not adop
   // both satellite starts decay back to the burst (satellite ratio ~1e-5): with margin 0 (the
   // default) one of them is adopted for a G lower by ~1e-4; with margin 1 it is not, and both
   // results are the same pulse.
-  const auto scan = synthetic::generate_scan(test::neon_few_counts(), 1);
+  const synthetic::SyntheticScan& scan = few_counts_scan();
   RetrieveOptions o;
   o.bootstrap = 0;
   o.satellite_start_margin = 0.0;
@@ -297,7 +303,7 @@ TEST_CASE("the replicas repeat an adopted satellite start only when it fits bett
   // (with 2 replicas the bias rule never moves it: 2 s/sqrt(2) > s), and the two equally good
   // runs' spread is in the sigma's systematic part, which is what makes the replicas' restart
   // redundant.
-  const auto scan = synthetic::generate_scan(test::neon_few_counts(), 1);
+  const synthetic::SyntheticScan& scan = few_counts_scan();
   RetrieveOptions o;
   o.bootstrap = 2;
   o.threads = 1;

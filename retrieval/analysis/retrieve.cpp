@@ -590,8 +590,12 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         out.chain.push_back(base);
         if (best < out.chain.size() - 1) {
           std::swap(out.chain[best], out.chain.back());
+          // The replicas may skip the start only when the first result is among the equally
+          // good runs whose spread s_sys holds (within comparable_fit_ratio of the best G; with
+          // the default margin always, beyond ~36 cells).
           const double gain = 1.0 - best_g / base.trace_error;  // > 0
-          replica_satellite = gain > opt.replica_satellite_margin / std::sqrt(cells);
+          replica_satellite = gain > opt.replica_satellite_margin / std::sqrt(cells) ||
+                              !(base.trace_error <= opt.quality.comparable_fit_ratio * best_g);
           out.full_model_start =
               std::string("the satellite hypothesis (satellites at -+T/2, sign ") +
               (satellite_sign > 0 ? "+" : "-") + "; G lower by " + format_g(gain, 2) +

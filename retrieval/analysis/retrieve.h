@@ -180,12 +180,13 @@ struct RetrieveOptions {
   /// than replica_satellite_margin / sqrt(N) of it (>= 0; 0: whenever a start was adopted).
   /// Below that the adopted start and the first result are two equally good fits (G within the
   /// counting noise), and their spread is already in the systematic part of the headline sigma
-  /// (comparable_fit_ratio, retrieve.h above): a restart in every replica would add the same
-  /// spread again at the cost of one more full-model run per replica (half the CPU of the
-  /// default analysis of helium-70as, docs/performance.md "Round 13"). The headline value is
-  /// not affected, only its sigma. With the joint lines (whose sigma holds no such spread) every
-  /// replica repeats an adopted start. Default 1 (docs/validation.md "The replicas' satellite
-  /// start").
+  /// (comparable_fit_ratio, retrieve.h above; a first result outside that ratio, possible only
+  /// for a large margin or a scan of a few dozen cells, makes the replicas repeat the start): a
+  /// restart in every replica would add the same spread again at the cost of one more full-model
+  /// run per replica (half the CPU of the default analysis of helium-70as, docs/performance.md
+  /// "Round 13"). The headline value is not affected, only its sigma. With the joint lines (whose
+  /// sigma holds no such spread) every replica repeats an adopted start. Default 1
+  /// (docs/validation.md "The replicas' satellite start").
   double replica_satellite_margin = 1.0;
   /// Wall-time budget for the whole analysis (s).
   double max_seconds = 900.0;
@@ -338,8 +339,8 @@ struct RetrieveOptions {
       self.satellite_start_ratio);
     v(OptionSpec{.name = "satellite_start_margin",
                  .help = "keep a satellite start only if its G is lower by more than this / "
-                         "sqrt(delays x energies) (relative; 0 = any lower G; 1 halves the CPU "
-                         "where a start only restates the first result, docs/cli.md)",
+                         "sqrt(delays x energies) (relative; 0 = any lower G; 1 refuses a start "
+                         "that only restates the first result, docs/cli.md)",
                  .min = 0,
                  .flag = "--satellite-start-margin",
                  .config_key = "satellite_start_margin"},

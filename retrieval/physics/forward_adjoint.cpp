@@ -462,9 +462,12 @@ void ForwardAdjoint::run(Mode mode, const CVec& eps_in, const IrField& ir,
     store_delays = std::min(static_cast<std::size_t>(nd),
                             store_limit_bytes_ / (slot_doubles * sizeof(double)));
     if (store_.size < store_delays * slot_doubles) {
-      store_.values.reset();  // the old buffer first (its contents are never reused)
+      // The old buffer first (its contents are never reused); the size says 0 until the new
+      // one exists, so a failed allocation leaves an empty store, not a size without a buffer.
+      store_.size = 0;
+      store_.values.reset();
       store_.values.reset(new double[store_delays * slot_doubles]);
-      store_.size = store_delays * slot_doubles;  // after the allocation has succeeded
+      store_.size = store_delays * slot_doubles;
     }
   }
 
