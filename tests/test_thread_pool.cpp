@@ -6,12 +6,14 @@
 
 #include <atomic>
 #include <cstdio>
+#include <mutex>
 #include <stdexcept>
 #include <thread>
 #include <vector>
 
 #include "retrieval/analysis/retrieve.h"
 #include "retrieval/analysis/thread_pool.h"
+#include "retrieval/engines/ptychographic_engine.h"
 #include "synthetic/generator.h"
 #include "synthetic/presets.h"
 #include "tests/retrieve_test_support.h"
@@ -118,9 +120,14 @@ TEST_CASE("replicas made during the estimate give the same numbers for any threa
   // one beside) every number must be the same to the last bit
   // (common practice for parallel Monte Carlo: reproducible streams per task). The few-counts
   // scan goes to the full model from the CMA result (test_retrieve.cpp).
+  // Its estimate's CMA run ends with one momentum node while the engine would add three, so
+  // the replicas' CMA runs made beside it (2 and 3 threads) are dropped and made again.
   const auto& scan = few_counts_scan();
   const RetrieveOutput a = retrieve(scan.trace, three_replicas(1));
   REQUIRE(a.result.engine == "full-model");
+  REQUIRE(a.chain.front().momentum_nodes == 1);
+  REQUIRE(ptychographic_momentum_nodes(a.problem, RetrieveOptions{}.engine_settings.ptychographic) >
+          1);
   REQUIRE(a.bootstrap_samples.size() == 3);
   CHECK(a.bootstrap_samples[0][0] != a.bootstrap_samples[1][0]);
   for (int threads : {2, 3}) {
@@ -129,11 +136,47 @@ TEST_CASE("replicas made during the estimate give the same numbers for any threa
   }
 }
 
+TEST_CASE("the replicas' CMA runs beside the estimate's give the same numbers for any threads",
+          "[thread_pool][retrieve]") {
+  // retrieve.cpp (CmaAhead): with `auto`, the replicas' CMA runs start on the other threads
+  // beside the estimate's, on the momentum-node count its engine adds, and are kept when the
+  // estimate ends with that count. On the 200-count neon scan it does (three nodes; the chain
+  // ends with the CMA), so with 2 threads replica 1 runs beside the estimate and is kept: its
+  // iterations come before the estimate's last one and never start again. Every number must
+  // equal that of 1 thread (no runs beside) to the last bit, and of 3 (two beside)
+  // (common practice for parallel Monte Carlo: reproducible streams per task).
+  const auto scan = synthetic::generate_scan(test::neon_reference_61_delays(200.0), 3);
+  RetrieveOptions o;
+  o.bootstrap = 3;
+  o.threads = 1;
+  const RetrieveOutput a = retrieve(scan.trace, o);
+  REQUIRE(a.result.engine == "ptychographic");
+  REQUIRE(a.chain.front().momentum_nodes == 3);
+  std::mutex m;
+  int estimate_records = 0, replica_before = 0, restarts = 0, last = 0;
+  o.threads = 2;
+  const RetrieveOutput b =
+      retrieve(scan.trace, o, [&](const std::string& stage, const IterationRecord& r) {
+        const std::lock_guard<std::mutex> lock(m);
+        if (stage == "ptychographic") ++estimate_records;
+        if (stage != "bootstrap 1/3") return;
+        if (estimate_records < a.chain.front().iterations) ++replica_before;
+        if (r.iteration < last) ++restarts;
+        last = r.iteration;
+      });
+  CHECK(replica_before > 0);
+  CHECK(restarts == 0);
+  check_same_numbers(a, b, 3);
+  o.threads = 3;
+  check_same_numbers(a, retrieve(scan.trace, o), 3);
+}
+
 TEST_CASE("a replica started ahead that fails stops the estimate and its error comes back",
           "[thread_pool][retrieve]") {
   // A progress callback that throws (as the Python module's does on Ctrl-C) in the first
-  // replica, which starts beside the estimate's first full-model run on 2 threads: retrieve()
-  // must rethrow that error, and the estimate must stop at once (its later runs, the satellite
+  // replica, which starts beside the estimate's CMA run on 2 threads (and is dropped there: the
+  // estimate ends with one momentum node, the replica started with three): retrieve() must
+  // rethrow that error, and the estimate must stop at once (its later runs, the satellite
   // starts, report no progress) instead of finishing before the error is seen.
   const RetrieveOptions o = three_replicas(2);
   std::atomic<bool> thrown{false};

@@ -21,6 +21,7 @@
 #include "retrieval/core/statistics.h"
 #include "retrieval/core/units.h"
 #include "retrieval/engines/full_model_laplace.h"
+#include "retrieval/engines/ptychographic_engine.h"
 #include "retrieval/physics/pulse_metrics.h"
 #include "retrieval/physics/satellite_seed.h"
 
@@ -285,6 +286,7 @@ struct ReplicaDraw {
   PreprocessSummary summary;
   RetrievalProblem problem;
   EngineOptions options;
+  std::optional<Reconstruction> cma;  // its CMA run, when made beside the estimate's (CmaAhead)
   std::optional<Reconstruction> single;
 };
 
@@ -343,6 +345,69 @@ class ReplicaStarts {
   std::shared_future<void> ahead_done_;
 };
 
+// The replicas' CMA runs made beside the estimate's CMA run, which has one thread. A replica's
+// options pin the momentum nodes to the count the estimate's run ends with, known only when it
+// ends; these runs take the count the estimate's engine would add (ptychographic_momentum_nodes)
+// and are kept only when the estimate ends with it (settle): each is then the run the replica
+// would make later from its own seeds (the same numbers). Otherwise they stop at their next
+// iteration and are dropped. A failure (a progress callback's exception, as the Python module's
+// on Ctrl-C) raises `abandon`, as one of ReplicaStarts does, and settle() rethrows it, kept or
+// not. The destructor stops and waits for the runs.
+class CmaAhead {
+ public:
+  CmaAhead(int count, std::atomic<bool>* abandon)
+      : abandon_(abandon), slots_(static_cast<std::size_t>(std::max(count, 0))) {}
+  CmaAhead(const CmaAhead&) = delete;
+  CmaAhead& operator=(const CmaAhead&) = delete;
+  ~CmaAhead() {
+    stop_.store(true);
+    if (done_.valid()) done_.wait();
+  }
+
+  int count() const { return static_cast<int>(slots_.size()); }
+  // Raised when the runs are dropped: an engine run's callback stops it.
+  const std::atomic<bool>& stop() const { return stop_; }
+  // make(b) for b in [0, count()) on count() threads of their own, at once (once).
+  void start(std::function<ReplicaDraw(int)> make) {
+    const int n = count();
+    if (n <= 0 || done_.valid()) return;
+    done_ = std::async(std::launch::async, [this, n, make = std::move(make)] {
+              try {
+                parallel_for(n, n, [&](int b) { slots_[static_cast<std::size_t>(b)] = make(b); });
+              } catch (...) {
+                abandon_->store(true);
+                throw;
+              }
+            }).share();
+  }
+  // Keeps the runs (without waiting for them) or stops, waits for and drops them; first
+  // rethrows a failure of theirs.
+  void settle(bool keep) {
+    if (!done_.valid()) return;
+    if (abandon_->load()) std::shared_future<void>(done_).get();
+    kept_ = keep;
+    if (keep) return;
+    stop_.store(true);
+    done_.wait();
+    for (auto& s : slots_) s.reset();
+  }
+  // Replica b's draw with its CMA run, if kept (waits for it; rethrows a failure); each b once.
+  std::optional<ReplicaDraw> take(int b) {
+    if (!kept_ || b < 0 || b >= count()) return std::nullopt;
+    std::shared_future<void>(done_).get();
+    std::optional<ReplicaDraw> d = std::move(slots_[static_cast<std::size_t>(b)]);
+    slots_[static_cast<std::size_t>(b)].reset();
+    return d;
+  }
+
+ private:
+  std::atomic<bool>* abandon_;
+  std::atomic<bool> stop_{false};
+  std::vector<std::optional<ReplicaDraw>> slots_;
+  bool kept_ = false;
+  std::shared_future<void> done_;
+};
+
 }  // namespace
 
 RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
@@ -366,11 +431,14 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // Raised when a replica started ahead has failed (ReplicaStarts): the analysis will fail,
   // so every engine run stops at its next iteration.
   std::atomic<bool> abandon{false};
+  // `stop`, when given, stops the run too (CmaAhead's dropped runs).
   auto run_on = [&](const RetrievalProblem& problem, const std::string& name,
-                    const EngineOptions& o, const std::string& stage) {
+                    const EngineOptions& o, const std::string& stage,
+                    const std::atomic<bool>* stop = nullptr) {
     auto engine = make_engine(name);
     std::vector<IterationCallback> cbs{[&](const IterationRecord&) {
-      return abandon.load() ? CallbackResult::kStop : CallbackResult::kContinue;
+      return abandon.load() || (stop && stop->load()) ? CallbackResult::kStop
+                                                      : CallbackResult::kContinue;
     }};
     if (progress)
       cbs.push_back([&](const IterationRecord& r) {
@@ -429,15 +497,17 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // nodes exactly when the estimate's did (the engine adds them only when the one-p0 fit stalls
   // above the noise floor, and a replica's doubled noise would otherwise decide differently and
   // bias the correction).
-  auto replica_base_options = [&] {
+  // (replica_options_for: those options when the estimate's CMA run ends with `nodes`.)
+  auto replica_options_for = [&](int nodes) {
     EngineOptions o = eo;
+    if (!o.settings.is_given("momentum_bands") && nodes > 0) o.settings.set_momentum_bands(nodes);
+    return o;
+  };
+  auto replica_base_options = [&] {
     const auto ptycho =
         std::find_if(out.chain.begin(), out.chain.end(),
                      [](const Reconstruction& c) { return c.engine == "ptychographic"; });
-    if (!o.settings.is_given("momentum_bands") && ptycho != out.chain.end() &&
-        ptycho->momentum_nodes > 0)
-      o.settings.set_momentum_bands(ptycho->momentum_nodes);
-    return o;
+    return replica_options_for(ptycho != out.chain.end() ? ptycho->momentum_nodes : 0);
   };
   // Replica b's draw (seeds from its index alone).
   auto replica_draw = [&](int b, const EngineOptions& base) {
@@ -453,7 +523,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   auto replica_single = [&](ReplicaDraw& d, bool from_cma, const std::string& stage) {
     EngineOptions fo = full_model_options(d.options);
     if (from_cma) {
-      const Reconstruction c = run_on(d.problem, "ptychographic", d.options, stage);
+      const Reconstruction c =
+          d.cma ? std::move(*d.cma) : run_on(d.problem, "ptychographic", d.options, stage);
       fo.initial_xuv = c.xuv;
       fo.initial_ir = c.ir;
     }
@@ -471,10 +542,20 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
                ? "laplace check " + std::to_string(b + 1) + "/" + std::to_string(laplace_k)
                : "bootstrap " + std::to_string(b + 1) + "/" + std::to_string(opt.bootstrap);
   };
+  // The replicas' CMA runs beside the estimate's (on the other threads; declared after
+  // everything they use: the destructor waits for them).
+  CmaAhead cma_ahead(
+      opt.engine == "auto" ? std::min(chain_replicas, resolve_threads(opt.threads) - 1) : 0,
+      &abandon);
+  // Replica b's draw: the one made with its CMA run beside the estimate's, if kept.
+  auto draw_of = [&](int b, const EngineOptions& base) {
+    std::optional<ReplicaDraw> d = cma_ahead.take(b);
+    return d ? std::move(*d) : replica_draw(b, base);
+  };
   // Replica b up to its single-line result, as the chain of the estimate makes it (auto with the
   // full model: from the replica's CMA result, or from the full model's own guess).
   auto make_start = [&](const EngineOptions& base, int b, bool from_cma) {
-    ReplicaDraw d = replica_draw(b, base);
+    ReplicaDraw d = draw_of(b, base);
     replica_single(d, from_cma, replica_stage(b));
     return d;
   };
@@ -488,7 +569,25 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   std::string final_engine = opt.engine;
   bool full_model_from_cma = false;  // auto: the full model's result started from the CMA's
   if (opt.engine == "auto") {
+    // The replicas' CMA runs beside this one, on the node count it would add (when that count
+    // cannot be had, e.g. for settings the run itself will refuse, none).
+    int nodes_ahead = 0;
+    if (cma_ahead.count() > 0) {
+      try {
+        nodes_ahead = ptychographic_momentum_nodes(pr, eo.settings.ptychographic);
+      } catch (const std::exception&) {
+        nodes_ahead = 0;
+      }
+    }
+    if (nodes_ahead > 0)
+      cma_ahead.start([&, base = replica_options_for(nodes_ahead)](int b) {
+        ReplicaDraw d = replica_draw(b, base);
+        d.cma = run_on(d.problem, "ptychographic", d.options, replica_stage(b), &cma_ahead.stop());
+        return d;
+      });
     out.chain.push_back(run("ptychographic", eo));
+    cma_ahead.settle(eo.settings.is_given("momentum_bands") ||
+                     out.chain.back().momentum_nodes == nodes_ahead);
     const Reconstruction& first = out.chain.back();
     // Band edges: centroid +- FWHM/2 of the photoelectron spectrum.
     const double Wc = units::eV_to_au(out.preprocess.centroid_energy_eV);
@@ -709,7 +808,7 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
   // Replica b of the chain (kFull's, or kWarm's), its progress under `stage`.
   auto chain_replica = [&](int b, const std::string& stage) {
     std::optional<ReplicaDraw> made = starts.take(b);
-    ReplicaDraw d = made ? std::move(*made) : replica_draw(b, beo);
+    ReplicaDraw d = made ? std::move(*made) : draw_of(b, beo);
     const Trace& rep = d.trace;
     const PreprocessSummary& ps = d.summary;
     const RetrievalProblem& rp = d.problem;
@@ -738,7 +837,8 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         if (sr.trace_error < br.trace_error) br = std::move(sr);
       }
     } else {
-      br = run_on(rp, single_engine, bo, stage);
+      // (a CMA run made beside the estimate's is this run: the chain ended with it)
+      br = d.cma ? std::move(*d.cma) : run_on(rp, single_engine, bo, stage);
     }
     if (lines_step.used) {  // the joint fit on the replica, from its single-line result
       const EngineOptions jb = full_model_options(bo);

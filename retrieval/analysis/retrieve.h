@@ -94,12 +94,13 @@ struct RetrieveOptions {
   /// replicas run concurrently, one per thread (retrieval/analysis/thread_pool.h), and so do
   /// the estimate's two independent full-model runs (the satellite starts of both signs; the
   /// starts from the CMA result and from the full model's own guess). The replicas of the full
-  /// chain (`uncertainty` full, or laplace's check) start during the estimate: while its
-  /// single full-model run from the CMA result has one thread, on the others, and more (up to
-  /// twice the threads in all) in the task list of its satellite starts, each up to its own
-  /// full-model result. Every engine
-  /// runs single-threaded and every replica draws from its index alone, so the results are
-  /// bit-identical for any value.
+  /// chain (`uncertainty` full, or laplace's check) start during the estimate: with `auto`,
+  /// their CMA runs on the other threads beside the estimate's CMA run (kept when that run
+  /// ends with the momentum-node count they were started with, else dropped and made again
+  /// later); while its single full-model run from the CMA result has one thread, on the
+  /// others; and more (up to twice the threads in all) in the task list of its satellite
+  /// starts, each up to its own full-model result. Every engine runs single-threaded and every
+  /// replica draws from its index alone, so the results are bit-identical for any value.
   int threads = 0;
   /// How the bootstrap replicas start (retrieval/analysis/uncertainty.h): kFull = the whole engine
   /// chain from scratch (default), kWarm = the final engine from the estimate, kLaplace = one

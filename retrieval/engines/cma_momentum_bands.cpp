@@ -160,10 +160,23 @@ void CmaProblem::band_layout(const CommonPotential& c, const PhaseGate& gate,
       state.twist[i * nb + b] = std::polar(1.0, -bands_[b].p_au * j1);
     // Initial-momentum frame: row p_f is interpolated at its initial momentum p_f + A(tau_i)
     // (classical streaking, p_f = p_i - A); final-momentum frame: at p_f (a = 0).
+    // (In the final-momentum frame every delay's layout is the first delay's.)
+    std::uint8_t* node = state.node.data() + i * ne_;
+    double* frac = state.frac.data() + i * ne_;
+    if (state.final_momentum && i > 0) {
+      std::copy_n(state.node.data(), ne_, node);
+      std::copy_n(state.frac.data(), ne_, frac);
+      continue;
+    }
+    // node_of() written out (the same arithmetic) so that the loop vectorises.
+    const double p_first = bands_.front().p_au, x_hi = static_cast<double>(nb - 1) + 0.5;
+    const int n_hi = static_cast<int>(nb) - 2;
+    const double* pm = row_momentum_.data();
     for (std::size_t j = 0; j < ne_; ++j) {
-      double w;
-      state.node[i * ne_ + j] = static_cast<std::uint8_t>(node_of(row_momentum_[j] + a, &w));
-      state.frac[i * ne_ + j] = w;
+      const double xn = std::clamp((pm[j] + a - p_first) / node_step_, -0.5, x_hi);
+      const int n = xn < 0 ? 0 : std::min(static_cast<int>(xn), n_hi);
+      node[j] = static_cast<std::uint8_t>(n);
+      frac[j] = xn - static_cast<double>(n);
     }
   }
 }
@@ -176,33 +189,59 @@ void CmaProblem::project_bands(std::size_t j, std::vector<CVec>& spectra, const 
   // at most scales them), so the buffers are zeroed once.
   if (combined.size() != n_) combined.assign(n_, cdouble(0.0, 0.0));
   before.resize(n_);
+  // The complex products are written out in real arithmetic, in the order std::complex uses
+  // for finite values ((w re) x, then x y = (ac - bd, ad + bc)): the same numbers without the
+  // compiler's NaN branch per product, which kept this loop scalar and branchy.
+  const std::size_t nb = spectra.size();
+  double* sp[kMaxMomentumBands];
+  for (std::size_t b = 0; b < nb; ++b) sp[b] = reinterpret_cast<double*>(spectra[b].data());
   const std::uint8_t* node = state.node.data() + j * ne_;
   const double* frac = state.frac.data() + j * ne_;
-  const cdouble* tw = state.twist.data() + j * spectra.size();
-  for (const Segment& seg : measured_)
+  const double* tw = reinterpret_cast<const double*>(state.twist.data() + j * nb);
+  double* comb = reinterpret_cast<double*>(combined.data());
+  double* prev = reinterpret_cast<double*>(before.data());
+  for (const Segment& seg : measured_) {
+    const std::uint8_t* nd = node + seg.j0;
+    const double* fr = frac + seg.j0;
     for (std::size_t q = 0; q < seg.len; ++q) {
-      const std::size_t r = seg.j0 + q, k = seg.k0 + q, n = node[r];
-      const double u = frac[r];
-      combined[k] = (1.0 - u) * tw[n] * spectra[n][k] + u * tw[n + 1] * spectra[n + 1][k];
-      before[k] = combined[k];
+      const std::size_t n = nd[q], k2 = 2 * (seg.k0 + q);
+      const double u = fr[q], v = 1.0 - u;
+      const double ar = v * tw[2 * n], ai = v * tw[2 * n + 1];
+      const double br = u * tw[2 * n + 2], bi = u * tw[2 * n + 3];
+      const double* x = sp[n] + k2;
+      const double* y = sp[n + 1] + k2;
+      const double re = (ar * x[0] - ai * x[1]) + (br * y[0] - bi * y[1]);
+      const double im = (ar * x[1] + ai * x[0]) + (br * y[1] + bi * y[0]);
+      comb[k2] = prev[k2] = re;
+      comb[k2 + 1] = prev[k2 + 1] = im;
     }
+  }
   project(j, combined.data(), sums, scratch);  // unmeasured bins are 0 and stay 0
   // The gradient of the combined model: each node's spectrum moves by its weight times the
   // change of the row (the two weights sum to 1, so the row moves by the whole change when
-  // both nodes' exit waves are updated).
-  for (const Segment& seg : measured_)
+  // both nodes' exit waves are updated): x += (w conj(tw)) d, written out as above.
+  for (const Segment& seg : measured_) {
+    const std::uint8_t* nd = node + seg.j0;
+    const double* fr = frac + seg.j0;
     for (std::size_t q = 0; q < seg.len; ++q) {
-      const std::size_t r = seg.j0 + q, k = seg.k0 + q, n = node[r];
-      const double u = frac[r];
-      const cdouble d = combined[k] - before[k];
-      spectra[n][k] += (1.0 - u) * std::conj(tw[n]) * d;
-      spectra[n + 1][k] += u * std::conj(tw[n + 1]) * d;
+      const std::size_t n = nd[q], k2 = 2 * (seg.k0 + q);
+      const double u = fr[q], v = 1.0 - u;
+      const double dr = comb[k2] - prev[k2], di = comb[k2 + 1] - prev[k2 + 1];
+      const double ar = v * tw[2 * n], ai = v * -tw[2 * n + 1];
+      const double br = u * tw[2 * n + 2], bi = u * -tw[2 * n + 3];
+      double* x = sp[n] + k2;
+      double* y = sp[n + 1] + k2;
+      x[0] += ar * dr - ai * di;
+      x[1] += ar * di + ai * dr;
+      y[0] += br * dr - bi * di;
+      y[1] += br * di + bi * dr;
     }
+  }
   const double damp = settings_.unmeasured_damping;
   if (damp != 1.0)
-    for (CVec& sp : spectra)
+    for (CVec& spec : spectra)
       for (const Segment& seg : unmeasured_)
-        for (std::size_t q = 0; q < seg.len; ++q) sp[seg.k0 + q] *= damp;
+        for (std::size_t q = 0; q < seg.len; ++q) spec[seg.k0 + q] *= damp;
 }
 
 void CmaProblem::apply_potential(const CommonPotential& c, std::vector<PhaseGate>& gates,

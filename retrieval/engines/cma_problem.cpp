@@ -181,7 +181,8 @@ CmaProblem::CmaProblem(const RetrievalProblem& p, const CmaSettings& settings, s
     const double plo = row_momentum_[ja], phi = std::max(row_momentum_[jb], plo);
     int nb = settings_.momentum_bands;
     if (nb <= 0) nb = auto_momentum_bands(plo, phi, p0);
-    nb = std::clamp(nb, 1, static_cast<int>(std::max<std::size_t>(1, ne_ / 4)));
+    nb = std::clamp(
+        nb, 1, std::min(kMaxMomentumBands, static_cast<int>(std::max<std::size_t>(1, ne_ / 4))));
     bands_.clear();
     if (nb == 1 || !(phi > plo)) {
       bands_.push_back({p0, 1.0});

@@ -22,6 +22,10 @@ enum class CmaProjection { kPoisson, kAmplitude };
 const char* to_string(CmaProjection p);
 bool parse_option(const std::string& s, CmaProjection* out);
 
+/// The most momentum nodes a CmaProblem makes (the ptychographic engine's momentum_bands
+/// accepts 0 to this; a larger count set directly on CmaSettings is clamped to it).
+inline constexpr int kMaxMomentumBands = 16;
+
 /// Settings shared by the CMA engines (EngineOptions::settings carries them typed, inside each
 /// engine's own settings); describe() is the one description of their names, defaults, limits and
 /// help (retrieval/core/option_spec.h).

@@ -364,6 +364,13 @@ class PtychographicEngine final : public Engine {
 
 }  // namespace
 
+int ptychographic_momentum_nodes(const RetrievalProblem& problem,
+                                 const PtychographicSettings& settings) {
+  const PtychographicSettings& ps = validated_settings(settings, "ptychographic");
+  if (ps.joint_lines && !problem.extra_lines.empty()) return 1;
+  return static_cast<int>(CmaProblem(problem, ps.cma, "ptychographic").bands().size());
+}
+
 std::unique_ptr<Engine> make_ptychographic_engine() {
   return std::make_unique<PtychographicEngine>();
 }

@@ -50,4 +50,14 @@ namespace sw {
 
 std::unique_ptr<Engine> make_ptychographic_engine();
 
+/// The momentum nodes the engine uses on `problem` with `settings` once it adds them: the
+/// count its CmaProblem makes (momentum_bands, or auto_momentum_bands for 0), or 1 when it never
+/// adds any (one node by the settings or the band, or the lines fitted jointly). A run reports
+/// this count or 1 (Reconstruction::momentum_nodes: 1 when its best iterate predates the
+/// nodes). retrieve() starts the bootstrap replicas, whose node count is pinned to the
+/// estimate's, on this count before the estimate's run has ended. Throws as the engine's
+/// prepare() does for invalid settings.
+int ptychographic_momentum_nodes(const RetrievalProblem& problem,
+                                 const PtychographicSettings& settings);
+
 }  // namespace sw

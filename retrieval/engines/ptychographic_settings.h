@@ -54,7 +54,7 @@ struct PtychographicSettings {
                 "p0, 2 to 8 nodes; used only when the one-p0 fit stalls above 1.1 x the noise "
                 "floor)",
             .min = 0,
-            .max = 16},
+            .max = kMaxMomentumBands},
         self.cma.momentum_bands);
     v(OptionSpec{.name = "joint_lines",
                  .help = "fit the problem's further photoelectron lines jointly, one incoherent "
