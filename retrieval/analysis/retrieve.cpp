@@ -337,6 +337,11 @@ class ReplicaStarts {
   void rethrow_failure() const {
     if (abandon_->load() && ahead_done_.valid()) std::shared_future<void>(ahead_done_).get();
   }
+  // Waits for those made ahead and empties every slot.
+  void drop() {
+    if (ahead_done_.valid()) ahead_done_.wait();
+    for (auto& s : slots_) s.reset();
+  }
 
  private:
   std::atomic<bool>* abandon_;
@@ -355,57 +360,32 @@ class ReplicaStarts {
 // not. The destructor stops and waits for the runs.
 class CmaAhead {
  public:
-  CmaAhead(int count, std::atomic<bool>* abandon)
-      : abandon_(abandon), slots_(static_cast<std::size_t>(std::max(count, 0))) {}
+  CmaAhead(int count, std::atomic<bool>* abandon) : runs_(count, abandon) {}
   CmaAhead(const CmaAhead&) = delete;
   CmaAhead& operator=(const CmaAhead&) = delete;
-  ~CmaAhead() {
-    stop_.store(true);
-    if (done_.valid()) done_.wait();
-  }
+  ~CmaAhead() { stop_.store(true); }  // then runs_ waits for them
 
-  int count() const { return static_cast<int>(slots_.size()); }
+  int count() const { return runs_.count(); }
   // Raised when the runs are dropped: an engine run's callback stops it.
   const std::atomic<bool>& stop() const { return stop_; }
   // make(b) for b in [0, count()) on count() threads of their own, at once (once).
-  void start(std::function<ReplicaDraw(int)> make) {
-    const int n = count();
-    if (n <= 0 || done_.valid()) return;
-    done_ = std::async(std::launch::async, [this, n, make = std::move(make)] {
-              try {
-                parallel_for(n, n, [&](int b) { slots_[static_cast<std::size_t>(b)] = make(b); });
-              } catch (...) {
-                abandon_->store(true);
-                throw;
-              }
-            }).share();
-  }
+  void start(std::function<ReplicaDraw(int)> make) { runs_.start_ahead(count(), std::move(make)); }
   // Keeps the runs (without waiting for them) or stops, waits for and drops them; first
   // rethrows a failure of theirs.
   void settle(bool keep) {
-    if (!done_.valid()) return;
-    if (abandon_->load()) std::shared_future<void>(done_).get();
+    runs_.rethrow_failure();
     kept_ = keep;
     if (keep) return;
     stop_.store(true);
-    done_.wait();
-    for (auto& s : slots_) s.reset();
+    runs_.drop();
   }
   // Replica b's draw with its CMA run, if kept (waits for it; rethrows a failure); each b once.
-  std::optional<ReplicaDraw> take(int b) {
-    if (!kept_ || b < 0 || b >= count()) return std::nullopt;
-    std::shared_future<void>(done_).get();
-    std::optional<ReplicaDraw> d = std::move(slots_[static_cast<std::size_t>(b)]);
-    slots_[static_cast<std::size_t>(b)].reset();
-    return d;
-  }
+  std::optional<ReplicaDraw> take(int b) { return kept_ ? runs_.take(b) : std::nullopt; }
 
  private:
-  std::atomic<bool>* abandon_;
-  std::atomic<bool> stop_{false};
-  std::vector<std::optional<ReplicaDraw>> slots_;
+  std::atomic<bool> stop_{false};  // (before runs_: it outlives their wait)
+  ReplicaStarts runs_;
   bool kept_ = false;
-  std::shared_future<void> done_;
 };
 
 }  // namespace
