@@ -249,7 +249,8 @@ struct RetrieveOptions {
     v(OptionSpec{.name = "threads",
                  .help =
                      "worker threads for the bootstrap replicas (they start beside the "
-                     "estimate's full-model runs) and the estimate's paired full-model starts "
+                     "estimate's CMA and full-model runs) and the estimate's paired full-model "
+                     "starts "
                      "(0 = the machine's cores; batch: 1 per job with --jobs > 1); results do not "
                      "depend on it",
                  .min = 0,
