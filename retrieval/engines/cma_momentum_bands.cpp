@@ -75,16 +75,6 @@ std::size_t cma_detail::last_probed_node(const std::vector<double>& cover) {
   return hi;
 }
 
-std::size_t CmaProblem::node_of(double p, double* u) const {
-  const std::size_t nb = bands_.size();
-  // Linear extrapolation up to half a node step beyond the end nodes, then constant.
-  const double x =
-      std::clamp((p - bands_.front().p_au) / node_step_, -0.5, static_cast<double>(nb - 1) + 0.5);
-  const std::size_t n = x < 0 ? 0 : std::min(static_cast<std::size_t>(x), nb - 2);
-  *u = x - static_cast<double>(n);
-  return n;
-}
-
 CmaProblem::CommonPotential CmaProblem::common_potential(const CVec& eps,
                                                          const std::vector<PhaseGate>& gates,
                                                          std::vector<double>& cover,
@@ -168,16 +158,8 @@ void CmaProblem::band_layout(const CommonPotential& c, const PhaseGate& gate,
       std::copy_n(state.frac.data(), ne_, frac);
       continue;
     }
-    // node_of() written out (the same arithmetic) so that the loop vectorises.
-    const double p_first = bands_.front().p_au, x_hi = static_cast<double>(nb - 1) + 0.5;
-    const int n_hi = static_cast<int>(nb) - 2;
-    const double* pm = row_momentum_.data();
-    for (std::size_t j = 0; j < ne_; ++j) {
-      const double xn = std::clamp((pm[j] + a - p_first) / node_step_, -0.5, x_hi);
-      const int n = xn < 0 ? 0 : std::min(static_cast<int>(xn), n_hi);
-      node[j] = static_cast<std::uint8_t>(n);
-      frac[j] = xn - static_cast<double>(n);
-    }
+    for (std::size_t j = 0; j < ne_; ++j)
+      node[j] = static_cast<std::uint8_t>(node_of(row_momentum_[j] + a, &frac[j]));
   }
 }
 

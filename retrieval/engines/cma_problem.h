@@ -64,6 +64,7 @@
 // update (common practice for ePIE-type engines), with the optimal scale of trace_error.h; the
 // Reconstruction reports the exact G of the returned estimate.
 
+#include <algorithm>
 #include <complex>
 #include <cstdint>
 #include <string>
@@ -363,8 +364,16 @@ class CmaProblem {
   std::vector<double> row_momentum_;  // ne, sqrt(2 W_j)
   double node_step_ = 1.0;            // spacing h of the momentum nodes (a.u.)
   // Lower node n of momentum p and the weight u of node n + 1 (linear extrapolation up to
-  // half a node step beyond the end nodes, constant further out).
-  std::size_t node_of(double p, double* u) const;
+  // half a node step beyond the end nodes, constant further out). Inline, with an int node,
+  // so that band_layout's loop over the rows vectorises.
+  std::size_t node_of(double p, double* u) const {
+    const int nb = static_cast<int>(bands_.size());
+    const double x =
+        std::clamp((p - bands_.front().p_au) / node_step_, -0.5, static_cast<double>(nb - 1) + 0.5);
+    const int n = x < 0 ? 0 : std::min(static_cast<int>(x), nb - 2);
+    *u = x - static_cast<double>(n);
+    return static_cast<std::size_t>(n);
+  }
   // The banded CMA's common A on the gate nodes (signal-weighted mean of the bands' A_b; one
   // gate: its own A at p0), the last well-probed node and the phase every band gate takes
   // there (the fitted phase of the heaviest band).
