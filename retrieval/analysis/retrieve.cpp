@@ -559,15 +559,18 @@ RetrieveOutput retrieve(const Trace& trace, const RetrieveOptions& opt,
         nodes_ahead = 0;
       }
     }
+    const EngineOptions ahead_options = replica_options_for(nodes_ahead);
     if (nodes_ahead > 0)
-      cma_ahead.start([&, base = replica_options_for(nodes_ahead)](int b) {
+      cma_ahead.start([&, base = ahead_options](int b) {  // (a copy: the runs outlive this block)
         ReplicaDraw d = replica_draw(b, base);
         d.cma = run_on(d.problem, "ptychographic", d.options, replica_stage(b), &cma_ahead.stop());
         return d;
       });
     out.chain.push_back(run("ptychographic", eo));
-    cma_ahead.settle(eo.settings.is_given("momentum_bands") ||
-                     out.chain.back().momentum_nodes == nodes_ahead);
+    // Kept when the replicas' options are those they were started with (they differ in the
+    // pinned node count alone).
+    cma_ahead.settle(replica_base_options().settings.ptychographic.cma.momentum_bands ==
+                     ahead_options.settings.ptychographic.cma.momentum_bands);
     const Reconstruction& first = out.chain.back();
     // Band edges: centroid +- FWHM/2 of the photoelectron spectrum.
     const double Wc = units::eV_to_au(out.preprocess.centroid_energy_eV);
