@@ -177,3 +177,38 @@ TEST_CASE("the vector potential comes back from the smooth gate phase", "[gate]"
     CHECK(vector_potential_from_phase_rate(p0 * A - 0.5 * A * A, p0) == Approx(A).margin(1e-13));
   CHECK(vector_potential_from_phase_rate(10.0, p0) == Approx(p0));
 }
+
+TEST_CASE("one factored fit for gates of the same geometry gives each gate's own fit", "[gate]") {
+  // fit_phases shares the normal matrix of the weighted B-spline fit between gates of one
+  // geometry: every coefficient must equal fit_phase's on each gate to the last bit, and the
+  // fit must reproduce a phase the spline can represent (a linear phase: the cubic B-splines
+  // reproduce polynomials up to degree 3, de Boor, "A Practical Guide to Splines", 1978).
+  const TimeGrid g = grid();
+  const auto d = delays(41, -5.0, 0.25, 0.03);
+  PhaseGate a(g, d, 4.0);
+  a.set_phase([](double t) { return test_phase(t); });
+  PhaseGate b = a, c = a;
+  b.set_phase([](double t) { return 0.7 * test_phase(t) - 0.02 * t; });
+  c.set_phase([](double t) { return 0.004 * t + 0.4; });
+  std::vector<double> w(a.size());
+  for (std::size_t m = 0; m < w.size(); ++m)
+    w[m] =
+        std::exp(-std::pow((a.time(m) - a.time(w.size() / 2)) / 60.0, 2)) + (m % 7 == 0 ? 0 : 0.1);
+  const std::vector<PhaseGate> gates = {a, b, c};
+  const std::vector<SmoothPhase> all = PhaseGate::fit_phases(gates, w);
+  REQUIRE(all.size() == 3);
+  for (std::size_t k = 0; k < 3; ++k) {
+    const SmoothPhase one = gates[k].fit_phase(w);
+    CHECK(all[k].coef == one.coef);
+    CHECK(all[k].t0 == one.t0);
+    CHECK(all[k].h == one.h);
+  }
+  // The linear phase comes back where the weights are strong (the 1e-3 curvature penalty
+  // does not act on a straight line).
+  for (std::size_t m = w.size() / 4; m < 3 * w.size() / 4; m += 17)
+    CHECK(all[2].value(c.time(m)) == Approx(0.004 * c.time(m) + 0.4).margin(1e-6));
+  // Gates of another geometry are refused.
+  const PhaseGate other(g, delays(41, -5.0, 0.3), 4.0);
+  const std::vector<PhaseGate> mixed = {a, other};
+  CHECK_THROWS_AS(PhaseGate::fit_phases(mixed, w), std::invalid_argument);
+}

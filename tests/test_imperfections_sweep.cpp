@@ -118,6 +118,10 @@ TEST_CASE("smoke run: two cases end to end through the sweep", "[validation]") {
   CHECK(md.find("coverage") != std::string::npos);
   CHECK(md.find("wrong and trusted") != std::string::npos);
   CHECK_THROWS_WITH(run_sweep({"no-such-case"}, o), Catch::Contains("known cases"));
+  // A sweep option out of range is refused before any scan is made, naming its flag.
+  SweepOptions bad = o;
+  bad.full_model_patience = -1;
+  CHECK_THROWS_WITH(run_sweep({"good-ne-150as"}, bad), Catch::Contains("--full-model-patience"));
 }
 
 TEST_CASE(

@@ -91,8 +91,9 @@ CmaProblem::CommonPotential CmaProblem::common_potential(const CVec& eps,
     wsum += one ? 1.0 : bands_[b].weight;
     if (!one && bands_[b].weight > bands_[ref].weight) ref = b;
   }
+  const std::vector<SmoothPhase> phases = PhaseGate::fit_phases(gates, cover);
   for (std::size_t b = 0; b < gates.size(); ++b) {
-    const SmoothPhase ph = gates[b].fit_phase(cover);
+    const SmoothPhase& ph = phases[b];
     const double w = one        ? 1.0
                      : wsum > 0 ? bands_[b].weight / wsum
                                 : 1.0 / static_cast<double>(gates.size());

@@ -311,35 +311,47 @@ void PhaseGate::coverage(const CVec& eps, std::vector<double>& w) const {
 }
 
 SmoothPhase PhaseGate::fit_phase(const std::vector<double>& weight) const {
-  const std::size_t M = table_.size();
-  // Unwrapped phase along the table.
-  std::vector<double> ph(M);
-  ph[0] = std::arg(table_[0]);
-  for (std::size_t m = 1; m < M; ++m)
-    ph[m] = ph[m - 1] + std::arg(table_[m] * std::conj(table_[m - 1]));
+  return std::move(fit_phases(std::span<const PhaseGate>(this, 1), weight)[0]);
+}
 
+std::vector<SmoothPhase> PhaseGate::fit_phases(std::span<const PhaseGate> gates,
+                                               const std::vector<double>& weight) {
+  if (gates.empty()) return {};
+  const PhaseGate& g0 = gates[0];
+  for (const PhaseGate& g : gates)
+    if (g.size() != g0.size() || g.dt_ != g0.dt_ || g.t0_ != g0.t0_ || g.h_ != g0.h_)
+      throw std::invalid_argument("PhaseGate::fit_phases: gates of different geometry");
+  const std::size_t M = g0.size();
   SmoothPhase s;
-  s.t0 = time(0);
-  s.h = h_;
-  const std::size_t K = static_cast<std::size_t>(std::floor((time(M - 1) - s.t0) / h_)) + 4;
+  s.t0 = g0.time(0);
+  s.h = g0.h_;
+  const std::size_t K = static_cast<std::size_t>(std::floor((g0.time(M - 1) - s.t0) / s.h)) + 4;
   s.coef.assign(K, 0.0);
-  // Banded normal equations: band(k, d) = N(k, k - d), d = 0..3.
-  std::vector<double> band(4 * K, 0.0), rhs(K, 0.0);
-  auto at = [&](std::size_t k, std::size_t d) -> double& { return band[4 * k + d]; };
+  // The weighted samples: node, knot index and B-spline weights (the same for every gate).
   double wmax = 0.0;
   for (double w : weight) wmax = std::max(wmax, w);
   const double inv = wmax > 0 ? 1.0 / wmax : 0.0;
+  struct Sample {
+    std::size_t m, i;
+    double w, b[4];
+  };
+  std::vector<Sample> used;
+  used.reserve(M);
   for (std::size_t m = 0; m < M; ++m) {
-    const double w = (m < weight.size() ? weight[m] : 0.0) * inv;
-    if (!(w > 0)) continue;
-    double f, b[4];
-    const std::size_t i = locate(s, time(m), &f);
-    bspline_weights(f, b);
-    for (std::size_t a = 0; a < 4; ++a) {
-      rhs[i + a] += w * b[a] * ph[m];
-      for (std::size_t c = 0; c <= a; ++c) at(i + a, a - c) += w * b[a] * b[c];
-    }
+    Sample x{.m = m, .i = 0, .w = (m < weight.size() ? weight[m] : 0.0) * inv, .b = {}};
+    if (!(x.w > 0)) continue;
+    double f;
+    x.i = locate(s, g0.time(m), &f);
+    bspline_weights(f, x.b);
+    used.push_back(x);
   }
+  // Banded normal equations, band(k, d) = N(k, k - d), d = 0..3: they depend on the weights
+  // alone, so they are assembled and factored once for all gates.
+  std::vector<double> band(4 * K, 0.0);
+  auto at = [&](std::size_t k, std::size_t d) -> double& { return band[4 * k + d]; };
+  for (const Sample& x : used)
+    for (std::size_t a = 0; a < 4; ++a)
+      for (std::size_t c = 0; c <= a; ++c) at(x.i + a, a - c) += x.w * x.b[a] * x.b[c];
   // Second-difference penalty (linear extension where unconstrained) and a tiny ridge.
   const double lambda = 1e-3;
   const double d2[3] = {1.0, -2.0, 1.0};
@@ -347,7 +359,7 @@ SmoothPhase PhaseGate::fit_phase(const std::vector<double>& weight) const {
     for (std::size_t a = 0; a < 3; ++a)
       for (std::size_t c = 0; c <= a; ++c) at(k - 1 + a, a - c) += lambda * d2[a] * d2[c];
   for (std::size_t k = 0; k < K; ++k) at(k, 0) += 1e-12;
-  // Banded Cholesky N = L L^T (L overwrites band), then two triangular solves.
+  // Banded Cholesky N = L L^T (L overwrites band).
   for (std::size_t k = 0; k < K; ++k) {
     for (std::size_t d = std::min<std::size_t>(3, k); d >= 1; --d) {
       const std::size_t j = k - d;
@@ -359,18 +371,29 @@ SmoothPhase PhaseGate::fit_phase(const std::vector<double>& weight) const {
     for (std::size_t e = 1; e <= 3 && e <= k; ++e) v -= at(k, e) * at(k, e);
     at(k, 0) = std::sqrt(std::max(v, 1e-300));
   }
-  std::vector<double>& c = s.coef;
-  for (std::size_t k = 0; k < K; ++k) {
-    double v = rhs[k];
-    for (std::size_t e = 1; e <= 3 && e <= k; ++e) v -= at(k, e) * c[k - e];
-    c[k] = v / at(k, 0);
+  std::vector<SmoothPhase> out(gates.size(), s);
+  std::vector<double> ph(M), rhs(K);
+  for (std::size_t g = 0; g < gates.size(); ++g) {
+    // Unwrapped phase along the table, its right-hand side, then two triangular solves.
+    const CVec& t = gates[g].table_;
+    ph[0] = std::arg(t[0]);
+    for (std::size_t m = 1; m < M; ++m) ph[m] = ph[m - 1] + std::arg(t[m] * std::conj(t[m - 1]));
+    std::fill(rhs.begin(), rhs.end(), 0.0);
+    for (const Sample& x : used)
+      for (std::size_t a = 0; a < 4; ++a) rhs[x.i + a] += x.w * x.b[a] * ph[x.m];
+    std::vector<double>& c = out[g].coef;
+    for (std::size_t k = 0; k < K; ++k) {
+      double v = rhs[k];
+      for (std::size_t e = 1; e <= 3 && e <= k; ++e) v -= at(k, e) * c[k - e];
+      c[k] = v / at(k, 0);
+    }
+    for (std::size_t k = K; k-- > 0;) {
+      double v = c[k];
+      for (std::size_t e = 1; e <= 3 && k + e < K; ++e) v -= at(k + e, e) * c[k + e];
+      c[k] = v / at(k, 0);
+    }
   }
-  for (std::size_t k = K; k-- > 0;) {
-    double v = c[k];
-    for (std::size_t e = 1; e <= 3 && k + e < K; ++e) v -= at(k + e, e) * c[k + e];
-    c[k] = v / at(k, 0);
-  }
-  return s;
+  return out;
 }
 
 SmoothPhase PhaseGate::smooth(const std::vector<double>& weight) {

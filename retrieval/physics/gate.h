@@ -49,6 +49,7 @@
 // differences, no extra smoothing).
 
 #include <functional>
+#include <span>
 #include <vector>
 
 #include "retrieval/core/grid.h"
@@ -128,6 +129,12 @@ class PhaseGate {
   void coverage(const CVec& eps, std::vector<double>& w) const;
   /// Weighted least-squares cubic B-spline fit of the unwrapped table phase (see header).
   SmoothPhase fit_phase(const std::vector<double>& weight) const;
+  /// fit_phase of each of `gates` with one weight, the same numbers: the gates must share
+  /// their geometry (size, time(0), dt, knot step; throws std::invalid_argument otherwise), so
+  /// that the normal matrix, which depends on the weights alone, is assembled and factored
+  /// once (the momentum nodes' gates of the banded CMA, every iteration).
+  static std::vector<SmoothPhase> fit_phases(std::span<const PhaseGate> gates,
+                                             const std::vector<double>& weight);
   /// table = exp(i phi_s) with phi_s = fit_phase(weight).
   SmoothPhase smooth(const std::vector<double>& weight);
 

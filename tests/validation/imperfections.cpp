@@ -74,6 +74,7 @@ SweepRow run_case(const ValidationCase& k, const SweepOptions& o, const std::str
     ro.threads = 1;
     parse_uncertainty_method(o.uncertainty, &ro.uncertainty);  // checked by run_sweep
     ro.preprocess.energy_combine = o.energy_combine;
+    if (o.full_model_patience > 0) ro.full_model_patience = o.full_model_patience;
     const RetrieveOutput r = retrieve(trace, ro);
     const AnalysisResult& a = r.result;
     row.engine = a.engine;

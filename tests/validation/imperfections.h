@@ -63,6 +63,8 @@ struct SweepOptions {
   /// >= 1: every scan recorded on an energy axis this many times finer (refined_scan()).
   int energy_refine = 1;
   int energy_combine = 0;  ///< RetrieveOptions::preprocess.energy_combine (0 = auto, 1 = never)
+  /// RetrieveOptions::full_model_patience (0 = retrieve's default).
+  int full_model_patience = 0;
 };
 
 /// The same measurement histogrammed on `f` times finer energy bins: step / f, count x f (and

@@ -563,6 +563,9 @@ std::vector<ValidationCase> sweep_cases(const SweepOptions& o) {
   if (o.energy_combine < 0 || o.energy_combine > 64)
     throw usage_error("--energy-combine = " + std::to_string(o.energy_combine) +
                       "; expected 0 (auto), 1 (never) or up to 64");
+  if (o.full_model_patience < 0 || o.full_model_patience > 1000)
+    throw usage_error("--full-model-patience = " + std::to_string(o.full_model_patience) +
+                      "; expected 0 (retrieve's default) or 1 to 1000 engine iterations");
   std::vector<ValidationCase> v =
       o.held_out > 0 ? held_out_cases(o.held_out, o.held_out_seed) : validation_cases();
   for (ValidationCase& c : v) c.config = refined_scan(c.config, o.energy_refine);

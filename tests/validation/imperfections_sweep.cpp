@@ -10,6 +10,7 @@
 //        [--write-scans DIR] (the cases' scans as files, to analyse with the command line)
 //        [--held-out N] [--held-out-seed S] (N random held-out cases instead of the named set;
 //        the files are then named validation_heldout*)
+//        [--full-model-patience N] (retrieve's full_model_patience; 0 = its default)
 #include <cstdio>
 #include <cstdlib>
 #include <filesystem>
@@ -32,7 +33,8 @@ const std::pair<const char*, int validation::SweepOptions::*> kIntegerFlags[] = 
     {"--jobs", &validation::SweepOptions::jobs},
     {"--held-out", &validation::SweepOptions::held_out},
     {"--energy-refine", &validation::SweepOptions::energy_refine},
-    {"--energy-combine", &validation::SweepOptions::energy_combine}};
+    {"--energy-combine", &validation::SweepOptions::energy_combine},
+    {"--full-model-patience", &validation::SweepOptions::full_model_patience}};
 const std::pair<const char*, std::string validation::SweepOptions::*> kTextFlags[] = {
     {"--engine", &validation::SweepOptions::engine},
     {"--uncertainty", &validation::SweepOptions::uncertainty},
@@ -97,7 +99,8 @@ int main(int argc, char** argv) {
             "[--jobs N (1)] [--engine NAME (auto)] [--uncertainty full|warm|laplace (full)] "
             "[--work DIR] "
             "[--list] [--check-scans] [--write-scans DIR] [--held-out N [--held-out-seed S]] "
-            "[--energy-refine F (1)] [--energy-combine K (0 = auto)]\n");
+            "[--energy-refine F (1)] [--energy-combine K (0 = auto)] "
+            "[--full-model-patience N (0 = retrieve's default)]\n");
         return 0;
       } else if (!a.empty() && a[0] == '-') {
         throw usage_error("unknown option " + a);
